@@ -1,0 +1,511 @@
+package mask
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"strings"
+)
+
+// Sentinel errors. Every error returned by this package wraps exactly one of
+// them, so callers can match with errors.Is; the message names the argument
+// and its value.
+var (
+	// ErrSize: a negative batch, query or key length.
+	ErrSize = errors.New("mask: invalid size")
+	// ErrOffset: a query position offset that puts a query outside the keys.
+	ErrOffset = errors.New("mask: query position out of range")
+	// ErrAlign: an alignment value that is not AlignEnd or AlignStart.
+	ErrAlign = errors.New("mask: invalid alignment")
+	// ErrBand: a band extent below zero that is not Unbounded.
+	ErrBand = errors.New("mask: invalid band")
+	// ErrWindow: a sliding window of fewer than one key.
+	ErrWindow = errors.New("mask: invalid window")
+	// ErrPrefix: a negative prefix length, or one longer than the keys.
+	ErrPrefix = errors.New("mask: invalid prefix")
+	// ErrValidLength: key-padding lengths that are negative, longer than the
+	// keys, or not one per batch entry.
+	ErrValidLength = errors.New("mask: invalid valid length")
+	// ErrSegments: packed-sequence offsets that do not start at 0, do not
+	// increase strictly, or do not end at the key length.
+	ErrSegments = errors.New("mask: invalid sequence offsets")
+	// ErrBlock: a packed-sequence block kind that is not BlockCausal or
+	// BlockFull.
+	ErrBlock = errors.New("mask: invalid block kind")
+	// ErrFill: a NaN or +Inf bias fill.
+	ErrFill = errors.New("mask: invalid fill")
+	// ErrEmpty: an intersection of no masks, or a zero Mask value.
+	ErrEmpty = errors.New("mask: no mask")
+	// ErrIndex: an element index outside the geometry.
+	ErrIndex = errors.New("mask: index out of range")
+)
+
+// Unbounded as a Band extent means no limit on that side.
+const Unbounded = -1
+
+// Align says where query row i sits among the key positions when the query
+// length Lq differs from the key length Lk.
+type Align int
+
+const (
+	// AlignEnd puts the last query at the last key: query i is at key
+	// position Lk − Lq + i (+ Offset). This is the decode and chunked-prefill
+	// convention: the new tokens are the last Lq of the Lk keys. It is the
+	// zero value.
+	AlignEnd Align = iota
+	// AlignStart puts query i at key position i (+ Offset).
+	AlignStart
+)
+
+func (a Align) String() string {
+	switch a {
+	case AlignEnd:
+		return "AlignEnd"
+	case AlignStart:
+		return "AlignStart"
+	}
+	return fmt.Sprintf("Align(%d)", int(a))
+}
+
+// Block is the visibility inside one packed sequence.
+type Block int
+
+const (
+	// BlockCausal: within a sequence, key j is visible to query position p
+	// iff j ≤ p.
+	BlockCausal Block = iota
+	// BlockFull: within a sequence, every key is visible.
+	BlockFull
+)
+
+func (b Block) String() string {
+	switch b {
+	case BlockCausal:
+		return "BlockCausal"
+	case BlockFull:
+		return "BlockFull"
+	}
+	return fmt.Sprintf("Block(%d)", int(b))
+}
+
+// Geometry is the shape a mask is laid on: Batch entries of Lq queries by Lk
+// keys, and where the queries sit among the keys.
+//
+// Query i (0 ≤ i < Lq) has key position
+//
+//	p(i) = a + Offset + i,  a = Lk − Lq for AlignEnd, a = 0 for AlignStart.
+//
+// Masks that depend on positions (causal, band, window, prefix, packed)
+// require 0 ≤ p(i) < Lk for every query: each query sits at one of the keys.
+// Full and key-padding masks do not look at positions, so any Lq goes with
+// them (cross-attention).
+type Geometry struct {
+	Batch  int
+	Lq, Lk int
+	Align  Align
+	Offset int
+}
+
+// Pos is the key position p(i) of query i.
+func (g Geometry) Pos(i int) int {
+	a := 0
+	if g.Align == AlignEnd {
+		a = g.Lk - g.Lq
+	}
+	return a + g.Offset + i
+}
+
+func (g Geometry) String() string {
+	return fmt.Sprintf("Batch=%d Lq=%d Lk=%d %v Offset=%d", g.Batch, g.Lq, g.Lk, g.Align, g.Offset)
+}
+
+type kind int
+
+const (
+	kindNone kind = iota
+	kindFull
+	kindCausal
+	kindBand
+	kindPrefix
+	kindPadding
+	kindPacked
+	kindIntersect
+)
+
+// Mask says which keys each query may see. Build one with Full, Causal,
+// Band, Window, Prefix, KeyPadding, Packed or Intersect; the zero value is
+// not a mask and every method reports ErrEmpty for it. A Mask is an
+// immutable value, safe for concurrent use.
+type Mask struct {
+	kind          kind
+	before, after int   // band; Unbounded or ≥ 0
+	window        int   // > 0 when the band was made by Window
+	prefix        int   // prefix length
+	valid         []int // key padding: valid length per batch entry
+	offsets       []int // packed: sequence boundaries
+	block         Block
+	parts         []Mask
+}
+
+// Full lets every query see every key.
+func Full() Mask { return Mask{kind: kindFull} }
+
+// Causal lets query position p see keys j ≤ p (Vaswani et al. 2017, §3.2.3:
+// "prevent leftward information flow").
+func Causal() Mask { return Mask{kind: kindCausal} }
+
+// Band lets query position p see key j iff −before ≤ j − p ≤ after. An
+// extent of Unbounded removes the limit on that side: Band(Unbounded, 0) is
+// Causal and Band(Unbounded, Unbounded) is Full.
+func Band(before, after int) (Mask, error) {
+	if before < 0 && before != Unbounded {
+		return Mask{}, fmt.Errorf("%w: Band: before = %d; want ≥ 0 or Unbounded", ErrBand, before)
+	}
+	if after < 0 && after != Unbounded {
+		return Mask{}, fmt.Errorf("%w: Band: after = %d; want ≥ 0 or Unbounded", ErrBand, after)
+	}
+	return Mask{kind: kindBand, before: before, after: after}, nil
+}
+
+// Window is a causal sliding window of n keys ending at the query itself:
+// query position p sees keys p−n+1 … p, that is p − n < j ≤ p, or
+// Band(n−1, 0). For n = 3 and p = 5 the visible keys are 3, 4 and 5.
+//
+// Sources differ on whether a window of W counts the query: Beltagy et al.
+// 2020 (arXiv 2004.05150, §3.1) describe ½w tokens on each side; Jiang et
+// al. 2023 (arXiv 2310.06825, §2) write i−W ≤ j ≤ i in the text while the
+// figure and a rolling cache of W entries give i−W < j ≤ i. Window(n) is the
+// latter; use Band for any other reading.
+func Window(n int) (Mask, error) {
+	if n < 1 {
+		return Mask{}, fmt.Errorf("%w: Window: n = %d; a window holds at least one key", ErrWindow, n)
+	}
+	return Mask{kind: kindBand, before: n - 1, after: 0, window: n}, nil
+}
+
+// Prefix is the prefix-bidirectional mask: key positions below p form a
+// prefix that every query sees, and the rest is causal. Query position q
+// sees key j iff j < p or j ≤ q. Prefix(0) is Causal.
+func Prefix(p int) (Mask, error) {
+	if p < 0 {
+		return Mask{}, fmt.Errorf("%w: Prefix: p = %d; want ≥ 0", ErrPrefix, p)
+	}
+	return Mask{kind: kindPrefix, prefix: p}, nil
+}
+
+// KeyPadding hides padded keys: in batch entry b, key j is visible iff
+// j < valid[b]. valid must have one entry per batch entry, each in [0, Lk];
+// that is checked when the mask is laid on a Geometry.
+func KeyPadding(valid []int) (Mask, error) {
+	for b, v := range valid {
+		if v < 0 {
+			return Mask{}, fmt.Errorf("%w: KeyPadding: valid[%d] = %d; want ≥ 0", ErrValidLength, b, v)
+		}
+	}
+	return Mask{kind: kindPadding, valid: append([]int(nil), valid...)}, nil
+}
+
+// Packed is the block-diagonal mask of several sequences packed into one
+// row of Lk keys. offsets are the sequence boundaries: sequence s holds key
+// positions offsets[s] ≤ j < offsets[s+1]; offsets[0] must be 0, the
+// entries must increase strictly, and the last must equal Lk (checked on a
+// Geometry). Query position p sees key j iff both lie in the same sequence
+// and, for BlockCausal, j ≤ p.
+func Packed(offsets []int, block Block) (Mask, error) {
+	if block != BlockCausal && block != BlockFull {
+		return Mask{}, fmt.Errorf("%w: Packed: block = %d", ErrBlock, int(block))
+	}
+	if len(offsets) < 2 {
+		return Mask{}, fmt.Errorf("%w: Packed: offsets = %v; want at least 2 entries (0 and the total length)", ErrSegments, offsets)
+	}
+	if offsets[0] != 0 {
+		return Mask{}, fmt.Errorf("%w: Packed: offsets[0] = %d; want 0", ErrSegments, offsets[0])
+	}
+	for s := 1; s < len(offsets); s++ {
+		if offsets[s] <= offsets[s-1] {
+			return Mask{}, fmt.Errorf("%w: Packed: offsets[%d] = %d after offsets[%d] = %d; offsets must increase strictly", ErrSegments, s, offsets[s], s-1, offsets[s-1])
+		}
+	}
+	return Mask{kind: kindPacked, offsets: append([]int(nil), offsets...), block: block}, nil
+}
+
+// Intersect is the mask whose visible keys are those visible in every one of
+// masks. Nested intersections are flattened.
+func Intersect(masks ...Mask) (Mask, error) {
+	if len(masks) == 0 {
+		return Mask{}, fmt.Errorf("%w: Intersect: no masks given", ErrEmpty)
+	}
+	var parts []Mask
+	for k, m := range masks {
+		if m.kind == kindNone {
+			return Mask{}, fmt.Errorf("%w: Intersect: masks[%d] is the zero Mask", ErrEmpty, k)
+		}
+		if m.kind == kindIntersect {
+			parts = append(parts, m.parts...)
+		} else {
+			parts = append(parts, m)
+		}
+	}
+	if len(parts) == 1 {
+		return parts[0], nil
+	}
+	return Mask{kind: kindIntersect, parts: parts}, nil
+}
+
+// UsesPositions reports whether the mask depends on query positions, and so
+// requires every query to sit at one of the keys (see Geometry).
+func (m Mask) UsesPositions() bool {
+	switch m.kind {
+	case kindCausal, kindBand, kindPrefix, kindPacked:
+		return true
+	case kindIntersect:
+		for _, p := range m.parts {
+			if p.UsesPositions() {
+				return true
+			}
+		}
+	}
+	return false
+}
+
+// String describes the mask, for messages.
+func (m Mask) String() string {
+	switch m.kind {
+	case kindFull:
+		return "Full"
+	case kindCausal:
+		return "Causal"
+	case kindBand:
+		if m.window > 0 {
+			return fmt.Sprintf("Window(%d)", m.window)
+		}
+		return fmt.Sprintf("Band(%s, %s)", extent(m.before), extent(m.after))
+	case kindPrefix:
+		return fmt.Sprintf("Prefix(%d)", m.prefix)
+	case kindPadding:
+		return fmt.Sprintf("KeyPadding(%v)", m.valid)
+	case kindPacked:
+		return fmt.Sprintf("Packed(%v, %v)", m.offsets, m.block)
+	case kindIntersect:
+		s := make([]string, len(m.parts))
+		for k, p := range m.parts {
+			s[k] = p.String()
+		}
+		return "Intersect(" + strings.Join(s, ", ") + ")"
+	}
+	return "Mask(none)"
+}
+
+func extent(e int) string {
+	if e == Unbounded {
+		return "Unbounded"
+	}
+	return fmt.Sprint(e)
+}
+
+// Check reports whether the mask can be laid on g: sizes are not negative,
+// the alignment is known, query positions are in range where the mask uses
+// them, and key-padding lengths and packed offsets fit the batch and the
+// keys. Visible, Bias, Sees and EmptyRows all call it.
+func (m Mask) Check(g Geometry) error {
+	if m.kind == kindNone {
+		return fmt.Errorf("%w: the zero Mask is not a mask; use Full, Causal, …", ErrEmpty)
+	}
+	if g.Batch < 0 {
+		return fmt.Errorf("%w: Batch = %d; want ≥ 0", ErrSize, g.Batch)
+	}
+	if g.Lq < 0 {
+		return fmt.Errorf("%w: Lq = %d; want ≥ 0", ErrSize, g.Lq)
+	}
+	if g.Lk < 0 {
+		return fmt.Errorf("%w: Lk = %d; want ≥ 0", ErrSize, g.Lk)
+	}
+	if g.Align != AlignEnd && g.Align != AlignStart {
+		return fmt.Errorf("%w: Align = %d; want AlignEnd or AlignStart", ErrAlign, int(g.Align))
+	}
+	if m.UsesPositions() && g.Lq > 0 {
+		first, last := g.Pos(0), g.Pos(g.Lq-1)
+		if first < 0 || last >= g.Lk {
+			return fmt.Errorf("%w: %v with Lq = %d, Lk = %d, Offset = %d puts queries at key positions %d … %d; %v needs them within 0 … %d",
+				ErrOffset, g.Align, g.Lq, g.Lk, g.Offset, first, last, m, g.Lk-1)
+		}
+	}
+	return m.checkParts(g)
+}
+
+func (m Mask) checkParts(g Geometry) error {
+	switch m.kind {
+	case kindPadding:
+		if len(m.valid) != g.Batch {
+			return fmt.Errorf("%w: KeyPadding has %d valid lengths, Batch = %d", ErrValidLength, len(m.valid), g.Batch)
+		}
+		for b, v := range m.valid {
+			if v > g.Lk {
+				return fmt.Errorf("%w: KeyPadding: valid[%d] = %d exceeds Lk = %d", ErrValidLength, b, v, g.Lk)
+			}
+		}
+	case kindPacked:
+		if last := m.offsets[len(m.offsets)-1]; last != g.Lk {
+			return fmt.Errorf("%w: Packed: last offset = %d; want the key length Lk = %d", ErrSegments, last, g.Lk)
+		}
+	case kindPrefix:
+		if m.prefix > g.Lk {
+			return fmt.Errorf("%w: Prefix: p = %d exceeds Lk = %d", ErrPrefix, m.prefix, g.Lk)
+		}
+	case kindIntersect:
+		for _, p := range m.parts {
+			if err := p.checkParts(g); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// sees is the definition; the caller has checked g and the indices.
+func (m Mask) sees(g Geometry, b, i, j int) bool {
+	switch m.kind {
+	case kindFull:
+		return true
+	case kindCausal:
+		return j <= g.Pos(i)
+	case kindBand:
+		d := j - g.Pos(i)
+		return (m.before == Unbounded || -m.before <= d) && (m.after == Unbounded || d <= m.after)
+	case kindPrefix:
+		return j < m.prefix || j <= g.Pos(i)
+	case kindPadding:
+		return j < m.valid[b]
+	case kindPacked:
+		p := g.Pos(i)
+		if segment(m.offsets, p) != segment(m.offsets, j) {
+			return false
+		}
+		return m.block == BlockFull || j <= p
+	case kindIntersect:
+		for _, part := range m.parts {
+			if !part.sees(g, b, i, j) {
+				return false
+			}
+		}
+		return true
+	}
+	return false
+}
+
+// segment is the index s with offsets[s] ≤ x < offsets[s+1], by bisection.
+func segment(offsets []int, x int) int {
+	lo, hi := 0, len(offsets)-1
+	for hi-lo > 1 {
+		mid := int(uint(lo+hi) >> 1)
+		if offsets[mid] <= x {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	return lo
+}
+
+// Sees reports whether, in batch entry b, query i may see key j.
+func (m Mask) Sees(g Geometry, b, i, j int) (bool, error) {
+	if err := m.Check(g); err != nil {
+		return false, err
+	}
+	if b < 0 || b >= g.Batch || i < 0 || i >= g.Lq || j < 0 || j >= g.Lk {
+		return false, fmt.Errorf("%w: (b, i, j) = (%d, %d, %d) outside [%d, %d, %d]", ErrIndex, b, i, j, g.Batch, g.Lq, g.Lk)
+	}
+	return m.sees(g, b, i, j), nil
+}
+
+// Visible is the boolean form of the mask on g: a [Batch, Lq, Lk] row-major
+// slice, true where the query may see the key.
+//
+// Special cases are:
+//
+//	Lk = 0: every row is empty (see EmptyRows)
+//	Lq = 0 or Batch = 0: an empty slice
+func (m Mask) Visible(g Geometry) ([]bool, error) {
+	if err := m.Check(g); err != nil {
+		return nil, err
+	}
+	out := make([]bool, g.Batch*g.Lq*g.Lk)
+	m.Rows(g, func(b, i int, row []bool) {
+		copy(out[(b*g.Lq+i)*g.Lk:], row)
+	})
+	return out, nil
+}
+
+// Rows calls fn for every (batch entry, query) in order with the row of Lk
+// visibility flags; row is reused between calls. g must have passed Check;
+// Rows does not check it again. It lets a kernel walk a mask without
+// holding all of it.
+func (m Mask) Rows(g Geometry, fn func(b, i int, row []bool)) {
+	row := make([]bool, g.Lk)
+	for b := 0; b < g.Batch; b++ {
+		for i := 0; i < g.Lq; i++ {
+			for j := range row {
+				row[j] = m.sees(g, b, i, j)
+			}
+			fn(b, i, row)
+		}
+	}
+}
+
+// Bias is the additive form of the mask on g with fill −Inf: a [Batch, Lq,
+// Lk] slice holding 0 where the query may see the key and −Inf elsewhere, to
+// be added to attention logits before the softmax (Vaswani et al. 2017,
+// §3.2.3). See BiasFill for a finite fill.
+func (m Mask) Bias(g Geometry) ([]float64, error) {
+	return m.BiasFill(g, math.Inf(-1))
+}
+
+// BiasFill is Bias with a fill chosen by the caller: 0 where visible, fill
+// elsewhere. A finite fill (a large negative number such as −1e9 or the
+// lowest value of a low-precision format) is what many kernels use instead
+// of −Inf; note that with a finite fill a row that sees no key gets a
+// uniform softmax over all keys instead of an empty one.
+//
+// Special cases are:
+//
+//	fill = NaN or +Inf: error ErrFill
+//	fill = −Inf: same as Bias
+func (m Mask) BiasFill(g Geometry, fill float64) ([]float64, error) {
+	if math.IsNaN(fill) || math.IsInf(fill, 1) {
+		return nil, fmt.Errorf("%w: fill = %v; want a finite value or −Inf", ErrFill, fill)
+	}
+	vis, err := m.Visible(g)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]float64, len(vis))
+	for k, v := range vis {
+		if !v {
+			out[k] = fill
+		}
+	}
+	return out, nil
+}
+
+// Row names one query row of one batch entry.
+type Row struct{ Batch, Query int }
+
+// EmptyRows lists, in order, the (batch entry, query) rows that see no key
+// at all on g. Attention over such a row has an empty softmax; what a
+// kernel outputs there is a convention of its own (see the attention
+// package's empty-row policy).
+func (m Mask) EmptyRows(g Geometry) ([]Row, error) {
+	if err := m.Check(g); err != nil {
+		return nil, err
+	}
+	var rows []Row
+	m.Rows(g, func(b, i int, row []bool) {
+		for _, v := range row {
+			if v {
+				return
+			}
+		}
+		rows = append(rows, Row{b, i})
+	})
+	return rows, nil
+}
