@@ -1,0 +1,197 @@
+package attention
+
+import (
+	"errors"
+	"fmt"
+
+	"github.com/plumbref/plumb/mask"
+)
+
+// Forward is scaled dot-product attention (Vaswani et al. 2017, "Attention
+// Is All You Need", arXiv 1706.03762, §3.2.1 Eq. (1) and §3.2.2), the
+// reference: for query head h of batch entry b and query row i,
+//
+//	s_j   = logit of key j, built as Options says (scale, cap, bias, ALiBi, mask)
+//	lse_i = log(e^{σ_h} + Σ_j e^{s_j})               (σ_h = −Inf without sinks)
+//	P_ij  = e^{s_j − lse_i}
+//	O_i   = Σ_j P_ij V_j                              (V of kv head kv(h))
+//
+// It returns the output O, [Batch, HeadsQ, Lq, Dv] in o.Layout, and the
+// natural log-sum-exp of each row, [Batch, HeadsQ, Lq] (HeadsMajor) or
+// [Batch, Lq, HeadsQ] (SeqMajor), so that O row r goes with lse[r] in both
+// layouts. The log-sum-exp includes the sink, and is what Merge and
+// Backward's dLSE refer to.
+//
+// This is the direct form: one row at a time, the logits computed as
+// written, the maximum subtracted before exp (which changes no value
+// mathematically and keeps e^{s−max} ≤ 1), the probabilities normalised
+// before they weight V. Its inner loops are the definition:
+//
+//	for j := range keys {            // s_j as above, −Inf where hidden
+//		m = max(m, s_j)
+//	}
+//	for j := range keys {
+//		P_j = exp(s_j − m); sum += P_j
+//	}
+//	sum += exp(σ_h − m)
+//	P_j /= sum; lse = m + log(sum)
+//	O_i = Σ_j P_j V_j                // keys with P_j = 0 are skipped
+//
+// Special cases are:
+//
+//	a row that sees no key (mask, −Inf bias, Lk = 0), and no sink:
+//	                            O row 0 (EmptyRowZero) or NaN (EmptyRowNaN), lse −Inf
+//	a row that sees no key but has a finite sink:  O row 0, lse σ_h
+//	logits near ±1000:          exact: only differences s_j − max are exponentiated
+//	NaN in a visible logit:     that row's O and lse are NaN
+//	+Inf in a visible logit:    that row's O and lse are NaN (Inf − Inf)
+//	Inf or NaN in a V row of weight 0 (hidden key): ignored
+//	Batch = 0 or Lq = 0:        empty outputs
+//
+// Accuracy: against the 50-digit golden values the worst normwise relative
+// error measured is given in the package documentation.
+func Forward(q, k, v []float64, s Shape, o Options) (out, lse []float64, err error) {
+	p, err := newPlan(len(q), len(k), len(v), s, &o)
+	if err != nil {
+		return nil, nil, err
+	}
+	out, lse = forward(p, q, k, v)
+	return out, lse, nil
+}
+
+// Forward32 is the float32 instantiation of the same body as Forward: the
+// straightforward low-precision implementation the compare package uses as
+// a yardstick; not a reference. Every product and sum is rounded to
+// float32; exp, log, tanh and cosh are evaluated in float64 and rounded.
+func Forward32(q, k, v []float32, s Shape, o Options) (out, lse []float32, err error) {
+	p, err := newPlan(len(q), len(k), len(v), s, &o)
+	if err != nil {
+		return nil, nil, err
+	}
+	out, lse = forward(p, q, k, v)
+	return out, lse, nil
+}
+
+// Grads are the gradients of a loss with respect to the inputs of Forward.
+// DQ, DK and DV have the shapes and layout of Q, K and V. DSinks has one
+// entry per query head when Options.Sinks is set, DBias the shape of
+// Options.Bias ([BiasBatch, BiasHeads, Lq, Lk], summed over the broadcast
+// dimensions) when a bias is set; otherwise they are nil.
+type Grads struct {
+	DQ, DK, DV    []float64
+	DSinks, DBias []float64
+}
+
+// Grads32 is Grads for Backward32.
+type Grads32 struct {
+	DQ, DK, DV    []float32
+	DSinks, DBias []float32
+}
+
+// Backward is the gradient of Forward, the reference. Given dOut = ∂L/∂O
+// and, optionally, dLSE = ∂L/∂lse (nil means 0), it returns ∂L/∂Q, ∂L/∂K,
+// ∂L/∂V and, when present, the gradients of the sink logits and the bias,
+// by the standard calculus of softmax (stated here because no single paper
+// owns it):
+//
+//	dV_j  = Σ_i P_ij dO_i
+//	dP_ij = dO_i · V_j
+//	D_i   = Σ_j P_ij dP_ij                    (= dO_i · O_i)
+//	dS_ij = P_ij (dP_ij − D_i + dLSE_i)
+//	dBias_ij = dS_ij                          (summed over broadcast dims)
+//	dσ_h  = Σ_{b,i} P_sink,i (dLSE_i − D_i),  P_sink,i = e^{σ_h − lse_i}
+//	dT_ij = dS_ij · sech²(t_ij / c)           (soft-cap; 1 without a cap)
+//	dQ_i  = Scale Σ_j dT_ij K_j,  dK_j = Scale Σ_i dT_ij Q_i
+//
+// dK and dV of a kv head are summed over every query head that reads it
+// (grouped attention). The forward pass is recomputed; dOut has the shape
+// and layout of O, dLSE that of lse.
+//
+// Special cases are:
+//
+//	an empty row under EmptyRowZero: contributes nothing
+//	an empty row under EmptyRowNaN:  its dQ row, and the dK and dV of its
+//	                                 kv head in that batch entry, are NaN
+//	a key of weight 0 (hidden, −Inf bias, exp underflow): contributes nothing
+//	ALiBi slopes, Scale, SoftCap: treated as constants (no gradient)
+func Backward(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) {
+	p, err := newBackwardPlan(len(q), len(k), len(v), len(dOut), dLSE != nil, len(dLSE), s, &o)
+	if err != nil {
+		return Grads{}, err
+	}
+	g := backward(p, q, k, v, dOut, dLSE)
+	return Grads{DQ: g.dq, DK: g.dk, DV: g.dv, DSinks: g.dsinks, DBias: g.dbias}, nil
+}
+
+// Backward32 is the float32 instantiation of the same body as Backward: the
+// straightforward low-precision implementation the compare package uses as
+// a yardstick; not a reference.
+func Backward32(q, k, v, dOut, dLSE []float32, s Shape, o Options) (Grads32, error) {
+	p, err := newBackwardPlan(len(q), len(k), len(v), len(dOut), dLSE != nil, len(dLSE), s, &o)
+	if err != nil {
+		return Grads32{}, err
+	}
+	g := backward(p, q, k, v, dOut, dLSE)
+	return Grads32{DQ: g.dq, DK: g.dk, DV: g.dv, DSinks: g.dsinks, DBias: g.dbias}, nil
+}
+
+func newBackwardPlan(qn, kn, vn, dn int, hasLSE bool, ln int, s Shape, o *Options) (*plan, error) {
+	p, err := newPlan(qn, kn, vn, s, o)
+	if err != nil {
+		return nil, err
+	}
+	if err := checkLen("dOut", dn, s.oLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dv)); err != nil {
+		return nil, err
+	}
+	if hasLSE {
+		if err := checkLen("dLSE", ln, s.lseLen(), s, fmt.Sprintf("[%d %d %d]", s.Batch, s.HeadsQ, s.Lq)); err != nil {
+			return nil, err
+		}
+	}
+	return p, nil
+}
+
+// Decode is attention of new queries against a key/value cache: the Lq
+// queries sit at key positions pos, pos+1, …, pos+Lq−1 of the Lk cached
+// keys, and query i sees key j iff j ≤ pos+i and o.Mask (if set) shows it,
+// for instance a Window. It is Forward with o.Align = mask.AlignStart,
+// o.Offset = pos and the causal mask intersected with o.Mask; the Align and
+// Offset of o are ignored. Keys after pos+Lq−1, if the cache holds any, are
+// hidden.
+//
+// With pos = Lk − Lq this is the last Lq rows of a causal prefill over all
+// Lk keys; with Lq = 1 it is one decoding step.
+//
+// Special cases are:
+//
+//	pos < 0 or pos+Lq > Lk:  error ErrOption
+func Decode(q, kCache, vCache []float64, s Shape, pos int, o Options) (out, lse []float64, err error) {
+	if err := decodeOptions(s, pos, &o); err != nil {
+		return nil, nil, err
+	}
+	return Forward(q, kCache, vCache, s, o)
+}
+
+func decodeOptions(s Shape, pos int, o *Options) error {
+	if pos < 0 || pos+s.Lq > s.Lk {
+		return fmt.Errorf("%w: Decode: pos = %d with Lq = %d puts queries at positions %d … %d; the cache holds Lk = %d keys",
+			ErrOption, pos, s.Lq, pos, pos+s.Lq-1, s.Lk)
+	}
+	m := mask.Causal()
+	if !isZeroMask(o.Mask) {
+		var err error
+		m, err = mask.Intersect(m, o.Mask)
+		if err != nil {
+			return fmt.Errorf("%w: %w", ErrMask, err)
+		}
+	}
+	o.Mask, o.Align, o.Offset = m, mask.AlignStart, pos
+	return nil
+}
+
+// isZeroMask reports whether m is the zero Mask, which the mask package
+// refuses with ErrEmpty and which Options reads as mask.Full().
+func isZeroMask(m mask.Mask) bool {
+	return errors.Is(m.Check(mask.Geometry{}), mask.ErrEmpty)
+}
+

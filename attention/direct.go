@@ -1,0 +1,218 @@
+package attention
+
+import (
+	"math"
+
+	"github.com/plumbref/plumb/internal/num"
+)
+
+// This file holds the direct form: one query row at a time, every formula
+// written out as it reads. The float64 instantiation is the reference.
+
+// logitsRow writes the final logits of row (b, h, i) into s (one per key,
+// −Inf where the mask hides the key). When sech2 is not nil and a cap is
+// set it also writes the derivative of the cap, 1/cosh²(t/c), per key.
+func logitsRow[T num.Float](p *plan, q, k []T, b, h, i int, s, sech2 []T) {
+	dk, lk := p.s.Dk, p.s.Lk
+	qi := q[p.qOff(b, h, i):][:dk]
+	kv := p.kvHead(h)
+	vis := p.vis[(b*p.s.Lq+i)*lk:][:lk]
+	for j := range s {
+		if !vis[j] {
+			s[j] = T(math.Inf(-1))
+			continue
+		}
+		kj := k[p.kOff(b, kv, j):][:dk]
+		var acc T
+		for d, x := range qi {
+			acc += T(x * kj[d])
+		}
+		s[j] = finishLogit(p, T(p.scale)*acc, b, h, i, j, sech2)
+	}
+}
+
+// finishLogit applies the cap, the bias and ALiBi to the scaled logit t of
+// key j in row (b, h, i), in that order. With sech2 not nil and a cap set
+// it stores the cap's derivative in sech2[j].
+func finishLogit[T num.Float](p *plan, t T, b, h, i, j int, sech2 []T) T {
+	if c := p.softCap; c > 0 {
+		u := float64(t) / c
+		if sech2 != nil {
+			ch := math.Cosh(u)
+			sech2[j] = T(1 / (ch * ch))
+		}
+		t = T(c * math.Tanh(u))
+	}
+	if r := p.biasRow(b, h, i); r >= 0 {
+		t += T(p.bias[r+j])
+	}
+	if p.slopes != nil {
+		d := p.geom.Pos(i) - j
+		if p.symmetric && d < 0 {
+			d = -d
+		}
+		t -= T(T(p.slopes[h]) * T(d))
+	}
+	return t
+}
+
+// sinkLogit is the sink logit of head h, −Inf for none.
+func (p *plan) sinkLogit(h int) float64 {
+	if p.sinks == nil {
+		return math.Inf(-1)
+	}
+	return p.sinks[h]
+}
+
+// softmaxRow turns the logits s into probabilities in place, with the sink
+// logit sink (−Inf for none) joining the denominator. It returns the
+// natural log-sum-exp of the logits and the sink, the sink's probability,
+// and whether the row is empty (every logit and the sink −Inf). An empty
+// row's probabilities are 0, or NaN under EmptyRowNaN; its log-sum-exp is
+// −Inf.
+func softmaxRow[T num.Float](s []T, sink T, emptyNaN bool) (lse, psink T, empty bool) {
+	m := sink
+	for _, x := range s {
+		if x > m || x != x { // a NaN logit makes the whole row NaN
+			m = x
+		}
+	}
+	if math.IsInf(float64(m), -1) {
+		fill := T(0)
+		if emptyNaN {
+			fill = T(math.NaN())
+		}
+		for j := range s {
+			s[j] = fill
+		}
+		return T(math.Inf(-1)), 0, true
+	}
+	var sum T
+	for j, x := range s {
+		e := T(math.Exp(float64(x - m)))
+		s[j] = e
+		sum += e
+	}
+	es := T(math.Exp(float64(sink - m)))
+	sum += es
+	for j := range s {
+		s[j] /= sum
+	}
+	return m + T(math.Log(float64(sum))), es / sum, false
+}
+
+// forward is the direct form of Forward.
+func forward[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
+	s := p.s
+	out = make([]T, s.oLen())
+	lse = make([]T, s.lseLen())
+	row := make([]T, s.Lk)
+	for b := 0; b < s.Batch; b++ {
+		for h := 0; h < s.HeadsQ; h++ {
+			kv := p.kvHead(h)
+			for i := 0; i < s.Lq; i++ {
+				logitsRow(p, q, k, b, h, i, row, nil)
+				l, _, _ := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
+				lse[p.lOff(b, h, i)] = l
+				oi := out[p.oOff(b, h, i):][:s.Dv]
+				for j, pj := range row {
+					if pj == 0 {
+						continue // a key of weight 0 contributes nothing
+					}
+					vj := v[p.vOff(b, kv, j):][:s.Dv]
+					for d, x := range vj {
+						oi[d] += T(pj * x)
+					}
+				}
+			}
+		}
+	}
+	return out, lse
+}
+
+// grads holds the gradients of one backward pass.
+type grads[T num.Float] struct {
+	dq, dk, dv, dsinks, dbias []T
+}
+
+// backward is the direct form of Backward. dlse may be nil.
+func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
+	s := p.s
+	g := grads[T]{dq: make([]T, s.qLen()), dk: make([]T, s.kLen()), dv: make([]T, s.vLen())}
+	if p.sinks != nil {
+		g.dsinks = make([]T, s.HeadsQ)
+	}
+	if p.bias != nil {
+		g.dbias = make([]T, len(p.bias))
+	}
+	row := make([]T, s.Lk)
+	dp := make([]T, s.Lk)
+	var sech2 []T
+	if p.softCap > 0 {
+		sech2 = make([]T, s.Lk)
+	}
+	scale := T(p.scale)
+	for b := 0; b < s.Batch; b++ {
+		for h := 0; h < s.HeadsQ; h++ {
+			kv := p.kvHead(h)
+			for i := 0; i < s.Lq; i++ {
+				logitsRow(p, q, k, b, h, i, row, sech2)
+				_, psink, empty := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
+				if empty && !p.emptyNaN {
+					continue // an empty row under EmptyRowZero is constant
+				}
+				var gl T
+				if dlse != nil {
+					gl = dlse[p.lOff(b, h, i)]
+				}
+				doi := dout[p.oOff(b, h, i):][:s.Dv]
+				qi := q[p.qOff(b, h, i):][:s.Dk]
+				dqi := g.dq[p.qOff(b, h, i):][:s.Dk]
+				// dP_j = dO_i · v_j and D_i = Σ_j P_ij dP_ij.
+				var dsum T
+				for j, pj := range row {
+					if pj == 0 {
+						continue
+					}
+					vj := v[p.vOff(b, kv, j):][:s.Dv]
+					var acc T
+					for d, x := range doi {
+						acc += T(x * vj[d])
+					}
+					dp[j] = acc
+					dsum += T(pj * acc)
+				}
+				if g.dsinks != nil {
+					g.dsinks[h] += T(psink * (gl - dsum))
+				}
+				br := p.biasRow(b, h, i)
+				for j, pj := range row {
+					if pj == 0 {
+						continue
+					}
+					// dS_ij = P_ij (dP_ij − D_i + dLSE_i).
+					ds := pj * ((dp[j] - dsum) + gl)
+					if br >= 0 {
+						g.dbias[br+j] += ds
+					}
+					dt := ds
+					if sech2 != nil {
+						dt *= sech2[j]
+					}
+					dt *= scale
+					kj := k[p.kOff(b, kv, j):][:s.Dk]
+					dkj := g.dk[p.kOff(b, kv, j):][:s.Dk]
+					for d := range qi {
+						dqi[d] += T(dt * kj[d])
+						dkj[d] += T(dt * qi[d])
+					}
+					dvj := g.dv[p.vOff(b, kv, j):][:s.Dv]
+					for d, x := range doi {
+						dvj[d] += T(pj * x)
+					}
+				}
+			}
+		}
+	}
+	return g
+}

@@ -1,0 +1,410 @@
+package attention
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"github.com/plumbref/plumb/mask"
+)
+
+// Sentinel errors. Every error returned by this package wraps exactly one of
+// them (and, for a mask that does not fit, the mask package's own error as
+// well), so callers can match with errors.Is; the message names the
+// argument, the value expected and the value found.
+var (
+	// ErrShape: a dimension out of range (Dk = 0, a negative length, …) or
+	// query heads that are not a multiple of the key/value heads.
+	ErrShape = errors.New("attention: invalid shape")
+	// ErrLength: a slice whose length does not match the shape.
+	ErrLength = errors.New("attention: length mismatch")
+	// ErrOption: an option out of its domain (a scale or cap that is not
+	// positive and finite, an unknown layout, group mapping, policy or form,
+	// a NaN slope or sink, a tile size below one).
+	ErrOption = errors.New("attention: invalid option")
+	// ErrBias: an additive bias whose shape does not broadcast to
+	// [Batch, HeadsQ, Lq, Lk].
+	ErrBias = errors.New("attention: bias does not broadcast")
+	// ErrMask: a mask that cannot be laid on the query and key lengths; the
+	// error also wraps the mask package's error.
+	ErrMask = errors.New("attention: mask does not fit")
+)
+
+// Layout is the memory order of Q, K, V, the output and their gradients.
+// The innermost dimension is always the head dimension, so every row of a
+// head is contiguous in both layouts.
+type Layout int
+
+const (
+	// HeadsMajor is [Batch, Heads, Seq, Dim]: each head's rows are
+	// contiguous. The log-sum-exp is [Batch, HeadsQ, Lq]. The zero value.
+	HeadsMajor Layout = iota
+	// SeqMajor is [Batch, Seq, Heads, Dim]: the heads of one position are
+	// contiguous, the order a projection produces before any transpose. The
+	// log-sum-exp is [Batch, Lq, HeadsQ].
+	SeqMajor
+)
+
+func (l Layout) String() string {
+	switch l {
+	case HeadsMajor:
+		return "HeadsMajor"
+	case SeqMajor:
+		return "SeqMajor"
+	}
+	return fmt.Sprintf("Layout(%d)", int(l))
+}
+
+// GroupMap says which key/value head query head h reads when HeadsQ is a
+// multiple G·HeadsKV of HeadsKV (grouped-query attention, Ainslie et al.
+// 2023, arXiv 2305.13245, §2.2; multi-query attention is HeadsKV = 1,
+// Shazeer 2019, arXiv 1911.02150, §3; multi-head is HeadsKV = HeadsQ).
+type GroupMap int
+
+const (
+	// GroupBlocks: consecutive query heads share a kv head,
+	// kv(h) = ⌊h / G⌋, G = HeadsQ/HeadsKV. This is the contiguous grouping
+	// drawn in Ainslie et al. 2023, Figure 2. For 8 query heads on 2 kv
+	// heads, heads 0–3 read kv head 0 and heads 4–7 kv head 1. The zero
+	// value.
+	GroupBlocks GroupMap = iota
+	// GroupCycle: kv(h) = h mod HeadsKV; for 8 query heads on 2 kv heads the
+	// even heads read kv head 0 and the odd heads kv head 1.
+	GroupCycle
+)
+
+func (g GroupMap) String() string {
+	switch g {
+	case GroupBlocks:
+		return "GroupBlocks"
+	case GroupCycle:
+		return "GroupCycle"
+	}
+	return fmt.Sprintf("GroupMap(%d)", int(g))
+}
+
+// EmptyRow is what a query row that sees no key at all produces.
+type EmptyRow int
+
+const (
+	// EmptyRowZero: the output row is 0 and its log-sum-exp is −Inf, which
+	// is what a tiled online-softmax kernel gives (its running sum stays 0)
+	// and what makes Merge with an empty part exact. The row contributes
+	// nothing to any gradient. The zero value.
+	EmptyRowZero EmptyRow = iota
+	// EmptyRowNaN: the output row is NaN, which is what a naive softmax over
+	// logits that are all −Inf gives (e^{−Inf − (−Inf)} = NaN); its
+	// log-sum-exp is −Inf. In Backward the row's probabilities are NaN for
+	// every key, so the row's dQ and the dK and dV of its kv head are NaN.
+	EmptyRowNaN
+)
+
+func (e EmptyRow) String() string {
+	switch e {
+	case EmptyRowZero:
+		return "EmptyRowZero"
+	case EmptyRowNaN:
+		return "EmptyRowNaN"
+	}
+	return fmt.Sprintf("EmptyRow(%d)", int(e))
+}
+
+// ALiBiForm is the shape of the ALiBi bias (Press et al. 2022, "Train
+// Short, Test Long", arXiv 2108.12409, §3).
+type ALiBiForm int
+
+const (
+	// ALiBiCausal: bias −m_h·(p(i) − j), the paper's form m·[−(i−1), …, −1, 0]
+	// for the keys up to the query. The zero value. With a mask that shows
+	// keys after the query the same formula gives them a positive bias.
+	ALiBiCausal ALiBiForm = iota
+	// ALiBiSymmetric: bias −m_h·|p(i) − j|, a form used for bidirectional
+	// attention [common practice].
+	ALiBiSymmetric
+)
+
+func (a ALiBiForm) String() string {
+	switch a {
+	case ALiBiCausal:
+		return "ALiBiCausal"
+	case ALiBiSymmetric:
+		return "ALiBiSymmetric"
+	}
+	return fmt.Sprintf("ALiBiForm(%d)", int(a))
+}
+
+// Shape gives the sizes of one attention call: Q is [Batch, HeadsQ, Lq, Dk],
+// K is [Batch, HeadsKV, Lk, Dk], V is [Batch, HeadsKV, Lk, Dv] and the
+// output is [Batch, HeadsQ, Lq, Dv], in the order the Layout says.
+type Shape struct {
+	Batch   int // B ≥ 0
+	HeadsQ  int // query heads ≥ 1
+	HeadsKV int // key/value heads ≥ 1, dividing HeadsQ
+	Lq      int // queries ≥ 0
+	Lk      int // keys ≥ 0
+	Dk      int // query/key head dimension ≥ 1
+	Dv      int // value head dimension ≥ 1
+}
+
+// Sizes of the tensors of s.
+func (s Shape) qLen() int   { return s.Batch * s.HeadsQ * s.Lq * s.Dk }
+func (s Shape) kLen() int   { return s.Batch * s.HeadsKV * s.Lk * s.Dk }
+func (s Shape) vLen() int   { return s.Batch * s.HeadsKV * s.Lk * s.Dv }
+func (s Shape) oLen() int   { return s.Batch * s.HeadsQ * s.Lq * s.Dv }
+func (s Shape) lseLen() int { return s.Batch * s.HeadsQ * s.Lq }
+
+// Options are the conventions and extras of one attention call. The zero
+// value is plain scaled dot-product attention over every key, HeadsMajor,
+// GroupBlocks, EmptyRowZero.
+//
+// The logit of query i and key j, for query head h in batch entry b, is
+// built in this order:
+//
+//	t = Scale · (q_i · k_j)             scale (default 1/√Dk)
+//	t = SoftCap · tanh(t / SoftCap)     soft-cap, when SoftCap > 0
+//	t = t + Bias[b, h, i, j]            additive bias, broadcast
+//	t = t − Slopes[h]·(p(i) − j)        ALiBi, causal form (or |p(i) − j|)
+//	t = −Inf unless Mask shows key j    mask
+//
+// The cap comes before the bias so that a bias (ALiBi, a mask written as
+// −1e9) is not squashed by the tanh; the mask comes last so that hidden
+// keys are hidden whatever the other terms are.
+type Options struct {
+	// Layout of Q, K, V, the output and the gradients.
+	Layout Layout
+	// Scale multiplies q·k; 0 means the default 1/√Dk (Vaswani et al. 2017,
+	// §3.2.1). Otherwise it must be positive and finite.
+	Scale float64
+	// Mask says which keys each query sees; the zero Mask means mask.Full().
+	// It is laid on mask.Geometry{Batch, Lq, Lk, Align, Offset}.
+	Mask mask.Mask
+	// Align and Offset place query i at key position p(i) (see
+	// mask.Geometry); p(i) is also the position ALiBi uses.
+	Align  mask.Align
+	Offset int
+	// Bias is an additive bias of shape [BiasBatch, BiasHeads, Lq, Lk]
+	// (always this order, whatever Layout says), broadcast over batch
+	// when BiasBatch = 1 and over query heads when BiasHeads = 1. When Bias
+	// is nil there is none and BiasBatch, BiasHeads are ignored. A −Inf
+	// entry hides its key like the mask.
+	Bias                 []float64
+	BiasBatch, BiasHeads int
+	// Slopes, when not nil, holds one ALiBi slope per query head (the caller
+	// computes them, e.g. 2^{−8k/H}); ALiBi chooses the form.
+	Slopes []float64
+	ALiBi  ALiBiForm
+	// SoftCap c > 0 replaces the scaled logit t by c·tanh(t/c) (Bello et al.
+	// 2016, arXiv 1611.09940, Appendix A); 0 means no cap.
+	SoftCap float64
+	// Sinks, when not nil, holds one sink logit σ_h per query head: e^{σ_h}
+	// joins every softmax denominator of head h and carries no value, so
+	// the weights of the keys sum to less than 1. −Inf turns a head's sink
+	// off.
+	Sinks []float64
+	// Group maps query heads to kv heads.
+	Group GroupMap
+	// EmptyRow is the policy for rows that see no key.
+	EmptyRow EmptyRow
+}
+
+// plan is a validated call: the options resolved to numbers and the mask
+// laid out as booleans.
+type plan struct {
+	s         Shape
+	layout    Layout
+	scale     float64
+	softCap   float64
+	geom      mask.Geometry
+	vis       []bool // [Batch, Lq, Lk]
+	bias      []float64
+	biasB     bool // bias varies over batch
+	biasH     bool // bias varies over heads
+	slopes    []float64
+	symmetric bool
+	sinks     []float64
+	group     GroupMap
+	emptyNaN  bool
+}
+
+// checkShape validates the sizes alone.
+func checkShape(s Shape) error {
+	switch {
+	case s.Batch < 0:
+		return fmt.Errorf("%w: Batch = %d; want ≥ 0", ErrShape, s.Batch)
+	case s.HeadsQ < 1:
+		return fmt.Errorf("%w: HeadsQ = %d; want ≥ 1", ErrShape, s.HeadsQ)
+	case s.HeadsKV < 1:
+		return fmt.Errorf("%w: HeadsKV = %d; want ≥ 1", ErrShape, s.HeadsKV)
+	case s.HeadsQ%s.HeadsKV != 0:
+		return fmt.Errorf("%w: K has %d heads, Q has %d; %d is not a multiple of %d", ErrShape, s.HeadsKV, s.HeadsQ, s.HeadsQ, s.HeadsKV)
+	case s.Lq < 0:
+		return fmt.Errorf("%w: Lq = %d; want ≥ 0", ErrShape, s.Lq)
+	case s.Lk < 0:
+		return fmt.Errorf("%w: Lk = %d; want ≥ 0", ErrShape, s.Lk)
+	case s.Dk < 1:
+		return fmt.Errorf("%w: Dk = %d; want ≥ 1", ErrShape, s.Dk)
+	case s.Dv < 1:
+		return fmt.Errorf("%w: Dv = %d; want ≥ 1", ErrShape, s.Dv)
+	}
+	const limit = 1 << 40
+	for _, n := range []int{s.Batch * s.HeadsQ, s.Lq * s.Lk, s.Lq * s.Dk, s.Lk * s.Dk, s.Lq * s.Dv, s.Lk * s.Dv} {
+		if n < 0 || n > limit {
+			return fmt.Errorf("%w: %+v is too large", ErrShape, s)
+		}
+	}
+	return nil
+}
+
+func checkLen(name string, got, want int, s Shape, dims string) error {
+	if got != want {
+		return fmt.Errorf("%w: %s has %d elements; shape %s = %d", ErrLength, name, got, dims, want)
+	}
+	return nil
+}
+
+// newPlan validates the shape, the slices that every form takes, and the
+// options.
+func newPlan(qn, kn, vn int, s Shape, o *Options) (*plan, error) {
+	if err := checkShape(s); err != nil {
+		return nil, err
+	}
+	if err := checkLen("Q", qn, s.qLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dk)); err != nil {
+		return nil, err
+	}
+	if err := checkLen("K", kn, s.kLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dk)); err != nil {
+		return nil, err
+	}
+	if err := checkLen("V", vn, s.vLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dv)); err != nil {
+		return nil, err
+	}
+	p := &plan{s: s, layout: o.Layout, group: o.Group}
+	if o.Layout != HeadsMajor && o.Layout != SeqMajor {
+		return nil, fmt.Errorf("%w: Layout = %d; want HeadsMajor or SeqMajor", ErrOption, int(o.Layout))
+	}
+	if o.Group != GroupBlocks && o.Group != GroupCycle {
+		return nil, fmt.Errorf("%w: Group = %d; want GroupBlocks or GroupCycle", ErrOption, int(o.Group))
+	}
+	switch o.EmptyRow {
+	case EmptyRowZero:
+	case EmptyRowNaN:
+		p.emptyNaN = true
+	default:
+		return nil, fmt.Errorf("%w: EmptyRow = %d; want EmptyRowZero or EmptyRowNaN", ErrOption, int(o.EmptyRow))
+	}
+	switch {
+	case o.Scale == 0:
+		p.scale = 1 / math.Sqrt(float64(s.Dk))
+	case !(o.Scale > 0) || math.IsInf(o.Scale, 1):
+		return nil, fmt.Errorf("%w: Scale = %v; want a positive finite value, or 0 for 1/√Dk", ErrOption, o.Scale)
+	default:
+		p.scale = o.Scale
+	}
+	if o.SoftCap != 0 && (!(o.SoftCap > 0) || math.IsInf(o.SoftCap, 1)) {
+		return nil, fmt.Errorf("%w: SoftCap = %v; want a positive finite value, or 0 for no cap", ErrOption, o.SoftCap)
+	}
+	p.softCap = o.SoftCap
+	if o.Slopes != nil {
+		if len(o.Slopes) != s.HeadsQ {
+			return nil, fmt.Errorf("%w: Slopes has %d elements; want one per query head, HeadsQ = %d", ErrLength, len(o.Slopes), s.HeadsQ)
+		}
+		for h, m := range o.Slopes {
+			if math.IsNaN(m) || math.IsInf(m, 0) {
+				return nil, fmt.Errorf("%w: Slopes[%d] = %v; want a finite value", ErrOption, h, m)
+			}
+		}
+		if o.ALiBi != ALiBiCausal && o.ALiBi != ALiBiSymmetric {
+			return nil, fmt.Errorf("%w: ALiBi = %d; want ALiBiCausal or ALiBiSymmetric", ErrOption, int(o.ALiBi))
+		}
+		p.slopes = o.Slopes
+		p.symmetric = o.ALiBi == ALiBiSymmetric
+	}
+	if o.Sinks != nil {
+		if len(o.Sinks) != s.HeadsQ {
+			return nil, fmt.Errorf("%w: Sinks has %d elements; want one per query head, HeadsQ = %d", ErrLength, len(o.Sinks), s.HeadsQ)
+		}
+		for h, v := range o.Sinks {
+			if math.IsNaN(v) || math.IsInf(v, 1) {
+				return nil, fmt.Errorf("%w: Sinks[%d] = %v; want a finite value or −Inf", ErrOption, h, v)
+			}
+		}
+		p.sinks = o.Sinks
+	}
+	if o.Bias != nil {
+		if o.BiasBatch != 1 && o.BiasBatch != s.Batch {
+			return nil, fmt.Errorf("%w: BiasBatch = %d; want 1 or Batch = %d", ErrBias, o.BiasBatch, s.Batch)
+		}
+		if o.BiasHeads != 1 && o.BiasHeads != s.HeadsQ {
+			return nil, fmt.Errorf("%w: BiasHeads = %d; want 1 or HeadsQ = %d", ErrBias, o.BiasHeads, s.HeadsQ)
+		}
+		if want := o.BiasBatch * o.BiasHeads * s.Lq * s.Lk; len(o.Bias) != want {
+			return nil, fmt.Errorf("%w: Bias has %d elements; shape [%d %d %d %d] = %d", ErrBias, len(o.Bias), o.BiasBatch, o.BiasHeads, s.Lq, s.Lk, want)
+		}
+		p.bias = o.Bias
+		p.biasB = o.BiasBatch > 1
+		p.biasH = o.BiasHeads > 1
+	}
+	p.geom = mask.Geometry{Batch: s.Batch, Lq: s.Lq, Lk: s.Lk, Align: o.Align, Offset: o.Offset}
+	m := o.Mask
+	if isZeroMask(m) {
+		m = mask.Full() // the documented default: every key visible
+	}
+	vis, err := m.Visible(p.geom)
+	if err != nil {
+		return nil, fmt.Errorf("%w: %v on Lq = %d, Lk = %d: %w", ErrMask, m, s.Lq, s.Lk, err)
+	}
+	if p.slopes != nil && !m.UsesPositions() && s.Lq > 0 {
+		// ALiBi uses positions even when the mask does not.
+		if first, last := p.geom.Pos(0), p.geom.Pos(s.Lq-1); first < 0 || last >= s.Lk {
+			return nil, fmt.Errorf("%w: ALiBi with %v, Lq = %d, Lk = %d, Offset = %d puts queries at key positions %d … %d; want them within 0 … %d",
+				ErrOption, o.Align, s.Lq, s.Lk, o.Offset, first, last, s.Lk-1)
+		}
+	}
+	p.vis = vis
+	return p, nil
+}
+
+// kvHead is the kv head that query head h reads.
+func (p *plan) kvHead(h int) int {
+	if p.group == GroupCycle {
+		return h % p.s.HeadsKV
+	}
+	return h / (p.s.HeadsQ / p.s.HeadsKV)
+}
+
+// off is the offset of row (b, h, i) of a tensor with H heads, L rows per
+// head and D elements per row, in layout l.
+func off(l Layout, b, h, i, H, L, D int) int {
+	if l == SeqMajor {
+		return ((b*L+i)*H + h) * D
+	}
+	return ((b*H+h)*L + i) * D
+}
+
+// stride is the distance between rows i and i+1 of one head.
+func stride(l Layout, H, D int) int {
+	if l == SeqMajor {
+		return H * D
+	}
+	return D
+}
+
+func (p *plan) qOff(b, h, i int) int { return off(p.layout, b, h, i, p.s.HeadsQ, p.s.Lq, p.s.Dk) }
+func (p *plan) kOff(b, h, j int) int { return off(p.layout, b, h, j, p.s.HeadsKV, p.s.Lk, p.s.Dk) }
+func (p *plan) vOff(b, h, j int) int { return off(p.layout, b, h, j, p.s.HeadsKV, p.s.Lk, p.s.Dv) }
+func (p *plan) oOff(b, h, i int) int { return off(p.layout, b, h, i, p.s.HeadsQ, p.s.Lq, p.s.Dv) }
+func (p *plan) lOff(b, h, i int) int { return off(p.layout, b, h, i, p.s.HeadsQ, p.s.Lq, 1) }
+
+// biasRow is the offset of the bias row of (b, h, i), or −1 for no bias.
+func (p *plan) biasRow(b, h, i int) int {
+	if p.bias == nil {
+		return -1
+	}
+	bb, bh, nh := 0, 0, 1
+	if p.biasB {
+		bb = b
+	}
+	if p.biasH {
+		bh, nh = h, p.s.HeadsQ
+	}
+	return ((bb*nh+bh)*p.s.Lq + i) * p.s.Lk
+}
