@@ -194,4 +194,3 @@ func decodeOptions(s Shape, pos int, o *Options) error {
 func isZeroMask(m mask.Mask) bool {
 	return errors.Is(m.Check(mask.Geometry{}), mask.ErrEmpty)
 }
-
