@@ -212,9 +212,9 @@ func randomMask(t testing.TB, r *rand.Rand, g Geometry, depth int) Mask {
 		}
 		return must(t)(Band(ext(), ext()))
 	case 3:
-		return must(t)(Window(1+r.IntN(8)))
+		return must(t)(Window(1 + r.IntN(8)))
 	case 4:
-		return must(t)(Prefix(r.IntN(g.Lk+1)))
+		return must(t)(Prefix(r.IntN(g.Lk + 1)))
 	case 5:
 		valid := make([]int, g.Batch)
 		for b := range valid {
@@ -244,7 +244,7 @@ func TestProperties(t *testing.T) {
 		full := vis(t, Full(), g)
 
 		// A window at least as long as the keys equals causal.
-		w := must(t)(Window(g.Lk+r.IntN(5)))
+		w := must(t)(Window(g.Lk + r.IntN(5)))
 		require.Equal(t, causal, vis(t, w, g), "Window(≥Lk) on %v", g)
 		// A band unbounded on both sides equals full; unbounded before and 0
 		// after equals causal.
