@@ -67,6 +67,8 @@ func TestErrors(t *testing.T) {
 	_, errOffset := Causal().Visible(Geometry{Batch: 1, Lq: 2, Lk: 4, Align: AlignStart, Offset: 3})
 	_, errOffsetNeg := Causal().Visible(Geometry{Batch: 1, Lq: 2, Lk: 4, Align: AlignStart, Offset: -1})
 	_, errLqGtLk := Causal().Visible(Geometry{Batch: 1, Lq: 5, Lk: 4})
+	_, errOverflow := Causal().Visible(Geometry{Batch: 1, Lq: 5, Lk: 8, Align: AlignStart, Offset: math.MaxInt - 1})
+	_, errHuge := Full().Visible(Geometry{Batch: 1 << 30, Lq: 1 << 20, Lk: 1 << 20})
 	_, errAlign := Full().Visible(Geometry{Batch: 1, Lq: 1, Lk: 1, Align: Align(9)})
 	_, errTotal := packed.Visible(g)
 	_, errPadBatch := pad.Visible(g)
@@ -99,9 +101,11 @@ func TestErrors(t *testing.T) {
 		{"negative Lq", errNeg, ErrSize, "Lq = -1"},
 		{"negative Lk", errNegK, ErrSize, "Lk = -4"},
 		{"negative batch", errNegB, ErrSize, "Batch = -1"},
-		{"offset past the keys", errOffset, ErrOffset, "key positions 3 … 4"},
-		{"negative offset", errOffsetNeg, ErrOffset, "key positions -1 … 0"},
-		{"more queries than keys, end-aligned", errLqGtLk, ErrOffset, "key positions -1 … 3"},
+		{"offset past the keys", errOffset, ErrOffset, "Offset = 3; Causal needs every query at a key, so Offset in [0, 2]"},
+		{"negative offset", errOffsetNeg, ErrOffset, "Offset = -1;"},
+		{"more queries than keys, end-aligned", errLqGtLk, ErrOffset, "Lq = 5 queries cannot all sit among Lk = 4 keys"},
+		{"offset overflow", errOverflow, ErrOffset, "Offset = 9223372036854775806"},
+		{"size overflow", errHuge, ErrSize, "does not fit in an int"},
 		{"unknown alignment", errAlign, ErrAlign, "Align = 9"},
 		{"last offset not the total", errTotal, ErrSegments, "last offset = 5; want the key length Lk = 4"},
 		{"valid lengths per batch", errPadBatch, ErrValidLength, "2 valid lengths, Batch = 1"},
