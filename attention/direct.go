@@ -130,6 +130,35 @@ func forward[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 	return out, lse
 }
 
+// centredD returns c and D − c, where D = Σ_j P_j dP_j is the weighted
+// mean that dS = P (dP − D) subtracts and c is the dP of the most probable
+// entry (0 when that is the sink, whose dP is 0). Because the weights and
+// the sink sum to 1,
+//
+//	D − c = Σ_j P_j (dP_j − c) − c·P_sink,
+//
+// and dP_j − D = (dP_j − c) − (D − c). Centring on the dominant entry
+// removes the cancellation dP_m − D of a row whose probability mass sits on
+// one key (P_m ≈ 1), where the difference is far smaller than either term;
+// otherwise it changes nothing. Entries with P_j = 0 are skipped.
+func centredD[T num.Float](pr, dp []T, psink T) (c, dc T) {
+	big := psink
+	for j, pj := range pr {
+		if pj > big {
+			big, c = pj, dp[j]
+		}
+	}
+	for j, pj := range pr {
+		if pj != 0 && pj == pj {
+			dc += T(pj * (dp[j] - c))
+		} else if pj != 0 {
+			dc += pj // NaN under EmptyRowNaN
+		}
+	}
+	dc -= T(c * psink)
+	return c, dc
+}
+
 // grads holds the gradients of one backward pass.
 type grads[T num.Float] struct {
 	dq, dk, dv, dsinks, dbias []T
@@ -168,8 +197,7 @@ func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 				doi := dout[p.oOff(b, h, i):][:s.Dv]
 				qi := q[p.qOff(b, h, i):][:s.Dk]
 				dqi := g.dq[p.qOff(b, h, i):][:s.Dk]
-				// dP_j = dO_i · v_j and D_i = Σ_j P_ij dP_ij.
-				var dsum T
+				// dP_j = dO_i · v_j.
 				for j, pj := range row {
 					if pj == 0 {
 						continue
@@ -180,10 +208,12 @@ func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 						acc += T(x * vj[d])
 					}
 					dp[j] = acc
-					dsum += T(pj * acc)
 				}
+				c, dsum := centredD(row, dp, psink)
 				if g.dsinks != nil {
-					g.dsinks[h] += T(psink * (gl - dsum))
+					// dσ = P_sink (dLSE − D) with D − c = dsum and the
+					// sink's own dP = 0.
+					g.dsinks[h] += T(psink * (gl - (dsum + c)))
 				}
 				br := p.biasRow(b, h, i)
 				for j, pj := range row {
@@ -191,7 +221,7 @@ func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 						continue
 					}
 					// dS_ij = P_ij (dP_ij − D_i + dLSE_i).
-					ds := pj * ((dp[j] - dsum) + gl)
+					ds := pj * (((dp[j] - c) - dsum) + gl)
 					if br >= 0 {
 						g.dbias[br+j] += ds
 					}
