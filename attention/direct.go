@@ -9,37 +9,38 @@ import (
 // This file holds the direct form: one query row at a time, every formula
 // written out as it reads. The float64 instantiation is the reference.
 
-// logitsRow writes the final logits of row (b, h, i) into s (one per key,
-// −Inf where the mask hides the key). When sech2 is not nil and a cap is
-// set it also writes the derivative of the cap, 1/cosh²(t/c), per key.
-func logitsRow[T num.Float](p *plan, q, k []T, b, h, i int, s, sech2 []T) {
+// logitsRow writes the final logits of row (b, h, i) for keys j0, j0+1, …,
+// j0+len(s)−1 into s (−Inf where the mask hides the key). When sech2 is not
+// nil and a cap is set it also writes the derivative of the cap,
+// 1/cosh²(t/c), per key, indexed like s.
+func logitsRow[T num.Float](p *plan, q, k []T, b, h, i, j0 int, s, sech2 []T) {
 	dk, lk := p.s.Dk, p.s.Lk
 	qi := q[p.qOff(b, h, i):][:dk]
 	kv := p.kvHead(h)
-	vis := p.vis[(b*p.s.Lq+i)*lk:][:lk]
-	for j := range s {
-		if !vis[j] {
-			s[j] = T(math.Inf(-1))
+	vis := p.vis[(b*p.s.Lq+i)*lk+j0:][:len(s)]
+	for jj := range s {
+		if !vis[jj] {
+			s[jj] = T(math.Inf(-1))
 			continue
 		}
-		kj := k[p.kOff(b, kv, j):][:dk]
+		kj := k[p.kOff(b, kv, j0+jj):][:dk]
 		var acc T
 		for d, x := range qi {
 			acc += T(x * kj[d])
 		}
-		s[j] = finishLogit(p, T(p.scale)*acc, b, h, i, j, sech2)
+		s[jj] = finishLogit(p, T(p.scale)*acc, b, h, i, j0+jj, jj, sech2)
 	}
 }
 
 // finishLogit applies the cap, the bias and ALiBi to the scaled logit t of
 // key j in row (b, h, i), in that order. With sech2 not nil and a cap set
-// it stores the cap's derivative in sech2[j].
-func finishLogit[T num.Float](p *plan, t T, b, h, i, j int, sech2 []T) T {
+// it stores the cap's derivative in sech2[at].
+func finishLogit[T num.Float](p *plan, t T, b, h, i, j, at int, sech2 []T) T {
 	if c := p.softCap; c > 0 {
 		u := float64(t) / c
 		if sech2 != nil {
 			ch := math.Cosh(u)
-			sech2[j] = T(1 / (ch * ch))
+			sech2[at] = T(1 / (ch * ch))
 		}
 		t = T(c * math.Tanh(u))
 	}
@@ -111,7 +112,7 @@ func forward[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 		for h := 0; h < s.HeadsQ; h++ {
 			kv := p.kvHead(h)
 			for i := 0; i < s.Lq; i++ {
-				logitsRow(p, q, k, b, h, i, row, nil)
+				logitsRow(p, q, k, b, h, i, 0, row, nil)
 				l, _, _ := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
 				lse[p.lOff(b, h, i)] = l
 				oi := out[p.oOff(b, h, i):][:s.Dv]
@@ -185,7 +186,7 @@ func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 		for h := 0; h < s.HeadsQ; h++ {
 			kv := p.kvHead(h)
 			for i := 0; i < s.Lq; i++ {
-				logitsRow(p, q, k, b, h, i, row, sech2)
+				logitsRow(p, q, k, b, h, i, 0, row, sech2)
 				_, psink, empty := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
 				if empty && !p.emptyNaN {
 					continue // an empty row under EmptyRowZero is constant

@@ -1,0 +1,214 @@
+package attention
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/mask"
+)
+
+// tiledBound is the normwise relative difference accepted between the
+// tiled and the direct forms (and between either and the golden values):
+// both are a few roundings per key away from the exact result, in
+// different orders, so they differ by a small multiple of 2⁻⁵³ ≈ 1.1e-16;
+// the bound is the project target.
+const tiledBound = 1e-14
+
+func TestGoldenForwardTiled(t *testing.T) {
+	w := worst{}
+	for _, block := range []int{1, 2, 3, 64} {
+		eachGolden(t, func(t *testing.T, g goldenCall) {
+			out, lse, err := ForwardTiled(g.q, g.k, g.v, g.s, block, g.o)
+			require.NoError(t, err)
+			w.check(t, g, "out", out, tiledBound)
+			w.check(t, g, "lse", lse, tiledBound)
+		})
+	}
+	w.log(t, "ForwardTiled")
+}
+
+// randCase draws a random problem; the shapes and options it picks are
+// listed in the returned Options.
+func randCase(r *rand.Rand, s Shape) (q, k, v []float64) {
+	u := func(n int) []float64 {
+		x := make([]float64, n)
+		for i := range x {
+			x[i] = 2*r.Float64() - 1
+		}
+		return x
+	}
+	return u(s.qLen()), u(s.kLen()), u(s.vLen())
+}
+
+func TestTiledMatchesDirect(t *testing.T) {
+	r := rand.New(rand.NewPCG(1, 2))
+	win, _ := mask.Window(5)
+	for trial := range 40 {
+		hkv := 1 + r.IntN(3)
+		s := Shape{Batch: 1 + r.IntN(2), HeadsQ: hkv * (1 + r.IntN(3)), HeadsKV: hkv, Lq: 1 + r.IntN(9), Lk: 1 + r.IntN(17), Dk: 1 + r.IntN(6), Dv: 1 + r.IntN(6)}
+		o := Options{Layout: Layout(r.IntN(2)), Group: GroupMap(r.IntN(2))}
+		if s.Lq <= s.Lk && r.IntN(2) == 0 {
+			o.Mask = mask.Causal()
+			if r.IntN(2) == 0 {
+				o.Mask, _ = mask.Intersect(mask.Causal(), win)
+			}
+		}
+		if r.IntN(2) == 0 {
+			o.Sinks = make([]float64, s.HeadsQ)
+			for h := range o.Sinks {
+				o.Sinks[h] = r.NormFloat64()
+			}
+		}
+		if r.IntN(3) == 0 {
+			o.SoftCap = 0.5 + 2*r.Float64()
+		}
+		q, k, v := randCase(r, s)
+		wantO, wantL, err := Forward(q, k, v, s, o)
+		require.NoError(t, err)
+		block := 1 + r.IntN(s.Lk+1)
+		gotO, gotL, err := ForwardTiled(q, k, v, s, block, o)
+		require.NoError(t, err)
+		assert.LessOrEqual(t, golden.NormwiseRelErr(gotO, wantO), tiledBound, "trial %d %+v block %d", trial, s, block)
+		assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), tiledBound, "trial %d", trial)
+	}
+}
+
+// TestMergeSplitsKeys splits the keys at every point, runs Forward on each
+// part with a key-padding style bias hiding the other part, and merges.
+func TestMergeSplitsKeys(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	s := Shape{Batch: 2, HeadsQ: 4, HeadsKV: 2, Lq: 5, Lk: 9, Dk: 4, Dv: 3}
+	q, k, v := randCase(r, s)
+	sinks := []float64{0.3, -1, 2, math.Inf(-1)}
+	for _, layout := range []Layout{HeadsMajor, SeqMajor} {
+		o := Options{Layout: layout, Mask: mask.Causal(), Sinks: sinks}
+		want, wantL, err := Forward(q, k, v, s, o)
+		require.NoError(t, err)
+		for cut := 0; cut <= s.Lk; cut++ {
+			hideB := make([]float64, s.Lq*s.Lk)
+			hideA := make([]float64, s.Lq*s.Lk)
+			for i := range s.Lq {
+				for j := range s.Lk {
+					if j < cut {
+						hideB[i*s.Lk+j] = math.Inf(-1)
+					} else {
+						hideA[i*s.Lk+j] = math.Inf(-1)
+					}
+				}
+			}
+			oa := o
+			oa.Bias, oa.BiasBatch, oa.BiasHeads = hideA, 1, 1
+			ob := o
+			ob.Bias, ob.BiasBatch, ob.BiasHeads, ob.Sinks = hideB, 1, 1, nil // the sink goes with part A only
+			outA, lseA, err := Forward(q, k, v, s, oa)
+			require.NoError(t, err)
+			outB, lseB, err := Forward(q, k, v, s, ob)
+			require.NoError(t, err)
+			got, gotL, err := Merge(outA, lseA, outB, lseB, s.Dv)
+			require.NoError(t, err)
+			assert.LessOrEqual(t, golden.NormwiseRelErr(got, want), tiledBound, "%v cut %d", layout, cut)
+			assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), tiledBound, "%v cut %d", layout, cut)
+			// Commutative: exactly, since the formula is symmetric in A, B
+			// except for the order of one addition of two terms.
+			got2, gotL2, err := Merge(outB, lseB, outA, lseA, s.Dv)
+			require.NoError(t, err)
+			assert.Equal(t, gotL, gotL2)
+			assert.LessOrEqual(t, golden.NormwiseRelErr(got2, got), 1e-15)
+		}
+	}
+}
+
+func TestMergeSpecialCases(t *testing.T) {
+	inf := math.Inf(-1)
+	// Both empty: 0 and −Inf (EmptyRowZero convention).
+	o, l, err := Merge([]float64{0, 0}, []float64{inf}, []float64{0, 0}, []float64{inf}, 2)
+	require.NoError(t, err)
+	assert.Equal(t, []float64{0, 0}, o)
+	assert.Equal(t, []float64{inf}, l)
+	// One part empty: the other part exactly.
+	o, l, err = Merge([]float64{0.1, -0.7}, []float64{3.25}, []float64{0, 0}, []float64{inf}, 2)
+	require.NoError(t, err)
+	assert.Equal(t, []float64{0.1, -0.7}, o)
+	assert.Equal(t, []float64{3.25}, l)
+	// Worked value [mpmath]: FORMULAS.md x = [1, 3, 2] has lse
+	// 3.4076059644443803; merging the part {1, 3} (lse = log(e + e³)) with
+	// {2} must give it. Outputs are the weights when V = e_j.
+	la := math.Log(math.E + math.Exp(3))
+	pa0 := math.Exp(1 - la)
+	pa1 := math.Exp(3 - la)
+	o, l, err = Merge([]float64{pa0, pa1, 0}, []float64{la}, []float64{0, 0, 1}, []float64{2}, 3)
+	require.NoError(t, err)
+	assert.InDelta(t, 3.4076059644443803, l[0], 4e-16)
+	want := []float64{0.090030573170380458, 0.66524095577482189, 0.24472847105479765}
+	assert.LessOrEqual(t, golden.NormwiseRelErr(o, want), 1e-15)
+	// NaN propagates.
+	o, l, err = Merge([]float64{1}, []float64{math.NaN()}, []float64{1}, []float64{0}, 1)
+	require.NoError(t, err)
+	assert.True(t, math.IsNaN(o[0]) && math.IsNaN(l[0]))
+}
+
+// TestDecodeReproducesPrefill decodes one token at a time against a growing
+// cache and checks that each step gives, bit for bit, the row of the full
+// causal prefill: the direct form computes each row the same way, and the
+// hidden keys of the prefill row add exact zeros.
+func TestDecodeReproducesPrefill(t *testing.T) {
+	r := rand.New(rand.NewPCG(5, 6))
+	win, _ := mask.Window(3)
+	for _, tc := range []struct {
+		name string
+		mask mask.Mask
+		o    Options
+	}{
+		{"causal", mask.Causal(), Options{}},
+		{"window", win, Options{Mask: win}},
+		{"grouped_alibi_sinks_seq_major", mask.Causal(), Options{Layout: SeqMajor, Slopes: []float64{0.5, 0.25, 0.125, 0.0625}, Sinks: []float64{0, 1, -1, 0.5}}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			L := 7
+			s := Shape{Batch: 2, HeadsQ: 4, HeadsKV: 2, Lq: L, Lk: L, Dk: 3, Dv: 5}
+			q, k, v := randCase(r, s)
+			full := tc.o
+			full.Mask = tc.mask
+			want, wantL, err := Forward(q, k, v, s, full)
+			require.NoError(t, err)
+			p := &plan{s: s, layout: tc.o.Layout}
+			for pos := range L {
+				// Step pos: one query against the pos+1 cached keys.
+				st := s
+				st.Lq, st.Lk = 1, pos+1
+				q1 := slice(p, q, s.HeadsQ, L, s.Dk, pos, pos+1)
+				kc := slice(p, k, s.HeadsKV, L, s.Dk, 0, pos+1)
+				vc := slice(p, v, s.HeadsKV, L, s.Dv, 0, pos+1)
+				o1, l1, err := Decode(q1, kc, vc, st, pos, tc.o)
+				require.NoError(t, err)
+				require.Equal(t, slice(p, want, s.HeadsQ, L, s.Dv, pos, pos+1), o1, "step %d", pos)
+				require.Equal(t, slice(p, wantL, s.HeadsQ, L, 1, pos, pos+1), l1, "step %d", pos)
+				// And against the whole cache, future keys present.
+				st.Lk = L
+				o2, _, err := Decode(q1, k, v, st, pos, tc.o)
+				require.NoError(t, err)
+				require.Equal(t, o1, o2, "step %d, full cache", pos)
+			}
+		})
+	}
+}
+
+// slice cuts rows i0 … i1−1 of every head out of a tensor with H heads of
+// L rows of D values, in p's layout.
+func slice(p *plan, x []float64, H, L, D, i0, i1 int) []float64 {
+	n := i1 - i0
+	out := make([]float64, p.s.Batch*H*n*D)
+	for b := range p.s.Batch {
+		for h := range H {
+			for i := i0; i < i1; i++ {
+				copy(out[off(p.layout, b, h, i-i0, H, n, D):][:D], x[off(p.layout, b, h, i, H, L, D):][:D])
+			}
+		}
+	}
+	return out
+}
