@@ -300,3 +300,32 @@ func TestGoldenBackward32(t *testing.T) {
 	})
 	w.log(t, "Backward32")
 }
+
+func TestGoldenForwardFast(t *testing.T) {
+	w := worst{}
+	eachGolden(t, func(t *testing.T, g goldenCall) {
+		out, lse, err := ForwardFast(g.q, g.k, g.v, g.s, g.o)
+		require.NoError(t, err)
+		w.check(t, g, "out", out, goldenBound)
+		w.check(t, g, "lse", lse, goldenBound)
+	})
+	w.log(t, "ForwardFast")
+}
+
+func TestGoldenBackwardFast(t *testing.T) {
+	w := worst{}
+	eachGolden(t, func(t *testing.T, g goldenCall) {
+		gr, err := BackwardFast(g.q, g.k, g.v, g.dOut, g.dLSE, g.s, g.o)
+		require.NoError(t, err)
+		w.check(t, g, "d_q", gr.DQ, gradBound(g, "d_q"))
+		w.check(t, g, "d_k", gr.DK, gradBound(g, "d_k"))
+		w.check(t, g, "d_v", gr.DV, gradBound(g, "d_v"))
+		if g.c.Has("d_sinks") {
+			w.check(t, g, "d_sinks", gr.DSinks, gradBound(g, "d_sinks"))
+		}
+		if g.c.Has("d_bias") {
+			w.check(t, g, "d_bias", gr.DBias, gradBound(g, "d_bias"))
+		}
+	})
+	w.log(t, "BackwardFast")
+}
