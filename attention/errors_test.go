@@ -137,7 +137,7 @@ func FuzzForward(f *testing.F) {
 		}
 		n := max(0, s.HeadsQ)
 		if flags&16 != 0 {
-			o.Slopes = make([]float64, n+int(extra%2))
+			o.Slopes = make([]float64, max(0, n+int(extra%2)))
 			for i := range o.Slopes {
 				o.Slopes[i] = 0.5
 			}

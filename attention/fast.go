@@ -277,9 +277,10 @@ func backwardFast[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 				if sb.sech2 != nil {
 					sech2 = sb.sech2[:rows*n]
 				}
-				qb, kb, vb := q[p.qOff(b, h, i0):], k[p.kOff(b, kv, lo):], v[p.vOff(b, kv, lo):]
-				dob := dout[p.oOff(b, h, i0):]
+				qb, dob := q[p.qOff(b, h, i0):], dout[p.oOff(b, h, i0):]
+				var kb, vb []T
 				if n > 0 {
+					kb, vb = k[p.kOff(b, kv, lo):], v[p.vOff(b, kv, lo):]
 					gemm(blas.NoTrans, blas.Trans, rows, n, s.Dk, scale, qb, qs, kb, ks, 0, sc, n)
 					gemm(blas.NoTrans, blas.Trans, rows, n, s.Dv, 1, dob, os, vb, vs, 0, dp, n)
 				}
