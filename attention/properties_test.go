@@ -1,0 +1,471 @@
+package attention
+
+import (
+	"math"
+	"math/rand/v2"
+	"runtime"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/mask"
+)
+
+// randOptions draws options valid for s: layout, grouping, a mask among
+// the kinds that fit, and optionally ALiBi, a cap, sinks and a bias.
+func randOptions(r *rand.Rand, s Shape) Options {
+	o := Options{Layout: Layout(r.IntN(2)), Group: GroupMap(r.IntN(2))}
+	if s.Lq <= s.Lk {
+		switch r.IntN(4) {
+		case 1:
+			o.Mask = mask.Causal()
+		case 2:
+			o.Mask, _ = mask.Window(1 + r.IntN(4))
+		case 3:
+			o.Mask, _ = mask.Prefix(r.IntN(s.Lk + 1))
+		}
+		if r.IntN(3) == 0 {
+			o.Slopes = make([]float64, s.HeadsQ)
+			for h := range o.Slopes {
+				o.Slopes[h] = math.Ldexp(1, -1-h)
+			}
+			o.ALiBi = ALiBiForm(r.IntN(2))
+		}
+	}
+	if r.IntN(3) == 0 {
+		o.SoftCap = 0.5 + 3*r.Float64()
+	}
+	if r.IntN(3) == 0 {
+		o.Sinks = make([]float64, s.HeadsQ)
+		for h := range o.Sinks {
+			o.Sinks[h] = r.NormFloat64()
+		}
+	}
+	if r.IntN(3) == 0 {
+		o.BiasBatch, o.BiasHeads = []int{1, s.Batch}[r.IntN(2)], []int{1, s.HeadsQ}[r.IntN(2)]
+		o.Bias = make([]float64, o.BiasBatch*o.BiasHeads*s.Lq*s.Lk)
+		for i := range o.Bias {
+			o.Bias[i] = r.NormFloat64()
+		}
+	}
+	return o
+}
+
+func randShape(r *rand.Rand, maxL int) Shape {
+	hkv := 1 + r.IntN(3)
+	return Shape{Batch: 1 + r.IntN(2), HeadsQ: hkv * (1 + r.IntN(3)), HeadsKV: hkv, Lq: 1 + r.IntN(maxL), Lk: 1 + r.IntN(maxL), Dk: 1 + r.IntN(6), Dv: 1 + r.IntN(6)}
+}
+
+// With V = the identity (Dv = Lk, V_j = e_j) the output row is the row of
+// probabilities. They are ≥ 0, 0 on hidden keys, and sum to 1 − P_sink,
+// P_sink = e^{σ − lse}.
+func TestPropertyProbabilitiesSumToOne(t *testing.T) {
+	r := rand.New(rand.NewPCG(11, 12))
+	for trial := range 60 {
+		s := randShape(r, 9)
+		s.Dv = s.Lk
+		o := randOptions(r, s)
+		q, k, _ := randCase(r, s)
+		v := make([]float64, s.vLen())
+		p := &plan{s: s, layout: o.Layout}
+		for b := range s.Batch {
+			for h := range s.HeadsKV {
+				for j := range s.Lk {
+					v[p.vOff(b, h, j)+j] = 1
+				}
+			}
+		}
+		out, lse, err := Forward(q, k, v, s, o)
+		require.NoError(t, err)
+		pl, err := newPlan(len(q), len(k), len(v), s, &o)
+		require.NoError(t, err)
+		for b := range s.Batch {
+			for h := range s.HeadsQ {
+				for i := range s.Lq {
+					row := out[p.oOff(b, h, i):][:s.Dv]
+					want := 1.0
+					if o.Sinks != nil {
+						want -= math.Exp(o.Sinks[h] - lse[p.lOff(b, h, i)])
+					}
+					var sum float64
+					for j, x := range row {
+						require.GreaterOrEqual(t, x, 0.0)
+						if !pl.vis[(b*s.Lq+i)*s.Lk+j] {
+							require.Zero(t, x, "trial %d: hidden key %d has weight", trial, j)
+						}
+						sum += x
+					}
+					// Each weight carries a few roundings (exp, one
+					// division): |Σ − 1| ≤ Lk·4·2⁻⁵³ + the rounding of the
+					// sum, far below 1e-14 for Lk ≤ 9.
+					assert.InDelta(t, want, sum, 1e-14, "trial %d row (%d,%d,%d)", trial, b, h, i)
+				}
+			}
+		}
+	}
+}
+
+// Each output row is a convex combination of the visible V rows (or, with
+// a sink, a combination with weights summing to less than one, so a point
+// of the hull of those rows and 0): every coordinate lies between the
+// smallest and the largest of that coordinate over the visible rows.
+func TestPropertyConvexHull(t *testing.T) {
+	r := rand.New(rand.NewPCG(13, 14))
+	for trial := range 60 {
+		s := randShape(r, 9)
+		o := randOptions(r, s)
+		q, k, v := randCase(r, s)
+		out, _, err := Forward(q, k, v, s, o)
+		require.NoError(t, err)
+		pl, err := newPlan(len(q), len(k), len(v), s, &o)
+		require.NoError(t, err)
+		for b := range s.Batch {
+			for h := range s.HeadsQ {
+				kv := pl.kvHead(h)
+				for i := range s.Lq {
+					row := out[pl.oOff(b, h, i):][:s.Dv]
+					for d, x := range row {
+						lo, hi := math.Inf(1), math.Inf(-1)
+						if o.Sinks != nil {
+							lo, hi = 0, 0
+						}
+						for j := range s.Lk {
+							if pl.vis[(b*s.Lq+i)*s.Lk+j] {
+								y := v[pl.vOff(b, kv, j)+d]
+								lo, hi = min(lo, y), max(hi, y)
+							}
+						}
+						if math.IsInf(lo, 1) { // empty row: 0 under EmptyRowZero
+							require.Zero(t, x)
+							continue
+						}
+						// Rounding of a sum of Lk ≤ 9 terms of size ≤ 1:
+						// below 16·2⁻⁵³ ≈ 1.8e-15.
+						const slack = 2e-15
+						require.True(t, lo-slack <= x && x <= hi+slack, "trial %d: %v outside [%v, %v]", trial, x, lo, hi)
+					}
+				}
+			}
+		}
+	}
+}
+
+// Permuting the keys and the values together (same permutation) leaves the
+// output of a mask-free, position-free call unchanged up to the order of
+// the sums.
+func TestPropertyKeyPermutation(t *testing.T) {
+	r := rand.New(rand.NewPCG(15, 16))
+	for trial := range 40 {
+		s := randShape(r, 12)
+		o := Options{Layout: Layout(r.IntN(2)), Group: GroupMap(r.IntN(2)), SoftCap: []float64{0, 2}[r.IntN(2)]}
+		q, k, v := randCase(r, s)
+		want, wantL, err := Forward(q, k, v, s, o)
+		require.NoError(t, err)
+		perm := r.Perm(s.Lk)
+		p := &plan{s: s, layout: o.Layout}
+		k2, v2 := make([]float64, len(k)), make([]float64, len(v))
+		for b := range s.Batch {
+			for h := range s.HeadsKV {
+				for j, pj := range perm {
+					copy(k2[p.kOff(b, h, j):][:s.Dk], k[p.kOff(b, h, pj):][:s.Dk])
+					copy(v2[p.vOff(b, h, j):][:s.Dv], v[p.vOff(b, h, pj):][:s.Dv])
+				}
+			}
+		}
+		got, gotL, err := Forward(q, k2, v2, s, o)
+		require.NoError(t, err)
+		// Different summation orders of ≤ 12 terms: a few ulps.
+		assert.LessOrEqual(t, golden.NormwiseRelErr(got, want), 1e-15, "trial %d", trial)
+		assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), 1e-15, "trial %d", trial)
+	}
+}
+
+// Grouped attention is multi-head attention with each kv head repeated for
+// the query heads that read it; the direct form does the same arithmetic in
+// both cases, so the results are bit-identical (forward, and backward with
+// the repeated heads' dK, dV summed in the same order).
+func TestPropertyGroupedEqualsRepeated(t *testing.T) {
+	r := rand.New(rand.NewPCG(17, 18))
+	for trial := range 30 {
+		s := randShape(r, 8)
+		s.HeadsKV = 1 + r.IntN(3)
+		s.HeadsQ = s.HeadsKV * (2 + r.IntN(2))
+		o := randOptions(r, s)
+		q, k, v := randCase(r, s)
+		pl, err := newPlan(len(q), len(k), len(v), s, &o)
+		require.NoError(t, err)
+		m := s
+		m.HeadsKV = s.HeadsQ
+		pm := &plan{s: m, layout: o.Layout}
+		k2, v2 := make([]float64, m.kLen()), make([]float64, m.vLen())
+		for b := range s.Batch {
+			for h := range s.HeadsQ {
+				for j := range s.Lk {
+					copy(k2[pm.kOff(b, h, j):][:s.Dk], k[pl.kOff(b, pl.kvHead(h), j):][:s.Dk])
+					copy(v2[pm.vOff(b, h, j):][:s.Dv], v[pl.vOff(b, pl.kvHead(h), j):][:s.Dv])
+				}
+			}
+		}
+		want, wantL, err := Forward(q, k2, v2, m, o)
+		require.NoError(t, err)
+		got, gotL, err := Forward(q, k, v, s, o)
+		require.NoError(t, err)
+		require.Equal(t, want, got, "trial %d %v", trial, o.Group)
+		require.Equal(t, wantL, gotL)
+		// Backward: dQ identical; dK of the grouped call is the sum over
+		// the group of the repeated call's dK (the direct form adds the
+		// group's contributions key by key in head order, not head by
+		// head, so compare within a few ulps).
+		dOut := make([]float64, s.oLen())
+		for i := range dOut {
+			dOut[i] = r.NormFloat64()
+		}
+		gm, err := Backward(q, k2, v2, dOut, nil, m, o)
+		require.NoError(t, err)
+		gg, err := Backward(q, k, v, dOut, nil, s, o)
+		require.NoError(t, err)
+		require.Equal(t, gm.DQ, gg.DQ)
+		sumK, sumV := make([]float64, s.kLen()), make([]float64, s.vLen())
+		for b := range s.Batch {
+			for h := range s.HeadsQ {
+				for j := range s.Lk {
+					dst, src := sumK[pl.kOff(b, pl.kvHead(h), j):][:s.Dk], gm.DK[pm.kOff(b, h, j):][:s.Dk]
+					for d := range dst {
+						dst[d] += src[d]
+					}
+					dst, src = sumV[pl.vOff(b, pl.kvHead(h), j):][:s.Dv], gm.DV[pm.vOff(b, h, j):][:s.Dv]
+					for d := range dst {
+						dst[d] += src[d]
+					}
+				}
+			}
+		}
+		assert.LessOrEqual(t, golden.NormwiseRelErr(gg.DK, sumK), 1e-14, "trial %d", trial)
+		assert.LessOrEqual(t, golden.NormwiseRelErr(gg.DV, sumV), 1e-14, "trial %d", trial)
+	}
+}
+
+// Backward agrees with central differences of the scalar loss
+// L = Σ dOut·O + Σ dLSE·lse, for Q, K, V, the sinks and the bias, under
+// every option.
+func TestPropertyFiniteDifferences(t *testing.T) {
+	r := rand.New(rand.NewPCG(19, 20))
+	trials := 25
+	if testing.Short() {
+		trials = 8
+	}
+	for trial := range trials {
+		s := randShape(r, 6)
+		o := randOptions(r, s)
+		q, k, v := randCase(r, s)
+		dOut, dLSE := make([]float64, s.oLen()), make([]float64, s.lseLen())
+		for i := range dOut {
+			dOut[i] = r.NormFloat64()
+		}
+		for i := range dLSE {
+			dLSE[i] = r.NormFloat64()
+		}
+		loss := func() float64 {
+			out, lse, err := Forward(q, k, v, s, o)
+			require.NoError(t, err)
+			var l float64
+			for i, x := range out {
+				l += dOut[i] * x
+			}
+			for i, x := range lse {
+				if !math.IsInf(x, -1) { // empty rows: constant
+					l += dLSE[i] * x
+				}
+			}
+			return l
+		}
+		g, err := Backward(q, k, v, dOut, dLSE, s, o)
+		require.NoError(t, err)
+		for _, tc := range []struct {
+			name string
+			x    []float64
+			grad []float64
+		}{{"Q", q, g.DQ}, {"K", k, g.DK}, {"V", v, g.DV}, {"Sinks", o.Sinks, g.DSinks}, {"Bias", o.Bias, g.DBias}} {
+			num := make([]float64, len(tc.x))
+			for i := range tc.x {
+				// Central difference: truncation error O(h²) with
+				// derivatives of order 1, rounding error about
+				// 2⁻⁵³·|L|/h; h = 1e-5 balances them near 1e-10.
+				const h = 1e-5
+				x0 := tc.x[i]
+				tc.x[i] = x0 + h
+				lp := loss()
+				tc.x[i] = x0 - h
+				lm := loss()
+				tc.x[i] = x0
+				num[i] = (lp - lm) / (2 * h)
+			}
+			// With errors near 1e-10 in each entry of a gradient of norm
+			// about 1, 1e-7 is a bound that a wrong formula cannot meet.
+			e := golden.NormwiseRelErr(tc.grad, num)
+			if len(num) > 0 && normInf(num) < 1e-6 {
+				e = maxAbsDiff(tc.grad, num) // a gradient near 0: compare absolutely
+			}
+			assert.LessOrEqual(t, e, 1e-7, "trial %d %s: %+v %+v", trial, tc.name, s, o)
+		}
+	}
+}
+
+func normInf(x []float64) float64 {
+	var m float64
+	for _, v := range x {
+		m = max(m, math.Abs(v))
+	}
+	return m
+}
+
+func maxAbsDiff(a, b []float64) float64 {
+	var m float64
+	for i := range a {
+		m = max(m, math.Abs(a[i]-b[i]))
+	}
+	return m
+}
+
+// The fast form agrees with the direct form on problems large enough for
+// several row blocks, under random options.
+func TestPropertyFastMatchesDirect(t *testing.T) {
+	r := rand.New(rand.NewPCG(21, 22))
+	trials := 12
+	if testing.Short() {
+		trials = 4
+	}
+	for trial := range trials {
+		s := randShape(r, 150)
+		s.Lq = 65 + r.IntN(100)
+		s.Lk = s.Lq + r.IntN(40)
+		s.Dk, s.Dv = 8+r.IntN(9), 8+r.IntN(9)
+		o := randOptions(r, s)
+		q, k, v := randCase(r, s)
+		want, wantL, err := Forward(q, k, v, s, o)
+		require.NoError(t, err)
+		got, gotL, err := ForwardFast(q, k, v, s, o)
+		require.NoError(t, err)
+		// Both forms are within a few ulps per operation of the exact
+		// result; they differ in summation order only.
+		assert.LessOrEqual(t, golden.NormwiseRelErr(got, want), 1e-14, "trial %d", trial)
+		assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), 1e-14, "trial %d", trial)
+		dOut := make([]float64, s.oLen())
+		for i := range dOut {
+			dOut[i] = r.NormFloat64()
+		}
+		gw, err := Backward(q, k, v, dOut, wantL, s, o)
+		require.NoError(t, err)
+		gf, err := BackwardFast(q, k, v, dOut, wantL, s, o)
+		require.NoError(t, err)
+		for _, c := range [][2][]float64{{gf.DQ, gw.DQ}, {gf.DK, gw.DK}, {gf.DV, gw.DV}, {gf.DSinks, gw.DSinks}, {gf.DBias, gw.DBias}} {
+			assert.LessOrEqual(t, golden.NormwiseRelErr(c[0], c[1]), 1e-14, "trial %d", trial)
+		}
+	}
+}
+
+// The fast form gives bit-identical results for any GOMAXPROCS.
+func TestPropertyDeterministicAcrossGOMAXPROCS(t *testing.T) {
+	r := rand.New(rand.NewPCG(23, 24))
+	s := Shape{Batch: 2, HeadsQ: 4, HeadsKV: 2, Lq: 150, Lk: 170, Dk: 16, Dv: 12}
+	q, k, v := randCase(r, s)
+	dOut := make([]float64, s.oLen())
+	for i := range dOut {
+		dOut[i] = r.NormFloat64()
+	}
+	o := Options{Mask: mask.Causal(), Sinks: []float64{0, 1, -1, 2}, Bias: make([]float64, s.Lq*s.Lk), BiasBatch: 1, BiasHeads: 1}
+	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
+	var outs [][]float64
+	var grads []Grads
+	for _, n := range []int{1, 2, 3} {
+		runtime.GOMAXPROCS(n)
+		out, _, err := ForwardFast(q, k, v, s, o)
+		require.NoError(t, err)
+		g, err := BackwardFast(q, k, v, dOut, nil, s, o)
+		require.NoError(t, err)
+		outs, grads = append(outs, out), append(grads, g)
+	}
+	for n := 1; n < len(outs); n++ {
+		require.Equal(t, outs[0], outs[n])
+		require.Equal(t, grads[0], grads[n])
+	}
+}
+
+// The NaN and Inf policy of the package doc.
+func TestPropertyNaNInfPolicy(t *testing.T) {
+	s := Shape{Batch: 1, HeadsQ: 2, HeadsKV: 1, Lq: 3, Lk: 4, Dk: 2, Dv: 2}
+	r := rand.New(rand.NewPCG(25, 26))
+	q, k, v := randCase(r, s)
+	forms := map[string]func(q, k, v []float64, o Options) ([]float64, []float64, error){
+		"direct": func(q, k, v []float64, o Options) ([]float64, []float64, error) { return Forward(q, k, v, s, o) },
+		"tiled":  func(q, k, v []float64, o Options) ([]float64, []float64, error) { return ForwardTiled(q, k, v, s, 3, o) },
+		"fast":   func(q, k, v []float64, o Options) ([]float64, []float64, error) { return ForwardFast(q, k, v, s, o) },
+	}
+	for name, f := range forms {
+		t.Run(name, func(t *testing.T) {
+			// NaN in one query row: that row's output and lse only.
+			q2 := append([]float64(nil), q...)
+			q2[2*1] = math.NaN() // head 0, row 1
+			out, lse, err := f(q2, k, v, Options{})
+			require.NoError(t, err)
+			for i := range 3 {
+				assert.Equal(t, i == 1, math.IsNaN(out[2*i]) && math.IsNaN(lse[i]), "row %d", i)
+			}
+			assert.False(t, math.IsNaN(out[6]), "head 1 is untouched")
+			// +Inf in a visible logit (through the bias): NaN row.
+			bias := make([]float64, 12)
+			bias[4] = math.Inf(1) // row 1, key 0
+			out, lse, err = f(q, k, v, Options{Bias: bias, BiasBatch: 1, BiasHeads: 1})
+			require.NoError(t, err)
+			assert.True(t, math.IsNaN(out[2]) && math.IsNaN(lse[1]))
+			assert.False(t, math.IsNaN(out[0]) || math.IsNaN(out[4]))
+			// Every logit near +1000 or −1000: finite, equal to the shifted problem.
+			big := make([]float64, 12)
+			for i := range big {
+				big[i] = 1000
+			}
+			for _, shift := range []float64{1000, -1000} {
+				for i := range big {
+					big[i] = shift
+				}
+				ob, lb, err := f(q, k, v, Options{Bias: big, BiasBatch: 1, BiasHeads: 1})
+				require.NoError(t, err)
+				o0, l0, err := f(q, k, v, Options{})
+				require.NoError(t, err)
+				assert.LessOrEqual(t, golden.NormwiseRelErr(ob, o0), 1e-13, "shift %v", shift)
+				for i := range lb {
+					// lse shifts by exactly the bias up to the rounding of
+					// logits near 1000 (ulp 1.1e-13).
+					assert.InDelta(t, l0[i]+shift, lb[i], 1e-12)
+				}
+			}
+			// Empty rows: 0 and −Inf, or NaN and −Inf.
+			pad, _ := mask.KeyPadding([]int{0})
+			for _, pol := range []EmptyRow{EmptyRowZero, EmptyRowNaN} {
+				out, lse, err := f(q, k, v, Options{Mask: pad, EmptyRow: pol})
+				require.NoError(t, err)
+				for i := range out {
+					if pol == EmptyRowZero {
+						require.Zero(t, out[i])
+					} else {
+						require.True(t, math.IsNaN(out[i]))
+					}
+				}
+				for _, l := range lse {
+					require.True(t, math.IsInf(l, -1))
+				}
+			}
+		})
+	}
+	// Direct form: an Inf in a hidden V row is ignored.
+	v2 := append([]float64(nil), v...)
+	v2[2*3] = math.Inf(1) // key 3
+	pad, _ := mask.KeyPadding([]int{3})
+	out, _, err := Forward(q, k, v2, s, Options{Mask: pad})
+	require.NoError(t, err)
+	for _, x := range out {
+		require.False(t, math.IsNaN(x) || math.IsInf(x, 0))
+	}
+}
