@@ -400,8 +400,10 @@ func TestPropertyNaNInfPolicy(t *testing.T) {
 	q, k, v := randCase(r, s)
 	forms := map[string]func(q, k, v []float64, o Options) ([]float64, []float64, error){
 		"direct": func(q, k, v []float64, o Options) ([]float64, []float64, error) { return Forward(q, k, v, s, o) },
-		"tiled":  func(q, k, v []float64, o Options) ([]float64, []float64, error) { return ForwardTiled(q, k, v, s, 3, o) },
-		"fast":   func(q, k, v []float64, o Options) ([]float64, []float64, error) { return ForwardFast(q, k, v, s, o) },
+		"tiled": func(q, k, v []float64, o Options) ([]float64, []float64, error) {
+			return ForwardTiled(q, k, v, s, 3, o)
+		},
+		"fast": func(q, k, v []float64, o Options) ([]float64, []float64, error) { return ForwardFast(q, k, v, s, o) },
 	}
 	for name, f := range forms {
 		t.Run(name, func(t *testing.T) {
