@@ -53,6 +53,15 @@ func randOptions(r *rand.Rand, s Shape) Options {
 	return o
 }
 
+// randNorm is n standard normal values.
+func randNorm(r *rand.Rand, n int) []float64 {
+	x := make([]float64, n)
+	for i := range x {
+		x[i] = r.NormFloat64()
+	}
+	return x
+}
+
 func randShape(r *rand.Rand, maxL int) Shape {
 	hkv := 1 + r.IntN(3)
 	return Shape{Batch: 1 + r.IntN(2), HeadsQ: hkv * (1 + r.IntN(3)), HeadsKV: hkv, Lq: 1 + r.IntN(maxL), Lk: 1 + r.IntN(maxL), Dk: 1 + r.IntN(6), Dv: 1 + r.IntN(6)}
@@ -218,10 +227,7 @@ func TestPropertyGroupedEqualsRepeated(t *testing.T) {
 		// the group of the repeated call's dK (the direct form adds the
 		// group's contributions key by key in head order, not head by
 		// head, so compare within a few ulps).
-		dOut := make([]float64, s.oLen())
-		for i := range dOut {
-			dOut[i] = r.NormFloat64()
-		}
+		dOut := randNorm(r, s.oLen())
 		gm, err := Backward(q, k2, v2, dOut, nil, m, o)
 		require.NoError(t, err)
 		gg, err := Backward(q, k, v, dOut, nil, s, o)
@@ -260,13 +266,7 @@ func TestPropertyFiniteDifferences(t *testing.T) {
 		s := randShape(r, 6)
 		o := randOptions(r, s)
 		q, k, v := randCase(r, s)
-		dOut, dLSE := make([]float64, s.oLen()), make([]float64, s.lseLen())
-		for i := range dOut {
-			dOut[i] = r.NormFloat64()
-		}
-		for i := range dLSE {
-			dLSE[i] = r.NormFloat64()
-		}
+		dOut, dLSE := randNorm(r, s.oLen()), randNorm(r, s.lseLen())
 		loss := func() float64 {
 			out, lse, err := Forward(q, k, v, s, o)
 			require.NoError(t, err)
@@ -352,10 +352,7 @@ func TestPropertyFastMatchesDirect(t *testing.T) {
 		// result; they differ in summation order only.
 		assert.LessOrEqual(t, golden.NormwiseRelErr(got, want), 1e-14, "trial %d", trial)
 		assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), 1e-14, "trial %d", trial)
-		dOut := make([]float64, s.oLen())
-		for i := range dOut {
-			dOut[i] = r.NormFloat64()
-		}
+		dOut := randNorm(r, s.oLen())
 		gw, err := Backward(q, k, v, dOut, wantL, s, o)
 		require.NoError(t, err)
 		gf, err := BackwardFast(q, k, v, dOut, wantL, s, o)
@@ -371,10 +368,7 @@ func TestPropertyDeterministicAcrossGOMAXPROCS(t *testing.T) {
 	r := rand.New(rand.NewPCG(23, 24))
 	s := Shape{Batch: 2, HeadsQ: 4, HeadsKV: 2, Lq: 150, Lk: 170, Dk: 16, Dv: 12}
 	q, k, v := randCase(r, s)
-	dOut := make([]float64, s.oLen())
-	for i := range dOut {
-		dOut[i] = r.NormFloat64()
-	}
+	dOut := randNorm(r, s.oLen())
 	o := Options{Mask: mask.Causal(), Sinks: []float64{0, 1, -1, 2}, Bias: make([]float64, s.Lq*s.Lk), BiasBatch: 1, BiasHeads: 1}
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
 	var outs [][]float64

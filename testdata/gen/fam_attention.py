@@ -10,7 +10,7 @@ float64 inputs:
   * additive bias, broadcast over batch and heads; ALiBi (Press et al.
     2022, arXiv 2108.12409, Sec. 3): t -= m_h (p(i) - j), or |p(i) - j|;
   * mask: hidden keys leave the softmax (Sec. 3.2.3); the visibility rules
-    are written out below from their definitions;
+    are fam_mask's, written there from their definitions;
   * sink logits join the softmax denominator and carry no value;
   * grouped heads (Ainslie et al. 2023, arXiv 2305.13245, Sec. 2.2):
     contiguous groups ("blocks") or h mod H_kv ("cycle");
@@ -27,6 +27,9 @@ import mpmath
 from mpmath import mpf
 
 from common import case, ftensor, rng, uniform
+# The visibility rules are those of the mask family, written from their
+# definitions there (mask/doc.go); attention shares them, not the Go code.
+from fam_mask import pos, sees
 
 SRC_SDPA = "Vaswani et al. 2017, arXiv 1706.03762, Sec. 3.2.1 Eq. (1), 3.2.2, 3.2.3"
 SRC_GQA = "Ainslie et al. 2023, arXiv 2305.13245, Sec. 2.2; Shazeer 2019, arXiv 1911.02150, Sec. 3"
@@ -46,41 +49,10 @@ def idx(layout, b, h, i, H, L, D):
     return ((b * H + h) * L + i) * D
 
 
-def pos(cfg, i):
-    a = cfg["lk"] - cfg["lq"] if cfg.get("align", "end") == "end" else 0
-    return a + cfg.get("offset", 0) + i
-
-
-def segment(offsets, x):
-    for s in range(len(offsets) - 1):
-        if offsets[s] <= x < offsets[s + 1]:
-            return s
-    raise ValueError("position outside the packed sequences")
-
-
-def sees(m, b, p, j):
-    """Key j visible to the query at key position p in batch entry b."""
-    k = m["kind"]
-    if k == "full":
-        return True
-    if k == "causal":
-        return j <= p
-    if k == "band":
-        d = j - p
-        return (m["before"] < 0 or -m["before"] <= d) and (m["after"] < 0 or d <= m["after"])
-    if k == "window":
-        return p - m["n"] < j <= p
-    if k == "prefix":
-        return j < m["p"] or j <= p
-    if k == "padding":
-        return j < m["valid"][b]
-    if k == "packed":
-        if segment(m["offsets"], p) != segment(m["offsets"], j):
-            return False
-        return m["block"] == "full" or j <= p
-    if k == "intersect":
-        return all(sees(part, b, p, j) for part in m["parts"])
-    raise ValueError(k)
+def geometry(cfg):
+    """The mask geometry of a case, in fam_mask's terms."""
+    return {"batch": cfg["batch"], "lq": cfg["lq"], "lk": cfg["lk"],
+            "align": cfg.get("align", "end"), "offset": cfg.get("offset", 0)}
 
 
 def kv_head(cfg, h):
@@ -99,6 +71,7 @@ def attend(cfg, ins):
     scale = mpf(cfg["scale"]) if "scale" in cfg else 1 / mpmath.sqrt(Dk)
     cap = mpf(cfg.get("soft_cap", 0))
     msk = cfg.get("mask", {"kind": "full"})
+    geo = geometry(cfg)
     nan_rows = cfg.get("empty_row", "zero") == "nan"
     q, k, v, do = ins["q"], ins["k"], ins["v"], ins["d_out"]
     dl = ins.get("d_lse")
@@ -120,14 +93,14 @@ def attend(cfg, ins):
             g = kv_head(cfg, h)
             for i in range(Lq):
                 qo = idx(lay, b, h, i, Hq, Lq, Dk)
-                p = pos(cfg, i)
+                p = pos(geo, i)
                 brow = None
                 if bias is not None:
                     brow = (((b if bb > 1 else 0) * bh + (h if bh > 1 else 0)) * Lq + i) * Lk
                 t = {}      # final logit of each visible key
                 dcap = {}   # derivative of the cap
                 for j in range(Lk):
-                    if not sees(msk, b, p, j):
+                    if not sees(msk, geo, b, i, j):
                         continue
                     ko = idx(lay, b, g, j, Hkv, Lk, Dk)
                     x = scale * mpmath.fsum(mpf(q[qo + d]) * mpf(k[ko + d]) for d in range(Dk))
