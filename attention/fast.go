@@ -21,12 +21,41 @@ import (
 // rowBlock·Lk values.
 const rowBlock = 64
 
+// tileRows × tileCols is the largest tile of C that gonum's Dgemm computes
+// without starting goroutines of its own (it does so from 4 blocks of
+// 64×64 up). The fast form is already parallel over independent tasks, and
+// nested parallelism only adds scheduling and cache contention.
+const (
+	tileRows = 64
+	tileCols = 3 * 64
+)
+
 // gemm is C = alpha·op(A)·op(B) + beta·C through the blas64 or blas32
-// implementation (gonum's own unless the program installed another).
+// implementation (gonum's own unless the program installed another), one
+// tile of C at a time so that each call takes gonum's serial path. The
+// tiling is fixed by the sizes alone, so every element of C is the same sum
+// whatever GOMAXPROCS is.
 func gemm[T num.Float](tA, tB blas.Transpose, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	if m == 0 || n == 0 {
-		return
+	for i := 0; i < m; i += tileRows {
+		var ai []T
+		if tA == blas.Trans {
+			ai = a[i:] // row i of op(A) = column i of A
+		} else {
+			ai = a[i*lda:]
+		}
+		for j := 0; j < n; j += tileCols {
+			var bj []T
+			if tB == blas.Trans {
+				bj = b[j*ldb:] // column j of op(B) = row j of B
+			} else {
+				bj = b[j:]
+			}
+			gemm1(tA, tB, min(tileRows, m-i), min(tileCols, n-j), k, alpha, ai, lda, bj, ldb, beta, c[i*ldc+j:], ldc)
+		}
 	}
+}
+
+func gemm1[T num.Float](tA, tB blas.Transpose, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
 	switch a := any(a).(type) {
 	case []float64:
 		blas64.Implementation().Dgemm(tA, tB, m, n, k, float64(alpha), a, lda, any(b).([]float64), ldb, float64(beta), any(c).([]float64), ldc)
