@@ -36,6 +36,17 @@ func BenchmarkForwardFastCausal(b *testing.B) {
 	}
 }
 
+// BenchmarkForwardFastFull is the same shape without a mask: every product
+// is computed, as numpy computes them.
+func BenchmarkForwardFastFull(b *testing.B) {
+	q, k, v, _ := benchInputs(prefill)
+	for b.Loop() {
+		if _, _, err := ForwardFast(q, k, v, prefill, Options{}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
 func BenchmarkBackwardFastCausal(b *testing.B) {
 	q, k, v, d := benchInputs(prefill)
 	o := Options{Mask: mask.Causal()}

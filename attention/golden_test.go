@@ -329,3 +329,15 @@ func TestGoldenBackwardFast(t *testing.T) {
 	})
 	w.log(t, "BackwardFast")
 }
+
+func TestGoldenForwardFast32(t *testing.T) {
+	w := worst{}
+	eachGolden(t, func(t *testing.T, g goldenCall) {
+		skipBigLogits32(t, g)
+		out, lse, err := ForwardFast32(to32(g.q), to32(g.k), to32(g.v), g.s, g.o)
+		require.NoError(t, err)
+		w.check(t, g, "out", to64(out), golden32Bound)
+		w.check(t, g, "lse", to64(lse), golden32Bound)
+	})
+	w.log(t, "ForwardFast32")
+}

@@ -1,6 +1,7 @@
 #!/usr/bin/python3
 """Time, in numpy float64, the forward computation that BenchmarkForwardFastCausal
-and BenchmarkDecodeFast time in Go: causal scaled dot-product attention with
+(and BenchmarkForwardFastFull, BenchmarkDecodeFast) time in Go: causal (and
+unmasked) scaled dot-product attention with
 batch 1, 16 heads, 2048 positions, head dimension 128, and one query against
 32768 cached keys. For comparison only; no test depends on it.
 
@@ -39,6 +40,7 @@ def main():
     q, k, v = (r.uniform(-1, 1, (h, l, d)) for _ in range(3))
     print("numpy %s, threads as configured" % np.__version__)
     print("forward causal B1 H16 L2048 D128: %.3f s (best of 3)" % best(lambda: attend(q, k, v, True), 3))
+    print("forward full   B1 H16 L2048 D128: %.3f s (best of 3)" % best(lambda: attend(q, k, v, False), 3))
     lk = 32768
     q1 = r.uniform(-1, 1, (h, 1, d))
     kc, vc = (r.uniform(-1, 1, (h, lk, d)) for _ in range(2))
