@@ -48,8 +48,8 @@ import (
 //	Inf or NaN in a V row of weight 0 (hidden key): ignored
 //	Batch = 0 or Lq = 0:        empty outputs
 //
-// Accuracy: against the 50-digit golden values the worst normwise relative
-// error measured is given in the package documentation.
+// Accuracy: against the 55 golden cases computed at 50 digits, the worst
+// normwise relative error is 9.7e-16 for O and 2.7e-16 for lse.
 func Forward(q, k, v []float64, s Shape, o Options) (out, lse []float64, err error) {
 	p, err := newPlan(len(q), len(k), len(v), s, &o)
 	if err != nil {
@@ -63,6 +63,12 @@ func Forward(q, k, v []float64, s Shape, o Options) (out, lse []float64, err err
 // straightforward low-precision implementation the compare package uses as
 // a yardstick; not a reference. Every product and sum is rounded to
 // float32; exp, log, tanh and cosh are evaluated in float64 and rounded.
+//
+// Special cases are those of Forward.
+//
+// Accuracy, as a yardstick: against the golden cases (inputs rounded to
+// float32, logits near ±1000 left out) the worst normwise relative error is
+// 3.9e-7 for O and 6.0e-8 for lse.
 func Forward32(q, k, v []float32, s Shape, o Options) (out, lse []float32, err error) {
 	p, err := newPlan(len(q), len(k), len(v), s, &o)
 	if err != nil {
@@ -114,6 +120,12 @@ type Grads32 struct {
 //	                                 kv head in that batch entry, are NaN
 //	a key of weight 0 (hidden, −Inf bias, exp underflow): contributes nothing
 //	ALiBi slopes, Scale, SoftCap: treated as constants (no gradient)
+//
+// Accuracy: against the 55 golden cases computed at 50 digits, the worst
+// normwise relative error is 4.7e-15 (dQ), 2.2e-15 (dK), 1.5e-15 (dV),
+// 1.8e-16 (dσ) and 2.6e-16 (dBias), except dQ and dK of the cases with
+// logits near ±1000: 1.0e-13, the conditioning of the problem once the
+// logits are rounded to float64 (see the package doc).
 func Backward(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) {
 	p, err := newBackwardPlan(len(q), len(k), len(v), len(dOut), dLSE != nil, len(dLSE), s, &o)
 	if err != nil {
@@ -126,6 +138,11 @@ func Backward(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) 
 // Backward32 is the float32 instantiation of the same body as Backward: the
 // straightforward low-precision implementation the compare package uses as
 // a yardstick; not a reference.
+//
+// Special cases are those of Backward.
+//
+// Accuracy, as a yardstick: 9.1e-7 worst normwise relative error against
+// the golden cases (inputs rounded to float32, logits near ±1000 left out).
 func Backward32(q, k, v, dOut, dLSE []float32, s Shape, o Options) (Grads32, error) {
 	p, err := newBackwardPlan(len(q), len(k), len(v), len(dOut), dLSE != nil, len(dLSE), s, &o)
 	if err != nil {
@@ -162,9 +179,12 @@ func newBackwardPlan(qn, kn, vn, dn int, hasLSE bool, ln int, s Shape, o *Option
 // With pos = Lk − Lq this is the last Lq rows of a causal prefill over all
 // Lk keys; with Lq = 1 it is one decoding step.
 //
-// Special cases are:
+// Special cases are those of Forward, and:
 //
 //	pos < 0 or pos+Lq > Lk:  error ErrOption
+//
+// Accuracy: that of Forward. Decoding one token at a time reproduces the
+// rows of the causal prefill bit for bit (TestDecodeReproducesPrefill).
 func Decode(q, kCache, vCache []float64, s Shape, pos int, o Options) (out, lse []float64, err error) {
 	if err := decodeOptions(s, pos, &o); err != nil {
 		return nil, nil, err

