@@ -72,6 +72,13 @@
 // straightforward low-precision implementation the compare package uses as
 // a yardstick; not a reference.
 //
+// Determinism: every form gives bit-identical results for any GOMAXPROCS.
+// The direct and tiled forms round every product before it is added (no
+// fused multiply-add), so they also agree across architectures up to the
+// math package's Exp, Log, Tanh and Cosh, which are assembly on some
+// architectures and Go on others; the fast form depends in addition on
+// gonum's kernels for the architecture.
+//
 // The backward pass uses D_i − c = Σ_j P_ij (dP_ij − c) − c·P_sink, with c
 // the dP of the row's most probable entry, instead of D_i = dO_i · O_i:
 // the same value, without the cancellation of dP_ij − D_i when one key

@@ -127,13 +127,14 @@ type goldenCall struct {
 	o          Options
 	q, k, v    []float64
 	dOut, dLSE []float64
+	cfg        goldenConfig
 }
 
 func loadCall(t *testing.T, c *golden.Case) goldenCall {
 	t.Helper()
 	var cfg goldenConfig
 	require.NoError(t, c.DecodeConfig(&cfg))
-	g := goldenCall{c: c, s: Shape{cfg.Batch, cfg.HeadsQ, cfg.HeadsKV, cfg.Lq, cfg.Lk, cfg.Dk, cfg.Dv}}
+	g := goldenCall{c: c, s: Shape{cfg.Batch, cfg.HeadsQ, cfg.HeadsKV, cfg.Lq, cfg.Lk, cfg.Dk, cfg.Dv}, cfg: cfg}
 	o := &g.o
 	o.Scale, o.SoftCap, o.Offset = cfg.Scale, cfg.SoftCap, cfg.Offset
 	switch cfg.Layout {
@@ -307,6 +308,26 @@ func TestGoldenBackward32(t *testing.T) {
 		w.check(t, g, "d_v", to64(gr.DV), golden32Bound)
 	})
 	w.log(t, "Backward32")
+}
+
+// Decode of the cases with a plain causal mask and the end alignment: the
+// queries sit at positions Lk − Lq …, which is Decode with pos = Lk − Lq.
+func TestGoldenDecode(t *testing.T) {
+	n := 0
+	eachGolden(t, func(t *testing.T, g goldenCall) {
+		if g.cfg.Mask == nil || g.cfg.Mask.Kind != "causal" || g.cfg.Align == "start" || g.cfg.Offset != 0 {
+			t.Skip("not a causal, end-aligned case")
+		}
+		n++
+		o := g.o
+		o.Mask = mask.Mask{}
+		out, lse, err := Decode(g.q, g.k, g.v, g.s, g.s.Lk-g.s.Lq, o)
+		require.NoError(t, err)
+		w := worst{}
+		w.check(t, g, "out", out, goldenBound)
+		w.check(t, g, "lse", lse, goldenBound)
+	})
+	require.GreaterOrEqual(t, n, 5, "causal end-aligned golden cases")
 }
 
 func TestGoldenForwardFast(t *testing.T) {
