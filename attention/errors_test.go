@@ -203,3 +203,11 @@ func FuzzForward(f *testing.F) {
 		}
 	})
 }
+
+func TestErrorsHugeShape(t *testing.T) {
+	// 2^32 · 2^32 · 1 · 1 elements would wrap int64 arithmetic around to 0.
+	s := Shape{Batch: 1 << 32, HeadsQ: 1 << 32, HeadsKV: 1, Lq: 1, Lk: 1, Dk: 1, Dv: 1}
+	_, _, err := Forward(nil, nil, nil, s, Options{})
+	assert.ErrorIs(t, err, ErrShape)
+	assert.ErrorContains(t, err, "more than this package handles")
+}

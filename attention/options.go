@@ -246,10 +246,20 @@ func checkShape(s Shape) error {
 	case s.Dv < 1:
 		return fmt.Errorf("%w: Dv = %d; want ≥ 1", ErrShape, s.Dv)
 	}
-	const limit = 1 << 40
-	for _, n := range []int{s.Batch * s.HeadsQ, s.Lq * s.Lk, s.Lq * s.Dk, s.Lk * s.Dk, s.Lq * s.Dv, s.Lk * s.Dv} {
-		if n < 0 || n > limit {
-			return fmt.Errorf("%w: %+v is too large", ErrShape, s)
+	// Every tensor, and the mask laid out as B·Lq·Lk booleans, must have a
+	// size that int arithmetic holds exactly; products are formed in
+	// float64 so that they cannot wrap around.
+	const limit = 1 << 50
+	for _, dims := range [][]int{
+		{s.Batch, s.HeadsQ, s.Lq, s.Dk}, {s.Batch, s.HeadsKV, s.Lk, s.Dk}, {s.Batch, s.HeadsKV, s.Lk, s.Dv},
+		{s.Batch, s.HeadsQ, s.Lq, s.Dv}, {s.Batch, s.Lq, s.Lk}, {s.HeadsQ, s.Lq, s.Lk},
+	} {
+		n := 1.0
+		for _, d := range dims {
+			n *= float64(d)
+		}
+		if n > limit {
+			return fmt.Errorf("%w: %+v: a tensor of %v elements is more than this package handles (2^50)", ErrShape, s, dims)
 		}
 	}
 	return nil
