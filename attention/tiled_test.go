@@ -212,3 +212,33 @@ func slice(p *plan, x []float64, H, L, D, i0, i1 int) []float64 {
 	}
 	return out
 }
+
+// mergeBound: each merged value is at most two products and a sum away
+// from the exact result, after an exp and a log: a few ulps.
+const mergeBound = 1e-15
+
+func TestGoldenMerge(t *testing.T) {
+	f := golden.MustLoadFamily(t, "attention", "merge")
+	var worstO, worstL float64
+	for _, c := range f.Cases {
+		t.Run(c.Name, func(t *testing.T) {
+			var cfg struct {
+				Rows int `json:"rows"`
+				Dv   int `json:"dv"`
+			}
+			require.NoError(t, c.DecodeConfig(&cfg))
+			get := func(n string) []float64 {
+				x, _, err := c.Float(n)
+				require.NoError(t, err)
+				return x
+			}
+			out, lse, err := Merge(get("out_a"), get("lse_a"), get("out_b"), get("lse_b"), cfg.Dv)
+			require.NoError(t, err)
+			eo, el := golden.NormwiseRelErr(out, get("out")), golden.NormwiseRelErr(lse, get("lse"))
+			worstO, worstL = max(worstO, eo), max(worstL, el)
+			assert.LessOrEqual(t, eo, mergeBound, golden.Describe(c, "out", eo, mergeBound))
+			assert.LessOrEqual(t, el, mergeBound, golden.Describe(c, "lse", el, mergeBound))
+		})
+	}
+	t.Logf("Merge: worst normwise relative error: out %.3g, lse %.3g", worstO, worstL)
+}

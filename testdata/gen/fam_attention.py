@@ -354,3 +354,47 @@ FAMILIES = [
     ("attention", "extras", build_extras),
     ("attention", "combined", build_combined),
 ]
+
+
+SRC_MERGE = ("Milakov & Gimelshein 2018, arXiv 1805.02867, Sec. 3.1 Eq. (3)-(4), applied to "
+             "normalised partial outputs: lse = log(e^lse_a + e^lse_b), "
+             "o = e^(lse_a - lse) o_a + e^(lse_b - lse) o_b")
+
+
+def merge_case(name, seed, rows, dv, lse_a=None, lse_b=None):
+    """Merge of two partial results given as float64 inputs."""
+    r = rng(seed)
+    oa = uniform(r, rows * dv)
+    ob = uniform(r, rows * dv)
+    la = lse_a if lse_a is not None else uniform(r, rows, -3.0, 3.0)
+    lb = lse_b if lse_b is not None else uniform(r, rows, -3.0, 3.0)
+    o, lse = [], []
+    for i in range(rows):
+        a, b = mpf(la[i]), mpf(lb[i])
+        if a == NEG_INF and b == NEG_INF:
+            lse.append(NEG_INF)
+            o += [mpf(0)] * dv
+            continue
+        L = mpmath.log(mpmath.exp(a) + mpmath.exp(b))
+        wa, wb = mpmath.exp(a - L), mpmath.exp(b - L)
+        lse.append(L)
+        o += [wa * mpf(oa[i * dv + d]) + wb * mpf(ob[i * dv + d]) for d in range(dv)]
+    cfg = {"rows": rows, "dv": dv}
+    ins = {"out_a": ftensor(oa, [rows, dv]), "lse_a": ftensor(la, [rows]),
+           "out_b": ftensor(ob, [rows, dv]), "lse_b": ftensor(lb, [rows])}
+    return case(name, SRC_MERGE, cfg, ins, {"out": ftensor(o, [rows, dv]), "lse": ftensor(lse, [rows])})
+
+
+def build_merge():
+    ninf = float("-inf")
+    return [
+        merge_case("random", 80, 6, 4),
+        merge_case("one_row_dv_1", 81, 1, 1),
+        merge_case("empty_parts", 82, 4, 3, lse_a=[ninf, 0.5, ninf, -1.0], lse_b=[ninf, ninf, 2.0, -1.0]),
+        merge_case("far_apart", 83, 3, 2, lse_a=[700.0, -700.0, 1000.0], lse_b=[-700.0, 700.0, 1000.0 - 40.0]),
+        merge_case("near_plus_1000", 84, 3, 3, lse_a=[1000.25, 999.5, 1001.0], lse_b=[1000.0, 1000.0, 1000.5]),
+        merge_case("equal_lse", 85, 2, 3, lse_a=[0.0, -2.5], lse_b=[0.0, -2.5]),
+    ]
+
+
+FAMILIES.append(("attention", "merge", build_merge))
