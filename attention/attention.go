@@ -157,11 +157,11 @@ func newBackwardPlan(qn, kn, vn, dn int, hasLSE bool, ln int, s Shape, o *Option
 	if err != nil {
 		return nil, err
 	}
-	if err := checkLen("dOut", dn, s.oLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dv)); err != nil {
+	if err := checkLen("dOut", dn, s.oLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dv)); err != nil {
 		return nil, err
 	}
 	if hasLSE {
-		if err := checkLen("dLSE", ln, s.lseLen(), s, fmt.Sprintf("[%d %d %d]", s.Batch, s.HeadsQ, s.Lq)); err != nil {
+		if err := checkLen("dLSE", ln, s.lseLen(), fmt.Sprintf("[%d %d %d]", s.Batch, s.HeadsQ, s.Lq)); err != nil {
 			return nil, err
 		}
 	}

@@ -98,7 +98,10 @@ func parallel(n, workers int, task func(w, t int)) {
 // float32 instantiation), in parallel over batch × heads × row blocks.
 // Each task computes only the keys its rows can see (for a causal mask,
 // about half the products), holds at most 64 × Lk scores, and writes its
-// own output rows, so the result is bit-identical for any GOMAXPROCS.
+// own output rows, so the result is bit-identical for any GOMAXPROCS. (That
+// holds for gonum's own BLAS, the default; a program that installs another
+// implementation with blas64.Use or blas32.Use gets its speed and its
+// determinism.) The mask is laid out once as Batch·Lq·Lk booleans.
 //
 // It is not bit-identical to Forward: BLAS sums q·k and P·V in its own
 // order. The tests bound the normwise relative difference from Forward and

@@ -265,7 +265,7 @@ func checkShape(s Shape) error {
 	return nil
 }
 
-func checkLen(name string, got, want int, s Shape, dims string) error {
+func checkLen(name string, got, want int, dims string) error {
 	if got != want {
 		return fmt.Errorf("%w: %s has %d elements; shape %s = %d", ErrLength, name, got, dims, want)
 	}
@@ -278,13 +278,13 @@ func newPlan(qn, kn, vn int, s Shape, o *Options) (*plan, error) {
 	if err := checkShape(s); err != nil {
 		return nil, err
 	}
-	if err := checkLen("Q", qn, s.qLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dk)); err != nil {
+	if err := checkLen("Q", qn, s.qLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dk)); err != nil {
 		return nil, err
 	}
-	if err := checkLen("K", kn, s.kLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dk)); err != nil {
+	if err := checkLen("K", kn, s.kLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dk)); err != nil {
 		return nil, err
 	}
-	if err := checkLen("V", vn, s.vLen(), s, fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dv)); err != nil {
+	if err := checkLen("V", vn, s.vLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dv)); err != nil {
 		return nil, err
 	}
 	p := &plan{s: s, layout: o.Layout, group: o.Group}
