@@ -10,7 +10,7 @@ import (
 
 // A prefill over two positions: Q = K = I₂, V = [[1, 2], [3, 4]], head
 // dimension 2, so the logits are I₂/√2. The output rows are the worked
-// value [mpmath] of FORMULAS.md: (1.6604769013466861, 2.6604769013466861),
+// value [mpmath, 40 digits]: (1.6604769013466861, 2.6604769013466861),
 // (2.3395230986533139, 3.3395230986533139). With the causal mask the first
 // query sees only the first key.
 func ExampleForward() {
@@ -101,7 +101,7 @@ func ExampleBackward() {
 }
 
 // Two halves of the keys computed apart and merged give the whole. The
-// worked value [mpmath] of FORMULAS.md: logits [1, 3, 2] have log-sum-exp
+// worked value [mpmath, 40 digits]: logits [1, 3, 2] have log-sum-exp
 // 3.4076059644443803 and weights [0.0900…, 0.6652…, 0.2447…]; with V = I₃
 // the output is the weights.
 func ExampleMerge() {

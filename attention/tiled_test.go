@@ -135,7 +135,7 @@ func TestMergeSpecialCases(t *testing.T) {
 	require.NoError(t, err)
 	assert.Equal(t, []float64{0.1, -0.7}, o)
 	assert.Equal(t, []float64{3.25}, l)
-	// Worked value [mpmath]: FORMULAS.md x = [1, 3, 2] has lse
+	// Worked value [mpmath, 40 digits]: x = [1, 3, 2] has lse
 	// 3.4076059644443803; merging the part {1, 3} (lse = log(e + e³)) with
 	// {2} must give it. Outputs are the weights when V = e_j.
 	la := math.Log(math.E + math.Exp(3))

@@ -20,7 +20,8 @@ func ulps(x float64, n int) float64 {
 
 func TestWorkedValues(t *testing.T) {
 	t.Run("identity", func(t *testing.T) {
-		// [mpmath] FORMULAS.md: Q = K = I₂, V = [[1,2],[3,4]], d_k = 2 →
+		// [mpmath, 40 digits] Vaswani et al. 2017 Eq. (1) with Q = K = I₂,
+		// V = [[1,2],[3,4]], d_k = 2 →
 		// rows (1.6604769013466861, 2.6604769013466861),
 		// (2.3395230986533139, 3.3395230986533139).
 		s := Shape{1, 1, 1, 2, 2, 2, 2}
@@ -31,7 +32,7 @@ func TestWorkedValues(t *testing.T) {
 		}
 	})
 	t.Run("online softmax", func(t *testing.T) {
-		// [mpmath] FORMULAS.md: x = [1, 3, 2] → lse = 3.4076059644443803,
+		// [mpmath, 40 digits] x = [1, 3, 2] → lse = 3.4076059644443803,
 		// softmax = [0.090030573170380458, 0.66524095577482189,
 		// 0.24472847105479765]. With q = 1, k = x, Scale = 1 and V = I₃
 		// the output is the softmax; the tiled form with blocks of 1 walks
@@ -55,7 +56,8 @@ func TestWorkedValues(t *testing.T) {
 		}
 	})
 	t.Run("soft-cap", func(t *testing.T) {
-		// [mpmath] FORMULAS.md: c = 30, s = 100 → 29.923739024215118. With
+		// [mpmath, 40 digits] Bello et al. 2016: c = 30, s = 100 →
+		// c·tanh(s/c) = 29.923739024215118. With
 		// one key the log-sum-exp is the capped logit itself.
 		s := Shape{1, 1, 1, 1, 1, 1, 1}
 		_, lse, err := Forward([]float64{10}, []float64{10}, []float64{1}, s, Options{Scale: 1, SoftCap: 30})
@@ -64,7 +66,7 @@ func TestWorkedValues(t *testing.T) {
 	})
 	t.Run("sink", func(t *testing.T) {
 		// Sink logit σ = 0 against one key with logit 0: the key's weight
-		// is e⁰/(e⁰ + e⁰) = ½ (the definition in FORMULAS.md) and
+		// is e⁰/(e⁰ + e⁰) = ½ (the definition of a sink logit, see Options) and
 		// lse = log 2.
 		s := Shape{1, 1, 1, 1, 1, 1, 1}
 		out, lse, err := Forward([]float64{0}, []float64{0}, []float64{6}, s, Options{Sinks: []float64{0}})
@@ -73,7 +75,8 @@ func TestWorkedValues(t *testing.T) {
 		assert.Equal(t, math.Ln2, lse[0])
 	})
 	t.Run("grouping", func(t *testing.T) {
-		// FORMULAS.md (Ainslie et al. 2023): H = 8, G = 2, GroupBlocks maps
+		// Ainslie et al. 2023, §2.2 and Figure 2 (contiguous groups): H = 8,
+		// G = 2, GroupBlocks maps
 		// heads 0–3 → 0 and 4–7 → 1; GroupCycle alternates.
 		p := &plan{s: Shape{HeadsQ: 8, HeadsKV: 2}}
 		var blocks, cycle []int
@@ -112,7 +115,8 @@ func TestWorkedValues(t *testing.T) {
 		assert.Zero(t, out[4+3])
 	})
 	t.Run("window", func(t *testing.T) {
-		// FORMULAS.md: Window(3) at i = 5 sees keys {3, 4, 5}.
+		// mask.Window's definition (n keys ending at the query): Window(3) at
+		// i = 5 sees keys {3, 4, 5}.
 		win, _ := mask.Window(3)
 		s := Shape{1, 1, 1, 6, 6, 1, 6}
 		v := make([]float64, 36)

@@ -237,7 +237,7 @@ def shape(b, hq, hkv, lq, lk, dk, dv, **extra):
 
 def build_basic():
     c = []
-    c.append(make("formula_check_identity", SRC_SDPA + "; worked value of FORMULAS.md [mpmath]",
+    c.append(make("formula_check_identity", SRC_SDPA + "; worked value Q = K = I2, V = [[1,2],[3,4]]",
                   shape(1, 1, 1, 2, 2, 2, 2), 1, q=[1.0, 0.0, 0.0, 1.0], k=[1.0, 0.0, 0.0, 1.0],
                   v=[1.0, 2.0, 3.0, 4.0]))
     c.append(make("mha_b1_h1_l4_d4", SRC_SDPA, shape(1, 1, 1, 4, 4, 4, 4), 2))
