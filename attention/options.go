@@ -56,15 +56,15 @@ func (l Layout) String() string {
 }
 
 // GroupMap says which key/value head query head h reads when HeadsQ is a
-// multiple G·HeadsKV of HeadsKV (grouped-query attention, Ainslie et al.
+// multiple of HeadsKV (grouped-query attention, Ainslie et al.
 // 2023, arXiv 2305.13245, §2.2; multi-query attention is HeadsKV = 1,
 // Shazeer 2019, arXiv 1911.02150, §3; multi-head is HeadsKV = HeadsQ).
 type GroupMap int
 
 const (
 	// GroupBlocks: consecutive query heads share a kv head,
-	// kv(h) = ⌊h / G⌋, G = HeadsQ/HeadsKV. This is the contiguous grouping
-	// drawn in Ainslie et al. 2023, Figure 2. For 8 query heads on 2 kv
+	// kv(h) = ⌊h / (HeadsQ/HeadsKV)⌋, the contiguous grouping drawn in the
+	// overview figure of Ainslie et al. 2023. For 8 query heads on 2 kv
 	// heads, heads 0–3 read kv head 0 and heads 4–7 kv head 1. The zero
 	// value.
 	GroupBlocks GroupMap = iota

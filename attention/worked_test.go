@@ -75,8 +75,8 @@ func TestWorkedValues(t *testing.T) {
 		assert.Equal(t, math.Ln2, lse[0])
 	})
 	t.Run("grouping", func(t *testing.T) {
-		// Ainslie et al. 2023, §2.2 and Figure 2 (contiguous groups): H = 8,
-		// G = 2, GroupBlocks maps
+		// Ainslie et al. 2023, §2.2 and its overview figure (contiguous
+		// groups): H = 8 query heads in G = 2 groups, GroupBlocks maps
 		// heads 0–3 → 0 and 4–7 → 1; GroupCycle alternates.
 		p := &plan{s: Shape{HeadsQ: 8, HeadsKV: 2}}
 		var blocks, cycle []int
