@@ -190,7 +190,8 @@ type Options struct {
 	Bias                 []float64
 	BiasBatch, BiasHeads int
 	// Slopes, when not nil, holds one ALiBi slope per query head (the caller
-	// computes them, e.g. 2^{−8k/H}); ALiBi chooses the form.
+	// computes them, e.g. 2^{−8k/H}); ALiBi chooses the form. ALiBi needs
+	// every query at a key position, 0 ≤ p(i) < Lk, as a causal mask does.
 	Slopes []float64
 	ALiBi  ALiBiForm
 	// SoftCap c > 0 replaces the scaled logit t by c·tanh(t/c) (Bello et al.

@@ -24,8 +24,9 @@ import (
 // A block with no visible key is skipped. The result equals Forward's in
 // exact arithmetic; in float64 it differs by rounding only (the tests bound
 // the normwise difference by 1e-14 and check it against the golden values).
-// It exists to show, and to let a port check step by step, what a tiled
-// kernel's intermediate state is.
+// It is the code to read, and to diff against, when porting a tiled kernel:
+// with the same block size the port's running m and ℓ follow the same
+// recurrence.
 //
 // Special cases are those of Forward, and:
 //
