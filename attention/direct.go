@@ -14,12 +14,11 @@ import (
 // nil and a cap is set it also writes the derivative of the cap,
 // 1/cosh²(t/c), per key, indexed like s.
 func logitsRow[T num.Float](p *plan, q, k []T, b, h, i, j0 int, s, sech2 []T) {
-	dk, lk := p.s.Dk, p.s.Lk
+	dk := p.s.Dk
 	qi := q[p.qOff(b, h, i):][:dk]
 	kv := p.kvHead(h)
-	vis := p.vis[(b*p.s.Lq+i)*lk+j0:][:len(s)]
 	for jj := range s {
-		if !vis[jj] {
+		if !p.visible(b, i, j0+jj) {
 			s[jj] = T(math.Inf(-1))
 			continue
 		}

@@ -101,7 +101,8 @@ func parallel(n, workers int, task func(w, t int)) {
 // own output rows, so the result is bit-identical for any GOMAXPROCS. (That
 // holds for gonum's own BLAS, the default; a program that installs another
 // implementation with blas64.Use or blas32.Use gets its speed and its
-// determinism.) The mask is laid out once as Batch·Lq·Lk booleans.
+// determinism.) The mask is kept as one run of keys per row (2·Batch·Lq
+// ints) for every mask kind of the mask package.
 //
 // It is not bit-identical to Forward: BLAS sums q·k and P·V in its own
 // order. The tests bound the normwise relative difference from Forward and
@@ -144,6 +145,12 @@ func (p *plan) keyRange(b, i0, i1 int) (lo, hi int) {
 	lk := p.s.Lk
 	lo, hi = lk, 0
 	for i := i0; i < i1; i++ {
+		if p.vis == nil {
+			if r := b*p.s.Lq + i; p.runLo[r] < p.runHi[r] {
+				lo, hi = min(lo, p.runLo[r]), max(hi, p.runHi[r])
+			}
+			continue
+		}
 		vis := p.vis[(b*p.s.Lq+i)*lk:][:lk]
 		for j := 0; j < lo; j++ {
 			if vis[j] {
@@ -161,12 +168,11 @@ func (p *plan) keyRange(b, i0, i1 int) (lo, hi int) {
 	return lo, max(lo, hi)
 }
 
-// blockLogits turns the scaled products in sc (rows i0 … i0+len/n−1 of
+// blockProbs turns the scaled products in sc (rows i0 … i0+len/n−1 of
 // (b, h), keys lo … lo+n−1, leading dimension n) into probabilities in
 // place and writes each row's log-sum-exp and sink probability. It
 // returns whether any row was empty.
 func blockProbs[T num.Float](p *plan, sc, sech2 []T, b, h, i0, rows, lo, n int, lse, psink []T) (anyEmpty bool) {
-	lk := p.s.Lk
 	sink := T(p.sinkLogit(h))
 	for r := range rows {
 		i := i0 + r
@@ -175,9 +181,8 @@ func blockProbs[T num.Float](p *plan, sc, sech2 []T, b, h, i0, rows, lo, n int, 
 		if sech2 != nil {
 			d = sech2[r*n:][:n]
 		}
-		vis := p.vis[(b*p.s.Lq+i)*lk+lo:][:n]
 		for jj, t := range x {
-			if vis[jj] {
+			if p.visible(b, i, lo+jj) {
 				x[jj] = finishLogit(p, t, b, h, i, lo+jj, jj, d)
 			} else {
 				x[jj] = T(math.Inf(-1))

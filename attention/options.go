@@ -216,7 +216,9 @@ type plan struct {
 	scale     float64
 	softCap   float64
 	geom      mask.Geometry
-	vis       []bool // [Batch, Lq, Lk]
+	runLo     []int  // [Batch, Lq]: row r sees keys runLo[r] ≤ j < runHi[r]
+	runHi     []int  //   (when vis is nil)
+	vis       []bool // [Batch, Lq, Lk], only for a mask that is not one run per row
 	bias      []float64
 	biasB     bool // bias varies over batch
 	biasH     bool // bias varies over heads
@@ -359,8 +361,7 @@ func newPlan(qn, kn, vn int, s Shape, o *Options) (*plan, error) {
 	if isZeroMask(m) {
 		m = mask.Full() // the documented default: every key visible
 	}
-	vis, err := m.Visible(p.geom)
-	if err != nil {
+	if err := m.Check(p.geom); err != nil {
 		return nil, fmt.Errorf("%w: %v on Lq = %d, Lk = %d: %w", ErrMask, m, s.Lq, s.Lk, err)
 	}
 	if p.slopes != nil && !m.UsesPositions() && s.Lq > 0 {
@@ -370,8 +371,46 @@ func newPlan(qn, kn, vn int, s Shape, o *Options) (*plan, error) {
 				ErrOption, o.Align, s.Lq, s.Lk, o.Offset, first, last, s.Lk-1)
 		}
 	}
-	p.vis = vis
+	p.layMask(m)
 	return p, nil
+}
+
+// layMask records which keys each row sees. Every mask kind of the mask
+// package shows each row one run of consecutive keys (or none), so the
+// plan keeps the run's ends per row, 2·Batch·Lq ints; should a row ever see
+// keys that are not consecutive, it keeps the whole Batch·Lq·Lk booleans
+// instead. m must have passed Check on p.geom.
+func (p *plan) layMask(m mask.Mask) {
+	s := p.s
+	p.runLo, p.runHi = make([]int, s.Batch*s.Lq), make([]int, s.Batch*s.Lq)
+	runs := true
+	m.Rows(p.geom, func(b, i int, row []bool) {
+		first, last := -1, -1
+		for j, v := range row {
+			if v {
+				if first < 0 {
+					first = j
+				}
+				last = j
+			}
+		}
+		for j := first + 1; j < last && runs; j++ {
+			runs = row[j]
+		}
+		p.runLo[b*s.Lq+i], p.runHi[b*s.Lq+i] = max(first, 0), last+1
+	})
+	if !runs {
+		p.vis, _ = m.Visible(p.geom) // checked above
+	}
+}
+
+// visible reports whether key j is visible to row i of batch entry b.
+func (p *plan) visible(b, i, j int) bool {
+	r := b*p.s.Lq + i
+	if p.vis != nil {
+		return p.vis[r*p.s.Lk+j]
+	}
+	return p.runLo[r] <= j && j < p.runHi[r]
 }
 
 // kvHead is the kv head that query head h reads.

@@ -101,7 +101,7 @@ func TestPropertyProbabilitiesSumToOne(t *testing.T) {
 					var sum float64
 					for j, x := range row {
 						require.GreaterOrEqual(t, x, 0.0)
-						if !pl.vis[(b*s.Lq+i)*s.Lk+j] {
+						if !pl.visible(b, i, j) {
 							require.Zero(t, x, "trial %d: hidden key %d has weight", trial, j)
 						}
 						sum += x
@@ -141,7 +141,7 @@ func TestPropertyConvexHull(t *testing.T) {
 							lo, hi = 0, 0
 						}
 						for j := range s.Lk {
-							if pl.vis[(b*s.Lq+i)*s.Lk+j] {
+							if pl.visible(b, i, j) {
 								y := v[pl.vOff(b, kv, j)+d]
 								lo, hi = min(lo, y), max(hi, y)
 							}
@@ -463,5 +463,44 @@ func TestPropertyNaNInfPolicy(t *testing.T) {
 	require.NoError(t, err)
 	for _, x := range out {
 		require.False(t, math.IsNaN(x) || math.IsInf(x, 0))
+	}
+}
+
+// The plan keeps each row's visible keys as one run; should a mask ever
+// show a row keys that are not consecutive, it falls back to the whole
+// boolean layout. Both representations must give identical results: here
+// the fallback is forced on masks that are runs.
+func TestPropertyMaskRunsEqualBooleans(t *testing.T) {
+	r := rand.New(rand.NewPCG(27, 28))
+	for trial := range 30 {
+		s := randShape(r, 70)
+		s.Lq = min(s.Lq, s.Lk)
+		o := randOptions(r, s)
+		if r.IntN(2) == 0 {
+			o.Mask, _ = mask.KeyPadding(make([]int, s.Batch))
+		}
+		q, k, v := randCase(r, s)
+		dOut := randNorm(r, s.oLen())
+		runs, err := newPlan(len(q), len(k), len(v), s, &o)
+		require.NoError(t, err)
+		require.Nil(t, runs.vis, "every mask kind is a run per row")
+		bools, err := newPlan(len(q), len(k), len(v), s, &o)
+		require.NoError(t, err)
+		m := o.Mask
+		if isZeroMask(m) {
+			m = mask.Full()
+		}
+		bools.vis, err = m.Visible(bools.geom)
+		require.NoError(t, err)
+		o1, l1 := forward(runs, q, k, v)
+		o2, l2 := forward(bools, q, k, v)
+		require.Equal(t, o1, o2, "trial %d", trial)
+		require.Equal(t, l1, l2)
+		o1, l1 = forwardFast(runs, q, k, v)
+		o2, l2 = forwardFast(bools, q, k, v)
+		require.Equal(t, o1, o2, "trial %d", trial)
+		require.Equal(t, l1, l2)
+		require.Equal(t, backwardFast(runs, q, k, v, dOut, nil), backwardFast(bools, q, k, v, dOut, nil))
+		require.Equal(t, backward(runs, q, k, v, dOut, nil), backward(bools, q, k, v, dOut, nil))
 	}
 }
