@@ -130,20 +130,22 @@
 // prefill of 2048 positions, and one query against 32768 cached keys;
 // BenchmarkForwardFastFull is the prefill without a mask.
 // testdata/bench_numpy.py times the same forward computations in numpy
-// 1.24 float64 over OpenBLAS 0.3.21. Measured side by side, alternating, on
-// a shared 2-core x86-64 machine (wall time, best of 9 runs for Go and of 9
-// for numpy, with other jobs running, so expect ±50% between runs):
+// 1.24 float64 over OpenBLAS 0.3.21. Measured side by side, alternating
+// Go and numpy three times, on a shared 2-core x86-64 machine with a load
+// average near 2 (wall time, best of 9 runs for each):
 //
 //	                          ForwardFast   numpy + OpenBLAS   ratio
-//	forward, causal, L 2048   1.17 s        1.15 s             1.0
-//	forward, no mask, L 2048  2.21 s        0.69 s             3.2
-//	decode, Lk 32768          30 ms         90 ms              0.33
-//	backward, causal, L 2048  4.5 s         (not timed)
+//	forward, causal, L 2048   1.17 s        0.77 s             1.5
+//	forward, no mask, L 2048  2.27 s        0.61 s             3.7
+//	decode, Lk 32768          29 ms         48 ms              0.6
+//	backward, causal, L 2048  2.7 s         (not timed)
 //
-// Per product gonum's Dgemm is about three times slower than OpenBLAS here
-// (the unmasked row); the causal prefill is on par because the fast form
-// computes only the key blocks a row block can see, about half of the
-// products, where the numpy code computes them all and masks. Decoding is
-// bound by reading the 1 GiB cache. The direct form (Decode) takes about
-// 100 ms for the same decoding step.
+// Under a heavier load (5 to 10) the causal ratio measured 1.0 to 1.6. Per
+// product gonum's Dgemm is about a quarter as fast as OpenBLAS here (11
+// against some 40 GFLOP/s per core; see the unmasked row); the causal
+// prefill closes much of the gap because the fast form computes only the
+// key blocks a row block can see, about half of the products, where the
+// numpy code computes them all and then masks. Decoding is bound by reading
+// the 1 GiB cache. The direct form (Decode) takes about 85 ms for the same
+// decoding step.
 package attention
