@@ -141,8 +141,9 @@
 //	backward, causal, L 2048  2.7 s         (not timed)
 //
 // Under a heavier load (5 to 10) the causal ratio measured 1.0 to 1.6. Per
-// product gonum's Dgemm is about a quarter as fast as OpenBLAS here (11
-// against some 40 GFLOP/s per core; see the unmasked row); the causal
+// product gonum's Dgemm is much slower than OpenBLAS here (one core: 11
+// GFLOP/s on the 64-row tiles the fast form uses, against 79 GFLOP/s for
+// OpenBLAS on a 2048³ product; see the unmasked row); the causal
 // prefill closes much of the gap because the fast form computes only the
 // key blocks a row block can see, about half of the products, where the
 // numpy code computes them all and then masks. Decoding is bound by reading
