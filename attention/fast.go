@@ -174,6 +174,8 @@ func (p *plan) keyRange(b, i0, i1 int) (lo, hi int) {
 // returns whether any row was empty.
 func blockProbs[T num.Float](p *plan, sc, sech2 []T, b, h, i0, rows, lo, n int, lse, psink []T) (anyEmpty bool) {
 	sink := T(p.sinkLogit(h))
+	negInf := T(math.Inf(-1))
+	plain := p.softCap == 0 && p.bias == nil && p.slopes == nil
 	for r := range rows {
 		i := i0 + r
 		x := sc[r*n:][:n]
@@ -181,14 +183,33 @@ func blockProbs[T num.Float](p *plan, sc, sech2 []T, b, h, i0, rows, lo, n int, 
 		if sech2 != nil {
 			d = sech2[r*n:][:n]
 		}
-		for jj, t := range x {
-			if p.visible(b, i, lo+jj) {
-				x[jj] = finishLogit(p, t, b, h, i, lo+jj, jj, d)
-			} else {
-				x[jj] = T(math.Inf(-1))
+		// The row's visible keys within the block are x[a:z] when the mask
+		// is kept as runs; otherwise every key is looked up.
+		a, z := 0, n
+		if p.vis == nil {
+			rr := b*p.s.Lq + i
+			a = min(max(p.runLo[rr]-lo, 0), n)
+			z = max(min(p.runHi[rr]-lo, n), a)
+			if !plain {
+				for jj := a; jj < z; jj++ {
+					x[jj] = finishLogit(p, x[jj], b, h, i, lo+jj, jj, d)
+				}
+			}
+		} else {
+			for jj, t := range x {
+				if p.visible(b, i, lo+jj) {
+					x[jj] = finishLogit(p, t, b, h, i, lo+jj, jj, d)
+				} else {
+					x[jj] = negInf
+				}
 			}
 		}
-		l, ps, empty := softmaxRow(x, sink, p.emptyNaN)
+		// Keys outside x[a:z] have probability 0 exactly (e^{−Inf}); they
+		// would add only zeros to the sum, so the softmax over x[a:z] is
+		// the softmax over the row, bit for bit.
+		l, ps, empty := softmaxRow(x[a:z], sink, p.emptyNaN)
+		clear(x[:a])
+		clear(x[z:])
 		lse[r], psink[r] = l, ps
 		anyEmpty = anyEmpty || empty
 	}
