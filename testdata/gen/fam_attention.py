@@ -19,7 +19,9 @@ float64 inputs:
     dK = scale dT^T Q, dT = dS sech^2(t/c) under a cap; dsink_h =
     sum_i P_sink,i (dLSE_i - D_i); dBias = dS summed over broadcast dims.
 
-The order of application is scale, cap, bias, ALiBi, mask. Nothing here is
+The order of application is scale, cap, bias, ALiBi, mask. The family
+"merge" checks the merge of two partial results over disjoint key sets
+(Milakov & Gimelshein 2018, arXiv 1805.02867, Sec. 3.1). Nothing here is
 shared with the Go code.
 """
 
