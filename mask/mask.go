@@ -323,11 +323,25 @@ func (m Mask) Check(g Geometry) error {
 	if g.Align != AlignEnd && g.Align != AlignStart {
 		return fmt.Errorf("%w: Align = %d; want AlignEnd or AlignStart", ErrAlign, int(g.Align))
 	}
+	if hi := math.MaxInt / max(1, g.Lq) / max(1, g.Lk); g.Batch > hi {
+		return fmt.Errorf("%w: Batch×Lq×Lk = %d×%d×%d does not fit in an int", ErrSize, g.Batch, g.Lq, g.Lk)
+	}
 	if m.UsesPositions() && g.Lq > 0 {
-		first, last := g.Pos(0), g.Pos(g.Lq-1)
-		if first < 0 || last >= g.Lk {
-			return fmt.Errorf("%w: %v with Lq = %d, Lk = %d, Offset = %d puts queries at key positions %d … %d; %v needs them within 0 … %d",
-				ErrOffset, g.Align, g.Lq, g.Lk, g.Offset, first, last, m, g.Lk-1)
+		// The first query sits at a + Offset and the last at a + Offset +
+		// Lq − 1; both lie in [0, Lk) iff −a ≤ Offset ≤ Lk − Lq − a. The
+		// bounds are compared without forming a + Offset, which could
+		// overflow.
+		a := 0
+		if g.Align == AlignEnd {
+			a = g.Lk - g.Lq
+		}
+		lo, hi := -a, g.Lk-g.Lq-a
+		if g.Offset < lo || g.Offset > hi {
+			if lo > hi {
+				return fmt.Errorf("%w: Lq = %d queries cannot all sit among Lk = %d keys, as %v needs", ErrOffset, g.Lq, g.Lk, m)
+			}
+			return fmt.Errorf("%w: %v with Lq = %d, Lk = %d: Offset = %d; %v needs every query at a key, so Offset in [%d, %d]",
+				ErrOffset, g.Align, g.Lq, g.Lk, g.Offset, m, lo, hi)
 		}
 	}
 	return m.checkParts(g)

@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"testing"
+
+	"gonum.org/v1/gonum/floats"
 )
 
 // MustLoadFamily loads testdata/golden/<pkg>/<family>.json or stops the test.
@@ -49,23 +51,14 @@ func NormwiseRelErr(got, want []float64) float64 {
 	return d / r
 }
 
-// norm2 is the Euclidean norm with a scale factor, in the manner of LAPACK's
-// dnrm2, so that it neither overflows nor underflows.
+// norm2 is the Euclidean norm. gonum's floats.Norm computes it with
+// scaling, in the manner of the reference BLAS dnrm2, so that it neither
+// overflows nor underflows.
 func norm2(x []float64) float64 {
-	scale, ssq := 0.0, 1.0
-	for _, v := range x {
-		if v == 0 {
-			continue
-		}
-		a := math.Abs(v)
-		if scale < a {
-			ssq = 1 + ssq*(scale/a)*(scale/a)
-			scale = a
-		} else {
-			ssq += (a / scale) * (a / scale)
-		}
+	if len(x) == 0 {
+		return 0
 	}
-	return scale * math.Sqrt(ssq)
+	return floats.Norm(x, 2)
 }
 
 // Describe formats a failed comparison for a test message: the case, the

@@ -1,0 +1,399 @@
+package mask
+
+import (
+	"errors"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/google/go-cmp/cmp"
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+)
+
+// must stops the test on a constructor error: must(t)(Window(3)).
+func must(t testing.TB) func(Mask, error) Mask {
+	return func(m Mask, err error) Mask {
+		t.Helper()
+		require.NoError(t, err)
+		return m
+	}
+}
+
+func vis(t testing.TB, m Mask, g Geometry) []bool {
+	t.Helper()
+	v, err := m.Visible(g)
+	require.NoError(t, err)
+	return v
+}
+
+// TestWindowExample is the worked example of the doc: Window(3) at query
+// position 5 sees keys 3, 4 and 5 (FORMULAS.md, sliding window check).
+func TestWindowExample(t *testing.T) {
+	m := must(t)(Window(3))
+	g := Geometry{Batch: 1, Lq: 8, Lk: 8}
+	var seen []int
+	for j := 0; j < 8; j++ {
+		s, err := m.Sees(g, 0, 5, j)
+		require.NoError(t, err)
+		if s {
+			seen = append(seen, j)
+		}
+	}
+	assert.Equal(t, []int{3, 4, 5}, seen)
+}
+
+func TestErrors(t *testing.T) {
+	g := Geometry{Batch: 1, Lq: 4, Lk: 4}
+	_, errBand := Band(-2, 0)
+	_, errBandAfter := Band(0, -3)
+	_, errWin := Window(-1)
+	_, errWin0 := Window(0)
+	_, errPrefix := Prefix(-1)
+	_, errPad := KeyPadding([]int{3, -1})
+	_, errPackedStart := Packed([]int{1, 4}, BlockCausal)
+	_, errPackedOrder := Packed([]int{0, 3, 3, 4}, BlockCausal)
+	_, errPackedShort := Packed([]int{0}, BlockFull)
+	_, errBlock := Packed([]int{0, 4}, Block(7))
+	_, errEmpty := Intersect()
+	_, errZero := Intersect(Causal(), Mask{})
+	packed := must(t)(Packed([]int{0, 2, 5}, BlockCausal))
+	pad := must(t)(KeyPadding([]int{2, 3}))
+	pref := must(t)(Prefix(6))
+
+	_, errNeg := Causal().Visible(Geometry{Batch: 1, Lq: -1, Lk: 4})
+	_, errNegK := Full().Visible(Geometry{Batch: 1, Lq: 1, Lk: -4})
+	_, errNegB := Full().Visible(Geometry{Batch: -1, Lq: 1, Lk: 4})
+	_, errOffset := Causal().Visible(Geometry{Batch: 1, Lq: 2, Lk: 4, Align: AlignStart, Offset: 3})
+	_, errOffsetNeg := Causal().Visible(Geometry{Batch: 1, Lq: 2, Lk: 4, Align: AlignStart, Offset: -1})
+	_, errLqGtLk := Causal().Visible(Geometry{Batch: 1, Lq: 5, Lk: 4})
+	_, errOverflow := Causal().Visible(Geometry{Batch: 1, Lq: 5, Lk: 8, Align: AlignStart, Offset: math.MaxInt - 1})
+	_, errHuge := Full().Visible(Geometry{Batch: 1 << 30, Lq: 1 << 20, Lk: 1 << 20})
+	_, errAlign := Full().Visible(Geometry{Batch: 1, Lq: 1, Lk: 1, Align: Align(9)})
+	_, errTotal := packed.Visible(g)
+	_, errPadBatch := pad.Visible(g)
+	_, errPadLong := pad.Visible(Geometry{Batch: 2, Lq: 1, Lk: 2})
+	_, errPrefixLong := pref.Visible(g)
+	_, errFillNaN := Causal().BiasFill(g, math.NaN())
+	_, errFillInf := Causal().BiasFill(g, math.Inf(1))
+	_, errZeroMask := Mask{}.Visible(g)
+	_, errIndex := Causal().Sees(g, 0, 4, 0)
+	_, errRows := Causal().EmptyRows(Geometry{Lq: -2})
+
+	tests := []struct {
+		name     string
+		err      error
+		sentinel error
+		want     string
+	}{
+		{"band before", errBand, ErrBand, "before = -2"},
+		{"band after", errBandAfter, ErrBand, "after = -3"},
+		{"negative window", errWin, ErrWindow, "n = -1"},
+		{"zero window", errWin0, ErrWindow, "n = 0"},
+		{"negative prefix", errPrefix, ErrPrefix, "p = -1"},
+		{"negative valid length", errPad, ErrValidLength, "valid[1] = -1"},
+		{"offsets not from 0", errPackedStart, ErrSegments, "offsets[0] = 1"},
+		{"offsets not increasing", errPackedOrder, ErrSegments, "offsets[2] = 3 after offsets[1] = 3"},
+		{"offsets too short", errPackedShort, ErrSegments, "offsets = [0]"},
+		{"block kind", errBlock, ErrBlock, "block = 7"},
+		{"no masks", errEmpty, ErrEmpty, "no masks given"},
+		{"zero mask in intersection", errZero, ErrEmpty, "masks[1] is the zero Mask"},
+		{"negative Lq", errNeg, ErrSize, "Lq = -1"},
+		{"negative Lk", errNegK, ErrSize, "Lk = -4"},
+		{"negative batch", errNegB, ErrSize, "Batch = -1"},
+		{"offset past the keys", errOffset, ErrOffset, "Offset = 3; Causal needs every query at a key, so Offset in [0, 2]"},
+		{"negative offset", errOffsetNeg, ErrOffset, "Offset = -1;"},
+		{"more queries than keys, end-aligned", errLqGtLk, ErrOffset, "Lq = 5 queries cannot all sit among Lk = 4 keys"},
+		{"offset overflow", errOverflow, ErrOffset, "Offset = 9223372036854775806"},
+		{"size overflow", errHuge, ErrSize, "does not fit in an int"},
+		{"unknown alignment", errAlign, ErrAlign, "Align = 9"},
+		{"last offset not the total", errTotal, ErrSegments, "last offset = 5; want the key length Lk = 4"},
+		{"valid lengths per batch", errPadBatch, ErrValidLength, "2 valid lengths, Batch = 1"},
+		{"valid length past keys", errPadLong, ErrValidLength, "valid[1] = 3 exceeds Lk = 2"},
+		{"prefix past keys", errPrefixLong, ErrPrefix, "p = 6 exceeds Lk = 4"},
+		{"NaN fill", errFillNaN, ErrFill, "fill = NaN"},
+		{"+Inf fill", errFillInf, ErrFill, "fill = +Inf"},
+		{"zero mask", errZeroMask, ErrEmpty, "zero Mask"},
+		{"index", errIndex, ErrIndex, "(b, i, j) = (0, 4, 0)"},
+		{"rows", errRows, ErrSize, "Lq = -2"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			require.Error(t, tc.err)
+			assert.True(t, errors.Is(tc.err, tc.sentinel), "%v does not wrap %v", tc.err, tc.sentinel)
+			assert.Contains(t, tc.err.Error(), tc.want)
+		})
+	}
+}
+
+// TestPositionFreeMasksTakeAnyLengths: Full and KeyPadding ignore positions,
+// so cross-attention shapes (Lq > Lk, any offset) are accepted.
+func TestPositionFreeMasksTakeAnyLengths(t *testing.T) {
+	g := Geometry{Batch: 2, Lq: 7, Lk: 3, Align: AlignStart, Offset: 100}
+	v := vis(t, Full(), g)
+	assert.Len(t, v, 2*7*3)
+	pad := must(t)(KeyPadding([]int{1, 3}))
+	v = vis(t, pad, g)
+	assert.Equal(t, []bool{true, false, false}, v[:3])
+	assert.Equal(t, []bool{true, true, true}, v[7*3:7*3+3])
+	assert.False(t, pad.UsesPositions())
+	both := must(t)(Intersect(pad, Causal()))
+	assert.True(t, both.UsesPositions())
+}
+
+func TestEmptyRowsAndZeroSizes(t *testing.T) {
+	rows, err := Full().EmptyRows(Geometry{Batch: 2, Lq: 2, Lk: 0})
+	require.NoError(t, err)
+	assert.Equal(t, []Row{{0, 0}, {0, 1}, {1, 0}, {1, 1}}, rows, "Lk = 0: every row is empty")
+	v, err := Causal().Visible(Geometry{Batch: 3, Lq: 0, Lk: 5})
+	require.NoError(t, err)
+	assert.Empty(t, v)
+	v, err = Full().Visible(Geometry{Batch: 0, Lq: 2, Lk: 2})
+	require.NoError(t, err)
+	assert.Empty(t, v)
+	pad := must(t)(KeyPadding([]int{0, 2}))
+	rows, err = pad.EmptyRows(Geometry{Batch: 2, Lq: 2, Lk: 2})
+	require.NoError(t, err)
+	assert.Equal(t, []Row{{0, 0}, {0, 1}}, rows)
+	b, err := pad.BiasFill(Geometry{Batch: 2, Lq: 1, Lk: 2}, -1e4)
+	require.NoError(t, err)
+	assert.Equal(t, []float64{-1e4, -1e4, 0, 0}, b)
+}
+
+func TestStrings(t *testing.T) {
+	tests := []struct {
+		m    Mask
+		want string
+	}{
+		{Full(), "Full"},
+		{Causal(), "Causal"},
+		{must(t)(Band(2, Unbounded)), "Band(2, Unbounded)"},
+		{must(t)(Window(4)), "Window(4)"},
+		{must(t)(Prefix(3)), "Prefix(3)"},
+		{must(t)(KeyPadding([]int{1, 2})), "KeyPadding([1 2])"},
+		{must(t)(Packed([]int{0, 3}, BlockFull)), "Packed([0 3], BlockFull)"},
+		{must(t)(Intersect(Causal(), must(t)(Window(2)))), "Intersect(Causal, Window(2))"},
+		{Mask{}, "Mask(none)"},
+	}
+	for _, tc := range tests {
+		assert.Equal(t, tc.want, tc.m.String())
+	}
+	assert.Equal(t, "AlignEnd", AlignEnd.String())
+	assert.Equal(t, "AlignStart", AlignStart.String())
+	assert.Equal(t, "Align(5)", Align(5).String())
+	assert.Equal(t, "BlockCausal", BlockCausal.String())
+	assert.Equal(t, "Block(3)", Block(3).String())
+	assert.Equal(t, "Batch=1 Lq=2 Lk=3 AlignStart Offset=1", Geometry{1, 2, 3, AlignStart, 1}.String())
+}
+
+// randomGeometry draws lengths with Lq ≤ Lk and an alignment and offset
+// that keep every query at a key.
+func randomGeometry(r *rand.Rand) Geometry {
+	lk := 1 + r.IntN(12)
+	lq := 1 + r.IntN(lk)
+	g := Geometry{Batch: 1 + r.IntN(3), Lq: lq, Lk: lk}
+	if r.IntN(2) == 0 {
+		g.Align = AlignStart
+		g.Offset = r.IntN(lk - lq + 1)
+	} else {
+		g.Offset = -r.IntN(lk - lq + 1)
+	}
+	return g
+}
+
+func randomMask(t testing.TB, r *rand.Rand, g Geometry, depth int) Mask {
+	switch r.IntN(8) {
+	case 0:
+		return Full()
+	case 1:
+		return Causal()
+	case 2:
+		ext := func() int {
+			if r.IntN(4) == 0 {
+				return Unbounded
+			}
+			return r.IntN(6)
+		}
+		return must(t)(Band(ext(), ext()))
+	case 3:
+		return must(t)(Window(1 + r.IntN(8)))
+	case 4:
+		return must(t)(Prefix(r.IntN(g.Lk + 1)))
+	case 5:
+		valid := make([]int, g.Batch)
+		for b := range valid {
+			valid[b] = r.IntN(g.Lk + 1)
+		}
+		return must(t)(KeyPadding(valid))
+	case 6:
+		offs := []int{0}
+		for offs[len(offs)-1] < g.Lk {
+			offs = append(offs, offs[len(offs)-1]+1+r.IntN(g.Lk-offs[len(offs)-1]))
+		}
+		return must(t)(Packed(offs, Block(r.IntN(2))))
+	}
+	if depth > 1 {
+		return Causal()
+	}
+	return must(t)(Intersect(randomMask(t, r, g, depth+1), randomMask(t, r, g, depth+1)))
+}
+
+// TestProperties checks identities between mask kinds on random geometries
+// (fixed seed).
+func TestProperties(t *testing.T) {
+	r := rand.New(rand.NewPCG(2026, 12))
+	for iter := 0; iter < 400; iter++ {
+		g := randomGeometry(r)
+		causal := vis(t, Causal(), g)
+		full := vis(t, Full(), g)
+
+		// A window at least as long as the keys equals causal.
+		w := must(t)(Window(g.Lk + r.IntN(5)))
+		require.Equal(t, causal, vis(t, w, g), "Window(≥Lk) on %v", g)
+		// A band unbounded on both sides equals full; unbounded before and 0
+		// after equals causal.
+		require.Equal(t, full, vis(t, must(t)(Band(Unbounded, Unbounded)), g), "%v", g)
+		require.Equal(t, causal, vis(t, must(t)(Band(Unbounded, 0)), g), "%v", g)
+		// Prefix(0) is causal.
+		require.Equal(t, causal, vis(t, must(t)(Prefix(0)), g), "%v", g)
+
+		// End-aligned with equal lengths and no offset equals the square
+		// causal mask j ≤ i.
+		sq := Geometry{Batch: 1, Lq: g.Lk, Lk: g.Lk}
+		sqv := vis(t, Causal(), sq)
+		for i := 0; i < g.Lk; i++ {
+			for j := 0; j < g.Lk; j++ {
+				require.Equal(t, j <= i, sqv[i*g.Lk+j])
+			}
+		}
+
+		// Packed with one sequence equals its block kind.
+		one := []int{0, g.Lk}
+		require.Equal(t, causal, vis(t, must(t)(Packed(one, BlockCausal)), g), "%v", g)
+		require.Equal(t, full, vis(t, must(t)(Packed(one, BlockFull)), g), "%v", g)
+
+		// Intersection is commutative and idempotent, and is the
+		// element-wise AND.
+		a, b := randomMask(t, r, g, 0), randomMask(t, r, g, 0)
+		va, vb := vis(t, a, g), vis(t, b, g)
+		ab := vis(t, must(t)(Intersect(a, b)), g)
+		ba := vis(t, must(t)(Intersect(b, a)), g)
+		require.Equal(t, ab, ba, "%v ∩ %v on %v", a, b, g)
+		require.Equal(t, va, vis(t, must(t)(Intersect(a, a)), g), "%v ∩ itself on %v", a, g)
+		for k := range ab {
+			require.Equal(t, va[k] && vb[k], ab[k])
+		}
+
+		// The bias is 0 exactly where visible and the fill elsewhere, and
+		// EmptyRows lists exactly the rows with no true.
+		bias, err := a.Bias(g)
+		require.NoError(t, err)
+		for k, v := range va {
+			if v {
+				require.Equal(t, 0.0, bias[k])
+			} else {
+				require.True(t, math.IsInf(bias[k], -1))
+			}
+		}
+		rows, err := a.EmptyRows(g)
+		require.NoError(t, err)
+		var want []Row
+		for bb := 0; bb < g.Batch; bb++ {
+			for i := 0; i < g.Lq; i++ {
+				any := false
+				for j := 0; j < g.Lk; j++ {
+					any = any || va[(bb*g.Lq+i)*g.Lk+j]
+				}
+				if !any {
+					want = append(want, Row{bb, i})
+				}
+			}
+		}
+		if d := cmp.Diff(want, rows); d != "" {
+			t.Fatalf("EmptyRows of %v on %v (-want +got):\n%s", a, g, d)
+		}
+	}
+}
+
+// TestConstructorsCopy: masks do not alias the caller's slices.
+func TestConstructorsCopy(t *testing.T) {
+	valid := []int{1}
+	pad := must(t)(KeyPadding(valid))
+	offs := []int{0, 2}
+	pk := must(t)(Packed(offs, BlockFull))
+	valid[0], offs[1] = 0, 1
+	g := Geometry{Batch: 1, Lq: 2, Lk: 2}
+	assert.Equal(t, []bool{true, false, true, false}, vis(t, pad, g))
+	assert.Equal(t, []bool{true, true, true, true}, vis(t, pk, g))
+}
+
+// FuzzMask builds masks from arbitrary parameters: no panic, and either an
+// error wrapping a sentinel or results of consistent shapes.
+func FuzzMask(f *testing.F) {
+	f.Add(uint8(1), 1, 4, 4, false, 0, 2, 1, -3.5)
+	f.Add(uint8(6), 2, 3, 9, true, 1, 3, 0, math.Inf(-1))
+	f.Add(uint8(5), -1, 0, 0, false, -7, -1, -1, math.NaN())
+	f.Fuzz(func(t *testing.T, kind uint8, batch, lq, lk int, start bool, offset, a, b int, fill float64) {
+		if batch > 64 || lq > 64 || lk > 64 {
+			return // keep allocations small; sizes beyond that add nothing
+		}
+		var m Mask
+		var err error
+		switch kind % 9 {
+		case 0:
+			m = Full()
+		case 1:
+			m = Causal()
+		case 2:
+			m, err = Band(a, b)
+		case 3:
+			m, err = Window(a)
+		case 4:
+			m, err = Prefix(a)
+		case 5:
+			m, err = KeyPadding([]int{a, b})
+		case 6:
+			m, err = Packed([]int{0, a, b}, Block(kind%3))
+		case 7:
+			var w Mask
+			if w, err = Window(a); err == nil {
+				m, err = Intersect(Causal(), w)
+			}
+		case 8:
+			m = Mask{}
+		}
+		g := Geometry{Batch: batch, Lq: lq, Lk: lk, Offset: offset}
+		if start {
+			g.Align = AlignStart
+		}
+		if err == nil {
+			var v []bool
+			v, err = m.Visible(g)
+			if err == nil {
+				if len(v) != batch*lq*lk {
+					t.Fatalf("%v on %v: %d flags", m, g, len(v))
+				}
+				bias, ferr := m.BiasFill(g, fill)
+				if ferr == nil && len(bias) != len(v) {
+					t.Fatalf("%v on %v: bias has %d elements", m, g, len(bias))
+				}
+				if ferr != nil && !errors.Is(ferr, ErrFill) {
+					t.Fatalf("unexpected fill error %v", ferr)
+				}
+				rows, rerr := m.EmptyRows(g)
+				if rerr != nil || len(rows) > batch*lq {
+					t.Fatalf("EmptyRows: %v, %d rows", rerr, len(rows))
+				}
+			}
+		}
+		if err != nil {
+			known := false
+			for _, s := range []error{ErrSize, ErrOffset, ErrAlign, ErrBand, ErrWindow, ErrPrefix, ErrValidLength, ErrSegments, ErrBlock, ErrFill, ErrEmpty, ErrIndex} {
+				known = known || errors.Is(err, s)
+			}
+			if !known {
+				t.Fatalf("error wraps no sentinel: %v", err)
+			}
+		}
+	})
+}
