@@ -484,9 +484,15 @@ func TestErrors(t *testing.T) {
 		{"L = 0", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 0, ok); return err }(), ErrShape},
 		{"L = 0, empty x", func() error { _, err := Rotary{Dim: 4}.Apply(nil, 0, ok); return err }(), ErrShape},
 		{"list length", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 1, Positions{List: []int{1, 2, 3}}); return err }(), ErrShape},
-		{"offset and list", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: 1, List: []int{1, 2}}); return err }(), ErrShape},
+		{"offset and list", func() error {
+			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: 1, List: []int{1, 2}})
+			return err
+		}(), ErrShape},
 		{"position too large", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: MaxPosition}); return err }(), ErrPosition},
-		{"list position too small", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{List: []int{0, -MaxPosition - 1}}); return err }(), ErrPosition},
+		{"list position too small", func() error {
+			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{List: []int{0, -MaxPosition - 1}})
+			return err
+		}(), ErrPosition},
 		{"table position", func() error { _, _, err := Rotary{Dim: 4}.Tables([]int{MaxPosition + 1}); return err }(), ErrPosition},
 		{"apply32 dims", func() error { _, err := Rotary{Dim: 3}.Apply32(make([]float32, 3), 1, ok); return err }(), ErrDim},
 		{"sinusoidal odd dim", func() error { _, err := Sinusoidal{Dim: 5}.Table(1, 0); return err }(), ErrDim},
@@ -500,10 +506,19 @@ func TestErrors(t *testing.T) {
 		{"heads 0", func() error { _, err := ALiBiSlopes(0); return err }(), ErrHeads},
 		{"heads < 0", func() error { _, err := ALiBiSlopes(-3); return err }(), ErrHeads},
 		{"no slopes", func() error { _, err := ALiBiBias(nil, mask.Geometry{Lq: 1, Lk: 1}, ALiBiCausal); return err }(), ErrHeads},
-		{"NaN slope", func() error { _, err := ALiBiBias([]float64{nan}, mask.Geometry{Lq: 1, Lk: 1}, ALiBiCausal); return err }(), ErrHeads},
+		{"NaN slope", func() error {
+			_, err := ALiBiBias([]float64{nan}, mask.Geometry{Lq: 1, Lk: 1}, ALiBiCausal)
+			return err
+		}(), ErrHeads},
 		{"bias sizes", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: -1, Lk: 1}, ALiBiCausal); return err }(), ErrShape},
-		{"bias too large", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 30, Lk: 1 << 30}, ALiBiCausal); return err }(), ErrShape},
-		{"bias align", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, ALiBiCausal); return err }(), ErrOption},
+		{"bias too large", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 30, Lk: 1 << 30}, ALiBiCausal)
+			return err
+		}(), ErrShape},
+		{"bias align", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, ALiBiCausal)
+			return err
+		}(), ErrOption},
 		{"bias form", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, 2); return err }(), ErrOption},
 		{"causal query outside keys", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 2, Lk: 4, Offset: 1}, ALiBiCausal)
