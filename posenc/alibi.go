@@ -99,7 +99,7 @@ func (f ALiBiForm) String() string {
 //	no slopes                       ErrHeads
 //	NaN or ±Inf slope               ErrHeads
 //	negative Lq, Lk or Batch        ErrShape
-//	H·Lq·Lk too large to allocate   ErrShape
+//	H·Lq·Lk > 2^40                  ErrShape
 //	unknown g.Align or form         ErrOption
 //	ALiBiCausal with p(i) outside 0 … Lk−1  ErrPosition
 //	|p(i)| > MaxPosition            ErrPosition
@@ -122,16 +122,20 @@ func ALiBiBias(slopes []float64, g mask.Geometry, form ALiBiForm) ([]float64, er
 		return nil, fmt.Errorf("%w: form = %d; want ALiBiCausal or ALiBiSymmetric", ErrOption, int(form))
 	}
 	H := len(slopes)
-	const limit = 1 << 40
-	if g.Lq > 0 && g.Lk > 0 && (g.Lk > limit/g.Lq || g.Lq*g.Lk > limit/H) {
-		return nil, fmt.Errorf("%w: H·Lq·Lk = %d·%d·%d elements is too large", ErrShape, H, g.Lq, g.Lk)
+	if g.Lq > 0 && g.Lk > 0 && (g.Lk > maxElements/g.Lq || g.Lq*g.Lk > maxElements/H) {
+		return nil, fmt.Errorf("%w: H·Lq·Lk = %d·%d·%d elements; want at most 2^40", ErrShape, H, g.Lq, g.Lk)
 	}
 	if g.Lq > 0 {
+		// Offset first, so that p(i) cannot overflow.
+		if err := checkPosition("Offset", g.Offset, true); err != nil {
+			return nil, err
+		}
 		first, last := g.Pos(0), g.Pos(g.Lq-1)
-		for _, p := range []int{first, last} {
-			if err := checkPosition(p, true); err != nil {
-				return nil, fmt.Errorf("query position in %v: %w", g, err)
-			}
+		if err := checkPosition("the first query position p(0)", first, true); err != nil {
+			return nil, err
+		}
+		if err := checkPosition("the last query position p(Lq−1)", last, true); err != nil {
+			return nil, err
 		}
 		if form == ALiBiCausal && (first < 0 || last >= g.Lk) {
 			return nil, fmt.Errorf("%w: %v puts queries at key positions %d … %d; the causal form needs them within 0 … %d",

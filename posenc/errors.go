@@ -36,3 +36,8 @@ var (
 // integers; every |m| ≤ MaxPosition is exact in float64 and the accuracy
 // statements of this package hold up to it.
 const MaxPosition = 1 << 31
+
+// maxElements bounds the size of a result this package allocates from
+// sizes alone (not from the length of an input slice), so that a typo
+// cannot overflow int: 2^40 float64 values.
+const maxElements = 1 << 40

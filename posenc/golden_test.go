@@ -1,7 +1,6 @@
 package posenc
 
 import (
-	"fmt"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
@@ -331,5 +330,5 @@ func TestGoldenCount(t *testing.T) {
 	for fam := range want {
 		got[fam] = len(golden.MustLoadFamily(t, "posenc", fam).Cases)
 	}
-	assert.Equal(t, want, got, fmt.Sprint("case counts"))
+	assert.Equal(t, want, got, "case counts")
 }

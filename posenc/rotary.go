@@ -144,13 +144,14 @@ func (c Rotary) Frequencies() ([]float64, error) {
 	return out, nil
 }
 
-func checkPosition(m int, allowNegative bool) error {
+// checkPosition validates the position m, called name in the message.
+func checkPosition(name string, m int, allowNegative bool) error {
 	if m > MaxPosition || m < -MaxPosition || (!allowNegative && m < 0) {
-		lo := "-MaxPosition"
+		lo := "−MaxPosition"
 		if !allowNegative {
 			lo = "0"
 		}
-		return fmt.Errorf("%w: position %d; want %s ≤ m ≤ MaxPosition = %d", ErrPosition, m, lo, MaxPosition)
+		return fmt.Errorf("%w: %s = %d; want %s ≤ position ≤ MaxPosition = %d", ErrPosition, name, m, lo, MaxPosition)
 	}
 	return nil
 }
@@ -195,8 +196,8 @@ func (c Rotary) Tables(pos []int) (cos, sin []float64, err error) {
 		return nil, nil, err
 	}
 	for t, m := range pos {
-		if err := checkPosition(m, true); err != nil {
-			return nil, nil, fmt.Errorf("pos[%d]: %w", t, err)
+		if err := checkPosition(fmt.Sprintf("pos[%d]", t), m, true); err != nil {
+			return nil, nil, err
 		}
 	}
 	cos, sin = rs.tables(pos)
@@ -229,8 +230,8 @@ func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int
 		pos = make([]int, L)
 		for l := range pos {
 			pos[l] = p.Offset + l
-			if err := checkPosition(pos[l], true); err != nil {
-				return nil, nil, fmt.Errorf("Offset %d + token %d: %w", p.Offset, l, err)
+			if err := checkPosition(fmt.Sprintf("Offset + %d (token %d, Offset %d)", l, l, p.Offset), pos[l], true); err != nil {
+				return nil, nil, err
 			}
 		}
 		return pos, func(row int) int { return row % L }, nil
@@ -238,8 +239,8 @@ func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int
 		return nil, nil, fmt.Errorf("%w: Offset = %d together with an explicit List; give one or the other", ErrShape, p.Offset)
 	case len(p.List) == L || len(p.List) == rows:
 		for t, m := range p.List {
-			if err := checkPosition(m, true); err != nil {
-				return nil, nil, fmt.Errorf("List[%d]: %w", t, err)
+			if err := checkPosition(fmt.Sprintf("List[%d]", t), m, true); err != nil {
+				return nil, nil, err
 			}
 		}
 		if len(p.List) == L {
@@ -278,9 +279,9 @@ func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int
 //
 // with cos and sin the row of Tables at the row's position.
 //
-// Accuracy: against 50-digit values, normwise relative error below 4e-16
-// over every golden case, positions up to 10⁶ included (see the package
-// doc).
+// Accuracy: against 50-digit values, normwise relative error at most
+// 1.5e-16 over every golden case, positions up to 2^31 − 1 and every
+// scaling method included (see the package doc).
 //
 // Special cases are:
 //

@@ -71,7 +71,7 @@ func (s Sinusoidal) freqs() ([]dd, error) {
 //
 //	n = 0                         empty table
 //	position 0                    0, 1, 0, 1, … (Interleaved)
-//	n < 0                         ErrShape
+//	n < 0 or n·Dim > 2^40         ErrShape
 //	offset < 0                    ErrPosition (absolute positions start at 0)
 //	offset + n − 1 > MaxPosition  ErrPosition
 //	Dim odd or ≤ 0                ErrDim
@@ -81,15 +81,15 @@ func (s Sinusoidal) Table(n, offset int) ([]float64, error) {
 	if err != nil {
 		return nil, err
 	}
-	if n < 0 {
-		return nil, fmt.Errorf("%w: n = %d positions; want ≥ 0", ErrShape, n)
+	if n < 0 || n > maxElements/s.Dim {
+		return nil, fmt.Errorf("%w: n = %d positions of Dim = %d; want 0 ≤ n·Dim ≤ 2^40", ErrShape, n, s.Dim)
 	}
-	if err := checkPosition(offset, false); err != nil {
-		return nil, fmt.Errorf("offset: %w", err)
+	if err := checkPosition("offset", offset, false); err != nil {
+		return nil, err
 	}
 	if n > 0 {
-		if err := checkPosition(offset+n-1, false); err != nil {
-			return nil, fmt.Errorf("last position offset + n − 1: %w", err)
+		if err := checkPosition("offset + n − 1", offset+n-1, false); err != nil {
+			return nil, err
 		}
 	}
 	d, h := s.Dim, s.Dim/2
