@@ -6,8 +6,9 @@ import "errors"
 // them, so callers can match with errors.Is; the message names the argument,
 // what was expected and what was given.
 var (
-	// ErrDim: a dimension that is not positive, an odd number of rotated
-	// or sinusoidal dims, or more rotated dims than the head has.
+	// ErrDim: a dimension that is not positive or exceeds MaxDim, an odd
+	// number of rotated or sinusoidal dims, or more rotated dims than the
+	// head has.
 	ErrDim = errors.New("posenc: invalid dimension")
 	// ErrBase: a frequency base that is not a finite number above 1.
 	ErrBase = errors.New("posenc: invalid base")
@@ -36,6 +37,9 @@ var (
 // integers; every |m| ≤ MaxPosition is exact in float64 and the accuracy
 // statements of this package hold up to it.
 const MaxPosition = 1 << 31
+
+// MaxDim is the largest head or model dimension accepted.
+const MaxDim = 1 << 20
 
 // maxElements bounds the size of a result this package allocates from
 // sizes alone (not from the length of an input slice), so that a typo

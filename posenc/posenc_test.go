@@ -570,3 +570,17 @@ func TestNonFinitePropagates(t *testing.T) {
 	assert.False(t, math.IsNaN(y[2]) || math.IsNaN(y[3]))
 	assert.Equal(t, 5.0, y[6])
 }
+
+func TestHugeSizesAreErrors(t *testing.T) {
+	// Sizes whose product overflows int must give an error, not a panic.
+	_, err := Sinusoidal{Dim: 1 << 32}.Add(make([]float64, 4), 1<<32, 0)
+	assert.ErrorIs(t, err, ErrDim)
+	_, err = Sinusoidal{Dim: 1 << 20}.Add(make([]float64, 4), 1<<30, 0)
+	assert.ErrorIs(t, err, ErrShape)
+	_, err = Rotary{Dim: 1 << 40}.Apply(make([]float64, 4), 1, Positions{})
+	assert.ErrorIs(t, err, ErrDim)
+	_, err = Sinusoidal{Dim: 2}.Table(math.MaxInt, 0)
+	assert.ErrorIs(t, err, ErrShape)
+	_, err = ALiBiBias([]float64{1, 1, 1}, mask.Geometry{Lq: math.MaxInt / 2, Lk: 3}, ALiBiSymmetric)
+	assert.ErrorIs(t, err, ErrShape)
+}

@@ -88,8 +88,8 @@ type resolved struct {
 }
 
 func (c Rotary) resolve() (*resolved, error) {
-	if c.Dim <= 0 {
-		return nil, fmt.Errorf("%w: Dim = %d; want > 0", ErrDim, c.Dim)
+	if c.Dim <= 0 || c.Dim > MaxDim {
+		return nil, fmt.Errorf("%w: Dim = %d; want 0 < Dim ≤ MaxDim = %d", ErrDim, c.Dim, MaxDim)
 	}
 	r := c.Rotated
 	if r == 0 {
@@ -288,7 +288,7 @@ func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int
 //	len(x) = 0                     empty result, no error
 //	NaN or ±Inf in x               propagate through the pair they sit in
 //	len(x) not a multiple of L·D   ErrShape
-//	Dim ≤ 0, r odd, r > Dim        ErrDim
+//	Dim ≤ 0 or > MaxDim, r odd, r > Dim  ErrDim
 //	Base ≤ 1, NaN or +Inf          ErrBase
 //	negative positions             allowed (rotation by a negative angle)
 //	|position| > MaxPosition       ErrPosition

@@ -45,23 +45,22 @@ type Sinusoidal struct {
 	Layout Layout
 }
 
-func (s Sinusoidal) freqs() ([]dd, error) {
-	if s.Dim <= 0 || s.Dim%2 != 0 {
-		return nil, fmt.Errorf("%w: sinusoidal Dim = %d; want an even number > 0", ErrDim, s.Dim)
+// check validates the configuration and returns the base.
+func (s Sinusoidal) check() (float64, error) {
+	if s.Dim <= 0 || s.Dim%2 != 0 || s.Dim > MaxDim {
+		return 0, fmt.Errorf("%w: sinusoidal Dim = %d; want an even number in 2 … MaxDim = %d", ErrDim, s.Dim, MaxDim)
 	}
 	base := s.Base
 	if base == 0 {
 		base = 10000
 	}
 	if err := checkBase(base); err != nil {
-		return nil, err
+		return 0, err
 	}
 	if s.Layout != Interleaved && s.Layout != Concatenated {
-		return nil, fmt.Errorf("%w: Layout = %d; want Interleaved or Concatenated", ErrOption, int(s.Layout))
+		return 0, fmt.Errorf("%w: Layout = %d; want Interleaved or Concatenated", ErrOption, int(s.Layout))
 	}
-	w := make([]dd, s.Dim/2)
-	baseFreqs(w, s.Dim, ddLog(ddFrom(base)))
-	return w, nil
+	return base, nil
 }
 
 // Table returns the encoding of positions offset … offset+n−1 as a
@@ -74,10 +73,10 @@ func (s Sinusoidal) freqs() ([]dd, error) {
 //	n < 0 or n·Dim > 2^40         ErrShape
 //	offset < 0                    ErrPosition (absolute positions start at 0)
 //	offset + n − 1 > MaxPosition  ErrPosition
-//	Dim odd or ≤ 0                ErrDim
+//	Dim odd, ≤ 0 or > MaxDim       ErrDim
 //	Base ≤ 1, NaN or +Inf         ErrBase
 func (s Sinusoidal) Table(n, offset int) ([]float64, error) {
-	w, err := s.freqs()
+	base, err := s.check()
 	if err != nil {
 		return nil, err
 	}
@@ -92,6 +91,8 @@ func (s Sinusoidal) Table(n, offset int) ([]float64, error) {
 			return nil, err
 		}
 	}
+	w := make([]dd, s.Dim/2)
+	baseFreqs(w, s.Dim, ddLog(ddFrom(base)))
 	d, h := s.Dim, s.Dim/2
 	out := make([]float64, n*d)
 	for t := range n {
@@ -125,12 +126,12 @@ func (s Sinusoidal) Add(x []float64, L, offset int) ([]float64, error) {
 	if L <= 0 {
 		return nil, fmt.Errorf("%w: sequence length L = %d; want > 0", ErrShape, L)
 	}
-	if s.Dim > 0 && len(x)%(L*s.Dim) != 0 {
-		return nil, fmt.Errorf("%w: len(x) = %d is not a multiple of L·Dim = %d·%d", ErrShape, len(x), L, s.Dim)
-	}
 	pe, err := s.Table(L, offset)
 	if err != nil {
 		return nil, err
+	}
+	if len(x)%len(pe) != 0 {
+		return nil, fmt.Errorf("%w: len(x) = %d is not a multiple of L·Dim = %d·%d", ErrShape, len(x), L, s.Dim)
 	}
 	y := make([]float64, len(x))
 	for k := range x {
