@@ -323,7 +323,7 @@ func TestGoldenALiBiBias(t *testing.T) {
 func TestGoldenCount(t *testing.T) {
 	want := map[string]int{
 		"sinusoidal_table": 10, "sinusoidal_add": 3, "rotary_tables": 4,
-		"rotary_apply": 12, "scaling": 47, "ntk_base": 8, "yarn_magnitude": 9,
+		"rotary_apply": 12, "scaling": 52, "ntk_base": 8, "yarn_magnitude": 9,
 		"alibi_slopes": 29, "alibi_bias": 9,
 	}
 	got := map[string]int{}

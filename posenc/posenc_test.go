@@ -584,3 +584,23 @@ func TestHugeSizesAreErrors(t *testing.T) {
 	_, err = ALiBiBias([]float64{1, 1, 1}, mask.Geometry{Lq: math.MaxInt / 2, Lk: 3}, ALiBiSymmetric)
 	assert.ErrorIs(t, err, ErrShape)
 }
+
+func TestOptionNames(t *testing.T) {
+	// Every named option prints its name; an unknown value prints its type
+	// and number, so error messages and test logs stay readable.
+	got := []string{
+		PairAdjacent.String(), PairHalves.String(), Pairing(7).String(),
+		Interleaved.String(), Concatenated.String(), Layout(7).String(),
+		NoScaling.String(), Interpolation.String(), NTKAware.String(), YaRN.String(), PerFrequency.String(), Method(7).String(),
+		RampRatio.String(), RampDims.String(), Ramp(7).String(),
+		ALiBiCausal.String(), ALiBiSymmetric.String(), ALiBiForm(7).String(),
+	}
+	want := []string{
+		"PairAdjacent", "PairHalves", "Pairing(7)",
+		"Interleaved", "Concatenated", "Layout(7)",
+		"NoScaling", "Interpolation", "NTKAware", "YaRN", "PerFrequency", "Method(7)",
+		"RampRatio", "RampDims", "Ramp(7)",
+		"ALiBiCausal", "ALiBiSymmetric", "ALiBiForm(7)",
+	}
+	assert.Empty(t, cmp.Diff(want, got))
+}

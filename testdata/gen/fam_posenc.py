@@ -286,6 +286,22 @@ def build_scaling():
             seed += 1
             cases.append(apply_case(name, src, D, r, base, pairing, sc, 1.0, [1, len(POS), D], 0, POS, seed,
                                     inverse=False))
+    # YaRN ramp edges: alpha = 0, the authors'-code clamp of the upper bound
+    # to r - 1, bounds that meet (a step) and bounds that cross (no ramp).
+    for name, sc in [
+        ("yarn_ramp_ratio_alpha0", {"method": "yarn", "factor": 8.0, "trained_length": 4096,
+                                    "ramp": "ratio", "alpha": 0.0, "beta": 32.0}),
+        ("yarn_ramp_dims_alpha0", {"method": "yarn", "factor": 8.0, "trained_length": 4096,
+                                   "ramp": "dims", "alpha": 0.0, "beta": 32.0}),
+        ("yarn_ramp_dims_high_clamped", {"method": "yarn", "factor": 4.0, "trained_length": 10 ** 9,
+                                         "ramp": "dims", "alpha": 1.0, "beta": 1e6}),
+        ("yarn_ramp_dims_step", {"method": "yarn", "factor": 2.0, "trained_length": 4, "ramp": "dims"}),
+        ("yarn_ramp_dims_bounds_crossed", {"method": "yarn", "factor": 2.0, "trained_length": 4,
+                                           "ramp": "dims", "alpha": 100.0, "beta": 200.0}),
+    ]:
+        seed += 1
+        cases.append(apply_case(name, YARN_SRC, 32, 32, 10000.0, "adjacent", sc, 1.0, [1, len(POS), 32], 0, POS,
+                                seed, inverse=False))
     # dynamic scaling below the trained length is no scaling at all
     cases.append(apply_case("dynamic_ntk_shorter_than_trained", DYN_SRC, 16, 16, 10000.0, "adjacent",
                             {"method": "ntk", "trained_length": 2048, "current_length": 1000},
