@@ -109,7 +109,13 @@
 // Every error wraps one of the package's sentinel errors (ErrDim, ErrBase,
 // ErrFactor, ErrLength, ErrPosition, ErrHeads, ErrShape, ErrOption) and
 // names the argument and its value. No function panics on its arguments.
-// Results are deterministic: the same inputs give bit-identical outputs on
-// every architecture (products that must round are written float64(x*y),
-// so no compiler fuses them).
+// Results are deterministic: the same inputs give bit-identical outputs
+// for any GOMAXPROCS (nothing runs in parallel). The package's own
+// arithmetic is written so that no compiler fuses it (float64(x*y) where a
+// product must round, math.FMA where fusion is meant), so it is the same
+// on every architecture; the one caveat is Go's math.Sincos, whose pure-Go
+// body the compiler may fuse on architectures with FMA instructions, so
+// table entries there may differ in the last bit (well inside every stated
+// bound). Slopes and the ALiBi bias use no such function and are identical
+// everywhere.
 package posenc
