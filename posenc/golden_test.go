@@ -24,7 +24,8 @@ import (
 //     products and a sum (at most 2 ulps of the pair's norm). 1 ulp of
 //     numbers of magnitude ≤ 1 is 2.2e-16, so 8e-16 normwise is 4 ulps
 //     of room: a regression to forming angles in float64 (absolute error
-//     up to 6e-11 at position 10⁶) fails it by five orders of magnitude.
+//     up to 6e-11 at position 10⁶) fails it by four orders of magnitude
+//     (TestLargePositionAngles shows it).
 //   - exact: frequencies, slopes, NTK base, YaRN magnitude and the ALiBi
 //     bias are claimed correctly rounded (the double-double values carry
 //     ~106 bits; the bias is one rounding of an exact product), so they

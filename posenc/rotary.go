@@ -280,7 +280,7 @@ func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int
 // with cos and sin the row of Tables at the row's position.
 //
 // Accuracy: against 50-digit values, normwise relative error at most
-// 1.5e-16 over every golden case, positions up to 2^31 − 1 and every
+// 1.4e-16 over every golden case, positions up to 2^31 − 1 and every
 // scaling method included (see the package doc).
 //
 // Special cases are:
