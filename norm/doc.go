@@ -55,7 +55,7 @@
 // rounded to float64, a mean near 1e8 is off by up to 7.5e-9, and on a row
 // of spread 1 every output is off by that much relative; the textbook
 // formulas in float64 miss the golden rows of offset 1e8 and spread 1 by
-// 5e-8. With the compensated mean these rows are normalised to 5e-16.
+// 5e-8. With the compensated mean these rows are normalised to 2.2e-16.
 //
 // The second pass takes the mean square of the deviations scaled by an
 // exact power of two 2⁻ᵏ, chosen from the larger of the largest deviation

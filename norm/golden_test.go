@@ -83,6 +83,9 @@ func check(t *testing.T, w worst, c *golden.Case, fn, name string, got []float64
 	require.NoError(t, err)
 	e := golden.NormwiseRelErr(got, want)
 	w.note(fn+" "+name, e)
+	if testing.Verbose() {
+		t.Logf("%s %s: %.3g", fn, name, e)
+	}
 	assert.LessOrEqual(t, e, goldenTol, golden.Describe(c, name, e, goldenTol))
 }
 

@@ -183,8 +183,9 @@ func checkAll[T num.Float](fn string, x []T, d int, w, b []T, o Options) error {
 //	len(weight), len(bias) ∉ {0, d}   ErrShape (nil means absent)
 //	ε ≤ 0, NaN or +Inf                ErrEpsilon
 //
-// Accuracy: measured worst normwise relative error 2e-16 against the
-// 50-digit golden values, including rows with offset 1e8 and spread 1.
+// Accuracy: measured worst normwise relative error 4.7e-16 against the
+// 50-digit golden values (rows of 1024), 2.2e-16 on rows with offset 1e8
+// and spread 1.
 func LayerNorm(x []float64, d int, weight, bias []float64, o Options) ([]float64, error) {
 	if err := checkAll("LayerNorm", x, d, weight, bias, o); err != nil {
 		return nil, err
@@ -228,7 +229,7 @@ func LayerNorm32(x []float32, d int, weight, bias []float32, o Options) ([]float
 //	len(weight) ∉ {0, d}              ErrShape (nil means absent)
 //	ε ≤ 0, NaN or +Inf                ErrEpsilon
 //
-// Accuracy: measured worst normwise relative error 2e-16 against the
+// Accuracy: measured worst normwise relative error 2.3e-16 against the
 // 50-digit golden values, including rows near 1e-300 and 1e200.
 func RMSNorm(x []float64, d int, weight []float64, o Options) ([]float64, error) {
 	if err := checkAll[float64]("RMSNorm", x, d, weight, nil, o); err != nil {

@@ -60,7 +60,7 @@ func centralDiff(v []float64, f func() float64) []float64 {
 // TestFiniteDifferences checks every backward against central differences
 // of its own forward, for every option, on random rows (fixed seed).
 // Tolerance 1e-7 normwise: with step h = 1e-5 the truncation error is
-// O(h²·|y'''|) ≈ 1e-10 and the rounding error O(2⁻⁵³·|L|/h) ≈ 1e-10 on
+// O(h²·|y”'|) ≈ 1e-10 and the rounding error O(2⁻⁵³·|L|/h) ≈ 1e-10 on
 // these sizes, so 1e-7 leaves a wide margin yet would catch any wrong term
 // of the closed form (those give errors of order 1e-1).
 func TestFiniteDifferences(t *testing.T) {
