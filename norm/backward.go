@@ -168,3 +168,39 @@ func addInto(dst, v []float64) {
 		dst[i] += v[i]
 	}
 }
+
+// Grads32 are the gradients returned by the float32 instantiations; the
+// fields are as in Grads.
+type Grads32 struct {
+	X, Weight, Bias []float32
+}
+
+// LayerNormBackward32 is the float32 instantiation of the same body as
+// LayerNormBackward: the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference.
+func LayerNormBackward32(x []float32, d int, weight, dy []float32, o Options) (Grads32, error) {
+	const fn = "LayerNormBackward32"
+	if err := checkAll[float32](fn, x, d, weight, nil, o); err != nil {
+		return Grads32{}, err
+	}
+	if err := checkLike(fn, "dy", dy, x, false); err != nil {
+		return Grads32{}, err
+	}
+	g := backward(x, d, weight, make([]float32, d), dy, true, o)
+	return Grads32{X: g.dx, Weight: g.dw, Bias: g.db}, nil
+}
+
+// RMSNormBackward32 is the float32 instantiation of the same body as
+// RMSNormBackward: the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference.
+func RMSNormBackward32(x []float32, d int, weight, dy []float32, o Options) (Grads32, error) {
+	const fn = "RMSNormBackward32"
+	if err := checkAll[float32](fn, x, d, weight, nil, o); err != nil {
+		return Grads32{}, err
+	}
+	if err := checkLike(fn, "dy", dy, x, false); err != nil {
+		return Grads32{}, err
+	}
+	g := backward(x, d, weight, nil, dy, false, o)
+	return Grads32{X: g.dx, Weight: g.dw}, nil
+}

@@ -66,7 +66,10 @@
 // kernel that squares x directly returns outputs 1e10 times too large.
 //
 // The backward functions use the closed forms written in their
-// documentation, on the same scaled quantities. Every sum runs in row
+// documentation, on the same scaled quantities. Outputs that fall in the
+// subnormal range (below 2⁻¹⁰²² in magnitude) are rounded twice and may be
+// off by a unit of 2⁻¹⁰⁷⁴; every other output is a few roundings from the
+// exact value. Every sum runs in row
 // order on one goroutine; products that must be rounded are converted
 // explicitly, so no compiler may fuse them, and the one fused multiply-add
 // (the remainder of the mean's division) is an explicit math.FMA. Results
@@ -140,8 +143,8 @@
 // gradient is computed from its own closed form ε/r³ or ε/r² and is
 // accurate. For dy of random direction the error stays near 2⁻⁵³.
 //
-// The float32 entry points LayerNorm32 and RMSNorm32 are the same bodies
-// instantiated for float32: the straightforward low-precision
+// The float32 entry points LayerNorm32, RMSNorm32, LayerNormBackward32 and
+// RMSNormBackward32 are the same bodies instantiated for float32: the straightforward low-precision
 // implementation that the compare package uses as a yardstick, not a
 // reference.
 package norm

@@ -1,7 +1,6 @@
 package norm
 
 import (
-	"fmt"
 	"sort"
 	"testing"
 
@@ -164,5 +163,5 @@ func TestGolden(t *testing.T) {
 		}
 	}
 	w.log(t)
-	require.NotEmpty(t, w, fmt.Sprint("no golden case ran"))
+	require.NotEmpty(t, w, "no golden case ran")
 }

@@ -91,6 +91,11 @@ func TestErrors(t *testing.T) {
 		{"dy fused", func() error { _, err := AddRMSNormBackward(x, 3, nil, nil, nil, ok); return err }, ErrShape, "dy has 0 elements"},
 		{"weight fused backward", func() error { _, err := AddLayerNormBackward(x, 3, w3[:1], x, nil, ok); return err }, ErrShape, "weight has 1 elements"},
 		{"float32 d", func() error { _, err := RMSNorm32([]float32{1}, 0, nil, ok); return err }, ErrShape, "RMSNorm32: d = 0"},
+		{"float32 backward dy", func() error { _, err := RMSNormBackward32([]float32{1, 2}, 1, nil, nil, ok); return err }, ErrShape, "RMSNormBackward32: dy has 0 elements, x has 2"},
+		{"float32 backward weight", func() error {
+			_, err := LayerNormBackward32([]float32{1, 2}, 2, []float32{1}, []float32{1, 2}, ok)
+			return err
+		}, ErrShape, "LayerNormBackward32: weight has 1 elements, want d = 2"},
 		{"float32 epsilon", func() error { _, err := LayerNorm32([]float32{1}, 1, nil, nil, Options{}); return err }, ErrEpsilon, "LayerNorm32: Epsilon = 0"},
 	}
 	for _, tc := range tests {

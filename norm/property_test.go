@@ -207,8 +207,8 @@ func TestLayerNormMoments(t *testing.T) {
 	}
 }
 
-// TestFloat32 checks the float32 instantiations against the float64
-// reference: normwise 1e-6 (float32 has 2⁻²⁴ ≈ 6e-8 per rounding and the
+// TestFloat32 checks the float32 instantiations, forward and backward,
+// against the float64 reference: normwise 1e-6 (float32 has 2⁻²⁴ ≈ 6e-8 per rounding and the
 // rows here are at most 64 long), and on rows near 1e-30, whose float32
 // squares underflow, the same bound: the same body scales them.
 func TestFloat32(t *testing.T) {
@@ -244,6 +244,25 @@ func TestFloat32(t *testing.T) {
 			require.NoError(t, err)
 			e = golden.NormwiseRelErr(to64(y32), y)
 			assert.LessOrEqual(t, e, 1e-6, "LayerNorm32 scale %g %v", scale, o.Placement)
+
+			dy := uniform(r, d*rows, -1, 1)
+			for i := range dy {
+				dy[i] = float64(float32(dy[i]))
+			}
+			g, err := LayerNormBackward(x, d, w, dy, oo)
+			require.NoError(t, err)
+			g32, err := LayerNormBackward32(x32, d, w32, to32(dy), oo)
+			require.NoError(t, err)
+			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.X), g.X), 1e-6, "LayerNormBackward32 dx")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.Weight), g.Weight), 1e-6, "LayerNormBackward32 dw")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.Bias), g.Bias), 1e-6, "LayerNormBackward32 db")
+			g, err = RMSNormBackward(x, d, w, dy, oo)
+			require.NoError(t, err)
+			g32, err = RMSNormBackward32(x32, d, w32, to32(dy), oo)
+			require.NoError(t, err)
+			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.X), g.X), 1e-6, "RMSNormBackward32 dx")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.Weight), g.Weight), 1e-6, "RMSNormBackward32 dw")
+			assert.Nil(t, g32.Bias)
 		}
 	}
 }

@@ -37,7 +37,7 @@ SRC_RMS = ("Zhang & Sennrich 2019, Root Mean Square Layer Normalization, "
            "arXiv 1910.07467, sec. 4 Eq. (4); epsilon placement and 1+w gain "
            "common practice")
 SRC_ADD = ("residual add then normalisation (pre-norm block): Xiong et al. 2020, "
-           "arXiv 2002.04745, Fig. 1; the norm as in ")
+           "arXiv 2002.04745; the norm as in ")
 
 
 class Dual:
