@@ -1,5 +1,57 @@
 package norm
 
+import "github.com/plumbref/plumb/internal/num"
+
+// runForward validates and runs a forward pass: the norm of x, or with
+// fused the norm of sum = x + residual (each element rounded once), which
+// it also returns.
+func runForward[T num.Float](fn string, x, residual []T, d int, w, b []T, fused, center bool, o Options) (y, sum []T, err error) {
+	if err := checkAll(fn, x, d, w, b, o); err != nil {
+		return nil, nil, err
+	}
+	sum = x
+	if fused {
+		if err := checkLike(fn, "residual", residual, x, false); err != nil {
+			return nil, nil, err
+		}
+		sum = make([]T, len(x))
+		for i := range x {
+			sum[i] = x[i] + residual[i]
+		}
+	}
+	y = forward(sum, d, w, b, center, o)
+	if !fused {
+		sum = nil
+	}
+	return y, sum, nil
+}
+
+// runBackward validates and runs a backward pass; with fused, dsum (nil:
+// zero) is added to the gradient with respect to x. The bias gradient is
+// returned for LayerNorm (center) only.
+func runBackward[T num.Float](fn string, x []T, d int, w, dy, dsum []T, fused, center bool, o Options) (grads[T], error) {
+	if err := checkAll(fn, x, d, w, nil, o); err != nil {
+		return grads[T]{}, err
+	}
+	if err := checkLike(fn, "dy", dy, x, false); err != nil {
+		return grads[T]{}, err
+	}
+	if fused {
+		if err := checkLike(fn, "dsum", dsum, x, true); err != nil {
+			return grads[T]{}, err
+		}
+	}
+	var b []T
+	if center {
+		b = make([]T, d) // only its presence matters: it asks for ∂L/∂b
+	}
+	g := backward(x, d, w, b, dy, center, o)
+	for i := range dsum {
+		g.dx[i] += dsum[i]
+	}
+	return g, nil
+}
+
 // LayerNormBackward returns the gradients of a scalar loss L through
 // LayerNorm, given the forward input x and dy = ∂L/∂y (the shape of x):
 //
@@ -27,15 +79,8 @@ package norm
 // 2.7e-16 for ∂L/∂w against the generator's 50-digit derivatives (see the
 // package documentation for the one ill-conditioned direction).
 func LayerNormBackward(x []float64, d int, weight, dy []float64, o Options) (Grads, error) {
-	const fn = "LayerNormBackward"
-	if err := checkAll[float64](fn, x, d, weight, nil, o); err != nil {
-		return Grads{}, err
-	}
-	if err := checkLike(fn, "dy", dy, x, false); err != nil {
-		return Grads{}, err
-	}
-	g := backward(x, d, weight, make([]float64, d), dy, true, o)
-	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, nil
+	g, err := runBackward("LayerNormBackward", x, d, weight, dy, nil, false, true, o)
+	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, err
 }
 
 // RMSNormBackward returns the gradients of a scalar loss L through
@@ -62,24 +107,8 @@ func LayerNormBackward(x []float64, d int, weight, dy []float64, o Options) (Gra
 // 1.9e-16 for ∂L/∂w against the generator's 50-digit derivatives (see the
 // package documentation for the one ill-conditioned direction).
 func RMSNormBackward(x []float64, d int, weight, dy []float64, o Options) (Grads, error) {
-	const fn = "RMSNormBackward"
-	if err := checkAll[float64](fn, x, d, weight, nil, o); err != nil {
-		return Grads{}, err
-	}
-	if err := checkLike(fn, "dy", dy, x, false); err != nil {
-		return Grads{}, err
-	}
-	g := backward(x, d, weight, nil, dy, false, o)
-	return Grads{X: g.dx, Weight: g.dw}, nil
-}
-
-// addRows returns x + r elementwise, each sum rounded once.
-func addRows(x, r []float64) []float64 {
-	h := make([]float64, len(x))
-	for i := range x {
-		h[i] = x[i] + r[i]
-	}
-	return h
+	g, err := runBackward("RMSNormBackward", x, d, weight, dy, nil, false, false, o)
+	return Grads{X: g.dx, Weight: g.dw}, err
 }
 
 // AddLayerNorm is the fused residual add and LayerNorm of a pre-norm block:
@@ -93,30 +122,14 @@ func addRows(x, r []float64) []float64 {
 // and sum is discarded (see the package documentation). residual must have
 // the shape of x; other inputs and special cases are as LayerNorm.
 func AddLayerNorm(x, residual []float64, d int, weight, bias []float64, o Options) (y, sum []float64, err error) {
-	const fn = "AddLayerNorm"
-	if err := checkAll(fn, x, d, weight, bias, o); err != nil {
-		return nil, nil, err
-	}
-	if err := checkLike(fn, "residual", residual, x, false); err != nil {
-		return nil, nil, err
-	}
-	sum = addRows(x, residual)
-	return forward(sum, d, weight, bias, true, o), sum, nil
+	return runForward("AddLayerNorm", x, residual, d, weight, bias, true, true, o)
 }
 
 // AddRMSNorm is the fused residual add and RMSNorm of a pre-norm block:
 // sum = x + residual (rounded once per element), y = RMSNorm(sum). It
 // returns y and the new residual stream sum; see AddLayerNorm.
 func AddRMSNorm(x, residual []float64, d int, weight []float64, o Options) (y, sum []float64, err error) {
-	const fn = "AddRMSNorm"
-	if err := checkAll[float64](fn, x, d, weight, nil, o); err != nil {
-		return nil, nil, err
-	}
-	if err := checkLike(fn, "residual", residual, x, false); err != nil {
-		return nil, nil, err
-	}
-	sum = addRows(x, residual)
-	return forward(sum, d, weight, nil, false, o), sum, nil
+	return runForward("AddRMSNorm", x, residual, d, weight, nil, true, false, o)
 }
 
 // AddLayerNormBackward is the backward of AddLayerNorm. It takes the saved
@@ -128,45 +141,16 @@ func AddRMSNorm(x, residual []float64, d int, weight []float64, o Options) (y, s
 // which is the gradient with respect to both x and residual, with the
 // weight and bias gradients of LayerNormBackward.
 func AddLayerNormBackward(sum []float64, d int, weight, dy, dsum []float64, o Options) (Grads, error) {
-	const fn = "AddLayerNormBackward"
-	if err := checkAll[float64](fn, sum, d, weight, nil, o); err != nil {
-		return Grads{}, err
-	}
-	if err := checkLike(fn, "dy", dy, sum, false); err != nil {
-		return Grads{}, err
-	}
-	if err := checkLike(fn, "dsum", dsum, sum, true); err != nil {
-		return Grads{}, err
-	}
-	g := backward(sum, d, weight, make([]float64, d), dy, true, o)
-	addInto(g.dx, dsum)
-	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, nil
+	g, err := runBackward("AddLayerNormBackward", sum, d, weight, dy, dsum, true, true, o)
+	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, err
 }
 
 // AddRMSNormBackward is the backward of AddRMSNorm: Grads.X = dsum + ∂L/∂x
 // of RMSNormBackward(sum, dy), the gradient with respect to both x and
 // residual; dsum may be nil (zero).
 func AddRMSNormBackward(sum []float64, d int, weight, dy, dsum []float64, o Options) (Grads, error) {
-	const fn = "AddRMSNormBackward"
-	if err := checkAll[float64](fn, sum, d, weight, nil, o); err != nil {
-		return Grads{}, err
-	}
-	if err := checkLike(fn, "dy", dy, sum, false); err != nil {
-		return Grads{}, err
-	}
-	if err := checkLike(fn, "dsum", dsum, sum, true); err != nil {
-		return Grads{}, err
-	}
-	g := backward(sum, d, weight, nil, dy, false, o)
-	addInto(g.dx, dsum)
-	return Grads{X: g.dx, Weight: g.dw}, nil
-}
-
-// addInto adds v (nil: nothing) into dst.
-func addInto(dst, v []float64) {
-	for i := range v {
-		dst[i] += v[i]
-	}
+	g, err := runBackward("AddRMSNormBackward", sum, d, weight, dy, dsum, true, false, o)
+	return Grads{X: g.dx, Weight: g.dw}, err
 }
 
 // Grads32 are the gradients returned by the float32 instantiations; the
@@ -179,28 +163,14 @@ type Grads32 struct {
 // LayerNormBackward: the straightforward low-precision implementation the
 // compare package uses as a yardstick; not a reference.
 func LayerNormBackward32(x []float32, d int, weight, dy []float32, o Options) (Grads32, error) {
-	const fn = "LayerNormBackward32"
-	if err := checkAll[float32](fn, x, d, weight, nil, o); err != nil {
-		return Grads32{}, err
-	}
-	if err := checkLike(fn, "dy", dy, x, false); err != nil {
-		return Grads32{}, err
-	}
-	g := backward(x, d, weight, make([]float32, d), dy, true, o)
-	return Grads32{X: g.dx, Weight: g.dw, Bias: g.db}, nil
+	g, err := runBackward("LayerNormBackward32", x, d, weight, dy, nil, false, true, o)
+	return Grads32{X: g.dx, Weight: g.dw, Bias: g.db}, err
 }
 
 // RMSNormBackward32 is the float32 instantiation of the same body as
 // RMSNormBackward: the straightforward low-precision implementation the
 // compare package uses as a yardstick; not a reference.
 func RMSNormBackward32(x []float32, d int, weight, dy []float32, o Options) (Grads32, error) {
-	const fn = "RMSNormBackward32"
-	if err := checkAll[float32](fn, x, d, weight, nil, o); err != nil {
-		return Grads32{}, err
-	}
-	if err := checkLike(fn, "dy", dy, x, false); err != nil {
-		return Grads32{}, err
-	}
-	g := backward(x, d, weight, nil, dy, false, o)
-	return Grads32{X: g.dx, Weight: g.dw}, nil
+	g, err := runBackward("RMSNormBackward32", x, d, weight, dy, nil, false, false, o)
+	return Grads32{X: g.dx, Weight: g.dw}, err
 }

@@ -187,10 +187,8 @@ func checkAll[T num.Float](fn string, x []T, d int, w, b []T, o Options) error {
 // 50-digit golden values (rows of 1024), 2.2e-16 on rows with offset 1e8
 // and spread 1.
 func LayerNorm(x []float64, d int, weight, bias []float64, o Options) ([]float64, error) {
-	if err := checkAll("LayerNorm", x, d, weight, bias, o); err != nil {
-		return nil, err
-	}
-	return forward(x, d, weight, bias, true, o), nil
+	y, _, err := runForward("LayerNorm", x, nil, d, weight, bias, false, true, o)
+	return y, err
 }
 
 // LayerNorm32 is the float32 instantiation of the same body as LayerNorm:
@@ -198,10 +196,8 @@ func LayerNorm(x []float64, d int, weight, bias []float64, o Options) ([]float64
 // as a yardstick; not a reference. Epsilon stays a float64 option and is
 // rounded to float32 after scaling.
 func LayerNorm32(x []float32, d int, weight, bias []float32, o Options) ([]float32, error) {
-	if err := checkAll("LayerNorm32", x, d, weight, bias, o); err != nil {
-		return nil, err
-	}
-	return forward(x, d, weight, bias, true, o), nil
+	y, _, err := runForward("LayerNorm32", x, nil, d, weight, bias, false, true, o)
+	return y, err
 }
 
 // RMSNorm divides each row of x (rows of d elements, row-major) by its root
@@ -232,10 +228,8 @@ func LayerNorm32(x []float32, d int, weight, bias []float32, o Options) ([]float
 // Accuracy: measured worst normwise relative error 2.3e-16 against the
 // 50-digit golden values, including rows near 1e-300 and 1e200.
 func RMSNorm(x []float64, d int, weight []float64, o Options) ([]float64, error) {
-	if err := checkAll[float64]("RMSNorm", x, d, weight, nil, o); err != nil {
-		return nil, err
-	}
-	return forward(x, d, weight, nil, false, o), nil
+	y, _, err := runForward("RMSNorm", x, nil, d, weight, nil, false, false, o)
+	return y, err
 }
 
 // RMSNorm32 is the float32 instantiation of the same body as RMSNorm: the
@@ -243,8 +237,6 @@ func RMSNorm(x []float64, d int, weight []float64, o Options) ([]float64, error)
 // a yardstick; not a reference. Epsilon stays a float64 option and is
 // rounded to float32 after scaling.
 func RMSNorm32(x []float32, d int, weight []float32, o Options) ([]float32, error) {
-	if err := checkAll[float32]("RMSNorm32", x, d, weight, nil, o); err != nil {
-		return nil, err
-	}
-	return forward(x, d, weight, nil, false, o), nil
+	y, _, err := runForward("RMSNorm32", x, nil, d, weight, nil, false, false, o)
+	return y, err
 }
