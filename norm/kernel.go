@@ -84,7 +84,15 @@ func normalizeRow[T num.Float](x []T, center bool, eps float64, place EpsilonPla
 	// base: the deviations are 2^base · nh before the final scaling.
 	base := 0
 	copy(nh, x)
-	if center && amax > 0 {
+	constant := true
+	for _, v := range x {
+		constant = constant && v == x[0]
+	}
+	if center && constant {
+		// The deviations are exactly 0; the compensated mean would find
+		// that too in every case tried, but here it holds by construction.
+		clear(nh)
+	} else if center && amax > 0 {
 		base = exponent(float64(amax))
 		for i := range nh {
 			nh[i] = ldexp(nh[i], -base)

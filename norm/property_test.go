@@ -315,3 +315,31 @@ func TestRandomShapes(t *testing.T) {
 		}
 	}
 }
+
+// TestConstantRows: a constant row of any length and value gives y = b
+// exactly and ∂L/∂w = 0 exactly in LayerNorm (fixed seed).
+func TestConstantRows(t *testing.T) {
+	r := rand.New(rand.NewPCG(15, 16))
+	n := 200
+	if testing.Short() {
+		n = 40
+	}
+	for range n {
+		d := 1 + r.IntN(300)
+		c := (r.Float64() - 0.5) * math.Ldexp(1, r.IntN(2000)-1000)
+		x := make([]float64, 2*d)
+		for i := range x {
+			x[i] = c
+		}
+		w := uniform(r, d, 0.5, 1.5)
+		b := uniform(r, d, -1, 1)
+		for _, o := range allOptions(1e-5) {
+			y, err := LayerNorm(x, d, w, b, o)
+			require.NoError(t, err)
+			require.Equal(t, append(append([]float64{}, b...), b...), y, "d=%d c=%g", d, c)
+			g, err := LayerNormBackward(x, d, w, x, o)
+			require.NoError(t, err)
+			require.Equal(t, make([]float64, d), g.Weight)
+		}
+	}
+}
