@@ -92,8 +92,7 @@ func LayerNormBackward(x []float64, d int, weight, dy []float64, o Options) (Gra
 //
 // where s = √mean(x²), r = √(s² + ε) and c = 1 (EpsilonInRoot), or
 // r = s + ε and c = r/s (EpsilonAddedToRoot; the c-term is 0 on a zero
-// row, its limit). It follows from ∂s²/∂x_k = 2x_k/d; Zhang & Sennrich
-// 2019 (arXiv 1910.07467) §4 give the same gradient for ε = 0.
+// row, its limit). It follows from ∂s²/∂x_k = 2x_k/d.
 // Grads.Weight is nil when weight is nil; Grads.Bias is nil.
 //
 // Special cases are:

@@ -16,13 +16,14 @@
 //
 // Sources: LayerNorm, Ba, Kiros & Hinton 2016, "Layer Normalization", arXiv
 // 1607.06450, §3 Eq. (3)–(4) and §3.1; RMSNorm, Zhang & Sennrich 2019,
-// "Root Mean Square Layer Normalization", arXiv 1910.07467, §4 Eq. (4).
+// "Root Mean Square Layer Normalization", arXiv 1910.07467 (its definition
+// ā_i = a_i/RMS(a)·g_i, RMS(a) = √mean(a²)).
 // Neither paper has an ε; both placements of ε and the 1 + w gain are
 // common practice.
 //
 // # Conventions, and their alternatives
 //
-//   - The variance is the biased one, divided by d (Ba et al. Eq. 4). The
+//   - The variance is the biased one, divided by d (Ba et al. §3, Eq. 3). The
 //     unbiased variance (divided by d − 1) is not offered: no layer uses it.
 //   - ε inside the root (EpsilonInRoot) or added to the root
 //     (EpsilonAddedToRoot); both are offered for both layers.

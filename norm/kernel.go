@@ -21,8 +21,8 @@ func exponent(x float64) int {
 }
 
 // twoSum returns s = fl(a+b) and the exact rounding error e, a+b = s+e
-// (Knuth, TAOCP vol. 2, §4.2.2, Theorem B). It has no multiplication, so no
-// fusion can change it.
+// (Knuth, The Art of Computer Programming, vol. 2, §4.2.2). It has no
+// multiplication, so no fusion can change it.
 func twoSum[T num.Float](a, b T) (s, e T) {
 	s = a + b
 	bb := s - a
@@ -33,7 +33,7 @@ func twoSum[T num.Float](a, b T) (s, e T) {
 // mean2 returns the mean of v as an unevaluated sum hi+lo, accurate to about
 // twice the working precision: the sum is the compensated sum of Ogita,
 // Rump & Oishi 2005 ("Accurate Sum and Dot Product", SIAM J. Sci. Comput.
-// 26(6), Algorithm 4.4, Sum2), and the division by n keeps its exact
+// 26(6), Sum2), and the division by n keeps its exact
 // remainder, hi·n + r = s with r computed by one fused multiply-add.
 func mean2[T num.Float](v []T) (hi, lo T) {
 	var s, c T

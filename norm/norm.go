@@ -209,7 +209,7 @@ func LayerNorm32(x []float32, d int, weight, bias []float32, o Options) ([]float
 //
 // with γ_j = w_j (WeightAsIs) or 1 + w_j (WeightOnePlus); a nil weight means
 // γ = 1. Source: Zhang & Sennrich 2019, "Root Mean Square Layer
-// Normalization", arXiv 1910.07467, §4 Eq. (4); the paper has no ε and no
+// Normalization", arXiv 1910.07467; the paper has no ε and no
 // bias, and both ε placements and the 1 + w gain are common practice.
 //
 // The mean square is taken of the row scaled by an exact power of two, so

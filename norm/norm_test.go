@@ -47,7 +47,7 @@ func TestWorkedValues(t *testing.T) {
 	for i := range want {
 		assert.InEpsilon(t, want[i], y[i], 1e-15, "LayerNorm element %d", i)
 	}
-	// [mpmath] RMSNorm, Zhang & Sennrich 2019 Eq. (4), ε = 0 in the
+	// [mpmath] RMSNorm, Zhang & Sennrich 2019 (arXiv 1910.07467), ε = 0 in the
 	// source; ε = 2⁻¹⁰⁷⁴ changes mean(x²) = 7.5 by a relative 7e-325.
 	y, err = RMSNorm(x, 4, nil, Options{Epsilon: math.SmallestNonzeroFloat64})
 	require.NoError(t, err)

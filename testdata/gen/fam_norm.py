@@ -8,7 +8,7 @@ common.DIGITS significant digits, on the exact float64 inputs:
              Eq. (3)-(4): mu = mean, sigma^2 = biased variance; gain and
              bias as in section 3.1; epsilon inside the root is common
              practice, epsilon added to the root the other common form.
-  RMSNorm    Zhang & Sennrich 2019, arXiv 1910.07467, section 4, Eq. (4):
+  RMSNorm    Zhang & Sennrich 2019, arXiv 1910.07467, the definition:
              a_i / RMS(a) * g_i, RMS(a) = sqrt(mean(a^2)); the epsilon
              placements and the (1 + w) gain are common practice.
 
@@ -34,7 +34,7 @@ from common import case, ftensor, rng, uniform
 SRC_LN = ("Ba, Kiros & Hinton 2016, Layer Normalization, arXiv 1607.06450, "
           "sec. 3 Eq. (3)-(4) and sec. 3.1; epsilon placement common practice")
 SRC_RMS = ("Zhang & Sennrich 2019, Root Mean Square Layer Normalization, "
-           "arXiv 1910.07467, sec. 4 Eq. (4); epsilon placement and 1+w gain "
+           "arXiv 1910.07467, a_i / RMS(a) * g_i; epsilon placement and 1+w gain "
            "common practice")
 SRC_ADD = ("residual add then normalisation (pre-norm block): Xiong et al. 2020, "
            "arXiv 2002.04745; the norm as in ")
