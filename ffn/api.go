@@ -36,16 +36,17 @@ import (
 //     fused matrix (Fused) of 2·Hidden units, all gate units then all value
 //     units (GateUpStacked) or alternating (GateUpInterleaved).
 //   - Each output is the sum over inputs in ascending order, one rounding
-//     per product and per addition, then the bias; the loop is
+//     per product and per addition, then the bias (the loop below). The
+//     layout and the packing change where W[i][j] is read, never the order
+//     of the arithmetic: all forms give bit-identical results.
+//
+// The definition, for unit j of a projection of the row x:
 //
 //	s := 0
 //	for i := range x {
 //		s = float64(x[i]*W[i][j]) + s
 //	}
 //	s += b[j]
-//
-//     The layout and the packing change where W[i][j] is read, never the
-//     order of the arithmetic: all forms give bit-identical results.
 //
 // Special cases are:
 //
