@@ -60,8 +60,8 @@ import (
 //	any other wrong weight length     ErrWeightLen
 //
 // Accuracy: against the 50-digit golden values the worst normwise relative
-// error measured is 1.6e-16 (plain layers) and 2.0e-16 (gated units); see
-// the package documentation.
+// error measured is 5.3e-16 (plain layers, 34 cases) and 3.9e-16 (gated
+// units, 48 cases); see the package documentation.
 func Forward(x []float64, d Dims, w Weights[float64], o Options) ([]float64, error) {
 	return forward(x, d, &w, o)
 }
@@ -97,10 +97,10 @@ func Forward32(x []float32, d Dims, w Weights[float32], o Options) ([]float32, e
 // Special cases and errors are those of Forward, and dy must hold Rows ×
 // Out elements (ErrShape).
 //
-// Accuracy: against the 50-digit golden derivatives the worst normwise
-// relative error measured over all gradients is 3.3e-16; see the package
-// documentation. Central finite differences agree to within their own
-// truncation error.
+// Accuracy: against the 50-digit golden gradients the worst normwise
+// relative error measured, over dx and every parameter gradient, is 5.2e-16
+// (plain layers) and 5.6e-16 (gated units). Central finite differences
+// agree to within their own error (tested at 1e-7).
 func Backward(x, dy []float64, d Dims, w Weights[float64], o Options) (dx []float64, grad Weights[float64], err error) {
 	return backward(x, dy, d, &w, o)
 }
