@@ -579,7 +579,14 @@ func FuzzForward(f *testing.F) {
 		if len(y) != d.Rows*d.Out {
 			t.Fatalf("y has %d elements, want %d", len(y), d.Rows*d.Out)
 		}
+		yf, err := ForwardFast(x, d, w, o)
+		if err != nil || len(yf) != len(y) {
+			t.Fatalf("ForwardFast: %d elements, error %v; Forward gave %d", len(yf), err, len(y))
+		}
 		dy := make([]float64, len(y))
+		if _, _, err := BackwardFast(x, dy, d, w, o); err != nil {
+			t.Fatalf("Forward accepted what BackwardFast refuses: %v", err)
+		}
 		dx, g, err := Backward(x, dy, d, w, o)
 		if err != nil {
 			t.Fatalf("Forward accepted what Backward refuses: %v", err)

@@ -284,16 +284,38 @@ func testGoldenLayers(t *testing.T, family string) {
 				worst[k] = max(worst[k], e)
 			}
 
+			// the fast form, against the same values and bound
+			yf, err := ForwardFast(g.x, g.d, g.w, g.o)
+			require.NoError(t, err)
+			dxf, grf, err := BackwardFast(g.x, g.dy, g.d, g.w, g.o)
+			require.NoError(t, err)
+			gotf := gradsByName(dxf, grf)
+			gotf["y"] = yf
+			for name, want := range g.want {
+				e := golden.NormwiseRelErr(gotf[name], want)
+				assert.LessOrEqual(t, e, layerBound, golden.Describe(c, name+" (fast form)", e, layerBound))
+				worst["fast form"] = max(worst["fast form"], e)
+			}
+
 			y32, err := Forward32(to32(g.x), g.d, weights32(g.w), g.o)
 			require.NoError(t, err)
 			dx32, gr32, err := Backward32(to32(g.x), to32(g.dy), g.d, weights32(g.w), g.o)
 			require.NoError(t, err)
 			got32 := gradsByName(dx32, gr32)
 			got32["y"] = y32
+			yf32, err := ForwardFast32(to32(g.x), g.d, weights32(g.w), g.o)
+			require.NoError(t, err)
+			dxf32, grf32, err := BackwardFast32(to32(g.x), to32(g.dy), g.d, weights32(g.w), g.o)
+			require.NoError(t, err)
+			gotf32 := gradsByName(dxf32, grf32)
+			gotf32["y"] = yf32
 			for name, want := range g.want {
 				e := golden.NormwiseRelErr(to64(got32[name]), want)
 				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32)", e, layer32Bound))
 				worst["float32"] = max(worst["float32"], e)
+				e = golden.NormwiseRelErr(to64(gotf32[name]), want)
+				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32, fast form)", e, layer32Bound))
+				worst["float32 fast form"] = max(worst["float32 fast form"], e)
 			}
 		})
 	}
