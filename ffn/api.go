@@ -19,7 +19,7 @@ import (
 // Variants Improve Transformer", arXiv 2002.05202, Eq. (1)–(6), which
 // apply φ to the gate projection W, not to V:
 //
-//	GLU       Gated, ActSigmoid          (Dauphin et al. 2017, arXiv 1612.08083)
+//	GLU       Gated, ActSigmoid          (Dauphin et al. 2016, arXiv 1612.08083)
 //	Bilinear  Gated, ActIdentity
 //	ReGLU     Gated, ActReLU
 //	GEGLU     Gated, ActGELU (or ActGELUTanh, ActGELUSigmoid)

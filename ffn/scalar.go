@@ -75,7 +75,7 @@ func SigmoidDeriv(x float64) float64 { return sigmoidDeriv(x) }
 func SigmoidDeriv32(x float32) float32 { return sigmoidDeriv(x) }
 
 // Swish returns x·σ(βx) (Ramachandran et al. 2017, "Searching for
-// Activation Functions", arXiv 1710.05941, §4). β = 1 is SiLU; β = 0 gives
+// Activation Functions", arXiv 1710.05941). β = 1 is SiLU; β = 0 gives
 // x/2; as β → +∞ it tends to ReLU.
 //
 // βx is carried as an unevaluated sum of two float64 values into the
@@ -122,7 +122,7 @@ func SwishDeriv32(x, beta float32) float32 { return swishDeriv(x, beta) }
 
 // SiLU returns the sigmoid-weighted linear unit x·σ(x) (Elfwing et al.
 // 2018, "Sigmoid-Weighted Linear Units for Neural Network Function
-// Approximation in Reinforcement Learning", arXiv 1702.03118, Eq. (1)):
+// Approximation in Reinforcement Learning", arXiv 1702.03118):
 // Swish with β = 1. Special cases and accuracy are those of Swish.
 func SiLU(x float64) float64 { return swish(x, 1) }
 

@@ -22,8 +22,8 @@ from mpmath import mp, mpf
 from common import btensor, case, ftensor, itensor, rng, to_f64, uniform  # noqa: F401
 
 SRC_GELU = "Hendrycks & Gimpel 2016, Gaussian Error Linear Units (GELUs), arXiv 1606.08415, sec. 2"
-SRC_SWISH = "Ramachandran et al. 2017, Searching for Activation Functions, arXiv 1710.05941, sec. 4"
-SRC_SILU = "Elfwing et al. 2018, arXiv 1702.03118, Eq. 1 (SiLU = Swish with beta 1)"
+SRC_SWISH = "Ramachandran et al. 2017, Searching for Activation Functions, arXiv 1710.05941"
+SRC_SILU = "Elfwing et al. 2018, arXiv 1702.03118 (SiLU = Swish with beta 1)"
 SRC_SIGMOID = "logistic function 1/(1+e^-x)"
 SRC_RELU = "max(0, x); Vaswani et al. 2017, arXiv 1706.03762, Eq. 2; derivative at 0 taken as 0 (common practice)"
 SRC_FFN = "Vaswani et al. 2017, Attention Is All You Need, arXiv 1706.03762, sec. 3.3 Eq. 2; backward by the chain rule"
