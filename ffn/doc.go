@@ -97,8 +97,8 @@
 // Forward and Backward are the direct form: a loop per output that reads
 // like the formula, the one the golden values check first. ForwardFast and
 // BackwardFast compute the same with gonum's BLAS matrix products; they
-// differ from the direct form only in the order of each sum. On one core
-// of the test machine, 16 rows of a SwiGLU layer with model width 1024 and
+// differ from the direct form only in the order of each sum. On the
+// two-core test machine, 16 rows of a SwiGLU layer with model width 1024 and
 // hidden width 2816 take about 2.5 s with Forward, 0.19 s with ForwardFast
 // and 1.3 s with BackwardFast (BenchmarkForward, BenchmarkForwardFast,
 // BenchmarkBackwardFast).

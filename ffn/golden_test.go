@@ -71,7 +71,7 @@ func scalarFuncs(a Act, beta float64) (f, df func(float64) float64) {
 	return nil, nil
 }
 
-// relErrs returns the largest elementwise relative error; a zero wanted
+// maxRelErr returns the largest elementwise relative error; a zero wanted
 // value must be matched by a zero.
 func maxRelErr(got, want []float64) float64 {
 	worst := 0.0
