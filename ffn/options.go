@@ -188,8 +188,8 @@ func checkDims(d Dims) error {
 		return fmt.Errorf("%w: Dims.Hidden is %d, want ≥ 1", ErrShape, d.Hidden)
 	case d.Out < 1:
 		return fmt.Errorf("%w: Dims.Out is %d, want ≥ 1", ErrShape, d.Out)
-	case maxMul(d.Rows, d.In) || maxMul(d.Rows, d.Out) || maxMul(d.In, 2*d.Hidden) ||
-		maxMul(d.Hidden, d.Out) || d.Hidden > math.MaxInt/2:
+	case d.Hidden > math.MaxInt/2 || maxMul(d.Rows, d.In) || maxMul(d.Rows, d.Out) ||
+		maxMul(d.In, 2*d.Hidden) || maxMul(d.Hidden, d.Out) || maxMul(d.Rows, 2*d.Hidden):
 		return fmt.Errorf("%w: Dims %+v: element counts overflow int", ErrShape, d)
 	}
 	return nil
