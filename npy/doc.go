@@ -52,17 +52,26 @@
 //
 // Special cases are:
 //
-//	shape ()                   a scalar: one element
-//	a zero dimension           no data; Values is an empty slice
-//	header length > MaxHeaderLen  ErrFormat, before the header is read
-//	data shorter than promised ErrData; allocation stays bounded by the
-//	                           bytes actually present
-//	trailing bytes             left in the reader by Read; ErrData from
-//	                           ReadFile
+//	shape ()                       a scalar: one element
+//	a zero dimension               no data; Values is an empty slice
+//	header length > MaxHeaderLen   ErrFormat, before the header is read
+//	data shorter than promised     ErrData; allocation stays bounded by the
+//	                               bytes actually present
+//	trailing bytes                 left in the reader by Read; ErrData from
+//	                               ReadFile
 //
-// Every error wraps one of the sentinel errors (ErrFormat, ErrDType,
-// ErrShape, ErrData, ErrValues, ErrBits, ErrInexact) and names what it found
-// and what it wanted. No function panics on its input, whatever the bytes.
+// Every error about the array or the file's content wraps exactly one of
+// the sentinel errors (ErrFormat, ErrDType, ErrShape, ErrData, ErrValues,
+// ErrBits, ErrInexact) and names what it found and what it wanted; errors of
+// the file system or of the io.Writer are wrapped as they come. No function
+// panics on its input, whatever the bytes.
+//
+// Typical use: a port under test dumps its output with numpy.save (or any
+// writer of the format), the test reads it with ReadFile, converts it with
+// Float64s and compares it with the reference; reference inputs and outputs
+// go the other way with WriteFile. Values destined for a low-precision type
+// (float16, bfloat16, FP8) must be rounded to its bit patterns first; this
+// package moves bit patterns and decodes them, it does not round.
 //
 // Accuracy: reading and writing are exact (bit patterns are moved, never
 // rounded), and so is every conversion Float64s makes. An outside check

@@ -406,7 +406,7 @@ func convert[T any](v []T, f func(T) float64) []float64 {
 }
 
 // DecodeFloat16 returns the value of the IEEE 754-2019 binary16 bit pattern
-// b (1 sign, 5 exponent, 10 fraction bits, bias 15), exactly.
+// b (§3.4: 1 sign, 5 exponent, 10 fraction bits, bias 15), exactly.
 //
 // Special cases are:
 //

@@ -7,7 +7,6 @@ import (
 	"io"
 	"math"
 	"os"
-	"slices"
 	"unicode/utf8"
 )
 
@@ -31,7 +30,8 @@ const chunk = 1 << 16
 // It accepts versions 1.0, 2.0 and 3.0, a latin-1 (1.0, 2.0) or UTF-8 (3.0)
 // header that is a Python dictionary literal with exactly the keys 'descr',
 // 'fortran_order' and 'shape' in any order, followed by any spaces, tabs
-// and newlines. It does not insist on NumPy's 64-byte (or older 16-byte)
+// and newlines. Integers may carry the 'L' suffix that Python 2 writers of
+// versions 1.0 and 2.0 left. It does not insist on NumPy's 64-byte (or older 16-byte)
 // alignment of the data or on the final newline, neither of which affects
 // the meaning. See DType for the accepted descriptors; a descriptor that
 // does not say the byte order of a multi-byte type ('=f8', '|f8', 'f8') is
@@ -194,18 +194,21 @@ func readN(r io.Reader, n int) ([]byte, error) {
 	if known || n <= chunk {
 		buf := make([]byte, n)
 		if k, err := io.ReadFull(r, buf); err != nil {
-			return nil, fmt.Errorf("%w: got %d bytes", errShort, k)
+			return nil, fmt.Errorf("%w: got %d bytes (%v)", errShort, k, err)
 		}
 		return buf, nil
 	}
-	var buf []byte
+	buf := make([]byte, 0, chunk)
 	for len(buf) < n {
-		step := min(n-len(buf), max(chunk, len(buf)))
-		buf = slices.Grow(buf, step)
-		k, err := io.ReadFull(r, buf[len(buf):len(buf)+step])
+		if len(buf) == cap(buf) {
+			grown := make([]byte, len(buf), min(n, 2*cap(buf)))
+			copy(grown, buf)
+			buf = grown
+		}
+		k, err := io.ReadFull(r, buf[len(buf):cap(buf)])
 		buf = buf[:len(buf)+k]
 		if err != nil {
-			return nil, fmt.Errorf("%w: got %d bytes", errShort, len(buf))
+			return nil, fmt.Errorf("%w: got %d bytes (%v)", errShort, len(buf), err)
 		}
 	}
 	return buf, nil

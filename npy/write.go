@@ -28,10 +28,14 @@ import (
 //
 // Bits is not written: the format has no place for it (see Bits).
 //
+// NumPy's reader refuses, unless told to trust the file, headers over 10000
+// characters: shapes of more than about 3000 dimensions.
+//
 // Special cases are:
 //
 //	invalid DType or ByteOrder        ErrDType
 //	Values of the wrong type/length   ErrValues
+//	Bits that do not fit DType        ErrBits
 //	negative or overflowing shape     ErrShape
 //	header longer than MaxHeaderLen   ErrShape (too many dimensions)
 //	unknown Version                   ErrFormat
