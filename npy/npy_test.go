@@ -476,3 +476,45 @@ func TestStrings(t *testing.T) {
 	assert.Equal(t, -1, (&Header{Shape: []int{-2}}).Len())
 	assert.Equal(t, 1, (&Header{}).Len())
 }
+
+// One attention tensor of batch 1, 16 heads, 2048 positions, head
+// dimension 128, in float32 (16 MiB of data).
+func benchArray(b *testing.B) *Array {
+	shape := []int{1, 16, 2048, 128}
+	v := make([]float32, 16*2048*128)
+	for i := range v {
+		v[i] = float32(i%1000) / 7
+	}
+	a, err := New(Float32, shape, v)
+	require.NoError(b, err)
+	return a
+}
+
+func BenchmarkWrite(b *testing.B) {
+	a := benchArray(b)
+	b.SetBytes(int64(a.Len() * 4))
+	for b.Loop() {
+		require.NoError(b, Write(io.Discard, a))
+	}
+}
+
+func BenchmarkRead(b *testing.B) {
+	for _, fortran := range []bool{false, true} {
+		name := "C"
+		if fortran {
+			name = "Fortran"
+		}
+		b.Run(name, func(b *testing.B) {
+			a := benchArray(b)
+			a.FortranOrder = fortran
+			var buf bytes.Buffer
+			require.NoError(b, Write(&buf, a))
+			data := buf.Bytes()
+			b.SetBytes(int64(len(data)))
+			for b.Loop() {
+				_, err := Read(bytes.NewReader(data))
+				require.NoError(b, err)
+			}
+		})
+	}
+}
