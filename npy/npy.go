@@ -279,16 +279,18 @@ func (h *Header) Len() int {
 
 // count is the element count of a shape, checked.
 func count(shape []int) (int, error) {
-	n := 1
+	empty := false
 	for i, d := range shape {
 		if d < 0 {
 			return 0, fmt.Errorf("%w: dimension %d is %d, want ≥ 0", ErrShape, i, d)
 		}
+		empty = empty || d == 0
 	}
+	if empty {
+		return 0, nil // whatever the other dimensions: (2⁴⁰, 2⁴⁰, 0) holds nothing
+	}
+	n := 1
 	for i, d := range shape {
-		if d == 0 {
-			return 0, nil
-		}
 		if n > math.MaxInt/d {
 			return 0, fmt.Errorf("%w: shape %v holds more than %d elements (overflow at dimension %d)", ErrShape, shape, math.MaxInt, i)
 		}

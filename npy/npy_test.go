@@ -187,12 +187,19 @@ func TestReadHeaderVariants(t *testing.T) {
 		{"tabs, newlines, 16-byte era padding", "{ 'descr' : '<f2' ,\n\t'fortran_order' : False , 'shape' : ( 4 , ) }   ", Header{Version1, Float16, LittleEndian, false, []int{4}}},
 		{"scalar", "{'descr': '<i8', 'fortran_order': False, 'shape': ()}", Header{Version1, Int64, LittleEndian, false, []int{}}},
 		{"zero size", "{'descr': '<f4', 'fortran_order': False, 'shape': (0, 1000000000000)}", Header{Version1, Float32, LittleEndian, false, []int{0, 1000000000000}}},
+		{"zero size after an overflowing product", "{'descr': '<f4', 'fortran_order': True, 'shape': (4294967296, 4294967296, 0)}", Header{Version1, Float32, LittleEndian, true, []int{1 << 32, 1 << 32, 0}}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			h, err := ReadHeader(bytes.NewReader(file(tc.dict, eight)))
 			require.NoError(t, err)
 			assert.Empty(t, cmp.Diff(tc.want, h))
+			// Each case's data fill 8 bytes, or none for the empty shapes.
+			a, err := Read(bytes.NewReader(file(tc.dict, eight)))
+			require.NoError(t, err)
+			n, ok := a.valuesLen()
+			assert.True(t, ok)
+			assert.Equal(t, h.Len(), n)
 		})
 	}
 }
