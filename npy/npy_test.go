@@ -184,7 +184,7 @@ func TestReadHeaderVariants(t *testing.T) {
 		{"one-byte type, every mark", "{'descr': '=u1', 'fortran_order': False, 'shape': (8,)}", Header{Version1, Uint8, LittleEndian, false, []int{8}}},
 		{"one-byte type, no mark", "{'descr': 'u1', 'fortran_order': False, 'shape': (8,)}", Header{Version1, Uint8, LittleEndian, false, []int{8}}},
 		{"Python 2 long suffix", "{'descr': '>i4', 'fortran_order': False, 'shape': (2L,)}", Header{Version1, Int32, BigEndian, false, []int{2}}},
-		{"tabs, newlines, 16-byte era padding", "{ 'descr' : '<f2' ,\n\t'fortran_order' : False , 'shape' : ( 4 , ) }   ", Header{Version1, Float16, LittleEndian, false, []int{4}}},
+		{"tabs, newlines, unaligned padding", "{ 'descr' : '<f2' ,\n\t'fortran_order' : False , 'shape' : ( 4 , ) }   ", Header{Version1, Float16, LittleEndian, false, []int{4}}},
 		{"scalar", "{'descr': '<i8', 'fortran_order': False, 'shape': ()}", Header{Version1, Int64, LittleEndian, false, []int{}}},
 		{"zero size", "{'descr': '<f4', 'fortran_order': False, 'shape': (0, 1000000000000)}", Header{Version1, Float32, LittleEndian, false, []int{0, 1000000000000}}},
 		{"zero size after an overflowing product", "{'descr': '<f4', 'fortran_order': True, 'shape': (4294967296, 4294967296, 0)}", Header{Version1, Float32, LittleEndian, true, []int{1 << 32, 1 << 32, 0}}},

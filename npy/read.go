@@ -110,10 +110,10 @@ func latin1(b []byte) string {
 // Integer; set it for bfloat16 or FP8 data before calling Float64s.
 //
 // Allocation is bounded by the input: the data are read in pieces and the
-// buffer grows only as bytes arrive (or is checked at once against the
-// remaining length when r reports it, as *bytes.Reader, *strings.Reader and
-// *os.File do), so a header that claims a huge shape costs nothing before
-// it fails with ErrData.
+// buffer grows only as bytes arrive, or is checked at once against the
+// remaining length when r reports it (a Len method, as *bytes.Reader,
+// *strings.Reader and *bytes.Buffer have, or a regular *os.File). A header
+// that claims a huge shape costs nothing before it fails with ErrData.
 //
 // Special cases are:
 //
@@ -184,8 +184,9 @@ func remaining(r io.Reader) (int64, bool) {
 var errShort = errors.New("input ended early")
 
 // readN reads exactly n bytes. It allocates n bytes at once only when r says
-// that many remain, or n ≤ chunk; otherwise the buffer grows as the bytes
-// arrive, so a lying length costs at most about twice what was received.
+// that many remain (a Len method, or a regular *os.File), or n ≤ chunk;
+// otherwise the buffer doubles as the bytes arrive, so that the buffers of a
+// lying length sum to less than four times the bytes received plus chunk.
 func readN(r io.Reader, n int) ([]byte, error) {
 	rem, known := remaining(r)
 	if known && rem < int64(n) {
