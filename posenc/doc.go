@@ -60,7 +60,7 @@
 // # How angles are computed, and the accuracy that results
 //
 // A rotary or sinusoidal entry is sin or cos of m·θ_i, where m can be as
-// large as MaxPosition = 2^31. Computing θ_i in float64 and rounding the
+// large as MaxPosition = 2^31 − 1. Computing θ_i in float64 and rounding the
 // product m·θ_i to float64 gives an absolute angle error up to
 // ulp(m·θ_i)/2 ≈ 6e-11 at m = 10⁶ from the product, plus m times the error
 // of θ_i itself (about m·θ_i·2^−53, the same size again): entries off by

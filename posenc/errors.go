@@ -1,6 +1,9 @@
 package posenc
 
-import "errors"
+import (
+	"errors"
+	"math"
+)
 
 // Sentinel errors. Every error returned by this package wraps exactly one of
 // them, so callers can match with errors.Is; the message names the argument,
@@ -33,15 +36,16 @@ var (
 	ErrOption = errors.New("posenc: unknown option")
 )
 
-// MaxPosition is the largest position magnitude accepted. Positions are
-// integers; every |m| ≤ MaxPosition is exact in float64 and the accuracy
-// statements of this package hold up to it.
-const MaxPosition = 1 << 31
+// MaxPosition is the largest position magnitude accepted, 2^31 − 1 (it
+// fits an int on every platform). Positions are integers; every
+// |m| ≤ MaxPosition is exact in float64, the golden files test up to it, and
+// the accuracy statements of this package hold up to it.
+const MaxPosition = 1<<31 - 1
 
 // MaxDim is the largest head or model dimension accepted.
 const MaxDim = 1 << 20
 
 // maxElements bounds the size of a result this package allocates from
 // sizes alone (not from the length of an input slice), so that a typo
-// cannot overflow int: 2^40 float64 values.
-const maxElements = 1 << 40
+// cannot overflow int: 2^40 float64 values (less where int is 32 bits).
+const maxElements = min(1<<40, math.MaxInt)

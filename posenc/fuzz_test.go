@@ -28,7 +28,7 @@ func FuzzRotary(f *testing.F) {
 	f.Add(8, 0, 10000.0, uint8(0), uint8(0), 0.0, 0, 0, 0.0, 0.0, 2, 3, false)
 	f.Add(13, 6, 500.0, uint8(1), uint8(3), 8.0, 4096, 0, 1.0, 32.0, 1, 999999, true)
 	f.Add(16, 16, 1e6, uint8(0), uint8(2), 4.0, 2048, 9000, 0.0, 0.0, 4, -7, false)
-	f.Add(7, 9, 1.0, uint8(9), uint8(7), math.NaN(), -1, -1, 3.0, 2.0, 0, 1<<40, true)
+	f.Add(7, 9, 1.0, uint8(9), uint8(7), math.NaN(), -1, -1, 3.0, 2.0, 0, math.MaxInt, true)
 	f.Fuzz(func(t *testing.T, dim, rotated int, base float64, pairing, method uint8, factor float64,
 		trained, current int, alpha, beta float64, L, offset int, dims bool) {
 		if dim > 64 || L > 16 || rotated > 64 {

@@ -444,6 +444,8 @@ func TestALiBiForms(t *testing.T) {
 
 func TestErrors(t *testing.T) {
 	nan := math.NaN()
+	beyond := MaxPosition
+	beyond++ // MaxPosition + 1 (wraps to a large negative where int is 32 bits: still refused)
 	x8 := make([]float64, 8)
 	ok := Positions{}
 	apply := func(r Rotary) error { _, err := r.Apply(x8, 1, ok); return err }
@@ -490,10 +492,10 @@ func TestErrors(t *testing.T) {
 		}(), ErrShape},
 		{"position too large", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: MaxPosition}); return err }(), ErrPosition},
 		{"list position too small", func() error {
-			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{List: []int{0, -MaxPosition - 1}})
+			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{List: []int{0, -beyond}})
 			return err
 		}(), ErrPosition},
-		{"table position", func() error { _, _, err := Rotary{Dim: 4}.Tables([]int{MaxPosition + 1}); return err }(), ErrPosition},
+		{"table position", func() error { _, _, err := Rotary{Dim: 4}.Tables([]int{beyond}); return err }(), ErrPosition},
 		{"apply32 dims", func() error { _, err := Rotary{Dim: 3}.Apply32(make([]float32, 3), 1, ok); return err }(), ErrDim},
 		{"sinusoidal odd dim", func() error { _, err := Sinusoidal{Dim: 5}.Table(1, 0); return err }(), ErrDim},
 		{"sinusoidal negative position", func() error { _, err := Sinusoidal{Dim: 4}.Table(1, -1); return err }(), ErrPosition},
@@ -525,7 +527,7 @@ func TestErrors(t *testing.T) {
 			return err
 		}(), ErrPosition},
 		{"symmetric position too large", func() error {
-			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Offset: MaxPosition + 1}, ALiBiSymmetric)
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Offset: beyond}, ALiBiSymmetric)
 			return err
 		}(), ErrPosition},
 		{"ntk base r", func() error { _, err := NTKBase(10000, 2, 2); return err }(), ErrDim},
@@ -573,11 +575,11 @@ func TestNonFinitePropagates(t *testing.T) {
 
 func TestHugeSizesAreErrors(t *testing.T) {
 	// Sizes whose product overflows int must give an error, not a panic.
-	_, err := Sinusoidal{Dim: 1 << 32}.Add(make([]float64, 4), 1<<32, 0)
+	_, err := Sinusoidal{Dim: math.MaxInt - 1}.Add(make([]float64, 4), math.MaxInt, 0)
 	assert.ErrorIs(t, err, ErrDim)
 	_, err = Sinusoidal{Dim: 1 << 20}.Add(make([]float64, 4), 1<<30, 0)
 	assert.ErrorIs(t, err, ErrShape)
-	_, err = Rotary{Dim: 1 << 40}.Apply(make([]float64, 4), 1, Positions{})
+	_, err = Rotary{Dim: math.MaxInt}.Apply(make([]float64, 4), 1, Positions{})
 	assert.ErrorIs(t, err, ErrDim)
 	_, err = Sinusoidal{Dim: 2}.Table(math.MaxInt, 0)
 	assert.ErrorIs(t, err, ErrShape)
