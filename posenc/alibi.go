@@ -5,6 +5,7 @@ import (
 	"math"
 	"math/bits"
 
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -104,11 +105,23 @@ func (f ALiBiForm) String() string {
 //	ALiBiCausal with p(i) outside 0 … Lk−1  ErrPosition
 //	|p(i)| > MaxPosition            ErrPosition
 func ALiBiBias(slopes []float64, g mask.Geometry, form ALiBiForm) ([]float64, error) {
+	return alibiBias(slopes, g, form)
+}
+
+// ALiBiBias32 is the float32 instantiation of the same body as ALiBiBias:
+// the straightforward low-precision implementation the compare package uses
+// as a yardstick; not a reference. Each entry is the float32 product of the
+// float32 slope and the distance (exact in float32 up to 2^24).
+func ALiBiBias32(slopes []float32, g mask.Geometry, form ALiBiForm) ([]float32, error) {
+	return alibiBias(slopes, g, form)
+}
+
+func alibiBias[T num.Float](slopes []T, g mask.Geometry, form ALiBiForm) ([]T, error) {
 	if len(slopes) == 0 {
 		return nil, fmt.Errorf("%w: no slopes; want one per head", ErrHeads)
 	}
 	for h, m := range slopes {
-		if math.IsNaN(m) || math.IsInf(m, 0) {
+		if math.IsNaN(float64(m)) || math.IsInf(float64(m), 0) {
 			return nil, fmt.Errorf("%w: slopes[%d] = %v; want a finite number", ErrHeads, h, m)
 		}
 	}
@@ -142,7 +155,7 @@ func ALiBiBias(slopes []float64, g mask.Geometry, form ALiBiForm) ([]float64, er
 				ErrPosition, g, first, last, g.Lk-1)
 		}
 	}
-	out := make([]float64, H*g.Lq*g.Lk)
+	out := make([]T, H*g.Lq*g.Lk)
 	for h, m := range slopes {
 		for i := range g.Lq {
 			p := g.Pos(i)
@@ -156,7 +169,7 @@ func ALiBiBias(slopes []float64, g mask.Geometry, form ALiBiForm) ([]float64, er
 					d = -d
 				}
 				if d != 0 {
-					row[j] = -float64(m * float64(d))
+					row[j] = -T(m * T(d))
 				}
 			}
 		}

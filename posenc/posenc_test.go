@@ -606,3 +606,42 @@ func TestOptionNames(t *testing.T) {
 	}
 	assert.Empty(t, cmp.Diff(want, got))
 }
+
+func TestFloat32Yardsticks(t *testing.T) {
+	// Add32 and ALiBiBias32 are the float32 instantiations: each entry is
+	// within one float32 rounding of the table or slope plus one of the
+	// operation, 2 ulps of float32 relative to the entry's magnitude.
+	s := Sinusoidal{Dim: 16}
+	x := randVec(rand.New(rand.NewPCG(15, 16)), 2*3*16)
+	x32 := make([]float32, len(x))
+	for i, v := range x {
+		x32[i] = float32(v)
+		x[i] = float64(x32[i])
+	}
+	want, err := s.Add(x, 3, 999_000)
+	require.NoError(t, err)
+	got, err := s.Add32(x32, 3, 999_000)
+	require.NoError(t, err)
+	for i := range want {
+		assert.InDelta(t, want[i], float64(got[i]), 2*0x1p-24*math.Max(2, math.Abs(want[i])))
+	}
+	_, err = s.Add32(x32[:5], 3, 0)
+	assert.ErrorIs(t, err, ErrShape)
+
+	slopes, err := ALiBiSlopes(12)
+	require.NoError(t, err)
+	sl32 := make([]float32, len(slopes))
+	for i, v := range slopes {
+		sl32[i] = float32(v)
+	}
+	g := mask.Geometry{Batch: 1, Lq: 4, Lk: 50}
+	b64, err := ALiBiBias(slopes, g, ALiBiSymmetric)
+	require.NoError(t, err)
+	b32, err := ALiBiBias32(sl32, g, ALiBiSymmetric)
+	require.NoError(t, err)
+	for i := range b64 {
+		assert.InDelta(t, b64[i], float64(b32[i]), 2*0x1p-24*math.Abs(b64[i]))
+	}
+	_, err = ALiBiBias32([]float32{float32(math.NaN())}, g, ALiBiCausal)
+	assert.ErrorIs(t, err, ErrHeads)
+}

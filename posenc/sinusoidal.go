@@ -1,6 +1,10 @@
 package posenc
 
-import "fmt"
+import (
+	"fmt"
+
+	"github.com/plumbref/plumb/internal/num"
+)
 
 // Layout is the order of the sine and cosine columns of a sinusoidal table.
 type Layout int
@@ -123,17 +127,33 @@ func (s Sinusoidal) Table(n, offset int) ([]float64, error) {
 //	L ≤ 0                           ErrShape
 //	otherwise                       the special cases of Table
 func (s Sinusoidal) Add(x []float64, L, offset int) ([]float64, error) {
+	return addTable(s, x, L, offset, func(v float64) float64 { return v })
+}
+
+// Add32 is the float32 instantiation of the same body as Add: the
+// straightforward low-precision implementation the compare package uses as
+// a yardstick; not a reference. The table is the reference table rounded to
+// float32; the addition is float32.
+func (s Sinusoidal) Add32(x []float32, L, offset int) ([]float32, error) {
+	return addTable(s, x, L, offset, func(v float64) float32 { return float32(v) })
+}
+
+func addTable[T num.Float](s Sinusoidal, x []T, L, offset int, conv func(float64) T) ([]T, error) {
 	if L <= 0 {
 		return nil, fmt.Errorf("%w: sequence length L = %d; want > 0", ErrShape, L)
 	}
-	pe, err := s.Table(L, offset)
+	pe64, err := s.Table(L, offset)
 	if err != nil {
 		return nil, err
 	}
-	if len(x)%len(pe) != 0 {
+	if len(x)%len(pe64) != 0 {
 		return nil, fmt.Errorf("%w: len(x) = %d is not a multiple of L·Dim = %d·%d", ErrShape, len(x), L, s.Dim)
 	}
-	y := make([]float64, len(x))
+	pe := make([]T, len(pe64))
+	for k, v := range pe64 {
+		pe[k] = conv(v)
+	}
+	y := make([]T, len(x))
 	for k := range x {
 		y[k] = x[k] + pe[k%len(pe)]
 	}
