@@ -102,9 +102,9 @@
 //	Rotary.Frequencies    0 (bit-exact: every frequency correctly rounded)
 //	NTKBase, YaRNMagnitude, ALiBiSlopes, ALiBiBias   0 (bit-exact)
 //
-// The float32 instantiations (Apply32, ApplyInverse32) are yardsticks, not
-// references: they round the reference tables to float32 and rotate in
-// float32.
+// The float32 instantiations (Rotary.Apply32, Rotary.ApplyInverse32,
+// Sinusoidal.Add32, ALiBiBias32) are yardsticks, not references: the same
+// bodies run in float32 on the reference tables rounded to float32.
 //
 // Every error wraps one of the package's sentinel errors (ErrDim, ErrBase,
 // ErrFactor, ErrLength, ErrPosition, ErrHeads, ErrShape, ErrOption) and
