@@ -127,7 +127,9 @@ func (c Rotary) resolve() (*resolved, error) {
 
 // Frequencies returns the r/2 frequencies θ_i after scaling, in radians per
 // position, each the float64 nearest to its exact value (the internal
-// computation carries about 106 bits; see the package doc).
+// computation carries about 106 bits, so the rounding can only go the
+// wrong way for a value within ~2^−100 relative of a rounding boundary;
+// every golden frequency matches bit for bit; see the package doc).
 //
 // Special cases are:
 //
