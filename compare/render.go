@@ -27,10 +27,10 @@ func (r *Report) WriteText(w io.Writer) error {
 		fmt.Fprintf(tw, "  normwise rel error\t%s\t\n", g4(r.Normwise))
 		fmt.Fprintf(tw, "  max ULP distance\t%s\t(%v)\n", g4(r.MaxULPs), r.Format)
 	}
-	fmt.Fprintf(tw, "  NaN mismatches\t%d\t\n", r.NaNMismatches)
-	fmt.Fprintf(tw, "  Inf mismatches\t%d\t\n", r.InfMismatches)
+	fmt.Fprintf(tw, "  NaN mismatches\t%d\n", r.NaNMismatches)
+	fmt.Fprintf(tw, "  Inf mismatches\t%d\n", r.InfMismatches)
 	if r.NonFiniteMatches > 0 {
-		fmt.Fprintf(tw, "  NaN/Inf matches\t%d\t\n", r.NonFiniteMatches)
+		fmt.Fprintf(tw, "  NaN/Inf matches\t%d\n", r.NonFiniteMatches)
 	}
 	if r.NotInFormat > 0 {
 		fmt.Fprintf(tw, "  not %v values\t%d\tcandidate values off the format's grid\n", r.Format, r.NotInFormat)
@@ -77,7 +77,18 @@ func (r *Report) WriteText(w io.Writer) error {
 			fmt.Fprintf(&b, "verdict: FAIL: %s\n", strings.Join(v.Reasons, "; "))
 		}
 	}
-	_, err := w.Write(b.Bytes())
+	// Empty last cells leave trailing blanks; drop them.
+	lines := strings.SplitAfter(b.String(), "\n")
+	var out strings.Builder
+	for _, l := range lines {
+		if strings.HasSuffix(l, "\n") {
+			out.WriteString(strings.TrimRight(l[:len(l)-1], " "))
+			out.WriteByte('\n')
+		} else {
+			out.WriteString(l)
+		}
+	}
+	_, err := io.WriteString(w, out.String())
 	return err
 }
 

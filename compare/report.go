@@ -53,7 +53,7 @@ type Element struct {
 	Got    float64 // candidate value
 	AbsErr float64 // |Got − Ref|; +Inf when they disagree on NaN or Inf
 	RelErr float64 // AbsErr / max(|Ref|, RelFloor)
-	ULPs   float64 // ULP distance in the report's format; NaN when undefined
+	ULPs   float64 // ULP distance in the report's format; NaN when undefined or a NaN/Inf mismatch
 }
 
 // ULPBucket counts the elements whose ULP distance d lies in [Lo, Hi].
@@ -205,7 +205,7 @@ func Diff(ref, got []float64, shape []int, opt Options) (*Report, error) {
 			default:
 				r.InfMismatches++
 			}
-			e.AbsErr, e.RelErr = math.Inf(1), math.Inf(1)
+			e.AbsErr, e.RelErr, e.ULPs = math.Inf(1), math.Inf(1), math.NaN()
 			score = math.Inf(1)
 			failed++
 		} else {
