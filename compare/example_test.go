@@ -166,7 +166,7 @@ func ExampleMeasureYardstick() {
 // printTB stands in for the *testing.T of a real test.
 type printTB struct{ testing.TB }
 
-func (printTB) Helper()                          {}
+func (printTB) Helper()                           {}
 func (printTB) Errorf(format string, args ...any) { fmt.Printf("FAIL: "+format+"\n", args...) }
 func (printTB) Fatalf(format string, args ...any) { fmt.Printf("FATAL: "+format+"\n", args...) }
 
