@@ -462,3 +462,13 @@ func (f Format) ULPDistance(a, b float64) (uint64, bool) {
 	d, _ := bits.Add64(ma, mb, 0)
 	return d, true
 }
+
+// RoundSlice returns a new slice holding Round of each element of x: a
+// float64 tensor as the format stores it.
+func (f Format) RoundSlice(x []float64) []float64 {
+	out := make([]float64, len(x))
+	for i, v := range x {
+		out[i] = f.Round(v)
+	}
+	return out
+}

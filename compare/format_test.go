@@ -483,3 +483,16 @@ func FuzzRound(f *testing.F) {
 		}
 	})
 }
+
+func TestRoundSliceAndWiden(t *testing.T) {
+	x := []float64{1.0 / 3, -65520, math.NaN(), 0}
+	got := Binary16.RoundSlice(x)
+	want := []float64{Binary16.Round(1.0 / 3), math.Inf(-1), math.NaN(), 0}
+	for i := range want {
+		assert.True(t, same(want[i], got[i]), "element %d", i)
+	}
+	assert.Equal(t, 1.0/3, x[0], "the input is not modified")
+	// float32(0.1) widened exactly is 0.100000001490116119384765625.
+	assert.Equal(t, []float64{0.100000001490116119384765625, -2}, Widen([]float32{0.1, -2}))
+	assert.Empty(t, Widen([]float64(nil)))
+}

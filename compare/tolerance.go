@@ -191,10 +191,7 @@ func MeasureYardstick[T num.Float](f Format, inputs [][]float64, ref []float64, 
 	if len(out) != len(ref) {
 		return nil, fmt.Errorf("%w: the low-precision function returned %d elements, the reference has %d", ErrYardstick, len(out), len(ref))
 	}
-	y := &Yardstick{Format: f, Arithmetic: arith, K: k, Output: make([]float64, len(out))}
-	for i, v := range out {
-		y.Output[i] = f.Round(float64(v))
-	}
+	y := &Yardstick{Format: f, Arithmetic: arith, K: k, Output: f.RoundSlice(Widen(out))}
 	if y.Report, err = Diff(ref, y.Output, shape, Options{Format: f}); err != nil {
 		return nil, err
 	}
