@@ -59,11 +59,20 @@
 // common practice). Wiring a kernel takes a closure:
 //
 //	y, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{q, k, v}, want, shape, compare.DefaultK,
-//		func(in [][]float32) ([]float32, error) { return attention.Forward32(in[0], in[1], in[2], opts) })
+//		func(in [][]float32) ([]float32, error) {
+//			out, _, err := attention.Forward32(in[0], in[1], in[2], s, opts)
+//			return out, err
+//		})
 //	report, err := compare.Diff(want, got, shape, y.Options())
 //
 // (attention.Forward32 stands for the float32 instantiation a kernel
-// package exports; this package imports none of them.)
+// package exports; this package imports none of them.) For attention with
+// 8 query heads on 2 kv heads, 128 queries and keys, head dimension 64 and
+// standard normal inputs, the bfloat16 yardstick measures a max absolute
+// error of 0.00455 and a normwise error of 0.00335; the tolerance is then
+// 0.0133 absolute and 0.0106 normwise. A candidate with one head scaled by
+// 1.05 fails it; one scaled by 1.01 passes, for in bfloat16 (8 significant
+// bits) 1% on one head of eight is within what the format itself loses.
 //
 // # Test helpers
 //

@@ -439,6 +439,11 @@ func (f Format) ordinal(v float64) (mag uint64, neg bool) {
 // measured against a candidate of the format: a distance of 0 then means
 // the candidate is the correctly rounded reference.
 //
+// Near zero the grid is dense: values of opposite sign a little above the
+// subnormal range are tens of thousands of steps apart in bfloat16 (the
+// count crosses every binade down to zero and back), so a large distance
+// there means a sign flip of a tiny value, not a large error.
+//
 // The second result is false, and the distance 0, when either rounded value
 // is NaN (NaN inputs, and in E4M3 values beyond the overflow threshold).
 func (f Format) ULPDistance(a, b float64) (uint64, bool) {
