@@ -85,8 +85,9 @@
 //   - Arguments are (reference, candidate), the order of go-cmp's (want,
 //     got); errors are candidate − reference, so a positive mean signed error
 //     means the candidate is too large.
-//   - ULP is the spacing in the binade of x (Goldberg 1991); the alternative
-//     (Harrison 1999) takes the smaller spacing below a power of two.
+//   - ULP is the spacing in the binade of x (Goldberg 1991); other
+//     definitions take the smaller spacing below x at a power of two (Muller
+//     2005, INRIA RR-5504, compares them).
 //   - ULP distances count steps between the values rounded to the format: 0
 //     means the candidate is the correctly rounded reference. The
 //     alternative, |got − ref| / ULP(ref), is fractional; the report's

@@ -396,8 +396,10 @@ func (f Format) Decode(b uint64) (float64, error) {
 // the spacing MinSubnormal). Values beyond Max use the spacing of the top
 // binade. This is the definition of Goldberg 1991, "What Every Computer
 // Scientist Should Know About Floating-Point Arithmetic", ACM Computing
-// Surveys 23(1), §1.2; the alternative of Harrison 1999 uses the smaller
-// spacing below x at a power of two (ULP(1) would be 2^−p, not 2^(1−p)).
+// Surveys 23(1), §1.2. Other definitions differ only at powers of two,
+// where they take the smaller spacing below x (ULP(1) = 2^−p rather than
+// 2^(1−p)); Muller 2005, "On the definition of ulp(x)", INRIA research
+// report RR-5504, compares them.
 //
 // Special cases are:
 //
