@@ -105,7 +105,11 @@ type Report struct {
 	Normwise float64
 
 	MaxULPs float64     // largest ULP distance among the finite pairs
-	ULPs    []ULPBucket // distribution of ULP distances, buckets 0, 1, 2–3, 4–7, …, up to the largest non-empty
+	// ULPs is the distribution of ULP distances over the finite pairs, in
+	// buckets 0, 1, 2–3, 4–7, … up to the largest non-empty one. A pair
+	// whose distance is undefined (in E4M3, a value beyond the overflow
+	// threshold rounds to NaN) is not counted.
+	ULPs []ULPBucket
 	// NotInFormat counts finite candidate values that are not values of
 	// Format: a sign that the candidate was not rounded to the format the
 	// report assumes.

@@ -146,6 +146,12 @@ func (y *Yardstick) Options() Options {
 //  4. the result is compared with ref by Diff, in format f;
 //  5. the tolerance is k × its error + the floor (see Yardstick).
 //
+// inputs are the float tensors the candidate stores in format f; every
+// other argument (shapes, options, masks, integer tensors) is captured by
+// the closure. A kernel with several outputs (attention's output and
+// log-sum-exp, the gradients of a backward pass) gets one yardstick per
+// output, each closure returning the one it judges.
+//
 // This is the principle of judging a kernel by what its format can do: a
 // candidate whose error is within a small factor of the straightforward
 // implementation's is as good as the format allows; a larger error is a
