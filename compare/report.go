@@ -104,7 +104,7 @@ type Report struct {
 	// are stated in.
 	Normwise float64
 
-	MaxULPs float64     // largest ULP distance among the finite pairs
+	MaxULPs float64 // largest ULP distance among the finite pairs
 	// ULPs is the distribution of ULP distances over the finite pairs, in
 	// buckets 0, 1, 2–3, 4–7, … up to the largest non-empty one. A pair
 	// whose distance is undefined (in E4M3, a value beyond the overflow
