@@ -367,3 +367,21 @@ func leUint64(b []byte) uint64 {
 	}
 	return v
 }
+
+// TestDiffExtremeMagnitudes: the norms are scaled, so squares of errors
+// near float64's limits neither overflow nor underflow (arithmetic:
+// RMS = 0.5·s/√2, Normwise = 0.5/√2 for errors (0.5 s, 0) on (s, s)).
+func TestDiffExtremeMagnitudes(t *testing.T) {
+	for _, s := range []float64{1e200, 1e-200} {
+		r, err := Diff([]float64{s, s}, []float64{1.5 * s, s}, nil, Options{})
+		require.NoError(t, err)
+		assert.InEpsilon(t, 0.5*s/math.Sqrt2, r.RMS, 1e-15)
+		assert.InEpsilon(t, 0.5/math.Sqrt2, r.Normwise, 1e-15)
+		assert.InEpsilon(t, 0.25*s, r.MeanSigned, 1e-15)
+	}
+	// An error that overflows float64 is +Inf, not NaN.
+	r, err := Diff([]float64{-math.MaxFloat64}, []float64{math.MaxFloat64}, nil, Options{})
+	require.NoError(t, err)
+	assert.True(t, math.IsInf(r.MaxAbs, 1))
+	assert.True(t, math.IsInf(r.RMS, 1))
+}
