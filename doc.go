@@ -13,6 +13,25 @@
 //	mask       which keys each query may see: full, causal, band, sliding
 //	           window, prefix-bidirectional, key padding, packed sequences,
 //	           intersections; boolean and additive forms
+//	attention  scaled dot-product attention forward and backward: multi-head,
+//	           grouped and multi-query; masks, bias, ALiBi slopes, soft-capping,
+//	           sink logits; the tiled online-softmax form and the merge of
+//	           partial results; decode against a cache
+//	posenc     position encodings: sinusoidal, rotary (both pairings, partial
+//	           rotation, tables, inverse), context scaling (interpolation,
+//	           NTK-aware, dynamic, YaRN with both ramps, per-frequency), ALiBi
+//	norm       LayerNorm and RMSNorm (ε in the root or added to it; gain w or
+//	           1 + w), the fused residual add + norm, forward and backward
+//	ffn        activations (ReLU, GELU exact/tanh/sigmoid, sigmoid, Swish,
+//	           SiLU) with derivatives; the two-layer feed-forward network and
+//	           the gated units (GLU, Bilinear, ReGLU, GEGLU, SwiGLU), forward
+//	           and backward; the hidden-size rule
+//	compare    number formats (float32, binary16, bfloat16, OCP FP8 E4M3 and
+//	           E5M2) with exact rounding, ULP distances, diff reports,
+//	           tolerances and the low-precision yardstick; helpers for
+//	           testing.TB and go-cmp
+//	npy        read and write NumPy .npy files, the exchange format with a
+//	           port under test
 //
 // Every package takes plain []float64 slices, row-major, with an explicit
 // shape and layout, validates its inputs, and returns errors that name the
@@ -34,22 +53,34 @@
 //	causal alignment when Lq ≠ Lk                AlignEnd: the last query sees the last key;
 //	                                             AlignStart: query i is key position i;
 //	                                             plus an explicit query position offset
-//	band and sliding window                      Band{Before, After}: −Before ≤ j − i ≤ After;
-//	                                             Window(n): n keys ending at the query
+//	band and sliding window                      Band(before, after): −before ≤ j − p ≤ after;
+//	                                             Window(n): the n keys ending at the query,
+//	                                             p − n < j ≤ p
 //	a row that sees no key                       EmptyRowZero (output 0, log-sum-exp −Inf);
 //	                                             EmptyRowNaN (what a naive softmax gives)
 //	rotary pairing                               PairAdjacent: dims (2i, 2i+1);
-//	                                             PairHalves: dims (i, i + d/2)
+//	                                             PairHalves: dims (i, i + r/2), r rotated dims
+//	rotary context scaling                       Interpolation; NTKAware; YaRN (RampRatio or
+//	                                             RampDims); PerFrequency; dynamic via CurrentLength
+//	ALiBi bias                                   ALiBiCausal; ALiBiSymmetric
 //	sinusoidal layout                            Interleaved; Concatenated
-//	RMSNorm epsilon                              inside the square root, or added to the root
-//	norm weight                                  w, or (1 + w)
-//	GELU                                         exact (erf); tanh approximation; sigmoid approximation
-//	mask fill                                    −Inf, or a finite value the caller chooses
+//	norm epsilon                                 EpsilonInRoot: √(s² + ε); EpsilonAddedToRoot: √s² + ε
+//	norm weight                                  WeightAsIs: w; WeightOnePlus: 1 + w
+//	GELU                                         ActGELU (erf); ActGELUTanh; ActGELUSigmoid
+//	weight matrix layout                         InByOut: [in, out], y = x·W;
+//	                                             OutByIn: [out, in], y = x·Wᵀ
+//	fused gate and value weight                  GateUpStacked: all gate units, then all value
+//	                                             units; GateUpInterleaved: alternating
+//	mask fill                                    −Inf (Bias), or a finite value (BiasFill)
 //
 // # Accuracy
 //
 // Each kernel's documentation states the worst normwise relative error
 // ‖got − want‖₂ / ‖want‖₂ measured against the 50-digit golden values; the
 // target is 1e-14 or better. The golden files and the program that makes
-// them are in testdata/ (see testdata/README.md).
+// them are in testdata/ (see testdata/README.md). Measured worst cases: norm
+// 4.7e-16; ffn 5.6e-16, and activations within 5e-16 relative per element
+// in the tails up to |x| = 30; posenc 1.5e-16 at positions up to 2³¹ − 1
+// (angles are formed in double-double arithmetic); masks, ALiBi slopes and
+// format conversions exact.
 package plumb

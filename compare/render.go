@@ -1,0 +1,266 @@
+package compare
+
+import (
+	"bytes"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+	"text/tabwriter"
+)
+
+// WriteText writes the report to w as text aligned for a terminal: the
+// measures, the ULP distribution, the worst elements, the tolerance and the
+// verdict. Numbers are printed with 4 significant digits (values of the
+// worst elements with enough digits to tell them apart in float64).
+func (r *Report) WriteText(w io.Writer) error {
+	var b bytes.Buffer
+	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+	fmt.Fprintf(&b, "%d elements, shape %v, candidate format %v\n", r.Elements, r.Shape, r.Format)
+	if r.Finite > 0 {
+		fmt.Fprintf(tw, "  max abs error\t%s\tat %v\n", g4(r.MaxAbs), r.MaxAbsAt)
+		fmt.Fprintf(tw, "  max rel error\t%s\tat %v (floor %s)\n", g4(r.MaxRel), r.MaxRelAt, g4(r.RelFloor))
+		fmt.Fprintf(tw, "  RMS error\t%s\t\n", g4(r.RMS))
+		fmt.Fprintf(tw, "  mean signed error\t%s\t(got − ref)\n", g4(r.MeanSigned))
+		fmt.Fprintf(tw, "  normwise rel error\t%s\t\n", g4(r.Normwise))
+		fmt.Fprintf(tw, "  max ULP distance\t%s\t(%v)\n", g4(r.MaxULPs), r.Format)
+	}
+	fmt.Fprintf(tw, "  NaN mismatches\t%d\n", r.NaNMismatches)
+	fmt.Fprintf(tw, "  Inf mismatches\t%d\n", r.InfMismatches)
+	if r.NonFiniteMatches > 0 {
+		fmt.Fprintf(tw, "  NaN/Inf matches\t%d\n", r.NonFiniteMatches)
+	}
+	if r.NotInFormat > 0 {
+		fmt.Fprintf(tw, "  not %v values\t%d\tcandidate values off the format's grid\n", r.Format, r.NotInFormat)
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	if len(r.ULPs) > 0 {
+		fmt.Fprintf(&b, "ULP distances in %v:\n", r.Format)
+		for _, u := range r.ULPs {
+			if u.Count == 0 {
+				continue // JSON keeps the empty buckets; text is for reading
+			}
+			span := strconv.FormatUint(u.Lo, 10)
+			if u.Hi != u.Lo {
+				span += "–" + strconv.FormatUint(u.Hi, 10)
+			}
+			fmt.Fprintf(tw, "  %s\t%d\t%5.1f%%\n", span, u.Count, 100*float64(u.Count)/float64(r.Finite))
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+	}
+	if len(r.Worst) > 0 {
+		fmt.Fprintf(&b, "worst %d elements:\n", len(r.Worst))
+		fmt.Fprintf(tw, "  index\treference\tcandidate\tabs error\trel error\tULPs\n")
+		for _, e := range r.Worst {
+			fmt.Fprintf(tw, "  %v\t%s\t%s\t%s\t%s\t%s\n", e.Index, g17(e.Ref), g17(e.Got), g4(e.AbsErr), g4(e.RelErr), g4(e.ULPs))
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+	}
+	if t := r.Tolerance; t != nil {
+		fmt.Fprintf(&b, "tolerance: abs %s, rel %s, ULPs %d, normwise %s\n", g4(t.Abs), g4(t.Rel), t.ULPs, g4(t.MaxNormwise))
+		if t.Basis != "" {
+			fmt.Fprintf(&b, "  basis: %s\n", t.Basis)
+		}
+	}
+	if v := r.Verdict; v != nil {
+		if v.Pass {
+			b.WriteString("verdict: PASS\n")
+		} else {
+			fmt.Fprintf(&b, "verdict: FAIL: %s\n", strings.Join(v.Reasons, "; "))
+		}
+	}
+	// Empty last cells leave trailing blanks; drop them.
+	lines := strings.SplitAfter(b.String(), "\n")
+	var out strings.Builder
+	for _, l := range lines {
+		if strings.HasSuffix(l, "\n") {
+			out.WriteString(strings.TrimRight(l[:len(l)-1], " "))
+			out.WriteByte('\n')
+		} else {
+			out.WriteString(l)
+		}
+	}
+	_, err := io.WriteString(w, out.String())
+	return err
+}
+
+// String returns the text WriteText writes.
+func (r *Report) String() string {
+	var b strings.Builder
+	_ = r.WriteText(&b) // a strings.Builder does not fail
+	return b.String()
+}
+
+func g4(x float64) string  { return strconv.FormatFloat(x, 'g', 4, 64) }
+func g17(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+
+// jsonFloat is a float64 that JSON carries as a number when finite and as
+// the strings "nan", "inf" and "-inf" otherwise, which encoding/json cannot.
+type jsonFloat float64
+
+func (x jsonFloat) MarshalJSON() ([]byte, error) {
+	v := float64(x)
+	switch {
+	case math.IsNaN(v):
+		return []byte(`"nan"`), nil
+	case math.IsInf(v, 1):
+		return []byte(`"inf"`), nil
+	case math.IsInf(v, -1):
+		return []byte(`"-inf"`), nil
+	}
+	return strconv.AppendFloat(nil, v, 'g', -1, 64), nil
+}
+
+func (x *jsonFloat) UnmarshalJSON(b []byte) error {
+	switch string(b) {
+	case `"nan"`:
+		*x = jsonFloat(math.NaN())
+		return nil
+	case `"inf"`:
+		*x = jsonFloat(math.Inf(1))
+		return nil
+	case `"-inf"`:
+		*x = jsonFloat(math.Inf(-1))
+		return nil
+	}
+	var v float64
+	if err := json.Unmarshal(b, &v); err != nil {
+		return err
+	}
+	*x = jsonFloat(v)
+	return nil
+}
+
+type jsonElement struct {
+	Index  []int     `json:"index"`
+	Offset int       `json:"offset"`
+	Ref    jsonFloat `json:"reference"`
+	Got    jsonFloat `json:"candidate"`
+	AbsErr jsonFloat `json:"abs_error"`
+	RelErr jsonFloat `json:"rel_error"`
+	ULPs   jsonFloat `json:"ulps"`
+}
+
+type jsonBucket struct {
+	Lo    uint64 `json:"from"`
+	Hi    uint64 `json:"to"`
+	Count int    `json:"count"`
+}
+
+type jsonTolerance struct {
+	Abs         jsonFloat `json:"abs"`
+	Rel         jsonFloat `json:"rel"`
+	ULPs        uint64    `json:"ulps"`
+	MaxNormwise jsonFloat `json:"max_normwise"`
+	Basis       string    `json:"basis"`
+}
+
+type jsonVerdict struct {
+	Pass    bool     `json:"pass"`
+	Failed  int      `json:"failed_elements"`
+	Reasons []string `json:"reasons"`
+}
+
+type jsonReport struct {
+	Shape            []int          `json:"shape"`
+	Elements         int            `json:"elements"`
+	Format           Format         `json:"format"`
+	Finite           int            `json:"finite_pairs"`
+	MaxAbs           jsonFloat      `json:"max_abs_error"`
+	MaxAbsAt         []int          `json:"max_abs_error_at"`
+	MaxRel           jsonFloat      `json:"max_rel_error"`
+	MaxRelAt         []int          `json:"max_rel_error_at"`
+	RelFloor         jsonFloat      `json:"rel_error_floor"`
+	RMS              jsonFloat      `json:"rms_error"`
+	MeanSigned       jsonFloat      `json:"mean_signed_error"`
+	Normwise         jsonFloat      `json:"normwise_rel_error"`
+	MaxULPs          jsonFloat      `json:"max_ulps"`
+	ULPs             []jsonBucket   `json:"ulp_histogram"`
+	NotInFormat      int            `json:"not_in_format"`
+	NaNMismatches    int            `json:"nan_mismatches"`
+	InfMismatches    int            `json:"inf_mismatches"`
+	NonFiniteMatches int            `json:"nonfinite_matches"`
+	Worst            []jsonElement  `json:"worst"`
+	Tolerance        *jsonTolerance `json:"tolerance"`
+	Verdict          *jsonVerdict   `json:"verdict"`
+}
+
+// MarshalJSON encodes the report as one JSON object with these keys, in
+// this order, whatever the Go field names become:
+//
+//	shape, elements, format (a name as FormatByName accepts), finite_pairs,
+//	max_abs_error, max_abs_error_at, max_rel_error, max_rel_error_at,
+//	rel_error_floor, rms_error, mean_signed_error, normwise_rel_error,
+//	max_ulps, ulp_histogram ([{from, to, count}]), not_in_format,
+//	nan_mismatches, inf_mismatches, nonfinite_matches,
+//	worst ([{index, offset, reference, candidate, abs_error, rel_error, ulps}]),
+//	tolerance ({abs, rel, ulps, max_normwise, basis} or null),
+//	verdict ({pass, failed_elements, reasons} or null).
+//
+// Non-finite numbers are the strings "nan", "inf" and "-inf"; finite ones
+// are printed with the shortest decimal that reads back exactly.
+func (r *Report) MarshalJSON() ([]byte, error) {
+	j := jsonReport{
+		Shape: r.Shape, Elements: r.Elements, Format: r.Format, Finite: r.Finite,
+		MaxAbs: jsonFloat(r.MaxAbs), MaxAbsAt: r.MaxAbsAt,
+		MaxRel: jsonFloat(r.MaxRel), MaxRelAt: r.MaxRelAt, RelFloor: jsonFloat(r.RelFloor),
+		RMS: jsonFloat(r.RMS), MeanSigned: jsonFloat(r.MeanSigned), Normwise: jsonFloat(r.Normwise),
+		MaxULPs: jsonFloat(r.MaxULPs), NotInFormat: r.NotInFormat,
+		NaNMismatches: r.NaNMismatches, InfMismatches: r.InfMismatches, NonFiniteMatches: r.NonFiniteMatches,
+		ULPs: []jsonBucket{}, Worst: []jsonElement{},
+	}
+	for _, u := range r.ULPs {
+		j.ULPs = append(j.ULPs, jsonBucket(u))
+	}
+	for _, e := range r.Worst {
+		j.Worst = append(j.Worst, jsonElement{e.Index, e.Offset, jsonFloat(e.Ref), jsonFloat(e.Got),
+			jsonFloat(e.AbsErr), jsonFloat(e.RelErr), jsonFloat(e.ULPs)})
+	}
+	if t := r.Tolerance; t != nil {
+		j.Tolerance = &jsonTolerance{jsonFloat(t.Abs), jsonFloat(t.Rel), t.ULPs, jsonFloat(t.MaxNormwise), t.Basis}
+	}
+	if v := r.Verdict; v != nil {
+		j.Verdict = &jsonVerdict{v.Pass, v.Failed, append([]string{}, v.Reasons...)}
+	}
+	return json.Marshal(j)
+}
+
+// UnmarshalJSON decodes what MarshalJSON encodes, refusing unknown keys.
+func (r *Report) UnmarshalJSON(b []byte) error {
+	var j jsonReport
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(&j); err != nil {
+		return fmt.Errorf("compare: report JSON: %w", err)
+	}
+	*r = Report{
+		Shape: j.Shape, Elements: j.Elements, Format: j.Format, Finite: j.Finite,
+		MaxAbs: float64(j.MaxAbs), MaxAbsAt: j.MaxAbsAt,
+		MaxRel: float64(j.MaxRel), MaxRelAt: j.MaxRelAt, RelFloor: float64(j.RelFloor),
+		RMS: float64(j.RMS), MeanSigned: float64(j.MeanSigned), Normwise: float64(j.Normwise),
+		MaxULPs: float64(j.MaxULPs), NotInFormat: j.NotInFormat,
+		NaNMismatches: j.NaNMismatches, InfMismatches: j.InfMismatches, NonFiniteMatches: j.NonFiniteMatches,
+	}
+	for _, u := range j.ULPs {
+		r.ULPs = append(r.ULPs, ULPBucket(u))
+	}
+	for _, e := range j.Worst {
+		r.Worst = append(r.Worst, Element{e.Index, e.Offset, float64(e.Ref), float64(e.Got),
+			float64(e.AbsErr), float64(e.RelErr), float64(e.ULPs)})
+	}
+	if t := j.Tolerance; t != nil {
+		r.Tolerance = &Tolerance{float64(t.Abs), float64(t.Rel), t.ULPs, float64(t.MaxNormwise), t.Basis}
+	}
+	if v := j.Verdict; v != nil {
+		r.Verdict = &Verdict{v.Pass, v.Failed, v.Reasons}
+	}
+	return nil
+}

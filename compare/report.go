@@ -1,0 +1,377 @@
+package compare
+
+import (
+	"fmt"
+	"math"
+	"math/bits"
+)
+
+// DefaultWorst is the number of worst elements a Report lists when
+// Options.Worst is 0.
+const DefaultWorst = 5
+
+// DefaultRelFloorFactor is the default relative-error floor as a fraction
+// of the reference's largest magnitude: 2^−10 ≈ 9.8e−4 (our choice; see
+// Options.RelFloor).
+const DefaultRelFloorFactor = 1.0 / 1024
+
+// Options control Diff.
+type Options struct {
+	// Format is the candidate's number format, the grid on which ULP
+	// distances are counted. The zero value is Float64.
+	Format Format
+
+	// Tolerance, when not nil, makes the report carry a Verdict.
+	Tolerance *Tolerance
+
+	// Worst is how many of the worst elements to list: 0 means
+	// DefaultWorst, a negative value none.
+	Worst int
+
+	// RelFloor is the denominator floor of the relative error,
+	//
+	//	rel_i = |got_i − ref_i| / max(|ref_i|, floor),
+	//
+	// so that elements of the reference near zero (cancellation leaves many
+	// in any real tensor) do not swamp the maximum relative error with
+	// meaningless huge quotients. 0 means the default, DefaultRelFloorFactor
+	// · max_i |ref_i| over the finite elements (1 if they are all 0, so that
+	// the relative error is then the absolute error): an element a thousand
+	// times smaller than the largest is measured relative to that
+	// thousandth. Other common choices are a fixed floor (a constant such as
+	// 1e−6), which is not scale invariant, or none, which is dominated by
+	// near-zero elements. A positive value is used as the floor itself; a
+	// negative or NaN value is an error.
+	RelFloor float64
+}
+
+// Element is one element of a comparison, at its multi-dimensional index.
+type Element struct {
+	Index  []int   // row-major index into the shape
+	Offset int     // flat offset into the slices
+	Ref    float64 // reference value
+	Got    float64 // candidate value
+	AbsErr float64 // |Got − Ref|; +Inf when they disagree on NaN or Inf
+	RelErr float64 // AbsErr / max(|Ref|, RelFloor)
+	ULPs   float64 // ULP distance in the report's format; NaN when undefined or a NaN/Inf mismatch
+}
+
+// ULPBucket counts the elements whose ULP distance d lies in [Lo, Hi].
+type ULPBucket struct {
+	Lo, Hi uint64
+	Count  int
+}
+
+// Verdict is the outcome of a comparison under a Tolerance.
+type Verdict struct {
+	Pass bool
+	// Failed is the number of elements that fail the elementwise test
+	// (NaN and Inf mismatches included).
+	Failed int
+	// Reasons says, one sentence each, why the comparison fails; empty when
+	// it passes.
+	Reasons []string
+}
+
+// Report is the comparison of a candidate tensor with a reference: the
+// error measures, the ULP distribution, the mismatched non-finite values,
+// the worst elements and, under a tolerance, the verdict. It renders as
+// aligned text (WriteText, String) and as JSON (MarshalJSON, with keys
+// documented there). Errors are measured as got − ref.
+//
+// The numeric measures are taken over the pairs where both values are
+// finite; pairs where either is NaN or ±Inf are counted apart, as matches
+// (NaN with NaN, or the same infinity) or mismatches.
+type Report struct {
+	Shape    []int  // shape of the tensors
+	Elements int    // number of elements
+	Format   Format // the candidate's format, the grid of the ULP distances
+
+	Finite int // pairs where both values are finite
+
+	MaxAbs   float64 // max |got − ref|
+	MaxAbsAt []int   // its index (nil when there are no finite pairs)
+	MaxRel   float64 // max |got − ref| / max(|ref|, RelFloor)
+	MaxRelAt []int   // its index
+	RelFloor float64 // the floor used
+	RMS      float64 // √(Σ (got − ref)² / Finite)
+	// MeanSigned is Σ (got − ref) / Finite: a systematic bias (always
+	// rounding one way, a missing or extra term) shows as a mean far from
+	// zero compared with RMS, which random rounding does not give.
+	MeanSigned float64
+	// Normwise is ‖got − ref‖₂ / ‖ref‖₂ over the finite pairs (the absolute
+	// ‖got − ref‖₂ when ‖ref‖₂ = 0), the measure plumb's accuracy targets
+	// are stated in.
+	Normwise float64
+
+	MaxULPs float64 // largest ULP distance among the finite pairs
+	// ULPs is the distribution of ULP distances over the finite pairs, in
+	// buckets 0, 1, 2–3, 4–7, … up to the largest non-empty one. A pair
+	// whose distance is undefined (in E4M3, a value beyond the overflow
+	// threshold rounds to NaN) is not counted.
+	ULPs []ULPBucket
+	// NotInFormat counts finite candidate values that are not values of
+	// Format: a sign that the candidate was not rounded to the format the
+	// report assumes.
+	NotInFormat int
+
+	NaNMismatches    int // one of the pair is NaN, the other not
+	InfMismatches    int // neither is NaN, one is ±Inf, and they differ
+	NonFiniteMatches int // NaN with NaN, or equal infinities
+
+	Worst []Element // the worst elements, worst first
+
+	Tolerance *Tolerance // the tolerance of the verdict, if any
+	Verdict   *Verdict   // nil without a tolerance
+}
+
+// Diff compares the candidate got with the reference ref, both row-major
+// tensors of the given shape (nil shape: one dimension of len(ref)), and
+// returns the report.
+//
+// The worst elements are ranked, worst first, by: NaN or Inf mismatches;
+// then, with a tolerance, by how many times the element's error exceeds what
+// the tolerance allows; without one, by absolute error. Equal ranks keep
+// the order of the offsets.
+//
+// Special cases are:
+//
+//	len(ref) = 0 with shape [0] or nil   an empty report (no measures), verdict pass
+//	len(got) ≠ len(ref), or shape's product ≠ len(ref), or a negative dimension   ErrShape
+//	invalid opt.Format                    ErrFormat
+//	negative or NaN RelFloor or tolerance ErrTolerance
+//	got − ref overflowing float64         +Inf in MaxAbs, RMS, MeanSigned, Normwise
+func Diff(ref, got []float64, shape []int, opt Options) (*Report, error) {
+	if len(got) != len(ref) {
+		return nil, fmt.Errorf("%w: candidate has %d elements, reference has %d", ErrShape, len(got), len(ref))
+	}
+	shape, err := checkShape(shape, len(ref))
+	if err != nil {
+		return nil, err
+	}
+	if !opt.Format.Valid() {
+		return nil, fmt.Errorf("%w: Options.Format is %v", ErrFormat, opt.Format)
+	}
+	if math.IsNaN(opt.RelFloor) || opt.RelFloor < 0 || math.IsInf(opt.RelFloor, 0) {
+		return nil, fmt.Errorf("%w: RelFloor is %v; want a finite value ≥ 0 (0 for the default)", ErrTolerance, opt.RelFloor)
+	}
+	if opt.Tolerance != nil {
+		if err := opt.Tolerance.Validate(); err != nil {
+			return nil, err
+		}
+	}
+	r := &Report{Shape: shape, Elements: len(ref), Format: opt.Format, Tolerance: opt.Tolerance}
+	f := opt.Format
+
+	// The floor needs the largest reference magnitude.
+	r.RelFloor = opt.RelFloor
+	if r.RelFloor == 0 {
+		big := 0.0
+		for _, v := range ref {
+			if a := math.Abs(v); a > big && !math.IsInf(a, 0) {
+				big = a
+			}
+		}
+		r.RelFloor = DefaultRelFloorFactor * big
+		if big == 0 {
+			r.RelFloor = 1
+		}
+	}
+
+	nworst := opt.Worst
+	if nworst == 0 {
+		nworst = DefaultWorst
+	}
+	worst := newTopK(max(nworst, 0))
+
+	var (
+		diffs, refs = newNorm(), newNorm()
+		sum         float64
+		maxAbsAt    = -1
+		maxRelAt    = -1
+		hist        [65]int
+		failed      int
+	)
+	for i := range ref {
+		x, y := ref[i], got[i]
+		e := Element{Offset: i, Ref: x, Got: y, ULPs: math.NaN()}
+		if d, ok := f.ULPDistance(x, y); ok {
+			e.ULPs = float64(d)
+		}
+		score := 0.0
+		if !finite(x) || !finite(y) {
+			switch {
+			case math.IsNaN(x) && math.IsNaN(y), x == y:
+				r.NonFiniteMatches++
+				continue
+			case math.IsNaN(x) || math.IsNaN(y):
+				r.NaNMismatches++
+			default:
+				r.InfMismatches++
+			}
+			e.AbsErr, e.RelErr, e.ULPs = math.Inf(1), math.Inf(1), math.NaN()
+			score = math.Inf(1)
+			failed++
+		} else {
+			r.Finite++
+			d := y - x
+			e.AbsErr = math.Abs(d)
+			e.RelErr = e.AbsErr / math.Max(math.Abs(x), r.RelFloor)
+			if maxAbsAt < 0 || e.AbsErr > r.MaxAbs {
+				r.MaxAbs, maxAbsAt = e.AbsErr, i
+			}
+			if maxRelAt < 0 || e.RelErr > r.MaxRel {
+				r.MaxRel, maxRelAt = e.RelErr, i
+			}
+			diffs.add(d)
+			refs.add(x)
+			sum += d
+			if !math.IsNaN(e.ULPs) {
+				hist[bits.Len64(uint64(e.ULPs))]++
+				r.MaxULPs = math.Max(r.MaxULPs, e.ULPs)
+			}
+			if !f.Contains(y) {
+				r.NotInFormat++
+			}
+			if opt.Tolerance != nil {
+				score = opt.Tolerance.excess(x, e.AbsErr, e.ULPs)
+				if score > 1 {
+					failed++
+				}
+			} else {
+				score = e.AbsErr
+			}
+		}
+		worst.push(score, e)
+	}
+	if r.Finite > 0 {
+		n := float64(r.Finite)
+		r.RMS = diffs.value() / math.Sqrt(n)
+		r.MeanSigned = sum / n
+		r.Normwise = diffs.value()
+		if rn := refs.value(); rn != 0 {
+			r.Normwise /= rn
+		}
+		r.MaxAbsAt = unflatten(maxAbsAt, shape)
+		r.MaxRelAt = unflatten(maxRelAt, shape)
+		top := 0
+		for k, c := range hist {
+			if c > 0 {
+				top = k
+			}
+		}
+		for k := 0; k <= top; k++ {
+			lo, hi := uint64(0), uint64(0)
+			if k > 0 {
+				lo = 1 << (k - 1)
+				hi = lo<<1 - 1
+				if k == 64 {
+					hi = math.MaxUint64
+				}
+			}
+			r.ULPs = append(r.ULPs, ULPBucket{Lo: lo, Hi: hi, Count: hist[k]})
+		}
+	}
+	r.Worst = worst.elements()
+	for k := range r.Worst {
+		r.Worst[k].Index = unflatten(r.Worst[k].Offset, shape)
+	}
+	if opt.Tolerance != nil {
+		r.Verdict = opt.Tolerance.verdict(r, failed)
+	}
+	return r, nil
+}
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// checkShape returns the shape to use for n elements.
+func checkShape(shape []int, n int) ([]int, error) {
+	if shape == nil {
+		return []int{n}, nil
+	}
+	p := 1
+	for k, d := range shape {
+		if d < 0 {
+			return nil, fmt.Errorf("%w: dimension %d of shape %v is negative", ErrShape, k, shape)
+		}
+		if d != 0 && p > math.MaxInt/d {
+			return nil, fmt.Errorf("%w: shape %v holds more elements than an int counts", ErrShape, shape)
+		}
+		p *= d
+	}
+	if p != n {
+		return nil, fmt.Errorf("%w: shape %v holds %d elements, the tensors have %d", ErrShape, shape, p, n)
+	}
+	return append([]int(nil), shape...), nil
+}
+
+// unflatten turns a row-major offset into an index of shape.
+func unflatten(off int, shape []int) []int {
+	idx := make([]int, len(shape))
+	for k := len(shape) - 1; k >= 0; k-- {
+		if shape[k] > 0 {
+			idx[k] = off % shape[k]
+			off /= shape[k]
+		}
+	}
+	return idx
+}
+
+// norm accumulates a Euclidean norm with scaling, so that it neither
+// overflows nor underflows (the method of LAPACK's dnrm2).
+type norm struct{ scale, ssq float64 }
+
+func newNorm() norm { return norm{0, 1} }
+
+func (n *norm) add(v float64) {
+	if v == 0 {
+		return
+	}
+	a := math.Abs(v)
+	if math.IsInf(a, 0) {
+		n.scale, n.ssq = math.Inf(1), 1
+		return
+	}
+	if n.scale < a {
+		n.ssq = 1 + n.ssq*(n.scale/a)*(n.scale/a)
+		n.scale = a
+	} else {
+		n.ssq += (a / n.scale) * (a / n.scale)
+	}
+}
+
+func (n *norm) value() float64 { return n.scale * math.Sqrt(n.ssq) }
+
+// topK keeps the k elements with the largest scores; equal scores keep the
+// smaller offset, so the result does not depend on anything but the data.
+type topK struct {
+	k      int
+	scores []float64
+	elems  []Element
+}
+
+func newTopK(k int) *topK { return &topK{k: k} }
+
+func (t *topK) push(score float64, e Element) {
+	if t.k == 0 || !(score > 0) {
+		return // exact elements are never listed
+	}
+	if len(t.elems) == t.k && !(score > t.scores[t.k-1]) {
+		return
+	}
+	// Insertion point: after every element with a score ≥ this one (the
+	// offsets arrive in increasing order).
+	i := len(t.scores)
+	for i > 0 && score > t.scores[i-1] {
+		i--
+	}
+	if len(t.elems) < t.k {
+		t.scores = append(t.scores, 0)
+		t.elems = append(t.elems, Element{})
+	}
+	copy(t.scores[i+1:], t.scores[i:])
+	copy(t.elems[i+1:], t.elems[i:])
+	t.scores[i], t.elems[i] = score, e
+}
+
+func (t *topK) elements() []Element { return t.elems }

@@ -1,0 +1,387 @@
+package compare
+
+import (
+	"encoding/json"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"strings"
+	"testing"
+
+	"github.com/google/go-cmp/cmp"
+	"github.com/google/go-cmp/cmp/cmpopts"
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/golden"
+)
+
+func TestDiffMeasures(t *testing.T) {
+	// Worked by hand (arithmetic): errors got − ref = 0, 0.5, −1, 0.
+	ref := []float64{1, 2, 4, 0}
+	got := []float64{1, 2.5, 3, 0}
+	r, err := Diff(ref, got, []int{2, 2}, Options{Format: Float32})
+	require.NoError(t, err)
+	assert.Equal(t, []int{2, 2}, r.Shape)
+	assert.Equal(t, 4, r.Elements)
+	assert.Equal(t, 4, r.Finite)
+	assert.Equal(t, 1.0, r.MaxAbs)
+	assert.Equal(t, []int{1, 0}, r.MaxAbsAt)
+	// rel = 0.5/2 = 0.25 and 1/4 = 0.25; the first keeps the maximum.
+	assert.Equal(t, 0.25, r.MaxRel)
+	assert.Equal(t, []int{0, 1}, r.MaxRelAt)
+	assert.Equal(t, 4.0/1024, r.RelFloor) // DefaultRelFloorFactor · max|ref|
+	assert.InDelta(t, math.Sqrt(1.25/4), r.RMS, 1e-16)
+	assert.Equal(t, -0.125, r.MeanSigned)
+	assert.InDelta(t, math.Sqrt(1.25/21), r.Normwise, 1e-16)
+	// Float32 ULPs: 2 → 2.5 is 0.5 / 2^−22 = 2^21 steps; 3 → 4 is
+	// 1 / 2^−22 = 2^22 steps (3 is in the binade [2, 4)).
+	assert.Equal(t, float64(1<<22), r.MaxULPs)
+	require.Len(t, r.ULPs, 24)
+	assert.Equal(t, ULPBucket{0, 0, 2}, r.ULPs[0])
+	assert.Equal(t, ULPBucket{1 << 20, 1<<21 - 1, 0}, r.ULPs[21])
+	assert.Equal(t, ULPBucket{1 << 21, 1<<22 - 1, 1}, r.ULPs[22])
+	assert.Equal(t, ULPBucket{1 << 22, 1<<23 - 1, 1}, r.ULPs[23])
+	assert.Zero(t, r.NotInFormat)
+	// Worst by absolute error, exact elements not listed.
+	require.Len(t, r.Worst, 2)
+	assert.Equal(t, Element{Index: []int{1, 0}, Offset: 2, Ref: 4, Got: 3, AbsErr: 1, RelErr: 0.25, ULPs: 1 << 22}, r.Worst[0])
+	assert.Equal(t, []int{0, 1}, r.Worst[1].Index)
+	assert.Nil(t, r.Verdict)
+}
+
+func TestDiffNonFinite(t *testing.T) {
+	inf, nan := math.Inf(1), math.NaN()
+	ref := []float64{nan, inf, -inf, nan, 1, inf, 1, 2}
+	got := []float64{nan, inf, -inf, 1, nan, -inf, inf, 2}
+	r, err := Diff(ref, got, nil, Options{})
+	require.NoError(t, err)
+	assert.Equal(t, 3, r.NonFiniteMatches)
+	assert.Equal(t, 2, r.NaNMismatches)
+	assert.Equal(t, 2, r.InfMismatches)
+	assert.Equal(t, 1, r.Finite)
+	require.Len(t, r.Worst, 4) // the mismatches, in offset order
+	for k, off := range []int{3, 4, 5, 6} {
+		assert.Equal(t, off, r.Worst[k].Offset)
+		assert.True(t, math.IsInf(r.Worst[k].AbsErr, 1))
+	}
+	tol := Tolerance{Abs: 1e300}
+	r, err = Diff(ref, got, nil, Options{Tolerance: &tol})
+	require.NoError(t, err)
+	assert.False(t, r.Verdict.Pass, "a non-finite mismatch fails under any tolerance")
+	assert.Equal(t, 4, r.Verdict.Failed)
+}
+
+func TestDiffArguments(t *testing.T) {
+	one := []float64{1, 2, 3, 4, 5, 6}
+	tests := []struct {
+		name     string
+		ref, got []float64
+		shape    []int
+		opt      Options
+		want     error
+		contains string
+	}{
+		{"lengths", one, one[:5], nil, Options{}, ErrShape, "candidate has 5 elements, reference has 6"},
+		{"shape product", one, one, []int{2, 2}, Options{}, ErrShape, "shape [2 2] holds 4 elements, the tensors have 6"},
+		{"negative dim", one, one, []int{-2, -3}, Options{}, ErrShape, "dimension 0 of shape [-2 -3] is negative"},
+		{"overflowing shape", one, one, []int{1 << 40, 1 << 40}, Options{}, ErrShape, "more elements"},
+		{"format", one, one, nil, Options{Format: -1}, ErrFormat, "Format(-1)"},
+		{"floor", one, one, nil, Options{RelFloor: -1}, ErrTolerance, "RelFloor is -1"},
+		{"floor nan", one, one, nil, Options{RelFloor: math.NaN()}, ErrTolerance, "RelFloor is NaN"},
+		{"tolerance", one, one, nil, Options{Tolerance: &Tolerance{Rel: -1}}, ErrTolerance, "Rel is -1"},
+		{"tolerance inf", one, one, nil, Options{Tolerance: &Tolerance{Abs: math.Inf(1)}}, ErrTolerance, "Abs is +Inf"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := Diff(tc.ref, tc.got, tc.shape, tc.opt)
+			require.ErrorIs(t, err, tc.want)
+			assert.Contains(t, err.Error(), tc.contains)
+		})
+	}
+}
+
+func TestDiffEmptyAndOptions(t *testing.T) {
+	r, err := Diff(nil, nil, nil, Options{Tolerance: &Tolerance{}})
+	require.NoError(t, err)
+	assert.Equal(t, []int{0}, r.Shape)
+	assert.True(t, r.Verdict.Pass)
+	assert.Nil(t, r.MaxAbsAt)
+	assert.Contains(t, r.String(), "0 elements")
+
+	ref := []float64{0, 0, 0}
+	got := []float64{0.5, 0, 0}
+	r, err = Diff(ref, got, []int{3, 1, 1}, Options{})
+	require.NoError(t, err)
+	assert.Equal(t, 1.0, r.RelFloor, "an all-zero reference has floor 1")
+	assert.Equal(t, 0.5, r.MaxRel)
+	assert.Equal(t, 0.5, r.Normwise, "a zero reference norm gives the absolute norm")
+
+	r, err = Diff(ref, got, nil, Options{RelFloor: 0.25, Worst: -1})
+	require.NoError(t, err)
+	assert.Equal(t, 2.0, r.MaxRel)
+	assert.Empty(t, r.Worst)
+}
+
+func TestWorstRanking(t *testing.T) {
+	n := 50
+	ref := make([]float64, n)
+	got := make([]float64, n)
+	for i := range ref {
+		ref[i] = float64(i + 1)
+		got[i] = ref[i] + float64(i%7)/8 // repeated exact errors: ties
+	}
+	r, err := Diff(ref, got, []int{5, 10}, Options{Worst: 8})
+	require.NoError(t, err)
+	require.Len(t, r.Worst, 8)
+	// Errors 6/8 at i = 6, 13, 20, 27, 34, 41, 48, then 5/8 at 5: ties in
+	// offset order.
+	var offs []int
+	for _, e := range r.Worst {
+		offs = append(offs, e.Offset)
+		assert.Equal(t, []int{e.Offset / 10, e.Offset % 10}, e.Index)
+	}
+	assert.Equal(t, []int{6, 13, 20, 27, 34, 41, 48, 5}, offs)
+
+	// Under a relative tolerance the small references rank first.
+	tol := Tolerance{Rel: 1e-4}
+	r, err = Diff(ref, got, nil, Options{Tolerance: &tol, Worst: 1})
+	require.NoError(t, err)
+	assert.Equal(t, 6, r.Worst[0].Offset)
+	assert.False(t, r.Verdict.Pass)
+}
+
+func TestVerdict(t *testing.T) {
+	ref := []float64{1, 2, 3, 4}
+	tests := []struct {
+		name   string
+		got    []float64
+		tol    Tolerance
+		pass   bool
+		failed int
+	}{
+		{"exact under zero tolerance", []float64{1, 2, 3, 4}, Tolerance{}, true, 0},
+		{"−0 equals +0", []float64{1, 2, 3, 4}, Tolerance{}, true, 0},
+		{"one ULP under zero tolerance", []float64{1, 2, 3, math.Nextafter(4, 5)}, Tolerance{}, false, 1},
+		{"error equal to Abs passes", []float64{1, 2, 3, 4.5}, Tolerance{Abs: 0.5}, true, 0},
+		{"error just above Abs fails", []float64{1, 2, 3, math.Nextafter(4.5, 5)}, Tolerance{Abs: 0.5}, false, 1},
+		// Abs + Rel·|ref| = 0.25 + 0.0625·4 = 0.5
+		{"combined", []float64{1, 2, 3, 4.5}, Tolerance{Abs: 0.25, Rel: 0.0625}, true, 0},
+		// 4 → 4 + 2^−21 is 1 ULP of float32 at 4 (2^−21).
+		{"ULPs", []float64{1, 2, 3, 4 + pow2(-21)}, Tolerance{ULPs: 1}, true, 0},
+		{"ULPs exceeded", []float64{1, 2, 3, 4 + pow2(-20)}, Tolerance{ULPs: 1}, false, 1},
+		// normwise = 0.5/√30 ≈ 0.0913
+		{"normwise passes", []float64{1, 2, 3, 4.5}, Tolerance{Abs: 1, MaxNormwise: 0.092}, true, 0},
+		{"normwise fails", []float64{1, 2, 3, 4.5}, Tolerance{Abs: 1, MaxNormwise: 0.091}, false, 0},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			tol := tc.tol
+			r, err := Diff(ref, tc.got, nil, Options{Format: Float32, Tolerance: &tol})
+			require.NoError(t, err)
+			assert.Equal(t, tc.pass, r.Verdict.Pass, r.String())
+			assert.Equal(t, tc.failed, r.Verdict.Failed)
+			assert.Equal(t, tc.pass, len(r.Verdict.Reasons) == 0)
+		})
+	}
+}
+
+func TestNotInFormat(t *testing.T) {
+	ref := []float64{1, 2, 3}
+	got := []float64{1.001, 2, 3 + pow2(-8)} // 1.001 is no bfloat16; 3 + 2^−8 is not either (ULP 2^−6)
+	r, err := Diff(ref, got, nil, Options{Format: BFloat16})
+	require.NoError(t, err)
+	assert.Equal(t, 2, r.NotInFormat)
+}
+
+// TestDiffProperties checks invariants of the measures on random tensors
+// (fixed seed): MaxAbs ≥ RMS ≥ |MeanSigned|; the histogram counts the
+// finite pairs; Normwise agrees with the project's golden.NormwiseRelErr;
+// the worst list is sorted by absolute error and led by MaxAbs.
+func TestDiffProperties(t *testing.T) {
+	r := rand.New(rand.NewPCG(7, 7))
+	for range 200 {
+		n := 1 + r.IntN(300)
+		ref := make([]float64, n)
+		got := make([]float64, n)
+		for i := range ref {
+			ref[i] = r.NormFloat64() * math.Pow(10, float64(r.IntN(6)-3))
+			got[i] = BFloat16.Round(ref[i] * (1 + 1e-2*r.NormFloat64()))
+		}
+		rep, err := Diff(ref, got, nil, Options{Format: BFloat16, Worst: 10})
+		require.NoError(t, err)
+		assert.GreaterOrEqual(t, rep.MaxAbs, rep.RMS)
+		assert.GreaterOrEqual(t, rep.RMS*(1+1e-15), math.Abs(rep.MeanSigned))
+		total := 0
+		for _, b := range rep.ULPs {
+			total += b.Count
+		}
+		assert.Equal(t, rep.Finite, total)
+		assert.InEpsilon(t, golden.NormwiseRelErr(got, ref), rep.Normwise, 1e-13)
+		assert.True(t, slices.IsSortedFunc(rep.Worst, func(a, b Element) int { return -cmpFloat(a.AbsErr, b.AbsErr) }))
+		if len(rep.Worst) > 0 {
+			assert.Equal(t, rep.MaxAbs, rep.Worst[0].AbsErr)
+		}
+		assert.Zero(t, rep.NotInFormat)
+	}
+}
+
+func cmpFloat(a, b float64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
+}
+
+func TestReportJSON(t *testing.T) {
+	inf, nan := math.Inf(1), math.NaN()
+	ref := []float64{1, 2, nan, 4, inf, 0.5}
+	got := []float64{1, 2.25, 3, 4, inf, 0.5}
+	tol := Tolerance{Abs: 0.1, MaxNormwise: 0.2, Basis: "explicit"}
+	r, err := Diff(ref, got, []int{3, 2}, Options{Format: E5M2, Tolerance: &tol})
+	require.NoError(t, err)
+	b, err := json.Marshal(r)
+	require.NoError(t, err)
+
+	// The keys are part of the API: fixed names, fixed order.
+	var keys []string
+	dec := json.NewDecoder(strings.NewReader(string(b)))
+	depth := 0
+	for {
+		tok, err := dec.Token()
+		if err != nil {
+			break
+		}
+		switch v := tok.(type) {
+		case json.Delim:
+			if v == '{' || v == '[' {
+				depth++
+			} else {
+				depth--
+			}
+		case string:
+			if depth == 1 && dec.More() {
+				keys = append(keys, v)
+				// skip the value
+				var skip json.RawMessage
+				require.NoError(t, dec.Decode(&skip))
+			}
+		}
+	}
+	assert.Equal(t, []string{"shape", "elements", "format", "finite_pairs", "max_abs_error", "max_abs_error_at",
+		"max_rel_error", "max_rel_error_at", "rel_error_floor", "rms_error", "mean_signed_error", "normwise_rel_error",
+		"max_ulps", "ulp_histogram", "not_in_format", "nan_mismatches", "inf_mismatches", "nonfinite_matches",
+		"worst", "tolerance", "verdict"}, keys)
+	assert.Contains(t, string(b), `"format":"e5m2"`)
+	assert.Contains(t, string(b), `"reference":"nan"`)
+
+	var back Report
+	require.NoError(t, json.Unmarshal(b, &back))
+	if d := cmp.Diff(r, &back, cmpopts.EquateNaNs()); d != "" {
+		t.Errorf("JSON round trip (-before +after):\n%s", d)
+	}
+	assert.Error(t, json.Unmarshal([]byte(`{"surprise":1}`), &back))
+	assert.Error(t, json.Unmarshal([]byte(`{"format":"int4"}`), &back))
+}
+
+func TestReportText(t *testing.T) {
+	ref := []float64{1, 2, math.NaN(), 4}
+	got := []float64{1, 2.5, 3, 4}
+	tol := Tolerance{Abs: 0.1, Basis: "explicit"}
+	r, err := Diff(ref, got, []int{2, 2}, Options{Format: BFloat16, Tolerance: &tol})
+	require.NoError(t, err)
+	var sb strings.Builder
+	require.NoError(t, r.WriteText(&sb))
+	s := sb.String()
+	assert.Equal(t, r.String(), s)
+	for _, want := range []string{
+		"4 elements, shape [2 2], candidate format bfloat16",
+		"max abs error       0.5",
+		"NaN mismatches      1",
+		"ULP distances in bfloat16:",
+		"worst 2 elements:",
+		"[1 0]  NaN        3",
+		"tolerance: abs 0.1, rel 0, ULPs 0, normwise 0",
+		"basis: explicit",
+		"verdict: FAIL: 1 NaN and 0 Inf mismatches; 1 of 4 elements exceed the elementwise tolerance",
+	} {
+		assert.Contains(t, s, want)
+	}
+	assert.ErrorIs(t, r.WriteText(failWriter{}), errWrite)
+}
+
+type failWriter struct{}
+
+var errWrite = assert.AnError
+
+func (failWriter) Write([]byte) (int, error) { return 0, errWrite }
+
+// FuzzDiff builds tensors and a shape from arbitrary bytes and checks that
+// Diff never panics, and that a report it returns is consistent with its
+// inputs and renders.
+func FuzzDiff(f *testing.F) {
+	f.Add([]byte{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15, 16}, uint8(2), uint8(3), int8(2))
+	f.Add([]byte{0xff, 0xf8, 0, 0, 0, 0, 0, 0, 0x7f, 0xf0, 0, 0, 0, 0, 0, 0}, uint8(0), uint8(4), int8(-1))
+	f.Fuzz(func(t *testing.T, data []byte, d0, fm uint8, worst int8) {
+		n := len(data) / 16
+		ref := make([]float64, n)
+		got := make([]float64, n)
+		for i := range n {
+			ref[i] = math.Float64frombits(leUint64(data[16*i:]))
+			got[i] = math.Float64frombits(leUint64(data[16*i+8:]))
+		}
+		var shape []int
+		if d0 > 0 {
+			shape = []int{int(d0), n / int(d0)}
+		}
+		tol := Tolerance{Abs: 1e-3, ULPs: 2}
+		r, err := Diff(ref, got, shape, Options{Format: Format(fm % 7), Tolerance: &tol, Worst: int(worst)})
+		if err != nil {
+			return
+		}
+		if r.Elements != n || r.Finite+r.NaNMismatches+r.InfMismatches+r.NonFiniteMatches != n {
+			t.Fatalf("counts do not add up: %+v", r)
+		}
+		if len(r.Worst) > max(int(worst), 0) && !(worst == 0 && len(r.Worst) <= DefaultWorst) {
+			t.Fatalf("%d worst elements for Worst = %d", len(r.Worst), worst)
+		}
+		for _, e := range r.Worst {
+			if len(e.Index) != len(r.Shape) {
+				t.Fatalf("index %v for shape %v", e.Index, r.Shape)
+			}
+		}
+		_ = r.String()
+		if _, err := json.Marshal(r); err != nil {
+			t.Fatalf("JSON: %v", err)
+		}
+	})
+}
+
+func leUint64(b []byte) uint64 {
+	var v uint64
+	for i := 7; i >= 0; i-- {
+		v = v<<8 | uint64(b[i])
+	}
+	return v
+}
+
+// TestDiffExtremeMagnitudes: the norms are scaled, so squares of errors
+// near float64's limits neither overflow nor underflow (arithmetic:
+// RMS = 0.5·s/√2, Normwise = 0.5/√2 for errors (0.5 s, 0) on (s, s)).
+func TestDiffExtremeMagnitudes(t *testing.T) {
+	for _, s := range []float64{1e200, 1e-200} {
+		r, err := Diff([]float64{s, s}, []float64{1.5 * s, s}, nil, Options{})
+		require.NoError(t, err)
+		assert.InEpsilon(t, 0.5*s/math.Sqrt2, r.RMS, 1e-15)
+		assert.InEpsilon(t, 0.5/math.Sqrt2, r.Normwise, 1e-15)
+		assert.InEpsilon(t, 0.25*s, r.MeanSigned, 1e-15)
+	}
+	// An error that overflows float64 is +Inf, not NaN.
+	r, err := Diff([]float64{-math.MaxFloat64}, []float64{math.MaxFloat64}, nil, Options{})
+	require.NoError(t, err)
+	assert.True(t, math.IsInf(r.MaxAbs, 1))
+	assert.True(t, math.IsInf(r.RMS, 1))
+}

@@ -1,0 +1,236 @@
+package compare_test
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/num"
+)
+
+// softmaxRows is a small kernel written once over num.Float, as plumb's
+// kernels are: the softmax of each row of n elements, with the row maximum
+// subtracted. Its float64 instantiation plays the reference, its float32
+// instantiation the yardstick.
+func softmaxRows[T num.Float](x []T, n int) []T {
+	out := make([]T, len(x))
+	for r := 0; r+n <= len(x); r += n {
+		row, o := x[r:r+n], out[r:r+n]
+		m := T(math.Inf(-1))
+		for _, v := range row {
+			m = max(m, v)
+		}
+		var s T
+		for i, v := range row {
+			o[i] = T(math.Exp(float64(v - m)))
+			s += o[i]
+		}
+		for i := range o {
+			o[i] /= s
+		}
+	}
+	return out
+}
+
+// softmaxNarrowSum is a worse algorithm: the row sum is rounded to format
+// f after every addition, as a kernel that accumulates in its storage
+// format does.
+func softmaxNarrowSum(x []float64, n int, f compare.Format) []float64 {
+	out := make([]float64, len(x))
+	for r := 0; r+n <= len(x); r += n {
+		row, o := x[r:r+n], out[r:r+n]
+		m := math.Inf(-1)
+		for _, v := range row {
+			m = max(m, v)
+		}
+		s := 0.0
+		for i, v := range row {
+			o[i] = f.Round(math.Exp(v - m))
+			s = f.Round(s + o[i])
+		}
+		for i := range o {
+			o[i] = f.Round(o[i] / s)
+		}
+	}
+	return out
+}
+
+func randomLogits(seed uint64, size int) []float64 {
+	r := rand.New(rand.NewPCG(seed, 1))
+	x := make([]float64, size)
+	for i := range x {
+		x[i] = 4 * r.NormFloat64()
+	}
+	return x
+}
+
+func softmax32(n int) func(in [][]float32) ([]float32, error) {
+	return func(in [][]float32) ([]float32, error) { return softmaxRows(in[0], n), nil }
+}
+
+func TestYardstickJudges(t *testing.T) {
+	const rows, n = 8, 512
+	x := randomLogits(3, rows*n)
+	ref := softmaxRows(x, n)
+	shape := []int{rows, n}
+	for _, f := range []compare.Format{compare.Float32, compare.BFloat16, compare.Binary16} {
+		t.Run(f.String(), func(t *testing.T) {
+			y, err := compare.MeasureYardstick(f, [][]float64{x}, ref, shape, compare.DefaultK, softmax32(n))
+			require.NoError(t, err)
+			assert.Equal(t, "float32", y.Arithmetic)
+			assert.Equal(t, f, y.Format)
+			assert.Equal(t, compare.DefaultK*y.Report.MaxAbs+y.FloorAbs, y.Tolerance.Abs)
+			assert.Equal(t, compare.DefaultK*y.Report.Normwise+y.FloorNormwise, y.Tolerance.MaxNormwise)
+			assert.Equal(t, f.UnitRoundoff(), y.FloorNormwise)
+			assert.Positive(t, y.Report.MaxAbs, "the yardstick has rounding error")
+			assert.Zero(t, y.Report.NotInFormat, "the yardstick's output is rounded to the format")
+			opt := y.Options()
+
+			// The reference rounded once to the format is as good as the
+			// format allows: it must pass.
+			once := make([]float64, len(ref))
+			for i, v := range ref {
+				once[i] = f.Round(v)
+			}
+			r, err := compare.Diff(ref, once, shape, opt)
+			require.NoError(t, err)
+			assert.True(t, r.Verdict.Pass, r.String())
+
+			// The yardstick passes its own tolerance.
+			r, err = compare.Diff(ref, y.Output, shape, opt)
+			require.NoError(t, err)
+			assert.True(t, r.Verdict.Pass, r.String())
+
+			// A bug well above rounding: the largest probability 25% too
+			// large.
+			am := 0
+			for i, v := range ref {
+				if v > ref[am] {
+					am = i
+				}
+			}
+			bad := append([]float64(nil), once...)
+			bad[am] = f.Round(ref[am] * 1.25)
+			require.Greater(t, bad[am]-ref[am], y.Tolerance.Abs, "the bug is larger than the tolerance")
+			r, err = compare.Diff(ref, bad, shape, opt)
+			require.NoError(t, err)
+			assert.False(t, r.Verdict.Pass, r.String())
+			assert.Equal(t, 1, r.Verdict.Failed)
+			assert.Equal(t, am, r.Worst[0].Offset)
+			assert.Equal(t, []int{am / n, am % n}, r.Worst[0].Index)
+		})
+	}
+}
+
+// TestYardstickRefusesNarrowAccumulation: a softmax that accumulates its
+// row sums in bfloat16 stagnates once the sum reaches 256 (the spacing there
+// is 2, and adding terms near 1 rounds back), so with 512 logits of similar
+// size its error is far more than twice the straightforward float32
+// implementation's, and the yardstick says so. (With widely spread logits
+// the rounding of the inputs dominates both, and the two are close: the
+// yardstick judges the algorithm, not the spread.)
+func TestYardstickRefusesNarrowAccumulation(t *testing.T) {
+	const rows, n = 8, 512
+	x := randomLogits(4, rows*n)
+	for i := range x {
+		x[i] /= 40 // logits of similar size: every term of the sum near 1
+	}
+	ref := softmaxRows(x, n)
+	y, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{x}, ref, []int{rows, n}, compare.DefaultK, softmax32(n))
+	require.NoError(t, err)
+	in := make([]float64, len(x))
+	for i, v := range x {
+		in[i] = compare.BFloat16.Round(v)
+	}
+	bad := softmaxNarrowSum(in, n, compare.BFloat16)
+	r, err := compare.Diff(ref, bad, []int{rows, n}, y.Options())
+	require.NoError(t, err)
+	assert.False(t, r.Verdict.Pass, r.String())
+	assert.Greater(t, r.Normwise, 2*y.Report.Normwise)
+}
+
+func TestYardstickFloat64Arithmetic(t *testing.T) {
+	const n = 64
+	x := randomLogits(5, 2*n)
+	ref := softmaxRows(x, n)
+	run := func(in [][]float64) ([]float64, error) { return softmaxRows(in[0], n), nil }
+	y, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{x}, ref, nil, compare.DefaultK, run)
+	require.NoError(t, err)
+	assert.Equal(t, "float64", y.Arithmetic)
+	assert.Equal(t, []int{2 * n}, y.Report.Shape)
+
+	// Float64 inputs and arithmetic: the yardstick is the reference, its
+	// error 0, and the tolerance is the floor alone.
+	y, err = compare.MeasureYardstick(compare.Float64, [][]float64{x}, ref, nil, 3, run)
+	require.NoError(t, err)
+	assert.Zero(t, y.Report.MaxAbs)
+	assert.Equal(t, y.FloorAbs, y.Tolerance.Abs)
+	assert.Equal(t, math.Ldexp(1, -53), y.Tolerance.MaxNormwise)
+	assert.Equal(t, 3.0, y.K)
+}
+
+// TestYardstickIdentity: with the identity as the kernel the yardstick's
+// error is the rounding of the inputs, at most u·|x| per element (u the
+// unit roundoff, Higham 2002 Theorem 2.2), so its normwise error is at most
+// u and the tolerance at most 3u in normwise terms.
+func TestYardstickIdentity(t *testing.T) {
+	x := randomLogits(6, 1000)
+	for _, f := range []compare.Format{compare.Float32, compare.Binary16, compare.BFloat16, compare.E4M3, compare.E5M2} {
+		y, err := compare.MeasureYardstick(f, [][]float64{x}, x, nil, compare.DefaultK,
+			func(in [][]float32) ([]float32, error) { return in[0], nil })
+		require.NoError(t, err)
+		u := f.UnitRoundoff()
+		assert.LessOrEqual(t, y.Report.MaxRel, u*1024, f.String()) // rel floor: 2^−10·max|x|
+		assert.LessOrEqual(t, y.Report.Normwise, u, f.String())
+		assert.LessOrEqual(t, y.Tolerance.MaxNormwise, 3*u, f.String())
+	}
+}
+
+func TestYardstickErrors(t *testing.T) {
+	x := []float64{1, 2, 3}
+	ok := func(in [][]float32) ([]float32, error) { return in[0], nil }
+	boom := errors.New("kernel refused")
+	tests := []struct {
+		name string
+		f    compare.Format
+		k    float64
+		run  func([][]float32) ([]float32, error)
+		ref  []float64
+		want error
+		text string
+	}{
+		{"wider format", compare.Float64, 2, ok, x, compare.ErrFormat, "format float64 is wider than the float32 arithmetic"},
+		{"invalid format", compare.Format(9), 2, ok, x, compare.ErrFormat, "Format(9)"},
+		{"k below 1", compare.BFloat16, 0.5, ok, x, compare.ErrTolerance, "k is 0.5"},
+		{"k NaN", compare.BFloat16, math.NaN(), ok, x, compare.ErrTolerance, "k is NaN"},
+		{"nil run", compare.BFloat16, 2, nil, x, compare.ErrYardstick, "nil"},
+		{"run fails", compare.BFloat16, 2, func([][]float32) ([]float32, error) { return nil, boom }, x, compare.ErrYardstick, "kernel refused"},
+		{"wrong length", compare.BFloat16, 2, ok, x[:2], compare.ErrShape, "shape"},
+		{"short output", compare.BFloat16, 2, func(in [][]float32) ([]float32, error) { return in[0][:1], nil }, x, compare.ErrYardstick, "returned 1 elements, the reference has 3"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			shape := []int{3}
+			_, err := compare.MeasureYardstick(tc.f, [][]float64{x}, tc.ref, shape, tc.k, tc.run)
+			require.ErrorIs(t, err, tc.want)
+			assert.Contains(t, err.Error(), tc.text)
+		})
+	}
+	_, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{x}, x, nil, 2, func([][]float32) ([]float32, error) { return nil, boom })
+	assert.ErrorIs(t, err, boom, "the kernel's own error is wrapped too")
+}
+
+func TestToleranceValidate(t *testing.T) {
+	assert.NoError(t, compare.Tolerance{}.Validate())
+	assert.NoError(t, compare.Tolerance{Abs: 1, Rel: 2, ULPs: 3, MaxNormwise: 4}.Validate())
+	for _, tol := range []compare.Tolerance{{Abs: -1}, {Rel: math.NaN()}, {MaxNormwise: math.Inf(1)}} {
+		err := tol.Validate()
+		assert.ErrorIs(t, err, compare.ErrTolerance, fmt.Sprint(tol))
+	}
+}

@@ -1,0 +1,30 @@
+package ffn
+
+import "errors"
+
+// The package's sentinel errors. Every error a function returns wraps
+// exactly one of them (match with errors.Is) and names the argument, the
+// value found and the value expected.
+var (
+	// ErrShape: a size in Dims is out of range, or x or dy does not hold
+	// Rows·In (Rows·Out) elements, or HiddenSize got a bad argument.
+	ErrShape = errors.New("ffn: bad shape")
+
+	// ErrWeightLen: a weight or bias slice has the wrong number of
+	// elements for the sizes in Dims, or is missing, or is given where the
+	// layer has no use for it.
+	ErrWeightLen = errors.New("ffn: wrong weight length")
+
+	// ErrHidden: a weight's length implies a hidden size other than
+	// Dims.Hidden (for example the value projection of a gated unit is
+	// In×6 while Dims.Hidden is 8).
+	ErrHidden = errors.New("ffn: mismatched hidden size")
+
+	// ErrBeta: the Swish β is NaN or ±Inf, or a β is given to an
+	// activation that has none.
+	ErrBeta = errors.New("ffn: bad beta")
+
+	// ErrOption: an Options field holds no valid value (an unknown
+	// activation, a weight layout or fused packing left unset).
+	ErrOption = errors.New("ffn: bad option")
+)

@@ -1,0 +1,351 @@
+package ffn
+
+import (
+	"math"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/golden"
+)
+
+// The golden files under testdata/golden/ffn are made by
+// testdata/gen/fam_ffn.py: every formula evaluated again from its
+// published definition with mpmath at 50 significant digits on the exact
+// float64 inputs, each output rounded once to float64.
+
+// Tolerances, and why.
+const (
+	// actCoreBound bounds the normwise relative error of an activation or
+	// its derivative over the core inputs (|x| ≤ 8, tiny and signed-zero
+	// inputs): each value is a dozen operations rounded to nearest and one
+	// call of math.Exp or math.Erfc (within about 1 ulp), so a few ulps.
+	actCoreBound = 4 * 0x1p-52
+	// actTailBound bounds the error relative to each value for 5 ≤ |x| ≤ 30
+	// (the tails, where values go down to about 1e-197): the same few ulps,
+	// because the arguments of the exponentials are carried exactly.
+	actTailBound = 8 * 0x1p-52
+	// layerBound is the project's target for a layer's output and every
+	// gradient, normwise relative against the 50-digit values. The sums
+	// here have a handful of terms each; the measured error is far below.
+	layerBound = 1e-14
+	// layer32Bound bounds the float32 instantiation against the same
+	// golden values: float32 has unit roundoff 6e-8 and the sums are short,
+	// so 1e-5 is loose but tells a float32 body from a wrong one.
+	layer32Bound = 1e-5
+)
+
+type actConfig struct {
+	Activation string   `json:"activation"`
+	Beta       *float64 `json:"beta"`
+	Part       string   `json:"part"`
+}
+
+var actByName = map[string]Act{
+	"identity": ActIdentity, "relu": ActReLU, "gelu": ActGELU, "gelu_tanh": ActGELUTanh,
+	"gelu_sigmoid": ActGELUSigmoid, "sigmoid": ActSigmoid, "silu": ActSiLU, "swish": ActSwish,
+}
+
+// scalarFuncs maps each activation to its exported scalar function and
+// derivative, so that the golden check covers the scalar API as well as
+// Activate.
+func scalarFuncs(a Act, beta float64) (f, df func(float64) float64) {
+	switch a {
+	case ActReLU:
+		return ReLU, ReLUDeriv
+	case ActGELU:
+		return GELU, GELUDeriv
+	case ActGELUTanh:
+		return GELUTanh, GELUTanhDeriv
+	case ActGELUSigmoid:
+		return GELUSigmoid, GELUSigmoidDeriv
+	case ActSigmoid:
+		return Sigmoid, SigmoidDeriv
+	case ActSiLU:
+		return SiLU, SiLUDeriv
+	case ActSwish:
+		return func(x float64) float64 { return Swish(x, beta) },
+			func(x float64) float64 { return SwishDeriv(x, beta) }
+	}
+	return nil, nil
+}
+
+// maxRelErr returns the largest elementwise relative error; a zero wanted
+// value must be matched by a zero.
+func maxRelErr(got, want []float64) float64 {
+	worst := 0.0
+	for i := range want {
+		var e float64
+		switch {
+		case want[i] == 0:
+			e = math.Abs(got[i]) * math.Inf(1)
+			if got[i] == 0 {
+				e = 0
+			}
+		default:
+			e = math.Abs(got[i]-want[i]) / math.Abs(want[i])
+		}
+		if !(e <= worst) {
+			worst = e
+		}
+	}
+	return worst
+}
+
+func TestGoldenActivations(t *testing.T) {
+	f := golden.MustLoadFamily(t, "ffn", "activations")
+	worst := map[string]float64{}
+	for _, c := range f.Cases {
+		t.Run(c.Name, func(t *testing.T) {
+			var cfg actConfig
+			require.NoError(t, c.DecodeConfig(&cfg))
+			a, ok := actByName[cfg.Activation]
+			require.True(t, ok, "unknown activation %q", cfg.Activation)
+			beta := 0.0
+			if cfg.Beta != nil {
+				beta = *cfg.Beta
+			}
+			x, _, err := c.Float("x")
+			require.NoError(t, err)
+			wantY, _, err := c.Float("y")
+			require.NoError(t, err)
+			wantD, _, err := c.Float("dydx")
+			require.NoError(t, err)
+
+			y, err := Activate(x, a, beta)
+			require.NoError(t, err)
+			ones := make([]float64, len(x))
+			for i := range ones {
+				ones[i] = 1
+			}
+			d, err := ActivateGrad(x, ones, a, beta)
+			require.NoError(t, err)
+
+			// the scalar functions are the same bodies: bit-identical
+			sf, sdf := scalarFuncs(a, beta)
+			for i, xi := range x {
+				require.Equal(t, math.Float64bits(y[i]), math.Float64bits(sf(xi)), "scalar value at x = %v", xi)
+				require.Equal(t, math.Float64bits(d[i]), math.Float64bits(sdf(xi)), "scalar derivative at x = %v", xi)
+			}
+
+			key := a.String()
+			switch cfg.Part {
+			case "core":
+				ey := golden.NormwiseRelErr(y, wantY)
+				ed := golden.NormwiseRelErr(d, wantD)
+				assert.LessOrEqual(t, ey, actCoreBound, golden.Describe(c, "y", ey, actCoreBound))
+				assert.LessOrEqual(t, ed, actCoreBound, golden.Describe(c, "dydx", ed, actCoreBound))
+				worst[key+" normwise"] = max(worst[key+" normwise"], ey)
+				worst[key+"Deriv normwise"] = max(worst[key+"Deriv normwise"], ed)
+			case "tail":
+				ey := maxRelErr(y, wantY)
+				ed := maxRelErr(d, wantD)
+				assert.LessOrEqual(t, ey, actTailBound, "%s: y: largest relative error %.3g in the tail exceeds %.3g", c, ey, actTailBound)
+				assert.LessOrEqual(t, ed, actTailBound, "%s: dydx: largest relative error %.3g in the tail exceeds %.3g", c, ed, actTailBound)
+				worst[key+" tail relative"] = max(worst[key+" tail relative"], ey)
+				worst[key+"Deriv tail relative"] = max(worst[key+"Deriv tail relative"], ed)
+			default:
+				t.Fatalf("%s: unknown part %q", c, cfg.Part)
+			}
+
+			// float32: the same bodies, checked loosely against the same values
+			x32 := make([]float32, len(x))
+			for i, v := range x {
+				x32[i] = float32(v)
+			}
+			y32, err := Activate32(x32, a, beta)
+			require.NoError(t, err)
+			for i := range y32 {
+				if cfg.Part != "core" || math.Abs(x[i]) < 1e-30 {
+					continue // float32 underflows on these inputs
+				}
+				assert.InDelta(t, wantY[i], float64(y32[i]), 1e-6*(1+math.Abs(wantY[i])), "float32 at x = %v", x[i])
+			}
+		})
+	}
+	for k, v := range worst {
+		t.Logf("worst %-32s %.3g", k, v)
+	}
+}
+
+type layerConfig struct {
+	Activation string   `json:"activation"`
+	Beta       *float64 `json:"beta"`
+	Gated      bool     `json:"gated"`
+	Layout     string   `json:"layout"`
+	Storage    string   `json:"storage"`
+	Packing    string   `json:"packing"`
+	Rows       int      `json:"rows"`
+	In         int      `json:"in"`
+	Hidden     int      `json:"hidden"`
+	Out        int      `json:"out"`
+	Biases     bool     `json:"biases"`
+}
+
+// goldenLayer is one decoded layer case.
+type goldenLayer struct {
+	d     Dims
+	o     Options
+	w     Weights[float64]
+	x, dy []float64
+	// want holds y, dx and every gradient under its file name.
+	want map[string][]float64
+}
+
+func loadLayer(t *testing.T, c *golden.Case) goldenLayer {
+	t.Helper()
+	var cfg layerConfig
+	require.NoError(t, c.DecodeConfig(&cfg))
+	a, ok := actByName[cfg.Activation]
+	require.True(t, ok, "unknown activation %q", cfg.Activation)
+	g := goldenLayer{d: Dims{cfg.Rows, cfg.In, cfg.Hidden, cfg.Out}, want: map[string][]float64{}}
+	g.o = Options{Act: a, Gated: cfg.Gated}
+	if cfg.Beta != nil {
+		g.o.Beta = *cfg.Beta
+	}
+	g.o.Layout = map[string]Layout{"in_by_out": InByOut, "out_by_in": OutByIn}[cfg.Layout]
+	g.o.Packing = map[string]Packing{"stacked": GateUpStacked, "interleaved": GateUpInterleaved, "": 0}[cfg.Packing]
+	get := func(name string) []float64 {
+		if !c.Has(name) {
+			return nil
+		}
+		v, _, err := c.Float(name)
+		require.NoError(t, err)
+		return v
+	}
+	g.x, g.dy = get("x"), get("dy")
+	g.w = Weights[float64]{W1: get("w1"), B1: get("b1"), V: get("v"), C: get("c"),
+		Fused: get("fused"), FusedBias: get("fused_bias"), W2: get("w2"), B2: get("b2")}
+	for name := range c.Outputs {
+		g.want[name] = get(name)
+	}
+	return g
+}
+
+// gradsByName names the gradients as the golden files do.
+func gradsByName[T ~float32 | ~float64](dx []T, g Weights[T]) map[string][]T {
+	m := map[string][]T{"dx": dx, "dw2": g.W2, "db2": g.B2}
+	if g.Fused != nil {
+		m["dfused"], m["dfused_bias"] = g.Fused, g.FusedBias
+	} else {
+		m["dw1"], m["db1"] = g.W1, g.B1
+		if g.V != nil {
+			m["dv"], m["dc"] = g.V, g.C
+		}
+	}
+	return m
+}
+
+func to32(v []float64) []float32 {
+	if v == nil {
+		return nil
+	}
+	out := make([]float32, len(v))
+	for i, x := range v {
+		out[i] = float32(x)
+	}
+	return out
+}
+
+func to64(v []float32) []float64 {
+	out := make([]float64, len(v))
+	for i, x := range v {
+		out[i] = float64(x)
+	}
+	return out
+}
+
+func weights32(w Weights[float64]) Weights[float32] {
+	return Weights[float32]{W1: to32(w.W1), B1: to32(w.B1), V: to32(w.V), C: to32(w.C),
+		Fused: to32(w.Fused), FusedBias: to32(w.FusedBias), W2: to32(w.W2), B2: to32(w.B2)}
+}
+
+func testGoldenLayers(t *testing.T, family string) {
+	f := golden.MustLoadFamily(t, "ffn", family)
+	worst := map[string]float64{}
+	for _, c := range f.Cases {
+		t.Run(c.Name, func(t *testing.T) {
+			g := loadLayer(t, c)
+			y, err := Forward(g.x, g.d, g.w, g.o)
+			require.NoError(t, err)
+			dx, gr, err := Backward(g.x, g.dy, g.d, g.w, g.o)
+			require.NoError(t, err)
+			got := gradsByName(dx, gr)
+			got["y"] = y
+			require.Len(t, got, len(g.want), "outputs: got %v", mapKeys(got))
+			for name, want := range g.want {
+				e := golden.NormwiseRelErr(got[name], want)
+				assert.LessOrEqual(t, e, layerBound, golden.Describe(c, name, e, layerBound))
+				k := "forward"
+				if name != "y" {
+					k = "backward"
+				}
+				worst[k] = max(worst[k], e)
+			}
+
+			// the fast form, against the same values and bound
+			yf, err := ForwardFast(g.x, g.d, g.w, g.o)
+			require.NoError(t, err)
+			dxf, grf, err := BackwardFast(g.x, g.dy, g.d, g.w, g.o)
+			require.NoError(t, err)
+			gotf := gradsByName(dxf, grf)
+			gotf["y"] = yf
+			for name, want := range g.want {
+				e := golden.NormwiseRelErr(gotf[name], want)
+				assert.LessOrEqual(t, e, layerBound, golden.Describe(c, name+" (fast form)", e, layerBound))
+				worst["fast form"] = max(worst["fast form"], e)
+			}
+
+			y32, err := Forward32(to32(g.x), g.d, weights32(g.w), g.o)
+			require.NoError(t, err)
+			dx32, gr32, err := Backward32(to32(g.x), to32(g.dy), g.d, weights32(g.w), g.o)
+			require.NoError(t, err)
+			got32 := gradsByName(dx32, gr32)
+			got32["y"] = y32
+			yf32, err := ForwardFast32(to32(g.x), g.d, weights32(g.w), g.o)
+			require.NoError(t, err)
+			dxf32, grf32, err := BackwardFast32(to32(g.x), to32(g.dy), g.d, weights32(g.w), g.o)
+			require.NoError(t, err)
+			gotf32 := gradsByName(dxf32, grf32)
+			gotf32["y"] = yf32
+			for name, want := range g.want {
+				e := golden.NormwiseRelErr(to64(got32[name]), want)
+				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32)", e, layer32Bound))
+				worst["float32"] = max(worst["float32"], e)
+				e = golden.NormwiseRelErr(to64(gotf32[name]), want)
+				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32, fast form)", e, layer32Bound))
+				worst["float32 fast form"] = max(worst["float32 fast form"], e)
+			}
+		})
+	}
+	for k, v := range worst {
+		t.Logf("%s: worst normwise relative error, %s: %.3g", family, k, v)
+	}
+}
+
+func mapKeys[V any](m map[string]V) []string {
+	var ks []string
+	for k := range m {
+		ks = append(ks, k)
+	}
+	return ks
+}
+
+func TestGoldenPlain(t *testing.T) { testGoldenLayers(t, "plain") }
+func TestGoldenGated(t *testing.T) { testGoldenLayers(t, "gated") }
+
+func TestGoldenHiddenSize(t *testing.T) {
+	f := golden.MustLoadFamily(t, "ffn", "hidden_size")
+	for _, c := range f.Cases {
+		d, _, err := c.Ints("d")
+		require.NoError(t, err)
+		m, _, err := c.Ints("m")
+		require.NoError(t, err)
+		want, _, err := c.Ints("hidden")
+		require.NoError(t, err)
+		h, err := HiddenSize(int(d[0]), int(m[0]))
+		require.NoError(t, err, c.String())
+		assert.Equal(t, int(want[0]), h, c.String())
+	}
+}

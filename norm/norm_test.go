@@ -1,0 +1,346 @@
+package norm
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/google/go-cmp/cmp"
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/golden"
+)
+
+// allOptions lists every combination of the convention switches.
+func allOptions(eps float64) []Options {
+	var out []Options
+	for _, p := range []EpsilonPlacement{EpsilonInRoot, EpsilonAddedToRoot} {
+		for _, w := range []WeightForm{WeightAsIs, WeightOnePlus} {
+			out = append(out, Options{Epsilon: eps, Placement: p, Weight: w})
+		}
+	}
+	return out
+}
+
+func uniform(r *rand.Rand, n int, lo, hi float64) []float64 {
+	v := make([]float64, n)
+	for i := range v {
+		v[i] = lo + (hi-lo)*r.Float64()
+	}
+	return v
+}
+
+// TestWorkedValues checks the values quoted in the project's formula notes
+// (shared FORMULAS.md, "Normalisation"), which were computed with mpmath at
+// 30+ digits from the published formulas and are printed to 16–17
+// significant digits. The bound 1e-15 (about 4.5 units in the last place)
+// covers the printed rounding and the kernels' few roundings.
+func TestWorkedValues(t *testing.T) {
+	x := []float64{1, 2, 3, 4}
+	// [mpmath] LayerNorm, Ba et al. 2016 Eq. (3)–(4), ε = 1e-5 in the root.
+	y, err := LayerNorm(x, 4, nil, nil, Options{Epsilon: 1e-5})
+	require.NoError(t, err)
+	want := []float64{-1.341635419968927, -0.44721180665630899, 0.44721180665630899, 1.341635419968927}
+	for i := range want {
+		assert.InEpsilon(t, want[i], y[i], 1e-15, "LayerNorm element %d", i)
+	}
+	// [mpmath] RMSNorm, Zhang & Sennrich 2019 (arXiv 1910.07467), ε = 0 in the
+	// source; ε = 2⁻¹⁰⁷⁴ changes mean(x²) = 7.5 by a relative 7e-325.
+	y, err = RMSNorm(x, 4, nil, Options{Epsilon: math.SmallestNonzeroFloat64})
+	require.NoError(t, err)
+	want = []float64{0.36514837167011074, 0.73029674334022148, 1.0954451150103322, 1.460593486680443}
+	for i := range want {
+		assert.InEpsilon(t, want[i], y[i], 1e-15, "RMSNorm element %d", i)
+	}
+}
+
+// TestErrors checks that every kind of bad input gives the named error,
+// with a message naming the function, the argument and the values.
+func TestErrors(t *testing.T) {
+	ok := Options{Epsilon: 1e-5}
+	x := []float64{1, 2, 3, 4, 5, 6}
+	w3 := []float64{1, 1, 1}
+	tests := []struct {
+		name string
+		call func() error
+		want error
+		msg  string
+	}{
+		{"d zero", func() error { _, err := RMSNorm(x, 0, nil, ok); return err }, ErrShape, "RMSNorm: d = 0; want ≥ 1"},
+		{"d negative", func() error { _, err := LayerNorm(x, -2, nil, nil, ok); return err }, ErrShape, "LayerNorm: d = -2"},
+		{"len not multiple", func() error { _, err := LayerNorm(x, 4, nil, nil, ok); return err }, ErrShape, "x has 6 elements, not a multiple of d = 4"},
+		{"weight length", func() error { _, err := RMSNorm(x, 3, []float64{1, 1}, ok); return err }, ErrShape, "weight has 2 elements, want d = 3"},
+		{"empty non-nil weight", func() error { _, err := RMSNorm(x, 3, []float64{}, ok); return err }, ErrShape, "weight has 0 elements, want d = 3"},
+		{"bias length", func() error { _, err := LayerNorm(x, 3, w3, []float64{0}, ok); return err }, ErrShape, "bias has 1 elements, want d = 3"},
+		{"epsilon zero", func() error { _, err := RMSNorm(x, 3, nil, Options{}); return err }, ErrEpsilon, "RMSNorm: Epsilon = 0; want a finite value > 0"},
+		{"epsilon negative", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: -1e-5}); return err }, ErrEpsilon, "Epsilon = -1e-05"},
+		{"epsilon NaN", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: math.NaN()}); return err }, ErrEpsilon, "Epsilon = NaN"},
+		{"epsilon Inf", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: math.Inf(1)}); return err }, ErrEpsilon, "Epsilon = +Inf"},
+		{"placement", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: 1, Placement: 7}); return err }, ErrOption, "Placement = EpsilonPlacement(7)"},
+		{"weight form", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: 1, Weight: -1}); return err }, ErrOption, "Weight = WeightForm(-1)"},
+		{"dy length LN", func() error { _, err := LayerNormBackward(x, 3, nil, x[:3], ok); return err }, ErrShape, "LayerNormBackward: dy has 3 elements, x has 6"},
+		{"dy length RMS", func() error { _, err := RMSNormBackward(x, 3, nil, nil, ok); return err }, ErrShape, "RMSNormBackward: dy has 0 elements, x has 6"},
+		{"backward epsilon", func() error { _, err := RMSNormBackward(x, 3, nil, x, Options{}); return err }, ErrEpsilon, "RMSNormBackward: Epsilon = 0"},
+		{"residual length LN", func() error { _, _, err := AddLayerNorm(x, x[:5], 3, nil, nil, ok); return err }, ErrShape, "AddLayerNorm: residual has 5 elements, x has 6"},
+		{"residual length RMS", func() error { _, _, err := AddRMSNorm(x, nil, 3, nil, ok); return err }, ErrShape, "AddRMSNorm: residual has 0 elements"},
+		{"dsum length LN", func() error { _, err := AddLayerNormBackward(x, 3, nil, x, x[:3], ok); return err }, ErrShape, "dsum has 3 elements"},
+		{"dsum length RMS", func() error { _, err := AddRMSNormBackward(x, 3, nil, x, []float64{}, ok); return err }, ErrShape, "dsum has 0 elements"},
+		{"dy fused", func() error { _, err := AddRMSNormBackward(x, 3, nil, nil, nil, ok); return err }, ErrShape, "dy has 0 elements"},
+		{"weight fused backward", func() error { _, err := AddLayerNormBackward(x, 3, w3[:1], x, nil, ok); return err }, ErrShape, "weight has 1 elements"},
+		{"float32 d", func() error { _, err := RMSNorm32([]float32{1}, 0, nil, ok); return err }, ErrShape, "RMSNorm32: d = 0"},
+		{"float32 backward dy", func() error { _, err := RMSNormBackward32([]float32{1, 2}, 1, nil, nil, ok); return err }, ErrShape, "RMSNormBackward32: dy has 0 elements, x has 2"},
+		{"float32 backward weight", func() error {
+			_, err := LayerNormBackward32([]float32{1, 2}, 2, []float32{1}, []float32{1, 2}, ok)
+			return err
+		}, ErrShape, "LayerNormBackward32: weight has 1 elements, want d = 2"},
+		{"float32 epsilon", func() error { _, err := LayerNorm32([]float32{1}, 1, nil, nil, Options{}); return err }, ErrEpsilon, "LayerNorm32: Epsilon = 0"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			err := tc.call()
+			require.Error(t, err)
+			assert.ErrorIs(t, err, tc.want)
+			for _, other := range []error{ErrShape, ErrEpsilon, ErrOption} {
+				if other != tc.want {
+					assert.False(t, errors.Is(err, other), "error %q also matches %v", err, other)
+				}
+			}
+			assert.Contains(t, err.Error(), tc.msg)
+		})
+	}
+}
+
+func TestOptionStrings(t *testing.T) {
+	assert.Equal(t, "EpsilonInRoot", EpsilonInRoot.String())
+	assert.Equal(t, "EpsilonAddedToRoot", EpsilonAddedToRoot.String())
+	assert.Equal(t, "WeightAsIs", WeightAsIs.String())
+	assert.Equal(t, "WeightOnePlus", WeightOnePlus.String())
+}
+
+// TestSpecialCases checks the "Special cases are:" block of the package
+// documentation. The expected values follow from the definitions by hand.
+func TestSpecialCases(t *testing.T) {
+	nan, inf := math.NaN(), math.Inf(1)
+	for _, o := range allOptions(1e-5) {
+		t.Run(fmt.Sprint(o.Placement, "/", o.Weight), func(t *testing.T) {
+			// Empty input: empty output, no error.
+			y, err := LayerNorm(nil, 4, nil, nil, o)
+			require.NoError(t, err)
+			assert.Empty(t, y)
+			g, err := RMSNormBackward([]float64{}, 4, []float64{1, 2, 3, 4}, []float64{}, o)
+			require.NoError(t, err)
+			assert.Empty(t, g.X)
+			assert.Equal(t, []float64{0, 0, 0, 0}, g.Weight)
+
+			// A row with NaN or Inf is NaN throughout; other rows are untouched.
+			x := []float64{1, nan, 2, 1, 2, 3, -inf, 0, 1}
+			for _, layer := range []bool{true, false} {
+				var y []float64
+				if layer {
+					y, err = LayerNorm(x, 3, nil, []float64{1, 1, 1}, o)
+				} else {
+					y, err = RMSNorm(x, 3, nil, o)
+				}
+				require.NoError(t, err)
+				for j := 0; j < 3; j++ {
+					assert.True(t, math.IsNaN(y[j]), "row 0 element %d", j)
+					assert.True(t, math.IsNaN(y[6+j]), "row 2 element %d", j)
+					assert.False(t, math.IsNaN(y[3+j]), "row 1 element %d", j)
+				}
+				var gr Grads
+				dy := []float64{1, 1, 1, 1, 1, 1, 1, 1, 1}
+				if layer {
+					gr, err = LayerNormBackward(x, 3, nil, dy, o)
+				} else {
+					gr, err = RMSNormBackward(x, 3, nil, dy, o)
+				}
+				require.NoError(t, err)
+				assert.True(t, math.IsNaN(gr.X[0]) && math.IsNaN(gr.X[8]))
+				assert.False(t, math.IsNaN(gr.X[4]))
+			}
+
+			// Constant rows in LayerNorm: y = b exactly; ∂L/∂x = (g − mean g)/r.
+			b := []float64{0.5, -0.25, 2}
+			w := []float64{0.5, 1.5, -1.5}
+			c := []float64{7, 7, 7, 1e8, 1e8, 1e8, 0, 0, 0}
+			y, err = LayerNorm(c, 3, w, b, o)
+			require.NoError(t, err)
+			assert.Equal(t, append(append(append([]float64{}, b...), b...), b...), y)
+			dy := []float64{1, 2, 3, 1, 2, 3, 1, 2, 3}
+			g, err = LayerNormBackward(c, 3, w, dy, o)
+			require.NoError(t, err)
+			r := math.Sqrt(o.Epsilon)
+			if o.Placement == EpsilonAddedToRoot {
+				r = o.Epsilon
+			}
+			gam := make([]float64, 3)
+			for j := range gam {
+				gam[j] = w[j]
+				if o.Weight == WeightOnePlus {
+					gam[j] = 1 + w[j]
+				}
+			}
+			gg := []float64{1 * gam[0], 2 * gam[1], 3 * gam[2]}
+			mg := (gg[0] + gg[1] + gg[2]) / 3
+			for j := 0; j < 9; j++ {
+				assert.InEpsilon(t, (gg[j%3]-mg)/r, g.X[j], 1e-14, "constant row dx %d", j)
+			}
+			assert.Equal(t, []float64{0, 0, 0}, g.Weight, "x̂ = 0 on constant rows")
+			assert.Equal(t, []float64{3, 6, 9}, g.Bias)
+
+			// A zero row in RMSNorm: y = 0, ∂L/∂x = g/r.
+			y, err = RMSNorm([]float64{0, 0, 0}, 3, w, o)
+			require.NoError(t, err)
+			assert.Equal(t, []float64{0, 0, 0}, y)
+			g, err = RMSNormBackward([]float64{0, 0, 0}, 3, w, []float64{1, 2, 3}, o)
+			require.NoError(t, err)
+			for j := range 3 {
+				assert.InEpsilon(t, gg[j]/r, g.X[j], 1e-14, "zero row dx %d", j)
+			}
+
+			// d = 1: LayerNorm gives the bias, RMSNorm gives γx/r with s = |x|.
+			y, err = LayerNorm([]float64{3, -1e300}, 1, []float64{2}, []float64{0.5}, o)
+			require.NoError(t, err)
+			assert.Equal(t, []float64{0.5, 0.5}, y)
+			y, err = RMSNorm([]float64{-3}, 1, nil, o)
+			require.NoError(t, err)
+			want := -3 / math.Sqrt(9+o.Epsilon)
+			if o.Placement == EpsilonAddedToRoot {
+				want = -3 / (3 + o.Epsilon)
+			}
+			assert.InEpsilon(t, want, y[0], 1e-15)
+		})
+	}
+}
+
+// TestNaiveFailsGolden shows that the golden cases for the offset and
+// underflow regimes have teeth: the textbook one-pass-of-each formulas,
+// computed directly in float64, miss them by far more than the 1e-14
+// bound, while the package passes (TestGolden).
+func TestNaiveFailsGolden(t *testing.T) {
+	naive := func(x []float64, d int, center bool, o Options) []float64 {
+		y := make([]float64, len(x))
+		for lo := 0; lo < len(x); lo += d {
+			row := x[lo : lo+d]
+			mu := 0.0
+			if center {
+				for _, v := range row {
+					mu += v
+				}
+				mu /= float64(d)
+			}
+			ss := 0.0
+			for _, v := range row {
+				ss += (v - mu) * (v - mu)
+			}
+			r := math.Sqrt(ss/float64(d) + o.Epsilon)
+			if o.Placement == EpsilonAddedToRoot {
+				r = math.Sqrt(ss/float64(d)) + o.Epsilon
+			}
+			for j, v := range row {
+				y[lo+j] = (v - mu) / r
+			}
+		}
+		return y
+	}
+	cases := []struct {
+		family, name string
+		center       bool
+		o            Options
+		atLeast      float64
+	}{
+		// mean rounded to float64 near 1e8: an error of order 1e-9 in y
+		{"layernorm", "offset1e8/eps1e-05/in_root", true, Options{Epsilon: 1e-5}, 1e-10},
+		// squares underflow: outputs 1e10 times too large
+		{"rmsnorm", "tiny1e-300/eps1e-310/added_to_root", false, Options{Epsilon: 1e-310, Placement: EpsilonAddedToRoot}, 1},
+		// squares overflow: every output 0
+		{"rmsnorm", "huge1e200", false, Options{Epsilon: 1e-5}, 0.5},
+	}
+	for _, tc := range cases {
+		f := golden.MustLoadFamily(t, "norm", tc.family)
+		var c *golden.Case
+		for _, k := range f.Cases {
+			if k.Name == tc.name {
+				c = k
+			}
+		}
+		require.NotNil(t, c, "case %s/%s", tc.family, tc.name)
+		var cfg goldenConfig
+		require.NoError(t, c.DecodeConfig(&cfg))
+		x, _, err := c.Float("x")
+		require.NoError(t, err)
+		want, _, err := c.Float("y")
+		require.NoError(t, err)
+		require.Equal(t, "as_is", cfg.Weight, "the naive form applies the weight as is")
+		w := floatOr(t, c, "weight")
+		b := floatOr(t, c, "bias")
+		got := naive(x, cfg.D, tc.center, tc.o)
+		for i := range got {
+			v := got[i] * w[i%cfg.D]
+			if b != nil {
+				v += b[i%cfg.D]
+			}
+			got[i] = v
+		}
+		e := golden.NormwiseRelErr(got, want)
+		t.Logf("%s/%s: naive error %.3g", tc.family, tc.name, e)
+		assert.Greater(t, e, tc.atLeast)
+	}
+}
+
+// TestFused checks that the fused residual add equals the unfused pair bit
+// for bit, in both directions.
+func TestFused(t *testing.T) {
+	r := rand.New(rand.NewPCG(1, 2))
+	const d, rows = 12, 5
+	for _, o := range allOptions(1e-6) {
+		x := uniform(r, d*rows, -1, 1)
+		res := uniform(r, d*rows, -8, 8)
+		w := uniform(r, d, -0.5, 0.5)
+		b := uniform(r, d, -0.5, 0.5)
+		dy := uniform(r, d*rows, -1, 1)
+		ds := uniform(r, d*rows, -1, 1)
+		h := make([]float64, len(x))
+		for i := range h {
+			h[i] = x[i] + res[i]
+		}
+
+		y, sum, err := AddLayerNorm(x, res, d, w, b, o)
+		require.NoError(t, err)
+		yl, err := LayerNorm(h, d, w, b, o)
+		require.NoError(t, err)
+		assert.Equal(t, h, sum)
+		assert.Equal(t, yl, y)
+		g, err := AddLayerNormBackward(sum, d, w, dy, ds, o)
+		require.NoError(t, err)
+		gl, err := LayerNormBackward(h, d, w, dy, o)
+		require.NoError(t, err)
+		for i := range gl.X {
+			gl.X[i] += ds[i]
+		}
+		assert.Empty(t, cmp.Diff(gl, g))
+		g0, err := AddLayerNormBackward(sum, d, w, dy, nil, o)
+		require.NoError(t, err)
+		gl0, err := LayerNormBackward(h, d, w, dy, o)
+		require.NoError(t, err)
+		assert.Empty(t, cmp.Diff(gl0, g0), "nil dsum is zero")
+
+		y, sum, err = AddRMSNorm(x, res, d, w, o)
+		require.NoError(t, err)
+		yr, err := RMSNorm(h, d, w, o)
+		require.NoError(t, err)
+		assert.Equal(t, h, sum)
+		assert.Equal(t, yr, y)
+		g, err = AddRMSNormBackward(sum, d, w, dy, ds, o)
+		require.NoError(t, err)
+		gr, err := RMSNormBackward(h, d, w, dy, o)
+		require.NoError(t, err)
+		for i := range gr.X {
+			gr.X[i] += ds[i]
+		}
+		assert.Empty(t, cmp.Diff(gr, g))
+	}
+}

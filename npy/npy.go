@@ -1,0 +1,496 @@
+package npy
+
+import (
+	"errors"
+	"fmt"
+	"math"
+)
+
+// The sentinel errors. Every error this package returns wraps exactly one of
+// them (match with errors.Is) and says what was found and what was expected.
+var (
+	// ErrFormat: the bytes are not a .npy file this package can parse: a
+	// wrong magic string, an unknown version, a header that is not a
+	// Python dictionary literal with the keys 'descr', 'fortran_order' and
+	// 'shape', or a header longer than MaxHeaderLen.
+	ErrFormat = errors.New("npy: malformed file")
+	// ErrDType: the header's 'descr' names an element type outside the
+	// supported set (see DType), or one without a byte order.
+	ErrDType = errors.New("npy: unsupported element type")
+	// ErrShape: a negative dimension, or a shape whose element count or
+	// byte size overflows.
+	ErrShape = errors.New("npy: invalid shape")
+	// ErrData: the data section is shorter than the header promises, or
+	// (ReadFile only) bytes follow it.
+	ErrData = errors.New("npy: data does not match the header")
+	// ErrValues: Array.Values is not the slice type DType needs, or its
+	// length is not the shape's element count.
+	ErrValues = errors.New("npy: values do not match the header")
+	// ErrBits: an Array.Bits interpretation that does not fit its DType
+	// (bfloat16 needs Uint16, FP8 needs Uint8).
+	ErrBits = errors.New("npy: bit interpretation does not fit the element type")
+	// ErrInexact: Float64s met an int64 value that float64 cannot hold
+	// exactly.
+	ErrInexact = errors.New("npy: value not exactly representable as float64")
+)
+
+// DType is an element type a .npy file may hold. The zero value is not a
+// valid type.
+//
+// Each has one canonical NumPy descriptor, the kind letter and the size in
+// bytes after the byte-order mark: '<f8' float64, '<f4' float32, '<f2'
+// float16 (IEEE 754 binary16), '<i8' int64, '<i4' int32, '<u2' uint16,
+// '|u1' uint8. Every other descriptor, including complex, bool, other
+// integer widths, extended precision, strings, datetimes, objects and
+// structured types, is refused with ErrDType.
+type DType uint8
+
+// The supported element types.
+const (
+	Float64 DType = iota + 1
+	Float32
+	Float16
+	Int64
+	Int32
+	Uint16
+	Uint8
+)
+
+var dtypeInfo = [...]struct {
+	name string
+	kind byte
+	size int
+}{
+	Float64: {"float64", 'f', 8},
+	Float32: {"float32", 'f', 4},
+	Float16: {"float16", 'f', 2},
+	Int64:   {"int64", 'i', 8},
+	Int32:   {"int32", 'i', 4},
+	Uint16:  {"uint16", 'u', 2},
+	Uint8:   {"uint8", 'u', 1},
+}
+
+func (d DType) valid() bool { return d >= Float64 && d <= Uint8 }
+
+// String returns NumPy's name of the type ("float64"), or "DType(n)" for an
+// invalid value.
+func (d DType) String() string {
+	if !d.valid() {
+		return fmt.Sprintf("DType(%d)", uint8(d))
+	}
+	return dtypeInfo[d].name
+}
+
+// Size returns the size of one element in bytes, or 0 for an invalid value.
+func (d DType) Size() int {
+	if !d.valid() {
+		return 0
+	}
+	return dtypeInfo[d].size
+}
+
+// goType is the Go slice type Array.Values holds for the type.
+func (d DType) goType() string {
+	switch d {
+	case Float64:
+		return "[]float64"
+	case Float32:
+		return "[]float32"
+	case Int64:
+		return "[]int64"
+	case Int32:
+		return "[]int32"
+	case Float16, Uint16:
+		return "[]uint16"
+	case Uint8:
+		return "[]uint8"
+	}
+	return "nothing"
+}
+
+// ByteOrder is the order of the bytes of one element in the file. The zero
+// value, LittleEndian, is what NumPy writes on the usual little-endian
+// machines.
+//
+// For one-byte types the order does not apply: the file says '|', Read
+// reports LittleEndian and Write ignores the field.
+type ByteOrder uint8
+
+// The byte orders.
+const (
+	LittleEndian ByteOrder = iota // descr prefix '<'
+	BigEndian                     // descr prefix '>'
+)
+
+// String returns "little-endian" or "big-endian".
+func (o ByteOrder) String() string {
+	switch o {
+	case LittleEndian:
+		return "little-endian"
+	case BigEndian:
+		return "big-endian"
+	}
+	return fmt.Sprintf("ByteOrder(%d)", uint8(o))
+}
+
+// Version is a .npy format version. The zero value asks Write to choose (see
+// Write); Read always reports the file's version.
+//
+// NumPy's format description defines three:
+//
+//	1.0  2-byte header length (header at most 65535 bytes), latin-1 header
+//	2.0  4-byte header length, latin-1 header
+//	3.0  4-byte header length, UTF-8 header
+type Version struct {
+	Major, Minor uint8
+}
+
+// The three versions NumPy's format description defines.
+var (
+	Version1 = Version{1, 0}
+	Version2 = Version{2, 0}
+	Version3 = Version{3, 0}
+)
+
+// String returns "1.0", "2.0" or "3.0".
+func (v Version) String() string { return fmt.Sprintf("%d.%d", v.Major, v.Minor) }
+
+func (v Version) known() bool {
+	return v.Minor == 0 && v.Major >= 1 && v.Major <= 3
+}
+
+// Header is what a .npy header says about the array, in Go terms.
+type Header struct {
+	// Version is the format version of the file (Read), or the version to
+	// write, zero meaning "choose" (Write).
+	Version Version
+	// DType is the element type.
+	DType DType
+	// ByteOrder is the byte order of the elements in the file.
+	ByteOrder ByteOrder
+	// FortranOrder says the file stores the data column-major (first index
+	// fastest). It describes the file only: Array.Values is always
+	// row-major, and Read and Write transpose.
+	FortranOrder bool
+	// Shape is the array's shape; an empty shape is a scalar (one element).
+	Shape []int
+}
+
+// Bits says which number format the raw bit patterns of a Uint16 or Uint8
+// array hold. NumPy has no bfloat16 or 8-bit floating-point type, so such
+// tensors travel as '<u2' or '|u1' arrays of bit patterns, and the .npy
+// header has no place to say which format they are: a header with a key
+// other than 'descr', 'fortran_order' and 'shape' is refused by NumPy's own
+// reader. The writer and the reader must therefore agree on it out of band
+// (a file name such as q.bf16.npy, a side file, a test's configuration),
+// and the caller of Read sets Array.Bits. Write ignores Bits.
+//
+// The zero value, Integer, reads the patterns as the unsigned integers they
+// are.
+type Bits uint8
+
+// The bit-pattern interpretations.
+const (
+	// Integer: the unsigned integer value (any integer or float type; the
+	// only choice for types other than Uint16 and Uint8).
+	Integer Bits = iota
+	// BFloat16: Uint16 patterns of bfloat16 (1 sign, 8 exponent, 7
+	// fraction bits: the top half of an IEEE 754 binary32).
+	BFloat16
+	// E4M3: Uint8 patterns of OCP 8-bit floating point E4M3 (OCP 8-bit
+	// Floating Point Specification (OFP8), 2023): bias 7, no infinities,
+	// S.1111.111 is NaN, largest finite 448.
+	E4M3
+	// E5M2: Uint8 patterns of OCP 8-bit floating point E5M2 (same
+	// specification): bias 15, S.11111.00 is ±Inf, S.11111.{01,10,11}
+	// NaN, largest finite 57344.
+	E5M2
+)
+
+// String returns "integer", "bfloat16", "e4m3" or "e5m2".
+func (b Bits) String() string {
+	switch b {
+	case Integer:
+		return "integer"
+	case BFloat16:
+		return "bfloat16"
+	case E4M3:
+		return "e4m3"
+	case E5M2:
+		return "e5m2"
+	}
+	return fmt.Sprintf("Bits(%d)", uint8(b))
+}
+
+// fits reports whether the interpretation applies to the element type.
+func (b Bits) fits(d DType) bool {
+	switch b {
+	case Integer:
+		return true
+	case BFloat16:
+		return d == Uint16
+	case E4M3, E5M2:
+		return d == Uint8
+	}
+	return false
+}
+
+// Array is one array: its header and its elements.
+//
+// Values holds the elements in row-major (C) order whatever the file's
+// order, as the Go slice type DType calls for:
+//
+//	Float64 []float64    Int64  []int64    Uint16 []uint16
+//	Float32 []float32    Int32  []int32    Uint8  []uint8
+//	Float16 []uint16 (IEEE 754 binary16 bit patterns; Go has no float16)
+//
+// The raw values are kept as stored; Float64s converts them.
+type Array struct {
+	Header
+	// Bits says how to read Uint16 or Uint8 bit patterns as numbers. The
+	// file does not record it; see Bits.
+	Bits Bits
+	// Values holds the elements, row-major; see Array.
+	Values any
+}
+
+// New returns an Array of the given type, shape and row-major values, after
+// checking that values has the slice type dt calls for and one element per
+// position of shape. The slices are used, not copied. The byte order is
+// little-endian, the file order C, and the version chosen by Write.
+func New(dt DType, shape []int, values any) (*Array, error) {
+	a := &Array{Header: Header{DType: dt, Shape: shape}, Values: values}
+	if err := a.check(); err != nil {
+		return nil, err
+	}
+	return a, nil
+}
+
+// Len returns the number of elements the shape holds: the product of its
+// dimensions, 1 for a scalar. It returns -1 if a dimension is negative or
+// the product overflows an int.
+func (h *Header) Len() int {
+	n, err := count(h.Shape)
+	if err != nil {
+		return -1
+	}
+	return n
+}
+
+// count is the element count of a shape, checked.
+func count(shape []int) (int, error) {
+	empty := false
+	for i, d := range shape {
+		if d < 0 {
+			return 0, fmt.Errorf("%w: dimension %d is %d, want ≥ 0", ErrShape, i, d)
+		}
+		empty = empty || d == 0
+	}
+	if empty {
+		return 0, nil // whatever the other dimensions: (2⁴⁰, 2⁴⁰, 0) holds nothing
+	}
+	n := 1
+	for i, d := range shape {
+		if n > math.MaxInt/d {
+			return 0, fmt.Errorf("%w: shape %v holds more than %d elements (overflow at dimension %d)", ErrShape, shape, math.MaxInt, i)
+		}
+		n *= d
+	}
+	return n, nil
+}
+
+// valuesLen returns the length of Values if it has the type DType needs.
+func (a *Array) valuesLen() (int, bool) {
+	switch v := a.Values.(type) {
+	case []float64:
+		return len(v), a.DType == Float64
+	case []float32:
+		return len(v), a.DType == Float32
+	case []int64:
+		return len(v), a.DType == Int64
+	case []int32:
+		return len(v), a.DType == Int32
+	case []uint16:
+		return len(v), a.DType == Uint16 || a.DType == Float16
+	case []uint8:
+		return len(v), a.DType == Uint8
+	}
+	return 0, false
+}
+
+// check validates the array: known type, valid shape, values of the right
+// type and length, an interpretation that fits.
+func (a *Array) check() error {
+	if !a.DType.valid() {
+		return fmt.Errorf("%w: DType %v is not one of the supported types", ErrDType, a.DType)
+	}
+	n, err := count(a.Shape)
+	if err != nil {
+		return err
+	}
+	got, ok := a.valuesLen()
+	if !ok {
+		return fmt.Errorf("%w: Values is %T, DType %v needs %s", ErrValues, a.Values, a.DType, a.DType.goType())
+	}
+	if got != n {
+		return fmt.Errorf("%w: Values has %d elements, shape %v needs %d", ErrValues, got, a.Shape, n)
+	}
+	if !a.Bits.fits(a.DType) {
+		return fmt.Errorf("%w: Bits %v does not apply to DType %v", ErrBits, a.Bits, a.DType)
+	}
+	return nil
+}
+
+// Float64s returns the elements as float64 values, row-major, in a new
+// slice. Every conversion is exact:
+//
+//	Float64, Float32       the value
+//	Float16                binary16 decoded (IEEE 754-2019 §3.4)
+//	Int32, Uint16, Uint8   the integer (Bits = Integer)
+//	Int64                  the integer, or ErrInexact if |v| > 2⁵³ and v
+//	                       is not a float64 (the error names the index)
+//	Uint16, Bits=BFloat16  the bfloat16 value
+//	Uint8, Bits=E4M3/E5M2  the OCP 8-bit floating-point value
+//
+// Special cases are:
+//
+//	NaN patterns        NaN of the same sign (the payload is not kept)
+//	infinity patterns   ±Inf (E4M3 has none)
+//	−0                  −0
+//	invalid Array       ErrDType, ErrShape, ErrValues or ErrBits
+func (a *Array) Float64s() ([]float64, error) {
+	if err := a.check(); err != nil {
+		return nil, err
+	}
+	switch v := a.Values.(type) {
+	case []float64:
+		return append([]float64(nil), v...), nil
+	case []float32:
+		return convert(v, func(x float32) float64 { return float64(x) }), nil
+	case []int32:
+		return convert(v, func(x int32) float64 { return float64(x) }), nil
+	case []int64:
+		out := make([]float64, len(v))
+		for i, x := range v {
+			f := float64(x)
+			if f >= 0x1p63 || int64(f) != x {
+				return nil, fmt.Errorf("%w: element %d is %d, which float64 cannot hold (nearest %v)", ErrInexact, i, x, f)
+			}
+			out[i] = f
+		}
+		return out, nil
+	case []uint16:
+		switch {
+		case a.DType == Float16:
+			return convert(v, DecodeFloat16), nil
+		case a.Bits == BFloat16:
+			return convert(v, DecodeBFloat16), nil
+		}
+		return convert(v, func(x uint16) float64 { return float64(x) }), nil
+	case []uint8:
+		switch a.Bits {
+		case E4M3:
+			return convert(v, DecodeE4M3), nil
+		case E5M2:
+			return convert(v, DecodeE5M2), nil
+		}
+		return convert(v, func(x uint8) float64 { return float64(x) }), nil
+	}
+	return nil, fmt.Errorf("%w: Values is %T", ErrValues, a.Values) // not reached: check accepted it
+}
+
+func convert[T any](v []T, f func(T) float64) []float64 {
+	out := make([]float64, len(v))
+	for i, x := range v {
+		out[i] = f(x)
+	}
+	return out
+}
+
+// DecodeFloat16 returns the value of the IEEE 754-2019 binary16 bit pattern
+// b (§3.4: 1 sign, 5 exponent, 10 fraction bits, bias 15), exactly.
+//
+// Special cases are:
+//
+//	exponent 0         ±fraction·2⁻²⁴ (subnormals and ±0)
+//	exponent 31, f = 0 ±Inf
+//	exponent 31, f ≠ 0 NaN of the same sign (the payload is dropped)
+func DecodeFloat16(b uint16) float64 {
+	return decodeMini(uint32(b), 5, 10)
+}
+
+// DecodeBFloat16 returns the value of the bfloat16 bit pattern b (1 sign, 8
+// exponent, 7 fraction bits: the upper 16 bits of an IEEE 754 binary32),
+// exactly. bfloat16 has no formal standard; this is the binary32 reading of
+// b<<16.
+//
+// Special cases are those of binary32: exponent 255 is ±Inf (fraction 0) or
+// NaN of the same sign, exponent 0 holds the subnormals and ±0.
+func DecodeBFloat16(b uint16) float64 {
+	return float64(math.Float32frombits(uint32(b) << 16))
+}
+
+// DecodeE4M3 returns the value of the OCP 8-bit floating-point E4M3 bit
+// pattern b (OCP 8-bit Floating Point Specification (OFP8), 2023: 1 sign, 4
+// exponent, 3 fraction bits, bias 7), exactly.
+//
+// Special cases are:
+//
+//	S.0000.fff   ±fff·2⁻⁹ (subnormals and ±0)
+//	S.1111.111   NaN of sign S (the only NaN patterns; no infinities)
+//	S.1111.110   ±448, the largest finite value
+func DecodeE4M3(b uint8) float64 {
+	e, f := int(b>>3)&0xf, float64(b&7)
+	var v float64
+	switch {
+	case e == 15 && f == 7:
+		v = math.NaN()
+	case e == 0:
+		v = math.Ldexp(f, -9)
+	default:
+		v = math.Ldexp(8+f, e-10)
+	}
+	if b&0x80 != 0 {
+		v = -v
+	}
+	return v
+}
+
+// DecodeE5M2 returns the value of the OCP 8-bit floating-point E5M2 bit
+// pattern b (OCP 8-bit Floating Point Specification (OFP8), 2023: 1 sign, 5
+// exponent, 2 fraction bits, bias 15), exactly.
+//
+// Special cases are:
+//
+//	S.00000.ff            ±ff·2⁻¹⁶ (subnormals and ±0)
+//	S.11111.00            ±Inf
+//	S.11111.{01,10,11}    NaN of sign S
+//	S.11110.11            ±57344, the largest finite value
+func DecodeE5M2(b uint8) float64 {
+	return decodeMini(uint32(b), 5, 2)
+}
+
+// decodeMini decodes an IEEE-754-style pattern with the given exponent and
+// fraction widths and a sign bit above them.
+func decodeMini(b uint32, ebits, fbits uint) float64 {
+	emax := uint32(1)<<ebits - 1
+	bias := int(emax >> 1)
+	e := (b >> fbits) & emax
+	f := b & (1<<fbits - 1)
+	neg := b>>(ebits+fbits)&1 != 0
+	var v float64
+	switch {
+	case e == emax && f != 0:
+		v = math.NaN()
+	case e == emax:
+		v = math.Inf(1)
+	case e == 0:
+		v = math.Ldexp(float64(f), 1-bias-int(fbits))
+	default:
+		v = math.Ldexp(float64(f|1<<fbits), int(e)-bias-int(fbits))
+	}
+	if neg {
+		v = -v
+	}
+	return v
+}

@@ -1,0 +1,71 @@
+package posenc
+
+import (
+	"math"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/golden"
+)
+
+// TestLargePositionAngles measures, against the 50-digit tables of the
+// rotary_tables golden family (positions up to 2^31 − 1), three ways of
+// forming the angle m·θ_i:
+//
+//	float64  θ = math.Pow(b, −2i/r), angle = float64(m)·θ rounded, Sincos
+//	fma      the same θ, the product kept exactly (FMA), addition formula
+//	dd       θ in double-double, exact product, addition formula (plumb)
+//
+// and checks that plumb's is within tableBound while the float64 way is
+// not: the bound is tight enough to tell them apart. Run with -v for the
+// figures quoted in the package doc.
+func TestLargePositionAngles(t *testing.T) {
+	f := golden.MustLoadFamily(t, "posenc", "rotary_tables")
+	for _, c := range f.Cases {
+		var cfg struct {
+			Dim     int     `json:"dim"`
+			Rotated int     `json:"rotated"`
+			Base    float64 `json:"base"`
+		}
+		require.NoError(t, c.DecodeConfig(&cfg))
+		p64, _, err := c.Ints("positions")
+		require.NoError(t, err)
+		wantSin, _, err := c.Float("sin")
+		require.NoError(t, err)
+		h := cfg.Rotated / 2
+		r := Rotary{Dim: cfg.Dim, Rotated: cfg.Rotated, Base: cfg.Base}
+		rs, err := r.resolve()
+		require.NoError(t, err)
+		for _, limit := range []int64{1_000_000, math.MaxInt32} {
+			var got = map[string][]float64{}
+			var want []float64
+			for k, m := range p64 {
+				if m > limit {
+					continue
+				}
+				want = append(want, wantSin[k*h:(k+1)*h]...)
+				for i := range h {
+					th := math.Pow(cfg.Base, -float64(2*i)/float64(cfg.Rotated))
+					s, _ := math.Sincos(float64(m) * th)
+					got["float64"] = append(got["float64"], s)
+					s, _ = sincosDD(angle(int(m), ddFrom(th)))
+					got["fma"] = append(got["fma"], s)
+					s, _ = sincosDD(angle(int(m), rs.theta[i]))
+					got["dd"] = append(got["dd"], s)
+				}
+			}
+			for _, way := range []string{"float64", "fma", "dd"} {
+				e := golden.NormwiseRelErr(got[way], want)
+				t.Logf("%s: positions ≤ %d: %-8s normwise relative error %.3g", c.Name, limit, way, e)
+				switch way {
+				case "dd":
+					assert.LessOrEqual(t, e, tableBound)
+				case "float64":
+					assert.Greater(t, e, tableBound, "the bound must reject float64 angles")
+				}
+			}
+		}
+	}
+}

@@ -1,0 +1,35 @@
+package posenc
+
+import (
+	"math"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+)
+
+// The double-double helpers against constants computed with mpmath at 60
+// digits ([mpmath]); a double-double result is judged by its error in
+// units of 2^−104 of the value (the format carries ~106 bits).
+func ddErr(got dd, hi, lo float64) float64 {
+	d := ddSub(got, dd{hi, lo})
+	return math.Abs(d.hi) / (math.Abs(hi) * 0x1p-104)
+}
+
+func TestDoubleDouble(t *testing.T) {
+	// e^{ln 2} = 2, ln 2 itself, e^1 and ln 10 ([mpmath], split hi + lo).
+	assert.Less(t, ddErr(ddExp(ddLn2), 2, 0), 4.0)
+	assert.Less(t, ddErr(ddLog(ddFrom(2)), ddLn2.hi, ddLn2.lo), 4.0)
+	assert.Less(t, ddErr(ddExp(ddFrom(1)), 0x1.5bf0a8b145769p+1, 0x1.4d57ee2b1013ap-53), 4.0)
+	assert.Less(t, ddErr(ddLog(ddFrom(10)), 0x1.26bb1bbb55516p+1, -0x1.f48ad494ea3e9p-53), 4.0)
+	// 1/3 by long division.
+	assert.Less(t, ddErr(ddDiv(ddFrom(1), ddFrom(3)), 0x1.5555555555555p-2, 0x1.5555555555555p-56), 2.0)
+	// floor and ceil look at the low part when the high part is integral.
+	assert.Equal(t, 2.0, ddFloor(dd{3, -0x1p-60}))
+	assert.Equal(t, 3.0, ddCeil(dd{3, -0x1p-60}))
+	assert.Equal(t, 3.0, ddFloor(dd{3, 0x1p-60}))
+	assert.Equal(t, 4.0, ddCeil(dd{3, 0x1p-60}))
+	assert.Equal(t, 3.0, ddCeil(ddFrom(3)))
+	// Overflow and underflow of exp.
+	assert.True(t, math.IsInf(ddExp(ddFrom(800)).hi, 1))
+	assert.Equal(t, 0.0, ddExp(ddFrom(-800)).hi)
+}

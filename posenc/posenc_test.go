@@ -1,0 +1,647 @@
+package posenc
+
+import (
+	"errors"
+	"math"
+	"math/rand/v2"
+	"testing"
+
+	"github.com/google/go-cmp/cmp"
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/mask"
+)
+
+// ulps is |a − b| in units of 2^−52·max(|a|, |b|, tiny): a relative
+// distance for worked values stated to 17 significant digits, whose float64
+// reading may be one ulp from the exact float64 nearest to the true value.
+func ulps(a, b float64) float64 {
+	m := math.Max(math.Abs(a), math.Abs(b))
+	if m == 0 {
+		return 0
+	}
+	return math.Abs(a-b) / (m * 0x1p-52)
+}
+
+// --- Published and worked values, each naming its source. ---
+
+func TestWorkedSinusoidal(t *testing.T) {
+	tab, err := Sinusoidal{Dim: 4}.Table(2, 0)
+	require.NoError(t, err)
+	// Vaswani et al. 2017 §3.5: sin(0) = 0 and cos(0) = 1, exactly.
+	assert.Equal(t, []float64{0, 1, 0, 1}, tab[:4], "position 0")
+	// [mpmath] pos = 1, d = 4 (50 digits, rounded to 17 significant).
+	want := []float64{0.84147098480789651, 0.54030230586813972, 0.0099998333341666647, 0.99995000041666528}
+	for i, w := range want {
+		assert.LessOrEqual(t, ulps(tab[4+i], w), 1.0, "PE(1, %d) = %v, want %v", i, tab[4+i], w)
+	}
+	// Position 0 of a wide table, Concatenated: all sines 0, all cosines 1.
+	c, err := Sinusoidal{Dim: 64, Layout: Concatenated, Base: 500}.Table(1, 0)
+	require.NoError(t, err)
+	for i := range 32 {
+		require.Equal(t, 0.0, c[i])
+		require.Equal(t, 1.0, c[32+i])
+	}
+}
+
+func TestWorkedRotary(t *testing.T) {
+	// [mpmath] d = 4, base 10⁴ (θ = 1, 0.01), x = [1, 2, 3, 4], m = 1,
+	// PairAdjacent; values rounded to 17 significant digits.
+	y, err := Rotary{Dim: 4}.Apply([]float64{1, 2, 3, 4}, 1, Positions{Offset: 1})
+	require.NoError(t, err)
+	want := []float64{-1.1426396637476533, 1.9220755965441759, 2.9598506679133292, 4.0297995016691611}
+	for i, w := range want {
+		assert.LessOrEqual(t, ulps(y[i], w), 2.0, "y[%d] = %v, want %v", i, y[i], w)
+	}
+	th, err := Rotary{Dim: 4}.Frequencies()
+	require.NoError(t, err)
+	// Su et al. 2021 Eq. (15): θ_i = 10000^{−2i/d}; d = 4 gives 1 and 1/100.
+	assert.Equal(t, []float64{1, 0.01}, th)
+}
+
+func TestWorkedInterpolation(t *testing.T) {
+	// Chen et al. 2023 §2.3: L = 2048, L′ = 8192, so s = 4 and position
+	// 6000 is encoded as 6000·L/L′ = 1500 (FORMULAS check). The angles are
+	// the same real numbers, and both paths round them identically.
+	pi := Rotary{Dim: 64, Scaling: Scaling{Method: Interpolation, Factor: 8192.0 / 2048}}
+	c1, s1, err := pi.Tables([]int{6000})
+	require.NoError(t, err)
+	c2, s2, err := Rotary{Dim: 64}.Tables([]int{1500})
+	require.NoError(t, err)
+	assert.Equal(t, c2, c1)
+	assert.Equal(t, s2, s1)
+}
+
+func TestWorkedNTKBase(t *testing.T) {
+	// [mpmath] |D| = 128, b = 10⁴, s = 4 → b′ = 40889.942432486216.
+	b, err := NTKBase(10000, 4, 128)
+	require.NoError(t, err)
+	assert.LessOrEqual(t, ulps(b, 40889.942432486216), 1.0, "b′ = %v", b)
+}
+
+func TestWorkedYaRNMagnitude(t *testing.T) {
+	m, err := YaRNMagnitude(8)
+	require.NoError(t, err)
+	// [paper] Peng et al. 2023: √(1/t) ≈ 1.208 at s = 8 (three decimals).
+	assert.InDelta(t, 1.208, m, 0.0005)
+	// [mpmath] 0.1·ln 8 + 1 = 1.2079441541679836.
+	assert.LessOrEqual(t, ulps(m, 1.2079441541679836), 1.0)
+	one, err := YaRNMagnitude(1)
+	require.NoError(t, err)
+	assert.Equal(t, 1.0, one, "ln 1 = 0")
+}
+
+func TestWorkedALiBiSlopes(t *testing.T) {
+	// [paper] Press et al. 2022 §3: for 8 heads the slopes are
+	// 1/2, 1/2², …, 1/2⁸.
+	s8, err := ALiBiSlopes(8)
+	require.NoError(t, err)
+	assert.Equal(t, []float64{0.5, 0.25, 0.125, 0.0625, 0.03125, 0.015625, 0.0078125, 0.00390625}, s8)
+	// [mpmath] 12 heads: the 8 above, then 2^{−1/2}, 2^{−3/2}, 2^{−5/2},
+	// 2^{−7/2} (the authors' rule for a count that is not a power of two).
+	s12, err := ALiBiSlopes(12)
+	require.NoError(t, err)
+	assert.Equal(t, s8, s12[:8])
+	for i, w := range []float64{0.70710678118654752, 0.35355339059327376, 0.17677669529663688, 0.088388347648318441} {
+		assert.LessOrEqual(t, ulps(s12[8+i], w), 1.0)
+	}
+	// [paper] §3: "for models with 16 heads … 1/2^0.5, 1/2^1, …, 1/2^8":
+	// the geometric sequence with ratio 2^{−1/2}. Powers at integer
+	// exponents are exact.
+	s16, err := ALiBiSlopes(16)
+	require.NoError(t, err)
+	for k := 2; k <= 16; k += 2 {
+		assert.Equal(t, math.Ldexp(1, -k/2), s16[k-1])
+	}
+}
+
+func TestWorkedALiBiBias(t *testing.T) {
+	// Press et al. 2022 §3: query i (1-based) adds m·[−(i−1), …, −1, 0] to
+	// its logits against keys 1 … i. Square causal geometry, 2 heads.
+	slopes := []float64{0.5, 0.25}
+	const L = 4
+	b, err := ALiBiBias(slopes, mask.Geometry{Batch: 1, Lq: L, Lk: L}, ALiBiCausal)
+	require.NoError(t, err)
+	for h, m := range slopes {
+		for i := 1; i <= L; i++ {
+			row := b[(h*L+i-1)*L : (h*L+i)*L]
+			for j := 1; j <= i; j++ {
+				assert.Equal(t, m*float64(-(i-j)), row[j-1])
+			}
+			for j := i + 1; j <= L; j++ {
+				assert.Equal(t, 0.0, row[j-1], "future keys carry 0; the causal mask hides them")
+			}
+		}
+	}
+}
+
+// --- Properties. ---
+
+func randVec(r *rand.Rand, n int) []float64 {
+	x := make([]float64, n)
+	for i := range x {
+		x[i] = 2*r.Float64() - 1
+	}
+	return x
+}
+
+func norm(x []float64) float64 {
+	s := 0.0
+	for _, v := range x {
+		s += v * v
+	}
+	return math.Sqrt(s)
+}
+
+func dot(a, b []float64) float64 {
+	s := 0.0
+	for i := range a {
+		s += a[i] * b[i]
+	}
+	return s
+}
+
+// configs are the rotary settings the properties run over.
+var configs = []Rotary{
+	{Dim: 64},
+	{Dim: 64, Pairing: PairHalves},
+	{Dim: 40, Rotated: 16, Base: 500000},
+	{Dim: 13, Rotated: 6, Pairing: PairHalves},
+	{Dim: 32, Scaling: Scaling{Method: YaRN, Factor: 8, TrainedLength: 4096}},
+	{Dim: 32, Pairing: PairHalves, Scaling: Scaling{Method: NTKAware, Factor: 32}},
+	{Dim: 32, Scaling: Scaling{Method: Interpolation, TrainedLength: 1000, CurrentLength: 3333}},
+}
+
+func TestRotationPreservesNorm(t *testing.T) {
+	r := rand.New(rand.NewPCG(1, 2))
+	for _, cfg := range configs {
+		for range 20 {
+			x := randVec(r, 3*cfg.Dim)
+			pos := []int{r.IntN(MaxPosition), -r.IntN(1000), r.IntN(1 << 20)}
+			y, err := cfg.Apply(x, 3, Positions{List: pos})
+			require.NoError(t, err)
+			for row := range 3 {
+				nx, ny := norm(x[row*cfg.Dim:(row+1)*cfg.Dim]), norm(y[row*cfg.Dim:(row+1)*cfg.Dim])
+				// Each rotated pair is off by at most ~3 ulps of its norm
+				// (cos, sin within 1 ulp; two products and a sum); 1e-15
+				// relative covers it with room and fails on any wrong angle
+				// formula that stops being a rotation.
+				assert.InDelta(t, nx, ny, 1e-15*nx, "%+v at %d", cfg, pos[row])
+			}
+		}
+	}
+}
+
+func TestRelativePosition(t *testing.T) {
+	// Su et al. 2021 Eq. (16): ⟨R(m)q, R(n)k⟩ depends only on m − n.
+	r := rand.New(rand.NewPCG(3, 4))
+	for _, cfg := range configs {
+		for range 20 {
+			q, k := randVec(r, cfg.Dim), randVec(r, cfg.Dim)
+			m, n := r.IntN(5000), r.IntN(5000)
+			shift := r.IntN(1_000_000)
+			a, err := cfg.Apply(append(append([]float64{}, q...), k...), 2, Positions{List: []int{m, n}})
+			require.NoError(t, err)
+			b, err := cfg.Apply(append(append([]float64{}, q...), k...), 2, Positions{List: []int{m + shift, n + shift}})
+			require.NoError(t, err)
+			d := cfg.Dim
+			// Both dot products are within ~(D+4) ulps of |q||k| of the
+			// exact one; 1e-14·|q||k| allows D = 64 with room.
+			assert.InDelta(t, dot(a[:d], a[d:]), dot(b[:d], b[d:]), 1e-14*norm(q)*norm(k),
+				"%+v m=%d n=%d shift=%d", cfg, m, n, shift)
+		}
+	}
+}
+
+func TestPairingsArePermutation(t *testing.T) {
+	// PairAdjacent rotates (2i, 2i+1), PairHalves (i, i + r/2): moving dim
+	// 2i to i and 2i+1 to i + r/2 turns one into the other. The arithmetic
+	// on each pair is the same, so the results match bit for bit; and on
+	// the same unpermuted vector they differ.
+	r := rand.New(rand.NewPCG(5, 6))
+	for _, cfg := range []Rotary{{Dim: 16}, {Dim: 21, Rotated: 10, Base: 1e6}} {
+		rot := cfg.Rotated
+		if rot == 0 {
+			rot = cfg.Dim
+		}
+		perm := func(x []float64) []float64 { // adjacent order → halves order
+			y := append([]float64{}, x...)
+			for row := 0; row < len(x)/cfg.Dim; row++ {
+				o := row * cfg.Dim
+				for i := range rot / 2 {
+					y[o+i], y[o+rot/2+i] = x[o+2*i], x[o+2*i+1]
+				}
+			}
+			return y
+		}
+		x := randVec(r, 4*cfg.Dim)
+		pos := Positions{Offset: 999_998}
+		adj, halves := cfg, cfg
+		halves.Pairing = PairHalves
+		ya, err := adj.Apply(x, 4, pos)
+		require.NoError(t, err)
+		yh, err := halves.Apply(perm(x), 4, pos)
+		require.NoError(t, err)
+		assert.Empty(t, cmp.Diff(perm(ya), yh), "halves(P x) = P adjacent(x)")
+		yx, err := halves.Apply(x, 4, pos)
+		require.NoError(t, err)
+		assert.NotEqual(t, ya, yx, "the two pairings are different conventions")
+	}
+}
+
+func TestFactorOneIsIdentity(t *testing.T) {
+	// Interpolation by 1 is the identity (Chen et al. 2023 Eq. 4 with
+	// L′ = L); so are NTK and YaRN at s = 1 and dynamic scaling while the
+	// sequence is no longer than the trained length: bit for bit.
+	plain, err := Rotary{Dim: 32}.Frequencies()
+	require.NoError(t, err)
+	for _, sc := range []Scaling{
+		{Method: Interpolation, Factor: 1},
+		{Method: NTKAware, Factor: 1},
+		{Method: YaRN, Factor: 1, TrainedLength: 2048},
+		{Method: YaRN, Factor: 1, TrainedLength: 2048, Ramp: RampDims},
+		{Method: NTKAware, TrainedLength: 2048, CurrentLength: 2048},
+		{Method: Interpolation, TrainedLength: 2048, CurrentLength: 7},
+		{Method: PerFrequency, Factors: []float64{1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1}},
+	} {
+		got, err := Rotary{Dim: 32, Scaling: sc}.Frequencies()
+		require.NoError(t, err)
+		assert.Equal(t, plain, got, "%+v", sc)
+	}
+}
+
+func TestScalingShapes(t *testing.T) {
+	plain, err := Rotary{Dim: 64}.Frequencies()
+	require.NoError(t, err)
+	h := len(plain)
+	for _, s := range []float64{2, 4, 8, 32} {
+		// Interpolation divides every frequency by s (exact for powers of 2).
+		pi, err := Rotary{Dim: 64, Scaling: Scaling{Method: Interpolation, Factor: s}}.Frequencies()
+		require.NoError(t, err)
+		for i := range pi {
+			assert.Equal(t, plain[i]/s, pi[i])
+		}
+		// NTK-aware (Peng et al. 2023 Eq. 16): θ_0 = 1 unchanged, and the
+		// lowest frequency b′^{−(r−2)/r} = b^{−(r−2)/r}/s divided by s.
+		ntk, err := Rotary{Dim: 64, Scaling: Scaling{Method: NTKAware, Factor: s}}.Frequencies()
+		require.NoError(t, err)
+		assert.Equal(t, 1.0, ntk[0])
+		assert.Equal(t, plain[h-1]/s, ntk[h-1])
+		// YaRN, both ramps: high frequencies (ρ > β) are kept, low ones
+		// (ρ < α) interpolated, and every frequency lies between.
+		for _, ramp := range []Ramp{RampRatio, RampDims} {
+			y, err := Rotary{Dim: 64, Scaling: Scaling{Method: YaRN, Factor: s, TrainedLength: 4096, Ramp: ramp}}.Frequencies()
+			require.NoError(t, err)
+			assert.Equal(t, plain[0], y[0], "θ_0: ρ = 4096/2π > β")
+			assert.Equal(t, plain[h-1]/s, y[h-1], "θ_last: ρ < α")
+			for i := range y {
+				assert.True(t, plain[i]/s <= y[i] && y[i] <= plain[i], "%v: θ_%d = %v outside [θ/s, θ]", ramp, i, y[i])
+			}
+		}
+	}
+	// The two ramps are different numbers in the ramp region.
+	a, err := Rotary{Dim: 64, Scaling: Scaling{Method: YaRN, Factor: 8, TrainedLength: 4096}}.Frequencies()
+	require.NoError(t, err)
+	b, err := Rotary{Dim: 64, Scaling: Scaling{Method: YaRN, Factor: 8, TrainedLength: 4096, Ramp: RampDims}}.Frequencies()
+	require.NoError(t, err)
+	assert.NotEqual(t, a, b)
+}
+
+func TestInverseUndoesRotation(t *testing.T) {
+	r := rand.New(rand.NewPCG(7, 8))
+	for _, cfg := range configs {
+		x := randVec(r, 5*cfg.Dim)
+		pos := Positions{Offset: r.IntN(2_000_000)}
+		y, err := cfg.Apply(x, 5, pos)
+		require.NoError(t, err)
+		back, err := cfg.ApplyInverse(y, 5, pos)
+		require.NoError(t, err)
+		// Two rotations of ~3 ulps each: 2e-15 normwise is ~10 ulps.
+		for i := range x {
+			assert.InDelta(t, x[i], back[i], 2e-15, "%+v [%d]", cfg, i)
+		}
+	}
+}
+
+func TestPositionForms(t *testing.T) {
+	// Offset, a shared List and a per-row List naming the same positions
+	// give the same result bit for bit.
+	r := rand.New(rand.NewPCG(9, 10))
+	cfg := Rotary{Dim: 8, Pairing: PairHalves}
+	const B, L = 3, 4
+	x := randVec(r, B*L*cfg.Dim)
+	a, err := cfg.Apply(x, L, Positions{Offset: 10})
+	require.NoError(t, err)
+	b, err := cfg.Apply(x, L, Positions{List: []int{10, 11, 12, 13}})
+	require.NoError(t, err)
+	per := make([]int, 0, B*L)
+	for range B {
+		per = append(per, 10, 11, 12, 13)
+	}
+	c, err := cfg.Apply(x, L, Positions{List: per})
+	require.NoError(t, err)
+	assert.Equal(t, a, b)
+	assert.Equal(t, a, c)
+	// Position 0 is the identity on every pair.
+	z, err := cfg.Apply(x, L, Positions{})
+	require.NoError(t, err)
+	assert.Equal(t, x[:cfg.Dim], z[:cfg.Dim])
+}
+
+func TestMagnitude(t *testing.T) {
+	// Magnitude scales the rotated dims only; the inverse with Magnitude M
+	// is the transpose, so Inverse(Apply(x)) = M²·x on rotated dims.
+	x := []float64{1, 2, 3, 4, 5, 6}
+	cfg := Rotary{Dim: 6, Rotated: 4, Magnitude: 2}
+	y, err := cfg.Apply(x, 1, Positions{})
+	require.NoError(t, err)
+	assert.Equal(t, []float64{2, 4, 6, 8, 5, 6}, y, "position 0: cos 1, sin 0")
+	back, err := cfg.ApplyInverse(y, 1, Positions{})
+	require.NoError(t, err)
+	assert.Equal(t, []float64{4, 8, 12, 16, 5, 6}, back)
+}
+
+func TestApply32(t *testing.T) {
+	// The float32 instantiation: each output within a few float32 ulps of
+	// the reference (tables rounded once, two products and a sum).
+	r := rand.New(rand.NewPCG(11, 12))
+	for _, cfg := range configs {
+		x := randVec(r, 4*cfg.Dim)
+		x32 := make([]float32, len(x))
+		for i, v := range x {
+			x32[i] = float32(v)
+			x[i] = float64(x32[i])
+		}
+		pos := Positions{Offset: 123456}
+		want, err := cfg.Apply(x, 4, pos)
+		require.NoError(t, err)
+		got, err := cfg.Apply32(x32, 4, pos)
+		require.NoError(t, err)
+		inv, err := cfg.ApplyInverse32(got, 4, pos)
+		require.NoError(t, err)
+		for i := range want {
+			assert.InDelta(t, want[i], float64(got[i]), 4*0x1p-24, "%+v [%d]", cfg, i)
+			assert.InDelta(t, x[i], float64(inv[i]), 8*0x1p-24, "%+v [%d]", cfg, i)
+		}
+	}
+}
+
+func TestSinusoidalAdd(t *testing.T) {
+	s := Sinusoidal{Dim: 6, Base: 100, Layout: Concatenated}
+	x := randVec(rand.New(rand.NewPCG(13, 14)), 2*3*6)
+	pe, err := s.Table(3, 5)
+	require.NoError(t, err)
+	y, err := s.Add(x, 3, 5)
+	require.NoError(t, err)
+	for i := range x {
+		assert.Equal(t, x[i]+pe[i%len(pe)], y[i])
+	}
+	// Interleaved and Concatenated hold the same numbers in another order.
+	s.Layout = Interleaved
+	il, err := s.Table(3, 5)
+	require.NoError(t, err)
+	for row := range 3 {
+		for i := range 3 {
+			assert.Equal(t, pe[row*6+i], il[row*6+2*i])
+			assert.Equal(t, pe[row*6+3+i], il[row*6+2*i+1])
+		}
+	}
+}
+
+func TestALiBiForms(t *testing.T) {
+	slopes, err := ALiBiSlopes(5)
+	require.NoError(t, err)
+	for _, g := range []mask.Geometry{
+		{Batch: 2, Lq: 3, Lk: 7},
+		{Batch: 1, Lq: 3, Lk: 7, Align: mask.AlignStart, Offset: 2},
+		{Batch: 1, Lq: 1, Lk: 9},
+	} {
+		c, err := ALiBiBias(slopes, g, ALiBiCausal)
+		require.NoError(t, err)
+		s, err := ALiBiBias(slopes, g, ALiBiSymmetric)
+		require.NoError(t, err)
+		vis, err := mask.Causal().Visible(mask.Geometry{Batch: 1, Lq: g.Lq, Lk: g.Lk, Align: g.Align, Offset: g.Offset})
+		require.NoError(t, err)
+		for h := range slopes {
+			for k := range g.Lq * g.Lk {
+				i, j := k/g.Lk, k%g.Lk
+				v := c[h*g.Lq*g.Lk+k]
+				if vis[k] {
+					// visible keys: both forms agree, −m·(p − j) ≤ 0
+					assert.Equal(t, s[h*g.Lq*g.Lk+k], v)
+					assert.Equal(t, -slopes[h]*float64(g.Pos(i)-j), v)
+				} else {
+					assert.Equal(t, 0.0, v)
+					assert.Less(t, s[h*g.Lq*g.Lk+k], 0.0)
+				}
+			}
+		}
+	}
+}
+
+// --- Bad input: a named error, never a panic. ---
+
+func TestErrors(t *testing.T) {
+	nan := math.NaN()
+	beyond := MaxPosition
+	beyond++ // MaxPosition + 1 (wraps to a large negative where int is 32 bits: still refused)
+	x8 := make([]float64, 8)
+	ok := Positions{}
+	apply := func(r Rotary) error { _, err := r.Apply(x8, 1, ok); return err }
+	cases := []struct {
+		name string
+		err  error
+		want error
+	}{
+		{"odd rotary dims", apply(Rotary{Dim: 7}), ErrDim},
+		{"odd rotated", apply(Rotary{Dim: 8, Rotated: 3}), ErrDim},
+		{"r > D", apply(Rotary{Dim: 8, Rotated: 10}), ErrDim},
+		{"negative r", apply(Rotary{Dim: 8, Rotated: -2}), ErrDim},
+		{"zero dim", apply(Rotary{}), ErrDim},
+		{"base 1", apply(Rotary{Dim: 8, Base: 1}), ErrBase},
+		{"base NaN", apply(Rotary{Dim: 8, Base: nan}), ErrBase},
+		{"base +Inf", apply(Rotary{Dim: 8, Base: math.Inf(1)}), ErrBase},
+		{"pairing", apply(Rotary{Dim: 8, Pairing: 2}), ErrOption},
+		{"magnitude", apply(Rotary{Dim: 8, Magnitude: -1}), ErrFactor},
+		{"factor 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: Interpolation}}), ErrFactor},
+		{"factor < 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, Factor: -2}}), ErrFactor},
+		{"factor NaN", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: nan, TrainedLength: 10}}), ErrFactor},
+		{"factor Inf", apply(Rotary{Dim: 8, Scaling: Scaling{Method: Interpolation, Factor: math.Inf(1)}}), ErrFactor},
+		{"alpha ≥ beta", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: 4, Beta: 4}}), ErrFactor},
+		{"alpha < 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: -1, Beta: 4}}), ErrFactor},
+		{"beta NaN", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: 1, Beta: nan}}), ErrFactor},
+		{"yarn without length", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2}}), ErrLength},
+		{"ramp", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Ramp: 5}}), ErrOption},
+		{"method", apply(Rotary{Dim: 8, Scaling: Scaling{Method: 9}}), ErrOption},
+		{"dynamic without method", apply(Rotary{Dim: 8, Scaling: Scaling{CurrentLength: 9}}), ErrOption},
+		{"dynamic without trained", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, CurrentLength: 9}}), ErrLength},
+		{"negative current", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, CurrentLength: -9, TrainedLength: 4}}), ErrLength},
+		{"dynamic per-frequency", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, CurrentLength: 9, Factors: []float64{1, 1, 1, 1}}}), ErrOption},
+		{"per-frequency count", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, Factors: []float64{1, 2}}}), ErrFactor},
+		{"per-frequency zero", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, Factors: []float64{1, 0, 1, 1}}}), ErrFactor},
+		{"ntk r = 2", apply(Rotary{Dim: 8, Rotated: 2, Scaling: Scaling{Method: NTKAware, Factor: 2}}), ErrDim},
+		{"data length", func() error { _, err := Rotary{Dim: 8}.Apply(make([]float64, 9), 1, ok); return err }(), ErrShape},
+		{"rows not multiple of L", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 3, ok); return err }(), ErrShape},
+		{"L = 0", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 0, ok); return err }(), ErrShape},
+		{"L = 0, empty x", func() error { _, err := Rotary{Dim: 4}.Apply(nil, 0, ok); return err }(), ErrShape},
+		{"list length", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 1, Positions{List: []int{1, 2, 3}}); return err }(), ErrShape},
+		{"offset and list", func() error {
+			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: 1, List: []int{1, 2}})
+			return err
+		}(), ErrShape},
+		{"position too large", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: MaxPosition}); return err }(), ErrPosition},
+		{"list position too small", func() error {
+			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{List: []int{0, -beyond}})
+			return err
+		}(), ErrPosition},
+		{"table position", func() error { _, _, err := Rotary{Dim: 4}.Tables([]int{beyond}); return err }(), ErrPosition},
+		{"apply32 dims", func() error { _, err := Rotary{Dim: 3}.Apply32(make([]float32, 3), 1, ok); return err }(), ErrDim},
+		{"sinusoidal odd dim", func() error { _, err := Sinusoidal{Dim: 5}.Table(1, 0); return err }(), ErrDim},
+		{"sinusoidal negative position", func() error { _, err := Sinusoidal{Dim: 4}.Table(1, -1); return err }(), ErrPosition},
+		{"sinusoidal beyond MaxPosition", func() error { _, err := Sinusoidal{Dim: 4}.Table(2, MaxPosition); return err }(), ErrPosition},
+		{"sinusoidal negative n", func() error { _, err := Sinusoidal{Dim: 4}.Table(-1, 0); return err }(), ErrShape},
+		{"sinusoidal base", func() error { _, err := Sinusoidal{Dim: 4, Base: 0.5}.Table(1, 0); return err }(), ErrBase},
+		{"sinusoidal layout", func() error { _, err := Sinusoidal{Dim: 4, Layout: 7}.Table(1, 0); return err }(), ErrOption},
+		{"add shape", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 6), 1, 0); return err }(), ErrShape},
+		{"add L", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 8), 0, 0); return err }(), ErrShape},
+		{"heads 0", func() error { _, err := ALiBiSlopes(0); return err }(), ErrHeads},
+		{"heads < 0", func() error { _, err := ALiBiSlopes(-3); return err }(), ErrHeads},
+		{"no slopes", func() error { _, err := ALiBiBias(nil, mask.Geometry{Lq: 1, Lk: 1}, ALiBiCausal); return err }(), ErrHeads},
+		{"NaN slope", func() error {
+			_, err := ALiBiBias([]float64{nan}, mask.Geometry{Lq: 1, Lk: 1}, ALiBiCausal)
+			return err
+		}(), ErrHeads},
+		{"bias sizes", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: -1, Lk: 1}, ALiBiCausal); return err }(), ErrShape},
+		{"bias too large", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 30, Lk: 1 << 30}, ALiBiCausal)
+			return err
+		}(), ErrShape},
+		{"bias align", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, ALiBiCausal)
+			return err
+		}(), ErrOption},
+		{"bias form", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, 2); return err }(), ErrOption},
+		{"causal query outside keys", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 2, Lk: 4, Offset: 1}, ALiBiCausal)
+			return err
+		}(), ErrPosition},
+		{"symmetric position too large", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Offset: beyond}, ALiBiSymmetric)
+			return err
+		}(), ErrPosition},
+		{"ntk base r", func() error { _, err := NTKBase(10000, 2, 2); return err }(), ErrDim},
+		{"ntk base odd r", func() error { _, err := NTKBase(10000, 2, 7); return err }(), ErrDim},
+		{"ntk base s", func() error { _, err := NTKBase(10000, 0, 8); return err }(), ErrFactor},
+		{"ntk base b", func() error { _, err := NTKBase(nan, 2, 8); return err }(), ErrBase},
+		{"ntk base overflow", func() error { _, err := NTKBase(1e300, 1e300, 8); return err }(), ErrBase},
+		{"magnitude s", func() error { _, err := YaRNMagnitude(nan); return err }(), ErrFactor},
+		{"magnitude tiny s", func() error { _, err := YaRNMagnitude(1e-5); return err }(), ErrFactor},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			require.Error(t, c.err)
+			assert.True(t, errors.Is(c.err, c.want), "got %v, want %v", c.err, c.want)
+			t.Log(c.err)
+		})
+	}
+}
+
+func TestEmpty(t *testing.T) {
+	y, err := Rotary{Dim: 4}.Apply(nil, 3, Positions{})
+	require.NoError(t, err)
+	assert.Empty(t, y)
+	c, s, err := Rotary{Dim: 4}.Tables(nil)
+	require.NoError(t, err)
+	assert.Empty(t, c)
+	assert.Empty(t, s)
+	tab, err := Sinusoidal{Dim: 4}.Table(0, 0)
+	require.NoError(t, err)
+	assert.Empty(t, tab)
+	b, err := ALiBiBias([]float64{0.5}, mask.Geometry{Lq: 0, Lk: 5}, ALiBiCausal)
+	require.NoError(t, err)
+	assert.Empty(t, b)
+}
+
+func TestNonFinitePropagates(t *testing.T) {
+	// NaN or Inf in one pair stays in that pair; other pairs are untouched.
+	x := []float64{math.NaN(), 1, 2, 3, math.Inf(1), 0, 5}
+	y, err := Rotary{Dim: 7, Rotated: 6}.Apply(x, 1, Positions{Offset: 3})
+	require.NoError(t, err)
+	assert.True(t, math.IsNaN(y[0]) && math.IsNaN(y[1]))
+	assert.False(t, math.IsNaN(y[2]) || math.IsNaN(y[3]))
+	assert.Equal(t, 5.0, y[6])
+}
+
+func TestHugeSizesAreErrors(t *testing.T) {
+	// Sizes whose product overflows int must give an error, not a panic.
+	_, err := Sinusoidal{Dim: math.MaxInt - 1}.Add(make([]float64, 4), math.MaxInt, 0)
+	assert.ErrorIs(t, err, ErrDim)
+	_, err = Sinusoidal{Dim: 1 << 20}.Add(make([]float64, 4), 1<<30, 0)
+	assert.ErrorIs(t, err, ErrShape)
+	_, err = Rotary{Dim: math.MaxInt}.Apply(make([]float64, 4), 1, Positions{})
+	assert.ErrorIs(t, err, ErrDim)
+	_, err = Sinusoidal{Dim: 2}.Table(math.MaxInt, 0)
+	assert.ErrorIs(t, err, ErrShape)
+	_, err = ALiBiBias([]float64{1, 1, 1}, mask.Geometry{Lq: math.MaxInt / 2, Lk: 3}, ALiBiSymmetric)
+	assert.ErrorIs(t, err, ErrShape)
+}
+
+func TestOptionNames(t *testing.T) {
+	// Every named option prints its name; an unknown value prints its type
+	// and number, so error messages and test logs stay readable.
+	got := []string{
+		PairAdjacent.String(), PairHalves.String(), Pairing(7).String(),
+		Interleaved.String(), Concatenated.String(), Layout(7).String(),
+		NoScaling.String(), Interpolation.String(), NTKAware.String(), YaRN.String(), PerFrequency.String(), Method(7).String(),
+		RampRatio.String(), RampDims.String(), Ramp(7).String(),
+		ALiBiCausal.String(), ALiBiSymmetric.String(), ALiBiForm(7).String(),
+	}
+	want := []string{
+		"PairAdjacent", "PairHalves", "Pairing(7)",
+		"Interleaved", "Concatenated", "Layout(7)",
+		"NoScaling", "Interpolation", "NTKAware", "YaRN", "PerFrequency", "Method(7)",
+		"RampRatio", "RampDims", "Ramp(7)",
+		"ALiBiCausal", "ALiBiSymmetric", "ALiBiForm(7)",
+	}
+	assert.Empty(t, cmp.Diff(want, got))
+}
+
+func TestFloat32Yardsticks(t *testing.T) {
+	// Add32 and ALiBiBias32 are the float32 instantiations: each entry is
+	// within one float32 rounding of the table or slope plus one of the
+	// operation, 2 ulps of float32 relative to the entry's magnitude.
+	s := Sinusoidal{Dim: 16}
+	x := randVec(rand.New(rand.NewPCG(15, 16)), 2*3*16)
+	x32 := make([]float32, len(x))
+	for i, v := range x {
+		x32[i] = float32(v)
+		x[i] = float64(x32[i])
+	}
+	want, err := s.Add(x, 3, 999_000)
+	require.NoError(t, err)
+	got, err := s.Add32(x32, 3, 999_000)
+	require.NoError(t, err)
+	for i := range want {
+		assert.InDelta(t, want[i], float64(got[i]), 2*0x1p-24*math.Max(2, math.Abs(want[i])))
+	}
+	_, err = s.Add32(x32[:5], 3, 0)
+	assert.ErrorIs(t, err, ErrShape)
+
+	slopes, err := ALiBiSlopes(12)
+	require.NoError(t, err)
+	sl32 := make([]float32, len(slopes))
+	for i, v := range slopes {
+		sl32[i] = float32(v)
+	}
+	g := mask.Geometry{Batch: 1, Lq: 4, Lk: 50}
+	b64, err := ALiBiBias(slopes, g, ALiBiSymmetric)
+	require.NoError(t, err)
+	b32, err := ALiBiBias32(sl32, g, ALiBiSymmetric)
+	require.NoError(t, err)
+	for i := range b64 {
+		assert.InDelta(t, b64[i], float64(b32[i]), 2*0x1p-24*math.Abs(b64[i]))
+	}
+	_, err = ALiBiBias32([]float32{float32(math.NaN())}, g, ALiBiCausal)
+	assert.ErrorIs(t, err, ErrHeads)
+}

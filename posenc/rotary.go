@@ -1,0 +1,382 @@
+package posenc
+
+import (
+	"fmt"
+	"math"
+
+	"github.com/plumbref/plumb/internal/num"
+)
+
+// Pairing says which two dims of a head one rotary frequency rotates. The
+// two pairings are a fixed permutation of dims apart and give different
+// outputs on the same vector: weights trained with one do not work with the
+// other.
+type Pairing int
+
+const (
+	// PairAdjacent rotates dims (2i, 2i+1) by angle m·θ_i, as in Su et al.
+	// 2021, arXiv 2104.09864, Eq. (34). It is the zero value.
+	PairAdjacent Pairing = iota
+	// PairHalves rotates dims (i, i + r/2) by angle m·θ_i: the first half
+	// of the rotated dims holds the first member of every pair [common
+	// practice].
+	PairHalves
+)
+
+func (p Pairing) String() string {
+	switch p {
+	case PairAdjacent:
+		return "PairAdjacent"
+	case PairHalves:
+		return "PairHalves"
+	}
+	return fmt.Sprintf("Pairing(%d)", int(p))
+}
+
+// Rotary is a rotary position encoding (RoPE) configuration: Su et al.
+// 2021, "RoFormer: Enhanced Transformer with Rotary Position Embedding",
+// arXiv 2104.09864, §3.2–3.4, Eq. (13)–(16) and (34).
+//
+// A vector x of Dim values at integer position m has its first r = Rotated
+// dims rotated pairwise, pair i by the angle m·θ_i with
+//
+//	θ_i = b^{−2i/r},  i = 0 … r/2 − 1,  b = Base,
+//
+// (before Scaling), and its other Dim − r dims passed through unchanged
+// (partial rotation [common practice]; the frequencies are over r, not
+// Dim). With cos and sin of the angle the pair (x, y) becomes
+//
+//	x′ = M·(x cos mθ_i − y sin mθ_i),  y′ = M·(x sin mθ_i + y cos mθ_i),
+//
+// where M = Magnitude (1 unless set). The pair is (2i, 2i+1) or
+// (i, i + r/2) according to Pairing.
+//
+// The zero value of each field but Dim selects the default: Rotated 0
+// means all Dim dims, Base 0 means 10000, Magnitude 0 means 1, and the zero
+// Pairing and Scaling are PairAdjacent and no scaling.
+type Rotary struct {
+	// Dim is D, the head dimension: the length of the last axis of the data.
+	Dim int
+	// Rotated is r, the number of leading dims rotated: even, 2 ≤ r ≤ Dim.
+	Rotated int
+	// Base is b, finite and > 1.
+	Base float64
+	// Pairing chooses which dims form a pair.
+	Pairing Pairing
+	// Scaling changes the frequencies for a longer context.
+	Scaling Scaling
+	// Magnitude, finite and > 0, multiplies the cos and sin tables, hence
+	// the rotated dims of the output (the pass-through dims are copied
+	// unscaled). It is where YaRN's √(1/t) goes (see YaRNMagnitude). With
+	// M ≠ 1, ApplyInverse is the backward pass but not the inverse.
+	Magnitude float64
+}
+
+func checkBase(b float64) error {
+	if !(b > 1) || math.IsInf(b, 1) {
+		return fmt.Errorf("%w: Base = %v; want a finite number > 1", ErrBase, b)
+	}
+	return nil
+}
+
+// resolved holds a validated configuration.
+type resolved struct {
+	D, r    int
+	pairing Pairing
+	mag     float64
+	theta   []dd
+}
+
+func (c Rotary) resolve() (*resolved, error) {
+	if c.Dim <= 0 || c.Dim > MaxDim {
+		return nil, fmt.Errorf("%w: Dim = %d; want 0 < Dim ≤ MaxDim = %d", ErrDim, c.Dim, MaxDim)
+	}
+	r := c.Rotated
+	if r == 0 {
+		r = c.Dim
+	}
+	if r < 0 || r > c.Dim {
+		return nil, fmt.Errorf("%w: Rotated = %d with Dim = %d; want 2 ≤ r ≤ Dim (0 means Dim)", ErrDim, c.Rotated, c.Dim)
+	}
+	if r%2 != 0 {
+		return nil, fmt.Errorf("%w: %d rotated dims (Dim = %d, Rotated = %d); rotary pairs need an even number", ErrDim, r, c.Dim, c.Rotated)
+	}
+	base := c.Base
+	if base == 0 {
+		base = 10000
+	}
+	if err := checkBase(base); err != nil {
+		return nil, err
+	}
+	if c.Pairing != PairAdjacent && c.Pairing != PairHalves {
+		return nil, fmt.Errorf("%w: Pairing = %d; want PairAdjacent or PairHalves", ErrOption, int(c.Pairing))
+	}
+	mag := c.Magnitude
+	if mag == 0 {
+		mag = 1
+	}
+	if err := positive("Magnitude", mag); err != nil {
+		return nil, err
+	}
+	theta, err := c.Scaling.scaledFreqs(r, base)
+	if err != nil {
+		return nil, err
+	}
+	return &resolved{D: c.Dim, r: r, pairing: c.Pairing, mag: mag, theta: theta}, nil
+}
+
+// Frequencies returns the r/2 frequencies θ_i after scaling, in radians per
+// position, each the float64 nearest to its exact value (the internal
+// computation carries about 106 bits, so the rounding can only go the
+// wrong way for a value within ~2^−100 relative of a rounding boundary;
+// every golden frequency matches bit for bit; see the package doc).
+//
+// Special cases are:
+//
+//	the configuration is invalid    the error of Apply
+func (c Rotary) Frequencies() ([]float64, error) {
+	rs, err := c.resolve()
+	if err != nil {
+		return nil, err
+	}
+	out := make([]float64, len(rs.theta))
+	for i, t := range rs.theta {
+		out[i] = t.hi + t.lo
+	}
+	return out, nil
+}
+
+// checkPosition validates the position m, called name in the message.
+func checkPosition(name string, m int, allowNegative bool) error {
+	if m > MaxPosition || m < -MaxPosition || (!allowNegative && m < 0) {
+		lo := "−MaxPosition"
+		if !allowNegative {
+			lo = "0"
+		}
+		return fmt.Errorf("%w: %s = %d; want %s ≤ position ≤ MaxPosition = %d", ErrPosition, name, m, lo, MaxPosition)
+	}
+	return nil
+}
+
+// tables fills cos and sin [len(pos), r/2], times the magnitude.
+func (rs *resolved) tables(pos []int) (cos, sin []float64) {
+	h := rs.r / 2
+	cos = make([]float64, len(pos)*h)
+	sin = make([]float64, len(pos)*h)
+	for t, m := range pos {
+		for i, th := range rs.theta {
+			s, c := sincosDD(angle(m, th))
+			if rs.mag != 1 {
+				s, c = float64(s*rs.mag), float64(c*rs.mag)
+			}
+			cos[t*h+i], sin[t*h+i] = c, s
+		}
+	}
+	return cos, sin
+}
+
+// Tables returns the cos and sin tables at the given positions: two
+// row-major [len(pos), r/2] arrays with
+//
+//	cos[t, i] = M·cos(pos[t]·θ_i),  sin[t, i] = M·sin(pos[t]·θ_i),
+//
+// one column per frequency (not repeated per pair member: a kernel that
+// stores r columns holds each value twice, in the order of its pairing).
+// The angles are formed in double-double and reduced by math.Sincos, so
+// each entry is within a few ulps of the exact value at every position up
+// to MaxPosition; see the package doc for the measured error.
+//
+// Special cases are:
+//
+//	len(pos) = 0                  empty tables
+//	negative positions            allowed: the rotation by −m is the inverse
+//	|pos[t]| > MaxPosition        ErrPosition
+//	invalid configuration         the error of Apply
+func (c Rotary) Tables(pos []int) (cos, sin []float64, err error) {
+	rs, err := c.resolve()
+	if err != nil {
+		return nil, nil, err
+	}
+	for t, m := range pos {
+		if err := checkPosition(fmt.Sprintf("pos[%d]", t), m, true); err != nil {
+			return nil, nil, err
+		}
+	}
+	cos, sin = rs.tables(pos)
+	return cos, sin, nil
+}
+
+// Positions gives the position of every token of a [..., L, D] tensor.
+//
+// With List nil, token l (0 ≤ l < L) of every sequence is at Offset + l.
+// Otherwise List holds explicit positions: either L of them, shared by
+// every leading index (every batch entry and head), or one per row of D
+// values (len(x)/D), in row-major order, which covers any layout, packed
+// sequences and per-batch offsets; Offset must then be 0.
+type Positions struct {
+	Offset int
+	List   []int
+}
+
+// rowPositions returns the distinct positions to tabulate and, for every
+// row, the index of its table row.
+func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int, err error) {
+	if L <= 0 {
+		return nil, nil, fmt.Errorf("%w: sequence length L = %d; want > 0", ErrShape, L)
+	}
+	if rows%L != 0 {
+		return nil, nil, fmt.Errorf("%w: %d rows of D values is not a multiple of L = %d", ErrShape, rows, L)
+	}
+	switch {
+	case p.List == nil:
+		pos = make([]int, L)
+		for l := range pos {
+			pos[l] = p.Offset + l
+			if err := checkPosition(fmt.Sprintf("Offset + %d (token %d, Offset %d)", l, l, p.Offset), pos[l], true); err != nil {
+				return nil, nil, err
+			}
+		}
+		return pos, func(row int) int { return row % L }, nil
+	case p.Offset != 0:
+		return nil, nil, fmt.Errorf("%w: Offset = %d together with an explicit List; give one or the other", ErrShape, p.Offset)
+	case len(p.List) == L || len(p.List) == rows:
+		for t, m := range p.List {
+			if err := checkPosition(fmt.Sprintf("List[%d]", t), m, true); err != nil {
+				return nil, nil, err
+			}
+		}
+		if len(p.List) == L {
+			return p.List, func(row int) int { return row % L }, nil
+		}
+		// one position per row: tabulate each distinct position once
+		seen := map[int]int{}
+		idx := make([]int, rows)
+		for row, m := range p.List {
+			k, ok := seen[m]
+			if !ok {
+				k = len(pos)
+				seen[m] = k
+				pos = append(pos, m)
+			}
+			idx[row] = k
+		}
+		return pos, func(row int) int { return idx[row] }, nil
+	}
+	return nil, nil, fmt.Errorf("%w: %d positions in List; want L = %d or one per row, %d", ErrShape, len(p.List), L, rows)
+}
+
+// Apply returns x rotated at the given positions: x is a row-major
+// [..., L, D] tensor (D = Dim), and every row of D values is transformed as
+// the Rotary doc says, at its position (see Positions). x is not modified.
+//
+// The rotation of one row is, for the default PairAdjacent (quoted from the
+// body; PairHalves uses a, b = i, i + r/2):
+//
+//	for i := 0; i < r/2; i++ {
+//		a, b := 2*i, 2*i+1
+//		y[a] = float64(x[a]*cos[i]) - float64(x[b]*sin[i])
+//		y[b] = float64(x[a]*sin[i]) + float64(x[b]*cos[i])
+//	}
+//	copy(y[r:], x[r:])
+//
+// with cos and sin the row of Tables at the row's position.
+//
+// Accuracy: against 50-digit values, normwise relative error at most
+// 1.4e-16 over every golden case, positions up to 2^31 − 1 and every
+// scaling method included (see the package doc).
+//
+// Special cases are:
+//
+//	len(x) = 0                     empty result, no error
+//	NaN or ±Inf in x               propagate through the pair they sit in
+//	len(x) not a multiple of L·D   ErrShape
+//	Dim ≤ 0 or > MaxDim, r odd, r > Dim  ErrDim
+//	Base ≤ 1, NaN or +Inf          ErrBase
+//	negative positions             allowed (rotation by a negative angle)
+//	|position| > MaxPosition       ErrPosition
+//	bad scaling                    ErrFactor, ErrLength, ErrOption or ErrDim
+func (c Rotary) Apply(x []float64, L int, pos Positions) ([]float64, error) {
+	return applyAt(c, x, L, pos, false, func(v float64) float64 { return v })
+}
+
+// ApplyInverse applies the transposed rotation Rᵀ(m) = R(−m), times
+// Magnitude: with Magnitude 1 it undoes Apply; in every case it is the
+// backward pass of Apply, mapping the gradient of Apply's output to the
+// gradient of its input (the rotation is linear, so its Jacobian is
+// M·R(m) and the backward is M·R(m)ᵀ). Arguments, accuracy and special
+// cases are those of Apply.
+func (c Rotary) ApplyInverse(x []float64, L int, pos Positions) ([]float64, error) {
+	return applyAt(c, x, L, pos, true, func(v float64) float64 { return v })
+}
+
+// Apply32 is the float32 instantiation of the same body as Apply: the
+// straightforward low-precision implementation the compare package uses as a
+// yardstick; not a reference. Its cos and sin tables are the reference
+// tables rounded to float32, and the rotation arithmetic is float32, so it
+// measures the error of a float32 rotation alone; a port that also forms
+// the angles m·θ in float32 has a much larger error at large positions
+// (compare its tables with Tables).
+func (c Rotary) Apply32(x []float32, L int, pos Positions) ([]float32, error) {
+	return applyAt(c, x, L, pos, false, func(v float64) float32 { return float32(v) })
+}
+
+// ApplyInverse32 is the float32 instantiation of the same body as
+// ApplyInverse; see Apply32. Not a reference.
+func (c Rotary) ApplyInverse32(x []float32, L int, pos Positions) ([]float32, error) {
+	return applyAt(c, x, L, pos, true, func(v float64) float32 { return float32(v) })
+}
+
+func applyAt[T num.Float](c Rotary, x []T, L int, pos Positions, inverse bool, conv func(float64) T) ([]T, error) {
+	rs, err := c.resolve()
+	if err != nil {
+		return nil, err
+	}
+	D := rs.D
+	if len(x)%D != 0 {
+		return nil, fmt.Errorf("%w: len(x) = %d is not a multiple of Dim = %d", ErrShape, len(x), D)
+	}
+	rows := len(x) / D
+	if rows == 0 {
+		if L <= 0 {
+			return nil, fmt.Errorf("%w: sequence length L = %d; want > 0", ErrShape, L)
+		}
+		return []T{}, nil
+	}
+	tpos, index, err := pos.rowPositions(rows, L)
+	if err != nil {
+		return nil, err
+	}
+	c64, s64 := rs.tables(tpos)
+	cos, sin := make([]T, len(c64)), make([]T, len(s64))
+	for i := range c64 {
+		cos[i], sin[i] = conv(c64[i]), conv(s64[i])
+	}
+	y := make([]T, len(x))
+	rotate(y, x, D, rs.r, rs.pairing, cos, sin, index, inverse)
+	return y, nil
+}
+
+// rotate is the kernel body: y = R(m)x (or R(m)ᵀx) row by row, with cos
+// and sin tables of r/2 columns and index giving each row's table row.
+func rotate[T num.Float](y, x []T, D, r int, pairing Pairing, cos, sin []T, index func(row int) int, inverse bool) {
+	h := r / 2
+	for row := 0; row < len(x)/D; row++ {
+		xr, yr := x[row*D:(row+1)*D], y[row*D:(row+1)*D]
+		t := index(row)
+		cr, sr := cos[t*h:(t+1)*h], sin[t*h:(t+1)*h]
+		for i := range h {
+			a, b := 2*i, 2*i+1
+			if pairing == PairHalves {
+				a, b = i, i+h
+			}
+			c, s := cr[i], sr[i]
+			if inverse {
+				s = -s
+			}
+			xa, xb := xr[a], xr[b]
+			yr[a] = T(xa*c) - T(xb*s)
+			yr[b] = T(xa*s) + T(xb*c)
+		}
+		copy(yr[r:], xr[r:])
+	}
+}

@@ -1,0 +1,361 @@
+package posenc
+
+import (
+	"fmt"
+	"math"
+)
+
+// Method is a context-scaling method for rotary frequencies: how a model
+// trained on context length L is run on a longer context L′ = s·L.
+type Method int
+
+const (
+	// NoScaling leaves the frequencies θ_i = b^{−2i/r} as they are. It is
+	// the zero value.
+	NoScaling Method = iota
+
+	// Interpolation is position interpolation (Chen et al. 2023,
+	// "Extending Context Window of Large Language Models via Positional
+	// Interpolation", arXiv 2306.15595, §2.3 Eq. (4)): f′(x, m) = f(x, m/s)
+	// with s = L′/L. It changes the positions: m → m/s. plumb applies it
+	// as θ_i → θ_i/s, which gives the same angle (m/s)·θ_i = m·(θ_i/s)
+	// exactly in real arithmetic and keeps positions integers.
+	Interpolation
+
+	// NTKAware changes the base (Peng et al. 2023, "YaRN: Efficient
+	// Context Window Extension of Large Language Models", arXiv 2309.00071
+	// v2, §3.1, Eq. (14)–(16)): b′ = b·s^{r/(r−2)}, θ_i = b′^{−2i/r}, where
+	// r (the paper's |D|) is the number of rotated dims. The highest
+	// frequency θ_0 = 1 is unchanged and the lowest, θ_{r/2−1}, is divided
+	// by exactly s. Needs r ≥ 4.
+	NTKAware
+
+	// YaRN is the "NTK-by-parts" interpolation of Peng et al. 2023, §3.2,
+	// Eq. (17)–(20): it changes each frequency by its own amount,
+	//
+	//	h(θ_d) = (1 − γ_d)·θ_d/s + γ_d·θ_d,
+	//
+	// interpolating low frequencies (γ = 0), keeping high ones (γ = 1) and
+	// ramping in between; see Ramp for γ. Its temperature (Eq. 21–22) is a
+	// separate multiplier on q and k: see YaRNMagnitude and
+	// Rotary.Magnitude.
+	YaRN
+
+	// PerFrequency divides each frequency by a factor the caller gives:
+	// θ_i → θ_i/f_i, with Scaling.Factors holding f_0 … f_{r/2−1} [common
+	// practice: long-context variants ship such lists]. Factor, lengths and
+	// dynamic scaling are not used.
+	PerFrequency
+)
+
+func (m Method) String() string {
+	switch m {
+	case NoScaling:
+		return "NoScaling"
+	case Interpolation:
+		return "Interpolation"
+	case NTKAware:
+		return "NTKAware"
+	case YaRN:
+		return "YaRN"
+	case PerFrequency:
+		return "PerFrequency"
+	}
+	return fmt.Sprintf("Method(%d)", int(m))
+}
+
+// Ramp chooses how YaRN's γ_d goes from 1 (keep) to 0 (interpolate) across
+// the frequencies d = 0 … r/2−1. The two options give different numbers.
+type Ramp int
+
+const (
+	// RampRatio is the ramp as the paper defines it (Peng et al. 2023,
+	// Eq. (17)–(18)): with the ratio of the trained length to the
+	// wavelength λ_d = 2π/θ_d,
+	//
+	//	ρ(d) = L/λ_d = L·θ_d/(2π),
+	//	γ_d = 0 if ρ < α,  1 if ρ > β,  (ρ − α)/(β − α) otherwise,
+	//
+	// linear in ρ. (Eq. 17 prints b′ in λ_d; the definition of λ_d in
+	// Eq. 13 uses the original base b, which is what plumb uses.) It is the
+	// zero value.
+	RampRatio Ramp = iota
+
+	// RampDims is the ramp as the authors' published code computes it:
+	// linear in the dimension index d between the (fractional) indices
+	// where ρ = β and ρ = α, rounded outward:
+	//
+	//	d(x)  = r·ln(L/(2πx)) / (2 ln b)     (the d with ρ(d) = x)
+	//	low   = max(⌊d(β)⌋, 0),  high = min(⌈d(α)⌉, r − 1)
+	//	γ_d   = 1 − clamp((d − low)/(high − low), 0, 1),
+	//
+	// and when low = high, γ_d = 1 for d ≤ low and 0 above (the code adds
+	// 0.001 to high − low, which gives the same values at integer d). The clamp of
+	// high to r − 1 (not r/2 − 1) is recalled from memory of the authors'
+	// code; it only matters when d(α) falls beyond the last frequency.
+	RampDims
+)
+
+func (r Ramp) String() string {
+	switch r {
+	case RampRatio:
+		return "RampRatio"
+	case RampDims:
+		return "RampDims"
+	}
+	return fmt.Sprintf("Ramp(%d)", int(r))
+}
+
+// Scaling says how rotary frequencies are changed for a longer context. The
+// zero value is no scaling.
+//
+// The factor s is Factor, or, when CurrentLength is set, the dynamic factor
+// s = max(1, CurrentLength/TrainedLength) of Peng et al. 2023 §3.3 ("Dynamic
+// Scaling"), computed exactly: the frequencies then depend on the length of
+// the sequence being processed, and a cache built at one length is not valid
+// at another. Dynamic scaling combines with Interpolation, NTKAware and
+// YaRN.
+type Scaling struct {
+	Method Method
+	// Factor is s = L′/L, finite and > 0 (s < 1 compresses instead of
+	// stretching; s = 1 changes nothing). Unused when CurrentLength > 0.
+	Factor float64
+	// TrainedLength is L, the context length the model was trained on;
+	// needed by YaRN and by dynamic scaling.
+	TrainedLength int
+	// CurrentLength, when > 0, is l′ of dynamic scaling.
+	CurrentLength int
+	// Alpha and Beta are YaRN's α and β, 0 ≤ α < β; both zero means the
+	// paper's recommended α = 1, β = 32.
+	Alpha, Beta float64
+	// Ramp is the shape of YaRN's γ.
+	Ramp Ramp
+	// Factors are the per-frequency divisors f_i for PerFrequency, one
+	// per rotated pair (r/2 values), each finite and > 0.
+	Factors []float64
+}
+
+// factor returns s as a double-double, validated.
+func (sc Scaling) factor() (dd, error) {
+	if sc.CurrentLength != 0 {
+		if sc.CurrentLength < 0 {
+			return dd{}, fmt.Errorf("%w: CurrentLength = %d; want > 0 for dynamic scaling, or 0 for none", ErrLength, sc.CurrentLength)
+		}
+		if sc.TrainedLength <= 0 {
+			return dd{}, fmt.Errorf("%w: TrainedLength = %d; dynamic scaling needs it > 0", ErrLength, sc.TrainedLength)
+		}
+		if sc.CurrentLength <= sc.TrainedLength {
+			return ddFrom(1), nil
+		}
+		return ddDiv(ddFrom(float64(sc.CurrentLength)), ddFrom(float64(sc.TrainedLength))), nil
+	}
+	if err := positive("Factor", sc.Factor); err != nil {
+		return dd{}, err
+	}
+	return ddFrom(sc.Factor), nil
+}
+
+func positive(name string, v float64) error {
+	if !(v > 0) || math.IsInf(v, 1) {
+		return fmt.Errorf("%w: %s = %v; want a finite number > 0", ErrFactor, name, v)
+	}
+	return nil
+}
+
+func (sc Scaling) bounds() (alpha, beta float64, err error) {
+	alpha, beta = sc.Alpha, sc.Beta
+	if alpha == 0 && beta == 0 {
+		return 1, 32, nil
+	}
+	if !(alpha >= 0) || math.IsInf(beta, 0) || math.IsNaN(beta) || !(alpha < beta) {
+		return 0, 0, fmt.Errorf("%w: YaRN α = %v, β = %v; want finite 0 ≤ α < β", ErrFactor, alpha, beta)
+	}
+	return alpha, beta, nil
+}
+
+// scaledFreqs returns the frequencies θ_i, i = 0 … r/2−1, for rotated dims
+// r and base b after the scaling, in double-double.
+func (sc Scaling) scaledFreqs(r int, base float64) ([]dd, error) {
+	h := r / 2
+	lnb := ddLog(ddFrom(base))
+	out := make([]dd, h)
+	switch sc.Method {
+	case NoScaling:
+		if sc.CurrentLength != 0 {
+			return nil, fmt.Errorf("%w: CurrentLength = %d with NoScaling; dynamic scaling needs a method", ErrOption, sc.CurrentLength)
+		}
+	case Interpolation, NTKAware, YaRN:
+		s, err := sc.factor()
+		if err != nil {
+			return nil, err
+		}
+		if sc.Method == NTKAware {
+			if r < 4 {
+				return nil, fmt.Errorf("%w: NTKAware with %d rotated dims; b′ = b·s^{r/(r−2)} needs r ≥ 4", ErrDim, r)
+			}
+			// ln b′ = ln b + r/(r−2)·ln s
+			e := ddDiv(ddFrom(float64(r)), ddFrom(float64(r-2)))
+			lnb = ddAdd(lnb, ddMul(e, ddLog(s)))
+		}
+		baseFreqs(out, r, lnb)
+		switch sc.Method {
+		case Interpolation:
+			for i := range out {
+				out[i] = ddDiv(out[i], s)
+			}
+		case YaRN:
+			if err := sc.yarn(out, r, lnb, s); err != nil {
+				return nil, err
+			}
+		}
+		return out, nil
+	case PerFrequency:
+		if sc.CurrentLength != 0 {
+			return nil, fmt.Errorf("%w: CurrentLength = %d with PerFrequency; dynamic scaling does not apply to caller-given factors", ErrOption, sc.CurrentLength)
+		}
+		if len(sc.Factors) != h {
+			return nil, fmt.Errorf("%w: %d per-frequency factors for %d rotated dims; want r/2 = %d", ErrFactor, len(sc.Factors), r, h)
+		}
+		for i, f := range sc.Factors {
+			if err := positive(fmt.Sprintf("Factors[%d]", i), f); err != nil {
+				return nil, err
+			}
+		}
+		baseFreqs(out, r, lnb)
+		for i := range out {
+			out[i] = ddDiv(out[i], ddFrom(sc.Factors[i]))
+		}
+		return out, nil
+	default:
+		return nil, fmt.Errorf("%w: scaling Method = %d; want NoScaling, Interpolation, NTKAware, YaRN or PerFrequency", ErrOption, int(sc.Method))
+	}
+	baseFreqs(out, r, lnb)
+	return out, nil
+}
+
+// baseFreqs sets out[i] = e^{−(2i/r)·ln b} = b^{−2i/r}.
+func baseFreqs(out []dd, r int, lnb dd) {
+	for i := range out {
+		e := ddMul(ddDiv(ddFrom(float64(2*i)), ddFrom(float64(r))), lnb)
+		out[i] = ddExp(ddNeg(e))
+	}
+}
+
+// yarn replaces θ_d by h(θ_d) = θ_d/s + γ_d·(θ_d − θ_d/s).
+func (sc Scaling) yarn(th []dd, r int, lnb dd, s dd) error {
+	if sc.TrainedLength <= 0 {
+		return fmt.Errorf("%w: TrainedLength = %d; YaRN needs it > 0", ErrLength, sc.TrainedLength)
+	}
+	alpha, beta, err := sc.bounds()
+	if err != nil {
+		return err
+	}
+	L := ddFrom(float64(sc.TrainedLength))
+	var gamma func(d int, theta dd) dd
+	switch sc.Ramp {
+	case RampRatio:
+		a, b := ddFrom(alpha), ddFrom(beta)
+		gamma = func(_ int, theta dd) dd {
+			rho := ddDiv(ddMul(L, theta), ddTwoPi)
+			switch {
+			case ddLess(rho, a):
+				return dd{}
+			case ddLess(b, rho):
+				return ddFrom(1)
+			}
+			return ddDiv(ddSub(rho, a), ddFrom(beta-alpha))
+		}
+	case RampDims:
+		// d(x) = r·ln(L/(2πx)) / (2 ln b)
+		dimAt := func(x float64) dd {
+			q := ddLog(ddDiv(L, ddMulF(ddTwoPi, x)))
+			return ddDiv(ddMulF(q, float64(r)), ddMulF(lnb, 2))
+		}
+		low := math.Max(ddFloor(dimAt(beta)), 0)
+		high := float64(r - 1)
+		if alpha > 0 {
+			high = math.Min(ddCeil(dimAt(alpha)), high)
+		}
+		gamma = func(d int, _ dd) dd {
+			fd := float64(d)
+			if high == low {
+				if fd <= low {
+					return ddFrom(1)
+				}
+				return dd{}
+			}
+			t := ddDiv(ddFrom(fd-low), ddFrom(high-low))
+			switch {
+			case t.hi <= 0:
+				return ddFrom(1)
+			case t.hi >= 1:
+				return dd{}
+			}
+			return ddSub(ddFrom(1), t)
+		}
+	default:
+		return fmt.Errorf("%w: Ramp = %d; want RampRatio or RampDims", ErrOption, int(sc.Ramp))
+	}
+	for d := range th {
+		inter := ddDiv(th[d], s)
+		g := gamma(d, th[d])
+		th[d] = ddAdd(inter, ddMul(g, ddSub(th[d], inter)))
+	}
+	return nil
+}
+
+// NTKBase returns the NTK-aware base b′ = b·s^{r/(r−2)} of Peng et al.
+// 2023, arXiv 2309.00071, Eq. (16), for base b, factor s and r rotated dims
+// (the paper's |D|), correctly rounded except in cases closer to a rounding
+// boundary than 2^−100 relative.
+//
+// Special cases are:
+//
+//	s = 1                    b
+//	b not finite, or b ≤ 1   ErrBase
+//	s ≤ 0, NaN or ±Inf       ErrFactor
+//	r odd or r < 4           ErrDim
+//	b′ beyond float64        ErrBase
+func NTKBase(base, s float64, rotated int) (float64, error) {
+	if err := checkBase(base); err != nil {
+		return 0, err
+	}
+	if err := positive("s", s); err != nil {
+		return 0, err
+	}
+	if rotated < 4 || rotated%2 != 0 {
+		return 0, fmt.Errorf("%w: rotated dims r = %d; NTKBase needs an even r ≥ 4", ErrDim, rotated)
+	}
+	e := ddDiv(ddFrom(float64(rotated)), ddFrom(float64(rotated-2)))
+	v := ddExp(ddAdd(ddLog(ddFrom(base)), ddMul(e, ddLog(ddFrom(s)))))
+	b := v.hi + v.lo
+	if math.IsInf(b, 0) || !(b > 1) {
+		return 0, fmt.Errorf("%w: b′ = %v·%v^{%d/%d} = %v is not a usable base", ErrBase, base, s, rotated, rotated-2, b)
+	}
+	return b, nil
+}
+
+// YaRNMagnitude returns √(1/t) = 0.1·ln s + 1, the multiplier YaRN applies
+// to both q and k so that the attention logits are divided by the
+// temperature t (Peng et al. 2023, arXiv 2309.00071, Eq. (21)–(22)); the
+// paper recommends it for s > 1 and gives √(1/t) ≈ 1.208 at s = 8.
+// Applied through Rotary.Magnitude it scales the cos and sin tables, which
+// is the same as scaling q and k for the rotated dims. The result is
+// correctly rounded except closer than 2^−100 relative to a boundary.
+//
+// Special cases are:
+//
+//	s = 1                    1
+//	s ≤ 0, NaN or ±Inf       ErrFactor
+//	s < e^{−10}              ErrFactor (the multiplier would be ≤ 0)
+func YaRNMagnitude(s float64) (float64, error) {
+	if err := positive("s", s); err != nil {
+		return 0, err
+	}
+	v := ddAdd(ddFrom(1), ddDiv(ddLog(ddFrom(s)), ddFrom(10)))
+	m := v.hi + v.lo
+	if !(m > 0) {
+		return 0, fmt.Errorf("%w: s = %v gives 0.1·ln s + 1 = %v; want it > 0", ErrFactor, s, m)
+	}
+	return m, nil
+}

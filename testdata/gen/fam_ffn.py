@@ -1,0 +1,345 @@
+"""Golden vectors for package ffn: activations and their derivatives,
+the two-layer feed-forward network, the gated units of Shazeer 2020 and
+the hidden-size rule.
+
+Every formula is written here again from its published definition and
+evaluated with mpmath at common.DIGITS significant digits on the exact
+float64 inputs; only the final values are rounded to float64.
+
+Tails: wherever the textbook form cancels (1 + erf(z) for z < 0,
+1 + tanh(u) for u < 0) an exact identity is used instead, so that the
+50 digits are digits of the value and not of the cancellation:
+1 + erf(z) = erfc(-z), and 1 + tanh(u) = 2 / (1 + e^{-2u}).
+
+Derivatives are the analytic ones, each checked against mpmath.diff
+(numerical differentiation at raised precision) to 40 digits at every
+point where the function is differentiable.
+"""
+
+import mpmath
+from mpmath import mp, mpf
+
+from common import btensor, case, ftensor, itensor, rng, to_f64, uniform  # noqa: F401
+
+SRC_GELU = "Hendrycks & Gimpel 2016, Gaussian Error Linear Units (GELUs), arXiv 1606.08415, sec. 2"
+SRC_SWISH = "Ramachandran et al. 2017, Searching for Activation Functions, arXiv 1710.05941"
+SRC_SILU = "Elfwing et al. 2018, arXiv 1702.03118 (SiLU = Swish with beta 1)"
+SRC_SIGMOID = "logistic function 1/(1+e^-x)"
+SRC_RELU = "max(0, x); Vaswani et al. 2017, arXiv 1706.03762, Eq. 2; derivative at 0 taken as 0 (common practice)"
+SRC_FFN = "Vaswani et al. 2017, Attention Is All You Need, arXiv 1706.03762, sec. 3.3 Eq. 2; backward by the chain rule"
+SRC_GLU = "Shazeer 2020, GLU Variants Improve Transformer, arXiv 2002.05202, Eq. 4-6; backward by the chain rule"
+SRC_HIDDEN = "common practice: h = m * ceil((2/3 * 4d) / m) (Shazeer 2020, arXiv 2002.05202, sec. 2, for the 2/3)"
+
+
+def sig(t):
+    return 1 / (1 + mpmath.exp(-t))
+
+
+def phi_n(x):
+    return mpmath.exp(-x * x / 2) / mpmath.sqrt(2 * mpmath.pi)
+
+
+def Phi(x):
+    return mpmath.erfc(-x / mpmath.sqrt(2)) / 2
+
+
+K_CUBIC = mpf("0.044715")
+K_SIG = mpf("1.702")
+
+
+def tanh_u(x):
+    return mpmath.sqrt(2 / mpmath.pi) * (x + K_CUBIC * x ** 3)
+
+
+# name -> (value, derivative, source); beta-parametrised ones take beta.
+def acts(beta):
+    return {
+        "identity": (lambda x: x, lambda x: mpf(1), "identity"),
+        "relu": (lambda x: x if x > 0 else mpf(0),
+                 lambda x: mpf(1) if x > 0 else mpf(0), SRC_RELU),
+        "sigmoid": (sig, lambda x: sig(x) * sig(-x), SRC_SIGMOID),
+        "silu": (lambda x: x * sig(x),
+                 lambda x: sig(x) + x * sig(x) * sig(-x), SRC_SILU),
+        "swish": (lambda x: x * sig(beta * x),
+                  lambda x: sig(beta * x) + beta * x * sig(beta * x) * sig(-beta * x), SRC_SWISH),
+        "gelu": (lambda x: x * Phi(x),
+                 lambda x: Phi(x) + x * phi_n(x), SRC_GELU + ", exact form x*Phi(x)"),
+        # 1/2 x (1 + tanh u) = x / (1 + e^{-2u})
+        "gelu_tanh": (lambda x: x / (1 + mpmath.exp(-2 * tanh_u(x))),
+                      lambda x: sig(2 * tanh_u(x)) + x * sig(2 * tanh_u(x)) * sig(-2 * tanh_u(x)) * 2
+                      * mpmath.sqrt(2 / mpmath.pi) * (1 + 3 * K_CUBIC * x * x),
+                      SRC_GELU + ", tanh approximation"),
+        "gelu_sigmoid": (lambda x: x * sig(K_SIG * x),
+                         lambda x: sig(K_SIG * x) + K_SIG * x * sig(K_SIG * x) * sig(-K_SIG * x),
+                         SRC_GELU + ", sigmoid approximation x*sigma(1.702x)"),
+    }
+
+
+def checked_deriv(f, df, x, name):
+    """df(x), after checking it against mpmath.diff to 40 digits."""
+    d = df(x)
+    if name == "relu" and abs(x) < mpf("1e-3"):
+        return d  # the kink at 0 lies within the numerical step
+    with mp.workdps(mp.dps + 30):
+        num = mpmath.diff(f, x)
+    err = abs(num - d)
+    if err > mpf(10) ** -40 * max(abs(d), mpf(10) ** -300):
+        raise AssertionError("%s'(%r): analytic %s, numeric %s" % (name, x, d, num))
+    return d
+
+
+def core_inputs(seed):
+    r = rng(seed)
+    xs = uniform(r, 48, -8.0, 8.0)
+    xs += [0.0, -0.0, 1.0, -1.0, 0.5, -0.5, 2.0, -2.0, 1e-300, -1e-300,
+           5e-324, -5e-324, 1e-20, -1e-20, 3.0, -3.0]
+    return xs
+
+
+def tail_inputs(seed, scale):
+    """Inputs with 5 <= |t| <= 30 for t = scale * x (scale is Swish's
+    |beta|, 1 elsewhere): the tails where values are relative-accuracy
+    tests."""
+    r = rng(seed)
+    lo, top = 5.0 / scale, 30.0 / scale
+    xs = []
+    k = 5.0
+    while k <= 30.0:
+        xs += [k / scale, -k / scale]
+        k += 2.5
+    xs += uniform(r, 12, lo, top) + uniform(r, 12, -top, -lo)
+    return xs
+
+
+ACT_CASES = [
+    ("relu", None), ("sigmoid", None), ("silu", None), ("gelu", None),
+    ("gelu_tanh", None), ("gelu_sigmoid", None),
+    ("swish", 1.0), ("swish", 1.5), ("swish", 0.25), ("swish", -0.7), ("swish", 0.0),
+]
+
+
+def build_activations():
+    cases = []
+    for n, (name, beta) in enumerate(ACT_CASES):
+        f, df, src = acts(mpf(beta) if beta is not None else None)[name]
+        cfg = {"activation": name}
+        label = name
+        if beta is not None:
+            cfg["beta"] = beta
+            label = "%s beta=%r" % (name, beta)
+            src = SRC_SWISH
+        groups = [("core", core_inputs(100 + n))]
+        if name != "relu" and beta != 0.0:
+            groups.append(("tail", tail_inputs(200 + n, abs(beta) if beta is not None else 1.0)))
+        for part, xs in groups:
+            y = [f(mpf(x)) for x in xs]
+            dy = [checked_deriv(f, df, mpf(x), name) for x in xs]
+            c = dict(cfg)
+            c["part"] = part
+            cases.append(case("%s %s" % (label, part), src, c,
+                              {"x": ftensor(xs, [len(xs)])},
+                              {"y": ftensor(y, [len(y)]), "dydx": ftensor(dy, [len(dy)])}))
+    return cases
+
+
+# ---- layers -------------------------------------------------------------
+
+def mat(vals, rows, cols):
+    return [[mpf(vals[i * cols + j]) for j in range(cols)] for i in range(rows)]
+
+
+def store(m, layout):
+    """Flatten a logical [in][out] matrix in the given layout."""
+    rows, cols = len(m), len(m[0])
+    if layout == "in_by_out":
+        return [m[i][j] for i in range(rows) for j in range(cols)]
+    return [m[i][j] for j in range(cols) for i in range(rows)]
+
+
+def fuse_cols(w, v, packing):
+    """The logical [in][2h] fused matrix from gate w and value v."""
+    h = len(w[0])
+    out = []
+    for i in range(len(w)):
+        row = [None] * (2 * h)
+        for j in range(h):
+            if packing == "stacked":
+                row[j], row[h + j] = w[i][j], v[i][j]
+            else:
+                row[2 * j], row[2 * j + 1] = w[i][j], v[i][j]
+        out.append(row)
+    return out
+
+
+def fuse_vec(b, c, packing):
+    h = len(b)
+    out = [None] * (2 * h)
+    for j in range(h):
+        if packing == "stacked":
+            out[j], out[h + j] = b[j], c[j]
+        else:
+            out[2 * j], out[2 * j + 1] = b[j], c[j]
+    return out
+
+
+def matvec(x, m):
+    """x (length in) times logical m [in][out]."""
+    return [mpmath.fsum(x[i] * m[i][j] for i in range(len(x))) for j in range(len(m[0]))]
+
+
+def layer_case(name, src, seed, act, beta, gated, layout, storage, dims, biases, scale):
+    rows, din, hid, dout = dims
+    r = rng(seed)
+    f, df, _ = acts(mpf(beta) if beta is not None else None)[act]
+    xs = uniform(r, rows * din, -scale, scale)
+    w1 = uniform(r, din * hid, -1.0, 1.0)
+    b1 = uniform(r, hid, -0.5, 0.5)
+    v = uniform(r, din * hid, -1.0, 1.0) if gated else None
+    c = uniform(r, hid, -0.5, 0.5) if gated else None
+    w2 = uniform(r, hid * dout, -1.0, 1.0)
+    b2 = uniform(r, dout, -0.5, 0.5)
+    dys = uniform(r, rows * dout, -1.0, 1.0)
+    W1, W2 = mat(w1, din, hid), mat(w2, hid, dout)
+    V = mat(v, din, hid) if gated else None
+    B1 = [mpf(t) for t in b1] if biases else [mpf(0)] * hid
+    C = ([mpf(t) for t in c] if biases else [mpf(0)] * hid) if gated else None
+    B2 = [mpf(t) for t in b2] if biases else [mpf(0)] * dout
+
+    y, dx = [], []
+    dW1 = [[mpf(0)] * hid for _ in range(din)]
+    dV = [[mpf(0)] * hid for _ in range(din)]
+    dW2 = [[mpf(0)] * dout for _ in range(hid)]
+    dB1, dC, dB2 = [mpf(0)] * hid, [mpf(0)] * hid, [mpf(0)] * dout
+    for rr in range(rows):
+        x = [mpf(t) for t in xs[rr * din:(rr + 1) * din]]
+        dy = [mpf(t) for t in dys[rr * dout:(rr + 1) * dout]]
+        a = [s + bb for s, bb in zip(matvec(x, W1), B1)]
+        if gated:
+            u = [s + cc for s, cc in zip(matvec(x, V), C)]
+            h = [f(a[j]) * u[j] for j in range(hid)]
+        else:
+            h = [f(a[j]) for j in range(hid)]
+        y += [s + bb for s, bb in zip(matvec(h, W2), B2)]
+        # backward
+        dh = [mpmath.fsum(W2[j][k] * dy[k] for k in range(dout)) for j in range(hid)]
+        for j in range(hid):
+            for k in range(dout):
+                dW2[j][k] += h[j] * dy[k]
+        for k in range(dout):
+            dB2[k] += dy[k]
+        if gated:
+            da = [dh[j] * u[j] * df(a[j]) for j in range(hid)]
+            du = [dh[j] * f(a[j]) for j in range(hid)]
+        else:
+            da = [dh[j] * df(a[j]) for j in range(hid)]
+            du = [mpf(0)] * hid
+        for j in range(hid):
+            dB1[j] += da[j]
+            dC[j] += du[j]
+            for i in range(din):
+                dW1[i][j] += x[i] * da[j]
+                dV[i][j] += x[i] * du[j]
+        for i in range(din):
+            s = mpmath.fsum(W1[i][j] * da[j] for j in range(hid))
+            if gated:
+                s += mpmath.fsum(V[i][j] * du[j] for j in range(hid))
+            dx.append(s)
+
+    cfg = {"activation": act}
+    if beta is not None:
+        cfg["beta"] = beta
+    cfg.update({"gated": gated, "layout": layout, "storage": storage,
+                "rows": rows, "in": din, "hidden": hid, "out": dout, "biases": biases})
+    inputs = {"x": ftensor(xs, [rows, din]), "dy": ftensor(dys, [rows, dout])}
+    outputs = {"y": ftensor(y, [rows, dout]), "dx": ftensor(dx, [rows, din])}
+    shape_w = [din, hid] if layout == "in_by_out" else [hid, din]
+    shape_f = [din, 2 * hid] if layout == "in_by_out" else [2 * hid, din]
+    shape_w2 = [hid, dout] if layout == "in_by_out" else [dout, hid]
+    inputs["w2"] = ftensor(store(W2, layout), shape_w2)
+    outputs["dw2"] = ftensor(store(dW2, layout), shape_w2)
+    outputs["db2"] = ftensor(dB2, [dout])
+    if biases:
+        inputs["b2"] = ftensor(B2, [dout])
+    if storage == "fused":
+        p = cfg["packing"] = "stacked" if "stacked" in name else "interleaved"
+        inputs["fused"] = ftensor(store(fuse_cols(W1, V, p), layout), shape_f)
+        outputs["dfused"] = ftensor(store(fuse_cols(dW1, dV, p), layout), shape_f)
+        outputs["dfused_bias"] = ftensor(fuse_vec(dB1, dC, p), [2 * hid])
+        if biases:
+            inputs["fused_bias"] = ftensor(fuse_vec(B1, C, p), [2 * hid])
+    else:
+        inputs["w1"] = ftensor(store(W1, layout), shape_w)
+        outputs["dw1"] = ftensor(store(dW1, layout), shape_w)
+        outputs["db1"] = ftensor(dB1, [hid])
+        if biases:
+            inputs["b1"] = ftensor(B1, [hid])
+        if gated:
+            inputs["v"] = ftensor(store(V, layout), shape_w)
+            outputs["dv"] = ftensor(store(dV, layout), shape_w)
+            outputs["dc"] = ftensor(dC, [hid])
+            if biases:
+                inputs["c"] = ftensor(C, [hid])
+    return case(name, src, cfg, inputs, outputs)
+
+
+LAYOUTS = ["in_by_out", "out_by_in"]
+PLAIN_ACTS = [("relu", None), ("gelu", None), ("gelu_tanh", None), ("gelu_sigmoid", None),
+              ("sigmoid", None), ("silu", None), ("swish", 1.5), ("identity", None)]
+
+
+def build_plain():
+    cases = []
+    seed = 1000
+    for act, beta in PLAIN_ACTS:
+        for layout in LAYOUTS:
+            for biases in (True, False):
+                seed += 1
+                label = act if beta is None else "%s beta=%r" % (act, beta)
+                name = "%s %s %s" % (label, layout, "biases" if biases else "no biases")
+                cases.append(layer_case(name, SRC_FFN, seed, act, beta, False, layout, "separate",
+                                        (3, 5, 6, 4), biases, 2.0))
+    # wide inputs push pre-activations into the tails
+    for act in ("gelu", "silu"):
+        seed += 1
+        cases.append(layer_case("%s in_by_out wide inputs" % act, SRC_FFN, seed, act, None, False,
+                                "in_by_out", "separate", (2, 4, 5, 3), True, 12.0))
+    return cases
+
+
+GATED = [("GLU", "sigmoid", None), ("Bilinear", "identity", None), ("ReGLU", "relu", None),
+         ("GEGLU", "gelu", None), ("GEGLU tanh", "gelu_tanh", None),
+         ("GEGLU sigmoid", "gelu_sigmoid", None), ("SwiGLU", "silu", None),
+         ("SwiGLU beta=1.5", "swish", 1.5)]
+
+
+def build_gated():
+    cases = []
+    seed = 2000
+    for label, act, beta in GATED:
+        for layout in LAYOUTS:
+            for storage in ("separate", "fused stacked", "fused interleaved"):
+                seed += 1
+                biases = storage != "fused interleaved" or layout == "in_by_out"
+                name = "%s %s %s%s" % (label, layout, storage, "" if biases else " no biases")
+                cases.append(layer_case(name, SRC_GLU, seed, act, beta, True, layout,
+                                        storage.split()[0], (3, 5, 6, 4), biases, 2.0))
+    return cases
+
+
+def build_hidden():
+    cases = []
+    for d, m in [(4096, 256), (4096, 1), (512, 1), (768, 64), (1, 1), (1, 256),
+                 (5120, 256), (8192, 128), (3, 7), (12288, 256)]:
+        q = -((-8 * d) // (3 * m))  # exact ceil(8d / 3m) in integers
+        cases.append(case("d=%d m=%d" % (d, m), SRC_HIDDEN, {},
+                          {"d": itensor([d], [1]), "m": itensor([m], [1])},
+                          {"hidden": itensor([q * m], [1])}))
+    return cases
+
+
+FAMILIES = [
+    ("ffn", "activations", build_activations),
+    ("ffn", "plain", build_plain),
+    ("ffn", "gated", build_gated),
+    ("ffn", "hidden_size", build_hidden),
+]
