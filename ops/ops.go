@@ -1,0 +1,451 @@
+package ops
+
+import (
+	"bytes"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"reflect"
+	"sort"
+	"strings"
+
+	"github.com/plumbref/plumb/compare"
+)
+
+// ConfigVersion is the version of the configuration schema this package
+// reads. Every configuration must say "version": 1.
+const ConfigVersion = 1
+
+// Sentinel errors. Every error this package returns wraps one of them, or
+// the error of the kernel package that refused the call (attention.ErrShape,
+// norm.ErrEpsilon, …), and names the operation and the key or tensor at fault.
+var (
+	// ErrUnknownOp: no operation has that name.
+	ErrUnknownOp = errors.New("ops: unknown operation")
+	// ErrConfig: a configuration that is not one JSON object, has an
+	// unknown key, a missing or unsupported version, a value of the wrong
+	// type, or an enumerated value that is not one of its words.
+	ErrConfig = errors.New("ops: bad configuration")
+	// ErrInput: an input that the operation does not take, a required input
+	// that is missing, a tensor whose data do not fill its shape, or shapes
+	// that do not fit together.
+	ErrInput = errors.New("ops: bad input")
+)
+
+// Tensor is a row-major float64 tensor and its shape. An empty Shape is a
+// scalar (one element).
+type Tensor struct {
+	Shape []int
+	Data  []float64
+}
+
+// Tensors are named tensors: the inputs or the outputs of an operation.
+type Tensors map[string]Tensor
+
+// Port describes one input or output of an operation.
+type Port struct {
+	Name     string
+	Optional bool   // an input that may be left out; an output present only sometimes
+	Doc      string // its shape and meaning
+}
+
+// Key describes one configuration key.
+type Key struct {
+	Name    string
+	Type    string // "int", "number", "bool", "string", "[int]", "[number]", "object", "[object]"
+	Default string // the value used when the key is absent; "required" if it must be given
+	Doc     string
+}
+
+// Op is one operation: a kernel of a plumb package behind a uniform
+// interface of a JSON configuration and named tensors.
+type Op interface {
+	// Name is the operation's name, e.g. "attention-forward".
+	Name() string
+	// Summary is one line: what it computes and the function it calls.
+	Summary() string
+	// Keys documents the configuration keys besides "version".
+	Keys() []Key
+	// Inputs and Outputs document the tensors, in a fixed order.
+	Inputs() []Port
+	Outputs() []Port
+	// Run decodes config and runs the float64 reference.
+	Run(config []byte, in Tensors) (Tensors, error)
+	// Run32 runs the float32 instantiation of the same kernel body on the
+	// inputs rounded to float32, and returns its outputs widened (exactly)
+	// to float64. It is the straightforward low-precision implementation,
+	// not a reference. Operations that take no float input (tables, slopes)
+	// have no float32 arithmetic to instantiate; their Run32 is the
+	// reference rounded to float32.
+	Run32(config []byte, in Tensors) (Tensors, error)
+}
+
+// op is the one implementation of Op: a configuration type C and a run
+// function called with single = false (float64 reference) or true (float32
+// instantiation, inputs already rounded to float32).
+type op[C any] struct {
+	name, summary   string
+	keys            []Key
+	inputs, outputs []Port
+	run             func(c *C, in Tensors, single bool) (Tensors, error)
+}
+
+func (o *op[C]) Name() string    { return o.name }
+func (o *op[C]) Summary() string { return o.summary }
+func (o *op[C]) Keys() []Key     { return o.keys }
+func (o *op[C]) Inputs() []Port  { return o.inputs }
+func (o *op[C]) Outputs() []Port { return o.outputs }
+
+func (o *op[C]) Run(config []byte, in Tensors) (Tensors, error) {
+	return o.exec(config, in, false)
+}
+
+func (o *op[C]) Run32(config []byte, in Tensors) (Tensors, error) {
+	return o.exec(config, round32(in), true)
+}
+
+func (o *op[C]) exec(config []byte, in Tensors, single bool) (Tensors, error) {
+	c := new(C)
+	if err := decodeConfig(o.name, config, c); err != nil {
+		return nil, err
+	}
+	if err := checkInputs(o.name, o.inputs, in); err != nil {
+		return nil, err
+	}
+	out, err := o.run(c, in, single)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", o.name, err)
+	}
+	return out, nil
+}
+
+var registry = map[string]Op{}
+
+func register(o Op) {
+	if _, dup := registry[o.Name()]; dup {
+		panic("ops: operation registered twice: " + o.Name())
+	}
+	registry[o.Name()] = o
+}
+
+// Names returns the names of every operation, sorted.
+func Names() []string {
+	n := make([]string, 0, len(registry))
+	for k := range registry {
+		n = append(n, k)
+	}
+	sort.Strings(n)
+	return n
+}
+
+// Lookup returns the operation called name, or an error wrapping
+// ErrUnknownOp that lists the known names.
+func Lookup(name string) (Op, error) {
+	if o, ok := registry[name]; ok {
+		return o, nil
+	}
+	return nil, fmt.Errorf("%w %q; known operations: %s", ErrUnknownOp, name, strings.Join(Names(), ", "))
+}
+
+// Run looks up the operation called name and runs its float64 reference.
+func Run(name string, config []byte, in Tensors) (Tensors, error) {
+	o, err := Lookup(name)
+	if err != nil {
+		return nil, err
+	}
+	return o.Run(config, in)
+}
+
+// Run32 looks up the operation called name and runs its float32
+// instantiation (see Op.Run32).
+func Run32(name string, config []byte, in Tensors) (Tensors, error) {
+	o, err := Lookup(name)
+	if err != nil {
+		return nil, err
+	}
+	return o.Run32(config, in)
+}
+
+// Yardstick measures, for every output of the operation called name, the
+// error of its straightforward low-precision implementation in format f and
+// the tolerance that follows (compare.MeasureYardstick, one yardstick per
+// output): every float input is rounded to f, the float32 instantiation of
+// the kernel runs on the rounded values (float32 arithmetic), each output is
+// rounded to f and compared with the float64 reference, and the tolerance
+// is k times that error plus one rounding to f. k = compare.DefaultK = 2 is
+// common practice.
+//
+// The result maps each output name to its yardstick; y.Options() gives the
+// compare.Diff options that judge a candidate for that output. f must be
+// Float32 or narrower (BFloat16, Binary16, E4M3, E5M2): a Float64 candidate
+// has no lower-precision implementation to measure, and is refused with
+// compare.ErrFormat.
+//
+// Inputs are rounded to f once each, so the float32 kernel runs once;
+// integer arguments (positions, mask, sizes) live in the configuration and
+// are not rounded.
+func Yardstick(name string, config []byte, in Tensors, f compare.Format, k float64) (map[string]*compare.Yardstick, error) {
+	o, err := Lookup(name)
+	if err != nil {
+		return nil, err
+	}
+	ref, err := o.Run(config, in)
+	if err != nil {
+		return nil, err
+	}
+	var names []string
+	var inputs [][]float64
+	for _, p := range o.Inputs() {
+		if t, ok := in[p.Name]; ok {
+			names = append(names, p.Name)
+			inputs = append(inputs, t.Data)
+		}
+	}
+	var low Tensors // the float32 run, computed once
+	run := func(out string) func(in32 [][]float32) ([]float32, error) {
+		return func(in32 [][]float32) ([]float32, error) {
+			if low == nil {
+				rounded := Tensors{}
+				for i, n := range names {
+					rounded[n] = Tensor{Shape: in[n].Shape, Data: compare.Widen(in32[i])}
+				}
+				var err error
+				if low, err = o.Run32(config, rounded); err != nil {
+					return nil, err
+				}
+			}
+			return to32(low[out].Data), nil
+		}
+	}
+	ys := map[string]*compare.Yardstick{}
+	for _, p := range o.Outputs() {
+		r, ok := ref[p.Name]
+		if !ok {
+			continue
+		}
+		y, err := compare.MeasureYardstick(f, inputs, r.Data, r.Shape, k, run(p.Name))
+		if err != nil {
+			return nil, fmt.Errorf("%s: output %q: %w", name, p.Name, err)
+		}
+		ys[p.Name] = y
+	}
+	return ys, nil
+}
+
+// header is embedded in every configuration.
+type header struct {
+	Version int `json:"version"`
+}
+
+func (h header) version() int { return h.Version }
+
+type versioned interface{ version() int }
+
+// decodeConfig reads one JSON object into c, refusing unknown keys, trailing
+// data and versions other than ConfigVersion. An empty config means
+// {"version": 1}.
+func decodeConfig(name string, data []byte, c any) error {
+	if len(bytes.TrimSpace(data)) == 0 {
+		data = []byte(`{"version":1}`)
+	}
+	dec := json.NewDecoder(bytes.NewReader(data))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(c); err != nil {
+		var syn *json.SyntaxError
+		var typ *json.UnmarshalTypeError
+		switch {
+		case strings.HasPrefix(err.Error(), "json: unknown field "):
+			key := strings.TrimPrefix(err.Error(), "json: unknown field ")
+			return fmt.Errorf("%w: %s: unknown key %s (see `plumb help %s`)", ErrConfig, name, key, name)
+		case errors.As(err, &syn):
+			return fmt.Errorf("%w: %s: malformed JSON at byte %d: %v", ErrConfig, name, syn.Offset, err)
+		case errors.As(err, &typ):
+			return fmt.Errorf("%w: %s: key %q holds a JSON %s; want %v", ErrConfig, name, typ.Field, typ.Value, typ.Type)
+		case errors.Is(err, io.EOF), errors.Is(err, io.ErrUnexpectedEOF):
+			return fmt.Errorf("%w: %s: malformed JSON: the configuration ends early", ErrConfig, name)
+		default:
+			return fmt.Errorf("%w: %s: %v", ErrConfig, name, err)
+		}
+	}
+	if dec.More() {
+		return fmt.Errorf("%w: %s: malformed JSON: more than one value in the configuration", ErrConfig, name)
+	}
+	if v := c.(versioned).version(); v != ConfigVersion {
+		if v == 0 {
+			return fmt.Errorf("%w: %s: key \"version\" is missing or 0; this plumb reads version %d", ErrConfig, name, ConfigVersion)
+		}
+		return fmt.Errorf("%w: %s: key \"version\" is %d; this plumb reads version %d", ErrConfig, name, v, ConfigVersion)
+	}
+	return nil
+}
+
+// checkInputs refuses unknown and missing inputs and tensors whose data do
+// not fill their shape.
+func checkInputs(name string, ports []Port, in Tensors) error {
+	known := map[string]bool{}
+	var all []string
+	for _, p := range ports {
+		known[p.Name] = true
+		all = append(all, p.Name)
+	}
+	var extra []string
+	for n := range in {
+		if !known[n] {
+			extra = append(extra, n)
+		}
+	}
+	if len(extra) > 0 {
+		sort.Strings(extra)
+		takes := "no input"
+		if len(all) > 0 {
+			takes = strings.Join(all, ", ")
+		}
+		return fmt.Errorf("%w: %s does not take input %q; it takes %s", ErrInput, name, extra[0], takes)
+	}
+	for _, p := range ports {
+		t, ok := in[p.Name]
+		if !ok {
+			if !p.Optional {
+				return fmt.Errorf("%w: %s: input %q is missing (%s)", ErrInput, name, p.Name, p.Doc)
+			}
+			continue
+		}
+		n := 1
+		for _, d := range t.Shape {
+			if d < 0 {
+				return fmt.Errorf("%w: %s: input %q has shape %v with a negative dimension", ErrInput, name, p.Name, t.Shape)
+			}
+			n *= d
+		}
+		if n != len(t.Data) {
+			return fmt.Errorf("%w: %s: input %q has %d values; its shape %v holds %d", ErrInput, name, p.Name, len(t.Data), t.Shape, n)
+		}
+	}
+	return nil
+}
+
+// round32 returns the tensors with every value rounded to float32.
+func round32(in Tensors) Tensors {
+	out := make(Tensors, len(in))
+	for n, t := range in {
+		out[n] = Tensor{Shape: t.Shape, Data: compare.Widen(to32(t.Data))}
+	}
+	return out
+}
+
+func to32(x []float64) []float32 {
+	if x == nil {
+		return nil
+	}
+	y := make([]float32, len(x))
+	for i, v := range x {
+		y[i] = float32(v)
+	}
+	return y
+}
+
+// widen is compare.Widen keeping nil as nil.
+func widen(x []float32) []float64 {
+	if x == nil {
+		return nil
+	}
+	return compare.Widen(x)
+}
+
+// rank checks that input n has the given number of dimensions, described
+// by dims (e.g. "[batch, heads, queries, dim]").
+func rank(in Tensors, n string, want int, dims string) ([]int, error) {
+	s := in[n].Shape
+	if len(s) != want {
+		return nil, fmt.Errorf("%w: input %q has shape %v; want %d dimensions %s", ErrInput, n, s, want, dims)
+	}
+	return s, nil
+}
+
+// lastDim returns the last dimension of input n, which must have at least
+// one dimension of size ≥ 1.
+func lastDim(in Tensors, n string) (int, error) {
+	s := in[n].Shape
+	if len(s) == 0 || s[len(s)-1] < 1 {
+		return 0, fmt.Errorf("%w: input %q has shape %v; want at least one dimension, the last ≥ 1", ErrInput, n, s)
+	}
+	return s[len(s)-1], nil
+}
+
+// sameShape checks that input n has the shape want.
+func sameShape(in Tensors, n string, want []int, what string) error {
+	if !equalInts(in[n].Shape, want) {
+		return fmt.Errorf("%w: input %q has shape %v; want %v (%s)", ErrInput, n, in[n].Shape, want, what)
+	}
+	return nil
+}
+
+func equalInts(a, b []int) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}
+
+// choice maps an enumerated configuration word to its value; "" gives the
+// default, the first entry.
+func choice[T any](key, word string, words []string, values []T) (T, error) {
+	if word == "" {
+		return values[0], nil
+	}
+	for i, w := range words {
+		if w == word {
+			return values[i], nil
+		}
+	}
+	var zero T
+	return zero, fmt.Errorf("%w: key %q is %q; want one of %s", ErrConfig, key, word, strings.Join(words, ", "))
+}
+
+// has reports whether input n was given.
+func (in Tensors) has(n string) bool { _, ok := in[n]; return ok }
+
+// data returns the data of input n, or nil when it is absent.
+func (in Tensors) data(n string) []float64 {
+	if t, ok := in[n]; ok {
+		return t.Data
+	}
+	return nil
+}
+
+// pick returns the float64 result, or the float32 one widened.
+func pick(single bool, d64 []float64, d32 []float32) []float64 {
+	if single {
+		return widen(d32)
+	}
+	return d64
+}
+
+// finite reports whether v is finite; used for configuration numbers.
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// configKeys lists the JSON keys of the configuration type, for the test
+// that every key is documented.
+func (o *op[C]) configKeys() []string { return jsonKeys(reflect.TypeFor[C]()) }
+
+func jsonKeys(t reflect.Type) []string {
+	var keys []string
+	for i := 0; i < t.NumField(); i++ {
+		f := t.Field(i)
+		if f.Anonymous {
+			keys = append(keys, jsonKeys(f.Type)...)
+			continue
+		}
+		if tag := strings.Split(f.Tag.Get("json"), ",")[0]; tag != "" {
+			keys = append(keys, tag)
+		}
+	}
+	return keys
+}

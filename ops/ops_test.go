@@ -1,0 +1,323 @@
+package ops
+
+import (
+	"errors"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/attention"
+	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/mask"
+	"github.com/plumbref/plumb/norm"
+	"github.com/plumbref/plumb/posenc"
+)
+
+// tensor returns a tensor of the shape holding values uniform in [−1, 1)
+// from a fixed-seed generator.
+func tensor(r *rand.Rand, shape ...int) Tensor {
+	n := 1
+	for _, d := range shape {
+		n *= d
+	}
+	x := make([]float64, n)
+	for i := range x {
+		x[i] = 2*r.Float64() - 1
+	}
+	return Tensor{Shape: shape, Data: x}
+}
+
+type opCase struct {
+	name   string // test name
+	op     string
+	config string
+	inputs func(r *rand.Rand) Tensors
+	// outputs are the outputs the call must give.
+	outputs []string
+}
+
+// cases covers every operation at least once.
+func cases() []opCase {
+	return []opCase{
+		{"attention-forward/gqa-causal", "attention-forward", `{"version":1,"mask":[{"kind":"causal"}]}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 1, 4, 5, 8), "k": tensor(r, 1, 2, 5, 8), "v": tensor(r, 1, 2, 5, 8)}
+			}, []string{"out", "lse"}},
+		{"attention-forward/seq-major-extras", "attention-forward",
+			`{"version":1,"layout":"seq-major","group":"cycle","soft_cap":5,"mask":[{"kind":"window","size":3},{"kind":"causal"}],"alibi_form":"causal"}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 2, 4, 4, 8), "k": tensor(r, 2, 6, 2, 8), "v": tensor(r, 2, 6, 2, 4),
+					"bias": tensor(r, 1, 4, 4, 6), "slopes": {[]int{4}, []float64{0.5, 0.25, 0.125, 0.0625}}, "sinks": tensor(r, 4)}
+			}, []string{"out", "lse"}},
+		{"attention-backward/bias-sinks", "attention-backward", `{"version":1,"mask":[{"kind":"causal"}]}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 1, 2, 4, 8), "k": tensor(r, 1, 1, 4, 8), "v": tensor(r, 1, 1, 4, 8),
+					"bias": tensor(r, 1, 2, 4, 4), "sinks": tensor(r, 2), "dout": tensor(r, 1, 2, 4, 8), "dlse": tensor(r, 1, 2, 4)}
+			}, []string{"dq", "dk", "dv", "dsinks", "dbias"}},
+		{"rotary-apply/halves", "rotary-apply", `{"version":1,"pairing":"halves","offset":3}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 2, 5, 8)} }, []string{"y"}},
+		{"rotary-apply/inverse-yarn", "rotary-apply",
+			`{"version":1,"rotated":4,"inverse":true,"scaling":{"method":"yarn","factor":4,"trained_length":64}}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 3, 8)} }, []string{"y"}},
+		{"rotary-tables", "rotary-tables", `{"version":1,"dim":8,"length":5,"offset":2}`,
+			func(*rand.Rand) Tensors { return nil }, []string{"cos", "sin"}},
+		{"sinusoidal-table", "sinusoidal-table", `{"version":1,"dim":6,"length":4,"layout":"concatenated"}`,
+			func(*rand.Rand) Tensors { return nil }, []string{"table"}},
+		{"alibi-slopes", "alibi-slopes", `{"version":1,"heads":12}`,
+			func(*rand.Rand) Tensors { return nil }, []string{"slopes"}},
+		{"alibi-bias", "alibi-bias", `{"version":1,"queries":3,"keys":5,"form":"symmetric"}`,
+			func(*rand.Rand) Tensors { return Tensors{"slopes": {[]int{2}, []float64{0.5, 0.25}}} }, []string{"bias"}},
+		{"layernorm-forward", "layernorm-forward", `{"version":1,"epsilon":1e-5}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 3, 16), "weight": tensor(r, 16), "bias": tensor(r, 16)} }, []string{"y"}},
+		{"layernorm-backward", "layernorm-backward", `{"version":1,"epsilon":1e-5,"epsilon_placement":"added-to-root"}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 3, 16), "weight": tensor(r, 16), "dy": tensor(r, 3, 16)} },
+			[]string{"dx", "dweight", "dbias"}},
+		{"rmsnorm-forward", "rmsnorm-forward", `{"version":1,"epsilon":1e-6,"weight_form":"one-plus"}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 2, 3, 16), "weight": tensor(r, 16)} }, []string{"y"}},
+		{"rmsnorm-backward", "rmsnorm-backward", `{"version":1,"epsilon":1e-6}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 4, 16), "dy": tensor(r, 4, 16)} }, []string{"dx"}},
+		{"activation", "activation", `{"version":1,"function":"gelu-tanh"}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 4, 5)} }, []string{"y"}},
+		{"activation-grad", "activation-grad", `{"version":1,"function":"swish","beta":1.5}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 20), "dy": tensor(r, 20)} }, []string{"dx"}},
+		{"ffn-forward/plain", "ffn-forward", `{"version":1,"activation":"relu","layout":"in-by-out"}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"x": tensor(r, 3, 8), "w1": tensor(r, 8, 12), "b1": tensor(r, 12), "w2": tensor(r, 12, 8), "b2": tensor(r, 8)}
+			}, []string{"y"}},
+		{"ffn-forward/swiglu-fused", "ffn-forward", `{"version":1,"activation":"silu","gated":true,"layout":"out-by-in","packing":"interleaved"}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"x": tensor(r, 2, 3, 8), "fused": tensor(r, 24, 8), "w2": tensor(r, 6, 12)}
+			}, []string{"y"}},
+		{"ffn-backward/geglu", "ffn-backward", `{"version":1,"activation":"gelu","gated":true,"layout":"in-by-out"}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"x": tensor(r, 3, 8), "w1": tensor(r, 8, 10), "v": tensor(r, 8, 10), "c": tensor(r, 10),
+					"w2": tensor(r, 10, 8), "dy": tensor(r, 3, 8)}
+			}, []string{"dx", "dw1", "db1", "dv", "dc", "dw2", "db2"}},
+	}
+}
+
+// TestEveryOpHasACase keeps the table above complete.
+func TestEveryOpHasACase(t *testing.T) {
+	covered := map[string]bool{}
+	for _, c := range cases() {
+		covered[c.op] = true
+	}
+	for _, n := range Names() {
+		assert.True(t, covered[n], "operation %s has no test case", n)
+	}
+}
+
+// TestRunRun32Yardstick runs every case in float64 and float32 and measures
+// its bfloat16 yardstick.
+func TestRunRun32Yardstick(t *testing.T) {
+	for _, c := range cases() {
+		t.Run(c.name, func(t *testing.T) {
+			in := c.inputs(rand.New(rand.NewPCG(1, 2)))
+			ref, err := Run(c.op, []byte(c.config), in)
+			require.NoError(t, err)
+			got := slices.Sorted(func(yield func(string) bool) {
+				for n := range ref {
+					if !yield(n) {
+						return
+					}
+				}
+			})
+			assert.ElementsMatch(t, c.outputs, got)
+
+			low, err := Run32(c.op, []byte(c.config), in)
+			require.NoError(t, err)
+			require.Len(t, low, len(ref))
+			for n, r := range ref {
+				l := low[n]
+				require.Equal(t, r.Shape, l.Shape, n)
+				for _, v := range l.Data {
+					require.Equal(t, float64(float32(v)), v, "%s: Run32 output %v is not a float32 value", n, v)
+				}
+				// The float32 instantiation is within a few hundred float32
+				// roundings of the reference on these small, well-conditioned
+				// problems (u = 6e-8): a bound that a float64 path or a
+				// wrong kernel would break either way.
+				rep, err := compare.Diff(r.Data, l.Data, r.Shape, compare.Options{Format: compare.Float32})
+				require.NoError(t, err)
+				assert.Less(t, rep.Normwise, 1e-5, "%s: float32 run far from the reference", n)
+				if !strings.HasPrefix(c.op, "alibi") && !strings.HasSuffix(c.op, "-table") && c.op != "rotary-tables" {
+					assert.Positive(t, rep.Normwise, "%s: the float32 run equals the reference exactly: is it float64?", n)
+				}
+			}
+
+			ys, err := Yardstick(c.op, []byte(c.config), in, compare.BFloat16, compare.DefaultK)
+			require.NoError(t, err)
+			require.Len(t, ys, len(ref))
+			for n, y := range ys {
+				r := ref[n]
+				assert.Equal(t, "float32", y.Arithmetic)
+				// The reference rounded once to bfloat16 always passes
+				// (the yardstick's floor guarantees it).
+				rep, err := compare.Diff(r.Data, compare.BFloat16.RoundSlice(r.Data), r.Shape, y.Options())
+				require.NoError(t, err)
+				assert.True(t, rep.Verdict.Pass, "%s: the rounded reference fails its own yardstick:\n%v", n, rep)
+				// A candidate 10% off on its largest element fails: bfloat16
+				// holds 8 significant bits (relative spacing 2^−7 ≈ 0.8%).
+				bad := slices.Clone(compare.BFloat16.RoundSlice(r.Data))
+				big := 0
+				for i, v := range r.Data {
+					if math.Abs(v) > math.Abs(r.Data[big]) {
+						big = i
+					}
+				}
+				if len(bad) > 0 && r.Data[big] != 0 {
+					bad[big] *= 1.1
+					rep, err = compare.Diff(r.Data, bad, r.Shape, y.Options())
+					require.NoError(t, err)
+					assert.False(t, rep.Verdict.Pass, "%s: a 10%% error passes the yardstick:\n%v", n, rep)
+				}
+			}
+		})
+	}
+}
+
+// TestRunMatchesKernels checks that the operations call the kernels with
+// the options their configuration names, bit for bit.
+func TestRunMatchesKernels(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	q, k, v := tensor(r, 1, 4, 6, 8), tensor(r, 1, 2, 6, 8), tensor(r, 1, 2, 6, 8)
+	got, err := Run("attention-forward", []byte(`{"version":1,"group":"cycle","mask":[{"kind":"window","size":2}],"soft_cap":3}`),
+		Tensors{"q": q, "k": k, "v": v})
+	require.NoError(t, err)
+	w, err := mask.Window(2)
+	require.NoError(t, err)
+	out, lse, err := attention.Forward(q.Data, k.Data, v.Data,
+		attention.Shape{Batch: 1, HeadsQ: 4, HeadsKV: 2, Lq: 6, Lk: 6, Dk: 8, Dv: 8},
+		attention.Options{Group: attention.GroupCycle, Mask: w, SoftCap: 3})
+	require.NoError(t, err)
+	assert.Equal(t, out, got["out"].Data)
+	assert.Equal(t, lse, got["lse"].Data)
+	assert.Equal(t, []int{1, 4, 6}, got["lse"].Shape)
+
+	x := tensor(r, 2, 5, 8)
+	got, err = Run("rotary-apply", []byte(`{"version":1,"pairing":"halves","base":500}`), Tensors{"x": x})
+	require.NoError(t, err)
+	y, err := posenc.Rotary{Dim: 8, Base: 500, Pairing: posenc.PairHalves}.Apply(x.Data, 5, posenc.Positions{})
+	require.NoError(t, err)
+	assert.Equal(t, y, got["y"].Data)
+
+	got, err = Run("rmsnorm-forward", []byte(`{"version":1,"epsilon":1e-3,"epsilon_placement":"added-to-root"}`), Tensors{"x": x})
+	require.NoError(t, err)
+	y, err = norm.RMSNorm(x.Data, 8, nil, norm.Options{Epsilon: 1e-3, Placement: norm.EpsilonAddedToRoot})
+	require.NoError(t, err)
+	assert.Equal(t, y, got["y"].Data)
+
+	got, err = Run("activation", []byte(`{"version":1,"function":"gelu-sigmoid"}`), Tensors{"x": x})
+	require.NoError(t, err)
+	y, err = ffn.Activate(x.Data, ffn.ActGELUSigmoid, 0)
+	require.NoError(t, err)
+	assert.Equal(t, y, got["y"].Data)
+}
+
+// TestEveryKeyDocumented: each JSON key of each configuration appears in
+// Keys, and Keys names no key the configuration lacks.
+func TestEveryKeyDocumented(t *testing.T) {
+	for _, n := range Names() {
+		o, err := Lookup(n)
+		require.NoError(t, err)
+		var doc []string
+		for _, k := range o.Keys() {
+			doc = append(doc, k.Name)
+			assert.NotEmpty(t, k.Doc, "%s: key %s", n, k.Name)
+		}
+		keys := o.(interface{ configKeys() []string }).configKeys()
+		assert.ElementsMatch(t, append(doc, "version"), keys, n)
+		assert.NotEmpty(t, o.Summary())
+		for _, p := range append(o.Inputs(), o.Outputs()...) {
+			assert.NotEmpty(t, p.Doc, "%s: tensor %s", n, p.Name)
+		}
+	}
+}
+
+func TestErrors(t *testing.T) {
+	r := rand.New(rand.NewPCG(5, 6))
+	x := Tensors{"x": tensor(r, 2, 8)}
+	qkv := Tensors{"q": tensor(r, 1, 2, 3, 4), "k": tensor(r, 1, 2, 3, 4), "v": tensor(r, 1, 2, 3, 4)}
+	for _, c := range []struct {
+		name, op, config string
+		in               Tensors
+		want             error
+		says             string
+	}{
+		{"unknown op", "attention-sideways", `{"version":1}`, x, ErrUnknownOp, `"attention-sideways"`},
+		{"unknown key", "activation", `{"version":1,"function":"relu","slope":2}`, x, ErrConfig, `unknown key "slope"`},
+		{"unknown nested key", "attention-forward", `{"version":1,"mask":[{"kind":"window","width":2}]}`, qkv, ErrConfig, `unknown key "width"`},
+		{"missing version", "activation", `{"function":"relu"}`, x, ErrConfig, `"version" is missing`},
+		{"future version", "activation", `{"version":2,"function":"relu"}`, x, ErrConfig, `"version" is 2`},
+		{"malformed", "activation", `{"version":1,`, x, ErrConfig, "malformed JSON"},
+		{"syntax", "activation", `{"version":1 "function":"relu"}`, x, ErrConfig, "malformed JSON at byte"},
+		{"two values", "activation", `{"version":1,"function":"relu"} {}`, x, ErrConfig, "more than one value"},
+		{"wrong type", "activation", `{"version":1,"function":3}`, x, ErrConfig, `key "function" holds a JSON number`},
+		{"bad word", "attention-forward", `{"version":1,"layout":"rows"}`, qkv, ErrConfig, `key "layout" is "rows"; want one of heads-major, seq-major`},
+		{"missing required", "activation", `{"version":1}`, x, ErrConfig, `key "function" is missing`},
+		{"unknown input", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": x["x"], "z": x["x"]}, ErrInput, `does not take input "z"`},
+		{"missing input", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"]}, ErrInput, `input "k" is missing`},
+		{"data short", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": {[]int{3, 3}, make([]float64, 8)}}, ErrInput, `input "x" has 8 values; its shape [3 3] holds 9`},
+		{"rank", "attention-forward", `{"version":1}`, Tensors{"q": x["x"], "k": qkv["k"], "v": qkv["v"]}, ErrInput, `input "q" has shape [2 8]; want 4 dimensions`},
+		{"head dim", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": tensor(r, 1, 2, 3, 5), "v": qkv["v"]}, ErrInput, `input "k" has head dimension 5`},
+		{"dy shape", "activation-grad", `{"version":1,"function":"relu"}`, Tensors{"x": x["x"], "dy": tensor(r, 8, 2)}, ErrInput, `input "dy" has shape [8 2]; want [2 8]`},
+		{"kernel error", "layernorm-forward", `{"version":1,"epsilon":-1}`, x, norm.ErrEpsilon, "layernorm-forward"},
+		{"kernel heads", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": tensor(r, 1, 3, 3, 4), "v": tensor(r, 1, 3, 3, 4)}, attention.ErrShape, "attention-forward"},
+		{"weight shape", "ffn-forward", `{"version":1,"activation":"relu","layout":"in-by-out"}`,
+			Tensors{"x": x["x"], "w1": tensor(r, 8, 3), "w2": tensor(r, 4, 8)}, ErrInput, `input "w1" has shape [8 3]; want [8 4]`},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			_, err := Run(c.op, []byte(c.config), c.in)
+			require.Error(t, err)
+			assert.True(t, errors.Is(err, c.want), "%v does not wrap %v", err, c.want)
+			assert.Contains(t, err.Error(), c.says)
+		})
+	}
+}
+
+func TestYardstickRefusesFloat64(t *testing.T) {
+	_, err := Yardstick("activation", []byte(`{"version":1,"function":"relu"}`), Tensors{"x": {[]int{1}, []float64{1}}}, compare.Float64, 2)
+	assert.ErrorIs(t, err, compare.ErrFormat)
+}
+
+func TestEmptyConfigIsVersion1(t *testing.T) {
+	out, err := Run("rotary-apply", nil, Tensors{"x": {[]int{1, 2}, []float64{1, 0}}})
+	require.NoError(t, err)
+	assert.Equal(t, []float64{1, 0}, out["y"].Data) // position 0: the identity rotation
+}
+
+func FuzzConfig(f *testing.F) {
+	f.Add("attention-forward", `{"version":1,"mask":[{"kind":"band","before":1,"after":-1}]}`)
+	f.Add("rotary-apply", `{"version":1,"scaling":{"method":"ntk-aware","factor":2}}`)
+	f.Add("ffn-forward", `{"version":1,"activation":"swish","beta":1,"gated":true,"layout":"in-by-out"}`)
+	r := rand.New(rand.NewPCG(7, 8))
+	in := map[string]Tensors{}
+	for _, c := range cases() {
+		in[c.op] = c.inputs(r)
+	}
+	f.Fuzz(func(t *testing.T, name, config string) {
+		o, err := Lookup(name)
+		if err != nil {
+			return
+		}
+		out, err := o.Run([]byte(config), in[name])
+		if err != nil {
+			return
+		}
+		for n, t2 := range out {
+			size := 1
+			for _, d := range t2.Shape {
+				size *= d
+			}
+			if size != len(t2.Data) {
+				t.Fatalf("output %s: shape %v, %d values", n, t2.Shape, len(t2.Data))
+			}
+		}
+	})
+}
