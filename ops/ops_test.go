@@ -74,9 +74,13 @@ func cases() []opCase {
 		{"alibi-bias", "alibi-bias", `{"version":1,"queries":3,"keys":5,"form":"symmetric"}`,
 			func(*rand.Rand) Tensors { return Tensors{"slopes": {[]int{2}, []float64{0.5, 0.25}}} }, []string{"bias"}},
 		{"layernorm-forward", "layernorm-forward", `{"version":1,"epsilon":1e-5}`,
-			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 3, 16), "weight": tensor(r, 16), "bias": tensor(r, 16)} }, []string{"y"}},
+			func(r *rand.Rand) Tensors {
+				return Tensors{"x": tensor(r, 3, 16), "weight": tensor(r, 16), "bias": tensor(r, 16)}
+			}, []string{"y"}},
 		{"layernorm-backward", "layernorm-backward", `{"version":1,"epsilon":1e-5,"epsilon_placement":"added-to-root"}`,
-			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 3, 16), "weight": tensor(r, 16), "dy": tensor(r, 3, 16)} },
+			func(r *rand.Rand) Tensors {
+				return Tensors{"x": tensor(r, 3, 16), "weight": tensor(r, 16), "dy": tensor(r, 3, 16)}
+			},
 			[]string{"dx", "dweight", "dbias"}},
 		{"rmsnorm-forward", "rmsnorm-forward", `{"version":1,"epsilon":1e-6,"weight_form":"one-plus"}`,
 			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 2, 3, 16), "weight": tensor(r, 16)} }, []string{"y"}},
