@@ -1,0 +1,198 @@
+package main
+
+import (
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strings"
+
+	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/npy"
+	"github.com/plumbref/plumb/ops"
+)
+
+// tensorFile is a tensor read from a .npy file.
+type tensorFile struct {
+	path   string
+	dtype  npy.DType
+	tensor ops.Tensor
+}
+
+// readTensor reads the .npy file at path as float64 values. Float files
+// (float64, float32, float16) are read as they are; uint16 and uint8 files
+// hold bit patterns and need bits, the format named by -format (bfloat16,
+// e4m3, e5m2). Integer files are refused: plumb's tensors are numbers
+// of a floating-point format.
+func readTensor(path string, bits string) (*tensorFile, error) {
+	a, err := npy.ReadFile(path)
+	if err != nil {
+		if os.IsNotExist(err) {
+			return nil, fmt.Errorf("%s: no such file", path)
+		}
+		return nil, fmt.Errorf("%s: %w", path, trimPath(err, path))
+	}
+	switch a.DType {
+	case npy.Float64, npy.Float32, npy.Float16:
+	case npy.Uint16, npy.Uint8:
+		want := map[string]npy.Bits{"bfloat16": npy.BFloat16, "e4m3": npy.E4M3, "e5m2": npy.E5M2}
+		b, ok := want[bits]
+		if !ok {
+			return nil, fmt.Errorf("%s holds %s values; that is a float format's bit patterns only with -format bfloat16 (uint16), e4m3 or e5m2 (uint8)", path, a.DType)
+		}
+		a.Bits = b
+		if (b == npy.BFloat16) != (a.DType == npy.Uint16) {
+			return nil, fmt.Errorf("%s holds %s values, which cannot be %s bit patterns (bfloat16 is uint16, e4m3 and e5m2 are uint8)", path, a.DType, bits)
+		}
+	default:
+		return nil, fmt.Errorf("%s holds %s values; want float64, float32 or float16 (or bit patterns with -format)", path, a.DType)
+	}
+	x, err := a.Float64s()
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	shape := append([]int{}, a.Shape...)
+	return &tensorFile{path: path, dtype: a.DType, tensor: ops.Tensor{Shape: shape, Data: x}}, nil
+}
+
+// trimPath drops a repetition of the path from an error of the os package.
+func trimPath(err error, path string) error {
+	if pe, ok := err.(*os.PathError); ok && pe.Path == path {
+		return fmt.Errorf("%s: %w", pe.Op, pe.Err)
+	}
+	return err
+}
+
+// refuseNaN returns an error naming the first NaN of the tensor.
+func refuseNaN(f *tensorFile) error {
+	for i, v := range f.tensor.Data {
+		if math.IsNaN(v) {
+			return fmt.Errorf("%s: element %v is NaN (%d NaN in all); inputs must be numbers (-allow-nan passes NaN to the reference)",
+				f.path, unravel(i, f.tensor.Shape), countNaN(f.tensor.Data))
+		}
+	}
+	return nil
+}
+
+func countNaN(x []float64) int {
+	n := 0
+	for _, v := range x {
+		if math.IsNaN(v) {
+			n++
+		}
+	}
+	return n
+}
+
+// unravel returns the row-major index of flat offset i in shape.
+func unravel(i int, shape []int) []int {
+	idx := make([]int, len(shape))
+	for d := len(shape) - 1; d >= 0; d-- {
+		if shape[d] > 0 {
+			idx[d] = i % shape[d]
+			i /= shape[d]
+		}
+	}
+	return idx
+}
+
+// writeTensor writes t as a float64 .npy file.
+func writeTensor(path string, t ops.Tensor) error {
+	a, err := npy.New(npy.Float64, t.Shape, t.Data)
+	if err != nil {
+		return fmt.Errorf("%s: %w", path, err)
+	}
+	return npy.WriteFile(path, a)
+}
+
+// namedFiles parses arguments NAME=FILE into a map, refusing malformed
+// arguments and repeated names.
+func namedFiles(args []string, what string) (map[string]string, error) {
+	m := map[string]string{}
+	for _, a := range args {
+		name, file, ok := strings.Cut(a, "=")
+		if !ok || name == "" || file == "" {
+			return nil, fmt.Errorf("%s argument %q is not NAME=FILE", what, a)
+		}
+		if _, dup := m[name]; dup {
+			return nil, fmt.Errorf("%s %q is given twice", what, name)
+		}
+		m[name] = file
+	}
+	return m, nil
+}
+
+// readInputs reads the named input files.
+func readInputs(files map[string]string, allowNaN bool) (ops.Tensors, error) {
+	names := make([]string, 0, len(files))
+	for n := range files {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	in := ops.Tensors{}
+	for _, n := range names {
+		f, err := readTensor(files[n], "")
+		if err != nil {
+			return nil, err
+		}
+		if !allowNaN {
+			if err := refuseNaN(f); err != nil {
+				return nil, err
+			}
+		}
+		in[n] = f.tensor
+	}
+	return in, nil
+}
+
+// readConfig reads a configuration file; no file means {"version": 1}.
+func readConfig(path string) ([]byte, error) {
+	if path == "" {
+		return nil, nil
+	}
+	b, err := os.ReadFile(path)
+	if err != nil {
+		if os.IsNotExist(err) {
+			return nil, fmt.Errorf("configuration %s: no such file", path)
+		}
+		return nil, fmt.Errorf("configuration %s: %w", path, trimPath(err, path))
+	}
+	return b, nil
+}
+
+// configError names the configuration file in an error of the ops package.
+func configError(path string, err error) error {
+	if path != "" {
+		return fmt.Errorf("configuration %s: %w", filepath.Clean(path), err)
+	}
+	return err
+}
+
+// candidateFormat is the format of a candidate file: the -format flag, or
+// else the file's own type.
+func candidateFormat(flagFormat string, dtype npy.DType) (compare.Format, error) {
+	if flagFormat != "" {
+		return compare.FormatByName(flagFormat)
+	}
+	switch dtype {
+	case npy.Float32:
+		return compare.Float32, nil
+	case npy.Float16:
+		return compare.Binary16, nil
+	}
+	return compare.Float64, nil
+}
+
+// canonicalBits maps a -format name to the bit-pattern names readTensor
+// knows ("bf16" → "bfloat16").
+func canonicalBits(flagFormat string) string {
+	if flagFormat == "" {
+		return ""
+	}
+	f, err := compare.FormatByName(flagFormat)
+	if err != nil {
+		return ""
+	}
+	return f.String()
+}

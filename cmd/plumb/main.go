@@ -1,0 +1,224 @@
+package main
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"sort"
+	"strings"
+
+	"github.com/plumbref/plumb/ops"
+)
+
+// Exit statuses.
+const (
+	exitPass  = 0 // success; for diff and check, within tolerance
+	exitFail  = 1 // diff or check: outside the tolerance
+	exitUsage = 2 // a usage or input error
+)
+
+// env is what a subcommand sees of the process.
+type env struct {
+	stdout, stderr io.Writer
+	// terminal reports whether stderr is a terminal (progress is shown only
+	// then).
+	terminal bool
+}
+
+// command is one subcommand.
+type command struct {
+	name    string
+	usage   string // the synopsis after "plumb "
+	summary string // one line
+	about   string // paragraphs after the synopsis
+	flags   func(fs *flag.FlagSet) any
+	run     func(e *env, opts any, args []string) (int, error)
+}
+
+// commands are the subcommands, in the order help lists them (see order).
+var commands []*command
+
+// order is the order of the subcommands in help.
+var order = []string{"gen", "run", "diff", "check", "demo"}
+
+func sortCommands() {
+	rank := map[string]int{}
+	for i, n := range order {
+		rank[n] = i
+	}
+	sort.SliceStable(commands, func(i, j int) bool { return rank[commands[i].name] < rank[commands[j].name] })
+}
+
+func lookup(name string) *command {
+	for _, c := range commands {
+		if c.name == name {
+			return c
+		}
+	}
+	return nil
+}
+
+func main() {
+	fi, err := os.Stderr.Stat()
+	term := err == nil && fi.Mode()&os.ModeCharDevice != 0
+	os.Exit(plumb(os.Args[1:], &env{stdout: os.Stdout, stderr: os.Stderr, terminal: term}))
+}
+
+// plumb runs the command line args and returns the exit status.
+func plumb(args []string, e *env) int {
+	sortCommands()
+	if len(args) == 0 {
+		topUsage(e.stderr)
+		return exitUsage
+	}
+	name := args[0]
+	if name == "help" || name == "-h" || name == "-help" || name == "--help" {
+		return help(e, args[1:])
+	}
+	c := lookup(name)
+	if c == nil {
+		fmt.Fprintf(e.stderr, "plumb: unknown command %q; the commands are %s (plumb help)\n", name, commandNames())
+		return exitUsage
+	}
+	fs, opts := c.flagSet(e.stderr)
+	pos, err := parseInterleaved(fs, args[1:])
+	if errors.Is(err, flag.ErrHelp) {
+		return exitPass
+	}
+	if err != nil {
+		return exitUsage // flag has printed the message and the usage
+	}
+	// Every error a command returns is a usage or input error (exit 2); a
+	// verdict outside the tolerance is the status 1 with no error.
+	code, err := c.run(e, opts, pos)
+	if err != nil {
+		fmt.Fprintf(e.stderr, "plumb %s: %v\n", c.name, err)
+		return exitUsage
+	}
+	return code
+}
+
+func (c *command) flagSet(w io.Writer) (*flag.FlagSet, any) {
+	fs := flag.NewFlagSet("plumb "+c.name, flag.ContinueOnError)
+	fs.SetOutput(w)
+	opts := c.flags(fs)
+	fs.Usage = func() { c.writeHelp(fs.Output(), fs) }
+	return fs, opts
+}
+
+func (c *command) writeHelp(w io.Writer, fs *flag.FlagSet) {
+	fmt.Fprintf(w, "usage: plumb %s\n\n%s\n", c.usage, strings.TrimSpace(c.about))
+	has := false
+	fs.VisitAll(func(*flag.Flag) { has = true })
+	if has {
+		fmt.Fprintf(w, "\nflags:\n")
+		fs.SetOutput(w)
+		fs.PrintDefaults()
+	}
+}
+
+// parseInterleaved parses flags that may come before, between and after the
+// positional arguments, and returns the positional arguments in order.
+// After "--" everything is positional.
+func parseInterleaved(fs *flag.FlagSet, args []string) ([]string, error) {
+	var pos []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			return nil, err
+		}
+		rest := fs.Args()
+		if len(rest) == 0 {
+			return pos, nil
+		}
+		if n := len(args) - len(rest); n > 0 && args[n-1] == "--" {
+			return append(pos, rest...), nil
+		}
+		pos = append(pos, rest[0])
+		args = rest[1:]
+	}
+}
+
+func commandNames() string {
+	var n []string
+	for _, c := range commands {
+		n = append(n, c.name)
+	}
+	return strings.Join(n, ", ")
+}
+
+func topUsage(w io.Writer) {
+	fmt.Fprintf(w, `plumb is the command line of a float64 reference for transformer layer math:
+generate inputs, run the reference on them, and judge a port's outputs.
+
+usage: plumb COMMAND [flags] [arguments]
+
+commands:
+`)
+	for _, c := range commands {
+		fmt.Fprintf(w, "  %-6s %s\n", c.name, c.summary)
+	}
+	fmt.Fprintf(w, `  help   this text; plumb help COMMAND explains a command and every flag,
+         plumb help ops lists the operations, plumb help OPERATION explains one
+
+Flags go before, between or after the arguments. Exit status: 0 success (and,
+for diff and check, within tolerance), 1 outside the tolerance, 2 a usage or
+input error, with a message naming the file, key or problem.
+`)
+}
+
+func help(e *env, args []string) int {
+	if len(args) == 0 {
+		topUsage(e.stdout)
+		return exitPass
+	}
+	if len(args) > 1 {
+		fmt.Fprintf(e.stderr, "plumb help: one topic at a time; got %q\n", strings.Join(args, " "))
+		return exitUsage
+	}
+	topic := args[0]
+	if c := lookup(topic); c != nil {
+		fs, _ := c.flagSet(e.stdout)
+		c.writeHelp(e.stdout, fs)
+		return exitPass
+	}
+	if topic == "ops" || topic == "operations" {
+		fmt.Fprintf(e.stdout, "operations (plumb help OPERATION for its keys and tensors):\n\n")
+		for _, n := range ops.Names() {
+			o, _ := ops.Lookup(n)
+			fmt.Fprintf(e.stdout, "  %-19s %s\n", n, o.Summary())
+		}
+		return exitPass
+	}
+	if o, err := ops.Lookup(topic); err == nil {
+		writeOpHelp(e.stdout, o)
+		return exitPass
+	}
+	fmt.Fprintf(e.stderr, "plumb help: no command or operation %q; commands: %s; operations: plumb help ops\n", topic, commandNames())
+	return exitUsage
+}
+
+func writeOpHelp(w io.Writer, o ops.Op) {
+	fmt.Fprintf(w, "%s: %s\n\nconfiguration (a JSON object; unknown keys are errors):\n", o.Name(), o.Summary())
+	fmt.Fprintf(w, "  %-18s %-9s %s\n", "version", "int", "required: 1, the schema version")
+	for _, k := range o.Keys() {
+		fmt.Fprintf(w, "  %-18s %-9s %s (default: %s)\n", k.Name, k.Type, k.Doc, k.Default)
+	}
+	port := func(title string, ps []ops.Port) {
+		if len(ps) == 0 {
+			fmt.Fprintf(w, "\n%s: none\n", title)
+			return
+		}
+		fmt.Fprintf(w, "\n%s:\n", title)
+		for _, p := range ps {
+			opt := ""
+			if p.Optional {
+				opt = " (optional)"
+			}
+			fmt.Fprintf(w, "  %-12s %s%s\n", p.Name, p.Doc, opt)
+		}
+	}
+	port("inputs (NAME=FILE.npy)", o.Inputs())
+	port("outputs (written as NAME.npy, float64)", o.Outputs())
+}
