@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"strings"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/palette/moreland"
@@ -84,6 +85,7 @@ func writeHeatmap(path string, ref, got []float64, shape []int, rep *compare.Rep
 	for _, v := range g.z {
 		hi = math.Max(hi, v)
 	}
+	top := hi
 	if hi == lo {
 		hi = lo + 1 // a flat map still needs a scale
 	}
@@ -94,9 +96,17 @@ func writeHeatmap(path string, ref, got []float64, shape []int, rep *compare.Rep
 	p := plot.New()
 	where := "the whole tensor"
 	if len(shape) > 2 {
-		where = fmt.Sprintf("slice %v of shape %v", append(lead, -1, -1), shape)
+		idx := make([]string, 0, len(shape))
+		for _, i := range lead {
+			idx = append(idx, fmt.Sprint(i))
+		}
+		where = fmt.Sprintf("[%s : :] of shape %v", strings.Join(idx, " "), shape)
 	}
-	p.Title.Text = fmt.Sprintf("|candidate − reference|, %s\n%s (worst %.3g)", where, candidate, rep.MaxAbs)
+	worstAt := ""
+	if len(rep.Worst) > 0 {
+		worstAt = fmt.Sprintf(", the slice of the worst element %v", rep.Worst[0].Index)
+	}
+	p.Title.Text = fmt.Sprintf("|candidate − reference| over %s%s\ncandidate %s; largest error here %.3g", where, worstAt, candidate, top)
 	p.X.Label.Text = fmt.Sprintf("column: index of the last dimension (0 … %d)", g.cols-1)
 	p.Y.Label.Text = fmt.Sprintf("row: index of dimension %d (0 at the top)", max(len(shape)-2, 0))
 	if len(shape) < 2 {

@@ -3,6 +3,7 @@ package main
 import (
 	"flag"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"sync"
@@ -174,6 +175,9 @@ type checkOptions struct {
 
 func runCheck(e *env, opts any, args []string) (int, error) {
 	o := opts.(*checkOptions)
+	if !(o.k >= 1) || math.IsInf(o.k, 0) {
+		return exitUsage, fmt.Errorf("-k is %v; want a finite number ≥ 1", o.k)
+	}
 	if len(o.got) == 0 {
 		return exitUsage, fmt.Errorf("no candidate: give one or more -got OUTPUT=FILE.npy")
 	}

@@ -1,0 +1,449 @@
+package main
+
+import (
+	"bytes"
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"flag"
+	"fmt"
+	"image/png"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/npy"
+	"github.com/plumbref/plumb/ops"
+)
+
+// binary is the plumb command built once for the end-to-end tests.
+var plumbBin string
+
+func TestMain(m *testing.M) {
+	dir, err := os.MkdirTemp("", "plumb-e2e")
+	if err != nil {
+		fmt.Fprintln(os.Stderr, err)
+		os.Exit(2)
+	}
+	plumbBin = filepath.Join(dir, "plumb")
+	if out, err := exec.Command("go", "build", "-o", plumbBin, ".").CombinedOutput(); err != nil {
+		fmt.Fprintf(os.Stderr, "building plumb: %v\n%s", err, out)
+		os.RemoveAll(dir)
+		os.Exit(2)
+	}
+	code := m.Run()
+	os.RemoveAll(dir)
+	os.Exit(code)
+}
+
+// cli runs the built binary in dir and returns its stdout, stderr and exit
+// status.
+func cli(t *testing.T, dir string, args ...string) (stdout, stderr string, code int) {
+	t.Helper()
+	cmd := exec.Command(plumbBin, args...)
+	cmd.Dir = dir
+	var o, e bytes.Buffer
+	cmd.Stdout, cmd.Stderr = &o, &e
+	err := cmd.Run()
+	var ee *exec.ExitError
+	switch {
+	case err == nil:
+	case errors.As(err, &ee):
+		code = ee.ExitCode()
+	default:
+		t.Fatalf("running plumb %v: %v", args, err)
+	}
+	return o.String(), e.String(), code
+}
+
+// must runs the binary and requires the exit status.
+func must(t *testing.T, dir string, want int, args ...string) (stdout, stderr string) {
+	t.Helper()
+	o, e, code := cli(t, dir, args...)
+	require.Equal(t, want, code, "plumb %v\nstdout:\n%s\nstderr:\n%s", args, o, e)
+	return o, e
+}
+
+func writeNPY(t *testing.T, path string, dt npy.DType, shape []int, values any) {
+	t.Helper()
+	a, err := npy.New(dt, shape, values)
+	require.NoError(t, err)
+	require.NoError(t, npy.WriteFile(path, a))
+}
+
+func readNPY(t *testing.T, path string) ops.Tensor {
+	t.Helper()
+	a, err := npy.ReadFile(path)
+	require.NoError(t, err)
+	x, err := a.Float64s()
+	require.NoError(t, err)
+	return ops.Tensor{Shape: a.Shape, Data: x}
+}
+
+// attentionFixture writes q, k, v (plumb gen, seeds 1–3) and a causal
+// grouped configuration into a new directory.
+func attentionFixture(t *testing.T) string {
+	dir := t.TempDir()
+	must(t, dir, 0, "gen", "-shape", "1,4,6,8", "-seed", "1", "q.npy")
+	must(t, dir, 0, "gen", "-shape", "1,2,6,8", "-seed", "2", "k.npy")
+	must(t, dir, 0, "gen", "-shape", "1,2,6,8", "-seed", "3", "v.npy")
+	require.NoError(t, os.WriteFile(filepath.Join(dir, "c.json"), []byte(`{"version": 1, "mask": [{"kind": "causal"}]}`), 0o644))
+	return dir
+}
+
+func fixtureInputs(t *testing.T, dir string) ops.Tensors {
+	return ops.Tensors{"q": readNPY(t, filepath.Join(dir, "q.npy")), "k": readNPY(t, filepath.Join(dir, "k.npy")), "v": readNPY(t, filepath.Join(dir, "v.npy"))}
+}
+
+const causal = `{"version": 1, "mask": [{"kind": "causal"}]}`
+
+func TestGenFirstValues(t *testing.T) {
+	dir := t.TempDir()
+	o, _ := must(t, dir, 0, "gen", "-shape", "3", "-dist", "uniform", "-low", "0", "-high", "1", "u.npy")
+	assert.Contains(t, o, "wrote u.npy")
+	must(t, dir, 0, "gen", "-shape", "3", "n.npy")
+	must(t, dir, 0, "gen", "-shape", "3", "-dtype", "float32", "n32.npy")
+	// The values stated in the command's help (genAbout).
+	assert.Equal(t, []float64{0.5982609488236689, 0.08911177802144832, 0.715356444878812}, readNPY(t, filepath.Join(dir, "u.npy")).Data)
+	assert.Equal(t, []float64{0.8588583889475007, 0.5383481862322732, 0.8094635935566922}, readNPY(t, filepath.Join(dir, "n.npy")).Data)
+	assert.Equal(t, compare.Float32.RoundSlice(readNPY(t, filepath.Join(dir, "n.npy")).Data), readNPY(t, filepath.Join(dir, "n32.npy")).Data)
+	help, _ := must(t, dir, 0, "help", "gen")
+	assert.Contains(t, help, "0.5982609488236689, 0.08911177802144832, 0.715356444878812")
+	assert.Contains(t, help, "0.8588583889475007, 0.5383481862322732, 0.8094635935566922")
+
+	// Shifted and scaled: mean + std·z and low + (high − low)·u.
+	must(t, dir, 0, "gen", "-shape", "3", "-mean", "2", "-std", "0.5", "s.npy")
+	for i, z := range readNPY(t, filepath.Join(dir, "n.npy")).Data {
+		assert.Equal(t, 2+float64(0.5*z), readNPY(t, filepath.Join(dir, "s.npy")).Data[i])
+	}
+}
+
+// TestGenOtherLanguage recomputes the generator from its description in
+// Python (testdata/gen_check.py): uniform bit for bit, normal within a few
+// units in the last place (ln, cos, sin of another library).
+func TestGenOtherLanguage(t *testing.T) {
+	py := "/usr/bin/python3"
+	if _, err := os.Stat(py); err != nil {
+		t.Skip("skipped: /usr/bin/python3 not present")
+	}
+	const n = 1001
+	out, err := exec.Command(py, "testdata/gen_check.py", "12345", fmt.Sprint(n)).Output()
+	require.NoError(t, err)
+	lines := strings.Fields(string(out))
+	require.Len(t, lines, 2*n)
+	u, err := generate(n, "uniform", 12345, 0, 1, 0, 1)
+	require.NoError(t, err)
+	z, err := generate(n, "normal", 12345, 0, 1, 0, 1)
+	require.NoError(t, err)
+	for i := range n {
+		var pu, pz float64
+		_, err := fmt.Sscan(lines[i], &pu)
+		require.NoError(t, err)
+		_, err = fmt.Sscan(lines[n+i], &pz)
+		require.NoError(t, err)
+		require.Equal(t, pu, u[i], "uniform value %d", i)
+		// Within 4 ulps of float64 at the value, or 1e-15 absolute where a
+		// value is near zero (r·cos t with t near π/2).
+		assert.InDelta(t, pz, z[i], math.Max(4*compare.Float64.ULP(pz), 1e-15), "normal value %d", i)
+	}
+}
+
+func TestRunWritesTheReference(t *testing.T) {
+	dir := attentionFixture(t)
+	o, _ := must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-out", "ref")
+	assert.Contains(t, o, filepath.Join("ref", "out.npy"))
+	want, err := ops.Run("attention-forward", []byte(causal), fixtureInputs(t, dir))
+	require.NoError(t, err)
+	for _, n := range []string{"out", "lse"} {
+		got := readNPY(t, filepath.Join(dir, "ref", n+".npy"))
+		assert.Equal(t, want[n], got, n)
+	}
+	// No configuration means {"version": 1}.
+	must(t, dir, 0, "run", "-out", "full", "attention-forward", "q=q.npy", "k=k.npy", "v=v.npy")
+	want, err = ops.Run("attention-forward", nil, fixtureInputs(t, dir))
+	require.NoError(t, err)
+	assert.Equal(t, want["out"], readNPY(t, filepath.Join(dir, "full", "out.npy")))
+}
+
+func TestDiff(t *testing.T) {
+	dir := attentionFixture(t)
+	must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy")
+	ref := readNPY(t, filepath.Join(dir, "out.npy"))
+
+	o, _ := must(t, dir, 0, "diff", "out.npy", "out.npy")
+	assert.Contains(t, o, "verdict: PASS")
+	assert.Contains(t, o, "default for float64 candidates: rel 1e-10")
+
+	// One element 1e-2 off fails the default float64 tolerance, at its index.
+	bad := append([]float64(nil), ref.Data...)
+	bad[1*6*8+3*8+5] += 1e-2 // [0 1 3 5]
+	writeNPY(t, filepath.Join(dir, "bad.npy"), npy.Float64, ref.Shape, bad)
+	o, _ = must(t, dir, 1, "diff", "out.npy", "bad.npy")
+	assert.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
+	assert.Contains(t, o, "[0 1 3 5]")
+
+	// A tolerance flag replaces the default.
+	must(t, dir, 0, "diff", "-abs", "0.011", "out.npy", "bad.npy")
+	must(t, dir, 1, "diff", "-abs", "0.011", "-normwise", "1e-4", "out.npy", "bad.npy")
+	must(t, dir, 0, "diff", "-ulps", "1000000000000000", "out.npy", "bad.npy")
+
+	// JSON.
+	o, _ = must(t, dir, 1, "diff", "-json", "out.npy", "bad.npy")
+	var j struct {
+		Reference, Candidate string
+		Report               struct {
+			MaxAbsAt []int `json:"max_abs_error_at"`
+			Verdict  struct{ Pass bool }
+		}
+	}
+	require.NoError(t, json.Unmarshal([]byte(o), &j))
+	assert.Equal(t, "out.npy", j.Reference)
+	assert.Equal(t, []int{0, 1, 3, 5}, j.Report.MaxAbsAt)
+	assert.False(t, j.Report.Verdict.Pass)
+
+	// A float32 candidate is judged in float32 by default (√u).
+	f32 := make([]float32, len(ref.Data))
+	for i, v := range ref.Data {
+		f32[i] = float32(v)
+	}
+	writeNPY(t, filepath.Join(dir, "f32.npy"), npy.Float32, ref.Shape, f32)
+	o, _ = must(t, dir, 0, "diff", "out.npy", "f32.npy")
+	assert.Contains(t, o, "candidate format float32")
+
+	// bfloat16 bit patterns need -format.
+	bits := make([]uint16, len(ref.Data))
+	for i, v := range ref.Data {
+		bits[i] = uint16(compare.BFloat16.Encode(v))
+	}
+	writeNPY(t, filepath.Join(dir, "bf16.npy"), npy.Uint16, ref.Shape, bits)
+	o, _ = must(t, dir, 0, "diff", "-format", "bf16", "out.npy", "bf16.npy")
+	assert.Contains(t, o, "candidate format bfloat16")
+}
+
+func TestDiffHeatmap(t *testing.T) {
+	dir := attentionFixture(t)
+	must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy")
+	ref := readNPY(t, filepath.Join(dir, "out.npy"))
+	bad := append([]float64(nil), ref.Data...)
+	bad[2*6*8+4*8+1] -= 0.5
+	writeNPY(t, filepath.Join(dir, "bad.npy"), npy.Float64, ref.Shape, bad)
+	must(t, dir, 1, "diff", "-heatmap", "h.png", "out.npy", "bad.npy")
+	f, err := os.Open(filepath.Join(dir, "h.png"))
+	require.NoError(t, err)
+	defer f.Close()
+	img, err := png.Decode(f)
+	require.NoError(t, err)
+	assert.Greater(t, img.Bounds().Dx(), 500)
+
+	// The slice drawn is the one holding the worst element: [0 2 · ·].
+	rep, err := compare.Diff(ref.Data, bad, ref.Shape, compare.Options{})
+	require.NoError(t, err)
+	lead, g := worstSlice(ref.Data, bad, ref.Shape, rep)
+	assert.Equal(t, []int{0, 2}, lead)
+	assert.Equal(t, 6, g.rows)
+	assert.Equal(t, 8, g.cols)
+	assert.InDelta(t, 0.5, g.Z(1, g.rows-1-4), 1e-12) // column 1, row 4 from the top
+}
+
+func TestCheck(t *testing.T) {
+	dir := attentionFixture(t)
+	in := fixtureInputs(t, dir)
+	// A float32 port: plumb's float32 instantiation is one.
+	low, err := ops.Run32("attention-forward", []byte(causal), in)
+	require.NoError(t, err)
+	f32 := func(x []float64) []float32 {
+		y := make([]float32, len(x))
+		for i, v := range x {
+			y[i] = float32(v)
+		}
+		return y
+	}
+	writeNPY(t, filepath.Join(dir, "port_out.npy"), npy.Float32, low["out"].Shape, f32(low["out"].Data))
+	writeNPY(t, filepath.Join(dir, "port_lse.npy"), npy.Float32, low["lse"].Shape, f32(low["lse"].Data))
+	o, _ := must(t, dir, 0, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy",
+		"-got", "out=port_out.npy", "-got", "lse=port_lse.npy")
+	assert.Contains(t, o, "output out")
+	assert.Contains(t, o, "output lse")
+	assert.Contains(t, o, "basis: yardstick: float32 inputs, float32 arithmetic")
+	assert.Equal(t, 2, strings.Count(o, "verdict: PASS"))
+
+	// A port whose head 3 is 1% too large fails the yardstick.
+	bad := f32(low["out"].Data)
+	for i := 3 * 6 * 8; i < 4*6*8; i++ {
+		bad[i] *= 1.01
+	}
+	writeNPY(t, filepath.Join(dir, "bad_out.npy"), npy.Float32, low["out"].Shape, bad)
+	o, _ = must(t, dir, 1, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=bad_out.npy")
+	assert.Contains(t, o, "verdict: FAIL")
+	// ...which a bfloat16 yardstick (8 significant bits) would let through.
+	o, _ = must(t, dir, 0, "check", "-format", "bfloat16", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=bad_out.npy")
+	assert.Contains(t, o, "yardstick: bfloat16 inputs")
+
+	// JSON: one entry per candidate.
+	o, _ = must(t, dir, 0, "check", "-json", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "lse=port_lse.npy")
+	var j []namedReport
+	require.NoError(t, json.Unmarshal([]byte(o), &j))
+	require.Len(t, j, 1)
+	assert.Equal(t, "lse", j[0].Name)
+	assert.True(t, j[0].Report.Verdict.Pass)
+
+	// A float64 candidate gets the default tolerance; explicit flags win.
+	must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy")
+	o, _ = must(t, dir, 0, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=out.npy")
+	assert.Contains(t, o, "default for float64 candidates")
+	must(t, dir, 1, "check", "-abs", "1e-12", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port_out.npy")
+}
+
+func TestDemo(t *testing.T) {
+	o, e := must(t, t.TempDir(), 0, "demo")
+	assert.Empty(t, e, "no progress when stderr is not a terminal")
+	assert.Contains(t, o, "1. The port as written")
+	assert.Contains(t, o, "2. The corrected port")
+	assert.Equal(t, 1, strings.Count(o, "verdict: FAIL"))
+	assert.Equal(t, 1, strings.Count(o, "verdict: PASS"))
+	assert.Regexp(t, `"halves" +pairs \(i, i \+ d/2\) +normwise error \S+ +PASS`, o)
+	assert.Regexp(t, `"adjacent" +pairs \(2i, 2i\+1\) +normwise error \S+ +FAIL`, o)
+}
+
+// TestDemoFindings checks the demo's numbers in process.
+func TestDemoFindings(t *testing.T) {
+	var out bytes.Buffer
+	res, err := runDemo(&out, true, &env{stdout: &out, stderr: &out})
+	require.NoError(t, err)
+	assert.False(t, res.buggy.Verdict.Pass)
+	assert.True(t, res.fixed.Verdict.Pass)
+	assert.False(t, res.rotaryAdjacent.Verdict.Pass)
+	assert.True(t, res.rotaryHalves.Verdict.Pass)
+	// Query 0 sees only key 0: its output is v₀ whatever the pairing.
+	assert.Zero(t, res.perPosition[0])
+	for p := 1; p < demoLen; p++ {
+		assert.Greater(t, res.perPosition[p], 1e-2, "position %d", p)
+	}
+}
+
+func TestHelp(t *testing.T) {
+	dir := t.TempDir()
+	o, _ := must(t, dir, 0, "help")
+	for _, c := range order {
+		assert.Contains(t, o, "  "+c+" ")
+	}
+	_, e := must(t, dir, 2)
+	assert.Contains(t, e, "usage: plumb COMMAND")
+	for _, c := range order {
+		o, _ := must(t, dir, 0, "help", c)
+		fs, _ := lookup(c).flagSet(&bytes.Buffer{})
+		fs.VisitAll(func(f *flag.Flag) {
+			assert.Contains(t, o, "-"+f.Name, "plumb help %s does not explain -%s", c, f.Name)
+		})
+		o2, _ := must(t, dir, 0, c, "-h")
+		_ = o2
+	}
+	o, _ = must(t, dir, 0, "help", "ops")
+	for _, n := range ops.Names() {
+		assert.Contains(t, o, n)
+		oh, _ := must(t, dir, 0, "help", n)
+		op, _ := ops.Lookup(n)
+		for _, k := range op.Keys() {
+			assert.Contains(t, oh, k.Name)
+		}
+		for _, p := range append(op.Inputs(), op.Outputs()...) {
+			assert.Contains(t, oh, p.Name)
+		}
+	}
+	_, e = must(t, dir, 2, "help", "nosuch")
+	assert.Contains(t, e, `"nosuch"`)
+}
+
+// TestBadInputs: every usage or input error exits 2 with a message that
+// names the file, key or problem.
+func TestBadInputs(t *testing.T) {
+	dir := attentionFixture(t)
+	w := func(name, text string) {
+		require.NoError(t, os.WriteFile(filepath.Join(dir, name), []byte(text), 0o644))
+	}
+	writeNPY(t, filepath.Join(dir, "x.npy"), npy.Float64, []int{2, 3}, []float64{1, 2, 3, 4, 5, 6})
+	writeNPY(t, filepath.Join(dir, "x23.npy"), npy.Float64, []int{3, 2}, []float64{1, 2, 3, 4, 5, 6})
+	writeNPY(t, filepath.Join(dir, "ints.npy"), npy.Int32, []int{2, 3}, []int32{1, 2, 3, 4, 5, 6})
+	writeNPY(t, filepath.Join(dir, "bits.npy"), npy.Uint16, []int{2}, []uint16{1, 2})
+	writeNPY(t, filepath.Join(dir, "nan.npy"), npy.Float64, []int{2, 3}, []float64{1, 2, 3, 4, math.NaN(), 6})
+	writeNPY(t, filepath.Join(dir, "k5.npy"), npy.Float64, []int{1, 2, 6, 5}, make([]float64, 60))
+	// A complex128 array: a valid .npy file of a type plumb does not read.
+	hdr := "{'descr': '<c16', 'fortran_order': False, 'shape': (1,), }"
+	hdr += strings.Repeat(" ", 128-10-len(hdr)-1) + "\n"
+	var cbuf bytes.Buffer
+	cbuf.WriteString("\x93NUMPY\x01\x00")
+	binary.Write(&cbuf, binary.LittleEndian, uint16(len(hdr)))
+	cbuf.WriteString(hdr)
+	cbuf.Write(make([]byte, 16))
+	w("complex.npy", cbuf.String())
+	w("broken.npy", "\x93NUMPY\x01\x00garbage")
+	w("relu.json", `{"version": 1, "function": "relu"}`)
+	w("malformed.json", `{"version": 1, "function": "relu"`)
+	w("unknown_key.json", `{"version": 1, "function": "relu", "slope": 2}`)
+	w("v2.json", `{"version": 2, "function": "relu"}`)
+	w("noversion.json", `{"function": "relu"}`)
+	w("badword.json", `{"version": 1, "function": "softplus"}`)
+
+	for _, c := range []struct {
+		name string
+		args []string
+		says []string
+	}{
+		{"unknown command", []string{"frobnicate"}, []string{`unknown command "frobnicate"`}},
+		{"unknown flag", []string{"run", "-bogus", "activation"}, []string{"-bogus"}},
+		{"missing file", []string{"run", "activation", "-config", "relu.json", "x=nope.npy"}, []string{"nope.npy: no such file"}},
+		{"missing config", []string{"run", "activation", "-config", "nope.json", "x=x.npy"}, []string{"nope.json: no such file"}},
+		{"wrong dtype", []string{"run", "activation", "-config", "relu.json", "x=ints.npy"}, []string{"ints.npy holds int32 values"}},
+		{"unsupported dtype", []string{"diff", "x.npy", "complex.npy"}, []string{"complex.npy", "unsupported element type", "<c16"}},
+		{"broken file", []string{"diff", "broken.npy", "x.npy"}, []string{"broken.npy", "malformed"}},
+		{"bits without format", []string{"diff", "x.npy", "bits.npy"}, []string{"bits.npy holds uint16 values", "-format"}},
+		{"bits of the wrong width", []string{"diff", "-format", "e4m3", "x.npy", "bits.npy"}, []string{"bits.npy holds uint16 values, which cannot be e4m3"}},
+		{"mismatched shapes (diff)", []string{"diff", "x.npy", "x23.npy"}, []string{"shapes differ", "x.npy is [2 3]", "x23.npy is [3 2]"}},
+		{"mismatched shapes (run)", []string{"run", "attention-forward", "q=q.npy", "k=k5.npy", "v=v.npy"}, []string{`input "k" has head dimension 5, "q" has 8`}},
+		{"mismatched shapes (check)", []string{"check", "activation", "-config", "relu.json", "x=x.npy", "-got", "y=x23.npy"}, []string{"shapes differ", "x23.npy is [3 2]"}},
+		{"malformed JSON", []string{"run", "activation", "-config", "malformed.json", "x=x.npy"}, []string{"malformed.json", "malformed JSON"}},
+		{"unknown key", []string{"run", "activation", "-config", "unknown_key.json", "x=x.npy"}, []string{"unknown_key.json", `unknown key "slope"`}},
+		{"unknown version", []string{"run", "activation", "-config", "v2.json", "x=x.npy"}, []string{"v2.json", `"version" is 2`}},
+		{"missing version", []string{"run", "activation", "-config", "noversion.json", "x=x.npy"}, []string{`"version" is missing`}},
+		{"unknown word", []string{"run", "activation", "-config", "badword.json", "x=x.npy"}, []string{`key "function" is "softplus"`}},
+		{"unknown operation", []string{"run", "attention-sideways", "x=x.npy"}, []string{`unknown operation "attention-sideways"`, "attention-forward"}},
+		{"unknown input", []string{"run", "activation", "-config", "relu.json", "z=x.npy"}, []string{`does not take input "z"`}},
+		{"missing input", []string{"run", "attention-forward", "q=q.npy", "k=k.npy"}, []string{`input "v" is missing`}},
+		{"NaN in inputs", []string{"run", "activation", "-config", "relu.json", "x=nan.npy"}, []string{"nan.npy: element [1 1] is NaN"}},
+		{"NaN in check inputs", []string{"check", "activation", "-config", "relu.json", "x=nan.npy", "-got", "y=x.npy"}, []string{"nan.npy: element [1 1] is NaN"}},
+		{"not NAME=FILE", []string{"run", "activation", "x.npy"}, []string{`"x.npy" is not NAME=FILE`}},
+		{"input twice", []string{"run", "activation", "x=x.npy", "x=x23.npy"}, []string{`input "x" is given twice`}},
+		{"no operation", []string{"run"}, []string{"want an OPERATION"}},
+		{"check without -got", []string{"check", "activation", "x=x.npy"}, []string{"-got"}},
+		{"check unknown output", []string{"check", "activation", "-config", "relu.json", "x=x.npy", "-got", "z=x.npy"}, []string{`activation has no output "z"`}},
+		{"bad k", []string{"check", "-k", "0.5", "activation", "-config", "relu.json", "x=x.npy", "-got", "y=x.npy"}, []string{"-k is 0.5"}},
+		{"unknown format", []string{"diff", "-format", "float13", "x.npy", "x.npy"}, []string{"float13"}},
+		{"negative tolerance", []string{"diff", "-abs", "-1", "x.npy", "x.npy"}, []string{"Abs is -1"}},
+		{"diff arguments", []string{"diff", "x.npy"}, []string{"want REFERENCE.npy CANDIDATE.npy"}},
+		{"gen without shape", []string{"gen", "g.npy"}, []string{"-shape is missing"}},
+		{"gen bad shape", []string{"gen", "-shape", "2,x", "g.npy"}, []string{`"x" is not a dimension`}},
+		{"gen bad dist", []string{"gen", "-shape", "2", "-dist", "cauchy", "g.npy"}, []string{`-dist is "cauchy"`}},
+		{"gen bad bounds", []string{"gen", "-shape", "2", "-dist", "uniform", "-low", "1", "-high", "0", "g.npy"}, []string{"low < high"}},
+		{"gen bad dtype", []string{"gen", "-shape", "2", "-dtype", "int8", "g.npy"}, []string{`-dtype is "int8"`}},
+		{"demo arguments", []string{"demo", "extra"}, []string{"no arguments"}},
+		{"help two topics", []string{"help", "run", "diff"}, []string{"one topic"}},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			_, e := must(t, dir, 2, c.args...)
+			for _, s := range c.says {
+				assert.Contains(t, e, s)
+			}
+			assert.NotEmpty(t, e)
+		})
+	}
+	// -allow-nan passes NaN to the reference, which propagates it.
+	must(t, dir, 0, "run", "-allow-nan", "-out", "nanout", "activation", "-config", "relu.json", "x=nan.npy")
+	assert.True(t, math.IsNaN(readNPY(t, filepath.Join(dir, "nanout", "y.npy")).Data[4]))
+}
