@@ -1,7 +1,6 @@
 package attention
 
 import (
-	"errors"
 	"fmt"
 
 	"github.com/plumbref/plumb/mask"
@@ -209,8 +208,6 @@ func decodeOptions(s Shape, pos int, o *Options) error {
 	return nil
 }
 
-// isZeroMask reports whether m is the zero Mask, which the mask package
-// refuses with ErrEmpty and which Options reads as mask.Full().
-func isZeroMask(m mask.Mask) bool {
-	return errors.Is(m.Check(mask.Geometry{}), mask.ErrEmpty)
-}
+// isZeroMask reports whether m is the zero Mask, which Options reads as
+// mask.Full().
+func isZeroMask(m mask.Mask) bool { return m.IsZero() }

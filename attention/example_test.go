@@ -125,3 +125,15 @@ func ExampleMerge() {
 	// lse 3.40760596444438
 	// out [0.090030573170380 0.665240955774822 0.244728471054798]
 }
+
+func ExampleSoftmax() {
+	// Logits near 1000 would overflow a naive exp; the row maximum is
+	// subtracted first.
+	p, _ := attention.Softmax([]float64{1000, 1001, 1002}, 3)
+	lse, _ := attention.LogSumExp([]float64{1, 3, 2}, 3)
+	fmt.Printf("%.6f\n", p)
+	fmt.Println(lse[0])
+	// Output:
+	// [0.090031 0.244728 0.665241]
+	// 3.40760596444438
+}

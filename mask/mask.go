@@ -252,6 +252,11 @@ func Intersect(masks ...Mask) (Mask, error) {
 	return Mask{kind: kindIntersect, parts: parts}, nil
 }
 
+// IsZero reports whether m is the zero Mask, which is not a mask: every
+// method refuses it with ErrEmpty. A caller that offers "no mask" as a
+// default (attention reads it as Full) tests for it with IsZero.
+func (m Mask) IsZero() bool { return m.kind == kindNone }
+
 // UsesPositions reports whether the mask depends on query positions, and so
 // requires every query to sit at one of the keys (see Geometry).
 func (m Mask) UsesPositions() bool {

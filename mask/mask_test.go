@@ -178,6 +178,9 @@ func TestStrings(t *testing.T) {
 	for _, tc := range tests {
 		assert.Equal(t, tc.want, tc.m.String())
 	}
+	assert.True(t, Mask{}.IsZero())
+	assert.False(t, Full().IsZero())
+	assert.False(t, must(t)(Intersect(Causal())).IsZero())
 	assert.Equal(t, "AlignEnd", AlignEnd.String())
 	assert.Equal(t, "AlignStart", AlignStart.String())
 	assert.Equal(t, "Align(5)", Align(5).String())

@@ -71,14 +71,15 @@
 // Float64s and compares it with the reference; reference inputs and outputs
 // go the other way with WriteFile. Values destined for a low-precision type
 // (float16, bfloat16, FP8) must be rounded to its bit patterns first; this
-// package moves bit patterns and decodes them, it does not round.
+// package moves bit patterns and decodes them, it does not round: use
+// compare.Format.Encode (one correct rounding from float64) to make them.
 //
 // Accuracy: reading and writing are exact (bit patterns are moved, never
 // rounded), and so is every conversion Float64s makes. An outside check
 // (numpy_test.go) has NumPy write every supported type in both byte
 // orders, both orders and all three versions, reads them here and writes
 // them back byte for byte; it has NumPy load every file this package writes
-// and compare the bit patterns; and it compares DecodeFloat16 with NumPy's
-// own float16 conversion on all 65536 patterns. It runs when /usr/bin/python3
+// and compare the bit patterns; and it compares the float16 decoding (which
+// is compare.Binary16's) with NumPy's own float16 conversion on all 65536 patterns. It runs when /usr/bin/python3
 // can import numpy and says it skipped otherwise.
 package npy

@@ -66,16 +66,18 @@ func ExampleArray_Float64s() {
 	// [1 -2 0.333984375 +Inf]
 }
 
-func ExampleDecodeE4M3() {
-	for _, b := range []uint8{0x38, 0x7e, 0x08, 0x01, 0xff} {
-		fmt.Printf("%#02x %v\n", b, npy.DecodeE4M3(b))
+// FP8 travels as uint8 bit patterns; Bits says how to read them.
+func ExampleArray_Float64s_e4m3() {
+	a, err := npy.New(npy.Uint8, []int{5}, []uint8{0x38, 0x7e, 0x08, 0x01, 0xff})
+	if err != nil {
+		fmt.Println(err)
+		return
 	}
+	a.Bits = npy.E4M3
+	v, _ := a.Float64s()
+	fmt.Println(v)
 	// Output:
-	// 0x38 1
-	// 0x7e 448
-	// 0x08 0.015625
-	// 0x01 0.001953125
-	// 0xff NaN
+	// [1 448 0.015625 0.001953125 NaN]
 }
 
 // A tensor type outside the supported set is refused by name.

@@ -4,6 +4,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
+
+	"github.com/plumbref/plumb/compare"
 )
 
 // The sentinel errors. Every error this package returns wraps exactly one of
@@ -382,17 +384,17 @@ func (a *Array) Float64s() ([]float64, error) {
 	case []uint16:
 		switch {
 		case a.DType == Float16:
-			return convert(v, DecodeFloat16), nil
+			return decodeAll(v, compare.Binary16), nil
 		case a.Bits == BFloat16:
-			return convert(v, DecodeBFloat16), nil
+			return decodeAll(v, compare.BFloat16), nil
 		}
 		return convert(v, func(x uint16) float64 { return float64(x) }), nil
 	case []uint8:
 		switch a.Bits {
 		case E4M3:
-			return convert(v, DecodeE4M3), nil
+			return decodeAll(v, compare.E4M3), nil
 		case E5M2:
-			return convert(v, DecodeE5M2), nil
+			return decodeAll(v, compare.E5M2), nil
 		}
 		return convert(v, func(x uint8) float64 { return float64(x) }), nil
 	}
@@ -407,90 +409,13 @@ func convert[T any](v []T, f func(T) float64) []float64 {
 	return out
 }
 
-// DecodeFloat16 returns the value of the IEEE 754-2019 binary16 bit pattern
-// b (§3.4: 1 sign, 5 exponent, 10 fraction bits, bias 15), exactly.
-//
-// Special cases are:
-//
-//	exponent 0         ±fraction·2⁻²⁴ (subnormals and ±0)
-//	exponent 31, f = 0 ±Inf
-//	exponent 31, f ≠ 0 NaN of the same sign (the payload is dropped)
-func DecodeFloat16(b uint16) float64 {
-	return decodeMini(uint32(b), 5, 10)
-}
-
-// DecodeBFloat16 returns the value of the bfloat16 bit pattern b (1 sign, 8
-// exponent, 7 fraction bits: the upper 16 bits of an IEEE 754 binary32),
-// exactly. bfloat16 has no formal standard; this is the binary32 reading of
-// b<<16.
-//
-// Special cases are those of binary32: exponent 255 is ±Inf (fraction 0) or
-// NaN of the same sign, exponent 0 holds the subnormals and ±0.
-func DecodeBFloat16(b uint16) float64 {
-	return float64(math.Float32frombits(uint32(b) << 16))
-}
-
-// DecodeE4M3 returns the value of the OCP 8-bit floating-point E4M3 bit
-// pattern b (OCP 8-bit Floating Point Specification (OFP8), 2023: 1 sign, 4
-// exponent, 3 fraction bits, bias 7), exactly.
-//
-// Special cases are:
-//
-//	S.0000.fff   ±fff·2⁻⁹ (subnormals and ±0)
-//	S.1111.111   NaN of sign S (the only NaN patterns; no infinities)
-//	S.1111.110   ±448, the largest finite value
-func DecodeE4M3(b uint8) float64 {
-	e, f := int(b>>3)&0xf, float64(b&7)
-	var v float64
-	switch {
-	case e == 15 && f == 7:
-		v = math.NaN()
-	case e == 0:
-		v = math.Ldexp(f, -9)
-	default:
-		v = math.Ldexp(8+f, e-10)
+// decodeAll decodes bit patterns of format f with compare's decoder, the
+// one definition of every format in plumb. A pattern of the format's width
+// always decodes, so the error is impossible here.
+func decodeAll[T uint8 | uint16](v []T, f compare.Format) []float64 {
+	out := make([]float64, len(v))
+	for i, b := range v {
+		out[i], _ = f.Decode(uint64(b))
 	}
-	if b&0x80 != 0 {
-		v = -v
-	}
-	return v
-}
-
-// DecodeE5M2 returns the value of the OCP 8-bit floating-point E5M2 bit
-// pattern b (OCP 8-bit Floating Point Specification (OFP8), 2023: 1 sign, 5
-// exponent, 2 fraction bits, bias 15), exactly.
-//
-// Special cases are:
-//
-//	S.00000.ff            ±ff·2⁻¹⁶ (subnormals and ±0)
-//	S.11111.00            ±Inf
-//	S.11111.{01,10,11}    NaN of sign S
-//	S.11110.11            ±57344, the largest finite value
-func DecodeE5M2(b uint8) float64 {
-	return decodeMini(uint32(b), 5, 2)
-}
-
-// decodeMini decodes an IEEE-754-style pattern with the given exponent and
-// fraction widths and a sign bit above them.
-func decodeMini(b uint32, ebits, fbits uint) float64 {
-	emax := uint32(1)<<ebits - 1
-	bias := int(emax >> 1)
-	e := (b >> fbits) & emax
-	f := b & (1<<fbits - 1)
-	neg := b>>(ebits+fbits)&1 != 0
-	var v float64
-	switch {
-	case e == emax && f != 0:
-		v = math.NaN()
-	case e == emax:
-		v = math.Inf(1)
-	case e == 0:
-		v = math.Ldexp(float64(f), 1-bias-int(fbits))
-	default:
-		v = math.Ldexp(float64(f|1<<fbits), int(e)-bias-int(fbits))
-	}
-	if neg {
-		v = -v
-	}
-	return v
+	return out
 }
