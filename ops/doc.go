@@ -20,6 +20,8 @@
 //	activation-grad     ffn.ActivateGrad             dx
 //	ffn-forward         ffn.Forward (plain, GLU family via "gated")   y
 //	ffn-backward        ffn.Backward                 dx and every parameter gradient
+//	softmax             attention.Softmax            y
+//	logsumexp           attention.LogSumExp          lse
 //
 // Each Op documents its keys (Op.Keys) and tensors (Op.Inputs, Op.Outputs);
 // `plumb help OPERATION` prints them.

@@ -103,6 +103,10 @@ func cases() []opCase {
 				return Tensors{"x": tensor(r, 3, 8), "w1": tensor(r, 8, 10), "v": tensor(r, 8, 10), "c": tensor(r, 10),
 					"w2": tensor(r, 10, 8), "dy": tensor(r, 3, 8)}
 			}, []string{"dx", "dw1", "db1", "dv", "dc", "dw2", "db2"}},
+		{"softmax", "softmax", `{"version":1}`,
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 2, 3, 7)} }, []string{"y"}},
+		{"logsumexp", "logsumexp", "",
+			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 2, 3, 7)} }, []string{"lse"}},
 	}
 }
 
@@ -210,6 +214,18 @@ func TestRunMatchesKernels(t *testing.T) {
 	y, err := posenc.Rotary{Dim: 8, Base: 500, Pairing: posenc.PairHalves}.Apply(x.Data, 5, posenc.Positions{})
 	require.NoError(t, err)
 	assert.Equal(t, y, got["y"].Data)
+
+	// softmax and log-sum-exp, with the worked values of FORMULAS.md
+	// ([mpmath]: x = [1, 3, 2] → lse 3.4076059644443803, softmax
+	// 0.090030573170380458, 0.66524095577482189, 0.24472847105479765).
+	got, err = Run("softmax", nil, Tensors{"x": {[]int{1, 3}, []float64{1, 3, 2}}})
+	require.NoError(t, err)
+	// Within 2 ulps at these magnitudes (ulp(0.67) = 1.1e-16, ulp(3.4) = 4.4e-16).
+	assert.InDeltaSlice(t, []float64{0.090030573170380458, 0.66524095577482189, 0.24472847105479765}, got["y"].Data, 2e-16)
+	got, err = Run("logsumexp", nil, Tensors{"x": {[]int{1, 3}, []float64{1, 3, 2}}})
+	require.NoError(t, err)
+	assert.Equal(t, []int{1}, got["lse"].Shape)
+	assert.InDelta(t, 3.4076059644443803, got["lse"].Data[0], 5e-16)
 
 	got, err = Run("rmsnorm-forward", []byte(`{"version":1,"epsilon":1e-3,"epsilon_placement":"added-to-root"}`), Tensors{"x": x})
 	require.NoError(t, err)
