@@ -447,3 +447,51 @@ func TestBadInputs(t *testing.T) {
 	must(t, dir, 0, "run", "-allow-nan", "-out", "nanout", "activation", "-config", "relu.json", "x=nan.npy")
 	assert.True(t, math.IsNaN(readNPY(t, filepath.Join(dir, "nanout", "y.npy")).Data[4]))
 }
+
+// TestReadmeWalkthrough runs the shell block of README.md marked as the
+// walkthrough, with the built binary for "go run ./cmd/plumb" and plumb's
+// float32 instantiation standing in for the port of step 2.
+func TestReadmeWalkthrough(t *testing.T) {
+	readme, err := os.ReadFile("../../README.md")
+	require.NoError(t, err)
+	_, after, ok := strings.Cut(string(readme), "<!-- walkthrough:")
+	require.True(t, ok, "README.md has no walkthrough marker")
+	_, block, ok := strings.Cut(after, "```sh\n")
+	require.True(t, ok)
+	block, _, _ = strings.Cut(block, "```")
+
+	dir := t.TempDir()
+	ran := 0
+	for _, line := range strings.Split(block, "\n") {
+		line = strings.TrimSpace(line)
+		switch {
+		case line == "" || strings.HasPrefix(line, "#"):
+		case strings.HasPrefix(line, "echo '"):
+			text, file, ok := strings.Cut(strings.TrimPrefix(line, "echo '"), "' > ")
+			require.True(t, ok, line)
+			require.NoError(t, os.WriteFile(filepath.Join(dir, file), []byte(text+"\n"), 0o644))
+		case strings.HasPrefix(line, "go run ./cmd/plumb "):
+			args := strings.Fields(strings.TrimPrefix(line, "go run ./cmd/plumb "))
+			if args[0] == "check" {
+				// Step 2: the port writes its float32 output.
+				cfg, err := os.ReadFile(filepath.Join(dir, "attn.json"))
+				require.NoError(t, err)
+				low, err := ops.Run32("attention-forward", cfg, fixtureInputs(t, dir))
+				require.NoError(t, err)
+				out := make([]float32, len(low["out"].Data))
+				for i, v := range low["out"].Data {
+					out[i] = float32(v)
+				}
+				writeNPY(t, filepath.Join(dir, "port_out.npy"), npy.Float32, low["out"].Shape, out)
+			}
+			o, _ := must(t, dir, 0, args...)
+			if args[0] == "check" {
+				assert.Contains(t, o, "verdict: PASS")
+			}
+			ran++
+		default:
+			t.Fatalf("the walkthrough has a line this test cannot run: %q", line)
+		}
+	}
+	assert.Equal(t, 4, ran)
+}
