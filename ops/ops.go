@@ -6,7 +6,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"math"
 	"reflect"
 	"sort"
 	"strings"
@@ -419,17 +418,6 @@ func (in Tensors) data(n string) []float64 {
 	}
 	return nil
 }
-
-// pick returns the float64 result, or the float32 one widened.
-func pick(single bool, d64 []float64, d32 []float32) []float64 {
-	if single {
-		return widen(d32)
-	}
-	return d64
-}
-
-// finite reports whether v is finite; used for configuration numbers.
-func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 
 // configKeys lists the JSON keys of the configuration type, for the test
 // that every key is documented.
