@@ -21,7 +21,7 @@ type maskConfig struct {
 
 var maskKeyDoc = `list of masks, intersected; each an object with "kind": ` +
 	`"full"; "causal"; "band" with "before" and "after" (key j visible to query position p iff −before ≤ j − p ≤ after, −1 for no limit); ` +
-	`"window" with "size" (the size keys ending at the query); "prefix" with "length" (keys below it visible to all); ` +
+	`"window" with "size" (that many keys ending at the query, the query included); "prefix" with "length" (keys below it visible to all); ` +
 	`"key-padding" with "valid" (one valid key count per batch entry); ` +
 	`"packed" with "offsets" (sequence starts, from 0 to the key count) and "block" ("causal" or "full")`
 

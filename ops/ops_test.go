@@ -289,6 +289,9 @@ func TestErrors(t *testing.T) {
 		{"dy shape", "activation-grad", `{"version":1,"function":"relu"}`, Tensors{"x": x["x"], "dy": tensor(r, 8, 2)}, ErrInput, `input "dy" has shape [8 2]; want [2 8]`},
 		{"kernel error", "layernorm-forward", `{"version":1,"epsilon":-1}`, x, norm.ErrEpsilon, "layernorm-forward"},
 		{"kernel heads", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": tensor(r, 1, 3, 3, 4), "v": tensor(r, 1, 3, 3, 4)}, attention.ErrShape, "attention-forward"},
+		{"huge table", "sinusoidal-table", `{"version":1,"dim":1024,"length":1000000000}`, nil, ErrConfig, "more than 268435456 values"},
+		{"huge bias", "alibi-bias", `{"version":1,"queries":100000,"keys":100000}`, Tensors{"slopes": {[]int{1}, []float64{0.5}}}, ErrConfig, "more than"},
+		{"negative length", "rotary-tables", `{"version":1,"dim":8,"length":-1}`, nil, ErrConfig, "a size is -1"},
 		{"weight shape", "ffn-forward", `{"version":1,"activation":"relu","layout":"in-by-out"}`,
 			Tensors{"x": x["x"], "w1": tensor(r, 8, 3), "w2": tensor(r, 4, 8)}, ErrInput, `input "w1" has shape [8 3]; want [8 4]`},
 	} {

@@ -95,6 +95,27 @@ type alibiBiasConfig struct {
 	Form    string `json:"form"`
 }
 
+// MaxTableElements is the largest output an operation that makes a table
+// from its configuration alone (rotary-tables, sinusoidal-table, alibi-bias)
+// will allocate: 2^28 values, 2 GiB of float64.
+const MaxTableElements = 1 << 28
+
+// tableSize refuses configurations whose output would exceed
+// MaxTableElements; dims are the sizes from the configuration.
+func tableSize(keys string, dims ...int) error {
+	n := 1
+	for _, d := range dims {
+		if d < 0 {
+			return fmt.Errorf("%w: %s: a size is %d; want ≥ 0", ErrConfig, keys, d)
+		}
+		if d > 0 && n > MaxTableElements/d {
+			return fmt.Errorf("%w: %s: the output would hold more than %d values", ErrConfig, keys, MaxTableElements)
+		}
+		n *= d
+	}
+	return nil
+}
+
 // tableRun32 is Run32 of an operation with no float input: the reference
 // rounded to float32.
 func tableRun32(t Tensors, single bool) Tensors {
@@ -162,8 +183,8 @@ func init() {
 			}
 			pos := c.Positions
 			if pos == nil {
-				if c.Length < 0 {
-					return nil, fmt.Errorf("%w: key \"length\" is %d; want ≥ 0", ErrConfig, c.Length)
+				if err := tableSize(`"length" and "dim"`, c.Length, c.Dim); err != nil {
+					return nil, err
 				}
 				pos = make([]int, c.Length)
 				for i := range pos {
@@ -195,6 +216,9 @@ func init() {
 		run: func(c *sinusoidalConfig, in Tensors, single bool) (Tensors, error) {
 			l, err := choice("layout", c.Layout, []string{"interleaved", "concatenated"}, []posenc.Layout{posenc.Interleaved, posenc.Concatenated})
 			if err != nil {
+				return nil, err
+			}
+			if err := tableSize(`"length" and "dim"`, c.Length, c.Dim); err != nil {
 				return nil, err
 			}
 			t, err := posenc.Sinusoidal{Dim: c.Dim, Base: c.Base, Layout: l}.Table(c.Length, c.Offset)
@@ -233,6 +257,9 @@ func init() {
 		outputs: []Port{{Name: "bias", Doc: "[heads, queries, keys]"}},
 		run: func(c *alibiBiasConfig, in Tensors, single bool) (Tensors, error) {
 			if _, err := rank(in, "slopes", 1, "[heads]"); err != nil {
+				return nil, err
+			}
+			if err := tableSize(`"queries" and "keys"`, len(in.data("slopes")), c.Queries, c.Keys); err != nil {
 				return nil, err
 			}
 			g := mask.Geometry{Batch: 1, Lq: c.Queries, Lk: c.Keys, Offset: c.Offset}

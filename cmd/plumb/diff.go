@@ -29,7 +29,7 @@ func (j *judgeFlags) register(fs *flag.FlagSet) {
 	fs.Float64Var(&j.rel, "rel", 0, "relative tolerance (see -abs)")
 	fs.Uint64Var(&j.ulps, "ulps", 0, "an element within this many ULPs of the candidate's format passes too (0: not used)")
 	fs.Float64Var(&j.normwise, "normwise", 0, "largest normwise relative error ‖got − ref‖₂/‖ref‖₂ allowed (0: not checked)")
-	fs.StringVar(&j.format, "format", "", "the candidate's number format: float64, float32, binary16, bfloat16, e4m3, e5m2\n(default: the candidate file's type; uint16/uint8 files need it to be read as bit patterns)")
+	fs.StringVar(&j.format, "format", "", "the candidate's number `format`: float64, float32, binary16, bfloat16, e4m3, e5m2\n(default: the candidate file's type; uint16/uint8 files need it to be read as bit patterns)")
 	fs.IntVar(&j.worst, "worst", compare.DefaultWorst, "how many of the worst elements the report lists")
 	fs.BoolVar(&j.json, "json", false, "write the report as JSON instead of text")
 }
@@ -145,7 +145,9 @@ the same shape. Exit status 0 within tolerance, 1 outside, 2 for an error.
 					return exitUsage, err
 				}
 			}
+			done := progress(e, o.quiet, "comparing")
 			rep, err := compare.Diff(ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, compare.Options{Format: f, Tolerance: &tol, Worst: o.worst})
+			done()
 			if err != nil {
 				return exitUsage, err
 			}
@@ -153,7 +155,10 @@ the same shape. Exit status 0 within tolerance, 1 outside, 2 for an error.
 				return exitUsage, err
 			}
 			if o.heatmap != "" {
-				if err := writeHeatmap(o.heatmap, ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, rep, got.path); err != nil {
+				done := progress(e, o.quiet, "drawing "+o.heatmap)
+				err := writeHeatmap(o.heatmap, ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, rep, got.path)
+				done()
+				if err != nil {
 					return exitUsage, fmt.Errorf("heatmap %s: %w", o.heatmap, err)
 				}
 			}
