@@ -49,6 +49,15 @@
 // compare.MeasureYardstick rounds the inputs to the candidate's format, runs
 // Run32, and returns the tolerance a candidate in that format must meet.
 //
+// Accuracy: Run adds no arithmetic; it returns the kernel's result bit for
+// bit (TestRunMatchesKernels), so the accuracy is the kernel package's. On
+// the small random problems of the tests (inputs uniform in [−1, 1)), the
+// float32 yardsticks measure normwise errors from 0 (ALiBi bias) to 2.1e-7
+// (the sink gradient) and the bfloat16 ones up to 5.1e-3 (a fused SwiGLU
+// layer); each tolerance is twice that plus one rounding, and every test
+// checks that the reference rounded to bfloat16 passes and an element 10%
+// off fails (TestRunRun32Yardstick, for every operation).
+//
 // Every error wraps ErrUnknownOp, ErrConfig, ErrInput or the sentinel error
 // of the kernel package that refused the call, and names the operation and
 // the key or tensor at fault. No function panics on its arguments.
