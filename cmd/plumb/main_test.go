@@ -495,3 +495,18 @@ func TestReadmeWalkthrough(t *testing.T) {
 	}
 	assert.Equal(t, 4, ran)
 }
+
+// A NaN where the reference has a number is drawn at the slice's largest
+// finite error, and matching NaNs as 0; the report counts the mismatch.
+func TestHeatmapNaN(t *testing.T) {
+	ref := []float64{1, 2, math.NaN(), 4, 5, 6}
+	got := []float64{1, math.NaN(), math.NaN(), 4.5, 5, 6}
+	shape := []int{2, 3}
+	rep, err := compare.Diff(ref, got, shape, compare.Options{})
+	require.NoError(t, err)
+	assert.Equal(t, 1, rep.NaNMismatches)
+	lead, g := worstSlice(ref, got, shape, rep)
+	assert.Empty(t, lead)
+	assert.Equal(t, []float64{0, 0.5, 0, 0.5, 0, 0}, g.z)
+	require.NoError(t, writeHeatmap(filepath.Join(t.TempDir(), "h.png"), ref, got, shape, rep, "got.npy"))
+}
