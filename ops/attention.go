@@ -1,6 +1,8 @@
 package ops
 
 import (
+	"bytes"
+	"encoding/json"
 	"fmt"
 
 	"github.com/plumbref/plumb/attention"
@@ -17,6 +19,65 @@ type maskConfig struct {
 	Valid   []int  `json:"valid"`
 	Offsets []int  `json:"offsets"`
 	Block   string `json:"block"`
+
+	present map[string]bool // the keys the entry spelled out
+}
+
+// maskKeys lists, for each kind, the keys it requires; no other key may
+// accompany the kind, so that a key meant for another kind ("size" on a
+// "causal" entry) is an error rather than silently ignored.
+var maskKeys = map[string][]string{
+	"full":        nil,
+	"causal":      nil,
+	"band":        {"before", "after"},
+	"window":      {"size"},
+	"prefix":      {"length"},
+	"key-padding": {"valid"},
+	"packed":      {"offsets", "block"},
+}
+
+// UnmarshalJSON records which keys the entry holds, then decodes it with
+// the configuration's own rules (unknown keys are refused by the outer
+// decoder's DisallowUnknownFields, which applies to this plain alias too).
+func (m *maskConfig) UnmarshalJSON(b []byte) error {
+	var keys map[string]json.RawMessage
+	if err := json.Unmarshal(b, &keys); err != nil {
+		return err
+	}
+	type plain maskConfig
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.DisallowUnknownFields()
+	var p plain
+	if err := dec.Decode(&p); err != nil {
+		return err
+	}
+	*m = maskConfig(p)
+	m.present = make(map[string]bool, len(keys))
+	for k := range keys {
+		m.present[k] = true
+	}
+	return nil
+}
+
+// checkKeys refuses an entry whose keys do not match its kind.
+func (m maskConfig) checkKeys() error {
+	want, ok := maskKeys[m.Kind]
+	if !ok {
+		return nil // build reports the unknown kind
+	}
+	allowed := map[string]bool{"kind": true}
+	for _, k := range want {
+		allowed[k] = true
+		if !m.present[k] {
+			return fmt.Errorf("%w: key \"mask\": kind %q needs key %q", ErrConfig, m.Kind, k)
+		}
+	}
+	for k := range m.present {
+		if !allowed[k] {
+			return fmt.Errorf("%w: key \"mask\": key %q does not apply to kind %q", ErrConfig, k, m.Kind)
+		}
+	}
+	return nil
 }
 
 var maskKeyDoc = `list of masks, intersected; each an object with "kind": ` +
@@ -26,6 +87,11 @@ var maskKeyDoc = `list of masks, intersected; each an object with "kind": ` +
 	`"packed" with "offsets" (sequence starts, from 0 to the key count) and "block" ("causal" or "full")`
 
 func (m maskConfig) build() (mask.Mask, error) {
+	if m.present != nil {
+		if err := m.checkKeys(); err != nil {
+			return mask.Mask{}, err
+		}
+	}
 	opt := func(p *int) int {
 		if p == nil {
 			return 0
