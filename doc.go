@@ -32,6 +32,9 @@
 //	           testing.TB and go-cmp
 //	npy        read and write NumPy .npy files, the exchange format with a
 //	           port under test
+//	ops        every kernel as a named operation with a JSON configuration,
+//	           float64 and float32 runs, and the yardstick of each output
+//	cmd/plumb  the command line: plumb gen, run, diff, check, demo
 //
 // Every package takes plain []float64 slices, row-major, with an explicit
 // shape and layout, validates its inputs, and returns errors that name the
