@@ -123,7 +123,9 @@ func (p Problem) String() string {
 // (Layouts, Groups, Pairings) multiply the cases: every case runs once for
 // each declared layout, each declared group map (cases with grouped heads)
 // and each declared pairing (cases that rotate). An empty list means the
-// zero value alone (HeadsMajor, GroupBlocks) and, for Pairings, no rotary.
+// zero value alone (HeadsMajor, GroupBlocks) and, for Pairings, a kernel
+// without rotary: the cases that rotate are then posed without it, except
+// those about rotary itself, which are skipped.
 // A case that needs something else not declared is skipped with a message
 // naming it.
 type Supports struct {
@@ -257,8 +259,10 @@ func variants(c Case, s Supports) []variant {
 	}
 	pairings := []posenc.Pairing{-1} // no rotary
 	if c.Problem.Rotary != nil {
-		pairings = s.Pairings
-		if len(pairings) == 0 {
+		switch {
+		case len(s.Pairings) > 0:
+			pairings = s.Pairings
+		case c.rotaryOnly:
 			pairings = []posenc.Pairing{posenc.PairAdjacent} // skipped: the kernel has no rotary
 		}
 	}
@@ -271,6 +275,9 @@ func variants(c Case, s Supports) []variant {
 				name := l.String()
 				if sh := p.Shape; sh.HeadsKV > 1 && sh.HeadsKV < sh.HeadsQ {
 					name += "/" + g.String()
+				}
+				if pr < 0 {
+					p.Rotary = nil
 				}
 				if p.Rotary != nil {
 					r := *p.Rotary

@@ -18,6 +18,9 @@ type Case struct {
 	Problem Problem
 	// draw returns q, k and v; nil means standard normal.
 	drawFn func(r *rand.Rand, p Problem) (q, k, v []float64)
+	// rotaryOnly: the case is about the rotary encoding, and is skipped
+	// rather than posed without it for a kernel that has none.
+	rotaryOnly bool
 }
 
 func (c Case) draw(r *rand.Rand, p Problem) (q, k, v []float64) {
@@ -87,9 +90,9 @@ func Cases() []Case {
 		{Name: "value_dim_differs", Why: "Dk 32, Dv 8",
 			Problem: p(attention.Shape{Batch: 1, HeadsQ: 2, HeadsKV: 2, Lq: 17, Lk: 17, Dk: 32, Dv: 8}, Causal, rope(32, 10000))},
 		{Name: "partial_rotary", Why: "the first 16 of 32 dims rotated, frequencies over 16",
-			Problem: p(shape(1, 2, 2, 17, 17, 32), Causal, &posenc.Rotary{Dim: 32, Rotated: 16, Base: 10000})},
+			Problem: p(shape(1, 2, 2, 17, 17, 32), Causal, &posenc.Rotary{Dim: 32, Rotated: 16, Base: 10000}), rotaryOnly: true},
 		{Name: "rotary_base_500000", Why: "another base, and positions up to 299",
-			Problem: p(shape(1, 2, 2, 8, 300, 16), Causal, rope(16, 500000))},
+			Problem: p(shape(1, 2, 2, 8, 300, 16), Causal, rope(16, 500000)), rotaryOnly: true},
 		{Name: "custom_scale", Why: "a logit scale other than 1/√Dk",
 			Problem: with(p(shape(1, 2, 2, 17, 17, 16), Causal, rope(16, 10000)), func(q *Problem) { q.Scale = 0.05 })},
 		{Name: "soft_cap", Why: "logits capped at 20·tanh(s/20), with logits of tens",
