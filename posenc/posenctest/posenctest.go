@@ -135,7 +135,9 @@ func seq(rows, start, period int) []int {
 // Cases returns the suite's cases, in the order Run runs them.
 func Cases() []Case {
 	rope := func(d int) posenc.Rotary { return posenc.Rotary{Dim: d, Rotated: d, Base: 10000} }
-	p := func(rows int, r posenc.Rotary, pos []int) Problem { return Problem{Rows: rows, Rotary: r, Positions: pos} }
+	p := func(rows int, r posenc.Rotary, pos []int) Problem {
+		return Problem{Rows: rows, Rotary: r, Positions: pos}
+	}
 	with := func(r posenc.Rotary, f func(*posenc.Rotary)) posenc.Rotary { f(&r); return r }
 	yarn := func(ramp posenc.Ramp) posenc.Rotary {
 		return with(rope(128), func(r *posenc.Rotary) {
@@ -270,4 +272,3 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		suite.Judge(t, caseName, conv, suite.Output{Name: fn.name, Dims: "[row, dim]", Shape: shape, Ref: want, Got: compare.Widen(got)}, opt)
 	}
 }
-
