@@ -204,8 +204,9 @@ func (s Supports) missing(p Problem) []string {
 //
 // A float32 kernel is held to the yardstick of compare.MeasureYardstick
 // with factor compare.DefaultK = 2, measured on each case by
-// attention.Forward32 (after posenc.Rotary.Apply32) on the same inputs in
-// the kernel's Format. A float64 kernel is held to an explicit tolerance:
+// attention.Forward32 and by attention.ForwardFast32 (after
+// posenc.Rotary.Apply32) on the same inputs in the kernel's Format, the
+// larger bound of the two. A float64 kernel is held to an explicit tolerance:
 // 1e-12 normwise and 1e-12 times the largest reference magnitude per
 // element. A failure names the case, the problem's conventions, the output
 // and its worst element, followed by compare.Diff's report. Cases the
@@ -315,11 +316,30 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 	}
 	outShape, lseShape, outDims, lseDims := shapes(p)
 	inputs := [][]float64{q, kk, vv}
-	lowOut := func(in [][]float32) ([]float32, error) {
-		o, _, err := reference(p, in[0], in[1], in[2], posenc.Rotary.Apply32, attention.Forward32)
-		return o, err
+	// The yardsticks: the direct and the blocked float32 forms, each run
+	// once per subtest (the output's and the log-sum-exp's yardsticks see
+	// the same inputs).
+	type result struct {
+		out, lse []float32
+		err      error
 	}
-	opt, err := suite.Tolerance[E](f, inputs, out, outShape, lowOut)
+	forms := []func(q, k, v []float32, s attention.Shape, o attention.Options) ([]float32, []float32, error){attention.Forward32, attention.ForwardFast32}
+	memo := map[int]*result{}
+	low := func(form int, lse bool) func(in [][]float32) ([]float32, error) {
+		return func(in [][]float32) ([]float32, error) {
+			r := memo[form]
+			if r == nil {
+				r = &result{}
+				r.out, r.lse, r.err = reference(p, in[0], in[1], in[2], posenc.Rotary.Apply32, forms[form])
+				memo[form] = r
+			}
+			if lse {
+				return r.lse, r.err
+			}
+			return r.out, r.err
+		}
+	}
+	opt, err := suite.Tolerance[E](f, inputs, out, outShape, low(0, false), low(1, false))
 	if err != nil {
 		t.Errorf("case %s (%s): cannot measure the yardstick: %v", c.Name, p, err)
 		return
@@ -329,15 +349,11 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 	if !k.Supports.LSE {
 		return
 	}
-	lowLSE := func(in [][]float32) ([]float32, error) {
-		_, l, err := reference(p, in[0], in[1], in[2], posenc.Rotary.Apply32, attention.Forward32)
-		return l, err
-	}
 	lf := f
 	if suite.Is32[E]() {
 		lf = compare.Float32
 	}
-	if opt, err = suite.Tolerance[E](lf, inputs, lse, lseShape, lowLSE); err != nil {
+	if opt, err = suite.Tolerance[E](lf, inputs, lse, lseShape, low(0, true), low(1, true)); err != nil {
 		t.Errorf("case %s (%s): cannot measure the log-sum-exp yardstick: %v", c.Name, p, err)
 		return
 	}

@@ -31,10 +31,14 @@
 // The reference is posenc.Rotary.Apply on q (at the query positions) and k
 // (at the key positions), then attention.Forward, in float64. A float32
 // kernel is held to the yardstick (compare.MeasureYardstick): the same
-// computation in float32 arithmetic (posenc.Rotary.Apply32 and
-// attention.Forward32) on the same inputs, rounded to the kernel's Format,
-// is measured against the reference on each case, and the kernel may be
-// twice as far (compare.DefaultK) plus one rounding to the format. The
+// computation in float32 arithmetic (posenc.Rotary.Apply32, then
+// attention.Forward32 and, separately, attention.ForwardFast32, which sums
+// in another order) on the same inputs, rounded to the kernel's Format, is
+// measured against the reference on each case, and the kernel may be twice
+// as far (compare.DefaultK) as the larger of the two, plus one rounding to
+// the format. Two summation orders, because one order's largest error on a
+// small tensor is a sample of a few values that another, equally accurate
+// order can exceed twice at one element. The
 // log-sum-exp, when the kernel returns it, is judged the same way in
 // float32. A float64 kernel is held to an explicit 1e-12 normwise and
 // 1e-12·max|reference| per element: a few thousand roundings, room for
