@@ -21,7 +21,9 @@ var everything = Supports{
 }
 
 func forward64(fwd func([]float64, ffn.Dims, ffn.Weights[float64], ffn.Options) ([]float64, error)) func([]float64, ffn.Weights[float64], Problem) ([]float64, error) {
-	return func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) { return fwd(x, p.Dims, w, p.Options) }
+	return func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
+		return fwd(x, p.Dims, w, p.Options)
+	}
 }
 
 func backward64(bwd func([]float64, []float64, ffn.Dims, ffn.Weights[float64], ffn.Options) ([]float64, ffn.Weights[float64], error)) func([]float64, []float64, ffn.Weights[float64], Problem) ([]float64, ffn.Weights[float64], error) {
