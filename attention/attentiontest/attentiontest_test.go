@@ -29,6 +29,17 @@ var everything = Supports{
 	LSE:            true,
 }
 
+// light declares every feature but one value of each convention list
+// (the non-default ones); the tests run under it with -short, to keep the
+// race detector's time modest.
+var light = func() Supports {
+	s := everything
+	s.Layouts = []attention.Layout{attention.SeqMajor}
+	s.Groups = []attention.GroupMap{attention.GroupCycle}
+	s.Pairings = []posenc.Pairing{posenc.PairHalves}
+	return s
+}()
+
 type forwardFunc[E float32 | float64] func(q, k, v []E, s attention.Shape, o attention.Options) ([]E, []E, error)
 
 // plumbKernel wraps one of the attention package's forms as a kernel.
@@ -51,6 +62,9 @@ func TestReference(t *testing.T) {
 	}{{"Forward", attention.Forward}, {"ForwardFast", attention.ForwardFast}, {"ForwardTiled", tiled}} {
 		for _, empty := range []attention.EmptyRow{attention.EmptyRowZero, attention.EmptyRowNaN} {
 			s := everything
+			if testing.Short() {
+				s = light
+			}
 			s.EmptyRow = empty
 			t.Run(c.name+"/"+empty.String(), func(t *testing.T) {
 				Run(t, Kernel[float64]{Forward: plumbKernel(c.fwd), Format: compare.Float64, Supports: s})
@@ -63,9 +77,13 @@ func TestReference(t *testing.T) {
 // time the yardstick's, the tolerance two), in float32 and in bfloat16;
 // this checks the suite's wiring of formats, not the kernel.
 func TestYardstickKernel(t *testing.T) {
-	for _, f := range []compare.Format{compare.Float32, compare.BFloat16} {
+	formats, s := []compare.Format{compare.Float32, compare.BFloat16}, everything
+	if testing.Short() {
+		formats, s = formats[:1], light
+	}
+	for _, f := range formats {
 		t.Run(f.String(), func(t *testing.T) {
-			Run(t, Kernel[float32]{Format: f, Supports: everything,
+			Run(t, Kernel[float32]{Format: f, Supports: s,
 				Forward: func(q, k, v []float32, p Problem) ([]float32, []float32, error) {
 					out, lse, err := reference(p, q, k, v, posenc.Rotary.Apply32, attention.Forward32)
 					for i := range out {
@@ -150,6 +168,9 @@ func TestCatchesSlips(t *testing.T) {
 		{"scale 1/Dk", func(p Problem) Problem { p.Scale *= p.Scale; return p },
 			[]string{"full_square/HeadsMajor/PairAdjacent", "realistic_decode/HeadsMajor/GroupBlocks/PairAdjacent"},
 			[]string{"no_keys/HeadsMajor", "no_keys/SeqMajor"}},
+	}
+	if testing.Short() {
+		slips = slips[:2]
 	}
 	for _, s := range slips {
 		t.Run(s.name, func(t *testing.T) {
