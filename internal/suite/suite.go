@@ -121,19 +121,6 @@ func Normal(r *rand.Rand, n int, scale float64) []float64 {
 	return x
 }
 
-// Round returns x rounded to format f (a copy).
-func Round(f compare.Format, x []float64) []float64 { return f.RoundSlice(x) }
-
-// To32 converts float64 values to float32. Values already in a format no
-// wider than float32 convert exactly.
-func To32(x []float64) []float32 {
-	y := make([]float32, len(x))
-	for i, v := range x {
-		y[i] = float32(v)
-	}
-	return y
-}
-
 // Float is the element type of a kernel under test.
 type Float interface{ ~float32 | ~float64 }
 
