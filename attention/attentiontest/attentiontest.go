@@ -217,26 +217,17 @@ func (s Supports) missing(p Problem) []string {
 // the reference is computed on the rounded values.
 func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
 	t.Helper()
-	if k.Forward == nil {
-		t.Errorf("attentiontest: Kernel.Forward is nil")
+	f, ok := suite.Start[T, E](t, "attentiontest", k.Forward != nil, "Kernel.Forward is nil", k.Format)
+	if !ok {
 		return
 	}
-	f, err := suite.InputFormat[E](k.Format)
-	if err != nil {
-		t.Errorf("attentiontest: %v", err)
-		return
-	}
+	var subs []suite.Sub[T]
 	for _, c := range Cases() {
-		t.Run(c.Name, func(t T) {
-			t.Helper()
-			for _, v := range variants(c, k.Supports) {
-				t.Run(v.name, func(t T) {
-					t.Helper()
-					runCase(t, k, f, c, v)
-				})
-			}
-		})
+		for _, v := range variants(c, k.Supports) {
+			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: v.name, Run: func(t T) { runCase(t, k, f, c, v) }})
+		}
 	}
+	suite.RunAll(t, subs)
 }
 
 // variant is one choice of the conventions a case is run under.
@@ -339,25 +330,18 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 			return r.out, r.err
 		}
 	}
-	opt, err := suite.Tolerance[E](f, inputs, out, outShape, low(0, false), low(1, false))
-	if err != nil {
-		t.Errorf("case %s (%s): cannot measure the yardstick: %v", c.Name, p, err)
-		return
-	}
 	conv := p.String()
-	suite.Judge(t, c.Name, conv, suite.Output{Name: "output", Dims: outDims, Shape: outShape, Ref: out, Got: compare.Widen(gotOut)}, opt)
+	suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: "output", Dims: outDims, Shape: outShape, Ref: out, Got: compare.Widen(gotOut)},
+		inputs, low(0, false), low(1, false))
 	if !k.Supports.LSE {
 		return
 	}
-	lf := f
+	lf := f // the log-sum-exp of a float32 kernel is float32 whatever its inputs
 	if suite.Is32[E]() {
 		lf = compare.Float32
 	}
-	if opt, err = suite.Tolerance[E](lf, inputs, lse, lseShape, low(0, true), low(1, true)); err != nil {
-		t.Errorf("case %s (%s): cannot measure the log-sum-exp yardstick: %v", c.Name, p, err)
-		return
-	}
-	suite.Judge(t, c.Name, conv, suite.Output{Name: "log-sum-exp", Dims: lseDims, Shape: lseShape, Ref: lse, Got: compare.Widen(gotLSE)}, opt)
+	suite.Check[T, E](t, lf, c.Name, conv, suite.Output{Name: "log-sum-exp", Dims: lseDims, Shape: lseShape, Ref: lse, Got: compare.Widen(gotLSE)},
+		inputs, low(0, true), low(1, true))
 }
 
 // shapes returns the shapes of the output and the log-sum-exp in p's

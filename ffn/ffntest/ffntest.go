@@ -266,22 +266,17 @@ func (c Case) draw(name string, p Problem) (x []float64, w ffn.Weights[float64],
 // case/activation/unit/layout[/form]; see the package documentation.
 func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
 	t.Helper()
-	if k.Forward == nil || len(k.Supports.Acts) == 0 {
-		t.Errorf("ffntest: Kernel.Forward is nil or Supports.Acts empty")
+	f, ok := suite.Start[T, E](t, "ffntest", k.Forward != nil && len(k.Supports.Acts) > 0, "Kernel.Forward is nil or Supports.Acts empty", k.Format)
+	if !ok {
 		return
 	}
-	f, err := suite.InputFormat[E](k.Format)
-	if err != nil {
-		t.Errorf("ffntest: %v", err)
-		return
-	}
+	var subs []suite.Sub[T]
 	for _, c := range Cases() {
-		t.Run(c.Name, func(t T) {
-			for _, v := range variants(c, k.Supports) {
-				t.Run(v.name, func(t T) { runCase(t, k, f, c, v) })
-			}
-		})
+		for _, v := range variants(c, k.Supports) {
+			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: v.name, Run: func(t T) { runCase(t, k, f, c, v) }})
+		}
 	}
+	suite.RunAll(t, subs)
 }
 
 func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format, c Case, v variant) {
@@ -305,12 +300,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 	d := p.Dims
 	judge := func(out string, shape []int, dims string, ref, got []float64, inputs [][]float64, runs ...func([][]float32) ([]float32, error)) {
 		t.Helper()
-		opt, err := suite.Tolerance[E](f, inputs, ref, shape, runs...)
-		if err != nil {
-			t.Errorf("case %s (%s): cannot measure the yardstick of %s: %v", c.Name, conv, out, err)
-			return
-		}
-		suite.Judge(t, c.Name, conv, suite.Output{Name: out, Dims: dims, Shape: shape, Ref: ref, Got: got}, opt)
+		suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: out, Dims: dims, Shape: shape, Ref: ref, Got: got}, inputs, runs...)
 	}
 	conv32 := func(l [][]float64) [][]E {
 		out := make([][]E, len(l))

@@ -96,13 +96,7 @@ func TestFloat32Kernels(t *testing.T) {
 func failures[E float32 | float64](k Kernel[E]) (*Recorder, []string) {
 	rec := &Recorder{}
 	Run(rec, k)
-	var failed []string
-	rec.Walk(func(r *Recorder) {
-		if r.Failed && len(r.Children) == 0 {
-			failed = append(failed, r.Name)
-		}
-	})
-	return rec, failed
+	return rec, rec.Failures()
 }
 
 // Each slip is a float64 kernel with one convention wrong; the suite

@@ -73,6 +73,18 @@ func (r *Recorder) Run(name string, f func(*Recorder)) bool {
 	return !c.Failed
 }
 
+// Failures lists the full names of the failed subtests that have no
+// subtests of their own, in the order they ran.
+func (r *Recorder) Failures() []string {
+	var names []string
+	r.Walk(func(c *Recorder) {
+		if c.Failed && len(c.Children) == 0 {
+			names = append(names, c.Name)
+		}
+	})
+	return names
+}
+
 // Walk calls f on r and on every recorder below it, depth first.
 func (r *Recorder) Walk(f func(*Recorder)) {
 	f(r)
@@ -254,6 +266,62 @@ func Tolerance[E Float](f compare.Format, inputs [][]float64, ref []float64, sha
 		opt.Tolerance = &t
 	}
 	return opt, nil
+}
+
+// Check judges o against o.Ref under Tolerance (the yardsticks runs for a
+// float32 kernel, Float64Tolerance for a float64 one) with Judge, and
+// reports whether it passed. A yardstick that cannot be run fails t.
+func Check[T TB[T], E Float](t T, f compare.Format, caseName, conventions string, o Output, inputs [][]float64, runs ...func(in [][]float32) ([]float32, error)) bool {
+	t.Helper()
+	opt, err := Tolerance[E](f, inputs, o.Ref, o.Shape, runs...)
+	if err != nil {
+		t.Errorf("case %s (%s): cannot measure the yardstick of %s: %v", caseName, conventions, o.Name, err)
+		return false
+	}
+	return Judge(t, caseName, conventions, o, opt)
+}
+
+// Sub is one subtest of a suite: a case under one choice of its
+// conventions (Variant, the subtest's name below the case's).
+type Sub[T any] struct {
+	Case, Variant string
+	Run           func(t T)
+}
+
+// RunAll runs subs as subtests of t, each under a subtest named by its
+// Case (consecutive subs of one case share it).
+func RunAll[T TB[T]](t T, subs []Sub[T]) {
+	t.Helper()
+	for i := 0; i < len(subs); {
+		j := i + 1
+		for j < len(subs) && subs[j].Case == subs[i].Case {
+			j++
+		}
+		group := subs[i:j]
+		t.Run(subs[i].Case, func(t T) {
+			for _, s := range group {
+				t.Run(s.Variant, s.Run)
+			}
+		})
+		i = j
+	}
+}
+
+// Start checks what every suite's Run checks first: that the kernel has
+// its function (ok) and a number format a kernel of element type E can
+// have. It fails t, naming the suite, and returns false otherwise.
+func Start[T TB[T], E Float](t T, suiteName string, ok bool, what string, declared compare.Format) (compare.Format, bool) {
+	t.Helper()
+	if !ok {
+		t.Errorf("%s: %s", suiteName, what)
+		return 0, false
+	}
+	f, err := InputFormat[E](declared)
+	if err != nil {
+		t.Errorf("%s: %v", suiteName, err)
+		return 0, false
+	}
+	return f, true
 }
 
 // Missing joins the names of the missing supports of a case into the skip

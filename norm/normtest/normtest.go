@@ -318,22 +318,17 @@ func rmsBack32(x []float32, d int, w, dy []float32, o norm.Options) ([]float32, 
 // what is judged and how closely.
 func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
 	t.Helper()
-	if k.Forward == nil {
-		t.Errorf("normtest: Kernel.Forward is nil")
+	f, ok := suite.Start[T, E](t, "normtest", k.Forward != nil, "Kernel.Forward is nil", k.Format)
+	if !ok {
 		return
 	}
-	f, err := suite.InputFormat[E](k.Format)
-	if err != nil {
-		t.Errorf("normtest: %v", err)
-		return
-	}
+	var subs []suite.Sub[T]
 	for _, c := range Cases() {
-		t.Run(c.Name, func(t T) {
-			for _, v := range variants(c, k.Supports) {
-				t.Run(v.name, func(t T) { runCase(t, k, f, c, v) })
-			}
-		})
+		for _, v := range variants(c, k.Supports) {
+			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: v.name, Run: func(t T) { runCase(t, k, f, c, v) }})
+		}
 	}
+	suite.RunAll(t, subs)
 }
 
 func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format, c Case, v variant) {
@@ -349,16 +344,11 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 	rowShape := []int{p.Rows, p.Dim}
 	judge := func(name string, shape []int, ref, got []float64, inputs [][]float64, run func([][]float32) ([]float32, error)) {
 		t.Helper()
-		opt, err := suite.Tolerance[E](f, inputs, ref, shape, run)
-		if err != nil {
-			t.Errorf("case %s (%s): cannot measure the yardstick of %s: %v", c.Name, conv, name, err)
-			return
-		}
 		dims := "[row, column]"
 		if len(shape) == 1 {
 			dims = "[column]"
 		}
-		suite.Judge(t, c.Name, conv, suite.Output{Name: name, Dims: dims, Shape: shape, Ref: ref, Got: got}, opt)
+		suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: name, Dims: dims, Shape: shape, Ref: ref, Got: got}, inputs, run)
 	}
 
 	y, sum, err := forward(p, x, res, w, b, norm.LayerNorm, norm.RMSNorm)

@@ -205,29 +205,24 @@ func (s Supports) missing(p Problem) []string {
 // closely.
 func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
 	t.Helper()
-	if k.Apply == nil {
-		t.Errorf("posenctest: Kernel.Apply is nil")
-		return
-	}
-	f, err := suite.InputFormat[E](k.Format)
-	if err != nil {
-		t.Errorf("posenctest: %v", err)
+	f, ok := suite.Start[T, E](t, "posenctest", k.Apply != nil, "Kernel.Apply is nil", k.Format)
+	if !ok {
 		return
 	}
 	pairings := k.Supports.Pairings
 	if len(pairings) == 0 {
 		pairings = []posenc.Pairing{posenc.PairAdjacent}
 	}
+	var subs []suite.Sub[T]
 	for _, c := range Cases() {
-		t.Run(c.Name, func(t T) {
-			for _, pr := range pairings {
-				p := c.Problem
-				p.Rotary.Pairing = pr
-				name := c.Name + "/" + pr.String()
-				t.Run(pr.String(), func(t T) { runCase(t, k, f, c.Name, name, p) })
-			}
-		})
+		for _, pr := range pairings {
+			p := c.Problem
+			p.Rotary.Pairing = pr
+			name := c.Name + "/" + pr.String()
+			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: pr.String(), Run: func(t T) { runCase(t, k, f, c.Name, name, p) }})
+		}
 	}
+	suite.RunAll(t, subs)
 }
 
 func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format, caseName, name string, p Problem) {
@@ -262,13 +257,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 			t.Errorf("case %s (%s): the kernel returned an error: %v", caseName, conv, err)
 			continue
 		}
-		opt, err := suite.Tolerance[E](f, [][]float64{x}, want, shape, func(in [][]float32) ([]float32, error) {
-			return fn.low(p.Rotary, in[0], 1, pos)
-		})
-		if err != nil {
-			t.Errorf("case %s (%s): cannot measure the yardstick: %v", caseName, conv, err)
-			continue
-		}
-		suite.Judge(t, caseName, conv, suite.Output{Name: fn.name, Dims: "[row, dim]", Shape: shape, Ref: want, Got: compare.Widen(got)}, opt)
+		suite.Check[T, E](t, f, caseName, conv, suite.Output{Name: fn.name, Dims: "[row, dim]", Shape: shape, Ref: want, Got: compare.Widen(got)},
+			[][]float64{x}, func(in [][]float32) ([]float32, error) { return fn.low(p.Rotary, in[0], 1, pos) })
 	}
 }

@@ -87,13 +87,7 @@ func plain(angle32, swap bool) func(x []float32, p Problem) ([]float32, error) {
 func failures(k Kernel[float32]) (*Recorder, []string) {
 	rec := &Recorder{}
 	Run(rec, k)
-	var failed []string
-	rec.Walk(func(r *Recorder) {
-		if r.Failed && len(r.Children) == 0 {
-			failed = append(failed, r.Name)
-		}
-	})
-	return rec, failed
+	return rec, rec.Failures()
 }
 
 var plainSupports = Supports{Pairings: []posenc.Pairing{posenc.PairAdjacent, posenc.PairHalves}, PartialRotary: true, Unordered: true}
