@@ -8,10 +8,17 @@
 // a running maximum m, a running sum ℓ and an unnormalised output a,
 // rescaled by e^{m−m′} when the maximum grows), applies the rotary encoding
 // (Su et al. 2021, "RoFormer", arXiv 2104.09864) to q and k itself, skips
-// the tiles a row cannot see under a causal or sliding-window mask, and
-// runs the (batch, head) pairs in parallel. All of its arithmetic is
-// float32 except the rotary tables, which are computed in float64 and
-// rounded.
+// the tiles a row cannot see under a causal or sliding-window mask, takes
+// Rows query rows at a time so that each key and value row is read once
+// for all of them, and runs the (batch, head) pairs in parallel. All of its
+// arithmetic is float32 except the exponentials and the rotary tables,
+// which are computed in float64 and rounded.
+//
+// Speed: BenchmarkForward (a causal prefill of 512 positions, 16 query
+// heads on 4 kv heads, head dimension 128, rotary) takes about 0.10 s on
+// the 2-core test machine, against 0.048 s for attention.ForwardFast32
+// (gonum's BLAS, no rotary) on the same problem: scalar Go, whose point is
+// the structure of a tiled kernel, not its speed.
 //
 // Its test file is the point of the example: TestConformance is a single
 // call to attentiontest.Run, and TestSuiteCatchesSlips runs the suite on a
@@ -27,8 +34,71 @@ import (
 	"sync"
 )
 
-// Tile is the number of keys processed per step of the online softmax.
-const Tile = 32
+// Tile is the number of keys processed per step of the online softmax,
+// and Rows the number of query rows processed together (each key and
+// value row is read once for all of them).
+const (
+	Tile = 32
+	Rows = 4
+)
+
+// rowState is the running state of one query row: its rotated q, the
+// keys it sees (lo ≤ j < hi), the running maximum m, sum ℓ and
+// unnormalised output acc.
+type rowState struct {
+	q, acc []float32
+	lo, hi int
+	m, l   float32
+}
+
+// online folds one tile of logits s (−Inf where hidden) into the row's
+// running state, and leaves in s the weights e^{s_j − m} the tile's
+// values are to be added with.
+func (st *rowState) online(s []float32) {
+	tm := st.m
+	for _, v := range s {
+		tm = max(tm, v)
+	}
+	if math.IsInf(float64(tm), -1) { // nothing seen yet, nor in this tile
+		clear(s)
+		return
+	}
+	if corr := float32(math.Exp(float64(st.m - tm))); corr != 1 {
+		st.l *= corr
+		for x := range st.acc {
+			st.acc[x] *= corr
+		}
+	}
+	for j, v := range s {
+		e := float32(math.Exp(float64(v - tm)))
+		s[j] = e
+		st.l += e
+	}
+	st.m = tm
+}
+
+// dot4 is the dot product of k with each of four query rows.
+func dot4(q0, q1, q2, q3, k []float32) (s0, s1, s2, s3 float32) {
+	k, q1, q2, q3 = k[:len(q0)], q1[:len(q0)], q2[:len(q0)], q3[:len(q0)]
+	for x, kx := range k {
+		s0 += q0[x] * kx
+		s1 += q1[x] * kx
+		s2 += q2[x] * kx
+		s3 += q3[x] * kx
+	}
+	return
+}
+
+// axpy4 adds e_r·v to each of four output rows.
+func axpy4(e0, e1, e2, e3 float32, v, a0, a1, a2, a3 []float32) {
+	a0, a1, a2, a3 = a0[:len(v)], a1[:len(v)], a2[:len(v)], a3[:len(v)]
+	for x, vx := range v {
+		a0[x] += e0 * vx
+		a1[x] += e1 * vx
+		a2[x] += e2 * vx
+		a3[x] += e3 * vx
+	}
+}
 
 // Params describe one call.
 type Params struct {
@@ -91,6 +161,7 @@ func forward(q, k, v []float32, p Params, kvHead func(h, hq, hkv int) int, pair 
 	if r == 0 {
 		r = d
 	}
+	r2 := r / 2
 	idx := func(b, h, l, heads, L int) int {
 		if p.SeqMajor {
 			return ((b*L+l)*heads + h) * d
@@ -132,61 +203,67 @@ func forward(q, k, v []float32, p Params, kvHead func(h, hq, hkv int) int, pair 
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			qi := make([]float32, d)
-			acc := make([]float32, d)
-			s := make([]float32, Tile)
+			var rows [Rows]rowState
+			for r := range rows {
+				rows[r].q, rows[r].acc = make([]float32, d), make([]float32, d)
+			}
+			var sc [Rows][Tile]float32
 			for t := range tasks {
 				b, h := t[0], t[1]
 				g := kvHead(h, p.HeadsQ, p.HeadsKV)
 				keys := kr[((b*p.HeadsKV+g)*p.Lk)*d:]
 				vals := vr[((b*p.HeadsKV+g)*p.Lk)*d:]
-				for i := 0; i < p.Lq; i++ {
-					o := idx(b, h, i, p.HeadsQ, p.Lq)
-					copy(qi, q[o:o+d])
-					if cosQ != nil {
-						rotate(qi, cosQ[i*r/2:(i+1)*r/2], sinQ[i*r/2:(i+1)*r/2], r, p.RopeHalves, pair)
+				for i0 := 0; i0 < p.Lq; i0 += Rows {
+					n := min(Rows, p.Lq-i0)
+					lo, hi := p.Lk, 0
+					for r := range rows {
+						i := i0 + min(r, n-1) // a short last block repeats its last row
+						st := &rows[r]
+						o := idx(b, h, i, p.HeadsQ, p.Lq)
+						copy(st.q, q[o:o+d])
+						if cosQ != nil {
+							rotate(st.q, cosQ[i*r2:(i+1)*r2], sinQ[i*r2:(i+1)*r2], r2*2, p.RopeHalves, pair)
+						}
+						st.lo, st.hi = p.visible(i)
+						st.m, st.l = float32(math.Inf(-1)), 0
+						clear(st.acc)
+						lo, hi = min(lo, st.lo), max(hi, st.hi)
 					}
-					lo, hi := p.visible(i)
-					m, l := float32(math.Inf(-1)), float32(0)
-					clear(acc)
 					for t0 := lo - lo%Tile; t0 < hi; t0 += Tile {
 						j0, j1 := max(t0, lo), min(t0+Tile, hi)
-						tm := m
 						for j := j0; j < j1; j++ {
-							var dot float32
-							kj := keys[j*d : (j+1)*d]
-							for x := range qi {
-								dot += qi[x] * kj[x]
-							}
-							s[j-j0] = scale * dot
-							tm = max(tm, s[j-j0])
-						}
-						corr := float32(math.Exp(float64(m - tm)))
-						l *= corr
-						for x := range acc {
-							acc[x] *= corr
-						}
-						for j := j0; j < j1; j++ {
-							e := float32(math.Exp(float64(s[j-j0] - tm)))
-							l += e
-							vj := vals[j*d : (j+1)*d]
-							for x := range acc {
-								acc[x] += e * vj[x]
+							s0, s1, s2, s3 := dot4(rows[0].q, rows[1].q, rows[2].q, rows[3].q, keys[j*d:(j+1)*d])
+							for r, v := range [Rows]float32{s0, s1, s2, s3} {
+								if j < rows[r].lo || j >= rows[r].hi {
+									v = float32(math.Inf(-1))
+								} else {
+									v *= scale
+								}
+								sc[r][j-j0] = v
 							}
 						}
-						m = tm
+						for r := range rows {
+							rows[r].online(sc[r][:j1-j0])
+						}
+						for j := j0; j < j1; j++ {
+							jj := j - j0
+							axpy4(sc[0][jj], sc[1][jj], sc[2][jj], sc[3][jj], vals[j*d:(j+1)*d], rows[0].acc, rows[1].acc, rows[2].acc, rows[3].acc)
+						}
 					}
-					row := out[o : o+d]
-					li := p.lseIndex(b, h, i)
-					if l == 0 {
-						clear(row)
-						lse[li] = float32(math.Inf(-1))
-						continue
+					for r := 0; r < n; r++ {
+						i, st := i0+r, &rows[r]
+						o := idx(b, h, i, p.HeadsQ, p.Lq)
+						row, li := out[o:o+d], p.lseIndex(b, h, i)
+						if st.l == 0 {
+							clear(row)
+							lse[li] = float32(math.Inf(-1))
+							continue
+						}
+						for x := range row {
+							row[x] = st.acc[x] / st.l
+						}
+						lse[li] = st.m + float32(math.Log(float64(st.l)))
 					}
-					for x := range row {
-						row[x] = acc[x] / l
-					}
-					lse[li] = m + float32(math.Log(float64(l)))
 				}
 			}
 		}()
@@ -255,6 +332,8 @@ func (p Params) check(nq, nk, nv int) error {
 		return fmt.Errorf("%w: %+v", ErrParams, p)
 	case p.HeadsQ%p.HeadsKV != 0:
 		return fmt.Errorf("%w: %d query heads on %d kv heads", ErrParams, p.HeadsQ, p.HeadsKV)
+	case p.Window < 0 || (p.Window > 0 && !p.Causal):
+		return fmt.Errorf("%w: Window %d needs Causal", ErrParams, p.Window)
 	case p.RopeDims%2 != 0 || p.RopeDims > p.HeadDim || p.RopeDims < 0:
 		return fmt.Errorf("%w: RopeDims %d with head dimension %d", ErrParams, p.RopeDims, p.HeadDim)
 	case p.Causal && (p.StartPos < 0 || p.StartPos+p.Lq > p.Lk):
