@@ -10,6 +10,7 @@ import (
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/posenc"
 )
 
@@ -210,4 +211,15 @@ func TestCases(t *testing.T) {
 		assert.NoError(t, err, c.Name)
 		assert.Contains(t, c.Problem.String(), fmt.Sprintf("Lq %d, Lk %d", c.Problem.Shape.Lq, c.Problem.Shape.Lk))
 	}
+}
+
+// The package documentation lists every case, with its reason, in order.
+func TestDocListsEveryCase(t *testing.T) {
+	var names, whys []string
+	for _, c := range Cases() {
+		names, whys = append(names, c.Name), append(whys, c.Why)
+	}
+	missing, err := suite.MissingDocLines("doc.go", names, whys)
+	require.NoError(t, err)
+	assert.Empty(t, missing, "cases missing from the package documentation")
 }

@@ -26,6 +26,37 @@
 // that needs what the kernel does not declare is skipped with a message
 // that says what is missing, never silently.
 //
+// # Cases
+//
+// Cases returns them, with the reason each is there; Run runs them in this order:
+//
+//	one_query_one_key        length 1: the softmax of one logit is 1, whatever its value
+//	full_square              plain multi-head attention over every key, lengths that are no power of two
+//	cross_fewer_queries      Lq < Lk without a mask (cross attention)
+//	cross_more_queries       Lq > Lk without a mask
+//	causal_square            the causal prefill
+//	causal_grouped           8 query heads on 2 kv heads: GroupBlocks and GroupCycle read different kv heads
+//	causal_multi_query       4 query heads on one kv head
+//	decode_step              one query at the last key position (mask.AlignEnd), grouped heads
+//	chunked_prefill          16 queries at the last 16 of 50 key positions (mask.AlignEnd)
+//	align_start              query i at key position i (mask.AlignStart): the first rows see few keys
+//	align_start_offset       queries at key positions 9 … 20 of 40 (mask.AlignStart, offset 9)
+//	align_end_offset         a chunk that is not the last: 8 queries at positions 30 … 37 of 48 (mask.AlignEnd, offset −10)
+//	window_edges             a window of 7 keys: the first rows are cut by the start of the sequence
+//	window_one               a window of 1: each query sees only itself
+//	window_wider_than_keys   a window of 64 over 20 keys: the causal mask
+//	window_decode            3 queries at the end of 40 keys, a window of 8
+//	no_keys                  Lk = 0: every row sees no key (the declared EmptyRow; lse −Inf)
+//	padded_keys_empty_rows   key lengths 10, 3 and 0: the last batch entry's rows see no key
+//	logits_near_1000         logits near +1000 and −1000: a kernel that does not subtract the running maximum overflows
+//	value_dim_differs        Dk 32, Dv 8
+//	partial_rotary           the first 16 of 32 dims rotated, frequencies over 16
+//	rotary_base_500000       another base, and positions up to 299
+//	custom_scale             a logit scale other than 1/√Dk
+//	soft_cap                 logits capped at 20·tanh(s/20), with logits of tens
+//	realistic_prefill        8 query heads on 2 kv heads, 128 positions, head dimension 64: several tiles of keys
+//	realistic_decode         one query against 512 cached keys, head dimension 64
+//
 // # What is judged, and how closely
 //
 // The reference is posenc.Rotary.Apply on q (at the query positions) and k

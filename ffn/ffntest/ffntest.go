@@ -24,6 +24,17 @@
 // what the kernel does not declare (biases, Out ≠ In) are skipped with a
 // message naming it.
 //
+// # Cases
+//
+// Cases returns them, with the reason each is there; Run runs them in this order:
+//
+//	one_hidden_unit        a hidden width of 1 and one row
+//	small                  3 rows, in 8, hidden 12: no power of two in the hidden width
+//	biases                 every bias given
+//	rectangular            out 5 ≠ in 16
+//	large_preactivations   pre-activations of order 10: the tails of σ, GELU and Swish
+//	realistic              8 rows, in 128, hidden 352 (the 2/3·4d rule rounded to 32)
+//
 // # What is judged, and how closely
 //
 // A float32 kernel is held to the yardstick of compare.MeasureYardstick,

@@ -9,6 +9,7 @@ import (
 
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/suite"
 )
 
 var allActs = []ffn.Act{ffn.ActIdentity, ffn.ActReLU, ffn.ActGELU, ffn.ActGELUTanh, ffn.ActGELUSigmoid, ffn.ActSigmoid, ffn.ActSiLU, ffn.ActSwish}
@@ -161,4 +162,15 @@ func TestSkips(t *testing.T) {
 		rec.Find("rectangular/relu/plain/InByOut").Messages[0])
 	assert.True(t, rec.Find("biases/relu/plain/InByOut").Skipped)
 	assert.False(t, rec.Find("realistic/relu/plain/InByOut").Skipped)
+}
+
+// The package documentation lists every case, with its reason, in order.
+func TestDocListsEveryCase(t *testing.T) {
+	var names, whys []string
+	for _, c := range Cases() {
+		names, whys = append(names, c.Name), append(whys, c.Why)
+	}
+	missing, err := suite.MissingDocLines("ffntest.go", names, whys)
+	require.NoError(t, err)
+	assert.Empty(t, missing, "cases missing from the package documentation")
 }

@@ -10,6 +10,8 @@ import (
 	"hash/fnv"
 	"math"
 	"math/rand/v2"
+	"os"
+	"regexp"
 	"strings"
 
 	"github.com/plumbref/plumb/compare"
@@ -331,4 +333,23 @@ func Missing(caseName string, missing []string) string {
 		return ""
 	}
 	return fmt.Sprintf("case %s skipped: it needs %s, which the kernel does not declare in its Supports", caseName, strings.Join(missing, ", "))
+}
+
+// MissingDocLines reads the Go file at path and returns the cases whose
+// line, "//\t<name>  <why>" with any run of spaces between, is not in it:
+// the package documentation lists the cases, and this keeps the list
+// true.
+func MissingDocLines(path string, names, whys []string) ([]string, error) {
+	b, err := os.ReadFile(path)
+	if err != nil {
+		return nil, err
+	}
+	var missing []string
+	for i, n := range names {
+		re := regexp.MustCompile(`(?m)^//\t` + regexp.QuoteMeta(n) + ` +` + regexp.QuoteMeta(whys[i]) + `$`)
+		if !re.Match(b) {
+			missing = append(missing, n)
+		}
+	}
+	return missing, nil
 }

@@ -3,6 +3,7 @@ package suite
 import (
 	"errors"
 	"math"
+	"os"
 	"strings"
 	"testing"
 
@@ -96,4 +97,15 @@ func TestRand(t *testing.T) {
 	a, b, c := Normal(Rand("x"), 4, 1), Normal(Rand("x"), 4, 1), Normal(Rand("y"), 4, 1)
 	assert.Equal(t, a, b)
 	assert.NotEqual(t, a, c)
+}
+
+// A case whose line is absent, or whose reason differs, is reported.
+func TestMissingDocLines(t *testing.T) {
+	path := t.TempDir() + "/doc.go"
+	require.NoError(t, os.WriteFile(path, []byte("// Cases:\n//\n//\tone    the first\n//\ttwo the second, changed\npackage x\n"), 0o644))
+	missing, err := MissingDocLines(path, []string{"one", "two", "three"}, []string{"the first", "the second", "the third"})
+	require.NoError(t, err)
+	assert.Equal(t, []string{"two", "three"}, missing)
+	_, err = MissingDocLines(path+".none", nil, nil)
+	assert.Error(t, err)
 }

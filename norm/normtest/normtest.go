@@ -16,6 +16,21 @@
 // Cases that need what the kernel does not declare (the fused residual add,
 // rows without a weight) are skipped with a message naming it.
 //
+// # Cases
+//
+// Cases returns them, with the reason each is there; Run runs them in this order:
+//
+//	one_element_rows   d = 1: LayerNorm gives the bias, RMSNorm x/√(x² + ε)
+//	small_rows         rows of 7, no power of two
+//	realistic          16 rows of 1024
+//	wide_rows          2 rows of 4096
+//	offset_rows        rows near 1000 with spread 1: a float32 mean or variance summed plainly loses digits
+//	constant_rows      constant rows (zero rows for RMSNorm): the variance is 0 and only ε is left
+//	epsilon_matters    values near 1e-3, so that s² ≈ ε = 1e-6 and the placement of ε shows
+//	large_values       values near 1e4 with outliers of 1e5
+//	no_weight          no weight and no bias: γ = 1
+//	residual_add       the fused residual add of a pre-norm block: y and the new stream
+//
 // # What is judged, and how closely
 //
 // The reference is norm.LayerNorm or norm.RMSNorm (norm.AddLayerNorm,
@@ -167,7 +182,7 @@ func Cases() []Case {
 		{Name: "small_rows", Why: "rows of 7, no power of two", Problem: p(3, 7), scale: 1},
 		{Name: "realistic", Why: "16 rows of 1024", Problem: p(16, 1024), scale: 1},
 		{Name: "wide_rows", Why: "2 rows of 4096", Problem: p(2, 4096), scale: 1},
-		{Name: "offset_rows", Why: "rows near 1000 with spread 1: mean(x²) − mean(x)² in float32 cancels",
+		{Name: "offset_rows", Why: "rows near 1000 with spread 1: a float32 mean or variance summed plainly loses digits",
 			Problem: p(8, 256), scale: 1, offset: 1000},
 		{Name: "constant_rows", Why: "constant rows (zero rows for RMSNorm): the variance is 0 and only ε is left",
 			Problem: p(4, 64), constant: true, scale: 1},

@@ -9,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/norm"
 )
 
@@ -169,4 +170,15 @@ func TestSkips(t *testing.T) {
 		rec.Find("residual_add/RMSNorm/EpsilonInRoot/WeightAsIs").Messages[0])
 	assert.True(t, rec.Find("no_weight/RMSNorm/EpsilonInRoot").Skipped)
 	assert.False(t, rec.Find("realistic/RMSNorm/EpsilonInRoot/WeightAsIs").Skipped)
+}
+
+// The package documentation lists every case, with its reason, in order.
+func TestDocListsEveryCase(t *testing.T) {
+	var names, whys []string
+	for _, c := range Cases() {
+		names, whys = append(names, c.Name), append(whys, c.Why)
+	}
+	missing, err := suite.MissingDocLines("normtest.go", names, whys)
+	require.NoError(t, err)
+	assert.Empty(t, missing, "cases missing from the package documentation")
 }

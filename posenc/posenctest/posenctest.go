@@ -16,6 +16,25 @@
 // what the kernel does not declare (partial rotation, a scaling method, a
 // magnitude) are skipped with a message naming it.
 //
+// # Cases
+//
+// Cases returns them, with the reason each is there; Run runs them in this order:
+//
+//	position_zero         position 0 rotates nothing
+//	small                 head dimension 8, positions 0 … 7
+//	head_dim_128          4 heads of 16 positions, head dimension 128
+//	base_500000           another base
+//	positions_to_4096     positions up to 4095: angles formed in float32 are off by up to 2.4e-4 rad
+//	positions_near_1e6    positions near 10⁶: angles formed in float32 are off by up to 0.03 rad
+//	unordered_positions   per-row positions in no order, as packed sequences give
+//	partial_rotary        the first 32 of 128 dims rotated, frequencies over 32
+//	interpolation_4       position interpolation by 4 (Chen et al. 2023)
+//	ntk_aware_8           NTK-aware base change by 8 (Peng et al. 2023 Eq. 16)
+//	yarn_ratio_16         YaRN by 16, the paper's ramp in ρ, with its magnitude
+//	yarn_dims_16          YaRN by 16, the ramp in dimension index of the authors' code, with its magnitude
+//	dynamic_ntk           dynamic NTK-aware scaling at current length 10000 of trained 4096
+//	per_frequency         a divisor per frequency
+//
 // # What is judged, and how closely
 //
 // A float32 kernel is held to the yardstick of compare.MeasureYardstick:
@@ -154,8 +173,8 @@ func Cases() []Case {
 		{"small", "head dimension 8, positions 0 … 7", p(8, rope(8), seq(8, 0, 8))},
 		{"head_dim_128", "4 heads of 16 positions, head dimension 128", p(64, rope(128), seq(64, 0, 16))},
 		{"base_500000", "another base", p(32, with(rope(64), func(r *posenc.Rotary) { r.Base = 500000 }), seq(32, 0, 32))},
-		{"positions_to_4096", "positions up to 4095: angles formed in float32 start to show", p(64, rope(64), seq(64, 4032, 64))},
-		{"positions_near_1e6", "positions near 10⁶: angles formed in float32 are off by about 0.06 rad", p(16, rope(64), seq(16, 999990, 16))},
+		{"positions_to_4096", "positions up to 4095: angles formed in float32 are off by up to 2.4e-4 rad", p(64, rope(64), seq(64, 4032, 64))},
+		{"positions_near_1e6", "positions near 10⁶: angles formed in float32 are off by up to 0.03 rad", p(16, rope(64), seq(16, 999990, 16))},
 		{"unordered_positions", "per-row positions in no order, as packed sequences give", p(48, rope(32), unordered)},
 		{"partial_rotary", "the first 32 of 128 dims rotated, frequencies over 32", p(32, with(rope(128), func(r *posenc.Rotary) { r.Rotated = 32 }), seq(32, 0, 32))},
 		{"interpolation_4", "position interpolation by 4 (Chen et al. 2023)", p(32, with(rope(64), func(r *posenc.Rotary) {

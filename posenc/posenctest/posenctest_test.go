@@ -9,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/posenc"
 )
 
@@ -121,4 +122,15 @@ func TestCatchesPairingSlip(t *testing.T) {
 	assert.True(t, strings.HasPrefix(msg, "case small (8 rows of 8, PairAdjacent, 8 dims rotated, base 10000, positions 0 … 7): rotated x differs from the reference"), msg)
 	assert.Contains(t, msg, "worst element [row, dim]")
 	assert.NotContains(t, failed, "position_zero/PairAdjacent")
+}
+
+// The package documentation lists every case, with its reason, in order.
+func TestDocListsEveryCase(t *testing.T) {
+	var names, whys []string
+	for _, c := range Cases() {
+		names, whys = append(names, c.Name), append(whys, c.Why)
+	}
+	missing, err := suite.MissingDocLines("posenctest.go", names, whys)
+	require.NoError(t, err)
+	assert.Empty(t, missing, "cases missing from the package documentation")
 }
