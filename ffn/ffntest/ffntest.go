@@ -239,6 +239,31 @@ func list[E ~float32 | ~float64](w ffn.Weights[E]) [][]E {
 
 var weightNames = []string{"dW1", "dB1", "dV", "dC", "dFused", "dFusedBias", "dW2", "dB2"}
 
+// gradShape returns the shape of the i-th gradient of list in p's layout,
+// and the names of its dimensions.
+func gradShape(i int, p Problem) ([]int, string) {
+	d := p.Dims
+	matrix := func(in, out int, inName, outName string) ([]int, string) {
+		if p.Options.Layout == ffn.OutByIn {
+			return []int{out, in}, "[" + outName + ", " + inName + "]"
+		}
+		return []int{in, out}, "[" + inName + ", " + outName + "]"
+	}
+	switch i {
+	case 0, 2:
+		return matrix(d.In, d.Hidden, "input", "hidden")
+	case 4:
+		return matrix(d.In, 2*d.Hidden, "input", "fused unit")
+	case 6:
+		return matrix(d.Hidden, d.Out, "hidden", "output")
+	case 1, 3:
+		return []int{d.Hidden}, "[hidden]"
+	case 5:
+		return []int{2 * d.Hidden}, "[fused unit]"
+	}
+	return []int{d.Out}, "[output]"
+}
+
 func unlist[E ~float32 | ~float64](l [][]E) ffn.Weights[E] {
 	n := func(x []E) []E {
 		if len(x) == 0 {
@@ -383,6 +408,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		if ref == nil || wl[i] == nil {
 			continue // a gradient of a weight not given
 		}
-		judge(weightNames[i], []int{len(ref)}, "[element]", ref, compare.Widen(gl[i]), binputs, back(i, 0), back(i, 1))
+		shape, dims := gradShape(i, p)
+		judge(weightNames[i], shape, dims, ref, compare.Widen(gl[i]), binputs, back(i, 0), back(i, 1))
 	}
 }

@@ -174,3 +174,31 @@ func TestDocListsEveryCase(t *testing.T) {
 	require.NoError(t, err)
 	assert.Empty(t, missing, "cases missing from the package documentation")
 }
+
+// A backward pass that returns the gradient of W₂ as [in, out] when the
+// weights are stored [out, in] fails with a message naming the gradient
+// and the worst element in the stored layout.
+func TestCatchesBackwardSlip(t *testing.T) {
+	k := Kernel[float64]{Format: compare.Float64, Forward: forward64(ffn.Forward),
+		Supports: Supports{Acts: []ffn.Act{ffn.ActReLU}, Layouts: []ffn.Layout{ffn.InByOut, ffn.OutByIn}},
+		Backward: func(x, dy []float64, w ffn.Weights[float64], p Problem) ([]float64, ffn.Weights[float64], error) {
+			dx, g, err := ffn.Backward(x, dy, p.Dims, w, p.Options)
+			if err == nil && p.Options.Layout == ffn.OutByIn { // the slip: dW2 left as [hidden, out]
+				h, o := p.Dims.Hidden, p.Dims.Out
+				t := make([]float64, len(g.W2))
+				for i := 0; i < h; i++ {
+					for j := 0; j < o; j++ {
+						t[i*o+j] = g.W2[j*h+i]
+					}
+				}
+				g.W2 = t
+			}
+			return dx, g, err
+		}}
+	rec, failed := failures(k)
+	assert.Contains(t, failed, "small/relu/plain/OutByIn")
+	assert.NotContains(t, failed, "small/relu/plain/InByOut")
+	msg := rec.Find("small/relu/plain/OutByIn").Messages[0]
+	assert.Contains(t, msg, "dW2 differs from the reference")
+	assert.Contains(t, msg, "worst element [output, hidden]")
+}

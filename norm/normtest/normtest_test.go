@@ -182,3 +182,33 @@ func TestDocListsEveryCase(t *testing.T) {
 	require.NoError(t, err)
 	assert.Empty(t, missing, "cases missing from the package documentation")
 }
+
+// A LayerNorm backward that forgets the −mean(g)/r term of ∂L/∂x (the
+// path through μ; g = dy∘γ) fails on dx, and names it.
+func TestCatchesBackwardSlip(t *testing.T) {
+	rec := &Recorder{}
+	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: plumbForward, Supports: Supports{Bias: true},
+		Backward: func(x, w, dy []float64, p Problem) ([]float64, []float64, []float64, error) {
+			dx, dw, db, err := plumbBackward(x, w, dy, p)
+			d := p.Dim
+			for r := 0; r < p.Rows; r++ {
+				row := x[r*d : (r+1)*d]
+				var mu, v, mg float64
+				for j, xv := range row {
+					mu += xv / float64(d)
+					mg += dy[r*d+j] * w[j] / float64(d)
+				}
+				for _, xv := range row {
+					v += (xv - mu) * (xv - mu) / float64(d)
+				}
+				for j := range row {
+					dx[r*d+j] += mg / math.Sqrt(v+p.Epsilon) // the slip
+				}
+			}
+			return dx, dw, db, err
+		}})
+	msg := rec.Find("small_rows/LayerNorm/EpsilonInRoot/WeightAsIs").Messages
+	require.Len(t, msg, 1)
+	assert.Contains(t, msg[0], "dx differs from the reference")
+	assert.Contains(t, msg[0], "worst element [row, column]")
+}
