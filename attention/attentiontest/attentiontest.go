@@ -215,6 +215,15 @@ func (s Supports) missing(p Problem) []string {
 // Inputs are standard normal unless a case says otherwise, drawn from a
 // generator seeded by the subtest's name, rounded to the kernel's Format;
 // the reference is computed on the rounded values.
+//
+// Special cases are:
+//
+//	Kernel.Forward nil                    the test fails at once, saying so
+//	an invalid Format                     the test fails at once, saying so
+//	a case needing an undeclared option   its subtest is skipped, with a message naming the option
+//	the kernel returns an error           that subtest fails, quoting the error
+//	an output of the wrong length         that subtest fails, naming both lengths
+//	NaN or ±Inf in the reference          the kernel must give the same (NaN for NaN, the same infinity)
 func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
 	t.Helper()
 	f, ok := suite.Start[T, E](t, "attentiontest", k.Forward != nil, "Kernel.Forward is nil", k.Format)

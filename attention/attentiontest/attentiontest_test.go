@@ -1,6 +1,7 @@
 package attentiontest
 
 import (
+	"errors"
 	"fmt"
 	"strings"
 	"testing"
@@ -222,4 +223,33 @@ func TestDocListsEveryCase(t *testing.T) {
 	missing, err := suite.MissingDocLines("doc.go", names, whys)
 	require.NoError(t, err)
 	assert.Empty(t, missing, "cases missing from the package documentation")
+}
+
+// A kernel without Forward, or with an invalid format, fails at once; a
+// kernel error fails its subtest, quoting it.
+func TestSpecialCases(t *testing.T) {
+	rec := &Recorder{}
+	Run(rec, Kernel[float32]{})
+	assert.Equal(t, []string{"attentiontest: Kernel.Forward is nil"}, rec.Messages)
+	assert.Empty(t, rec.Children)
+
+	rec = &Recorder{}
+	Run(rec, Kernel[float32]{Format: compare.Format(99), Forward: func(q, k, v []float32, p Problem) ([]float32, []float32, error) { return nil, nil, nil }})
+	assert.True(t, rec.Failed)
+	assert.Contains(t, rec.Messages[0], "invalid number format")
+
+	rec = &Recorder{}
+	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
+		return nil, nil, errors.New("out of shared memory")
+	}})
+	m := rec.Find("full_square/HeadsMajor").Messages
+	require.Len(t, m, 1)
+	assert.True(t, strings.HasPrefix(m[0], "case full_square (batch 2, 4 query heads on 4 kv heads, Lq 19, Lk 19"), m[0])
+	assert.True(t, strings.HasSuffix(m[0], "): the kernel returned an error: out of shared memory"), m[0])
+
+	rec = &Recorder{}
+	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
+		return make([]float64, 3), nil, nil
+	}})
+	assert.Contains(t, rec.Find("full_square/HeadsMajor").Messages[0], "output has 3 elements; want 2432, shape [2 4 19 16] [batch, head, query, dim]")
 }

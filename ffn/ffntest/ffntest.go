@@ -300,6 +300,15 @@ func (c Case) draw(name string, p Problem) (x []float64, w ffn.Weights[float64],
 
 // Run runs every case of Cases against the kernel, as subtests named
 // case/activation/unit/layout[/form]; see the package documentation.
+//
+// Special cases are:
+//
+//	Forward nil or no Supports.Acts       the test fails at once, saying so
+//	an invalid Format                     the test fails at once, saying so
+//	a case needing an undeclared option   its subtest is skipped, with a message naming the option
+//	the kernel returns an error           that subtest fails, quoting the error
+//	an output of the wrong length         that subtest fails, naming both lengths
+//	NaN or ±Inf in the reference          the kernel must give the same (NaN for NaN, the same infinity)
 func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
 	t.Helper()
 	f, ok := suite.Start[T, E](t, "ffntest", k.Forward != nil && len(k.Supports.Acts) > 0, "Kernel.Forward is nil or Supports.Acts empty", k.Format)

@@ -331,6 +331,15 @@ func rmsBack32(x []float32, d int, w, dy []float32, o norm.Options) ([]float32, 
 // Run runs every case of Cases against the kernel, as subtests named
 // case/layer/placement[/weight form]; see the package documentation for
 // what is judged and how closely.
+//
+// Special cases are:
+//
+//	Kernel.Forward nil                    the test fails at once, saying so
+//	an invalid Format                     the test fails at once, saying so
+//	a case needing an undeclared option   its subtest is skipped, with a message naming the option
+//	the kernel returns an error           that subtest fails, quoting the error
+//	an output of the wrong length         that subtest fails, naming both lengths
+//	NaN or ±Inf in the reference          the kernel must give the same (NaN for NaN, the same infinity)
 func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
 	t.Helper()
 	f, ok := suite.Start[T, E](t, "normtest", k.Forward != nil, "Kernel.Forward is nil", k.Format)
