@@ -73,6 +73,11 @@ func TestSuiteCatchesSlips(t *testing.T) {
 			return forward(q, k, v, p, kvHeadOf, swapped)
 		}, "causal_square/HeadsMajor/PairAdjacent", "cross_fewer_queries/HeadsMajor",
 			"rotary PairAdjacent over 32 of 32 dims"},
+		{"causal alignment", func(q, k, v []float32, p Params) ([]float32, []float32, error) {
+			p.StartPos = 0 // queries placed at the first keys, not the last
+			return Forward(q, k, v, p)
+		}, "decode_step/HeadsMajor/GroupBlocks/PairAdjacent", "causal_square/SeqMajor/PairHalves",
+			"case decode_step (batch 2, 4 query heads on 2 kv heads, Lq 1, Lk 77"},
 	} {
 		t.Run(s.name, func(t *testing.T) {
 			rec := &attentiontest.Recorder{}

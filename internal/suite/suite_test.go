@@ -109,3 +109,28 @@ func TestMissingDocLines(t *testing.T) {
 	_, err = MissingDocLines(path+".none", nil, nil)
 	assert.Error(t, err)
 }
+
+// Judge never panics, whatever the candidate holds, and fails exactly when
+// compare.Diff's verdict does.
+func FuzzJudge(f *testing.F) {
+	f.Add(1.0, 2.0, 3.0, 0.5)
+	f.Add(math.NaN(), math.Inf(1), -0.0, 1e300)
+	f.Fuzz(func(t *testing.T, a, b, c, abs float64) {
+		ref := []float64{1, -2, 3}
+		got := []float64{a, b, c}
+		if math.IsNaN(abs) || abs < 0 || math.IsInf(abs, 0) {
+			abs = 0
+		}
+		tol := compare.Tolerance{Abs: abs}
+		opt := compare.Options{Format: compare.Float32, Tolerance: &tol}
+		r := &Recorder{}
+		pass := Judge(r, "c", "conv", Output{Name: "y", Dims: "[i]", Shape: []int{3}, Ref: ref, Got: got}, opt)
+		rep, err := compare.Diff(ref, got, []int{3}, opt)
+		require.NoError(t, err)
+		assert.Equal(t, rep.Verdict.Pass, pass)
+		assert.Equal(t, !pass, r.Failed)
+		if !pass {
+			assert.True(t, strings.HasPrefix(r.Messages[0], "case c (conv): y differs from the reference: "), r.Messages[0])
+		}
+	})
+}
