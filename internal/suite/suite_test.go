@@ -114,7 +114,7 @@ func TestMissingDocLines(t *testing.T) {
 // compare.Diff's verdict does.
 func FuzzJudge(f *testing.F) {
 	f.Add(1.0, 2.0, 3.0, 0.5)
-	f.Add(math.NaN(), math.Inf(1), -0.0, 1e300)
+	f.Add(math.NaN(), math.Inf(1), math.Copysign(0, -1), 1e300)
 	f.Fuzz(func(t *testing.T, a, b, c, abs float64) {
 		ref := []float64{1, -2, 3}
 		got := []float64{a, b, c}
