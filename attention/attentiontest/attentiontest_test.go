@@ -1,0 +1,255 @@
+package attentiontest
+
+import (
+	"errors"
+	"fmt"
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/attention"
+	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/suite"
+	"github.com/plumbref/plumb/posenc"
+)
+
+// everything declares every option the suite knows.
+var everything = Supports{
+	Layouts:        []attention.Layout{attention.HeadsMajor, attention.SeqMajor},
+	Groups:         []attention.GroupMap{attention.GroupBlocks, attention.GroupCycle},
+	Pairings:       []posenc.Pairing{posenc.PairAdjacent, posenc.PairHalves},
+	Masks:          []Masking{NoMask, Causal, SlidingWindow},
+	AlignStart:     true,
+	Offset:         true,
+	UnequalLengths: true,
+	KeyPadding:     true,
+	ValueDim:       true,
+	PartialRotary:  true,
+	SoftCap:        true,
+	LSE:            true,
+}
+
+// light declares every feature but one value of each convention list
+// (the non-default ones); the tests run under it with -short, to keep the
+// race detector's time modest.
+var light = func() Supports {
+	s := everything
+	s.Layouts = []attention.Layout{attention.SeqMajor}
+	s.Groups = []attention.GroupMap{attention.GroupCycle}
+	s.Pairings = []posenc.Pairing{posenc.PairHalves}
+	return s
+}()
+
+type forwardFunc[E float32 | float64] func(q, k, v []E, s attention.Shape, o attention.Options) ([]E, []E, error)
+
+// plumbKernel wraps one of the attention package's forms as a kernel.
+func plumbKernel(fwd forwardFunc[float64]) func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
+	return func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
+		return reference(p, q, k, v, posenc.Rotary.Apply, fwd)
+	}
+}
+
+// The float64 reference, its fast form and its tiled form (blocks of 5
+// keys) pass every case, under every convention and both empty-row
+// policies, at the float64 kernel tolerance.
+func TestReference(t *testing.T) {
+	tiled := func(q, k, v []float64, s attention.Shape, o attention.Options) ([]float64, []float64, error) {
+		return attention.ForwardTiled(q, k, v, s, 5, o)
+	}
+	for _, c := range []struct {
+		name string
+		fwd  forwardFunc[float64]
+	}{{"Forward", attention.Forward}, {"ForwardFast", attention.ForwardFast}, {"ForwardTiled", tiled}} {
+		for _, empty := range []attention.EmptyRow{attention.EmptyRowZero, attention.EmptyRowNaN} {
+			s := everything
+			if testing.Short() {
+				s = light
+			}
+			s.EmptyRow = empty
+			t.Run(c.name+"/"+empty.String(), func(t *testing.T) {
+				Run(t, Kernel[float64]{Forward: plumbKernel(c.fwd), Format: compare.Float64, Supports: s})
+			})
+		}
+	}
+}
+
+// The float32 instantiation passes its own yardstick (its error is one
+// time the yardstick's, the tolerance two), in float32 and in bfloat16;
+// this checks the suite's wiring of formats, not the kernel.
+func TestYardstickKernel(t *testing.T) {
+	formats, s := []compare.Format{compare.Float32, compare.BFloat16}, everything
+	if testing.Short() {
+		formats, s = formats[:1], light
+	}
+	for _, f := range formats {
+		t.Run(f.String(), func(t *testing.T) {
+			Run(t, Kernel[float32]{Format: f, Supports: s,
+				Forward: func(q, k, v []float32, p Problem) ([]float32, []float32, error) {
+					out, lse, err := reference(p, q, k, v, posenc.Rotary.Apply32, attention.Forward32)
+					for i := range out {
+						out[i] = float32(f.Round(float64(out[i])))
+					}
+					return out, lse, err
+				}})
+		})
+	}
+}
+
+// record runs the suite on a recorder and returns it.
+func record[E float32 | float64](k Kernel[E]) *Recorder {
+	rec := &Recorder{}
+	Run(rec, k)
+	return rec
+}
+
+// A kernel that declares nothing but the defaults runs the cases it can
+// and skips the others, each with a message naming the case and what it
+// needs; no case is dropped without a word.
+func TestSkipsNameWhatIsMissing(t *testing.T) {
+	rec := record(Kernel[float64]{Forward: plumbKernel(attention.Forward), Format: compare.Float64})
+	require.False(t, rec.Failed, rec.Text())
+	var ran, skipped int
+	rec.Walk(func(r *Recorder) {
+		if len(r.Children) > 0 {
+			return
+		}
+		if r.Skipped {
+			skipped++
+			require.Len(t, r.Messages, 1)
+			assert.Contains(t, r.Messages[0], "case "+r.Name[:strings.LastIndex(r.Name, "/")])
+			assert.Contains(t, r.Messages[0], "which the kernel does not declare")
+		} else {
+			ran++
+		}
+	})
+	// Without masks, Lq ≠ Lk or Dv ≠ Dk only two cases remain; the cases
+	// that rotate are posed without rotary, except those about rotary.
+	assert.Equal(t, 2, ran)
+	assert.Equal(t, len(Cases())-2, skipped)
+	assert.False(t, rec.Find("full_square/HeadsMajor").Skipped)
+	assert.Equal(t, "case causal_square/HeadsMajor skipped: it needs mask Causal (Masks), which the kernel does not declare in its Supports",
+		rec.Find("causal_square/HeadsMajor").Messages[0])
+	assert.Contains(t, rec.Find("partial_rotary/HeadsMajor/PairAdjacent").Messages[0], "rotary (Pairings), partial rotary (PartialRotary)")
+	assert.Contains(t, rec.Find("no_keys/HeadsMajor").Messages[0], "Lq ≠ Lk (UnequalLengths)")
+}
+
+// Each slip is a kernel that gets one convention wrong; the suite must
+// fail it, in the cases where the convention shows, with a message naming
+// the case, the conventions and the worst element.
+func TestCatchesSlips(t *testing.T) {
+	slips := []struct {
+		name  string
+		slip  func(p Problem) Problem // what the kernel computes instead
+		fails []string                // variants that must fail
+		pass  []string                // variants that must pass
+	}{
+		{"group map", func(p Problem) Problem { p.Group = 1 - p.Group; return p },
+			[]string{"causal_grouped/HeadsMajor/GroupBlocks/PairAdjacent", "decode_step/SeqMajor/GroupCycle/PairHalves"},
+			[]string{"causal_multi_query/HeadsMajor/PairAdjacent", "causal_square/HeadsMajor/PairAdjacent"}},
+		{"rotary pairing", func(p Problem) Problem {
+			if p.Rotary != nil {
+				r := *p.Rotary
+				r.Pairing = 1 - r.Pairing
+				p.Rotary = &r
+			}
+			return p
+		}, []string{"causal_square/HeadsMajor/PairAdjacent", "realistic_prefill/SeqMajor/GroupBlocks/PairHalves"},
+			[]string{"cross_fewer_queries/HeadsMajor", "one_query_one_key/HeadsMajor/PairHalves"}},
+		{"causal alignment", func(p Problem) Problem { p.Align = 1 - p.Align; return p },
+			[]string{"chunked_prefill/HeadsMajor/PairAdjacent", "align_start/SeqMajor/PairHalves", "decode_step/HeadsMajor/GroupBlocks/PairAdjacent"},
+			[]string{"causal_square/HeadsMajor/PairAdjacent"}},
+		{"window counts one key fewer", func(p Problem) Problem {
+			if p.Mask == SlidingWindow && p.Window > 1 {
+				p.Window--
+			}
+			return p
+		}, []string{"window_edges/HeadsMajor/PairAdjacent", "window_decode/SeqMajor/GroupCycle/PairHalves"},
+			[]string{"window_wider_than_keys/HeadsMajor/PairAdjacent", "causal_square/HeadsMajor/PairAdjacent"}},
+		{"scale 1/Dk", func(p Problem) Problem { p.Scale *= p.Scale; return p },
+			[]string{"full_square/HeadsMajor/PairAdjacent", "realistic_decode/HeadsMajor/GroupBlocks/PairAdjacent"},
+			[]string{"no_keys/HeadsMajor", "no_keys/SeqMajor"}},
+	}
+	if testing.Short() {
+		slips = slips[:2]
+	}
+	for _, s := range slips {
+		t.Run(s.name, func(t *testing.T) {
+			rec := record(Kernel[float64]{Format: compare.Float64, Supports: everything,
+				Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
+					return reference(s.slip(p), q, k, v, posenc.Rotary.Apply, attention.Forward)
+				}})
+			require.True(t, rec.Failed, "the suite passed a kernel with a slip in the %s", s.name)
+			for _, name := range s.fails {
+				r := rec.Find(name)
+				require.NotNil(t, r, name)
+				require.True(t, r.Failed, "%s passed", name)
+				msg := r.Messages[0]
+				caseName := name[:strings.Index(name, "/")]
+				assert.True(t, strings.HasPrefix(msg, "case "+caseName+" ("), msg)
+				assert.Contains(t, msg, "differs from the reference")
+				assert.Contains(t, msg, "worst element [batch, ")
+			}
+			for _, name := range s.pass {
+				r := rec.Find(name)
+				require.NotNil(t, r, name)
+				assert.False(t, r.Failed, "%s failed:\n%s", name, strings.Join(r.Messages, "\n"))
+			}
+		})
+	}
+}
+
+// The case list is what the package doc and the report describe: unique
+// names, a reason each, and valid problems.
+func TestCases(t *testing.T) {
+	seen := map[string]bool{}
+	for _, c := range Cases() {
+		assert.False(t, seen[c.Name], c.Name)
+		seen[c.Name] = true
+		assert.NotEmpty(t, c.Why, c.Name)
+		_, err := c.Problem.Options()
+		assert.NoError(t, err, c.Name)
+		assert.Contains(t, c.Problem.String(), fmt.Sprintf("Lq %d, Lk %d", c.Problem.Shape.Lq, c.Problem.Shape.Lk))
+	}
+}
+
+// The package documentation lists every case, with its reason, in order.
+func TestDocListsEveryCase(t *testing.T) {
+	var names, whys []string
+	for _, c := range Cases() {
+		names, whys = append(names, c.Name), append(whys, c.Why)
+	}
+	missing, err := suite.MissingDocLines("doc.go", names, whys)
+	require.NoError(t, err)
+	assert.Empty(t, missing, "cases missing from the package documentation")
+}
+
+// A kernel without Forward, or with an invalid format, fails at once; a
+// kernel error fails its subtest, quoting it.
+func TestSpecialCases(t *testing.T) {
+	rec := &Recorder{}
+	Run(rec, Kernel[float32]{})
+	assert.Equal(t, []string{"attentiontest: Kernel.Forward is nil"}, rec.Messages)
+	assert.Empty(t, rec.Children)
+
+	rec = &Recorder{}
+	Run(rec, Kernel[float32]{Format: compare.Format(99), Forward: func(q, k, v []float32, p Problem) ([]float32, []float32, error) { return nil, nil, nil }})
+	assert.True(t, rec.Failed)
+	assert.Contains(t, rec.Messages[0], "invalid number format")
+
+	rec = &Recorder{}
+	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
+		return nil, nil, errors.New("out of shared memory")
+	}})
+	m := rec.Find("full_square/HeadsMajor").Messages
+	require.Len(t, m, 1)
+	assert.True(t, strings.HasPrefix(m[0], "case full_square (batch 2, 4 query heads on 4 kv heads, Lq 19, Lk 19"), m[0])
+	assert.True(t, strings.HasSuffix(m[0], "): the kernel returned an error: out of shared memory"), m[0])
+
+	rec = &Recorder{}
+	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
+		return make([]float64, 3), nil, nil
+	}})
+	assert.Contains(t, rec.Find("full_square/HeadsMajor").Messages[0], "output has 3 elements; want 2432, shape [2 4 19 16] [batch, head, query, dim]")
+}

@@ -1,0 +1,100 @@
+// Package attentiontest is a conformance suite for attention kernels: one
+// call, Run(t, kernel), runs a kernel through every case that matters and
+// judges each output against plumb's float64 reference, as testing/fstest
+// does for file systems.
+//
+// A kernel is a function of q, k, v and a Problem (shape, layout, group
+// map, mask, query alignment and offset, scale, soft cap, rotary
+// encoding) with a declaration of what it supports:
+//
+//	func TestAttention(t *testing.T) {
+//		attentiontest.Run(t, attentiontest.Kernel[float32]{
+//			Forward: myKernel,
+//			Supports: attentiontest.Supports{
+//				Layouts:  []attention.Layout{attention.HeadsMajor, attention.SeqMajor},
+//				Groups:   []attention.GroupMap{attention.GroupBlocks},
+//				Pairings: []posenc.Pairing{posenc.PairHalves},
+//				Masks:    []attentiontest.Masking{attentiontest.Causal},
+//				UnequalLengths: true,
+//				LSE:      true,
+//			},
+//		})
+//	}
+//
+// Each case of Cases runs as a subtest under every declared convention
+// (go test -run 'TestAttention/causal_grouped/SeqMajor' picks one); a case
+// that needs what the kernel does not declare is skipped with a message
+// that says what is missing, never silently.
+//
+// # Cases
+//
+// Cases returns them, with the reason each is there; Run runs them in this order:
+//
+//	one_query_one_key        length 1: the softmax of one logit is 1, whatever its value
+//	full_square              plain multi-head attention over every key, lengths that are no power of two
+//	cross_fewer_queries      Lq < Lk without a mask (cross attention)
+//	cross_more_queries       Lq > Lk without a mask
+//	causal_square            the causal prefill
+//	causal_grouped           8 query heads on 2 kv heads: GroupBlocks and GroupCycle read different kv heads
+//	causal_multi_query       4 query heads on one kv head
+//	decode_step              one query at the last key position (mask.AlignEnd), grouped heads
+//	chunked_prefill          16 queries at the last 16 of 50 key positions (mask.AlignEnd)
+//	align_start              query i at key position i (mask.AlignStart): the first rows see few keys
+//	align_start_offset       queries at key positions 9 … 20 of 40 (mask.AlignStart, offset 9)
+//	align_end_offset         a chunk that is not the last: 8 queries at positions 30 … 37 of 48 (mask.AlignEnd, offset −10)
+//	window_edges             a window of 7 keys: the first rows are cut by the start of the sequence
+//	window_one               a window of 1: each query sees only itself
+//	window_wider_than_keys   a window of 64 over 20 keys: the causal mask
+//	window_decode            3 queries at the end of 40 keys, a window of 8
+//	no_keys                  Lk = 0: every row sees no key (the declared EmptyRow; lse −Inf)
+//	padded_keys_empty_rows   key lengths 10, 3 and 0: the last batch entry's rows see no key
+//	logits_near_1000         logits near +1000 and −1000: a kernel that does not subtract the running maximum overflows
+//	value_dim_differs        Dk 32, Dv 8
+//	partial_rotary           the first 16 of 32 dims rotated, frequencies over 16
+//	rotary_base_500000       another base, and positions up to 299
+//	custom_scale             a logit scale other than 1/√Dk
+//	soft_cap                 logits capped at 20·tanh(s/20), with logits of tens
+//	realistic_prefill        8 query heads on 2 kv heads, 128 positions, head dimension 64: several tiles of keys
+//	realistic_decode         one query against 512 cached keys, head dimension 64
+//
+// # What is judged, and how closely
+//
+// The reference is posenc.Rotary.Apply on q (at the query positions) and k
+// (at the key positions), then attention.Forward, in float64. A float32
+// kernel is held to the yardstick (compare.MeasureYardstick): the same
+// computation in float32 arithmetic (posenc.Rotary.Apply32, then
+// attention.Forward32 and, separately, attention.ForwardFast32, which sums
+// in another order) on the same inputs, rounded to the kernel's Format, is
+// measured against the reference on each case, and the kernel may be twice
+// as far (compare.DefaultK) as the larger of the two, plus one rounding to
+// the format. Two summation orders, because one order's largest error on a
+// small tensor is a sample of a few values that another, equally accurate
+// order can exceed twice at one element. The
+// log-sum-exp, when the kernel returns it, is judged the same way in
+// float32. A float64 kernel is held to an explicit 1e-12 normwise and
+// 1e-12·max|reference| per element: a few thousand roundings, room for
+// any summation order, and eleven orders of magnitude below what a
+// convention slip does.
+//
+// A failure message names the case, the problem with every convention,
+// the output (output or log-sum-exp) and its worst element with its index,
+// then compare.Diff's whole report.
+//
+// # Inputs
+//
+// Standard normal unless a case says otherwise, drawn from a PCG generator
+// seeded with the subtest's name (the same inputs on every run and
+// machine), rounded once to the kernel's Format; the reference sees the
+// rounded values.
+//
+// # Watching the suite fail
+//
+// Run takes any TB, of which *testing.T is one. Recorder is another: it
+// records failures and skips instead of failing the calling test, which
+// is how a test shows that the suite catches a kernel with a deliberate
+// slip (see the example under examples/fastattn).
+//
+// Not covered: additive bias, ALiBi slopes, sink logits, packed sequences,
+// prefix masks and the backward pass; the attention package's own tests
+// check those against its golden files.
+package attentiontest

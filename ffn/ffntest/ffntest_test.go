@@ -1,0 +1,204 @@
+package ffntest
+
+import (
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/suite"
+)
+
+var allActs = []ffn.Act{ffn.ActIdentity, ffn.ActReLU, ffn.ActGELU, ffn.ActGELUTanh, ffn.ActGELUSigmoid, ffn.ActSigmoid, ffn.ActSiLU, ffn.ActSwish}
+
+var everything = Supports{
+	Acts: allActs, Plain: true, Gated: true,
+	Layouts:  []ffn.Layout{ffn.InByOut, ffn.OutByIn},
+	Separate: true, Packings: []ffn.Packing{ffn.GateUpStacked, ffn.GateUpInterleaved},
+	Bias: true, Rectangular: true,
+}
+
+func forward64(fwd func([]float64, ffn.Dims, ffn.Weights[float64], ffn.Options) ([]float64, error)) func([]float64, ffn.Weights[float64], Problem) ([]float64, error) {
+	return func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
+		return fwd(x, p.Dims, w, p.Options)
+	}
+}
+
+func backward64(bwd func([]float64, []float64, ffn.Dims, ffn.Weights[float64], ffn.Options) ([]float64, ffn.Weights[float64], error)) func([]float64, []float64, ffn.Weights[float64], Problem) ([]float64, ffn.Weights[float64], error) {
+	return func(x, dy []float64, w ffn.Weights[float64], p Problem) ([]float64, ffn.Weights[float64], error) {
+		return bwd(x, dy, p.Dims, w, p.Options)
+	}
+}
+
+// some declares four activations (one of each kind: piecewise linear,
+// erf, sigmoid, with β) and every storage form: the float32 tests run
+// under it to keep their time modest (the yardsticks round every weight
+// once per output), and so do the float64 ones under -short.
+var some = func() Supports {
+	s := everything
+	s.Acts = []ffn.Act{ffn.ActReLU, ffn.ActGELU, ffn.ActSiLU, ffn.ActSwish}
+	return s
+}()
+
+// few is some with one layout, for the float32 tests under -short.
+var few = func() Supports {
+	s := some
+	s.Layouts = []ffn.Layout{ffn.OutByIn}
+	s.Acts = []ffn.Act{ffn.ActGELU, ffn.ActSwish}
+	return s
+}()
+
+// The float64 reference and its fast (BLAS) form pass every case, forward
+// and backward, under every activation and storage convention.
+func TestReference(t *testing.T) {
+	s := everything
+	if testing.Short() {
+		s = few
+	}
+	t.Run("direct", func(t *testing.T) {
+		Run(t, Kernel[float64]{Format: compare.Float64, Supports: s, Forward: forward64(ffn.Forward), Backward: backward64(ffn.Backward)})
+	})
+	t.Run("fast", func(t *testing.T) {
+		Run(t, Kernel[float64]{Format: compare.Float64, Supports: s, Forward: forward64(ffn.ForwardFast), Backward: backward64(ffn.BackwardFast)})
+	})
+}
+
+// The float32 fast form passes, forward and backward, in float32, and the
+// direct form with its output rounded passes in bfloat16. The fast form
+// is one of the two yardsticks, so this checks the suite's wiring (formats,
+// weight forms, gradients), not the kernel.
+func TestFloat32Kernels(t *testing.T) {
+	s := some
+	backward := func(x, dy []float32, w ffn.Weights[float32], p Problem) ([]float32, ffn.Weights[float32], error) {
+		return ffn.BackwardFast32(x, dy, p.Dims, w, p.Options)
+	}
+	if testing.Short() {
+		s, backward = few, nil // ten yardsticks per subtest are slow under the race detector
+	}
+	Run(t, Kernel[float32]{Supports: s, Backward: backward,
+		Forward: func(x []float32, w ffn.Weights[float32], p Problem) ([]float32, error) {
+			return ffn.ForwardFast32(x, p.Dims, w, p.Options)
+		}})
+	t.Run("bfloat16", func(t *testing.T) {
+		Run(t, Kernel[float32]{Format: compare.BFloat16, Supports: s,
+			Forward: func(x []float32, w ffn.Weights[float32], p Problem) ([]float32, error) {
+				y, err := ffn.Forward32(x, p.Dims, w, p.Options)
+				for i := range y {
+					y[i] = float32(compare.BFloat16.Round(float64(y[i])))
+				}
+				return y, err
+			}})
+	})
+}
+
+func failures[E float32 | float64](k Kernel[E]) (*Recorder, []string) {
+	rec := &Recorder{}
+	Run(rec, k)
+	return rec, rec.Failures()
+}
+
+// Each slip is a float64 kernel with one convention wrong; the suite
+// fails it where it shows, and names case, conventions and worst element.
+func TestCatchesSlips(t *testing.T) {
+	for _, s := range []struct {
+		name          string
+		supports      Supports
+		kernel        func([]float64, ffn.Weights[float64], Problem) ([]float64, error)
+		fails, passes string
+		says          string
+	}{
+		{"tanh GELU for exact GELU",
+			Supports{Acts: []ffn.Act{ffn.ActGELU, ffn.ActReLU}, Gated: true, Plain: true},
+			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
+				o := p.Options
+				if o.Act == ffn.ActGELU {
+					o.Act = ffn.ActGELUTanh
+				}
+				return ffn.Forward(x, p.Dims, w, o)
+			}, "small/gelu/gated/InByOut/separate", "small/relu/plain/InByOut", "gelu gated, InByOut, no biases): y differs from the reference"},
+		{"activation on the value projection",
+			Supports{Acts: []ffn.Act{ffn.ActSiLU}, Gated: true},
+			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
+				w.W1, w.V = w.V, w.W1
+				return ffn.Forward(x, p.Dims, w, p.Options)
+			}, "realistic/silu/gated/InByOut/separate", "", "worst element [row, output]"},
+		{"packing",
+			Supports{Acts: []ffn.Act{ffn.ActSiLU}, Gated: true, Packings: []ffn.Packing{ffn.GateUpStacked, ffn.GateUpInterleaved}},
+			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
+				o := p.Options
+				o.Packing = 3 - o.Packing
+				return ffn.Forward(x, p.Dims, w, o)
+			}, "small/silu/gated/InByOut/GateUpInterleaved", "", "fused GateUpInterleaved"},
+		{"layout",
+			Supports{Acts: []ffn.Act{ffn.ActReLU}, Layouts: []ffn.Layout{ffn.InByOut, ffn.OutByIn}},
+			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
+				o := p.Options
+				o.Layout = ffn.InByOut
+				return ffn.Forward(x, p.Dims, w, o)
+			}, "small/relu/plain/OutByIn", "small/relu/plain/InByOut", "relu plain, OutByIn"},
+	} {
+		t.Run(s.name, func(t *testing.T) {
+			rec, failed := failures(Kernel[float64]{Format: compare.Float64, Supports: s.supports, Forward: s.kernel})
+			require.Contains(t, failed, s.fails)
+			msg := rec.Find(s.fails).Messages[0]
+			assert.True(t, strings.HasPrefix(msg, "case "+s.fails[:strings.Index(s.fails, "/")]+" ("), msg)
+			assert.Contains(t, msg, s.says)
+			if s.passes != "" {
+				assert.NotContains(t, failed, s.passes)
+				assert.NotNil(t, rec.Find(s.passes))
+			}
+		})
+	}
+}
+
+// Undeclared needs are skipped with a message.
+func TestSkips(t *testing.T) {
+	rec, failed := failures(Kernel[float64]{Format: compare.Float64, Forward: forward64(ffn.Forward), Supports: Supports{Acts: []ffn.Act{ffn.ActReLU}}})
+	assert.Empty(t, failed)
+	assert.Equal(t, "case rectangular/relu/plain/InByOut skipped: it needs Out ≠ In (Rectangular), which the kernel does not declare in its Supports",
+		rec.Find("rectangular/relu/plain/InByOut").Messages[0])
+	assert.True(t, rec.Find("biases/relu/plain/InByOut").Skipped)
+	assert.False(t, rec.Find("realistic/relu/plain/InByOut").Skipped)
+}
+
+// The package documentation lists every case, with its reason, in order.
+func TestDocListsEveryCase(t *testing.T) {
+	var names, whys []string
+	for _, c := range Cases() {
+		names, whys = append(names, c.Name), append(whys, c.Why)
+	}
+	missing, err := suite.MissingDocLines("ffntest.go", names, whys)
+	require.NoError(t, err)
+	assert.Empty(t, missing, "cases missing from the package documentation")
+}
+
+// A backward pass that returns the gradient of W₂ as [in, out] when the
+// weights are stored [out, in] fails with a message naming the gradient
+// and the worst element in the stored layout.
+func TestCatchesBackwardSlip(t *testing.T) {
+	k := Kernel[float64]{Format: compare.Float64, Forward: forward64(ffn.Forward),
+		Supports: Supports{Acts: []ffn.Act{ffn.ActReLU}, Layouts: []ffn.Layout{ffn.InByOut, ffn.OutByIn}},
+		Backward: func(x, dy []float64, w ffn.Weights[float64], p Problem) ([]float64, ffn.Weights[float64], error) {
+			dx, g, err := ffn.Backward(x, dy, p.Dims, w, p.Options)
+			if err == nil && p.Options.Layout == ffn.OutByIn { // the slip: dW2 left as [hidden, out]
+				h, o := p.Dims.Hidden, p.Dims.Out
+				t := make([]float64, len(g.W2))
+				for i := 0; i < h; i++ {
+					for j := 0; j < o; j++ {
+						t[i*o+j] = g.W2[j*h+i]
+					}
+				}
+				g.W2 = t
+			}
+			return dx, g, err
+		}}
+	rec, failed := failures(k)
+	assert.Contains(t, failed, "small/relu/plain/OutByIn")
+	assert.NotContains(t, failed, "small/relu/plain/InByOut")
+	msg := rec.Find("small/relu/plain/OutByIn").Messages[0]
+	assert.Contains(t, msg, "dW2 differs from the reference")
+	assert.Contains(t, msg, "worst element [output, hidden]")
+}
