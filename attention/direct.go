@@ -112,9 +112,17 @@ func forward[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 			kv := p.kvHead(h)
 			for i := 0; i < s.Lq; i++ {
 				logitsRow(p, q, k, b, h, i, 0, row, nil)
-				l, _, _ := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
+				l, _, empty := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
 				lse[p.lOff(b, h, i)] = l
 				oi := out[p.oOff(b, h, i):][:s.Dv]
+				if empty && p.emptyNaN {
+					// Also when Lk = 0, where there is no weight to carry
+					// the NaN into the sum below.
+					for d := range oi {
+						oi[d] = T(math.NaN())
+					}
+					continue
+				}
 				for j, pj := range row {
 					if pj == 0 {
 						continue // a key of weight 0 contributes nothing

@@ -242,3 +242,38 @@ func TestGoldenMerge(t *testing.T) {
 	}
 	t.Logf("Merge: worst normwise relative error: out %.3g, lse %.3g", worstO, worstL)
 }
+
+// TestNoKeysUnderEmptyRowNaN: with Lk = 0 every row sees no key, and every
+// form gives the documented EmptyRowNaN output (NaN) and log-sum-exp (−Inf),
+// or 0 under EmptyRowZero.
+func TestNoKeysUnderEmptyRowNaN(t *testing.T) {
+	s := Shape{Batch: 1, HeadsQ: 2, HeadsKV: 1, Lq: 3, Lk: 0, Dk: 4, Dv: 2}
+	q := make([]float64, 2*3*4)
+	for _, policy := range []EmptyRow{EmptyRowNaN, EmptyRowZero} {
+		o := Options{EmptyRow: policy}
+		forms := map[string]func() ([]float64, []float64, error){
+			"Forward":      func() ([]float64, []float64, error) { return Forward(q, nil, nil, s, o) },
+			"ForwardFast":  func() ([]float64, []float64, error) { return ForwardFast(q, nil, nil, s, o) },
+			"ForwardTiled": func() ([]float64, []float64, error) { return ForwardTiled(q, nil, nil, s, 2, o) },
+			"Forward32": func() ([]float64, []float64, error) {
+				out, lse, err := Forward32(to32(q), nil, nil, s, o)
+				return to64(out), to64(lse), err
+			},
+		}
+		for name, f := range forms {
+			out, lse, err := f()
+			require.NoError(t, err, name)
+			require.Len(t, out, 2*3*2, name)
+			for _, v := range out {
+				if policy == EmptyRowNaN {
+					require.True(t, math.IsNaN(v), "%s under %v: output %v, want NaN", name, policy, v)
+				} else {
+					require.Equal(t, 0.0, v, "%s under %v", name, policy)
+				}
+			}
+			for _, l := range lse {
+				require.True(t, math.IsInf(l, -1), "%s: lse %v, want −Inf", name, l)
+			}
+		}
+	}
+}
