@@ -36,6 +36,11 @@
 //	           float64 and float32 runs, and the yardstick of each output
 //	cmd/plumb  the command line: plumb gen, run, diff, check, demo
 //
+// Beside each kernel package a conformance suite (attention/attentiontest,
+// posenc/posenctest, norm/normtest, ffn/ffntest) judges a user's kernel
+// against the reference in every case and convention it declares, with one
+// call: Run(t, kernel). examples/fastattn shows one in use.
+//
 // Every package takes plain []float64 slices, row-major, with an explicit
 // shape and layout, validates its inputs, and returns errors that name the
 // argument and the expected and actual values, matchable with errors.Is
