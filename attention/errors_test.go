@@ -8,6 +8,7 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -64,7 +65,7 @@ func TestErrors(t *testing.T) {
 			}
 			_, _, err := Forward(q, k, v, tc.s, tc.o)
 			check(err)
-			_, _, err = Forward32(to32(q), to32(k), to32(v), tc.s, tc.o)
+			_, _, err = Forward32(num.Convert[float32](q), num.Convert[float32](k), num.Convert[float32](v), tc.s, tc.o)
 			check(err)
 			_, _, err = ForwardTiled(q, k, v, tc.s, 2, tc.o)
 			check(err)
@@ -95,7 +96,7 @@ func TestErrorsBackwardLengths(t *testing.T) {
 	_, err = Backward(q, k, v, make([]float64, 8), make([]float64, 3), s, Options{})
 	assert.ErrorIs(t, err, ErrLength)
 	assert.ErrorContains(t, err, "dLSE has 3 elements; shape [1 2 2] = 4")
-	_, err = Backward32(to32(q), to32(k), to32(v), make([]float32, 8), make([]float32, 5), s, Options{})
+	_, err = Backward32(num.Convert[float32](q), num.Convert[float32](k), num.Convert[float32](v), make([]float32, 8), make([]float32, 5), s, Options{})
 	assert.ErrorIs(t, err, ErrLength)
 }
 

@@ -9,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -255,25 +256,6 @@ func TestGoldenBackward(t *testing.T) {
 	w.log(t, "Backward")
 }
 
-func to32(x []float64) []float32 {
-	if x == nil {
-		return nil
-	}
-	y := make([]float32, len(x))
-	for i, v := range x {
-		y[i] = float32(v)
-	}
-	return y
-}
-
-func to64(x []float32) []float64 {
-	y := make([]float64, len(x))
-	for i, v := range x {
-		y[i] = float64(v)
-	}
-	return y
-}
-
 // skipBigLogits32 skips the cases whose logits are near ±1000 for the
 // float32 instantiation: inputs of magnitude 20 rounded to float32 move a
 // logit of 1000 by about 1e-4, so the float32 result answers a different
@@ -289,10 +271,10 @@ func TestGoldenForward32(t *testing.T) {
 	w := worst{}
 	eachGolden(t, func(t *testing.T, g goldenCall) {
 		skipBigLogits32(t, g)
-		out, lse, err := Forward32(to32(g.q), to32(g.k), to32(g.v), g.s, g.o)
+		out, lse, err := Forward32(num.Convert[float32](g.q), num.Convert[float32](g.k), num.Convert[float32](g.v), g.s, g.o)
 		require.NoError(t, err)
-		w.check(t, g, "out", to64(out), golden32Bound)
-		w.check(t, g, "lse", to64(lse), golden32Bound)
+		w.check(t, g, "out", num.Convert[float64](out), golden32Bound)
+		w.check(t, g, "lse", num.Convert[float64](lse), golden32Bound)
 	})
 	w.log(t, "Forward32")
 }
@@ -301,11 +283,11 @@ func TestGoldenBackward32(t *testing.T) {
 	w := worst{}
 	eachGolden(t, func(t *testing.T, g goldenCall) {
 		skipBigLogits32(t, g)
-		gr, err := Backward32(to32(g.q), to32(g.k), to32(g.v), to32(g.dOut), to32(g.dLSE), g.s, g.o)
+		gr, err := Backward32(num.Convert[float32](g.q), num.Convert[float32](g.k), num.Convert[float32](g.v), num.Convert[float32](g.dOut), num.Convert[float32](g.dLSE), g.s, g.o)
 		require.NoError(t, err)
-		w.check(t, g, "d_q", to64(gr.DQ), golden32Bound)
-		w.check(t, g, "d_k", to64(gr.DK), golden32Bound)
-		w.check(t, g, "d_v", to64(gr.DV), golden32Bound)
+		w.check(t, g, "d_q", num.Convert[float64](gr.DQ), golden32Bound)
+		w.check(t, g, "d_k", num.Convert[float64](gr.DK), golden32Bound)
+		w.check(t, g, "d_v", num.Convert[float64](gr.DV), golden32Bound)
 	})
 	w.log(t, "Backward32")
 }
@@ -355,10 +337,10 @@ func TestGoldenForwardFast32(t *testing.T) {
 	w := worst{}
 	eachGolden(t, func(t *testing.T, g goldenCall) {
 		skipBigLogits32(t, g)
-		out, lse, err := ForwardFast32(to32(g.q), to32(g.k), to32(g.v), g.s, g.o)
+		out, lse, err := ForwardFast32(num.Convert[float32](g.q), num.Convert[float32](g.k), num.Convert[float32](g.v), g.s, g.o)
 		require.NoError(t, err)
-		w.check(t, g, "out", to64(out), golden32Bound)
-		w.check(t, g, "lse", to64(lse), golden32Bound)
+		w.check(t, g, "out", num.Convert[float64](out), golden32Bound)
+		w.check(t, g, "lse", num.Convert[float64](lse), golden32Bound)
 	})
 	w.log(t, "ForwardFast32")
 }

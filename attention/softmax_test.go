@@ -9,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // softmaxBound is the normwise bound against the 50-digit values of
@@ -47,14 +48,14 @@ func TestGoldenSoftmax(t *testing.T) {
 			// 2⁻²⁴·|x| in each logit, so the bound is relative to float32's
 			// unit roundoff times the largest |x| in the case (≤ 10), plus
 			// the arithmetic; 1e-5 covers it with margin.
-			sm32, err := Softmax32(to32(x), cfg.N)
+			sm32, err := Softmax32(num.Convert[float32](x), cfg.N)
 			require.NoError(t, err)
 			wantSm, _, _ := c.Float("softmax")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(sm32), wantSm), 1e-5)
-			lse32, err := LogSumExp32(to32(x), cfg.N)
+			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](sm32), wantSm), 1e-5)
+			lse32, err := LogSumExp32(num.Convert[float32](x), cfg.N)
 			require.NoError(t, err)
 			wantLse, _, _ := c.Float("lse")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(lse32), wantLse), 1e-5)
+			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](lse32), wantLse), 1e-5)
 		})
 	}
 	w.log(t, "Softmax/LogSumExp")

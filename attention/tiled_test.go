@@ -9,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -256,8 +257,8 @@ func TestNoKeysUnderEmptyRowNaN(t *testing.T) {
 			"ForwardFast":  func() ([]float64, []float64, error) { return ForwardFast(q, nil, nil, s, o) },
 			"ForwardTiled": func() ([]float64, []float64, error) { return ForwardTiled(q, nil, nil, s, 2, o) },
 			"Forward32": func() ([]float64, []float64, error) {
-				out, lse, err := Forward32(to32(q), nil, nil, s, o)
-				return to64(out), to64(lse), err
+				out, lse, err := Forward32(num.Convert[float32](q), nil, nil, s, o)
+				return num.Convert[float64](out), num.Convert[float64](lse), err
 			},
 		}
 		for name, f := range forms {

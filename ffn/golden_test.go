@@ -8,6 +8,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // The golden files under testdata/golden/ffn are made by
@@ -237,28 +238,9 @@ func gradsByName[T ~float32 | ~float64](dx []T, g Weights[T]) map[string][]T {
 	return m
 }
 
-func to32(v []float64) []float32 {
-	if v == nil {
-		return nil
-	}
-	out := make([]float32, len(v))
-	for i, x := range v {
-		out[i] = float32(x)
-	}
-	return out
-}
-
-func to64(v []float32) []float64 {
-	out := make([]float64, len(v))
-	for i, x := range v {
-		out[i] = float64(x)
-	}
-	return out
-}
-
 func weights32(w Weights[float64]) Weights[float32] {
-	return Weights[float32]{W1: to32(w.W1), B1: to32(w.B1), V: to32(w.V), C: to32(w.C),
-		Fused: to32(w.Fused), FusedBias: to32(w.FusedBias), W2: to32(w.W2), B2: to32(w.B2)}
+	return Weights[float32]{W1: num.Convert[float32](w.W1), B1: num.Convert[float32](w.B1), V: num.Convert[float32](w.V), C: num.Convert[float32](w.C),
+		Fused: num.Convert[float32](w.Fused), FusedBias: num.Convert[float32](w.FusedBias), W2: num.Convert[float32](w.W2), B2: num.Convert[float32](w.B2)}
 }
 
 func testGoldenLayers(t *testing.T, family string) {
@@ -297,23 +279,23 @@ func testGoldenLayers(t *testing.T, family string) {
 				worst["fast form"] = max(worst["fast form"], e)
 			}
 
-			y32, err := Forward32(to32(g.x), g.d, weights32(g.w), g.o)
+			y32, err := Forward32(num.Convert[float32](g.x), g.d, weights32(g.w), g.o)
 			require.NoError(t, err)
-			dx32, gr32, err := Backward32(to32(g.x), to32(g.dy), g.d, weights32(g.w), g.o)
+			dx32, gr32, err := Backward32(num.Convert[float32](g.x), num.Convert[float32](g.dy), g.d, weights32(g.w), g.o)
 			require.NoError(t, err)
 			got32 := gradsByName(dx32, gr32)
 			got32["y"] = y32
-			yf32, err := ForwardFast32(to32(g.x), g.d, weights32(g.w), g.o)
+			yf32, err := ForwardFast32(num.Convert[float32](g.x), g.d, weights32(g.w), g.o)
 			require.NoError(t, err)
-			dxf32, grf32, err := BackwardFast32(to32(g.x), to32(g.dy), g.d, weights32(g.w), g.o)
+			dxf32, grf32, err := BackwardFast32(num.Convert[float32](g.x), num.Convert[float32](g.dy), g.d, weights32(g.w), g.o)
 			require.NoError(t, err)
 			gotf32 := gradsByName(dxf32, grf32)
 			gotf32["y"] = yf32
 			for name, want := range g.want {
-				e := golden.NormwiseRelErr(to64(got32[name]), want)
+				e := golden.NormwiseRelErr(num.Convert[float64](got32[name]), want)
 				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32)", e, layer32Bound))
 				worst["float32"] = max(worst["float32"], e)
-				e = golden.NormwiseRelErr(to64(gotf32[name]), want)
+				e = golden.NormwiseRelErr(num.Convert[float64](gotf32[name]), want)
 				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32, fast form)", e, layer32Bound))
 				worst["float32 fast form"] = max(worst["float32 fast form"], e)
 			}

@@ -3,6 +3,8 @@ package norm
 import (
 	"math/rand/v2"
 	"testing"
+
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // Benchmarks at a realistic shape: 512 tokens of width 4096 (one sequence
@@ -38,7 +40,7 @@ func BenchmarkLayerNorm(b *testing.B) {
 
 func BenchmarkRMSNorm32(b *testing.B) {
 	x, w, _ := benchInputs()
-	x32, w32 := to32(x), to32(w)
+	x32, w32 := num.Convert[float32](x), num.Convert[float32](w)
 	o := Options{Epsilon: 1e-6}
 	b.SetBytes(int64(4 * len(x)))
 	for b.Loop() {

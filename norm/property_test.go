@@ -10,6 +10,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // layerFn runs the forward of one kind: LayerNorm with bias, or RMSNorm.
@@ -231,18 +232,18 @@ func TestFloat32(t *testing.T) {
 			if o.Placement == EpsilonAddedToRoot {
 				oo.Epsilon = o.Epsilon * scale
 			}
-			x32, w32, b32 := to32(x), to32(w), to32(b)
+			x32, w32, b32 := num.Convert[float32](x), num.Convert[float32](w), num.Convert[float32](b)
 			y, err := RMSNorm(x, d, w, oo)
 			require.NoError(t, err)
 			y32, err := RMSNorm32(x32, d, w32, oo)
 			require.NoError(t, err)
-			e := golden.NormwiseRelErr(to64(y32), y)
+			e := golden.NormwiseRelErr(num.Convert[float64](y32), y)
 			assert.LessOrEqual(t, e, 1e-6, "RMSNorm32 scale %g %v", scale, o.Placement)
 			y, err = LayerNorm(x, d, w, b, oo)
 			require.NoError(t, err)
 			y32, err = LayerNorm32(x32, d, w32, b32, oo)
 			require.NoError(t, err)
-			e = golden.NormwiseRelErr(to64(y32), y)
+			e = golden.NormwiseRelErr(num.Convert[float64](y32), y)
 			assert.LessOrEqual(t, e, 1e-6, "LayerNorm32 scale %g %v", scale, o.Placement)
 
 			dy := uniform(r, d*rows, -1, 1)
@@ -251,36 +252,20 @@ func TestFloat32(t *testing.T) {
 			}
 			g, err := LayerNormBackward(x, d, w, dy, oo)
 			require.NoError(t, err)
-			g32, err := LayerNormBackward32(x32, d, w32, to32(dy), oo)
+			g32, err := LayerNormBackward32(x32, d, w32, num.Convert[float32](dy), oo)
 			require.NoError(t, err)
-			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.X), g.X), 1e-6, "LayerNormBackward32 dx")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.Weight), g.Weight), 1e-6, "LayerNormBackward32 dw")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.Bias), g.Bias), 1e-6, "LayerNormBackward32 db")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.X), g.X), 1e-6, "LayerNormBackward32 dx")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.Weight), g.Weight), 1e-6, "LayerNormBackward32 dw")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.Bias), g.Bias), 1e-6, "LayerNormBackward32 db")
 			g, err = RMSNormBackward(x, d, w, dy, oo)
 			require.NoError(t, err)
-			g32, err = RMSNormBackward32(x32, d, w32, to32(dy), oo)
+			g32, err = RMSNormBackward32(x32, d, w32, num.Convert[float32](dy), oo)
 			require.NoError(t, err)
-			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.X), g.X), 1e-6, "RMSNormBackward32 dx")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(to64(g32.Weight), g.Weight), 1e-6, "RMSNormBackward32 dw")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.X), g.X), 1e-6, "RMSNormBackward32 dx")
+			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.Weight), g.Weight), 1e-6, "RMSNormBackward32 dw")
 			assert.Nil(t, g32.Bias)
 		}
 	}
-}
-
-func to32(v []float64) []float32 {
-	out := make([]float32, len(v))
-	for i, x := range v {
-		out[i] = float32(x)
-	}
-	return out
-}
-
-func to64(v []float32) []float64 {
-	out := make([]float64, len(v))
-	for i, x := range v {
-		out[i] = float64(x)
-	}
-	return out
 }
 
 // TestRandomShapes: for random shapes and values (fixed seed), every

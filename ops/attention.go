@@ -6,6 +6,7 @@ import (
 	"fmt"
 
 	"github.com/plumbref/plumb/attention"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -271,11 +272,11 @@ func init() {
 			}
 			var out, lse []float64
 			if single {
-				o32, l32, err := attention.Forward32(to32(in.data("q")), to32(in.data("k")), to32(in.data("v")), s, o)
+				o32, l32, err := attention.Forward32(num.Convert[float32](in.data("q")), num.Convert[float32](in.data("k")), num.Convert[float32](in.data("v")), s, o)
 				if err != nil {
 					return nil, err
 				}
-				out, lse = widen(o32), widen(l32)
+				out, lse = num.Convert[float64](o32), num.Convert[float64](l32)
 			} else if out, lse, err = attention.Forward(in.data("q"), in.data("k"), in.data("v"), s, o); err != nil {
 				return nil, err
 			}
@@ -314,11 +315,11 @@ func init() {
 			}
 			var g attention.Grads
 			if single {
-				g32, err := attention.Backward32(to32(in.data("q")), to32(in.data("k")), to32(in.data("v")), to32(in.data("dout")), to32(in.data("dlse")), s, o)
+				g32, err := attention.Backward32(num.Convert[float32](in.data("q")), num.Convert[float32](in.data("k")), num.Convert[float32](in.data("v")), num.Convert[float32](in.data("dout")), num.Convert[float32](in.data("dlse")), s, o)
 				if err != nil {
 					return nil, err
 				}
-				g = attention.Grads{DQ: widen(g32.DQ), DK: widen(g32.DK), DV: widen(g32.DV), DSinks: widen(g32.DSinks), DBias: widen(g32.DBias)}
+				g = attention.Grads{DQ: num.Convert[float64](g32.DQ), DK: num.Convert[float64](g32.DK), DV: num.Convert[float64](g32.DV), DSinks: num.Convert[float64](g32.DSinks), DBias: num.Convert[float64](g32.DBias)}
 			} else if g, err = attention.Backward(in.data("q"), in.data("k"), in.data("v"), in.data("dout"), in.data("dlse"), s, o); err != nil {
 				return nil, err
 			}

@@ -4,6 +4,7 @@ import (
 	"fmt"
 
 	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 type activationConfig struct {
@@ -146,8 +147,8 @@ func init() {
 			var y []float64
 			if single {
 				var y32 []float32
-				y32, err = ffn.Activate32(to32(in.data("x")), a, c.Beta)
-				y = widen(y32)
+				y32, err = ffn.Activate32(num.Convert[float32](in.data("x")), a, c.Beta)
+				y = num.Convert[float64](y32)
 			} else {
 				y, err = ffn.Activate(in.data("x"), a, c.Beta)
 			}
@@ -175,8 +176,8 @@ func init() {
 			var dx []float64
 			if single {
 				var d32 []float32
-				d32, err = ffn.ActivateGrad32(to32(in.data("x")), to32(in.data("dy")), a, c.Beta)
-				dx = widen(d32)
+				d32, err = ffn.ActivateGrad32(num.Convert[float32](in.data("x")), num.Convert[float32](in.data("dy")), a, c.Beta)
+				dx = num.Convert[float64](d32)
 			} else {
 				dx, err = ffn.ActivateGrad(in.data("x"), in.data("dy"), a, c.Beta)
 			}
@@ -201,8 +202,8 @@ func init() {
 			var y []float64
 			if single {
 				var y32 []float32
-				y32, err = ffn.Forward32(to32(in.data("x")), d, ffnWeights(in, to32), o)
-				y = widen(y32)
+				y32, err = ffn.Forward32(num.Convert[float32](in.data("x")), d, ffnWeights(in, num.Convert[float32, float64]), o)
+				y = num.Convert[float64](y32)
 			} else {
 				y, err = ffn.Forward(in.data("x"), d, ffnWeights(in, same), o)
 			}
@@ -233,10 +234,10 @@ func init() {
 			if single {
 				var dx32 []float32
 				var g32 ffn.Weights[float32]
-				dx32, g32, err = ffn.Backward32(to32(in.data("x")), to32(in.data("dy")), d, ffnWeights(in, to32), o)
-				dx = widen(dx32)
-				g = ffn.Weights[float64]{W1: widen(g32.W1), B1: widen(g32.B1), V: widen(g32.V), C: widen(g32.C),
-					Fused: widen(g32.Fused), FusedBias: widen(g32.FusedBias), W2: widen(g32.W2), B2: widen(g32.B2)}
+				dx32, g32, err = ffn.Backward32(num.Convert[float32](in.data("x")), num.Convert[float32](in.data("dy")), d, ffnWeights(in, num.Convert[float32, float64]), o)
+				dx = num.Convert[float64](dx32)
+				g = ffn.Weights[float64]{W1: num.Convert[float64](g32.W1), B1: num.Convert[float64](g32.B1), V: num.Convert[float64](g32.V), C: num.Convert[float64](g32.C),
+					Fused: num.Convert[float64](g32.Fused), FusedBias: num.Convert[float64](g32.FusedBias), W2: num.Convert[float64](g32.W2), B2: num.Convert[float64](g32.B2)}
 			} else {
 				dx, g, err = ffn.Backward(in.data("x"), in.data("dy"), d, ffnWeights(in, same), o)
 			}

@@ -1,6 +1,7 @@
 package ops
 
 import (
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/norm"
 )
 
@@ -75,8 +76,8 @@ func init() {
 			var y []float64
 			if single {
 				var y32 []float32
-				y32, err = norm.LayerNorm32(to32(in.data("x")), d, to32(in.data("weight")), to32(in.data("bias")), o)
-				y = widen(y32)
+				y32, err = norm.LayerNorm32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), num.Convert[float32](in.data("bias")), o)
+				y = num.Convert[float64](y32)
 			} else {
 				y, err = norm.LayerNorm(in.data("x"), d, in.data("weight"), in.data("bias"), o)
 			}
@@ -105,8 +106,8 @@ func init() {
 			var g norm.Grads
 			if single {
 				var g32 norm.Grads32
-				g32, err = norm.LayerNormBackward32(to32(in.data("x")), d, to32(in.data("weight")), to32(in.data("dy")), o)
-				g = norm.Grads{X: widen(g32.X), Weight: widen(g32.Weight), Bias: widen(g32.Bias)}
+				g32, err = norm.LayerNormBackward32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), num.Convert[float32](in.data("dy")), o)
+				g = norm.Grads{X: num.Convert[float64](g32.X), Weight: num.Convert[float64](g32.Weight), Bias: num.Convert[float64](g32.Bias)}
 			} else {
 				g, err = norm.LayerNormBackward(in.data("x"), d, in.data("weight"), in.data("dy"), o)
 			}
@@ -135,8 +136,8 @@ func init() {
 			var y []float64
 			if single {
 				var y32 []float32
-				y32, err = norm.RMSNorm32(to32(in.data("x")), d, to32(in.data("weight")), o)
-				y = widen(y32)
+				y32, err = norm.RMSNorm32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), o)
+				y = num.Convert[float64](y32)
 			} else {
 				y, err = norm.RMSNorm(in.data("x"), d, in.data("weight"), o)
 			}
@@ -164,8 +165,8 @@ func init() {
 			var g norm.Grads
 			if single {
 				var g32 norm.Grads32
-				g32, err = norm.RMSNormBackward32(to32(in.data("x")), d, to32(in.data("weight")), to32(in.data("dy")), o)
-				g = norm.Grads{X: widen(g32.X), Weight: widen(g32.Weight)}
+				g32, err = norm.RMSNormBackward32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), num.Convert[float32](in.data("dy")), o)
+				g = norm.Grads{X: num.Convert[float64](g32.X), Weight: num.Convert[float64](g32.Weight)}
 			} else {
 				g, err = norm.RMSNormBackward(in.data("x"), d, in.data("weight"), in.data("dy"), o)
 			}

@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // ConfigVersion is the version of the configuration schema this package
@@ -215,7 +216,7 @@ func Yardstick(name string, config []byte, in Tensors, f compare.Format, k float
 					return nil, err
 				}
 			}
-			return to32(low[out].Data), nil
+			return num.Convert[float32](low[out].Data), nil
 		}
 	}
 	ys := map[string]*compare.Yardstick{}
@@ -329,28 +330,9 @@ func checkInputs(name string, ports []Port, in Tensors) error {
 func round32(in Tensors) Tensors {
 	out := make(Tensors, len(in))
 	for n, t := range in {
-		out[n] = Tensor{Shape: t.Shape, Data: compare.Widen(to32(t.Data))}
+		out[n] = Tensor{Shape: t.Shape, Data: compare.Widen(num.Convert[float32](t.Data))}
 	}
 	return out
-}
-
-func to32(x []float64) []float32 {
-	if x == nil {
-		return nil
-	}
-	y := make([]float32, len(x))
-	for i, v := range x {
-		y[i] = float32(v)
-	}
-	return y
-}
-
-// widen is compare.Widen keeping nil as nil.
-func widen(x []float32) []float64 {
-	if x == nil {
-		return nil
-	}
-	return compare.Widen(x)
 }
 
 // rank checks that input n has the given number of dimensions, described

@@ -3,6 +3,7 @@ package ops
 import (
 	"fmt"
 
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/posenc"
 )
@@ -148,12 +149,12 @@ func init() {
 			switch {
 			case single && c.Inverse:
 				var y32 []float32
-				y32, err = r.ApplyInverse32(to32(in.data("x")), L, pos)
-				y = widen(y32)
+				y32, err = r.ApplyInverse32(num.Convert[float32](in.data("x")), L, pos)
+				y = num.Convert[float64](y32)
 			case single:
 				var y32 []float32
-				y32, err = r.Apply32(to32(in.data("x")), L, pos)
-				y = widen(y32)
+				y32, err = r.Apply32(num.Convert[float32](in.data("x")), L, pos)
+				y = num.Convert[float64](y32)
 			case c.Inverse:
 				y, err = r.ApplyInverse(in.data("x"), L, pos)
 			default:
@@ -274,8 +275,8 @@ func init() {
 			var b []float64
 			if single {
 				var b32 []float32
-				b32, err = posenc.ALiBiBias32(to32(in.data("slopes")), g, f)
-				b = widen(b32)
+				b32, err = posenc.ALiBiBias32(num.Convert[float32](in.data("slopes")), g, f)
+				b = num.Convert[float64](b32)
 			} else {
 				b, err = posenc.ALiBiBias(in.data("slopes"), g, f)
 			}

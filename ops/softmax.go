@@ -2,6 +2,7 @@ package ops
 
 import (
 	"github.com/plumbref/plumb/attention"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 type rowsConfig struct {
@@ -25,8 +26,8 @@ func init() {
 			var y []float64
 			if single {
 				var y32 []float32
-				y32, err = attention.Softmax32(to32(in.data("x")), n)
-				y = widen(y32)
+				y32, err = attention.Softmax32(num.Convert[float32](in.data("x")), n)
+				y = num.Convert[float64](y32)
 			} else {
 				y, err = attention.Softmax(in.data("x"), n)
 			}
@@ -50,8 +51,8 @@ func init() {
 			var l []float64
 			if single {
 				var l32 []float32
-				l32, err = attention.LogSumExp32(to32(in.data("x")), n)
-				l = widen(l32)
+				l32, err = attention.LogSumExp32(num.Convert[float32](in.data("x")), n)
+				l = num.Convert[float64](l32)
 			} else {
 				l, err = attention.LogSumExp(in.data("x"), n)
 			}
