@@ -39,7 +39,9 @@
 // Beside each kernel package a conformance suite (attention/attentiontest,
 // posenc/posenctest, norm/normtest, ffn/ffntest) judges a user's kernel
 // against the reference in every case and convention it declares, with one
-// call: Run(t, kernel). examples/fastattn shows one in use.
+// call: Run(t, kernel). Package conformance holds what they run on: the
+// part of *testing.T they use, and a Recorder that stands in for it to
+// watch a suite fail. examples/fastattn shows one in use.
 //
 // Every package takes plain []float64 slices, row-major, with an explicit
 // shape and layout, validates its inputs, and returns errors that name the
@@ -51,35 +53,87 @@
 // # Conventions
 //
 // The bugs that cost kernel engineers the most are convention mismatches.
-// plumb makes each one an explicit, named option:
+// plumb makes each one an explicit, named option: a Go type whose values
+// are the choices, each with one word used in configurations, golden files,
+// help and messages alike (ops.Conventions lists them; so does
+// plumb help conventions). Generated from the types:
 //
-//	question                                     options
-//	tensor layout                                HeadsMajor (batch, heads, seq, dim);
-//	                                             SeqMajor (batch, seq, heads, dim)
-//	which kv head a query head uses              GroupBlocks: kv = h / (Hq/Hkv);
-//	                                             GroupCycle: kv = h mod Hkv
-//	causal alignment when Lq ≠ Lk                AlignEnd: the last query sees the last key;
-//	                                             AlignStart: query i is key position i;
-//	                                             plus an explicit query position offset
-//	band and sliding window                      Band(before, after): −before ≤ j − p ≤ after;
-//	                                             Window(n): the n keys ending at the query,
-//	                                             p − n < j ≤ p
-//	a row that sees no key                       EmptyRowZero (output 0, log-sum-exp −Inf);
-//	                                             EmptyRowNaN (what a naive softmax gives)
-//	rotary pairing                               PairAdjacent: dims (2i, 2i+1);
-//	                                             PairHalves: dims (i, i + r/2), r rotated dims
-//	rotary context scaling                       Interpolation; NTKAware; YaRN (RampRatio or
-//	                                             RampDims); PerFrequency; dynamic via CurrentLength
-//	ALiBi bias                                   ALiBiCausal; ALiBiSymmetric
-//	sinusoidal layout                            Interleaved; Concatenated
-//	norm epsilon                                 EpsilonInRoot: √(s² + ε); EpsilonAddedToRoot: √s² + ε
-//	norm weight                                  WeightAsIs: w; WeightOnePlus: 1 + w
-//	GELU                                         ActGELU (erf); ActGELUTanh; ActGELUSigmoid
-//	weight matrix layout                         InByOut: [in, out], y = x·W;
-//	                                             OutByIn: [out, in], y = x·Wᵀ
-//	fused gate and value weight                  GateUpStacked: all gate units, then all value
-//	                                             units; GateUpInterleaved: alternating
-//	mask fill                                    −Inf (Bias), or a finite value (BiasFill)
+//	convention and its words (the first is the default)   meaning
+//	attention.EmptyRow: what a query row that sees no key produces
+//	  zero            output 0 and log-sum-exp −Inf, as a tiled online softmax gives
+//	  nan             output NaN, as a naive softmax over logits that are all −Inf gives
+//	attention.GroupMap: which key/value head each query head reads
+//	  blocks          consecutive query heads share a kv head: kv(h) = h / (heads_q / heads_kv)
+//	  cycle           query head h reads kv head h mod heads_kv
+//	attention.Layout: the memory order of q, k, v, the output and the gradients
+//	  heads-major     [batch, heads, positions, dim]: each head's rows are contiguous
+//	  seq-major       [batch, positions, heads, dim]: the heads of one position are contiguous
+//	compare.Format: the binary floating-point format a candidate is stored in
+//	  float64         IEEE 754 binary64: 53 significand bits
+//	  float32         IEEE 754 binary32: 24 significand bits
+//	  binary16        IEEE 754 binary16 (half): 11 significand bits, 5 exponent bits
+//	  bfloat16        binary32 with the low 16 fraction bits dropped: 8 significand bits
+//	  e4m3            OCP 8-bit E4M3: 4 significand bits, no infinities, max 448
+//	  e5m2            OCP 8-bit E5M2: 3 significand bits, IEEE-style infinities, max 57344
+//	ffn.Act: the activation function φ
+//	  relu            max(x, 0)
+//	  gelu            x·Φ(x), Φ the normal distribution function (exact, through erf)
+//	  gelu-tanh       the tanh approximation x/2·(1 + tanh(√(2/π)·(x + 0.044715x³)))
+//	  gelu-sigmoid    the sigmoid approximation x·σ(1.702x)
+//	  sigmoid         σ(x) = 1/(1 + e^(−x))
+//	  silu            x·σ(x), Swish with β = 1
+//	  swish           x·σ(βx) with the given β
+//	  identity        φ(x) = x
+//	ffn.Layout: how a weight matrix is stored
+//	  in-by-out       [in, out] row-major, y = x·W, as the papers write it
+//	  out-by-in       [out, in] row-major, one row per output unit, y = x·Wᵀ
+//	ffn.Packing: how one fused matrix holds the gate and value projections
+//	  stacked         all gate units, then all value units
+//	  interleaved     gate and value units alternate: gate j is unit 2j, value j unit 2j + 1
+//	mask.ALiBiForm: which key distance ALiBi penalises
+//	  causal          −m·(p − j) for every key, the paper's formula; keys after the query get a positive bias
+//	  symmetric       −m·|p − j|: distance penalised both ways
+//	  past-only       −m·(p − j) for keys up to the query, 0 for keys after it
+//	mask.Align: where query i sits among the keys when there are fewer queries than keys
+//	  end             the last query sits at the last key: position Lk − Lq + i (+ offset)
+//	  start           query i sits at key position i (+ offset)
+//	mask.Block: what a query sees inside its own packed sequence
+//	  causal          keys of the query's own sequence up to the query
+//	  full            every key of the query's own sequence
+//	mask.Kind: which keys each query may see
+//	  full            every key
+//	  causal          keys up to the query's own position
+//	  band            keys j with −before ≤ j − p ≤ after, either side possibly unbounded
+//	  window          the n keys ending at the query, the query included
+//	  prefix          keys below a prefix length to every query, causal after it
+//	  key-padding     the first valid[b] keys of batch entry b
+//	  packed          keys of the query's own packed sequence, causal or full inside it
+//	norm.EpsilonPlacement: where epsilon enters the denominator
+//	  in-root         divide by √(s² + ε)
+//	  added-to-root   divide by √s² + ε
+//	norm.WeightForm: how the stored weight w becomes the gain γ
+//	  as-is           γ = w: a weight of ones is the identity
+//	  one-plus        γ = 1 + w: a weight of zeros is the identity
+//	posenc.Layout: the order of the sine and cosine columns of a sinusoidal table
+//	  interleaved     sin and cos of each frequency side by side: sin, cos, sin, cos, …
+//	  concatenated    all sines first, then all cosines
+//	posenc.Method: how rotary frequencies change for a context longer than the trained one
+//	  none            the frequencies as they are
+//	  interpolation   position interpolation: every frequency divided by s
+//	  ntk-aware       the base raised to b·s^(r/(r−2)): the lowest frequency divided by s, the highest kept
+//	  yarn            NTK-by-parts: low frequencies divided by s, high ones kept, a ramp between
+//	  per-frequency   frequency i divided by a factor f_i the caller gives
+//	posenc.Pairing: which two dims of a head one rotary frequency rotates
+//	  adjacent        frequency i rotates dims (2i, 2i+1), as in the paper
+//	  halves          frequency i rotates dims (i, i + r/2): the rotated dims split in two halves
+//	posenc.Ramp: how YaRN goes from keeping to interpolating across the frequencies
+//	  ratio           linear in the ratio of the trained length to the wavelength, as the paper defines it
+//	  dims            linear in the dimension index between rounded bounds, as the authors’ published code computes it
+//
+// Numbers are options too: the logit scale, the query position offset,
+// band edges and window sizes, the rotary base and rotated dims, the norm
+// epsilon, and the fill of an additive mask (−Inf in mask.Bias, a finite
+// value in mask.BiasFill).
 //
 // # Accuracy
 //

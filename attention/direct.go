@@ -47,10 +47,7 @@ func finishLogit[T num.Float](p *plan, t T, b, h, i, j, at int, sech2 []T) T {
 		t += T(p.bias[r+j])
 	}
 	if p.slopes != nil {
-		d := p.geom.Pos(i) - j
-		if p.symmetric && d < 0 {
-			d = -d
-		}
+		d := p.alibi.Distance(p.geom.Pos(i), j)
 		t -= T(T(p.slopes[h]) * T(d))
 	}
 	return t
@@ -229,7 +226,7 @@ func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 						continue
 					}
 					// dS_ij = P_ij (dP_ij − D_i + dLSE_i).
-					ds := pj * (((dp[j] - c) - dsum) + gl)
+					ds := T(pj * (((dp[j] - c) - dsum) + gl)) // rounded: not fused into the dbias sum
 					if br >= 0 {
 						g.dbias[br+j] += ds
 					}

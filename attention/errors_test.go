@@ -37,9 +37,10 @@ func TestErrors(t *testing.T) {
 		{"scale Inf", good, Options{Scale: math.Inf(1)}, 0, 0, ErrOption, "Scale = +Inf"},
 		{"cap negative", good, Options{SoftCap: -30}, 0, 0, ErrOption, "SoftCap = -30"},
 		{"cap NaN", good, Options{SoftCap: nan}, 0, 0, ErrOption, "SoftCap = NaN"},
-		{"layout", good, Options{Layout: 7}, 0, 0, ErrOption, "Layout = 7"},
-		{"group", good, Options{Group: 2}, 0, 0, ErrOption, "Group = 2"},
-		{"empty row policy", good, Options{EmptyRow: 3}, 0, 0, ErrOption, "EmptyRow = 3"},
+		{"layout", good, Options{Layout: 7}, 0, 0, ErrOption, "attention: invalid option: layout = 7; want one of heads-major, seq-major"},
+		{"group", good, Options{Group: 2}, 0, 0, ErrOption, "attention: invalid option: group map = 2; want one of blocks, cycle"},
+		{"empty row policy", good, Options{EmptyRow: 3}, 0, 0, ErrOption, "attention: invalid option: empty-row policy = 3; want one of zero, nan"},
+		{"ALiBi form", good, Options{Slopes: []float64{1, 1, 1, 1}, ALiBi: 3}, 0, 0, mask.ErrALiBi, "ALiBi form = 3; want one of causal, symmetric, past-only"},
 		{"bias heads", good, Options{Bias: make([]float64, 2*2*15), BiasBatch: 2, BiasHeads: 2}, 0, 0, ErrBias, "BiasHeads = 2; want 1 or HeadsQ = 4"},
 		{"bias batch", good, Options{Bias: make([]float64, 3*15), BiasBatch: 3, BiasHeads: 1}, 0, 0, ErrBias, "BiasBatch = 3; want 1 or Batch = 2"},
 		{"bias length", good, Options{Bias: make([]float64, 14), BiasBatch: 1, BiasHeads: 1}, 0, 0, ErrBias, "Bias has 14 elements; shape [1 1 3 5] = 15"},
@@ -85,6 +86,20 @@ func TestErrorsMaskWrapsBoth(t *testing.T) {
 	_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Mask: pad})
 	assert.ErrorIs(t, err, ErrMask)
 	assert.ErrorIs(t, err, mask.ErrValidLength)
+}
+
+// TestErrorsALiBiForm: a form that is none of mask.ALiBiForm's words is an
+// option error of this package that wraps the mask package's sentinel too.
+func TestErrorsALiBiForm(t *testing.T) {
+	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 2, Lk: 3, Dk: 1, Dv: 1}
+	_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Slopes: []float64{0.5}, ALiBi: 9})
+	assert.ErrorIs(t, err, ErrOption)
+	assert.ErrorIs(t, err, mask.ErrALiBi)
+	assert.ErrorContains(t, err, "ALiBi form = 9; want one of causal, symmetric, past-only")
+	for _, f := range mask.ALiBiCausal.Values() {
+		_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Slopes: []float64{0.5}, ALiBi: f})
+		assert.NoError(t, err, "%v", f)
+	}
 }
 
 func TestErrorsBackwardLengths(t *testing.T) {
@@ -142,6 +157,7 @@ func FuzzForward(f *testing.F) {
 			for i := range o.Slopes {
 				o.Slopes[i] = 0.5
 			}
+			o.ALiBi = mask.ALiBiForm(uint16(extra) % 4) // 3 is no form
 		}
 		if flags&32 != 0 {
 			o.Sinks = make([]float64, n)

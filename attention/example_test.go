@@ -71,8 +71,8 @@ func ExampleForward_grouped() {
 		fmt.Println(g, out)
 	}
 	// Output:
-	// GroupBlocks [100 100 200 200]
-	// GroupCycle [100 200 100 200]
+	// blocks [100 100 200 200]
+	// cycle [100 200 100 200]
 }
 
 // The gradient of L = Σ dOut·O. With one key the weight is 1 whatever the

@@ -6,10 +6,6 @@ import (
 	"sync"
 	"sync/atomic"
 
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/blas32"
-	"gonum.org/v1/gonum/blas/blas64"
-
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -21,48 +17,9 @@ import (
 // rowBlock·Lk values.
 const rowBlock = 64
 
-// tileRows × tileCols is the largest tile of C that gonum's Dgemm computes
-// without starting goroutines of its own (it does so from 4 blocks of
-// 64×64 up). The fast form is already parallel over independent tasks, and
-// nested parallelism only adds scheduling and cache contention.
-const (
-	tileRows = 64
-	tileCols = 3 * 64
-)
-
-// gemm is C = alpha·op(A)·op(B) + beta·C through the blas64 or blas32
-// implementation (gonum's own unless the program installed another), one
-// tile of C at a time so that each call takes gonum's serial path. The
-// tiling is fixed by the sizes alone, so every element of C is the same sum
-// whatever GOMAXPROCS is.
-func gemm[T num.Float](tA, tB blas.Transpose, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	for i := 0; i < m; i += tileRows {
-		var ai []T
-		if tA == blas.Trans {
-			ai = a[i:] // row i of op(A) = column i of A
-		} else {
-			ai = a[i*lda:]
-		}
-		for j := 0; j < n; j += tileCols {
-			var bj []T
-			if tB == blas.Trans {
-				bj = b[j*ldb:] // column j of op(B) = row j of B
-			} else {
-				bj = b[j:]
-			}
-			gemm1(tA, tB, min(tileRows, m-i), min(tileCols, n-j), k, alpha, ai, lda, bj, ldb, beta, c[i*ldc+j:], ldc)
-		}
-	}
-}
-
-func gemm1[T num.Float](tA, tB blas.Transpose, m, n, k int, alpha T, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	switch a := any(a).(type) {
-	case []float64:
-		blas64.Implementation().Dgemm(tA, tB, m, n, k, float64(alpha), a, lda, any(b).([]float64), ldb, float64(beta), any(c).([]float64), ldc)
-	case []float32:
-		blas32.Implementation().Sgemm(tA, tB, m, n, k, float32(alpha), a, lda, any(b).([]float32), ldb, float32(beta), any(c).([]float32), ldc)
-	}
-}
+// The products go through num.GemmTiled: the fast form is already
+// parallel over independent tasks, and nested parallelism inside the BLAS
+// only adds scheduling and cache contention.
 
 // parallel runs task(w, t) for t = 0 … n−1 on up to workers goroutines; w
 // is the worker's index, for its own scratch space. Which worker runs which
@@ -257,14 +214,14 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 		rl := bufs[w][rowBlock*s.Lk:][:rows]
 		ps := bufs[w][rowBlock*s.Lk+rowBlock:][:rows]
 		if n > 0 {
-			gemm(blas.NoTrans, blas.Trans, rows, n, s.Dk, T(p.scale), q[p.qOff(b, h, i0):], qs, k[p.kOff(b, kv, lo):], ks, 0, sc, n)
+			num.GemmTiled(false, true, rows, n, s.Dk, T(p.scale), q[p.qOff(b, h, i0):], qs, k[p.kOff(b, kv, lo):], ks, 0, sc, n)
 		}
 		anyEmpty := blockProbs(p, sc, nil, b, h, i0, rows, lo, n, rl, ps)
 		for r := range rows {
 			lse[p.lOff(b, h, i0+r)] = rl[r]
 		}
 		if n > 0 {
-			gemm(blas.NoTrans, blas.NoTrans, rows, s.Dv, n, 1, sc, n, v[p.vOff(b, kv, lo):], vs, 0, out[p.oOff(b, h, i0):], os)
+			num.GemmTiled(false, false, rows, s.Dv, n, 1, sc, n, v[p.vOff(b, kv, lo):], vs, 0, out[p.oOff(b, h, i0):], os)
 		}
 		if anyEmpty || n == 0 {
 			fixEmpty(p, out, lse, b, h, i0, rows)
@@ -313,120 +270,13 @@ func backwardFast[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 	if p.bias != nil && ((!p.biasB && s.Batch > 1) || (!p.biasH && s.HeadsKV > 1)) {
 		workers = 1
 	}
-	type scratch struct{ sc, dp, sech2, rl, ps []T }
-	bufs := make([]*scratch, min(workers, max(1, ntask)))
-	group := s.HeadsQ / s.HeadsKV
-	qs, ks, vs, os := stride(p.layout, s.HeadsQ, s.Dk), stride(p.layout, s.HeadsKV, s.Dk), stride(p.layout, s.HeadsKV, s.Dv), stride(p.layout, s.HeadsQ, s.Dv)
-	scale := T(p.scale)
-	negInf := T(math.Inf(-1))
+	bufs := make([]*bwdScratch[T], min(workers, max(1, ntask)))
 	parallel(ntask, workers, func(w, t int) {
-		b, kv := t/s.HeadsKV, t%s.HeadsKV
 		if bufs[w] == nil {
-			sb := &scratch{sc: make([]T, rowBlock*s.Lk), dp: make([]T, rowBlock*s.Lk), rl: make([]T, rowBlock), ps: make([]T, rowBlock)}
-			if p.softCap > 0 {
-				sb.sech2 = make([]T, rowBlock*s.Lk)
-			}
-			bufs[w] = sb
+			bufs[w] = newBwdScratch[T](p)
 		}
-		sb := bufs[w]
-		nanHead := false
-		for gi := range group {
-			h := kv*group + gi
-			if p.group == GroupCycle {
-				h = gi*s.HeadsKV + kv
-			}
-			for i0 := 0; i0 < s.Lq; i0 += rowBlock {
-				rows := min(rowBlock, s.Lq-i0)
-				lo, hi := p.keyRange(b, i0, i0+rows)
-				n := hi - lo
-				sc, dp := sb.sc[:rows*n], sb.dp[:rows*n]
-				var sech2 []T
-				if sb.sech2 != nil {
-					sech2 = sb.sech2[:rows*n]
-				}
-				qb, dob := q[p.qOff(b, h, i0):], dout[p.oOff(b, h, i0):]
-				var kb, vb []T
-				if n > 0 {
-					kb, vb = k[p.kOff(b, kv, lo):], v[p.vOff(b, kv, lo):]
-					gemm(blas.NoTrans, blas.Trans, rows, n, s.Dk, scale, qb, qs, kb, ks, 0, sc, n)
-					gemm(blas.NoTrans, blas.Trans, rows, n, s.Dv, 1, dob, os, vb, vs, 0, dp, n)
-				}
-				blockProbs(p, sc, sech2, b, h, i0, rows, lo, n, sb.rl, sb.ps)
-				for r := range rows {
-					i := i0 + r
-					pr, dr := sc[r*n:][:n], dp[r*n:][:n]
-					if sb.rl[r] == negInf {
-						if p.emptyNaN {
-							nanHead = true
-							dqi := g.dq[p.qOff(b, h, i):][:s.Dk]
-							for d := range dqi {
-								dqi[d] = T(math.NaN())
-							}
-							if g.dsinks != nil {
-								sinkPart[b*s.HeadsQ+h] = T(math.NaN())
-							}
-							if br := p.biasRow(b, h, i); br >= 0 {
-								for j := range s.Lk {
-									g.dbias[br+j] = T(math.NaN())
-								}
-							}
-						}
-						clear(pr)
-						clear(dr)
-						continue
-					}
-					var gl T
-					if dlse != nil {
-						gl = dlse[p.lOff(b, h, i)]
-					}
-					c, dc := centredD(pr, dr, sb.ps[r])
-					if g.dsinks != nil {
-						sinkPart[b*s.HeadsQ+h] += T(sb.ps[r] * (gl - (dc + c)))
-					}
-					br := p.biasRow(b, h, i)
-					for jj, pj := range pr {
-						if pj == 0 {
-							dr[jj] = 0
-							continue
-						}
-						ds := pj * (((dr[jj] - c) - dc) + gl)
-						if br >= 0 {
-							g.dbias[br+lo+jj] += ds
-						}
-						if sech2 != nil {
-							ds *= sech2[r*n+jj]
-						}
-						dr[jj] = ds
-					}
-				}
-				if n > 0 {
-					gemm(blas.NoTrans, blas.NoTrans, rows, s.Dk, n, scale, dp, n, kb, ks, 0, g.dq[p.qOff(b, h, i0):], qs)
-					gemm(blas.Trans, blas.NoTrans, n, s.Dk, rows, scale, dp, n, qb, qs, 1, g.dk[p.kOff(b, kv, lo):], ks)
-					gemm(blas.Trans, blas.NoTrans, n, s.Dv, rows, 1, sc, n, dob, os, 1, g.dv[p.vOff(b, kv, lo):], vs)
-				}
-				// The empty rows' dQ were overwritten by the product.
-				if nanHead {
-					for r := range rows {
-						if sb.rl[r] == negInf {
-							dqi := g.dq[p.qOff(b, h, i0+r):][:s.Dk]
-							for d := range dqi {
-								dqi[d] = T(math.NaN())
-							}
-						}
-					}
-				}
-			}
-		}
-		if nanHead {
-			// As in Backward: a NaN row poisons its kv head's dK and dV.
-			for j := range s.Lk {
-				for _, x := range [][]T{g.dk[p.kOff(b, kv, j):][:s.Dk], g.dv[p.vOff(b, kv, j):][:s.Dv]} {
-					for d := range x {
-						x[d] = T(math.NaN())
-					}
-				}
-			}
-		}
+		task := bwdTask[T]{p: p, g: &g, sinkPart: sinkPart, sb: bufs[w], q: q, k: k, v: v, dout: dout, dlse: dlse, b: t / s.HeadsKV, kv: t % s.HeadsKV}
+		task.run()
 	})
 	if g.dsinks != nil {
 		for b := range s.Batch {
@@ -436,4 +286,147 @@ func backwardFast[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 		}
 	}
 	return g
+}
+
+// bwdScratch is a worker's scratch space for one block of rows: the scores
+// (then probabilities) sc, dP then dS in dp, the cap's derivative, and each
+// row's log-sum-exp and sink probability.
+type bwdScratch[T num.Float] struct{ sc, dp, sech2, rl, ps []T }
+
+func newBwdScratch[T num.Float](p *plan) *bwdScratch[T] {
+	lk := p.s.Lk
+	sb := &bwdScratch[T]{sc: make([]T, rowBlock*lk), dp: make([]T, rowBlock*lk), rl: make([]T, rowBlock), ps: make([]T, rowBlock)}
+	if p.softCap > 0 {
+		sb.sech2 = make([]T, rowBlock*lk)
+	}
+	return sb
+}
+
+// bwdTask is one task of backwardFast: batch entry b, kv head kv, and
+// every query head that reads it.
+type bwdTask[T num.Float] struct {
+	p                   *plan
+	g                   *grads[T]
+	sinkPart            []T
+	sb                  *bwdScratch[T]
+	q, k, v, dout, dlse []T
+	b, kv               int
+	nanHead             bool // a row of the task is empty under EmptyRowNaN
+	qs, ks, vs, os      int  // row strides
+}
+
+func (t *bwdTask[T]) run() {
+	p, s := t.p, t.p.s
+	t.qs, t.ks, t.vs, t.os = stride(p.layout, s.HeadsQ, s.Dk), stride(p.layout, s.HeadsKV, s.Dk), stride(p.layout, s.HeadsKV, s.Dv), stride(p.layout, s.HeadsQ, s.Dv)
+	group := s.HeadsQ / s.HeadsKV
+	for gi := range group {
+		h := t.kv*group + gi
+		if p.group == GroupCycle {
+			h = gi*s.HeadsKV + t.kv
+		}
+		for i0 := 0; i0 < s.Lq; i0 += rowBlock {
+			t.block(h, i0, min(rowBlock, s.Lq-i0))
+		}
+	}
+	if t.nanHead {
+		// As in Backward: a NaN row poisons its kv head's dK and dV.
+		for j := range s.Lk {
+			nanFill(t.g.dk[p.kOff(t.b, t.kv, j):][:s.Dk])
+			nanFill(t.g.dv[p.vOff(t.b, t.kv, j):][:s.Dv])
+		}
+	}
+}
+
+// block computes the gradients of the rows i0 … i0+rows−1 of query head h.
+func (t *bwdTask[T]) block(h, i0, rows int) {
+	p, s, g, sb, b := t.p, t.p.s, t.g, t.sb, t.b
+	lo, hi := p.keyRange(b, i0, i0+rows)
+	n := hi - lo
+	sc, dp := sb.sc[:rows*n], sb.dp[:rows*n]
+	var sech2 []T
+	if sb.sech2 != nil {
+		sech2 = sb.sech2[:rows*n]
+	}
+	scale := T(p.scale)
+	qb, dob := t.q[p.qOff(b, h, i0):], t.dout[p.oOff(b, h, i0):]
+	var kb, vb []T
+	if n > 0 {
+		kb, vb = t.k[p.kOff(b, t.kv, lo):], t.v[p.vOff(b, t.kv, lo):]
+		num.GemmTiled(false, true, rows, n, s.Dk, scale, qb, t.qs, kb, t.ks, 0, sc, n)
+		num.GemmTiled(false, true, rows, n, s.Dv, 1, dob, t.os, vb, t.vs, 0, dp, n)
+	}
+	blockProbs(p, sc, sech2, b, h, i0, rows, lo, n, sb.rl, sb.ps)
+	for r := range rows {
+		var cap2 []T
+		if sech2 != nil {
+			cap2 = sech2[r*n:][:n]
+		}
+		t.row(h, i0+r, r, lo, sc[r*n:][:n], dp[r*n:][:n], cap2)
+	}
+	if n > 0 {
+		num.GemmTiled(false, false, rows, s.Dk, n, scale, dp, n, kb, t.ks, 0, g.dq[p.qOff(b, h, i0):], t.qs)
+		num.GemmTiled(true, false, n, s.Dk, rows, scale, dp, n, qb, t.qs, 1, g.dk[p.kOff(b, t.kv, lo):], t.ks)
+		num.GemmTiled(true, false, n, s.Dv, rows, 1, sc, n, dob, t.os, 1, g.dv[p.vOff(b, t.kv, lo):], t.vs)
+	}
+	// The empty rows' dQ were overwritten by the product.
+	if t.nanHead {
+		for r := range rows {
+			if sb.rl[r] == T(math.Inf(-1)) {
+				nanFill(g.dq[p.qOff(b, h, i0+r):][:s.Dk])
+			}
+		}
+	}
+}
+
+// row turns the probabilities pr and dP dr of row i (row r of its block,
+// keys lo …) into dS in place, and adds the row's share of the sink and
+// bias gradients. An empty row gets dS = 0, and NaN gradients under
+// EmptyRowNaN.
+func (t *bwdTask[T]) row(h, i, r, lo int, pr, dr, sech2 []T) {
+	p, s, g, sb, b := t.p, t.p.s, t.g, t.sb, t.b
+	if sb.rl[r] == T(math.Inf(-1)) {
+		if p.emptyNaN {
+			t.nanHead = true
+			nanFill(g.dq[p.qOff(b, h, i):][:s.Dk])
+			if g.dsinks != nil {
+				t.sinkPart[b*s.HeadsQ+h] = T(math.NaN())
+			}
+			if br := p.biasRow(b, h, i); br >= 0 {
+				nanFill(g.dbias[br:][:s.Lk])
+			}
+		}
+		clear(pr)
+		clear(dr)
+		return
+	}
+	var gl T
+	if t.dlse != nil {
+		gl = t.dlse[p.lOff(b, h, i)]
+	}
+	c, dc := centredD(pr, dr, sb.ps[r])
+	if g.dsinks != nil {
+		t.sinkPart[b*s.HeadsQ+h] += T(sb.ps[r] * (gl - (dc + c)))
+	}
+	br := p.biasRow(b, h, i)
+	for jj, pj := range pr {
+		if pj == 0 {
+			dr[jj] = 0
+			continue
+		}
+		ds := T(pj * (((dr[jj] - c) - dc) + gl))
+		if br >= 0 {
+			g.dbias[br+lo+jj] += ds
+		}
+		if sech2 != nil {
+			ds *= sech2[jj]
+		}
+		dr[jj] = ds
+	}
+}
+
+// nanFill sets every element of x to NaN.
+func nanFill[T num.Float](x []T) {
+	for d := range x {
+		x[d] = T(math.NaN())
+	}
 }

@@ -1,7 +1,8 @@
 package attention
 
 import (
-	"fmt"
+	"math"
+	"slices"
 	"sort"
 	"testing"
 
@@ -55,70 +56,29 @@ func gradBound(g goldenCall, name string) float64 {
 	return goldenBound
 }
 
-type maskSpec struct {
-	Kind    string     `json:"kind"`
-	N       int        `json:"n"`
-	P       int        `json:"p"`
-	Before  int        `json:"before"`
-	After   int        `json:"after"`
-	Valid   []int      `json:"valid"`
-	Offsets []int      `json:"offsets"`
-	Block   string     `json:"block"`
-	Parts   []maskSpec `json:"parts"`
-}
-
-func (m maskSpec) build() (mask.Mask, error) {
-	switch m.Kind {
-	case "full":
-		return mask.Full(), nil
-	case "causal":
-		return mask.Causal(), nil
-	case "band":
-		return mask.Band(m.Before, m.After)
-	case "window":
-		return mask.Window(m.N)
-	case "prefix":
-		return mask.Prefix(m.P)
-	case "padding":
-		return mask.KeyPadding(m.Valid)
-	case "packed":
-		blk := mask.BlockCausal
-		if m.Block == "full" {
-			blk = mask.BlockFull
-		}
-		return mask.Packed(m.Offsets, blk)
-	case "intersect":
-		parts := make([]mask.Mask, len(m.Parts))
-		for i, p := range m.Parts {
-			var err error
-			if parts[i], err = p.build(); err != nil {
-				return mask.Mask{}, err
-			}
-		}
-		return mask.Intersect(parts...)
-	}
-	return mask.Mask{}, fmt.Errorf("unknown mask kind %q", m.Kind)
-}
-
+// goldenConfig is the config of a case of the attention families: the
+// shape, then the options under the keys of the ops layer. Conventions are
+// typed, so json decodes their words (and refuses any other), and an
+// absent key is the zero value, the convention's default word.
 type goldenConfig struct {
-	Batch     int       `json:"batch"`
-	HeadsQ    int       `json:"heads_q"`
-	HeadsKV   int       `json:"heads_kv"`
-	Lq        int       `json:"lq"`
-	Lk        int       `json:"lk"`
-	Dk        int       `json:"dk"`
-	Dv        int       `json:"dv"`
-	Layout    string    `json:"layout"`
-	Scale     float64   `json:"scale"`
-	SoftCap   float64   `json:"soft_cap"`
-	Mask      *maskSpec `json:"mask"`
-	Align     string    `json:"align"`
-	Offset    int       `json:"offset"`
-	BiasBatch int       `json:"bias_batch"`
-	BiasHeads int       `json:"bias_heads"`
-	ALiBi     string    `json:"alibi"`
-	Group     string    `json:"group"`
-	EmptyRow  string    `json:"empty_row"`
+	Batch     int            `json:"batch"`
+	HeadsQ    int            `json:"heads_q"`
+	HeadsKV   int            `json:"heads_kv"`
+	Lq        int            `json:"lq"`
+	Lk        int            `json:"lk"`
+	Dk        int            `json:"dk"`
+	Dv        int            `json:"dv"`
+	Layout    Layout         `json:"layout"`
+	Group     GroupMap       `json:"group"`
+	Scale     float64        `json:"scale"`
+	SoftCap   float64        `json:"soft_cap"`
+	Mask      []mask.Spec    `json:"mask"`
+	Align     mask.Align     `json:"align"`
+	Offset    int            `json:"offset"`
+	BiasBatch int            `json:"bias_batch"`
+	BiasHeads int            `json:"bias_heads"`
+	ALiBiForm mask.ALiBiForm `json:"alibi_form"`
+	EmptyRow  EmptyRow       `json:"empty_row"`
 }
 
 // goldenCall is one golden case turned into arguments.
@@ -137,30 +97,12 @@ func loadCall(t *testing.T, c *golden.Case) goldenCall {
 	require.NoError(t, c.DecodeConfig(&cfg))
 	g := goldenCall{c: c, s: Shape{cfg.Batch, cfg.HeadsQ, cfg.HeadsKV, cfg.Lq, cfg.Lk, cfg.Dk, cfg.Dv}, cfg: cfg}
 	o := &g.o
+	o.Layout, o.Group, o.Align, o.ALiBi, o.EmptyRow = cfg.Layout, cfg.Group, cfg.Align, cfg.ALiBiForm, cfg.EmptyRow
 	o.Scale, o.SoftCap, o.Offset = cfg.Scale, cfg.SoftCap, cfg.Offset
-	switch cfg.Layout {
-	case "", "heads_major":
-	case "seq_major":
-		o.Layout = SeqMajor
-	default:
-		t.Fatalf("%v: layout %q", c, cfg.Layout)
-	}
-	if cfg.Align == "start" {
-		o.Align = mask.AlignStart
-	}
-	if cfg.Group == "cycle" {
-		o.Group = GroupCycle
-	}
-	if cfg.EmptyRow == "nan" {
-		o.EmptyRow = EmptyRowNaN
-	}
-	if cfg.ALiBi == "symmetric" {
-		o.ALiBi = ALiBiSymmetric
-	}
-	if cfg.Mask != nil {
-		m, err := cfg.Mask.build()
-		require.NoError(t, err, c.String())
-		o.Mask = m
+	m, err := mask.Build(cfg.Mask)
+	require.NoError(t, err, c.String())
+	if len(cfg.Mask) > 0 {
+		o.Mask = m // no entry leaves the zero Mask, which Options reads as Full
 	}
 	get := func(name string) []float64 {
 		if !c.Has(name) {
@@ -177,6 +119,84 @@ func loadCall(t *testing.T, c *golden.Case) goldenCall {
 	o.Bias, o.Slopes, o.Sinks = get("bias"), get("slopes"), get("sinks")
 	o.BiasBatch, o.BiasHeads = cfg.BiasBatch, cfg.BiasHeads
 	return g
+}
+
+// goldenConventions are the conventions the attention families' configs
+// hold; every word of each must appear in some case.
+var goldenConventions = []string{"attention.Layout", "attention.GroupMap", "attention.EmptyRow",
+	"mask.Align", "mask.ALiBiForm", "mask.Kind", "mask.Block"}
+
+// inEffect is the part of a config whose words change the result of the
+// case, for golden.Words: a word that only fills a field (the zero value of
+// an absent key, a form without slopes, the block of a mask that is not
+// packed) is not counted as exercised.
+type inEffect struct {
+	Layout   Layout
+	Group    *GroupMap       // query heads share a kv head in groups of more than one, and there are several kv heads
+	EmptyRow *EmptyRow       // some row sees no key
+	Align    *mask.Align     // Lq ≠ Lk, and the mask or ALiBi uses positions
+	ALiBi    *mask.ALiBiForm // slopes, and some key after its query is visible, where the forms differ
+	Kinds    []mask.Kind
+	Blocks   []mask.Block // of the packed entries
+}
+
+func effectOf(t *testing.T, c *golden.Case, cfg goldenConfig) inEffect {
+	t.Helper()
+	e := inEffect{Layout: cfg.Layout}
+	if cfg.HeadsKV > 1 && cfg.HeadsKV < cfg.HeadsQ {
+		e.Group = &cfg.Group
+	}
+	lse, _, err := c.Float("lse")
+	require.NoError(t, err)
+	if slices.ContainsFunc(lse, func(x float64) bool { return math.IsInf(x, -1) }) {
+		e.EmptyRow = &cfg.EmptyRow
+	}
+	m, err := mask.Build(cfg.Mask)
+	require.NoError(t, err, c.String())
+	slopes := c.Has("slopes")
+	if cfg.Lq != cfg.Lk && (m.UsesPositions() || slopes) {
+		e.Align = &cfg.Align
+	}
+	g := mask.Geometry{Batch: cfg.Batch, Lq: cfg.Lq, Lk: cfg.Lk, Align: cfg.Align, Offset: cfg.Offset}
+	if slopes {
+		vis, err := m.Visible(g)
+		require.NoError(t, err, c.String())
+		for k, v := range vis {
+			if i, j := k/g.Lk%g.Lq, k%g.Lk; v && j > g.Pos(i) {
+				e.ALiBi = &cfg.ALiBiForm
+				break
+			}
+		}
+	}
+	for _, s := range cfg.Mask {
+		e.Kinds = append(e.Kinds, s.Kind)
+		if s.Kind == mask.KindPacked {
+			e.Blocks = append(e.Blocks, s.Block)
+		}
+	}
+	return e
+}
+
+// TestGoldenWords: every word of every convention the attention families
+// use appears in a case (golden.Words), and in a case where it changes the
+// result, so that a word added to a convention fails here until
+// testdata/gen/fam_attention.py writes a case for it.
+func TestGoldenWords(t *testing.T) {
+	var noted, effective golden.Words
+	n := 0
+	for _, fam := range goldenFamilies {
+		f := golden.MustLoadFamily(t, "attention", fam)
+		for _, c := range f.Cases {
+			var cfg goldenConfig
+			require.NoError(t, c.DecodeConfig(&cfg))
+			noted.Note(cfg)
+			effective.Note(effectOf(t, c, cfg))
+			n++
+		}
+	}
+	require.Equal(t, 61, n, "cases in %v", goldenFamilies)
+	noted.Require(t, goldenConventions...)
+	effective.Require(t, goldenConventions...)
 }
 
 // eachGolden calls fn for every golden case.
@@ -297,7 +317,7 @@ func TestGoldenBackward32(t *testing.T) {
 func TestGoldenDecode(t *testing.T) {
 	n := 0
 	eachGolden(t, func(t *testing.T, g goldenCall) {
-		if g.cfg.Mask == nil || g.cfg.Mask.Kind != "causal" || g.cfg.Align == "start" || g.cfg.Offset != 0 {
+		if len(g.cfg.Mask) != 1 || g.cfg.Mask[0].Kind != mask.KindCausal || g.cfg.Align != mask.AlignEnd || g.cfg.Offset != 0 {
 			t.Skip("not a causal, end-aligned case")
 		}
 		n++
@@ -309,7 +329,7 @@ func TestGoldenDecode(t *testing.T) {
 		w.check(t, g, "out", out, goldenBound)
 		w.check(t, g, "lse", lse, goldenBound)
 	})
-	require.GreaterOrEqual(t, n, 5, "causal end-aligned golden cases")
+	require.GreaterOrEqual(t, n, 9, "causal end-aligned golden cases")
 }
 
 func TestGoldenForwardFast(t *testing.T) {

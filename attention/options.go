@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -45,15 +46,31 @@ const (
 	SeqMajor
 )
 
-func (l Layout) String() string {
-	switch l {
-	case HeadsMajor:
-		return "HeadsMajor"
-	case SeqMajor:
-		return "SeqMajor"
-	}
-	return fmt.Sprintf("Layout(%d)", int(l))
-}
+var layoutWords = vocab.New("attention", "layout", "the memory order of q, k, v, the output and the gradients", ErrOption,
+	vocab.W(HeadsMajor, "heads-major", "[batch, heads, positions, dim]: each head's rows are contiguous"),
+	vocab.W(SeqMajor, "seq-major", "[batch, positions, heads, dim]: the heads of one position are contiguous"),
+)
+
+// String returns l's word ("heads-major").
+func (l Layout) String() string { return layoutWords.String(l) }
+
+// MarshalText returns l's word; a value with none is an error wrapping
+// ErrOption.
+func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
+
+// UnmarshalText sets l from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
+
+// Meaning returns one line saying what l means.
+func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
+
+// Values lists every Layout, the zero value first.
+func (Layout) Values() []Layout { return layoutWords.Values() }
+
+// Check returns nil if l is one of the Layout constants, or an error
+// wrapping ErrOption that lists the words.
+func (l Layout) Check() error { return layoutWords.Check(l) }
 
 // GroupMap says which key/value head query head h reads when HeadsQ is a
 // multiple of HeadsKV (grouped-query attention, Ainslie et al.
@@ -73,15 +90,31 @@ const (
 	GroupCycle
 )
 
-func (g GroupMap) String() string {
-	switch g {
-	case GroupBlocks:
-		return "GroupBlocks"
-	case GroupCycle:
-		return "GroupCycle"
-	}
-	return fmt.Sprintf("GroupMap(%d)", int(g))
-}
+var groupWords = vocab.New("attention", "group map", "which key/value head each query head reads", ErrOption,
+	vocab.W(GroupBlocks, "blocks", "consecutive query heads share a kv head: kv(h) = h / (heads_q / heads_kv)"),
+	vocab.W(GroupCycle, "cycle", "query head h reads kv head h mod heads_kv"),
+)
+
+// String returns g's word ("blocks").
+func (g GroupMap) String() string { return groupWords.String(g) }
+
+// MarshalText returns g's word; a value with none is an error wrapping
+// ErrOption.
+func (g GroupMap) MarshalText() ([]byte, error) { return groupWords.Marshal(g) }
+
+// UnmarshalText sets g from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (g *GroupMap) UnmarshalText(b []byte) error { return groupWords.Unmarshal(g, b) }
+
+// Meaning returns one line saying what g means.
+func (g GroupMap) Meaning() string { return groupWords.Meaning(g) }
+
+// Values lists every GroupMap, the zero value first.
+func (GroupMap) Values() []GroupMap { return groupWords.Values() }
+
+// Check returns nil if g is one of the GroupMap constants, or an error
+// wrapping ErrOption that lists the words.
+func (g GroupMap) Check() error { return groupWords.Check(g) }
 
 // EmptyRow is what a query row that sees no key at all produces.
 type EmptyRow int
@@ -99,39 +132,31 @@ const (
 	EmptyRowNaN
 )
 
-func (e EmptyRow) String() string {
-	switch e {
-	case EmptyRowZero:
-		return "EmptyRowZero"
-	case EmptyRowNaN:
-		return "EmptyRowNaN"
-	}
-	return fmt.Sprintf("EmptyRow(%d)", int(e))
-}
-
-// ALiBiForm is the shape of the ALiBi bias (Press et al. 2022, "Train
-// Short, Test Long", arXiv 2108.12409, §3).
-type ALiBiForm int
-
-const (
-	// ALiBiCausal: bias −m_h·(p(i) − j), the paper's form m·[−(i−1), …, −1, 0]
-	// for the keys up to the query. The zero value. With a mask that shows
-	// keys after the query the same formula gives them a positive bias.
-	ALiBiCausal ALiBiForm = iota
-	// ALiBiSymmetric: bias −m_h·|p(i) − j|, a form used for bidirectional
-	// attention [common practice].
-	ALiBiSymmetric
+var emptyRowWords = vocab.New("attention", "empty-row policy", "what a query row that sees no key produces", ErrOption,
+	vocab.W(EmptyRowZero, "zero", "output 0 and log-sum-exp −Inf, as a tiled online softmax gives"),
+	vocab.W(EmptyRowNaN, "nan", "output NaN, as a naive softmax over logits that are all −Inf gives"),
 )
 
-func (a ALiBiForm) String() string {
-	switch a {
-	case ALiBiCausal:
-		return "ALiBiCausal"
-	case ALiBiSymmetric:
-		return "ALiBiSymmetric"
-	}
-	return fmt.Sprintf("ALiBiForm(%d)", int(a))
-}
+// String returns e's word ("zero").
+func (e EmptyRow) String() string { return emptyRowWords.String(e) }
+
+// MarshalText returns e's word; a value with none is an error wrapping
+// ErrOption.
+func (e EmptyRow) MarshalText() ([]byte, error) { return emptyRowWords.Marshal(e) }
+
+// UnmarshalText sets e from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (e *EmptyRow) UnmarshalText(b []byte) error { return emptyRowWords.Unmarshal(e, b) }
+
+// Meaning returns one line saying what e means.
+func (e EmptyRow) Meaning() string { return emptyRowWords.Meaning(e) }
+
+// Values lists every EmptyRow, the zero value first.
+func (EmptyRow) Values() []EmptyRow { return emptyRowWords.Values() }
+
+// Check returns nil if e is one of the EmptyRow constants, or an error
+// wrapping ErrOption that lists the words.
+func (e EmptyRow) Check() error { return emptyRowWords.Check(e) }
 
 // Shape gives the sizes of one attention call: Q is [Batch, HeadsQ, Lq, Dk],
 // K is [Batch, HeadsKV, Lk, Dk], V is [Batch, HeadsKV, Lk, Dv] and the
@@ -190,10 +215,11 @@ type Options struct {
 	Bias                 []float64
 	BiasBatch, BiasHeads int
 	// Slopes, when not nil, holds one ALiBi slope per query head (the caller
-	// computes them, e.g. 2^{−8k/H}); ALiBi chooses the form. ALiBi needs
+	// computes them, e.g. 2^{−8k/H}); ALiBi chooses the distance, the bias
+	// being −Slopes[h]·ALiBi.Distance(p(i), j) (mask.ALiBiForm). ALiBi needs
 	// every query at a key position, 0 ≤ p(i) < Lk, as a causal mask does.
 	Slopes []float64
-	ALiBi  ALiBiForm
+	ALiBi  mask.ALiBiForm
 	// SoftCap c > 0 replaces the scaled logit t by c·tanh(t/c) (Bello et al.
 	// 2016, arXiv 1611.09940, Appendix A); 0 means no cap.
 	SoftCap float64
@@ -211,22 +237,22 @@ type Options struct {
 // plan is a validated call: the options resolved to numbers and the mask
 // laid out as booleans.
 type plan struct {
-	s         Shape
-	layout    Layout
-	scale     float64
-	softCap   float64
-	geom      mask.Geometry
-	runLo     []int  // [Batch, Lq]: row r sees keys runLo[r] ≤ j < runHi[r]
-	runHi     []int  //   (when vis is nil)
-	vis       []bool // [Batch, Lq, Lk], only for a mask that is not one run per row
-	bias      []float64
-	biasB     bool // bias varies over batch
-	biasH     bool // bias varies over heads
-	slopes    []float64
-	symmetric bool
-	sinks     []float64
-	group     GroupMap
-	emptyNaN  bool
+	s        Shape
+	layout   Layout
+	scale    float64
+	softCap  float64
+	geom     mask.Geometry
+	runLo    []int  // [Batch, Lq]: row r sees keys runLo[r] ≤ j < runHi[r]
+	runHi    []int  //   (when vis is nil)
+	vis      []bool // [Batch, Lq, Lk], only for a mask that is not one run per row
+	bias     []float64
+	biasB    bool // bias varies over batch
+	biasH    bool // bias varies over heads
+	slopes   []float64
+	alibi    mask.ALiBiForm
+	sinks    []float64
+	group    GroupMap
+	emptyNaN bool
 }
 
 // checkShape validates the sizes alone.
@@ -291,19 +317,12 @@ func newPlan(qn, kn, vn int, s Shape, o *Options) (*plan, error) {
 		return nil, err
 	}
 	p := &plan{s: s, layout: o.Layout, group: o.Group}
-	if o.Layout != HeadsMajor && o.Layout != SeqMajor {
-		return nil, fmt.Errorf("%w: Layout = %d; want HeadsMajor or SeqMajor", ErrOption, int(o.Layout))
+	for _, err := range []error{layoutWords.Check(o.Layout), groupWords.Check(o.Group), emptyRowWords.Check(o.EmptyRow)} {
+		if err != nil {
+			return nil, err
+		}
 	}
-	if o.Group != GroupBlocks && o.Group != GroupCycle {
-		return nil, fmt.Errorf("%w: Group = %d; want GroupBlocks or GroupCycle", ErrOption, int(o.Group))
-	}
-	switch o.EmptyRow {
-	case EmptyRowZero:
-	case EmptyRowNaN:
-		p.emptyNaN = true
-	default:
-		return nil, fmt.Errorf("%w: EmptyRow = %d; want EmptyRowZero or EmptyRowNaN", ErrOption, int(o.EmptyRow))
-	}
+	p.emptyNaN = o.EmptyRow == EmptyRowNaN
 	switch {
 	case o.Scale == 0:
 		p.scale = 1 / math.Sqrt(float64(s.Dk))
@@ -325,11 +344,11 @@ func newPlan(qn, kn, vn int, s Shape, o *Options) (*plan, error) {
 				return nil, fmt.Errorf("%w: Slopes[%d] = %v; want a finite value", ErrOption, h, m)
 			}
 		}
-		if o.ALiBi != ALiBiCausal && o.ALiBi != ALiBiSymmetric {
-			return nil, fmt.Errorf("%w: ALiBi = %d; want ALiBiCausal or ALiBiSymmetric", ErrOption, int(o.ALiBi))
+		if err := o.ALiBi.Check(); err != nil {
+			return nil, fmt.Errorf("%w: %w", ErrOption, err)
 		}
 		p.slopes = o.Slopes
-		p.symmetric = o.ALiBi == ALiBiSymmetric
+		p.alibi = o.ALiBi
 	}
 	if o.Sinks != nil {
 		if len(o.Sinks) != s.HeadsQ {

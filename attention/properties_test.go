@@ -31,7 +31,7 @@ func randOptions(r *rand.Rand, s Shape) Options {
 			for h := range o.Slopes {
 				o.Slopes[h] = math.Ldexp(1, -1-h)
 			}
-			o.ALiBi = ALiBiForm(r.IntN(2))
+			o.ALiBi = mask.ALiBiForm(r.IntN(3))
 		}
 	}
 	if r.IntN(3) == 0 {

@@ -114,6 +114,38 @@ func TestWorkedValues(t *testing.T) {
 		assert.Zero(t, out[4+2])
 		assert.Zero(t, out[4+3])
 	})
+	t.Run("ALiBi forms after the query", func(t *testing.T) {
+		// mask.ALiBiForm: the bias is −m·d(p, j) with d = p − j (causal,
+		// the paper's formula for every key, Press et al. 2022 §3),
+		// |p − j| (symmetric) or max(p − j, 0) (past-only; both common
+		// practice). With zero queries and no mask, query 0 (p = 0) sees
+		// keys 0 … 3 all after or at it, so with V = I₄ its weights are
+		// e^{m·j}, e^{−m·j} and uniform, each normalised; m = ½.
+		s := Shape{1, 1, 1, 4, 4, 1, 4}
+		v := make([]float64, 16)
+		for j := range 4 {
+			v[j*4+j] = 1
+		}
+		for _, tc := range []struct {
+			form  mask.ALiBiForm
+			logit func(j float64) float64
+		}{
+			{mask.ALiBiCausal, func(j float64) float64 { return 0.5 * j }},
+			{mask.ALiBiSymmetric, func(j float64) float64 { return -0.5 * j }},
+			{mask.ALiBiPastOnly, func(float64) float64 { return 0 }},
+		} {
+			out, _, err := Forward(make([]float64, 4), make([]float64, 4), v, s, Options{Slopes: []float64{0.5}, ALiBi: tc.form})
+			require.NoError(t, err)
+			var z float64
+			for j := range 4 {
+				z += math.Exp(tc.logit(float64(j)))
+			}
+			for j := range 4 {
+				w := math.Exp(tc.logit(float64(j))) / z
+				assert.InDelta(t, w, out[j], ulps(w, 4), "%v: key %d", tc.form, j)
+			}
+		}
+	})
 	t.Run("window", func(t *testing.T) {
 		// mask.Window's definition (n keys ending at the query): Window(3) at
 		// i = 5 sees keys {3, 4, 5}.

@@ -4,7 +4,8 @@ import (
 	"fmt"
 	"math"
 	"math/bits"
-	"strings"
+
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // Format is a binary floating-point number format: float64, float32, IEEE
@@ -48,7 +49,6 @@ const (
 
 // params describes one format.
 type params struct {
-	name      string
 	width     int  // total bits
 	expBits   int  // exponent field bits
 	fracBits  int  // trailing significand bits; precision is fracBits+1
@@ -62,8 +62,8 @@ type params struct {
 	nanBits   uint64 // the canonical NaN this package encodes
 }
 
-func newParams(name string, width, expBits, fracBits int, ieee bool) params {
-	p := params{name: name, width: width, expBits: expBits, fracBits: fracBits, ieee: ieee}
+func newParams(width, expBits, fracBits int, ieee bool) params {
+	p := params{width: width, expBits: expBits, fracBits: fracBits, ieee: ieee}
 	p.bias = 1<<(expBits-1) - 1
 	p.emin = 1 - p.bias
 	allOnes := 1<<expBits - 1
@@ -86,45 +86,42 @@ func newParams(name string, width, expBits, fracBits int, ieee bool) params {
 }
 
 var formats = [numFormats]params{
-	Float64:  newParams("float64", 64, 11, 52, true),
-	Float32:  newParams("float32", 32, 8, 23, true),
-	Binary16: newParams("binary16", 16, 5, 10, true),
-	BFloat16: newParams("bfloat16", 16, 8, 7, true),
-	E4M3:     newParams("e4m3", 8, 4, 3, false),
-	E5M2:     newParams("e5m2", 8, 5, 2, true),
+	Float64:  newParams(64, 11, 52, true),
+	Float32:  newParams(32, 8, 23, true),
+	Binary16: newParams(16, 5, 10, true),
+	BFloat16: newParams(16, 8, 7, true),
+	E4M3:     newParams(8, 4, 3, false),
+	E5M2:     newParams(8, 5, 2, true),
 }
 
-// aliases are the other names FormatByName accepts.
-var aliases = map[string]Format{
-	"float16": Binary16,
-	"half":    Binary16,
+var formatWords = vocab.New("compare", "number format", "the binary floating-point format a candidate is stored in", ErrFormat,
+	vocab.W(Float64, "float64", "IEEE 754 binary64: 53 significand bits"),
+	vocab.W(Float32, "float32", "IEEE 754 binary32: 24 significand bits"),
+	vocab.W(Binary16, "binary16", "IEEE 754 binary16 (half): 11 significand bits, 5 exponent bits"),
+	vocab.W(BFloat16, "bfloat16", "binary32 with the low 16 fraction bits dropped: 8 significand bits"),
+	vocab.W(E4M3, "e4m3", "OCP 8-bit E4M3: 4 significand bits, no infinities, max 448"),
+	vocab.W(E5M2, "e5m2", "OCP 8-bit E5M2: 3 significand bits, IEEE-style infinities, max 57344"),
+).Aliases(map[string]Format{
+	"double": Float64, "fp64": Float64,
+	"single": Float32, "fp32": Float32,
+	"float16": Binary16, "half": Binary16, "fp16": Binary16,
 	"bf16":    BFloat16,
-	"fp8e4m3": E4M3,
-	"fp8e5m2": E5M2,
-	"single":  Float32,
-	"double":  Float64,
-}
+	"fp8e4m3": E4M3, "fp8-e4m3": E4M3,
+	"fp8e5m2": E5M2, "fp8-e5m2": E5M2,
+})
 
 // Formats lists every format, widest first.
-func Formats() []Format {
-	return []Format{Float64, Float32, Binary16, BFloat16, E4M3, E5M2}
-}
+func Formats() []Format { return formatWords.Values() }
 
 // FormatByName returns the format called name: float64, float32, binary16,
 // bfloat16, e4m3 or e5m2, compared without regard to case; also accepted are
-// double, single, float16 and half, bf16, fp8e4m3 and fp8e5m2. An unknown
-// name gives an error wrapping ErrFormat that lists the known names.
+// double, fp64, single, fp32, float16, half, fp16, bf16, fp8e4m3, fp8-e4m3,
+// fp8e5m2 and fp8-e5m2. An unknown name gives an error wrapping ErrFormat
+// that lists the known names.
 func FormatByName(name string) (Format, error) {
-	n := strings.ToLower(strings.TrimSpace(name))
-	for i := range numFormats {
-		if formats[i].name == n {
-			return i, nil
-		}
-	}
-	if f, ok := aliases[n]; ok {
-		return f, nil
-	}
-	return 0, fmt.Errorf("%w: format %q is unknown; known formats are float64, float32, binary16, bfloat16, e4m3, e5m2", ErrFormat, name)
+	var f Format
+	err := f.UnmarshalText([]byte(name))
+	return f, err
 }
 
 // Valid reports whether f is one of the declared formats.
@@ -137,33 +134,28 @@ func (f Format) p() *params {
 	return &formats[f]
 }
 
-// String returns the format's name as FormatByName accepts it, or
-// "Format(n)" for an invalid value.
-func (f Format) String() string {
-	if p := f.p(); p != nil {
-		return p.name
-	}
-	return fmt.Sprintf("Format(%d)", int(f))
-}
+// String returns the format's word ("bfloat16"), or "Format(n)" for an
+// invalid value.
+func (f Format) String() string { return formatWords.String(f) }
 
-// MarshalText encodes f as its name, so that a Format in a JSON object is a
-// string.
-func (f Format) MarshalText() ([]byte, error) {
-	if !f.Valid() {
-		return nil, fmt.Errorf("%w: %d is not a valid format", ErrFormat, int(f))
-	}
-	return []byte(f.String()), nil
-}
+// MarshalText returns f's word, so that a Format in a JSON object is a
+// string; an invalid f is an error wrapping ErrFormat.
+func (f Format) MarshalText() ([]byte, error) { return formatWords.Marshal(f) }
 
-// UnmarshalText decodes a name accepted by FormatByName.
-func (f *Format) UnmarshalText(b []byte) error {
-	g, err := FormatByName(string(b))
-	if err != nil {
-		return err
-	}
-	*f = g
-	return nil
-}
+// UnmarshalText sets f from its word or one of the other names
+// FormatByName accepts; any other text is an error wrapping ErrFormat that
+// lists the words.
+func (f *Format) UnmarshalText(b []byte) error { return formatWords.Unmarshal(f, b) }
+
+// Meaning returns one line saying what f is.
+func (f Format) Meaning() string { return formatWords.Meaning(f) }
+
+// Values lists every Format, widest first.
+func (Format) Values() []Format { return formatWords.Values() }
+
+// Check returns nil if f is one of the Format constants, or an error
+// wrapping ErrFormat that lists the words.
+func (f Format) Check() error { return formatWords.Check(f) }
 
 // Width is the number of bits of an encoded value (64, 32, 16 or 8); 0 for
 // an invalid format.

@@ -301,20 +301,27 @@ func TestFloat32MatchesGo(t *testing.T) {
 	}
 }
 
+// roundConfig is the "config" object of the cases in
+// testdata/golden/compare/round.json, written by testdata/gen/fam_compare.py:
+// the format by its word.
+type roundConfig struct {
+	Format Format `json:"format"`
+}
+
 // TestRoundGolden checks Round, RoundSaturating, Encode, EncodeSaturating
 // and ULP against conversions computed exactly with rational arithmetic by
-// testdata/gen/fam_compare.py.
+// testdata/gen/fam_compare.py, one case per format; every format has one.
 func TestRoundGolden(t *testing.T) {
 	file := golden.MustLoadFamily(t, "compare", "round")
-	require.Len(t, file.Cases, 5)
+	require.Len(t, file.Cases, len(Formats()), "one case per format")
+	var words golden.Words
 	for _, c := range file.Cases {
+		var cfg roundConfig
+		require.NoError(t, c.DecodeConfig(&cfg), c.String())
+		words.Note(cfg)
 		t.Run(c.Name, func(t *testing.T) {
-			var cfg struct {
-				Format string `json:"format"`
-			}
-			require.NoError(t, c.DecodeConfig(&cfg))
-			f, err := FormatByName(cfg.Format)
-			require.NoError(t, err)
+			f := cfg.Format
+			assert.Equal(t, "round_"+f.String(), c.Name)
 			x, _, err := c.Float("x")
 			require.NoError(t, err)
 			rounded, _, err := c.Float("rounded")
@@ -331,11 +338,14 @@ func TestRoundGolden(t *testing.T) {
 				assert.Truef(t, same(rounded[i], f.Round(v)), "Round(%x) = %x, want %x", v, f.Round(v), rounded[i])
 				assert.Truef(t, same(sat[i], f.RoundSaturating(v)), "RoundSaturating(%x) = %x, want %x", v, f.RoundSaturating(v), sat[i])
 				assert.Truef(t, same(ulp[i], f.ULP(v)), "ULP(%x) = %x, want %x", v, f.ULP(v), ulp[i])
-				assert.EqualValuesf(t, bits[i], f.Encode(v), "Encode(%x)", v)
-				assert.EqualValuesf(t, bitsSat[i], f.EncodeSaturating(v), "EncodeSaturating(%x)", v)
+				// The file holds the patterns as int64: those of negative
+				// float64 values as the signed integer with the same bits.
+				assert.Equalf(t, uint64(bits[i]), f.Encode(v), "Encode(%x)", v)
+				assert.Equalf(t, uint64(bitsSat[i]), f.EncodeSaturating(v), "EncodeSaturating(%x)", v)
 			}
 		})
 	}
+	words.Require(t, "compare.Format")
 }
 
 func TestULP(t *testing.T) {
@@ -408,14 +418,33 @@ func TestFormatByName(t *testing.T) {
 		require.NoError(t, h.UnmarshalText(b))
 		assert.Equal(t, f, h)
 	}
-	for name, want := range map[string]Format{"FLOAT16": Binary16, " bf16 ": BFloat16, "half": Binary16, "fp8e4m3": E4M3, "double": Float64} {
+	assert.Equal(t, []Format{Float64, Float32, Binary16, BFloat16, E4M3, E5M2}, Formats(), "widest first, the zero value first")
+	var words []string
+	for _, f := range Formats() {
+		words = append(words, f.String())
+		assert.NotEmpty(t, f.Meaning())
+		assert.NoError(t, f.Check())
+	}
+	assert.Equal(t, []string{"float64", "float32", "binary16", "bfloat16", "e4m3", "e5m2"}, words)
+	var zero Format
+	assert.Equal(t, Float64, zero, "the zero value is Float64")
+	// every other name FormatByName documents
+	for name, want := range map[string]Format{
+		"FLOAT16": Binary16, " bf16 ": BFloat16, "half": Binary16, "fp8e4m3": E4M3, "double": Float64,
+		"fp64": Float64, "single": Float32, "fp32": Float32, "float16": Binary16, "fp16": Binary16,
+		"bf16": BFloat16, "fp8-e4m3": E4M3, "fp8e5m2": E5M2, "fp8-e5m2": E5M2,
+	} {
 		g, err := FormatByName(name)
 		require.NoError(t, err)
 		assert.Equal(t, want, g, name)
+		b, err := g.MarshalText()
+		require.NoError(t, err)
+		assert.Equal(t, g.String(), string(b), "an alias is read, the word is written")
 	}
 	_, err := FormatByName("float8")
 	assert.ErrorIs(t, err, ErrFormat)
-	assert.Contains(t, err.Error(), `"float8"`)
+	assert.Equal(t, `compare: bad number format: number format = "float8"; want one of float64, float32, binary16, bfloat16, e4m3, e5m2`, err.Error())
+	assert.ErrorIs(t, Format(6).Check(), ErrFormat)
 	var h Format
 	assert.ErrorIs(t, h.UnmarshalText([]byte("int8")), ErrFormat)
 	_, err = Format(-1).MarshalText()

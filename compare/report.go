@@ -142,6 +142,28 @@ type Report struct {
 //	negative or NaN RelFloor or tolerance ErrTolerance
 //	got − ref overflowing float64         +Inf in MaxAbs, RMS, MeanSigned, Normwise
 func Diff(ref, got []float64, shape []int, opt Options) (*Report, error) {
+	shape, err := checkDiff(ref, got, shape, opt)
+	if err != nil {
+		return nil, err
+	}
+	r := &Report{Shape: shape, Elements: len(ref), Format: opt.Format, Tolerance: opt.Tolerance, RelFloor: relFloor(ref, opt.RelFloor)}
+	nworst := opt.Worst
+	if nworst == 0 {
+		nworst = DefaultWorst
+	}
+	a := &diffSums{r: r, tol: opt.Tolerance, diffs: newNorm(), refs: newNorm(), maxAbsAt: -1, maxRelAt: -1, worst: newTopK(max(nworst, 0))}
+	for i := range ref {
+		a.add(i, ref[i], got[i])
+	}
+	a.finish()
+	if opt.Tolerance != nil {
+		r.Verdict = opt.Tolerance.verdict(r, a.failed)
+	}
+	return r, nil
+}
+
+// checkDiff validates Diff's arguments and returns the shape to use.
+func checkDiff(ref, got []float64, shape []int, opt Options) ([]int, error) {
 	if len(got) != len(ref) {
 		return nil, fmt.Errorf("%w: candidate has %d elements, reference has %d", ErrShape, len(got), len(ref))
 	}
@@ -160,126 +182,135 @@ func Diff(ref, got []float64, shape []int, opt Options) (*Report, error) {
 			return nil, err
 		}
 	}
-	r := &Report{Shape: shape, Elements: len(ref), Format: opt.Format, Tolerance: opt.Tolerance}
-	f := opt.Format
+	return shape, nil
+}
 
-	// The floor needs the largest reference magnitude.
-	r.RelFloor = opt.RelFloor
-	if r.RelFloor == 0 {
-		big := 0.0
-		for _, v := range ref {
-			if a := math.Abs(v); a > big && !math.IsInf(a, 0) {
-				big = a
-			}
-		}
-		r.RelFloor = DefaultRelFloorFactor * big
-		if big == 0 {
-			r.RelFloor = 1
+// relFloor is the floor of the relative error's denominator: the caller's,
+// or DefaultRelFloorFactor times the largest finite reference magnitude (1
+// when every reference value is 0).
+func relFloor(ref []float64, floor float64) float64 {
+	if floor != 0 {
+		return floor
+	}
+	big := 0.0
+	for _, v := range ref {
+		if a := math.Abs(v); a > big && !math.IsInf(a, 0) {
+			big = a
 		}
 	}
-
-	nworst := opt.Worst
-	if nworst == 0 {
-		nworst = DefaultWorst
+	if big == 0 {
+		return 1
 	}
-	worst := newTopK(max(nworst, 0))
+	return DefaultRelFloorFactor * big
+}
 
-	var (
-		diffs, refs = newNorm(), newNorm()
-		sum         float64
-		maxAbsAt    = -1
-		maxRelAt    = -1
-		hist        [65]int
-		failed      int
-	)
-	for i := range ref {
-		x, y := ref[i], got[i]
-		e := Element{Offset: i, Ref: x, Got: y, ULPs: math.NaN()}
-		if d, ok := f.ULPDistance(x, y); ok {
-			e.ULPs = float64(d)
-		}
-		score := 0.0
-		if !finite(x) || !finite(y) {
-			switch {
-			case math.IsNaN(x) && math.IsNaN(y), x == y:
-				r.NonFiniteMatches++
-				continue
-			case math.IsNaN(x) || math.IsNaN(y):
-				r.NaNMismatches++
-			default:
-				r.InfMismatches++
-			}
-			e.AbsErr, e.RelErr, e.ULPs = math.Inf(1), math.Inf(1), math.NaN()
-			score = math.Inf(1)
-			failed++
-		} else {
-			r.Finite++
-			d := y - x
-			e.AbsErr = math.Abs(d)
-			e.RelErr = e.AbsErr / math.Max(math.Abs(x), r.RelFloor)
-			if maxAbsAt < 0 || e.AbsErr > r.MaxAbs {
-				r.MaxAbs, maxAbsAt = e.AbsErr, i
-			}
-			if maxRelAt < 0 || e.RelErr > r.MaxRel {
-				r.MaxRel, maxRelAt = e.RelErr, i
-			}
-			diffs.add(d)
-			refs.add(x)
-			sum += d
-			if !math.IsNaN(e.ULPs) {
-				hist[bits.Len64(uint64(e.ULPs))]++
-				r.MaxULPs = math.Max(r.MaxULPs, e.ULPs)
-			}
-			if !f.Contains(y) {
-				r.NotInFormat++
-			}
-			if opt.Tolerance != nil {
-				score = opt.Tolerance.excess(x, e.AbsErr, e.ULPs)
-				if score > 1 {
-					failed++
-				}
-			} else {
-				score = e.AbsErr
-			}
-		}
-		worst.push(score, e)
+// diffSums accumulates the measures of a Report element by element.
+type diffSums struct {
+	r                  *Report
+	tol                *Tolerance
+	diffs, refs        norm
+	sum                float64
+	maxAbsAt, maxRelAt int
+	hist               [65]int
+	failed             int
+	worst              *topK
+}
+
+// add takes the pair (x, y) = (ref[i], got[i]).
+func (a *diffSums) add(i int, x, y float64) {
+	r, f := a.r, a.r.Format
+	e := Element{Offset: i, Ref: x, Got: y, ULPs: math.NaN()}
+	if d, ok := f.ULPDistance(x, y); ok {
+		e.ULPs = float64(d)
 	}
+	if !finite(x) || !finite(y) {
+		switch {
+		case math.IsNaN(x) && math.IsNaN(y), x == y:
+			r.NonFiniteMatches++
+			return
+		case math.IsNaN(x) || math.IsNaN(y):
+			r.NaNMismatches++
+		default:
+			r.InfMismatches++
+		}
+		e.AbsErr, e.RelErr, e.ULPs = math.Inf(1), math.Inf(1), math.NaN()
+		a.failed++
+		a.worst.push(math.Inf(1), e)
+		return
+	}
+	r.Finite++
+	d := y - x
+	e.AbsErr = math.Abs(d)
+	e.RelErr = e.AbsErr / math.Max(math.Abs(x), r.RelFloor)
+	if a.maxAbsAt < 0 || e.AbsErr > r.MaxAbs {
+		r.MaxAbs, a.maxAbsAt = e.AbsErr, i
+	}
+	if a.maxRelAt < 0 || e.RelErr > r.MaxRel {
+		r.MaxRel, a.maxRelAt = e.RelErr, i
+	}
+	a.diffs.add(d)
+	a.refs.add(x)
+	a.sum += d
+	if !math.IsNaN(e.ULPs) {
+		a.hist[bits.Len64(uint64(e.ULPs))]++
+		r.MaxULPs = math.Max(r.MaxULPs, e.ULPs)
+	}
+	if !f.Contains(y) {
+		r.NotInFormat++
+	}
+	score := e.AbsErr
+	if a.tol != nil {
+		score = a.tol.excess(x, e.AbsErr, e.ULPs)
+		if score > 1 {
+			a.failed++
+		}
+	}
+	a.worst.push(score, e)
+}
+
+// finish turns the sums into the Report's measures.
+func (a *diffSums) finish() {
+	r := a.r
 	if r.Finite > 0 {
 		n := float64(r.Finite)
-		r.RMS = diffs.value() / math.Sqrt(n)
-		r.MeanSigned = sum / n
-		r.Normwise = diffs.value()
-		if rn := refs.value(); rn != 0 {
+		r.RMS = a.diffs.value() / math.Sqrt(n)
+		r.MeanSigned = a.sum / n
+		r.Normwise = a.diffs.value()
+		if rn := a.refs.value(); rn != 0 {
 			r.Normwise /= rn
 		}
-		r.MaxAbsAt = unflatten(maxAbsAt, shape)
-		r.MaxRelAt = unflatten(maxRelAt, shape)
-		top := 0
-		for k, c := range hist {
-			if c > 0 {
-				top = k
-			}
-		}
-		for k := 0; k <= top; k++ {
-			lo, hi := uint64(0), uint64(0)
-			if k > 0 {
-				lo = 1 << (k - 1)
-				hi = lo<<1 - 1
-				if k == 64 {
-					hi = math.MaxUint64
-				}
-			}
-			r.ULPs = append(r.ULPs, ULPBucket{Lo: lo, Hi: hi, Count: hist[k]})
-		}
+		r.MaxAbsAt = unflatten(a.maxAbsAt, r.Shape)
+		r.MaxRelAt = unflatten(a.maxRelAt, r.Shape)
+		r.ULPs = buckets(a.hist)
 	}
-	r.Worst = worst.elements()
+	r.Worst = a.worst.elements()
 	for k := range r.Worst {
-		r.Worst[k].Index = unflatten(r.Worst[k].Offset, shape)
+		r.Worst[k].Index = unflatten(r.Worst[k].Offset, r.Shape)
 	}
-	if opt.Tolerance != nil {
-		r.Verdict = opt.Tolerance.verdict(r, failed)
+}
+
+// buckets turns the counts by bit length into the ULP histogram, from
+// bucket 0 up to the largest non-empty one.
+func buckets(hist [65]int) []ULPBucket {
+	top := 0
+	for k, c := range hist {
+		if c > 0 {
+			top = k
+		}
 	}
-	return r, nil
+	var out []ULPBucket
+	for k := 0; k <= top; k++ {
+		lo, hi := uint64(0), uint64(0)
+		if k > 0 {
+			lo = 1 << (k - 1)
+			hi = lo<<1 - 1
+			if k == 64 {
+				hi = math.MaxUint64
+			}
+		}
+		out = append(out, ULPBucket{Lo: lo, Hi: hi, Count: hist[k]})
+	}
+	return out
 }
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
@@ -333,10 +364,10 @@ func (n *norm) add(v float64) {
 		return
 	}
 	if n.scale < a {
-		n.ssq = 1 + n.ssq*(n.scale/a)*(n.scale/a)
+		n.ssq = 1 + float64(n.ssq*(n.scale/a)*(n.scale/a)) // rounded: no fused multiply-add, the same bits everywhere
 		n.scale = a
 	} else {
-		n.ssq += (a / n.scale) * (a / n.scale)
+		n.ssq += float64((a / n.scale) * (a / n.scale))
 	}
 }
 

@@ -3,8 +3,6 @@ package compare
 import (
 	"fmt"
 	"math"
-
-	"github.com/plumbref/plumb/internal/num"
 )
 
 // Tolerance says how far a candidate may be from the reference.
@@ -129,6 +127,12 @@ func (y *Yardstick) Options() Options {
 	return Options{Format: y.Format, Tolerance: &t}
 }
 
+// Float is the element type of a low-precision run or a candidate kernel:
+// float32 or float64, or a type defined on one of them. MeasureYardstick's
+// arithmetic, Widen's input and the conformance suites' kernels are of a
+// Float type.
+type Float interface{ ~float32 | ~float64 }
+
 // MeasureYardstick runs run, the same kernel as the reference computed in
 // the low-precision arithmetic T, on the inputs rounded to format f, and
 // derives a tolerance from its error against the reference ref (row-major,
@@ -161,7 +165,7 @@ func (y *Yardstick) Options() Options {
 // arithmetic) wraps ErrFormat; a k that is not finite and ≥ 1 wraps
 // ErrTolerance; shape errors wrap ErrShape; an error from run, or an output
 // of the wrong length, wraps ErrYardstick.
-func MeasureYardstick[T num.Float](f Format, inputs [][]float64, ref []float64, shape []int, k float64, run func(in [][]T) ([]T, error)) (*Yardstick, error) {
+func MeasureYardstick[T Float](f Format, inputs [][]float64, ref []float64, shape []int, k float64, run func(in [][]T) ([]T, error)) (*Yardstick, error) {
 	if !f.Valid() {
 		return nil, fmt.Errorf("%w: yardstick format is %v", ErrFormat, f)
 	}

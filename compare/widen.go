@@ -1,11 +1,9 @@
 package compare
 
-import "github.com/plumbref/plumb/internal/num"
-
 // Widen returns x converted to float64, exactly: the way to hand a float32
 // candidate (a kernel's output, or a kernel package's float32
 // instantiation) to Diff, Check or Approx.
-func Widen[T num.Float](x []T) []float64 {
+func Widen[T Float](x []T) []float64 {
 	out := make([]float64, len(x))
 	for i, v := range x {
 		out[i] = float64(v)

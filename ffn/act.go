@@ -68,7 +68,7 @@ func swish[T num.Float](x, beta T) T {
 	case beta == 0:
 		return x * 0.5
 	}
-	th, tl := twoProd(x, beta)
+	th, tl := num.TwoProd(x, beta)
 	return gatedBySigmoid(x, th, tl)
 }
 
@@ -79,7 +79,7 @@ func swishDeriv[T num.Float](x, beta T) T {
 	case beta == 0:
 		return 0.5
 	}
-	th, tl := twoProd(x, beta)
+	th, tl := num.TwoProd(x, beta)
 	return gatedBySigmoidDeriv(th, tl)
 }
 
@@ -122,16 +122,16 @@ const tanhBound = 30
 // With it ½x(1 + tanh(t/2)) = x·σ(t), which has no cancellation for
 // negative x.
 func tanhArg[T num.Float](x T) (T, T) {
-	s, sl := twoProd(x, x)
-	c, cl := twoProd(s, x)
+	s, sl := num.TwoProd(x, x)
+	c, cl := num.TwoProd(s, x)
 	cl += T(sl * x)
 	kh, kl := split[T](cubicHi, cubicLo)
-	p, pl := twoProd(c, kh)
+	p, pl := num.TwoProd(c, kh)
 	pl += T(c*kl) + T(cl*kh)
-	q, ql := twoSum(x, p)
+	q, ql := num.TwoSum(x, p)
 	ql += pl
 	gh, gl := split[T](twoSqrt2OverPiHi, twoSqrt2OverPiLo)
-	t, tl := twoProd(q, gh)
+	t, tl := num.TwoProd(q, gh)
 	tl += T(q*gl) + T(ql*gh)
 	return t, tl
 }

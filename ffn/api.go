@@ -30,8 +30,8 @@ import (
 // Conventions, and their alternatives:
 //
 //   - Weights are stored as Options.Layout says: InByOut ([in, out], the
-//     papers' x·W) or OutByIn ([out, in], one row per output unit, x·Wᵀ).
-//     There is no default.
+//     papers' x·W; the zero value) or OutByIn ([out, in], one row per
+//     output unit, x·Wᵀ).
 //   - A gated unit's W and V may be given separately (W1, V) or as one
 //     fused matrix (Fused) of 2·Hidden units, all gate units then all value
 //     units (GateUpStacked) or alternating (GateUpInterleaved).
@@ -52,8 +52,8 @@ import (
 //
 //	Rows = 0                          an empty result, no error
 //	NaN or ±Inf in x or a weight      propagate as the arithmetic says
-//	Act or Layout unset or unknown    ErrOption
-//	Packing unset with Fused          ErrOption
+//	Act or Layout not declared        ErrOption
+//	Packing not declared, with Fused  ErrOption
 //	Swish β NaN or ±Inf, β elsewhere  ErrBeta
 //	a size < 1 (Rows < 0), len(x)     ErrShape
 //	a weight implying another Hidden  ErrHidden

@@ -26,9 +26,9 @@
 //
 // Conventions, and their alternatives:
 //
-//   - Weight layout is an explicit option, with no default: InByOut stores
-//     a matrix as [in, out] (the papers' x·W), OutByIn as [out, in] (one
-//     row per output unit, x·Wᵀ).
+//   - Weight layout is an option: InByOut (the zero value) stores a matrix
+//     as [in, out] (the papers' x·W), OutByIn as [out, in] (one row per
+//     output unit, x·Wᵀ).
 //   - A gated unit's gate and value projections are separate (W1, V) or
 //     one fused matrix of 2·Hidden output units, all gate units then all
 //     value units (GateUpStacked) or alternating (GateUpInterleaved).

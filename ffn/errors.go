@@ -24,7 +24,8 @@ var (
 	// activation that has none.
 	ErrBeta = errors.New("ffn: bad beta")
 
-	// ErrOption: an Options field holds no valid value (an unknown
-	// activation, a weight layout or fused packing left unset).
+	// ErrOption: an Options field holds a value that is none of its type's
+	// constants (an Act, Layout or Packing outside the declared ones; the
+	// zero value of each is valid).
 	ErrOption = errors.New("ffn: bad option")
 )

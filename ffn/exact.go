@@ -50,32 +50,10 @@ func split[T num.Float](hi64, lo64 float64) (T, T) {
 	return h, T(lo64 + (hi64 - float64(h)))
 }
 
-// twoProd returns hi = a·b rounded to T and lo, the rounding error of that
-// product (exact for float64 through math.FMA; for float32 the product is
-// exact in float64). An infinite product has lo = 0.
-func twoProd[T num.Float](a, b T) (hi, lo T) {
-	hi = a * b
-	if math.IsInf(float64(hi), 0) {
-		return hi, 0
-	}
-	return hi, T(math.FMA(float64(a), float64(b), -float64(hi)))
-}
-
-// twoSum returns s = a + b rounded to T and the rounding error (Knuth's
-// branch-free form). An infinite sum has error 0.
-func twoSum[T num.Float](a, b T) (s, e T) {
-	s = a + b
-	if math.IsInf(float64(s), 0) {
-		return s, 0
-	}
-	bb := s - a
-	return s, (a - (s - bb)) + (b - bb)
-}
-
 // mulConst returns x·c as hi + lo for a constant c given as hi64 + lo64.
 func mulConst[T num.Float](x T, hi64, lo64 float64) (T, T) {
 	ch, cl := split[T](hi64, lo64)
-	hi, lo := twoProd(x, ch)
+	hi, lo := num.TwoProd(x, ch)
 	return hi, lo + T(x*cl)
 }
 
@@ -115,6 +93,6 @@ func cdf[T num.Float](x T) T {
 
 // pdf is φ(x) = e^{−x²/2}/√(2π) with x² carried exactly as hi + lo.
 func pdf[T num.Float](x T) T {
-	sh, sl := twoProd(x, x)
+	sh, sl := num.TwoProd(x, x)
 	return expSum(-sh*0.5, -sl*0.5) * T(invSqrt2Pi)
 }

@@ -3,33 +3,15 @@ package ffn
 import (
 	"fmt"
 
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/blas32"
-	"gonum.org/v1/gonum/blas/blas64"
-
 	"github.com/plumbref/plumb/internal/num"
 )
 
-// gemm is C = op(A)·op(B) + beta·C through gonum's BLAS: blas64 for
-// float64, blas32 for float32, so that the float32 instantiation stays a
-// float32 computation.
+// gemm is C = op(A)·op(B) + beta·C through gonum's BLAS (num.Gemm: blas64
+// for float64, blas32 for float32, so that the float32 instantiation stays
+// a float32 computation, tiled so that the sums do not depend on
+// GOMAXPROCS).
 func gemm[T num.Float](tA, tB bool, m, n, k int, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	ta, tb := blas.NoTrans, blas.NoTrans
-	if tA {
-		ta = blas.Trans
-	}
-	if tB {
-		tb = blas.Trans
-	}
-	switch a := any(a).(type) {
-	case []float64:
-		blas64.Implementation().Dgemm(ta, tb, m, n, k, 1, a, lda, any(b).([]float64), ldb, float64(beta), any(c).([]float64), ldc)
-	case []float32:
-		blas32.Implementation().Sgemm(ta, tb, m, n, k, 1, a, lda, any(b).([]float32), ldb, float32(beta), any(c).([]float32), ldc)
-	default:
-		// Only the float64 and float32 instantiations exist.
-		panic("ffn: gemm instantiated with a named float type")
-	}
+	num.Gemm(tA, tB, m, n, k, 1, a, lda, b, ldb, beta, c, ldc)
 }
 
 // The three products a projection needs, for an input X (n × k) and a

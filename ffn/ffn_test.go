@@ -455,12 +455,12 @@ func TestErrors(t *testing.T) {
 		err  error
 		msg  string
 	}{
-		{"no activation", x, d, plain, Options{Layout: InByOut}, ErrOption, "activation is Act(0)"},
-		{"unknown activation", x, d, plain, Options{Act: 99, Layout: InByOut}, ErrOption, "Act(99)"},
-		{"no layout", x, d, plain, Options{Act: ActReLU}, ErrOption, "Layout is Layout(0)"},
+		{"unknown activation", x, d, plain, Options{Act: 99, Layout: InByOut}, ErrOption, "ffn: bad option: activation = 99; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity"},
+		{"negative activation", x, d, plain, Options{Act: -1}, ErrOption, "activation = -1; want one of relu,"},
+		{"unknown layout", x, d, plain, Options{Act: ActReLU, Layout: 2}, ErrOption, "ffn: bad option: weight layout = 2; want one of in-by-out, out-by-in"},
 		{"NaN beta", x, d, plain, Options{Act: ActSwish, Beta: math.NaN(), Layout: InByOut}, ErrBeta, "Swish β is NaN"},
 		{"Inf beta", x, d, plain, Options{Act: ActSwish, Beta: math.Inf(-1), Layout: InByOut}, ErrBeta, "-Inf"},
-		{"beta without Swish", x, d, plain, Options{Act: ActGELUSigmoid, Beta: 1.702, Layout: InByOut}, ErrBeta, "gelu_sigmoid has no β"},
+		{"beta without Swish", x, d, plain, Options{Act: ActGELUSigmoid, Beta: 1.702, Layout: InByOut}, ErrBeta, "activation gelu-sigmoid has no β"},
 		{"NaN beta without Swish", x, d, plain, Options{Act: ActSiLU, Beta: math.NaN(), Layout: InByOut}, ErrBeta, "β is NaN"},
 		{"negative rows", x, Dims{-1, 3, 4, 5}, plain, po, ErrShape, "Dims.Rows is -1"},
 		{"zero in", x, Dims{2, 0, 4, 5}, plain, po, ErrShape, "Dims.In is 0"},
@@ -480,7 +480,7 @@ func TestErrors(t *testing.T) {
 		{"gated V other hidden", x, d, with(gated, func(w *Weights[float64]) { w.V = vec(24) }), gatedOpt, ErrHidden, "V has 24 elements = 3 × 8, implying hidden size 8; Dims.Hidden is 4"},
 		{"gated C other hidden", x, d, with(gated, func(w *Weights[float64]) { w.C = vec(5) }), gatedOpt, ErrHidden, "C has 5 elements, Dims.Hidden is 4"},
 		{"fused and separate", x, d, with(fused, func(w *Weights[float64]) { w.W1 = vec(12) }), fusedOpt, ErrWeightLen, "W1 is set"},
-		{"fused without packing", x, d, fused, gatedOpt, ErrOption, "Packing is Packing(0)"},
+		{"fused with an unknown packing", x, d, fused, Options{Act: ActSiLU, Gated: true, Packing: 7}, ErrOption, "ffn: bad option: gate-up packing = 7; want one of stacked, interleaved"},
 		{"fused other hidden", x, d, with(fused, func(w *Weights[float64]) { w.Fused = vec(30) }), fusedOpt, ErrHidden, "implying hidden size 5"},
 		{"fused odd width", x, d, with(fused, func(w *Weights[float64]) { w.Fused = vec(27) }), fusedOpt, ErrWeightLen, "Fused has 27 elements"},
 		{"fused bias other hidden", x, d, with(fused, func(w *Weights[float64]) { w.FusedBias = vec(4) }), fusedOpt, ErrHidden, "FusedBias has 4 elements, want 2 × Dims.Hidden = 8"},
@@ -508,7 +508,9 @@ func TestErrors(t *testing.T) {
 
 	_, err = Activate([]float64{1}, ActSwish, math.NaN())
 	assert.ErrorIs(t, err, ErrBeta)
-	_, err = Activate([]float64{1}, 0, 0)
+	_, err = Activate([]float64{1}, 99, 0)
+	assert.ErrorIs(t, err, ErrOption)
+	_, err = ActivateGrad32([]float32{1}, []float32{1}, ActIdentity+1, 0)
 	assert.ErrorIs(t, err, ErrOption)
 	_, err = ActivateGrad([]float64{1, 2}, []float64{1}, ActReLU, 0)
 	assert.ErrorIs(t, err, ErrShape)
@@ -528,12 +530,112 @@ func TestEmptyRows(t *testing.T) {
 	assert.Equal(t, make([]float64, 6), g.W1)
 }
 
+// TestZeroOptions checks the documented zero values: Options{} is the plain
+// ReLU layer of Vaswani et al. 2017, Eq. (2), with [in, out] weights, and a
+// fused gate-up matrix with the zero Packing is stacked.
+func TestZeroOptions(t *testing.T) {
+	var o Options
+	assert.Equal(t, ActReLU, o.Act)
+	assert.Equal(t, InByOut, o.Layout)
+	assert.Equal(t, GateUpStacked, o.Packing)
+	assert.False(t, o.Gated)
+
+	// x = (1, −2); W1 = [[1, 2], [3, −1]] as [in, out]: x·W1 = (−5, 4),
+	// ReLU gives (0, 4); W2 = [0.5, 0.25] as [hidden, out], b2 = 0.125:
+	// y = 4·0.25 + 0.125 = 1.125 (arithmetic, exact in float64). Read as
+	// [out, in], W1 would give x·W1ᵀ = (−3, 5) and y = 1.375 instead.
+	d := Dims{Rows: 1, In: 2, Hidden: 2, Out: 1}
+	w := Weights[float64]{W1: []float64{1, 2, 3, -1}, W2: []float64{0.5, 0.25}, B2: []float64{0.125}}
+	y, err := Forward([]float64{1, -2}, d, w, Options{})
+	require.NoError(t, err)
+	assert.Equal(t, []float64{1.125}, y)
+	y, err = Forward([]float64{1, -2}, d, w, Options{Layout: OutByIn})
+	require.NoError(t, err)
+	assert.Equal(t, []float64{1.375}, y)
+	yf, err := ForwardFast([]float64{1, -2}, d, w, Options{})
+	require.NoError(t, err)
+	assert.Equal(t, []float64{1.125}, yf)
+
+	// ReLU is the zero Act of the vector forms too.
+	a, err := Activate([]float64{-1, 0, 2.5}, 0, 0)
+	require.NoError(t, err)
+	assert.Equal(t, []float64{0, 0, 2.5}, a)
+
+	// The zero Packing reads a fused matrix as all gate units, then all
+	// value units: the same layer as the separate W1 and V.
+	r := rand.New(rand.NewPCG(13, 14))
+	dg := Dims{Rows: 2, In: 3, Hidden: 4, Out: 2}
+	x, sep := randLayer(r, dg, true, true)
+	fused := Weights[float64]{Fused: fuse(sep.W1, sep.V, dg.In, dg.Hidden, GateUpStacked),
+		FusedBias: append(append([]float64(nil), sep.B1...), sep.C...), W2: sep.W2, B2: sep.B2}
+	ys, err := Forward(x, dg, sep, Options{Act: ActSiLU, Gated: true})
+	require.NoError(t, err)
+	yz, err := Forward(x, dg, fused, Options{Act: ActSiLU, Gated: true})
+	require.NoError(t, err)
+	assert.Equal(t, ys, yz)
+}
+
 func TestStrings(t *testing.T) {
-	assert.Equal(t, "gelu_tanh", ActGELUTanh.String())
-	assert.Equal(t, "Act(0)", Act(0).String())
-	assert.Equal(t, "OutByIn", OutByIn.String())
-	assert.Equal(t, "GateUpInterleaved", GateUpInterleaved.String())
+	assert.Equal(t, "gelu-tanh", ActGELUTanh.String())
+	assert.Equal(t, "relu", Act(0).String())
+	assert.Equal(t, "Act(99)", Act(99).String())
+	assert.Equal(t, "in-by-out", Layout(0).String())
+	assert.Equal(t, "out-by-in", OutByIn.String())
+	assert.Equal(t, "Layout(2)", Layout(2).String())
+	assert.Equal(t, "stacked", Packing(0).String())
+	assert.Equal(t, "interleaved", GateUpInterleaved.String())
 	assert.Equal(t, "Packing(7)", Packing(7).String())
+}
+
+// TestWords checks the words of Act, Layout and Packing: every constant has
+// one, in the order of the constants with the zero value first; each reads
+// back to its value; other text is an error wrapping ErrOption that lists
+// the words and leaves the value alone.
+func TestWords(t *testing.T) {
+	assert.Equal(t, []Act{ActReLU, ActGELU, ActGELUTanh, ActGELUSigmoid, ActSigmoid, ActSiLU, ActSwish, ActIdentity}, Act(0).Values())
+	assert.Equal(t, []Layout{InByOut, OutByIn}, Layout(0).Values())
+	assert.Equal(t, []Packing{GateUpStacked, GateUpInterleaved}, Packing(0).Values())
+	for _, a := range Act(0).Values() {
+		b, err := a.MarshalText()
+		require.NoError(t, err)
+		var back Act = 99
+		require.NoError(t, back.UnmarshalText(b))
+		assert.Equal(t, a, back)
+		assert.NoError(t, a.Check())
+		assert.NotEmpty(t, a.Meaning())
+	}
+	for _, l := range Layout(0).Values() {
+		b, err := l.MarshalText()
+		require.NoError(t, err)
+		var back Layout = 9
+		require.NoError(t, back.UnmarshalText(b))
+		assert.Equal(t, l, back)
+		assert.NotEmpty(t, l.Meaning())
+	}
+	for _, p := range Packing(0).Values() {
+		b, err := p.MarshalText()
+		require.NoError(t, err)
+		var back Packing = 9
+		require.NoError(t, back.UnmarshalText(b))
+		assert.Equal(t, p, back)
+		assert.NotEmpty(t, p.Meaning())
+	}
+	a := ActSwish
+	err := a.UnmarshalText([]byte("gelu_tanh"))
+	require.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
+	assert.Equal(t, `ffn: bad option: activation = "gelu_tanh"; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity`, err.Error())
+	assert.Equal(t, ActSwish, a)
+	var l Layout
+	require.NoError(t, l.UnmarshalText([]byte(" OUT-BY-IN ")), "words are read without regard to case and surrounding space")
+	assert.Equal(t, OutByIn, l)
+	assert.ErrorIs(t, l.UnmarshalText([]byte("in_by_out")), ErrOption)
+	assert.Equal(t, OutByIn, l)
+	var p Packing
+	assert.ErrorIs(t, p.UnmarshalText([]byte("GateUpInterleaved")), ErrOption)
+	_, err = Act(99).MarshalText()
+	assert.ErrorIs(t, err, ErrOption)
+	assert.ErrorIs(t, Layout(2).Check(), ErrOption)
+	assert.ErrorIs(t, Packing(2).Check(), ErrOption)
 }
 
 // FuzzForward: any sizes and slice lengths give either an error wrapping
@@ -609,7 +711,7 @@ func FuzzActivations(f *testing.F) {
 		if math.IsNaN(x) || math.IsInf(x, 0) || math.IsNaN(beta) || math.IsInf(beta, 0) {
 			return
 		}
-		for a := ActIdentity; a <= ActSwish; a++ {
+		for _, a := range Act(0).Values() {
 			b := 0.0
 			if a == ActSwish {
 				b = beta

@@ -37,22 +37,32 @@ const (
 	layer32Bound = 1e-5
 )
 
+// actConfig is the "config" object of the cases in
+// testdata/golden/ffn/activations.json (testdata/gen/fam_ffn.py), with the
+// keys of the activation operation (ops/ffn.go): the activation by its
+// word, which json decodes.
 type actConfig struct {
-	Activation string   `json:"activation"`
-	Beta       *float64 `json:"beta"`
-	Part       string   `json:"part"`
+	Function Act      `json:"function"`
+	Beta     *float64 `json:"beta"`
+	Part     string   `json:"part"` // "core", "tail" or "far"
 }
 
-var actByName = map[string]Act{
-	"identity": ActIdentity, "relu": ActReLU, "gelu": ActGELU, "gelu_tanh": ActGELUTanh,
-	"gelu_sigmoid": ActGELUSigmoid, "sigmoid": ActSigmoid, "silu": ActSiLU, "swish": ActSwish,
+func decodeActConfig(t *testing.T, c *golden.Case) actConfig {
+	t.Helper()
+	var cfg actConfig
+	require.NoError(t, c.DecodeConfig(&cfg))
+	require.Contains(t, []string{"core", "tail", "far"}, cfg.Part, c.String())
+	return cfg
 }
 
 // scalarFuncs maps each activation to its exported scalar function and
 // derivative, so that the golden check covers the scalar API as well as
-// Activate.
+// Activate. The identity has no scalar function: it is φ(x) = x with slope
+// 1 (NaN at NaN, which the golden inputs do not hold).
 func scalarFuncs(a Act, beta float64) (f, df func(float64) float64) {
 	switch a {
+	case ActIdentity:
+		return func(x float64) float64 { return x }, func(float64) float64 { return 1 }
 	case ActReLU:
 		return ReLU, ReLUDeriv
 	case ActGELU:
@@ -99,10 +109,8 @@ func TestGoldenActivations(t *testing.T) {
 	worst := map[string]float64{}
 	for _, c := range f.Cases {
 		t.Run(c.Name, func(t *testing.T) {
-			var cfg actConfig
-			require.NoError(t, c.DecodeConfig(&cfg))
-			a, ok := actByName[cfg.Activation]
-			require.True(t, ok, "unknown activation %q", cfg.Activation)
+			cfg := decodeActConfig(t, c)
+			a := cfg.Function
 			beta := 0.0
 			if cfg.Beta != nil {
 				beta = *cfg.Beta
@@ -138,14 +146,18 @@ func TestGoldenActivations(t *testing.T) {
 				assert.LessOrEqual(t, ey, actCoreBound, golden.Describe(c, "y", ey, actCoreBound))
 				assert.LessOrEqual(t, ed, actCoreBound, golden.Describe(c, "dydx", ed, actCoreBound))
 				worst[key+" normwise"] = max(worst[key+" normwise"], ey)
-				worst[key+"Deriv normwise"] = max(worst[key+"Deriv normwise"], ed)
-			case "tail":
+				worst[key+" derivative normwise"] = max(worst[key+" derivative normwise"], ed)
+			case "tail", "far":
+				// far: |βx| > 30, where values and slopes are within a
+				// rounding of x, 1 or 0 (or, for the lower tails of the
+				// sigmoids and the exact GELU, normal numbers down to
+				// 1e-282): the same relative bound as the tails.
 				ey := maxRelErr(y, wantY)
 				ed := maxRelErr(d, wantD)
-				assert.LessOrEqual(t, ey, actTailBound, "%s: y: largest relative error %.3g in the tail exceeds %.3g", c, ey, actTailBound)
-				assert.LessOrEqual(t, ed, actTailBound, "%s: dydx: largest relative error %.3g in the tail exceeds %.3g", c, ed, actTailBound)
-				worst[key+" tail relative"] = max(worst[key+" tail relative"], ey)
-				worst[key+"Deriv tail relative"] = max(worst[key+"Deriv tail relative"], ed)
+				assert.LessOrEqual(t, ey, actTailBound, "%s: y: largest relative error %.3g in the %s part exceeds %.3g", c, ey, cfg.Part, actTailBound)
+				assert.LessOrEqual(t, ed, actTailBound, "%s: dydx: largest relative error %.3g in the %s part exceeds %.3g", c, ed, cfg.Part, actTailBound)
+				worst[key+" "+cfg.Part+" relative"] = max(worst[key+" "+cfg.Part+" relative"], ey)
+				worst[key+" derivative "+cfg.Part+" relative"] = max(worst[key+" derivative "+cfg.Part+" relative"], ed)
 			default:
 				t.Fatalf("%s: unknown part %q", c, cfg.Part)
 			}
@@ -170,18 +182,32 @@ func TestGoldenActivations(t *testing.T) {
 	}
 }
 
+// layerConfig is the "config" object of the cases in
+// testdata/golden/ffn/{plain,gated}.json (testdata/gen/fam_ffn.py), with
+// the keys of the ffn operations (ops/ffn.go) for the options: the
+// convention fields hold their words, which json decodes. Packing is
+// present for a fused weight only.
 type layerConfig struct {
-	Activation string   `json:"activation"`
+	Activation Act      `json:"activation"`
 	Beta       *float64 `json:"beta"`
 	Gated      bool     `json:"gated"`
-	Layout     string   `json:"layout"`
-	Storage    string   `json:"storage"`
-	Packing    string   `json:"packing"`
+	Layout     Layout   `json:"layout"`
+	Storage    string   `json:"storage"` // "separate" or "fused"
+	Packing    *Packing `json:"packing"`
 	Rows       int      `json:"rows"`
 	In         int      `json:"in"`
 	Hidden     int      `json:"hidden"`
 	Out        int      `json:"out"`
 	Biases     bool     `json:"biases"`
+}
+
+func decodeLayerConfig(t *testing.T, c *golden.Case) layerConfig {
+	t.Helper()
+	var cfg layerConfig
+	require.NoError(t, c.DecodeConfig(&cfg))
+	require.Contains(t, []string{"separate", "fused"}, cfg.Storage, c.String())
+	require.Equal(t, cfg.Storage == "fused", cfg.Packing != nil, "%s: a packing with a fused weight, and only then", c)
+	return cfg
 }
 
 // goldenLayer is one decoded layer case.
@@ -196,17 +222,15 @@ type goldenLayer struct {
 
 func loadLayer(t *testing.T, c *golden.Case) goldenLayer {
 	t.Helper()
-	var cfg layerConfig
-	require.NoError(t, c.DecodeConfig(&cfg))
-	a, ok := actByName[cfg.Activation]
-	require.True(t, ok, "unknown activation %q", cfg.Activation)
+	cfg := decodeLayerConfig(t, c)
 	g := goldenLayer{d: Dims{cfg.Rows, cfg.In, cfg.Hidden, cfg.Out}, want: map[string][]float64{}}
-	g.o = Options{Act: a, Gated: cfg.Gated}
+	g.o = Options{Act: cfg.Activation, Gated: cfg.Gated, Layout: cfg.Layout}
 	if cfg.Beta != nil {
 		g.o.Beta = *cfg.Beta
 	}
-	g.o.Layout = map[string]Layout{"in_by_out": InByOut, "out_by_in": OutByIn}[cfg.Layout]
-	g.o.Packing = map[string]Packing{"stacked": GateUpStacked, "interleaved": GateUpInterleaved, "": 0}[cfg.Packing]
+	if cfg.Packing != nil {
+		g.o.Packing = *cfg.Packing
+	}
 	get := func(name string) []float64 {
 		if !c.Has(name) {
 			return nil
@@ -218,6 +242,7 @@ func loadLayer(t *testing.T, c *golden.Case) goldenLayer {
 	g.x, g.dy = get("x"), get("dy")
 	g.w = Weights[float64]{W1: get("w1"), B1: get("b1"), V: get("v"), C: get("c"),
 		Fused: get("fused"), FusedBias: get("fused_bias"), W2: get("w2"), B2: get("b2")}
+	require.Equal(t, cfg.Storage == "fused", g.w.Fused != nil, "%s: storage %q and the fused input", c, cfg.Storage)
 	for name := range c.Outputs {
 		g.want[name] = get(name)
 	}
@@ -316,6 +341,28 @@ func mapKeys[V any](m map[string]V) []string {
 
 func TestGoldenPlain(t *testing.T) { testGoldenLayers(t, "plain") }
 func TestGoldenGated(t *testing.T) { testGoldenLayers(t, "gated") }
+
+// TestGoldenWords checks that the golden cases use every word of the
+// package's conventions (every activation, weight layout and packing): a
+// word no case holds is a convention no 50-digit value checks. It also
+// keeps the case counts the package documentation states.
+func TestGoldenWords(t *testing.T) {
+	var words golden.Words
+	count := map[string]int{}
+	for _, c := range golden.MustLoadFamily(t, "ffn", "activations").Cases {
+		words.Note(decodeActConfig(t, c))
+		count["activations"]++
+	}
+	for _, fam := range []string{"plain", "gated"} {
+		for _, c := range golden.MustLoadFamily(t, "ffn", fam).Cases {
+			words.Note(decodeLayerConfig(t, c))
+			count[fam]++
+		}
+	}
+	// Forward's documentation states the plain and gated counts.
+	assert.Equal(t, map[string]int{"activations": 32, "plain": 34, "gated": 48}, count)
+	words.Require(t, "ffn.Act", "ffn.Layout", "ffn.Packing")
+}
 
 func TestGoldenHiddenSize(t *testing.T) {
 	f := golden.MustLoadFamily(t, "ffn", "hidden_size")

@@ -5,39 +5,56 @@ import (
 	"math"
 
 	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
-// Act names an activation function φ. The zero value is not an activation:
-// a layer must name its φ.
+// Act names an activation function φ. The zero value is ActReLU, the
+// activation of the two-layer FFN of Vaswani et al. 2017, Eq. (2).
 type Act int
 
 // The activations. Each is documented at its scalar function.
 const (
-	ActIdentity    Act = iota + 1 // φ(x) = x (the Bilinear gated unit)
-	ActReLU                       // ReLU
-	ActGELU                       // GELU, exact (erf) form
-	ActGELUTanh                   // GELUTanh, the tanh approximation
-	ActGELUSigmoid                // GELUSigmoid, x·σ(1.702x)
-	ActSigmoid                    // Sigmoid (the GLU gated unit)
-	ActSiLU                       // SiLU = Swish with β = 1
-	ActSwish                      // Swish with Options.Beta
+	ActReLU        Act = iota // ReLU
+	ActGELU                   // GELU, exact (erf) form
+	ActGELUTanh               // GELUTanh, the tanh approximation
+	ActGELUSigmoid            // GELUSigmoid, x·σ(1.702x)
+	ActSigmoid                // Sigmoid (the GLU gated unit)
+	ActSiLU                   // SiLU = Swish with β = 1
+	ActSwish                  // Swish with Options.Beta
+	ActIdentity               // φ(x) = x (the Bilinear gated unit)
 )
 
-var actNames = [...]string{
-	ActIdentity: "identity", ActReLU: "relu", ActGELU: "gelu", ActGELUTanh: "gelu_tanh",
-	ActGELUSigmoid: "gelu_sigmoid", ActSigmoid: "sigmoid", ActSiLU: "silu", ActSwish: "swish",
-}
+var actWords = vocab.New("ffn", "activation", "the activation function φ", ErrOption,
+	vocab.W(ActReLU, "relu", "max(x, 0)"),
+	vocab.W(ActGELU, "gelu", "x·Φ(x), Φ the normal distribution function (exact, through erf)"),
+	vocab.W(ActGELUTanh, "gelu-tanh", "the tanh approximation x/2·(1 + tanh(√(2/π)·(x + 0.044715x³)))"),
+	vocab.W(ActGELUSigmoid, "gelu-sigmoid", "the sigmoid approximation x·σ(1.702x)"),
+	vocab.W(ActSigmoid, "sigmoid", "σ(x) = 1/(1 + e^(−x))"),
+	vocab.W(ActSiLU, "silu", "x·σ(x), Swish with β = 1"),
+	vocab.W(ActSwish, "swish", "x·σ(βx) with the given β"),
+	vocab.W(ActIdentity, "identity", "φ(x) = x"),
+)
 
-// String returns the activation's short name ("gelu_tanh"), or "Act(n)"
-// for a value that names none.
-func (a Act) String() string {
-	if a.valid() {
-		return actNames[a]
-	}
-	return fmt.Sprintf("Act(%d)", int(a))
-}
+// String returns a's word ("relu").
+func (a Act) String() string { return actWords.String(a) }
 
-func (a Act) valid() bool { return a >= ActIdentity && a <= ActSwish }
+// MarshalText returns a's word; a value with none is an error wrapping
+// ErrOption.
+func (a Act) MarshalText() ([]byte, error) { return actWords.Marshal(a) }
+
+// UnmarshalText sets a from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (a *Act) UnmarshalText(b []byte) error { return actWords.Unmarshal(a, b) }
+
+// Meaning returns one line saying what a means.
+func (a Act) Meaning() string { return actWords.Meaning(a) }
+
+// Values lists every Act, the zero value first.
+func (Act) Values() []Act { return actWords.Values() }
+
+// Check returns nil if a is one of the Act constants, or an error
+// wrapping ErrOption that lists the words.
+func (a Act) Check() error { return actWords.Check(a) }
 
 // Layout says how a weight matrix of a projection from m inputs to n
 // outputs is stored in its flat slice. Sources write the product both
@@ -45,28 +62,44 @@ func (a Act) valid() bool { return a >= ActIdentity && a <= ActSwish }
 // shape [in, out] (Vaswani et al. 2017, arXiv 1706.03762, Eq. (2);
 // Shazeer 2020, arXiv 2002.05202, Eq. (1)–(6)), while a linear layer that
 // keeps one row per output unit stores [out, in] and computes x·Wᵀ. The
-// zero value is not a layout: the caller must say which.
+// zero value is InByOut, the papers' xW.
 type Layout int
 
 const (
 	// InByOut stores W as [in, out], row-major: element (i, j), input i to
-	// output j, is w[i·out + j], and the projection is y = x·W.
-	InByOut Layout = iota + 1
+	// output j, is w[i·out + j], and the projection is y = x·W. The zero
+	// value.
+	InByOut Layout = iota
 	// OutByIn stores W as [out, in], row-major: element (i, j) is
 	// w[j·in + i], one row per output unit, and the projection is y = x·Wᵀ.
 	OutByIn
 )
 
-// String returns "InByOut" or "OutByIn", or "Layout(n)".
-func (l Layout) String() string {
-	switch l {
-	case InByOut:
-		return "InByOut"
-	case OutByIn:
-		return "OutByIn"
-	}
-	return fmt.Sprintf("Layout(%d)", int(l))
-}
+var layoutWords = vocab.New("ffn", "weight layout", "how a weight matrix is stored", ErrOption,
+	vocab.W(InByOut, "in-by-out", "[in, out] row-major, y = x·W, as the papers write it"),
+	vocab.W(OutByIn, "out-by-in", "[out, in] row-major, one row per output unit, y = x·Wᵀ"),
+)
+
+// String returns l's word ("in-by-out").
+func (l Layout) String() string { return layoutWords.String(l) }
+
+// MarshalText returns l's word; a value with none is an error wrapping
+// ErrOption.
+func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
+
+// UnmarshalText sets l from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
+
+// Meaning returns one line saying what l means.
+func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
+
+// Values lists every Layout, the zero value first.
+func (Layout) Values() []Layout { return layoutWords.Values() }
+
+// Check returns nil if l is one of the Layout constants, or an error
+// wrapping ErrOption that lists the words.
+func (l Layout) Check() error { return layoutWords.Check(l) }
 
 // Packing says how one fused projection of width 2·Hidden holds the gate
 // projection W and the value projection V of a gated unit. It speaks of
@@ -77,29 +110,46 @@ type Packing int
 
 const (
 	// GateUpStacked puts all gate units first, then all value units: gate
-	// unit j is fused unit j, value unit j is fused unit Hidden + j.
-	GateUpStacked Packing = iota + 1
+	// unit j is fused unit j, value unit j is fused unit Hidden + j. The
+	// zero value.
+	GateUpStacked Packing = iota
 	// GateUpInterleaved alternates them: gate unit j is fused unit 2j,
 	// value unit j is fused unit 2j + 1.
 	GateUpInterleaved
 )
 
-// String returns "GateUpStacked" or "GateUpInterleaved", or "Packing(n)".
-func (p Packing) String() string {
-	switch p {
-	case GateUpStacked:
-		return "GateUpStacked"
-	case GateUpInterleaved:
-		return "GateUpInterleaved"
-	}
-	return fmt.Sprintf("Packing(%d)", int(p))
-}
+var packingWords = vocab.New("ffn", "gate-up packing", "how one fused matrix holds the gate and value projections", ErrOption,
+	vocab.W(GateUpStacked, "stacked", "all gate units, then all value units"),
+	vocab.W(GateUpInterleaved, "interleaved", "gate and value units alternate: gate j is unit 2j, value j unit 2j + 1"),
+)
 
-// Options chooses the layer. Act and Layout must be set; Beta is read only
-// for ActSwish; Packing only when Weights.Fused is used.
+// String returns p's word ("stacked").
+func (p Packing) String() string { return packingWords.String(p) }
+
+// MarshalText returns p's word; a value with none is an error wrapping
+// ErrOption.
+func (p Packing) MarshalText() ([]byte, error) { return packingWords.Marshal(p) }
+
+// UnmarshalText sets p from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (p *Packing) UnmarshalText(b []byte) error { return packingWords.Unmarshal(p, b) }
+
+// Meaning returns one line saying what p means.
+func (p Packing) Meaning() string { return packingWords.Meaning(p) }
+
+// Values lists every Packing, the zero value first.
+func (Packing) Values() []Packing { return packingWords.Values() }
+
+// Check returns nil if p is one of the Packing constants, or an error
+// wrapping ErrOption that lists the words.
+func (p Packing) Check() error { return packingWords.Check(p) }
+
+// Options chooses the layer. The zero value is the plain two-layer ReLU
+// layer of Vaswani et al. 2017, Eq. (2), with [in, out] weights; Beta is
+// read only for ActSwish, Packing only when Weights.Fused is used.
 type Options struct {
 	// Act is φ: for a plain layer it is applied to xW₁ + b₁, for a gated
-	// unit to the gate xW + b.
+	// unit to the gate xW + b. The zero value is ActReLU.
 	Act Act
 	// Beta is Swish's β (ActSwish only; any finite value, 0 gives x/2).
 	// It must be 0 for every other activation.
@@ -107,9 +157,11 @@ type Options struct {
 	// Gated selects the gated units of Shazeer 2020:
 	// φ(xW + b) ⊗ (xV + c), then the down projection.
 	Gated bool
-	// Layout is the storage of every weight matrix of the layer.
+	// Layout is the storage of every weight matrix of the layer; the zero
+	// value is InByOut.
 	Layout Layout
-	// Packing is the arrangement of Weights.Fused and Weights.FusedBias.
+	// Packing is the arrangement of Weights.Fused and Weights.FusedBias;
+	// the zero value is GateUpStacked.
 	Packing Packing
 }
 
@@ -196,8 +248,8 @@ func checkDims(d Dims) error {
 }
 
 func checkActBeta(a Act, beta float64) error {
-	if !a.valid() {
-		return fmt.Errorf("%w: activation is %v, want one of ActIdentity … ActSwish", ErrOption, a)
+	if err := a.Check(); err != nil {
+		return err
 	}
 	if a == ActSwish {
 		if math.IsNaN(beta) || math.IsInf(beta, 0) {
@@ -253,8 +305,8 @@ func newPlan[T num.Float](d Dims, w *Weights[T], o Options) (*plan, error) {
 	if err := checkActBeta(o.Act, o.Beta); err != nil {
 		return nil, err
 	}
-	if o.Layout != InByOut && o.Layout != OutByIn {
-		return nil, fmt.Errorf("%w: Layout is %v, want InByOut ([in, out]) or OutByIn ([out, in])", ErrOption, o.Layout)
+	if err := o.Layout.Check(); err != nil {
+		return nil, err
 	}
 	p := &plan{d: d, o: o}
 	p.down = view{in: d.Hidden, cols: d.Out, layout: o.Layout, stride: 1}
@@ -309,16 +361,15 @@ func newPlan[T num.Float](d Dims, w *Weights[T], o Options) (*plan, error) {
 		p.fused = true
 		p.gateB = len(w.FusedBias) > 0
 		p.upB = p.gateB
+		if err := o.Packing.Check(); err != nil {
+			return nil, err
+		}
 		fv := view{in: d.In, cols: 2 * h, layout: o.Layout}
-		switch o.Packing {
-		case GateUpStacked:
-			p.gate, p.up = fv, fv
+		p.gate, p.up = fv, fv
+		if o.Packing == GateUpStacked {
 			p.gate.stride, p.up.stride, p.up.off = 1, 1, h
-		case GateUpInterleaved:
-			p.gate, p.up = fv, fv
+		} else {
 			p.gate.stride, p.up.stride, p.up.off = 2, 2, 1
-		default:
-			return nil, fmt.Errorf("%w: Packing is %v, want GateUpStacked or GateUpInterleaved for a fused weight", ErrOption, o.Packing)
 		}
 		return p, nil
 	}

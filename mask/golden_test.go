@@ -1,9 +1,6 @@
 package mask
 
 import (
-	"encoding/json"
-	"fmt"
-	"strings"
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
@@ -12,91 +9,72 @@ import (
 	"github.com/plumbref/plumb/internal/golden"
 )
 
-// spec is the mask description used in testdata/golden/mask/*.json (see
-// testdata/gen/fam_mask.py). A null band extent means unbounded.
-type spec struct {
-	Kind    string  `json:"kind"`
-	Before  *int    `json:"before"`
-	After   *int    `json:"after"`
-	N       int     `json:"n"`
-	P       int     `json:"p"`
-	Valid   []int   `json:"valid"`
-	Offsets []int   `json:"offsets"`
-	Block   string  `json:"block"`
-	Parts   []*spec `json:"parts"`
-}
-
+// goldenConfig is the config of a case of testdata/golden/mask/kinds.json
+// (see testdata/gen/fam_mask.py): the mask as a list of Specs, intersected,
+// and its geometry. Conventions are typed, so json decodes their words and
+// refuses any other.
 type goldenConfig struct {
-	Mask   *spec    `json:"mask"`
+	Mask   []Spec   `json:"mask"`
 	Batch  int      `json:"batch"`
 	Lq     int      `json:"lq"`
 	Lk     int      `json:"lk"`
-	Align  string   `json:"align"`
+	Align  Align    `json:"align"`
 	Offset int      `json:"offset"`
 	Fill   *float64 `json:"fill"`
 }
 
-func extentOf(p *int) int {
-	if p == nil {
-		return Unbounded
-	}
-	return *p
-}
-
-func (s *spec) build() (Mask, error) {
-	switch s.Kind {
-	case "full":
-		return Full(), nil
-	case "causal":
-		return Causal(), nil
-	case "band":
-		return Band(extentOf(s.Before), extentOf(s.After))
-	case "window":
-		return Window(s.N)
-	case "prefix":
-		return Prefix(s.P)
-	case "padding":
-		return KeyPadding(s.Valid)
-	case "packed":
-		b := BlockCausal
-		if s.Block == "full" {
-			b = BlockFull
-		}
-		return Packed(s.Offsets, b)
-	case "intersect":
-		var ms []Mask
-		for _, p := range s.Parts {
-			m, err := p.build()
-			if err != nil {
-				return Mask{}, err
-			}
-			ms = append(ms, m)
-		}
-		return Intersect(ms...)
-	}
-	return Mask{}, fmt.Errorf("unknown kind %q", s.Kind)
-}
-
 func (c goldenConfig) geometry() Geometry {
-	a := AlignEnd
-	if c.Align == "start" {
-		a = AlignStart
+	return Geometry{Batch: c.Batch, Lq: c.Lq, Lk: c.Lk, Align: c.Align, Offset: c.Offset}
+}
+
+// goldenCases is the number of cases in kinds.json, so that a case the
+// generator stops writing is noticed.
+const goldenCases = 37
+
+// goldenConventions are the conventions the mask family's configs hold;
+// every word of each must appear in some case.
+var goldenConventions = []string{"mask.Align", "mask.Kind", "mask.Block"}
+
+// inEffect is the part of a config whose words change the mask, for
+// golden.Words: the alignment only where Lq ≠ Lk and the mask uses
+// positions, the block only of packed entries.
+type inEffect struct {
+	Align  *Align
+	Kinds  []Kind
+	Blocks []Block
+}
+
+func effectOf(m Mask, cfg goldenConfig) inEffect {
+	var e inEffect
+	if cfg.Lq != cfg.Lk && m.UsesPositions() {
+		e.Align = &cfg.Align
 	}
-	return Geometry{Batch: c.Batch, Lq: c.Lq, Lk: c.Lk, Align: a, Offset: c.Offset}
+	for _, s := range cfg.Mask {
+		e.Kinds = append(e.Kinds, s.Kind)
+		if s.Kind == KindPacked {
+			e.Blocks = append(e.Blocks, s.Block)
+		}
+	}
+	return e
 }
 
 // TestGolden checks every mask against testdata/golden/mask/kinds.json,
 // made by testdata/gen/fam_mask.py from the definitions (sources in each
-// case). Masks are exact: booleans and biases must match bit for bit.
+// case). Masks are exact: booleans and biases must match bit for bit. It
+// also requires every word of the conventions the configs use to appear in
+// a case where it changes the mask (golden.Words).
 func TestGolden(t *testing.T) {
 	f := golden.MustLoadFamily(t, "mask", "kinds")
-	require.GreaterOrEqual(t, len(f.Cases), 30)
+	require.Len(t, f.Cases, goldenCases)
+	var noted, effective golden.Words
 	for _, c := range f.Cases {
+		var cfg goldenConfig
+		require.NoError(t, c.DecodeConfig(&cfg))
+		noted.Note(cfg)
 		t.Run(c.Name, func(t *testing.T) {
-			var cfg goldenConfig
-			require.NoError(t, c.DecodeConfig(&cfg))
-			m, err := cfg.Mask.build()
+			m, err := Build(cfg.Mask)
 			require.NoError(t, err)
+			effective.Note(effectOf(m, cfg))
 			g := cfg.geometry()
 
 			wantVis, shape, err := c.Bools("visible")
@@ -141,18 +119,23 @@ func TestGolden(t *testing.T) {
 			}
 		})
 	}
+	noted.Require(t, goldenConventions...)
+	effective.Require(t, goldenConventions...)
 }
 
-// TestGoldenSpecRoundTrip guards the test's own decoding: a band with a null
-// extent is unbounded, and a config with an unknown key is refused.
-func TestGoldenSpecRoundTrip(t *testing.T) {
-	var s spec
-	require.NoError(t, json.Unmarshal([]byte(`{"kind":"band","before":null,"after":2}`), &s))
-	m, err := s.build()
-	require.NoError(t, err)
-	require.Equal(t, "Band(Unbounded, 2)", m.String())
-	var c goldenConfig
-	d := json.NewDecoder(strings.NewReader(`{"mask":{"kind":"full"},"lanes":3}`))
-	d.DisallowUnknownFields()
-	require.Error(t, d.Decode(&c))
+// TestGoldenConfigStrict guards the test's own decoding: a config with an
+// unknown key, or a word that is not one of the convention's, is refused.
+func TestGoldenConfigStrict(t *testing.T) {
+	f := golden.MustLoadFamily(t, "mask", "kinds")
+	c := *f.Cases[0]
+	for _, bad := range []string{
+		`{"mask":[{"kind":"full"}],"batch":1,"lq":1,"lk":1,"lanes":3}`,
+		`{"mask":[{"kind":"full"}],"batch":1,"lq":1,"lk":1,"align":"AlignEnd"}`,
+		`{"mask":[{"kind":"padding","valid":[1]}],"batch":1,"lq":1,"lk":1}`,
+		`{"mask":{"kind":"full"},"batch":1,"lq":1,"lk":1}`,
+	} {
+		c.Config = []byte(bad)
+		var cfg goldenConfig
+		require.Error(t, c.DecodeConfig(&cfg), bad)
+	}
 }

@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"math"
 	"strings"
+
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // Sentinel errors. Every error returned by this package wraps exactly one of
@@ -32,6 +34,14 @@ var (
 	// ErrBlock: a packed-sequence block kind that is not BlockCausal or
 	// BlockFull.
 	ErrBlock = errors.New("mask: invalid block kind")
+	// ErrKind: a mask kind that is not one of the Kind constants.
+	ErrKind = errors.New("mask: invalid mask kind")
+	// ErrALiBi: an ALiBi form that is not one of the ALiBiForm constants.
+	ErrALiBi = errors.New("mask: invalid ALiBi form")
+	// ErrSpec: a Spec in JSON that is not an object, lacks its kind or a
+	// key its kind needs, holds a key of another kind, or a null value or
+	// one of the wrong JSON type.
+	ErrSpec = errors.New("mask: invalid mask description")
 	// ErrFill: a NaN or +Inf bias fill.
 	ErrFill = errors.New("mask: invalid fill")
 	// ErrEmpty: an intersection of no masks, or a zero Mask value.
@@ -57,36 +67,115 @@ const (
 	AlignStart
 )
 
-func (a Align) String() string {
-	switch a {
-	case AlignEnd:
-		return "AlignEnd"
-	case AlignStart:
-		return "AlignStart"
-	}
-	return fmt.Sprintf("Align(%d)", int(a))
-}
+var alignWords = vocab.New("mask", "alignment", "where query i sits among the keys when there are fewer queries than keys", ErrAlign,
+	vocab.W(AlignEnd, "end", "the last query sits at the last key: position Lk − Lq + i (+ offset)"),
+	vocab.W(AlignStart, "start", "query i sits at key position i (+ offset)"),
+)
+
+// String returns a's word, "end" or "start".
+func (a Align) String() string { return alignWords.String(a) }
+
+// MarshalText returns a's word; a value with none is an error wrapping
+// ErrAlign.
+func (a Align) MarshalText() ([]byte, error) { return alignWords.Marshal(a) }
+
+// UnmarshalText sets a from its word; any other text is an error wrapping
+// ErrAlign that lists the words.
+func (a *Align) UnmarshalText(b []byte) error { return alignWords.Unmarshal(a, b) }
+
+// Meaning returns one line saying what a means.
+func (a Align) Meaning() string { return alignWords.Meaning(a) }
+
+// Values lists every Align, the zero value first.
+func (Align) Values() []Align { return alignWords.Values() }
+
+// Check returns nil if a is one of the Align constants, or an error
+// wrapping ErrAlign that lists the words.
+func (a Align) Check() error { return alignWords.Check(a) }
 
 // Block is the visibility inside one packed sequence.
 type Block int
 
 const (
 	// BlockCausal: within a sequence, key j is visible to query position p
-	// iff j ≤ p.
+	// iff j ≤ p. The zero value.
 	BlockCausal Block = iota
 	// BlockFull: within a sequence, every key is visible.
 	BlockFull
 )
 
-func (b Block) String() string {
-	switch b {
-	case BlockCausal:
-		return "BlockCausal"
-	case BlockFull:
-		return "BlockFull"
-	}
-	return fmt.Sprintf("Block(%d)", int(b))
-}
+var blockWords = vocab.New("mask", "block kind", "what a query sees inside its own packed sequence", ErrBlock,
+	vocab.W(BlockCausal, "causal", "keys of the query's own sequence up to the query"),
+	vocab.W(BlockFull, "full", "every key of the query's own sequence"),
+)
+
+// String returns b's word, "causal" or "full".
+func (b Block) String() string { return blockWords.String(b) }
+
+// MarshalText returns b's word; a value with none is an error wrapping
+// ErrBlock.
+func (b Block) MarshalText() ([]byte, error) { return blockWords.Marshal(b) }
+
+// UnmarshalText sets b from its word; any other text is an error wrapping
+// ErrBlock that lists the words.
+func (b *Block) UnmarshalText(t []byte) error { return blockWords.Unmarshal(b, t) }
+
+// Meaning returns one line saying what b means.
+func (b Block) Meaning() string { return blockWords.Meaning(b) }
+
+// Values lists every Block, the zero value first.
+func (Block) Values() []Block { return blockWords.Values() }
+
+// Check returns nil if b is one of the Block constants, or an error
+// wrapping ErrBlock that lists the words.
+func (b Block) Check() error { return blockWords.Check(b) }
+
+// Kind names the kinds of mask, one per constructor, for configurations
+// that build a mask from words (an intersection is a list of them). The
+// zero value is KindFull, the mask a caller gets when it sets none.
+type Kind int
+
+// The kinds, in the order of their constructors.
+const (
+	KindFull       Kind = iota // Full
+	KindCausal                 // Causal
+	KindBand                   // Band(before, after)
+	KindWindow                 // Window(n)
+	KindPrefix                 // Prefix(p)
+	KindKeyPadding             // KeyPadding(valid)
+	KindPacked                 // Packed(offsets, block)
+)
+
+var kindWords = vocab.New("mask", "mask kind", "which keys each query may see", ErrKind,
+	vocab.W(KindFull, "full", "every key"),
+	vocab.W(KindCausal, "causal", "keys up to the query's own position"),
+	vocab.W(KindBand, "band", "keys j with −before ≤ j − p ≤ after, either side possibly unbounded"),
+	vocab.W(KindWindow, "window", "the n keys ending at the query, the query included"),
+	vocab.W(KindPrefix, "prefix", "keys below a prefix length to every query, causal after it"),
+	vocab.W(KindKeyPadding, "key-padding", "the first valid[b] keys of batch entry b"),
+	vocab.W(KindPacked, "packed", "keys of the query's own packed sequence, causal or full inside it"),
+)
+
+// String returns k's word ("key-padding").
+func (k Kind) String() string { return kindWords.String(k) }
+
+// MarshalText returns k's word; a value with none is an error wrapping
+// ErrKind.
+func (k Kind) MarshalText() ([]byte, error) { return kindWords.Marshal(k) }
+
+// UnmarshalText sets k from its word; any other text is an error wrapping
+// ErrKind that lists the words.
+func (k *Kind) UnmarshalText(b []byte) error { return kindWords.Unmarshal(k, b) }
+
+// Meaning returns one line saying what k means.
+func (k Kind) Meaning() string { return kindWords.Meaning(k) }
+
+// Values lists every Kind, the zero value first.
+func (Kind) Values() []Kind { return kindWords.Values() }
+
+// Check returns nil if k is one of the Kind constants, or an error
+// wrapping ErrKind that lists the words.
+func (k Kind) Check() error { return kindWords.Check(k) }
 
 // Geometry is the shape a mask is laid on: Batch entries of Lq queries by Lk
 // keys, and where the queries sit among the keys.
@@ -116,7 +205,7 @@ func (g Geometry) Pos(i int) int {
 }
 
 func (g Geometry) String() string {
-	return fmt.Sprintf("Batch=%d Lq=%d Lk=%d %v Offset=%d", g.Batch, g.Lq, g.Lk, g.Align, g.Offset)
+	return fmt.Sprintf("Batch=%d Lq=%d Lk=%d Align=%v Offset=%d", g.Batch, g.Lq, g.Lk, g.Align, g.Offset)
 }
 
 type kind int
@@ -212,8 +301,8 @@ func KeyPadding(valid []int) (Mask, error) {
 // Geometry). Query position p sees key j iff both lie in the same sequence
 // and, for BlockCausal, j ≤ p.
 func Packed(offsets []int, block Block) (Mask, error) {
-	if block != BlockCausal && block != BlockFull {
-		return Mask{}, fmt.Errorf("%w: Packed: block = %d", ErrBlock, int(block))
+	if err := blockWords.Check(block); err != nil {
+		return Mask{}, err
 	}
 	if len(offsets) < 2 {
 		return Mask{}, fmt.Errorf("%w: Packed: offsets = %v; want at least 2 entries (0 and the total length)", ErrSegments, offsets)
@@ -325,8 +414,8 @@ func (m Mask) Check(g Geometry) error {
 	if g.Lk < 0 {
 		return fmt.Errorf("%w: Lk = %d; want ≥ 0", ErrSize, g.Lk)
 	}
-	if g.Align != AlignEnd && g.Align != AlignStart {
-		return fmt.Errorf("%w: Align = %d; want AlignEnd or AlignStart", ErrAlign, int(g.Align))
+	if err := alignWords.Check(g.Align); err != nil {
+		return err
 	}
 	if hi := math.MaxInt / max(1, g.Lq) / max(1, g.Lk); g.Batch > hi {
 		return fmt.Errorf("%w: Batch×Lq×Lk = %d×%d×%d does not fit in an int", ErrSize, g.Batch, g.Lq, g.Lk)

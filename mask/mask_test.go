@@ -95,7 +95,7 @@ func TestErrors(t *testing.T) {
 		{"offsets not from 0", errPackedStart, ErrSegments, "offsets[0] = 1"},
 		{"offsets not increasing", errPackedOrder, ErrSegments, "offsets[2] = 3 after offsets[1] = 3"},
 		{"offsets too short", errPackedShort, ErrSegments, "offsets = [0]"},
-		{"block kind", errBlock, ErrBlock, "block = 7"},
+		{"block kind", errBlock, ErrBlock, "mask: invalid block kind: block kind = 7; want one of causal, full"},
 		{"no masks", errEmpty, ErrEmpty, "no masks given"},
 		{"zero mask in intersection", errZero, ErrEmpty, "masks[1] is the zero Mask"},
 		{"negative Lq", errNeg, ErrSize, "Lq = -1"},
@@ -106,7 +106,7 @@ func TestErrors(t *testing.T) {
 		{"more queries than keys, end-aligned", errLqGtLk, ErrOffset, "Lq = 5 queries cannot all sit among Lk = 4 keys"},
 		{"offset overflow", errOverflow, ErrOffset, "Offset = 9223372036854775806"},
 		{"size overflow", errHuge, ErrSize, "does not fit in an int"},
-		{"unknown alignment", errAlign, ErrAlign, "Align = 9"},
+		{"unknown alignment", errAlign, ErrAlign, "mask: invalid alignment: alignment = 9; want one of end, start"},
 		{"last offset not the total", errTotal, ErrSegments, "last offset = 5; want the key length Lk = 4"},
 		{"valid lengths per batch", errPadBatch, ErrValidLength, "2 valid lengths, Batch = 1"},
 		{"valid length past keys", errPadLong, ErrValidLength, "valid[1] = 3 exceeds Lk = 2"},
@@ -171,7 +171,7 @@ func TestStrings(t *testing.T) {
 		{must(t)(Window(4)), "Window(4)"},
 		{must(t)(Prefix(3)), "Prefix(3)"},
 		{must(t)(KeyPadding([]int{1, 2})), "KeyPadding([1 2])"},
-		{must(t)(Packed([]int{0, 3}, BlockFull)), "Packed([0 3], BlockFull)"},
+		{must(t)(Packed([]int{0, 3}, BlockFull)), "Packed([0 3], full)"},
 		{must(t)(Intersect(Causal(), must(t)(Window(2)))), "Intersect(Causal, Window(2))"},
 		{Mask{}, "Mask(none)"},
 	}
@@ -181,12 +181,24 @@ func TestStrings(t *testing.T) {
 	assert.True(t, Mask{}.IsZero())
 	assert.False(t, Full().IsZero())
 	assert.False(t, must(t)(Intersect(Causal())).IsZero())
-	assert.Equal(t, "AlignEnd", AlignEnd.String())
-	assert.Equal(t, "AlignStart", AlignStart.String())
+	// String is the word of mask/doc.go's conventions (vocabulary.json).
+	assert.Equal(t, "end", AlignEnd.String())
+	assert.Equal(t, "start", AlignStart.String())
 	assert.Equal(t, "Align(5)", Align(5).String())
-	assert.Equal(t, "BlockCausal", BlockCausal.String())
+	assert.Equal(t, "causal", BlockCausal.String())
+	assert.Equal(t, "full", BlockFull.String())
 	assert.Equal(t, "Block(3)", Block(3).String())
-	assert.Equal(t, "Batch=1 Lq=2 Lk=3 AlignStart Offset=1", Geometry{1, 2, 3, AlignStart, 1}.String())
+	assert.Equal(t, "Batch=1 Lq=2 Lk=3 Align=start Offset=1", Geometry{1, 2, 3, AlignStart, 1}.String())
+	var kinds []string
+	for _, k := range KindFull.Values() {
+		kinds = append(kinds, k.String())
+	}
+	assert.Equal(t, []string{"full", "causal", "band", "window", "prefix", "key-padding", "packed"}, kinds)
+	assert.Equal(t, "Kind(7)", Kind(7).String())
+	assert.Equal(t, "causal", ALiBiCausal.String())
+	assert.Equal(t, "symmetric", ALiBiSymmetric.String())
+	assert.Equal(t, "past-only", ALiBiPastOnly.String())
+	assert.Equal(t, "ALiBiForm(3)", ALiBiForm(3).String())
 }
 
 // randomGeometry draws lengths with Lq ≤ Lk and an alignment and offset

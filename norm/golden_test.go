@@ -11,35 +11,49 @@ import (
 )
 
 // goldenConfig is the "config" object of the cases in
-// testdata/golden/norm/*.json, written by testdata/gen/fam_norm.py.
+// testdata/golden/norm/*.json, written by testdata/gen/fam_norm.py. The
+// convention fields hold their words, under the keys of the norm
+// operations (ops/norm.go), and json decodes them.
 type goldenConfig struct {
-	Kind      string  `json:"kind"` // "layer" or "rms"
-	D         int     `json:"d"`
-	Epsilon   float64 `json:"epsilon"`
-	Placement string  `json:"placement"` // "in_root" or "added_to_root"
-	Weight    string  `json:"weight"`    // "none", "as_is" or "one_plus"
-	Bias      bool    `json:"bias"`
+	Kind       string           `json:"kind"` // "layer" or "rms"
+	D          int              `json:"d"`
+	Epsilon    float64          `json:"epsilon"`
+	Placement  EpsilonPlacement `json:"epsilon_placement"`
+	Weighted   bool             `json:"weighted"` // whether the case has a weight tensor
+	WeightForm WeightForm       `json:"weight_form"`
+	Bias       bool             `json:"bias"`
 }
 
-func (c goldenConfig) options(t *testing.T) Options {
-	o := Options{Epsilon: c.Epsilon}
-	switch c.Placement {
-	case "in_root":
-		o.Placement = EpsilonInRoot
-	case "added_to_root":
-		o.Placement = EpsilonAddedToRoot
-	default:
-		t.Fatalf("unknown placement %q", c.Placement)
+func (c goldenConfig) options() Options {
+	return Options{Epsilon: c.Epsilon, Placement: c.Placement, Weight: c.WeightForm}
+}
+
+// goldenFamilies are the files of testdata/golden/norm.
+var goldenFamilies = []string{"layernorm", "rmsnorm", "addnorm"}
+
+// decodeConfig decodes a case's config, refusing unknown keys and words.
+func decodeConfig(t *testing.T, c *golden.Case) goldenConfig {
+	t.Helper()
+	var cfg goldenConfig
+	require.NoError(t, c.DecodeConfig(&cfg))
+	require.Contains(t, []string{"layer", "rms"}, cfg.Kind, c.String())
+	return cfg
+}
+
+// TestGoldenWords checks that the golden cases use every word of the
+// conventions of the package: a word no case holds is a convention no
+// 50-digit value checks.
+func TestGoldenWords(t *testing.T) {
+	var words golden.Words
+	n := 0
+	for _, fam := range goldenFamilies {
+		for _, c := range golden.MustLoadFamily(t, "norm", fam).Cases {
+			words.Note(decodeConfig(t, c))
+			n++
+		}
 	}
-	switch c.Weight {
-	case "none", "as_is":
-		o.Weight = WeightAsIs
-	case "one_plus":
-		o.Weight = WeightOnePlus
-	default:
-		t.Fatalf("unknown weight form %q", c.Weight)
-	}
-	return o
+	assert.Equal(t, 52, n, "cases in %v (testdata/gen/fam_norm.py)", goldenFamilies)
+	words.Require(t, "norm.EpsilonPlacement", "norm.WeightForm")
 }
 
 // goldenTol is the bound on the normwise relative error against the
@@ -90,18 +104,20 @@ func check(t *testing.T, w worst, c *golden.Case, fn, name string, got []float64
 
 func TestGolden(t *testing.T) {
 	w := worst{}
-	for _, fam := range []string{"layernorm", "rmsnorm", "addnorm"} {
+	for _, fam := range goldenFamilies {
 		f := golden.MustLoadFamily(t, "norm", fam)
 		for _, c := range f.Cases {
 			t.Run(fam+"/"+c.Name, func(t *testing.T) {
-				var cfg goldenConfig
-				require.NoError(t, c.DecodeConfig(&cfg))
-				o := cfg.options(t)
+				cfg := decodeConfig(t, c)
+				o := cfg.options()
 				x := floatOr(t, c, "x")
 				weight := floatOr(t, c, "weight")
 				bias := floatOr(t, c, "bias")
 				dy := floatOr(t, c, "dy")
-				require.Equal(t, cfg.Weight != "none", weight != nil, "weight presence")
+				require.Equal(t, cfg.Weighted, weight != nil, "weight presence")
+				if !cfg.Weighted {
+					require.Equal(t, WeightAsIs, cfg.WeightForm, "a case without a weight has the default weight form")
+				}
 				require.Equal(t, cfg.Bias, bias != nil, "bias presence")
 				layer := cfg.Kind == "layer"
 				var (

@@ -20,16 +20,6 @@ func exponent(x float64) int {
 	return e
 }
 
-// twoSum returns s = fl(a+b) and the exact rounding error e, a+b = s+e
-// (Knuth, The Art of Computer Programming, vol. 2, §4.2.2). It has no
-// multiplication, so no fusion can change it.
-func twoSum[T num.Float](a, b T) (s, e T) {
-	s = a + b
-	bb := s - a
-	e = (a - (s - bb)) + (b - bb)
-	return s, e
-}
-
 // mean2 returns the mean of v as an unevaluated sum hi+lo, accurate to about
 // twice the working precision: the sum is the compensated sum of Ogita,
 // Rump & Oishi 2005 ("Accurate Sum and Dot Product", SIAM J. Sci. Comput.
@@ -39,7 +29,7 @@ func mean2[T num.Float](v []T) (hi, lo T) {
 	var s, c T
 	for _, x := range v {
 		var e T
-		s, e = twoSum(s, x)
+		s, e = num.TwoSum(s, x)
 		c += e
 	}
 	n := T(len(v))

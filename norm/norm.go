@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // Errors. Every error the package returns wraps exactly one of these
@@ -34,16 +35,31 @@ const (
 	EpsilonAddedToRoot
 )
 
-// String returns the constant's name.
-func (p EpsilonPlacement) String() string {
-	switch p {
-	case EpsilonInRoot:
-		return "EpsilonInRoot"
-	case EpsilonAddedToRoot:
-		return "EpsilonAddedToRoot"
-	}
-	return fmt.Sprintf("EpsilonPlacement(%d)", int(p))
-}
+var placementWords = vocab.New("norm", "epsilon placement", "where epsilon enters the denominator", ErrOption,
+	vocab.W(EpsilonInRoot, "in-root", "divide by √(s² + ε)"),
+	vocab.W(EpsilonAddedToRoot, "added-to-root", "divide by √s² + ε"),
+)
+
+// String returns p's word ("in-root").
+func (p EpsilonPlacement) String() string { return placementWords.String(p) }
+
+// MarshalText returns p's word; a value with none is an error wrapping
+// ErrOption.
+func (p EpsilonPlacement) MarshalText() ([]byte, error) { return placementWords.Marshal(p) }
+
+// UnmarshalText sets p from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (p *EpsilonPlacement) UnmarshalText(b []byte) error { return placementWords.Unmarshal(p, b) }
+
+// Meaning returns one line saying what p means.
+func (p EpsilonPlacement) Meaning() string { return placementWords.Meaning(p) }
+
+// Values lists every EpsilonPlacement, the zero value first.
+func (EpsilonPlacement) Values() []EpsilonPlacement { return placementWords.Values() }
+
+// Check returns nil if p is one of the EpsilonPlacement constants, or an error
+// wrapping ErrOption that lists the words.
+func (p EpsilonPlacement) Check() error { return placementWords.Check(p) }
 
 // WeightForm says how the stored weight w becomes the gain γ.
 type WeightForm int
@@ -57,16 +73,31 @@ const (
 	WeightOnePlus
 )
 
-// String returns the constant's name.
-func (f WeightForm) String() string {
-	switch f {
-	case WeightAsIs:
-		return "WeightAsIs"
-	case WeightOnePlus:
-		return "WeightOnePlus"
-	}
-	return fmt.Sprintf("WeightForm(%d)", int(f))
-}
+var weightWords = vocab.New("norm", "weight form", "how the stored weight w becomes the gain γ", ErrOption,
+	vocab.W(WeightAsIs, "as-is", "γ = w: a weight of ones is the identity"),
+	vocab.W(WeightOnePlus, "one-plus", "γ = 1 + w: a weight of zeros is the identity"),
+)
+
+// String returns f's word ("as-is").
+func (f WeightForm) String() string { return weightWords.String(f) }
+
+// MarshalText returns f's word; a value with none is an error wrapping
+// ErrOption.
+func (f WeightForm) MarshalText() ([]byte, error) { return weightWords.Marshal(f) }
+
+// UnmarshalText sets f from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (f *WeightForm) UnmarshalText(b []byte) error { return weightWords.Unmarshal(f, b) }
+
+// Meaning returns one line saying what f means.
+func (f WeightForm) Meaning() string { return weightWords.Meaning(f) }
+
+// Values lists every WeightForm, the zero value first.
+func (WeightForm) Values() []WeightForm { return weightWords.Values() }
+
+// Check returns nil if f is one of the WeightForm constants, or an error
+// wrapping ErrOption that lists the words.
+func (f WeightForm) Check() error { return weightWords.Check(f) }
 
 // Options are the convention switches shared by every function. The zero
 // value is not usable: Epsilon must be set (see the package documentation
@@ -104,11 +135,11 @@ func (o Options) check(fn string) error {
 		}
 		return fmt.Errorf("%w: %s: Epsilon = %v; want a finite value > 0 (%s)", ErrEpsilon, fn, e, why)
 	}
-	if o.Placement != EpsilonInRoot && o.Placement != EpsilonAddedToRoot {
-		return fmt.Errorf("%w: %s: Placement = %v; want EpsilonInRoot or EpsilonAddedToRoot", ErrOption, fn, o.Placement)
+	if err := placementWords.CheckAt(fn+": Options.Placement", o.Placement); err != nil {
+		return err
 	}
-	if o.Weight != WeightAsIs && o.Weight != WeightOnePlus {
-		return fmt.Errorf("%w: %s: Weight = %v; want WeightAsIs or WeightOnePlus", ErrOption, fn, o.Weight)
+	if err := weightWords.CheckAt(fn+": Options.Weight", o.Weight); err != nil {
+		return err
 	}
 	return nil
 }

@@ -79,8 +79,8 @@ func TestErrors(t *testing.T) {
 		{"epsilon negative", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: -1e-5}); return err }, ErrEpsilon, "Epsilon = -1e-05"},
 		{"epsilon NaN", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: math.NaN()}); return err }, ErrEpsilon, "Epsilon = NaN"},
 		{"epsilon Inf", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: math.Inf(1)}); return err }, ErrEpsilon, "Epsilon = +Inf"},
-		{"placement", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: 1, Placement: 7}); return err }, ErrOption, "Placement = EpsilonPlacement(7)"},
-		{"weight form", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: 1, Weight: -1}); return err }, ErrOption, "Weight = WeightForm(-1)"},
+		{"placement", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: 1, Placement: 7}); return err }, ErrOption, "RMSNorm: Options.Placement = 7; want one of in-root, added-to-root"},
+		{"weight form", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: 1, Weight: -1}); return err }, ErrOption, "LayerNorm: Options.Weight = -1; want one of as-is, one-plus"},
 		{"dy length LN", func() error { _, err := LayerNormBackward(x, 3, nil, x[:3], ok); return err }, ErrShape, "LayerNormBackward: dy has 3 elements, x has 6"},
 		{"dy length RMS", func() error { _, err := RMSNormBackward(x, 3, nil, nil, ok); return err }, ErrShape, "RMSNormBackward: dy has 0 elements, x has 6"},
 		{"backward epsilon", func() error { _, err := RMSNormBackward(x, 3, nil, x, Options{}); return err }, ErrEpsilon, "RMSNormBackward: Epsilon = 0"},
@@ -113,11 +113,52 @@ func TestErrors(t *testing.T) {
 	}
 }
 
+// TestOptionStrings checks the words of the option types (the spelling
+// vocabulary.json and the golden configurations use), that they read back,
+// and that the zero values are the documented defaults.
 func TestOptionStrings(t *testing.T) {
-	assert.Equal(t, "EpsilonInRoot", EpsilonInRoot.String())
-	assert.Equal(t, "EpsilonAddedToRoot", EpsilonAddedToRoot.String())
-	assert.Equal(t, "WeightAsIs", WeightAsIs.String())
-	assert.Equal(t, "WeightOnePlus", WeightOnePlus.String())
+	assert.Equal(t, "in-root", EpsilonInRoot.String())
+	assert.Equal(t, "added-to-root", EpsilonAddedToRoot.String())
+	assert.Equal(t, "as-is", WeightAsIs.String())
+	assert.Equal(t, "one-plus", WeightOnePlus.String())
+	assert.Equal(t, "EpsilonPlacement(7)", EpsilonPlacement(7).String())
+	assert.Equal(t, "WeightForm(-1)", WeightForm(-1).String())
+
+	var o Options
+	assert.Equal(t, EpsilonInRoot, o.Placement, "the zero placement is in-root")
+	assert.Equal(t, WeightAsIs, o.Weight, "the zero weight form is as-is")
+	assert.Equal(t, []EpsilonPlacement{EpsilonInRoot, EpsilonAddedToRoot}, EpsilonPlacement(0).Values())
+	assert.Equal(t, []WeightForm{WeightAsIs, WeightOnePlus}, WeightForm(0).Values())
+
+	for _, p := range EpsilonPlacement(0).Values() {
+		require.NoError(t, p.Check())
+		b, err := p.MarshalText()
+		require.NoError(t, err)
+		var q EpsilonPlacement = 7
+		require.NoError(t, q.UnmarshalText(b))
+		assert.Equal(t, p, q)
+		assert.NotEmpty(t, p.Meaning())
+	}
+	for _, f := range WeightForm(0).Values() {
+		require.NoError(t, f.Check())
+		b, err := f.MarshalText()
+		require.NoError(t, err)
+		var g WeightForm = 7
+		require.NoError(t, g.UnmarshalText(b))
+		assert.Equal(t, f, g)
+		assert.NotEmpty(t, f.Meaning())
+	}
+	var p EpsilonPlacement
+	err := p.UnmarshalText([]byte("in_root"))
+	assert.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
+	assert.Contains(t, err.Error(), `"in_root"; want one of in-root, added-to-root`)
+	assert.Equal(t, EpsilonInRoot, p, "a refused word leaves the value alone")
+	var f WeightForm = WeightOnePlus
+	assert.ErrorIs(t, f.UnmarshalText([]byte("none")), ErrOption)
+	assert.Equal(t, WeightOnePlus, f)
+	_, err = EpsilonPlacement(7).MarshalText()
+	assert.ErrorIs(t, err, ErrOption)
+	assert.ErrorIs(t, WeightForm(2).Check(), ErrOption)
 }
 
 // TestSpecialCases checks the "Special cases are:" block of the package
@@ -268,13 +309,14 @@ func TestNaiveFailsGolden(t *testing.T) {
 			}
 		}
 		require.NotNil(t, c, "case %s/%s", tc.family, tc.name)
-		var cfg goldenConfig
-		require.NoError(t, c.DecodeConfig(&cfg))
+		cfg := decodeConfig(t, c)
 		x, _, err := c.Float("x")
 		require.NoError(t, err)
 		want, _, err := c.Float("y")
 		require.NoError(t, err)
-		require.Equal(t, "as_is", cfg.Weight, "the naive form applies the weight as is")
+		require.True(t, cfg.Weighted, "the case has a weight")
+		require.Equal(t, WeightAsIs, cfg.WeightForm, "the naive form applies the weight as is")
+		require.Equal(t, tc.o, cfg.options(), "the naive form runs with the case's options")
 		w := floatOr(t, c, "weight")
 		b := floatOr(t, c, "bias")
 		got := naive(x, cfg.D, tc.center, tc.o)

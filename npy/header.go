@@ -328,13 +328,13 @@ func parseDescr(v *pyValue) (DType, ByteOrder, error) {
 	if s != "" && strings.IndexByte("<>|=", s[0]) >= 0 {
 		mark, s = s[0], s[1:]
 	}
-	dt := DType(0)
-	for d := Float64; d <= Uint8; d++ {
+	dt, found := DType(0), false
+	for _, d := range dt.Values() {
 		if s == fmt.Sprintf("%c%d", dtypeInfo[d].kind, dtypeInfo[d].size) {
-			dt = d
+			dt, found = d, true
 		}
 	}
-	if dt == 0 {
+	if !found {
 		what := "not a supported type"
 		if s != "" {
 			if name, ok := kindNames[s[0]]; ok {

@@ -6,6 +6,7 @@ import (
 	"math"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // The sentinel errors. Every error this package returns wraps exactly one of
@@ -36,8 +37,8 @@ var (
 	ErrInexact = errors.New("npy: value not exactly representable as float64")
 )
 
-// DType is an element type a .npy file may hold. The zero value is not a
-// valid type.
+// DType is an element type a .npy file may hold. The zero value is
+// Float64.
 //
 // Each has one canonical NumPy descriptor, the kind letter and the size in
 // bytes after the byte-order mark: '<f8' float64, '<f4' float32, '<f2'
@@ -49,7 +50,7 @@ type DType uint8
 
 // The supported element types.
 const (
-	Float64 DType = iota + 1
+	Float64 DType = iota // the zero value
 	Float32
 	Float16
 	Int64
@@ -59,29 +60,51 @@ const (
 )
 
 var dtypeInfo = [...]struct {
-	name string
 	kind byte
 	size int
 }{
-	Float64: {"float64", 'f', 8},
-	Float32: {"float32", 'f', 4},
-	Float16: {"float16", 'f', 2},
-	Int64:   {"int64", 'i', 8},
-	Int32:   {"int32", 'i', 4},
-	Uint16:  {"uint16", 'u', 2},
-	Uint8:   {"uint8", 'u', 1},
+	Float64: {'f', 8},
+	Float32: {'f', 4},
+	Float16: {'f', 2},
+	Int64:   {'i', 8},
+	Int32:   {'i', 4},
+	Uint16:  {'u', 2},
+	Uint8:   {'u', 1},
 }
 
-func (d DType) valid() bool { return d >= Float64 && d <= Uint8 }
+func (d DType) valid() bool { return d.Check() == nil }
+
+var dtypeWords = vocab.New("npy", "element type", "the element type of a .npy array", ErrDType,
+	vocab.W(Float64, "float64", "IEEE 754 binary64, descriptor <f8"),
+	vocab.W(Float32, "float32", "IEEE 754 binary32, descriptor <f4"),
+	vocab.W(Float16, "float16", "IEEE 754 binary16, descriptor <f2"),
+	vocab.W(Int64, "int64", "64-bit signed integers, descriptor <i8"),
+	vocab.W(Int32, "int32", "32-bit signed integers, descriptor <i4"),
+	vocab.W(Uint16, "uint16", "16-bit unsigned integers (or bfloat16 bit patterns), descriptor <u2"),
+	vocab.W(Uint8, "uint8", "8-bit unsigned integers (or FP8 bit patterns), descriptor |u1"),
+)
 
 // String returns NumPy's name of the type ("float64"), or "DType(n)" for an
 // invalid value.
-func (d DType) String() string {
-	if !d.valid() {
-		return fmt.Sprintf("DType(%d)", uint8(d))
-	}
-	return dtypeInfo[d].name
-}
+func (d DType) String() string { return dtypeWords.String(d) }
+
+// MarshalText returns d's word; a value with none is an error wrapping
+// ErrDType.
+func (d DType) MarshalText() ([]byte, error) { return dtypeWords.Marshal(d) }
+
+// UnmarshalText sets d from its word; any other text is an error wrapping
+// ErrDType that lists the words.
+func (d *DType) UnmarshalText(b []byte) error { return dtypeWords.Unmarshal(d, b) }
+
+// Meaning returns one line saying what d is.
+func (d DType) Meaning() string { return dtypeWords.Meaning(d) }
+
+// Values lists every DType, the zero value first.
+func (DType) Values() []DType { return dtypeWords.Values() }
+
+// Check returns nil if d is one of the DType constants, or an error
+// wrapping ErrDType that lists the words.
+func (d DType) Check() error { return dtypeWords.Check(d) }
 
 // Size returns the size of one element in bytes, or 0 for an invalid value.
 func (d DType) Size() int {
@@ -124,16 +147,31 @@ const (
 	BigEndian                     // descr prefix '>'
 )
 
+var orderWords = vocab.New("npy", "byte order", "the order of the bytes of one element in a .npy file", ErrDType,
+	vocab.W(LittleEndian, "little-endian", "least significant byte first, descriptor prefix <"),
+	vocab.W(BigEndian, "big-endian", "most significant byte first, descriptor prefix >"),
+)
+
 // String returns "little-endian" or "big-endian".
-func (o ByteOrder) String() string {
-	switch o {
-	case LittleEndian:
-		return "little-endian"
-	case BigEndian:
-		return "big-endian"
-	}
-	return fmt.Sprintf("ByteOrder(%d)", uint8(o))
-}
+func (o ByteOrder) String() string { return orderWords.String(o) }
+
+// MarshalText returns o's word; a value with none is an error wrapping
+// ErrDType.
+func (o ByteOrder) MarshalText() ([]byte, error) { return orderWords.Marshal(o) }
+
+// UnmarshalText sets o from its word; any other text is an error wrapping
+// ErrDType that lists the words.
+func (o *ByteOrder) UnmarshalText(b []byte) error { return orderWords.Unmarshal(o, b) }
+
+// Meaning returns one line saying what o means.
+func (o ByteOrder) Meaning() string { return orderWords.Meaning(o) }
+
+// Values lists every ByteOrder, the zero value first.
+func (ByteOrder) Values() []ByteOrder { return orderWords.Values() }
+
+// Check returns nil if o is one of the ByteOrder constants, or an error
+// wrapping ErrDType that lists the words.
+func (o ByteOrder) Check() error { return orderWords.Check(o) }
 
 // Version is a .npy format version. The zero value asks Write to choose (see
 // Write); Read always reports the file's version.
@@ -209,20 +247,33 @@ const (
 	E5M2
 )
 
+var bitsWords = vocab.New("npy", "bit-pattern reading", "which number format the bit patterns of a uint16 or uint8 array hold", ErrDType,
+	vocab.W(Integer, "integer", "the unsigned integers the patterns are"),
+	vocab.W(BFloat16, "bfloat16", "uint16 patterns of bfloat16"),
+	vocab.W(E4M3, "e4m3", "uint8 patterns of OCP 8-bit E4M3"),
+	vocab.W(E5M2, "e5m2", "uint8 patterns of OCP 8-bit E5M2"),
+)
+
 // String returns "integer", "bfloat16", "e4m3" or "e5m2".
-func (b Bits) String() string {
-	switch b {
-	case Integer:
-		return "integer"
-	case BFloat16:
-		return "bfloat16"
-	case E4M3:
-		return "e4m3"
-	case E5M2:
-		return "e5m2"
-	}
-	return fmt.Sprintf("Bits(%d)", uint8(b))
-}
+func (b Bits) String() string { return bitsWords.String(b) }
+
+// MarshalText returns b's word; a value with none is an error wrapping
+// ErrDType.
+func (b Bits) MarshalText() ([]byte, error) { return bitsWords.Marshal(b) }
+
+// UnmarshalText sets b from its word; any other text is an error wrapping
+// ErrDType that lists the words.
+func (b *Bits) UnmarshalText(t []byte) error { return bitsWords.Unmarshal(b, t) }
+
+// Meaning returns one line saying what b means.
+func (b Bits) Meaning() string { return bitsWords.Meaning(b) }
+
+// Values lists every Bits, the zero value first.
+func (Bits) Values() []Bits { return bitsWords.Values() }
+
+// Check returns nil if b is one of the Bits constants, or an error wrapping
+// ErrDType that lists the words.
+func (b Bits) Check() error { return bitsWords.Check(b) }
 
 // fits reports whether the interpretation applies to the element type.
 func (b Bits) fits(d DType) bool {

@@ -366,7 +366,8 @@ func TestWriteErrors(t *testing.T) {
 		says string
 	}{
 		{"nil", nil, ErrValues, "nil"},
-		{"no dtype", &Array{Values: []float64{}}, ErrDType, "DType(0)"},
+		{"unknown dtype", &Array{Header: Header{DType: 99}, Values: []float64{1}}, ErrDType, "DType DType(99) is not one of the supported types"},
+		{"zero dtype is float64", &Array{Values: []float32{1}}, ErrValues, "[]float32, DType float64 needs []float64"},
 		{"wrong slice", &Array{Header: Header{DType: Float64, Shape: []int{1}}, Values: []float32{1}}, ErrValues, "[]float32, DType float64 needs []float64"},
 		{"float16 needs bits", &Array{Header: Header{DType: Float16, Shape: []int{1}}, Values: []float32{1}}, ErrValues, "needs []uint16"},
 		{"wrong length", &Array{Header: Header{DType: Int32, Shape: []int{2, 2}}, Values: []int32{1, 2, 3}}, ErrValues, "3 elements, shape [2 2] needs 4"},
@@ -472,9 +473,90 @@ func TestFloat64s(t *testing.T) {
 	assert.ErrorIs(t, err, ErrValues)
 }
 
+// TestZeroValues checks the documented defaults: an Array whose DType,
+// ByteOrder and Bits are left zero is a little-endian float64 array read as
+// numbers, written with descriptor '<f8' (NumPy's format description) and
+// read back as float64.
+func TestZeroValues(t *testing.T) {
+	var h Header
+	assert.Equal(t, Float64, h.DType)
+	assert.Equal(t, LittleEndian, h.ByteOrder)
+	assert.Equal(t, Integer, Array{}.Bits)
+	assert.Equal(t, 8, h.DType.Size())
+
+	var buf bytes.Buffer
+	require.NoError(t, Write(&buf, &Array{Header: Header{Shape: []int{2}}, Values: []float64{2.5, -0.125}}))
+	assert.Contains(t, buf.String(), "'descr': '<f8'")
+	got, err := Read(bytes.NewReader(buf.Bytes()))
+	require.NoError(t, err)
+	assert.Equal(t, Float64, got.DType)
+	assert.Equal(t, LittleEndian, got.ByteOrder)
+	assert.Equal(t, []float64{2.5, -0.125}, got.Values)
+
+	a, err := New(0, []int{}, []float64{3})
+	require.NoError(t, err, "DType 0 is Float64")
+	v, err := a.Float64s()
+	require.NoError(t, err)
+	assert.Equal(t, []float64{3}, v)
+}
+
+// TestWords checks the words of the convention types: each reads back to
+// its value, the zero value is first, and any other text or value is an
+// error wrapping ErrDType that lists the words.
+func TestWords(t *testing.T) {
+	assert.Equal(t, []DType{Float64, Float32, Float16, Int64, Int32, Uint16, Uint8}, DType(0).Values())
+	assert.Equal(t, []ByteOrder{LittleEndian, BigEndian}, ByteOrder(0).Values())
+	assert.Equal(t, []Bits{Integer, BFloat16, E4M3, E5M2}, Bits(0).Values())
+	for _, d := range DType(0).Values() {
+		b, err := d.MarshalText()
+		require.NoError(t, err)
+		assert.Equal(t, d.String(), string(b))
+		var e DType = 99
+		require.NoError(t, e.UnmarshalText(b))
+		assert.Equal(t, d, e)
+		assert.NoError(t, d.Check())
+		assert.NotEmpty(t, d.Meaning())
+	}
+	for _, o := range ByteOrder(0).Values() {
+		b, err := o.MarshalText()
+		require.NoError(t, err)
+		var p ByteOrder = 9
+		require.NoError(t, p.UnmarshalText(b))
+		assert.Equal(t, o, p)
+		assert.NotEmpty(t, o.Meaning())
+	}
+	for _, x := range Bits(0).Values() {
+		b, err := x.MarshalText()
+		require.NoError(t, err)
+		var y Bits = 9
+		require.NoError(t, y.UnmarshalText(b))
+		assert.Equal(t, x, y)
+		assert.NotEmpty(t, x.Meaning())
+	}
+	var d DType
+	err := d.UnmarshalText([]byte("float8"))
+	require.ErrorIs(t, err, ErrDType)
+	assert.Equal(t, `npy: unsupported element type: element type = "float8"; want one of float64, float32, float16, int64, int32, uint16, uint8`, err.Error())
+	assert.Equal(t, Float64, d, "a refused word leaves the value alone")
+	err = DType(99).Check()
+	require.ErrorIs(t, err, ErrDType)
+	assert.Contains(t, err.Error(), "element type = 99; want one of float64")
+	assert.ErrorIs(t, ByteOrder(2).Check(), ErrDType)
+	_, err = ByteOrder(2).MarshalText()
+	assert.ErrorIs(t, err, ErrDType)
+	var b Bits
+	err = b.UnmarshalText([]byte("e3m4"))
+	require.ErrorIs(t, err, ErrDType)
+	assert.Contains(t, err.Error(), "want one of integer, bfloat16, e4m3, e5m2")
+}
+
 func TestStrings(t *testing.T) {
 	assert.Equal(t, "float16", Float16.String())
-	assert.Equal(t, "DType(0)", DType(0).String())
+	assert.Equal(t, "float64", DType(0).String())
+	assert.Equal(t, "DType(99)", DType(99).String())
+	assert.Equal(t, "little-endian", ByteOrder(0).String())
+	assert.Equal(t, "ByteOrder(7)", ByteOrder(7).String())
+	assert.Equal(t, "integer", Bits(0).String())
 	assert.Equal(t, 0, DType(99).Size())
 	assert.Equal(t, "big-endian", BigEndian.String())
 	assert.Equal(t, "3.0", Version3.String())

@@ -1,8 +1,6 @@
 package ops
 
 import (
-	"bytes"
-	"encoding/json"
 	"fmt"
 
 	"github.com/plumbref/plumb/attention"
@@ -10,150 +8,19 @@ import (
 	"github.com/plumbref/plumb/mask"
 )
 
-// maskConfig is one entry of the "mask" list of an attention configuration.
-type maskConfig struct {
-	Kind    string `json:"kind"`
-	Before  *int   `json:"before"`
-	After   *int   `json:"after"`
-	Size    int    `json:"size"`
-	Length  int    `json:"length"`
-	Valid   []int  `json:"valid"`
-	Offsets []int  `json:"offsets"`
-	Block   string `json:"block"`
-
-	present map[string]bool // the keys the entry spelled out
-}
-
-// maskKeys lists, for each kind, the keys it requires; no other key may
-// accompany the kind, so that a key meant for another kind ("size" on a
-// "causal" entry) is an error rather than silently ignored.
-var maskKeys = map[string][]string{
-	"full":        nil,
-	"causal":      nil,
-	"band":        {"before", "after"},
-	"window":      {"size"},
-	"prefix":      {"length"},
-	"key-padding": {"valid"},
-	"packed":      {"offsets", "block"},
-}
-
-// UnmarshalJSON records which keys the entry holds, then decodes it with
-// the configuration's own rules (unknown keys are refused by the outer
-// decoder's DisallowUnknownFields, which applies to this plain alias too).
-func (m *maskConfig) UnmarshalJSON(b []byte) error {
-	var keys map[string]json.RawMessage
-	if err := json.Unmarshal(b, &keys); err != nil {
-		return err
-	}
-	type plain maskConfig
-	dec := json.NewDecoder(bytes.NewReader(b))
-	dec.DisallowUnknownFields()
-	var p plain
-	if err := dec.Decode(&p); err != nil {
-		return err
-	}
-	*m = maskConfig(p)
-	m.present = make(map[string]bool, len(keys))
-	for k := range keys {
-		m.present[k] = true
-	}
-	return nil
-}
-
-// checkKeys refuses an entry whose keys do not match its kind.
-func (m maskConfig) checkKeys() error {
-	want, ok := maskKeys[m.Kind]
-	if !ok {
-		return nil // build reports the unknown kind
-	}
-	allowed := map[string]bool{"kind": true}
-	for _, k := range want {
-		allowed[k] = true
-		if !m.present[k] {
-			return fmt.Errorf("%w: key \"mask\": kind %q needs key %q", ErrConfig, m.Kind, k)
-		}
-	}
-	for k := range m.present {
-		if !allowed[k] {
-			return fmt.Errorf("%w: key \"mask\": key %q does not apply to kind %q", ErrConfig, k, m.Kind)
-		}
-	}
-	return nil
-}
-
-var maskKeyDoc = `list of masks, intersected; each an object with "kind": ` +
-	`"full"; "causal"; "band" with "before" and "after" (key j visible to query position p iff −before ≤ j − p ≤ after, −1 for no limit); ` +
-	`"window" with "size" (that many keys ending at the query, the query included); "prefix" with "length" (keys below it visible to all); ` +
-	`"key-padding" with "valid" (one valid key count per batch entry); ` +
-	`"packed" with "offsets" (sequence starts, from 0 to the key count) and "block" ("causal" or "full")`
-
-func (m maskConfig) build() (mask.Mask, error) {
-	if m.present != nil {
-		if err := m.checkKeys(); err != nil {
-			return mask.Mask{}, err
-		}
-	}
-	opt := func(p *int) int {
-		if p == nil {
-			return 0
-		}
-		return *p
-	}
-	var mk mask.Mask
-	var err error
-	switch m.Kind {
-	case "full":
-		mk = mask.Full()
-	case "causal":
-		mk = mask.Causal()
-	case "band":
-		mk, err = mask.Band(opt(m.Before), opt(m.After))
-	case "window":
-		mk, err = mask.Window(m.Size)
-	case "prefix":
-		mk, err = mask.Prefix(m.Length)
-	case "key-padding":
-		mk, err = mask.KeyPadding(m.Valid)
-	case "packed":
-		var b mask.Block
-		if b, err = choice("mask.block", m.Block, []string{"causal", "full"}, []mask.Block{mask.BlockCausal, mask.BlockFull}); err != nil {
-			return mk, err
-		}
-		mk, err = mask.Packed(m.Offsets, b)
-	default:
-		return mk, fmt.Errorf("%w: key \"mask\": kind %q; want one of full, causal, band, window, prefix, key-padding, packed", ErrConfig, m.Kind)
-	}
-	if err != nil {
-		return mk, fmt.Errorf("%w: key \"mask\" (%s): %w", ErrConfig, m.Kind, err)
-	}
-	return mk, nil
-}
-
 // attentionConfig is the configuration of attention-forward and
 // attention-backward.
 type attentionConfig struct {
 	header
-	Layout   string       `json:"layout"`
-	Group    string       `json:"group"`
-	Scale    float64      `json:"scale"`
-	SoftCap  float64      `json:"soft_cap"`
-	Mask     []maskConfig `json:"mask"`
-	Align    string       `json:"align"`
-	Offset   int          `json:"offset"`
-	ALiBi    string       `json:"alibi_form"`
-	EmptyRow string       `json:"empty_row"`
-}
-
-var attentionKeys = []Key{
-	{"layout", "string", `"heads-major"`, `"heads-major": q is [batch, heads, queries, dim]; "seq-major": [batch, queries, heads, dim] (k, v, out and the gradients alike)`},
-	{"group", "string", `"blocks"`, `which kv head query head h reads: "blocks", h / (heads_q/heads_kv); "cycle", h mod heads_kv`},
-	{"scale", "number", "1/√dim", "multiplies q·k; positive and finite"},
-	{"soft_cap", "number", "0 (none)", "c > 0 replaces the scaled logit t by c·tanh(t/c)"},
-	{"mask", "[object]", "[] (every key visible)", maskKeyDoc},
-	{"align", "string", `"end"`, `where query i sits among the keys: "end", position keys − queries + i; "start", position i (plus "offset")`},
-	{"offset", "int", "0", "shifts every query position"},
-	{"alibi_form", "string", `"causal"`, `with input slopes: "causal" adds −m·(p(i) − j); "symmetric" −m·|p(i) − j|`},
-	{"empty_row", "string", `"zero"`, `output of a row that sees no key: "zero" (lse −Inf) or "nan"`},
+	Layout   attention.Layout   `json:"layout" doc:"memory order of q, k, v, out and the gradients (batch first, head dimension last)"`
+	Group    attention.GroupMap `json:"group" doc:"which kv head each query head reads"`
+	Scale    float64            `json:"scale" doc:"multiplies q·k; positive and finite" default:"1/√dim"`
+	SoftCap  float64            `json:"soft_cap" doc:"c > 0 replaces the scaled logit t by c·tanh(t/c)" default:"0 (none)"`
+	Mask     []mask.Spec        `json:"mask" doc:"masks, intersected; each an object with a \"kind\" and that kind's keys" default:"[] (every key visible)"`
+	Align    mask.Align         `json:"align" doc:"where query i sits among the keys"`
+	Offset   int                `json:"offset" doc:"shifts every query position" default:"0"`
+	ALiBi    mask.ALiBiForm     `json:"alibi_form" doc:"with input slopes: the key distance d the bias −m·d penalises"`
+	EmptyRow attention.EmptyRow `json:"empty_row" doc:"output of a row that sees no key"`
 }
 
 var attentionInputs = []Port{
@@ -168,34 +35,11 @@ var attentionInputs = []Port{
 // setup derives the attention shape and options from the inputs.
 func (c *attentionConfig) setup(in Tensors) (attention.Shape, attention.Options, error) {
 	var s attention.Shape
-	var o attention.Options
+	o := attention.Options{Layout: c.Layout, Group: c.Group, Align: c.Align, ALiBi: c.ALiBi, EmptyRow: c.EmptyRow,
+		Scale: c.Scale, SoftCap: c.SoftCap, Offset: c.Offset}
 	var err error
-	if o.Layout, err = choice("layout", c.Layout, []string{"heads-major", "seq-major"}, []attention.Layout{attention.HeadsMajor, attention.SeqMajor}); err != nil {
-		return s, o, err
-	}
-	if o.Group, err = choice("group", c.Group, []string{"blocks", "cycle"}, []attention.GroupMap{attention.GroupBlocks, attention.GroupCycle}); err != nil {
-		return s, o, err
-	}
-	if o.Align, err = choice("align", c.Align, []string{"end", "start"}, []mask.Align{mask.AlignEnd, mask.AlignStart}); err != nil {
-		return s, o, err
-	}
-	if o.ALiBi, err = choice("alibi_form", c.ALiBi, []string{"causal", "symmetric"}, []attention.ALiBiForm{attention.ALiBiCausal, attention.ALiBiSymmetric}); err != nil {
-		return s, o, err
-	}
-	if o.EmptyRow, err = choice("empty_row", c.EmptyRow, []string{"zero", "nan"}, []attention.EmptyRow{attention.EmptyRowZero, attention.EmptyRowNaN}); err != nil {
-		return s, o, err
-	}
-	o.Scale, o.SoftCap, o.Offset = c.Scale, c.SoftCap, c.Offset
-	if len(c.Mask) > 0 {
-		ms := make([]mask.Mask, len(c.Mask))
-		for i, m := range c.Mask {
-			if ms[i], err = m.build(); err != nil {
-				return s, o, err
-			}
-		}
-		if o.Mask, err = mask.Intersect(ms...); err != nil {
-			return s, o, fmt.Errorf("%w: key \"mask\": %w", ErrConfig, err)
-		}
+	if o.Mask, err = mask.Build(c.Mask); err != nil {
+		return s, o, fmt.Errorf("%w: key \"mask\": %w", ErrConfig, err)
 	}
 
 	dims := "[batch, heads, length, dim]"
@@ -259,36 +103,17 @@ func init() {
 	register(&op[attentionConfig]{
 		name:    "attention-forward",
 		summary: "scaled dot-product attention, every option (attention.Forward; float32: attention.Forward32)",
-		keys:    attentionKeys,
 		inputs:  attentionInputs,
 		outputs: []Port{
 			{Name: "out", Doc: "output, [batch, heads_q, queries, dim_v] or [batch, queries, heads_q, dim_v]"},
 			{Name: "lse", Doc: "natural log-sum-exp of each row, [batch, heads_q, queries] or [batch, queries, heads_q]"},
 		},
-		run: func(c *attentionConfig, in Tensors, single bool) (Tensors, error) {
-			s, o, err := c.setup(in)
-			if err != nil {
-				return nil, err
-			}
-			var out, lse []float64
-			if single {
-				o32, l32, err := attention.Forward32(num.Convert[float32](in.data("q")), num.Convert[float32](in.data("k")), num.Convert[float32](in.data("v")), s, o)
-				if err != nil {
-					return nil, err
-				}
-				out, lse = num.Convert[float64](o32), num.Convert[float64](l32)
-			} else if out, lse, err = attention.Forward(in.data("q"), in.data("k"), in.data("v"), s, o); err != nil {
-				return nil, err
-			}
-			os, ls := attentionShapes(s, o)
-			return Tensors{"out": {os, out}, "lse": {ls, lse}}, nil
-		},
+		run: runAttentionForward,
 	})
 
 	register(&op[attentionConfig]{
 		name:    "attention-backward",
 		summary: "gradients of attention-forward (attention.Backward; float32: attention.Backward32)",
-		keys:    attentionKeys,
 		inputs: append(append([]Port(nil), attentionInputs...),
 			Port{Name: "dout", Doc: "gradient of the loss with respect to out, the shape of out"},
 			Port{Name: "dlse", Optional: true, Doc: "gradient with respect to lse, the shape of lse (absent: 0)"}),
@@ -299,38 +124,59 @@ func init() {
 			{Name: "dsinks", Optional: true, Doc: "gradient for sinks [heads_q], when sinks are given"},
 			{Name: "dbias", Optional: true, Doc: "gradient for bias, the shape of bias, when a bias is given"},
 		},
-		run: func(c *attentionConfig, in Tensors, single bool) (Tensors, error) {
-			s, o, err := c.setup(in)
-			if err != nil {
-				return nil, err
-			}
-			os, ls := attentionShapes(s, o)
-			if err := sameShape(in, "dout", os, "the shape of out"); err != nil {
-				return nil, err
-			}
-			if in.has("dlse") {
-				if err := sameShape(in, "dlse", ls, "the shape of lse"); err != nil {
-					return nil, err
-				}
-			}
-			var g attention.Grads
-			if single {
-				g32, err := attention.Backward32(num.Convert[float32](in.data("q")), num.Convert[float32](in.data("k")), num.Convert[float32](in.data("v")), num.Convert[float32](in.data("dout")), num.Convert[float32](in.data("dlse")), s, o)
-				if err != nil {
-					return nil, err
-				}
-				g = attention.Grads{DQ: num.Convert[float64](g32.DQ), DK: num.Convert[float64](g32.DK), DV: num.Convert[float64](g32.DV), DSinks: num.Convert[float64](g32.DSinks), DBias: num.Convert[float64](g32.DBias)}
-			} else if g, err = attention.Backward(in.data("q"), in.data("k"), in.data("v"), in.data("dout"), in.data("dlse"), s, o); err != nil {
-				return nil, err
-			}
-			out := Tensors{"dq": {in["q"].Shape, g.DQ}, "dk": {in["k"].Shape, g.DK}, "dv": {in["v"].Shape, g.DV}}
-			if g.DSinks != nil {
-				out["dsinks"] = Tensor{[]int{s.HeadsQ}, g.DSinks}
-			}
-			if g.DBias != nil {
-				out["dbias"] = Tensor{in["bias"].Shape, g.DBias}
-			}
-			return out, nil
-		},
+		run: runAttentionBackward,
 	})
+}
+
+func runAttentionForward(c *attentionConfig, in Tensors, single bool) (Tensors, error) {
+	s, o, err := c.setup(in)
+	if err != nil {
+		return nil, err
+	}
+	var out, lse []float64
+	if single {
+		o32, l32, err := attention.Forward32(in.f32("q"), in.f32("k"), in.f32("v"), s, o)
+		if err != nil {
+			return nil, err
+		}
+		out, lse = num.Convert[float64](o32), num.Convert[float64](l32)
+	} else if out, lse, err = attention.Forward(in.data("q"), in.data("k"), in.data("v"), s, o); err != nil {
+		return nil, err
+	}
+	os, ls := attentionShapes(s, o)
+	return Tensors{"out": {os, out}, "lse": {ls, lse}}, nil
+}
+
+func runAttentionBackward(c *attentionConfig, in Tensors, single bool) (Tensors, error) {
+	s, o, err := c.setup(in)
+	if err != nil {
+		return nil, err
+	}
+	os, ls := attentionShapes(s, o)
+	if err := sameShape(in, "dout", os, "the shape of out"); err != nil {
+		return nil, err
+	}
+	if in.has("dlse") {
+		if err := sameShape(in, "dlse", ls, "the shape of lse"); err != nil {
+			return nil, err
+		}
+	}
+	var g attention.Grads
+	if single {
+		g32, err := attention.Backward32(in.f32("q"), in.f32("k"), in.f32("v"), in.f32("dout"), in.f32("dlse"), s, o)
+		if err != nil {
+			return nil, err
+		}
+		g = attention.Grads{DQ: num.Convert[float64](g32.DQ), DK: num.Convert[float64](g32.DK), DV: num.Convert[float64](g32.DV), DSinks: num.Convert[float64](g32.DSinks), DBias: num.Convert[float64](g32.DBias)}
+	} else if g, err = attention.Backward(in.data("q"), in.data("k"), in.data("v"), in.data("dout"), in.data("dlse"), s, o); err != nil {
+		return nil, err
+	}
+	out := Tensors{"dq": {in["q"].Shape, g.DQ}, "dk": {in["k"].Shape, g.DK}, "dv": {in["v"].Shape, g.DV}}
+	if g.DSinks != nil {
+		out["dsinks"] = Tensor{[]int{s.HeadsQ}, g.DSinks}
+	}
+	if g.DBias != nil {
+		out["dbias"] = Tensor{in["bias"].Shape, g.DBias}
+	}
+	return out, nil
 }

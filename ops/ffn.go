@@ -9,40 +9,17 @@ import (
 
 type activationConfig struct {
 	header
-	Function string  `json:"function"`
-	Beta     float64 `json:"beta"`
-}
-
-var activationWords = []string{"relu", "gelu", "gelu-tanh", "gelu-sigmoid", "sigmoid", "silu", "swish", "identity"}
-var activationValues = []ffn.Act{ffn.ActReLU, ffn.ActGELU, ffn.ActGELUTanh, ffn.ActGELUSigmoid, ffn.ActSigmoid, ffn.ActSiLU, ffn.ActSwish, ffn.ActIdentity}
-
-var activationKeys = []Key{
-	{"function", "string", "required", `φ: "relu", "gelu" (exact, erf), "gelu-tanh", "gelu-sigmoid" (x·σ(1.702x)), "sigmoid", "silu", "swish" (x·σ(βx)), "identity"`},
-	{"beta", "number", "0", `Swish's β ("swish" only)`},
-}
-
-func activationOf(key, word string) (ffn.Act, error) {
-	if word == "" {
-		return 0, fmt.Errorf("%w: key %q is missing; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity", ErrConfig, key)
-	}
-	return choice(key, word, activationWords, activationValues)
+	Function ffn.Act `json:"function" doc:"φ" default:"required"`
+	Beta     float64 `json:"beta" doc:"Swish's β (\"swish\" only)" default:"0"`
 }
 
 type ffnConfig struct {
 	header
-	Activation string  `json:"activation"`
-	Beta       float64 `json:"beta"`
-	Gated      bool    `json:"gated"`
-	Layout     string  `json:"layout"`
-	Packing    string  `json:"packing"`
-}
-
-var ffnKeys = []Key{
-	{"activation", "string", "required", "φ, one of the words of the activation operation's \"function\""},
-	{"beta", "number", "0", `Swish's β (activation "swish" only)`},
-	{"gated", "bool", "false", "false: φ(x·W1 + b1)·W2 + b2; true: (φ(x·W1 + b1) ⊗ (x·V + c))·W2 + b2 (GLU, ReGLU, GEGLU, SwiGLU, Bilinear)"},
-	{"layout", "string", "required", `storage of every weight matrix: "in-by-out" ([in, out], y = x·W) or "out-by-in" ([out, in], y = x·Wᵀ)`},
-	{"packing", "string", "required with fused", `the fused gate and value matrix: "stacked" (all gate units, then all value units) or "interleaved" (alternating)`},
+	Activation ffn.Act      `json:"activation" doc:"φ" default:"required"`
+	Beta       float64      `json:"beta" doc:"Swish's β (activation \"swish\" only)" default:"0"`
+	Gated      bool         `json:"gated" doc:"false: φ(x·W1 + b1)·W2 + b2; true: (φ(x·W1 + b1) ⊗ (x·V + c))·W2 + b2 (GLU, ReGLU, GEGLU, SwiGLU, Bilinear)" default:"false"`
+	Layout     ffn.Layout   `json:"layout" doc:"storage of every weight matrix" default:"required"`
+	Packing    *ffn.Packing `json:"packing" doc:"the fused gate and value matrix" default:"required with fused"`
 }
 
 var ffnInputs = []Port{
@@ -64,22 +41,14 @@ var ffnWeightNames = [][2]string{{"w1", "dw1"}, {"b1", "db1"}, {"v", "dv"}, {"c"
 // have, and checks the inputs against them.
 func (c *ffnConfig) setup(in Tensors) (ffn.Dims, ffn.Options, map[string][]int, error) {
 	var d ffn.Dims
-	o := ffn.Options{Gated: c.Gated, Beta: c.Beta}
+	o := ffn.Options{Act: c.Activation, Gated: c.Gated, Beta: c.Beta, Layout: c.Layout}
+	switch {
+	case c.Packing != nil:
+		o.Packing = *c.Packing
+	case in.has("fused") || in.has("fused_bias"):
+		return d, o, nil, fmt.Errorf("%w: key \"packing\" is missing; a fused gate and value matrix needs it: one of %s", ErrConfig, wordsOf(o.Packing))
+	}
 	var err error
-	if o.Act, err = activationOf("activation", c.Activation); err != nil {
-		return d, o, nil, err
-	}
-	if c.Layout == "" {
-		return d, o, nil, fmt.Errorf("%w: key \"layout\" is missing; want in-by-out or out-by-in", ErrConfig)
-	}
-	if o.Layout, err = choice("layout", c.Layout, []string{"in-by-out", "out-by-in"}, []ffn.Layout{ffn.InByOut, ffn.OutByIn}); err != nil {
-		return d, o, nil, err
-	}
-	if c.Packing != "" {
-		if o.Packing, err = choice("packing", c.Packing, []string{"stacked", "interleaved"}, []ffn.Packing{ffn.GateUpStacked, ffn.GateUpInterleaved}); err != nil {
-			return d, o, nil, err
-		}
-	}
 	if d.In, err = lastDim(in, "x"); err != nil {
 		return d, o, nil, err
 	}
@@ -136,82 +105,25 @@ func init() {
 	register(&op[activationConfig]{
 		name:    "activation",
 		summary: "an activation function elementwise (ffn.Activate; float32: ffn.Activate32)",
-		keys:    activationKeys,
 		inputs:  []Port{{Name: "x", Doc: "any shape"}},
 		outputs: []Port{{Name: "y", Doc: "φ(x), the shape of x"}},
-		run: func(c *activationConfig, in Tensors, single bool) (Tensors, error) {
-			a, err := activationOf("function", c.Function)
-			if err != nil {
-				return nil, err
-			}
-			var y []float64
-			if single {
-				var y32 []float32
-				y32, err = ffn.Activate32(num.Convert[float32](in.data("x")), a, c.Beta)
-				y = num.Convert[float64](y32)
-			} else {
-				y, err = ffn.Activate(in.data("x"), a, c.Beta)
-			}
-			if err != nil {
-				return nil, err
-			}
-			return Tensors{"y": {in["x"].Shape, y}}, nil
-		},
+		run:     runActivation,
 	})
 
 	register(&op[activationConfig]{
 		name:    "activation-grad",
 		summary: "gradient through an activation, dy ⊙ φ′(x) (ffn.ActivateGrad; float32: ffn.ActivateGrad32)",
-		keys:    activationKeys,
 		inputs:  []Port{{Name: "x", Doc: "any shape"}, {Name: "dy", Doc: "gradient with respect to φ(x), the shape of x"}},
 		outputs: []Port{{Name: "dx", Doc: "the shape of x"}},
-		run: func(c *activationConfig, in Tensors, single bool) (Tensors, error) {
-			a, err := activationOf("function", c.Function)
-			if err != nil {
-				return nil, err
-			}
-			if err := sameShape(in, "dy", in["x"].Shape, "the shape of x"); err != nil {
-				return nil, err
-			}
-			var dx []float64
-			if single {
-				var d32 []float32
-				d32, err = ffn.ActivateGrad32(num.Convert[float32](in.data("x")), num.Convert[float32](in.data("dy")), a, c.Beta)
-				dx = num.Convert[float64](d32)
-			} else {
-				dx, err = ffn.ActivateGrad(in.data("x"), in.data("dy"), a, c.Beta)
-			}
-			if err != nil {
-				return nil, err
-			}
-			return Tensors{"dx": {in["x"].Shape, dx}}, nil
-		},
+		run:     runActivationGrad,
 	})
 
 	register(&op[ffnConfig]{
 		name:    "ffn-forward",
 		summary: "feed-forward layer, plain or gated (GLU family) (ffn.Forward; float32: ffn.Forward32)",
-		keys:    ffnKeys,
 		inputs:  ffnInputs,
 		outputs: []Port{{Name: "y", Doc: "[..., out]"}},
-		run: func(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
-			d, o, _, err := c.setup(in)
-			if err != nil {
-				return nil, err
-			}
-			var y []float64
-			if single {
-				var y32 []float32
-				y32, err = ffn.Forward32(num.Convert[float32](in.data("x")), d, ffnWeights(in, num.Convert[float32, float64]), o)
-				y = num.Convert[float64](y32)
-			} else {
-				y, err = ffn.Forward(in.data("x"), d, ffnWeights(in, same), o)
-			}
-			if err != nil {
-				return nil, err
-			}
-			return Tensors{"y": {yShape(in, d.Out), y}}, nil
-		},
+		run:     runFfnForward,
 	})
 
 	outs := []Port{{Name: "dx", Doc: "the shape of x"}}
@@ -221,37 +133,88 @@ func init() {
 	register(&op[ffnConfig]{
 		name:    "ffn-backward",
 		summary: "gradients of ffn-forward for x and every parameter (ffn.Backward; float32: ffn.Backward32)",
-		keys:    ffnKeys,
 		inputs:  append(append([]Port(nil), ffnInputs...), Port{Name: "dy", Doc: "gradient with respect to y, [..., out]"}),
 		outputs: outs,
-		run: func(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
-			d, o, want, err := c.setup(in)
-			if err != nil {
-				return nil, err
-			}
-			var dx []float64
-			var g ffn.Weights[float64]
-			if single {
-				var dx32 []float32
-				var g32 ffn.Weights[float32]
-				dx32, g32, err = ffn.Backward32(num.Convert[float32](in.data("x")), num.Convert[float32](in.data("dy")), d, ffnWeights(in, num.Convert[float32, float64]), o)
-				dx = num.Convert[float64](dx32)
-				g = ffn.Weights[float64]{W1: num.Convert[float64](g32.W1), B1: num.Convert[float64](g32.B1), V: num.Convert[float64](g32.V), C: num.Convert[float64](g32.C),
-					Fused: num.Convert[float64](g32.Fused), FusedBias: num.Convert[float64](g32.FusedBias), W2: num.Convert[float64](g32.W2), B2: num.Convert[float64](g32.B2)}
-			} else {
-				dx, g, err = ffn.Backward(in.data("x"), in.data("dy"), d, ffnWeights(in, same), o)
-			}
-			if err != nil {
-				return nil, err
-			}
-			out := Tensors{"dx": {in["x"].Shape, dx}}
-			for i, data := range [][]float64{g.W1, g.B1, g.V, g.C, g.Fused, g.FusedBias, g.W2, g.B2} {
-				if data != nil {
-					n := ffnWeightNames[i]
-					out[n[1]] = Tensor{want[n[0]], data}
-				}
-			}
-			return out, nil
-		},
+		run:     runFfnBackward,
 	})
+}
+
+func runActivation(c *activationConfig, in Tensors, single bool) (Tensors, error) {
+	a := c.Function
+	var y []float64
+	var err error
+	if single {
+		y, err = wide(ffn.Activate32(in.f32("x"), a, c.Beta))
+	} else {
+		y, err = ffn.Activate(in.data("x"), a, c.Beta)
+	}
+	if err != nil {
+		return nil, err
+	}
+	return Tensors{"y": {in["x"].Shape, y}}, nil
+}
+
+func runActivationGrad(c *activationConfig, in Tensors, single bool) (Tensors, error) {
+	a := c.Function
+	var err error
+	if err := sameShape(in, "dy", in["x"].Shape, "the shape of x"); err != nil {
+		return nil, err
+	}
+	var dx []float64
+	if single {
+		dx, err = wide(ffn.ActivateGrad32(in.f32("x"), in.f32("dy"), a, c.Beta))
+	} else {
+		dx, err = ffn.ActivateGrad(in.data("x"), in.data("dy"), a, c.Beta)
+	}
+	if err != nil {
+		return nil, err
+	}
+	return Tensors{"dx": {in["x"].Shape, dx}}, nil
+}
+
+func runFfnForward(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
+	d, o, _, err := c.setup(in)
+	if err != nil {
+		return nil, err
+	}
+	var y []float64
+	if single {
+		y, err = wide(ffn.Forward32(in.f32("x"), d, ffnWeights(in, num.Convert[float32, float64]), o))
+	} else {
+		y, err = ffn.Forward(in.data("x"), d, ffnWeights(in, same), o)
+	}
+	if err != nil {
+		return nil, err
+	}
+	return Tensors{"y": {yShape(in, d.Out), y}}, nil
+}
+
+func runFfnBackward(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
+	d, o, want, err := c.setup(in)
+	if err != nil {
+		return nil, err
+	}
+	var dx []float64
+	var g ffn.Weights[float64]
+	if single {
+		var dx32 []float32
+		var g32 ffn.Weights[float32]
+		dx32, g32, err = ffn.Backward32(in.f32("x"), in.f32("dy"), d, ffnWeights(in, num.Convert[float32, float64]), o)
+		dx = num.Convert[float64](dx32)
+		g = ffn.Weights[float64]{W1: num.Convert[float64](g32.W1), B1: num.Convert[float64](g32.B1), V: num.Convert[float64](g32.V), C: num.Convert[float64](g32.C),
+			Fused: num.Convert[float64](g32.Fused), FusedBias: num.Convert[float64](g32.FusedBias), W2: num.Convert[float64](g32.W2), B2: num.Convert[float64](g32.B2)}
+	} else {
+		dx, g, err = ffn.Backward(in.data("x"), in.data("dy"), d, ffnWeights(in, same), o)
+	}
+	if err != nil {
+		return nil, err
+	}
+	out := Tensors{"dx": {in["x"].Shape, dx}}
+	for i, data := range [][]float64{g.W1, g.B1, g.V, g.C, g.Fused, g.FusedBias, g.W2, g.B2} {
+		if data != nil {
+			n := ffnWeightNames[i]
+			out[n[1]] = Tensor{want[n[0]], data}
+		}
+	}
+	return out, nil
 }

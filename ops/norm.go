@@ -7,34 +7,19 @@ import (
 
 type normConfig struct {
 	header
-	Epsilon    float64 `json:"epsilon"`
-	Placement  string  `json:"epsilon_placement"`
-	WeightForm string  `json:"weight_form"`
+	Epsilon    float64               `json:"epsilon" doc:"ε, finite and > 0" default:"required"`
+	Placement  norm.EpsilonPlacement `json:"epsilon_placement" doc:"where ε enters the denominator"`
+	WeightForm norm.WeightForm       `json:"weight_form" doc:"how the weight input becomes the gain"`
 }
 
-var normKeys = []Key{
-	{"epsilon", "number", "required", "ε, finite and > 0"},
-	{"epsilon_placement", "string", `"in-root"`, `"in-root" divides by √(s² + ε); "added-to-root" by √s² + ε`},
-	{"weight_form", "string", `"as-is"`, `the gain is the weight ("as-is") or 1 + weight ("one-plus")`},
-}
-
-func (c *normConfig) options() (norm.Options, error) {
-	o := norm.Options{Epsilon: c.Epsilon}
-	var err error
-	if o.Placement, err = choice("epsilon_placement", c.Placement, []string{"in-root", "added-to-root"}, []norm.EpsilonPlacement{norm.EpsilonInRoot, norm.EpsilonAddedToRoot}); err != nil {
-		return o, err
-	}
-	o.Weight, err = choice("weight_form", c.WeightForm, []string{"as-is", "one-plus"}, []norm.WeightForm{norm.WeightAsIs, norm.WeightOnePlus})
-	return o, err
+func (c *normConfig) options() norm.Options {
+	return norm.Options{Epsilon: c.Epsilon, Placement: c.Placement, Weight: c.WeightForm}
 }
 
 // normSetup returns the options and the row length d, and checks that the
 // per-column inputs hold d values and dy has the shape of x.
 func normSetup(c *normConfig, in Tensors) (norm.Options, int, error) {
-	o, err := c.options()
-	if err != nil {
-		return o, 0, err
-	}
+	o := c.options()
 	d, err := lastDim(in, "x")
 	if err != nil {
 		return o, 0, err
@@ -61,123 +46,106 @@ var (
 	normDy     = Port{Name: "dy", Doc: "gradient of the loss with respect to y, the shape of x"}
 )
 
+// normKernels are the float64 and float32 instantiations of one norm's
+// forward and backward functions, with RMSNorm's taking (and ignoring) a
+// bias so that both norms share one run function.
+type normKernels struct {
+	forward    func(x []float64, d int, w, b []float64, o norm.Options) ([]float64, error)
+	forward32  func(x []float32, d int, w, b []float32, o norm.Options) ([]float32, error)
+	backward   func(x []float64, d int, w, dy []float64, o norm.Options) (norm.Grads, error)
+	backward32 func(x []float32, d int, w, dy []float32, o norm.Options) (norm.Grads32, error)
+}
+
+var (
+	layerNorm = normKernels{norm.LayerNorm, norm.LayerNorm32, norm.LayerNormBackward, norm.LayerNormBackward32}
+	rmsNorm   = normKernels{
+		func(x []float64, d int, w, _ []float64, o norm.Options) ([]float64, error) {
+			return norm.RMSNorm(x, d, w, o)
+		},
+		func(x []float32, d int, w, _ []float32, o norm.Options) ([]float32, error) {
+			return norm.RMSNorm32(x, d, w, o)
+		},
+		norm.RMSNormBackward, norm.RMSNormBackward32,
+	}
+)
+
 func init() {
 	register(&op[normConfig]{
 		name:    "layernorm-forward",
 		summary: "LayerNorm over the last dimension (norm.LayerNorm; float32: norm.LayerNorm32)",
-		keys:    normKeys,
 		inputs:  []Port{normX, normWeight, normBias},
 		outputs: []Port{{Name: "y", Doc: "the shape of x"}},
-		run: func(c *normConfig, in Tensors, single bool) (Tensors, error) {
-			o, d, err := normSetup(c, in)
-			if err != nil {
-				return nil, err
-			}
-			var y []float64
-			if single {
-				var y32 []float32
-				y32, err = norm.LayerNorm32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), num.Convert[float32](in.data("bias")), o)
-				y = num.Convert[float64](y32)
-			} else {
-				y, err = norm.LayerNorm(in.data("x"), d, in.data("weight"), in.data("bias"), o)
-			}
-			if err != nil {
-				return nil, err
-			}
-			return Tensors{"y": {in["x"].Shape, y}}, nil
-		},
+		run:     layerNorm.runForward,
 	})
-
 	register(&op[normConfig]{
 		name:    "layernorm-backward",
 		summary: "gradients of LayerNorm (norm.LayerNormBackward; float32: norm.LayerNormBackward32)",
-		keys:    normKeys,
 		inputs:  []Port{normX, normWeight, normDy},
 		outputs: []Port{
 			{Name: "dx", Doc: "the shape of x"},
 			{Name: "dweight", Optional: true, Doc: "[d], when a weight is given"},
 			{Name: "dbias", Doc: "[d]"},
 		},
-		run: func(c *normConfig, in Tensors, single bool) (Tensors, error) {
-			o, d, err := normSetup(c, in)
-			if err != nil {
-				return nil, err
-			}
-			var g norm.Grads
-			if single {
-				var g32 norm.Grads32
-				g32, err = norm.LayerNormBackward32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), num.Convert[float32](in.data("dy")), o)
-				g = norm.Grads{X: num.Convert[float64](g32.X), Weight: num.Convert[float64](g32.Weight), Bias: num.Convert[float64](g32.Bias)}
-			} else {
-				g, err = norm.LayerNormBackward(in.data("x"), d, in.data("weight"), in.data("dy"), o)
-			}
-			if err != nil {
-				return nil, err
-			}
-			out := Tensors{"dx": {in["x"].Shape, g.X}, "dbias": {[]int{d}, g.Bias}}
-			if g.Weight != nil {
-				out["dweight"] = Tensor{[]int{d}, g.Weight}
-			}
-			return out, nil
-		},
+		run: layerNorm.runBackward,
 	})
-
 	register(&op[normConfig]{
 		name:    "rmsnorm-forward",
 		summary: "RMSNorm over the last dimension (norm.RMSNorm; float32: norm.RMSNorm32)",
-		keys:    normKeys,
 		inputs:  []Port{normX, normWeight},
 		outputs: []Port{{Name: "y", Doc: "the shape of x"}},
-		run: func(c *normConfig, in Tensors, single bool) (Tensors, error) {
-			o, d, err := normSetup(c, in)
-			if err != nil {
-				return nil, err
-			}
-			var y []float64
-			if single {
-				var y32 []float32
-				y32, err = norm.RMSNorm32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), o)
-				y = num.Convert[float64](y32)
-			} else {
-				y, err = norm.RMSNorm(in.data("x"), d, in.data("weight"), o)
-			}
-			if err != nil {
-				return nil, err
-			}
-			return Tensors{"y": {in["x"].Shape, y}}, nil
-		},
+		run:     rmsNorm.runForward,
 	})
-
 	register(&op[normConfig]{
 		name:    "rmsnorm-backward",
 		summary: "gradients of RMSNorm (norm.RMSNormBackward; float32: norm.RMSNormBackward32)",
-		keys:    normKeys,
 		inputs:  []Port{normX, normWeight, normDy},
 		outputs: []Port{
 			{Name: "dx", Doc: "the shape of x"},
 			{Name: "dweight", Optional: true, Doc: "[d], when a weight is given"},
 		},
-		run: func(c *normConfig, in Tensors, single bool) (Tensors, error) {
-			o, d, err := normSetup(c, in)
-			if err != nil {
-				return nil, err
-			}
-			var g norm.Grads
-			if single {
-				var g32 norm.Grads32
-				g32, err = norm.RMSNormBackward32(num.Convert[float32](in.data("x")), d, num.Convert[float32](in.data("weight")), num.Convert[float32](in.data("dy")), o)
-				g = norm.Grads{X: num.Convert[float64](g32.X), Weight: num.Convert[float64](g32.Weight)}
-			} else {
-				g, err = norm.RMSNormBackward(in.data("x"), d, in.data("weight"), in.data("dy"), o)
-			}
-			if err != nil {
-				return nil, err
-			}
-			out := Tensors{"dx": {in["x"].Shape, g.X}}
-			if g.Weight != nil {
-				out["dweight"] = Tensor{[]int{d}, g.Weight}
-			}
-			return out, nil
-		},
+		run: rmsNorm.runBackward,
 	})
+}
+
+func (k normKernels) runForward(c *normConfig, in Tensors, single bool) (Tensors, error) {
+	o, d, err := normSetup(c, in)
+	if err != nil {
+		return nil, err
+	}
+	var y []float64
+	if single {
+		y, err = wide(k.forward32(in.f32("x"), d, in.f32("weight"), in.f32("bias"), o))
+	} else {
+		y, err = k.forward(in.data("x"), d, in.data("weight"), in.data("bias"), o)
+	}
+	if err != nil {
+		return nil, err
+	}
+	return Tensors{"y": {in["x"].Shape, y}}, nil
+}
+
+func (k normKernels) runBackward(c *normConfig, in Tensors, single bool) (Tensors, error) {
+	o, d, err := normSetup(c, in)
+	if err != nil {
+		return nil, err
+	}
+	var g norm.Grads
+	if single {
+		var g32 norm.Grads32
+		g32, err = k.backward32(in.f32("x"), d, in.f32("weight"), in.f32("dy"), o)
+		g = norm.Grads{X: num.Convert[float64](g32.X), Weight: num.Convert[float64](g32.Weight), Bias: num.Convert[float64](g32.Bias)}
+	} else {
+		g, err = k.backward(in.data("x"), d, in.data("weight"), in.data("dy"), o)
+	}
+	if err != nil {
+		return nil, err
+	}
+	out := Tensors{"dx": {in["x"].Shape, g.X}}
+	if g.Bias != nil {
+		out["dbias"] = Tensor{[]int{d}, g.Bias}
+	}
+	if g.Weight != nil {
+		out["dweight"] = Tensor{[]int{d}, g.Weight}
+	}
+	return out, nil
 }

@@ -1,12 +1,10 @@
 package ops
 
 import (
-	"bytes"
-	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"reflect"
+	"slices"
 	"sort"
 	"strings"
 
@@ -51,12 +49,31 @@ type Port struct {
 	Doc      string // its shape and meaning
 }
 
-// Key describes one configuration key.
+// Key describes one configuration key. The keys of an operation are read
+// from its configuration type, so the documentation cannot drift from what
+// the decoder accepts; a key whose value is a word of one of plumb's
+// conventions lists every word with its meaning, from the convention
+// itself.
 type Key struct {
-	Name    string
-	Type    string // "int", "number", "bool", "string", "[int]", "[number]", "object", "[object]"
-	Default string // the value used when the key is absent; "required" if it must be given
+	// Name is the key, or a dotted path to a key inside an object
+	// ("scaling.method") or inside the objects of a list ("mask[].kind").
+	Name string
+	// Type is "int", "number", "bool", "word", "[int]", "[number]",
+	// "object" or "[object]".
+	Type string
+	// Default is the value used when the key is absent, "required" when it
+	// must be given, or a condition under which it is required.
+	Default string
 	Doc     string
+	// Convention, for a word, is the Go type whose words the key takes
+	// ("attention.GroupMap"); Words lists them, the default first.
+	Convention string
+	Words      []Word
+}
+
+// Word is one value a word key takes, and its meaning.
+type Word struct {
+	Text, Meaning string
 }
 
 // Op is one operation: a kernel of a plumb package behind a uniform
@@ -87,9 +104,9 @@ type Op interface {
 // instantiation, inputs already rounded to float32).
 type op[C any] struct {
 	name, summary   string
-	keys            []Key
 	inputs, outputs []Port
 	run             func(c *C, in Tensors, single bool) (Tensors, error)
+	keys            []Key // from C, at registration
 }
 
 func (o *op[C]) Name() string    { return o.name }
@@ -108,7 +125,7 @@ func (o *op[C]) Run32(config []byte, in Tensors) (Tensors, error) {
 
 func (o *op[C]) exec(config []byte, in Tensors, single bool) (Tensors, error) {
 	c := new(C)
-	if err := decodeConfig(o.name, config, c); err != nil {
+	if err := decodeConfig(o.name, config, c, o.keys); err != nil {
 		return nil, err
 	}
 	if err := checkInputs(o.name, o.inputs, in); err != nil {
@@ -123,10 +140,11 @@ func (o *op[C]) exec(config []byte, in Tensors, single bool) (Tensors, error) {
 
 var registry = map[string]Op{}
 
-func register(o Op) {
+func register[C any](o *op[C]) {
 	if _, dup := registry[o.Name()]; dup {
 		panic("ops: operation registered twice: " + o.Name())
 	}
+	o.keys = keysOf(reflect.TypeFor[C](), "")
 	registry[o.Name()] = o
 }
 
@@ -243,44 +261,6 @@ func (h header) version() int { return h.Version }
 
 type versioned interface{ version() int }
 
-// decodeConfig reads one JSON object into c, refusing unknown keys, trailing
-// data and versions other than ConfigVersion. An empty config means
-// {"version": 1}.
-func decodeConfig(name string, data []byte, c any) error {
-	if len(bytes.TrimSpace(data)) == 0 {
-		data = []byte(`{"version":1}`)
-	}
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(c); err != nil {
-		var syn *json.SyntaxError
-		var typ *json.UnmarshalTypeError
-		switch {
-		case strings.HasPrefix(err.Error(), "json: unknown field "):
-			key := strings.TrimPrefix(err.Error(), "json: unknown field ")
-			return fmt.Errorf("%w: %s: unknown key %s (see `plumb help %s`)", ErrConfig, name, key, name)
-		case errors.As(err, &syn):
-			return fmt.Errorf("%w: %s: malformed JSON at byte %d: %v", ErrConfig, name, syn.Offset, err)
-		case errors.As(err, &typ):
-			return fmt.Errorf("%w: %s: key %q holds a JSON %s; want %v", ErrConfig, name, typ.Field, typ.Value, typ.Type)
-		case errors.Is(err, io.EOF), errors.Is(err, io.ErrUnexpectedEOF):
-			return fmt.Errorf("%w: %s: malformed JSON: the configuration ends early", ErrConfig, name)
-		default:
-			return fmt.Errorf("%w: %s: %v", ErrConfig, name, err)
-		}
-	}
-	if dec.More() {
-		return fmt.Errorf("%w: %s: malformed JSON: more than one value in the configuration", ErrConfig, name)
-	}
-	if v := c.(versioned).version(); v != ConfigVersion {
-		if v == 0 {
-			return fmt.Errorf("%w: %s: key \"version\" is missing or 0; this plumb reads version %d", ErrConfig, name, ConfigVersion)
-		}
-		return fmt.Errorf("%w: %s: key \"version\" is %d; this plumb reads version %d", ErrConfig, name, v, ConfigVersion)
-	}
-	return nil
-}
-
 // checkInputs refuses unknown and missing inputs and tensors whose data do
 // not fill their shape.
 func checkInputs(name string, ports []Port, in Tensors) error {
@@ -357,38 +337,19 @@ func lastDim(in Tensors, n string) (int, error) {
 
 // sameShape checks that input n has the shape want.
 func sameShape(in Tensors, n string, want []int, what string) error {
-	if !equalInts(in[n].Shape, want) {
+	if !slices.Equal(in[n].Shape, want) {
 		return fmt.Errorf("%w: input %q has shape %v; want %v (%s)", ErrInput, n, in[n].Shape, want, what)
 	}
 	return nil
 }
 
-func equalInts(a, b []int) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
-}
+// f32 returns the data of input n rounded to float32, or nil when it is
+// absent.
+func (in Tensors) f32(n string) []float32 { return num.Convert[float32](in.data(n)) }
 
-// choice maps an enumerated configuration word to its value; "" gives the
-// default, the first entry.
-func choice[T any](key, word string, words []string, values []T) (T, error) {
-	if word == "" {
-		return values[0], nil
-	}
-	for i, w := range words {
-		if w == word {
-			return values[i], nil
-		}
-	}
-	var zero T
-	return zero, fmt.Errorf("%w: key %q is %q; want one of %s", ErrConfig, key, word, strings.Join(words, ", "))
-}
+// wide returns a float32 result widened (exactly) to float64, with its
+// error.
+func wide(y []float32, err error) ([]float64, error) { return num.Convert[float64](y), err }
 
 // has reports whether input n was given.
 func (in Tensors) has(n string) bool { _, ok := in[n]; return ok }
@@ -399,23 +360,4 @@ func (in Tensors) data(n string) []float64 {
 		return t.Data
 	}
 	return nil
-}
-
-// configKeys lists the JSON keys of the configuration type, for the test
-// that every key is documented.
-func (o *op[C]) configKeys() []string { return jsonKeys(reflect.TypeFor[C]()) }
-
-func jsonKeys(t reflect.Type) []string {
-	var keys []string
-	for i := 0; i < t.NumField(); i++ {
-		f := t.Field(i)
-		if f.Anonymous {
-			keys = append(keys, jsonKeys(f.Type)...)
-			continue
-		}
-		if tag := strings.Split(f.Tag.Get("json"), ",")[0]; tag != "" {
-			keys = append(keys, tag)
-		}
-	}
-	return keys
 }

@@ -1,9 +1,13 @@
 package ops
 
 import (
+	"encoding"
+	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"slices"
 	"strings"
 	"testing"
@@ -71,7 +75,7 @@ func cases() []opCase {
 			func(*rand.Rand) Tensors { return nil }, []string{"table"}},
 		{"alibi-slopes", "alibi-slopes", `{"version":1,"heads":12}`,
 			func(*rand.Rand) Tensors { return nil }, []string{"slopes"}},
-		{"alibi-bias", "alibi-bias", `{"version":1,"queries":3,"keys":5,"form":"symmetric"}`,
+		{"alibi-bias", "alibi-bias", `{"version":1,"queries":3,"keys":5,"alibi_form":"symmetric"}`,
 			func(*rand.Rand) Tensors { return Tensors{"slopes": {[]int{2}, []float64{0.5, 0.25}}} }, []string{"bias"}},
 		{"layernorm-forward", "layernorm-forward", `{"version":1,"epsilon":1e-5}`,
 			func(r *rand.Rand) Tensors {
@@ -240,22 +244,57 @@ func TestRunMatchesKernels(t *testing.T) {
 	assert.Equal(t, y, got["y"].Data)
 }
 
-// TestEveryKeyDocumented: each JSON key of each configuration appears in
-// Keys, and Keys names no key the configuration lacks.
+// TestEveryKeyDocumented: every key of every operation says what it does
+// and what its absence means, and a word key lists exactly its
+// convention's words, the default first.
 func TestEveryKeyDocumented(t *testing.T) {
 	for _, n := range Names() {
 		o, err := Lookup(n)
 		require.NoError(t, err)
-		var doc []string
 		for _, k := range o.Keys() {
-			doc = append(doc, k.Name)
 			assert.NotEmpty(t, k.Doc, "%s: key %s", n, k.Name)
+			assert.NotEmpty(t, k.Default, "%s: key %s", n, k.Name)
+			assert.NotEmpty(t, k.Type, "%s: key %s", n, k.Name)
+			if k.Type != "word" {
+				assert.Empty(t, k.Words, "%s: key %s", n, k.Name)
+				continue
+			}
+			require.NotEmpty(t, k.Convention, "%s: key %s", n, k.Name)
+			require.NotEmpty(t, k.Words, "%s: key %s", n, k.Name)
+			if !strings.HasPrefix(k.Default, "required") {
+				assert.Equal(t, `"`+k.Words[0].Text+`"`, k.Default, "%s: key %s: the default is the zero value's word", n, k.Name)
+			}
+			for _, w := range k.Words {
+				assert.NotEmpty(t, w.Meaning, "%s: key %s: word %s", n, k.Name, w.Text)
+			}
 		}
-		keys := o.(interface{ configKeys() []string }).configKeys()
-		assert.ElementsMatch(t, append(doc, "version"), keys, n)
 		assert.NotEmpty(t, o.Summary())
 		for _, p := range append(o.Inputs(), o.Outputs()...) {
 			assert.NotEmpty(t, p.Doc, "%s: tensor %s", n, p.Name)
+		}
+	}
+}
+
+// TestWordKeysDecode: for every word key of every operation, each of its
+// words decodes to the value of the convention whose word it is, and a
+// word of no convention is refused naming the key and listing the words.
+func TestWordKeysDecode(t *testing.T) {
+	for _, n := range Names() {
+		o, _ := Lookup(n)
+		for _, k := range o.Keys() {
+			if k.Type != "word" || strings.ContainsAny(k.Name, ".[") {
+				continue
+			}
+			for _, w := range k.Words {
+				cfg := fmt.Sprintf(`{"version":1,%q:%q}`, k.Name, w.Text)
+				got, err := wordOf(o, []byte(cfg), k.Name)
+				require.NoError(t, err, "%s: %s", n, cfg)
+				assert.Equal(t, w.Text, got, "%s: %s", n, cfg)
+			}
+			cfg := fmt.Sprintf(`{"version":1,%q:"no-such-word"}`, k.Name)
+			_, err := wordOf(o, []byte(cfg), k.Name)
+			require.ErrorIs(t, err, ErrConfig, "%s: %s", n, cfg)
+			assert.Contains(t, err.Error(), fmt.Sprintf(`key %q = "no-such-word"; want one of `, k.Name), n)
 		}
 	}
 }
@@ -277,12 +316,15 @@ func TestErrors(t *testing.T) {
 		{"mask key missing", "attention-forward", `{"version":1,"mask":[{"kind":"band","before":2}]}`, qkv, ErrConfig, `kind "band" needs key "after"`},
 		{"mask prefix without length", "attention-forward", `{"version":1,"mask":[{"kind":"prefix"}]}`, qkv, ErrConfig, `kind "prefix" needs key "length"`},
 		{"missing version", "activation", `{"function":"relu"}`, x, ErrConfig, `"version" is missing`},
-		{"future version", "activation", `{"version":2,"function":"relu"}`, x, ErrConfig, `"version" is 2`},
+		{"future version", "activation", `{"version":2,"function":"relu"}`, x, ErrConfig, `"version" = 2`},
 		{"malformed", "activation", `{"version":1,`, x, ErrConfig, "malformed JSON"},
 		{"syntax", "activation", `{"version":1 "function":"relu"}`, x, ErrConfig, "malformed JSON at byte"},
 		{"two values", "activation", `{"version":1,"function":"relu"} {}`, x, ErrConfig, "more than one value"},
 		{"wrong type", "activation", `{"version":1,"function":3}`, x, ErrConfig, `key "function" holds a JSON number`},
-		{"bad word", "attention-forward", `{"version":1,"layout":"rows"}`, qkv, ErrConfig, `key "layout" is "rows"; want one of heads-major, seq-major`},
+		{"bad word", "attention-forward", `{"version":1,"layout":"rows"}`, qkv, ErrConfig, `key "layout" = "rows"; want one of heads-major, seq-major`},
+		{"bad nested word", "attention-forward", `{"version":1,"mask":[{"kind":"windw","size":2}]}`, qkv, ErrConfig, `key "mask[].kind" = "windw"; want one of full, causal,`},
+		{"bad block word", "attention-forward", `{"version":1,"mask":[{"kind":"packed","offsets":[0,3],"block":"open"}]}`, qkv, ErrConfig, `key "mask[].block" = "open"; want one of causal, full`},
+		{"word as number", "attention-forward", `{"version":1,"group":1}`, qkv, ErrConfig, `key "group" holds a JSON number; want a word: blocks, cycle`},
 		{"missing required", "activation", `{"version":1}`, x, ErrConfig, `key "function" is missing`},
 		{"unknown input", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": x["x"], "z": x["x"]}, ErrInput, `does not take input "z"`},
 		{"missing input", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"]}, ErrInput, `input "k" is missing`},
@@ -346,4 +388,46 @@ func FuzzConfig(f *testing.F) {
 			}
 		}
 	})
+}
+
+// wordOf decodes config for o and returns the word held by the top-level
+// key, as the configuration type holds it.
+func wordOf(o Op, config []byte, key string) (string, error) {
+	return o.(interface {
+		decodeWord([]byte, string) (string, error)
+	}).decodeWord(config, key)
+}
+
+func (o *op[C]) decodeWord(config []byte, key string) (string, error) {
+	c := new(C)
+	if err := json.Unmarshal(config, c); err != nil {
+		return "", configError(o.name, err, o.keys)
+	}
+	f, ok := fieldByKey(reflect.ValueOf(c).Elem(), key)
+	if !ok {
+		return "", fmt.Errorf("no field for key %q", key)
+	}
+	if f.Kind() == reflect.Pointer {
+		f = f.Elem()
+	}
+	b, err := f.Interface().(encoding.TextMarshaler).MarshalText()
+	return string(b), err
+}
+
+// fieldByKey finds the field of struct v whose JSON key is key, looking
+// into embedded structs.
+func fieldByKey(v reflect.Value, key string) (reflect.Value, bool) {
+	for i := range v.NumField() {
+		f := v.Type().Field(i)
+		if f.Anonymous {
+			if g, ok := fieldByKey(v.Field(i), key); ok {
+				return g, true
+			}
+			continue
+		}
+		if strings.Split(f.Tag.Get("json"), ",")[0] == key {
+			return v.Field(i), true
+		}
+	}
+	return reflect.Value{}, false
 }

@@ -14,7 +14,9 @@ import (
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/mask"
+	"github.com/plumbref/plumb/ops"
 )
 
 // The code of the README's library section lives here, word for word
@@ -114,4 +116,54 @@ func TestReadmeSnippets(t *testing.T) {
 	for _, b := range blocks {
 		assert.Contains(t, flat(string(self)), flat(b[1]), "README snippet not found in readme_test.go")
 	}
+}
+
+// The conventions tables of the README and of the overview (doc.go) are
+// generated from the convention types (ops.Conventions); TestConventionsTable
+// keeps them so. Regenerate with go test ./ops -run TestConventionsTable
+// -update.
+const (
+	readmeTableBegin = "<!-- conventions: generated from the code by go test ./ops -run TestConventionsTable -update -->"
+	readmeTableEnd   = "<!-- end of conventions -->"
+	docTableBegin    = "//\tconvention and its words (the first is the default)   meaning"
+	docTableEnd      = "//"
+)
+
+func TestConventionsTable(t *testing.T) {
+	var md, doc strings.Builder
+	md.WriteString("| convention | Go type | words (the first is the default) | configuration keys |\n| --- | --- | --- | --- |\n")
+	for _, c := range ops.Conventions() {
+		var words []string
+		for _, w := range c.Words {
+			words = append(words, fmt.Sprintf("`%s` %s", w.Text, strings.ReplaceAll(w.Meaning, "|", `\|`)))
+		}
+		fmt.Fprintf(&md, "| %s | `%s` | %s | %s |\n", c.Question, c.Name, strings.Join(words, "; "), keyList(c.Keys))
+		fmt.Fprintf(&doc, "//\t%s: %s\n", c.Name, c.Question)
+		for _, w := range c.Words {
+			fmt.Fprintf(&doc, "//\t  %-15s %s\n", w.Text, w.Meaning)
+		}
+	}
+	golden.Block(t, "../README.md", readmeTableBegin, readmeTableEnd, md.String())
+	golden.Block(t, "../doc.go", docTableBegin, docTableEnd, doc.String())
+}
+
+// keyList groups "operation: key" entries by key: "`group` (attention-forward, attention-backward)".
+func keyList(keys []string) string {
+	var order []string
+	ops := map[string][]string{}
+	for _, k := range keys {
+		op, key, _ := strings.Cut(k, ": ")
+		if ops[key] == nil {
+			order = append(order, key)
+		}
+		ops[key] = append(ops[key], op)
+	}
+	if len(order) == 0 {
+		return "— (library and flags only)"
+	}
+	var out []string
+	for _, key := range order {
+		out = append(out, fmt.Sprintf("`%s` (%s)", key, strings.Join(ops[key], ", ")))
+	}
+	return strings.Join(out, "; ")
 }

@@ -2,7 +2,6 @@ package ops
 
 import (
 	"github.com/plumbref/plumb/attention"
-	"github.com/plumbref/plumb/internal/num"
 )
 
 type rowsConfig struct {
@@ -18,24 +17,7 @@ func init() {
 		summary: "softmax over the last dimension, maximum subtracted first (attention.Softmax; float32: attention.Softmax32)",
 		inputs:  []Port{{Name: "x", Doc: "[..., n]: logits, one row of n per softmax"}},
 		outputs: []Port{{Name: "y", Doc: "the shape of x: each row sums to 1"}},
-		run: func(c *rowsConfig, in Tensors, single bool) (Tensors, error) {
-			n, err := rowsSetup(in)
-			if err != nil {
-				return nil, err
-			}
-			var y []float64
-			if single {
-				var y32 []float32
-				y32, err = attention.Softmax32(num.Convert[float32](in.data("x")), n)
-				y = num.Convert[float64](y32)
-			} else {
-				y, err = attention.Softmax(in.data("x"), n)
-			}
-			if err != nil {
-				return nil, err
-			}
-			return Tensors{"y": {in["x"].Shape, y}}, nil
-		},
+		run:     runSoftmax,
 	})
 
 	register(&op[rowsConfig]{
@@ -43,24 +25,41 @@ func init() {
 		summary: "natural log-sum-exp over the last dimension (attention.LogSumExp; float32: attention.LogSumExp32)",
 		inputs:  []Port{{Name: "x", Doc: "[..., n]: one row of n per value"}},
 		outputs: []Port{{Name: "lse", Doc: "[...]: the shape of x without its last dimension"}},
-		run: func(c *rowsConfig, in Tensors, single bool) (Tensors, error) {
-			n, err := rowsSetup(in)
-			if err != nil {
-				return nil, err
-			}
-			var l []float64
-			if single {
-				var l32 []float32
-				l32, err = attention.LogSumExp32(num.Convert[float32](in.data("x")), n)
-				l = num.Convert[float64](l32)
-			} else {
-				l, err = attention.LogSumExp(in.data("x"), n)
-			}
-			if err != nil {
-				return nil, err
-			}
-			s := in["x"].Shape
-			return Tensors{"lse": {append([]int{}, s[:len(s)-1]...), l}}, nil
-		},
+		run:     runLogsumexp,
 	})
+}
+
+func runSoftmax(c *rowsConfig, in Tensors, single bool) (Tensors, error) {
+	n, err := rowsSetup(in)
+	if err != nil {
+		return nil, err
+	}
+	var y []float64
+	if single {
+		y, err = wide(attention.Softmax32(in.f32("x"), n))
+	} else {
+		y, err = attention.Softmax(in.data("x"), n)
+	}
+	if err != nil {
+		return nil, err
+	}
+	return Tensors{"y": {in["x"].Shape, y}}, nil
+}
+
+func runLogsumexp(c *rowsConfig, in Tensors, single bool) (Tensors, error) {
+	n, err := rowsSetup(in)
+	if err != nil {
+		return nil, err
+	}
+	var l []float64
+	if single {
+		l, err = wide(attention.LogSumExp32(in.f32("x"), n))
+	} else {
+		l, err = attention.LogSumExp(in.data("x"), n)
+	}
+	if err != nil {
+		return nil, err
+	}
+	s := in["x"].Shape
+	return Tensors{"lse": {append([]int{}, s[:len(s)-1]...), l}}, nil
 }

@@ -6,6 +6,7 @@ import (
 	"math/bits"
 
 	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -56,30 +57,6 @@ func exp2Neg(num, den int) float64 {
 	return math.Ldexp(v, -k)
 }
 
-// ALiBiForm chooses which key distances the ALiBi bias penalises.
-type ALiBiForm int
-
-const (
-	// ALiBiCausal is the paper's form (Press et al. 2022 §3, Figure 3):
-	// bias[h, i, j] = −m_h·(p(i) − j) for j ≤ p(i), and 0 for j > p(i):
-	// those keys must be hidden by a causal mask (mask.Causal with the same
-	// Geometry), which the bias does not do. It is the zero value.
-	ALiBiCausal ALiBiForm = iota
-	// ALiBiSymmetric penalises distance both ways, for attention without a
-	// causal mask: bias[h, i, j] = −m_h·|p(i) − j| [common practice].
-	ALiBiSymmetric
-)
-
-func (f ALiBiForm) String() string {
-	switch f {
-	case ALiBiCausal:
-		return "ALiBiCausal"
-	case ALiBiSymmetric:
-		return "ALiBiSymmetric"
-	}
-	return fmt.Sprintf("ALiBiForm(%d)", int(f))
-}
-
 // ALiBiBias returns the additive ALiBi bias for the given slopes (one per
 // head, usually from ALiBiSlopes) as a row-major [H, Lq, Lk] array, H =
 // len(slopes), to be added to the scaled attention logits q·k/√d of every
@@ -88,23 +65,38 @@ func (f ALiBiForm) String() string {
 //
 //	p(i) = Lk − Lq + i + Offset (mask.AlignEnd),  i + Offset (mask.AlignStart),
 //
-// and bias[h, i, j] is −m_h·(p(i) − j) (ALiBiCausal, j ≤ p(i); 0 beyond) or
-// −m_h·|p(i) − j| (ALiBiSymmetric). Each entry is the one rounding of the
-// product of the slope and the exact integer distance, so it is bit-exact.
-// g.Batch is not used: the bias is the same for every batch entry.
+// and bias[h, i, j] = −m_h·d(p(i), j), with the distance d of the form
+// (mask.ALiBiForm.Distance):
+//
+//	mask.ALiBiCausal     d = p(i) − j            the paper's formula, for every key
+//	mask.ALiBiSymmetric  d = |p(i) − j|          common practice without a causal mask
+//	mask.ALiBiPastOnly   d = max(p(i) − j, 0)
+//
+// For the keys up to the query, j ≤ p(i), the three forms agree:
+// −m_h·(p(i) − j), as in the paper. They differ only for the keys after it,
+// j > p(i): the causal form gives them m_h·(j − p(i)), of the opposite sign
+// to the keys before (positive for a positive slope), the symmetric form
+// −m_h·(j − p(i)) and the past-only form 0. The bias hides no key; under a
+// causal mask with the same Geometry (mask.Causal), which hides exactly the
+// keys after the query, all three forms give the same attention.
+//
+// Each entry is the one rounding of the product of the slope and the exact
+// integer distance, so it is bit-exact. g.Batch is not used: the bias is the
+// same for every batch entry.
 //
 // Special cases are:
 //
 //	Lq = 0 or Lk = 0                empty result
-//	distance 0                      +0
+//	d(p(i), j) = 0                  +0 (j = p(i); with the past-only form every j ≥ p(i))
+//	slope ±0, d ≠ 0                 ∓0 for d > 0, ±0 for d < 0 (the sign of −m·d)
 //	no slopes                       ErrHeads
 //	NaN or ±Inf slope               ErrHeads
 //	negative Lq, Lk or Batch        ErrShape
 //	H·Lq·Lk > 2^40                  ErrShape
-//	unknown g.Align or form         ErrOption
-//	ALiBiCausal with p(i) outside 0 … Lk−1  ErrPosition
-//	|p(i)| > MaxPosition            ErrPosition
-func ALiBiBias(slopes []float64, g mask.Geometry, form ALiBiForm) ([]float64, error) {
+//	g.Align or form not one of its constants  ErrOption, also wrapping mask.ErrAlign or mask.ErrALiBi
+//	p(i) outside 0 … Lk−1 with the causal or past-only form  ErrPosition
+//	|Offset| or |p(i)| > MaxPosition  ErrPosition
+func ALiBiBias(slopes []float64, g mask.Geometry, form mask.ALiBiForm) ([]float64, error) {
 	return alibiBias(slopes, g, form)
 }
 
@@ -112,11 +104,11 @@ func ALiBiBias(slopes []float64, g mask.Geometry, form ALiBiForm) ([]float64, er
 // the straightforward low-precision implementation the compare package uses
 // as a yardstick; not a reference. Each entry is the float32 product of the
 // float32 slope and the distance (exact in float32 up to 2^24).
-func ALiBiBias32(slopes []float32, g mask.Geometry, form ALiBiForm) ([]float32, error) {
+func ALiBiBias32(slopes []float32, g mask.Geometry, form mask.ALiBiForm) ([]float32, error) {
 	return alibiBias(slopes, g, form)
 }
 
-func alibiBias[T num.Float](slopes []T, g mask.Geometry, form ALiBiForm) ([]T, error) {
+func alibiBias[T num.Float](slopes []T, g mask.Geometry, form mask.ALiBiForm) ([]T, error) {
 	if len(slopes) == 0 {
 		return nil, fmt.Errorf("%w: no slopes; want one per head", ErrHeads)
 	}
@@ -128,11 +120,11 @@ func alibiBias[T num.Float](slopes []T, g mask.Geometry, form ALiBiForm) ([]T, e
 	if g.Batch < 0 || g.Lq < 0 || g.Lk < 0 {
 		return nil, fmt.Errorf("%w: geometry %v; sizes must be ≥ 0", ErrShape, g)
 	}
-	if g.Align != mask.AlignEnd && g.Align != mask.AlignStart {
-		return nil, fmt.Errorf("%w: Align = %d; want mask.AlignEnd or mask.AlignStart", ErrOption, int(g.Align))
+	if err := g.Align.Check(); err != nil {
+		return nil, vocab.At(err, ErrOption, "g.Align")
 	}
-	if form != ALiBiCausal && form != ALiBiSymmetric {
-		return nil, fmt.Errorf("%w: form = %d; want ALiBiCausal or ALiBiSymmetric", ErrOption, int(form))
+	if err := form.Check(); err != nil {
+		return nil, vocab.At(err, ErrOption, "form")
 	}
 	H := len(slopes)
 	if g.Lq > 0 && g.Lk > 0 && (g.Lk > maxElements/g.Lq || g.Lq*g.Lk > maxElements/H) {
@@ -150,9 +142,9 @@ func alibiBias[T num.Float](slopes []T, g mask.Geometry, form ALiBiForm) ([]T, e
 		if err := checkPosition("the last query position p(Lq−1)", last, true); err != nil {
 			return nil, err
 		}
-		if form == ALiBiCausal && (first < 0 || last >= g.Lk) {
-			return nil, fmt.Errorf("%w: %v puts queries at key positions %d … %d; the causal form needs them within 0 … %d",
-				ErrPosition, g, first, last, g.Lk-1)
+		if form != mask.ALiBiSymmetric && (first < 0 || last >= g.Lk) {
+			return nil, fmt.Errorf("%w: %v puts queries at key positions %d … %d; the %s form needs them within 0 … %d",
+				ErrPosition, g, first, last, form, g.Lk-1)
 		}
 	}
 	out := make([]T, H*g.Lq*g.Lk)
@@ -161,14 +153,7 @@ func alibiBias[T num.Float](slopes []T, g mask.Geometry, form ALiBiForm) ([]T, e
 			p := g.Pos(i)
 			row := out[(h*g.Lq+i)*g.Lk : (h*g.Lq+i+1)*g.Lk]
 			for j := range row {
-				d := p - j
-				switch {
-				case d < 0 && form == ALiBiCausal:
-					continue
-				case d < 0:
-					d = -d
-				}
-				if d != 0 {
+				if d := form.Distance(p, j); d != 0 {
 					row[j] = -T(m * T(d))
 				}
 			}

@@ -1,6 +1,10 @@
 package posenc
 
-import "math"
+import (
+	"math"
+
+	"github.com/plumbref/plumb/internal/num"
+)
 
 // This file holds the double-double arithmetic that the frequency and angle
 // computations use: a value is the unevaluated sum hi + lo of two float64
@@ -8,44 +12,22 @@ import "math"
 // classical error-free transformations (Dekker 1971, "A floating-point
 // technique for extending the available precision", Numer. Math. 18;
 // Knuth, TAOCP vol. 2, §4.2.2, Theorem B); products use math.FMA for the
-// exact low part. Every product that must be rounded is written
-// float64(x*y) so that no architecture fuses it into an FMA: the results
-// are bit-identical everywhere.
+// exact low part (internal/num's TwoSum, FastTwoSum, TwoProd). Every
+// product that must be rounded is written float64(x*y) so that no
+// architecture fuses it into an FMA: the results are bit-identical
+// everywhere.
 
 type dd struct{ hi, lo float64 }
-
-// twoSum returns s = fl(a+b) and e with s + e = a + b exactly.
-func twoSum(a, b float64) (s, e float64) {
-	s = a + b
-	bb := s - a
-	e = (a - (s - bb)) + (b - bb)
-	return s, e
-}
-
-// quickTwoSum is twoSum for |a| ≥ |b| (or a = 0).
-func quickTwoSum(a, b float64) (s, e float64) {
-	s = a + b
-	e = b - (s - a)
-	return s, e
-}
-
-// twoProd returns p = fl(a·b) and e with p + e = a·b exactly (barring
-// underflow).
-func twoProd(a, b float64) (p, e float64) {
-	p = float64(a * b)
-	e = math.FMA(a, b, -p)
-	return p, e
-}
 
 func ddFrom(x float64) dd { return dd{x, 0} }
 
 func ddAdd(a, b dd) dd {
-	s, e := twoSum(a.hi, b.hi)
-	t, f := twoSum(a.lo, b.lo)
+	s, e := num.TwoSum(a.hi, b.hi)
+	t, f := num.TwoSum(a.lo, b.lo)
 	e += t
-	s, e = quickTwoSum(s, e)
+	s, e = num.FastTwoSum(s, e)
 	e += f
-	s, e = quickTwoSum(s, e)
+	s, e = num.FastTwoSum(s, e)
 	return dd{s, e}
 }
 
@@ -54,17 +36,17 @@ func ddNeg(a dd) dd { return dd{-a.hi, -a.lo} }
 func ddSub(a, b dd) dd { return ddAdd(a, ddNeg(b)) }
 
 func ddMul(a, b dd) dd {
-	p, e := twoProd(a.hi, b.hi)
+	p, e := num.TwoProd(a.hi, b.hi)
 	e += float64(a.hi*b.lo) + float64(a.lo*b.hi)
-	p, e = quickTwoSum(p, e)
+	p, e = num.FastTwoSum(p, e)
 	return dd{p, e}
 }
 
 // ddMulF multiplies by a float64.
 func ddMulF(a dd, b float64) dd {
-	p, e := twoProd(a.hi, b)
+	p, e := num.TwoProd(a.hi, b)
 	e += float64(a.lo * b)
-	p, e = quickTwoSum(p, e)
+	p, e = num.FastTwoSum(p, e)
 	return dd{p, e}
 }
 
@@ -75,7 +57,7 @@ func ddDiv(a, b dd) dd {
 	q2 := r.hi / b.hi
 	r = ddSub(r, ddMulF(b, q2))
 	q3 := r.hi / b.hi
-	s, e := quickTwoSum(q1, q2)
+	s, e := num.FastTwoSum(q1, q2)
 	return ddAdd(dd{s, e}, ddFrom(q3))
 }
 
@@ -156,8 +138,8 @@ func sincosDD(a dd) (sin, cos float64) {
 // recovered exactly with FMA.
 func angle(m int, theta dd) dd {
 	fm := float64(m)
-	p, e := twoProd(fm, theta.hi)
+	p, e := num.TwoProd(fm, theta.hi)
 	e += float64(fm * theta.lo)
-	p, e = quickTwoSum(p, e)
+	p, e = num.FastTwoSum(p, e)
 	return dd{p, e}
 }

@@ -14,7 +14,7 @@
 //	NTKBase            b′ = b·s^{r/(r−2)}             Peng et al. 2023 Eq. (16)
 //	YaRNMagnitude      √(1/t) = 0.1·ln s + 1           Peng et al. 2023 Eq. (21)–(22)
 //	ALiBiSlopes        m_k = 2^{−8k/n}                 Press et al. 2022 §3
-//	ALiBiBias          −m_h·(p(i) − j) or −m_h·|p(i) − j|, [H, Lq, Lk]
+//	ALiBiBias          −m_h·d(p(i), j), [H, Lq, Lk]    Press et al. 2022 §3
 //
 // Sources: Vaswani et al. 2017, "Attention Is All You Need", arXiv
 // 1706.03762; Su et al. 2021, "RoFormer: Enhanced Transformer with Rotary
@@ -50,10 +50,12 @@
 //     by a negative angle); sinusoidal positions start at 0.
 //   - ALiBi bias: added to the scaled logits q·k/√d, one [Lq, Lk] plane per
 //     head, shared by every batch entry; query positions follow
-//     mask.Geometry (AlignEnd or AlignStart, plus Offset). The causal form
-//     holds 0 for keys after the query: combine it with mask.Causal. The
-//     symmetric form, −m·|p − j|, is common practice for attention without
-//     a causal mask.
+//     mask.Geometry (AlignEnd or AlignStart, plus Offset). The form
+//     (mask.ALiBiForm) chooses the distance d: the causal form is the
+//     paper's −m·(p − j) for every key, so keys after the query get a
+//     positive bias; the past-only form gives them 0; the symmetric form,
+//     −m·|p − j|, is common practice for attention without a causal mask.
+//     The bias masks nothing: under mask.Causal the three forms agree.
 //   - Slopes for a head count that is not a power of two follow the
 //     authors' published code (see ALiBiSlopes).
 //
@@ -92,11 +94,11 @@
 // Worst normwise relative error against the 50-digit golden files
 // (testdata/golden/posenc, written by testdata/gen/fam_posenc.py; see
 // TestGolden*), positions up to 2^31 − 1, every scaling method at factors
-// 2, 4, 8 and 32:
+// 2, 4, 8 and 32 (and 0.5 where a method takes a factor), magnitudes ≠ 1:
 //
 //	Sinusoidal.Table      8.5e-17
 //	Sinusoidal.Add        7.2e-17
-//	Rotary.Tables         7.7e-17
+//	Rotary.Tables         1.1e-16
 //	Rotary.Apply          1.4e-16
 //	Rotary.ApplyInverse   1.4e-16
 //	Rotary.Frequencies    0 (bit-exact: every frequency correctly rounded)

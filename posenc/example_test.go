@@ -54,6 +54,7 @@ func ExampleRotary_Apply() {
 }
 
 // The two pairings rotate different dims: PairHalves pairs dim 0 with dim 2.
+// Each prints as its word.
 func ExamplePairing() {
 	x := []float64{1, 0, 0, 0}
 	for _, p := range []posenc.Pairing{posenc.PairAdjacent, posenc.PairHalves} {
@@ -61,8 +62,8 @@ func ExamplePairing() {
 		fmt.Printf("%v %.4f\n", p, y)
 	}
 	// Output:
-	// PairAdjacent [0.5403 0.8415 0.0000 0.0000]
-	// PairHalves [0.5403 0.0000 0.8415 0.0000]
+	// adjacent [0.5403 0.8415 0.0000 0.0000]
+	// halves [0.5403 0.0000 0.8415 0.0000]
 }
 
 // Partial rotation: the first 4 of 6 dims are rotated, frequencies over 4;
@@ -102,13 +103,13 @@ func ExampleScaling() {
 		fmt.Printf("%-13v %.3g\n", sc.Method, th)
 	}
 	// Output:
-	// NoScaling     [1 0.1 0.01 0.001]
-	// Interpolation [0.25 0.025 0.0025 0.00025]
-	// NTKAware      [1 0.063 0.00397 0.00025]
-	// YaRN          [1 0.062 0.00265 0.00025]
-	// YaRN          [1 0.075 0.005 0.00025]
-	// NTKAware      [1 0.063 0.00397 0.00025]
-	// PerFrequency  [1 0.05 0.00333 0.00025]
+	// none          [1 0.1 0.01 0.001]
+	// interpolation [0.25 0.025 0.0025 0.00025]
+	// ntk-aware     [1 0.063 0.00397 0.00025]
+	// yarn          [1 0.062 0.00265 0.00025]
+	// yarn          [1 0.075 0.005 0.00025]
+	// ntk-aware     [1 0.063 0.00397 0.00025]
+	// per-frequency [1 0.05 0.00333 0.00025]
 }
 
 func ExampleNTKBase() {
@@ -135,11 +136,13 @@ func ExampleALiBiSlopes() {
 	// Output: [0.5 0.25 0.125 0.0625 0.03125 0.015625 0.0078125 0.00390625 0.707107 0.353553 0.176777 0.0883883]
 }
 
-// Two queries decoded against five keys (AlignEnd): the causal form holds
-// 0 for future keys (none here: the last query is at the last key).
+// Two queries against five keys (AlignEnd): the first query sits at key 3,
+// so key 4 comes after it, and there the forms differ: the causal form's
+// −m·(p − j) is +0.5, the symmetric −m·|p − j| is −0.5, the past-only 0.
+// Under a causal mask, which hides that key, the three are the same.
 func ExampleALiBiBias() {
 	g := mask.Geometry{Batch: 1, Lq: 2, Lk: 5}
-	for _, form := range []posenc.ALiBiForm{posenc.ALiBiCausal, posenc.ALiBiSymmetric} {
+	for _, form := range []mask.ALiBiForm{mask.ALiBiCausal, mask.ALiBiSymmetric, mask.ALiBiPastOnly} {
 		b, err := posenc.ALiBiBias([]float64{0.5}, g, form)
 		if err != nil {
 			fmt.Println(err)
@@ -148,12 +151,13 @@ func ExampleALiBiBias() {
 		fmt.Println(form, b[:5], b[5:])
 	}
 	g.Align = mask.AlignStart
-	b, _ := posenc.ALiBiBias([]float64{0.5}, g, posenc.ALiBiCausal)
-	fmt.Println("AlignStart", b[:5], b[5:])
+	b, _ := posenc.ALiBiBias([]float64{0.5}, g, mask.ALiBiCausal)
+	fmt.Println("start", b[:5], b[5:])
 	// Output:
-	// ALiBiCausal [-1.5 -1 -0.5 0 0] [-2 -1.5 -1 -0.5 0]
-	// ALiBiSymmetric [-1.5 -1 -0.5 0 -0.5] [-2 -1.5 -1 -0.5 0]
-	// AlignStart [0 0 0 0 0] [-0.5 0 0 0 0]
+	// causal [-1.5 -1 -0.5 0 0.5] [-2 -1.5 -1 -0.5 0]
+	// symmetric [-1.5 -1 -0.5 0 -0.5] [-2 -1.5 -1 -0.5 0]
+	// past-only [-1.5 -1 -0.5 0 0] [-2 -1.5 -1 -0.5 0]
+	// start [0 0.5 1 1.5 2] [-0.5 0 0.5 1 1.5]
 }
 
 // The float32 instantiation of the same body: a yardstick, not a reference.

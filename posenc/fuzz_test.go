@@ -108,7 +108,7 @@ func FuzzALiBi(f *testing.F) {
 		if start {
 			g.Align = mask.AlignStart
 		}
-		b, err := ALiBiBias(s, g, ALiBiForm(form%3))
+		b, err := ALiBiBias(s, g, mask.ALiBiForm(form%4)) // 3 forms and one invalid value
 		if err != nil {
 			checkSentinel(t, err)
 			return

@@ -1,7 +1,9 @@
 package posenc
 
 import (
+	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -118,19 +120,33 @@ func TestWorkedALiBiSlopes(t *testing.T) {
 
 func TestWorkedALiBiBias(t *testing.T) {
 	// Press et al. 2022 §3: query i (1-based) adds m·[−(i−1), …, −1, 0] to
-	// its logits against keys 1 … i. Square causal geometry, 2 heads.
+	// its logits against keys 1 … i. Square geometry, 2 heads. The paper
+	// gives no bias for the keys after the query, which its causal model
+	// never sees; each form says what they get (mask.ALiBiForm).
 	slopes := []float64{0.5, 0.25}
 	const L = 4
-	b, err := ALiBiBias(slopes, mask.Geometry{Batch: 1, Lq: L, Lk: L}, ALiBiCausal)
+	g := mask.Geometry{Batch: 1, Lq: L, Lk: L}
+	causal, err := ALiBiBias(slopes, g, mask.ALiBiCausal)
+	require.NoError(t, err)
+	past, err := ALiBiBias(slopes, g, mask.ALiBiPastOnly)
+	require.NoError(t, err)
+	sym, err := ALiBiBias(slopes, g, mask.ALiBiSymmetric)
 	require.NoError(t, err)
 	for h, m := range slopes {
 		for i := 1; i <= L; i++ {
-			row := b[(h*L+i-1)*L : (h*L+i)*L]
+			k := (h*L + i - 1) * L
 			for j := 1; j <= i; j++ {
-				assert.Equal(t, m*float64(-(i-j)), row[j-1])
+				// [paper] keys up to the query: every form
+				for _, b := range [][]float64{causal, past, sym} {
+					assert.Equal(t, m*float64(-(i-j)), b[k+j-1])
+				}
 			}
 			for j := i + 1; j <= L; j++ {
-				assert.Equal(t, 0.0, row[j-1], "future keys carry 0; the causal mask hides them")
+				// the paper's formula −m·(i − j) for every key: positive
+				assert.Equal(t, m*float64(j-i), causal[k+j-1], "causal: keys after the query get m·(j − i)")
+				assert.Equal(t, 0.0, past[k+j-1], "past-only: keys after the query carry 0")
+				assert.False(t, math.Signbit(past[k+j-1]), "past-only: +0, not −0")
+				assert.Equal(t, m*float64(i-j), sym[k+j-1], "symmetric: −m·|i − j|")
 			}
 		}
 	}
@@ -417,23 +433,32 @@ func TestALiBiForms(t *testing.T) {
 		{Batch: 1, Lq: 3, Lk: 7, Align: mask.AlignStart, Offset: 2},
 		{Batch: 1, Lq: 1, Lk: 9},
 	} {
-		c, err := ALiBiBias(slopes, g, ALiBiCausal)
+		c, err := ALiBiBias(slopes, g, mask.ALiBiCausal)
 		require.NoError(t, err)
-		s, err := ALiBiBias(slopes, g, ALiBiSymmetric)
+		s, err := ALiBiBias(slopes, g, mask.ALiBiSymmetric)
+		require.NoError(t, err)
+		po, err := ALiBiBias(slopes, g, mask.ALiBiPastOnly)
 		require.NoError(t, err)
 		vis, err := mask.Causal().Visible(mask.Geometry{Batch: 1, Lq: g.Lq, Lk: g.Lk, Align: g.Align, Offset: g.Offset})
 		require.NoError(t, err)
 		for h := range slopes {
 			for k := range g.Lq * g.Lk {
 				i, j := k/g.Lk, k%g.Lk
-				v := c[h*g.Lq*g.Lk+k]
+				n := h*g.Lq*g.Lk + k
+				d := float64(g.Pos(i) - j)
 				if vis[k] {
-					// visible keys: both forms agree, −m·(p − j) ≤ 0
-					assert.Equal(t, s[h*g.Lq*g.Lk+k], v)
-					assert.Equal(t, -slopes[h]*float64(g.Pos(i)-j), v)
+					// keys a causal mask shows: every form agrees, −m·(p − j) ≤ 0
+					assert.Equal(t, -slopes[h]*d, c[n])
+					assert.Equal(t, c[n], s[n])
+					assert.Equal(t, c[n], po[n])
 				} else {
-					assert.Equal(t, 0.0, v)
-					assert.Less(t, s[h*g.Lq*g.Lk+k], 0.0)
+					// keys after the query: the forms differ
+					assert.Equal(t, -slopes[h]*d, c[n], "causal: the same formula")
+					assert.Greater(t, c[n], 0.0)
+					assert.Equal(t, slopes[h]*d, s[n], "symmetric: −m·|p − j|")
+					assert.Less(t, s[n], 0.0)
+					assert.Equal(t, 0.0, po[n], "past-only: 0")
+					assert.False(t, math.Signbit(po[n]))
 				}
 			}
 		}
@@ -507,27 +532,39 @@ func TestErrors(t *testing.T) {
 		{"add L", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 8), 0, 0); return err }(), ErrShape},
 		{"heads 0", func() error { _, err := ALiBiSlopes(0); return err }(), ErrHeads},
 		{"heads < 0", func() error { _, err := ALiBiSlopes(-3); return err }(), ErrHeads},
-		{"no slopes", func() error { _, err := ALiBiBias(nil, mask.Geometry{Lq: 1, Lk: 1}, ALiBiCausal); return err }(), ErrHeads},
+		{"no slopes", func() error { _, err := ALiBiBias(nil, mask.Geometry{Lq: 1, Lk: 1}, mask.ALiBiCausal); return err }(), ErrHeads},
 		{"NaN slope", func() error {
-			_, err := ALiBiBias([]float64{nan}, mask.Geometry{Lq: 1, Lk: 1}, ALiBiCausal)
+			_, err := ALiBiBias([]float64{nan}, mask.Geometry{Lq: 1, Lk: 1}, mask.ALiBiCausal)
 			return err
 		}(), ErrHeads},
-		{"bias sizes", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: -1, Lk: 1}, ALiBiCausal); return err }(), ErrShape},
+		{"bias sizes", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: -1, Lk: 1}, mask.ALiBiCausal)
+			return err
+		}(), ErrShape},
 		{"bias too large", func() error {
-			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 30, Lk: 1 << 30}, ALiBiCausal)
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 30, Lk: 1 << 30}, mask.ALiBiCausal)
 			return err
 		}(), ErrShape},
 		{"bias align", func() error {
-			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, ALiBiCausal)
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, mask.ALiBiCausal)
 			return err
 		}(), ErrOption},
-		{"bias form", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, 2); return err }(), ErrOption},
+		{"bias align wraps mask's", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, mask.ALiBiCausal)
+			return err
+		}(), mask.ErrAlign},
+		{"bias form", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, 3); return err }(), ErrOption},
+		{"bias form wraps mask's", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, -1); return err }(), mask.ErrALiBi},
 		{"causal query outside keys", func() error {
-			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 2, Lk: 4, Offset: 1}, ALiBiCausal)
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 2, Lk: 4, Offset: 1}, mask.ALiBiCausal)
+			return err
+		}(), ErrPosition},
+		{"past-only query outside keys", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 2, Lk: 4, Align: mask.AlignStart, Offset: -1}, mask.ALiBiPastOnly)
 			return err
 		}(), ErrPosition},
 		{"symmetric position too large", func() error {
-			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Offset: beyond}, ALiBiSymmetric)
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Offset: beyond}, mask.ALiBiSymmetric)
 			return err
 		}(), ErrPosition},
 		{"ntk base r", func() error { _, err := NTKBase(10000, 2, 2); return err }(), ErrDim},
@@ -558,7 +595,7 @@ func TestEmpty(t *testing.T) {
 	tab, err := Sinusoidal{Dim: 4}.Table(0, 0)
 	require.NoError(t, err)
 	assert.Empty(t, tab)
-	b, err := ALiBiBias([]float64{0.5}, mask.Geometry{Lq: 0, Lk: 5}, ALiBiCausal)
+	b, err := ALiBiBias([]float64{0.5}, mask.Geometry{Lq: 0, Lk: 5}, mask.ALiBiCausal)
 	require.NoError(t, err)
 	assert.Empty(t, b)
 }
@@ -583,28 +620,113 @@ func TestHugeSizesAreErrors(t *testing.T) {
 	assert.ErrorIs(t, err, ErrDim)
 	_, err = Sinusoidal{Dim: 2}.Table(math.MaxInt, 0)
 	assert.ErrorIs(t, err, ErrShape)
-	_, err = ALiBiBias([]float64{1, 1, 1}, mask.Geometry{Lq: math.MaxInt / 2, Lk: 3}, ALiBiSymmetric)
+	_, err = ALiBiBias([]float64{1, 1, 1}, mask.Geometry{Lq: math.MaxInt / 2, Lk: 3}, mask.ALiBiSymmetric)
 	assert.ErrorIs(t, err, ErrShape)
 }
 
 func TestOptionNames(t *testing.T) {
-	// Every named option prints its name; an unknown value prints its type
-	// and number, so error messages and test logs stay readable.
+	// Every named option prints its word, the one spelling of
+	// configurations, golden files and messages (testdata/gen/vocabulary.json);
+	// an unknown value prints its type and number, so error messages and
+	// test logs stay readable.
 	got := []string{
 		PairAdjacent.String(), PairHalves.String(), Pairing(7).String(),
 		Interleaved.String(), Concatenated.String(), Layout(7).String(),
 		NoScaling.String(), Interpolation.String(), NTKAware.String(), YaRN.String(), PerFrequency.String(), Method(7).String(),
 		RampRatio.String(), RampDims.String(), Ramp(7).String(),
-		ALiBiCausal.String(), ALiBiSymmetric.String(), ALiBiForm(7).String(),
+		mask.ALiBiCausal.String(), mask.ALiBiSymmetric.String(), mask.ALiBiPastOnly.String(), mask.ALiBiForm(7).String(),
 	}
 	want := []string{
-		"PairAdjacent", "PairHalves", "Pairing(7)",
-		"Interleaved", "Concatenated", "Layout(7)",
-		"NoScaling", "Interpolation", "NTKAware", "YaRN", "PerFrequency", "Method(7)",
-		"RampRatio", "RampDims", "Ramp(7)",
-		"ALiBiCausal", "ALiBiSymmetric", "ALiBiForm(7)",
+		"adjacent", "halves", "Pairing(7)",
+		"interleaved", "concatenated", "Layout(7)",
+		"none", "interpolation", "ntk-aware", "yarn", "per-frequency", "Method(7)",
+		"ratio", "dims", "Ramp(7)",
+		"causal", "symmetric", "past-only", "ALiBiForm(7)",
 	}
 	assert.Empty(t, cmp.Diff(want, got))
+}
+
+func TestOptionWords(t *testing.T) {
+	// JSON reads and writes each option as its word; any other word is an
+	// error wrapping ErrOption that lists the words. The zero value of each
+	// type is its default (see Rotary, Sinusoidal, Scaling).
+	type cfg struct {
+		Layout  Layout  `json:"layout"`
+		Pairing Pairing `json:"pairing"`
+		Method  Method  `json:"method"`
+		Ramp    Ramp    `json:"ramp"`
+	}
+	for _, c := range []cfg{
+		{},
+		{Concatenated, PairHalves, NTKAware, RampDims},
+		{Interleaved, PairAdjacent, PerFrequency, RampRatio},
+		{Method: Interpolation}, {Method: YaRN},
+	} {
+		b, err := json.Marshal(c)
+		require.NoError(t, err)
+		want := fmt.Sprintf(`{"layout":%q,"pairing":%q,"method":%q,"ramp":%q}`, c.Layout, c.Pairing, c.Method, c.Ramp)
+		assert.Equal(t, want, string(b))
+		var back cfg
+		require.NoError(t, json.Unmarshal(b, &back))
+		assert.Equal(t, c, back)
+	}
+	assert.Equal(t, []Method{NoScaling, Interpolation, NTKAware, YaRN, PerFrequency}, NoScaling.Values())
+	assert.Equal(t, []Layout{Interleaved, Concatenated}, Interleaved.Values())
+	assert.Equal(t, []Pairing{PairAdjacent, PairHalves}, PairAdjacent.Values())
+	assert.Equal(t, []Ramp{RampRatio, RampDims}, RampRatio.Values())
+	for _, bad := range []struct{ json, msg string }{
+		{`{"layout":"interleave"}`, `posenc: unknown option: sinusoidal layout = "interleave"; want one of interleaved, concatenated`},
+		{`{"pairing":"PairHalves"}`, `posenc: unknown option: rotary pairing = "PairHalves"; want one of adjacent, halves`},
+		{`{"method":"ntk"}`, `posenc: unknown option: scaling method = "ntk"; want one of none, interpolation, ntk-aware, yarn, per-frequency`},
+		{`{"method":"per_frequency"}`, `posenc: unknown option: scaling method = "per_frequency"; want one of none, interpolation, ntk-aware, yarn, per-frequency`},
+		{`{"ramp":"ratios"}`, `posenc: unknown option: YaRN ramp = "ratios"; want one of ratio, dims`},
+	} {
+		var c cfg
+		err := json.Unmarshal([]byte(bad.json), &c)
+		require.Error(t, err, bad.json)
+		assert.ErrorIs(t, err, ErrOption, bad.json)
+		assert.Contains(t, err.Error(), bad.msg)
+		assert.Equal(t, cfg{}, c, "a refused word leaves the value alone")
+	}
+	// Marshalling a value that has no word is refused, not written as a number.
+	_, err := json.Marshal(cfg{Method: 9})
+	assert.ErrorIs(t, err, ErrOption)
+}
+
+func TestOptionErrors(t *testing.T) {
+	// An option that is not one of its constants is named by the field or
+	// argument that holds it, in the vocabulary's form
+	// "<sentinel>: <where> = <value>; want one of <words>".
+	x8 := make([]float64, 8)
+	apply := func(r Rotary) error { _, err := r.Apply(x8, 1, Positions{}); return err }
+	alibi := func(g mask.Geometry, f mask.ALiBiForm) error {
+		_, err := ALiBiBias([]float64{1}, g, f)
+		return err
+	}
+	_, tableErr := Sinusoidal{Dim: 4, Layout: 7}.Table(1, 0)
+	for _, c := range []struct {
+		err  error
+		also error // a second sentinel the error wraps, or nil
+		msg  string
+	}{
+		{apply(Rotary{Dim: 8, Pairing: 2}), nil, "posenc: unknown option: Rotary.Pairing = 2; want one of adjacent, halves"},
+		{apply(Rotary{Dim: 8, Scaling: Scaling{Method: 9}}), nil,
+			"posenc: unknown option: Rotary.Scaling.Method = 9; want one of none, interpolation, ntk-aware, yarn, per-frequency"},
+		{apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Ramp: 5}}), nil,
+			"posenc: unknown option: Rotary.Scaling.Ramp = 5; want one of ratio, dims"},
+		{tableErr, nil, "posenc: unknown option: Sinusoidal.Layout = 7; want one of interleaved, concatenated"},
+		{alibi(mask.Geometry{Lq: 1, Lk: 1, Align: 3}, mask.ALiBiCausal), mask.ErrAlign,
+			"posenc: unknown option: g.Align = 3; want one of end, start"},
+		{alibi(mask.Geometry{Lq: 1, Lk: 1}, 7), mask.ErrALiBi,
+			"posenc: unknown option: form = 7; want one of causal, symmetric, past-only"},
+	} {
+		require.Error(t, c.err, c.msg)
+		assert.ErrorIs(t, c.err, ErrOption)
+		if c.also != nil {
+			assert.ErrorIs(t, c.err, c.also)
+		}
+		assert.Equal(t, c.msg, c.err.Error())
+	}
 }
 
 func TestFloat32Yardsticks(t *testing.T) {
@@ -635,13 +757,18 @@ func TestFloat32Yardsticks(t *testing.T) {
 		sl32[i] = float32(v)
 	}
 	g := mask.Geometry{Batch: 1, Lq: 4, Lk: 50}
-	b64, err := ALiBiBias(slopes, g, ALiBiSymmetric)
-	require.NoError(t, err)
-	b32, err := ALiBiBias32(sl32, g, ALiBiSymmetric)
-	require.NoError(t, err)
-	for i := range b64 {
-		assert.InDelta(t, b64[i], float64(b32[i]), 2*0x1p-24*math.Abs(b64[i]))
+	// every form, on a geometry with keys after the queries
+	for _, gf := range []mask.Geometry{g, {Batch: 1, Lq: 4, Lk: 50, Align: mask.AlignStart, Offset: 20}} {
+		for _, form := range mask.ALiBiCausal.Values() {
+			b64, err := ALiBiBias(slopes, gf, form)
+			require.NoError(t, err)
+			b32, err := ALiBiBias32(sl32, gf, form)
+			require.NoError(t, err)
+			for i := range b64 {
+				assert.InDelta(t, b64[i], float64(b32[i]), 2*0x1p-24*math.Abs(b64[i]), "%v %v [%d]", gf, form, i)
+			}
+		}
 	}
-	_, err = ALiBiBias32([]float32{float32(math.NaN())}, g, ALiBiCausal)
+	_, err = ALiBiBias32([]float32{float32(math.NaN())}, g, mask.ALiBiCausal)
 	assert.ErrorIs(t, err, ErrHeads)
 }

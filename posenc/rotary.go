@@ -5,6 +5,7 @@ import (
 	"math"
 
 	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // Pairing says which two dims of a head one rotary frequency rotates. The
@@ -23,15 +24,31 @@ const (
 	PairHalves
 )
 
-func (p Pairing) String() string {
-	switch p {
-	case PairAdjacent:
-		return "PairAdjacent"
-	case PairHalves:
-		return "PairHalves"
-	}
-	return fmt.Sprintf("Pairing(%d)", int(p))
-}
+var pairingWords = vocab.New("posenc", "rotary pairing", "which two dims of a head one rotary frequency rotates", ErrOption,
+	vocab.W(PairAdjacent, "adjacent", "frequency i rotates dims (2i, 2i+1), as in the paper"),
+	vocab.W(PairHalves, "halves", "frequency i rotates dims (i, i + r/2): the rotated dims split in two halves"),
+)
+
+// String returns p's word ("adjacent").
+func (p Pairing) String() string { return pairingWords.String(p) }
+
+// MarshalText returns p's word; a value with none is an error wrapping
+// ErrOption.
+func (p Pairing) MarshalText() ([]byte, error) { return pairingWords.Marshal(p) }
+
+// UnmarshalText sets p from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (p *Pairing) UnmarshalText(b []byte) error { return pairingWords.Unmarshal(p, b) }
+
+// Meaning returns one line saying what p means.
+func (p Pairing) Meaning() string { return pairingWords.Meaning(p) }
+
+// Values lists every Pairing, the zero value first.
+func (Pairing) Values() []Pairing { return pairingWords.Values() }
+
+// Check returns nil if p is one of the Pairing constants, or an error
+// wrapping ErrOption that lists the words.
+func (p Pairing) Check() error { return pairingWords.Check(p) }
 
 // Rotary is a rotary position encoding (RoPE) configuration: Su et al.
 // 2021, "RoFormer: Enhanced Transformer with Rotary Position Embedding",
@@ -108,8 +125,8 @@ func (c Rotary) resolve() (*resolved, error) {
 	if err := checkBase(base); err != nil {
 		return nil, err
 	}
-	if c.Pairing != PairAdjacent && c.Pairing != PairHalves {
-		return nil, fmt.Errorf("%w: Pairing = %d; want PairAdjacent or PairHalves", ErrOption, int(c.Pairing))
+	if err := pairingWords.CheckAt("Rotary.Pairing", c.Pairing); err != nil {
+		return nil, err
 	}
 	mag := c.Magnitude
 	if mag == 0 {

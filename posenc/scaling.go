@@ -3,6 +3,8 @@ package posenc
 import (
 	"fmt"
 	"math"
+
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // Method is a context-scaling method for rotary frequencies: how a model
@@ -48,21 +50,34 @@ const (
 	PerFrequency
 )
 
-func (m Method) String() string {
-	switch m {
-	case NoScaling:
-		return "NoScaling"
-	case Interpolation:
-		return "Interpolation"
-	case NTKAware:
-		return "NTKAware"
-	case YaRN:
-		return "YaRN"
-	case PerFrequency:
-		return "PerFrequency"
-	}
-	return fmt.Sprintf("Method(%d)", int(m))
-}
+var methodWords = vocab.New("posenc", "scaling method", "how rotary frequencies change for a context longer than the trained one", ErrOption,
+	vocab.W(NoScaling, "none", "the frequencies as they are"),
+	vocab.W(Interpolation, "interpolation", "position interpolation: every frequency divided by s"),
+	vocab.W(NTKAware, "ntk-aware", "the base raised to b·s^(r/(r−2)): the lowest frequency divided by s, the highest kept"),
+	vocab.W(YaRN, "yarn", "NTK-by-parts: low frequencies divided by s, high ones kept, a ramp between"),
+	vocab.W(PerFrequency, "per-frequency", "frequency i divided by a factor f_i the caller gives"),
+)
+
+// String returns m's word ("none").
+func (m Method) String() string { return methodWords.String(m) }
+
+// MarshalText returns m's word; a value with none is an error wrapping
+// ErrOption.
+func (m Method) MarshalText() ([]byte, error) { return methodWords.Marshal(m) }
+
+// UnmarshalText sets m from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (m *Method) UnmarshalText(b []byte) error { return methodWords.Unmarshal(m, b) }
+
+// Meaning returns one line saying what m means.
+func (m Method) Meaning() string { return methodWords.Meaning(m) }
+
+// Values lists every Method, the zero value first.
+func (Method) Values() []Method { return methodWords.Values() }
+
+// Check returns nil if m is one of the Method constants, or an error
+// wrapping ErrOption that lists the words.
+func (m Method) Check() error { return methodWords.Check(m) }
 
 // Ramp chooses how YaRN's γ_d goes from 1 (keep) to 0 (interpolate) across
 // the frequencies d = 0 … r/2−1. The two options give different numbers.
@@ -96,15 +111,31 @@ const (
 	RampDims
 )
 
-func (r Ramp) String() string {
-	switch r {
-	case RampRatio:
-		return "RampRatio"
-	case RampDims:
-		return "RampDims"
-	}
-	return fmt.Sprintf("Ramp(%d)", int(r))
-}
+var rampWords = vocab.New("posenc", "YaRN ramp", "how YaRN goes from keeping to interpolating across the frequencies", ErrOption,
+	vocab.W(RampRatio, "ratio", "linear in the ratio of the trained length to the wavelength, as the paper defines it"),
+	vocab.W(RampDims, "dims", "linear in the dimension index between rounded bounds, as the authors’ published code computes it"),
+)
+
+// String returns r's word ("ratio").
+func (r Ramp) String() string { return rampWords.String(r) }
+
+// MarshalText returns r's word; a value with none is an error wrapping
+// ErrOption.
+func (r Ramp) MarshalText() ([]byte, error) { return rampWords.Marshal(r) }
+
+// UnmarshalText sets r from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (r *Ramp) UnmarshalText(b []byte) error { return rampWords.Unmarshal(r, b) }
+
+// Meaning returns one line saying what r means.
+func (r Ramp) Meaning() string { return rampWords.Meaning(r) }
+
+// Values lists every Ramp, the zero value first.
+func (Ramp) Values() []Ramp { return rampWords.Values() }
+
+// Check returns nil if r is one of the Ramp constants, or an error
+// wrapping ErrOption that lists the words.
+func (r Ramp) Check() error { return rampWords.Check(r) }
 
 // Scaling says how rotary frequencies are changed for a longer context. The
 // zero value is no scaling.
@@ -227,7 +258,7 @@ func (sc Scaling) scaledFreqs(r int, base float64) ([]dd, error) {
 		}
 		return out, nil
 	default:
-		return nil, fmt.Errorf("%w: scaling Method = %d; want NoScaling, Interpolation, NTKAware, YaRN or PerFrequency", ErrOption, int(sc.Method))
+		return nil, methodWords.CheckAt("Rotary.Scaling.Method", sc.Method)
 	}
 	baseFreqs(out, r, lnb)
 	return out, nil
@@ -294,7 +325,7 @@ func (sc Scaling) yarn(th []dd, r int, lnb dd, s dd) error {
 			return ddSub(ddFrom(1), t)
 		}
 	default:
-		return fmt.Errorf("%w: Ramp = %d; want RampRatio or RampDims", ErrOption, int(sc.Ramp))
+		return rampWords.CheckAt("Rotary.Scaling.Ramp", sc.Ramp)
 	}
 	for d := range th {
 		inter := ddDiv(th[d], s)

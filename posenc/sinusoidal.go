@@ -4,6 +4,7 @@ import (
 	"fmt"
 
 	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // Layout is the order of the sine and cosine columns of a sinusoidal table.
@@ -19,15 +20,31 @@ const (
 	Concatenated
 )
 
-func (l Layout) String() string {
-	switch l {
-	case Interleaved:
-		return "Interleaved"
-	case Concatenated:
-		return "Concatenated"
-	}
-	return fmt.Sprintf("Layout(%d)", int(l))
-}
+var layoutWords = vocab.New("posenc", "sinusoidal layout", "the order of the sine and cosine columns of a sinusoidal table", ErrOption,
+	vocab.W(Interleaved, "interleaved", "sin and cos of each frequency side by side: sin, cos, sin, cos, …"),
+	vocab.W(Concatenated, "concatenated", "all sines first, then all cosines"),
+)
+
+// String returns l's word ("interleaved").
+func (l Layout) String() string { return layoutWords.String(l) }
+
+// MarshalText returns l's word; a value with none is an error wrapping
+// ErrOption.
+func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
+
+// UnmarshalText sets l from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
+
+// Meaning returns one line saying what l means.
+func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
+
+// Values lists every Layout, the zero value first.
+func (Layout) Values() []Layout { return layoutWords.Values() }
+
+// Check returns nil if l is one of the Layout constants, or an error
+// wrapping ErrOption that lists the words.
+func (l Layout) Check() error { return layoutWords.Check(l) }
 
 // Sinusoidal is the fixed absolute position encoding of Vaswani et al.
 // 2017, "Attention Is All You Need", arXiv 1706.03762, §3.5:
@@ -61,8 +78,8 @@ func (s Sinusoidal) check() (float64, error) {
 	if err := checkBase(base); err != nil {
 		return 0, err
 	}
-	if s.Layout != Interleaved && s.Layout != Concatenated {
-		return 0, fmt.Errorf("%w: Layout = %d; want Interleaved or Concatenated", ErrOption, int(s.Layout))
+	if err := layoutWords.CheckAt("Sinusoidal.Layout", s.Layout); err != nil {
+		return 0, err
 	}
 	return base, nil
 }

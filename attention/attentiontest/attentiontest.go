@@ -3,26 +3,19 @@ package attentiontest
 import (
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"slices"
 	"strings"
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/suite"
+	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/posenc"
 )
-
-// TB is the part of *testing.T that Run uses; *testing.T satisfies
-// TB[*testing.T]. Run never stops a test early: a stand-in whose Skipf
-// and Errorf only record (such as Recorder) sees every case.
-type TB[T any] = suite.TB[T]
-
-// Recorder stands in for *testing.T when a test must watch the suite fail
-// (a kernel with a deliberate slip): Run(rec, kernel) records every
-// failure, skip and message under the name of its case instead of failing
-// the calling test.
-type Recorder = suite.Recorder
 
 // Masking is the visibility pattern of a case.
 type Masking int
@@ -37,17 +30,30 @@ const (
 	SlidingWindow
 )
 
-func (m Masking) String() string {
-	switch m {
-	case NoMask:
-		return "NoMask"
-	case Causal:
-		return "Causal"
-	case SlidingWindow:
-		return "SlidingWindow"
-	}
-	return fmt.Sprintf("Masking(%d)", int(m))
-}
+var maskingWords = vocab.New("attentiontest", "masking", "the visibility pattern of a suite case", nil,
+	vocab.W(NoMask, "none", "every query sees every key"),
+	vocab.W(Causal, "causal", "query i sees keys j ≤ p(i)"),
+	vocab.W(SlidingWindow, "window", "query i sees the Window keys ending at itself"),
+)
+
+// String returns m's word ("none").
+func (m Masking) String() string { return maskingWords.String(m) }
+
+// MarshalText returns m's word; a value with none is an error.
+func (m Masking) MarshalText() ([]byte, error) { return maskingWords.Marshal(m) }
+
+// UnmarshalText sets m from its word; any other text is an error that lists the words.
+func (m *Masking) UnmarshalText(b []byte) error { return maskingWords.Unmarshal(m, b) }
+
+// Meaning returns one line saying what m means.
+func (m Masking) Meaning() string { return maskingWords.Meaning(m) }
+
+// Values lists every Masking, the zero value first.
+func (Masking) Values() []Masking { return maskingWords.Values() }
+
+// Check returns nil if m is one of the Masking constants, or an error
+// that lists the words.
+func (m Masking) Check() error { return maskingWords.Check(m) }
 
 // Problem is one attention call as the suite poses it to a kernel: the
 // shape, every convention, and what the kernel must do to q and k before
@@ -93,13 +99,21 @@ func (p Problem) QueryPosition(i int) int {
 	return mask.Geometry{Batch: p.Shape.Batch, Lq: p.Shape.Lq, Lk: p.Shape.Lk, Align: p.Align, Offset: p.Offset}.Pos(i)
 }
 
-// String lists the problem's shape and conventions, as failure messages
-// print them.
+// String lists the problem's shape and then each convention by its key
+// and word, as failure messages print them:
+//
+//	batch 1, 8 query heads on 2 kv heads, Lq 40, Lk 40, Dk 16, Dv 16,
+//	layout seq-major, group blocks, mask window of 7 keys, align end,
+//	offset 0, scale 0.25, pairing halves, rotated 16 of 16 dims,
+//	base 10000, empty_row zero
+//
+// (one line); key lengths and soft_cap appear when set, "no rotary" when
+// Rotary is nil.
 func (p Problem) String() string {
 	s := p.Shape
 	parts := []string{
 		fmt.Sprintf("batch %d, %d query heads on %d kv heads, Lq %d, Lk %d, Dk %d, Dv %d", s.Batch, s.HeadsQ, s.HeadsKV, s.Lq, s.Lk, s.Dk, s.Dv),
-		p.Layout.String(), p.Group.String(), p.Mask.String(),
+		"layout " + p.Layout.String(), "group " + p.Group.String(), "mask " + p.Mask.String(),
 	}
 	if p.Mask == SlidingWindow {
 		parts[len(parts)-1] += fmt.Sprintf(" of %d keys", p.Window)
@@ -107,16 +121,16 @@ func (p Problem) String() string {
 	if p.KeyLengths != nil {
 		parts = append(parts, fmt.Sprintf("key lengths %v", p.KeyLengths))
 	}
-	parts = append(parts, fmt.Sprintf("%v, offset %d", p.Align, p.Offset), fmt.Sprintf("scale %.6g", p.Scale))
+	parts = append(parts, "align "+p.Align.String(), fmt.Sprintf("offset %d", p.Offset), fmt.Sprintf("scale %.6g", p.Scale))
 	if p.SoftCap > 0 {
-		parts = append(parts, fmt.Sprintf("soft cap %g", p.SoftCap))
+		parts = append(parts, fmt.Sprintf("soft_cap %g", p.SoftCap))
 	}
 	if r := p.Rotary; r != nil {
-		parts = append(parts, fmt.Sprintf("rotary %v over %d of %d dims, base %g", r.Pairing, r.Rotated, r.Dim, r.Base))
+		parts = append(parts, fmt.Sprintf("pairing %v, rotated %d of %d dims, base %g", r.Pairing, r.Rotated, r.Dim, r.Base))
 	} else {
 		parts = append(parts, "no rotary")
 	}
-	return strings.Join(append(parts, p.EmptyRow.String()), ", ")
+	return strings.Join(append(parts, "empty_row "+p.EmptyRow.String()), ", ")
 }
 
 // Supports declares what a kernel implements. The convention lists
@@ -160,7 +174,7 @@ type Supports struct {
 
 // Kernel is an attention kernel under test, with float32 (E = float32)
 // or float64 (E = float64) inputs and outputs.
-type Kernel[E ~float32 | ~float64] struct {
+type Kernel[E compare.Float] struct {
 	// Forward computes out (and lse, when Supports.LSE) for p. q, k and v
 	// hold values of Format; they must not be modified.
 	Forward func(q, k, v []E, p Problem) (out, lse []E, err error)
@@ -182,7 +196,7 @@ func (s Supports) missing(p Problem) []string {
 		}
 	}
 	need(p.Mask == NoMask || slices.Contains(s.Masks, p.Mask), fmt.Sprintf("mask %v (Masks)", p.Mask))
-	need(p.Align == mask.AlignEnd || s.AlignStart, "mask.AlignStart (AlignStart)")
+	need(p.Align == mask.AlignEnd || s.AlignStart, "align start (AlignStart)")
 	need(p.Offset == 0 || s.Offset, "a query position offset (Offset)")
 	need(p.Shape.Lq == p.Shape.Lk || s.UnequalLengths, "Lq ≠ Lk (UnequalLengths)")
 	need(p.KeyLengths == nil || s.KeyPadding, "key padding (KeyPadding)")
@@ -224,30 +238,17 @@ func (s Supports) missing(p Problem) []string {
 //	the kernel returns an error           that subtest fails, quoting the error
 //	an output of the wrong length         that subtest fails, naming both lengths
 //	NaN or ±Inf in the reference          the kernel must give the same (NaN for NaN, the same infinity)
-func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
+func Run[T conformance.TB[T], E compare.Float](t T, k Kernel[E]) {
 	t.Helper()
-	f, ok := suite.Start[T, E](t, "attentiontest", k.Forward != nil, "Kernel.Forward is nil", k.Format)
-	if !ok {
-		return
-	}
-	var subs []suite.Sub[T]
-	for _, c := range Cases() {
-		for _, v := range variants(c, k.Supports) {
-			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: v.name, Run: func(t T) { runCase(t, k, f, c, v) }})
-		}
-	}
-	suite.RunAll(t, subs)
-}
-
-// variant is one choice of the conventions a case is run under.
-type variant struct {
-	name string
-	p    Problem
+	suite.Run[T, E](t, "attentiontest", k.Forward != nil, "Kernel.Forward is nil", k.Format,
+		Cases(), func(c Case) string { return c.Name }, k.Supports.variants,
+		func(t T, f compare.Format, c Case, p Problem, r *rand.Rand) { runCase(t, k, f, c, p, r) })
 }
 
 // variants expands a case into one problem per declared layout, group map
-// (grouped cases only) and pairing (rotating cases only).
-func variants(c Case, s Supports) []variant {
+// (grouped cases only) and pairing (rotating cases only), each named by
+// their words: layout[/group][/pairing].
+func (s Supports) variants(c Case) []suite.Variant[Problem] {
 	or := func(xs []attention.Layout) []attention.Layout {
 		if len(xs) == 0 {
 			return []attention.Layout{attention.HeadsMajor}
@@ -267,7 +268,7 @@ func variants(c Case, s Supports) []variant {
 			pairings = []posenc.Pairing{posenc.PairAdjacent} // skipped: the kernel has no rotary
 		}
 	}
-	var vs []variant
+	var vs []suite.Variant[Problem]
 	for _, l := range or(s.Layouts) {
 		for _, g := range groups {
 			for _, pr := range pairings {
@@ -286,21 +287,15 @@ func variants(c Case, s Supports) []variant {
 					p.Rotary = &r
 					name += "/" + pr.String()
 				}
-				vs = append(vs, variant{name, p})
+				vs = append(vs, suite.Variant[Problem]{Name: name, Problem: p, Missing: s.missing(p)})
 			}
 		}
 	}
 	return vs
 }
 
-func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format, c Case, v variant) {
+func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.Format, c Case, p Problem, rng *rand.Rand) {
 	t.Helper()
-	p := v.p
-	if msg := suite.Missing(c.Name+"/"+v.name, k.Supports.missing(p)); msg != "" {
-		t.Skipf("%s", msg)
-		return
-	}
-	rng := suite.Rand(c.Name + "/" + v.name)
 	q, kk, vv := c.draw(rng, p)
 	q, kk, vv = f.RoundSlice(q), f.RoundSlice(kk), f.RoundSlice(vv)
 
@@ -309,7 +304,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		t.Errorf("case %s (%s): the reference refused the problem: %v", c.Name, p, err)
 		return
 	}
-	gotOut, gotLSE, err := k.Forward(suite.Convert[E](q), suite.Convert[E](kk), suite.Convert[E](vv), p)
+	gotOut, gotLSE, err := k.Forward(num.Convert[E](q), num.Convert[E](kk), num.Convert[E](vv), p)
 	if err != nil {
 		t.Errorf("case %s (%s): the kernel returned an error: %v", c.Name, p, err)
 		return

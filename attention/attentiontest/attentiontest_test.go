@@ -3,6 +3,7 @@ package attentiontest
 import (
 	"errors"
 	"fmt"
+	"github.com/plumbref/plumb/conformance"
 	"strings"
 	"testing"
 
@@ -98,8 +99,8 @@ func TestYardstickKernel(t *testing.T) {
 }
 
 // record runs the suite on a recorder and returns it.
-func record[E float32 | float64](k Kernel[E]) *Recorder {
-	rec := &Recorder{}
+func record[E float32 | float64](k Kernel[E]) *conformance.Recorder {
+	rec := &conformance.Recorder{}
 	Run(rec, k)
 	return rec
 }
@@ -111,7 +112,7 @@ func TestSkipsNameWhatIsMissing(t *testing.T) {
 	rec := record(Kernel[float64]{Forward: plumbKernel(attention.Forward), Format: compare.Float64})
 	require.False(t, rec.Failed, rec.Text())
 	var ran, skipped int
-	rec.Walk(func(r *Recorder) {
+	rec.Walk(func(r *conformance.Recorder) {
 		if len(r.Children) > 0 {
 			return
 		}
@@ -128,11 +129,11 @@ func TestSkipsNameWhatIsMissing(t *testing.T) {
 	// that rotate are posed without rotary, except those about rotary.
 	assert.Equal(t, 2, ran)
 	assert.Equal(t, len(Cases())-2, skipped)
-	assert.False(t, rec.Find("full_square/HeadsMajor").Skipped)
-	assert.Equal(t, "case causal_square/HeadsMajor skipped: it needs mask Causal (Masks), which the kernel does not declare in its Supports",
-		rec.Find("causal_square/HeadsMajor").Messages[0])
-	assert.Contains(t, rec.Find("partial_rotary/HeadsMajor/PairAdjacent").Messages[0], "rotary (Pairings), partial rotary (PartialRotary)")
-	assert.Contains(t, rec.Find("no_keys/HeadsMajor").Messages[0], "Lq ≠ Lk (UnequalLengths)")
+	assert.False(t, rec.Find("full_square/heads-major").Skipped)
+	assert.Equal(t, "case causal_square/heads-major skipped: it needs mask causal (Masks), which the kernel does not declare in its Supports",
+		rec.Find("causal_square/heads-major").Messages[0])
+	assert.Contains(t, rec.Find("partial_rotary/heads-major/adjacent").Messages[0], "rotary (Pairings), partial rotary (PartialRotary)")
+	assert.Contains(t, rec.Find("no_keys/heads-major").Messages[0], "Lq ≠ Lk (UnequalLengths)")
 }
 
 // Each slip is a kernel that gets one convention wrong; the suite must
@@ -146,8 +147,8 @@ func TestCatchesSlips(t *testing.T) {
 		pass  []string                // variants that must pass
 	}{
 		{"group map", func(p Problem) Problem { p.Group = 1 - p.Group; return p },
-			[]string{"causal_grouped/HeadsMajor/GroupBlocks/PairAdjacent", "decode_step/SeqMajor/GroupCycle/PairHalves"},
-			[]string{"causal_multi_query/HeadsMajor/PairAdjacent", "causal_square/HeadsMajor/PairAdjacent"}},
+			[]string{"causal_grouped/heads-major/blocks/adjacent", "decode_step/seq-major/cycle/halves"},
+			[]string{"causal_multi_query/heads-major/adjacent", "causal_square/heads-major/adjacent"}},
 		{"rotary pairing", func(p Problem) Problem {
 			if p.Rotary != nil {
 				r := *p.Rotary
@@ -155,21 +156,21 @@ func TestCatchesSlips(t *testing.T) {
 				p.Rotary = &r
 			}
 			return p
-		}, []string{"causal_square/HeadsMajor/PairAdjacent", "realistic_prefill/SeqMajor/GroupBlocks/PairHalves"},
-			[]string{"cross_fewer_queries/HeadsMajor", "one_query_one_key/HeadsMajor/PairHalves"}},
+		}, []string{"causal_square/heads-major/adjacent", "realistic_prefill/seq-major/blocks/halves"},
+			[]string{"cross_fewer_queries/heads-major", "one_query_one_key/heads-major/halves"}},
 		{"causal alignment", func(p Problem) Problem { p.Align = 1 - p.Align; return p },
-			[]string{"chunked_prefill/HeadsMajor/PairAdjacent", "align_start/SeqMajor/PairHalves", "decode_step/HeadsMajor/GroupBlocks/PairAdjacent"},
-			[]string{"causal_square/HeadsMajor/PairAdjacent"}},
+			[]string{"chunked_prefill/heads-major/adjacent", "align_start/seq-major/halves", "decode_step/heads-major/blocks/adjacent"},
+			[]string{"causal_square/heads-major/adjacent"}},
 		{"window counts one key fewer", func(p Problem) Problem {
 			if p.Mask == SlidingWindow && p.Window > 1 {
 				p.Window--
 			}
 			return p
-		}, []string{"window_edges/HeadsMajor/PairAdjacent", "window_decode/SeqMajor/GroupCycle/PairHalves"},
-			[]string{"window_wider_than_keys/HeadsMajor/PairAdjacent", "causal_square/HeadsMajor/PairAdjacent"}},
+		}, []string{"window_edges/heads-major/adjacent", "window_decode/seq-major/cycle/halves"},
+			[]string{"window_wider_than_keys/heads-major/adjacent", "causal_square/heads-major/adjacent"}},
 		{"scale 1/Dk", func(p Problem) Problem { p.Scale *= p.Scale; return p },
-			[]string{"full_square/HeadsMajor/PairAdjacent", "realistic_decode/HeadsMajor/GroupBlocks/PairAdjacent"},
-			[]string{"no_keys/HeadsMajor", "no_keys/SeqMajor"}},
+			[]string{"full_square/heads-major/adjacent", "realistic_decode/heads-major/blocks/adjacent"},
+			[]string{"no_keys/heads-major", "no_keys/seq-major"}},
 	}
 	if testing.Short() {
 		slips = slips[:2]
@@ -228,28 +229,28 @@ func TestDocListsEveryCase(t *testing.T) {
 // A kernel without Forward, or with an invalid format, fails at once; a
 // kernel error fails its subtest, quoting it.
 func TestSpecialCases(t *testing.T) {
-	rec := &Recorder{}
+	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float32]{})
 	assert.Equal(t, []string{"attentiontest: Kernel.Forward is nil"}, rec.Messages)
 	assert.Empty(t, rec.Children)
 
-	rec = &Recorder{}
+	rec = &conformance.Recorder{}
 	Run(rec, Kernel[float32]{Format: compare.Format(99), Forward: func(q, k, v []float32, p Problem) ([]float32, []float32, error) { return nil, nil, nil }})
 	assert.True(t, rec.Failed)
 	assert.Contains(t, rec.Messages[0], "invalid number format")
 
-	rec = &Recorder{}
+	rec = &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
 		return nil, nil, errors.New("out of shared memory")
 	}})
-	m := rec.Find("full_square/HeadsMajor").Messages
+	m := rec.Find("full_square/heads-major").Messages
 	require.Len(t, m, 1)
 	assert.True(t, strings.HasPrefix(m[0], "case full_square (batch 2, 4 query heads on 4 kv heads, Lq 19, Lk 19"), m[0])
 	assert.True(t, strings.HasSuffix(m[0], "): the kernel returned an error: out of shared memory"), m[0])
 
-	rec = &Recorder{}
+	rec = &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
 		return make([]float64, 3), nil, nil
 	}})
-	assert.Contains(t, rec.Find("full_square/HeadsMajor").Messages[0], "output has 3 elements; want 2432, shape [2 4 19 16] [batch, head, query, dim]")
+	assert.Contains(t, rec.Find("full_square/heads-major").Messages[0], "output has 3 elements; want 2432, shape [2 4 19 16] [batch, head, query, dim]")
 }

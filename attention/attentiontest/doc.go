@@ -21,8 +21,9 @@
 //		})
 //	}
 //
-// Each case of Cases runs as a subtest under every declared convention
-// (go test -run 'TestAttention/causal_grouped/SeqMajor' picks one); a case
+// Each case of Cases runs as a subtest under every declared convention,
+// named by the conventions' words, case/layout[/group][/pairing] (go test
+// -run 'TestAttention/causal_grouped/seq-major/cycle' picks one); a case
 // that needs what the kernel does not declare is skipped with a message
 // that says what is missing, never silently.
 //
@@ -76,8 +77,9 @@
 // any summation order, and eleven orders of magnitude below what a
 // convention slip does.
 //
-// A failure message names the case, the problem with every convention,
-// the output (output or log-sum-exp) and its worst element with its index,
+// A failure message names the case, the problem with every convention by
+// its key and word (Problem.String: "layout seq-major, group cycle, mask
+// causal, align end, …"), the output (output or log-sum-exp) and its worst element with its index,
 // then compare.Diff's whole report.
 //
 // # Inputs
@@ -89,10 +91,11 @@
 //
 // # Watching the suite fail
 //
-// Run takes any TB, of which *testing.T is one. Recorder is another: it
-// records failures and skips instead of failing the calling test, which
-// is how a test shows that the suite catches a kernel with a deliberate
-// slip (see the example under examples/fastattn).
+// Run takes any conformance.TB, of which *testing.T is one.
+// conformance.Recorder is another: it records failures and skips instead
+// of failing the calling test, which is how a test shows that the suite
+// catches a kernel with a deliberate slip (see ExampleRun and
+// examples/fastattn).
 //
 // Not covered: additive bias, ALiBi slopes, sink logits, packed sequences,
 // prefix masks and the backward pass; the attention package's own tests

@@ -2,6 +2,7 @@ package attentiontest_test
 
 import (
 	"fmt"
+	"github.com/plumbref/plumb/conformance"
 	"strings"
 
 	"github.com/plumbref/plumb/attention"
@@ -11,8 +12,8 @@ import (
 
 // A kernel's test is one call, attentiontest.Run(t, kernel), with t the
 // test's *testing.T. Here a Recorder stands in for t, to show what the
-// suite does with a kernel that reads kv head h mod Hkv (GroupCycle) while
-// declaring the default GroupBlocks: it fails exactly the cases with
+// suite does with a kernel that reads kv head h mod Hkv (cycle) while
+// declaring the default blocks: it fails exactly the cases with
 // grouped heads, and skips, with a message, the cases that need what the
 // kernel does not declare.
 func ExampleRun() {
@@ -32,11 +33,11 @@ func ExampleRun() {
 			LSE:            true,
 		},
 	}
-	rec := &attentiontest.Recorder{}
+	rec := &conformance.Recorder{}
 	attentiontest.Run(rec, slipped)
 
 	var passed, skipped int
-	rec.Walk(func(r *attentiontest.Recorder) {
+	rec.Walk(func(r *conformance.Recorder) {
 		switch {
 		case len(r.Children) > 0:
 		case r.Failed:
@@ -50,15 +51,15 @@ func ExampleRun() {
 		}
 	})
 	fmt.Println(passed, "passed,", skipped, "skipped")
-	fmt.Println(rec.Find("soft_cap/HeadsMajor").Messages[0])
+	fmt.Println(rec.Find("soft_cap/heads-major").Messages[0])
 	// Output:
-	// FAIL causal_grouped/HeadsMajor/GroupBlocks: case causal_grouped
-	// FAIL decode_step/HeadsMajor/GroupBlocks: case decode_step
-	// FAIL window_decode/HeadsMajor/GroupBlocks: case window_decode
-	// FAIL realistic_prefill/HeadsMajor/GroupBlocks: case realistic_prefill
-	// FAIL realistic_decode/HeadsMajor/GroupBlocks: case realistic_decode
+	// FAIL causal_grouped/heads-major/blocks: case causal_grouped
+	// FAIL decode_step/heads-major/blocks: case decode_step
+	// FAIL window_decode/heads-major/blocks: case window_decode
+	// FAIL realistic_prefill/heads-major/blocks: case realistic_prefill
+	// FAIL realistic_decode/heads-major/blocks: case realistic_decode
 	// 13 passed, 8 skipped
-	// case soft_cap/HeadsMajor skipped: it needs soft-capping (SoftCap), which the kernel does not declare in its Supports
+	// case soft_cap/heads-major skipped: it needs soft-capping (SoftCap), which the kernel does not declare in its Supports
 }
 
 // The cases, and what each is there to catch.

@@ -160,7 +160,8 @@ commands:
 		fmt.Fprintf(w, "  %-6s %s\n", c.name, c.summary)
 	}
 	fmt.Fprintf(w, `  help   this text; plumb help COMMAND explains a command and every flag,
-         plumb help ops lists the operations, plumb help OPERATION explains one
+         plumb help ops lists the operations, plumb help OPERATION explains one,
+         plumb help conventions lists every convention and its words
 
 Flags go before, between or after the arguments. Exit status: 0 success (and,
 for diff and check, within tolerance), 1 outside the tolerance, 2 a usage or
@@ -183,6 +184,10 @@ func help(e *env, args []string) int {
 		c.writeHelp(e.stdout, fs)
 		return exitPass
 	}
+	if topic == "conventions" {
+		writeConventions(e.stdout)
+		return exitPass
+	}
 	if topic == "ops" || topic == "operations" {
 		fmt.Fprintf(e.stdout, "operations (plumb help OPERATION for its keys and tensors):\n\n")
 		for _, n := range ops.Names() {
@@ -199,11 +204,39 @@ func help(e *env, args []string) int {
 	return exitUsage
 }
 
+// writeWords lists the words of a word key, each with its meaning.
+func writeWords(w io.Writer, indent string, words []ops.Word) {
+	width := 0
+	for _, x := range words {
+		width = max(width, len(x.Text)+2)
+	}
+	for _, x := range words {
+		fmt.Fprintf(w, "%s  %-*s %s\n", indent, width, `"`+x.Text+`"`, x.Meaning)
+	}
+}
+
+// writeConventions lists every convention, its words and the keys that
+// take them.
+func writeConventions(w io.Writer) {
+	fmt.Fprintf(w, "conventions: every choice a port can make differently, the words that name\nthe choices (the same in configurations, golden files and messages), and\nthe operation keys that take them; the first word is the default.\n")
+	for _, c := range ops.Conventions() {
+		fmt.Fprintf(w, "\n%s (%s): %s\n", c.Noun, c.Name, c.Question)
+		writeWords(w, "", c.Words)
+		if len(c.Aliases) > 0 {
+			fmt.Fprintf(w, "  also read: %s\n", strings.Join(c.Aliases, ", "))
+		}
+		if len(c.Keys) > 0 {
+			fmt.Fprintf(w, "  keys: %s\n", strings.Join(c.Keys, "; "))
+		}
+	}
+}
+
 func writeOpHelp(w io.Writer, o ops.Op) {
 	fmt.Fprintf(w, "%s: %s\n\nconfiguration (a JSON object; unknown keys are errors):\n", o.Name(), o.Summary())
 	fmt.Fprintf(w, "  %-18s %-9s %s\n", "version", "int", "required: 1, the schema version")
 	for _, k := range o.Keys() {
 		fmt.Fprintf(w, "  %-18s %-9s %s (default: %s)\n", k.Name, k.Type, k.Doc, k.Default)
+		writeWords(w, "    ", k.Words)
 	}
 	port := func(title string, ps []ops.Port) {
 		if len(ps) == 0 {

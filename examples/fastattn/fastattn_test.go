@@ -1,6 +1,7 @@
 package fastattn
 
 import (
+	"github.com/plumbref/plumb/conformance"
 	"strings"
 	"testing"
 
@@ -56,7 +57,7 @@ func suiteKernel(f func(q, k, v []float32, p Params) ([]float32, []float32, erro
 // wrong. The suite must fail it where the convention shows and say which
 // case, under which conventions, and where.
 func TestSuiteCatchesSlips(t *testing.T) {
-	cycle := func(h, hq, hkv int) int { return h % hkv } // GroupCycle where GroupBlocks is declared
+	cycle := func(h, hq, hkv int) int { return h % hkv } // the cycle map where the blocks map is declared
 	swapped := func(i, r int, halves bool) (int, int) { return pairOf(i, r, !halves) }
 	for _, s := range []struct {
 		name   string
@@ -67,23 +68,23 @@ func TestSuiteCatchesSlips(t *testing.T) {
 	}{
 		{"kv head of a query head", func(q, k, v []float32, p Params) ([]float32, []float32, error) {
 			return forward(q, k, v, p, cycle, pairOf)
-		}, "causal_grouped/SeqMajor/GroupBlocks/PairHalves", "causal_multi_query/HeadsMajor/PairAdjacent",
-			"case causal_grouped (batch 1, 8 query heads on 2 kv heads, Lq 40, Lk 40, Dk 16, Dv 16, SeqMajor, GroupBlocks, Causal, AlignEnd, offset 0, scale 0.25, rotary PairHalves over 16 of 16 dims, base 10000, EmptyRowZero): output differs from the reference"},
+		}, "causal_grouped/seq-major/blocks/halves", "causal_multi_query/heads-major/adjacent",
+			"case causal_grouped (batch 1, 8 query heads on 2 kv heads, Lq 40, Lk 40, Dk 16, Dv 16, layout seq-major, group blocks, mask causal, align end, offset 0, scale 0.25, pairing halves, rotated 16 of 16 dims, base 10000, empty_row zero): output differs from the reference"},
 		{"rotary pairing", func(q, k, v []float32, p Params) ([]float32, []float32, error) {
 			return forward(q, k, v, p, kvHeadOf, swapped)
-		}, "causal_square/HeadsMajor/PairAdjacent", "cross_fewer_queries/HeadsMajor",
-			"rotary PairAdjacent over 32 of 32 dims"},
+		}, "causal_square/heads-major/adjacent", "cross_fewer_queries/heads-major",
+			"pairing adjacent, rotated 32 of 32 dims"},
 		{"causal alignment", func(q, k, v []float32, p Params) ([]float32, []float32, error) {
 			p.StartPos = 0 // queries placed at the first keys, not the last
 			return Forward(q, k, v, p)
-		}, "decode_step/HeadsMajor/GroupBlocks/PairAdjacent", "causal_square/SeqMajor/PairHalves",
+		}, "decode_step/heads-major/blocks/adjacent", "causal_square/seq-major/halves",
 			"case decode_step (batch 2, 4 query heads on 2 kv heads, Lq 1, Lk 77"},
 	} {
 		if testing.Short() && s.name != "kv head of a query head" {
 			continue // each slip runs the whole suite: one is enough under -short
 		}
 		t.Run(s.name, func(t *testing.T) {
-			rec := &attentiontest.Recorder{}
+			rec := &conformance.Recorder{}
 			attentiontest.Run(rec, suiteKernel(s.kernel))
 			require.True(t, rec.Failed, "the suite passed a kernel with a slip in the %s", s.name)
 			bad := rec.Find(s.fails)

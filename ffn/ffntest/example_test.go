@@ -2,6 +2,7 @@ package ffntest_test
 
 import (
 	"fmt"
+	"github.com/plumbref/plumb/conformance"
 
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/ffn"
@@ -21,18 +22,18 @@ func ExampleRun() {
 		},
 		Supports: ffntest.Supports{Acts: []ffn.Act{ffn.ActSiLU}, Gated: true, Rectangular: true},
 	}
-	rec := &ffntest.Recorder{}
+	rec := &conformance.Recorder{}
 	ffntest.Run(rec, slipped)
-	rec.Walk(func(r *ffntest.Recorder) {
+	rec.Walk(func(r *conformance.Recorder) {
 		if len(r.Children) == 0 && (r.Failed || r.Skipped) {
 			fmt.Println(map[bool]string{true: "FAIL", false: "SKIP"}[r.Failed], r.Name)
 		}
 	})
 	// Output:
-	// FAIL one_hidden_unit/silu/gated/InByOut/separate
-	// FAIL small/silu/gated/InByOut/separate
-	// SKIP biases/silu/gated/InByOut/separate
-	// FAIL rectangular/silu/gated/InByOut/separate
-	// FAIL large_preactivations/silu/gated/InByOut/separate
-	// FAIL realistic/silu/gated/InByOut/separate
+	// FAIL one_hidden_unit/silu/gated/in-by-out/separate
+	// FAIL small/silu/gated/in-by-out/separate
+	// SKIP biases/silu/gated/in-by-out/separate
+	// FAIL rectangular/silu/gated/in-by-out/separate
+	// FAIL large_preactivations/silu/gated/in-by-out/separate
+	// FAIL realistic/silu/gated/in-by-out/separate
 }

@@ -20,7 +20,7 @@
 // Every case runs as a subtest for each declared activation, unit (plain,
 // gated), weight layout and, for gated units, weight form (separate W and
 // V, or one fused matrix in each declared packing): go test -run
-// 'TestSwiGLU/realistic/silu/gated/OutByIn' picks some. Cases that need
+// 'TestSwiGLU/realistic/silu/gated/out-by-in' picks some. Cases that need
 // what the kernel does not declare (biases, Out ≠ In) are skipped with a
 // message naming it.
 //
@@ -63,17 +63,14 @@ package ffntest
 import (
 	"fmt"
 	"math"
+	"math/rand/v2"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/suite"
 )
-
-// TB is the part of *testing.T that Run uses; see attentiontest.TB.
-type TB[T any] = suite.TB[T]
-
-// Recorder stands in for *testing.T to record what the suite says.
-type Recorder = suite.Recorder
 
 // Problem is one call: the sizes, the layer's options (activation, β,
 // gated or plain, weight layout, packing of a fused gate/value matrix),
@@ -133,7 +130,7 @@ type Supports struct {
 
 // Kernel is a feed-forward kernel under test. Forward is required,
 // Backward optional.
-type Kernel[E ~float32 | ~float64] struct {
+type Kernel[E compare.Float] struct {
 	Forward func(x []E, w ffn.Weights[E], p Problem) ([]E, error)
 	// Backward returns dx and the gradients of the weights given, in the
 	// form of w (see ffn.Backward).
@@ -180,12 +177,10 @@ func (s Supports) missing(p Problem) []string {
 	return m
 }
 
-type variant struct {
-	name string
-	p    Problem
-}
-
-func variants(c Case, s Supports) []variant {
+// variants poses a case under every declared activation, unit, layout
+// and, for a gated unit, weight form, each named by their words
+// ("silu/gated/out-by-in/stacked").
+func (s Supports) variants(c Case) []suite.Variant[Problem] {
 	layouts := s.Layouts
 	if len(layouts) == 0 {
 		layouts = []ffn.Layout{ffn.InByOut}
@@ -197,34 +192,25 @@ func variants(c Case, s Supports) []variant {
 	if s.Gated {
 		units = append(units, true)
 	}
-	var vs []variant
+	var vs []suite.Variant[Problem]
 	for _, a := range s.Acts {
 		for _, gated := range units {
 			for _, l := range layouts {
-				forms := []ffn.Packing{0} // separate W1, V (or a plain layer)
-				if gated && (len(s.Packings) > 0 && !s.Separate) {
-					forms = nil
-				}
-				if gated {
-					forms = append(forms, s.Packings...)
-				}
-				for _, pk := range forms {
+				for _, form := range s.weightForms(gated) {
 					p := c.Problem
-					p.Options = ffn.Options{Act: a, Gated: gated, Layout: l, Packing: pk}
+					p.Options = ffn.Options{Act: a, Gated: gated, Layout: l}
 					if a == ffn.ActSwish {
 						p.Options.Beta = 1.5
 					}
-					p.Fused = pk != 0
 					name := a.String() + "/plain/" + l.String()
 					if gated {
-						name = a.String() + "/gated/" + l.String()
-						if p.Fused {
-							name += "/" + pk.String()
-						} else {
-							name += "/separate"
-						}
+						name = a.String() + "/gated/" + l.String() + "/separate"
 					}
-					vs = append(vs, variant{name, p})
+					if form != nil {
+						p.Fused, p.Options.Packing = true, *form
+						name = a.String() + "/gated/" + l.String() + "/" + form.String()
+					}
+					vs = append(vs, suite.Variant[Problem]{Name: name, Problem: p, Missing: s.missing(p)})
 				}
 			}
 		}
@@ -232,8 +218,24 @@ func variants(c Case, s Supports) []variant {
 	return vs
 }
 
+// weightForms lists the forms of a unit's weights: nil for separate
+// matrices (or a plain unit), then each declared packing of a fused one.
+func (s Supports) weightForms(gated bool) []*ffn.Packing {
+	if !gated {
+		return []*ffn.Packing{nil}
+	}
+	var forms []*ffn.Packing
+	if len(s.Packings) == 0 || s.Separate {
+		forms = append(forms, nil)
+	}
+	for i := range s.Packings {
+		forms = append(forms, &s.Packings[i])
+	}
+	return forms
+}
+
 // weights lists a Weights' slices in a fixed order, and back.
-func list[E ~float32 | ~float64](w ffn.Weights[E]) [][]E {
+func list[E compare.Float](w ffn.Weights[E]) [][]E {
 	return [][]E{w.W1, w.B1, w.V, w.C, w.Fused, w.FusedBias, w.W2, w.B2}
 }
 
@@ -264,7 +266,7 @@ func gradShape(i int, p Problem) ([]int, string) {
 	return []int{d.Out}, "[output]"
 }
 
-func unlist[E ~float32 | ~float64](l [][]E) ffn.Weights[E] {
+func unlist[E compare.Float](l [][]E) ffn.Weights[E] {
 	n := func(x []E) []E {
 		if len(x) == 0 {
 			return nil
@@ -275,8 +277,7 @@ func unlist[E ~float32 | ~float64](l [][]E) ffn.Weights[E] {
 }
 
 // draw returns x, the weights and dy.
-func (c Case) draw(name string, p Problem) (x []float64, w ffn.Weights[float64], dy []float64) {
-	r := suite.Rand(name)
+func (c Case) draw(r *rand.Rand, p Problem) (x []float64, w ffn.Weights[float64], dy []float64) {
 	d := p.Dims
 	x = suite.Normal(r, d.Rows*d.In, c.gain)
 	in := 1 / math.Sqrt(float64(d.In))
@@ -309,30 +310,16 @@ func (c Case) draw(name string, p Problem) (x []float64, w ffn.Weights[float64],
 //	the kernel returns an error           that subtest fails, quoting the error
 //	an output of the wrong length         that subtest fails, naming both lengths
 //	NaN or ±Inf in the reference          the kernel must give the same (NaN for NaN, the same infinity)
-func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
+func Run[T conformance.TB[T], E compare.Float](t T, k Kernel[E]) {
 	t.Helper()
-	f, ok := suite.Start[T, E](t, "ffntest", k.Forward != nil && len(k.Supports.Acts) > 0, "Kernel.Forward is nil or Supports.Acts empty", k.Format)
-	if !ok {
-		return
-	}
-	var subs []suite.Sub[T]
-	for _, c := range Cases() {
-		for _, v := range variants(c, k.Supports) {
-			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: v.name, Run: func(t T) { runCase(t, k, f, c, v) }})
-		}
-	}
-	suite.RunAll(t, subs)
+	suite.Run[T, E](t, "ffntest", k.Forward != nil && len(k.Supports.Acts) > 0, "Kernel.Forward is nil or Supports.Acts empty", k.Format,
+		Cases(), func(c Case) string { return c.Name }, k.Supports.variants,
+		func(t T, f compare.Format, c Case, p Problem, r *rand.Rand) { runCase(t, k, f, c, p, r) })
 }
 
-func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format, c Case, v variant) {
+func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.Format, c Case, p Problem, r *rand.Rand) {
 	t.Helper()
-	p := v.p
-	name := c.Name + "/" + v.name
-	if msg := suite.Missing(name, k.Supports.missing(p)); msg != "" {
-		t.Skipf("%s", msg)
-		return
-	}
-	x, w, dy := c.draw(name, p)
+	x, w, dy := c.draw(r, p)
 	x, dy = f.RoundSlice(x), f.RoundSlice(dy)
 	wl := list(w)
 	for i, s := range wl {
@@ -351,7 +338,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		out := make([][]E, len(l))
 		for i, s := range l {
 			if s != nil {
-				out[i] = suite.Convert[E](s)
+				out[i] = num.Convert[E](s)
 			}
 		}
 		return out
@@ -362,7 +349,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		t.Errorf("case %s (%s): the reference refused the problem: %v", c.Name, conv, err)
 		return
 	}
-	got, err := k.Forward(suite.Convert[E](x), unlist(conv32(wl)), p)
+	got, err := k.Forward(num.Convert[E](x), unlist(conv32(wl)), p)
 	if err != nil {
 		t.Errorf("case %s (%s): the kernel's Forward returned an error: %v", c.Name, conv, err)
 		return
@@ -381,7 +368,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		t.Errorf("case %s (%s): the reference backward refused the problem: %v", c.Name, conv, err)
 		return
 	}
-	gdx, ggrad, err := k.Backward(suite.Convert[E](x), suite.Convert[E](dy), unlist(conv32(wl)), p)
+	gdx, ggrad, err := k.Backward(num.Convert[E](x), num.Convert[E](dy), unlist(conv32(wl)), p)
 	if err != nil {
 		t.Errorf("case %s (%s): the kernel's Backward returned an error: %v", c.Name, conv, err)
 		return

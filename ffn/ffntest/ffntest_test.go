@@ -1,6 +1,7 @@
 package ffntest
 
 import (
+	"github.com/plumbref/plumb/conformance"
 	"strings"
 	"testing"
 
@@ -94,8 +95,8 @@ func TestFloat32Kernels(t *testing.T) {
 	})
 }
 
-func failures[E float32 | float64](k Kernel[E]) (*Recorder, []string) {
-	rec := &Recorder{}
+func failures[E float32 | float64](k Kernel[E]) (*conformance.Recorder, []string) {
+	rec := &conformance.Recorder{}
 	Run(rec, k)
 	return rec, rec.Failures()
 }
@@ -118,27 +119,27 @@ func TestCatchesSlips(t *testing.T) {
 					o.Act = ffn.ActGELUTanh
 				}
 				return ffn.Forward(x, p.Dims, w, o)
-			}, "small/gelu/gated/InByOut/separate", "small/relu/plain/InByOut", "gelu gated, InByOut, no biases): y differs from the reference"},
+			}, "small/gelu/gated/in-by-out/separate", "small/relu/plain/in-by-out", "gelu gated, in-by-out, no biases): y differs from the reference"},
 		{"activation on the value projection",
 			Supports{Acts: []ffn.Act{ffn.ActSiLU}, Gated: true},
 			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
 				w.W1, w.V = w.V, w.W1
 				return ffn.Forward(x, p.Dims, w, p.Options)
-			}, "realistic/silu/gated/InByOut/separate", "", "worst element [row, output]"},
+			}, "realistic/silu/gated/in-by-out/separate", "", "worst element [row, output]"},
 		{"packing",
 			Supports{Acts: []ffn.Act{ffn.ActSiLU}, Gated: true, Packings: []ffn.Packing{ffn.GateUpStacked, ffn.GateUpInterleaved}},
 			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
 				o := p.Options
 				o.Packing = 3 - o.Packing
 				return ffn.Forward(x, p.Dims, w, o)
-			}, "small/silu/gated/InByOut/GateUpInterleaved", "", "fused GateUpInterleaved"},
+			}, "small/silu/gated/in-by-out/interleaved", "", "fused interleaved"},
 		{"layout",
 			Supports{Acts: []ffn.Act{ffn.ActReLU}, Layouts: []ffn.Layout{ffn.InByOut, ffn.OutByIn}},
 			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
 				o := p.Options
 				o.Layout = ffn.InByOut
 				return ffn.Forward(x, p.Dims, w, o)
-			}, "small/relu/plain/OutByIn", "small/relu/plain/InByOut", "relu plain, OutByIn"},
+			}, "small/relu/plain/out-by-in", "small/relu/plain/in-by-out", "relu plain, out-by-in"},
 	} {
 		t.Run(s.name, func(t *testing.T) {
 			rec, failed := failures(Kernel[float64]{Format: compare.Float64, Supports: s.supports, Forward: s.kernel})
@@ -158,10 +159,10 @@ func TestCatchesSlips(t *testing.T) {
 func TestSkips(t *testing.T) {
 	rec, failed := failures(Kernel[float64]{Format: compare.Float64, Forward: forward64(ffn.Forward), Supports: Supports{Acts: []ffn.Act{ffn.ActReLU}}})
 	assert.Empty(t, failed)
-	assert.Equal(t, "case rectangular/relu/plain/InByOut skipped: it needs Out ≠ In (Rectangular), which the kernel does not declare in its Supports",
-		rec.Find("rectangular/relu/plain/InByOut").Messages[0])
-	assert.True(t, rec.Find("biases/relu/plain/InByOut").Skipped)
-	assert.False(t, rec.Find("realistic/relu/plain/InByOut").Skipped)
+	assert.Equal(t, "case rectangular/relu/plain/in-by-out skipped: it needs Out ≠ In (Rectangular), which the kernel does not declare in its Supports",
+		rec.Find("rectangular/relu/plain/in-by-out").Messages[0])
+	assert.True(t, rec.Find("biases/relu/plain/in-by-out").Skipped)
+	assert.False(t, rec.Find("realistic/relu/plain/in-by-out").Skipped)
 }
 
 // The package documentation lists every case, with its reason, in order.
@@ -196,9 +197,9 @@ func TestCatchesBackwardSlip(t *testing.T) {
 			return dx, g, err
 		}}
 	rec, failed := failures(k)
-	assert.Contains(t, failed, "small/relu/plain/OutByIn")
-	assert.NotContains(t, failed, "small/relu/plain/InByOut")
-	msg := rec.Find("small/relu/plain/OutByIn").Messages[0]
+	assert.Contains(t, failed, "small/relu/plain/out-by-in")
+	assert.NotContains(t, failed, "small/relu/plain/in-by-out")
+	msg := rec.Find("small/relu/plain/out-by-in").Messages[0]
 	assert.Contains(t, msg, "dW2 differs from the reference")
 	assert.Contains(t, msg, "worst element [output, hidden]")
 }

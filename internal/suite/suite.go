@@ -1,8 +1,9 @@
 // Package suite holds what the conformance suites (attentiontest,
-// posenctest, normtest, ffntest) share: the test interface they run on,
-// a recorder that stands in for *testing.T when a test must watch a suite
-// fail, deterministic inputs, and the judging of one output against the
-// reference with the report of compare.Diff.
+// posenctest, normtest, ffntest) share: the skeleton of their Run (Run,
+// over cases and their variants), deterministic inputs, the tolerances,
+// and the judging of one output against the reference with the report of
+// compare.Diff. The test interface they run on and the recorder that
+// stands in for *testing.T are public, in package conformance.
 package suite
 
 import (
@@ -15,107 +16,9 @@ import (
 	"strings"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/num"
 )
-
-// TB is the part of *testing.T a suite uses. *testing.T satisfies TB[*testing.T]:
-// its Run takes a func(*testing.T). A suite never stops a test early (no
-// Fatal, FailNow or SkipNow is needed): after Skipf it returns by itself,
-// so a stand-in whose Skipf only records works too.
-type TB[T any] interface {
-	Helper()
-	Errorf(format string, args ...any)
-	Logf(format string, args ...any)
-	Skipf(format string, args ...any)
-	Run(name string, f func(T)) bool
-}
-
-// Recorder is a stand-in for *testing.T that records what a suite says
-// instead of failing the test that runs it: the way to show that a suite
-// catches a broken kernel. Its Run runs f at once, on the same goroutine,
-// with a child Recorder.
-type Recorder struct {
-	Name     string
-	Failed   bool        // Errorf was called here or in a child
-	Skipped  bool        // Skipf was called here
-	Messages []string    // every Errorf, Logf and Skipf message, in order
-	Children []*Recorder // one per Run call, in order
-}
-
-// Helper does nothing.
-func (r *Recorder) Helper() {}
-
-// Errorf records a failure.
-func (r *Recorder) Errorf(format string, args ...any) {
-	r.Failed = true
-	r.Messages = append(r.Messages, fmt.Sprintf(format, args...))
-}
-
-// Logf records a message.
-func (r *Recorder) Logf(format string, args ...any) {
-	r.Messages = append(r.Messages, fmt.Sprintf(format, args...))
-}
-
-// Skipf records a skip; unlike testing.T.Skipf it does not stop the caller.
-func (r *Recorder) Skipf(format string, args ...any) {
-	r.Skipped = true
-	r.Messages = append(r.Messages, fmt.Sprintf(format, args...))
-}
-
-// Run runs f with a child Recorder named name and reports whether it passed.
-func (r *Recorder) Run(name string, f func(*Recorder)) bool {
-	c := &Recorder{Name: name}
-	if r.Name != "" {
-		c.Name = r.Name + "/" + name
-	}
-	r.Children = append(r.Children, c)
-	f(c)
-	if c.Failed {
-		r.Failed = true
-	}
-	return !c.Failed
-}
-
-// Failures lists the full names of the failed subtests that have no
-// subtests of their own, in the order they ran.
-func (r *Recorder) Failures() []string {
-	var names []string
-	r.Walk(func(c *Recorder) {
-		if c.Failed && len(c.Children) == 0 {
-			names = append(names, c.Name)
-		}
-	})
-	return names
-}
-
-// Walk calls f on r and on every recorder below it, depth first.
-func (r *Recorder) Walk(f func(*Recorder)) {
-	f(r)
-	for _, c := range r.Children {
-		c.Walk(f)
-	}
-}
-
-// Find returns the recorder with the given full name below r, or nil.
-func (r *Recorder) Find(name string) *Recorder {
-	var found *Recorder
-	r.Walk(func(c *Recorder) {
-		if c.Name == name && found == nil {
-			found = c
-		}
-	})
-	return found
-}
-
-// Text is every message of r and its children, one per line.
-func (r *Recorder) Text() string {
-	var b strings.Builder
-	r.Walk(func(c *Recorder) {
-		for _, m := range c.Messages {
-			fmt.Fprintf(&b, "%s: %s\n", c.Name, m)
-		}
-	})
-	return b.String()
-}
 
 // Rand returns the generator of a case: PCG seeded from the case's name, so
 // that every case draws the same inputs on every run and machine, and
@@ -135,25 +38,13 @@ func Normal(r *rand.Rand, n int, scale float64) []float64 {
 	return x
 }
 
-// Float is the element type of a kernel under test.
-type Float interface{ ~float32 | ~float64 }
-
-// Convert converts float64 values to E.
-func Convert[E Float](x []float64) []E {
-	y := make([]E, len(x))
-	for i, v := range x {
-		y[i] = E(v)
-	}
-	return y
-}
-
 // Is32 reports whether E is float32 arithmetic.
-func Is32[E Float]() bool { return float64(E(1+math.Ldexp(1, -40))) == 1 }
+func Is32[E num.Float]() bool { return float64(E(1+math.Ldexp(1, -40))) == 1 }
 
 // InputFormat is the format a kernel of element type E stores its inputs
 // in, given its declaration: the zero compare.Format (Float64) means
 // Float32 for a float32 kernel. It refuses formats wider than E.
-func InputFormat[E Float](declared compare.Format) (compare.Format, error) {
+func InputFormat[E num.Float](declared compare.Format) (compare.Format, error) {
 	if !declared.Valid() {
 		return declared, fmt.Errorf("the kernel declares an invalid number format %v", declared)
 	}
@@ -198,7 +89,7 @@ type Output struct {
 // failed with a message that names the case, its conventions, the output,
 // the worst element (index, value, reference) and then the whole report.
 // It reports whether the output passed.
-func Judge[T TB[T]](t T, caseName, conventions string, o Output, opt compare.Options) bool {
+func Judge[T conformance.TB[T]](t T, caseName, conventions string, o Output, opt compare.Options) bool {
 	t.Helper()
 	if len(o.Got) != len(o.Ref) {
 		t.Errorf("case %s (%s): %s has %d elements; want %d, shape %v %s",
@@ -238,7 +129,7 @@ func Judge[T TB[T]](t T, caseName, conventions string, o Output, opt compare.Opt
 //
 // For a float64 kernel it is Float64Tolerance. It returns an error when a
 // yardstick cannot be run.
-func Tolerance[E Float](f compare.Format, inputs [][]float64, ref []float64, shape []int, runs ...func(in [][]float32) ([]float32, error)) (compare.Options, error) {
+func Tolerance[E num.Float](f compare.Format, inputs [][]float64, ref []float64, shape []int, runs ...func(in [][]float32) ([]float32, error)) (compare.Options, error) {
 	if !Is32[E]() {
 		tol := Float64Tolerance(ref)
 		return compare.Options{Format: compare.Float64, Tolerance: &tol}, nil
@@ -273,7 +164,7 @@ func Tolerance[E Float](f compare.Format, inputs [][]float64, ref []float64, sha
 // Check judges o against o.Ref under Tolerance (the yardsticks runs for a
 // float32 kernel, Float64Tolerance for a float64 one) with Judge, and
 // reports whether it passed. A yardstick that cannot be run fails t.
-func Check[T TB[T], E Float](t T, f compare.Format, caseName, conventions string, o Output, inputs [][]float64, runs ...func(in [][]float32) ([]float32, error)) bool {
+func Check[T conformance.TB[T], E num.Float](t T, f compare.Format, caseName, conventions string, o Output, inputs [][]float64, runs ...func(in [][]float32) ([]float32, error)) bool {
 	t.Helper()
 	opt, err := Tolerance[E](f, inputs, o.Ref, o.Shape, runs...)
 	if err != nil {
@@ -283,56 +174,61 @@ func Check[T TB[T], E Float](t T, f compare.Format, caseName, conventions string
 	return Judge(t, caseName, conventions, o, opt)
 }
 
-// Sub is one subtest of a suite: a case under one choice of its
-// conventions (Variant, the subtest's name below the case's).
-type Sub[T any] struct {
-	Case, Variant string
-	Run           func(t T)
+// Variant is one choice of the conventions a case runs under.
+type Variant[P any] struct {
+	// Name is the subtest's name below the case's: the words of the
+	// conventions, joined by "/" ("heads-major/cycle/halves").
+	Name string
+	// Problem is the case as posed to the kernel under this choice.
+	Problem P
+	// Missing lists what Problem needs that the kernel does not declare,
+	// each naming its Supports field ("mask causal (Masks)"); the
+	// subtest is skipped when it is not empty.
+	Missing []string
 }
 
-// RunAll runs subs as subtests of t, each under a subtest named by its
-// Case (consecutive subs of one case share it).
-func RunAll[T TB[T]](t T, subs []Sub[T]) {
-	t.Helper()
-	for i := 0; i < len(subs); {
-		j := i + 1
-		for j < len(subs) && subs[j].Case == subs[i].Case {
-			j++
-		}
-		group := subs[i:j]
-		t.Run(subs[i].Case, func(t T) {
-			for _, s := range group {
-				t.Run(s.Variant, s.Run)
-			}
-		})
-		i = j
-	}
-}
-
-// Start checks what every suite's Run checks first: that the kernel has
-// its function (ok) and a number format a kernel of element type E can
-// have. It fails t, naming the suite, and returns false otherwise.
-func Start[T TB[T], E Float](t T, suiteName string, ok bool, what string, declared compare.Format) (compare.Format, bool) {
+// Run is the body of every suite's Run. It checks that the kernel has its
+// function (ok; what says otherwise) and a number format, declared, that a
+// kernel of element type E can have, failing t with a message led by
+// suiteName otherwise. Then it runs each case of cases that has variants
+// as a subtest named caseName(c), with one subtest per variant below it,
+// named v.Name. A variant that misses a declaration is skipped with a
+// message naming the case, the variant and what is missing; any other runs
+// run(t, f, c, v.Problem, r), with f the format the kernel stores its inputs in
+// (see InputFormat) and r the generator of the subtest (Rand of its full
+// name below t, "case/variant"), to draw its inputs from.
+func Run[T conformance.TB[T], E num.Float, C, P any](t T, suiteName string, ok bool, what string, declared compare.Format,
+	cases []C, caseName func(C) string, variants func(C) []Variant[P],
+	run func(t T, f compare.Format, c C, p P, r *rand.Rand)) {
 	t.Helper()
 	if !ok {
 		t.Errorf("%s: %s", suiteName, what)
-		return 0, false
+		return
 	}
 	f, err := InputFormat[E](declared)
 	if err != nil {
 		t.Errorf("%s: %v", suiteName, err)
-		return 0, false
+		return
 	}
-	return f, true
-}
-
-// Missing joins the names of the missing supports of a case into the skip
-// message, or returns "" when nothing is missing.
-func Missing(caseName string, missing []string) string {
-	if len(missing) == 0 {
-		return ""
+	for _, c := range cases {
+		vs := variants(c)
+		if len(vs) == 0 {
+			continue
+		}
+		name := caseName(c)
+		t.Run(name, func(t T) {
+			for _, v := range vs {
+				t.Run(v.Name, func(t T) {
+					full := name + "/" + v.Name
+					if len(v.Missing) > 0 {
+						t.Skipf("case %s skipped: it needs %s, which the kernel does not declare in its Supports", full, strings.Join(v.Missing, ", "))
+						return
+					}
+					run(t, f, c, v.Problem, Rand(full))
+				})
+			}
+		})
 	}
-	return fmt.Sprintf("case %s skipped: it needs %s, which the kernel does not declare in its Supports", caseName, strings.Join(missing, ", "))
 }
 
 // MissingDocLines reads the Go file at path and returns the cases whose

@@ -2,7 +2,9 @@ package suite
 
 import (
 	"errors"
+	"fmt"
 	"math"
+	"math/rand/v2"
 	"os"
 	"strings"
 	"testing"
@@ -11,26 +13,67 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
 )
 
-// *testing.T is a TB of itself: this line does not compile otherwise.
-var _ TB[*testing.T] = (*testing.T)(nil)
+// Recorder is the stand-in the tests watch the functions with.
+type Recorder = conformance.Recorder
 
-// The recorder records failures, skips and messages per subtest, and a
-// failure reaches every parent.
-func TestRecorder(t *testing.T) {
-	r := &Recorder{}
-	r.Run("a", func(c *Recorder) {
-		c.Run("x", func(c *Recorder) { c.Skipf("skip %d", 1) })
-		c.Run("y", func(c *Recorder) { c.Errorf("bad %s", "y") })
-	})
-	r.Run("b", func(c *Recorder) { c.Logf("fine") })
-	assert.True(t, r.Failed)
-	assert.True(t, r.Find("a").Failed)
-	assert.False(t, r.Find("b").Failed)
-	assert.True(t, r.Find("a/x").Skipped)
-	assert.Nil(t, r.Find("a/z"))
-	assert.Equal(t, "a/x: skip 1\na/y: bad y\nb: fine\n", r.Text())
+// Run checks the kernel first, then runs each case with variants as a
+// subtest, each variant below it: skipped, naming what is missing, or run
+// with the format the kernel stores its inputs in and the generator of
+// the subtest's full name.
+func TestRun(t *testing.T) {
+	type variant = Variant[int]
+	cases := []string{"one", "none", "two"}
+	variants := func(c string) []variant {
+		switch c {
+		case "one":
+			return []variant{{Name: "a/x", Problem: 1}, {Name: "b", Problem: 2, Missing: []string{"b (B)", "c (C)"}}}
+		case "two":
+			return []variant{{Name: "a", Problem: 3}}
+		}
+		return nil
+	}
+	var ran []string
+	run := func(t *Recorder, f compare.Format, c string, p int, r *rand.Rand) {
+		ran = append(ran, fmt.Sprintf("%s %s %d %v", t.Name, c, p, f))
+		assert.Equal(t, Rand(t.Name).Uint64(), r.Uint64(), t.Name)
+		if p == 3 {
+			t.Errorf("bad")
+		}
+	}
+	name := func(c string) string { return c }
+
+	rec := &Recorder{}
+	Run[*Recorder, float32](rec, "xtest", true, "", compare.Float64, cases, name, variants, run)
+	assert.Equal(t, []string{"one/a/x one 1 float32", "two/a two 3 float32"}, ran)
+	require.Len(t, rec.Children, 2)
+	assert.Equal(t, []string{"one", "two"}, []string{rec.Children[0].Name, rec.Children[1].Name})
+	skipped := rec.Find("one/b")
+	require.NotNil(t, skipped)
+	assert.True(t, skipped.Skipped)
+	assert.Equal(t, []string{"case one/b skipped: it needs b (B), c (C), which the kernel does not declare in its Supports"}, skipped.Messages)
+	assert.Equal(t, []string{"two/a"}, rec.Failures())
+
+	ran = nil
+	rec = &Recorder{}
+	Run[*Recorder, float64](rec, "xtest", true, "", compare.Float64, cases, name, variants, run)
+	assert.Equal(t, []string{"one/a/x one 1 float64", "two/a two 3 float64"}, ran)
+
+	ran = nil
+	rec = &Recorder{}
+	Run[*Recorder, float32](rec, "xtest", false, "Kernel.Forward is nil", compare.Float32, cases, name, variants, run)
+	assert.Equal(t, []string{"xtest: Kernel.Forward is nil"}, rec.Messages)
+	assert.Empty(t, rec.Children)
+	assert.Empty(t, ran)
+
+	rec = &Recorder{}
+	Run[*Recorder, float32](rec, "xtest", true, "", compare.Format(42), cases, name, variants, run)
+	require.Len(t, rec.Messages, 1)
+	assert.True(t, strings.HasPrefix(rec.Messages[0], "xtest: the kernel declares an invalid number format"), rec.Messages[0])
+	assert.Empty(t, rec.Children)
+	assert.Empty(t, ran)
 }
 
 // A failing output's message names the case, the conventions, the output

@@ -2,6 +2,7 @@ package normtest_test
 
 import (
 	"fmt"
+	"github.com/plumbref/plumb/conformance"
 
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/norm"
@@ -10,7 +11,7 @@ import (
 
 // A float64 RMSNorm that ignores the weight form (it always uses γ = w)
 // while declaring both forms fails every weighted case under
-// WeightOnePlus, and nothing else. In a kernel's test the first argument
+// one-plus, and nothing else. In a kernel's test the first argument
 // of Run is the test's *testing.T; a Recorder stands in for it here.
 func ExampleRun() {
 	slipped := normtest.Kernel[float64]{
@@ -26,22 +27,22 @@ func ExampleRun() {
 			Weights: []norm.WeightForm{norm.WeightAsIs, norm.WeightOnePlus},
 		},
 	}
-	rec := &normtest.Recorder{}
+	rec := &conformance.Recorder{}
 	normtest.Run(rec, slipped)
-	rec.Walk(func(r *normtest.Recorder) {
+	rec.Walk(func(r *conformance.Recorder) {
 		if len(r.Children) == 0 && (r.Failed || r.Skipped) {
 			fmt.Println(map[bool]string{true: "FAIL", false: "SKIP"}[r.Failed], r.Name)
 		}
 	})
 	// Output:
-	// FAIL one_element_rows/RMSNorm/EpsilonInRoot/WeightOnePlus
-	// FAIL small_rows/RMSNorm/EpsilonInRoot/WeightOnePlus
-	// FAIL realistic/RMSNorm/EpsilonInRoot/WeightOnePlus
-	// FAIL wide_rows/RMSNorm/EpsilonInRoot/WeightOnePlus
-	// FAIL offset_rows/RMSNorm/EpsilonInRoot/WeightOnePlus
-	// FAIL epsilon_matters/RMSNorm/EpsilonInRoot/WeightOnePlus
-	// FAIL large_values/RMSNorm/EpsilonInRoot/WeightOnePlus
-	// SKIP no_weight/RMSNorm/EpsilonInRoot
-	// SKIP residual_add/RMSNorm/EpsilonInRoot/WeightAsIs
-	// SKIP residual_add/RMSNorm/EpsilonInRoot/WeightOnePlus
+	// FAIL one_element_rows/rmsnorm/in-root/one-plus
+	// FAIL small_rows/rmsnorm/in-root/one-plus
+	// FAIL realistic/rmsnorm/in-root/one-plus
+	// FAIL wide_rows/rmsnorm/in-root/one-plus
+	// FAIL offset_rows/rmsnorm/in-root/one-plus
+	// FAIL epsilon_matters/rmsnorm/in-root/one-plus
+	// FAIL large_values/rmsnorm/in-root/one-plus
+	// SKIP no_weight/rmsnorm/in-root
+	// SKIP residual_add/rmsnorm/in-root/as-is
+	// SKIP residual_add/rmsnorm/in-root/one-plus
 }

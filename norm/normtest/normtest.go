@@ -12,7 +12,8 @@
 //	}
 //
 // Every case runs as a subtest for each declared layer, ε placement and
-// weight form (go test -run 'TestRMSNorm/offset_rows/RMSNorm' picks some).
+// weight form, named by their words, case/layer/placement[/weight form]
+// (go test -run 'TestRMSNorm/offset_rows/rmsnorm' picks some).
 // Cases that need what the kernel does not declare (the fused residual add,
 // rows without a weight) are skipped with a message naming it.
 //
@@ -44,14 +45,15 @@
 // with a compensated mean; a kernel that takes the variance as
 // mean(x²) − mean(x)² in float32 fails the rows with a large offset, as it
 // should. A float64 kernel is held to 1e-12 normwise and 1e-12·max|ref|
-// per element. A failure names the case, its conventions, the output and
-// its worst element [row, column], then compare.Diff's report.
+// per element. A failure names the case, its conventions by key and word
+// (Problem.String), the output and its worst element [row, column], then
+// compare.Diff's report.
 //
 // Inputs are drawn from a PCG generator seeded with the subtest's name and
 // rounded to the kernel's Format; the reference sees the rounded values.
 //
-// Run takes any TB; Recorder records instead of failing, to show the suite
-// catching a slipped kernel (see ExampleRun).
+// Run takes any conformance.TB; conformance.Recorder records instead of
+// failing, to show the suite catching a slipped kernel (see ExampleRun).
 package normtest
 
 import (
@@ -59,15 +61,12 @@ import (
 	"math/rand/v2"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/suite"
+	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/norm"
 )
-
-// TB is the part of *testing.T that Run uses; see attentiontest.TB.
-type TB[T any] = suite.TB[T]
-
-// Recorder stands in for *testing.T to record what the suite says.
-type Recorder = suite.Recorder
 
 // Layer is the normalisation.
 type Layer int
@@ -79,15 +78,29 @@ const (
 	RMSNorm
 )
 
-func (l Layer) String() string {
-	switch l {
-	case LayerNorm:
-		return "LayerNorm"
-	case RMSNorm:
-		return "RMSNorm"
-	}
-	return fmt.Sprintf("Layer(%d)", int(l))
-}
+var layerWords = vocab.New("normtest", "layer", "the normalisation a suite case runs", nil,
+	vocab.W(LayerNorm, "layernorm", "LayerNorm: γ∘(x − μ)/r + b"),
+	vocab.W(RMSNorm, "rmsnorm", "RMSNorm: γ∘x/r"),
+)
+
+// String returns l's word ("layernorm").
+func (l Layer) String() string { return layerWords.String(l) }
+
+// MarshalText returns l's word; a value with none is an error.
+func (l Layer) MarshalText() ([]byte, error) { return layerWords.Marshal(l) }
+
+// UnmarshalText sets l from its word; any other text is an error that lists the words.
+func (l *Layer) UnmarshalText(b []byte) error { return layerWords.Unmarshal(l, b) }
+
+// Meaning returns one line saying what l means.
+func (l Layer) Meaning() string { return layerWords.Meaning(l) }
+
+// Values lists every Layer, the zero value first.
+func (Layer) Values() []Layer { return layerWords.Values() }
+
+// Check returns nil if l is one of the Layer constants, or an error
+// that lists the words.
+func (l Layer) Check() error { return layerWords.Check(l) }
 
 // Problem is one call as the suite poses it: Rows rows of Dim elements,
 // the layer and its conventions (see package norm), and which of the
@@ -112,9 +125,16 @@ func (p Problem) Options() norm.Options {
 	return norm.Options{Epsilon: p.Epsilon, Placement: p.Placement, Weight: p.Weight}
 }
 
+// String lists the problem's size and then each convention by its key and
+// word, as failure messages print them: "8 rows of 256, layer layernorm,
+// epsilon 1e-05, epsilon_placement in-root, weight_form as-is, bias" (the
+// weight_form is "no weight" without a weight; the fused form ends with
+// "fused residual add").
 func (p Problem) String() string {
-	s := fmt.Sprintf("%d rows of %d, %v, ε %g %v, %v", p.Rows, p.Dim, p.Layer, p.Epsilon, p.Placement, p.Weight)
-	if !p.Weighted {
+	s := fmt.Sprintf("%d rows of %d, layer %v, epsilon %g, epsilon_placement %v", p.Rows, p.Dim, p.Layer, p.Epsilon, p.Placement)
+	if p.Weighted {
+		s += ", weight_form " + p.Weight.String()
+	} else {
 		s += ", no weight"
 	}
 	if p.Biased {
@@ -145,7 +165,7 @@ type Supports struct {
 
 // Kernel is a normalisation kernel under test, with float32 or float64
 // slices. Forward is required; Backward is optional and checked when set.
-type Kernel[E ~float32 | ~float64] struct {
+type Kernel[E compare.Float] struct {
 	// Forward returns y and, when p.Residual, sum = x + residual
 	// (residual is nil otherwise). weight and bias are nil when not given.
 	Forward func(x, residual, weight, bias []E, p Problem) (y, sum []E, err error)
@@ -209,12 +229,10 @@ func (s Supports) missing(p Problem) []string {
 	return m
 }
 
-type variant struct {
-	name string
-	p    Problem
-}
-
-func variants(c Case, s Supports) []variant {
+// variants poses a case under every declared layer, placement and weight
+// form (a case without a weight under WeightAsIs alone), each named by
+// their words.
+func (s Supports) variants(c Case) []suite.Variant[Problem] {
 	layers, places, weights := s.Layers, s.Placements, s.Weights
 	if len(layers) == 0 {
 		layers = []Layer{LayerNorm}
@@ -225,7 +243,7 @@ func variants(c Case, s Supports) []variant {
 	if len(weights) == 0 || !c.Problem.Weighted {
 		weights = []norm.WeightForm{norm.WeightAsIs}
 	}
-	var vs []variant
+	var vs []suite.Variant[Problem]
 	for _, l := range layers {
 		for _, pl := range places {
 			for _, w := range weights {
@@ -236,7 +254,7 @@ func variants(c Case, s Supports) []variant {
 				if p.Weighted {
 					name += "/" + w.String()
 				}
-				vs = append(vs, variant{name, p})
+				vs = append(vs, suite.Variant[Problem]{Name: name, Problem: p, Missing: s.missing(p)})
 			}
 		}
 	}
@@ -329,7 +347,7 @@ func rmsBack32(x []float32, d int, w, dy []float32, o norm.Options) ([]float32, 
 }
 
 // Run runs every case of Cases against the kernel, as subtests named
-// case/layer/placement[/weight form]; see the package documentation for
+// case/layer/placement[/weight form] (their words); see the package documentation for
 // what is judged and how closely.
 //
 // Special cases are:
@@ -340,29 +358,16 @@ func rmsBack32(x []float32, d int, w, dy []float32, o norm.Options) ([]float32, 
 //	the kernel returns an error           that subtest fails, quoting the error
 //	an output of the wrong length         that subtest fails, naming both lengths
 //	NaN or ±Inf in the reference          the kernel must give the same (NaN for NaN, the same infinity)
-func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
+func Run[T conformance.TB[T], E compare.Float](t T, k Kernel[E]) {
 	t.Helper()
-	f, ok := suite.Start[T, E](t, "normtest", k.Forward != nil, "Kernel.Forward is nil", k.Format)
-	if !ok {
-		return
-	}
-	var subs []suite.Sub[T]
-	for _, c := range Cases() {
-		for _, v := range variants(c, k.Supports) {
-			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: v.name, Run: func(t T) { runCase(t, k, f, c, v) }})
-		}
-	}
-	suite.RunAll(t, subs)
+	suite.Run[T, E](t, "normtest", k.Forward != nil, "Kernel.Forward is nil", k.Format,
+		Cases(), func(c Case) string { return c.Name }, k.Supports.variants,
+		func(t T, f compare.Format, c Case, p Problem, r *rand.Rand) { runCase(t, k, f, c, p, r) })
 }
 
-func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format, c Case, v variant) {
+func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.Format, c Case, p Problem, r *rand.Rand) {
 	t.Helper()
-	p := v.p
-	if msg := suite.Missing(c.Name+"/"+v.name, k.Supports.missing(p)); msg != "" {
-		t.Skipf("%s", msg)
-		return
-	}
-	x, res, w, b, dy := c.draw(suite.Rand(c.Name+"/"+v.name), p)
+	x, res, w, b, dy := c.draw(r, p)
 	x, res, w, b, dy = f.RoundSlice(x), roundOrNil(f, res), roundOrNil(f, w), roundOrNil(f, b), f.RoundSlice(dy)
 	conv := p.String()
 	rowShape := []int{p.Rows, p.Dim}
@@ -380,7 +385,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		t.Errorf("case %s (%s): the reference refused the problem: %v", c.Name, conv, err)
 		return
 	}
-	gy, gsum, err := k.Forward(conv32[E](x), conv32[E](res), conv32[E](w), conv32[E](b), p)
+	gy, gsum, err := k.Forward(num.Convert[E](x), num.Convert[E](res), num.Convert[E](w), num.Convert[E](b), p)
 	if err != nil {
 		t.Errorf("case %s (%s): the kernel's Forward returned an error: %v", c.Name, conv, err)
 		return
@@ -404,7 +409,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 		t.Errorf("case %s (%s): the reference backward refused the problem: %v", c.Name, conv, err)
 		return
 	}
-	gdx, gdw, gdb, err := k.Backward(conv32[E](x), conv32[E](w), conv32[E](dy), p)
+	gdx, gdw, gdb, err := k.Backward(num.Convert[E](x), num.Convert[E](w), num.Convert[E](dy), p)
 	if err != nil {
 		t.Errorf("case %s (%s): the kernel's Backward returned an error: %v", c.Name, conv, err)
 		return
@@ -437,12 +442,4 @@ func nilIfEmpty[E any](x []E) []E {
 		return nil
 	}
 	return x
-}
-
-// conv32 converts to the kernel's element type, keeping nil as nil.
-func conv32[E ~float32 | ~float64](x []float64) []E {
-	if x == nil {
-		return nil
-	}
-	return suite.Convert[E](x)
 }

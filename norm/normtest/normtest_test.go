@@ -1,6 +1,7 @@
 package normtest
 
 import (
+	"github.com/plumbref/plumb/conformance"
 	"math"
 	"strings"
 	"testing"
@@ -127,12 +128,12 @@ func TestCatchesSlips(t *testing.T) {
 	for _, s := range []struct {
 		slip, fails, passes string
 	}{
-		{"epsilon placement", "epsilon_matters/RMSNorm/EpsilonInRoot/WeightAsIs", "large_values/LayerNorm/EpsilonInRoot/WeightAsIs"},
-		{"weight form", "small_rows/LayerNorm/EpsilonInRoot/WeightOnePlus", "no_weight/RMSNorm/EpsilonAddedToRoot"},
-		{"one pass", "offset_rows/LayerNorm/EpsilonInRoot/WeightAsIs", "offset_rows/RMSNorm/EpsilonInRoot/WeightAsIs"},
+		{"epsilon placement", "epsilon_matters/rmsnorm/in-root/as-is", "large_values/layernorm/in-root/as-is"},
+		{"weight form", "small_rows/layernorm/in-root/one-plus", "no_weight/rmsnorm/added-to-root"},
+		{"one pass", "offset_rows/layernorm/in-root/as-is", "offset_rows/rmsnorm/in-root/as-is"},
 	} {
 		t.Run(s.slip, func(t *testing.T) {
-			rec := &Recorder{}
+			rec := &conformance.Recorder{}
 			Run(rec, Kernel[float32]{Forward: naive(s.slip), Supports: everything})
 			bad := rec.Find(s.fails)
 			require.NotNil(t, bad, s.fails)
@@ -156,24 +157,24 @@ func TestCatchesSlips(t *testing.T) {
 // two-pass compensated body the yardstick runs. That is a real error of the kernel (a pairwise or compensated sum,
 // or float64 accumulation, removes it), and the suite must report it.
 func TestPlainFloat32(t *testing.T) {
-	rec := &Recorder{}
+	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float32]{Forward: naive(""), Supports: everything})
 	assert.Equal(t, []string{
-		"offset_rows/LayerNorm/EpsilonInRoot/WeightAsIs", "offset_rows/LayerNorm/EpsilonInRoot/WeightOnePlus",
-		"offset_rows/LayerNorm/EpsilonAddedToRoot/WeightAsIs", "offset_rows/LayerNorm/EpsilonAddedToRoot/WeightOnePlus",
+		"offset_rows/layernorm/in-root/as-is", "offset_rows/layernorm/in-root/one-plus",
+		"offset_rows/layernorm/added-to-root/as-is", "offset_rows/layernorm/added-to-root/one-plus",
 	}, rec.Failures())
 }
 
 // A kernel that declares only RMSNorm without the fused add skips the
 // fused case and the unweighted case with messages naming them.
 func TestSkips(t *testing.T) {
-	rec := &Recorder{}
+	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Forward: plumbForward, Format: compare.Float64, Supports: Supports{Layers: []Layer{RMSNorm}}})
 	require.False(t, rec.Failed, rec.Text())
-	assert.Equal(t, "case residual_add/RMSNorm/EpsilonInRoot/WeightAsIs skipped: it needs the fused residual add (Residual), which the kernel does not declare in its Supports",
-		rec.Find("residual_add/RMSNorm/EpsilonInRoot/WeightAsIs").Messages[0])
-	assert.True(t, rec.Find("no_weight/RMSNorm/EpsilonInRoot").Skipped)
-	assert.False(t, rec.Find("realistic/RMSNorm/EpsilonInRoot/WeightAsIs").Skipped)
+	assert.Equal(t, "case residual_add/rmsnorm/in-root/as-is skipped: it needs the fused residual add (Residual), which the kernel does not declare in its Supports",
+		rec.Find("residual_add/rmsnorm/in-root/as-is").Messages[0])
+	assert.True(t, rec.Find("no_weight/rmsnorm/in-root").Skipped)
+	assert.False(t, rec.Find("realistic/rmsnorm/in-root/as-is").Skipped)
 }
 
 // The package documentation lists every case, with its reason, in order.
@@ -190,7 +191,7 @@ func TestDocListsEveryCase(t *testing.T) {
 // A LayerNorm backward that forgets the −mean(g)/r term of ∂L/∂x (the
 // path through μ; g = dy∘γ) fails on dx, and names it.
 func TestCatchesBackwardSlip(t *testing.T) {
-	rec := &Recorder{}
+	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: plumbForward, Supports: Supports{Bias: true},
 		Backward: func(x, w, dy []float64, p Problem) ([]float64, []float64, []float64, error) {
 			dx, dw, db, err := plumbBackward(x, w, dy, p)
@@ -211,7 +212,7 @@ func TestCatchesBackwardSlip(t *testing.T) {
 			}
 			return dx, dw, db, err
 		}})
-	msg := rec.Find("small_rows/LayerNorm/EpsilonInRoot/WeightAsIs").Messages
+	msg := rec.Find("small_rows/layernorm/in-root/as-is").Messages
 	require.Len(t, msg, 1)
 	assert.Contains(t, msg[0], "dx differs from the reference")
 	assert.Contains(t, msg[0], "worst element [row, column]")

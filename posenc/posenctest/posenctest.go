@@ -12,7 +12,8 @@
 //		})
 //	}
 //
-// Every case runs as a subtest for each declared pairing. Cases that need
+// Every case runs as a subtest for each declared pairing, named by the
+// pairing's word (go test -run 'TestRope/small/halves'). Cases that need
 // what the kernel does not declare (partial rotation, a scaling method, a
 // magnitude) are skipped with a message naming it.
 //
@@ -50,7 +51,8 @@
 // 1e-12·max|ref| per element. Inverse, when given, is judged the same way
 // against posenc.Rotary.ApplyInverse (the backward pass).
 //
-// A failure names the case, the configuration and positions, the output
+// A failure names the case, the configuration with each convention by its
+// key and word, and the positions (Problem.String), the output
 // and its worst element [row, dim], then compare.Diff's report. Inputs are
 // standard normal, drawn from a PCG generator seeded with the subtest's
 // name and rounded to the kernel's Format.
@@ -58,18 +60,15 @@ package posenctest
 
 import (
 	"fmt"
+	"math/rand/v2"
 	"slices"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/posenc"
 )
-
-// TB is the part of *testing.T that Run uses; see attentiontest.TB.
-type TB[T any] = suite.TB[T]
-
-// Recorder stands in for *testing.T to record what the suite says.
-type Recorder = suite.Recorder
 
 // Problem is one call: Rows rows of Rotary.Dim values, row r at position
 // Positions[r], to be rotated as Rotary says (posenc.Rotary documents
@@ -80,19 +79,34 @@ type Problem struct {
 	Positions []int
 }
 
+// String lists the problem's size and then each setting of the encoding by
+// its key and word, as failure messages print them: "8 rows of 8, pairing
+// halves, rotated 8 of 8 dims, base 10000, positions 0 … 7", with the
+// scaling (method, factor, trained_length, current_length, ramp, factors)
+// and a magnitude other than 1 before the positions when set.
 func (p Problem) String() string {
 	r := p.Rotary
-	s := fmt.Sprintf("%d rows of %d, %v, %d dims rotated, base %g", p.Rows, r.Dim, r.Pairing, r.Rotated, r.Base)
+	rotated := r.Rotated
+	if rotated == 0 {
+		rotated = r.Dim
+	}
+	s := fmt.Sprintf("%d rows of %d, pairing %v, rotated %d of %d dims, base %g", p.Rows, r.Dim, r.Pairing, rotated, r.Dim, r.Base)
 	if sc := r.Scaling; sc.Method != posenc.NoScaling {
-		s += fmt.Sprintf(", %v factor %g", sc.Method, sc.Factor)
+		s += ", method " + sc.Method.String()
+		if sc.Factor != 0 {
+			s += fmt.Sprintf(", factor %g", sc.Factor)
+		}
 		if sc.TrainedLength > 0 {
-			s += fmt.Sprintf(" trained length %d", sc.TrainedLength)
+			s += fmt.Sprintf(", trained_length %d", sc.TrainedLength)
 		}
 		if sc.CurrentLength > 0 {
-			s += fmt.Sprintf(" current length %d", sc.CurrentLength)
+			s += fmt.Sprintf(", current_length %d", sc.CurrentLength)
 		}
 		if sc.Method == posenc.YaRN {
-			s += " " + sc.Ramp.String()
+			s += ", ramp " + sc.Ramp.String()
+		}
+		if sc.Factors != nil {
+			s += fmt.Sprintf(", factors %v", sc.Factors)
 		}
 	}
 	if r.Magnitude != 0 && r.Magnitude != 1 {
@@ -125,7 +139,7 @@ type Supports struct {
 
 // Kernel is a rotary kernel under test. Apply is required, Inverse
 // (the transposed rotation: the backward pass) optional.
-type Kernel[E ~float32 | ~float64] struct {
+type Kernel[E compare.Float] struct {
 	Apply   func(x []E, p Problem) ([]E, error)
 	Inverse func(x []E, p Problem) ([]E, error)
 	// Format is the number format of x and of the result: Float32 (the
@@ -220,8 +234,8 @@ func (s Supports) missing(p Problem) []string {
 }
 
 // Run runs every case of Cases against the kernel, as subtests named
-// case/pairing; see the package documentation for what is judged and how
-// closely.
+// case/pairing (the pairing's word); see the package documentation for
+// what is judged and how closely.
 //
 // Special cases are:
 //
@@ -231,35 +245,32 @@ func (s Supports) missing(p Problem) []string {
 //	the kernel returns an error           that subtest fails, quoting the error
 //	an output of the wrong length         that subtest fails, naming both lengths
 //	NaN or ±Inf in the reference          the kernel must give the same (NaN for NaN, the same infinity)
-func Run[T TB[T], E ~float32 | ~float64](t T, k Kernel[E]) {
+func Run[T conformance.TB[T], E compare.Float](t T, k Kernel[E]) {
 	t.Helper()
-	f, ok := suite.Start[T, E](t, "posenctest", k.Apply != nil, "Kernel.Apply is nil", k.Format)
-	if !ok {
-		return
-	}
-	pairings := k.Supports.Pairings
+	suite.Run[T, E](t, "posenctest", k.Apply != nil, "Kernel.Apply is nil", k.Format,
+		Cases(), func(c Case) string { return c.Name }, k.Supports.variants,
+		func(t T, f compare.Format, c Case, p Problem, r *rand.Rand) { runCase(t, k, f, c.Name, p, r) })
+}
+
+// variants poses a case once per declared pairing (PairAdjacent alone
+// when none is), each named by the pairing's word.
+func (s Supports) variants(c Case) []suite.Variant[Problem] {
+	pairings := s.Pairings
 	if len(pairings) == 0 {
 		pairings = []posenc.Pairing{posenc.PairAdjacent}
 	}
-	var subs []suite.Sub[T]
-	for _, c := range Cases() {
-		for _, pr := range pairings {
-			p := c.Problem
-			p.Rotary.Pairing = pr
-			name := c.Name + "/" + pr.String()
-			subs = append(subs, suite.Sub[T]{Case: c.Name, Variant: pr.String(), Run: func(t T) { runCase(t, k, f, c.Name, name, p) }})
-		}
+	vs := make([]suite.Variant[Problem], len(pairings))
+	for i, pr := range pairings {
+		p := c.Problem
+		p.Rotary.Pairing = pr
+		vs[i] = suite.Variant[Problem]{Name: pr.String(), Problem: p, Missing: s.missing(p)}
 	}
-	suite.RunAll(t, subs)
+	return vs
 }
 
-func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format, caseName, name string, p Problem) {
+func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.Format, caseName string, p Problem, r *rand.Rand) {
 	t.Helper()
-	if msg := suite.Missing(name, k.Supports.missing(p)); msg != "" {
-		t.Skipf("%s", msg)
-		return
-	}
-	x := f.RoundSlice(suite.Normal(suite.Rand(name), p.Rows*p.Rotary.Dim, 1))
+	x := f.RoundSlice(suite.Normal(r, p.Rows*p.Rotary.Dim, 1))
 	shape := []int{p.Rows, p.Rotary.Dim}
 	conv := p.String()
 	pos := posenc.Positions{List: p.Positions}
@@ -280,7 +291,7 @@ func runCase[T TB[T], E ~float32 | ~float64](t T, k Kernel[E], f compare.Format,
 			t.Errorf("case %s (%s): the reference refused the problem: %v", caseName, conv, err)
 			return
 		}
-		got, err := fn.kernel(suite.Convert[E](x), p)
+		got, err := fn.kernel(num.Convert[E](x), p)
 		if err != nil {
 			t.Errorf("case %s (%s): the kernel returned an error: %v", caseName, conv, err)
 			continue

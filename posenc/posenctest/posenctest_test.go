@@ -1,6 +1,7 @@
 package posenctest
 
 import (
+	"github.com/plumbref/plumb/conformance"
 	"math"
 	"strings"
 	"testing"
@@ -85,8 +86,8 @@ func plain(angle32, swap bool) func(x []float32, p Problem) ([]float32, error) {
 }
 
 // failures runs the suite on a recorder and lists the failed subtests.
-func failures(k Kernel[float32]) (*Recorder, []string) {
-	rec := &Recorder{}
+func failures(k Kernel[float32]) (*conformance.Recorder, []string) {
+	rec := &conformance.Recorder{}
 	Run(rec, k)
 	return rec, rec.Failures()
 }
@@ -98,8 +99,8 @@ var plainSupports = Supports{Pairings: []posenc.Pairing{posenc.PairAdjacent, pos
 func TestPlainFloat32(t *testing.T) {
 	rec, failed := failures(Kernel[float32]{Apply: plain(false, false), Supports: plainSupports})
 	assert.Empty(t, failed, rec.Text())
-	assert.Equal(t, "case ntk_aware_8/PairHalves skipped: it needs scaling method NTKAware (Methods), which the kernel does not declare in its Supports",
-		rec.Find("ntk_aware_8/PairHalves").Messages[0])
+	assert.Equal(t, "case ntk_aware_8/halves skipped: it needs scaling method ntk-aware (Methods), which the kernel does not declare in its Supports",
+		rec.Find("ntk_aware_8/halves").Messages[0])
 }
 
 // Angles formed in float32 are off by about m·2^−24 radians: the suite
@@ -107,21 +108,21 @@ func TestPlainFloat32(t *testing.T) {
 func TestCatchesFloat32Angles(t *testing.T) {
 	rec, failed := failures(Kernel[float32]{Apply: plain(true, false), Supports: plainSupports})
 	t.Logf("failed: %v", failed)
-	for _, name := range []string{"positions_to_4096/PairAdjacent", "positions_near_1e6/PairHalves"} {
+	for _, name := range []string{"positions_to_4096/adjacent", "positions_near_1e6/halves"} {
 		assert.Contains(t, failed, name)
 		assert.Contains(t, rec.Find(name).Messages[0], "rotated x differs from the reference")
 	}
-	assert.False(t, rec.Find("position_zero/PairAdjacent").Failed)
+	assert.False(t, rec.Find("position_zero/adjacent").Failed)
 }
 
 // Pairing dims the other way is caught in every case that rotates.
 func TestCatchesPairingSlip(t *testing.T) {
 	rec, failed := failures(Kernel[float32]{Apply: plain(false, true), Supports: plainSupports})
-	require.Contains(t, failed, "small/PairAdjacent")
-	msg := rec.Find("small/PairAdjacent").Messages[0]
-	assert.True(t, strings.HasPrefix(msg, "case small (8 rows of 8, PairAdjacent, 8 dims rotated, base 10000, positions 0 … 7): rotated x differs from the reference"), msg)
+	require.Contains(t, failed, "small/adjacent")
+	msg := rec.Find("small/adjacent").Messages[0]
+	assert.True(t, strings.HasPrefix(msg, "case small (8 rows of 8, pairing adjacent, rotated 8 of 8 dims, base 10000, positions 0 … 7): rotated x differs from the reference"), msg)
 	assert.Contains(t, msg, "worst element [row, dim]")
-	assert.NotContains(t, failed, "position_zero/PairAdjacent")
+	assert.NotContains(t, failed, "position_zero/adjacent")
 }
 
 // The package documentation lists every case, with its reason, in order.

@@ -16,6 +16,7 @@ Rules every family follows (see testdata/README.md):
 """
 
 import json
+import os
 import random
 from fractions import Fraction
 
@@ -24,6 +25,29 @@ from mpmath import mp
 
 DIGITS = 50
 mp.dps = DIGITS
+
+# Every convention's words, as the Go types define them: vocabulary.json is
+# written from the Go code (go test ./ops -run TestVocabularyFile -update),
+# and a Go test fails when it is out of date. The families spell every
+# convention word through word(), so a word the Go side renames or drops
+# stops the generator instead of writing a golden file no Go test can read.
+with open(os.path.join(os.path.dirname(os.path.abspath(__file__)), "vocabulary.json"), encoding="utf-8") as _f:
+    VOCABULARY = {c["name"]: [w["word"] for w in c["words"]] for c in json.load(_f)["conventions"]}
+
+
+def words(convention):
+    """Every word of a convention ("attention.GroupMap"), the default
+    (the Go zero value) first."""
+    if convention not in VOCABULARY:
+        raise SystemExit("no convention %r in vocabulary.json; known: %s" % (convention, ", ".join(sorted(VOCABULARY))))
+    return list(VOCABULARY[convention])
+
+
+def word(convention, text):
+    """text, checked to be one of the convention's words."""
+    if text not in words(convention):
+        raise SystemExit("%r is not a word of %s; its words: %s" % (text, convention, ", ".join(words(convention))))
+    return text
 
 
 def rng(seed):

@@ -8,9 +8,14 @@ float64 inputs:
     t_ij = scale * q_i . k_j, scale = 1/sqrt(d_k) unless given;
   * soft-capping (Bello et al. 2016, arXiv 1611.09940): t = c tanh(t / c);
   * additive bias, broadcast over batch and heads; ALiBi (Press et al.
-    2022, arXiv 2108.12409, Sec. 3): t -= m_h (p(i) - j), or |p(i) - j|;
-  * mask: hidden keys leave the softmax (Sec. 3.2.3); the visibility rules
-    are fam_mask's, written there from their definitions;
+    2022, arXiv 2108.12409, Sec. 3): t -= m_h d(p(i), j) with the distance
+    of the form: "causal" d = p(i) - j for every key (the paper's formula,
+    so keys after the query get a positive bias when a mask shows them),
+    "symmetric" d = |p(i) - j|, "past-only" d = max(p(i) - j, 0) (the last
+    two: common practice); under a causal mask all three agree;
+  * mask: hidden keys leave the softmax (Sec. 3.2.3); the mask is a list of
+    mask.Spec entries, intersected, and the visibility rules are fam_mask's,
+    written there from their definitions;
   * sink logits join the softmax denominator and carry no value;
   * grouped heads (Ainslie et al. 2023, arXiv 2305.13245, Sec. 2.2):
     contiguous groups ("blocks") or h mod H_kv ("cycle");
@@ -28,10 +33,23 @@ shared with the Go code.
 import mpmath
 from mpmath import mpf
 
-from common import case, ftensor, rng, uniform
+from common import case, ftensor, rng, uniform, word
 # The visibility rules are those of the mask family, written from their
 # definitions there (mask/doc.go); attention shares them, not the Go code.
-from fam_mask import pos, sees
+from fam_mask import (END, START, UNBOUNDED, BLOCK_CAUSAL, BLOCK_FULL, band, causal, full,
+                      key_padding, packed, pos, prefix, sees, window)
+
+# Every convention word is spelled as the Go types define it
+# (vocabulary.json); word() stops the generator on a word Go does not know.
+HEADS_MAJOR = word("attention.Layout", "heads-major")
+SEQ_MAJOR = word("attention.Layout", "seq-major")
+BLOCKS = word("attention.GroupMap", "blocks")
+CYCLE = word("attention.GroupMap", "cycle")
+EMPTY_ZERO = word("attention.EmptyRow", "zero")
+EMPTY_NAN = word("attention.EmptyRow", "nan")
+ALIBI_CAUSAL = word("mask.ALiBiForm", "causal")
+ALIBI_SYMMETRIC = word("mask.ALiBiForm", "symmetric")
+ALIBI_PAST_ONLY = word("mask.ALiBiForm", "past-only")
 
 SRC_SDPA = "Vaswani et al. 2017, arXiv 1706.03762, Sec. 3.2.1 Eq. (1), 3.2.2, 3.2.3"
 SRC_GQA = "Ainslie et al. 2023, arXiv 2305.13245, Sec. 2.2; Shazeer 2019, arXiv 1911.02150, Sec. 3"
@@ -46,7 +64,7 @@ NEG_INF = mpf("-inf")
 
 def idx(layout, b, h, i, H, L, D):
     """Offset of row (b, h, i) of a [B, H, L, D] tensor in the layout."""
-    if layout == "seq_major":
+    if layout == SEQ_MAJOR:
         return ((b * L + i) * H + h) * D
     return ((b * H + h) * L + i) * D
 
@@ -54,14 +72,27 @@ def idx(layout, b, h, i, H, L, D):
 def geometry(cfg):
     """The mask geometry of a case, in fam_mask's terms."""
     return {"batch": cfg["batch"], "lq": cfg["lq"], "lk": cfg["lk"],
-            "align": cfg.get("align", "end"), "offset": cfg.get("offset", 0)}
+            "align": cfg.get("align", END), "offset": cfg.get("offset", 0)}
 
 
 def kv_head(cfg, h):
     hq, hkv = cfg["heads_q"], cfg["heads_kv"]
-    if cfg.get("group", "blocks") == "cycle":
+    if cfg.get("group", BLOCKS) == CYCLE:
         return h % hkv
     return h // (hq // hkv)
+
+
+def alibi_distance(form, p, j):
+    """d(p, j) of the ALiBi bias -m d for the query at key position p and
+    key j (Press et al. 2022, Sec. 3, for keys up to the query; the forms
+    differ only after it)."""
+    if form == ALIBI_CAUSAL:
+        return p - j
+    if form == ALIBI_SYMMETRIC:
+        return abs(p - j)
+    if form == ALIBI_PAST_ONLY:
+        return max(p - j, 0)
+    raise ValueError(form)
 
 
 def attend(cfg, ins):
@@ -69,17 +100,20 @@ def attend(cfg, ins):
     mpf lists (rounded later by ftensor)."""
     B, Hq, Hkv = cfg["batch"], cfg["heads_q"], cfg["heads_kv"]
     Lq, Lk, Dk, Dv = cfg["lq"], cfg["lk"], cfg["dk"], cfg["dv"]
-    lay = cfg.get("layout", "heads_major")
+    lay = cfg.get("layout", HEADS_MAJOR)
     scale = mpf(cfg["scale"]) if "scale" in cfg else 1 / mpmath.sqrt(Dk)
     cap = mpf(cfg.get("soft_cap", 0))
-    msk = cfg.get("mask", {"kind": "full"})
+    msk = cfg.get("mask", [])
     geo = geometry(cfg)
-    nan_rows = cfg.get("empty_row", "zero") == "nan"
+    nan_rows = cfg.get("empty_row", EMPTY_ZERO) == EMPTY_NAN
     q, k, v, do = ins["q"], ins["k"], ins["v"], ins["d_out"]
     dl = ins.get("d_lse")
     bias, slopes, sinks = ins.get("bias"), ins.get("slopes"), ins.get("sinks")
     bb, bh = cfg.get("bias_batch", 1), cfg.get("bias_heads", 1)
-    sym = cfg.get("alibi", "causal") == "symmetric"
+    # Every ALiBi case names its form; a form without slopes means nothing.
+    form = cfg["alibi_form"] if slopes is not None else None
+    if slopes is None and "alibi_form" in cfg:
+        raise ValueError("alibi_form without slopes")
 
     out = [mpf(0)] * (B * Hq * Lq * Dv)
     lse = [mpf(0)] * (B * Hq * Lq)
@@ -112,8 +146,7 @@ def attend(cfg, ins):
                     if brow is not None:
                         x += mpf(bias[brow + j])
                     if slopes is not None:
-                        dist = abs(p - j) if sym else p - j
-                        x -= mpf(slopes[h]) * dist
+                        x -= mpf(slopes[h]) * alibi_distance(form, p, j)
                     if x == NEG_INF:
                         continue  # a -inf bias hides the key too
                     t[j] = x
@@ -176,7 +209,7 @@ def attend(cfg, ins):
 def shapes(cfg):
     B, Hq, Hkv = cfg["batch"], cfg["heads_q"], cfg["heads_kv"]
     Lq, Lk, Dk, Dv = cfg["lq"], cfg["lk"], cfg["dk"], cfg["dv"]
-    if cfg.get("layout", "heads_major") == "seq_major":
+    if cfg.get("layout", HEADS_MAJOR) == SEQ_MAJOR:
         sq, sk, sv, so, sl = [B, Lq, Hq, Dk], [B, Lk, Hkv, Dk], [B, Lk, Hkv, Dv], [B, Lq, Hq, Dv], [B, Lq, Hq]
     else:
         sq, sk, sv, so, sl = [B, Hq, Lq, Dk], [B, Hkv, Lk, Dk], [B, Hkv, Lk, Dv], [B, Hq, Lq, Dv], [B, Hq, Lq]
@@ -244,13 +277,13 @@ def build_basic():
                   v=[1.0, 2.0, 3.0, 4.0]))
     c.append(make("mha_b1_h1_l4_d4", SRC_SDPA, shape(1, 1, 1, 4, 4, 4, 4), 2))
     c.append(make("mha_b2_h2_l5_d4_heads_major", SRC_SDPA, shape(2, 2, 2, 5, 5, 4, 4), 3, d_lse=True))
-    c.append(make("mha_b2_h2_l5_d4_seq_major", SRC_SDPA, shape(2, 2, 2, 5, 5, 4, 4, layout="seq_major"), 3, d_lse=True))
+    c.append(make("mha_b2_h2_l5_d4_seq_major", SRC_SDPA, shape(2, 2, 2, 5, 5, 4, 4, layout=SEQ_MAJOR), 3, d_lse=True))
     c.append(make("scale_given", SRC_SDPA, shape(1, 2, 2, 4, 4, 4, 4, scale=0.3), 4))
     c.append(make("dk_1", SRC_SDPA, shape(1, 2, 2, 4, 4, 1, 3), 5, d_lse=True))
     c.append(make("lq_1_lk_1", SRC_SDPA, shape(2, 2, 2, 1, 1, 3, 3), 6, d_lse=True))
     c.append(make("dv_5_dk_3", SRC_SDPA, shape(1, 2, 2, 4, 4, 3, 5), 7))
     c.append(make("cross_lq3_lk6", SRC_SDPA, shape(2, 1, 1, 3, 6, 4, 2), 8, d_lse=True))
-    c.append(make("cross_lq6_lk3", SRC_SDPA, shape(1, 2, 1, 6, 3, 4, 2, layout="seq_major"), 9))
+    c.append(make("cross_lq6_lk3", SRC_SDPA, shape(1, 2, 1, 6, 3, 4, 2, layout=SEQ_MAJOR), 9))
     # logits near +1000 and -1000, where e^s overflows or underflows in
     # float64 unless the maximum is subtracted first. scale = 1 is exact.
     c.append(make("logits_near_plus_1000", SRC_SDPA, shape(1, 1, 1, 3, 4, 2, 3, scale=1.0), 10,
@@ -270,24 +303,24 @@ def build_basic():
 def build_masks():
     c = []
     src = SRC_SDPA + "; " + SRC_MASK
-    c.append(make("causal_square", src, shape(1, 2, 2, 5, 5, 3, 3, mask={"kind": "causal"}), 20, d_lse=True))
-    c.append(make("causal_lq3_lk6_align_end", src, shape(1, 1, 1, 3, 6, 3, 2, mask={"kind": "causal"}), 21))
-    c.append(make("causal_lq3_lk6_align_start", src, shape(1, 1, 1, 3, 6, 3, 2, mask={"kind": "causal"}, align="start"), 22))
-    c.append(make("causal_align_start_offset_2", src, shape(1, 1, 1, 3, 6, 3, 2, mask={"kind": "causal"}, align="start", offset=2), 23, d_lse=True))
-    c.append(make("window_3", src, shape(1, 2, 2, 7, 7, 3, 3, mask={"kind": "window", "n": 3}), 24))
-    c.append(make("band_1_2", src, shape(1, 1, 1, 6, 6, 3, 3, mask={"kind": "band", "before": 1, "after": 2}), 25))
-    c.append(make("prefix_3", src, shape(1, 1, 1, 6, 6, 3, 3, mask={"kind": "prefix", "p": 3}), 26))
-    c.append(make("key_padding", src, shape(2, 2, 2, 3, 5, 3, 3, mask={"kind": "padding", "valid": [5, 2]}), 27, d_lse=True))
-    c.append(make("packed_causal", src, shape(1, 2, 2, 7, 7, 3, 3, mask={"kind": "packed", "offsets": [0, 3, 7], "block": "causal"}), 28))
-    c.append(make("packed_full", src, shape(1, 1, 1, 7, 7, 3, 3, mask={"kind": "packed", "offsets": [0, 2, 5, 7], "block": "full"}), 29))
-    c.append(make("intersect_causal_padding", src, shape(2, 1, 1, 5, 5, 3, 3, mask={"kind": "intersect", "parts": [{"kind": "causal"}, {"kind": "padding", "valid": [5, 3]}]}), 30))
-    pad0 = {"kind": "padding", "valid": [0, 3]}
+    c.append(make("causal_square", src, shape(1, 2, 2, 5, 5, 3, 3, mask=[causal()]), 20, d_lse=True))
+    c.append(make("causal_lq3_lk6_align_end", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[causal()]), 21))
+    c.append(make("causal_lq3_lk6_align_start", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[causal()], align=START), 22))
+    c.append(make("causal_align_start_offset_2", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[causal()], align=START, offset=2), 23, d_lse=True))
+    c.append(make("window_3", src, shape(1, 2, 2, 7, 7, 3, 3, mask=[window(3)]), 24))
+    c.append(make("band_1_2", src, shape(1, 1, 1, 6, 6, 3, 3, mask=[band(1, 2)]), 25))
+    c.append(make("prefix_3", src, shape(1, 1, 1, 6, 6, 3, 3, mask=[prefix(3)]), 26))
+    c.append(make("key_padding", src, shape(2, 2, 2, 3, 5, 3, 3, mask=[key_padding([5, 2])]), 27, d_lse=True))
+    c.append(make("packed_causal", src, shape(1, 2, 2, 7, 7, 3, 3, mask=[packed([0, 3, 7], BLOCK_CAUSAL)]), 28))
+    c.append(make("packed_full", src, shape(1, 1, 1, 7, 7, 3, 3, mask=[packed([0, 2, 5, 7], BLOCK_FULL)]), 29))
+    c.append(make("intersect_causal_padding", src, shape(2, 1, 1, 5, 5, 3, 3, mask=[causal(), key_padding([5, 3])]), 30))
+    pad0 = [key_padding([0, 3])]
     c.append(make("empty_rows_zero", src, shape(2, 2, 2, 3, 4, 3, 3, mask=pad0), 31, d_lse=True))
-    c.append(make("empty_rows_nan", src, shape(2, 2, 2, 3, 4, 3, 3, mask=pad0, empty_row="nan"), 31, d_lse=True))
+    c.append(make("empty_rows_nan", src, shape(2, 2, 2, 3, 4, 3, 3, mask=pad0, empty_row=EMPTY_NAN), 31, d_lse=True))
     c.append(make("lk_0", src, shape(1, 2, 2, 3, 0, 3, 2), 32))
-    win_pad = {"kind": "intersect", "parts": [{"kind": "window", "n": 2}, {"kind": "padding", "valid": [2]}]}
+    win_pad = [window(2), key_padding([2])]
     c.append(make("window_padding_some_rows_empty", src, shape(1, 1, 1, 5, 5, 3, 3, mask=win_pad), 33))
-    c.append(make("window_padding_some_rows_nan", src, shape(1, 1, 1, 5, 5, 3, 3, mask=win_pad, empty_row="nan"), 33))
+    c.append(make("window_padding_some_rows_nan", src, shape(1, 1, 1, 5, 5, 3, 3, mask=win_pad, empty_row=EMPTY_NAN), 33))
     return c
 
 
@@ -295,10 +328,10 @@ def build_grouped():
     c = []
     src = SRC_SDPA + "; " + SRC_GQA
     c.append(make("gqa_blocks_h4_kv2", src, shape(1, 4, 2, 4, 4, 3, 3), 40, d_lse=True))
-    c.append(make("gqa_cycle_h4_kv2", src, shape(1, 4, 2, 4, 4, 3, 3, group="cycle"), 40, d_lse=True))
-    c.append(make("mqa_h4_kv1", src, shape(2, 4, 1, 3, 4, 3, 2, mask={"kind": "causal"}), 41))
-    c.append(make("gqa_blocks_h6_kv3_seq_major", src, shape(1, 6, 3, 3, 5, 2, 3, layout="seq_major"), 42))
-    c.append(make("gqa_cycle_h6_kv2_seq_major_causal", src, shape(1, 6, 2, 4, 4, 2, 2, layout="seq_major", group="cycle", mask={"kind": "causal"}), 43))
+    c.append(make("gqa_cycle_h4_kv2", src, shape(1, 4, 2, 4, 4, 3, 3, group=CYCLE), 40, d_lse=True))
+    c.append(make("mqa_h4_kv1", src, shape(2, 4, 1, 3, 4, 3, 2, mask=[causal()]), 41))
+    c.append(make("gqa_blocks_h6_kv3_seq_major", src, shape(1, 6, 3, 3, 5, 2, 3, layout=SEQ_MAJOR), 42))
+    c.append(make("gqa_cycle_h6_kv2_seq_major_causal", src, shape(1, 6, 2, 4, 4, 2, 2, layout=SEQ_MAJOR, group=CYCLE, mask=[causal()]), 43))
     return c
 
 
@@ -313,16 +346,34 @@ def build_extras():
     bias = [0.5, ninf, -1.0, 0.25, ninf, ninf, ninf, ninf, 1.0, 0.0, ninf, -0.5]
     c.append(make("bias_minus_inf_hides", src, shape(1, 1, 1, 3, 4, 3, 3, bias_batch=1, bias_heads=1), 54, bias=bias, d_lse=True))
     slopes4 = [0.5, 0.25, 0.125, 0.0625]  # 2^(-8k/8), k = 1..4 of 8 heads [paper]
-    c.append(make("alibi_causal", src + "; " + SRC_ALIBI, shape(1, 4, 4, 6, 6, 3, 3, mask={"kind": "causal"}), 55, slopes=slopes4, d_lse=True))
-    c.append(make("alibi_symmetric_full", src + "; " + SRC_ALIBI, shape(1, 4, 4, 5, 5, 3, 3, alibi="symmetric"), 56, slopes=slopes4))
-    c.append(make("alibi_causal_lq2_lk6", src + "; " + SRC_ALIBI, shape(1, 2, 2, 2, 6, 3, 3, mask={"kind": "causal"}), 57, slopes=[0.7, 1.5]))
+    c.append(make("alibi_causal", src + "; " + SRC_ALIBI, shape(1, 4, 4, 6, 6, 3, 3, mask=[causal()], alibi_form=ALIBI_CAUSAL), 55, slopes=slopes4, d_lse=True))
+    c.append(make("alibi_symmetric_full", src + "; " + SRC_ALIBI, shape(1, 4, 4, 5, 5, 3, 3, alibi_form=ALIBI_SYMMETRIC), 56, slopes=slopes4))
+    c.append(make("alibi_causal_lq2_lk6", src + "; " + SRC_ALIBI, shape(1, 2, 2, 2, 6, 3, 3, mask=[causal()], alibi_form=ALIBI_CAUSAL), 57, slopes=[0.7, 1.5]))
+    # Keys after the query, which the paper's causal model never shows: the
+    # three forms differ there. The same inputs under each form.
+    band12 = shape(1, 4, 4, 6, 6, 3, 3, mask=[band(1, 2)])
+    c.append(make("alibi_causal_band_1_2", src + "; " + SRC_ALIBI + "; the formula applied to every key; " + SRC_MASK,
+                  dict(band12, alibi_form=ALIBI_CAUSAL), 63, slopes=slopes4, d_lse=True))
+    c.append(make("alibi_symmetric_band_1_2", src + "; " + SRC_ALIBI + "; symmetric form: common practice; " + SRC_MASK,
+                  dict(band12, alibi_form=ALIBI_SYMMETRIC), 63, slopes=slopes4, d_lse=True))
+    c.append(make("alibi_past_only_band_1_2", src + "; " + SRC_ALIBI + "; past-only form: common practice; " + SRC_MASK,
+                  dict(band12, alibi_form=ALIBI_PAST_ONLY), 63, slopes=slopes4, d_lse=True))
+    c.append(make("alibi_past_only_full_lq3_lk5", src + "; " + SRC_ALIBI + "; past-only form: common practice",
+                  shape(1, 4, 4, 3, 5, 3, 3, mask=[full()], alibi_form=ALIBI_PAST_ONLY), 64, slopes=slopes4, d_lse=True))
+    # Under a causal mask every form is the paper's: the inputs of
+    # alibi_causal, so the numbers are the same.
+    c.append(make("alibi_past_only_causal", src + "; " + SRC_ALIBI + "; past-only form: common practice",
+                  shape(1, 4, 4, 6, 6, 3, 3, mask=[causal()], alibi_form=ALIBI_PAST_ONLY), 55, slopes=slopes4, d_lse=True))
+    c.append(make("alibi_causal_band_unbounded_start", src + "; " + SRC_ALIBI + "; the formula applied to every key; " + SRC_MASK,
+                  shape(1, 2, 2, 3, 6, 3, 3, mask=[band(UNBOUNDED, 2)], align=START, offset=1, alibi_form=ALIBI_CAUSAL), 65,
+                  slopes=[0.7, 1.5], d_lse=True))
     c.append(make("soft_cap_1_5", src + "; " + SRC_CAP, shape(1, 2, 2, 4, 4, 4, 4, soft_cap=1.5, scale=1.0), 58, qk_range=(-1.5, 1.5), d_lse=True))
     c.append(make("soft_cap_30_logits_near_100", src + "; " + SRC_CAP, shape(1, 1, 1, 3, 4, 2, 2, soft_cap=30.0, scale=1.0), 59, qk_range=(6.0, 8.0)))
     c.append(make("sinks", src + "; " + SRC_SINK, shape(1, 3, 3, 4, 4, 3, 3), 60, sinks=True, d_lse=True))
     c.append(make("sinks_with_empty_rows", src + "; " + SRC_SINK + "; " + SRC_MASK,
-                  shape(2, 2, 2, 3, 4, 3, 3, mask={"kind": "padding", "valid": [0, 3]}), 61, sinks=[0.5, ninf], d_lse=True))
+                  shape(2, 2, 2, 3, 4, 3, 3, mask=[key_padding([0, 3])]), 61, sinks=[0.5, ninf], d_lse=True))
     c.append(make("soft_cap_and_sinks", src + "; " + SRC_CAP + "; " + SRC_SINK,
-                  shape(1, 2, 2, 5, 5, 3, 3, soft_cap=2.0, mask={"kind": "causal"}), 62, qk_range=(-2.0, 2.0), sinks=True, d_lse=True))
+                  shape(1, 2, 2, 5, 5, 3, 3, soft_cap=2.0, mask=[causal()]), 62, qk_range=(-2.0, 2.0), sinks=True, d_lse=True))
     return c
 
 
@@ -330,21 +381,21 @@ def build_combined():
     c = []
     src = "; ".join([SRC_SDPA, SRC_GQA, SRC_ALIBI, SRC_MASK])
     slopes = [0.5, 0.25, 0.125, 0.0625]
-    c.append(make("gqa_window_alibi", src, shape(1, 4, 2, 7, 7, 3, 3, mask={"kind": "window", "n": 3}), 70, slopes=slopes, d_lse=True))
-    c.append(make("gqa_cycle_window_alibi_seq_major", src, shape(2, 4, 2, 6, 6, 2, 3, layout="seq_major", group="cycle", mask={"kind": "window", "n": 4}), 71, slopes=slopes))
-    c.append(make("decode_lq1_lk9", src, shape(1, 4, 2, 1, 9, 4, 4, mask={"kind": "causal"}), 72, slopes=slopes, d_lse=True))
-    c.append(make("chunked_prefill_lq3_lk8_window", src, shape(1, 2, 1, 3, 8, 3, 3, mask={"kind": "window", "n": 4}), 73))
-    c.append(make("packed_alibi_bias", src, shape(1, 2, 2, 6, 6, 3, 3, mask={"kind": "packed", "offsets": [0, 4, 6], "block": "causal"}, bias_batch=1, bias_heads=2), 74,
+    c.append(make("gqa_window_alibi", src, shape(1, 4, 2, 7, 7, 3, 3, mask=[window(3)], alibi_form=ALIBI_CAUSAL), 70, slopes=slopes, d_lse=True))
+    c.append(make("gqa_cycle_window_alibi_seq_major", src, shape(2, 4, 2, 6, 6, 2, 3, layout=SEQ_MAJOR, group=CYCLE, mask=[window(4)], alibi_form=ALIBI_CAUSAL), 71, slopes=slopes))
+    c.append(make("decode_lq1_lk9", src, shape(1, 4, 2, 1, 9, 4, 4, mask=[causal()], alibi_form=ALIBI_CAUSAL), 72, slopes=slopes, d_lse=True))
+    c.append(make("chunked_prefill_lq3_lk8_window", src, shape(1, 2, 1, 3, 8, 3, 3, mask=[window(4)]), 73))
+    c.append(make("packed_alibi_bias", src, shape(1, 2, 2, 6, 6, 3, 3, mask=[packed([0, 4, 6], BLOCK_CAUSAL)], bias_batch=1, bias_heads=2, alibi_form=ALIBI_CAUSAL), 74,
                   slopes=[0.25, 0.5], bias=True))
     src_all = src + "; " + SRC_CAP + "; " + SRC_SINK
     c.append(make("everything", src_all,
-                  shape(2, 4, 2, 5, 7, 3, 4, layout="seq_major", group="cycle", soft_cap=3.0,
-                        mask={"kind": "intersect", "parts": [{"kind": "window", "n": 4}, {"kind": "padding", "valid": [7, 5]}]},
-                        bias_batch=1, bias_heads=4),
+                  shape(2, 4, 2, 5, 7, 3, 4, layout=SEQ_MAJOR, group=CYCLE, soft_cap=3.0,
+                        mask=[window(4), key_padding([7, 5])],
+                        bias_batch=1, bias_heads=4, alibi_form=ALIBI_CAUSAL),
                   75, slopes=slopes, sinks=True, bias=True, d_lse=True, qk_range=(-2.0, 2.0)))
     c.append(make("everything_nan_rows", src_all,
-                  shape(2, 2, 1, 4, 4, 2, 2, group="cycle", soft_cap=3.0, empty_row="nan",
-                        mask={"kind": "padding", "valid": [4, 0]}, bias_batch=2, bias_heads=1),
+                  shape(2, 2, 1, 4, 4, 2, 2, group=CYCLE, soft_cap=3.0, empty_row=EMPTY_NAN,
+                        mask=[key_padding([4, 0])], bias_batch=2, bias_heads=1, alibi_form=ALIBI_CAUSAL),
                   76, slopes=[0.5, 0.25], sinks=[0.5, float("-inf")], bias=True, d_lse=True))
     return c
 

@@ -28,7 +28,16 @@ import math
 import random
 from fractions import Fraction
 
-from common import case, ftensor, itensor
+from common import case, ftensor, itensor, word
+
+# The words of compare.Format (testdata/gen/vocabulary.json): the config of
+# each case names its format by its word, under the key "format".
+FLOAT64 = word("compare.Format", "float64")
+FLOAT32 = word("compare.Format", "float32")
+BINARY16 = word("compare.Format", "binary16")
+BFLOAT16 = word("compare.Format", "bfloat16")
+E4M3 = word("compare.Format", "e4m3")
+E5M2 = word("compare.Format", "e5m2")
 
 SOURCE_IEEE = ("IEEE 754-2019 §3.6 table 3.5 (formats), §4.3.1 roundTiesToEven, "
                "§7.4 overflow")
@@ -38,14 +47,19 @@ SOURCE_OFP8 = ("OCP 8-bit Floating Point Specification (OFP8), 2023: formats E4M
 SOURCE_BF16 = ("bfloat16 (no formal standard): 1 sign, 8 exponent, 7 fraction bits, "
                "bias 127, IEEE 754-2019 rules for rounding and special values")
 
-# name: (exponent bits, fraction bits, IEEE layout, source)
+# word: (exponent bits, fraction bits, IEEE layout, source). These five
+# draw their inputs in this order from one generator (seed 20260601).
 FORMATS = [
-    ("float32", 8, 23, True, SOURCE_IEEE),
-    ("binary16", 5, 10, True, SOURCE_IEEE),
-    ("bfloat16", 8, 7, True, SOURCE_BF16),
-    ("e4m3", 4, 3, False, SOURCE_OFP8),
-    ("e5m2", 5, 2, True, SOURCE_OFP8),
+    (FLOAT32, 8, 23, True, SOURCE_IEEE),
+    (BINARY16, 5, 10, True, SOURCE_IEEE),
+    (BFLOAT16, 8, 7, True, SOURCE_BF16),
+    (E4M3, 4, 3, False, SOURCE_OFP8),
+    (E5M2, 5, 2, True, SOURCE_OFP8),
 ]
+# binary64 itself, with its own generator (seed 20261202): rounding is the
+# identity there, but the case checks the encoding, the ULP and the
+# saturation of ±Inf on every kind of float64 value.
+FLOAT64_FORMAT = (FLOAT64, 11, 52, True, SOURCE_IEEE)
 
 
 class Fmt:
@@ -179,23 +193,59 @@ def inputs_for(fm, r):
     return xs
 
 
+def inputs_float64(fm, r):
+    """Inputs for binary64: the special values, the values of fm.values()
+    (subnormals, and the first, middle and last values of every binade) of
+    both signs with their float64 neighbours, the boundaries of the
+    subnormal and overflow ranges, and random values across the exponent
+    range. Every float64 is a value of the format, so there are no
+    midpoints to test."""
+    xs = [0.0, -0.0, math.inf, -math.inf, math.nan, 1.0, -1.0]
+    vals = fm.values()
+    picks = sorted(set(r.sample(range(len(vals)), 40)) | {0, 1, len(vals) - 1})
+    for i in picks:
+        a = f64(vals[i])
+        xs += [a, -a, math.nextafter(a, 0.0), math.nextafter(a, math.inf)]
+    mn = f64(fm.min_sub)
+    xs += [mn, -mn, 2 * mn, math.ldexp(1.0, fm.emin), math.nextafter(math.ldexp(1.0, fm.emin), 0.0)]
+    mx = f64(fm.max)
+    xs += [mx, -mx, math.nextafter(mx, 0.0), -math.nextafter(mx, 0.0), 1e300, -1e300]
+    for _ in range(60):
+        e = r.randint(fm.emin - fm.fbits, fm.emax)
+        x = math.ldexp(1.0 + r.random(), e)
+        xs.append(-x if r.random() < 0.5 else x)
+    return xs
+
+
+def signed64(b):
+    """A 64-bit pattern as the signed integer with the same two's-complement
+    bits: the golden loader reads int tensors as int64, and the patterns of
+    negative float64 values are at least 2^63."""
+    return b - 2 ** 64 if b >= 2 ** 63 else b
+
+
+def round_case(fm, src, xs):
+    rounded = [fm.round(x, False) for x in xs]
+    sat = [fm.round(x, True) for x in xs]
+    return case(
+        "round_" + fm.name, src,
+        {"format": fm.name},
+        {"x": ftensor(xs, [len(xs)])},
+        {"rounded": ftensor(rounded, [len(xs)]),
+         "saturated": ftensor(sat, [len(xs)]),
+         "bits": itensor([signed64(fm.bits(v)) for v in rounded], [len(xs)]),
+         "bits_saturated": itensor([signed64(fm.bits(v)) for v in sat], [len(xs)]),
+         "ulp": ftensor([fm.ulp(x) for x in xs], [len(xs)])})
+
+
 def build():
+    name, ebits, fbits, ieee, src = FLOAT64_FORMAT
+    fm = Fmt(name, ebits, fbits, ieee)
+    cases = [round_case(fm, src, inputs_float64(fm, random.Random(20261202)))]
     r = random.Random(20260601)
-    cases = []
     for name, ebits, fbits, ieee, src in FORMATS:
         fm = Fmt(name, ebits, fbits, ieee)
-        xs = inputs_for(fm, r)
-        rounded = [fm.round(x, False) for x in xs]
-        sat = [fm.round(x, True) for x in xs]
-        cases.append(case(
-            "round_" + name, src,
-            {"format": name},
-            {"x": ftensor(xs, [len(xs)])},
-            {"rounded": ftensor(rounded, [len(xs)]),
-             "saturated": ftensor(sat, [len(xs)]),
-             "bits": itensor([fm.bits(v) for v in rounded], [len(xs)]),
-             "bits_saturated": itensor([fm.bits(v) for v in sat], [len(xs)]),
-             "ulp": ftensor([fm.ulp(x) for x in xs], [len(xs)])}))
+        cases.append(round_case(fm, src, inputs_for(fm, r)))
     return cases
 
 

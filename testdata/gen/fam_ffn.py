@@ -19,7 +19,32 @@ point where the function is differentiable.
 import mpmath
 from mpmath import mp, mpf
 
-from common import btensor, case, ftensor, itensor, rng, to_f64, uniform  # noqa: F401
+from common import btensor, case, ftensor, itensor, rng, to_f64, uniform, word  # noqa: F401
+
+# The words of the Go conventions (testdata/gen/vocabulary.json). Configs
+# hold them under the keys of the operations (ops/ffn.go): "function" and
+# "beta" for an activation, "activation", "beta", "gated", "layout" and
+# "packing" for a layer. Case names keep their older spellings (LABEL).
+RELU = word("ffn.Act", "relu")
+GELU = word("ffn.Act", "gelu")
+GELU_TANH = word("ffn.Act", "gelu-tanh")
+GELU_SIGMOID = word("ffn.Act", "gelu-sigmoid")
+SIGMOID = word("ffn.Act", "sigmoid")
+SILU = word("ffn.Act", "silu")
+SWISH = word("ffn.Act", "swish")
+IDENTITY = word("ffn.Act", "identity")
+IN_BY_OUT = word("ffn.Layout", "in-by-out")
+OUT_BY_IN = word("ffn.Layout", "out-by-in")
+STACKED = word("ffn.Packing", "stacked")
+INTERLEAVED = word("ffn.Packing", "interleaved")
+
+LABEL = {GELU_TANH: "gelu_tanh", GELU_SIGMOID: "gelu_sigmoid",
+         IN_BY_OUT: "in_by_out", OUT_BY_IN: "out_by_in"}
+
+
+def label(w):
+    """The spelling of a word in case names."""
+    return LABEL.get(w, w)
 
 SRC_GELU = "Hendrycks & Gimpel 2016, Gaussian Error Linear Units (GELUs), arXiv 1606.08415, sec. 2"
 SRC_SWISH = "Ramachandran et al. 2017, Searching for Activation Functions, arXiv 1710.05941"
@@ -28,6 +53,8 @@ SRC_SIGMOID = "logistic function 1/(1+e^-x)"
 SRC_RELU = "max(0, x); Vaswani et al. 2017, arXiv 1706.03762, Eq. 2; derivative at 0 taken as 0 (common practice)"
 SRC_FFN = "Vaswani et al. 2017, Attention Is All You Need, arXiv 1706.03762, sec. 3.3 Eq. 2; backward by the chain rule"
 SRC_GLU = "Shazeer 2020, GLU Variants Improve Transformer, arXiv 2002.05202, Eq. 4-6; backward by the chain rule"
+SRC_IDENTITY = ("identity, phi(x) = x: the activation of the Bilinear unit of Shazeer 2020, "
+                "GLU Variants Improve Transformer, arXiv 2002.05202, sec. 2")
 SRC_HIDDEN = "common practice: h = m * ceil((2/3 * 4d) / m) (Shazeer 2020, arXiv 2002.05202, sec. 2, for the 2/3)"
 
 
@@ -51,34 +78,34 @@ def tanh_u(x):
     return mpmath.sqrt(2 / mpmath.pi) * (x + K_CUBIC * x ** 3)
 
 
-# name -> (value, derivative, source); beta-parametrised ones take beta.
+# word -> (value, derivative, source); beta-parametrised ones take beta.
 def acts(beta):
     return {
-        "identity": (lambda x: x, lambda x: mpf(1), "identity"),
-        "relu": (lambda x: x if x > 0 else mpf(0),
-                 lambda x: mpf(1) if x > 0 else mpf(0), SRC_RELU),
-        "sigmoid": (sig, lambda x: sig(x) * sig(-x), SRC_SIGMOID),
-        "silu": (lambda x: x * sig(x),
-                 lambda x: sig(x) + x * sig(x) * sig(-x), SRC_SILU),
-        "swish": (lambda x: x * sig(beta * x),
-                  lambda x: sig(beta * x) + beta * x * sig(beta * x) * sig(-beta * x), SRC_SWISH),
-        "gelu": (lambda x: x * Phi(x),
-                 lambda x: Phi(x) + x * phi_n(x), SRC_GELU + ", exact form x*Phi(x)"),
+        IDENTITY: (lambda x: x, lambda x: mpf(1), SRC_IDENTITY),
+        RELU: (lambda x: x if x > 0 else mpf(0),
+               lambda x: mpf(1) if x > 0 else mpf(0), SRC_RELU),
+        SIGMOID: (sig, lambda x: sig(x) * sig(-x), SRC_SIGMOID),
+        SILU: (lambda x: x * sig(x),
+               lambda x: sig(x) + x * sig(x) * sig(-x), SRC_SILU),
+        SWISH: (lambda x: x * sig(beta * x),
+                lambda x: sig(beta * x) + beta * x * sig(beta * x) * sig(-beta * x), SRC_SWISH),
+        GELU: (lambda x: x * Phi(x),
+               lambda x: Phi(x) + x * phi_n(x), SRC_GELU + ", exact form x*Phi(x)"),
         # 1/2 x (1 + tanh u) = x / (1 + e^{-2u})
-        "gelu_tanh": (lambda x: x / (1 + mpmath.exp(-2 * tanh_u(x))),
-                      lambda x: sig(2 * tanh_u(x)) + x * sig(2 * tanh_u(x)) * sig(-2 * tanh_u(x)) * 2
-                      * mpmath.sqrt(2 / mpmath.pi) * (1 + 3 * K_CUBIC * x * x),
-                      SRC_GELU + ", tanh approximation"),
-        "gelu_sigmoid": (lambda x: x * sig(K_SIG * x),
-                         lambda x: sig(K_SIG * x) + K_SIG * x * sig(K_SIG * x) * sig(-K_SIG * x),
-                         SRC_GELU + ", sigmoid approximation x*sigma(1.702x)"),
+        GELU_TANH: (lambda x: x / (1 + mpmath.exp(-2 * tanh_u(x))),
+                    lambda x: sig(2 * tanh_u(x)) + x * sig(2 * tanh_u(x)) * sig(-2 * tanh_u(x)) * 2
+                    * mpmath.sqrt(2 / mpmath.pi) * (1 + 3 * K_CUBIC * x * x),
+                    SRC_GELU + ", tanh approximation"),
+        GELU_SIGMOID: (lambda x: x * sig(K_SIG * x),
+                       lambda x: sig(K_SIG * x) + K_SIG * x * sig(K_SIG * x) * sig(-K_SIG * x),
+                       SRC_GELU + ", sigmoid approximation x*sigma(1.702x)"),
     }
 
 
 def checked_deriv(f, df, x, name):
     """df(x), after checking it against mpmath.diff to 40 digits."""
     d = df(x)
-    if name == "relu" and abs(x) < mpf("1e-3"):
+    if name == RELU and abs(x) < mpf("1e-3"):
         return d  # the kink at 0 lies within the numerical step
     with mp.workdps(mp.dps + 30):
         num = mpmath.diff(f, x)
@@ -111,32 +138,56 @@ def tail_inputs(seed, scale):
     return xs
 
 
+def far_inputs(seed, scale):
+    """Inputs with |t| > 30 for t = scale * x, beyond the tails: where the
+    tanh approximation of GELU has saturated (the Go code returns x and its
+    slope 1 for t >= 30, a signed zero for t <= -30), and where every other
+    activation is within a rounding of x, 1 or 0. Every value and slope here
+    is either 0 or a normal float64 (no subnormal result, whose relative
+    accuracy would be that of a few bits): the exact GELU underflows
+    through the subnormals for t between about -37 and -38.5, and the
+    sigmoids' e^{-t} for t between about 708 and 745, so the random inputs
+    stay in 30 < |t| <= 36 and the fixed ones skip those ranges."""
+    r = rng(seed)
+    xs = []
+    for k in (30.5, 31.0, 32.0, 33.0, 35.0, 36.0, 40.0, 50.0, 100.0, 1000.0):
+        xs += [k / scale, -k / scale]
+    xs += uniform(r, 6, 30.0 / scale, 36.0 / scale) + uniform(r, 6, -36.0 / scale, -30.0 / scale)
+    return xs
+
+
+# (activation word, Swish beta or None), in the order that fixes the seeds:
+# case n draws its core inputs with seed 100 + n, its tail with 200 + n and
+# the inputs beyond the tail with 300 + n.
 ACT_CASES = [
-    ("relu", None), ("sigmoid", None), ("silu", None), ("gelu", None),
-    ("gelu_tanh", None), ("gelu_sigmoid", None),
-    ("swish", 1.0), ("swish", 1.5), ("swish", 0.25), ("swish", -0.7), ("swish", 0.0),
+    (RELU, None), (SIGMOID, None), (SILU, None), (GELU, None),
+    (GELU_TANH, None), (GELU_SIGMOID, None),
+    (SWISH, 1.0), (SWISH, 1.5), (SWISH, 0.25), (SWISH, -0.7), (SWISH, 0.0),
+    (IDENTITY, None),
 ]
 
 
 def build_activations():
     cases = []
-    for n, (name, beta) in enumerate(ACT_CASES):
-        f, df, src = acts(mpf(beta) if beta is not None else None)[name]
-        cfg = {"activation": name}
-        label = name
+    for n, (act, beta) in enumerate(ACT_CASES):
+        f, df, src = acts(mpf(beta) if beta is not None else None)[act]
+        cfg = {"function": act}
+        name = label(act)
         if beta is not None:
             cfg["beta"] = beta
-            label = "%s beta=%r" % (name, beta)
+            name = "%s beta=%r" % (label(act), beta)
             src = SRC_SWISH
         groups = [("core", core_inputs(100 + n))]
-        if name != "relu" and beta != 0.0:
-            groups.append(("tail", tail_inputs(200 + n, abs(beta) if beta is not None else 1.0)))
+        if act != RELU and beta != 0.0:
+            scale = abs(beta) if beta is not None else 1.0
+            groups.append(("tail", tail_inputs(200 + n, scale)))
+            groups.append(("far", far_inputs(300 + n, scale)))
         for part, xs in groups:
             y = [f(mpf(x)) for x in xs]
-            dy = [checked_deriv(f, df, mpf(x), name) for x in xs]
+            dy = [checked_deriv(f, df, mpf(x), act) for x in xs]
             c = dict(cfg)
             c["part"] = part
-            cases.append(case("%s %s" % (label, part), src, c,
+            cases.append(case("%s %s" % (name, part), src, c,
                               {"x": ftensor(xs, [len(xs)])},
                               {"y": ftensor(y, [len(y)]), "dydx": ftensor(dy, [len(dy)])}))
     return cases
@@ -151,9 +202,11 @@ def mat(vals, rows, cols):
 def store(m, layout):
     """Flatten a logical [in][out] matrix in the given layout."""
     rows, cols = len(m), len(m[0])
-    if layout == "in_by_out":
+    if layout == IN_BY_OUT:
         return [m[i][j] for i in range(rows) for j in range(cols)]
-    return [m[i][j] for j in range(cols) for i in range(rows)]
+    if layout == OUT_BY_IN:
+        return [m[i][j] for j in range(cols) for i in range(rows)]
+    raise ValueError("layout %r" % layout)
 
 
 def fuse_cols(w, v, packing):
@@ -163,10 +216,12 @@ def fuse_cols(w, v, packing):
     for i in range(len(w)):
         row = [None] * (2 * h)
         for j in range(h):
-            if packing == "stacked":
+            if packing == STACKED:
                 row[j], row[h + j] = w[i][j], v[i][j]
-            else:
+            elif packing == INTERLEAVED:
                 row[2 * j], row[2 * j + 1] = w[i][j], v[i][j]
+            else:
+                raise ValueError("packing %r" % packing)
         out.append(row)
     return out
 
@@ -175,10 +230,12 @@ def fuse_vec(b, c, packing):
     h = len(b)
     out = [None] * (2 * h)
     for j in range(h):
-        if packing == "stacked":
+        if packing == STACKED:
             out[j], out[h + j] = b[j], c[j]
-        else:
+        elif packing == INTERLEAVED:
             out[2 * j], out[2 * j + 1] = b[j], c[j]
+        else:
+            raise ValueError("packing %r" % packing)
     return out
 
 
@@ -187,7 +244,9 @@ def matvec(x, m):
     return [mpmath.fsum(x[i] * m[i][j] for i in range(len(x))) for j in range(len(m[0]))]
 
 
-def layer_case(name, src, seed, act, beta, gated, layout, storage, dims, biases, scale):
+def layer_case(name, src, seed, act, beta, gated, layout, packing, dims, biases, scale):
+    """One layer case; packing is None for separate gate and value
+    matrices, or the packing word of a fused one."""
     rows, din, hid, dout = dims
     r = rng(seed)
     f, df, _ = acts(mpf(beta) if beta is not None else None)[act]
@@ -248,20 +307,22 @@ def layer_case(name, src, seed, act, beta, gated, layout, storage, dims, biases,
     cfg = {"activation": act}
     if beta is not None:
         cfg["beta"] = beta
-    cfg.update({"gated": gated, "layout": layout, "storage": storage,
-                "rows": rows, "in": din, "hidden": hid, "out": dout, "biases": biases})
+    cfg.update({"gated": gated, "layout": layout, "storage": "separate" if packing is None else "fused"})
+    if packing is not None:
+        cfg["packing"] = packing
+    cfg.update({"rows": rows, "in": din, "hidden": hid, "out": dout, "biases": biases})
     inputs = {"x": ftensor(xs, [rows, din]), "dy": ftensor(dys, [rows, dout])}
     outputs = {"y": ftensor(y, [rows, dout]), "dx": ftensor(dx, [rows, din])}
-    shape_w = [din, hid] if layout == "in_by_out" else [hid, din]
-    shape_f = [din, 2 * hid] if layout == "in_by_out" else [2 * hid, din]
-    shape_w2 = [hid, dout] if layout == "in_by_out" else [dout, hid]
+    shape_w = [din, hid] if layout == IN_BY_OUT else [hid, din]
+    shape_f = [din, 2 * hid] if layout == IN_BY_OUT else [2 * hid, din]
+    shape_w2 = [hid, dout] if layout == IN_BY_OUT else [dout, hid]
     inputs["w2"] = ftensor(store(W2, layout), shape_w2)
     outputs["dw2"] = ftensor(store(dW2, layout), shape_w2)
     outputs["db2"] = ftensor(dB2, [dout])
     if biases:
         inputs["b2"] = ftensor(B2, [dout])
-    if storage == "fused":
-        p = cfg["packing"] = "stacked" if "stacked" in name else "interleaved"
+    if packing is not None:
+        p = packing
         inputs["fused"] = ftensor(store(fuse_cols(W1, V, p), layout), shape_f)
         outputs["dfused"] = ftensor(store(fuse_cols(dW1, dV, p), layout), shape_f)
         outputs["dfused_bias"] = ftensor(fuse_vec(dB1, dC, p), [2 * hid])
@@ -282,9 +343,9 @@ def layer_case(name, src, seed, act, beta, gated, layout, storage, dims, biases,
     return case(name, src, cfg, inputs, outputs)
 
 
-LAYOUTS = ["in_by_out", "out_by_in"]
-PLAIN_ACTS = [("relu", None), ("gelu", None), ("gelu_tanh", None), ("gelu_sigmoid", None),
-              ("sigmoid", None), ("silu", None), ("swish", 1.5), ("identity", None)]
+LAYOUTS = [IN_BY_OUT, OUT_BY_IN]
+PLAIN_ACTS = [(RELU, None), (GELU, None), (GELU_TANH, None), (GELU_SIGMOID, None),
+              (SIGMOID, None), (SILU, None), (SWISH, 1.5), (IDENTITY, None)]
 
 
 def build_plain():
@@ -294,35 +355,37 @@ def build_plain():
         for layout in LAYOUTS:
             for biases in (True, False):
                 seed += 1
-                label = act if beta is None else "%s beta=%r" % (act, beta)
-                name = "%s %s %s" % (label, layout, "biases" if biases else "no biases")
-                cases.append(layer_case(name, SRC_FFN, seed, act, beta, False, layout, "separate",
+                lab = label(act) if beta is None else "%s beta=%r" % (label(act), beta)
+                name = "%s %s %s" % (lab, label(layout), "biases" if biases else "no biases")
+                cases.append(layer_case(name, SRC_FFN, seed, act, beta, False, layout, None,
                                         (3, 5, 6, 4), biases, 2.0))
     # wide inputs push pre-activations into the tails
-    for act in ("gelu", "silu"):
+    for act in (GELU, SILU):
         seed += 1
-        cases.append(layer_case("%s in_by_out wide inputs" % act, SRC_FFN, seed, act, None, False,
-                                "in_by_out", "separate", (2, 4, 5, 3), True, 12.0))
+        cases.append(layer_case("%s %s wide inputs" % (label(act), label(IN_BY_OUT)), SRC_FFN, seed, act, None, False,
+                                IN_BY_OUT, None, (2, 4, 5, 3), True, 12.0))
     return cases
 
 
-GATED = [("GLU", "sigmoid", None), ("Bilinear", "identity", None), ("ReGLU", "relu", None),
-         ("GEGLU", "gelu", None), ("GEGLU tanh", "gelu_tanh", None),
-         ("GEGLU sigmoid", "gelu_sigmoid", None), ("SwiGLU", "silu", None),
-         ("SwiGLU beta=1.5", "swish", 1.5)]
+GATED = [("GLU", SIGMOID, None), ("Bilinear", IDENTITY, None), ("ReGLU", RELU, None),
+         ("GEGLU", GELU, None), ("GEGLU tanh", GELU_TANH, None),
+         ("GEGLU sigmoid", GELU_SIGMOID, None), ("SwiGLU", SILU, None),
+         ("SwiGLU beta=1.5", SWISH, 1.5)]
+# storage in case names -> packing word (None: separate W and V)
+STORAGES = [("separate", None), ("fused stacked", STACKED), ("fused interleaved", INTERLEAVED)]
 
 
 def build_gated():
     cases = []
     seed = 2000
-    for label, act, beta in GATED:
+    for unit, act, beta in GATED:
         for layout in LAYOUTS:
-            for storage in ("separate", "fused stacked", "fused interleaved"):
+            for storage, packing in STORAGES:
                 seed += 1
-                biases = storage != "fused interleaved" or layout == "in_by_out"
-                name = "%s %s %s%s" % (label, layout, storage, "" if biases else " no biases")
+                biases = packing != INTERLEAVED or layout == IN_BY_OUT
+                name = "%s %s %s%s" % (unit, label(layout), storage, "" if biases else " no biases")
                 cases.append(layer_case(name, SRC_GLU, seed, act, beta, True, layout,
-                                        storage.split()[0], (3, 5, 6, 4), biases, 2.0))
+                                        packing, (3, 5, 6, 4), biases, 2.0))
     return cases
 
 

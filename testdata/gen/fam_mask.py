@@ -12,11 +12,33 @@ Written from the definitions, independently of the Go code:
 Query i sits at key position p(i) = a + offset + i with a = lk - lq for the
 end alignment and a = 0 for the start alignment.
 
+A mask is written as the Go side reads it (mask.Spec, mask/spec.go): a list
+of entries {"kind": ..., that kind's keys}, intersected; an empty list is
+every key. The keys are band before/after (-1 for no limit), window size,
+prefix length, key-padding valid, packed offsets/block.
+
 The mask family involves no rounding; its 'digits' field records the
 generator's working precision like every other family.
 """
 
-from common import btensor, ftensor, itensor, case
+from common import btensor, ftensor, itensor, case, word
+
+# Every convention word is spelled as the Go types define it
+# (vocabulary.json); word() stops the generator on a word Go does not know.
+FULL = word("mask.Kind", "full")
+CAUSAL = word("mask.Kind", "causal")
+BAND = word("mask.Kind", "band")
+WINDOW = word("mask.Kind", "window")
+PREFIX = word("mask.Kind", "prefix")
+KEY_PADDING = word("mask.Kind", "key-padding")
+PACKED = word("mask.Kind", "packed")
+BLOCK_CAUSAL = word("mask.Block", "causal")
+BLOCK_FULL = word("mask.Block", "full")
+END = word("mask.Align", "end")
+START = word("mask.Align", "start")
+
+# A band extent of UNBOUNDED means no limit on that side.
+UNBOUNDED = -1
 
 SRC_CAUSAL = "Vaswani et al. 2017, arXiv 1706.03762, sec. 3.2.3 (masking illegal connections before the softmax)"
 SRC_WINDOW = "Jiang et al. 2023, arXiv 2310.06825, sec. 2 (window of W keys, i - W < j <= i); Beltagy et al. 2020, arXiv 2004.05150, sec. 3.1"
@@ -25,7 +47,7 @@ SRC_FULL = "Vaswani et al. 2017, arXiv 1706.03762, sec. 3.2.1 Eq. (1) (no mask)"
 
 
 def pos(g, i):
-    a = g["lk"] - g["lq"] if g["align"] == "end" else 0
+    a = g["lk"] - g["lq"] if g["align"] == END else 0
     return a + g["offset"] + i
 
 
@@ -36,40 +58,47 @@ def segment(offsets, x):
     raise ValueError("position %d outside the packed sequences %r" % (x, offsets))
 
 
-def sees(spec, g, b, i, j):
+def sees_one(spec, g, b, i, j):
+    """Whether one mask entry (a mask.Spec: {"kind": ..., its keys}) lets
+    query i of batch entry b see key j."""
     k = spec["kind"]
     p = pos(g, i)
-    if k == "full":
+    if k == FULL:
         return True
-    if k == "causal":
+    if k == CAUSAL:
         return j <= p
-    if k == "band":
+    if k == BAND:
         d = j - p
         lo = spec["before"]
         hi = spec["after"]
-        return (lo is None or d >= -lo) and (hi is None or d <= hi)
-    if k == "window":
-        return p - spec["n"] < j <= p
-    if k == "prefix":
-        return j < spec["p"] or j <= p
-    if k == "padding":
+        return (lo == UNBOUNDED or d >= -lo) and (hi == UNBOUNDED or d <= hi)
+    if k == WINDOW:
+        return p - spec["size"] < j <= p
+    if k == PREFIX:
+        return j < spec["length"] or j <= p
+    if k == KEY_PADDING:
         return j < spec["valid"][b]
-    if k == "packed":
+    if k == PACKED:
         if segment(spec["offsets"], j) != segment(spec["offsets"], p):
             return False
-        return spec["block"] == "full" or j <= p
-    if k == "intersect":
-        return all(sees(s, g, b, i, j) for s in spec["parts"])
+        return spec["block"] == BLOCK_FULL or j <= p
     raise ValueError(k)
 
 
-def geometry(batch, lq, lk, align="end", offset=0):
+def sees(specs, g, b, i, j):
+    """Whether the mask, a list of entries that are intersected, lets query
+    i of batch entry b see key j. No entry at all is every key."""
+    return all(sees_one(s, g, b, i, j) for s in specs)
+
+
+def geometry(batch, lq, lk, align=END, offset=0):
     return {"batch": batch, "lq": lq, "lk": lk, "align": align, "offset": offset}
 
 
-def make(name, source, spec, g, fill=None):
+def make(name, source, specs, g, fill=None):
+    """One case: the mask is a list of mask.Spec entries, intersected."""
     B, Lq, Lk = g["batch"], g["lq"], g["lk"]
-    vis = [sees(spec, g, b, i, j) for b in range(B) for i in range(Lq) for j in range(Lk)]
+    vis = [sees(specs, g, b, i, j) for b in range(B) for i in range(Lq) for j in range(Lk)]
     f = float("-inf") if fill is None else fill
     bias = [0.0 if v else f for v in vis]
     empty = []
@@ -77,7 +106,7 @@ def make(name, source, spec, g, fill=None):
         for i in range(Lq):
             if not any(vis[(b * Lq + i) * Lk + j] for j in range(Lk)):
                 empty += [b, i]
-    cfg = {"mask": spec}
+    cfg = {"mask": specs}
     cfg.update(g)
     if fill is not None:
         cfg["fill"] = fill
@@ -87,54 +116,84 @@ def make(name, source, spec, g, fill=None):
                  "empty_rows": itensor(empty, [len(empty) // 2, 2])})
 
 
+# One mask.Spec entry per kind, with exactly that kind's keys.
+def full():
+    return {"kind": FULL}
+
+
+def causal():
+    return {"kind": CAUSAL}
+
+
 def band(before, after):
-    return {"kind": "band", "before": before, "after": after}
+    return {"kind": BAND, "before": before, "after": after}
+
+
+def window(size):
+    return {"kind": WINDOW, "size": size}
+
+
+def prefix(length):
+    return {"kind": PREFIX, "length": length}
+
+
+def key_padding(valid):
+    return {"kind": KEY_PADDING, "valid": valid}
+
+
+def packed(offsets, block):
+    return {"kind": PACKED, "offsets": offsets, "block": block}
 
 
 def build():
-    C = {"kind": "causal"}
-    F = {"kind": "full"}
+    C = [causal()]
+    F = [full()]
+    U = UNBOUNDED
     out = [
         make("full_4x6", SRC_FULL, F, geometry(1, 4, 6)),
         make("full_cross_lq_gt_lk", SRC_FULL, F, geometry(1, 5, 3)),
         make("full_lk0", SRC_FULL, F, geometry(1, 2, 0)),
         make("causal_5x5", SRC_CAUSAL, C, geometry(1, 5, 5)),
         make("causal_end_3x7", SRC_CAUSAL, C, geometry(1, 3, 7)),
-        make("causal_start_3x7", SRC_CAUSAL, C, geometry(1, 3, 7, "start")),
-        make("causal_start_offset2_3x7", SRC_CAUSAL, C, geometry(2, 3, 7, "start", 2)),
-        make("causal_end_offset_minus2_3x7", SRC_CAUSAL, C, geometry(1, 3, 7, "end", -2)),
+        make("causal_start_3x7", SRC_CAUSAL, C, geometry(1, 3, 7, START)),
+        make("causal_start_offset2_3x7", SRC_CAUSAL, C, geometry(2, 3, 7, START, 2)),
+        make("causal_end_offset_minus2_3x7", SRC_CAUSAL, C, geometry(1, 3, 7, END, -2)),
         make("causal_decode_1x9", SRC_CAUSAL, C, geometry(1, 1, 9)),
         make("causal_finite_fill", SRC_CAUSAL, C, geometry(1, 4, 4), fill=-1e9),
         make("causal_fill_lowest_binary16", SRC_CAUSAL, C, geometry(1, 3, 3), fill=-65504.0),
-        make("window1_6x6", SRC_WINDOW, {"kind": "window", "n": 1}, geometry(1, 6, 6)),
-        make("window3_8x8", SRC_WINDOW, {"kind": "window", "n": 3}, geometry(1, 8, 8)),
-        make("window3_end_2x8", SRC_WINDOW, {"kind": "window", "n": 3}, geometry(1, 2, 8)),
-        make("window4_start_offset3_3x9", SRC_WINDOW, {"kind": "window", "n": 4}, geometry(1, 3, 9, "start", 3)),
-        make("window_longer_than_keys", SRC_WINDOW, {"kind": "window", "n": 20}, geometry(1, 6, 6)),
-        make("band_2_1_7x7", SRC_WINDOW, band(2, 1), geometry(1, 7, 7)),
-        make("band_0_0_5x5", SRC_WINDOW, band(0, 0), geometry(1, 5, 5)),
-        make("band_future_only_5x5", SRC_WINDOW, band(0, None), geometry(1, 5, 5)),
-        make("band_unbounded_before_1_5x5", SRC_WINDOW, band(None, 1), geometry(1, 5, 5)),
-        make("band_unbounded_both", SRC_WINDOW, band(None, None), geometry(1, 4, 6, "start")),
-        make("band_1_2_end_3x8", SRC_WINDOW, band(1, 2), geometry(1, 3, 8)),
-        make("prefix3_7x7", SRC_PRACTICE, {"kind": "prefix", "p": 3}, geometry(1, 7, 7)),
-        make("prefix0_4x4", SRC_PRACTICE, {"kind": "prefix", "p": 0}, geometry(1, 4, 4)),
-        make("prefix_all_5x5", SRC_PRACTICE, {"kind": "prefix", "p": 5}, geometry(1, 5, 5)),
-        make("prefix2_end_3x6", SRC_PRACTICE, {"kind": "prefix", "p": 2}, geometry(1, 3, 6)),
-        make("padding_b3", SRC_PRACTICE, {"kind": "padding", "valid": [5, 2, 0]}, geometry(3, 2, 5)),
-        make("padding_cross", SRC_PRACTICE, {"kind": "padding", "valid": [1, 4]}, geometry(2, 6, 4)),
-        make("packed_causal_3seq", SRC_PRACTICE, {"kind": "packed", "offsets": [0, 3, 4, 8], "block": "causal"}, geometry(1, 8, 8)),
-        make("packed_full_3seq", SRC_PRACTICE, {"kind": "packed", "offsets": [0, 2, 5, 7], "block": "full"}, geometry(1, 7, 7)),
-        make("packed_causal_end_chunk", SRC_PRACTICE, {"kind": "packed", "offsets": [0, 4, 9], "block": "causal"}, geometry(1, 3, 9)),
-        make("packed_one_seq_causal", SRC_PRACTICE, {"kind": "packed", "offsets": [0, 5], "block": "causal"}, geometry(1, 5, 5)),
+        make("window1_6x6", SRC_WINDOW, [window(1)], geometry(1, 6, 6)),
+        make("window3_8x8", SRC_WINDOW, [window(3)], geometry(1, 8, 8)),
+        make("window3_end_2x8", SRC_WINDOW, [window(3)], geometry(1, 2, 8)),
+        make("window4_start_offset3_3x9", SRC_WINDOW, [window(4)], geometry(1, 3, 9, START, 3)),
+        make("window_longer_than_keys", SRC_WINDOW, [window(20)], geometry(1, 6, 6)),
+        make("band_2_1_7x7", SRC_WINDOW, [band(2, 1)], geometry(1, 7, 7)),
+        make("band_0_0_5x5", SRC_WINDOW, [band(0, 0)], geometry(1, 5, 5)),
+        make("band_future_only_5x5", SRC_WINDOW, [band(0, U)], geometry(1, 5, 5)),
+        make("band_unbounded_before_1_5x5", SRC_WINDOW, [band(U, 1)], geometry(1, 5, 5)),
+        make("band_unbounded_both", SRC_WINDOW, [band(U, U)], geometry(1, 4, 6, START)),
+        make("band_1_2_end_3x8", SRC_WINDOW, [band(1, 2)], geometry(1, 3, 8)),
+        make("prefix3_7x7", SRC_PRACTICE, [prefix(3)], geometry(1, 7, 7)),
+        make("prefix0_4x4", SRC_PRACTICE, [prefix(0)], geometry(1, 4, 4)),
+        make("prefix_all_5x5", SRC_PRACTICE, [prefix(5)], geometry(1, 5, 5)),
+        make("prefix2_end_3x6", SRC_PRACTICE, [prefix(2)], geometry(1, 3, 6)),
+        make("padding_b3", SRC_PRACTICE, [key_padding([5, 2, 0])], geometry(3, 2, 5)),
+        make("padding_cross", SRC_PRACTICE, [key_padding([1, 4])], geometry(2, 6, 4)),
+        make("packed_causal_3seq", SRC_PRACTICE, [packed([0, 3, 4, 8], BLOCK_CAUSAL)], geometry(1, 8, 8)),
+        make("packed_full_3seq", SRC_PRACTICE, [packed([0, 2, 5, 7], BLOCK_FULL)], geometry(1, 7, 7)),
+        make("packed_causal_end_chunk", SRC_PRACTICE, [packed([0, 4, 9], BLOCK_CAUSAL)], geometry(1, 3, 9)),
+        make("packed_one_seq_causal", SRC_PRACTICE, [packed([0, 5], BLOCK_CAUSAL)], geometry(1, 5, 5)),
+        # An intersection is a list of several entries.
         make("intersect_window_padding", SRC_PRACTICE,
-             {"kind": "intersect", "parts": [{"kind": "window", "n": 2}, {"kind": "padding", "valid": [4, 6]}]},
-             geometry(2, 6, 6)),
+             [window(2), key_padding([4, 6])], geometry(2, 6, 6)),
         make("intersect_packed_window", SRC_PRACTICE,
-             {"kind": "intersect", "parts": [{"kind": "packed", "offsets": [0, 5, 8], "block": "causal"}, {"kind": "window", "n": 3}]},
-             geometry(1, 8, 8)),
+             [packed([0, 5, 8], BLOCK_CAUSAL), window(3)], geometry(1, 8, 8)),
         make("intersect_causal_band_start", SRC_PRACTICE,
-             {"kind": "intersect", "parts": [C, band(1, 3)]}, geometry(1, 4, 8, "start", 1)),
+             [causal(), band(1, 3)], geometry(1, 4, 8, START, 1)),
+        # An empty list is every key (mask.Build of no entry is Full).
+        make("no_entry_is_full_3x5", SRC_FULL, [], geometry(2, 3, 5)),
+        # Three entries: the intersection of all of them.
+        make("intersect_three_prefix_band_padding", SRC_PRACTICE,
+             [prefix(3), band(1, U), key_padding([6, 4])], geometry(2, 6, 6)),
     ]
     return out
 

@@ -29,7 +29,21 @@ the norm at the rounded sum.
 
 from mpmath import mpf, sqrt as msqrt
 
-from common import case, ftensor, rng, uniform
+from common import case, ftensor, rng, uniform, word
+
+# The words of the Go conventions (testdata/gen/vocabulary.json). Case names
+# keep their older spellings (in_root, as_is, one_plus, none); the configs
+# hold the words, under the keys of the norm operations (ops/norm.go).
+IN_ROOT = word("norm.EpsilonPlacement", "in-root")
+ADDED_TO_ROOT = word("norm.EpsilonPlacement", "added-to-root")
+AS_IS = word("norm.WeightForm", "as-is")
+ONE_PLUS = word("norm.WeightForm", "one-plus")
+
+# The placement and weight spellings of the case names, and what they mean:
+# a placement word, or (whether there is a weight, its form). "none" is a
+# layer without a weight tensor (gain 1); its weight_form is the default.
+PLACEMENT = {"in_root": IN_ROOT, "added_to_root": ADDED_TO_ROOT}
+WEIGHT = {"none": (False, AS_IS), "as_is": (True, AS_IS), "one_plus": (True, ONE_PLUS)}
 
 SRC_LN = ("Ba, Kiros & Hinton 2016, Layer Normalization, arXiv 1607.06450, "
           "sec. 3 Eq. (3)-(4) and sec. 3.1; epsilon placement common practice")
@@ -102,18 +116,22 @@ def norm_row(x, w, b, cfg):
         dev = list(x)
     s2 = sum((v * v for v in dev[1:]), dev[0] * dev[0]) / d
     eps = mpf(cfg["epsilon"])
-    if cfg["placement"] == "in_root":
+    if cfg["epsilon_placement"] == IN_ROOT:
         r = dsqrt(s2 + eps)
-    else:
+    elif cfg["epsilon_placement"] == ADDED_TO_ROOT:
         r = dsqrt(s2) + eps
+    else:
+        raise ValueError("epsilon placement %r" % cfg["epsilon_placement"])
     out = []
     for j in range(d):
-        if cfg["weight"] == "none":
+        if not cfg["weighted"]:
             g = 1
-        elif cfg["weight"] == "as_is":
+        elif cfg["weight_form"] == AS_IS:
             g = w[j]
-        else:
+        elif cfg["weight_form"] == ONE_PLUS:
             g = 1 + w[j]
+        else:
+            raise ValueError("weight form %r" % cfg["weight_form"])
         y = g * dev[j] / r
         if b is not None:
             y = y + b[j]
@@ -155,8 +173,8 @@ def compute(cfg, x, w, b, dy, backward):
 
 
 def make(name, cfg, x, w=None, b=None, dy=None, residual=None, dsum=None, backward=True):
-    """One case. cfg keys: kind, d, epsilon, placement, weight, bias, and
-    for the fused family fused (true)."""
+    """One case. cfg keys: kind, d, epsilon, epsilon_placement, weighted,
+    weight_form, and bias (LayerNorm only)."""
     d = cfg["d"]
     rows = len(x) // d
     shape = [rows, d]
@@ -192,7 +210,10 @@ def make(name, cfg, x, w=None, b=None, dy=None, residual=None, dsum=None, backwa
 
 
 def config(kind, d, eps, placement="in_root", weight="none", bias=False):
-    c = {"kind": kind, "d": d, "epsilon": eps, "placement": placement, "weight": weight}
+    """A config from the case-name spellings of placement and weight."""
+    weighted, form = WEIGHT[weight]
+    c = {"kind": kind, "d": d, "epsilon": eps, "epsilon_placement": PLACEMENT[placement],
+         "weighted": weighted, "weight_form": form}
     if kind == "layer":
         c["bias"] = bias
     return c
@@ -202,9 +223,9 @@ def params(r, cfg):
     """Random weight and bias for a configuration (None where absent)."""
     d = cfg["d"]
     w = None
-    if cfg["weight"] == "as_is":
+    if cfg["weighted"] and cfg["weight_form"] == AS_IS:
         w = uniform(r, d, 0.5, 1.5)
-    elif cfg["weight"] == "one_plus":
+    elif cfg["weighted"]:
         w = uniform(r, d, -0.5, 0.5)
     b = uniform(r, d, -0.5, 0.5) if cfg.get("bias") else None
     return w, b

@@ -11,7 +11,8 @@ mpmath at common.DIGITS significant digits, on exact float64 inputs:
   * NTK-aware base, NTK-by-parts, dynamic scaling, temperature: Peng et al.
     2023, "YaRN", arXiv 2309.00071 v2, Eq. (11)-(22) and section 3.3;
   * ALiBi: Press et al. 2022, "Train Short, Test Long", arXiv 2108.12409,
-    section 3.
+    section 3, in three forms: causal (the paper's -m (p - j) for every
+    key), symmetric (-m |p - j|) and past-only (-m max(p - j, 0)).
 
 Positions are exact integers; angles m*theta are formed and reduced at 50
 digits, so large positions (up to 2^31 - 1) are exact references.
@@ -19,7 +20,26 @@ digits, so large positions (up to 2^31 - 1) are exact references.
 
 from mpmath import mp, mpf
 
-from common import case, ftensor, itensor, rng, to_f64, uniform
+from common import case, ftensor, itensor, rng, to_f64, uniform, word
+
+# Every convention word, spelled as the Go types define them
+# (vocabulary.json); word() stops the generator on a word Go does not have.
+INTERLEAVED = word("posenc.Layout", "interleaved")
+CONCATENATED = word("posenc.Layout", "concatenated")
+ADJACENT = word("posenc.Pairing", "adjacent")
+HALVES = word("posenc.Pairing", "halves")
+NONE = word("posenc.Method", "none")
+INTERPOLATION = word("posenc.Method", "interpolation")
+NTK = word("posenc.Method", "ntk-aware")
+YARN = word("posenc.Method", "yarn")
+PER_FREQUENCY = word("posenc.Method", "per-frequency")
+RATIO = word("posenc.Ramp", "ratio")
+DIMS = word("posenc.Ramp", "dims")
+END = word("mask.Align", "end")
+START = word("mask.Align", "start")
+CAUSAL = word("mask.ALiBiForm", "causal")
+SYMMETRIC = word("mask.ALiBiForm", "symmetric")
+PAST_ONLY = word("mask.ALiBiForm", "past-only")
 
 SIN = "Vaswani et al. 2017, arXiv 1706.03762, sec. 3.5"
 ROPE = "Su et al. 2021, arXiv 2104.09864, Eq. (13)-(15), (34)"
@@ -29,6 +49,12 @@ YARN_SRC = "Peng et al. 2023, arXiv 2309.00071 v2, Eq. (17)-(20)"
 DYN_SRC = "Peng et al. 2023, arXiv 2309.00071 v2, sec. 3.3"
 TEMP_SRC = "Peng et al. 2023, arXiv 2309.00071 v2, Eq. (21)-(22)"
 ALIBI = "Press et al. 2022, arXiv 2108.12409, sec. 3"
+PER_FREQ_SRC = "common practice: caller-given per-frequency divisors"
+
+# YaRN's sqrt(1/t) = 0.1 ln s + 1 at s = 8 (Eq. (22)), rounded to float64:
+# the magnitude input of the cases that use one.
+MAG8 = to_f64(mp.log(mpf(8)) / 10 + 1)
+assert MAG8 == 1.2079441541679836
 
 BIG_POSITIONS = [0, 1, 2, 7, 100, 4095, 65535, 999999, 1000000,
                  123456789, 2147483647]
@@ -51,24 +77,24 @@ def scale_factor(sc):
 
 def scaled_freqs(r, base, sc):
     """The frequencies after context scaling, from the published formulas."""
-    method = sc.get("method", "none")
-    if method == "none":
+    method = sc.get("method", NONE)
+    if method == NONE:
         return base_freqs(r, base)
-    if method == "per_frequency":
+    if method == PER_FREQUENCY:
         return [t / mpf(f) for t, f in zip(base_freqs(r, base), sc["factors"])]
     s = scale_factor(sc)
-    if method == "interpolation":
+    if method == INTERPOLATION:
         # f'(x, m) = f(x, m/s): the angle (m/s) theta = m (theta/s)
         return [t / s for t in base_freqs(r, base)]
-    if method == "ntk":
+    if method == NTK:
         bp = mpf(base) * s ** (mpf(r) / (r - 2))
         return [bp ** (-mpf(2 * i) / r) for i in range(r // 2)]
-    if method == "yarn":
+    if method == YARN:
         L = mpf(sc["trained_length"])
         alpha = mpf(sc.get("alpha", 1))
         beta = mpf(sc.get("beta", 32))
         th = base_freqs(r, base)
-        if sc.get("ramp", "ratio") == "ratio":
+        if sc.get("ramp", RATIO) == RATIO:
             gam = []
             for t in th:
                 rho = L * t / (2 * mp.pi)  # L / lambda_d, lambda_d = 2 pi / theta_d
@@ -78,7 +104,7 @@ def scaled_freqs(r, base, sc):
                     gam.append(mpf(1))
                 else:
                     gam.append((rho - alpha) / (beta - alpha))
-        else:
+        elif sc["ramp"] == DIMS:
             def dim_at(x):
                 return r * mp.log(L / (2 * mp.pi * x)) / (2 * mp.log(mpf(base)))
             low = max(int(mp.floor(dim_at(beta))), 0)
@@ -91,6 +117,8 @@ def scaled_freqs(r, base, sc):
                 t = mpf(d - low) / (high - low)
                 t = min(max(t, mpf(0)), mpf(1))
                 gam.append(1 - t)
+        else:
+            raise ValueError(sc["ramp"])
         return [(1 - g) * t / s + g * t for g, t in zip(gam, th)]
     raise ValueError(method)
 
@@ -101,7 +129,12 @@ def rotate(x, D, r, pairing, theta, m, mag, inverse):
     y = [mpf(v) for v in x]
     h = r // 2
     for i in range(h):
-        a, b = (2 * i, 2 * i + 1) if pairing == "adjacent" else (i, i + h)
+        if pairing == ADJACENT:
+            a, b = 2 * i, 2 * i + 1
+        elif pairing == HALVES:
+            a, b = i, i + h
+        else:
+            raise ValueError(pairing)
         ang = m * theta[i]
         c, s = mp.cos(ang), mp.sin(ang)
         if inverse:
@@ -120,21 +153,44 @@ def row_positions(rows, L, offset, plist):
     return list(plist)
 
 
+def alibi_distance(form, p, j):
+    """The key distance d(p, j) each ALiBi form penalises, the bias being
+    -m d. Press et al. 2022 sec. 3 give -m (p - j) for the keys j <= p a
+    causal model sees, where the three forms agree; they differ only for
+    keys after the query."""
+    if form == CAUSAL:
+        return p - j  # the paper's formula for every key: j > p gets +m (j - p)
+    if form == SYMMETRIC:
+        return abs(p - j)
+    if form == PAST_ONLY:
+        return max(p - j, 0)  # no bias for keys after the query
+    raise ValueError(form)
+
+
 # ---------------------------------------------------------------- families
+#
+# Configuration keys follow the ops package's keys for the same things:
+# rotary "rotated", "base", "pairing", "magnitude", "offset" and "scaling"
+# (an object with "method", "factor", "trained_length", "current_length",
+# "alpha", "beta", "ramp"); sinusoidal "dim", "base", "layout", "offset",
+# "length"; ALiBi bias "queries", "keys", "align", "offset", "alibi_form".
+# "dim" and "length" also give the shape of a case's input (head dimension,
+# positions per sequence). Positions lists and per-frequency factors are
+# input tensors.
 
 def build_sinusoidal_table():
     cases = []
     specs = [
-        ("worked_d4_pos0to3", 4, 10000.0, "interleaved", 0, 4),
-        ("d16_interleaved", 16, 10000.0, "interleaved", 0, 12),
-        ("d16_concatenated", 16, 10000.0, "concatenated", 0, 12),
-        ("d32_offset_100", 32, 10000.0, "interleaved", 100, 8),
-        ("d24_base_500", 24, 500.0, "interleaved", 3, 8),
-        ("d20_base_1e6_concatenated", 20, 1e6, "concatenated", 0, 6),
-        ("d64_positions_near_1e6", 64, 10000.0, "interleaved", 999997, 4),
-        ("d64_positions_near_2e9_concatenated", 64, 10000.0, "concatenated", 2147483644, 4),
-        ("d2_single_frequency", 2, 10000.0, "interleaved", 0, 5),
-        ("d128_empty", 128, 10000.0, "interleaved", 5, 0),
+        ("worked_d4_pos0to3", 4, 10000.0, INTERLEAVED, 0, 4),
+        ("d16_interleaved", 16, 10000.0, INTERLEAVED, 0, 12),
+        ("d16_concatenated", 16, 10000.0, CONCATENATED, 0, 12),
+        ("d32_offset_100", 32, 10000.0, INTERLEAVED, 100, 8),
+        ("d24_base_500", 24, 500.0, INTERLEAVED, 3, 8),
+        ("d20_base_1e6_concatenated", 20, 1e6, CONCATENATED, 0, 6),
+        ("d64_positions_near_1e6", 64, 10000.0, INTERLEAVED, 999997, 4),
+        ("d64_positions_near_2e9_concatenated", 64, 10000.0, CONCATENATED, 2147483644, 4),
+        ("d2_single_frequency", 2, 10000.0, INTERLEAVED, 0, 5),
+        ("d128_empty", 128, 10000.0, INTERLEAVED, 5, 0),
     ]
     for name, d, base, layout, offset, n in specs:
         w = base_freqs(d, base)
@@ -143,22 +199,24 @@ def build_sinusoidal_table():
             m = offset + t
             s = [mp.sin(m * wi) for wi in w]
             c = [mp.cos(m * wi) for wi in w]
-            if layout == "interleaved":
+            if layout == INTERLEAVED:
                 row = [v for pair in zip(s, c) for v in pair]
-            else:
+            elif layout == CONCATENATED:
                 row = s + c
+            else:
+                raise ValueError(layout)
             out.extend(row)
         cases.append(case(name, SIN,
-                          {"dim": d, "base": base, "layout": layout, "offset": offset, "n": n},
+                          {"dim": d, "base": base, "layout": layout, "offset": offset, "length": n},
                           {}, {"table": ftensor(out, [n, d])}))
     return cases
 
 
 def build_sinusoidal_add():
     cases = []
-    for k, (d, L, B, offset, layout) in enumerate([(8, 5, 2, 0, "interleaved"),
-                                                   (16, 3, 3, 1000, "concatenated"),
-                                                   (32, 4, 1, 999996, "interleaved")]):
+    for k, (d, L, B, offset, layout) in enumerate([(8, 5, 2, 0, INTERLEAVED),
+                                                   (16, 3, 3, 1000, CONCATENATED),
+                                                   (32, 4, 1, 999996, INTERLEAVED)]):
         r = rng(4100 + k)
         x = uniform(r, B * L * d, -2.0, 2.0)
         w = base_freqs(d, 10000.0)
@@ -167,28 +225,42 @@ def build_sinusoidal_add():
             t = (idx // d) % L
             col = idx % d
             m = offset + t
-            if layout == "interleaved":
+            if layout == INTERLEAVED:
                 i, fn = col // 2, (mp.sin if col % 2 == 0 else mp.cos)
             else:
                 i, fn = col % (d // 2), (mp.sin if col < d // 2 else mp.cos)
             y.append(mpf(v) + fn(m * w[i]))
         cases.append(case("add_d%d_L%d_B%d_offset%d_%s" % (d, L, B, offset, layout), SIN,
-                          {"dim": d, "base": 10000.0, "layout": layout, "offset": offset, "seq_len": L},
+                          {"dim": d, "base": 10000.0, "layout": layout, "offset": offset, "length": L},
                           {"x": ftensor(x, [B, L, d])}, {"y": ftensor(y, [B, L, d])}))
     return cases
 
 
 def build_rotary_tables():
     cases = []
-    for name, r, base in [("r128_base_1e4", 128, 10000.0),
-                          ("r64_base_5e5", 64, 500000.0),
-                          ("r32_base_1e6", 32, 1e6),
-                          ("r8_base_100", 8, 100.0)]:
-        th = base_freqs(r, base)
-        cos = [mp.cos(m * t) for m in BIG_POSITIONS for t in th]
-        sin = [mp.sin(m * t) for m in BIG_POSITIONS for t in th]
+    # name, source, D, r, base, magnitude, scaling
+    specs = [
+        ("r128_base_1e4", ROPE, 128, 128, 10000.0, 1.0, None),
+        ("r64_base_5e5", ROPE, 64, 64, 500000.0, 1.0, None),
+        ("r32_base_1e6", ROPE, 32, 32, 1e6, 1.0, None),
+        ("r8_base_100", ROPE, 8, 8, 100.0, 1.0, None),
+        # the magnitude M multiplies both tables: M cos, M sin
+        ("r64_base_5e5_magnitude", ROPE + "; magnitude: " + TEMP_SRC, 64, 64, 500000.0, MAG8, None),
+        ("d40_r32_yarn_ramp_dims_s8_magnitude", YARN_SRC + "; magnitude: " + TEMP_SRC, 40, 32, 10000.0, MAG8,
+         {"method": YARN, "factor": 8.0, "trained_length": 4096, "ramp": DIMS}),
+    ]
+    for name, source, D, r, base, mag, sc in specs:
+        th = scaled_freqs(r, base, sc or {})
+        M = mpf(mag)
+        cos = [M * mp.cos(m * t) for m in BIG_POSITIONS for t in th]
+        sin = [M * mp.sin(m * t) for m in BIG_POSITIONS for t in th]
         n = len(BIG_POSITIONS)
-        cases.append(case(name, ROPE, {"dim": r, "rotated": r, "base": base},
+        cfg = {"dim": D, "rotated": r, "base": base}
+        if mag != 1.0:
+            cfg["magnitude"] = mag
+        if sc is not None:
+            cfg["scaling"] = dict(sc)
+        cases.append(case(name, source, cfg,
                           {"positions": itensor(BIG_POSITIONS, [n])},
                           {"theta": ftensor(th, [r // 2]),
                            "cos": ftensor(cos, [n, r // 2]), "sin": ftensor(sin, [n, r // 2])}))
@@ -210,8 +282,8 @@ def apply_case(name, source, D, r, base, pairing, sc, mag, shape, offset, plist,
         if inverse:
             yi.extend(rotate(xr, D, r, pairing, theta, pos[row], mpf(mag), True))
     cfg = {"dim": D, "rotated": r, "base": base, "pairing": pairing,
-           "magnitude": mag, "seq_len": L, "offset": offset}
-    cfg.update({"scaling_" + k: v for k, v in sc.items() if k != "factors"})
+           "magnitude": mag, "length": L, "offset": offset,
+           "scaling": {k: v for k, v in sc.items() if k != "factors"}}
     inputs = {"x": ftensor(x, shape)}
     if plist is not None:
         inputs["positions"] = itensor(plist, [len(plist)])
@@ -224,23 +296,26 @@ def apply_case(name, source, D, r, base, pairing, sc, mag, shape, offset, plist,
 
 
 def build_rotary_apply():
-    none = {"method": "none"}
+    none = {"method": NONE}
     specs = [
         # name, D, r, base, pairing, magnitude, shape, offset, positions
-        ("worked_d4_m1_adjacent", 4, 4, 10000.0, "adjacent", 1.0, [1, 4], 1, None),
-        ("d16_adjacent", 16, 16, 10000.0, "adjacent", 1.0, [2, 5, 16], 0, None),
-        ("d16_halves", 16, 16, 10000.0, "halves", 1.0, [2, 5, 16], 0, None),
-        ("d64_halves_offset_4000", 64, 64, 10000.0, "halves", 1.0, [1, 3, 64], 4000, None),
-        ("d32_partial_r8_adjacent", 32, 8, 10000.0, "adjacent", 1.0, [2, 3, 32], 0, None),
-        ("d24_partial_r12_halves_base_1e6", 24, 12, 1e6, "halves", 1.0, [1, 4, 24], 7, None),
-        ("d13_partial_r6_odd_head", 13, 6, 10000.0, "adjacent", 1.0, [1, 3, 13], 0, None),
-        ("d32_base_500_magnitude", 32, 32, 500.0, "adjacent", 1.2079441541679836, [1, 3, 32], 2, None),
-        ("d64_positions_up_to_2e9", 64, 64, 10000.0, "adjacent", 1.0, [1, 6, 64], 0,
+        ("worked_d4_m1_adjacent", 4, 4, 10000.0, ADJACENT, 1.0, [1, 4], 1, None),
+        ("d16_adjacent", 16, 16, 10000.0, ADJACENT, 1.0, [2, 5, 16], 0, None),
+        ("d16_halves", 16, 16, 10000.0, HALVES, 1.0, [2, 5, 16], 0, None),
+        ("d64_halves_offset_4000", 64, 64, 10000.0, HALVES, 1.0, [1, 3, 64], 4000, None),
+        ("d32_partial_r8_adjacent", 32, 8, 10000.0, ADJACENT, 1.0, [2, 3, 32], 0, None),
+        ("d24_partial_r12_halves_base_1e6", 24, 12, 1e6, HALVES, 1.0, [1, 4, 24], 7, None),
+        ("d13_partial_r6_odd_head", 13, 6, 10000.0, ADJACENT, 1.0, [1, 3, 13], 0, None),
+        ("d32_base_500_magnitude", 32, 32, 500.0, ADJACENT, MAG8, [1, 3, 32], 2, None),
+        ("d64_positions_up_to_2e9", 64, 64, 10000.0, ADJACENT, 1.0, [1, 6, 64], 0,
          [0, 999999, 1000000, 65536, 123456789, 2147483647]),
-        ("d32_halves_positions_near_1e6", 32, 32, 10000.0, "halves", 1.0, [2, 4, 32], 999996, None),
-        ("d8_per_row_positions_packed", 8, 8, 10000.0, "adjacent", 1.0, [2, 3, 8], 0,
+        ("d32_halves_positions_near_1e6", 32, 32, 10000.0, HALVES, 1.0, [2, 4, 32], 999996, None),
+        ("d8_per_row_positions_packed", 8, 8, 10000.0, ADJACENT, 1.0, [2, 3, 8], 0,
          [0, 1, 2, 0, 1, 0]),
-        ("d8_negative_positions", 8, 8, 10000.0, "halves", 1.0, [1, 3, 8], -5, None),
+        ("d8_negative_positions", 8, 8, 10000.0, HALVES, 1.0, [1, 3, 8], -5, None),
+        # a magnitude below 1 with partial rotation: the rotated dims are
+        # scaled, the pass-through dims copied unscaled
+        ("d24_partial_r8_halves_magnitude", 24, 8, 10000.0, HALVES, 0.75, [2, 3, 24], 3, None),
     ]
     return [apply_case(name, ROPE, D, r, base, pairing, none, mag, shape, offset, plist, 4200 + k)
             for k, (name, D, r, base, pairing, mag, shape, offset, plist) in enumerate(specs)]
@@ -253,34 +328,34 @@ def build_scaling():
     for s in (2.0, 4.0, 8.0, 32.0):
         tag = "s%d" % int(s)
         variants = [
-            ("interpolation_" + tag, PI_SRC, 32, 32, 10000.0, "adjacent",
-             {"method": "interpolation", "factor": s}),
-            ("ntk_" + tag, NTK_SRC, 32, 32, 10000.0, "halves",
-             {"method": "ntk", "factor": s}),
-            ("ntk_partial_r16_base_5e5_" + tag, NTK_SRC, 40, 16, 500000.0, "adjacent",
-             {"method": "ntk", "factor": s}),
-            ("yarn_ramp_ratio_" + tag, YARN_SRC, 32, 32, 10000.0, "halves",
-             {"method": "yarn", "factor": s, "trained_length": 4096, "ramp": "ratio"}),
-            ("yarn_ramp_dims_" + tag, YARN_SRC, 32, 32, 10000.0, "halves",
-             {"method": "yarn", "factor": s, "trained_length": 4096, "ramp": "dims"}),
-            ("yarn_ramp_ratio_alpha2_beta16_base_5e5_" + tag, YARN_SRC, 32, 32, 500000.0, "adjacent",
-             {"method": "yarn", "factor": s, "trained_length": 2048, "ramp": "ratio",
+            ("interpolation_" + tag, PI_SRC, 32, 32, 10000.0, ADJACENT,
+             {"method": INTERPOLATION, "factor": s}),
+            ("ntk_" + tag, NTK_SRC, 32, 32, 10000.0, HALVES,
+             {"method": NTK, "factor": s}),
+            ("ntk_partial_r16_base_5e5_" + tag, NTK_SRC, 40, 16, 500000.0, ADJACENT,
+             {"method": NTK, "factor": s}),
+            ("yarn_ramp_ratio_" + tag, YARN_SRC, 32, 32, 10000.0, HALVES,
+             {"method": YARN, "factor": s, "trained_length": 4096, "ramp": RATIO}),
+            ("yarn_ramp_dims_" + tag, YARN_SRC, 32, 32, 10000.0, HALVES,
+             {"method": YARN, "factor": s, "trained_length": 4096, "ramp": DIMS}),
+            ("yarn_ramp_ratio_alpha2_beta16_base_5e5_" + tag, YARN_SRC, 32, 32, 500000.0, ADJACENT,
+             {"method": YARN, "factor": s, "trained_length": 2048, "ramp": RATIO,
               "alpha": 2.0, "beta": 16.0}),
-            ("yarn_ramp_dims_alpha2_beta16_base_5e5_" + tag, YARN_SRC, 32, 32, 500000.0, "adjacent",
-             {"method": "yarn", "factor": s, "trained_length": 2048, "ramp": "dims",
+            ("yarn_ramp_dims_alpha2_beta16_base_5e5_" + tag, YARN_SRC, 32, 32, 500000.0, ADJACENT,
+             {"method": YARN, "factor": s, "trained_length": 2048, "ramp": DIMS,
               "alpha": 2.0, "beta": 16.0}),
-            ("dynamic_ntk_" + tag, DYN_SRC, 32, 32, 10000.0, "adjacent",
-             {"method": "ntk", "trained_length": 2048, "current_length": int(2048 * s)}),
-            ("dynamic_yarn_ramp_ratio_" + tag, DYN_SRC, 32, 32, 10000.0, "halves",
-             {"method": "yarn", "trained_length": 1024, "current_length": int(1024 * s) + 1,
-              "ramp": "ratio"}),
-            ("dynamic_interpolation_" + tag, DYN_SRC, 16, 16, 10000.0, "adjacent",
-             {"method": "interpolation", "trained_length": 3000, "current_length": int(3000 * s) - 1}),
+            ("dynamic_ntk_" + tag, DYN_SRC, 32, 32, 10000.0, ADJACENT,
+             {"method": NTK, "trained_length": 2048, "current_length": int(2048 * s)}),
+            ("dynamic_yarn_ramp_ratio_" + tag, DYN_SRC, 32, 32, 10000.0, HALVES,
+             {"method": YARN, "trained_length": 1024, "current_length": int(1024 * s) + 1,
+              "ramp": RATIO}),
+            ("dynamic_interpolation_" + tag, DYN_SRC, 16, 16, 10000.0, ADJACENT,
+             {"method": INTERPOLATION, "trained_length": 3000, "current_length": int(3000 * s) - 1}),
         ]
         fr = rng(seed)
-        variants.append(("per_frequency_" + tag, "common practice: caller-given per-frequency divisors", 32, 32,
-                         10000.0, "halves",
-                         {"method": "per_frequency",
+        variants.append(("per_frequency_" + tag, PER_FREQ_SRC, 32, 32,
+                         10000.0, HALVES,
+                         {"method": PER_FREQUENCY,
                           "factors": [1.0 + (s - 1.0) * fr.random() for _ in range(16)]}))
         for name, src, D, r, base, pairing, sc in variants:
             seed += 1
@@ -289,27 +364,65 @@ def build_scaling():
     # YaRN ramp edges: alpha = 0, the authors'-code clamp of the upper bound
     # to r - 1, bounds that meet (a step) and bounds that cross (no ramp).
     for name, sc in [
-        ("yarn_ramp_ratio_alpha0", {"method": "yarn", "factor": 8.0, "trained_length": 4096,
-                                    "ramp": "ratio", "alpha": 0.0, "beta": 32.0}),
-        ("yarn_ramp_dims_alpha0", {"method": "yarn", "factor": 8.0, "trained_length": 4096,
-                                   "ramp": "dims", "alpha": 0.0, "beta": 32.0}),
-        ("yarn_ramp_dims_high_clamped", {"method": "yarn", "factor": 4.0, "trained_length": 10 ** 9,
-                                         "ramp": "dims", "alpha": 1.0, "beta": 1e6}),
-        ("yarn_ramp_dims_step", {"method": "yarn", "factor": 2.0, "trained_length": 4, "ramp": "dims"}),
-        ("yarn_ramp_dims_bounds_crossed", {"method": "yarn", "factor": 2.0, "trained_length": 4,
-                                           "ramp": "dims", "alpha": 100.0, "beta": 200.0}),
+        ("yarn_ramp_ratio_alpha0", {"method": YARN, "factor": 8.0, "trained_length": 4096,
+                                    "ramp": RATIO, "alpha": 0.0, "beta": 32.0}),
+        ("yarn_ramp_dims_alpha0", {"method": YARN, "factor": 8.0, "trained_length": 4096,
+                                   "ramp": DIMS, "alpha": 0.0, "beta": 32.0}),
+        ("yarn_ramp_dims_high_clamped", {"method": YARN, "factor": 4.0, "trained_length": 10 ** 9,
+                                         "ramp": DIMS, "alpha": 1.0, "beta": 1e6}),
+        ("yarn_ramp_dims_step", {"method": YARN, "factor": 2.0, "trained_length": 4, "ramp": DIMS}),
+        ("yarn_ramp_dims_bounds_crossed", {"method": YARN, "factor": 2.0, "trained_length": 4,
+                                           "ramp": DIMS, "alpha": 100.0, "beta": 200.0}),
     ]:
         seed += 1
-        cases.append(apply_case(name, YARN_SRC, 32, 32, 10000.0, "adjacent", sc, 1.0, [1, len(POS), 32], 0, POS,
+        cases.append(apply_case(name, YARN_SRC, 32, 32, 10000.0, ADJACENT, sc, 1.0, [1, len(POS), 32], 0, POS,
                                 seed, inverse=False))
     # dynamic scaling below the trained length is no scaling at all
-    cases.append(apply_case("dynamic_ntk_shorter_than_trained", DYN_SRC, 16, 16, 10000.0, "adjacent",
-                            {"method": "ntk", "trained_length": 2048, "current_length": 1000},
+    cases.append(apply_case("dynamic_ntk_shorter_than_trained", DYN_SRC, 16, 16, 10000.0, ADJACENT,
+                            {"method": NTK, "trained_length": 2048, "current_length": 1000},
                             1.0, [1, 3, 16], 5, None, 4399))
-    cases.append(apply_case("interpolation_factor_1", PI_SRC, 16, 16, 10000.0, "adjacent",
-                            {"method": "interpolation", "factor": 1.0}, 1.0, [1, 3, 16], 5, None, 4398))
-    cases.append(apply_case("interpolation_factor_3", PI_SRC, 16, 16, 10000.0, "halves",
-                            {"method": "interpolation", "factor": 3.0}, 1.0, [1, 3, 16], 999998, None, 4397))
+    cases.append(apply_case("interpolation_factor_1", PI_SRC, 16, 16, 10000.0, ADJACENT,
+                            {"method": INTERPOLATION, "factor": 1.0}, 1.0, [1, 3, 16], 5, None, 4398))
+    cases.append(apply_case("interpolation_factor_3", PI_SRC, 16, 16, 10000.0, HALVES,
+                            {"method": INTERPOLATION, "factor": 3.0}, 1.0, [1, 3, 16], 999998, None, 4397))
+
+    # Every case below also checks the inverse rotation (ApplyInverse, the
+    # transpose and backward pass) with the scaled frequencies.
+    fr = rng(4370)
+    more = [
+        # name, source, D, r, base, pairing, scaling, magnitude
+        # dynamic YaRN with the dims ramp (the ratio ramp is above)
+        *[("dynamic_yarn_ramp_dims_s%d" % int(s), DYN_SRC + "; ramp: " + YARN_SRC, 32, 32, 10000.0, HALVES,
+           {"method": YARN, "trained_length": 1024, "current_length": int(1024 * s) + 1, "ramp": DIMS}, 1.0)
+          for s in (2.0, 4.0, 8.0, 32.0)],
+        # factors below 1 (s < 1 compresses instead of stretching), for
+        # every method that takes a factor; dynamic scaling has s >= 1
+        ("interpolation_s0.5", PI_SRC, 32, 32, 10000.0, ADJACENT, {"method": INTERPOLATION, "factor": 0.5}, 1.0),
+        ("ntk_s0.5", NTK_SRC, 32, 32, 10000.0, HALVES, {"method": NTK, "factor": 0.5}, 1.0),
+        ("yarn_ramp_ratio_s0.5", YARN_SRC, 32, 32, 10000.0, HALVES,
+         {"method": YARN, "factor": 0.5, "trained_length": 4096, "ramp": RATIO}, 1.0),
+        ("yarn_ramp_dims_s0.5", YARN_SRC, 32, 32, 10000.0, ADJACENT,
+         {"method": YARN, "factor": 0.5, "trained_length": 4096, "ramp": DIMS}, 1.0),
+        ("per_frequency_below_1", PER_FREQ_SRC, 32, 32, 10000.0, HALVES,
+         {"method": PER_FREQUENCY, "factors": [0.25 + 0.75 * fr.random() for _ in range(16)]}, 1.0),
+        # scaling with the inverse rotation, and YaRN with its magnitude
+        ("ntk_s8_inverse", NTK_SRC, 32, 32, 10000.0, HALVES, {"method": NTK, "factor": 8.0}, 1.0),
+        ("yarn_ramp_ratio_s8_magnitude_inverse", YARN_SRC + "; magnitude: " + TEMP_SRC, 32, 32, 10000.0, ADJACENT,
+         {"method": YARN, "factor": 8.0, "trained_length": 4096, "ramp": RATIO}, MAG8),
+        ("yarn_ramp_dims_s8_partial_r16_magnitude_inverse", YARN_SRC + "; magnitude: " + TEMP_SRC,
+         24, 16, 500000.0, HALVES,
+         {"method": YARN, "factor": 8.0, "trained_length": 2048, "ramp": DIMS}, MAG8),
+        ("dynamic_interpolation_s4_inverse", DYN_SRC, 16, 16, 10000.0, HALVES,
+         {"method": INTERPOLATION, "trained_length": 3000, "current_length": 12000}, 1.0),
+        # per-frequency factors with partial rotation: r/2 factors, the
+        # dims from r on passed through
+        ("per_frequency_partial_r12_d20", PER_FREQ_SRC, 20, 12, 10000.0, ADJACENT,
+         {"method": PER_FREQUENCY, "factors": [1.0 + 7.0 * fr.random() for _ in range(6)]}, 1.0),
+        ("per_frequency_partial_r8_d13_halves", PER_FREQ_SRC, 13, 8, 500000.0, HALVES,
+         {"method": PER_FREQUENCY, "factors": [0.5 + 3.5 * fr.random() for _ in range(4)]}, 1.0),
+    ]
+    for k, (name, src, D, r, base, pairing, sc, mag) in enumerate(more):
+        cases.append(apply_case(name, src, D, r, base, pairing, sc, mag, [1, len(POS), D], 0, POS, 4350 + k))
     return cases
 
 
@@ -317,7 +430,7 @@ def build_ntk_base():
     cases = []
     for b, s, r in [(10000.0, 4.0, 128), (10000.0, 2.0, 64), (10000.0, 8.0, 128),
                     (10000.0, 32.0, 128), (500000.0, 4.0, 64), (10000.0, 1.0, 128),
-                    (1e6, 3.5, 16), (10000.0, 8.0, 4)]:
+                    (1e6, 3.5, 16), (10000.0, 8.0, 4), (10000.0, 0.5, 128)]:
         v = mpf(b) * mpf(s) ** (mpf(r) / (r - 2))
         cases.append(case("base%g_s%g_r%d" % (b, s, r), NTK_SRC + ", b' = b s^(|D|/(|D|-2))",
                           {"base": b, "factor": s, "rotated": r}, {},
@@ -357,18 +470,34 @@ def build_alibi_slopes():
     return cases
 
 
+ALIBI_FORM_SRC = {
+    CAUSAL: ALIBI + "; keys after the query: the same formula, -m (p - j) > 0",
+    SYMMETRIC: ALIBI + "; symmetric form: common practice",
+    PAST_ONLY: ALIBI + "; past-only form, 0 for keys after the query: common practice",
+}
+
+
 def build_alibi_bias():
     cases = []
     specs = [
-        ("causal_square_8_heads", 8, 6, 6, "end", 0, "causal"),
-        ("causal_decode_end", 4, 1, 9, "end", 0, "causal"),
-        ("causal_chunk_end", 12, 3, 7, "end", 0, "causal"),
-        ("causal_start_offset", 4, 3, 8, "start", 2, "causal"),
-        ("causal_end_negative_offset", 2, 3, 8, "end", -2, "causal"),
-        ("symmetric_square", 6, 5, 5, "end", 0, "symmetric"),
-        ("symmetric_cross_start", 3, 4, 6, "start", 1, "symmetric"),
-        ("symmetric_end_queries_beyond_keys", 5, 4, 3, "end", 3, "symmetric"),
-        ("causal_empty_keys", 2, 0, 0, "end", 0, "causal"),
+        # name, heads, queries, keys, align, offset, form
+        ("causal_square_8_heads", 8, 6, 6, END, 0, CAUSAL),
+        ("causal_decode_end", 4, 1, 9, END, 0, CAUSAL),
+        ("causal_chunk_end", 12, 3, 7, END, 0, CAUSAL),
+        ("causal_start_offset", 4, 3, 8, START, 2, CAUSAL),
+        ("causal_end_negative_offset", 2, 3, 8, END, -2, CAUSAL),
+        ("symmetric_square", 6, 5, 5, END, 0, SYMMETRIC),
+        ("symmetric_cross_start", 3, 4, 6, START, 1, SYMMETRIC),
+        ("symmetric_end_queries_beyond_keys", 5, 4, 3, END, 3, SYMMETRIC),
+        ("causal_empty_keys", 2, 0, 0, END, 0, CAUSAL),
+        # the geometries above whose causal bias has keys after the query,
+        # in the past-only form: 0 for those keys
+        ("past_only_square_8_heads", 8, 6, 6, END, 0, PAST_ONLY),
+        ("past_only_chunk_end", 12, 3, 7, END, 0, PAST_ONLY),
+        ("past_only_start_offset", 4, 3, 8, START, 2, PAST_ONLY),
+        ("past_only_end_negative_offset", 2, 3, 8, END, -2, PAST_ONLY),
+        # most keys after the query: the causal form's positive bias m (j - p)
+        ("causal_keys_after_query_start", 3, 4, 10, START, 0, CAUSAL),
     ]
     for name, H, Lq, Lk, align, offset, form in specs:
         sl = slopes(H)
@@ -377,15 +506,17 @@ def build_alibi_bias():
         out = []
         for h in range(H):
             for i in range(Lq):
-                p = (Lk - Lq + i + offset) if align == "end" else (i + offset)
+                if align == END:
+                    p = Lk - Lq + i + offset
+                elif align == START:
+                    p = i + offset
+                else:
+                    raise ValueError(align)
                 for j in range(Lk):
-                    d = p - j
-                    if form == "causal" and d < 0:
-                        out.append(mpf(0))
-                    else:
-                        out.append(-mpf(slv[h]) * abs(d))
-        cases.append(case(name, ALIBI + ("" if form == "causal" else "; symmetric form: common practice"),
-                          {"lq": Lq, "lk": Lk, "align": align, "offset": offset, "form": form},
+                    # a distance of 0 gives +0 (mpmath has no -0)
+                    out.append(-mpf(slv[h]) * alibi_distance(form, p, j))
+        cases.append(case(name, ALIBI_FORM_SRC[form],
+                          {"queries": Lq, "keys": Lk, "align": align, "offset": offset, "alibi_form": form},
                           {"slopes": slf}, {"bias": ftensor(out, [H, Lq, Lk])}))
     return cases
 

@@ -1,0 +1,235 @@
+package ops
+
+import (
+	"bytes"
+	"encoding"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"reflect"
+	"strings"
+
+	"github.com/plumbref/plumb/internal/vocab"
+)
+
+// A configuration type is a struct whose fields are its keys, each field
+// tagged with
+//
+//	json:"name"      the key
+//	doc:"…"          one line saying what it does
+//	default:"…"      what an absent key means, or "required"
+//
+// A field of a convention type (one with words, see package vocab) is a
+// word key: its words, their meanings and its default (the zero value's
+// word) come from the convention. A struct field is an object whose fields
+// are keys in turn, a slice of structs a list of such objects; embedded
+// structs add their keys to the outer object.
+
+var textUnmarshaler = reflect.TypeFor[encoding.TextUnmarshaler]()
+
+// keysOf lists the keys of configuration type t (a struct), in the order of
+// its fields, nested keys after the key that holds them.
+func keysOf(t reflect.Type, prefix string) []Key {
+	var keys []Key
+	for i := range t.NumField() {
+		f := t.Field(i)
+		if f.Anonymous {
+			keys = append(keys, keysOf(f.Type, prefix)...)
+			continue
+		}
+		name := strings.Split(f.Tag.Get("json"), ",")[0]
+		if name == "" || name == "-" || name == "version" {
+			continue
+		}
+		k := Key{Name: prefix + name, Doc: f.Tag.Get("doc"), Default: f.Tag.Get("default")}
+		ft := f.Type
+		if ft.Kind() == reflect.Pointer {
+			ft = ft.Elem()
+		}
+		var nested []Key
+		switch {
+		case isWord(ft):
+			e, _ := vocab.Lookup(ft)
+			k.Type, k.Convention = "word", e.Name
+			for _, w := range e.Words {
+				k.Words = append(k.Words, Word{w.Text, w.Meaning})
+			}
+			if k.Default == "" {
+				k.Default = fmt.Sprintf("%q", e.Words[0].Text)
+			}
+		case ft.Kind() == reflect.Struct:
+			k.Type = "object"
+			nested = keysOf(ft, k.Name+".")
+		case ft.Kind() == reflect.Slice && ft.Elem().Kind() == reflect.Struct:
+			k.Type = "[object]"
+			nested = keysOf(ft.Elem(), k.Name+"[].")
+		case ft.Kind() == reflect.Slice:
+			k.Type = "[" + scalarType(ft.Elem()) + "]"
+		default:
+			k.Type = scalarType(ft)
+		}
+		keys = append(append(keys, k), nested...)
+	}
+	return keys
+}
+
+func isWord(t reflect.Type) bool {
+	_, ok := vocab.Lookup(t)
+	return ok && reflect.PointerTo(t).Implements(textUnmarshaler)
+}
+
+func scalarType(t reflect.Type) string {
+	switch t.Kind() {
+	case reflect.Int:
+		return "int"
+	case reflect.Float64:
+		return "number"
+	case reflect.Bool:
+		return "bool"
+	case reflect.String:
+		return "string"
+	}
+	return t.String()
+}
+
+// MaxConfigBytes is the largest configuration this package reads.
+const MaxConfigBytes = 1 << 20
+
+// decodeConfig reads one JSON object into c, refusing unknown keys, missing
+// required keys, words that are not their convention's, trailing data and
+// versions other than ConfigVersion. An empty config means {"version": 1}.
+func decodeConfig(name string, data []byte, c any, keys []Key) error {
+	if len(data) > MaxConfigBytes {
+		return fmt.Errorf("%w: %s: the configuration is %d bytes; at most %d are read", ErrConfig, name, len(data), MaxConfigBytes)
+	}
+	if len(bytes.TrimSpace(data)) == 0 {
+		data = []byte(`{"version":1}`)
+	}
+	dec := json.NewDecoder(bytes.NewReader(data))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(c); err != nil {
+		return configError(name, err, keys)
+	}
+	if dec.More() {
+		return fmt.Errorf("%w: %s: malformed JSON: more than one value in the configuration", ErrConfig, name)
+	}
+	if v := c.(versioned).version(); v != ConfigVersion {
+		if v == 0 {
+			return fmt.Errorf("%w: %s: key \"version\" is missing or 0; this plumb reads version %d", ErrConfig, name, ConfigVersion)
+		}
+		return fmt.Errorf("%w: %s: key \"version\" = %d; this plumb reads version %d", ErrConfig, name, v, ConfigVersion)
+	}
+	var present map[string]json.RawMessage
+	if err := json.Unmarshal(data, &present); err != nil {
+		return configError(name, err, keys)
+	}
+	for _, k := range keys {
+		if k.Default == "required" && !strings.ContainsAny(k.Name, ".[") {
+			if _, ok := present[k.Name]; !ok {
+				return fmt.Errorf("%w: %s: key %q is missing (%s)%s", ErrConfig, name, k.Name, k.Doc, wordList(k))
+			}
+		}
+	}
+	return nil
+}
+
+// wordList is "; want one of a, b" for a word key, else "".
+func wordList(k Key) string {
+	if k.Type != "word" {
+		return ""
+	}
+	w := make([]string, len(k.Words))
+	for i, x := range k.Words {
+		w[i] = x.Text
+	}
+	return "; want one of " + strings.Join(w, ", ")
+}
+
+// configError turns a decoding error into one that names the key.
+func configError(name string, err error, keys []Key) error {
+	var syn *json.SyntaxError
+	var typ *json.UnmarshalTypeError
+	var word *vocab.Error
+	switch {
+	case errors.As(err, &word):
+		var at []string
+		for _, k := range keys {
+			if k.Convention == word.Set {
+				at = append(at, fmt.Sprintf("%q", k.Name))
+			}
+		}
+		where := "a key"
+		if len(at) > 0 {
+			where = "key " + strings.Join(at, " or ")
+		}
+		return vocab.At(err, ErrConfig, name+": "+where)
+	case strings.HasPrefix(err.Error(), "json: unknown field "):
+		key := strings.TrimPrefix(err.Error(), "json: unknown field ")
+		return fmt.Errorf("%w: %s: unknown key %s (see `plumb help %s`)", ErrConfig, name, key, name)
+	case errors.As(err, &syn):
+		return fmt.Errorf("%w: %s: malformed JSON at byte %d: %v", ErrConfig, name, syn.Offset, err)
+	case errors.As(err, &typ):
+		want := typ.Type.String()
+		if isWord(typ.Type) {
+			want = "a word: " + wordsOf(reflect.Zero(typ.Type).Interface())
+		}
+		return fmt.Errorf("%w: %s: key %q holds a JSON %s; want %s", ErrConfig, name, typ.Field, typ.Value, want)
+	case errors.Is(err, io.EOF), errors.Is(err, io.ErrUnexpectedEOF):
+		return fmt.Errorf("%w: %s: malformed JSON: the configuration ends early", ErrConfig, name)
+	}
+	return fmt.Errorf("%w: %s: %w", ErrConfig, name, err)
+}
+
+// wordsOf lists the words of convention v's type, "a, b".
+func wordsOf(v any) string {
+	e, _ := vocab.Lookup(reflect.TypeOf(v))
+	w := make([]string, len(e.Words))
+	for i, x := range e.Words {
+		w[i] = x.Text
+	}
+	return strings.Join(w, ", ")
+}
+
+// Convention is one of plumb's conventions as the configurations meet it:
+// the Go type, what it decides, its words, and the keys that take them.
+type Convention struct {
+	Name     string   `json:"name"`     // the Go type, "attention.GroupMap"
+	Noun     string   `json:"noun"`     // what one value is called, "group map"
+	Question string   `json:"question"` // what the convention decides
+	Words    []Word   `json:"words"`    // every word and its meaning, the default (zero value) first
+	Aliases  []string `json:"aliases,omitempty"`
+	Keys     []string `json:"keys,omitempty"` // "operation: key" for every key that takes the words
+}
+
+// MarshalJSON writes a Word as {"word": …, "meaning": …}.
+func (w Word) MarshalJSON() ([]byte, error) {
+	return json.Marshal(struct {
+		Word    string `json:"word"`
+		Meaning string `json:"meaning"`
+	}{w.Text, w.Meaning})
+}
+
+// Conventions lists every convention of the packages this program links
+// (this package links attention, mask, posenc, norm, ffn and compare),
+// sorted by name, with the operation keys that take its words.
+func Conventions() []Convention {
+	used := map[string][]string{}
+	for _, n := range Names() {
+		o, _ := Lookup(n)
+		for _, k := range o.Keys() {
+			if k.Convention != "" {
+				used[k.Convention] = append(used[k.Convention], n+": "+k.Name)
+			}
+		}
+	}
+	var out []Convention
+	for _, e := range vocab.All() {
+		c := Convention{Name: e.Name, Noun: e.Noun, Question: e.Question, Aliases: e.Aliases, Keys: used[e.Name]}
+		for _, w := range e.Words {
+			c.Words = append(c.Words, Word{w.Text, w.Meaning})
+		}
+		out = append(out, c)
+	}
+	return out
+}

@@ -1,0 +1,30 @@
+package ops
+
+import (
+	"bytes"
+	"encoding/json"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/golden"
+)
+
+// vocabularyFile is where the golden generator (testdata/gen/common.py)
+// reads every convention's words, so that it writes and compares the
+// words the Go side defines and no table of its own.
+const vocabularyFile = "../testdata/gen/vocabulary.json"
+
+// TestVocabularyFile: the generator's copy of the vocabulary is what the
+// code defines. After adding or renaming a word, run
+//
+//	go test ./ops -run TestVocabularyFile -update
+func TestVocabularyFile(t *testing.T) {
+	var b bytes.Buffer
+	b.WriteString("{\n  \"note\": \"written by go test ./ops -run TestVocabularyFile -update from the Go convention types; do not edit\",\n  \"conventions\": ")
+	enc, err := json.MarshalIndent(Conventions(), "  ", "  ")
+	require.NoError(t, err)
+	b.Write(enc)
+	b.WriteString("\n}\n")
+	golden.WholeFile(t, vocabularyFile, b.String())
+}
