@@ -3,6 +3,7 @@ package attention
 import (
 	"fmt"
 
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -50,12 +51,7 @@ import (
 // Accuracy: against the 55 golden cases computed at 50 digits, the worst
 // normwise relative error is 9.7e-16 for O and 2.7e-16 for lse.
 func Forward(q, k, v []float64, s Shape, o Options) (out, lse []float64, err error) {
-	p, err := newPlan(len(q), len(k), len(v), s, &o)
-	if err != nil {
-		return nil, nil, err
-	}
-	out, lse = forward(p, q, k, v)
-	return out, lse, nil
+	return runForward("Forward", q, k, v, s, o, forward)
 }
 
 // Forward32 is the float32 instantiation of the same body as Forward: the
@@ -69,11 +65,17 @@ func Forward(q, k, v []float64, s Shape, o Options) (out, lse []float64, err err
 // float32, logits near ±1000 left out) the worst normwise relative error is
 // 3.9e-7 for O and 6.0e-8 for lse.
 func Forward32(q, k, v []float32, s Shape, o Options) (out, lse []float32, err error) {
-	p, err := newPlan(len(q), len(k), len(v), s, &o)
+	return runForward("Forward32", q, k, v, s, o, forward)
+}
+
+// runForward validates a call of the exported function fn and runs body,
+// one of the forward forms, on it.
+func runForward[T num.Float](fn string, q, k, v []T, s Shape, o Options, body func(p *plan, q, k, v []T) (out, lse []T)) (out, lse []T, err error) {
+	p, err := newPlan(fn, len(q), len(k), len(v), s, &o)
 	if err != nil {
 		return nil, nil, err
 	}
-	out, lse = forward(p, q, k, v)
+	out, lse = body(p, q, k, v)
 	return out, lse, nil
 }
 
@@ -126,12 +128,7 @@ type Grads32 struct {
 // logits near ±1000: 1.0e-13, the conditioning of the problem once the
 // logits are rounded to float64 (see the package doc).
 func Backward(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) {
-	p, err := newBackwardPlan(len(q), len(k), len(v), len(dOut), dLSE != nil, len(dLSE), s, &o)
-	if err != nil {
-		return Grads{}, err
-	}
-	g := backward(p, q, k, v, dOut, dLSE)
-	return Grads{DQ: g.dq, DK: g.dk, DV: g.dv, DSinks: g.dsinks, DBias: g.dbias}, nil
+	return grads64(runBackward("Backward", q, k, v, dOut, dLSE, s, o, backward))
 }
 
 // Backward32 is the float32 instantiation of the same body as Backward: the
@@ -143,28 +140,36 @@ func Backward(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) 
 // Accuracy, as a yardstick: 9.1e-7 worst normwise relative error against
 // the golden cases (inputs rounded to float32, logits near ±1000 left out).
 func Backward32(q, k, v, dOut, dLSE []float32, s Shape, o Options) (Grads32, error) {
-	p, err := newBackwardPlan(len(q), len(k), len(v), len(dOut), dLSE != nil, len(dLSE), s, &o)
-	if err != nil {
-		return Grads32{}, err
-	}
-	g := backward(p, q, k, v, dOut, dLSE)
-	return Grads32{DQ: g.dq, DK: g.dk, DV: g.dv, DSinks: g.dsinks, DBias: g.dbias}, nil
+	return grads32(runBackward("Backward32", q, k, v, dOut, dLSE, s, o, backward))
 }
 
-func newBackwardPlan(qn, kn, vn, dn int, hasLSE bool, ln int, s Shape, o *Options) (*plan, error) {
-	p, err := newPlan(qn, kn, vn, s, o)
+// runBackward validates a call of the exported function fn, with the
+// gradients dOut and dLSE (nil: zero) beside q, k and v, and runs body, one
+// of the backward forms, on it.
+func runBackward[T num.Float](fn string, q, k, v, dOut, dLSE []T, s Shape, o Options, body func(p *plan, q, k, v, dout, dlse []T) grads[T]) (grads[T], error) {
+	p, err := newPlan(fn, len(q), len(k), len(v), s, &o)
 	if err != nil {
-		return nil, err
+		return grads[T]{}, err
 	}
-	if err := checkLen("dOut", dn, s.oLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dv)); err != nil {
-		return nil, err
+	if err := checkLen(ErrLength, fn, "dOut", len(dOut), "Batch·HeadsQ·Lq·Dv", s.Batch, s.HeadsQ, s.Lq, s.Dv); err != nil {
+		return grads[T]{}, err
 	}
-	if hasLSE {
-		if err := checkLen("dLSE", ln, s.lseLen(), fmt.Sprintf("[%d %d %d]", s.Batch, s.HeadsQ, s.Lq)); err != nil {
-			return nil, err
+	if dLSE != nil {
+		if err := checkLen(ErrLength, fn, "dLSE", len(dLSE), "Batch·HeadsQ·Lq", s.Batch, s.HeadsQ, s.Lq); err != nil {
+			return grads[T]{}, err
 		}
 	}
-	return p, nil
+	return body(p, q, k, v, dOut, dLSE), nil
+}
+
+// grads64 and grads32 return the gradients of runBackward in the exported
+// types.
+func grads64(g grads[float64], err error) (Grads, error) {
+	return Grads{DQ: g.dq, DK: g.dk, DV: g.dv, DSinks: g.dsinks, DBias: g.dbias}, err
+}
+
+func grads32(g grads[float32], err error) (Grads32, error) {
+	return Grads32{DQ: g.dq, DK: g.dk, DV: g.dv, DSinks: g.dsinks, DBias: g.dbias}, err
 }
 
 // Decode is attention of new queries against a key/value cache: the Lq
@@ -185,23 +190,41 @@ func newBackwardPlan(qn, kn, vn, dn int, hasLSE bool, ln int, s Shape, o *Option
 // Accuracy: that of Forward. Decoding one token at a time reproduces the
 // rows of the causal prefill bit for bit (TestDecodeReproducesPrefill).
 func Decode(q, kCache, vCache []float64, s Shape, pos int, o Options) (out, lse []float64, err error) {
-	if err := decodeOptions(s, pos, &o); err != nil {
-		return nil, nil, err
-	}
-	return Forward(q, kCache, vCache, s, o)
+	return decode("Decode", q, kCache, vCache, s, pos, o)
 }
 
-func decodeOptions(s Shape, pos int, o *Options) error {
+// Decode32 is the float32 instantiation of the same body as Decode (that
+// of Forward32): the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference.
+//
+// Special cases are those of Decode. Accuracy, as a yardstick: that of
+// Forward32. Decoding one token at a time reproduces the rows of the
+// causal prefill of Forward32 bit for bit.
+func Decode32(q, kCache, vCache []float32, s Shape, pos int, o Options) (out, lse []float32, err error) {
+	return decode("Decode32", q, kCache, vCache, s, pos, o)
+}
+
+func decode[T num.Float](fn string, q, k, v []T, s Shape, pos int, o Options) (out, lse []T, err error) {
+	if err := decodeOptions(fn, s, pos, &o); err != nil {
+		return nil, nil, err
+	}
+	return runForward(fn, q, k, v, s, o, forward)
+}
+
+// decodeOptions turns the options of a decoding call into those of
+// Forward: the queries at key positions pos …, the causal mask
+// intersected with o.Mask.
+func decodeOptions(fn string, s Shape, pos int, o *Options) error {
 	if pos < 0 || pos+s.Lq > s.Lk {
-		return fmt.Errorf("%w: Decode: pos = %d with Lq = %d puts queries at positions %d … %d; the cache holds Lk = %d keys",
-			ErrOption, pos, s.Lq, pos, pos+s.Lq-1, s.Lk)
+		return fmt.Errorf("%w: %s: pos = %d; want 0 ≤ pos ≤ Lk − Lq = %d (the Lq = %d queries sit at positions pos … pos+Lq−1 of the Lk = %d cached keys)",
+			ErrOption, fn, pos, s.Lk-s.Lq, s.Lq, s.Lk)
 	}
 	m := mask.Causal()
 	if !isZeroMask(o.Mask) {
 		var err error
 		m, err = mask.Intersect(m, o.Mask)
 		if err != nil {
-			return fmt.Errorf("%w: %w", ErrMask, err)
+			return fmt.Errorf("%w: %s: Options.Mask = %v; want a mask that the causal mask can be intersected with (%w)", ErrMask, fn, o.Mask, err)
 		}
 	}
 	o.Mask, o.Align, o.Offset = m, mask.AlignStart, pos

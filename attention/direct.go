@@ -98,37 +98,57 @@ func softmaxRow[T num.Float](s []T, sink T, emptyNaN bool) (lse, psink T, empty 
 	return m + T(math.Log(float64(sum))), es / sum, false
 }
 
+// queryRow names one query row: row i of query head h in batch entry b,
+// which reads kv head kv.
+type queryRow struct{ b, h, kv, i int }
+
+// rows walks every query row, batch entry by batch entry, query head by
+// query head, row by row: the order in which the direct and tiled forms
+// compute (and sum) them.
+func (p *plan) rows(yield func(queryRow) bool) {
+	for b := range p.s.Batch {
+		for h := range p.s.HeadsQ {
+			kv := p.kvHead(h)
+			for i := range p.s.Lq {
+				if !yield(queryRow{b, h, kv, i}) {
+					return
+				}
+			}
+		}
+	}
+}
+
+// probsRow writes the probabilities of every key for row r into row (and
+// the cap's derivatives into sech2, when not nil) and returns softmaxRow's
+// log-sum-exp, sink probability and emptiness.
+func probsRow[T num.Float](p *plan, q, k []T, r queryRow, row, sech2 []T) (lse, psink T, empty bool) {
+	logitsRow(p, q, k, r.b, r.h, r.i, 0, row, sech2)
+	return softmaxRow(row, T(p.sinkLogit(r.h)), p.emptyNaN)
+}
+
 // forward is the direct form of Forward.
 func forward[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 	s := p.s
 	out = make([]T, s.oLen())
 	lse = make([]T, s.lseLen())
 	row := make([]T, s.Lk)
-	for b := 0; b < s.Batch; b++ {
-		for h := 0; h < s.HeadsQ; h++ {
-			kv := p.kvHead(h)
-			for i := 0; i < s.Lq; i++ {
-				logitsRow(p, q, k, b, h, i, 0, row, nil)
-				l, _, empty := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
-				lse[p.lOff(b, h, i)] = l
-				oi := out[p.oOff(b, h, i):][:s.Dv]
-				if empty && p.emptyNaN {
-					// Also when Lk = 0, where there is no weight to carry
-					// the NaN into the sum below.
-					for d := range oi {
-						oi[d] = T(math.NaN())
-					}
-					continue
-				}
-				for j, pj := range row {
-					if pj == 0 {
-						continue // a key of weight 0 contributes nothing
-					}
-					vj := v[p.vOff(b, kv, j):][:s.Dv]
-					for d, x := range vj {
-						oi[d] += T(pj * x)
-					}
-				}
+	for r := range p.rows {
+		l, _, empty := probsRow(p, q, k, r, row, nil)
+		lse[p.lOff(r.b, r.h, r.i)] = l
+		oi := out[p.oOff(r.b, r.h, r.i):][:s.Dv]
+		if empty && p.emptyNaN {
+			// Also when Lk = 0, where there is no weight to carry the NaN
+			// into the sum below.
+			nanFill(oi)
+			continue
+		}
+		for j, pj := range row {
+			if pj == 0 {
+				continue // a key of weight 0 contributes nothing
+			}
+			vj := v[p.vOff(r.b, r.kv, j):][:s.Dv]
+			for d, x := range vj {
+				oi[d] += T(pj * x)
 			}
 		}
 	}
@@ -186,66 +206,61 @@ func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 		sech2 = make([]T, s.Lk)
 	}
 	scale := T(p.scale)
-	for b := 0; b < s.Batch; b++ {
-		for h := 0; h < s.HeadsQ; h++ {
-			kv := p.kvHead(h)
-			for i := 0; i < s.Lq; i++ {
-				logitsRow(p, q, k, b, h, i, 0, row, sech2)
-				_, psink, empty := softmaxRow(row, T(p.sinkLogit(h)), p.emptyNaN)
-				if empty && !p.emptyNaN {
-					continue // an empty row under EmptyRowZero is constant
-				}
-				var gl T
-				if dlse != nil {
-					gl = dlse[p.lOff(b, h, i)]
-				}
-				doi := dout[p.oOff(b, h, i):][:s.Dv]
-				qi := q[p.qOff(b, h, i):][:s.Dk]
-				dqi := g.dq[p.qOff(b, h, i):][:s.Dk]
-				// dP_j = dO_i · v_j.
-				for j, pj := range row {
-					if pj == 0 {
-						continue
-					}
-					vj := v[p.vOff(b, kv, j):][:s.Dv]
-					var acc T
-					for d, x := range doi {
-						acc += T(x * vj[d])
-					}
-					dp[j] = acc
-				}
-				c, dsum := centredD(row, dp, psink)
-				if g.dsinks != nil {
-					// dσ = P_sink (dLSE − D) with D − c = dsum and the
-					// sink's own dP = 0.
-					g.dsinks[h] += T(psink * (gl - (dsum + c)))
-				}
-				br := p.biasRow(b, h, i)
-				for j, pj := range row {
-					if pj == 0 {
-						continue
-					}
-					// dS_ij = P_ij (dP_ij − D_i + dLSE_i).
-					ds := T(pj * (((dp[j] - c) - dsum) + gl)) // rounded: not fused into the dbias sum
-					if br >= 0 {
-						g.dbias[br+j] += ds
-					}
-					dt := ds
-					if sech2 != nil {
-						dt *= sech2[j]
-					}
-					dt *= scale
-					kj := k[p.kOff(b, kv, j):][:s.Dk]
-					dkj := g.dk[p.kOff(b, kv, j):][:s.Dk]
-					for d := range qi {
-						dqi[d] += T(dt * kj[d])
-						dkj[d] += T(dt * qi[d])
-					}
-					dvj := g.dv[p.vOff(b, kv, j):][:s.Dv]
-					for d, x := range doi {
-						dvj[d] += T(pj * x)
-					}
-				}
+	for r := range p.rows {
+		b, h, kv, i := r.b, r.h, r.kv, r.i
+		_, psink, empty := probsRow(p, q, k, r, row, sech2)
+		if empty && !p.emptyNaN {
+			continue // an empty row under EmptyRowZero is constant
+		}
+		var gl T
+		if dlse != nil {
+			gl = dlse[p.lOff(b, h, i)]
+		}
+		doi := dout[p.oOff(b, h, i):][:s.Dv]
+		qi := q[p.qOff(b, h, i):][:s.Dk]
+		dqi := g.dq[p.qOff(b, h, i):][:s.Dk]
+		// dP_j = dO_i · v_j.
+		for j, pj := range row {
+			if pj == 0 {
+				continue
+			}
+			vj := v[p.vOff(b, kv, j):][:s.Dv]
+			var acc T
+			for d, x := range doi {
+				acc += T(x * vj[d])
+			}
+			dp[j] = acc
+		}
+		c, dsum := centredD(row, dp, psink)
+		if g.dsinks != nil {
+			// dσ = P_sink (dLSE − D) with D − c = dsum and the
+			// sink's own dP = 0.
+			g.dsinks[h] += T(psink * (gl - (dsum + c)))
+		}
+		br := p.biasRow(b, h, i)
+		for j, pj := range row {
+			if pj == 0 {
+				continue
+			}
+			// dS_ij = P_ij (dP_ij − D_i + dLSE_i).
+			ds := T(pj * (((dp[j] - c) - dsum) + gl)) // rounded: not fused into the dbias sum
+			if br >= 0 {
+				g.dbias[br+j] += ds
+			}
+			dt := ds
+			if sech2 != nil {
+				dt *= sech2[j]
+			}
+			dt *= scale
+			kj := k[p.kOff(b, kv, j):][:s.Dk]
+			dkj := g.dk[p.kOff(b, kv, j):][:s.Dk]
+			for d := range qi {
+				dqi[d] += T(dt * kj[d])
+				dkj[d] += T(dt * qi[d])
+			}
+			dvj := g.dv[p.vOff(b, kv, j):][:s.Dv]
+			for d, x := range doi {
+				dvj[d] += T(pj * x)
 			}
 		}
 	}

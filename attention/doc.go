@@ -67,17 +67,26 @@
 // blocked (64 query rows), use gonum's BLAS for every product, run in
 // parallel over independent outputs, hold at most a few 64 × Lk blocks per
 // worker, and are bit-identical for any GOMAXPROCS; they are proved equal to
-// the direct form within 1e-14 by the tests. Forward32, Backward32 and
-// ForwardFast32 are the float32 instantiations of the same bodies: the
-// straightforward low-precision implementation the compare package uses as
-// a yardstick; not a reference.
+// the direct form within 1e-14 by the tests.
+//
+// Every exported function that takes or returns tensors has a float32 twin
+// named with the suffix 32 (Forward32, BackwardFast32, Merge32, …) that
+// runs the same generic body instantiated at float32: the straightforward
+// low-precision implementation a yardstick is measured on, never a
+// reference. Scalar functions and functions of parameters or tables are
+// float64 only; Options, and so the bias, slopes and sinks, stay float64 in
+// the twins.
 //
 // Determinism: every form gives bit-identical results for any GOMAXPROCS.
 // The direct and tiled forms round every product before it is added (no
 // fused multiply-add), so they also agree across architectures up to the
 // math package's Exp, Log, Tanh and Cosh, which are assembly on some
 // architectures and Go on others; the fast form depends in addition on
-// gonum's kernels for the architecture.
+// gonum's kernels for the architecture. The float32 fast forms
+// (ForwardFast32, BackwardFast32) depend besides on where the slices lie in
+// memory: gonum's float32 kernels can give other last bits for the same
+// values at other addresses (measured on amd64), which the float64 kernels
+// do not.
 //
 // The backward pass uses D_i − c = Σ_j P_ij (dP_ij − c) − c·P_sink, with c
 // the dP of the row's most probable entry, instead of D_i = dO_i · O_i:
@@ -98,7 +107,7 @@
 //	Inf or NaN in a V row of weight 0   ignored by the direct and tiled forms;
 //	                                    NaN in the fast form (0·Inf in BLAS)
 //	Batch = 0 or Lq = 0                 empty outputs
-//	bad input                           an error wrapping ErrShape, ErrLength,
+//	invalid input                       an error wrapping ErrShape, ErrLength,
 //	                                    ErrOption, ErrBias or ErrMask; never a panic
 //
 // # Accuracy

@@ -12,70 +12,129 @@ import (
 	"github.com/plumbref/plumb/mask"
 )
 
+// forms are the exported functions that take q, k and v, each with its
+// name, run on float64 arguments (the float32 twins on them rounded).
+var forms = []struct {
+	fn  string
+	run func(q, k, v, dOut []float64, s Shape, o Options) error
+}{
+	{"Forward", func(q, k, v, _ []float64, s Shape, o Options) error { _, _, err := Forward(q, k, v, s, o); return err }},
+	{"Forward32", func(q, k, v, _ []float64, s Shape, o Options) error {
+		_, _, err := Forward32(f32(q), f32(k), f32(v), s, o)
+		return err
+	}},
+	{"ForwardTiled", func(q, k, v, _ []float64, s Shape, o Options) error {
+		_, _, err := ForwardTiled(q, k, v, s, 2, o)
+		return err
+	}},
+	{"ForwardTiled32", func(q, k, v, _ []float64, s Shape, o Options) error {
+		_, _, err := ForwardTiled32(f32(q), f32(k), f32(v), s, 2, o)
+		return err
+	}},
+	{"ForwardFast", func(q, k, v, _ []float64, s Shape, o Options) error {
+		_, _, err := ForwardFast(q, k, v, s, o)
+		return err
+	}},
+	{"ForwardFast32", func(q, k, v, _ []float64, s Shape, o Options) error {
+		_, _, err := ForwardFast32(f32(q), f32(k), f32(v), s, o)
+		return err
+	}},
+	{"Backward", func(q, k, v, d []float64, s Shape, o Options) error {
+		_, err := Backward(q, k, v, d, nil, s, o)
+		return err
+	}},
+	{"Backward32", func(q, k, v, d []float64, s Shape, o Options) error {
+		_, err := Backward32(f32(q), f32(k), f32(v), f32(d), nil, s, o)
+		return err
+	}},
+	{"BackwardFast", func(q, k, v, d []float64, s Shape, o Options) error {
+		_, err := BackwardFast(q, k, v, d, nil, s, o)
+		return err
+	}},
+	{"BackwardFast32", func(q, k, v, d []float64, s Shape, o Options) error {
+		_, err := BackwardFast32(f32(q), f32(k), f32(v), f32(d), nil, s, o)
+		return err
+	}},
+}
+
+var f32 = num.Convert[float32, float64]
+
+var sentinels = []error{ErrShape, ErrLength, ErrOption, ErrBias, ErrMask}
+
+// checkError asserts that err wraps want and no other sentinel of the
+// package, and reads "<want>: <fn>: <detail>".
+func checkError(t *testing.T, err, want error, fn, detail string) {
+	t.Helper()
+	require.Error(t, err)
+	assert.ErrorIs(t, err, want)
+	for _, other := range sentinels {
+		if other != want {
+			assert.False(t, errors.Is(err, other), "%q also wraps %v", err, other)
+		}
+	}
+	assert.Equal(t, want.Error()+": "+fn+": "+detail, err.Error())
+}
+
+// TestErrors runs every form, float64 and float32, on each invalid input
+// and checks the whole message; the float32 twins fail as their float64
+// functions do, with the same sentinel and their own name.
 func TestErrors(t *testing.T) {
 	good := Shape{Batch: 2, HeadsQ: 4, HeadsKV: 2, Lq: 3, Lk: 5, Dk: 4, Dv: 2}
 	pad, err := mask.KeyPadding([]int{5, 5, 5}) // three lengths for two batch entries
 	require.NoError(t, err)
+	// The mask package's own reasons, which the message quotes.
+	padWhy := pad.Check(mask.Geometry{Batch: 2, Lq: 3, Lk: 5}).Error()
+	causalWhy := mask.Causal().Check(mask.Geometry{Batch: 2, Lq: 3, Lk: 5, Align: mask.AlignStart, Offset: 3}).Error()
 	nan := math.NaN()
 	for _, tc := range []struct {
-		name     string
-		s        Shape
-		o        Options
-		dq, dk   int // change of length of Q, K
-		want     error
-		contains string
+		name   string
+		s      Shape
+		o      Options
+		dq, dk int // change of length of Q, K
+		want   error
+		detail string
 	}{
-		{"heads not a multiple", Shape{2, 8, 3, 3, 5, 4, 2}, Options{}, 0, 0, ErrShape, "K has 3 heads, Q has 8; 8 is not a multiple of 3"},
-		{"Dk zero", Shape{2, 4, 2, 3, 5, 0, 2}, Options{}, 0, 0, ErrShape, "Dk = 0"},
-		{"Dv zero", Shape{2, 4, 2, 3, 5, 4, 0}, Options{}, 0, 0, ErrShape, "Dv = 0"},
-		{"negative Lq", Shape{2, 4, 2, -1, 5, 4, 2}, Options{}, 0, 0, ErrShape, "Lq = -1"},
-		{"no kv heads", Shape{2, 4, 0, 3, 5, 4, 2}, Options{}, 0, 0, ErrShape, "HeadsKV = 0"},
-		{"Q too short", good, Options{}, -1, 0, ErrLength, "Q has 95 elements; shape [2 4 3 4] = 96"},
-		{"K too long", good, Options{}, 0, 1, ErrLength, "K has 81 elements; shape [2 2 5 4] = 80"},
-		{"scale negative", good, Options{Scale: -1}, 0, 0, ErrOption, "Scale = -1"},
-		{"scale NaN", good, Options{Scale: nan}, 0, 0, ErrOption, "Scale = NaN"},
-		{"scale Inf", good, Options{Scale: math.Inf(1)}, 0, 0, ErrOption, "Scale = +Inf"},
-		{"cap negative", good, Options{SoftCap: -30}, 0, 0, ErrOption, "SoftCap = -30"},
-		{"cap NaN", good, Options{SoftCap: nan}, 0, 0, ErrOption, "SoftCap = NaN"},
-		{"layout", good, Options{Layout: 7}, 0, 0, ErrOption, "attention: invalid option: layout = 7; want one of heads-major, seq-major"},
-		{"group", good, Options{Group: 2}, 0, 0, ErrOption, "attention: invalid option: group map = 2; want one of blocks, cycle"},
-		{"empty row policy", good, Options{EmptyRow: 3}, 0, 0, ErrOption, "attention: invalid option: empty-row policy = 3; want one of zero, nan"},
-		{"ALiBi form", good, Options{Slopes: []float64{1, 1, 1, 1}, ALiBi: 3}, 0, 0, mask.ErrALiBi, "ALiBi form = 3; want one of causal, symmetric, past-only"},
-		{"bias heads", good, Options{Bias: make([]float64, 2*2*15), BiasBatch: 2, BiasHeads: 2}, 0, 0, ErrBias, "BiasHeads = 2; want 1 or HeadsQ = 4"},
-		{"bias batch", good, Options{Bias: make([]float64, 3*15), BiasBatch: 3, BiasHeads: 1}, 0, 0, ErrBias, "BiasBatch = 3; want 1 or Batch = 2"},
-		{"bias length", good, Options{Bias: make([]float64, 14), BiasBatch: 1, BiasHeads: 1}, 0, 0, ErrBias, "Bias has 14 elements; shape [1 1 3 5] = 15"},
-		{"bias dims unset", good, Options{Bias: make([]float64, 15)}, 0, 0, ErrBias, "BiasBatch = 0"},
-		{"slopes length", good, Options{Slopes: []float64{1, 2}}, 0, 0, ErrLength, "Slopes has 2 elements; want one per query head, HeadsQ = 4"},
-		{"slope NaN", good, Options{Slopes: []float64{1, nan, 1, 1}}, 0, 0, ErrOption, "Slopes[1] = NaN"},
-		{"sinks length", good, Options{Sinks: []float64{1}}, 0, 0, ErrLength, "Sinks has 1 elements"},
-		{"sink +Inf", good, Options{Sinks: []float64{0, 0, math.Inf(1), 0}}, 0, 0, ErrOption, "Sinks[2] = +Inf"},
-		{"mask wrong size", good, Options{Mask: pad}, 0, 0, ErrMask, "KeyPadding has 3 valid lengths, Batch = 2"},
-		{"causal query outside keys", good, Options{Mask: mask.Causal(), Align: mask.AlignStart, Offset: 3}, 0, 0, ErrMask, "Offset = 3"},
-		{"ALiBi query outside keys", good, Options{Slopes: []float64{1, 1, 1, 1}, Align: mask.AlignStart, Offset: 4}, 0, 0, ErrOption, "key positions 4 … 6"},
+		{"heads not a multiple", Shape{2, 8, 3, 3, 5, 4, 2}, Options{}, 0, 0, ErrShape, "Shape.HeadsQ = 8; want a multiple of HeadsKV = 3"},
+		{"negative batch", Shape{-1, 4, 2, 3, 5, 4, 2}, Options{}, 0, 0, ErrShape, "Shape.Batch = -1; want ≥ 0"},
+		{"Dk zero", Shape{2, 4, 2, 3, 5, 0, 2}, Options{}, 0, 0, ErrShape, "Shape.Dk = 0; want ≥ 1"},
+		{"Dv zero", Shape{2, 4, 2, 3, 5, 4, 0}, Options{}, 0, 0, ErrShape, "Shape.Dv = 0; want ≥ 1"},
+		{"negative Lq", Shape{2, 4, 2, -1, 5, 4, 2}, Options{}, 0, 0, ErrShape, "Shape.Lq = -1; want ≥ 0"},
+		{"negative Lk", Shape{2, 4, 2, 3, -2, 4, 2}, Options{}, 0, 0, ErrShape, "Shape.Lk = -2; want ≥ 0"},
+		{"no kv heads", Shape{2, 4, 0, 3, 5, 4, 2}, Options{}, 0, 0, ErrShape, "Shape.HeadsKV = 0; want ≥ 1"},
+		{"Q too short", good, Options{}, -1, 0, ErrLength, "q has 95 elements; want Batch·HeadsQ·Lq·Dk = 2·4·3·4 = 96"},
+		{"K too long", good, Options{}, 0, 1, ErrLength, "k has 81 elements; want Batch·HeadsKV·Lk·Dk = 2·2·5·4 = 80"},
+		{"scale negative", good, Options{Scale: -1}, 0, 0, ErrOption, "Options.Scale = -1; want a positive finite number, or 0 for 1/√Dk"},
+		{"scale NaN", good, Options{Scale: nan}, 0, 0, ErrOption, "Options.Scale = NaN; want a positive finite number, or 0 for 1/√Dk"},
+		{"scale Inf", good, Options{Scale: math.Inf(1)}, 0, 0, ErrOption, "Options.Scale = +Inf; want a positive finite number, or 0 for 1/√Dk"},
+		{"cap negative", good, Options{SoftCap: -30}, 0, 0, ErrOption, "Options.SoftCap = -30; want a positive finite number, or 0 for no cap"},
+		{"cap NaN", good, Options{SoftCap: nan}, 0, 0, ErrOption, "Options.SoftCap = NaN; want a positive finite number, or 0 for no cap"},
+		{"layout", good, Options{Layout: 7}, 0, 0, ErrOption, "Options.Layout = 7; want one of heads-major, seq-major"},
+		{"group", good, Options{Group: 2}, 0, 0, ErrOption, "Options.Group = 2; want one of blocks, cycle"},
+		{"empty row policy", good, Options{EmptyRow: 3}, 0, 0, ErrOption, "Options.EmptyRow = 3; want one of zero, nan"},
+		{"ALiBi form", good, Options{Slopes: []float64{1, 1, 1, 1}, ALiBi: 3}, 0, 0, ErrOption, "Options.ALiBi = 3; want one of causal, symmetric, past-only"},
+		{"bias heads", good, Options{Bias: make([]float64, 2*2*15), BiasBatch: 2, BiasHeads: 2}, 0, 0, ErrBias, "Options.BiasHeads = 2; want 1 or HeadsQ = 4"},
+		{"bias batch", good, Options{Bias: make([]float64, 3*15), BiasBatch: 3, BiasHeads: 1}, 0, 0, ErrBias, "Options.BiasBatch = 3; want 1 or Batch = 2"},
+		{"bias length", good, Options{Bias: make([]float64, 14), BiasBatch: 1, BiasHeads: 1}, 0, 0, ErrBias, "Options.Bias has 14 elements; want BiasBatch·BiasHeads·Lq·Lk = 1·1·3·5 = 15"},
+		{"bias dims unset", good, Options{Bias: make([]float64, 15)}, 0, 0, ErrBias, "Options.BiasBatch = 0; want 1 or Batch = 2"},
+		{"slopes length", good, Options{Slopes: []float64{1, 2}}, 0, 0, ErrLength, "Options.Slopes has 2 elements; want HeadsQ = 4"},
+		{"slope NaN", good, Options{Slopes: []float64{1, nan, 1, 1}}, 0, 0, ErrOption, "Options.Slopes[1] = NaN; want a finite number"},
+		{"sinks length", good, Options{Sinks: []float64{1}}, 0, 0, ErrLength, "Options.Sinks has 1 elements; want HeadsQ = 4"},
+		{"sink +Inf", good, Options{Sinks: []float64{0, 0, math.Inf(1), 0}}, 0, 0, ErrOption, "Options.Sinks[2] = +Inf; want a finite number or −Inf"},
+		{"mask wrong size", good, Options{Mask: pad}, 0, 0, ErrMask,
+			"Options.Mask = KeyPadding([5 5 5]); want a mask that fits Batch = 2, Lq = 3, Lk = 5, Align = end, Offset = 0 (" + padWhy + ")"},
+		{"causal query outside keys", good, Options{Mask: mask.Causal(), Align: mask.AlignStart, Offset: 3}, 0, 0, ErrMask,
+			"Options.Mask = Causal; want a mask that fits Batch = 2, Lq = 3, Lk = 5, Align = start, Offset = 3 (" + causalWhy + ")"},
+		{"ALiBi query outside keys", good, Options{Slopes: []float64{1, 1, 1, 1}, Align: mask.AlignStart, Offset: 4}, 0, 0, ErrOption,
+			"Options.Offset = 4 (queries at key positions 4 … 6 with Align = start, Lq = 3, Lk = 5); want every query at a key position 0 … 4, as ALiBi needs"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			q := make([]float64, max(0, tc.s.Batch*tc.s.HeadsQ*tc.s.Lq*tc.s.Dk+tc.dq))
 			k := make([]float64, max(0, tc.s.Batch*tc.s.HeadsKV*tc.s.Lk*tc.s.Dk+tc.dk))
 			v := make([]float64, max(0, tc.s.Batch*tc.s.HeadsKV*tc.s.Lk*tc.s.Dv))
 			dOut := make([]float64, max(0, tc.s.Batch*tc.s.HeadsQ*tc.s.Lq*tc.s.Dv))
-			check := func(err error) {
-				t.Helper()
-				require.Error(t, err)
-				assert.ErrorIs(t, err, tc.want)
-				assert.Contains(t, err.Error(), tc.contains)
+			for _, f := range forms {
+				checkError(t, f.run(q, k, v, dOut, tc.s, tc.o), tc.want, f.fn, tc.detail)
 			}
-			_, _, err := Forward(q, k, v, tc.s, tc.o)
-			check(err)
-			_, _, err = Forward32(num.Convert[float32](q), num.Convert[float32](k), num.Convert[float32](v), tc.s, tc.o)
-			check(err)
-			_, _, err = ForwardTiled(q, k, v, tc.s, 2, tc.o)
-			check(err)
-			_, _, err = ForwardFast(q, k, v, tc.s, tc.o)
-			check(err)
-			_, err = Backward(q, k, v, dOut, nil, tc.s, tc.o)
-			check(err)
-			_, err = BackwardFast(q, k, v, dOut, nil, tc.s, tc.o)
-			check(err)
 		})
 	}
 }
@@ -95,7 +154,7 @@ func TestErrorsALiBiForm(t *testing.T) {
 	_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Slopes: []float64{0.5}, ALiBi: 9})
 	assert.ErrorIs(t, err, ErrOption)
 	assert.ErrorIs(t, err, mask.ErrALiBi)
-	assert.ErrorContains(t, err, "ALiBi form = 9; want one of causal, symmetric, past-only")
+	assert.EqualError(t, err, "attention: invalid option: Forward: Options.ALiBi = 9; want one of causal, symmetric, past-only")
 	for _, f := range mask.ALiBiCausal.Values() {
 		_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Slopes: []float64{0.5}, ALiBi: f})
 		assert.NoError(t, err, "%v", f)
@@ -105,34 +164,65 @@ func TestErrorsALiBiForm(t *testing.T) {
 func TestErrorsBackwardLengths(t *testing.T) {
 	s := Shape{Batch: 1, HeadsQ: 2, HeadsKV: 1, Lq: 2, Lk: 3, Dk: 2, Dv: 2}
 	q, k, v := make([]float64, 8), make([]float64, 6), make([]float64, 6)
-	_, err := Backward(q, k, v, make([]float64, 7), nil, s, Options{})
-	assert.ErrorIs(t, err, ErrLength)
-	assert.ErrorContains(t, err, "dOut has 7 elements; shape [1 2 2 2] = 8")
-	_, err = Backward(q, k, v, make([]float64, 8), make([]float64, 3), s, Options{})
-	assert.ErrorIs(t, err, ErrLength)
-	assert.ErrorContains(t, err, "dLSE has 3 elements; shape [1 2 2] = 4")
-	_, err = Backward32(num.Convert[float32](q), num.Convert[float32](k), num.Convert[float32](v), make([]float32, 8), make([]float32, 5), s, Options{})
-	assert.ErrorIs(t, err, ErrLength)
+	for _, tc := range []struct {
+		dOut, dLSE []float64
+		detail     string
+	}{
+		{make([]float64, 7), nil, "dOut has 7 elements; want Batch·HeadsQ·Lq·Dv = 1·2·2·2 = 8"},
+		{make([]float64, 8), make([]float64, 3), "dLSE has 3 elements; want Batch·HeadsQ·Lq = 1·2·2 = 4"},
+		{make([]float64, 8), []float64{}, "dLSE has 0 elements; want Batch·HeadsQ·Lq = 1·2·2 = 4"},
+	} {
+		_, err := Backward(q, k, v, tc.dOut, tc.dLSE, s, Options{})
+		checkError(t, err, ErrLength, "Backward", tc.detail)
+		_, err = BackwardFast(q, k, v, tc.dOut, tc.dLSE, s, Options{})
+		checkError(t, err, ErrLength, "BackwardFast", tc.detail)
+		_, err = Backward32(f32(q), f32(k), f32(v), f32(tc.dOut), f32(tc.dLSE), s, Options{})
+		checkError(t, err, ErrLength, "Backward32", tc.detail)
+		_, err = BackwardFast32(f32(q), f32(k), f32(v), f32(tc.dOut), f32(tc.dLSE), s, Options{})
+		checkError(t, err, ErrLength, "BackwardFast32", tc.detail)
+	}
 }
 
 func TestErrorsTiledMergeDecode(t *testing.T) {
 	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 2, Lk: 3, Dk: 1, Dv: 1}
 	q, k, v := make([]float64, 2), make([]float64, 3), make([]float64, 3)
 	_, _, err := ForwardTiled(q, k, v, s, 0, Options{})
-	assert.ErrorIs(t, err, ErrOption)
-	assert.ErrorContains(t, err, "block = 0")
-	_, _, err = Merge(make([]float64, 4), make([]float64, 2), make([]float64, 4), make([]float64, 3), 2)
-	assert.ErrorIs(t, err, ErrLength)
-	assert.ErrorContains(t, err, "lseA has 2 rows, lseB has 3")
-	_, _, err = Merge(make([]float64, 5), make([]float64, 2), make([]float64, 4), make([]float64, 2), 2)
-	assert.ErrorIs(t, err, ErrLength)
-	_, _, err = Merge(nil, nil, nil, nil, 0)
-	assert.ErrorIs(t, err, ErrShape)
-	_, _, err = Decode(q, k, v, s, 2, Options{})
-	assert.ErrorIs(t, err, ErrOption)
-	assert.ErrorContains(t, err, "pos = 2 with Lq = 2 puts queries at positions 2 … 3; the cache holds Lk = 3 keys")
-	_, _, err = Decode(q, k, v, s, -1, Options{})
-	assert.ErrorIs(t, err, ErrOption)
+	checkError(t, err, ErrOption, "ForwardTiled", "block = 0; want ≥ 1 key per block")
+	_, _, err = ForwardTiled32(f32(q), f32(k), f32(v), s, -1, Options{})
+	checkError(t, err, ErrOption, "ForwardTiled32", "block = -1; want ≥ 1 key per block")
+
+	for _, tc := range []struct {
+		outA, lseA, outB, lseB []float64
+		dv                     int
+		want                   error
+		detail                 string
+	}{
+		{make([]float64, 4), make([]float64, 2), make([]float64, 4), make([]float64, 3), 2, ErrLength, "lseB has 3 elements; want len(lseA) = 2"},
+		{make([]float64, 5), make([]float64, 2), make([]float64, 4), make([]float64, 2), 2, ErrLength, "outA has 5 elements; want len(lseA)·dv = 2·2 = 4"},
+		{make([]float64, 4), make([]float64, 2), make([]float64, 6), make([]float64, 2), 2, ErrLength, "outB has 6 elements; want len(lseB)·dv = 2·2 = 4"},
+		{nil, nil, nil, nil, 0, ErrShape, "dv = 0; want ≥ 1"},
+	} {
+		_, _, err := Merge(tc.outA, tc.lseA, tc.outB, tc.lseB, tc.dv)
+		checkError(t, err, tc.want, "Merge", tc.detail)
+		_, _, err = Merge32(f32(tc.outA), f32(tc.lseA), f32(tc.outB), f32(tc.lseB), tc.dv)
+		checkError(t, err, tc.want, "Merge32", tc.detail)
+	}
+
+	for _, tc := range []struct {
+		pos    int
+		k      []float64
+		want   error
+		detail string
+	}{
+		{2, k, ErrOption, "pos = 2; want 0 ≤ pos ≤ Lk − Lq = 1 (the Lq = 2 queries sit at positions pos … pos+Lq−1 of the Lk = 3 cached keys)"},
+		{-1, k, ErrOption, "pos = -1; want 0 ≤ pos ≤ Lk − Lq = 1 (the Lq = 2 queries sit at positions pos … pos+Lq−1 of the Lk = 3 cached keys)"},
+		{1, k[:2], ErrLength, "kCache has 2 elements; want Batch·HeadsKV·Lk·Dk = 1·1·3·1 = 3"},
+	} {
+		_, _, err := Decode(q, tc.k, v, s, tc.pos, Options{})
+		checkError(t, err, tc.want, "Decode", tc.detail)
+		_, _, err = Decode32(f32(q), f32(tc.k), f32(v), s, tc.pos, Options{})
+		checkError(t, err, tc.want, "Decode32", tc.detail)
+	}
 }
 
 // FuzzForward drives every form with shapes and options from the fuzzer and
@@ -218,6 +308,18 @@ func FuzzForward(f *testing.F) {
 		if err == nil && (len(g.DQ) != len(q) || len(g.DK) != len(k) || len(g.DV) != len(v)) {
 			t.Fatalf("fast %+v: gradient lengths %d %d %d", s, len(g.DQ), len(g.DK), len(g.DV))
 		}
+		// The float32 twins validate alike and return the same lengths.
+		widen := func(out, lse []float32, err error) ([]float64, []float64, error) {
+			return num.Convert[float64](out), num.Convert[float64](lse), err
+		}
+		q32, k32, v32 := f32(q), f32(k), f32(v)
+		check(widen(ForwardTiled32(q32, k32, v32, s, 1+int(flags%5), o)))
+		check(widen(ForwardFast32(q32, k32, v32, s, o)))
+		check(widen(Decode32(q32, k32, v32, s, int(extra%4), o)))
+		g32, err := BackwardFast32(q32, k32, v32, f32(dOut), nil, s, o)
+		if err == nil && (len(g32.DQ) != len(q) || len(g32.DK) != len(k) || len(g32.DV) != len(v)) {
+			t.Fatalf("fast32 %+v: gradient lengths %d %d %d", s, len(g32.DQ), len(g32.DK), len(g32.DV))
+		}
 	})
 }
 
@@ -225,6 +327,6 @@ func TestErrorsHugeShape(t *testing.T) {
 	// 2^32 · 2^32 · 1 · 1 elements would wrap int64 arithmetic around to 0.
 	s := Shape{Batch: 1 << 32, HeadsQ: 1 << 32, HeadsKV: 1, Lq: 1, Lk: 1, Dk: 1, Dv: 1}
 	_, _, err := Forward(nil, nil, nil, s, Options{})
-	assert.ErrorIs(t, err, ErrShape)
-	assert.ErrorContains(t, err, "more than this package handles")
+	checkError(t, err, ErrShape, "Forward", "Shape = {Batch:4294967296 HeadsQ:4294967296 HeadsKV:1 Lq:1 Lk:1 Dk:1 Dv:1}; "+
+		"want every tensor at most 2^50 elements, the most this package handles (q would have 1.84e+19)")
 }

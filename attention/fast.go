@@ -73,12 +73,7 @@ func parallel(n, workers int, task func(w, t int)) {
 // is 9.7e-16 for O and 2.7e-16 for lse; on random problems of up to 164
 // rows it stays within 1e-14 of Forward (TestPropertyFastMatchesDirect).
 func ForwardFast(q, k, v []float64, s Shape, o Options) (out, lse []float64, err error) {
-	p, err := newPlan(len(q), len(k), len(v), s, &o)
-	if err != nil {
-		return nil, nil, err
-	}
-	out, lse = forwardFast(p, q, k, v)
-	return out, lse, nil
+	return runForward("ForwardFast", q, k, v, s, o, forwardFast)
 }
 
 // ForwardFast32 is the float32 instantiation of the same body as
@@ -86,14 +81,11 @@ func ForwardFast(q, k, v []float64, s Shape, o Options) (out, lse []float64, err
 // implementation the compare package uses as a yardstick; not a reference.
 //
 // Special cases are those of ForwardFast. Accuracy, as a yardstick: 3.9e-7
-// (O) and 6.0e-8 (lse) against the golden cases, as Forward32.
+// (O) and 6.0e-8 (lse) against the golden cases, as Forward32. Unlike
+// ForwardFast, its last bits can depend on the addresses of the slices
+// (see Determinism in the package documentation).
 func ForwardFast32(q, k, v []float32, s Shape, o Options) (out, lse []float32, err error) {
-	p, err := newPlan(len(q), len(k), len(v), s, &o)
-	if err != nil {
-		return nil, nil, err
-	}
-	out, lse = forwardFast(p, q, k, v)
-	return out, lse, nil
+	return runForward("ForwardFast32", q, k, v, s, o, forwardFast)
 }
 
 // keyRange is the smallest range [lo, hi) of keys holding every key that
@@ -246,12 +238,22 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 // (4.7e-15 for dQ; 1.0e-13 for the logits near ±1000, see the package
 // doc); on random problems it stays within 1e-14 of Backward.
 func BackwardFast(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) {
-	p, err := newBackwardPlan(len(q), len(k), len(v), len(dOut), dLSE != nil, len(dLSE), s, &o)
-	if err != nil {
-		return Grads{}, err
-	}
-	g := backwardFast(p, q, k, v, dOut, dLSE)
-	return Grads{DQ: g.dq, DK: g.dk, DV: g.dv, DSinks: g.dsinks, DBias: g.dbias}, nil
+	return grads64(runBackward("BackwardFast", q, k, v, dOut, dLSE, s, o, backwardFast))
+}
+
+// BackwardFast32 is the float32 instantiation of the same body as
+// BackwardFast, through blas32: the straightforward low-precision
+// implementation the compare package uses as a yardstick; not a reference.
+// Unlike BackwardFast, its last bits can depend on the addresses of the
+// slices (see Determinism in the package documentation).
+//
+// Special cases are those of BackwardFast.
+//
+// Accuracy, as a yardstick: as Backward32, 9.1e-7 worst normwise relative
+// error against the golden cases (inputs rounded to float32, logits near
+// ±1000 left out).
+func BackwardFast32(q, k, v, dOut, dLSE []float32, s Shape, o Options) (Grads32, error) {
+	return grads32(runBackward("BackwardFast32", q, k, v, dOut, dLSE, s, o, backwardFast))
 }
 
 func backwardFast[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {

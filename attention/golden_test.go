@@ -240,40 +240,135 @@ func (w worst) log(t *testing.T, what string) {
 	}
 }
 
-func TestGoldenForward(t *testing.T) {
-	w := worst{}
-	eachGolden(t, func(t *testing.T, g goldenCall) {
-		out, lse, err := Forward(g.q, g.k, g.v, g.s, g.o)
-		require.NoError(t, err)
-		w.check(t, g, "out", out, goldenBound)
-		w.check(t, g, "lse", lse, goldenBound)
-	})
-	w.log(t, "Forward")
+// is32 reports whether T is float32: the run is then a float32 twin, on
+// the inputs rounded to float32, held to golden32Bound, and the cases with
+// logits near ±1000 are skipped (skipBigLogits32).
+func is32[T num.Float]() bool {
+	var z T
+	_, ok := any(z).(float32)
+	return ok
 }
 
-// checkGrads compares the gradients of one golden case.
-func (w worst) checkGrads(t *testing.T, g goldenCall, gr Grads) {
+// forwardRun is a forward form on one case.
+type forwardRun[T num.Float] func(q, k, v []T, s Shape, o Options) (out, lse []T, err error)
+
+// goldenForward checks a forward form against every golden case, within
+// bound (float64) or golden32Bound (float32), after prepare (nil: none) has
+// had its say on the case.
+func goldenForward[T num.Float](t *testing.T, w worst, bound float64, prepare func(t *testing.T, g goldenCall) goldenCall, run forwardRun[T]) {
+	if is32[T]() {
+		bound = golden32Bound
+	}
+	eachGolden(t, func(t *testing.T, g goldenCall) {
+		if is32[T]() {
+			skipBigLogits32(t, g)
+		}
+		if prepare != nil {
+			g = prepare(t, g)
+		}
+		out, lse, err := run(num.Convert[T](g.q), num.Convert[T](g.k), num.Convert[T](g.v), g.s, g.o)
+		require.NoError(t, err)
+		w.check(t, g, "out", num.Convert[float64](out), bound)
+		w.check(t, g, "lse", num.Convert[float64](lse), bound)
+	})
+}
+
+// goldenForwardLog is goldenForward with a worst map of its own, logged
+// under name.
+func goldenForwardLog[T num.Float](t *testing.T, name string, bound float64, run forwardRun[T]) {
+	w := worst{}
+	goldenForward(t, w, bound, nil, run)
+	w.log(t, name)
+}
+
+func TestGoldenForward(t *testing.T)   { goldenForwardLog(t, "Forward", goldenBound, Forward) }
+func TestGoldenForward32(t *testing.T) { goldenForwardLog(t, "Forward32", 0, Forward32) }
+func TestGoldenForwardFast(t *testing.T) {
+	goldenForwardLog(t, "ForwardFast", goldenBound, ForwardFast)
+}
+func TestGoldenForwardFast32(t *testing.T) { goldenForwardLog(t, "ForwardFast32", 0, ForwardFast32) }
+
+// decodeCase turns the cases with a plain causal mask and the end
+// alignment into decoding calls: the queries sit at positions Lk − Lq …,
+// which is Decode with pos = Lk − Lq and no mask of its own. Other cases
+// are skipped; n counts those that ran.
+func decodeCase(n *int) func(t *testing.T, g goldenCall) goldenCall {
+	return func(t *testing.T, g goldenCall) goldenCall {
+		if len(g.cfg.Mask) != 1 || g.cfg.Mask[0].Kind != mask.KindCausal || g.cfg.Align != mask.AlignEnd || g.cfg.Offset != 0 {
+			t.Skip("not a causal, end-aligned case")
+		}
+		*n++
+		g.o.Mask = mask.Mask{}
+		return g
+	}
+}
+
+// goldenDecode checks a decoding form on the causal, end-aligned golden
+// cases (decodeCase), at pos = Lk − Lq.
+func goldenDecode[T num.Float](t *testing.T, name string, decode func(q, k, v []T, s Shape, pos int, o Options) ([]T, []T, error)) {
+	w, n := worst{}, 0
+	goldenForward(t, w, goldenBound, decodeCase(&n), func(q, k, v []T, s Shape, o Options) ([]T, []T, error) {
+		return decode(q, k, v, s, s.Lk-s.Lq, o)
+	})
+	require.GreaterOrEqual(t, n, 9, "causal end-aligned golden cases")
+	w.log(t, name)
+}
+
+func TestGoldenDecode(t *testing.T)   { goldenDecode(t, "Decode", Decode) }
+func TestGoldenDecode32(t *testing.T) { goldenDecode(t, "Decode32", Decode32) }
+
+// checkGrads compares the gradients of one golden case, each within bound
+// (nil: gradBound).
+func (w worst) checkGrads(t *testing.T, g goldenCall, gr Grads, bound func(g goldenCall, name string) float64) {
 	t.Helper()
+	if bound == nil {
+		bound = gradBound
+	}
 	for _, c := range []struct {
 		name string
 		x    []float64
 	}{{"d_q", gr.DQ}, {"d_k", gr.DK}, {"d_v", gr.DV}, {"d_sinks", gr.DSinks}, {"d_bias", gr.DBias}} {
 		if g.c.Has(c.name) {
-			w.check(t, g, c.name, c.x, gradBound(g, c.name))
+			w.check(t, g, c.name, c.x, bound(g, c.name))
 		} else {
 			assert.Nil(t, c.x, "%v: %s without a sink or bias", g.c, c.name)
 		}
 	}
 }
 
-func TestGoldenBackward(t *testing.T) {
+// widen64 and widen32 return gradients as Grads, float32 ones widened.
+func widen64(g Grads) Grads { return g }
+
+func widen32(g Grads32) Grads {
+	return Grads{DQ: num.Convert[float64](g.DQ), DK: num.Convert[float64](g.DK), DV: num.Convert[float64](g.DV),
+		DSinks: num.Convert[float64](g.DSinks), DBias: num.Convert[float64](g.DBias)}
+}
+
+// goldenBackward checks a backward form against every golden case, within
+// gradBound (float64) or golden32Bound (float32).
+func goldenBackward[T num.Float, G any](t *testing.T, name string, widen func(G) Grads, run func(q, k, v, dOut, dLSE []T, s Shape, o Options) (G, error)) {
+	var bound func(goldenCall, string) float64
+	if is32[T]() {
+		bound = func(goldenCall, string) float64 { return golden32Bound }
+	}
 	w := worst{}
 	eachGolden(t, func(t *testing.T, g goldenCall) {
-		gr, err := Backward(g.q, g.k, g.v, g.dOut, g.dLSE, g.s, g.o)
+		if is32[T]() {
+			skipBigLogits32(t, g)
+		}
+		c := num.Convert[T, float64]
+		gr, err := run(c(g.q), c(g.k), c(g.v), c(g.dOut), c(g.dLSE), g.s, g.o)
 		require.NoError(t, err)
-		w.checkGrads(t, g, gr)
+		w.checkGrads(t, g, widen(gr), bound)
 	})
-	w.log(t, "Backward")
+	w.log(t, name)
+}
+
+func TestGoldenBackward(t *testing.T)     { goldenBackward(t, "Backward", widen64, Backward) }
+func TestGoldenBackward32(t *testing.T)   { goldenBackward(t, "Backward32", widen32, Backward32) }
+func TestGoldenBackwardFast(t *testing.T) { goldenBackward(t, "BackwardFast", widen64, BackwardFast) }
+func TestGoldenBackwardFast32(t *testing.T) {
+	goldenBackward(t, "BackwardFast32", widen32, BackwardFast32)
 }
 
 // skipBigLogits32 skips the cases whose logits are near ±1000 for the
@@ -285,82 +380,4 @@ func skipBigLogits32(t *testing.T, g goldenCall) {
 	case "logits_near_plus_1000", "logits_near_minus_1000", "logits_spread_700":
 		t.Skip("float32 rounding of the inputs changes logits near 1000 by more than the bound")
 	}
-}
-
-func TestGoldenForward32(t *testing.T) {
-	w := worst{}
-	eachGolden(t, func(t *testing.T, g goldenCall) {
-		skipBigLogits32(t, g)
-		out, lse, err := Forward32(num.Convert[float32](g.q), num.Convert[float32](g.k), num.Convert[float32](g.v), g.s, g.o)
-		require.NoError(t, err)
-		w.check(t, g, "out", num.Convert[float64](out), golden32Bound)
-		w.check(t, g, "lse", num.Convert[float64](lse), golden32Bound)
-	})
-	w.log(t, "Forward32")
-}
-
-func TestGoldenBackward32(t *testing.T) {
-	w := worst{}
-	eachGolden(t, func(t *testing.T, g goldenCall) {
-		skipBigLogits32(t, g)
-		gr, err := Backward32(num.Convert[float32](g.q), num.Convert[float32](g.k), num.Convert[float32](g.v), num.Convert[float32](g.dOut), num.Convert[float32](g.dLSE), g.s, g.o)
-		require.NoError(t, err)
-		w.check(t, g, "d_q", num.Convert[float64](gr.DQ), golden32Bound)
-		w.check(t, g, "d_k", num.Convert[float64](gr.DK), golden32Bound)
-		w.check(t, g, "d_v", num.Convert[float64](gr.DV), golden32Bound)
-	})
-	w.log(t, "Backward32")
-}
-
-// Decode of the cases with a plain causal mask and the end alignment: the
-// queries sit at positions Lk − Lq …, which is Decode with pos = Lk − Lq.
-func TestGoldenDecode(t *testing.T) {
-	n := 0
-	eachGolden(t, func(t *testing.T, g goldenCall) {
-		if len(g.cfg.Mask) != 1 || g.cfg.Mask[0].Kind != mask.KindCausal || g.cfg.Align != mask.AlignEnd || g.cfg.Offset != 0 {
-			t.Skip("not a causal, end-aligned case")
-		}
-		n++
-		o := g.o
-		o.Mask = mask.Mask{}
-		out, lse, err := Decode(g.q, g.k, g.v, g.s, g.s.Lk-g.s.Lq, o)
-		require.NoError(t, err)
-		w := worst{}
-		w.check(t, g, "out", out, goldenBound)
-		w.check(t, g, "lse", lse, goldenBound)
-	})
-	require.GreaterOrEqual(t, n, 9, "causal end-aligned golden cases")
-}
-
-func TestGoldenForwardFast(t *testing.T) {
-	w := worst{}
-	eachGolden(t, func(t *testing.T, g goldenCall) {
-		out, lse, err := ForwardFast(g.q, g.k, g.v, g.s, g.o)
-		require.NoError(t, err)
-		w.check(t, g, "out", out, goldenBound)
-		w.check(t, g, "lse", lse, goldenBound)
-	})
-	w.log(t, "ForwardFast")
-}
-
-func TestGoldenBackwardFast(t *testing.T) {
-	w := worst{}
-	eachGolden(t, func(t *testing.T, g goldenCall) {
-		gr, err := BackwardFast(g.q, g.k, g.v, g.dOut, g.dLSE, g.s, g.o)
-		require.NoError(t, err)
-		w.checkGrads(t, g, gr)
-	})
-	w.log(t, "BackwardFast")
-}
-
-func TestGoldenForwardFast32(t *testing.T) {
-	w := worst{}
-	eachGolden(t, func(t *testing.T, g goldenCall) {
-		skipBigLogits32(t, g)
-		out, lse, err := ForwardFast32(num.Convert[float32](g.q), num.Convert[float32](g.k), num.Convert[float32](g.v), g.s, g.o)
-		require.NoError(t, err)
-		w.check(t, g, "out", num.Convert[float64](out), golden32Bound)
-		w.check(t, g, "lse", num.Convert[float64](lse), golden32Bound)
-	})
-	w.log(t, "ForwardFast32")
 }

@@ -4,15 +4,23 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strconv"
+	"strings"
 
 	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/mask"
 )
 
 // Sentinel errors. Every error returned by this package wraps exactly one of
-// them (and, for a mask that does not fit, the mask package's own error as
-// well), so callers can match with errors.Is; the message names the
-// argument, the value expected and the value found.
+// them (and, for a mask that does not fit or an ALiBi form that is none of
+// its words, the mask package's own error as well), so callers can match
+// with errors.Is. The message reads
+//
+//	<sentinel>: <function>: <argument> = <value>; want <expectation>
+//
+// for instance "attention: invalid shape: Forward: Shape.HeadsQ = 6; want
+// a multiple of HeadsKV = 4", or "… q has 95 elements; want
+// Batch·HeadsQ·Lq·Dk = 2·4·3·4 = 96" for a length.
 var (
 	// ErrShape: a dimension out of range (Dk = 0, a negative length, …) or
 	// query heads that are not a multiple of the key/value heads.
@@ -20,8 +28,9 @@ var (
 	// ErrLength: a slice whose length does not match the shape.
 	ErrLength = errors.New("attention: length mismatch")
 	// ErrOption: an option out of its domain (a scale or cap that is not
-	// positive and finite, an unknown layout, group mapping, policy or form,
-	// a NaN slope or sink, a tile size below one).
+	// positive and finite, a layout, group map, policy or ALiBi form that
+	// is none of its words, a NaN slope or sink, a block size below one, a
+	// decoding position outside the cache).
 	ErrOption = errors.New("attention: invalid option")
 	// ErrBias: an additive bias whose shape does not broadcast to
 	// [Batch, HeadsQ, Lq, Lk].
@@ -255,143 +264,221 @@ type plan struct {
 	emptyNaN bool
 }
 
-// checkShape validates the sizes alone.
-func checkShape(s Shape) error {
+// checkShape validates the sizes alone, for the exported function fn.
+func checkShape(fn string, s Shape) error {
 	switch {
 	case s.Batch < 0:
-		return fmt.Errorf("%w: Batch = %d; want ≥ 0", ErrShape, s.Batch)
+		return fmt.Errorf("%w: %s: Shape.Batch = %d; want ≥ 0", ErrShape, fn, s.Batch)
 	case s.HeadsQ < 1:
-		return fmt.Errorf("%w: HeadsQ = %d; want ≥ 1", ErrShape, s.HeadsQ)
+		return fmt.Errorf("%w: %s: Shape.HeadsQ = %d; want ≥ 1", ErrShape, fn, s.HeadsQ)
 	case s.HeadsKV < 1:
-		return fmt.Errorf("%w: HeadsKV = %d; want ≥ 1", ErrShape, s.HeadsKV)
+		return fmt.Errorf("%w: %s: Shape.HeadsKV = %d; want ≥ 1", ErrShape, fn, s.HeadsKV)
 	case s.HeadsQ%s.HeadsKV != 0:
-		return fmt.Errorf("%w: K has %d heads, Q has %d; %d is not a multiple of %d", ErrShape, s.HeadsKV, s.HeadsQ, s.HeadsQ, s.HeadsKV)
+		return fmt.Errorf("%w: %s: Shape.HeadsQ = %d; want a multiple of HeadsKV = %d", ErrShape, fn, s.HeadsQ, s.HeadsKV)
 	case s.Lq < 0:
-		return fmt.Errorf("%w: Lq = %d; want ≥ 0", ErrShape, s.Lq)
+		return fmt.Errorf("%w: %s: Shape.Lq = %d; want ≥ 0", ErrShape, fn, s.Lq)
 	case s.Lk < 0:
-		return fmt.Errorf("%w: Lk = %d; want ≥ 0", ErrShape, s.Lk)
+		return fmt.Errorf("%w: %s: Shape.Lk = %d; want ≥ 0", ErrShape, fn, s.Lk)
 	case s.Dk < 1:
-		return fmt.Errorf("%w: Dk = %d; want ≥ 1", ErrShape, s.Dk)
+		return fmt.Errorf("%w: %s: Shape.Dk = %d; want ≥ 1", ErrShape, fn, s.Dk)
 	case s.Dv < 1:
-		return fmt.Errorf("%w: Dv = %d; want ≥ 1", ErrShape, s.Dv)
+		return fmt.Errorf("%w: %s: Shape.Dv = %d; want ≥ 1", ErrShape, fn, s.Dv)
 	}
 	// Every tensor, and the mask laid out as B·Lq·Lk booleans, must have a
 	// size that int arithmetic holds exactly; products are formed in
 	// float64 so that they cannot wrap around.
 	const limit = 1 << 50
-	for _, dims := range [][]int{
-		{s.Batch, s.HeadsQ, s.Lq, s.Dk}, {s.Batch, s.HeadsKV, s.Lk, s.Dk}, {s.Batch, s.HeadsKV, s.Lk, s.Dv},
-		{s.Batch, s.HeadsQ, s.Lq, s.Dv}, {s.Batch, s.Lq, s.Lk}, {s.HeadsQ, s.Lq, s.Lk},
+	for _, t := range []struct {
+		name string
+		dims []int
+	}{
+		{"q", []int{s.Batch, s.HeadsQ, s.Lq, s.Dk}}, {"k", []int{s.Batch, s.HeadsKV, s.Lk, s.Dk}},
+		{"v", []int{s.Batch, s.HeadsKV, s.Lk, s.Dv}}, {"the output", []int{s.Batch, s.HeadsQ, s.Lq, s.Dv}},
+		{"the mask", []int{s.Batch, s.Lq, s.Lk}}, {"a bias", []int{s.HeadsQ, s.Lq, s.Lk}},
 	} {
 		n := 1.0
-		for _, d := range dims {
+		for _, d := range t.dims {
 			n *= float64(d)
 		}
 		if n > limit {
-			return fmt.Errorf("%w: %+v: a tensor of %v elements is more than this package handles (2^50)", ErrShape, s, dims)
+			return fmt.Errorf("%w: %s: Shape = %+v; want every tensor at most 2^50 elements, the most this package handles (%s would have %.3g)", ErrShape, fn, s, t.name, n)
 		}
 	}
 	return nil
 }
 
-func checkLen(name string, got, want int, dims string) error {
-	if got != want {
-		return fmt.Errorf("%w: %s has %d elements; shape %s = %d", ErrLength, name, got, dims, want)
+// checkLen validates that a tensor of function fn, called name, has as
+// many elements as the product of dims, which names spells out
+// ("Batch·HeadsQ·Lq·Dk"); a mismatch wraps sentinel.
+func checkLen(sentinel error, fn, name string, got int, names string, dims ...int) error {
+	want := 1
+	parts := make([]string, len(dims))
+	for i, d := range dims {
+		want *= d
+		parts[i] = strconv.Itoa(d)
 	}
-	return nil
+	if got == want {
+		return nil
+	}
+	if len(dims) == 1 {
+		return fmt.Errorf("%w: %s: %s has %d elements; want %s = %d", sentinel, fn, name, got, names, want)
+	}
+	return fmt.Errorf("%w: %s: %s has %d elements; want %s = %s = %d", sentinel, fn, name, got, names, strings.Join(parts, "·"), want)
+}
+
+// kvNames are the names fn gives its key and value arguments.
+func kvNames(fn string) (k, v string) {
+	if strings.HasPrefix(fn, "Decode") {
+		return "kCache", "vCache"
+	}
+	return "k", "v"
+}
+
+// checkInputs validates the lengths of q, k and v, the slices every form
+// takes.
+func checkInputs(fn string, qn, kn, vn int, s Shape) error {
+	kName, vName := kvNames(fn)
+	if err := checkLen(ErrLength, fn, "q", qn, "Batch·HeadsQ·Lq·Dk", s.Batch, s.HeadsQ, s.Lq, s.Dk); err != nil {
+		return err
+	}
+	if err := checkLen(ErrLength, fn, kName, kn, "Batch·HeadsKV·Lk·Dk", s.Batch, s.HeadsKV, s.Lk, s.Dk); err != nil {
+		return err
+	}
+	return checkLen(ErrLength, fn, vName, vn, "Batch·HeadsKV·Lk·Dv", s.Batch, s.HeadsKV, s.Lk, s.Dv)
 }
 
 // newPlan validates the shape, the slices that every form takes, and the
-// options.
-func newPlan(qn, kn, vn int, s Shape, o *Options) (*plan, error) {
-	if err := checkShape(s); err != nil {
+// options of a call of the exported function fn, and resolves them. Its
+// steps run in this order, and the first error is returned.
+func newPlan(fn string, qn, kn, vn int, s Shape, o *Options) (*plan, error) {
+	if err := checkShape(fn, s); err != nil {
 		return nil, err
 	}
-	if err := checkLen("Q", qn, s.qLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsQ, s.Lq, s.Dk)); err != nil {
+	if err := checkInputs(fn, qn, kn, vn, s); err != nil {
 		return nil, err
 	}
-	if err := checkLen("K", kn, s.kLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dk)); err != nil {
-		return nil, err
-	}
-	if err := checkLen("V", vn, s.vLen(), fmt.Sprintf("[%d %d %d %d]", s.Batch, s.HeadsKV, s.Lk, s.Dv)); err != nil {
-		return nil, err
-	}
-	p := &plan{s: s, layout: o.Layout, group: o.Group}
-	for _, err := range []error{layoutWords.Check(o.Layout), groupWords.Check(o.Group), emptyRowWords.Check(o.EmptyRow)} {
-		if err != nil {
+	p := &plan{s: s, layout: o.Layout, group: o.Group, emptyNaN: o.EmptyRow == EmptyRowNaN}
+	for _, step := range []func(fn string, o *Options) error{
+		p.checkConventions, p.setScale, p.setSlopes, p.setSinks, p.setBias, p.setMask,
+	} {
+		if err := step(fn, o); err != nil {
 			return nil, err
 		}
 	}
-	p.emptyNaN = o.EmptyRow == EmptyRowNaN
+	return p, nil
+}
+
+// checkConventions checks that the layout, the group map and the
+// empty-row policy are among their words.
+func (p *plan) checkConventions(fn string, o *Options) error {
+	if err := layoutWords.CheckAt(fn+": Options.Layout", o.Layout); err != nil {
+		return err
+	}
+	if err := groupWords.CheckAt(fn+": Options.Group", o.Group); err != nil {
+		return err
+	}
+	return emptyRowWords.CheckAt(fn+": Options.EmptyRow", o.EmptyRow)
+}
+
+// setScale resolves the scale (0: 1/√Dk) and checks the soft-cap.
+func (p *plan) setScale(fn string, o *Options) error {
 	switch {
 	case o.Scale == 0:
-		p.scale = 1 / math.Sqrt(float64(s.Dk))
+		p.scale = 1 / math.Sqrt(float64(p.s.Dk))
 	case !(o.Scale > 0) || math.IsInf(o.Scale, 1):
-		return nil, fmt.Errorf("%w: Scale = %v; want a positive finite value, or 0 for 1/√Dk", ErrOption, o.Scale)
+		return fmt.Errorf("%w: %s: Options.Scale = %v; want a positive finite number, or 0 for 1/√Dk", ErrOption, fn, o.Scale)
 	default:
 		p.scale = o.Scale
 	}
 	if o.SoftCap != 0 && (!(o.SoftCap > 0) || math.IsInf(o.SoftCap, 1)) {
-		return nil, fmt.Errorf("%w: SoftCap = %v; want a positive finite value, or 0 for no cap", ErrOption, o.SoftCap)
+		return fmt.Errorf("%w: %s: Options.SoftCap = %v; want a positive finite number, or 0 for no cap", ErrOption, fn, o.SoftCap)
 	}
 	p.softCap = o.SoftCap
-	if o.Slopes != nil {
-		if len(o.Slopes) != s.HeadsQ {
-			return nil, fmt.Errorf("%w: Slopes has %d elements; want one per query head, HeadsQ = %d", ErrLength, len(o.Slopes), s.HeadsQ)
-		}
-		for h, m := range o.Slopes {
-			if math.IsNaN(m) || math.IsInf(m, 0) {
-				return nil, fmt.Errorf("%w: Slopes[%d] = %v; want a finite value", ErrOption, h, m)
-			}
-		}
-		if err := o.ALiBi.Check(); err != nil {
-			return nil, fmt.Errorf("%w: %w", ErrOption, err)
-		}
-		p.slopes = o.Slopes
-		p.alibi = o.ALiBi
+	return nil
+}
+
+// setSlopes checks the ALiBi slopes, one finite value per query head, and
+// the form of the distance.
+func (p *plan) setSlopes(fn string, o *Options) error {
+	if o.Slopes == nil {
+		return nil
 	}
-	if o.Sinks != nil {
-		if len(o.Sinks) != s.HeadsQ {
-			return nil, fmt.Errorf("%w: Sinks has %d elements; want one per query head, HeadsQ = %d", ErrLength, len(o.Sinks), s.HeadsQ)
-		}
-		for h, v := range o.Sinks {
-			if math.IsNaN(v) || math.IsInf(v, 1) {
-				return nil, fmt.Errorf("%w: Sinks[%d] = %v; want a finite value or −Inf", ErrOption, h, v)
-			}
-		}
-		p.sinks = o.Sinks
+	if err := checkLen(ErrLength, fn, "Options.Slopes", len(o.Slopes), "HeadsQ", p.s.HeadsQ); err != nil {
+		return err
 	}
-	if o.Bias != nil {
-		if o.BiasBatch != 1 && o.BiasBatch != s.Batch {
-			return nil, fmt.Errorf("%w: BiasBatch = %d; want 1 or Batch = %d", ErrBias, o.BiasBatch, s.Batch)
+	for h, m := range o.Slopes {
+		if math.IsNaN(m) || math.IsInf(m, 0) {
+			return fmt.Errorf("%w: %s: Options.Slopes[%d] = %v; want a finite number", ErrOption, fn, h, m)
 		}
-		if o.BiasHeads != 1 && o.BiasHeads != s.HeadsQ {
-			return nil, fmt.Errorf("%w: BiasHeads = %d; want 1 or HeadsQ = %d", ErrBias, o.BiasHeads, s.HeadsQ)
-		}
-		if want := o.BiasBatch * o.BiasHeads * s.Lq * s.Lk; len(o.Bias) != want {
-			return nil, fmt.Errorf("%w: Bias has %d elements; shape [%d %d %d %d] = %d", ErrBias, len(o.Bias), o.BiasBatch, o.BiasHeads, s.Lq, s.Lk, want)
-		}
-		p.bias = o.Bias
-		p.biasB = o.BiasBatch > 1
-		p.biasH = o.BiasHeads > 1
 	}
+	if err := o.ALiBi.Check(); err != nil {
+		return vocab.At(err, ErrOption, fn+": Options.ALiBi")
+	}
+	p.slopes, p.alibi = o.Slopes, o.ALiBi
+	return nil
+}
+
+// setSinks checks the sink logits, one per query head, each finite or −Inf.
+func (p *plan) setSinks(fn string, o *Options) error {
+	if o.Sinks == nil {
+		return nil
+	}
+	if err := checkLen(ErrLength, fn, "Options.Sinks", len(o.Sinks), "HeadsQ", p.s.HeadsQ); err != nil {
+		return err
+	}
+	for h, v := range o.Sinks {
+		if math.IsNaN(v) || math.IsInf(v, 1) {
+			return fmt.Errorf("%w: %s: Options.Sinks[%d] = %v; want a finite number or −Inf", ErrOption, fn, h, v)
+		}
+	}
+	p.sinks = o.Sinks
+	return nil
+}
+
+// setBias checks that the bias broadcasts to [Batch, HeadsQ, Lq, Lk].
+func (p *plan) setBias(fn string, o *Options) error {
+	if o.Bias == nil {
+		return nil
+	}
+	s := p.s
+	if o.BiasBatch != 1 && o.BiasBatch != s.Batch {
+		return fmt.Errorf("%w: %s: Options.BiasBatch = %d; want 1 or Batch = %d", ErrBias, fn, o.BiasBatch, s.Batch)
+	}
+	if o.BiasHeads != 1 && o.BiasHeads != s.HeadsQ {
+		return fmt.Errorf("%w: %s: Options.BiasHeads = %d; want 1 or HeadsQ = %d", ErrBias, fn, o.BiasHeads, s.HeadsQ)
+	}
+	if err := checkLen(ErrBias, fn, "Options.Bias", len(o.Bias), "BiasBatch·BiasHeads·Lq·Lk", o.BiasBatch, o.BiasHeads, s.Lq, s.Lk); err != nil {
+		return err
+	}
+	p.bias = o.Bias
+	p.biasB = o.BiasBatch > 1
+	p.biasH = o.BiasHeads > 1
+	return nil
+}
+
+// setMask lays the mask (the zero Mask: Full) on the queries and keys,
+// checks that ALiBi's query positions are key positions, and records
+// which keys each row sees.
+func (p *plan) setMask(fn string, o *Options) error {
+	s := p.s
 	p.geom = mask.Geometry{Batch: s.Batch, Lq: s.Lq, Lk: s.Lk, Align: o.Align, Offset: o.Offset}
 	m := o.Mask
 	if isZeroMask(m) {
 		m = mask.Full() // the documented default: every key visible
 	}
 	if err := m.Check(p.geom); err != nil {
-		return nil, fmt.Errorf("%w: %v on Lq = %d, Lk = %d: %w", ErrMask, m, s.Lq, s.Lk, err)
+		return fmt.Errorf("%w: %s: Options.Mask = %v; want a mask that fits Batch = %d, Lq = %d, Lk = %d, Align = %v, Offset = %d (%w)",
+			ErrMask, fn, m, s.Batch, s.Lq, s.Lk, o.Align, o.Offset, err)
 	}
 	if p.slopes != nil && !m.UsesPositions() && s.Lq > 0 {
 		// ALiBi uses positions even when the mask does not.
 		if first, last := p.geom.Pos(0), p.geom.Pos(s.Lq-1); first < 0 || last >= s.Lk {
-			return nil, fmt.Errorf("%w: ALiBi with %v, Lq = %d, Lk = %d, Offset = %d puts queries at key positions %d … %d; want them within 0 … %d",
-				ErrOption, o.Align, s.Lq, s.Lk, o.Offset, first, last, s.Lk-1)
+			return fmt.Errorf("%w: %s: Options.Offset = %d (queries at key positions %d … %d with Align = %v, Lq = %d, Lk = %d); want every query at a key position 0 … %d, as ALiBi needs",
+				ErrOption, fn, o.Offset, first, last, o.Align, s.Lq, s.Lk, s.Lk-1)
 		}
 	}
 	p.layMask(m)
-	return p, nil
+	return nil
 }
 
 // layMask records which keys each row sees. Every mask kind of the mask

@@ -10,6 +10,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -53,6 +54,24 @@ func randOptions(r *rand.Rand, s Shape) Options {
 	return o
 }
 
+// forwardPlan runs Forward and returns its results with the plan it made.
+func forwardPlan(t *testing.T, q, k, v []float64, s Shape, o Options) (out, lse []float64, p *plan) {
+	t.Helper()
+	out, lse, err := Forward(q, k, v, s, o)
+	require.NoError(t, err)
+	p, err = newPlan("Forward", len(q), len(k), len(v), s, &o)
+	require.NoError(t, err)
+	return out, lse, p
+}
+
+// trials is the number of random trials: n, or short under go test -short.
+func trials(n, short int) int {
+	if testing.Short() {
+		n = short
+	}
+	return n
+}
+
 // randNorm is n standard normal values.
 func randNorm(r *rand.Rand, n int) []float64 {
 	x := make([]float64, n)
@@ -86,32 +105,25 @@ func TestPropertyProbabilitiesSumToOne(t *testing.T) {
 				}
 			}
 		}
-		out, lse, err := Forward(q, k, v, s, o)
-		require.NoError(t, err)
-		pl, err := newPlan(len(q), len(k), len(v), s, &o)
-		require.NoError(t, err)
-		for b := range s.Batch {
-			for h := range s.HeadsQ {
-				for i := range s.Lq {
-					row := out[p.oOff(b, h, i):][:s.Dv]
-					want := 1.0
-					if o.Sinks != nil {
-						want -= math.Exp(o.Sinks[h] - lse[p.lOff(b, h, i)])
-					}
-					var sum float64
-					for j, x := range row {
-						require.GreaterOrEqual(t, x, 0.0)
-						if !pl.visible(b, i, j) {
-							require.Zero(t, x, "trial %d: hidden key %d has weight", trial, j)
-						}
-						sum += x
-					}
-					// Each weight carries a few roundings (exp, one
-					// division): |Σ − 1| ≤ Lk·4·2⁻⁵³ + the rounding of the
-					// sum, far below 1e-14 for Lk ≤ 9.
-					assert.InDelta(t, want, sum, 1e-14, "trial %d row (%d,%d,%d)", trial, b, h, i)
-				}
+		out, lse, pl := forwardPlan(t, q, k, v, s, o)
+		for r := range pl.rows {
+			row := out[p.oOff(r.b, r.h, r.i):][:s.Dv]
+			want := 1.0
+			if o.Sinks != nil {
+				want -= math.Exp(o.Sinks[r.h] - lse[p.lOff(r.b, r.h, r.i)])
 			}
+			var sum float64
+			for j, x := range row {
+				require.GreaterOrEqual(t, x, 0.0)
+				if !pl.visible(r.b, r.i, j) {
+					require.Zero(t, x, "trial %d: hidden key %d has weight", trial, j)
+				}
+				sum += x
+			}
+			// Each weight carries a few roundings (exp, one division):
+			// |Σ − 1| ≤ Lk·4·2⁻⁵³ + the rounding of the sum, far below
+			// 1e-14 for Lk ≤ 9.
+			assert.InDelta(t, want, sum, 1e-14, "trial %d row %+v", trial, r)
 		}
 	}
 }
@@ -126,36 +138,28 @@ func TestPropertyConvexHull(t *testing.T) {
 		s := randShape(r, 9)
 		o := randOptions(r, s)
 		q, k, v := randCase(r, s)
-		out, _, err := Forward(q, k, v, s, o)
-		require.NoError(t, err)
-		pl, err := newPlan(len(q), len(k), len(v), s, &o)
-		require.NoError(t, err)
-		for b := range s.Batch {
-			for h := range s.HeadsQ {
-				kv := pl.kvHead(h)
-				for i := range s.Lq {
-					row := out[pl.oOff(b, h, i):][:s.Dv]
-					for d, x := range row {
-						lo, hi := math.Inf(1), math.Inf(-1)
-						if o.Sinks != nil {
-							lo, hi = 0, 0
-						}
-						for j := range s.Lk {
-							if pl.visible(b, i, j) {
-								y := v[pl.vOff(b, kv, j)+d]
-								lo, hi = min(lo, y), max(hi, y)
-							}
-						}
-						if math.IsInf(lo, 1) { // empty row: 0 under EmptyRowZero
-							require.Zero(t, x)
-							continue
-						}
-						// Rounding of a sum of Lk ≤ 9 terms of size ≤ 1:
-						// below 16·2⁻⁵³ ≈ 1.8e-15.
-						const slack = 2e-15
-						require.True(t, lo-slack <= x && x <= hi+slack, "trial %d: %v outside [%v, %v]", trial, x, lo, hi)
+		out, _, pl := forwardPlan(t, q, k, v, s, o)
+		for r := range pl.rows {
+			row := out[pl.oOff(r.b, r.h, r.i):][:s.Dv]
+			for d, x := range row {
+				lo, hi := math.Inf(1), math.Inf(-1)
+				if o.Sinks != nil {
+					lo, hi = 0, 0
+				}
+				for j := range s.Lk {
+					if pl.visible(r.b, r.i, j) {
+						y := v[pl.vOff(r.b, r.kv, j)+d]
+						lo, hi = min(lo, y), max(hi, y)
 					}
 				}
+				if math.IsInf(lo, 1) { // empty row: 0 under EmptyRowZero
+					require.Zero(t, x)
+					continue
+				}
+				// Rounding of a sum of Lk ≤ 9 terms of size ≤ 1: below
+				// 16·2⁻⁵³ ≈ 1.8e-15.
+				const slack = 2e-15
+				require.True(t, lo-slack <= x && x <= hi+slack, "trial %d: %v outside [%v, %v]", trial, x, lo, hi)
 			}
 		}
 	}
@@ -203,7 +207,7 @@ func TestPropertyGroupedEqualsRepeated(t *testing.T) {
 		s.HeadsQ = s.HeadsKV * (2 + r.IntN(2))
 		o := randOptions(r, s)
 		q, k, v := randCase(r, s)
-		pl, err := newPlan(len(q), len(k), len(v), s, &o)
+		pl, err := newPlan("Forward", len(q), len(k), len(v), s, &o)
 		require.NoError(t, err)
 		m := s
 		m.HeadsKV = s.HeadsQ
@@ -258,11 +262,7 @@ func TestPropertyGroupedEqualsRepeated(t *testing.T) {
 // every option.
 func TestPropertyFiniteDifferences(t *testing.T) {
 	r := rand.New(rand.NewPCG(19, 20))
-	trials := 25
-	if testing.Short() {
-		trials = 8
-	}
-	for trial := range trials {
+	for trial := range trials(25, 8) {
 		s := randShape(r, 6)
 		o := randOptions(r, s)
 		q, k, v := randCase(r, s)
@@ -333,11 +333,7 @@ func maxAbsDiff(a, b []float64) float64 {
 // several row blocks, under random options.
 func TestPropertyFastMatchesDirect(t *testing.T) {
 	r := rand.New(rand.NewPCG(21, 22))
-	trials := 12
-	if testing.Short() {
-		trials = 4
-	}
-	for trial := range trials {
+	for trial := range trials(12, 4) {
 		s := randShape(r, 150)
 		s.Lq = 65 + r.IntN(100)
 		s.Lk = s.Lq + r.IntN(40)
@@ -389,7 +385,7 @@ func TestPropertyDeterministicAcrossGOMAXPROCS(t *testing.T) {
 
 // The NaN and Inf policy of the package doc.
 func TestPropertyNaNInfPolicy(t *testing.T) {
-	s := Shape{Batch: 1, HeadsQ: 2, HeadsKV: 1, Lq: 3, Lk: 4, Dk: 2, Dv: 2}
+	s := nanInfShape
 	r := rand.New(rand.NewPCG(25, 26))
 	q, k, v := randCase(r, s)
 	forms := map[string]func(q, k, v []float64, o Options) ([]float64, []float64, error){
@@ -401,27 +397,9 @@ func TestPropertyNaNInfPolicy(t *testing.T) {
 	}
 	for name, f := range forms {
 		t.Run(name, func(t *testing.T) {
-			// NaN in one query row: that row's output and lse only.
-			q2 := append([]float64(nil), q...)
-			q2[2*1] = math.NaN() // head 0, row 1
-			out, lse, err := f(q2, k, v, Options{})
-			require.NoError(t, err)
-			for i := range 3 {
-				assert.Equal(t, i == 1, math.IsNaN(out[2*i]) && math.IsNaN(lse[i]), "row %d", i)
-			}
-			assert.False(t, math.IsNaN(out[6]), "head 1 is untouched")
-			// +Inf in a visible logit (through the bias): NaN row.
-			bias := make([]float64, 12)
-			bias[4] = math.Inf(1) // row 1, key 0
-			out, lse, err = f(q, k, v, Options{Bias: bias, BiasBatch: 1, BiasHeads: 1})
-			require.NoError(t, err)
-			assert.True(t, math.IsNaN(out[2]) && math.IsNaN(lse[1]))
-			assert.False(t, math.IsNaN(out[0]) || math.IsNaN(out[4]))
+			checkNaNInfPolicy(t, q, k, v, f)
 			// Every logit near +1000 or −1000: finite, equal to the shifted problem.
 			big := make([]float64, 12)
-			for i := range big {
-				big[i] = 1000
-			}
 			for _, shift := range []float64{1000, -1000} {
 				for i := range big {
 					big[i] = shift
@@ -437,32 +415,64 @@ func TestPropertyNaNInfPolicy(t *testing.T) {
 					assert.InDelta(t, l0[i]+shift, lb[i], 1e-12)
 				}
 			}
-			// Empty rows: 0 and −Inf, or NaN and −Inf.
-			pad, _ := mask.KeyPadding([]int{0})
-			for _, pol := range []EmptyRow{EmptyRowZero, EmptyRowNaN} {
-				out, lse, err := f(q, k, v, Options{Mask: pad, EmptyRow: pol})
-				require.NoError(t, err)
-				for i := range out {
-					if pol == EmptyRowZero {
-						require.Zero(t, out[i])
-					} else {
-						require.True(t, math.IsNaN(out[i]))
-					}
-				}
-				for _, l := range lse {
-					require.True(t, math.IsInf(l, -1))
-				}
-			}
 		})
 	}
-	// Direct form: an Inf in a hidden V row is ignored.
-	v2 := append([]float64(nil), v...)
-	v2[2*3] = math.Inf(1) // key 3
+	checkHiddenInfIgnored(t, q, k, v, func(q, k, v []float64, o Options) ([]float64, []float64, error) { return Forward(q, k, v, s, o) })
+}
+
+// nanInfShape is the shape checkNaNInfPolicy and checkHiddenInfIgnored
+// work on: two query heads on one kv head, 3 queries, 4 keys.
+var nanInfShape = Shape{Batch: 1, HeadsQ: 2, HeadsKV: 1, Lq: 3, Lk: 4, Dk: 2, Dv: 2}
+
+// checkNaNInfPolicy checks the NaN and Inf policy of the package doc for
+// a forward form f on nanInfShape: NaN in one query row reaches that row's
+// output and lse only; a +Inf logit (through the bias) makes its row NaN;
+// rows that see no key are 0 and −Inf, or NaN and −Inf.
+func checkNaNInfPolicy[T num.Float](t *testing.T, q, k, v []T, f func(q, k, v []T, o Options) ([]T, []T, error)) {
+	t.Helper()
+	isNaN := func(x T) bool { return x != x }
+	q2 := append([]T(nil), q...)
+	q2[2*1] = T(math.NaN()) // head 0, row 1
+	out, lse, err := f(q2, k, v, Options{})
+	require.NoError(t, err)
+	for i := range 3 {
+		assert.Equal(t, i == 1, isNaN(out[2*i]) && isNaN(lse[i]), "row %d", i)
+	}
+	assert.False(t, isNaN(out[6]), "head 1 is untouched")
+	bias := make([]float64, 12)
+	bias[4] = math.Inf(1) // row 1, key 0
+	out, lse, err = f(q, k, v, Options{Bias: bias, BiasBatch: 1, BiasHeads: 1})
+	require.NoError(t, err)
+	assert.True(t, isNaN(out[2]) && isNaN(lse[1]))
+	assert.False(t, isNaN(out[0]) || isNaN(out[4]))
+	pad, _ := mask.KeyPadding([]int{0})
+	for _, pol := range []EmptyRow{EmptyRowZero, EmptyRowNaN} {
+		out, lse, err := f(q, k, v, Options{Mask: pad, EmptyRow: pol})
+		require.NoError(t, err)
+		for i := range out {
+			if pol == EmptyRowZero {
+				require.Zero(t, out[i])
+			} else {
+				require.True(t, isNaN(out[i]))
+			}
+		}
+		for _, l := range lse {
+			require.True(t, math.IsInf(float64(l), -1))
+		}
+	}
+}
+
+// checkHiddenInfIgnored: for the direct and tiled forms, an Inf in a V row
+// that no query sees is ignored (nanInfShape).
+func checkHiddenInfIgnored[T num.Float](t *testing.T, q, k, v []T, f func(q, k, v []T, o Options) ([]T, []T, error)) {
+	t.Helper()
+	v2 := append([]T(nil), v...)
+	v2[2*3] = T(math.Inf(1)) // key 3
 	pad, _ := mask.KeyPadding([]int{3})
-	out, _, err := Forward(q, k, v2, s, Options{Mask: pad})
+	out, _, err := f(q, k, v2, Options{Mask: pad})
 	require.NoError(t, err)
 	for _, x := range out {
-		require.False(t, math.IsNaN(x) || math.IsInf(x, 0))
+		require.False(t, math.IsNaN(float64(x)) || math.IsInf(float64(x), 0))
 	}
 }
 
@@ -481,10 +491,10 @@ func TestPropertyMaskRunsEqualBooleans(t *testing.T) {
 		}
 		q, k, v := randCase(r, s)
 		dOut := randNorm(r, s.oLen())
-		runs, err := newPlan(len(q), len(k), len(v), s, &o)
+		runs, err := newPlan("Forward", len(q), len(k), len(v), s, &o)
 		require.NoError(t, err)
 		require.Nil(t, runs.vis, "every mask kind is a run per row")
-		bools, err := newPlan(len(q), len(k), len(v), s, &o)
+		bools, err := newPlan("Forward", len(q), len(k), len(v), s, &o)
 		require.NoError(t, err)
 		m := o.Mask
 		if isZeroMask(m) {

@@ -61,9 +61,10 @@ func TestGoldenSoftmax(t *testing.T) {
 	w.log(t, "Softmax/LogSumExp")
 }
 
-// TestSoftmaxWorked is the check of FORMULAS.md ([mpmath]): x = (1, 3, 2)
-// → lse 3.4076059644443803, softmax (0.090030573170380458,
-// 0.66524095577482189, 0.24472847105479765).
+// TestSoftmaxWorked checks the worked values in the documentation of
+// Softmax and LogSumExp ([mpmath], 40 digits): x = (1, 3, 2) → lse
+// 3.4076059644443803, softmax (0.090030573170380458, 0.66524095577482189,
+// 0.24472847105479765).
 func TestSoftmaxWorked(t *testing.T) {
 	sm, err := Softmax([]float64{1, 3, 2}, 3)
 	require.NoError(t, err)
@@ -101,10 +102,10 @@ func TestSoftmaxSpecialCases(t *testing.T) {
 func TestSoftmaxErrors(t *testing.T) {
 	_, err := Softmax([]float64{1, 2, 3}, 2)
 	require.True(t, errors.Is(err, ErrLength))
-	assert.Contains(t, err.Error(), "Softmax: len(x) = 3 is not a multiple of the row length n = 2")
+	assert.EqualError(t, err, "attention: length mismatch: Softmax: x has 3 elements; want a multiple of the row length n = 2")
 	_, err = LogSumExp32([]float32{1}, 0)
 	require.True(t, errors.Is(err, ErrShape))
-	assert.Contains(t, err.Error(), "LogSumExp32: row length n = 0; want ≥ 1")
+	assert.EqualError(t, err, "attention: invalid shape: LogSumExp32: n = 0; want a row length ≥ 1")
 	_, err = Softmax32([]float32{1}, -3)
 	require.True(t, errors.Is(err, ErrShape))
 	_, err = LogSumExp([]float64{1, 2, 3}, 2)

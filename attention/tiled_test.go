@@ -23,27 +23,35 @@ const tiledBound = 1e-14
 func TestGoldenForwardTiled(t *testing.T) {
 	w := worst{}
 	for _, block := range []int{1, 2, 3, 64} {
-		eachGolden(t, func(t *testing.T, g goldenCall) {
-			out, lse, err := ForwardTiled(g.q, g.k, g.v, g.s, block, g.o)
-			require.NoError(t, err)
-			w.check(t, g, "out", out, tiledBound)
-			w.check(t, g, "lse", lse, tiledBound)
+		goldenForward(t, w, tiledBound, nil, func(q, k, v []float64, s Shape, o Options) ([]float64, []float64, error) {
+			return ForwardTiled(q, k, v, s, block, o)
 		})
 	}
 	w.log(t, "ForwardTiled")
 }
 
-// randCase draws a random problem; the shapes and options it picks are
-// listed in the returned Options.
-func randCase(r *rand.Rand, s Shape) (q, k, v []float64) {
-	u := func(n int) []float64 {
-		x := make([]float64, n)
-		for i := range x {
-			x[i] = 2*r.Float64() - 1
-		}
-		return x
+func TestGoldenForwardTiled32(t *testing.T) {
+	w := worst{}
+	for _, block := range []int{1, 2, 3, 64} {
+		goldenForward(t, w, 0, nil, func(q, k, v []float32, s Shape, o Options) ([]float32, []float32, error) {
+			return ForwardTiled32(q, k, v, s, block, o)
+		})
 	}
-	return u(s.qLen()), u(s.kLen()), u(s.vLen())
+	w.log(t, "ForwardTiled32")
+}
+
+// randUniform is n values uniform in [−1, 1).
+func randUniform(r *rand.Rand, n int) []float64 {
+	x := make([]float64, n)
+	for i := range x {
+		x[i] = 2*r.Float64() - 1
+	}
+	return x
+}
+
+// randCase draws q, k and v of shape s, uniform in [−1, 1).
+func randCase(r *rand.Rand, s Shape) (q, k, v []float64) {
+	return randUniform(r, s.qLen()), randUniform(r, s.kLen()), randUniform(r, s.vLen())
 }
 
 func TestTiledMatchesDirect(t *testing.T) {
@@ -124,41 +132,55 @@ func TestMergeSplitsKeys(t *testing.T) {
 	}
 }
 
+// checkMergeSpecialCases checks the special cases of Merge's
+// documentation on a merge of either precision: both parts empty give 0
+// and −Inf (the EmptyRowZero convention), one empty part gives the other
+// exactly, a NaN lse gives a NaN row.
+func checkMergeSpecialCases[T num.Float](t *testing.T, merge func(outA, lseA, outB, lseB []T, dv int) ([]T, []T, error)) {
+	t.Helper()
+	inf := T(math.Inf(-1))
+	o, l, err := merge([]T{0, 0}, []T{inf}, []T{0, 0}, []T{inf}, 2)
+	require.NoError(t, err)
+	assert.Equal(t, []T{0, 0}, o)
+	assert.Equal(t, []T{inf}, l)
+	o, l, err = merge([]T{0.1, -0.7}, []T{3.25}, []T{0, 0}, []T{inf}, 2)
+	require.NoError(t, err)
+	assert.Equal(t, []T{0.1, -0.7}, o)
+	assert.Equal(t, []T{3.25}, l)
+	o, l, err = merge([]T{1}, []T{T(math.NaN())}, []T{1}, []T{0}, 1)
+	require.NoError(t, err)
+	assert.True(t, o[0] != o[0] && l[0] != l[0])
+}
+
 func TestMergeSpecialCases(t *testing.T) {
-	inf := math.Inf(-1)
-	// Both empty: 0 and −Inf (EmptyRowZero convention).
-	o, l, err := Merge([]float64{0, 0}, []float64{inf}, []float64{0, 0}, []float64{inf}, 2)
-	require.NoError(t, err)
-	assert.Equal(t, []float64{0, 0}, o)
-	assert.Equal(t, []float64{inf}, l)
-	// One part empty: the other part exactly.
-	o, l, err = Merge([]float64{0.1, -0.7}, []float64{3.25}, []float64{0, 0}, []float64{inf}, 2)
-	require.NoError(t, err)
-	assert.Equal(t, []float64{0.1, -0.7}, o)
-	assert.Equal(t, []float64{3.25}, l)
+	checkMergeSpecialCases(t, Merge)
 	// Worked value [mpmath, 40 digits]: x = [1, 3, 2] has lse
 	// 3.4076059644443803; merging the part {1, 3} (lse = log(e + e³)) with
 	// {2} must give it. Outputs are the weights when V = e_j.
 	la := math.Log(math.E + math.Exp(3))
 	pa0 := math.Exp(1 - la)
 	pa1 := math.Exp(3 - la)
-	o, l, err = Merge([]float64{pa0, pa1, 0}, []float64{la}, []float64{0, 0, 1}, []float64{2}, 3)
+	o, l, err := Merge([]float64{pa0, pa1, 0}, []float64{la}, []float64{0, 0, 1}, []float64{2}, 3)
 	require.NoError(t, err)
 	assert.InDelta(t, 3.4076059644443803, l[0], 4e-16)
 	want := []float64{0.090030573170380458, 0.66524095577482189, 0.24472847105479765}
 	assert.LessOrEqual(t, golden.NormwiseRelErr(o, want), 1e-15)
-	// NaN propagates.
-	o, l, err = Merge([]float64{1}, []float64{math.NaN()}, []float64{1}, []float64{0}, 1)
-	require.NoError(t, err)
-	assert.True(t, math.IsNaN(o[0]) && math.IsNaN(l[0]))
 }
 
 // TestDecodeReproducesPrefill decodes one token at a time against a growing
 // cache and checks that each step gives, bit for bit, the row of the full
 // causal prefill: the direct form computes each row the same way, and the
-// hidden keys of the prefill row add exact zeros.
+// hidden keys of the prefill row add exact zeros. The same holds for
+// Decode32 against Forward32, the same body in float32.
 func TestDecodeReproducesPrefill(t *testing.T) {
 	r := rand.New(rand.NewPCG(5, 6))
+	checkDecodePrefill(t, r, Forward, Decode)
+	checkDecodePrefill(t, r, Forward32, Decode32)
+}
+
+func checkDecodePrefill[T num.Float](t *testing.T, r *rand.Rand,
+	forward func(q, k, v []T, s Shape, o Options) ([]T, []T, error),
+	decode func(q, kCache, vCache []T, s Shape, pos int, o Options) ([]T, []T, error)) {
 	win, _ := mask.Window(3)
 	for _, tc := range []struct {
 		name string
@@ -172,10 +194,11 @@ func TestDecodeReproducesPrefill(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			L := 7
 			s := Shape{Batch: 2, HeadsQ: 4, HeadsKV: 2, Lq: L, Lk: L, Dk: 3, Dv: 5}
-			q, k, v := randCase(r, s)
+			q64, k64, v64 := randCase(r, s)
+			q, k, v := num.Convert[T](q64), num.Convert[T](k64), num.Convert[T](v64)
 			full := tc.o
 			full.Mask = tc.mask
-			want, wantL, err := Forward(q, k, v, s, full)
+			want, wantL, err := forward(q, k, v, s, full)
 			require.NoError(t, err)
 			p := &plan{s: s, layout: tc.o.Layout}
 			for pos := range L {
@@ -185,13 +208,13 @@ func TestDecodeReproducesPrefill(t *testing.T) {
 				q1 := slice(p, q, s.HeadsQ, L, s.Dk, pos, pos+1)
 				kc := slice(p, k, s.HeadsKV, L, s.Dk, 0, pos+1)
 				vc := slice(p, v, s.HeadsKV, L, s.Dv, 0, pos+1)
-				o1, l1, err := Decode(q1, kc, vc, st, pos, tc.o)
+				o1, l1, err := decode(q1, kc, vc, st, pos, tc.o)
 				require.NoError(t, err)
 				require.Equal(t, slice(p, want, s.HeadsQ, L, s.Dv, pos, pos+1), o1, "step %d", pos)
 				require.Equal(t, slice(p, wantL, s.HeadsQ, L, 1, pos, pos+1), l1, "step %d", pos)
 				// And against the whole cache, future keys present.
 				st.Lk = L
-				o2, _, err := Decode(q1, k, v, st, pos, tc.o)
+				o2, _, err := decode(q1, k, v, st, pos, tc.o)
 				require.NoError(t, err)
 				require.Equal(t, o1, o2, "step %d, full cache", pos)
 			}
@@ -201,9 +224,9 @@ func TestDecodeReproducesPrefill(t *testing.T) {
 
 // slice cuts rows i0 … i1−1 of every head out of a tensor with H heads of
 // L rows of D values, in p's layout.
-func slice(p *plan, x []float64, H, L, D, i0, i1 int) []float64 {
+func slice[T num.Float](p *plan, x []T, H, L, D, i0, i1 int) []T {
 	n := i1 - i0
-	out := make([]float64, p.s.Batch*H*n*D)
+	out := make([]T, p.s.Batch*H*n*D)
 	for b := range p.s.Batch {
 		for h := range H {
 			for i := i0; i < i1; i++ {
@@ -218,8 +241,13 @@ func slice(p *plan, x []float64, H, L, D, i0, i1 int) []float64 {
 // from the exact result, after an exp and a log: a few ulps.
 const mergeBound = 1e-15
 
-func TestGoldenMerge(t *testing.T) {
+// goldenMerge checks a merge against the golden merge cases, within bound
+// (float64) or golden32Bound (float32, on the parts rounded to float32).
+func goldenMerge[T num.Float](t *testing.T, name string, bound float64, run func(outA, lseA, outB, lseB []T, dv int) (out, lse []T, err error)) {
 	f := golden.MustLoadFamily(t, "attention", "merge")
+	if is32[T]() {
+		bound = golden32Bound
+	}
 	var worstO, worstL float64
 	for _, c := range f.Cases {
 		t.Run(c.Name, func(t *testing.T) {
@@ -228,38 +256,50 @@ func TestGoldenMerge(t *testing.T) {
 				Dv   int `json:"dv"`
 			}
 			require.NoError(t, c.DecodeConfig(&cfg))
-			get := func(n string) []float64 {
+			get := func(n string) []T {
+				x, _, err := c.Float(n)
+				require.NoError(t, err)
+				return num.Convert[T](x)
+			}
+			want := func(n string) []float64 {
 				x, _, err := c.Float(n)
 				require.NoError(t, err)
 				return x
 			}
-			out, lse, err := Merge(get("out_a"), get("lse_a"), get("out_b"), get("lse_b"), cfg.Dv)
+			out, lse, err := run(get("out_a"), get("lse_a"), get("out_b"), get("lse_b"), cfg.Dv)
 			require.NoError(t, err)
-			eo, el := golden.NormwiseRelErr(out, get("out")), golden.NormwiseRelErr(lse, get("lse"))
+			eo := golden.NormwiseRelErr(num.Convert[float64](out), want("out"))
+			el := golden.NormwiseRelErr(num.Convert[float64](lse), want("lse"))
 			worstO, worstL = max(worstO, eo), max(worstL, el)
-			assert.LessOrEqual(t, eo, mergeBound, golden.Describe(c, "out", eo, mergeBound))
-			assert.LessOrEqual(t, el, mergeBound, golden.Describe(c, "lse", el, mergeBound))
+			assert.LessOrEqual(t, eo, bound, golden.Describe(c, "out", eo, bound))
+			assert.LessOrEqual(t, el, bound, golden.Describe(c, "lse", el, bound))
 		})
 	}
-	t.Logf("Merge: worst normwise relative error: out %.3g, lse %.3g", worstO, worstL)
+	t.Logf("%s: worst normwise relative error: out %.3g, lse %.3g", name, worstO, worstL)
 }
 
+func TestGoldenMerge(t *testing.T)   { goldenMerge(t, "Merge", mergeBound, Merge) }
+func TestGoldenMerge32(t *testing.T) { goldenMerge(t, "Merge32", 0, Merge32) }
+
 // TestNoKeysUnderEmptyRowNaN: with Lk = 0 every row sees no key, and every
-// form gives the documented EmptyRowNaN output (NaN) and log-sum-exp (−Inf),
+// form, float64 and float32, gives the documented EmptyRowNaN output (NaN) and log-sum-exp (−Inf),
 // or 0 under EmptyRowZero.
 func TestNoKeysUnderEmptyRowNaN(t *testing.T) {
 	s := Shape{Batch: 1, HeadsQ: 2, HeadsKV: 1, Lq: 3, Lk: 0, Dk: 4, Dv: 2}
 	q := make([]float64, 2*3*4)
 	for _, policy := range []EmptyRow{EmptyRowNaN, EmptyRowZero} {
 		o := Options{EmptyRow: policy}
+		widen := func(out, lse []float32, err error) ([]float64, []float64, error) {
+			return num.Convert[float64](out), num.Convert[float64](lse), err
+		}
+		q32 := num.Convert[float32](q)
 		forms := map[string]func() ([]float64, []float64, error){
-			"Forward":      func() ([]float64, []float64, error) { return Forward(q, nil, nil, s, o) },
-			"ForwardFast":  func() ([]float64, []float64, error) { return ForwardFast(q, nil, nil, s, o) },
-			"ForwardTiled": func() ([]float64, []float64, error) { return ForwardTiled(q, nil, nil, s, 2, o) },
-			"Forward32": func() ([]float64, []float64, error) {
-				out, lse, err := Forward32(num.Convert[float32](q), nil, nil, s, o)
-				return num.Convert[float64](out), num.Convert[float64](lse), err
-			},
+			"Forward":        func() ([]float64, []float64, error) { return Forward(q, nil, nil, s, o) },
+			"ForwardFast":    func() ([]float64, []float64, error) { return ForwardFast(q, nil, nil, s, o) },
+			"ForwardTiled":   func() ([]float64, []float64, error) { return ForwardTiled(q, nil, nil, s, 2, o) },
+			"Forward32":      func() ([]float64, []float64, error) { return widen(Forward32(q32, nil, nil, s, o)) },
+			"ForwardFast32":  func() ([]float64, []float64, error) { return widen(ForwardFast32(q32, nil, nil, s, o)) },
+			"ForwardTiled32": func() ([]float64, []float64, error) { return widen(ForwardTiled32(q32, nil, nil, s, 2, o)) },
 		}
 		for name, f := range forms {
 			out, lse, err := f()

@@ -2,16 +2,31 @@ package norm
 
 import "github.com/plumbref/plumb/internal/num"
 
-// runForward validates and runs a forward pass: the norm of x, or with
-// fused the norm of sum = x + residual (each element rounded once), which
-// it also returns.
-func runForward[T num.Float](fn string, x, residual []T, d int, w, b []T, fused, center bool, o Options) (y, sum []T, err error) {
-	if err := checkAll(fn, x, d, w, b, o); err != nil {
+// kind is what an entry point computes: which layer, and whether a
+// residual is added first.
+type kind struct {
+	center bool // LayerNorm: subtract the row mean (RMSNorm does not)
+	fused  bool // the fused forms: normalise sum = x + residual
+}
+
+// The four kinds of entry point.
+var (
+	layerNorm    = kind{center: true}
+	rmsNorm      = kind{}
+	addLayerNorm = kind{center: true, fused: true}
+	addRMSNorm   = kind{fused: true}
+)
+
+// runForward validates and runs a forward pass: the norm of x, or for a
+// fused kind the norm of sum = x + residual (each element rounded once),
+// which it also returns.
+func runForward[T num.Float](fn string, k kind, x, residual []T, d int, w, b []T, o Options) (y, sum []T, err error) {
+	if err := checkAll(fn, "x", x, d, w, b, o); err != nil {
 		return nil, nil, err
 	}
 	sum = x
-	if fused {
-		if err := checkLike(fn, "residual", residual, x, false); err != nil {
+	if k.fused {
+		if err := checkLike(fn, "residual", residual, "x", x, false); err != nil {
 			return nil, nil, err
 		}
 		sum = make([]T, len(x))
@@ -19,37 +34,55 @@ func runForward[T num.Float](fn string, x, residual []T, d int, w, b []T, fused,
 			sum[i] = x[i] + residual[i]
 		}
 	}
-	y = forward(sum, d, w, b, center, o)
-	if !fused {
+	y = forward(sum, d, w, b, k.center, o)
+	if !k.fused {
 		sum = nil
 	}
 	return y, sum, nil
 }
 
-// runBackward validates and runs a backward pass; with fused, dsum (nil:
-// zero) is added to the gradient with respect to x. The bias gradient is
-// returned for LayerNorm (center) only.
-func runBackward[T num.Float](fn string, x []T, d int, w, dy, dsum []T, fused, center bool, o Options) (grads[T], error) {
-	if err := checkAll(fn, x, d, w, nil, o); err != nil {
+// yOnly drops the sum of runForward, for the unfused entry points.
+func yOnly[T num.Float](y, _ []T, err error) ([]T, error) { return y, err }
+
+// runBackward validates and runs a backward pass; for a fused kind the
+// input is called sum and dsum (nil: zero) is added to the gradient with
+// respect to it. The bias gradient is returned for LayerNorm (center)
+// only.
+func runBackward[T num.Float](fn string, k kind, x []T, d int, w, dy, dsum []T, o Options) (grads[T], error) {
+	xName := "x"
+	if k.fused {
+		xName = "sum"
+	}
+	if err := checkAll(fn, xName, x, d, w, nil, o); err != nil {
 		return grads[T]{}, err
 	}
-	if err := checkLike(fn, "dy", dy, x, false); err != nil {
+	if err := checkLike(fn, "dy", dy, xName, x, false); err != nil {
 		return grads[T]{}, err
 	}
-	if fused {
-		if err := checkLike(fn, "dsum", dsum, x, true); err != nil {
+	if k.fused {
+		if err := checkLike(fn, "dsum", dsum, xName, x, true); err != nil {
 			return grads[T]{}, err
 		}
 	}
 	var b []T
-	if center {
+	if k.center {
 		b = make([]T, d) // only its presence matters: it asks for ∂L/∂b
 	}
-	g := backward(x, d, w, b, dy, center, o)
+	g := backward(x, d, w, b, dy, k.center, o)
 	for i := range dsum {
 		g.dx[i] += dsum[i]
 	}
 	return g, nil
+}
+
+// grads64 and grads32 return the gradients of runBackward in the exported
+// types; Bias is nil for RMSNorm, as runBackward leaves it.
+func grads64(g grads[float64], err error) (Grads, error) {
+	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, err
+}
+
+func grads32(g grads[float32], err error) (Grads32, error) {
+	return Grads32{X: g.dx, Weight: g.dw, Bias: g.db}, err
 }
 
 // LayerNormBackward returns the gradients of a scalar loss L through
@@ -73,14 +106,13 @@ func runBackward[T num.Float](fn string, x []T, d int, w, dy, dsum []T, fused, c
 //	a constant row       ∂L/∂x = (g − mean(g)) / √ε or / ε
 //	a row holding NaN or ±Inf in x   ∂L/∂x = NaN for the row, and NaN in ∂L/∂w
 //	len(dy) ≠ len(x)     ErrShape
-//	other bad input      as LayerNorm
+//	other invalid input  as LayerNorm
 //
 // Accuracy: measured worst normwise relative error 2.5e-16 for ∂L/∂x and
 // 2.7e-16 for ∂L/∂w against the generator's 50-digit derivatives (see the
 // package documentation for the one ill-conditioned direction).
 func LayerNormBackward(x []float64, d int, weight, dy []float64, o Options) (Grads, error) {
-	g, err := runBackward("LayerNormBackward", x, d, weight, dy, nil, false, true, o)
-	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, err
+	return grads64(runBackward("LayerNormBackward", layerNorm, x, d, weight, dy, nil, o))
 }
 
 // RMSNormBackward returns the gradients of a scalar loss L through
@@ -100,14 +132,13 @@ func LayerNormBackward(x []float64, d int, weight, dy []float64, o Options) (Gra
 //	a zero row           ∂L/∂x = g / √ε or g / ε
 //	a row holding NaN or ±Inf in x   ∂L/∂x = NaN for the row, and NaN in ∂L/∂w
 //	len(dy) ≠ len(x)     ErrShape
-//	other bad input      as RMSNorm
+//	other invalid input  as RMSNorm
 //
 // Accuracy: measured worst normwise relative error 2.2e-16 for ∂L/∂x and
 // 1.9e-16 for ∂L/∂w against the generator's 50-digit derivatives (see the
 // package documentation for the one ill-conditioned direction).
 func RMSNormBackward(x []float64, d int, weight, dy []float64, o Options) (Grads, error) {
-	g, err := runBackward("RMSNormBackward", x, d, weight, dy, nil, false, false, o)
-	return Grads{X: g.dx, Weight: g.dw}, err
+	return grads64(runBackward("RMSNormBackward", rmsNorm, x, d, weight, dy, nil, o))
 }
 
 // AddLayerNorm is the fused residual add and LayerNorm of a pre-norm block:
@@ -121,14 +152,14 @@ func RMSNormBackward(x []float64, d int, weight, dy []float64, o Options) (Grads
 // and sum is discarded (see the package documentation). residual must have
 // the shape of x; other inputs and special cases are as LayerNorm.
 func AddLayerNorm(x, residual []float64, d int, weight, bias []float64, o Options) (y, sum []float64, err error) {
-	return runForward("AddLayerNorm", x, residual, d, weight, bias, true, true, o)
+	return runForward("AddLayerNorm", addLayerNorm, x, residual, d, weight, bias, o)
 }
 
 // AddRMSNorm is the fused residual add and RMSNorm of a pre-norm block:
 // sum = x + residual (rounded once per element), y = RMSNorm(sum). It
 // returns y and the new residual stream sum; see AddLayerNorm.
 func AddRMSNorm(x, residual []float64, d int, weight []float64, o Options) (y, sum []float64, err error) {
-	return runForward("AddRMSNorm", x, residual, d, weight, nil, true, false, o)
+	return runForward("AddRMSNorm", addRMSNorm, x, residual, d, weight, nil, o)
 }
 
 // AddLayerNormBackward is the backward of AddLayerNorm. It takes the saved
@@ -140,16 +171,14 @@ func AddRMSNorm(x, residual []float64, d int, weight []float64, o Options) (y, s
 // which is the gradient with respect to both x and residual, with the
 // weight and bias gradients of LayerNormBackward.
 func AddLayerNormBackward(sum []float64, d int, weight, dy, dsum []float64, o Options) (Grads, error) {
-	g, err := runBackward("AddLayerNormBackward", sum, d, weight, dy, dsum, true, true, o)
-	return Grads{X: g.dx, Weight: g.dw, Bias: g.db}, err
+	return grads64(runBackward("AddLayerNormBackward", addLayerNorm, sum, d, weight, dy, dsum, o))
 }
 
 // AddRMSNormBackward is the backward of AddRMSNorm: Grads.X = dsum + ∂L/∂x
 // of RMSNormBackward(sum, dy), the gradient with respect to both x and
 // residual; dsum may be nil (zero).
 func AddRMSNormBackward(sum []float64, d int, weight, dy, dsum []float64, o Options) (Grads, error) {
-	g, err := runBackward("AddRMSNormBackward", sum, d, weight, dy, dsum, true, false, o)
-	return Grads{X: g.dx, Weight: g.dw}, err
+	return grads64(runBackward("AddRMSNormBackward", addRMSNorm, sum, d, weight, dy, dsum, o))
 }
 
 // Grads32 are the gradients returned by the float32 instantiations; the
@@ -162,14 +191,55 @@ type Grads32 struct {
 // LayerNormBackward: the straightforward low-precision implementation the
 // compare package uses as a yardstick; not a reference.
 func LayerNormBackward32(x []float32, d int, weight, dy []float32, o Options) (Grads32, error) {
-	g, err := runBackward("LayerNormBackward32", x, d, weight, dy, nil, false, true, o)
-	return Grads32{X: g.dx, Weight: g.dw, Bias: g.db}, err
+	return grads32(runBackward("LayerNormBackward32", layerNorm, x, d, weight, dy, nil, o))
 }
 
 // RMSNormBackward32 is the float32 instantiation of the same body as
 // RMSNormBackward: the straightforward low-precision implementation the
 // compare package uses as a yardstick; not a reference.
 func RMSNormBackward32(x []float32, d int, weight, dy []float32, o Options) (Grads32, error) {
-	g, err := runBackward("RMSNormBackward32", x, d, weight, dy, nil, false, false, o)
-	return Grads32{X: g.dx, Weight: g.dw}, err
+	return grads32(runBackward("RMSNormBackward32", rmsNorm, x, d, weight, dy, nil, o))
+}
+
+// AddLayerNorm32 is the float32 instantiation of the same body as
+// AddLayerNorm: the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference. The sum is rounded
+// once per element to float32 before it is normalised, so y equals
+// LayerNorm32(sum) bit for bit. Epsilon stays a float64 option and is
+// rounded to float32 after scaling.
+//
+// Special cases are those of AddLayerNorm.
+func AddLayerNorm32(x, residual []float32, d int, weight, bias []float32, o Options) (y, sum []float32, err error) {
+	return runForward("AddLayerNorm32", addLayerNorm, x, residual, d, weight, bias, o)
+}
+
+// AddRMSNorm32 is the float32 instantiation of the same body as
+// AddRMSNorm: the straightforward low-precision implementation the compare
+// package uses as a yardstick; not a reference. y equals RMSNorm32(sum) bit
+// for bit, sum rounded once per element to float32.
+//
+// Special cases are those of AddRMSNorm.
+func AddRMSNorm32(x, residual []float32, d int, weight []float32, o Options) (y, sum []float32, err error) {
+	return runForward("AddRMSNorm32", addRMSNorm, x, residual, d, weight, nil, o)
+}
+
+// AddLayerNormBackward32 is the float32 instantiation of the same body as
+// AddLayerNormBackward: the straightforward low-precision implementation
+// the compare package uses as a yardstick; not a reference. Grads32.X is
+// dsum + the X of LayerNormBackward32(sum, dy), one float32 addition per
+// element.
+//
+// Special cases are those of AddLayerNormBackward.
+func AddLayerNormBackward32(sum []float32, d int, weight, dy, dsum []float32, o Options) (Grads32, error) {
+	return grads32(runBackward("AddLayerNormBackward32", addLayerNorm, sum, d, weight, dy, dsum, o))
+}
+
+// AddRMSNormBackward32 is the float32 instantiation of the same body as
+// AddRMSNormBackward: the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference. Grads32.X is
+// dsum + the X of RMSNormBackward32(sum, dy).
+//
+// Special cases are those of AddRMSNormBackward.
+func AddRMSNormBackward32(sum []float32, d int, weight, dy, dsum []float32, o Options) (Grads32, error) {
+	return grads32(runBackward("AddRMSNormBackward32", addRMSNorm, sum, d, weight, dy, dsum, o))
 }

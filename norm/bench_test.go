@@ -16,47 +16,33 @@ func benchInputs() (x, w, dy []float64) {
 	return uniform(r, benchRows*benchD, -2, 2), uniform(r, benchD, 0.5, 1.5), uniform(r, benchRows*benchD, -1, 1)
 }
 
-func BenchmarkRMSNorm(b *testing.B) {
-	x, w, _ := benchInputs()
-	o := Options{Epsilon: 1e-6}
-	b.SetBytes(int64(8 * len(x)))
+// bench times call, which reads bytes of input.
+func bench(b *testing.B, bytes int, call func() error) {
+	b.SetBytes(int64(bytes))
 	for b.Loop() {
-		if _, err := RMSNorm(x, benchD, w, o); err != nil {
+		if err := call(); err != nil {
 			b.Fatal(err)
 		}
 	}
 }
 
+func BenchmarkRMSNorm(b *testing.B) {
+	x, w, _ := benchInputs()
+	bench(b, 8*len(x), func() error { _, err := RMSNorm(x, benchD, w, Options{Epsilon: 1e-6}); return err })
+}
+
 func BenchmarkLayerNorm(b *testing.B) {
 	x, w, _ := benchInputs()
-	o := Options{Epsilon: 1e-5}
-	b.SetBytes(int64(8 * len(x)))
-	for b.Loop() {
-		if _, err := LayerNorm(x, benchD, w, w, o); err != nil {
-			b.Fatal(err)
-		}
-	}
+	bench(b, 8*len(x), func() error { _, err := LayerNorm(x, benchD, w, w, Options{Epsilon: 1e-5}); return err })
 }
 
 func BenchmarkRMSNorm32(b *testing.B) {
 	x, w, _ := benchInputs()
 	x32, w32 := num.Convert[float32](x), num.Convert[float32](w)
-	o := Options{Epsilon: 1e-6}
-	b.SetBytes(int64(4 * len(x)))
-	for b.Loop() {
-		if _, err := RMSNorm32(x32, benchD, w32, o); err != nil {
-			b.Fatal(err)
-		}
-	}
+	bench(b, 4*len(x), func() error { _, err := RMSNorm32(x32, benchD, w32, Options{Epsilon: 1e-6}); return err })
 }
 
 func BenchmarkLayerNormBackward(b *testing.B) {
 	x, w, dy := benchInputs()
-	o := Options{Epsilon: 1e-5}
-	b.SetBytes(int64(8 * len(x)))
-	for b.Loop() {
-		if _, err := LayerNormBackward(x, benchD, w, dy, o); err != nil {
-			b.Fatal(err)
-		}
-	}
+	bench(b, 8*len(x), func() error { _, err := LayerNormBackward(x, benchD, w, dy, Options{Epsilon: 1e-5}); return err })
 }

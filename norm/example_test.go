@@ -8,8 +8,9 @@ import (
 	"github.com/plumbref/plumb/norm"
 )
 
-// LayerNorm of one row of four, with no gain or bias: the values of the
-// project's formula notes (Ba et al. 2016 Eq. 3–4, ε = 1e-5 in the root).
+// LayerNorm of one row of four, with no gain or bias: the worked value of
+// the package documentation (Ba et al. 2016 Eq. 3–4, ε = 1e-5 in the root,
+// computed with mpmath).
 func ExampleLayerNorm() {
 	y, err := norm.LayerNorm([]float64{1, 2, 3, 4}, 4, nil, nil, norm.Options{Epsilon: 1e-5})
 	if err != nil {
@@ -170,5 +171,5 @@ func ExampleOptions() {
 	fmt.Println(err)
 	// Output:
 	// true
-	// norm: invalid epsilon: RMSNorm: Epsilon = 0; want a finite value > 0 (ε = 0 divides 0 by 0 on a constant row)
+	// norm: invalid epsilon: RMSNorm: Options.Epsilon = 0; want a finite number > 0 (ε = 0 divides 0 by 0 on a constant row)
 }

@@ -120,5 +120,13 @@ func FuzzNorm(f *testing.F) {
 		if checkErr(err) && len(y32) != len(x) {
 			t.Fatalf("LayerNorm32: %d outputs for %d inputs", len(y32), len(x))
 		}
+		y32, s32, err := AddLayerNorm32(x32, x32, d, nil, nil, o)
+		if checkErr(err) && (len(y32) != len(x) || len(s32) != len(x)) {
+			t.Fatalf("AddLayerNorm32 shapes: %d %d", len(y32), len(s32))
+		}
+		g32, err := AddRMSNormBackward32(x32, d, nil, x32, x32, o)
+		if checkErr(err) && (len(g32.X) != len(x) || g32.Bias != nil) {
+			t.Fatalf("AddRMSNormBackward32 shapes: %d", len(g32.X))
+		}
 	})
 }

@@ -10,8 +10,13 @@ import (
 )
 
 // Errors. Every error the package returns wraps exactly one of these
-// (match with errors.Is) and names the function, the argument, the value
-// found and the value wanted.
+// (match with errors.Is) and reads
+//
+//	<sentinel>: <function>: <argument> = <value>; want <expectation>
+//
+// for instance "norm: invalid epsilon: LayerNorm: Options.Epsilon = -1;
+// want a finite number > 0 (…)", or "norm: shape mismatch: RMSNorm: weight
+// has 2 elements; want d = 3, or nil for none" for a length.
 var (
 	// ErrShape: a row length d below 1, an input whose length is not a
 	// multiple of d, or a weight, bias, residual or gradient whose length
@@ -130,39 +135,44 @@ func (o Options) check(fn string) error {
 	e := o.Epsilon
 	if !(e > 0) || math.IsInf(e, 1) {
 		why := "ε = 0 divides 0 by 0 on a constant row"
-		if math.IsNaN(e) || math.IsInf(e, 1) {
+		switch {
+		case math.IsNaN(e) || math.IsInf(e, 0):
 			why = "it would make every output NaN or 0"
+		case e < 0:
+			why = "a negative ε can make the denominator 0 or NaN"
 		}
-		return fmt.Errorf("%w: %s: Epsilon = %v; want a finite value > 0 (%s)", ErrEpsilon, fn, e, why)
+		return fmt.Errorf("%w: %s: Options.Epsilon = %v; want a finite number > 0 (%s)", ErrEpsilon, fn, e, why)
 	}
 	if err := placementWords.CheckAt(fn+": Options.Placement", o.Placement); err != nil {
 		return err
 	}
-	if err := weightWords.CheckAt(fn+": Options.Weight", o.Weight); err != nil {
-		return err
-	}
-	return nil
+	return weightWords.CheckAt(fn+": Options.Weight", o.Weight)
 }
 
-// checkRows validates the row length d against x.
-func checkRows[T num.Float](fn string, x []T, d int) error {
+// checkRows validates the row length d against the input x, which the
+// caller knows by name ("x", or "sum" for the fused backward).
+func checkRows[T num.Float](fn, name string, x []T, d int) error {
 	if d < 1 {
 		return fmt.Errorf("%w: %s: d = %d; want ≥ 1", ErrShape, fn, d)
 	}
 	if len(x)%d != 0 {
-		return fmt.Errorf("%w: %s: x has %d elements, not a multiple of d = %d", ErrShape, fn, len(x), d)
+		return fmt.Errorf("%w: %s: %s has %d elements; want a multiple of d = %d", ErrShape, fn, name, len(x), d)
 	}
 	return nil
 }
 
-// checkLike validates a tensor that must have the shape of x; nil is
-// accepted only when optional.
-func checkLike[T num.Float](fn, name string, v, x []T, optional bool) error {
+// checkLike validates a tensor v that must have the shape of the input x
+// (named xName); nil is accepted only when optional, and means zero.
+func checkLike[T num.Float](fn, name string, v []T, xName string, x []T, optional bool) error {
 	if optional && v == nil {
 		return nil
 	}
 	if len(v) != len(x) {
-		return fmt.Errorf("%w: %s: %s has %d elements, x has %d", ErrShape, fn, name, len(v), len(x))
+		orNil := ""
+		if optional {
+			orNil = ", or nil for zero"
+		}
+		return fmt.Errorf("%w: %s: %s has %d elements; want len(%s) = %d%s", ErrShape, fn, name, len(v), xName, len(x), orNil)
 	}
 	return nil
 }
@@ -170,13 +180,13 @@ func checkLike[T num.Float](fn, name string, v, x []T, optional bool) error {
 // checkVec validates an optional per-feature vector (weight or bias).
 func checkVec[T num.Float](fn, name string, v []T, d int) error {
 	if v != nil && len(v) != d {
-		return fmt.Errorf("%w: %s: %s has %d elements, want d = %d", ErrShape, fn, name, len(v), d)
+		return fmt.Errorf("%w: %s: %s has %d elements; want d = %d, or nil for none", ErrShape, fn, name, len(v), d)
 	}
 	return nil
 }
 
-func checkAll[T num.Float](fn string, x []T, d int, w, b []T, o Options) error {
-	if err := checkRows(fn, x, d); err != nil {
+func checkAll[T num.Float](fn, xName string, x []T, d int, w, b []T, o Options) error {
+	if err := checkRows(fn, xName, x, d); err != nil {
 		return err
 	}
 	if err := checkVec(fn, "weight", w, d); err != nil {
@@ -218,8 +228,7 @@ func checkAll[T num.Float](fn string, x []T, d int, w, b []T, o Options) error {
 // 50-digit golden values (rows of 1024), 2.2e-16 on rows with offset 1e8
 // and spread 1.
 func LayerNorm(x []float64, d int, weight, bias []float64, o Options) ([]float64, error) {
-	y, _, err := runForward("LayerNorm", x, nil, d, weight, bias, false, true, o)
-	return y, err
+	return yOnly(runForward("LayerNorm", layerNorm, x, nil, d, weight, bias, o))
 }
 
 // LayerNorm32 is the float32 instantiation of the same body as LayerNorm:
@@ -227,8 +236,7 @@ func LayerNorm(x []float64, d int, weight, bias []float64, o Options) ([]float64
 // as a yardstick; not a reference. Epsilon stays a float64 option and is
 // rounded to float32 after scaling.
 func LayerNorm32(x []float32, d int, weight, bias []float32, o Options) ([]float32, error) {
-	y, _, err := runForward("LayerNorm32", x, nil, d, weight, bias, false, true, o)
-	return y, err
+	return yOnly(runForward("LayerNorm32", layerNorm, x, nil, d, weight, bias, o))
 }
 
 // RMSNorm divides each row of x (rows of d elements, row-major) by its root
@@ -259,8 +267,7 @@ func LayerNorm32(x []float32, d int, weight, bias []float32, o Options) ([]float
 // Accuracy: measured worst normwise relative error 2.3e-16 against the
 // 50-digit golden values, including rows near 1e-300 and 1e200.
 func RMSNorm(x []float64, d int, weight []float64, o Options) ([]float64, error) {
-	y, _, err := runForward("RMSNorm", x, nil, d, weight, nil, false, false, o)
-	return y, err
+	return yOnly(runForward("RMSNorm", rmsNorm, x, nil, d, weight, nil, o))
 }
 
 // RMSNorm32 is the float32 instantiation of the same body as RMSNorm: the
@@ -268,6 +275,5 @@ func RMSNorm(x []float64, d int, weight []float64, o Options) ([]float64, error)
 // a yardstick; not a reference. Epsilon stays a float64 option and is
 // rounded to float32 after scaling.
 func RMSNorm32(x []float32, d int, weight []float32, o Options) ([]float32, error) {
-	y, _, err := runForward("RMSNorm32", x, nil, d, weight, nil, false, false, o)
-	return y, err
+	return yOnly(runForward("RMSNorm32", rmsNorm, x, nil, d, weight, nil, o))
 }

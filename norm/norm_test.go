@@ -12,6 +12,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // allOptions lists every combination of the convention switches.
@@ -33,11 +34,11 @@ func uniform(r *rand.Rand, n int, lo, hi float64) []float64 {
 	return v
 }
 
-// TestWorkedValues checks the values quoted in the project's formula notes
-// (shared FORMULAS.md, "Normalisation"), which were computed with mpmath at
-// 30+ digits from the published formulas and are printed to 16–17
-// significant digits. The bound 1e-15 (about 4.5 units in the last place)
-// covers the printed rounding and the kernels' few roundings.
+// TestWorkedValues checks the worked values of the package documentation,
+// computed with mpmath at 40 digits from the published formulas and printed
+// there to 17 significant digits (here to 16 or 17). The bound 1e-15
+// (about 4.5 units in the last place) covers the printed rounding and the
+// kernels' few roundings.
 func TestWorkedValues(t *testing.T) {
 	x := []float64{1, 2, 3, 4}
 	// [mpmath] LayerNorm, Ba et al. 2016 Eq. (3)–(4), ε = 1e-5 in the root.
@@ -57,7 +58,7 @@ func TestWorkedValues(t *testing.T) {
 	}
 }
 
-// TestErrors checks that every kind of bad input gives the named error,
+// TestErrors checks that every kind of invalid input gives the named error,
 // with a message naming the function, the argument and the values.
 func TestErrors(t *testing.T) {
 	ok := Options{Epsilon: 1e-5}
@@ -69,34 +70,28 @@ func TestErrors(t *testing.T) {
 		want error
 		msg  string
 	}{
-		{"d zero", func() error { _, err := RMSNorm(x, 0, nil, ok); return err }, ErrShape, "RMSNorm: d = 0; want ≥ 1"},
-		{"d negative", func() error { _, err := LayerNorm(x, -2, nil, nil, ok); return err }, ErrShape, "LayerNorm: d = -2"},
-		{"len not multiple", func() error { _, err := LayerNorm(x, 4, nil, nil, ok); return err }, ErrShape, "x has 6 elements, not a multiple of d = 4"},
-		{"weight length", func() error { _, err := RMSNorm(x, 3, []float64{1, 1}, ok); return err }, ErrShape, "weight has 2 elements, want d = 3"},
-		{"empty non-nil weight", func() error { _, err := RMSNorm(x, 3, []float64{}, ok); return err }, ErrShape, "weight has 0 elements, want d = 3"},
-		{"bias length", func() error { _, err := LayerNorm(x, 3, w3, []float64{0}, ok); return err }, ErrShape, "bias has 1 elements, want d = 3"},
-		{"epsilon zero", func() error { _, err := RMSNorm(x, 3, nil, Options{}); return err }, ErrEpsilon, "RMSNorm: Epsilon = 0; want a finite value > 0"},
-		{"epsilon negative", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: -1e-5}); return err }, ErrEpsilon, "Epsilon = -1e-05"},
-		{"epsilon NaN", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: math.NaN()}); return err }, ErrEpsilon, "Epsilon = NaN"},
-		{"epsilon Inf", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: math.Inf(1)}); return err }, ErrEpsilon, "Epsilon = +Inf"},
-		{"placement", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: 1, Placement: 7}); return err }, ErrOption, "RMSNorm: Options.Placement = 7; want one of in-root, added-to-root"},
-		{"weight form", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: 1, Weight: -1}); return err }, ErrOption, "LayerNorm: Options.Weight = -1; want one of as-is, one-plus"},
-		{"dy length LN", func() error { _, err := LayerNormBackward(x, 3, nil, x[:3], ok); return err }, ErrShape, "LayerNormBackward: dy has 3 elements, x has 6"},
-		{"dy length RMS", func() error { _, err := RMSNormBackward(x, 3, nil, nil, ok); return err }, ErrShape, "RMSNormBackward: dy has 0 elements, x has 6"},
-		{"backward epsilon", func() error { _, err := RMSNormBackward(x, 3, nil, x, Options{}); return err }, ErrEpsilon, "RMSNormBackward: Epsilon = 0"},
-		{"residual length LN", func() error { _, _, err := AddLayerNorm(x, x[:5], 3, nil, nil, ok); return err }, ErrShape, "AddLayerNorm: residual has 5 elements, x has 6"},
-		{"residual length RMS", func() error { _, _, err := AddRMSNorm(x, nil, 3, nil, ok); return err }, ErrShape, "AddRMSNorm: residual has 0 elements"},
-		{"dsum length LN", func() error { _, err := AddLayerNormBackward(x, 3, nil, x, x[:3], ok); return err }, ErrShape, "dsum has 3 elements"},
-		{"dsum length RMS", func() error { _, err := AddRMSNormBackward(x, 3, nil, x, []float64{}, ok); return err }, ErrShape, "dsum has 0 elements"},
-		{"dy fused", func() error { _, err := AddRMSNormBackward(x, 3, nil, nil, nil, ok); return err }, ErrShape, "dy has 0 elements"},
-		{"weight fused backward", func() error { _, err := AddLayerNormBackward(x, 3, w3[:1], x, nil, ok); return err }, ErrShape, "weight has 1 elements"},
-		{"float32 d", func() error { _, err := RMSNorm32([]float32{1}, 0, nil, ok); return err }, ErrShape, "RMSNorm32: d = 0"},
-		{"float32 backward dy", func() error { _, err := RMSNormBackward32([]float32{1, 2}, 1, nil, nil, ok); return err }, ErrShape, "RMSNormBackward32: dy has 0 elements, x has 2"},
-		{"float32 backward weight", func() error {
-			_, err := LayerNormBackward32([]float32{1, 2}, 2, []float32{1}, []float32{1, 2}, ok)
-			return err
-		}, ErrShape, "LayerNormBackward32: weight has 1 elements, want d = 2"},
-		{"float32 epsilon", func() error { _, err := LayerNorm32([]float32{1}, 1, nil, nil, Options{}); return err }, ErrEpsilon, "LayerNorm32: Epsilon = 0"},
+		{"d zero", func() error { _, err := RMSNorm(x, 0, nil, ok); return err }, ErrShape, "norm: shape mismatch: RMSNorm: d = 0; want ≥ 1"},
+		{"d negative", func() error { _, err := LayerNorm(x, -2, nil, nil, ok); return err }, ErrShape, "LayerNorm: d = -2; want ≥ 1"},
+		{"len not multiple", func() error { _, err := LayerNorm(x, 4, nil, nil, ok); return err }, ErrShape, "norm: shape mismatch: LayerNorm: x has 6 elements; want a multiple of d = 4"},
+		{"weight length", func() error { _, err := RMSNorm(x, 3, []float64{1, 1}, ok); return err }, ErrShape, "RMSNorm: weight has 2 elements; want d = 3, or nil for none"},
+		{"empty non-nil weight", func() error { _, err := RMSNorm(x, 3, []float64{}, ok); return err }, ErrShape, "RMSNorm: weight has 0 elements; want d = 3, or nil for none"},
+		{"bias length", func() error { _, err := LayerNorm(x, 3, w3, []float64{0}, ok); return err }, ErrShape, "LayerNorm: bias has 1 elements; want d = 3, or nil for none"},
+		{"epsilon zero", func() error { _, err := RMSNorm(x, 3, nil, Options{}); return err }, ErrEpsilon, "norm: invalid epsilon: RMSNorm: Options.Epsilon = 0; want a finite number > 0 (ε = 0 divides 0 by 0 on a constant row)"},
+		{"epsilon negative", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: -1e-5}); return err }, ErrEpsilon, "LayerNorm: Options.Epsilon = -1e-05; want a finite number > 0 (a negative ε can make the denominator 0 or NaN)"},
+		{"epsilon NaN", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: math.NaN()}); return err }, ErrEpsilon, "LayerNorm: Options.Epsilon = NaN; want a finite number > 0 (it would make every output NaN or 0)"},
+		{"epsilon Inf", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: math.Inf(1)}); return err }, ErrEpsilon, "RMSNorm: Options.Epsilon = +Inf; want a finite number > 0"},
+		{"placement", func() error { _, err := RMSNorm(x, 3, nil, Options{Epsilon: 1, Placement: 7}); return err }, ErrOption, "norm: invalid option: RMSNorm: Options.Placement = 7; want one of in-root, added-to-root"},
+		{"weight form", func() error { _, err := LayerNorm(x, 3, nil, nil, Options{Epsilon: 1, Weight: -1}); return err }, ErrOption, "norm: invalid option: LayerNorm: Options.Weight = -1; want one of as-is, one-plus"},
+		{"dy length LN", func() error { _, err := LayerNormBackward(x, 3, nil, x[:3], ok); return err }, ErrShape, "norm: shape mismatch: LayerNormBackward: dy has 3 elements; want len(x) = 6"},
+		{"dy length RMS", func() error { _, err := RMSNormBackward(x, 3, nil, nil, ok); return err }, ErrShape, "RMSNormBackward: dy has 0 elements; want len(x) = 6"},
+		{"backward epsilon", func() error { _, err := RMSNormBackward(x, 3, nil, x, Options{}); return err }, ErrEpsilon, "RMSNormBackward: Options.Epsilon = 0; want"},
+		{"residual length LN", func() error { _, _, err := AddLayerNorm(x, x[:5], 3, nil, nil, ok); return err }, ErrShape, "AddLayerNorm: residual has 5 elements; want len(x) = 6"},
+		{"residual length RMS", func() error { _, _, err := AddRMSNorm(x, nil, 3, nil, ok); return err }, ErrShape, "AddRMSNorm: residual has 0 elements; want len(x) = 6"},
+		{"sum length fused", func() error { _, err := AddRMSNormBackward(x[:5], 3, nil, x[:5], nil, ok); return err }, ErrShape, "AddRMSNormBackward: sum has 5 elements; want a multiple of d = 3"},
+		{"dsum length LN", func() error { _, err := AddLayerNormBackward(x, 3, nil, x, x[:3], ok); return err }, ErrShape, "AddLayerNormBackward: dsum has 3 elements; want len(sum) = 6, or nil for zero"},
+		{"dsum length RMS", func() error { _, err := AddRMSNormBackward(x, 3, nil, x, []float64{}, ok); return err }, ErrShape, "AddRMSNormBackward: dsum has 0 elements; want len(sum) = 6, or nil for zero"},
+		{"dy fused", func() error { _, err := AddRMSNormBackward(x, 3, nil, nil, nil, ok); return err }, ErrShape, "AddRMSNormBackward: dy has 0 elements; want len(sum) = 6"},
+		{"weight fused backward", func() error { _, err := AddLayerNormBackward(x, 3, w3[:1], x, nil, ok); return err }, ErrShape, "AddLayerNormBackward: weight has 1 elements; want d = 3, or nil for none"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -130,24 +125,8 @@ func TestOptionStrings(t *testing.T) {
 	assert.Equal(t, []EpsilonPlacement{EpsilonInRoot, EpsilonAddedToRoot}, EpsilonPlacement(0).Values())
 	assert.Equal(t, []WeightForm{WeightAsIs, WeightOnePlus}, WeightForm(0).Values())
 
-	for _, p := range EpsilonPlacement(0).Values() {
-		require.NoError(t, p.Check())
-		b, err := p.MarshalText()
-		require.NoError(t, err)
-		var q EpsilonPlacement = 7
-		require.NoError(t, q.UnmarshalText(b))
-		assert.Equal(t, p, q)
-		assert.NotEmpty(t, p.Meaning())
-	}
-	for _, f := range WeightForm(0).Values() {
-		require.NoError(t, f.Check())
-		b, err := f.MarshalText()
-		require.NoError(t, err)
-		var g WeightForm = 7
-		require.NoError(t, g.UnmarshalText(b))
-		assert.Equal(t, f, g)
-		assert.NotEmpty(t, f.Meaning())
-	}
+	checkWords(t, EpsilonPlacement(0).Values())
+	checkWords(t, WeightForm(0).Values())
 	var p EpsilonPlacement
 	err := p.UnmarshalText([]byte("in_root"))
 	assert.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
@@ -159,6 +138,33 @@ func TestOptionStrings(t *testing.T) {
 	_, err = EpsilonPlacement(7).MarshalText()
 	assert.ErrorIs(t, err, ErrOption)
 	assert.ErrorIs(t, WeightForm(2).Check(), ErrOption)
+}
+
+// convention is what the option types share: their words and checks.
+type convention interface {
+	~int
+	Check() error
+	MarshalText() ([]byte, error)
+	Meaning() string
+}
+
+// checkWords checks that every value of a convention type passes Check,
+// has a meaning, and reads back from its word into a variable that held
+// another value (7, which no type has).
+func checkWords[T convention, P interface {
+	*T
+	UnmarshalText([]byte) error
+}](t *testing.T, values []T) {
+	t.Helper()
+	for _, v := range values {
+		require.NoError(t, v.Check())
+		b, err := v.MarshalText()
+		require.NoError(t, err)
+		var back T = 7
+		require.NoError(t, P(&back).UnmarshalText(b))
+		assert.Equal(t, v, back)
+		assert.NotEmpty(t, v.Meaning())
+	}
 }
 
 // TestSpecialCases checks the "Special cases are:" block of the package
@@ -213,21 +219,9 @@ func TestSpecialCases(t *testing.T) {
 			dy := []float64{1, 2, 3, 1, 2, 3, 1, 2, 3}
 			g, err = LayerNormBackward(c, 3, w, dy, o)
 			require.NoError(t, err)
-			r := math.Sqrt(o.Epsilon)
-			if o.Placement == EpsilonAddedToRoot {
-				r = o.Epsilon
-			}
-			gam := make([]float64, 3)
-			for j := range gam {
-				gam[j] = w[j]
-				if o.Weight == WeightOnePlus {
-					gam[j] = 1 + w[j]
-				}
-			}
-			gg := []float64{1 * gam[0], 2 * gam[1], 3 * gam[2]}
-			mg := (gg[0] + gg[1] + gg[2]) / 3
+			want := constantRowDx(w, dy, o)
 			for j := 0; j < 9; j++ {
-				assert.InEpsilon(t, (gg[j%3]-mg)/r, g.X[j], 1e-14, "constant row dx %d", j)
+				assert.InEpsilon(t, want[j], g.X[j], 1e-14, "constant row dx %d", j)
 			}
 			assert.Equal(t, []float64{0, 0, 0}, g.Weight, "x̂ = 0 on constant rows")
 			assert.Equal(t, []float64{3, 6, 9}, g.Bias)
@@ -238,8 +232,13 @@ func TestSpecialCases(t *testing.T) {
 			assert.Equal(t, []float64{0, 0, 0}, y)
 			g, err = RMSNormBackward([]float64{0, 0, 0}, 3, w, []float64{1, 2, 3}, o)
 			require.NoError(t, err)
+			r := math.Sqrt(o.Epsilon)
+			if o.Placement == EpsilonAddedToRoot {
+				r = o.Epsilon
+			}
 			for j := range 3 {
-				assert.InEpsilon(t, gg[j]/r, g.X[j], 1e-14, "zero row dx %d", j)
+				gj := float64(j+1) * gammaOf(w, j, o.Weight)
+				assert.InEpsilon(t, gj/r, g.X[j], 1e-14, "zero row dx %d", j)
 			}
 
 			// d = 1: LayerNorm gives the bias, RMSNorm gives γx/r with s = |x|.
@@ -248,13 +247,36 @@ func TestSpecialCases(t *testing.T) {
 			assert.Equal(t, []float64{0.5, 0.5}, y)
 			y, err = RMSNorm([]float64{-3}, 1, nil, o)
 			require.NoError(t, err)
-			want := -3 / math.Sqrt(9+o.Epsilon)
+			want1 := -3 / math.Sqrt(9+o.Epsilon)
 			if o.Placement == EpsilonAddedToRoot {
-				want = -3 / (3 + o.Epsilon)
+				want1 = -3 / (3 + o.Epsilon)
 			}
-			assert.InEpsilon(t, want, y[0], 1e-15)
+			assert.InEpsilon(t, want1, y[0], 1e-15)
 		})
 	}
+}
+
+// constantRowDx is ∂L/∂x of LayerNorm on constant rows of len(w)
+// elements, (g − mean g)/r with g = dy∘γ and r = √ε (in the root) or ε
+// (added to it), x − μ = 0 making the x̂ term vanish: the definition, by
+// hand.
+func constantRowDx[T num.Float](w, dy []T, o Options) []float64 {
+	r := math.Sqrt(o.Epsilon)
+	if o.Placement == EpsilonAddedToRoot {
+		r = o.Epsilon
+	}
+	d := len(w)
+	out := make([]float64, len(dy))
+	for lo := 0; lo < len(dy); lo += d {
+		var mg float64
+		for j := range d {
+			mg += float64(dy[lo+j]) * float64(gammaOf(w, j, o.Weight)) / float64(d)
+		}
+		for j := range d {
+			out[lo+j] = (float64(dy[lo+j])*float64(gammaOf(w, j, o.Weight)) - mg) / r
+		}
+	}
+	return out
 }
 
 // TestNaiveFailsGolden shows that the golden cases for the offset and
@@ -333,8 +355,59 @@ func TestNaiveFailsGolden(t *testing.T) {
 	}
 }
 
-// TestFused checks that the fused residual add equals the unfused pair bit
-// for bit, in both directions.
+// fusedPair is a fused entry point of one precision and the unfused pair
+// it must equal bit for bit, the other arguments bound.
+type fusedPair[T num.Float, G any] struct {
+	add     func(x, res []T) (y, sum []T, err error)
+	norm    func(sum []T) ([]T, error)
+	addGrad func(sum, dsum []T) (G, error)
+	grad    func(sum []T) (G, error)
+	plus    func(g G, dsum []T) G // g with dsum added to its X, in T
+}
+
+// check runs the pair on x, res and dsum: sum is x + res rounded once in
+// T, y the unfused norm of it, and the backward the unfused backward plus
+// dsum (nil dsum: the unfused backward).
+func (p fusedPair[T, G]) check(t *testing.T, x, res, dsum []T) {
+	t.Helper()
+	h := make([]T, len(x))
+	for i := range h {
+		h[i] = x[i] + res[i]
+	}
+	y, sum, err := p.add(x, res)
+	require.NoError(t, err)
+	require.Equal(t, h, sum)
+	yu, err := p.norm(h)
+	require.NoError(t, err)
+	require.Equal(t, yu, y)
+	gu, err := p.grad(h)
+	require.NoError(t, err)
+	g, err := p.addGrad(sum, dsum)
+	require.NoError(t, err)
+	require.Empty(t, cmp.Diff(p.plus(gu, dsum), g))
+	g, err = p.addGrad(sum, nil)
+	require.NoError(t, err)
+	require.Empty(t, cmp.Diff(gu, g), "nil dsum is zero")
+}
+
+func plus64(g Grads, dsum []float64) Grads {
+	g.X = append([]float64(nil), g.X...)
+	for i := range g.X {
+		g.X[i] += dsum[i]
+	}
+	return g
+}
+
+func plus32(g Grads32, dsum []float32) Grads32 {
+	g.X = append([]float32(nil), g.X...)
+	for i := range g.X {
+		g.X[i] += dsum[i]
+	}
+	return g
+}
+
+// TestFused checks that the fused residual adds equal the unfused pairs
+// bit for bit, in both directions, in float64 and in the float32 twins.
 func TestFused(t *testing.T) {
 	r := rand.New(rand.NewPCG(1, 2))
 	const d, rows = 12, 5
@@ -345,44 +418,36 @@ func TestFused(t *testing.T) {
 		b := uniform(r, d, -0.5, 0.5)
 		dy := uniform(r, d*rows, -1, 1)
 		ds := uniform(r, d*rows, -1, 1)
-		h := make([]float64, len(x))
-		for i := range h {
-			h[i] = x[i] + res[i]
-		}
+		fusedPair[float64, Grads]{
+			add:     func(x, res []float64) ([]float64, []float64, error) { return AddLayerNorm(x, res, d, w, b, o) },
+			norm:    func(h []float64) ([]float64, error) { return LayerNorm(h, d, w, b, o) },
+			addGrad: func(s, ds []float64) (Grads, error) { return AddLayerNormBackward(s, d, w, dy, ds, o) },
+			grad:    func(h []float64) (Grads, error) { return LayerNormBackward(h, d, w, dy, o) },
+			plus:    plus64,
+		}.check(t, x, res, ds)
+		fusedPair[float64, Grads]{
+			add:     func(x, res []float64) ([]float64, []float64, error) { return AddRMSNorm(x, res, d, w, o) },
+			norm:    func(h []float64) ([]float64, error) { return RMSNorm(h, d, w, o) },
+			addGrad: func(s, ds []float64) (Grads, error) { return AddRMSNormBackward(s, d, w, dy, ds, o) },
+			grad:    func(h []float64) (Grads, error) { return RMSNormBackward(h, d, w, dy, o) },
+			plus:    plus64,
+		}.check(t, x, res, ds)
 
-		y, sum, err := AddLayerNorm(x, res, d, w, b, o)
-		require.NoError(t, err)
-		yl, err := LayerNorm(h, d, w, b, o)
-		require.NoError(t, err)
-		assert.Equal(t, h, sum)
-		assert.Equal(t, yl, y)
-		g, err := AddLayerNormBackward(sum, d, w, dy, ds, o)
-		require.NoError(t, err)
-		gl, err := LayerNormBackward(h, d, w, dy, o)
-		require.NoError(t, err)
-		for i := range gl.X {
-			gl.X[i] += ds[i]
-		}
-		assert.Empty(t, cmp.Diff(gl, g))
-		g0, err := AddLayerNormBackward(sum, d, w, dy, nil, o)
-		require.NoError(t, err)
-		gl0, err := LayerNormBackward(h, d, w, dy, o)
-		require.NoError(t, err)
-		assert.Empty(t, cmp.Diff(gl0, g0), "nil dsum is zero")
-
-		y, sum, err = AddRMSNorm(x, res, d, w, o)
-		require.NoError(t, err)
-		yr, err := RMSNorm(h, d, w, o)
-		require.NoError(t, err)
-		assert.Equal(t, h, sum)
-		assert.Equal(t, yr, y)
-		g, err = AddRMSNormBackward(sum, d, w, dy, ds, o)
-		require.NoError(t, err)
-		gr, err := RMSNormBackward(h, d, w, dy, o)
-		require.NoError(t, err)
-		for i := range gr.X {
-			gr.X[i] += ds[i]
-		}
-		assert.Empty(t, cmp.Diff(gr, g))
+		f := num.Convert[float32, float64]
+		w32, b32, dy32 := f(w), f(b), f(dy)
+		fusedPair[float32, Grads32]{
+			add:     func(x, res []float32) ([]float32, []float32, error) { return AddLayerNorm32(x, res, d, w32, b32, o) },
+			norm:    func(h []float32) ([]float32, error) { return LayerNorm32(h, d, w32, b32, o) },
+			addGrad: func(s, ds []float32) (Grads32, error) { return AddLayerNormBackward32(s, d, w32, dy32, ds, o) },
+			grad:    func(h []float32) (Grads32, error) { return LayerNormBackward32(h, d, w32, dy32, o) },
+			plus:    plus32,
+		}.check(t, f(x), f(res), f(ds))
+		fusedPair[float32, Grads32]{
+			add:     func(x, res []float32) ([]float32, []float32, error) { return AddRMSNorm32(x, res, d, w32, o) },
+			norm:    func(h []float32) ([]float32, error) { return RMSNorm32(h, d, w32, o) },
+			addGrad: func(s, ds []float32) (Grads32, error) { return AddRMSNormBackward32(s, d, w32, dy32, ds, o) },
+			grad:    func(h []float32) (Grads32, error) { return RMSNormBackward32(h, d, w32, dy32, o) },
+			plus:    plus32,
+		}.check(t, f(x), f(res), f(ds))
 	}
 }

@@ -10,7 +10,6 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/golden"
-	"github.com/plumbref/plumb/internal/num"
 )
 
 // layerFn runs the forward of one kind: LayerNorm with bias, or RMSNorm.
@@ -208,64 +207,12 @@ func TestLayerNormMoments(t *testing.T) {
 	}
 }
 
-// TestFloat32 checks the float32 instantiations, forward and backward,
-// against the float64 reference: normwise 1e-6 (float32 has 2⁻²⁴ ≈ 6e-8 per rounding and the
-// rows here are at most 64 long), and on rows near 1e-30, whose float32
-// squares underflow, the same bound: the same body scales them.
-func TestFloat32(t *testing.T) {
-	r := rand.New(rand.NewPCG(9, 10))
-	const d, rows = 64, 4
-	for _, o := range allOptions(1e-5) {
-		for _, scale := range []float64{1, 1e-30, 1e30} {
-			x := uniform(r, d*rows, -1, 1)
-			w := uniform(r, d, 0.5, 1.5)
-			b := uniform(r, d, -0.5, 0.5)
-			for i := range x {
-				x[i] = float64(float32(x[i] * scale))
-			}
-			for i := range w {
-				w[i] = float64(float32(w[i]))
-				b[i] = float64(float32(b[i]))
-			}
-			oo := o
-			oo.Epsilon = o.Epsilon * scale * scale
-			if o.Placement == EpsilonAddedToRoot {
-				oo.Epsilon = o.Epsilon * scale
-			}
-			x32, w32, b32 := num.Convert[float32](x), num.Convert[float32](w), num.Convert[float32](b)
-			y, err := RMSNorm(x, d, w, oo)
-			require.NoError(t, err)
-			y32, err := RMSNorm32(x32, d, w32, oo)
-			require.NoError(t, err)
-			e := golden.NormwiseRelErr(num.Convert[float64](y32), y)
-			assert.LessOrEqual(t, e, 1e-6, "RMSNorm32 scale %g %v", scale, o.Placement)
-			y, err = LayerNorm(x, d, w, b, oo)
-			require.NoError(t, err)
-			y32, err = LayerNorm32(x32, d, w32, b32, oo)
-			require.NoError(t, err)
-			e = golden.NormwiseRelErr(num.Convert[float64](y32), y)
-			assert.LessOrEqual(t, e, 1e-6, "LayerNorm32 scale %g %v", scale, o.Placement)
-
-			dy := uniform(r, d*rows, -1, 1)
-			for i := range dy {
-				dy[i] = float64(float32(dy[i]))
-			}
-			g, err := LayerNormBackward(x, d, w, dy, oo)
-			require.NoError(t, err)
-			g32, err := LayerNormBackward32(x32, d, w32, num.Convert[float32](dy), oo)
-			require.NoError(t, err)
-			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.X), g.X), 1e-6, "LayerNormBackward32 dx")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.Weight), g.Weight), 1e-6, "LayerNormBackward32 dw")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.Bias), g.Bias), 1e-6, "LayerNormBackward32 db")
-			g, err = RMSNormBackward(x, d, w, dy, oo)
-			require.NoError(t, err)
-			g32, err = RMSNormBackward32(x32, d, w32, num.Convert[float32](dy), oo)
-			require.NoError(t, err)
-			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.X), g.X), 1e-6, "RMSNormBackward32 dx")
-			assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](g32.Weight), g.Weight), 1e-6, "RMSNormBackward32 dw")
-			assert.Nil(t, g32.Bias)
-		}
+// trials is n, or short under go test -short.
+func trials(n, short int) int {
+	if testing.Short() {
+		return short
 	}
+	return n
 }
 
 // TestRandomShapes: for random shapes and values (fixed seed), every
@@ -273,11 +220,7 @@ func TestFloat32(t *testing.T) {
 // |x̂_j| ≤ √d (from Σ x̂² ≤ d, with ε > 0).
 func TestRandomShapes(t *testing.T) {
 	r := rand.New(rand.NewPCG(11, 12))
-	n := 300
-	if testing.Short() {
-		n = 50
-	}
-	for range n {
+	for range trials(300, 50) {
 		d := 1 + r.IntN(40)
 		rows := r.IntN(5)
 		scale := math.Pow(10, float64(r.IntN(601)-300))
@@ -305,11 +248,7 @@ func TestRandomShapes(t *testing.T) {
 // exactly and ∂L/∂w = 0 exactly in LayerNorm (fixed seed).
 func TestConstantRows(t *testing.T) {
 	r := rand.New(rand.NewPCG(15, 16))
-	n := 200
-	if testing.Short() {
-		n = 40
-	}
-	for range n {
+	for range trials(200, 40) {
 		d := 1 + r.IntN(300)
 		c := (r.Float64() - 0.5) * math.Ldexp(1, r.IntN(2000)-1000)
 		x := make([]float64, 2*d)

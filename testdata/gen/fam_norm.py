@@ -266,7 +266,8 @@ def special(kind, seed, name, d, rows, eps, placement, gen_x, weight="as_is", bi
 
 def build_layernorm():
     out = grid("layer", 101)
-    # FORMULAS.md check: x = [1,2,3,4], eps = 1e-5, no gain or bias.
+    # The worked value of the norm package documentation (computed there with
+    # mpmath): x = [1,2,3,4], eps = 1e-5, no gain or bias.
     out.append(make("worked/1234", config("layer", 4, 1e-5), [1.0, 2.0, 3.0, 4.0],
                     dy=[0.25, -0.5, 1.0, 0.125]))
     for eps in (1e-5, 1e-12):
@@ -297,7 +298,8 @@ def build_layernorm():
 
 def build_rmsnorm():
     out = grid("rms", 201)
-    # FORMULAS.md check: x = [1,2,3,4], eps = 0 in the source. eps = 2^-1074
+    # The worked value of the norm package documentation (computed there with
+    # mpmath): x = [1,2,3,4], eps = 0 in the source. eps = 2^-1074
     # is the smallest allowed; here it changes mean(x^2) = 7.5 by a relative
     # 6e-325, far below what any float64 output can show.
     out.append(make("worked/1234", config("rms", 4, 5e-324), [1.0, 2.0, 3.0, 4.0],
