@@ -69,8 +69,7 @@ func parallel(n, workers int, task func(w, t int)) {
 // that a row block computes with weight 0 gives NaN (0·Inf) where Forward
 // skips the key.
 //
-// Accuracy: against the 55 golden cases the worst normwise relative error
-// is 9.7e-16 for O and 2.7e-16 for lse; on random problems of up to 164
+// Accuracy: the package documentation's table; on random problems of up to 164
 // rows it stays within 1e-14 of Forward (TestPropertyFastMatchesDirect).
 func ForwardFast(q, k, v []float64, s Shape, o Options) (out, lse []float64, err error) {
 	return runForward("ForwardFast", q, k, v, s, o, forwardFast)
@@ -80,8 +79,8 @@ func ForwardFast(q, k, v []float64, s Shape, o Options) (out, lse []float64, err
 // ForwardFast, through blas32: the straightforward low-precision
 // implementation the compare package uses as a yardstick; not a reference.
 //
-// Special cases are those of ForwardFast. Accuracy, as a yardstick: 3.9e-7
-// (O) and 6.0e-8 (lse) against the golden cases, as Forward32. Unlike
+// Special cases are those of ForwardFast. Accuracy, as a yardstick: that
+// of Forward32 in the package documentation's table. Unlike
 // ForwardFast, its last bits can depend on the addresses of the slices
 // (see Determinism in the package documentation).
 func ForwardFast32(q, k, v []float32, s Shape, o Options) (out, lse []float32, err error) {
@@ -234,9 +233,8 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 //
 // Special cases are those of Backward.
 //
-// Accuracy: against the golden cases, the same worst errors as Backward
-// (4.7e-15 for dQ; 1.0e-13 for the logits near ±1000, see the package
-// doc); on random problems it stays within 1e-14 of Backward.
+// Accuracy: the package documentation's table (the same worst errors as
+// Backward); on random problems it stays within 1e-14 of Backward.
 func BackwardFast(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) {
 	return grads64(runBackward("BackwardFast", q, k, v, dOut, dLSE, s, o, backwardFast))
 }
@@ -249,9 +247,8 @@ func BackwardFast(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, err
 //
 // Special cases are those of BackwardFast.
 //
-// Accuracy, as a yardstick: as Backward32, 9.1e-7 worst normwise relative
-// error against the golden cases (inputs rounded to float32, logits near
-// ±1000 left out).
+// Accuracy, as a yardstick: that of Backward32 in the package
+// documentation's table.
 func BackwardFast32(q, k, v, dOut, dLSE []float32, s Shape, o Options) (Grads32, error) {
 	return grads32(runBackward("BackwardFast32", q, k, v, dOut, dLSE, s, o, backwardFast))
 }

@@ -21,23 +21,19 @@ import (
 const tiledBound = 1e-14
 
 func TestGoldenForwardTiled(t *testing.T) {
-	w := worst{}
 	for _, block := range []int{1, 2, 3, 64} {
-		goldenForward(t, w, tiledBound, nil, func(q, k, v []float64, s Shape, o Options) ([]float64, []float64, error) {
+		goldenForward(t, "ForwardTiled", tiledBound, nil, func(q, k, v []float64, s Shape, o Options) ([]float64, []float64, error) {
 			return ForwardTiled(q, k, v, s, block, o)
 		})
 	}
-	w.log(t, "ForwardTiled")
 }
 
 func TestGoldenForwardTiled32(t *testing.T) {
-	w := worst{}
 	for _, block := range []int{1, 2, 3, 64} {
-		goldenForward(t, w, 0, nil, func(q, k, v []float32, s Shape, o Options) ([]float32, []float32, error) {
+		goldenForward(t, "ForwardTiled32", 0, nil, func(q, k, v []float32, s Shape, o Options) ([]float32, []float32, error) {
 			return ForwardTiled32(q, k, v, s, block, o)
 		})
 	}
-	w.log(t, "ForwardTiled32")
 }
 
 // randUniform is n values uniform in [−1, 1).
@@ -248,7 +244,6 @@ func goldenMerge[T num.Float](t *testing.T, name string, bound float64, run func
 	if is32[T]() {
 		bound = golden32Bound
 	}
-	var worstO, worstL float64
 	for _, c := range f.Cases {
 		t.Run(c.Name, func(t *testing.T) {
 			var cfg struct {
@@ -270,12 +265,12 @@ func goldenMerge[T num.Float](t *testing.T, name string, bound float64, run func
 			require.NoError(t, err)
 			eo := golden.NormwiseRelErr(num.Convert[float64](out), want("out"))
 			el := golden.NormwiseRelErr(num.Convert[float64](lse), want("lse"))
-			worstO, worstL = max(worstO, eo), max(worstL, el)
+			accuracy.Note(name, "out", eo)
+			accuracy.Note(name, "lse", el)
 			assert.LessOrEqual(t, eo, bound, golden.Describe(c, "out", eo, bound))
 			assert.LessOrEqual(t, el, bound, golden.Describe(c, "lse", el, bound))
 		})
 	}
-	t.Logf("%s: worst normwise relative error: out %.3g, lse %.3g", name, worstO, worstL)
 }
 
 func TestGoldenMerge(t *testing.T)   { goldenMerge(t, "Merge", mergeBound, Merge) }

@@ -1,7 +1,7 @@
 package norm
 
 import (
-	"sort"
+	"os"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
@@ -63,23 +63,16 @@ func TestGoldenWords(t *testing.T) {
 // about d·2⁻⁵³ ≈ 1e-13 in the worst case, far less in practice).
 const goldenTol = 1e-14
 
-// worst collects the largest error seen per function and output.
-type worst map[string]float64
-
-func (w worst) note(key string, e float64) {
-	w[key] = max(w[key], e)
+// accuracy is the package's accuracy table in doc.go: every golden check
+// notes its error there, and TestMain fails when the table is out of date.
+var accuracy = &golden.Accuracy{
+	Path: "doc.go",
+	Rows: []string{"LayerNorm", "LayerNormBackward", "RMSNorm", "RMSNormBackward",
+		"AddLayerNorm", "AddLayerNormBackward", "AddRMSNorm", "AddRMSNormBackward"},
+	Cols: []string{"y", "sum", "dx", "dweight", "dbias"},
 }
 
-func (w worst) log(t *testing.T) {
-	keys := make([]string, 0, len(w))
-	for k := range w {
-		keys = append(keys, k)
-	}
-	sort.Strings(keys)
-	for _, k := range keys {
-		t.Logf("worst normwise relative error %-28s %.3g", k, w[k])
-	}
-}
+func TestMain(m *testing.M) { os.Exit(accuracy.Main(m)) }
 
 func floatOr(t *testing.T, c *golden.Case, name string) []float64 {
 	if !c.Has(name) {
@@ -90,12 +83,12 @@ func floatOr(t *testing.T, c *golden.Case, name string) []float64 {
 	return v
 }
 
-func check(t *testing.T, w worst, c *golden.Case, fn, name string, got []float64) {
+func check(t *testing.T, c *golden.Case, fn, name string, got []float64) {
 	t.Helper()
 	want, _, err := c.Float(name)
 	require.NoError(t, err)
 	e := golden.NormwiseRelErr(got, want)
-	w.note(fn+" "+name, e)
+	accuracy.Note(fn, name, e)
 	if testing.Verbose() {
 		t.Logf("%s %s: %.3g", fn, name, e)
 	}
@@ -103,11 +96,12 @@ func check(t *testing.T, w worst, c *golden.Case, fn, name string, got []float64
 }
 
 func TestGolden(t *testing.T) {
-	w := worst{}
+	ran := 0
 	for _, fam := range goldenFamilies {
 		f := golden.MustLoadFamily(t, "norm", fam)
 		for _, c := range f.Cases {
 			t.Run(fam+"/"+c.Name, func(t *testing.T) {
+				ran++
 				cfg := decodeConfig(t, c)
 				o := cfg.options()
 				x := floatOr(t, c, "x")
@@ -141,7 +135,7 @@ func TestGolden(t *testing.T) {
 						g, err = AddRMSNormBackward(sum, cfg.D, weight, dy, dsum, o)
 					}
 					require.NoError(t, err)
-					check(t, w, c, fn, "sum", sum)
+					check(t, c, fn, "sum", sum)
 				} else {
 					if layer {
 						fn = "LayerNorm"
@@ -160,24 +154,23 @@ func TestGolden(t *testing.T) {
 						require.NoError(t, err)
 					}
 				}
-				check(t, w, c, fn, "y", y)
+				check(t, c, fn, "y", y)
 				if dy == nil {
 					return
 				}
-				check(t, w, c, fn+"Backward", "dx", g.X)
+				check(t, c, fn+"Backward", "dx", g.X)
 				if weight != nil {
-					check(t, w, c, fn+"Backward", "dweight", g.Weight)
+					check(t, c, fn+"Backward", "dweight", g.Weight)
 				} else {
 					assert.Nil(t, g.Weight, "no weight, no weight gradient")
 				}
 				if layer {
-					check(t, w, c, fn+"Backward", "dbias", g.Bias)
+					check(t, c, fn+"Backward", "dbias", g.Bias)
 				} else {
 					assert.Nil(t, g.Bias, "RMSNorm has no bias gradient")
 				}
 			})
 		}
 	}
-	w.log(t)
-	require.NotEmpty(t, w, "no golden case ran")
+	require.NotZero(t, ran, "no golden case ran")
 }

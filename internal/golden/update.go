@@ -10,9 +10,6 @@ import (
 
 var update = flag.Bool("update", false, "rewrite the generated files, and the generated parts of files, that the tests compare against")
 
-// Updating reports whether the test binary runs with -update.
-func Updating() bool { return *update }
-
 // WholeFile checks that the file at path holds exactly want, a text the test
 // generated from the code; with -update it writes want there instead. The
 // failure says how to regenerate: go test PACKAGE -run TEST -update.
@@ -38,14 +35,22 @@ func WholeFile(tb testing.TB, path, want string) {
 // them. begin and end are whole lines, without their newline.
 func Block(tb testing.TB, path, begin, end, want string) {
 	tb.Helper()
+	if err := replaceBlock(path, begin, end, want, *update); err != nil {
+		tb.Errorf("%v; regenerate it with go test -run '%s' -update in this package", err, tb.Name())
+	}
+}
+
+// replaceBlock checks (or, with write, rewrites) the lines of path between
+// the lines begin and end; see Block.
+func replaceBlock(path, begin, end, want string, write bool) error {
 	b, err := os.ReadFile(path)
 	if err != nil {
-		tb.Fatal(err)
+		return err
 	}
 	s := string(b)
 	i := strings.Index(s, begin+"\n")
 	if i < 0 {
-		tb.Fatalf("%s: no line %q", path, begin)
+		return fmt.Errorf("%s: no line %q", path, begin)
 	}
 	i += len(begin) + 1
 	j := strings.Index(s[i:], end+"\n")
@@ -53,19 +58,16 @@ func Block(tb testing.TB, path, begin, end, want string) {
 		j = len(s) - i - len(end)
 	}
 	if j < 0 {
-		tb.Fatalf("%s: no line %q after %q", path, end, begin)
+		return fmt.Errorf("%s: no line %q after %q", path, end, begin)
 	}
 	j += i
-	if *update {
-		s = s[:i] + want + s[j:]
-		if err := os.WriteFile(path, []byte(s), 0o644); err != nil {
-			tb.Fatal(err)
-		}
-		return
+	if write {
+		return os.WriteFile(path, []byte(s[:i]+want+s[j:]), 0o644)
 	}
 	if s[i:j] != want {
-		tb.Errorf("%s: the part after %q is out of date with the code; regenerate it with go test -run '%s' -update in this package\n%s", path, begin, tb.Name(), firstDifference(s[i:j], want))
+		return fmt.Errorf("%s: the part after %q is out of date with the code\n%s", path, begin, firstDifference(s[i:j], want))
 	}
+	return nil
 }
 
 // firstDifference shows the first line where have and want differ.

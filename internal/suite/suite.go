@@ -249,3 +249,27 @@ func MissingDocLines(path string, names, whys []string) ([]string, error) {
 	}
 	return missing, nil
 }
+
+// DocListsEveryCase fails t, naming them, for the cases whose line
+// "//\t<name>  <why>" is missing from the package documentation in the Go
+// file at path (see MissingDocLines); nameWhy gives a case's name and
+// reason.
+func DocListsEveryCase[C any](t interface {
+	Helper()
+	Errorf(format string, args ...any)
+}, path string, cases []C, nameWhy func(C) (name, why string)) {
+	t.Helper()
+	var names, whys []string
+	for _, c := range cases {
+		n, w := nameWhy(c)
+		names, whys = append(names, n), append(whys, w)
+	}
+	missing, err := MissingDocLines(path, names, whys)
+	if err != nil {
+		t.Errorf("%v", err)
+		return
+	}
+	if len(missing) > 0 {
+		t.Errorf("%s: the package documentation does not list these cases with their reasons: %s", path, strings.Join(missing, ", "))
+	}
+}

@@ -151,6 +151,17 @@ func TestMissingDocLines(t *testing.T) {
 	assert.Equal(t, []string{"two", "three"}, missing)
 	_, err = MissingDocLines(path+".none", nil, nil)
 	assert.Error(t, err)
+
+	type c struct{ name, why string }
+	nameWhy := func(x c) (string, string) { return x.name, x.why }
+	rec := &conformance.Recorder{}
+	DocListsEveryCase(rec, path, []c{{"one", "the first"}}, nameWhy)
+	assert.False(t, rec.Failed, rec.Text())
+	DocListsEveryCase(rec, path, []c{{"one", "the first"}, {"two", "the second"}, {"three", "the third"}}, nameWhy)
+	assert.Equal(t, []string{path + ": the package documentation does not list these cases with their reasons: two, three"}, rec.Messages)
+	rec = &conformance.Recorder{}
+	DocListsEveryCase(rec, path+".none", []c{}, nameWhy)
+	assert.True(t, rec.Failed)
 }
 
 // Judge never panics, whatever the candidate holds, and fails exactly when

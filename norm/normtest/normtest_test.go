@@ -179,13 +179,7 @@ func TestSkips(t *testing.T) {
 
 // The package documentation lists every case, with its reason, in order.
 func TestDocListsEveryCase(t *testing.T) {
-	var names, whys []string
-	for _, c := range Cases() {
-		names, whys = append(names, c.Name), append(whys, c.Why)
-	}
-	missing, err := suite.MissingDocLines("normtest.go", names, whys)
-	require.NoError(t, err)
-	assert.Empty(t, missing, "cases missing from the package documentation")
+	suite.DocListsEveryCase(t, "normtest.go", Cases(), func(c Case) (string, string) { return c.Name, c.Why })
 }
 
 // A LayerNorm backward that forgets the −mean(g)/r term of ∂L/∂x (the

@@ -43,11 +43,13 @@ def words(convention):
     return list(VOCABULARY[convention])
 
 
-def word(convention, text):
-    """text, checked to be one of the convention's words."""
-    if text not in words(convention):
-        raise SystemExit("%r is not a word of %s; its words: %s" % (text, convention, ", ".join(words(convention))))
-    return text
+def word(convention, *texts):
+    """texts, each checked to be one of the convention's words: the one
+    text, or a tuple of them when there are several."""
+    for text in texts:
+        if text not in words(convention):
+            raise SystemExit("%r is not a word of %s; its words: %s" % (text, convention, ", ".join(words(convention))))
+    return texts[0] if len(texts) == 1 else texts
 
 
 def rng(seed):

@@ -41,15 +41,11 @@ from fam_mask import (END, START, UNBOUNDED, BLOCK_CAUSAL, BLOCK_FULL, band, cau
 
 # Every convention word is spelled as the Go types define it
 # (vocabulary.json); word() stops the generator on a word Go does not know.
-HEADS_MAJOR = word("attention.Layout", "heads-major")
-SEQ_MAJOR = word("attention.Layout", "seq-major")
-BLOCKS = word("attention.GroupMap", "blocks")
-CYCLE = word("attention.GroupMap", "cycle")
-EMPTY_ZERO = word("attention.EmptyRow", "zero")
-EMPTY_NAN = word("attention.EmptyRow", "nan")
-ALIBI_CAUSAL = word("mask.ALiBiForm", "causal")
-ALIBI_SYMMETRIC = word("mask.ALiBiForm", "symmetric")
-ALIBI_PAST_ONLY = word("mask.ALiBiForm", "past-only")
+HEADS_MAJOR, SEQ_MAJOR = word("attention.Layout", "heads-major", "seq-major")
+BLOCKS, CYCLE = word("attention.GroupMap", "blocks", "cycle")
+EMPTY_ZERO, EMPTY_NAN = word("attention.EmptyRow", "zero", "nan")
+ALIBI_CAUSAL, ALIBI_SYMMETRIC, ALIBI_PAST_ONLY = word(
+    "mask.ALiBiForm", "causal", "symmetric", "past-only")
 
 SRC_SDPA = "Vaswani et al. 2017, arXiv 1706.03762, Sec. 3.2.1 Eq. (1), 3.2.2, 3.2.3"
 SRC_GQA = "Ainslie et al. 2023, arXiv 2305.13245, Sec. 2.2; Shazeer 2019, arXiv 1911.02150, Sec. 3"

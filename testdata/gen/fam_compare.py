@@ -32,12 +32,8 @@ from common import case, ftensor, itensor, word
 
 # The words of compare.Format (testdata/gen/vocabulary.json): the config of
 # each case names its format by its word, under the key "format".
-FLOAT64 = word("compare.Format", "float64")
-FLOAT32 = word("compare.Format", "float32")
-BINARY16 = word("compare.Format", "binary16")
-BFLOAT16 = word("compare.Format", "bfloat16")
-E4M3 = word("compare.Format", "e4m3")
-E5M2 = word("compare.Format", "e5m2")
+FLOAT64, FLOAT32, BINARY16, BFLOAT16, E4M3, E5M2 = word(
+    "compare.Format", "float64", "float32", "binary16", "bfloat16", "e4m3", "e5m2")
 
 SOURCE_IEEE = ("IEEE 754-2019 §3.6 table 3.5 (formats), §4.3.1 roundTiesToEven, "
                "§7.4 overflow")

@@ -25,18 +25,11 @@ from common import btensor, case, ftensor, itensor, rng, to_f64, uniform, word  
 # hold them under the keys of the operations (ops/ffn.go): "function" and
 # "beta" for an activation, "activation", "beta", "gated", "layout" and
 # "packing" for a layer. Case names keep their older spellings (LABEL).
-RELU = word("ffn.Act", "relu")
-GELU = word("ffn.Act", "gelu")
-GELU_TANH = word("ffn.Act", "gelu-tanh")
-GELU_SIGMOID = word("ffn.Act", "gelu-sigmoid")
-SIGMOID = word("ffn.Act", "sigmoid")
-SILU = word("ffn.Act", "silu")
-SWISH = word("ffn.Act", "swish")
-IDENTITY = word("ffn.Act", "identity")
-IN_BY_OUT = word("ffn.Layout", "in-by-out")
-OUT_BY_IN = word("ffn.Layout", "out-by-in")
-STACKED = word("ffn.Packing", "stacked")
-INTERLEAVED = word("ffn.Packing", "interleaved")
+RELU, GELU, GELU_TANH, GELU_SIGMOID, SIGMOID, SILU, SWISH, IDENTITY = word(
+    "ffn.Act", "relu", "gelu", "gelu-tanh", "gelu-sigmoid", "sigmoid", "silu", "swish",
+    "identity")
+IN_BY_OUT, OUT_BY_IN = word("ffn.Layout", "in-by-out", "out-by-in")
+STACKED, INTERLEAVED = word("ffn.Packing", "stacked", "interleaved")
 
 LABEL = {GELU_TANH: "gelu_tanh", GELU_SIGMOID: "gelu_sigmoid",
          IN_BY_OUT: "in_by_out", OUT_BY_IN: "out_by_in"}

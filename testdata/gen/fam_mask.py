@@ -25,17 +25,10 @@ from common import btensor, ftensor, itensor, case, word
 
 # Every convention word is spelled as the Go types define it
 # (vocabulary.json); word() stops the generator on a word Go does not know.
-FULL = word("mask.Kind", "full")
-CAUSAL = word("mask.Kind", "causal")
-BAND = word("mask.Kind", "band")
-WINDOW = word("mask.Kind", "window")
-PREFIX = word("mask.Kind", "prefix")
-KEY_PADDING = word("mask.Kind", "key-padding")
-PACKED = word("mask.Kind", "packed")
-BLOCK_CAUSAL = word("mask.Block", "causal")
-BLOCK_FULL = word("mask.Block", "full")
-END = word("mask.Align", "end")
-START = word("mask.Align", "start")
+FULL, CAUSAL, BAND, WINDOW, PREFIX, KEY_PADDING, PACKED = word(
+    "mask.Kind", "full", "causal", "band", "window", "prefix", "key-padding", "packed")
+BLOCK_CAUSAL, BLOCK_FULL = word("mask.Block", "causal", "full")
+END, START = word("mask.Align", "end", "start")
 
 # A band extent of UNBOUNDED means no limit on that side.
 UNBOUNDED = -1

@@ -24,22 +24,13 @@ from common import case, ftensor, itensor, rng, to_f64, uniform, word
 
 # Every convention word, spelled as the Go types define them
 # (vocabulary.json); word() stops the generator on a word Go does not have.
-INTERLEAVED = word("posenc.Layout", "interleaved")
-CONCATENATED = word("posenc.Layout", "concatenated")
-ADJACENT = word("posenc.Pairing", "adjacent")
-HALVES = word("posenc.Pairing", "halves")
-NONE = word("posenc.Method", "none")
-INTERPOLATION = word("posenc.Method", "interpolation")
-NTK = word("posenc.Method", "ntk-aware")
-YARN = word("posenc.Method", "yarn")
-PER_FREQUENCY = word("posenc.Method", "per-frequency")
-RATIO = word("posenc.Ramp", "ratio")
-DIMS = word("posenc.Ramp", "dims")
-END = word("mask.Align", "end")
-START = word("mask.Align", "start")
-CAUSAL = word("mask.ALiBiForm", "causal")
-SYMMETRIC = word("mask.ALiBiForm", "symmetric")
-PAST_ONLY = word("mask.ALiBiForm", "past-only")
+INTERLEAVED, CONCATENATED = word("posenc.Layout", "interleaved", "concatenated")
+ADJACENT, HALVES = word("posenc.Pairing", "adjacent", "halves")
+NONE, INTERPOLATION, NTK, YARN, PER_FREQUENCY = word(
+    "posenc.Method", "none", "interpolation", "ntk-aware", "yarn", "per-frequency")
+RATIO, DIMS = word("posenc.Ramp", "ratio", "dims")
+END, START = word("mask.Align", "end", "start")
+CAUSAL, SYMMETRIC, PAST_ONLY = word("mask.ALiBiForm", "causal", "symmetric", "past-only")
 
 SIN = "Vaswani et al. 2017, arXiv 1706.03762, sec. 3.5"
 ROPE = "Su et al. 2021, arXiv 2104.09864, Eq. (13)-(15), (34)"
