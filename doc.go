@@ -104,10 +104,10 @@
 //	  full            every key
 //	  causal          keys up to the query's own position
 //	  band            keys j with −before ≤ j − p ≤ after, either side possibly unbounded
-//	  window          the n keys ending at the query, the query included
-//	  prefix          keys below a prefix length to every query, causal after it
+//	  window          the size keys ending at the query, the query included
+//	  prefix          keys below length to every query, causal from length on
 //	  key-padding     the first valid[b] keys of batch entry b
-//	  packed          keys of the query's own packed sequence, causal or full inside it
+//	  packed          keys of the query's own sequence between offsets, causal or full inside it as block says
 //	norm.EpsilonPlacement: where epsilon enters the denominator
 //	  in-root         divide by √(s² + ε)
 //	  added-to-root   divide by √s² + ε

@@ -9,18 +9,18 @@ import (
 
 // Check compares got with ref under tol, counting ULPs in format f, and
 // marks the test failed (tb.Errorf, so the test goes on) with the whole
-// report when the verdict is FAIL. A bad argument (lengths, shape, format,
+// report when the verdict is FAIL. An invalid argument (lengths, shape, format,
 // tolerance) stops the test (tb.Fatalf). It returns the report, or nil after
-// a bad argument, and reports whether the comparison passed.
+// an invalid argument, and reports whether the comparison passed.
 //
 // Use it in a kernel's tests as
 //
 //	compare.Check(t, want, got, []int{batch, heads, seq, dim}, compare.Float32, tol)
 func Check(tb testing.TB, ref, got []float64, shape []int, f Format, tol Tolerance) (*Report, bool) {
 	tb.Helper()
-	r, err := Diff(ref, got, shape, Options{Format: f, Tolerance: &tol})
+	r, err := diff(diffArgs{fn: "Check", format: "f", tolerance: "tol"}, ref, got, shape, Options{Format: f, Tolerance: &tol})
 	if err != nil {
-		tb.Fatalf("compare.Check: %v", err)
+		tb.Fatalf("%v", err)
 		return nil, false
 	}
 	if !r.Verdict.Pass {

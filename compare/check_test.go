@@ -39,8 +39,9 @@ func TestCheck(t *testing.T) {
 	}{
 		{"pass", []float64{1, 2, 3, 4.001}, []int{2, 2}, compare.Float64, compare.Tolerance{Abs: 1e-2}, true, 0, 0, ""},
 		{"fail", []float64{1, 2, 3, 4.1}, []int{2, 2}, compare.Float64, compare.Tolerance{Abs: 1e-2}, false, 1, 0, "verdict: FAIL"},
-		{"bad shape", []float64{1, 2, 3, 4}, []int{3}, compare.Float64, compare.Tolerance{}, false, 0, 1, "shape [3] holds 3 elements"},
-		{"bad tolerance", []float64{1, 2, 3, 4}, nil, compare.Float64, compare.Tolerance{Abs: -1}, false, 0, 1, "Abs is -1"},
+		{"bad shape", []float64{1, 2, 3, 4}, []int{3}, compare.Float64, compare.Tolerance{}, false, 0, 1, "compare: shape mismatch: Check: shape [3] holds 3 elements; want len(ref) = 4"},
+		{"bad tolerance", []float64{1, 2, 3, 4}, nil, compare.Float64, compare.Tolerance{Abs: -1}, false, 0, 1, "compare: invalid tolerance: Check: tol.Abs = -1; want a finite value ≥ 0"},
+		{"bad format", []float64{1, 2, 3, 4}, nil, 8, compare.Tolerance{}, false, 0, 1, "compare: invalid number format: Check: f = 8; want one of float64, float32, binary16, bfloat16, e4m3, e5m2"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -104,6 +104,8 @@
 //	negative or NaN tolerance, floor or k  ErrTolerance
 //	the yardstick's function fails         ErrYardstick
 //
-// Every error wraps one of the sentinel errors and names the argument and
-// the values at fault. No function panics on its arguments.
+// Every error wraps exactly one of the sentinel errors and names the
+// function called, the argument, its value and what was wanted
+// ("compare: invalid tolerance: Diff: Options.RelFloor = -1; want a finite
+// value ≥ 0 (0 for the default)"). No function panics on its arguments.
 package compare

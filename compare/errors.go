@@ -3,12 +3,16 @@ package compare
 import "errors"
 
 // The sentinel errors. Every error this package returns wraps exactly one of
-// them (match with errors.Is) and names the argument and the values at
-// fault.
+// them (match with errors.Is) and reads
+//
+//	<sentinel>: <function>: <argument> = <value>; want <expectation>
+//
+// naming the function called, the argument or field, its value and what
+// was expected.
 var (
 	// ErrFormat: an invalid Format value or an unknown format name, or a
 	// format wider than the arithmetic a yardstick runs in.
-	ErrFormat = errors.New("compare: bad number format")
+	ErrFormat = errors.New("compare: invalid number format")
 	// ErrBits: a bit pattern wider than its format.
 	ErrBits = errors.New("compare: bit pattern out of range")
 	// ErrShape: lengths that disagree with each other or with a shape, or a
@@ -16,7 +20,7 @@ var (
 	ErrShape = errors.New("compare: shape mismatch")
 	// ErrTolerance: a negative or NaN tolerance, relative-error floor or
 	// yardstick factor.
-	ErrTolerance = errors.New("compare: bad tolerance")
+	ErrTolerance = errors.New("compare: invalid tolerance")
 	// ErrYardstick: the low-precision function of a yardstick failed or
 	// returned the wrong number of elements.
 	ErrYardstick = errors.New("compare: yardstick failed")

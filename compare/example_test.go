@@ -180,7 +180,7 @@ func ExampleCheck() {
 	fmt.Println(ok)
 	// Output:
 	// true
-	// FATAL: compare.Check: compare: shape mismatch: shape [2] holds 2 elements, the tensors have 3
+	// FATAL: compare: shape mismatch: Check: shape [2] holds 2 elements; want len(ref) = 3
 	// false
 }
 

@@ -121,7 +121,7 @@ func Formats() []Format { return formatWords.Values() }
 func FormatByName(name string) (Format, error) {
 	var f Format
 	err := f.UnmarshalText([]byte(name))
-	return f, err
+	return f, vocab.At(err, ErrFormat, "FormatByName: name")
 }
 
 // Valid reports whether f is one of the declared formats.
@@ -181,39 +181,30 @@ func (f Format) HasInf() bool {
 	return p != nil && p.ieee
 }
 
-// Max is the largest finite value of the format (see the table at Float64).
-func (f Format) Max() float64 {
+// value is a parameter of the format, computed by get, or NaN for an
+// invalid format.
+func (f Format) value(get func(*params) float64) float64 {
 	if p := f.p(); p != nil {
-		return p.max
+		return get(p)
 	}
 	return math.NaN()
 }
+
+// Max is the largest finite value of the format (see the table at Float64).
+func (f Format) Max() float64 { return f.value(func(p *params) float64 { return p.max }) }
 
 // MinNormal is the smallest positive normal value, 2^(1−bias).
-func (f Format) MinNormal() float64 {
-	if p := f.p(); p != nil {
-		return p.minNormal
-	}
-	return math.NaN()
-}
+func (f Format) MinNormal() float64 { return f.value(func(p *params) float64 { return p.minNormal }) }
 
 // MinSubnormal is the smallest positive value, 2^(1−bias−fraction bits).
-func (f Format) MinSubnormal() float64 {
-	if p := f.p(); p != nil {
-		return p.minSub
-	}
-	return math.NaN()
-}
+func (f Format) MinSubnormal() float64 { return f.value(func(p *params) float64 { return p.minSub }) }
 
 // UnitRoundoff is u = 2^−p for precision p: the largest relative error of
 // one rounding to nearest in the normal range, |Round(x) − x| ≤ u·|x|
 // (Higham 2002, "Accuracy and Stability of Numerical Algorithms", 2nd ed.,
 // §2.1, Theorem 2.2). It is half the machine epsilon 2^(1−p).
 func (f Format) UnitRoundoff() float64 {
-	if p := f.p(); p != nil {
-		return math.Ldexp(1, -(p.fracBits + 1))
-	}
-	return math.NaN()
+	return f.value(func(p *params) float64 { return math.Ldexp(1, -(p.fracBits + 1)) })
 }
 
 // Round returns x rounded to the nearest value of the format, ties to even,
@@ -351,10 +342,10 @@ func (f Format) encode(v float64) uint64 {
 func (f Format) Decode(b uint64) (float64, error) {
 	p := f.p()
 	if p == nil {
-		return math.NaN(), fmt.Errorf("%w: %v is not a valid format", ErrFormat, f)
+		return math.NaN(), formatWords.CheckAt("Format.Decode: Format", f)
 	}
 	if p.width < 64 && b>>p.width != 0 {
-		return math.NaN(), fmt.Errorf("%w: pattern %#x has bits above the %d bits of %v", ErrBits, b, p.width, f)
+		return math.NaN(), fmt.Errorf("%w: Format.Decode: b = %#x; want at most the %d bits of %v", ErrBits, b, p.width, f)
 	}
 	if f == Float64 {
 		return math.Float64frombits(b), nil

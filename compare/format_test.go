@@ -25,9 +25,15 @@ func same(a, b float64) bool {
 }
 
 func TestFormatParameters(t *testing.T) {
-	// Sources: binary16, binary32, binary64: IEEE 754-2019 §3.6 table 3.5
-	// and the values in FORMULAS.md; bfloat16: FORMULAS.md (no formal
-	// standard); E4M3, E5M2: OCP OFP8 specification 2023, as in FORMULAS.md.
+	// Sources, as the table at Float64 lists them: binary16, binary32,
+	// binary64: IEEE 754-2019 §3.6, table 3.5 (max = (2 − 2^(1−p))·2^emax,
+	// min normal 2^emin, min subnormal 2^(emin−p+1)); bfloat16 (no formal
+	// standard): binary32 with the low 16 fraction bits dropped, so p = 8,
+	// emax = 127, emin = −126: max = (2 − 2^−7)·2^127 = 2^128 − 2^120 =
+	// 3.3895313892515355e38 and min subnormal 2^(−126−7) = 2^−133; E4M3,
+	// E5M2: OCP 8-bit Floating Point Specification (OFP8) 2023, whose E4M3
+	// max is S.1111.110 = 1.75·2^(15−7) = 448 (§4: no infinities) and
+	// E5M2 max S.11110.11 = 1.75·2^(30−15) = 57344.
 	tests := []struct {
 		f                      Format
 		width, prec            int
@@ -57,10 +63,11 @@ func TestFormatParameters(t *testing.T) {
 }
 
 func TestSpecialPatterns(t *testing.T) {
-	// Bit patterns stated by the specifications (FORMULAS.md): E4M3 max
-	// S.1111.110, NaN S.1111.111, no Inf; E5M2 ±Inf S.11111.00, NaN
-	// S.11111.{01,10,11}; binary16 and bfloat16 ±Inf and max by the IEEE
-	// 754 layout.
+	// Bit patterns stated by the specifications, as the doc of Float64
+	// quotes them: E4M3 max S.1111.110, NaN S.1111.111, no Inf (OFP8 2023
+	// §4); E5M2 ±Inf S.11111.00, NaN S.11111.{01,10,11} (OFP8 2023, the
+	// IEEE 754 layout); binary16 and bfloat16 ±Inf and max by the IEEE
+	// 754-2019 layout (§3.4).
 	tests := []struct {
 		f    Format
 		bits uint64
@@ -102,8 +109,11 @@ func TestDecodeOutOfRange(t *testing.T) {
 		_, err := f.Decode(1 << f.Width())
 		assert.ErrorIs(t, err, ErrBits, f.String())
 	}
-	_, err := Format(99).Decode(0)
+	_, err := BFloat16.Decode(0x1ffff)
+	assert.EqualError(t, err, "compare: bit pattern out of range: Format.Decode: b = 0x1ffff; want at most the 16 bits of bfloat16")
+	_, err = Format(99).Decode(0)
 	assert.ErrorIs(t, err, ErrFormat)
+	assert.EqualError(t, err, "compare: invalid number format: Format.Decode: Format = 99; want one of float64, float32, binary16, bfloat16, e4m3, e5m2")
 }
 
 // narrowFormats are the formats small enough to test exhaustively.
@@ -193,7 +203,8 @@ func TestOverflow(t *testing.T) {
 	// The tie above Max is Max + ULP(Max)/2. In the IEEE-layout formats the
 	// fraction of Max is all ones (odd), so the tie goes up and overflows
 	// (IEEE 754-2019 §7.4); in E4M3 Max = S.1111.110 is even, so 464 rounds
-	// to 448 and only values above 464 overflow (FORMULAS.md, OFP8 §5).
+	// to 448 and only values above 464 overflow (OFP8 §5, as Round's
+	// documentation states).
 	tests := []struct {
 		f             Format
 		x             float64
@@ -311,6 +322,15 @@ type roundConfig struct {
 // TestRoundGolden checks Round, RoundSaturating, Encode, EncodeSaturating
 // and ULP against conversions computed exactly with rational arithmetic by
 // testdata/gen/fam_compare.py, one case per format; every format has one.
+// tensor returns the tensor name of the case c, read by get (c.Float,
+// c.Ints); the test stops if it is missing or malformed.
+func tensor[V any](t *testing.T, c *golden.Case, name string, get func(string) (V, []int, error)) V {
+	t.Helper()
+	v, _, err := get(name)
+	require.NoError(t, err, "%s: tensor %s", c, name)
+	return v
+}
+
 func TestRoundGolden(t *testing.T) {
 	file := golden.MustLoadFamily(t, "compare", "round")
 	require.Len(t, file.Cases, len(Formats()), "one case per format")
@@ -322,18 +342,8 @@ func TestRoundGolden(t *testing.T) {
 		t.Run(c.Name, func(t *testing.T) {
 			f := cfg.Format
 			assert.Equal(t, "round_"+f.String(), c.Name)
-			x, _, err := c.Float("x")
-			require.NoError(t, err)
-			rounded, _, err := c.Float("rounded")
-			require.NoError(t, err)
-			sat, _, err := c.Float("saturated")
-			require.NoError(t, err)
-			ulp, _, err := c.Float("ulp")
-			require.NoError(t, err)
-			bits, _, err := c.Ints("bits")
-			require.NoError(t, err)
-			bitsSat, _, err := c.Ints("bits_saturated")
-			require.NoError(t, err)
+			x, rounded, sat, ulp := tensor(t, c, "x", c.Float), tensor(t, c, "rounded", c.Float), tensor(t, c, "saturated", c.Float), tensor(t, c, "ulp", c.Float)
+			bits, bitsSat := tensor(t, c, "bits", c.Ints), tensor(t, c, "bits_saturated", c.Ints)
 			for i, v := range x {
 				assert.Truef(t, same(rounded[i], f.Round(v)), "Round(%x) = %x, want %x", v, f.Round(v), rounded[i])
 				assert.Truef(t, same(sat[i], f.RoundSaturating(v)), "RoundSaturating(%x) = %x, want %x", v, f.RoundSaturating(v), sat[i])
@@ -443,7 +453,7 @@ func TestFormatByName(t *testing.T) {
 	}
 	_, err := FormatByName("float8")
 	assert.ErrorIs(t, err, ErrFormat)
-	assert.Equal(t, `compare: bad number format: number format = "float8"; want one of float64, float32, binary16, bfloat16, e4m3, e5m2`, err.Error())
+	assert.Equal(t, `compare: invalid number format: FormatByName: name = "float8"; want one of float64, float32, binary16, bfloat16, e4m3, e5m2`, err.Error())
 	assert.ErrorIs(t, Format(6).Check(), ErrFormat)
 	var h Format
 	assert.ErrorIs(t, h.UnmarshalText([]byte("int8")), ErrFormat)

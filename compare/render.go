@@ -208,15 +208,11 @@ type jsonReport struct {
 // Non-finite numbers are the strings "nan", "inf" and "-inf"; finite ones
 // are printed with the shortest decimal that reads back exactly.
 func (r *Report) MarshalJSON() ([]byte, error) {
-	j := jsonReport{
-		Shape: r.Shape, Elements: r.Elements, Format: r.Format, Finite: r.Finite,
-		MaxAbs: jsonFloat(r.MaxAbs), MaxAbsAt: r.MaxAbsAt,
-		MaxRel: jsonFloat(r.MaxRel), MaxRelAt: r.MaxRelAt, RelFloor: jsonFloat(r.RelFloor),
-		RMS: jsonFloat(r.RMS), MeanSigned: jsonFloat(r.MeanSigned), Normwise: jsonFloat(r.Normwise),
-		MaxULPs: jsonFloat(r.MaxULPs), NotInFormat: r.NotInFormat,
-		NaNMismatches: r.NaNMismatches, InfMismatches: r.InfMismatches, NonFiniteMatches: r.NonFiniteMatches,
-		ULPs: []jsonBucket{}, Worst: []jsonElement{},
-	}
+	j := jsonReport{Format: r.Format, ULPs: []jsonBucket{}, Worst: []jsonElement{}}
+	floats, ints, indices := reportFields(r, &j)
+	copyFields(floats, true)
+	copyFields(ints, true)
+	copyFields(indices, true)
 	for _, u := range r.ULPs {
 		j.ULPs = append(j.ULPs, jsonBucket(u))
 	}
@@ -239,16 +235,13 @@ func (r *Report) UnmarshalJSON(b []byte) error {
 	dec := json.NewDecoder(bytes.NewReader(b))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&j); err != nil {
-		return fmt.Errorf("compare: report JSON: %w", err)
+		return fmt.Errorf("compare: Report.UnmarshalJSON: %w", err)
 	}
-	*r = Report{
-		Shape: j.Shape, Elements: j.Elements, Format: j.Format, Finite: j.Finite,
-		MaxAbs: float64(j.MaxAbs), MaxAbsAt: j.MaxAbsAt,
-		MaxRel: float64(j.MaxRel), MaxRelAt: j.MaxRelAt, RelFloor: float64(j.RelFloor),
-		RMS: float64(j.RMS), MeanSigned: float64(j.MeanSigned), Normwise: float64(j.Normwise),
-		MaxULPs: float64(j.MaxULPs), NotInFormat: j.NotInFormat,
-		NaNMismatches: j.NaNMismatches, InfMismatches: j.InfMismatches, NonFiniteMatches: j.NonFiniteMatches,
-	}
+	*r = Report{Format: j.Format}
+	floats, ints, indices := reportFields(r, &j)
+	copyFields(floats, false)
+	copyFields(ints, false)
+	copyFields(indices, false)
 	for _, u := range j.ULPs {
 		r.ULPs = append(r.ULPs, ULPBucket(u))
 	}
@@ -263,4 +256,31 @@ func (r *Report) UnmarshalJSON(b []byte) error {
 		r.Verdict = &Verdict{v.Pass, v.Failed, v.Reasons}
 	}
 	return nil
+}
+
+// field is one field of a Report and the field of its JSON form that
+// carries it.
+type field[T any] struct{ r, j *T }
+
+// reportFields pairs the numbers and indices of r with their fields in j,
+// so that MarshalJSON and UnmarshalJSON copy one list, in opposite
+// directions.
+func reportFields(r *Report, j *jsonReport) ([]field[float64], []field[int], []field[[]int]) {
+	f := func(r *float64, j *jsonFloat) field[float64] { return field[float64]{r, (*float64)(j)} }
+	return []field[float64]{f(&r.MaxAbs, &j.MaxAbs), f(&r.MaxRel, &j.MaxRel), f(&r.RelFloor, &j.RelFloor),
+			f(&r.RMS, &j.RMS), f(&r.MeanSigned, &j.MeanSigned), f(&r.Normwise, &j.Normwise), f(&r.MaxULPs, &j.MaxULPs)},
+		[]field[int]{{&r.Elements, &j.Elements}, {&r.Finite, &j.Finite}, {&r.NotInFormat, &j.NotInFormat},
+			{&r.NaNMismatches, &j.NaNMismatches}, {&r.InfMismatches, &j.InfMismatches}, {&r.NonFiniteMatches, &j.NonFiniteMatches}},
+		[]field[[]int]{{&r.Shape, &j.Shape}, {&r.MaxAbsAt, &j.MaxAbsAt}, {&r.MaxRelAt, &j.MaxRelAt}}
+}
+
+// copyFields copies each Report field to its JSON field (toJSON) or back.
+func copyFields[T any](fs []field[T], toJSON bool) {
+	for _, f := range fs {
+		if toJSON {
+			*f.j = *f.r
+		} else {
+			*f.r = *f.j
+		}
+	}
 }

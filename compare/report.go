@@ -142,7 +142,16 @@ type Report struct {
 //	negative or NaN RelFloor or tolerance ErrTolerance
 //	got − ref overflowing float64         +Inf in MaxAbs, RMS, MeanSigned, Normwise
 func Diff(ref, got []float64, shape []int, opt Options) (*Report, error) {
-	shape, err := checkDiff(ref, got, shape, opt)
+	return diff(diffArgs{fn: "Diff", format: "Options.Format", tolerance: "Options.Tolerance"}, ref, got, shape, opt)
+}
+
+// diffArgs names, in messages, the function a caller called and how it
+// took the format and the tolerance that Diff takes in its Options.
+type diffArgs struct{ fn, format, tolerance string }
+
+// diff is Diff with the names of args in its messages.
+func diff(args diffArgs, ref, got []float64, shape []int, opt Options) (*Report, error) {
+	shape, err := checkDiff(args, ref, got, shape, opt)
 	if err != nil {
 		return nil, err
 	}
@@ -163,22 +172,23 @@ func Diff(ref, got []float64, shape []int, opt Options) (*Report, error) {
 }
 
 // checkDiff validates Diff's arguments and returns the shape to use.
-func checkDiff(ref, got []float64, shape []int, opt Options) ([]int, error) {
+func checkDiff(a diffArgs, ref, got []float64, shape []int, opt Options) ([]int, error) {
+	fn := a.fn
 	if len(got) != len(ref) {
-		return nil, fmt.Errorf("%w: candidate has %d elements, reference has %d", ErrShape, len(got), len(ref))
+		return nil, fmt.Errorf("%w: %s: got has %d elements; want len(ref) = %d", ErrShape, fn, len(got), len(ref))
 	}
-	shape, err := checkShape(shape, len(ref))
+	shape, err := checkShape(fn, shape, len(ref))
 	if err != nil {
 		return nil, err
 	}
-	if !opt.Format.Valid() {
-		return nil, fmt.Errorf("%w: Options.Format is %v", ErrFormat, opt.Format)
+	if err := formatWords.CheckAt(fn+": "+a.format, opt.Format); err != nil {
+		return nil, err
 	}
 	if math.IsNaN(opt.RelFloor) || opt.RelFloor < 0 || math.IsInf(opt.RelFloor, 0) {
-		return nil, fmt.Errorf("%w: RelFloor is %v; want a finite value ≥ 0 (0 for the default)", ErrTolerance, opt.RelFloor)
+		return nil, fmt.Errorf("%w: %s: Options.RelFloor = %v; want a finite value ≥ 0 (0 for the default)", ErrTolerance, fn, opt.RelFloor)
 	}
 	if opt.Tolerance != nil {
-		if err := opt.Tolerance.Validate(); err != nil {
+		if err := opt.Tolerance.validate(fn, a.tolerance); err != nil {
 			return nil, err
 		}
 	}
@@ -315,23 +325,24 @@ func buckets(hist [65]int) []ULPBucket {
 
 func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 
-// checkShape returns the shape to use for n elements.
-func checkShape(shape []int, n int) ([]int, error) {
+// checkShape returns the shape to use for n elements (len(ref)) in a call
+// of fn.
+func checkShape(fn string, shape []int, n int) ([]int, error) {
 	if shape == nil {
 		return []int{n}, nil
 	}
 	p := 1
 	for k, d := range shape {
 		if d < 0 {
-			return nil, fmt.Errorf("%w: dimension %d of shape %v is negative", ErrShape, k, shape)
+			return nil, fmt.Errorf("%w: %s: shape[%d] = %d; want ≥ 0 (shape %v)", ErrShape, fn, k, d, shape)
 		}
 		if d != 0 && p > math.MaxInt/d {
-			return nil, fmt.Errorf("%w: shape %v holds more elements than an int counts", ErrShape, shape)
+			return nil, fmt.Errorf("%w: %s: shape = %v; want one whose element count fits an int", ErrShape, fn, shape)
 		}
 		p *= d
 	}
 	if p != n {
-		return nil, fmt.Errorf("%w: shape %v holds %d elements, the tensors have %d", ErrShape, shape, p, n)
+		return nil, fmt.Errorf("%w: %s: shape %v holds %d elements; want len(ref) = %d", ErrShape, fn, shape, p, n)
 	}
 	return append([]int(nil), shape...), nil
 }

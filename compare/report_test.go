@@ -82,21 +82,21 @@ func TestDiffArguments(t *testing.T) {
 		want     error
 		contains string
 	}{
-		{"lengths", one, one[:5], nil, Options{}, ErrShape, "candidate has 5 elements, reference has 6"},
-		{"shape product", one, one, []int{2, 2}, Options{}, ErrShape, "shape [2 2] holds 4 elements, the tensors have 6"},
-		{"negative dim", one, one, []int{-2, -3}, Options{}, ErrShape, "dimension 0 of shape [-2 -3] is negative"},
-		{"overflowing shape", one, one, []int{1 << 40, 1 << 40}, Options{}, ErrShape, "more elements"},
-		{"format", one, one, nil, Options{Format: -1}, ErrFormat, "Format(-1)"},
-		{"floor", one, one, nil, Options{RelFloor: -1}, ErrTolerance, "RelFloor is -1"},
-		{"floor nan", one, one, nil, Options{RelFloor: math.NaN()}, ErrTolerance, "RelFloor is NaN"},
-		{"tolerance", one, one, nil, Options{Tolerance: &Tolerance{Rel: -1}}, ErrTolerance, "Rel is -1"},
-		{"tolerance inf", one, one, nil, Options{Tolerance: &Tolerance{Abs: math.Inf(1)}}, ErrTolerance, "Abs is +Inf"},
+		{"lengths", one, one[:5], nil, Options{}, ErrShape, "compare: shape mismatch: Diff: got has 5 elements; want len(ref) = 6"},
+		{"shape product", one, one, []int{2, 2}, Options{}, ErrShape, "compare: shape mismatch: Diff: shape [2 2] holds 4 elements; want len(ref) = 6"},
+		{"negative dim", one, one, []int{-2, -3}, Options{}, ErrShape, "compare: shape mismatch: Diff: shape[0] = -2; want ≥ 0 (shape [-2 -3])"},
+		{"overflowing shape", one, one, []int{1 << 40, 1 << 40}, Options{}, ErrShape, "compare: shape mismatch: Diff: shape = [1099511627776 1099511627776]; want one whose element count fits an int"},
+		{"format", one, one, nil, Options{Format: -1}, ErrFormat, "compare: invalid number format: Diff: Options.Format = -1; want one of float64, float32, binary16, bfloat16, e4m3, e5m2"},
+		{"floor", one, one, nil, Options{RelFloor: -1}, ErrTolerance, "compare: invalid tolerance: Diff: Options.RelFloor = -1; want a finite value ≥ 0 (0 for the default)"},
+		{"floor nan", one, one, nil, Options{RelFloor: math.NaN()}, ErrTolerance, "compare: invalid tolerance: Diff: Options.RelFloor = NaN; want a finite value ≥ 0 (0 for the default)"},
+		{"tolerance", one, one, nil, Options{Tolerance: &Tolerance{Rel: -1}}, ErrTolerance, "compare: invalid tolerance: Diff: Options.Tolerance.Rel = -1; want a finite value ≥ 0"},
+		{"tolerance inf", one, one, nil, Options{Tolerance: &Tolerance{Abs: math.Inf(1)}}, ErrTolerance, "compare: invalid tolerance: Diff: Options.Tolerance.Abs = +Inf; want a finite value ≥ 0"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := Diff(tc.ref, tc.got, tc.shape, tc.opt)
 			require.ErrorIs(t, err, tc.want)
-			assert.Contains(t, err.Error(), tc.contains)
+			assert.EqualError(t, err, tc.contains)
 		})
 	}
 }

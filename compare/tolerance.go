@@ -33,13 +33,16 @@ type Tolerance struct {
 
 // Validate returns an error wrapping ErrTolerance if a field is negative,
 // NaN or infinite.
-func (t Tolerance) Validate() error {
+func (t Tolerance) Validate() error { return t.validate("Tolerance.Validate", "Tolerance") }
+
+// validate is Validate for a call of fn, which names t as name.
+func (t Tolerance) validate(fn, name string) error {
 	for _, c := range []struct {
 		name string
 		v    float64
 	}{{"Abs", t.Abs}, {"Rel", t.Rel}, {"MaxNormwise", t.MaxNormwise}} {
 		if math.IsNaN(c.v) || c.v < 0 || math.IsInf(c.v, 0) {
-			return fmt.Errorf("%w: %s is %v; want a finite value ≥ 0", ErrTolerance, c.name, c.v)
+			return fmt.Errorf("%w: %s: %s.%s = %v; want a finite value ≥ 0", ErrTolerance, fn, name, c.name, c.v)
 		}
 	}
 	return nil
@@ -166,8 +169,9 @@ type Float interface{ ~float32 | ~float64 }
 // ErrTolerance; shape errors wrap ErrShape; an error from run, or an output
 // of the wrong length, wraps ErrYardstick.
 func MeasureYardstick[T Float](f Format, inputs [][]float64, ref []float64, shape []int, k float64, run func(in [][]T) ([]T, error)) (*Yardstick, error) {
-	if !f.Valid() {
-		return nil, fmt.Errorf("%w: yardstick format is %v", ErrFormat, f)
+	const fn = "MeasureYardstick"
+	if err := formatWords.CheckAt(fn+": f", f); err != nil {
+		return nil, err
 	}
 	arith := "float32"
 	prec := Float32.Precision()
@@ -175,15 +179,15 @@ func MeasureYardstick[T Float](f Format, inputs [][]float64, ref []float64, shap
 		arith, prec = "float64", Float64.Precision()
 	}
 	if f.Precision() > prec {
-		return nil, fmt.Errorf("%w: format %v is wider than the %s arithmetic of the yardstick", ErrFormat, f, arith)
+		return nil, fmt.Errorf("%w: %s: f = %v; want a format no wider than the %s arithmetic of run", ErrFormat, fn, f, arith)
 	}
 	if math.IsNaN(k) || math.IsInf(k, 0) || k < 1 {
-		return nil, fmt.Errorf("%w: yardstick factor k is %v; want a finite value ≥ 1", ErrTolerance, k)
+		return nil, fmt.Errorf("%w: %s: k = %v; want a finite value ≥ 1", ErrTolerance, fn, k)
 	}
 	if run == nil {
-		return nil, fmt.Errorf("%w: the low-precision function is nil", ErrYardstick)
+		return nil, fmt.Errorf("%w: %s: run = nil; want the low-precision function", ErrYardstick, fn)
 	}
-	shape, err := checkShape(shape, len(ref))
+	shape, err := checkShape(fn, shape, len(ref))
 	if err != nil {
 		return nil, err
 	}
@@ -196,10 +200,10 @@ func MeasureYardstick[T Float](f Format, inputs [][]float64, ref []float64, shap
 	}
 	out, err := run(in)
 	if err != nil {
-		return nil, fmt.Errorf("%w: %w", ErrYardstick, err)
+		return nil, fmt.Errorf("%w: %s: run returned an error: %w", ErrYardstick, fn, err)
 	}
 	if len(out) != len(ref) {
-		return nil, fmt.Errorf("%w: the low-precision function returned %d elements, the reference has %d", ErrYardstick, len(out), len(ref))
+		return nil, fmt.Errorf("%w: %s: run returned %d elements; want len(ref) = %d", ErrYardstick, fn, len(out), len(ref))
 	}
 	y := &Yardstick{Format: f, Arithmetic: arith, K: k, Output: f.RoundSlice(Widen(out))}
 	if y.Report, err = Diff(ref, y.Output, shape, Options{Format: f}); err != nil {

@@ -205,21 +205,21 @@ func TestYardstickErrors(t *testing.T) {
 		want error
 		text string
 	}{
-		{"wider format", compare.Float64, 2, ok, x, compare.ErrFormat, "format float64 is wider than the float32 arithmetic"},
-		{"invalid format", compare.Format(9), 2, ok, x, compare.ErrFormat, "Format(9)"},
-		{"k below 1", compare.BFloat16, 0.5, ok, x, compare.ErrTolerance, "k is 0.5"},
-		{"k NaN", compare.BFloat16, math.NaN(), ok, x, compare.ErrTolerance, "k is NaN"},
-		{"nil run", compare.BFloat16, 2, nil, x, compare.ErrYardstick, "nil"},
-		{"run fails", compare.BFloat16, 2, func([][]float32) ([]float32, error) { return nil, boom }, x, compare.ErrYardstick, "kernel refused"},
-		{"wrong length", compare.BFloat16, 2, ok, x[:2], compare.ErrShape, "shape"},
-		{"short output", compare.BFloat16, 2, func(in [][]float32) ([]float32, error) { return in[0][:1], nil }, x, compare.ErrYardstick, "returned 1 elements, the reference has 3"},
+		{"wider format", compare.Float64, 2, ok, x, compare.ErrFormat, "compare: invalid number format: MeasureYardstick: f = float64; want a format no wider than the float32 arithmetic of run"},
+		{"invalid format", compare.Format(9), 2, ok, x, compare.ErrFormat, "compare: invalid number format: MeasureYardstick: f = 9; want one of float64, float32, binary16, bfloat16, e4m3, e5m2"},
+		{"k below 1", compare.BFloat16, 0.5, ok, x, compare.ErrTolerance, "compare: invalid tolerance: MeasureYardstick: k = 0.5; want a finite value ≥ 1"},
+		{"k NaN", compare.BFloat16, math.NaN(), ok, x, compare.ErrTolerance, "compare: invalid tolerance: MeasureYardstick: k = NaN; want a finite value ≥ 1"},
+		{"nil run", compare.BFloat16, 2, nil, x, compare.ErrYardstick, "compare: yardstick failed: MeasureYardstick: run = nil; want the low-precision function"},
+		{"run fails", compare.BFloat16, 2, func([][]float32) ([]float32, error) { return nil, boom }, x, compare.ErrYardstick, "compare: yardstick failed: MeasureYardstick: run returned an error: kernel refused"},
+		{"wrong length", compare.BFloat16, 2, ok, x[:2], compare.ErrShape, "compare: shape mismatch: MeasureYardstick: shape [3] holds 3 elements; want len(ref) = 2"},
+		{"short output", compare.BFloat16, 2, func(in [][]float32) ([]float32, error) { return in[0][:1], nil }, x, compare.ErrYardstick, "compare: yardstick failed: MeasureYardstick: run returned 1 elements; want len(ref) = 3"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			shape := []int{3}
 			_, err := compare.MeasureYardstick(tc.f, [][]float64{x}, tc.ref, shape, tc.k, tc.run)
 			require.ErrorIs(t, err, tc.want)
-			assert.Contains(t, err.Error(), tc.text)
+			assert.EqualError(t, err, tc.text)
 		})
 	}
 	_, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{x}, x, nil, 2, func([][]float32) ([]float32, error) { return nil, boom })
@@ -229,8 +229,16 @@ func TestYardstickErrors(t *testing.T) {
 func TestToleranceValidate(t *testing.T) {
 	assert.NoError(t, compare.Tolerance{}.Validate())
 	assert.NoError(t, compare.Tolerance{Abs: 1, Rel: 2, ULPs: 3, MaxNormwise: 4}.Validate())
-	for _, tol := range []compare.Tolerance{{Abs: -1}, {Rel: math.NaN()}, {MaxNormwise: math.Inf(1)}} {
-		err := tol.Validate()
-		assert.ErrorIs(t, err, compare.ErrTolerance, fmt.Sprint(tol))
+	for _, tc := range []struct {
+		tol  compare.Tolerance
+		want string
+	}{
+		{compare.Tolerance{Abs: -1}, "compare: invalid tolerance: Tolerance.Validate: Tolerance.Abs = -1; want a finite value ≥ 0"},
+		{compare.Tolerance{Rel: math.NaN()}, "compare: invalid tolerance: Tolerance.Validate: Tolerance.Rel = NaN; want a finite value ≥ 0"},
+		{compare.Tolerance{MaxNormwise: math.Inf(1)}, "compare: invalid tolerance: Tolerance.Validate: Tolerance.MaxNormwise = +Inf; want a finite value ≥ 0"},
+	} {
+		err := tc.tol.Validate()
+		assert.ErrorIs(t, err, compare.ErrTolerance, fmt.Sprint(tc.tol))
+		assert.EqualError(t, err, tc.want)
 	}
 }

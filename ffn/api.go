@@ -63,14 +63,14 @@ import (
 // error measured is 5.3e-16 (plain layers, 34 cases) and 3.9e-16 (gated
 // units, 48 cases); see the package documentation.
 func Forward(x []float64, d Dims, w Weights[float64], o Options) ([]float64, error) {
-	return forward(x, d, &w, o)
+	return forward("Forward", x, d, &w, o)
 }
 
 // Forward32 is the float32 instantiation of the same body as Forward: the
 // straightforward low-precision implementation the compare package uses as
 // a yardstick; not a reference.
 func Forward32(x []float32, d Dims, w Weights[float32], o Options) ([]float32, error) {
-	return forward(x, d, &w, o)
+	return forward("Forward32", x, d, &w, o)
 }
 
 // Backward returns the gradient of a scalar loss with respect to the input
@@ -102,37 +102,39 @@ func Forward32(x []float32, d Dims, w Weights[float32], o Options) ([]float32, e
 // (plain layers) and 5.6e-16 (gated units). Central finite differences
 // agree to within their own error (tested at 1e-7).
 func Backward(x, dy []float64, d Dims, w Weights[float64], o Options) (dx []float64, grad Weights[float64], err error) {
-	return backward(x, dy, d, &w, o)
+	return backward("Backward", x, dy, d, &w, o)
 }
 
 // Backward32 is the float32 instantiation of the same body as Backward:
 // the straightforward low-precision implementation the compare package
 // uses as a yardstick; not a reference.
 func Backward32(x, dy []float32, d Dims, w Weights[float32], o Options) (dx []float32, grad Weights[float32], err error) {
-	return backward(x, dy, d, &w, o)
+	return backward("Backward32", x, dy, d, &w, o)
 }
 
-func activate[T num.Float](x []T, a Act, beta float64) ([]T, error) {
-	if err := checkActBeta(a, beta); err != nil {
+func activate[T num.Float](fn string, x []T, a Act, beta float64) ([]T, error) {
+	if err := checkActBeta(fn, "a", "beta", a, beta); err != nil {
 		return nil, err
 	}
+	phi, _ := activation(a, T(beta))
 	y := make([]T, len(x))
 	for i, v := range x {
-		y[i] = phi(a, T(beta), v)
+		y[i] = phi(v)
 	}
 	return y, nil
 }
 
-func activateGrad[T num.Float](x, dy []T, a Act, beta float64) ([]T, error) {
-	if err := checkActBeta(a, beta); err != nil {
+func activateGrad[T num.Float](fn string, x, dy []T, a Act, beta float64) ([]T, error) {
+	if err := checkActBeta(fn, "a", "beta", a, beta); err != nil {
 		return nil, err
 	}
 	if len(dy) != len(x) {
-		return nil, fmt.Errorf("%w: dy has %d elements, x has %d", ErrShape, len(dy), len(x))
+		return nil, fmt.Errorf("%w: %s: dy has %d elements; want len(x) = %d", ErrShape, fn, len(dy), len(x))
 	}
+	_, deriv := activation(a, T(beta))
 	dx := make([]T, len(x))
 	for i, v := range x {
-		dx[i] = dy[i] * phiDeriv(a, T(beta), v)
+		dx[i] = dy[i] * deriv(v)
 	}
 	return dx, nil
 }
@@ -143,28 +145,28 @@ func activateGrad[T num.Float](x, dy []T, a Act, beta float64) ([]T, error) {
 // the argument checks of a layer: an unknown activation gives ErrOption, a
 // NaN or infinite Swish β, or a β given to another activation, ErrBeta.
 func Activate(x []float64, a Act, beta float64) ([]float64, error) {
-	return activate(x, a, beta)
+	return activate("Activate", x, a, beta)
 }
 
 // Activate32 is the float32 instantiation of the same body as Activate:
 // the straightforward low-precision implementation the compare package
 // uses as a yardstick; not a reference.
 func Activate32(x []float32, a Act, beta float64) ([]float32, error) {
-	return activate(x, a, beta)
+	return activate("Activate32", x, a, beta)
 }
 
 // ActivateGrad returns dy ⊙ φ′(x), the gradient through the activation a
 // of a loss whose gradient with respect to φ(x) is dy. Errors are those of
 // Activate, and ErrShape when dy and x differ in length.
 func ActivateGrad(x, dy []float64, a Act, beta float64) ([]float64, error) {
-	return activateGrad(x, dy, a, beta)
+	return activateGrad("ActivateGrad", x, dy, a, beta)
 }
 
 // ActivateGrad32 is the float32 instantiation of the same body as
 // ActivateGrad: the straightforward low-precision implementation the
 // compare package uses as a yardstick; not a reference.
 func ActivateGrad32(x, dy []float32, a Act, beta float64) ([]float32, error) {
-	return activateGrad(x, dy, a, beta)
+	return activateGrad("ActivateGrad32", x, dy, a, beta)
 }
 
 // HiddenSize returns the hidden width of a gated feed-forward layer for a
@@ -186,15 +188,16 @@ func ActivateGrad32(x, dy []float32, a Act, beta float64) ([]float32, error) {
 func HiddenSize(d, m int) (int, error) {
 	switch {
 	case d < 1:
-		return 0, fmt.Errorf("%w: HiddenSize: model width d is %d, want ≥ 1", ErrShape, d)
+		return 0, fmt.Errorf("%w: HiddenSize: model width d = %d; want ≥ 1", ErrShape, d)
 	case m < 1:
-		return 0, fmt.Errorf("%w: HiddenSize: multiple m is %d, want ≥ 1", ErrShape, m)
-	case m > math.MaxInt/3 || d > (math.MaxInt-3*m)/8:
-		return 0, fmt.Errorf("%w: HiddenSize: d = %d, m = %d: the hidden size overflows int", ErrShape, d, m)
+		return 0, fmt.Errorf("%w: HiddenSize: multiple m = %d; want ≥ 1", ErrShape, m)
 	}
-	q := (8*d + 3*m - 1) / (3 * m)
-	if q > math.MaxInt/m {
-		return 0, fmt.Errorf("%w: HiddenSize: d = %d, m = %d: the hidden size overflows int", ErrShape, d, m)
+	q := 0
+	if m <= math.MaxInt/3 && d <= (math.MaxInt-3*m)/8 {
+		q = (8*d + 3*m - 1) / (3 * m)
+	}
+	if q == 0 || q > math.MaxInt/m {
+		return 0, fmt.Errorf("%w: HiddenSize: d = %d, m = %d; want a hidden size m·⌈8d/3m⌉ that fits an int", ErrShape, d, m)
 	}
 	return q * m, nil
 }

@@ -3,8 +3,8 @@
 // the two-layer network, the gated units, forward and backward, and the
 // hidden-size rule.
 //
-// Activations (each with a derivative …Deriv, a float32 instantiation
-// …32, and the vector forms Activate and ActivateGrad):
+// Activations (each with a derivative …Deriv, and the vector forms
+// Activate and ActivateGrad):
 //
 //	ReLU(x)         max(0, x)                               Vaswani et al. 2017, Eq. (2)
 //	GELU(x)         x·Φ(x) = ½x·(1 + erf(x/√2))             Hendrycks & Gimpel 2016, §2
@@ -51,15 +51,18 @@
 // an unevaluated sum of two floats, because rounding it would cost about
 // |argument|·ulp — up to 1e-13 relative at |x| = 30.
 //
-// The float32 functions (…32) are the float32 instantiation of the same
-// generic bodies: the straightforward low-precision implementation the
-// compare package uses as a yardstick; not a reference. Their
-// transcendental functions are Go's float64 math.Exp and math.Erfc rounded
-// to float32.
+// Every exported function that takes or returns tensors (slices) has a
+// float32 twin, its name suffixed 32, running the same generic body; the
+// scalar functions are float64 only. The twins are the straightforward
+// low-precision implementation the compare package uses as a yardstick;
+// not a reference. Their transcendental functions are Go's float64
+// math.Exp and math.Erfc rounded to float32.
 //
-// Special cases are listed at each function. Every error wraps one of
-// ErrShape, ErrWeightLen, ErrHidden, ErrBeta and ErrOption and names the
-// argument and its value; no function panics on its arguments.
+// Special cases are listed at each function. Every error wraps exactly one
+// of ErrShape, ErrWeightLen, ErrHidden, ErrBeta and ErrOption and names the
+// function called, the argument, its value and what was wanted
+// ("ffn: invalid shape: Forward: Dims.In = 0; want ≥ 1"); no function
+// panics on its arguments.
 //
 // # Accuracy
 //

@@ -96,7 +96,7 @@ func ExampleHiddenSize() {
 	fmt.Println(errors.Is(err, ffn.ErrShape), err)
 	// Output:
 	// 11008 <nil>
-	// true ffn: bad shape: HiddenSize: multiple m is 0, want ≥ 1
+	// true ffn: invalid shape: HiddenSize: multiple m = 0; want ≥ 1
 }
 
 func ExampleActivate() {
@@ -106,5 +106,5 @@ func ExampleActivate() {
 	fmt.Println(errors.Is(err, ffn.ErrBeta), err)
 	// Output:
 	// [-0.268941 0.000000 0.731059] <nil>
-	// true ffn: bad beta: Swish β is NaN, want a finite number
+	// true ffn: invalid beta: Activate: beta = NaN; want a finite number (the Swish β)
 }

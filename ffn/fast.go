@@ -1,10 +1,6 @@
 package ffn
 
-import (
-	"fmt"
-
-	"github.com/plumbref/plumb/internal/num"
-)
+import "github.com/plumbref/plumb/internal/num"
 
 // gemm is C = op(A)·op(B) + beta·C through gonum's BLAS (num.Gemm: blas64
 // for float64, blas32 for float32, so that the float32 instantiation stays
@@ -48,7 +44,7 @@ func ldw(l Layout, k, m int) int {
 // fastHidden returns, for every row, the pre-activations a (n × h), the
 // values u (n × h, gated only) and the hidden vectors (n × h), with the
 // projections as matrix products.
-func fastHidden[T num.Float](p *plan, w *Weights[T], x []T) (a, u, hv []T) {
+func fastHidden[T num.Float](p *plan, w *Weights[T], phi func(T) T, x []T) (a, u, hv []T) {
 	d, o := p.d, p.o
 	n, h := d.Rows, d.Hidden
 	a, u, hv = make([]T, n*h), make([]T, n*h), make([]T, n*h)
@@ -68,14 +64,13 @@ func fastHidden[T num.Float](p *plan, w *Weights[T], x []T) (a, u, hv []T) {
 		}
 	}
 	_, gb, _, ub := parts(p, w)
-	beta := T(o.Beta)
 	for r := range n {
 		for j := range h {
 			i := r*h + j
 			if p.gateB {
 				a[i] += gb[p.gate.bias(j)]
 			}
-			hv[i] = phi(o.Act, beta, a[i])
+			hv[i] = phi(a[i])
 			if o.Gated {
 				if p.upB {
 					u[i] += ub[p.up.bias(j)]
@@ -87,15 +82,13 @@ func fastHidden[T num.Float](p *plan, w *Weights[T], x []T) (a, u, hv []T) {
 	return a, u, hv
 }
 
-func forwardFast[T num.Float](x []T, d Dims, w *Weights[T], o Options) ([]T, error) {
-	p, err := newPlan(d, w, o)
+func forwardFast[T num.Float](fn string, x []T, d Dims, w *Weights[T], o Options) ([]T, error) {
+	p, err := prepare(fn, x, d, w, o)
 	if err != nil {
 		return nil, err
 	}
-	if len(x) != d.Rows*d.In {
-		return nil, fmt.Errorf("%w: x has %d elements, want Rows × In = %d × %d = %d", ErrShape, len(x), d.Rows, d.In, d.Rows*d.In)
-	}
-	_, _, hv := fastHidden(p, w, x)
+	phi, _ := activation(o.Act, T(o.Beta))
+	_, _, hv := fastHidden(p, w, phi, x)
 	y := make([]T, d.Rows*d.Out)
 	apply(o.Layout, d.Rows, d.Hidden, d.Out, hv, w.W2, y)
 	if len(w.B2) > 0 {
@@ -108,20 +101,15 @@ func forwardFast[T num.Float](x []T, d Dims, w *Weights[T], o Options) ([]T, err
 	return y, nil
 }
 
-func backwardFast[T num.Float](x, dy []T, d Dims, w *Weights[T], o Options) ([]T, Weights[T], error) {
+func backwardFast[T num.Float](fn string, x, dy []T, d Dims, w *Weights[T], o Options) ([]T, Weights[T], error) {
 	var g Weights[T]
-	p, err := newPlan(d, w, o)
+	p, err := prepareBackward(fn, x, dy, d, w, o)
 	if err != nil {
 		return nil, g, err
 	}
-	if len(x) != d.Rows*d.In {
-		return nil, g, fmt.Errorf("%w: x has %d elements, want Rows × In = %d × %d = %d", ErrShape, len(x), d.Rows, d.In, d.Rows*d.In)
-	}
-	if len(dy) != d.Rows*d.Out {
-		return nil, g, fmt.Errorf("%w: dy has %d elements, want Rows × Out = %d × %d = %d", ErrShape, len(dy), d.Rows, d.Out, d.Rows*d.Out)
-	}
 	n, h, l := d.Rows, d.Hidden, o.Layout
-	a, u, hv := fastHidden(p, w, x)
+	phi, deriv := activation(o.Act, T(o.Beta))
+	a, u, hv := fastHidden(p, w, phi, x)
 	g.W2, g.B2 = make([]T, len(w.W2)), make([]T, d.Out)
 	grad(l, n, h, d.Out, hv, dy, g.W2)
 	for r := range n {
@@ -131,15 +119,9 @@ func backwardFast[T num.Float](x, dy []T, d Dims, w *Weights[T], o Options) ([]T
 	}
 	dh := make([]T, n*h)
 	through(l, n, h, d.Out, dy, w.W2, 0, dh)
-	beta := T(o.Beta)
 	da, du := make([]T, n*h), make([]T, n*h)
 	for i := range dh {
-		if o.Gated {
-			da[i] = T(dh[i]*u[i]) * phiDeriv(o.Act, beta, a[i])
-			du[i] = dh[i] * phi(o.Act, beta, a[i])
-		} else {
-			da[i] = dh[i] * phiDeriv(o.Act, beta, a[i])
-		}
+		da[i], du[i] = throughAct(phi, deriv, o.Gated, dh[i], u[i], a[i])
 	}
 	colSum := func(m []T, dst []T) {
 		for r := range n {
@@ -200,14 +182,14 @@ func backwardFast[T num.Float](x, dy []T, d Dims, w *Weights[T], o Options) ([]T
 //
 // Arguments, errors and special cases are those of Forward.
 func ForwardFast(x []float64, d Dims, w Weights[float64], o Options) ([]float64, error) {
-	return forwardFast(x, d, &w, o)
+	return forwardFast("ForwardFast", x, d, &w, o)
 }
 
 // ForwardFast32 is the float32 instantiation of the same body as
 // ForwardFast (through blas32's Sgemm): the straightforward low-precision
 // implementation the compare package uses as a yardstick; not a reference.
 func ForwardFast32(x []float32, d Dims, w Weights[float32], o Options) ([]float32, error) {
-	return forwardFast(x, d, &w, o)
+	return forwardFast("ForwardFast32", x, d, &w, o)
 }
 
 // BackwardFast computes the same gradients as Backward with matrix
@@ -216,12 +198,12 @@ func ForwardFast32(x []float32, d Dims, w Weights[float32], o Options) ([]float3
 // Backward's gate sum plus value sum. Arguments, errors and special cases
 // are those of Backward.
 func BackwardFast(x, dy []float64, d Dims, w Weights[float64], o Options) (dx []float64, grad Weights[float64], err error) {
-	return backwardFast(x, dy, d, &w, o)
+	return backwardFast("BackwardFast", x, dy, d, &w, o)
 }
 
 // BackwardFast32 is the float32 instantiation of the same body as
 // BackwardFast: the straightforward low-precision implementation the
 // compare package uses as a yardstick; not a reference.
 func BackwardFast32(x, dy []float32, d Dims, w Weights[float32], o Options) (dx []float32, grad Weights[float32], err error) {
-	return backwardFast(x, dy, d, &w, o)
+	return backwardFast("BackwardFast32", x, dy, d, &w, o)
 }

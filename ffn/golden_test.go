@@ -82,6 +82,15 @@ func scalarFuncs(a Act, beta float64) (f, df func(float64) float64) {
 	return nil, nil
 }
 
+// tensor returns the tensor name of the case c, read by get (c.Float,
+// c.Ints); the test stops if it is missing or malformed.
+func tensor[V any](t *testing.T, c *golden.Case, name string, get func(string) (V, []int, error)) V {
+	t.Helper()
+	v, _, err := get(name)
+	require.NoError(t, err, "%s: tensor %s", c, name)
+	return v
+}
+
 // maxRelErr returns the largest elementwise relative error; a zero wanted
 // value must be matched by a zero.
 func maxRelErr(got, want []float64) float64 {
@@ -115,12 +124,7 @@ func TestGoldenActivations(t *testing.T) {
 			if cfg.Beta != nil {
 				beta = *cfg.Beta
 			}
-			x, _, err := c.Float("x")
-			require.NoError(t, err)
-			wantY, _, err := c.Float("y")
-			require.NoError(t, err)
-			wantD, _, err := c.Float("dydx")
-			require.NoError(t, err)
+			x, wantY, wantD := tensor(t, c, "x", c.Float), tensor(t, c, "y", c.Float), tensor(t, c, "dydx", c.Float)
 
 			y, err := Activate(x, a, beta)
 			require.NoError(t, err)
@@ -235,9 +239,7 @@ func loadLayer(t *testing.T, c *golden.Case) goldenLayer {
 		if !c.Has(name) {
 			return nil
 		}
-		v, _, err := c.Float(name)
-		require.NoError(t, err)
-		return v
+		return tensor(t, c, name, c.Float)
 	}
 	g.x, g.dy = get("x"), get("dy")
 	g.w = Weights[float64]{W1: get("w1"), B1: get("b1"), V: get("v"), C: get("c"),
@@ -268,61 +270,55 @@ func weights32(w Weights[float64]) Weights[float32] {
 		Fused: num.Convert[float32](w.Fused), FusedBias: num.Convert[float32](w.FusedBias), W2: num.Convert[float32](w.W2), B2: num.Convert[float32](w.B2)}
 }
 
+// layerOutputs runs a layer form forward and backward and returns every
+// output, widened to float64, under its golden file name.
+func layerOutputs[T num.Float](t *testing.T, fwd func([]T, Dims, Weights[T], Options) ([]T, error),
+	bwd func([]T, []T, Dims, Weights[T], Options) ([]T, Weights[T], error), x, dy []T, d Dims, w Weights[T], o Options) map[string][]float64 {
+	t.Helper()
+	y, err := fwd(x, d, w, o)
+	require.NoError(t, err)
+	dx, g, err := bwd(x, dy, d, w, o)
+	require.NoError(t, err)
+	out := map[string][]float64{"y": num.Convert[float64](y)}
+	for name, v := range gradsByName(dx, g) {
+		out[name] = num.Convert[float64](v)
+	}
+	return out
+}
+
 func testGoldenLayers(t *testing.T, family string) {
 	f := golden.MustLoadFamily(t, "ffn", family)
 	worst := map[string]float64{}
 	for _, c := range f.Cases {
 		t.Run(c.Name, func(t *testing.T) {
 			g := loadLayer(t, c)
-			y, err := Forward(g.x, g.d, g.w, g.o)
-			require.NoError(t, err)
-			dx, gr, err := Backward(g.x, g.dy, g.d, g.w, g.o)
-			require.NoError(t, err)
-			got := gradsByName(dx, gr)
-			got["y"] = y
-			require.Len(t, got, len(g.want), "outputs: got %v", mapKeys(got))
-			for name, want := range g.want {
-				e := golden.NormwiseRelErr(got[name], want)
-				assert.LessOrEqual(t, e, layerBound, golden.Describe(c, name, e, layerBound))
-				k := "forward"
-				if name != "y" {
-					k = "backward"
+			x32, dy32, w32 := num.Convert[float32](g.x), num.Convert[float32](g.dy), weights32(g.w)
+			// Every form against the same values: the float64 forms to the
+			// project's target, the float32 ones to layer32Bound.
+			forms := []struct {
+				label, worst string // in messages, and the key of its worst error
+				bound        float64
+				got          map[string][]float64
+			}{
+				{"", "", layerBound, layerOutputs(t, Forward, Backward, g.x, g.dy, g.d, g.w, g.o)},
+				{" (fast form)", "fast form", layerBound, layerOutputs(t, ForwardFast, BackwardFast, g.x, g.dy, g.d, g.w, g.o)},
+				{" (float32)", "float32", layer32Bound, layerOutputs(t, Forward32, Backward32, x32, dy32, g.d, w32, g.o)},
+				{" (float32, fast form)", "float32 fast form", layer32Bound, layerOutputs(t, ForwardFast32, BackwardFast32, x32, dy32, g.d, w32, g.o)},
+			}
+			require.Len(t, forms[0].got, len(g.want), "outputs: got %v", mapKeys(forms[0].got))
+			for _, form := range forms {
+				for name, want := range g.want {
+					e := golden.NormwiseRelErr(form.got[name], want)
+					assert.LessOrEqual(t, e, form.bound, golden.Describe(c, name+form.label, e, form.bound))
+					k := form.worst
+					switch {
+					case k == "" && name == "y":
+						k = "forward"
+					case k == "":
+						k = "backward"
+					}
+					worst[k] = max(worst[k], e)
 				}
-				worst[k] = max(worst[k], e)
-			}
-
-			// the fast form, against the same values and bound
-			yf, err := ForwardFast(g.x, g.d, g.w, g.o)
-			require.NoError(t, err)
-			dxf, grf, err := BackwardFast(g.x, g.dy, g.d, g.w, g.o)
-			require.NoError(t, err)
-			gotf := gradsByName(dxf, grf)
-			gotf["y"] = yf
-			for name, want := range g.want {
-				e := golden.NormwiseRelErr(gotf[name], want)
-				assert.LessOrEqual(t, e, layerBound, golden.Describe(c, name+" (fast form)", e, layerBound))
-				worst["fast form"] = max(worst["fast form"], e)
-			}
-
-			y32, err := Forward32(num.Convert[float32](g.x), g.d, weights32(g.w), g.o)
-			require.NoError(t, err)
-			dx32, gr32, err := Backward32(num.Convert[float32](g.x), num.Convert[float32](g.dy), g.d, weights32(g.w), g.o)
-			require.NoError(t, err)
-			got32 := gradsByName(dx32, gr32)
-			got32["y"] = y32
-			yf32, err := ForwardFast32(num.Convert[float32](g.x), g.d, weights32(g.w), g.o)
-			require.NoError(t, err)
-			dxf32, grf32, err := BackwardFast32(num.Convert[float32](g.x), num.Convert[float32](g.dy), g.d, weights32(g.w), g.o)
-			require.NoError(t, err)
-			gotf32 := gradsByName(dxf32, grf32)
-			gotf32["y"] = yf32
-			for name, want := range g.want {
-				e := golden.NormwiseRelErr(num.Convert[float64](got32[name]), want)
-				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32)", e, layer32Bound))
-				worst["float32"] = max(worst["float32"], e)
-				e = golden.NormwiseRelErr(num.Convert[float64](gotf32[name]), want)
-				assert.LessOrEqual(t, e, layer32Bound, golden.Describe(c, name+" (float32, fast form)", e, layer32Bound))
-				worst["float32 fast form"] = max(worst["float32 fast form"], e)
 			}
 		})
 	}
@@ -367,12 +363,7 @@ func TestGoldenWords(t *testing.T) {
 func TestGoldenHiddenSize(t *testing.T) {
 	f := golden.MustLoadFamily(t, "ffn", "hidden_size")
 	for _, c := range f.Cases {
-		d, _, err := c.Ints("d")
-		require.NoError(t, err)
-		m, _, err := c.Ints("m")
-		require.NoError(t, err)
-		want, _, err := c.Ints("hidden")
-		require.NoError(t, err)
+		d, m, want := tensor(t, c, "d", c.Ints), tensor(t, c, "m", c.Ints), tensor(t, c, "hidden", c.Ints)
 		h, err := HiddenSize(int(d[0]), int(m[0]))
 		require.NoError(t, err, c.String())
 		assert.Equal(t, int(want[0]), h, c.String())

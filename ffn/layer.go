@@ -1,49 +1,33 @@
 package ffn
 
-import (
-	"fmt"
+import "github.com/plumbref/plumb/internal/num"
 
-	"github.com/plumbref/plumb/internal/num"
-)
-
-// phi and phiDeriv dispatch on the activation; beta is read only by Swish.
-func phi[T num.Float](a Act, beta, x T) T {
+// activation returns φ and φ′ of the activation a; beta is read only by
+// Swish. The identity's derivative is 1 (NaN at NaN).
+func activation[T num.Float](a Act, beta T) (phi, deriv func(T) T) {
 	switch a {
 	case ActReLU:
-		return relu(x)
+		return relu[T], reluDeriv[T]
 	case ActGELU:
-		return gelu(x)
+		return gelu[T], geluDeriv[T]
 	case ActGELUTanh:
-		return geluTanh(x)
+		return geluTanh[T], geluTanhDeriv[T]
 	case ActGELUSigmoid:
-		return geluSigmoid(x)
+		return geluSigmoid[T], geluSigmoidDeriv[T]
 	case ActSigmoid:
-		return sigmoid(x)
+		return sigmoid[T], sigmoidDeriv[T]
 	case ActSiLU:
-		return swish(x, 1)
+		beta = 1
+		fallthrough
 	case ActSwish:
-		return swish(x, beta)
+		return func(x T) T { return swish(x, beta) }, func(x T) T { return swishDeriv(x, beta) }
 	}
-	return x
+	return identity[T], identityDeriv[T]
 }
 
-func phiDeriv[T num.Float](a Act, beta, x T) T {
-	switch a {
-	case ActReLU:
-		return reluDeriv(x)
-	case ActGELU:
-		return geluDeriv(x)
-	case ActGELUTanh:
-		return geluTanhDeriv(x)
-	case ActGELUSigmoid:
-		return geluSigmoidDeriv(x)
-	case ActSigmoid:
-		return sigmoidDeriv(x)
-	case ActSiLU:
-		return swishDeriv(x, 1)
-	case ActSwish:
-		return swishDeriv(x, beta)
-	}
+func identity[T num.Float](x T) T { return x }
+
+func identityDeriv[T num.Float](x T) T {
 	if x != x {
 		return x
 	}
@@ -74,12 +58,11 @@ func project[T num.Float](x, w, b []T, v view, j int, hasBias bool) T {
 // hiddenRow fills, for one input row x, the pre-activations a (plain: xW₁ +
 // b₁; gated: the gate xW + b), the values u (gated only: xV + c) and the
 // hidden vector h = φ(a) or φ(a)·u.
-func hiddenRow[T num.Float](p *plan, w *Weights[T], x, a, u, h []T) {
+func hiddenRow[T num.Float](p *plan, w *Weights[T], phi func(T) T, x, a, u, h []T) {
 	gw, gb, uw, ub := parts(p, w)
-	beta := T(p.o.Beta)
 	for j := range h {
 		a[j] = project(x, gw, gb, p.gate, j, p.gateB)
-		h[j] = phi(p.o.Act, beta, a[j])
+		h[j] = phi(a[j])
 		if p.o.Gated {
 			u[j] = project(x, uw, ub, p.up, j, p.upB)
 			h[j] *= u[j]
@@ -87,18 +70,29 @@ func hiddenRow[T num.Float](p *plan, w *Weights[T], x, a, u, h []T) {
 	}
 }
 
-func forward[T num.Float](x []T, d Dims, w *Weights[T], o Options) ([]T, error) {
-	p, err := newPlan(d, w, o)
+// throughAct returns the gradient da with respect to the pre-activation a
+// and, for a gated unit, du with respect to the value u, given dh with
+// respect to the hidden value φ(a) (or φ(a)·u):
+//
+//	plain:  da = dh·φ′(a)
+//	gated:  da = (dh·u)·φ′(a),  du = dh·φ(a)
+func throughAct[T num.Float](phi, deriv func(T) T, gated bool, dh, u, a T) (da, du T) {
+	if gated {
+		return T(dh*u) * deriv(a), dh * phi(a)
+	}
+	return dh * deriv(a), 0
+}
+
+func forward[T num.Float](fn string, x []T, d Dims, w *Weights[T], o Options) ([]T, error) {
+	p, err := prepare(fn, x, d, w, o)
 	if err != nil {
 		return nil, err
 	}
-	if len(x) != d.Rows*d.In {
-		return nil, fmt.Errorf("%w: x has %d elements, want Rows × In = %d × %d = %d", ErrShape, len(x), d.Rows, d.In, d.Rows*d.In)
-	}
+	phi, _ := activation(o.Act, T(o.Beta))
 	y := make([]T, d.Rows*d.Out)
 	a, u, h := make([]T, d.Hidden), make([]T, d.Hidden), make([]T, d.Hidden)
 	for r := range d.Rows {
-		hiddenRow(p, w, x[r*d.In:(r+1)*d.In], a, u, h)
+		hiddenRow(p, w, phi, x[r*d.In:(r+1)*d.In], a, u, h)
 		yr := y[r*d.Out : (r+1)*d.Out]
 		for k := range yr {
 			yr[k] = project(h, w.W2, w.B2, p.down, k, len(w.B2) > 0)
@@ -119,17 +113,11 @@ func forward[T num.Float](x []T, d Dims, w *Weights[T], o Options) ([]T, error) 
 //
 // Sums over a row run in ascending index order; gradients of parameters
 // accumulate over rows in ascending row order.
-func backward[T num.Float](x, dy []T, d Dims, w *Weights[T], o Options) ([]T, Weights[T], error) {
+func backward[T num.Float](fn string, x, dy []T, d Dims, w *Weights[T], o Options) ([]T, Weights[T], error) {
 	var g Weights[T]
-	p, err := newPlan(d, w, o)
+	p, err := prepareBackward(fn, x, dy, d, w, o)
 	if err != nil {
 		return nil, g, err
-	}
-	if len(x) != d.Rows*d.In {
-		return nil, g, fmt.Errorf("%w: x has %d elements, want Rows × In = %d × %d = %d", ErrShape, len(x), d.Rows, d.In, d.Rows*d.In)
-	}
-	if len(dy) != d.Rows*d.Out {
-		return nil, g, fmt.Errorf("%w: dy has %d elements, want Rows × Out = %d × %d = %d", ErrShape, len(dy), d.Rows, d.Out, d.Rows*d.Out)
 	}
 	h := d.Hidden
 	g.W2, g.B2 = make([]T, len(w.W2)), make([]T, d.Out)
@@ -143,14 +131,14 @@ func backward[T num.Float](x, dy []T, d Dims, w *Weights[T], o Options) ([]T, We
 	}
 	gw, _, uw, _ := parts(p, w)
 	dgw, dgb, duw, dub := parts(p, &g)
-	beta := T(o.Beta)
+	phi, deriv := activation(o.Act, T(o.Beta))
 	dx := make([]T, d.Rows*d.In)
 	a, u, hv := make([]T, h), make([]T, h), make([]T, h)
 	da, du := make([]T, h), make([]T, h)
 	for r := range d.Rows {
 		xr := x[r*d.In : (r+1)*d.In]
 		dyr := dy[r*d.Out : (r+1)*d.Out]
-		hiddenRow(p, w, xr, a, u, hv)
+		hiddenRow(p, w, phi, xr, a, u, hv)
 		for k, dk := range dyr {
 			g.B2[k] += dk
 		}
@@ -161,12 +149,7 @@ func backward[T num.Float](x, dy []T, d Dims, w *Weights[T], o Options) ([]T, We
 				g.W2[at] += T(hv[j] * dk)
 				dh = T(w.W2[at]*dk) + dh
 			}
-			if o.Gated {
-				da[j] = T(dh*u[j]) * phiDeriv(o.Act, beta, a[j])
-				du[j] = dh * phi(o.Act, beta, a[j])
-			} else {
-				da[j] = dh * phiDeriv(o.Act, beta, a[j])
-			}
+			da[j], du[j] = throughAct(phi, deriv, o.Gated, dh, u[j], a[j])
 			dgb[p.gate.bias(j)] += da[j]
 			if o.Gated {
 				dub[p.up.bias(j)] += du[j]

@@ -3,6 +3,8 @@ package ffn
 import (
 	"fmt"
 	"math"
+	"strconv"
+	"strings"
 
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/vocab"
@@ -230,164 +232,259 @@ type plan struct {
 
 func maxMul(a, b int) bool { return b != 0 && a > math.MaxInt/b }
 
-func checkDims(d Dims) error {
+// product names an element count by its formula in the sizes of Dims, the
+// sizes, and their product: "In·Hidden = 3·4 = 12" (one factor: "Out = 5").
+func product(formula string, factors ...int) string {
+	n := 1
+	s := make([]string, len(factors))
+	for i, f := range factors {
+		n *= f
+		s[i] = strconv.Itoa(f)
+	}
+	if len(factors) == 1 {
+		return fmt.Sprintf("%s = %d", formula, n)
+	}
+	return fmt.Sprintf("%s = %s = %d", formula, strings.Join(s, "·"), n)
+}
+
+func checkDims(fn string, d Dims) error {
 	switch {
 	case d.Rows < 0:
-		return fmt.Errorf("%w: Dims.Rows is %d, want ≥ 0", ErrShape, d.Rows)
+		return fmt.Errorf("%w: %s: Dims.Rows = %d; want ≥ 0", ErrShape, fn, d.Rows)
 	case d.In < 1:
-		return fmt.Errorf("%w: Dims.In is %d, want ≥ 1", ErrShape, d.In)
+		return fmt.Errorf("%w: %s: Dims.In = %d; want ≥ 1", ErrShape, fn, d.In)
 	case d.Hidden < 1:
-		return fmt.Errorf("%w: Dims.Hidden is %d, want ≥ 1", ErrShape, d.Hidden)
+		return fmt.Errorf("%w: %s: Dims.Hidden = %d; want ≥ 1", ErrShape, fn, d.Hidden)
 	case d.Out < 1:
-		return fmt.Errorf("%w: Dims.Out is %d, want ≥ 1", ErrShape, d.Out)
+		return fmt.Errorf("%w: %s: Dims.Out = %d; want ≥ 1", ErrShape, fn, d.Out)
 	case d.Hidden > math.MaxInt/2 || maxMul(d.Rows, d.In) || maxMul(d.Rows, d.Out) ||
 		maxMul(d.In, 2*d.Hidden) || maxMul(d.Hidden, d.Out) || maxMul(d.Rows, 2*d.Hidden):
-		return fmt.Errorf("%w: Dims %+v: element counts overflow int", ErrShape, d)
+		return fmt.Errorf("%w: %s: Dims = %+v; want sizes whose element counts fit an int", ErrShape, fn, d)
 	}
 	return nil
 }
 
-func checkActBeta(a Act, beta float64) error {
-	if err := a.Check(); err != nil {
+// checkActBeta checks the activation a and Swish's β, which the caller of
+// fn passed as act and beta ("Options.Act" and "Options.Beta").
+func checkActBeta(fn, act, beta string, a Act, b float64) error {
+	if err := actWords.CheckAt(fn+": "+act, a); err != nil {
 		return err
 	}
 	if a == ActSwish {
-		if math.IsNaN(beta) || math.IsInf(beta, 0) {
-			return fmt.Errorf("%w: Swish β is %v, want a finite number", ErrBeta, beta)
+		if math.IsNaN(b) || math.IsInf(b, 0) {
+			return fmt.Errorf("%w: %s: %s = %v; want a finite number (the Swish β)", ErrBeta, fn, beta, b)
 		}
 		return nil
 	}
-	if beta != 0 {
-		return fmt.Errorf("%w: β is %v but activation %v has no β (only ActSwish takes one; leave it 0)", ErrBeta, beta, a)
+	if b != 0 {
+		return fmt.Errorf("%w: %s: %s = %v; want 0: activation %v has no β (only swish takes one)", ErrBeta, fn, beta, b, a)
 	}
 	return nil
 }
 
-// matrix checks that a matrix parameter holds in·units elements. A length
-// that is a multiple of in but of another width names the width it implies
-// (ErrHidden when that width is the hidden size).
-func matrix(name string, n, in, units, hiddenPer int, isHidden bool) error {
-	if n == in*units {
-		return nil
-	}
-	if n == 0 {
-		return fmt.Errorf("%w: %s is missing, want %d × %d = %d elements", ErrWeightLen, name, in, units, in*units)
-	}
-	if isHidden && n%in == 0 && (n/in)%hiddenPer == 0 {
-		return fmt.Errorf("%w: %s has %d elements = %d × %d, implying hidden size %d; Dims.Hidden is %d",
-			ErrHidden, name, n, in, n/in, n/in/hiddenPer, units/hiddenPer)
-	}
-	return fmt.Errorf("%w: %s has %d elements, want %d × %d = %d", ErrWeightLen, name, n, in, units, in*units)
+// lengths are the lengths of a Weights' slices: all newPlan needs of them.
+type lengths struct {
+	W1, B1, V, C, Fused, FusedBias, W2, B2 int
 }
 
-func vector(name string, n, want int, isHidden bool) error {
+func lengthsOf[T num.Float](w *Weights[T]) lengths {
+	return lengths{len(w.W1), len(w.B1), len(w.V), len(w.C), len(w.Fused), len(w.FusedBias), len(w.W2), len(w.B2)}
+}
+
+// hiddenMatrix is a weight matrix one side of which is per·Hidden units and
+// the other fixed units: In (W1, V, Fused) or Out (W2, hiddenFirst).
+type hiddenMatrix struct {
+	name        string // the Weights field, as messages name it: "W1"
+	fixed       int    // the size of the other side
+	fixedName   string // its name in Dims: "In" or "Out"
+	per         int    // units per hidden unit: 2 for a fused gate and value
+	hiddenFirst bool   // stored Hidden × Out, as W2
+}
+
+// want is the element count for hidden size h, as a formula with its
+// values: "In·2·Hidden = 3·2·4 = 24".
+func (m hiddenMatrix) want(h int) string {
+	hidden, factors := "Hidden", []int{h}
+	if m.per != 1 {
+		hidden, factors = strconv.Itoa(m.per)+"·Hidden", []int{m.per, h}
+	}
+	if m.hiddenFirst {
+		return product(hidden+"·"+m.fixedName, append(factors, m.fixed)...)
+	}
+	return product(m.fixedName+"·"+hidden, append([]int{m.fixed}, factors...)...)
+}
+
+// check checks that the matrix holds n elements for hidden size h. A
+// length that fits the fixed side but another hidden size names the hidden
+// size it implies (ErrHidden).
+func (m hiddenMatrix) check(fn string, n, h int) error {
+	unit := m.fixed * m.per
+	if n == unit*h {
+		return nil
+	}
+	if n > 0 && n%unit == 0 {
+		return fmt.Errorf("%w: %s: Weights.%s has %d elements, implying hidden size %d; want Dims.Hidden = %d, %s elements",
+			ErrHidden, fn, m.name, n, n/unit, h, m.want(h))
+	}
+	return fmt.Errorf("%w: %s: Weights.%s has %d elements; want %s", ErrWeightLen, fn, m.name, n, m.want(h))
+}
+
+// checkBias checks a bias of n elements that must hold want (formula and
+// value, "Hidden = 4") or none; sentinel is the error of another length.
+func checkBias(fn, name string, n, want int, formula string, sentinel error) error {
 	if n == 0 || n == want {
 		return nil
 	}
-	if isHidden {
-		return fmt.Errorf("%w: %s has %d elements, Dims.Hidden is %d", ErrHidden, name, n, want)
-	}
-	return fmt.Errorf("%w: %s has %d elements, want %d", ErrWeightLen, name, n, want)
+	return fmt.Errorf("%w: %s: Weights.%s has %d elements; want %s, or 0 for no bias", sentinel, fn, name, n, formula)
 }
 
-func unused(name string, n int, why string) error {
-	if n == 0 {
-		return nil
+// unused checks that the named slices are not given: why says why not.
+func unused(fn, why string, names []string, ns ...int) error {
+	for i, n := range ns {
+		if n != 0 {
+			return fmt.Errorf("%w: %s: Weights.%s has %d elements; want 0: %s", ErrWeightLen, fn, names[i], n, why)
+		}
 	}
-	return fmt.Errorf("%w: %s is set (%d elements) but %s", ErrWeightLen, name, n, why)
+	return nil
 }
 
-// newPlan validates everything except the input lengths.
-func newPlan[T num.Float](d Dims, w *Weights[T], o Options) (*plan, error) {
-	if err := checkDims(d); err != nil {
+// newPlan validates everything of a call to fn except the input lengths.
+func newPlan[T num.Float](fn string, d Dims, w *Weights[T], o Options) (*plan, error) {
+	if err := checkDims(fn, d); err != nil {
 		return nil, err
 	}
-	if err := checkActBeta(o.Act, o.Beta); err != nil {
+	if err := checkActBeta(fn, "Options.Act", "Options.Beta", o.Act, o.Beta); err != nil {
 		return nil, err
 	}
-	if err := o.Layout.Check(); err != nil {
+	if err := layoutWords.CheckAt(fn+": Options.Layout", o.Layout); err != nil {
 		return nil, err
 	}
-	p := &plan{d: d, o: o}
-	p.down = view{in: d.Hidden, cols: d.Out, layout: o.Layout, stride: 1}
-	// W2 is Hidden × Out: its "in" side is the hidden size.
-	if len(w.W2) != d.Hidden*d.Out {
-		if len(w.W2) > 0 && len(w.W2)%d.Out == 0 {
-			return nil, fmt.Errorf("%w: W2 has %d elements = %d × %d, implying hidden size %d; Dims.Hidden is %d",
-				ErrHidden, len(w.W2), len(w.W2)/d.Out, d.Out, len(w.W2)/d.Out, d.Hidden)
-		}
-		if err := matrix("W2", len(w.W2), d.Hidden, d.Out, 1, false); err != nil {
-			return nil, err
-		}
-	}
-	if err := vector("B2", len(w.B2), d.Out, false); err != nil {
+	n := lengthsOf(w)
+	if err := checkDown(fn, d, n); err != nil {
 		return nil, err
 	}
-	h := d.Hidden
-	if !o.Gated {
-		for _, u := range []struct {
-			name string
-			n    int
-		}{{"V", len(w.V)}, {"C", len(w.C)}, {"Fused", len(w.Fused)}, {"FusedBias", len(w.FusedBias)}} {
-			if err := unused(u.name, u.n, "the layer is not gated (Options.Gated is false)"); err != nil {
-				return nil, err
-			}
-		}
-		if err := matrix("W1", len(w.W1), d.In, h, 1, true); err != nil {
-			return nil, err
-		}
-		if err := vector("B1", len(w.B1), h, true); err != nil {
-			return nil, err
-		}
-		p.gate = view{in: d.In, cols: h, layout: o.Layout, stride: 1}
-		p.gateB = len(w.B1) > 0
-		return p, nil
+	p := &plan{d: d, o: o, down: view{in: d.Hidden, cols: d.Out, layout: o.Layout, stride: 1}}
+	var err error
+	switch {
+	case !o.Gated:
+		err = p.plain(fn, n)
+	case n.Fused > 0 || n.FusedBias > 0:
+		err = p.fusedGate(fn, n)
+	default:
+		err = p.separateGate(fn, n)
 	}
-	if len(w.Fused) > 0 || len(w.FusedBias) > 0 {
-		for _, u := range []struct {
-			name string
-			n    int
-		}{{"W1", len(w.W1)}, {"B1", len(w.B1)}, {"V", len(w.V)}, {"C", len(w.C)}} {
-			if err := unused(u.name, u.n, "the fused weight is given; use either W1, B1, V, C or Fused, FusedBias"); err != nil {
-				return nil, err
-			}
-		}
-		if err := matrix("Fused", len(w.Fused), d.In, 2*h, 2, true); err != nil {
-			return nil, err
-		}
-		if len(w.FusedBias) != 0 && len(w.FusedBias) != 2*h {
-			return nil, fmt.Errorf("%w: FusedBias has %d elements, want 2 × Dims.Hidden = %d", ErrHidden, len(w.FusedBias), 2*h)
-		}
-		p.fused = true
-		p.gateB = len(w.FusedBias) > 0
-		p.upB = p.gateB
-		if err := o.Packing.Check(); err != nil {
-			return nil, err
-		}
-		fv := view{in: d.In, cols: 2 * h, layout: o.Layout}
-		p.gate, p.up = fv, fv
-		if o.Packing == GateUpStacked {
-			p.gate.stride, p.up.stride, p.up.off = 1, 1, h
-		} else {
-			p.gate.stride, p.up.stride, p.up.off = 2, 2, 1
-		}
-		return p, nil
-	}
-	if err := matrix("W1 (gate)", len(w.W1), d.In, h, 1, true); err != nil {
+	if err != nil {
 		return nil, err
 	}
-	if err := matrix("V", len(w.V), d.In, h, 1, true); err != nil {
-		return nil, err
+	return p, nil
+}
+
+// checkDown checks the down projection W₂ (Hidden × Out) and its bias b₂.
+func checkDown(fn string, d Dims, n lengths) error {
+	w2 := hiddenMatrix{name: "W2", fixed: d.Out, fixedName: "Out", per: 1, hiddenFirst: true}
+	if err := w2.check(fn, n.W2, d.Hidden); err != nil {
+		return err
 	}
-	if err := vector("B1 (gate bias)", len(w.B1), h, true); err != nil {
-		return nil, err
+	return checkBias(fn, "B2", n.B2, d.Out, product("Out", d.Out), ErrWeightLen)
+}
+
+// plain plans a layer that is not gated: W₁ and b₁, and nothing of a gated
+// unit.
+func (p *plan) plain(fn string, n lengths) error {
+	d, h := p.d, p.d.Hidden
+	if err := unused(fn, "the layer is not gated (Options.Gated is false)",
+		[]string{"V", "C", "Fused", "FusedBias"}, n.V, n.C, n.Fused, n.FusedBias); err != nil {
+		return err
 	}
-	if err := vector("C", len(w.C), h, true); err != nil {
-		return nil, err
+	if err := (hiddenMatrix{name: "W1", fixed: d.In, fixedName: "In", per: 1}).check(fn, n.W1, h); err != nil {
+		return err
 	}
-	p.gate = view{in: d.In, cols: h, layout: o.Layout, stride: 1}
+	if err := checkBias(fn, "B1", n.B1, h, product("Hidden", h), ErrHidden); err != nil {
+		return err
+	}
+	p.gate = view{in: d.In, cols: h, layout: p.o.Layout, stride: 1}
+	p.gateB = n.B1 > 0
+	return nil
+}
+
+// fusedGate plans a gated unit whose gate and value projections are one
+// matrix Fused of 2·Hidden units, packed as Options.Packing says.
+func (p *plan) fusedGate(fn string, n lengths) error {
+	d, h := p.d, p.d.Hidden
+	if err := unused(fn, "Weights.Fused is given; use either W1, B1, V, C or Fused, FusedBias",
+		[]string{"W1", "B1", "V", "C"}, n.W1, n.B1, n.V, n.C); err != nil {
+		return err
+	}
+	if err := (hiddenMatrix{name: "Fused", fixed: d.In, fixedName: "In", per: 2}).check(fn, n.Fused, h); err != nil {
+		return err
+	}
+	if err := checkBias(fn, "FusedBias", n.FusedBias, 2*h, product("2·Hidden", 2, h), ErrHidden); err != nil {
+		return err
+	}
+	p.fused = true
+	p.gateB = n.FusedBias > 0
+	p.upB = p.gateB
+	if err := packingWords.CheckAt(fn+": Options.Packing", p.o.Packing); err != nil {
+		return err
+	}
+	fv := view{in: d.In, cols: 2 * h, layout: p.o.Layout}
+	p.gate, p.up = fv, fv
+	if p.o.Packing == GateUpStacked {
+		p.gate.stride, p.up.stride, p.up.off = 1, 1, h
+	} else {
+		p.gate.stride, p.up.stride, p.up.off = 2, 2, 1
+	}
+	return nil
+}
+
+// separateGate plans a gated unit with separate gate (W1, B1) and value
+// (V, C) projections.
+func (p *plan) separateGate(fn string, n lengths) error {
+	d, h := p.d, p.d.Hidden
+	for _, m := range []struct {
+		name string
+		n    int
+	}{{"W1 (gate)", n.W1}, {"V", n.V}} {
+		if err := (hiddenMatrix{name: m.name, fixed: d.In, fixedName: "In", per: 1}).check(fn, m.n, h); err != nil {
+			return err
+		}
+	}
+	for _, b := range []struct {
+		name string
+		n    int
+	}{{"B1 (gate bias)", n.B1}, {"C", n.C}} {
+		if err := checkBias(fn, b.name, b.n, h, product("Hidden", h), ErrHidden); err != nil {
+			return err
+		}
+	}
+	p.gate = view{in: d.In, cols: h, layout: p.o.Layout, stride: 1}
 	p.up = p.gate
-	p.gateB, p.upB = len(w.B1) > 0, len(w.C) > 0
+	p.gateB, p.upB = n.B1 > 0, n.C > 0
+	return nil
+}
+
+// prepare validates a call to fn: the plan, then the length of x.
+func prepare[T num.Float](fn string, x []T, d Dims, w *Weights[T], o Options) (*plan, error) {
+	p, err := newPlan(fn, d, w, o)
+	if err != nil {
+		return nil, err
+	}
+	if len(x) != d.Rows*d.In {
+		return nil, fmt.Errorf("%w: %s: x has %d elements; want %s", ErrShape, fn, len(x), product("Rows·In", d.Rows, d.In))
+	}
+	return p, nil
+}
+
+// prepareBackward is prepare for a backward pass, which also checks the
+// length of dy.
+func prepareBackward[T num.Float](fn string, x, dy []T, d Dims, w *Weights[T], o Options) (*plan, error) {
+	p, err := prepare(fn, x, d, w, o)
+	if err != nil {
+		return nil, err
+	}
+	if len(dy) != d.Rows*d.Out {
+		return nil, fmt.Errorf("%w: %s: dy has %d elements; want %s", ErrShape, fn, len(dy), product("Rows·Out", d.Rows, d.Out))
+	}
 	return p, nil
 }
 

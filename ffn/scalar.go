@@ -1,9 +1,8 @@
 package ffn
 
-// The scalar activations and their derivatives. Each float64 function is
-// the reference; each …32 function is the float32 instantiation of the
-// same generic body: the straightforward low-precision implementation the
-// compare package uses as a yardstick; not a reference.
+// The scalar activations and their derivatives, the float64 reference. They
+// are float64 only; their float32 instantiations are the vector forms
+// Activate32 and ActivateGrad32, which run the same generic bodies.
 
 // ReLU returns the rectified linear unit max(0, x) (Nair & Hinton 2010,
 // "Rectified Linear Units Improve Restricted Boltzmann Machines"; the
@@ -18,9 +17,6 @@ package ffn
 // The result is exact.
 func ReLU(x float64) float64 { return relu(x) }
 
-// ReLU32 is the float32 instantiation of ReLU's body; see the note above.
-func ReLU32(x float32) float32 { return relu(x) }
-
 // ReLUDeriv returns the derivative of ReLU: 1 for x > 0, 0 for x < 0. At
 // x = 0, where ReLU has no derivative, it returns 0, the convention of
 // taking the indicator of x > 0 [common practice]; 1 or ½ are the other
@@ -32,9 +28,6 @@ func ReLU32(x float32) float32 { return relu(x) }
 //	ReLUDeriv(±Inf) = 1, 0
 //	ReLUDeriv(NaN) = NaN
 func ReLUDeriv(x float64) float64 { return reluDeriv(x) }
-
-// ReLUDeriv32 is the float32 instantiation of ReLUDeriv's body.
-func ReLUDeriv32(x float32) float32 { return reluDeriv(x) }
 
 // Sigmoid returns the logistic function σ(x) = 1/(1 + e^{−x}).
 //
@@ -54,9 +47,6 @@ func ReLUDeriv32(x float32) float32 { return reluDeriv(x) }
 // relative to each value for 5 ≤ |x| ≤ 30.
 func Sigmoid(x float64) float64 { return sigmoid(x) }
 
-// Sigmoid32 is the float32 instantiation of Sigmoid's body.
-func Sigmoid32(x float32) float32 { return sigmoid(x) }
-
 // SigmoidDeriv returns σ′(x) = σ(x)·σ(−x), computed in that form rather
 // than as σ(x)·(1 − σ(x)), which loses 1 − σ(x) to cancellation for large
 // x.
@@ -70,9 +60,6 @@ func Sigmoid32(x float32) float32 { return sigmoid(x) }
 // 9.4e-17 over |x| ≤ 8 (with tiny and signed-zero inputs), and at most 2.9e-16
 // relative to each value for 5 ≤ |x| ≤ 30.
 func SigmoidDeriv(x float64) float64 { return sigmoidDeriv(x) }
-
-// SigmoidDeriv32 is the float32 instantiation of SigmoidDeriv's body.
-func SigmoidDeriv32(x float32) float32 { return sigmoidDeriv(x) }
 
 // Swish returns x·σ(βx) (Ramachandran et al. 2017, "Searching for
 // Activation Functions", arXiv 1710.05941). β = 1 is SiLU; β = 0 gives
@@ -97,9 +84,6 @@ func SigmoidDeriv32(x float32) float32 { return sigmoidDeriv(x) }
 // relative to each value for 5 ≤ |βx| ≤ 30 (β = 1, 1.5, 0.25, −0.7).
 func Swish(x, beta float64) float64 { return swish(x, beta) }
 
-// Swish32 is the float32 instantiation of Swish's body.
-func Swish32(x, beta float32) float32 { return swish(x, beta) }
-
 // SwishDeriv returns d/dx x·σ(βx) = σ(βx)·(1 + βx·σ(−βx)).
 //
 // The derivative has a zero at βx ≈ −1.27846 [mpmath] (where
@@ -117,24 +101,15 @@ func Swish32(x, beta float32) float32 { return swish(x, beta) }
 // relative to each value for 5 ≤ |βx| ≤ 30 (β = 1, 1.5, 0.25, −0.7).
 func SwishDeriv(x, beta float64) float64 { return swishDeriv(x, beta) }
 
-// SwishDeriv32 is the float32 instantiation of SwishDeriv's body.
-func SwishDeriv32(x, beta float32) float32 { return swishDeriv(x, beta) }
-
 // SiLU returns the sigmoid-weighted linear unit x·σ(x) (Elfwing et al.
 // 2018, "Sigmoid-Weighted Linear Units for Neural Network Function
 // Approximation in Reinforcement Learning", arXiv 1702.03118):
 // Swish with β = 1. Special cases and accuracy are those of Swish.
 func SiLU(x float64) float64 { return swish(x, 1) }
 
-// SiLU32 is the float32 instantiation of SiLU's body.
-func SiLU32(x float32) float32 { return swish(x, 1) }
-
 // SiLUDeriv returns σ(x)·(1 + x·σ(−x)), the derivative of SiLU; see
 // SwishDeriv.
 func SiLUDeriv(x float64) float64 { return swishDeriv(x, 1) }
-
-// SiLUDeriv32 is the float32 instantiation of SiLUDeriv's body.
-func SiLUDeriv32(x float32) float32 { return swishDeriv(x, 1) }
 
 // GELU returns the Gaussian error linear unit x·Φ(x), Φ the standard
 // normal distribution function, in its exact form (Hendrycks & Gimpel 2016,
@@ -162,9 +137,6 @@ func SiLUDeriv32(x float32) float32 { return swishDeriv(x, 1) }
 // relative to each value for 5 ≤ |x| ≤ 30.
 func GELU(x float64) float64 { return gelu(x) }
 
-// GELU32 is the float32 instantiation of GELU's body.
-func GELU32(x float32) float32 { return gelu(x) }
-
 // GELUDeriv returns the derivative of the exact GELU,
 //
 //	Φ(x) + x·φ(x),   φ(x) = e^{−x²/2}/√(2π),
@@ -184,9 +156,6 @@ func GELU32(x float32) float32 { return gelu(x) }
 // The derivative has a zero at x ≈ −0.75179 [mpmath]; near it the error
 // is small in absolute terms only.
 func GELUDeriv(x float64) float64 { return geluDeriv(x) }
-
-// GELUDeriv32 is the float32 instantiation of GELUDeriv's body.
-func GELUDeriv32(x float32) float32 { return geluDeriv(x) }
 
 // GELUTanh returns the tanh approximation of GELU (Hendrycks & Gimpel
 // 2016, arXiv 1606.08415, §2):
@@ -211,9 +180,6 @@ func GELUDeriv32(x float32) float32 { return geluDeriv(x) }
 // value underflows, the result is the correctly signed zero).
 func GELUTanh(x float64) float64 { return geluTanh(x) }
 
-// GELUTanh32 is the float32 instantiation of GELUTanh's body.
-func GELUTanh32(x float32) float32 { return geluTanh(x) }
-
 // GELUTanhDeriv returns the derivative of GELUTanh,
 //
 //	σ(2u)·(1 + x·σ(−2u)·2u′),   2u′ = 2·√(2/π)·(1 + 3·0.044715·x²).
@@ -228,9 +194,6 @@ func GELUTanh32(x float32) float32 { return geluTanh(x) }
 // 9.1e-17 over |x| ≤ 8 (with tiny and signed-zero inputs), and at most 2.2e-16
 // relative to each value for 5 ≤ |x| ≤ 30.
 func GELUTanhDeriv(x float64) float64 { return geluTanhDeriv(x) }
-
-// GELUTanhDeriv32 is the float32 instantiation of GELUTanhDeriv's body.
-func GELUTanhDeriv32(x float32) float32 { return geluTanhDeriv(x) }
 
 // GELUSigmoid returns the sigmoid approximation of GELU, x·σ(1.702x)
 // (Hendrycks & Gimpel 2016, arXiv 1606.08415, §2), with 1.702 exactly as
@@ -247,9 +210,6 @@ func GELUTanhDeriv32(x float32) float32 { return geluTanhDeriv(x) }
 // relative to each value for 5 ≤ |x| ≤ 30.
 func GELUSigmoid(x float64) float64 { return geluSigmoid(x) }
 
-// GELUSigmoid32 is the float32 instantiation of GELUSigmoid's body.
-func GELUSigmoid32(x float32) float32 { return geluSigmoid(x) }
-
 // GELUSigmoidDeriv returns the derivative of GELUSigmoid,
 // σ(t)·(1 + t·σ(−t)) with t = 1.702x.
 //
@@ -263,6 +223,3 @@ func GELUSigmoid32(x float32) float32 { return geluSigmoid(x) }
 // 1.1e-16 over |x| ≤ 8 (with tiny and signed-zero inputs), and at most 4.1e-16
 // relative to each value for 5 ≤ |x| ≤ 30.
 func GELUSigmoidDeriv(x float64) float64 { return geluSigmoidDeriv(x) }
-
-// GELUSigmoidDeriv32 is the float32 instantiation of GELUSigmoidDeriv's body.
-func GELUSigmoidDeriv32(x float32) float32 { return geluSigmoidDeriv(x) }

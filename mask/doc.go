@@ -44,9 +44,10 @@
 //	query outside the keys ErrOffset, for masks that use positions
 //	NaN or +Inf fill       ErrFill
 //
-// Every error wraps one of the package's sentinel errors (ErrSize,
-// ErrOffset, …) and names the argument and its value. No function panics
-// on its arguments.
+// Every error wraps exactly one of the package's sentinel errors (ErrSize,
+// ErrOffset, …) and names the function called, the argument, its value and
+// what was wanted ("mask: invalid window: Window: n = 0; want ≥ 1: …"). No
+// function panics on its arguments.
 //
 // Masks are checked against golden files made by an independent generator
 // (testdata/gen/fam_mask.py) from the rules above.

@@ -8,8 +8,13 @@ import (
 )
 
 // show prints batch entry 0 of a mask on g as a grid: one line per query,
-// '#' where the key is visible and '.' where it is not.
-func show(m mask.Mask, g mask.Geometry) {
+// '#' where the key is visible and '.' where it is not; or err, the error
+// of the constructor that made m, when there is one.
+func show(m mask.Mask, err error, g mask.Geometry) {
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
 	v, err := m.Visible(g)
 	if err != nil {
 		fmt.Println(err)
@@ -29,14 +34,14 @@ func show(m mask.Mask, g mask.Geometry) {
 }
 
 func ExampleFull() {
-	show(mask.Full(), mask.Geometry{Batch: 1, Lq: 2, Lk: 4})
+	show(mask.Full(), nil, mask.Geometry{Batch: 1, Lq: 2, Lk: 4})
 	// Output:
 	// q0@2 ####
 	// q1@3 ####
 }
 
 func ExampleCausal() {
-	show(mask.Causal(), mask.Geometry{Batch: 1, Lq: 4, Lk: 4})
+	show(mask.Causal(), nil, mask.Geometry{Batch: 1, Lq: 4, Lk: 4})
 	// Output:
 	// q0@0 #...
 	// q1@1 ##..
@@ -48,10 +53,10 @@ func ExampleCausal() {
 // zero value) the last query sits at the last key.
 func ExampleGeometry() {
 	g := mask.Geometry{Batch: 1, Lq: 2, Lk: 6}
-	show(mask.Causal(), g)
+	show(mask.Causal(), nil, g)
 	fmt.Println("--- AlignStart, Offset 1")
 	g.Align, g.Offset = mask.AlignStart, 1
-	show(mask.Causal(), g)
+	show(mask.Causal(), nil, g)
 	// Output:
 	// q0@4 #####.
 	// q1@5 ######
@@ -62,11 +67,7 @@ func ExampleGeometry() {
 
 func ExampleBand() {
 	m, err := mask.Band(1, 2) // one key before the query, two after
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
-	show(m, mask.Geometry{Batch: 1, Lq: 5, Lk: 5})
+	show(m, err, mask.Geometry{Batch: 1, Lq: 5, Lk: 5})
 	// Output:
 	// q0@0 ###..
 	// q1@1 ####.
@@ -79,11 +80,7 @@ func ExampleBand() {
 // 4 and 5.
 func ExampleWindow() {
 	m, err := mask.Window(3)
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
-	show(m, mask.Geometry{Batch: 1, Lq: 6, Lk: 6})
+	show(m, err, mask.Geometry{Batch: 1, Lq: 6, Lk: 6})
 	_, err = mask.Window(-2)
 	fmt.Println(err)
 	// Output:
@@ -93,16 +90,12 @@ func ExampleWindow() {
 	// q3@3 .###..
 	// q4@4 ..###.
 	// q5@5 ...###
-	// mask: invalid window: Window: n = -2; a window holds at least one key
+	// mask: invalid window: Window: n = -2; want ≥ 1: a window holds at least the query's own key
 }
 
 func ExamplePrefix() {
 	m, err := mask.Prefix(3)
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
-	show(m, mask.Geometry{Batch: 1, Lq: 5, Lk: 5})
+	show(m, err, mask.Geometry{Batch: 1, Lq: 5, Lk: 5})
 	// Output:
 	// q0@0 ###..
 	// q1@1 ###..
@@ -127,11 +120,7 @@ func ExampleKeyPadding() {
 func ExamplePacked() {
 	// Three sequences of lengths 2, 3 and 1 packed into one row of 6.
 	m, err := mask.Packed([]int{0, 2, 5, 6}, mask.BlockCausal)
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
-	show(m, mask.Geometry{Batch: 1, Lq: 6, Lk: 6})
+	show(m, err, mask.Geometry{Batch: 1, Lq: 6, Lk: 6})
 	_, err = mask.Packed([]int{0, 4, 2}, mask.BlockFull)
 	fmt.Println(err)
 	// Output:
@@ -141,19 +130,15 @@ func ExamplePacked() {
 	// q3@3 ..##..
 	// q4@4 ..###.
 	// q5@5 .....#
-	// mask: invalid sequence offsets: Packed: offsets[2] = 2 after offsets[1] = 4; offsets must increase strictly
+	// mask: invalid sequence offsets: Packed: offsets[2] = 2; want > offsets[1] = 4: offsets increase strictly
 }
 
 func ExampleIntersect() {
 	w, _ := mask.Window(2)
 	pad, _ := mask.KeyPadding([]int{3})
 	m, err := mask.Intersect(w, pad)
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
 	fmt.Println(m)
-	show(m, mask.Geometry{Batch: 1, Lq: 5, Lk: 5})
+	show(m, err, mask.Geometry{Batch: 1, Lq: 5, Lk: 5})
 	// Output:
 	// Intersect(Window(2), KeyPadding([3]))
 	// q0@0 #....

@@ -10,8 +10,12 @@ import (
 )
 
 // Sentinel errors. Every error returned by this package wraps exactly one of
-// them, so callers can match with errors.Is; the message names the argument
-// and its value.
+// them, so callers can match with errors.Is. The message reads
+//
+//	<sentinel>: <function>: <argument> = <value>; want <expectation>
+//
+// naming the function or method called ("Mask.Visible"), the argument or
+// field, its value and what was expected.
 var (
 	// ErrSize: a negative batch, query or key length.
 	ErrSize = errors.New("mask: invalid size")
@@ -150,10 +154,10 @@ var kindWords = vocab.New("mask", "mask kind", "which keys each query may see", 
 	vocab.W(KindFull, "full", "every key"),
 	vocab.W(KindCausal, "causal", "keys up to the query's own position"),
 	vocab.W(KindBand, "band", "keys j with −before ≤ j − p ≤ after, either side possibly unbounded"),
-	vocab.W(KindWindow, "window", "the n keys ending at the query, the query included"),
-	vocab.W(KindPrefix, "prefix", "keys below a prefix length to every query, causal after it"),
+	vocab.W(KindWindow, "window", "the size keys ending at the query, the query included"),
+	vocab.W(KindPrefix, "prefix", "keys below length to every query, causal from length on"),
 	vocab.W(KindKeyPadding, "key-padding", "the first valid[b] keys of batch entry b"),
-	vocab.W(KindPacked, "packed", "keys of the query's own packed sequence, causal or full inside it"),
+	vocab.W(KindPacked, "packed", "keys of the query's own sequence between offsets, causal or full inside it as block says"),
 )
 
 // String returns k's word ("key-padding").
@@ -246,12 +250,26 @@ func Causal() Mask { return Mask{kind: kindCausal} }
 // Band lets query position p see key j iff −before ≤ j − p ≤ after. An
 // extent of Unbounded removes the limit on that side: Band(Unbounded, 0) is
 // Causal and Band(Unbounded, Unbounded) is Full.
-func Band(before, after int) (Mask, error) {
+func Band(before, after int) (Mask, error) { return band(args{fn: "Band"}, before, after) }
+
+// args names the arguments of a constructor in messages: fn is the
+// function called, and an argument is called by its own name ("before"),
+// or, when owner is set, as the field of a Spec ("specs[1].Before").
+type args struct{ fn, owner string }
+
+func (a args) name(arg, field string) string {
+	if a.owner == "" {
+		return arg
+	}
+	return a.owner + "." + field
+}
+
+func band(a args, before, after int) (Mask, error) {
 	if before < 0 && before != Unbounded {
-		return Mask{}, fmt.Errorf("%w: Band: before = %d; want ≥ 0 or Unbounded", ErrBand, before)
+		return Mask{}, fmt.Errorf("%w: %s: %s = %d; want ≥ 0 or Unbounded", ErrBand, a.fn, a.name("before", "Before"), before)
 	}
 	if after < 0 && after != Unbounded {
-		return Mask{}, fmt.Errorf("%w: Band: after = %d; want ≥ 0 or Unbounded", ErrBand, after)
+		return Mask{}, fmt.Errorf("%w: %s: %s = %d; want ≥ 0 or Unbounded", ErrBand, a.fn, a.name("after", "After"), after)
 	}
 	return Mask{kind: kindBand, before: before, after: after}, nil
 }
@@ -265,9 +283,11 @@ func Band(before, after int) (Mask, error) {
 // al. 2023 (arXiv 2310.06825, §2) write i−W ≤ j ≤ i in the text while the
 // figure and a rolling cache of W entries give i−W < j ≤ i. Window(n) is the
 // latter; use Band for any other reading.
-func Window(n int) (Mask, error) {
+func Window(n int) (Mask, error) { return window(args{fn: "Window"}, n) }
+
+func window(a args, n int) (Mask, error) {
 	if n < 1 {
-		return Mask{}, fmt.Errorf("%w: Window: n = %d; a window holds at least one key", ErrWindow, n)
+		return Mask{}, fmt.Errorf("%w: %s: %s = %d; want ≥ 1: a window holds at least the query's own key", ErrWindow, a.fn, a.name("n", "Size"), n)
 	}
 	return Mask{kind: kindBand, before: n - 1, after: 0, window: n}, nil
 }
@@ -275,9 +295,11 @@ func Window(n int) (Mask, error) {
 // Prefix is the prefix-bidirectional mask: key positions below p form a
 // prefix that every query sees, and the rest is causal. Query position q
 // sees key j iff j < p or j ≤ q. Prefix(0) is Causal.
-func Prefix(p int) (Mask, error) {
+func Prefix(p int) (Mask, error) { return prefix(args{fn: "Prefix"}, p) }
+
+func prefix(a args, p int) (Mask, error) {
 	if p < 0 {
-		return Mask{}, fmt.Errorf("%w: Prefix: p = %d; want ≥ 0", ErrPrefix, p)
+		return Mask{}, fmt.Errorf("%w: %s: %s = %d; want ≥ 0", ErrPrefix, a.fn, a.name("p", "Length"), p)
 	}
 	return Mask{kind: kindPrefix, prefix: p}, nil
 }
@@ -285,10 +307,12 @@ func Prefix(p int) (Mask, error) {
 // KeyPadding hides padded keys: in batch entry b, key j is visible iff
 // j < valid[b]. valid must have one entry per batch entry, each in [0, Lk];
 // that is checked when the mask is laid on a Geometry.
-func KeyPadding(valid []int) (Mask, error) {
+func KeyPadding(valid []int) (Mask, error) { return keyPadding(args{fn: "KeyPadding"}, valid) }
+
+func keyPadding(a args, valid []int) (Mask, error) {
 	for b, v := range valid {
 		if v < 0 {
-			return Mask{}, fmt.Errorf("%w: KeyPadding: valid[%d] = %d; want ≥ 0", ErrValidLength, b, v)
+			return Mask{}, fmt.Errorf("%w: %s: %s[%d] = %d; want ≥ 0", ErrValidLength, a.fn, a.name("valid", "Valid"), b, v)
 		}
 	}
 	return Mask{kind: kindPadding, valid: append([]int(nil), valid...)}, nil
@@ -301,18 +325,24 @@ func KeyPadding(valid []int) (Mask, error) {
 // Geometry). Query position p sees key j iff both lie in the same sequence
 // and, for BlockCausal, j ≤ p.
 func Packed(offsets []int, block Block) (Mask, error) {
-	if err := blockWords.Check(block); err != nil {
+	return packed(args{fn: "Packed"}, offsets, block)
+}
+
+func packed(a args, offsets []int, block Block) (Mask, error) {
+	if err := blockWords.CheckAt(a.fn+": "+a.name("block", "Block"), block); err != nil {
 		return Mask{}, err
 	}
+	name := a.name("offsets", "Offsets")
 	if len(offsets) < 2 {
-		return Mask{}, fmt.Errorf("%w: Packed: offsets = %v; want at least 2 entries (0 and the total length)", ErrSegments, offsets)
+		return Mask{}, fmt.Errorf("%w: %s: %s = %v; want at least 2 entries (0 and the total length)", ErrSegments, a.fn, name, offsets)
 	}
 	if offsets[0] != 0 {
-		return Mask{}, fmt.Errorf("%w: Packed: offsets[0] = %d; want 0", ErrSegments, offsets[0])
+		return Mask{}, fmt.Errorf("%w: %s: %s[0] = %d; want 0", ErrSegments, a.fn, name, offsets[0])
 	}
 	for s := 1; s < len(offsets); s++ {
 		if offsets[s] <= offsets[s-1] {
-			return Mask{}, fmt.Errorf("%w: Packed: offsets[%d] = %d after offsets[%d] = %d; offsets must increase strictly", ErrSegments, s, offsets[s], s-1, offsets[s-1])
+			return Mask{}, fmt.Errorf("%w: %s: %s[%d] = %d; want > %s[%d] = %d: offsets increase strictly",
+				ErrSegments, a.fn, name, s, offsets[s], name, s-1, offsets[s-1])
 		}
 	}
 	return Mask{kind: kindPacked, offsets: append([]int(nil), offsets...), block: block}, nil
@@ -322,12 +352,12 @@ func Packed(offsets []int, block Block) (Mask, error) {
 // masks. Nested intersections are flattened.
 func Intersect(masks ...Mask) (Mask, error) {
 	if len(masks) == 0 {
-		return Mask{}, fmt.Errorf("%w: Intersect: no masks given", ErrEmpty)
+		return Mask{}, fmt.Errorf("%w: Intersect: masks has 0 elements; want at least one mask", ErrEmpty)
 	}
 	var parts []Mask
 	for k, m := range masks {
 		if m.kind == kindNone {
-			return Mask{}, fmt.Errorf("%w: Intersect: masks[%d] is the zero Mask", ErrEmpty, k)
+			return Mask{}, fmt.Errorf("%w: Intersect: masks[%d] = the zero Mask; want one made by Full, Causal, …", ErrEmpty, k)
 		}
 		if m.kind == kindIntersect {
 			parts = append(parts, m.parts...)
@@ -400,25 +430,27 @@ func extent(e int) string {
 // Check reports whether the mask can be laid on g: sizes are not negative,
 // the alignment is known, query positions are in range where the mask uses
 // them, and key-padding lengths and packed offsets fit the batch and the
-// keys. Visible, Bias, Sees and EmptyRows all call it.
-func (m Mask) Check(g Geometry) error {
+// keys. Visible, Bias, Sees and EmptyRows all check the same.
+func (m Mask) Check(g Geometry) error { return m.check("Mask.Check", g) }
+
+// check is Check for a call of the method fn.
+func (m Mask) check(fn string, g Geometry) error {
 	if m.kind == kindNone {
-		return fmt.Errorf("%w: the zero Mask is not a mask; use Full, Causal, …", ErrEmpty)
+		return fmt.Errorf("%w: %s: the Mask is the zero Mask; want one made by Full, Causal, …", ErrEmpty, fn)
 	}
-	if g.Batch < 0 {
-		return fmt.Errorf("%w: Batch = %d; want ≥ 0", ErrSize, g.Batch)
+	for _, s := range []struct {
+		name string
+		v    int
+	}{{"Batch", g.Batch}, {"Lq", g.Lq}, {"Lk", g.Lk}} {
+		if s.v < 0 {
+			return fmt.Errorf("%w: %s: g.%s = %d; want ≥ 0", ErrSize, fn, s.name, s.v)
+		}
 	}
-	if g.Lq < 0 {
-		return fmt.Errorf("%w: Lq = %d; want ≥ 0", ErrSize, g.Lq)
-	}
-	if g.Lk < 0 {
-		return fmt.Errorf("%w: Lk = %d; want ≥ 0", ErrSize, g.Lk)
-	}
-	if err := alignWords.Check(g.Align); err != nil {
+	if err := alignWords.CheckAt(fn+": g.Align", g.Align); err != nil {
 		return err
 	}
 	if hi := math.MaxInt / max(1, g.Lq) / max(1, g.Lk); g.Batch > hi {
-		return fmt.Errorf("%w: Batch×Lq×Lk = %d×%d×%d does not fit in an int", ErrSize, g.Batch, g.Lq, g.Lk)
+		return fmt.Errorf("%w: %s: g.Batch·Lq·Lk = %d·%d·%d; want a count that fits an int", ErrSize, fn, g.Batch, g.Lq, g.Lk)
 	}
 	if m.UsesPositions() && g.Lq > 0 {
 		// The first query sits at a + Offset and the last at a + Offset +
@@ -432,37 +464,37 @@ func (m Mask) Check(g Geometry) error {
 		lo, hi := -a, g.Lk-g.Lq-a
 		if g.Offset < lo || g.Offset > hi {
 			if lo > hi {
-				return fmt.Errorf("%w: Lq = %d queries cannot all sit among Lk = %d keys, as %v needs", ErrOffset, g.Lq, g.Lk, m)
+				return fmt.Errorf("%w: %s: g.Lq = %d; want ≤ g.Lk = %d: %v needs every query at a key", ErrOffset, fn, g.Lq, g.Lk, m)
 			}
-			return fmt.Errorf("%w: %v with Lq = %d, Lk = %d: Offset = %d; %v needs every query at a key, so Offset in [%d, %d]",
-				ErrOffset, g.Align, g.Lq, g.Lk, g.Offset, m, lo, hi)
+			return fmt.Errorf("%w: %s: g.Offset = %d; want %d ≤ Offset ≤ %d: %v needs every query at a key (align %v, Lq = %d, Lk = %d)",
+				ErrOffset, fn, g.Offset, lo, hi, m, g.Align, g.Lq, g.Lk)
 		}
 	}
-	return m.checkParts(g)
+	return m.checkParts(fn, g)
 }
 
-func (m Mask) checkParts(g Geometry) error {
+func (m Mask) checkParts(fn string, g Geometry) error {
 	switch m.kind {
 	case kindPadding:
 		if len(m.valid) != g.Batch {
-			return fmt.Errorf("%w: KeyPadding has %d valid lengths, Batch = %d", ErrValidLength, len(m.valid), g.Batch)
+			return fmt.Errorf("%w: %s: KeyPadding has %d valid lengths; want one per batch entry, g.Batch = %d", ErrValidLength, fn, len(m.valid), g.Batch)
 		}
 		for b, v := range m.valid {
 			if v > g.Lk {
-				return fmt.Errorf("%w: KeyPadding: valid[%d] = %d exceeds Lk = %d", ErrValidLength, b, v, g.Lk)
+				return fmt.Errorf("%w: %s: KeyPadding valid[%d] = %d; want ≤ g.Lk = %d", ErrValidLength, fn, b, v, g.Lk)
 			}
 		}
 	case kindPacked:
 		if last := m.offsets[len(m.offsets)-1]; last != g.Lk {
-			return fmt.Errorf("%w: Packed: last offset = %d; want the key length Lk = %d", ErrSegments, last, g.Lk)
+			return fmt.Errorf("%w: %s: Packed offsets[%d] = %d, the last; want the key length g.Lk = %d", ErrSegments, fn, len(m.offsets)-1, last, g.Lk)
 		}
 	case kindPrefix:
 		if m.prefix > g.Lk {
-			return fmt.Errorf("%w: Prefix: p = %d exceeds Lk = %d", ErrPrefix, m.prefix, g.Lk)
+			return fmt.Errorf("%w: %s: Prefix p = %d; want ≤ g.Lk = %d", ErrPrefix, fn, m.prefix, g.Lk)
 		}
 	case kindIntersect:
 		for _, p := range m.parts {
-			if err := p.checkParts(g); err != nil {
+			if err := p.checkParts(fn, g); err != nil {
 				return err
 			}
 		}
@@ -517,11 +549,13 @@ func segment(offsets []int, x int) int {
 
 // Sees reports whether, in batch entry b, query i may see key j.
 func (m Mask) Sees(g Geometry, b, i, j int) (bool, error) {
-	if err := m.Check(g); err != nil {
+	const fn = "Mask.Sees"
+	if err := m.check(fn, g); err != nil {
 		return false, err
 	}
 	if b < 0 || b >= g.Batch || i < 0 || i >= g.Lq || j < 0 || j >= g.Lk {
-		return false, fmt.Errorf("%w: (b, i, j) = (%d, %d, %d) outside [%d, %d, %d]", ErrIndex, b, i, j, g.Batch, g.Lq, g.Lk)
+		return false, fmt.Errorf("%w: %s: (b, i, j) = (%d, %d, %d); want 0 ≤ b < g.Batch = %d, 0 ≤ i < g.Lq = %d, 0 ≤ j < g.Lk = %d",
+			ErrIndex, fn, b, i, j, g.Batch, g.Lq, g.Lk)
 	}
 	return m.sees(g, b, i, j), nil
 }
@@ -533,8 +567,11 @@ func (m Mask) Sees(g Geometry, b, i, j int) (bool, error) {
 //
 //	Lk = 0: every row is empty (see EmptyRows)
 //	Lq = 0 or Batch = 0: an empty slice
-func (m Mask) Visible(g Geometry) ([]bool, error) {
-	if err := m.Check(g); err != nil {
+func (m Mask) Visible(g Geometry) ([]bool, error) { return m.visible("Mask.Visible", g) }
+
+// visible is Visible for a call of the method fn.
+func (m Mask) visible(fn string, g Geometry) ([]bool, error) {
+	if err := m.check(fn, g); err != nil {
 		return nil, err
 	}
 	out := make([]bool, g.Batch*g.Lq*g.Lk)
@@ -565,7 +602,7 @@ func (m Mask) Rows(g Geometry, fn func(b, i int, row []bool)) {
 // be added to attention logits before the softmax (Vaswani et al. 2017,
 // §3.2.3). See BiasFill for a finite fill.
 func (m Mask) Bias(g Geometry) ([]float64, error) {
-	return m.BiasFill(g, math.Inf(-1))
+	return m.biasFill("Mask.Bias", g, math.Inf(-1))
 }
 
 // BiasFill is Bias with a fill chosen by the caller: 0 where visible, fill
@@ -579,10 +616,14 @@ func (m Mask) Bias(g Geometry) ([]float64, error) {
 //	fill = NaN or +Inf: error ErrFill
 //	fill = −Inf: same as Bias
 func (m Mask) BiasFill(g Geometry, fill float64) ([]float64, error) {
+	return m.biasFill("Mask.BiasFill", g, fill)
+}
+
+func (m Mask) biasFill(fn string, g Geometry, fill float64) ([]float64, error) {
 	if math.IsNaN(fill) || math.IsInf(fill, 1) {
-		return nil, fmt.Errorf("%w: fill = %v; want a finite value or −Inf", ErrFill, fill)
+		return nil, fmt.Errorf("%w: %s: fill = %v; want a finite value or −Inf", ErrFill, fn, fill)
 	}
-	vis, err := m.Visible(g)
+	vis, err := m.visible(fn, g)
 	if err != nil {
 		return nil, err
 	}
@@ -603,7 +644,7 @@ type Row struct{ Batch, Query int }
 // kernel outputs there is a convention of its own (see the attention
 // package's empty-row policy).
 func (m Mask) EmptyRows(g Geometry) ([]Row, error) {
-	if err := m.Check(g); err != nil {
+	if err := m.check("Mask.EmptyRows", g); err != nil {
 		return nil, err
 	}
 	var rows []Row

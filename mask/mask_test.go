@@ -27,8 +27,10 @@ func vis(t testing.TB, m Mask, g Geometry) []bool {
 	return v
 }
 
-// TestWindowExample is the worked example of the doc: Window(3) at query
-// position 5 sees keys 3, 4 and 5 (FORMULAS.md, sliding window check).
+// TestWindowExample is the worked example of Window's documentation:
+// Window(n) sees keys p − n < j ≤ p (the window of Jiang et al. 2023, arXiv
+// 2310.06825, §2, as its figure and rolling cache of W entries count it),
+// so Window(3) at query position 5 sees keys 3, 4 and 5.
 func TestWindowExample(t *testing.T) {
 	m := must(t)(Window(3))
 	g := Geometry{Batch: 1, Lq: 8, Lk: 8}
@@ -79,49 +81,52 @@ func TestErrors(t *testing.T) {
 	_, errZeroMask := Mask{}.Visible(g)
 	_, errIndex := Causal().Sees(g, 0, 4, 0)
 	_, errRows := Causal().EmptyRows(Geometry{Lq: -2})
+	_, errBias := Causal().Bias(Geometry{Lk: -2})
+	errCheck := Causal().Check(Geometry{Batch: -2})
 
 	tests := []struct {
 		name     string
 		err      error
 		sentinel error
-		want     string
+		want     string // the whole message
 	}{
-		{"band before", errBand, ErrBand, "before = -2"},
-		{"band after", errBandAfter, ErrBand, "after = -3"},
-		{"negative window", errWin, ErrWindow, "n = -1"},
-		{"zero window", errWin0, ErrWindow, "n = 0"},
-		{"negative prefix", errPrefix, ErrPrefix, "p = -1"},
-		{"negative valid length", errPad, ErrValidLength, "valid[1] = -1"},
-		{"offsets not from 0", errPackedStart, ErrSegments, "offsets[0] = 1"},
-		{"offsets not increasing", errPackedOrder, ErrSegments, "offsets[2] = 3 after offsets[1] = 3"},
-		{"offsets too short", errPackedShort, ErrSegments, "offsets = [0]"},
-		{"block kind", errBlock, ErrBlock, "mask: invalid block kind: block kind = 7; want one of causal, full"},
-		{"no masks", errEmpty, ErrEmpty, "no masks given"},
-		{"zero mask in intersection", errZero, ErrEmpty, "masks[1] is the zero Mask"},
-		{"negative Lq", errNeg, ErrSize, "Lq = -1"},
-		{"negative Lk", errNegK, ErrSize, "Lk = -4"},
-		{"negative batch", errNegB, ErrSize, "Batch = -1"},
-		{"offset past the keys", errOffset, ErrOffset, "Offset = 3; Causal needs every query at a key, so Offset in [0, 2]"},
-		{"negative offset", errOffsetNeg, ErrOffset, "Offset = -1;"},
-		{"more queries than keys, end-aligned", errLqGtLk, ErrOffset, "Lq = 5 queries cannot all sit among Lk = 4 keys"},
-		{"offset overflow", errOverflow, ErrOffset, "Offset = 9223372036854775806"},
-		{"size overflow", errHuge, ErrSize, "does not fit in an int"},
-		{"unknown alignment", errAlign, ErrAlign, "mask: invalid alignment: alignment = 9; want one of end, start"},
-		{"last offset not the total", errTotal, ErrSegments, "last offset = 5; want the key length Lk = 4"},
-		{"valid lengths per batch", errPadBatch, ErrValidLength, "2 valid lengths, Batch = 1"},
-		{"valid length past keys", errPadLong, ErrValidLength, "valid[1] = 3 exceeds Lk = 2"},
-		{"prefix past keys", errPrefixLong, ErrPrefix, "p = 6 exceeds Lk = 4"},
-		{"NaN fill", errFillNaN, ErrFill, "fill = NaN"},
-		{"+Inf fill", errFillInf, ErrFill, "fill = +Inf"},
-		{"zero mask", errZeroMask, ErrEmpty, "zero Mask"},
-		{"index", errIndex, ErrIndex, "(b, i, j) = (0, 4, 0)"},
-		{"rows", errRows, ErrSize, "Lq = -2"},
+		{"band before", errBand, ErrBand, "mask: invalid band: Band: before = -2; want ≥ 0 or Unbounded"},
+		{"band after", errBandAfter, ErrBand, "mask: invalid band: Band: after = -3; want ≥ 0 or Unbounded"},
+		{"negative window", errWin, ErrWindow, "mask: invalid window: Window: n = -1; want ≥ 1: a window holds at least the query's own key"},
+		{"zero window", errWin0, ErrWindow, "mask: invalid window: Window: n = 0; want ≥ 1: a window holds at least the query's own key"},
+		{"negative prefix", errPrefix, ErrPrefix, "mask: invalid prefix: Prefix: p = -1; want ≥ 0"},
+		{"negative valid length", errPad, ErrValidLength, "mask: invalid valid length: KeyPadding: valid[1] = -1; want ≥ 0"},
+		{"offsets not from 0", errPackedStart, ErrSegments, "mask: invalid sequence offsets: Packed: offsets[0] = 1; want 0"},
+		{"offsets not increasing", errPackedOrder, ErrSegments, "mask: invalid sequence offsets: Packed: offsets[2] = 3; want > offsets[1] = 3: offsets increase strictly"},
+		{"offsets too short", errPackedShort, ErrSegments, "mask: invalid sequence offsets: Packed: offsets = [0]; want at least 2 entries (0 and the total length)"},
+		{"block kind", errBlock, ErrBlock, "mask: invalid block kind: Packed: block = 7; want one of causal, full"},
+		{"no masks", errEmpty, ErrEmpty, "mask: no mask: Intersect: masks has 0 elements; want at least one mask"},
+		{"zero mask in intersection", errZero, ErrEmpty, "mask: no mask: Intersect: masks[1] = the zero Mask; want one made by Full, Causal, …"},
+		{"negative Lq", errNeg, ErrSize, "mask: invalid size: Mask.Visible: g.Lq = -1; want ≥ 0"},
+		{"negative Lk", errNegK, ErrSize, "mask: invalid size: Mask.Visible: g.Lk = -4; want ≥ 0"},
+		{"negative batch", errNegB, ErrSize, "mask: invalid size: Mask.Visible: g.Batch = -1; want ≥ 0"},
+		{"offset past the keys", errOffset, ErrOffset, "mask: query position out of range: Mask.Visible: g.Offset = 3; want 0 ≤ Offset ≤ 2: Causal needs every query at a key (align start, Lq = 2, Lk = 4)"},
+		{"negative offset", errOffsetNeg, ErrOffset, "mask: query position out of range: Mask.Visible: g.Offset = -1; want 0 ≤ Offset ≤ 2: Causal needs every query at a key (align start, Lq = 2, Lk = 4)"},
+		{"more queries than keys, end-aligned", errLqGtLk, ErrOffset, "mask: query position out of range: Mask.Visible: g.Lq = 5; want ≤ g.Lk = 4: Causal needs every query at a key"},
+		{"offset overflow", errOverflow, ErrOffset, "mask: query position out of range: Mask.Visible: g.Offset = 9223372036854775806; want 0 ≤ Offset ≤ 3: Causal needs every query at a key (align start, Lq = 5, Lk = 8)"},
+		{"size overflow", errHuge, ErrSize, "mask: invalid size: Mask.Visible: g.Batch·Lq·Lk = 1073741824·1048576·1048576; want a count that fits an int"},
+		{"unknown alignment", errAlign, ErrAlign, "mask: invalid alignment: Mask.Visible: g.Align = 9; want one of end, start"},
+		{"last offset not the total", errTotal, ErrSegments, "mask: invalid sequence offsets: Mask.Visible: Packed offsets[2] = 5, the last; want the key length g.Lk = 4"},
+		{"valid lengths per batch", errPadBatch, ErrValidLength, "mask: invalid valid length: Mask.Visible: KeyPadding has 2 valid lengths; want one per batch entry, g.Batch = 1"},
+		{"valid length past keys", errPadLong, ErrValidLength, "mask: invalid valid length: Mask.Visible: KeyPadding valid[1] = 3; want ≤ g.Lk = 2"},
+		{"prefix past keys", errPrefixLong, ErrPrefix, "mask: invalid prefix: Mask.Visible: Prefix p = 6; want ≤ g.Lk = 4"},
+		{"NaN fill", errFillNaN, ErrFill, "mask: invalid fill: Mask.BiasFill: fill = NaN; want a finite value or −Inf"},
+		{"+Inf fill", errFillInf, ErrFill, "mask: invalid fill: Mask.BiasFill: fill = +Inf; want a finite value or −Inf"},
+		{"zero mask", errZeroMask, ErrEmpty, "mask: no mask: Mask.Visible: the Mask is the zero Mask; want one made by Full, Causal, …"},
+		{"index", errIndex, ErrIndex, "mask: index out of range: Mask.Sees: (b, i, j) = (0, 4, 0); want 0 ≤ b < g.Batch = 1, 0 ≤ i < g.Lq = 4, 0 ≤ j < g.Lk = 4"},
+		{"rows", errRows, ErrSize, "mask: invalid size: Mask.EmptyRows: g.Lq = -2; want ≥ 0"},
+		{"bias", errBias, ErrSize, "mask: invalid size: Mask.Bias: g.Lk = -2; want ≥ 0"},
+		{"check", errCheck, ErrSize, "mask: invalid size: Mask.Check: g.Batch = -2; want ≥ 0"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			require.Error(t, tc.err)
-			assert.True(t, errors.Is(tc.err, tc.sentinel), "%v does not wrap %v", tc.err, tc.sentinel)
-			assert.Contains(t, tc.err.Error(), tc.want)
+			require.ErrorIs(t, tc.err, tc.sentinel)
+			assert.EqualError(t, tc.err, tc.want)
 		})
 	}
 }

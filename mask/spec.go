@@ -6,8 +6,12 @@ import (
 	"errors"
 	"fmt"
 	"maps"
+	"reflect"
 	"slices"
+	"strconv"
 	"strings"
+
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // Spec is a mask written as data: a kind and the parameters of its
@@ -59,9 +63,10 @@ func SpecKeys(k Kind) []string { return slices.Clone(specKeys[k]) }
 // error wrapping ErrSpec (or ErrKind for an unknown kind, ErrBlock for an
 // unknown block).
 func (s *Spec) UnmarshalJSON(b []byte) error {
+	const fn = "Spec.UnmarshalJSON"
 	var keys map[string]json.RawMessage
 	if err := json.Unmarshal(b, &keys); err != nil {
-		return fmt.Errorf("%w: a mask is a JSON object with a \"kind\": %w", ErrSpec, err)
+		return fmt.Errorf("%w: %s: mask = %s; want a JSON object with a \"kind\" (%w)", ErrSpec, fn, jsonKind(b), err)
 	}
 	type plain Spec
 	dec := json.NewDecoder(bytes.NewReader(b))
@@ -69,36 +74,66 @@ func (s *Spec) UnmarshalJSON(b []byte) error {
 	var p plain
 	if err := dec.Decode(&p); err != nil {
 		if strings.HasPrefix(err.Error(), "json: unknown field ") {
-			return fmt.Errorf("%w: unknown key %s; a mask takes kind, %s", ErrSpec,
+			return fmt.Errorf("%w: %s: key %s; want one of kind, %s", ErrSpec, fn,
 				strings.TrimPrefix(err.Error(), "json: unknown field "), strings.Join(allSpecKeys(), ", "))
 		}
 		var te *json.UnmarshalTypeError
 		if errors.As(err, &te) {
-			return fmt.Errorf("%w: key %q holds a JSON %s; want %v", ErrSpec, te.Field, te.Value, te.Type)
+			return fmt.Errorf("%w: %s: key %q holds a JSON %s; want %v", ErrSpec, fn, te.Field, te.Value, te.Type)
 		}
-		return err // a word that is not a kind or a block: ErrKind or ErrBlock
+		// A word that is not a kind or a block: ErrKind or ErrBlock.
+		for _, w := range []struct {
+			key      string
+			sentinel error
+		}{{"kind", ErrKind}, {"block", ErrBlock}} {
+			if errors.Is(err, w.sentinel) {
+				return vocab.At(err, w.sentinel, fn+": key \""+w.key+"\"")
+			}
+		}
+		return err
 	}
 	for _, k := range slices.Sorted(maps.Keys(keys)) {
 		if bytes.Equal(bytes.TrimSpace(keys[k]), []byte("null")) {
-			return fmt.Errorf("%w: key %q is null; give its value (-1 for an unbounded side of a band)", ErrSpec, k)
+			return fmt.Errorf("%w: %s: key %q = null; want its value (-1 for an unbounded side of a band)", ErrSpec, fn, k)
 		}
 	}
 	if _, ok := keys["kind"]; !ok {
-		return fmt.Errorf("%w: key \"kind\" is missing; want one of %s", ErrSpec, strings.Join(kindWords.Texts(), ", "))
+		return fmt.Errorf("%w: %s: key \"kind\" is missing; want one of %s", ErrSpec, fn, strings.Join(kindWords.Texts(), ", "))
 	}
 	want := specKeys[p.Kind]
 	for _, k := range want {
 		if _, ok := keys[k]; !ok {
-			return fmt.Errorf("%w: kind %q needs key %q", ErrSpec, p.Kind, k)
+			return fmt.Errorf("%w: %s: key %q is missing; want it with kind %q", ErrSpec, fn, k, p.Kind)
 		}
 	}
 	for _, k := range slices.Sorted(maps.Keys(keys)) {
 		if k != "kind" && !slices.Contains(want, k) {
-			return fmt.Errorf("%w: key %q does not apply to kind %q (it takes %s)", ErrSpec, k, p.Kind, describeKeys(want))
+			return fmt.Errorf("%w: %s: key %q with kind %q; want %s", ErrSpec, fn, k, p.Kind, describeKeys(want))
 		}
 	}
 	*s = Spec(p)
 	return nil
+}
+
+// jsonKind names what b holds, for a message: "a JSON array".
+func jsonKind(b []byte) string {
+	t := bytes.TrimSpace(b)
+	if !json.Valid(t) || len(t) == 0 {
+		return fmt.Sprintf("%.40q, not JSON", t)
+	}
+	switch t[0] {
+	case '[':
+		return "a JSON array"
+	case '"':
+		return "a JSON string"
+	case 't', 'f':
+		return "a JSON boolean"
+	case 'n':
+		return "JSON null"
+	case '{':
+		return "a JSON object"
+	}
+	return "a JSON number"
 }
 
 func allSpecKeys() []string {
@@ -113,60 +148,59 @@ func allSpecKeys() []string {
 	return all
 }
 
+// describeKeys says which keys a kind takes: `only "kind" and "size"`.
 func describeKeys(keys []string) string {
 	if len(keys) == 0 {
-		return "no other key"
+		return `no key but "kind"`
 	}
-	return strings.Join(keys, " and ")
+	q := make([]string, len(keys))
+	for i, k := range keys {
+		q[i] = strconv.Quote(k)
+	}
+	return `only "kind" and ` + strings.Join(q, " and ")
 }
 
-// MarshalJSON writes the Spec with exactly the keys of its kind.
+// MarshalJSON writes the Spec with exactly the keys of its kind, each as
+// its field's json tag spells it.
 func (s Spec) MarshalJSON() ([]byte, error) {
-	if err := kindWords.Check(s.Kind); err != nil {
+	if err := kindWords.CheckAt("Spec.MarshalJSON: Spec.Kind", s.Kind); err != nil {
 		return nil, err
 	}
 	m := map[string]any{"kind": s.Kind}
-	for _, k := range specKeys[s.Kind] {
-		switch k {
-		case "before":
-			m[k] = s.Before
-		case "after":
-			m[k] = s.After
-		case "size":
-			m[k] = s.Size
-		case "length":
-			m[k] = s.Length
-		case "valid":
-			m[k] = s.Valid
-		case "offsets":
-			m[k] = s.Offsets
-		case "block":
-			m[k] = s.Block
+	v := reflect.ValueOf(s)
+	for i := range v.NumField() {
+		key, _, _ := strings.Cut(v.Type().Field(i).Tag.Get("json"), ",")
+		if slices.Contains(specKeys[s.Kind], key) {
+			m[key] = v.Field(i).Interface()
 		}
 	}
 	return json.Marshal(m)
 }
 
-// Mask builds the mask the Spec describes; the constructor's error is
-// returned as it is.
-func (s Spec) Mask() (Mask, error) {
+// Mask builds the mask the Spec describes; an error is the constructor's,
+// naming the Spec's field ("mask: invalid window: Spec.Mask: Spec.Size =
+// 0; want ≥ 1: …").
+func (s Spec) Mask() (Mask, error) { return s.mask(args{fn: "Spec.Mask", owner: "Spec"}) }
+
+// mask is Mask with the names of a's messages.
+func (s Spec) mask(a args) (Mask, error) {
 	switch s.Kind {
 	case KindFull:
 		return Full(), nil
 	case KindCausal:
 		return Causal(), nil
 	case KindBand:
-		return Band(s.Before, s.After)
+		return band(a, s.Before, s.After)
 	case KindWindow:
-		return Window(s.Size)
+		return window(a, s.Size)
 	case KindPrefix:
-		return Prefix(s.Length)
+		return prefix(a, s.Length)
 	case KindKeyPadding:
-		return KeyPadding(s.Valid)
+		return keyPadding(a, s.Valid)
 	case KindPacked:
-		return Packed(s.Offsets, s.Block)
+		return packed(a, s.Offsets, s.Block)
 	}
-	return Mask{}, kindWords.Check(s.Kind)
+	return Mask{}, kindWords.CheckAt(a.fn+": "+a.name("kind", "Kind"), s.Kind)
 }
 
 // Build is the intersection of the masks the Specs describe; no Spec at
@@ -178,9 +212,9 @@ func Build(specs []Spec) (Mask, error) {
 	}
 	ms := make([]Mask, len(specs))
 	for i, s := range specs {
-		m, err := s.Mask()
+		m, err := s.mask(args{fn: "Build", owner: fmt.Sprintf("specs[%d]", i)})
 		if err != nil {
-			return Mask{}, fmt.Errorf("mask %d (%s): %w", i, s.Kind, err)
+			return Mask{}, err
 		}
 		ms[i] = m
 	}

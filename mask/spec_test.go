@@ -3,6 +3,7 @@ package mask
 import (
 	"encoding/json"
 	"errors"
+	"regexp"
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
@@ -66,6 +67,19 @@ func jsonKeys(t *testing.T, b []byte) []string {
 	return keys
 }
 
+// TestKindMeaningsNameKeys: the meaning of each kind, which configuration
+// help prints beside its word, names every key of the kind as a Spec
+// spells it in JSON (SpecKeys), so that the help says what each key does.
+func TestKindMeaningsNameKeys(t *testing.T) {
+	word := regexp.MustCompile(`[a-z]+`)
+	for _, k := range KindFull.Values() {
+		words := word.FindAllString(k.Meaning(), -1)
+		for _, key := range SpecKeys(k) {
+			assert.Contains(t, words, key, "kind %v: meaning %q does not name key %q", k, k.Meaning(), key)
+		}
+	}
+}
+
 // TestBuild: a list of Specs is their intersection, no Spec is Full, and a
 // constructor's error names the entry.
 func TestBuild(t *testing.T) {
@@ -85,10 +99,17 @@ func TestBuild(t *testing.T) {
 
 	_, err = Build([]Spec{{Kind: KindCausal}, {Kind: KindWindow, Size: 0}})
 	assert.ErrorIs(t, err, ErrWindow)
-	assert.ErrorContains(t, err, "mask 1 (window): mask: invalid window: Window: n = 0")
+	assert.EqualError(t, err, "mask: invalid window: Build: specs[1].Size = 0; want ≥ 1: a window holds at least the query's own key")
 	_, err = Build([]Spec{{Kind: Kind(9)}})
 	assert.ErrorIs(t, err, ErrKind)
-	assert.ErrorContains(t, err, "mask 0 (Kind(9)): mask: invalid mask kind: mask kind = 9; want one of full, causal, band, window, prefix, key-padding, packed")
+	assert.EqualError(t, err, "mask: invalid mask kind: Build: specs[0].Kind = 9; want one of full, causal, band, window, prefix, key-padding, packed")
+	_, err = Build([]Spec{{Kind: KindBand, Before: 1, After: -2}})
+	assert.EqualError(t, err, "mask: invalid band: Build: specs[0].After = -2; want ≥ 0 or Unbounded")
+	_, err = Spec{Kind: KindPacked, Offsets: []int{0, 2}, Block: 4}.Mask()
+	assert.ErrorIs(t, err, ErrBlock)
+	assert.EqualError(t, err, "mask: invalid block kind: Spec.Mask: Spec.Block = 4; want one of causal, full")
+	_, err = Spec{Kind: KindPrefix, Length: -1}.Mask()
+	assert.EqualError(t, err, "mask: invalid prefix: Spec.Mask: Spec.Length = -1; want ≥ 0")
 }
 
 // TestSpecErrors: a slip in a mask's JSON is an error wrapping one
@@ -99,25 +120,27 @@ func TestSpecErrors(t *testing.T) {
 		sentinel   error
 		want       string
 	}{
-		{"missing kind", `{}`, ErrSpec, `mask: invalid mask description: key "kind" is missing; want one of full, causal, band, window, prefix, key-padding, packed`},
-		{"missing kind with a key", `{"size":3}`, ErrSpec, `key "kind" is missing`},
-		{"unknown kind", `{"kind":"diagonal"}`, ErrKind, `mask: invalid mask kind: mask kind = "diagonal"; want one of full, causal, band, window, prefix, key-padding, packed`},
-		{"old spelling of a kind", `{"kind":"padding","valid":[1]}`, ErrKind, `mask kind = "padding"`},
-		{"key of another kind", `{"kind":"causal","size":3}`, ErrSpec, `mask: invalid mask description: key "size" does not apply to kind "causal" (it takes no other key)`},
-		{"keys of other kinds, the first named", `{"kind":"window","size":3,"valid":[1],"length":2}`, ErrSpec, `key "length" does not apply to kind "window" (it takes size)`},
-		{"band missing after", `{"kind":"band","before":1}`, ErrSpec, `mask: invalid mask description: kind "band" needs key "after"`},
-		{"window missing size", `{"kind":"window"}`, ErrSpec, `kind "window" needs key "size"`},
-		{"prefix missing length", `{"kind":"prefix"}`, ErrSpec, `kind "prefix" needs key "length"`},
-		{"key padding missing valid", `{"kind":"key-padding"}`, ErrSpec, `kind "key-padding" needs key "valid"`},
-		{"packed missing block", `{"kind":"packed","offsets":[0,2]}`, ErrSpec, `kind "packed" needs key "block"`},
-		{"unknown key", `{"kind":"full","lanes":3}`, ErrSpec, `"lanes"`},
-		{"old key of a window", `{"kind":"window","n":3}`, ErrSpec, `"n"`},
-		{"unknown block", `{"kind":"packed","offsets":[0,2],"block":"diagonal"}`, ErrBlock, `mask: invalid block kind: block kind = "diagonal"; want one of causal, full`},
-		{"null kind", `{"kind":null}`, ErrSpec, `key "kind" is null`},
-		{"null extent", `{"kind":"band","before":null,"after":2}`, ErrSpec, `mask: invalid mask description: key "before" is null; give its value (-1 for an unbounded side of a band)`},
-		{"null block", `{"kind":"packed","offsets":[0,2],"block":null}`, ErrSpec, `key "block" is null`},
-		{"wrong type", `{"kind":"window","size":"3"}`, ErrSpec, `mask: invalid mask description: key "size" holds a JSON string; want int`},
-		{"not an object", `[{"kind":"full"}]`, ErrSpec, `mask: invalid mask description: a mask is a JSON object with a "kind"`},
+		{"missing kind", `{}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "kind" is missing; want one of full, causal, band, window, prefix, key-padding, packed`},
+		{"missing kind with a key", `{"size":3}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "kind" is missing; want one of full, causal, band, window, prefix, key-padding, packed`},
+		{"unknown kind", `{"kind":"diagonal"}`, ErrKind, `mask: invalid mask kind: Spec.UnmarshalJSON: key "kind" = "diagonal"; want one of full, causal, band, window, prefix, key-padding, packed`},
+		{"old spelling of a kind", `{"kind":"padding","valid":[1]}`, ErrKind, `mask: invalid mask kind: Spec.UnmarshalJSON: key "kind" = "padding"; want one of full, causal, band, window, prefix, key-padding, packed`},
+		{"key of another kind", `{"kind":"causal","size":3}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "size" with kind "causal"; want no key but "kind"`},
+		{"keys of other kinds, the first named", `{"kind":"window","size":3,"valid":[1],"length":2}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "length" with kind "window"; want only "kind" and "size"`},
+		{"band missing after", `{"kind":"band","before":1}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "after" is missing; want it with kind "band"`},
+		{"band with another key", `{"kind":"band","before":1,"after":0,"size":2}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "size" with kind "band"; want only "kind" and "before" and "after"`},
+		{"window missing size", `{"kind":"window"}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "size" is missing; want it with kind "window"`},
+		{"prefix missing length", `{"kind":"prefix"}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "length" is missing; want it with kind "prefix"`},
+		{"key padding missing valid", `{"kind":"key-padding"}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "valid" is missing; want it with kind "key-padding"`},
+		{"packed missing block", `{"kind":"packed","offsets":[0,2]}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "block" is missing; want it with kind "packed"`},
+		{"unknown key", `{"kind":"full","lanes":3}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "lanes"; want one of kind, before, after, size, length, valid, offsets, block`},
+		{"old key of a window", `{"kind":"window","n":3}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "n"; want one of kind, before, after, size, length, valid, offsets, block`},
+		{"unknown block", `{"kind":"packed","offsets":[0,2],"block":"diagonal"}`, ErrBlock, `mask: invalid block kind: Spec.UnmarshalJSON: key "block" = "diagonal"; want one of causal, full`},
+		{"null kind", `{"kind":null}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "kind" = null; want its value (-1 for an unbounded side of a band)`},
+		{"null extent", `{"kind":"band","before":null,"after":2}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "before" = null; want its value (-1 for an unbounded side of a band)`},
+		{"null block", `{"kind":"packed","offsets":[0,2],"block":null}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "block" = null; want its value (-1 for an unbounded side of a band)`},
+		{"wrong type", `{"kind":"window","size":"3"}`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: key "size" holds a JSON string; want int`},
+		{"not an object", `[{"kind":"full"}]`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: mask = a JSON array; want a JSON object with a "kind" (` + jsonError(`[]`) + `)`},
+		{"a number", `3`, ErrSpec, `mask: invalid mask description: Spec.UnmarshalJSON: mask = a JSON number; want a JSON object with a "kind" (` + jsonError(`3`) + `)`},
 	}
 	sentinels := []error{ErrSpec, ErrKind, ErrBlock}
 	for _, tc := range tests {
@@ -126,7 +149,7 @@ func TestSpecErrors(t *testing.T) {
 			err := json.Unmarshal([]byte(tc.json), &s)
 			require.Error(t, err)
 			assert.ErrorIs(t, err, tc.sentinel)
-			assert.ErrorContains(t, err, tc.want)
+			assert.EqualError(t, err, tc.want)
 			for _, o := range sentinels {
 				if o != tc.sentinel {
 					assert.False(t, errors.Is(err, o), "%v also wraps %v", err, o)
@@ -138,12 +161,21 @@ func TestSpecErrors(t *testing.T) {
 			var list []Spec
 			err = json.Unmarshal([]byte("["+tc.json+"]"), &list)
 			assert.ErrorIs(t, err, tc.sentinel)
-			assert.ErrorContains(t, err, tc.want)
+			assert.EqualError(t, err, tc.want)
 		})
 	}
+	var typ *json.UnmarshalTypeError
+	assert.ErrorAs(t, json.Unmarshal([]byte(`[3]`), &[]Spec{}), &typ, "a value that is not an object keeps json's own error")
 	_, err := json.Marshal(Spec{Kind: Kind(9)})
 	assert.ErrorIs(t, err, ErrKind)
-	assert.ErrorContains(t, err, "mask kind = 9; want one of full")
+	assert.ErrorContains(t, err, "mask: invalid mask kind: Spec.MarshalJSON: Spec.Kind = 9; want one of full")
+}
+
+// jsonError is encoding/json's own error for b read as a JSON object, which
+// a Spec's error quotes (and wraps).
+func jsonError(b string) string {
+	var m map[string]json.RawMessage
+	return json.Unmarshal([]byte(b), &m).Error()
 }
 
 // FuzzSpec reads arbitrary JSON as a list of Specs: no panic; an error

@@ -62,9 +62,11 @@
 //
 // Every error about the array or the file's content wraps exactly one of
 // the sentinel errors (ErrFormat, ErrDType, ErrShape, ErrData, ErrValues,
-// ErrBits, ErrInexact) and names what it found and what it wanted; errors of
-// the file system or of the io.Writer are wrapped as they come. No function
-// panics on its input, whatever the bytes.
+// ErrBits, ErrInexact) and names the function called (for ReadFile and
+// WriteFile with the path), what it found and what it wanted ("npy:
+// malformed file: Read: format version = 4.0; want 1.0, 2.0 or 3.0");
+// errors of the file system or of the io.Writer are wrapped as they come.
+// No function panics on its input, whatever the bytes.
 //
 // Typical use: a port under test dumps its output with numpy.save (or any
 // writer of the format), the test reads it with ReadFile, converts it with

@@ -41,12 +41,13 @@ type pyValue struct {
 }
 
 type pyParser struct {
+	fn  string // the function called, for messages
 	s   string
 	pos int
 }
 
 func (p *pyParser) errorf(format string, args ...any) error {
-	return fmt.Errorf("%w: header byte %d: %s", ErrFormat, p.pos, fmt.Sprintf(format, args...))
+	return fmt.Errorf("%w: %s: header byte %d: %s", ErrFormat, p.fn, p.pos, fmt.Sprintf(format, args...))
 }
 
 func (p *pyParser) space() {
@@ -62,11 +63,11 @@ func (p *pyParser) space() {
 
 func (p *pyParser) value(depth int) (pyValue, error) {
 	if depth > maxDepth {
-		return pyValue{}, p.errorf("literal nested deeper than %d", maxDepth)
+		return pyValue{}, p.errorf("a literal nested deeper than %d; want at most %d levels", maxDepth, maxDepth)
 	}
 	p.space()
 	if p.pos >= len(p.s) {
-		return pyValue{}, p.errorf("header ends where a value should start")
+		return pyValue{}, p.errorf("the header ends; want a value")
 	}
 	start := p.pos
 	var v pyValue
@@ -106,7 +107,7 @@ func (p *pyParser) str() (pyValue, error) {
 			p.pos++
 			return pyValue{kind: pyStr, str: b.String()}, nil
 		case c == '\n':
-			return pyValue{}, p.errorf("newline inside a string")
+			return pyValue{}, p.errorf("a newline inside a string; want the closing quote first")
 		case c == '\\' && p.pos+1 < len(p.s):
 			b.WriteByte(c)
 			b.WriteByte(p.s[p.pos+1])
@@ -116,7 +117,7 @@ func (p *pyParser) str() (pyValue, error) {
 			p.pos++
 		}
 	}
-	return pyValue{}, p.errorf("unterminated string")
+	return pyValue{}, p.errorf("the header ends inside a string; want the closing quote")
 }
 
 // integer parses a decimal integer, with an optional sign and the 'L'
@@ -131,7 +132,7 @@ func (p *pyParser) integer() (pyValue, error) {
 		p.pos++
 	}
 	if p.pos == digits {
-		return pyValue{}, p.errorf("sign without digits")
+		return pyValue{}, p.errorf("a sign without digits; want an integer")
 	}
 	text := p.s[start:p.pos]
 	if p.pos < len(p.s) && (p.s[p.pos] == 'L' || p.s[p.pos] == 'l') {
@@ -158,7 +159,7 @@ func (p *pyParser) name() (pyValue, error) {
 		return pyValue{kind: pyNone}, nil
 	}
 	p.pos = start
-	return pyValue{}, p.errorf("unexpected %q", p.s[start:min(len(p.s), start+16)])
+	return pyValue{}, p.errorf("%q; want a Python literal", p.s[start:min(len(p.s), start+16)])
 }
 
 func (p *pyParser) sequence(kind pyKind, end byte, depth int) (pyValue, error) {
@@ -170,7 +171,7 @@ func (p *pyParser) sequence(kind pyKind, end byte, depth int) (pyValue, error) {
 			p.pos++
 			// (x) is x in Python, not a tuple; a header never holds one.
 			if kind == pyTuple && len(v.items) == 1 && !strings.HasSuffix(strings.TrimRight(p.s[:p.pos-1], " \t\r\n"), ",") {
-				return pyValue{}, p.errorf("parenthesised value without a comma is not a tuple")
+				return pyValue{}, p.errorf("a parenthesised value without a comma, which is not a tuple; want (x,)")
 			}
 			return v, nil
 		}
@@ -187,7 +188,7 @@ func (p *pyParser) sequence(kind pyKind, end byte, depth int) (pyValue, error) {
 		if p.pos < len(p.s) && p.s[p.pos] == end {
 			continue
 		}
-		return pyValue{}, p.errorf("want ',' or %q in a %s", end, pyKindName[kind])
+		return pyValue{}, p.errorf("%.16q in a %s; want ',' or %q", p.s[p.pos:], pyKindName[kind], end)
 	}
 }
 
@@ -206,7 +207,7 @@ func (p *pyParser) dict(depth int) (pyValue, error) {
 		}
 		p.space()
 		if p.pos >= len(p.s) || p.s[p.pos] != ':' {
-			return pyValue{}, p.errorf("want ':' after dictionary key %s", key.text)
+			return pyValue{}, p.errorf("%.16q after dictionary key %s; want ':'", p.s[p.pos:], key.text)
 		}
 		p.pos++
 		val, err := p.value(depth + 1)
@@ -222,24 +223,24 @@ func (p *pyParser) dict(depth int) (pyValue, error) {
 		if p.pos < len(p.s) && p.s[p.pos] == '}' {
 			continue
 		}
-		return pyValue{}, p.errorf("want ',' or '}' in the dictionary")
+		return pyValue{}, p.errorf("%.16q in the dictionary; want ',' or '}'", p.s[p.pos:])
 	}
 }
 
-// parseHeader interprets the header text (already decoded to a Go string).
-// The version is filled in by the caller.
-func parseHeader(text string) (Header, error) {
-	p := &pyParser{s: text}
+// parseHeader interprets the header text (already decoded to a Go string)
+// for a call of fn. The version is filled in by the caller.
+func parseHeader(fn, text string) (Header, error) {
+	p := &pyParser{fn: fn, s: text}
 	d, err := p.value(0)
 	if err != nil {
 		return Header{}, err
 	}
 	p.space()
 	if p.pos != len(p.s) {
-		return Header{}, p.errorf("%q after the dictionary; only spaces and a newline may follow it", p.s[p.pos:min(len(p.s), p.pos+16)])
+		return Header{}, p.errorf("%q after the dictionary; want only spaces and a newline", p.s[p.pos:min(len(p.s), p.pos+16)])
 	}
 	if d.kind != pyDict {
-		return Header{}, fmt.Errorf("%w: header is a %s, want a dictionary", ErrFormat, pyKindName[d.kind])
+		return Header{}, fmt.Errorf("%w: %s: the header is a %s; want a dictionary", ErrFormat, fn, pyKindName[d.kind])
 	}
 	var descr, fortran, shape *pyValue
 	for i := 0; i < len(d.items); i += 2 {
@@ -256,10 +257,10 @@ func parseHeader(text string) (Header, error) {
 			}
 		}
 		if slot == nil {
-			return Header{}, fmt.Errorf("%w: header key %s is not one of 'descr', 'fortran_order', 'shape'", ErrFormat, k.text)
+			return Header{}, fmt.Errorf("%w: %s: header key %s; want one of 'descr', 'fortran_order', 'shape'", ErrFormat, fn, k.text)
 		}
 		if *slot != nil {
-			return Header{}, fmt.Errorf("%w: header key %s appears twice", ErrFormat, k.text)
+			return Header{}, fmt.Errorf("%w: %s: header key %s twice; want each key once", ErrFormat, fn, k.text)
 		}
 		*slot = &d.items[i+1]
 	}
@@ -268,33 +269,33 @@ func parseHeader(text string) (Header, error) {
 		name string
 	}{{descr, "descr"}, {fortran, "fortran_order"}, {shape, "shape"}} {
 		if m.v == nil {
-			return Header{}, fmt.Errorf("%w: header has no '%s' key", ErrFormat, m.name)
+			return Header{}, fmt.Errorf("%w: %s: the header has no '%s' key; want 'descr', 'fortran_order' and 'shape'", ErrFormat, fn, m.name)
 		}
 	}
 
 	var h Header
-	if h.DType, h.ByteOrder, err = parseDescr(descr); err != nil {
+	if h.DType, h.ByteOrder, err = parseDescr(fn, descr); err != nil {
 		return Header{}, err
 	}
 	if fortran.kind != pyBool {
-		return Header{}, fmt.Errorf("%w: 'fortran_order' is %s, want True or False", ErrFormat, fortran.text)
+		return Header{}, fmt.Errorf("%w: %s: 'fortran_order' = %s; want True or False", ErrFormat, fn, fortran.text)
 	}
 	h.FortranOrder = fortran.b
 	if shape.kind != pyTuple {
-		return Header{}, fmt.Errorf("%w: 'shape' is %s, want a tuple of integers", ErrFormat, shape.text)
+		return Header{}, fmt.Errorf("%w: %s: 'shape' = %s; want a tuple of integers", ErrFormat, fn, shape.text)
 	}
 	h.Shape = make([]int, len(shape.items))
 	for i, it := range shape.items {
 		if it.kind != pyInt {
-			return Header{}, fmt.Errorf("%w: 'shape' %s has %s at dimension %d, want an integer", ErrFormat, shape.text, it.text, i)
+			return Header{}, fmt.Errorf("%w: %s: 'shape' = %s, dimension %d = %s; want an integer", ErrFormat, fn, shape.text, i, it.text)
 		}
 		n, err := strconv.Atoi(it.str)
 		if err != nil {
-			return Header{}, fmt.Errorf("%w: 'shape' %s: dimension %d (%s) does not fit an int", ErrShape, shape.text, i, it.text)
+			return Header{}, fmt.Errorf("%w: %s: 'shape' = %s, dimension %d = %s; want one that fits an int", ErrShape, fn, shape.text, i, it.text)
 		}
 		h.Shape[i] = n
 	}
-	if _, err := count(h.Shape); err != nil {
+	if _, err := count(fn, "'shape'", h.Shape); err != nil {
 		return Header{}, err
 	}
 	return h, nil
@@ -315,13 +316,16 @@ const supportedDescrs = "'<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for bi
 // order mark and one of the kind-and-size codes of the supported types.
 // Multi-byte types need '<' or '>': '=' (native order) and '|' (order not
 // applicable) do not say how the writer's machine stored the bytes.
-func parseDescr(v *pyValue) (DType, ByteOrder, error) {
+func parseDescr(fn string, v *pyValue) (DType, ByteOrder, error) {
 	if v.kind != pyStr {
 		what := "a " + pyKindName[v.kind]
+		if v.kind == pyInt {
+			what = "an integer"
+		}
 		if v.kind == pyList {
 			what = "a structured type"
 		}
-		return 0, 0, fmt.Errorf("%w: descr %s is %s; supported: %s", ErrDType, v.text, what, supportedDescrs)
+		return 0, 0, fmt.Errorf("%w: %s: 'descr' = %s, %s; want one of %s", ErrDType, fn, v.text, what, supportedDescrs)
 	}
 	s := v.str
 	var mark byte
@@ -344,7 +348,7 @@ func parseDescr(v *pyValue) (DType, ByteOrder, error) {
 				}
 			}
 		}
-		return 0, 0, fmt.Errorf("%w: descr %s (%s); supported: %s", ErrDType, v.text, what, supportedDescrs)
+		return 0, 0, fmt.Errorf("%w: %s: 'descr' = %s (%s); want one of %s", ErrDType, fn, v.text, what, supportedDescrs)
 	}
 	if dt.Size() == 1 {
 		return dt, LittleEndian, nil
@@ -355,7 +359,8 @@ func parseDescr(v *pyValue) (DType, ByteOrder, error) {
 	case '>':
 		return dt, BigEndian, nil
 	}
-	return 0, 0, fmt.Errorf("%w: descr %s gives no byte order for a %d-byte type; want '<' or '>' (a file does not say which machine's native order '=' or none meant)", ErrDType, v.text, dt.Size())
+	return 0, 0, fmt.Errorf("%w: %s: 'descr' = %s, no byte order for a type of %d bytes; want '<' or '>' (a file does not say which machine's native order '=' or none meant)",
+		ErrDType, fn, v.text, dt.Size())
 }
 
 // growthDigits is the room NumPy leaves after the dictionary (21 characters

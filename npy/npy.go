@@ -10,7 +10,14 @@ import (
 )
 
 // The sentinel errors. Every error this package returns wraps exactly one of
-// them (match with errors.Is) and says what was found and what was expected.
+// them (match with errors.Is) and reads
+//
+//	<sentinel>: <function>: <what> = <value>; want <expectation>
+//
+// naming the function called (with the file's path for ReadFile and
+// WriteFile), what was found and what was expected. (An error of the
+// reader or writer itself, or of opening a file, is returned wrapped as it
+// is.)
 var (
 	// ErrFormat: the bytes are not a .npy file this package can parse: a
 	// wrong magic string, an unknown version, a header that is not a
@@ -313,7 +320,7 @@ type Array struct {
 // little-endian, the file order C, and the version chosen by Write.
 func New(dt DType, shape []int, values any) (*Array, error) {
 	a := &Array{Header: Header{DType: dt, Shape: shape}, Values: values}
-	if err := a.check(); err != nil {
+	if err := a.check(arrayArgs{fn: "New", dtype: "dt", shape: "shape", values: "values", bits: "Array.Bits"}); err != nil {
 		return nil, err
 	}
 	return a, nil
@@ -323,19 +330,20 @@ func New(dt DType, shape []int, values any) (*Array, error) {
 // dimensions, 1 for a scalar. It returns -1 if a dimension is negative or
 // the product overflows an int.
 func (h *Header) Len() int {
-	n, err := count(h.Shape)
+	n, err := count("Header.Len", "Header.Shape", h.Shape)
 	if err != nil {
 		return -1
 	}
 	return n
 }
 
-// count is the element count of a shape, checked.
-func count(shape []int) (int, error) {
+// count is the element count of a shape, checked for a call of fn, which
+// calls the shape name.
+func count(fn, name string, shape []int) (int, error) {
 	empty := false
 	for i, d := range shape {
 		if d < 0 {
-			return 0, fmt.Errorf("%w: dimension %d is %d, want ≥ 0", ErrShape, i, d)
+			return 0, fmt.Errorf("%w: %s: %s[%d] = %d; want ≥ 0", ErrShape, fn, name, i, d)
 		}
 		empty = empty || d == 0
 	}
@@ -345,7 +353,7 @@ func count(shape []int) (int, error) {
 	n := 1
 	for i, d := range shape {
 		if n > math.MaxInt/d {
-			return 0, fmt.Errorf("%w: shape %v holds more than %d elements (overflow at dimension %d)", ErrShape, shape, math.MaxInt, i)
+			return 0, fmt.Errorf("%w: %s: %s = %v; want at most %d elements (the count overflows at dimension %d)", ErrShape, fn, name, shape, math.MaxInt, i)
 		}
 		n *= d
 	}
@@ -371,25 +379,36 @@ func (a *Array) valuesLen() (int, bool) {
 	return 0, false
 }
 
+// arrayArgs names, in messages, the function called and how it took an
+// Array's type, shape, values and bit reading: New's arguments, or the
+// fields of an Array.
+type arrayArgs struct{ fn, dtype, shape, values, bits string }
+
+// fields names an Array's parts as its fields, for a call of fn.
+func fields(fn string) arrayArgs {
+	return arrayArgs{fn: fn, dtype: "Array.DType", shape: "Array.Shape", values: "Array.Values", bits: "Array.Bits"}
+}
+
 // check validates the array: known type, valid shape, values of the right
 // type and length, an interpretation that fits.
-func (a *Array) check() error {
-	if !a.DType.valid() {
-		return fmt.Errorf("%w: DType %v is not one of the supported types", ErrDType, a.DType)
+func (a *Array) check(args arrayArgs) error {
+	fn := args.fn
+	if err := dtypeWords.CheckAt(fn+": "+args.dtype, a.DType); err != nil {
+		return err
 	}
-	n, err := count(a.Shape)
+	n, err := count(fn, args.shape, a.Shape)
 	if err != nil {
 		return err
 	}
 	got, ok := a.valuesLen()
 	if !ok {
-		return fmt.Errorf("%w: Values is %T, DType %v needs %s", ErrValues, a.Values, a.DType, a.DType.goType())
+		return fmt.Errorf("%w: %s: %s is a %T; want a %s for DType %v", ErrValues, fn, args.values, a.Values, a.DType.goType(), a.DType)
 	}
 	if got != n {
-		return fmt.Errorf("%w: Values has %d elements, shape %v needs %d", ErrValues, got, a.Shape, n)
+		return fmt.Errorf("%w: %s: %s has %d elements; want %d for shape %v", ErrValues, fn, args.values, got, n, a.Shape)
 	}
 	if !a.Bits.fits(a.DType) {
-		return fmt.Errorf("%w: Bits %v does not apply to DType %v", ErrBits, a.Bits, a.DType)
+		return fmt.Errorf("%w: %s: %s = %v; want integer for DType %v (bfloat16 reads uint16, e4m3 and e5m2 uint8)", ErrBits, fn, args.bits, a.Bits, a.DType)
 	}
 	return nil
 }
@@ -412,7 +431,8 @@ func (a *Array) check() error {
 //	−0                  −0
 //	invalid Array       ErrDType, ErrShape, ErrValues or ErrBits
 func (a *Array) Float64s() ([]float64, error) {
-	if err := a.check(); err != nil {
+	const fn = "Array.Float64s"
+	if err := a.check(fields(fn)); err != nil {
 		return nil, err
 	}
 	switch v := a.Values.(type) {
@@ -427,7 +447,7 @@ func (a *Array) Float64s() ([]float64, error) {
 		for i, x := range v {
 			f := float64(x)
 			if f >= 0x1p63 || int64(f) != x {
-				return nil, fmt.Errorf("%w: element %d is %d, which float64 cannot hold (nearest %v)", ErrInexact, i, x, f)
+				return nil, fmt.Errorf("%w: %s: Array.Values[%d] = %d; want an integer float64 holds exactly (the nearest is %v)", ErrInexact, fn, i, x, f)
 			}
 			out[i] = f
 		}
@@ -449,7 +469,7 @@ func (a *Array) Float64s() ([]float64, error) {
 		}
 		return convert(v, func(x uint8) float64 { return float64(x) }), nil
 	}
-	return nil, fmt.Errorf("%w: Values is %T", ErrValues, a.Values) // not reached: check accepted it
+	return nil, fmt.Errorf("%w: %s: Array.Values is a %T; want one of the Values slice types", ErrValues, fn, a.Values) // not reached: check accepted it
 }
 
 func convert[T any](v []T, f func(T) float64) []float64 {

@@ -314,7 +314,7 @@ func TestGoWritesNumPyReads(t *testing.T) {
 			}
 		}
 		for _, shape := range [][]int{{}, {0, 3}, {5}, {1, 1}} {
-			n, _ := count(shape)
+			n, _ := count("test", "shape", shape)
 			save(&Array{Header: Header{DType: dt, Shape: shape}, Values: randomValues(dt, n, r)})
 		}
 	}

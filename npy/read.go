@@ -44,24 +44,27 @@ const chunk = 1 << 16
 //	header length > MaxHeaderLen       ErrFormat, before reading it
 //	unsupported descr                  ErrDType, naming the descriptor
 //	negative or overflowing shape      ErrShape
-func ReadHeader(r io.Reader) (Header, error) {
+func ReadHeader(r io.Reader) (Header, error) { return readHeader("ReadHeader", r) }
+
+// readHeader is ReadHeader for a call of fn.
+func readHeader(fn string, r io.Reader) (Header, error) {
 	var pre [10]byte
 	if n, err := io.ReadFull(r, pre[:8]); err != nil {
-		return Header{}, fmt.Errorf("%w: %d bytes, want at least 10 (magic string, version, header length): %v", ErrFormat, n, err)
+		return Header{}, fmt.Errorf("%w: %s: the file has %d bytes (%v); want at least 10 (magic string, version, header length)", ErrFormat, fn, n, err)
 	}
 	if string(pre[:6]) != magic {
-		return Header{}, fmt.Errorf("%w: starts with %q, want the magic string %q", ErrFormat, pre[:6], magic)
+		return Header{}, fmt.Errorf("%w: %s: the file starts with %q; want the magic string %q", ErrFormat, fn, pre[:6], magic)
 	}
 	v := Version{pre[6], pre[7]}
 	if !v.known() {
-		return Header{}, fmt.Errorf("%w: format version %v, want 1.0, 2.0 or 3.0", ErrFormat, v)
+		return Header{}, fmt.Errorf("%w: %s: format version = %v; want 1.0, 2.0 or 3.0", ErrFormat, fn, v)
 	}
 	lenSize := 4
 	if v == Version1 {
 		lenSize = 2
 	}
 	if _, err := io.ReadFull(r, pre[:lenSize]); err != nil {
-		return Header{}, fmt.Errorf("%w: file ends inside the %d-byte header length: %v", ErrFormat, lenSize, err)
+		return Header{}, fmt.Errorf("%w: %s: the file ends inside the %d-byte header length (%v); want all of it", ErrFormat, fn, lenSize, err)
 	}
 	var hlen uint64
 	if lenSize == 2 {
@@ -70,22 +73,22 @@ func ReadHeader(r io.Reader) (Header, error) {
 		hlen = uint64(binary.LittleEndian.Uint32(pre[:4]))
 	}
 	if hlen > MaxHeaderLen {
-		return Header{}, fmt.Errorf("%w: header length %d, more than the %d this package reads", ErrFormat, hlen, MaxHeaderLen)
+		return Header{}, fmt.Errorf("%w: %s: header length = %d; want at most MaxHeaderLen = %d", ErrFormat, fn, hlen, MaxHeaderLen)
 	}
 	raw, err := readN(r, int(hlen))
 	if err != nil {
-		return Header{}, fmt.Errorf("%w: header of %d bytes: %v", ErrFormat, hlen, err)
+		return Header{}, fmt.Errorf("%w: %s: the header of %d bytes ends early (%v); want all of it", ErrFormat, fn, hlen, err)
 	}
 	var text string
 	if v == Version3 {
 		if !utf8.Valid(raw) {
-			return Header{}, fmt.Errorf("%w: version 3.0 header is not valid UTF-8", ErrFormat)
+			return Header{}, fmt.Errorf("%w: %s: a version 3.0 header that is not UTF-8; want valid UTF-8", ErrFormat, fn)
 		}
 		text = string(raw)
 	} else {
 		text = latin1(raw)
 	}
-	h, err := parseHeader(text)
+	h, err := parseHeader(fn, text)
 	if err != nil {
 		return Header{}, err
 	}
@@ -121,19 +124,22 @@ func latin1(b []byte) string {
 //	shape ()                      one element
 //	data shorter than promised    ErrData, saying how many bytes came
 //	errors of ReadHeader          as there
-func Read(r io.Reader) (*Array, error) {
-	h, err := ReadHeader(r)
+func Read(r io.Reader) (*Array, error) { return read("Read", r) }
+
+// read is Read for a call of fn.
+func read(fn string, r io.Reader) (*Array, error) {
+	h, err := readHeader(fn, r)
 	if err != nil {
 		return nil, err
 	}
-	n, _ := count(h.Shape) // checked by ReadHeader
+	n, _ := count(fn, "'shape'", h.Shape) // checked by readHeader
 	size := h.DType.Size()
 	if n > math.MaxInt/size {
-		return nil, fmt.Errorf("%w: shape %v of %v needs more than %d bytes", ErrShape, h.Shape, h.DType, math.MaxInt)
+		return nil, fmt.Errorf("%w: %s: 'shape' = %v of %v, more than %d bytes; want a size that fits an int", ErrShape, fn, h.Shape, h.DType, math.MaxInt)
 	}
 	data, err := readN(r, n*size)
 	if err != nil {
-		return nil, fmt.Errorf("%w: shape %v of %v needs %d bytes of data: %v", ErrData, h.Shape, h.DType, n*size, err)
+		return nil, fmt.Errorf("%w: %s: the data ends early (%v); want the %d bytes that shape %v of %v needs", ErrData, fn, err, n*size, h.Shape, h.DType)
 	}
 	a := &Array{Header: h, Values: decode(data, h.DType, h.ByteOrder)}
 	if h.FortranOrder {
@@ -150,13 +156,15 @@ func ReadFile(path string) (*Array, error) {
 		return nil, err
 	}
 	defer f.Close()
-	a, err := Read(f)
+	fn := "ReadFile: " + path
+	a, err := read(fn, f)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %w", path, err)
+		return nil, err
 	}
 	var one [1]byte
 	if k, _ := f.Read(one[:]); k != 0 {
-		return nil, fmt.Errorf("%s: %w: bytes follow the %d bytes of data that shape %v of %v needs", path, ErrData, a.Len()*a.DType.Size(), a.Shape, a.DType)
+		return nil, fmt.Errorf("%w: %s: bytes follow the %d bytes of data that shape %v of %v needs; want the file to end there",
+			ErrData, fn, a.Len()*a.DType.Size(), a.Shape, a.DType)
 	}
 	return a, nil
 }

@@ -40,17 +40,20 @@ import (
 //	header longer than MaxHeaderLen   ErrShape (too many dimensions)
 //	unknown Version                   ErrFormat
 //	w fails                           its error, wrapped
-func Write(w io.Writer, a *Array) error {
+func Write(w io.Writer, a *Array) error { return write("Write", w, a) }
+
+// write is Write for a call of fn.
+func write(fn string, w io.Writer, a *Array) error {
 	if a == nil {
-		return fmt.Errorf("%w: Array is nil", ErrValues)
+		return fmt.Errorf("%w: %s: a = nil; want an Array", ErrValues, fn)
 	}
-	if err := a.check(); err != nil {
+	if err := a.check(fields(fn)); err != nil {
 		return err
 	}
-	if a.ByteOrder != LittleEndian && a.ByteOrder != BigEndian {
-		return fmt.Errorf("%w: %v is neither LittleEndian nor BigEndian", ErrDType, a.ByteOrder)
+	if err := orderWords.CheckAt(fn+": Array.ByteOrder", a.ByteOrder); err != nil {
+		return err
 	}
-	head, err := header(&a.Header)
+	head, err := header(fn, &a.Header)
 	if err != nil {
 		return err
 	}
@@ -62,13 +65,14 @@ func Write(w io.Writer, a *Array) error {
 	}
 	encode(bw, v, a.ByteOrder)
 	if err := bw.Flush(); err != nil {
-		return fmt.Errorf("npy: writing %v array of shape %v: %w", a.DType, a.Shape, err)
+		return fmt.Errorf("npy: %s: writing a %v array of shape %v: %w", fn, a.DType, a.Shape, err)
 	}
 	return nil
 }
 
-// header returns magic string, version, length and padded header.
-func header(h *Header) (string, error) {
+// header returns magic string, version, length and padded header, for a
+// call of fn.
+func header(fn string, h *Header) (string, error) {
 	dict := formatDict(h)
 	v := h.Version
 	switch {
@@ -78,7 +82,7 @@ func header(h *Header) (string, error) {
 			v = Version2
 		}
 	case !v.known():
-		return "", fmt.Errorf("%w: Version %v, want 1.0, 2.0, 3.0 or zero (choose)", ErrFormat, v)
+		return "", fmt.Errorf("%w: %s: Array.Version = %v; want 1.0, 2.0, 3.0 or zero (choose)", ErrFormat, fn, v)
 	}
 	lenSize := 4
 	if v == Version1 {
@@ -86,10 +90,11 @@ func header(h *Header) (string, error) {
 	}
 	hlen := padded(dict, lenSize)
 	if hlen > MaxHeaderLen {
-		return "", fmt.Errorf("%w: shape of %d dimensions makes a header of %d bytes, more than MaxHeaderLen %d", ErrShape, len(h.Shape), hlen, MaxHeaderLen)
+		return "", fmt.Errorf("%w: %s: Array.Shape has %d dimensions, a header of %d bytes; want at most MaxHeaderLen = %d bytes", ErrShape, fn, len(h.Shape), hlen, MaxHeaderLen)
 	}
 	if lenSize == 2 && hlen > math.MaxUint16 {
-		return "", fmt.Errorf("%w: header of %d bytes does not fit version 1.0 (at most %d); use Version2 or leave Version zero", ErrFormat, hlen, math.MaxUint16)
+		return "", fmt.Errorf("%w: %s: Array.Version = 1.0 with a header of %d bytes, which does not fit version 1.0; want at most %d bytes, or Version2, or zero (choose)",
+			ErrFormat, fn, hlen, math.MaxUint16)
 	}
 	var b strings.Builder
 	b.WriteString(magic)
@@ -153,9 +158,9 @@ func WriteFile(path string, a *Array) error {
 	if err != nil {
 		return err
 	}
-	if err := Write(f, a); err != nil {
+	if err := write("WriteFile: "+path, f, a); err != nil {
 		f.Close()
-		return fmt.Errorf("%s: %w", path, err)
+		return err
 	}
 	return f.Close()
 }

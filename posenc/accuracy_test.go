@@ -35,7 +35,7 @@ func TestLargePositionAngles(t *testing.T) {
 		require.NoError(t, err)
 		h := cfg.Rotated / 2
 		r := Rotary{Dim: cfg.Dim, Rotated: cfg.Rotated, Base: cfg.Base}
-		rs, err := r.resolve()
+		rs, err := r.resolve("Rotary.Tables")
 		require.NoError(t, err)
 		for _, limit := range []int64{1_000_000, math.MaxInt32} {
 			var got = map[string][]float64{}

@@ -32,7 +32,7 @@ import (
 //	heads ≤ 0          ErrHeads
 func ALiBiSlopes(heads int) ([]float64, error) {
 	if heads <= 0 {
-		return nil, fmt.Errorf("%w: heads = %d; want > 0", ErrHeads, heads)
+		return nil, fmt.Errorf("%w: ALiBiSlopes: heads = %d; want > 0", ErrHeads, heads)
 	}
 	c := 1 << (bits.Len(uint(heads)) - 1)
 	out := make([]float64, 0, heads)
@@ -97,7 +97,7 @@ func exp2Neg(num, den int) float64 {
 //	p(i) outside 0 … Lk−1 with the causal or past-only form  ErrPosition
 //	|Offset| or |p(i)| > MaxPosition  ErrPosition
 func ALiBiBias(slopes []float64, g mask.Geometry, form mask.ALiBiForm) ([]float64, error) {
-	return alibiBias(slopes, g, form)
+	return alibiBias("ALiBiBias", slopes, g, form)
 }
 
 // ALiBiBias32 is the float32 instantiation of the same body as ALiBiBias:
@@ -105,46 +105,51 @@ func ALiBiBias(slopes []float64, g mask.Geometry, form mask.ALiBiForm) ([]float6
 // as a yardstick; not a reference. Each entry is the float32 product of the
 // float32 slope and the distance (exact in float32 up to 2^24).
 func ALiBiBias32(slopes []float32, g mask.Geometry, form mask.ALiBiForm) ([]float32, error) {
-	return alibiBias(slopes, g, form)
+	return alibiBias("ALiBiBias32", slopes, g, form)
 }
 
-func alibiBias[T num.Float](slopes []T, g mask.Geometry, form mask.ALiBiForm) ([]T, error) {
+func alibiBias[T num.Float](fn string, slopes []T, g mask.Geometry, form mask.ALiBiForm) ([]T, error) {
 	if len(slopes) == 0 {
-		return nil, fmt.Errorf("%w: no slopes; want one per head", ErrHeads)
+		return nil, fmt.Errorf("%w: %s: slopes has 0 elements; want one per head", ErrHeads, fn)
 	}
 	for h, m := range slopes {
 		if math.IsNaN(float64(m)) || math.IsInf(float64(m), 0) {
-			return nil, fmt.Errorf("%w: slopes[%d] = %v; want a finite number", ErrHeads, h, m)
+			return nil, fmt.Errorf("%w: %s: slopes[%d] = %v; want a finite number", ErrHeads, fn, h, m)
 		}
 	}
-	if g.Batch < 0 || g.Lq < 0 || g.Lk < 0 {
-		return nil, fmt.Errorf("%w: geometry %v; sizes must be ≥ 0", ErrShape, g)
+	for _, s := range []struct {
+		name string
+		v    int
+	}{{"Batch", g.Batch}, {"Lq", g.Lq}, {"Lk", g.Lk}} {
+		if s.v < 0 {
+			return nil, fmt.Errorf("%w: %s: g.%s = %d; want ≥ 0", ErrShape, fn, s.name, s.v)
+		}
 	}
 	if err := g.Align.Check(); err != nil {
-		return nil, vocab.At(err, ErrOption, "g.Align")
+		return nil, vocab.At(err, ErrOption, fn+": g.Align")
 	}
 	if err := form.Check(); err != nil {
-		return nil, vocab.At(err, ErrOption, "form")
+		return nil, vocab.At(err, ErrOption, fn+": form")
 	}
 	H := len(slopes)
 	if g.Lq > 0 && g.Lk > 0 && (g.Lk > maxElements/g.Lq || g.Lq*g.Lk > maxElements/H) {
-		return nil, fmt.Errorf("%w: H·Lq·Lk = %d·%d·%d elements; want at most 2^40", ErrShape, H, g.Lq, g.Lk)
+		return nil, fmt.Errorf("%w: %s: H·Lq·Lk = %d·%d·%d; want at most 2^40 elements", ErrShape, fn, H, g.Lq, g.Lk)
 	}
 	if g.Lq > 0 {
 		// Offset first, so that p(i) cannot overflow.
-		if err := checkPosition("Offset", g.Offset, true); err != nil {
+		if err := checkPosition(fn, "g.Offset", g.Offset, true); err != nil {
 			return nil, err
 		}
 		first, last := g.Pos(0), g.Pos(g.Lq-1)
-		if err := checkPosition("the first query position p(0)", first, true); err != nil {
+		if err := checkPosition(fn, "the first query position p(0)", first, true); err != nil {
 			return nil, err
 		}
-		if err := checkPosition("the last query position p(Lq−1)", last, true); err != nil {
+		if err := checkPosition(fn, "the last query position p(Lq−1)", last, true); err != nil {
 			return nil, err
 		}
 		if form != mask.ALiBiSymmetric && (first < 0 || last >= g.Lk) {
-			return nil, fmt.Errorf("%w: %v puts queries at key positions %d … %d; the %s form needs them within 0 … %d",
-				ErrPosition, g, first, last, form, g.Lk-1)
+			return nil, fmt.Errorf("%w: %s: query positions p(0) … p(Lq−1) = %d … %d (g = %v); want them within 0 … Lk−1 = %d for the %s form",
+				ErrPosition, fn, first, last, g, g.Lk-1, form)
 		}
 	}
 	out := make([]T, H*g.Lq*g.Lk)

@@ -108,9 +108,11 @@
 // Sinusoidal.Add32, ALiBiBias32) are yardsticks, not references: the same
 // bodies run in float32 on the reference tables rounded to float32.
 //
-// Every error wraps one of the package's sentinel errors (ErrDim, ErrBase,
-// ErrFactor, ErrLength, ErrPosition, ErrHeads, ErrShape, ErrOption) and
-// names the argument and its value. No function panics on its arguments.
+// Every error wraps exactly one of the package's sentinel errors (ErrDim,
+// ErrBase, ErrFactor, ErrLength, ErrPosition, ErrHeads, ErrShape,
+// ErrOption) and names the function called, the argument, its value and
+// what was wanted ("posenc: invalid base: Rotary.Apply: Rotary.Base = 1;
+// want a finite number > 1"). No function panics on its arguments.
 // Results are deterministic: the same inputs give bit-identical outputs
 // for any GOMAXPROCS (nothing runs in parallel). The package's own
 // arithmetic is written so that no compiler fuses it (float64(x*y) where a

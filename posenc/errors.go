@@ -6,8 +6,12 @@ import (
 )
 
 // Sentinel errors. Every error returned by this package wraps exactly one of
-// them, so callers can match with errors.Is; the message names the argument,
-// what was expected and what was given.
+// them, so callers can match with errors.Is. The message reads
+//
+//	<sentinel>: <function>: <argument> = <value>; want <expectation>
+//
+// naming the exported function or method called ("Rotary.Apply"), the
+// argument or field, what was given and what was expected.
 var (
 	// ErrDim: a dimension that is not positive or exceeds MaxDim, an odd
 	// number of rotated or sinusoidal dims, or more rotated dims than the
@@ -33,7 +37,7 @@ var (
 	ErrShape = errors.New("posenc: shape mismatch")
 	// ErrOption: an enumerated option (layout, pairing, method, ramp, form,
 	// alignment) that is not one of its named values.
-	ErrOption = errors.New("posenc: unknown option")
+	ErrOption = errors.New("posenc: invalid option")
 )
 
 // MaxPosition is the largest position magnitude accepted, 2^31 − 1 (it

@@ -187,139 +187,127 @@ var goldenConfigs = map[string]func() any{
 	"alibi_bias":       func() any { return new(alibiBiasCfg) },
 }
 
+// eachCase runs check, as a subtest, on every case of the family with its
+// configuration decoded into a C.
+func eachCase[C any](t *testing.T, family string, check func(t *testing.T, c *golden.Case, cfg *C)) {
+	for _, c := range golden.MustLoadFamily(t, "posenc", family).Cases {
+		t.Run(c.Name, func(t *testing.T) {
+			var cfg C
+			require.NoError(t, c.DecodeConfig(&cfg))
+			check(t, c, &cfg)
+		})
+	}
+}
+
 func TestGoldenSinusoidal(t *testing.T) {
 	w := worst{}
 	defer w.log(t)
-	f := golden.MustLoadFamily(t, "posenc", "sinusoidal_table")
-	for _, c := range f.Cases {
-		t.Run(c.Name, func(t *testing.T) {
-			var cfg sinusoidalCfg
-			require.NoError(t, c.DecodeConfig(&cfg))
-			got, err := cfg.sinusoidal().Table(cfg.Length, cfg.Offset)
-			require.NoError(t, err)
-			checkNorm(t, w, "Sinusoidal.Table", c, "table", got, tableBound)
-		})
-	}
-	f = golden.MustLoadFamily(t, "posenc", "sinusoidal_add")
-	for _, c := range f.Cases {
-		t.Run(c.Name, func(t *testing.T) {
-			var cfg sinusoidalCfg
-			require.NoError(t, c.DecodeConfig(&cfg))
-			x, _, err := c.Float("x")
-			require.NoError(t, err)
-			got, err := cfg.sinusoidal().Add(x, cfg.Length, cfg.Offset)
-			require.NoError(t, err)
-			checkNorm(t, w, "Sinusoidal.Add", c, "y", got, tableBound)
-		})
-	}
+	eachCase(t, "sinusoidal_table", func(t *testing.T, c *golden.Case, cfg *sinusoidalCfg) {
+		got, err := cfg.sinusoidal().Table(cfg.Length, cfg.Offset)
+		require.NoError(t, err)
+		checkNorm(t, w, "Sinusoidal.Table", c, "table", got, tableBound)
+	})
+	eachCase(t, "sinusoidal_add", func(t *testing.T, c *golden.Case, cfg *sinusoidalCfg) {
+		x, _, err := c.Float("x")
+		require.NoError(t, err)
+		got, err := cfg.sinusoidal().Add(x, cfg.Length, cfg.Offset)
+		require.NoError(t, err)
+		checkNorm(t, w, "Sinusoidal.Add", c, "y", got, tableBound)
+	})
 }
 
 func TestGoldenRotaryTables(t *testing.T) {
 	w := worst{}
 	defer w.log(t)
-	f := golden.MustLoadFamily(t, "posenc", "rotary_tables")
-	for _, c := range f.Cases {
-		t.Run(c.Name, func(t *testing.T) {
-			var cfg rotaryCfg
-			require.NoError(t, c.DecodeConfig(&cfg))
-			r, _ := cfg.rotary(t, c)
-			th, err := r.Frequencies()
-			require.NoError(t, err)
-			checkExact(t, c, "theta", th)
-			cos, sin, err := r.Tables(positions(t, c))
-			require.NoError(t, err)
-			checkNorm(t, w, "Rotary.Tables", c, "cos", cos, tableBound)
-			checkNorm(t, w, "Rotary.Tables", c, "sin", sin, tableBound)
-		})
-	}
+	eachCase(t, "rotary_tables", func(t *testing.T, c *golden.Case, cfg *rotaryCfg) {
+		r, _ := cfg.rotary(t, c)
+		th, err := r.Frequencies()
+		require.NoError(t, err)
+		checkExact(t, c, "theta", th)
+		cos, sin, err := r.Tables(positions(t, c))
+		require.NoError(t, err)
+		checkNorm(t, w, "Rotary.Tables", c, "cos", cos, tableBound)
+		checkNorm(t, w, "Rotary.Tables", c, "sin", sin, tableBound)
+	})
 }
 
 func runApplyFamily(t *testing.T, family string) {
 	w := worst{}
 	defer w.log(t)
-	f := golden.MustLoadFamily(t, "posenc", family)
-	for _, c := range f.Cases {
-		t.Run(c.Name, func(t *testing.T) {
-			var cfg rotaryCfg
-			require.NoError(t, c.DecodeConfig(&cfg))
-			r, pos := cfg.rotary(t, c)
-			x, _, err := c.Float("x")
+	eachCase(t, family, func(t *testing.T, c *golden.Case, cfg *rotaryCfg) {
+		r, pos := cfg.rotary(t, c)
+		x, _, err := c.Float("x")
+		require.NoError(t, err)
+		th, err := r.Frequencies()
+		require.NoError(t, err)
+		checkExact(t, c, "theta", th)
+		y, err := r.Apply(x, cfg.Length, pos)
+		require.NoError(t, err)
+		checkNorm(t, w, "Rotary.Apply", c, "y", y, tableBound)
+		if c.Has("y_inverse") {
+			yi, err := r.ApplyInverse(x, cfg.Length, pos)
 			require.NoError(t, err)
-			th, err := r.Frequencies()
-			require.NoError(t, err)
-			checkExact(t, c, "theta", th)
-			y, err := r.Apply(x, cfg.Length, pos)
-			require.NoError(t, err)
-			checkNorm(t, w, "Rotary.Apply", c, "y", y, tableBound)
-			if c.Has("y_inverse") {
-				yi, err := r.ApplyInverse(x, cfg.Length, pos)
-				require.NoError(t, err)
-				checkNorm(t, w, "Rotary.ApplyInverse", c, "y_inverse", yi, tableBound)
-			}
-		})
-	}
+			checkNorm(t, w, "Rotary.ApplyInverse", c, "y_inverse", yi, tableBound)
+		}
+	})
 }
 
 func TestGoldenRotaryApply(t *testing.T) { runApplyFamily(t, "rotary_apply") }
 
 func TestGoldenScaling(t *testing.T) { runApplyFamily(t, "scaling") }
 
-func TestGoldenNTKBase(t *testing.T) {
-	for _, c := range golden.MustLoadFamily(t, "posenc", "ntk_base").Cases {
-		var cfg ntkBaseCfg
-		require.NoError(t, c.DecodeConfig(&cfg))
-		got, err := NTKBase(cfg.Base, cfg.Factor, cfg.Rotated)
+// checkFamily runs run on the configuration, of type C, of every case of
+// the family and checks its result against the case's output exactly.
+func checkFamily[C any](t *testing.T, family, output string, run func(C) ([]float64, error)) {
+	eachCase(t, family, func(t *testing.T, c *golden.Case, cfg *C) {
+		got, err := run(*cfg)
 		require.NoError(t, err, c.String())
-		checkExact(t, c, "base_scaled", []float64{got})
+		checkExact(t, c, output, got)
+	})
+}
+
+// one makes a function of one result return it as a slice.
+func one[C any](f func(C) (float64, error)) func(C) ([]float64, error) {
+	return func(cfg C) ([]float64, error) {
+		v, err := f(cfg)
+		return []float64{v}, err
 	}
+}
+
+func TestGoldenNTKBase(t *testing.T) {
+	checkFamily(t, "ntk_base", "base_scaled", one(func(cfg ntkBaseCfg) (float64, error) { return NTKBase(cfg.Base, cfg.Factor, cfg.Rotated) }))
 }
 
 func TestGoldenYaRNMagnitude(t *testing.T) {
-	for _, c := range golden.MustLoadFamily(t, "posenc", "yarn_magnitude").Cases {
-		var cfg yarnMagnitudeCfg
-		require.NoError(t, c.DecodeConfig(&cfg))
-		got, err := YaRNMagnitude(cfg.Factor)
-		require.NoError(t, err, c.String())
-		checkExact(t, c, "magnitude", []float64{got})
-	}
+	checkFamily(t, "yarn_magnitude", "magnitude", one(func(cfg yarnMagnitudeCfg) (float64, error) { return YaRNMagnitude(cfg.Factor) }))
 }
 
 func TestGoldenALiBiSlopes(t *testing.T) {
-	for _, c := range golden.MustLoadFamily(t, "posenc", "alibi_slopes").Cases {
-		var cfg alibiSlopesCfg
-		require.NoError(t, c.DecodeConfig(&cfg))
-		got, err := ALiBiSlopes(cfg.Heads)
-		require.NoError(t, err, c.String())
-		checkExact(t, c, "slopes", got)
-	}
+	checkFamily(t, "alibi_slopes", "slopes", func(cfg alibiSlopesCfg) ([]float64, error) { return ALiBiSlopes(cfg.Heads) })
 }
 
 func TestGoldenALiBiBias(t *testing.T) {
-	for _, c := range golden.MustLoadFamily(t, "posenc", "alibi_bias").Cases {
-		t.Run(c.Name, func(t *testing.T) {
-			var cfg alibiBiasCfg
-			require.NoError(t, c.DecodeConfig(&cfg))
-			slopes, _, err := c.Float("slopes")
-			require.NoError(t, err)
-			g := mask.Geometry{Batch: 1, Lq: cfg.Queries, Lk: cfg.Keys, Align: cfg.Align, Offset: cfg.Offset}
-			got, err := ALiBiBias(slopes, g, cfg.Form)
-			require.NoError(t, err)
-			checkExact(t, c, "bias", got)
-			// The bias is claimed bit-exact, zeros included: a distance of
-			// 0 gives +0, never −0.
-			for i, v := range got {
-				if v == 0 {
-					assert.False(t, math.Signbit(v), "%s: bias[%d] = −0", c, i)
-				}
+	eachCase(t, "alibi_bias", func(t *testing.T, c *golden.Case, cfg *alibiBiasCfg) {
+		slopes, _, err := c.Float("slopes")
+		require.NoError(t, err)
+		g := mask.Geometry{Batch: 1, Lq: cfg.Queries, Lk: cfg.Keys, Align: cfg.Align, Offset: cfg.Offset}
+		got, err := ALiBiBias(slopes, g, cfg.Form)
+		require.NoError(t, err)
+		checkExact(t, c, "bias", got)
+		// The bias is claimed bit-exact, zeros included: a distance of
+		// 0 gives +0, never −0.
+		for i, v := range got {
+			if v == 0 {
+				assert.False(t, math.Signbit(v), "%s: bias[%d] = −0", c, i)
 			}
-		})
-	}
+		}
+	})
 }
 
 // TestGoldenWords requires every word of the package's conventions, and of
 // the mask conventions ALiBiBias takes, to appear in some golden case: a
-// word added to one of them fails here until fam_posenc.py writes a case
-// for it.
+// word added to one of them fails here until testdata/gen/fam_posenc.py
+// writes a case for it.
 func TestGoldenWords(t *testing.T) {
 	var w golden.Words
 	for fam, cfg := range goldenConfigs {

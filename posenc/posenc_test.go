@@ -2,7 +2,6 @@ package posenc
 
 import (
 	"encoding/json"
-	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -63,8 +62,9 @@ func TestWorkedRotary(t *testing.T) {
 }
 
 func TestWorkedInterpolation(t *testing.T) {
-	// Chen et al. 2023 §2.3: L = 2048, L′ = 8192, so s = 4 and position
-	// 6000 is encoded as 6000·L/L′ = 1500 (FORMULAS check). The angles are
+	// Chen et al. 2023, arXiv 2306.15595, §2.3 Eq. (4), f′(x, m) = f(x, m/s)
+	// with s = L′/L (the formula at Interpolation): L = 2048, L′ = 8192, so
+	// s = 4 and position 6000 is encoded as 6000/4 = 1500. The angles are
 	// the same real numbers, and both paths round them identically.
 	pi := Rotary{Dim: 64, Scaling: Scaling{Method: Interpolation, Factor: 8192.0 / 2048}}
 	c1, s1, err := pi.Tables([]int{6000})
@@ -126,12 +126,7 @@ func TestWorkedALiBiBias(t *testing.T) {
 	slopes := []float64{0.5, 0.25}
 	const L = 4
 	g := mask.Geometry{Batch: 1, Lq: L, Lk: L}
-	causal, err := ALiBiBias(slopes, g, mask.ALiBiCausal)
-	require.NoError(t, err)
-	past, err := ALiBiBias(slopes, g, mask.ALiBiPastOnly)
-	require.NoError(t, err)
-	sym, err := ALiBiBias(slopes, g, mask.ALiBiSymmetric)
-	require.NoError(t, err)
+	causal, sym, past := biasForms(t, slopes, g)
 	for h, m := range slopes {
 		for i := 1; i <= L; i++ {
 			k := (h*L + i - 1) * L
@@ -425,6 +420,18 @@ func TestSinusoidalAdd(t *testing.T) {
 	}
 }
 
+// biasForms returns the ALiBi bias of slopes on g in each form.
+func biasForms(t *testing.T, slopes []float64, g mask.Geometry) (causal, symmetric, pastOnly []float64) {
+	t.Helper()
+	out := make([][]float64, 3)
+	for i, f := range []mask.ALiBiForm{mask.ALiBiCausal, mask.ALiBiSymmetric, mask.ALiBiPastOnly} {
+		var err error
+		out[i], err = ALiBiBias(slopes, g, f)
+		require.NoError(t, err, "%v, %v", g, f)
+	}
+	return out[0], out[1], out[2]
+}
+
 func TestALiBiForms(t *testing.T) {
 	slopes, err := ALiBiSlopes(5)
 	require.NoError(t, err)
@@ -433,12 +440,7 @@ func TestALiBiForms(t *testing.T) {
 		{Batch: 1, Lq: 3, Lk: 7, Align: mask.AlignStart, Offset: 2},
 		{Batch: 1, Lq: 1, Lk: 9},
 	} {
-		c, err := ALiBiBias(slopes, g, mask.ALiBiCausal)
-		require.NoError(t, err)
-		s, err := ALiBiBias(slopes, g, mask.ALiBiSymmetric)
-		require.NoError(t, err)
-		po, err := ALiBiBias(slopes, g, mask.ALiBiPastOnly)
-		require.NoError(t, err)
+		c, s, po := biasForms(t, slopes, g)
 		vis, err := mask.Causal().Visible(mask.Geometry{Batch: 1, Lq: g.Lq, Lk: g.Lk, Align: g.Align, Offset: g.Offset})
 		require.NoError(t, err)
 		for h := range slopes {
@@ -478,108 +480,108 @@ func TestErrors(t *testing.T) {
 		name string
 		err  error
 		want error
+		msg  string // the whole message
 	}{
-		{"odd rotary dims", apply(Rotary{Dim: 7}), ErrDim},
-		{"odd rotated", apply(Rotary{Dim: 8, Rotated: 3}), ErrDim},
-		{"r > D", apply(Rotary{Dim: 8, Rotated: 10}), ErrDim},
-		{"negative r", apply(Rotary{Dim: 8, Rotated: -2}), ErrDim},
-		{"zero dim", apply(Rotary{}), ErrDim},
-		{"base 1", apply(Rotary{Dim: 8, Base: 1}), ErrBase},
-		{"base NaN", apply(Rotary{Dim: 8, Base: nan}), ErrBase},
-		{"base +Inf", apply(Rotary{Dim: 8, Base: math.Inf(1)}), ErrBase},
-		{"pairing", apply(Rotary{Dim: 8, Pairing: 2}), ErrOption},
-		{"magnitude", apply(Rotary{Dim: 8, Magnitude: -1}), ErrFactor},
-		{"factor 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: Interpolation}}), ErrFactor},
-		{"factor < 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, Factor: -2}}), ErrFactor},
-		{"factor NaN", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: nan, TrainedLength: 10}}), ErrFactor},
-		{"factor Inf", apply(Rotary{Dim: 8, Scaling: Scaling{Method: Interpolation, Factor: math.Inf(1)}}), ErrFactor},
-		{"alpha ≥ beta", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: 4, Beta: 4}}), ErrFactor},
-		{"alpha < 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: -1, Beta: 4}}), ErrFactor},
-		{"beta NaN", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: 1, Beta: nan}}), ErrFactor},
-		{"yarn without length", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2}}), ErrLength},
-		{"ramp", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Ramp: 5}}), ErrOption},
-		{"method", apply(Rotary{Dim: 8, Scaling: Scaling{Method: 9}}), ErrOption},
-		{"dynamic without method", apply(Rotary{Dim: 8, Scaling: Scaling{CurrentLength: 9}}), ErrOption},
-		{"dynamic without trained", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, CurrentLength: 9}}), ErrLength},
-		{"negative current", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, CurrentLength: -9, TrainedLength: 4}}), ErrLength},
-		{"dynamic per-frequency", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, CurrentLength: 9, Factors: []float64{1, 1, 1, 1}}}), ErrOption},
-		{"per-frequency count", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, Factors: []float64{1, 2}}}), ErrFactor},
-		{"per-frequency zero", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, Factors: []float64{1, 0, 1, 1}}}), ErrFactor},
-		{"ntk r = 2", apply(Rotary{Dim: 8, Rotated: 2, Scaling: Scaling{Method: NTKAware, Factor: 2}}), ErrDim},
-		{"data length", func() error { _, err := Rotary{Dim: 8}.Apply(make([]float64, 9), 1, ok); return err }(), ErrShape},
-		{"rows not multiple of L", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 3, ok); return err }(), ErrShape},
-		{"L = 0", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 0, ok); return err }(), ErrShape},
-		{"L = 0, empty x", func() error { _, err := Rotary{Dim: 4}.Apply(nil, 0, ok); return err }(), ErrShape},
-		{"list length", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 1, Positions{List: []int{1, 2, 3}}); return err }(), ErrShape},
+		{"odd rotary dims", apply(Rotary{Dim: 7}), ErrDim, "posenc: invalid dimension: Rotary.Apply: rotated dims r = 7 (Rotary.Dim = 7, Rotary.Rotated = 0); want an even number: rotary rotates pairs"},
+		{"odd rotated", apply(Rotary{Dim: 8, Rotated: 3}), ErrDim, "posenc: invalid dimension: Rotary.Apply: rotated dims r = 3 (Rotary.Dim = 8, Rotary.Rotated = 3); want an even number: rotary rotates pairs"},
+		{"r > D", apply(Rotary{Dim: 8, Rotated: 10}), ErrDim, "posenc: invalid dimension: Rotary.Apply: Rotary.Rotated = 10; want 2 ≤ Rotated ≤ Dim = 8 (0 means Dim)"},
+		{"negative r", apply(Rotary{Dim: 8, Rotated: -2}), ErrDim, "posenc: invalid dimension: Rotary.Apply: Rotary.Rotated = -2; want 2 ≤ Rotated ≤ Dim = 8 (0 means Dim)"},
+		{"zero dim", apply(Rotary{}), ErrDim, "posenc: invalid dimension: Rotary.Apply: Rotary.Dim = 0; want 0 < Dim ≤ MaxDim = 1048576"},
+		{"base 1", apply(Rotary{Dim: 8, Base: 1}), ErrBase, "posenc: invalid base: Rotary.Apply: Rotary.Base = 1; want a finite number > 1"},
+		{"base NaN", apply(Rotary{Dim: 8, Base: nan}), ErrBase, "posenc: invalid base: Rotary.Apply: Rotary.Base = NaN; want a finite number > 1"},
+		{"base +Inf", apply(Rotary{Dim: 8, Base: math.Inf(1)}), ErrBase, "posenc: invalid base: Rotary.Apply: Rotary.Base = +Inf; want a finite number > 1"},
+		{"pairing", apply(Rotary{Dim: 8, Pairing: 2}), ErrOption, "posenc: invalid option: Rotary.Apply: Rotary.Pairing = 2; want one of adjacent, halves"},
+		{"magnitude", apply(Rotary{Dim: 8, Magnitude: -1}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Magnitude = -1; want a finite number > 0"},
+		{"factor 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: Interpolation}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Factor = 0; want a finite number > 0"},
+		{"factor < 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, Factor: -2}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Factor = -2; want a finite number > 0"},
+		{"factor NaN", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: nan, TrainedLength: 10}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Factor = NaN; want a finite number > 0"},
+		{"factor Inf", apply(Rotary{Dim: 8, Scaling: Scaling{Method: Interpolation, Factor: math.Inf(1)}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Factor = +Inf; want a finite number > 0"},
+		{"alpha ≥ beta", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: 4, Beta: 4}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Alpha = 4, Rotary.Scaling.Beta = 4; want finite 0 ≤ Alpha < Beta (both 0 mean YaRN's 1 and 32)"},
+		{"alpha < 0", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: -1, Beta: 4}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Alpha = -1, Rotary.Scaling.Beta = 4; want finite 0 ≤ Alpha < Beta (both 0 mean YaRN's 1 and 32)"},
+		{"beta NaN", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Alpha: 1, Beta: nan}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Alpha = 1, Rotary.Scaling.Beta = NaN; want finite 0 ≤ Alpha < Beta (both 0 mean YaRN's 1 and 32)"},
+		{"yarn without length", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2}}), ErrLength, "posenc: invalid context length: Rotary.Apply: Rotary.Scaling.TrainedLength = 0; want > 0 for YaRN"},
+		{"ramp", apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Ramp: 5}}), ErrOption, "posenc: invalid option: Rotary.Apply: Rotary.Scaling.Ramp = 5; want one of ratio, dims"},
+		{"method", apply(Rotary{Dim: 8, Scaling: Scaling{Method: 9}}), ErrOption, "posenc: invalid option: Rotary.Apply: Rotary.Scaling.Method = 9; want one of none, interpolation, ntk-aware, yarn, per-frequency"},
+		{"dynamic without method", apply(Rotary{Dim: 8, Scaling: Scaling{CurrentLength: 9}}), ErrOption, "posenc: invalid option: Rotary.Apply: Rotary.Scaling.CurrentLength = 9 with Method none; want 0: dynamic scaling needs a method"},
+		{"dynamic without trained", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, CurrentLength: 9}}), ErrLength, "posenc: invalid context length: Rotary.Apply: Rotary.Scaling.TrainedLength = 0; want > 0 for dynamic scaling"},
+		{"negative current", apply(Rotary{Dim: 8, Scaling: Scaling{Method: NTKAware, CurrentLength: -9, TrainedLength: 4}}), ErrLength, "posenc: invalid context length: Rotary.Apply: Rotary.Scaling.CurrentLength = -9; want > 0 for dynamic scaling, or 0 for none"},
+		{"dynamic per-frequency", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, CurrentLength: 9, Factors: []float64{1, 1, 1, 1}}}), ErrOption, "posenc: invalid option: Rotary.Apply: Rotary.Scaling.CurrentLength = 9 with Method per-frequency; want 0: dynamic scaling does not apply to caller-given factors"},
+		{"per-frequency count", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, Factors: []float64{1, 2}}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Factors has 2 elements; want r/2 = 4, one per pair of the 8 rotated dims"},
+		{"per-frequency zero", apply(Rotary{Dim: 8, Scaling: Scaling{Method: PerFrequency, Factors: []float64{1, 0, 1, 1}}}), ErrFactor, "posenc: invalid scaling factor: Rotary.Apply: Rotary.Scaling.Factors[1] = 0; want a finite number > 0"},
+		{"ntk r = 2", apply(Rotary{Dim: 8, Rotated: 2, Scaling: Scaling{Method: NTKAware, Factor: 2}}), ErrDim, "posenc: invalid dimension: Rotary.Apply: rotated dims r = 2 with Method ntk-aware; want r ≥ 4 for b′ = b·s^{r/(r−2)}"},
+		{"data length", func() error { _, err := Rotary{Dim: 8}.Apply(make([]float64, 9), 1, ok); return err }(), ErrShape, "posenc: shape mismatch: Rotary.Apply: x has 9 elements; want a multiple of Rotary.Dim = 8"},
+		{"rows not multiple of L", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 3, ok); return err }(), ErrShape, "posenc: shape mismatch: Rotary.Apply: x holds 2 rows of Dim values; want a multiple of L = 3"},
+		{"L = 0", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 0, ok); return err }(), ErrShape, "posenc: shape mismatch: Rotary.Apply: sequence length L = 0; want > 0"},
+		{"L = 0, empty x", func() error { _, err := Rotary{Dim: 4}.Apply(nil, 0, ok); return err }(), ErrShape, "posenc: shape mismatch: Rotary.Apply: sequence length L = 0; want > 0"},
+		{"list length", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 1, Positions{List: []int{1, 2, 3}}); return err }(), ErrShape, "posenc: shape mismatch: Rotary.Apply: pos.List has 3 elements; want L = 1, or one per row, 2"},
 		{"offset and list", func() error {
 			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: 1, List: []int{1, 2}})
 			return err
-		}(), ErrShape},
-		{"position too large", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: MaxPosition}); return err }(), ErrPosition},
+		}(), ErrShape, "posenc: shape mismatch: Rotary.Apply: pos.Offset = 1 with pos.List given; want 0: give one or the other"},
+		{"position too large", func() error { _, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{Offset: MaxPosition}); return err }(), ErrPosition, "posenc: invalid position: Rotary.Apply: pos.Offset + 1 (token 1, pos.Offset = 2147483647) = 2147483648; want −MaxPosition ≤ position ≤ MaxPosition = 2147483647"},
 		{"list position too small", func() error {
 			_, err := Rotary{Dim: 4}.Apply(x8, 2, Positions{List: []int{0, -beyond}})
 			return err
-		}(), ErrPosition},
-		{"table position", func() error { _, _, err := Rotary{Dim: 4}.Tables([]int{beyond}); return err }(), ErrPosition},
-		{"apply32 dims", func() error { _, err := Rotary{Dim: 3}.Apply32(make([]float32, 3), 1, ok); return err }(), ErrDim},
-		{"sinusoidal odd dim", func() error { _, err := Sinusoidal{Dim: 5}.Table(1, 0); return err }(), ErrDim},
-		{"sinusoidal negative position", func() error { _, err := Sinusoidal{Dim: 4}.Table(1, -1); return err }(), ErrPosition},
-		{"sinusoidal beyond MaxPosition", func() error { _, err := Sinusoidal{Dim: 4}.Table(2, MaxPosition); return err }(), ErrPosition},
-		{"sinusoidal negative n", func() error { _, err := Sinusoidal{Dim: 4}.Table(-1, 0); return err }(), ErrShape},
-		{"sinusoidal base", func() error { _, err := Sinusoidal{Dim: 4, Base: 0.5}.Table(1, 0); return err }(), ErrBase},
-		{"sinusoidal layout", func() error { _, err := Sinusoidal{Dim: 4, Layout: 7}.Table(1, 0); return err }(), ErrOption},
-		{"add shape", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 6), 1, 0); return err }(), ErrShape},
-		{"add L", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 8), 0, 0); return err }(), ErrShape},
-		{"heads 0", func() error { _, err := ALiBiSlopes(0); return err }(), ErrHeads},
-		{"heads < 0", func() error { _, err := ALiBiSlopes(-3); return err }(), ErrHeads},
-		{"no slopes", func() error { _, err := ALiBiBias(nil, mask.Geometry{Lq: 1, Lk: 1}, mask.ALiBiCausal); return err }(), ErrHeads},
+		}(), ErrPosition, "posenc: invalid position: Rotary.Apply: pos.List[1] = -2147483648; want −MaxPosition ≤ position ≤ MaxPosition = 2147483647"},
+		{"table position", func() error { _, _, err := Rotary{Dim: 4}.Tables([]int{beyond}); return err }(), ErrPosition, "posenc: invalid position: Rotary.Tables: pos[0] = 2147483648; want −MaxPosition ≤ position ≤ MaxPosition = 2147483647"},
+		{"apply32 dims", func() error { _, err := Rotary{Dim: 3}.Apply32(make([]float32, 3), 1, ok); return err }(), ErrDim, "posenc: invalid dimension: Rotary.Apply32: rotated dims r = 3 (Rotary.Dim = 3, Rotary.Rotated = 0); want an even number: rotary rotates pairs"},
+		{"sinusoidal odd dim", func() error { _, err := Sinusoidal{Dim: 5}.Table(1, 0); return err }(), ErrDim, "posenc: invalid dimension: Sinusoidal.Table: Sinusoidal.Dim = 5; want an even number in 2 … MaxDim = 1048576"},
+		{"sinusoidal negative position", func() error { _, err := Sinusoidal{Dim: 4}.Table(1, -1); return err }(), ErrPosition, "posenc: invalid position: Sinusoidal.Table: offset = -1; want 0 ≤ position ≤ MaxPosition = 2147483647"},
+		{"sinusoidal beyond MaxPosition", func() error { _, err := Sinusoidal{Dim: 4}.Table(2, MaxPosition); return err }(), ErrPosition, "posenc: invalid position: Sinusoidal.Table: offset + n − 1 = 2147483648; want 0 ≤ position ≤ MaxPosition = 2147483647"},
+		{"sinusoidal negative n", func() error { _, err := Sinusoidal{Dim: 4}.Table(-1, 0); return err }(), ErrShape, "posenc: shape mismatch: Sinusoidal.Table: n = -1; want 0 ≤ n and n·Dim ≤ 2^40 (Dim = 4)"},
+		{"sinusoidal base", func() error { _, err := Sinusoidal{Dim: 4, Base: 0.5}.Table(1, 0); return err }(), ErrBase, "posenc: invalid base: Sinusoidal.Table: Sinusoidal.Base = 0.5; want a finite number > 1"},
+		{"sinusoidal layout", func() error { _, err := Sinusoidal{Dim: 4, Layout: 7}.Table(1, 0); return err }(), ErrOption, "posenc: invalid option: Sinusoidal.Table: Sinusoidal.Layout = 7; want one of interleaved, concatenated"},
+		{"add shape", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 6), 1, 0); return err }(), ErrShape, "posenc: shape mismatch: Sinusoidal.Add: x has 6 elements; want a multiple of L·Dim = 1·4 = 4"},
+		{"add L", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 8), 0, 0); return err }(), ErrShape, "posenc: shape mismatch: Sinusoidal.Add: sequence length L = 0; want > 0"},
+		{"heads 0", func() error { _, err := ALiBiSlopes(0); return err }(), ErrHeads, "posenc: invalid heads: ALiBiSlopes: heads = 0; want > 0"},
+		{"heads < 0", func() error { _, err := ALiBiSlopes(-3); return err }(), ErrHeads, "posenc: invalid heads: ALiBiSlopes: heads = -3; want > 0"},
+		{"no slopes", func() error { _, err := ALiBiBias(nil, mask.Geometry{Lq: 1, Lk: 1}, mask.ALiBiCausal); return err }(), ErrHeads, "posenc: invalid heads: ALiBiBias: slopes has 0 elements; want one per head"},
 		{"NaN slope", func() error {
 			_, err := ALiBiBias([]float64{nan}, mask.Geometry{Lq: 1, Lk: 1}, mask.ALiBiCausal)
 			return err
-		}(), ErrHeads},
+		}(), ErrHeads, "posenc: invalid heads: ALiBiBias: slopes[0] = NaN; want a finite number"},
 		{"bias sizes", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: -1, Lk: 1}, mask.ALiBiCausal)
 			return err
-		}(), ErrShape},
+		}(), ErrShape, "posenc: shape mismatch: ALiBiBias: g.Lq = -1; want ≥ 0"},
 		{"bias too large", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 30, Lk: 1 << 30}, mask.ALiBiCausal)
 			return err
-		}(), ErrShape},
+		}(), ErrShape, "posenc: shape mismatch: ALiBiBias: H·Lq·Lk = 1·1073741824·1073741824; want at most 2^40 elements"},
 		{"bias align", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, mask.ALiBiCausal)
 			return err
-		}(), ErrOption},
+		}(), ErrOption, "posenc: invalid option: ALiBiBias: g.Align = 3; want one of end, start"},
 		{"bias align wraps mask's", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, mask.ALiBiCausal)
 			return err
-		}(), mask.ErrAlign},
-		{"bias form", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, 3); return err }(), ErrOption},
-		{"bias form wraps mask's", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, -1); return err }(), mask.ErrALiBi},
+		}(), mask.ErrAlign, "posenc: invalid option: ALiBiBias: g.Align = 3; want one of end, start"},
+		{"bias form", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, 3); return err }(), ErrOption, "posenc: invalid option: ALiBiBias: form = 3; want one of causal, symmetric, past-only"},
+		{"bias form wraps mask's", func() error { _, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1}, -1); return err }(), mask.ErrALiBi, "posenc: invalid option: ALiBiBias: form = -1; want one of causal, symmetric, past-only"},
 		{"causal query outside keys", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 2, Lk: 4, Offset: 1}, mask.ALiBiCausal)
 			return err
-		}(), ErrPosition},
+		}(), ErrPosition, "posenc: invalid position: ALiBiBias: query positions p(0) … p(Lq−1) = 3 … 4 (g = Batch=0 Lq=2 Lk=4 Align=end Offset=1); want them within 0 … Lk−1 = 3 for the causal form"},
 		{"past-only query outside keys", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 2, Lk: 4, Align: mask.AlignStart, Offset: -1}, mask.ALiBiPastOnly)
 			return err
-		}(), ErrPosition},
+		}(), ErrPosition, "posenc: invalid position: ALiBiBias: query positions p(0) … p(Lq−1) = -1 … 0 (g = Batch=0 Lq=2 Lk=4 Align=start Offset=-1); want them within 0 … Lk−1 = 3 for the past-only form"},
 		{"symmetric position too large", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Offset: beyond}, mask.ALiBiSymmetric)
 			return err
-		}(), ErrPosition},
-		{"ntk base r", func() error { _, err := NTKBase(10000, 2, 2); return err }(), ErrDim},
-		{"ntk base odd r", func() error { _, err := NTKBase(10000, 2, 7); return err }(), ErrDim},
-		{"ntk base s", func() error { _, err := NTKBase(10000, 0, 8); return err }(), ErrFactor},
-		{"ntk base b", func() error { _, err := NTKBase(nan, 2, 8); return err }(), ErrBase},
-		{"ntk base overflow", func() error { _, err := NTKBase(1e300, 1e300, 8); return err }(), ErrBase},
-		{"magnitude s", func() error { _, err := YaRNMagnitude(nan); return err }(), ErrFactor},
-		{"magnitude tiny s", func() error { _, err := YaRNMagnitude(1e-5); return err }(), ErrFactor},
+		}(), ErrPosition, "posenc: invalid position: ALiBiBias: g.Offset = 2147483648; want −MaxPosition ≤ position ≤ MaxPosition = 2147483647"},
+		{"ntk base r", func() error { _, err := NTKBase(10000, 2, 2); return err }(), ErrDim, "posenc: invalid dimension: NTKBase: rotated = 2; want an even number ≥ 4"},
+		{"ntk base odd r", func() error { _, err := NTKBase(10000, 2, 7); return err }(), ErrDim, "posenc: invalid dimension: NTKBase: rotated = 7; want an even number ≥ 4"},
+		{"ntk base s", func() error { _, err := NTKBase(10000, 0, 8); return err }(), ErrFactor, "posenc: invalid scaling factor: NTKBase: s = 0; want a finite number > 0"},
+		{"ntk base b", func() error { _, err := NTKBase(nan, 2, 8); return err }(), ErrBase, "posenc: invalid base: NTKBase: base = NaN; want a finite number > 1"},
+		{"ntk base overflow", func() error { _, err := NTKBase(1e300, 1e300, 8); return err }(), ErrBase, "posenc: invalid base: NTKBase: b′ = 1e+300·1e+300^{8/6} = +Inf; want a finite number > 1"},
+		{"magnitude s", func() error { _, err := YaRNMagnitude(nan); return err }(), ErrFactor, "posenc: invalid scaling factor: YaRNMagnitude: s = NaN; want a finite number > 0"},
+		{"magnitude tiny s", func() error { _, err := YaRNMagnitude(1e-5); return err }(), ErrFactor, "posenc: invalid scaling factor: YaRNMagnitude: s = 1e-05; want s > e^{−10}, where the multiplier 0.1·ln s + 1 (-0.1513 at this s) is > 0"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			require.Error(t, c.err)
-			assert.True(t, errors.Is(c.err, c.want), "got %v, want %v", c.err, c.want)
-			t.Log(c.err)
+			require.ErrorIs(t, c.err, c.want)
+			assert.EqualError(t, c.err, c.msg)
 		})
 	}
 }
@@ -675,11 +677,11 @@ func TestOptionWords(t *testing.T) {
 	assert.Equal(t, []Pairing{PairAdjacent, PairHalves}, PairAdjacent.Values())
 	assert.Equal(t, []Ramp{RampRatio, RampDims}, RampRatio.Values())
 	for _, bad := range []struct{ json, msg string }{
-		{`{"layout":"interleave"}`, `posenc: unknown option: sinusoidal layout = "interleave"; want one of interleaved, concatenated`},
-		{`{"pairing":"PairHalves"}`, `posenc: unknown option: rotary pairing = "PairHalves"; want one of adjacent, halves`},
-		{`{"method":"ntk"}`, `posenc: unknown option: scaling method = "ntk"; want one of none, interpolation, ntk-aware, yarn, per-frequency`},
-		{`{"method":"per_frequency"}`, `posenc: unknown option: scaling method = "per_frequency"; want one of none, interpolation, ntk-aware, yarn, per-frequency`},
-		{`{"ramp":"ratios"}`, `posenc: unknown option: YaRN ramp = "ratios"; want one of ratio, dims`},
+		{`{"layout":"interleave"}`, `posenc: invalid option: sinusoidal layout = "interleave"; want one of interleaved, concatenated`},
+		{`{"pairing":"PairHalves"}`, `posenc: invalid option: rotary pairing = "PairHalves"; want one of adjacent, halves`},
+		{`{"method":"ntk"}`, `posenc: invalid option: scaling method = "ntk"; want one of none, interpolation, ntk-aware, yarn, per-frequency`},
+		{`{"method":"per_frequency"}`, `posenc: invalid option: scaling method = "per_frequency"; want one of none, interpolation, ntk-aware, yarn, per-frequency`},
+		{`{"ramp":"ratios"}`, `posenc: invalid option: YaRN ramp = "ratios"; want one of ratio, dims`},
 	} {
 		var c cfg
 		err := json.Unmarshal([]byte(bad.json), &c)
@@ -696,7 +698,7 @@ func TestOptionWords(t *testing.T) {
 func TestOptionErrors(t *testing.T) {
 	// An option that is not one of its constants is named by the field or
 	// argument that holds it, in the vocabulary's form
-	// "<sentinel>: <where> = <value>; want one of <words>".
+	// "<sentinel>: <function>: <where> = <value>; want one of <words>".
 	x8 := make([]float64, 8)
 	apply := func(r Rotary) error { _, err := r.Apply(x8, 1, Positions{}); return err }
 	alibi := func(g mask.Geometry, f mask.ALiBiForm) error {
@@ -709,16 +711,16 @@ func TestOptionErrors(t *testing.T) {
 		also error // a second sentinel the error wraps, or nil
 		msg  string
 	}{
-		{apply(Rotary{Dim: 8, Pairing: 2}), nil, "posenc: unknown option: Rotary.Pairing = 2; want one of adjacent, halves"},
+		{apply(Rotary{Dim: 8, Pairing: 2}), nil, "posenc: invalid option: Rotary.Apply: Rotary.Pairing = 2; want one of adjacent, halves"},
 		{apply(Rotary{Dim: 8, Scaling: Scaling{Method: 9}}), nil,
-			"posenc: unknown option: Rotary.Scaling.Method = 9; want one of none, interpolation, ntk-aware, yarn, per-frequency"},
+			"posenc: invalid option: Rotary.Apply: Rotary.Scaling.Method = 9; want one of none, interpolation, ntk-aware, yarn, per-frequency"},
 		{apply(Rotary{Dim: 8, Scaling: Scaling{Method: YaRN, Factor: 2, TrainedLength: 10, Ramp: 5}}), nil,
-			"posenc: unknown option: Rotary.Scaling.Ramp = 5; want one of ratio, dims"},
-		{tableErr, nil, "posenc: unknown option: Sinusoidal.Layout = 7; want one of interleaved, concatenated"},
+			"posenc: invalid option: Rotary.Apply: Rotary.Scaling.Ramp = 5; want one of ratio, dims"},
+		{tableErr, nil, "posenc: invalid option: Sinusoidal.Table: Sinusoidal.Layout = 7; want one of interleaved, concatenated"},
 		{alibi(mask.Geometry{Lq: 1, Lk: 1, Align: 3}, mask.ALiBiCausal), mask.ErrAlign,
-			"posenc: unknown option: g.Align = 3; want one of end, start"},
+			"posenc: invalid option: ALiBiBias: g.Align = 3; want one of end, start"},
 		{alibi(mask.Geometry{Lq: 1, Lk: 1}, 7), mask.ErrALiBi,
-			"posenc: unknown option: form = 7; want one of causal, symmetric, past-only"},
+			"posenc: invalid option: ALiBiBias: form = 7; want one of causal, symmetric, past-only"},
 	} {
 		require.Error(t, c.err, c.msg)
 		assert.ErrorIs(t, c.err, ErrOption)

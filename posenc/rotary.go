@@ -89,9 +89,11 @@ type Rotary struct {
 	Magnitude float64
 }
 
-func checkBase(b float64) error {
+// checkBase checks the frequency base b, which the caller of fn gave as
+// name.
+func checkBase(fn, name string, b float64) error {
 	if !(b > 1) || math.IsInf(b, 1) {
-		return fmt.Errorf("%w: Base = %v; want a finite number > 1", ErrBase, b)
+		return fmt.Errorf("%w: %s: %s = %v; want a finite number > 1", ErrBase, fn, name, b)
 	}
 	return nil
 }
@@ -104,38 +106,40 @@ type resolved struct {
 	theta   []dd
 }
 
-func (c Rotary) resolve() (*resolved, error) {
+// resolve validates the configuration for a call of the method fn.
+func (c Rotary) resolve(fn string) (*resolved, error) {
 	if c.Dim <= 0 || c.Dim > MaxDim {
-		return nil, fmt.Errorf("%w: Dim = %d; want 0 < Dim ≤ MaxDim = %d", ErrDim, c.Dim, MaxDim)
+		return nil, fmt.Errorf("%w: %s: Rotary.Dim = %d; want 0 < Dim ≤ MaxDim = %d", ErrDim, fn, c.Dim, MaxDim)
 	}
 	r := c.Rotated
 	if r == 0 {
 		r = c.Dim
 	}
 	if r < 0 || r > c.Dim {
-		return nil, fmt.Errorf("%w: Rotated = %d with Dim = %d; want 2 ≤ r ≤ Dim (0 means Dim)", ErrDim, c.Rotated, c.Dim)
+		return nil, fmt.Errorf("%w: %s: Rotary.Rotated = %d; want 2 ≤ Rotated ≤ Dim = %d (0 means Dim)", ErrDim, fn, c.Rotated, c.Dim)
 	}
 	if r%2 != 0 {
-		return nil, fmt.Errorf("%w: %d rotated dims (Dim = %d, Rotated = %d); rotary pairs need an even number", ErrDim, r, c.Dim, c.Rotated)
+		return nil, fmt.Errorf("%w: %s: rotated dims r = %d (Rotary.Dim = %d, Rotary.Rotated = %d); want an even number: rotary rotates pairs",
+			ErrDim, fn, r, c.Dim, c.Rotated)
 	}
 	base := c.Base
 	if base == 0 {
 		base = 10000
 	}
-	if err := checkBase(base); err != nil {
+	if err := checkBase(fn, "Rotary.Base", base); err != nil {
 		return nil, err
 	}
-	if err := pairingWords.CheckAt("Rotary.Pairing", c.Pairing); err != nil {
+	if err := pairingWords.CheckAt(fn+": Rotary.Pairing", c.Pairing); err != nil {
 		return nil, err
 	}
 	mag := c.Magnitude
 	if mag == 0 {
 		mag = 1
 	}
-	if err := positive("Magnitude", mag); err != nil {
+	if err := positive(fn, "Rotary.Magnitude", mag); err != nil {
 		return nil, err
 	}
-	theta, err := c.Scaling.scaledFreqs(r, base)
+	theta, err := c.Scaling.scaledFreqs(fn, r, base)
 	if err != nil {
 		return nil, err
 	}
@@ -152,7 +156,7 @@ func (c Rotary) resolve() (*resolved, error) {
 //
 //	the configuration is invalid    the error of Apply
 func (c Rotary) Frequencies() ([]float64, error) {
-	rs, err := c.resolve()
+	rs, err := c.resolve("Rotary.Frequencies")
 	if err != nil {
 		return nil, err
 	}
@@ -163,14 +167,15 @@ func (c Rotary) Frequencies() ([]float64, error) {
 	return out, nil
 }
 
-// checkPosition validates the position m, called name in the message.
-func checkPosition(name string, m int, allowNegative bool) error {
+// checkPosition validates the position m, which the caller of fn gave as
+// name.
+func checkPosition(fn, name string, m int, allowNegative bool) error {
 	if m > MaxPosition || m < -MaxPosition || (!allowNegative && m < 0) {
 		lo := "−MaxPosition"
 		if !allowNegative {
 			lo = "0"
 		}
-		return fmt.Errorf("%w: %s = %d; want %s ≤ position ≤ MaxPosition = %d", ErrPosition, name, m, lo, MaxPosition)
+		return fmt.Errorf("%w: %s: %s = %d; want %s ≤ position ≤ MaxPosition = %d", ErrPosition, fn, name, m, lo, MaxPosition)
 	}
 	return nil
 }
@@ -210,12 +215,13 @@ func (rs *resolved) tables(pos []int) (cos, sin []float64) {
 //	|pos[t]| > MaxPosition        ErrPosition
 //	invalid configuration         the error of Apply
 func (c Rotary) Tables(pos []int) (cos, sin []float64, err error) {
-	rs, err := c.resolve()
+	const fn = "Rotary.Tables"
+	rs, err := c.resolve(fn)
 	if err != nil {
 		return nil, nil, err
 	}
 	for t, m := range pos {
-		if err := checkPosition(fmt.Sprintf("pos[%d]", t), m, true); err != nil {
+		if err := checkPosition(fn, fmt.Sprintf("pos[%d]", t), m, true); err != nil {
 			return nil, nil, err
 		}
 	}
@@ -236,29 +242,29 @@ type Positions struct {
 }
 
 // rowPositions returns the distinct positions to tabulate and, for every
-// row, the index of its table row.
-func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int, err error) {
-	if L <= 0 {
-		return nil, nil, fmt.Errorf("%w: sequence length L = %d; want > 0", ErrShape, L)
+// row, the index of its table row; fn names the method called.
+func (p Positions) rowPositions(fn string, rows, L int) (pos []int, index func(row int) int, err error) {
+	if err := checkL(fn, L); err != nil {
+		return nil, nil, err
 	}
 	if rows%L != 0 {
-		return nil, nil, fmt.Errorf("%w: %d rows of D values is not a multiple of L = %d", ErrShape, rows, L)
+		return nil, nil, fmt.Errorf("%w: %s: x holds %d rows of Dim values; want a multiple of L = %d", ErrShape, fn, rows, L)
 	}
 	switch {
 	case p.List == nil:
 		pos = make([]int, L)
 		for l := range pos {
 			pos[l] = p.Offset + l
-			if err := checkPosition(fmt.Sprintf("Offset + %d (token %d, Offset %d)", l, l, p.Offset), pos[l], true); err != nil {
+			if err := checkPosition(fn, fmt.Sprintf("pos.Offset + %d (token %d, pos.Offset = %d)", l, l, p.Offset), pos[l], true); err != nil {
 				return nil, nil, err
 			}
 		}
 		return pos, func(row int) int { return row % L }, nil
 	case p.Offset != 0:
-		return nil, nil, fmt.Errorf("%w: Offset = %d together with an explicit List; give one or the other", ErrShape, p.Offset)
+		return nil, nil, fmt.Errorf("%w: %s: pos.Offset = %d with pos.List given; want 0: give one or the other", ErrShape, fn, p.Offset)
 	case len(p.List) == L || len(p.List) == rows:
 		for t, m := range p.List {
-			if err := checkPosition(fmt.Sprintf("List[%d]", t), m, true); err != nil {
+			if err := checkPosition(fn, fmt.Sprintf("pos.List[%d]", t), m, true); err != nil {
 				return nil, nil, err
 			}
 		}
@@ -279,7 +285,7 @@ func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int
 		}
 		return pos, func(row int) int { return idx[row] }, nil
 	}
-	return nil, nil, fmt.Errorf("%w: %d positions in List; want L = %d or one per row, %d", ErrShape, len(p.List), L, rows)
+	return nil, nil, fmt.Errorf("%w: %s: pos.List has %d elements; want L = %d, or one per row, %d", ErrShape, fn, len(p.List), L, rows)
 }
 
 // Apply returns x rotated at the given positions: x is a row-major
@@ -311,9 +317,9 @@ func (p Positions) rowPositions(rows, L int) (pos []int, index func(row int) int
 //	Base ≤ 1, NaN or +Inf          ErrBase
 //	negative positions             allowed (rotation by a negative angle)
 //	|position| > MaxPosition       ErrPosition
-//	bad scaling                    ErrFactor, ErrLength, ErrOption or ErrDim
+//	invalid scaling                ErrFactor, ErrLength, ErrOption or ErrDim
 func (c Rotary) Apply(x []float64, L int, pos Positions) ([]float64, error) {
-	return applyAt(c, x, L, pos, false, func(v float64) float64 { return v })
+	return applyAt("Rotary.Apply", c, x, L, pos, false, func(v float64) float64 { return v })
 }
 
 // ApplyInverse applies the transposed rotation Rᵀ(m) = R(−m), times
@@ -323,7 +329,7 @@ func (c Rotary) Apply(x []float64, L int, pos Positions) ([]float64, error) {
 // M·R(m) and the backward is M·R(m)ᵀ). Arguments, accuracy and special
 // cases are those of Apply.
 func (c Rotary) ApplyInverse(x []float64, L int, pos Positions) ([]float64, error) {
-	return applyAt(c, x, L, pos, true, func(v float64) float64 { return v })
+	return applyAt("Rotary.ApplyInverse", c, x, L, pos, true, func(v float64) float64 { return v })
 }
 
 // Apply32 is the float32 instantiation of the same body as Apply: the
@@ -334,32 +340,32 @@ func (c Rotary) ApplyInverse(x []float64, L int, pos Positions) ([]float64, erro
 // the angles m·θ in float32 has a much larger error at large positions
 // (compare its tables with Tables).
 func (c Rotary) Apply32(x []float32, L int, pos Positions) ([]float32, error) {
-	return applyAt(c, x, L, pos, false, func(v float64) float32 { return float32(v) })
+	return applyAt("Rotary.Apply32", c, x, L, pos, false, func(v float64) float32 { return float32(v) })
 }
 
 // ApplyInverse32 is the float32 instantiation of the same body as
 // ApplyInverse; see Apply32. Not a reference.
 func (c Rotary) ApplyInverse32(x []float32, L int, pos Positions) ([]float32, error) {
-	return applyAt(c, x, L, pos, true, func(v float64) float32 { return float32(v) })
+	return applyAt("Rotary.ApplyInverse32", c, x, L, pos, true, func(v float64) float32 { return float32(v) })
 }
 
-func applyAt[T num.Float](c Rotary, x []T, L int, pos Positions, inverse bool, conv func(float64) T) ([]T, error) {
-	rs, err := c.resolve()
+func applyAt[T num.Float](fn string, c Rotary, x []T, L int, pos Positions, inverse bool, conv func(float64) T) ([]T, error) {
+	rs, err := c.resolve(fn)
 	if err != nil {
 		return nil, err
 	}
 	D := rs.D
 	if len(x)%D != 0 {
-		return nil, fmt.Errorf("%w: len(x) = %d is not a multiple of Dim = %d", ErrShape, len(x), D)
+		return nil, fmt.Errorf("%w: %s: x has %d elements; want a multiple of Rotary.Dim = %d", ErrShape, fn, len(x), D)
 	}
 	rows := len(x) / D
 	if rows == 0 {
-		if L <= 0 {
-			return nil, fmt.Errorf("%w: sequence length L = %d; want > 0", ErrShape, L)
+		if err := checkL(fn, L); err != nil {
+			return nil, err
 		}
 		return []T{}, nil
 	}
-	tpos, index, err := pos.rowPositions(rows, L)
+	tpos, index, err := pos.rowPositions(fn, rows, L)
 	if err != nil {
 		return nil, err
 	}
@@ -371,6 +377,14 @@ func applyAt[T num.Float](c Rotary, x []T, L int, pos Positions, inverse bool, c
 	y := make([]T, len(x))
 	rotate(y, x, D, rs.r, rs.pairing, cos, sin, index, inverse)
 	return y, nil
+}
+
+// checkL checks the sequence length L of a call of fn.
+func checkL(fn string, L int) error {
+	if L <= 0 {
+		return fmt.Errorf("%w: %s: sequence length L = %d; want > 0", ErrShape, fn, L)
+	}
+	return nil
 }
 
 // rotate is the kernel body: y = R(m)x (or R(m)ᵀx) row by row, with cos

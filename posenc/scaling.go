@@ -166,63 +166,71 @@ type Scaling struct {
 	Factors []float64
 }
 
-// factor returns s as a double-double, validated.
-func (sc Scaling) factor() (dd, error) {
+// The Scaling fields as messages name them: a Scaling is always reached
+// through Rotary.Scaling.
+const scalingField = "Rotary.Scaling."
+
+// factor returns s as a double-double, validated for a call of fn.
+func (sc Scaling) factor(fn string) (dd, error) {
 	if sc.CurrentLength != 0 {
 		if sc.CurrentLength < 0 {
-			return dd{}, fmt.Errorf("%w: CurrentLength = %d; want > 0 for dynamic scaling, or 0 for none", ErrLength, sc.CurrentLength)
+			return dd{}, fmt.Errorf("%w: %s: %sCurrentLength = %d; want > 0 for dynamic scaling, or 0 for none", ErrLength, fn, scalingField, sc.CurrentLength)
 		}
 		if sc.TrainedLength <= 0 {
-			return dd{}, fmt.Errorf("%w: TrainedLength = %d; dynamic scaling needs it > 0", ErrLength, sc.TrainedLength)
+			return dd{}, fmt.Errorf("%w: %s: %sTrainedLength = %d; want > 0 for dynamic scaling", ErrLength, fn, scalingField, sc.TrainedLength)
 		}
 		if sc.CurrentLength <= sc.TrainedLength {
 			return ddFrom(1), nil
 		}
 		return ddDiv(ddFrom(float64(sc.CurrentLength)), ddFrom(float64(sc.TrainedLength))), nil
 	}
-	if err := positive("Factor", sc.Factor); err != nil {
+	if err := positive(fn, scalingField+"Factor", sc.Factor); err != nil {
 		return dd{}, err
 	}
 	return ddFrom(sc.Factor), nil
 }
 
-func positive(name string, v float64) error {
+// positive checks that v, which the caller of fn gave as name, is finite
+// and > 0.
+func positive(fn, name string, v float64) error {
 	if !(v > 0) || math.IsInf(v, 1) {
-		return fmt.Errorf("%w: %s = %v; want a finite number > 0", ErrFactor, name, v)
+		return fmt.Errorf("%w: %s: %s = %v; want a finite number > 0", ErrFactor, fn, name, v)
 	}
 	return nil
 }
 
-func (sc Scaling) bounds() (alpha, beta float64, err error) {
+func (sc Scaling) bounds(fn string) (alpha, beta float64, err error) {
 	alpha, beta = sc.Alpha, sc.Beta
 	if alpha == 0 && beta == 0 {
 		return 1, 32, nil
 	}
 	if !(alpha >= 0) || math.IsInf(beta, 0) || math.IsNaN(beta) || !(alpha < beta) {
-		return 0, 0, fmt.Errorf("%w: YaRN α = %v, β = %v; want finite 0 ≤ α < β", ErrFactor, alpha, beta)
+		return 0, 0, fmt.Errorf("%w: %s: %sAlpha = %v, %sBeta = %v; want finite 0 ≤ Alpha < Beta (both 0 mean YaRN's 1 and 32)",
+			ErrFactor, fn, scalingField, alpha, scalingField, beta)
 	}
 	return alpha, beta, nil
 }
 
 // scaledFreqs returns the frequencies θ_i, i = 0 … r/2−1, for rotated dims
-// r and base b after the scaling, in double-double.
-func (sc Scaling) scaledFreqs(r int, base float64) ([]dd, error) {
+// r and base b after the scaling, in double-double, validated for a call
+// of fn.
+func (sc Scaling) scaledFreqs(fn string, r int, base float64) ([]dd, error) {
 	h := r / 2
 	lnb := ddLog(ddFrom(base))
 	out := make([]dd, h)
 	switch sc.Method {
 	case NoScaling:
 		if sc.CurrentLength != 0 {
-			return nil, fmt.Errorf("%w: CurrentLength = %d with NoScaling; dynamic scaling needs a method", ErrOption, sc.CurrentLength)
+			return nil, fmt.Errorf("%w: %s: %sCurrentLength = %d with Method none; want 0: dynamic scaling needs a method", ErrOption, fn, scalingField, sc.CurrentLength)
 		}
 	case Interpolation, NTKAware, YaRN:
-		s, err := sc.factor()
+		s, err := sc.factor(fn)
 		if err != nil {
 			return nil, err
 		}
 		if sc.Method == NTKAware {
 			if r < 4 {
-				return nil, fmt.Errorf("%w: NTKAware with %d rotated dims; b′ = b·s^{r/(r−2)} needs r ≥ 4", ErrDim, r)
+				return nil, fmt.Errorf("%w: %s: rotated dims r = %d with Method ntk-aware; want r ≥ 4 for b′ = b·s^{r/(r−2)}", ErrDim, fn, r)
 			}
 			// ln b′ = ln b + r/(r−2)·ln s
 			e := ddDiv(ddFrom(float64(r)), ddFrom(float64(r-2)))
@@ -235,20 +243,21 @@ func (sc Scaling) scaledFreqs(r int, base float64) ([]dd, error) {
 				out[i] = ddDiv(out[i], s)
 			}
 		case YaRN:
-			if err := sc.yarn(out, r, lnb, s); err != nil {
+			if err := sc.yarn(fn, out, r, lnb, s); err != nil {
 				return nil, err
 			}
 		}
 		return out, nil
 	case PerFrequency:
 		if sc.CurrentLength != 0 {
-			return nil, fmt.Errorf("%w: CurrentLength = %d with PerFrequency; dynamic scaling does not apply to caller-given factors", ErrOption, sc.CurrentLength)
+			return nil, fmt.Errorf("%w: %s: %sCurrentLength = %d with Method per-frequency; want 0: dynamic scaling does not apply to caller-given factors",
+				ErrOption, fn, scalingField, sc.CurrentLength)
 		}
 		if len(sc.Factors) != h {
-			return nil, fmt.Errorf("%w: %d per-frequency factors for %d rotated dims; want r/2 = %d", ErrFactor, len(sc.Factors), r, h)
+			return nil, fmt.Errorf("%w: %s: %sFactors has %d elements; want r/2 = %d, one per pair of the %d rotated dims", ErrFactor, fn, scalingField, len(sc.Factors), h, r)
 		}
 		for i, f := range sc.Factors {
-			if err := positive(fmt.Sprintf("Factors[%d]", i), f); err != nil {
+			if err := positive(fn, fmt.Sprintf("%sFactors[%d]", scalingField, i), f); err != nil {
 				return nil, err
 			}
 		}
@@ -258,7 +267,7 @@ func (sc Scaling) scaledFreqs(r int, base float64) ([]dd, error) {
 		}
 		return out, nil
 	default:
-		return nil, methodWords.CheckAt("Rotary.Scaling.Method", sc.Method)
+		return nil, methodWords.CheckAt(fn+": "+scalingField+"Method", sc.Method)
 	}
 	baseFreqs(out, r, lnb)
 	return out, nil
@@ -273,11 +282,11 @@ func baseFreqs(out []dd, r int, lnb dd) {
 }
 
 // yarn replaces θ_d by h(θ_d) = θ_d/s + γ_d·(θ_d − θ_d/s).
-func (sc Scaling) yarn(th []dd, r int, lnb dd, s dd) error {
+func (sc Scaling) yarn(fn string, th []dd, r int, lnb dd, s dd) error {
 	if sc.TrainedLength <= 0 {
-		return fmt.Errorf("%w: TrainedLength = %d; YaRN needs it > 0", ErrLength, sc.TrainedLength)
+		return fmt.Errorf("%w: %s: %sTrainedLength = %d; want > 0 for YaRN", ErrLength, fn, scalingField, sc.TrainedLength)
 	}
-	alpha, beta, err := sc.bounds()
+	alpha, beta, err := sc.bounds(fn)
 	if err != nil {
 		return err
 	}
@@ -325,7 +334,7 @@ func (sc Scaling) yarn(th []dd, r int, lnb dd, s dd) error {
 			return ddSub(ddFrom(1), t)
 		}
 	default:
-		return rampWords.CheckAt("Rotary.Scaling.Ramp", sc.Ramp)
+		return rampWords.CheckAt(fn+": "+scalingField+"Ramp", sc.Ramp)
 	}
 	for d := range th {
 		inter := ddDiv(th[d], s)
@@ -348,20 +357,21 @@ func (sc Scaling) yarn(th []dd, r int, lnb dd, s dd) error {
 //	r odd or r < 4           ErrDim
 //	b′ beyond float64        ErrBase
 func NTKBase(base, s float64, rotated int) (float64, error) {
-	if err := checkBase(base); err != nil {
+	const fn = "NTKBase"
+	if err := checkBase(fn, "base", base); err != nil {
 		return 0, err
 	}
-	if err := positive("s", s); err != nil {
+	if err := positive(fn, "s", s); err != nil {
 		return 0, err
 	}
 	if rotated < 4 || rotated%2 != 0 {
-		return 0, fmt.Errorf("%w: rotated dims r = %d; NTKBase needs an even r ≥ 4", ErrDim, rotated)
+		return 0, fmt.Errorf("%w: %s: rotated = %d; want an even number ≥ 4", ErrDim, fn, rotated)
 	}
 	e := ddDiv(ddFrom(float64(rotated)), ddFrom(float64(rotated-2)))
 	v := ddExp(ddAdd(ddLog(ddFrom(base)), ddMul(e, ddLog(ddFrom(s)))))
 	b := v.hi + v.lo
 	if math.IsInf(b, 0) || !(b > 1) {
-		return 0, fmt.Errorf("%w: b′ = %v·%v^{%d/%d} = %v is not a usable base", ErrBase, base, s, rotated, rotated-2, b)
+		return 0, fmt.Errorf("%w: %s: b′ = %v·%v^{%d/%d} = %v; want a finite number > 1", ErrBase, fn, base, s, rotated, rotated-2, b)
 	}
 	return b, nil
 }
@@ -380,13 +390,13 @@ func NTKBase(base, s float64, rotated int) (float64, error) {
 //	s ≤ 0, NaN or ±Inf       ErrFactor
 //	s < e^{−10}              ErrFactor (the multiplier would be ≤ 0)
 func YaRNMagnitude(s float64) (float64, error) {
-	if err := positive("s", s); err != nil {
+	if err := positive("YaRNMagnitude", "s", s); err != nil {
 		return 0, err
 	}
 	v := ddAdd(ddFrom(1), ddDiv(ddLog(ddFrom(s)), ddFrom(10)))
 	m := v.hi + v.lo
 	if !(m > 0) {
-		return 0, fmt.Errorf("%w: s = %v gives 0.1·ln s + 1 = %v; want it > 0", ErrFactor, s, m)
+		return 0, fmt.Errorf("%w: YaRNMagnitude: s = %v; want s > e^{−10}, where the multiplier 0.1·ln s + 1 (%.4g at this s) is > 0", ErrFactor, s, m)
 	}
 	return m, nil
 }

@@ -66,19 +66,20 @@ type Sinusoidal struct {
 	Layout Layout
 }
 
-// check validates the configuration and returns the base.
-func (s Sinusoidal) check() (float64, error) {
+// check validates the configuration for a call of the method fn and
+// returns the base.
+func (s Sinusoidal) check(fn string) (float64, error) {
 	if s.Dim <= 0 || s.Dim%2 != 0 || s.Dim > MaxDim {
-		return 0, fmt.Errorf("%w: sinusoidal Dim = %d; want an even number in 2 … MaxDim = %d", ErrDim, s.Dim, MaxDim)
+		return 0, fmt.Errorf("%w: %s: Sinusoidal.Dim = %d; want an even number in 2 … MaxDim = %d", ErrDim, fn, s.Dim, MaxDim)
 	}
 	base := s.Base
 	if base == 0 {
 		base = 10000
 	}
-	if err := checkBase(base); err != nil {
+	if err := checkBase(fn, "Sinusoidal.Base", base); err != nil {
 		return 0, err
 	}
-	if err := layoutWords.CheckAt("Sinusoidal.Layout", s.Layout); err != nil {
+	if err := layoutWords.CheckAt(fn+": Sinusoidal.Layout", s.Layout); err != nil {
 		return 0, err
 	}
 	return base, nil
@@ -97,18 +98,24 @@ func (s Sinusoidal) check() (float64, error) {
 //	Dim odd, ≤ 0 or > MaxDim       ErrDim
 //	Base ≤ 1, NaN or +Inf         ErrBase
 func (s Sinusoidal) Table(n, offset int) ([]float64, error) {
-	base, err := s.check()
+	return s.table("Sinusoidal.Table", "n", n, offset)
+}
+
+// table is Table for a call of fn, which names the count of positions
+// nName.
+func (s Sinusoidal) table(fn, nName string, n, offset int) ([]float64, error) {
+	base, err := s.check(fn)
 	if err != nil {
 		return nil, err
 	}
 	if n < 0 || n > maxElements/s.Dim {
-		return nil, fmt.Errorf("%w: n = %d positions of Dim = %d; want 0 ≤ n·Dim ≤ 2^40", ErrShape, n, s.Dim)
+		return nil, fmt.Errorf("%w: %s: %s = %d; want 0 ≤ %s and %s·Dim ≤ 2^40 (Dim = %d)", ErrShape, fn, nName, n, nName, nName, s.Dim)
 	}
-	if err := checkPosition("offset", offset, false); err != nil {
+	if err := checkPosition(fn, "offset", offset, false); err != nil {
 		return nil, err
 	}
 	if n > 0 {
-		if err := checkPosition("offset + n − 1", offset+n-1, false); err != nil {
+		if err := checkPosition(fn, "offset + "+nName+" − 1", offset+n-1, false); err != nil {
 			return nil, err
 		}
 	}
@@ -144,7 +151,7 @@ func (s Sinusoidal) Table(n, offset int) ([]float64, error) {
 //	L ≤ 0                           ErrShape
 //	otherwise                       the special cases of Table
 func (s Sinusoidal) Add(x []float64, L, offset int) ([]float64, error) {
-	return addTable(s, x, L, offset, func(v float64) float64 { return v })
+	return addTable("Sinusoidal.Add", s, x, L, offset, func(v float64) float64 { return v })
 }
 
 // Add32 is the float32 instantiation of the same body as Add: the
@@ -152,19 +159,19 @@ func (s Sinusoidal) Add(x []float64, L, offset int) ([]float64, error) {
 // a yardstick; not a reference. The table is the reference table rounded to
 // float32; the addition is float32.
 func (s Sinusoidal) Add32(x []float32, L, offset int) ([]float32, error) {
-	return addTable(s, x, L, offset, func(v float64) float32 { return float32(v) })
+	return addTable("Sinusoidal.Add32", s, x, L, offset, func(v float64) float32 { return float32(v) })
 }
 
-func addTable[T num.Float](s Sinusoidal, x []T, L, offset int, conv func(float64) T) ([]T, error) {
-	if L <= 0 {
-		return nil, fmt.Errorf("%w: sequence length L = %d; want > 0", ErrShape, L)
+func addTable[T num.Float](fn string, s Sinusoidal, x []T, L, offset int, conv func(float64) T) ([]T, error) {
+	if err := checkL(fn, L); err != nil {
+		return nil, err
 	}
-	pe64, err := s.Table(L, offset)
+	pe64, err := s.table(fn, "L", L, offset)
 	if err != nil {
 		return nil, err
 	}
 	if len(x)%len(pe64) != 0 {
-		return nil, fmt.Errorf("%w: len(x) = %d is not a multiple of L·Dim = %d·%d", ErrShape, len(x), L, s.Dim)
+		return nil, fmt.Errorf("%w: %s: x has %d elements; want a multiple of L·Dim = %d·%d = %d", ErrShape, fn, len(x), L, s.Dim, len(pe64))
 	}
 	pe := make([]T, len(pe64))
 	for k, v := range pe64 {

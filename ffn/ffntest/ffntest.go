@@ -319,64 +319,122 @@ func Run[T conformance.TB[T], E compare.Float](t T, k Kernel[E]) {
 
 func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.Format, c Case, p Problem, r *rand.Rand) {
 	t.Helper()
-	x, w, dy := c.draw(r, p)
-	x, dy = f.RoundSlice(x), f.RoundSlice(dy)
-	wl := list(w)
-	for i, s := range wl {
-		if s != nil {
-			wl[i] = f.RoundSlice(s)
-		}
+	tr := newTrial(t, k, f, c, p, r)
+	if tr.forward() && k.Backward != nil {
+		tr.backward()
 	}
-	w = unlist(wl)
-	conv := p.String()
-	d := p.Dims
-	judge := func(out string, shape []int, dims string, ref, got []float64, inputs [][]float64, runs ...func([][]float32) ([]float32, error)) {
-		t.Helper()
-		suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: out, Dims: dims, Shape: shape, Ref: ref, Got: got}, inputs, runs...)
-	}
-	conv32 := func(l [][]float64) [][]E {
-		out := make([][]E, len(l))
-		for i, s := range l {
-			if s != nil {
-				out[i] = num.Convert[E](s)
-			}
-		}
-		return out
-	}
+}
 
-	want, err := ffn.Forward(x, d, w, p.Options)
-	if err != nil {
-		t.Errorf("case %s (%s): the reference refused the problem: %v", c.Name, conv, err)
-		return
+// trial is one subtest: the kernel, the problem and its inputs, drawn and
+// rounded to the kernel's format once.
+type trial[T conformance.TB[T], E compare.Float] struct {
+	t    T
+	k    Kernel[E]
+	f    compare.Format
+	c    Case
+	p    Problem
+	conv string // the problem's conventions, for messages
+
+	x, dy []float64
+	w     ffn.Weights[float64]
+	wl    [][]float64 // list(w)
+}
+
+// newTrial draws the inputs, the weights and dy, and rounds them to f.
+func newTrial[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.Format, c Case, p Problem, r *rand.Rand) *trial[T, E] {
+	x, w, dy := c.draw(r, p)
+	tr := &trial[T, E]{t: t, k: k, f: f, c: c, p: p, conv: p.String(), x: f.RoundSlice(x), dy: f.RoundSlice(dy), wl: list(w)}
+	for i, s := range tr.wl {
+		if s != nil {
+			tr.wl[i] = f.RoundSlice(s)
+		}
 	}
-	got, err := k.Forward(num.Convert[E](x), unlist(conv32(wl)), p)
-	if err != nil {
-		t.Errorf("case %s (%s): the kernel's Forward returned an error: %v", c.Name, conv, err)
-		return
+	tr.w = unlist(tr.wl)
+	return tr
+}
+
+// kernelWeights returns the weights in the kernel's element type.
+func (tr *trial[T, E]) kernelWeights() ffn.Weights[E] {
+	out := make([][]E, len(tr.wl))
+	for i, s := range tr.wl {
+		if s != nil {
+			out[i] = num.Convert[E](s)
+		}
 	}
-	inputs := append([][]float64{x}, wl...)
-	judge("y", []int{d.Rows, d.Out}, "[row, output]", want, compare.Widen(got), inputs, func(in [][]float32) ([]float32, error) {
-		return ffn.Forward32(in[0], d, unlist(in[1:]), p.Options)
+	return unlist(out)
+}
+
+// judge checks one output of the kernel against the reference, with the
+// yardstick of each run.
+func (tr *trial[T, E]) judge(out string, shape []int, dims string, ref, got []float64, inputs [][]float64, runs ...func([][]float32) ([]float32, error)) {
+	tr.t.Helper()
+	suite.Check[T, E](tr.t, tr.f, tr.c.Name, tr.conv, suite.Output{Name: out, Dims: dims, Shape: shape, Ref: ref, Got: got}, inputs, runs...)
+}
+
+// fail reports an error of the reference or the kernel.
+func (tr *trial[T, E]) fail(who string, err error) {
+	tr.t.Helper()
+	tr.t.Errorf("case %s (%s): %s: %v", tr.c.Name, tr.conv, who, err)
+}
+
+// forward judges the kernel's Forward; it reports whether the subtest can
+// go on to the backward pass.
+func (tr *trial[T, E]) forward() bool {
+	tr.t.Helper()
+	d, o := tr.p.Dims, tr.p.Options
+	want, err := ffn.Forward(tr.x, d, tr.w, o)
+	if err != nil {
+		tr.fail("the reference refused the problem", err)
+		return false
+	}
+	got, err := tr.k.Forward(num.Convert[E](tr.x), tr.kernelWeights(), tr.p)
+	if err != nil {
+		tr.fail("the kernel's Forward returned an error", err)
+		return false
+	}
+	inputs := append([][]float64{tr.x}, tr.wl...)
+	tr.judge("y", []int{d.Rows, d.Out}, "[row, output]", want, compare.Widen(got), inputs, func(in [][]float32) ([]float32, error) {
+		return ffn.Forward32(in[0], d, unlist(in[1:]), o)
 	}, func(in [][]float32) ([]float32, error) {
-		return ffn.ForwardFast32(in[0], d, unlist(in[1:]), p.Options)
+		return ffn.ForwardFast32(in[0], d, unlist(in[1:]), o)
 	})
-	if k.Backward == nil {
-		return
-	}
-	dx, grad, err := ffn.Backward(x, dy, d, w, p.Options)
+	return true
+}
+
+// backward judges the kernel's Backward: dx and the gradient of every
+// weight given.
+func (tr *trial[T, E]) backward() {
+	tr.t.Helper()
+	d, o := tr.p.Dims, tr.p.Options
+	dx, grad, err := ffn.Backward(tr.x, tr.dy, d, tr.w, o)
 	if err != nil {
-		t.Errorf("case %s (%s): the reference backward refused the problem: %v", c.Name, conv, err)
+		tr.fail("the reference backward refused the problem", err)
 		return
 	}
-	gdx, ggrad, err := k.Backward(num.Convert[E](x), num.Convert[E](dy), unlist(conv32(wl)), p)
+	gdx, ggrad, err := tr.k.Backward(num.Convert[E](tr.x), num.Convert[E](tr.dy), tr.kernelWeights(), tr.p)
 	if err != nil {
-		t.Errorf("case %s (%s): the kernel's Backward returned an error: %v", c.Name, conv, err)
+		tr.fail("the kernel's Backward returned an error", err)
 		return
 	}
-	binputs := append([][]float64{x, dy}, wl...)
-	// Each yardstick form runs once per subtest: every output's yardstick
-	// is measured on the same inputs, so the gradients are computed once
-	// and each output picks its own.
+	inputs := append([][]float64{tr.x, tr.dy}, tr.wl...)
+	back := yardsticks(d, o)
+	tr.judge("dx", []int{d.Rows, d.In}, "[row, input]", dx, compare.Widen(gdx), inputs, back(-1, 0), back(-1, 1))
+	gl := list(ggrad)
+	for i, ref := range list(grad) {
+		if ref == nil || tr.wl[i] == nil {
+			continue // a gradient of a weight not given
+		}
+		shape, dims := gradShape(i, tr.p)
+		tr.judge(weightNames[i], shape, dims, ref, compare.Widen(gl[i]), inputs, back(i, 0), back(i, 1))
+	}
+}
+
+// yardsticks returns, for an output (-1 for dx, or the index of a
+// gradient in list) and a form (0 direct, 1 fast), the yardstick run of
+// the float32 backward pass. Each form runs once per subtest: every
+// output's yardstick is measured on the same inputs, so the gradients are
+// computed once and each output picks its own.
+func yardsticks(d ffn.Dims, o ffn.Options) func(pick, form int) func(in [][]float32) ([]float32, error) {
 	type result struct {
 		dx  []float32
 		g   ffn.Weights[float32]
@@ -384,12 +442,12 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 	}
 	memo := map[int]*result{}
 	forms := []func([]float32, []float32, ffn.Dims, ffn.Weights[float32], ffn.Options) ([]float32, ffn.Weights[float32], error){ffn.Backward32, ffn.BackwardFast32}
-	back := func(pick, form int) func(in [][]float32) ([]float32, error) {
+	return func(pick, form int) func(in [][]float32) ([]float32, error) {
 		return func(in [][]float32) ([]float32, error) {
 			r := memo[form]
 			if r == nil {
 				r = &result{}
-				r.dx, r.g, r.err = forms[form](in[0], in[1], d, unlist(in[2:]), p.Options)
+				r.dx, r.g, r.err = forms[form](in[0], in[1], d, unlist(in[2:]), o)
 				memo[form] = r
 			}
 			if pick < 0 {
@@ -397,14 +455,5 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 			}
 			return list(r.g)[pick], r.err
 		}
-	}
-	judge("dx", []int{d.Rows, d.In}, "[row, input]", dx, compare.Widen(gdx), binputs, back(-1, 0), back(-1, 1))
-	gl := list(ggrad)
-	for i, ref := range list(grad) {
-		if ref == nil || wl[i] == nil {
-			continue // a gradient of a weight not given
-		}
-		shape, dims := gradShape(i, p)
-		judge(weightNames[i], shape, dims, ref, compare.Widen(gl[i]), binputs, back(i, 0), back(i, 1))
 	}
 }
