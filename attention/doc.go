@@ -113,9 +113,9 @@
 // # Accuracy
 //
 // Measured against the 50-digit golden values (testdata/golden/attention,
-// written by testdata/gen/fam_attention.py and fam_softmax.py), over every
-// case; the float32 twins run on the inputs rounded to float32, which is
-// most of their error.
+// written by testdata/gen/fam_attention.py and testdata/gen/fam_softmax.py),
+// over every case; the float32 twins run on the inputs rounded to float32,
+// which is most of their error.
 //
 // Worst normwise relative error ‖got − want‖₂ / ‖want‖₂ over the golden cases, by function and output:
 //

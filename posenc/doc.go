@@ -91,18 +91,24 @@
 //
 // # Measured accuracy
 //
-// Worst normwise relative error against the 50-digit golden files
-// (testdata/golden/posenc, written by testdata/gen/fam_posenc.py; see
-// TestGolden*), positions up to 2^31 − 1, every scaling method at factors
-// 2, 4, 8 and 32 (and 0.5 where a method takes a factor), magnitudes ≠ 1:
+// Measured against the 50-digit golden files (testdata/golden/posenc,
+// written by testdata/gen/fam_posenc.py; see TestGolden*), positions up to
+// 2^31 − 1, every scaling method at factors 2, 4, 8 and 32 (and 0.5 where a
+// method takes a factor), magnitudes ≠ 1.
 //
-//	Sinusoidal.Table      8.5e-17
-//	Sinusoidal.Add        7.2e-17
-//	Rotary.Tables         1.1e-16
-//	Rotary.Apply          1.4e-16
-//	Rotary.ApplyInverse   1.4e-16
-//	Rotary.Frequencies    0 (bit-exact: every frequency correctly rounded)
-//	NTKBase, YaRNMagnitude, ALiBiSlopes, ALiBiBias   0 (bit-exact)
+// Worst normwise relative error ‖got − want‖₂ / ‖want‖₂ over the golden cases, by function and output:
+//
+//	                     table     cos       sin       y
+//	Sinusoidal.Table     8.5e-17
+//	Sinusoidal.Add                                     7.2e-17
+//	Rotary.Tables                  8.8e-17   1.0e-16
+//	Rotary.Apply                                       1.4e-16
+//	Rotary.ApplyInverse                                1.4e-16
+//
+// The golden tests of this package measure the table and fail when it is out of date.
+//
+// Rotary.Frequencies, NTKBase, YaRNMagnitude, ALiBiSlopes and ALiBiBias
+// are bit-exact: every value correctly rounded.
 //
 // The float32 instantiations (Rotary.Apply32, Rotary.ApplyInverse32,
 // Sinusoidal.Add32, ALiBiBias32) are yardsticks, not references: the same

@@ -3,6 +3,7 @@ package posenc
 import (
 	"maps"
 	"math"
+	"os"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -37,29 +38,24 @@ import (
 //     must equal the golden values bit for bit.
 const tableBound = 8e-16
 
-// worst records the largest normwise relative error seen per function, for
-// the accuracy statement of the package doc (go test -v -run Golden).
-type worst map[string]float64
-
-func (w worst) note(fn string, e float64) {
-	if e > w[fn] {
-		w[fn] = e
-	}
+// accuracy is the package's accuracy table in doc.go: every normwise
+// golden check notes its error there, and TestMain fails when the table is
+// out of date.
+var accuracy = &golden.Accuracy{
+	Path: "doc.go",
+	Rows: []string{"Sinusoidal.Table", "Sinusoidal.Add", "Rotary.Tables", "Rotary.Apply", "Rotary.ApplyInverse"},
+	Cols: []string{"table", "cos", "sin", "y"},
 }
 
-func (w worst) log(t *testing.T) {
-	for fn, e := range w {
-		t.Logf("worst normwise relative error %-28s %.3g", fn, e)
-	}
-}
+func TestMain(m *testing.M) { os.Exit(accuracy.Main(m)) }
 
-func checkNorm(t *testing.T, w worst, fn string, c *golden.Case, name string, got []float64, bound float64) {
+func checkNorm(t *testing.T, fn string, c *golden.Case, name string, got []float64, bound float64) {
 	t.Helper()
 	want, _, err := c.Float(name)
 	require.NoError(t, err)
 	require.Len(t, got, len(want), "%s: %s", c, name)
 	e := golden.NormwiseRelErr(got, want)
-	w.note(fn, e)
+	accuracy.Note(fn, strings.TrimSuffix(name, "_inverse"), e)
 	assert.LessOrEqual(t, e, bound, golden.Describe(c, name, e, bound))
 }
 
@@ -200,25 +196,21 @@ func eachCase[C any](t *testing.T, family string, check func(t *testing.T, c *go
 }
 
 func TestGoldenSinusoidal(t *testing.T) {
-	w := worst{}
-	defer w.log(t)
 	eachCase(t, "sinusoidal_table", func(t *testing.T, c *golden.Case, cfg *sinusoidalCfg) {
 		got, err := cfg.sinusoidal().Table(cfg.Length, cfg.Offset)
 		require.NoError(t, err)
-		checkNorm(t, w, "Sinusoidal.Table", c, "table", got, tableBound)
+		checkNorm(t, "Sinusoidal.Table", c, "table", got, tableBound)
 	})
 	eachCase(t, "sinusoidal_add", func(t *testing.T, c *golden.Case, cfg *sinusoidalCfg) {
 		x, _, err := c.Float("x")
 		require.NoError(t, err)
 		got, err := cfg.sinusoidal().Add(x, cfg.Length, cfg.Offset)
 		require.NoError(t, err)
-		checkNorm(t, w, "Sinusoidal.Add", c, "y", got, tableBound)
+		checkNorm(t, "Sinusoidal.Add", c, "y", got, tableBound)
 	})
 }
 
 func TestGoldenRotaryTables(t *testing.T) {
-	w := worst{}
-	defer w.log(t)
 	eachCase(t, "rotary_tables", func(t *testing.T, c *golden.Case, cfg *rotaryCfg) {
 		r, _ := cfg.rotary(t, c)
 		th, err := r.Frequencies()
@@ -226,14 +218,12 @@ func TestGoldenRotaryTables(t *testing.T) {
 		checkExact(t, c, "theta", th)
 		cos, sin, err := r.Tables(positions(t, c))
 		require.NoError(t, err)
-		checkNorm(t, w, "Rotary.Tables", c, "cos", cos, tableBound)
-		checkNorm(t, w, "Rotary.Tables", c, "sin", sin, tableBound)
+		checkNorm(t, "Rotary.Tables", c, "cos", cos, tableBound)
+		checkNorm(t, "Rotary.Tables", c, "sin", sin, tableBound)
 	})
 }
 
 func runApplyFamily(t *testing.T, family string) {
-	w := worst{}
-	defer w.log(t)
 	eachCase(t, family, func(t *testing.T, c *golden.Case, cfg *rotaryCfg) {
 		r, pos := cfg.rotary(t, c)
 		x, _, err := c.Float("x")
@@ -243,11 +233,11 @@ func runApplyFamily(t *testing.T, family string) {
 		checkExact(t, c, "theta", th)
 		y, err := r.Apply(x, cfg.Length, pos)
 		require.NoError(t, err)
-		checkNorm(t, w, "Rotary.Apply", c, "y", y, tableBound)
+		checkNorm(t, "Rotary.Apply", c, "y", y, tableBound)
 		if c.Has("y_inverse") {
 			yi, err := r.ApplyInverse(x, cfg.Length, pos)
 			require.NoError(t, err)
-			checkNorm(t, w, "Rotary.ApplyInverse", c, "y_inverse", yi, tableBound)
+			checkNorm(t, "Rotary.ApplyInverse", c, "y_inverse", yi, tableBound)
 		}
 	})
 }

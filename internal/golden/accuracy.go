@@ -28,6 +28,10 @@ type Accuracy struct {
 	// Path is the file holding the table, between the lines AccuracyBegin
 	// and AccuracyEnd: the package's doc.go.
 	Path string
+	// Heading, when set, replaces AccuracyBegin as the line before the
+	// table, for a second table in the same file ("// Worst … of the
+	// activations:"); it must be a whole comment line.
+	Heading string
 	// Rows and Cols are the table's row and column labels, in order. A
 	// Note outside them is an error of the test (the table would not show
 	// it).
@@ -111,23 +115,40 @@ func FormatError(e float64) string {
 // left out by -run, -skip or -short, checks that the table between
 // AccuracyBegin and AccuracyEnd in Path is Table() (with -update it writes it there). It
 // returns the exit code for os.Exit.
-func (a *Accuracy) Main(m *testing.M) int {
+func (a *Accuracy) Main(m *testing.M) int { return Main(m, a) }
+
+// Main runs the package's tests and then checks every table as
+// Accuracy.Main does; for a package with more than one table.
+func Main(m *testing.M, tables ...*Accuracy) int {
 	code := m.Run()
 	if code != 0 || !everyTestRan() {
 		return code
 	}
+	for _, a := range tables {
+		if err := a.check(); err != nil {
+			fmt.Fprintf(os.Stderr, "golden accuracy: %v\n", err)
+			code = 1
+		}
+	}
+	return code
+}
+
+// check compares (with -update, writes) the table in a.Path.
+func (a *Accuracy) check() error {
 	a.mu.Lock()
 	bad := a.bad
 	a.mu.Unlock()
 	if len(bad) > 0 {
-		fmt.Fprintf(os.Stderr, "golden accuracy: errors noted for rows or columns the table of %s does not have: %s\n", a.Path, strings.Join(bad, ", "))
-		return 1
+		return fmt.Errorf("errors noted for rows or columns the table of %s does not have: %s", a.Path, strings.Join(bad, ", "))
 	}
-	if err := replaceBlock(a.Path, AccuracyBegin, AccuracyEnd, a.Table(), *update); err != nil {
-		fmt.Fprintf(os.Stderr, "golden accuracy: %v\nThe table states the worst error the golden tests measure; regenerate it with go test -update in this package.\n", err)
-		return 1
+	begin := AccuracyBegin
+	if a.Heading != "" {
+		begin = a.Heading
 	}
-	return 0
+	if err := replaceBlock(a.Path, begin, AccuracyEnd, a.Table(), *update); err != nil {
+		return fmt.Errorf("%v\nThe table states the worst error the golden tests measure; regenerate it with go test -update in this package", err)
+	}
+	return nil
 }
 
 // everyTestRan reports whether the test binary ran without -run, -skip or
