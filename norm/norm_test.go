@@ -125,8 +125,6 @@ func TestOptionStrings(t *testing.T) {
 	assert.Equal(t, []EpsilonPlacement{EpsilonInRoot, EpsilonAddedToRoot}, EpsilonPlacement(0).Values())
 	assert.Equal(t, []WeightForm{WeightAsIs, WeightOnePlus}, WeightForm(0).Values())
 
-	checkWords(t, EpsilonPlacement(0).Values())
-	checkWords(t, WeightForm(0).Values())
 	var p EpsilonPlacement
 	err := p.UnmarshalText([]byte("in_root"))
 	assert.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
@@ -138,33 +136,6 @@ func TestOptionStrings(t *testing.T) {
 	_, err = EpsilonPlacement(7).MarshalText()
 	assert.ErrorIs(t, err, ErrOption)
 	assert.ErrorIs(t, WeightForm(2).Check(), ErrOption)
-}
-
-// convention is what the option types share: their words and checks.
-type convention interface {
-	~int
-	Check() error
-	MarshalText() ([]byte, error)
-	Meaning() string
-}
-
-// checkWords checks that every value of a convention type passes Check,
-// has a meaning, and reads back from its word into a variable that held
-// another value (7, which no type has).
-func checkWords[T convention, P interface {
-	*T
-	UnmarshalText([]byte) error
-}](t *testing.T, values []T) {
-	t.Helper()
-	for _, v := range values {
-		require.NoError(t, v.Check())
-		b, err := v.MarshalText()
-		require.NoError(t, err)
-		var back T = 7
-		require.NoError(t, P(&back).UnmarshalText(b))
-		assert.Equal(t, v, back)
-		assert.NotEmpty(t, v.Meaning())
-	}
 }
 
 // TestSpecialCases checks the "Special cases are:" block of the package

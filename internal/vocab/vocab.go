@@ -91,13 +91,14 @@ func New[T Integer](pkg, noun, question string, err error, words ...Word[T]) *Se
 // any case, as words are compared after lowering); MarshalText still writes
 // the value's word. It returns s.
 func (s *Set[T]) Aliases(aliases map[string]T) *Set[T] {
-	s.aliases = map[string]T{}
+	m := map[string]T{}
 	for a, v := range aliases {
 		if _, ok := s.word(v); !ok {
 			panic(fmt.Sprintf("vocab: %s: alias %q of a value with no word", s.Name(), a))
 		}
-		s.aliases[strings.ToLower(a)] = v
+		m[strings.ToLower(a)] = v
 	}
+	s.aliases = m
 	return s
 }
 

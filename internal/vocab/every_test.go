@@ -1,0 +1,182 @@
+package vocab_test
+
+import (
+	"encoding/json"
+	"go/ast"
+	"go/parser"
+	"go/token"
+	"os"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/assert"
+	"github.com/stretchr/testify/require"
+
+	// Every package that declares a convention type, so that its
+	// vocabulary is registered.
+	_ "github.com/plumbref/plumb/attention"
+	_ "github.com/plumbref/plumb/attention/attentiontest"
+	_ "github.com/plumbref/plumb/compare"
+	_ "github.com/plumbref/plumb/ffn"
+	_ "github.com/plumbref/plumb/mask"
+	_ "github.com/plumbref/plumb/norm"
+	_ "github.com/plumbref/plumb/norm/normtest"
+	_ "github.com/plumbref/plumb/npy"
+	_ "github.com/plumbref/plumb/posenc"
+	"github.com/plumbref/plumb/internal/vocab"
+)
+
+// conventionDirs are the packages imported above, from the repository root.
+var conventionDirs = []string{"attention", "attention/attentiontest", "compare", "ffn", "mask", "norm", "norm/normtest", "npy", "posenc"}
+
+// call calls the method name of v with args and returns its results.
+func call(t *testing.T, v reflect.Value, name string, args ...any) []reflect.Value {
+	t.Helper()
+	m := v.MethodByName(name)
+	require.True(t, m.IsValid(), "%s has no method %s", v.Type(), name)
+	in := make([]reflect.Value, len(args))
+	for i, a := range args {
+		in[i] = reflect.ValueOf(a)
+	}
+	return m.Call(in)
+}
+
+func errOf(v reflect.Value) error {
+	if v.IsNil() {
+		return nil
+	}
+	return v.Interface().(error)
+}
+
+// Every registered convention, through the methods of its own type: the
+// zero value is the default (the first word); Values, String, Meaning,
+// MarshalText and Check agree with the vocabulary; every word reads back to
+// its value through UnmarshalText and through encoding/json; a value without
+// a word and a text that is no word are refused with an error that lists
+// the words.
+func TestEveryConventionRoundTrips(t *testing.T) {
+	all := vocab.All()
+	require.GreaterOrEqual(t, len(all), len(conventionDirs))
+	for _, e := range all {
+		if !strings.Contains(e.Name, ".") || strings.HasPrefix(e.Name, "paint.") {
+			continue // the test vocabulary of vocab_test.go
+		}
+		t.Run(e.Name, func(t *testing.T) {
+			zero := reflect.Zero(e.Type)
+			values := call(t, zero, "Values")[0]
+			require.Equal(t, len(e.Words), values.Len(), "Values lists every word's value")
+			assert.Equal(t, e.Words[0].Text, call(t, zero, "String")[0].String(), "the zero value is the default, the first word")
+			seen := map[int64]bool{}
+			for i, w := range e.Words {
+				v := values.Index(i)
+				seen[v.Convert(reflect.TypeFor[int64]()).Int()] = true
+				assert.Equal(t, w.Text, call(t, v, "String")[0].String())
+				assert.Equal(t, w.Meaning, call(t, v, "Meaning")[0].String())
+				assert.NoError(t, errOf(call(t, v, "Check")[0]))
+				out := call(t, v, "MarshalText")
+				require.NoError(t, errOf(out[1]))
+				assert.Equal(t, w.Text, string(out[0].Bytes()))
+
+				back := reflect.New(e.Type)
+				back.Elem().Set(values.Index((i + 1) % values.Len()))
+				require.NoError(t, errOf(call(t, back, "UnmarshalText", []byte(w.Text))[0]))
+				assert.Equal(t, v.Interface(), back.Elem().Interface(), "UnmarshalText(%q)", w.Text)
+
+				js, err := json.Marshal(v.Interface())
+				require.NoError(t, err)
+				assert.Equal(t, `"`+w.Text+`"`, string(js))
+				back = reflect.New(e.Type)
+				require.NoError(t, json.Unmarshal(js, back.Interface()))
+				assert.Equal(t, v.Interface(), back.Elem().Interface())
+			}
+
+			bad := reflect.New(e.Type).Elem()
+			n := int64(1)
+			for seen[n] {
+				n++
+			}
+			if bad.CanInt() {
+				bad.SetInt(n)
+			} else {
+				bad.SetUint(uint64(n))
+			}
+			var ve *vocab.Error
+			err := errOf(call(t, bad, "Check")[0])
+			require.ErrorAs(t, err, &ve, "Check of a value with no word")
+			assert.Len(t, ve.Words, len(e.Words))
+			assert.Error(t, errOf(call(t, bad, "MarshalText")[1]))
+			assert.Contains(t, call(t, bad, "String")[0].String(), "(")
+
+			err = errOf(call(t, reflect.New(e.Type), "UnmarshalText", []byte("no-such-word"))[0])
+			require.ErrorAs(t, err, &ve)
+			for _, w := range e.Words {
+				assert.Contains(t, err.Error(), w.Text)
+			}
+			if pkg, _, _ := strings.Cut(e.Name, "."); !strings.HasSuffix(pkg, "test") {
+				// a suite reports through its TB and has no sentinels
+				assert.NotEmpty(t, ve.Unwrap(), "the error wraps the package's sentinel")
+			}
+		})
+	}
+}
+
+// Every integer type with a MarshalText method in the packages that declare
+// conventions has a registered vocabulary: no convention type keeps its
+// words by hand.
+func TestEveryConventionTypeIsRegistered(t *testing.T) {
+	registered := map[string]bool{}
+	for _, e := range vocab.All() {
+		registered[e.Type.PkgPath()+"."+e.Type.Name()] = true
+	}
+	for _, dir := range conventionDirs {
+		files, err := filepath.Glob(filepath.Join("..", "..", dir, "*.go"))
+		require.NoError(t, err)
+		for _, path := range files {
+			if strings.HasSuffix(path, "_test.go") {
+				continue
+			}
+			src, err := os.ReadFile(path)
+			require.NoError(t, err)
+			f, err := parser.ParseFile(token.NewFileSet(), path, src, 0)
+			require.NoError(t, err)
+			for _, d := range f.Decls {
+				fn, ok := d.(*ast.FuncDecl)
+				if !ok || fn.Recv == nil || fn.Name.Name != "MarshalText" {
+					continue
+				}
+				typ := fn.Recv.List[0].Type
+				if s, ok := typ.(*ast.StarExpr); ok {
+					typ = s.X
+				}
+				name := typ.(*ast.Ident).Name
+				if !integerType(f, name) {
+					continue
+				}
+				assert.True(t, registered["github.com/plumbref/plumb/"+dir+"."+name], "%s: %s has MarshalText but no registered vocabulary (vocab.New)", path, name)
+			}
+		}
+	}
+}
+
+// integerType reports whether f declares name as a type with an integer
+// underlying type.
+func integerType(f *ast.File, name string) bool {
+	for _, d := range f.Decls {
+		g, ok := d.(*ast.GenDecl)
+		if !ok || g.Tok != token.TYPE {
+			continue
+		}
+		for _, s := range g.Specs {
+			ts := s.(*ast.TypeSpec)
+			if id, ok := ts.Type.(*ast.Ident); ok && ts.Name.Name == name {
+				switch id.Name {
+				case "int", "uint8", "int8", "uint", "int32", "uint32", "int64", "uint64", "uint16", "int16":
+					return true
+				}
+			}
+		}
+	}
+	return false
+}
