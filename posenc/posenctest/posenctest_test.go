@@ -127,11 +127,5 @@ func TestCatchesPairingSlip(t *testing.T) {
 
 // The package documentation lists every case, with its reason, in order.
 func TestDocListsEveryCase(t *testing.T) {
-	var names, whys []string
-	for _, c := range Cases() {
-		names, whys = append(names, c.Name), append(whys, c.Why)
-	}
-	missing, err := suite.MissingDocLines("posenctest.go", names, whys)
-	require.NoError(t, err)
-	assert.Empty(t, missing, "cases missing from the package documentation")
+	suite.DocListsEveryCase(t, "posenctest.go", Cases(), func(c Case) (string, string) { return c.Name, c.Why })
 }
