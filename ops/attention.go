@@ -12,15 +12,21 @@ import (
 // attention-backward.
 type attentionConfig struct {
 	header
-	Layout   attention.Layout   `json:"layout" doc:"memory order of q, k, v, out and the gradients (batch first, head dimension last)"`
-	Group    attention.GroupMap `json:"group" doc:"which kv head each query head reads"`
-	Scale    float64            `json:"scale" doc:"multiplies q·k; positive and finite" default:"1/√dim"`
-	SoftCap  float64            `json:"soft_cap" doc:"c > 0 replaces the scaled logit t by c·tanh(t/c)" default:"0 (none)"`
-	Mask     []mask.Spec        `json:"mask" doc:"masks, intersected; each an object with a \"kind\" and that kind's keys" default:"[] (every key visible)"`
-	Align    mask.Align         `json:"align" doc:"where query i sits among the keys"`
-	Offset   int                `json:"offset" doc:"shifts every query position" default:"0"`
+	Layout  attention.Layout   `json:"layout" doc:"memory order of q, k, v, out and the gradients (batch first, head dimension last)"`
+	Group   attention.GroupMap `json:"group" doc:"which kv head each query head reads"`
+	Scale   float64            `json:"scale" doc:"multiplies q·k; positive and finite" default:"1/√dim"`
+	SoftCap float64            `json:"soft_cap" doc:"c > 0 replaces the scaled logit t by c·tanh(t/c)" default:"0 (none)"`
+	Mask    []mask.Spec        `json:"mask" doc:"masks, intersected; each an object with a \"kind\" and that kind's keys" default:"[] (every key visible)"`
+	queryPositions
 	ALiBi    mask.ALiBiForm     `json:"alibi_form" doc:"with input slopes: the key distance d the bias −m·d penalises"`
 	EmptyRow attention.EmptyRow `json:"empty_row" doc:"output of a row that sees no key"`
+}
+
+// queryPositions are the keys that place the queries among the keys, as
+// mask.Geometry does.
+type queryPositions struct {
+	Align  mask.Align `json:"align" doc:"where query i sits among the keys"`
+	Offset int        `json:"offset" doc:"shifts every query position" default:"0"`
 }
 
 var attentionInputs = []Port{
@@ -39,7 +45,7 @@ func (c *attentionConfig) setup(in Tensors) (attention.Shape, attention.Options,
 		Scale: c.Scale, SoftCap: c.SoftCap, Offset: c.Offset}
 	var err error
 	if o.Mask, err = mask.Build(c.Mask); err != nil {
-		return s, o, fmt.Errorf("%w: key \"mask\": %w", ErrConfig, err)
+		return s, o, configAt(err, `key "mask"`)
 	}
 
 	dims := "[batch, heads, length, dim]"
@@ -64,12 +70,14 @@ func (c *attentionConfig) setup(in Tensors) (attention.Shape, attention.Options,
 	}
 	s = attention.Shape{Batch: q[0], HeadsQ: q[hd], HeadsKV: k[hd], Lq: q[ld], Lk: k[ld], Dk: q[3], Dv: v[3]}
 	switch {
-	case k[0] != q[0] || v[0] != q[0]:
-		return s, o, fmt.Errorf("%w: batch sizes differ: q %d, k %d, v %d", ErrInput, q[0], k[0], v[0])
+	case k[0] != q[0]:
+		return s, o, fmt.Errorf("%w: input \"k\" has batch size %d; want %d, the batch size of \"q\"", ErrInput, k[0], q[0])
+	case v[0] != q[0]:
+		return s, o, fmt.Errorf("%w: input \"v\" has batch size %d; want %d, the batch size of \"q\"", ErrInput, v[0], q[0])
 	case k[3] != q[3]:
-		return s, o, fmt.Errorf("%w: input \"k\" has head dimension %d, \"q\" has %d", ErrInput, k[3], q[3])
+		return s, o, fmt.Errorf("%w: input \"k\" has head dimension %d; want %d, the head dimension of \"q\"", ErrInput, k[3], q[3])
 	case v[hd] != k[hd] || v[ld] != k[ld]:
-		return s, o, fmt.Errorf("%w: input \"v\" has shape %v; its heads and keys must match \"k\" %v", ErrInput, v, k)
+		return s, o, fmt.Errorf("%w: input \"v\" has shape %v; want %d heads and %d keys, as \"k\" %v has", ErrInput, v, k[hd], k[ld], k)
 	}
 	if in.has("bias") {
 		b, err := rank(in, "bias", 4, "[batch or 1, heads_q or 1, queries, keys]")

@@ -5,23 +5,28 @@
 //
 // # Operations
 //
-//	attention-forward   attention.Forward            out, lse
-//	attention-backward  attention.Backward           dq, dk, dv (dsinks, dbias)
-//	rotary-apply        posenc.Rotary.Apply          y
-//	rotary-tables       posenc.Rotary.Tables         cos, sin
-//	sinusoidal-table    posenc.Sinusoidal.Table      table
-//	alibi-slopes        posenc.ALiBiSlopes           slopes
-//	alibi-bias          posenc.ALiBiBias             bias
-//	layernorm-forward   norm.LayerNorm               y
-//	layernorm-backward  norm.LayerNormBackward       dx, dbias (dweight)
-//	rmsnorm-forward     norm.RMSNorm                 y
-//	rmsnorm-backward    norm.RMSNormBackward         dx (dweight)
-//	activation          ffn.Activate                 y
-//	activation-grad     ffn.ActivateGrad             dx
-//	ffn-forward         ffn.Forward (plain, GLU family via "gated")   y
-//	ffn-backward        ffn.Backward                 dx and every parameter gradient
-//	softmax             attention.Softmax            y
-//	logsumexp           attention.LogSumExp          lse
+// The operations, in the order plumb help ops lists them, with the
+// function each calls (its summary names the float32 form too) and its
+// outputs:
+//
+//	operation           calls                               outputs (the optional ones in parentheses)
+//	activation          ffn.Activate                        y
+//	activation-grad     ffn.ActivateGrad                    dx
+//	alibi-bias          posenc.ALiBiBias                    bias
+//	alibi-slopes        posenc.ALiBiSlopes                  slopes
+//	attention-backward  attention.Backward                  dq, dk, dv (dsinks, dbias)
+//	attention-forward   attention.Forward                   out, lse
+//	ffn-backward        ffn.Backward                        dx (dw1, db1, dv, dc, dfused, dfused_bias, dw2, db2)
+//	ffn-forward         ffn.Forward                         y
+//	layernorm-backward  norm.LayerNormBackward              dx, dbias (dweight)
+//	layernorm-forward   norm.LayerNorm                      y
+//	logsumexp           attention.LogSumExp                 lse
+//	rmsnorm-backward    norm.RMSNormBackward                dx (dweight)
+//	rmsnorm-forward     norm.RMSNorm                        y
+//	rotary-apply        posenc.Rotary.Apply / ApplyInverse  y
+//	rotary-tables       posenc.Rotary.Tables                cos, sin
+//	sinusoidal-table    posenc.Sinusoidal.Table             table
+//	softmax             attention.Softmax                   y
 //
 // Each Op documents its keys (Op.Keys) and tensors (Op.Inputs, Op.Outputs);
 // `plumb help OPERATION` prints them.
@@ -58,7 +63,39 @@
 // checks that the reference rounded to bfloat16 passes and an element 10%
 // off fails (TestRunRun32Yardstick, for every operation).
 //
+// # Worked values
+//
+// Two small cases are checked by the tests and examples against values
+// computed with mpmath at 50 significant digits from the definitions
+// ([mpmath]), shown here to 17 significant digits: TestRunMatchesKernels
+// within 2 units in the last place, ExampleRun to every digit it prints:
+//
+//	softmax of the row (1, 3, 2), p_i = e^{x_i} / (e¹ + e³ + e²):
+//	  0.090030573170380458, 0.66524095577482189, 0.24472847105479765
+//	logsumexp of the row (1, 3, 2), ln(e¹ + e³ + e²): 3.4076059644443803
+//	rotary-apply of x = (1, 2, 3, 4) at position 1, base 10000, pairs
+//	  (2i, 2i+1), so θ = (10000^0, 10000^(−2/4)) = (1, 0.01) (Su et al. 2021,
+//	  arXiv 2104.09864, Eq. (34)): (x₀ cos θ₀ − x₁ sin θ₀, x₀ sin θ₀ + x₁ cos θ₀,
+//	  x₂ cos θ₁ − x₃ sin θ₁, x₂ sin θ₁ + x₃ cos θ₁) =
+//	  −1.1426396637476533, 1.9220755965441759, 2.9598506679133292, 4.0297995016691611
+//
+// # Errors
+//
 // Every error wraps ErrUnknownOp, ErrConfig, ErrInput or the sentinel error
-// of the kernel package that refused the call, and names the operation and
-// the key or tensor at fault. No function panics on its arguments.
+// of the kernel package that refused the call, and reads
+//
+//	<sentinel>: <operation>: <what> = <value>; want <expectation>
+//
+// naming the operation (or, for an operation that does not exist, the
+// function called) and the key or tensor at fault:
+//
+//	ops: invalid configuration: attention-forward: key "layout" = "rows"; want one of heads-major, seq-major
+//	ops: invalid input: activation: input "x" has 8 elements; want 9 for its shape [3 3]
+//
+// A kernel's error keeps its own sentinel and wording, the operation put
+// after the sentinel's text ("norm: invalid epsilon: layernorm-forward:
+// LayerNorm: …"). A word or a mask description in a configuration that its
+// package refuses gives an error that wraps ErrConfig and that package's
+// sentinel (mask.ErrWindow, …), worded once, under ErrConfig. No function
+// panics on its arguments.
 package ops

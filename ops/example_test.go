@@ -8,10 +8,12 @@ import (
 )
 
 // Rotary encoding of x = [1, 2, 3, 4] at position 1, dims paired (2i, 2i+1),
-// base 10000 (θ = 1, 0.01): the worked value of FORMULAS.md ([mpmath]:
-// −1.1426396637476533, 1.9220755965441759, 2.9598506679133292,
-// 4.0297995016691611): the outputs below are those values rounded to
-// float64, except the second, one ulp (2.2e-16) above 1.9220755965441758.
+// base 10000 (θ = 1, 0.01): the worked value of the package documentation
+// (doc.go, Worked values; [mpmath]: −1.1426396637476533, 1.9220755965441759,
+// 2.9598506679133292, 4.0297995016691611). The outputs below are those
+// values correctly rounded to float64, except the third: 2.9598506679133294
+// is one ulp (4.4e-16) above the nearest float64, 2.959850667913329, an
+// error of 0.51 ulp ([mpmath]).
 func ExampleRun() {
 	out, err := ops.Run("rotary-apply", []byte(`{"version": 1, "offset": 1}`),
 		ops.Tensors{"x": {Shape: []int{1, 4}, Data: []float64{1, 2, 3, 4}}})
@@ -37,7 +39,7 @@ func ExampleRun_unknownKey() {
 		ops.Tensors{"x": {Shape: []int{3}, Data: []float64{1, 3, 2}}})
 	fmt.Println(err)
 	// Output:
-	// ops: bad configuration: softmax: unknown key "temperature" (see `plumb help softmax`)
+	// ops: invalid configuration: softmax: unknown key "temperature"; want one of version (see `plumb help softmax`)
 }
 
 // The tolerance for a bfloat16 softmax of the row [1, 3, 2]: the float32

@@ -46,7 +46,7 @@ func (c *ffnConfig) setup(in Tensors) (ffn.Dims, ffn.Options, map[string][]int, 
 	case c.Packing != nil:
 		o.Packing = *c.Packing
 	case in.has("fused") || in.has("fused_bias"):
-		return d, o, nil, fmt.Errorf("%w: key \"packing\" is missing; a fused gate and value matrix needs it: one of %s", ErrConfig, wordsOf(o.Packing))
+		return d, o, nil, fmt.Errorf("%w: key \"packing\" is missing; want one of %s (a fused gate and value matrix needs it)", ErrConfig, wordsOf(o.Packing))
 	}
 	var err error
 	if d.In, err = lastDim(in, "x"); err != nil {
@@ -79,19 +79,25 @@ func (c *ffnConfig) setup(in Tensors) (ffn.Dims, ffn.Options, map[string][]int, 
 		}
 	}
 	if in.has("dy") {
-		s := append(append([]int(nil), in["x"].Shape[:len(in["x"].Shape)-1]...), d.Out)
-		if err := sameShape(in, "dy", s, "the shape of y"); err != nil {
+		if err := sameShape(in, "dy", yShape(in, d.Out), "the shape of y"); err != nil {
 			return d, o, nil, err
 		}
 	}
 	return d, o, want, nil
 }
 
+// ffnWeights are the weight inputs, converted by conv.
 func ffnWeights[T float32 | float64](in Tensors, conv func([]float64) []T) ffn.Weights[T] {
-	return ffn.Weights[T]{
-		W1: conv(in.data("w1")), B1: conv(in.data("b1")), V: conv(in.data("v")), C: conv(in.data("c")),
-		Fused: conv(in.data("fused")), FusedBias: conv(in.data("fused_bias")), W2: conv(in.data("w2")), B2: conv(in.data("b2")),
-	}
+	return convertWeights(ffn.Weights[float64]{
+		W1: in.data("w1"), B1: in.data("b1"), V: in.data("v"), C: in.data("c"),
+		Fused: in.data("fused"), FusedBias: in.data("fused_bias"), W2: in.data("w2"), B2: in.data("b2"),
+	}, conv)
+}
+
+// convertWeights applies conv to every matrix and vector of w.
+func convertWeights[T, U float32 | float64](w ffn.Weights[U], conv func([]U) []T) ffn.Weights[T] {
+	return ffn.Weights[T]{W1: conv(w.W1), B1: conv(w.B1), V: conv(w.V), C: conv(w.C),
+		Fused: conv(w.Fused), FusedBias: conv(w.FusedBias), W2: conv(w.W2), B2: conv(w.B2)}
 }
 
 func same(x []float64) []float64 { return x }
@@ -140,14 +146,9 @@ func init() {
 }
 
 func runActivation(c *activationConfig, in Tensors, single bool) (Tensors, error) {
-	a := c.Function
-	var y []float64
-	var err error
-	if single {
-		y, err = wide(ffn.Activate32(in.f32("x"), a, c.Beta))
-	} else {
-		y, err = ffn.Activate(in.data("x"), a, c.Beta)
-	}
+	y, err := pick(single,
+		func() ([]float64, error) { return ffn.Activate(in.data("x"), c.Function, c.Beta) },
+		func() ([]float32, error) { return ffn.Activate32(in.f32("x"), c.Function, c.Beta) })
 	if err != nil {
 		return nil, err
 	}
@@ -155,17 +156,12 @@ func runActivation(c *activationConfig, in Tensors, single bool) (Tensors, error
 }
 
 func runActivationGrad(c *activationConfig, in Tensors, single bool) (Tensors, error) {
-	a := c.Function
-	var err error
 	if err := sameShape(in, "dy", in["x"].Shape, "the shape of x"); err != nil {
 		return nil, err
 	}
-	var dx []float64
-	if single {
-		dx, err = wide(ffn.ActivateGrad32(in.f32("x"), in.f32("dy"), a, c.Beta))
-	} else {
-		dx, err = ffn.ActivateGrad(in.data("x"), in.data("dy"), a, c.Beta)
-	}
+	dx, err := pick(single,
+		func() ([]float64, error) { return ffn.ActivateGrad(in.data("x"), in.data("dy"), c.Function, c.Beta) },
+		func() ([]float32, error) { return ffn.ActivateGrad32(in.f32("x"), in.f32("dy"), c.Function, c.Beta) })
 	if err != nil {
 		return nil, err
 	}
@@ -177,12 +173,11 @@ func runFfnForward(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
 	if err != nil {
 		return nil, err
 	}
-	var y []float64
-	if single {
-		y, err = wide(ffn.Forward32(in.f32("x"), d, ffnWeights(in, num.Convert[float32, float64]), o))
-	} else {
-		y, err = ffn.Forward(in.data("x"), d, ffnWeights(in, same), o)
-	}
+	y, err := pick(single,
+		func() ([]float64, error) { return ffn.Forward(in.data("x"), d, ffnWeights(in, same), o) },
+		func() ([]float32, error) {
+			return ffn.Forward32(in.f32("x"), d, ffnWeights(in, num.Convert[float32, float64]), o)
+		})
 	if err != nil {
 		return nil, err
 	}
@@ -200,9 +195,7 @@ func runFfnBackward(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
 		var dx32 []float32
 		var g32 ffn.Weights[float32]
 		dx32, g32, err = ffn.Backward32(in.f32("x"), in.f32("dy"), d, ffnWeights(in, num.Convert[float32, float64]), o)
-		dx = num.Convert[float64](dx32)
-		g = ffn.Weights[float64]{W1: num.Convert[float64](g32.W1), B1: num.Convert[float64](g32.B1), V: num.Convert[float64](g32.V), C: num.Convert[float64](g32.C),
-			Fused: num.Convert[float64](g32.Fused), FusedBias: num.Convert[float64](g32.FusedBias), W2: num.Convert[float64](g32.W2), B2: num.Convert[float64](g32.B2)}
+		dx, g = num.Convert[float64](dx32), convertWeights(g32, num.Convert[float64, float32])
 	} else {
 		dx, g, err = ffn.Backward(in.data("x"), in.data("dy"), d, ffnWeights(in, same), o)
 	}

@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"io"
 	"reflect"
+	"strconv"
 	"strings"
 
 	"github.com/plumbref/plumb/internal/vocab"
@@ -26,7 +27,10 @@ import (
 // are keys in turn, a slice of structs a list of such objects; embedded
 // structs add their keys to the outer object.
 
-var textUnmarshaler = reflect.TypeFor[encoding.TextUnmarshaler]()
+var (
+	textUnmarshaler = reflect.TypeFor[encoding.TextUnmarshaler]()
+	jsonUnmarshaler = reflect.TypeFor[json.Unmarshaler]()
+)
 
 // keysOf lists the keys of configuration type t (a struct), in the order of
 // its fields, nested keys after the key that holds them.
@@ -60,9 +64,11 @@ func keysOf(t reflect.Type, prefix string) []Key {
 			}
 		case ft.Kind() == reflect.Struct:
 			k.Type = "object"
+			k.decodes = reflect.PointerTo(ft).Implements(jsonUnmarshaler)
 			nested = keysOf(ft, k.Name+".")
 		case ft.Kind() == reflect.Slice && ft.Elem().Kind() == reflect.Struct:
 			k.Type = "[object]"
+			k.decodes = reflect.PointerTo(ft.Elem()).Implements(jsonUnmarshaler)
 			nested = keysOf(ft.Elem(), k.Name+"[].")
 		case ft.Kind() == reflect.Slice:
 			k.Type = "[" + scalarType(ft.Elem()) + "]"
@@ -101,7 +107,7 @@ const MaxConfigBytes = 1 << 20
 // versions other than ConfigVersion. An empty config means {"version": 1}.
 func decodeConfig(name string, data []byte, c any, keys []Key) error {
 	if len(data) > MaxConfigBytes {
-		return fmt.Errorf("%w: %s: the configuration is %d bytes; at most %d are read", ErrConfig, name, len(data), MaxConfigBytes)
+		return fmt.Errorf("%w: %s: configuration has %d bytes; want at most MaxConfigBytes = %d", ErrConfig, name, len(data), MaxConfigBytes)
 	}
 	if len(bytes.TrimSpace(data)) == 0 {
 		data = []byte(`{"version":1}`)
@@ -109,45 +115,85 @@ func decodeConfig(name string, data []byte, c any, keys []Key) error {
 	dec := json.NewDecoder(bytes.NewReader(data))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(c); err != nil {
-		return configError(name, err, keys)
+		return configError(name, err, data, keys)
 	}
 	if dec.More() {
-		return fmt.Errorf("%w: %s: malformed JSON: more than one value in the configuration", ErrConfig, name)
+		return fmt.Errorf("%w: %s: configuration holds more than one JSON value (malformed JSON); want one JSON object", ErrConfig, name)
 	}
 	if v := c.(versioned).version(); v != ConfigVersion {
 		if v == 0 {
-			return fmt.Errorf("%w: %s: key \"version\" is missing or 0; this plumb reads version %d", ErrConfig, name, ConfigVersion)
+			return fmt.Errorf("%w: %s: key \"version\" is missing or 0; want %d, the version this plumb reads", ErrConfig, name, ConfigVersion)
 		}
-		return fmt.Errorf("%w: %s: key \"version\" = %d; this plumb reads version %d", ErrConfig, name, v, ConfigVersion)
+		return fmt.Errorf("%w: %s: key \"version\" = %d; want %d, the version this plumb reads", ErrConfig, name, v, ConfigVersion)
 	}
 	var present map[string]json.RawMessage
 	if err := json.Unmarshal(data, &present); err != nil {
-		return configError(name, err, keys)
+		return configError(name, err, data, keys)
 	}
 	for _, k := range keys {
 		if k.Default == "required" && !strings.ContainsAny(k.Name, ".[") {
 			if _, ok := present[k.Name]; !ok {
-				return fmt.Errorf("%w: %s: key %q is missing (%s)%s", ErrConfig, name, k.Name, k.Doc, wordList(k))
+				return fmt.Errorf("%w: %s: key %q is missing; want %s", ErrConfig, name, k.Name, expectation(k))
 			}
 		}
 	}
 	return nil
 }
 
-// wordList is "; want one of a, b" for a word key, else "".
-func wordList(k Key) string {
+// expectation says what key k takes: "one of a, b (doc)" for a word key,
+// "doc (a number)" for the others.
+func expectation(k Key) string {
 	if k.Type != "word" {
-		return ""
+		return fmt.Sprintf("%s (%s %s)", k.Doc, article(k.Type), k.Type)
 	}
 	w := make([]string, len(k.Words))
 	for i, x := range k.Words {
 		w[i] = x.Text
 	}
-	return "; want one of " + strings.Join(w, ", ")
+	return fmt.Sprintf("one of %s (%s)", strings.Join(w, ", "), k.Doc)
 }
 
-// configError turns a decoding error into one that names the key.
-func configError(name string, err error, keys []Key) error {
+// article is "an" before a type that starts with a vowel, else "a".
+func article(typ string) string {
+	if typ != "" && strings.ContainsRune("aeiou", rune(typ[0])) {
+		return "an"
+	}
+	return "a"
+}
+
+// keysBeside lists the keys a configuration may hold beside key, the
+// unknown one: the top-level keys, "version" included, or those of the
+// object key is found in.
+func keysBeside(key string, data []byte, keys []Key) []string {
+	var top map[string]json.RawMessage
+	_ = json.Unmarshal(data, &top) // a malformed configuration has failed before
+	prefix := ""
+	if _, ok := top[key]; !ok {
+		for _, k := range keys {
+			var inner map[string]json.RawMessage
+			if k.Type == "object" && json.Unmarshal(top[k.Name], &inner) == nil {
+				if _, ok := inner[key]; ok {
+					prefix = k.Name + "."
+					break
+				}
+			}
+		}
+	}
+	var list []string
+	if prefix == "" {
+		list = append(list, "version")
+	}
+	for _, k := range keys {
+		if rest, ok := strings.CutPrefix(k.Name, prefix); ok && !strings.ContainsAny(rest, ".[") {
+			list = append(list, k.Name)
+		}
+	}
+	return list
+}
+
+// configError turns a decoding error of configuration data into one that
+// names the key.
+func configError(name string, err error, data []byte, keys []Key) error {
 	var syn *json.SyntaxError
 	var typ *json.UnmarshalTypeError
 	var word *vocab.Error
@@ -165,10 +211,14 @@ func configError(name string, err error, keys []Key) error {
 		}
 		return vocab.At(err, ErrConfig, name+": "+where)
 	case strings.HasPrefix(err.Error(), "json: unknown field "):
-		key := strings.TrimPrefix(err.Error(), "json: unknown field ")
-		return fmt.Errorf("%w: %s: unknown key %s (see `plumb help %s`)", ErrConfig, name, key, name)
+		key, uerr := strconv.Unquote(strings.TrimPrefix(err.Error(), "json: unknown field "))
+		if uerr != nil {
+			key = strings.TrimPrefix(err.Error(), "json: unknown field ")
+		}
+		return fmt.Errorf("%w: %s: unknown key %q; want one of %s (see `plumb help %s`)", ErrConfig, name, key,
+			strings.Join(keysBeside(key, data, keys), ", "), name)
 	case errors.As(err, &syn):
-		return fmt.Errorf("%w: %s: malformed JSON at byte %d: %v", ErrConfig, name, syn.Offset, err)
+		return fmt.Errorf("%w: %s: configuration is malformed JSON at byte %d (%v); want one JSON object", ErrConfig, name, syn.Offset, err)
 	case errors.As(err, &typ):
 		want := typ.Type.String()
 		if isWord(typ.Type) {
@@ -176,9 +226,20 @@ func configError(name string, err error, keys []Key) error {
 		}
 		return fmt.Errorf("%w: %s: key %q holds a JSON %s; want %s", ErrConfig, name, typ.Field, typ.Value, want)
 	case errors.Is(err, io.EOF), errors.Is(err, io.ErrUnexpectedEOF):
-		return fmt.Errorf("%w: %s: malformed JSON: the configuration ends early", ErrConfig, name)
+		return fmt.Errorf("%w: %s: configuration ends early (malformed JSON); want one JSON object", ErrConfig, name)
 	}
-	return fmt.Errorf("%w: %s: %w", ErrConfig, name, err)
+	// Any other error is that of a value that decodes itself (a mask
+	// description), which names what is wrong inside it.
+	var at []string
+	for _, k := range keys {
+		if k.decodes {
+			at = append(at, fmt.Sprintf("%q", k.Name))
+		}
+	}
+	if len(at) == 0 {
+		return configAt(err, name)
+	}
+	return configAt(err, name+": key "+strings.Join(at, " or "))
 }
 
 // wordsOf lists the words of convention v's type, "a, b".

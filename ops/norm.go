@@ -1,6 +1,8 @@
 package ops
 
 import (
+	"fmt"
+
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/norm"
 )
@@ -48,8 +50,12 @@ var (
 
 // normKernels are the float64 and float32 instantiations of one norm's
 // forward and backward functions, with RMSNorm's taking (and ignoring) a
-// bias so that both norms share one run function.
+// bias so that both norms share one run function, and the names of the
+// norm and its operations.
 type normKernels struct {
+	norm       string // "LayerNorm": the norm and its function in package norm
+	op         string // "layernorm": the operations' names begin with it
+	bias       bool   // it takes a bias input, and gives its gradient
 	forward    func(x []float64, d int, w, b []float64, o norm.Options) ([]float64, error)
 	forward32  func(x []float32, d int, w, b []float32, o norm.Options) ([]float32, error)
 	backward   func(x []float64, d int, w, dy []float64, o norm.Options) (norm.Grads, error)
@@ -57,8 +63,8 @@ type normKernels struct {
 }
 
 var (
-	layerNorm = normKernels{norm.LayerNorm, norm.LayerNorm32, norm.LayerNormBackward, norm.LayerNormBackward32}
-	rmsNorm   = normKernels{
+	layerNorm = normKernels{"LayerNorm", "layernorm", true, norm.LayerNorm, norm.LayerNorm32, norm.LayerNormBackward, norm.LayerNormBackward32}
+	rmsNorm   = normKernels{"RMSNorm", "rmsnorm", false,
 		func(x []float64, d int, w, _ []float64, o norm.Options) ([]float64, error) {
 			return norm.RMSNorm(x, d, w, o)
 		},
@@ -70,40 +76,35 @@ var (
 )
 
 func init() {
+	layerNorm.register()
+	rmsNorm.register()
+}
+
+// register registers the norm's forward and backward operations.
+func (k normKernels) register() {
+	fn := "norm." + k.norm
+	inputs := []Port{normX, normWeight}
+	grads := []Port{
+		{Name: "dx", Doc: "the shape of x"},
+		{Name: "dweight", Optional: true, Doc: "[d], when a weight is given"},
+	}
+	if k.bias {
+		inputs = append(inputs, normBias)
+		grads = append(grads, Port{Name: "dbias", Doc: "[d]"})
+	}
 	register(&op[normConfig]{
-		name:    "layernorm-forward",
-		summary: "LayerNorm over the last dimension (norm.LayerNorm; float32: norm.LayerNorm32)",
-		inputs:  []Port{normX, normWeight, normBias},
+		name:    k.op + "-forward",
+		summary: fmt.Sprintf("%s over the last dimension (%s; float32: %s32)", k.norm, fn, fn),
+		inputs:  inputs,
 		outputs: []Port{{Name: "y", Doc: "the shape of x"}},
-		run:     layerNorm.runForward,
+		run:     k.runForward,
 	})
 	register(&op[normConfig]{
-		name:    "layernorm-backward",
-		summary: "gradients of LayerNorm (norm.LayerNormBackward; float32: norm.LayerNormBackward32)",
+		name:    k.op + "-backward",
+		summary: fmt.Sprintf("gradients of %s (%sBackward; float32: %sBackward32)", k.norm, fn, fn),
 		inputs:  []Port{normX, normWeight, normDy},
-		outputs: []Port{
-			{Name: "dx", Doc: "the shape of x"},
-			{Name: "dweight", Optional: true, Doc: "[d], when a weight is given"},
-			{Name: "dbias", Doc: "[d]"},
-		},
-		run: layerNorm.runBackward,
-	})
-	register(&op[normConfig]{
-		name:    "rmsnorm-forward",
-		summary: "RMSNorm over the last dimension (norm.RMSNorm; float32: norm.RMSNorm32)",
-		inputs:  []Port{normX, normWeight},
-		outputs: []Port{{Name: "y", Doc: "the shape of x"}},
-		run:     rmsNorm.runForward,
-	})
-	register(&op[normConfig]{
-		name:    "rmsnorm-backward",
-		summary: "gradients of RMSNorm (norm.RMSNormBackward; float32: norm.RMSNormBackward32)",
-		inputs:  []Port{normX, normWeight, normDy},
-		outputs: []Port{
-			{Name: "dx", Doc: "the shape of x"},
-			{Name: "dweight", Optional: true, Doc: "[d], when a weight is given"},
-		},
-		run: rmsNorm.runBackward,
+		outputs: grads,
+		run:     k.runBackward,
 	})
 }
 
@@ -112,12 +113,9 @@ func (k normKernels) runForward(c *normConfig, in Tensors, single bool) (Tensors
 	if err != nil {
 		return nil, err
 	}
-	var y []float64
-	if single {
-		y, err = wide(k.forward32(in.f32("x"), d, in.f32("weight"), in.f32("bias"), o))
-	} else {
-		y, err = k.forward(in.data("x"), d, in.data("weight"), in.data("bias"), o)
-	}
+	y, err := pick(single,
+		func() ([]float64, error) { return k.forward(in.data("x"), d, in.data("weight"), in.data("bias"), o) },
+		func() ([]float32, error) { return k.forward32(in.f32("x"), d, in.f32("weight"), in.f32("bias"), o) })
 	if err != nil {
 		return nil, err
 	}

@@ -18,18 +18,21 @@ const ConfigVersion = 1
 
 // Sentinel errors. Every error this package returns wraps one of them, or
 // the error of the kernel package that refused the call (attention.ErrShape,
-// norm.ErrEpsilon, …), and names the operation and the key or tensor at fault.
+// norm.ErrEpsilon, …), and names the operation and the key or tensor at
+// fault, in the form "<sentinel>: <operation>: <what> = <value>; want
+// <expectation>".
 var (
 	// ErrUnknownOp: no operation has that name.
 	ErrUnknownOp = errors.New("ops: unknown operation")
 	// ErrConfig: a configuration that is not one JSON object, has an
 	// unknown key, a missing or unsupported version, a value of the wrong
-	// type, or an enumerated value that is not one of its words.
-	ErrConfig = errors.New("ops: bad configuration")
+	// type, an enumerated value that is not one of its words, or a mask
+	// description the mask package refuses.
+	ErrConfig = errors.New("ops: invalid configuration")
 	// ErrInput: an input that the operation does not take, a required input
 	// that is missing, a tensor whose data do not fill its shape, or shapes
 	// that do not fit together.
-	ErrInput = errors.New("ops: bad input")
+	ErrInput = errors.New("ops: invalid input")
 )
 
 // Tensor is a row-major float64 tensor and its shape. An empty Shape is a
@@ -69,6 +72,8 @@ type Key struct {
 	// ("attention.GroupMap"); Words lists them, the default first.
 	Convention string
 	Words      []Word
+
+	decodes bool // its values are objects that decode themselves (mask.Spec)
 }
 
 // Word is one value a word key takes, and its meaning.
@@ -133,7 +138,7 @@ func (o *op[C]) exec(config []byte, in Tensors, single bool) (Tensors, error) {
 	}
 	out, err := o.run(c, in, single)
 	if err != nil {
-		return nil, fmt.Errorf("%s: %w", o.name, err)
+		return nil, within(err, o.name)
 	}
 	return out, nil
 }
@@ -160,16 +165,19 @@ func Names() []string {
 
 // Lookup returns the operation called name, or an error wrapping
 // ErrUnknownOp that lists the known names.
-func Lookup(name string) (Op, error) {
+func Lookup(name string) (Op, error) { return lookup("Lookup", name) }
+
+// lookup is Lookup for the exported function fn.
+func lookup(fn, name string) (Op, error) {
 	if o, ok := registry[name]; ok {
 		return o, nil
 	}
-	return nil, fmt.Errorf("%w %q; known operations: %s", ErrUnknownOp, name, strings.Join(Names(), ", "))
+	return nil, fmt.Errorf("%w: %s: name = %q; want one of %s", ErrUnknownOp, fn, name, strings.Join(Names(), ", "))
 }
 
 // Run looks up the operation called name and runs its float64 reference.
 func Run(name string, config []byte, in Tensors) (Tensors, error) {
-	o, err := Lookup(name)
+	o, err := lookup("Run", name)
 	if err != nil {
 		return nil, err
 	}
@@ -179,7 +187,7 @@ func Run(name string, config []byte, in Tensors) (Tensors, error) {
 // Run32 looks up the operation called name and runs its float32
 // instantiation (see Op.Run32).
 func Run32(name string, config []byte, in Tensors) (Tensors, error) {
-	o, err := Lookup(name)
+	o, err := lookup("Run32", name)
 	if err != nil {
 		return nil, err
 	}
@@ -205,7 +213,7 @@ func Run32(name string, config []byte, in Tensors) (Tensors, error) {
 // integer arguments (positions, mask, sizes) live in the configuration and
 // are not rounded.
 func Yardstick(name string, config []byte, in Tensors, f compare.Format, k float64) (map[string]*compare.Yardstick, error) {
-	o, err := Lookup(name)
+	o, err := lookup("Yardstick", name)
 	if err != nil {
 		return nil, err
 	}
@@ -245,7 +253,7 @@ func Yardstick(name string, config []byte, in Tensors, f compare.Format, k float
 		}
 		y, err := compare.MeasureYardstick(f, inputs, r.Data, r.Shape, k, run(p.Name))
 		if err != nil {
-			return nil, fmt.Errorf("%s: output %q: %w", name, p.Name, err)
+			return nil, within(err, fmt.Sprintf("%s: output %q", name, p.Name))
 		}
 		ys[p.Name] = y
 	}
@@ -278,29 +286,29 @@ func checkInputs(name string, ports []Port, in Tensors) error {
 	}
 	if len(extra) > 0 {
 		sort.Strings(extra)
-		takes := "no input"
+		takes := "none: the operation takes no input"
 		if len(all) > 0 {
-			takes = strings.Join(all, ", ")
+			takes = "one of " + strings.Join(all, ", ")
 		}
-		return fmt.Errorf("%w: %s does not take input %q; it takes %s", ErrInput, name, extra[0], takes)
+		return fmt.Errorf("%w: %s: input name = %q; want %s", ErrInput, name, extra[0], takes)
 	}
 	for _, p := range ports {
 		t, ok := in[p.Name]
 		if !ok {
 			if !p.Optional {
-				return fmt.Errorf("%w: %s: input %q is missing (%s)", ErrInput, name, p.Name, p.Doc)
+				return fmt.Errorf("%w: %s: input %q is missing; want %s", ErrInput, name, p.Name, p.Doc)
 			}
 			continue
 		}
 		n := 1
 		for _, d := range t.Shape {
 			if d < 0 {
-				return fmt.Errorf("%w: %s: input %q has shape %v with a negative dimension", ErrInput, name, p.Name, t.Shape)
+				return fmt.Errorf("%w: %s: input %q has shape %v; want every dimension ≥ 0", ErrInput, name, p.Name, t.Shape)
 			}
 			n *= d
 		}
 		if n != len(t.Data) {
-			return fmt.Errorf("%w: %s: input %q has %d values; its shape %v holds %d", ErrInput, name, p.Name, len(t.Data), t.Shape, n)
+			return fmt.Errorf("%w: %s: input %q has %d elements; want %d for its shape %v", ErrInput, name, p.Name, len(t.Data), n, t.Shape)
 		}
 	}
 	return nil
@@ -347,9 +355,15 @@ func sameShape(in Tensors, n string, want []int, what string) error {
 // absent.
 func (in Tensors) f32(n string) []float32 { return num.Convert[float32](in.data(n)) }
 
-// wide returns a float32 result widened (exactly) to float64, with its
-// error.
-func wide(y []float32, err error) ([]float64, error) { return num.Convert[float64](y), err }
+// pick runs the float32 instantiation f32 when single, its result widened
+// (exactly) to float64, and the float64 reference f64 otherwise.
+func pick(single bool, f64 func() ([]float64, error), f32 func() ([]float32, error)) ([]float64, error) {
+	if single {
+		y, err := f32()
+		return num.Convert[float64](y), err
+	}
+	return f64()
+}
 
 // has reports whether input n was given.
 func (in Tensors) has(n string) bool { _, ok := in[n]; return ok }

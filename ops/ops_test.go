@@ -219,9 +219,10 @@ func TestRunMatchesKernels(t *testing.T) {
 	require.NoError(t, err)
 	assert.Equal(t, y, got["y"].Data)
 
-	// softmax and log-sum-exp, with the worked values of FORMULAS.md
-	// ([mpmath]: x = [1, 3, 2] → lse 3.4076059644443803, softmax
-	// 0.090030573170380458, 0.66524095577482189, 0.24472847105479765).
+	// softmax and log-sum-exp, with the worked values of the package
+	// documentation (doc.go, Worked values; [mpmath]: x = [1, 3, 2] → lse
+	// 3.4076059644443803, softmax 0.090030573170380458, 0.66524095577482189,
+	// 0.24472847105479765).
 	got, err = Run("softmax", nil, Tensors{"x": {[]int{1, 3}, []float64{1, 3, 2}}})
 	require.NoError(t, err)
 	// Within 2 ulps at these magnitudes (ulp(0.67) = 1.1e-16, ulp(3.4) = 4.4e-16).
@@ -309,34 +310,50 @@ func TestErrors(t *testing.T) {
 		want             error
 		says             string
 	}{
-		{"unknown op", "attention-sideways", `{"version":1}`, x, ErrUnknownOp, `"attention-sideways"`},
-		{"unknown key", "activation", `{"version":1,"function":"relu","slope":2}`, x, ErrConfig, `unknown key "slope"`},
-		{"unknown nested key", "attention-forward", `{"version":1,"mask":[{"kind":"window","width":2}]}`, qkv, ErrConfig, `unknown key "width"`},
-		{"mask key of another kind", "attention-forward", `{"version":1,"mask":[{"kind":"causal","size":4}]}`, qkv, ErrConfig, `key "size" does not apply to kind "causal"`},
-		{"mask key missing", "attention-forward", `{"version":1,"mask":[{"kind":"band","before":2}]}`, qkv, ErrConfig, `kind "band" needs key "after"`},
-		{"mask prefix without length", "attention-forward", `{"version":1,"mask":[{"kind":"prefix"}]}`, qkv, ErrConfig, `kind "prefix" needs key "length"`},
-		{"missing version", "activation", `{"function":"relu"}`, x, ErrConfig, `"version" is missing`},
-		{"future version", "activation", `{"version":2,"function":"relu"}`, x, ErrConfig, `"version" = 2`},
-		{"malformed", "activation", `{"version":1,`, x, ErrConfig, "malformed JSON"},
-		{"syntax", "activation", `{"version":1 "function":"relu"}`, x, ErrConfig, "malformed JSON at byte"},
-		{"two values", "activation", `{"version":1,"function":"relu"} {}`, x, ErrConfig, "more than one value"},
+		{"unknown op", "attention-sideways", `{"version":1}`, x, ErrUnknownOp, `Run: name = "attention-sideways"; want one of activation, activation-grad,`},
+		{"unknown key", "activation", `{"version":1,"function":"relu","slope":2}`, x, ErrConfig, `unknown key "slope"; want one of version, function, beta`},
+		{"unknown scaling key", "rotary-apply", `{"version":1,"scaling":{"method":"yarn","factor":2,"slope":2}}`, x, ErrConfig,
+			`unknown key "slope"; want one of scaling.method, scaling.factor, scaling.trained_length,`},
+		{"unknown nested key", "attention-forward", `{"version":1,"mask":[{"kind":"window","width":2}]}`, qkv, ErrConfig, `key "mask": Spec.UnmarshalJSON: key "width"; want one of kind, before, after, size,`},
+		{"mask key of another kind", "attention-forward", `{"version":1,"mask":[{"kind":"causal","size":4}]}`, qkv, ErrConfig, `key "mask": Spec.UnmarshalJSON: key "size" with kind "causal"; want no key but "kind"`},
+		{"mask key missing", "attention-forward", `{"version":1,"mask":[{"kind":"band","before":2}]}`, qkv, ErrConfig, `key "mask": Spec.UnmarshalJSON: key "after" is missing; want it with kind "band"`},
+		{"mask prefix without length", "attention-forward", `{"version":1,"mask":[{"kind":"prefix"}]}`, qkv, ErrConfig, `key "mask": Spec.UnmarshalJSON: key "length" is missing; want it with kind "prefix"`},
+		{"missing version", "activation", `{"function":"relu"}`, x, ErrConfig, `key "version" is missing or 0; want 1,`},
+		{"future version", "activation", `{"version":2,"function":"relu"}`, x, ErrConfig, `key "version" = 2; want 1,`},
+		{"malformed", "activation", `{"version":1,`, x, ErrConfig, "configuration ends early (malformed JSON); want one JSON object"},
+		{"syntax", "activation", `{"version":1 "function":"relu"}`, x, ErrConfig, "configuration is malformed JSON at byte 14 ("}, // the 14th byte, a quote, follows the 1 with no comma
+		{"two values", "activation", `{"version":1,"function":"relu"} {}`, x, ErrConfig, "configuration holds more than one JSON value"},
+		// 38 bytes before the zeros, 2^20 zeros, and the closing brace.
+		{"too long", "activation", `{"version":1,"function":"relu","beta":` + strings.Repeat("0", MaxConfigBytes) + `}`, x, ErrConfig,
+			"configuration has 1048615 bytes; want at most MaxConfigBytes = 1048576"},
 		{"wrong type", "activation", `{"version":1,"function":3}`, x, ErrConfig, `key "function" holds a JSON number`},
 		{"bad word", "attention-forward", `{"version":1,"layout":"rows"}`, qkv, ErrConfig, `key "layout" = "rows"; want one of heads-major, seq-major`},
 		{"bad nested word", "attention-forward", `{"version":1,"mask":[{"kind":"windw","size":2}]}`, qkv, ErrConfig, `key "mask[].kind" = "windw"; want one of full, causal,`},
 		{"bad block word", "attention-forward", `{"version":1,"mask":[{"kind":"packed","offsets":[0,3],"block":"open"}]}`, qkv, ErrConfig, `key "mask[].block" = "open"; want one of causal, full`},
 		{"word as number", "attention-forward", `{"version":1,"group":1}`, qkv, ErrConfig, `key "group" holds a JSON number; want a word: blocks, cycle`},
-		{"missing required", "activation", `{"version":1}`, x, ErrConfig, `key "function" is missing`},
-		{"unknown input", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": x["x"], "z": x["x"]}, ErrInput, `does not take input "z"`},
-		{"missing input", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"]}, ErrInput, `input "k" is missing`},
-		{"data short", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": {[]int{3, 3}, make([]float64, 8)}}, ErrInput, `input "x" has 8 values; its shape [3 3] holds 9`},
+		{"missing required word", "activation", `{"version":1}`, x, ErrConfig, `key "function" is missing; want one of relu, gelu,`},
+		{"missing required number", "layernorm-forward", `{"version":1}`, x, ErrConfig, `key "epsilon" is missing; want ε, finite and > 0 (a number)`},
+		{"missing packing", "ffn-forward", `{"version":1,"activation":"relu","gated":true,"layout":"in-by-out"}`,
+			Tensors{"x": x["x"], "fused": tensor(r, 8, 8), "w2": tensor(r, 4, 8)}, ErrConfig, `key "packing" is missing; want one of stacked, interleaved`},
+		{"unknown input", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": x["x"], "z": x["x"]}, ErrInput, `input name = "z"; want one of x`},
+		{"input of a table", "alibi-slopes", `{"version":1,"heads":2}`, x, ErrInput, `input name = "x"; want none: the operation takes no input`},
+		{"missing input", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"]}, ErrInput, `input "k" is missing; want keys, [batch, heads_kv, keys, dim]`},
+		{"data short", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": {[]int{3, 3}, make([]float64, 8)}}, ErrInput, `input "x" has 8 elements; want 9 for its shape [3 3]`},
+		{"negative dimension", "activation", `{"version":1,"function":"relu"}`, Tensors{"x": {[]int{-1}, nil}}, ErrInput, `input "x" has shape [-1]; want every dimension ≥ 0`},
 		{"rank", "attention-forward", `{"version":1}`, Tensors{"q": x["x"], "k": qkv["k"], "v": qkv["v"]}, ErrInput, `input "q" has shape [2 8]; want 4 dimensions`},
-		{"head dim", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": tensor(r, 1, 2, 3, 5), "v": qkv["v"]}, ErrInput, `input "k" has head dimension 5`},
+		{"head dim", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": tensor(r, 1, 2, 3, 5), "v": qkv["v"]}, ErrInput, `input "k" has head dimension 5; want 4, the head dimension of "q"`},
+		{"batch", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": qkv["k"], "v": tensor(r, 2, 2, 3, 4)}, ErrInput, `input "v" has batch size 2; want 1, the batch size of "q"`},
+		{"v keys", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": qkv["k"], "v": tensor(r, 1, 2, 4, 4)}, ErrInput, `input "v" has shape [1 2 4 4]; want 2 heads and 3 keys, as "k" [1 2 3 4] has`},
 		{"dy shape", "activation-grad", `{"version":1,"function":"relu"}`, Tensors{"x": x["x"], "dy": tensor(r, 8, 2)}, ErrInput, `input "dy" has shape [8 2]; want [2 8]`},
 		{"kernel error", "layernorm-forward", `{"version":1,"epsilon":-1}`, x, norm.ErrEpsilon, "layernorm-forward"},
 		{"kernel heads", "attention-forward", `{"version":1}`, Tensors{"q": qkv["q"], "k": tensor(r, 1, 3, 3, 4), "v": tensor(r, 1, 3, 3, 4)}, attention.ErrShape, "attention-forward"},
-		{"huge table", "sinusoidal-table", `{"version":1,"dim":1024,"length":1000000000}`, nil, ErrConfig, "more than 268435456 values"},
-		{"huge bias", "alibi-bias", `{"version":1,"queries":100000,"keys":100000}`, Tensors{"slopes": {[]int{1}, []float64{0.5}}}, ErrConfig, "more than"},
-		{"negative length", "rotary-tables", `{"version":1,"dim":8,"length":-1}`, nil, ErrConfig, "a size is -1"},
+		{"huge table", "sinusoidal-table", `{"version":1,"dim":1024,"length":1000000000}`, nil, ErrConfig,
+			`key "length" = 1000000000, key "dim" = 1024: the output would hold more than 268435456 values; want at most MaxTableElements = 268435456`},
+		{"huge bias", "alibi-bias", `{"version":1,"queries":100000,"keys":100000}`, Tensors{"slopes": {[]int{1}, []float64{0.5}}}, ErrConfig,
+			`heads (input "slopes") = 1, key "queries" = 100000, key "keys" = 100000: the output would hold more than`},
+		{"negative length", "rotary-tables", `{"version":1,"dim":8,"length":-1}`, nil, ErrConfig, `key "length" = -1; want ≥ 0`},
+		{"positions and length", "rotary-tables", `{"version":1,"dim":8,"length":2,"positions":[0,4]}`, nil, ErrConfig,
+			`key "length" = 2 and key "offset" = 0 with key "positions"; want 0 for both`},
 		{"weight shape", "ffn-forward", `{"version":1,"activation":"relu","layout":"in-by-out"}`,
 			Tensors{"x": x["x"], "w1": tensor(r, 8, 3), "w2": tensor(r, 4, 8)}, ErrInput, `input "w1" has shape [8 3]; want [8 4]`},
 	} {
@@ -345,8 +362,36 @@ func TestErrors(t *testing.T) {
 			require.Error(t, err)
 			assert.True(t, errors.Is(err, c.want), "%v does not wrap %v", err, c.want)
 			assert.Contains(t, err.Error(), c.says)
+			// The one form: the sentinel's text, then the operation (the
+			// function called, for an operation that does not exist).
+			where := c.op
+			if c.want == ErrUnknownOp {
+				where = "Run"
+			}
+			assert.True(t, strings.HasPrefix(err.Error(), c.want.Error()+": "+where+": "), "%q does not start with %q", err, c.want.Error()+": "+where+": ")
 		})
 	}
+}
+
+// TestMaskErrorsWrapBoth: an invalid mask in a configuration is refused
+// under ErrConfig and the mask package's own sentinel, and its message
+// names the key once, with one sentinel's text.
+func TestMaskErrorsWrapBoth(t *testing.T) {
+	r := rand.New(rand.NewPCG(5, 6))
+	qkv := Tensors{"q": tensor(r, 1, 2, 3, 4), "k": tensor(r, 1, 2, 3, 4), "v": tensor(r, 1, 2, 3, 4)}
+	_, err := Run("attention-forward", []byte(`{"version":1,"mask":[{"kind":"window","size":0}]}`), qkv)
+	require.Error(t, err)
+	assert.ErrorIs(t, err, ErrConfig)
+	assert.ErrorIs(t, err, mask.ErrWindow)
+	assert.True(t, strings.HasPrefix(err.Error(), `ops: invalid configuration: attention-forward: key "mask": `), err.Error())
+	assert.NotContains(t, err.Error(), mask.ErrWindow.Error())
+
+	_, err = Run("attention-forward", []byte(`{"version":1,"mask":[{"kind":"band","before":2}]}`), qkv)
+	require.Error(t, err)
+	assert.ErrorIs(t, err, ErrConfig)
+	assert.ErrorIs(t, err, mask.ErrSpec)
+	assert.True(t, strings.HasPrefix(err.Error(), `ops: invalid configuration: attention-forward: key "mask": `), err.Error())
+	assert.NotContains(t, err.Error(), mask.ErrSpec.Error())
 }
 
 func TestYardstickRefusesFloat64(t *testing.T) {
@@ -401,7 +446,7 @@ func wordOf(o Op, config []byte, key string) (string, error) {
 func (o *op[C]) decodeWord(config []byte, key string) (string, error) {
 	c := new(C)
 	if err := json.Unmarshal(config, c); err != nil {
-		return "", configError(o.name, err, o.keys)
+		return "", configError(o.name, err, config, o.keys)
 	}
 	f, ok := fieldByKey(reflect.ValueOf(c).Elem(), key)
 	if !ok {

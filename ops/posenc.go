@@ -2,6 +2,7 @@ package ops
 
 import (
 	"fmt"
+	"strings"
 
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/posenc"
@@ -67,11 +68,10 @@ type slopesConfig struct {
 
 type alibiBiasConfig struct {
 	header
-	Queries int            `json:"queries" doc:"number of queries" default:"required"`
-	Keys    int            `json:"keys" doc:"number of keys" default:"required"`
-	Align   mask.Align     `json:"align" doc:"where query i sits among the keys"`
-	Offset  int            `json:"offset" doc:"shifts every query position" default:"0"`
-	ALiBi   mask.ALiBiForm `json:"alibi_form" doc:"the key distance d the bias −m·d penalises"`
+	Queries int `json:"queries" doc:"number of queries" default:"required"`
+	Keys    int `json:"keys" doc:"number of keys" default:"required"`
+	queryPositions
+	ALiBi mask.ALiBiForm `json:"alibi_form" doc:"the key distance d the bias −m·d penalises"`
 }
 
 // MaxTableElements is the largest output an operation that makes a table
@@ -79,18 +79,30 @@ type alibiBiasConfig struct {
 // will allocate: 2^28 values, 2 GiB of float64.
 const MaxTableElements = 1 << 28
 
-// tableSize refuses configurations whose output would exceed
-// MaxTableElements; dims are the sizes from the configuration.
-func tableSize(keys string, dims ...int) error {
+// size is one dimension of a table: what gives it (a key, "key \"dim\"",
+// or an input) and its value.
+type size struct {
+	what string
+	n    int
+}
+
+// tableSize refuses sizes below 0 and tables that would exceed
+// MaxTableElements.
+func tableSize(dims ...size) error {
 	n := 1
+	var all []string
 	for _, d := range dims {
-		if d < 0 {
-			return fmt.Errorf("%w: %s: a size is %d; want ≥ 0", ErrConfig, keys, d)
+		if d.n < 0 {
+			return fmt.Errorf("%w: %s = %d; want ≥ 0", ErrConfig, d.what, d.n)
 		}
-		if d > 0 && n > MaxTableElements/d {
-			return fmt.Errorf("%w: %s: the output would hold more than %d values", ErrConfig, keys, MaxTableElements)
+		all = append(all, fmt.Sprintf("%s = %d", d.what, d.n))
+	}
+	for _, d := range dims {
+		if d.n > 0 && n > MaxTableElements/d.n {
+			return fmt.Errorf("%w: %s: the output would hold more than %d values; want at most MaxTableElements = %d",
+				ErrConfig, strings.Join(all, ", "), MaxTableElements, MaxTableElements)
 		}
-		n *= d
+		n *= d.n
 	}
 	return nil
 }
@@ -154,18 +166,13 @@ func runRotaryApply(c *rotaryApplyConfig, in Tensors, single bool) (Tensors, err
 	r := c.rotary(s[len(s)-1])
 	pos := posenc.Positions{Offset: c.Offset, List: c.Positions}
 	L := s[len(s)-2]
-	var y []float64
-	var err error
-	switch {
-	case single && c.Inverse:
-		y, err = wide(r.ApplyInverse32(in.f32("x"), L, pos))
-	case single:
-		y, err = wide(r.Apply32(in.f32("x"), L, pos))
-	case c.Inverse:
-		y, err = r.ApplyInverse(in.data("x"), L, pos)
-	default:
-		y, err = r.Apply(in.data("x"), L, pos)
+	apply, apply32 := r.Apply, r.Apply32
+	if c.Inverse {
+		apply, apply32 = r.ApplyInverse, r.ApplyInverse32
 	}
+	y, err := pick(single,
+		func() ([]float64, error) { return apply(in.data("x"), L, pos) },
+		func() ([]float32, error) { return apply32(in.f32("x"), L, pos) })
 	if err != nil {
 		return nil, err
 	}
@@ -176,7 +183,7 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 	r := c.rotary(c.Dim)
 	pos := c.Positions
 	if pos == nil {
-		if err := tableSize(`"length" and "dim"`, c.Length, c.Dim); err != nil {
+		if err := tableSize(size{`key "length"`, c.Length}, size{`key "dim"`, c.Dim}); err != nil {
 			return nil, err
 		}
 		pos = make([]int, c.Length)
@@ -184,7 +191,8 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 			pos[i] = c.Offset + i
 		}
 	} else if c.Length != 0 || c.Offset != 0 {
-		return nil, fmt.Errorf("%w: keys \"positions\" and \"length\"/\"offset\" exclude each other", ErrConfig)
+		return nil, fmt.Errorf("%w: key \"length\" = %d and key \"offset\" = %d with key \"positions\"; want 0 for both: the positions exclude them",
+			ErrConfig, c.Length, c.Offset)
 	}
 	cos, sin, err := r.Tables(pos)
 	if err != nil {
@@ -195,7 +203,7 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 }
 
 func runSinusoidalTable(c *sinusoidalConfig, in Tensors, single bool) (Tensors, error) {
-	if err := tableSize(`"length" and "dim"`, c.Length, c.Dim); err != nil {
+	if err := tableSize(size{`key "length"`, c.Length}, size{`key "dim"`, c.Dim}); err != nil {
 		return nil, err
 	}
 	t, err := posenc.Sinusoidal{Dim: c.Dim, Base: c.Base, Layout: c.Layout}.Table(c.Length, c.Offset)
@@ -217,20 +225,16 @@ func runAlibiBias(c *alibiBiasConfig, in Tensors, single bool) (Tensors, error) 
 	if _, err := rank(in, "slopes", 1, "[heads]"); err != nil {
 		return nil, err
 	}
-	if err := tableSize(`"queries" and "keys"`, len(in.data("slopes")), c.Queries, c.Keys); err != nil {
+	heads := len(in.data("slopes"))
+	if err := tableSize(size{`heads (input "slopes")`, heads}, size{`key "queries"`, c.Queries}, size{`key "keys"`, c.Keys}); err != nil {
 		return nil, err
 	}
 	g := mask.Geometry{Batch: 1, Lq: c.Queries, Lk: c.Keys, Align: c.Align, Offset: c.Offset}
-	f := c.ALiBi
-	var b []float64
-	var err error
-	if single {
-		b, err = wide(posenc.ALiBiBias32(in.f32("slopes"), g, f))
-	} else {
-		b, err = posenc.ALiBiBias(in.data("slopes"), g, f)
-	}
+	b, err := pick(single,
+		func() ([]float64, error) { return posenc.ALiBiBias(in.data("slopes"), g, c.ALiBi) },
+		func() ([]float32, error) { return posenc.ALiBiBias32(in.f32("slopes"), g, c.ALiBi) })
 	if err != nil {
 		return nil, err
 	}
-	return Tensors{"bias": {[]int{len(in.data("slopes")), c.Queries, c.Keys}, b}}, nil
+	return Tensors{"bias": {[]int{heads, c.Queries, c.Keys}, b}}, nil
 }

@@ -8,6 +8,7 @@ import (
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/ops"
 	"github.com/plumbref/plumb/posenc"
@@ -104,30 +105,23 @@ func reference[T float32 | float64](q, k, v []T, pairing posenc.Pairing) ([]T, e
 	r := posenc.Rotary{Dim: demoDim, Base: demoBase, Pairing: pairing}
 	s := attention.Shape{Batch: 1, HeadsQ: demoHeadsQ, HeadsKV: demoHeadsKV, Lq: demoLen, Lk: demoLen, Dk: demoDim, Dv: demoDim}
 	o := attention.Options{Mask: mask.Causal()}
-	switch q := any(q).(type) {
-	case []float64:
-		qr, err := r.Apply(q, demoLen, posenc.Positions{})
-		if err != nil {
-			return nil, err
-		}
-		kr, err := r.Apply(any(k).([]float64), demoLen, posenc.Positions{})
-		if err != nil {
-			return nil, err
-		}
-		out, _, err := attention.Forward(qr, kr, any(v).([]float64), s, o)
-		return any(out).([]T), err
-	default:
-		qr, err := r.Apply32(any(q).([]float32), demoLen, posenc.Positions{})
-		if err != nil {
-			return nil, err
-		}
-		kr, err := r.Apply32(any(k).([]float32), demoLen, posenc.Positions{})
-		if err != nil {
-			return nil, err
-		}
-		out, _, err := attention.Forward32(qr, kr, any(v).([]float32), s, o)
-		return any(out).([]T), err
+	var rotate func(x []T, length int, pos posenc.Positions) ([]T, error)
+	var attend func(q, k, v []T, s attention.Shape, o attention.Options) ([]T, []T, error)
+	if _, wide := any(q).([]float64); wide {
+		rotate, attend = any(r.Apply).(func([]T, int, posenc.Positions) ([]T, error)), any(attention.Forward).(func(q, k, v []T, s attention.Shape, o attention.Options) ([]T, []T, error))
+	} else {
+		rotate, attend = any(r.Apply32).(func([]T, int, posenc.Positions) ([]T, error)), any(attention.Forward32).(func(q, k, v []T, s attention.Shape, o attention.Options) ([]T, []T, error))
 	}
+	qr, err := rotate(q, demoLen, posenc.Positions{})
+	if err != nil {
+		return nil, err
+	}
+	kr, err := rotate(k, demoLen, posenc.Positions{})
+	if err != nil {
+		return nil, err
+	}
+	out, _, err := attend(qr, kr, v, s, o)
+	return out, err
 }
 
 // demoResult is what the demo found, for its test.
@@ -137,18 +131,54 @@ type demoResult struct {
 	perPosition                  []float64       // the buggy port's max abs error at each query position
 }
 
+// demo is one run of the demonstration: its inputs (float32 values, held
+// as float64), the reference and its yardstick, and what it found.
+type demo struct {
+	w               io.Writer
+	shapeQ, shapeKV []int
+	q, k, v         []float64
+	ref             []float64
+	yardstick       *compare.Yardstick
+	opts            compare.Options // the yardstick's, listing the 3 worst elements
+	res             demoResult
+}
+
 func runDemo(w io.Writer, quiet bool, e *env) (*demoResult, error) {
-	shapeQ := []int{1, demoHeadsQ, demoLen, demoDim}
-	shapeKV := []int{1, demoHeadsKV, demoLen, demoDim}
+	d := newDemo(w)
+	d.intro()
+	if err := d.measure(e, quiet); err != nil {
+		return nil, err
+	}
+	buggy, err := d.checkPort()
+	if err != nil {
+		return nil, err
+	}
+	d.wherePositions(buggy)
+	if err := d.narrowDown(); err != nil {
+		return nil, err
+	}
+	if err := d.checkFix(); err != nil {
+		return nil, err
+	}
+	return &d.res, nil
+}
+
+// newDemo draws the inputs: plumb gen -dist normal, seeds 1, 2 and 3,
+// rounded to float32 as the port stores them.
+func newDemo(w io.Writer) *demo {
 	gen := func(seed uint64, n int) []float64 {
 		x, _ := generate(n, "normal", seed, 0, 1, 0, 1)
 		return compare.Float32.RoundSlice(x) // the port stores float32
 	}
-	q := gen(1, demoHeadsQ*demoLen*demoDim)
-	k := gen(2, demoHeadsKV*demoLen*demoDim)
-	v := gen(3, demoHeadsKV*demoLen*demoDim)
+	return &demo{w: w,
+		shapeQ: []int{1, demoHeadsQ, demoLen, demoDim}, shapeKV: []int{1, demoHeadsKV, demoLen, demoDim},
+		q: gen(1, demoHeadsQ*demoLen*demoDim), k: gen(2, demoHeadsKV*demoLen*demoDim), v: gen(3, demoHeadsKV*demoLen*demoDim),
+	}
+}
 
-	fmt.Fprintf(w, `plumb demo: checking a float32 port of a decoder attention block
+// intro says what the demonstration checks.
+func (d *demo) intro() {
+	fmt.Fprintf(d.w, `plumb demo: checking a float32 port of a decoder attention block
 
 The block: %d query heads on %d key/value heads (grouped, consecutive query
 heads share one), %d positions, head dimension %d; rotary encoding (base %d)
@@ -158,100 +188,121 @@ from a description of the layer. Inputs q %v, k and v %v: plumb gen
 The reference is plumb's float64 posenc.Rotary.Apply and attention.Forward,
 rotary pairs (2i, 2i+1) as in the paper.
 
-`, demoHeadsQ, demoHeadsKV, demoLen, demoDim, demoBase, shapeQ, shapeKV)
+`, demoHeadsQ, demoHeadsKV, demoLen, demoDim, demoBase, d.shapeQ, d.shapeKV)
+}
 
+// measure computes the reference and its float32 yardstick.
+func (d *demo) measure(e *env, quiet bool) error {
 	done := progress(e, quiet, "computing the reference and the yardstick")
-	ref, err := reference(q, k, v, posenc.PairAdjacent)
-	if err != nil {
-		done()
-		return nil, err
+	defer done()
+	var err error
+	if d.ref, err = reference(d.q, d.k, d.v, posenc.PairAdjacent); err != nil {
+		return err
 	}
-	y, err := compare.MeasureYardstick(compare.Float32, [][]float64{q, k, v}, ref, shapeQ, compare.DefaultK,
+	d.yardstick, err = compare.MeasureYardstick(compare.Float32, [][]float64{d.q, d.k, d.v}, d.ref, d.shapeQ, compare.DefaultK,
 		func(in [][]float32) ([]float32, error) { return reference(in[0], in[1], in[2], posenc.PairAdjacent) })
-	done()
 	if err != nil {
-		return nil, err
+		return err
 	}
-	opts := y.Options()
-	opts.Worst = 3
-	fmt.Fprintf(w, "Tolerance, from the yardstick (the same layers run as plumb's float32\ninstantiation): %s\n\n", y.Tolerance.Basis)
+	d.opts = d.yardstick.Options()
+	d.opts.Worst = 3
+	return nil
+}
 
-	res := &demoResult{}
-	toF32 := func(x []float64) []float32 {
-		y := make([]float32, len(x))
-		for i, v := range x {
-			y[i] = float32(v)
-		}
-		return y
-	}
-	buggy := compare.Widen(port(toF32(q), toF32(k), toF32(v), true))
-	if res.buggy, err = compare.Diff(ref, buggy, shapeQ, opts); err != nil {
-		return nil, err
-	}
-	fmt.Fprintf(w, "1. The port as written\n\n")
-	if err := res.buggy.WriteText(w); err != nil {
-		return nil, err
-	}
+// port runs the port on the demo's inputs, its rotary pairs (i, i + d/2)
+// when halves.
+func (d *demo) port(halves bool) []float64 {
+	return compare.Widen(port(num.Convert[float32](d.q), num.Convert[float32](d.k), num.Convert[float32](d.v), halves))
+}
 
-	res.perPosition = make([]float64, demoLen)
-	for i := range ref {
+// checkPort is step 1: the port as written, against the reference. It
+// returns the port's output.
+func (d *demo) checkPort() ([]float64, error) {
+	fmt.Fprintf(d.w, "Tolerance, from the yardstick (the same layers run as plumb's float32\ninstantiation): %s\n\n", d.yardstick.Tolerance.Basis)
+	buggy := d.port(true)
+	var err error
+	if d.res.buggy, err = compare.Diff(d.ref, buggy, d.shapeQ, d.opts); err != nil {
+		return nil, err
+	}
+	fmt.Fprintf(d.w, "1. The port as written\n\n")
+	return buggy, d.res.buggy.WriteText(d.w)
+}
+
+// wherePositions shows the buggy port's largest error at each query
+// position.
+func (d *demo) wherePositions(buggy []float64) {
+	d.res.perPosition = make([]float64, demoLen)
+	for i := range d.ref {
 		pos := i / demoDim % demoLen
-		res.perPosition[pos] = math.Max(res.perPosition[pos], math.Abs(buggy[i]-ref[i]))
+		d.res.perPosition[pos] = math.Max(d.res.perPosition[pos], math.Abs(buggy[i]-d.ref[i]))
 	}
-	fmt.Fprintf(w, "\nWhere it is worst: max |error| by query position, over heads and dims\n")
-	for pos, e := range res.perPosition {
-		fmt.Fprintf(w, "  position %2d  %-9.3g %s\n", pos, e, bar(e, res.buggy.MaxAbs, 40))
+	fmt.Fprintf(d.w, "\nWhere it is worst: max |error| by query position, over heads and dims\n")
+	for pos, e := range d.res.perPosition {
+		fmt.Fprintf(d.w, "  position %2d  %-9.3g %s\n", pos, e, bar(e, d.res.buggy.MaxAbs, 40))
 	}
-	worst := res.buggy.Worst[0].Index
-	fmt.Fprintf(w, `
+}
+
+// narrowDown compares the port's rotary step on q with plumb's under each
+// pairing.
+func (d *demo) narrowDown() error {
+	worst := d.res.buggy.Worst[0].Index
+	fmt.Fprintf(d.w, `
 The worst element is head %d, position %d, dim %d. Position 0 is exact only
 because a causal query 0 sees key 0 alone (its output is v₀ whatever the
 logits); from position 1 on the errors are far beyond rounding, so the
 logits are wrong. Narrow it down: the port's rotary step, on q, against
 plumb's (ops "rotary-apply", float32 yardstick):
 `, worst[1], worst[2], worst[3])
-	qPort := toF32(q)
+	qPort := num.Convert[float32](d.q)
 	portRotary(qPort, demoHeadsQ, true)
-	for _, pairing := range []string{"adjacent", "halves"} {
-		cfg := []byte(`{"version": 1, "base": 10000, "pairing": "` + pairing + `"}`)
-		in := ops.Tensors{"x": {Shape: shapeQ, Data: q}}
+	rotated := compare.Widen(qPort)
+	for _, p := range []struct {
+		word, pairs string
+		report      **compare.Report
+	}{
+		{"adjacent", "(2i, 2i+1)", &d.res.rotaryAdjacent},
+		{"halves", "(i, i + d/2)", &d.res.rotaryHalves},
+	} {
+		cfg := []byte(`{"version": 1, "base": 10000, "pairing": "` + p.word + `"}`)
+		in := ops.Tensors{"x": {Shape: d.shapeQ, Data: d.q}}
 		want, err := ops.Run("rotary-apply", cfg, in)
 		if err != nil {
-			return nil, err
+			return err
 		}
 		ys, err := ops.Yardstick("rotary-apply", cfg, in, compare.Float32, compare.DefaultK)
 		if err != nil {
-			return nil, err
+			return err
 		}
-		r, err := compare.Diff(want["y"].Data, compare.Widen(qPort), shapeQ, ys["y"].Options())
+		r, err := compare.Diff(want["y"].Data, rotated, d.shapeQ, ys["y"].Options())
 		if err != nil {
-			return nil, err
+			return err
 		}
-		if pairing == "adjacent" {
-			res.rotaryAdjacent = r
-		} else {
-			res.rotaryHalves = r
-		}
-		first, rest := maxByPosition(want["y"].Data, compare.Widen(qPort))
-		fmt.Fprintf(w, "  %-10s pairs %-13s normwise error %-9.3g %s  (max error at position 0: %.3g; at 1 … %d: %.3g)\n",
-			`"`+pairing+`"`, map[string]string{"adjacent": "(2i, 2i+1)", "halves": "(i, i + d/2)"}[pairing], r.Normwise, passWord(r), first, demoLen-1, rest)
+		*p.report = r
+		first, rest := maxByPosition(want["y"].Data, rotated)
+		fmt.Fprintf(d.w, "  %-10s pairs %-13s normwise error %-9.3g %s  (max error at position 0: %.3g; at 1 … %d: %.3g)\n",
+			`"`+p.word+`"`, p.pairs, r.Normwise, passWord(r), first, demoLen-1, rest)
 	}
-	fmt.Fprintf(w, `The port pairs dims (i, i + d/2) where the model was trained with
+	return nil
+}
+
+// checkFix is step 2: the port with the pairing the model was trained with.
+func (d *demo) checkFix() error {
+	fmt.Fprintf(d.w, `The port pairs dims (i, i + d/2) where the model was trained with
 (2i, 2i+1). The fix is one line of the port's rotary loop.
 
 2. The corrected port
 
 `)
-	fixed := compare.Widen(port(toF32(q), toF32(k), toF32(v), false))
-	if res.fixed, err = compare.Diff(ref, fixed, shapeQ, opts); err != nil {
-		return nil, err
+	var err error
+	if d.res.fixed, err = compare.Diff(d.ref, d.port(false), d.shapeQ, d.opts); err != nil {
+		return err
 	}
-	if err := res.fixed.WriteText(w); err != nil {
-		return nil, err
+	if err := d.res.fixed.WriteText(d.w); err != nil {
+		return err
 	}
-	fmt.Fprintf(w, "\nThe corrected port: %s (normwise error %.3g; the yardstick's own is %.3g).\n",
-		passWord(res.fixed), res.fixed.Normwise, y.Report.Normwise)
-	return res, nil
+	fmt.Fprintf(d.w, "\nThe corrected port: %s (normwise error %.3g; the yardstick's own is %.3g).\n",
+		passWord(d.res.fixed), d.res.fixed.Normwise, d.yardstick.Report.Normwise)
+	return nil
 }
 
 func passWord(r *compare.Report) string {
@@ -295,10 +346,9 @@ caught and the fix passes, 1 otherwise.
 			fs.BoolVar(&o.quiet, "quiet", false, "no progress on stderr")
 			return o
 		},
+		nargs: 0,
+		args:  "none",
 		run: func(e *env, opts any, args []string) (int, error) {
-			if len(args) > 0 {
-				return exitUsage, fmt.Errorf("demo takes no arguments, got %q", args)
-			}
 			res, err := runDemo(e.stdout, opts.(*demoOptions).quiet, e)
 			if err != nil {
 				return exitUsage, err

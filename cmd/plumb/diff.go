@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 
 	"github.com/plumbref/plumb/compare"
 )
@@ -119,52 +120,54 @@ the same shape. Exit status 0 within tolerance, 1 outside, 2 for an error.
 			fs.StringVar(&o.heatmap, "heatmap", "", "also draw |got − ref| over the 2-D slice (last two dimensions) holding the worst\nelement, as a PNG `file`")
 			return o
 		},
-		run: func(e *env, opts any, args []string) (int, error) {
-			o := opts.(*diffOptions)
-			if len(args) != 2 {
-				return exitUsage, fmt.Errorf("want REFERENCE.npy CANDIDATE.npy, got %d arguments (plumb help diff)", len(args))
-			}
-			ref, err := readTensor(args[0], "")
-			if err != nil {
-				return exitUsage, err
-			}
-			got, err := readTensor(args[1], canonicalBits(o.format))
-			if err != nil {
-				return exitUsage, err
-			}
-			if !equalShape(ref.tensor.Shape, got.tensor.Shape) {
-				return exitUsage, fmt.Errorf("shapes differ: %s is %v, %s is %v", ref.path, ref.tensor.Shape, got.path, got.tensor.Shape)
-			}
-			f, err := candidateFormat(o.format, got.dtype)
-			if err != nil {
-				return exitUsage, fmt.Errorf("-format: %w", err)
-			}
-			tol := defaultTolerance(f, ref.tensor.Data)
-			if o.explicit() {
-				if tol, err = o.tolerance(); err != nil {
-					return exitUsage, err
-				}
-			}
-			done := progress(e, o.quiet, "comparing")
-			rep, err := compare.Diff(ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, compare.Options{Format: f, Tolerance: &tol, Worst: o.worst})
-			done()
-			if err != nil {
-				return exitUsage, err
-			}
-			if err := writeReports(e.stdout, o.json, []namedReport{{Name: "", Reference: ref.path, Candidate: got.path, Report: rep}}); err != nil {
-				return exitUsage, err
-			}
-			if o.heatmap != "" {
-				done := progress(e, o.quiet, "drawing "+o.heatmap)
-				err := writeHeatmap(o.heatmap, ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, rep, got.path)
-				done()
-				if err != nil {
-					return exitUsage, fmt.Errorf("heatmap %s: %w", o.heatmap, err)
-				}
-			}
-			return verdictStatus(rep), nil
-		},
+		nargs: 2,
+		args:  "REFERENCE.npy CANDIDATE.npy",
+		run:   runDiff,
 	})
+}
+
+// runDiff is plumb diff: the report on one candidate file.
+func runDiff(e *env, opts any, args []string) (int, error) {
+	o := opts.(*diffOptions)
+	ref, err := readTensor(args[0], "")
+	if err != nil {
+		return exitUsage, err
+	}
+	got, err := readTensor(args[1], canonicalBits(o.format))
+	if err != nil {
+		return exitUsage, err
+	}
+	if !slices.Equal(ref.tensor.Shape, got.tensor.Shape) {
+		return exitUsage, fmt.Errorf("shapes differ: %s has shape %v; want %v, the shape of %s", got.path, got.tensor.Shape, ref.tensor.Shape, ref.path)
+	}
+	f, err := candidateFormat(o.format, got.dtype)
+	if err != nil {
+		return exitUsage, fmt.Errorf("-format: %w", err)
+	}
+	tol := defaultTolerance(f, ref.tensor.Data)
+	if o.explicit() {
+		if tol, err = o.tolerance(); err != nil {
+			return exitUsage, err
+		}
+	}
+	done := progress(e, o.quiet, "comparing")
+	rep, err := compare.Diff(ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, compare.Options{Format: f, Tolerance: &tol, Worst: o.worst})
+	done()
+	if err != nil {
+		return exitUsage, err
+	}
+	if err := writeReports(e.stdout, o.json, []namedReport{{Name: "", Reference: ref.path, Candidate: got.path, Report: rep}}); err != nil {
+		return exitUsage, err
+	}
+	if o.heatmap != "" {
+		done := progress(e, o.quiet, "drawing "+o.heatmap)
+		err := writeHeatmap(o.heatmap, ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, rep, got.path)
+		done()
+		if err != nil {
+			return exitUsage, fmt.Errorf("heatmap %s: %w", o.heatmap, err)
+		}
+	}
+	return verdictStatus(rep), nil
 }
 
 func verdictStatus(reps ...*compare.Report) int {
@@ -174,18 +177,6 @@ func verdictStatus(reps ...*compare.Report) int {
 		}
 	}
 	return exitPass
-}
-
-func equalShape(a, b []int) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }
 
 // namedReport is one comparison as diff and check print it.

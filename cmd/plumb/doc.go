@@ -41,7 +41,7 @@
 // plumb gen's generator is PCG-DXSM (128-bit state hi = seed, lo = 0) with
 // uniform values (x >> 11)·2⁻⁵³ and normal values by the Box–Muller
 // transform; plumb help gen states it exactly, with the first values for
-// seed 1, and testdata/gen_check.py reproduces it in Python.
+// seed 1, and cmd/plumb/testdata/gen_check.py reproduces it in Python.
 //
 // Runs longer than a second show progress on stderr when stderr is a
 // terminal; -quiet silences it.

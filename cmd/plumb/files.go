@@ -39,11 +39,11 @@ func readTensor(path string, bits string) (*tensorFile, error) {
 		want := map[string]npy.Bits{"bfloat16": npy.BFloat16, "e4m3": npy.E4M3, "e5m2": npy.E5M2}
 		b, ok := want[bits]
 		if !ok {
-			return nil, fmt.Errorf("%s holds %s values; that is a float format's bit patterns only with -format bfloat16 (uint16), e4m3 or e5m2 (uint8)", path, a.DType)
+			return nil, fmt.Errorf("%s holds %s values; want -format bfloat16 (uint16 files), e4m3 or e5m2 (uint8 files) to read them as a float format's bit patterns", path, a.DType)
 		}
 		a.Bits = b
 		if (b == npy.BFloat16) != (a.DType == npy.Uint16) {
-			return nil, fmt.Errorf("%s holds %s values, which cannot be %s bit patterns (bfloat16 is uint16, e4m3 and e5m2 are uint8)", path, a.DType, bits)
+			return nil, fmt.Errorf("%s holds %s values; want %s values for -format %s (bfloat16 is uint16, e4m3 and e5m2 are uint8)", path, a.DType, bitsDType(b), bits)
 		}
 	default:
 		return nil, fmt.Errorf("%s holds %s values; want float64, float32 or float16 (or bit patterns with -format)", path, a.DType)
@@ -68,7 +68,7 @@ func trimPath(err error, path string) error {
 func refuseNaN(f *tensorFile) error {
 	for i, v := range f.tensor.Data {
 		if math.IsNaN(v) {
-			return fmt.Errorf("%s: element %v is NaN (%d NaN in all); inputs must be numbers (-allow-nan passes NaN to the reference)",
+			return fmt.Errorf("%s: element %v = NaN (%d NaN in all); want numbers (-allow-nan passes NaN to the reference)",
 				f.path, unravel(i, f.tensor.Shape), countNaN(f.tensor.Data))
 		}
 	}
@@ -97,6 +97,14 @@ func unravel(i int, shape []int) []int {
 	return idx
 }
 
+// bitsDType is the element type that holds the bit patterns of b.
+func bitsDType(b npy.Bits) npy.DType {
+	if b == npy.BFloat16 {
+		return npy.Uint16
+	}
+	return npy.Uint8
+}
+
 // writeTensor writes t as a float64 .npy file.
 func writeTensor(path string, t ops.Tensor) error {
 	a, err := npy.New(npy.Float64, t.Shape, t.Data)
@@ -113,10 +121,10 @@ func namedFiles(args []string, what string) (map[string]string, error) {
 	for _, a := range args {
 		name, file, ok := strings.Cut(a, "=")
 		if !ok || name == "" || file == "" {
-			return nil, fmt.Errorf("%s argument %q is not NAME=FILE", what, a)
+			return nil, fmt.Errorf("%s argument = %q; want NAME=FILE", what, a)
 		}
-		if _, dup := m[name]; dup {
-			return nil, fmt.Errorf("%s %q is given twice", what, name)
+		if first, dup := m[name]; dup {
+			return nil, fmt.Errorf("%s %q is given twice (%s, %s); want each name once", what, name, first, file)
 		}
 		m[name] = file
 	}

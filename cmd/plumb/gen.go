@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/npy"
 )
 
@@ -50,7 +51,7 @@ func generate(n int, dist string, seed uint64, mean, std, low, high float64) ([]
 			x[i] = low + float64(w*g.uniform01())
 		}
 	default:
-		return nil, fmt.Errorf("-dist is %q; want normal or uniform", dist)
+		return nil, fmt.Errorf("-dist = %q; want normal or uniform", dist)
 	}
 	return x, nil
 }
@@ -90,10 +91,11 @@ last place.
 First values, seed 1:
   -dist uniform -low 0 -high 1:  0.5982609488236689, 0.08911177802144832, 0.715356444878812
   -dist normal:                  0.8588583889475007, 0.5383481862322732, 0.8094635935566922
-(testdata/gen_check.py recomputes them from this description alone with
-Python's integers and math module: the uniform values agree bit for bit,
-and the first normal value differs in the last place, 0.8588583889475008,
-where the C library's cos rounds differently from Go's.)
+(cmd/plumb/testdata/gen_check.py, in the repository, recomputes them from
+this description alone with Python's integers and math module: the uniform
+values agree bit for bit, and the first normal value differs in the last
+place, 0.8588583889475008, where the C library's cos rounds differently
+from Go's.)
 
 Use a different seed for each tensor: the same seed gives the same numbers.
 `
@@ -123,52 +125,67 @@ func init() {
 			fs.StringVar(&o.dtype, "dtype", "float64", "element type of the file: float64 or float32")
 			return o
 		},
-		run: func(e *env, opts any, args []string) (int, error) {
-			o := opts.(*genOptions)
-			if len(args) != 1 {
-				return exitUsage, fmt.Errorf("want one output file, got %d arguments (plumb help gen)", len(args))
-			}
-			shape, err := parseShape(o.shape)
-			if err != nil {
-				return exitUsage, err
-			}
-			n := 1
-			for _, d := range shape {
-				n *= d
-			}
-			if !finite(o.mean) || !finite(o.std) || o.std < 0 {
-				return exitUsage, fmt.Errorf("-mean %v and -std %v: want finite numbers, std ≥ 0", o.mean, o.std)
-			}
-			if !finite(o.low) || !finite(o.high) || !(o.low < o.high) || !finite(o.high-o.low) {
-				return exitUsage, fmt.Errorf("-low %v and -high %v: want finite numbers, low < high", o.low, o.high)
-			}
-			x, err := generate(n, o.dist, o.seed, o.mean, o.std, o.low, o.high)
-			if err != nil {
-				return exitUsage, err
-			}
-			var a *npy.Array
-			switch o.dtype {
-			case "float64":
-				a, err = npy.New(npy.Float64, shape, x)
-			case "float32":
-				y := make([]float32, len(x))
-				for i, v := range x {
-					y[i] = float32(v)
-				}
-				a, err = npy.New(npy.Float32, shape, y)
-			default:
-				return exitUsage, fmt.Errorf("-dtype is %q; want float64 or float32", o.dtype)
-			}
-			if err == nil {
-				err = npy.WriteFile(args[0], a)
-			}
-			if err != nil {
-				return exitUsage, err
-			}
-			fmt.Fprintf(e.stdout, "wrote %s: %s %v, %s, seed %d\n", args[0], o.dtype, shape, o.dist, o.seed)
-			return exitPass, nil
-		},
+		nargs: 1,
+		args:  "one output FILE.npy",
+		run:   runGen,
 	})
+}
+
+// runGen is plumb gen: one file of generated values.
+func runGen(e *env, opts any, args []string) (int, error) {
+	o := opts.(*genOptions)
+	shape, err := parseShape(o.shape)
+	if err != nil {
+		return exitUsage, err
+	}
+	if err := o.check(); err != nil {
+		return exitUsage, err
+	}
+	n := 1
+	for _, d := range shape {
+		n *= d
+	}
+	x, err := generate(n, o.dist, o.seed, o.mean, o.std, o.low, o.high)
+	if err != nil {
+		return exitUsage, err
+	}
+	var a *npy.Array
+	switch o.dtype {
+	case "float64":
+		a, err = npy.New(npy.Float64, shape, x)
+	case "float32":
+		a, err = npy.New(npy.Float32, shape, num.Convert[float32](x))
+	default:
+		return exitUsage, fmt.Errorf("-dtype = %q; want float64 or float32", o.dtype)
+	}
+	if err == nil {
+		err = npy.WriteFile(args[0], a)
+	}
+	if err != nil {
+		return exitUsage, err
+	}
+	fmt.Fprintf(e.stdout, "wrote %s: %s %v, %s, seed %d\n", args[0], o.dtype, shape, o.dist, o.seed)
+	return exitPass, nil
+}
+
+// check refuses parameters of the distributions that are not finite or
+// not in order.
+func (o *genOptions) check() error {
+	for _, f := range []struct {
+		flag string
+		v    float64
+	}{{"-mean", o.mean}, {"-std", o.std}, {"-low", o.low}, {"-high", o.high}} {
+		if !finite(f.v) {
+			return fmt.Errorf("%s = %v; want a finite number", f.flag, f.v)
+		}
+	}
+	switch {
+	case o.std < 0:
+		return fmt.Errorf("-std = %v; want a number ≥ 0", o.std)
+	case !(o.low < o.high) || !finite(o.high-o.low):
+		return fmt.Errorf("-low = %v and -high = %v; want low < high, with high − low finite", o.low, o.high)
+	}
+	return nil
 }
 
 func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
@@ -176,17 +193,17 @@ func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
 // parseShape reads comma-separated dimensions.
 func parseShape(s string) ([]int, error) {
 	if s == "" {
-		return nil, fmt.Errorf("-shape is missing (e.g. -shape 2,64)")
+		return nil, fmt.Errorf("-shape is missing; want the dims, comma-separated (e.g. -shape 2,64)")
 	}
 	var shape []int
 	n := 1
 	for _, f := range strings.Split(s, ",") {
 		d, err := strconv.Atoi(strings.TrimSpace(f))
 		if err != nil || d < 0 {
-			return nil, fmt.Errorf("-shape %q: %q is not a dimension (a whole number ≥ 0)", s, f)
+			return nil, fmt.Errorf("-shape %q: dimension = %q; want a whole number ≥ 0", s, f)
 		}
 		if d > 0 && n > (1<<28)/d {
-			return nil, fmt.Errorf("-shape %q holds more than 2^28 elements", s)
+			return nil, fmt.Errorf("-shape %q holds more than 2^28 elements; want at most 2^28 = %d", s, 1<<28)
 		}
 		n *= d
 		shape = append(shape, d)

@@ -34,7 +34,12 @@ type command struct {
 	summary string // one line
 	about   string // paragraphs after the synopsis
 	flags   func(fs *flag.FlagSet) any
-	run     func(e *env, opts any, args []string) (int, error)
+	// nargs is the number of arguments the command takes, which args says
+	// in words for the message that refuses another number; −1 is any
+	// number, which run checks.
+	nargs int
+	args  string
+	run   func(e *env, opts any, args []string) (int, error)
 }
 
 // commands are the subcommands, in the order help lists them (see order).
@@ -79,7 +84,7 @@ func plumb(args []string, e *env) int {
 	}
 	c := lookup(name)
 	if c == nil {
-		fmt.Fprintf(e.stderr, "plumb: unknown command %q; the commands are %s (plumb help)\n", name, commandNames())
+		fmt.Fprintf(e.stderr, "plumb: command = %q; want one of %s, help (plumb help)\n", name, commandNames())
 		return exitUsage
 	}
 	fs, opts := c.flagSet(e.stderr)
@@ -92,7 +97,10 @@ func plumb(args []string, e *env) int {
 	}
 	// Every error a command returns is a usage or input error (exit 2); a
 	// verdict outside the tolerance is the status 1 with no error.
-	code, err := c.run(e, opts, pos)
+	code, err := exitUsage, wantArgs(c.name, pos, c.nargs, c.args)
+	if err == nil {
+		code, err = c.run(e, opts, pos)
+	}
 	if err != nil {
 		fmt.Fprintf(e.stderr, "plumb %s: %v\n", c.name, err)
 		return exitUsage
@@ -140,6 +148,15 @@ func parseInterleaved(fs *flag.FlagSet, args []string) ([]string, error) {
 	}
 }
 
+// wantArgs returns an error unless args holds n arguments (any number for
+// n < 0); usage says what they are, cmd is the command.
+func wantArgs(cmd string, args []string, n int, usage string) error {
+	if n < 0 || len(args) == n {
+		return nil
+	}
+	return fmt.Errorf("arguments = %q; want %s (plumb help %s)", args, usage, cmd)
+}
+
 func commandNames() string {
 	var n []string
 	for _, c := range commands {
@@ -175,7 +192,7 @@ func help(e *env, args []string) int {
 		return exitPass
 	}
 	if len(args) > 1 {
-		fmt.Fprintf(e.stderr, "plumb help: one topic at a time; got %q\n", strings.Join(args, " "))
+		fmt.Fprintf(e.stderr, "plumb help: topics = %q; want one topic at a time\n", args)
 		return exitUsage
 	}
 	topic := args[0]
@@ -200,7 +217,7 @@ func help(e *env, args []string) int {
 		writeOpHelp(e.stdout, o)
 		return exitPass
 	}
-	fmt.Fprintf(e.stderr, "plumb help: no command or operation %q; commands: %s; operations: plumb help ops\n", topic, commandNames())
+	fmt.Fprintf(e.stderr, "plumb help: topic = %q; want a command (%s), ops, conventions or an operation (plumb help ops lists them)\n", topic, commandNames())
 	return exitUsage
 }
 

@@ -358,7 +358,7 @@ func TestHelp(t *testing.T) {
 		}
 	}
 	_, e = must(t, dir, 2, "help", "nosuch")
-	assert.Contains(t, e, `"nosuch"`)
+	assert.Contains(t, e, `plumb help: topic = "nosuch"; want a command (gen, run, diff, check, demo), ops, conventions or an operation`)
 }
 
 // TestBadInputs: every usage or input error exits 2 with a message that
@@ -385,6 +385,7 @@ func TestBadInputs(t *testing.T) {
 	w("complex.npy", cbuf.String())
 	w("broken.npy", "\x93NUMPY\x01\x00garbage")
 	w("relu.json", `{"version": 1, "function": "relu"}`)
+	w("eps.json", `{"version": 1, "epsilon": 1e-5}`)
 	w("malformed.json", `{"version": 1, "function": "relu"`)
 	w("unknown_key.json", `{"version": 1, "function": "relu", "slope": 2}`)
 	w("v2.json", `{"version": 2, "function": "relu"}`)
@@ -396,7 +397,7 @@ func TestBadInputs(t *testing.T) {
 		args []string
 		says []string
 	}{
-		{"unknown command", []string{"frobnicate"}, []string{`unknown command "frobnicate"`}},
+		{"unknown command", []string{"frobnicate"}, []string{`plumb: command = "frobnicate"; want one of gen, run, diff, check, demo, help`}},
 		{"unknown flag", []string{"run", "-bogus", "activation"}, []string{"-bogus"}},
 		{"missing file", []string{"run", "activation", "-config", "relu.json", "x=nope.npy"}, []string{"nope.npy: no such file"}},
 		{"missing config", []string{"run", "activation", "-config", "nope.json", "x=x.npy"}, []string{"nope.json: no such file"}},
@@ -404,36 +405,40 @@ func TestBadInputs(t *testing.T) {
 		{"unsupported dtype", []string{"diff", "x.npy", "complex.npy"}, []string{"complex.npy", "unsupported element type", "<c16"}},
 		{"broken file", []string{"diff", "broken.npy", "x.npy"}, []string{"broken.npy", "malformed"}},
 		{"bits without format", []string{"diff", "x.npy", "bits.npy"}, []string{"bits.npy holds uint16 values", "-format"}},
-		{"bits of the wrong width", []string{"diff", "-format", "e4m3", "x.npy", "bits.npy"}, []string{"bits.npy holds uint16 values, which cannot be e4m3"}},
-		{"mismatched shapes (diff)", []string{"diff", "x.npy", "x23.npy"}, []string{"shapes differ", "x.npy is [2 3]", "x23.npy is [3 2]"}},
-		{"mismatched shapes (run)", []string{"run", "attention-forward", "q=q.npy", "k=k5.npy", "v=v.npy"}, []string{`input "k" has head dimension 5, "q" has 8`}},
-		{"mismatched shapes (check)", []string{"check", "activation", "-config", "relu.json", "x=x.npy", "-got", "y=x23.npy"}, []string{"shapes differ", "x23.npy is [3 2]"}},
+		{"bits of the wrong width", []string{"diff", "-format", "e4m3", "x.npy", "bits.npy"}, []string{"bits.npy holds uint16 values; want uint8 values for -format e4m3"}},
+		{"mismatched shapes (diff)", []string{"diff", "x.npy", "x23.npy"}, []string{"shapes differ: x23.npy has shape [3 2]; want [2 3], the shape of x.npy"}},
+		{"mismatched shapes (run)", []string{"run", "attention-forward", "q=q.npy", "k=k5.npy", "v=v.npy"}, []string{`ops: invalid input: attention-forward: input "k" has head dimension 5; want 8, the head dimension of "q"`}},
+		{"mismatched shapes (check)", []string{"check", "activation", "-config", "relu.json", "x=x.npy", "-got", "y=x23.npy"}, []string{"shapes differ: x23.npy has shape [3 2]; want [2 3], the shape of the reference y"}},
 		{"malformed JSON", []string{"run", "activation", "-config", "malformed.json", "x=x.npy"}, []string{"malformed.json", "malformed JSON"}},
 		{"unknown key", []string{"run", "activation", "-config", "unknown_key.json", "x=x.npy"}, []string{"unknown_key.json", `unknown key "slope"`}},
 		{"unknown version", []string{"run", "activation", "-config", "v2.json", "x=x.npy"}, []string{"v2.json", `"version" = 2`}},
 		{"missing version", []string{"run", "activation", "-config", "noversion.json", "x=x.npy"}, []string{`"version" is missing`}},
 		{"unknown word", []string{"run", "activation", "-config", "badword.json", "x=x.npy"}, []string{`key "function" = "softplus"; want one of relu,`}},
-		{"unknown operation", []string{"run", "attention-sideways", "x=x.npy"}, []string{`unknown operation "attention-sideways"`, "attention-forward"}},
-		{"unknown input", []string{"run", "activation", "-config", "relu.json", "z=x.npy"}, []string{`does not take input "z"`}},
+		{"unknown operation", []string{"run", "attention-sideways", "x=x.npy"}, []string{`ops: unknown operation: Lookup: name = "attention-sideways"; want one of `, "attention-forward"}},
+		{"unknown input", []string{"run", "activation", "-config", "relu.json", "z=x.npy"}, []string{`ops: invalid input: activation: input name = "z"; want one of x`}},
 		{"missing input", []string{"run", "attention-forward", "q=q.npy", "k=k.npy"}, []string{`input "v" is missing`}},
-		{"NaN in inputs", []string{"run", "activation", "-config", "relu.json", "x=nan.npy"}, []string{"nan.npy: element [1 1] is NaN"}},
-		{"NaN in check inputs", []string{"check", "activation", "-config", "relu.json", "x=nan.npy", "-got", "y=x.npy"}, []string{"nan.npy: element [1 1] is NaN"}},
-		{"not NAME=FILE", []string{"run", "activation", "x.npy"}, []string{`"x.npy" is not NAME=FILE`}},
-		{"input twice", []string{"run", "activation", "x=x.npy", "x=x23.npy"}, []string{`input "x" is given twice`}},
-		{"no operation", []string{"run"}, []string{"want an OPERATION"}},
-		{"check without -got", []string{"check", "activation", "x=x.npy"}, []string{"-got"}},
-		{"check unknown output", []string{"check", "activation", "-config", "relu.json", "x=x.npy", "-got", "z=x.npy"}, []string{`activation has no output "z"`}},
-		{"bad k", []string{"check", "-k", "0.5", "activation", "-config", "relu.json", "x=x.npy", "-got", "y=x.npy"}, []string{"-k is 0.5"}},
+		{"NaN in inputs", []string{"run", "activation", "-config", "relu.json", "x=nan.npy"}, []string{"nan.npy: element [1 1] = NaN (1 NaN in all); want numbers"}},
+		{"NaN in check inputs", []string{"check", "activation", "-config", "relu.json", "x=nan.npy", "-got", "y=x.npy"}, []string{"nan.npy: element [1 1] = NaN"}},
+		{"not NAME=FILE", []string{"run", "activation", "x.npy"}, []string{`input argument = "x.npy"; want NAME=FILE`}},
+		{"input twice", []string{"run", "activation", "x=x.npy", "x=x23.npy"}, []string{`input "x" is given twice (x.npy, x23.npy); want each name once`}},
+		{"no operation", []string{"run"}, []string{"arguments = []; want an OPERATION"}},
+		{"check without -got", []string{"check", "activation", "x=x.npy"}, []string{"-got is missing; want one or more -got OUTPUT=FILE.npy"}},
+		{"check unknown output", []string{"check", "activation", "-config", "relu.json", "x=x.npy", "-got", "z=x.npy"}, []string{`-got z: output = "z"; want one of the outputs of activation: y`}},
+		{"check output not given", []string{"check", "layernorm-backward", "-config", "eps.json", "x=x.npy", "dy=x.npy", "-got", "dweight=x.npy"},
+			[]string{`-got dweight: output = "dweight"; want one this configuration gives: dbias, dx`}},
+		{"bad k", []string{"check", "-k", "0.5", "activation", "-config", "relu.json", "x=x.npy", "-got", "y=x.npy"}, []string{"-k = 0.5; want a finite number ≥ 1"}},
 		{"unknown format", []string{"diff", "-format", "float13", "x.npy", "x.npy"}, []string{"float13"}},
-		{"negative tolerance", []string{"diff", "-abs", "-1", "x.npy", "x.npy"}, []string{"Abs is -1"}},
-		{"diff arguments", []string{"diff", "x.npy"}, []string{"want REFERENCE.npy CANDIDATE.npy"}},
+		{"negative tolerance", []string{"diff", "-abs", "-1", "x.npy", "x.npy"}, []string{"plumb diff: tolerance flags: compare: invalid tolerance: ", "Tolerance.Abs = -1; want"}},
+		{"diff arguments", []string{"diff", "x.npy"}, []string{`arguments = ["x.npy"]; want REFERENCE.npy CANDIDATE.npy (plumb help diff)`}},
 		{"gen without shape", []string{"gen", "g.npy"}, []string{"-shape is missing"}},
-		{"gen bad shape", []string{"gen", "-shape", "2,x", "g.npy"}, []string{`"x" is not a dimension`}},
-		{"gen bad dist", []string{"gen", "-shape", "2", "-dist", "cauchy", "g.npy"}, []string{`-dist is "cauchy"`}},
-		{"gen bad bounds", []string{"gen", "-shape", "2", "-dist", "uniform", "-low", "1", "-high", "0", "g.npy"}, []string{"low < high"}},
-		{"gen bad dtype", []string{"gen", "-shape", "2", "-dtype", "int8", "g.npy"}, []string{`-dtype is "int8"`}},
-		{"demo arguments", []string{"demo", "extra"}, []string{"no arguments"}},
-		{"help two topics", []string{"help", "run", "diff"}, []string{"one topic"}},
+		{"gen bad shape", []string{"gen", "-shape", "2,x", "g.npy"}, []string{`-shape "2,x": dimension = "x"; want a whole number ≥ 0`}},
+		{"gen bad dist", []string{"gen", "-shape", "2", "-dist", "cauchy", "g.npy"}, []string{`-dist = "cauchy"; want normal or uniform`}},
+		{"gen bad bounds", []string{"gen", "-shape", "2", "-dist", "uniform", "-low", "1", "-high", "0", "g.npy"}, []string{"-low = 1 and -high = 0; want low < high"}},
+		{"gen bad std", []string{"gen", "-shape", "2", "-std", "-1", "g.npy"}, []string{"-std = -1; want a number ≥ 0"}},
+		{"gen arguments", []string{"gen", "-shape", "2", "a.npy", "b.npy"}, []string{`arguments = ["a.npy" "b.npy"]; want one output FILE.npy`}},
+		{"gen bad dtype", []string{"gen", "-shape", "2", "-dtype", "int8", "g.npy"}, []string{`-dtype = "int8"; want float64 or float32`}},
+		{"demo arguments", []string{"demo", "extra"}, []string{`arguments = ["extra"]; want none (plumb help demo)`}},
+		{"help two topics", []string{"help", "run", "diff"}, []string{`plumb help: topics = ["run" "diff"]; want one topic at a time`}},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			_, e := must(t, dir, 2, c.args...)

@@ -6,6 +6,8 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
+	"strings"
 	"sync"
 	"time"
 
@@ -62,82 +64,52 @@ func (o *runOptions) register(fs *flag.FlagSet) {
 	fs.BoolVar(&o.quiet, "quiet", false, "no progress on stderr")
 }
 
+// refRun is an operation run on the inputs of the command line.
+type refRun struct {
+	op     ops.Op
+	config []byte
+	in     ops.Tensors
+	out    ops.Tensors
+}
+
 // reference reads the configuration and inputs and runs the operation.
-func (o *runOptions) reference(e *env, args []string) (name string, config []byte, in, out ops.Tensors, err error) {
+func (o *runOptions) reference(e *env, args []string) (*refRun, error) {
 	if len(args) == 0 {
-		return "", nil, nil, nil, fmt.Errorf("want an OPERATION and its inputs NAME=FILE.npy (plumb help ops)")
+		return nil, fmt.Errorf("arguments = []; want an OPERATION and its inputs NAME=FILE.npy (plumb help ops)")
 	}
-	name = args[0]
-	if _, err := ops.Lookup(name); err != nil {
-		return "", nil, nil, nil, err
+	op, err := ops.Lookup(args[0])
+	if err != nil {
+		return nil, err
 	}
 	files, err := namedFiles(args[1:], "input")
 	if err != nil {
-		return "", nil, nil, nil, err
+		return nil, err
 	}
-	if config, err = readConfig(o.config); err != nil {
-		return "", nil, nil, nil, err
+	r := &refRun{op: op}
+	if r.config, err = readConfig(o.config); err != nil {
+		return nil, err
 	}
-	if in, err = readInputs(files, o.allowNaN); err != nil {
-		return "", nil, nil, nil, err
+	if r.in, err = readInputs(files, o.allowNaN); err != nil {
+		return nil, err
 	}
-	done := progress(e, o.quiet, "running "+name)
-	out, err = ops.Run(name, config, in)
+	done := progress(e, o.quiet, "running "+op.Name())
+	r.out, err = op.Run(r.config, r.in)
 	done()
 	if err != nil {
-		return "", nil, nil, nil, configError(o.config, err)
+		return nil, configError(o.config, err)
 	}
-	return name, config, in, out, nil
+	return r, nil
 }
 
-func init() {
-	commands = append(commands, &command{
-		name:    "run",
-		usage:   "run [flags] OPERATION NAME=FILE.npy ...",
-		summary: "run the float64 reference of an operation on .npy inputs, write .npy outputs",
-		about: `
+const runAbout = `
 Runs the float64 reference of OPERATION (plumb help ops lists them) with the
 configuration of -config on the inputs NAME=FILE.npy (float64, float32 or
 float16 files) and writes each output as DIR/NAME.npy in float64, DIR being
 -out. plumb help OPERATION lists its configuration keys, inputs and outputs.
 NaN in an input is an error unless -allow-nan.
-`,
-		flags: func(fs *flag.FlagSet) any {
-			o := &runOptions{}
-			o.register(fs)
-			fs.StringVar(&o.out, "out", ".", "`directory` the outputs are written to (created if missing)")
-			return o
-		},
-		run: func(e *env, opts any, args []string) (int, error) {
-			o := opts.(*runOptions)
-			name, _, _, out, err := o.reference(e, args)
-			if err != nil {
-				return exitUsage, err
-			}
-			if err := os.MkdirAll(o.out, 0o755); err != nil {
-				return exitUsage, err
-			}
-			op, _ := ops.Lookup(name)
-			for _, p := range op.Outputs() {
-				t, ok := out[p.Name]
-				if !ok {
-					continue
-				}
-				path := filepath.Join(o.out, p.Name+".npy")
-				if err := writeTensor(path, t); err != nil {
-					return exitUsage, err
-				}
-				fmt.Fprintf(e.stdout, "wrote %s: float64 %v\n", path, t.Shape)
-			}
-			return exitPass, nil
-		},
-	})
+`
 
-	commands = append(commands, &command{
-		name:    "check",
-		usage:   "check [flags] OPERATION NAME=FILE.npy ... -got OUTPUT=FILE.npy ...",
-		summary: "run the reference and diff a port's outputs against it in one step",
-		about: `
+const checkAbout = `
 Runs OPERATION as plumb run does, then compares each candidate given with
 -got OUTPUT=FILE.npy (a port's output, on the same inputs) with the
 reference output of that name, as plumb diff does. Exit status 0 when every
@@ -150,20 +122,57 @@ runs on the inputs rounded to that format, its output is rounded to the
 format, and a candidate may be at most -k times as far from the reference
 plus one rounding to the format (absolute, and normwise). A float64
 candidate gets the default tolerance below.
-` + toleranceAbout,
-		flags: func(fs *flag.FlagSet) any {
-			o := &checkOptions{}
-			o.runOptions.register(fs)
-			o.judgeFlags.register(fs)
-			fs.Float64Var(&o.k, "k", compare.DefaultK, "the yardstick's factor")
-			fs.Func("got", "a candidate `OUTPUT=FILE.npy` to judge (repeat for several outputs; at least one)", func(s string) error {
-				o.got = append(o.got, s)
-				return nil
-			})
-			return o
-		},
-		run: runCheck,
+` + toleranceAbout
+
+func init() {
+	commands = append(commands, &command{
+		name:    "run",
+		usage:   "run [flags] OPERATION NAME=FILE.npy ...",
+		summary: "run the float64 reference of an operation on .npy inputs, write .npy outputs",
+		about:   runAbout,
+		flags:   runFlags,
+		nargs:   -1,
+		run:     runRun,
+	}, &command{
+		name:    "check",
+		usage:   "check [flags] OPERATION NAME=FILE.npy ... -got OUTPUT=FILE.npy ...",
+		summary: "run the reference and diff a port's outputs against it in one step",
+		about:   checkAbout,
+		flags:   checkFlags,
+		nargs:   -1,
+		run:     runCheck,
 	})
+}
+
+func runFlags(fs *flag.FlagSet) any {
+	o := &runOptions{}
+	o.register(fs)
+	fs.StringVar(&o.out, "out", ".", "`directory` the outputs are written to (created if missing)")
+	return o
+}
+
+// runRun is plumb run: the reference's outputs, written as .npy files.
+func runRun(e *env, opts any, args []string) (int, error) {
+	o := opts.(*runOptions)
+	r, err := o.reference(e, args)
+	if err != nil {
+		return exitUsage, err
+	}
+	if err := os.MkdirAll(o.out, 0o755); err != nil {
+		return exitUsage, err
+	}
+	for _, p := range r.op.Outputs() {
+		t, ok := r.out[p.Name]
+		if !ok {
+			continue
+		}
+		path := filepath.Join(o.out, p.Name+".npy")
+		if err := writeTensor(path, t); err != nil {
+			return exitUsage, err
+		}
+		fmt.Fprintf(e.stdout, "wrote %s: float64 %v\n", path, t.Shape)
+	}
+	return exitPass, nil
 }
 
 type checkOptions struct {
@@ -173,88 +182,39 @@ type checkOptions struct {
 	got []string
 }
 
+func checkFlags(fs *flag.FlagSet) any {
+	o := &checkOptions{}
+	o.runOptions.register(fs)
+	o.judgeFlags.register(fs)
+	fs.Float64Var(&o.k, "k", compare.DefaultK, "the yardstick's factor")
+	fs.Func("got", "a candidate `OUTPUT=FILE.npy` to judge (repeat for several outputs; at least one)", func(s string) error {
+		o.got = append(o.got, s)
+		return nil
+	})
+	return o
+}
+
+// runCheck is plumb check: the reference, and a report on each candidate.
 func runCheck(e *env, opts any, args []string) (int, error) {
 	o := opts.(*checkOptions)
-	if !(o.k >= 1) || math.IsInf(o.k, 0) {
-		return exitUsage, fmt.Errorf("-k is %v; want a finite number ≥ 1", o.k)
-	}
-	if len(o.got) == 0 {
-		return exitUsage, fmt.Errorf("no candidate: give one or more -got OUTPUT=FILE.npy")
-	}
-	gotFiles, err := namedFiles(o.got, "candidate")
+	gotFiles, err := o.candidates(args)
 	if err != nil {
 		return exitUsage, err
 	}
-	if len(args) > 0 {
-		if op, err := ops.Lookup(args[0]); err == nil {
-			outs := map[string]bool{}
-			var names []string
-			for _, p := range op.Outputs() {
-				outs[p.Name] = true
-				names = append(names, p.Name)
-			}
-			for n := range gotFiles {
-				if !outs[n] {
-					return exitUsage, fmt.Errorf("-got %s: %s has no output %q; its outputs are %v", n, op.Name(), n, names)
-				}
-			}
-		}
-	}
-	name, config, in, ref, err := o.reference(e, args)
+	r, err := o.reference(e, args)
 	if err != nil {
 		return exitUsage, err
 	}
-	op, _ := ops.Lookup(name)
+	j := &judge{e: e, o: o, r: r}
 	var reports []namedReport
-	var ys map[string]*compare.Yardstick
-	for _, p := range op.Outputs() {
-		path, ok := gotFiles[p.Name]
-		if !ok {
-			continue
-		}
-		r, ok := ref[p.Name]
-		if !ok {
-			return exitUsage, fmt.Errorf("-got %s: this configuration gives no %q output", p.Name, p.Name)
-		}
-		got, err := readTensor(path, canonicalBits(o.format))
-		if err != nil {
-			return exitUsage, err
-		}
-		if !equalShape(got.tensor.Shape, r.Shape) {
-			return exitUsage, fmt.Errorf("shapes differ: %s is %v, the reference %s is %v", got.path, got.tensor.Shape, p.Name, r.Shape)
-		}
-		f, err := candidateFormat(o.format, got.dtype)
-		if err != nil {
-			return exitUsage, fmt.Errorf("-format: %w", err)
-		}
-		var dopt compare.Options
-		switch {
-		case o.explicit():
-			tol, err := o.tolerance()
+	for _, p := range r.op.Outputs() {
+		if path, ok := gotFiles[p.Name]; ok {
+			rep, err := j.output(p.Name, path)
 			if err != nil {
 				return exitUsage, err
 			}
-			dopt = compare.Options{Format: f, Tolerance: &tol}
-		case f != compare.Float64:
-			if ys == nil {
-				done := progress(e, o.quiet, "measuring the "+f.String()+" yardstick")
-				ys, err = ops.Yardstick(name, config, in, f, o.k)
-				done()
-				if err != nil {
-					return exitUsage, err
-				}
-			}
-			dopt = ys[p.Name].Options()
-		default:
-			tol := defaultTolerance(f, r.Data)
-			dopt = compare.Options{Format: f, Tolerance: &tol}
+			reports = append(reports, *rep)
 		}
-		dopt.Worst = o.worst
-		rep, err := compare.Diff(r.Data, got.tensor.Data, r.Shape, dopt)
-		if err != nil {
-			return exitUsage, err
-		}
-		reports = append(reports, namedReport{Name: p.Name, Reference: "plumb " + name, Candidate: got.path, Report: rep})
 	}
 	if err := writeReports(e.stdout, o.json, reports); err != nil {
 		return exitUsage, err
@@ -264,4 +224,112 @@ func runCheck(e *env, opts any, args []string) (int, error) {
 		reps = append(reps, r.Report)
 	}
 	return verdictStatus(reps...), nil
+}
+
+// candidates checks -k and the -got flags, and returns the candidate file
+// of each output; it refuses an output the operation (args[0], when it is
+// one) does not have before any input is read.
+func (o *checkOptions) candidates(args []string) (map[string]string, error) {
+	if !(o.k >= 1) || math.IsInf(o.k, 0) {
+		return nil, fmt.Errorf("-k = %v; want a finite number ≥ 1", o.k)
+	}
+	if len(o.got) == 0 {
+		return nil, fmt.Errorf("-got is missing; want one or more -got OUTPUT=FILE.npy")
+	}
+	files, err := namedFiles(o.got, "candidate")
+	if err != nil {
+		return nil, err
+	}
+	if len(args) == 0 {
+		return files, nil
+	}
+	op, err := ops.Lookup(args[0])
+	if err != nil {
+		return files, nil // reference says so
+	}
+	var names []string
+	for _, p := range op.Outputs() {
+		names = append(names, p.Name)
+	}
+	for n := range files {
+		if !slices.Contains(names, n) {
+			return nil, fmt.Errorf("-got %s: output = %q; want one of the outputs of %s: %s", n, n, op.Name(), strings.Join(names, ", "))
+		}
+	}
+	return files, nil
+}
+
+// judge judges the candidates of one check.
+type judge struct {
+	e  *env
+	o  *checkOptions
+	r  *refRun
+	ys map[string]*compare.Yardstick // measured once, for the first candidate that needs them
+}
+
+// output reads the candidate for the reference output name from path and
+// reports on it.
+func (j *judge) output(name, path string) (*namedReport, error) {
+	ref, ok := j.r.out[name]
+	if !ok {
+		return nil, fmt.Errorf("-got %s: output = %q; want one this configuration gives: %s", name, name, outputNames(j.r.out))
+	}
+	got, err := readTensor(path, canonicalBits(j.o.format))
+	if err != nil {
+		return nil, err
+	}
+	if !slices.Equal(got.tensor.Shape, ref.Shape) {
+		return nil, fmt.Errorf("shapes differ: %s has shape %v; want %v, the shape of the reference %s", got.path, got.tensor.Shape, ref.Shape, name)
+	}
+	f, err := candidateFormat(j.o.format, got.dtype)
+	if err != nil {
+		return nil, fmt.Errorf("-format: %w", err)
+	}
+	dopt, err := j.options(name, f, ref.Data)
+	if err != nil {
+		return nil, err
+	}
+	dopt.Worst = j.o.worst
+	rep, err := compare.Diff(ref.Data, got.tensor.Data, ref.Shape, dopt)
+	if err != nil {
+		return nil, err
+	}
+	return &namedReport{Name: name, Reference: "plumb " + j.r.op.Name(), Candidate: got.path, Report: rep}, nil
+}
+
+// options are the comparison options for a candidate of format f for the
+// output name: the tolerance flags, else the yardstick for a format
+// narrower than float64, else the default tolerance.
+func (j *judge) options(name string, f compare.Format, ref []float64) (compare.Options, error) {
+	switch {
+	case j.o.explicit():
+		tol, err := j.o.tolerance()
+		if err != nil {
+			return compare.Options{}, err
+		}
+		return compare.Options{Format: f, Tolerance: &tol}, nil
+	case f != compare.Float64:
+		if j.ys == nil {
+			done := progress(j.e, j.o.quiet, "measuring the "+f.String()+" yardstick")
+			ys, err := ops.Yardstick(j.r.op.Name(), j.r.config, j.r.in, f, j.o.k)
+			done()
+			if err != nil {
+				return compare.Options{}, err
+			}
+			j.ys = ys
+		}
+		return j.ys[name].Options(), nil
+	}
+	tol := defaultTolerance(f, ref)
+	return compare.Options{Format: f, Tolerance: &tol}, nil
+}
+
+// outputNames lists the outputs of a run, sorted.
+func outputNames(out ops.Tensors) string {
+	var n []string
+	for k := range out {
+		n = append(n, k)
+	}
+	slices.Sort(n)
+	return strings.Join(n, ", ")
 }

@@ -152,27 +152,58 @@ func forward(q, k, v []float32, p Params, kvHead func(h, hq, hkv int) int, pair 
 	if err := p.check(len(q), len(k), len(v)); err != nil {
 		return nil, nil, err
 	}
-	d := p.HeadDim
-	scale := p.Scale
-	if scale == 0 {
-		scale = float32(1 / math.Sqrt(float64(d)))
-	}
-	r := p.RopeDims
-	if r == 0 {
-		r = d
-	}
-	r2 := r / 2
-	idx := func(b, h, l, heads, L int) int {
-		if p.SeqMajor {
-			return ((b*L+l)*heads + h) * d
-		}
-		return ((b*heads+h)*L + l) * d
-	}
+	c := newCall(q, k, v, p, kvHead, pair)
+	c.run()
+	return c.out, c.lse, nil
+}
 
-	// Rotate k once, into [batch, kvhead, key, dim] so that a tile of keys
-	// is contiguous.
-	kr := make([]float32, len(k))
-	vr := make([]float32, len(v))
+// call is one call of the kernel: its parameters, the inputs prepared for
+// the workers, and the outputs they fill.
+type call struct {
+	p          Params
+	d          int     // the head dimension
+	scale      float32 // multiplies q·k
+	r          int     // the rotated dims
+	kvHead     func(h, hq, hkv int) int
+	pair       func(i, r int, halves bool) (int, int)
+	q          []float32
+	kr, vr     []float32 // k (rotated) and v as [batch, kvhead, key, dim]
+	cosQ, sinQ []float32 // the rotary tables of the query positions, nil without rotary
+	out, lse   []float32
+}
+
+func newCall(q, k, v []float32, p Params, kvHead func(h, hq, hkv int) int, pair func(i, r int, halves bool) (int, int)) *call {
+	c := &call{p: p, d: p.HeadDim, scale: p.Scale, r: p.RopeDims, kvHead: kvHead, pair: pair, q: q}
+	if c.scale == 0 {
+		c.scale = float32(1 / math.Sqrt(float64(c.d)))
+	}
+	if c.r == 0 {
+		c.r = c.d
+	}
+	c.packKV(k, v)
+	if p.RopeBase > 0 {
+		c.cosQ, c.sinQ = ropeTables(p.RopeBase, c.r, p.StartPos, p.Lq)
+	}
+	c.out = make([]float32, len(q))
+	c.lse = make([]float32, p.Batch*p.HeadsQ*p.Lq)
+	return c
+}
+
+// idx is the offset of row l of head h of batch entry b in a tensor of
+// that many heads and rows, in the call's layout.
+func (c *call) idx(b, h, l, heads, L int) int {
+	if c.p.SeqMajor {
+		return ((b*L+l)*heads + h) * c.d
+	}
+	return ((b*heads+h)*L + l) * c.d
+}
+
+// packKV copies k, rotated once, and v into [batch, kvhead, key, dim], so
+// that a tile of keys is contiguous.
+func (c *call) packKV(k, v []float32) {
+	p, d, r := c.p, c.d, c.r
+	c.kr = make([]float32, len(k))
+	c.vr = make([]float32, len(v))
 	var cosK, sinK []float32
 	if p.RopeBase > 0 {
 		cosK, sinK = ropeTables(p.RopeBase, r, 0, p.Lk)
@@ -181,101 +212,138 @@ func forward(q, k, v []float32, p Params, kvHead func(h, hq, hkv int) int, pair 
 		for g := 0; g < p.HeadsKV; g++ {
 			for j := 0; j < p.Lk; j++ {
 				dst := ((b*p.HeadsKV+g)*p.Lk + j) * d
-				src := idx(b, g, j, p.HeadsKV, p.Lk)
-				copy(kr[dst:dst+d], k[src:src+d])
-				copy(vr[dst:dst+d], v[src:src+d])
+				src := c.idx(b, g, j, p.HeadsKV, p.Lk)
+				copy(c.kr[dst:dst+d], k[src:src+d])
+				copy(c.vr[dst:dst+d], v[src:src+d])
 				if cosK != nil {
-					rotate(kr[dst:dst+d], cosK[j*r/2:(j+1)*r/2], sinK[j*r/2:(j+1)*r/2], r, p.RopeHalves, pair)
+					rotate(c.kr[dst:dst+d], cosK[j*r/2:(j+1)*r/2], sinK[j*r/2:(j+1)*r/2], r, p.RopeHalves, c.pair)
 				}
 			}
 		}
 	}
-	var cosQ, sinQ []float32
-	if p.RopeBase > 0 {
-		cosQ, sinQ = ropeTables(p.RopeBase, r, p.StartPos, p.Lq)
-	}
+}
 
-	out = make([]float32, len(q))
-	lse = make([]float32, p.Batch*p.HeadsQ*p.Lq)
+// run computes every (batch, head) pair, in parallel.
+func (c *call) run() {
 	tasks := make(chan [2]int)
 	var wg sync.WaitGroup
 	for w := 0; w < runtime.GOMAXPROCS(0); w++ {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			var rows [Rows]rowState
-			for r := range rows {
-				rows[r].q, rows[r].acc = make([]float32, d), make([]float32, d)
-			}
-			var sc [Rows][Tile]float32
+			wk := c.newWorker()
 			for t := range tasks {
-				b, h := t[0], t[1]
-				g := kvHead(h, p.HeadsQ, p.HeadsKV)
-				keys := kr[((b*p.HeadsKV+g)*p.Lk)*d:]
-				vals := vr[((b*p.HeadsKV+g)*p.Lk)*d:]
-				for i0 := 0; i0 < p.Lq; i0 += Rows {
-					n := min(Rows, p.Lq-i0)
-					lo, hi := p.Lk, 0
-					for r := range rows {
-						i := i0 + min(r, n-1) // a short last block repeats its last row
-						st := &rows[r]
-						o := idx(b, h, i, p.HeadsQ, p.Lq)
-						copy(st.q, q[o:o+d])
-						if cosQ != nil {
-							rotate(st.q, cosQ[i*r2:(i+1)*r2], sinQ[i*r2:(i+1)*r2], r2*2, p.RopeHalves, pair)
-						}
-						st.lo, st.hi = p.visible(i)
-						st.m, st.l = float32(math.Inf(-1)), 0
-						clear(st.acc)
-						lo, hi = min(lo, st.lo), max(hi, st.hi)
-					}
-					for t0 := lo - lo%Tile; t0 < hi; t0 += Tile {
-						j0, j1 := max(t0, lo), min(t0+Tile, hi)
-						for j := j0; j < j1; j++ {
-							s0, s1, s2, s3 := dot4(rows[0].q, rows[1].q, rows[2].q, rows[3].q, keys[j*d:(j+1)*d])
-							for r, v := range [Rows]float32{s0, s1, s2, s3} {
-								if j < rows[r].lo || j >= rows[r].hi {
-									v = float32(math.Inf(-1))
-								} else {
-									v *= scale
-								}
-								sc[r][j-j0] = v
-							}
-						}
-						for r := range rows {
-							rows[r].online(sc[r][:j1-j0])
-						}
-						for j := j0; j < j1; j++ {
-							jj := j - j0
-							axpy4(sc[0][jj], sc[1][jj], sc[2][jj], sc[3][jj], vals[j*d:(j+1)*d], rows[0].acc, rows[1].acc, rows[2].acc, rows[3].acc)
-						}
-					}
-					for r := 0; r < n; r++ {
-						i, st := i0+r, &rows[r]
-						o := idx(b, h, i, p.HeadsQ, p.Lq)
-						row, li := out[o:o+d], p.lseIndex(b, h, i)
-						if st.l == 0 {
-							clear(row)
-							lse[li] = float32(math.Inf(-1))
-							continue
-						}
-						for x := range row {
-							row[x] = st.acc[x] / st.l
-						}
-						lse[li] = st.m + float32(math.Log(float64(st.l)))
-					}
-				}
+				wk.head(t[0], t[1])
 			}
 		}()
 	}
-	for b := 0; b < p.Batch; b++ {
-		for h := 0; h < p.HeadsQ; h++ {
+	for b := 0; b < c.p.Batch; b++ {
+		for h := 0; h < c.p.HeadsQ; h++ {
 			tasks <- [2]int{b, h}
 		}
 	}
 	close(tasks)
 	wg.Wait()
-	return out, lse, nil
+}
+
+// worker is one goroutine's state: the running state of Rows query rows
+// and their logits for one tile.
+type worker struct {
+	*call
+	rows [Rows]rowState
+	sc   [Rows][Tile]float32
+}
+
+func (c *call) newWorker() *worker {
+	wk := &worker{call: c}
+	for r := range wk.rows {
+		wk.rows[r].q, wk.rows[r].acc = make([]float32, c.d), make([]float32, c.d)
+	}
+	return wk
+}
+
+// head computes the output rows of query head h of batch entry b, Rows
+// rows at a time, walking the keys they see tile by tile.
+func (wk *worker) head(b, h int) {
+	p, d := wk.p, wk.d
+	g := wk.kvHead(h, p.HeadsQ, p.HeadsKV)
+	keys := wk.kr[((b*p.HeadsKV+g)*p.Lk)*d:]
+	vals := wk.vr[((b*p.HeadsKV+g)*p.Lk)*d:]
+	for i0 := 0; i0 < p.Lq; i0 += Rows {
+		n := min(Rows, p.Lq-i0)
+		lo, hi := wk.load(b, h, i0, n)
+		for t0 := lo - lo%Tile; t0 < hi; t0 += Tile {
+			wk.tile(keys, vals, max(t0, lo), min(t0+Tile, hi))
+		}
+		wk.store(b, h, i0, n)
+	}
+}
+
+// load starts the rows i0 … i0+n−1 of head h of batch entry b: their
+// rotated q, the keys each sees and an empty running state. A short last
+// block repeats its last row. It returns the keys any of them sees.
+func (wk *worker) load(b, h, i0, n int) (lo, hi int) {
+	p, d, r2 := wk.p, wk.d, wk.r/2
+	lo, hi = p.Lk, 0
+	for r := range wk.rows {
+		i := i0 + min(r, n-1) // a short last block repeats its last row
+		st := &wk.rows[r]
+		o := wk.idx(b, h, i, p.HeadsQ, p.Lq)
+		copy(st.q, wk.q[o:o+d])
+		if wk.cosQ != nil {
+			rotate(st.q, wk.cosQ[i*r2:(i+1)*r2], wk.sinQ[i*r2:(i+1)*r2], r2*2, p.RopeHalves, wk.pair)
+		}
+		st.lo, st.hi = p.visible(i)
+		st.m, st.l = float32(math.Inf(-1)), 0
+		clear(st.acc)
+		lo, hi = min(lo, st.lo), max(hi, st.hi)
+	}
+	return lo, hi
+}
+
+// tile folds the keys j0 ≤ j < j1 into the rows: their scaled logits (−Inf
+// where a row does not see the key), the online softmax, and the weighted
+// values.
+func (wk *worker) tile(keys, vals []float32, j0, j1 int) {
+	d, rows, sc := wk.d, &wk.rows, &wk.sc
+	for j := j0; j < j1; j++ {
+		s0, s1, s2, s3 := dot4(rows[0].q, rows[1].q, rows[2].q, rows[3].q, keys[j*d:(j+1)*d])
+		for r, v := range [Rows]float32{s0, s1, s2, s3} {
+			if j < rows[r].lo || j >= rows[r].hi {
+				v = float32(math.Inf(-1))
+			} else {
+				v *= wk.scale
+			}
+			sc[r][j-j0] = v
+		}
+	}
+	for r := range rows {
+		rows[r].online(sc[r][:j1-j0])
+	}
+	for j := j0; j < j1; j++ {
+		jj := j - j0
+		axpy4(sc[0][jj], sc[1][jj], sc[2][jj], sc[3][jj], vals[j*d:(j+1)*d], rows[0].acc, rows[1].acc, rows[2].acc, rows[3].acc)
+	}
+}
+
+// store writes the outputs and log-sum-exps of the rows i0 … i0+n−1; a row
+// that saw no key gives 0 and −Inf.
+func (wk *worker) store(b, h, i0, n int) {
+	p, d := wk.p, wk.d
+	for r := 0; r < n; r++ {
+		i, st := i0+r, &wk.rows[r]
+		o := wk.idx(b, h, i, p.HeadsQ, p.Lq)
+		row, li := wk.out[o:o+d], p.lseIndex(b, h, i)
+		if st.l == 0 {
+			clear(row)
+			wk.lse[li] = float32(math.Inf(-1))
+			continue
+		}
+		for x := range row {
+			row[x] = st.acc[x] / st.l
+		}
+		wk.lse[li] = st.m + float32(math.Log(float64(st.l)))
+	}
 }
 
 // visible returns the keys query i sees, lo ≤ j < hi.
@@ -324,24 +392,49 @@ func rotate(x, cos, sin []float32, r int, halves bool, pair func(i, r int, halve
 }
 
 // ErrParams is returned for inconsistent parameters.
-var ErrParams = errors.New("fastattn: bad parameters")
+var ErrParams = errors.New("fastattn: invalid parameters")
 
+// check refuses parameters that do not describe a problem, and inputs of
+// other lengths, with an error wrapping ErrParams in the form
+// "fastattn: invalid parameters: Forward: Params.HeadsQ = 6; want a
+// multiple of HeadsKV = 4".
 func (p Params) check(nq, nk, nv int) error {
+	bad := func(format string, a ...any) error {
+		return fmt.Errorf("%w: Forward: "+format, append([]any{ErrParams}, a...)...)
+	}
+	for _, f := range []struct {
+		name  string
+		v, lo int
+	}{
+		{"Batch", p.Batch, 0}, {"HeadsQ", p.HeadsQ, 1}, {"HeadsKV", p.HeadsKV, 1},
+		{"Lq", p.Lq, 0}, {"Lk", p.Lk, 0}, {"HeadDim", p.HeadDim, 1}, {"Window", p.Window, 0},
+	} {
+		if f.v < f.lo {
+			return bad("Params.%s = %d; want ≥ %d", f.name, f.v, f.lo)
+		}
+	}
 	switch {
-	case p.Batch < 0 || p.Lq < 0 || p.Lk < 0 || p.HeadDim < 1 || p.HeadsQ < 1 || p.HeadsKV < 1:
-		return fmt.Errorf("%w: %+v", ErrParams, p)
 	case p.HeadsQ%p.HeadsKV != 0:
-		return fmt.Errorf("%w: %d query heads on %d kv heads", ErrParams, p.HeadsQ, p.HeadsKV)
-	case p.Window < 0 || (p.Window > 0 && !p.Causal):
-		return fmt.Errorf("%w: Window %d needs Causal", ErrParams, p.Window)
+		return bad("Params.HeadsQ = %d; want a multiple of HeadsKV = %d", p.HeadsQ, p.HeadsKV)
+	case p.Window > 0 && !p.Causal:
+		return bad("Params.Window = %d without Causal; want Causal with a window", p.Window)
 	case p.RopeDims%2 != 0 || p.RopeDims > p.HeadDim || p.RopeDims < 0:
-		return fmt.Errorf("%w: RopeDims %d with head dimension %d", ErrParams, p.RopeDims, p.HeadDim)
+		return bad("Params.RopeDims = %d; want an even number from 0 to HeadDim = %d", p.RopeDims, p.HeadDim)
 	case p.Causal && (p.StartPos < 0 || p.StartPos+p.Lq > p.Lk):
-		return fmt.Errorf("%w: queries at positions %d … %d of %d keys", ErrParams, p.StartPos, p.StartPos+p.Lq-1, p.Lk)
+		return bad("Params.StartPos = %d; want 0 … Lk − Lq = %d, so that the Lq = %d causal queries sit among the Lk = %d keys",
+			p.StartPos, p.Lk-p.Lq, p.Lq, p.Lk)
 	case nq != p.Batch*p.HeadsQ*p.Lq*p.HeadDim:
-		return fmt.Errorf("%w: len(q) = %d", ErrParams, nq)
-	case nk != p.Batch*p.HeadsKV*p.Lk*p.HeadDim || nv != nk:
-		return fmt.Errorf("%w: len(k) = %d, len(v) = %d", ErrParams, nk, nv)
+		return bad("q has %d elements; want Batch·HeadsQ·Lq·HeadDim = %d·%d·%d·%d = %d",
+			nq, p.Batch, p.HeadsQ, p.Lq, p.HeadDim, p.Batch*p.HeadsQ*p.Lq*p.HeadDim)
+	}
+	for _, t := range []struct {
+		name string
+		n    int
+	}{{"k", nk}, {"v", nv}} {
+		if want := p.Batch * p.HeadsKV * p.Lk * p.HeadDim; t.n != want {
+			return bad("%s has %d elements; want Batch·HeadsKV·Lk·HeadDim = %d·%d·%d·%d = %d",
+				t.name, t.n, p.Batch, p.HeadsKV, p.Lk, p.HeadDim, want)
+		}
 	}
 	return nil
 }

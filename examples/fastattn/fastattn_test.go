@@ -100,3 +100,42 @@ func TestSuiteCatchesSlips(t *testing.T) {
 		})
 	}
 }
+
+// TestParamErrors: parameters that describe no problem, and inputs of the
+// wrong length, are refused with ErrParams and a message naming the field.
+func TestParamErrors(t *testing.T) {
+	ok := Params{Batch: 1, HeadsQ: 4, HeadsKV: 2, Lq: 3, Lk: 5, HeadDim: 8, StartPos: 2, Causal: true}
+	for _, c := range []struct {
+		name   string
+		change func(p *Params)
+		says   string
+	}{
+		{"heads", func(p *Params) { p.HeadsQ = 3 }, "Params.HeadsQ = 3; want a multiple of HeadsKV = 2"},
+		{"no kv heads", func(p *Params) { p.HeadsKV = 0 }, "Params.HeadsKV = 0; want ≥ 1"},
+		{"head dim", func(p *Params) { p.HeadDim = 0 }, "Params.HeadDim = 0; want ≥ 1"},
+		{"window without causal", func(p *Params) { p.Causal, p.Window = false, 2 }, "Params.Window = 2 without Causal"},
+		{"negative window", func(p *Params) { p.Window = -1 }, "Params.Window = -1; want ≥ 0"},
+		{"odd rotary", func(p *Params) { p.RopeDims = 3 }, "Params.RopeDims = 3; want an even number from 0 to HeadDim = 8"},
+		{"queries past the keys", func(p *Params) { p.StartPos = 3 }, "Params.StartPos = 3; want 0 … Lk − Lq = 2"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			p := ok
+			c.change(&p)
+			q := make([]float32, max(p.Batch*p.HeadsQ*p.Lq*p.HeadDim, 0))
+			kv := make([]float32, max(p.Batch*p.HeadsKV*p.Lk*p.HeadDim, 0))
+			_, _, err := Forward(q, kv, kv, p)
+			require.ErrorIs(t, err, ErrParams)
+			assert.Contains(t, err.Error(), "fastattn: invalid parameters: Forward: "+c.says)
+		})
+	}
+	// Lengths: q for 1·4·3·8 = 96 elements, k and v for 1·2·5·8 = 80.
+	q, kv := make([]float32, 96), make([]float32, 80)
+	_, _, err := Forward(q[:95], kv, kv, ok)
+	require.ErrorIs(t, err, ErrParams)
+	assert.Contains(t, err.Error(), "q has 95 elements; want Batch·HeadsQ·Lq·HeadDim = 1·4·3·8 = 96")
+	_, _, err = Forward(q, kv, kv[:79], ok)
+	require.ErrorIs(t, err, ErrParams)
+	assert.Contains(t, err.Error(), "v has 79 elements; want Batch·HeadsKV·Lk·HeadDim = 1·2·5·8 = 80")
+	_, _, err = Forward(q, kv, kv, ok)
+	require.NoError(t, err)
+}

@@ -20,12 +20,12 @@ import (
 	_ "github.com/plumbref/plumb/attention/attentiontest"
 	_ "github.com/plumbref/plumb/compare"
 	_ "github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/vocab"
 	_ "github.com/plumbref/plumb/mask"
 	_ "github.com/plumbref/plumb/norm"
 	_ "github.com/plumbref/plumb/norm/normtest"
 	_ "github.com/plumbref/plumb/npy"
 	_ "github.com/plumbref/plumb/posenc"
-	"github.com/plumbref/plumb/internal/vocab"
 )
 
 // conventionDirs are the packages imported above, from the repository root.
