@@ -189,6 +189,24 @@ type grads[T num.Float] struct {
 	dq, dk, dv, dsinks, dbias []T
 }
 
+// nanRow sets the gradients that the empty row r reaches under
+// EmptyRowNaN to NaN: its dQ, its sink's and bias row's gradients, and the
+// dK and dV of its key/value head, as the fast form does.
+func nanRow[T num.Float](p *plan, g grads[T], r queryRow) {
+	s := p.s
+	nanFill(g.dq[p.qOff(r.b, r.h, r.i):][:s.Dk])
+	if g.dsinks != nil {
+		g.dsinks[r.h] = T(math.NaN())
+	}
+	if br := p.biasRow(r.b, r.h, r.i); br >= 0 {
+		nanFill(g.dbias[br:][:s.Lk])
+	}
+	for j := 0; j < s.Lk; j++ {
+		nanFill(g.dk[p.kOff(r.b, r.kv, j):][:s.Dk])
+		nanFill(g.dv[p.vOff(r.b, r.kv, j):][:s.Dv])
+	}
+}
+
 // backward is the direct form of Backward. dlse may be nil.
 func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 	s := p.s
@@ -209,8 +227,15 @@ func backward[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 	for r := range p.rows {
 		b, h, kv, i := r.b, r.h, r.kv, r.i
 		_, psink, empty := probsRow(p, q, k, r, row, sech2)
-		if empty && !p.emptyNaN {
-			continue // an empty row under EmptyRowZero is constant
+		if empty {
+			// Under EmptyRowZero an empty row is constant: no gradient.
+			// Under EmptyRowNaN its output is NaN, and so is every
+			// gradient it reaches, also when there is no key to carry
+			// the NaN (Lk = 0).
+			if p.emptyNaN {
+				nanRow(p, g, r)
+			}
+			continue
 		}
 		var gl T
 		if dlse != nil {

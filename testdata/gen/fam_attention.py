@@ -314,6 +314,9 @@ def build_masks():
     c.append(make("empty_rows_zero", src, shape(2, 2, 2, 3, 4, 3, 3, mask=pad0), 31, d_lse=True))
     c.append(make("empty_rows_nan", src, shape(2, 2, 2, 3, 4, 3, 3, mask=pad0, empty_row=EMPTY_NAN), 31, d_lse=True))
     c.append(make("lk_0", src, shape(1, 2, 2, 3, 0, 3, 2), 32))
+    # no key at all under the NaN policy: every output and dQ NaN, though
+    # no key carries the NaN
+    c.append(make("lk_0_nan", src, shape(1, 2, 2, 3, 0, 3, 2, empty_row=EMPTY_NAN), 32, d_lse=True))
     win_pad = [window(2), key_padding([2])]
     c.append(make("window_padding_some_rows_empty", src, shape(1, 1, 1, 5, 5, 3, 3, mask=win_pad), 33))
     c.append(make("window_padding_some_rows_nan", src, shape(1, 1, 1, 5, 5, 3, 3, mask=win_pad, empty_row=EMPTY_NAN), 33))
