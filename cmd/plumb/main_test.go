@@ -12,6 +12,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"testing"
 
@@ -19,6 +20,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
 )
@@ -355,6 +357,16 @@ func TestHelp(t *testing.T) {
 		}
 		for _, p := range append(op.Inputs(), op.Outputs()...) {
 			assert.Contains(t, oh, p.Name)
+		}
+	}
+	// plumb help conventions lists every word of every convention, with
+	// its meaning, as the types declare them.
+	o, _ = must(t, dir, 0, "help", "conventions")
+	all := vocab.All()
+	require.NotEmpty(t, all)
+	for _, c := range all {
+		for _, w := range c.Words {
+			assert.Regexp(t, `(?m)\b`+regexp.QuoteMeta(w.Text)+`\b.*`+regexp.QuoteMeta(w.Meaning), o, "plumb help conventions: %s word %q", c.Name, w.Text)
 		}
 	}
 	_, e = must(t, dir, 2, "help", "nosuch")
