@@ -140,9 +140,9 @@
 //
 //	                      y         sum       dx        dweight   dbias
 //	LayerNorm             4.6e-16
-//	LayerNormBackward                         2.4e-16   2.7e-16   0
+//	LayerNormBackward                         3.9e-16   2.7e-16   0
 //	RMSNorm               2.2e-16
-//	RMSNormBackward                           2.1e-16   1.9e-16
+//	RMSNormBackward                           8.1e-16   1.9e-16
 //	AddLayerNorm          1.3e-16   0
 //	AddLayerNormBackward                      1.2e-16   1.3e-16   0
 //	AddRMSNorm            1.4e-16   0
@@ -152,15 +152,28 @@
 //
 // The golden tests hold every output to 1e-14.
 //
-// One limit comes from the function's conditioning: when ε ≪ s², the
-// part of ∂L/∂x along x̂ is scaled by ε/(s² + ε), while a relative change
-// of 2⁻⁵³ in one input rotates x̂ and moves ∂L/∂x by about 2⁻⁵³‖g‖/r. The
-// closed form, which rounds x̂, makes errors of that size; so when dy is
-// nearly parallel to x̂ the relative error of ∂L/∂x can reach 2⁻⁵³·s²/ε
-// (extra precision would be needed to do better). For d = 1, where dy is
-// always parallel to x̂ but the function is well conditioned, RMSNorm's
-// gradient is computed from its own closed form ε/r³ or ε/r² and is
-// accurate. For dy of random direction the error stays near 2⁻⁵³.
+// One limit comes from the function's conditioning. Write s for the root
+// mean square of the row's deviations (x − μ for LayerNorm, x for
+// RMSNorm), κ = ε/(s² + ε) with ε inside the root and κ = ε/(s + ε) with ε
+// added to it, and θ for the angle between g = dy ∘ γ (centred, for
+// LayerNorm) and x̂. ∂L/∂x is (1/r) times the part of g across x̂ plus κ
+// times the part along it, while a relative change of 2⁻⁵³ in one input
+// rotates x̂ and moves ∂L/∂x by about 2⁻⁵³‖g‖/r; the closed form, which
+// rounds x̂, makes errors of that size. So for every d the normwise
+// relative error of ∂L/∂x is at most about
+//
+//	d · 2⁻⁵³ / √(sin²θ + κ² cos²θ)
+//
+// which is near d·2⁻⁵³ for dy of random direction and reaches d·2⁻⁵³/κ ≈
+// d·2⁻⁵³·s²/ε when dy is parallel to x̂ and ε ≪ s² (extra precision would be
+// needed to do better). Where the deviations span one dimension, RMSNorm
+// of one element and LayerNorm of two (x₀ − μ = −(x₁ − μ)), x̂ cannot
+// rotate: dy is always parallel to it and the function is well
+// conditioned. There the gradient comes from its own closed form,
+// ∂L/∂x₀ = −∂L/∂x₁ = (g₀ − g₁)/2 · ε/r³ (ε in the root) or · ε/r² (added to
+// it) for LayerNorm and g₀ · ε/r³ or g₀ · ε/r² for RMSNorm, accurate to a
+// few roundings at every ε; the golden cases small/d1, d2, d3 check it
+// down to ε = 1e-30.
 //
 // # Float32
 //

@@ -52,7 +52,7 @@ func TestGoldenWords(t *testing.T) {
 			n++
 		}
 	}
-	assert.Equal(t, 52, n, "cases in %v (testdata/gen/fam_norm.py)", goldenFamilies)
+	assert.Equal(t, 88, n, "cases in %v (testdata/gen/fam_norm.py)", goldenFamilies)
 	words.Require(t, "norm.EpsilonPlacement", "norm.WeightForm")
 }
 

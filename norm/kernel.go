@@ -204,15 +204,25 @@ func backward[T num.Float](x []T, d int, w, b, dy []T, center bool, o Options) g
 			}
 			continue
 		}
-		if !center && d == 1 {
-			// One element: x̂ = ±s/r and the general form would get
-			// ε/(s² + ε) as 1 − s²/(s² + ε), by cancellation. Directly:
-			// ∂x̂/∂x = ε/r³ (in the root) or ε/r² (added to the root).
+		// Where the deviations span one dimension, RMSNorm of one element
+		// and LayerNorm of two, dy is always parallel to x̂ and the general
+		// form would get ε/(s² + ε) as 1 − s²/(s² + ε), by cancellation,
+		// though the function is well conditioned there. Directly, with
+		// δ the deviation (x for RMSNorm, (x₀ − x₁)/2 for LayerNorm) and
+		// r its denominator: d(δ/r)/dδ = ε/r³ (in the root) or ε/r²
+		// (added to the root), and ∂L/∂x₀ = −∂L/∂x₁ = (g₀ − g₁)/2 times
+		// that for LayerNorm.
+		if (!center && d == 1) || (center && d == 2) {
 			f := st.eps / st.r
 			if o.Placement == EpsilonInRoot {
 				f = st.eps / (st.m + st.eps)
 			}
-			dx[0] = ldexp(T(g[0]*f)/st.r, -st.k)
+			if d == 1 {
+				dx[0] = ldexp(T(g[0]*f)/st.r, -st.k)
+				continue
+			}
+			dx[0] = ldexp(T(T(g[0]-g[1])/2*f)/st.r, -st.k)
+			dx[1] = -dx[0]
 			continue
 		}
 		var sg, sgn T

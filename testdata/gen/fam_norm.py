@@ -264,8 +264,27 @@ def special(kind, seed, name, d, rows, eps, placement, gen_x, weight="as_is", bi
     return make(name, cfg, x, w, b, dy, backward=backward)
 
 
+def small_rows(kind, seed):
+    """Rows of 1, 2 and 3 elements under both placements and epsilons down
+    to 1e-30: where the deviations span one dimension (LayerNorm of two
+    elements, RMSNorm of one) dy is always parallel to the normalised row,
+    the part of the gradient that epsilon scales. The first row of each
+    LayerNorm d = 2 case is x = [0, 1], dy = [1, 0]."""
+    out = []
+    r = rng(seed)
+    for d in (1, 2, 3):
+        for placement in ("in_root", "added_to_root"):
+            for eps in (1e-5, 1e-12, 1e-30):
+                cfg = config(kind, d, eps, placement)
+                x, dy = uniform(r, 3 * d, -2.0, 2.0), uniform(r, 3 * d)
+                if kind == "layer" and d == 2:
+                    x[:2], dy[:2] = [0.0, 1.0], [1.0, 0.0]
+                out.append(make("small/d%d/eps%g/%s" % (d, eps, placement), cfg, x, dy=dy))
+    return out
+
+
 def build_layernorm():
-    out = grid("layer", 101)
+    out = grid("layer", 101) + small_rows("layer", 111)
     # The worked value of the norm package documentation (computed there with
     # mpmath): x = [1,2,3,4], eps = 1e-5, no gain or bias.
     out.append(make("worked/1234", config("layer", 4, 1e-5), [1.0, 2.0, 3.0, 4.0],
@@ -297,7 +316,7 @@ def build_layernorm():
 
 
 def build_rmsnorm():
-    out = grid("rms", 201)
+    out = grid("rms", 201) + small_rows("rms", 211)
     # The worked value of the norm package documentation (computed there with
     # mpmath): x = [1,2,3,4], eps = 0 in the source. eps = 2^-1074
     # is the smallest allowed; here it changes mean(x^2) = 7.5 by a relative
