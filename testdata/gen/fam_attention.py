@@ -303,6 +303,9 @@ def build_masks():
     c.append(make("causal_lq3_lk6_align_end", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[causal()]), 21))
     c.append(make("causal_lq3_lk6_align_start", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[causal()], align=START), 22))
     c.append(make("causal_align_start_offset_2", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[causal()], align=START, offset=2), 23, d_lse=True))
+    # end alignment moved by an offset: the queries sit at Lk - Lq + offset
+    c.append(make("causal_align_end_offset_minus_2", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[causal()], offset=-2), 23, d_lse=True))
+    c.append(make("window_align_end_offset_minus_1", src, shape(1, 1, 1, 3, 6, 3, 2, mask=[window(2)], offset=-1), 23))
     c.append(make("window_3", src, shape(1, 2, 2, 7, 7, 3, 3, mask=[window(3)]), 24))
     c.append(make("band_1_2", src, shape(1, 1, 1, 6, 6, 3, 3, mask=[band(1, 2)]), 25))
     c.append(make("prefix_3", src, shape(1, 1, 1, 6, 6, 3, 3, mask=[prefix(3)]), 26))
