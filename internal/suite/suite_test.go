@@ -119,6 +119,35 @@ func TestToleranceTakesTheLargerBound(t *testing.T) {
 	assert.Equal(t, 4e-12, f64.Tolerance.Abs)
 }
 
+// A float64 kernel passes with an error of a few roundings and fails with
+// one of 1e-9: the bounds of Float64Tolerance, 1e-12 normwise and
+// 1e-12·max|ref| per element, sit between the two.
+func TestFloat64KernelIsHeldTo1e12(t *testing.T) {
+	ref := []float64{1, -2, 3, 4}
+	scaled := func(f float64) []float64 {
+		got := make([]float64, len(ref))
+		for i, v := range ref {
+			got[i] = v * (1 + f)
+		}
+		return got
+	}
+	for _, c := range []struct {
+		rel  float64
+		pass bool
+	}{{4e-16, true}, {5e-13, true}, {2e-12, false}, {1e-9, false}} {
+		r := &Recorder{}
+		ok := Check[*Recorder, float64](r, compare.Float64, "c", "conv", Output{Name: "y", Shape: []int{4}, Ref: ref, Got: scaled(c.rel)}, nil)
+		assert.Equal(t, c.pass, ok, "relative error %g", c.rel)
+		assert.Equal(t, !c.pass, r.Failed)
+	}
+	// Every element within 1e-12·max|ref| (0.9e-12 off), but the normwise
+	// error ‖(0.9e-12, …)‖₂ / ‖(1, 0, 0, 0)‖₂ = 1.8e-12 exceeds 1e-12.
+	r := &Recorder{}
+	got := []float64{1 + 0.9e-12, 0.9e-12, 0.9e-12, 0.9e-12}
+	assert.False(t, Check[*Recorder, float64](r, compare.Float64, "c", "conv", Output{Name: "y", Shape: []int{4}, Ref: []float64{1, 0, 0, 0}, Got: got}, nil))
+	assert.Contains(t, r.Messages[0], "normwise relative error")
+}
+
 // The zero format means float32 for a float32 kernel and float64 for a
 // float64 kernel.
 func TestInputFormat(t *testing.T) {
