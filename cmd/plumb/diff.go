@@ -112,6 +112,13 @@ detector), normwise relative error, the distribution of ULP distances in
 the candidate's format, NaN and Inf mismatches, the worst elements with
 their index, and the verdict under the tolerance. The two files must have
 the same shape. Exit status 0 within tolerance, 1 outside, 2 for an error.
+
+NaN and ±Inf in either file are compared, never refused (a reference may
+hold them by its special cases, say −Inf log-sum-exp of a row that sees no
+key): a NaN against a NaN, or an infinity against the same infinity, is a
+match; a NaN or an infinity against anything else is a mismatch that
+fails. The -heatmap file is written to a temporary beside it and renamed
+into place once complete.
 ` + toleranceAbout,
 		flags: func(fs *flag.FlagSet) any {
 			o := &diffOptions{}
@@ -164,7 +171,7 @@ func runDiff(e *env, opts any, args []string) (int, error) {
 		err := writeHeatmap(o.heatmap, ref.tensor.Data, got.tensor.Data, ref.tensor.Shape, rep, got.path)
 		done()
 		if err != nil {
-			return exitUsage, fmt.Errorf("heatmap %s: %w", o.heatmap, err)
+			return exitUsage, fmt.Errorf("-heatmap: %w", err)
 		}
 	}
 	return verdictStatus(rep), nil

@@ -26,7 +26,21 @@
 // Tensors are .npy files (package github.com/plumbref/plumb/npy): inputs
 // and candidates may be float64, float32 or float16, and a candidate may be
 // bfloat16, E4M3 or E5M2 bit patterns (uint16, uint8) with -format. Outputs
-// are float64. NaN in an input is an error unless -allow-nan.
+// are float64. A -config file is one JSON object of at most
+// ops.MaxConfigBytes (1 MiB); an empty or larger file is an error.
+//
+// Non-finite inputs: NaN, +Inf or −Inf in an input of run or check is an
+// error that names the file, the element's index and its value, unless
+// -allow-nonfinite, which passes them to the reference, where the special
+// cases its function documents apply (+Inf in a softmax row gives NaN in
+// the row). Candidates and the files of diff are never refused for them:
+// a NaN against a NaN, or an infinity against the same infinity, is a
+// match, and any other pairing with NaN or ±Inf is a mismatch that fails.
+//
+// Every file plumb writes (gen's file, run's outputs, diff's heatmap) is
+// written to a temporary file beside it, synced and renamed into place; run
+// renames its outputs only once all of them are written, so a failed
+// command leaves the previous files as they were and no temporary behind.
 //
 // diff and check judge a candidate under a tolerance: explicit (-abs, -rel,
 // -ulps, -normwise); for check with a candidate narrower than float64, the

@@ -1,8 +1,9 @@
 package main
 
 import (
+	"bytes"
 	"fmt"
-	"math"
+	"io"
 	"os"
 	"path/filepath"
 	"sort"
@@ -64,25 +65,23 @@ func trimPath(err error, path string) error {
 	return err
 }
 
-// refuseNaN returns an error naming the first NaN of the tensor.
-func refuseNaN(f *tensorFile) error {
+// refuseNonFinite returns an error naming the first NaN or ±Inf of the
+// tensor: its index and value, and how many there are.
+func refuseNonFinite(f *tensorFile) error {
+	first, n := -1, 0
 	for i, v := range f.tensor.Data {
-		if math.IsNaN(v) {
-			return fmt.Errorf("%s: element %v = NaN (%d NaN in all); want numbers (-allow-nan passes NaN to the reference)",
-				f.path, unravel(i, f.tensor.Shape), countNaN(f.tensor.Data))
-		}
-	}
-	return nil
-}
-
-func countNaN(x []float64) int {
-	n := 0
-	for _, v := range x {
-		if math.IsNaN(v) {
+		if !finite(v) {
+			if first < 0 {
+				first = i
+			}
 			n++
 		}
 	}
-	return n
+	if first < 0 {
+		return nil
+	}
+	return fmt.Errorf("%s: element %v = %v (%d NaN or ±Inf in all); want finite numbers (-allow-nonfinite passes NaN and ±Inf to the reference, whose special cases then apply)",
+		f.path, unravel(first, f.tensor.Shape), f.tensor.Data[first], n)
 }
 
 // unravel returns the row-major index of flat offset i in shape.
@@ -105,13 +104,15 @@ func bitsDType(b npy.Bits) npy.DType {
 	return npy.Uint8
 }
 
-// writeTensor writes t as a float64 .npy file.
-func writeTensor(path string, t ops.Tensor) error {
-	a, err := npy.New(npy.Float64, t.Shape, t.Data)
-	if err != nil {
-		return fmt.Errorf("%s: %w", path, err)
+// tensorWriter writes t as a float64 .npy stream.
+func tensorWriter(t ops.Tensor) func(w io.Writer) error {
+	return func(w io.Writer) error {
+		a, err := npy.New(npy.Float64, t.Shape, t.Data)
+		if err != nil {
+			return err
+		}
+		return npy.Write(w, a)
 	}
-	return npy.WriteFile(path, a)
 }
 
 // namedFiles parses arguments NAME=FILE into a map, refusing malformed
@@ -131,8 +132,9 @@ func namedFiles(args []string, what string) (map[string]string, error) {
 	return m, nil
 }
 
-// readInputs reads the named input files.
-func readInputs(files map[string]string, allowNaN bool) (ops.Tensors, error) {
+// readInputs reads the named input files; an input holding NaN or ±Inf is
+// an error unless allowNonFinite.
+func readInputs(files map[string]string, allowNonFinite bool) (ops.Tensors, error) {
 	names := make([]string, 0, len(files))
 	for n := range files {
 		names = append(names, n)
@@ -144,8 +146,8 @@ func readInputs(files map[string]string, allowNaN bool) (ops.Tensors, error) {
 		if err != nil {
 			return nil, err
 		}
-		if !allowNaN {
-			if err := refuseNaN(f); err != nil {
+		if !allowNonFinite {
+			if err := refuseNonFinite(f); err != nil {
 				return nil, err
 			}
 		}
@@ -154,17 +156,36 @@ func readInputs(files map[string]string, allowNaN bool) (ops.Tensors, error) {
 	return in, nil
 }
 
-// readConfig reads a configuration file; no file means {"version": 1}.
+// readConfig reads a configuration file; no file means {"version": 1}. It
+// reads at most ops.MaxConfigBytes + 1 bytes, so that a file too large for
+// the ops package (or an endless one, such as /dev/zero) is refused
+// without reading it all, and refuses a file with no JSON in it.
 func readConfig(path string) ([]byte, error) {
 	if path == "" {
 		return nil, nil
 	}
-	b, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		if os.IsNotExist(err) {
 			return nil, fmt.Errorf("configuration %s: no such file", path)
 		}
 		return nil, fmt.Errorf("configuration %s: %w", path, trimPath(err, path))
+	}
+	defer f.Close()
+	b, err := io.ReadAll(io.LimitReader(f, ops.MaxConfigBytes+1))
+	if err != nil {
+		return nil, fmt.Errorf("configuration %s: %w", path, trimPath(err, path))
+	}
+	if len(b) > ops.MaxConfigBytes {
+		return nil, fmt.Errorf("configuration %s has more than ops.MaxConfigBytes = %d bytes; want one JSON object of at most %d bytes",
+			path, ops.MaxConfigBytes, ops.MaxConfigBytes)
+	}
+	if len(bytes.TrimSpace(b)) == 0 {
+		what := "is empty"
+		if len(b) > 0 {
+			what = fmt.Sprintf("holds only white space (%d bytes)", len(b))
+		}
+		return nil, fmt.Errorf(`configuration %s %s; want a JSON object, at least {"version":1} (plumb help OPERATION lists its other keys)`, path, what)
 	}
 	return b, nil
 }

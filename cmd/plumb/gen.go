@@ -3,6 +3,7 @@ package main
 import (
 	"flag"
 	"fmt"
+	"io"
 	"math"
 	"math/rand/v2"
 	"strconv"
@@ -98,6 +99,8 @@ place, 0.8588583889475008, where the C library's cos rounds differently
 from Go's.)
 
 Use a different seed for each tensor: the same seed gives the same numbers.
+The file is written to a temporary file beside it and renamed into place
+once complete, so a failed gen leaves an earlier FILE.npy as it was.
 `
 
 type genOptions struct {
@@ -159,7 +162,7 @@ func runGen(e *env, opts any, args []string) (int, error) {
 		return exitUsage, fmt.Errorf("-dtype = %q; want float64 or float32", o.dtype)
 	}
 	if err == nil {
-		err = npy.WriteFile(args[0], a)
+		err = writeAtomic(args[0], func(w io.Writer) error { return npy.Write(w, a) })
 	}
 	if err != nil {
 		return exitUsage, err

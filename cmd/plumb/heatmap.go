@@ -2,8 +2,8 @@ package main
 
 import (
 	"fmt"
+	"io"
 	"math"
-	"os"
 	"strings"
 
 	"gonum.org/v1/plot"
@@ -78,7 +78,7 @@ func worstSlice(ref, got []float64, shape []int, rep *compare.Report) (lead []in
 // element grid with labelled axes, and a labelled colour scale beside it.
 func writeHeatmap(path string, ref, got []float64, shape []int, rep *compare.Report, candidate string) error {
 	if len(ref) == 0 {
-		return fmt.Errorf("the tensors are empty")
+		return fmt.Errorf("%s: the tensors are empty; want at least one element to draw", path)
 	}
 	lead, g := worstSlice(ref, got, shape, rep)
 	lo, hi := 0.0, 0.0
@@ -131,15 +131,10 @@ func writeHeatmap(path string, ref, got []float64, shape []int, rep *compare.Rep
 	p.Draw(left)
 	bar.Draw(right)
 
-	f, err := os.Create(path)
-	if err != nil {
+	return writeAtomic(path, func(w io.Writer) error {
+		_, err := vgimg.PngCanvas{Canvas: img}.WriteTo(w)
 		return err
-	}
-	if _, err := (vgimg.PngCanvas{Canvas: img}).WriteTo(f); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	})
 }
 
 // flippedTicks labels the heatmap's rows so that row 0 is at the top.

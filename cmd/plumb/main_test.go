@@ -303,6 +303,103 @@ func TestCheck(t *testing.T) {
 	must(t, dir, 1, "check", "-abs", "1e-12", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port_out.npy")
 }
 
+// TestCheckSeveralOutputs: check judges every candidate given, so one bad
+// output fails the check whichever -got it is and whatever the others.
+func TestCheckSeveralOutputs(t *testing.T) {
+	dir := attentionFixture(t)
+	must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy")
+	lse := readNPY(t, filepath.Join(dir, "lse.npy"))
+	// lse of query row [0 2 4] off by 1e-2: outside the default float64
+	// tolerance (rel 1e-10, abs 1e-10·max|ref|; plumb help check).
+	lse.Data[2*6+4] += 1e-2
+	writeNPY(t, filepath.Join(dir, "bad_lse.npy"), npy.Float64, lse.Shape, lse.Data)
+	args := []string{"check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy"}
+	for _, c := range []struct {
+		name string
+		got  []string
+	}{
+		{"first good, second bad", []string{"-got", "out=out.npy", "-got", "lse=bad_lse.npy"}},
+		{"first bad, second good", []string{"-got", "lse=bad_lse.npy", "-got", "out=out.npy"}},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			o, _ := must(t, dir, 1, append(args, c.got...)...)
+			assert.Equal(t, 1, strings.Count(o, "verdict: PASS"), o)
+			assert.Equal(t, 1, strings.Count(o, "verdict: FAIL"), o)
+			assert.Regexp(t, `(?s)output out\n.*verdict: PASS.*output lse\n.*verdict: FAIL`, o, "reports in the order of the operation's outputs")
+			o, _ = must(t, dir, 1, append(append(args, "-json"), c.got...)...)
+			var j []namedReport
+			require.NoError(t, json.Unmarshal([]byte(o), &j))
+			require.Len(t, j, 2)
+			assert.Equal(t, []string{"out", "lse"}, []string{j[0].Name, j[1].Name})
+			assert.True(t, j[0].Report.Verdict.Pass)
+			assert.False(t, j[1].Report.Verdict.Pass)
+		})
+	}
+	// Both good: 0, as in TestCheck.
+	must(t, dir, 0, append(args, "-got", "out=out.npy", "-got", "lse=lse.npy")...)
+}
+
+// TestDiffLastElement: diff takes one pair of files (several outputs are
+// several diffs); within it every element counts, the last as well as the
+// first, in text and in JSON.
+func TestDiffLastElement(t *testing.T) {
+	dir := attentionFixture(t)
+	must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy")
+	ref := readNPY(t, filepath.Join(dir, "out.npy"))
+	bad := append([]float64(nil), ref.Data...)
+	bad[len(bad)-1] += 1e-2 // [0 3 5 7]; 1e-2 is outside the default float64 tolerance
+	writeNPY(t, filepath.Join(dir, "bad.npy"), npy.Float64, ref.Shape, bad)
+	o, _ := must(t, dir, 1, "diff", "out.npy", "bad.npy")
+	assert.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
+	assert.Contains(t, o, "[0 3 5 7]")
+	o, _ = must(t, dir, 1, "diff", "-json", "out.npy", "bad.npy")
+	var j namedReport
+	require.NoError(t, json.Unmarshal([]byte(o), &j))
+	assert.False(t, j.Report.Verdict.Pass)
+}
+
+// TestCheckK: -k reaches the yardstick. The candidate's error is put
+// between the tolerances of k = 2 (the default) and k = 4, so it fails the
+// first and passes the second.
+func TestCheckK(t *testing.T) {
+	dir := attentionFixture(t)
+	in := fixtureInputs(t, dir)
+	ref, err := ops.Run("attention-forward", []byte(causal), in)
+	require.NoError(t, err)
+	// The yardstick check measures for out with -format float32: its error
+	// (MaxAbs, Normwise) does not depend on k.
+	ys, err := ops.Yardstick("attention-forward", []byte(causal), in, compare.Float32, compare.DefaultK)
+	require.NoError(t, err)
+	y := ys["out"]
+	require.Greater(t, y.Report.MaxAbs, 0.0, "the float32 yardstick is not exact here")
+	// A float32 port that writes its output widened to float64 (-format
+	// float32 judges it as float32): the reference with element 0 moved by
+	//
+	//	E = 3·MaxAbs + FloorAbs,
+	//
+	// every other element exact. Its elementwise error is E and the
+	// yardstick's elementwise tolerance is k·MaxAbs + FloorAbs
+	// (compare.Yardstick), so E exceeds k = 2's by MaxAbs and is below
+	// k = 4's by MaxAbs. Its normwise error is E/‖ref‖₂ ≤ 3·Normwise + u,
+	// below k = 4's k·Normwise + u, since MaxAbs ≤ Normwise·‖ref‖₂ and
+	// FloorAbs = u·max|ref| ≤ u·‖ref‖₂ (u = 2⁻²⁴, float32).
+	e := 3*y.Report.MaxAbs + y.FloorAbs
+	port := append([]float64(nil), ref["out"].Data...)
+	port[0] += e
+	actual := port[0] - ref["out"].Data[0] // exact (Sterbenz): E after rounding ref[0] + E to float64
+	require.Greater(t, actual, 2*y.Report.MaxAbs+y.FloorAbs)
+	require.Less(t, actual, 4*y.Report.MaxAbs+y.FloorAbs)
+	writeNPY(t, filepath.Join(dir, "port.npy"), npy.Float64, ref["out"].Shape, port)
+
+	args := []string{"check", "-format", "float32", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port.npy"}
+	o, _ := must(t, dir, 1, args...)
+	assert.Contains(t, o, "yardstick: float32 inputs, float32 arithmetic, float32 output: 2 ×")
+	assert.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
+	o, _ = must(t, dir, 0, append(args, "-k", "4")...)
+	assert.Contains(t, o, "yardstick: float32 inputs, float32 arithmetic, float32 output: 4 ×")
+	assert.Contains(t, o, "verdict: PASS")
+}
+
 func TestDemo(t *testing.T) {
 	o, e := must(t, t.TempDir(), 0, "demo")
 	assert.Empty(t, e, "no progress when stderr is not a terminal")
@@ -429,7 +526,7 @@ func TestBadInputs(t *testing.T) {
 		{"unknown operation", []string{"run", "attention-sideways", "x=x.npy"}, []string{`ops: unknown operation: Lookup: name = "attention-sideways"; want one of `, "attention-forward"}},
 		{"unknown input", []string{"run", "activation", "-config", "relu.json", "z=x.npy"}, []string{`ops: invalid input: activation: input name = "z"; want one of x`}},
 		{"missing input", []string{"run", "attention-forward", "q=q.npy", "k=k.npy"}, []string{`input "v" is missing`}},
-		{"NaN in inputs", []string{"run", "activation", "-config", "relu.json", "x=nan.npy"}, []string{"nan.npy: element [1 1] = NaN (1 NaN in all); want numbers"}},
+		{"NaN in inputs", []string{"run", "activation", "-config", "relu.json", "x=nan.npy"}, []string{"nan.npy: element [1 1] = NaN (1 NaN or ±Inf in all); want finite numbers (-allow-nonfinite"}},
 		{"NaN in check inputs", []string{"check", "activation", "-config", "relu.json", "x=nan.npy", "-got", "y=x.npy"}, []string{"nan.npy: element [1 1] = NaN"}},
 		{"not NAME=FILE", []string{"run", "activation", "x.npy"}, []string{`input argument = "x.npy"; want NAME=FILE`}},
 		{"input twice", []string{"run", "activation", "x=x.npy", "x=x23.npy"}, []string{`input "x" is given twice (x.npy, x23.npy); want each name once`}},
@@ -460,8 +557,8 @@ func TestBadInputs(t *testing.T) {
 			assert.NotEmpty(t, e)
 		})
 	}
-	// -allow-nan passes NaN to the reference, which propagates it.
-	must(t, dir, 0, "run", "-allow-nan", "-out", "nanout", "activation", "-config", "relu.json", "x=nan.npy")
+	// -allow-nonfinite passes NaN to the reference, which propagates it.
+	must(t, dir, 0, "run", "-allow-nonfinite", "-out", "nanout", "activation", "-config", "relu.json", "x=nan.npy")
 	assert.True(t, math.IsNaN(readNPY(t, filepath.Join(dir, "nanout", "y.npy")).Data[4]))
 }
 

@@ -53,14 +53,14 @@ func progress(e *env, quiet bool, label string) (done func()) {
 }
 
 type runOptions struct {
-	config, out string
-	allowNaN    bool
-	quiet       bool
+	config, out    string
+	allowNonFinite bool
+	quiet          bool
 }
 
 func (o *runOptions) register(fs *flag.FlagSet) {
-	fs.StringVar(&o.config, "config", "", "the operation's JSON configuration `file` (default: {\"version\": 1}; plumb help OPERATION lists its keys)")
-	fs.BoolVar(&o.allowNaN, "allow-nan", false, "pass NaN in the inputs to the reference instead of refusing them")
+	fs.StringVar(&o.config, "config", "", fmt.Sprintf("the operation's JSON configuration `file`, at most %d bytes (default: {\"version\": 1};\nplumb help OPERATION lists its keys)", ops.MaxConfigBytes))
+	fs.BoolVar(&o.allowNonFinite, "allow-nonfinite", false, "pass NaN and ±Inf in the inputs to the reference, whose special cases then apply,\ninstead of refusing them")
 	fs.BoolVar(&o.quiet, "quiet", false, "no progress on stderr")
 }
 
@@ -89,7 +89,7 @@ func (o *runOptions) reference(e *env, args []string) (*refRun, error) {
 	if r.config, err = readConfig(o.config); err != nil {
 		return nil, err
 	}
-	if r.in, err = readInputs(files, o.allowNaN); err != nil {
+	if r.in, err = readInputs(files, o.allowNonFinite); err != nil {
 		return nil, err
 	}
 	done := progress(e, o.quiet, "running "+op.Name())
@@ -101,19 +101,39 @@ func (o *runOptions) reference(e *env, args []string) (*refRun, error) {
 	return r, nil
 }
 
-const runAbout = `
+var runAbout = fmt.Sprintf(`
 Runs the float64 reference of OPERATION (plumb help ops lists them) with the
 configuration of -config on the inputs NAME=FILE.npy (float64, float32 or
 float16 files) and writes each output as DIR/NAME.npy in float64, DIR being
 -out. plumb help OPERATION lists its configuration keys, inputs and outputs.
-NaN in an input is an error unless -allow-nan.
-`
+
+A -config file is one JSON object of at most %d bytes
+(ops.MaxConfigBytes); an empty file is an error (the smallest
+configuration is {"version":1}), and so is a larger one, which is not
+read to its end.
+
+An input holding NaN, +Inf or −Inf is an error that names the file, the
+element's index and its value, unless -allow-nonfinite: then the reference
+computes with them and the special cases its function documents apply
+(the function is named in plumb help ops; for example +Inf in a softmax row
+gives NaN in the whole row).
+
+The outputs are written all or none: each to a temporary file beside it,
+synced, and renamed over DIR/NAME.npy only when every output has been
+written. A failed run leaves the files of an earlier run as they were and
+no temporary behind.
+`, ops.MaxConfigBytes)
 
 const checkAbout = `
 Runs OPERATION as plumb run does, then compares each candidate given with
 -got OUTPUT=FILE.npy (a port's output, on the same inputs) with the
 reference output of that name, as plumb diff does. Exit status 0 when every
 candidate is within tolerance, 1 when one is not, 2 for an error.
+
+The inputs and -config are read as plumb run reads them: NaN or ±Inf in an
+input is an error unless -allow-nonfinite. A candidate may hold NaN and
+±Inf: where it matches the reference (NaN for NaN, the same infinity) it
+counts as a match, anywhere else as a mismatch that fails.
 
 With the candidate's format (-format, or the candidate file's type when it
 is float32 or float16) narrower than float64 and no tolerance flag, the
@@ -161,16 +181,25 @@ func runRun(e *env, opts any, args []string) (int, error) {
 	if err := os.MkdirAll(o.out, 0o755); err != nil {
 		return exitUsage, err
 	}
+	var set outputSet
+	defer set.abort()
+	var wrote []string
 	for _, p := range r.op.Outputs() {
 		t, ok := r.out[p.Name]
 		if !ok {
 			continue
 		}
 		path := filepath.Join(o.out, p.Name+".npy")
-		if err := writeTensor(path, t); err != nil {
+		if err := set.add(path, tensorWriter(t)); err != nil {
 			return exitUsage, err
 		}
-		fmt.Fprintf(e.stdout, "wrote %s: float64 %v\n", path, t.Shape)
+		wrote = append(wrote, fmt.Sprintf("wrote %s: float64 %v\n", path, t.Shape))
+	}
+	if err := set.commit(); err != nil {
+		return exitUsage, err
+	}
+	for _, w := range wrote {
+		fmt.Fprint(e.stdout, w)
 	}
 	return exitPass, nil
 }
