@@ -196,20 +196,7 @@ func shell(t *testing.T, dir, prefix string, args ...string) (stdout, stderr str
 	if _, err := os.Stat("/bin/sh"); err != nil {
 		t.Skip("skipped: /bin/sh not present")
 	}
-	cmd := exec.Command("/bin/sh", append([]string{"-c", prefix + ` && exec "$0" "$@"`, plumbBin}, args...)...)
-	cmd.Dir = dir
-	var o, e bytes.Buffer
-	cmd.Stdout, cmd.Stderr = &o, &e
-	err := cmd.Run()
-	var ee *exec.ExitError
-	switch {
-	case err == nil:
-	case errors.As(err, &ee):
-		code = ee.ExitCode()
-	default:
-		t.Fatalf("running plumb %v: %v", args, err)
-	}
-	return o.String(), e.String(), code
+	return runCmd(t, exec.Command("/bin/sh", append([]string{"-c", prefix + ` && exec "$0" "$@"`, plumbBin}, args...)...), dir, args)
 }
 
 // A run whose write fails midway (a file size limit of 1024 bytes, below

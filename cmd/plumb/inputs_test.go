@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"context"
 	"encoding/binary"
-	"errors"
 	"fmt"
 	"math"
 	"os"
@@ -47,26 +46,15 @@ func cliIn(t *testing.T, dir string, stdin any, args ...string) (stderr string, 
 	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
 	defer cancel()
 	cmd := exec.CommandContext(ctx, plumbBin, args...)
-	cmd.Dir = dir
 	switch s := stdin.(type) {
 	case endless:
 		cmd.Stdin = s
 	case []byte:
 		cmd.Stdin = bytes.NewReader(s)
 	}
-	var e bytes.Buffer
-	cmd.Stderr = &e
-	err := cmd.Run()
+	_, stderr, code = runCmd(t, cmd, dir, args)
 	require.NoError(t, ctx.Err(), "plumb %v did not end within a minute", args)
-	var ee *exec.ExitError
-	switch {
-	case err == nil:
-	case errors.As(err, &ee):
-		code = ee.ExitCode()
-	default:
-		t.Fatalf("running plumb %v: %v", args, err)
-	}
-	return e.String(), code
+	return stderr, code
 }
 
 // A configuration is read up to ops.MaxConfigBytes + 1 bytes: a larger

@@ -49,7 +49,13 @@ func TestMain(m *testing.M) {
 // status.
 func cli(t *testing.T, dir string, args ...string) (stdout, stderr string, code int) {
 	t.Helper()
-	cmd := exec.Command(plumbBin, args...)
+	return runCmd(t, exec.Command(plumbBin, args...), dir, args)
+}
+
+// runCmd runs cmd in dir and returns its stdout, stderr and exit status;
+// a command that cannot be started fails the test.
+func runCmd(t *testing.T, cmd *exec.Cmd, dir string, args []string) (stdout, stderr string, code int) {
+	t.Helper()
 	cmd.Dir = dir
 	var o, e bytes.Buffer
 	cmd.Stdout, cmd.Stderr = &o, &e
