@@ -1,0 +1,50 @@
+// Package diagnose names what a failing port did. Given an operation of
+// package ops, its JSON configuration, the inputs, the port's outputs and
+// the port's number format, Run judges the port by the yardstick of the
+// configuration as given (ops.Yardstick), and when it fails searches for
+// the configurations, and the tensor mix-ups, under which it passes:
+//
+//   - every word of every convention key of the operation, read from
+//     Op.Keys (never from a table of this package), one at a time;
+//   - the common alternatives of the numeric keys: the logit scale (1/√d,
+//     1/d, 1), ε in decades from 1e-3 to 1e-12, the rotary and sinusoidal
+//     base (1e4, 1e5, 5e5, 1e6, 5e6, 1e7), a context scaling factor s as
+//     1/s, s², √s or no scaling, every query offset the query and key
+//     counts allow (described under both alignments), mask window sizes
+//     and band edges ±1 and ±2, the rotated dims, a position offset ±1 and
+//     ±2, a soft cap left out, a magnitude of 1, Swish's β of 1 or 1.702;
+//   - tensor mix-ups: k and v swapped, w1 and v (gate and value) swapped,
+//     weight and bias swapped, x and dy swapped, a weight matrix read
+//     transposed, an attention tensor read or an output written in the
+//     other layout, ALiBi slopes in reverse head order, a softmax over the
+//     other axis or over rows of the other length;
+//   - pairs of the best single changes of the most promising keys (two
+//     slips at once).
+//
+// Each candidate is described in the configuration's own words
+// (`"group": "cycle"`, `"offset": 2`, `k and v swapped`) with its normwise
+// error against the port's outputs; the best few by that error
+// (Options.Confirm) have their own yardstick measured, and the port's
+// verdict under it. Candidates are ranked: those the port passes first,
+// the fewest changes first among them, then by normwise error.
+// Candidates that give the reference of the configuration as given are
+// counted, not listed; candidates that give the same reference as an
+// earlier one are listed under it (Candidate.Same).
+//
+// The cost is bounded by Options: the number of candidates, and the size
+// of the problem the candidates run on (a larger problem is cut to its
+// first batch entries or rows, Result.SubProblem). On the problems of the
+// tests, a search costs a few times one check (reference, yardstick and
+// comparison); TestCostWithinTenChecks measures it.
+//
+// Every failing output also gets error signatures, computed on the whole
+// problem: the largest error along the positions (exact at position 0,
+// linear growth, a step), along the heads (which heads, and the pattern
+// h/g against h mod Hkv of the two group maps), along the dims (only one
+// half, the pairs (2i, 2i+1) against (i, i+d/2)), a fitted factor
+// got ≈ c·ref, and rows with NaN or Inf; each says in one line what it
+// suggests.
+//
+// Result.WriteText prints the result for people; the Result encodes in
+// JSON with the same data (non-finite errors as the strings "NaN", "+Inf").
+package diagnose

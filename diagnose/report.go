@@ -1,0 +1,85 @@
+package diagnose
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"strings"
+)
+
+// MaxListed is the number of candidates WriteText lists.
+const MaxListed = 10
+
+// WriteText writes the result as a report for people: the verdict of the
+// configuration as given, the sub-problem, the best candidates (passing
+// first) and the signatures of every failing output.
+func (r *Result) WriteText(w io.Writer) error {
+	var b strings.Builder
+	fmt.Fprintf(&b, "%s, %v, configuration %s\n", r.Op, r.Format, r.Config)
+	fmt.Fprintf(&b, "as given: %s\n", verdictText(r.Given.Pass, true, r.Given.Normwise, r.Given.Outputs))
+	if r.Given.Pass {
+		b.WriteString("the port passes its yardstick as configured: nothing to diagnose\n")
+		_, err := io.WriteString(w, b.String())
+		return err
+	}
+	if r.SubProblem != "" {
+		fmt.Fprintf(&b, "candidates ran on a sub-problem: %s\n", r.SubProblem)
+	}
+	fmt.Fprintf(&b, "%d candidates run (%d without effect here, %d refused by the operation), %d left out by the limit\n",
+		r.Run, r.NoEffect, r.Refused, r.LeftOut)
+	passing := r.Passing()
+	switch len(passing) {
+	case 0:
+		b.WriteString("no candidate passes; the nearest:\n")
+	case 1:
+		fmt.Fprintf(&b, "the port passes under: %s\n", passing[0].Change)
+	default:
+		fmt.Fprintf(&b, "the port passes under %d candidates, the simplest first:\n", len(passing))
+	}
+	for i, c := range r.Candidates {
+		if i == MaxListed {
+			fmt.Fprintf(&b, "  … %d more\n", len(r.Candidates)-i)
+			break
+		}
+		fmt.Fprintf(&b, "  %2d. %s: %s\n", i+1, c.Change, verdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
+		if len(c.Same) > 0 {
+			fmt.Fprintf(&b, "      the same here: %s\n", strings.Join(c.Same, " | "))
+		}
+	}
+	if len(r.Signatures) > 0 {
+		b.WriteString("error signatures of the failing outputs, on the whole problem:\n")
+		for _, s := range r.Signatures {
+			fmt.Fprintf(&b, "  %s\n", s)
+		}
+	}
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+// verdictText is "PASS, normwise 1.2e-07 (out 1.2e-07 ≤ 3.4e-07)".
+func verdictText(pass, measured bool, nw Number, outs []OutputVerdict) string {
+	word := "FAIL"
+	switch {
+	case pass:
+		word = "PASS"
+	case !measured:
+		word = "not measured"
+	}
+	var parts []string
+	for _, o := range outs {
+		p := fmt.Sprintf("%s %.3g", o.Output, float64(o.Normwise))
+		if o.Pass != nil {
+			rel := "≤"
+			if !*o.Pass {
+				rel = "vs"
+			}
+			p += fmt.Sprintf(" %s %.3g", rel, float64(o.Tolerance))
+		}
+		parts = append(parts, p)
+	}
+	return fmt.Sprintf("%s, normwise error %.3g (%s)", word, float64(nw), strings.Join(parts, ", "))
+}
+
+// MarshalIndent returns the result as indented JSON, the same data as
+// WriteText with every candidate.
+func (r *Result) MarshalIndent() ([]byte, error) { return json.MarshalIndent(r, "", "  ") }
