@@ -141,6 +141,12 @@ func runAttentionForward(c *attentionConfig, in Tensors, single bool) (Tensors, 
 	if err != nil {
 		return nil, err
 	}
+	// out takes its batch, heads and queries from q and its width from v:
+	// it can be far larger than either.
+	if err := fits(ErrInput, `output "out"`, size{`batch (input "q")`, s.Batch}, size{`heads_q (input "q")`, s.HeadsQ},
+		size{`queries (input "q")`, s.Lq}, size{`dim_v (input "v")`, s.Dv}); err != nil {
+		return nil, err
+	}
 	var out, lse []float64
 	if single {
 		o32, l32, err := attention.Forward32(in.f32("q"), in.f32("k"), in.f32("v"), s, o)

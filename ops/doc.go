@@ -55,7 +55,10 @@
 // Run32, and returns the tolerance a candidate in that format must meet.
 //
 // Accuracy: Run adds no arithmetic; it returns the kernel's result bit for
-// bit (TestRunMatchesKernels), so the accuracy is the kernel package's. On
+// bit (TestRunMatchesKernels; TestKeysReachKernels for every key and every
+// word of every operation), so the accuracy is the kernel package's: the
+// golden families of the kernel packages, run through Run, meet those
+// packages' bounds (TestGoldenThroughOps). On
 // the small random problems of the tests (inputs uniform in [−1, 1)), the
 // float32 yardsticks measure normwise errors from 0 (ALiBi bias) to 2.1e-7
 // (the sink gradient) and the bfloat16 ones up to 5.1e-3 (a fused SwiGLU
@@ -78,6 +81,17 @@
 //	  arXiv 2104.09864, Eq. (34)): (x₀ cos θ₀ − x₁ sin θ₀, x₀ sin θ₀ + x₁ cos θ₀,
 //	  x₂ cos θ₁ − x₃ sin θ₁, x₂ sin θ₁ + x₃ cos θ₁) =
 //	  −1.1426396637476533, 1.9220755965441759, 2.9598506679133292, 4.0297995016691611
+//
+// # Sizes
+//
+// No operation allocates an output of more than MaxElements = 2^28 values.
+// The sizes an output takes from the configuration (heads, queries, keys,
+// dims, lengths, positions) or from the inputs are checked against it
+// first, before anything is allocated or a kernel is called; a larger
+// output is refused with ErrConfig, or ErrInput when the inputs give its
+// size, naming every size that enters it:
+//
+//	ops: invalid configuration: alibi-slopes: key "heads" = 1000000000000; want at most MaxElements = 268435456, the most values output "slopes" may hold
 //
 // # Errors
 //

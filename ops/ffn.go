@@ -173,6 +173,11 @@ func runFfnForward(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
 	if err != nil {
 		return nil, err
 	}
+	// y takes its rows from x and its width from w2: it can be far larger
+	// than either.
+	if err := fits(ErrInput, `output "y"`, size{`rows (input "x")`, d.Rows}, size{`out (input "w2")`, d.Out}); err != nil {
+		return nil, err
+	}
 	y, err := pick(single,
 		func() ([]float64, error) { return ffn.Forward(in.data("x"), d, ffnWeights(in, same), o) },
 		func() ([]float32, error) {

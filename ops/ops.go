@@ -26,12 +26,14 @@ var (
 	ErrUnknownOp = errors.New("ops: unknown operation")
 	// ErrConfig: a configuration that is not one JSON object, has an
 	// unknown key, a missing or unsupported version, a value of the wrong
-	// type, an enumerated value that is not one of its words, or a mask
-	// description the mask package refuses.
+	// type, an enumerated value that is not one of its words, a mask
+	// description the mask package refuses, or sizes whose output would
+	// hold more than MaxElements values.
 	ErrConfig = errors.New("ops: invalid configuration")
 	// ErrInput: an input that the operation does not take, a required input
-	// that is missing, a tensor whose data do not fill its shape, or shapes
-	// that do not fit together.
+	// that is missing, a tensor whose data do not fill its shape, shapes
+	// that do not fit together, or shapes that give an output of more than
+	// MaxElements values.
 	ErrInput = errors.New("ops: invalid input")
 )
 

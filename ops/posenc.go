@@ -2,7 +2,6 @@ package ops
 
 import (
 	"fmt"
-	"strings"
 
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/posenc"
@@ -74,38 +73,9 @@ type alibiBiasConfig struct {
 	ALiBi mask.ALiBiForm `json:"alibi_form" doc:"the key distance d the bias −m·d penalises"`
 }
 
-// MaxTableElements is the largest output an operation that makes a table
-// from its configuration alone (rotary-tables, sinusoidal-table, alibi-bias)
-// will allocate: 2^28 values, 2 GiB of float64.
-const MaxTableElements = 1 << 28
-
-// size is one dimension of a table: what gives it (a key, "key \"dim\"",
-// or an input) and its value.
-type size struct {
-	what string
-	n    int
-}
-
-// tableSize refuses sizes below 0 and tables that would exceed
-// MaxTableElements.
-func tableSize(dims ...size) error {
-	n := 1
-	var all []string
-	for _, d := range dims {
-		if d.n < 0 {
-			return fmt.Errorf("%w: %s = %d; want ≥ 0", ErrConfig, d.what, d.n)
-		}
-		all = append(all, fmt.Sprintf("%s = %d", d.what, d.n))
-	}
-	for _, d := range dims {
-		if d.n > 0 && n > MaxTableElements/d.n {
-			return fmt.Errorf("%w: %s: the output would hold more than %d values; want at most MaxTableElements = %d",
-				ErrConfig, strings.Join(all, ", "), MaxTableElements, MaxTableElements)
-		}
-		n *= d.n
-	}
-	return nil
-}
+// tablesHolder is what the size check of rotary-tables bounds: the two
+// tables of length · rotated/2 values each, at most length · dim together.
+const tablesHolder = `outputs "cos" and "sin" together (length · rotated ≤ length · dim)`
 
 // tableRun32 is Run32 of an operation with no float input: the reference
 // rounded to float32.
@@ -183,16 +153,25 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 	r := c.rotary(c.Dim)
 	pos := c.Positions
 	if pos == nil {
-		if err := tableSize(size{`key "length"`, c.Length}, size{`key "dim"`, c.Dim}); err != nil {
+		length, dim := size{`key "length"`, c.Length}, size{`key "dim"`, c.Dim}
+		if err := nonNegative(length, dim); err != nil {
+			return nil, err
+		}
+		if err := fits(ErrConfig, tablesHolder, length, dim); err != nil {
 			return nil, err
 		}
 		pos = make([]int, c.Length)
 		for i := range pos {
 			pos[i] = c.Offset + i
 		}
-	} else if c.Length != 0 || c.Offset != 0 {
-		return nil, fmt.Errorf("%w: key \"length\" = %d and key \"offset\" = %d with key \"positions\"; want 0 for both: the positions exclude them",
-			ErrConfig, c.Length, c.Offset)
+	} else {
+		if c.Length != 0 || c.Offset != 0 {
+			return nil, fmt.Errorf("%w: key \"length\" = %d and key \"offset\" = %d with key \"positions\"; want 0 for both: the positions exclude them",
+				ErrConfig, c.Length, c.Offset)
+		}
+		if err := fits(ErrConfig, tablesHolder, size{`count of key "positions"`, len(pos)}, size{`key "dim"`, c.Dim}); err != nil {
+			return nil, err
+		}
 	}
 	cos, sin, err := r.Tables(pos)
 	if err != nil {
@@ -203,7 +182,11 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 }
 
 func runSinusoidalTable(c *sinusoidalConfig, in Tensors, single bool) (Tensors, error) {
-	if err := tableSize(size{`key "length"`, c.Length}, size{`key "dim"`, c.Dim}); err != nil {
+	length, dim := size{`key "length"`, c.Length}, size{`key "dim"`, c.Dim}
+	if err := nonNegative(length, dim); err != nil {
+		return nil, err
+	}
+	if err := fits(ErrConfig, `output "table"`, length, dim); err != nil {
 		return nil, err
 	}
 	t, err := posenc.Sinusoidal{Dim: c.Dim, Base: c.Base, Layout: c.Layout}.Table(c.Length, c.Offset)
@@ -214,6 +197,9 @@ func runSinusoidalTable(c *sinusoidalConfig, in Tensors, single bool) (Tensors, 
 }
 
 func runAlibiSlopes(c *slopesConfig, in Tensors, single bool) (Tensors, error) {
+	if err := fits(ErrConfig, `output "slopes"`, size{`key "heads"`, c.Heads}); err != nil {
+		return nil, err
+	}
 	s, err := posenc.ALiBiSlopes(c.Heads)
 	if err != nil {
 		return nil, err
@@ -226,7 +212,11 @@ func runAlibiBias(c *alibiBiasConfig, in Tensors, single bool) (Tensors, error) 
 		return nil, err
 	}
 	heads := len(in.data("slopes"))
-	if err := tableSize(size{`heads (input "slopes")`, heads}, size{`key "queries"`, c.Queries}, size{`key "keys"`, c.Keys}); err != nil {
+	dims := []size{{`heads (input "slopes")`, heads}, {`key "queries"`, c.Queries}, {`key "keys"`, c.Keys}}
+	if err := nonNegative(dims...); err != nil {
+		return nil, err
+	}
+	if err := fits(ErrConfig, `output "bias"`, dims...); err != nil {
 		return nil, err
 	}
 	g := mask.Geometry{Batch: 1, Lq: c.Queries, Lk: c.Keys, Align: c.Align, Offset: c.Offset}
