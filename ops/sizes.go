@@ -36,12 +36,6 @@ import (
 // the kernel's error.
 const MaxElements = 1 << 28
 
-// MaxTableElements is the former name of MaxElements, when only the
-// operations that make a table from their configuration alone checked
-// their size.
-//
-// Deprecated: use MaxElements, which bounds the output of every operation.
-const MaxTableElements = MaxElements
 
 // size is one dimension of an output: what gives it (a key, `key "dim"`,
 // or an input, `heads_q (input "q")`) and its value.
