@@ -36,7 +36,6 @@ import (
 // the kernel's error.
 const MaxElements = 1 << 28
 
-
 // size is one dimension of an output: what gives it (a key, `key "dim"`,
 // or an input, `heads_q (input "q")`) and its value.
 type size struct {
