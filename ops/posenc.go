@@ -177,7 +177,10 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 	if err != nil {
 		return nil, err
 	}
-	half := len(cos) / max(len(pos), 1)
+	half := r.Rotated / 2 // one column per frequency, also for no position
+	if r.Rotated == 0 {
+		half = r.Dim / 2
+	}
 	return tableRun32(Tensors{"cos": {[]int{len(pos), half}, cos}, "sin": {[]int{len(pos), half}, sin}}, single), nil
 }
 
