@@ -223,7 +223,8 @@ func (s Supports) missing(p Problem) []string {
 // larger bound of the two. A float64 kernel is held to an explicit tolerance:
 // 1e-12 normwise and 1e-12 times the largest reference magnitude per
 // element. A failure names the case, the problem's conventions, the output
-// and its worst element, followed by compare.Diff's report. Cases the
+// and its worst elements, and names the file holding compare.Diff's whole
+// report (see the package documentation). Cases the
 // kernel does not support are skipped with a message naming what they need.
 //
 // Inputs are standard normal unless a case says otherwise, drawn from a

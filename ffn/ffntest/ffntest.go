@@ -49,8 +49,9 @@
 // dx or dW1 in 5 of the suite's float32 subtests (by up to 2.5 times),
 // while as accurate normwise. A float64 kernel is held to 1e-12 normwise and
 // 1e-12·max|ref| per element. A failure names the case, its conventions,
-// the output (y, dx, dW1, …) and its worst element, then compare.Diff's
-// report.
+// the output (y, dx, dW1, …) and its worst elements, then the file holding
+// compare.Diff's whole report (PLUMB_REPORT_INLINE=1 in the environment
+// prints it instead).
 //
 // Inputs are standard normal and weights normal with standard deviation
 // 1/√fan-in (so pre-activations are of order 1, and of order 10 in the

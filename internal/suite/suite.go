@@ -12,6 +12,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"os"
+	"path/filepath"
 	"regexp"
 	"strings"
 
@@ -86,8 +87,9 @@ type Output struct {
 }
 
 // Judge compares o.Got with o.Ref under opt and, when it fails, marks t
-// failed with a message that names the case, its conventions, the output,
-// the worst element (index, value, reference) and then the whole report.
+// failed with one short message: the case, its conventions, the output,
+// the verdict and the worst element (index, value, reference), the three
+// worst elements, and the file holding the whole report (fullReport).
 // It reports whether the output passed.
 func Judge[T conformance.TB[T]](t T, caseName, conventions string, o Output, opt compare.Options) bool {
 	t.Helper()
@@ -109,9 +111,43 @@ func Judge[T conformance.TB[T]](t T, caseName, conventions string, o Output, opt
 		w := r.Worst[0]
 		worst = fmt.Sprintf("worst element %s%v: got %.9g, want %.9g (error %.3g)", o.Dims, w.Index, w.Got, w.Ref, w.Got-w.Ref)
 	}
-	t.Errorf("case %s (%s): %s differs from the reference: %s; %s\n%s",
-		caseName, conventions, o.Name, strings.Join(r.Verdict.Reasons, "; "), worst, r)
+	var b strings.Builder
+	fmt.Fprintf(&b, "case %s (%s): %s differs from the reference: %s; %s",
+		caseName, conventions, o.Name, strings.Join(r.Verdict.Reasons, "; "), worst)
+	for i, w := range r.Worst {
+		if i == 3 {
+			break
+		}
+		fmt.Fprintf(&b, "\n  %s%v  got %.9g  want %.9g", o.Dims, w.Index, w.Got, w.Ref)
+	}
+	b.WriteString("\n  " + fullReport(caseName+"-"+o.Name, r))
+	t.Errorf("%s", b.String())
 	return false
+}
+
+// ReportInline is the environment variable that, set to 1, prints a
+// failing output's whole compare.Diff report in the test's log instead of
+// writing it to a file.
+const ReportInline = "PLUMB_REPORT_INLINE"
+
+// fullReport writes the whole report r to a file in a directory of the
+// system's temporary directory named for the process, and returns a line
+// naming it; with ReportInline set, or when
+// the file cannot be written, it returns the report itself.
+func fullReport(name string, r *compare.Report) string {
+	if os.Getenv(ReportInline) != "1" {
+		dir := filepath.Join(os.TempDir(), fmt.Sprintf("plumb-conformance-%d", os.Getpid()))
+		path := filepath.Join(dir, strings.Map(func(c rune) rune {
+			if c == '/' || c == ' ' || c == os.PathSeparator {
+				return '_'
+			}
+			return c
+		}, name)+".txt")
+		if os.MkdirAll(dir, 0o755) == nil && os.WriteFile(path, []byte(r.String()), 0o644) == nil {
+			return "the whole report: " + path + " (" + ReportInline + "=1 prints it here)"
+		}
+	}
+	return "the whole report:\n" + r.String()
 }
 
 // Tolerance returns the diff options a kernel's output is judged with.

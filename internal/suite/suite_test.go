@@ -90,6 +90,23 @@ func TestJudge(t *testing.T) {
 	require.Len(t, r.Messages, 1)
 	first := strings.SplitN(r.Messages[0], "\n", 2)[0]
 	assert.Equal(t, "case c (conv): y differs from the reference: 1 of 4 elements exceed the elementwise tolerance; worst element [i, j][1 0]: got 3.5, want 3 (error 0.5)", first)
+	// One short block: the verdict line, the worst elements (at most
+	// three), and where the whole report is.
+	lines := strings.Split(r.Messages[0], "\n")
+	require.LessOrEqual(t, len(lines), 5, r.Messages[0])
+	assert.Equal(t, "  [i, j][1 0]  got 3.5  want 3", lines[1])
+	last := lines[len(lines)-1]
+	require.True(t, strings.HasPrefix(last, "  the whole report: "), last)
+	path := strings.TrimPrefix(last, "  the whole report: ")
+	path = path[:strings.Index(path, " (")]
+	b, err := os.ReadFile(path)
+	require.NoError(t, err)
+	assert.Contains(t, string(b), "verdict: FAIL")
+	t.Setenv(ReportInline, "1")
+	r2 := &Recorder{}
+	Judge(r2, "c", "conv", Output{Name: "y", Dims: "[i, j]", Shape: []int{2, 2}, Ref: ref, Got: got}, opt)
+	assert.Contains(t, r2.Messages[0], "the whole report:\n")
+	assert.Contains(t, r2.Messages[0], "verdict: FAIL")
 	r = &Recorder{}
 	assert.False(t, Judge(r, "c", "conv", Output{Name: "y", Shape: []int{4}, Ref: ref, Got: got[:3]}, opt))
 	assert.Contains(t, r.Messages[0], "y has 3 elements; want 4")

@@ -46,8 +46,9 @@
 // mean(x²) − mean(x)² in float32 fails the rows with a large offset, as it
 // should. A float64 kernel is held to 1e-12 normwise and 1e-12·max|ref|
 // per element. A failure names the case, its conventions by key and word
-// (Problem.String), the output and its worst element [row, column], then
-// compare.Diff's report.
+// (Problem.String), the output and its worst elements [row, column], then
+// the file holding compare.Diff's whole report (PLUMB_REPORT_INLINE=1 in the
+// environment prints it instead).
 //
 // Inputs are drawn from a PCG generator seeded with the subtest's name and
 // rounded to the kernel's Format; the reference sees the rounded values.

@@ -53,7 +53,9 @@
 //
 // A failure names the case, the configuration with each convention by its
 // key and word, and the positions (Problem.String), the output
-// and its worst element [row, dim], then compare.Diff's report. Inputs are
+// and its worst elements [row, dim], then the file holding compare.Diff's
+// whole report (PLUMB_REPORT_INLINE=1 in the environment prints it
+// instead). Inputs are
 // standard normal, drawn from a PCG generator seeded with the subtest's
 // name and rounded to the kernel's Format.
 package posenctest
