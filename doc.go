@@ -147,7 +147,7 @@
 //	attention  4.7e-15  Backward, d_q
 //	attention  1.0e-13  Backward (logits near ±1000), d_q
 //	posenc     1.4e-16  Rotary.Apply, y
-//	norm       4.6e-16  LayerNorm, y
+//	norm       8.1e-16  RMSNormBackward, dx
 //	ffn        5.6e-16  Backward, dweights
 //
 // Each package's documentation has the table by function and output.

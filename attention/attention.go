@@ -45,7 +45,10 @@ import (
 //	logits near ±1000:          exact: only differences s_j − max are exponentiated
 //	NaN in a visible logit:     that row's O and lse are NaN
 //	+Inf in a visible logit:    that row's O and lse are NaN (Inf − Inf)
+//	−Inf in a visible logit:    its key has weight 0; a row of −Inf logits sees no key
+//	NaN or ±Inf in q, k or the bias: the logits it reaches are NaN or ±Inf, as above
 //	Inf or NaN in a V row of weight 0 (hidden key): ignored
+//	a logit of finite inputs overflows to NaN or ±Inf: error ErrOverflow (see Options)
 //	Batch = 0 or Lq = 0:        empty outputs
 //
 // Accuracy: the package documentation's table, measured on the golden
@@ -75,7 +78,19 @@ func runForward[T num.Float](fn string, q, k, v []T, s Shape, o Options, body fu
 		return nil, nil, err
 	}
 	out, lse = body(p, q, k, v)
+	if err := p.overflowErr(fn, bitsOf[T]()); err != nil {
+		return nil, nil, err
+	}
 	return out, lse, nil
+}
+
+// bitsOf is the width of T, 32 or 64.
+func bitsOf[T num.Float]() int {
+	var z T
+	if _, ok := any(z).(float32); ok {
+		return 32
+	}
+	return 64
 }
 
 // Grads are the gradients of a loss with respect to the inputs of Forward.
@@ -157,7 +172,11 @@ func runBackward[T num.Float](fn string, q, k, v, dOut, dLSE []T, s Shape, o Opt
 			return grads[T]{}, err
 		}
 	}
-	return body(p, q, k, v, dOut, dLSE), nil
+	g := body(p, q, k, v, dOut, dLSE)
+	if err := p.overflowErr(fn, bitsOf[T]()); err != nil {
+		return grads[T]{}, err
+	}
+	return g, nil
 }
 
 // grads64 and grads32 return the gradients of runBackward in the exported

@@ -103,12 +103,17 @@
 //	logits near ±1000                   exact: only differences t_j − max are exponentiated
 //	NaN in Q, K, V or a visible logit   NaN in the rows it reaches, nowhere else
 //	+Inf logit (e.g. a +Inf bias)       NaN row
-//	−Inf bias                           hides the key, like the mask
+//	−Inf bias, or a −Inf logit from     hides the key, like the mask
+//	  infinite q or k
 //	Inf or NaN in a V row of weight 0   ignored by the direct and tiled forms;
 //	                                    NaN in the fast form (0·Inf in BLAS)
+//	a logit of finite inputs that       an error wrapping ErrOverflow (see
+//	  overflows                         Options): Scale 1e308 on inputs near 1
+//	a tensor beyond MaxElements         ErrShape, before anything is allocated
 //	Batch = 0 or Lq = 0                 empty outputs
 //	invalid input                       an error wrapping ErrShape, ErrLength,
-//	                                    ErrOption, ErrBias or ErrMask; never a panic
+//	                                    ErrOption, ErrBias, ErrMask or
+//	                                    ErrOverflow; never a panic
 //
 // # Accuracy
 //

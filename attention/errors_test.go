@@ -59,7 +59,7 @@ var forms = []struct {
 
 var f32 = num.Convert[float32, float64]
 
-var sentinels = []error{ErrShape, ErrLength, ErrOption, ErrBias, ErrMask}
+var sentinels = []error{ErrShape, ErrLength, ErrOption, ErrBias, ErrMask, ErrOverflow}
 
 // checkError asserts that err wraps want and no other sentinel of the
 // package, and reads "<want>: <fn>: <detail>".
@@ -285,7 +285,7 @@ func FuzzForward(f *testing.F) {
 		}
 		check := func(out, lse []float64, err error) {
 			if err != nil {
-				for _, e := range []error{ErrShape, ErrLength, ErrOption, ErrBias, ErrMask} {
+				for _, e := range sentinels {
 					if errors.Is(err, e) {
 						return
 					}
@@ -327,6 +327,72 @@ func TestErrorsHugeShape(t *testing.T) {
 	// 2^32 · 2^32 · 1 · 1 elements would wrap int64 arithmetic around to 0.
 	s := Shape{Batch: 1 << 32, HeadsQ: 1 << 32, HeadsKV: 1, Lq: 1, Lk: 1, Dk: 1, Dv: 1}
 	_, _, err := Forward(nil, nil, nil, s, Options{})
-	checkError(t, err, ErrShape, "Forward", "Shape = {Batch:4294967296 HeadsQ:4294967296 HeadsKV:1 Lq:1 Lk:1 Dk:1 Dv:1}; "+
-		"want every tensor at most 2^50 elements, the most this package handles (q would have 1.84e+19)")
+	checkError(t, err, ErrShape, "Forward", "the size of q, Batch·HeadsQ·Lq·Dk = 4294967296·4294967296·1·1, a zero dimension counted as 1; want at most MaxElements = 268435456 elements")
+}
+
+// TestMaxElements: every tensor of a call, and the scratch of the fast
+// forms, is refused beyond MaxElements = 2^28 elements before anything is
+// allocated. Each shape below needs almost no input data (Lk = 0 needs no
+// V, Batch = 0 none at all) and would otherwise allocate from 12 MiB per
+// worker (the fast scratch) to 8 TiB (the output) and end the program.
+func TestMaxElements(t *testing.T) {
+	require.Equal(t, 1<<28, MaxElements)
+	tests := []struct {
+		name   string
+		s      Shape
+		detail string
+	}{
+		{"a Dv of 2^40 with no keys", Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 1, Lk: 0, Dk: 1, Dv: 1 << 40},
+			"the size of v, Batch·HeadsKV·Lk·Dv = 1·1·0·1099511627776, a zero dimension counted as 1; want at most MaxElements = 268435456 elements"},
+		{"the output of many query heads", Shape{Batch: 1, HeadsQ: 1 << 10, HeadsKV: 1, Lq: 1, Lk: 0, Dk: 1, Dv: 1 << 19},
+			"the size of the output, Batch·HeadsQ·Lq·Dv = 1·1024·1·524288, a zero dimension counted as 1; want at most MaxElements = 268435456 elements"},
+		{"keys of an empty batch", Shape{Batch: 0, HeadsQ: 1, HeadsKV: 1, Lq: 1, Lk: 1 << 40, Dk: 1, Dv: 1},
+			"the size of k, Batch·HeadsKV·Lk·Dk = 0·1·1099511627776·1, a zero dimension counted as 1; want at most MaxElements = 268435456 elements"},
+		{"queries of an empty batch", Shape{Batch: 0, HeadsQ: 1 << 10, HeadsKV: 1, Lq: 1 << 10, Lk: 1, Dk: 1 << 10, Dv: 1},
+			"the size of q, Batch·HeadsQ·Lq·Dk = 0·1024·1024·1024, a zero dimension counted as 1; want at most MaxElements = 268435456 elements"},
+		{"values, each factor fitting", Shape{Batch: 1 << 10, HeadsQ: 1, HeadsKV: 1, Lq: 0, Lk: 0, Dk: 1, Dv: 1 << 19},
+			"the size of v, Batch·HeadsKV·Lk·Dv = 1024·1·0·524288, a zero dimension counted as 1; want at most MaxElements = 268435456 elements"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			q := make([]float64, tc.s.qLen())
+			for _, f := range forms {
+				checkError(t, f.run(q, nil, nil, nil, tc.s, Options{}), ErrShape, f.fn, tc.detail)
+			}
+		})
+	}
+
+	// At the limit: a call of 2^28 output elements whose data are empty.
+	_, _, err := Forward(nil, nil, nil, Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 0, Lk: 0, Dk: 1, Dv: MaxElements}, Options{})
+	assert.NoError(t, err)
+
+	// The fast forms hold up to 3·64·Lk values per worker.
+	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 1, Lk: MaxElements/192 + 1, Dk: 1, Dv: 1}
+	q, k, v, d := make([]float64, 1), make([]float64, s.Lk), make([]float64, s.Lk), make([]float64, 1)
+	const scratch = "Shape.Lk = 1398102; want at most MaxElements/(3·64) = 1398101 keys, so that a worker's scratch of 3·64·Lk values fits MaxElements"
+	_, _, err = ForwardFast(q, k, v, s, Options{})
+	checkError(t, err, ErrShape, "ForwardFast", scratch)
+	_, err = BackwardFast32(f32(q), f32(k), f32(v), f32(d), nil, s, Options{})
+	checkError(t, err, ErrShape, "BackwardFast32", scratch)
+	_, _, err = Forward(q, k, v, s, Options{})
+	assert.NoError(t, err, "the direct form holds one row of Lk logits")
+	s.Lk--
+	_, _, err = ForwardFast(q, k[1:], v[1:], s, Options{})
+	assert.NoError(t, err)
+}
+
+// TestNilReceivers: UnmarshalText on a nil pointer is an error wrapping
+// ErrOption, not a panic.
+func TestNilReceivers(t *testing.T) {
+	for _, tc := range []struct {
+		err  error
+		want string
+	}{
+		{(*Layout)(nil).UnmarshalText([]byte("seq-major")), "attention: invalid option: Layout.UnmarshalText: receiver = nil; want a *Layout to set"},
+		{(*GroupMap)(nil).UnmarshalText([]byte("cycle")), "attention: invalid option: GroupMap.UnmarshalText: receiver = nil; want a *GroupMap to set"},
+		{(*EmptyRow)(nil).UnmarshalText([]byte("nan")), "attention: invalid option: EmptyRow.UnmarshalText: receiver = nil; want a *EmptyRow to set"},
+	} {
+		assert.ErrorIs(t, tc.err, ErrOption)
+		assert.EqualError(t, tc.err, tc.want)
+	}
 }

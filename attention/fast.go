@@ -2,7 +2,6 @@ package attention
 
 import (
 	"math"
-	"runtime"
 	"sync"
 	"sync/atomic"
 
@@ -67,7 +66,8 @@ func parallel(n, workers int, task func(w, t int)) {
 //
 // Special cases are those of Forward, except that an Inf or NaN in a V row
 // that a row block computes with weight 0 gives NaN (0·Inf) where Forward
-// skips the key.
+// skips the key, and that Lk > MaxElements/192 is refused (ErrShape): a
+// worker's scratch would exceed MaxElements.
 //
 // Accuracy: the package documentation's table; on random problems of up to 164
 // rows it stays within 1e-14 of Forward (TestPropertyFastMatchesDirect).
@@ -119,8 +119,9 @@ func (p *plan) keyRange(b, i0, i1 int) (lo, hi int) {
 // blockProbs turns the scaled products in sc (rows i0 … i0+len/n−1 of
 // (b, h), keys lo … lo+n−1, leading dimension n) into probabilities in
 // place and writes each row's log-sum-exp and sink probability. It
-// returns whether any row was empty.
-func blockProbs[T num.Float](p *plan, sc, sech2 []T, b, h, i0, rows, lo, n int, lse, psink []T) (anyEmpty bool) {
+// returns whether any row was empty. q and k, read from kv head kv, are the
+// inputs of the products, for checkLogit.
+func blockProbs[T num.Float](p *plan, q, k, sc, sech2 []T, b, h, kv, i0, rows, lo, n int, lse, psink []T) (anyEmpty bool) {
 	sink := T(p.sinkLogit(h))
 	negInf := T(math.Inf(-1))
 	plain := p.softCap == 0 && p.bias == nil && p.slopes == nil
@@ -143,10 +144,18 @@ func blockProbs[T num.Float](p *plan, sc, sech2 []T, b, h, i0, rows, lo, n int, 
 					x[jj] = finishLogit(p, x[jj], b, h, i, lo+jj, jj, d)
 				}
 			}
+			for jj := a; jj < z; jj++ {
+				if t := x[jj]; t-t != 0 { // NaN or ±Inf: an overflow, unless an input is one
+					checkLogit(p, q, k, t, b, h, kv, i, lo+jj)
+				}
+			}
 		} else {
 			for jj, t := range x {
 				if p.visible(b, i, lo+jj) {
 					x[jj] = finishLogit(p, t, b, h, i, lo+jj, jj, d)
+					if t := x[jj]; t-t != 0 {
+						checkLogit(p, q, k, t, b, h, kv, i, lo+jj)
+					}
 				} else {
 					x[jj] = negInf
 				}
@@ -188,7 +197,7 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 	lse = make([]T, s.lseLen())
 	nblk := (s.Lq + rowBlock - 1) / rowBlock
 	ntask := s.Batch * s.HeadsQ * nblk
-	workers := runtime.GOMAXPROCS(0)
+	workers := fastWorkers(rowBlock*s.Lk + 2*rowBlock)
 	bufs := make([][]T, min(workers, max(1, ntask)))
 	qs, ks, vs, os := stride(p.layout, s.HeadsQ, s.Dk), stride(p.layout, s.HeadsKV, s.Dk), stride(p.layout, s.HeadsKV, s.Dv), stride(p.layout, s.HeadsQ, s.Dv)
 	parallel(ntask, workers, func(w, t int) {
@@ -207,7 +216,7 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 		if n > 0 {
 			num.GemmTiled(false, true, rows, n, s.Dk, T(p.scale), q[p.qOff(b, h, i0):], qs, k[p.kOff(b, kv, lo):], ks, 0, sc, n)
 		}
-		anyEmpty := blockProbs(p, sc, nil, b, h, i0, rows, lo, n, rl, ps)
+		anyEmpty := blockProbs(p, q, k, sc, nil, b, h, kv, i0, rows, lo, n, rl, ps)
 		for r := range rows {
 			lse[p.lOff(b, h, i0+r)] = rl[r]
 		}
@@ -231,7 +240,8 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 // the bias gradient is a sum across tasks, and the tasks run one after
 // another instead. A worker holds at most 3 × 64 × Lk values.
 //
-// Special cases are those of Backward.
+// Special cases are those of Backward, and Lk > MaxElements/192 is refused
+// (ErrShape): a worker's scratch would exceed MaxElements.
 //
 // Accuracy: the package documentation's table (the same worst errors as
 // Backward); on random problems it stays within 1e-14 of Backward.
@@ -265,7 +275,7 @@ func backwardFast[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
 		g.dbias = make([]T, len(p.bias))
 	}
 	ntask := s.Batch * s.HeadsKV
-	workers := runtime.GOMAXPROCS(0)
+	workers := fastWorkers(3*rowBlock*s.Lk + 2*rowBlock)
 	if p.bias != nil && ((!p.biasB && s.Batch > 1) || (!p.biasH && s.HeadsKV > 1)) {
 		workers = 1
 	}
@@ -354,7 +364,7 @@ func (t *bwdTask[T]) block(h, i0, rows int) {
 		num.GemmTiled(false, true, rows, n, s.Dk, scale, qb, t.qs, kb, t.ks, 0, sc, n)
 		num.GemmTiled(false, true, rows, n, s.Dv, 1, dob, t.os, vb, t.vs, 0, dp, n)
 	}
-	blockProbs(p, sc, sech2, b, h, i0, rows, lo, n, sb.rl, sb.ps)
+	blockProbs(p, t.q, t.k, sc, sech2, b, h, t.kv, i0, rows, lo, n, sb.rl, sb.ps)
 	for r := range rows {
 		var cap2 []T
 		if sech2 != nil {

@@ -4,9 +4,13 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
+	"slices"
 	"strconv"
 	"strings"
+	"sync"
 
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/mask"
 )
@@ -22,8 +26,9 @@ import (
 // a multiple of HeadsKV = 4", or "… q has 95 elements; want
 // Batch·HeadsQ·Lq·Dk = 2·4·3·4 = 96" for a length.
 var (
-	// ErrShape: a dimension out of range (Dk = 0, a negative length, …) or
-	// query heads that are not a multiple of the key/value heads.
+	// ErrShape: a dimension out of range (Dk = 0, a negative length, …),
+	// query heads that are not a multiple of the key/value heads, or a
+	// tensor beyond MaxElements.
 	ErrShape = errors.New("attention: invalid shape")
 	// ErrLength: a slice whose length does not match the shape.
 	ErrLength = errors.New("attention: length mismatch")
@@ -38,7 +43,29 @@ var (
 	// ErrMask: a mask that cannot be laid on the query and key lengths; the
 	// error also wraps the mask package's error.
 	ErrMask = errors.New("attention: mask does not fit")
+	// ErrOverflow: a logit computed from finite inputs came out NaN or
+	// ±Inf: the scale, bias or ALiBi slopes are too large for the inputs'
+	// magnitudes (see Magnitudes at Options).
+	ErrOverflow = errors.New("attention: logits overflow")
 )
+
+// MaxElements is the most elements one tensor of this package may hold,
+// 2^28: each of Q, K, V and the output, [Batch, Heads, L, D], and the
+// scratch of the fast forms. A Shape beyond it is refused with ErrShape
+// before anything is allocated. The products are formed only after each
+// factor has been checked (a zero dimension counted as 1, so that Batch
+// = 0 or Lk = 0 does not hide a dimension that scratch space is sized
+// by), so they cannot wrap around. 2^28 float64 values are 2 GiB, one
+// allocation a test machine can make and fill; the output of a shape
+// beyond it (a Dv of 2^40 with Lk = 0, which needs no V data) would
+// otherwise end the program with an out-of-memory crash no caller can
+// recover from. The fast forms hold up to 3·64·Lk values per worker, so
+// they also refuse Lk > MaxElements/192 and run no more workers than fit
+// MaxElements together (which changes no result: they are bit-identical
+// for any number of workers). Every golden, benchmark and test shape of
+// the package is far inside the limit (the largest, the decoding
+// benchmark's K and V, are 2^26 elements each).
+const MaxElements = 1 << 28
 
 // Layout is the memory order of Q, K, V, the output and their gradients.
 // The innermost dimension is always the head dimension, so every row of a
@@ -69,7 +96,13 @@ func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
 
 // UnmarshalText sets l from its word; any other text is an error wrapping
 // ErrOption that lists the words.
-func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (l *Layout) UnmarshalText(b []byte) error {
+	if l == nil {
+		return nilReceiver(ErrOption, "Layout")
+	}
+	return layoutWords.Unmarshal(l, b)
+}
 
 // Meaning returns one line saying what l means.
 func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
@@ -113,7 +146,13 @@ func (g GroupMap) MarshalText() ([]byte, error) { return groupWords.Marshal(g) }
 
 // UnmarshalText sets g from its word; any other text is an error wrapping
 // ErrOption that lists the words.
-func (g *GroupMap) UnmarshalText(b []byte) error { return groupWords.Unmarshal(g, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (g *GroupMap) UnmarshalText(b []byte) error {
+	if g == nil {
+		return nilReceiver(ErrOption, "GroupMap")
+	}
+	return groupWords.Unmarshal(g, b)
+}
 
 // Meaning returns one line saying what g means.
 func (g GroupMap) Meaning() string { return groupWords.Meaning(g) }
@@ -155,7 +194,13 @@ func (e EmptyRow) MarshalText() ([]byte, error) { return emptyRowWords.Marshal(e
 
 // UnmarshalText sets e from its word; any other text is an error wrapping
 // ErrOption that lists the words.
-func (e *EmptyRow) UnmarshalText(b []byte) error { return emptyRowWords.Unmarshal(e, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (e *EmptyRow) UnmarshalText(b []byte) error {
+	if e == nil {
+		return nilReceiver(ErrOption, "EmptyRow")
+	}
+	return emptyRowWords.Unmarshal(e, b)
+}
 
 // Meaning returns one line saying what e means.
 func (e EmptyRow) Meaning() string { return emptyRowWords.Meaning(e) }
@@ -203,11 +248,28 @@ func (s Shape) lseLen() int { return s.Batch * s.HeadsQ * s.Lq }
 // The cap comes before the bias so that a bias (ALiBi, a mask written as
 // −1e9) is not squashed by the tanh; the mask comes last so that hidden
 // keys are hidden whatever the other terms are.
+//
+// Magnitudes: every visible logit computed from finite values (the q and k
+// rows, the bias entry and the slope, all finite) must itself be finite in
+// the arithmetic of the call, float64 (largest value MaxFloat64 ≈ 1.8e308)
+// or float32 for the twins named …32 (MaxFloat32 ≈ 3.4e38; Scale is
+// rounded to float32 there, so a Scale above MaxFloat32 is +Inf). A call
+// in which one is NaN or ±Inf — a Scale of 1e308 on inputs near 1, a bias
+// or a slope·distance near the limit — has overflowed, and fails with
+// ErrOverflow, naming the first such logit in the order (batch, head,
+// query, key), instead of returning the NaN rows the overflow makes. The
+// rule is checked on the logits as they are computed, so it refuses
+// exactly the calls that overflow, whatever the inputs' magnitudes. A
+// scaled product t that overflows before a soft cap is not an overflow of
+// the logit: c·tanh(±Inf/c) = ±c is the cap's limit, and the logit is
+// finite. A NaN or infinite input is not an overflow either: its logits
+// follow the special cases of Forward.
 type Options struct {
 	// Layout of Q, K, V, the output and the gradients.
 	Layout Layout
 	// Scale multiplies q·k; 0 means the default 1/√Dk (Vaswani et al. 2017,
-	// §3.2.1). Otherwise it must be positive and finite.
+	// §3.2.1). Otherwise it must be positive and finite, and such that no
+	// logit overflows (see Magnitudes above).
 	Scale float64
 	// Mask says which keys each query sees; the zero Mask means mask.Full().
 	// It is laid on mask.Geometry{Batch, Lq, Lk, Align, Offset}.
@@ -262,9 +324,11 @@ type plan struct {
 	sinks    []float64
 	group    GroupMap
 	emptyNaN bool
+	overflow overflowNote // the first logit of finite inputs that overflowed
 }
 
-// checkShape validates the sizes alone, for the exported function fn.
+// checkShape validates the sizes alone, for the exported function fn (and
+// the scratch of a fast form, whose name holds "Fast").
 func checkShape(fn string, s Shape) error {
 	switch {
 	case s.Batch < 0:
@@ -284,27 +348,53 @@ func checkShape(fn string, s Shape) error {
 	case s.Dv < 1:
 		return fmt.Errorf("%w: %s: Shape.Dv = %d; want ≥ 1", ErrShape, fn, s.Dv)
 	}
-	// Every tensor, and the mask laid out as B·Lq·Lk booleans, must have a
-	// size that int arithmetic holds exactly; products are formed in
-	// float64 so that they cannot wrap around.
-	const limit = 1 << 50
+	// Every tensor must hold at most MaxElements, a zero dimension counted
+	// as 1; each factor is divided out of the room left, so no product
+	// is formed before it is known to fit.
 	for _, t := range []struct {
-		name string
-		dims []int
+		name, names string
+		dims        []int
 	}{
-		{"q", []int{s.Batch, s.HeadsQ, s.Lq, s.Dk}}, {"k", []int{s.Batch, s.HeadsKV, s.Lk, s.Dk}},
-		{"v", []int{s.Batch, s.HeadsKV, s.Lk, s.Dv}}, {"the output", []int{s.Batch, s.HeadsQ, s.Lq, s.Dv}},
-		{"the mask", []int{s.Batch, s.Lq, s.Lk}}, {"a bias", []int{s.HeadsQ, s.Lq, s.Lk}},
+		{"q", "Batch·HeadsQ·Lq·Dk", []int{s.Batch, s.HeadsQ, s.Lq, s.Dk}},
+		{"k", "Batch·HeadsKV·Lk·Dk", []int{s.Batch, s.HeadsKV, s.Lk, s.Dk}},
+		{"v", "Batch·HeadsKV·Lk·Dv", []int{s.Batch, s.HeadsKV, s.Lk, s.Dv}},
+		{"the output", "Batch·HeadsQ·Lq·Dv", []int{s.Batch, s.HeadsQ, s.Lq, s.Dv}},
 	} {
-		n := 1.0
+		room := MaxElements
 		for _, d := range t.dims {
-			n *= float64(d)
-		}
-		if n > limit {
-			return fmt.Errorf("%w: %s: Shape = %+v; want every tensor at most 2^50 elements, the most this package handles (%s would have %.3g)", ErrShape, fn, s, t.name, n)
+			if d = max(d, 1); d > room {
+				parts := make([]string, len(t.dims))
+				for k, d := range t.dims {
+					parts[k] = strconv.Itoa(d)
+				}
+				return fmt.Errorf("%w: %s: the size of %s, %s = %s, a zero dimension counted as 1; want at most MaxElements = %d elements",
+					ErrShape, fn, t.name, t.names, strings.Join(parts, "·"), MaxElements)
+			}
+			room /= d
 		}
 	}
+	if strings.Contains(fn, "Fast") {
+		return checkFastScratch(fn, s)
+	}
 	return nil
+}
+
+// checkFastScratch checks, for a call of the fast form fn, that the
+// scratch of one worker, at most 3 blocks of 64 rows by Lk keys, fits
+// MaxElements.
+func checkFastScratch(fn string, s Shape) error {
+	if s.Lk > MaxElements/(3*rowBlock) {
+		return fmt.Errorf("%w: %s: Shape.Lk = %d; want at most MaxElements/(3·%d) = %d keys, so that a worker's scratch of 3·%d·Lk values fits MaxElements",
+			ErrShape, fn, s.Lk, rowBlock, MaxElements/(3*rowBlock), rowBlock)
+	}
+	return nil
+}
+
+// fastWorkers is how many workers a fast form runs when each holds
+// perWorker values: GOMAXPROCS, or fewer so that their scratch together
+// stays within MaxElements; never fewer than one.
+func fastWorkers(perWorker int) int {
+	return max(1, min(runtime.GOMAXPROCS(0), MaxElements/max(perWorker, 1)))
 }
 
 // checkLen validates that a tensor of function fn, called name, has as
@@ -477,7 +567,10 @@ func (p *plan) setMask(fn string, o *Options) error {
 				ErrOption, fn, o.Offset, first, last, o.Align, s.Lq, s.Lk, s.Lk-1)
 		}
 	}
-	p.layMask(m)
+	if err := p.layMask(m); err != nil {
+		return fmt.Errorf("%w: %s: Options.Mask = %v; want a mask that can be laid out on Batch = %d, Lq = %d, Lk = %d (%w)",
+			ErrMask, fn, m, s.Batch, s.Lq, s.Lk, err)
+	}
 	return nil
 }
 
@@ -485,12 +578,13 @@ func (p *plan) setMask(fn string, o *Options) error {
 // package shows each row one run of consecutive keys (or none), so the
 // plan keeps the run's ends per row, 2·Batch·Lq ints; should a row ever see
 // keys that are not consecutive, it keeps the whole Batch·Lq·Lk booleans
-// instead. m must have passed Check on p.geom.
-func (p *plan) layMask(m mask.Mask) {
+// instead, an error of the mask package if that is more than
+// mask.MaxElements. m must have passed Check on p.geom.
+func (p *plan) layMask(m mask.Mask) error {
 	s := p.s
 	p.runLo, p.runHi = make([]int, s.Batch*s.Lq), make([]int, s.Batch*s.Lq)
 	runs := true
-	m.Rows(p.geom, func(b, i int, row []bool) {
+	err := m.Rows(p.geom, func(b, i int, row []bool) {
 		first, last := -1, -1
 		for j, v := range row {
 			if v {
@@ -505,9 +599,10 @@ func (p *plan) layMask(m mask.Mask) {
 		}
 		p.runLo[b*s.Lq+i], p.runHi[b*s.Lq+i] = max(first, 0), last+1
 	})
-	if !runs {
-		p.vis, _ = m.Visible(p.geom) // checked above
+	if err == nil && !runs {
+		p.vis, err = m.Visible(p.geom)
 	}
+	return err
 }
 
 // visible reports whether key j is visible to row i of batch entry b.
@@ -563,4 +658,74 @@ func (p *plan) biasRow(b, h, i int) int {
 		bh, nh = h, p.s.HeadsQ
 	}
 	return ((bb*nh+bh)*p.s.Lq + i) * p.s.Lk
+}
+
+// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
+// no value to set.
+func nilReceiver(sentinel error, typ string) error {
+	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
+}
+
+// overflowNote records the first logit, in the order (b, h, i, j), that
+// came out NaN or ±Inf although its q row, k row and bias entry are
+// finite: the arithmetic overflowed. The forms note such logits as they
+// compute them (the test is one comparison per logit, and the rest runs
+// only for a non-finite logit); the call then fails with ErrOverflow.
+type overflowNote struct {
+	mu         sync.Mutex
+	seen       bool
+	b, h, i, j int
+	value      float64
+}
+
+// note records the logit t of key j in row (b, h, i) if it comes before
+// the one recorded.
+func (n *overflowNote) note(b, h, i, j int, t float64) {
+	n.mu.Lock()
+	defer n.mu.Unlock()
+	if n.seen && slices.Compare([]int{b, h, i, j}, []int{n.b, n.h, n.i, n.j}) >= 0 {
+		return
+	}
+	n.seen, n.b, n.h, n.i, n.j, n.value = true, b, h, i, j, t
+}
+
+// checkLogit notes the logit t of key j in row (b, h, i), read from kv
+// head kv, when it is not finite although everything it is computed from
+// is: the q and k rows, the bias entry (the slopes are finite, checked).
+// A NaN or infinite input is not an overflow: it follows the special
+// cases of Forward.
+func checkLogit[T num.Float](p *plan, q, k []T, t T, b, h, kv, i, j int) {
+	if t-t == 0 {
+		return // finite
+	}
+	for _, x := range q[p.qOff(b, h, i):][:p.s.Dk] {
+		if x-x != 0 {
+			return
+		}
+	}
+	for _, x := range k[p.kOff(b, kv, j):][:p.s.Dk] {
+		if x-x != 0 {
+			return
+		}
+	}
+	if r := p.biasRow(b, h, i); r >= 0 && p.bias[r+j]-p.bias[r+j] != 0 {
+		return
+	}
+	p.overflow.note(b, h, i, j, float64(t))
+}
+
+// overflowErr is the error of a call of fn that noted an overflowing
+// logit, or nil; T is the arithmetic of the call, named by bits.
+func (p *plan) overflowErr(fn string, bits int) error {
+	n := &p.overflow
+	if !n.seen {
+		return nil
+	}
+	top := math.MaxFloat64
+	if bits == 32 {
+		top = math.MaxFloat32
+	}
+	return fmt.Errorf("%w: %s: the logit of batch entry %d, query head %d, query %d, key %d = %v from finite q, k and bias; "+
+		"want Options.Scale (%v), SoftCap (%v), Bias and Slopes such that every logit of finite inputs stays within ±%.4g, the float%d range",
+		ErrOverflow, fn, n.b, n.h, n.i, n.j, n.value, p.scale, p.softCap, top, bits)
 }

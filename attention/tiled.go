@@ -66,6 +66,9 @@ func runTiled[T num.Float](fn string, q, k, v []T, s Shape, block int, o Options
 		return nil, nil, fmt.Errorf("%w: %s: block = %d; want ≥ 1 key per block", ErrOption, fn, block)
 	}
 	out, lse = forwardTiled(p, q, k, v, block)
+	if err := p.overflowErr(fn, bitsOf[T]()); err != nil {
+		return nil, nil, err
+	}
 	return out, lse, nil
 }
 

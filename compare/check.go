@@ -71,14 +71,46 @@ func Approx(f Format, tol Tolerance) cmp.Option {
 			return true
 		}
 		d, nx, ny := newNorm(), newNorm(), newNorm()
+		overflow := false
 		for i := range x {
 			if finite(x[i]) && finite(y[i]) {
-				d.add(x[i] - y[i])
+				e := x[i] - y[i]
+				overflow = overflow || math.IsInf(e, 0)
+				d.add(e)
 				nx.add(x[i])
 				ny.add(y[i])
 			}
 		}
-		return d.value() <= tol.MaxNormwise*math.Max(nx.value(), ny.value())
+		dv, xv, yv := d.value(), nx.value(), ny.value()
+		if !overflow && finite(dv) && finite(xv) && finite(yv) {
+			return dv <= tol.MaxNormwise*math.Max(xv, yv)
+		}
+		// Near ±Max: compare the quotient of the scaled norms, with the
+		// differences halved where one overflows (as Diff does).
+		dm, de := d.parts()
+		if overflow {
+			half := newNorm()
+			for i := range x {
+				if finite(x[i]) && finite(y[i]) {
+					half.add(x[i]/2 - y[i]/2)
+				}
+			}
+			dm, de = half.parts()
+			de++
+		}
+		if dm == 0 {
+			return true
+		}
+		xm, xe := nx.parts()
+		ym, ye := ny.parts()
+		q := math.Inf(1)
+		if xm != 0 {
+			q = math.Ldexp(dm/xm, de-xe)
+		}
+		if ym != 0 {
+			q = math.Min(q, math.Ldexp(dm/ym, de-ye))
+		}
+		return q <= tol.MaxNormwise
 	}
 	return cmp.Options{
 		cmp.FilterValues(func(x, y []float64) bool { return len(x) == len(y) }, cmp.Comparer(slice)),

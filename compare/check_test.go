@@ -64,6 +64,7 @@ func TestCheck(t *testing.T) {
 
 func TestApprox(t *testing.T) {
 	nan, inf := math.NaN(), math.Inf(1)
+	const M = math.MaxFloat64
 	type pair struct {
 		Name string
 		V    []float64
@@ -89,6 +90,12 @@ func TestApprox(t *testing.T) {
 		{"unequal lengths", []float64{1, 2}, []float64{1}, compare.Approx(compare.Float64, compare.Tolerance{Abs: 1}), false},
 		{"inside a struct", pair{"a", []float64{1, 2}, 3}, pair{"a", []float64{1, 2.001}, 3.001}, compare.Approx(compare.Float64, compare.Tolerance{Abs: 1e-2}), true},
 		{"struct other field differs", pair{"a", []float64{1}, 3}, pair{"b", []float64{1}, 3}, compare.Approx(compare.Float64, compare.Tolerance{Abs: 1}), false},
+		// Near ±Max (M): ‖x − y‖ = 2M·√2 and ‖x‖ = ‖y‖ = M·√2 overflow float64,
+		// their quotient 2 does not; for (M, M) against (M/2, M/2) it is 1/2.
+		{"normwise near Max passes", []float64{M, M}, []float64{-M, -M}, compare.Approx(compare.Float64, compare.Tolerance{Rel: 2, MaxNormwise: 2.5}), true},
+		{"normwise near Max fails", []float64{M, M}, []float64{-M, -M}, compare.Approx(compare.Float64, compare.Tolerance{Rel: 2, MaxNormwise: 1.5}), false},
+		{"normwise with a norm beyond float64", []float64{M, M}, []float64{M / 2, M / 2}, compare.Approx(compare.Float64, compare.Tolerance{Rel: 1, MaxNormwise: 0.1}), false},
+		{"normwise with a norm beyond float64 ok", []float64{M, M}, []float64{M / 2, M / 2}, compare.Approx(compare.Float64, compare.Tolerance{Rel: 1, MaxNormwise: 0.6}), true},
 		{"invalid format equals nothing", 1.0, 1.0, compare.Approx(compare.Format(-3), compare.Tolerance{}), false},
 		{"invalid tolerance equals nothing", 1.0, 1.0, compare.Approx(compare.Float64, compare.Tolerance{Abs: -1}), false},
 	}

@@ -103,9 +103,21 @@
 //	invalid Format         ErrFormat (methods return NaN or 0)
 //	negative or NaN tolerance, floor or k  ErrTolerance
 //	the yardstick's function fails         ErrYardstick
+//	values near ±Max                       finite RMS, MeanSigned, Normwise where exact ones are
+//	a NaN measure                          the verdict fails, whatever the tolerance
+//	a nil *Report, JSON not of a Report    ErrReport
 //
 // Every error wraps exactly one of the sentinel errors and names the
 // function called, the argument, its value and what was wanted
 // ("compare: invalid tolerance: Diff: Options.RelFloor = -1; want a finite
-// value ≥ 0 (0 for the default)"). No function panics on its arguments.
+// value ≥ 0 (0 for the default)"). No function panics on its arguments,
+// nil receivers included.
+//
+// Sizes: unlike the kernel packages, compare sizes nothing from numbers
+// alone. Its largest allocation is one copy of an input (Widen,
+// RoundSlice, the rounded inputs and output of MeasureYardstick); a Report
+// holds at most its Worst elements and the histogram. Its memory is so
+// bounded by that of its inputs, and it needs no element limit of its own.
+// A shape must have an element count that fits an int and equals the
+// length of the reference (ErrShape).
 package compare

@@ -1,6 +1,9 @@
 package compare
 
-import "errors"
+import (
+	"errors"
+	"fmt"
+)
 
 // The sentinel errors. Every error this package returns wraps exactly one of
 // them (match with errors.Is) and reads
@@ -24,4 +27,12 @@ var (
 	// ErrYardstick: the low-precision function of a yardstick failed or
 	// returned the wrong number of elements.
 	ErrYardstick = errors.New("compare: yardstick failed")
+	// ErrReport: a nil *Report, or JSON that is not a Report's.
+	ErrReport = errors.New("compare: invalid report")
 )
+
+// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
+// no value to set.
+func nilReceiver(sentinel error, typ string) error {
+	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
+}

@@ -14,8 +14,15 @@ import (
 // WriteText writes the report to w as text aligned for a terminal: the
 // measures, the ULP distribution, the worst elements, the tolerance and the
 // verdict. Numbers are printed with 4 significant digits (values of the
-// worst elements with enough digits to tell them apart in float64).
+// worst elements with enough digits to tell them apart in float64). A nil
+// r or w is an error wrapping ErrReport.
 func (r *Report) WriteText(w io.Writer) error {
+	switch {
+	case r == nil:
+		return fmt.Errorf("%w: Report.WriteText: receiver = nil; want a Report from Diff", ErrReport)
+	case w == nil:
+		return fmt.Errorf("%w: Report.WriteText: w = nil; want an io.Writer", ErrReport)
+	}
 	var b bytes.Buffer
 	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(&b, "%d elements, shape %v, candidate format %v\n", r.Elements, r.Shape, r.Format)
@@ -92,8 +99,12 @@ func (r *Report) WriteText(w io.Writer) error {
 	return err
 }
 
-// String returns the text WriteText writes.
+// String returns the text WriteText writes; for a nil r, "<nil>", as fmt
+// prints a nil pointer.
 func (r *Report) String() string {
+	if r == nil {
+		return "<nil>"
+	}
 	var b strings.Builder
 	_ = r.WriteText(&b) // a strings.Builder does not fail
 	return b.String()
@@ -208,6 +219,9 @@ type jsonReport struct {
 // Non-finite numbers are the strings "nan", "inf" and "-inf"; finite ones
 // are printed with the shortest decimal that reads back exactly.
 func (r *Report) MarshalJSON() ([]byte, error) {
+	if r == nil {
+		return []byte("null"), nil // what encoding/json writes for a nil *Report
+	}
 	j := jsonReport{Format: r.Format, ULPs: []jsonBucket{}, Worst: []jsonElement{}}
 	floats, ints, indices := reportFields(r, &j)
 	copyFields(floats, true)
@@ -229,13 +243,18 @@ func (r *Report) MarshalJSON() ([]byte, error) {
 	return json.Marshal(j)
 }
 
-// UnmarshalJSON decodes what MarshalJSON encodes, refusing unknown keys.
+// UnmarshalJSON decodes what MarshalJSON encodes, refusing unknown keys;
+// an error, and a nil r, wrap ErrReport.
 func (r *Report) UnmarshalJSON(b []byte) error {
+	const fn = "Report.UnmarshalJSON"
+	if r == nil {
+		return fmt.Errorf("%w: %s: receiver = nil; want a *Report to set", ErrReport, fn)
+	}
 	var j jsonReport
 	dec := json.NewDecoder(bytes.NewReader(b))
 	dec.DisallowUnknownFields()
 	if err := dec.Decode(&j); err != nil {
-		return fmt.Errorf("compare: Report.UnmarshalJSON: %w", err)
+		return fmt.Errorf("%w: %s: %w; want the JSON object Report.MarshalJSON writes", ErrReport, fn, err)
 	}
 	*r = Report{Format: j.Format}
 	floats, ints, indices := reportFields(r, &j)

@@ -101,7 +101,10 @@ type Report struct {
 	MeanSigned float64
 	// Normwise is ‖got − ref‖₂ / ‖ref‖₂ over the finite pairs (the absolute
 	// ‖got − ref‖₂ when ‖ref‖₂ = 0), the measure plumb's accuracy targets
-	// are stated in.
+	// are stated in. It is finite whenever the exact quotient is: the norms
+	// are scaled before squaring, and where a difference or a norm itself
+	// exceeds float64 (values near ±Max) the quotient is formed from the
+	// scaled norms.
 	Normwise float64
 
 	MaxULPs float64 // largest ULP distance among the finite pairs
@@ -140,7 +143,10 @@ type Report struct {
 //	len(got) ≠ len(ref), or shape's product ≠ len(ref), or a negative dimension   ErrShape
 //	invalid opt.Format                    ErrFormat
 //	negative or NaN RelFloor or tolerance ErrTolerance
-//	got − ref overflowing float64         +Inf in MaxAbs, RMS, MeanSigned, Normwise
+//	got − ref overflowing float64         +Inf in MaxAbs and in that element's
+//	                                      errors; RMS, MeanSigned and Normwise
+//	                                      finite where their exact values are
+//	                                      (they are formed from (got − ref)/2)
 func Diff(ref, got []float64, shape []int, opt Options) (*Report, error) {
 	return diff(diffArgs{fn: "Diff", format: "Options.Format", tolerance: "Options.Tolerance"}, ref, got, shape, opt)
 }
@@ -164,7 +170,7 @@ func diff(args diffArgs, ref, got []float64, shape []int, opt Options) (*Report,
 	for i := range ref {
 		a.add(i, ref[i], got[i])
 	}
-	a.finish()
+	a.finish(ref, got)
 	if opt.Tolerance != nil {
 		r.Verdict = opt.Tolerance.verdict(r, a.failed)
 	}
@@ -224,6 +230,7 @@ type diffSums struct {
 	hist               [65]int
 	failed             int
 	worst              *topK
+	overflow           bool // some got − ref of a finite pair overflows float64
 }
 
 // add takes the pair (x, y) = (ref[i], got[i]).
@@ -250,6 +257,9 @@ func (a *diffSums) add(i int, x, y float64) {
 	}
 	r.Finite++
 	d := y - x
+	if math.IsInf(d, 0) {
+		a.overflow = true // finish forms the measures from (y − x)/2
+	}
 	e.AbsErr = math.Abs(d)
 	e.RelErr = e.AbsErr / math.Max(math.Abs(x), r.RelFloor)
 	if a.maxAbsAt < 0 || e.AbsErr > r.MaxAbs {
@@ -278,16 +288,30 @@ func (a *diffSums) add(i int, x, y float64) {
 	a.worst.push(score, e)
 }
 
-// finish turns the sums into the Report's measures.
-func (a *diffSums) finish() {
+// finish turns the sums into the Report's measures; ref and got are the
+// pairs add took, read again when a difference overflowed.
+func (a *diffSums) finish(ref, got []float64) {
 	r := a.r
 	if r.Finite > 0 {
 		n := float64(r.Finite)
-		r.RMS = a.diffs.value() / math.Sqrt(n)
+		dn, rn := a.diffs.value(), a.refs.value()
+		r.RMS = dn / math.Sqrt(n)
 		r.MeanSigned = a.sum / n
-		r.Normwise = a.diffs.value()
-		if rn := a.refs.value(); rn != 0 {
+		r.Normwise = dn
+		if rn != 0 {
 			r.Normwise /= rn
+		}
+		// Near ±Max a difference, a norm or the sum can exceed float64
+		// although the measure does not: then it is formed again, scaled.
+		if a.overflow || !finite(dn) || math.IsInf(rn, 0) {
+			rms, normwise := a.scaledNorms(ref, got, n)
+			if a.overflow || !finite(dn) {
+				r.RMS = rms
+			}
+			r.Normwise = normwise
+		}
+		if !finite(a.sum) {
+			r.MeanSigned = scaledMean(ref, got, n)
 		}
 		r.MaxAbsAt = unflatten(a.maxAbsAt, r.Shape)
 		r.MaxRelAt = unflatten(a.maxRelAt, r.Shape)
@@ -297,6 +321,47 @@ func (a *diffSums) finish() {
 	for k := range r.Worst {
 		r.Worst[k].Index = unflatten(r.Worst[k].Offset, r.Shape)
 	}
+}
+
+// scaledNorms returns RMS and Normwise over the n finite pairs when the
+// norm of the differences or of the reference exceeds float64: the norms
+// are kept as m·2^e, and, where a difference overflows, every difference
+// is taken as 2·(y/2 − x/2), whose half does not. Each result is ±Inf only
+// when its exact value is beyond float64.
+func (a *diffSums) scaledNorms(ref, got []float64, n float64) (rms, normwise float64) {
+	var dm float64
+	var de int
+	if a.overflow {
+		half := newNorm()
+		for i, x := range ref {
+			if y := got[i]; finite(x) && finite(y) {
+				half.add(y/2 - x/2)
+			}
+		}
+		dm, de = half.parts()
+		de++
+	} else {
+		dm, de = a.diffs.parts()
+	}
+	rms = math.Ldexp(dm/math.Sqrt(n), de)
+	rm, re := a.refs.parts()
+	if rm == 0 {
+		return rms, math.Ldexp(dm, de)
+	}
+	return rms, math.Ldexp(dm/rm, de-re)
+}
+
+// scaledMean is the mean signed error over the n finite pairs when their
+// sum exceeds float64: 2·Σ (y/2 − x/2)/n, whose terms and partial sums
+// stay within float64 (each |term| ≤ MaxFloat64/n).
+func scaledMean(ref, got []float64, n float64) float64 {
+	sum := 0.0
+	for i, x := range ref {
+		if y := got[i]; finite(x) && finite(y) {
+			sum += (y/2 - x/2) / n
+		}
+	}
+	return 2 * sum
 }
 
 // buckets turns the counts by bit length into the ULP histogram, from
@@ -383,6 +448,13 @@ func (n *norm) add(v float64) {
 }
 
 func (n *norm) value() float64 { return n.scale * math.Sqrt(n.ssq) }
+
+// parts returns m and e with value = m·2^e and m finite: the norm even
+// where value overflows. The norm must have taken finite values only.
+func (n *norm) parts() (m float64, e int) {
+	fr, e := math.Frexp(n.scale)
+	return fr * math.Sqrt(n.ssq), e
+}
 
 // topK keeps the k elements with the largest scores; equal scores keep the
 // smaller offset, so the result does not depend on anything but the data.

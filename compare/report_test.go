@@ -385,3 +385,127 @@ func TestDiffExtremeMagnitudes(t *testing.T) {
 	assert.True(t, math.IsInf(r.MaxAbs, 1))
 	assert.True(t, math.IsInf(r.RMS, 1))
 }
+
+// TestDiffNearMax: with values at ±MaxFloat64 a difference, a norm or a
+// sum exceeds float64 although the measure does not; Normwise, RMS and
+// MeanSigned are then formed scaled and are finite where the exact value
+// is. Exact values, by hand with M = MaxFloat64:
+//
+//	ref (M, M),  got (−M, −M):  ‖d‖ = 2M·√2, ‖ref‖ = M·√2, Normwise = 2;
+//	                            RMS = 2M and MeanSigned = −2M exceed float64
+//	ref (M, −M), got (−M, M):   Normwise = 2, MeanSigned = 0, RMS = 2M
+//	ref (M, M),  got (M/2, M/2): ‖d‖ = (M/2)·√2, Normwise = 1/2,
+//	                            RMS = M/2, MeanSigned = −M/2
+//	ref (M, M, M), got (M/2, M/2, M/2): the sum of the errors, −3M/2,
+//	                            exceeds float64, MeanSigned = −M/2 does not
+func TestDiffNearMax(t *testing.T) {
+	const M = math.MaxFloat64
+	tests := []struct {
+		name                  string
+		ref, got              []float64
+		normwise, rms, signed float64
+	}{
+		{"opposite signs", []float64{M, M}, []float64{-M, -M}, 2, math.Inf(1), math.Inf(-1)},
+		{"errors of both signs", []float64{M, -M}, []float64{-M, M}, 2, math.Inf(1), 0},
+		{"the reference norm overflows", []float64{M, M}, []float64{M / 2, M / 2}, 0.5, M / 2, -M / 2},
+		{"the sum overflows", []float64{M, M, M}, []float64{M / 2, M / 2, M / 2}, 0.5, M / 2, -M / 2},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			r, err := Diff(tc.ref, tc.got, nil, Options{})
+			require.NoError(t, err)
+			assert.Equal(t, tc.normwise, r.Normwise)
+			assert.InEpsilon(t, tc.normwise, golden.NormwiseRelErr(scaleAll(tc.got, 0.25), scaleAll(tc.ref, 0.25)), 1e-15,
+				"the same quotient on the data scaled by 1/4, where nothing overflows")
+			if math.IsInf(tc.rms, 0) {
+				assert.Equal(t, tc.rms, r.RMS)
+			} else {
+				assert.InEpsilon(t, tc.rms, r.RMS, 1e-15)
+			}
+			if math.IsInf(tc.signed, 0) || tc.signed == 0 {
+				assert.Equal(t, tc.signed, r.MeanSigned)
+			} else {
+				assert.InEpsilon(t, tc.signed, r.MeanSigned, 1e-15)
+			}
+			assert.False(t, math.IsNaN(r.MaxAbs) || math.IsNaN(r.MaxRel))
+		})
+	}
+
+	// The verdicts these measures give: |d| = 2M ≤ Rel·|ref| = 2M passes
+	// the elementwise test, so the normwise bound decides.
+	ref, got := []float64{M, -M}, []float64{-M, M}
+	for _, tc := range []struct {
+		max  float64
+		pass bool
+	}{{0, true}, {3, true}, {1.5, false}} {
+		r, err := Diff(ref, got, nil, Options{Tolerance: &Tolerance{Rel: 2, MaxNormwise: tc.max}})
+		require.NoError(t, err)
+		assert.Equal(t, tc.pass, r.Verdict.Pass, "MaxNormwise %v: %s", tc.max, r)
+	}
+	// A reference norm beyond float64 must not make the quotient 0.
+	r, err := Diff([]float64{M, M}, []float64{M / 2, M / 2}, nil, Options{Tolerance: &Tolerance{Rel: 1, MaxNormwise: 0.1}})
+	require.NoError(t, err)
+	assert.False(t, r.Verdict.Pass, r.String())
+}
+
+func scaleAll(x []float64, s float64) []float64 {
+	out := make([]float64, len(x))
+	for i, v := range x {
+		out[i] = v * s
+	}
+	return out
+}
+
+// TestVerdictNaNMeasure: a NaN in any measure fails the verdict, whatever
+// the tolerance, MaxNormwise 0 (no normwise bound) included.
+func TestVerdictNaNMeasure(t *testing.T) {
+	nan := math.NaN()
+	for _, tc := range []struct {
+		name string
+		set  func(*Report)
+	}{
+		{"normwise relative error", func(r *Report) { r.Normwise = nan }},
+		{"max abs error", func(r *Report) { r.MaxAbs = nan }},
+		{"max rel error", func(r *Report) { r.MaxRel = nan }},
+		{"RMS error", func(r *Report) { r.RMS = nan }},
+		{"mean signed error", func(r *Report) { r.MeanSigned = nan }},
+	} {
+		for _, tol := range []Tolerance{{Abs: 1}, {Abs: 1, MaxNormwise: 1}} {
+			r := &Report{Elements: 1, Finite: 1}
+			tc.set(r)
+			v := tol.verdict(r, 0)
+			assert.False(t, v.Pass, "%s NaN under %+v", tc.name, tol)
+			assert.Equal(t, []string{"the " + tc.name + " is NaN"}, v.Reasons)
+		}
+	}
+	v := Tolerance{Abs: 1}.verdict(&Report{Elements: 1, Finite: 1}, 0)
+	assert.True(t, v.Pass, "no NaN, no failure")
+}
+
+// TestReportNil: the methods of a nil *Report are errors wrapping
+// ErrReport (or, where they return none, what fmt and encoding/json give
+// for a nil pointer), not panics; so is JSON that is not a Report's.
+func TestReportNil(t *testing.T) {
+	var r *Report
+	err := r.WriteText(&strings.Builder{})
+	require.ErrorIs(t, err, ErrReport)
+	assert.EqualError(t, err, "compare: invalid report: Report.WriteText: receiver = nil; want a Report from Diff")
+	assert.Equal(t, "<nil>", r.String())
+	b, err := r.MarshalJSON()
+	require.NoError(t, err)
+	assert.Equal(t, "null", string(b))
+	err = r.UnmarshalJSON([]byte("{}"))
+	require.ErrorIs(t, err, ErrReport)
+	assert.EqualError(t, err, "compare: invalid report: Report.UnmarshalJSON: receiver = nil; want a *Report to set")
+	err = new(Report).UnmarshalJSON([]byte(`{"elements": 1, "colour": 2}`))
+	require.ErrorIs(t, err, ErrReport)
+	assert.EqualError(t, err, `compare: invalid report: Report.UnmarshalJSON: json: unknown field "colour"; want the JSON object Report.MarshalJSON writes`)
+	full, err := Diff([]float64{1}, []float64{1}, nil, Options{})
+	require.NoError(t, err)
+	err = full.WriteText(nil)
+	require.ErrorIs(t, err, ErrReport)
+	assert.EqualError(t, err, "compare: invalid report: Report.WriteText: w = nil; want an io.Writer")
+	err = (*Format)(nil).UnmarshalText([]byte("float32"))
+	require.ErrorIs(t, err, ErrFormat)
+	assert.EqualError(t, err, "compare: invalid number format: Format.UnmarshalText: receiver = nil; want a *Format to set")
+}

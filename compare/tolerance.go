@@ -14,7 +14,11 @@ import (
 // with the ULP distance counted in the report's format. NaN must meet NaN
 // and an infinity the same infinity: any other pair with a non-finite value
 // fails whatever the tolerance. When MaxNormwise is positive the whole
-// tensor must also have Report.Normwise ≤ MaxNormwise.
+// tensor must also have Report.Normwise ≤ MaxNormwise. A NaN in any
+// measure of the report (MaxAbs, MaxRel, RMS, MeanSigned, Normwise) fails
+// whatever the tolerance, MaxNormwise 0 included: an error that cannot be
+// measured is not within any bound. (Diff itself gives none: its measures
+// are finite or +Inf.)
 //
 // The zero Tolerance demands bit-equal finite values (+0 and −0 equal).
 // The elementwise form Abs + Rel·|r| is the usual combined test of absolute
@@ -85,7 +89,15 @@ func (t Tolerance) verdict(r *Report, failed int) *Verdict {
 	if k := failed - r.NaNMismatches - r.InfMismatches; k > 0 {
 		v.Reasons = append(v.Reasons, fmt.Sprintf("%d of %d elements exceed the elementwise tolerance", k, r.Elements))
 	}
-	if t.MaxNormwise > 0 && !(r.Normwise <= t.MaxNormwise) {
+	for _, m := range []struct {
+		name string
+		v    float64
+	}{{"max abs error", r.MaxAbs}, {"max rel error", r.MaxRel}, {"RMS error", r.RMS}, {"mean signed error", r.MeanSigned}, {"normwise relative error", r.Normwise}} {
+		if math.IsNaN(m.v) {
+			v.Reasons = append(v.Reasons, fmt.Sprintf("the %s is NaN", m.name))
+		}
+	}
+	if t.MaxNormwise > 0 && r.Normwise > t.MaxNormwise {
 		v.Reasons = append(v.Reasons, fmt.Sprintf("normwise relative error %.3g exceeds %.3g", r.Normwise, t.MaxNormwise))
 	}
 	v.Pass = len(v.Reasons) == 0

@@ -242,3 +242,52 @@ func TestToleranceValidate(t *testing.T) {
 		assert.EqualError(t, err, tc.want)
 	}
 }
+
+// TestYardstickK: the tolerance is k times the yardstick's measured error
+// plus the floor, as MeasureYardstick documents. The same kernel measured
+// with k = 2 and k = 4 has the same, nonzero error, so the error parts of
+// the two tolerances are exactly 2e and 4e (products by powers of two are
+// exact), their ratio exactly 2.
+//
+// The floor is computed here from the format's definition, not from the
+// package: one rounding of the largest reference magnitude, u·max|ref|
+// with u = 2^−p, p the significand precision (24 for binary32 and 11 for
+// binary16, IEEE 754-2019 §3.6 table 3.5; 8 for bfloat16, binary32 with
+// the low 16 fraction bits dropped), and u normwise.
+func TestYardstickK(t *testing.T) {
+	const rows, n = 4, 256
+	x := randomLogits(7, rows*n)
+	ref := softmaxRows(x, n)
+	big := 0.0
+	for _, v := range ref {
+		big = math.Max(big, math.Abs(v))
+	}
+	for _, tc := range []struct {
+		f compare.Format
+		p int
+	}{{compare.Float32, 24}, {compare.Binary16, 11}, {compare.BFloat16, 8}} {
+		u := math.Ldexp(1, -tc.p)
+		floorAbs := u * big // far above half the smallest subnormal of each format
+		y2, err := compare.MeasureYardstick(tc.f, [][]float64{x}, ref, nil, 2, softmax32(n))
+		require.NoError(t, err)
+		y4, err := compare.MeasureYardstick(tc.f, [][]float64{x}, ref, nil, 4, softmax32(n))
+		require.NoError(t, err)
+		e, en := y2.Report.MaxAbs, y2.Report.Normwise
+		require.Positive(t, e, "%v: the yardstick has rounding error", tc.f)
+		require.Positive(t, en, "%v", tc.f)
+		require.Equal(t, e, y4.Report.MaxAbs, "%v: the same measurement", tc.f)
+		require.Equal(t, en, y4.Report.Normwise, "%v", tc.f)
+		assert.Equal(t, 2.0, y2.K)
+		assert.Equal(t, 4.0, y4.K)
+
+		assert.Equal(t, floorAbs, y2.FloorAbs, "%v: the floor is one rounding of max|ref|", tc.f)
+		assert.Equal(t, u, y2.FloorNormwise, "%v", tc.f)
+		assert.Equal(t, 2*e+floorAbs, y2.Tolerance.Abs, "%v", tc.f)
+		assert.Equal(t, 4*e+floorAbs, y4.Tolerance.Abs, "%v", tc.f)
+		assert.Equal(t, 2*en+u, y2.Tolerance.MaxNormwise, "%v", tc.f)
+		assert.Equal(t, 4*en+u, y4.Tolerance.MaxNormwise, "%v", tc.f)
+		assert.Equal(t, 2*(y2.Tolerance.Abs-y2.FloorAbs), y4.Tolerance.Abs-y4.FloorAbs, "%v: the error parts are in the ratio k = 4 : 2", tc.f)
+		assert.Equal(t, 2*(y2.Tolerance.MaxNormwise-y2.FloorNormwise), y4.Tolerance.MaxNormwise-y4.FloorNormwise, "%v", tc.f)
+		assert.Greater(t, y4.Tolerance.Abs, y2.Tolerance.Abs, "%v: a larger k allows more", tc.f)
+	}
+}

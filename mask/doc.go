@@ -41,13 +41,16 @@
 //	Lk = 0                 every row sees no key
 //	a row that sees no key listed by EmptyRows; its softmax is empty
 //	negative sizes         ErrSize
-//	query outside the keys ErrOffset, for masks that use positions
+//	more than MaxElements  ErrSize, from the methods that write the mask out
+//	query outside the keys ErrOffset, for every mask that uses positions
+//	                       (Causal, Band, Window, Prefix, Packed; see
+//	                       Mask.UsesPositions)
 //	NaN or +Inf fill       ErrFill
 //
 // Every error wraps exactly one of the package's sentinel errors (ErrSize,
 // ErrOffset, …) and names the function called, the argument, its value and
 // what was wanted ("mask: invalid window: Window: n = 0; want ≥ 1: …"). No
-// function panics on its arguments.
+// function panics on its arguments, nil receivers included.
 //
 // Masks are checked against golden files made by an independent generator
 // (testdata/gen/fam_mask.py) from the rules above.

@@ -17,7 +17,8 @@ import (
 // naming the function or method called ("Mask.Visible"), the argument or
 // field, its value and what was expected.
 var (
-	// ErrSize: a negative batch, query or key length.
+	// ErrSize: a negative batch, query or key length, sizes whose product
+	// does not fit an int, or a mask written out beyond MaxElements.
 	ErrSize = errors.New("mask: invalid size")
 	// ErrOffset: a query position offset that puts a query outside the keys.
 	ErrOffset = errors.New("mask: query position out of range")
@@ -57,6 +58,19 @@ var (
 // Unbounded as a Band extent means no limit on that side.
 const Unbounded = -1
 
+// MaxElements is the most elements one result of this package may hold,
+// 2^28: the Batch·Lq·Lk entries of Visible, Bias and BiasFill, the
+// Batch·Lq rows EmptyRows can list, and the Lk flags of the row Rows
+// lends. Larger requests are refused with ErrSize before anything is
+// allocated; the sizes are compared by division, so that their product
+// cannot wrap around. 2^28 float64 values are 2 GiB, one allocation a test
+// machine can make and fill; a mask of 2^20 × 2^20 keys written out whole
+// would otherwise end the program with an out-of-memory crash no caller
+// can recover from. Check and Sees write nothing out and take any sizes
+// whose product fits an int; Rows walks masks of any Batch and Lq. Every
+// golden and test case of the package is far inside the limit.
+const MaxElements = 1 << 28
+
 // Align says where query row i sits among the key positions when the query
 // length Lq differs from the key length Lk.
 type Align int
@@ -85,7 +99,13 @@ func (a Align) MarshalText() ([]byte, error) { return alignWords.Marshal(a) }
 
 // UnmarshalText sets a from its word; any other text is an error wrapping
 // ErrAlign that lists the words.
-func (a *Align) UnmarshalText(b []byte) error { return alignWords.Unmarshal(a, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (a *Align) UnmarshalText(b []byte) error {
+	if a == nil {
+		return nilReceiver(ErrAlign, "Align")
+	}
+	return alignWords.Unmarshal(a, b)
+}
 
 // Meaning returns one line saying what a means.
 func (a Align) Meaning() string { return alignWords.Meaning(a) }
@@ -122,7 +142,13 @@ func (b Block) MarshalText() ([]byte, error) { return blockWords.Marshal(b) }
 
 // UnmarshalText sets b from its word; any other text is an error wrapping
 // ErrBlock that lists the words.
-func (b *Block) UnmarshalText(t []byte) error { return blockWords.Unmarshal(b, t) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (b *Block) UnmarshalText(t []byte) error {
+	if b == nil {
+		return nilReceiver(ErrBlock, "Block")
+	}
+	return blockWords.Unmarshal(b, t)
+}
 
 // Meaning returns one line saying what b means.
 func (b Block) Meaning() string { return blockWords.Meaning(b) }
@@ -169,7 +195,13 @@ func (k Kind) MarshalText() ([]byte, error) { return kindWords.Marshal(k) }
 
 // UnmarshalText sets k from its word; any other text is an error wrapping
 // ErrKind that lists the words.
-func (k *Kind) UnmarshalText(b []byte) error { return kindWords.Unmarshal(k, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (k *Kind) UnmarshalText(b []byte) error {
+	if k == nil {
+		return nilReceiver(ErrKind, "Kind")
+	}
+	return kindWords.Unmarshal(k, b)
+}
 
 // Meaning returns one line saying what k means.
 func (k Kind) Meaning() string { return kindWords.Meaning(k) }
@@ -199,7 +231,8 @@ type Geometry struct {
 	Offset int
 }
 
-// Pos is the key position p(i) of query i.
+// Pos is the key position p(i) of query i, exact whenever Check accepts g
+// for a mask that uses positions (then 0 ≤ p(i) < Lk).
 func (g Geometry) Pos(i int) int {
 	a := 0
 	if g.Align == AlignEnd {
@@ -377,7 +410,16 @@ func Intersect(masks ...Mask) (Mask, error) {
 func (m Mask) IsZero() bool { return m.kind == kindNone }
 
 // UsesPositions reports whether the mask depends on query positions, and so
-// requires every query to sit at one of the keys (see Geometry).
+// requires every query to sit at one of the keys, 0 ≤ p(i) < Lk (see
+// Geometry); every method refuses a query outside with ErrOffset. It is
+// true for Causal, Band, Window, Prefix and Packed, and for an
+// intersection with one of them: each compares j with p(i), and a Packed
+// query must sit in one of the sequences to have keys of its own. The kind
+// decides, not its parameters: Band(Unbounded, Unbounded) and a Prefix as
+// long as the keys see every key wherever the query is, and still need the
+// queries at keys. It is false for Full and KeyPadding, which never read
+// p(i): no query position is out of range for them, and any Lq and Offset
+// go with them.
 func (m Mask) UsesPositions() bool {
 	switch m.kind {
 	case kindCausal, kindBand, kindPrefix, kindPacked:
@@ -427,10 +469,12 @@ func extent(e int) string {
 	return fmt.Sprint(e)
 }
 
-// Check reports whether the mask can be laid on g: sizes are not negative,
-// the alignment is known, query positions are in range where the mask uses
-// them, and key-padding lengths and packed offsets fit the batch and the
-// keys. Visible, Bias, Sees and EmptyRows all check the same.
+// Check reports whether the mask can be laid on g: sizes are not negative
+// and their product fits an int, the alignment is known, query positions
+// are in range where the mask uses them, and key-padding lengths and
+// packed offsets fit the batch and the keys. Every other method that takes
+// a Geometry checks the same, and those that write the mask out also check
+// MaxElements.
 func (m Mask) Check(g Geometry) error { return m.check("Mask.Check", g) }
 
 // check is Check for a call of the method fn.
@@ -547,6 +591,29 @@ func segment(offsets []int, x int) int {
 	return lo
 }
 
+// within checks, for a call of fn, that count, the product of the sizes
+// named by what (with the values vals, for the message), is at most
+// MaxElements; each factor is divided out in turn, so nothing overflows.
+func within(fn, what string, vals ...int) error {
+	room := MaxElements
+	for _, v := range vals {
+		if v == 0 {
+			return nil
+		}
+	}
+	for _, v := range vals {
+		if v > room {
+			parts := make([]string, len(vals))
+			for k, x := range vals {
+				parts[k] = fmt.Sprint(x)
+			}
+			return fmt.Errorf("%w: %s: %s = %s; want at most MaxElements = %d", ErrSize, fn, what, strings.Join(parts, "·"), MaxElements)
+		}
+		room /= v
+	}
+	return nil
+}
+
 // Sees reports whether, in batch entry b, query i may see key j.
 func (m Mask) Sees(g Geometry, b, i, j int) (bool, error) {
 	const fn = "Mask.Sees"
@@ -567,6 +634,7 @@ func (m Mask) Sees(g Geometry, b, i, j int) (bool, error) {
 //
 //	Lk = 0: every row is empty (see EmptyRows)
 //	Lq = 0 or Batch = 0: an empty slice
+//	Batch·Lq·Lk > MaxElements: ErrSize
 func (m Mask) Visible(g Geometry) ([]bool, error) { return m.visible("Mask.Visible", g) }
 
 // visible is Visible for a call of the method fn.
@@ -574,18 +642,38 @@ func (m Mask) visible(fn string, g Geometry) ([]bool, error) {
 	if err := m.check(fn, g); err != nil {
 		return nil, err
 	}
+	if err := within(fn, "g.Batch·Lq·Lk", g.Batch, g.Lq, g.Lk); err != nil {
+		return nil, err
+	}
 	out := make([]bool, g.Batch*g.Lq*g.Lk)
-	m.Rows(g, func(b, i int, row []bool) {
+	m.rows(g, func(b, i int, row []bool) {
 		copy(out[(b*g.Lq+i)*g.Lk:], row)
 	})
 	return out, nil
 }
 
 // Rows calls fn for every (batch entry, query) in order with the row of Lk
-// visibility flags; row is reused between calls. g must have passed Check;
-// Rows does not check it again. It lets a kernel walk a mask without
-// holding all of it.
-func (m Mask) Rows(g Geometry, fn func(b, i int, row []bool)) {
+// visibility flags; row is reused between calls. It lets a kernel walk a
+// mask without holding all of it. It checks g as Check does (and returns
+// that error before any call of fn); Lk > MaxElements is ErrSize and a nil
+// fn ErrEmpty.
+func (m Mask) Rows(g Geometry, fn func(b, i int, row []bool)) error {
+	const name = "Mask.Rows"
+	if err := m.check(name, g); err != nil {
+		return err
+	}
+	if g.Lk > MaxElements {
+		return fmt.Errorf("%w: %s: g.Lk = %d; want at most MaxElements = %d keys in the row lent to fn", ErrSize, name, g.Lk, MaxElements)
+	}
+	if fn == nil {
+		return fmt.Errorf("%w: %s: fn = nil; want a function to call with each row", ErrEmpty, name)
+	}
+	m.rows(g, fn)
+	return nil
+}
+
+// rows is Rows once g has been checked.
+func (m Mask) rows(g Geometry, fn func(b, i int, row []bool)) {
 	row := make([]bool, g.Lk)
 	for b := 0; b < g.Batch; b++ {
 		for i := 0; i < g.Lq; i++ {
@@ -615,6 +703,7 @@ func (m Mask) Bias(g Geometry) ([]float64, error) {
 //
 //	fill = NaN or +Inf: error ErrFill
 //	fill = −Inf: same as Bias
+//	Batch·Lq·Lk > MaxElements: ErrSize (so also for Bias)
 func (m Mask) BiasFill(g Geometry, fill float64) ([]float64, error) {
 	return m.biasFill("Mask.BiasFill", g, fill)
 }
@@ -643,12 +732,24 @@ type Row struct{ Batch, Query int }
 // at all on g. Attention over such a row has an empty softmax; what a
 // kernel outputs there is a convention of its own (see the attention
 // package's empty-row policy).
+//
+// Special cases are:
+//
+//	Batch·Lq > MaxElements (the rows it could list): ErrSize
+//	Lk > MaxElements: ErrSize
 func (m Mask) EmptyRows(g Geometry) ([]Row, error) {
-	if err := m.check("Mask.EmptyRows", g); err != nil {
+	const fn = "Mask.EmptyRows"
+	if err := m.check(fn, g); err != nil {
+		return nil, err
+	}
+	if err := within(fn, "g.Batch·Lq", g.Batch, g.Lq); err != nil {
+		return nil, err
+	}
+	if err := within(fn, "g.Lk", g.Lk); err != nil {
 		return nil, err
 	}
 	var rows []Row
-	m.Rows(g, func(b, i int, row []bool) {
+	m.rows(g, func(b, i int, row []bool) {
 		for _, v := range row {
 			if v {
 				return
@@ -657,4 +758,10 @@ func (m Mask) EmptyRows(g Geometry) ([]Row, error) {
 		rows = append(rows, Row{b, i})
 	})
 	return rows, nil
+}
+
+// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
+// no value to set.
+func nilReceiver(sentinel error, typ string) error {
+	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
 }

@@ -2,6 +2,7 @@ package mask
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"testing"
@@ -416,4 +417,145 @@ func FuzzMask(f *testing.F) {
 			}
 		}
 	})
+}
+
+// TestErrOffsetEveryKind: every mask that uses positions (Causal, Band,
+// Window, Prefix, Packed, and an intersection with one of them) refuses a
+// query outside the keys with ErrOffset, from every method, whichever way
+// the query falls outside: past the last key, before the first, or more
+// queries than keys with AlignEnd. Full and KeyPadding never read
+// positions and take the same geometries.
+func TestErrOffsetEveryKind(t *testing.T) {
+	positional := []Mask{
+		Causal(),
+		must(t)(Band(1, 1)),
+		must(t)(Band(Unbounded, Unbounded)), // sees every key, but is a Band
+		must(t)(Window(2)),
+		must(t)(Prefix(4)), // as long as the keys: sees every key, but is a Prefix
+		must(t)(Packed([]int{0, 2, 4}, BlockCausal)),
+		must(t)(Packed([]int{0, 1, 4}, BlockFull)),
+		must(t)(Intersect(Full(), must(t)(Packed([]int{0, 4}, BlockFull)))),
+	}
+	free := []Mask{Full(), must(t)(KeyPadding([]int{3, 4})), must(t)(Intersect(Full(), must(t)(KeyPadding([]int{1, 0}))))}
+	outside := []struct {
+		g    Geometry
+		want string // the message after "Mask.Visible: "
+	}{
+		{Geometry{Batch: 2, Lq: 2, Lk: 4, Align: AlignStart, Offset: 3}, "g.Offset = 3; want 0 ≤ Offset ≤ 2: %v needs every query at a key (align start, Lq = 2, Lk = 4)"},
+		{Geometry{Batch: 2, Lq: 2, Lk: 4, Align: AlignStart, Offset: -1}, "g.Offset = -1; want 0 ≤ Offset ≤ 2: %v needs every query at a key (align start, Lq = 2, Lk = 4)"},
+		{Geometry{Batch: 2, Lq: 2, Lk: 4, Offset: 1}, "g.Offset = 1; want -2 ≤ Offset ≤ 0: %v needs every query at a key (align end, Lq = 2, Lk = 4)"},
+		{Geometry{Batch: 2, Lq: 5, Lk: 4}, "g.Lq = 5; want ≤ g.Lk = 4: %v needs every query at a key"},
+		{Geometry{Batch: 2, Lq: 5, Lk: 4, Align: AlignStart}, "g.Lq = 5; want ≤ g.Lk = 4: %v needs every query at a key"},
+	}
+	for _, m := range positional {
+		require.True(t, m.UsesPositions(), "%v", m)
+		for _, o := range outside {
+			want := "mask: query position out of range: Mask.Visible: " + fmt.Sprintf(o.want, m)
+			_, err := m.Visible(o.g)
+			require.ErrorIs(t, err, ErrOffset, "%v on %v", m, o.g)
+			assert.EqualError(t, err, want)
+			errs := []error{m.Check(o.g)}
+			_, err = m.Bias(o.g)
+			errs = append(errs, err)
+			_, err = m.BiasFill(o.g, -1e9)
+			errs = append(errs, err)
+			_, err = m.Sees(o.g, 0, 0, 0)
+			errs = append(errs, err)
+			_, err = m.EmptyRows(o.g)
+			errs = append(errs, err)
+			errs = append(errs, m.Rows(o.g, func(int, int, []bool) { t.Fatalf("%v on %v: Rows called fn", m, o.g) }))
+			for k, err := range errs {
+				assert.ErrorIs(t, err, ErrOffset, "%v on %v, method %d", m, o.g, k)
+			}
+		}
+	}
+	for _, m := range free {
+		require.False(t, m.UsesPositions(), "%v", m)
+		for _, o := range outside {
+			v, err := m.Visible(o.g)
+			require.NoError(t, err, "%v on %v", m, o.g)
+			assert.Len(t, v, o.g.Batch*o.g.Lq*o.g.Lk)
+		}
+	}
+}
+
+// TestMaxElements: the methods that write a mask out refuse more than
+// MaxElements = 2^28 entries with ErrSize before allocating them; a
+// 2^20 × 2^20 mask (2^40 entries, 8 TiB as a bias) would otherwise end the
+// program. Check and Sees take such a geometry: they write nothing out.
+func TestMaxElements(t *testing.T) {
+	require.Equal(t, 1<<28, MaxElements)
+	big := Geometry{Batch: 1, Lq: 1 << 20, Lk: 1 << 20}
+	const want = "mask: invalid size: %s: g.Batch·Lq·Lk = 1·1048576·1048576; want at most MaxElements = 268435456"
+	_, err := Causal().Visible(big)
+	require.ErrorIs(t, err, ErrSize)
+	assert.EqualError(t, err, fmt.Sprintf(want, "Mask.Visible"))
+	_, err = Causal().Bias(big)
+	require.ErrorIs(t, err, ErrSize)
+	assert.EqualError(t, err, fmt.Sprintf(want, "Mask.Bias"))
+	_, err = Full().BiasFill(big, -1e9)
+	require.ErrorIs(t, err, ErrSize)
+	assert.EqualError(t, err, fmt.Sprintf(want, "Mask.BiasFill"))
+	// Batch pushes it over, each factor fitting.
+	_, err = Full().Visible(Geometry{Batch: 5, Lq: 1 << 13, Lk: 1 << 13})
+	assert.EqualError(t, err, "mask: invalid size: Mask.Visible: g.Batch·Lq·Lk = 5·8192·8192; want at most MaxElements = 268435456")
+
+	assert.NoError(t, Causal().Check(big))
+	s, err := Causal().Sees(big, 0, 1<<20-1, 0)
+	require.NoError(t, err)
+	assert.True(t, s)
+
+	// EmptyRows lists up to Batch·Lq rows: with no keys, all of them.
+	_, err = Full().EmptyRows(Geometry{Batch: 1 << 20, Lq: 1 << 20, Lk: 0})
+	require.ErrorIs(t, err, ErrSize)
+	assert.EqualError(t, err, "mask: invalid size: Mask.EmptyRows: g.Batch·Lq = 1048576·1048576; want at most MaxElements = 268435456")
+	_, err = Full().EmptyRows(Geometry{Batch: 1, Lq: 1, Lk: MaxElements + 1})
+	assert.EqualError(t, err, "mask: invalid size: Mask.EmptyRows: g.Lk = 268435457; want at most MaxElements = 268435456")
+
+	// Rows lends one row of Lk flags.
+	err = Full().Rows(Geometry{Batch: 1, Lq: 1, Lk: MaxElements + 1}, func(int, int, []bool) {})
+	require.ErrorIs(t, err, ErrSize)
+	assert.EqualError(t, err, "mask: invalid size: Mask.Rows: g.Lk = 268435457; want at most MaxElements = 268435456 keys in the row lent to fn")
+}
+
+// TestRows: Rows checks its geometry and its function, and walks the rows
+// in order with the flags of Visible.
+func TestRows(t *testing.T) {
+	m := must(t)(Window(2))
+	g := Geometry{Batch: 2, Lq: 2, Lk: 3}
+	var got []bool
+	var order []Row
+	require.NoError(t, m.Rows(g, func(b, i int, row []bool) {
+		order = append(order, Row{b, i})
+		got = append(got, row...)
+	}))
+	assert.Equal(t, vis(t, m, g), got)
+	assert.Equal(t, []Row{{0, 0}, {0, 1}, {1, 0}, {1, 1}}, order)
+
+	err := m.Rows(Geometry{Batch: 1, Lq: 1, Lk: -1}, func(int, int, []bool) {})
+	require.ErrorIs(t, err, ErrSize)
+	assert.EqualError(t, err, "mask: invalid size: Mask.Rows: g.Lk = -1; want ≥ 0")
+	err = m.Rows(g, nil)
+	require.ErrorIs(t, err, ErrEmpty)
+	assert.EqualError(t, err, "mask: no mask: Mask.Rows: fn = nil; want a function to call with each row")
+	err = Mask{}.Rows(g, func(int, int, []bool) {})
+	assert.ErrorIs(t, err, ErrEmpty)
+}
+
+// TestNilReceivers: the decoding methods on a nil pointer are errors
+// wrapping the type's sentinel, not panics.
+func TestNilReceivers(t *testing.T) {
+	for _, tc := range []struct {
+		err, sentinel error
+		want          string
+	}{
+		{(*Align)(nil).UnmarshalText([]byte("end")), ErrAlign, "mask: invalid alignment: Align.UnmarshalText: receiver = nil; want a *Align to set"},
+		{(*Block)(nil).UnmarshalText([]byte("full")), ErrBlock, "mask: invalid block kind: Block.UnmarshalText: receiver = nil; want a *Block to set"},
+		{(*Kind)(nil).UnmarshalText([]byte("causal")), ErrKind, "mask: invalid mask kind: Kind.UnmarshalText: receiver = nil; want a *Kind to set"},
+		{(*ALiBiForm)(nil).UnmarshalText([]byte("causal")), ErrALiBi, "mask: invalid ALiBi form: ALiBiForm.UnmarshalText: receiver = nil; want a *ALiBiForm to set"},
+		{(*Spec)(nil).UnmarshalJSON([]byte(`{"kind": "causal"}`)), ErrSpec, "mask: invalid mask description: Spec.UnmarshalJSON: receiver = nil; want a *Spec to set"},
+	} {
+		assert.ErrorIs(t, tc.err, tc.sentinel)
+		assert.EqualError(t, tc.err, tc.want)
+	}
 }

@@ -61,9 +61,13 @@ func SpecKeys(k Kind) []string { return slices.Clone(specKeys[k]) }
 // UnmarshalJSON decodes one Spec, refusing unknown keys, keys of another
 // kind, missing keys, null values and values of the wrong JSON type with an
 // error wrapping ErrSpec (or ErrKind for an unknown kind, ErrBlock for an
-// unknown block).
+// unknown block). A nil receiver is an error wrapping ErrSpec, not a
+// panic.
 func (s *Spec) UnmarshalJSON(b []byte) error {
 	const fn = "Spec.UnmarshalJSON"
+	if s == nil {
+		return fmt.Errorf("%w: %s: receiver = nil; want a *Spec to set", ErrSpec, fn)
+	}
 	var keys map[string]json.RawMessage
 	if err := json.Unmarshal(b, &keys); err != nil {
 		return fmt.Errorf("%w: %s: mask = %s; want a JSON object with a \"kind\" (%w)", ErrSpec, fn, jsonKind(b), err)

@@ -55,6 +55,7 @@
 //	shape ()                       a scalar: one element
 //	a zero dimension               no data; Values is an empty slice
 //	header length > MaxHeaderLen   ErrFormat, before the header is read
+//	more than MaxElements elements ErrShape, before the data are read
 //	data shorter than promised     ErrData; allocation stays bounded by the
 //	                               bytes actually present
 //	trailing bytes                 left in the reader by Read; ErrData from
@@ -66,7 +67,8 @@
 // WriteFile with the path), what it found and what it wanted ("npy:
 // malformed file: Read: format version = 4.0; want 1.0, 2.0 or 3.0");
 // errors of the file system or of the io.Writer are wrapped as they come.
-// No function panics on its input, whatever the bytes.
+// No function panics on its input, whatever the bytes, nor on a nil
+// reader, writer, array or receiver.
 //
 // Typical use: a port under test dumps its output with numpy.save (or any
 // writer of the format), the test reads it with ReadFile, converts it with

@@ -295,7 +295,11 @@ func parseHeader(fn, text string) (Header, error) {
 		}
 		h.Shape[i] = n
 	}
-	if _, err := count(fn, "'shape'", h.Shape); err != nil {
+	n, err := count(fn, "'shape'", h.Shape)
+	if err != nil {
+		return Header{}, err
+	}
+	if err := holdable(fn, "'shape'", h.Shape, n); err != nil {
 		return Header{}, err
 	}
 	return h, nil

@@ -27,8 +27,8 @@ var (
 	// ErrDType: the header's 'descr' names an element type outside the
 	// supported set (see DType), or one without a byte order.
 	ErrDType = errors.New("npy: unsupported element type")
-	// ErrShape: a negative dimension, or a shape whose element count or
-	// byte size overflows.
+	// ErrShape: a negative dimension, a shape whose element count
+	// overflows, or one of more than MaxElements elements.
 	ErrShape = errors.New("npy: invalid shape")
 	// ErrData: the data section is shorter than the header promises, or
 	// (ReadFile only) bytes follow it.
@@ -43,6 +43,17 @@ var (
 	// exactly.
 	ErrInexact = errors.New("npy: value not exactly representable as float64")
 )
+
+// MaxElements is the most elements an array of this package may hold,
+// 2^28: Read, ReadFile and ReadHeader refuse a header whose shape holds
+// more, and New, Write, WriteFile and Float64s an Array of more, with
+// ErrShape, before anything is allocated. 2^28 float64 values are 2 GiB,
+// the most one allocation of a test machine is expected to hold (Float64s
+// turns 2^28 bytes of uint8 into that much); an array beyond it would
+// otherwise end the program with an out-of-memory crash no caller can
+// recover from. Every file Write produces can be read back. Every test
+// case of the package is far inside the limit.
+const MaxElements = 1 << 28
 
 // DType is an element type a .npy file may hold. The zero value is
 // Float64.
@@ -101,7 +112,13 @@ func (d DType) MarshalText() ([]byte, error) { return dtypeWords.Marshal(d) }
 
 // UnmarshalText sets d from its word; any other text is an error wrapping
 // ErrDType that lists the words.
-func (d *DType) UnmarshalText(b []byte) error { return dtypeWords.Unmarshal(d, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (d *DType) UnmarshalText(b []byte) error {
+	if d == nil {
+		return nilReceiver(ErrDType, "DType")
+	}
+	return dtypeWords.Unmarshal(d, b)
+}
 
 // Meaning returns one line saying what d is.
 func (d DType) Meaning() string { return dtypeWords.Meaning(d) }
@@ -168,7 +185,13 @@ func (o ByteOrder) MarshalText() ([]byte, error) { return orderWords.Marshal(o) 
 
 // UnmarshalText sets o from its word; any other text is an error wrapping
 // ErrDType that lists the words.
-func (o *ByteOrder) UnmarshalText(b []byte) error { return orderWords.Unmarshal(o, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (o *ByteOrder) UnmarshalText(b []byte) error {
+	if o == nil {
+		return nilReceiver(ErrDType, "ByteOrder")
+	}
+	return orderWords.Unmarshal(o, b)
+}
 
 // Meaning returns one line saying what o means.
 func (o ByteOrder) Meaning() string { return orderWords.Meaning(o) }
@@ -270,7 +293,13 @@ func (b Bits) MarshalText() ([]byte, error) { return bitsWords.Marshal(b) }
 
 // UnmarshalText sets b from its word; any other text is an error wrapping
 // ErrDType that lists the words.
-func (b *Bits) UnmarshalText(t []byte) error { return bitsWords.Unmarshal(b, t) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (b *Bits) UnmarshalText(t []byte) error {
+	if b == nil {
+		return nilReceiver(ErrDType, "Bits")
+	}
+	return bitsWords.Unmarshal(b, t)
+}
 
 // Meaning returns one line saying what b means.
 func (b Bits) Meaning() string { return bitsWords.Meaning(b) }
@@ -316,8 +345,9 @@ type Array struct {
 
 // New returns an Array of the given type, shape and row-major values, after
 // checking that values has the slice type dt calls for and one element per
-// position of shape. The slices are used, not copied. The byte order is
-// little-endian, the file order C, and the version chosen by Write.
+// position of shape, and that shape holds at most MaxElements (ErrShape).
+// The slices are used, not copied. The byte order is little-endian, the
+// file order C, and the version chosen by Write.
 func New(dt DType, shape []int, values any) (*Array, error) {
 	a := &Array{Header: Header{DType: dt, Shape: shape}, Values: values}
 	if err := a.check(arrayArgs{fn: "New", dtype: "dt", shape: "shape", values: "values", bits: "Array.Bits"}); err != nil {
@@ -328,8 +358,12 @@ func New(dt DType, shape []int, values any) (*Array, error) {
 
 // Len returns the number of elements the shape holds: the product of its
 // dimensions, 1 for a scalar. It returns -1 if a dimension is negative or
-// the product overflows an int.
+// the product overflows an int, and for a nil h. It is a count, not a
+// check of MaxElements.
 func (h *Header) Len() int {
+	if h == nil {
+		return -1
+	}
 	n, err := count("Header.Len", "Header.Shape", h.Shape)
 	if err != nil {
 		return -1
@@ -358,6 +392,15 @@ func count(fn, name string, shape []int) (int, error) {
 		n *= d
 	}
 	return n, nil
+}
+
+// holdable checks, for a call of fn, that n, the element count of shape
+// (called name), is at most MaxElements.
+func holdable(fn, name string, shape []int, n int) error {
+	if n > MaxElements {
+		return fmt.Errorf("%w: %s: %s = %v, %d elements; want at most MaxElements = %d", ErrShape, fn, name, shape, n, MaxElements)
+	}
+	return nil
 }
 
 // valuesLen returns the length of Values if it has the type DType needs.
@@ -400,6 +443,9 @@ func (a *Array) check(args arrayArgs) error {
 	if err != nil {
 		return err
 	}
+	if err := holdable(fn, args.shape, a.Shape, n); err != nil {
+		return err
+	}
 	got, ok := a.valuesLen()
 	if !ok {
 		return fmt.Errorf("%w: %s: %s is a %T; want a %s for DType %v", ErrValues, fn, args.values, a.Values, a.DType.goType(), a.DType)
@@ -430,8 +476,13 @@ func (a *Array) check(args arrayArgs) error {
 //	infinity patterns   ±Inf (E4M3 has none)
 //	−0                  −0
 //	invalid Array       ErrDType, ErrShape, ErrValues or ErrBits
+//	more than MaxElements  ErrShape
+//	a nil a             ErrValues
 func (a *Array) Float64s() ([]float64, error) {
 	const fn = "Array.Float64s"
+	if a == nil {
+		return nil, fmt.Errorf("%w: %s: receiver = nil; want an Array", ErrValues, fn)
+	}
 	if err := a.check(fields(fn)); err != nil {
 		return nil, err
 	}
@@ -489,4 +540,10 @@ func decodeAll[T uint8 | uint16](v []T, f compare.Format) []float64 {
 		out[i], _ = f.Decode(uint64(b))
 	}
 	return out
+}
+
+// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
+// no value to set.
+func nilReceiver(sentinel error, typ string) error {
+	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
 }

@@ -241,7 +241,7 @@ func TestReadErrors(t *testing.T) {
 		{"negative dimension", dict("'<f8'", "False", "(2, -1)"), ErrShape, "npy: invalid shape: Read: 'shape'[1] = -1; want ≥ 0"},
 		{"dimension beyond int64", dict("'<f8'", "False", "(99999999999999999999,)"), ErrShape, "npy: invalid shape: Read: 'shape' = (99999999999999999999,), dimension 0 = 99999999999999999999; want one that fits an int"},
 		{"element count overflows", dict("'<f8'", "False", "(4294967296, 4294967296)"), ErrShape, "npy: invalid shape: Read: 'shape' = [4294967296 4294967296]; want at most 9223372036854775807 elements (the count overflows at dimension 1)"},
-		{"byte count overflows", dict("'<f8'", "False", "(2305843009213693952,)"), ErrShape, "npy: invalid shape: Read: 'shape' = [2305843009213693952] of float64, more than 9223372036854775807 bytes; want a size that fits an int"},
+		{"more elements than MaxElements", dict("'<f8'", "False", "(2305843009213693952,)"), ErrShape, "npy: invalid shape: Read: 'shape' = [2305843009213693952], 2305843009213693952 elements; want at most MaxElements = 268435456"},
 		{"missing key", file("{'descr': '<f8', 'shape': (1,)}", nil), ErrFormat, "npy: malformed file: Read: the header has no 'fortran_order' key; want 'descr', 'fortran_order' and 'shape'"},
 		{"extra key", file("{'descr': '<f8', 'fortran_order': False, 'shape': (1,), 'format': 'bf16'}", nil), ErrFormat, "npy: malformed file: Read: header key 'format'; want one of 'descr', 'fortran_order', 'shape'"},
 		{"duplicate key", file("{'descr': '<f8', 'descr': '<f8', 'fortran_order': False, 'shape': (1,)}", nil), ErrFormat, "npy: malformed file: Read: header key 'descr' twice; want each key once"},
@@ -250,7 +250,7 @@ func TestReadErrors(t *testing.T) {
 		{"unterminated string", file("{'descr: '<f8'}", nil), ErrFormat, "npy: malformed file: Read: header byte 10: \"<f8'}\\n\" after dictionary key 'descr: '; want ':'"},
 		{"nested too deep", file(deep, nil), ErrFormat, "npy: malformed file: Read: header byte 33: a literal nested deeper than 32; want at most 32 levels"},
 		{"data too short", dict("'<f8'", "False", "(9,)"), ErrData, "npy: data does not match the header: Read: the data ends early (input ended early: 64 bytes remain); want the 72 bytes that shape [9] of float64 needs"},
-		{"huge shape, no data", dict("'<f8'", "False", "(1099511627776,)"), ErrData, "npy: data does not match the header: Read: the data ends early (input ended early: 64 bytes remain); want the 8796093022208 bytes that shape [1099511627776] of float64 needs"},
+		{"huge shape, no data", dict("'<f8'", "False", "(268435456,)"), ErrData, "npy: data does not match the header: Read: the data ends early (input ended early: 64 bytes remain); want the 2147483648 bytes that shape [268435456] of float64 needs"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -293,7 +293,7 @@ func TestLyingHeaderDoesNotAllocate(t *testing.T) {
 		in   []byte
 		want error
 	}{
-		{"shape 2^40 float64", huge, ErrData},
+		{"shape 2^40 float64", huge, ErrShape}, // beyond MaxElements: refused by the header alone
 		{"header length 1 MiB", longHeader, ErrFormat},
 		{"2 GiB claimed, 3 MiB present", bigData, ErrData},
 	} {
@@ -584,5 +584,68 @@ func BenchmarkRead(b *testing.B) {
 				require.NoError(b, err)
 			}
 		})
+	}
+}
+
+// TestMaxElements: an array of more than MaxElements = 2^28 elements is
+// refused with ErrShape by every function that reads or makes one, before
+// its data are read or allocated; at the limit itself a header is
+// accepted (a shape of exactly 2^28 fails later, on the missing data, in
+// TestLyingHeaderDoesNotAllocate).
+func TestMaxElements(t *testing.T) {
+	require.Equal(t, 1<<28, MaxElements)
+	over := "{'descr': '|u1', 'fortran_order': False, 'shape': (16384, 16385), }"
+	_, err := ReadHeader(bytes.NewReader(file(over, nil)))
+	require.ErrorIs(t, err, ErrShape)
+	assert.EqualError(t, err, "npy: invalid shape: ReadHeader: 'shape' = [16384 16385], 268451840 elements; want at most MaxElements = 268435456")
+	_, err = Read(bytes.NewReader(file(over, nil)))
+	assert.EqualError(t, err, "npy: invalid shape: Read: 'shape' = [16384 16385], 268451840 elements; want at most MaxElements = 268435456")
+	h, err := ReadHeader(bytes.NewReader(file("{'descr': '|u1', 'fortran_order': False, 'shape': (16384, 16384), }", nil)))
+	require.NoError(t, err)
+	assert.Equal(t, MaxElements, h.Len())
+
+	_, err = New(Uint8, []int{MaxElements + 1}, []uint8{})
+	require.ErrorIs(t, err, ErrShape)
+	assert.EqualError(t, err, "npy: invalid shape: New: shape = [268435457], 268435457 elements; want at most MaxElements = 268435456")
+	big := &Array{Header: Header{DType: Uint8, Shape: []int{1 << 14, 1 << 15}}, Values: []uint8{1}}
+	_, err = big.Float64s()
+	require.ErrorIs(t, err, ErrShape)
+	assert.EqualError(t, err, "npy: invalid shape: Array.Float64s: Array.Shape = [16384 32768], 536870912 elements; want at most MaxElements = 268435456")
+	err = Write(io.Discard, big)
+	require.ErrorIs(t, err, ErrShape)
+	assert.EqualError(t, err, "npy: invalid shape: Write: Array.Shape = [16384 32768], 536870912 elements; want at most MaxElements = 268435456")
+}
+
+// TestNilArguments: nil arrays, readers, writers and receivers are errors
+// wrapping a sentinel, not panics.
+func TestNilArguments(t *testing.T) {
+	_, err := (*Array)(nil).Float64s()
+	require.ErrorIs(t, err, ErrValues)
+	assert.EqualError(t, err, "npy: values do not match the header: Array.Float64s: receiver = nil; want an Array")
+	_, err = ReadHeader(nil)
+	require.ErrorIs(t, err, ErrFormat)
+	assert.EqualError(t, err, "npy: malformed file: ReadHeader: r = nil; want an io.Reader holding a .npy file")
+	_, err = Read(nil)
+	require.ErrorIs(t, err, ErrFormat)
+	assert.EqualError(t, err, "npy: malformed file: Read: r = nil; want an io.Reader holding a .npy file")
+	a, err := New(Float64, []int{1}, []float64{1})
+	require.NoError(t, err)
+	err = Write(nil, a)
+	require.ErrorIs(t, err, ErrFormat)
+	assert.EqualError(t, err, "npy: malformed file: Write: w = nil; want an io.Writer to write the .npy file to")
+	err = Write(io.Discard, nil)
+	require.ErrorIs(t, err, ErrValues)
+	assert.EqualError(t, err, "npy: values do not match the header: Write: a = nil; want an Array")
+	assert.Equal(t, -1, (*Header)(nil).Len())
+	for _, tc := range []struct {
+		err  error
+		want string
+	}{
+		{(*DType)(nil).UnmarshalText([]byte("float64")), "npy: unsupported element type: DType.UnmarshalText: receiver = nil; want a *DType to set"},
+		{(*ByteOrder)(nil).UnmarshalText([]byte("big-endian")), "npy: unsupported element type: ByteOrder.UnmarshalText: receiver = nil; want a *ByteOrder to set"},
+		{(*Bits)(nil).UnmarshalText([]byte("e4m3")), "npy: unsupported element type: Bits.UnmarshalText: receiver = nil; want a *Bits to set"},
+	} {
+		assert.ErrorIs(t, tc.err, ErrDType)
+		assert.EqualError(t, tc.err, tc.want)
 	}
 }

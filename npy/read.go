@@ -44,10 +44,15 @@ const chunk = 1 << 16
 //	header length > MaxHeaderLen       ErrFormat, before reading it
 //	unsupported descr                  ErrDType, naming the descriptor
 //	negative or overflowing shape      ErrShape
+//	more than MaxElements elements     ErrShape
+//	a nil r                            ErrFormat (there is no file to read)
 func ReadHeader(r io.Reader) (Header, error) { return readHeader("ReadHeader", r) }
 
 // readHeader is ReadHeader for a call of fn.
 func readHeader(fn string, r io.Reader) (Header, error) {
+	if r == nil {
+		return Header{}, fmt.Errorf("%w: %s: r = nil; want an io.Reader holding a .npy file", ErrFormat, fn)
+	}
 	var pre [10]byte
 	if n, err := io.ReadFull(r, pre[:8]); err != nil {
 		return Header{}, fmt.Errorf("%w: %s: the file has %d bytes (%v); want at least 10 (magic string, version, header length)", ErrFormat, fn, n, err)
@@ -116,13 +121,16 @@ func latin1(b []byte) string {
 // buffer grows only as bytes arrive, or is checked at once against the
 // remaining length when r reports it (a Len method, as *bytes.Reader,
 // *strings.Reader and *bytes.Buffer have, or a regular *os.File). A header
-// that claims a huge shape costs nothing before it fails with ErrData.
+// that claims more than MaxElements elements fails with ErrShape before
+// any data are read, and one that claims fewer but more than the input
+// holds costs nothing before it fails with ErrData.
 //
 // Special cases are:
 //
 //	shape with a zero dimension   no data, Values empty
 //	shape ()                      one element
 //	data shorter than promised    ErrData, saying how many bytes came
+//	more than MaxElements         ErrShape
 //	errors of ReadHeader          as there
 func Read(r io.Reader) (*Array, error) { return read("Read", r) }
 
@@ -132,7 +140,7 @@ func read(fn string, r io.Reader) (*Array, error) {
 	if err != nil {
 		return nil, err
 	}
-	n, _ := count(fn, "'shape'", h.Shape) // checked by readHeader
+	n, _ := count(fn, "'shape'", h.Shape) // checked by readHeader; n ≤ MaxElements, but n·size can exceed a 32-bit int
 	size := h.DType.Size()
 	if n > math.MaxInt/size {
 		return nil, fmt.Errorf("%w: %s: 'shape' = %v of %v, more than %d bytes; want a size that fits an int", ErrShape, fn, h.Shape, h.DType, math.MaxInt)

@@ -37,10 +37,18 @@ import (
 //	Values of the wrong type/length   ErrValues
 //	Bits that do not fit DType        ErrBits
 //	negative or overflowing shape     ErrShape
+//	more than MaxElements elements    ErrShape
 //	header longer than MaxHeaderLen   ErrShape (too many dimensions)
 //	unknown Version                   ErrFormat
+//	a nil a                           ErrValues
+//	a nil w                           ErrFormat (there is no file to write)
 //	w fails                           its error, wrapped
-func Write(w io.Writer, a *Array) error { return write("Write", w, a) }
+func Write(w io.Writer, a *Array) error {
+	if w == nil {
+		return fmt.Errorf("%w: Write: w = nil; want an io.Writer to write the .npy file to", ErrFormat)
+	}
+	return write("Write", w, a)
+}
 
 // write is Write for a call of fn.
 func write(fn string, w io.Writer, a *Array) error {

@@ -28,11 +28,12 @@ import (
 //
 // Special cases are:
 //
-//	heads = 1          [2^{−8}]
-//	heads ≤ 0          ErrHeads
+//	heads = 1              [2^{−8}]
+//	heads ≤ 0              ErrHeads
+//	heads > MaxElements    ErrHeads
 func ALiBiSlopes(heads int) ([]float64, error) {
-	if heads <= 0 {
-		return nil, fmt.Errorf("%w: ALiBiSlopes: heads = %d; want > 0", ErrHeads, heads)
+	if heads <= 0 || heads > MaxElements {
+		return nil, fmt.Errorf("%w: ALiBiSlopes: heads = %d; want 1 ≤ heads ≤ MaxElements = %d", ErrHeads, heads, MaxElements)
 	}
 	c := 1 << (bits.Len(uint(heads)) - 1)
 	out := make([]float64, 0, heads)
@@ -92,7 +93,7 @@ func exp2Neg(num, den int) float64 {
 //	no slopes                       ErrHeads
 //	NaN or ±Inf slope               ErrHeads
 //	negative Lq, Lk or Batch        ErrShape
-//	H·Lq·Lk > 2^40                  ErrShape
+//	H·Lq·Lk > MaxElements           ErrShape
 //	g.Align or form not one of its constants  ErrOption, also wrapping mask.ErrAlign or mask.ErrALiBi
 //	p(i) outside 0 … Lk−1 with the causal or past-only form  ErrPosition
 //	|Offset| or |p(i)| > MaxPosition  ErrPosition
@@ -132,8 +133,10 @@ func alibiBias[T num.Float](fn string, slopes []T, g mask.Geometry, form mask.AL
 		return nil, vocab.At(err, ErrOption, fn+": form")
 	}
 	H := len(slopes)
-	if g.Lq > 0 && g.Lk > 0 && (g.Lk > maxElements/g.Lq || g.Lq*g.Lk > maxElements/H) {
-		return nil, fmt.Errorf("%w: %s: H·Lq·Lk = %d·%d·%d; want at most 2^40 elements", ErrShape, fn, H, g.Lq, g.Lk)
+	// Each factor is checked before the next multiplication, so that the
+	// product cannot wrap around.
+	if g.Lq > 0 && g.Lk > 0 && (H > MaxElements || g.Lq > MaxElements/H || g.Lk > MaxElements/(H*g.Lq)) {
+		return nil, fmt.Errorf("%w: %s: H·Lq·Lk = %d·%d·%d; want at most MaxElements = %d elements", ErrShape, fn, H, g.Lq, g.Lk, MaxElements)
 	}
 	if g.Lq > 0 {
 		// Offset first, so that p(i) cannot overflow.

@@ -118,7 +118,10 @@
 // ErrBase, ErrFactor, ErrLength, ErrPosition, ErrHeads, ErrShape,
 // ErrOption) and names the function called, the argument, its value and
 // what was wanted ("posenc: invalid base: Rotary.Apply: Rotary.Base = 1;
-// want a finite number > 1"). No function panics on its arguments.
+// want a finite number > 1"). No function panics on its arguments, nil
+// receivers included. A result sized from the arguments alone (a table, a
+// bias, the slopes) holds at most MaxElements = 2^28 elements; a larger
+// request is an error, checked before anything is allocated.
 // Results are deterministic: the same inputs give bit-identical outputs
 // for any GOMAXPROCS (nothing runs in parallel). The package's own
 // arithmetic is written so that no compiler fuses it (float64(x*y) where a

@@ -2,7 +2,7 @@ package posenc
 
 import (
 	"errors"
-	"math"
+	"fmt"
 )
 
 // Sentinel errors. Every error returned by this package wraps exactly one of
@@ -49,7 +49,22 @@ const MaxPosition = 1<<31 - 1
 // MaxDim is the largest head or model dimension accepted.
 const MaxDim = 1 << 20
 
-// maxElements bounds the size of a result this package allocates from
-// sizes alone (not from the length of an input slice), so that a typo
-// cannot overflow int: 2^40 float64 values (less where int is 32 bits).
-const maxElements = min(1<<40, math.MaxInt)
+// MaxElements is the most elements one result of this package may hold,
+// 2^28: Sinusoidal.Table's n·Dim, Rotary.Tables' len(pos)·r/2 per table,
+// ALiBiBias's H·Lq·Lk and ALiBiSlopes' head count. A request for more is
+// refused with ErrShape (ErrHeads for the head count) before anything is
+// allocated, and the sizes are multiplied only after each factor has been
+// checked, so that the product cannot wrap around. 2^28 float64 values are
+// 2 GiB, one allocation a test machine can make and fill; a table or bias
+// beyond it (an ALiBi bias of 2^17 × 2^17, a sinusoidal table of 2^31
+// positions) is a typo, not a test, and would otherwise end the program
+// with an out-of-memory crash no caller can recover from. Every golden and
+// test case of the package is far inside it; results computed from a
+// caller's slice (Rotary.Apply, Sinusoidal.Add) are as large as that slice.
+const MaxElements = 1 << 28
+
+// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
+// no value to set.
+func nilReceiver(sentinel error, typ string) error {
+	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
+}

@@ -528,13 +528,13 @@ func TestErrors(t *testing.T) {
 		{"sinusoidal odd dim", func() error { _, err := Sinusoidal{Dim: 5}.Table(1, 0); return err }(), ErrDim, "posenc: invalid dimension: Sinusoidal.Table: Sinusoidal.Dim = 5; want an even number in 2 … MaxDim = 1048576"},
 		{"sinusoidal negative position", func() error { _, err := Sinusoidal{Dim: 4}.Table(1, -1); return err }(), ErrPosition, "posenc: invalid position: Sinusoidal.Table: offset = -1; want 0 ≤ position ≤ MaxPosition = 2147483647"},
 		{"sinusoidal beyond MaxPosition", func() error { _, err := Sinusoidal{Dim: 4}.Table(2, MaxPosition); return err }(), ErrPosition, "posenc: invalid position: Sinusoidal.Table: offset + n − 1 = 2147483648; want 0 ≤ position ≤ MaxPosition = 2147483647"},
-		{"sinusoidal negative n", func() error { _, err := Sinusoidal{Dim: 4}.Table(-1, 0); return err }(), ErrShape, "posenc: shape mismatch: Sinusoidal.Table: n = -1; want 0 ≤ n and n·Dim ≤ 2^40 (Dim = 4)"},
+		{"sinusoidal negative n", func() error { _, err := Sinusoidal{Dim: 4}.Table(-1, 0); return err }(), ErrShape, "posenc: shape mismatch: Sinusoidal.Table: n = -1; want 0 ≤ n and n·Dim ≤ MaxElements = 268435456 (Dim = 4)"},
 		{"sinusoidal base", func() error { _, err := Sinusoidal{Dim: 4, Base: 0.5}.Table(1, 0); return err }(), ErrBase, "posenc: invalid base: Sinusoidal.Table: Sinusoidal.Base = 0.5; want a finite number > 1"},
 		{"sinusoidal layout", func() error { _, err := Sinusoidal{Dim: 4, Layout: 7}.Table(1, 0); return err }(), ErrOption, "posenc: invalid option: Sinusoidal.Table: Sinusoidal.Layout = 7; want one of interleaved, concatenated"},
 		{"add shape", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 6), 1, 0); return err }(), ErrShape, "posenc: shape mismatch: Sinusoidal.Add: x has 6 elements; want a multiple of L·Dim = 1·4 = 4"},
 		{"add L", func() error { _, err := Sinusoidal{Dim: 4}.Add(make([]float64, 8), 0, 0); return err }(), ErrShape, "posenc: shape mismatch: Sinusoidal.Add: sequence length L = 0; want > 0"},
-		{"heads 0", func() error { _, err := ALiBiSlopes(0); return err }(), ErrHeads, "posenc: invalid heads: ALiBiSlopes: heads = 0; want > 0"},
-		{"heads < 0", func() error { _, err := ALiBiSlopes(-3); return err }(), ErrHeads, "posenc: invalid heads: ALiBiSlopes: heads = -3; want > 0"},
+		{"heads 0", func() error { _, err := ALiBiSlopes(0); return err }(), ErrHeads, "posenc: invalid heads: ALiBiSlopes: heads = 0; want 1 ≤ heads ≤ MaxElements = 268435456"},
+		{"heads < 0", func() error { _, err := ALiBiSlopes(-3); return err }(), ErrHeads, "posenc: invalid heads: ALiBiSlopes: heads = -3; want 1 ≤ heads ≤ MaxElements = 268435456"},
 		{"no slopes", func() error { _, err := ALiBiBias(nil, mask.Geometry{Lq: 1, Lk: 1}, mask.ALiBiCausal); return err }(), ErrHeads, "posenc: invalid heads: ALiBiBias: slopes has 0 elements; want one per head"},
 		{"NaN slope", func() error {
 			_, err := ALiBiBias([]float64{nan}, mask.Geometry{Lq: 1, Lk: 1}, mask.ALiBiCausal)
@@ -547,7 +547,7 @@ func TestErrors(t *testing.T) {
 		{"bias too large", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 30, Lk: 1 << 30}, mask.ALiBiCausal)
 			return err
-		}(), ErrShape, "posenc: shape mismatch: ALiBiBias: H·Lq·Lk = 1·1073741824·1073741824; want at most 2^40 elements"},
+		}(), ErrShape, "posenc: shape mismatch: ALiBiBias: H·Lq·Lk = 1·1073741824·1073741824; want at most MaxElements = 268435456 elements"},
 		{"bias align", func() error {
 			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1, Lk: 1, Align: 3}, mask.ALiBiCausal)
 			return err
@@ -624,6 +624,65 @@ func TestHugeSizesAreErrors(t *testing.T) {
 	assert.ErrorIs(t, err, ErrShape)
 	_, err = ALiBiBias([]float64{1, 1, 1}, mask.Geometry{Lq: math.MaxInt / 2, Lk: 3}, mask.ALiBiSymmetric)
 	assert.ErrorIs(t, err, ErrShape)
+}
+
+// TestMaxElements: every result this package sizes from its arguments
+// alone is refused beyond MaxElements = 2^28 elements, with the sentinel
+// and message of the one error style, before anything is allocated. Each
+// case below would otherwise allocate from 4 GiB (the rotary tables) to
+// 2^63 bytes (the slopes) and end the program.
+func TestMaxElements(t *testing.T) {
+	require.Equal(t, 1<<28, MaxElements)
+	tests := []struct {
+		name     string
+		call     func() error
+		sentinel error
+		want     string
+	}{
+		{"slopes of MaxInt heads", func() error { _, err := ALiBiSlopes(math.MaxInt); return err }, ErrHeads,
+			fmt.Sprintf("posenc: invalid heads: ALiBiSlopes: heads = %d; want 1 ≤ heads ≤ MaxElements = 268435456", math.MaxInt)},
+		{"slopes one past the limit", func() error { _, err := ALiBiSlopes(MaxElements + 1); return err }, ErrHeads,
+			"posenc: invalid heads: ALiBiSlopes: heads = 268435457; want 1 ≤ heads ≤ MaxElements = 268435456"},
+		{"ALiBi bias 2^17 × 2^17", func() error {
+			_, err := ALiBiBias([]float64{1}, mask.Geometry{Lq: 1 << 17, Lk: 1 << 17}, mask.ALiBiCausal)
+			return err
+		}, ErrShape, "posenc: shape mismatch: ALiBiBias: H·Lq·Lk = 1·131072·131072; want at most MaxElements = 268435456 elements"},
+		{"ALiBi bias, heads push it over", func() error {
+			// 2·2^14·2^14 = 2^29: each factor fits, the product does not.
+			_, err := ALiBiBias([]float64{1, 1}, mask.Geometry{Lq: 1 << 14, Lk: 1 << 14}, mask.ALiBiSymmetric)
+			return err
+		}, ErrShape, "posenc: shape mismatch: ALiBiBias: H·Lq·Lk = 2·16384·16384; want at most MaxElements = 268435456 elements"},
+		{"sinusoidal table of 2^31 positions", func() error { _, err := Sinusoidal{Dim: 2}.Table(1<<31, 0); return err }, ErrShape,
+			"posenc: shape mismatch: Sinusoidal.Table: n = 2147483648; want 0 ≤ n and n·Dim ≤ MaxElements = 268435456 (Dim = 2)"},
+		{"sinusoidal add of a long table", func() error { _, err := Sinusoidal{Dim: 1 << 10}.Add(nil, 1<<18+1, 0); return err }, ErrShape,
+			"posenc: shape mismatch: Sinusoidal.Add: L = 262145; want 0 ≤ L and L·Dim ≤ MaxElements = 268435456 (Dim = 1024)"},
+		{"rotary tables", func() error { _, _, err := Rotary{Dim: 1 << 16}.Tables(make([]int, 1<<13+1)); return err }, ErrShape,
+			"posenc: shape mismatch: Rotary.Tables: pos has 8193 elements; want len(pos)·r/2 ≤ MaxElements = 268435456 (r = 65536 rotated dims)"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			err := tc.call()
+			require.ErrorIs(t, err, tc.sentinel)
+			assert.EqualError(t, err, tc.want)
+		})
+	}
+}
+
+// TestNilReceivers: UnmarshalText on a nil pointer is an error wrapping
+// the type's sentinel, not a panic.
+func TestNilReceivers(t *testing.T) {
+	for _, tc := range []struct {
+		err  error
+		want string
+	}{
+		{(*Layout)(nil).UnmarshalText([]byte("interleaved")), "posenc: invalid option: Layout.UnmarshalText: receiver = nil; want a *Layout to set"},
+		{(*Pairing)(nil).UnmarshalText([]byte("adjacent")), "posenc: invalid option: Pairing.UnmarshalText: receiver = nil; want a *Pairing to set"},
+		{(*Method)(nil).UnmarshalText([]byte("none")), "posenc: invalid option: Method.UnmarshalText: receiver = nil; want a *Method to set"},
+		{(*Ramp)(nil).UnmarshalText([]byte("ratio")), "posenc: invalid option: Ramp.UnmarshalText: receiver = nil; want a *Ramp to set"},
+	} {
+		assert.ErrorIs(t, tc.err, ErrOption)
+		assert.EqualError(t, tc.err, tc.want)
+	}
 }
 
 func TestOptionNames(t *testing.T) {

@@ -38,7 +38,13 @@ func (p Pairing) MarshalText() ([]byte, error) { return pairingWords.Marshal(p) 
 
 // UnmarshalText sets p from its word; any other text is an error wrapping
 // ErrOption that lists the words.
-func (p *Pairing) UnmarshalText(b []byte) error { return pairingWords.Unmarshal(p, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (p *Pairing) UnmarshalText(b []byte) error {
+	if p == nil {
+		return nilReceiver(ErrOption, "Pairing")
+	}
+	return pairingWords.Unmarshal(p, b)
+}
 
 // Meaning returns one line saying what p means.
 func (p Pairing) Meaning() string { return pairingWords.Meaning(p) }
@@ -213,12 +219,16 @@ func (rs *resolved) tables(pos []int) (cos, sin []float64) {
 //	len(pos) = 0                  empty tables
 //	negative positions            allowed: the rotation by −m is the inverse
 //	|pos[t]| > MaxPosition        ErrPosition
+//	len(pos)·r/2 > MaxElements    ErrShape
 //	invalid configuration         the error of Apply
 func (c Rotary) Tables(pos []int) (cos, sin []float64, err error) {
 	const fn = "Rotary.Tables"
 	rs, err := c.resolve(fn)
 	if err != nil {
 		return nil, nil, err
+	}
+	if h := rs.r / 2; len(pos) > MaxElements/h {
+		return nil, nil, fmt.Errorf("%w: %s: pos has %d elements; want len(pos)·r/2 ≤ MaxElements = %d (r = %d rotated dims)", ErrShape, fn, len(pos), MaxElements, rs.r)
 	}
 	for t, m := range pos {
 		if err := checkPosition(fn, fmt.Sprintf("pos[%d]", t), m, true); err != nil {

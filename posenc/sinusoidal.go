@@ -34,7 +34,13 @@ func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
 
 // UnmarshalText sets l from its word; any other text is an error wrapping
 // ErrOption that lists the words.
-func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (l *Layout) UnmarshalText(b []byte) error {
+	if l == nil {
+		return nilReceiver(ErrOption, "Layout")
+	}
+	return layoutWords.Unmarshal(l, b)
+}
 
 // Meaning returns one line saying what l means.
 func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
@@ -92,7 +98,7 @@ func (s Sinusoidal) check(fn string) (float64, error) {
 //
 //	n = 0                         empty table
 //	position 0                    0, 1, 0, 1, … (Interleaved)
-//	n < 0 or n·Dim > 2^40         ErrShape
+//	n < 0 or n·Dim > MaxElements  ErrShape
 //	offset < 0                    ErrPosition (absolute positions start at 0)
 //	offset + n − 1 > MaxPosition  ErrPosition
 //	Dim odd, ≤ 0 or > MaxDim       ErrDim
@@ -108,8 +114,8 @@ func (s Sinusoidal) table(fn, nName string, n, offset int) ([]float64, error) {
 	if err != nil {
 		return nil, err
 	}
-	if n < 0 || n > maxElements/s.Dim {
-		return nil, fmt.Errorf("%w: %s: %s = %d; want 0 ≤ %s and %s·Dim ≤ 2^40 (Dim = %d)", ErrShape, fn, nName, n, nName, nName, s.Dim)
+	if n < 0 || n > MaxElements/s.Dim {
+		return nil, fmt.Errorf("%w: %s: %s = %d; want 0 ≤ %s and %s·Dim ≤ MaxElements = %d (Dim = %d)", ErrShape, fn, nName, n, nName, nName, MaxElements, s.Dim)
 	}
 	if err := checkPosition(fn, "offset", offset, false); err != nil {
 		return nil, err
