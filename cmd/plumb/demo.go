@@ -1,13 +1,16 @@
 package main
 
 import (
+	"encoding/json"
 	"flag"
 	"fmt"
 	"io"
 	"math"
+	"strings"
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/diagnose"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/ops"
@@ -126,9 +129,27 @@ func reference[T float32 | float64](q, k, v []T, pairing posenc.Pairing) ([]T, e
 
 // demoResult is what the demo found, for its test.
 type demoResult struct {
-	buggy, fixed                 *compare.Report
-	rotaryAdjacent, rotaryHalves *compare.Report // the port's rotated q against each pairing
-	perPosition                  []float64       // the buggy port's max abs error at each query position
+	buggy, fixed *compare.Report
+	perPosition  []float64 // the buggy port's max abs error at each query position
+	// The searches of step 2: the port's rotary step on q and on k, and
+	// its attention step on its own rotated q and k; named is the first
+	// change of the rotary step on q under which the port passes (nil:
+	// none).
+	rotaryQ, rotaryK, attention *diagnosis
+	named                       *diagnose.Candidate
+}
+
+// slip is the change the demo's port makes, in the words of the search:
+// its rotary step pairs the dims (i, i + d/2).
+var slip = fmt.Sprintf("%q: %q", "pairing", posenc.PairHalves.String())
+
+// caught reports whether the demonstration went as described: the port
+// fails, the search names its slip first on both rotary steps and finds
+// nothing wrong with its attention step, and the corrected port passes.
+func (r *demoResult) caught() bool {
+	first := func(d *diagnosis) bool { c := firstPassing(d); return c != nil && c.Change == slip }
+	return passWord(r.buggy) == "FAIL" && first(r.rotaryQ) && first(r.rotaryK) && r.named != nil &&
+		r.attention.Result != nil && r.attention.Result.Given.Pass && passWord(r.fixed) == "PASS"
 }
 
 // demo is one run of the demonstration: its inputs (float32 values, held
@@ -154,7 +175,7 @@ func runDemo(w io.Writer, quiet bool, e *env) (*demoResult, error) {
 		return nil, err
 	}
 	d.wherePositions(buggy)
-	if err := d.narrowDown(); err != nil {
+	if err := d.engine(); err != nil {
 		return nil, err
 	}
 	if err := d.checkFix(); err != nil {
@@ -242,55 +263,143 @@ func (d *demo) wherePositions(buggy []float64) {
 	}
 }
 
-// narrowDown compares the port's rotary step on q with plumb's under each
-// pairing.
-func (d *demo) narrowDown() error {
+// The configurations of the block's two steps, as ops reads them.
+const (
+	demoRotaryConfig    = `{"version": 1, "base": 10000}`
+	demoAttentionConfig = `{"version": 1, "mask": [{"kind": "causal"}]}`
+)
+
+// engine is step 2: each step of the port checked against the
+// configuration the block uses, and searched where it fails, as plumb
+// check does (package diagnose).
+func (d *demo) engine() error {
 	worst := d.res.buggy.Worst[0].Index
 	fmt.Fprintf(d.w, `
+2. What the port did
+
 The worst element is head %d, position %d, dim %d. Position 0 is exact only
 because a causal query 0 sees key 0 alone (its output is v₀ whatever the
 logits); from position 1 on the errors are far beyond rounding, so the
-logits are wrong. Narrow it down: the port's rotary step, on q, against
-plumb's (ops "rotary-apply", float32 yardstick):
-`, worst[1], worst[2], worst[3])
-	qPort := num.Convert[float32](d.q)
-	portRotary(qPort, demoHeadsQ, true)
-	rotated := compare.Widen(qPort)
-	for _, p := range []struct {
-		word, pairs string
-		report      **compare.Report
-	}{
-		{"adjacent", "(2i, 2i+1)", &d.res.rotaryAdjacent},
-		{"halves", "(i, i + d/2)", &d.res.rotaryHalves},
-	} {
-		cfg := []byte(`{"version": 1, "base": 10000, "pairing": "` + p.word + `"}`)
-		in := ops.Tensors{"x": {Shape: d.shapeQ, Data: d.q}}
-		want, err := ops.Run("rotary-apply", cfg, in)
-		if err != nil {
-			return err
-		}
-		ys, err := ops.Yardstick("rotary-apply", cfg, in, compare.Float32, compare.DefaultK)
-		if err != nil {
-			return err
-		}
-		r, err := compare.Diff(want["y"].Data, rotated, d.shapeQ, ys["y"].Options())
-		if err != nil {
-			return err
-		}
-		*p.report = r
-		first, rest := maxByPosition(want["y"].Data, rotated)
-		fmt.Fprintf(d.w, "  %-10s pairs %-13s normwise error %-9.3g %s  (max error at position 0: %.3g; at 1 … %d: %.3g)\n",
-			`"`+p.word+`"`, p.pairs, r.Normwise, passWord(r), first, demoLen-1, rest)
+logits are wrong. The block is two of plumb's operations, rotary-apply and
+attention-forward. Each step of the port is checked against the
+configuration the block uses, as plumb check does, and where it fails
+plumb searches the alternatives of that configuration and of the tensors'
+reading (package diagnose) for those under which the port passes.
+
+The port's rotary step on q, against rotary-apply %s;
+the section plumb check prints after a failing report:
+
+`, worst[1], worst[2], worst[3], demoRotaryConfig)
+	q32, k32 := num.Convert[float32](d.q), num.Convert[float32](d.k)
+	portRotary(q32, demoHeadsQ, true)
+	portRotary(k32, demoHeadsKV, true)
+	qPort, kPort := compare.Widen(q32), compare.Widen(k32)
+	r := &d.res
+	r.rotaryQ, r.rotaryK, r.attention = &diagnosis{}, &diagnosis{}, &diagnosis{}
+	search(r.rotaryQ, "rotary-apply", []byte(demoRotaryConfig), ops.Tensors{"x": {Shape: d.shapeQ, Data: d.q}},
+		ops.Tensors{"y": {Shape: d.shapeQ, Data: qPort}}, compare.Float32, compare.DefaultK)
+	search(r.rotaryK, "rotary-apply", []byte(demoRotaryConfig), ops.Tensors{"x": {Shape: d.shapeKV, Data: d.k}},
+		ops.Tensors{"y": {Shape: d.shapeKV, Data: kPort}}, compare.Float32, compare.DefaultK)
+	in := ops.Tensors{"q": {Shape: d.shapeQ, Data: qPort}, "k": {Shape: d.shapeKV, Data: kPort}, "v": {Shape: d.shapeKV, Data: d.v}}
+	out := compare.Widen(portAttention(q32, k32, num.Convert[float32](d.v)))
+	search(r.attention, "attention-forward", []byte(demoAttentionConfig), in,
+		ops.Tensors{"out": {Shape: d.shapeQ, Data: out}}, compare.Float32, compare.DefaultK)
+	if err := writeDiagnosis(d.w, r.rotaryQ); err != nil {
+		return err
+	}
+	fmt.Fprintf(d.w, "\nThe port's rotary step on k, searched the same way:\n%s", summary(r.rotaryK))
+	fmt.Fprintf(d.w, "Its attention step, on its own rotated q and k, against attention-forward\n%s:\n%s\n", demoAttentionConfig, summary(r.attention))
+
+	r.named = firstPassing(r.rotaryQ)
+	if r.named == nil {
+		fmt.Fprintf(d.w, "plumb names no change of the rotary step under which the port passes.\n")
+		return nil
+	}
+	rot, err := ops.Lookup("rotary-apply")
+	if err != nil {
+		return err
+	}
+	lead := "The attention step is right: the slip is in the rotary step, and plumb names it."
+	if r.attention.Result == nil || !r.attention.Result.Given.Pass {
+		lead = "The rotary step's slip, as plumb names it:"
+	}
+	fmt.Fprintf(d.w, "%s\n%s", lead, wordChanges(rot, []byte(demoRotaryConfig), r.named.Config))
+	return nil
+}
+
+// firstPassing returns the first candidate of d that the port passes, or
+// nil.
+func firstPassing(d *diagnosis) *diagnose.Candidate {
+	if d.Result == nil {
+		return nil
+	}
+	if p := d.Result.Passing(); len(p) > 0 {
+		return &p[0]
 	}
 	return nil
 }
 
-// checkFix is step 2: the port with the pairing the model was trained with.
-func (d *demo) checkFix() error {
-	fmt.Fprintf(d.w, `The port pairs dims (i, i + d/2) where the model was trained with
-(2i, 2i+1). The fix is one line of the port's rotary loop.
+// summary is one search in indented lines: the verdict as configured and,
+// when it fails, the first candidate.
+func summary(d *diagnosis) string {
+	if d.Result == nil {
+		return "  the search could not run: " + d.Error + "\n"
+	}
+	g := d.Result.Given
+	given := "  as configured: " + verdictLine(g.Pass, true, g.Normwise, g.Outputs)
+	switch {
+	case g.Pass:
+		return given + ": nothing to diagnose\n"
+	case len(d.Result.Candidates) == 0:
+		return given + "\n  no alternative found\n"
+	}
+	c := d.Result.Candidates[0]
+	return fmt.Sprintf("%s\n  the first candidate: %s: %s\n", given, c.Change, verdictLine(c.Pass, c.Measured, c.Normwise, c.Outputs))
+}
 
-2. The corrected port
+// wordChanges lists the word keys of the operation o whose values differ
+// between the configurations given and cand, two lines each: the port's
+// word and the block's, with their meanings (from o's keys).
+func wordChanges(o ops.Op, given, cand []byte) string {
+	var g, c map[string]any
+	if json.Unmarshal(given, &g) != nil || json.Unmarshal(cand, &c) != nil {
+		return ""
+	}
+	var b strings.Builder
+	for _, k := range o.Keys() {
+		if k.Type != "word" || len(k.Words) == 0 || strings.ContainsAny(k.Name, ".[") {
+			continue
+		}
+		word := func(m map[string]any) string {
+			if w, ok := m[k.Name].(string); ok {
+				return w
+			}
+			return k.Words[0].Text // the default
+		}
+		from, to := word(g), word(c)
+		if from == to {
+			continue
+		}
+		meaning := func(w string) string {
+			for _, x := range k.Words {
+				if x.Text == w {
+					return x.Meaning
+				}
+			}
+			return ""
+		}
+		a, z := fmt.Sprintf("%q: %q", k.Name, to), fmt.Sprintf("%q: %q", k.Name, from)
+		width := max(len(a), len(z))
+		fmt.Fprintf(&b, "  the port:  %-*s  %s\n  the block: %-*s  %s\n", width, a, meaning(to), width, z, meaning(from))
+	}
+	return b.String()
+}
+
+// checkFix is step 3: the port with the pairing the model was trained with.
+func (d *demo) checkFix() error {
+	fmt.Fprintf(d.w, `The fix is one line of the port's rotary loop.
+
+3. The corrected port
 
 `)
 	var err error
@@ -336,10 +445,14 @@ func init() {
 Runs a scenario embedded in plumb, with no files: a small float32 port of a
 decoder attention block (rotary encoding on q and k, then causal grouped
 attention) whose author paired the rotary dims the other way. plumb checks
-it against the float64 reference under the float32 yardstick, shows where
-the error is worst, identifies the convention, and checks the corrected
-port. Every number is computed when it runs. Exit status 0 when the bug is
-caught and the fix passes, 1 otherwise.
+it against the float64 reference under the float32 yardstick and shows
+where the error is worst; then it checks each step of the port (the rotary
+step on q and on k, the attention step) against its operation and, where a
+step fails, searches the alternatives of its configuration as plumb check
+does on a failing port, which names the convention the port followed;
+last it checks the corrected port. Every number is computed when it runs.
+Exit status 0 when the slip is caught and named and the fix passes, 1
+otherwise.
 `,
 		flags: func(fs *flag.FlagSet) any {
 			o := &demoOptions{}
@@ -353,24 +466,10 @@ caught and the fix passes, 1 otherwise.
 			if err != nil {
 				return exitUsage, err
 			}
-			if passWord(res.buggy) == "FAIL" && passWord(res.fixed) == "PASS" {
+			if res.caught() {
 				return exitPass, nil
 			}
 			return exitFail, nil
 		},
 	})
-}
-
-// maxByPosition returns the max |got − ref| of a [1, heads, length, dim]
-// tensor at position 0 and over the other positions.
-func maxByPosition(ref, got []float64) (first, rest float64) {
-	for i := range ref {
-		e := math.Abs(got[i] - ref[i])
-		if i/demoDim%demoLen == 0 {
-			first = math.Max(first, e)
-		} else {
-			rest = math.Max(rest, e)
-		}
-	}
-	return first, rest
 }

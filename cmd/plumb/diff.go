@@ -9,6 +9,7 @@ import (
 	"slices"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/ops"
 )
 
 // judgeFlags are the flags diff and check share: the tolerance, the
@@ -163,7 +164,13 @@ func runDiff(e *env, opts any, args []string) (int, error) {
 	if err != nil {
 		return exitUsage, err
 	}
-	if err := writeReports(e.stdout, o.json, []namedReport{{Name: "", Reference: ref.path, Candidate: got.path, Report: rep}}); err != nil {
+	nr := namedReport{Reference: ref.path, Candidate: got.path, Report: rep}
+	if o.json {
+		err = writeJSON(e.stdout, nr)
+	} else {
+		err = writeReports(e.stdout, []namedReport{nr})
+	}
+	if err != nil {
 		return exitUsage, err
 	}
 	if o.heatmap != "" {
@@ -192,19 +199,20 @@ type namedReport struct {
 	Reference string          `json:"reference"`
 	Candidate string          `json:"candidate"`
 	Report    *compare.Report `json:"report"`
+
+	got    ops.Tensor     // check: the candidate as read
+	format compare.Format // check: its format
 }
 
-// writeReports prints the reports as text, or as one JSON object (diff)
-// or array (check).
-func writeReports(w io.Writer, asJSON bool, reps []namedReport) error {
-	if asJSON {
-		enc := json.NewEncoder(w)
-		enc.SetIndent("", "  ")
-		if len(reps) == 1 && reps[0].Name == "" {
-			return enc.Encode(reps[0])
-		}
-		return enc.Encode(reps)
-	}
+// writeJSON writes v as indented JSON.
+func writeJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
+}
+
+// writeReports prints the reports as text.
+func writeReports(w io.Writer, reps []namedReport) error {
 	for i, r := range reps {
 		if i > 0 {
 			fmt.Fprintln(w)

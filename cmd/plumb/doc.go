@@ -52,6 +52,20 @@
 // two dimensions) that holds the worst element, with labelled axes and
 // colour scale.
 //
+// When an output of check fails, check also searches for what the port may
+// have done (package github.com/plumbref/plumb/diagnose) and prints it after
+// the reports under "What the port may have done": the changes of the
+// configuration, in its own words ("group": "cycle", "pairing":
+// "halves"), and the tensor mix-ups (k and v swapped, a tensor read in
+// the other layout) under which the port passes its yardstick, simplest
+// first, with their normwise errors, and the error signatures of the
+// failing outputs along the positions, heads and dims. The search is bounded
+// (at most 96 configurations, each on at most 16384 input values: a larger
+// problem is cut to its first batch entries or rows, and the section says
+// so), judges float64 candidates by the float32 yardstick, and never changes
+// the exit status; -no-diagnosis leaves it out. check -json writes one
+// object: "outputs", the reports, and "diagnosis", the search as data.
+//
 // plumb gen's generator is PCG-DXSM (128-bit state hi = seed, lo = 0) with
 // uniform values (x >> 11)·2⁻⁵³ and normal values by the Box–Muller
 // transform; plumb help gen states it exactly, with the first values for

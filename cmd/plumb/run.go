@@ -3,10 +3,12 @@ package main
 import (
 	"flag"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"time"
@@ -124,7 +126,7 @@ written. A failed run leaves the files of an earlier run as they were and
 no temporary behind.
 `, ops.MaxConfigBytes)
 
-const checkAbout = `
+var checkAbout = fmt.Sprintf(`
 Runs OPERATION as plumb run does, then compares each candidate given with
 -got OUTPUT=FILE.npy (a port's output, on the same inputs) with the
 reference output of that name, as plumb diff does. Exit status 0 when every
@@ -142,7 +144,29 @@ runs on the inputs rounded to that format, its output is rounded to the
 format, and a candidate may be at most -k times as far from the reference
 plus one rounding to the format (absolute, and normwise). A float64
 candidate gets the default tolerance below.
-` + toleranceAbout
+
+When an output fails, check searches for what the port may have done and
+prints it after the reports, under "`+diagnosisTitle+`" (package
+diagnose): every other word of every convention key of the operation, the
+common alternatives of its numeric keys (the logit scale, ε, the rotary
+base, offsets, window sizes, …), tensors swapped, transposed or read in
+the other layout, and pairs of the most promising of these. It names the
+changes under which the port passes its yardstick, in the configuration's
+own words ("group": "cycle"), simplest first, with their normwise errors
+(the nearest when none passes), and the error signatures of the failing
+outputs: how the error runs along the positions, the heads and the dims.
+The port is judged by the yardstick of the candidates' format (of the
+narrowest when they differ; float32 for float64 candidates, which have
+none), whatever the tolerance flags, and -k applies. The search runs at
+most %d configurations, each on at most %d input values: a larger
+problem is cut to its first batch entries or rows, and the section says
+which. It never changes the exit status; -no-diagnosis leaves it out.
+
+With -json the output is one object: "outputs", the report of each
+candidate in the order of the operation's outputs, and "diagnosis", the
+search's result as data (absent when every output passes or with
+-no-diagnosis).
+`, diagnosisCandidates, diagnosisElements) + toleranceAbout
 
 func init() {
 	commands = append(commands, &command{
@@ -207,8 +231,9 @@ func runRun(e *env, opts any, args []string) (int, error) {
 type checkOptions struct {
 	runOptions
 	judgeFlags
-	k   float64
-	got []string
+	k           float64
+	got         []string
+	noDiagnosis bool
 }
 
 func checkFlags(fs *flag.FlagSet) any {
@@ -220,6 +245,7 @@ func checkFlags(fs *flag.FlagSet) any {
 		o.got = append(o.got, s)
 		return nil
 	})
+	fs.BoolVar(&o.noDiagnosis, "no-diagnosis", false, "when an output fails, do not search for the configuration the port may have used\n(the section "+strconv.Quote(diagnosisTitle)+")")
 	return o
 }
 
@@ -245,14 +271,44 @@ func runCheck(e *env, opts any, args []string) (int, error) {
 			reports = append(reports, *rep)
 		}
 	}
-	if err := writeReports(e.stdout, o.json, reports); err != nil {
-		return exitUsage, err
-	}
 	var reps []*compare.Report
 	for _, r := range reports {
 		reps = append(reps, r.Report)
 	}
-	return verdictStatus(reps...), nil
+	code := verdictStatus(reps...)
+	var diag *diagnosis
+	if code == exitFail && !o.noDiagnosis {
+		done := progress(e, o.quiet, "searching what the port may have done")
+		diag = diagnoseCheck(r, reports, o.k)
+		done()
+	}
+	if err := writeCheck(e.stdout, o.json, reports, diag); err != nil {
+		return exitUsage, err
+	}
+	return code, nil
+}
+
+// checkJSON is what check -json writes: the report of every candidate, in
+// the order of the operation's outputs, and the diagnosis when one ran.
+type checkJSON struct {
+	Outputs   []namedReport `json:"outputs"`
+	Diagnosis *diagnosis    `json:"diagnosis,omitempty"`
+}
+
+// writeCheck prints the reports and, when one ran, the diagnosis, as text
+// or as one JSON object (checkJSON).
+func writeCheck(w io.Writer, asJSON bool, reports []namedReport, diag *diagnosis) error {
+	if asJSON {
+		return writeJSON(w, checkJSON{Outputs: reports, Diagnosis: diag})
+	}
+	if err := writeReports(w, reports); err != nil {
+		return err
+	}
+	if diag == nil {
+		return nil
+	}
+	fmt.Fprintln(w)
+	return writeDiagnosis(w, diag)
 }
 
 // candidates checks -k and the -got flags, and returns the candidate file
@@ -323,7 +379,7 @@ func (j *judge) output(name, path string) (*namedReport, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &namedReport{Name: name, Reference: "plumb " + j.r.op.Name(), Candidate: got.path, Report: rep}, nil
+	return &namedReport{Name: name, Reference: "plumb " + j.r.op.Name(), Candidate: got.path, Report: rep, got: got.tensor, format: f}, nil
 }
 
 // options are the comparison options for a candidate of format f for the
