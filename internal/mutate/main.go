@@ -169,7 +169,7 @@ func apply(m Mutant, tmp string) (outcome, string) {
 	if err != nil {
 		return notApplied, err.Error()
 	}
-	if n := bytes.Count(src, []byte(m.Old)); n != 1 {
+	if n := countOf(string(src), m.Old); n != 1 {
 		return notApplied, fmt.Sprintf("the old text occurs %d times; want exactly once", n)
 	}
 	abs, err := filepath.Abs(m.File)
@@ -200,6 +200,9 @@ func apply(m Mutant, tmp string) (outcome, string) {
 	}
 	return killed, ""
 }
+
+// countOf is the number of non-overlapping occurrences of old in s.
+func countOf(s, old string) int { return strings.Count(s, old) }
 
 func lastLines(s string, n int) string {
 	l := strings.Split(strings.TrimSpace(s), "\n")
