@@ -24,8 +24,10 @@ type change struct {
 
 // generate lists the single changes of the operation's keys and inputs:
 // the words of every word key, the common values of the numeric keys, the
-// tensor mix-ups, and last the query offsets, nearest first.
-func generate(o ops.Op, cfg map[string]any, in ops.Tensors) [][]change {
+// tensor mix-ups, and last the query offsets, nearest first. in is the
+// problem the candidates run on, full the whole problem (whose query and
+// key counts place the offsets).
+func generate(o ops.Op, cfg map[string]any, in, full ops.Tensors) [][]change {
 	var words, numbers, offsets [][]change
 	for _, k := range o.Keys() {
 		if list, field, ok := strings.Cut(k.Name, "[]."); ok {
@@ -59,7 +61,7 @@ func generate(o ops.Op, cfg map[string]any, in ops.Tensors) [][]change {
 			words = append(words, one(set(k.Name, path, !b, "")))
 		case "int", "number":
 			if path[len(path)-1] == "offset" && isGeometry(o.Name()) {
-				offsets = append(offsets, offsetChanges(o.Name(), cfg, in)...)
+				offsets = append(offsets, offsetChanges(o.Name(), cfg, full)...)
 				continue
 			}
 			numbers = append(numbers, numericChanges(k, path, cur, present, cfg, in)...)

@@ -29,9 +29,10 @@ type Options struct {
 	// Candidates past it are counted in Result.LeftOut, never run.
 	MaxCandidates int
 	// MaxElements bounds the problem the candidates run on, counted in
-	// input elements. A larger problem is cut along its leading axis
-	// (batch entries, rows) to the first entries that fit, at least one;
-	// Result.SubProblem says what was kept. 0 means DefaultMaxElements.
+	// input elements. A larger problem is cut to a part that fits where
+	// the operation allows (batch entries, heads, queries, rows; see the
+	// package documentation); Result.Cuts and Result.SubProblem say what
+	// was kept. 0 means DefaultMaxElements.
 	MaxElements int
 	// Pairs is the number of most promising single changes (the best of
 	// each key or mix-up, lowest normwise error first) that are combined
@@ -87,7 +88,13 @@ type Result struct {
 	Given Verdict `json:"as_given"`
 	// SubProblem, when not empty, says which part of the problem the
 	// candidates ran on ("batch entries 0–0 of 8"); empty: the whole.
-	SubProblem string      `json:"sub_problem,omitempty"`
+	SubProblem string `json:"sub_problem,omitempty"`
+	// Cuts names the axes the sub-problem was cut along, in the order
+	// cut: "batch", "heads" (query heads with the kv heads they read),
+	// "queries" (the first queries with the keys they see, at their
+	// positions in the whole problem), "rows", "leading axis"; empty: the
+	// whole problem.
+	Cuts       []string    `json:"cuts,omitempty"`
 	Run        int         `json:"candidates_run"`            // candidate configurations run
 	NoEffect   int         `json:"candidates_without_effect"` // they gave the reference of the configuration as given
 	Refused    int         `json:"candidates_refused"`        // the operation refused them, or their outputs had another size
@@ -248,17 +255,22 @@ func Run(op string, config []byte, in ops.Tensors, got ops.Tensors, f compare.Fo
 		}
 	}
 
-	sub, subGot, note := cut(op, cfg, in, got, opt.MaxElements)
-	res.SubProblem = note
-	s := &search{op: o, opt: opt, f: f, cfg: cfg, in: sub, got: subGot, seen: map[uint64]int{}, tried: map[string]bool{}}
-	base, err := o.Run(config, sub)
+	sp := cut(op, cfg, in, got, opt.MaxElements)
+	base, err := runSub(o, sp, config)
 	if err != nil {
-		return nil, err
+		// The operation refuses the configuration on the sub-problem (a
+		// mask that names positions past its keys): the whole problem.
+		sp = whole(in, got)
+		if base, err = o.Run(config, in); err != nil {
+			return nil, err
+		}
 	}
-	s.baseHash = hashOutputs(base, subGot)
-	singles := generate(o, cfg, sub)
+	res.SubProblem, res.Cuts = sp.note, sp.cuts
+	s := &search{op: o, opt: opt, f: f, cfg: cfg, in: sp.in, got: sp.got, sub: sp, seen: map[uint64]int{}, tried: map[string]bool{}}
+	s.baseHash = hashOutputs(base, sp.got)
+	singles := generate(o, cfg, sp.in, in)
 	s.baseNW = map[string]float64{}
-	for n, t := range subGot {
+	for n, t := range sp.got {
 		s.baseNW[n] = normwise(base[n].Data, t.Data)
 	}
 	// Single changes may take all but the budget of the pairs.
@@ -276,6 +288,16 @@ func Run(op string, config []byte, in ops.Tensors, got ops.Tensors, f compare.Fo
 		res.Candidates = append(res.Candidates, c.Candidate)
 	}
 	return res, nil
+}
+
+// runSub runs the operation on the sub-problem under the configuration
+// of the whole problem.
+func runSub(o ops.Op, sp subProblem, config []byte) (ops.Tensors, error) {
+	c, err := sp.run(config)
+	if err != nil {
+		return nil, err
+	}
+	return o.Run(c, sp.in)
 }
 
 // compact returns config without insignificant space, or as given when it
@@ -428,6 +450,7 @@ type search struct {
 	f        compare.Format
 	cfg      map[string]any
 	in, got  ops.Tensors
+	sub      subProblem // turns a candidate's configuration into the one it runs on
 	baseHash uint64
 	baseNW   map[string]float64 // normwise error of the configuration as given, per output
 	tried    map[string]bool    // pairs already listed
@@ -444,6 +467,7 @@ type cand struct {
 	Candidate
 	changes []change
 	in      ops.Tensors
+	runCfg  []byte      // the configuration on the sub-problem
 	ref     ops.Tensors // after the output transforms
 }
 
@@ -481,7 +505,12 @@ func (s *search) eval(cs []change) {
 		s.refused++
 		return
 	}
-	out, err := s.op.Run(cfg, in)
+	runCfg, err := s.sub.run(cfg)
+	if err != nil {
+		s.refused++
+		return
+	}
+	out, err := s.op.Run(runCfg, in)
 	if err != nil {
 		s.refused++
 		return
@@ -495,7 +524,7 @@ func (s *search) eval(cs []change) {
 	for _, c := range cs {
 		names = append(names, c.text)
 	}
-	c := &cand{Candidate: Candidate{Change: strings.Join(names, "; "), Changes: names, Config: cfg}, changes: cs, in: in, ref: out}
+	c := &cand{Candidate: Candidate{Change: strings.Join(names, "; "), Changes: names, Config: cfg}, changes: cs, in: in, runCfg: runCfg, ref: out}
 	for _, n := range sortedNames(s.got) {
 		r, ok := out[n]
 		if !ok || len(r.Data) != len(s.got[n].Data) {
@@ -663,7 +692,7 @@ func (s *search) confirm() error {
 		if i >= s.opt.Confirm {
 			break
 		}
-		ys, err := ops.Yardstick(s.op.Name(), c.Config, c.in, s.f, s.opt.K)
+		ys, err := ops.Yardstick(s.op.Name(), c.runCfg, c.in, s.f, s.opt.K)
 		if err != nil {
 			continue // the candidate has no yardstick in this format; left unmeasured
 		}

@@ -32,10 +32,24 @@
 // earlier one are listed under it (Candidate.Same).
 //
 // The cost is bounded by Options: the number of candidates, and the size
-// of the problem the candidates run on (a larger problem is cut to its
-// first batch entries or rows, Result.SubProblem). On the problems of the
-// tests, a search costs a few times one check (reference, yardstick and
-// comparison); TestCostWithinTenChecks measures it.
+// of the problem the candidates run on. A larger problem is cut where the
+// operation's outputs allow it (Result.Cuts names the axes, and
+// Result.SubProblem what was kept): attention to its first batch entries,
+// then to four query heads with the two kv heads they read, chosen so that
+// both group maps of the sub-problem are those of the whole problem on
+// them, then to its first queries with the keys they see (two more for an
+// edge one or two keys late), the configuration rewritten so that they sit
+// at their positions in the whole problem; the row-wise operations to
+// their first rows (every axis but the last counts rows). Outputs that sum
+// over what was cut (dk and dv over query heads and queries, dweight over
+// rows) are left out of the comparison. Mix-ups that move data across the
+// cut axes (a tensor read in the other layout, ALiBi slopes reversed) are
+// recognisable only on the whole problem: with ALiBi slopes the heads are
+// not cut. Candidates are always described in the words of the whole
+// problem's configuration. On the problems of the tests, batch of one
+// included, a search costs a few times one check (reference, yardstick
+// and comparison); TestCostWithinTenChecks and TestCostBatchOne measure
+// it.
 //
 // Every failing output also gets error signatures, computed on the whole
 // problem: the largest error along the positions (exact at position 0,

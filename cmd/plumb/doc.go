@@ -61,8 +61,8 @@
 // first, with their normwise errors, and the error signatures of the
 // failing outputs along the positions, heads and dims. The search is bounded
 // (at most 96 configurations, each on at most 16384 input values: a larger
-// problem is cut to its first batch entries or rows, and the section says
-// so), judges float64 candidates by the float32 yardstick, and never changes
+// problem is cut to a sub-problem of batch entries, query heads with their
+// kv heads, leading queries or rows, and the section says so), judges float64 candidates by the float32 yardstick, and never changes
 // the exit status; -no-diagnosis leaves it out. check -json writes one
 // object: "outputs", the reports, and "diagnosis", the search as data.
 //

@@ -159,8 +159,9 @@ The port is judged by the yardstick of the candidates' format (of the
 narrowest when they differ; float32 for float64 candidates, which have
 none), whatever the tolerance flags, and -k applies. The search runs at
 most %d configurations, each on at most %d input values: a larger
-problem is cut to its first batch entries or rows, and the section says
-which. It never changes the exit status; -no-diagnosis leaves it out.
+problem is cut to a sub-problem (batch entries, query heads with the kv
+heads they read, leading queries with the keys they see, or rows), and
+the section says which. It never changes the exit status; -no-diagnosis leaves it out.
 
 With -json the output is one object: "outputs", the report of each
 candidate in the order of the operation's outputs, and "diagnosis", the

@@ -1,0 +1,73 @@
+package diagnose
+
+import (
+	"slices"
+	"testing"
+	"time"
+
+	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/ops"
+	"github.com/stretchr/testify/require"
+)
+
+// costRatio runs one check and one diagnosis of the port's outputs got
+// alternately, three times each, and returns the median diagnosis time
+// over the median check time, with the last diagnosis.
+func costRatio(t *testing.T, op string, cfg []byte, in, got ops.Tensors) (float64, *Result) {
+	t.Helper()
+	var checks, diags []time.Duration
+	var res *Result
+	for range 3 {
+		s := time.Now()
+		require.False(t, check(t, op, cfg, in, got, compare.Float32), "the slipped port fails its check")
+		checks = append(checks, time.Since(s))
+		s = time.Now()
+		var err error
+		res, err = Run(op, cfg, in, got, compare.Float32, Options{})
+		require.NoError(t, err)
+		diags = append(diags, time.Since(s))
+	}
+	slices.Sort(checks)
+	slices.Sort(diags)
+	ratio := float64(diags[1]) / float64(checks[1])
+	t.Logf("%s: one check %v, diagnosis %v (medians of 3): %.2f checks; cuts %v: %s; %d candidates run, %d left out",
+		op, checks[1], diags[1], ratio, res.Cuts, res.SubProblem, res.Run, res.LeftOut)
+	return ratio, res
+}
+
+// TestCostBatchOne: a batch of one entry cannot be cut along its leading
+// axis; the diagnosis cuts heads and queries instead and still costs at
+// most 10 checks and names the slip first. Grouped-query attention with 8
+// query heads on 2 kv heads, 128 queries and keys, head dimension 64, the
+// port reading kv head h mod 2 instead of h/4 (a "cycle" group map).
+func TestCostBatchOne(t *testing.T) {
+	if testing.Short() {
+		t.Skip("timing")
+	}
+	t.Run("attention-forward", func(t *testing.T) {
+		in := attnInputs(1, 8, 2, 128, 128, 64, 5)
+		a := attnBase(1, 8, 2, 128, 128, 64)
+		a.kv = func(h int) int { return h % 2 }
+		out, lse := a.forward(t32(in, "q"), t32(in, "k"), t32(in, "v"))
+		got := ops.Tensors{"out": {Data: to64(out)}, "lse": {Data: to64(lse)}}
+		ratio, res := costRatio(t, "attention-forward", []byte(`{"version":1,"mask":[{"kind":"causal"}]}`), in, got)
+		require.Contains(t, res.Cuts, "heads")
+		require.Contains(t, res.Cuts, "queries")
+
+		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
+		require.LessOrEqual(t, ratio, 10.0)
+	})
+	t.Run("layernorm-forward", func(t *testing.T) {
+		// A batch of one sequence of 1024 rows of 512: ε placed outside
+		// the root.
+		const rows, d = 1024, 512
+		in := ops.Tensors{"x": tensor([]int{1, rows, d}, 11), "weight": {Shape: []int{d}, Data: uniform(12, d, 0.5, 1.5)}, "bias": tensor([]int{d}, 13)}
+		n := normPort{d: d, eps: 1e-5, addRoot: true}
+		got := ops.Tensors{"y": {Data: to64(n.forward(t32(in, "x"), t32(in, "weight"), t32(in, "bias")))}}
+		ratio, res := costRatio(t, "layernorm-forward", []byte(`{"version":1,"epsilon":1e-5}`), in, got)
+
+		require.Equal(t, []string{"rows"}, res.Cuts)
+		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"epsilon_placement": "added-to-root"`), "%+v", res.Candidates[0])
+		require.LessOrEqual(t, ratio, 10.0)
+	})
+}

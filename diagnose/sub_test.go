@@ -1,0 +1,145 @@
+package diagnose
+
+import (
+	"fmt"
+	"testing"
+
+	"github.com/plumbref/plumb/ops"
+	"github.com/stretchr/testify/require"
+)
+
+// TestSubProblemIsASlice: on every cut, the reference of the sub-problem
+// (under the configuration it runs on) is the corresponding slice of the
+// reference of the whole problem, output by output, for both group maps,
+// both layouts, every alignment and the masks cut along the queries.
+// The whole reference is passed as the port's outputs, so that cut slices
+// it as it slices a port's.
+func TestSubProblemIsASlice(t *testing.T) {
+	const b, h, hkv, lq, lk, d = 2, 8, 2, 24, 28, 4
+	in := attnInputs(b, h, hkv, lq, lk, d, 3)
+	in["sinks"] = tensor([]int{h}, 9)
+	in["bias"] = tensor([]int{1, h, lq, lk}, 10)
+	seqIn := ops.Tensors{}
+	for k, v := range in {
+		seqIn[k] = v
+	}
+	for _, k := range []string{"q", "k", "v"} {
+		s := in[k].Shape
+		seqIn[k] = ops.Tensor{Shape: []int{s[0], s[2], s[1], s[3]}, Data: in[k].Data}
+	}
+	configs := []string{
+		`"mask":[{"kind":"causal"}]`,
+		`"group":"cycle","mask":[{"kind":"causal"}]`,
+		`"align":"start","offset":3,"mask":[{"kind":"causal"}]`,
+		`"offset":-2,"mask":[{"kind":"window","size":5}]`,
+		`"align":"start","mask":[{"kind":"band","before":2,"after":1}]`,
+		`"group":"cycle","mask":[{"kind":"prefix","length":6}]`,
+		`"mask":[{"kind":"causal"},{"kind":"band","before":-1,"after":-1}]`,
+	}
+	for _, op := range []string{"attention-forward", "attention-backward"} {
+		for _, layout := range []string{"heads-major", "seq-major"} {
+			for _, c := range configs {
+				name := fmt.Sprintf("%s %s %s", op, layout, c)
+				cfg := []byte(fmt.Sprintf(`{"version":1,"layout":%q,%s}`, layout, c))
+				x := in
+				if layout == "seq-major" {
+					x = seqIn
+				}
+				if op == "attention-backward" {
+					x = copyTensors(x)
+					x["dout"] = ops.Tensor{Shape: x["q"].Shape, Data: uniform(4, len(x["q"].Data), -1, 1)}
+				}
+				ref, err := ops.Run(op, cfg, x)
+				require.NoError(t, err, name)
+				var m map[string]any
+				require.NoError(t, decode(cfg, &m))
+				// Small enough that every axis is cut: one batch entry, four
+				// query heads, then queries.
+				sp := cut(op, m, x, ref, 600)
+				require.Equal(t, []string{"batch", "heads", "queries"}, sp.cuts, name)
+				sub, err := runSub(mustLookup(t, op), sp, cfg)
+				require.NoError(t, err, name)
+				require.NotEmpty(t, sp.got, name)
+				for n, want := range sp.got {
+					require.Equal(t, want.Data, sub[n].Data, "%s: output %s of the sub-problem (%s)", name, n, sp.note)
+				}
+				if op == "attention-backward" {
+					require.Contains(t, sp.note, "outputs dbias, dk, dsinks, dv, which sum over what was cut, not compared", name)
+				}
+			}
+		}
+	}
+}
+
+// TestRowCutIsASlice: the rows kept of a row-wise operation give the
+// first rows of the reference; dweight and dbias, sums over the rows, are
+// left out.
+func TestRowCutIsASlice(t *testing.T) {
+	in := ops.Tensors{"x": tensor([]int{3, 40, 16}, 1), "weight": tensor([]int{16}, 2), "dy": tensor([]int{3, 40, 16}, 3)}
+	for _, c := range []struct {
+		op    string
+		limit int
+		shape []int
+	}{
+		{"rmsnorm-backward", 1000, []int{1, 30, 16}}, // (1000 − 16)·120/3840 = 30.75: 30 rows, not a whole entry
+		{"rmsnorm-backward", 2600, []int{2, 40, 16}}, // (2600 − 16)·120/3840 = 80.75: 80 rows = 2 entries of 40
+	} {
+		cfg := []byte(`{"version":1,"epsilon":1e-5}`)
+		ref, err := ops.Run(c.op, cfg, in)
+		require.NoError(t, err)
+		var m map[string]any
+		require.NoError(t, decode(cfg, &m))
+		sp := cut(c.op, m, in, ref, c.limit)
+		require.Equal(t, []string{"rows"}, sp.cuts)
+		require.Equal(t, c.shape, sp.in["x"].Shape)
+		sub, err := runSub(mustLookup(t, c.op), sp, cfg)
+		require.NoError(t, err)
+		require.Equal(t, sp.got["dx"].Data, sub["dx"].Data)
+		require.NotContains(t, sp.got, "dweight")
+		require.Contains(t, sp.note, "outputs dweight, which sum over the rows, not compared")
+	}
+}
+
+func mustLookup(t *testing.T, op string) ops.Op {
+	o, err := ops.Lookup(op)
+	require.NoError(t, err)
+	return o
+}
+
+// TestHeadCutKeepsBothGroupMaps: for every head count up to 32, the heads
+// a cut keeps read, under both group maps of the sub-problem, the kv heads
+// they read in the whole problem (blocks: h/g; cycle: h mod hkv, the
+// definitions of attention.GroupBlocks and attention.GroupCycle), and the
+// two maps still differ on the sub-problem when they differ on the whole.
+func TestHeadCutKeepsBothGroupMaps(t *testing.T) {
+	found := 0
+	for hkv := 1; hkv <= 16; hkv++ {
+		for h := hkv; h <= 32; h += hkv {
+			qh, kvh, ok := headCut(h, hkv)
+			if !ok {
+				continue
+			}
+			found++
+			g, gs := h/hkv, len(qh)/len(kvh)
+			for j, q := range qh {
+				require.Equal(t, kvh[j/gs], q/g, "h %d, hkv %d: blocks, sub head %d = head %d", h, hkv, j, q)
+				require.Equal(t, kvh[j%len(kvh)], q%hkv, "h %d, hkv %d: cycle, sub head %d = head %d", h, hkv, j, q)
+			}
+			if g > 1 && hkv > 1 {
+				require.Equal(t, 2, gs, "h %d, hkv %d", h, hkv)
+				require.Len(t, kvh, 2, "h %d, hkv %d", h, hkv)
+			}
+		}
+	}
+	// 8 query heads on 2 kv heads: heads 0, 1 of group 0 read kv 0, 1
+	// under cycle, heads 4, 5 of group 1 (4 mod 2 = 0, 5 mod 2 = 1).
+	qh, kvh, ok := headCut(8, 2)
+	require.True(t, ok)
+	require.Equal(t, []int{0, 1, 4, 5}, qh)
+	require.Equal(t, []int{0, 1}, kvh)
+	// 6 query heads on 3 kv heads: group 1 holds heads 2, 3, which read kv
+	// 2, 0 under cycle; no pair of groups reads itself in order, no cut.
+	_, _, ok = headCut(6, 3)
+	require.False(t, ok)
+	require.Greater(t, found, 50)
+}
