@@ -16,7 +16,7 @@ const MaxListed = 10
 func (r *Result) WriteText(w io.Writer) error {
 	var b strings.Builder
 	fmt.Fprintf(&b, "%s, %v, configuration %s\n", r.Op, r.Format, r.Config)
-	fmt.Fprintf(&b, "as given: %s\n", verdictText(r.Given.Pass, true, r.Given.Normwise, r.Given.Outputs))
+	fmt.Fprintf(&b, "as given: %s\n", VerdictText(r.Given.Pass, true, r.Given.Normwise, r.Given.Outputs))
 	if r.Given.Pass {
 		b.WriteString("the port passes its yardstick as configured: nothing to diagnose\n")
 		_, err := io.WriteString(w, b.String())
@@ -41,7 +41,7 @@ func (r *Result) WriteText(w io.Writer) error {
 			fmt.Fprintf(&b, "  … %d more\n", len(r.Candidates)-i)
 			break
 		}
-		fmt.Fprintf(&b, "  %2d. %s: %s\n", i+1, c.Change, verdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
+		fmt.Fprintf(&b, "  %2d. %s: %s\n", i+1, c.Change, VerdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
 		if len(c.Same) > 0 {
 			fmt.Fprintf(&b, "      the same here: %s\n", strings.Join(c.Same, " | "))
 		}
@@ -56,8 +56,11 @@ func (r *Result) WriteText(w io.Writer) error {
 	return err
 }
 
-// verdictText is "PASS, normwise 1.2e-07 (out 1.2e-07 ≤ 3.4e-07)".
-func verdictText(pass, measured bool, nw Number, outs []OutputVerdict) string {
+// VerdictText is one line on a verdict, "PASS, normwise error 1.2e-07
+// (out 1.2e-07 ≤ 3.4e-07)": PASS, FAIL or "not measured" (when the search
+// did not measure the candidate's own yardstick), the normwise error, and
+// each output's normwise error against the yardstick's normwise tolerance.
+func VerdictText(pass, measured bool, nw Number, outs []OutputVerdict) string {
 	word := "FAIL"
 	switch {
 	case pass:

@@ -346,7 +346,7 @@ func summary(d *diagnosis) string {
 		return "  the search could not run: " + d.Error + "\n"
 	}
 	g := d.Result.Given
-	given := "  as configured: " + verdictLine(g.Pass, true, g.Normwise, g.Outputs)
+	given := "  as configured: " + diagnose.VerdictText(g.Pass, true, g.Normwise, g.Outputs)
 	switch {
 	case g.Pass:
 		return given + ": nothing to diagnose\n"
@@ -354,7 +354,7 @@ func summary(d *diagnosis) string {
 		return given + "\n  no alternative found\n"
 	}
 	c := d.Result.Candidates[0]
-	return fmt.Sprintf("%s\n  the first candidate: %s: %s\n", given, c.Change, verdictLine(c.Pass, c.Measured, c.Normwise, c.Outputs))
+	return fmt.Sprintf("%s\n  the first candidate: %s: %s\n", given, c.Change, diagnose.VerdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
 }
 
 // wordChanges lists the word keys of the operation o whose values differ

@@ -101,7 +101,7 @@ func writeDiagnosis(w io.Writer, d *diagnosis) error {
 		return err
 	}
 	r := d.Result
-	fmt.Fprintf(&b, "  as configured, under the %v yardstick: %s\n", r.Format, verdictLine(r.Given.Pass, true, r.Given.Normwise, r.Given.Outputs))
+	fmt.Fprintf(&b, "  as configured, under the %v yardstick: %s\n", r.Format, diagnose.VerdictText(r.Given.Pass, true, r.Given.Normwise, r.Given.Outputs))
 	if r.Given.Pass {
 		b.WriteString("  the port passes the yardstick as configured: there is no change to name; it failed the check's own tolerance, not the yardstick\n")
 		_, err := io.WriteString(w, b.String())
@@ -130,7 +130,7 @@ func writeDiagnosis(w io.Writer, d *diagnosis) error {
 			fmt.Fprintf(&b, "    … %d more\n", len(list)-i)
 			break
 		}
-		fmt.Fprintf(&b, "    %d. %s: %s\n", i+1, c.Change, verdictLine(c.Pass, c.Measured, c.Normwise, c.Outputs))
+		fmt.Fprintf(&b, "    %d. %s: %s\n", i+1, c.Change, diagnose.VerdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
 		if len(c.Same) > 0 {
 			fmt.Fprintf(&b, "       the same here: %s\n", strings.Join(c.Same, " | "))
 		}
@@ -143,31 +143,4 @@ func writeDiagnosis(w io.Writer, d *diagnosis) error {
 	}
 	_, err := io.WriteString(w, b.String())
 	return err
-}
-
-// verdictLine is "PASS, normwise error 9.71e-08 (out 9.71e-08 ≤ 2.62e-07)":
-// the verdict under the candidate's own yardstick ("not measured" when the
-// search did not measure it) and each output's normwise error against the
-// yardstick's normwise tolerance.
-func verdictLine(pass, measured bool, nw diagnose.Number, outs []diagnose.OutputVerdict) string {
-	word := "FAIL"
-	switch {
-	case pass:
-		word = "PASS"
-	case !measured:
-		word = "not measured"
-	}
-	var parts []string
-	for _, o := range outs {
-		p := fmt.Sprintf("%s %.3g", o.Output, float64(o.Normwise))
-		if o.Pass != nil {
-			rel := "≤"
-			if !*o.Pass {
-				rel = "vs"
-			}
-			p += fmt.Sprintf(" %s %.3g", rel, float64(o.Tolerance))
-		}
-		parts = append(parts, p)
-	}
-	return fmt.Sprintf("%s, normwise error %.3g (%s)", word, float64(nw), strings.Join(parts, ", "))
 }
