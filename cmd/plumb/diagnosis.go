@@ -111,16 +111,22 @@ func writeDiagnosis(w io.Writer, d *diagnosis) error {
 	if r.SubProblem != "" {
 		where = "a sub-problem, " + r.SubProblem
 	}
-	fmt.Fprintf(&b, "  searched %d alternatives of the configuration and of the tensors' reading on %s\n", r.Run, where)
+	alternatives := "alternatives"
+	if r.Run == 1 {
+		alternatives = "alternative"
+	}
+	fmt.Fprintf(&b, "  searched %d %s of the configuration and of the tensors' reading on %s\n", r.Run, alternatives, where)
 	fmt.Fprintf(&b, "  (%d without effect there, %d refused by the operation, %d left out by the limit of %d)\n",
 		r.NoEffect, r.Refused, r.LeftOut, diagnosisCandidates)
 	passing := r.Passing()
 	list := passing
-	switch len(passing) {
-	case 0:
+	switch {
+	case len(r.Candidates) == 0:
+		b.WriteString("  the operation has no alternative to search here: no change of its configuration explains the output\n")
+	case len(passing) == 0:
 		b.WriteString("  no alternative makes the port pass; the nearest:\n")
 		list = r.Candidates
-	case 1:
+	case len(passing) == 1:
 		b.WriteString("  the port passes under one change:\n")
 	default:
 		fmt.Fprintf(&b, "  the port passes under %d changes, the simplest first:\n", len(passing))
