@@ -14,6 +14,7 @@ import (
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/mask"
+	"github.com/plumbref/plumb/ops"
 	"github.com/plumbref/plumb/posenc"
 )
 
@@ -336,7 +337,14 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 		}
 	}
 	conv := p.String()
-	suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: "output", Dims: outDims, Shape: outShape, Ref: out, Got: compare.Widen(gotOut)},
+	pose := suite.Once(func() *suite.Pose {
+		got := ops.Tensors{"out": suite.Tensor(compare.Widen(gotOut), outShape...)}
+		if k.Supports.LSE {
+			got["lse"] = suite.Tensor(compare.Widen(gotLSE), lseShape...)
+		}
+		return p.pose(q, kk, vv, got)
+	})
+	suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: "output", Dims: outDims, Shape: outShape, Ref: out, Got: compare.Widen(gotOut), Pose: pose},
 		inputs, low(0, false), low(1, false))
 	if !k.Supports.LSE {
 		return
@@ -345,7 +353,7 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 	if suite.Is32[E]() {
 		lf = compare.Float32
 	}
-	suite.Check[T, E](t, lf, c.Name, conv, suite.Output{Name: "log-sum-exp", Dims: lseDims, Shape: lseShape, Ref: lse, Got: compare.Widen(gotLSE)},
+	suite.Check[T, E](t, lf, c.Name, conv, suite.Output{Name: "log-sum-exp", Dims: lseDims, Shape: lseShape, Ref: lse, Got: compare.Widen(gotLSE), Pose: pose},
 		inputs, low(0, true), low(1, true))
 }
 
@@ -381,6 +389,126 @@ func (p Problem) Options() (attention.Options, error) {
 	}
 	return attention.Options{Layout: p.Layout, Group: p.Group, Mask: m, Align: p.Align, Offset: p.Offset,
 		Scale: p.Scale, SoftCap: p.SoftCap, EmptyRow: p.EmptyRow}, err
+}
+
+// pose returns p as the operation attention-forward of package ops, with
+// got the kernel's outputs ("out", and "lse" when judged), for the diagnosis of a failing
+// kernel: every convention of p by its key, q and k rotated by the
+// reference when p has a rotary encoding (attention-forward has none, so
+// the encoding itself is not searched). It returns nil when the reference
+// rotary encoding refuses q or k.
+func (p Problem) pose(q, k, v []float64, got ops.Tensors) *suite.Pose {
+	s := p.Shape
+	words := map[string]string{
+		"layout": "Problem.Layout, Supports.Layouts", "group": "Problem.Group, Supports.Groups",
+		"align": "Problem.Align, Supports.AlignStart", "offset": "Problem.Offset", "scale": "Problem.Scale",
+		"soft_cap": "Problem.SoftCap", "empty_row": "Supports.EmptyRow",
+	}
+	var masks []any
+	switch p.Mask {
+	case Causal:
+		masks = append(masks, map[string]any{"kind": "causal"})
+	case SlidingWindow:
+		masks = append(masks, map[string]any{"kind": "window", "size": p.Window})
+		words["mask[0].size"] = "Problem.Window"
+	}
+	if len(masks) > 0 {
+		words["mask[0]"], words["mask[0].kind"] = "Problem.Mask, Supports.Masks", "Problem.Mask, Supports.Masks"
+	}
+	if p.KeyLengths != nil {
+		words[fmt.Sprintf("mask[%d].valid", len(masks))] = "Problem.KeyLengths"
+		masks = append(masks, map[string]any{"kind": "key-padding", "valid": p.KeyLengths})
+	}
+	cfg := map[string]any{"layout": p.Layout.String(), "group": p.Group.String(), "align": p.Align.String(),
+		"offset": p.Offset, "scale": p.Scale, "empty_row": p.EmptyRow.String()}
+	if masks != nil {
+		cfg["mask"] = masks
+	}
+	if p.SoftCap > 0 {
+		cfg["soft_cap"] = p.SoftCap
+	}
+	unsearched := ""
+	if r := p.Rotary; r != nil {
+		var err error
+		if q, err = posenc.Rotary.Apply(*r, q, 1, posenc.Positions{List: rowPositions(p, true)}); err != nil {
+			return nil
+		}
+		if k, err = posenc.Rotary.Apply(*r, k, 1, posenc.Positions{List: rowPositions(p, false)}); err != nil {
+			return nil
+		}
+		unsearched = "q and k were posed rotated by the reference: the rotary encoding, Problem.Rotary and Supports.Pairings, is not searched"
+	}
+	part := ""
+	if len(q)+len(k)+len(v) > poseElements {
+		var cut Problem
+		cut, q, k, v, got, part = p.cut(q, k, v, got)
+		if cut.KeyLengths != nil {
+			words[fmt.Sprintf("mask[%d].valid", len(masks)-1)] = "Problem.KeyLengths"
+			masks[len(masks)-1] = map[string]any{"kind": "key-padding", "valid": cut.KeyLengths}
+		}
+		s = cut.Shape
+	}
+	shape := func(h, l, d int) []int {
+		if p.Layout == attention.SeqMajor {
+			return []int{s.Batch, l, h, d}
+		}
+		return []int{s.Batch, h, l, d}
+	}
+	in := ops.Tensors{"q": suite.Tensor(q, shape(s.HeadsQ, s.Lq, s.Dk)...), "k": suite.Tensor(k, shape(s.HeadsKV, s.Lk, s.Dk)...),
+		"v": suite.Tensor(v, shape(s.HeadsKV, s.Lk, s.Dv)...)}
+	ps := suite.NewPose("attention-forward", cfg, in, got, words)
+	if ps != nil {
+		ps.Unsearched, ps.Part = unsearched, part
+	}
+	return ps
+}
+
+// poseElements and poseQueries bound the problem a diagnosis is posed:
+// a problem of more input elements is posed on its first batch entry and
+// at most poseQueries of its queries, so that the search, which runs each
+// candidate on what it is given, costs a few checks of a small case.
+const poseElements, poseQueries = 1 << 14, 16
+
+// cut returns p, its rotated q and k, v and the kernel's outputs got cut
+// to the first batch entry and the last poseQueries queries (AlignEnd; the
+// first under AlignStart): the cut queries keep their positions, so the
+// configuration is unchanged, and the outputs are the kernel's rows for
+// them. part says what was kept.
+func (p Problem) cut(q, k, v []float64, got ops.Tensors) (Problem, []float64, []float64, []float64, ops.Tensors, string) {
+	s := p.Shape
+	n, first := min(s.Lq, poseQueries), 0
+	if p.Align == mask.AlignEnd {
+		first = s.Lq - n
+	}
+	c := p
+	c.Shape.Batch, c.Shape.Lq = 1, n
+	if p.KeyLengths != nil {
+		c.KeyLengths = p.KeyLengths[:1]
+	}
+	// rows returns the rows of x (of width w per head) of batch entry 0
+	// and queries first … first+n−1, each row holding heads·w values.
+	rows := func(x []float64, heads, L, w int) []float64 {
+		var out []float64
+		if p.Layout == attention.SeqMajor {
+			return append(out, x[first*heads*w:(first+n)*heads*w]...)
+		}
+		for h := 0; h < heads; h++ {
+			out = append(out, x[(h*L+first)*w:(h*L+first+n)*w]...)
+		}
+		return out
+	}
+	out, lse, _, _ := shapes(c)
+	cutGot := ops.Tensors{}
+	for name, t := range got {
+		if name == "lse" {
+			cutGot[name] = suite.Tensor(rows(t.Data, s.HeadsQ, s.Lq, 1), lse...)
+		} else {
+			cutGot[name] = suite.Tensor(rows(t.Data, s.HeadsQ, s.Lq, s.Dv), out...)
+		}
+	}
+	kv := func(x []float64) []float64 { return x[:len(x)/s.Batch] }
+	part := fmt.Sprintf("batch entry 0 of %d, queries %d–%d of %d", s.Batch, first, first+n-1, s.Lq)
+	return c, rows(q, s.HeadsQ, s.Lq, s.Dk), kv(k), kv(v), cutGot, part
 }
 
 // rowPositions returns the position of every row of Dk values of q

@@ -138,18 +138,31 @@ func TestSkipsNameWhatIsMissing(t *testing.T) {
 
 // Each slip is a kernel that gets one convention wrong; the suite must
 // fail it, in the cases where the convention shows, with a message naming
-// the case, the conventions and the worst element.
+// the case, the conventions and the worst element, and a diagnosis line
+// naming the convention the kernel used (attention-forward posed with q
+// and k rotated by the reference, so a slip of the rotary encoding itself,
+// or of the alignment that places the rotary positions, is said to be
+// outside the search).
 func TestCatchesSlips(t *testing.T) {
+	noRotary := everything
+	noRotary.Pairings = nil              // the cases that rotate are posed without rotary
+	const outside = "outside the search" // the line says no change explains it, the rotary encoding not searched
 	slips := []struct {
-		name  string
-		slip  func(p Problem) Problem // what the kernel computes instead
-		fails []string                // variants that must fail
-		pass  []string                // variants that must pass
+		name      string
+		supports  Supports
+		slip      func(p Problem) Problem // what the kernel computes instead
+		fails     []string                // variants that must fail
+		pass      []string                // variants that must pass
+		diagnosis map[string]string       // the diagnosis line of a failing variant, up to its normwise error
 	}{
-		{"group map", func(p Problem) Problem { p.Group = 1 - p.Group; return p },
+		{"group map", everything, func(p Problem) Problem { p.Group = 1 - p.Group; return p },
 			[]string{"causal_grouped/heads-major/blocks/adjacent", "decode_step/seq-major/cycle/halves"},
-			[]string{"causal_multi_query/heads-major/adjacent", "causal_square/heads-major/adjacent"}},
-		{"rotary pairing", func(p Problem) Problem {
+			[]string{"causal_multi_query/heads-major/adjacent", "causal_square/heads-major/adjacent"},
+			map[string]string{
+				"causal_grouped/heads-major/blocks/adjacent": `  it matches "group": "cycle" [Problem.Group, Supports.Groups] (normwise `,
+				"decode_step/seq-major/cycle/halves":         `  it matches "group": "blocks" [Problem.Group, Supports.Groups] (normwise `,
+			}},
+		{"rotary pairing", everything, func(p Problem) Problem {
 			if p.Rotary != nil {
 				r := *p.Rotary
 				r.Pairing = 1 - r.Pairing
@@ -157,27 +170,38 @@ func TestCatchesSlips(t *testing.T) {
 			}
 			return p
 		}, []string{"causal_square/heads-major/adjacent", "realistic_prefill/seq-major/blocks/halves"},
-			[]string{"cross_fewer_queries/heads-major", "one_query_one_key/heads-major/halves"}},
-		{"causal alignment", func(p Problem) Problem { p.Align = 1 - p.Align; return p },
+			[]string{"cross_fewer_queries/heads-major", "one_query_one_key/heads-major/halves"},
+			map[string]string{"causal_square/heads-major/adjacent": outside}},
+		{"causal alignment", everything, func(p Problem) Problem { p.Align = 1 - p.Align; return p },
 			[]string{"chunked_prefill/heads-major/adjacent", "align_start/seq-major/halves", "decode_step/heads-major/blocks/adjacent"},
-			[]string{"causal_square/heads-major/adjacent"}},
-		{"window counts one key fewer", func(p Problem) Problem {
+			[]string{"causal_square/heads-major/adjacent"},
+			map[string]string{"chunked_prefill/heads-major/adjacent": outside}},
+		{"causal alignment without rotary", noRotary, func(p Problem) Problem { p.Align = 1 - p.Align; return p },
+			[]string{"chunked_prefill/heads-major", "align_start/seq-major"},
+			[]string{"causal_square/heads-major"},
+			map[string]string{
+				"chunked_prefill/heads-major": `  it matches "align": "start" [Problem.Align, Supports.AlignStart]`,
+				"align_start/seq-major":       `  it matches "align": "end" [Problem.Align, Supports.AlignStart]`,
+			}},
+		{"window counts one key fewer", everything, func(p Problem) Problem {
 			if p.Mask == SlidingWindow && p.Window > 1 {
 				p.Window--
 			}
 			return p
 		}, []string{"window_edges/heads-major/adjacent", "window_decode/seq-major/cycle/halves"},
-			[]string{"window_wider_than_keys/heads-major/adjacent", "causal_square/heads-major/adjacent"}},
-		{"scale 1/Dk", func(p Problem) Problem { p.Scale *= p.Scale; return p },
+			[]string{"window_wider_than_keys/heads-major/adjacent", "causal_square/heads-major/adjacent"},
+			map[string]string{"window_edges/heads-major/adjacent": `  it matches "mask[0].size": 6 [Problem.Window] (normwise `}},
+		{"scale 1/Dk", everything, func(p Problem) Problem { p.Scale *= p.Scale; return p },
 			[]string{"full_square/heads-major/adjacent", "realistic_decode/heads-major/blocks/adjacent"},
-			[]string{"no_keys/heads-major", "no_keys/seq-major"}},
+			[]string{"no_keys/heads-major", "no_keys/seq-major"},
+			map[string]string{"full_square/heads-major/adjacent": `  it matches "scale": 0.0625 (1/d) [Problem.Scale] (normwise `}},
 	}
 	if testing.Short() {
 		slips = slips[:2]
 	}
 	for _, s := range slips {
 		t.Run(s.name, func(t *testing.T) {
-			rec := record(Kernel[float64]{Format: compare.Float64, Supports: everything,
+			rec := record(Kernel[float64]{Format: compare.Float64, Supports: s.supports,
 				Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
 					return reference(s.slip(p), q, k, v, posenc.Rotary.Apply, attention.Forward)
 				}})
@@ -191,6 +215,15 @@ func TestCatchesSlips(t *testing.T) {
 				assert.True(t, strings.HasPrefix(msg, "case "+caseName+" ("), msg)
 				assert.Contains(t, msg, "differs from the reference")
 				assert.Contains(t, msg, "worst element [batch, ")
+				if want, ok := s.diagnosis[name]; ok {
+					line := diagnosisLine(t, msg)
+					if want == outside {
+						assert.True(t, strings.HasPrefix(line, "  no single change of its conventions explains it ("), msg)
+						assert.Contains(t, line, "the rotary encoding, Problem.Rotary and Supports.Pairings, is not searched)", msg)
+						continue
+					}
+					assert.True(t, strings.HasPrefix(line, want), "%s: want a line starting %q in\n%s", name, want, msg)
+				}
 			}
 			for _, name := range s.pass {
 				r := rec.Find(name)
@@ -199,6 +232,20 @@ func TestCatchesSlips(t *testing.T) {
 			}
 		})
 	}
+}
+
+// diagnosisLine returns the line of a failure message before the one
+// naming the report's file: the diagnosis.
+func diagnosisLine(t *testing.T, msg string) string {
+	t.Helper()
+	lines := strings.Split(msg, "\n")
+	for i, l := range lines {
+		if i > 0 && strings.HasPrefix(l, "  the whole report") {
+			return lines[i-1]
+		}
+	}
+	t.Fatalf("no line naming the whole report in %q", msg)
+	return ""
 }
 
 // The case list is what the package doc and the report describe: unique

@@ -80,8 +80,11 @@
 // A failure message names the case, the problem with every convention by
 // its key and word (Problem.String: "layout seq-major, group cycle, mask
 // causal, align end, …"), the output (output or log-sum-exp) and its worst
-// element with its index, then the three worst elements and the file
-// holding compare.Diff's whole report (PLUMB_REPORT_INLINE=1 in the
+// element with its index, then the three worst elements, one line naming
+// the convention the output matches instead when one does (package
+// diagnose, run on attention-forward posed with the case's conventions:
+// `it matches "group": "cycle" …`), and the file holding compare.Diff's
+// whole report (PLUMB_REPORT_INLINE=1 in the
 // environment prints it instead): one short block per failing output.
 //
 // # Inputs

@@ -49,7 +49,9 @@
 // dx or dW1 in 5 of the suite's float32 subtests (by up to 2.5 times),
 // while as accurate normwise. A float64 kernel is held to 1e-12 normwise and
 // 1e-12·max|ref| per element. A failure names the case, its conventions,
-// the output (y, dx, dW1, …) and its worst elements, then the file holding
+// the output (y, dx, dW1, …) and its worst elements, one line naming the
+// convention the output matches instead when one does (package diagnose),
+// then the file holding
 // compare.Diff's whole report (PLUMB_REPORT_INLINE=1 in the environment
 // prints it instead).
 //
@@ -71,6 +73,7 @@ import (
 	"github.com/plumbref/plumb/ffn"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/suite"
+	"github.com/plumbref/plumb/ops"
 )
 
 // Problem is one call: the sizes, the layer's options (activation, β,
@@ -335,6 +338,9 @@ type trial[T conformance.TB[T], E compare.Float] struct {
 	c    Case
 	p    Problem
 	conv string // the problem's conventions, for messages
+	// pose gives the problem of the pass being judged as an operation of
+	// package ops, for the diagnosis of a failing output.
+	pose func() *suite.Pose
 
 	x, dy []float64
 	w     ffn.Weights[float64]
@@ -369,7 +375,40 @@ func (tr *trial[T, E]) kernelWeights() ffn.Weights[E] {
 // yardstick of each run.
 func (tr *trial[T, E]) judge(out string, shape []int, dims string, ref, got []float64, inputs [][]float64, runs ...func([][]float32) ([]float32, error)) {
 	tr.t.Helper()
-	suite.Check[T, E](tr.t, tr.f, tr.c.Name, tr.conv, suite.Output{Name: out, Dims: dims, Shape: shape, Ref: ref, Got: got}, inputs, runs...)
+	suite.Check[T, E](tr.t, tr.f, tr.c.Name, tr.conv, suite.Output{Name: out, Dims: dims, Shape: shape, Ref: ref, Got: got, Pose: tr.pose}, inputs, runs...)
+}
+
+// opNames are the names package ops gives the tensors of list (the inputs
+// of ffn-forward), then their gradients (the outputs of ffn-backward).
+var opNames = []string{"w1", "b1", "v", "c", "fused", "fused_bias", "w2", "b2",
+	"dw1", "db1", "dv", "dc", "dfused", "dfused_bias", "dw2", "db2"}
+
+// posed returns the trial's problem as the operation op of package ops
+// (ffn-forward, or ffn-backward with dy), its conventions by their keys,
+// the inputs and weights the kernel was given, and the kernel's outputs
+// got, for the diagnosis of a failing kernel.
+func (tr *trial[T, E]) posed(op string, dy []float64, got ops.Tensors) *suite.Pose {
+	d, o := tr.p.Dims, tr.p.Options
+	cfg := map[string]any{"activation": o.Act.String(), "gated": o.Gated, "layout": o.Layout.String()}
+	if o.Act == ffn.ActSwish {
+		cfg["beta"] = o.Beta
+	}
+	if tr.p.Fused {
+		cfg["packing"] = o.Packing.String()
+	}
+	in := ops.Tensors{"x": suite.Tensor(tr.x, d.Rows, d.In)}
+	if dy != nil {
+		in["dy"] = suite.Tensor(dy, d.Rows, d.Out)
+	}
+	for i, w := range tr.wl {
+		if w != nil {
+			shape, _ := gradShape(i, tr.p)
+			in[opNames[i]] = suite.Tensor(w, shape...)
+		}
+	}
+	words := map[string]string{"activation": "Options.Act, Supports.Acts", "beta": "Options.Beta", "gated": "Options.Gated, Supports.Plain and Gated",
+		"layout": "Options.Layout, Supports.Layouts", "packing": "Options.Packing, Supports.Packings"}
+	return suite.NewPose(op, cfg, in, got, words)
 }
 
 // fail reports an error of the reference or the kernel.
@@ -394,7 +433,11 @@ func (tr *trial[T, E]) forward() bool {
 		return false
 	}
 	inputs := append([][]float64{tr.x}, tr.wl...)
-	tr.judge("y", []int{d.Rows, d.Out}, "[row, output]", want, compare.Widen(got), inputs, func(in [][]float32) ([]float32, error) {
+	wide := compare.Widen(got)
+	tr.pose = func() *suite.Pose {
+		return tr.posed("ffn-forward", nil, ops.Tensors{"y": suite.Tensor(wide, d.Rows, d.Out)})
+	}
+	tr.judge("y", []int{d.Rows, d.Out}, "[row, output]", want, wide, inputs, func(in [][]float32) ([]float32, error) {
 		return ffn.Forward32(in[0], d, unlist(in[1:]), o)
 	}, func(in [][]float32) ([]float32, error) {
 		return ffn.ForwardFast32(in[0], d, unlist(in[1:]), o)
@@ -419,9 +462,19 @@ func (tr *trial[T, E]) backward() {
 	}
 	inputs := append([][]float64{tr.x, tr.dy}, tr.wl...)
 	back := yardsticks(d, o)
-	tr.judge("dx", []int{d.Rows, d.In}, "[row, input]", dx, compare.Widen(gdx), inputs, back(-1, 0), back(-1, 1))
-	gl := list(ggrad)
-	for i, ref := range list(grad) {
+	wdx, gl, refs := compare.Widen(gdx), list(ggrad), list(grad)
+	tr.pose = suite.Once(func() *suite.Pose {
+		got := ops.Tensors{"dx": suite.Tensor(wdx, d.Rows, d.In)}
+		for i, ref := range refs {
+			if ref != nil && tr.wl[i] != nil {
+				shape, _ := gradShape(i, tr.p)
+				got[opNames[i+8]] = suite.Tensor(compare.Widen(gl[i]), shape...)
+			}
+		}
+		return tr.posed("ffn-backward", tr.dy, got)
+	})
+	tr.judge("dx", []int{d.Rows, d.In}, "[row, input]", dx, wdx, inputs, back(-1, 0), back(-1, 1))
+	for i, ref := range refs {
 		if ref == nil || tr.wl[i] == nil {
 			continue // a gradient of a weight not given
 		}

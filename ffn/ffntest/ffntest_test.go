@@ -110,6 +110,7 @@ func TestCatchesSlips(t *testing.T) {
 		kernel        func([]float64, ffn.Weights[float64], Problem) ([]float64, error)
 		fails, passes string
 		says          string
+		diagnosis     string // the diagnosis line of fails, up to its normwise error
 	}{
 		{"tanh GELU for exact GELU",
 			Supports{Acts: []ffn.Act{ffn.ActGELU, ffn.ActReLU}, Gated: true, Plain: true},
@@ -119,27 +120,31 @@ func TestCatchesSlips(t *testing.T) {
 					o.Act = ffn.ActGELUTanh
 				}
 				return ffn.Forward(x, p.Dims, w, o)
-			}, "small/gelu/gated/in-by-out/separate", "small/relu/plain/in-by-out", "gelu gated, in-by-out, no biases): y differs from the reference"},
+			}, "small/gelu/gated/in-by-out/separate", "small/relu/plain/in-by-out", "gelu gated, in-by-out, no biases): y differs from the reference",
+			`  it matches "activation": "gelu-tanh" [Options.Act, Supports.Acts]`},
 		{"activation on the value projection",
 			Supports{Acts: []ffn.Act{ffn.ActSiLU}, Gated: true},
 			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
 				w.W1, w.V = w.V, w.W1
 				return ffn.Forward(x, p.Dims, w, p.Options)
-			}, "realistic/silu/gated/in-by-out/separate", "", "worst element [row, output]"},
+			}, "realistic/silu/gated/in-by-out/separate", "", "worst element [row, output]",
+			"  it matches w1 and v swapped (gate and value projections)"},
 		{"packing",
 			Supports{Acts: []ffn.Act{ffn.ActSiLU}, Gated: true, Packings: []ffn.Packing{ffn.GateUpStacked, ffn.GateUpInterleaved}},
 			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
 				o := p.Options
-				o.Packing = 3 - o.Packing
+				o.Packing = 1 - o.Packing // the other of GateUpStacked (0) and GateUpInterleaved (1)
 				return ffn.Forward(x, p.Dims, w, o)
-			}, "small/silu/gated/in-by-out/interleaved", "", "fused interleaved"},
+			}, "small/silu/gated/in-by-out/interleaved", "", "fused interleaved",
+			`  it matches "packing": "stacked" [Options.Packing, Supports.Packings]`},
 		{"layout",
 			Supports{Acts: []ffn.Act{ffn.ActReLU}, Layouts: []ffn.Layout{ffn.InByOut, ffn.OutByIn}},
 			func(x []float64, w ffn.Weights[float64], p Problem) ([]float64, error) {
 				o := p.Options
 				o.Layout = ffn.InByOut
 				return ffn.Forward(x, p.Dims, w, o)
-			}, "small/relu/plain/out-by-in", "small/relu/plain/in-by-out", "relu plain, out-by-in"},
+			}, "small/relu/plain/out-by-in", "small/relu/plain/in-by-out", "relu plain, out-by-in",
+			`  it matches "layout": "in-by-out" [Options.Layout, Supports.Layouts]`},
 	} {
 		t.Run(s.name, func(t *testing.T) {
 			rec, failed := failures(Kernel[float64]{Format: compare.Float64, Supports: s.supports, Forward: s.kernel})
@@ -147,6 +152,7 @@ func TestCatchesSlips(t *testing.T) {
 			msg := rec.Find(s.fails).Messages[0]
 			assert.True(t, strings.HasPrefix(msg, "case "+s.fails[:strings.Index(s.fails, "/")]+" ("), msg)
 			assert.Contains(t, msg, s.says)
+			assert.True(t, strings.HasPrefix(diagnosisLine(t, msg), s.diagnosis), msg)
 			if s.passes != "" {
 				assert.NotContains(t, failed, s.passes)
 				assert.NotNil(t, rec.Find(s.passes))
@@ -196,4 +202,21 @@ func TestCatchesBackwardSlip(t *testing.T) {
 	msg := rec.Find("small/relu/plain/out-by-in").Messages[0]
 	assert.Contains(t, msg, "dW2 differs from the reference")
 	assert.Contains(t, msg, "worst element [output, hidden]")
+	// ffn-backward is posed, but a gradient written in the other layout
+	// is no change the diagnosis searches: it names none.
+	assert.Equal(t, "  no single change of its conventions explains it", diagnosisLine(t, msg), msg)
+}
+
+// diagnosisLine returns the line of a failure message before the one
+// naming the report's file: the diagnosis.
+func diagnosisLine(t *testing.T, msg string) string {
+	t.Helper()
+	lines := strings.Split(msg, "\n")
+	for i, l := range lines {
+		if i > 0 && strings.HasPrefix(l, "  the whole report") {
+			return lines[i-1]
+		}
+	}
+	t.Fatalf("no line naming the whole report in %q", msg)
+	return ""
 }

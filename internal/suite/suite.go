@@ -84,12 +84,20 @@ type Output struct {
 	Shape []int     // its shape, in the kernel's layout
 	Ref   []float64 // the float64 reference
 	Got   []float64 // the kernel's, widened to float64
+	// Pose returns the case's problem as an operation of package ops, for
+	// the diagnosis of a failing output; it is called only when the output
+	// fails, and the outputs of one case share one (see Once). Nil, or a
+	// nil result, when the problem cannot be posed as one: the failure
+	// message then has no diagnosis line.
+	Pose func() *Pose
 }
 
 // Judge compares o.Got with o.Ref under opt and, when it fails, marks t
 // failed with one short message: the case, its conventions, the output,
 // the verdict and the worst element (index, value, reference), the three
-// worst elements, and the file holding the whole report (fullReport).
+// worst elements, with o.Pose one line naming the best-matching other
+// convention (diagnose.Run on the posed problem; see Pose), and the file
+// holding the whole report (fullReport), the diagnosis's included.
 // It reports whether the output passed.
 func Judge[T conformance.TB[T]](t T, caseName, conventions string, o Output, opt compare.Options) bool {
 	t.Helper()
@@ -120,7 +128,15 @@ func Judge[T conformance.TB[T]](t T, caseName, conventions string, o Output, opt
 		}
 		fmt.Fprintf(&b, "\n  %s%v  got %.9g  want %.9g", o.Dims, w.Index, w.Got, w.Ref)
 	}
-	b.WriteString("\n  " + fullReport(caseName+"-"+o.Name, r))
+	full := r.String()
+	if o.Pose != nil {
+		if p := o.Pose(); p != nil {
+			line, text := p.diagnose(opt)
+			b.WriteString("\n  " + line)
+			full += "\ndiagnosis:\n" + text
+		}
+	}
+	b.WriteString("\n  " + fullReport(caseName+"-"+o.Name, full))
 	t.Errorf("%s", b.String())
 	return false
 }
@@ -134,7 +150,7 @@ const ReportInline = "PLUMB_REPORT_INLINE"
 // system's temporary directory named for the process, and returns a line
 // naming it; with ReportInline set, or when
 // the file cannot be written, it returns the report itself.
-func fullReport(name string, r *compare.Report) string {
+func fullReport(name, report string) string {
 	if os.Getenv(ReportInline) != "1" {
 		dir := filepath.Join(os.TempDir(), fmt.Sprintf("plumb-conformance-%d", os.Getpid()))
 		path := filepath.Join(dir, strings.Map(func(c rune) rune {
@@ -143,11 +159,11 @@ func fullReport(name string, r *compare.Report) string {
 			}
 			return c
 		}, name)+".txt")
-		if os.MkdirAll(dir, 0o755) == nil && os.WriteFile(path, []byte(r.String()), 0o644) == nil {
+		if os.MkdirAll(dir, 0o755) == nil && os.WriteFile(path, []byte(report), 0o644) == nil {
 			return "the whole report: " + path + " (" + ReportInline + "=1 prints it here)"
 		}
 	}
-	return "the whole report:\n" + r.String()
+	return "the whole report:\n" + report
 }
 
 // Tolerance returns the diff options a kernel's output is judged with.

@@ -14,6 +14,7 @@ import (
 
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/ops"
 )
 
 // Recorder is the stand-in the tests watch the functions with.
@@ -110,6 +111,73 @@ func TestJudge(t *testing.T) {
 	r = &Recorder{}
 	assert.False(t, Judge(r, "c", "conv", Output{Name: "y", Shape: []int{4}, Ref: ref, Got: got[:3]}, opt))
 	assert.Contains(t, r.Messages[0], "y has 3 elements; want 4")
+}
+
+// With a Pose, a failing output's block has one line more, before the
+// report's: the convention the kernel used instead, found by
+// diagnose.Run; a passing output calls no Pose, and the outputs of one
+// case share one diagnosis (Once).
+func TestJudgeDiagnoses(t *testing.T) {
+	// An RMSNorm of 4 rows of 8 with ε = 0.5, large enough beside the
+	// mean squares of N(0, 1) rows that where it enters shows.
+	x := Normal(Rand("diagnosis"), 32, 1)
+	rms := func(added bool) []float64 {
+		y := make([]float64, len(x))
+		for r := 0; r < 4; r++ {
+			var ss float64
+			for _, v := range x[r*8 : r*8+8] {
+				ss += v * v / 8
+			}
+			den := math.Sqrt(ss + 0.5) // norm.EpsilonInRoot: √(s² + ε)
+			if added {
+				den = math.Sqrt(ss) + 0.5 // norm.EpsilonAddedToRoot: √s² + ε
+			}
+			for j := range 8 {
+				y[r*8+j] = x[r*8+j] / den
+			}
+		}
+		return y
+	}
+	ref, got := rms(false), rms(true)
+	calls := 0
+	pose := Once(func() *Pose {
+		calls++
+		return NewPose("rmsnorm-forward", map[string]any{"epsilon": 0.5}, ops.Tensors{"x": Tensor(x, 4, 8)},
+			ops.Tensors{"y": Tensor(got, 4, 8)}, map[string]string{"epsilon_placement": "Problem.Placement"})
+	})
+	tol := Float64Tolerance(ref)
+	opt := compare.Options{Format: compare.Float64, Tolerance: &tol}
+	r := &Recorder{}
+	assert.True(t, Judge(r, "c", "conv", Output{Name: "y", Shape: []int{4, 8}, Ref: ref, Got: ref, Pose: pose}, opt))
+	assert.Equal(t, 0, calls)
+	for range 2 {
+		assert.False(t, Judge(r, "c", "conv", Output{Name: "y", Dims: "[row, column]", Shape: []int{4, 8}, Ref: ref, Got: got, Pose: pose}, opt))
+	}
+	assert.Equal(t, 1, calls)
+	require.Len(t, r.Messages, 2)
+	for _, m := range r.Messages {
+		lines := strings.Split(m, "\n")
+		require.Len(t, lines, 6, m)
+		assert.True(t, strings.HasPrefix(lines[4], `  it matches "epsilon_placement": "added-to-root" [Problem.Placement] (normwise `), m)
+		assert.True(t, strings.HasSuffix(lines[4], ", passes)"), m)
+		assert.True(t, strings.HasPrefix(lines[5], "  the whole report"), m)
+	}
+
+	// An error no convention explains: twice the reference.
+	twice := make([]float64, len(ref))
+	for i, v := range ref {
+		twice[i] = 2 * v
+	}
+	r = &Recorder{}
+	Judge(r, "c", "conv", Output{Name: "y", Shape: []int{4, 8}, Ref: ref, Got: twice, Pose: func() *Pose {
+		return NewPose("rmsnorm-forward", map[string]any{"epsilon": 0.5}, ops.Tensors{"x": Tensor(x, 4, 8)}, ops.Tensors{"y": Tensor(twice, 4, 8)}, nil)
+	}}, opt)
+	assert.Contains(t, r.Messages[0], "\n  no single change of its conventions explains it\n")
+
+	// A problem no operation poses: no line.
+	r = &Recorder{}
+	Judge(r, "c", "conv", Output{Name: "y", Shape: []int{4, 8}, Ref: ref, Got: got, Pose: func() *Pose { return nil }}, opt)
+	assert.Len(t, strings.Split(r.Messages[0], "\n"), 5)
 }
 
 // With two yardsticks each bound is the larger of the two.

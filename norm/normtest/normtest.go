@@ -46,8 +46,9 @@
 // mean(x²) − mean(x)² in float32 fails the rows with a large offset, as it
 // should. A float64 kernel is held to 1e-12 normwise and 1e-12·max|ref|
 // per element. A failure names the case, its conventions by key and word
-// (Problem.String), the output and its worst elements [row, column], then
-// the file holding compare.Diff's whole report (PLUMB_REPORT_INLINE=1 in the
+// (Problem.String), the output and its worst elements [row, column], one
+// line naming the convention the output matches instead when one does
+// (package diagnose), then the file holding compare.Diff's whole report (PLUMB_REPORT_INLINE=1 in the
 // environment prints it instead).
 //
 // Inputs are drawn from a PCG generator seeded with the subtest's name and
@@ -67,6 +68,7 @@ import (
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/norm"
+	"github.com/plumbref/plumb/ops"
 )
 
 // Layer is the normalisation.
@@ -372,13 +374,13 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 	x, res, w, b, dy = f.RoundSlice(x), roundOrNil(f, res), roundOrNil(f, w), roundOrNil(f, b), f.RoundSlice(dy)
 	conv := p.String()
 	rowShape := []int{p.Rows, p.Dim}
-	judge := func(name string, shape []int, ref, got []float64, inputs [][]float64, run func([][]float32) ([]float32, error)) {
+	judge := func(name string, shape []int, ref, got []float64, pose func() *suite.Pose, inputs [][]float64, run func([][]float32) ([]float32, error)) {
 		t.Helper()
 		dims := "[row, column]"
 		if len(shape) == 1 {
 			dims = "[column]"
 		}
-		suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: name, Dims: dims, Shape: shape, Ref: ref, Got: got}, inputs, run)
+		suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: name, Dims: dims, Shape: shape, Ref: ref, Got: got, Pose: pose}, inputs, run)
 	}
 
 	y, sum, err := forward(p, x, res, w, b, norm.LayerNorm, norm.RMSNorm)
@@ -398,9 +400,17 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 			return [][]float32{y, s}[pick], err
 		}
 	}
-	judge("y", rowShape, y, compare.Widen(gy), inputs, run(0))
+	normed := x // what the norm normalises: the reference's sum in the fused form
 	if p.Residual {
-		judge("sum", rowShape, sum, compare.Widen(gsum), inputs, run(1))
+		normed = sum
+	}
+	wide := compare.Widen(gy)
+	judge("y", rowShape, y, wide, func() *suite.Pose {
+		return p.pose("forward", ops.Tensors{"x": suite.Tensor(normed, rowShape...)}, w, b, ops.Tensors{"y": suite.Tensor(wide, rowShape...)})
+	}, inputs, run(0))
+	if p.Residual {
+		// The sum of the fused form is no operation of package ops: no diagnosis.
+		judge("sum", rowShape, sum, compare.Widen(gsum), nil, inputs, run(1))
 	}
 	if k.Backward == nil || p.Residual {
 		return
@@ -422,13 +432,41 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 			return [][]float32{dx, dw, db}[pick], err
 		}
 	}
-	judge("dx", rowShape, dx, compare.Widen(gdx), binputs, brun(0))
+	wdx, wdw, wdb := compare.Widen(gdx), compare.Widen(gdw), compare.Widen(gdb)
+	bpose := suite.Once(func() *suite.Pose {
+		got := ops.Tensors{"dx": suite.Tensor(wdx, rowShape...)}
+		if dw != nil {
+			got["dweight"] = suite.Tensor(wdw, p.Dim)
+		}
+		if db != nil {
+			got["dbias"] = suite.Tensor(wdb, p.Dim)
+		}
+		return p.pose("backward", ops.Tensors{"x": suite.Tensor(x, rowShape...), "dy": suite.Tensor(dy, rowShape...)}, w, nil, got)
+	})
+	judge("dx", rowShape, dx, wdx, bpose, binputs, brun(0))
 	if dw != nil {
-		judge("dweight", []int{p.Dim}, dw, compare.Widen(gdw), binputs, brun(1))
+		judge("dweight", []int{p.Dim}, dw, wdw, bpose, binputs, brun(1))
 	}
 	if db != nil {
-		judge("dbias", []int{p.Dim}, db, compare.Widen(gdb), binputs, brun(2))
+		judge("dbias", []int{p.Dim}, db, wdb, bpose, binputs, brun(2))
 	}
+}
+
+// pose returns p as the operation layernorm-<pass> or rmsnorm-<pass> of
+// package ops (pass "forward" or "backward"), its conventions by their
+// keys, with the inputs in plus weight w and bias b when given, and the
+// kernel's outputs got, for the diagnosis of a failing kernel.
+func (p Problem) pose(pass string, in ops.Tensors, w, b []float64, got ops.Tensors) *suite.Pose {
+	cfg := map[string]any{"epsilon": p.Epsilon, "epsilon_placement": p.Placement.String(), "weight_form": p.Weight.String()}
+	if w != nil {
+		in["weight"] = suite.Tensor(w, p.Dim)
+	}
+	if b != nil {
+		in["bias"] = suite.Tensor(b, p.Dim)
+	}
+	words := map[string]string{"epsilon": "Problem.Epsilon", "epsilon_placement": "Problem.Placement, Supports.Placements",
+		"weight_form": "Problem.Weight, Supports.Weights"}
+	return suite.NewPose(p.Layer.String()+"-"+pass, cfg, in, got, words)
 }
 
 func roundOrNil(f compare.Format, x []float64) []float64 {

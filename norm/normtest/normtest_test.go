@@ -127,10 +127,15 @@ func naive(slip string) func(x, res, w, b []float32, p Problem) ([]float32, []fl
 func TestCatchesSlips(t *testing.T) {
 	for _, s := range []struct {
 		slip, fails, passes string
+		diagnosis           string // the line of the diagnosis, up to its normwise error
 	}{
-		{"epsilon placement", "epsilon_matters/rmsnorm/in-root/as-is", "large_values/layernorm/in-root/as-is"},
-		{"weight form", "small_rows/layernorm/in-root/one-plus", "no_weight/rmsnorm/added-to-root"},
-		{"one pass", "offset_rows/layernorm/in-root/as-is", "offset_rows/rmsnorm/in-root/as-is"},
+		{"epsilon placement", "epsilon_matters/rmsnorm/in-root/as-is", "large_values/layernorm/in-root/as-is",
+			`  it matches "epsilon_placement": "added-to-root" [Problem.Placement, Supports.Placements]`},
+		{"weight form", "small_rows/layernorm/in-root/one-plus", "no_weight/rmsnorm/added-to-root",
+			`  it matches "weight_form": "as-is" [Problem.Weight, Supports.Weights]`},
+		// An error of accuracy, not of a convention: nothing to name.
+		{"one pass", "offset_rows/layernorm/in-root/as-is", "offset_rows/rmsnorm/in-root/as-is",
+			"  no single change of its conventions explains it"},
 	} {
 		t.Run(s.slip, func(t *testing.T) {
 			rec := &conformance.Recorder{}
@@ -142,6 +147,7 @@ func TestCatchesSlips(t *testing.T) {
 			assert.True(t, strings.HasPrefix(msg, "case "+s.fails[:strings.Index(s.fails, "/")]+" ("), msg)
 			assert.Contains(t, msg, "y differs from the reference")
 			assert.Contains(t, msg, "worst element [row, column]")
+			assert.True(t, strings.HasPrefix(diagnosisLine(t, msg), s.diagnosis), msg)
 			good := rec.Find(s.passes)
 			require.NotNil(t, good, s.passes)
 			assert.False(t, good.Failed, strings.Join(good.Messages, "\n"))
@@ -210,4 +216,21 @@ func TestCatchesBackwardSlip(t *testing.T) {
 	require.Len(t, msg, 1)
 	assert.Contains(t, msg[0], "dx differs from the reference")
 	assert.Contains(t, msg[0], "worst element [row, column]")
+	// A term left out is no convention: the diagnosis (layernorm-backward
+	// posed) names none.
+	assert.Equal(t, "  no single change of its conventions explains it", diagnosisLine(t, msg[0]), msg[0])
+}
+
+// diagnosisLine returns the line of a failure message before the one
+// naming the report's file: the diagnosis.
+func diagnosisLine(t *testing.T, msg string) string {
+	t.Helper()
+	lines := strings.Split(msg, "\n")
+	for i, l := range lines {
+		if i > 0 && strings.HasPrefix(l, "  the whole report") {
+			return lines[i-1]
+		}
+	}
+	t.Fatalf("no line naming the whole report in %q", msg)
+	return ""
 }

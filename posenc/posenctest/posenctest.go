@@ -53,7 +53,9 @@
 //
 // A failure names the case, the configuration with each convention by its
 // key and word, and the positions (Problem.String), the output
-// and its worst elements [row, dim], then the file holding compare.Diff's
+// and its worst elements [row, dim], one line naming the convention the
+// output matches instead when one does (package diagnose), then the file
+// holding compare.Diff's
 // whole report (PLUMB_REPORT_INLINE=1 in the environment prints it
 // instead). Inputs are
 // standard normal, drawn from a PCG generator seeded with the subtest's
@@ -69,6 +71,7 @@ import (
 	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/suite"
+	"github.com/plumbref/plumb/ops"
 	"github.com/plumbref/plumb/posenc"
 )
 
@@ -298,7 +301,55 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 			t.Errorf("case %s (%s): the kernel returned an error: %v", caseName, conv, err)
 			continue
 		}
-		suite.Check[T, E](t, f, caseName, conv, suite.Output{Name: fn.name, Dims: "[row, dim]", Shape: shape, Ref: want, Got: compare.Widen(got)},
+		inverse, gotWide := fn.name != "rotated x", compare.Widen(got)
+		pose := func() *suite.Pose { return p.pose(x, gotWide, inverse) }
+		suite.Check[T, E](t, f, caseName, conv, suite.Output{Name: fn.name, Dims: "[row, dim]", Shape: shape, Ref: want, Got: gotWide, Pose: pose},
 			[][]float64{x}, func(in [][]float32) ([]float32, error) { return fn.low(p.Rotary, in[0], 1, pos) })
 	}
+}
+
+// pose returns p as the operation rotary-apply of package ops (with
+// "inverse" for the inverse rotation), every setting of the encoding by
+// its key, for the diagnosis of a failing kernel: x the input, got the
+// kernel's output.
+func (p Problem) pose(x, got []float64, inverse bool) *suite.Pose {
+	r := p.Rotary
+	cfg := map[string]any{"rotated": r.Rotated, "base": r.Base, "pairing": r.Pairing.String(), "positions": p.Positions, "inverse": inverse}
+	if r.Rotated == 0 {
+		cfg["rotated"] = r.Dim
+	}
+	if r.Magnitude != 0 {
+		cfg["magnitude"] = r.Magnitude
+	}
+	if sc := r.Scaling; sc.Method != posenc.NoScaling {
+		m := map[string]any{"method": sc.Method.String()}
+		if sc.Factor != 0 {
+			m["factor"] = sc.Factor
+		}
+		if sc.TrainedLength > 0 {
+			m["trained_length"] = sc.TrainedLength
+		}
+		if sc.CurrentLength > 0 {
+			m["current_length"] = sc.CurrentLength
+		}
+		if sc.Alpha != 0 || sc.Beta != 0 {
+			m["alpha"], m["beta"] = sc.Alpha, sc.Beta
+		}
+		if sc.Method == posenc.YaRN {
+			m["ramp"] = sc.Ramp.String()
+		}
+		if sc.Factors != nil {
+			m["factors"] = sc.Factors
+		}
+		cfg["scaling"] = m
+	}
+	words := map[string]string{
+		"pairing": "Rotary.Pairing, Supports.Pairings", "rotated": "Rotary.Rotated, Supports.PartialRotary",
+		"base": "Rotary.Base", "magnitude": "Rotary.Magnitude, Supports.Magnitude", "positions": "Problem.Positions",
+		"scaling.method": "Scaling.Method, Supports.Methods", "scaling.factor": "Scaling.Factor",
+		"scaling.ramp": "Scaling.Ramp, Supports.Ramps", "scaling.current_length": "Scaling.CurrentLength, Supports.Dynamic",
+		"inverse": "Kernel.Apply and Kernel.Inverse",
+	}
+	shape := []int{p.Rows, r.Dim}
+	return suite.NewPose("rotary-apply", cfg, ops.Tensors{"x": suite.Tensor(x, shape...)}, ops.Tensors{"y": suite.Tensor(got, shape...)}, words)
 }

@@ -123,9 +123,31 @@ func TestCatchesPairingSlip(t *testing.T) {
 	assert.True(t, strings.HasPrefix(msg, "case small (8 rows of 8, pairing adjacent, rotated 8 of 8 dims, base 10000, positions 0 … 7): rotated x differs from the reference"), msg)
 	assert.Contains(t, msg, "worst element [row, dim]")
 	assert.NotContains(t, failed, "position_zero/adjacent")
+	// The diagnosis (rotary-apply posed with every setting of the case)
+	// names the pairing the kernel used, in the suite's words too; its
+	// line comes before the one naming the report's file.
+	line := diagnosisLine(t, msg)
+	assert.True(t, strings.HasPrefix(line, `  it matches "pairing": "halves" [Rotary.Pairing, Supports.Pairings] (normwise `), msg)
+	assert.True(t, strings.HasSuffix(line, ", passes)"), msg)
+	halves := rec.Find("head_dim_128/halves").Messages[0]
+	assert.Contains(t, halves, `it matches "pairing": "adjacent" [Rotary.Pairing, Supports.Pairings]`)
 }
 
 // The package documentation lists every case, with its reason, in order.
 func TestDocListsEveryCase(t *testing.T) {
 	suite.DocListsEveryCase(t, "posenctest.go", Cases(), func(c Case) (string, string) { return c.Name, c.Why })
+}
+
+// diagnosisLine returns the line of a failure message before the one
+// naming the report's file: the diagnosis.
+func diagnosisLine(t *testing.T, msg string) string {
+	t.Helper()
+	lines := strings.Split(msg, "\n")
+	for i, l := range lines {
+		if i > 0 && strings.HasPrefix(l, "  the whole report") {
+			return lines[i-1]
+		}
+	}
+	t.Fatalf("no line naming the whole report in %q", msg)
+	return ""
 }
