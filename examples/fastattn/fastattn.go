@@ -420,6 +420,8 @@ func (p Params) check(nq, nk, nv int) error {
 		return bad("Params.Window = %d without Causal; want Causal with a window", p.Window)
 	case p.RopeDims%2 != 0 || p.RopeDims > p.HeadDim || p.RopeDims < 0:
 		return bad("Params.RopeDims = %d; want an even number from 0 to HeadDim = %d", p.RopeDims, p.HeadDim)
+	case p.RopeBase > 0 && p.RopeDims == 0 && p.HeadDim%2 != 0:
+		return bad("Params.RopeDims = 0 rotates all HeadDim = %d dims; want an even number of rotated dims: set RopeDims", p.HeadDim)
 	case p.Causal && (p.StartPos < 0 || p.StartPos+p.Lq > p.Lk):
 		return bad("Params.StartPos = %d; want 0 … Lk − Lq = %d, so that the Lq = %d causal queries sit among the Lk = %d keys",
 			p.StartPos, p.Lk-p.Lq, p.Lq, p.Lk)

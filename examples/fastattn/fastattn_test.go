@@ -116,6 +116,9 @@ func TestParamErrors(t *testing.T) {
 		{"window without causal", func(p *Params) { p.Causal, p.Window = false, 2 }, "Params.Window = 2 without Causal"},
 		{"negative window", func(p *Params) { p.Window = -1 }, "Params.Window = -1; want ≥ 0"},
 		{"odd rotary", func(p *Params) { p.RopeDims = 3 }, "Params.RopeDims = 3; want an even number from 0 to HeadDim = 8"},
+		// every dim of an odd head rotated: pairs cannot cover it (the
+		// reference, posenc.Rotary, refuses an odd count too)
+		{"odd head all rotated", func(p *Params) { p.HeadDim, p.RopeBase = 5, 10000 }, "Params.RopeDims = 0 rotates all HeadDim = 5 dims; want an even number of rotated dims: set RopeDims"},
 		{"queries past the keys", func(p *Params) { p.StartPos = 3 }, "Params.StartPos = 3; want 0 … Lk − Lq = 2"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
