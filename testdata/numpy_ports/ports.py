@@ -327,11 +327,11 @@ def norm_ports(inp):
     yield dict(port="layernorm-unbiased-variance", operation="layernorm-forward", family="layernorm",
                slip="variance divided by d − 1", config=ln, inputs=lni, expected=[],
                run=lambda: layernorm(xl, w, b, 1e-5, unbiased=True))
-    yield dict(port="layernorm-epsilon-outside-root", operation="layernorm-forward", family="layernorm",
+    yield dict(port="layernorm-root-then-small-constant", operation="layernorm-forward", family="layernorm",
                slip="divides by √σ² + ε", config=ln, inputs=lni,
                expected=['"epsilon_placement": "added-to-root"'],
                run=lambda: layernorm(xl, w, b, 1e-5, eps_outside=True))
-    yield dict(port="layernorm-epsilon-1e-6", operation="layernorm-forward", family="layernorm",
+    yield dict(port="layernorm-smaller-constant", operation="layernorm-forward", family="layernorm",
                slip="ε = 1e-6 although the configuration says 1e-5", config=ln, inputs=lni,
                expected=['"epsilon": 1e-6'],
                run=lambda: layernorm(xl, w, b, 1e-6))
@@ -347,7 +347,7 @@ def norm_ports(inp):
                slip="gain w although the configuration says 1 + w", config=rc, inputs=rmi,
                expected=['"weight_form": "as-is"'],
                run=lambda: rmsnorm(x, w0, 1e-5))
-    yield dict(port="rmsnorm-epsilon-outside-root", operation="rmsnorm-forward", family="rmsnorm",
+    yield dict(port="rmsnorm-root-then-small-constant", operation="rmsnorm-forward", family="rmsnorm",
                slip="divides by √mean(x²) + ε", config=rc, inputs=rmi,
                expected=['"epsilon_placement": "added-to-root"'],
                run=lambda: rmsnorm(x, w0, 1e-5, one_plus=True, eps_outside=True))
