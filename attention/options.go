@@ -97,12 +97,7 @@ func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
 // UnmarshalText sets l from its word; any other text is an error wrapping
 // ErrOption that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (l *Layout) UnmarshalText(b []byte) error {
-	if l == nil {
-		return nilReceiver(ErrOption, "Layout")
-	}
-	return layoutWords.Unmarshal(l, b)
-}
+func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
 
 // Meaning returns one line saying what l means.
 func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
@@ -147,12 +142,7 @@ func (g GroupMap) MarshalText() ([]byte, error) { return groupWords.Marshal(g) }
 // UnmarshalText sets g from its word; any other text is an error wrapping
 // ErrOption that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (g *GroupMap) UnmarshalText(b []byte) error {
-	if g == nil {
-		return nilReceiver(ErrOption, "GroupMap")
-	}
-	return groupWords.Unmarshal(g, b)
-}
+func (g *GroupMap) UnmarshalText(b []byte) error { return groupWords.Unmarshal(g, b) }
 
 // Meaning returns one line saying what g means.
 func (g GroupMap) Meaning() string { return groupWords.Meaning(g) }
@@ -195,12 +185,7 @@ func (e EmptyRow) MarshalText() ([]byte, error) { return emptyRowWords.Marshal(e
 // UnmarshalText sets e from its word; any other text is an error wrapping
 // ErrOption that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (e *EmptyRow) UnmarshalText(b []byte) error {
-	if e == nil {
-		return nilReceiver(ErrOption, "EmptyRow")
-	}
-	return emptyRowWords.Unmarshal(e, b)
-}
+func (e *EmptyRow) UnmarshalText(b []byte) error { return emptyRowWords.Unmarshal(e, b) }
 
 // Meaning returns one line saying what e means.
 func (e EmptyRow) Meaning() string { return emptyRowWords.Meaning(e) }
@@ -658,12 +643,6 @@ func (p *plan) biasRow(b, h, i int) int {
 		bh, nh = h, p.s.HeadsQ
 	}
 	return ((bb*nh+bh)*p.s.Lq + i) * p.s.Lk
-}
-
-// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
-// no value to set.
-func nilReceiver(sentinel error, typ string) error {
-	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
 }
 
 // overflowNote records the first logit, in the order (b, h, i, j), that

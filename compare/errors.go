@@ -1,9 +1,6 @@
 package compare
 
-import (
-	"errors"
-	"fmt"
-)
+import "errors"
 
 // The sentinel errors. Every error this package returns wraps exactly one of
 // them (match with errors.Is) and reads
@@ -30,9 +27,3 @@ var (
 	// ErrReport: a nil *Report, or JSON that is not a Report's.
 	ErrReport = errors.New("compare: invalid report")
 )
-
-// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
-// no value to set.
-func nilReceiver(sentinel error, typ string) error {
-	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
-}

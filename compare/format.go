@@ -146,12 +146,7 @@ func (f Format) MarshalText() ([]byte, error) { return formatWords.Marshal(f) }
 // FormatByName accepts; any other text is an error wrapping ErrFormat that
 // lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (f *Format) UnmarshalText(b []byte) error {
-	if f == nil {
-		return nilReceiver(ErrFormat, "Format")
-	}
-	return formatWords.Unmarshal(f, b)
-}
+func (f *Format) UnmarshalText(b []byte) error { return formatWords.Unmarshal(f, b) }
 
 // Meaning returns one line saying what f is.
 func (f Format) Meaning() string { return formatWords.Meaning(f) }

@@ -68,12 +68,7 @@ func (f ALiBiForm) MarshalText() ([]byte, error) { return alibiWords.Marshal(f) 
 // UnmarshalText sets f from its word; any other text is an error wrapping
 // ErrALiBi that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (f *ALiBiForm) UnmarshalText(b []byte) error {
-	if f == nil {
-		return nilReceiver(ErrALiBi, "ALiBiForm")
-	}
-	return alibiWords.Unmarshal(f, b)
-}
+func (f *ALiBiForm) UnmarshalText(b []byte) error { return alibiWords.Unmarshal(f, b) }
 
 // Meaning returns one line saying what f means.
 func (f ALiBiForm) Meaning() string { return alibiWords.Meaning(f) }

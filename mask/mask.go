@@ -100,12 +100,7 @@ func (a Align) MarshalText() ([]byte, error) { return alignWords.Marshal(a) }
 // UnmarshalText sets a from its word; any other text is an error wrapping
 // ErrAlign that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (a *Align) UnmarshalText(b []byte) error {
-	if a == nil {
-		return nilReceiver(ErrAlign, "Align")
-	}
-	return alignWords.Unmarshal(a, b)
-}
+func (a *Align) UnmarshalText(b []byte) error { return alignWords.Unmarshal(a, b) }
 
 // Meaning returns one line saying what a means.
 func (a Align) Meaning() string { return alignWords.Meaning(a) }
@@ -143,12 +138,7 @@ func (b Block) MarshalText() ([]byte, error) { return blockWords.Marshal(b) }
 // UnmarshalText sets b from its word; any other text is an error wrapping
 // ErrBlock that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (b *Block) UnmarshalText(t []byte) error {
-	if b == nil {
-		return nilReceiver(ErrBlock, "Block")
-	}
-	return blockWords.Unmarshal(b, t)
-}
+func (b *Block) UnmarshalText(t []byte) error { return blockWords.Unmarshal(b, t) }
 
 // Meaning returns one line saying what b means.
 func (b Block) Meaning() string { return blockWords.Meaning(b) }
@@ -196,12 +186,7 @@ func (k Kind) MarshalText() ([]byte, error) { return kindWords.Marshal(k) }
 // UnmarshalText sets k from its word; any other text is an error wrapping
 // ErrKind that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (k *Kind) UnmarshalText(b []byte) error {
-	if k == nil {
-		return nilReceiver(ErrKind, "Kind")
-	}
-	return kindWords.Unmarshal(k, b)
-}
+func (k *Kind) UnmarshalText(b []byte) error { return kindWords.Unmarshal(k, b) }
 
 // Meaning returns one line saying what k means.
 func (k Kind) Meaning() string { return kindWords.Meaning(k) }
@@ -758,10 +743,4 @@ func (m Mask) EmptyRows(g Geometry) ([]Row, error) {
 		rows = append(rows, Row{b, i})
 	})
 	return rows, nil
-}
-
-// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
-// no value to set.
-func nilReceiver(sentinel error, typ string) error {
-	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
 }

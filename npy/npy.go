@@ -113,12 +113,7 @@ func (d DType) MarshalText() ([]byte, error) { return dtypeWords.Marshal(d) }
 // UnmarshalText sets d from its word; any other text is an error wrapping
 // ErrDType that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (d *DType) UnmarshalText(b []byte) error {
-	if d == nil {
-		return nilReceiver(ErrDType, "DType")
-	}
-	return dtypeWords.Unmarshal(d, b)
-}
+func (d *DType) UnmarshalText(b []byte) error { return dtypeWords.Unmarshal(d, b) }
 
 // Meaning returns one line saying what d is.
 func (d DType) Meaning() string { return dtypeWords.Meaning(d) }
@@ -186,12 +181,7 @@ func (o ByteOrder) MarshalText() ([]byte, error) { return orderWords.Marshal(o) 
 // UnmarshalText sets o from its word; any other text is an error wrapping
 // ErrDType that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (o *ByteOrder) UnmarshalText(b []byte) error {
-	if o == nil {
-		return nilReceiver(ErrDType, "ByteOrder")
-	}
-	return orderWords.Unmarshal(o, b)
-}
+func (o *ByteOrder) UnmarshalText(b []byte) error { return orderWords.Unmarshal(o, b) }
 
 // Meaning returns one line saying what o means.
 func (o ByteOrder) Meaning() string { return orderWords.Meaning(o) }
@@ -294,12 +284,7 @@ func (b Bits) MarshalText() ([]byte, error) { return bitsWords.Marshal(b) }
 // UnmarshalText sets b from its word; any other text is an error wrapping
 // ErrDType that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (b *Bits) UnmarshalText(t []byte) error {
-	if b == nil {
-		return nilReceiver(ErrDType, "Bits")
-	}
-	return bitsWords.Unmarshal(b, t)
-}
+func (b *Bits) UnmarshalText(t []byte) error { return bitsWords.Unmarshal(b, t) }
 
 // Meaning returns one line saying what b means.
 func (b Bits) Meaning() string { return bitsWords.Meaning(b) }
@@ -540,10 +525,4 @@ func decodeAll[T uint8 | uint16](v []T, f compare.Format) []float64 {
 		out[i], _ = f.Decode(uint64(b))
 	}
 	return out
-}
-
-// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
-// no value to set.
-func nilReceiver(sentinel error, typ string) error {
-	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
 }

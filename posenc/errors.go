@@ -1,9 +1,6 @@
 package posenc
 
-import (
-	"errors"
-	"fmt"
-)
+import "errors"
 
 // Sentinel errors. Every error returned by this package wraps exactly one of
 // them, so callers can match with errors.Is. The message reads
@@ -62,9 +59,3 @@ const MaxDim = 1 << 20
 // test case of the package is far inside it; results computed from a
 // caller's slice (Rotary.Apply, Sinusoidal.Add) are as large as that slice.
 const MaxElements = 1 << 28
-
-// nilReceiver is the error of UnmarshalText called on a nil *typ: there is
-// no value to set.
-func nilReceiver(sentinel error, typ string) error {
-	return fmt.Errorf("%w: %s.UnmarshalText: receiver = nil; want a *%s to set", sentinel, typ, typ)
-}

@@ -39,12 +39,7 @@ func (p Pairing) MarshalText() ([]byte, error) { return pairingWords.Marshal(p) 
 // UnmarshalText sets p from its word; any other text is an error wrapping
 // ErrOption that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (p *Pairing) UnmarshalText(b []byte) error {
-	if p == nil {
-		return nilReceiver(ErrOption, "Pairing")
-	}
-	return pairingWords.Unmarshal(p, b)
-}
+func (p *Pairing) UnmarshalText(b []byte) error { return pairingWords.Unmarshal(p, b) }
 
 // Meaning returns one line saying what p means.
 func (p Pairing) Meaning() string { return pairingWords.Meaning(p) }

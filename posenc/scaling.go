@@ -68,12 +68,7 @@ func (m Method) MarshalText() ([]byte, error) { return methodWords.Marshal(m) }
 // UnmarshalText sets m from its word; any other text is an error wrapping
 // ErrOption that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (m *Method) UnmarshalText(b []byte) error {
-	if m == nil {
-		return nilReceiver(ErrOption, "Method")
-	}
-	return methodWords.Unmarshal(m, b)
-}
+func (m *Method) UnmarshalText(b []byte) error { return methodWords.Unmarshal(m, b) }
 
 // Meaning returns one line saying what m means.
 func (m Method) Meaning() string { return methodWords.Meaning(m) }
@@ -132,12 +127,7 @@ func (r Ramp) MarshalText() ([]byte, error) { return rampWords.Marshal(r) }
 // UnmarshalText sets r from its word; any other text is an error wrapping
 // ErrOption that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (r *Ramp) UnmarshalText(b []byte) error {
-	if r == nil {
-		return nilReceiver(ErrOption, "Ramp")
-	}
-	return rampWords.Unmarshal(r, b)
-}
+func (r *Ramp) UnmarshalText(b []byte) error { return rampWords.Unmarshal(r, b) }
 
 // Meaning returns one line saying what r means.
 func (r Ramp) Meaning() string { return rampWords.Meaning(r) }

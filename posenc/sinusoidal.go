@@ -35,12 +35,7 @@ func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
 // UnmarshalText sets l from its word; any other text is an error wrapping
 // ErrOption that lists the words.
 // A nil receiver is an error wrapping the same sentinel, not a panic.
-func (l *Layout) UnmarshalText(b []byte) error {
-	if l == nil {
-		return nilReceiver(ErrOption, "Layout")
-	}
-	return layoutWords.Unmarshal(l, b)
-}
+func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
 
 // Meaning returns one line saying what l means.
 func (l Layout) Meaning() string { return layoutWords.Meaning(l) }

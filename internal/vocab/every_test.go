@@ -109,6 +109,9 @@ func TestEveryConventionRoundTrips(t *testing.T) {
 			assert.Error(t, errOf(call(t, bad, "MarshalText")[1]))
 			assert.Contains(t, call(t, bad, "String")[0].String(), "(")
 
+			// A nil receiver is an error, not a panic.
+			assert.Error(t, errOf(call(t, reflect.Zero(reflect.PointerTo(e.Type)), "UnmarshalText", []byte(e.Words[0].Text))[0]))
+
 			err = errOf(call(t, reflect.New(e.Type), "UnmarshalText", []byte("no-such-word"))[0])
 			require.ErrorAs(t, err, &ve)
 			for _, w := range e.Words {

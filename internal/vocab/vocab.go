@@ -176,8 +176,16 @@ func (s *Set[T]) Marshal(v T) ([]byte, error) {
 
 // Unmarshal is UnmarshalText: it sets *v to the value whose word (or alias)
 // is b, compared without regard to case and surrounding space, or returns
-// an *Error that lists the words and leaves *v alone.
+// an *Error that lists the words and leaves *v alone. A nil v is an error
+// wrapping the Set's sentinel, not a panic.
 func (s *Set[T]) Unmarshal(v *T, b []byte) error {
+	if v == nil {
+		msg := fmt.Sprintf("%s.UnmarshalText: receiver = nil; want a *%s to set", s.name, s.name)
+		if s.err == nil {
+			return errors.New(s.pkg + ": " + msg)
+		}
+		return fmt.Errorf("%w: %s", s.err, msg)
+	}
 	t := strings.ToLower(strings.TrimSpace(string(b)))
 	for _, w := range s.words {
 		if w.Text == t {

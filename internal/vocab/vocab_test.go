@@ -48,6 +48,10 @@ func TestSet(t *testing.T) {
 	require.ErrorAs(t, err, &e)
 	assert.Equal(t, Error{Set: "paint.colour", Where: "colour", Value: `"sky_blue"`, Words: []string{"white", "sky-blue"}, errs: []error{errColour}}, *e)
 
+	err = colours.Unmarshal(nil, []byte("white"))
+	assert.EqualError(t, err, "paint: invalid colour: colour.UnmarshalText: receiver = nil; want a *colour to set")
+	assert.ErrorIs(t, err, errColour)
+
 	assert.NoError(t, colours.CheckAt("Paint: Options.Colour", 0))
 	assert.EqualError(t, colours.CheckAt("Paint: Options.Colour", 2), "paint: invalid colour: Paint: Options.Colour = 2; want one of white, sky-blue")
 }
