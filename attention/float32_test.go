@@ -1,11 +1,6 @@
 package attention
 
 import (
-	"go/ast"
-	"go/build"
-	"go/parser"
-	"go/token"
-	"go/types"
 	"math"
 	"math/rand/v2"
 	"strings"
@@ -15,6 +10,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/internal/surface"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -383,30 +379,8 @@ func TestSpecialCases32(t *testing.T) {
 // ([]float64, or Grads) has a twin named with the suffix 32 whose signature
 // is the same in float32, and every function named …32 is such a twin.
 func TestFloat32Surface(t *testing.T) {
-	pkg, err := build.ImportDir(".", 0)
+	twinned, problems, err := surface.Twins(".", strings.NewReplacer("float64", "float32", "Grads", "Grads32"))
 	require.NoError(t, err)
-	fset := token.NewFileSet()
-	sigs := map[string]string{}
-	for _, name := range pkg.GoFiles {
-		f, err := parser.ParseFile(fset, name, nil, parser.SkipObjectResolution)
-		require.NoError(t, err)
-		for _, d := range f.Decls {
-			if fd, ok := d.(*ast.FuncDecl); ok && fd.Recv == nil && fd.Name.IsExported() {
-				sigs[fd.Name.Name] = types.ExprString(fd.Type)
-			}
-		}
-	}
-	to32 := strings.NewReplacer("float64", "float32", "Grads", "Grads32")
-	var twinned []string
-	for name, sig := range sigs {
-		if base, ok := strings.CutSuffix(name, "32"); ok {
-			assert.Contains(t, sigs, base, "%s is a float32 twin of nothing", name)
-			continue
-		}
-		if want := to32.Replace(sig); want != sig {
-			assert.Equal(t, want, sigs[name+"32"], "%s takes or returns tensors: its twin %s32 must exist with this signature", name, name)
-			twinned = append(twinned, name)
-		}
-	}
+	assert.Empty(t, problems)
 	assert.Len(t, twinned, 9, "functions with a float32 twin: %v", twinned)
 }

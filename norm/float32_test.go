@@ -3,11 +3,6 @@ package norm
 import (
 	"errors"
 	"fmt"
-	"go/ast"
-	"go/build"
-	"go/parser"
-	"go/token"
-	"go/types"
 	"math"
 	"math/rand/v2"
 	"strings"
@@ -18,6 +13,7 @@ import (
 
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/internal/surface"
 )
 
 // u32 is the unit roundoff of float32 (IEEE 754-2019 binary32, a 24-bit
@@ -481,35 +477,8 @@ func isNaN32(x float32) bool { return x != x }
 // ([]float64, or Grads) has a twin named with the suffix 32 whose signature
 // is the same in float32, and every function named …32 is such a twin.
 func TestFloat32Surface(t *testing.T) {
-	fset := token.NewFileSet()
-	sigs := map[string]string{}
-	for _, name := range goFiles(t) {
-		f, err := parser.ParseFile(fset, name, nil, parser.SkipObjectResolution)
-		require.NoError(t, err)
-		for _, d := range f.Decls {
-			if fd, ok := d.(*ast.FuncDecl); ok && fd.Recv == nil && fd.Name.IsExported() {
-				sigs[fd.Name.Name] = types.ExprString(fd.Type)
-			}
-		}
-	}
-	to32 := strings.NewReplacer("float64", "float32", "Grads", "Grads32")
-	twinned := 0
-	for name, sig := range sigs {
-		if base, ok := strings.CutSuffix(name, "32"); ok {
-			assert.Contains(t, sigs, base, "%s is a float32 twin of nothing", name)
-			continue
-		}
-		if want := to32.Replace(sig); want != sig {
-			assert.Equal(t, want, sigs[name+"32"], "%s takes or returns tensors: its twin %s32 must exist with this signature", name, name)
-			twinned++
-		}
-	}
-	assert.Equal(t, 8, twinned, "functions with a float32 twin")
-}
-
-// goFiles lists the package's non-test Go files.
-func goFiles(t *testing.T) []string {
-	pkg, err := build.ImportDir(".", 0)
+	twinned, problems, err := surface.Twins(".", strings.NewReplacer("float64", "float32", "Grads", "Grads32"))
 	require.NoError(t, err)
-	return pkg.GoFiles
+	assert.Empty(t, problems)
+	assert.Len(t, twinned, 8, "functions with a float32 twin: %v", twinned)
 }
