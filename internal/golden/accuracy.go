@@ -111,8 +111,9 @@ func FormatError(e float64) string {
 	return fmt.Sprintf("%.1e", e)
 }
 
-// Main runs the package's tests and then, when they passed and none was
-// left out by -run, -skip or -short, checks that the table between
+// Main runs the package's tests and then, when they passed, none was left
+// out by -run, -skip or -short, and the build is the one the tables are
+// measured on (amd64, GOAMD64=v1; see tablesMeasuredHere), checks that the table between
 // AccuracyBegin and AccuracyEnd in Path is Table() (with -update it writes it there). It
 // returns the exit code for os.Exit.
 func (a *Accuracy) Main(m *testing.M) int { return Main(m, a) }
@@ -122,6 +123,10 @@ func (a *Accuracy) Main(m *testing.M) int { return Main(m, a) }
 func Main(m *testing.M, tables ...*Accuracy) int {
 	code := m.Run()
 	if code != 0 || !everyTestRan() {
+		return code
+	}
+	if !tablesMeasuredHere {
+		fmt.Fprintln(os.Stderr, "golden accuracy: the tables are measured on amd64 built for GOAMD64=v1; not compared on this build")
 		return code
 	}
 	for _, a := range tables {
