@@ -52,6 +52,18 @@ def word(convention, *texts):
     return texts[0] if len(texts) == 1 else texts
 
 
+def families(package, *builds):
+    """The FAMILIES list of a module: one (package, family, build) per
+    build function, the family named by the function (build_<family>)."""
+    out = []
+    for build in builds:
+        name = build.__name__
+        if not name.startswith("build_"):
+            raise ValueError("family builder %s is not named build_<family>" % name)
+        out.append((package, name[len("build_"):], build))
+    return out
+
+
 def rng(seed):
     """A deterministic generator. random.Random's Mersenne Twister and its
     random() method are stable across Python 3 versions."""

@@ -33,7 +33,7 @@ shared with the Go code.
 import mpmath
 from mpmath import mpf
 
-from common import case, ftensor, rng, uniform, word
+from common import families, case, ftensor, rng, uniform, word
 # The visibility rules are those of the mask family, written from their
 # definitions there (mask/doc.go); attention shares them, not the Go code.
 from fam_mask import (END, START, UNBOUNDED, BLOCK_CAUSAL, BLOCK_FULL, band, causal, full,
@@ -402,13 +402,7 @@ def build_combined():
     return c
 
 
-FAMILIES = [
-    ("attention", "basic", build_basic),
-    ("attention", "masks", build_masks),
-    ("attention", "grouped", build_grouped),
-    ("attention", "extras", build_extras),
-    ("attention", "combined", build_combined),
-]
+FAMILIES = families("attention", build_basic, build_masks, build_grouped, build_extras, build_combined)
 
 
 SRC_MERGE = ("Milakov & Gimelshein 2018, arXiv 1805.02867, Sec. 3.1 Eq. (3)-(4), applied to "
@@ -452,4 +446,4 @@ def build_merge():
     ]
 
 
-FAMILIES.append(("attention", "merge", build_merge))
+FAMILIES += families("attention", build_merge)

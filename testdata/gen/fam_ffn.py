@@ -19,7 +19,7 @@ point where the function is differentiable.
 import mpmath
 from mpmath import mp, mpf
 
-from common import btensor, case, ftensor, itensor, rng, to_f64, uniform, word  # noqa: F401
+from common import families, btensor, case, ftensor, itensor, rng, to_f64, uniform, word  # noqa: F401
 
 # The words of the Go conventions (testdata/gen/vocabulary.json). Configs
 # hold them under the keys of the operations (ops/ffn.go): "function" and
@@ -382,7 +382,7 @@ def build_gated():
     return cases
 
 
-def build_hidden():
+def build_hidden_size():
     cases = []
     for d, m in [(4096, 256), (4096, 1), (512, 1), (768, 64), (1, 1), (1, 256),
                  (5120, 256), (8192, 128), (3, 7), (12288, 256)]:
@@ -393,9 +393,4 @@ def build_hidden():
     return cases
 
 
-FAMILIES = [
-    ("ffn", "activations", build_activations),
-    ("ffn", "plain", build_plain),
-    ("ffn", "gated", build_gated),
-    ("ffn", "hidden_size", build_hidden),
-]
+FAMILIES = families("ffn", build_activations, build_plain, build_gated, build_hidden_size)

@@ -29,7 +29,7 @@ the norm at the rounded sum.
 
 from mpmath import mpf, sqrt as msqrt
 
-from common import case, ftensor, rng, uniform, word
+from common import families, case, ftensor, rng, uniform, word
 
 # The words of the Go conventions (testdata/gen/vocabulary.json). Case names
 # keep their older spellings (in_root, as_is, one_plus, none); the configs
@@ -372,8 +372,4 @@ def build_addnorm():
     return out
 
 
-FAMILIES = [
-    ("norm", "layernorm", build_layernorm),
-    ("norm", "rmsnorm", build_rmsnorm),
-    ("norm", "addnorm", build_addnorm),
-]
+FAMILIES = families("norm", build_layernorm, build_rmsnorm, build_addnorm)

@@ -20,7 +20,8 @@ digits, so large positions (up to 2^31 - 1) are exact references.
 
 from mpmath import mp, mpf
 
-from common import case, ftensor, itensor, rng, to_f64, uniform, word
+from common import families, case, ftensor, itensor, rng, to_f64, uniform, word
+from fam_mask import geometry, pos
 
 # Every convention word, spelled as the Go types define them
 # (vocabulary.json); word() stops the generator on a word Go does not have.
@@ -481,28 +482,23 @@ def build_alibi_bias():
         ("symmetric_cross_start", 3, 4, 6, START, 1, SYMMETRIC),
         ("symmetric_end_queries_beyond_keys", 5, 4, 3, END, 3, SYMMETRIC),
         ("causal_empty_keys", 2, 0, 0, END, 0, CAUSAL),
-        # the geometries above whose causal bias has keys after the query,
-        # in the past-only form: 0 for those keys
-        ("past_only_square_8_heads", 8, 6, 6, END, 0, PAST_ONLY),
-        ("past_only_chunk_end", 12, 3, 7, END, 0, PAST_ONLY),
-        ("past_only_start_offset", 4, 3, 8, START, 2, PAST_ONLY),
-        ("past_only_end_negative_offset", 2, 3, 8, END, -2, PAST_ONLY),
-        # most keys after the query: the causal form's positive bias m (j - p)
-        ("causal_keys_after_query_start", 3, 4, 10, START, 0, CAUSAL),
     ]
+    # the geometries above whose causal bias has keys after the query, in
+    # the past-only form: 0 for those keys
+    specs += [("past_only_" + name[len("causal_"):], H, Lq, Lk, align, offset, PAST_ONLY)
+              for name, H, Lq, Lk, align, offset, form in list(specs)
+              if form == CAUSAL and Lq > 0 and pos(geometry(1, Lq, Lk, align, offset), 0) < Lk - 1]
+    # most keys after the query: the causal form's positive bias m (j - p)
+    specs.append(("causal_keys_after_query_start", 3, 4, 10, START, 0, CAUSAL))
     for name, H, Lq, Lk, align, offset, form in specs:
         sl = slopes(H)
         slf = ftensor(sl, [H])  # the slopes, rounded to float64: the bias input
         slv = [to_f64(v) for v in sl]
         out = []
+        g = geometry(1, Lq, Lk, align, offset)
         for h in range(H):
             for i in range(Lq):
-                if align == END:
-                    p = Lk - Lq + i + offset
-                elif align == START:
-                    p = i + offset
-                else:
-                    raise ValueError(align)
+                p = pos(g, i)
                 for j in range(Lk):
                     # a distance of 0 gives +0 (mpmath has no -0)
                     out.append(-mpf(slv[h]) * alibi_distance(form, p, j))
@@ -512,14 +508,6 @@ def build_alibi_bias():
     return cases
 
 
-FAMILIES = [
-    ("posenc", "sinusoidal_table", build_sinusoidal_table),
-    ("posenc", "sinusoidal_add", build_sinusoidal_add),
-    ("posenc", "rotary_tables", build_rotary_tables),
-    ("posenc", "rotary_apply", build_rotary_apply),
-    ("posenc", "scaling", build_scaling),
-    ("posenc", "ntk_base", build_ntk_base),
-    ("posenc", "yarn_magnitude", build_yarn_magnitude),
-    ("posenc", "alibi_slopes", build_alibi_slopes),
-    ("posenc", "alibi_bias", build_alibi_bias),
-]
+FAMILIES = families("posenc", build_sinusoidal_table, build_sinusoidal_add, build_rotary_tables,
+                    build_rotary_apply, build_scaling, build_ntk_base, build_yarn_magnitude,
+                    build_alibi_slopes, build_alibi_bias)

@@ -5,8 +5,9 @@
 
 writes OUTDIR/<package>/<family>.json for every family that a
 testdata/gen/fam_*.py module declares (or only those of the named
-packages). Each module has a list FAMILIES of (package, family, build)
-where build() returns the list of cases. Runs are deterministic: the same
+packages). Each module has a list FAMILIES of (package, family, build),
+made by common.families from its build_<family> functions, where build()
+returns the list of cases. Runs are deterministic: the same
 sources give byte-identical files.
 """
 
