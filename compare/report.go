@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"math/bits"
+
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // DefaultWorst is the number of worst elements a Report lists when
@@ -313,13 +315,13 @@ func (a *diffSums) finish(ref, got []float64) {
 		if !finite(a.sum) {
 			r.MeanSigned = scaledMean(ref, got, n)
 		}
-		r.MaxAbsAt = unflatten(a.maxAbsAt, r.Shape)
-		r.MaxRelAt = unflatten(a.maxRelAt, r.Shape)
+		r.MaxAbsAt = num.Unravel(a.maxAbsAt, r.Shape)
+		r.MaxRelAt = num.Unravel(a.maxRelAt, r.Shape)
 		r.ULPs = buckets(a.hist)
 	}
 	r.Worst = a.worst.elements()
 	for k := range r.Worst {
-		r.Worst[k].Index = unflatten(r.Worst[k].Offset, r.Shape)
+		r.Worst[k].Index = num.Unravel(r.Worst[k].Offset, r.Shape)
 	}
 }
 
@@ -410,18 +412,6 @@ func checkShape(fn string, shape []int, n int) ([]int, error) {
 		return nil, fmt.Errorf("%w: %s: shape %v holds %d elements; want len(ref) = %d", ErrShape, fn, shape, p, n)
 	}
 	return append([]int(nil), shape...), nil
-}
-
-// unflatten turns a row-major offset into an index of shape.
-func unflatten(off int, shape []int) []int {
-	idx := make([]int, len(shape))
-	for k := len(shape) - 1; k >= 0; k-- {
-		if shape[k] > 0 {
-			idx[k] = off % shape[k]
-			off /= shape[k]
-		}
-	}
-	return idx
 }
 
 // norm accumulates a Euclidean norm with scaling, so that it neither

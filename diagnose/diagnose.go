@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"hash/fnv"
+	"maps"
 	"math"
 	"slices"
 	"sort"
@@ -330,12 +331,7 @@ func checkGot(fn string, o ops.Op, ref, got ops.Tensors) error {
 	for _, n := range sortedNames(got) {
 		r, ok := ref[n]
 		if !ok {
-			var names []string
-			for k := range ref {
-				names = append(names, k)
-			}
-			sort.Strings(names)
-			return fmt.Errorf("%w: %s: got[%q] is not an output of %s here; want one of %s", ErrOutputs, fn, n, o.Name(), strings.Join(names, ", "))
+			return fmt.Errorf("%w: %s: got[%q] is not an output of %s here; want one of %s", ErrOutputs, fn, n, o.Name(), strings.Join(sortedNames(ref), ", "))
 		}
 		if len(got[n].Data) != len(r.Data) {
 			return fmt.Errorf("%w: %s: got[%q] has %d elements; want %d, the size of the reference's output %v", ErrOutputs, fn, n, len(got[n].Data), len(r.Data), r.Shape)
@@ -345,12 +341,7 @@ func checkGot(fn string, o ops.Op, ref, got ops.Tensors) error {
 }
 
 func sortedNames(t ops.Tensors) []string {
-	n := make([]string, 0, len(t))
-	for k := range t {
-		n = append(n, k)
-	}
-	sort.Strings(n)
-	return n
+	return slices.Sorted(maps.Keys(t))
 }
 
 // judge compares got with ref output by output under the yardsticks ys.

@@ -36,24 +36,40 @@ func (r *Result) WriteText(w io.Writer) error {
 	default:
 		fmt.Fprintf(&b, "the port passes under %d candidates, the simplest first:\n", len(passing))
 	}
-	for i, c := range r.Candidates {
-		if i == MaxListed {
-			fmt.Fprintf(&b, "  … %d more\n", len(r.Candidates)-i)
-			break
-		}
-		fmt.Fprintf(&b, "  %2d. %s: %s\n", i+1, c.Change, VerdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
-		if len(c.Same) > 0 {
-			fmt.Fprintf(&b, "      the same here: %s\n", strings.Join(c.Same, " | "))
-		}
-	}
-	if len(r.Signatures) > 0 {
-		b.WriteString("error signatures of the failing outputs, on the whole problem:\n")
-		for _, s := range r.Signatures {
-			fmt.Fprintf(&b, "  %s\n", s)
-		}
-	}
+	WriteCandidates(&b, "  ", r.Candidates, MaxListed)
+	r.WriteSignatures(&b, "")
 	_, err := io.WriteString(w, b.String())
 	return err
+}
+
+// WriteCandidates writes the first limit candidates of list, numbered, each
+// with its verdict and the changes that give the same output, and a count
+// of the rest. Every line starts with indent. WriteText uses it, and so
+// can a report that embeds the diagnosis in its own text.
+func WriteCandidates(w io.Writer, indent string, list []Candidate, limit int) {
+	for i, c := range list {
+		if i == limit {
+			fmt.Fprintf(w, "%s… %d more\n", indent, len(list)-i)
+			break
+		}
+		fmt.Fprintf(w, "%s%d. %s: %s\n", indent, i+1, c.Change, VerdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
+		if len(c.Same) > 0 {
+			fmt.Fprintf(w, "%s    the same here: %s\n", indent, strings.Join(c.Same, " | "))
+		}
+	}
+}
+
+// WriteSignatures writes the error signatures of the failing outputs
+// under a heading at indent, one a line indented two spaces more; nothing
+// when there are none.
+func (r *Result) WriteSignatures(w io.Writer, indent string) {
+	if len(r.Signatures) == 0 {
+		return
+	}
+	fmt.Fprintf(w, "%serror signatures of the failing outputs, on the whole problem:\n", indent)
+	for _, s := range r.Signatures {
+		fmt.Fprintf(w, "%s  %s\n", indent, s)
+	}
 }
 
 // VerdictText is one line on a verdict, "PASS, normwise error 1.2e-07

@@ -3,6 +3,7 @@ package ops
 import (
 	"errors"
 	"fmt"
+	"maps"
 	"reflect"
 	"slices"
 	"sort"
@@ -157,12 +158,7 @@ func register[C any](o *op[C]) {
 
 // Names returns the names of every operation, sorted.
 func Names() []string {
-	n := make([]string, 0, len(registry))
-	for k := range registry {
-		n = append(n, k)
-	}
-	sort.Strings(n)
-	return n
+	return slices.Sorted(maps.Keys(registry))
 }
 
 // Lookup returns the operation called name, or an error wrapping

@@ -131,22 +131,8 @@ func writeDiagnosis(w io.Writer, d *diagnosis) error {
 	default:
 		fmt.Fprintf(&b, "  the port passes under %d changes, the simplest first:\n", len(passing))
 	}
-	for i, c := range list {
-		if i == diagnosisListed {
-			fmt.Fprintf(&b, "    … %d more\n", len(list)-i)
-			break
-		}
-		fmt.Fprintf(&b, "    %d. %s: %s\n", i+1, c.Change, diagnose.VerdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
-		if len(c.Same) > 0 {
-			fmt.Fprintf(&b, "       the same here: %s\n", strings.Join(c.Same, " | "))
-		}
-	}
-	if len(r.Signatures) > 0 {
-		b.WriteString("  error signatures of the failing outputs, on the whole problem:\n")
-		for _, s := range r.Signatures {
-			fmt.Fprintf(&b, "    %s\n", s)
-		}
-	}
+	diagnose.WriteCandidates(&b, "    ", list, diagnosisListed)
+	r.WriteSignatures(&b, "  ")
 	_, err := io.WriteString(w, b.String())
 	return err
 }

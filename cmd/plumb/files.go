@@ -4,12 +4,14 @@ import (
 	"bytes"
 	"fmt"
 	"io"
+	"maps"
 	"os"
 	"path/filepath"
-	"sort"
+	"slices"
 	"strings"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
 )
@@ -81,19 +83,7 @@ func refuseNonFinite(f *tensorFile) error {
 		return nil
 	}
 	return fmt.Errorf("%s: element %v = %v (%d NaN or ±Inf in all); want finite numbers (-allow-nonfinite passes NaN and ±Inf to the reference, whose special cases then apply)",
-		f.path, unravel(first, f.tensor.Shape), f.tensor.Data[first], n)
-}
-
-// unravel returns the row-major index of flat offset i in shape.
-func unravel(i int, shape []int) []int {
-	idx := make([]int, len(shape))
-	for d := len(shape) - 1; d >= 0; d-- {
-		if shape[d] > 0 {
-			idx[d] = i % shape[d]
-			i /= shape[d]
-		}
-	}
-	return idx
+		f.path, num.Unravel(first, f.tensor.Shape), f.tensor.Data[first], n)
 }
 
 // bitsDType is the element type that holds the bit patterns of b.
@@ -135,11 +125,7 @@ func namedFiles(args []string, what string) (map[string]string, error) {
 // readInputs reads the named input files; an input holding NaN or ±Inf is
 // an error unless allowNonFinite.
 func readInputs(files map[string]string, allowNonFinite bool) (ops.Tensors, error) {
-	names := make([]string, 0, len(files))
-	for n := range files {
-		names = append(names, n)
-	}
-	sort.Strings(names)
+	names := slices.Sorted(maps.Keys(files))
 	in := ops.Tensors{}
 	for _, n := range names {
 		f, err := readTensor(files[n], "")

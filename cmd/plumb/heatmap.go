@@ -14,6 +14,7 @@ import (
 	"gonum.org/v1/plot/vg/vgimg"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/num"
 )
 
 // errGrid is |got − ref| over one 2-D slice: rows × cols values, row-major.
@@ -49,7 +50,7 @@ func worstSlice(ref, got []float64, shape []int, rep *compare.Report) (lead []in
 	if plane > 0 {
 		start = at / plane * plane
 	}
-	idx := unravel(start, shape)
+	idx := num.Unravel(start, shape)
 	if len(shape) >= 2 {
 		lead = idx[:len(shape)-2]
 	}

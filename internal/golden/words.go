@@ -2,9 +2,9 @@ package golden
 
 import (
 	"fmt"
+	"maps"
 	"reflect"
 	"slices"
-	"sort"
 	"strings"
 	"testing"
 
@@ -70,11 +70,7 @@ func (w *Words) Require(tb testing.TB, want ...string) {
 			tb.Errorf("no golden case holds a value of %s; its words are exercised by none", n)
 		}
 	}
-	names := make([]string, 0, len(w.seen))
-	for n := range w.seen {
-		names = append(names, n)
-	}
-	sort.Strings(names)
+	names := slices.Sorted(maps.Keys(w.seen))
 	for _, e := range vocab.All() {
 		if !slices.Contains(names, e.Name) {
 			continue

@@ -21,11 +21,12 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"maps"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"regexp"
-	"sort"
+	"slices"
 	"strings"
 	"time"
 )
@@ -118,11 +119,7 @@ func mainErr(list string, ci bool, run string) error {
 	if len(per) == 0 {
 		return errors.New("no mutation selected")
 	}
-	pkgs := make([]string, 0, len(per))
-	for p := range per {
-		pkgs = append(pkgs, p)
-	}
-	sort.Strings(pkgs)
+	pkgs := slices.Sorted(maps.Keys(per))
 	for _, p := range pkgs {
 		t := per[p]
 		fmt.Printf("%-12s %d of %d killed (%.0f%%)\n", p, t.killed, t.total, 100*float64(t.killed)/float64(t.total))

@@ -22,3 +22,18 @@ func Convert[To, From Float](x []From) []To {
 	}
 	return out
 }
+
+// Unravel returns the index in a row-major array of the given shape of
+// the element at flat offset off: the last index runs fastest. A zero
+// dimension is skipped (its index stays 0), so the call is safe on an
+// empty shape; an offset past the end wraps in the first dimension.
+func Unravel(off int, shape []int) []int {
+	idx := make([]int, len(shape))
+	for k := len(shape) - 1; k >= 0; k-- {
+		if shape[k] > 0 {
+			idx[k] = off % shape[k]
+			off /= shape[k]
+		}
+	}
+	return idx
+}
