@@ -14,7 +14,8 @@ import (
 // change is one difference from the configuration as given: a key set to
 // another value, or the inputs or outputs read another way.
 type change struct {
-	text  string   // in the configuration's own words
+	text  string   // in the configuration's own words, with the note
+	edit  Edit     // the same as data
 	group string   // the key or mix-up it changes; pairs combine different groups
 	same  []string // other descriptions of the same change (the other alignment)
 	cfg   func(m map[string]any)
@@ -80,7 +81,7 @@ func set(name string, path []string, v any, note string) change {
 	if note != "" {
 		text += " (" + note + ")"
 	}
-	return change{text: text, group: name, cfg: func(m map[string]any) { setPath(m, path, v) }}
+	return change{text: text, edit: Edit{Key: name, Value: b, Note: note}, group: name, cfg: func(m map[string]any) { setPath(m, path, v) }}
 }
 
 // getPath returns the value at path in a decoded configuration.
@@ -184,7 +185,7 @@ func listChanges(k ops.Key, list, field string, cfg map[string]any) [][]change {
 		name := fmt.Sprintf("%s[%d].%s", list, i, field)
 		at := func(v any) change {
 			b, _ := json.Marshal(v)
-			return change{text: fmt.Sprintf("%q: %s", name, b), group: name, cfg: func(m map[string]any) {
+			return change{text: fmt.Sprintf("%q: %s", name, b), edit: Edit{Key: name, Value: b}, group: name, cfg: func(m map[string]any) {
 				m[list].([]any)[i].(map[string]any)[field] = v
 			}}
 		}
@@ -196,7 +197,7 @@ func listChanges(k ops.Key, list, field string, cfg map[string]any) [][]change {
 				band := map[string]any{"kind": "band", "before": -1, "after": after}
 				b, _ := json.Marshal(band)
 				at := fmt.Sprintf("%s[%d]", list, i)
-				out = append(out, one(change{text: fmt.Sprintf("%q: %s", at, b), group: at, cfg: func(m map[string]any) {
+				out = append(out, one(change{text: fmt.Sprintf("%q: %s", at, b), edit: Edit{Key: at, Value: b}, group: at, cfg: func(m map[string]any) {
 					m[list].([]any)[i] = band
 				}}))
 			}
@@ -278,7 +279,7 @@ func numericChanges(k ops.Key, path []string, cur any, present bool, cfg map[str
 		add(v*v, "s²")
 		add(math.Sqrt(v), "√s")
 		parent := path[0]
-		out = append(out, one(change{text: fmt.Sprintf("no %q", parent), group: k.Name,
+		out = append(out, one(change{text: fmt.Sprintf("no %q", parent), edit: Edit{Key: parent, Remove: true}, group: k.Name,
 			cfg: func(m map[string]any) { delete(m, parent) }}))
 	case leaf == "rotated":
 		d := lastDim(in, "x")

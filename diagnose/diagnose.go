@@ -129,6 +129,8 @@ type Candidate struct {
 	// by "; ": `"group": "cycle"`, `"offset": 2`, `k and v swapped`.
 	Change  string   `json:"change"`
 	Changes []string `json:"changes"`
+	// Edits are the same changes as data, one for each of Changes.
+	Edits []Edit `json:"edits"`
 	// Same lists other changes that gave the identical reference on this
 	// problem (the same query positions under the other alignment).
 	Same     []string        `json:"same_as,omitempty"`
@@ -140,6 +142,20 @@ type Candidate struct {
 	Measured bool            `json:"yardstick_measured"`
 	Pass     bool            `json:"passes"`
 	Outputs  []OutputVerdict `json:"outputs"`
+}
+
+// Edit is one change as data. A change of a configuration key has Key
+// (its name as the operation lists it, "scale" or "scaling.factor"),
+// Value (the new value as JSON; absent when the change removes the key)
+// and, for a common alternative with a name, Note ("1/d", "1/s"). A
+// change of how the port read or wrote its tensors ("k and v swapped",
+// "w1 read transposed") has only Mixup, in words.
+type Edit struct {
+	Key    string          `json:"key,omitempty"`
+	Value  json.RawMessage `json:"value,omitempty"`
+	Remove bool            `json:"remove,omitempty"`
+	Note   string          `json:"note,omitempty"`
+	Mixup  string          `json:"mixup,omitempty"`
 }
 
 // Names reports whether the candidate is described by change, as its own
@@ -512,10 +528,16 @@ func (s *search) eval(cs []change) {
 		}
 	}
 	var names []string
+	var edits []Edit
 	for _, c := range cs {
 		names = append(names, c.text)
+		e := c.edit
+		if e.Key == "" {
+			e.Mixup = c.text // a change of how the tensors were read or written
+		}
+		edits = append(edits, e)
 	}
-	c := &cand{Candidate: Candidate{Change: strings.Join(names, "; "), Changes: names, Config: cfg}, changes: cs, in: in, runCfg: runCfg, ref: out}
+	c := &cand{Candidate: Candidate{Change: strings.Join(names, "; "), Changes: names, Edits: edits, Config: cfg}, changes: cs, in: in, runCfg: runCfg, ref: out}
 	for _, n := range sortedNames(s.got) {
 		r, ok := out[n]
 		if !ok || len(r.Data) != len(s.got[n].Data) {

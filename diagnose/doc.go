@@ -60,5 +60,7 @@
 // suggests.
 //
 // Result.WriteText prints the result for people; the Result encodes in
-// JSON with the same data (non-finite errors as the strings "NaN", "+Inf").
+// JSON with the same data (non-finite errors as the strings "NaN", "+Inf"),
+// each candidate's changes both in words and as Edit values (the key, its
+// new value and the name of the alternative apart, "1/d" beside 0.125).
 package diagnose

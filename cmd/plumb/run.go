@@ -166,7 +166,10 @@ the section says which. It never changes the exit status; -no-diagnosis leaves i
 With -json the output is one object: "outputs", the report of each
 candidate in the order of the operation's outputs, and "diagnosis", the
 search's result as data (absent when every output passes or with
--no-diagnosis).
+-no-diagnosis): each candidate has "change" and "changes" in words and
+"edits" as data, one object a change: "key", "value" and "note" ("1/d")
+for a configuration key, "remove" for a key taken out, "mixup" for a
+tensor read or written another way.
 `, diagnosisCandidates, diagnosisElements) + toleranceAbout
 
 func init() {
