@@ -55,7 +55,7 @@ func Approx(f Format, tol Tolerance) cmp.Option {
 			return (math.IsNaN(x) && math.IsNaN(y)) || x == y
 		}
 		d := math.Abs(x - y)
-		if d <= tol.Abs+tol.Rel*math.Max(math.Abs(x), math.Abs(y)) {
+		if d <= tol.Abs+float64(tol.Rel*math.Max(math.Abs(x), math.Abs(y))) { // rounded: the same verdict on every machine
 			return true
 		}
 		u, ok := f.ULPDistance(x, y)

@@ -53,7 +53,7 @@ func (t Tolerance) validate(fn, name string) error {
 }
 
 // allowed is the absolute error the elementwise test allows at reference r.
-func (t Tolerance) allowed(r float64) float64 { return t.Abs + t.Rel*math.Abs(r) }
+func (t Tolerance) allowed(r float64) float64 { return t.Abs + float64(t.Rel*math.Abs(r)) }
 
 // passes reports whether a finite pair with error absErr and ULP distance
 // ulps (NaN when undefined) passes the elementwise test.
@@ -231,8 +231,8 @@ func MeasureYardstick[T Float](f Format, inputs [][]float64, ref []float64, shap
 	y.FloorAbs = math.Max(u*big, f.MinSubnormal()/2)
 	y.FloorNormwise = u
 	y.Tolerance = Tolerance{
-		Abs:         k*y.Report.MaxAbs + y.FloorAbs,
-		MaxNormwise: k*y.Report.Normwise + y.FloorNormwise,
+		Abs:         float64(k*y.Report.MaxAbs) + y.FloorAbs,
+		MaxNormwise: float64(k*y.Report.Normwise) + y.FloorNormwise,
 		Basis: fmt.Sprintf("yardstick: %v inputs, %s arithmetic, %v output: %g × (max abs %.3g, normwise %.3g) + one rounding (%.3g, %.3g)",
 			f, arith, f, k, y.Report.MaxAbs, y.Report.Normwise, y.FloorAbs, y.FloorNormwise),
 	}

@@ -424,10 +424,10 @@ func (n *scaledNorm) add(v float64) {
 		return
 	}
 	if a > n.scale {
-		n.ssq = 1 + n.ssq*(n.scale/a)*(n.scale/a)
+		n.ssq = 1 + float64(n.ssq*(n.scale/a)*(n.scale/a))
 		n.scale = a
 	} else {
-		n.ssq += (a / n.scale) * (a / n.scale)
+		n.ssq += float64((a / n.scale) * (a / n.scale))
 	}
 }
 

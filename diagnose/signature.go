@@ -185,7 +185,7 @@ func correlation(p []float64) float64 {
 			return 0
 		}
 		x := float64(i)
-		sx, sy, sxx, syy, sxy = sx+x, sy+v, sxx+x*x, syy+v*v, sxy+x*v
+		sx, sy, sxx, syy, sxy = sx+x, sy+v, sxx+float64(x*x), syy+float64(v*v), sxy+float64(x*v)
 	}
 	cov := sxy - sx*sy/n
 	vx, vy := sxx-sx*sx/n, syy-sy*sy/n
@@ -299,8 +299,8 @@ func scalePattern(ref, got []float64, shape []int, a axes) (string, string) {
 	var rr, rg float64
 	for i, x := range ref {
 		if finite(x) && finite(got[i]) {
-			rr += x * x
-			rg += x * got[i]
+			rr += float64(x * x)
+			rg += float64(x * got[i])
 		}
 	}
 	if rr == 0 {
@@ -310,7 +310,7 @@ func scalePattern(ref, got []float64, shape []int, a axes) (string, string) {
 	var res, dif scaledNorm
 	for i, x := range ref {
 		if finite(x) && finite(got[i]) {
-			res.add(got[i] - c*x)
+			res.add(got[i] - float64(c*x))
 			dif.add(got[i] - x)
 		}
 	}

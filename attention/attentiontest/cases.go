@@ -112,11 +112,11 @@ func drawNear1000(r *rand.Rand, p Problem) (q, k, v []float64) {
 	m := sqrt(1000 / (p.Scale * float64(s.Dk)))
 	q = suite.Normal(r, s.Batch*s.HeadsQ*s.Lq*s.Dk, 0.2)
 	for i := range q {
-		sign := 1.0
 		if (i/s.Dk)%2 == 1 {
-			sign = -1
+			q[i] -= m
+		} else {
+			q[i] += m
 		}
-		q[i] += sign * m
 	}
 	k = suite.Normal(r, s.Batch*s.HeadsKV*s.Lk*s.Dk, 0.2)
 	for i := range k {

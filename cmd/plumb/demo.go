@@ -44,8 +44,8 @@ func portRotary(x []float32, heads int, halves bool) {
 					a, b = i, i+d/2
 				}
 				xa, xb := row[a], row[b]
-				row[a] = xa*c - xb*s
-				row[b] = xa*s + xb*c
+				row[a] = float32(xa*c) - float32(xb*s) // each product rounded: never fused
+				row[b] = float32(xa*s) + float32(xb*c)
 			}
 		}
 	}
@@ -69,7 +69,7 @@ func portAttention(q, k, v []float32) []float32 {
 				kj := k[(g*demoLen+j)*d:][:d]
 				var s float32
 				for t := range qi {
-					s += qi[t] * kj[t]
+					s += float32(qi[t] * kj[t])
 				}
 				p[j] = s * scale
 				maxLogit = max(maxLogit, p[j])
@@ -84,7 +84,7 @@ func portAttention(q, k, v []float32) []float32 {
 				vj := v[(g*demoLen+j)*d:][:d]
 				w := p[j] / sum
 				for t := range o {
-					o[t] += w * vj[t]
+					o[t] += float32(w * vj[t])
 				}
 			}
 		}
