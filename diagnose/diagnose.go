@@ -251,7 +251,7 @@ func Run(op string, config []byte, in ops.Tensors, got ops.Tensors, f compare.Fo
 		return nil, err
 	}
 	res := &Result{Op: op, Format: f, Config: json.RawMessage(compact(config)), Candidates: []Candidate{}, Signatures: []Signature{}}
-	ys, err := ops.Yardstick(op, config, in, f, opt.K)
+	ys, err := ops.YardstickOf(op, config, in, ref, f, opt.K)
 	if err != nil {
 		return nil, err
 	}

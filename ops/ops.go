@@ -219,6 +219,29 @@ func Yardstick(name string, config []byte, in Tensors, f compare.Format, k float
 	if err != nil {
 		return nil, err
 	}
+	return yardstick(o, config, in, ref, f, k)
+}
+
+// YardstickOf is Yardstick for a caller that has already run the float64
+// reference: ref must be what Run(name, config, in) returned (the outputs
+// are not recomputed, and not checked beyond their names), so
+// that a check runs the reference once.
+func YardstickOf(name string, config []byte, in, ref Tensors, f compare.Format, k float64) (map[string]*compare.Yardstick, error) {
+	o, err := lookup("YardstickOf", name)
+	if err != nil {
+		return nil, err
+	}
+	for _, p := range o.Outputs() {
+		if _, ok := ref[p.Name]; !ok && !p.Optional {
+			return nil, fmt.Errorf("%w: YardstickOf: %s: ref has no output %q; want the outputs Run returned", ErrInput, name, p.Name)
+		}
+	}
+	return yardstick(o, config, in, ref, f, k)
+}
+
+// yardstick measures the yardstick of every output of o against ref.
+func yardstick(o Op, config []byte, in, ref Tensors, f compare.Format, k float64) (map[string]*compare.Yardstick, error) {
+	name := o.Name()
 	var names []string
 	var inputs [][]float64
 	for _, p := range o.Inputs() {

@@ -400,7 +400,7 @@ func (j *judge) options(name string, f compare.Format, ref []float64) (compare.O
 	case f != compare.Float64:
 		if j.ys == nil {
 			done := progress(j.e, j.o.quiet, "measuring the "+f.String()+" yardstick")
-			ys, err := ops.Yardstick(j.r.op.Name(), j.r.config, j.r.in, f, j.o.k)
+			ys, err := ops.YardstickOf(j.r.op.Name(), j.r.config, j.r.in, j.r.out, f, j.o.k)
 			done()
 			if err != nil {
 				return compare.Options{}, err

@@ -1,0 +1,53 @@
+package ops
+
+import (
+	"errors"
+	"maps"
+	"math/rand/v2"
+	"slices"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/compare"
+)
+
+// TestYardstickOfEqualsYardstick checks that handing YardstickOf the
+// reference already computed gives the yardstick Yardstick measures, to
+// the bit, for every operation's test case, and that a reference missing
+// an output is refused.
+func TestYardstickOfEqualsYardstick(t *testing.T) {
+	for _, c := range cases() {
+		t.Run(c.name, func(t *testing.T) {
+			in := c.inputs(rand.New(rand.NewPCG(1, 2)))
+			ref, err := Run(c.op, []byte(c.config), in)
+			require.NoError(t, err)
+			want, err := Yardstick(c.op, []byte(c.config), in, compare.Float32, compare.DefaultK)
+			require.NoError(t, err)
+			got, err := YardstickOf(c.op, []byte(c.config), in, ref, compare.Float32, compare.DefaultK)
+			require.NoError(t, err)
+			require.Equal(t, slices.Sorted(maps.Keys(want)), slices.Sorted(maps.Keys(got)))
+			for n, w := range want {
+				require.Equal(t, w.Tolerance, got[n].Tolerance, n)
+				require.Equal(t, w.Report.Normwise, got[n].Report.Normwise, n)
+			}
+			first := slices.Sorted(maps.Keys(ref))[0]
+			partial := maps.Clone(ref)
+			delete(partial, first)
+			_, err = YardstickOf(c.op, []byte(c.config), in, partial, compare.Float32, compare.DefaultK)
+			if o, _ := Lookup(c.op); isOptional(o, first) {
+				return
+			}
+			require.True(t, errors.Is(err, ErrInput), "a reference without %q: %v", first, err)
+		})
+	}
+}
+
+func isOptional(o Op, output string) bool {
+	for _, p := range o.Outputs() {
+		if p.Name == output {
+			return p.Optional
+		}
+	}
+	return false
+}
