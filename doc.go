@@ -114,6 +114,22 @@
 //	norm.WeightForm: how the stored weight w becomes the gain γ
 //	  as-is           γ = w: a weight of ones is the identity
 //	  one-plus        γ = 1 + w: a weight of zeros is the identity
+//	npy.Bits: which number format the bit patterns of a uint16 or uint8 array hold
+//	  integer         the unsigned integers the patterns are
+//	  bfloat16        uint16 patterns of bfloat16
+//	  e4m3            uint8 patterns of OCP 8-bit E4M3
+//	  e5m2            uint8 patterns of OCP 8-bit E5M2
+//	npy.ByteOrder: the order of the bytes of one element in a .npy file
+//	  little-endian   least significant byte first, descriptor prefix <
+//	  big-endian      most significant byte first, descriptor prefix >
+//	npy.DType: the element type of a .npy array
+//	  float64         IEEE 754 binary64, descriptor <f8
+//	  float32         IEEE 754 binary32, descriptor <f4
+//	  float16         IEEE 754 binary16, descriptor <f2
+//	  int64           64-bit signed integers, descriptor <i8
+//	  int32           32-bit signed integers, descriptor <i4
+//	  uint16          16-bit unsigned integers (or bfloat16 bit patterns), descriptor <u2
+//	  uint8           8-bit unsigned integers (or FP8 bit patterns), descriptor |u1
 //	posenc.Layout: the order of the sine and cosine columns of a sinusoidal table
 //	  interleaved     sin and cos of each frequency side by side: sin, cos, sin, cos, …
 //	  concatenated    all sines first, then all cosines

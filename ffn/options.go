@@ -4,147 +4,9 @@ import (
 	"fmt"
 	"math"
 	"strconv"
-	"strings"
 
 	"github.com/plumbref/plumb/internal/num"
-	"github.com/plumbref/plumb/internal/vocab"
 )
-
-// Act names an activation function φ. The zero value is ActReLU, the
-// activation of the two-layer FFN of Vaswani et al. 2017, Eq. (2).
-type Act int
-
-// The activations. Each is documented at its scalar function.
-const (
-	ActReLU        Act = iota // ReLU
-	ActGELU                   // GELU, exact (erf) form
-	ActGELUTanh               // GELUTanh, the tanh approximation
-	ActGELUSigmoid            // GELUSigmoid, x·σ(1.702x)
-	ActSigmoid                // Sigmoid (the GLU gated unit)
-	ActSiLU                   // SiLU = Swish with β = 1
-	ActSwish                  // Swish with Options.Beta
-	ActIdentity               // φ(x) = x (the Bilinear gated unit)
-)
-
-var actWords = vocab.New("ffn", "activation", "the activation function φ", ErrOption,
-	vocab.W(ActReLU, "relu", "max(x, 0)"),
-	vocab.W(ActGELU, "gelu", "x·Φ(x), Φ the normal distribution function (exact, through erf)"),
-	vocab.W(ActGELUTanh, "gelu-tanh", "the tanh approximation x/2·(1 + tanh(√(2/π)·(x + 0.044715x³)))"),
-	vocab.W(ActGELUSigmoid, "gelu-sigmoid", "the sigmoid approximation x·σ(1.702x)"),
-	vocab.W(ActSigmoid, "sigmoid", "σ(x) = 1/(1 + e^(−x))"),
-	vocab.W(ActSiLU, "silu", "x·σ(x), Swish with β = 1"),
-	vocab.W(ActSwish, "swish", "x·σ(βx) with the given β"),
-	vocab.W(ActIdentity, "identity", "φ(x) = x"),
-)
-
-// String returns a's word ("relu").
-func (a Act) String() string { return actWords.String(a) }
-
-// MarshalText returns a's word; a value with none is an error wrapping
-// ErrOption.
-func (a Act) MarshalText() ([]byte, error) { return actWords.Marshal(a) }
-
-// UnmarshalText sets a from its word; any other text is an error wrapping
-// ErrOption that lists the words.
-func (a *Act) UnmarshalText(b []byte) error { return actWords.Unmarshal(a, b) }
-
-// Meaning returns one line saying what a means.
-func (a Act) Meaning() string { return actWords.Meaning(a) }
-
-// Values lists every Act, the zero value first.
-func (Act) Values() []Act { return actWords.Values() }
-
-// Check returns nil if a is one of the Act constants, or an error
-// wrapping ErrOption that lists the words.
-func (a Act) Check() error { return actWords.Check(a) }
-
-// Layout says how a weight matrix of a projection from m inputs to n
-// outputs is stored in its flat slice. Sources write the product both
-// ways round, and the storage follows: the papers write xW with W of
-// shape [in, out] (Vaswani et al. 2017, arXiv 1706.03762, Eq. (2);
-// Shazeer 2020, arXiv 2002.05202, Eq. (1)–(6)), while a linear layer that
-// keeps one row per output unit stores [out, in] and computes x·Wᵀ. The
-// zero value is InByOut, the papers' xW.
-type Layout int
-
-const (
-	// InByOut stores W as [in, out], row-major: element (i, j), input i to
-	// output j, is w[i·out + j], and the projection is y = x·W. The zero
-	// value.
-	InByOut Layout = iota
-	// OutByIn stores W as [out, in], row-major: element (i, j) is
-	// w[j·in + i], one row per output unit, and the projection is y = x·Wᵀ.
-	OutByIn
-)
-
-var layoutWords = vocab.New("ffn", "weight layout", "how a weight matrix is stored", ErrOption,
-	vocab.W(InByOut, "in-by-out", "[in, out] row-major, y = x·W, as the papers write it"),
-	vocab.W(OutByIn, "out-by-in", "[out, in] row-major, one row per output unit, y = x·Wᵀ"),
-)
-
-// String returns l's word ("in-by-out").
-func (l Layout) String() string { return layoutWords.String(l) }
-
-// MarshalText returns l's word; a value with none is an error wrapping
-// ErrOption.
-func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
-
-// UnmarshalText sets l from its word; any other text is an error wrapping
-// ErrOption that lists the words.
-func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
-
-// Meaning returns one line saying what l means.
-func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
-
-// Values lists every Layout, the zero value first.
-func (Layout) Values() []Layout { return layoutWords.Values() }
-
-// Check returns nil if l is one of the Layout constants, or an error
-// wrapping ErrOption that lists the words.
-func (l Layout) Check() error { return layoutWords.Check(l) }
-
-// Packing says how one fused projection of width 2·Hidden holds the gate
-// projection W and the value projection V of a gated unit. It speaks of
-// output units, so it applies to either Layout: with OutByIn an output unit
-// is a row of the stored matrix, with InByOut a column. The fused bias
-// follows the same packing.
-type Packing int
-
-const (
-	// GateUpStacked puts all gate units first, then all value units: gate
-	// unit j is fused unit j, value unit j is fused unit Hidden + j. The
-	// zero value.
-	GateUpStacked Packing = iota
-	// GateUpInterleaved alternates them: gate unit j is fused unit 2j,
-	// value unit j is fused unit 2j + 1.
-	GateUpInterleaved
-)
-
-var packingWords = vocab.New("ffn", "gate-up packing", "how one fused matrix holds the gate and value projections", ErrOption,
-	vocab.W(GateUpStacked, "stacked", "all gate units, then all value units"),
-	vocab.W(GateUpInterleaved, "interleaved", "gate and value units alternate: gate j is unit 2j, value j unit 2j + 1"),
-)
-
-// String returns p's word ("stacked").
-func (p Packing) String() string { return packingWords.String(p) }
-
-// MarshalText returns p's word; a value with none is an error wrapping
-// ErrOption.
-func (p Packing) MarshalText() ([]byte, error) { return packingWords.Marshal(p) }
-
-// UnmarshalText sets p from its word; any other text is an error wrapping
-// ErrOption that lists the words.
-func (p *Packing) UnmarshalText(b []byte) error { return packingWords.Unmarshal(p, b) }
-
-// Meaning returns one line saying what p means.
-func (p Packing) Meaning() string { return packingWords.Meaning(p) }
-
-// Values lists every Packing, the zero value first.
-func (Packing) Values() []Packing { return packingWords.Values() }
-
-// Check returns nil if p is one of the Packing constants, or an error
-// wrapping ErrOption that lists the words.
-func (p Packing) Check() error { return packingWords.Check(p) }
 
 // Options chooses the layer. The zero value is the plain two-layer ReLU
 // layer of Vaswani et al. 2017, Eq. (2), with [in, out] weights; Beta is
@@ -232,21 +94,6 @@ type plan struct {
 
 func maxMul(a, b int) bool { return b != 0 && a > math.MaxInt/b }
 
-// product names an element count by its formula in the sizes of Dims, the
-// sizes, and their product: "In·Hidden = 3·4 = 12" (one factor: "Out = 5").
-func product(formula string, factors ...int) string {
-	n := 1
-	s := make([]string, len(factors))
-	for i, f := range factors {
-		n *= f
-		s[i] = strconv.Itoa(f)
-	}
-	if len(factors) == 1 {
-		return fmt.Sprintf("%s = %d", formula, n)
-	}
-	return fmt.Sprintf("%s = %s = %d", formula, strings.Join(s, "·"), n)
-}
-
 func checkDims(fn string, d Dims) error {
 	switch {
 	case d.Rows < 0:
@@ -309,9 +156,9 @@ func (m hiddenMatrix) want(h int) string {
 		hidden, factors = strconv.Itoa(m.per)+"·Hidden", []int{m.per, h}
 	}
 	if m.hiddenFirst {
-		return product(hidden+"·"+m.fixedName, append(factors, m.fixed)...)
+		return num.Product(hidden+"·"+m.fixedName, append(factors, m.fixed)...)
 	}
-	return product(m.fixedName+"·"+hidden, append([]int{m.fixed}, factors...)...)
+	return num.Product(m.fixedName+"·"+hidden, append([]int{m.fixed}, factors...)...)
 }
 
 // check checks that the matrix holds n elements for hidden size h. A
@@ -385,7 +232,7 @@ func checkDown(fn string, d Dims, n lengths) error {
 	if err := w2.check(fn, n.W2, d.Hidden); err != nil {
 		return err
 	}
-	return checkBias(fn, "B2", n.B2, d.Out, product("Out", d.Out), ErrWeightLen)
+	return checkBias(fn, "B2", n.B2, d.Out, num.Product("Out", d.Out), ErrWeightLen)
 }
 
 // plain plans a layer that is not gated: W₁ and b₁, and nothing of a gated
@@ -399,7 +246,7 @@ func (p *plan) plain(fn string, n lengths) error {
 	if err := (hiddenMatrix{name: "W1", fixed: d.In, fixedName: "In", per: 1}).check(fn, n.W1, h); err != nil {
 		return err
 	}
-	if err := checkBias(fn, "B1", n.B1, h, product("Hidden", h), ErrHidden); err != nil {
+	if err := checkBias(fn, "B1", n.B1, h, num.Product("Hidden", h), ErrHidden); err != nil {
 		return err
 	}
 	p.gate = view{in: d.In, cols: h, layout: p.o.Layout, stride: 1}
@@ -418,7 +265,7 @@ func (p *plan) fusedGate(fn string, n lengths) error {
 	if err := (hiddenMatrix{name: "Fused", fixed: d.In, fixedName: "In", per: 2}).check(fn, n.Fused, h); err != nil {
 		return err
 	}
-	if err := checkBias(fn, "FusedBias", n.FusedBias, 2*h, product("2·Hidden", 2, h), ErrHidden); err != nil {
+	if err := checkBias(fn, "FusedBias", n.FusedBias, 2*h, num.Product("2·Hidden", 2, h), ErrHidden); err != nil {
 		return err
 	}
 	p.fused = true
@@ -453,7 +300,7 @@ func (p *plan) separateGate(fn string, n lengths) error {
 		name string
 		n    int
 	}{{"B1 (gate bias)", n.B1}, {"C", n.C}} {
-		if err := checkBias(fn, b.name, b.n, h, product("Hidden", h), ErrHidden); err != nil {
+		if err := checkBias(fn, b.name, b.n, h, num.Product("Hidden", h), ErrHidden); err != nil {
 			return err
 		}
 	}
@@ -470,7 +317,7 @@ func prepare[T num.Float](fn string, x []T, d Dims, w *Weights[T], o Options) (*
 		return nil, err
 	}
 	if len(x) != d.Rows*d.In {
-		return nil, fmt.Errorf("%w: %s: x has %d elements; want %s", ErrShape, fn, len(x), product("Rows·In", d.Rows, d.In))
+		return nil, fmt.Errorf("%w: %s: x has %d elements; want %s", ErrShape, fn, len(x), num.Product("Rows·In", d.Rows, d.In))
 	}
 	return p, nil
 }
@@ -483,7 +330,7 @@ func prepareBackward[T num.Float](fn string, x, dy []T, d Dims, w *Weights[T], o
 		return nil, err
 	}
 	if len(dy) != d.Rows*d.Out {
-		return nil, fmt.Errorf("%w: %s: dy has %d elements; want %s", ErrShape, fn, len(dy), product("Rows·Out", d.Rows, d.Out))
+		return nil, fmt.Errorf("%w: %s: dy has %d elements; want %s", ErrShape, fn, len(dy), num.Product("Rows·Out", d.Rows, d.Out))
 	}
 	return p, nil
 }

@@ -377,6 +377,9 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 		}
 		out, err := Run(r.op, body, in)
 		require.NoError(t, err, "%s: %s %s", c, r.op, body)
+		if onGoldenRun != nil {
+			onGoldenRun(t, r.op, body, in, out)
+		}
 		for name, port := range r.outputs {
 			if !c.Has(name) {
 				_, given := out[port]

@@ -5,51 +5,7 @@ import (
 	"math"
 
 	"github.com/plumbref/plumb/internal/num"
-	"github.com/plumbref/plumb/internal/vocab"
 )
-
-// Pairing says which two dims of a head one rotary frequency rotates. The
-// two pairings are a fixed permutation of dims apart and give different
-// outputs on the same vector: weights trained with one do not work with the
-// other.
-type Pairing int
-
-const (
-	// PairAdjacent rotates dims (2i, 2i+1) by angle m·θ_i, as in Su et al.
-	// 2021, arXiv 2104.09864, Eq. (34). It is the zero value.
-	PairAdjacent Pairing = iota
-	// PairHalves rotates dims (i, i + r/2) by angle m·θ_i: the first half
-	// of the rotated dims holds the first member of every pair [common
-	// practice].
-	PairHalves
-)
-
-var pairingWords = vocab.New("posenc", "rotary pairing", "which two dims of a head one rotary frequency rotates", ErrOption,
-	vocab.W(PairAdjacent, "adjacent", "frequency i rotates dims (2i, 2i+1), as in the paper"),
-	vocab.W(PairHalves, "halves", "frequency i rotates dims (i, i + r/2): the rotated dims split in two halves"),
-)
-
-// String returns p's word ("adjacent").
-func (p Pairing) String() string { return pairingWords.String(p) }
-
-// MarshalText returns p's word; a value with none is an error wrapping
-// ErrOption.
-func (p Pairing) MarshalText() ([]byte, error) { return pairingWords.Marshal(p) }
-
-// UnmarshalText sets p from its word; any other text is an error wrapping
-// ErrOption that lists the words.
-// A nil receiver is an error wrapping the same sentinel, not a panic.
-func (p *Pairing) UnmarshalText(b []byte) error { return pairingWords.Unmarshal(p, b) }
-
-// Meaning returns one line saying what p means.
-func (p Pairing) Meaning() string { return pairingWords.Meaning(p) }
-
-// Values lists every Pairing, the zero value first.
-func (Pairing) Values() []Pairing { return pairingWords.Values() }
-
-// Check returns nil if p is one of the Pairing constants, or an error
-// wrapping ErrOption that lists the words.
-func (p Pairing) Check() error { return pairingWords.Check(p) }
 
 // Rotary is a rotary position encoding (RoPE) configuration: Su et al.
 // 2021, "RoFormer: Enhanced Transformer with Rotary Position Embedding",

@@ -4,48 +4,7 @@ import (
 	"fmt"
 
 	"github.com/plumbref/plumb/internal/num"
-	"github.com/plumbref/plumb/internal/vocab"
 )
-
-// Layout is the order of the sine and cosine columns of a sinusoidal table.
-type Layout int
-
-const (
-	// Interleaved puts sin and cos of each frequency side by side:
-	// PE(m, 2i) = sin(m·ω_i), PE(m, 2i+1) = cos(m·ω_i), as in Vaswani et al.
-	// 2017 §3.5. It is the zero value.
-	Interleaved Layout = iota
-	// Concatenated puts all sines first, then all cosines:
-	// PE(m, i) = sin(m·ω_i), PE(m, d/2 + i) = cos(m·ω_i) [common practice].
-	Concatenated
-)
-
-var layoutWords = vocab.New("posenc", "sinusoidal layout", "the order of the sine and cosine columns of a sinusoidal table", ErrOption,
-	vocab.W(Interleaved, "interleaved", "sin and cos of each frequency side by side: sin, cos, sin, cos, …"),
-	vocab.W(Concatenated, "concatenated", "all sines first, then all cosines"),
-)
-
-// String returns l's word ("interleaved").
-func (l Layout) String() string { return layoutWords.String(l) }
-
-// MarshalText returns l's word; a value with none is an error wrapping
-// ErrOption.
-func (l Layout) MarshalText() ([]byte, error) { return layoutWords.Marshal(l) }
-
-// UnmarshalText sets l from its word; any other text is an error wrapping
-// ErrOption that lists the words.
-// A nil receiver is an error wrapping the same sentinel, not a panic.
-func (l *Layout) UnmarshalText(b []byte) error { return layoutWords.Unmarshal(l, b) }
-
-// Meaning returns one line saying what l means.
-func (l Layout) Meaning() string { return layoutWords.Meaning(l) }
-
-// Values lists every Layout, the zero value first.
-func (Layout) Values() []Layout { return layoutWords.Values() }
-
-// Check returns nil if l is one of the Layout constants, or an error
-// wrapping ErrOption that lists the words.
-func (l Layout) Check() error { return layoutWords.Check(l) }
 
 // Sinusoidal is the fixed absolute position encoding of Vaswani et al.
 // 2017, "Attention Is All You Need", arXiv 1706.03762, §3.5:
