@@ -12,49 +12,46 @@ import (
 	"github.com/plumbref/plumb/mask"
 )
 
-// forms are the exported functions that take q, k and v, each with its
-// name, run on float64 arguments (the float32 twins on them rounded).
-var forms = []struct {
+// form is an exported function that takes q, k and v, with its name, run
+// on float64 arguments (a float32 twin on them rounded).
+type form struct {
 	fn  string
 	run func(q, k, v, dOut []float64, s Shape, o Options) error
-}{
-	{"Forward", func(q, k, v, _ []float64, s Shape, o Options) error { _, _, err := Forward(q, k, v, s, o); return err }},
-	{"Forward32", func(q, k, v, _ []float64, s Shape, o Options) error {
-		_, _, err := Forward32(f32(q), f32(k), f32(v), s, o)
+}
+
+// forms are the exported functions that take q, k and v.
+var forms = []form{
+	{"Forward", fwdForm(Forward)},
+	{"Forward32", fwdForm(Forward32)},
+	{"ForwardTiled", fwdForm(tiledBy2(ForwardTiled))},
+	{"ForwardTiled32", fwdForm(tiledBy2(ForwardTiled32))},
+	{"ForwardFast", fwdForm(ForwardFast)},
+	{"ForwardFast32", fwdForm(ForwardFast32)},
+	{"Backward", bwdForm(Backward)},
+	{"Backward32", bwdForm(Backward32)},
+	{"BackwardFast", bwdForm(BackwardFast)},
+	{"BackwardFast32", bwdForm(BackwardFast32)},
+}
+
+// fwdForm and bwdForm run a forward or backward function of element type
+// E (no dLSE) on float64 arguments, converted to E, for its error.
+func fwdForm[E float32 | float64](f func(q, k, v []E, s Shape, o Options) ([]E, []E, error)) func(q, k, v, dOut []float64, s Shape, o Options) error {
+	return func(q, k, v, _ []float64, s Shape, o Options) error {
+		_, _, err := f(num.Convert[E](q), num.Convert[E](k), num.Convert[E](v), s, o)
 		return err
-	}},
-	{"ForwardTiled", func(q, k, v, _ []float64, s Shape, o Options) error {
-		_, _, err := ForwardTiled(q, k, v, s, 2, o)
+	}
+}
+
+func bwdForm[E float32 | float64, G any](f func(q, k, v, dOut, dLSE []E, s Shape, o Options) (G, error)) func(q, k, v, dOut []float64, s Shape, o Options) error {
+	return func(q, k, v, d []float64, s Shape, o Options) error {
+		_, err := f(num.Convert[E](q), num.Convert[E](k), num.Convert[E](v), num.Convert[E](d), nil, s, o)
 		return err
-	}},
-	{"ForwardTiled32", func(q, k, v, _ []float64, s Shape, o Options) error {
-		_, _, err := ForwardTiled32(f32(q), f32(k), f32(v), s, 2, o)
-		return err
-	}},
-	{"ForwardFast", func(q, k, v, _ []float64, s Shape, o Options) error {
-		_, _, err := ForwardFast(q, k, v, s, o)
-		return err
-	}},
-	{"ForwardFast32", func(q, k, v, _ []float64, s Shape, o Options) error {
-		_, _, err := ForwardFast32(f32(q), f32(k), f32(v), s, o)
-		return err
-	}},
-	{"Backward", func(q, k, v, d []float64, s Shape, o Options) error {
-		_, err := Backward(q, k, v, d, nil, s, o)
-		return err
-	}},
-	{"Backward32", func(q, k, v, d []float64, s Shape, o Options) error {
-		_, err := Backward32(f32(q), f32(k), f32(v), f32(d), nil, s, o)
-		return err
-	}},
-	{"BackwardFast", func(q, k, v, d []float64, s Shape, o Options) error {
-		_, err := BackwardFast(q, k, v, d, nil, s, o)
-		return err
-	}},
-	{"BackwardFast32", func(q, k, v, d []float64, s Shape, o Options) error {
-		_, err := BackwardFast32(f32(q), f32(k), f32(v), f32(d), nil, s, o)
-		return err
-	}},
+	}
+}
+
+// tiledBy2 is a tiled form with blocks of 2 keys.
+func tiledBy2[E float32 | float64](f func(q, k, v []E, s Shape, block int, o Options) ([]E, []E, error)) func(q, k, v []E, s Shape, o Options) ([]E, []E, error) {
+	return func(q, k, v []E, s Shape, o Options) ([]E, []E, error) { return f(q, k, v, s, 2, o) }
 }
 
 var f32 = num.Convert[float32, float64]
@@ -379,20 +376,4 @@ func TestMaxElements(t *testing.T) {
 	s.Lk--
 	_, _, err = ForwardFast(q, k[1:], v[1:], s, Options{})
 	assert.NoError(t, err)
-}
-
-// TestNilReceivers: UnmarshalText on a nil pointer is an error wrapping
-// ErrOption, not a panic.
-func TestNilReceivers(t *testing.T) {
-	for _, tc := range []struct {
-		err  error
-		want string
-	}{
-		{(*Layout)(nil).UnmarshalText([]byte("seq-major")), "attention: invalid option: Layout.UnmarshalText: receiver = nil; want a *Layout to set"},
-		{(*GroupMap)(nil).UnmarshalText([]byte("cycle")), "attention: invalid option: GroupMap.UnmarshalText: receiver = nil; want a *GroupMap to set"},
-		{(*EmptyRow)(nil).UnmarshalText([]byte("nan")), "attention: invalid option: EmptyRow.UnmarshalText: receiver = nil; want a *EmptyRow to set"},
-	} {
-		assert.ErrorIs(t, tc.err, ErrOption)
-		assert.EqualError(t, tc.err, tc.want)
-	}
 }

@@ -33,28 +33,18 @@ func overflowInputs() (q, k, v, d []float64) {
 	return q, k, v, d
 }
 
-// overflowForms are forms, with Decode, Decode32 and ForwardTiled32.
-func overflowForms() []struct {
-	fn  string
-	run func(q, k, v, dOut []float64, s Shape, o Options) error
-} {
-	all := append([]struct {
-		fn  string
-		run func(q, k, v, dOut []float64, s Shape, o Options) error
-	}{}, forms...)
-	return append(all, []struct {
-		fn  string
-		run func(q, k, v, dOut []float64, s Shape, o Options) error
-	}{
-		{"Decode", func(q, k, v, _ []float64, s Shape, o Options) error {
-			_, _, err := Decode(q, k, v, s, s.Lk-s.Lq, o)
-			return err
-		}},
-		{"Decode32", func(q, k, v, _ []float64, s Shape, o Options) error {
-			_, _, err := Decode32(f32(q), f32(k), f32(v), s, s.Lk-s.Lq, o)
-			return err
-		}},
-	}...)
+// overflowForms are forms, with Decode and Decode32 (the queries at the
+// end of the keys).
+func overflowForms() []form {
+	return append(append([]form{}, forms...),
+		form{"Decode", fwdForm(atEnd(Decode))},
+		form{"Decode32", fwdForm(atEnd(Decode32))})
+}
+
+// atEnd is a decoding form with the queries at the last positions of the
+// keys, pos = Lk − Lq.
+func atEnd[E float32 | float64](f func(q, k, v []E, s Shape, pos int, o Options) ([]E, []E, error)) func(q, k, v []E, s Shape, o Options) ([]E, []E, error) {
+	return func(q, k, v []E, s Shape, o Options) ([]E, []E, error) { return f(q, k, v, s, s.Lk-s.Lq, o) }
 }
 
 // TestOverflow: a call whose finite inputs make a logit NaN or ±Inf fails

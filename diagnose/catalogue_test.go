@@ -190,6 +190,12 @@ func softmaxEntry(name, op string, shape []int, port func(x []float32) []float32
 		port: func(in ops.Tensors) ops.Tensors { return ops.Tensors{out: {Data: to64(port(t32(in, "x")))}} }}
 }
 
+// with returns a copy of the port p changed by slip.
+func with[P any](p P, slip func(*P)) P {
+	slip(&p)
+	return p
+}
+
 // catalogue lists the slipped ports and the correct ones.
 func catalogue() []entry {
 	var c []entry
@@ -200,91 +206,43 @@ func catalogue() []entry {
 	// Attention forward.
 	a := attnBase(1, 4, 2, 6, 6, 8)
 	c = append(c, attnEntry("correct", fwd, in(), a))
-	s := a
-	s.kv = func(h int) int { return h % 2 }
-	c = append(c, attnEntry("kv head h mod Hkv", fwd, in(), s, `"group": "cycle"`))
-	s = a
-	s.scale = 1.0 / 8
-	c = append(c, attnEntry("scale 1/d", fwd, in(), s, `"scale": 0.125 (1/d)`))
-	s = a
-	s.scale = 1
-	c = append(c, attnEntry("no scale", fwd, in(), s, `"scale": 1`))
-	s = a
-	s.see = func(p, j int) bool { return j <= p+1 }
-	c = append(c, attnEntry("causal edge one key late", fwd, in(), s, `"mask[0]": {"after":1,"before":-1,"kind":"band"}`))
-	s = a
-	s.swapKV = true
-	c = append(c, attnEntry("k and v swapped", fwd, in(), s, `k and v swapped`))
-	s = a
-	s.seqMajorIn[0] = true
-	c = append(c, attnEntry("q indexed seq-major", fwd, in(), s, `q read seq-major`))
-	s = a
-	s.seqMajorIn, s.seqMajorOut = [3]bool{true, true, true}, true
-	c = append(c, attnEntry("every tensor seq-major", fwd, in(), s, `"layout": "seq-major"`))
-	s = a
-	s.see = func(p, j int) bool { return j <= p && j > p-4 }
-	c = append(c, attnEntry("window of 4 for 3", `{"version":1,"mask":[{"kind":"window","size":3}]}`, in(), s, `"mask[0].size": 4`))
-	s = a
-	s.see = nil
-	c = append(c, attnEntry("soft cap left out", `{"version":1,"soft_cap":0.5}`, in(), s, `"soft_cap": 0 (none)`))
-	s = a
-	s.kv, s.scale = func(h int) int { return h % 2 }, 1
-	c = append(c, attnEntry("two slips: cycle and no scale", fwd, in(), s, `"group": "cycle"`, `"scale": 1`))
-	s = attnBase(1, 4, 2, 4, 6, 8)
-	s.pos = func(i int) int { return i }
-	c = append(c, attnEntry("queries at the start", fwd, attnInputs(1, 4, 2, 4, 6, 8, 2), s, `"align": "start"`))
-	s = attnBase(1, 4, 2, 6, 6, 8)
-	s.seqMajorOut = true
-	c = append(c, attnEntry("outputs written seq-major", fwd, in(), s, `out written seq-major`, `lse written seq-major`))
+	c = append(c, attnEntry("kv head h mod Hkv", fwd, in(), with(a, func(s *attnPort) { s.kv = func(h int) int { return h % 2 } }), `"group": "cycle"`))
+	c = append(c, attnEntry("scale 1/d", fwd, in(), with(a, func(s *attnPort) { s.scale = 1.0 / 8 }), `"scale": 0.125 (1/d)`))
+	c = append(c, attnEntry("no scale", fwd, in(), with(a, func(s *attnPort) { s.scale = 1 }), `"scale": 1`))
+	c = append(c, attnEntry("causal edge one key late", fwd, in(), with(a, func(s *attnPort) { s.see = func(p, j int) bool { return j <= p+1 } }), `"mask[0]": {"after":1,"before":-1,"kind":"band"}`))
+	c = append(c, attnEntry("k and v swapped", fwd, in(), with(a, func(s *attnPort) { s.swapKV = true }), `k and v swapped`))
+	c = append(c, attnEntry("q indexed seq-major", fwd, in(), with(a, func(s *attnPort) { s.seqMajorIn[0] = true }), `q read seq-major`))
+	c = append(c, attnEntry("every tensor seq-major", fwd, in(), with(a, func(s *attnPort) { s.seqMajorIn, s.seqMajorOut = [3]bool{true, true, true}, true }), `"layout": "seq-major"`))
+	c = append(c, attnEntry("window of 4 for 3", `{"version":1,"mask":[{"kind":"window","size":3}]}`, in(), with(a, func(s *attnPort) { s.see = func(p, j int) bool { return j <= p && j > p-4 } }), `"mask[0].size": 4`))
+	c = append(c, attnEntry("soft cap left out", `{"version":1,"soft_cap":0.5}`, in(), with(a, func(s *attnPort) { s.see = nil }), `"soft_cap": 0 (none)`))
+	c = append(c, attnEntry("two slips: cycle and no scale", fwd, in(), with(a, func(s *attnPort) { s.kv, s.scale = func(h int) int { return h % 2 }, 1 }), `"group": "cycle"`, `"scale": 1`))
+	c = append(c, attnEntry("queries at the start", fwd, attnInputs(1, 4, 2, 4, 6, 8, 2), with(attnBase(1, 4, 2, 4, 6, 8), func(s *attnPort) { s.pos = func(i int) int { return i } }), `"align": "start"`))
+	c = append(c, attnEntry("outputs written seq-major", fwd, in(), with(attnBase(1, 4, 2, 6, 6, 8), func(s *attnPort) { s.seqMajorOut = true }), `out written seq-major`, `lse written seq-major`))
 
 	// Attention backward.
 	b := attnBase(1, 4, 2, 6, 6, 8)
 	c = append(c, attnBackEntry("correct", fwd, in(), b))
-	s = b
-	s.kv = func(h int) int { return h % 2 }
-	c = append(c, attnBackEntry("kv head h mod Hkv", fwd, in(), s, `"group": "cycle"`))
-	s = b
-	s.scale = 1.0 / 8
-	c = append(c, attnBackEntry("scale 1/d", fwd, in(), s, `"scale": 0.125 (1/d)`))
-	s = b
-	s.see = func(p, j int) bool { return j <= p+1 }
-	c = append(c, attnBackEntry("causal edge one key late", fwd, in(), s, `"mask[0]": {"after":1,"before":-1,"kind":"band"}`))
-	s = b
-	s.swapKV = true
-	c = append(c, attnBackEntry("k and v swapped", fwd, in(), s, `k and v swapped, gradients written back swapped`))
-	s = b
-	s.kv, s.see = func(h int) int { return h % 2 }, func(p, j int) bool { return j <= p+1 }
-	c = append(c, attnBackEntry("two slips: cycle and causal edge", fwd, in(), s, `"group": "cycle"`, `"mask[0]": {"after":1,"before":-1,"kind":"band"}`))
+	c = append(c, attnBackEntry("kv head h mod Hkv", fwd, in(), with(b, func(s *attnPort) { s.kv = func(h int) int { return h % 2 } }), `"group": "cycle"`))
+	c = append(c, attnBackEntry("scale 1/d", fwd, in(), with(b, func(s *attnPort) { s.scale = 1.0 / 8 }), `"scale": 0.125 (1/d)`))
+	c = append(c, attnBackEntry("causal edge one key late", fwd, in(), with(b, func(s *attnPort) { s.see = func(p, j int) bool { return j <= p+1 } }), `"mask[0]": {"after":1,"before":-1,"kind":"band"}`))
+	c = append(c, attnBackEntry("k and v swapped", fwd, in(), with(b, func(s *attnPort) { s.swapKV = true }), `k and v swapped, gradients written back swapped`))
+	c = append(c, attnBackEntry("two slips: cycle and causal edge", fwd, in(), with(b, func(s *attnPort) {
+		s.kv, s.see = func(h int) int { return h % 2 }, func(p, j int) bool { return j <= p+1 }
+	}), `"group": "cycle"`, `"mask[0]": {"after":1,"before":-1,"kind":"band"}`))
 
 	// Rotary and scaling.
 	r := rotPort{L: 8, D: 8, rotated: 8, base: 10000, divide: 1, sign: 1}
 	c = append(c, rotEntry("correct", `{"version":1}`, r))
-	x := r
-	x.halves = true
-	c = append(c, rotEntry("halves for adjacent", `{"version":1}`, x, `"pairing": "halves"`))
-	x = r
-	x.base = 500000
-	c = append(c, rotEntry("base 500000", `{"version":1}`, x, `"base": 500000`))
-	x = r
-	x.first = 1
-	c = append(c, rotEntry("positions from 1", `{"version":1}`, x, `"offset": 1`))
-	x = r
-	x.rotated = 4
-	c = append(c, rotEntry("half the dims rotated", `{"version":1}`, x, `"rotated": 4`))
-	x = r
-	x.sign = -1
-	c = append(c, rotEntry("inverse rotation", `{"version":1}`, x, `"inverse": true`))
-	x = r
-	x.divide = 0.25
+	c = append(c, rotEntry("halves for adjacent", `{"version":1}`, with(r, func(x *rotPort) { x.halves = true }), `"pairing": "halves"`))
+	c = append(c, rotEntry("base 500000", `{"version":1}`, with(r, func(x *rotPort) { x.base = 500000 }), `"base": 500000`))
+	c = append(c, rotEntry("positions from 1", `{"version":1}`, with(r, func(x *rotPort) { x.first = 1 }), `"offset": 1`))
+	c = append(c, rotEntry("half the dims rotated", `{"version":1}`, with(r, func(x *rotPort) { x.rotated = 4 }), `"rotated": 4`))
+	c = append(c, rotEntry("inverse rotation", `{"version":1}`, with(r, func(x *rotPort) { x.sign = -1 }), `"inverse": true`))
 	interp := `{"version":1,"scaling":{"method":"interpolation","factor":4}}`
-	c = append(c, rotEntry("interpolation by 1/s", interp, x, `"scaling.factor": 0.25 (1/s)`))
+	c = append(c, rotEntry("interpolation by 1/s", interp, with(r, func(x *rotPort) { x.divide = 0.25 }), `"scaling.factor": 0.25 (1/s)`))
 	c = append(c, rotEntry("scaling left out", interp, r, `"scaling.method": "none"`))
-	x = r
-	x.divide = 4
-	c = append(c, rotEntry("correct interpolation", interp, x))
-	x = r
-	x.halves, x.base = true, 1000000
-	c = append(c, rotEntry("two slips: halves and base 1e6", `{"version":1}`, x, `"pairing": "halves"`, `"base": 1000000`))
+	c = append(c, rotEntry("correct interpolation", interp, with(r, func(x *rotPort) { x.divide = 4 })))
+	c = append(c, rotEntry("two slips: halves and base 1e6", `{"version":1}`, with(r, func(x *rotPort) { x.halves, x.base = true, 1000000 }), `"pairing": "halves"`, `"base": 1000000`))
 	c = append(c, entry{family: "rotary and scaling", name: "tables with base 1e6", op: "rotary-tables", config: `{"version":1,"dim":8,"length":6}`,
 		format: compare.Float32, want: []string{`"base": 1000000`},
 		port: func(ops.Tensors) ops.Tensors {
@@ -327,30 +285,14 @@ func catalogue() []entry {
 		return normEntry("norms forward", name, op, normCfg, n, want...)
 	}
 	c = append(c, nf("LayerNorm correct", "layernorm-forward", ln))
-	n := ln
-	n.reversed = true
-	c = append(c, nf("LayerNorm correct, sums reversed", "layernorm-forward", n))
-	n = ln
-	n.addRoot = true
-	c = append(c, nf("LayerNorm ε added to the root", "layernorm-forward", n, `"epsilon_placement": "added-to-root"`))
-	n = ln
-	n.eps = 1e-6
-	c = append(c, nf("LayerNorm ε 1e-6", "layernorm-forward", n, `"epsilon": 0.000001`))
-	n = ln
-	n.onePlus = true
-	c = append(c, nf("LayerNorm gain 1 + w", "layernorm-forward", n, `"weight_form": "one-plus"`))
-	n = ln
-	n.swapWB = true
-	c = append(c, nf("LayerNorm weight and bias swapped", "layernorm-forward", n, `weight and bias swapped`))
-	n = rms
-	n.addRoot = true
-	c = append(c, nf("RMSNorm ε added to the root", "rmsnorm-forward", n, `"epsilon_placement": "added-to-root"`))
-	n = rms
-	n.eps = 1e-6
-	c = append(c, nf("RMSNorm ε 1e-6", "rmsnorm-forward", n, `"epsilon": 0.000001`))
-	n = ln
-	n.onePlus, n.eps = true, 1e-6
-	c = append(c, nf("two slips: gain 1 + w and ε 1e-6", "layernorm-forward", n, `"weight_form": "one-plus"`, `"epsilon": 0.000001`))
+	c = append(c, nf("LayerNorm correct, sums reversed", "layernorm-forward", with(ln, func(n *normPort) { n.reversed = true })))
+	c = append(c, nf("LayerNorm ε added to the root", "layernorm-forward", with(ln, func(n *normPort) { n.addRoot = true }), `"epsilon_placement": "added-to-root"`))
+	c = append(c, nf("LayerNorm ε 1e-6", "layernorm-forward", with(ln, func(n *normPort) { n.eps = 1e-6 }), `"epsilon": 0.000001`))
+	c = append(c, nf("LayerNorm gain 1 + w", "layernorm-forward", with(ln, func(n *normPort) { n.onePlus = true }), `"weight_form": "one-plus"`))
+	c = append(c, nf("LayerNorm weight and bias swapped", "layernorm-forward", with(ln, func(n *normPort) { n.swapWB = true }), `weight and bias swapped`))
+	c = append(c, nf("RMSNorm ε added to the root", "rmsnorm-forward", with(rms, func(n *normPort) { n.addRoot = true }), `"epsilon_placement": "added-to-root"`))
+	c = append(c, nf("RMSNorm ε 1e-6", "rmsnorm-forward", with(rms, func(n *normPort) { n.eps = 1e-6 }), `"epsilon": 0.000001`))
+	c = append(c, nf("two slips: gain 1 + w and ε 1e-6", "layernorm-forward", with(ln, func(n *normPort) { n.onePlus, n.eps = true, 1e-6 }), `"weight_form": "one-plus"`, `"epsilon": 0.000001`))
 
 	// A correct LayerNorm computed in float64 and stored in float32.
 	c = append(c, entry{family: "norms forward", name: "LayerNorm correct, float64 arithmetic", op: "layernorm-forward", config: normCfg,
@@ -381,15 +323,9 @@ func catalogue() []entry {
 	}
 	c = append(c, nb("LayerNorm correct", "layernorm-backward", ln))
 	c = append(c, nb("RMSNorm correct", "rmsnorm-backward", rms))
-	n = ln
-	n.addRoot = true
-	c = append(c, nb("LayerNorm ε added to the root", "layernorm-backward", n, `"epsilon_placement": "added-to-root"`))
-	n = rms
-	n.eps = 1e-6
-	c = append(c, nb("RMSNorm ε 1e-6", "rmsnorm-backward", n, `"epsilon": 0.000001`))
-	n = ln
-	n.onePlus = true
-	c = append(c, nb("LayerNorm gain 1 + w", "layernorm-backward", n, `"weight_form": "one-plus"`))
+	c = append(c, nb("LayerNorm ε added to the root", "layernorm-backward", with(ln, func(n *normPort) { n.addRoot = true }), `"epsilon_placement": "added-to-root"`))
+	c = append(c, nb("RMSNorm ε 1e-6", "rmsnorm-backward", with(rms, func(n *normPort) { n.eps = 1e-6 }), `"epsilon": 0.000001`))
+	c = append(c, nb("LayerNorm gain 1 + w", "layernorm-backward", with(ln, func(n *normPort) { n.onePlus = true }), `"weight_form": "one-plus"`))
 
 	// Activations.
 	c = append(c, actEntry("GELU correct", "gelu", 0, geluErf, false, false))
@@ -405,36 +341,22 @@ func catalogue() []entry {
 	const swiglu = `{"version":1,"activation":"silu","gated":true,"layout":"in-by-out"}`
 	g := ffnPort{rows: 5, in: 6, hidden: 8, out: 6, gated: true, act: swish(1), grad: swishGrad(1)}
 	c = append(c, ffnEntry("SwiGLU correct", swiglu, g, false))
-	f := g
-	f.swapGate = true
-	c = append(c, ffnEntry("gate and value swapped", swiglu, f, false, `w1 and v swapped (gate and value projections)`))
-	f = g
-	f.outByIn[2] = true
-	c = append(c, ffnEntry("W2 read out-by-in", swiglu, f, false, `w2 read transposed`))
-	f = g
-	f.act = geluTanh
-	c = append(c, ffnEntry("GEGLU with the tanh form", `{"version":1,"activation":"gelu","gated":true,"layout":"in-by-out"}`, f, false, `"activation": "gelu-tanh"`))
+	c = append(c, ffnEntry("gate and value swapped", swiglu, with(g, func(f *ffnPort) { f.swapGate = true }), false, `w1 and v swapped (gate and value projections)`))
+	c = append(c, ffnEntry("W2 read out-by-in", swiglu, with(g, func(f *ffnPort) { f.outByIn[2] = true }), false, `w2 read transposed`))
+	c = append(c, ffnEntry("GEGLU with the tanh form", `{"version":1,"activation":"gelu","gated":true,"layout":"in-by-out"}`, with(g, func(f *ffnPort) { f.act = geluTanh }), false, `"activation": "gelu-tanh"`))
 	sq := ffnPort{rows: 5, in: 8, hidden: 8, out: 8, gated: true, act: swish(1), outByIn: [3]bool{true, true, true}}
 	c = append(c, ffnEntry("every weight read out-by-in", swiglu, sq, false, `"layout": "out-by-in"`))
-	f = g
-	f.interleavedFused = true
-	c = append(c, ffnEntry("fused units read alternating", `{"version":1,"activation":"silu","gated":true,"layout":"in-by-out","packing":"stacked"}`, f, true, `"packing": "interleaved"`))
+	c = append(c, ffnEntry("fused units read alternating", `{"version":1,"activation":"silu","gated":true,"layout":"in-by-out","packing":"stacked"}`, with(g, func(f *ffnPort) { f.interleavedFused = true }), true, `"packing": "interleaved"`))
 	plain := ffnPort{rows: 5, in: 6, hidden: 8, out: 6, act: geluErf}
 	c = append(c, ffnEntry("GELU for ReLU", `{"version":1,"activation":"relu","layout":"in-by-out"}`, plain, false, `"activation": "gelu"`))
-	f = g
-	f.swapGate, f.act = true, geluErf
-	c = append(c, ffnEntry("two slips: swapped and GELU", swiglu, f, false, `w1 and v swapped (gate and value projections)`, `"activation": "gelu"`))
+	c = append(c, ffnEntry("two slips: swapped and GELU", swiglu, with(g, func(f *ffnPort) { f.swapGate, f.act = true, geluErf }), false, `w1 and v swapped (gate and value projections)`, `"activation": "gelu"`))
 
 	// FFN and GLU backward.
 	c = append(c, ffnBackEntry("SwiGLU correct", swiglu, g))
-	f = g
-	f.swapGate = true
-	c = append(c, ffnBackEntry("gate and value swapped", swiglu, f, `w1 and v swapped (gate and value projections), gradients written back swapped`))
+	c = append(c, ffnBackEntry("gate and value swapped", swiglu, with(g, func(f *ffnPort) { f.swapGate = true }), `w1 and v swapped (gate and value projections), gradients written back swapped`))
 	p := ffnPort{rows: 5, in: 6, hidden: 8, out: 6, act: geluTanh, grad: geluTanhGrad}
 	c = append(c, ffnBackEntry("tanh GELU for the exact one", `{"version":1,"activation":"gelu","layout":"in-by-out"}`, p, `"activation": "gelu-tanh"`))
-	f = g
-	f.act, f.grad = geluErf, geluErfGrad
-	c = append(c, ffnBackEntry("GEGLU for SwiGLU", swiglu, f, `"activation": "gelu"`))
+	c = append(c, ffnBackEntry("GEGLU for SwiGLU", swiglu, with(g, func(f *ffnPort) { f.act, f.grad = geluErf, geluErfGrad }), `"activation": "gelu"`))
 
 	// Softmax and log-sum-exp, x of shape [2, 4, 6] (square [2, 5, 5] for
 	// log-sum-exp over the other axis).

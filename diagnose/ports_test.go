@@ -418,26 +418,29 @@ type ffnPort struct {
 	interleavedFused      bool // fused [in, 2·hidden] holds gate j at 2j and value j at 2j+1
 }
 
-// mat returns element (i, j) of the in-by-out matrix w of r rows, c columns.
-func mat(w []float32, outByIn bool, r, c, i, j int) float32 {
-	if outByIn {
-		return w[j*r+i]
-	}
-	return w[i*c+j]
-}
-
-func (f ffnPort) matmul(x, w []float32, outByIn bool, k, n int) []float32 {
-	y := make([]float32, f.rows*n)
-	for r := range f.rows {
+// matmul returns the m×n product a·b, each element a float32 sum over
+// the k terms in ascending order; with ta, a is read as the transpose of
+// the k×m matrix it holds, with tb, b as that of the n×k one it holds (a
+// weight stored out-by-in).
+func matmul(a, b []float32, m, k, n int, ta, tb bool) []float32 {
+	c := make([]float32, m*n)
+	for i := range m {
 		for j := range n {
 			var acc float32
-			for i := range k {
-				acc += x[r*k+i] * mat(w, outByIn, k, n, i, j)
+			for p := range k {
+				x, y := a[i*k+p], b[p*n+j]
+				if ta {
+					x = a[p*m+i]
+				}
+				if tb {
+					y = b[j*k+p]
+				}
+				acc += x * y
 			}
-			y[r*n+j] = acc
+			c[i*n+j] = acc
 		}
 	}
-	return y
+	return c
 }
 
 // unfuse splits a stacked fused [in, 2·hidden] matrix into W1 and V; with
@@ -460,15 +463,15 @@ func (f ffnPort) forward(x, w1, v, w2 []float32) []float32 {
 	if f.swapGate {
 		w1, v = v, w1
 	}
-	h := f.matmul(x, w1, f.outByIn[0], f.in, f.hidden)
+	h := matmul(x, w1, f.rows, f.in, f.hidden, false, f.outByIn[0])
 	z := mapf(h, f.act)
 	if f.gated {
-		u := f.matmul(x, v, f.outByIn[1], f.in, f.hidden)
+		u := matmul(x, v, f.rows, f.in, f.hidden, false, f.outByIn[1])
 		for i := range z {
 			z[i] *= u[i]
 		}
 	}
-	return f.matmul(z, w2, f.outByIn[2], f.hidden, f.out)
+	return matmul(z, w2, f.rows, f.hidden, f.out, false, f.outByIn[2])
 }
 
 // backward returns dx, dW1, dV, dW2 (in-by-out storage, no transposed
@@ -478,42 +481,32 @@ func (f ffnPort) backward(x, w1, v, w2, dy []float32) (dx, dw1, dv, dw2 []float3
 	if f.swapGate {
 		w1, v = v, w1
 	}
-	h := f.matmul(x, w1, false, f.in, f.hidden)
+	h := matmul(x, w1, f.rows, f.in, f.hidden, false, false)
 	u := make([]float32, len(h))
 	for i := range u {
 		u[i] = 1
 	}
 	if f.gated {
-		u = f.matmul(x, v, false, f.in, f.hidden)
+		u = matmul(x, v, f.rows, f.in, f.hidden, false, false)
 	}
 	z := make([]float32, len(h))
 	for i := range h {
 		z[i] = f.act(h[i]) * u[i]
 	}
-	dz := make([]float32, len(h))
-	dw2 = make([]float32, f.hidden*f.out)
-	for r := range f.rows {
-		for j := range f.hidden {
-			for o := range f.out {
-				dz[r*f.hidden+j] += dy[r*f.out+o] * w2[j*f.out+o]
-				dw2[j*f.out+o] += z[r*f.hidden+j] * dy[r*f.out+o]
-			}
-		}
-	}
+	dz := matmul(dy, w2, f.rows, f.out, f.hidden, false, true)
+	dw2 = matmul(z, dy, f.hidden, f.rows, f.out, true, false)
 	dh := make([]float32, len(h))
 	du := make([]float32, len(h))
 	for i := range h {
 		dh[i] = dz[i] * u[i] * f.grad(h[i])
 		du[i] = dz[i] * f.act(h[i])
 	}
+	dw1 = matmul(x, dh, f.in, f.rows, f.hidden, true, false)
+	dv = matmul(x, du, f.in, f.rows, f.hidden, true, false)
 	dx = make([]float32, len(x))
-	dw1 = make([]float32, f.in*f.hidden)
-	dv = make([]float32, f.in*f.hidden)
 	for r := range f.rows {
 		for i := range f.in {
 			for j := range f.hidden {
-				dw1[i*f.hidden+j] += x[r*f.in+i] * dh[r*f.hidden+j]
-				dv[i*f.hidden+j] += x[r*f.in+i] * du[r*f.hidden+j]
 				dx[r*f.in+i] += dh[r*f.hidden+j] * w1[i*f.hidden+j]
 				if f.gated {
 					dx[r*f.in+i] += du[r*f.hidden+j] * v[i*f.hidden+j]
@@ -527,10 +520,11 @@ func (f ffnPort) backward(x, w1, v, w2, dy []float32) (dx, dw1, dv, dw2 []float3
 	return dx, dw1, dv, dw2
 }
 
-// softmaxPort is a softmax over groups of n values spaced stride apart:
-// rows (stride 1) or columns (stride = row length).
-func softmaxPort(x []float32, count, n, stride, block int) []float32 {
-	y := make([]float32, len(x))
+// groups calls f on every group of n values spaced stride apart of an x
+// of size values, count groups in each block of block values: rows
+// (stride 1) or columns (stride = row length). at(i) is the index in x of
+// the group's i-th value; m is the group's largest value.
+func groups(x []float32, count, n, stride, block int, f func(at func(i int) int, m float32)) {
 	for b := 0; b < len(x); b += block {
 		for g := range count {
 			at := func(i int) int {
@@ -543,39 +537,37 @@ func softmaxPort(x []float32, count, n, stride, block int) []float32 {
 			for i := range n {
 				m = max(m, x[at(i)])
 			}
-			var s float32
-			for i := range n {
-				y[at(i)] = exp32(x[at(i)] - m)
-				s += y[at(i)]
-			}
-			for i := range n {
-				y[at(i)] /= s
-			}
+			f(at, m)
 		}
 	}
+}
+
+// softmaxPort is a softmax over groups of n values spaced stride apart
+// (see groups).
+func softmaxPort(x []float32, count, n, stride, block int) []float32 {
+	y := make([]float32, len(x))
+	groups(x, count, n, stride, block, func(at func(int) int, m float32) {
+		var s float32
+		for i := range n {
+			y[at(i)] = exp32(x[at(i)] - m)
+			s += y[at(i)]
+		}
+		for i := range n {
+			y[at(i)] /= s
+		}
+	})
 	return y
 }
 
+// lsePort is the log-sum-exp of each group of softmaxPort, in order.
 func lsePort(x []float32, count, n, stride, block int) []float32 {
 	var out []float32
-	for b := 0; b < len(x); b += block {
-		for g := range count {
-			at := func(i int) int {
-				if stride == 1 {
-					return b + g*n + i
-				}
-				return b + g + i*stride
-			}
-			m := float32(math.Inf(-1))
-			for i := range n {
-				m = max(m, x[at(i)])
-			}
-			var s float32
-			for i := range n {
-				s += exp32(x[at(i)] - m)
-			}
-			out = append(out, m+log32(s))
+	groups(x, count, n, stride, block, func(at func(int) int, m float32) {
+		var s float32
+		for i := range n {
+			s += exp32(x[at(i)] - m)
 		}
-	}
+		out = append(out, m+log32(s))
+	})
 	return out
 }

@@ -7,7 +7,6 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/google/go-cmp/cmp"
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 )
@@ -330,9 +329,7 @@ func TestProperties(t *testing.T) {
 				}
 			}
 		}
-		if d := cmp.Diff(want, rows); d != "" {
-			t.Fatalf("EmptyRows of %v on %v (-want +got):\n%s", a, g, d)
-		}
+		require.Equal(t, want, rows, "EmptyRows of %v on %v", a, g)
 	}
 }
 

@@ -284,6 +284,16 @@ func attnValue(value, same, body string, s attention.Shape, o attention.Options,
 	return keyValue{value: value, same: same, config: cfg(body), in: attnInputs(s, o.Layout, extra), want: attnKernel(s, o)}
 }
 
+// attnKeyValue is one value of an attention key, as attentionKeyTests
+// lists it: body holds the keys of the configuration, o the options it
+// means; a value with refuse is refused by the operations, under that
+// error.
+type attnKeyValue struct {
+	value, same, body string
+	o                 attention.Options
+	refuse            error
+}
+
 // attnRefused is a value of an attention key the operations refuse.
 func attnRefused(value, body string, s attention.Shape, refuse error) keyValue {
 	return keyValue{value: value, config: cfg(body), in: attnInputs(s, attention.HeadsMajor, nil), refuse: refuse}
@@ -299,161 +309,159 @@ func must(m mask.Mask, err error) mask.Mask {
 }
 
 func attentionKeyTests() []keyTest {
-	s := attnShape
 	causal := mask.Causal()
 	start := func(m mask.Mask) attention.Options { return attention.Options{Mask: m, Align: mask.AlignStart} }
 	onlyMask := func(m mask.Mask) attention.Options { return attention.Options{Mask: m} }
 	slopes := Tensors{"slopes": {[]int{4}, []float64{0.5, 0.25, 0.125, 0.0625}}}
 	// Two batch entries for the masks that differ per entry.
-	s2 := s
+	s2 := attnShape
 	s2.Batch = 2
-	return []keyTest{
-		{ops: attentionOps, key: "layout",
-			why: "the same data read as [batch, heads, queries, dim] or [batch, queries, heads, dim] gives each head other rows (4 heads, 3 queries)",
-			values: []keyValue{
-				attnValue(leftOut, "heads-major", "", s, attention.Options{}, nil),
-				attnValue("heads-major", "", `"layout":"heads-major"`, s, attention.Options{Layout: attention.HeadsMajor}, nil),
-				attnValue("seq-major", "", `"layout":"seq-major"`, s, attention.Options{Layout: attention.SeqMajor}, nil),
+	keys := []struct {
+		key, why string
+		s        attention.Shape // the shape of the inputs; attnShape when zero
+		extra    Tensors         // the optional inputs
+		values   []attnKeyValue
+	}{
+		{key: "layout", why: "the same data read as [batch, heads, queries, dim] or [batch, queries, heads, dim] gives each head other rows (4 heads, 3 queries)",
+			values: []attnKeyValue{
+				{value: leftOut, same: "heads-major"},
+				{value: "heads-major", body: `"layout":"heads-major"`, o: attention.Options{Layout: attention.HeadsMajor}},
+				{value: "seq-major", body: `"layout":"seq-major"`, o: attention.Options{Layout: attention.SeqMajor}},
 			}},
-		{ops: attentionOps, key: "group",
-			why: "4 query heads on 2 kv heads: blocks gives heads 0, 1, 2, 3 kv heads 0, 0, 1, 1, cycle 0, 1, 0, 1, so heads 1 and 2 read other keys",
-			values: []keyValue{
-				attnValue(leftOut, "blocks", "", s, attention.Options{}, nil),
-				attnValue("blocks", "", `"group":"blocks"`, s, attention.Options{Group: attention.GroupBlocks}, nil),
-				attnValue("cycle", "", `"group":"cycle"`, s, attention.Options{Group: attention.GroupCycle}, nil),
+		{key: "group", why: "4 query heads on 2 kv heads: blocks gives heads 0, 1, 2, 3 kv heads 0, 0, 1, 1, cycle 0, 1, 0, 1, so heads 1 and 2 read other keys",
+			values: []attnKeyValue{
+				{value: leftOut, same: "blocks"},
+				{value: "blocks", body: `"group":"blocks"`, o: attention.Options{Group: attention.GroupBlocks}},
+				{value: "cycle", body: `"group":"cycle"`, o: attention.Options{Group: attention.GroupCycle}},
 			}},
-		{ops: attentionOps, key: "scale",
-			why: "the default 1/√4 = 0.5, 0.25 and 2 scale nonzero logits differently",
-			values: []keyValue{
-				attnValue(leftOut, "", "", s, attention.Options{}, nil),
-				attnValue("0.25", "", `"scale":0.25`, s, attention.Options{Scale: 0.25}, nil),
-				attnValue("2", "", `"scale":2`, s, attention.Options{Scale: 2}, nil),
+		{key: "scale", why: "the default 1/√4 = 0.5, 0.25 and 2 scale nonzero logits differently",
+			values: []attnKeyValue{
+				{value: leftOut},
+				{value: "0.25", body: `"scale":0.25`, o: attention.Options{Scale: 0.25}},
+				{value: "2", body: `"scale":2`, o: attention.Options{Scale: 2}},
 			}},
-		{ops: attentionOps, key: "soft_cap",
-			why: "scaled logits q·k/2 up to 2 in magnitude: caps of 0.5 and 2 bend them by different amounts, no cap leaves them",
-			values: []keyValue{
-				attnValue(leftOut, "", "", s, attention.Options{}, nil),
-				attnValue("0.5", "", `"soft_cap":0.5`, s, attention.Options{SoftCap: 0.5}, nil),
-				attnValue("2", "", `"soft_cap":2`, s, attention.Options{SoftCap: 2}, nil),
+		{key: "soft_cap", why: "scaled logits q·k/2 up to 2 in magnitude: caps of 0.5 and 2 bend them by different amounts, no cap leaves them",
+			values: []attnKeyValue{
+				{value: leftOut},
+				{value: "0.5", body: `"soft_cap":0.5`, o: attention.Options{SoftCap: 0.5}},
+				{value: "2", body: `"soft_cap":2`, o: attention.Options{SoftCap: 2}},
 			}},
-		{ops: attentionOps, key: "mask",
-			why: "queries at key positions 2, 3, 4 of 5: every key, the causal keys, and a window of 2 inside them are different key sets",
-			values: []keyValue{
-				attnValue(leftOut, "[]", "", s, attention.Options{}, nil),
-				attnValue("[]", "", `"mask":[]`, s, attention.Options{}, nil),
-				attnValue(`[full]`, "[]", `"mask":[{"kind":"full"}]`, s, onlyMask(mask.Full()), nil),
-				attnValue(`[causal]`, "", `"mask":[{"kind":"causal"}]`, s, onlyMask(causal), nil),
-				attnValue(`[causal, window 2]`, "", `"mask":[{"kind":"causal"},{"kind":"window","size":2}]`, s,
-					onlyMask(must(mask.Intersect(causal, must(mask.Window(2))))), nil),
+		{key: "mask", why: "queries at key positions 2, 3, 4 of 5: every key, the causal keys, and a window of 2 inside them are different key sets",
+			values: []attnKeyValue{
+				{value: leftOut, same: "[]"},
+				{value: "[]", body: `"mask":[]`},
+				{value: `[full]`, same: "[]", body: `"mask":[{"kind":"full"}]`, o: onlyMask(mask.Full())},
+				{value: `[causal]`, body: `"mask":[{"kind":"causal"}]`, o: onlyMask(causal)},
+				{value: `[causal, window 2]`, body: `"mask":[{"kind":"causal"},{"kind":"window","size":2}]`, o: onlyMask(must(mask.Intersect(causal, must(mask.Window(2)))))},
 			}},
-		{ops: attentionOps, key: "mask[].kind",
-			why: "queries at key positions 2, 3, 4 of 5 see {0–4}×3 (full), {0–2}, {0–3}, {0–4} (causal), {1–3}, {2–4}, {3, 4} (band 1, 1), " +
-				"{1, 2}, {2, 3}, {3, 4} (window 2), {0–3}, {0–3}, {0–4} (prefix 4), {0–2}×3 (key-padding 3), {0–2}, {3}, {3, 4} (packed 0, 3, 5): all different",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"size":2}]`, s, ErrConfig),
-				attnValue("full", "", `"mask":[{"kind":"full"}]`, s, onlyMask(mask.Full()), nil),
-				attnValue("causal", "", `"mask":[{"kind":"causal"}]`, s, onlyMask(causal), nil),
-				attnValue("band", "", `"mask":[{"kind":"band","before":1,"after":1}]`, s, onlyMask(must(mask.Band(1, 1))), nil),
-				attnValue("window", "", `"mask":[{"kind":"window","size":2}]`, s, onlyMask(must(mask.Window(2))), nil),
-				attnValue("prefix", "", `"mask":[{"kind":"prefix","length":4}]`, s, onlyMask(must(mask.Prefix(4))), nil),
-				attnValue("key-padding", "", `"mask":[{"kind":"key-padding","valid":[3]}]`, s, onlyMask(must(mask.KeyPadding([]int{3}))), nil),
-				attnValue("packed", "", `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"causal"}]`, s,
-					onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockCausal))), nil),
+		{key: "mask[].kind", why: "queries at key positions 2, 3, 4 of 5 see {0–4}×3 (full), {0–2}, {0–3}, {0–4} (causal), {1–3}, {2–4}, {3, 4} (band 1, 1), " +
+			"{1, 2}, {2, 3}, {3, 4} (window 2), {0–3}, {0–3}, {0–4} (prefix 4), {0–2}×3 (key-padding 3), {0–2}, {3}, {3, 4} (packed 0, 3, 5): all different",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"size":2}]`, refuse: ErrConfig},
+				{value: "full", body: `"mask":[{"kind":"full"}]`, o: onlyMask(mask.Full())},
+				{value: "causal", body: `"mask":[{"kind":"causal"}]`, o: onlyMask(causal)},
+				{value: "band", body: `"mask":[{"kind":"band","before":1,"after":1}]`, o: onlyMask(must(mask.Band(1, 1)))},
+				{value: "window", body: `"mask":[{"kind":"window","size":2}]`, o: onlyMask(must(mask.Window(2)))},
+				{value: "prefix", body: `"mask":[{"kind":"prefix","length":4}]`, o: onlyMask(must(mask.Prefix(4)))},
+				{value: "key-padding", body: `"mask":[{"kind":"key-padding","valid":[3]}]`, o: onlyMask(must(mask.KeyPadding([]int{3})))},
+				{value: "packed", body: `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"causal"}]`, o: onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockCausal)))},
 			}},
-		{ops: attentionOps, key: "mask[].before",
-			why: "band with after 1, queries at 2, 3, 4: before 0, 1, 2 and unbounded start the query at 3 at keys 3, 2, 1, 0; a swap with after changes the key sets",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"kind":"band","after":1}]`, s, ErrConfig),
-				attnValue("0", "", `"mask":[{"kind":"band","before":0,"after":1}]`, s, onlyMask(must(mask.Band(0, 1))), nil),
-				attnValue("1", "", `"mask":[{"kind":"band","before":1,"after":1}]`, s, onlyMask(must(mask.Band(1, 1))), nil),
-				attnValue("2", "", `"mask":[{"kind":"band","before":2,"after":1}]`, s, onlyMask(must(mask.Band(2, 1))), nil),
-				attnValue("-1", "", `"mask":[{"kind":"band","before":-1,"after":1}]`, s, onlyMask(must(mask.Band(mask.Unbounded, 1))), nil),
+		{key: "mask[].before", why: "band with after 1, queries at 2, 3, 4: before 0, 1, 2 and unbounded start the query at 3 at keys 3, 2, 1, 0; a swap with after changes the key sets",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"kind":"band","after":1}]`, refuse: ErrConfig},
+				{value: "0", body: `"mask":[{"kind":"band","before":0,"after":1}]`, o: onlyMask(must(mask.Band(0, 1)))},
+				{value: "1", body: `"mask":[{"kind":"band","before":1,"after":1}]`, o: onlyMask(must(mask.Band(1, 1)))},
+				{value: "2", body: `"mask":[{"kind":"band","before":2,"after":1}]`, o: onlyMask(must(mask.Band(2, 1)))},
+				{value: "-1", body: `"mask":[{"kind":"band","before":-1,"after":1}]`, o: onlyMask(must(mask.Band(mask.Unbounded, 1)))},
 			}},
-		{ops: attentionOps, key: "mask[].after",
-			why: "band with before 1, queries aligned at the start (positions 0, 1, 2): after 0, 1, 2 and unbounded end the query at 0 at keys 0, 1, 2, 4",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"kind":"band","before":1}],"align":"start"`, s, ErrConfig),
-				attnValue("0", "", `"mask":[{"kind":"band","before":1,"after":0}],"align":"start"`, s, start(must(mask.Band(1, 0))), nil),
-				attnValue("1", "", `"mask":[{"kind":"band","before":1,"after":1}],"align":"start"`, s, start(must(mask.Band(1, 1))), nil),
-				attnValue("2", "", `"mask":[{"kind":"band","before":1,"after":2}],"align":"start"`, s, start(must(mask.Band(1, 2))), nil),
-				attnValue("-1", "", `"mask":[{"kind":"band","before":1,"after":-1}],"align":"start"`, s, start(must(mask.Band(1, mask.Unbounded))), nil),
+		{key: "mask[].after", why: "band with before 1, queries aligned at the start (positions 0, 1, 2): after 0, 1, 2 and unbounded end the query at 0 at keys 0, 1, 2, 4",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"kind":"band","before":1}],"align":"start"`, refuse: ErrConfig},
+				{value: "0", body: `"mask":[{"kind":"band","before":1,"after":0}],"align":"start"`, o: start(must(mask.Band(1, 0)))},
+				{value: "1", body: `"mask":[{"kind":"band","before":1,"after":1}],"align":"start"`, o: start(must(mask.Band(1, 1)))},
+				{value: "2", body: `"mask":[{"kind":"band","before":1,"after":2}],"align":"start"`, o: start(must(mask.Band(1, 2)))},
+				{value: "-1", body: `"mask":[{"kind":"band","before":1,"after":-1}],"align":"start"`, o: start(must(mask.Band(1, mask.Unbounded)))},
 			}},
-		{ops: attentionOps, key: "mask[].size",
-			why: "queries at 2, 3, 4: windows of 1, 2, 3 keys ending at the query are different key sets",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"kind":"window"}]`, s, ErrConfig),
-				attnValue("1", "", `"mask":[{"kind":"window","size":1}]`, s, onlyMask(must(mask.Window(1))), nil),
-				attnValue("2", "", `"mask":[{"kind":"window","size":2}]`, s, onlyMask(must(mask.Window(2))), nil),
-				attnValue("3", "", `"mask":[{"kind":"window","size":3}]`, s, onlyMask(must(mask.Window(3))), nil),
+		{key: "mask[].size", why: "queries at 2, 3, 4: windows of 1, 2, 3 keys ending at the query are different key sets",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"kind":"window"}]`, refuse: ErrConfig},
+				{value: "1", body: `"mask":[{"kind":"window","size":1}]`, o: onlyMask(must(mask.Window(1)))},
+				{value: "2", body: `"mask":[{"kind":"window","size":2}]`, o: onlyMask(must(mask.Window(2)))},
+				{value: "3", body: `"mask":[{"kind":"window","size":3}]`, o: onlyMask(must(mask.Window(3)))},
 			}},
-		{ops: attentionOps, key: "mask[].length",
-			why: "queries aligned at the start (positions 0, 1, 2), so that a prefix reaches past them: prefixes 0, 2, 4 give the query at 0 keys {0}, {0, 1}, {0–3}",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"kind":"prefix"}],"align":"start"`, s, ErrConfig),
-				attnValue("0", "", `"mask":[{"kind":"prefix","length":0}],"align":"start"`, s, start(must(mask.Prefix(0))), nil),
-				attnValue("2", "", `"mask":[{"kind":"prefix","length":2}],"align":"start"`, s, start(must(mask.Prefix(2))), nil),
-				attnValue("4", "", `"mask":[{"kind":"prefix","length":4}],"align":"start"`, s, start(must(mask.Prefix(4))), nil),
+		{key: "mask[].length", why: "queries aligned at the start (positions 0, 1, 2), so that a prefix reaches past them: prefixes 0, 2, 4 give the query at 0 keys {0}, {0, 1}, {0–3}",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"kind":"prefix"}],"align":"start"`, refuse: ErrConfig},
+				{value: "0", body: `"mask":[{"kind":"prefix","length":0}],"align":"start"`, o: start(must(mask.Prefix(0)))},
+				{value: "2", body: `"mask":[{"kind":"prefix","length":2}],"align":"start"`, o: start(must(mask.Prefix(2)))},
+				{value: "4", body: `"mask":[{"kind":"prefix","length":4}],"align":"start"`, o: start(must(mask.Prefix(4)))},
 			}},
-		{ops: attentionOps, key: "mask[].valid",
-			why: "two batch entries: valid counts 5, 5 (every key), 1, 4 and 4, 1 (the same counts in the other order) and 3, 3 are different key sets",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"kind":"key-padding"}]`, s2, ErrConfig),
-				attnValue("[5,5]", "", `"mask":[{"kind":"key-padding","valid":[5,5]}]`, s2, onlyMask(must(mask.KeyPadding([]int{5, 5}))), nil),
-				attnValue("[1,4]", "", `"mask":[{"kind":"key-padding","valid":[1,4]}]`, s2, onlyMask(must(mask.KeyPadding([]int{1, 4}))), nil),
-				attnValue("[4,1]", "", `"mask":[{"kind":"key-padding","valid":[4,1]}]`, s2, onlyMask(must(mask.KeyPadding([]int{4, 1}))), nil),
-				attnValue("[3,3]", "", `"mask":[{"kind":"key-padding","valid":[3,3]}]`, s2, onlyMask(must(mask.KeyPadding([]int{3, 3}))), nil),
+		{key: "mask[].valid", s: s2, why: "two batch entries: valid counts 5, 5 (every key), 1, 4 and 4, 1 (the same counts in the other order) and 3, 3 are different key sets",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"kind":"key-padding"}]`, refuse: ErrConfig},
+				{value: "[5,5]", body: `"mask":[{"kind":"key-padding","valid":[5,5]}]`, o: onlyMask(must(mask.KeyPadding([]int{5, 5})))},
+				{value: "[1,4]", body: `"mask":[{"kind":"key-padding","valid":[1,4]}]`, o: onlyMask(must(mask.KeyPadding([]int{1, 4})))},
+				{value: "[4,1]", body: `"mask":[{"kind":"key-padding","valid":[4,1]}]`, o: onlyMask(must(mask.KeyPadding([]int{4, 1})))},
+				{value: "[3,3]", body: `"mask":[{"kind":"key-padding","valid":[3,3]}]`, o: onlyMask(must(mask.KeyPadding([]int{3, 3})))},
 			}},
-		{ops: attentionOps, key: "mask[].offsets",
-			why: "causal blocks, queries at 2, 3, 4: the sequences [0, 5), [0, 2)+[2, 5), [0, 3)+[3, 5) and [0, 1)+[1, 3)+[3, 5) give the query at 2 keys {0–2}, {2}, {0–2}, {1, 2} and the one at 3 {0–3}, {2, 3}, {3}, {3}",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"kind":"packed","block":"causal"}]`, s, ErrConfig),
-				attnValue("[0,5]", "", `"mask":[{"kind":"packed","offsets":[0,5],"block":"causal"}]`, s, onlyMask(must(mask.Packed([]int{0, 5}, mask.BlockCausal))), nil),
-				attnValue("[0,2,5]", "", `"mask":[{"kind":"packed","offsets":[0,2,5],"block":"causal"}]`, s, onlyMask(must(mask.Packed([]int{0, 2, 5}, mask.BlockCausal))), nil),
-				attnValue("[0,3,5]", "", `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"causal"}]`, s, onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockCausal))), nil),
-				attnValue("[0,1,3,5]", "", `"mask":[{"kind":"packed","offsets":[0,1,3,5],"block":"causal"}]`, s, onlyMask(must(mask.Packed([]int{0, 1, 3, 5}, mask.BlockCausal))), nil),
+		{key: "mask[].offsets", why: "causal blocks, queries at 2, 3, 4: the sequences [0, 5), [0, 2)+[2, 5), [0, 3)+[3, 5) and [0, 1)+[1, 3)+[3, 5) give the query at 2 keys {0–2}, {2}, {0–2}, {1, 2} and the one at 3 {0–3}, {2, 3}, {3}, {3}",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"kind":"packed","block":"causal"}]`, refuse: ErrConfig},
+				{value: "[0,5]", body: `"mask":[{"kind":"packed","offsets":[0,5],"block":"causal"}]`, o: onlyMask(must(mask.Packed([]int{0, 5}, mask.BlockCausal)))},
+				{value: "[0,2,5]", body: `"mask":[{"kind":"packed","offsets":[0,2,5],"block":"causal"}]`, o: onlyMask(must(mask.Packed([]int{0, 2, 5}, mask.BlockCausal)))},
+				{value: "[0,3,5]", body: `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"causal"}]`, o: onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockCausal)))},
+				{value: "[0,1,3,5]", body: `"mask":[{"kind":"packed","offsets":[0,1,3,5],"block":"causal"}]`, o: onlyMask(must(mask.Packed([]int{0, 1, 3, 5}, mask.BlockCausal)))},
 			}},
-		{ops: attentionOps, key: "mask[].block",
-			why: "sequences [0, 3) and [3, 5), queries at 2, 3, 4: the query at 3 sees {3} causal but {3, 4} full",
-			values: []keyValue{
-				attnRefused(leftOut, `"mask":[{"kind":"packed","offsets":[0,3,5]}]`, s, ErrConfig),
-				attnValue("causal", "", `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"causal"}]`, s, onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockCausal))), nil),
-				attnValue("full", "", `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"full"}]`, s, onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockFull))), nil),
+		{key: "mask[].block", why: "sequences [0, 3) and [3, 5), queries at 2, 3, 4: the query at 3 sees {3} causal but {3, 4} full",
+			values: []attnKeyValue{
+				{value: leftOut, body: `"mask":[{"kind":"packed","offsets":[0,3,5]}]`, refuse: ErrConfig},
+				{value: "causal", body: `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"causal"}]`, o: onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockCausal)))},
+				{value: "full", body: `"mask":[{"kind":"packed","offsets":[0,3,5],"block":"full"}]`, o: onlyMask(must(mask.Packed([]int{0, 3, 5}, mask.BlockFull)))},
 			}},
-		{ops: attentionOps, key: "align",
-			why: "3 queries on 5 keys under a causal mask: end puts them at 2, 3, 4, start at 0, 1, 2, so they see different keys",
-			values: []keyValue{
-				attnValue(leftOut, "end", `"mask":[{"kind":"causal"}]`, s, attention.Options{Mask: causal}, nil),
-				attnValue("end", "", `"mask":[{"kind":"causal"}],"align":"end"`, s, attention.Options{Mask: causal, Align: mask.AlignEnd}, nil),
-				attnValue("start", "", `"mask":[{"kind":"causal"}],"align":"start"`, s, attention.Options{Mask: causal, Align: mask.AlignStart}, nil),
+		{key: "align", why: "3 queries on 5 keys under a causal mask: end puts them at 2, 3, 4, start at 0, 1, 2, so they see different keys",
+			values: []attnKeyValue{
+				{value: leftOut, same: "end", body: `"mask":[{"kind":"causal"}]`, o: attention.Options{Mask: causal}},
+				{value: "end", body: `"mask":[{"kind":"causal"}],"align":"end"`, o: attention.Options{Mask: causal, Align: mask.AlignEnd}},
+				{value: "start", body: `"mask":[{"kind":"causal"}],"align":"start"`, o: attention.Options{Mask: causal, Align: mask.AlignStart}},
 			}},
-		{ops: attentionOps, key: "offset",
-			why: "queries aligned at the start under a causal mask: offsets 0, 1, 2 put the first query at key 0, 1, 2, which it sees with all before it (a negated offset would put it before key 0, which is refused)",
-			values: []keyValue{
-				attnValue(leftOut, "0", `"mask":[{"kind":"causal"}],"align":"start"`, s, start(causal), nil),
-				attnValue("0", "", `"mask":[{"kind":"causal"}],"align":"start","offset":0`, s, start(causal), nil),
-				attnValue("1", "", `"mask":[{"kind":"causal"}],"align":"start","offset":1`, s,
-					attention.Options{Mask: causal, Align: mask.AlignStart, Offset: 1}, nil),
-				attnValue("2", "", `"mask":[{"kind":"causal"}],"align":"start","offset":2`, s,
-					attention.Options{Mask: causal, Align: mask.AlignStart, Offset: 2}, nil),
+		{key: "offset", why: "queries aligned at the start under a causal mask: offsets 0, 1, 2 put the first query at key 0, 1, 2, which it sees with all before it (a negated offset would put it before key 0, which is refused)",
+			values: []attnKeyValue{
+				{value: leftOut, same: "0", body: `"mask":[{"kind":"causal"}],"align":"start"`, o: start(causal)},
+				{value: "0", body: `"mask":[{"kind":"causal"}],"align":"start","offset":0`, o: start(causal)},
+				{value: "1", body: `"mask":[{"kind":"causal"}],"align":"start","offset":1`, o: attention.Options{Mask: causal, Align: mask.AlignStart, Offset: 1}},
+				{value: "2", body: `"mask":[{"kind":"causal"}],"align":"start","offset":2`, o: attention.Options{Mask: causal, Align: mask.AlignStart, Offset: 2}},
 			}},
-		{ops: attentionOps, key: "alibi_form",
-			why: "slopes given and every key visible to queries at 2, 3, 4, so keys after a query exist: their bias is +m·d (causal), −m·d (symmetric), 0 (past-only)",
-			values: []keyValue{
-				attnValue(leftOut, "causal", "", s, attention.Options{}, slopes),
-				attnValue("causal", "", `"alibi_form":"causal"`, s, attention.Options{ALiBi: mask.ALiBiCausal}, slopes),
-				attnValue("symmetric", "", `"alibi_form":"symmetric"`, s, attention.Options{ALiBi: mask.ALiBiSymmetric}, slopes),
-				attnValue("past-only", "", `"alibi_form":"past-only"`, s, attention.Options{ALiBi: mask.ALiBiPastOnly}, slopes),
+		{key: "alibi_form", extra: slopes, why: "slopes given and every key visible to queries at 2, 3, 4, so keys after a query exist: their bias is +m·d (causal), −m·d (symmetric), 0 (past-only)",
+			values: []attnKeyValue{
+				{value: leftOut, same: "causal"},
+				{value: "causal", body: `"alibi_form":"causal"`, o: attention.Options{ALiBi: mask.ALiBiCausal}},
+				{value: "symmetric", body: `"alibi_form":"symmetric"`, o: attention.Options{ALiBi: mask.ALiBiSymmetric}},
+				{value: "past-only", body: `"alibi_form":"past-only"`, o: attention.Options{ALiBi: mask.ALiBiPastOnly}},
 			}},
-		{ops: attentionOps, key: "empty_row",
-			why: "a key-padding mask of valid counts 0 and 3 hides every key from the rows of the first batch entry and some from the second: zero gives them output 0, nan gives NaN",
-			values: []keyValue{
-				attnValue(leftOut, "zero", `"mask":[{"kind":"key-padding","valid":[0,3]}]`, s2, onlyMask(must(mask.KeyPadding([]int{0, 3}))), nil),
-				attnValue("zero", "", `"mask":[{"kind":"key-padding","valid":[0,3]}],"empty_row":"zero"`, s2,
-					attention.Options{Mask: must(mask.KeyPadding([]int{0, 3})), EmptyRow: attention.EmptyRowZero}, nil),
-				attnValue("nan", "", `"mask":[{"kind":"key-padding","valid":[0,3]}],"empty_row":"nan"`, s2,
-					attention.Options{Mask: must(mask.KeyPadding([]int{0, 3})), EmptyRow: attention.EmptyRowNaN}, nil),
+		{key: "empty_row", s: s2, why: "a key-padding mask of valid counts 0 and 3 hides every key from the rows of the first batch entry and some from the second: zero gives them output 0, nan gives NaN",
+			values: []attnKeyValue{
+				{value: leftOut, same: "zero", body: `"mask":[{"kind":"key-padding","valid":[0,3]}]`, o: onlyMask(must(mask.KeyPadding([]int{0, 3})))},
+				{value: "zero", body: `"mask":[{"kind":"key-padding","valid":[0,3]}],"empty_row":"zero"`, o: attention.Options{Mask: must(mask.KeyPadding([]int{0, 3})), EmptyRow: attention.EmptyRowZero}},
+				{value: "nan", body: `"mask":[{"kind":"key-padding","valid":[0,3]}],"empty_row":"nan"`, o: attention.Options{Mask: must(mask.KeyPadding([]int{0, 3})), EmptyRow: attention.EmptyRowNaN}},
 			}},
 	}
+	var tests []keyTest
+	for _, k := range keys {
+		s := k.s
+		if s == (attention.Shape{}) {
+			s = attnShape
+		}
+		kt := keyTest{ops: attentionOps, key: k.key, why: k.why}
+		for _, v := range k.values {
+			if v.refuse != nil {
+				kt.values = append(kt.values, attnRefused(v.value, v.body, s, v.refuse))
+				continue
+			}
+			kt.values = append(kt.values, attnValue(v.value, v.same, v.body, s, v.o, k.extra))
+		}
+		tests = append(tests, kt)
+	}
+	return tests
 }
 
 // ---- rotary-apply and rotary-tables ----

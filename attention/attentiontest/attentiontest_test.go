@@ -3,7 +3,6 @@ package attentiontest
 import (
 	"errors"
 	"fmt"
-	"github.com/plumbref/plumb/conformance"
 	"strings"
 	"testing"
 
@@ -12,6 +11,7 @@ import (
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/posenc"
 )
@@ -129,9 +129,8 @@ func TestSkipsNameWhatIsMissing(t *testing.T) {
 	// that rotate are posed without rotary, except those about rotary.
 	assert.Equal(t, 2, ran)
 	assert.Equal(t, len(Cases())-2, skipped)
-	assert.False(t, rec.Find("full_square/heads-major").Skipped)
-	assert.Equal(t, "case causal_square/heads-major skipped: it needs mask causal (Masks), which the kernel does not declare in its Supports",
-		rec.Find("causal_square/heads-major").Messages[0])
+	suite.Passed(t, rec, "full_square/heads-major")
+	suite.Skipped(t, rec, "causal_square/heads-major", "mask causal (Masks)")
 	assert.Contains(t, rec.Find("partial_rotary/heads-major/adjacent").Messages[0], "rotary (Pairings), partial rotary (PartialRotary)")
 	assert.Contains(t, rec.Find("no_keys/heads-major").Messages[0], "Lq ≠ Lk (UnequalLengths)")
 }
@@ -207,16 +206,9 @@ func TestCatchesSlips(t *testing.T) {
 				}})
 			require.True(t, rec.Failed, "the suite passed a kernel with a slip in the %s", s.name)
 			for _, name := range s.fails {
-				r := rec.Find(name)
-				require.NotNil(t, r, name)
-				require.True(t, r.Failed, "%s passed", name)
-				msg := r.Messages[0]
-				caseName := name[:strings.Index(name, "/")]
-				assert.True(t, strings.HasPrefix(msg, "case "+caseName+" ("), msg)
-				assert.Contains(t, msg, "differs from the reference")
-				assert.Contains(t, msg, "worst element [batch, ")
+				msg := suite.Failed(t, rec, name, "differs from the reference", "worst element [batch, ")
 				if want, ok := s.diagnosis[name]; ok {
-					line := diagnosisLine(t, msg)
+					line := suite.DiagnosisLine(t, msg)
 					if want == outside {
 						assert.True(t, strings.HasPrefix(line, "  no single change of its conventions explains it ("), msg)
 						assert.Contains(t, line, "the rotary encoding, Problem.Rotary and Supports.Pairings, is not searched)", msg)
@@ -226,26 +218,10 @@ func TestCatchesSlips(t *testing.T) {
 				}
 			}
 			for _, name := range s.pass {
-				r := rec.Find(name)
-				require.NotNil(t, r, name)
-				assert.False(t, r.Failed, "%s failed:\n%s", name, strings.Join(r.Messages, "\n"))
+				suite.Passed(t, rec, name)
 			}
 		})
 	}
-}
-
-// diagnosisLine returns the line of a failure message before the one
-// naming the report's file: the diagnosis.
-func diagnosisLine(t *testing.T, msg string) string {
-	t.Helper()
-	lines := strings.Split(msg, "\n")
-	for i, l := range lines {
-		if i > 0 && strings.HasPrefix(l, "  the whole report") {
-			return lines[i-1]
-		}
-	}
-	t.Fatalf("no line naming the whole report in %q", msg)
-	return ""
 }
 
 // The case list is what the package doc and the report describe: unique
@@ -260,11 +236,6 @@ func TestCases(t *testing.T) {
 		assert.NoError(t, err, c.Name)
 		assert.Contains(t, c.Problem.String(), fmt.Sprintf("Lq %d, Lk %d", c.Problem.Shape.Lq, c.Problem.Shape.Lk))
 	}
-}
-
-// The package documentation lists every case, with its reason, in order.
-func TestDocListsEveryCase(t *testing.T) {
-	suite.DocListsEveryCase(t, "doc.go", Cases(), func(c Case) (string, string) { return c.Name, c.Why })
 }
 
 // A kernel without Forward, or with an invalid format, fails at once; a

@@ -62,6 +62,27 @@ func firstListed(s string) string {
 	return ""
 }
 
+// attentionCheck is the check of port.npy against the attention
+// fixture's configuration c.json, with the flags extra.
+func attentionCheck(extra ...string) []string {
+	return append([]string{"check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port.npy"}, extra...)
+}
+
+// checkCyclePort writes, as port.npy in dir beside the attention inputs
+// and c.json (the causal configuration), the port in storage dt that reads
+// kv head h mod Hkv ("group": "cycle"), checks it, which must fail (exit
+// status 1), and returns the output and its diagnosis section, which must
+// be there.
+func checkCyclePort(t *testing.T, dir string, dt npy.DType) (o, s string) {
+	t.Helper()
+	slippedPort(t, dir, "port.npy", "attention-forward", `{"version": 1, "mask": [{"kind": "causal"}], "group": "cycle"}`,
+		fixtureInputs(t, dir), "out", dt)
+	o, _ = must(t, dir, 1, attentionCheck()...)
+	s = section(t, o)
+	require.NotEmpty(t, s, o)
+	return o, s
+}
+
 // A float32 attention port that reads kv head h mod Hkv where the
 // configuration says consecutive query heads share one (4 query heads on
 // 2 kv heads: blocks reads 0 0 1 1, cycle 0 1 0 1) fails its check, and
@@ -69,14 +90,8 @@ func firstListed(s string) string {
 // the section and -json carries it; the exit status is 1 either way.
 func TestCheckDiagnosisGroupMap(t *testing.T) {
 	dir := attentionFixture(t)
-	slippedPort(t, dir, "port.npy", "attention-forward", `{"version": 1, "mask": [{"kind": "causal"}], "group": "cycle"}`,
-		fixtureInputs(t, dir), "out", npy.Float32)
-	args := []string{"check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port.npy"}
-
-	o, _ := must(t, dir, 1, args...)
+	o, s := checkCyclePort(t, dir, npy.Float32)
 	assert.Contains(t, o, "verdict: FAIL")
-	s := section(t, o)
-	require.NotEmpty(t, s, o)
 	assert.Contains(t, s, "as configured, under the float32 yardstick: FAIL")
 	assert.Contains(t, s, "on the whole problem\n", "192 + 2·96 input values are searched whole")
 	assert.Contains(t, s, "the port passes under")
@@ -85,11 +100,11 @@ func TestCheckDiagnosisGroupMap(t *testing.T) {
 	// (0/2 = 0 mod 2 = 0, 3/2 = 3 mod 2 = 1), so only they are exact.
 	assert.Contains(t, s, "error signatures of the failing outputs, on the whole problem:\n    out along heads: exact exactly at the heads h where h/2 = h mod 2 (0, 3)")
 
-	o2, _ := must(t, dir, 1, append(args, "-no-diagnosis")...)
+	o2, _ := must(t, dir, 1, attentionCheck("-no-diagnosis")...)
 	assert.Empty(t, section(t, o2))
 	assert.Equal(t, o2, o[:strings.Index(o, "\n"+diagnosisTitle)], "without the section, the reports are as they were")
 
-	o, _ = must(t, dir, 1, append(args, "-json")...)
+	o, _ = must(t, dir, 1, attentionCheck("-json")...)
 	var j checkJSON
 	require.NoError(t, json.Unmarshal([]byte(o), &j))
 	require.Len(t, j.Outputs, 1)
@@ -105,7 +120,7 @@ func TestCheckDiagnosisGroupMap(t *testing.T) {
 	assert.NotEmpty(t, d.Signatures)
 	assert.Empty(t, j.Diagnosis.Note)
 
-	o, _ = must(t, dir, 1, append(args, "-json", "-no-diagnosis")...)
+	o, _ = must(t, dir, 1, attentionCheck("-json", "-no-diagnosis")...)
 	assert.NotContains(t, o, `"diagnosis"`)
 }
 
@@ -131,15 +146,14 @@ func TestCheckDiagnosisRotaryPairing(t *testing.T) {
 func TestCheckDiagnosisCorrectPort(t *testing.T) {
 	dir := attentionFixture(t)
 	slippedPort(t, dir, "port.npy", "attention-forward", causal, fixtureInputs(t, dir), "out", npy.Float32)
-	args := []string{"check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port.npy"}
-	o, _ := must(t, dir, 0, args...)
+	o, _ := must(t, dir, 0, attentionCheck()...)
 	assert.NotContains(t, o, diagnosisTitle)
-	o, _ = must(t, dir, 0, append(args, "-json")...)
+	o, _ = must(t, dir, 0, attentionCheck("-json")...)
 	assert.NotContains(t, o, `"diagnosis"`)
 
 	// -abs 1e-12 is far below a float32 rounding of these values (of
 	// order 1: unit roundoff 2⁻²⁴ ≈ 6e-8), so the float32 port fails it.
-	o, _ = must(t, dir, 1, append(args, "-abs", "1e-12")...)
+	o, _ = must(t, dir, 1, attentionCheck("-abs", "1e-12")...)
 	s := section(t, o)
 	require.NotEmpty(t, s, o)
 	assert.Contains(t, s, "as configured, under the float32 yardstick: PASS")
@@ -150,12 +164,7 @@ func TestCheckDiagnosisCorrectPort(t *testing.T) {
 // A float64 port with the other group map is searched under the float32
 // yardstick, and the section says so.
 func TestCheckDiagnosisFloat64(t *testing.T) {
-	dir := attentionFixture(t)
-	slippedPort(t, dir, "port.npy", "attention-forward", `{"version": 1, "mask": [{"kind": "causal"}], "group": "cycle"}`,
-		fixtureInputs(t, dir), "out", npy.Float64)
-	o, _ := must(t, dir, 1, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port.npy")
-	s := section(t, o)
-	require.NotEmpty(t, s, o)
+	_, s := checkCyclePort(t, attentionFixture(t), npy.Float64)
 	assert.Contains(t, s, "(the candidates are float64, which has no yardstick: they are judged by the float32 one")
 	assert.Regexp(t, `^"group": "cycle": PASS`, firstListed(s))
 }
@@ -172,11 +181,7 @@ func TestCheckDiagnosisSubProblem(t *testing.T) {
 	must(t, dir, 0, "gen", "-shape", "4,2,64,16", "-seed", "2", "k.npy")
 	must(t, dir, 0, "gen", "-shape", "4,2,64,16", "-seed", "3", "v.npy")
 	require.NoError(t, os.WriteFile(filepath.Join(dir, "c.json"), []byte(causal), 0o644))
-	slippedPort(t, dir, "port.npy", "attention-forward", `{"version": 1, "mask": [{"kind": "causal"}], "group": "cycle"}`,
-		fixtureInputs(t, dir), "out", npy.Float32)
-	o, _ := must(t, dir, 1, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port.npy")
-	s := section(t, o)
-	require.NotEmpty(t, s, o)
+	_, s := checkCyclePort(t, dir, npy.Float32)
 	assert.Contains(t, s, "on a sub-problem, batch entries 0–1 of 4 (16384 of 32768 input values)\n")
 	assert.Regexp(t, `^"group": "cycle": PASS`, firstListed(s))
 	// The signatures are of the whole problem.

@@ -1,7 +1,6 @@
 package fastattn
 
 import (
-	"github.com/plumbref/plumb/conformance"
 	"strings"
 	"testing"
 
@@ -10,6 +9,7 @@ import (
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/attention/attentiontest"
+	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/posenc"
 )
 

@@ -1,14 +1,13 @@
 package ffntest
 
 import (
-	"github.com/plumbref/plumb/conformance"
 	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/ffn"
 	"github.com/plumbref/plumb/internal/suite"
 )
@@ -147,15 +146,11 @@ func TestCatchesSlips(t *testing.T) {
 			`  it matches "layout": "in-by-out" [Options.Layout, Supports.Layouts]`},
 	} {
 		t.Run(s.name, func(t *testing.T) {
-			rec, failed := failures(Kernel[float64]{Format: compare.Float64, Supports: s.supports, Forward: s.kernel})
-			require.Contains(t, failed, s.fails)
-			msg := rec.Find(s.fails).Messages[0]
-			assert.True(t, strings.HasPrefix(msg, "case "+s.fails[:strings.Index(s.fails, "/")]+" ("), msg)
-			assert.Contains(t, msg, s.says)
-			assert.True(t, strings.HasPrefix(diagnosisLine(t, msg), s.diagnosis), msg)
+			rec, _ := failures(Kernel[float64]{Format: compare.Float64, Supports: s.supports, Forward: s.kernel})
+			msg := suite.Failed(t, rec, s.fails, s.says)
+			assert.True(t, strings.HasPrefix(suite.DiagnosisLine(t, msg), s.diagnosis), msg)
 			if s.passes != "" {
-				assert.NotContains(t, failed, s.passes)
-				assert.NotNil(t, rec.Find(s.passes))
+				suite.Passed(t, rec, s.passes)
 			}
 		})
 	}
@@ -165,15 +160,9 @@ func TestCatchesSlips(t *testing.T) {
 func TestSkips(t *testing.T) {
 	rec, failed := failures(Kernel[float64]{Format: compare.Float64, Forward: forward64(ffn.Forward), Supports: Supports{Acts: []ffn.Act{ffn.ActReLU}}})
 	assert.Empty(t, failed)
-	assert.Equal(t, "case rectangular/relu/plain/in-by-out skipped: it needs Out ≠ In (Rectangular), which the kernel does not declare in its Supports",
-		rec.Find("rectangular/relu/plain/in-by-out").Messages[0])
-	assert.True(t, rec.Find("biases/relu/plain/in-by-out").Skipped)
-	assert.False(t, rec.Find("realistic/relu/plain/in-by-out").Skipped)
-}
-
-// The package documentation lists every case, with its reason, in order.
-func TestDocListsEveryCase(t *testing.T) {
-	suite.DocListsEveryCase(t, "ffntest.go", Cases(), func(c Case) (string, string) { return c.Name, c.Why })
+	suite.Skipped(t, rec, "rectangular/relu/plain/in-by-out", "Out ≠ In (Rectangular)")
+	suite.Skipped(t, rec, "biases/relu/plain/in-by-out", "biases (Bias)")
+	suite.Passed(t, rec, "realistic/relu/plain/in-by-out")
 }
 
 // A backward pass that returns the gradient of W₂ as [in, out] when the
@@ -196,27 +185,10 @@ func TestCatchesBackwardSlip(t *testing.T) {
 			}
 			return dx, g, err
 		}}
-	rec, failed := failures(k)
-	assert.Contains(t, failed, "small/relu/plain/out-by-in")
-	assert.NotContains(t, failed, "small/relu/plain/in-by-out")
-	msg := rec.Find("small/relu/plain/out-by-in").Messages[0]
-	assert.Contains(t, msg, "dW2 differs from the reference")
-	assert.Contains(t, msg, "worst element [output, hidden]")
+	rec, _ := failures(k)
+	msg := suite.Failed(t, rec, "small/relu/plain/out-by-in", "dW2 differs from the reference", "worst element [output, hidden]")
+	suite.Passed(t, rec, "small/relu/plain/in-by-out")
 	// ffn-backward is posed, but a gradient written in the other layout
 	// is no change the diagnosis searches: it names none.
-	assert.Equal(t, "  no single change of its conventions explains it", diagnosisLine(t, msg), msg)
-}
-
-// diagnosisLine returns the line of a failure message before the one
-// naming the report's file: the diagnosis.
-func diagnosisLine(t *testing.T, msg string) string {
-	t.Helper()
-	lines := strings.Split(msg, "\n")
-	for i, l := range lines {
-		if i > 0 && strings.HasPrefix(l, "  the whole report") {
-			return lines[i-1]
-		}
-	}
-	t.Fatalf("no line naming the whole report in %q", msg)
-	return ""
+	assert.Equal(t, "  no single change of its conventions explains it", suite.DiagnosisLine(t, msg), msg)
 }

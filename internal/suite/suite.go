@@ -2,8 +2,11 @@
 // posenctest, normtest, ffntest) share: the skeleton of their Run (Run,
 // over cases and their variants), deterministic inputs, the tolerances,
 // and the judging of one output against the reference with the report of
-// compare.Diff. The test interface they run on and the recorder that
-// stands in for *testing.T are public, in package conformance.
+// compare.Diff; and what the suites' own tests share: reading a failure
+// message of Judge back from a conformance.Recorder, and checking that the
+// package documentation lists every case. The test interface the suites
+// run on and the recorder that stands in for *testing.T are public, in
+// package conformance.
 package suite
 
 import (
@@ -13,7 +16,6 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
-	"regexp"
 	"strings"
 
 	"github.com/plumbref/plumb/compare"
@@ -160,11 +162,15 @@ func fullReport(name, report string) string {
 			return c
 		}, name)+".txt")
 		if os.MkdirAll(dir, 0o755) == nil && os.WriteFile(path, []byte(report), 0o644) == nil {
-			return "the whole report: " + path + " (" + ReportInline + "=1 prints it here)"
+			return reportLine + ": " + path + " (" + ReportInline + "=1 prints it here)"
 		}
 	}
-	return "the whole report:\n" + report
+	return reportLine + ":\n" + report
 }
+
+// reportLine leads the last line of a failure message of Judge, the one
+// that names the whole report (or holds it); DiagnosisLine looks for it.
+const reportLine = "the whole report"
 
 // Tolerance returns the diff options a kernel's output is judged with.
 //
@@ -273,7 +279,7 @@ func Run[T conformance.TB[T], E num.Float, C, P any](t T, suiteName string, ok b
 				t.Run(v.Name, func(t T) {
 					full := name + "/" + v.Name
 					if len(v.Missing) > 0 {
-						t.Skipf("case %s skipped: it needs %s, which the kernel does not declare in its Supports", full, strings.Join(v.Missing, ", "))
+						t.Skipf("%s", skipMessage(full, strings.Join(v.Missing, ", ")))
 						return
 					}
 					run(t, f, c, v.Problem, Rand(full))
@@ -283,45 +289,8 @@ func Run[T conformance.TB[T], E num.Float, C, P any](t T, suiteName string, ok b
 	}
 }
 
-// MissingDocLines reads the Go file at path and returns the cases whose
-// line, "//\t<name>  <why>" with any run of spaces between, is not in it:
-// the package documentation lists the cases, and this keeps the list
-// true.
-func MissingDocLines(path string, names, whys []string) ([]string, error) {
-	b, err := os.ReadFile(path)
-	if err != nil {
-		return nil, err
-	}
-	var missing []string
-	for i, n := range names {
-		re := regexp.MustCompile(`(?m)^//\t` + regexp.QuoteMeta(n) + ` +` + regexp.QuoteMeta(whys[i]) + `$`)
-		if !re.Match(b) {
-			missing = append(missing, n)
-		}
-	}
-	return missing, nil
-}
-
-// DocListsEveryCase fails t, naming them, for the cases whose line
-// "//\t<name>  <why>" is missing from the package documentation in the Go
-// file at path (see MissingDocLines); nameWhy gives a case's name and
-// reason.
-func DocListsEveryCase[C any](t interface {
-	Helper()
-	Errorf(format string, args ...any)
-}, path string, cases []C, nameWhy func(C) (name, why string)) {
-	t.Helper()
-	var names, whys []string
-	for _, c := range cases {
-		n, w := nameWhy(c)
-		names, whys = append(names, n), append(whys, w)
-	}
-	missing, err := MissingDocLines(path, names, whys)
-	if err != nil {
-		t.Errorf("%v", err)
-		return
-	}
-	if len(missing) > 0 {
-		t.Errorf("%s: the package documentation does not list these cases with their reasons: %s", path, strings.Join(missing, ", "))
-	}
+// skipMessage is Run's message for the subtest full ("case/variant")
+// skipped for what it needs and the kernel does not declare.
+func skipMessage(full, needs string) string {
+	return "case " + full + " skipped: it needs " + needs + ", which the kernel does not declare in its Supports"
 }

@@ -55,6 +55,7 @@ func TestRun(t *testing.T) {
 	require.NotNil(t, skipped)
 	assert.True(t, skipped.Skipped)
 	assert.Equal(t, []string{"case one/b skipped: it needs b (B), c (C), which the kernel does not declare in its Supports"}, skipped.Messages)
+	Skipped(t, rec, "one/b", "b (B), c (C)")
 	assert.Equal(t, []string{"two/a"}, rec.Failures())
 
 	ran = nil
@@ -161,6 +162,7 @@ func TestJudgeDiagnoses(t *testing.T) {
 		assert.True(t, strings.HasPrefix(lines[4], `  it matches "epsilon_placement": "added-to-root" [Problem.Placement] (normwise `), m)
 		assert.True(t, strings.HasSuffix(lines[4], ", passes)"), m)
 		assert.True(t, strings.HasPrefix(lines[5], "  the whole report"), m)
+		assert.Equal(t, lines[4], DiagnosisLine(t, m))
 	}
 
 	// An error no convention explains: twice the reference.
@@ -276,6 +278,59 @@ func TestMissingDocLines(t *testing.T) {
 	rec = &conformance.Recorder{}
 	DocListsEveryCase(rec, path+".none", []c{}, nameWhy)
 	assert.True(t, rec.Failed)
+}
+
+// Failed, Passed and Skipped read a run on a Recorder back: a failed
+// subtest whose message leads with its case and says what is asked, a
+// passed subtest, a subtest skipped with Run's message for what it needs;
+// DiagnosisLine is the line before the one naming the report (here, with
+// no Pose, the worst element's). Anything else fails t with one message.
+func TestReadBack(t *testing.T) {
+	ref := []float64{1, 2, 3, 4}
+	tol := compare.Tolerance{Abs: 1e-6}
+	opt := compare.Options{Format: compare.Float32, Tolerance: &tol}
+	judge := func(rec *Recorder, name, caseName string, got []float64) {
+		rec.Run(name, func(r *Recorder) {
+			r.Run("v", func(r *Recorder) {
+				Judge(r, caseName, "conv", Output{Name: "y", Dims: "[i]", Shape: []int{4}, Ref: ref, Got: got}, opt)
+			})
+		})
+	}
+	rec := &Recorder{}
+	judge(rec, "bad", "bad", []float64{1, 2, 3, 5})
+	judge(rec, "good", "good", ref)
+	judge(rec, "other", "bad", []float64{1, 2, 3, 5})
+	rec.Run("skipped", func(r *Recorder) { r.Run("v", func(r *Recorder) { r.Skipf("%s", skipMessage("skipped/v", "b (B)")) }) })
+	rec.Run("half", func(r *Recorder) { r.Run("v", func(r *Recorder) { r.Skipf("case half/v skipped") }) })
+	msg := Failed(t, rec, "bad/v", "y differs from the reference", "worst element [i][3]")
+	assert.True(t, strings.HasPrefix(msg, "case bad (conv): y differs"), msg)
+	assert.Equal(t, "  [i][3]  got 5  want 4", DiagnosisLine(t, msg))
+	Passed(t, rec, "good/v")
+	Skipped(t, rec, "skipped/v", "b (B)")
+
+	for _, c := range []struct {
+		name  string
+		check func(TB)
+		want  string
+	}{
+		{"Failed, missing", func(r TB) { Failed(r, rec, "none/v") }, "none/v did not run"},
+		{"Failed, passed", func(r TB) { Failed(r, rec, "good/v") }, "good/v passed; want it to fail"},
+		{"Failed, not said", func(r TB) { Failed(r, rec, "bad/v", "dx differs") }, `bad/v: the message does not say "dx differs":` + "\ncase bad (conv)"},
+		{"Failed, another case", func(r TB) { Failed(r, rec, "other/v") }, `other/v: the message does not lead with "case other (":` + "\ncase bad (conv)"},
+		{"Passed, missing", func(r TB) { Passed(r, rec, "none/v") }, "none/v did not run"},
+		{"Passed, failed", func(r TB) { Passed(r, rec, "bad/v") }, "bad/v failed:\ncase bad (conv)"},
+		{"Passed, skipped", func(r TB) { Passed(r, rec, "skipped/v") }, "skipped/v was skipped: case skipped/v skipped: it needs b (B)"},
+		{"Skipped, missing", func(r TB) { Skipped(r, rec, "none/v", "b (B)") }, "none/v did not run"},
+		{"Skipped, ran", func(r TB) { Skipped(r, rec, "good/v", "b (B)") }, `good/v: want it skipped with "case good/v skipped: it needs b (B), which`},
+		{"Skipped, for another need", func(r TB) { Skipped(r, rec, "skipped/v", "c (C)") }, `skipped/v: want it skipped with "case skipped/v skipped: it needs c (C), which`},
+		{"Skipped, another message", func(r TB) { Skipped(r, rec, "half/v", "b (B)") }, `half/v: want it skipped with`},
+		{"DiagnosisLine, no report", func(r TB) { DiagnosisLine(r, "case c (conv): y differs from the reference") }, "no line naming the whole report in "},
+	} {
+		r := &Recorder{}
+		c.check(r)
+		require.Len(t, r.Messages, 1, c.name)
+		assert.True(t, strings.HasPrefix(r.Messages[0], c.want), "%s: %s", c.name, r.Messages[0])
+	}
 }
 
 // Judge never panics, whatever the candidate holds, and fails exactly when

@@ -109,18 +109,28 @@ func TestEveryConventionRoundTrips(t *testing.T) {
 			assert.Error(t, errOf(call(t, bad, "MarshalText")[1]))
 			assert.Contains(t, call(t, bad, "String")[0].String(), "(")
 
-			// A nil receiver is an error, not a panic.
-			assert.Error(t, errOf(call(t, reflect.Zero(reflect.PointerTo(e.Type)), "UnmarshalText", []byte(e.Words[0].Text))[0]))
-
 			err = errOf(call(t, reflect.New(e.Type), "UnmarshalText", []byte("no-such-word"))[0])
 			require.ErrorAs(t, err, &ve)
 			for _, w := range e.Words {
 				assert.Contains(t, err.Error(), w.Text)
 			}
-			if pkg, _, _ := strings.Cut(e.Name, "."); !strings.HasSuffix(pkg, "test") {
+			pkg, typ, _ := strings.Cut(e.Name, ".")
+			if !strings.HasSuffix(pkg, "test") {
 				// a suite reports through its TB and has no sentinels
 				assert.NotEmpty(t, ve.Unwrap(), "the error wraps the package's sentinel")
 			}
+
+			// A nil receiver is an error, not a panic, that wraps the same
+			// sentinel as a word refused and reads (Set.Unmarshal)
+			// "<sentinel>: <Type>.UnmarshalText: receiver = nil; want a *<Type> to set",
+			// with the package's name for the sentinel of a suite.
+			err = errOf(call(t, reflect.Zero(reflect.PointerTo(e.Type)), "UnmarshalText", []byte(e.Words[0].Text))[0])
+			lead := pkg
+			if s := ve.Unwrap(); len(s) > 0 {
+				assert.ErrorIs(t, err, s[0])
+				lead = s[0].Error()
+			}
+			assert.EqualError(t, err, lead+": "+typ+".UnmarshalText: receiver = nil; want a *"+typ+" to set")
 		})
 	}
 }

@@ -316,38 +316,26 @@ func forward[E float32 | float64](p Problem, x, res, w, b []E,
 	return y, sum, err
 }
 
-// backward is the reference or yardstick of Backward: dx, dw, db.
-func backward[E float32 | float64](p Problem, x, w, dy []E,
-	ln func([]E, int, []E, []E, norm.Options) ([]E, []E, []E, error), rms func([]E, int, []E, []E, norm.Options) ([]E, []E, []E, error)) (dx, dw, db []E, err error) {
+// backward is the reference or yardstick of Backward: dx, dw, db, from the
+// backward functions of package norm (float64 or float32), whose gradients
+// grads takes apart.
+func backward[E float32 | float64, G any](p Problem, x, w, dy []E,
+	ln, rms func([]E, int, []E, []E, norm.Options) (G, error), grads func(G) (dx, dw, db []E)) (dx, dw, db []E, err error) {
+	f := ln
 	if p.Layer == RMSNorm {
-		return rms(x, p.Dim, w, dy, p.Options())
+		f = rms
 	}
-	dx, dw, db, err = ln(x, p.Dim, w, dy, p.Options())
-	if !p.Biased {
+	g, err := f(x, p.Dim, w, dy, p.Options())
+	dx, dw, db = grads(g)
+	if p.Layer == LayerNorm && !p.Biased {
 		db = nil
 	}
 	return dx, dw, db, err
 }
 
-func lnBack(x []float64, d int, w, dy []float64, o norm.Options) ([]float64, []float64, []float64, error) {
-	g, err := norm.LayerNormBackward(x, d, w, dy, o)
-	return g.X, g.Weight, g.Bias, err
-}
+func grads(g norm.Grads) (dx, dw, db []float64) { return g.X, g.Weight, g.Bias }
 
-func rmsBack(x []float64, d int, w, dy []float64, o norm.Options) ([]float64, []float64, []float64, error) {
-	g, err := norm.RMSNormBackward(x, d, w, dy, o)
-	return g.X, g.Weight, g.Bias, err
-}
-
-func lnBack32(x []float32, d int, w, dy []float32, o norm.Options) ([]float32, []float32, []float32, error) {
-	g, err := norm.LayerNormBackward32(x, d, w, dy, o)
-	return g.X, g.Weight, g.Bias, err
-}
-
-func rmsBack32(x []float32, d int, w, dy []float32, o norm.Options) ([]float32, []float32, []float32, error) {
-	g, err := norm.RMSNormBackward32(x, d, w, dy, o)
-	return g.X, g.Weight, g.Bias, err
-}
+func grads32(g norm.Grads32) (dx, dw, db []float32) { return g.X, g.Weight, g.Bias }
 
 // Run runs every case of Cases against the kernel, as subtests named
 // case/layer/placement[/weight form] (their words); see the package documentation for
@@ -415,7 +403,7 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 	if k.Backward == nil || p.Residual {
 		return
 	}
-	dx, dw, db, err := backward(p, x, w, dy, lnBack, rmsBack)
+	dx, dw, db, err := backward(p, x, w, dy, norm.LayerNormBackward, norm.RMSNormBackward, grads)
 	if err != nil {
 		t.Errorf("case %s (%s): the reference backward refused the problem: %v", c.Name, conv, err)
 		return
@@ -428,7 +416,7 @@ func runCase[T conformance.TB[T], E compare.Float](t T, k Kernel[E], f compare.F
 	binputs := [][]float64{x, w, dy}
 	brun := func(pick int) func(in [][]float32) ([]float32, error) {
 		return func(in [][]float32) ([]float32, error) {
-			dx, dw, db, err := backward(p, in[0], nilIfEmpty(in[1]), in[2], lnBack32, rmsBack32)
+			dx, dw, db, err := backward(p, in[0], nilIfEmpty(in[1]), in[2], norm.LayerNormBackward32, norm.RMSNormBackward32, grads32)
 			return [][]float32{dx, dw, db}[pick], err
 		}
 	}

@@ -1,7 +1,6 @@
 package normtest
 
 import (
-	"github.com/plumbref/plumb/conformance"
 	"math"
 	"strings"
 	"testing"
@@ -10,6 +9,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/norm"
 )
@@ -28,7 +28,7 @@ func plumbForward(x, res, w, b []float64, p Problem) ([]float64, []float64, erro
 }
 
 func plumbBackward(x, w, dy []float64, p Problem) ([]float64, []float64, []float64, error) {
-	return backward(p, x, w, dy, lnBack, rmsBack)
+	return backward(p, x, w, dy, norm.LayerNormBackward, norm.RMSNormBackward, grads)
 }
 
 // The float64 reference passes every case under every convention, forward
@@ -59,7 +59,7 @@ func TestYardstickKernel(t *testing.T) {
 					return round(y), round(s), err
 				},
 				Backward: func(x, w, dy []float32, p Problem) ([]float32, []float32, []float32, error) {
-					dx, dw, db, err := backward(p, x, w, dy, lnBack32, rmsBack32)
+					dx, dw, db, err := backward(p, x, w, dy, norm.LayerNormBackward32, norm.RMSNormBackward32, grads32)
 					return round(dx), round(dw), round(db), err
 				}})
 		})
@@ -140,17 +140,9 @@ func TestCatchesSlips(t *testing.T) {
 		t.Run(s.slip, func(t *testing.T) {
 			rec := &conformance.Recorder{}
 			Run(rec, Kernel[float32]{Forward: naive(s.slip), Supports: everything})
-			bad := rec.Find(s.fails)
-			require.NotNil(t, bad, s.fails)
-			require.True(t, bad.Failed, s.fails)
-			msg := bad.Messages[0]
-			assert.True(t, strings.HasPrefix(msg, "case "+s.fails[:strings.Index(s.fails, "/")]+" ("), msg)
-			assert.Contains(t, msg, "y differs from the reference")
-			assert.Contains(t, msg, "worst element [row, column]")
-			assert.True(t, strings.HasPrefix(diagnosisLine(t, msg), s.diagnosis), msg)
-			good := rec.Find(s.passes)
-			require.NotNil(t, good, s.passes)
-			assert.False(t, good.Failed, strings.Join(good.Messages, "\n"))
+			msg := suite.Failed(t, rec, s.fails, "y differs from the reference", "worst element [row, column]")
+			assert.True(t, strings.HasPrefix(suite.DiagnosisLine(t, msg), s.diagnosis), msg)
+			suite.Passed(t, rec, s.passes)
 		})
 	}
 }
@@ -177,15 +169,9 @@ func TestSkips(t *testing.T) {
 	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Forward: plumbForward, Format: compare.Float64, Supports: Supports{Layers: []Layer{RMSNorm}}})
 	require.False(t, rec.Failed, rec.Text())
-	assert.Equal(t, "case residual_add/rmsnorm/in-root/as-is skipped: it needs the fused residual add (Residual), which the kernel does not declare in its Supports",
-		rec.Find("residual_add/rmsnorm/in-root/as-is").Messages[0])
-	assert.True(t, rec.Find("no_weight/rmsnorm/in-root").Skipped)
-	assert.False(t, rec.Find("realistic/rmsnorm/in-root/as-is").Skipped)
-}
-
-// The package documentation lists every case, with its reason, in order.
-func TestDocListsEveryCase(t *testing.T) {
-	suite.DocListsEveryCase(t, "normtest.go", Cases(), func(c Case) (string, string) { return c.Name, c.Why })
+	suite.Skipped(t, rec, "residual_add/rmsnorm/in-root/as-is", "the fused residual add (Residual)")
+	suite.Skipped(t, rec, "no_weight/rmsnorm/in-root", "a nil weight (Unweighted)")
+	suite.Passed(t, rec, "realistic/rmsnorm/in-root/as-is")
 }
 
 // A LayerNorm backward that forgets the −mean(g)/r term of ∂L/∂x (the
@@ -212,25 +198,10 @@ func TestCatchesBackwardSlip(t *testing.T) {
 			}
 			return dx, dw, db, err
 		}})
-	msg := rec.Find("small_rows/layernorm/in-root/as-is").Messages
-	require.Len(t, msg, 1)
-	assert.Contains(t, msg[0], "dx differs from the reference")
-	assert.Contains(t, msg[0], "worst element [row, column]")
+	const name = "small_rows/layernorm/in-root/as-is"
+	msg := suite.Failed(t, rec, name, "dx differs from the reference", "worst element [row, column]")
+	assert.Len(t, rec.Find(name).Messages, 1, "dx alone fails")
 	// A term left out is no convention: the diagnosis (layernorm-backward
 	// posed) names none.
-	assert.Equal(t, "  no single change of its conventions explains it", diagnosisLine(t, msg[0]), msg[0])
-}
-
-// diagnosisLine returns the line of a failure message before the one
-// naming the report's file: the diagnosis.
-func diagnosisLine(t *testing.T, msg string) string {
-	t.Helper()
-	lines := strings.Split(msg, "\n")
-	for i, l := range lines {
-		if i > 0 && strings.HasPrefix(l, "  the whole report") {
-			return lines[i-1]
-		}
-	}
-	t.Fatalf("no line naming the whole report in %q", msg)
-	return ""
+	assert.Equal(t, "  no single change of its conventions explains it", suite.DiagnosisLine(t, msg), msg)
 }

@@ -1,15 +1,14 @@
 package posenctest
 
 import (
-	"github.com/plumbref/plumb/conformance"
 	"math"
 	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/posenc"
 )
@@ -99,8 +98,7 @@ var plainSupports = Supports{Pairings: []posenc.Pairing{posenc.PairAdjacent, pos
 func TestPlainFloat32(t *testing.T) {
 	rec, failed := failures(Kernel[float32]{Apply: plain(false, false), Supports: plainSupports})
 	assert.Empty(t, failed, rec.Text())
-	assert.Equal(t, "case ntk_aware_8/halves skipped: it needs scaling method ntk-aware (Methods), which the kernel does not declare in its Supports",
-		rec.Find("ntk_aware_8/halves").Messages[0])
+	suite.Skipped(t, rec, "ntk_aware_8/halves", "scaling method ntk-aware (Methods)")
 }
 
 // Angles formed in float32 are off by about m·2^−24 radians: the suite
@@ -109,45 +107,23 @@ func TestCatchesFloat32Angles(t *testing.T) {
 	rec, failed := failures(Kernel[float32]{Apply: plain(true, false), Supports: plainSupports})
 	t.Logf("failed: %v", failed)
 	for _, name := range []string{"positions_to_4096/adjacent", "positions_near_1e6/halves"} {
-		assert.Contains(t, failed, name)
-		assert.Contains(t, rec.Find(name).Messages[0], "rotated x differs from the reference")
+		suite.Failed(t, rec, name, "rotated x differs from the reference")
 	}
-	assert.False(t, rec.Find("position_zero/adjacent").Failed)
+	suite.Passed(t, rec, "position_zero/adjacent")
 }
 
 // Pairing dims the other way is caught in every case that rotates.
 func TestCatchesPairingSlip(t *testing.T) {
-	rec, failed := failures(Kernel[float32]{Apply: plain(false, true), Supports: plainSupports})
-	require.Contains(t, failed, "small/adjacent")
-	msg := rec.Find("small/adjacent").Messages[0]
+	rec, _ := failures(Kernel[float32]{Apply: plain(false, true), Supports: plainSupports})
+	msg := suite.Failed(t, rec, "small/adjacent", "worst element [row, dim]")
 	assert.True(t, strings.HasPrefix(msg, "case small (8 rows of 8, pairing adjacent, rotated 8 of 8 dims, base 10000, positions 0 … 7): rotated x differs from the reference"), msg)
-	assert.Contains(t, msg, "worst element [row, dim]")
-	assert.NotContains(t, failed, "position_zero/adjacent")
+	suite.Passed(t, rec, "position_zero/adjacent")
 	// The diagnosis (rotary-apply posed with every setting of the case)
 	// names the pairing the kernel used, in the suite's words too; its
 	// line comes before the one naming the report's file.
-	line := diagnosisLine(t, msg)
+	line := suite.DiagnosisLine(t, msg)
 	assert.True(t, strings.HasPrefix(line, `  it matches "pairing": "halves" [Rotary.Pairing, Supports.Pairings] (normwise `), msg)
 	assert.True(t, strings.HasSuffix(line, ", passes)"), msg)
 	halves := rec.Find("head_dim_128/halves").Messages[0]
 	assert.Contains(t, halves, `it matches "pairing": "adjacent" [Rotary.Pairing, Supports.Pairings]`)
-}
-
-// The package documentation lists every case, with its reason, in order.
-func TestDocListsEveryCase(t *testing.T) {
-	suite.DocListsEveryCase(t, "posenctest.go", Cases(), func(c Case) (string, string) { return c.Name, c.Why })
-}
-
-// diagnosisLine returns the line of a failure message before the one
-// naming the report's file: the diagnosis.
-func diagnosisLine(t *testing.T, msg string) string {
-	t.Helper()
-	lines := strings.Split(msg, "\n")
-	for i, l := range lines {
-		if i > 0 && strings.HasPrefix(l, "  the whole report") {
-			return lines[i-1]
-		}
-	}
-	t.Fatalf("no line naming the whole report in %q", msg)
-	return ""
 }

@@ -1,0 +1,20 @@
+package suite_test
+
+import (
+	"testing"
+
+	"github.com/plumbref/plumb/attention/attentiontest"
+	"github.com/plumbref/plumb/ffn/ffntest"
+	"github.com/plumbref/plumb/internal/suite"
+	"github.com/plumbref/plumb/norm/normtest"
+	"github.com/plumbref/plumb/posenc/posenctest"
+)
+
+// The package documentation of every suite lists each of its cases, with
+// its reason (see DocListsEveryCase).
+func TestSuitesDocumentTheirCases(t *testing.T) {
+	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.Cases(), func(c attentiontest.Case) (string, string) { return c.Name, c.Why })
+	suite.DocListsEveryCase(t, "../../ffn/ffntest/ffntest.go", ffntest.Cases(), func(c ffntest.Case) (string, string) { return c.Name, c.Why })
+	suite.DocListsEveryCase(t, "../../norm/normtest/normtest.go", normtest.Cases(), func(c normtest.Case) (string, string) { return c.Name, c.Why })
+	suite.DocListsEveryCase(t, "../../posenc/posenctest/posenctest.go", posenctest.Cases(), func(c posenctest.Case) (string, string) { return c.Name, c.Why })
+}
