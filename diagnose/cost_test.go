@@ -57,6 +57,22 @@ func TestCostBatchOne(t *testing.T) {
 		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
 		require.LessOrEqual(t, ratio, 10.0)
 	})
+	t.Run("attention-forward decode", func(t *testing.T) {
+		// One decoding step: one query of 32 heads on a cache of 4096
+		// keys of 8 kv heads, head dimension 128, the port reading kv head
+		// h mod 8 instead of h/4. Queries cannot be cut (there is one);
+		// heads are.
+		in := attnInputs(1, 32, 8, 1, 4096, 128, 7)
+		a := attnBase(1, 32, 8, 1, 4096, 128)
+		a.kv = func(h int) int { return h % 8 }
+		a.see = nil
+		out, lse := a.forward(t32(in, "q"), t32(in, "k"), t32(in, "v"))
+		got := ops.Tensors{"out": {Data: to64(out)}, "lse": {Data: to64(lse)}}
+		ratio, res := costRatio(t, "attention-forward", []byte(`{"version":1}`), in, got)
+		require.Contains(t, res.Cuts, "heads")
+		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
+		require.LessOrEqual(t, ratio, 10.0)
+	})
 	t.Run("layernorm-forward", func(t *testing.T) {
 		// A batch of one sequence of 1024 rows of 512: ε placed outside
 		// the root.
