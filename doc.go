@@ -59,6 +59,10 @@
 // plumb help conventions). Generated from the types:
 //
 //	convention and its words (the first is the default)   meaning
+//	attention.Accumulation: the format a port keeps its running sums in (the logits' dot products, the softmax sum, the weighted sum of values; a precision idiom: the yardstick's float32 run follows it, the reference ignores it)
+//	  float32         every running sum in float32, as the straightforward float32 run
+//	  bfloat16        every running sum rounded to bfloat16 after each addition
+//	  binary16        every running sum rounded to binary16 after each addition; beyond 65504 it is +Inf
 //	attention.EmptyRow: what a query row that sees no key produces
 //	  zero            output 0 and log-sum-exp −Inf, as a tiled online softmax gives
 //	  nan             output NaN, as a naive softmax over logits that are all −Inf gives
@@ -68,6 +72,9 @@
 //	attention.Layout: the memory order of q, k, v, the output and the gradients
 //	  heads-major     [batch, heads, positions, dim]: each head's rows are contiguous
 //	  seq-major       [batch, positions, heads, dim]: the heads of one position are contiguous
+//	attention.SoftmaxShift: what a port subtracts from the logits before exponentiating them (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)
+//	  max             the row maximum: every exponent ≤ 0, none overflows
+//	  none            nothing: e^s of the raw logits, which overflows float32 beyond s ≈ 88.7
 //	compare.Format: the binary floating-point format a candidate is stored in
 //	  float64         IEEE 754 binary64: 53 significand bits
 //	  float32         IEEE 754 binary32: 24 significand bits
@@ -75,6 +82,10 @@
 //	  bfloat16        binary32 with the low 16 fraction bits dropped: 8 significand bits
 //	  e4m3            OCP 8-bit E4M3: 4 significand bits, no infinities, max 448
 //	  e5m2            OCP 8-bit E5M2: 3 significand bits, IEEE-style infinities, max 57344
+//	ffn.Accumulation: the format a port keeps the running sums of its matrix products in (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)
+//	  float32         every running sum in float32, as the straightforward float32 run
+//	  bfloat16        every running sum rounded to bfloat16 after each addition
+//	  binary16        every running sum rounded to binary16 after each addition; beyond 65504 it is ±Inf
 //	ffn.Act: the activation function φ
 //	  relu            max(x, 0)
 //	  gelu            x·Φ(x), Φ the normal distribution function (exact, through erf)
@@ -111,6 +122,9 @@
 //	norm.EpsilonPlacement: where epsilon enters the denominator
 //	  in-root         divide by √(s² + ε)
 //	  added-to-root   divide by √s² + ε
+//	norm.Variance: how a float32 port computes LayerNorm's variance (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)
+//	  two-pass        the mean first, then the mean square of the deviations from it
+//	  one-pass        σ² = mean(x²) − mean(x)², both means in one pass, clamped at 0
 //	norm.WeightForm: how the stored weight w becomes the gain γ
 //	  as-is           γ = w: a weight of ones is the identity
 //	  one-plus        γ = 1 + w: a weight of zeros is the identity
@@ -130,6 +144,10 @@
 //	  int32           32-bit signed integers, descriptor <i4
 //	  uint16          16-bit unsigned integers (or bfloat16 bit patterns), descriptor <u2
 //	  uint8           8-bit unsigned integers (or FP8 bit patterns), descriptor |u1
+//	posenc.AngleArithmetic: how a float32 port forms the rotary angles m·θ (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)
+//	  float64         the angles and tables formed as the reference forms them, each entry rounded to float32 once
+//	  float32-frequencies the frequencies θ rounded to float32, the angles m·θ then formed exactly, the tables rounded once
+//	  float32-angles  θ and m in float32, the angle the float32 product m·θ, its cos and sin rounded to float32
 //	posenc.Layout: the order of the sine and cosine columns of a sinusoidal table
 //	  interleaved     sin and cos of each frequency side by side: sin, cos, sin, cos, …
 //	  concatenated    all sines first, then all cosines

@@ -61,13 +61,16 @@ func Forward(q, k, v []float64, s Shape, o Options) (out, lse []float64, err err
 // straightforward low-precision implementation the compare package uses as
 // a yardstick; not a reference. Every product and sum is rounded to
 // float32; exp, log, tanh and cosh are evaluated in float64 and rounded.
+// With o.Idiom set it computes as a port of that idiom does instead: its
+// running sums rounded to a narrower format, or its softmax unshifted
+// (see Idiom); the yardstick of such a port.
 //
 // Special cases are those of Forward.
 //
 // Accuracy, as a yardstick: the package documentation's table (inputs
 // rounded to float32, logits near ±1000 left out).
 func Forward32(q, k, v []float32, s Shape, o Options) (out, lse []float32, err error) {
-	return runForward("Forward32", q, k, v, s, o, forward)
+	return runForward("Forward32", q, k, v, s, o, withIdiom[float32](o.Idiom))
 }
 
 // runForward validates a call of the exported function fn and runs body,
@@ -146,7 +149,8 @@ func Backward(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) 
 
 // Backward32 is the float32 instantiation of the same body as Backward: the
 // straightforward low-precision implementation the compare package uses as
-// a yardstick; not a reference.
+// a yardstick; not a reference. It computes in plain float32 whatever
+// o.Idiom says: the idioms are modelled for the forward pass only.
 //
 // Special cases are those of Backward.
 //
@@ -215,7 +219,7 @@ func Decode(q, kCache, vCache []float64, s Shape, pos int, o Options) (out, lse 
 // compare package uses as a yardstick; not a reference.
 //
 // Special cases are those of Decode. Accuracy, as a yardstick: that of
-// Forward32. Decoding one token at a time reproduces the rows of the
+// Forward32. It honours o.Idiom as Forward32 does. Decoding one token at a time reproduces the rows of the
 // causal prefill of Forward32 bit for bit.
 func Decode32(q, kCache, vCache []float32, s Shape, pos int, o Options) (out, lse []float32, err error) {
 	return decode("Decode32", q, kCache, vCache, s, pos, o)
@@ -225,7 +229,11 @@ func decode[T num.Float](fn string, q, k, v []T, s Shape, pos int, o Options) (o
 	if err := decodeOptions(fn, s, pos, &o); err != nil {
 		return nil, nil, err
 	}
-	return runForward(fn, q, k, v, s, o, forward)
+	body := forward[T]
+	if bitsOf[T]() == 32 {
+		body = withIdiom[T](o.Idiom) // Decode32 honours the idiom, as Forward32 does
+	}
+	return runForward(fn, q, k, v, s, o, body)
 }
 
 // decodeOptions turns the options of a decoding call into those of

@@ -24,8 +24,14 @@ func logitsRow[T num.Float](p *plan, q, k []T, b, h, i, j0 int, s, sech2 []T) {
 		}
 		kj := k[p.kOff(b, kv, j0+jj):][:dk]
 		var acc T
-		for d, x := range qi {
-			acc += T(x * kj[d])
+		if a := p.idiom.Accumulation; a != AccumulateFloat32 {
+			for d, x := range qi {
+				acc = accumulate(a, acc, T(x*kj[d]))
+			}
+		} else {
+			for d, x := range qi {
+				acc += T(x * kj[d])
+			}
 		}
 		t := finishLogit(p, T(p.scale)*acc, b, h, i, j0+jj, jj, sech2)
 		if t-t != 0 { // NaN or ±Inf: an overflow, unless an input is one
@@ -127,6 +133,9 @@ func (p *plan) rows(yield func(queryRow) bool) {
 // log-sum-exp, sink probability and emptiness.
 func probsRow[T num.Float](p *plan, q, k []T, r queryRow, row, sech2 []T) (lse, psink T, empty bool) {
 	logitsRow(p, q, k, r.b, r.h, r.i, 0, row, sech2)
+	if p.idiom != (Idiom{}) {
+		return softmaxRowIdiom(row, T(p.sinkLogit(r.h)), p.emptyNaN, p.idiom)
+	}
 	return softmaxRow(row, T(p.sinkLogit(r.h)), p.emptyNaN)
 }
 
@@ -151,6 +160,12 @@ func forward[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 				continue // a key of weight 0 contributes nothing
 			}
 			vj := v[p.vOff(r.b, r.kv, j):][:s.Dv]
+			if a := p.idiom.Accumulation; a != AccumulateFloat32 {
+				for d, x := range vj {
+					oi[d] = accumulate(a, oi[d], T(pj*x))
+				}
+				continue
+			}
 			for d, x := range vj {
 				oi[d] += T(pj * x)
 			}

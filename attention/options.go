@@ -104,6 +104,11 @@ type Options struct {
 	Group GroupMap
 	// EmptyRow is the policy for rows that see no key.
 	EmptyRow EmptyRow
+	// Idiom is a float32 port's precision idiom (its accumulation format
+	// and softmax shift): Forward32 and Decode32 honour it, every other
+	// function ignores it (see Idiom). The zero value is the
+	// straightforward float32 arithmetic.
+	Idiom Idiom
 }
 
 // plan is a validated call: the options resolved to numbers and the mask
@@ -125,6 +130,7 @@ type plan struct {
 	sinks    []float64
 	group    GroupMap
 	emptyNaN bool
+	idiom    Idiom        // the direct form's float32 idiom; zero but for Forward32 and Decode32
 	overflow overflowNote // the first logit of finite inputs that overflowed
 }
 
@@ -250,13 +256,16 @@ func newPlan(fn string, qn, kn, vn int, s Shape, o *Options) (*plan, error) {
 	return p, nil
 }
 
-// checkConventions checks that the layout, the group map and the
-// empty-row policy are among their words.
+// checkConventions checks that the layout, the group map, the idiom and
+// the empty-row policy are among their words.
 func (p *plan) checkConventions(fn string, o *Options) error {
 	if err := layoutWords.CheckAt(fn+": Options.Layout", o.Layout); err != nil {
 		return err
 	}
 	if err := groupWords.CheckAt(fn+": Options.Group", o.Group); err != nil {
+		return err
+	}
+	if err := o.Idiom.check(fn + ": Options.Idiom"); err != nil {
 		return err
 	}
 	return emptyRowWords.CheckAt(fn+": Options.EmptyRow", o.EmptyRow)

@@ -26,9 +26,10 @@ var (
 	// ErrLength: a slice whose length does not match the shape.
 	ErrLength = errors.New("attention: length mismatch")
 	// ErrOption: an option out of its domain (a scale or cap that is not
-	// positive and finite, a layout, group map, policy or ALiBi form that
-	// is none of its words, a NaN slope or sink, a block size below one, a
-	// decoding position outside the cache).
+	// positive and finite, a layout, group map, policy, ALiBi form,
+	// accumulation format or softmax shift that is none of its words, a NaN
+	// slope or sink, a block size below one, a decoding position outside
+	// the cache).
 	ErrOption = errors.New("attention: invalid option")
 	// ErrBias: an additive bias whose shape does not broadcast to
 	// [Batch, HeadsQ, Lq, Lk].
@@ -189,3 +190,95 @@ func (EmptyRow) Values() []EmptyRow { return emptyRowWords.Values() }
 // Check returns nil if e is one of the EmptyRow constants, or an error
 // wrapping ErrOption that lists the words.
 func (e EmptyRow) Check() error { return emptyRowWords.Check(e) }
+
+// Accumulation is the format in which a float32 port keeps its running
+// sums: a precision idiom (see Idiom). Products, exponentials and the
+// stored probabilities stay float32; only the sums are narrower.
+type Accumulation int
+
+const (
+	// AccumulateFloat32 keeps every running sum in float32, as the
+	// straightforward float32 implementation does. It is the zero value.
+	AccumulateFloat32 Accumulation = iota
+	// AccumulateBFloat16 rounds every running sum to bfloat16 (8
+	// significand bits) after each addition [common practice on hardware
+	// whose accumulators are 16 bits wide]: each addition costs up to
+	// 2⁻⁸ relative.
+	AccumulateBFloat16
+	// AccumulateBinary16 rounds every running sum to IEEE 754 binary16 (11
+	// significand bits, largest finite value 65504) after each addition:
+	// each addition costs up to 2⁻¹¹ relative, and a sum beyond 65504 is
+	// +Inf.
+	AccumulateBinary16
+)
+
+var accumulationWords = vocab.New("attention", "accumulation format", "the format a port keeps its running sums in (the logits' dot products, the softmax sum, the weighted sum of values; a precision idiom: the yardstick's float32 run follows it, the reference ignores it)", ErrOption,
+	vocab.W(AccumulateFloat32, "float32", "every running sum in float32, as the straightforward float32 run"),
+	vocab.W(AccumulateBFloat16, "bfloat16", "every running sum rounded to bfloat16 after each addition"),
+	vocab.W(AccumulateBinary16, "binary16", "every running sum rounded to binary16 after each addition; beyond 65504 it is +Inf"),
+)
+
+// String returns a's word ("float32").
+func (a Accumulation) String() string { return accumulationWords.String(a) }
+
+// MarshalText returns a's word; a value with none is an error wrapping
+// ErrOption.
+func (a Accumulation) MarshalText() ([]byte, error) { return accumulationWords.Marshal(a) }
+
+// UnmarshalText sets a from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (a *Accumulation) UnmarshalText(b []byte) error { return accumulationWords.Unmarshal(a, b) }
+
+// Meaning returns one line saying what a means.
+func (a Accumulation) Meaning() string { return accumulationWords.Meaning(a) }
+
+// Values lists every Accumulation, the zero value first.
+func (Accumulation) Values() []Accumulation { return accumulationWords.Values() }
+
+// Check returns nil if a is one of the Accumulation constants, or an error
+// wrapping ErrOption that lists the words.
+func (a Accumulation) Check() error { return accumulationWords.Check(a) }
+
+// SoftmaxShift is what a float32 port subtracts from the logits before it
+// exponentiates them: a precision idiom (see Idiom).
+type SoftmaxShift int
+
+const (
+	// ShiftMax subtracts the row maximum (with the sink), so that every
+	// exponent is ≤ 0 and none overflows: the "safe softmax" of Milakov &
+	// Gimelshein 2018, arXiv 1805.02867, Algorithm 2. It is the zero value.
+	ShiftMax SoftmaxShift = iota
+	// ShiftNone exponentiates the raw logits, as a port without the shift
+	// does (the naive softmax, their Algorithm 1): e^s overflows float32 beyond s ≈ 88.72 (ln of the largest
+	// float32), and a binary16 sum (AccumulateBinary16) beyond s ≈ 11.09
+	// (ln 65504); the row is then NaN or 0 and its log-sum-exp +Inf.
+	ShiftNone
+)
+
+var shiftWords = vocab.New("attention", "softmax shift", "what a port subtracts from the logits before exponentiating them (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)", ErrOption,
+	vocab.W(ShiftMax, "max", "the row maximum: every exponent ≤ 0, none overflows"),
+	vocab.W(ShiftNone, "none", "nothing: e^s of the raw logits, which overflows float32 beyond s ≈ 88.7"),
+)
+
+// String returns s's word ("max").
+func (s SoftmaxShift) String() string { return shiftWords.String(s) }
+
+// MarshalText returns s's word; a value with none is an error wrapping
+// ErrOption.
+func (s SoftmaxShift) MarshalText() ([]byte, error) { return shiftWords.Marshal(s) }
+
+// UnmarshalText sets s from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (s *SoftmaxShift) UnmarshalText(b []byte) error { return shiftWords.Unmarshal(s, b) }
+
+// Meaning returns one line saying what s means.
+func (s SoftmaxShift) Meaning() string { return shiftWords.Meaning(s) }
+
+// Values lists every SoftmaxShift, the zero value first.
+func (SoftmaxShift) Values() []SoftmaxShift { return shiftWords.Values() }
+
+// Check returns nil if s is one of the SoftmaxShift constants, or an error
+// wrapping ErrOption that lists the words.
+func (s SoftmaxShift) Check() error { return shiftWords.Check(s) }

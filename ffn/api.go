@@ -67,7 +67,9 @@ func Forward(x []float64, d Dims, w Weights[float64], o Options) ([]float64, err
 
 // Forward32 is the float32 instantiation of the same body as Forward: the
 // straightforward low-precision implementation the compare package uses as
-// a yardstick; not a reference.
+// a yardstick; not a reference. With o.Accumulation set it keeps every
+// running sum of its projections in bfloat16 or binary16 (see
+// Accumulation), as a port of that idiom does: that port's yardstick.
 func Forward32(x []float32, d Dims, w Weights[float32], o Options) ([]float32, error) {
 	return forward("Forward32", x, d, &w, o)
 }
@@ -105,7 +107,8 @@ func Backward(x, dy []float64, d Dims, w Weights[float64], o Options) (dx []floa
 
 // Backward32 is the float32 instantiation of the same body as Backward:
 // the straightforward low-precision implementation the compare package
-// uses as a yardstick; not a reference.
+// uses as a yardstick; not a reference. It sums in float32 whatever
+// o.Accumulation says: the idiom is modelled for the forward pass only.
 func Backward32(x, dy []float32, d Dims, w Weights[float32], o Options) (dx []float32, grad Weights[float32], err error) {
 	return backward("Backward32", x, dy, d, &w, o)
 }

@@ -56,7 +56,14 @@
 // scalar functions are float64 only. The twins are the straightforward
 // low-precision implementation the compare package uses as a yardstick;
 // not a reference. Their transcendental functions are Go's float64
-// math.Exp and math.Erfc rounded to float32.
+// math.Exp and math.Erfc rounded to float32. A port whose accumulators are
+// narrower declares it with Options.Accumulation (bfloat16 or binary16):
+// Forward32 then rounds every running sum of its projections to that
+// format after each addition, the yardstick of such a port (measured on
+// layers of 64 inputs and 96 hidden units: normwise error 0.016 with
+// bfloat16 sums, 0.0017 with binary16, against 2.3e-7 in float32;
+// TestAccumulationCostsItsFormat). The float64 functions, Backward32 and
+// the fast forms ignore it.
 //
 // Special cases are listed at each function. Every error wraps exactly one
 // of ErrShape, ErrWeightLen, ErrHidden, ErrBeta and ErrOption and names the

@@ -55,16 +55,38 @@ func project[T num.Float](x, w, b []T, v view, j int, hasBias bool) T {
 	return s
 }
 
+// projectWith is project with the running sum kept as the plan's
+// accumulation format says: project itself for AccumulateFloat32, and
+// otherwise the same loop with every addition (each product, then the
+// bias) rounded once to bfloat16 or binary16.
+func projectWith[T num.Float](p *plan, x, w, b []T, v view, j int, hasBias bool) T {
+	if p.acc == AccumulateFloat32 {
+		return project(x, w, b, v, j, hasBias)
+	}
+	f := num.BFloat16
+	if p.acc == AccumulateBinary16 {
+		f = num.Binary16
+	}
+	var s T
+	for i, xi := range x {
+		s = T(f.Add(float64(T(xi*w[v.at(i, j)])), float64(s)))
+	}
+	if hasBias {
+		s = T(f.Add(float64(s), float64(b[v.bias(j)])))
+	}
+	return s
+}
+
 // hiddenRow fills, for one input row x, the pre-activations a (plain: xW₁ +
 // b₁; gated: the gate xW + b), the values u (gated only: xV + c) and the
 // hidden vector h = φ(a) or φ(a)·u.
 func hiddenRow[T num.Float](p *plan, w *Weights[T], phi func(T) T, x, a, u, h []T) {
 	gw, gb, uw, ub := parts(p, w)
 	for j := range h {
-		a[j] = project(x, gw, gb, p.gate, j, p.gateB)
+		a[j] = projectWith(p, x, gw, gb, p.gate, j, p.gateB)
 		h[j] = phi(a[j])
 		if p.o.Gated {
-			u[j] = project(x, uw, ub, p.up, j, p.upB)
+			u[j] = projectWith(p, x, uw, ub, p.up, j, p.upB)
 			h[j] *= u[j]
 		}
 	}
@@ -88,6 +110,9 @@ func forward[T num.Float](fn string, x []T, d Dims, w *Weights[T], o Options) ([
 	if err != nil {
 		return nil, err
 	}
+	if _, single := any(x).([]float32); single {
+		p.acc = o.Accumulation // Forward32 honours the idiom; the reference ignores it
+	}
 	phi, _ := activation(o.Act, T(o.Beta))
 	y := make([]T, d.Rows*d.Out)
 	a, u, h := make([]T, d.Hidden), make([]T, d.Hidden), make([]T, d.Hidden)
@@ -95,7 +120,7 @@ func forward[T num.Float](fn string, x []T, d Dims, w *Weights[T], o Options) ([
 		hiddenRow(p, w, phi, x[r*d.In:(r+1)*d.In], a, u, h)
 		yr := y[r*d.Out : (r+1)*d.Out]
 		for k := range yr {
-			yr[k] = project(h, w.W2, w.B2, p.down, k, len(w.B2) > 0)
+			yr[k] = projectWith(p, h, w.W2, w.B2, p.down, k, len(w.B2) > 0)
 		}
 	}
 	return y, nil

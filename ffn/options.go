@@ -27,6 +27,11 @@ type Options struct {
 	// Packing is the arrangement of Weights.Fused and Weights.FusedBias;
 	// the zero value is GateUpStacked.
 	Packing Packing
+	// Accumulation is the format a float32 port keeps its running sums in
+	// (a port's precision idiom; the float64 reference ignores it):
+	// Forward32 honours it, every other function sums in float64 or
+	// float32 as it always does. The zero value is AccumulateFloat32.
+	Accumulation Accumulation
 }
 
 // Dims holds a layer's sizes: Rows input vectors of In elements, a hidden
@@ -89,7 +94,8 @@ type plan struct {
 	gate, up   view // up is unused for a plain layer
 	down       view
 	fused      bool
-	gateB, upB bool // whether the gate (b₁, b) and value (c) biases are given
+	gateB, upB bool         // whether the gate (b₁, b) and value (c) biases are given
+	acc        Accumulation // the sums' format: zero but for Forward32
 }
 
 func maxMul(a, b int) bool { return b != 0 && a > math.MaxInt/b }
@@ -204,6 +210,9 @@ func newPlan[T num.Float](fn string, d Dims, w *Weights[T], o Options) (*plan, e
 		return nil, err
 	}
 	if err := layoutWords.CheckAt(fn+": Options.Layout", o.Layout); err != nil {
+		return nil, err
+	}
+	if err := accumulationWords.CheckAt(fn+": Options.Accumulation", o.Accumulation); err != nil {
 		return nil, err
 	}
 	n := lengthsOf(w)

@@ -37,8 +37,8 @@ var (
 	ErrBeta = errors.New("ffn: invalid beta")
 
 	// ErrOption: an Options field holds a value that is none of its type's
-	// constants (an Act, Layout or Packing outside the declared ones; the
-	// zero value of each is valid).
+	// constants (an Act, Layout, Packing or Accumulation outside the
+	// declared ones; the zero value of each is valid).
 	ErrOption = errors.New("ffn: invalid option")
 )
 
@@ -177,3 +177,52 @@ func (Packing) Values() []Packing { return packingWords.Values() }
 // Check returns nil if p is one of the Packing constants, or an error
 // wrapping ErrOption that lists the words.
 func (p Packing) Check() error { return packingWords.Check(p) }
+
+// Accumulation is the format in which a float32 port keeps the running
+// sums of its matrix products: a precision idiom. Forward32 honours it
+// (Options.Accumulation); the float64 functions ignore it, and so do
+// Backward32 and the fast forms, which always sum in float32.
+type Accumulation int
+
+const (
+	// AccumulateFloat32 keeps every sum in float32, as the straightforward
+	// float32 implementation does. It is the zero value.
+	AccumulateFloat32 Accumulation = iota
+	// AccumulateBFloat16 rounds every running sum of a projection (each
+	// product added, then the bias) to bfloat16 after each addition
+	// [common practice on hardware whose accumulators are 16 bits wide]:
+	// each addition costs up to 2⁻⁸ relative.
+	AccumulateBFloat16
+	// AccumulateBinary16 rounds every running sum to IEEE 754 binary16
+	// after each addition: up to 2⁻¹¹ relative each, and a sum beyond
+	// 65504 is ±Inf.
+	AccumulateBinary16
+)
+
+var accumulationWords = vocab.New("ffn", "accumulation format", "the format a port keeps the running sums of its matrix products in (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)", ErrOption,
+	vocab.W(AccumulateFloat32, "float32", "every running sum in float32, as the straightforward float32 run"),
+	vocab.W(AccumulateBFloat16, "bfloat16", "every running sum rounded to bfloat16 after each addition"),
+	vocab.W(AccumulateBinary16, "binary16", "every running sum rounded to binary16 after each addition; beyond 65504 it is ±Inf"),
+)
+
+// String returns a's word ("float32").
+func (a Accumulation) String() string { return accumulationWords.String(a) }
+
+// MarshalText returns a's word; a value with none is an error wrapping
+// ErrOption.
+func (a Accumulation) MarshalText() ([]byte, error) { return accumulationWords.Marshal(a) }
+
+// UnmarshalText sets a from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (a *Accumulation) UnmarshalText(b []byte) error { return accumulationWords.Unmarshal(a, b) }
+
+// Meaning returns one line saying what a means.
+func (a Accumulation) Meaning() string { return accumulationWords.Meaning(a) }
+
+// Values lists every Accumulation, the zero value first.
+func (Accumulation) Values() []Accumulation { return accumulationWords.Values() }
+
+// Check returns nil if a is one of the Accumulation constants, or an error
+// wrapping ErrOption that lists the words.
+func (a Accumulation) Check() error { return accumulationWords.Check(a) }

@@ -58,7 +58,10 @@ type rowStat[T num.Float] struct {
 // inside the root, ε when it is added to the root), so that neither the
 // squares nor the scaled epsilon overflow or underflow unless they are
 // negligible beside the other term.
-func normalizeRow[T num.Float](x []T, center bool, eps float64, place EpsilonPlacement, nh []T) rowStat[T] {
+//
+// With variance = VarianceOnePass (and center) the statistics are those of
+// onePassRow instead.
+func normalizeRow[T num.Float](x []T, center bool, eps float64, place EpsilonPlacement, variance Variance, nh []T) rowStat[T] {
 	var amax T
 	for _, v := range x {
 		f := float64(v)
@@ -69,6 +72,9 @@ func normalizeRow[T num.Float](x []T, center bool, eps float64, place EpsilonPla
 			return rowStat[T]{}
 		}
 		amax = max(amax, T(math.Abs(f)))
+	}
+	if center && variance == VarianceOnePass {
+		return onePassRow(x, amax, eps, place, nh)
 	}
 
 	// base: the deviations are 2^base · nh before the final scaling.
@@ -148,7 +154,7 @@ func forward[T num.Float](x []T, d int, w, b []T, center bool, o Options) []T {
 	y := make([]T, len(x))
 	for lo := 0; lo < len(x); lo += d {
 		row := y[lo : lo+d]
-		normalizeRow(x[lo:lo+d], center, o.Epsilon, o.Placement, row)
+		normalizeRow(x[lo:lo+d], center, o.Epsilon, o.Placement, varianceOf[T](o), row)
 		for j := range row {
 			v := T(gammaOf(w, j, o.Weight) * row[j]) // rounded before the bias: no fusion
 			if b != nil {
@@ -186,7 +192,7 @@ func backward[T num.Float](x []T, d int, w, b, dy []T, center bool, o Options) g
 	nh := make([]T, d)
 	g := make([]T, d)
 	for lo := 0; lo < len(x); lo += d {
-		st := normalizeRow(x[lo:lo+d], center, o.Epsilon, o.Placement, nh)
+		st := normalizeRow(x[lo:lo+d], center, o.Epsilon, o.Placement, varianceOf[T](o), nh)
 		dyr := dy[lo : lo+d]
 		for j := range g {
 			g[j] = dyr[j] * gammaOf(w, j, o.Weight)

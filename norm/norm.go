@@ -18,6 +18,12 @@ type Options struct {
 	// Weight says how the weight becomes the gain; the zero value is
 	// WeightAsIs. It has no effect when the weight is nil.
 	Weight WeightForm
+	// Variance is how the float32 instantiations of LayerNorm compute the
+	// variance (a port's precision idiom; the float64 reference ignores
+	// it): LayerNorm32, LayerNormBackward32, AddLayerNorm32 and
+	// AddLayerNormBackward32 honour it; RMSNorm has no mean and ignores
+	// it. The zero value is VarianceTwoPass.
+	Variance Variance
 }
 
 // Grads are the gradients of a scalar loss L returned by the backward
@@ -47,6 +53,9 @@ func (o Options) check(fn string) error {
 		return fmt.Errorf("%w: %s: Options.Epsilon = %v; want a finite number > 0 (%s)", ErrEpsilon, fn, e, why)
 	}
 	if err := placementWords.CheckAt(fn+": Options.Placement", o.Placement); err != nil {
+		return err
+	}
+	if err := varianceWords.CheckAt(fn+": Options.Variance", o.Variance); err != nil {
 		return err
 	}
 	return weightWords.CheckAt(fn+": Options.Weight", o.Weight)
@@ -136,7 +145,8 @@ func LayerNorm(x []float64, d int, weight, bias []float64, o Options) ([]float64
 // LayerNorm32 is the float32 instantiation of the same body as LayerNorm:
 // the straightforward low-precision implementation the compare package uses
 // as a yardstick; not a reference. Epsilon stays a float64 option and is
-// rounded to float32 after scaling.
+// rounded to float32 after scaling. With o.Variance = VarianceOnePass it
+// computes the variance as a one-pass port does (see Variance).
 func LayerNorm32(x []float32, d int, weight, bias []float32, o Options) ([]float32, error) {
 	return yOnly(runForward("LayerNorm32", layerNorm, x, nil, d, weight, bias, o))
 }

@@ -23,8 +23,8 @@ var (
 	ErrShape = errors.New("norm: shape mismatch")
 	// ErrEpsilon: an epsilon that is 0, negative, NaN or +Inf.
 	ErrEpsilon = errors.New("norm: invalid epsilon")
-	// ErrOption: an EpsilonPlacement or WeightForm value that is not one of
-	// the named constants.
+	// ErrOption: an EpsilonPlacement, WeightForm or Variance value that is
+	// not one of the named constants.
 	ErrOption = errors.New("norm: invalid option")
 )
 
@@ -102,3 +102,50 @@ func (WeightForm) Values() []WeightForm { return weightWords.Values() }
 // Check returns nil if f is one of the WeightForm constants, or an error
 // wrapping ErrOption that lists the words.
 func (f WeightForm) Check() error { return weightWords.Check(f) }
+
+// Variance says how the float32 instantiations of LayerNorm compute the
+// row's variance: a port's precision idiom. The float64 reference ignores
+// it and always takes two passes with a compensated mean (see the package
+// documentation); RMSNorm has no mean, and ignores it too.
+type Variance int
+
+const (
+	// VarianceTwoPass takes the mean first, then the mean square of the
+	// deviations from it: the straightforward implementation's two passes.
+	// It is the zero value.
+	VarianceTwoPass Variance = iota
+	// VarianceOnePass accumulates Σx and Σx² in one pass, in the
+	// instantiation's type, and takes σ² = mean(x²) − mean(x)², clamped at
+	// 0 [common practice: the textbook one-pass formula, whose cancellation
+	// Chan, Golub & LeVeque 1983, The American Statistician 37(3), analyse].
+	// Its error is about (μ²/σ²)·u relative in σ², u the unit roundoff: on
+	// a float32 row of mean 1e4 and standard deviation 1 the variance has
+	// no correct digit.
+	VarianceOnePass
+)
+
+var varianceWords = vocab.New("norm", "variance form", "how a float32 port computes LayerNorm's variance (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)", ErrOption,
+	vocab.W(VarianceTwoPass, "two-pass", "the mean first, then the mean square of the deviations from it"),
+	vocab.W(VarianceOnePass, "one-pass", "σ² = mean(x²) − mean(x)², both means in one pass, clamped at 0"),
+)
+
+// String returns v's word ("two-pass").
+func (v Variance) String() string { return varianceWords.String(v) }
+
+// MarshalText returns v's word; a value with none is an error wrapping
+// ErrOption.
+func (v Variance) MarshalText() ([]byte, error) { return varianceWords.Marshal(v) }
+
+// UnmarshalText sets v from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+func (v *Variance) UnmarshalText(b []byte) error { return varianceWords.Unmarshal(v, b) }
+
+// Meaning returns one line saying what v means.
+func (v Variance) Meaning() string { return varianceWords.Meaning(v) }
+
+// Values lists every Variance, the zero value first.
+func (Variance) Values() []Variance { return varianceWords.Values() }
+
+// Check returns nil if v is one of the Variance constants, or an error
+// wrapping ErrOption that lists the words.
+func (v Variance) Check() error { return varianceWords.Check(v) }

@@ -29,6 +29,14 @@ type queryPositions struct {
 	Offset int        `json:"offset" doc:"shifts every query position" default:"0"`
 }
 
+// attentionForwardConfig is the configuration of attention-forward: that
+// of attention and the precision idioms of its float32 run, which
+// attention-backward (plain float32 in its yardstick) does not take.
+type attentionForwardConfig struct {
+	attentionConfig
+	idiomKeys
+}
+
 var attentionInputs = []Port{
 	{Name: "q", Doc: "queries, [batch, heads_q, queries, dim] (heads-major) or [batch, queries, heads_q, dim] (seq-major)"},
 	{Name: "k", Doc: "keys, [batch, heads_kv, keys, dim] or [batch, keys, heads_kv, dim]; heads_q a multiple of heads_kv"},
@@ -108,7 +116,7 @@ func attentionShapes(s attention.Shape, o attention.Options) (out, lse []int) {
 }
 
 func init() {
-	register(&op[attentionConfig]{
+	register(&op[attentionForwardConfig]{
 		name:    "attention-forward",
 		summary: "scaled dot-product attention, every option (attention.Forward; float32: attention.Forward32)",
 		inputs:  attentionInputs,
@@ -136,11 +144,12 @@ func init() {
 	})
 }
 
-func runAttentionForward(c *attentionConfig, in Tensors, single bool) (Tensors, error) {
+func runAttentionForward(c *attentionForwardConfig, in Tensors, single bool) (Tensors, error) {
 	s, o, err := c.setup(in)
 	if err != nil {
 		return nil, err
 	}
+	o.Idiom = c.idiom() // honoured by Forward32 only: the reference ignores it
 	// out takes its batch, heads and queries from q and its width from v:
 	// it can be far larger than either.
 	if err := fits(ErrInput, `output "out"`, size{`batch (input "q")`, s.Batch}, size{`heads_q (input "q")`, s.HeadsQ},

@@ -50,7 +50,8 @@
 // Op.Run is the float64 reference. Op.Run32 runs the float32 instantiation
 // of the same kernel body (attention.Forward32, norm.LayerNorm32, …) on the
 // inputs rounded to float32: the straightforward low-precision
-// implementation, not a reference. Yardstick builds on it: for each output,
+// implementation, not a reference (or, with an idiom key, that of the
+// idiom: see Precision idioms). Yardstick builds on it: for each output,
 // compare.MeasureYardstick rounds the inputs to the candidate's format, runs
 // Run32, and returns the tolerance a candidate in that format must meet.
 //
@@ -65,6 +66,44 @@
 // layer); each tolerance is twice that plus one rounding, and every test
 // checks that the reference rounded to bfloat16 passes and an element 10%
 // off fails (TestRunRun32Yardstick, for every operation).
+//
+// # Precision idioms
+//
+// A port often computes less accurately than the straightforward float32
+// implementation on purpose, by a common idiom; the plain yardstick then
+// fails it, rightly, without saying why. Such a port declares its idiom
+// with a key of its operation (Key.Idiom), which changes Run32, and so the
+// yardstick, and never Run:
+//
+//	key            operations                              words (the first is the default)
+//	angles         rotary-apply, rotary-tables             float64, float32-frequencies, float32-angles
+//	variance       layernorm-forward, layernorm-backward   two-pass, one-pass
+//	accumulation   attention-forward, softmax, logsumexp,  float32, bfloat16, binary16
+//	               ffn-forward
+//	softmax_shift  attention-forward, softmax, logsumexp   max, none
+//
+// (posenc.AngleArithmetic, norm.Variance, attention.Accumulation and
+// ffn.Accumulation, attention.SoftmaxShift; each word's meaning is in the
+// conventions table). With a key set, Yardstick measures the idiom's own
+// float32 run, and each yardstick's Basis names it ("float32 arithmetic
+// with the idiom angles = float32-angles"), so that a port which states its
+// idiom is judged against what that idiom can do, and a port with a real
+// slip still fails. The backward operations have no idiom keys: their
+// yardsticks are plain float32.
+//
+// IdiomCost (IdiomCostOf, given the reference) shows what the idiom costs:
+// for every output a Cost holding the plain yardstick (the configuration
+// without its idiom keys) and the idiom's, on the same inputs, in the same
+// format; Ratio is the quotient of their normwise errors, and for the
+// rotary operations Positions gives both errors at every position, where
+// an angle idiom's error grows linearly; Cost.String says it in one line.
+// A configuration without an idiom gives nil. Measured (TestRotaryAnglesPort,
+// head dimension 64, base 10000, two rows per position): the normwise error
+// of the float32 run is 3.9e-8 at 64 positions and 4.1e-8 at 2048; that of
+// float32-angles 2.3e-7 (×5.9) and 7.0e-6 (×170). A float32 port that forms
+// its angles the framework way fails the plain float32 yardstick at 2048
+// positions and passes that of float32-angles; with base 10500 for 10000 it
+// fails both.
 //
 // # Worked values
 //

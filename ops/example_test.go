@@ -39,7 +39,7 @@ func ExampleRun_unknownKey() {
 		ops.Tensors{"x": {Shape: []int{3}, Data: []float64{1, 3, 2}}})
 	fmt.Println(err)
 	// Output:
-	// ops: invalid configuration: softmax: unknown key "temperature"; want one of version (see `plumb help softmax`)
+	// ops: invalid configuration: softmax: unknown key "temperature"; want one of version, accumulation, softmax_shift (see `plumb help softmax`)
 }
 
 // The tolerance for a bfloat16 softmax of the row [1, 3, 2]: the float32

@@ -22,6 +22,14 @@ type ffnConfig struct {
 	Packing    *ffn.Packing `json:"packing" doc:"the fused gate and value matrix" default:"required with fused"`
 }
 
+// ffnForwardConfig is the configuration of ffn-forward: that of the layer
+// and the precision idiom of its float32 run, which ffn-backward (plain
+// float32 in its yardstick) does not take.
+type ffnForwardConfig struct {
+	ffnConfig
+	Accumulation ffn.Accumulation `json:"accumulation" idiom:"true" doc:"the port's precision idiom: the format of the running sums of its matrix products; changes only the yardstick (the float32 run), never the reference"`
+}
+
 var ffnInputs = []Port{
 	{Name: "x", Doc: "[..., in]: each row is one input vector"},
 	{Name: "w1", Optional: true, Doc: "W1 (the gate W when gated): [in, hidden] or [hidden, in] by layout"},
@@ -124,7 +132,7 @@ func init() {
 		run:     runActivationGrad,
 	})
 
-	register(&op[ffnConfig]{
+	register(&op[ffnForwardConfig]{
 		name:    "ffn-forward",
 		summary: "feed-forward layer, plain or gated (GLU family) (ffn.Forward; float32: ffn.Forward32)",
 		inputs:  ffnInputs,
@@ -168,11 +176,12 @@ func runActivationGrad(c *activationConfig, in Tensors, single bool) (Tensors, e
 	return Tensors{"dx": {in["x"].Shape, dx}}, nil
 }
 
-func runFfnForward(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
+func runFfnForward(c *ffnForwardConfig, in Tensors, single bool) (Tensors, error) {
 	d, o, _, err := c.setup(in)
 	if err != nil {
 		return nil, err
 	}
+	o.Accumulation = c.Accumulation // honoured by Forward32 only: the reference ignores it
 	// y takes its rows from x and its width from w2: it can be far larger
 	// than either.
 	if err := fits(ErrInput, `output "y"`, size{`rows (input "x")`, d.Rows}, size{`out (input "w2")`, d.Out}); err != nil {

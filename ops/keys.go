@@ -20,6 +20,7 @@ import (
 //	json:"name"      the key
 //	doc:"…"          one line saying what it does
 //	default:"…"      what an absent key means, or "required"
+//	idiom:"true"     the key names a port's precision idiom (Key.Idiom)
 //
 // A field of a convention type (one with words, see package vocab) is a
 // word key: its words, their meanings and its default (the zero value's
@@ -46,7 +47,7 @@ func keysOf(t reflect.Type, prefix string) []Key {
 		if name == "" || name == "-" || name == "version" {
 			continue
 		}
-		k := Key{Name: prefix + name, Doc: f.Tag.Get("doc"), Default: f.Tag.Get("default")}
+		k := Key{Name: prefix + name, Doc: f.Tag.Get("doc"), Default: f.Tag.Get("default"), Idiom: f.Tag.Get("idiom") == "true"}
 		ft := f.Type
 		if ft.Kind() == reflect.Pointer {
 			ft = ft.Elem()
@@ -224,7 +225,7 @@ func configError(name string, err error, data []byte, keys []Key) error {
 		if isWord(typ.Type) {
 			want = "a word: " + wordsOf(reflect.Zero(typ.Type).Interface())
 		}
-		return fmt.Errorf("%w: %s: key %q holds a JSON %s; want %s", ErrConfig, name, typ.Field, typ.Value, want)
+		return fmt.Errorf("%w: %s: key %q holds a JSON %s; want %s", ErrConfig, name, keyAt(typ.Field, keys), typ.Value, want)
 	case errors.Is(err, io.EOF), errors.Is(err, io.ErrUnexpectedEOF):
 		return fmt.Errorf("%w: %s: configuration ends early (malformed JSON); want one JSON object", ErrConfig, name)
 	}
@@ -240,6 +241,23 @@ func configError(name string, err error, data []byte, keys []Key) error {
 		return configAt(err, name)
 	}
 	return configAt(err, name+": key "+strings.Join(at, " or "))
+}
+
+// keyAt is the key a decoding error's field path names: encoding/json
+// puts the names of the embedded structs that hold a field before it
+// ("attentionConfig.group"), which are no keys; the longest tail of the
+// path that is a key is the key.
+func keyAt(field string, keys []Key) string {
+	parts := strings.Split(field, ".")
+	for i := range parts {
+		tail := strings.Join(parts[i:], ".")
+		for _, k := range keys {
+			if k.Name == tail {
+				return tail
+			}
+		}
+	}
+	return field
 }
 
 // wordsOf lists the words of convention v's type, "a, b".

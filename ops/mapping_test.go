@@ -46,6 +46,13 @@ type keyValue struct {
 	// the configuration with an error wrapping refuse.
 	want   func(op string, in Tensors) (Tensors, error)
 	refuse error
+	// want32, for a precision idiom (Key.Idiom), calls the float32 kernel
+	// directly with the idiom the value means: Run32 must give its bits
+	// (while Run gives want's, the same for every word), and values of
+	// different meaning under Run32 (same32, as same for Run) must give
+	// different bits.
+	want32 func(op string, in Tensors) (Tensors, error)
+	same32 string
 }
 
 // keyTest is one key of some operations and its values. why says, for
@@ -81,9 +88,19 @@ func TestKeysReachKernels(t *testing.T) {
 	for _, kt := range keyTests() {
 		for _, op := range kt.ops {
 			t.Run(op+"/"+kt.key, func(t *testing.T) {
-				got := map[string]Tensors{}
+				got, got32 := map[string]Tensors{}, map[string]Tensors{}
 				for _, v := range kt.values {
 					in := v.in(op)
+					if v.want32 != nil {
+						out32, err := Run32(op, []byte(v.config), in)
+						require.NoError(t, err, "%s = %s (%s): Run32", kt.key, v.value, v.config)
+						want32, err := v.want32(op, round32(in))
+						require.NoError(t, err, "%s = %s: the float32 kernel called directly", kt.key, v.value)
+						if d := bitDiff(out32, want32); d != "" {
+							t.Errorf("%s = %s (%s): Run32 differs from the float32 kernel called directly: %s", kt.key, v.value, v.config, d)
+						}
+						got32[v.value] = out32
+					}
 					out, err := Run(op, []byte(v.config), in)
 					if v.want == nil {
 						require.Error(t, err, "%s = %s (%s): the configuration must be refused", kt.key, v.value, v.config)
@@ -116,6 +133,25 @@ func TestKeysReachKernels(t *testing.T) {
 							assert.Empty(t, d, "%s = %s and %s = %s mean the same and must agree", kt.key, a.value, kt.key, b.value)
 						} else {
 							assert.NotEmpty(t, d, "%s = %s and %s = %s give the same result: the inputs do not tell them apart (%s)", kt.key, a.value, kt.key, b.value, kt.why)
+						}
+					}
+				}
+				meaning32 := func(v keyValue) string {
+					if v.same32 != "" {
+						return v.same32
+					}
+					return v.value
+				}
+				for i, a := range kt.values {
+					for _, b := range kt.values[i+1:] {
+						if a.want32 == nil || b.want32 == nil {
+							continue
+						}
+						d := bitDiff(got32[a.value], got32[b.value])
+						if meaning32(a) == meaning32(b) {
+							assert.Empty(t, d, "Run32: %s = %s and %s = %s mean the same and must agree", kt.key, a.value, kt.key, b.value)
+						} else {
+							assert.NotEmpty(t, d, "Run32: %s = %s and %s = %s give the same float32 run: the inputs do not tell them apart (%s)", kt.key, a.value, kt.key, b.value, kt.why)
 						}
 					}
 				}
@@ -202,7 +238,7 @@ func outputNames(t Tensors) []string {
 
 func keyTests() []keyTest {
 	var all []keyTest
-	for _, f := range []func() []keyTest{attentionKeyTests, rotaryKeyTests, tableKeyTests, normKeyTests, activationKeyTests, ffnKeyTests} {
+	for _, f := range []func() []keyTest{attentionKeyTests, rotaryKeyTests, tableKeyTests, normKeyTests, activationKeyTests, ffnKeyTests, idiomKeyTests} {
 		all = append(all, f()...)
 	}
 	return all

@@ -18,9 +18,26 @@ func (c *normConfig) options() norm.Options {
 	return norm.Options{Epsilon: c.Epsilon, Placement: c.Placement, Weight: c.WeightForm}
 }
 
+// layerNormConfig is the configuration of the LayerNorm operations: the
+// norm's keys and the variance idiom, which RMSNorm (no mean) has not.
+type layerNormConfig struct {
+	normConfig
+	Variance norm.Variance `json:"variance" idiom:"true" doc:"the port's precision idiom: how it computes the variance in float32; changes only the yardstick (the float32 run), never the reference"`
+}
+
+func (c *layerNormConfig) options() norm.Options {
+	o := c.normConfig.options()
+	o.Variance = c.Variance
+	return o
+}
+
+// normOptions is a norm operation's configuration, as the run functions
+// read it.
+type normOptions interface{ options() norm.Options }
+
 // normSetup returns the options and the row length d, and checks that the
 // per-column inputs hold d values and dy has the shape of x.
-func normSetup(c *normConfig, in Tensors) (norm.Options, int, error) {
+func normSetup(c normOptions, in Tensors) (norm.Options, int, error) {
 	o := c.options()
 	d, err := lastDim(in, "x")
 	if err != nil {
@@ -76,12 +93,16 @@ var (
 )
 
 func init() {
-	layerNorm.register()
-	rmsNorm.register()
+	registerNorm[layerNormConfig](layerNorm)
+	registerNorm[normConfig](rmsNorm)
 }
 
-// register registers the norm's forward and backward operations.
-func (k normKernels) register() {
+// registerNorm registers the forward and backward operations of the norm
+// k, with the configuration type C.
+func registerNorm[C any, PC interface {
+	*C
+	normOptions
+}](k normKernels) {
 	fn := "norm." + k.norm
 	inputs := []Port{normX, normWeight}
 	grads := []Port{
@@ -92,23 +113,23 @@ func (k normKernels) register() {
 		inputs = append(inputs, normBias)
 		grads = append(grads, Port{Name: "dbias", Doc: "[d]"})
 	}
-	register(&op[normConfig]{
+	register(&op[C]{
 		name:    k.op + "-forward",
 		summary: fmt.Sprintf("%s over the last dimension (%s; float32: %s32)", k.norm, fn, fn),
 		inputs:  inputs,
 		outputs: []Port{{Name: "y", Doc: "the shape of x"}},
-		run:     k.runForward,
+		run:     func(c *C, in Tensors, single bool) (Tensors, error) { return k.runForward(PC(c), in, single) },
 	})
-	register(&op[normConfig]{
+	register(&op[C]{
 		name:    k.op + "-backward",
 		summary: fmt.Sprintf("gradients of %s (%sBackward; float32: %sBackward32)", k.norm, fn, fn),
 		inputs:  []Port{normX, normWeight, normDy},
 		outputs: grads,
-		run:     k.runBackward,
+		run:     func(c *C, in Tensors, single bool) (Tensors, error) { return k.runBackward(PC(c), in, single) },
 	})
 }
 
-func (k normKernels) runForward(c *normConfig, in Tensors, single bool) (Tensors, error) {
+func (k normKernels) runForward(c normOptions, in Tensors, single bool) (Tensors, error) {
 	o, d, err := normSetup(c, in)
 	if err != nil {
 		return nil, err
@@ -122,7 +143,7 @@ func (k normKernels) runForward(c *normConfig, in Tensors, single bool) (Tensors
 	return Tensors{"y": {in["x"].Shape, y}}, nil
 }
 
-func (k normKernels) runBackward(c *normConfig, in Tensors, single bool) (Tensors, error) {
+func (k normKernels) runBackward(c normOptions, in Tensors, single bool) (Tensors, error) {
 	o, d, err := normSetup(c, in)
 	if err != nil {
 		return nil, err

@@ -75,6 +75,11 @@ type Key struct {
 	// ("attention.GroupMap"); Words lists them, the default first.
 	Convention string
 	Words      []Word
+	// Idiom marks a key that names a port's precision idiom: how the port
+	// computes (its angle arithmetic, variance form, accumulation format,
+	// softmax shift), not what. It changes Run32, and so the yardstick,
+	// and never Run; see IdiomCost.
+	Idiom bool
 
 	decodes bool // its values are objects that decode themselves (mask.Spec)
 }
@@ -101,9 +106,11 @@ type Op interface {
 	// Run32 runs the float32 instantiation of the same kernel body on the
 	// inputs rounded to float32, and returns its outputs widened (exactly)
 	// to float64. It is the straightforward low-precision implementation,
-	// not a reference. Operations that take no float input (tables, slopes)
-	// have no float32 arithmetic to instantiate; their Run32 is the
-	// reference rounded to float32.
+	// not a reference; with an idiom key set (Key.Idiom) it computes as a
+	// port of that idiom does. Operations that take no float input (tables,
+	// slopes) have no float32 arithmetic to instantiate; their Run32 is the
+	// reference rounded to float32 (rotary-tables: the tables as the
+	// angles key forms them).
 	Run32(config []byte, in Tensors) (Tensors, error)
 }
 
@@ -115,6 +122,9 @@ type op[C any] struct {
 	inputs, outputs []Port
 	run             func(c *C, in Tensors, single bool) (Tensors, error)
 	keys            []Key // from C, at registration
+	// rows, for an operation whose outputs are rows at positions (rotary),
+	// gives the position of every row of every output; see IdiomCost.
+	rows func(c *C, in Tensors) ([]int, error)
 }
 
 func (o *op[C]) Name() string    { return o.name }
@@ -210,6 +220,14 @@ func Run32(name string, config []byte, in Tensors) (Tensors, error) {
 // Inputs are rounded to f once each, so the float32 kernel runs once;
 // integer arguments (positions, mask, sizes) live in the configuration and
 // are not rounded.
+//
+// A configuration that declares a precision idiom (a key with Key.Idiom:
+// "angles", "variance", "accumulation", "softmax_shift") gets the
+// yardstick of that idiom: the float32 run computes as a port of the idiom
+// does, so that a port which states its idiom is judged against what the
+// idiom can do, and the tolerance's Basis names the idiom. The reference
+// is the same with and without the keys; IdiomCost compares the idiom's
+// yardstick with the plain one.
 func Yardstick(name string, config []byte, in Tensors, f compare.Format, k float64) (map[string]*compare.Yardstick, error) {
 	o, err := lookup("Yardstick", name)
 	if err != nil {
@@ -231,17 +249,31 @@ func YardstickOf(name string, config []byte, in, ref Tensors, f compare.Format, 
 	if err != nil {
 		return nil, err
 	}
-	for _, p := range o.Outputs() {
-		if _, ok := ref[p.Name]; !ok && !p.Optional {
-			return nil, fmt.Errorf("%w: YardstickOf: %s: ref has no output %q; want the outputs Run returned", ErrInput, name, p.Name)
-		}
+	if err := refHasOutputs("YardstickOf", o, ref); err != nil {
+		return nil, err
 	}
 	return yardstick(o, config, in, ref, f, k)
 }
 
-// yardstick measures the yardstick of every output of o against ref.
+// refHasOutputs checks, for the exported function fn, that ref holds
+// every output of o that Run always returns.
+func refHasOutputs(fn string, o Op, ref Tensors) error {
+	for _, p := range o.Outputs() {
+		if _, ok := ref[p.Name]; !ok && !p.Optional {
+			return fmt.Errorf("%w: %s: %s: ref has no output %q; want the outputs Run returned", ErrInput, fn, o.Name(), p.Name)
+		}
+	}
+	return nil
+}
+
+// yardstick measures the yardstick of every output of o against ref; the
+// Basis of each names the idiom the configuration declares, if any.
 func yardstick(o Op, config []byte, in, ref Tensors, f compare.Format, k float64) (map[string]*compare.Yardstick, error) {
 	name := o.Name()
+	idioms, err := idiomsOf(o, config)
+	if err != nil {
+		return nil, err
+	}
 	var names []string
 	var inputs [][]float64
 	for _, p := range o.Inputs() {
@@ -275,6 +307,9 @@ func yardstick(o Op, config []byte, in, ref Tensors, f compare.Format, k float64
 		y, err := compare.MeasureYardstick(f, inputs, r.Data, r.Shape, k, run(p.Name))
 		if err != nil {
 			return nil, within(err, fmt.Sprintf("%s: output %q", name, p.Name))
+		}
+		if idioms != nil {
+			y.Tolerance.Basis = idiomBasis(y.Tolerance.Basis, y.Arithmetic, idioms)
 		}
 		ys[p.Name] = y
 	}

@@ -3,6 +3,7 @@ package ops
 import (
 	"fmt"
 
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/posenc"
 )
@@ -20,17 +21,18 @@ type scalingConfig struct {
 
 // rotaryCommon holds the keys shared by rotary-apply and rotary-tables.
 type rotaryCommon struct {
-	Rotated   int            `json:"rotated" doc:"number of leading dims rotated (even); the rest pass through" default:"the head dimension"`
-	Base      float64        `json:"base" doc:"frequency base b, θ_i = b^(−2i/rotated)" default:"10000"`
-	Pairing   posenc.Pairing `json:"pairing" doc:"which dims one frequency rotates"`
-	Magnitude float64        `json:"magnitude" doc:"multiplies cos and sin (YaRN's √(1/t))" default:"1"`
-	Scaling   *scalingConfig `json:"scaling" doc:"context scaling" default:"none"`
-	Offset    int            `json:"offset" doc:"position of the first token" default:"0"`
-	Positions []int          `json:"positions" doc:"explicit positions (rotary-apply: one per token of the length axis, or one per row)" default:"offset, offset+1, …"`
+	Rotated   int                    `json:"rotated" doc:"number of leading dims rotated (even); the rest pass through" default:"the head dimension"`
+	Base      float64                `json:"base" doc:"frequency base b, θ_i = b^(−2i/rotated)" default:"10000"`
+	Pairing   posenc.Pairing         `json:"pairing" doc:"which dims one frequency rotates"`
+	Magnitude float64                `json:"magnitude" doc:"multiplies cos and sin (YaRN's √(1/t))" default:"1"`
+	Scaling   *scalingConfig         `json:"scaling" doc:"context scaling" default:"none"`
+	Offset    int                    `json:"offset" doc:"position of the first token" default:"0"`
+	Positions []int                  `json:"positions" doc:"explicit positions (rotary-apply: one per token of the length axis, or one per row)" default:"offset, offset+1, …"`
+	Angles    posenc.AngleArithmetic `json:"angles" idiom:"true" doc:"the port's precision idiom: how it forms the angles m·θ in float32; changes only the yardstick (the float32 run), never the reference"`
 }
 
 func (c *rotaryCommon) rotary(dim int) posenc.Rotary {
-	r := posenc.Rotary{Dim: dim, Rotated: c.Rotated, Base: c.Base, Magnitude: c.Magnitude, Pairing: c.Pairing}
+	r := posenc.Rotary{Dim: dim, Rotated: c.Rotated, Base: c.Base, Magnitude: c.Magnitude, Pairing: c.Pairing, Angles: c.Angles}
 	if s := c.Scaling; s != nil {
 		r.Scaling = posenc.Scaling{Method: s.Method, Factor: s.Factor, TrainedLength: s.TrainedLength, CurrentLength: s.CurrentLength,
 			Alpha: s.Alpha, Beta: s.Beta, Ramp: s.Ramp, Factors: s.Factors}
@@ -93,16 +95,18 @@ func init() {
 		inputs:  []Port{{Name: "x", Doc: "[..., length, dim]: every row of dim values is rotated at its position"}},
 		outputs: []Port{{Name: "y", Doc: "the rotated tensor, the shape of x"}},
 		run:     runRotaryApply,
+		rows:    rotaryApplyRows,
 	})
 
 	register(&op[rotaryTablesConfig]{
 		name:    "rotary-tables",
-		summary: "rotary cos and sin tables (posenc.Rotary.Tables; float32: the tables rounded)",
+		summary: "rotary cos and sin tables (posenc.Rotary.Tables; float32: posenc.Rotary.Tables32, the tables rounded or formed as the angles key says)",
 		outputs: []Port{
 			{Name: "cos", Doc: "[positions, rotated/2]: magnitude·cos(m·θ_i)"},
 			{Name: "sin", Doc: "[positions, rotated/2]: magnitude·sin(m·θ_i)"},
 		},
-		run: runRotaryTables,
+		run:  runRotaryTables,
+		rows: rotaryTablesRows,
 	})
 
 	register(&op[sinusoidalConfig]{
@@ -149,8 +153,9 @@ func runRotaryApply(c *rotaryApplyConfig, in Tensors, single bool) (Tensors, err
 	return Tensors{"y": {s, y}}, nil
 }
 
-func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, error) {
-	r := c.rotary(c.Dim)
+// tablePositions are the positions of the rows of rotary-tables, checked
+// against the size limit.
+func (c *rotaryTablesConfig) tablePositions() ([]int, error) {
 	pos := c.Positions
 	if pos == nil {
 		length, dim := size{`key "length"`, c.Length}, size{`key "dim"`, c.Dim}
@@ -173,7 +178,25 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 			return nil, err
 		}
 	}
-	cos, sin, err := r.Tables(pos)
+	return pos, nil
+}
+
+func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, error) {
+	r := c.rotary(c.Dim)
+	pos, err := c.tablePositions()
+	if err != nil {
+		return nil, err
+	}
+	var cos, sin []float64
+	if single {
+		// The float32 tables a port of the angles idiom forms; with the
+		// default idiom, the reference tables rounded once.
+		var c32, s32 []float32
+		c32, s32, err = r.Tables32(pos)
+		cos, sin = num.Convert[float64](c32), num.Convert[float64](s32)
+	} else {
+		cos, sin, err = r.Tables(pos)
+	}
 	if err != nil {
 		return nil, err
 	}
@@ -181,7 +204,32 @@ func runRotaryTables(c *rotaryTablesConfig, in Tensors, single bool) (Tensors, e
 	if r.Rotated == 0 {
 		half = r.Dim / 2
 	}
-	return tableRun32(Tensors{"cos": {[]int{len(pos), half}, cos}, "sin": {[]int{len(pos), half}, sin}}, single), nil
+	return Tensors{"cos": {[]int{len(pos), half}, cos}, "sin": {[]int{len(pos), half}, sin}}, nil
+}
+
+// rotaryTablesRows gives the position of every row of the tables.
+func rotaryTablesRows(c *rotaryTablesConfig, _ Tensors) ([]int, error) { return c.tablePositions() }
+
+// rotaryApplyRows gives the position of every row of dim values of x (and
+// y), as posenc.Positions places them.
+func rotaryApplyRows(c *rotaryApplyConfig, in Tensors) ([]int, error) {
+	s := in["x"].Shape
+	if len(s) < 2 || s[len(s)-1] < 1 || s[len(s)-2] < 1 {
+		return nil, fmt.Errorf("%w: input \"x\" has shape %v; want at least 2 dimensions [..., length, dim], both ≥ 1", ErrInput, s)
+	}
+	L, rows := s[len(s)-2], len(in.data("x"))/s[len(s)-1]
+	pos := make([]int, rows)
+	for r := range pos {
+		switch {
+		case len(c.Positions) == rows:
+			pos[r] = c.Positions[r]
+		case c.Positions != nil:
+			pos[r] = c.Positions[r%L]
+		default:
+			pos[r] = c.Offset + r%L
+		}
+	}
+	return pos, nil
 }
 
 func runSinusoidalTable(c *sinusoidalConfig, in Tensors, single bool) (Tensors, error) {

@@ -44,6 +44,11 @@ type Rotary struct {
 	// unscaled). It is where YaRN's √(1/t) goes (see YaRNMagnitude). With
 	// M ≠ 1, ApplyInverse is the backward pass but not the inverse.
 	Magnitude float64
+	// Angles is how the float32 instantiations form the tables (a port's
+	// precision idiom; the float64 reference ignores it): Apply32,
+	// ApplyInverse32 and Tables32 honour it, Apply, ApplyInverse, Tables
+	// and Frequencies do not. The zero value is AnglesFloat64.
+	Angles AngleArithmetic
 }
 
 // checkBase checks the frequency base b, which the caller of fn gave as
@@ -87,6 +92,9 @@ func (c Rotary) resolve(fn string) (*resolved, error) {
 		return nil, err
 	}
 	if err := pairingWords.CheckAt(fn+": Rotary.Pairing", c.Pairing); err != nil {
+		return nil, err
+	}
+	if err := anglesWords.CheckAt(fn+": Rotary.Angles", c.Angles); err != nil {
 		return nil, err
 	}
 	mag := c.Magnitude
@@ -154,6 +162,38 @@ func (rs *resolved) tables(pos []int) (cos, sin []float64) {
 	return cos, sin
 }
 
+// tablesWith fills cos and sin [len(pos), r/2] as tables does, with the
+// angles formed as a says: the float64 values of the tables a float32
+// port of that idiom rounds to float32 (see AngleArithmetic). For
+// AnglesFloat64 it is tables.
+func (rs *resolved) tablesWith(pos []int, a AngleArithmetic) (cos, sin []float64) {
+	if a == AnglesFloat64 {
+		return rs.tables(pos)
+	}
+	h := rs.r / 2
+	theta := make([]float32, len(rs.theta))
+	for i, t := range rs.theta {
+		theta[i] = float32(t.hi + t.lo) // the float64 frequency, rounded to float32
+	}
+	cos = make([]float64, len(pos)*h)
+	sin = make([]float64, len(pos)*h)
+	for t, m := range pos {
+		for i, th := range theta {
+			var s, c float64
+			if a == AnglesFloat32Frequencies {
+				s, c = sincosDD(angle(m, ddFrom(float64(th))))
+			} else {
+				s, c = math.Sincos(float64(float32(float32(m) * th)))
+			}
+			if rs.mag != 1 {
+				s, c = float64(s*rs.mag), float64(c*rs.mag)
+			}
+			cos[t*h+i], sin[t*h+i] = c, s
+		}
+	}
+	return cos, sin
+}
+
 // Tables returns the cos and sin tables at the given positions: two
 // row-major [len(pos), r/2] arrays with
 //
@@ -178,16 +218,26 @@ func (c Rotary) Tables(pos []int) (cos, sin []float64, err error) {
 	if err != nil {
 		return nil, nil, err
 	}
-	if h := rs.r / 2; len(pos) > MaxElements/h {
-		return nil, nil, fmt.Errorf("%w: %s: pos has %d elements; want len(pos)·r/2 ≤ MaxElements = %d (r = %d rotated dims)", ErrShape, fn, len(pos), MaxElements, rs.r)
-	}
-	for t, m := range pos {
-		if err := checkPosition(fn, fmt.Sprintf("pos[%d]", t), m, true); err != nil {
-			return nil, nil, err
-		}
+	if err := checkTablePositions(fn, rs, pos); err != nil {
+		return nil, nil, err
 	}
 	cos, sin = rs.tables(pos)
 	return cos, sin, nil
+}
+
+// checkTablePositions checks the positions of a call of the table method
+// fn: at most MaxElements entries per table, every |position| ≤
+// MaxPosition.
+func checkTablePositions(fn string, rs *resolved, pos []int) error {
+	if h := rs.r / 2; len(pos) > MaxElements/h {
+		return fmt.Errorf("%w: %s: pos has %d elements; want len(pos)·r/2 ≤ MaxElements = %d (r = %d rotated dims)", ErrShape, fn, len(pos), MaxElements, rs.r)
+	}
+	for t, m := range pos {
+		if err := checkPosition(fn, fmt.Sprintf("pos[%d]", t), m, true); err != nil {
+			return err
+		}
+	}
+	return nil
 }
 
 // Positions gives the position of every token of a [..., L, D] tensor.
@@ -280,7 +330,7 @@ func (p Positions) rowPositions(fn string, rows, L int) (pos []int, index func(r
 //	|position| > MaxPosition       ErrPosition
 //	invalid scaling                ErrFactor, ErrLength, ErrOption or ErrDim
 func (c Rotary) Apply(x []float64, L int, pos Positions) ([]float64, error) {
-	return applyAt("Rotary.Apply", c, x, L, pos, false, func(v float64) float64 { return v })
+	return applyAt("Rotary.Apply", c, x, L, pos, false, AnglesFloat64, func(v float64) float64 { return v })
 }
 
 // ApplyInverse applies the transposed rotation Rᵀ(m) = R(−m), times
@@ -290,27 +340,48 @@ func (c Rotary) Apply(x []float64, L int, pos Positions) ([]float64, error) {
 // M·R(m) and the backward is M·R(m)ᵀ). Arguments, accuracy and special
 // cases are those of Apply.
 func (c Rotary) ApplyInverse(x []float64, L int, pos Positions) ([]float64, error) {
-	return applyAt("Rotary.ApplyInverse", c, x, L, pos, true, func(v float64) float64 { return v })
+	return applyAt("Rotary.ApplyInverse", c, x, L, pos, true, AnglesFloat64, func(v float64) float64 { return v })
 }
 
 // Apply32 is the float32 instantiation of the same body as Apply: the
 // straightforward low-precision implementation the compare package uses as a
-// yardstick; not a reference. Its cos and sin tables are the reference
-// tables rounded to float32, and the rotation arithmetic is float32, so it
-// measures the error of a float32 rotation alone; a port that also forms
-// the angles m·θ in float32 has a much larger error at large positions
-// (compare its tables with Tables).
+// yardstick; not a reference. Its cos and sin tables are those of Tables32:
+// with the zero Angles, the reference tables rounded to float32, so that
+// with the float32 rotation arithmetic it measures the error of a float32
+// rotation alone. A port that forms the angles m·θ in float32 has a much
+// larger error at large positions; Angles = AnglesFloat32 (or
+// AnglesFloat32Frequencies) makes Apply32 such a port, the yardstick of
+// that idiom.
 func (c Rotary) Apply32(x []float32, L int, pos Positions) ([]float32, error) {
-	return applyAt("Rotary.Apply32", c, x, L, pos, false, func(v float64) float32 { return float32(v) })
+	return applyAt("Rotary.Apply32", c, x, L, pos, false, c.Angles, func(v float64) float32 { return float32(v) })
 }
 
 // ApplyInverse32 is the float32 instantiation of the same body as
-// ApplyInverse; see Apply32. Not a reference.
+// ApplyInverse; see Apply32 (it honours Angles too). Not a reference.
 func (c Rotary) ApplyInverse32(x []float32, L int, pos Positions) ([]float32, error) {
-	return applyAt("Rotary.ApplyInverse32", c, x, L, pos, true, func(v float64) float32 { return float32(v) })
+	return applyAt("Rotary.ApplyInverse32", c, x, L, pos, true, c.Angles, func(v float64) float32 { return float32(v) })
 }
 
-func applyAt[T num.Float](fn string, c Rotary, x []T, L int, pos Positions, inverse bool, conv func(float64) T) ([]T, error) {
+// Tables32 returns the float32 cos and sin tables that Apply32 rotates
+// with, at the given positions, laid out as Tables lays them out: with the
+// zero Angles each entry is that of Tables rounded to float32; with
+// AnglesFloat32Frequencies or AnglesFloat32 they are formed as that idiom
+// says (see AngleArithmetic). Not a reference. Special cases are those of
+// Tables.
+func (c Rotary) Tables32(pos []int) (cos, sin []float32, err error) {
+	const fn = "Rotary.Tables32"
+	rs, err := c.resolve(fn)
+	if err != nil {
+		return nil, nil, err
+	}
+	if err := checkTablePositions(fn, rs, pos); err != nil {
+		return nil, nil, err
+	}
+	c64, s64 := rs.tablesWith(pos, c.Angles)
+	return num.Convert[float32](c64), num.Convert[float32](s64), nil
+}
+
+func applyAt[T num.Float](fn string, c Rotary, x []T, L int, pos Positions, inverse bool, angles AngleArithmetic, conv func(float64) T) ([]T, error) {
 	rs, err := c.resolve(fn)
 	if err != nil {
 		return nil, err
@@ -330,7 +401,7 @@ func applyAt[T num.Float](fn string, c Rotary, x []T, L int, pos Positions, inve
 	if err != nil {
 		return nil, err
 	}
-	c64, s64 := rs.tables(tpos)
+	c64, s64 := rs.tablesWith(tpos, angles)
 	cos, sin := make([]T, len(c64)), make([]T, len(s64))
 	for i := range c64 {
 		cos[i], sin[i] = conv(c64[i]), conv(s64[i])

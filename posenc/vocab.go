@@ -39,7 +39,7 @@ var (
 	// position list of the wrong length.
 	ErrShape = errors.New("posenc: shape mismatch")
 	// ErrOption: an enumerated option (layout, pairing, method, ramp, form,
-	// alignment) that is not one of its named values.
+	// alignment, angle arithmetic) that is not one of its named values.
 	ErrOption = errors.New("posenc: invalid option")
 )
 
@@ -280,3 +280,60 @@ func (Layout) Values() []Layout { return layoutWords.Values() }
 // Check returns nil if l is one of the Layout constants, or an error
 // wrapping ErrOption that lists the words.
 func (l Layout) Check() error { return layoutWords.Check(l) }
+
+// AngleArithmetic says how the float32 instantiations of the rotary
+// encoding (Rotary.Apply32, ApplyInverse32, Tables32) form their cos and
+// sin tables: a port's precision idiom. The float64 reference ignores it:
+// Apply, ApplyInverse and Tables always form the angles to about 106 bits.
+type AngleArithmetic int
+
+const (
+	// AnglesFloat64 forms the tables as the reference does (the angle
+	// m·θ_i in double-double, cos and sin to a few float64 ulps) and
+	// rounds each entry to float32 once: the error of the float32
+	// rotation alone. It is the zero value.
+	AnglesFloat64 AngleArithmetic = iota
+	// AnglesFloat32Frequencies rounds every frequency θ_i (after scaling)
+	// to float32 and forms the angles m·θ_i from the rounded values as the
+	// reference does, each table entry rounded once [common practice: a
+	// port that stores its inverse frequencies in float32]. The angle
+	// error is m·|fl32(θ_i) − θ_i| ≤ m·θ_i·2⁻²⁴: it grows linearly with
+	// the position.
+	AnglesFloat32Frequencies
+	// AnglesFloat32 rounds θ_i to float32, takes the position m as a
+	// float32 (exact up to 2²⁴), forms the angle as the float32 product
+	// fl32(m·θ_i) and takes cos and sin of that float32 angle (in float64,
+	// rounded to float32) [common practice: the usual framework idiom,
+	// positions times inverse frequencies in float32]. The angle error is
+	// about |m·θ_i|·2⁻²³ in the worst case: linear in the position, and
+	// well above the float32 rotation's from a few tens of positions on.
+	AnglesFloat32
+)
+
+var anglesWords = vocab.New("posenc", "rotary angle arithmetic", "how a float32 port forms the rotary angles m·θ (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)", ErrOption,
+	vocab.W(AnglesFloat64, "float64", "the angles and tables formed as the reference forms them, each entry rounded to float32 once"),
+	vocab.W(AnglesFloat32Frequencies, "float32-frequencies", "the frequencies θ rounded to float32, the angles m·θ then formed exactly, the tables rounded once"),
+	vocab.W(AnglesFloat32, "float32-angles", "θ and m in float32, the angle the float32 product m·θ, its cos and sin rounded to float32"),
+)
+
+// String returns a's word ("float64").
+func (a AngleArithmetic) String() string { return anglesWords.String(a) }
+
+// MarshalText returns a's word; a value with none is an error wrapping
+// ErrOption.
+func (a AngleArithmetic) MarshalText() ([]byte, error) { return anglesWords.Marshal(a) }
+
+// UnmarshalText sets a from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (a *AngleArithmetic) UnmarshalText(b []byte) error { return anglesWords.Unmarshal(a, b) }
+
+// Meaning returns one line saying what a means.
+func (a AngleArithmetic) Meaning() string { return anglesWords.Meaning(a) }
+
+// Values lists every AngleArithmetic, the zero value first.
+func (AngleArithmetic) Values() []AngleArithmetic { return anglesWords.Values() }
+
+// Check returns nil if a is one of the AngleArithmetic constants, or an
+// error wrapping ErrOption that lists the words.
+func (a AngleArithmetic) Check() error { return anglesWords.Check(a) }
