@@ -3,6 +3,7 @@ package attention
 import (
 	"math"
 
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -48,10 +49,10 @@ func finishLogit[T num.Float](p *plan, t T, b, h, i, j, at int, sech2 []T) T {
 	if c := p.softCap; c > 0 {
 		u := float64(t) / c
 		if sech2 != nil {
-			ch := math.Cosh(u)
+			ch := elem.Cosh(u)
 			sech2[at] = T(1 / (ch * ch))
 		}
-		t = T(c * math.Tanh(u))
+		t = T(c * elem.Tanh(u))
 	}
 	if r := p.biasRow(b, h, i); r >= 0 {
 		t += T(p.bias[r+j])
@@ -96,16 +97,16 @@ func softmaxRow[T num.Float](s []T, sink T, emptyNaN bool) (lse, psink T, empty 
 	}
 	var sum T
 	for j, x := range s {
-		e := T(math.Exp(float64(x - m)))
+		e := T(elem.Exp(float64(x - m)))
 		s[j] = e
 		sum += e
 	}
-	es := T(math.Exp(float64(sink - m)))
+	es := T(elem.Exp(float64(sink - m)))
 	sum += es
 	for j := range s {
 		s[j] /= sum
 	}
-	return m + T(math.Log(float64(sum))), es / sum, false
+	return m + T(elem.Log(float64(sum))), es / sum, false
 }
 
 // queryRow names one query row: row i of query head h in batch entry b,

@@ -142,9 +142,9 @@
 //	Forward                           9.7e-16   2.7e-16
 //	ForwardTiled                      9.2e-16   2.7e-16
 //	ForwardFast                       9.7e-16   2.7e-16
-//	Decode                            1.6e-16   1.2e-16
-//	Backward                                              4.7e-15   2.2e-15   1.5e-15   1.8e-16   2.6e-16
-//	BackwardFast                                          4.7e-15   2.2e-15   1.5e-15   1.8e-16   2.6e-16
+//	Decode                            1.6e-16   1.3e-16
+//	Backward                                              4.3e-15   2.2e-15   1.5e-15   1.8e-16   2.5e-16
+//	BackwardFast                                          4.3e-15   2.2e-15   1.5e-15   1.8e-16   2.5e-16
 //	Merge                             2.2e-16   7.4e-17
 //	Softmax                           9.6e-16
 //	LogSumExp                                   2.2e-16

@@ -3,6 +3,7 @@ package attention
 import (
 	"math"
 
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -143,16 +144,16 @@ func softmaxRowIdiom[T num.Float](s []T, sink T, emptyNaN bool, id Idiom) (lse, 
 	}
 	var sum T
 	for j, x := range s {
-		e := T(math.Exp(float64(x - shift)))
+		e := T(elem.Exp(float64(x - shift)))
 		s[j] = e
 		sum = accumulate(id.Accumulation, sum, e)
 	}
-	es := T(math.Exp(float64(sink - shift)))
+	es := T(elem.Exp(float64(sink - shift)))
 	sum = accumulate(id.Accumulation, sum, es)
 	for j := range s {
 		s[j] /= sum
 	}
-	return shift + T(math.Log(float64(sum))), es / sum, false
+	return shift + T(elem.Log(float64(sum))), es / sum, false
 }
 
 // lseRowIdiom is lseRow computed as a port of the idiom id does; see
@@ -174,14 +175,14 @@ func lseRowIdiom[T num.Float](x []T, id Idiom) T {
 	var sum T
 	if id.Shift == ShiftNone {
 		for _, v := range x {
-			sum = accumulate(id.Accumulation, sum, T(math.Exp(float64(v))))
+			sum = accumulate(id.Accumulation, sum, T(elem.Exp(float64(v))))
 		}
-		return T(math.Log(float64(sum)))
+		return T(elem.Log(float64(sum)))
 	}
 	for j, v := range x {
 		if j != a {
-			sum = accumulate(id.Accumulation, sum, T(math.Exp(float64(v-m))))
+			sum = accumulate(id.Accumulation, sum, T(elem.Exp(float64(v-m))))
 		}
 	}
-	return m + T(math.Log1p(float64(sum)))
+	return m + T(elem.Log1p(float64(sum)))
 }

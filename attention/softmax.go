@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -127,8 +128,8 @@ func lseRow[T num.Float](x []T) T {
 	var rest T
 	for j, v := range x {
 		if j != a {
-			rest += T(math.Exp(float64(v - m)))
+			rest += T(elem.Exp(float64(v - m)))
 		}
 	}
-	return m + T(math.Log1p(float64(rest)))
+	return m + T(elem.Log1p(float64(rest)))
 }

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -105,14 +106,14 @@ func forwardTiled[T num.Float](p *plan, q, k, v []T, block int) (out, lse []T) {
 				continue
 			}
 			m2 := nanMax(m, bm)
-			if alpha := T(math.Exp(float64(m - m2))); alpha != 1 {
+			if alpha := T(elem.Exp(float64(m - m2))); alpha != 1 {
 				l *= alpha
 				for d := range acc {
 					acc[d] *= alpha
 				}
 			}
 			for jj, t := range x {
-				e := T(math.Exp(float64(t - m2)))
+				e := T(elem.Exp(float64(t - m2)))
 				if e == 0 {
 					continue
 				}
@@ -132,7 +133,7 @@ func forwardTiled[T num.Float](p *plan, q, k, v []T, block int) (out, lse []T) {
 			}
 			continue
 		}
-		lse[p.lOff(b, h, i)] = m + T(math.Log(float64(l)))
+		lse[p.lOff(b, h, i)] = m + T(elem.Log(float64(l)))
 		for d := range oi {
 			oi[d] = acc[d] / l
 		}
@@ -220,10 +221,10 @@ func mergeRows[T num.Float](outA, lseA, outB, lseB []T, dv int) (out, lse []T) {
 			lse[r] = negInf
 			continue
 		}
-		wa := T(math.Exp(float64(a - m)))
-		wb := T(math.Exp(float64(b - m)))
+		wa := T(elem.Exp(float64(a - m)))
+		wb := T(elem.Exp(float64(b - m)))
 		sum := wa + wb
-		lse[r] = m + T(math.Log(float64(sum)))
+		lse[r] = m + T(elem.Log(float64(sum)))
 		wa, wb = wa/sum, wb/sum
 		o := out[r*dv:][:dv]
 		if wa != 0 {

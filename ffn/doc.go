@@ -82,17 +82,17 @@
 //	                         core      tail      far
 //	relu                     0
 //	relu derivative          0
-//	gelu                     6.2e-17   2.0e-16   2.9e-16
-//	gelu derivative          4.6e-17   2.2e-16   2.4e-16
+//	gelu                     6.2e-17   2.0e-16   2.2e-16
+//	gelu derivative          4.8e-17   2.2e-16   2.4e-16
 //	gelu-tanh                7.7e-17   1.8e-16   0
-//	gelu-tanh derivative     9.1e-17   2.1e-16   0
-//	gelu-sigmoid             1.1e-16   2.2e-16   2.2e-16
-//	gelu-sigmoid derivative  1.0e-16   4.0e-16   1.4e-16
-//	sigmoid                  7.2e-17   2.0e-16   1.8e-16
-//	sigmoid derivative       9.4e-17   2.9e-16   4.0e-16
-//	silu                     5.6e-17   2.8e-16   2.1e-16
+//	gelu-tanh derivative     8.2e-17   2.1e-16   0
+//	gelu-sigmoid             1.1e-16   2.0e-16   2.2e-16
+//	gelu-sigmoid derivative  1.0e-16   3.6e-16   1.6e-16
+//	sigmoid                  7.2e-17   2.0e-16   2.1e-16
+//	sigmoid derivative       9.2e-17   2.7e-16   5.9e-16
+//	silu                     5.7e-17   2.2e-16   2.1e-16
 //	silu derivative          1.2e-16   3.4e-16   2.2e-16
-//	swish                    9.9e-17   3.4e-16   2.8e-16
+//	swish                    9.9e-17   3.4e-16   2.4e-16
 //	swish derivative         1.4e-16   5.0e-16   4.2e-16
 //	identity                 0         0         0
 //	identity derivative      0         0         0
@@ -109,7 +109,7 @@
 //	Forward       5.3e-16
 //	ForwardFast   5.3e-16
 //	Backward                4.7e-16   5.6e-16
-//	BackwardFast            4.8e-16   5.1e-16
+//	BackwardFast            5.4e-16   6.4e-16
 //	Forward32     3.7e-07
 //	Backward32              3.0e-07   3.1e-07
 //

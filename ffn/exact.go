@@ -3,6 +3,7 @@ package ffn
 import (
 	"math"
 
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -60,7 +61,7 @@ func mulConst[T num.Float](x T, hi64, lo64 float64) (T, T) {
 // expSum is e^{hi+lo} for |lo| ≤ ulp(hi): e^{hi}·(1 + lo), whose error from
 // the dropped lo²/2 is far below the rounding of e^{hi}.
 func expSum[T num.Float](hi, lo T) T {
-	e := T(math.Exp(float64(hi)))
+	e := T(elem.Exp(float64(hi)))
 	if e == 0 || math.IsInf(float64(e), 0) || lo == 0 {
 		return e
 	}
@@ -84,9 +85,9 @@ func sigmoidSum[T num.Float](hi, lo T) T {
 func cdf[T num.Float](x T) T {
 	zh, zl := mulConst(-x, invSqrt2Hi, invSqrt2Lo)
 	z := float64(zh)
-	c := math.Erfc(z)
+	c := elem.Erfc(z)
 	if zl != 0 && c != 0 {
-		c -= float64(float64(zl) * twoOverSqrtPi * math.Exp(-z*z))
+		c -= float64(float64(zl) * twoOverSqrtPi * elem.Exp(-z*z))
 	}
 	return T(c) * 0.5
 }

@@ -3,6 +3,7 @@ package posenc
 import (
 	"math"
 
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -102,7 +103,7 @@ func ddExp(a dd) dd {
 // ddLog is ln x for x > 0: one Newton step y ← y + x·e^{−y} − 1 from the
 // float64 logarithm doubles its ~53 correct bits.
 func ddLog(x dd) dd {
-	y := ddFrom(math.Log(x.hi))
+	y := ddFrom(elem.Log(x.hi))
 	return ddAdd(y, ddSub(ddMul(x, ddExp(ddNeg(y))), ddFrom(1)))
 }
 
@@ -126,8 +127,8 @@ func ddLess(a, b dd) bool { return a.hi < b.hi || (a.hi == b.hi && a.lo < b.lo) 
 // ulp(a.hi)/2 the addition formulas are exact in real arithmetic:
 // sin(h+l) = sin h cos l + cos h sin l; each term is then rounded once.
 func sincosDD(a dd) (sin, cos float64) {
-	sh, ch := math.Sincos(a.hi)
-	sl, cl := math.Sincos(a.lo)
+	sh, ch := elem.Sincos(a.hi)
+	sl, cl := elem.Sincos(a.lo)
 	sin = float64(sh*cl) + float64(ch*sl)
 	cos = float64(ch*cl) - float64(sh*sl)
 	return sin, cos

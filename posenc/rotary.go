@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -183,7 +184,7 @@ func (rs *resolved) tablesWith(pos []int, a AngleArithmetic) (cos, sin []float64
 			if a == AnglesFloat32Frequencies {
 				s, c = sincosDD(angle(m, ddFrom(float64(th))))
 			} else {
-				s, c = math.Sincos(float64(float32(float32(m) * th)))
+				s, c = elem.Sincos(float64(float32(float32(m) * th)))
 			}
 			if rs.mag != 1 {
 				s, c = float64(s*rs.mag), float64(c*rs.mag)

@@ -11,6 +11,7 @@ import (
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/diagnose"
+	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/ops"
@@ -36,9 +37,9 @@ func portRotary(x []float32, heads int, halves bool) {
 		for m := 0; m < demoLen; m++ {
 			row := x[(h*demoLen+m)*d : (h*demoLen+m+1)*d]
 			for i := 0; i < d/2; i++ {
-				theta := float32(math.Pow(demoBase, -2*float64(i)/float64(d)))
+				theta := float32(elem.Pow(demoBase, -2*float64(i)/float64(d)))
 				angle := float32(m) * theta
-				c, s := float32(math.Cos(float64(angle))), float32(math.Sin(float64(angle)))
+				c, s := float32(elem.Cos(float64(angle))), float32(elem.Sin(float64(angle)))
 				a, b := 2*i, 2*i+1
 				if halves {
 					a, b = i, i+d/2
@@ -76,7 +77,7 @@ func portAttention(q, k, v []float32) []float32 {
 			}
 			var sum float32
 			for j := 0; j <= i; j++ {
-				p[j] = float32(math.Exp(float64(p[j] - maxLogit)))
+				p[j] = float32(elem.Exp(float64(p[j] - maxLogit)))
 				sum += p[j]
 			}
 			o := out[(h*demoLen+i)*d:][:d]
