@@ -142,8 +142,12 @@
 //	  float16         IEEE 754 binary16, descriptor <f2
 //	  int64           64-bit signed integers, descriptor <i8
 //	  int32           32-bit signed integers, descriptor <i4
+//	  int16           16-bit signed integers, descriptor <i2
+//	  int8            8-bit signed integers, descriptor |i1
+//	  uint32          32-bit unsigned integers, descriptor <u4
 //	  uint16          16-bit unsigned integers (or bfloat16 bit patterns), descriptor <u2
 //	  uint8           8-bit unsigned integers (or FP8 bit patterns), descriptor |u1
+//	  bool            booleans, one byte each (0 false, 1 true), descriptor |b1
 //	posenc.AngleArithmetic: how a float32 port forms the rotary angles m·θ (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)
 //	  float64         the angles and tables formed as the reference forms them, each entry rounded to float32 once
 //	  float32-frequencies the frequencies θ rounded to float32, the angles m·θ then formed exactly, the tables rounded once

@@ -136,19 +136,20 @@ func packageDirs(t *testing.T) []string {
 // returns "file:line: expression" for every fusable product.
 func fusableIn(t *testing.T, imp types.Importer, dir string) []string {
 	fset := token.NewFileSet()
-	pkgs, err := parser.ParseDir(fset, dir, func(fi os.FileInfo) bool {
-		ok, err := build.Default.MatchFile(dir, fi.Name())
-		return err == nil && ok && !strings.HasSuffix(fi.Name(), "_test.go")
-	}, 0)
+	bp, err := build.Default.ImportDir(dir, 0) // the files of this build, tags applied
 	if err != nil {
 		t.Fatalf("%s: %v", dir, err)
 	}
-	var found []string
-	for _, p := range pkgs {
-		var files []*ast.File
-		for _, f := range p.Files {
-			files = append(files, f)
+	var files []*ast.File
+	for _, name := range append(bp.GoFiles, bp.CgoFiles...) {
+		f, err := parser.ParseFile(fset, filepath.Join(dir, name), nil, 0)
+		if err != nil {
+			t.Fatalf("%s: %v", dir, err)
 		}
+		files = append(files, f)
+	}
+	var found []string
+	{
 		info := &types.Info{Types: map[ast.Expr]types.TypeAndValue{}, Defs: map[*ast.Ident]types.Object{}, Uses: map[*ast.Ident]types.Object{}}
 		conf := types.Config{Importer: imp, Error: func(error) {}}
 		if _, err := conf.Check(dir, fset, files, info); err != nil {

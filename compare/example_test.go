@@ -74,7 +74,8 @@ func ExampleDiff() {
 	// Output:
 	// 6 elements, shape [2 3], candidate format bfloat16
 	//   max abs error       0.007812  at [1 1]
-	//   max rel error       0.007812  at [1 1] (floor 0.001953)
+	//   max rel error       0.007812  at [1 1]
+	//                                 relative to |ref|, or to 0.001953 where |ref| is smaller
 	//   RMS error           0.003521
 	//   mean signed error   0.001367  (got − ref)
 	//   normwise rel error  0.006822
@@ -84,12 +85,14 @@ func ExampleDiff() {
 	// ULP distances in bfloat16:
 	//   0  3   60.0%
 	//   1  2   40.0%
-	// worst 3 elements:
-	//   index  reference  candidate     abs error  rel error  ULPs
-	//   [1 2]  2          NaN           +Inf       +Inf       NaN
-	//   [1 1]  1          1.0078125     0.007812   0.007812   1
-	//   [0 1]  0.25       0.2490234375  0.0009766  0.003906   1
-	// tolerance: abs 0.001, rel 0.001, ULPs 0, normwise 0
+	// worst 3 elements, ranked by how far each exceeds the tolerance (× tol: its error over the error
+	//   allowed there; above 1 fails), NaN and Inf mismatches first; the max abs error above is the
+	//   largest |got − ref|, whatever its tolerance:
+	//   index  reference  candidate     abs error  rel error  ULPs  × tol
+	//   [1 2]  2          NaN           +Inf       +Inf       NaN   +Inf
+	//   [1 1]  1          1.0078125     0.007812   0.007812   1     3.906
+	//   [0 1]  0.25       0.2490234375  0.0009766  0.003906   1     0.7812
+	// tolerance: abs 0.001, rel 0.001, ULPs not used, normwise not used
 	//   basis: explicit
 	// verdict: FAIL: 1 NaN and 0 Inf mismatches; 1 of 6 elements exceed the elementwise tolerance
 }

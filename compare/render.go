@@ -9,6 +9,7 @@ import (
 	"strconv"
 	"strings"
 	"text/tabwriter"
+	"unicode/utf8"
 )
 
 // WriteText writes the report to w as text aligned for a terminal: the
@@ -28,7 +29,8 @@ func (r *Report) WriteText(w io.Writer) error {
 	fmt.Fprintf(&b, "%d elements, shape %v, candidate format %v\n", r.Elements, r.Shape, r.Format)
 	if r.Finite > 0 {
 		fmt.Fprintf(tw, "  max abs error\t%s\tat %v\n", g4(r.MaxAbs), r.MaxAbsAt)
-		fmt.Fprintf(tw, "  max rel error\t%s\tat %v (floor %s)\n", g4(r.MaxRel), r.MaxRelAt, g4(r.RelFloor))
+		fmt.Fprintf(tw, "  max rel error\t%s\tat %v\n", g4(r.MaxRel), r.MaxRelAt)
+		fmt.Fprintf(tw, "  \t\trelative to |ref|, or to %s where |ref| is smaller\n", g4(r.RelFloor))
 		fmt.Fprintf(tw, "  RMS error\t%s\t\n", g4(r.RMS))
 		fmt.Fprintf(tw, "  mean signed error\t%s\t(got − ref)\n", g4(r.MeanSigned))
 		fmt.Fprintf(tw, "  normwise rel error\t%s\t\n", g4(r.Normwise))
@@ -62,26 +64,22 @@ func (r *Report) WriteText(w io.Writer) error {
 		}
 	}
 	if len(r.Worst) > 0 {
-		fmt.Fprintf(&b, "worst %d elements:\n", len(r.Worst))
-		fmt.Fprintf(tw, "  index\treference\tcandidate\tabs error\trel error\tULPs\n")
-		for _, e := range r.Worst {
-			fmt.Fprintf(tw, "  %v\t%s\t%s\t%s\t%s\t%s\n", e.Index, g17(e.Ref), g17(e.Got), g4(e.AbsErr), g4(e.RelErr), g4(e.ULPs))
-		}
+		r.writeWorst(&b, tw)
 		if err := tw.Flush(); err != nil {
 			return err
 		}
 	}
 	if t := r.Tolerance; t != nil {
-		fmt.Fprintf(&b, "tolerance: abs %s, rel %s, ULPs %d, normwise %s\n", g4(t.Abs), g4(t.Rel), t.ULPs, g4(t.MaxNormwise))
+		fmt.Fprintf(&b, "tolerance: %s\n", t.words())
 		if t.Basis != "" {
-			fmt.Fprintf(&b, "  basis: %s\n", t.Basis)
+			wrapLine(&b, "  basis: ", "         ", t.Basis)
 		}
 	}
 	if v := r.Verdict; v != nil {
 		if v.Pass {
 			b.WriteString("verdict: PASS\n")
 		} else {
-			fmt.Fprintf(&b, "verdict: FAIL: %s\n", strings.Join(v.Reasons, "; "))
+			wrapLine(&b, "verdict: FAIL: ", "  ", strings.Join(v.Reasons, "; "))
 		}
 	}
 	// Empty last cells leave trailing blanks; drop them.
@@ -108,6 +106,92 @@ func (r *Report) String() string {
 	var b strings.Builder
 	_ = r.WriteText(&b) // a strings.Builder does not fail
 	return b.String()
+}
+
+// TextWidth is the width, in characters, that WriteText keeps its lines
+// of words within (the heading of the worst elements, the basis of the
+// tolerance, the verdict's reasons), wrapping them at spaces; a table row
+// is not wrapped, and a single word longer than the width stays whole.
+const TextWidth = 100
+
+// writeWorst writes the heading and the table of the worst elements. With
+// a tolerance they are ranked by how many times their error exceeds what
+// it allows there (the column "× tol"), which is not the order of the
+// absolute error; the heading says so.
+func (r *Report) writeWorst(b *bytes.Buffer, tw *tabwriter.Writer) {
+	n := len(r.Worst)
+	what := "element"
+	if n > 1 {
+		what = fmt.Sprintf("%d elements", n)
+	}
+	t := r.Tolerance
+	if t == nil {
+		wrapLine(b, "", "  ", fmt.Sprintf("worst %s, ranked by absolute error |got − ref| (NaN and Inf mismatches first):", what))
+		fmt.Fprintf(tw, "  index\treference\tcandidate\tabs error\trel error\tULPs\n")
+		for _, e := range r.Worst {
+			fmt.Fprintf(tw, "  %v\t%s\t%s\t%s\t%s\t%s\n", e.Index, g17(e.Ref), g17(e.Got), g4(e.AbsErr), g4(e.RelErr), g4(e.ULPs))
+		}
+		return
+	}
+	wrapLine(b, "", "  ", fmt.Sprintf("worst %s, ranked by how far each exceeds the tolerance (× tol: its error over the "+
+		"error allowed there; above 1 fails), NaN and Inf mismatches first; the max abs error above is the largest "+
+		"|got − ref|, whatever its tolerance:", what))
+	fmt.Fprintf(tw, "  index\treference\tcandidate\tabs error\trel error\tULPs\t× tol\n")
+	for _, e := range r.Worst {
+		x := math.Inf(1)
+		if finite(e.Ref) && finite(e.Got) {
+			x = t.excess(e.Ref, e.AbsErr, e.ULPs)
+		}
+		fmt.Fprintf(tw, "  %v\t%s\t%s\t%s\t%s\t%s\t%s\n", e.Index, g17(e.Ref), g17(e.Got), g4(e.AbsErr), g4(e.RelErr), g4(e.ULPs), g4(x))
+	}
+}
+
+// words lists the tolerance's parts, a part that plays no part in the
+// test as "not used": Rel, ULPs and MaxNormwise when 0, and Abs when 0
+// while Rel or ULPs is not (with all three 0 the elementwise test asks for
+// equal values, which "abs 0 (equal values)" says).
+func (t *Tolerance) words() string {
+	abs := g4(t.Abs)
+	switch {
+	case t.Abs == 0 && t.Rel == 0 && t.ULPs == 0:
+		abs = "0 (equal values)"
+	case t.Abs == 0:
+		abs = "not used"
+	}
+	rel, ulps, normwise := "not used", "not used", "not used"
+	if t.Rel != 0 {
+		rel = g4(t.Rel)
+	}
+	if t.ULPs != 0 {
+		ulps = strconv.FormatUint(t.ULPs, 10)
+	}
+	if t.MaxNormwise != 0 {
+		normwise = g4(t.MaxNormwise)
+	}
+	return fmt.Sprintf("abs %s, rel %s, ULPs %s, normwise %s", abs, rel, ulps, normwise)
+}
+
+// wrapLine writes first and then text, broken at spaces into lines of at
+// most TextWidth characters, the lines after the first starting with
+// indent.
+func wrapLine(b *bytes.Buffer, first, indent, text string) {
+	line, width := first, utf8.RuneCountInString(first)
+	fresh := true // nothing of text on the line yet
+	for _, w := range strings.Fields(text) {
+		n := utf8.RuneCountInString(w)
+		if !fresh && width+1+n > TextWidth {
+			b.WriteString(line + "\n")
+			line, width, fresh = indent, utf8.RuneCountInString(indent), true
+		}
+		if !fresh {
+			line += " "
+			width++
+		}
+		line += w
+		width += n
+		fresh = false
+	}
+	b.WriteString(line + "\n")
 }
 
 func g4(x float64) string  { return strconv.FormatFloat(x, 'g', 4, 64) }

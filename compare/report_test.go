@@ -1,12 +1,14 @@
 package compare
 
 import (
+	"bytes"
 	"encoding/json"
 	"math"
 	"math/rand/v2"
 	"slices"
 	"strings"
 	"testing"
+	"unicode/utf8"
 
 	"github.com/google/go-cmp/cmp"
 	"github.com/google/go-cmp/cmp/cmpopts"
@@ -302,15 +304,72 @@ func TestReportText(t *testing.T) {
 		"max abs error       0.5",
 		"NaN mismatches      1",
 		"ULP distances in bfloat16:",
-		"worst 2 elements:",
-		"[1 0]  NaN        3",
-		"tolerance: abs 0.1, rel 0, ULPs 0, normwise 0",
+		"worst 2 elements, ranked by how far each exceeds the tolerance (× tol: ",
+		"the max abs error above is the\n  largest |got − ref|, whatever its tolerance:\n",
+		"[1 0]  NaN        3          +Inf       +Inf       NaN   +Inf\n",
+		"[0 1]  2          2.5        0.5        0.25       32    5\n",
+		"relative to |ref|, or to 0.003906 where |ref| is smaller\n",
+		"tolerance: abs 0.1, rel not used, ULPs not used, normwise not used\n",
 		"basis: explicit",
 		"verdict: FAIL: 1 NaN and 0 Inf mismatches; 1 of 4 elements exceed the elementwise tolerance",
 	} {
 		assert.Contains(t, s, want)
 	}
 	assert.ErrorIs(t, r.WriteText(failWriter{}), errWrite)
+
+	// Without a tolerance the worst elements are ranked by absolute error.
+	r, err = Diff(ref, got, []int{2, 2}, Options{Format: BFloat16})
+	require.NoError(t, err)
+	assert.Contains(t, r.String(), "worst 2 elements, ranked by absolute error |got − ref| (NaN and Inf mismatches first):\n"+
+		"  index  reference  candidate  abs error  rel error  ULPs\n")
+	assert.NotContains(t, r.String(), "× tol")
+}
+
+// A part of the tolerance that takes no part in the test reads "not
+// used", never 0.
+func TestToleranceWords(t *testing.T) {
+	for _, tc := range []struct {
+		tol  Tolerance
+		want string
+	}{
+		{Tolerance{}, "abs 0 (equal values), rel not used, ULPs not used, normwise not used"},
+		{Tolerance{Abs: 1e-3}, "abs 0.001, rel not used, ULPs not used, normwise not used"},
+		{Tolerance{Rel: 1e-3}, "abs not used, rel 0.001, ULPs not used, normwise not used"},
+		{Tolerance{ULPs: 4}, "abs not used, rel not used, ULPs 4, normwise not used"},
+		{Tolerance{MaxNormwise: 1e-6}, "abs 0 (equal values), rel not used, ULPs not used, normwise 1e-06"},
+		{Tolerance{Abs: 1, Rel: 2, ULPs: 3, MaxNormwise: 4}, "abs 1, rel 2, ULPs 3, normwise 4"},
+	} {
+		assert.Equal(t, tc.want, tc.tol.words())
+		r, err := Diff([]float64{1}, []float64{1}, nil, Options{Tolerance: &tc.tol})
+		require.NoError(t, err)
+		assert.Contains(t, r.String(), "\ntolerance: "+tc.want+"\n")
+	}
+}
+
+// No line of words exceeds TextWidth: the basis of a yardstick's
+// tolerance and a verdict of several reasons are wrapped at spaces, with
+// nothing lost.
+func TestReportTextWidth(t *testing.T) {
+	ref := []float64{1, 2, math.NaN(), 4, 5, 6}
+	got := []float64{1, 2.5, 3, math.Inf(1), 5.25, 6}
+	basis := "yardstick: bfloat16 inputs, float32 arithmetic, bfloat16 output: 2 × (max abs 0.01172, normwise 0.003357) " +
+		"+ one rounding (0.01562, 0.003906); the yardstick itself has 1 NaN/Inf mismatches"
+	tol := Tolerance{Abs: 0.1, MaxNormwise: 1e-3, Basis: basis}
+	r, err := Diff(ref, got, []int{2, 3}, Options{Format: BFloat16, Tolerance: &tol})
+	require.NoError(t, err)
+	s := r.String()
+	for _, l := range strings.Split(s, "\n") {
+		assert.LessOrEqual(t, utf8.RuneCountInString(l), TextWidth, "%q", l)
+	}
+	assert.Contains(t, s, "\n  basis: yardstick: bfloat16 inputs, float32 arithmetic, bfloat16 output: 2 × (max abs 0.01172,\n         normwise")
+	joined := strings.Join(strings.Fields(s), " ")
+	assert.Contains(t, joined, "basis: "+basis)
+	assert.Contains(t, joined, "verdict: FAIL: "+strings.Join(r.Verdict.Reasons, "; "))
+	require.Len(t, r.Verdict.Reasons, 3)
+
+	var b bytes.Buffer
+	wrapLine(&b, "> ", "  ", strings.Repeat("x", 120)+" y")
+	assert.Equal(t, "> "+strings.Repeat("x", 120)+"\n  y\n", b.String(), "a long word stays whole")
 }
 
 type failWriter struct{}

@@ -18,9 +18,25 @@
 //
 // Supported element types, by their descriptors: '<f8' / '>f8' float64,
 // '<f4' / '>f4' float32, '<f2' / '>f2' float16 (IEEE 754 binary16), '<i8' /
-// '>i8' int64, '<i4' / '>i4' int32, '<u2' / '>u2' uint16, '|u1' uint8.
-// Anything else (complex, bool, other widths, strings, objects, structured
-// types) is refused with ErrDType and the descriptor's text.
+// '>i8' int64, '<i4' / '>i4' int32, '<i2' / '>i2' int16, '|i1' int8,
+// '<u4' / '>u4' uint32, '<u2' / '>u2' uint16, '|u1' uint8, '|b1' bool
+// (masks, token ids, quantised tensors). Anything else (complex, uint64,
+// other widths, strings, objects, structured types) is refused with
+// ErrDType and the descriptor's text. A type's name is read in NumPy's
+// spelling ("float16") or a common one of the floating-point types (fp64,
+// double, fp32, single, fp16, half, binary16).
+//
+// Archives: an .npz file, NumPy's zip archive of .npy members
+// (numpy.savez stores them, numpy.savez_compressed deflates them), is read
+// with OpenArchive or NewArchive, member by member (Archive.Read, by the
+// name numpy.savez gave: the member's name without ".npy"), and written with
+// ArchiveWriter. A zip archive given to Read or ReadFile is refused with a
+// message that says it is one.
+//
+// Raw binary: ReadRaw and ReadRawFile read the elements alone, row-major and
+// little-endian, as a C or GPU harness dumps a buffer; the caller gives the
+// type and shape, and data of any other length are refused with both sizes
+// stated.
 //
 // Conventions, and their alternatives:
 //
@@ -63,7 +79,7 @@
 //
 // Every error about the array or the file's content wraps exactly one of
 // the sentinel errors (ErrFormat, ErrDType, ErrShape, ErrData, ErrValues,
-// ErrBits, ErrInexact) and names the function called (for ReadFile and
+// ErrBits, ErrInexact, ErrArchive, ErrMember) and names the function called (for ReadFile and
 // WriteFile with the path), what it found and what it wanted ("npy:
 // malformed file: Read: format version = 4.0; want 1.0, 2.0 or 3.0");
 // errors of the file system or of the io.Writer are wrapped as they come.
@@ -83,7 +99,10 @@
 // (numpy_test.go) has NumPy write every supported type in both byte
 // orders, both orders and all three versions, reads them here and writes
 // them back byte for byte; it has NumPy load every file this package writes
-// and compare the bit patterns; and it compares the float16 decoding (which
+// and compare the bit patterns; it does the same for .npz archives in both
+// directions (numpy.savez and numpy.savez_compressed against ArchiveWriter,
+// stored and deflated); and it compares the float16 decoding (which
 // is compare.Binary16's) with NumPy's own float16 conversion on all 65536 patterns. It runs when /usr/bin/python3
-// can import numpy and says it skipped otherwise.
+// can import numpy and says it skipped otherwise, except in CI (CI=true),
+// where NumPy is installed and its absence is a failure.
 package npy

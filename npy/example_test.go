@@ -87,5 +87,5 @@ func ExampleReadHeader() {
 	_, err := npy.ReadHeader(strings.NewReader(f))
 	fmt.Println(err)
 	// Output:
-	// npy: unsupported element type: ReadHeader: 'descr' = '<c16' (complex); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'
+	// npy: unsupported element type: ReadHeader: 'descr' = '<c16' (complex); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'
 }

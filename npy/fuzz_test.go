@@ -76,3 +76,49 @@ func bitsOf(a *Array) []byte {
 	_ = Write(&buf, &c)
 	return buf.Bytes()
 }
+
+// FuzzArchive feeds arbitrary bytes to NewArchive and reads every member,
+// and the same bytes to ReadRaw: no panic, and every error of the archive's
+// content wraps one of the sentinels.
+func FuzzArchive(f *testing.F) {
+	x, _ := New(Float32, []int{2, 2}, []float32{1, 2, 3, 4})
+	for _, compress := range []bool{false, true} {
+		var buf bytes.Buffer
+		w := NewArchiveWriter(&buf, compress)
+		if err := w.Add("x", x); err != nil {
+			f.Fatal(err)
+		}
+		if err := w.Close(); err != nil {
+			f.Fatal(err)
+		}
+		f.Add(buf.Bytes())
+	}
+	f.Add([]byte("PK\x05\x06"))
+	sentinels := []error{ErrFormat, ErrDType, ErrShape, ErrData, ErrArchive, ErrMember}
+	one := func(t *testing.T, err error) {
+		k := 0
+		for _, s := range sentinels {
+			if errors.Is(err, s) {
+				k++
+			}
+		}
+		if k != 1 {
+			t.Fatalf("error wraps %d sentinels, want 1: %v", k, err)
+		}
+	}
+	f.Fuzz(func(t *testing.T, data []byte) {
+		if _, err := ReadRaw(bytes.NewReader(data), Int16, []int{len(data) / 2}); err != nil && len(data)%2 == 0 {
+			t.Fatalf("ReadRaw refused %d bytes of int16: %v", len(data), err)
+		}
+		a, err := NewArchive(bytes.NewReader(data), int64(len(data)))
+		if err != nil {
+			one(t, err)
+			return
+		}
+		for _, n := range a.Names() {
+			if _, err := a.Read(n); err != nil {
+				one(t, err)
+			}
+		}
+	})
+}

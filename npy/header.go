@@ -314,7 +314,7 @@ var kindNames = map[byte]string{
 }
 
 // supportedDescrs lists the descriptors accepted, for messages.
-const supportedDescrs = "'<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"
+const supportedDescrs = "'<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"
 
 // parseDescr interprets 'descr'. Accepted: a string of an optional byte
 // order mark and one of the kind-and-size codes of the supported types.

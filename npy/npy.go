@@ -18,6 +18,10 @@ var dtypeInfo = [...]struct {
 	Int32:   {'i', 4},
 	Uint16:  {'u', 2},
 	Uint8:   {'u', 1},
+	Bool:    {'b', 1},
+	Int8:    {'i', 1},
+	Int16:   {'i', 2},
+	Uint32:  {'u', 4},
 }
 
 func (d DType) valid() bool { return d.Check() == nil }
@@ -45,6 +49,14 @@ func (d DType) goType() string {
 		return "[]uint16"
 	case Uint8:
 		return "[]uint8"
+	case Bool:
+		return "[]bool"
+	case Int8:
+		return "[]int8"
+	case Int16:
+		return "[]int16"
+	case Uint32:
+		return "[]uint32"
 	}
 	return "nothing"
 }
@@ -110,8 +122,10 @@ func (b Bits) fits(d DType) bool {
 // Values holds the elements in row-major (C) order whatever the file's
 // order, as the Go slice type DType calls for:
 //
-//	Float64 []float64    Int64  []int64    Uint16 []uint16
-//	Float32 []float32    Int32  []int32    Uint8  []uint8
+//	Float64 []float64    Int64  []int64    Uint32 []uint32    Bool []bool
+//	Float32 []float32    Int32  []int32    Uint16 []uint16
+//	                     Int16  []int16    Uint8  []uint8
+//	                     Int8   []int8
 //	Float16 []uint16 (IEEE 754 binary16 bit patterns; Go has no float16)
 //
 // The raw values are kept as stored; Float64s converts them.
@@ -199,6 +213,14 @@ func (a *Array) valuesLen() (int, bool) {
 		return len(v), a.DType == Uint16 || a.DType == Float16
 	case []uint8:
 		return len(v), a.DType == Uint8
+	case []bool:
+		return len(v), a.DType == Bool
+	case []int8:
+		return len(v), a.DType == Int8
+	case []int16:
+		return len(v), a.DType == Int16
+	case []uint32:
+		return len(v), a.DType == Uint32
 	}
 	return 0, false
 }
@@ -245,7 +267,9 @@ func (a *Array) check(args arrayArgs) error {
 //
 //	Float64, Float32       the value
 //	Float16                binary16 decoded (IEEE 754-2019 §3.4)
-//	Int32, Uint16, Uint8   the integer (Bits = Integer)
+//	Int32, Int16, Int8     the integer
+//	Uint32, Uint16, Uint8  the integer (Bits = Integer)
+//	Bool                   0 (false) or 1 (true)
 //	Int64                  the integer, or ErrInexact if |v| > 2⁵³ and v
 //	                       is not a float64 (the error names the index)
 //	Uint16, Bits=BFloat16  the bfloat16 value
@@ -274,6 +298,19 @@ func (a *Array) Float64s() ([]float64, error) {
 		return convert(v, func(x float32) float64 { return float64(x) }), nil
 	case []int32:
 		return convert(v, func(x int32) float64 { return float64(x) }), nil
+	case []int16:
+		return convert(v, func(x int16) float64 { return float64(x) }), nil
+	case []int8:
+		return convert(v, func(x int8) float64 { return float64(x) }), nil
+	case []uint32:
+		return convert(v, func(x uint32) float64 { return float64(x) }), nil
+	case []bool:
+		return convert(v, func(x bool) float64 {
+			if x {
+				return 1
+			}
+			return 0
+		}), nil
 	case []int64:
 		out := make([]float64, len(v))
 		for i, x := range v {

@@ -17,7 +17,7 @@ import (
 	"github.com/stretchr/testify/require"
 )
 
-var allDTypes = []DType{Float64, Float32, Float16, Int64, Int32, Uint16, Uint8}
+var allDTypes = []DType{Float64, Float32, Float16, Int64, Int32, Int16, Int8, Uint32, Uint16, Uint8, Bool}
 
 // randomValues returns n values of the type, drawn from r, with the type's
 // special values first (NaN, ±Inf, −0, extremes) when n allows.
@@ -57,6 +57,30 @@ func randomValues(dt DType, n int, r *rand.Rand) any {
 		v := []uint8{0xff, 0x80, 0x7f}
 		for len(v) < n {
 			v = append(v, uint8(r.Uint32()))
+		}
+		return v[:n]
+	case Int16:
+		v := []int16{math.MinInt16, math.MaxInt16, -1}
+		for len(v) < n {
+			v = append(v, int16(r.Uint32()))
+		}
+		return v[:n]
+	case Int8:
+		v := []int8{math.MinInt8, math.MaxInt8, -1}
+		for len(v) < n {
+			v = append(v, int8(r.Uint32()))
+		}
+		return v[:n]
+	case Uint32:
+		v := []uint32{math.MaxUint32, 1 << 31, 0}
+		for len(v) < n {
+			v = append(v, r.Uint32())
+		}
+		return v[:n]
+	case Bool:
+		v := []bool{true, false}
+		for len(v) < n {
+			v = append(v, r.IntN(2) == 1)
 		}
 		return v[:n]
 	}
@@ -223,17 +247,19 @@ func TestReadErrors(t *testing.T) {
 		{"truncated length", []byte("\x93NUMPY\x02\x00\x10\x00"), ErrFormat, "npy: malformed file: Read: the file ends inside the 4-byte header length (unexpected EOF); want all of it"},
 		{"header length too large", []byte("\x93NUMPY\x02\x00\xff\xff\xff\xff"), ErrFormat, "npy: malformed file: Read: header length = 4294967295; want at most MaxHeaderLen = 1048576"},
 		{"truncated header", []byte("\x93NUMPY\x01\x00\x40\x00{'descr'"), ErrFormat, "npy: malformed file: Read: the header of 64 bytes ends early (input ended early: 8 bytes remain); want all of it"},
-		{"structured", dict("[('a', '<f8'), ('b', '<i4')]", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = [('a', '<f8'), ('b', '<i4')], a structured type; want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
-		{"complex", dict("'<c16'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<c16' (complex); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
-		{"bool", dict("'|b1'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '|b1' (bool); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
-		{"int16", dict("'<i2'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<i2' (signed integer of an unsupported size); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
-		{"long double", dict("'<f16'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<f16' (floating point of an unsupported size); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
-		{"unicode", dict("'<U3'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<U3' (unicode string); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
-		{"object", dict("'|O'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '|O' (Python object); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
+		{"structured", dict("[('a', '<f8'), ('b', '<i4')]", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = [('a', '<f8'), ('b', '<i4')], a structured type; want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
+		{"complex", dict("'<c16'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<c16' (complex); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
+		{"bool of 2 bytes", dict("'<b2'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<b2' (bool); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
+		{"int128", dict("'<i16'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<i16' (signed integer of an unsupported size); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
+		{"uint64", dict("'<u8'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<u8' (unsigned integer of an unsupported size); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
+		{"zip archive", []byte("PK\x03\x04\x14\x00\x00\x00\x00\x00"), ErrFormat, "npy: malformed file: Read: the file is a zip archive, as an .npz file is (it starts with \"PK\\x03\\x04\"); want a .npy file: the members of an .npz archive are .npy files, read them with OpenArchive"},
+		{"long double", dict("'<f16'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<f16' (floating point of an unsupported size); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
+		{"unicode", dict("'<U3'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '<U3' (unicode string); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
+		{"object", dict("'|O'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '|O' (Python object); want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
 		{"native order", dict("'=f8'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '=f8', no byte order for a type of 8 bytes; want '<' or '>' (a file does not say which machine's native order '=' or none meant)"},
 		{"not applicable order", dict("'|f8'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = '|f8', no byte order for a type of 8 bytes; want '<' or '>' (a file does not say which machine's native order '=' or none meant)"},
 		{"no order", dict("'f8'", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = 'f8', no byte order for a type of 8 bytes; want '<' or '>' (a file does not say which machine's native order '=' or none meant)"},
-		{"descr integer", dict("8", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = 8, an integer; want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<u2' (or '>' for big-endian) and '|u1'"},
+		{"descr integer", dict("8", "False", "(1,)"), ErrDType, "npy: unsupported element type: Read: 'descr' = 8, an integer; want one of '<f8', '<f4', '<f2', '<i8', '<i4', '<i2', '<u4', '<u2' (or '>' for big-endian), '|i1', '|u1' and '|b1'"},
 		{"fortran_order 0", dict("'<f8'", "0", "(1,)"), ErrFormat, "npy: malformed file: Read: 'fortran_order' = 0; want True or False"},
 		{"shape list", dict("'<f8'", "False", "[1]"), ErrFormat, "npy: malformed file: Read: 'shape' = [1]; want a tuple of integers"},
 		{"shape (1) is not a tuple", dict("'<f8'", "False", "(1)"), ErrFormat, "npy: malformed file: Read: header byte 53: a parenthesised value without a comma, which is not a tuple; want (x,)"},
@@ -370,7 +396,7 @@ func TestWriteErrors(t *testing.T) {
 		says string // the whole message
 	}{
 		{"nil", nil, ErrValues, "npy: values do not match the header: Write: a = nil; want an Array"},
-		{"unknown dtype", &Array{Header: Header{DType: 99}, Values: []float64{1}}, ErrDType, "npy: unsupported element type: Write: Array.DType = 99; want one of float64, float32, float16, int64, int32, uint16, uint8"},
+		{"unknown dtype", &Array{Header: Header{DType: 99}, Values: []float64{1}}, ErrDType, "npy: unsupported element type: Write: Array.DType = 99; want one of float64, float32, float16, int64, int32, int16, int8, uint32, uint16, uint8, bool"},
 		{"zero dtype is float64", &Array{Values: []float32{1}}, ErrValues, "npy: values do not match the header: Write: Array.Values is a []float32; want a []float64 for DType float64"},
 		{"wrong slice", &Array{Header: Header{DType: Float64, Shape: []int{1}}, Values: []float32{1}}, ErrValues, "npy: values do not match the header: Write: Array.Values is a []float32; want a []float64 for DType float64"},
 		{"float16 needs bits", &Array{Header: Header{DType: Float16, Shape: []int{1}}, Values: []float32{1}}, ErrValues, "npy: values do not match the header: Write: Array.Values is a []float32; want a []uint16 for DType float16"},
@@ -449,6 +475,10 @@ func TestFloat64s(t *testing.T) {
 		{"uint8 integer", Array{Header: Header{DType: Uint8}, Values: []uint8{0x38}}, []float64{0x38}},
 		{"uint8 e4m3", Array{Header: Header{DType: Uint8}, Bits: E4M3, Values: []uint8{0x38}}, []float64{1}},
 		{"uint8 e5m2", Array{Header: Header{DType: Uint8}, Bits: E5M2, Values: []uint8{0x3c}}, []float64{1}},
+		{"int16", Array{Header: Header{DType: Int16, Shape: []int{2}}, Values: []int16{math.MinInt16, 7}}, []float64{-0x1p15, 7}},
+		{"int8", Array{Header: Header{DType: Int8, Shape: []int{2}}, Values: []int8{math.MinInt8, math.MaxInt8}}, []float64{-128, 127}},
+		{"uint32", Array{Header: Header{DType: Uint32}, Values: []uint32{math.MaxUint32}}, []float64{0x1p32 - 1}},
+		{"bool", Array{Header: Header{DType: Bool, Shape: []int{3}}, Values: []bool{true, false, true}}, []float64{1, 0, 1}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -509,14 +539,21 @@ func TestZeroValues(t *testing.T) {
 // lists the words. (Every word's round trip, for every convention, is
 // checked in internal/vocab.)
 func TestWords(t *testing.T) {
-	assert.Equal(t, []DType{Float64, Float32, Float16, Int64, Int32, Uint16, Uint8}, DType(0).Values())
+	assert.Equal(t, []DType{Float64, Float32, Float16, Int64, Int32, Int16, Int8, Uint32, Uint16, Uint8, Bool}, DType(0).Values())
 	assert.Equal(t, []ByteOrder{LittleEndian, BigEndian}, ByteOrder(0).Values())
 	assert.Equal(t, []Bits{Integer, BFloat16, E4M3, E5M2}, Bits(0).Values())
 	var d DType
 	err := d.UnmarshalText([]byte("float8"))
 	require.ErrorIs(t, err, ErrDType)
-	assert.Equal(t, `npy: unsupported element type: element type = "float8"; want one of float64, float32, float16, int64, int32, uint16, uint8`, err.Error())
+	assert.Equal(t, `npy: unsupported element type: element type = "float8"; want one of float64, float32, float16, int64, int32, int16, int8, uint32, uint16, uint8, bool`, err.Error())
 	assert.Equal(t, Float64, d, "a refused word leaves the value alone")
+	// The common names of the floating-point types read as the types.
+	for text, want := range map[string]DType{"fp64": Float64, "double": Float64, "FP32": Float32, "single": Float32,
+		"fp16": Float16, "half": Float16, "binary16": Float16, "bool": Bool, "int8": Int8, "int16": Int16, "uint32": Uint32} {
+		var got DType
+		require.NoError(t, got.UnmarshalText([]byte(text)), text)
+		assert.Equal(t, want, got, text)
+	}
 	err = DType(99).Check()
 	require.ErrorIs(t, err, ErrDType)
 	assert.Contains(t, err.Error(), "element type = 99; want one of float64")

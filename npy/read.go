@@ -58,6 +58,9 @@ func readHeader(fn string, r io.Reader) (Header, error) {
 		return Header{}, fmt.Errorf("%w: %s: the file has %d bytes (%v); want at least 10 (magic string, version, header length)", ErrFormat, fn, n, err)
 	}
 	if string(pre[:6]) != magic {
+		if isZip(pre[:4]) {
+			return Header{}, fmt.Errorf("%w: %s: the file is a zip archive, as an .npz file is (it starts with %q); want a .npy file: the members of an .npz archive are .npy files, read them with OpenArchive", ErrFormat, fn, pre[:4])
+		}
 		return Header{}, fmt.Errorf("%w: %s: the file starts with %q; want the magic string %q", ErrFormat, fn, pre[:6], magic)
 	}
 	v := Version{pre[6], pre[7]}
@@ -246,8 +249,16 @@ func decode(b []byte, dt DType, o ByteOrder) any {
 		return decodeEach(b, 8, func(p []byte) int64 { return int64(bo.Uint64(p)) })
 	case Int32:
 		return decodeEach(b, 4, func(p []byte) int32 { return int32(bo.Uint32(p)) })
+	case Int16:
+		return decodeEach(b, 2, func(p []byte) int16 { return int16(bo.Uint16(p)) })
+	case Uint32:
+		return decodeEach(b, 4, bo.Uint32)
 	case Float16, Uint16:
 		return decodeEach(b, 2, bo.Uint16)
+	case Int8:
+		return decodeEach(b, 1, func(p []byte) int8 { return int8(p[0]) })
+	case Bool:
+		return decodeEach(b, 1, func(p []byte) bool { return p[0] != 0 })
 	}
 	return b // Uint8: the bytes are the values
 }
@@ -281,6 +292,14 @@ func reorder(v any, shape []int, dir int) any {
 	case []uint16:
 		return permute(v, shape, dir)
 	case []uint8:
+		return permute(v, shape, dir)
+	case []bool:
+		return permute(v, shape, dir)
+	case []int8:
+		return permute(v, shape, dir)
+	case []int16:
+		return permute(v, shape, dir)
+	case []uint32:
 		return permute(v, shape, dir)
 	}
 	return v

@@ -41,6 +41,13 @@ var (
 	// ErrInexact: Float64s met an int64 value that float64 cannot hold
 	// exactly.
 	ErrInexact = errors.New("npy: value not exactly representable as float64")
+	// ErrArchive: the bytes are not an .npz (zip) archive this package can
+	// read: not a zip archive, a damaged directory or checksum, or a
+	// member compressed with a method other than stored and deflate.
+	ErrArchive = errors.New("npy: malformed archive")
+	// ErrMember: an archive has no member of the name asked for, or a
+	// member name to write is empty, malformed or repeated.
+	ErrMember = errors.New("npy: no such member")
 )
 
 // MaxElements is the most elements an array of this package may hold,
@@ -59,10 +66,16 @@ const MaxElements = 1 << 28
 //
 // Each has one canonical NumPy descriptor, the kind letter and the size in
 // bytes after the byte-order mark: '<f8' float64, '<f4' float32, '<f2'
-// float16 (IEEE 754 binary16), '<i8' int64, '<i4' int32, '<u2' uint16,
-// '|u1' uint8. Every other descriptor, including complex, bool, other
-// integer widths, extended precision, strings, datetimes, objects and
-// structured types, is refused with ErrDType.
+// float16 (IEEE 754 binary16), '<i8' int64, '<i4' int32, '<i2' int16,
+// '|i1' int8, '<u4' uint32, '<u2' uint16, '|u1' uint8, '|b1' bool. Every
+// other descriptor, including complex, uint64, extended precision,
+// strings, datetimes, objects and structured types, is refused with
+// ErrDType.
+//
+// UnmarshalText (and so every place plumb reads a type's name) also takes
+// the common names of the floating-point types: fp64 and double for
+// float64, fp32 and single for float32, fp16, half and binary16 for
+// float16.
 type DType uint8
 
 // The supported element types.
@@ -74,6 +87,10 @@ const (
 	Int32
 	Uint16
 	Uint8
+	Bool   // '|b1': one byte each, 0 false and 1 true (any other byte reads as true)
+	Int8   // '|i1'
+	Int16  // '<i2'
+	Uint32 // '<u4'
 )
 
 var dtypeWords = vocab.New("npy", "element type", "the element type of a .npy array", ErrDType,
@@ -82,9 +99,17 @@ var dtypeWords = vocab.New("npy", "element type", "the element type of a .npy ar
 	vocab.W(Float16, "float16", "IEEE 754 binary16, descriptor <f2"),
 	vocab.W(Int64, "int64", "64-bit signed integers, descriptor <i8"),
 	vocab.W(Int32, "int32", "32-bit signed integers, descriptor <i4"),
+	vocab.W(Int16, "int16", "16-bit signed integers, descriptor <i2"),
+	vocab.W(Int8, "int8", "8-bit signed integers, descriptor |i1"),
+	vocab.W(Uint32, "uint32", "32-bit unsigned integers, descriptor <u4"),
 	vocab.W(Uint16, "uint16", "16-bit unsigned integers (or bfloat16 bit patterns), descriptor <u2"),
 	vocab.W(Uint8, "uint8", "8-bit unsigned integers (or FP8 bit patterns), descriptor |u1"),
-)
+	vocab.W(Bool, "bool", "booleans, one byte each (0 false, 1 true), descriptor |b1"),
+).Aliases(map[string]DType{
+	"fp64": Float64, "double": Float64,
+	"fp32": Float32, "single": Float32,
+	"fp16": Float16, "half": Float16, "binary16": Float16,
+})
 
 // String returns NumPy's name of the type ("float64"), or "DType(n)" for an
 // invalid value.

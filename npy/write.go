@@ -142,8 +142,21 @@ func encode(bw *bufio.Writer, v any, o ByteOrder) {
 		encodeEach(bw, v, func(b []byte, x int32) []byte { return bo.AppendUint32(b, uint32(x)) })
 	case []uint16:
 		encodeEach(bw, v, bo.AppendUint16)
+	case []int16:
+		encodeEach(bw, v, func(b []byte, x int16) []byte { return bo.AppendUint16(b, uint16(x)) })
+	case []uint32:
+		encodeEach(bw, v, bo.AppendUint32)
 	case []uint8:
 		bw.Write(v)
+	case []int8:
+		encodeEach(bw, v, func(b []byte, x int8) []byte { return append(b, byte(x)) })
+	case []bool:
+		encodeEach(bw, v, func(b []byte, x bool) []byte {
+			if x {
+				return append(b, 1)
+			}
+			return append(b, 0)
+		})
 	}
 }
 

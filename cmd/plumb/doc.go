@@ -4,12 +4,13 @@
 //
 // Usage:
 //
-//	plumb gen   [flags] FILE.npy                        deterministic inputs
-//	plumb run   [flags] OPERATION NAME=FILE.npy ...      reference outputs as .npy
-//	plumb diff  [flags] REFERENCE.npy CANDIDATE.npy      report and verdict
-//	plumb check [flags] OPERATION NAME=FILE.npy ... -got OUTPUT=FILE.npy
+//	plumb gen   [flags] FILE.npy | - | FILE.npz:NAME     deterministic inputs
+//	plumb run   [flags] OPERATION NAME=FILE ...          reference outputs as .npy
+//	plumb diff  [flags] REFERENCE CANDIDATE              report and verdict
+//	plumb check [flags] OPERATION NAME=FILE ... -got OUTPUT=FILE
 //	plumb demo                                           a worked example, no files
-//	plumb help [COMMAND | ops | OPERATION]
+//	plumb version                                        module version, revision, Go version
+//	plumb help [COMMAND | ops | conventions | files | OPERATION]
 //
 // A typical check of an attention kernel:
 //
@@ -23,11 +24,45 @@
 // "version": 1 and keys of the operation (plumb help OPERATION lists them);
 // an unknown key is an error that names it.
 //
-// Tensors are .npy files (package github.com/plumbref/plumb/npy): inputs
-// and candidates may be float64, float32 or float16, and a candidate may be
-// bfloat16, E4M3 or E5M2 bit patterns (uint16, uint8) with -format. Outputs
-// are float64. A -config file is one JSON object of at most
+// Tensors are files of package github.com/plumbref/plumb/npy, named on the
+// command line in one of the forms plumb help files lists: FILE, a .npy
+// file (or an .npz archive of one array); FILE.npz:NAME, the array NAME of
+// an .npz archive (numpy.savez, stored, or numpy.savez_compressed,
+// deflated); FILE:TYPE:DIMS, raw little-endian binary of that element type
+// and shape (x.bin:float32:1,8,128,64; a file of another size is refused
+// with both sizes stated); and - for standard input (one file a command).
+// A name that is a file as it stands is that file, colons and all. Inputs
+// and candidates may be float64, float32 or float16, integers (int64,
+// int32, int16, int8, uint32: their exact values) or, for a candidate,
+// bool; a candidate may be bfloat16, E4M3 or E5M2 bit patterns (uint16,
+// uint8 .npy files) with -format, or raw binary that names its format. A
+// bool input is refused (a mask belongs in the configuration). The names
+// of the formats are the same everywhere (-format, gen -dtype, TYPE):
+// float64 (fp64, double), float32 (fp32, single), float16 (fp16, half,
+// binary16), bfloat16 (bf16), e4m3, e5m2. An .npz archive given alone as
+// the inputs of run or check supplies each array as the input of its
+// name, and as check's -got, each as the output of its name. Outputs are
+// float64: run -out writes a directory of NAME.npy files (the default),
+// one archive (-out FILE.npz), its one output to standard output (-out -;
+// an error naming the outputs when there are several) or the outputs
+// named (-out NAME=FILE, FILE possibly -); gen writes FILE.npy, - or
+// FILE.npz:NAME (added to the archive, the other arrays kept). A -config
+// file ("-": standard input) is one JSON object of at most
 // ops.MaxConfigBytes (1 MiB); an empty or larger file is an error.
+//
+// Data and reports go to standard output; every status line ("wrote …")
+// and progress goes to standard error, so that plumb gen … - > x.npy and
+// plumb run -out out=- … | plumb diff ref.npy - carry clean streams; -quiet
+// silences the status lines and progress of every command.
+//
+// The errors say what to do: a candidate whose shape is the reference's
+// with its axes in another order (a seq-major [1, 128, 8, 64] against a
+// heads-major [1, 8, 128, 64]) is refused with the permutation, the
+// transpose that undoes it, and, for an operation with a "layout" key, the
+// key, its words and its value; a shape with a squeezed or an extra axis
+// of length 1 is recognised as such; an unknown operation or command is
+// named with the nearest names; a bad flag prints the one-line usage and
+// plumb help COMMAND.
 //
 // Non-finite inputs: NaN, +Inf or −Inf in an input of run or check is an
 // error that names the file, the element's index and its value, unless
@@ -49,8 +84,9 @@
 // (times max|ref|) error r, r = 1e-10 for float64 candidates (values 1e-2
 // apart fail) and √u for a narrower format of unit roundoff u.
 // diff -heatmap draws |candidate − reference| over the 2-D slice (the last
-// two dimensions) that holds the worst element, with labelled axes and
-// colour scale.
+// two dimensions) that holds the largest absolute error, as a PNG made with
+// the standard library: a linear or logarithmic colour scale with the
+// tolerance marked on it, the largest error boxed, the axes labelled.
 //
 // When an output of check fails, check also searches for what the port may
 // have done (package github.com/plumbref/plumb/diagnose) and prints it after
@@ -72,7 +108,7 @@
 // seed 1, and cmd/plumb/testdata/gen_check.py reproduces it in Python.
 //
 // Runs longer than a second show progress on stderr when stderr is a
-// terminal; -quiet silences it.
+// terminal; -quiet silences it, and the status lines.
 //
 // Exit status: 0 success (for diff and check: within tolerance), 1 outside
 // the tolerance (for demo: the demonstration did not go as described), 2 a

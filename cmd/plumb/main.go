@@ -21,10 +21,15 @@ const (
 
 // env is what a subcommand sees of the process.
 type env struct {
+	stdin          io.Reader
 	stdout, stderr io.Writer
 	// terminal reports whether stderr is a terminal (progress is shown only
 	// then).
 	terminal bool
+	// stdinBy and stdoutBy name the file read from standard input ("-")
+	// and the output written to standard output, once claimed: each serves
+	// one file of a command.
+	stdinBy, stdoutBy string
 }
 
 // command is one subcommand.
@@ -51,9 +56,16 @@ var order = []string{"gen", "run", "diff", "check", "demo"}
 func sortCommands() {
 	rank := map[string]int{}
 	for i, n := range order {
-		rank[n] = i
+		rank[n] = i + 1
 	}
-	sort.SliceStable(commands, func(i, j int) bool { return rank[commands[i].name] < rank[commands[j].name] })
+	last := len(order) + 1 // a command order does not name goes after the others
+	at := func(n string) int {
+		if r, ok := rank[n]; ok {
+			return r
+		}
+		return last
+	}
+	sort.SliceStable(commands, func(i, j int) bool { return at(commands[i].name) < at(commands[j].name) })
 }
 
 func lookup(name string) *command {
@@ -68,7 +80,7 @@ func lookup(name string) *command {
 func main() {
 	fi, err := os.Stderr.Stat()
 	term := err == nil && fi.Mode()&os.ModeCharDevice != 0
-	os.Exit(plumb(os.Args[1:], &env{stdout: os.Stdout, stderr: os.Stderr, terminal: term}))
+	os.Exit(plumb(os.Args[1:], &env{stdin: os.Stdin, stdout: os.Stdout, stderr: os.Stderr, terminal: term}))
 }
 
 // plumb runs the command line args and returns the exit status.
@@ -84,16 +96,18 @@ func plumb(args []string, e *env) int {
 	}
 	c := lookup(name)
 	if c == nil {
-		fmt.Fprintf(e.stderr, "plumb: command = %q; want one of %s, help (plumb help)\n", name, commandNames())
+		fmt.Fprintf(e.stderr, "plumb: command = %q; want one of %s, help (plumb help)%s\n", name, commandNames(), nearestHint(name, append(commandNames0(), "help")))
 		return exitUsage
 	}
-	fs, opts := c.flagSet(e.stderr)
+	fs, opts := c.flagSet(io.Discard)
 	pos, err := parseInterleaved(fs, args[1:])
 	if errors.Is(err, flag.ErrHelp) {
+		c.writeHelp(e.stdout, fs)
 		return exitPass
 	}
 	if err != nil {
-		return exitUsage // flag has printed the message and the usage
+		fmt.Fprintf(e.stderr, "plumb %s: %v\nusage: plumb %s\n(plumb help %s explains the command and every flag)\n", c.name, err, c.usage, c.name)
+		return exitUsage
 	}
 	// Every error a command returns is a usage or input error (exit 2); a
 	// verdict outside the tolerance is the status 1 with no error.
@@ -112,7 +126,7 @@ func (c *command) flagSet(w io.Writer) (*flag.FlagSet, any) {
 	fs := flag.NewFlagSet("plumb "+c.name, flag.ContinueOnError)
 	fs.SetOutput(w)
 	opts := c.flags(fs)
-	fs.Usage = func() { c.writeHelp(fs.Output(), fs) }
+	fs.Usage = func() {} // plumb prints the usage line, or the help for -h
 	return fs, opts
 }
 
@@ -157,12 +171,95 @@ func wantArgs(cmd string, args []string, n int, usage string) error {
 	return fmt.Errorf("arguments = %q; want %s (plumb help %s)", args, usage, cmd)
 }
 
-func commandNames() string {
+func commandNames() string { return strings.Join(commandNames0(), ", ") }
+
+func commandNames0() []string {
 	var n []string
 	for _, c := range commands {
 		n = append(n, c.name)
 	}
-	return strings.Join(n, ", ")
+	return n
+}
+
+// helpTopics lists every topic of plumb help.
+func helpTopics() []string {
+	return append(append(commandNames0(), "ops", "conventions", "files"), ops.Names()...)
+}
+
+// lookupOp is ops.Lookup with a message that suggests the nearest names.
+func lookupOp(name string) (ops.Op, error) {
+	op, err := ops.Lookup(name)
+	if err == nil {
+		return op, nil
+	}
+	near := nearest(name, ops.Names())
+	if len(near) > 0 {
+		return nil, fmt.Errorf("operation %q is unknown; did you mean %s? (plumb help ops lists the %d operations)", name, strings.Join(near, " or "), len(ops.Names()))
+	}
+	return nil, fmt.Errorf("operation %q is unknown; want one of %s (plumb help ops)", name, strings.Join(ops.Names(), ", "))
+}
+
+// nearestHint is "; did you mean NAME?" for the names nearest to s, or "".
+func nearestHint(s string, names []string) string {
+	if len(names) < 2 {
+		return "" // the message lists the one name already
+	}
+	near := nearest(s, names)
+	if len(near) == 0 {
+		return ""
+	}
+	return "; did you mean " + strings.Join(near, " or ") + "?"
+}
+
+// nearest returns the names closest to s by edit distance (at most three,
+// within a quarter of the name's length or 2), and the names s
+// starts or of which it is a part when there are none such.
+func nearest(s string, names []string) []string {
+	best, out := 0, []string(nil)
+	for _, n := range names {
+		d := editDistance(strings.ToLower(s), n)
+		if d > max(2, len(n)/4) {
+			continue
+		}
+		switch {
+		case out == nil || d < best:
+			best, out = d, []string{n}
+		case d == best:
+			out = append(out, n)
+		}
+	}
+	if out == nil && len(s) >= 3 {
+		for _, n := range names {
+			if strings.HasPrefix(n, strings.ToLower(s)) || strings.Contains(n, strings.ToLower(s)) {
+				out = append(out, n)
+			}
+		}
+	}
+	if len(out) > 3 {
+		out = out[:3]
+	}
+	return out
+}
+
+// editDistance is the Levenshtein distance between a and b, in bytes.
+func editDistance(a, b string) int {
+	prev := make([]int, len(b)+1)
+	cur := make([]int, len(b)+1)
+	for j := range prev {
+		prev[j] = j
+	}
+	for i := 1; i <= len(a); i++ {
+		cur[0] = i
+		for j := 1; j <= len(b); j++ {
+			c := 1
+			if a[i-1] == b[j-1] {
+				c = 0
+			}
+			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+c)
+		}
+		prev, cur = cur, prev
+	}
+	return prev[len(b)]
 }
 
 func topUsage(w io.Writer) {
@@ -174,11 +271,13 @@ usage: plumb COMMAND [flags] [arguments]
 commands:
 `)
 	for _, c := range commands {
-		fmt.Fprintf(w, "  %-6s %s\n", c.name, c.summary)
+		fmt.Fprintf(w, "  %-7s %s\n", c.name, c.summary)
 	}
-	fmt.Fprintf(w, `  help   this text; plumb help COMMAND explains a command and every flag,
-         plumb help ops lists the operations, plumb help OPERATION explains one,
-         plumb help conventions lists every convention and its words
+	fmt.Fprintf(w, `  help    this text; plumb help COMMAND explains a command and every flag,
+          plumb help ops lists the operations, plumb help OPERATION explains one,
+          plumb help conventions lists every convention and its words,
+          plumb help files the kinds of file: .npy, .npz members (FILE.npz:NAME),
+          raw binary (FILE:TYPE:DIMS) and - for standard input or output
 
 Flags go before, between or after the arguments. Exit status: 0 success (and,
 for diff and check, within tolerance), 1 outside the tolerance, 2 a usage or
@@ -201,6 +300,10 @@ func help(e *env, args []string) int {
 		c.writeHelp(e.stdout, fs)
 		return exitPass
 	}
+	if topic == "files" {
+		fmt.Fprintf(e.stdout, "files: what every command reads and writes, and how to name it\n%s", filesAbout)
+		return exitPass
+	}
 	if topic == "conventions" {
 		writeConventions(e.stdout)
 		return exitPass
@@ -217,7 +320,7 @@ func help(e *env, args []string) int {
 		writeOpHelp(e.stdout, o)
 		return exitPass
 	}
-	fmt.Fprintf(e.stderr, "plumb help: topic = %q; want a command (%s), ops, conventions or an operation (plumb help ops lists them)\n", topic, commandNames())
+	fmt.Fprintf(e.stderr, "plumb help: topic = %q; want a command (%s), ops, conventions, files or an operation (plumb help ops lists them)%s\n", topic, commandNames(), nearestHint(topic, helpTopics()))
 	return exitUsage
 }
 
@@ -269,6 +372,6 @@ func writeOpHelp(w io.Writer, o ops.Op) {
 			fmt.Fprintf(w, "  %-12s %s%s\n", p.Name, p.Doc, opt)
 		}
 	}
-	port("inputs (NAME=FILE.npy)", o.Inputs())
+	port("inputs (NAME=FILE; plumb help files)", o.Inputs())
 	port("outputs (written as NAME.npy, float64)", o.Outputs())
 }

@@ -1,9 +1,11 @@
 package main
 
 import (
+	"errors"
 	"flag"
 	"fmt"
 	"io"
+	"maps"
 	"math"
 	"os"
 	"path/filepath"
@@ -14,6 +16,7 @@ import (
 	"time"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
 )
 
@@ -55,15 +58,16 @@ func progress(e *env, quiet bool, label string) (done func()) {
 }
 
 type runOptions struct {
-	config, out    string
+	config         string
+	out            []string
 	allowNonFinite bool
 	quiet          bool
 }
 
 func (o *runOptions) register(fs *flag.FlagSet) {
-	fs.StringVar(&o.config, "config", "", fmt.Sprintf("the operation's JSON configuration `file`, at most %d bytes (default: {\"version\": 1};\nplumb help OPERATION lists its keys)", ops.MaxConfigBytes))
+	fs.StringVar(&o.config, "config", "", fmt.Sprintf("the operation's JSON configuration `file`, at most %d bytes; - reads standard input\n(default: {\"version\": 1}; plumb help OPERATION lists its keys)", ops.MaxConfigBytes))
 	fs.BoolVar(&o.allowNonFinite, "allow-nonfinite", false, "pass NaN and ±Inf in the inputs to the reference, whose special cases then apply,\ninstead of refusing them")
-	fs.BoolVar(&o.quiet, "quiet", false, "no progress on stderr")
+	fs.BoolVar(&o.quiet, "quiet", false, "no status lines and no progress on stderr")
 }
 
 // refRun is an operation run on the inputs of the command line.
@@ -76,22 +80,22 @@ type refRun struct {
 
 // reference reads the configuration and inputs and runs the operation.
 func (o *runOptions) reference(e *env, args []string) (*refRun, error) {
-	if len(args) == 0 {
-		return nil, fmt.Errorf("arguments = []; want an OPERATION and its inputs NAME=FILE.npy (plumb help ops)")
-	}
-	op, err := ops.Lookup(args[0])
+	op, err := operation(args)
 	if err != nil {
 		return nil, err
 	}
-	files, err := namedFiles(args[1:], "input")
+	files, err := e.namedFiles(args[1:], "input", true)
 	if err != nil {
+		return nil, err
+	}
+	if err := knownInputs(op, files); err != nil {
 		return nil, err
 	}
 	r := &refRun{op: op}
-	if r.config, err = readConfig(o.config); err != nil {
+	if r.config, err = e.readConfig(o.config); err != nil {
 		return nil, err
 	}
-	if r.in, err = readInputs(files, o.allowNonFinite); err != nil {
+	if r.in, err = e.readInputs(files, o.allowNonFinite); err != nil {
 		return nil, err
 	}
 	done := progress(e, o.quiet, "running "+op.Name())
@@ -103,11 +107,49 @@ func (o *runOptions) reference(e *env, args []string) (*refRun, error) {
 	return r, nil
 }
 
+// operation is the operation args[0] names.
+func operation(args []string) (ops.Op, error) {
+	if len(args) == 0 {
+		return nil, fmt.Errorf("arguments = []; want an OPERATION and its inputs NAME=FILE.npy (plumb help ops)")
+	}
+	return lookupOp(args[0])
+}
+
+// knownInputs refuses an input name the operation does not have, before
+// any file is read.
+func knownInputs(op ops.Op, files map[string]string) error {
+	var names []string
+	for _, p := range op.Inputs() {
+		names = append(names, p.Name)
+	}
+	for _, n := range slices.Sorted(maps.Keys(files)) {
+		if !slices.Contains(names, n) {
+			from := ""
+			if f := files[n]; strings.HasSuffix(f, ":"+n) {
+				from = fmt.Sprintf(" (an array of %s)", strings.TrimSuffix(f, ":"+n))
+			}
+			return fmt.Errorf("input %q%s is not an input of %s; want one of %s%s (plumb help %s)", n, from, op.Name(), strings.Join(names, ", "), nearestHint(n, names), op.Name())
+		}
+	}
+	return nil
+}
+
 var runAbout = fmt.Sprintf(`
 Runs the float64 reference of OPERATION (plumb help ops lists them) with the
-configuration of -config on the inputs NAME=FILE.npy (float64, float32 or
-float16 files) and writes each output as DIR/NAME.npy in float64, DIR being
--out. plumb help OPERATION lists its configuration keys, inputs and outputs.
+configuration of -config on the inputs NAME=FILE (float64, float32 or
+float16 files, integer files by their values; a FILE may be an .npz
+array FILE.npz:NAME, raw binary FILE:TYPE:DIMS or - for standard input:
+plumb help files) and writes each output in float64, by default as
+DIR/NAME.npy with DIR the -out directory. An .npz archive given alone
+supplies its arrays as the inputs of their names. plumb help OPERATION
+lists its configuration keys, inputs and outputs.
+
+-out says where the outputs go: a directory (created if missing) of
+NAME.npy files; FILE.npz, one archive holding every output as NAME; -, the
+one output as a .npy stream on standard output (an error naming the
+outputs when there are several); or NAME=FILE, repeated, only the outputs
+named, each to its FILE (- for standard output). A status line for each
+file written goes to standard error; -quiet leaves them out.
 
 A -config file is one JSON object of at most %d bytes
 (ops.MaxConfigBytes); an empty file is an error (the smallest
@@ -128,8 +170,10 @@ no temporary behind.
 
 var checkAbout = fmt.Sprintf(`
 Runs OPERATION as plumb run does, then compares each candidate given with
--got OUTPUT=FILE.npy (a port's output, on the same inputs) with the
-reference output of that name, as plumb diff does. Exit status 0 when every
+-got OUTPUT=FILE (a port's output, on the same inputs; any file of
+plumb help files) with the reference output of that name, as plumb diff
+does; -got FILE.npz alone judges each array of the archive as the output
+of its name. Exit status 0 when every
 candidate is within tolerance, 1 when one is not, 2 for an error.
 
 The inputs and -config are read as plumb run reads them: NaN or ±Inf in an
@@ -170,12 +214,12 @@ search's result as data (absent when every output passes or with
 "edits" as data, one object a change: "key", "value" and "note" ("1/d")
 for a configuration key, "remove" for a key taken out, "mixup" for a
 tensor read or written another way.
-`, diagnosisCandidates, diagnosisElements) + toleranceAbout
+`, diagnosisCandidates, diagnosisElements) + toleranceAbout + reportAbout
 
 func init() {
 	commands = append(commands, &command{
 		name:    "run",
-		usage:   "run [flags] OPERATION NAME=FILE.npy ...",
+		usage:   "run [flags] OPERATION NAME=FILE ...",
 		summary: "run the float64 reference of an operation on .npy inputs, write .npy outputs",
 		about:   runAbout,
 		flags:   runFlags,
@@ -183,7 +227,7 @@ func init() {
 		run:     runRun,
 	}, &command{
 		name:    "check",
-		usage:   "check [flags] OPERATION NAME=FILE.npy ... -got OUTPUT=FILE.npy ...",
+		usage:   "check [flags] OPERATION NAME=FILE ... -got OUTPUT=FILE ...",
 		summary: "run the reference and diff a port's outputs against it in one step",
 		about:   checkAbout,
 		flags:   checkFlags,
@@ -195,41 +239,178 @@ func init() {
 func runFlags(fs *flag.FlagSet) any {
 	o := &runOptions{}
 	o.register(fs)
-	fs.StringVar(&o.out, "out", ".", "`directory` the outputs are written to (created if missing)")
+	fs.Func("out", "where the outputs go: a `directory` of NAME.npy files (default: .), FILE.npz (one archive),\n- (the one output to standard output) or NAME=FILE (that output only; repeat for more)", func(s string) error {
+		if s == "" {
+			return errors.New("empty; want a directory, FILE.npz, - or NAME=FILE")
+		}
+		o.out = append(o.out, s)
+		return nil
+	})
 	return o
+}
+
+// runTarget is where run writes its outputs (-out).
+type runTarget struct {
+	dir     string            // a directory of NAME.npy files
+	archive string            // one .npz archive
+	named   map[string]string // NAME=FILE: only these outputs
+	order   []string          // the names of named, in the order given
+}
+
+// parseOut reads the -out flags.
+func parseOut(outs []string) (*runTarget, error) {
+	if len(outs) == 0 {
+		return &runTarget{dir: "."}, nil
+	}
+	t := &runTarget{named: map[string]string{}}
+	var plain []string
+	for _, s := range outs {
+		name, file, ok := strings.Cut(s, "=")
+		if ok && nameRE.MatchString(name) && file != "" {
+			if first, dup := t.named[name]; dup {
+				return nil, fmt.Errorf("-out %s=: output %q is given twice (%s, %s); want each output once", name, name, first, file)
+			}
+			t.named[name] = file
+			t.order = append(t.order, name)
+			continue
+		}
+		plain = append(plain, s)
+	}
+	switch {
+	case len(plain) > 1 || len(plain) == 1 && len(t.named) > 0:
+		return nil, fmt.Errorf("-out = %q; want one directory, FILE.npz or -, or else NAME=FILE flags alone", outs)
+	case len(plain) == 0:
+		return t, nil
+	}
+	t.named = nil
+	switch {
+	case plain[0] == "-":
+		t.named = nil
+		t.order = []string{"-"}
+	case strings.HasSuffix(plain[0], ".npz"):
+		t.archive = plain[0]
+	default:
+		t.dir = plain[0]
+	}
+	return t, nil
 }
 
 // runRun is plumb run: the reference's outputs, written as .npy files.
 func runRun(e *env, opts any, args []string) (int, error) {
 	o := opts.(*runOptions)
+	target, err := parseOut(o.out)
+	if err != nil {
+		return exitUsage, err
+	}
+	if op, err := operation(args); err == nil {
+		for _, n := range target.order {
+			if n != "-" && !slices.ContainsFunc(op.Outputs(), func(p ops.Port) bool { return p.Name == n }) {
+				return exitUsage, fmt.Errorf("-out %s=%s: output %q is not an output of %s; want one of %s", n, target.named[n], n, op.Name(), portNames(op.Outputs()))
+			}
+		}
+	}
 	r, err := o.reference(e, args)
 	if err != nil {
 		return exitUsage, err
 	}
-	if err := os.MkdirAll(o.out, 0o755); err != nil {
-		return exitUsage, err
-	}
-	var set outputSet
-	defer set.abort()
-	var wrote []string
+	var names []string // the outputs given, in the operation's order
 	for _, p := range r.op.Outputs() {
-		t, ok := r.out[p.Name]
-		if !ok {
-			continue
+		if _, ok := r.out[p.Name]; ok {
+			names = append(names, p.Name)
 		}
-		path := filepath.Join(o.out, p.Name+".npy")
-		if err := set.add(path, tensorWriter(t)); err != nil {
+	}
+	var wrote []string
+	switch {
+	case len(target.order) == 1 && target.order[0] == "-":
+		if len(names) != 1 {
+			return exitUsage, fmt.Errorf("-out -: %s gives %d outputs here (%s) and standard output takes one; want -out NAME=- for one of them (-out %s=-), or -out FILE.npz for all in one archive",
+				r.op.Name(), len(names), strings.Join(names, ", "), names[0])
+		}
+		t := r.out[names[0]]
+		if err := e.writeOutput("-", tensorWriter(t)); err != nil {
 			return exitUsage, err
 		}
-		wrote = append(wrote, fmt.Sprintf("wrote %s: float64 %v\n", path, t.Shape))
-	}
-	if err := set.commit(); err != nil {
-		return exitUsage, err
+		wrote = append(wrote, fmt.Sprintf("wrote standard output: %s, float64 %v\n", names[0], t.Shape))
+	case target.archive != "":
+		err := writeAtomic(target.archive, func(w io.Writer) error {
+			aw := npy.NewArchiveWriter(w, false)
+			for _, n := range names {
+				a, err := tensorArray(r.out[n])
+				if err == nil {
+					err = aw.Add(n, a)
+				}
+				if err != nil {
+					return err
+				}
+			}
+			return aw.Close()
+		})
+		if err != nil {
+			return exitUsage, err
+		}
+		var parts []string
+		for _, n := range names {
+			parts = append(parts, fmt.Sprintf("%s float64 %v", n, r.out[n].Shape))
+		}
+		wrote = append(wrote, fmt.Sprintf("wrote %s: %s\n", target.archive, strings.Join(parts, ", ")))
+	default:
+		var set outputSet
+		defer set.abort()
+		stdout := ""
+		paths := map[string]string{}
+		for _, n := range names {
+			paths[n] = filepath.Join(target.dir, n+".npy")
+		}
+		if target.named != nil {
+			paths = map[string]string{}
+			for _, n := range target.order {
+				if _, ok := r.out[n]; !ok {
+					return exitUsage, fmt.Errorf("-out %s=%s: output = %q; want one this configuration gives: %s", n, target.named[n], n, strings.Join(names, ", "))
+				}
+				paths[n] = target.named[n]
+				if paths[n] == "-" {
+					if stdout != "" {
+						return exitUsage, fmt.Errorf("-out %s=- and -out %s=-: standard output takes one output; want a file for the other", stdout, n)
+					}
+					stdout = n
+				}
+			}
+		} else if err := os.MkdirAll(target.dir, 0o755); err != nil {
+			return exitUsage, err
+		}
+		for _, n := range names {
+			path, ok := paths[n]
+			if !ok || path == "-" {
+				continue
+			}
+			if err := set.add(path, tensorWriter(r.out[n])); err != nil {
+				return exitUsage, err
+			}
+			wrote = append(wrote, fmt.Sprintf("wrote %s: float64 %v\n", path, r.out[n].Shape))
+		}
+		if err := set.commit(); err != nil {
+			return exitUsage, err
+		}
+		if stdout != "" {
+			if err := e.writeOutput("-", tensorWriter(r.out[stdout])); err != nil {
+				return exitUsage, err
+			}
+			wrote = append(wrote, fmt.Sprintf("wrote standard output: %s, float64 %v\n", stdout, r.out[stdout].Shape))
+		}
 	}
 	for _, w := range wrote {
-		fmt.Fprint(e.stdout, w)
+		e.status(o.quiet, "%s", w)
 	}
 	return exitPass, nil
+}
+
+// portNames lists the names of ports.
+func portNames(ps []ops.Port) string {
+	var n []string
+	for _, p := range ps {
+		n = append(n, p.Name)
+	}
+	return strings.Join(n, ", ")
 }
 
 type checkOptions struct {
@@ -245,7 +426,7 @@ func checkFlags(fs *flag.FlagSet) any {
 	o.runOptions.register(fs)
 	o.judgeFlags.register(fs)
 	fs.Float64Var(&o.k, "k", compare.DefaultK, "the yardstick's factor")
-	fs.Func("got", "a candidate `OUTPUT=FILE.npy` to judge (repeat for several outputs; at least one)", func(s string) error {
+	fs.Func("got", "a candidate `OUTPUT=FILE` to judge (repeat for several outputs; at least one), or an .npz archive\nwhose arrays are named as the outputs", func(s string) error {
 		o.got = append(o.got, s)
 		return nil
 	})
@@ -256,7 +437,10 @@ func checkFlags(fs *flag.FlagSet) any {
 // runCheck is plumb check: the reference, and a report on each candidate.
 func runCheck(e *env, opts any, args []string) (int, error) {
 	o := opts.(*checkOptions)
-	gotFiles, err := o.candidates(args)
+	if _, err := operation(args); err != nil {
+		return exitUsage, err
+	}
+	gotFiles, err := o.candidates(e, args)
 	if err != nil {
 		return exitUsage, err
 	}
@@ -318,32 +502,33 @@ func writeCheck(w io.Writer, asJSON bool, reports []namedReport, diag *diagnosis
 // candidates checks -k and the -got flags, and returns the candidate file
 // of each output; it refuses an output the operation (args[0], when it is
 // one) does not have before any input is read.
-func (o *checkOptions) candidates(args []string) (map[string]string, error) {
+func (o *checkOptions) candidates(e *env, args []string) (map[string]string, error) {
 	if !(o.k >= 1) || math.IsInf(o.k, 0) {
 		return nil, fmt.Errorf("-k = %v; want a finite number ≥ 1", o.k)
 	}
 	if len(o.got) == 0 {
 		return nil, fmt.Errorf("-got is missing; want one or more -got OUTPUT=FILE.npy")
 	}
-	files, err := namedFiles(o.got, "candidate")
+	files, err := e.namedFiles(o.got, "candidate", true)
 	if err != nil {
 		return nil, err
 	}
-	if len(args) == 0 {
-		return files, nil
-	}
-	op, err := ops.Lookup(args[0])
+	op, err := operation(args)
 	if err != nil {
-		return files, nil // reference says so
+		return nil, err
 	}
 	var names []string
 	for _, p := range op.Outputs() {
 		names = append(names, p.Name)
 	}
-	for n := range files {
-		if !slices.Contains(names, n) {
-			return nil, fmt.Errorf("-got %s: output = %q; want one of the outputs of %s: %s", n, n, op.Name(), strings.Join(names, ", "))
+	for _, n := range slices.Sorted(maps.Keys(files)) {
+		if slices.Contains(names, n) {
+			continue
 		}
+		if arc, ok := strings.CutSuffix(files[n], ":"+n); ok && slices.Contains(o.got, arc) {
+			return nil, fmt.Errorf("-got %s: its array %q is not an output of %s; want arrays named as the outputs, %s (or -got OUTPUT=%s:NAME for one array)", arc, n, op.Name(), strings.Join(names, ", "), arc)
+		}
+		return nil, fmt.Errorf("-got %s: output = %q; want one of the outputs of %s: %s", n, n, op.Name(), strings.Join(names, ", "))
 	}
 	return files, nil
 }
@@ -363,14 +548,15 @@ func (j *judge) output(name, path string) (*namedReport, error) {
 	if !ok {
 		return nil, fmt.Errorf("-got %s: output = %q; want one this configuration gives: %s", name, name, outputNames(j.r.out))
 	}
-	got, err := readTensor(path, canonicalBits(j.o.format))
+	got, err := j.e.readTensor(path, canonicalBits(j.o.format))
 	if err != nil {
 		return nil, err
 	}
 	if !slices.Equal(got.tensor.Shape, ref.Shape) {
-		return nil, fmt.Errorf("shapes differ: %s has shape %v; want %v, the shape of the reference %s", got.path, got.tensor.Shape, ref.Shape, name)
+		return nil, fmt.Errorf("shapes differ: %s has shape %v; want %v, the shape of the reference %s%s", got.path, got.tensor.Shape, ref.Shape, name,
+			shapeHint(got.tensor.Shape, ref.Shape, j.r.op, j.r.config))
 	}
-	f, err := candidateFormat(j.o.format, got.dtype)
+	f, err := candidateFormat(j.o.format, got)
 	if err != nil {
 		return nil, fmt.Errorf("-format: %w", err)
 	}
