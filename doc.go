@@ -30,6 +30,8 @@
 //	           E5M2) with exact rounding, ULP distances, diff reports,
 //	           tolerances and the low-precision yardstick; helpers for
 //	           testing.TB and go-cmp
+//	gen        the pseudo-random inputs plumb gen writes, value for value:
+//	           seeded normal and uniform values
 //	npy        read and write NumPy .npy files, the exchange format with a
 //	           port under test
 //	ops        every kernel as a named operation with a JSON configuration,

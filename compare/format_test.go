@@ -523,7 +523,7 @@ func FuzzRound(f *testing.F) {
 	})
 }
 
-func TestRoundSliceAndWiden(t *testing.T) {
+func TestRoundSliceWidenNarrow(t *testing.T) {
 	x := []float64{1.0 / 3, -65520, math.NaN(), 0}
 	got := Binary16.RoundSlice(x)
 	want := []float64{Binary16.Round(1.0 / 3), math.Inf(-1), math.NaN(), 0}
@@ -533,5 +533,16 @@ func TestRoundSliceAndWiden(t *testing.T) {
 	assert.Equal(t, 1.0/3, x[0], "the input is not modified")
 	// float32(0.1) widened exactly is 0.100000001490116119384765625.
 	assert.Equal(t, []float64{0.100000001490116119384765625, -2}, Widen([]float32{0.1, -2}))
-	assert.Empty(t, Widen([]float64(nil)))
+	assert.Nil(t, Widen([]float64(nil)))
+
+	// Narrow rounds as Float32.Round does: a tie to even (1 + 2⁻²⁴ to 1),
+	// above a tie up, a subnormal, beyond the largest float32 to ±Inf, NaN.
+	x = []float64{1 + 0x1p-24, 1 + 0x1p-24 + 0x1p-52, 0x1.8p-149, -0x1.ffffffp127, math.MaxFloat64, 0.1, math.NaN()}
+	n := Narrow(x)
+	assert.Equal(t, []float32{1, 1 + 0x1p-23, 0x1p-148, float32(math.Inf(-1)), float32(math.Inf(1)), 0.1}, n[:6])
+	assert.True(t, math.IsNaN(float64(n[6])))
+	for i, v := range Widen(n) {
+		assert.True(t, same(Float32.Round(x[i]), v), "element %d: Narrow gives %v, Float32.Round %v", i, v, Float32.Round(x[i]))
+	}
+	assert.Nil(t, Narrow(nil))
 }

@@ -24,10 +24,11 @@ type change struct {
 }
 
 // generate lists the single changes of the operation's keys and inputs:
-// the words of every word key, the common values of the numeric keys, the
-// tensor mix-ups, and last the query offsets, nearest first. in is the
-// problem the candidates run on, full the whole problem (whose query and
-// key counts place the offsets).
+// the words of every word key but the precision idioms (Key.Idiom: they
+// never change the reference; see idiomChanges), the common values of the
+// numeric keys, the tensor mix-ups, and last the query offsets, nearest
+// first. in is the problem the candidates run on, full the whole problem
+// (whose query and key counts place the offsets).
 func generate(o ops.Op, cfg map[string]any, in, full ops.Tensors) [][]change {
 	var words, numbers, offsets [][]change
 	for _, k := range o.Keys() {
@@ -44,6 +45,9 @@ func generate(o ops.Op, cfg map[string]any, in, full ops.Tensors) [][]change {
 		cur, present := getPath(cfg, path)
 		switch k.Type {
 		case "word":
+			if k.Idiom {
+				continue // a precision idiom changes the yardstick, not the reference: see idiomChanges
+			}
 			curWord := ""
 			if present {
 				curWord, _ = cur.(string)

@@ -190,6 +190,34 @@ func softmaxEntry(name, op string, shape []int, port func(x []float32) []float32
 		port: func(in ops.Tensors) ops.Tensors { return ops.Tensors{out: {Data: to64(port(t32(in, "x")))}} }}
 }
 
+// offset returns the entry with every x moved by shift (kept a float32
+// number): rows of mean shift.
+func offset(e entry, shift float64) entry {
+	x := e.in["x"]
+	d := make([]float64, len(x.Data))
+	for i, v := range x.Data {
+		d[i] = float64(float32(shift + v))
+	}
+	e.in["x"] = ops.Tensor{Shape: x.Shape, Data: d}
+	return e
+}
+
+// overflowing is a softmax input [2, 4, 64] whose rows 1 and 6 hold
+// logits in [84, 88) (float32 numbers): e^x is finite, the unshifted sum
+// of the row +Inf; the other rows are in [−4, 4).
+func overflowing() ops.Tensor {
+	x := uniform(61, 512, -4, 4)
+	for _, r := range []int{1, 6} {
+		for i := range 64 {
+			x[r*64+i] = 86 + x[r*64+i]/2
+		}
+	}
+	for i, v := range x {
+		x[i] = float64(float32(v))
+	}
+	return ops.Tensor{Shape: []int{2, 4, 64}, Data: x}
+}
+
 // with returns a copy of the port p changed by slip.
 func with[P any](p P, slip func(*P)) P {
 	slip(&p)
@@ -243,6 +271,20 @@ func catalogue() []entry {
 	c = append(c, rotEntry("scaling left out", interp, r, `"scaling.method": "none"`))
 	c = append(c, rotEntry("correct interpolation", interp, with(r, func(x *rotPort) { x.divide = 4 })))
 	c = append(c, rotEntry("two slips: halves and base 1e6", `{"version":1}`, with(r, func(x *rotPort) { x.halves, x.base = true, 1000000 }), `"pairing": "halves"`, `"base": 1000000`))
+	// Over 2048 positions, where forming the angles in float32 costs about
+	// 170 times the plain float32 run's error (ops.TestRotaryAnglesPort).
+	// One head of 2048 positions of 32 dims.
+	long := rotPort{L: 2048, D: 32, rotated: 32, base: 10000, divide: 1, sign: 1}
+	longEntry := func(name string, r rotPort, want ...string) entry {
+		e := rotEntry(name, `{"version":1}`, r, want...)
+		e.in = ops.Tensors{"x": tensor([]int{1, 1, r.L, r.D}, 8)}
+		return e
+	}
+	c = append(c, longEntry("float32 angles at 2048 positions", with(long, func(x *rotPort) { x.angles32 = true }), `"angles": "float32-angles"`))
+	c = append(c, longEntry("float32 angles and base 500000 at 2048 positions", with(long, func(x *rotPort) { x.angles32, x.base = true, 500000 }),
+		`"base": 500000`, `"angles": "float32-angles"`))
+	c = append(c, longEntry("halves at 2048 positions", with(long, func(x *rotPort) { x.halves = true }), `"pairing": "halves"`))
+	c = append(c, longEntry("base 500000 at 2048 positions", with(long, func(x *rotPort) { x.base = 500000 }), `"base": 500000`))
 	c = append(c, entry{family: "rotary and scaling", name: "tables with base 1e6", op: "rotary-tables", config: `{"version":1,"dim":8,"length":6}`,
 		format: compare.Float32, want: []string{`"base": 1000000`},
 		port: func(ops.Tensors) ops.Tensors {
@@ -294,6 +336,13 @@ func catalogue() []entry {
 	c = append(c, nf("RMSNorm ε 1e-6", "rmsnorm-forward", with(rms, func(n *normPort) { n.eps = 1e-6 }), `"epsilon": 0.000001`))
 	c = append(c, nf("two slips: gain 1 + w and ε 1e-6", "layernorm-forward", with(ln, func(n *normPort) { n.onePlus, n.eps = true, 1e-6 }), `"weight_form": "one-plus"`, `"epsilon": 0.000001`))
 
+	// One-pass variance on rows of mean 10 and spread 1: the cancellation
+	// costs about μ²/σ² = 300 roundings of σ².
+	onePass := with(ln, func(n *normPort) { n.onePass = true })
+	c = append(c, offset(nf("LayerNorm one-pass variance, rows of mean 10", "layernorm-forward", onePass, `"variance": "one-pass"`), 10))
+	c = append(c, offset(nf("LayerNorm one-pass variance, rows of mean 10, ε 1e-3", "layernorm-forward", with(onePass, func(n *normPort) { n.eps = 1e-3 }),
+		`"epsilon": 0.001`, `"variance": "one-pass"`), 10))
+
 	// A correct LayerNorm computed in float64 and stored in float32.
 	c = append(c, entry{family: "norms forward", name: "LayerNorm correct, float64 arithmetic", op: "layernorm-forward", config: normCfg,
 		in: normEntry("", "", "layernorm-forward", normCfg, ln).in, format: compare.Float32,
@@ -326,6 +375,7 @@ func catalogue() []entry {
 	c = append(c, nb("LayerNorm ε added to the root", "layernorm-backward", with(ln, func(n *normPort) { n.addRoot = true }), `"epsilon_placement": "added-to-root"`))
 	c = append(c, nb("RMSNorm ε 1e-6", "rmsnorm-backward", with(rms, func(n *normPort) { n.eps = 1e-6 }), `"epsilon": 0.000001`))
 	c = append(c, nb("LayerNorm gain 1 + w", "layernorm-backward", with(ln, func(n *normPort) { n.onePlus = true }), `"weight_form": "one-plus"`))
+	c = append(c, offset(nb("LayerNorm one-pass variance, rows of mean 10", "layernorm-backward", onePass, `"variance": "one-pass"`), 10))
 
 	// Activations.
 	c = append(c, actEntry("GELU correct", "gelu", 0, geluErf, false, false))
@@ -378,6 +428,28 @@ func catalogue() []entry {
 	c = append(c, softmaxEntry("log-sum-exp correct", "logsumexp", []int{2, 5, 5}, func(x []float32) []float32 { return lsePort(x, 5, 5, 1, 25) }, compare.Float32))
 	c = append(c, softmaxEntry("log-sum-exp over columns", "logsumexp", []int{2, 5, 5}, func(x []float32) []float32 { return lsePort(x, 5, 5, 5, 25) }, compare.Float32,
 		`x reduced over its second-to-last axis`))
+
+	// Precision idioms of a float32 softmax, on rows of 64: running sums
+	// in bfloat16 or binary16 (summed from the end of the row, not in the
+	// yardstick's order), and no maximum subtracted on rows whose sums
+	// overflow float32 (logits in [84, 88): every e^x is finite, their sum
+	// +Inf, the row 0).
+	narrow := func(f compare.Format) func(a, b float32) float32 {
+		return func(a, b float32) float32 { return float32(f.Round(float64(a) + float64(b))) }
+	}
+	c = append(c, softmaxEntry("softmax summed in bfloat16", "softmax", []int{2, 8, 64},
+		func(x []float32) []float32 { return softmaxIdiomPort(x, 8, 64, 1, 512, narrow(compare.BFloat16), true) }, compare.Float32, `"accumulation": "bfloat16"`))
+	c = append(c, softmaxEntry("softmax summed in binary16", "softmax", []int{2, 8, 64},
+		func(x []float32) []float32 { return softmaxIdiomPort(x, 8, 64, 1, 512, narrow(compare.Binary16), true) }, compare.Float32, `"accumulation": "binary16"`))
+	c = append(c, softmaxEntry("softmax summed in bfloat16, over columns", "softmax", []int{2, 8, 64},
+		func(x []float32) []float32 {
+			return softmaxIdiomPort(x, 64, 8, 64, 512, narrow(compare.BFloat16), true)
+		}, compare.Float32,
+		`x reduced over its second-to-last axis`, `"accumulation": "bfloat16"`))
+	over := softmaxEntry("unshifted softmax, sums overflowing", "softmax", []int{2, 4, 64},
+		func(x []float32) []float32 { return softmaxIdiomPort(x, 4, 64, 1, 256, nil, false) }, compare.Float32, `"softmax_shift": "none"`)
+	over.in = ops.Tensors{"x": overflowing()}
+	c = append(c, over)
 	return c
 }
 
@@ -394,8 +466,30 @@ func names(c Candidate, want []string) bool {
 	return strings.Join(got, "\n") == strings.Join(w, "\n")
 }
 
+// wantsIdiom reports whether one of the candidate's changes is a
+// precision idiom.
+func wantsIdiom(c Candidate) bool {
+	for _, e := range c.Edits {
+		if e.Idiom {
+			return true
+		}
+	}
+	return false
+}
+
+// idiomOnly reports whether every change of the candidate is a precision
+// idiom.
+func idiomOnly(c Candidate) bool {
+	for _, e := range c.Edits {
+		if !e.Idiom {
+			return false
+		}
+	}
+	return len(c.Edits) > 0
+}
+
 func TestCatalogue(t *testing.T) {
-	type tally struct{ ports, first, top3, correct, falseNames int }
+	type tally struct{ ports, first, top3, correct, falseNames, idioms int }
 	per := map[string]*tally{}
 	var families []string
 	slipped := 0
@@ -437,12 +531,27 @@ func TestCatalogue(t *testing.T) {
 			var b strings.Builder
 			_ = res.WriteText(&b)
 			t.Errorf("%s / %s: want %q named first:\n%s", e.family, e.name, e.want, b.String())
+			continue
+		}
+		// A port named by an idiom carries its cost; a port named by
+		// conventions alone is never explained by an idiom alone.
+		if wantsIdiom(res.Candidates[0]) {
+			tl.idioms++
+			require.NotNil(t, res.Candidates[0].IdiomCost, "%s / %s: the idiom's cost", e.family, e.name)
+			continue
+		}
+		for _, c := range res.Passing() {
+			if idiomOnly(c) {
+				var b strings.Builder
+				_ = res.WriteText(&b)
+				t.Errorf("%s / %s: a slipped port passes under the idiom alone %s:\n%s", e.family, e.name, c.Change, b.String())
+			}
 		}
 	}
 	require.GreaterOrEqual(t, slipped, 40, "the catalogue holds at least 40 slipped ports")
 	for _, f := range families {
 		tl := per[f]
-		t.Logf("%-24s slipped %2d  named first %2d/%-2d  in top 3 %2d/%-2d  correct ports %d, false names %d",
-			f, tl.ports, tl.first, tl.ports, tl.top3, tl.ports, tl.correct, tl.falseNames)
+		t.Logf("%-24s slipped %2d  named first %2d/%-2d  in top 3 %2d/%-2d  correct ports %d, false names %d; named by a precision idiom %d",
+			f, tl.ports, tl.first, tl.ports, tl.top3, tl.ports, tl.correct, tl.falseNames, tl.idioms)
 	}
 }

@@ -87,3 +87,37 @@ func TestCostBatchOne(t *testing.T) {
 		require.LessOrEqual(t, ratio, 10.0)
 	})
 }
+
+// TestCostIdioms: a port named by a precision idiom also costs at most 10
+// checks, though the idiom is judged on the whole problem and its cost
+// measured: a rotary port that forms its angles in float32, 8 sequences of
+// 2048 positions of 64 dims (cut to the first sequence), and a one-pass
+// LayerNorm on 1024 rows of 512 of mean 10 (cut to its first rows).
+func TestCostIdioms(t *testing.T) {
+	if testing.Short() {
+		t.Skip("timing")
+	}
+	t.Run("rotary-apply float32 angles", func(t *testing.T) {
+		in := ops.Tensors{"x": tensor([]int{8, 2048, 64}, 9)}
+		r := rotPort{L: 2048, D: 64, rotated: 64, base: 10000, divide: 1, sign: 1, angles32: true}
+		got := ops.Tensors{"y": {Data: to64(r.apply(t32(in, "x")))}}
+		ratio, res := costRatio(t, "rotary-apply", []byte(`{"version":1}`), in, got)
+		require.Equal(t, []string{"leading axis"}, res.Cuts)
+		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"angles": "float32-angles"`), "%+v", res.Candidates[0])
+		require.LessOrEqual(t, ratio, 10.0)
+	})
+	t.Run("layernorm-forward one-pass", func(t *testing.T) {
+		const rows, d = 1024, 512
+		in := ops.Tensors{"x": tensor([]int{1, rows, d}, 11), "weight": {Shape: []int{d}, Data: uniform(12, d, 0.5, 1.5)}, "bias": tensor([]int{d}, 13)}
+		x := in["x"].Data
+		for i, v := range x {
+			x[i] = float64(float32(10 + v))
+		}
+		n := normPort{d: d, eps: 1e-5, onePass: true}
+		got := ops.Tensors{"y": {Data: to64(n.forward(t32(in, "x"), t32(in, "weight"), t32(in, "bias")))}}
+		ratio, res := costRatio(t, "layernorm-forward", []byte(`{"version":1,"epsilon":1e-5}`), in, got)
+		require.Equal(t, []string{"rows"}, res.Cuts)
+		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"variance": "one-pass"`), "%+v", res.Candidates[0])
+		require.LessOrEqual(t, ratio, 10.0)
+	})
+}

@@ -100,7 +100,8 @@ type Result struct {
 	NoEffect   int         `json:"candidates_without_effect"` // they gave the reference of the configuration as given
 	Refused    int         `json:"candidates_refused"`        // the operation refused them, or their outputs had another size
 	LeftOut    int         `json:"candidates_left_out"`       // past Options.MaxCandidates, not run
-	Candidates []Candidate `json:"candidates"`                // ranked: passing first, then by normwise error
+	Idioms     int         `json:"idioms_judged"`             // precision-idiom alternatives judged by their own yardstick
+	Candidates []Candidate `json:"candidates"`                // ranked: passing conventions, passing idioms, then by normwise error
 	Signatures []Signature `json:"signatures"`                // of every failing output, on the whole problem
 }
 
@@ -142,6 +143,51 @@ type Candidate struct {
 	Measured bool            `json:"yardstick_measured"`
 	Pass     bool            `json:"passes"`
 	Outputs  []OutputVerdict `json:"outputs"`
+	// IdiomCost, for a candidate that declares a precision idiom (an Edit
+	// with Idiom set), is what the idiom costs against the plain float32
+	// run, on the problem the candidates ran on; nil for the others.
+	IdiomCost *IdiomCost `json:"idiom_cost,omitempty"`
+}
+
+// IdiomCost is what a precision idiom costs, output by output: the errors
+// of the idiom's float32 run and of the plain float32 run (the
+// configuration without its idiom keys) against the reference, as
+// ops.IdiomCostOf measures them, in the format of the search.
+type IdiomCost struct {
+	// Keys are the idiom keys the candidate's configuration sets, as
+	// "key = word" ("angles = float32-angles").
+	Keys string `json:"keys"`
+	// SubProblem says that the cost was measured on the sub-problem the
+	// candidates ran on (Result.SubProblem), not on the whole problem.
+	SubProblem bool         `json:"on_sub_problem,omitempty"`
+	Outputs    []OutputCost `json:"outputs"`
+}
+
+// OutputCost is what an idiom costs on one output.
+type OutputCost struct {
+	Output string `json:"output"`
+	// Normwise and MaxAbs are the errors of the idiom's float32 run,
+	// PlainNormwise and PlainMaxAbs those of the plain float32 run, and
+	// Ratio is Normwise over PlainNormwise (ops.Cost.Ratio).
+	Normwise      Number `json:"normwise_error"`
+	PlainNormwise Number `json:"plain_normwise_error"`
+	Ratio         Number `json:"ratio"`
+	MaxAbs        Number `json:"max_abs_error"`
+	PlainMaxAbs   Number `json:"plain_max_abs_error"`
+	// Positions, for an output whose rows sit at positions (rotary-apply's
+	// y, rotary-tables' cos and sin), holds the errors at the first and at
+	// the last position, where an angle idiom's error grows; absent for
+	// other outputs.
+	Positions []PositionCost `json:"positions,omitempty"`
+}
+
+// PositionCost is what an idiom costs on the rows of one position.
+type PositionCost struct {
+	Position      int    `json:"position"`
+	MaxAbs        Number `json:"max_abs_error"`
+	PlainMaxAbs   Number `json:"plain_max_abs_error"`
+	Normwise      Number `json:"normwise_error"`
+	PlainNormwise Number `json:"plain_normwise_error"`
 }
 
 // Edit is one change as data. A change of a configuration key has Key
@@ -149,13 +195,17 @@ type Candidate struct {
 // Value (the new value as JSON; absent when the change removes the key)
 // and, for a common alternative with a name, Note ("1/d", "1/s"). A
 // change of how the port read or wrote its tensors ("k and v swapped",
-// "w1 read transposed") has only Mixup, in words.
+// "w1 read transposed") has only Mixup, in words. A precision idiom
+// (Key.Idiom: "angles", "variance", "accumulation", "softmax_shift") has
+// Key, Value, Idiom set and a Note saying that the port may declare it:
+// it changes the tolerance, not the reference.
 type Edit struct {
 	Key    string          `json:"key,omitempty"`
 	Value  json.RawMessage `json:"value,omitempty"`
 	Remove bool            `json:"remove,omitempty"`
 	Note   string          `json:"note,omitempty"`
 	Mixup  string          `json:"mixup,omitempty"`
+	Idiom  bool            `json:"idiom,omitempty"`
 }
 
 // Names reports whether the candidate is described by change, as its own
@@ -220,9 +270,12 @@ func (n *Number) UnmarshalJSON(b []byte) error {
 // pass, always changing config as given: every word of every convention
 // key of the operation (one at a time), the common alternatives of its
 // numeric keys, tensors swapped, transposed or read in the other layout,
-// and pairs of the most promising single changes. The search runs on a
-// sub-problem when the problem is larger than Options.MaxElements, and
-// computes error signatures of every failing output on the whole problem.
+// and pairs of the most promising single changes; and it judges got by the
+// yardstick of each precision idiom of the operation (Key.Idiom), which
+// keeps the reference and widens the tolerance, alone and with the best
+// convention change. The search runs on a sub-problem when the problem is
+// larger than Options.MaxElements, and computes error signatures of every
+// failing output on the whole problem.
 //
 // got may hold any non-empty subset of the operation's outputs; only those
 // are compared. Errors: an unknown operation, a configuration or inputs the
@@ -283,7 +336,8 @@ func Run(op string, config []byte, in ops.Tensors, got ops.Tensors, f compare.Fo
 		}
 	}
 	res.SubProblem, res.Cuts = sp.note, sp.cuts
-	s := &search{op: o, opt: opt, f: f, cfg: cfg, in: sp.in, got: sp.got, sub: sp, seen: map[uint64]int{}, tried: map[string]bool{}}
+	s := &search{op: o, opt: opt, f: f, cfg: cfg, in: sp.in, got: sp.got, sub: sp, seen: map[uint64]int{}, tried: map[string]bool{},
+		full: in, fullGot: got, fullRef: ref, baseRef: base, given: res.Given, isCut: elements(sp.in) < elements(in)}
 	s.baseHash = hashOutputs(base, sp.got)
 	singles := generate(o, cfg, sp.in, in)
 	s.baseNW = map[string]float64{}
@@ -300,7 +354,11 @@ func Run(op string, config []byte, in ops.Tensors, got ops.Tensors, f compare.Fo
 		return nil, err
 	}
 	s.rank()
-	res.Run, res.NoEffect, res.Refused, res.LeftOut = s.ran, s.noEffect, s.refused, s.leftOut
+	if err := s.idioms(idiomChanges(o, cfg)); err != nil {
+		return nil, err
+	}
+	res.Signatures = append(res.Signatures, s.idiomSignatures...)
+	res.Run, res.NoEffect, res.Refused, res.LeftOut, res.Idioms = s.ran, s.noEffect, s.refused, s.leftOut, s.idiomsJudged
 	for _, c := range s.cands {
 		res.Candidates = append(res.Candidates, c.Candidate)
 	}
@@ -458,6 +516,8 @@ type search struct {
 	cfg      map[string]any
 	in, got  ops.Tensors
 	sub      subProblem // turns a candidate's configuration into the one it runs on
+	isCut    bool       // the sub-problem is smaller than the whole
+	baseRef  ops.Tensors
 	baseHash uint64
 	baseNW   map[string]float64 // normwise error of the configuration as given, per output
 	tried    map[string]bool    // pairs already listed
@@ -467,6 +527,14 @@ type search struct {
 	noEffect int
 	refused  int
 	leftOut  int
+
+	// The whole problem, the port's outputs on it, the reference of the
+	// configuration as given and the port's verdict under its yardstick,
+	// for the precision idioms.
+	full, fullGot, fullRef ops.Tensors
+	given                  Verdict
+	idiomsJudged           int
+	idiomSignatures        []Signature
 }
 
 // cand is a candidate and what it takes to run it again.
@@ -475,7 +543,15 @@ type cand struct {
 	changes []change
 	in      ops.Tensors
 	runCfg  []byte      // the configuration on the sub-problem
+	raw     ops.Tensors // the reference the operation gave, before the output transforms
 	ref     ops.Tensors // after the output transforms
+
+	// For a precision idiom: fit and close order the candidates (see
+	// place), and cost says where to measure what the idiom costs.
+	idiom      bool
+	loose      bool
+	fit, close float64
+	cost       costAt
 }
 
 // apply returns the configuration and inputs of the changes cs.
@@ -522,6 +598,7 @@ func (s *search) eval(cs []change) {
 		s.refused++
 		return
 	}
+	raw := out
 	for _, c := range cs {
 		if c.out != nil {
 			out = c.out(out)
@@ -537,7 +614,7 @@ func (s *search) eval(cs []change) {
 		}
 		edits = append(edits, e)
 	}
-	c := &cand{Candidate: Candidate{Change: strings.Join(names, "; "), Changes: names, Edits: edits, Config: cfg}, changes: cs, in: in, runCfg: runCfg, ref: out}
+	c := &cand{Candidate: Candidate{Change: strings.Join(names, "; "), Changes: names, Edits: edits, Config: cfg}, changes: cs, in: in, runCfg: runCfg, raw: raw, ref: out}
 	for _, n := range sortedNames(s.got) {
 		r, ok := out[n]
 		if !ok || len(r.Data) != len(s.got[n].Data) {
@@ -697,7 +774,7 @@ func pairKey(cs []change) string {
 }
 
 // confirm measures the yardstick of the Options.Confirm best candidates
-// and judges the port by it.
+// against the reference each already has, and judges the port by it.
 func (s *search) confirm() error {
 	order := slices.Clone(s.cands)
 	sort.SliceStable(order, func(i, j int) bool { return order[i].Normwise < order[j].Normwise })
@@ -705,7 +782,7 @@ func (s *search) confirm() error {
 		if i >= s.opt.Confirm {
 			break
 		}
-		ys, err := ops.Yardstick(s.op.Name(), c.runCfg, c.in, s.f, s.opt.K)
+		ys, err := ops.YardstickOf(s.op.Name(), c.runCfg, c.in, c.raw, s.f, s.opt.K)
 		if err != nil {
 			continue // the candidate has no yardstick in this format; left unmeasured
 		}

@@ -197,6 +197,10 @@ type rotPort struct {
 	first         int     // position of the first token
 	divide        float64 // positions' angles divided by it (position interpolation)
 	sign          float32 // +1: R(m); −1: R(−m)
+	// angles32 forms the angles as a float32 framework port does [common
+	// practice]: θ_i and the position as float32, the angle their float32
+	// product, cos and sin of it rounded to float32.
+	angles32 bool
 }
 
 func (r rotPort) apply(x []float32) []float32 {
@@ -206,6 +210,10 @@ func (r rotPort) apply(x []float32) []float32 {
 		for i := 0; i < r.rotated/2; i++ {
 			theta := math.Pow(r.base, -2*float64(i)/float64(r.rotated)) / r.divide
 			c, s := float32(math.Cos(m*theta)), r.sign*float32(math.Sin(m*theta))
+			if r.angles32 {
+				a := float32(m) * float32(theta)
+				c, s = float32(math.Cos(float64(a))), r.sign*float32(math.Sin(float64(a)))
+			}
 			a, b := 2*i, 2*i+1
 			if r.halves {
 				a, b = i, i+r.rotated/2
@@ -279,6 +287,7 @@ type normPort struct {
 	onePlus  bool // gain 1 + w
 	swapWB   bool // reads the bias as the weight and the weight as the bias
 	reversed bool // sums each row from its end
+	onePass  bool // LayerNorm's σ² = Σx²/d − μ², Σx and Σx² in one pass [common practice]
 }
 
 func (n normPort) gain(w []float32, i int) float32 {
@@ -301,13 +310,20 @@ func (n normPort) stats(row []float32) (mu, r, s float32) {
 			}
 		}
 	}
-	if !n.rms {
-		order(func(v float32) { mu += v })
-		mu /= float32(n.d)
-	}
 	var ss float32
-	order(func(v float32) { ss += (v - mu) * (v - mu) })
-	ss /= float32(n.d)
+	switch {
+	case n.onePass && !n.rms:
+		order(func(v float32) { mu += v; ss += float32(v * v) })
+		mu /= float32(n.d)
+		ss = max(ss/float32(n.d)-float32(mu*mu), 0)
+	default:
+		if !n.rms {
+			order(func(v float32) { mu += v })
+			mu /= float32(n.d)
+		}
+		order(func(v float32) { ss += (v - mu) * (v - mu) })
+		ss /= float32(n.d)
+	}
 	if n.addRoot {
 		s = float32(math.Sqrt(float64(ss)))
 		return mu, s + n.eps, s
@@ -545,12 +561,31 @@ func groups(x []float32, count, n, stride, block int, f func(at func(i int) int,
 // softmaxPort is a softmax over groups of n values spaced stride apart
 // (see groups).
 func softmaxPort(x []float32, count, n, stride, block int) []float32 {
+	return softmaxIdiomPort(x, count, n, stride, block, nil, true)
+}
+
+// softmaxIdiomPort is softmaxPort with the running sum rounded by add
+// after each addition (nil: float32), summed from the last value of the
+// group to the first when add is set (an order other than the
+// yardstick's), and the maximum subtracted only when shift is set.
+func softmaxIdiomPort(x []float32, count, n, stride, block int, add func(a, b float32) float32, shift bool) []float32 {
 	y := make([]float32, len(x))
 	groups(x, count, n, stride, block, func(at func(int) int, m float32) {
+		if !shift {
+			m = 0
+		}
 		var s float32
-		for i := range n {
+		for k := range n {
+			i := k
+			if add != nil {
+				i = n - 1 - k
+			}
 			y[at(i)] = exp32(x[at(i)] - m)
-			s += y[at(i)]
+			if add != nil {
+				s = add(s, y[at(i)])
+			} else {
+				s += y[at(i)]
+			}
 		}
 		for i := range n {
 			y[at(i)] /= s

@@ -25,8 +25,12 @@ func (r *Result) WriteText(w io.Writer) error {
 	if r.SubProblem != "" {
 		fmt.Fprintf(&b, "candidates ran on a sub-problem: %s\n", r.SubProblem)
 	}
-	fmt.Fprintf(&b, "%d candidates run (%d without effect here, %d refused by the operation), %d left out by the limit\n",
+	fmt.Fprintf(&b, "%d candidates run (%d without effect here, %d refused by the operation), %d left out by the limit",
 		r.Run, r.NoEffect, r.Refused, r.LeftOut)
+	if r.Idioms > 0 {
+		fmt.Fprintf(&b, "; %d precision idioms judged by their own yardstick", r.Idioms)
+	}
+	b.WriteString("\n")
 	passing := r.Passing()
 	switch len(passing) {
 	case 0:
@@ -43,8 +47,9 @@ func (r *Result) WriteText(w io.Writer) error {
 }
 
 // WriteCandidates writes the first limit candidates of list, numbered, each
-// with its verdict and the changes that give the same output, and a count
-// of the rest. Every line starts with indent. WriteText uses it, and so
+// with its verdict, the changes that give the same output and, for a
+// precision idiom, a line on what the idiom costs; and a count of the
+// rest. Every line starts with indent. WriteText uses it, and so
 // can a report that embeds the diagnosis in its own text.
 func WriteCandidates(w io.Writer, indent string, list []Candidate, limit int) {
 	for i, c := range list {
@@ -55,6 +60,9 @@ func WriteCandidates(w io.Writer, indent string, list []Candidate, limit int) {
 		fmt.Fprintf(w, "%s%d. %s: %s\n", indent, i+1, c.Change, VerdictText(c.Pass, c.Measured, c.Normwise, c.Outputs))
 		if len(c.Same) > 0 {
 			fmt.Fprintf(w, "%s    the same here: %s\n", indent, strings.Join(c.Same, " | "))
+		}
+		if c.IdiomCost != nil {
+			fmt.Fprintf(w, "%s    %s\n", indent, c.IdiomCost)
 		}
 	}
 }

@@ -1,9 +1,7 @@
 package ops_test
 
 import (
-	"encoding/json"
 	"fmt"
-	"math/rand/v2"
 	"os"
 	"regexp"
 	"strings"
@@ -12,111 +10,9 @@ import (
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
 
-	"github.com/plumbref/plumb/attention"
-	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/internal/golden"
-	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/ops"
 )
-
-// The code of the README's library section lives here, word for word
-// (TestReadmeSnippets checks it), so that it compiles and runs.
-
-// q, k and v are the inputs of the README's snippets: 8 query heads on 2
-// key/value heads, 128 positions, head dimension 64, standard normal.
-var q, k, v = normals(1, 8*128*64), normals(2, 2*128*64), normals(3, 2*128*64)
-
-func normals(seed uint64, n int) []float64 {
-	r := rand.New(rand.NewPCG(seed, 0))
-	x := make([]float64, n)
-	for i := range x {
-		x[i] = r.NormFloat64()
-	}
-	return x
-}
-
-// myAttention stands for the reader's kernel: here plumb's own float32
-// instantiation, causal, widened to float64.
-func myAttention(q, k, v []float64) []float64 {
-	s := attention.Shape{Batch: 1, HeadsQ: 8, HeadsKV: 2, Lq: 128, Lk: 128, Dk: 64, Dv: 64}
-	f32 := func(x []float64) []float32 {
-		y := make([]float32, len(x))
-		for i, e := range x {
-			y[i] = float32(e)
-		}
-		return y
-	}
-	out, _, err := attention.Forward32(f32(q), f32(k), f32(v), s, attention.Options{Mask: mask.Causal()})
-	if err != nil {
-		panic(err)
-	}
-	return compare.Widen(out)
-}
-
-func TestMyAttention(t *testing.T) {
-	s := attention.Shape{Batch: 1, HeadsQ: 8, HeadsKV: 2, Lq: 128, Lk: 128, Dk: 64, Dv: 64}
-	o := attention.Options{Mask: mask.Causal()}
-	want, _, err := attention.Forward(q, k, v, s, o) // the float64 reference
-	require.NoError(t, err)
-
-	got := myAttention(q, k, v) // your kernel's output, widened to float64
-	compare.Check(t, want, got, []int{1, 8, 128, 64}, compare.Float32,
-		compare.Tolerance{Abs: 1e-5, MaxNormwise: 1e-6})
-}
-
-func TestReadmeYardstickAndReport(t *testing.T) {
-	s := attention.Shape{Batch: 1, HeadsQ: 8, HeadsKV: 2, Lq: 128, Lk: 128, Dk: 64, Dv: 64}
-	o := attention.Options{Mask: mask.Causal()}
-	shape := []int{1, 8, 128, 64}
-	want, _, err := attention.Forward(q, k, v, s, o)
-	require.NoError(t, err)
-	// A bfloat16 candidate: the float32 kernel's output rounded to bfloat16.
-	got := compare.BFloat16.RoundSlice(myAttention(q, k, v))
-
-	y, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{q, k, v}, want, shape, compare.DefaultK,
-		func(in [][]float32) ([]float32, error) {
-			out, _, err := attention.Forward32(in[0], in[1], in[2], s, o)
-			return out, err
-		})
-	require.NoError(t, err)
-	report, err := compare.Diff(want, got, shape, y.Options())
-	require.NoError(t, err)
-
-	assert.True(t, report.Verdict.Pass, "%v", report)
-	assert.Contains(t, y.Tolerance.Basis, "bfloat16 inputs, float32 arithmetic")
-
-	{
-		report, err := compare.Diff(want, got, shape, compare.Options{Format: compare.Float32})
-		require.NoError(t, err)
-		fmt.Print(report)               // aligned text: errors, ULP histogram, worst elements
-		js, err := json.Marshal(report) // the same, as JSON with stable keys
-		require.NoError(t, err)
-
-		assert.Contains(t, string(js), `"normwise_rel_error"`)
-	}
-}
-
-// TestReadmeSnippets checks that every Go block of README.md appears in this
-// file word for word (leading tabs aside).
-func TestReadmeSnippets(t *testing.T) {
-	readme, err := os.ReadFile("../README.md")
-	require.NoError(t, err)
-	self, err := os.ReadFile("readme_test.go")
-	require.NoError(t, err)
-	flat := func(s string) string {
-		var b strings.Builder
-		for _, l := range strings.Split(s, "\n") {
-			b.WriteString(strings.TrimLeft(l, "\t"))
-			b.WriteByte('\n')
-		}
-		return b.String()
-	}
-	blocks := regexp.MustCompile("(?s)```go\n(.*?)```").FindAllStringSubmatch(string(readme), -1)
-	require.Len(t, blocks, 3, "README.md has three Go snippets")
-	for _, b := range blocks {
-		assert.Contains(t, flat(string(self)), flat(b[1]), "README snippet not found in readme_test.go")
-	}
-}
 
 // The conventions tables of the README and of the overview (doc.go) are
 // generated from the convention types (ops.Conventions); TestConventionsTable

@@ -11,6 +11,7 @@ import (
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/diagnose"
+	"github.com/plumbref/plumb/gen"
 	"github.com/plumbref/plumb/internal/elem"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
@@ -188,13 +189,13 @@ func runDemo(w io.Writer, quiet bool, e *env) (*demoResult, error) {
 // newDemo draws the inputs: plumb gen -dist normal, seeds 1, 2 and 3,
 // rounded to float32 as the port stores them.
 func newDemo(w io.Writer) *demo {
-	gen := func(seed uint64, n int) []float64 {
-		x, _ := generate(n, "normal", seed, 0, 1, 0, 1)
+	normal := func(seed uint64, n int) []float64 {
+		x, _ := gen.Normal(seed, n, 0, 1)
 		return compare.Float32.RoundSlice(x) // the port stores float32
 	}
 	return &demo{w: w,
 		shapeQ: []int{1, demoHeadsQ, demoLen, demoDim}, shapeKV: []int{1, demoHeadsKV, demoLen, demoDim},
-		q: gen(1, demoHeadsQ*demoLen*demoDim), k: gen(2, demoHeadsKV*demoLen*demoDim), v: gen(3, demoHeadsKV*demoLen*demoDim),
+		q: normal(1, demoHeadsQ*demoLen*demoDim), k: normal(2, demoHeadsKV*demoLen*demoDim), v: normal(3, demoHeadsKV*demoLen*demoDim),
 	}
 }
 

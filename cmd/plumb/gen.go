@@ -5,59 +5,25 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"math/rand/v2"
 	"os"
 	"strconv"
 	"strings"
 
 	"github.com/plumbref/plumb/compare"
-	"github.com/plumbref/plumb/internal/elem"
-	"github.com/plumbref/plumb/internal/num"
+	"github.com/plumbref/plumb/gen"
 	"github.com/plumbref/plumb/npy"
 )
 
-// generator draws the numbers of plumb gen; see the command's help (genAbout)
-// for the algorithm, stated so that another language can reproduce it.
-type generator struct{ src *rand.PCG }
-
-func newGenerator(seed uint64) *generator { return &generator{rand.NewPCG(seed, 0)} }
-
-// uniform01 is (x >> 11) · 2^−53 for the next 64-bit output x: in [0, 1).
-func (g *generator) uniform01() float64 { return float64(g.src.Uint64()>>11) * 0x1p-53 }
-
-// normals fills x with standard normal values by the Box–Muller transform.
-func (g *generator) normals(x []float64) {
-	for i := 0; i < len(x); i += 2 {
-		u1 := float64(g.src.Uint64()>>11+1) * 0x1p-53 // (0, 1]
-		u2 := float64(g.src.Uint64()>>11) * 0x1p-53   // [0, 1)
-		r := math.Sqrt(-2 * elem.Log(u1))
-		t := float64(2*math.Pi) * u2
-		x[i] = float64(r * elem.Cos(t))
-		if i+1 < len(x) {
-			x[i+1] = float64(r * elem.Sin(t))
-		}
-	}
-}
-
-// generate returns n values of the distribution.
+// generate returns n values of the distribution: package gen's, which
+// states the algorithm as genAbout does.
 func generate(n int, dist string, seed uint64, mean, std, low, high float64) ([]float64, error) {
-	g := newGenerator(seed)
-	x := make([]float64, n)
 	switch dist {
 	case "normal":
-		g.normals(x)
-		for i, z := range x {
-			x[i] = mean + float64(std*z)
-		}
+		return gen.Normal(seed, n, mean, std)
 	case "uniform":
-		w := high - low
-		for i := range x {
-			x[i] = low + float64(w*g.uniform01())
-		}
-	default:
-		return nil, fmt.Errorf("-dist = %q; want normal or uniform", dist)
+		return gen.Uniform(seed, n, low, high)
 	}
-	return x, nil
+	return nil, fmt.Errorf("-dist = %q; want normal or uniform", dist)
 }
 
 const genAbout = `
@@ -178,7 +144,7 @@ func runGen(e *env, opts any, args []string) (int, error) {
 	case npy.Float64:
 		a, err = npy.New(npy.Float64, shape, x)
 	case npy.Float32:
-		a, err = npy.New(npy.Float32, shape, num.Convert[float32](x))
+		a, err = npy.New(npy.Float32, shape, compare.Narrow(x))
 	case npy.Float16:
 		h := make([]uint16, len(x))
 		for i, v := range x {

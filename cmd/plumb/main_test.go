@@ -19,6 +19,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/gen"
 	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
@@ -130,6 +131,32 @@ func TestGenFirstValues(t *testing.T) {
 	must(t, dir, 0, "gen", "-shape", "3", "-mean", "2", "-std", "0.5", "s.npy")
 	for i, z := range readNPY(t, filepath.Join(dir, "n.npy")).Data {
 		assert.Equal(t, 2+float64(0.5*z), readNPY(t, filepath.Join(dir, "s.npy")).Data[i])
+	}
+}
+
+// TestGenIsPackageGen: plumb gen writes, value for value, what package gen
+// returns for the same seed and parameters (the float32 files: its values
+// rounded by compare.Narrow), so that a Go test and the command share
+// inputs.
+func TestGenIsPackageGen(t *testing.T) {
+	dir := t.TempDir()
+	for i, c := range []struct {
+		args []string
+		want func() ([]float64, error)
+	}{
+		{[]string{"-shape", "1,8,128,64", "-seed", "1"}, func() ([]float64, error) { return gen.Normal(1, 8*128*64, 0, 1) }},
+		{[]string{"-shape", "3,5,7", "-seed", "9", "-mean", "2", "-std", "0.5"}, func() ([]float64, error) { return gen.Normal(9, 105, 2, 0.5) }},
+		{[]string{"-shape", "1000", "-seed", "42", "-dist", "uniform", "-low", "-3", "-high", "5"}, func() ([]float64, error) { return gen.Uniform(42, 1000, -3, 5) }},
+		{[]string{"-shape", "2,64", "-seed", "5", "-dtype", "float32"}, func() ([]float64, error) {
+			z, err := gen.Normal(5, 128, 0, 1)
+			return compare.Widen(compare.Narrow(z)), err
+		}},
+	} {
+		name := fmt.Sprintf("g%d.npy", i)
+		must(t, dir, 0, append(append([]string{"gen", "-quiet"}, c.args...), name)...)
+		want, err := c.want()
+		require.NoError(t, err)
+		assert.Equal(t, want, readNPY(t, filepath.Join(dir, name)).Data, "plumb gen %s", strings.Join(c.args, " "))
 	}
 }
 

@@ -146,8 +146,10 @@ func (p *Pose) run(opt compare.Options) (line, text string) {
 }
 
 // describe is the candidate's changes in the configuration's words, each
-// key followed by the suite's name of it (Words) in brackets, joined by
-// " and "; then the descriptions that gave the same reference.
+// key followed by the suite's name of it (Words) in brackets, a precision
+// idiom (an Edit with Idiom set: it changes the tolerance, not the
+// reference) introduced as such, joined by " and "; then the descriptions
+// that gave the same reference.
 func (p *Pose) describe(c diagnose.Candidate) string {
 	changes := c.Changes
 	if len(changes) == 0 {
@@ -156,6 +158,9 @@ func (p *Pose) describe(c diagnose.Candidate) string {
 	parts := make([]string, len(changes))
 	for i, ch := range changes {
 		parts[i] = ch
+		if len(c.Edits) == len(changes) && c.Edits[i].Idiom {
+			parts[i] = "the precision idiom " + ch
+		}
 		if w := p.Words[key(ch)]; w != "" {
 			parts[i] += " [" + w + "]"
 		}
