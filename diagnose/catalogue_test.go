@@ -356,11 +356,11 @@ func catalogue() []entry {
 				}
 				mu /= 16
 				for _, e := range x[o : o+16] {
-					v += (e - mu) * (e - mu)
+					v += float64((e - mu) * (e - mu))
 				}
 				r := math.Sqrt(v/16 + 1e-5)
 				for i := range 16 {
-					y[o+i] = float64(float32((x[o+i]-mu)/r*w[i] + b[i]))
+					y[o+i] = float64(float32(float64((x[o+i]-mu)/r*w[i]) + b[i]))
 				}
 			}
 			return ops.Tensors{"y": {Data: y}}

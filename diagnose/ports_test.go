@@ -20,7 +20,7 @@ func uniform(seed int64, n int, lo, hi float64) []float64 {
 	r := rand.New(rand.NewSource(seed))
 	x := make([]float64, n)
 	for i := range x {
-		x[i] = lo + (hi-lo)*r.Float64()
+		x[i] = lo + float64((hi-lo)*r.Float64())
 	}
 	return x
 }
@@ -76,14 +76,14 @@ func (a attnPort) logits(q, k []float32, b, h, i int) ([]float32, []bool) {
 		vis[j] = a.see == nil || a.see(p, j)
 		var dot float32
 		for d := range a.D {
-			dot += q[a.at(a.seqMajorIn[0], b, h, i, d, a.H, a.Lq)] * k[a.at(a.seqMajorIn[1], b, a.kv(h), j, d, a.Hkv, a.Lk)]
+			dot += float32(q[a.at(a.seqMajorIn[0], b, h, i, d, a.H, a.Lq)] * k[a.at(a.seqMajorIn[1], b, a.kv(h), j, d, a.Hkv, a.Lk)])
 		}
 		t := dot * a.scale
 		if a.softCap > 0 {
 			t = a.softCap * float32(math.Tanh(float64(t/a.softCap)))
 		}
 		if a.slopes != nil {
-			t -= a.slopes[h] * a.dist(p, j)
+			t -= float32(a.slopes[h] * a.dist(p, j))
 		}
 		s[j] = t
 	}
@@ -135,7 +135,7 @@ func (a attnPort) forward(q, k, v []float32) (out, lse []float32) {
 				for d := range a.D {
 					var acc float32
 					for j := range a.Lk {
-						acc += p[j] * v[a.at(a.seqMajorIn[2], b, a.kv(h), j, d, a.Hkv, a.Lk)]
+						acc += float32(p[j] * v[a.at(a.seqMajorIn[2], b, a.kv(h), j, d, a.Hkv, a.Lk)])
 					}
 					out[a.at(a.seqMajorOut, b, h, i, d, a.H, a.Lq)] = acc
 				}
@@ -163,21 +163,21 @@ func (a attnPort) backward(q, k, v, dout []float32) (dq, dk, dv []float32) {
 				for d := range a.D {
 					var o float32
 					for j := range a.Lk {
-						o += p[j] * v[((b*a.Hkv+g)*a.Lk+j)*a.D+d]
+						o += float32(p[j] * v[((b*a.Hkv+g)*a.Lk+j)*a.D+d])
 					}
-					delta += dout[qi+d] * o
+					delta += float32(dout[qi+d] * o)
 				}
 				for j := range a.Lk {
 					kj := ((b*a.Hkv+g)*a.Lk + j) * a.D
 					var dp float32
 					for d := range a.D {
-						dp += dout[qi+d] * v[kj+d]
-						dv[kj+d] += p[j] * dout[qi+d]
+						dp += float32(dout[qi+d] * v[kj+d])
+						dv[kj+d] += float32(p[j] * dout[qi+d])
 					}
 					ds := p[j] * (dp - delta) * a.scale
 					for d := range a.D {
-						dq[qi+d] += ds * k[kj+d]
-						dk[kj+d] += ds * q[qi+d]
+						dq[qi+d] += float32(ds * k[kj+d])
+						dk[kj+d] += float32(ds * q[qi+d])
 					}
 				}
 			}
@@ -219,8 +219,8 @@ func (r rotPort) apply(x []float32) []float32 {
 				a, b = i, i+r.rotated/2
 			}
 			x0, x1 := x[row*r.D+a], x[row*r.D+b]
-			y[row*r.D+a] = x0*c - x1*s
-			y[row*r.D+b] = x0*s + x1*c
+			y[row*r.D+a] = float32(x0*c) - float32(x1*s)
+			y[row*r.D+b] = float32(x0*s) + float32(x1*c)
 		}
 	}
 	return y
@@ -321,7 +321,7 @@ func (n normPort) stats(row []float32) (mu, r, s float32) {
 			order(func(v float32) { mu += v })
 			mu /= float32(n.d)
 		}
-		order(func(v float32) { ss += (v - mu) * (v - mu) })
+		order(func(v float32) { ss += float32((v - mu) * (v - mu)) })
 		ss /= float32(n.d)
 	}
 	if n.addRoot {
@@ -361,9 +361,9 @@ func (n normPort) backward(x, w, dy []float32) (dx, dw, db []float32) {
 		mu, r, s := n.stats(x[o : o+n.d])
 		var mg, gc float32
 		for i := range n.d {
-			g := n.gain(w, i) * dy[o+i]
+			g := float32(n.gain(w, i) * dy[o+i])
 			mg += g
-			gc += g * (x[o+i] - mu)
+			gc += float32(g * (x[o+i] - mu))
 			dw[i] += dy[o+i] * (x[o+i] - mu) / r
 			db[i] += dy[o+i]
 		}
@@ -372,7 +372,7 @@ func (n normPort) backward(x, w, dy []float32) (dx, dw, db []float32) {
 			mg = 0
 		}
 		for i := range n.d {
-			g := n.gain(w, i) * dy[o+i]
+			g := float32(n.gain(w, i) * dy[o+i])
 			dx[o+i] = (g-mg)/r - gc*(x[o+i]-mu)/(float32(n.d)*r*r*s)
 		}
 	}
@@ -394,15 +394,15 @@ func geluErfGrad(x float32) float32 {
 // geluTanh is x/2·(1 + tanh(√(2/π)(x + 0.044715x³))) (Hendrycks & Gimpel
 // 2016, arXiv 1606.08415 §2).
 func geluTanh(x float32) float32 {
-	u := float32(math.Sqrt(2/math.Pi)) * (x + 0.044715*x*x*x)
+	u := float32(math.Sqrt(2/math.Pi)) * (x + float32(0.044715*x*x*x))
 	return x / 2 * (1 + float32(math.Tanh(float64(u))))
 }
 
 func geluTanhGrad(x float32) float32 {
 	k := float32(math.Sqrt(2 / math.Pi))
-	u := k * (x + 0.044715*x*x*x)
+	u := k * (x + float32(0.044715*x*x*x))
 	t := float32(math.Tanh(float64(u)))
-	return (1+t)/2 + x/2*(1-t*t)*k*(1+3*0.044715*x*x)
+	return (1+t)/2 + float32(x/2*(1-float32(t*t))*k*(1+float32(3*0.044715*x*x)))
 }
 
 func swish(beta float32) func(float32) float32 {
@@ -412,7 +412,7 @@ func swish(beta float32) func(float32) float32 {
 func swishGrad(beta float32) func(float32) float32 {
 	return func(x float32) float32 {
 		s := sigmoid32(beta * x)
-		return s + beta*x*s*(1-s)
+		return s + float32(beta*x*s*(1-s))
 	}
 }
 
@@ -451,7 +451,7 @@ func matmul(a, b []float32, m, k, n int, ta, tb bool) []float32 {
 				if tb {
 					y = b[j*k+p]
 				}
-				acc += x * y
+				acc += float32(x * y)
 			}
 			c[i*n+j] = acc
 		}
@@ -523,9 +523,9 @@ func (f ffnPort) backward(x, w1, v, w2, dy []float32) (dx, dw1, dv, dw2 []float3
 	for r := range f.rows {
 		for i := range f.in {
 			for j := range f.hidden {
-				dx[r*f.in+i] += dh[r*f.hidden+j] * w1[i*f.hidden+j]
+				dx[r*f.in+i] += float32(dh[r*f.hidden+j] * w1[i*f.hidden+j])
 				if f.gated {
-					dx[r*f.in+i] += du[r*f.hidden+j] * v[i*f.hidden+j]
+					dx[r*f.in+i] += float32(du[r*f.hidden+j] * v[i*f.hidden+j])
 				}
 			}
 		}
