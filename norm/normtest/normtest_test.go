@@ -86,16 +86,16 @@ func naive(slip string) func(x, res, w, b []float32, p Problem) ([]float32, []fl
 			var s, s2 float32
 			for _, v := range row {
 				s += v
-				s2 += v * v
+				s2 += float32(v * v) // every product rounded: the same port on every build
 			}
 			mu := s / float32(d)
-			v := s2/float32(d) - mu*mu
+			v := s2/float32(d) - float32(mu*mu)
 			if p.Layer == RMSNorm {
 				mu, v = 0, s2/float32(d)
 			} else if slip != "one pass" {
 				v = 0
 				for _, x := range row {
-					v += (x - mu) * (x - mu)
+					v += float32((x - mu) * (x - mu))
 				}
 				v /= float32(d)
 			}
