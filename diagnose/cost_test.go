@@ -36,10 +36,11 @@ func costRatio(t *testing.T, op string, cfg []byte, in, got ops.Tensors) (float6
 }
 
 // TestCostBatchOne: a batch of one entry cannot be cut along its leading
-// axis; the diagnosis cuts heads and queries instead and still costs at
-// most 10 checks and names the slip first. Grouped-query attention with 8
-// query heads on 2 kv heads, 128 queries and keys, head dimension 64, the
-// port reading kv head h mod 2 instead of h/4 (a "cycle" group map).
+// axis; the diagnosis cuts heads and queries (or positions) instead and
+// still costs at most 10 checks and names the slip first. Grouped-query
+// attention with 8 query heads on 2 kv heads, 128 queries and keys, head
+// dimension 64, the port reading kv head h mod 2 instead of h/4 (a
+// "cycle" group map).
 func TestCostBatchOne(t *testing.T) {
 	if testing.Short() {
 		t.Skip("timing")
@@ -73,6 +74,28 @@ func TestCostBatchOne(t *testing.T) {
 		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
 		require.LessOrEqual(t, ratio, 10.0)
 	})
+	// Rotary on one sequence of 8 heads of 2048 positions of 64 dims,
+	// whose one leading entry cannot be cut: the heads are cut, then the
+	// positions, to 256 spread over the length (the first and the last
+	// included) at their own positions. A base slip (500000 for 10000),
+	// and the angles formed in float32, whose error grows with the
+	// position.
+	for _, c := range []struct {
+		name, want string
+		port       rotPort
+	}{
+		{"rotary-apply base", `"base": 500000`, rotPort{L: 2048, D: 64, rotated: 64, base: 500000, divide: 1, sign: 1}},
+		{"rotary-apply float32 angles", `"angles": "float32-angles"`, rotPort{L: 2048, D: 64, rotated: 64, base: 10000, divide: 1, sign: 1, angles32: true}},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			in := ops.Tensors{"x": tensor([]int{1, 8, 2048, 64}, 9)}
+			got := ops.Tensors{"y": {Data: to64(c.port.apply(t32(in, "x")))}}
+			ratio, res := costRatio(t, "rotary-apply", []byte(`{"version":1}`), in, got)
+			require.Equal(t, []string{"heads", "positions"}, res.Cuts)
+			require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(c.want), "%+v", res.Candidates[0])
+			require.LessOrEqual(t, ratio, 10.0)
+		})
+	}
 	t.Run("layernorm-forward", func(t *testing.T) {
 		// A batch of one sequence of 1024 rows of 512: ε placed outside
 		// the root.
@@ -91,7 +114,8 @@ func TestCostBatchOne(t *testing.T) {
 // TestCostIdioms: a port named by a precision idiom also costs at most 10
 // checks, though the idiom is judged on the whole problem and its cost
 // measured: a rotary port that forms its angles in float32, 8 sequences of
-// 2048 positions of 64 dims (cut to the first sequence), and a one-pass
+// 2048 positions of 64 dims (cut to the first sequence, then to 256 of its
+// positions spread over the length), and a one-pass
 // LayerNorm on 1024 rows of 512 of mean 10 (cut to its first rows).
 func TestCostIdioms(t *testing.T) {
 	if testing.Short() {
@@ -102,7 +126,7 @@ func TestCostIdioms(t *testing.T) {
 		r := rotPort{L: 2048, D: 64, rotated: 64, base: 10000, divide: 1, sign: 1, angles32: true}
 		got := ops.Tensors{"y": {Data: to64(r.apply(t32(in, "x")))}}
 		ratio, res := costRatio(t, "rotary-apply", []byte(`{"version":1}`), in, got)
-		require.Equal(t, []string{"leading axis"}, res.Cuts)
+		require.Equal(t, []string{"leading axis", "positions"}, res.Cuts)
 		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"angles": "float32-angles"`), "%+v", res.Candidates[0])
 		require.LessOrEqual(t, ratio, 10.0)
 	})

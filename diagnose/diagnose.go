@@ -31,9 +31,9 @@ type Options struct {
 	MaxCandidates int
 	// MaxElements bounds the problem the candidates run on, counted in
 	// input elements. A larger problem is cut to a part that fits where
-	// the operation allows (batch entries, heads, queries, rows; see the
-	// package documentation); Result.Cuts and Result.SubProblem say what
-	// was kept. 0 means DefaultMaxElements.
+	// the operation allows (batch entries, heads, queries, rows,
+	// positions; see the package documentation); Result.Cuts and
+	// Result.SubProblem say what was kept. 0 means DefaultMaxElements.
 	MaxElements int
 	// Pairs is the number of most promising single changes (the best of
 	// each key or mix-up, lowest normwise error first) that are combined
@@ -93,7 +93,9 @@ type Result struct {
 	// Cuts names the axes the sub-problem was cut along, in the order
 	// cut: "batch", "heads" (query heads with the kv heads they read),
 	// "queries" (the first queries with the keys they see, at their
-	// positions in the whole problem), "rows", "leading axis"; empty: the
+	// positions in the whole problem), "rows", "leading axis" and, for
+	// rotary-apply, "heads" and "positions" (positions spread over the
+	// length, each row at its position in the whole problem); empty: the
 	// whole problem.
 	Cuts       []string    `json:"cuts,omitempty"`
 	Run        int         `json:"candidates_run"`            // candidate configurations run

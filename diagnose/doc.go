@@ -102,7 +102,13 @@
 // them, then to its first queries with the keys they see (two more for an
 // edge one or two keys late), the configuration rewritten so that they sit
 // at their positions in the whole problem; the row-wise operations to
-// their first rows (every axis but the last counts rows). Outputs that sum
+// their first rows (every axis but the last counts rows); rotary-apply,
+// whose rows are independent given their positions, to the first entries
+// of its leading axes (the heads last), then to positions spread evenly
+// over the length, the first and the last included, each row kept at its
+// position in the whole problem ("positions" given explicitly), so that
+// an error that grows with the position (a base slip, an angle idiom)
+// shows there as on the whole. Outputs that sum
 // over what was cut (dk and dv over query heads and queries, dweight over
 // rows) are left out of the comparison. Mix-ups that move data across the
 // cut axes (a tensor read in the other layout, ALiBi slopes reversed) are
@@ -113,7 +119,7 @@
 // and comparison), and so does one that names a precision idiom, whose
 // yardstick is measured once more on the whole problem (a float32 run and
 // a comparison, without the reference); TestCostWithinTenChecks,
-// TestCostBatchOne and TestCostIdioms measure it.
+// TestCostBatchOne (rotary included) and TestCostIdioms measure it.
 //
 // Every failing output also gets error signatures, computed on the whole
 // problem: the largest error along the positions (exact at position 0,

@@ -414,8 +414,19 @@ func (s *search) measureCost(c *cand) {
 	if err != nil || costs == nil {
 		return
 	}
-	ic := &IdiomCost{SubProblem: c.cost.sub}
-	for _, n := range sortedNames(s.got) {
+	if ic := NewIdiomCost(costs, sortedNames(s.got)); ic != nil {
+		ic.SubProblem = c.cost.sub
+		c.IdiomCost = ic
+	}
+}
+
+// NewIdiomCost is what ops.IdiomCost (or IdiomCostOf) measured, as data:
+// the outputs named, in that order (those costs lacks are left out), each
+// with its errors at the first and the last position when it has
+// positions (ops.Cost.Sample). It is nil when no output is left.
+func NewIdiomCost(costs map[string]*ops.Cost, outputs []string) *IdiomCost {
+	ic := &IdiomCost{}
+	for _, n := range outputs {
 		k, ok := costs[n]
 		if !ok {
 			continue
@@ -429,9 +440,10 @@ func (s *search) measureCost(c *cand) {
 		}
 		ic.Outputs = append(ic.Outputs, oc)
 	}
-	if len(ic.Outputs) > 0 {
-		c.IdiomCost = ic
+	if len(ic.Outputs) == 0 {
+		return nil
 	}
+	return ic
 }
 
 // String is the cost in one line: for each output the idiom's normwise and

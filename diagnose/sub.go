@@ -3,6 +3,7 @@ package diagnose
 import (
 	"encoding/json"
 	"fmt"
+	"slices"
 	"sort"
 	"strings"
 
@@ -13,9 +14,10 @@ import (
 type subProblem struct {
 	in, got ops.Tensors
 	note    string   // what was kept; empty: the whole problem
-	cuts    []string // the axes cut: "batch", "heads", "queries", "rows", "leading axis"
+	cuts    []string // the axes cut: "batch", "heads", "queries", "rows", "leading axis", "positions"
 	// config, when not nil, turns a configuration of the whole problem
-	// into that of the sub-problem (the same query positions).
+	// into that of the sub-problem (the same query positions, the same
+	// rotary positions).
 	config func([]byte) ([]byte, error)
 }
 
@@ -43,7 +45,7 @@ var rowSums = []string{"dweight", "dbias", "dw1", "db1", "dv", "dc", "dfused", "
 // batch entries, then to query heads with the kv heads they read, then to
 // its first queries with the keys they see; the row-wise operations to
 // their first rows; rotary-apply to the first entries of its leading
-// axis.
+// axes (heads last), then to positions spread over its length.
 func cut(op string, cfg map[string]any, in, got ops.Tensors, maxElements int) subProblem {
 	total := elements(in)
 	if total <= maxElements {
@@ -53,11 +55,7 @@ func cut(op string, cfg map[string]any, in, got ops.Tensors, maxElements int) su
 	case strings.HasPrefix(op, "attention-"):
 		return attentionCut(cfg, in, got, total, maxElements)
 	case op == "rotary-apply":
-		x := in["x"].Shape
-		if _, pos := cfg["positions"]; len(x) == 0 || len(x) < 3 && pos {
-			return whole(in, got) // the positions run along the leading axis
-		}
-		return leadingCut(in, got, total, maxElements)
+		return rotaryCut(cfg, in, got, total, maxElements)
 	case contains(rowOps, op):
 		x := in["x"].Shape
 		if len(x) == 0 || len(x) < 2 && !strings.HasPrefix(op, "activation") {
@@ -76,24 +74,205 @@ func elements(in ops.Tensors) int {
 	return n
 }
 
-// leadingCut keeps the first entries of the leading axis of x that fit.
-func leadingCut(in, got ops.Tensors, total, maxElements int) subProblem {
-	lead := in["x"].Shape[0]
-	n := max(1, lead*maxElements/total)
-	if n >= lead {
+// minPositions is the fewest positions a rotary cut keeps, however long
+// the rows: enough, spread over the length, for an error that grows with
+// the position (a base or an angle idiom) to show as it does on the whole.
+const minPositions = 16
+
+// rotaryCut cuts rotary-apply, whose rows of x [..., length, dim] are
+// independent given their positions: to the first entries of its leading
+// axes that fit (whole entries of the first axis, else entry 0 of it and
+// the first entries of the next, the heads last), and when one sequence
+// (length × dim values) is still too large, to positions spread evenly
+// over the length, the first and the last included (at least
+// minPositions). The
+// rows kept sit at their positions in the whole problem: the
+// configuration gives them explicitly ("positions", one per token kept,
+// or one per row kept when the whole problem has one per row).
+func rotaryCut(cfg map[string]any, in, got ops.Tensors, total, maxElements int) subProblem {
+	x := in["x"]
+	s := x.Shape
+	if len(s) < 2 {
 		return whole(in, got)
 	}
-	sub := subProblem{in: copyTensors(in), got: ops.Tensors{}, cuts: []string{"leading axis"}}
-	sub.in["x"] = head(in["x"], n)
-	for k, t := range got {
-		if k == "y" {
-			sub.got[k] = ops.Tensor{Data: t.Data[:len(t.Data)/lead*n]}
-		} else {
-			sub.got[k] = t
+	L, D := s[len(s)-2], s[len(s)-1]
+	if L < 1 || D < 1 || len(x.Data)%(L*D) != 0 {
+		return whole(in, got)
+	}
+	lead := s[:len(s)-2]
+	seqs := len(x.Data) / (L * D) // sequences of L rows
+	fixed := total - len(x.Data)
+	budget := max(maxElements-fixed, 1)
+
+	// The leading axes: kept[a] entries of axis a, the axes before it at
+	// entry 0 and those after it whole.
+	kept := slices.Clone(lead)
+	keep := seqs
+	for a := range lead {
+		inner := 1
+		for _, d := range lead[a+1:] {
+			inner *= d
+		}
+		if keep*L*D <= budget {
+			break
+		}
+		for i := range a {
+			kept[i] = 1
+		}
+		k := max(1, budget/(inner*L*D))
+		kept[a] = min(k, lead[a])
+		keep = kept[a] * inner
+	}
+	var tokens []int // the tokens of the length axis kept; nil: all
+	if keep*L*D > budget {
+		if p := max(minPositions, budget/(keep*D)); p < L {
+			tokens = make([]int, p)
+			for i := range tokens {
+				tokens[i] = i * (L - 1) / (p - 1)
+			}
 		}
 	}
-	sub.note = fmt.Sprintf("entries 0–%d of %d of the leading axis (%d of %d input values)", n-1, lead, elements(sub.in), total)
+	if keep == seqs && tokens == nil {
+		return whole(in, got)
+	}
+	pos, _ := cfg["positions"].([]any)
+	perRow := len(pos) == seqs*L && seqs > 1
+	sub := subProblem{in: copyTensors(in), got: ops.Tensors{}}
+	shape := append(append([]int(nil), kept...), L, D)
+	if tokens != nil {
+		shape[len(shape)-2] = len(tokens)
+	}
+	sub.in["x"] = ops.Tensor{Shape: shape, Data: keepRows(x.Data, keep, L, D, tokens)}
+	for k, t := range got {
+		if len(t.Data) == len(x.Data) {
+			sub.got[k] = ops.Tensor{Data: keepRows(t.Data, keep, L, D, tokens)}
+		}
+	}
+	var parts []string
+	for a, d := range lead {
+		if kept[a] == d {
+			continue
+		}
+		one, many, what, cut := "entry 0", "entries", " of the leading axis", "leading axis"
+		switch {
+		case a == len(lead)-1 && a > 0:
+			one, many, what, cut = "head 0", "heads", "", "heads"
+		case a > 0:
+			what = fmt.Sprintf(" of leading axis %d", a)
+		}
+		sub.cuts = appendNew(sub.cuts, cut)
+		if kept[a] == 1 {
+			parts = append(parts, fmt.Sprintf("%s of %d%s", one, d, what))
+		} else {
+			parts = append(parts, fmt.Sprintf("%s 0–%d of %d%s", many, kept[a]-1, d, what))
+		}
+	}
+	if tokens != nil {
+		sub.cuts = append(sub.cuts, "positions")
+		parts = append(parts, fmt.Sprintf("%d of %d tokens spread over the length (%s), at their positions in the whole problem", len(tokens), L, spread(tokens)))
+	}
+	if tokens != nil || perRow {
+		sub.config = func(b []byte) ([]byte, error) { return rotaryPositions(b, seqs, keep, L, tokens) }
+	}
+	sub.note = fmt.Sprintf("%s (%d of %d input values)", strings.Join(parts, "; "), elements(sub.in), total)
 	return sub
+}
+
+// keepRows returns the rows of data ([seqs, L, D] row-major) of the first
+// keep sequences at the tokens listed (nil: all of them).
+func keepRows(data []float64, keep, L, D int, tokens []int) []float64 {
+	if tokens == nil {
+		return data[:keep*L*D]
+	}
+	out := make([]float64, 0, keep*len(tokens)*D)
+	for q := range keep {
+		for _, l := range tokens {
+			o := (q*L + l) * D
+			out = append(out, data[o:o+D]...)
+		}
+	}
+	return out
+}
+
+// rotaryPositions rewrites the configuration of a rotary-apply problem of
+// seqs sequences of L tokens for its first keep sequences at the tokens
+// listed (nil: all): the same positions, given explicitly, one per token
+// kept, or one per row kept when the configuration gives one per row.
+// A configuration whose positions the whole problem refuses is an error.
+func rotaryPositions(b []byte, seqs, keep, L int, tokens []int) ([]byte, error) {
+	var m map[string]any
+	if err := decode(b, &m); err != nil {
+		return nil, err
+	}
+	if tokens == nil {
+		tokens = upTo(L)
+	}
+	off := 0
+	if v, ok := m["offset"]; ok {
+		f, ok := number(v)
+		if !ok || f != float64(int(f)) {
+			return nil, fmt.Errorf("offset = %v; want an integer", v)
+		}
+		off = int(f)
+	}
+	var list []int
+	if v, ok := m["positions"]; ok && v != nil {
+		l, ok := v.([]any)
+		if !ok {
+			return nil, fmt.Errorf("positions = %v; want a list", v)
+		}
+		if off != 0 {
+			return b, nil // the operation refuses an offset with positions, here as on the whole problem
+		}
+		list = make([]int, 0, len(l))
+		for _, e := range l {
+			f, ok := number(e)
+			if !ok || f != float64(int(f)) {
+				return nil, fmt.Errorf("positions holds %v; want integers", e)
+			}
+			list = append(list, int(f))
+		}
+		if len(list) != L && len(list) != seqs*L {
+			return nil, fmt.Errorf("%d positions for %d sequences of %d tokens", len(list), seqs, L)
+		}
+	}
+	var pos []int
+	switch {
+	case list == nil:
+		for _, l := range tokens {
+			pos = append(pos, off+l)
+		}
+	case len(list) == L:
+		for _, l := range tokens {
+			pos = append(pos, list[l])
+		}
+	default: // one per row
+		for q := range keep {
+			for _, l := range tokens {
+				pos = append(pos, list[q*L+l])
+			}
+		}
+	}
+	delete(m, "offset")
+	m["positions"] = pos
+	return json.Marshal(m)
+}
+
+// spread is "0, 8, 16, …, 2047" for tokens spread evenly, all of them
+// when there are at most 4.
+func spread(tokens []int) string {
+	if len(tokens) <= 4 {
+		return intList(tokens)
+	}
+	return fmt.Sprintf("%d, %d, %d, …, %d", tokens[0], tokens[1], tokens[2], tokens[len(tokens)-1])
+}
+
+// appendNew appends s to list unless it is there.
+func appendNew(list []string, s string) []string {
+	if slices.Contains(list, s) {
+		return list
+	}
+	return append(list, s)
 }
 
 // rowCut keeps the first rows of x and dy (every axis but the last
@@ -607,14 +786,6 @@ func intList(s []int) string {
 		t[i] = fmt.Sprint(v)
 	}
 	return strings.Join(t, ", ")
-}
-
-// head returns the first n entries of t's leading axis.
-func head(t ops.Tensor, n int) ops.Tensor {
-	s := append([]int(nil), t.Shape...)
-	inner := len(t.Data) / s[0]
-	s[0] = n
-	return ops.Tensor{Shape: s, Data: t.Data[:n*inner]}
 }
 
 func contains(list []string, s string) bool {

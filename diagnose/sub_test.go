@@ -1,7 +1,9 @@
 package diagnose
 
 import (
+	"encoding/json"
 	"fmt"
+	"strings"
 	"testing"
 
 	"github.com/plumbref/plumb/ops"
@@ -142,4 +144,101 @@ func TestHeadCutKeepsBothGroupMaps(t *testing.T) {
 	_, _, ok = headCut(6, 3)
 	require.False(t, ok)
 	require.Greater(t, found, 50)
+}
+
+// TestRotaryCutIsASlice: on every cut of rotary-apply (the leading axis,
+// the heads, an inner leading axis, the positions, and these together),
+// the reference of the sub-problem, under the configuration the cut gives
+// it, is the corresponding slice of the reference of the whole problem,
+// for positions from an offset, given per token and given per row, and
+// so it is for a candidate's change of the offset; the positions kept
+// are spread over the length, the first and the last included.
+func TestRotaryCutIsASlice(t *testing.T) {
+	const L, D = 40, 4
+	perToken := make([]int, L)
+	for i := range perToken {
+		perToken[i] = 3*i + 1
+	}
+	positions := func(n int) string {
+		p := make([]string, n)
+		for i := range p {
+			p[i] = fmt.Sprint((7*i + 2) % 61)
+		}
+		return strings.Join(p, ",")
+	}
+	for _, c := range []struct {
+		shape []int
+		limit int
+		cuts  []string
+		x     []int // the shape of the sub-problem's x
+	}{
+		{[]int{6, L, D}, 2 * L * D, []string{"leading axis"}, []int{2, L, D}},
+		{[]int{3, 4, L, D}, 2 * L * D, []string{"leading axis", "heads"}, []int{1, 2, L, D}},
+		{[]int{3, 4, L, D}, 8 * L * D, []string{"leading axis"}, []int{2, 4, L, D}},
+		{[]int{1, 4, L, D}, 20 * D, []string{"heads", "positions"}, []int{1, 1, 20, D}},
+		{[]int{2, 3, 2, L, D}, 6 * L * D, []string{"leading axis"}, []int{1, 3, 2, L, D}},
+		{[]int{2, 3, 2, L, D}, 5 * L * D, []string{"leading axis"}, []int{1, 2, 2, L, D}},
+		{[]int{2, 3, 2, L, D}, L * D, []string{"leading axis", "heads"}, []int{1, 1, 1, L, D}},
+		{[]int{L, D}, 10 * D, []string{"positions"}, []int{minPositions, D}},
+	} {
+		rows := 1
+		for _, d := range c.shape[:len(c.shape)-1] {
+			rows *= d
+		}
+		in := ops.Tensors{"x": tensor(c.shape, 5)}
+		for _, cfg := range []string{
+			`{"version":1}`,
+			`{"version":1,"offset":3,"base":500,"inverse":true}`,
+			`{"version":1,"positions":[` + positions(L) + `],"pairing":"halves"}`,
+			`{"version":1,"positions":[` + positions(rows) + `]}`,
+			`{"version":1,"scaling":{"method":"interpolation","factor":4},"angles":"float32-angles"}`,
+		} {
+			name := fmt.Sprintf("%v, limit %d, %s", c.shape, c.limit, cfg)
+			ref, err := ops.Run("rotary-apply", []byte(cfg), in)
+			require.NoError(t, err, name)
+			var m map[string]any
+			require.NoError(t, decode([]byte(cfg), &m))
+			sp := cut("rotary-apply", m, in, ref, c.limit)
+			require.Equal(t, c.cuts, sp.cuts, name)
+			require.Equal(t, c.x, sp.in["x"].Shape, name)
+			require.LessOrEqual(t, elements(sp.in), max(c.limit, minPositions*D), name)
+			sub, err := runSub(mustLookup(t, "rotary-apply"), sp, []byte(cfg))
+			require.NoError(t, err, name)
+			require.Equal(t, sp.got["y"].Data, sub["y"].Data, "%s: the sub-problem (%s)", name, sp.note)
+			if strings.Contains(cfg, "positions") {
+				continue
+			}
+			// A candidate that moves the positions: offset 2 more.
+			moved := deepCopy(m).(map[string]any)
+			off, _ := number(moved["offset"])
+			moved["offset"] = off + 2
+			b, err := json.Marshal(moved)
+			require.NoError(t, err)
+			whole, err := ops.Run("rotary-apply", b, in)
+			require.NoError(t, err, name)
+			sub, err = runSub(mustLookup(t, "rotary-apply"), sp, b)
+			require.NoError(t, err, name)
+			want := cut("rotary-apply", m, in, whole, c.limit).got["y"].Data
+			require.Equal(t, want, sub["y"].Data, "%s: offset moved on the sub-problem (%s)", name, sp.note)
+		}
+	}
+
+	// The positions kept: 20 of 2048, the first and the last among them,
+	// evenly spread.
+	in := ops.Tensors{"x": tensor([]int{1, 2048, 8}, 6)}
+	ref, err := ops.Run("rotary-apply", []byte(`{"version":1}`), in)
+	require.NoError(t, err)
+	sp := cut("rotary-apply", map[string]any{}, in, ref, 160)
+	b, err := sp.run([]byte(`{"version":1}`))
+	require.NoError(t, err)
+	var m struct{ Positions []int }
+	require.NoError(t, json.Unmarshal(b, &m))
+	require.Len(t, m.Positions, 20)
+	require.Equal(t, 0, m.Positions[0])
+	require.Equal(t, 2047, m.Positions[19])
+	for i := 1; i < 20; i++ {
+		step := m.Positions[i] - m.Positions[i-1]
+		require.True(t, step == 2047/19 || step == 2047/19+1, "step %d at %d", step, i)
+	}
+	require.Equal(t, "20 of 2048 tokens spread over the length (0, 107, 215, …, 2047), at their positions in the whole problem (160 of 16384 input values)", sp.note)
 }
