@@ -188,7 +188,7 @@
 //	attention  1.0e-13  Backward (logits near ±1000), d_q
 //	posenc     1.3e-16  Rotary.Apply, y
 //	norm       8.1e-16  RMSNormBackward, dx
-//	ffn        6.4e-16  BackwardFast, dweights
+//	ffn        5.6e-16  Backward, dweights
 //
 // Each package's documentation has the table by function and output.
 // Masks, ALiBi slopes, rotary frequencies and conversions between number

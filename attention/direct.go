@@ -34,7 +34,7 @@ func logitsRow[T num.Float](p *plan, q, k []T, b, h, i, j0 int, s, sech2 []T) {
 				acc += T(x * kj[d])
 			}
 		}
-		t := finishLogit(p, T(p.scale)*acc, b, h, i, j0+jj, jj, sech2)
+		t := finishLogit(p, T(T(p.scale)*acc), b, h, i, j0+jj, jj, sech2)
 		if t-t != 0 { // NaN or ±Inf: an overflow, unless an input is one
 			checkLogit(p, q, k, t, b, h, kv, i, j0+jj)
 		}

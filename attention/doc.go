@@ -64,10 +64,12 @@
 // maximum and sum, as tiled kernels compute it, and Merge combines partial
 // results over disjoint key sets. Decode is Forward for new queries at
 // positions pos … pos+Lq−1 against a cache. ForwardFast and BackwardFast are
-// blocked (64 query rows), use gonum's BLAS for every product, run in
-// parallel over independent outputs, hold at most a few 64 × Lk blocks per
-// worker, and are bit-identical for any GOMAXPROCS; they are proved equal to
-// the direct form within 1e-14 by the tests.
+// blocked (64 query rows), compute every product with plumb's own
+// register-blocked matrix product (internal/num's Gemm, pure Go), run in
+// parallel over independent outputs and hold at most a few 64 × Lk blocks
+// per worker; each of their sums has the direct form's terms in the direct
+// form's order, so they give Forward's and Backward's results bit for bit
+// (TestFastIsDirect), faster.
 //
 // Every exported function that takes or returns tensors has a float32 twin
 // named with the suffix 32 (Forward32, BackwardFast32, Merge32, …) that
@@ -91,16 +93,13 @@
 // unshifted softmax overflows at logits above 88.72 (11.09 with binary16
 // sums).
 //
-// Determinism: every form gives bit-identical results for any GOMAXPROCS.
-// The direct and tiled forms round every product before it is added (no
-// fused multiply-add), so they also agree across architectures up to the
-// math package's Exp, Log, Tanh and Cosh, which are assembly on some
-// architectures and Go on others; the fast form depends in addition on
-// gonum's kernels for the architecture. The float32 fast forms
-// (ForwardFast32, BackwardFast32) depend besides on where the slices lie in
-// memory: gonum's float32 kernels can give other last bits for the same
-// values at other addresses (measured on amd64), which the float64 kernels
-// do not.
+// Determinism: every form gives bit-identical results for any GOMAXPROCS
+// and on every architecture (amd64 with any GOAMD64, arm64, ppc64le,
+// s390x): every product is rounded before it is added (no fused
+// multiply-add), the matrix products of the fast forms are plumb's own,
+// whose sums do not depend on the blocking or the machine, and exp, log,
+// tanh and cosh are plumb's correctly rounded ones (internal/elem). The
+// float32 twins, the fast ones included, are as deterministic.
 //
 // The backward pass uses D_i − c = Σ_j P_ij (dP_ij − c) − c·P_sink, with c
 // the dP of the row's most probable entry, instead of D_i = dO_i · O_i:
@@ -119,8 +118,7 @@
 //	+Inf logit (e.g. a +Inf bias)       NaN row
 //	−Inf bias, or a −Inf logit from     hides the key, like the mask
 //	  infinite q or k
-//	Inf or NaN in a V row of weight 0   ignored by the direct and tiled forms;
-//	                                    NaN in the fast form (0·Inf in BLAS)
+//	Inf or NaN in a V row of weight 0   ignored
 //	a logit of finite inputs that       an error wrapping ErrOverflow (see
 //	  overflows                         Options): Scale 1e308 on inputs near 1
 //	a tensor beyond MaxElements         ErrShape, before anything is allocated
@@ -152,8 +150,10 @@
 //	BackwardFast (logits near ±1000)                      1.0e-13   9.2e-14
 //	Forward32                         3.9e-07   6.1e-08
 //	ForwardTiled32                    4.0e-07   7.5e-08
+//	ForwardFast32                     3.9e-07   6.1e-08
 //	Decode32                          7.1e-08   6.0e-08
 //	Backward32                                            9.1e-07   9.1e-07   4.2e-07   9.7e-08   1.5e-07
+//	BackwardFast32                                        9.1e-07   9.1e-07   4.2e-07   9.7e-08   1.5e-07
 //	Merge32                           8.6e-08   4.7e-08
 //	Softmax32                         7.9e-06
 //	LogSumExp32                                 9.3e-08
@@ -166,10 +166,8 @@
 // cancels; rounding only the logits and computing the rest at 50 digits
 // gives the same 1.0e-13, so that error is the problem's conditioning. The
 // float32 twins skip those cases (float32 inputs change such logits by
-// about 1e-4). ForwardFast32 and BackwardFast32 are not in the table:
-// gonum's float32 kernels round differently with the memory alignment of
-// their operands, so their last bits vary between calls on copies of the
-// same inputs; they measure as Forward32 and Backward32 do.
+// about 1e-4). The fast forms measure as the direct forms do: they are the
+// same bits.
 //
 // # Speed
 //

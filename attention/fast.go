@@ -9,16 +9,22 @@ import (
 )
 
 // This file holds the fast form: blocks of rowBlock query rows at a time,
-// the products through BLAS, in parallel over independent outputs.
+// the products through plumb's own matrix product (num.GemmSerial), in
+// parallel over independent outputs. Every sum is the direct form's sum,
+// term for term and in the same order, so the fast form is the direct form
+// bit for bit (see ForwardFast).
 
 // rowBlock is the number of query rows a task handles at once. The scores
 // of one task are rowBlock × (visible keys), so a worker holds at most
 // rowBlock·Lk values.
 const rowBlock = 64
 
-// The products go through num.GemmTiled: the fast form is already
-// parallel over independent tasks, and nested parallelism inside the BLAS
-// only adds scheduling and cache contention.
+// The products go through num.GemmSerial: the fast form is already
+// parallel over independent tasks, and nested parallelism inside the
+// product only adds scheduling and cache contention. num.GemmSerial sums
+// each element as the plain loop does, from zero (or from C), products
+// rounded, in ascending order of the summed index; a product with the
+// scale α rounds α·a first, as the direct form's dt *= scale does.
 
 // parallel runs task(w, t) for t = 0 … n−1 on up to workers goroutines; w
 // is the worker's index, for its own scratch space. Which worker runs which
@@ -50,39 +56,40 @@ func parallel(n, workers int, task func(w, t int)) {
 }
 
 // ForwardFast is Forward computed in blocks of 64 query rows with the
-// products Q·Kᵀ and P·V done by gonum's BLAS (blas64; blas32 for the
-// float32 instantiation), in parallel over batch × heads × row blocks.
-// Each task computes only the keys its rows can see (for a causal mask,
-// about half the products), holds at most 64 × Lk scores, and writes its
-// own output rows, so the result is bit-identical for any GOMAXPROCS. (That
-// holds for gonum's own BLAS, the default; a program that installs another
-// implementation with blas64.Use or blas32.Use gets its speed and its
-// determinism.) The mask is kept as one run of keys per row (2·Batch·Lq
-// ints) for every mask kind of the mask package.
+// products Q·Kᵀ and P·V done by plumb's own blocked matrix product
+// (internal/num's Gemm, pure Go), in parallel over batch × heads × row
+// blocks. Each task computes only the keys its rows can see (for a causal
+// mask, about half the products), holds at most 64 × Lk scores, and writes
+// its own output rows.
 //
-// It is not bit-identical to Forward: BLAS sums q·k and P·V in its own
-// order. The tests bound the normwise relative difference from Forward and
-// from the golden values by 1e-14.
+// It is Forward bit for bit, on every architecture and for any GOMAXPROCS:
+// each logit is Σ_d q_d·k_d summed from 0 in ascending d with every product
+// rounded, then multiplied by Scale, as Forward computes it; the softmax
+// is the same code; and each output element is Σ_j P_j·v_j in ascending j,
+// where the keys Forward skips (weight 0) add exact zeros. When V holds an
+// Inf or NaN, which a weight 0 would turn into NaN (0·Inf), it computes as
+// Forward does instead, so that such a key is ignored there too.
+// TestFastIsDirect checks the identity on random problems with every
+// option.
 //
-// Special cases are those of Forward, except that an Inf or NaN in a V row
-// that a row block computes with weight 0 gives NaN (0·Inf) where Forward
-// skips the key, and that Lk > MaxElements/192 is refused (ErrShape): a
-// worker's scratch would exceed MaxElements.
+// Special cases are those of Forward, except that Lk > MaxElements/192 is
+// refused (ErrShape): a worker's scratch would exceed MaxElements. The
+// mask is kept as one run of keys per row (2·Batch·Lq ints) for every mask
+// kind of the mask package.
 //
-// Accuracy: the package documentation's table; on random problems of up to 164
-// rows it stays within 1e-14 of Forward (TestPropertyFastMatchesDirect).
+// Accuracy: that of Forward (the package documentation's table).
 func ForwardFast(q, k, v []float64, s Shape, o Options) (out, lse []float64, err error) {
 	return runForward("ForwardFast", q, k, v, s, o, forwardFast)
 }
 
 // ForwardFast32 is the float32 instantiation of the same body as
-// ForwardFast, through blas32: the straightforward low-precision
-// implementation the compare package uses as a yardstick; not a reference.
+// ForwardFast: the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference. It is Forward32
+// bit for bit, as ForwardFast is Forward, except that it computes in plain
+// float32 whatever o.Idiom says (Forward32 honours it).
 //
 // Special cases are those of ForwardFast. Accuracy, as a yardstick: that
-// of Forward32 in the package documentation's table. Unlike
-// ForwardFast, its last bits can depend on the addresses of the slices
-// (see Determinism in the package documentation).
+// of Forward32 in the package documentation's table.
 func ForwardFast32(q, k, v []float32, s Shape, o Options) (out, lse []float32, err error) {
 	return runForward("ForwardFast32", q, k, v, s, o, forwardFast)
 }
@@ -116,14 +123,16 @@ func (p *plan) keyRange(b, i0, i1 int) (lo, hi int) {
 	return lo, max(lo, hi)
 }
 
-// blockProbs turns the scaled products in sc (rows i0 … i0+len/n−1 of
+// blockProbs turns the products q·k in sc (rows i0 … i0+len/n−1 of
 // (b, h), keys lo … lo+n−1, leading dimension n) into probabilities in
-// place and writes each row's log-sum-exp and sink probability. It
+// place (scaled, capped, biased and masked as Forward's logits) and writes
+// each row's log-sum-exp and sink probability. It
 // returns whether any row was empty. q and k, read from kv head kv, are the
 // inputs of the products, for checkLogit.
 func blockProbs[T num.Float](p *plan, q, k, sc, sech2 []T, b, h, kv, i0, rows, lo, n int, lse, psink []T) (anyEmpty bool) {
 	sink := T(p.sinkLogit(h))
 	negInf := T(math.Inf(-1))
+	scale := T(p.scale)
 	plain := p.softCap == 0 && p.bias == nil && p.slopes == nil
 	for r := range rows {
 		i := i0 + r
@@ -139,9 +148,13 @@ func blockProbs[T num.Float](p *plan, q, k, sc, sech2 []T, b, h, kv, i0, rows, l
 			rr := b*p.s.Lq + i
 			a = min(max(p.runLo[rr]-lo, 0), n)
 			z = max(min(p.runHi[rr]-lo, n), a)
-			if !plain {
+			if plain {
 				for jj := a; jj < z; jj++ {
-					x[jj] = finishLogit(p, x[jj], b, h, i, lo+jj, jj, d)
+					x[jj] = T(scale * x[jj])
+				}
+			} else {
+				for jj := a; jj < z; jj++ {
+					x[jj] = finishLogit(p, T(scale*x[jj]), b, h, i, lo+jj, jj, d)
 				}
 			}
 			for jj := a; jj < z; jj++ {
@@ -152,7 +165,7 @@ func blockProbs[T num.Float](p *plan, q, k, sc, sech2 []T, b, h, kv, i0, rows, l
 		} else {
 			for jj, t := range x {
 				if p.visible(b, i, lo+jj) {
-					x[jj] = finishLogit(p, t, b, h, i, lo+jj, jj, d)
+					x[jj] = finishLogit(p, T(scale*t), b, h, i, lo+jj, jj, d)
 					if t := x[jj]; t-t != 0 {
 						checkLogit(p, q, k, t, b, h, kv, i, lo+jj)
 					}
@@ -174,7 +187,7 @@ func blockProbs[T num.Float](p *plan, q, k, sc, sech2 []T, b, h, kv, i0, rows, l
 }
 
 // fixEmpty sets the output rows of empty rows to 0 or NaN (a block with no
-// visible key at all has not been through BLAS).
+// visible key at all has not been through the product).
 func fixEmpty[T num.Float](p *plan, out, lse []T, b, h, i0, rows int) {
 	for r := range rows {
 		if lse[p.lOff(b, h, i0+r)] != T(math.Inf(-1)) {
@@ -192,6 +205,9 @@ func fixEmpty[T num.Float](p *plan, out, lse []T, b, h, i0, rows int) {
 }
 
 func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
+	if !allFinite(v) {
+		return forward(p, q, k, v) // see ForwardFast: a hidden Inf in V is skipped, not multiplied by 0
+	}
 	s := p.s
 	out = make([]T, s.oLen())
 	lse = make([]T, s.lseLen())
@@ -214,14 +230,14 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 		rl := bufs[w][rowBlock*s.Lk:][:rows]
 		ps := bufs[w][rowBlock*s.Lk+rowBlock:][:rows]
 		if n > 0 {
-			num.GemmTiled(false, true, rows, n, s.Dk, T(p.scale), q[p.qOff(b, h, i0):], qs, k[p.kOff(b, kv, lo):], ks, 0, sc, n)
+			num.GemmSerial(false, true, rows, n, s.Dk, 1, q[p.qOff(b, h, i0):], qs, k[p.kOff(b, kv, lo):], ks, 0, sc, n)
 		}
 		anyEmpty := blockProbs(p, q, k, sc, nil, b, h, kv, i0, rows, lo, n, rl, ps)
 		for r := range rows {
 			lse[p.lOff(b, h, i0+r)] = rl[r]
 		}
 		if n > 0 {
-			num.GemmTiled(false, false, rows, s.Dv, n, 1, sc, n, v[p.vOff(b, kv, lo):], vs, 0, out[p.oOff(b, h, i0):], os)
+			num.GemmSerial(false, false, rows, s.Dv, n, 1, sc, n, v[p.vOff(b, kv, lo):], vs, 0, out[p.oOff(b, h, i0):], os)
 		}
 		if anyEmpty || n == 0 {
 			fixEmpty(p, out, lse, b, h, i0, rows)
@@ -231,29 +247,36 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 }
 
 // BackwardFast is Backward computed in blocks of 64 query rows with every
-// product through gonum's BLAS. Tasks are (batch entry, kv head) pairs: a
-// task walks the query heads that read its kv head and their row blocks in
-// a fixed order, owns the dK and dV of its kv head and the dQ of its query
-// heads, and so no sum is split between goroutines and the result is
-// bit-identical for any GOMAXPROCS. With a bias broadcast across tasks (one
-// bias for several batch entries, or for query heads of several kv heads)
-// the bias gradient is a sum across tasks, and the tasks run one after
-// another instead. A worker holds at most 3 × 64 × Lk values.
+// product through plumb's own blocked matrix product. Tasks are (batch
+// entry, kv head) pairs: a task walks the query heads that read its kv head
+// in ascending order and their row blocks in ascending order, owns the dK
+// and dV of its kv head and the dQ of its query heads, and so no sum is
+// split between goroutines. With a bias broadcast across tasks (one bias
+// for several batch entries, or for query heads of several kv heads) the
+// bias gradient is a sum across tasks, and the row blocks are computed one
+// after another in Backward's order (batch entry, query head, row). A
+// worker holds at most 3 × 64 × Lk values.
+//
+// It is Backward bit for bit, on every architecture and for any
+// GOMAXPROCS: every sum has Backward's terms in Backward's order (dQ_i over
+// the keys, dK_j and dV_j over the rows in the order batch entry, query
+// head, row, and the sink gradient over the rows of each head in that
+// order), and the keys Backward skips (weight 0) add exact zeros. When Q,
+// K or dOut holds an Inf or NaN, which a weight 0 would turn into NaN, it
+// computes as Backward does instead. TestFastIsDirect checks the identity.
 //
 // Special cases are those of Backward, and Lk > MaxElements/192 is refused
 // (ErrShape): a worker's scratch would exceed MaxElements.
 //
-// Accuracy: the package documentation's table (the same worst errors as
-// Backward); on random problems it stays within 1e-14 of Backward.
+// Accuracy: that of Backward (the package documentation's table).
 func BackwardFast(q, k, v, dOut, dLSE []float64, s Shape, o Options) (Grads, error) {
 	return grads64(runBackward("BackwardFast", q, k, v, dOut, dLSE, s, o, backwardFast))
 }
 
 // BackwardFast32 is the float32 instantiation of the same body as
-// BackwardFast, through blas32: the straightforward low-precision
-// implementation the compare package uses as a yardstick; not a reference.
-// Unlike BackwardFast, its last bits can depend on the addresses of the
-// slices (see Determinism in the package documentation).
+// BackwardFast: the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference. It is Backward32
+// bit for bit.
 //
 // Special cases are those of BackwardFast.
 //
@@ -263,34 +286,73 @@ func BackwardFast32(q, k, v, dOut, dLSE []float32, s Shape, o Options) (Grads32,
 	return grads32(runBackward("BackwardFast32", q, k, v, dOut, dLSE, s, o, backwardFast))
 }
 
+// allFinite reports whether no element of any of xs is an Inf or NaN.
+func allFinite[T num.Float](xs ...[]T) bool {
+	for _, x := range xs {
+		for _, v := range x {
+			if v-v != 0 {
+				return false
+			}
+		}
+	}
+	return true
+}
+
 func backwardFast[T num.Float](p *plan, q, k, v, dout, dlse []T) grads[T] {
+	if !allFinite(q, k, dout) {
+		return backward(p, q, k, v, dout, dlse) // see BackwardFast
+	}
 	s := p.s
 	g := grads[T]{dq: make([]T, s.qLen()), dk: make([]T, s.kLen()), dv: make([]T, s.vLen())}
-	var sinkPart []T // [Batch, HeadsQ]
+	var sinkTerms []T // [Batch, HeadsQ, Lq]: each row's term of its head's sink gradient
 	if p.sinks != nil {
 		g.dsinks = make([]T, s.HeadsQ)
-		sinkPart = make([]T, s.Batch*s.HeadsQ)
+		sinkTerms = make([]T, s.Batch*s.HeadsQ*s.Lq)
 	}
 	if p.bias != nil {
 		g.dbias = make([]T, len(p.bias))
 	}
 	ntask := s.Batch * s.HeadsKV
-	workers := fastWorkers(3*rowBlock*s.Lk + 2*rowBlock)
-	if p.bias != nil && ((!p.biasB && s.Batch > 1) || (!p.biasH && s.HeadsKV > 1)) {
-		workers = 1
+	newTask := func(sb *bwdScratch[T], t int) *bwdTask[T] {
+		return &bwdTask[T]{p: p, g: &g, sinkTerms: sinkTerms, sb: sb, q: q, k: k, v: v, dout: dout, dlse: dlse, b: t / s.HeadsKV, kv: t % s.HeadsKV}
 	}
-	bufs := make([]*bwdScratch[T], min(workers, max(1, ntask)))
-	parallel(ntask, workers, func(w, t int) {
-		if bufs[w] == nil {
-			bufs[w] = newBwdScratch[T](p)
+	if p.bias != nil && ((!p.biasB && s.Batch > 1) || (!p.biasH && s.HeadsKV > 1)) {
+		// The bias gradient sums across tasks: every block in Backward's
+		// order, on this goroutine.
+		sb := newBwdScratch[T](p)
+		tasks := make([]*bwdTask[T], ntask)
+		for t := range tasks {
+			tasks[t] = newTask(sb, t)
+			tasks[t].strides()
 		}
-		task := bwdTask[T]{p: p, g: &g, sinkPart: sinkPart, sb: bufs[w], q: q, k: k, v: v, dout: dout, dlse: dlse, b: t / s.HeadsKV, kv: t % s.HeadsKV}
-		task.run()
-	})
-	if g.dsinks != nil {
 		for b := range s.Batch {
 			for h := range s.HeadsQ {
-				g.dsinks[h] += sinkPart[b*s.HeadsQ+h]
+				t := tasks[b*s.HeadsKV+p.kvHead(h)]
+				for i0 := 0; i0 < s.Lq; i0 += rowBlock {
+					t.block(h, i0, min(rowBlock, s.Lq-i0))
+				}
+			}
+		}
+		for _, t := range tasks {
+			t.finish()
+		}
+	} else {
+		workers := fastWorkers(3*rowBlock*s.Lk + 2*rowBlock)
+		bufs := make([]*bwdScratch[T], min(workers, max(1, ntask)))
+		parallel(ntask, workers, func(w, t int) {
+			if bufs[w] == nil {
+				bufs[w] = newBwdScratch[T](p)
+			}
+			newTask(bufs[w], t).run()
+		})
+	}
+	if g.dsinks != nil {
+		// Backward's order: batch entry, then row, for each head.
+		for b := range s.Batch {
+			for h := range s.HeadsQ {
+				for _, x := range sinkTerms[(b*s.HeadsQ+h)*s.Lq:][:s.Lq] {
+					g.dsinks[h] += x
+				}
 			}
 		}
 	}
@@ -316,7 +378,7 @@ func newBwdScratch[T num.Float](p *plan) *bwdScratch[T] {
 type bwdTask[T num.Float] struct {
 	p                   *plan
 	g                   *grads[T]
-	sinkPart            []T
+	sinkTerms           []T
 	sb                  *bwdScratch[T]
 	q, k, v, dout, dlse []T
 	b, kv               int
@@ -324,9 +386,12 @@ type bwdTask[T num.Float] struct {
 	qs, ks, vs, os      int  // row strides
 }
 
+// run computes the task's blocks: the query heads that read kv head kv in
+// ascending order (as Backward visits them), each head's row blocks in
+// ascending order.
 func (t *bwdTask[T]) run() {
 	p, s := t.p, t.p.s
-	t.qs, t.ks, t.vs, t.os = stride(p.layout, s.HeadsQ, s.Dk), stride(p.layout, s.HeadsKV, s.Dk), stride(p.layout, s.HeadsKV, s.Dv), stride(p.layout, s.HeadsQ, s.Dv)
+	t.strides()
 	group := s.HeadsQ / s.HeadsKV
 	for gi := range group {
 		h := t.kv*group + gi
@@ -337,6 +402,19 @@ func (t *bwdTask[T]) run() {
 			t.block(h, i0, min(rowBlock, s.Lq-i0))
 		}
 	}
+	t.finish()
+}
+
+// strides sets the row strides of the task's tensors.
+func (t *bwdTask[T]) strides() {
+	p, s := t.p, t.p.s
+	t.qs, t.ks, t.vs, t.os = stride(p.layout, s.HeadsQ, s.Dk), stride(p.layout, s.HeadsKV, s.Dk), stride(p.layout, s.HeadsKV, s.Dv), stride(p.layout, s.HeadsQ, s.Dv)
+}
+
+// finish sets the task's dK and dV to NaN when one of its rows was empty
+// under EmptyRowNaN.
+func (t *bwdTask[T]) finish() {
+	p, s := t.p, t.p.s
 	if t.nanHead {
 		// As in Backward: a NaN row poisons its kv head's dK and dV.
 		for j := range s.Lk {
@@ -361,8 +439,8 @@ func (t *bwdTask[T]) block(h, i0, rows int) {
 	var kb, vb []T
 	if n > 0 {
 		kb, vb = t.k[p.kOff(b, t.kv, lo):], t.v[p.vOff(b, t.kv, lo):]
-		num.GemmTiled(false, true, rows, n, s.Dk, scale, qb, t.qs, kb, t.ks, 0, sc, n)
-		num.GemmTiled(false, true, rows, n, s.Dv, 1, dob, t.os, vb, t.vs, 0, dp, n)
+		num.GemmSerial(false, true, rows, n, s.Dk, 1, qb, t.qs, kb, t.ks, 0, sc, n)
+		num.GemmSerial(false, true, rows, n, s.Dv, 1, dob, t.os, vb, t.vs, 0, dp, n)
 	}
 	blockProbs(p, t.q, t.k, sc, sech2, b, h, t.kv, i0, rows, lo, n, sb.rl, sb.ps)
 	for r := range rows {
@@ -373,9 +451,9 @@ func (t *bwdTask[T]) block(h, i0, rows int) {
 		t.row(h, i0+r, r, lo, sc[r*n:][:n], dp[r*n:][:n], cap2)
 	}
 	if n > 0 {
-		num.GemmTiled(false, false, rows, s.Dk, n, scale, dp, n, kb, t.ks, 0, g.dq[p.qOff(b, h, i0):], t.qs)
-		num.GemmTiled(true, false, n, s.Dk, rows, scale, dp, n, qb, t.qs, 1, g.dk[p.kOff(b, t.kv, lo):], t.ks)
-		num.GemmTiled(true, false, n, s.Dv, rows, 1, sc, n, dob, t.os, 1, g.dv[p.vOff(b, t.kv, lo):], t.vs)
+		num.GemmSerial(false, false, rows, s.Dk, n, scale, dp, n, kb, t.ks, 0, g.dq[p.qOff(b, h, i0):], t.qs)
+		num.GemmSerial(true, false, n, s.Dk, rows, scale, dp, n, qb, t.qs, 1, g.dk[p.kOff(b, t.kv, lo):], t.ks)
+		num.GemmSerial(true, false, n, s.Dv, rows, 1, sc, n, dob, t.os, 1, g.dv[p.vOff(b, t.kv, lo):], t.vs)
 	}
 	// The empty rows' dQ were overwritten by the product.
 	if t.nanHead {
@@ -398,7 +476,7 @@ func (t *bwdTask[T]) row(h, i, r, lo int, pr, dr, sech2 []T) {
 			t.nanHead = true
 			nanFill(g.dq[p.qOff(b, h, i):][:s.Dk])
 			if g.dsinks != nil {
-				t.sinkPart[b*s.HeadsQ+h] = T(math.NaN())
+				t.sinkTerms[(b*s.HeadsQ+h)*s.Lq+i] = T(math.NaN())
 			}
 			if br := p.biasRow(b, h, i); br >= 0 {
 				nanFill(g.dbias[br:][:s.Lk])
@@ -414,7 +492,7 @@ func (t *bwdTask[T]) row(h, i, r, lo int, pr, dr, sech2 []T) {
 	}
 	c, dc := centredD(pr, dr, sb.ps[r])
 	if g.dsinks != nil {
-		t.sinkPart[b*s.HeadsQ+h] += T(sb.ps[r] * (gl - (dc + c)))
+		t.sinkTerms[(b*s.HeadsQ+h)*s.Lq+i] = T(sb.ps[r] * (gl - (dc + c)))
 	}
 	br := p.biasRow(b, h, i)
 	for jj, pj := range pr {

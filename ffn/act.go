@@ -10,7 +10,8 @@ import (
 // written once; the exported float64 functions are the reference, and
 // Activate32, ActivateGrad32 and the float32 layers run the float32
 // instantiation of the same body. Transcendental
-// functions are Go's float64 ones (math.Exp, math.Erfc); the float32 body
+// functions are plumb's float64 ones (internal/elem's Exp and Erfc, correctly
+// rounded); the float32 body
 // rounds their results to float32, as a float32 math library accurate to
 // about one unit in the last place would give.
 

@@ -2,10 +2,11 @@ package ffn
 
 import "github.com/plumbref/plumb/internal/num"
 
-// gemm is C = op(A)·op(B) + beta·C through gonum's BLAS (num.Gemm: blas64
-// for float64, blas32 for float32, so that the float32 instantiation stays
-// a float32 computation, tiled so that the sums do not depend on
-// GOMAXPROCS).
+// gemm is C = op(A)·op(B) + beta·C through plumb's own matrix product
+// (num.Gemm: pure Go, parallel over blocks of C). It sums each element as
+// the direct form's project does: from 0 (beta = 0) or from C (beta = 1),
+// the products rounded, in ascending order of the summed index; the same
+// bits on every architecture and for any GOMAXPROCS.
 func gemm[T num.Float](tA, tB bool, m, n, k int, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
 	num.Gemm(tA, tB, m, n, k, 1, a, lda, b, ldb, beta, c, ldc)
 }
@@ -131,10 +132,19 @@ func backwardFast[T num.Float](fn string, x, dy []T, d Dims, w *Weights[T], o Op
 		}
 	}
 	dx := make([]T, n*d.In)
+	// dx = da·Wᵀ + du·Vᵀ, the two sums apart and then added, as Backward
+	// adds them.
+	addValuePart := func(du, v []T, l Layout) {
+		t := make([]T, n*d.In)
+		through(l, n, d.In, h, du, v, 0, t)
+		for i := range dx {
+			dx[i] += t[i]
+		}
+	}
 	switch {
 	case p.fused:
 		// scatter da, du into the fused units and treat the fused matrix as
-		// one projection of width 2·Hidden
+		// one projection of width 2·Hidden for the gradients of the weights
 		dp := make([]T, n*2*h)
 		for r := range n {
 			for j := range h {
@@ -149,7 +159,8 @@ func backwardFast[T num.Float](fn string, x, dy []T, d Dims, w *Weights[T], o Op
 				g.FusedBias[j] += dp[r*2*h+j]
 			}
 		}
-		through(l, n, d.In, 2*h, dp, w.Fused, 0, dx)
+		through(InByOut, n, d.In, h, da, gather(p.gate, d.In, h, w.Fused), 0, dx)
+		addValuePart(du, gather(p.up, d.In, h, w.Fused), InByOut)
 	default:
 		g.W1, g.B1 = make([]T, len(w.W1)), make([]T, h)
 		grad(l, n, d.In, h, x, da, g.W1)
@@ -159,26 +170,35 @@ func backwardFast[T num.Float](fn string, x, dy []T, d Dims, w *Weights[T], o Op
 			g.V, g.C = make([]T, len(w.V)), make([]T, h)
 			grad(l, n, d.In, h, x, du, g.V)
 			colSum(du, g.C)
-			through(l, n, d.In, h, du, w.V, 1, dx)
+			addValuePart(du, w.V, l)
 		}
 	}
 	return dx, g, nil
 }
 
+// gather copies the in × h matrix that the view v reads out of a fused
+// matrix into a matrix of its own, stored InByOut.
+func gather[T num.Float](v view, in, h int, fused []T) []T {
+	out := make([]T, in*h)
+	for i := range in {
+		for j := range h {
+			out[i*h+j] = fused[v.at(i, j)]
+		}
+	}
+	return out
+}
+
 // ForwardFast computes the same layer as Forward, with the projections as
-// matrix products through gonum's BLAS (blas64.Implementation's Dgemm,
-// blocked and parallel over blocks of outputs). It is the form to use at
-// realistic sizes; Forward is the definition it is tested against.
+// matrix products through plumb's own blocked matrix product (internal/num's
+// Gemm: pure Go, register-blocked, parallel over blocks of outputs). It is
+// the form to use at realistic sizes; Forward is the definition it is
+// tested against.
 //
-// The arithmetic differs from Forward's only in the order of each sum
-// (gonum's blocked and vectorised order instead of ascending), so the
-// results differ by rounding alone: each product term is the same, and
-// each sum of k terms has error at most γ_k·Σ|terms| (γ_k = k·u/(1 − k·u),
-// u = 2⁻⁵³) in either form. The tests check it against the same golden
-// values as Forward, with the same bound, and against Forward on random
-// layers of up to 256 inputs and hidden units. Results do not depend on
-// GOMAXPROCS: gonum splits the work over blocks of the output, never along
-// a sum.
+// It is Forward bit for bit: each sum has Forward's terms in Forward's
+// order (ascending over the input index, from 0, every product rounded,
+// the bias added last), in every storage form, on every architecture and
+// for any GOMAXPROCS (TestFastIsDirect; the golden tests check it with
+// Forward's bound too).
 //
 // Arguments, errors and special cases are those of Forward.
 func ForwardFast(x []float64, d Dims, w Weights[float64], o Options) ([]float64, error) {
@@ -186,24 +206,28 @@ func ForwardFast(x []float64, d Dims, w Weights[float64], o Options) ([]float64,
 }
 
 // ForwardFast32 is the float32 instantiation of the same body as
-// ForwardFast (through blas32's Sgemm): the straightforward low-precision
-// implementation the compare package uses as a yardstick; not a reference.
+// ForwardFast: the straightforward low-precision implementation the
+// compare package uses as a yardstick; not a reference. It is Forward32
+// bit for bit, except that it computes in plain float32 whatever
+// o.Accumulation says (Forward32 honours it).
 func ForwardFast32(x []float32, d Dims, w Weights[float32], o Options) ([]float32, error) {
 	return forwardFast("ForwardFast32", x, d, &w, o)
 }
 
 // BackwardFast computes the same gradients as Backward with matrix
-// products through gonum's BLAS, as ForwardFast does for Forward. For a
-// fused weight, dx is one product with the whole fused matrix rather than
-// Backward's gate sum plus value sum. Arguments, errors and special cases
-// are those of Backward.
+// products, as ForwardFast does for Forward, and is Backward bit for bit:
+// the gradients of the weights sum over the rows in ascending order, dx
+// sums the gate part and the value part of a gated layer apart and then
+// adds them, as Backward does. Arguments, errors and special cases are
+// those of Backward.
 func BackwardFast(x, dy []float64, d Dims, w Weights[float64], o Options) (dx []float64, grad Weights[float64], err error) {
 	return backwardFast("BackwardFast", x, dy, d, &w, o)
 }
 
 // BackwardFast32 is the float32 instantiation of the same body as
 // BackwardFast: the straightforward low-precision implementation the
-// compare package uses as a yardstick; not a reference.
+// compare package uses as a yardstick; not a reference. It is Backward32
+// bit for bit.
 func BackwardFast32(x, dy []float32, d Dims, w Weights[float32], o Options) (dx []float32, grad Weights[float32], err error) {
 	return backwardFast("BackwardFast32", x, dy, d, &w, o)
 }

@@ -108,6 +108,14 @@ func (c *attentionConfig) setup(in Tensors) (attention.Shape, attention.Options,
 	return s, o, nil
 }
 
+// fastAttention reports whether the attention operations run the fast
+// forms on shape s: unless UseDirectForms says otherwise, or the keys are
+// too many for a fast form's scratch (more than attention.MaxElements/192,
+// which it refuses and the direct form computes).
+func fastAttention(s attention.Shape) bool {
+	return !direct.Load() && s.Lk <= attention.MaxElements/192
+}
+
 func attentionShapes(s attention.Shape, o attention.Options) (out, lse []int) {
 	if o.Layout == attention.SeqMajor {
 		return []int{s.Batch, s.Lq, s.HeadsQ, s.Dv}, []int{s.Batch, s.Lq, s.HeadsQ}
@@ -156,14 +164,21 @@ func runAttentionForward(c *attentionForwardConfig, in Tensors, single bool) (Te
 		size{`queries (input "q")`, s.Lq}, size{`dim_v (input "v")`, s.Dv}); err != nil {
 		return nil, err
 	}
+	fwd, fwd32 := attention.ForwardFast, attention.ForwardFast32
+	if !fastAttention(s) {
+		fwd, fwd32 = attention.Forward, attention.Forward32
+	}
+	if o.Idiom != (attention.Idiom{}) {
+		fwd32 = attention.Forward32 // the fast form computes in plain float32 whatever the idiom says
+	}
 	var out, lse []float64
 	if single {
-		o32, l32, err := attention.Forward32(in.f32("q"), in.f32("k"), in.f32("v"), s, o)
+		o32, l32, err := fwd32(in.f32("q"), in.f32("k"), in.f32("v"), s, o)
 		if err != nil {
 			return nil, err
 		}
 		out, lse = num.Convert[float64](o32), num.Convert[float64](l32)
-	} else if out, lse, err = attention.Forward(in.data("q"), in.data("k"), in.data("v"), s, o); err != nil {
+	} else if out, lse, err = fwd(in.data("q"), in.data("k"), in.data("v"), s, o); err != nil {
 		return nil, err
 	}
 	os, ls := attentionShapes(s, o)
@@ -184,14 +199,18 @@ func runAttentionBackward(c *attentionConfig, in Tensors, single bool) (Tensors,
 			return nil, err
 		}
 	}
+	bwd, bwd32 := attention.BackwardFast, attention.BackwardFast32
+	if !fastAttention(s) {
+		bwd, bwd32 = attention.Backward, attention.Backward32
+	}
 	var g attention.Grads
 	if single {
-		g32, err := attention.Backward32(in.f32("q"), in.f32("k"), in.f32("v"), in.f32("dout"), in.f32("dlse"), s, o)
+		g32, err := bwd32(in.f32("q"), in.f32("k"), in.f32("v"), in.f32("dout"), in.f32("dlse"), s, o)
 		if err != nil {
 			return nil, err
 		}
 		g = attention.Grads{DQ: num.Convert[float64](g32.DQ), DK: num.Convert[float64](g32.DK), DV: num.Convert[float64](g32.DV), DSinks: num.Convert[float64](g32.DSinks), DBias: num.Convert[float64](g32.DBias)}
-	} else if g, err = attention.Backward(in.data("q"), in.data("k"), in.data("v"), in.data("dout"), in.data("dlse"), s, o); err != nil {
+	} else if g, err = bwd(in.data("q"), in.data("k"), in.data("v"), in.data("dout"), in.data("dlse"), s, o); err != nil {
 		return nil, err
 	}
 	out := Tensors{"dq": {in["q"].Shape, g.DQ}, "dk": {in["k"].Shape, g.DK}, "dv": {in["v"].Shape, g.DV}}

@@ -31,6 +31,14 @@
 // Each Op documents its keys (Op.Keys) and tensors (Op.Inputs, Op.Outputs);
 // `plumb help OPERATION` prints them.
 //
+// The attention and feed-forward operations compute their function with
+// its fast form (attention.ForwardFast, attention.BackwardFast,
+// ffn.ForwardFast, ffn.BackwardFast and the float32 twins: blocked matrix
+// products in parallel), which gives the function's results bit for bit;
+// UseDirectForms(true), or plumb's -direct flag, runs the direct forms
+// named above themselves, the same outputs more slowly
+// (TestFastFormsAreDirect).
+//
 // # Configuration
 //
 // A configuration is one JSON object. It must hold "version": 1

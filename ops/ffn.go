@@ -187,10 +187,17 @@ func runFfnForward(c *ffnForwardConfig, in Tensors, single bool) (Tensors, error
 	if err := fits(ErrInput, `output "y"`, size{`rows (input "x")`, d.Rows}, size{`out (input "w2")`, d.Out}); err != nil {
 		return nil, err
 	}
+	fwd, fwd32 := ffn.ForwardFast, ffn.ForwardFast32
+	if direct.Load() {
+		fwd, fwd32 = ffn.Forward, ffn.Forward32
+	}
+	if o.Accumulation != ffn.AccumulateFloat32 {
+		fwd32 = ffn.Forward32 // the fast form computes in plain float32 whatever the idiom says
+	}
 	y, err := pick(single,
-		func() ([]float64, error) { return ffn.Forward(in.data("x"), d, ffnWeights(in, same), o) },
+		func() ([]float64, error) { return fwd(in.data("x"), d, ffnWeights(in, same), o) },
 		func() ([]float32, error) {
-			return ffn.Forward32(in.f32("x"), d, ffnWeights(in, num.Convert[float32, float64]), o)
+			return fwd32(in.f32("x"), d, ffnWeights(in, num.Convert[float32, float64]), o)
 		})
 	if err != nil {
 		return nil, err
@@ -203,15 +210,19 @@ func runFfnBackward(c *ffnConfig, in Tensors, single bool) (Tensors, error) {
 	if err != nil {
 		return nil, err
 	}
+	bwd, bwd32 := ffn.BackwardFast, ffn.BackwardFast32
+	if direct.Load() {
+		bwd, bwd32 = ffn.Backward, ffn.Backward32
+	}
 	var dx []float64
 	var g ffn.Weights[float64]
 	if single {
 		var dx32 []float32
 		var g32 ffn.Weights[float32]
-		dx32, g32, err = ffn.Backward32(in.f32("x"), in.f32("dy"), d, ffnWeights(in, num.Convert[float32, float64]), o)
+		dx32, g32, err = bwd32(in.f32("x"), in.f32("dy"), d, ffnWeights(in, num.Convert[float32, float64]), o)
 		dx, g = num.Convert[float64](dx32), convertWeights(g32, num.Convert[float64, float32])
 	} else {
-		dx, g, err = ffn.Backward(in.data("x"), in.data("dy"), d, ffnWeights(in, same), o)
+		dx, g, err = bwd(in.data("x"), in.data("dy"), d, ffnWeights(in, same), o)
 	}
 	if err != nil {
 		return nil, err

@@ -51,20 +51,13 @@ type diagnosis struct {
 // not change what the check says.
 func diagnoseCheck(r *refRun, reports []namedReport, k float64) *diagnosis {
 	got := ops.Tensors{}
-	f, mixed := compare.Float64, false
-	for i, rep := range reports {
+	for _, rep := range reports {
 		got[rep.Name] = rep.got
-		if i > 0 && rep.format != reports[0].format {
-			mixed = true
-		}
-		if rep.format.UnitRoundoff() > f.UnitRoundoff() {
-			f = rep.format
-		}
 	}
+	f, allFloat64, mixed := narrowest(reports)
 	d := &diagnosis{}
 	switch {
-	case f == compare.Float64:
-		f = compare.Float32
+	case allFloat64:
 		d.Note = "the candidates are float64, which has no yardstick: they are judged by the float32 one, looser than the check's own tolerance"
 	case mixed:
 		d.Note = fmt.Sprintf("the candidates are of several formats: all are judged by the yardstick of the narrowest, %v", f)

@@ -98,9 +98,15 @@
 // failing outputs along the positions, heads and dims. The search is bounded
 // (at most 96 configurations, each on at most 16384 input values: a larger
 // problem is cut to a sub-problem of batch entries, query heads with their
-// kv heads, leading queries or rows, and the section says so), judges float64 candidates by the float32 yardstick, and never changes
-// the exit status; -no-diagnosis leaves it out. check -json writes one
-// object: "outputs", the reports, and "diagnosis", the search as data.
+// kv heads, leading queries, rows, or rotary heads and positions spread
+// over the length, and the section says so), judges float64 candidates by the float32 yardstick, and never changes
+// the exit status; -no-diagnosis leaves it out. When the configuration
+// declares a precision idiom ("angles": "float32-angles"), the report says
+// under "What the declared precision idiom costs" what it costs on the
+// check's inputs against the plain float32 run: the normwise and max abs
+// errors of both, their ratio, and for rotary those at the first and the
+// last position. check -json writes one object: "outputs", the reports,
+// "idiom_cost", the idiom's cost, and "diagnosis", the search as data.
 //
 // plumb gen's generator is PCG-DXSM (128-bit state hi = seed, lo = 0) with
 // uniform values (x >> 11)·2⁻⁵³ and normal values by the Box–Muller

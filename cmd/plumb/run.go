@@ -62,12 +62,14 @@ type runOptions struct {
 	out            []string
 	allowNonFinite bool
 	quiet          bool
+	direct         bool
 }
 
 func (o *runOptions) register(fs *flag.FlagSet) {
 	fs.StringVar(&o.config, "config", "", fmt.Sprintf("the operation's JSON configuration `file`, at most %d bytes; - reads standard input\n(default: {\"version\": 1}; plumb help OPERATION lists its keys)", ops.MaxConfigBytes))
 	fs.BoolVar(&o.allowNonFinite, "allow-nonfinite", false, "pass NaN and ±Inf in the inputs to the reference, whose special cases then apply,\ninstead of refusing them")
 	fs.BoolVar(&o.quiet, "quiet", false, "no status lines and no progress on stderr")
+	fs.BoolVar(&o.direct, "direct", false, "run the direct forms of attention and the feed-forward layer (attention.Forward, …),\nthe definitions, instead of their fast forms: the same bits, slower")
 }
 
 // refRun is an operation run on the inputs of the command line.
@@ -98,6 +100,7 @@ func (o *runOptions) reference(e *env, args []string) (*refRun, error) {
 	if r.in, err = e.readInputs(files, o.allowNonFinite); err != nil {
 		return nil, err
 	}
+	ops.UseDirectForms(o.direct) // for the yardstick and the diagnosis too
 	done := progress(e, o.quiet, "running "+op.Name())
 	r.out, err = op.Run(r.config, r.in)
 	done()
@@ -162,6 +165,12 @@ computes with them and the special cases its function documents apply
 (the function is named in plumb help ops; for example +Inf in a softmax row
 gives NaN in the whole row).
 
+attention-forward, attention-backward, ffn-forward and ffn-backward run the
+fast forms of their kernels (attention.ForwardFast, …: blocked matrix
+products in parallel), which give the direct forms' results bit for bit;
+-direct runs the direct forms, the definitions the golden values verify,
+for the same outputs, more slowly.
+
 The outputs are written all or none: each to a temporary file beside it,
 synced, and renamed over DIR/NAME.npy only when every output has been
 written. A failed run leaves the files of an earlier run as they were and
@@ -177,9 +186,10 @@ of its name. Exit status 0 when every
 candidate is within tolerance, 1 when one is not, 2 for an error.
 
 The inputs and -config are read as plumb run reads them: NaN or ±Inf in an
-input is an error unless -allow-nonfinite. A candidate may hold NaN and
-±Inf: where it matches the reference (NaN for NaN, the same infinity) it
-counts as a match, anywhere else as a mismatch that fails.
+input is an error unless -allow-nonfinite, and -direct runs the direct
+forms. A candidate may hold NaN and ±Inf: where it matches the reference
+(NaN for NaN, the same infinity) it counts as a match, anywhere else as a
+mismatch that fails.
 
 With the candidate's format (-format, or the candidate file's type when it
 is float32 or float16) narrower than float64 and no tolerance flag, the
@@ -204,11 +214,30 @@ narrowest when they differ; float32 for float64 candidates, which have
 none), whatever the tolerance flags, and -k applies. The search runs at
 most %d configurations, each on at most %d input values: a larger
 problem is cut to a sub-problem (batch entries, query heads with the kv
-heads they read, leading queries with the keys they see, or rows), and
+heads they read, leading queries with the keys they see, rows, or rotary
+heads and positions spread over the length at their own positions), and
 the section says which. It never changes the exit status; -no-diagnosis leaves it out.
 
+When the configuration declares a precision idiom (a key plumb help
+OPERATION calls the port's precision idiom: "angles", "variance",
+"accumulation", "softmax_shift"), the yardstick's float32 run computes as
+the idiom says and its tolerance widens accordingly; the reference does
+not change. The report then says what the idiom costs, under
+"`+idiomCostTitle+`", on the check's own
+inputs and positions: for each output, the normwise and max abs error of
+the idiom's float32 run against the reference beside those of the plain
+float32 run (the configuration without its idiom keys), their ratio, and
+for the rotary operations the largest error at the first and at the last
+position, where an angle idiom costs most. Both yardsticks are measured
+in the narrowest of the candidates' formats (float32 for float64
+candidates), against the reference the check ran once.
+
 With -json the output is one object: "outputs", the report of each
-candidate in the order of the operation's outputs, and "diagnosis", the
+candidate in the order of the operation's outputs; "idiom_cost", what a
+declared idiom costs, as data ("format", "keys", and for each of
+"outputs" "normwise_error", "plain_normwise_error", "ratio",
+"max_abs_error", "plain_max_abs_error" and, for rotary, "positions";
+absent when the configuration declares none); and "diagnosis", the
 search's result as data (absent when every output passes or with
 -no-diagnosis): each candidate has "change" and "changes" in words and
 "edits" as data, one object a change: "key", "value" and "note" ("1/d")
@@ -464,33 +493,44 @@ func runCheck(e *env, opts any, args []string) (int, error) {
 		reps = append(reps, r.Report)
 	}
 	code := verdictStatus(reps...)
+	cost := j.idiomCost(reports)
 	var diag *diagnosis
 	if code == exitFail && !o.noDiagnosis {
 		done := progress(e, o.quiet, "searching what the port may have done")
 		diag = diagnoseCheck(r, reports, o.k)
 		done()
 	}
-	if err := writeCheck(e.stdout, o.json, reports, diag); err != nil {
+	if err := writeCheck(e.stdout, o.json, reports, cost, diag); err != nil {
 		return exitUsage, err
 	}
 	return code, nil
 }
 
 // checkJSON is what check -json writes: the report of every candidate, in
-// the order of the operation's outputs, and the diagnosis when one ran.
+// the order of the operation's outputs, what the precision idiom the
+// configuration declares costs when it declares one, and the diagnosis
+// when one ran.
 type checkJSON struct {
 	Outputs   []namedReport `json:"outputs"`
+	IdiomCost *idiomCost    `json:"idiom_cost,omitempty"`
 	Diagnosis *diagnosis    `json:"diagnosis,omitempty"`
 }
 
-// writeCheck prints the reports and, when one ran, the diagnosis, as text
-// or as one JSON object (checkJSON).
-func writeCheck(w io.Writer, asJSON bool, reports []namedReport, diag *diagnosis) error {
+// writeCheck prints the reports, what the declared idiom costs when the
+// configuration declares one, and the diagnosis when one ran, as text or
+// as one JSON object (checkJSON).
+func writeCheck(w io.Writer, asJSON bool, reports []namedReport, cost *idiomCost, diag *diagnosis) error {
 	if asJSON {
-		return writeJSON(w, checkJSON{Outputs: reports, Diagnosis: diag})
+		return writeJSON(w, checkJSON{Outputs: reports, IdiomCost: cost, Diagnosis: diag})
 	}
 	if err := writeReports(w, reports); err != nil {
 		return err
+	}
+	if cost != nil {
+		fmt.Fprintln(w)
+		if err := writeIdiomCost(w, cost); err != nil {
+			return err
+		}
 	}
 	if diag == nil {
 		return nil
@@ -535,10 +575,11 @@ func (o *checkOptions) candidates(e *env, args []string) (map[string]string, err
 
 // judge judges the candidates of one check.
 type judge struct {
-	e  *env
-	o  *checkOptions
-	r  *refRun
-	ys map[string]*compare.Yardstick // measured once, for the first candidate that needs them
+	e     *env
+	o     *checkOptions
+	r     *refRun
+	ys    map[string]*compare.Yardstick // measured once, for the first candidate that needs them
+	costs map[compare.Format]costRun    // what the declared idiom costs, by format (idiomCosts)
 }
 
 // output reads the candidate for the reference output name from path and
@@ -585,9 +626,7 @@ func (j *judge) options(name string, f compare.Format, ref []float64) (compare.O
 		return compare.Options{Format: f, Tolerance: &tol}, nil
 	case f != compare.Float64:
 		if j.ys == nil {
-			done := progress(j.e, j.o.quiet, "measuring the "+f.String()+" yardstick")
-			ys, err := ops.YardstickOf(j.r.op.Name(), j.r.config, j.r.in, j.r.out, f, j.o.k)
-			done()
+			ys, err := j.yardsticks(f)
 			if err != nil {
 				return compare.Options{}, err
 			}
@@ -597,6 +636,24 @@ func (j *judge) options(name string, f compare.Format, ref []float64) (compare.O
 	}
 	tol := defaultTolerance(f, ref)
 	return compare.Options{Format: f, Tolerance: &tol}, nil
+}
+
+// yardsticks measures the yardstick of every output in format f against
+// the reference already run. When the configuration declares a precision
+// idiom they are those of the idiom's cost (ops.Cost.Idiom, what
+// ops.YardstickOf measures), so that the idiom's float32 run is not run
+// twice.
+func (j *judge) yardsticks(f compare.Format) (map[string]*compare.Yardstick, error) {
+	if costs, err := j.idiomCosts(f); err == nil && costs != nil {
+		ys := map[string]*compare.Yardstick{}
+		for n, c := range costs {
+			ys[n] = c.Idiom
+		}
+		return ys, nil
+	}
+	done := progress(j.e, j.o.quiet, "measuring the "+f.String()+" yardstick")
+	defer done()
+	return ops.YardstickOf(j.r.op.Name(), j.r.config, j.r.in, j.r.out, f, j.o.k)
 }
 
 // outputNames lists the outputs of a run, sorted.
