@@ -10,6 +10,7 @@ import (
 	"go/printer"
 	"go/token"
 	"go/types"
+	"io"
 	"math"
 	"os"
 	"os/exec"
@@ -41,8 +42,17 @@ func TestNoFusableArithmetic(t *testing.T) {
 		t.Skip("type-checks the whole module")
 	}
 	var found []string
-	imp := importer.ForCompiler(token.NewFileSet(), "source", nil) // one, so that each package is checked once
-	for _, dir := range packageDirs(t) {
+	dirs, exports := modulePackages(t)
+	// The imports' types come from the compiler's export data, which the
+	// build of these packages left in the build cache, not from type-checking
+	// every imported package (the standard library's too) from its source.
+	imp := importer.ForCompiler(token.NewFileSet(), "gc", func(path string) (io.ReadCloser, error) {
+		if f := exports[path]; f != "" {
+			return os.Open(f)
+		}
+		return nil, fmt.Errorf("go list -export gives no export data for %q", path)
+	}) // one, so that each package is read once
+	for _, dir := range dirs {
 		if strings.HasPrefix(dir, "examples"+string(filepath.Separator)) {
 			// The examples are ports, candidates that plumb judges, not
 			// references: a port's arithmetic may be fused, and its tests
@@ -110,26 +120,36 @@ func f(a, b, c float64, x, y float32, i, j int, m float64) {
 	}
 }
 
-// packageDirs lists the directories of the module's packages, as go list
-// gives them, relative to the module root.
-func packageDirs(t *testing.T) []string {
-	out, err := exec.Command("go", "list", "-f", "{{.Dir}}", "./...").Output()
+// modulePackages lists the directories of the module's packages, as go
+// list gives them, relative to the module root, and the export data file
+// of every package they depend on, by import path (go list -export -deps).
+func modulePackages(t *testing.T) (dirs []string, exports map[string]string) {
+	out, err := exec.Command("go", "list", "-export", "-deps",
+		"-f", "{{.ImportPath}}\t{{.Export}}\t{{with .Module}}{{if .Main}}{{$.Dir}}{{end}}{{end}}", "./...").Output()
 	if err != nil {
-		t.Fatalf("go list ./...: %v", err)
+		t.Fatalf("go list -export -deps ./...: %v", err)
 	}
 	root, err := os.Getwd()
 	if err != nil {
 		t.Fatal(err)
 	}
-	var dirs []string
-	for _, d := range strings.Fields(string(out)) {
-		rel, err := filepath.Rel(root, d)
+	exports = map[string]string{}
+	for _, l := range strings.Split(strings.TrimSpace(string(out)), "\n") {
+		f := strings.Split(l, "\t")
+		if len(f) != 3 {
+			t.Fatalf("go list -export -deps ./...: line %q", l)
+		}
+		exports[f[0]] = f[1]
+		if f[2] == "" {
+			continue // not a package of this module
+		}
+		rel, err := filepath.Rel(root, f[2])
 		if err != nil {
 			t.Fatal(err)
 		}
 		dirs = append(dirs, rel)
 	}
-	return dirs
+	return dirs, exports
 }
 
 // fusableIn type-checks the package in dir (its non-test files) and

@@ -65,7 +65,7 @@
 // results over disjoint key sets. Decode is Forward for new queries at
 // positions pos … pos+Lq−1 against a cache. ForwardFast and BackwardFast are
 // blocked (64 query rows), compute every product with plumb's own
-// register-blocked matrix product (internal/num's Gemm, pure Go), run in
+// register-blocked matrix product (internal/num's MatrixProduct, pure Go), run in
 // parallel over independent outputs and hold at most a few 64 × Lk blocks
 // per worker; each of their sums has the direct form's terms in the direct
 // form's order, so they give Forward's and Backward's results bit for bit
@@ -176,23 +176,31 @@
 // prefill of 2048 positions, and one query against 32768 cached keys;
 // BenchmarkForwardFastFull is the prefill without a mask.
 // testdata/bench_numpy.py times the same forward computations in numpy
-// 1.24 float64 over OpenBLAS 0.3.21. Measured side by side, alternating
-// Go and numpy three times, on a shared 2-core x86-64 machine with a load
-// average near 2 (wall time, best of 9 runs for each):
+// 1.24 float64 over OpenBLAS 0.3.21 (its own kernel choice; with
+// OPENBLAS_CORETYPE=SkylakeX the figures were within 25%). Measured side by
+// side, alternating Go and numpy three times, on a shared 2-core x86-64
+// machine with a load average of 3 to 4 (wall time; Go the median of the
+// three runs, numpy the median of its best-of-3):
 //
 //	                          ForwardFast   numpy + OpenBLAS   ratio
-//	forward, causal, L 2048   1.17 s        0.77 s             1.5
-//	forward, no mask, L 2048  2.27 s        0.61 s             3.7
-//	decode, Lk 32768          29 ms         48 ms              0.6
-//	backward, causal, L 2048  2.7 s         (not timed)
+//	forward, causal, L 2048   3.8 s         2.3 s              1.6
+//	forward, no mask, L 2048  7.0 s         1.6 s              4.3
+//	decode, Lk 32768          0.21 s        0.11 s             1.9
+//	backward, causal, L 2048  7.4 s         (not timed)
 //
-// Under a heavier load (5 to 10) the causal ratio measured 1.0 to 1.6. Per
-// product gonum's Dgemm is much slower than OpenBLAS here (one core: 11
-// GFLOP/s on the 64-row tiles the fast form uses, against 79 GFLOP/s for
-// OpenBLAS on a 2048³ product; see the unmasked row); the causal
-// prefill closes much of the gap because the fast form computes only the
-// key blocks a row block can see, about half of the products, where the
-// numpy code computes them all and then masks. Decoding is bound by reading
-// the 1 GiB cache. The direct form (Decode) takes about 85 ms for the same
-// decoding step.
+// The products are plumb's own (internal/num's MatrixProduct), scalar pure Go that
+// runs at about 10 GFLOP/s per core here, against about 100 GFLOP/s for
+// OpenBLAS's vector kernels (see the unmasked row); the causal prefill
+// closes much of the gap because the fast form computes only the key
+// blocks a row block can see, about half of the products, where the numpy
+// code computes them all and then masks. About a third of the causal
+// forward is the correctly rounded exponential (internal/elem), 34 million
+// of them. Decoding is bound by reading the 1 GiB cache. With gonum's BLAS,
+// which the fast forms used before (SSE2 assembly on amd64, and other last
+// bits than the direct forms and than other architectures), the same
+// benchmarks took 1.05 times these times for the forward, 0.9 times for
+// the backward and 0.7 times for decoding. The direct form runs on one
+// core: plumb run attention-forward on the causal prefill, which runs the
+// fast form, took 4.9 s (3.9 s of CPU) where it took 8.6 s (7.3 s of CPU)
+// with the direct form, reading and writing the files included.
 package attention

@@ -9,7 +9,7 @@ import (
 )
 
 // This file holds the fast form: blocks of rowBlock query rows at a time,
-// the products through plumb's own matrix product (num.GemmSerial), in
+// the products through plumb's own matrix product (num.MatrixProductSerial), in
 // parallel over independent outputs. Every sum is the direct form's sum,
 // term for term and in the same order, so the fast form is the direct form
 // bit for bit (see ForwardFast).
@@ -19,9 +19,9 @@ import (
 // rowBlock·Lk values.
 const rowBlock = 64
 
-// The products go through num.GemmSerial: the fast form is already
+// The products go through num.MatrixProductSerial: the fast form is already
 // parallel over independent tasks, and nested parallelism inside the
-// product only adds scheduling and cache contention. num.GemmSerial sums
+// product only adds scheduling and cache contention. num.MatrixProductSerial sums
 // each element as the plain loop does, from zero (or from C), products
 // rounded, in ascending order of the summed index; a product with the
 // scale α rounds α·a first, as the direct form's dt *= scale does.
@@ -57,7 +57,7 @@ func parallel(n, workers int, task func(w, t int)) {
 
 // ForwardFast is Forward computed in blocks of 64 query rows with the
 // products Q·Kᵀ and P·V done by plumb's own blocked matrix product
-// (internal/num's Gemm, pure Go), in parallel over batch × heads × row
+// (internal/num's MatrixProduct, pure Go), in parallel over batch × heads × row
 // blocks. Each task computes only the keys its rows can see (for a causal
 // mask, about half the products), holds at most 64 × Lk scores, and writes
 // its own output rows.
@@ -66,9 +66,10 @@ func parallel(n, workers int, task func(w, t int)) {
 // each logit is Σ_d q_d·k_d summed from 0 in ascending d with every product
 // rounded, then multiplied by Scale, as Forward computes it; the softmax
 // is the same code; and each output element is Σ_j P_j·v_j in ascending j,
-// where the keys Forward skips (weight 0) add exact zeros. When V holds an
-// Inf or NaN, which a weight 0 would turn into NaN (0·Inf), it computes as
-// Forward does instead, so that such a key is ignored there too.
+// where the keys Forward skips (weight 0) add exact zeros. A block whose
+// output holds an Inf or NaN is computed again as Forward computes it, so
+// that an Inf or NaN in V where the weight is 0 (0·Inf = NaN in the
+// product) is ignored there too.
 // TestFastIsDirect checks the identity on random problems with every
 // option.
 //
@@ -205,9 +206,6 @@ func fixEmpty[T num.Float](p *plan, out, lse []T, b, h, i0, rows int) {
 }
 
 func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
-	if !allFinite(v) {
-		return forward(p, q, k, v) // see ForwardFast: a hidden Inf in V is skipped, not multiplied by 0
-	}
 	s := p.s
 	out = make([]T, s.oLen())
 	lse = make([]T, s.lseLen())
@@ -230,20 +228,57 @@ func forwardFast[T num.Float](p *plan, q, k, v []T) (out, lse []T) {
 		rl := bufs[w][rowBlock*s.Lk:][:rows]
 		ps := bufs[w][rowBlock*s.Lk+rowBlock:][:rows]
 		if n > 0 {
-			num.GemmSerial(false, true, rows, n, s.Dk, 1, q[p.qOff(b, h, i0):], qs, k[p.kOff(b, kv, lo):], ks, 0, sc, n)
+			num.MatrixProductSerial(false, true, rows, n, s.Dk, 1, q[p.qOff(b, h, i0):], qs, k[p.kOff(b, kv, lo):], ks, 0, sc, n)
 		}
 		anyEmpty := blockProbs(p, q, k, sc, nil, b, h, kv, i0, rows, lo, n, rl, ps)
 		for r := range rows {
 			lse[p.lOff(b, h, i0+r)] = rl[r]
 		}
 		if n > 0 {
-			num.GemmSerial(false, false, rows, s.Dv, n, 1, sc, n, v[p.vOff(b, kv, lo):], vs, 0, out[p.oOff(b, h, i0):], os)
+			num.MatrixProductSerial(false, false, rows, s.Dv, n, 1, sc, n, v[p.vOff(b, kv, lo):], vs, 0, out[p.oOff(b, h, i0):], os)
+			if !outFinite(p, out, b, h, i0, rows) {
+				directPV(p, sc, v, out, b, h, kv, i0, rows, lo, n)
+			}
 		}
 		if anyEmpty || n == 0 {
 			fixEmpty(p, out, lse, b, h, i0, rows)
 		}
 	})
 	return out, lse
+}
+
+// outFinite reports whether the output rows i0 … i0+rows−1 of (b, h) are
+// finite.
+func outFinite[T num.Float](p *plan, out []T, b, h, i0, rows int) bool {
+	for r := range rows {
+		if !allFinite(out[p.oOff(b, h, i0+r):][:p.s.Dv]) {
+			return false
+		}
+	}
+	return true
+}
+
+// directPV computes the output rows i0 … i0+rows−1 of (b, h) from their
+// probabilities in sc (keys lo … lo+n−1) as Forward does: the keys of
+// weight 0 skipped. It is for a block whose product P·V is not finite: an
+// Inf or NaN in V meets a weight 0 there (0·Inf = NaN), where Forward
+// skips the key. Where no weight is 0 it computes the product's sums,
+// bit for bit.
+func directPV[T num.Float](p *plan, sc, v, out []T, b, h, kv, i0, rows, lo, n int) {
+	s := p.s
+	for r := range rows {
+		oi := out[p.oOff(b, h, i0+r):][:s.Dv]
+		clear(oi)
+		for jj, pj := range sc[r*n:][:n] {
+			if pj == 0 {
+				continue
+			}
+			vj := v[p.vOff(b, kv, lo+jj):][:s.Dv]
+			for d, x := range vj {
+				oi[d] += T(pj * x)
+			}
+		}
+	}
 }
 
 // BackwardFast is Backward computed in blocks of 64 query rows with every
@@ -439,8 +474,8 @@ func (t *bwdTask[T]) block(h, i0, rows int) {
 	var kb, vb []T
 	if n > 0 {
 		kb, vb = t.k[p.kOff(b, t.kv, lo):], t.v[p.vOff(b, t.kv, lo):]
-		num.GemmSerial(false, true, rows, n, s.Dk, 1, qb, t.qs, kb, t.ks, 0, sc, n)
-		num.GemmSerial(false, true, rows, n, s.Dv, 1, dob, t.os, vb, t.vs, 0, dp, n)
+		num.MatrixProductSerial(false, true, rows, n, s.Dk, 1, qb, t.qs, kb, t.ks, 0, sc, n)
+		num.MatrixProductSerial(false, true, rows, n, s.Dv, 1, dob, t.os, vb, t.vs, 0, dp, n)
 	}
 	blockProbs(p, t.q, t.k, sc, sech2, b, h, t.kv, i0, rows, lo, n, sb.rl, sb.ps)
 	for r := range rows {
@@ -451,9 +486,9 @@ func (t *bwdTask[T]) block(h, i0, rows int) {
 		t.row(h, i0+r, r, lo, sc[r*n:][:n], dp[r*n:][:n], cap2)
 	}
 	if n > 0 {
-		num.GemmSerial(false, false, rows, s.Dk, n, scale, dp, n, kb, t.ks, 0, g.dq[p.qOff(b, h, i0):], t.qs)
-		num.GemmSerial(true, false, n, s.Dk, rows, scale, dp, n, qb, t.qs, 1, g.dk[p.kOff(b, t.kv, lo):], t.ks)
-		num.GemmSerial(true, false, n, s.Dv, rows, 1, sc, n, dob, t.os, 1, g.dv[p.vOff(b, t.kv, lo):], t.vs)
+		num.MatrixProductSerial(false, false, rows, s.Dk, n, scale, dp, n, kb, t.ks, 0, g.dq[p.qOff(b, h, i0):], t.qs)
+		num.MatrixProductSerial(true, false, n, s.Dk, rows, scale, dp, n, qb, t.qs, 1, g.dk[p.kOff(b, t.kv, lo):], t.ks)
+		num.MatrixProductSerial(true, false, n, s.Dv, rows, 1, sc, n, dob, t.os, 1, g.dv[p.vOff(b, t.kv, lo):], t.vs)
 	}
 	// The empty rows' dQ were overwritten by the product.
 	if t.nanHead {

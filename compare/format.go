@@ -149,6 +149,12 @@ func (f Format) Round(x float64) float64 { return f.round(x, false) }
 func (f Format) RoundSaturating(x float64) float64 { return f.round(x, true) }
 
 func (f Format) round(x float64, sat bool) float64 {
+	if f == Float32 && !sat && !math.IsNaN(x) {
+		// Go's conversion is this rounding (the specification's IEEE 754
+		// round-to-even, non-saturating) in one instruction: the bits of
+		// the general path below (TestRoundMatchesLdexpForm).
+		return float64(float32(x))
+	}
 	p := f.p()
 	if p == nil || math.IsNaN(x) {
 		return math.NaN()
@@ -167,12 +173,14 @@ func (f Format) round(x float64, sat bool) float64 {
 		return x
 	}
 	a := math.Abs(x)
-	_, e2 := math.Frexp(a) // a = m·2^e2, m in [0.5, 1): floor(log2 a) = e2-1
-	q := max(e2-1, p.emin) - p.fracBits
+	q := max(floorLog2(a), p.emin) - p.fracBits
 	// a·2^-q is exact (a power-of-two scaling that stays in float64's normal
 	// range), and RoundToEven rounds it to an integer exactly: one rounding.
-	r := math.RoundToEven(math.Ldexp(a, -q))
-	v := math.Ldexp(r, q)
+	// r·2^q is exact too, or overflows to +Inf as math.Ldexp would. Both
+	// powers lie in float64's normal range: q is at least emin − fracBits
+	// (−149 in Float32) and at most 1023 − fracBits.
+	r := math.RoundToEven(a * exp2i(-q))
+	v := r * exp2i(q)
 	if v > p.max {
 		switch {
 		case sat:
@@ -218,8 +226,11 @@ func (f Format) encode(v float64) uint64 {
 	if math.IsNaN(v) {
 		return p.nanBits
 	}
-	if f == Float64 {
+	switch f {
+	case Float64:
 		return math.Float64bits(v)
+	case Float32:
+		return uint64(math.Float32bits(float32(v))) // exact: v is a value of the format
 	}
 	var sign uint64
 	if math.Signbit(v) {
@@ -234,11 +245,28 @@ func (f Format) encode(v float64) uint64 {
 	case a < p.minNormal:
 		return sign | uint64(a/p.minSub) // exact: a is a multiple of minSub
 	}
-	m, e2 := math.Frexp(a) // a = (2m)·2^(e2-1), 2m in [1, 2)
-	e := e2 - 1
-	frac := uint64(math.Ldexp(2*m-1, p.fracBits)) // exact
+	// a is a normal float64 (every format's normal range lies in float64's):
+	// its exponent field gives e, and the top fracBits of its 52 fraction
+	// bits are the format's fraction (the others are 0 in a value of the
+	// format).
+	b := math.Float64bits(a)
+	e := int(b>>52) - 1023
+	frac := (b & (1<<52 - 1)) >> (52 - p.fracBits)
 	return sign | uint64(e+p.bias)<<p.fracBits | frac
 }
+
+// floorLog2 returns ⌊log₂ a⌋ for a finite a > 0 (math.Frexp's exponent
+// minus 1), float64 subnormals included.
+func floorLog2(a float64) int {
+	b := math.Float64bits(a)
+	if e := int(b >> 52); e != 0 {
+		return e - 1023
+	}
+	return bits.Len64(b) - 1 - 1074 // a = b·2^−1074
+}
+
+// exp2i returns 2^k for −1022 ≤ k ≤ 1023, exactly.
+func exp2i(k int) float64 { return math.Float64frombits(uint64(k+1023) << 52) }
 
 // Decode returns the value a bit pattern encodes. Every pattern of Width
 // bits decodes: in IEEE-layout formats an all-ones exponent field is ±Inf
@@ -341,7 +369,11 @@ func (f Format) ULPDistance(a, b float64) (uint64, bool) {
 	if !f.Valid() {
 		return 0, false
 	}
-	ra, rb := f.Round(a), f.Round(b)
+	return f.ulpsBetween(f.Round(a), f.Round(b))
+}
+
+// ulpsBetween is ULPDistance of two values of the format, rounded already.
+func (f Format) ulpsBetween(ra, rb float64) (uint64, bool) {
 	if math.IsNaN(ra) || math.IsNaN(rb) {
 		return 0, false
 	}

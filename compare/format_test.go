@@ -312,6 +312,107 @@ func TestFloat32MatchesGo(t *testing.T) {
 	}
 }
 
+// roundLdexp and encodeLdexp are round and encode as first written, with
+// math.Frexp and math.Ldexp where format.go now reads and builds float64
+// bit patterns, and without its Float32 shortcuts (Go's conversion): the
+// reference of TestRoundMatchesLdexpForm.
+func roundLdexp(f Format, x float64, sat bool) float64 {
+	p := f.p()
+	if math.IsNaN(x) {
+		return math.NaN()
+	}
+	if math.IsInf(x, 0) {
+		switch {
+		case sat:
+			return math.Copysign(p.max, x)
+		case p.ieee:
+			return x
+		default:
+			return math.NaN()
+		}
+	}
+	if x == 0 || f == Float64 {
+		return x
+	}
+	a := math.Abs(x)
+	_, e2 := math.Frexp(a)
+	q := max(e2-1, p.emin) - p.fracBits
+	v := math.Ldexp(math.RoundToEven(math.Ldexp(a, -q)), q)
+	if v > p.max {
+		switch {
+		case sat:
+			v = p.max
+		case p.ieee:
+			v = math.Inf(1)
+		default:
+			return math.NaN()
+		}
+	}
+	return math.Copysign(v, x)
+}
+
+func encodeLdexp(f Format, v float64) uint64 {
+	p := f.p()
+	if math.IsNaN(v) {
+		return p.nanBits
+	}
+	if f == Float64 {
+		return math.Float64bits(v)
+	}
+	var sign uint64
+	if math.Signbit(v) {
+		sign = 1 << (p.width - 1)
+	}
+	a := math.Abs(v)
+	switch {
+	case a == 0:
+		return sign
+	case math.IsInf(a, 0):
+		return sign | uint64(1<<p.expBits-1)<<p.fracBits
+	case a < p.minNormal:
+		return sign | uint64(a/p.minSub)
+	}
+	m, e2 := math.Frexp(a)
+	return sign | uint64(e2-1+p.bias)<<p.fracBits | uint64(math.Ldexp(2*m-1, p.fracBits))
+}
+
+// TestRoundMatchesLdexpForm: Round, RoundSaturating and Encode give the
+// bits of the math.Frexp and math.Ldexp form in every format, on random
+// float64 bit patterns (subnormals, huge values and the special values
+// among them) and on the neighbours of every format's ties near 1, near
+// Max and in the subnormal range.
+func TestRoundMatchesLdexpForm(t *testing.T) {
+	r := rand.New(rand.NewPCG(3, 4))
+	var xs []float64
+	for range 100000 {
+		xs = append(xs, math.Float64frombits(r.Uint64()))
+	}
+	for _, f := range Formats() {
+		for _, at := range []float64{1, f.Max(), f.MinSubnormal(), f.MinNormal(), 3 * f.MinSubnormal()} {
+			u := f.ULP(at)
+			for _, x := range []float64{at - u/2, at + u/2, at - u, at + u, at} {
+				for _, y := range []float64{x, math.Nextafter(x, 0), math.Nextafter(x, math.Inf(1))} {
+					xs = append(xs, y, -y)
+				}
+			}
+		}
+	}
+	xs = append(xs, 0, math.Copysign(0, -1), math.Inf(1), math.Inf(-1), math.NaN(), math.SmallestNonzeroFloat64, math.MaxFloat64)
+	for _, f := range Formats() {
+		for _, x := range xs {
+			for _, sat := range []bool{false, true} {
+				want, got := roundLdexp(f, x, sat), f.round(x, sat)
+				if !same(want, got) {
+					t.Fatalf("%v.round(%x, %v) = %x; the Ldexp form gives %x", f, x, sat, got, want)
+				}
+				if w, g := encodeLdexp(f, want), f.encode(got); w != g {
+					t.Fatalf("%v.encode(%x) = %#x; the Ldexp form gives %#x", f, got, g, w)
+				}
+			}
+		}
+	}
+}
+
 // roundConfig is the "config" object of the cases in
 // testdata/golden/compare/round.json, written by testdata/gen/fam_compare.py:
 // the format by its word.

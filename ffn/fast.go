@@ -2,13 +2,13 @@ package ffn
 
 import "github.com/plumbref/plumb/internal/num"
 
-// gemm is C = op(A)·op(B) + beta·C through plumb's own matrix product
-// (num.Gemm: pure Go, parallel over blocks of C). It sums each element as
+// matProduct is C = op(A)·op(B) + beta·C through plumb's own matrix product
+// (num.MatrixProduct: pure Go, parallel over blocks of C). It sums each element as
 // the direct form's project does: from 0 (beta = 0) or from C (beta = 1),
 // the products rounded, in ascending order of the summed index; the same
 // bits on every architecture and for any GOMAXPROCS.
-func gemm[T num.Float](tA, tB bool, m, n, k int, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
-	num.Gemm(tA, tB, m, n, k, 1, a, lda, b, ldb, beta, c, ldc)
+func matProduct[T num.Float](tA, tB bool, m, n, k int, a []T, lda int, b []T, ldb int, beta T, c []T, ldc int) {
+	num.MatrixProduct(tA, tB, m, n, k, 1, a, lda, b, ldb, beta, c, ldc)
 }
 
 // The three products a projection needs, for an input X (n × k) and a
@@ -19,19 +19,19 @@ func gemm[T num.Float](tA, tB bool, m, n, k int, a []T, lda int, b []T, ldb int,
 //	grad:    dW = Xᵀ·dC           (stored in layout l)
 
 func apply[T num.Float](l Layout, n, k, m int, x, w, c []T) {
-	gemm(false, l == OutByIn, n, m, k, x, k, w, ldw(l, k, m), 0, c, m)
+	matProduct(false, l == OutByIn, n, m, k, x, k, w, ldw(l, k, m), 0, c, m)
 }
 
 func through[T num.Float](l Layout, n, k, m int, dc, w []T, beta T, dx []T) {
-	gemm(false, l == InByOut, n, k, m, dc, m, w, ldw(l, k, m), beta, dx, k)
+	matProduct(false, l == InByOut, n, k, m, dc, m, w, ldw(l, k, m), beta, dx, k)
 }
 
 func grad[T num.Float](l Layout, n, k, m int, x, dc, dw []T) {
 	if l == InByOut {
-		gemm(true, false, k, m, n, x, k, dc, m, 0, dw, m)
+		matProduct(true, false, k, m, n, x, k, dc, m, 0, dw, m)
 		return
 	}
-	gemm(true, false, m, k, n, dc, m, x, k, 0, dw, k)
+	matProduct(true, false, m, k, n, dc, m, x, k, 0, dw, k)
 }
 
 // ldw is the row stride of a stored k × m weight.
@@ -190,7 +190,7 @@ func gather[T num.Float](v view, in, h int, fused []T) []T {
 
 // ForwardFast computes the same layer as Forward, with the projections as
 // matrix products through plumb's own blocked matrix product (internal/num's
-// Gemm: pure Go, register-blocked, parallel over blocks of outputs). It is
+// MatrixProduct: pure Go, register-blocked, parallel over blocks of outputs). It is
 // the form to use at realistic sizes; Forward is the definition it is
 // tested against.
 //

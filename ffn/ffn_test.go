@@ -9,7 +9,6 @@ import (
 
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
-	"gonum.org/v1/gonum/mat"
 
 	"github.com/plumbref/plumb/internal/num"
 )
@@ -196,9 +195,16 @@ func randLayer(r *rand.Rand, d Dims, gated, biases bool) ([]float64, Weights[flo
 }
 
 // transpose stores a logical [rows, cols] matrix given in InByOut as
-// OutByIn: gonum's transpose, written apart from the package's layouts.
+// OutByIn: element (i, j) of m, at i·cols + j, moves to j·rows + i; written
+// apart from the package's layouts.
 func transpose(m []float64, rows, cols int) []float64 {
-	return mat.DenseCopyOf(mat.NewDense(rows, cols, m).T()).RawMatrix().Data
+	out := make([]float64, len(m))
+	for i := range rows {
+		for j := range cols {
+			out[j*rows+i] = m[i*cols+j]
+		}
+	}
+	return out
 }
 
 // fuse packs gate w and value v (both InByOut, in × h) into one InByOut

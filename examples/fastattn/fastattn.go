@@ -15,10 +15,12 @@
 // which are computed in float64 and rounded.
 //
 // Speed: BenchmarkForward (a causal prefill of 512 positions, 16 query
-// heads on 4 kv heads, head dimension 128, rotary) takes about 0.10 s on
-// the 2-core test machine, against 0.048 s for attention.ForwardFast32
-// (gonum's BLAS, no rotary) on the same problem: scalar Go, whose point is
-// the structure of a tiled kernel, not its speed.
+// heads on 4 kv heads, head dimension 128, rotary) takes about 0.21 s on
+// the shared 2-core test machine, against 0.20 s for
+// attention.ForwardFast32 (plumb's blocked matrix product, no rotary) on
+// the same problem, medians of three alternated runs at a load average
+// near 3: scalar Go, whose point is the structure of a tiled kernel, not
+// its speed.
 //
 // Its test file is the point of the example: TestConformance is a single
 // call to attentiontest.Run, and TestSuiteCatchesSlips runs the suite on a

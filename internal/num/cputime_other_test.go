@@ -4,5 +4,5 @@ package num
 
 import "time"
 
-// processCPU is not measured here: BenchmarkGemm reports wall time only.
+// processCPU is not measured here: BenchmarkMatrixProduct reports wall time only.
 func processCPU() time.Duration { return 0 }

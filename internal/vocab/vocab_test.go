@@ -1,4 +1,4 @@
-package vocab
+package vocab_test
 
 import (
 	"errors"
@@ -7,15 +7,17 @@ import (
 
 	"github.com/stretchr/testify/assert"
 	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/vocab"
 )
 
 type colour uint8
 
 var errColour = errors.New("paint: invalid colour")
 
-var colours = New("paint", "colour", "which colour the wall is", errColour,
-	W(colour(0), "white", "no pigment"),
-	W(colour(1), "sky-blue", "a light blue"),
+var colours = vocab.New("paint", "colour", "which colour the wall is", errColour,
+	vocab.W(colour(0), "white", "no pigment"),
+	vocab.W(colour(1), "sky-blue", "a light blue"),
 ).Aliases(map[string]colour{"Blue": 1})
 
 func TestSet(t *testing.T) {
@@ -44,9 +46,11 @@ func TestSet(t *testing.T) {
 	err = colours.Unmarshal(&c, []byte("sky_blue"))
 	assert.EqualError(t, err, `paint: invalid colour: colour = "sky_blue"; want one of white, sky-blue`)
 	assert.Equal(t, colour(1), c, "a failed Unmarshal leaves the value alone")
-	var e *Error
+	var e *vocab.Error
 	require.ErrorAs(t, err, &e)
-	assert.Equal(t, Error{Set: "paint.colour", Where: "colour", Value: `"sky_blue"`, Words: []string{"white", "sky-blue"}, errs: []error{errColour}}, *e)
+	assert.Equal(t, vocab.Error{Set: "paint.colour", Where: "colour", Value: `"sky_blue"`, Words: []string{"white", "sky-blue"}},
+		vocab.Error{Set: e.Set, Where: e.Where, Value: e.Value, Words: e.Words})
+	assert.Equal(t, []error{errColour}, e.Unwrap(), "the sentinels")
 
 	err = colours.Unmarshal(nil, []byte("white"))
 	assert.EqualError(t, err, "paint: invalid colour: colour.UnmarshalText: receiver = nil; want a *colour to set")
@@ -58,46 +62,46 @@ func TestSet(t *testing.T) {
 
 func TestAt(t *testing.T) {
 	errRoom := errors.New("house: invalid room")
-	err := At(colours.Check(9), errRoom, "Build: Room.Colour")
+	err := vocab.At(colours.Check(9), errRoom, "Build: Room.Colour")
 	assert.EqualError(t, err, "house: invalid room: Build: Room.Colour = 9; want one of white, sky-blue")
 	assert.ErrorIs(t, err, errRoom)
 	assert.ErrorIs(t, err, errColour)
 	other := errors.New("not a vocabulary error")
-	assert.Equal(t, other, At(other, errRoom, "x"))
-	assert.NoError(t, At(nil, errRoom, "x"))
+	assert.Equal(t, other, vocab.At(other, errRoom, "x"))
+	assert.NoError(t, vocab.At(nil, errRoom, "x"))
 }
 
 func TestNewRefusesBadVocabularies(t *testing.T) {
 	type kind int
-	for name, words := range map[string][]Word[kind]{
+	for name, words := range map[string][]vocab.Word[kind]{
 		"none":        nil,
-		"upper case":  {W(kind(0), "Heads", "m")},
-		"underscore":  {W(kind(0), "in_root", "m")},
-		"same word":   {W(kind(0), "a", "m"), W(kind(1), "a", "n")},
-		"same value":  {W(kind(0), "a", "m"), W(kind(0), "b", "n")},
-		"no meaning":  {W(kind(0), "a", "")},
-		"final stop.": {W(kind(0), "a", "a sentence.")},
+		"upper case":  {vocab.W(kind(0), "Heads", "m")},
+		"underscore":  {vocab.W(kind(0), "in_root", "m")},
+		"same word":   {vocab.W(kind(0), "a", "m"), vocab.W(kind(1), "a", "n")},
+		"same value":  {vocab.W(kind(0), "a", "m"), vocab.W(kind(0), "b", "n")},
+		"no meaning":  {vocab.W(kind(0), "a", "")},
+		"final stop.": {vocab.W(kind(0), "a", "a sentence.")},
 	} {
-		assert.Panics(t, func() { New("p", "kind", "q", nil, words...) }, name)
+		assert.Panics(t, func() { vocab.New("p", "kind", "q", nil, words...) }, name)
 	}
 	assert.Panics(t, func() {
-		New("paint", "colour", "again", nil, W(colour(0), "white", "m"))
+		vocab.New("paint", "colour", "again", nil, vocab.W(colour(0), "white", "m"))
 	}, "a type declared twice")
 	assert.Panics(t, func() { colours.Aliases(map[string]colour{"red": 9}) }, "an alias of a value with no word")
 }
 
 func TestRegistry(t *testing.T) {
-	e, ok := Lookup(typeOf[colour]())
+	e, ok := vocab.Lookup(typeOf[colour]())
 	require.True(t, ok)
 	assert.Equal(t, "paint.colour", e.Name)
-	assert.Equal(t, []Text{{"white", "no pigment"}, {"sky-blue", "a light blue"}}, e.Words)
+	assert.Equal(t, []vocab.Text{{"white", "no pigment"}, {"sky-blue", "a light blue"}}, e.Words)
 	assert.Equal(t, []string{"blue"}, e.Aliases)
 	found := false
-	for _, x := range All() {
+	for _, x := range vocab.All() {
 		found = found || x.Name == "paint.colour"
 	}
 	assert.True(t, found)
-	_, ok = Lookup(typeOf[string]())
+	_, ok = vocab.Lookup(typeOf[string]())
 	assert.False(t, ok)
 }
 

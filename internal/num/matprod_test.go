@@ -13,16 +13,16 @@ import (
 	"github.com/stretchr/testify/require"
 )
 
-// gemmCase is one product of the tests: sizes, transpositions, scalars and
+// productCase is one product of the tests: sizes, transpositions, scalars and
 // the row strides (wider than the matrices, so that a write outside a
 // matrix is seen).
-type gemmCase struct {
+type productCase struct {
 	m, n, k     int
 	tA, tB      bool
 	alpha, beta float64
 }
 
-func (g gemmCase) String() string {
+func (g productCase) String() string {
 	return fmt.Sprintf("m=%d n=%d k=%d tA=%v tB=%v α=%g β=%g", g.m, g.n, g.k, g.tA, g.tB, g.alpha, g.beta)
 }
 
@@ -31,7 +31,7 @@ func (g gemmCase) String() string {
 // round) and C random, or NaN when β = 0 (which must not read it). Only
 // math/rand/v2's integer and Float64 draws are used, which are the same on
 // every architecture.
-func (g gemmCase) operands(r *rand.Rand) (a []float64, lda int, b []float64, ldb int, c []float64, ldc int) {
+func (g productCase) operands(r *rand.Rand) (a []float64, lda int, b []float64, ldb int, c []float64, ldc int) {
 	ar, ac, br, bc := g.m, g.k, g.k, g.n
 	if g.tA {
 		ar, ac = g.k, g.m
@@ -69,9 +69,9 @@ func to32(x []float64) []float32 {
 	return out
 }
 
-// tripleLoop is the definition Gemm documents, written as plainly as it
+// tripleLoop is the definition MatrixProduct documents, written as plainly as it
 // reads: for each element, β·c, then the products in ascending order.
-func tripleLoop[T Float](g gemmCase, a []T, lda int, b []T, ldb int, c []T, ldc int) {
+func tripleLoop[T Float](g productCase, a []T, lda int, b []T, ldb int, c []T, ldc int) {
 	alpha, beta := T(g.alpha), T(g.beta)
 	for i := range g.m {
 		for j := range g.n {
@@ -113,38 +113,38 @@ func at(x []float64, ld int, trans bool, i, j int) float64 {
 	return x[i*ld+j]
 }
 
-// gemmCases are the sizes of the tests: 1s, primes, the block sizes and one
+// productCases are the sizes of the tests: 1s, primes, the block sizes and one
 // past them, in every transposition, with α = 1 and not, β = 0, 1 and
 // neither; and random sizes.
-func gemmCases(r *rand.Rand, random int) []gemmCase {
-	sizes := [][3]int{{1, 1, 1}, {1, 1, 7}, {1, 5, 1}, {3, 1, 2}, {2, 4, 1}, {3, 5, 7}, {2, 4, gemmKC}, {2, 4, gemmKC + 1},
-		{13, 17, 19}, {gemmMC, gemmNC, 3}, {gemmMC + 1, gemmNC + 1, 2*gemmKC + 3}, {1, 131, 263}, {97, 1, 5}, {67, 131, 0}}
+func productCases(r *rand.Rand, random int) []productCase {
+	sizes := [][3]int{{1, 1, 1}, {1, 1, 7}, {1, 5, 1}, {3, 1, 2}, {2, 4, 1}, {3, 5, 7}, {2, 4, panelDepth}, {2, 4, panelDepth + 1},
+		{13, 17, 19}, {panelRows, panelCols, 3}, {panelRows + 1, panelCols + 1, 2*panelDepth + 3}, {1, 131, 263}, {97, 1, 5}, {67, 131, 0}}
 	for range random {
 		sizes = append(sizes, [3]int{1 + r.IntN(150), 1 + r.IntN(300), 1 + r.IntN(600)})
 	}
-	var cases []gemmCase
+	var cases []productCase
 	for i, sz := range sizes {
 		for t := range 4 {
 			sc := [][2]float64{{1, 0}, {0.3, 1}, {1, -0.7}, {-1.5, 0}}[(i+t)%4]
-			cases = append(cases, gemmCase{m: sz[0], n: sz[1], k: sz[2], tA: t&1 != 0, tB: t&2 != 0, alpha: sc[0], beta: sc[1]})
+			cases = append(cases, productCase{m: sz[0], n: sz[1], k: sz[2], tA: t&1 != 0, tB: t&2 != 0, alpha: sc[0], beta: sc[1]})
 		}
 	}
 	return cases
 }
 
-// Gemm and GemmSerial are the triple loop of their documentation, bit for
+// MatrixProduct and MatrixProductSerial are the triple loop of their documentation, bit for
 // bit, in float64 and float32, and write nothing outside C's n columns.
-func TestGemmIsTheTripleLoop(t *testing.T) {
+func TestMatrixProductIsTheTripleLoop(t *testing.T) {
 	r := rand.New(rand.NewPCG(3, 4))
 	random := 12
 	if testing.Short() {
 		random = 3
 	}
-	for _, g := range gemmCases(r, random) {
+	for _, g := range productCases(r, random) {
 		a, lda, b, ldb, c0, ldc := g.operands(r)
 		want := append([]float64(nil), c0...)
 		tripleLoop(g, a, lda, b, ldb, want, ldc)
-		for name, f := range map[string]func(bool, bool, int, int, int, float64, []float64, int, []float64, int, float64, []float64, int){"Gemm": Gemm[float64], "GemmSerial": GemmSerial[float64]} {
+		for name, f := range map[string]func(bool, bool, int, int, int, float64, []float64, int, []float64, int, float64, []float64, int){"MatrixProduct": MatrixProduct[float64], "MatrixProductSerial": MatrixProductSerial[float64]} {
 			c := append([]float64(nil), c0...)
 			f(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
 			for i := range c {
@@ -157,10 +157,10 @@ func TestGemmIsTheTripleLoop(t *testing.T) {
 		want32 := append([]float32(nil), c32...)
 		tripleLoop(g, a32, lda, b32, ldb, want32, ldc)
 		c := append([]float32(nil), c32...)
-		Gemm(g.tA, g.tB, g.m, g.n, g.k, float32(g.alpha), a32, lda, b32, ldb, float32(g.beta), c, ldc)
+		MatrixProduct(g.tA, g.tB, g.m, g.n, g.k, float32(g.alpha), a32, lda, b32, ldb, float32(g.beta), c, ldc)
 		for i := range c {
 			if math.Float32bits(c[i]) != math.Float32bits(want32[i]) {
-				t.Fatalf("Gemm float32 %v: C[%d][%d] = %v; the triple loop gives %v", g, i/ldc, i%ldc, c[i], want32[i])
+				t.Fatalf("MatrixProduct float32 %v: C[%d][%d] = %v; the triple loop gives %v", g, i/ldc, i%ldc, c[i], want32[i])
 			}
 		}
 	}
@@ -170,7 +170,7 @@ func TestGemmIsTheTripleLoop(t *testing.T) {
 // math/big: γ_{k+3}·(|β·c| + Σ_p |α·a_ip·b_pj|), which covers the rounding
 // of α·a, of each product, of each of the k additions and of β·c. The
 // inputs' exponents span [−60, 60], so that the sums cancel.
-func TestGemmAccuracy(t *testing.T) {
+func TestMatrixProductAccuracy(t *testing.T) {
 	r := rand.New(rand.NewPCG(5, 6))
 	random := 4
 	if testing.Short() {
@@ -179,16 +179,16 @@ func TestGemmAccuracy(t *testing.T) {
 	const prec = 4000 // enough for any sum of these products, exactly
 	exact := func(x float64) *big.Float { return new(big.Float).SetPrec(prec).SetFloat64(x) }
 	worst := map[int]float64{}
-	for _, g := range gemmCases(r, random) {
+	for _, g := range productCases(r, random) {
 		if g.m*g.n*g.k > 400000 {
 			continue // big.Float is slow; the triple-loop test covers the rest
 		}
 		a, lda, b, ldb, c0, ldc := g.operands(r)
 		c := append([]float64(nil), c0...)
-		Gemm(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
+		MatrixProduct(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
 		a32, b32, c32 := to32(a), to32(b), to32(c0)
 		cs := append([]float32(nil), c32...)
-		Gemm(g.tA, g.tB, g.m, g.n, g.k, float32(g.alpha), a32, lda, b32, ldb, float32(g.beta), cs, ldc)
+		MatrixProduct(g.tA, g.tB, g.m, g.n, g.k, float32(g.alpha), a32, lda, b32, ldb, float32(g.beta), cs, ldc)
 		for _, bits := range []int{64, 32} {
 			u := 0x1p-53
 			A, B, C := a, b, c0
@@ -234,19 +234,19 @@ func TestGemmAccuracy(t *testing.T) {
 	t.Logf("worst error over Σ|terms|, in units u: float64 %.2f, float32 %.2f", worst[64], worst[32])
 }
 
-// The parallel Gemm gives the same bits for every GOMAXPROCS, and those of
-// GemmSerial, on a product of many blocks.
-func TestGemmSameBitsAnyGOMAXPROCS(t *testing.T) {
+// The parallel MatrixProduct gives the same bits for every GOMAXPROCS, and those of
+// MatrixProductSerial, on a product of many blocks.
+func TestMatrixProductSameBitsAnyGOMAXPROCS(t *testing.T) {
 	r := rand.New(rand.NewPCG(7, 8))
-	g := gemmCase{m: 3*gemmMC + 5, n: 4*gemmNC + 3, k: gemmKC + 7, tA: true, alpha: 0.3, beta: 1}
+	g := productCase{m: 3*panelRows + 5, n: 4*panelCols + 3, k: panelDepth + 7, tA: true, alpha: 0.3, beta: 1}
 	a, lda, b, ldb, c0, ldc := g.operands(r)
 	want := append([]float64(nil), c0...)
-	GemmSerial(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, want, ldc)
+	MatrixProductSerial(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, want, ldc)
 	defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(0))
 	for _, procs := range []int{1, 2, 3, 8} {
 		runtime.GOMAXPROCS(procs)
 		c := append([]float64(nil), c0...)
-		Gemm(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
+		MatrixProduct(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
 		for i := range c {
 			require.Equal(t, math.Float64bits(want[i]), math.Float64bits(c[i]), "GOMAXPROCS=%d: C[%d][%d]", procs, i/ldc, i%ldc)
 		}
@@ -256,12 +256,13 @@ func TestGemmSameBitsAnyGOMAXPROCS(t *testing.T) {
 // The same product gives the same bits on every architecture and build:
 // the digest of a fixed product, float64 and float32, is written here. CI
 // runs this test on amd64 (GOAMD64 v1 and v3), arm64 and s390x.
-func TestGemmSameBitsEverywhere(t *testing.T) {
+func TestMatrixProductSameBitsEverywhere(t *testing.T) {
 	r := rand.New(rand.NewPCG(9, 10))
 	h := sha256.New()
-	for _, g := range []gemmCase{
+	for _, g := range []productCase{
 		{m: 67, n: 133, k: 265, alpha: 0.3, beta: -0.7}, // sizes past the blocks, fixed
 		{m: 37, n: 41, k: 300, tA: true, tB: true, alpha: 1, beta: 0},
+		{m: 3, n: 29, k: 70, tB: true, alpha: 0.3, beta: 1}, // fewer rows than fewRows: not packed
 	} {
 		a, lda, b, ldb, c, ldc := g.operands(r)
 		for i := range c {
@@ -270,14 +271,14 @@ func TestGemmSameBitsEverywhere(t *testing.T) {
 			}
 		}
 		c32 := to32(c)
-		Gemm(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
-		Gemm(g.tA, g.tB, g.m, g.n, g.k, float32(g.alpha), to32(a), lda, to32(b), ldb, float32(g.beta), c32, ldc)
+		MatrixProduct(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
+		MatrixProduct(g.tA, g.tB, g.m, g.n, g.k, float32(g.alpha), to32(a), lda, to32(b), ldb, float32(g.beta), c32, ldc)
 		for i := range c {
 			_ = binary.Write(h, binary.LittleEndian, math.Float64bits(c[i]))
 			_ = binary.Write(h, binary.LittleEndian, math.Float32bits(c32[i]))
 		}
 	}
-	const want = "ed969c3b92a05a1da78d30968732d83b6aa1d678c0e3126a1ac2e684788bcd3f"
+	const want = "7ac7e71ca7758ba5d698d287bdf17f569be09cc8e6240e679b1c09bb3250307a"
 	if got := fmt.Sprintf("%x", h.Sum(nil)); got != want {
 		t.Errorf("%s: the digest of the fixed products is %s; want %s", runtime.GOARCH, got, want)
 	}

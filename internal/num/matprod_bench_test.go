@@ -10,7 +10,7 @@ import (
 	"gonum.org/v1/gonum/blas/blas64"
 )
 
-// BenchmarkGemm times Gemm against gonum's Dgemm (assembly on amd64, Go
+// BenchmarkMatrixProduct times MatrixProduct against gonum's BLAS matrix product (assembly on amd64, Go
 // elsewhere) on the shapes the fast forms use: a 64-row block of attention
 // (Q·Kᵀ: k = 128, n keys; P·V: k keys, n = 128), a square product, and a
 // feed-forward projection. Run with -cpu 1 for one core; the products of
@@ -19,8 +19,8 @@ import (
 // CPU time ("GFLOP/cpu-s"), which on a shared machine does not count the
 // time spent waiting for a core; with -cpu 1 that is the speed of one core.
 //
-//	go test ./internal/num -run XXX -bench Gemm -cpu 1,2
-func BenchmarkGemm(b *testing.B) {
+//	go test ./internal/num -run XXX -bench MatrixProduct -cpu 1,2
+func BenchmarkMatrixProduct(b *testing.B) {
 	r := rand.New(rand.NewPCG(1, 2))
 	for _, s := range []struct {
 		name    string
@@ -55,7 +55,7 @@ func BenchmarkGemm(b *testing.B) {
 		b.Run(fmt.Sprintf("%s/plumb", s.name), func(b *testing.B) {
 			start()
 			for b.Loop() {
-				Gemm(false, s.tB, s.m, s.n, s.k, 1, a, s.k, bb, bc, 0, c, s.n)
+				MatrixProduct(false, s.tB, s.m, s.n, s.k, 1, a, s.k, bb, bc, 0, c, s.n)
 			}
 			report(b)
 		})
