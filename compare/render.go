@@ -72,14 +72,14 @@ func (r *Report) WriteText(w io.Writer) error {
 	if t := r.Tolerance; t != nil {
 		fmt.Fprintf(&b, "tolerance: %s\n", t.words())
 		if t.Basis != "" {
-			wrapLine(&b, "  basis: ", "         ", t.Basis)
+			WrapText(&b, "  basis: ", "         ", t.Basis)
 		}
 	}
 	if v := r.Verdict; v != nil {
 		if v.Pass {
 			b.WriteString("verdict: PASS\n")
 		} else {
-			wrapLine(&b, "verdict: FAIL: ", "  ", strings.Join(v.Reasons, "; "))
+			WrapText(&b, "verdict: FAIL: ", "  ", strings.Join(v.Reasons, "; "))
 		}
 	}
 	// Empty last cells leave trailing blanks; drop them.
@@ -126,14 +126,14 @@ func (r *Report) writeWorst(b *bytes.Buffer, tw *tabwriter.Writer) {
 	}
 	t := r.Tolerance
 	if t == nil {
-		wrapLine(b, "", "  ", fmt.Sprintf("worst %s, ranked by absolute error |got − ref| (NaN and Inf mismatches first):", what))
+		WrapText(b, "", "  ", fmt.Sprintf("worst %s, ranked by absolute error |got − ref| (NaN and Inf mismatches first):", what))
 		fmt.Fprintf(tw, "  index\treference\tcandidate\tabs error\trel error\tULPs\n")
 		for _, e := range r.Worst {
 			fmt.Fprintf(tw, "  %v\t%s\t%s\t%s\t%s\t%s\n", e.Index, g17(e.Ref), g17(e.Got), g4(e.AbsErr), g4(e.RelErr), g4(e.ULPs))
 		}
 		return
 	}
-	wrapLine(b, "", "  ", fmt.Sprintf("worst %s, ranked by how far each exceeds the tolerance (× tol: its error over the "+
+	WrapText(b, "", "  ", fmt.Sprintf("worst %s, ranked by how far each exceeds the tolerance (× tol: its error over the "+
 		"error allowed there; above 1 fails), NaN and Inf mismatches first; the max abs error above is the largest "+
 		"|got − ref|, whatever its tolerance:", what))
 	fmt.Fprintf(tw, "  index\treference\tcandidate\tabs error\trel error\tULPs\t× tol\n")
@@ -171,10 +171,10 @@ func (t *Tolerance) words() string {
 	return fmt.Sprintf("abs %s, rel %s, ULPs %s, normwise %s", abs, rel, ulps, normwise)
 }
 
-// wrapLine writes first and then text, broken at spaces into lines of at
+// WrapText writes first and then text, broken at spaces into lines of at
 // most TextWidth characters, the lines after the first starting with
-// indent.
-func wrapLine(b *bytes.Buffer, first, indent, text string) {
+// indent: the wrapping of WriteText, for a report printed beside it.
+func WrapText(b io.StringWriter, first, indent, text string) {
 	line, width := first, utf8.RuneCountInString(first)
 	fresh := true // nothing of text on the line yet
 	for _, w := range strings.Fields(text) {

@@ -368,7 +368,7 @@ func TestReportTextWidth(t *testing.T) {
 	require.Len(t, r.Verdict.Reasons, 3)
 
 	var b bytes.Buffer
-	wrapLine(&b, "> ", "  ", strings.Repeat("x", 120)+" y")
+	WrapText(&b, "> ", "  ", strings.Repeat("x", 120)+" y")
 	assert.Equal(t, "> "+strings.Repeat("x", 120)+"\n  y\n", b.String(), "a long word stays whole")
 }
 

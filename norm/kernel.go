@@ -122,7 +122,13 @@ func normalizeRow[T num.Float](x []T, center bool, eps float64, place EpsilonPla
 		nh[i] = u
 		ss += T(u * u) // the conversion keeps each square rounded: no fusion
 	}
-	m := ss / T(len(nh))
+	return finishRow(nh, ss/T(len(nh)), k, eps, place)
+}
+
+// finishRow completes the statistics of a row whose centred values nh are
+// scaled by 2^−k and whose mean square (of the scaled values) is m: it
+// places ε (scaled to match), forms r and divides nh by it.
+func finishRow[T num.Float](nh []T, m T, k int, eps float64, place EpsilonPlacement) rowStat[T] {
 	st := rowStat[T]{k: k, finite: true, m: m, rho: T(math.Sqrt(float64(m)))}
 	if place == EpsilonAddedToRoot {
 		st.eps = T(math.Ldexp(eps, -k))

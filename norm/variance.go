@@ -50,19 +50,7 @@ func onePassRow[T num.Float](x []T, amax T, eps float64, place EpsilonPlacement,
 	for i := range nh {
 		nh[i] = ldexp(nh[i], base-k)
 	}
-	m := ldexp(va, 2*(base-k))
-	st := rowStat[T]{k: k, finite: true, m: m, rho: T(math.Sqrt(float64(m)))}
-	if place == EpsilonAddedToRoot {
-		st.eps = T(math.Ldexp(eps, -k))
-		st.r = st.rho + st.eps
-	} else {
-		st.eps = T(math.Ldexp(eps, -2*k))
-		st.r = T(math.Sqrt(float64(m + st.eps)))
-	}
-	for i := range nh {
-		nh[i] /= st.r
-	}
-	return st
+	return finishRow(nh, ldexp(va, 2*(base-k)), k, eps, place)
 }
 
 // varianceOf is the variance form the instantiation T computes: the

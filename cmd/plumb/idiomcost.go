@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"io"
 	"strings"
-	"unicode/utf8"
 
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/diagnose"
@@ -125,51 +124,28 @@ func writeIdiomCost(w io.Writer, c *idiomCost) error {
 	if c.IdiomCost == nil {
 		fmt.Fprintf(&b, "%s\n", idiomCostTitle)
 	} else {
-		wrapTo(&b, "", "  ", fmt.Sprintf("%s (%s)", idiomCostTitle, c.Keys))
+		compare.WrapText(&b, "", "  ", fmt.Sprintf("%s (%s)", idiomCostTitle, c.Keys))
 	}
 	if c.Note != "" {
-		wrapTo(&b, "  ", "   ", "("+c.Note+")")
+		compare.WrapText(&b, "  ", "   ", "("+c.Note+")")
 	}
 	if c.IdiomCost == nil {
-		wrapTo(&b, "  ", "    ", "the cost could not be measured: "+c.Error)
+		compare.WrapText(&b, "  ", "    ", "the cost could not be measured: "+c.Error)
 		_, err := io.WriteString(w, b.String())
 		return err
 	}
-	wrapTo(&b, "  ", "  ", fmt.Sprintf("against the plain float32 run (the configuration without it), under the %v yardstick:", c.Format))
+	compare.WrapText(&b, "  ", "  ", fmt.Sprintf("against the plain float32 run (the configuration without it), under the %v yardstick:", c.Format))
 	for _, o := range c.Outputs {
-		wrapTo(&b, "    ", "      ", fmt.Sprintf("%s: normwise %.3g (plain %.3g, ×%.3g), max abs %.3g (plain %.3g)", o.Output,
+		compare.WrapText(&b, "    ", "      ", fmt.Sprintf("%s: normwise %.3g (plain %.3g, ×%.3g), max abs %.3g (plain %.3g)", o.Output,
 			float64(o.Normwise), float64(o.PlainNormwise), float64(o.Ratio), float64(o.MaxAbs), float64(o.PlainMaxAbs)))
 		var at []string
 		for _, p := range o.Positions {
 			at = append(at, fmt.Sprintf("at position %d: %.3g (plain %.3g)", p.Position, float64(p.MaxAbs), float64(p.PlainMaxAbs)))
 		}
 		if len(at) > 0 {
-			wrapTo(&b, "      ", "        ", "max abs "+strings.Join(at, ", "))
+			compare.WrapText(&b, "      ", "        ", "max abs "+strings.Join(at, ", "))
 		}
 	}
 	_, err := io.WriteString(w, b.String())
 	return err
-}
-
-// wrapTo writes text after first, broken at spaces into lines of at most
-// compare.TextWidth characters, the lines after the first starting with
-// indent.
-func wrapTo(b *strings.Builder, first, indent, text string) {
-	line, width := first, utf8.RuneCountInString(first)
-	fresh := true // nothing of text on the line yet
-	for _, w := range strings.Fields(text) {
-		n := utf8.RuneCountInString(w)
-		if !fresh && width+1+n > compare.TextWidth {
-			b.WriteString(line + "\n")
-			line, width, fresh = indent, utf8.RuneCountInString(indent), true
-		}
-		if !fresh {
-			line += " "
-			width++
-		}
-		line += w
-		width += n
-		fresh = false
-	}
-	b.WriteString(line + "\n")
 }
