@@ -16,9 +16,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/ops"
 )
 
@@ -159,7 +158,7 @@ func guidePaths(t *testing.T) []docPath {
 	var out []docPath
 	for _, g := range []string{"README.md", "DEVELOPERS.md", "testdata/README.md"} {
 		b, err := os.ReadFile(filepath.FromSlash(g))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		dir := path.Dir(g)
 		if dir == "." {
 			dir = ""
@@ -201,7 +200,7 @@ func commentPaths(t *testing.T) []docPath {
 		}
 		return nil
 	})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return out
 }
 
@@ -210,19 +209,19 @@ func commentPaths(t *testing.T) []docPath {
 func helpPaths(t *testing.T) []docPath {
 	bin := filepath.Join(t.TempDir(), "plumb")
 	out, err := exec.Command("go", "build", "-o", bin, "./cmd/plumb").CombinedOutput()
-	require.NoError(t, err, "building plumb: %s", out)
+	ensure.NoError(t, err, "building plumb: %s", out)
 	help := func(topic ...string) string {
 		var o bytes.Buffer
 		cmd := exec.Command(bin, append([]string{"help"}, topic...)...)
 		cmd.Stdout = &o
-		require.NoError(t, cmd.Run(), "plumb help %s", strings.Join(topic, " "))
+		ensure.NoError(t, cmd.Run(), "plumb help %s", strings.Join(topic, " "))
 		return o.String()
 	}
 	top := help()
 	topics := []string{"ops", "conventions"}
 	// The overview lists the commands as "  NAME   summary" after "commands:".
 	_, list, ok := strings.Cut(top, "\ncommands:\n")
-	require.True(t, ok, "plumb help lists no commands:\n%s", top)
+	ensure.True(t, ok, "plumb help lists no commands:\n%s", top)
 	for _, l := range strings.Split(list, "\n") {
 		f := strings.Fields(l)
 		if len(f) == 0 || !strings.HasPrefix(l, "  ") {
@@ -232,7 +231,7 @@ func helpPaths(t *testing.T) []docPath {
 			topics = append(topics, f[0])
 		}
 	}
-	require.Contains(t, topics, "gen", "the commands parsed from plumb help")
+	ensure.Contains(t, topics, "gen", "the commands parsed from plumb help")
 	topics = append(topics, ops.Names()...)
 	paths := linePaths("plumb help", 1, top, []string{""})
 	for _, tp := range topics {
@@ -246,7 +245,7 @@ func TestDocumentedPathsExist(t *testing.T) {
 	all = append(all, guidePaths(t)...)
 	all = append(all, commentPaths(t)...)
 	all = append(all, helpPaths(t)...)
-	require.NotEmpty(t, all)
+	ensure.NotEmpty(t, all)
 	seen := map[string]bool{}
 	for _, p := range all {
 		key := p.where + " " + p.path
@@ -266,7 +265,7 @@ func TestPathWords(t *testing.T) {
 		"https://example.org/a.md, /usr/bin/python3, go test ./..., [the guide](DEVELOPERS.md), ./cmd/plumb, ../outside/notes and " +
 		modulePath + "ops."
 	got := pathWords(line, entryIn([]string{""}))
-	assert.Equal(t, []string{"no_such_guide.md", "ops/no_such_file.go", "testdata/golden/none.json", "cmd/plumb/gen.go",
+	expect.Equal(t, []string{"no_such_guide.md", "ops/no_such_file.go", "testdata/golden/none.json", "cmd/plumb/gen.go",
 		"DEVELOPERS.md", "./cmd/plumb", "../outside/notes", modulePath + "ops"}, got)
 
 	var missing []string
@@ -275,10 +274,10 @@ func TestPathWords(t *testing.T) {
 			missing = append(missing, p)
 		}
 	}
-	assert.Equal(t, []string{"no_such_guide.md", "ops/no_such_file.go", "testdata/golden/none.json", "../outside/notes"}, missing)
+	expect.Equal(t, []string{"no_such_guide.md", "ops/no_such_file.go", "testdata/golden/none.json", "../outside/notes"}, missing)
 
 	// Relative to a guide's own folder: golden/ is testdata's.
-	assert.True(t, exists("golden/mask/kinds.json", []string{"testdata", ""}))
-	assert.False(t, exists("golden/mask/kinds.json", []string{""}))
-	assert.Equal(t, []string{"golden/mask/none.json"}, pathWords("`golden/mask/none.json`", entryIn([]string{"testdata", ""})))
+	expect.True(t, exists("golden/mask/kinds.json", []string{"testdata", ""}))
+	expect.False(t, exists("golden/mask/kinds.json", []string{""}))
+	expect.Equal(t, []string{"golden/mask/none.json"}, pathWords("`golden/mask/none.json`", entryIn([]string{"testdata", ""})))
 }

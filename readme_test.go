@@ -12,8 +12,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // Every Go block of README.md is a complete program (package main, its
@@ -105,37 +105,37 @@ func TestReadmePrograms(t *testing.T) {
 		t.Skip("skipped in -short: each of the README's programs is built and run by the full go test")
 	}
 	readme, err := os.ReadFile("README.md")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var programs []*fence
 	for _, f := range fences(string(readme)) {
 		if f.lang == "go" {
 			programs = append(programs, f)
 		}
 	}
-	require.NotEmpty(t, programs, "README.md has no Go block")
+	ensure.NotEmpty(t, programs, "README.md has no Go block")
 	root, err := filepath.Abs(repoRoot)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, p := range programs {
 		t.Run(fmt.Sprintf("line %d", p.line), func(t *testing.T) {
 			t.Parallel()
 			formatted, err := format.Source([]byte(p.body))
-			require.NoError(t, err, "README.md:%d: the Go block does not parse", p.line)
-			assert.Equal(t, string(formatted), p.body, "README.md:%d: the Go block is not gofmt'ed", p.line)
+			ensure.NoError(t, err, "README.md:%d: the Go block does not parse", p.line)
+			expect.Equal(t, string(formatted), p.body, "README.md:%d: the Go block is not gofmt'ed", p.line)
 
 			dir := t.TempDir()
 			src, bin := filepath.Join(dir, "main.go"), filepath.Join(dir, "program")
-			require.NoError(t, os.WriteFile(src, []byte(p.body), 0o644))
+			ensure.NoError(t, os.WriteFile(src, []byte(p.body), 0o644))
 			build := exec.Command("go", "build", "-o", bin, src)
 			build.Dir = root // this module is the main module: its requirements and go.sum resolve the imports
 			out, err := build.CombinedOutput()
-			require.NoError(t, err, "README.md:%d: the Go block does not build as a program:\n%s", p.line, out)
+			ensure.NoError(t, err, "README.md:%d: the Go block does not build as a program:\n%s", p.line, out)
 
 			var stdout, stderr bytes.Buffer
 			run := exec.Command(bin)
 			run.Dir, run.Stdout, run.Stderr = dir, &stdout, &stderr
-			require.NoError(t, run.Run(), "README.md:%d: the program fails:\nstdout:\n%s\nstderr:\n%s", p.line, &stdout, &stderr)
+			ensure.NoError(t, run.Run(), "README.md:%d: the program fails:\nstdout:\n%s\nstderr:\n%s", p.line, &stdout, &stderr)
 			if shown, ok := p.output(); ok {
-				assert.Regexp(t, outputPattern(shown), stdout.String(), "README.md:%d: the program prints other than README.md:%d shows", p.line, p.after.line)
+				expect.Regexp(t, outputPattern(shown), stdout.String(), "README.md:%d: the program prints other than README.md:%d shows", p.line, p.after.line)
 			}
 		})
 	}
@@ -146,17 +146,17 @@ func TestReadmePrograms(t *testing.T) {
 func TestReadmeOutputRules(t *testing.T) {
 	md := "# T\n\n```go\nA\n```\n\nprints\n\n```text\na\n…\nz…\n```\n\n```go\nB\n```\n\n## next\n\n```text\nnot B's\n```\n\n```sh\nC\n```\n"
 	fs := fences(md)
-	require.Len(t, fs, 5)
-	assert.Equal(t, []string{"go", "text", "go", "text", "sh"}, []string{fs[0].lang, fs[1].lang, fs[2].lang, fs[3].lang, fs[4].lang})
-	assert.Equal(t, "A\n", fs[0].body)
-	assert.Equal(t, 3, fs[0].line)
+	ensure.Len(t, fs, 5)
+	expect.Equal(t, []string{"go", "text", "go", "text", "sh"}, []string{fs[0].lang, fs[1].lang, fs[2].lang, fs[3].lang, fs[4].lang})
+	expect.Equal(t, "A\n", fs[0].body)
+	expect.Equal(t, 3, fs[0].line)
 	shown, ok := fs[0].output()
-	assert.True(t, ok)
-	assert.Equal(t, "a\n…\nz…\n", shown)
+	expect.True(t, ok)
+	expect.Equal(t, "a\n…\nz…\n", shown)
 	_, ok = fs[2].output()
-	assert.False(t, ok, "a heading stands between B and the text block")
+	expect.False(t, ok, "a heading stands between B and the text block")
 	_, ok = fs[4].output()
-	assert.False(t, ok, "the last block has none")
+	expect.False(t, ok, "the last block has none")
 
 	re := outputPattern(shown)
 	for out, want := range map[string]bool{
@@ -167,8 +167,8 @@ func TestReadmeOutputRules(t *testing.T) {
 		"a\nz\nextra\n":      false, // a line after the last
 		"a\nb\n":             false,
 	} {
-		assert.Equal(t, want, re.MatchString(out), "%q", out)
+		expect.Equal(t, want, re.MatchString(out), "%q", out)
 	}
-	assert.True(t, outputPattern("[1 2]\n").MatchString("[1 2]\n"), "brackets are literal")
-	assert.False(t, outputPattern("[1 2]\n").MatchString("1\n"))
+	expect.True(t, outputPattern("[1 2]\n").MatchString("[1 2]\n"), "brackets are literal")
+	expect.False(t, outputPattern("[1 2]\n").MatchString("1\n"))
 }

@@ -5,9 +5,8 @@ import (
 	"math"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
@@ -62,14 +61,14 @@ var sentinels = []error{ErrShape, ErrLength, ErrOption, ErrBias, ErrMask, ErrOve
 // package, and reads "<want>: <fn>: <detail>".
 func checkError(t *testing.T, err, want error, fn, detail string) {
 	t.Helper()
-	require.Error(t, err)
-	assert.ErrorIs(t, err, want)
+	ensure.Error(t, err)
+	expect.ErrorIs(t, err, want)
 	for _, other := range sentinels {
 		if other != want {
-			assert.False(t, errors.Is(err, other), "%q also wraps %v", err, other)
+			expect.False(t, errors.Is(err, other), "%q also wraps %v", err, other)
 		}
 	}
-	assert.Equal(t, want.Error()+": "+fn+": "+detail, err.Error())
+	expect.Equal(t, want.Error()+": "+fn+": "+detail, err.Error())
 }
 
 // TestErrors runs every form, float64 and float32, on each invalid input
@@ -78,7 +77,7 @@ func checkError(t *testing.T, err, want error, fn, detail string) {
 func TestErrors(t *testing.T) {
 	good := Shape{Batch: 2, HeadsQ: 4, HeadsKV: 2, Lq: 3, Lk: 5, Dk: 4, Dv: 2}
 	pad, err := mask.KeyPadding([]int{5, 5, 5}) // three lengths for two batch entries
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	// The mask package's own reasons, which the message quotes.
 	padWhy := pad.Check(mask.Geometry{Batch: 2, Lq: 3, Lk: 5}).Error()
 	causalWhy := mask.Causal().Check(mask.Geometry{Batch: 2, Lq: 3, Lk: 5, Align: mask.AlignStart, Offset: 3}).Error()
@@ -140,8 +139,8 @@ func TestErrorsMaskWrapsBoth(t *testing.T) {
 	pad, _ := mask.KeyPadding([]int{9})
 	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 2, Lk: 3, Dk: 1, Dv: 1}
 	_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Mask: pad})
-	assert.ErrorIs(t, err, ErrMask)
-	assert.ErrorIs(t, err, mask.ErrValidLength)
+	expect.ErrorIs(t, err, ErrMask)
+	expect.ErrorIs(t, err, mask.ErrValidLength)
 }
 
 // TestErrorsALiBiForm: a form that is none of mask.ALiBiForm's words is an
@@ -149,12 +148,12 @@ func TestErrorsMaskWrapsBoth(t *testing.T) {
 func TestErrorsALiBiForm(t *testing.T) {
 	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 2, Lk: 3, Dk: 1, Dv: 1}
 	_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Slopes: []float64{0.5}, ALiBi: 9})
-	assert.ErrorIs(t, err, ErrOption)
-	assert.ErrorIs(t, err, mask.ErrALiBi)
-	assert.EqualError(t, err, "attention: invalid option: Forward: Options.ALiBi = 9; want one of causal, symmetric, past-only")
+	expect.ErrorIs(t, err, ErrOption)
+	expect.ErrorIs(t, err, mask.ErrALiBi)
+	expect.EqualError(t, err, "attention: invalid option: Forward: Options.ALiBi = 9; want one of causal, symmetric, past-only")
 	for _, f := range mask.ALiBiCausal.Values() {
 		_, _, err := Forward(make([]float64, 2), make([]float64, 3), make([]float64, 3), s, Options{Slopes: []float64{0.5}, ALiBi: f})
-		assert.NoError(t, err, "%v", f)
+		expect.NoError(t, err, "%v", f)
 	}
 }
 
@@ -333,7 +332,7 @@ func TestErrorsHugeShape(t *testing.T) {
 // V, Batch = 0 none at all) and would otherwise allocate from 12 MiB per
 // worker (the fast scratch) to 8 TiB (the output) and end the program.
 func TestMaxElements(t *testing.T) {
-	require.Equal(t, 1<<28, MaxElements)
+	ensure.Equal(t, 1<<28, MaxElements)
 	tests := []struct {
 		name   string
 		s      Shape
@@ -361,7 +360,7 @@ func TestMaxElements(t *testing.T) {
 
 	// At the limit: a call of 2^28 output elements whose data are empty.
 	_, _, err := Forward(nil, nil, nil, Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 0, Lk: 0, Dk: 1, Dv: MaxElements}, Options{})
-	assert.NoError(t, err)
+	expect.NoError(t, err)
 
 	// The fast forms hold up to 3·64·Lk values per worker.
 	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 1, Lk: MaxElements/192 + 1, Dk: 1, Dv: 1}
@@ -372,8 +371,8 @@ func TestMaxElements(t *testing.T) {
 	_, err = BackwardFast32(f32(q), f32(k), f32(v), f32(d), nil, s, Options{})
 	checkError(t, err, ErrShape, "BackwardFast32", scratch)
 	_, _, err = Forward(q, k, v, s, Options{})
-	assert.NoError(t, err, "the direct form holds one row of Lk logits")
+	expect.NoError(t, err, "the direct form holds one row of Lk logits")
 	s.Lk--
 	_, _, err = ForwardFast(q, k[1:], v[1:], s, Options{})
-	assert.NoError(t, err)
+	expect.NoError(t, err)
 }

@@ -6,9 +6,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/surface"
 	"github.com/plumbref/plumb/mask"
@@ -132,9 +131,9 @@ func (b bounds32) backward(p *plan, q, k []float64) (dq, dk, dv, dsinks, dbias [
 // than the bound somewhere (so that the bound has teeth).
 func within[T num.Float](t *testing.T, what string, got []T, want, wrong []float64, bound func(i int) float64) (caught bool) {
 	t.Helper()
-	require.Len(t, got, len(want), what)
+	ensure.Len(t, got, len(want), what)
 	for i := range want {
-		require.LessOrEqual(t, math.Abs(float64(got[i])-want[i]), bound(i), "%s[%d]: float32 %v, float64 %v", what, i, got[i], want[i])
+		ensure.LessOrEqual(t, math.Abs(float64(got[i])-want[i]), bound(i), "%s[%d]: float32 %v, float64 %v", what, i, got[i], want[i])
 		caught = caught || math.Abs(wrong[i]-want[i]) > bound(i)
 	}
 	return caught
@@ -190,61 +189,61 @@ func TestFloat32Bounds(t *testing.T) {
 			boundO, boundL float64
 		}
 		want, wantL, err := Forward(q, k, v, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		wrong, wrongL, err := Forward(q, k, v, s, wrongScale(o, s))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		var runs []run
 		out, lse, err := Forward32(q32, k32, v32, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		runs = append(runs, run{"Forward32", out, lse, want, wantL, wrong, wrongL, bo, bl})
 		out, lse, err = ForwardFast32(q32, k32, v32, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		runs = append(runs, run{"ForwardFast32", out, lse, want, wantL, wrong, wrongL, bo, bl})
 		od := o
 		od.Mask = mask.Mask{}
 		dWant, dWantL, err := Decode(q, k, v, s, s.Lk-s.Lq, od)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		dWrong, dWrongL, err := Decode(q, k, v, s, s.Lk-s.Lq, wrongScale(od, s))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		out, lse, err = Decode32(q32, k32, v32, s, s.Lk-s.Lq, od)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		runs = append(runs, run{"Decode32", out, lse, dWant, dWantL, dWrong, dWrongL, bo, bl})
 		for _, block := range []int{1, 7, 64} {
 			tWant, tWantL, err := ForwardTiled(q, k, v, s, block, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			tWrong, tWrongL, err := ForwardTiled(q, k, v, s, block, wrongScale(o, s))
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			out, lse, err = ForwardTiled32(q32, k32, v32, s, block, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			tbo, tbl := b.forward((s.Lk + block - 1) / block)
 			runs = append(runs, run{"ForwardTiled32", out, lse, tWant, tWantL, tWrong, tWrongL, tbo, tbl})
 		}
 		for _, x := range runs {
-			assert.True(t, within(t, x.name+" out", x.out, x.want, x.wrong, constant(x.boundO)), "trial %d %s: the bound on O misses a wrong scale", trial, x.name)
-			assert.True(t, within(t, x.name+" lse", x.lse, x.wantL, x.wrongL, constant(x.boundL)), "trial %d %s: the bound on lse misses a wrong scale", trial, x.name)
+			expect.True(t, within(t, x.name+" out", x.out, x.want, x.wrong, constant(x.boundO)), "trial %d %s: the bound on O misses a wrong scale", trial, x.name)
+			expect.True(t, within(t, x.name+" lse", x.lse, x.wantL, x.wrongL, constant(x.boundL)), "trial %d %s: the bound on lse misses a wrong scale", trial, x.name)
 		}
 
 		// Backward forms.
 		p, err := newPlan("Backward", len(q), len(k), len(v), s, &o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		bq, bk, bv, bs, bb := b.backward(p, q, k)
 		for _, fast := range []bool{false, true} {
 			var g, gw Grads
 			var g32 Grads32
 			if fast {
 				g, err = BackwardFast(q, k, v, dOut, dLSE, s, o)
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				gw, err = BackwardFast(q, k, v, dOut, dLSE, s, wrongScale(o, s))
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				g32, err = BackwardFast32(q32, k32, v32, dOut32, dLSE32, s, o)
 			} else {
 				g, err = Backward(q, k, v, dOut, dLSE, s, o)
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				gw, err = Backward(q, k, v, dOut, dLSE, s, wrongScale(o, s))
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				g32, err = Backward32(q32, k32, v32, dOut32, dLSE32, s, o)
 			}
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			at := func(b []float64) func(int) float64 { return func(i int) float64 { return b[i] } }
 			for _, c := range []struct {
 				name      string
@@ -259,7 +258,7 @@ func TestFloat32Bounds(t *testing.T) {
 				{"dBias", g32.DBias, g.DBias, gw.DBias, bb},
 			} {
 				caught := within(t, c.name, c.got, c.want, c.off, at(c.bound))
-				assert.True(t, caught, "trial %d fast=%v: the bound on %s misses a wrong scale", trial, fast, c.name)
+				expect.True(t, caught, "trial %d fast=%v: the bound on %s misses a wrong scale", trial, fast, c.name)
 			}
 		}
 
@@ -282,9 +281,9 @@ func TestFloat32Bounds(t *testing.T) {
 			}
 		}
 		mo, ml, err := Merge(outA, lseA, outB, lseB, s.Dv)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		mo32, ml32, err := Merge32(f(outA), f(lseA), f(outB), f(lseB), s.Dv)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		mWrong, mWrongL := make([]float64, len(mo)), make([]float64, len(ml))
 		for i := range ml {
 			m := math.Max(lseA[i], lseB[i])
@@ -294,8 +293,8 @@ func TestFloat32Bounds(t *testing.T) {
 				mWrong[i*s.Dv+d] = wa*outA[i*s.Dv+d] + wb*outB[i*s.Dv+d]
 			}
 		}
-		assert.True(t, within(t, "Merge32 out", mo32, mo, mWrong, constant(slack32*18*u32)), "the bound on the merged O misses unnormalised weights")
-		assert.True(t, within(t, "Merge32 lse", ml32, ml, mWrongL, constant(slack32*13*u32)), "the bound on the merged lse misses a logarithm of the wrong base")
+		expect.True(t, within(t, "Merge32 out", mo32, mo, mWrong, constant(slack32*18*u32)), "the bound on the merged O misses unnormalised weights")
+		expect.True(t, within(t, "Merge32 lse", ml32, ml, mWrongL, constant(slack32*13*u32)), "the bound on the merged lse misses a logarithm of the wrong base")
 	}
 }
 
@@ -324,9 +323,9 @@ func TestSpecialCases32(t *testing.T) {
 			// Batch = 0 and Lq = 0: empty outputs.
 			for _, e := range []Shape{{0, 2, 1, 3, 4, 2, 2}, {1, 2, 1, 0, 4, 2, 2}} {
 				out, lse, err := f(nil, make([]float32, e.kLen()), make([]float32, e.vLen()), e, Options{})
-				require.NoError(t, err)
-				assert.Empty(t, out)
-				assert.Empty(t, lse)
+				ensure.NoError(t, err)
+				expect.Empty(t, out)
+				expect.Empty(t, lse)
 			}
 		})
 	}
@@ -349,7 +348,7 @@ func TestSpecialCases32(t *testing.T) {
 			},
 		} {
 			g, err := run(f32(bq), f32(bk), f32(bv), f32(dOut), bs, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for _, c := range []struct {
 				name string
 				x    []float32
@@ -358,11 +357,11 @@ func TestSpecialCases32(t *testing.T) {
 				for i, x := range c.x {
 					switch {
 					case i >= half:
-						require.False(t, x != x, "%s %v: %s[%d] of the visible batch entry is NaN", name, pol, c.name, i)
+						ensure.False(t, x != x, "%s %v: %s[%d] of the visible batch entry is NaN", name, pol, c.name, i)
 					case pol == EmptyRowNaN:
-						require.True(t, x != x, "%s %v: %s[%d] = %v, want NaN", name, pol, c.name, i, x)
+						ensure.True(t, x != x, "%s %v: %s[%d] = %v, want NaN", name, pol, c.name, i, x)
 					default:
-						require.Zero(t, x, "%s %v: %s[%d]", name, pol, c.name, i)
+						ensure.Zero(t, x, "%s %v: %s[%d]", name, pol, c.name, i)
 					}
 				}
 			}
@@ -378,7 +377,7 @@ func TestSpecialCases32(t *testing.T) {
 // is the same in float32, and every function named …32 is such a twin.
 func TestFloat32Surface(t *testing.T) {
 	twinned, problems, err := surface.Twins(".", strings.NewReplacer("float64", "float32", "Grads", "Grads32"))
-	require.NoError(t, err)
-	assert.Empty(t, problems)
-	assert.Len(t, twinned, 9, "functions with a float32 twin: %v", twinned)
+	ensure.NoError(t, err)
+	expect.Empty(t, problems)
+	expect.Len(t, twinned, 9, "functions with a float32 twin: %v", twinned)
 }

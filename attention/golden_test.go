@@ -6,9 +6,8 @@ import (
 	"slices"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
@@ -94,13 +93,13 @@ type goldenCall struct {
 func loadCall(t *testing.T, c *golden.Case) goldenCall {
 	t.Helper()
 	var cfg goldenConfig
-	require.NoError(t, c.DecodeConfig(&cfg))
+	ensure.NoError(t, c.DecodeConfig(&cfg))
 	g := goldenCall{c: c, s: Shape{cfg.Batch, cfg.HeadsQ, cfg.HeadsKV, cfg.Lq, cfg.Lk, cfg.Dk, cfg.Dv}, cfg: cfg}
 	o := &g.o
 	o.Layout, o.Group, o.Align, o.ALiBi, o.EmptyRow = cfg.Layout, cfg.Group, cfg.Align, cfg.ALiBiForm, cfg.EmptyRow
 	o.Scale, o.SoftCap, o.Offset = cfg.Scale, cfg.SoftCap, cfg.Offset
 	m, err := mask.Build(cfg.Mask)
-	require.NoError(t, err, c.String())
+	ensure.NoError(t, err, c.String())
 	if len(cfg.Mask) > 0 {
 		o.Mask = m // no entry leaves the zero Mask, which Options reads as Full
 	}
@@ -109,7 +108,7 @@ func loadCall(t *testing.T, c *golden.Case) goldenCall {
 			return nil
 		}
 		x, _, err := c.Float(name)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		if x == nil {
 			x = []float64{}
 		}
@@ -147,12 +146,12 @@ func effectOf(t *testing.T, c *golden.Case, cfg goldenConfig) inEffect {
 		e.Group = &cfg.Group
 	}
 	lse, _, err := c.Float("lse")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	if slices.ContainsFunc(lse, func(x float64) bool { return math.IsInf(x, -1) }) {
 		e.EmptyRow = &cfg.EmptyRow
 	}
 	m, err := mask.Build(cfg.Mask)
-	require.NoError(t, err, c.String())
+	ensure.NoError(t, err, c.String())
 	slopes := c.Has("slopes")
 	if cfg.Lq != cfg.Lk && (m.UsesPositions() || slopes) {
 		e.Align = &cfg.Align
@@ -160,7 +159,7 @@ func effectOf(t *testing.T, c *golden.Case, cfg goldenConfig) inEffect {
 	g := mask.Geometry{Batch: cfg.Batch, Lq: cfg.Lq, Lk: cfg.Lk, Align: cfg.Align, Offset: cfg.Offset}
 	if slopes {
 		vis, err := m.Visible(g)
-		require.NoError(t, err, c.String())
+		ensure.NoError(t, err, c.String())
 		for k, v := range vis {
 			if i, j := k/g.Lk%g.Lq, k%g.Lk; v && j > g.Pos(i) {
 				e.ALiBi = &cfg.ALiBiForm
@@ -188,13 +187,13 @@ func TestGoldenWords(t *testing.T) {
 		f := golden.MustLoadFamily(t, "attention", fam)
 		for _, c := range f.Cases {
 			var cfg goldenConfig
-			require.NoError(t, c.DecodeConfig(&cfg))
+			ensure.NoError(t, c.DecodeConfig(&cfg))
 			noted.Note(cfg)
 			effective.Note(effectOf(t, c, cfg))
 			n++
 		}
 	}
-	require.Equal(t, 64, n, "cases in %v", goldenFamilies)
+	ensure.Equal(t, 64, n, "cases in %v", goldenFamilies)
 	noted.Require(t, goldenConventions...)
 	effective.Require(t, goldenConventions...)
 }
@@ -228,7 +227,7 @@ type worst string
 func (w worst) check(t *testing.T, g goldenCall, name string, got []float64, bound float64) {
 	t.Helper()
 	want, _, err := g.c.Float(name)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	e := golden.NormwiseRelErr(got, want)
 	if w != "" {
 		row := string(w)
@@ -269,7 +268,7 @@ func goldenForward[T num.Float](t *testing.T, w worst, bound float64, prepare fu
 			g = prepare(t, g)
 		}
 		out, lse, err := run(num.Convert[T](g.q), num.Convert[T](g.k), num.Convert[T](g.v), g.s, g.o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		w.check(t, g, "out", num.Convert[float64](out), bound)
 		w.check(t, g, "lse", num.Convert[float64](lse), bound)
 	})
@@ -304,7 +303,7 @@ func goldenDecode[T num.Float](t *testing.T, name string, decode func(q, k, v []
 	goldenForward(t, worst(name), goldenBound, decodeCase(&n), func(q, k, v []T, s Shape, o Options) ([]T, []T, error) {
 		return decode(q, k, v, s, s.Lk-s.Lq, o)
 	})
-	require.GreaterOrEqual(t, n, 9, "causal end-aligned golden cases")
+	ensure.GreaterOrEqual(t, n, 9, "causal end-aligned golden cases")
 }
 
 func TestGoldenDecode(t *testing.T)   { goldenDecode(t, "Decode", Decode) }
@@ -324,7 +323,7 @@ func (w worst) checkGrads(t *testing.T, g goldenCall, gr Grads, bound func(g gol
 		if g.c.Has(c.name) {
 			w.check(t, g, c.name, c.x, bound(g, c.name))
 		} else {
-			assert.Nil(t, c.x, "%v: %s without a sink or bias", g.c, c.name)
+			expect.Nil(t, c.x, "%v: %s without a sink or bias", g.c, c.name)
 		}
 	}
 }
@@ -351,7 +350,7 @@ func goldenBackward[T num.Float, G any](t *testing.T, name string, widen func(G)
 		}
 		c := num.Convert[T, float64]
 		gr, err := run(c(g.q), c(g.k), c(g.v), c(g.dOut), c(g.dLSE), g.s, g.o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		w.checkGrads(t, g, widen(gr), bound)
 	})
 }

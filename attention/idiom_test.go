@@ -5,9 +5,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
@@ -60,21 +59,21 @@ func TestAccumulationCostsItsFormat(t *testing.T) {
 			n := 2 + r.IntN(2)
 			x32, x := uniform32(r, n, 3)
 			want, err := Softmax(x, n)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			got, err := Idiom{Accumulation: c.a}.Softmax32(x32, n)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for j := range want {
 				worst = math.Max(worst, math.Abs(float64(got[j])-want[j])/want[j])
 			}
 		}
 		t.Logf("%v: largest relative error of a probability, rows of 2 or 3: %.3g (2^%.1f)", c.a, worst, math.Log2(worst))
-		assert.True(t, worst > c.lo && worst <= c.hi, "%v: relative error %.3g; want in (%.3g, %.3g]", c.a, worst, c.lo, c.hi)
+		expect.True(t, worst > c.lo && worst <= c.hi, "%v: relative error %.3g; want in (%.3g, %.3g]", c.a, worst, c.lo, c.hi)
 
 		x32, x := uniform32(r, 16*256, 4)
 		want, err := Softmax(x, 256)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		got, err := Idiom{Accumulation: c.a}.Softmax32(x32, 256)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		t.Logf("%v: normwise error, 16 rows of 256: %.3g", c.a, golden.NormwiseRelErr(num.Convert[float64](got), want))
 	}
 }
@@ -107,22 +106,22 @@ func TestUnshiftedSoftmaxOverflows(t *testing.T) {
 	} {
 		x := []float32{c.top, c.top - 1, c.top - 3}
 		y, err := c.id.Softmax32(x, 3)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		lse, err := c.id.LogSumExp32(x, 3)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		sum := y[0] + y[1] + y[2]
 		ok := finite(y) && math.Abs(float64(sum)-1) < 1e-2 && finite(lse)
-		assert.Equal(t, c.finite, ok, "%+v, logits %v: softmax %v (sum %v), log-sum-exp %v", c.id, x, y, sum, lse)
+		expect.Equal(t, c.finite, ok, "%+v, logits %v: softmax %v (sum %v), log-sum-exp %v", c.id, x, y, sum, lse)
 		if !c.finite {
-			assert.True(t, math.IsInf(float64(lse[0]), 1), "%+v, logits %v: log-sum-exp %v; want +Inf", c.id, x, lse[0])
+			expect.True(t, math.IsInf(float64(lse[0]), 1), "%+v, logits %v: log-sum-exp %v; want +Inf", c.id, x, lse[0])
 		}
 	}
 	y, err := none.Softmax32([]float32{89, 88, 0}, 3)
-	require.NoError(t, err)
-	assert.True(t, math.IsNaN(float64(y[0])), "e^89 = +Inf in float32: Inf/Inf = NaN, got %v", y)
+	ensure.NoError(t, err)
+	expect.True(t, math.IsNaN(float64(y[0])), "e^89 = +Inf in float32: Inf/Inf = NaN, got %v", y)
 	y, err = none16.Softmax32([]float32{12, 0}, 2)
-	require.NoError(t, err)
-	assert.Equal(t, []float32{0, 0}, y, "e^12 = 162755 > 65504: the binary16 sum is +Inf")
+	ensure.NoError(t, err)
+	expect.Equal(t, []float32{0, 0}, y, "e^12 = 162755 > 65504: the binary16 sum is +Inf")
 
 	// In attention: logits scaled to about 100 overflow the unshifted
 	// float32 softmax of Forward32, with no ErrOverflow (every logit is
@@ -133,14 +132,14 @@ func TestUnshiftedSoftmaxOverflows(t *testing.T) {
 	v := []float32{1, 2, 3, 4, 5, 6}
 	o := Options{Scale: 1, Mask: mask.Full()}
 	out, _, err := Forward32(q, k, v, s, o)
-	require.NoError(t, err)
-	assert.True(t, finite(out), "%v", out)
+	ensure.NoError(t, err)
+	expect.True(t, finite(out), "%v", out)
 	o.Idiom = none
 	out, lse, err := Forward32(q, k, v, s, o)
-	require.NoError(t, err)
-	assert.True(t, math.IsNaN(float64(out[0])), "logit 100: e^100 overflows float32: %v", out)
-	assert.True(t, math.IsInf(float64(lse[0]), 1), "%v", lse)
-	assert.True(t, finite(out[2:]), "the second row's logits are below 5: %v", out)
+	ensure.NoError(t, err)
+	expect.True(t, math.IsNaN(float64(out[0])), "logit 100: e^100 overflows float32: %v", out)
+	expect.True(t, math.IsInf(float64(lse[0]), 1), "%v", lse)
+	expect.True(t, finite(out[2:]), "the second row's logits are below 5: %v", out)
 }
 
 // TestIdiomPortIsForward32: Forward32 with bfloat16 accumulation is, bit for
@@ -184,10 +183,10 @@ func TestIdiomPortIsForward32(t *testing.T) {
 	}
 	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: lq, Lk: lk, Dk: dk, Dv: dv}
 	got, _, err := Forward32(q, k, v, s, Options{Idiom: Idiom{Accumulation: AccumulateBFloat16}})
-	require.NoError(t, err)
-	assert.Equal(t, want, got)
+	ensure.NoError(t, err)
+	expect.Equal(t, want, got)
 	for _, x := range got {
-		assert.Equal(t, bf(x), x, "every output is a running sum, a bfloat16 value")
+		expect.Equal(t, bf(x), x, "every output is a running sum, a bfloat16 value")
 	}
 }
 
@@ -216,45 +215,45 @@ func TestIdiomLeavesTheReference(t *testing.T) {
 		var res result
 		var err error
 		res.out, res.lse, err = Forward(q, k, v, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.g, err = Backward(q, k, v, d, nil, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.dout, res.dlse, err = Decode(q, k, v, s, 3, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.f32, _, err = ForwardFast32(q32, k32, v32, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.t32, _, err = ForwardTiled32(q32, k32, v32, s, 2, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.g32, err = Backward32(q32, k32, v32, d32, nil, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		return res
 	}
 	plain := run(Idiom{})
 	for _, id := range idioms() {
-		assert.Equal(t, plain, run(id), "%+v", id)
+		expect.Equal(t, plain, run(id), "%+v", id)
 		o := Options{Mask: mask.Causal(), Idiom: id}
 		fo, fl, err := Forward32(q32, k32, v32, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		do, dl, err := Decode32(q32, k32, v32, s, 3, Options{Idiom: id})
-		require.NoError(t, err)
-		assert.Equal(t, fo, do, "%+v: Decode32 at 3 is the causal Forward32", id)
-		assert.Equal(t, fl, dl, "%+v", id)
+		ensure.NoError(t, err)
+		expect.Equal(t, fo, do, "%+v: Decode32 at 3 is the causal Forward32", id)
+		expect.Equal(t, fl, dl, "%+v", id)
 	}
 	x32, _ := uniform32(r, 12, 3)
 	y, err := Softmax32(x32, 4)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	yi, err := Idiom{}.Softmax32(x32, 4)
-	require.NoError(t, err)
-	assert.Equal(t, y, yi)
+	ensure.NoError(t, err)
+	expect.Equal(t, y, yi)
 	l, err := LogSumExp32(x32, 4)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	li, err := Idiom{}.LogSumExp32(x32, 4)
-	require.NoError(t, err)
-	assert.Equal(t, l, li)
+	ensure.NoError(t, err)
+	expect.Equal(t, l, li)
 
 	_, _, err = Forward32(q32, k32, v32, s, Options{Idiom: Idiom{Accumulation: 7}})
-	assert.ErrorIs(t, err, ErrOption)
-	assert.EqualError(t, err, "attention: invalid option: Forward32: Options.Idiom.Accumulation = 7; want one of float32, bfloat16, binary16")
+	expect.ErrorIs(t, err, ErrOption)
+	expect.EqualError(t, err, "attention: invalid option: Forward32: Options.Idiom.Accumulation = 7; want one of float32, bfloat16, binary16")
 	_, err = Idiom{Shift: 2}.Softmax32(x32, 4)
-	assert.EqualError(t, err, "attention: invalid option: Idiom.Softmax32: Idiom.Shift = 2; want one of max, none")
+	expect.EqualError(t, err, "attention: invalid option: Idiom.Softmax32: Idiom.Shift = 2; want one of max, none")
 }

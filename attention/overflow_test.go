@@ -5,9 +5,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -86,9 +85,9 @@ func TestOverflow(t *testing.T) {
 					ok = tc.ok32
 				}
 				if ok {
-					assert.NoError(t, err, f.fn)
+					expect.NoError(t, err, f.fn)
 				} else {
-					require.Error(t, err, f.fn)
+					ensure.Error(t, err, f.fn)
 					checkError(t, err, ErrOverflow, f.fn, strings.TrimPrefix(err.Error(), ErrOverflow.Error()+": "+f.fn+": "))
 				}
 			}
@@ -106,7 +105,7 @@ func TestOverflow(t *testing.T) {
 	// Scale 1e39 is finite in float64 but +Inf in float32 (MaxFloat32 ≈
 	// 3.4e38): the twins overflow where the reference does not.
 	_, _, err = Forward(q, k, v, s, Options{Scale: 1e39})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	_, _, err = Forward32(f32(q), f32(k), f32(v), s, Options{Scale: 1e39})
 	checkError(t, err, ErrOverflow, "Forward32", "the logit of batch entry 0, query head 0, query 0, key 0 = +Inf from finite q, k and bias; "+
 		"want Options.Scale (1e+39), SoftCap (0), Bias and Slopes such that every logit of finite inputs stays within ±3.403e+38, the float32 range")
@@ -114,12 +113,12 @@ func TestOverflow(t *testing.T) {
 	// Under the cap every logit is 30·tanh(+Inf) = 30: the softmax is
 	// uniform, O = the mean of V's rows (1 + 2 + 3)/3 = 2, lse = 30 + ln 3.
 	out, lse, err := ForwardFast(q, k, v, s, Options{Scale: 1e308, SoftCap: 30})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i := range out {
-		assert.InDelta(t, 2, out[i], 4e-16)
+		expect.InDelta(t, 2, out[i], 4e-16)
 	}
 	for i := range lse {
-		assert.InDelta(t, 30+math.Log(3), lse[i], 1e-14)
+		expect.InDelta(t, 30+math.Log(3), lse[i], 1e-14)
 	}
 }
 
@@ -144,15 +143,15 @@ func TestNonFiniteInputs(t *testing.T) {
 		{"Decode", func(q, k, v []float64) ([]float64, []float64, error) { return Decode(q, k, v, s, 1, Options{}) }},
 	} {
 		out, lse, err := f.run(q, k, v)
-		require.NoError(t, err, f.fn)
-		assert.Equal(t, []float64{7}, out, f.fn)
-		assert.Equal(t, []float64{0.8 / math.Sqrt2}, lse, f.fn)
+		ensure.NoError(t, err, f.fn)
+		expect.Equal(t, []float64{7}, out, f.fn)
+		expect.Equal(t, []float64{0.8 / math.Sqrt2}, lse, f.fn)
 
 		// Both keys −Inf: the row sees no key (EmptyRowZero: O = 0, lse = −Inf).
 		out, lse, err = f.run([]float64{1, 0}, []float64{-inf, 1, -inf, 1}, v)
-		require.NoError(t, err, f.fn)
-		assert.Equal(t, []float64{0}, out, f.fn)
-		assert.Equal(t, []float64{-inf}, lse, f.fn)
+		ensure.NoError(t, err, f.fn)
+		expect.Equal(t, []float64{0}, out, f.fn)
+		expect.Equal(t, []float64{-inf}, lse, f.fn)
 
 		// A +Inf logit, a NaN logit (Inf·0), a NaN in q: NaN rows, no error.
 		for _, in := range [][3][]float64{
@@ -161,8 +160,8 @@ func TestNonFiniteInputs(t *testing.T) {
 			{{math.NaN(), 0.5}, {1, 1, 0.3, 1}, v},
 		} {
 			out, lse, err = f.run(in[0], in[1], in[2])
-			require.NoError(t, err, f.fn)
-			assert.True(t, math.IsNaN(out[0]) && math.IsNaN(lse[0]), "%s %v: %v %v", f.fn, in, out, lse)
+			ensure.NoError(t, err, f.fn)
+			expect.True(t, math.IsNaN(out[0]) && math.IsNaN(lse[0]), "%s %v: %v %v", f.fn, in, out, lse)
 		}
 	}
 	// The backward forms take them as well (the gradients are NaN or
@@ -170,8 +169,8 @@ func TestNonFiniteInputs(t *testing.T) {
 	// checked here).
 	for _, qq := range [][]float64{q, {math.NaN(), 0.5}} {
 		_, err := Backward(qq, k, v, []float64{1}, nil, s, Options{})
-		assert.NoError(t, err)
+		expect.NoError(t, err)
 		_, err = BackwardFast32(f32(qq), f32(k), f32(v), []float32{1}, nil, s, Options{})
-		assert.NoError(t, err)
+		expect.NoError(t, err)
 	}
 }

@@ -7,9 +7,8 @@ import (
 	"runtime"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
@@ -59,9 +58,9 @@ func randOptions(r *rand.Rand, s Shape) Options {
 func forwardPlan(t *testing.T, q, k, v []float64, s Shape, o Options) (out, lse []float64, p *plan) {
 	t.Helper()
 	out, lse, err := Forward(q, k, v, s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	p, err = newPlan("Forward", len(q), len(k), len(v), s, &o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return out, lse, p
 }
 
@@ -115,16 +114,16 @@ func TestPropertyProbabilitiesSumToOne(t *testing.T) {
 			}
 			var sum float64
 			for j, x := range row {
-				require.GreaterOrEqual(t, x, 0.0)
+				ensure.GreaterOrEqual(t, x, 0.0)
 				if !pl.visible(r.b, r.i, j) {
-					require.Zero(t, x, "trial %d: hidden key %d has weight", trial, j)
+					ensure.Zero(t, x, "trial %d: hidden key %d has weight", trial, j)
 				}
 				sum += x
 			}
 			// Each weight carries a few roundings (exp, one division):
 			// |Σ − 1| ≤ Lk·4·2⁻⁵³ + the rounding of the sum, far below
 			// 1e-14 for Lk ≤ 9.
-			assert.InDelta(t, want, sum, 1e-14, "trial %d row %+v", trial, r)
+			expect.InDelta(t, want, sum, 1e-14, "trial %d row %+v", trial, r)
 		}
 	}
 }
@@ -154,13 +153,13 @@ func TestPropertyConvexHull(t *testing.T) {
 					}
 				}
 				if math.IsInf(lo, 1) { // empty row: 0 under EmptyRowZero
-					require.Zero(t, x)
+					ensure.Zero(t, x)
 					continue
 				}
 				// Rounding of a sum of Lk ≤ 9 terms of size ≤ 1: below
 				// 16·2⁻⁵³ ≈ 1.8e-15.
 				const slack = 2e-15
-				require.True(t, lo-slack <= x && x <= hi+slack, "trial %d: %v outside [%v, %v]", trial, x, lo, hi)
+				ensure.True(t, lo-slack <= x && x <= hi+slack, "trial %d: %v outside [%v, %v]", trial, x, lo, hi)
 			}
 		}
 	}
@@ -176,7 +175,7 @@ func TestPropertyKeyPermutation(t *testing.T) {
 		o := Options{Layout: Layout(r.IntN(2)), Group: GroupMap(r.IntN(2)), SoftCap: []float64{0, 2}[r.IntN(2)]}
 		q, k, v := randCase(r, s)
 		want, wantL, err := Forward(q, k, v, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		perm := r.Perm(s.Lk)
 		p := &plan{s: s, layout: o.Layout}
 		k2, v2 := make([]float64, len(k)), make([]float64, len(v))
@@ -189,10 +188,10 @@ func TestPropertyKeyPermutation(t *testing.T) {
 			}
 		}
 		got, gotL, err := Forward(q, k2, v2, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		// Different summation orders of ≤ 12 terms: a few ulps.
-		assert.LessOrEqual(t, golden.NormwiseRelErr(got, want), 1e-15, "trial %d", trial)
-		assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), 1e-15, "trial %d", trial)
+		expect.LessOrEqual(t, golden.NormwiseRelErr(got, want), 1e-15, "trial %d", trial)
+		expect.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), 1e-15, "trial %d", trial)
 	}
 }
 
@@ -209,7 +208,7 @@ func TestPropertyGroupedEqualsRepeated(t *testing.T) {
 		o := randOptions(r, s)
 		q, k, v := randCase(r, s)
 		pl, err := newPlan("Forward", len(q), len(k), len(v), s, &o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		m := s
 		m.HeadsKV = s.HeadsQ
 		pm := &plan{s: m, layout: o.Layout}
@@ -223,21 +222,21 @@ func TestPropertyGroupedEqualsRepeated(t *testing.T) {
 			}
 		}
 		want, wantL, err := Forward(q, k2, v2, m, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		got, gotL, err := Forward(q, k, v, s, o)
-		require.NoError(t, err)
-		require.Equal(t, want, got, "trial %d %v", trial, o.Group)
-		require.Equal(t, wantL, gotL)
+		ensure.NoError(t, err)
+		ensure.Equal(t, want, got, "trial %d %v", trial, o.Group)
+		ensure.Equal(t, wantL, gotL)
 		// Backward: dQ identical; dK of the grouped call is the sum over
 		// the group of the repeated call's dK (the direct form adds the
 		// group's contributions key by key in head order, not head by
 		// head, so compare within a few ulps).
 		dOut := randNorm(r, s.oLen())
 		gm, err := Backward(q, k2, v2, dOut, nil, m, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		gg, err := Backward(q, k, v, dOut, nil, s, o)
-		require.NoError(t, err)
-		require.Equal(t, gm.DQ, gg.DQ)
+		ensure.NoError(t, err)
+		ensure.Equal(t, gm.DQ, gg.DQ)
 		sumK, sumV := make([]float64, s.kLen()), make([]float64, s.vLen())
 		for b := range s.Batch {
 			for h := range s.HeadsQ {
@@ -253,8 +252,8 @@ func TestPropertyGroupedEqualsRepeated(t *testing.T) {
 				}
 			}
 		}
-		assert.LessOrEqual(t, golden.NormwiseRelErr(gg.DK, sumK), 1e-14, "trial %d", trial)
-		assert.LessOrEqual(t, golden.NormwiseRelErr(gg.DV, sumV), 1e-14, "trial %d", trial)
+		expect.LessOrEqual(t, golden.NormwiseRelErr(gg.DK, sumK), 1e-14, "trial %d", trial)
+		expect.LessOrEqual(t, golden.NormwiseRelErr(gg.DV, sumV), 1e-14, "trial %d", trial)
 	}
 }
 
@@ -270,7 +269,7 @@ func TestPropertyFiniteDifferences(t *testing.T) {
 		dOut, dLSE := randNorm(r, s.oLen()), randNorm(r, s.lseLen())
 		loss := func() float64 {
 			out, lse, err := Forward(q, k, v, s, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			var l float64
 			for i, x := range out {
 				l += dOut[i] * x
@@ -283,7 +282,7 @@ func TestPropertyFiniteDifferences(t *testing.T) {
 			return l
 		}
 		g, err := Backward(q, k, v, dOut, dLSE, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for _, tc := range []struct {
 			name string
 			x    []float64
@@ -309,7 +308,7 @@ func TestPropertyFiniteDifferences(t *testing.T) {
 			if len(num) > 0 && normInf(num) < 1e-6 {
 				e = maxAbsDiff(tc.grad, num) // a gradient near 0: compare absolutely
 			}
-			assert.LessOrEqual(t, e, 1e-7, "trial %d %s: %+v %+v", trial, tc.name, s, o)
+			expect.LessOrEqual(t, e, 1e-7, "trial %d %s: %+v %+v", trial, tc.name, s, o)
 		}
 	}
 }
@@ -349,9 +348,9 @@ func sameBits[T num.Float](got, want []T) string {
 func checkFastIsDirect(t *testing.T, trial int, q, k, v, dOut []float64, s Shape, o Options) {
 	t.Helper()
 	want, wantL, err := Forward(q, k, v, s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	got, gotL, err := ForwardFast(q, k, v, s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, c := range []struct {
 		name      string
 		got, want []float64
@@ -362,26 +361,26 @@ func checkFastIsDirect(t *testing.T, trial int, q, k, v, dOut []float64, s Shape
 	}
 	q32, k32, v32, d32 := num.Convert[float32](q), num.Convert[float32](k), num.Convert[float32](v), num.Convert[float32](dOut)
 	w32, wl32, err := Forward32(q32, k32, v32, s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	g32, gl32, err := ForwardFast32(q32, k32, v32, s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	if d := sameBits(g32, w32) + sameBits(gl32, wl32); d != "" {
 		t.Fatalf("trial %d, %v %+v: ForwardFast32 differs from Forward32: %s", trial, s, o, d)
 	}
 	dlse := randNorm(rand.New(rand.NewPCG(uint64(trial), 1)), s.lseLen())
 	gw, err := Backward(q, k, v, dOut, dlse, s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	gf, err := BackwardFast(q, k, v, dOut, dlse, s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i, c := range [][2][]float64{{gf.DQ, gw.DQ}, {gf.DK, gw.DK}, {gf.DV, gw.DV}, {gf.DSinks, gw.DSinks}, {gf.DBias, gw.DBias}} {
 		if d := sameBits(c[0], c[1]); d != "" {
 			t.Fatalf("trial %d, %v %+v: BackwardFast %s differs from Backward's: %s", trial, s, o, []string{"dQ", "dK", "dV", "dSinks", "dBias"}[i], d)
 		}
 	}
 	bw, err := Backward32(q32, k32, v32, d32, num.Convert[float32](dlse), s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	bf, err := BackwardFast32(q32, k32, v32, d32, num.Convert[float32](dlse), s, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i, c := range [][2][]float32{{bf.DQ, bw.DQ}, {bf.DK, bw.DK}, {bf.DV, bw.DV}, {bf.DSinks, bw.DSinks}, {bf.DBias, bw.DBias}} {
 		if d := sameBits(c[0], c[1]); d != "" {
 			t.Fatalf("trial %d, %v %+v: BackwardFast32 %s differs from Backward32's: %s", trial, s, o, []string{"dQ", "dK", "dV", "dSinks", "dBias"}[i], d)
@@ -449,14 +448,14 @@ func TestPropertyDeterministicAcrossGOMAXPROCS(t *testing.T) {
 	for _, n := range []int{1, 2, 3} {
 		runtime.GOMAXPROCS(n)
 		out, _, err := ForwardFast(q, k, v, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		g, err := BackwardFast(q, k, v, dOut, nil, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		outs, grads = append(outs, out), append(grads, g)
 	}
 	for n := 1; n < len(outs); n++ {
-		require.Equal(t, outs[0], outs[n])
-		require.Equal(t, grads[0], grads[n])
+		ensure.Equal(t, outs[0], outs[n])
+		ensure.Equal(t, grads[0], grads[n])
 	}
 }
 
@@ -483,14 +482,14 @@ func TestPropertyNaNInfPolicy(t *testing.T) {
 					big[i] = shift
 				}
 				ob, lb, err := f(q, k, v, Options{Bias: big, BiasBatch: 1, BiasHeads: 1})
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				o0, l0, err := f(q, k, v, Options{})
-				require.NoError(t, err)
-				assert.LessOrEqual(t, golden.NormwiseRelErr(ob, o0), 1e-13, "shift %v", shift)
+				ensure.NoError(t, err)
+				expect.LessOrEqual(t, golden.NormwiseRelErr(ob, o0), 1e-13, "shift %v", shift)
 				for i := range lb {
 					// lse shifts by exactly the bias up to the rounding of
 					// logits near 1000 (ulp 1.1e-13).
-					assert.InDelta(t, l0[i]+shift, lb[i], 1e-12)
+					expect.InDelta(t, l0[i]+shift, lb[i], 1e-12)
 				}
 			}
 		})
@@ -511,30 +510,30 @@ func checkNaNInfPolicy[T num.Float](t *testing.T, q, k, v []T, f func(q, k, v []
 	q2 := append([]T(nil), q...)
 	q2[2*1] = T(math.NaN()) // head 0, row 1
 	out, lse, err := f(q2, k, v, Options{})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i := range 3 {
-		assert.Equal(t, i == 1, isNaN(out[2*i]) && isNaN(lse[i]), "row %d", i)
+		expect.Equal(t, i == 1, isNaN(out[2*i]) && isNaN(lse[i]), "row %d", i)
 	}
-	assert.False(t, isNaN(out[6]), "head 1 is untouched")
+	expect.False(t, isNaN(out[6]), "head 1 is untouched")
 	bias := make([]float64, 12)
 	bias[4] = math.Inf(1) // row 1, key 0
 	out, lse, err = f(q, k, v, Options{Bias: bias, BiasBatch: 1, BiasHeads: 1})
-	require.NoError(t, err)
-	assert.True(t, isNaN(out[2]) && isNaN(lse[1]))
-	assert.False(t, isNaN(out[0]) || isNaN(out[4]))
+	ensure.NoError(t, err)
+	expect.True(t, isNaN(out[2]) && isNaN(lse[1]))
+	expect.False(t, isNaN(out[0]) || isNaN(out[4]))
 	pad, _ := mask.KeyPadding([]int{0})
 	for _, pol := range []EmptyRow{EmptyRowZero, EmptyRowNaN} {
 		out, lse, err := f(q, k, v, Options{Mask: pad, EmptyRow: pol})
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for i := range out {
 			if pol == EmptyRowZero {
-				require.Zero(t, out[i])
+				ensure.Zero(t, out[i])
 			} else {
-				require.True(t, isNaN(out[i]))
+				ensure.True(t, isNaN(out[i]))
 			}
 		}
 		for _, l := range lse {
-			require.True(t, math.IsInf(float64(l), -1))
+			ensure.True(t, math.IsInf(float64(l), -1))
 		}
 	}
 }
@@ -547,9 +546,9 @@ func checkHiddenInfIgnored[T num.Float](t *testing.T, q, k, v []T, f func(q, k, 
 	v2[2*3] = T(math.Inf(1)) // key 3
 	pad, _ := mask.KeyPadding([]int{3})
 	out, _, err := f(q, k, v2, Options{Mask: pad})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, x := range out {
-		require.False(t, math.IsNaN(float64(x)) || math.IsInf(float64(x), 0))
+		ensure.False(t, math.IsNaN(float64(x)) || math.IsInf(float64(x), 0))
 	}
 }
 
@@ -569,25 +568,25 @@ func TestPropertyMaskRunsEqualBooleans(t *testing.T) {
 		q, k, v := randCase(r, s)
 		dOut := randNorm(r, s.oLen())
 		runs, err := newPlan("Forward", len(q), len(k), len(v), s, &o)
-		require.NoError(t, err)
-		require.Nil(t, runs.vis, "every mask kind is a run per row")
+		ensure.NoError(t, err)
+		ensure.Nil(t, runs.vis, "every mask kind is a run per row")
 		bools, err := newPlan("Forward", len(q), len(k), len(v), s, &o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		m := o.Mask
 		if isZeroMask(m) {
 			m = mask.Full()
 		}
 		bools.vis, err = m.Visible(bools.geom)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		o1, l1 := forward(runs, q, k, v)
 		o2, l2 := forward(bools, q, k, v)
-		require.Equal(t, o1, o2, "trial %d", trial)
-		require.Equal(t, l1, l2)
+		ensure.Equal(t, o1, o2, "trial %d", trial)
+		ensure.Equal(t, l1, l2)
 		o1, l1 = forwardFast(runs, q, k, v)
 		o2, l2 = forwardFast(bools, q, k, v)
-		require.Equal(t, o1, o2, "trial %d", trial)
-		require.Equal(t, l1, l2)
-		require.Equal(t, backwardFast(runs, q, k, v, dOut, nil), backwardFast(bools, q, k, v, dOut, nil))
-		require.Equal(t, backward(runs, q, k, v, dOut, nil), backward(bools, q, k, v, dOut, nil))
+		ensure.Equal(t, o1, o2, "trial %d", trial)
+		ensure.Equal(t, l1, l2)
+		ensure.Equal(t, backwardFast(runs, q, k, v, dOut, nil), backwardFast(bools, q, k, v, dOut, nil))
+		ensure.Equal(t, backward(runs, q, k, v, dOut, nil), backward(bools, q, k, v, dOut, nil))
 	}
 }

@@ -5,9 +5,8 @@ import (
 	"math"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 )
@@ -29,22 +28,22 @@ func TestGoldenSoftmax(t *testing.T) {
 			var cfg struct {
 				N int `json:"n"`
 			}
-			require.NoError(t, c.DecodeConfig(&cfg))
+			ensure.NoError(t, c.DecodeConfig(&cfg))
 			x, _, err := c.Float("x")
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			check := func(row, tensor string, got []float64, bound float64) {
 				t.Helper()
 				want, _, err := c.Float(tensor)
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				e := golden.NormwiseRelErr(got, want)
 				accuracy.Note(row, map[string]string{"softmax": "out", "lse": "lse"}[tensor], e)
-				assert.LessOrEqual(t, e, bound, golden.Describe(c, tensor, e, bound))
+				expect.LessOrEqual(t, e, bound, golden.Describe(c, tensor, e, bound))
 			}
 			sm, err := Softmax(x, cfg.N)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			check("Softmax", "softmax", sm, softmaxBound(cfg.N))
 			lse, err := LogSumExp(x, cfg.N)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			check("LogSumExp", "lse", lse, softmaxBound(cfg.N))
 
 			if c.Name == "near_plus_1000" || c.Name == "spread_pm_1000" || c.Name == "n1" || c.Name == "tiny_logits" {
@@ -55,10 +54,10 @@ func TestGoldenSoftmax(t *testing.T) {
 			// unit roundoff times the largest |x| in the case (≤ 10), plus
 			// the arithmetic; 1e-5 covers it with margin.
 			sm32, err := Softmax32(num.Convert[float32](x), cfg.N)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			check("Softmax32", "softmax", num.Convert[float64](sm32), 1e-5)
 			lse32, err := LogSumExp32(num.Convert[float32](x), cfg.N)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			check("LogSumExp32", "lse", num.Convert[float64](lse32), 1e-5)
 		})
 	}
@@ -70,49 +69,49 @@ func TestGoldenSoftmax(t *testing.T) {
 // 0.24472847105479765).
 func TestSoftmaxWorked(t *testing.T) {
 	sm, err := Softmax([]float64{1, 3, 2}, 3)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	want := []float64{0.090030573170380458, 0.66524095577482189, 0.24472847105479765}
 	for j := range want {
-		assert.InDelta(t, want[j], sm[j], 2e-16*want[j]+1e-17)
+		expect.InDelta(t, want[j], sm[j], 2e-16*want[j]+1e-17)
 	}
 	lse, err := LogSumExp([]float64{1, 3, 2}, 3)
-	require.NoError(t, err)
-	assert.Equal(t, 3.4076059644443803, lse[0], "correctly rounded")
+	ensure.NoError(t, err)
+	expect.Equal(t, 3.4076059644443803, lse[0], "correctly rounded")
 }
 
 func TestSoftmaxSpecialCases(t *testing.T) {
 	inf := math.Inf(1)
 	sm, err := Softmax([]float64{math.Inf(-1), math.Inf(-1), math.Inf(-1), inf, 1, 2}, 3)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, v := range sm {
-		assert.True(t, math.IsNaN(v), "a row of −Inf only is 0/0, and +Inf gives Inf − Inf: NaN; got %v", sm)
+		expect.True(t, math.IsNaN(v), "a row of −Inf only is 0/0, and +Inf gives Inf − Inf: NaN; got %v", sm)
 	}
 	lse, err := LogSumExp([]float64{math.Inf(-1), math.Inf(-1), 0, inf, math.NaN(), 1}, 2)
-	require.NoError(t, err)
-	assert.True(t, math.IsInf(lse[0], -1))
-	assert.True(t, math.IsInf(lse[1], 1))
-	assert.True(t, math.IsNaN(lse[2]))
+	ensure.NoError(t, err)
+	expect.True(t, math.IsInf(lse[0], -1))
+	expect.True(t, math.IsInf(lse[1], 1))
+	expect.True(t, math.IsNaN(lse[2]))
 	sm, err = Softmax(nil, 4)
-	require.NoError(t, err)
-	assert.Empty(t, sm)
+	ensure.NoError(t, err)
+	expect.Empty(t, sm)
 	// The input is not modified.
 	x := []float64{0, 1}
 	_, err = Softmax(x, 2)
-	require.NoError(t, err)
-	assert.Equal(t, []float64{0, 1}, x)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{0, 1}, x)
 }
 
 func TestSoftmaxErrors(t *testing.T) {
 	_, err := Softmax([]float64{1, 2, 3}, 2)
-	require.True(t, errors.Is(err, ErrLength))
-	assert.EqualError(t, err, "attention: length mismatch: Softmax: x has 3 elements; want a multiple of the row length n = 2")
+	ensure.True(t, errors.Is(err, ErrLength))
+	expect.EqualError(t, err, "attention: length mismatch: Softmax: x has 3 elements; want a multiple of the row length n = 2")
 	_, err = LogSumExp32([]float32{1}, 0)
-	require.True(t, errors.Is(err, ErrShape))
-	assert.EqualError(t, err, "attention: invalid shape: LogSumExp32: n = 0; want a row length ≥ 1")
+	ensure.True(t, errors.Is(err, ErrShape))
+	expect.EqualError(t, err, "attention: invalid shape: LogSumExp32: n = 0; want a row length ≥ 1")
 	_, err = Softmax32([]float32{1}, -3)
-	require.True(t, errors.Is(err, ErrShape))
+	ensure.True(t, errors.Is(err, ErrShape))
 	_, err = LogSumExp([]float64{1, 2, 3}, 2)
-	require.True(t, errors.Is(err, ErrLength))
+	ensure.True(t, errors.Is(err, ErrLength))
 }
 
 // TestSoftmaxMatchesForward: the softmax of one logit row equals the
@@ -123,14 +122,14 @@ func TestSoftmaxMatchesForward(t *testing.T) {
 	v := []float64{1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1, 0, 0, 0, 0, 1}
 	s := Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 1, Lk: 4, Dk: 3, Dv: 4}
 	out, lse, err := Forward(q, k, v, s, Options{Scale: 1})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	logits := []float64{0.5, -1, 2, 1.5}
 	sm, err := Softmax(logits, 4)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for j := range sm {
-		assert.InDelta(t, sm[j], out[j], 1e-16)
+		expect.InDelta(t, sm[j], out[j], 1e-16)
 	}
 	l, err := LogSumExp(logits, 4)
-	require.NoError(t, err)
-	assert.InDelta(t, l[0], lse[0], 1e-15)
+	ensure.NoError(t, err)
+	expect.InDelta(t, l[0], lse[0], 1e-15)
 }

@@ -5,10 +5,9 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/internal/elem"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
@@ -75,12 +74,12 @@ func TestTiledMatchesDirect(t *testing.T) {
 		}
 		q, k, v := randCase(r, s)
 		wantO, wantL, err := Forward(q, k, v, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		block := 1 + r.IntN(s.Lk+1)
 		gotO, gotL, err := ForwardTiled(q, k, v, s, block, o)
-		require.NoError(t, err)
-		assert.LessOrEqual(t, golden.NormwiseRelErr(gotO, wantO), tiledBound, "trial %d %+v block %d", trial, s, block)
-		assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), tiledBound, "trial %d", trial)
+		ensure.NoError(t, err)
+		expect.LessOrEqual(t, golden.NormwiseRelErr(gotO, wantO), tiledBound, "trial %d %+v block %d", trial, s, block)
+		expect.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), tiledBound, "trial %d", trial)
 	}
 }
 
@@ -94,7 +93,7 @@ func TestMergeSplitsKeys(t *testing.T) {
 	for _, layout := range []Layout{HeadsMajor, SeqMajor} {
 		o := Options{Layout: layout, Mask: mask.Causal(), Sinks: sinks}
 		want, wantL, err := Forward(q, k, v, s, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for cut := 0; cut <= s.Lk; cut++ {
 			hideB := make([]float64, s.Lq*s.Lk)
 			hideA := make([]float64, s.Lq*s.Lk)
@@ -112,19 +111,19 @@ func TestMergeSplitsKeys(t *testing.T) {
 			ob := o
 			ob.Bias, ob.BiasBatch, ob.BiasHeads, ob.Sinks = hideB, 1, 1, nil // the sink goes with part A only
 			outA, lseA, err := Forward(q, k, v, s, oa)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			outB, lseB, err := Forward(q, k, v, s, ob)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			got, gotL, err := Merge(outA, lseA, outB, lseB, s.Dv)
-			require.NoError(t, err)
-			assert.LessOrEqual(t, golden.NormwiseRelErr(got, want), tiledBound, "%v cut %d", layout, cut)
-			assert.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), tiledBound, "%v cut %d", layout, cut)
+			ensure.NoError(t, err)
+			expect.LessOrEqual(t, golden.NormwiseRelErr(got, want), tiledBound, "%v cut %d", layout, cut)
+			expect.LessOrEqual(t, golden.NormwiseRelErr(gotL, wantL), tiledBound, "%v cut %d", layout, cut)
 			// Commutative: exactly, since the formula is symmetric in A, B
 			// except for the order of one addition of two terms.
 			got2, gotL2, err := Merge(outB, lseB, outA, lseA, s.Dv)
-			require.NoError(t, err)
-			assert.Equal(t, gotL, gotL2)
-			assert.LessOrEqual(t, golden.NormwiseRelErr(got2, got), 1e-15)
+			ensure.NoError(t, err)
+			expect.Equal(t, gotL, gotL2)
+			expect.LessOrEqual(t, golden.NormwiseRelErr(got2, got), 1e-15)
 		}
 	}
 }
@@ -137,16 +136,16 @@ func checkMergeSpecialCases[T num.Float](t *testing.T, merge func(outA, lseA, ou
 	t.Helper()
 	inf := T(math.Inf(-1))
 	o, l, err := merge([]T{0, 0}, []T{inf}, []T{0, 0}, []T{inf}, 2)
-	require.NoError(t, err)
-	assert.Equal(t, []T{0, 0}, o)
-	assert.Equal(t, []T{inf}, l)
+	ensure.NoError(t, err)
+	expect.Equal(t, []T{0, 0}, o)
+	expect.Equal(t, []T{inf}, l)
 	o, l, err = merge([]T{0.1, -0.7}, []T{3.25}, []T{0, 0}, []T{inf}, 2)
-	require.NoError(t, err)
-	assert.Equal(t, []T{0.1, -0.7}, o)
-	assert.Equal(t, []T{3.25}, l)
+	ensure.NoError(t, err)
+	expect.Equal(t, []T{0.1, -0.7}, o)
+	expect.Equal(t, []T{3.25}, l)
 	o, l, err = merge([]T{1}, []T{T(math.NaN())}, []T{1}, []T{0}, 1)
-	require.NoError(t, err)
-	assert.True(t, o[0] != o[0] && l[0] != l[0])
+	ensure.NoError(t, err)
+	expect.True(t, o[0] != o[0] && l[0] != l[0])
 }
 
 func TestMergeSpecialCases(t *testing.T) {
@@ -160,15 +159,15 @@ func TestMergeSpecialCases(t *testing.T) {
 	pa0 := elem.Exp(1 - la)
 	pa1 := elem.Exp(3 - la)
 	o, l, err := Merge([]float64{pa0, pa1, 0}, []float64{la}, []float64{0, 0, 1}, []float64{2}, 3)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	// lse = m + log(Σ e^(lse_i − m)): two correctly rounded exps, a
 	// rounded sum, a correctly rounded log and a rounded addition, each
 	// within half an ulp of its result; the error at 3.4 stays within 2
 	// ulps (the value reached is 1 ulp above the nearest float64).
 	const want = 3.4076059644443803
-	assert.InDelta(t, want, l[0], 2*(math.Nextafter(want, math.Inf(1))-want))
+	expect.InDelta(t, want, l[0], 2*(math.Nextafter(want, math.Inf(1))-want))
 	weights := []float64{0.090030573170380458, 0.66524095577482189, 0.24472847105479765}
-	assert.LessOrEqual(t, golden.NormwiseRelErr(o, weights), 1e-15)
+	expect.LessOrEqual(t, golden.NormwiseRelErr(o, weights), 1e-15)
 }
 
 // TestDecodeReproducesPrefill decodes one token at a time against a growing
@@ -203,7 +202,7 @@ func checkDecodePrefill[T num.Float](t *testing.T, r *rand.Rand,
 			full := tc.o
 			full.Mask = tc.mask
 			want, wantL, err := forward(q, k, v, s, full)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			p := &plan{s: s, layout: tc.o.Layout}
 			for pos := range L {
 				// Step pos: one query against the pos+1 cached keys.
@@ -213,14 +212,14 @@ func checkDecodePrefill[T num.Float](t *testing.T, r *rand.Rand,
 				kc := slice(p, k, s.HeadsKV, L, s.Dk, 0, pos+1)
 				vc := slice(p, v, s.HeadsKV, L, s.Dv, 0, pos+1)
 				o1, l1, err := decode(q1, kc, vc, st, pos, tc.o)
-				require.NoError(t, err)
-				require.Equal(t, slice(p, want, s.HeadsQ, L, s.Dv, pos, pos+1), o1, "step %d", pos)
-				require.Equal(t, slice(p, wantL, s.HeadsQ, L, 1, pos, pos+1), l1, "step %d", pos)
+				ensure.NoError(t, err)
+				ensure.Equal(t, slice(p, want, s.HeadsQ, L, s.Dv, pos, pos+1), o1, "step %d", pos)
+				ensure.Equal(t, slice(p, wantL, s.HeadsQ, L, 1, pos, pos+1), l1, "step %d", pos)
 				// And against the whole cache, future keys present.
 				st.Lk = L
 				o2, _, err := decode(q1, k, v, st, pos, tc.o)
-				require.NoError(t, err)
-				require.Equal(t, o1, o2, "step %d, full cache", pos)
+				ensure.NoError(t, err)
+				ensure.Equal(t, o1, o2, "step %d, full cache", pos)
 			}
 		})
 	}
@@ -258,25 +257,25 @@ func goldenMerge[T num.Float](t *testing.T, name string, bound float64, run func
 				Rows int `json:"rows"`
 				Dv   int `json:"dv"`
 			}
-			require.NoError(t, c.DecodeConfig(&cfg))
+			ensure.NoError(t, c.DecodeConfig(&cfg))
 			get := func(n string) []T {
 				x, _, err := c.Float(n)
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				return num.Convert[T](x)
 			}
 			want := func(n string) []float64 {
 				x, _, err := c.Float(n)
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				return x
 			}
 			out, lse, err := run(get("out_a"), get("lse_a"), get("out_b"), get("lse_b"), cfg.Dv)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			eo := golden.NormwiseRelErr(num.Convert[float64](out), want("out"))
 			el := golden.NormwiseRelErr(num.Convert[float64](lse), want("lse"))
 			accuracy.Note(name, "out", eo)
 			accuracy.Note(name, "lse", el)
-			assert.LessOrEqual(t, eo, bound, golden.Describe(c, "out", eo, bound))
-			assert.LessOrEqual(t, el, bound, golden.Describe(c, "lse", el, bound))
+			expect.LessOrEqual(t, eo, bound, golden.Describe(c, "out", eo, bound))
+			expect.LessOrEqual(t, el, bound, golden.Describe(c, "lse", el, bound))
 		})
 	}
 }
@@ -306,17 +305,17 @@ func TestNoKeysUnderEmptyRowNaN(t *testing.T) {
 		}
 		for name, f := range forms {
 			out, lse, err := f()
-			require.NoError(t, err, name)
-			require.Len(t, out, 2*3*2, name)
+			ensure.NoError(t, err, name)
+			ensure.Len(t, out, 2*3*2, name)
 			for _, v := range out {
 				if policy == EmptyRowNaN {
-					require.True(t, math.IsNaN(v), "%s under %v: output %v, want NaN", name, policy, v)
+					ensure.True(t, math.IsNaN(v), "%s under %v: output %v, want NaN", name, policy, v)
 				} else {
-					require.Equal(t, 0.0, v, "%s under %v", name, policy)
+					ensure.Equal(t, 0.0, v, "%s under %v", name, policy)
 				}
 			}
 			for _, l := range lse {
-				require.True(t, math.IsInf(l, -1), "%s: lse %v, want −Inf", name, l)
+				ensure.True(t, math.IsInf(l, -1), "%s: lse %v, want −Inf", name, l)
 			}
 		}
 	}

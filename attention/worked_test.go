@@ -4,9 +4,8 @@ import (
 	"math"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -26,9 +25,9 @@ func TestWorkedValues(t *testing.T) {
 		// (2.3395230986533139, 3.3395230986533139).
 		s := Shape{1, 1, 1, 2, 2, 2, 2}
 		out, _, err := Forward([]float64{1, 0, 0, 1}, []float64{1, 0, 0, 1}, []float64{1, 2, 3, 4}, s, Options{})
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for i, w := range []float64{1.6604769013466861, 2.6604769013466861, 2.3395230986533139, 3.3395230986533139} {
-			assert.InDelta(t, w, out[i], ulps(w, 2), "element %d", i)
+			expect.InDelta(t, w, out[i], ulps(w, 2), "element %d", i)
 		}
 	})
 	t.Run("online softmax", func(t *testing.T) {
@@ -48,10 +47,10 @@ func TestWorkedValues(t *testing.T) {
 			} else {
 				out, lse, err = ForwardTiled(q, k, v, s, block, Options{Scale: 1})
 			}
-			require.NoError(t, err)
-			assert.InDelta(t, 3.4076059644443803, lse[0], ulps(3.4, 2), "block %d", block)
+			ensure.NoError(t, err)
+			expect.InDelta(t, 3.4076059644443803, lse[0], ulps(3.4, 2), "block %d", block)
 			for j, w := range want {
-				assert.InDelta(t, w, out[j], ulps(w, 2), "block %d key %d", block, j)
+				expect.InDelta(t, w, out[j], ulps(w, 2), "block %d key %d", block, j)
 			}
 		}
 	})
@@ -61,8 +60,8 @@ func TestWorkedValues(t *testing.T) {
 		// one key the log-sum-exp is the capped logit itself.
 		s := Shape{1, 1, 1, 1, 1, 1, 1}
 		_, lse, err := Forward([]float64{10}, []float64{10}, []float64{1}, s, Options{Scale: 1, SoftCap: 30})
-		require.NoError(t, err)
-		assert.InDelta(t, 29.923739024215118, lse[0], ulps(30, 2))
+		ensure.NoError(t, err)
+		expect.InDelta(t, 29.923739024215118, lse[0], ulps(30, 2))
 	})
 	t.Run("sink", func(t *testing.T) {
 		// Sink logit σ = 0 against one key with logit 0: the key's weight
@@ -70,9 +69,9 @@ func TestWorkedValues(t *testing.T) {
 		// lse = log 2.
 		s := Shape{1, 1, 1, 1, 1, 1, 1}
 		out, lse, err := Forward([]float64{0}, []float64{0}, []float64{6}, s, Options{Sinks: []float64{0}})
-		require.NoError(t, err)
-		assert.Equal(t, 3.0, out[0])
-		assert.Equal(t, math.Ln2, lse[0])
+		ensure.NoError(t, err)
+		expect.Equal(t, 3.0, out[0])
+		expect.Equal(t, math.Ln2, lse[0])
 	})
 	t.Run("grouping", func(t *testing.T) {
 		// Ainslie et al. 2023, §2.2 and its overview figure (contiguous
@@ -87,8 +86,8 @@ func TestWorkedValues(t *testing.T) {
 		for h := range 8 {
 			cycle = append(cycle, p.kvHead(h))
 		}
-		assert.Equal(t, []int{0, 0, 0, 0, 1, 1, 1, 1}, blocks)
-		assert.Equal(t, []int{0, 1, 0, 1, 0, 1, 0, 1}, cycle)
+		expect.Equal(t, []int{0, 0, 0, 0, 1, 1, 1, 1}, blocks)
+		expect.Equal(t, []int{0, 1, 0, 1, 0, 1, 0, 1}, cycle)
 	})
 	t.Run("ALiBi", func(t *testing.T) {
 		// Press et al. 2022, §3: the bias of query i over keys 1 … i is
@@ -101,18 +100,18 @@ func TestWorkedValues(t *testing.T) {
 			v[j*4+j] = 1
 		}
 		out, _, err := Forward(make([]float64, 4), make([]float64, 4), v, s, Options{Mask: mask.Causal(), Slopes: []float64{0.5}})
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		var z float64
 		for j := range 4 {
 			z += math.Exp(-0.5 * float64(3-j))
 		}
 		for j := range 4 {
 			w := math.Exp(-0.5*float64(3-j)) / z
-			assert.InDelta(t, w, out[12+j], ulps(w, 4), "key %d", j)
+			expect.InDelta(t, w, out[12+j], ulps(w, 4), "key %d", j)
 		}
 		// Row 1 sees keys 0 and 1 only (causal).
-		assert.Zero(t, out[4+2])
-		assert.Zero(t, out[4+3])
+		expect.Zero(t, out[4+2])
+		expect.Zero(t, out[4+3])
 	})
 	t.Run("ALiBi forms after the query", func(t *testing.T) {
 		// mask.ALiBiForm: the bias is −m·d(p, j) with d = p − j (causal,
@@ -135,14 +134,14 @@ func TestWorkedValues(t *testing.T) {
 			{mask.ALiBiPastOnly, func(float64) float64 { return 0 }},
 		} {
 			out, _, err := Forward(make([]float64, 4), make([]float64, 4), v, s, Options{Slopes: []float64{0.5}, ALiBi: tc.form})
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			var z float64
 			for j := range 4 {
 				z += math.Exp(tc.logit(float64(j)))
 			}
 			for j := range 4 {
 				w := math.Exp(tc.logit(float64(j))) / z
-				assert.InDelta(t, w, out[j], ulps(w, 4), "%v: key %d", tc.form, j)
+				expect.InDelta(t, w, out[j], ulps(w, 4), "%v: key %d", tc.form, j)
 			}
 		}
 	})
@@ -156,7 +155,7 @@ func TestWorkedValues(t *testing.T) {
 			v[j*6+j] = 1
 		}
 		out, _, err := Forward(make([]float64, 6), make([]float64, 6), v, s, Options{Mask: win})
-		require.NoError(t, err)
-		assert.Equal(t, []float64{0, 0, 0, 1.0 / 3, 1.0 / 3, 1.0 / 3}, out[30:36])
+		ensure.NoError(t, err)
+		expect.Equal(t, []float64{0, 0, 0, 1.0 / 3, 1.0 / 3, 1.0 / 3}, out[30:36])
 	})
 }

@@ -23,10 +23,9 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/npy"
 )
 
@@ -83,14 +82,14 @@ func TestPythonModule(t *testing.T) {
 	cmd.Dir = "python"
 	cmd.Env = append(os.Environ(), "PLUMBCHECK_BINARY="+plumbBin, "PLUMBCHECK_REQUIRE_BINARY=1", "PYTHONDONTWRITEBYTECODE=1")
 	out, err := cmd.CombinedOutput()
-	require.NoError(t, err, "%s", out)
+	ensure.NoError(t, err, "%s", out)
 	s := string(out)
 	m := regexp.MustCompile(`(?m)^Ran (\d+) tests? in`).FindStringSubmatch(s)
-	require.NotNil(t, m, "%s", s)
+	ensure.NotNil(t, m, "%s", s)
 	n, _ := strconv.Atoi(m[1])
-	assert.GreaterOrEqual(t, n, 12, "%s", s)
-	assert.Regexp(t, `(?m)^OK$`, s, "every test passed and none was skipped")
-	assert.NotContains(t, s, "skipped")
+	expect.GreaterOrEqual(t, n, 12, "%s", s)
+	expect.Regexp(t, `(?m)^OK$`, s, "every test passed and none was skipped")
+	expect.NotContains(t, s, "skipped")
 }
 
 // denseFloat32 is every float32 whose top 16 bits are any of the 65536
@@ -175,7 +174,7 @@ func TestPythonEncodingsMatchCompare(t *testing.T) {
 	cmd := exec.Command(python, "-c", encodeScript, dir)
 	cmd.Env = append(os.Environ(), "PYTHONDONTWRITEBYTECODE=1")
 	out, err := cmd.CombinedOutput()
-	require.NoError(t, err, "%s", out)
+	ensure.NoError(t, err, "%s", out)
 
 	for _, f := range []compare.Format{compare.BFloat16, compare.E4M3, compare.E5M2} {
 		for _, sat := range []bool{false, true} {
@@ -192,7 +191,7 @@ func TestPythonEncodingsMatchCompare(t *testing.T) {
 				{"64", func(i int) float64 { return x64[i] }, len(x64)},
 			} {
 				got := patterns(t, filepath.Join(dir, fmt.Sprintf("enc_%v_%d_%s.npy", f, b2i(sat), in.name)))
-				require.Len(t, got, in.n)
+				ensure.Len(t, got, in.n)
 				bad := 0
 				for i, g := range got {
 					if want := enc(in.x(i)); g != want {
@@ -202,16 +201,16 @@ func TestPythonEncodingsMatchCompare(t *testing.T) {
 						bad++
 					}
 				}
-				assert.Zero(t, bad, "%v saturating=%v, float%s sample: %d of %d differ", f, sat, in.name, bad, in.n)
+				expect.Zero(t, bad, "%v saturating=%v, float%s sample: %d of %d differ", f, sat, in.name, bad, in.n)
 			}
 		}
 		a, err := npy.ReadFile(filepath.Join(dir, fmt.Sprintf("dec_%v.npy", f)))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		dec := a.Values.([]float64)
-		require.Len(t, dec, 1<<f.Width())
+		ensure.Len(t, dec, 1<<f.Width())
 		for b, v := range dec {
 			want, err := f.Decode(uint64(b))
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			if math.Float64bits(v) != math.Float64bits(want) && !(math.IsNaN(v) && math.IsNaN(want)) {
 				t.Errorf("%v: decode(%#x) = %v; want %v", f, b, v, want)
 			}
@@ -230,7 +229,7 @@ func b2i(b bool) int {
 func patterns(t *testing.T, path string) []uint64 {
 	t.Helper()
 	a, err := npy.ReadFile(path)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var out []uint64
 	switch v := a.Values.(type) {
 	case []uint16:
@@ -250,8 +249,8 @@ func patterns(t *testing.T, path string) []uint64 {
 func write(t *testing.T, path string, dt npy.DType, shape []int, values any) {
 	t.Helper()
 	a, err := npy.New(dt, shape, values)
-	require.NoError(t, err)
-	require.NoError(t, npy.WriteFile(path, a))
+	ensure.NoError(t, err)
+	ensure.NoError(t, npy.WriteFile(path, a))
 }
 
 // compileC compiles the test program with the compiler cc (C99, or C++ as
@@ -264,7 +263,7 @@ func compileC(t *testing.T, cc string, cxx bool) string {
 		args = append([]string{"-x", "c++", "-std=c++11"}, args[1:]...)
 	}
 	out, err := exec.Command(cc, args...).CombinedOutput()
-	require.NoError(t, err, "%s %s\n%s", cc, strings.Join(args, " "), out)
+	ensure.NoError(t, err, "%s %s\n%s", cc, strings.Join(args, " "), out)
 	return bin
 }
 
@@ -283,7 +282,7 @@ func TestCHeader(t *testing.T) {
 		t.Run(lang, func(t *testing.T) {
 			dir := t.TempDir()
 			out, err := exec.Command(bin, dir).CombinedOutput()
-			require.NoError(t, err, "%s", out)
+			ensure.NoError(t, err, "%s", out)
 			checkCFiles(t, dir)
 		})
 	}
@@ -312,18 +311,18 @@ func checkCFiles(t *testing.T, dir string) {
 	} {
 		t.Run(c.file, func(t *testing.T) {
 			gotBytes, err := os.ReadFile(filepath.Join(dir, c.file))
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			a, err := npy.New(c.dt, c.shape, c.values)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			var want bytes.Buffer
-			require.NoError(t, npy.Write(&want, a))
-			assert.Equal(t, want.Bytes(), gotBytes, "the bytes npy.Write (and numpy.save) write")
-			assert.Equal(t, 0, (bytes.IndexByte(gotBytes, '\n')+1)%64, "the data start on a multiple of 64 bytes")
+			ensure.NoError(t, npy.Write(&want, a))
+			expect.Equal(t, want.Bytes(), gotBytes, "the bytes npy.Write (and numpy.save) write")
+			expect.Equal(t, 0, (bytes.IndexByte(gotBytes, '\n')+1)%64, "the data start on a multiple of 64 bytes")
 			r, err := npy.ReadFile(filepath.Join(dir, c.file))
-			require.NoError(t, err)
-			assert.Equal(t, c.dt, r.DType)
-			assert.Equal(t, c.shape, r.Shape)
-			assert.Equal(t, c.values, r.Values)
+			ensure.NoError(t, err)
+			expect.Equal(t, c.dt, r.DType)
+			expect.Equal(t, c.shape, r.Shape)
+			expect.Equal(t, c.values, r.Values)
 		})
 	}
 
@@ -339,22 +338,22 @@ for f in sys.argv[1:]:
         sys.exit(f + ": numpy.save writes other bytes")
 `, filepath.Join(dir, "f64.npy"), filepath.Join(dir, "f32.npy"), filepath.Join(dir, "f16.npy"), filepath.Join(dir, "bf16.npy"),
 			filepath.Join(dir, "fp8.npy"), filepath.Join(dir, "scalar.npy"), filepath.Join(dir, "empty.npy"), filepath.Join(dir, "big.npy")).CombinedOutput()
-		assert.NoError(t, err, "%s", out)
+		expect.NoError(t, err, "%s", out)
 	}
 
 	// The roundings on the dense sample.
 	sample := denseFloat32()
 	a, err := npy.ReadFile(filepath.Join(dir, "sample_f32.npy"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	x := a.Values.([]float32)
-	require.Len(t, x, len(sample))
+	ensure.Len(t, x, len(sample))
 	for i, u := range sample {
-		require.Equal(t, u, math.Float32bits(x[i]), "sample element %d", i)
+		ensure.Equal(t, u, math.Float32bits(x[i]), "sample element %d", i)
 	}
 	for _, f := range []compare.Format{compare.BFloat16, compare.Binary16} {
 		name := map[compare.Format]string{compare.BFloat16: "sample_bf16.npy", compare.Binary16: "sample_f16.npy"}[f]
 		got := patterns16(t, filepath.Join(dir, name))
-		require.Len(t, got, len(x))
+		ensure.Len(t, got, len(x))
 		bad := 0
 		for i, g := range got {
 			if want := f.Encode(float64(x[i])); uint64(g) != want {
@@ -364,7 +363,7 @@ for f in sys.argv[1:]:
 				bad++
 			}
 		}
-		assert.Zero(t, bad, "%v: %d of %d differ", f, bad, len(x))
+		expect.Zero(t, bad, "%v: %d of %d differ", f, bad, len(x))
 	}
 
 	// plumb reads them: each file against the values it must hold, exactly.
@@ -387,27 +386,27 @@ for f in sys.argv[1:]:
 			args = append(args, "-format", c.format)
 		}
 		o, e, code := runPlumb(t, append(args, ref, filepath.Join(dir, c.file))...)
-		assert.Equal(t, 0, code, "plumb %v\n%s%s", args, o, e)
-		assert.Contains(t, o, "verdict: PASS", c.file)
+		expect.Equal(t, 0, code, "plumb %v\n%s%s", args, o, e)
+		expect.Contains(t, o, "verdict: PASS", c.file)
 		// One value changed fails: the diff can tell.
 		wrong := append([]float64(nil), c.ref...)
 		wrong[0] = 0.5 + wrong[0]
 		write(t, ref, npy.Float64, c.shape, wrong)
 		_, _, code = runPlumb(t, append(args, ref, filepath.Join(dir, c.file))...)
-		assert.Equal(t, 1, code, "%s against a changed reference", c.file)
+		expect.Equal(t, 1, code, "%s against a changed reference", c.file)
 	}
 	// And as the inputs and the candidate of plumb check: relu of values
 	// ≥ 0 is the values.
 	cfg := filepath.Join(dir, "relu.json")
-	require.NoError(t, os.WriteFile(cfg, []byte(`{"version": 1, "function": "relu"}`), 0o644))
+	ensure.NoError(t, os.WriteFile(cfg, []byte(`{"version": 1, "function": "relu"}`), 0o644))
 	o, e, code := runPlumb(t, "check", "-quiet", "activation", "-config", cfg, "x="+filepath.Join(dir, "big.npy"), "-got", "y="+filepath.Join(dir, "big.npy"))
-	assert.Equal(t, 0, code, "%s%s", o, e)
-	assert.Contains(t, o, "candidate format float32")
+	expect.Equal(t, 0, code, "%s%s", o, e)
+	expect.Contains(t, o, "candidate format float32")
 }
 
 func patterns16(t *testing.T, path string) []uint16 {
 	a, err := npy.ReadFile(path)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	switch v := a.Values.(type) {
 	case []uint16:
 		return v
@@ -454,9 +453,9 @@ func runPlumb(t *testing.T, args ...string) (string, string, int) {
 func readmeSection(t *testing.T) map[string][]string {
 	t.Helper()
 	b, err := os.ReadFile("../README.md")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	_, sec, ok := strings.Cut(string(b), "<!-- bindings:")
-	require.True(t, ok, "README.md has no bindings marker")
+	ensure.True(t, ok, "README.md has no bindings marker")
 	sec, _, _ = strings.Cut(sec, "\n## ")
 	blocks := map[string][]string{}
 	for _, m := range regexp.MustCompile("(?ms)^```(\\w+)\n(.*?)^```$").FindAllStringSubmatch(sec, -1) {
@@ -487,12 +486,12 @@ func numbersAsPattern(text string) *regexp.Regexp {
 // files.
 func TestReadmeBindings(t *testing.T) {
 	blocks := readmeSection(t)
-	require.Len(t, blocks["sh"], 2)
-	require.Len(t, blocks["python"], 2)
-	require.Len(t, blocks["text"], 1)
-	require.Len(t, blocks["c"], 1)
+	ensure.Len(t, blocks["sh"], 2)
+	ensure.Len(t, blocks["python"], 2)
+	ensure.Len(t, blocks["text"], 1)
+	ensure.Len(t, blocks["c"], 1)
 	mod, err := os.ReadFile("../go.mod")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	module := strings.Fields(strings.SplitN(string(mod), "\n", 2)[0])[1]
 	dir := t.TempDir()
 
@@ -505,31 +504,31 @@ func TestReadmeBindings(t *testing.T) {
 		}
 		switch f[0] {
 		case "go":
-			assert.Equal(t, []string{"go", "install", module + "/cmd/plumb@latest"}, f, "the install line")
+			expect.Equal(t, []string{"go", "install", module + "/cmd/plumb@latest"}, f, "the install line")
 		case "plumb":
 			cmd := exec.Command(plumbBin, f[1:]...)
 			cmd.Dir = dir
 			out, err := cmd.CombinedOutput()
-			require.NoError(t, err, "%s\n%s", line, out)
+			ensure.NoError(t, err, "%s\n%s", line, out)
 			if f[1] == "check" {
-				assert.Contains(t, string(out), "verdict: PASS", line)
+				expect.Contains(t, string(out), "verdict: PASS", line)
 			} else {
-				assert.True(t, strings.HasPrefix(string(out), "plumb "), "%s", out)
+				expect.True(t, strings.HasPrefix(string(out), "plumb "), "%s", out)
 			}
 		case "cc":
 			cc, err := exec.LookPath("cc")
 			need(t, "a C compiler cc (apt-get install gcc)", err)
 			abs, err := filepath.Abs("c")
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			cmd := exec.Command(cc, strings.Fields(strings.ReplaceAll(strings.Join(f[1:], " "), "bindings/c", abs))...)
 			cmd.Dir = dir
 			out, err := cmd.CombinedOutput()
-			require.NoError(t, err, "%s\n%s", line, out)
+			ensure.NoError(t, err, "%s\n%s", line, out)
 		case "$PWD/harness":
 			cmd := exec.Command(filepath.Join(dir, "harness"))
 			cmd.Dir = dir
 			out, err := cmd.CombinedOutput()
-			require.NoError(t, err, "%s\n%s", line, out)
+			ensure.NoError(t, err, "%s\n%s", line, out)
 		default:
 			t.Fatalf("a README line this test cannot run: %q", line)
 		}
@@ -542,7 +541,7 @@ func TestReadmeBindings(t *testing.T) {
 	t.Run("python", func(t *testing.T) {
 		needNumpy(t)
 		abs, err := filepath.Abs("python")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		// The port's tests, each called; then the failing port, whose
 		// message must be the one shown.
 		script := blocks["python"][0] + `
@@ -562,14 +561,14 @@ else:
 		cmd.Dir = dir
 		cmd.Env = append(os.Environ(), "PYTHONPATH="+abs, "PLUMBCHECK_BINARY="+plumbBin, "PYTHONDONTWRITEBYTECODE=1")
 		out, err := cmd.CombinedOutput()
-		require.NoError(t, err, "%s", out)
+		ensure.NoError(t, err, "%s", out)
 		first, msg, ok := strings.Cut(string(out), "\n")
-		require.True(t, ok, "%s", out)
-		assert.Equal(t, "ran 2 tests", first)
-		assert.Regexp(t, numbersAsPattern(strings.TrimSpace(blocks["text"][0])), strings.TrimSpace(msg))
+		ensure.True(t, ok, "%s", out)
+		expect.Equal(t, "ran 2 tests", first)
+		expect.Regexp(t, numbersAsPattern(strings.TrimSpace(blocks["text"][0])), strings.TrimSpace(msg))
 	})
 	t.Run("c", func(t *testing.T) {
-		require.NoError(t, os.WriteFile(filepath.Join(dir, "harness.c"), []byte(blocks["c"][0]), 0o644))
+		ensure.NoError(t, os.WriteFile(filepath.Join(dir, "harness.c"), []byte(blocks["c"][0]), 0o644))
 		for _, l := range strings.Split(blocks["sh"][1], "\n") {
 			run(t, l)
 		}

@@ -6,9 +6,9 @@ import (
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
-	"github.com/stretchr/testify/assert"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect"
 )
 
 // recorder is a testing.TB that records failures instead of failing.
@@ -47,16 +47,16 @@ func TestCheck(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			rec := &recorder{TB: t}
 			r, pass := compare.Check(rec, ref, tc.got, tc.shape, tc.f, tc.tol)
-			assert.Equal(t, tc.pass, pass)
-			assert.Len(t, rec.errors, tc.errors)
-			assert.Len(t, rec.fatals, tc.fatals)
+			expect.Equal(t, tc.pass, pass)
+			expect.Len(t, rec.errors, tc.errors)
+			expect.Len(t, rec.fatals, tc.fatals)
 			if tc.fatals > 0 {
-				assert.Nil(t, r)
+				expect.Nil(t, r)
 			} else {
-				assert.NotNil(t, r)
+				expect.NotNil(t, r)
 			}
 			for _, m := range append(rec.errors, rec.fatals...) {
-				assert.Contains(t, m, tc.contains)
+				expect.Contains(t, m, tc.contains)
 			}
 		})
 	}
@@ -101,8 +101,8 @@ func TestApprox(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			assert.Equal(t, tc.want, cmp.Equal(tc.x, tc.y, tc.opt))
-			assert.Equal(t, tc.want, cmp.Equal(tc.y, tc.x, tc.opt), "symmetric")
+			expect.Equal(t, tc.want, cmp.Equal(tc.x, tc.y, tc.opt))
+			expect.Equal(t, tc.want, cmp.Equal(tc.y, tc.x, tc.opt), "symmetric")
 		})
 	}
 }

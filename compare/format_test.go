@@ -6,9 +6,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -49,17 +48,17 @@ func TestFormatParameters(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.f.String(), func(t *testing.T) {
-			assert.True(t, tc.f.Valid())
-			assert.Equal(t, tc.width, tc.f.Width())
-			assert.Equal(t, tc.prec, tc.f.Precision())
-			assert.Equal(t, tc.inf, tc.f.HasInf())
-			assert.Equal(t, tc.max, tc.f.Max())
-			assert.Equal(t, tc.minNormal, tc.f.MinNormal())
-			assert.Equal(t, tc.minSub, tc.f.MinSubnormal())
-			assert.Equal(t, pow2(-tc.prec), tc.f.UnitRoundoff())
+			expect.True(t, tc.f.Valid())
+			expect.Equal(t, tc.width, tc.f.Width())
+			expect.Equal(t, tc.prec, tc.f.Precision())
+			expect.Equal(t, tc.inf, tc.f.HasInf())
+			expect.Equal(t, tc.max, tc.f.Max())
+			expect.Equal(t, tc.minNormal, tc.f.MinNormal())
+			expect.Equal(t, tc.minSub, tc.f.MinSubnormal())
+			expect.Equal(t, pow2(-tc.prec), tc.f.UnitRoundoff())
 		})
 	}
-	assert.Len(t, Formats(), int(numFormats))
+	expect.Len(t, Formats(), int(numFormats))
 }
 
 func TestSpecialPatterns(t *testing.T) {
@@ -99,21 +98,21 @@ func TestSpecialPatterns(t *testing.T) {
 	}
 	for _, tc := range tests {
 		got, err := tc.f.Decode(tc.bits)
-		require.NoError(t, err)
-		assert.Truef(t, same(tc.want, got), "%v.Decode(%#x) = %v, want %v", tc.f, tc.bits, got, tc.want)
+		ensure.NoError(t, err)
+		expect.Truef(t, same(tc.want, got), "%v.Decode(%#x) = %v, want %v", tc.f, tc.bits, got, tc.want)
 	}
 }
 
 func TestDecodeOutOfRange(t *testing.T) {
 	for _, f := range Formats()[1:] {
 		_, err := f.Decode(1 << f.Width())
-		assert.ErrorIs(t, err, ErrBits, f.String())
+		expect.ErrorIs(t, err, ErrBits, f.String())
 	}
 	_, err := BFloat16.Decode(0x1ffff)
-	assert.EqualError(t, err, "compare: bit pattern out of range: Format.Decode: b = 0x1ffff; want at most the 16 bits of bfloat16")
+	expect.EqualError(t, err, "compare: bit pattern out of range: Format.Decode: b = 0x1ffff; want at most the 16 bits of bfloat16")
 	_, err = Format(99).Decode(0)
-	assert.ErrorIs(t, err, ErrFormat)
-	assert.EqualError(t, err, "compare: invalid number format: Format.Decode: Format = 99; want one of float64, float32, binary16, bfloat16, e4m3, e5m2")
+	expect.ErrorIs(t, err, ErrFormat)
+	expect.EqualError(t, err, "compare: invalid number format: Format.Decode: Format = 99; want one of float64, float32, binary16, bfloat16, e4m3, e5m2")
 }
 
 // narrowFormats are the formats small enough to test exhaustively.
@@ -130,20 +129,20 @@ func TestExhaustiveRoundTrip(t *testing.T) {
 		nans := 0
 		for b := uint64(0); b < 1<<f.Width(); b++ {
 			v, err := f.Decode(b)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			if math.IsNaN(v) {
 				nans++
-				require.Equal(t, formats[f].nanBits, f.Encode(v))
+				ensure.Equal(t, formats[f].nanBits, f.Encode(v))
 				continue
 			}
-			require.Equalf(t, b, f.Encode(v), "%v: pattern %#x decodes to %v", f, b, v)
-			require.Truef(t, same(v, f.Round(v)), "%v: Round(%v)", f, v)
-			require.Truef(t, f.Contains(v), "%v: Contains(%v)", f, v)
+			ensure.Equalf(t, b, f.Encode(v), "%v: pattern %#x decodes to %v", f, b, v)
+			ensure.Truef(t, same(v, f.Round(v)), "%v: Round(%v)", f, v)
+			ensure.Truef(t, f.Contains(v), "%v: Contains(%v)", f, v)
 			if !math.IsInf(v, 0) {
-				require.Truef(t, same(v, f.RoundSaturating(v)), "%v: RoundSaturating(%v)", f, v)
+				ensure.Truef(t, same(v, f.RoundSaturating(v)), "%v: RoundSaturating(%v)", f, v)
 			}
 		}
-		assert.Equal(t, wantNaNs[f], nans, f.String())
+		expect.Equal(t, wantNaNs[f], nans, f.String())
 	}
 }
 
@@ -153,7 +152,7 @@ func positives(t *testing.T, f Format) []float64 {
 	var out []float64
 	for b := uint64(0); b < 1<<(f.Width()-1); b++ {
 		v, err := f.Decode(b)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		if !math.IsNaN(v) {
 			out = append(out, v)
 		}
@@ -172,29 +171,29 @@ func TestExhaustiveOrderAndTies(t *testing.T) {
 		vals := positives(t, f)
 		for i := 0; i+1 < len(vals); i++ {
 			a, b := vals[i], vals[i+1]
-			require.Lessf(t, a, b, "%v: patterns %d and %d", f, i, i+1)
+			ensure.Lessf(t, a, b, "%v: patterns %d and %d", f, i, i+1)
 			d, ok := f.ULPDistance(a, b)
-			require.True(t, ok)
-			require.EqualValues(t, 1, d)
+			ensure.True(t, ok)
+			ensure.EqualValues(t, 1, d)
 			if math.IsInf(b, 0) {
 				continue // the midpoint with Inf is the overflow rule, tested apart
 			}
-			require.Equalf(t, b-a, f.ULP(a), "%v: ULP(%v)", f, a)
+			ensure.Equalf(t, b-a, f.ULP(a), "%v: ULP(%v)", f, a)
 			m := a + (b-a)/2 // exact: the formats have at most 11 bits
 			even := a
 			if i%2 == 1 { // pattern i is odd, so i+1 is even
 				even = b
 			}
 			for _, s := range []float64{1, -1} {
-				require.Equalf(t, s*even, f.Round(s*m), "%v: tie %v", f, s*m)
-				require.Equalf(t, s*a, f.Round(s*math.Nextafter(m, 0)), "%v: below tie %v", f, s*m)
-				require.Equalf(t, s*b, f.Round(s*math.Nextafter(m, math.Inf(1))), "%v: above tie %v", f, s*m)
+				ensure.Equalf(t, s*even, f.Round(s*m), "%v: tie %v", f, s*m)
+				ensure.Equalf(t, s*a, f.Round(s*math.Nextafter(m, 0)), "%v: below tie %v", f, s*m)
+				ensure.Equalf(t, s*b, f.Round(s*math.Nextafter(m, math.Inf(1))), "%v: above tie %v", f, s*m)
 			}
 		}
 		// Across zero: -MinSubnormal, ±0, +MinSubnormal.
 		d, ok := f.ULPDistance(-f.MinSubnormal(), f.MinSubnormal())
-		require.True(t, ok)
-		assert.EqualValues(t, 2, d)
+		ensure.True(t, ok)
+		expect.EqualValues(t, 2, d)
 	}
 }
 
@@ -231,25 +230,25 @@ func TestOverflow(t *testing.T) {
 		{Float64, inf, inf, math.MaxFloat64},
 	}
 	for _, tc := range tests {
-		assert.Truef(t, same(tc.round, tc.f.Round(tc.x)), "%v.Round(%v) = %v, want %v", tc.f, tc.x, tc.f.Round(tc.x), tc.round)
-		assert.Truef(t, same(tc.satur8, tc.f.RoundSaturating(tc.x)), "%v.RoundSaturating(%v) = %v, want %v", tc.f, tc.x, tc.f.RoundSaturating(tc.x), tc.satur8)
+		expect.Truef(t, same(tc.round, tc.f.Round(tc.x)), "%v.Round(%v) = %v, want %v", tc.f, tc.x, tc.f.Round(tc.x), tc.round)
+		expect.Truef(t, same(tc.satur8, tc.f.RoundSaturating(tc.x)), "%v.RoundSaturating(%v) = %v, want %v", tc.f, tc.x, tc.f.RoundSaturating(tc.x), tc.satur8)
 	}
-	assert.EqualValues(t, 0b0_1111_110, E4M3.EncodeSaturating(1e9))
-	assert.EqualValues(t, 0b0_1111_111, E4M3.Encode(1e9))
-	assert.EqualValues(t, 0x7c00, Binary16.Encode(1e9))
-	assert.EqualValues(t, 0x7bff, Binary16.EncodeSaturating(1e9))
+	expect.EqualValues(t, 0b0_1111_110, E4M3.EncodeSaturating(1e9))
+	expect.EqualValues(t, 0b0_1111_111, E4M3.Encode(1e9))
+	expect.EqualValues(t, 0x7c00, Binary16.Encode(1e9))
+	expect.EqualValues(t, 0x7bff, Binary16.EncodeSaturating(1e9))
 }
 
 func TestUnderflow(t *testing.T) {
 	for _, f := range Formats()[1:] {
 		h := f.MinSubnormal() / 2
 		// Half the smallest subnormal is a tie between 0 (even) and it.
-		assert.True(t, same(0, f.Round(h)), f.String())
-		assert.True(t, same(math.Copysign(0, -1), f.Round(-h)), f.String())
-		assert.Equal(t, f.MinSubnormal(), f.Round(math.Nextafter(h, 1)), f.String())
-		assert.Equal(t, 0.0, f.Round(math.SmallestNonzeroFloat64), f.String())
+		expect.True(t, same(0, f.Round(h)), f.String())
+		expect.True(t, same(math.Copysign(0, -1), f.Round(-h)), f.String())
+		expect.Equal(t, f.MinSubnormal(), f.Round(math.Nextafter(h, 1)), f.String())
+		expect.Equal(t, 0.0, f.Round(math.SmallestNonzeroFloat64), f.String())
 		// 1.5 × MinSubnormal is a tie between patterns 1 (odd) and 2 (even).
-		assert.Equal(t, 2*f.MinSubnormal(), f.Round(1.5*f.MinSubnormal()), f.String())
+		expect.Equal(t, 2*f.MinSubnormal(), f.Round(1.5*f.MinSubnormal()), f.String())
 	}
 }
 
@@ -262,9 +261,9 @@ func TestNoDoubleRounding(t *testing.T) {
 		one := 1.0
 		mid := one + f.ULP(one)/2
 		x := mid + pow2(-40) // far below float32's resolution at 1
-		require.Equal(t, mid, float64(float32(x)), "float32 lands on the midpoint")
-		assert.Equal(t, one+f.ULP(one), f.Round(x), "%v: one step rounds up", f)
-		assert.Equal(t, one, f.Round(float64(float32(x))), "%v: through float32 the tie goes to even", f)
+		ensure.Equal(t, mid, float64(float32(x)), "float32 lands on the midpoint")
+		expect.Equal(t, one+f.ULP(one), f.Round(x), "%v: one step rounds up", f)
+		expect.Equal(t, one, f.Round(float64(float32(x))), "%v: through float32 the tie goes to even", f)
 	}
 }
 
@@ -428,31 +427,31 @@ type roundConfig struct {
 func tensor[V any](t *testing.T, c *golden.Case, name string, get func(string) (V, []int, error)) V {
 	t.Helper()
 	v, _, err := get(name)
-	require.NoError(t, err, "%s: tensor %s", c, name)
+	ensure.NoError(t, err, "%s: tensor %s", c, name)
 	return v
 }
 
 func TestRoundGolden(t *testing.T) {
 	file := golden.MustLoadFamily(t, "compare", "round")
-	require.Len(t, file.Cases, len(Formats()), "one case per format")
+	ensure.Len(t, file.Cases, len(Formats()), "one case per format")
 	var words golden.Words
 	for _, c := range file.Cases {
 		var cfg roundConfig
-		require.NoError(t, c.DecodeConfig(&cfg), c.String())
+		ensure.NoError(t, c.DecodeConfig(&cfg), c.String())
 		words.Note(cfg)
 		t.Run(c.Name, func(t *testing.T) {
 			f := cfg.Format
-			assert.Equal(t, "round_"+f.String(), c.Name)
+			expect.Equal(t, "round_"+f.String(), c.Name)
 			x, rounded, sat, ulp := tensor(t, c, "x", c.Float), tensor(t, c, "rounded", c.Float), tensor(t, c, "saturated", c.Float), tensor(t, c, "ulp", c.Float)
 			bits, bitsSat := tensor(t, c, "bits", c.Ints), tensor(t, c, "bits_saturated", c.Ints)
 			for i, v := range x {
-				assert.Truef(t, same(rounded[i], f.Round(v)), "Round(%x) = %x, want %x", v, f.Round(v), rounded[i])
-				assert.Truef(t, same(sat[i], f.RoundSaturating(v)), "RoundSaturating(%x) = %x, want %x", v, f.RoundSaturating(v), sat[i])
-				assert.Truef(t, same(ulp[i], f.ULP(v)), "ULP(%x) = %x, want %x", v, f.ULP(v), ulp[i])
+				expect.Truef(t, same(rounded[i], f.Round(v)), "Round(%x) = %x, want %x", v, f.Round(v), rounded[i])
+				expect.Truef(t, same(sat[i], f.RoundSaturating(v)), "RoundSaturating(%x) = %x, want %x", v, f.RoundSaturating(v), sat[i])
+				expect.Truef(t, same(ulp[i], f.ULP(v)), "ULP(%x) = %x, want %x", v, f.ULP(v), ulp[i])
 				// The file holds the patterns as int64: those of negative
 				// float64 values as the signed integer with the same bits.
-				assert.Equalf(t, uint64(bits[i]), f.Encode(v), "Encode(%x)", v)
-				assert.Equalf(t, uint64(bitsSat[i]), f.EncodeSaturating(v), "EncodeSaturating(%x)", v)
+				expect.Equalf(t, uint64(bits[i]), f.Encode(v), "Encode(%x)", v)
+				expect.Equalf(t, uint64(bitsSat[i]), f.EncodeSaturating(v), "EncodeSaturating(%x)", v)
 			}
 		})
 	}
@@ -484,9 +483,9 @@ func TestULP(t *testing.T) {
 		{Float64, math.SmallestNonzeroFloat64, math.SmallestNonzeroFloat64},
 	}
 	for _, tc := range tests {
-		assert.Equalf(t, tc.want, tc.f.ULP(tc.x), "%v.ULP(%v)", tc.f, tc.x)
+		expect.Equalf(t, tc.want, tc.f.ULP(tc.x), "%v.ULP(%v)", tc.f, tc.x)
 	}
-	assert.True(t, math.IsNaN(Binary16.ULP(math.NaN())))
+	expect.True(t, math.IsNaN(Binary16.ULP(math.NaN())))
 }
 
 func TestULPDistance(t *testing.T) {
@@ -513,32 +512,32 @@ func TestULPDistance(t *testing.T) {
 	}
 	for _, tc := range tests {
 		d, ok := tc.f.ULPDistance(tc.a, tc.b)
-		assert.Equalf(t, tc.ok, ok, "%v.ULPDistance(%v, %v)", tc.f, tc.a, tc.b)
-		assert.Equalf(t, tc.want, d, "%v.ULPDistance(%v, %v)", tc.f, tc.a, tc.b)
+		expect.Equalf(t, tc.ok, ok, "%v.ULPDistance(%v, %v)", tc.f, tc.a, tc.b)
+		expect.Equalf(t, tc.want, d, "%v.ULPDistance(%v, %v)", tc.f, tc.a, tc.b)
 	}
 }
 
 func TestFormatByName(t *testing.T) {
 	for _, f := range Formats() {
 		g, err := FormatByName(f.String())
-		require.NoError(t, err)
-		assert.Equal(t, f, g)
+		ensure.NoError(t, err)
+		expect.Equal(t, f, g)
 		b, err := f.MarshalText()
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		var h Format
-		require.NoError(t, h.UnmarshalText(b))
-		assert.Equal(t, f, h)
+		ensure.NoError(t, h.UnmarshalText(b))
+		expect.Equal(t, f, h)
 	}
-	assert.Equal(t, []Format{Float64, Float32, Binary16, BFloat16, E4M3, E5M2}, Formats(), "widest first, the zero value first")
+	expect.Equal(t, []Format{Float64, Float32, Binary16, BFloat16, E4M3, E5M2}, Formats(), "widest first, the zero value first")
 	var words []string
 	for _, f := range Formats() {
 		words = append(words, f.String())
-		assert.NotEmpty(t, f.Meaning())
-		assert.NoError(t, f.Check())
+		expect.NotEmpty(t, f.Meaning())
+		expect.NoError(t, f.Check())
 	}
-	assert.Equal(t, []string{"float64", "float32", "binary16", "bfloat16", "e4m3", "e5m2"}, words)
+	expect.Equal(t, []string{"float64", "float32", "binary16", "bfloat16", "e4m3", "e5m2"}, words)
 	var zero Format
-	assert.Equal(t, Float64, zero, "the zero value is Float64")
+	expect.Equal(t, Float64, zero, "the zero value is Float64")
 	// every other name FormatByName documents
 	for name, want := range map[string]Format{
 		"FLOAT16": Binary16, " bf16 ": BFloat16, "half": Binary16, "fp8e4m3": E4M3, "double": Float64,
@@ -546,40 +545,40 @@ func TestFormatByName(t *testing.T) {
 		"bf16": BFloat16, "fp8-e4m3": E4M3, "fp8e5m2": E5M2, "fp8-e5m2": E5M2,
 	} {
 		g, err := FormatByName(name)
-		require.NoError(t, err)
-		assert.Equal(t, want, g, name)
+		ensure.NoError(t, err)
+		expect.Equal(t, want, g, name)
 		b, err := g.MarshalText()
-		require.NoError(t, err)
-		assert.Equal(t, g.String(), string(b), "an alias is read, the word is written")
+		ensure.NoError(t, err)
+		expect.Equal(t, g.String(), string(b), "an alias is read, the word is written")
 	}
 	_, err := FormatByName("float8")
-	assert.ErrorIs(t, err, ErrFormat)
-	assert.Equal(t, `compare: invalid number format: FormatByName: name = "float8"; want one of float64, float32, binary16, bfloat16, e4m3, e5m2`, err.Error())
-	assert.ErrorIs(t, Format(6).Check(), ErrFormat)
+	expect.ErrorIs(t, err, ErrFormat)
+	expect.Equal(t, `compare: invalid number format: FormatByName: name = "float8"; want one of float64, float32, binary16, bfloat16, e4m3, e5m2`, err.Error())
+	expect.ErrorIs(t, Format(6).Check(), ErrFormat)
 	var h Format
-	assert.ErrorIs(t, h.UnmarshalText([]byte("int8")), ErrFormat)
+	expect.ErrorIs(t, h.UnmarshalText([]byte("int8")), ErrFormat)
 	_, err = Format(-1).MarshalText()
-	assert.ErrorIs(t, err, ErrFormat)
+	expect.ErrorIs(t, err, ErrFormat)
 }
 
 func TestInvalidFormat(t *testing.T) {
 	f := Format(17)
-	assert.False(t, f.Valid())
-	assert.Equal(t, "Format(17)", f.String())
-	assert.True(t, math.IsNaN(f.Round(1)))
-	assert.True(t, math.IsNaN(f.RoundSaturating(1)))
-	assert.True(t, math.IsNaN(f.Max()))
-	assert.True(t, math.IsNaN(f.MinNormal()))
-	assert.True(t, math.IsNaN(f.MinSubnormal()))
-	assert.True(t, math.IsNaN(f.UnitRoundoff()))
-	assert.True(t, math.IsNaN(f.ULP(1)))
-	assert.Zero(t, f.Encode(1))
-	assert.Zero(t, f.Width())
-	assert.Zero(t, f.Precision())
-	assert.False(t, f.HasInf())
-	assert.False(t, f.Contains(1))
+	expect.False(t, f.Valid())
+	expect.Equal(t, "Format(17)", f.String())
+	expect.True(t, math.IsNaN(f.Round(1)))
+	expect.True(t, math.IsNaN(f.RoundSaturating(1)))
+	expect.True(t, math.IsNaN(f.Max()))
+	expect.True(t, math.IsNaN(f.MinNormal()))
+	expect.True(t, math.IsNaN(f.MinSubnormal()))
+	expect.True(t, math.IsNaN(f.UnitRoundoff()))
+	expect.True(t, math.IsNaN(f.ULP(1)))
+	expect.Zero(t, f.Encode(1))
+	expect.Zero(t, f.Width())
+	expect.Zero(t, f.Precision())
+	expect.False(t, f.HasInf())
+	expect.False(t, f.Contains(1))
 	_, err := Diff([]float64{1}, []float64{1}, nil, Options{Format: f})
-	assert.True(t, errors.Is(err, ErrFormat))
+	expect.True(t, errors.Is(err, ErrFormat))
 }
 
 // FuzzRound checks, on any float64, properties every rounding must have:
@@ -629,21 +628,21 @@ func TestRoundSliceWidenNarrow(t *testing.T) {
 	got := Binary16.RoundSlice(x)
 	want := []float64{Binary16.Round(1.0 / 3), math.Inf(-1), math.NaN(), 0}
 	for i := range want {
-		assert.True(t, same(want[i], got[i]), "element %d", i)
+		expect.True(t, same(want[i], got[i]), "element %d", i)
 	}
-	assert.Equal(t, 1.0/3, x[0], "the input is not modified")
+	expect.Equal(t, 1.0/3, x[0], "the input is not modified")
 	// float32(0.1) widened exactly is 0.100000001490116119384765625.
-	assert.Equal(t, []float64{0.100000001490116119384765625, -2}, Widen([]float32{0.1, -2}))
-	assert.Nil(t, Widen([]float64(nil)))
+	expect.Equal(t, []float64{0.100000001490116119384765625, -2}, Widen([]float32{0.1, -2}))
+	expect.Nil(t, Widen([]float64(nil)))
 
 	// Narrow rounds as Float32.Round does: a tie to even (1 + 2⁻²⁴ to 1),
 	// above a tie up, a subnormal, beyond the largest float32 to ±Inf, NaN.
 	x = []float64{1 + 0x1p-24, 1 + 0x1p-24 + 0x1p-52, 0x1.8p-149, -0x1.ffffffp127, math.MaxFloat64, 0.1, math.NaN()}
 	n := Narrow(x)
-	assert.Equal(t, []float32{1, 1 + 0x1p-23, 0x1p-148, float32(math.Inf(-1)), float32(math.Inf(1)), 0.1}, n[:6])
-	assert.True(t, math.IsNaN(float64(n[6])))
+	expect.Equal(t, []float32{1, 1 + 0x1p-23, 0x1p-148, float32(math.Inf(-1)), float32(math.Inf(1)), 0.1}, n[:6])
+	expect.True(t, math.IsNaN(float64(n[6])))
 	for i, v := range Widen(n) {
-		assert.True(t, same(Float32.Round(x[i]), v), "element %d: Narrow gives %v, Float32.Round %v", i, v, Float32.Round(x[i]))
+		expect.True(t, same(Float32.Round(x[i]), v), "element %d: Narrow gives %v, Float32.Round %v", i, v, Float32.Round(x[i]))
 	}
-	assert.Nil(t, Narrow(nil))
+	expect.Nil(t, Narrow(nil))
 }

@@ -12,9 +12,9 @@ import (
 
 	"github.com/google/go-cmp/cmp"
 	"github.com/google/go-cmp/cmp/cmpopts"
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
 
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -23,33 +23,33 @@ func TestDiffMeasures(t *testing.T) {
 	ref := []float64{1, 2, 4, 0}
 	got := []float64{1, 2.5, 3, 0}
 	r, err := Diff(ref, got, []int{2, 2}, Options{Format: Float32})
-	require.NoError(t, err)
-	assert.Equal(t, []int{2, 2}, r.Shape)
-	assert.Equal(t, 4, r.Elements)
-	assert.Equal(t, 4, r.Finite)
-	assert.Equal(t, 1.0, r.MaxAbs)
-	assert.Equal(t, []int{1, 0}, r.MaxAbsAt)
+	ensure.NoError(t, err)
+	expect.Equal(t, []int{2, 2}, r.Shape)
+	expect.Equal(t, 4, r.Elements)
+	expect.Equal(t, 4, r.Finite)
+	expect.Equal(t, 1.0, r.MaxAbs)
+	expect.Equal(t, []int{1, 0}, r.MaxAbsAt)
 	// rel = 0.5/2 = 0.25 and 1/4 = 0.25; the first keeps the maximum.
-	assert.Equal(t, 0.25, r.MaxRel)
-	assert.Equal(t, []int{0, 1}, r.MaxRelAt)
-	assert.Equal(t, 4.0/1024, r.RelFloor) // DefaultRelFloorFactor · max|ref|
-	assert.InDelta(t, math.Sqrt(1.25/4), r.RMS, 1e-16)
-	assert.Equal(t, -0.125, r.MeanSigned)
-	assert.InDelta(t, math.Sqrt(1.25/21), r.Normwise, 1e-16)
+	expect.Equal(t, 0.25, r.MaxRel)
+	expect.Equal(t, []int{0, 1}, r.MaxRelAt)
+	expect.Equal(t, 4.0/1024, r.RelFloor) // DefaultRelFloorFactor · max|ref|
+	expect.InDelta(t, math.Sqrt(1.25/4), r.RMS, 1e-16)
+	expect.Equal(t, -0.125, r.MeanSigned)
+	expect.InDelta(t, math.Sqrt(1.25/21), r.Normwise, 1e-16)
 	// Float32 ULPs: 2 → 2.5 is 0.5 / 2^−22 = 2^21 steps; 3 → 4 is
 	// 1 / 2^−22 = 2^22 steps (3 is in the binade [2, 4)).
-	assert.Equal(t, float64(1<<22), r.MaxULPs)
-	require.Len(t, r.ULPs, 24)
-	assert.Equal(t, ULPBucket{0, 0, 2}, r.ULPs[0])
-	assert.Equal(t, ULPBucket{1 << 20, 1<<21 - 1, 0}, r.ULPs[21])
-	assert.Equal(t, ULPBucket{1 << 21, 1<<22 - 1, 1}, r.ULPs[22])
-	assert.Equal(t, ULPBucket{1 << 22, 1<<23 - 1, 1}, r.ULPs[23])
-	assert.Zero(t, r.NotInFormat)
+	expect.Equal(t, float64(1<<22), r.MaxULPs)
+	ensure.Len(t, r.ULPs, 24)
+	expect.Equal(t, ULPBucket{0, 0, 2}, r.ULPs[0])
+	expect.Equal(t, ULPBucket{1 << 20, 1<<21 - 1, 0}, r.ULPs[21])
+	expect.Equal(t, ULPBucket{1 << 21, 1<<22 - 1, 1}, r.ULPs[22])
+	expect.Equal(t, ULPBucket{1 << 22, 1<<23 - 1, 1}, r.ULPs[23])
+	expect.Zero(t, r.NotInFormat)
 	// Worst by absolute error, exact elements not listed.
-	require.Len(t, r.Worst, 2)
-	assert.Equal(t, Element{Index: []int{1, 0}, Offset: 2, Ref: 4, Got: 3, AbsErr: 1, RelErr: 0.25, ULPs: 1 << 22}, r.Worst[0])
-	assert.Equal(t, []int{0, 1}, r.Worst[1].Index)
-	assert.Nil(t, r.Verdict)
+	ensure.Len(t, r.Worst, 2)
+	expect.Equal(t, Element{Index: []int{1, 0}, Offset: 2, Ref: 4, Got: 3, AbsErr: 1, RelErr: 0.25, ULPs: 1 << 22}, r.Worst[0])
+	expect.Equal(t, []int{0, 1}, r.Worst[1].Index)
+	expect.Nil(t, r.Verdict)
 }
 
 func TestDiffNonFinite(t *testing.T) {
@@ -57,21 +57,21 @@ func TestDiffNonFinite(t *testing.T) {
 	ref := []float64{nan, inf, -inf, nan, 1, inf, 1, 2}
 	got := []float64{nan, inf, -inf, 1, nan, -inf, inf, 2}
 	r, err := Diff(ref, got, nil, Options{})
-	require.NoError(t, err)
-	assert.Equal(t, 3, r.NonFiniteMatches)
-	assert.Equal(t, 2, r.NaNMismatches)
-	assert.Equal(t, 2, r.InfMismatches)
-	assert.Equal(t, 1, r.Finite)
-	require.Len(t, r.Worst, 4) // the mismatches, in offset order
+	ensure.NoError(t, err)
+	expect.Equal(t, 3, r.NonFiniteMatches)
+	expect.Equal(t, 2, r.NaNMismatches)
+	expect.Equal(t, 2, r.InfMismatches)
+	expect.Equal(t, 1, r.Finite)
+	ensure.Len(t, r.Worst, 4) // the mismatches, in offset order
 	for k, off := range []int{3, 4, 5, 6} {
-		assert.Equal(t, off, r.Worst[k].Offset)
-		assert.True(t, math.IsInf(r.Worst[k].AbsErr, 1))
+		expect.Equal(t, off, r.Worst[k].Offset)
+		expect.True(t, math.IsInf(r.Worst[k].AbsErr, 1))
 	}
 	tol := Tolerance{Abs: 1e300}
 	r, err = Diff(ref, got, nil, Options{Tolerance: &tol})
-	require.NoError(t, err)
-	assert.False(t, r.Verdict.Pass, "a non-finite mismatch fails under any tolerance")
-	assert.Equal(t, 4, r.Verdict.Failed)
+	ensure.NoError(t, err)
+	expect.False(t, r.Verdict.Pass, "a non-finite mismatch fails under any tolerance")
+	expect.Equal(t, 4, r.Verdict.Failed)
 }
 
 func TestDiffArguments(t *testing.T) {
@@ -97,32 +97,32 @@ func TestDiffArguments(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := Diff(tc.ref, tc.got, tc.shape, tc.opt)
-			require.ErrorIs(t, err, tc.want)
-			assert.EqualError(t, err, tc.contains)
+			ensure.ErrorIs(t, err, tc.want)
+			expect.EqualError(t, err, tc.contains)
 		})
 	}
 }
 
 func TestDiffEmptyAndOptions(t *testing.T) {
 	r, err := Diff(nil, nil, nil, Options{Tolerance: &Tolerance{}})
-	require.NoError(t, err)
-	assert.Equal(t, []int{0}, r.Shape)
-	assert.True(t, r.Verdict.Pass)
-	assert.Nil(t, r.MaxAbsAt)
-	assert.Contains(t, r.String(), "0 elements")
+	ensure.NoError(t, err)
+	expect.Equal(t, []int{0}, r.Shape)
+	expect.True(t, r.Verdict.Pass)
+	expect.Nil(t, r.MaxAbsAt)
+	expect.Contains(t, r.String(), "0 elements")
 
 	ref := []float64{0, 0, 0}
 	got := []float64{0.5, 0, 0}
 	r, err = Diff(ref, got, []int{3, 1, 1}, Options{})
-	require.NoError(t, err)
-	assert.Equal(t, 1.0, r.RelFloor, "an all-zero reference has floor 1")
-	assert.Equal(t, 0.5, r.MaxRel)
-	assert.Equal(t, 0.5, r.Normwise, "a zero reference norm gives the absolute norm")
+	ensure.NoError(t, err)
+	expect.Equal(t, 1.0, r.RelFloor, "an all-zero reference has floor 1")
+	expect.Equal(t, 0.5, r.MaxRel)
+	expect.Equal(t, 0.5, r.Normwise, "a zero reference norm gives the absolute norm")
 
 	r, err = Diff(ref, got, nil, Options{RelFloor: 0.25, Worst: -1})
-	require.NoError(t, err)
-	assert.Equal(t, 2.0, r.MaxRel)
-	assert.Empty(t, r.Worst)
+	ensure.NoError(t, err)
+	expect.Equal(t, 2.0, r.MaxRel)
+	expect.Empty(t, r.Worst)
 }
 
 func TestWorstRanking(t *testing.T) {
@@ -134,23 +134,23 @@ func TestWorstRanking(t *testing.T) {
 		got[i] = ref[i] + float64(i%7)/8 // repeated exact errors: ties
 	}
 	r, err := Diff(ref, got, []int{5, 10}, Options{Worst: 8})
-	require.NoError(t, err)
-	require.Len(t, r.Worst, 8)
+	ensure.NoError(t, err)
+	ensure.Len(t, r.Worst, 8)
 	// Errors 6/8 at i = 6, 13, 20, 27, 34, 41, 48, then 5/8 at 5: ties in
 	// offset order.
 	var offs []int
 	for _, e := range r.Worst {
 		offs = append(offs, e.Offset)
-		assert.Equal(t, []int{e.Offset / 10, e.Offset % 10}, e.Index)
+		expect.Equal(t, []int{e.Offset / 10, e.Offset % 10}, e.Index)
 	}
-	assert.Equal(t, []int{6, 13, 20, 27, 34, 41, 48, 5}, offs)
+	expect.Equal(t, []int{6, 13, 20, 27, 34, 41, 48, 5}, offs)
 
 	// Under a relative tolerance the small references rank first.
 	tol := Tolerance{Rel: 1e-4}
 	r, err = Diff(ref, got, nil, Options{Tolerance: &tol, Worst: 1})
-	require.NoError(t, err)
-	assert.Equal(t, 6, r.Worst[0].Offset)
-	assert.False(t, r.Verdict.Pass)
+	ensure.NoError(t, err)
+	expect.Equal(t, 6, r.Worst[0].Offset)
+	expect.False(t, r.Verdict.Pass)
 }
 
 func TestVerdict(t *testing.T) {
@@ -180,10 +180,10 @@ func TestVerdict(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			tol := tc.tol
 			r, err := Diff(ref, tc.got, nil, Options{Format: Float32, Tolerance: &tol})
-			require.NoError(t, err)
-			assert.Equal(t, tc.pass, r.Verdict.Pass, r.String())
-			assert.Equal(t, tc.failed, r.Verdict.Failed)
-			assert.Equal(t, tc.pass, len(r.Verdict.Reasons) == 0)
+			ensure.NoError(t, err)
+			expect.Equal(t, tc.pass, r.Verdict.Pass, r.String())
+			expect.Equal(t, tc.failed, r.Verdict.Failed)
+			expect.Equal(t, tc.pass, len(r.Verdict.Reasons) == 0)
 		})
 	}
 }
@@ -192,8 +192,8 @@ func TestNotInFormat(t *testing.T) {
 	ref := []float64{1, 2, 3}
 	got := []float64{1.001, 2, 3 + pow2(-8)} // 1.001 is no bfloat16; 3 + 2^−8 is not either (ULP 2^−6)
 	r, err := Diff(ref, got, nil, Options{Format: BFloat16})
-	require.NoError(t, err)
-	assert.Equal(t, 2, r.NotInFormat)
+	ensure.NoError(t, err)
+	expect.Equal(t, 2, r.NotInFormat)
 }
 
 // TestDiffProperties checks invariants of the measures on random tensors
@@ -211,20 +211,20 @@ func TestDiffProperties(t *testing.T) {
 			got[i] = BFloat16.Round(ref[i] * (1 + 1e-2*r.NormFloat64()))
 		}
 		rep, err := Diff(ref, got, nil, Options{Format: BFloat16, Worst: 10})
-		require.NoError(t, err)
-		assert.GreaterOrEqual(t, rep.MaxAbs, rep.RMS)
-		assert.GreaterOrEqual(t, rep.RMS*(1+1e-15), math.Abs(rep.MeanSigned))
+		ensure.NoError(t, err)
+		expect.GreaterOrEqual(t, rep.MaxAbs, rep.RMS)
+		expect.GreaterOrEqual(t, rep.RMS*(1+1e-15), math.Abs(rep.MeanSigned))
 		total := 0
 		for _, b := range rep.ULPs {
 			total += b.Count
 		}
-		assert.Equal(t, rep.Finite, total)
-		assert.InEpsilon(t, golden.NormwiseRelErr(got, ref), rep.Normwise, 1e-13)
-		assert.True(t, slices.IsSortedFunc(rep.Worst, func(a, b Element) int { return -cmpFloat(a.AbsErr, b.AbsErr) }))
+		expect.Equal(t, rep.Finite, total)
+		expect.InEpsilon(t, golden.NormwiseRelErr(got, ref), rep.Normwise, 1e-13)
+		expect.True(t, slices.IsSortedFunc(rep.Worst, func(a, b Element) int { return -cmpFloat(a.AbsErr, b.AbsErr) }))
 		if len(rep.Worst) > 0 {
-			assert.Equal(t, rep.MaxAbs, rep.Worst[0].AbsErr)
+			expect.Equal(t, rep.MaxAbs, rep.Worst[0].AbsErr)
 		}
-		assert.Zero(t, rep.NotInFormat)
+		expect.Zero(t, rep.NotInFormat)
 	}
 }
 
@@ -244,9 +244,9 @@ func TestReportJSON(t *testing.T) {
 	got := []float64{1, 2.25, 3, 4, inf, 0.5}
 	tol := Tolerance{Abs: 0.1, MaxNormwise: 0.2, Basis: "explicit"}
 	r, err := Diff(ref, got, []int{3, 2}, Options{Format: E5M2, Tolerance: &tol})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	b, err := json.Marshal(r)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 
 	// The keys are part of the API: fixed names, fixed order.
 	var keys []string
@@ -269,24 +269,24 @@ func TestReportJSON(t *testing.T) {
 				keys = append(keys, v)
 				// skip the value
 				var skip json.RawMessage
-				require.NoError(t, dec.Decode(&skip))
+				ensure.NoError(t, dec.Decode(&skip))
 			}
 		}
 	}
-	assert.Equal(t, []string{"shape", "elements", "format", "finite_pairs", "max_abs_error", "max_abs_error_at",
+	expect.Equal(t, []string{"shape", "elements", "format", "finite_pairs", "max_abs_error", "max_abs_error_at",
 		"max_rel_error", "max_rel_error_at", "rel_error_floor", "rms_error", "mean_signed_error", "normwise_rel_error",
 		"max_ulps", "ulp_histogram", "not_in_format", "nan_mismatches", "inf_mismatches", "nonfinite_matches",
 		"worst", "tolerance", "verdict"}, keys)
-	assert.Contains(t, string(b), `"format":"e5m2"`)
-	assert.Contains(t, string(b), `"reference":"nan"`)
+	expect.Contains(t, string(b), `"format":"e5m2"`)
+	expect.Contains(t, string(b), `"reference":"nan"`)
 
 	var back Report
-	require.NoError(t, json.Unmarshal(b, &back))
+	ensure.NoError(t, json.Unmarshal(b, &back))
 	if d := cmp.Diff(r, &back, cmpopts.EquateNaNs()); d != "" {
 		t.Errorf("JSON round trip (-before +after):\n%s", d)
 	}
-	assert.Error(t, json.Unmarshal([]byte(`{"surprise":1}`), &back))
-	assert.Error(t, json.Unmarshal([]byte(`{"format":"int4"}`), &back))
+	expect.Error(t, json.Unmarshal([]byte(`{"surprise":1}`), &back))
+	expect.Error(t, json.Unmarshal([]byte(`{"format":"int4"}`), &back))
 }
 
 func TestReportText(t *testing.T) {
@@ -294,11 +294,11 @@ func TestReportText(t *testing.T) {
 	got := []float64{1, 2.5, 3, 4}
 	tol := Tolerance{Abs: 0.1, Basis: "explicit"}
 	r, err := Diff(ref, got, []int{2, 2}, Options{Format: BFloat16, Tolerance: &tol})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var sb strings.Builder
-	require.NoError(t, r.WriteText(&sb))
+	ensure.NoError(t, r.WriteText(&sb))
 	s := sb.String()
-	assert.Equal(t, r.String(), s)
+	expect.Equal(t, r.String(), s)
 	for _, want := range []string{
 		"4 elements, shape [2 2], candidate format bfloat16",
 		"max abs error       0.5",
@@ -313,16 +313,16 @@ func TestReportText(t *testing.T) {
 		"basis: explicit",
 		"verdict: FAIL: 1 NaN and 0 Inf mismatches; 1 of 4 elements exceed the elementwise tolerance",
 	} {
-		assert.Contains(t, s, want)
+		expect.Contains(t, s, want)
 	}
-	assert.ErrorIs(t, r.WriteText(failWriter{}), errWrite)
+	expect.ErrorIs(t, r.WriteText(failWriter{}), errWrite)
 
 	// Without a tolerance the worst elements are ranked by absolute error.
 	r, err = Diff(ref, got, []int{2, 2}, Options{Format: BFloat16})
-	require.NoError(t, err)
-	assert.Contains(t, r.String(), "worst 2 elements, ranked by absolute error |got − ref| (NaN and Inf mismatches first):\n"+
+	ensure.NoError(t, err)
+	expect.Contains(t, r.String(), "worst 2 elements, ranked by absolute error |got − ref| (NaN and Inf mismatches first):\n"+
 		"  index  reference  candidate  abs error  rel error  ULPs\n")
-	assert.NotContains(t, r.String(), "× tol")
+	expect.NotContains(t, r.String(), "× tol")
 }
 
 // A part of the tolerance that takes no part in the test reads "not
@@ -339,10 +339,10 @@ func TestToleranceWords(t *testing.T) {
 		{Tolerance{MaxNormwise: 1e-6}, "abs 0 (equal values), rel not used, ULPs not used, normwise 1e-06"},
 		{Tolerance{Abs: 1, Rel: 2, ULPs: 3, MaxNormwise: 4}, "abs 1, rel 2, ULPs 3, normwise 4"},
 	} {
-		assert.Equal(t, tc.want, tc.tol.words())
+		expect.Equal(t, tc.want, tc.tol.words())
 		r, err := Diff([]float64{1}, []float64{1}, nil, Options{Tolerance: &tc.tol})
-		require.NoError(t, err)
-		assert.Contains(t, r.String(), "\ntolerance: "+tc.want+"\n")
+		ensure.NoError(t, err)
+		expect.Contains(t, r.String(), "\ntolerance: "+tc.want+"\n")
 	}
 }
 
@@ -356,25 +356,25 @@ func TestReportTextWidth(t *testing.T) {
 		"+ one rounding (0.01562, 0.003906); the yardstick itself has 1 NaN/Inf mismatches"
 	tol := Tolerance{Abs: 0.1, MaxNormwise: 1e-3, Basis: basis}
 	r, err := Diff(ref, got, []int{2, 3}, Options{Format: BFloat16, Tolerance: &tol})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	s := r.String()
 	for _, l := range strings.Split(s, "\n") {
-		assert.LessOrEqual(t, utf8.RuneCountInString(l), TextWidth, "%q", l)
+		expect.LessOrEqual(t, utf8.RuneCountInString(l), TextWidth, "%q", l)
 	}
-	assert.Contains(t, s, "\n  basis: yardstick: bfloat16 inputs, float32 arithmetic, bfloat16 output: 2 × (max abs 0.01172,\n         normwise")
+	expect.Contains(t, s, "\n  basis: yardstick: bfloat16 inputs, float32 arithmetic, bfloat16 output: 2 × (max abs 0.01172,\n         normwise")
 	joined := strings.Join(strings.Fields(s), " ")
-	assert.Contains(t, joined, "basis: "+basis)
-	assert.Contains(t, joined, "verdict: FAIL: "+strings.Join(r.Verdict.Reasons, "; "))
-	require.Len(t, r.Verdict.Reasons, 3)
+	expect.Contains(t, joined, "basis: "+basis)
+	expect.Contains(t, joined, "verdict: FAIL: "+strings.Join(r.Verdict.Reasons, "; "))
+	ensure.Len(t, r.Verdict.Reasons, 3)
 
 	var b bytes.Buffer
 	WrapText(&b, "> ", "  ", strings.Repeat("x", 120)+" y")
-	assert.Equal(t, "> "+strings.Repeat("x", 120)+"\n  y\n", b.String(), "a long word stays whole")
+	expect.Equal(t, "> "+strings.Repeat("x", 120)+"\n  y\n", b.String(), "a long word stays whole")
 }
 
 type failWriter struct{}
 
-var errWrite = assert.AnError
+var errWrite = expect.AnError
 
 func (failWriter) Write([]byte) (int, error) { return 0, errWrite }
 
@@ -433,16 +433,16 @@ func leUint64(b []byte) uint64 {
 func TestDiffExtremeMagnitudes(t *testing.T) {
 	for _, s := range []float64{1e200, 1e-200} {
 		r, err := Diff([]float64{s, s}, []float64{1.5 * s, s}, nil, Options{})
-		require.NoError(t, err)
-		assert.InEpsilon(t, 0.5*s/math.Sqrt2, r.RMS, 1e-15)
-		assert.InEpsilon(t, 0.5/math.Sqrt2, r.Normwise, 1e-15)
-		assert.InEpsilon(t, 0.25*s, r.MeanSigned, 1e-15)
+		ensure.NoError(t, err)
+		expect.InEpsilon(t, 0.5*s/math.Sqrt2, r.RMS, 1e-15)
+		expect.InEpsilon(t, 0.5/math.Sqrt2, r.Normwise, 1e-15)
+		expect.InEpsilon(t, 0.25*s, r.MeanSigned, 1e-15)
 	}
 	// An error that overflows float64 is +Inf, not NaN.
 	r, err := Diff([]float64{-math.MaxFloat64}, []float64{math.MaxFloat64}, nil, Options{})
-	require.NoError(t, err)
-	assert.True(t, math.IsInf(r.MaxAbs, 1))
-	assert.True(t, math.IsInf(r.RMS, 1))
+	ensure.NoError(t, err)
+	expect.True(t, math.IsInf(r.MaxAbs, 1))
+	expect.True(t, math.IsInf(r.RMS, 1))
 }
 
 // TestDiffNearMax: with values at ±MaxFloat64 a difference, a norm or a
@@ -472,21 +472,21 @@ func TestDiffNearMax(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			r, err := Diff(tc.ref, tc.got, nil, Options{})
-			require.NoError(t, err)
-			assert.Equal(t, tc.normwise, r.Normwise)
-			assert.InEpsilon(t, tc.normwise, golden.NormwiseRelErr(scaleAll(tc.got, 0.25), scaleAll(tc.ref, 0.25)), 1e-15,
+			ensure.NoError(t, err)
+			expect.Equal(t, tc.normwise, r.Normwise)
+			expect.InEpsilon(t, tc.normwise, golden.NormwiseRelErr(scaleAll(tc.got, 0.25), scaleAll(tc.ref, 0.25)), 1e-15,
 				"the same quotient on the data scaled by 1/4, where nothing overflows")
 			if math.IsInf(tc.rms, 0) {
-				assert.Equal(t, tc.rms, r.RMS)
+				expect.Equal(t, tc.rms, r.RMS)
 			} else {
-				assert.InEpsilon(t, tc.rms, r.RMS, 1e-15)
+				expect.InEpsilon(t, tc.rms, r.RMS, 1e-15)
 			}
 			if math.IsInf(tc.signed, 0) || tc.signed == 0 {
-				assert.Equal(t, tc.signed, r.MeanSigned)
+				expect.Equal(t, tc.signed, r.MeanSigned)
 			} else {
-				assert.InEpsilon(t, tc.signed, r.MeanSigned, 1e-15)
+				expect.InEpsilon(t, tc.signed, r.MeanSigned, 1e-15)
 			}
-			assert.False(t, math.IsNaN(r.MaxAbs) || math.IsNaN(r.MaxRel))
+			expect.False(t, math.IsNaN(r.MaxAbs) || math.IsNaN(r.MaxRel))
 		})
 	}
 
@@ -498,13 +498,13 @@ func TestDiffNearMax(t *testing.T) {
 		pass bool
 	}{{0, true}, {3, true}, {1.5, false}} {
 		r, err := Diff(ref, got, nil, Options{Tolerance: &Tolerance{Rel: 2, MaxNormwise: tc.max}})
-		require.NoError(t, err)
-		assert.Equal(t, tc.pass, r.Verdict.Pass, "MaxNormwise %v: %s", tc.max, r)
+		ensure.NoError(t, err)
+		expect.Equal(t, tc.pass, r.Verdict.Pass, "MaxNormwise %v: %s", tc.max, r)
 	}
 	// A reference norm beyond float64 must not make the quotient 0.
 	r, err := Diff([]float64{M, M}, []float64{M / 2, M / 2}, nil, Options{Tolerance: &Tolerance{Rel: 1, MaxNormwise: 0.1}})
-	require.NoError(t, err)
-	assert.False(t, r.Verdict.Pass, r.String())
+	ensure.NoError(t, err)
+	expect.False(t, r.Verdict.Pass, r.String())
 }
 
 func scaleAll(x []float64, s float64) []float64 {
@@ -533,12 +533,12 @@ func TestVerdictNaNMeasure(t *testing.T) {
 			r := &Report{Elements: 1, Finite: 1}
 			tc.set(r)
 			v := tol.verdict(r, 0)
-			assert.False(t, v.Pass, "%s NaN under %+v", tc.name, tol)
-			assert.Equal(t, []string{"the " + tc.name + " is NaN"}, v.Reasons)
+			expect.False(t, v.Pass, "%s NaN under %+v", tc.name, tol)
+			expect.Equal(t, []string{"the " + tc.name + " is NaN"}, v.Reasons)
 		}
 	}
 	v := Tolerance{Abs: 1}.verdict(&Report{Elements: 1, Finite: 1}, 0)
-	assert.True(t, v.Pass, "no NaN, no failure")
+	expect.True(t, v.Pass, "no NaN, no failure")
 }
 
 // TestReportNil: the methods of a nil *Report are errors wrapping
@@ -547,24 +547,24 @@ func TestVerdictNaNMeasure(t *testing.T) {
 func TestReportNil(t *testing.T) {
 	var r *Report
 	err := r.WriteText(&strings.Builder{})
-	require.ErrorIs(t, err, ErrReport)
-	assert.EqualError(t, err, "compare: invalid report: Report.WriteText: receiver = nil; want a Report from Diff")
-	assert.Equal(t, "<nil>", r.String())
+	ensure.ErrorIs(t, err, ErrReport)
+	expect.EqualError(t, err, "compare: invalid report: Report.WriteText: receiver = nil; want a Report from Diff")
+	expect.Equal(t, "<nil>", r.String())
 	b, err := r.MarshalJSON()
-	require.NoError(t, err)
-	assert.Equal(t, "null", string(b))
+	ensure.NoError(t, err)
+	expect.Equal(t, "null", string(b))
 	err = r.UnmarshalJSON([]byte("{}"))
-	require.ErrorIs(t, err, ErrReport)
-	assert.EqualError(t, err, "compare: invalid report: Report.UnmarshalJSON: receiver = nil; want a *Report to set")
+	ensure.ErrorIs(t, err, ErrReport)
+	expect.EqualError(t, err, "compare: invalid report: Report.UnmarshalJSON: receiver = nil; want a *Report to set")
 	err = new(Report).UnmarshalJSON([]byte(`{"elements": 1, "colour": 2}`))
-	require.ErrorIs(t, err, ErrReport)
-	assert.EqualError(t, err, `compare: invalid report: Report.UnmarshalJSON: json: unknown field "colour"; want the JSON object Report.MarshalJSON writes`)
+	ensure.ErrorIs(t, err, ErrReport)
+	expect.EqualError(t, err, `compare: invalid report: Report.UnmarshalJSON: json: unknown field "colour"; want the JSON object Report.MarshalJSON writes`)
 	full, err := Diff([]float64{1}, []float64{1}, nil, Options{})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	err = full.WriteText(nil)
-	require.ErrorIs(t, err, ErrReport)
-	assert.EqualError(t, err, "compare: invalid report: Report.WriteText: w = nil; want an io.Writer")
+	ensure.ErrorIs(t, err, ErrReport)
+	expect.EqualError(t, err, "compare: invalid report: Report.WriteText: w = nil; want an io.Writer")
 	err = (*Format)(nil).UnmarshalText([]byte("float32"))
-	require.ErrorIs(t, err, ErrFormat)
-	assert.EqualError(t, err, "compare: invalid number format: Format.UnmarshalText: receiver = nil; want a *Format to set")
+	ensure.ErrorIs(t, err, ErrFormat)
+	expect.EqualError(t, err, "compare: invalid number format: Format.UnmarshalText: receiver = nil; want a *Format to set")
 }

@@ -7,10 +7,9 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -82,14 +81,14 @@ func TestYardstickJudges(t *testing.T) {
 	for _, f := range []compare.Format{compare.Float32, compare.BFloat16, compare.Binary16} {
 		t.Run(f.String(), func(t *testing.T) {
 			y, err := compare.MeasureYardstick(f, [][]float64{x}, ref, shape, compare.DefaultK, softmax32(n))
-			require.NoError(t, err)
-			assert.Equal(t, "float32", y.Arithmetic)
-			assert.Equal(t, f, y.Format)
-			assert.Equal(t, compare.DefaultK*y.Report.MaxAbs+y.FloorAbs, y.Tolerance.Abs)
-			assert.Equal(t, compare.DefaultK*y.Report.Normwise+y.FloorNormwise, y.Tolerance.MaxNormwise)
-			assert.Equal(t, f.UnitRoundoff(), y.FloorNormwise)
-			assert.Positive(t, y.Report.MaxAbs, "the yardstick has rounding error")
-			assert.Zero(t, y.Report.NotInFormat, "the yardstick's output is rounded to the format")
+			ensure.NoError(t, err)
+			expect.Equal(t, "float32", y.Arithmetic)
+			expect.Equal(t, f, y.Format)
+			expect.Equal(t, compare.DefaultK*y.Report.MaxAbs+y.FloorAbs, y.Tolerance.Abs)
+			expect.Equal(t, compare.DefaultK*y.Report.Normwise+y.FloorNormwise, y.Tolerance.MaxNormwise)
+			expect.Equal(t, f.UnitRoundoff(), y.FloorNormwise)
+			expect.Positive(t, y.Report.MaxAbs, "the yardstick has rounding error")
+			expect.Zero(t, y.Report.NotInFormat, "the yardstick's output is rounded to the format")
 			opt := y.Options()
 
 			// The reference rounded once to the format is as good as the
@@ -99,13 +98,13 @@ func TestYardstickJudges(t *testing.T) {
 				once[i] = f.Round(v)
 			}
 			r, err := compare.Diff(ref, once, shape, opt)
-			require.NoError(t, err)
-			assert.True(t, r.Verdict.Pass, r.String())
+			ensure.NoError(t, err)
+			expect.True(t, r.Verdict.Pass, r.String())
 
 			// The yardstick passes its own tolerance.
 			r, err = compare.Diff(ref, y.Output, shape, opt)
-			require.NoError(t, err)
-			assert.True(t, r.Verdict.Pass, r.String())
+			ensure.NoError(t, err)
+			expect.True(t, r.Verdict.Pass, r.String())
 
 			// A bug well above rounding: the largest probability 25% too
 			// large.
@@ -117,13 +116,13 @@ func TestYardstickJudges(t *testing.T) {
 			}
 			bad := append([]float64(nil), once...)
 			bad[am] = f.Round(ref[am] * 1.25)
-			require.Greater(t, bad[am]-ref[am], y.Tolerance.Abs, "the bug is larger than the tolerance")
+			ensure.Greater(t, bad[am]-ref[am], y.Tolerance.Abs, "the bug is larger than the tolerance")
 			r, err = compare.Diff(ref, bad, shape, opt)
-			require.NoError(t, err)
-			assert.False(t, r.Verdict.Pass, r.String())
-			assert.Equal(t, 1, r.Verdict.Failed)
-			assert.Equal(t, am, r.Worst[0].Offset)
-			assert.Equal(t, []int{am / n, am % n}, r.Worst[0].Index)
+			ensure.NoError(t, err)
+			expect.False(t, r.Verdict.Pass, r.String())
+			expect.Equal(t, 1, r.Verdict.Failed)
+			expect.Equal(t, am, r.Worst[0].Offset)
+			expect.Equal(t, []int{am / n, am % n}, r.Worst[0].Index)
 		})
 	}
 }
@@ -143,16 +142,16 @@ func TestYardstickRefusesNarrowAccumulation(t *testing.T) {
 	}
 	ref := softmaxRows(x, n)
 	y, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{x}, ref, []int{rows, n}, compare.DefaultK, softmax32(n))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	in := make([]float64, len(x))
 	for i, v := range x {
 		in[i] = compare.BFloat16.Round(v)
 	}
 	bad := softmaxNarrowSum(in, n, compare.BFloat16)
 	r, err := compare.Diff(ref, bad, []int{rows, n}, y.Options())
-	require.NoError(t, err)
-	assert.False(t, r.Verdict.Pass, r.String())
-	assert.Greater(t, r.Normwise, 2*y.Report.Normwise)
+	ensure.NoError(t, err)
+	expect.False(t, r.Verdict.Pass, r.String())
+	expect.Greater(t, r.Normwise, 2*y.Report.Normwise)
 }
 
 func TestYardstickFloat64Arithmetic(t *testing.T) {
@@ -161,18 +160,18 @@ func TestYardstickFloat64Arithmetic(t *testing.T) {
 	ref := softmaxRows(x, n)
 	run := func(in [][]float64) ([]float64, error) { return softmaxRows(in[0], n), nil }
 	y, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{x}, ref, nil, compare.DefaultK, run)
-	require.NoError(t, err)
-	assert.Equal(t, "float64", y.Arithmetic)
-	assert.Equal(t, []int{2 * n}, y.Report.Shape)
+	ensure.NoError(t, err)
+	expect.Equal(t, "float64", y.Arithmetic)
+	expect.Equal(t, []int{2 * n}, y.Report.Shape)
 
 	// Float64 inputs and arithmetic: the yardstick is the reference, its
 	// error 0, and the tolerance is the floor alone.
 	y, err = compare.MeasureYardstick(compare.Float64, [][]float64{x}, ref, nil, 3, run)
-	require.NoError(t, err)
-	assert.Zero(t, y.Report.MaxAbs)
-	assert.Equal(t, y.FloorAbs, y.Tolerance.Abs)
-	assert.Equal(t, math.Ldexp(1, -53), y.Tolerance.MaxNormwise)
-	assert.Equal(t, 3.0, y.K)
+	ensure.NoError(t, err)
+	expect.Zero(t, y.Report.MaxAbs)
+	expect.Equal(t, y.FloorAbs, y.Tolerance.Abs)
+	expect.Equal(t, math.Ldexp(1, -53), y.Tolerance.MaxNormwise)
+	expect.Equal(t, 3.0, y.K)
 }
 
 // TestYardstickIdentity: with the identity as the kernel the yardstick's
@@ -184,11 +183,11 @@ func TestYardstickIdentity(t *testing.T) {
 	for _, f := range []compare.Format{compare.Float32, compare.Binary16, compare.BFloat16, compare.E4M3, compare.E5M2} {
 		y, err := compare.MeasureYardstick(f, [][]float64{x}, x, nil, compare.DefaultK,
 			func(in [][]float32) ([]float32, error) { return in[0], nil })
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		u := f.UnitRoundoff()
-		assert.LessOrEqual(t, y.Report.MaxRel, u*1024, f.String()) // rel floor: 2^−10·max|x|
-		assert.LessOrEqual(t, y.Report.Normwise, u, f.String())
-		assert.LessOrEqual(t, y.Tolerance.MaxNormwise, 3*u, f.String())
+		expect.LessOrEqual(t, y.Report.MaxRel, u*1024, f.String()) // rel floor: 2^−10·max|x|
+		expect.LessOrEqual(t, y.Report.Normwise, u, f.String())
+		expect.LessOrEqual(t, y.Tolerance.MaxNormwise, 3*u, f.String())
 	}
 }
 
@@ -218,17 +217,17 @@ func TestYardstickErrors(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			shape := []int{3}
 			_, err := compare.MeasureYardstick(tc.f, [][]float64{x}, tc.ref, shape, tc.k, tc.run)
-			require.ErrorIs(t, err, tc.want)
-			assert.EqualError(t, err, tc.text)
+			ensure.ErrorIs(t, err, tc.want)
+			expect.EqualError(t, err, tc.text)
 		})
 	}
 	_, err := compare.MeasureYardstick(compare.BFloat16, [][]float64{x}, x, nil, 2, func([][]float32) ([]float32, error) { return nil, boom })
-	assert.ErrorIs(t, err, boom, "the kernel's own error is wrapped too")
+	expect.ErrorIs(t, err, boom, "the kernel's own error is wrapped too")
 }
 
 func TestToleranceValidate(t *testing.T) {
-	assert.NoError(t, compare.Tolerance{}.Validate())
-	assert.NoError(t, compare.Tolerance{Abs: 1, Rel: 2, ULPs: 3, MaxNormwise: 4}.Validate())
+	expect.NoError(t, compare.Tolerance{}.Validate())
+	expect.NoError(t, compare.Tolerance{Abs: 1, Rel: 2, ULPs: 3, MaxNormwise: 4}.Validate())
 	for _, tc := range []struct {
 		tol  compare.Tolerance
 		want string
@@ -238,8 +237,8 @@ func TestToleranceValidate(t *testing.T) {
 		{compare.Tolerance{MaxNormwise: math.Inf(1)}, "compare: invalid tolerance: Tolerance.Validate: Tolerance.MaxNormwise = +Inf; want a finite value ≥ 0"},
 	} {
 		err := tc.tol.Validate()
-		assert.ErrorIs(t, err, compare.ErrTolerance, fmt.Sprint(tc.tol))
-		assert.EqualError(t, err, tc.want)
+		expect.ErrorIs(t, err, compare.ErrTolerance, fmt.Sprint(tc.tol))
+		expect.EqualError(t, err, tc.want)
 	}
 }
 
@@ -269,25 +268,25 @@ func TestYardstickK(t *testing.T) {
 		u := math.Ldexp(1, -tc.p)
 		floorAbs := u * big // far above half the smallest subnormal of each format
 		y2, err := compare.MeasureYardstick(tc.f, [][]float64{x}, ref, nil, 2, softmax32(n))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		y4, err := compare.MeasureYardstick(tc.f, [][]float64{x}, ref, nil, 4, softmax32(n))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		e, en := y2.Report.MaxAbs, y2.Report.Normwise
-		require.Positive(t, e, "%v: the yardstick has rounding error", tc.f)
-		require.Positive(t, en, "%v", tc.f)
-		require.Equal(t, e, y4.Report.MaxAbs, "%v: the same measurement", tc.f)
-		require.Equal(t, en, y4.Report.Normwise, "%v", tc.f)
-		assert.Equal(t, 2.0, y2.K)
-		assert.Equal(t, 4.0, y4.K)
+		ensure.Positive(t, e, "%v: the yardstick has rounding error", tc.f)
+		ensure.Positive(t, en, "%v", tc.f)
+		ensure.Equal(t, e, y4.Report.MaxAbs, "%v: the same measurement", tc.f)
+		ensure.Equal(t, en, y4.Report.Normwise, "%v", tc.f)
+		expect.Equal(t, 2.0, y2.K)
+		expect.Equal(t, 4.0, y4.K)
 
-		assert.Equal(t, floorAbs, y2.FloorAbs, "%v: the floor is one rounding of max|ref|", tc.f)
-		assert.Equal(t, u, y2.FloorNormwise, "%v", tc.f)
-		assert.Equal(t, 2*e+floorAbs, y2.Tolerance.Abs, "%v", tc.f)
-		assert.Equal(t, 4*e+floorAbs, y4.Tolerance.Abs, "%v", tc.f)
-		assert.Equal(t, 2*en+u, y2.Tolerance.MaxNormwise, "%v", tc.f)
-		assert.Equal(t, 4*en+u, y4.Tolerance.MaxNormwise, "%v", tc.f)
-		assert.Equal(t, 2*(y2.Tolerance.Abs-y2.FloorAbs), y4.Tolerance.Abs-y4.FloorAbs, "%v: the error parts are in the ratio k = 4 : 2", tc.f)
-		assert.Equal(t, 2*(y2.Tolerance.MaxNormwise-y2.FloorNormwise), y4.Tolerance.MaxNormwise-y4.FloorNormwise, "%v", tc.f)
-		assert.Greater(t, y4.Tolerance.Abs, y2.Tolerance.Abs, "%v: a larger k allows more", tc.f)
+		expect.Equal(t, floorAbs, y2.FloorAbs, "%v: the floor is one rounding of max|ref|", tc.f)
+		expect.Equal(t, u, y2.FloorNormwise, "%v", tc.f)
+		expect.Equal(t, 2*e+floorAbs, y2.Tolerance.Abs, "%v", tc.f)
+		expect.Equal(t, 4*e+floorAbs, y4.Tolerance.Abs, "%v", tc.f)
+		expect.Equal(t, 2*en+u, y2.Tolerance.MaxNormwise, "%v", tc.f)
+		expect.Equal(t, 4*en+u, y4.Tolerance.MaxNormwise, "%v", tc.f)
+		expect.Equal(t, 2*(y2.Tolerance.Abs-y2.FloorAbs), y4.Tolerance.Abs-y4.FloorAbs, "%v: the error parts are in the ratio k = 4 : 2", tc.f)
+		expect.Equal(t, 2*(y2.Tolerance.MaxNormwise-y2.FloorNormwise), y4.Tolerance.MaxNormwise-y4.FloorNormwise, "%v", tc.f)
+		expect.Greater(t, y4.Tolerance.Abs, y2.Tolerance.Abs, "%v: a larger k allows more", tc.f)
 	}
 }

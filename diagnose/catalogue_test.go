@@ -8,8 +8,8 @@ import (
 	"testing"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/ops"
-	"github.com/stretchr/testify/require"
 )
 
 // entry is one port of the catalogue: an operation, its configuration and
@@ -501,7 +501,7 @@ func TestCatalogue(t *testing.T) {
 		tl := per[e.family]
 		got := e.port(e.in)
 		res, err := Run(e.op, []byte(e.config), e.in, got, e.format, Options{})
-		require.NoError(t, err, "%s / %s", e.family, e.name)
+		ensure.NoError(t, err, "%s / %s", e.family, e.name)
 		if e.want == nil {
 			tl.correct++
 			if !res.Given.Pass {
@@ -514,7 +514,7 @@ func TestCatalogue(t *testing.T) {
 		}
 		slipped++
 		tl.ports++
-		require.False(t, res.Given.Pass, "%s / %s: the slipped port passes as configured", e.family, e.name)
+		ensure.False(t, res.Given.Pass, "%s / %s: the slipped port passes as configured", e.family, e.name)
 		for i, c := range res.Candidates {
 			if i == 3 || !c.Pass {
 				break
@@ -537,7 +537,7 @@ func TestCatalogue(t *testing.T) {
 		// conventions alone is never explained by an idiom alone.
 		if wantsIdiom(res.Candidates[0]) {
 			tl.idioms++
-			require.NotNil(t, res.Candidates[0].IdiomCost, "%s / %s: the idiom's cost", e.family, e.name)
+			ensure.NotNil(t, res.Candidates[0].IdiomCost, "%s / %s: the idiom's cost", e.family, e.name)
 			continue
 		}
 		for _, c := range res.Passing() {
@@ -548,7 +548,7 @@ func TestCatalogue(t *testing.T) {
 			}
 		}
 	}
-	require.GreaterOrEqual(t, slipped, 40, "the catalogue holds at least 40 slipped ports")
+	ensure.GreaterOrEqual(t, slipped, 40, "the catalogue holds at least 40 slipped ports")
 	for _, f := range families {
 		tl := per[f]
 		t.Logf("%-24s slipped %2d  named first %2d/%-2d  in top 3 %2d/%-2d  correct ports %d, false names %d; named by a precision idiom %d",

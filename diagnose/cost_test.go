@@ -6,8 +6,8 @@ import (
 	"time"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/ops"
-	"github.com/stretchr/testify/require"
 )
 
 // costRatio runs one check and one diagnosis of the port's outputs got
@@ -19,12 +19,12 @@ func costRatio(t *testing.T, op string, cfg []byte, in, got ops.Tensors) (float6
 	var res *Result
 	for range 3 {
 		s := time.Now()
-		require.False(t, check(t, op, cfg, in, got, compare.Float32), "the slipped port fails its check")
+		ensure.False(t, check(t, op, cfg, in, got, compare.Float32), "the slipped port fails its check")
 		checks = append(checks, time.Since(s))
 		s = time.Now()
 		var err error
 		res, err = Run(op, cfg, in, got, compare.Float32, Options{})
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		diags = append(diags, time.Since(s))
 	}
 	slices.Sort(checks)
@@ -52,11 +52,11 @@ func TestCostBatchOne(t *testing.T) {
 		out, lse := a.forward(t32(in, "q"), t32(in, "k"), t32(in, "v"))
 		got := ops.Tensors{"out": {Data: to64(out)}, "lse": {Data: to64(lse)}}
 		ratio, res := costRatio(t, "attention-forward", []byte(`{"version":1,"mask":[{"kind":"causal"}]}`), in, got)
-		require.Contains(t, res.Cuts, "heads")
-		require.Contains(t, res.Cuts, "queries")
+		ensure.Contains(t, res.Cuts, "heads")
+		ensure.Contains(t, res.Cuts, "queries")
 
-		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
-		require.LessOrEqual(t, ratio, 10.0)
+		ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
+		ensure.LessOrEqual(t, ratio, 10.0)
 	})
 	t.Run("attention-forward decode", func(t *testing.T) {
 		// One decoding step: one query of 32 heads on a cache of 4096
@@ -70,9 +70,9 @@ func TestCostBatchOne(t *testing.T) {
 		out, lse := a.forward(t32(in, "q"), t32(in, "k"), t32(in, "v"))
 		got := ops.Tensors{"out": {Data: to64(out)}, "lse": {Data: to64(lse)}}
 		ratio, res := costRatio(t, "attention-forward", []byte(`{"version":1}`), in, got)
-		require.Contains(t, res.Cuts, "heads")
-		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
-		require.LessOrEqual(t, ratio, 10.0)
+		ensure.Contains(t, res.Cuts, "heads")
+		ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
+		ensure.LessOrEqual(t, ratio, 10.0)
 	})
 	// Rotary on one sequence of 8 heads of 2048 positions of 64 dims,
 	// whose one leading entry cannot be cut: the heads are cut, then the
@@ -91,9 +91,9 @@ func TestCostBatchOne(t *testing.T) {
 			in := ops.Tensors{"x": tensor([]int{1, 8, 2048, 64}, 9)}
 			got := ops.Tensors{"y": {Data: to64(c.port.apply(t32(in, "x")))}}
 			ratio, res := costRatio(t, "rotary-apply", []byte(`{"version":1}`), in, got)
-			require.Equal(t, []string{"heads", "positions"}, res.Cuts)
-			require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(c.want), "%+v", res.Candidates[0])
-			require.LessOrEqual(t, ratio, 10.0)
+			ensure.Equal(t, []string{"heads", "positions"}, res.Cuts)
+			ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(c.want), "%+v", res.Candidates[0])
+			ensure.LessOrEqual(t, ratio, 10.0)
 		})
 	}
 	t.Run("layernorm-forward", func(t *testing.T) {
@@ -105,9 +105,9 @@ func TestCostBatchOne(t *testing.T) {
 		got := ops.Tensors{"y": {Data: to64(n.forward(t32(in, "x"), t32(in, "weight"), t32(in, "bias")))}}
 		ratio, res := costRatio(t, "layernorm-forward", []byte(`{"version":1,"epsilon":1e-5}`), in, got)
 
-		require.Equal(t, []string{"rows"}, res.Cuts)
-		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"epsilon_placement": "added-to-root"`), "%+v", res.Candidates[0])
-		require.LessOrEqual(t, ratio, 10.0)
+		ensure.Equal(t, []string{"rows"}, res.Cuts)
+		ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"epsilon_placement": "added-to-root"`), "%+v", res.Candidates[0])
+		ensure.LessOrEqual(t, ratio, 10.0)
 	})
 }
 
@@ -126,9 +126,9 @@ func TestCostIdioms(t *testing.T) {
 		r := rotPort{L: 2048, D: 64, rotated: 64, base: 10000, divide: 1, sign: 1, angles32: true}
 		got := ops.Tensors{"y": {Data: to64(r.apply(t32(in, "x")))}}
 		ratio, res := costRatio(t, "rotary-apply", []byte(`{"version":1}`), in, got)
-		require.Equal(t, []string{"leading axis", "positions"}, res.Cuts)
-		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"angles": "float32-angles"`), "%+v", res.Candidates[0])
-		require.LessOrEqual(t, ratio, 10.0)
+		ensure.Equal(t, []string{"leading axis", "positions"}, res.Cuts)
+		ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"angles": "float32-angles"`), "%+v", res.Candidates[0])
+		ensure.LessOrEqual(t, ratio, 10.0)
 	})
 	t.Run("layernorm-forward one-pass", func(t *testing.T) {
 		const rows, d = 1024, 512
@@ -140,8 +140,8 @@ func TestCostIdioms(t *testing.T) {
 		n := normPort{d: d, eps: 1e-5, onePass: true}
 		got := ops.Tensors{"y": {Data: to64(n.forward(t32(in, "x"), t32(in, "weight"), t32(in, "bias")))}}
 		ratio, res := costRatio(t, "layernorm-forward", []byte(`{"version":1,"epsilon":1e-5}`), in, got)
-		require.Equal(t, []string{"rows"}, res.Cuts)
-		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"variance": "one-pass"`), "%+v", res.Candidates[0])
-		require.LessOrEqual(t, ratio, 10.0)
+		ensure.Equal(t, []string{"rows"}, res.Cuts)
+		ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"variance": "one-pass"`), "%+v", res.Candidates[0])
+		ensure.LessOrEqual(t, ratio, 10.0)
 	})
 }

@@ -10,21 +10,21 @@ import (
 	"time"
 
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/ops"
-	"github.com/stretchr/testify/require"
 )
 
 // check is what one judgement of a port costs: the reference, the
 // yardstick and the comparison of every output.
 func check(t *testing.T, op string, cfg []byte, in, got ops.Tensors, f compare.Format) bool {
 	ref, err := ops.Run(op, cfg, in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	ys, err := ops.Yardstick(op, cfg, in, f, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	pass := true
 	for n, g := range got {
 		r, err := compare.Diff(ref[n].Data, g.Data, ref[n].Shape, ys[n].Options())
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		pass = pass && r.Verdict.Pass
 	}
 	return pass
@@ -55,38 +55,38 @@ func TestCostWithinTenChecks(t *testing.T) {
 		return d
 	}
 	var res *Result
-	one := best(func() { require.False(t, check(t, "attention-forward", cfg, in, got, compare.Float32)) })
+	one := best(func() { ensure.False(t, check(t, "attention-forward", cfg, in, got, compare.Float32)) })
 	all := best(func() {
 		var err error
 		res, err = Run("attention-forward", cfg, in, got, compare.Float32, Options{})
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 	})
 	ratio := float64(all) / float64(one)
 	t.Logf("one check %v, diagnosis %v: %.2f checks; %s; %d candidates run, %d left out", one, all, ratio, res.SubProblem, res.Run, res.LeftOut)
-	require.NotEmpty(t, res.SubProblem, "a problem of 16 batch entries is cut")
-	require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
-	require.LessOrEqual(t, ratio, 10.0)
+	ensure.NotEmpty(t, res.SubProblem, "a problem of 16 batch entries is cut")
+	ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"group": "cycle"`), "%+v", res.Candidates[0])
+	ensure.LessOrEqual(t, ratio, 10.0)
 }
 
 func TestPassingPortHasNothingToDiagnose(t *testing.T) {
 	in := attnInputs(1, 4, 2, 6, 6, 8, 1)
 	cfg := []byte(`{"version":1,"mask":[{"kind":"causal"}]}`)
 	ref, err := ops.Run("attention-forward", cfg, in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	res, err := Run("attention-forward", cfg, in, ops.Tensors{"out": ref["out"]}, compare.Float32, Options{})
-	require.NoError(t, err)
-	require.True(t, res.Given.Pass)
-	require.Empty(t, res.Candidates)
+	ensure.NoError(t, err)
+	ensure.True(t, res.Given.Pass)
+	ensure.Empty(t, res.Candidates)
 	var b strings.Builder
-	require.NoError(t, res.WriteText(&b))
-	require.Contains(t, b.String(), "nothing to diagnose")
+	ensure.NoError(t, res.WriteText(&b))
+	ensure.Contains(t, b.String(), "nothing to diagnose")
 }
 
 func TestErrors(t *testing.T) {
 	in := attnInputs(1, 2, 2, 3, 3, 4, 1)
 	cfg := []byte(`{"version":1}`)
 	ref, err := ops.Run("attention-forward", cfg, in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, c := range []struct {
 		name, op string
 		cfg      []byte
@@ -104,12 +104,12 @@ func TestErrors(t *testing.T) {
 		{"small K", "attention-forward", cfg, ref, Options{K: 0.5}, ErrOptions, "Options.K = 0.5; want 0 (the default) or a finite value ≥ 1"},
 	} {
 		_, err := Run(c.op, c.cfg, in, c.got, compare.Float32, c.opt)
-		require.Error(t, err, c.name)
-		require.True(t, errors.Is(err, c.want), "%s: %v", c.name, err)
-		require.Contains(t, err.Error(), c.text, c.name)
+		ensure.Error(t, err, c.name)
+		ensure.True(t, errors.Is(err, c.want), "%s: %v", c.name, err)
+		ensure.Contains(t, err.Error(), c.text, c.name)
 	}
 	_, err = Run("attention-forward", cfg, in, ref, compare.Float64, Options{})
-	require.True(t, errors.Is(err, compare.ErrFormat), "a float64 port has no yardstick: %v", err)
+	ensure.True(t, errors.Is(err, compare.ErrFormat), "a float64 port has no yardstick: %v", err)
 }
 
 // TestReportAndJSON checks that the text report and the JSON encoding
@@ -122,34 +122,34 @@ func TestReportAndJSON(t *testing.T) {
 	out[3] = float32(math.NaN())
 	got := ops.Tensors{"out": {Data: to64(out)}, "lse": {Data: to64(lse)}}
 	res, err := Run("attention-forward", []byte(`{"version":1,"mask":[{"kind":"causal"}]}`), in, got, compare.Float32, Options{})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var b strings.Builder
-	require.NoError(t, res.WriteText(&b))
+	ensure.NoError(t, res.WriteText(&b))
 	text := b.String()
-	require.Contains(t, text, "as given: FAIL")
-	require.Contains(t, text, "non-finite: NaN or Inf in 1 of 24 rows (first row 0)")
+	ensure.Contains(t, text, "as given: FAIL")
+	ensure.Contains(t, text, "non-finite: NaN or Inf in 1 of 24 rows (first row 0)")
 	js, err := res.MarshalIndent()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var back Result
-	require.NoError(t, json.Unmarshal(js, &back))
-	require.Equal(t, res.Candidates[0].Change, back.Candidates[0].Change)
-	require.True(t, math.IsInf(float64(back.Given.Normwise), 1), "a NaN mismatch is an infinite normwise error")
-	require.True(t, bytes.Contains(js, []byte(`"normwise_error": "+Inf"`)))
-	require.Contains(t, text, res.Candidates[0].Change)
-	require.Equal(t, len(res.Signatures), len(back.Signatures))
+	ensure.NoError(t, json.Unmarshal(js, &back))
+	ensure.Equal(t, res.Candidates[0].Change, back.Candidates[0].Change)
+	ensure.True(t, math.IsInf(float64(back.Given.Normwise), 1), "a NaN mismatch is an infinite normwise error")
+	ensure.True(t, bytes.Contains(js, []byte(`"normwise_error": "+Inf"`)))
+	ensure.Contains(t, text, res.Candidates[0].Change)
+	ensure.Equal(t, len(res.Signatures), len(back.Signatures))
 }
 
 func TestNumberJSON(t *testing.T) {
 	for _, v := range []float64{0, 1.5e-7, math.Inf(1), math.Inf(-1)} {
 		b, err := json.Marshal(Number(v))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		var n Number
-		require.NoError(t, json.Unmarshal(b, &n))
-		require.Equal(t, v, float64(n))
+		ensure.NoError(t, json.Unmarshal(b, &n))
+		ensure.Equal(t, v, float64(n))
 	}
 	b, _ := json.Marshal(Number(math.NaN()))
 	var n Number
-	require.NoError(t, json.Unmarshal(b, &n))
-	require.True(t, math.IsNaN(float64(n)))
-	require.True(t, errors.Is(n.UnmarshalJSON([]byte(`"x"`)), ErrOutputs))
+	ensure.NoError(t, json.Unmarshal(b, &n))
+	ensure.True(t, math.IsNaN(float64(n)))
+	ensure.True(t, errors.Is(n.UnmarshalJSON([]byte(`"x"`)), ErrOutputs))
 }

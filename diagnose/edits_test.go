@@ -4,9 +4,8 @@ import (
 	"encoding/json"
 	"testing"
 
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/ops"
 )
 
@@ -22,24 +21,24 @@ func TestEditsAsData(t *testing.T) {
 		out, lse := a.forward(t32(in, "q"), t32(in, "k"), t32(in, "v"))
 		got := ops.Tensors{"out": {Data: to64(out)}, "lse": {Data: to64(lse)}}
 		res, err := Run("attention-forward", []byte(cfg), in, got, compare.Float32, Options{})
-		require.NoError(t, err)
-		require.NotEmpty(t, res.Passing(), "the slipped port should pass under some change")
+		ensure.NoError(t, err)
+		ensure.NotEmpty(t, res.Passing(), "the slipped port should pass under some change")
 		return res
 	}
 
 	a := attnBase(1, 2, 2, 5, 5, 8)
 	a.scale = 1.0 / 8
 	best := run(a).Passing()[0]
-	require.Equal(t, `"scale": 0.125 (1/d)`, best.Change)
-	require.Equal(t, []Edit{{Key: "scale", Value: json.RawMessage("0.125"), Note: "1/d"}}, best.Edits)
+	ensure.Equal(t, `"scale": 0.125 (1/d)`, best.Change)
+	ensure.Equal(t, []Edit{{Key: "scale", Value: json.RawMessage("0.125"), Note: "1/d"}}, best.Edits)
 	js, err := json.Marshal(best)
-	require.NoError(t, err)
-	require.Contains(t, string(js), `"edits":[{"key":"scale","value":0.125,"note":"1/d"}]`)
+	ensure.NoError(t, err)
+	ensure.Contains(t, string(js), `"edits":[{"key":"scale","value":0.125,"note":"1/d"}]`)
 
 	a = attnBase(1, 2, 2, 5, 5, 8)
 	a.swapKV = true
 	best = run(a).Passing()[0]
-	require.Len(t, best.Edits, 1)
-	require.Empty(t, best.Edits[0].Key)
-	require.Equal(t, best.Change, best.Edits[0].Mixup)
+	ensure.Len(t, best.Edits, 1)
+	ensure.Empty(t, best.Edits[0].Key)
+	ensure.Equal(t, best.Change, best.Edits[0].Mixup)
 }

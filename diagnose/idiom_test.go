@@ -6,9 +6,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/ops"
 )
 
@@ -32,14 +31,14 @@ func entryNamed(t *testing.T, family, name string) entry {
 func runEntry(t *testing.T, e entry) *Result {
 	t.Helper()
 	res, err := Run(e.op, []byte(e.config), e.in, e.port(e.in), e.format, Options{})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return res
 }
 
 func text(t *testing.T, res *Result) string {
 	t.Helper()
 	var b strings.Builder
-	require.NoError(t, res.WriteText(&b))
+	ensure.NoError(t, res.WriteText(&b))
 	return b.String()
 }
 
@@ -52,29 +51,29 @@ func text(t *testing.T, res *Result) string {
 // the cost, measured there, still shows both.
 func TestIdiomCandidate(t *testing.T) {
 	res := runEntry(t, entryNamed(t, "rotary and scaling", "float32 angles at 2048 positions"))
-	require.False(t, res.Given.Pass)
-	require.Equal(t, 2, res.Idioms, "float32-frequencies and float32-angles")
+	ensure.False(t, res.Given.Pass)
+	ensure.Equal(t, 2, res.Idioms, "float32-frequencies and float32-angles")
 	c := res.Candidates[0]
-	require.True(t, c.Pass && c.Measured)
-	require.Equal(t, `"angles": "float32-angles"`, c.Change)
-	require.Equal(t, []Edit{{Key: "angles", Value: json.RawMessage(`"float32-angles"`), Note: idiomNote, Idiom: true}}, c.Edits)
-	require.JSONEq(t, `{"version":1,"angles":"float32-angles"}`, string(c.Config))
-	require.Equal(t, c.Normwise, res.Given.Normwise, "an idiom keeps the reference: the port's error is the one as given")
-	require.Greater(t, float64(c.Outputs[0].Tolerance), 10*float64(res.Given.Outputs[0].Tolerance), "the idiom widens the tolerance")
+	ensure.True(t, c.Pass && c.Measured)
+	ensure.Equal(t, `"angles": "float32-angles"`, c.Change)
+	ensure.Equal(t, []Edit{{Key: "angles", Value: json.RawMessage(`"float32-angles"`), Note: idiomNote, Idiom: true}}, c.Edits)
+	ensure.JSONEq(t, `{"version":1,"angles":"float32-angles"}`, string(c.Config))
+	ensure.Equal(t, c.Normwise, res.Given.Normwise, "an idiom keeps the reference: the port's error is the one as given")
+	ensure.Greater(t, float64(c.Outputs[0].Tolerance), 10*float64(res.Given.Outputs[0].Tolerance), "the idiom widens the tolerance")
 
 	ic := c.IdiomCost
-	require.NotNil(t, ic)
-	require.Equal(t, "angles = float32-angles", ic.Keys)
-	require.True(t, ic.SubProblem, "65536 input values: cut to 512 positions spread over the length")
-	require.Len(t, ic.Outputs, 1)
+	ensure.NotNil(t, ic)
+	ensure.Equal(t, "angles = float32-angles", ic.Keys)
+	ensure.True(t, ic.SubProblem, "65536 input values: cut to 512 positions spread over the length")
+	ensure.Len(t, ic.Outputs, 1)
 	o := ic.Outputs[0]
-	require.Equal(t, "y", o.Output)
-	require.Greater(t, float64(o.Ratio), 20.0, "the idiom costs many times the plain float32 run's error")
-	require.InDelta(t, float64(o.Normwise)/float64(o.PlainNormwise), float64(o.Ratio), 1e-9*float64(o.Ratio))
-	require.Len(t, o.Positions, 2)
-	require.Equal(t, 0, o.Positions[0].Position)
-	require.Equal(t, 2047, o.Positions[1].Position)
-	require.Greater(t, float64(o.Positions[1].MaxAbs), 100*float64(o.Positions[1].PlainMaxAbs), "at the last position the idiom costs most")
+	ensure.Equal(t, "y", o.Output)
+	ensure.Greater(t, float64(o.Ratio), 20.0, "the idiom costs many times the plain float32 run's error")
+	ensure.InDelta(t, float64(o.Normwise)/float64(o.PlainNormwise), float64(o.Ratio), 1e-9*float64(o.Ratio))
+	ensure.Len(t, o.Positions, 2)
+	ensure.Equal(t, 0, o.Positions[0].Position)
+	ensure.Equal(t, 2047, o.Positions[1].Position)
+	ensure.Greater(t, float64(o.Positions[1].MaxAbs), 100*float64(o.Positions[1].PlainMaxAbs), "at the last position the idiom costs most")
 	t.Log(ic)
 
 	// One line under the candidate.
@@ -85,22 +84,22 @@ func TestIdiomCandidate(t *testing.T) {
 			at = i
 		}
 	}
-	require.GreaterOrEqual(t, at, 0, "%s", strings.Join(lines, "\n"))
-	require.Equal(t, "      "+ic.String(), lines[at+1])
-	require.Contains(t, lines[at+1], "what the idiom costs (angles = float32-angles) against the plain float32 run on the sub-problem: y: normwise ")
-	require.Contains(t, lines[at+1], "position 0: ")
-	require.Contains(t, lines[at+1], "position 2047: ")
+	ensure.GreaterOrEqual(t, at, 0, "%s", strings.Join(lines, "\n"))
+	ensure.Equal(t, "      "+ic.String(), lines[at+1])
+	ensure.Contains(t, lines[at+1], "what the idiom costs (angles = float32-angles) against the plain float32 run on the sub-problem: y: normwise ")
+	ensure.Contains(t, lines[at+1], "position 0: ")
+	ensure.Contains(t, lines[at+1], "position 2047: ")
 
 	// The same in JSON.
 	js, err := res.MarshalIndent()
-	require.NoError(t, err)
-	require.Contains(t, string(js), `"idiom_cost": {`)
-	require.Contains(t, string(js), `"idiom": true`)
+	ensure.NoError(t, err)
+	ensure.Contains(t, string(js), `"idiom_cost": {`)
+	ensure.Contains(t, string(js), `"idiom": true`)
 	var back Result
-	require.NoError(t, json.Unmarshal(js, &back))
-	require.Equal(t, *ic, *back.Candidates[0].IdiomCost)
-	require.Equal(t, c.Edits, back.Candidates[0].Edits)
-	require.Equal(t, res.Idioms, back.Idioms)
+	ensure.NoError(t, json.Unmarshal(js, &back))
+	ensure.Equal(t, *ic, *back.Candidates[0].IdiomCost)
+	ensure.Equal(t, c.Edits, back.Candidates[0].Edits)
+	ensure.Equal(t, res.Idioms, back.Idioms)
 }
 
 // TestSlipNotExplainedByIdiom: a rotary port with a real slip (base 500000
@@ -116,18 +115,18 @@ func TestSlipNotExplainedByIdiom(t *testing.T) {
 		e := entryNamed(t, "rotary and scaling", c.name)
 		got := e.port(e.in)
 		ref, err := ops.Run(e.op, []byte(e.config), e.in)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		ys, err := ops.YardstickOf(e.op, []byte(`{"version":1,"angles":"float32-angles"}`), e.in, ref, e.format, compare.DefaultK)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		slip := normwise(ref["y"].Data, got["y"].Data)
 		tol := ys["y"].Tolerance.MaxNormwise
 		t.Logf("%s: the slip's normwise error %.3g, the float32-angles tolerance %.3g (%.0f times smaller)", c.name, slip, tol, slip/tol)
-		require.Less(t, 1e4*tol, slip, c.name)
+		ensure.Less(t, 1e4*tol, slip, c.name)
 
 		res := runEntry(t, e)
-		require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(c.want), "%s:\n%s", c.name, text(t, res))
+		ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(c.want), "%s:\n%s", c.name, text(t, res))
 		for _, p := range res.Candidates {
-			require.False(t, wantsIdiom(p), "%s: an idiom is listed:\n%s", c.name, text(t, res))
+			ensure.False(t, wantsIdiom(p), "%s: an idiom is listed:\n%s", c.name, text(t, res))
 		}
 	}
 }
@@ -162,9 +161,9 @@ func layerNorm64(in ops.Tensors, d int, eps float64) ops.Tensors {
 func TestConventionBeforeIdiom(t *testing.T) {
 	e := offset(normEntry("norms forward", "", "layernorm-forward", `{"version":1,"epsilon":1e-5}`, normPort{d: 16, eps: 1e-5}), 10)
 	res, err := Run(e.op, []byte(e.config), e.in, layerNorm64(e.in, 16, 1e-6), e.format, Options{})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	out := text(t, res)
-	require.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"epsilon": 0.000001`), out)
+	ensure.True(t, res.Candidates[0].Pass && res.Candidates[0].Names(`"epsilon": 0.000001`), out)
 	idiom := -1
 	for i, c := range res.Candidates {
 		if wantsIdiom(c) {
@@ -172,11 +171,11 @@ func TestConventionBeforeIdiom(t *testing.T) {
 			break
 		}
 	}
-	require.Greater(t, idiom, 0, "the one-pass variance is listed:\n%s", out)
-	require.True(t, res.Candidates[idiom].Pass, out)
-	require.Equal(t, `"variance": "one-pass"`, res.Candidates[idiom].Change)
+	ensure.Greater(t, idiom, 0, "the one-pass variance is listed:\n%s", out)
+	ensure.True(t, res.Candidates[idiom].Pass, out)
+	ensure.Equal(t, `"variance": "one-pass"`, res.Candidates[idiom].Change)
 	for _, c := range res.Candidates[:idiom] {
-		require.True(t, c.Pass && !wantsIdiom(c), "every passing convention change ranks before the idiom:\n%s", out)
+		ensure.True(t, c.Pass && !wantsIdiom(c), "every passing convention change ranks before the idiom:\n%s", out)
 	}
 }
 
@@ -193,21 +192,21 @@ func TestUnshiftedSoftmaxNaN(t *testing.T) {
 	in := ops.Tensors{"x": x}
 	got := ops.Tensors{"y": {Data: to64(softmaxIdiomPort(t32(in, "x"), 4, 64, 1, 256, nil, false))}}
 	res, err := Run("softmax", []byte(`{"version":1}`), in, got, compare.Float32, Options{})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	out := text(t, res)
-	require.True(t, math.IsInf(float64(res.Given.Normwise), 1), out)
-	require.Empty(t, res.Passing(), out)
+	ensure.True(t, math.IsInf(float64(res.Given.Normwise), 1), out)
+	ensure.Empty(t, res.Passing(), out)
 	for _, c := range res.Candidates {
-		require.False(t, wantsIdiom(c), "an idiom is listed:\n%s", out)
+		ensure.False(t, wantsIdiom(c), "an idiom is listed:\n%s", out)
 	}
 	found := false
 	for _, s := range res.Signatures {
 		if s.Along == "non-finite" && strings.Contains(s.Finding, `"softmax_shift": "none"`) {
 			found = true
-			require.Contains(t, s.Suggests, "no yardstick passes a NaN")
+			ensure.Contains(t, s.Suggests, "no yardstick passes a NaN")
 		}
 	}
-	require.True(t, found, out)
+	ensure.True(t, found, out)
 	t.Log(out)
 }
 
@@ -227,18 +226,18 @@ func TestVacuousIdiomYardstick(t *testing.T) {
 	}
 	got := ops.Tensors{"y": {Data: to64(y)}}
 	ref, err := ops.Run("softmax", []byte(`{"version":1}`), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	ys, err := ops.YardstickOf("softmax", []byte(`{"version":1,"softmax_shift":"none"}`), in, ref, compare.Float32, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	nw := normwise(ref["y"].Data, got["y"].Data)
-	require.Greater(t, ys["y"].Tolerance.MaxNormwise, vacuous)
-	require.Less(t, nw, ys["y"].Tolerance.MaxNormwise, "the slip is within the idiom's tolerance")
+	ensure.Greater(t, ys["y"].Tolerance.MaxNormwise, vacuous)
+	ensure.Less(t, nw, ys["y"].Tolerance.MaxNormwise, "the slip is within the idiom's tolerance")
 
 	res, err := Run("softmax", []byte(`{"version":1}`), in, got, compare.Float32, Options{})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	out := text(t, res)
-	require.False(t, res.Given.Pass, out)
+	ensure.False(t, res.Given.Pass, out)
 	for _, c := range res.Passing() {
-		require.False(t, wantsIdiom(c), "the vacuous idiom names the slipped port:\n%s", out)
+		ensure.False(t, wantsIdiom(c), "the vacuous idiom names the slipped port:\n%s", out)
 	}
 }

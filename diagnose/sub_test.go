@@ -6,8 +6,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/ops"
-	"github.com/stretchr/testify/require"
 )
 
 // TestSubProblemIsASlice: on every cut, the reference of the sub-problem
@@ -52,21 +52,21 @@ func TestSubProblemIsASlice(t *testing.T) {
 					x["dout"] = ops.Tensor{Shape: x["q"].Shape, Data: uniform(4, len(x["q"].Data), -1, 1)}
 				}
 				ref, err := ops.Run(op, cfg, x)
-				require.NoError(t, err, name)
+				ensure.NoError(t, err, name)
 				var m map[string]any
-				require.NoError(t, decode(cfg, &m))
+				ensure.NoError(t, decode(cfg, &m))
 				// Small enough that every axis is cut: one batch entry, four
 				// query heads, then queries.
 				sp := cut(op, m, x, ref, 600)
-				require.Equal(t, []string{"batch", "heads", "queries"}, sp.cuts, name)
+				ensure.Equal(t, []string{"batch", "heads", "queries"}, sp.cuts, name)
 				sub, err := runSub(mustLookup(t, op), sp, cfg)
-				require.NoError(t, err, name)
-				require.NotEmpty(t, sp.got, name)
+				ensure.NoError(t, err, name)
+				ensure.NotEmpty(t, sp.got, name)
 				for n, want := range sp.got {
-					require.Equal(t, want.Data, sub[n].Data, "%s: output %s of the sub-problem (%s)", name, n, sp.note)
+					ensure.Equal(t, want.Data, sub[n].Data, "%s: output %s of the sub-problem (%s)", name, n, sp.note)
 				}
 				if op == "attention-backward" {
-					require.Contains(t, sp.note, "outputs dbias, dk, dsinks, dv, which sum over what was cut, not compared", name)
+					ensure.Contains(t, sp.note, "outputs dbias, dk, dsinks, dv, which sum over what was cut, not compared", name)
 				}
 			}
 		}
@@ -88,23 +88,23 @@ func TestRowCutIsASlice(t *testing.T) {
 	} {
 		cfg := []byte(`{"version":1,"epsilon":1e-5}`)
 		ref, err := ops.Run(c.op, cfg, in)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		var m map[string]any
-		require.NoError(t, decode(cfg, &m))
+		ensure.NoError(t, decode(cfg, &m))
 		sp := cut(c.op, m, in, ref, c.limit)
-		require.Equal(t, []string{"rows"}, sp.cuts)
-		require.Equal(t, c.shape, sp.in["x"].Shape)
+		ensure.Equal(t, []string{"rows"}, sp.cuts)
+		ensure.Equal(t, c.shape, sp.in["x"].Shape)
 		sub, err := runSub(mustLookup(t, c.op), sp, cfg)
-		require.NoError(t, err)
-		require.Equal(t, sp.got["dx"].Data, sub["dx"].Data)
-		require.NotContains(t, sp.got, "dweight")
-		require.Contains(t, sp.note, "outputs dweight, which sum over the rows, not compared")
+		ensure.NoError(t, err)
+		ensure.Equal(t, sp.got["dx"].Data, sub["dx"].Data)
+		ensure.NotContains(t, sp.got, "dweight")
+		ensure.Contains(t, sp.note, "outputs dweight, which sum over the rows, not compared")
 	}
 }
 
 func mustLookup(t *testing.T, op string) ops.Op {
 	o, err := ops.Lookup(op)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return o
 }
 
@@ -124,26 +124,26 @@ func TestHeadCutKeepsBothGroupMaps(t *testing.T) {
 			found++
 			g, gs := h/hkv, len(qh)/len(kvh)
 			for j, q := range qh {
-				require.Equal(t, kvh[j/gs], q/g, "h %d, hkv %d: blocks, sub head %d = head %d", h, hkv, j, q)
-				require.Equal(t, kvh[j%len(kvh)], q%hkv, "h %d, hkv %d: cycle, sub head %d = head %d", h, hkv, j, q)
+				ensure.Equal(t, kvh[j/gs], q/g, "h %d, hkv %d: blocks, sub head %d = head %d", h, hkv, j, q)
+				ensure.Equal(t, kvh[j%len(kvh)], q%hkv, "h %d, hkv %d: cycle, sub head %d = head %d", h, hkv, j, q)
 			}
 			if g > 1 && hkv > 1 {
-				require.Equal(t, 2, gs, "h %d, hkv %d", h, hkv)
-				require.Len(t, kvh, 2, "h %d, hkv %d", h, hkv)
+				ensure.Equal(t, 2, gs, "h %d, hkv %d", h, hkv)
+				ensure.Len(t, kvh, 2, "h %d, hkv %d", h, hkv)
 			}
 		}
 	}
 	// 8 query heads on 2 kv heads: heads 0, 1 of group 0 read kv 0, 1
 	// under cycle, heads 4, 5 of group 1 (4 mod 2 = 0, 5 mod 2 = 1).
 	qh, kvh, ok := headCut(8, 2)
-	require.True(t, ok)
-	require.Equal(t, []int{0, 1, 4, 5}, qh)
-	require.Equal(t, []int{0, 1}, kvh)
+	ensure.True(t, ok)
+	ensure.Equal(t, []int{0, 1, 4, 5}, qh)
+	ensure.Equal(t, []int{0, 1}, kvh)
 	// 6 query heads on 3 kv heads: group 1 holds heads 2, 3, which read kv
 	// 2, 0 under cycle; no pair of groups reads itself in order, no cut.
 	_, _, ok = headCut(6, 3)
-	require.False(t, ok)
-	require.Greater(t, found, 50)
+	ensure.False(t, ok)
+	ensure.Greater(t, found, 50)
 }
 
 // TestRotaryCutIsASlice: on every cut of rotary-apply (the leading axis,
@@ -195,16 +195,16 @@ func TestRotaryCutIsASlice(t *testing.T) {
 		} {
 			name := fmt.Sprintf("%v, limit %d, %s", c.shape, c.limit, cfg)
 			ref, err := ops.Run("rotary-apply", []byte(cfg), in)
-			require.NoError(t, err, name)
+			ensure.NoError(t, err, name)
 			var m map[string]any
-			require.NoError(t, decode([]byte(cfg), &m))
+			ensure.NoError(t, decode([]byte(cfg), &m))
 			sp := cut("rotary-apply", m, in, ref, c.limit)
-			require.Equal(t, c.cuts, sp.cuts, name)
-			require.Equal(t, c.x, sp.in["x"].Shape, name)
-			require.LessOrEqual(t, elements(sp.in), max(c.limit, minPositions*D), name)
+			ensure.Equal(t, c.cuts, sp.cuts, name)
+			ensure.Equal(t, c.x, sp.in["x"].Shape, name)
+			ensure.LessOrEqual(t, elements(sp.in), max(c.limit, minPositions*D), name)
 			sub, err := runSub(mustLookup(t, "rotary-apply"), sp, []byte(cfg))
-			require.NoError(t, err, name)
-			require.Equal(t, sp.got["y"].Data, sub["y"].Data, "%s: the sub-problem (%s)", name, sp.note)
+			ensure.NoError(t, err, name)
+			ensure.Equal(t, sp.got["y"].Data, sub["y"].Data, "%s: the sub-problem (%s)", name, sp.note)
 			if strings.Contains(cfg, "positions") {
 				continue
 			}
@@ -213,13 +213,13 @@ func TestRotaryCutIsASlice(t *testing.T) {
 			off, _ := number(moved["offset"])
 			moved["offset"] = off + 2
 			b, err := json.Marshal(moved)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			whole, err := ops.Run("rotary-apply", b, in)
-			require.NoError(t, err, name)
+			ensure.NoError(t, err, name)
 			sub, err = runSub(mustLookup(t, "rotary-apply"), sp, b)
-			require.NoError(t, err, name)
+			ensure.NoError(t, err, name)
 			want := cut("rotary-apply", m, in, whole, c.limit).got["y"].Data
-			require.Equal(t, want, sub["y"].Data, "%s: offset moved on the sub-problem (%s)", name, sp.note)
+			ensure.Equal(t, want, sub["y"].Data, "%s: offset moved on the sub-problem (%s)", name, sp.note)
 		}
 	}
 
@@ -227,18 +227,18 @@ func TestRotaryCutIsASlice(t *testing.T) {
 	// evenly spread.
 	in := ops.Tensors{"x": tensor([]int{1, 2048, 8}, 6)}
 	ref, err := ops.Run("rotary-apply", []byte(`{"version":1}`), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	sp := cut("rotary-apply", map[string]any{}, in, ref, 160)
 	b, err := sp.run([]byte(`{"version":1}`))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var m struct{ Positions []int }
-	require.NoError(t, json.Unmarshal(b, &m))
-	require.Len(t, m.Positions, 20)
-	require.Equal(t, 0, m.Positions[0])
-	require.Equal(t, 2047, m.Positions[19])
+	ensure.NoError(t, json.Unmarshal(b, &m))
+	ensure.Len(t, m.Positions, 20)
+	ensure.Equal(t, 0, m.Positions[0])
+	ensure.Equal(t, 2047, m.Positions[19])
 	for i := 1; i < 20; i++ {
 		step := m.Positions[i] - m.Positions[i-1]
-		require.True(t, step == 2047/19 || step == 2047/19+1, "step %d at %d", step, i)
+		ensure.True(t, step == 2047/19 || step == 2047/19+1, "step %d at %d", step, i)
 	}
-	require.Equal(t, "20 of 2048 tokens spread over the length (0, 107, 215, …, 2047), at their positions in the whole problem (160 of 16384 input values)", sp.note)
+	ensure.Equal(t, "20 of 2048 tokens spread over the length (0, 107, 215, …, 2047), at their positions in the whole problem (160 of 16384 input values)", sp.note)
 }

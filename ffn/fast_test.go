@@ -7,9 +7,9 @@ import (
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
 
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -66,7 +66,7 @@ func TestFastIsDirect(t *testing.T) {
 		x32, dy32, w32 := num.Convert[float32](x), num.Convert[float32](dy), weights32(w)
 		want32 := layerOutputs(t, Forward32, Backward32, x32, dy32, d, w32, o)
 		got32 := layerOutputs(t, ForwardFast32, BackwardFast32, x32, dy32, d, w32, o)
-		require.Len(t, got, len(want))
+		ensure.Len(t, got, len(want))
 		bits := cmp.Comparer(func(a, b float64) bool { return math.Float64bits(a) == math.Float64bits(b) })
 		for name := range want {
 			if diff := cmp.Diff(want[name], got[name], bits); diff != "" {
@@ -96,17 +96,17 @@ func TestFastIndependentOfGOMAXPROCS(t *testing.T) {
 	run := func(procs int) ([]float64, []float64, Weights[float64]) {
 		defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
 		y, err := ForwardFast(x, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		dx, g, err := BackwardFast(x, dy, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		return y, dx, g
 	}
 	y1, dx1, g1 := run(1)
 	y4, dx4, g4 := run(4)
 	bits := cmp.Comparer(func(a, b float64) bool { return math.Float64bits(a) == math.Float64bits(b) })
-	assert.Empty(t, cmp.Diff(y1, y4, bits))
-	assert.Empty(t, cmp.Diff(dx1, dx4, bits))
-	assert.Empty(t, cmp.Diff(g1, g4, bits))
+	expect.Empty(t, cmp.Diff(y1, y4, bits))
+	expect.Empty(t, cmp.Diff(dx1, dx4, bits))
+	expect.Empty(t, cmp.Diff(g1, g4, bits))
 }
 
 func TestFastErrorsAndEmpty(t *testing.T) {
@@ -114,22 +114,22 @@ func TestFastErrorsAndEmpty(t *testing.T) {
 	w := Weights[float64]{W1: make([]float64, 6), V: make([]float64, 6), W2: make([]float64, 3)}
 	o := Options{Act: ActReLU, Gated: true, Layout: OutByIn}
 	y, err := ForwardFast(nil, d, w, o)
-	require.NoError(t, err)
-	assert.Empty(t, y)
+	ensure.NoError(t, err)
+	expect.Empty(t, y)
 	dx, g, err := BackwardFast(nil, nil, d, w, o)
-	require.NoError(t, err)
-	assert.Empty(t, dx)
-	assert.Equal(t, make([]float64, 6), g.V)
+	ensure.NoError(t, err)
+	expect.Empty(t, dx)
+	expect.Equal(t, make([]float64, 6), g.V)
 
 	d.Rows = 1
 	_, err = ForwardFast([]float64{1}, d, w, o)
-	assert.ErrorIs(t, err, ErrShape)
+	expect.ErrorIs(t, err, ErrShape)
 	_, _, err = BackwardFast([]float64{1, 2}, []float64{}, d, w, o)
-	assert.ErrorIs(t, err, ErrShape)
+	expect.ErrorIs(t, err, ErrShape)
 	_, err = ForwardFast32([]float32{1, 2}, d, Weights[float32]{}, o)
-	assert.ErrorIs(t, err, ErrWeightLen)
+	expect.ErrorIs(t, err, ErrWeightLen)
 	_, _, err = BackwardFast32([]float32{1, 2}, []float32{1}, d, Weights[float32]{W1: make([]float32, 6)}, Options{Act: ActSwish, Beta: math.NaN(), Layout: InByOut})
-	assert.ErrorIs(t, err, ErrBeta)
+	expect.ErrorIs(t, err, ErrBeta)
 }
 
 // Benchmarks at a realistic shape: 16 rows, model width 1024, hidden width
@@ -137,7 +137,7 @@ func TestFastErrorsAndEmpty(t *testing.T) {
 func benchLayer(b *testing.B) ([]float64, []float64, Dims, Weights[float64], Options) {
 	r := rand.New(rand.NewPCG(17, 18))
 	h, err := HiddenSize(1024, 256)
-	require.NoError(b, err)
+	ensure.NoError(b, err)
 	d := Dims{Rows: 16, In: 1024, Hidden: h, Out: 1024}
 	x, w := randLayer(r, d, true, false)
 	dy := make([]float64, d.Rows*d.Out)

@@ -7,9 +7,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -34,7 +33,7 @@ func TestWorkedValues(t *testing.T) {
 		{"SiLU(1) = σ(1)", SiLU(1), 0.7310585786300049, "[mpmath] 1/(1 + e^{−1}) = 0.731058578630004879"},
 	}
 	for _, tt := range tests {
-		assert.InDelta(t, tt.want, tt.got, bound*math.Abs(tt.want), "%s (source: %s)", tt.name, tt.source)
+		expect.InDelta(t, tt.want, tt.got, bound*math.Abs(tt.want), "%s (source: %s)", tt.name, tt.source)
 	}
 
 	// Shazeer 2020 Eq. (4), (5) with xW = 1, xV = 2: one input, one hidden
@@ -50,14 +49,14 @@ func TestWorkedValues(t *testing.T) {
 	for _, tt := range gated {
 		w := Weights[float64]{W1: []float64{1}, V: []float64{2}, W2: []float64{1}}
 		y, err := Forward([]float64{1}, Dims{1, 1, 1, 1}, w, Options{Act: tt.act, Gated: true, Layout: InByOut})
-		require.NoError(t, err)
-		assert.InDelta(t, tt.want, y[0], bound*tt.want, "%s with xW = 1, xV = 2 ([mpmath])", tt.name)
+		ensure.NoError(t, err)
+		expect.InDelta(t, tt.want, y[0], bound*tt.want, "%s with xW = 1, xV = 2 ([mpmath])", tt.name)
 	}
 
 	// Hidden-size rule [common practice]: d = 4096, m = 256 → 11008.
 	h, err := HiddenSize(4096, 256)
-	require.NoError(t, err)
-	assert.Equal(t, 11008, h)
+	ensure.NoError(t, err)
+	expect.Equal(t, 11008, h)
 }
 
 // The special cases listed in the documentation: each function at its
@@ -95,11 +94,11 @@ func TestSpecialCases(t *testing.T) {
 		for _, p := range tt.at {
 			got := tt.f(p.x)
 			if math.IsNaN(p.want) {
-				assert.True(t, math.IsNaN(got), "%s at %v = %v, want NaN", tt.name, p.x, got)
+				expect.True(t, math.IsNaN(got), "%s at %v = %v, want NaN", tt.name, p.x, got)
 				continue
 			}
 			// alike: equal bits, so that the sign of a zero counts
-			assert.Equal(t, math.Float64bits(p.want), math.Float64bits(got), "%s at %v = %v, want %v", tt.name, p.x, got, p.want)
+			expect.Equal(t, math.Float64bits(p.want), math.Float64bits(got), "%s at %v = %v, want %v", tt.name, p.x, got, p.want)
 		}
 	}
 }
@@ -111,12 +110,12 @@ func TestTailsSurviveCancellation(t *testing.T) {
 	x := -20.0
 	naiveExact := 0.5 * x * (1 + math.Erf(x/math.Sqrt2))
 	naiveTanh := 0.5 * x * (1 + math.Tanh(math.Sqrt(2/math.Pi)*(x+0.044715*x*x*x)))
-	require.Equal(t, 0.0, naiveExact, "the textbook form cancels (test premise)")
-	require.Equal(t, 0.0, naiveTanh, "the textbook form cancels (test premise)")
-	assert.Less(t, GELU(x), 0.0)
-	assert.Less(t, GELUTanh(x), 0.0)
+	ensure.Equal(t, 0.0, naiveExact, "the textbook form cancels (test premise)")
+	ensure.Equal(t, 0.0, naiveTanh, "the textbook form cancels (test premise)")
+	expect.Less(t, GELU(x), 0.0)
+	expect.Less(t, GELUTanh(x), 0.0)
 	// φ(−20)/20·(1 − 1/400 …) ≈ 5.5e-88 [mpmath: −5.507248237212467e-88]
-	assert.InDelta(t, -5.507248237212467e-88, GELU(x), 1e-15*5.5e-88)
+	expect.InDelta(t, -5.507248237212467e-88, GELU(x), 1e-15*5.5e-88)
 }
 
 // Identities of the activations that hold exactly in real arithmetic,
@@ -127,16 +126,16 @@ func TestActivationIdentities(t *testing.T) {
 	for range 2000 {
 		x := (r.Float64()*2 - 1) * 12
 		// σ(x) + σ(−x) = 1
-		assert.InDelta(t, 1, Sigmoid(x)+Sigmoid(-x), ulps)
+		expect.InDelta(t, 1, Sigmoid(x)+Sigmoid(-x), ulps)
 		// GELU(x) − GELU(−x) = x·(Φ(x) + Φ(−x)) = x
-		assert.InDelta(t, x, GELU(x)-GELU(-x), ulps*math.Abs(x)+ulps)
+		expect.InDelta(t, x, GELU(x)-GELU(-x), ulps*math.Abs(x)+ulps)
 		// SiLU is Swish with β = 1, the same body: bit-identical
-		assert.Equal(t, math.Float64bits(SiLU(x)), math.Float64bits(Swish(x, 1)))
+		expect.Equal(t, math.Float64bits(SiLU(x)), math.Float64bits(Swish(x, 1)))
 		// x·σ(βx) − (−x)·σ(−βx) = x for any β
 		b := r.Float64()*4 - 2
-		assert.InDelta(t, x, Swish(x, b)-Swish(-x, b), ulps*math.Abs(x)+ulps)
+		expect.InDelta(t, x, Swish(x, b)-Swish(-x, b), ulps*math.Abs(x)+ulps)
 		// ReLU(x) − ReLU(−x) = x exactly
-		assert.Equal(t, x, ReLU(x)-ReLU(-x))
+		expect.Equal(t, x, ReLU(x)-ReLU(-x))
 	}
 }
 
@@ -166,7 +165,7 @@ func TestDerivativesFiniteDifferences(t *testing.T) {
 				continue // the kink
 			}
 			want := centralDiff(f, x)
-			assert.InDelta(t, want, df(x), bound*(1+math.Abs(want)), "%v′(%v)", a, x)
+			expect.InDelta(t, want, df(x), bound*(1+math.Abs(want)), "%v′(%v)", a, x)
 		}
 	}
 }
@@ -256,20 +255,20 @@ func TestStorageFormsAreBitIdentical(t *testing.T) {
 			dy[i] = r.NormFloat64()
 		}
 		y, err := Forward(x, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		dx, g, err := Backward(x, dy, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 
 		// OutByIn, same order of arithmetic
 		ot := o
 		ot.Layout = OutByIn
 		y2, err := Forward(x, d, toOutByIn(w, d, false), ot)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		dx2, g2, err := Backward(x, dy, d, toOutByIn(w, d, false), ot)
-		require.NoError(t, err)
-		require.Equal(t, y, y2, "OutByIn forward")
-		require.Equal(t, dx, dx2, "OutByIn dx")
-		require.Equal(t, toOutByIn(g, d, false), g2, "OutByIn gradients")
+		ensure.NoError(t, err)
+		ensure.Equal(t, y, y2, "OutByIn forward")
+		ensure.Equal(t, dx, dx2, "OutByIn dx")
+		ensure.Equal(t, toOutByIn(g, d, false), g2, "OutByIn gradients")
 
 		if !o.Gated {
 			continue
@@ -286,16 +285,16 @@ func TestStorageFormsAreBitIdentical(t *testing.T) {
 				fo := o
 				fo.Layout, fo.Packing = layout, p
 				y3, err := Forward(x, d, fw, fo)
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				dx3, g3, err := Backward(x, dy, d, fw, fo)
-				require.NoError(t, err)
-				require.Equal(t, y, y3, "%v %v forward", p, layout)
-				require.Equal(t, dx, dx3, "%v %v dx", p, layout)
+				ensure.NoError(t, err)
+				ensure.Equal(t, y, y3, "%v %v forward", p, layout)
+				ensure.Equal(t, dx, dx3, "%v %v dx", p, layout)
 				want := Weights[float64]{Fused: fuse(g.W1, g.V, d.In, d.Hidden, p), FusedBias: fuse(g.B1, g.C, 1, d.Hidden, p), W2: g.W2, B2: g.B2}
 				if layout == OutByIn {
 					want = toOutByIn(want, d, true)
 				}
-				require.Equal(t, want, g3, "%v %v gradients", p, layout)
+				ensure.Equal(t, want, g3, "%v %v gradients", p, layout)
 			}
 		}
 	}
@@ -320,7 +319,7 @@ func TestBackwardFiniteDifferences(t *testing.T) {
 			dy := []float64{0.3, -1.1, 0.7, 0.25}
 			loss := func() float64 {
 				y, err := Forward(x, d, w, o)
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				s := 0.0
 				for i := range y {
 					s += y[i] * dy[i]
@@ -328,7 +327,7 @@ func TestBackwardFiniteDifferences(t *testing.T) {
 				return s
 			}
 			dx, g, err := Backward(x, dy, d, w, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			check := func(name string, p, grad []float64) {
 				for i := range p {
 					orig := p[i]
@@ -339,7 +338,7 @@ func TestBackwardFiniteDifferences(t *testing.T) {
 					down := loss()
 					p[i] = orig
 					fd := (up - down) / (2 * h)
-					assert.InDelta(t, fd, grad[i], bound*(1+math.Abs(fd)), "trial %d %v gated=%v: %s[%d]", trial, a, gated, name, i)
+					expect.InDelta(t, fd, grad[i], bound*(1+math.Abs(fd)), "trial %d %v gated=%v: %s[%d]", trial, a, gated, name, i)
 				}
 			}
 			check("x", x, dx)
@@ -364,16 +363,16 @@ func TestNilBiasGradients(t *testing.T) {
 	dy := []float64{1, -2, 0.5, 0.25, -1, 3}
 	o := Options{Act: ActSiLU, Gated: true, Layout: InByOut}
 	dx, g, err := Backward(x, dy, d, w, o)
-	require.NoError(t, err)
-	require.Len(t, g.B1, d.Hidden)
-	require.Len(t, g.C, d.Hidden)
-	require.Len(t, g.B2, d.Out)
+	ensure.NoError(t, err)
+	ensure.Len(t, g.B1, d.Hidden)
+	ensure.Len(t, g.C, d.Hidden)
+	ensure.Len(t, g.B2, d.Out)
 	wz := w
 	wz.B1, wz.C, wz.B2 = make([]float64, d.Hidden), make([]float64, d.Hidden), make([]float64, d.Out)
 	dxz, gz, err := Backward(x, dy, d, wz, o)
-	require.NoError(t, err)
-	assert.Equal(t, dx, dxz)
-	assert.Equal(t, g, gz)
+	ensure.NoError(t, err)
+	expect.Equal(t, dx, dxz)
+	expect.Equal(t, g, gz)
 }
 
 func TestHiddenSize(t *testing.T) {
@@ -388,22 +387,22 @@ func TestHiddenSize(t *testing.T) {
 	}
 	for _, tt := range tests {
 		h, err := HiddenSize(tt.d, tt.m)
-		require.NoError(t, err)
-		assert.Equal(t, tt.want, h, "d = %d, m = %d (%s)", tt.d, tt.m, tt.source)
+		ensure.NoError(t, err)
+		expect.Equal(t, tt.want, h, "d = %d, m = %d (%s)", tt.d, tt.m, tt.source)
 	}
 	// property: h is the least multiple of m that is ≥ 8d/3
 	r := rand.New(rand.NewPCG(11, 12))
 	for range 500 {
 		d, m := 1+r.IntN(1<<20), 1+r.IntN(1024)
 		h, err := HiddenSize(d, m)
-		require.NoError(t, err)
-		assert.Zero(t, h%m)
-		assert.GreaterOrEqual(t, 3*h, 8*d)
-		assert.Less(t, 3*(h-m), 8*d)
+		ensure.NoError(t, err)
+		expect.Zero(t, h%m)
+		expect.GreaterOrEqual(t, 3*h, 8*d)
+		expect.Less(t, 3*(h-m), 8*d)
 	}
 	for _, bad := range [][2]int{{0, 256}, {-1, 1}, {4096, 0}, {4096, -3}, {math.MaxInt / 2, 256}, {1, math.MaxInt}} {
 		_, err := HiddenSize(bad[0], bad[1])
-		assert.ErrorIs(t, err, ErrShape, "HiddenSize(%d, %d)", bad[0], bad[1])
+		expect.ErrorIs(t, err, ErrShape, "HiddenSize(%d, %d)", bad[0], bad[1])
 	}
 }
 
@@ -498,35 +497,35 @@ func TestErrors(t *testing.T) {
 	for _, tt := range tests {
 		for _, l := range layers {
 			err := l.run(tt.x, tt.d, tt.w, tt.o)
-			require.Error(t, err, "%s: %s", l.name, tt.name)
-			assert.ErrorIs(t, err, tt.err, "%s: %s: %v", l.name, tt.name, err)
-			assert.Equal(t, strings.Replace(tt.msg, ": Forward: ", ": "+l.name+": ", 1), err.Error(), "%s: %s", l.name, tt.name)
-			assert.Equal(t, 1, sentinels(err), "%s: %s: wraps exactly one sentinel: %v", l.name, tt.name, err)
+			ensure.Error(t, err, "%s: %s", l.name, tt.name)
+			expect.ErrorIs(t, err, tt.err, "%s: %s: %v", l.name, tt.name, err)
+			expect.Equal(t, strings.Replace(tt.msg, ": Forward: ", ": "+l.name+": ", 1), err.Error(), "%s: %s", l.name, tt.name)
+			expect.Equal(t, 1, sentinels(err), "%s: %s: wraps exactly one sentinel: %v", l.name, tt.name, err)
 		}
 	}
 
 	_, _, err := Backward(x, vec(9), d, plain, po)
-	assert.ErrorIs(t, err, ErrShape)
-	assert.EqualError(t, err, "ffn: invalid shape: Backward: dy has 9 elements; want Rows·Out = 2·5 = 10")
+	expect.ErrorIs(t, err, ErrShape)
+	expect.EqualError(t, err, "ffn: invalid shape: Backward: dy has 9 elements; want Rows·Out = 2·5 = 10")
 	_, _, err = BackwardFast32(to32(x), to32(vec(11)), d, weights32(plain), po)
-	assert.EqualError(t, err, "ffn: invalid shape: BackwardFast32: dy has 11 elements; want Rows·Out = 2·5 = 10")
+	expect.EqualError(t, err, "ffn: invalid shape: BackwardFast32: dy has 11 elements; want Rows·Out = 2·5 = 10")
 
 	// The vector forms name their arguments a and beta.
 	_, err = Activate([]float64{1}, ActSwish, math.NaN())
-	assert.ErrorIs(t, err, ErrBeta)
-	assert.EqualError(t, err, "ffn: invalid beta: Activate: beta = NaN; want a finite number (the Swish β)")
+	expect.ErrorIs(t, err, ErrBeta)
+	expect.EqualError(t, err, "ffn: invalid beta: Activate: beta = NaN; want a finite number (the Swish β)")
 	_, err = Activate([]float64{1}, 99, 0)
-	assert.ErrorIs(t, err, ErrOption)
-	assert.EqualError(t, err, "ffn: invalid option: Activate: a = 99; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity")
+	expect.ErrorIs(t, err, ErrOption)
+	expect.EqualError(t, err, "ffn: invalid option: Activate: a = 99; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity")
 	_, err = ActivateGrad32([]float32{1}, []float32{1}, ActIdentity+1, 0)
-	assert.ErrorIs(t, err, ErrOption)
-	assert.EqualError(t, err, "ffn: invalid option: ActivateGrad32: a = 8; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity")
+	expect.ErrorIs(t, err, ErrOption)
+	expect.EqualError(t, err, "ffn: invalid option: ActivateGrad32: a = 8; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity")
 	_, err = ActivateGrad([]float64{1, 2}, []float64{1}, ActReLU, 0)
-	assert.ErrorIs(t, err, ErrShape)
-	assert.EqualError(t, err, "ffn: invalid shape: ActivateGrad: dy has 1 elements; want len(x) = 2")
+	expect.ErrorIs(t, err, ErrShape)
+	expect.EqualError(t, err, "ffn: invalid shape: ActivateGrad: dy has 1 elements; want len(x) = 2")
 	_, err = Activate32([]float32{1}, ActGELU, 2)
-	assert.ErrorIs(t, err, ErrBeta)
-	assert.EqualError(t, err, "ffn: invalid beta: Activate32: beta = 2; want 0: activation gelu has no β (only swish takes one)")
+	expect.ErrorIs(t, err, ErrBeta)
+	expect.EqualError(t, err, "ffn: invalid beta: Activate32: beta = 2; want 0: activation gelu has no β (only swish takes one)")
 }
 
 // sentinels counts the package's sentinel errors err wraps.
@@ -544,12 +543,12 @@ func TestEmptyRows(t *testing.T) {
 	d := Dims{Rows: 0, In: 2, Hidden: 3, Out: 1}
 	w := Weights[float64]{W1: make([]float64, 6), W2: make([]float64, 3)}
 	y, err := Forward(nil, d, w, Options{Act: ActReLU, Layout: InByOut})
-	require.NoError(t, err)
-	assert.Empty(t, y)
+	ensure.NoError(t, err)
+	expect.Empty(t, y)
 	dx, g, err := Backward(nil, nil, d, w, Options{Act: ActReLU, Layout: InByOut})
-	require.NoError(t, err)
-	assert.Empty(t, dx)
-	assert.Equal(t, make([]float64, 6), g.W1)
+	ensure.NoError(t, err)
+	expect.Empty(t, dx)
+	expect.Equal(t, make([]float64, 6), g.W1)
 }
 
 // TestZeroOptions checks the documented zero values: Options{} is the plain
@@ -557,10 +556,10 @@ func TestEmptyRows(t *testing.T) {
 // fused gate-up matrix with the zero Packing is stacked.
 func TestZeroOptions(t *testing.T) {
 	var o Options
-	assert.Equal(t, ActReLU, o.Act)
-	assert.Equal(t, InByOut, o.Layout)
-	assert.Equal(t, GateUpStacked, o.Packing)
-	assert.False(t, o.Gated)
+	expect.Equal(t, ActReLU, o.Act)
+	expect.Equal(t, InByOut, o.Layout)
+	expect.Equal(t, GateUpStacked, o.Packing)
+	expect.False(t, o.Gated)
 
 	// x = (1, −2); W1 = [[1, 2], [3, −1]] as [in, out]: x·W1 = (−5, 4),
 	// ReLU gives (0, 4); W2 = [0.5, 0.25] as [hidden, out], b2 = 0.125:
@@ -569,19 +568,19 @@ func TestZeroOptions(t *testing.T) {
 	d := Dims{Rows: 1, In: 2, Hidden: 2, Out: 1}
 	w := Weights[float64]{W1: []float64{1, 2, 3, -1}, W2: []float64{0.5, 0.25}, B2: []float64{0.125}}
 	y, err := Forward([]float64{1, -2}, d, w, Options{})
-	require.NoError(t, err)
-	assert.Equal(t, []float64{1.125}, y)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{1.125}, y)
 	y, err = Forward([]float64{1, -2}, d, w, Options{Layout: OutByIn})
-	require.NoError(t, err)
-	assert.Equal(t, []float64{1.375}, y)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{1.375}, y)
 	yf, err := ForwardFast([]float64{1, -2}, d, w, Options{})
-	require.NoError(t, err)
-	assert.Equal(t, []float64{1.125}, yf)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{1.125}, yf)
 
 	// ReLU is the zero Act of the vector forms too.
 	a, err := Activate([]float64{-1, 0, 2.5}, 0, 0)
-	require.NoError(t, err)
-	assert.Equal(t, []float64{0, 0, 2.5}, a)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{0, 0, 2.5}, a)
 
 	// The zero Packing reads a fused matrix as all gate units, then all
 	// value units: the same layer as the separate W1 and V.
@@ -591,22 +590,22 @@ func TestZeroOptions(t *testing.T) {
 	fused := Weights[float64]{Fused: fuse(sep.W1, sep.V, dg.In, dg.Hidden, GateUpStacked),
 		FusedBias: append(append([]float64(nil), sep.B1...), sep.C...), W2: sep.W2, B2: sep.B2}
 	ys, err := Forward(x, dg, sep, Options{Act: ActSiLU, Gated: true})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	yz, err := Forward(x, dg, fused, Options{Act: ActSiLU, Gated: true})
-	require.NoError(t, err)
-	assert.Equal(t, ys, yz)
+	ensure.NoError(t, err)
+	expect.Equal(t, ys, yz)
 }
 
 func TestStrings(t *testing.T) {
-	assert.Equal(t, "gelu-tanh", ActGELUTanh.String())
-	assert.Equal(t, "relu", Act(0).String())
-	assert.Equal(t, "Act(99)", Act(99).String())
-	assert.Equal(t, "in-by-out", Layout(0).String())
-	assert.Equal(t, "out-by-in", OutByIn.String())
-	assert.Equal(t, "Layout(2)", Layout(2).String())
-	assert.Equal(t, "stacked", Packing(0).String())
-	assert.Equal(t, "interleaved", GateUpInterleaved.String())
-	assert.Equal(t, "Packing(7)", Packing(7).String())
+	expect.Equal(t, "gelu-tanh", ActGELUTanh.String())
+	expect.Equal(t, "relu", Act(0).String())
+	expect.Equal(t, "Act(99)", Act(99).String())
+	expect.Equal(t, "in-by-out", Layout(0).String())
+	expect.Equal(t, "out-by-in", OutByIn.String())
+	expect.Equal(t, "Layout(2)", Layout(2).String())
+	expect.Equal(t, "stacked", Packing(0).String())
+	expect.Equal(t, "interleaved", GateUpInterleaved.String())
+	expect.Equal(t, "Packing(7)", Packing(7).String())
 }
 
 // TestWords checks the words of Act, Layout and Packing: every constant has
@@ -615,25 +614,25 @@ func TestStrings(t *testing.T) {
 // alone. (Every word's round trip, for every convention, is checked in
 // internal/vocab.)
 func TestWords(t *testing.T) {
-	assert.Equal(t, []Act{ActReLU, ActGELU, ActGELUTanh, ActGELUSigmoid, ActSigmoid, ActSiLU, ActSwish, ActIdentity}, Act(0).Values())
-	assert.Equal(t, []Layout{InByOut, OutByIn}, Layout(0).Values())
-	assert.Equal(t, []Packing{GateUpStacked, GateUpInterleaved}, Packing(0).Values())
+	expect.Equal(t, []Act{ActReLU, ActGELU, ActGELUTanh, ActGELUSigmoid, ActSigmoid, ActSiLU, ActSwish, ActIdentity}, Act(0).Values())
+	expect.Equal(t, []Layout{InByOut, OutByIn}, Layout(0).Values())
+	expect.Equal(t, []Packing{GateUpStacked, GateUpInterleaved}, Packing(0).Values())
 	a := ActSwish
 	err := a.UnmarshalText([]byte("gelu_tanh"))
-	require.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
-	assert.Equal(t, `ffn: invalid option: activation = "gelu_tanh"; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity`, err.Error())
-	assert.Equal(t, ActSwish, a)
+	ensure.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
+	expect.Equal(t, `ffn: invalid option: activation = "gelu_tanh"; want one of relu, gelu, gelu-tanh, gelu-sigmoid, sigmoid, silu, swish, identity`, err.Error())
+	expect.Equal(t, ActSwish, a)
 	var l Layout
-	require.NoError(t, l.UnmarshalText([]byte(" OUT-BY-IN ")), "words are read without regard to case and surrounding space")
-	assert.Equal(t, OutByIn, l)
-	assert.ErrorIs(t, l.UnmarshalText([]byte("in_by_out")), ErrOption)
-	assert.Equal(t, OutByIn, l)
+	ensure.NoError(t, l.UnmarshalText([]byte(" OUT-BY-IN ")), "words are read without regard to case and surrounding space")
+	expect.Equal(t, OutByIn, l)
+	expect.ErrorIs(t, l.UnmarshalText([]byte("in_by_out")), ErrOption)
+	expect.Equal(t, OutByIn, l)
 	var p Packing
-	assert.ErrorIs(t, p.UnmarshalText([]byte("GateUpInterleaved")), ErrOption)
+	expect.ErrorIs(t, p.UnmarshalText([]byte("GateUpInterleaved")), ErrOption)
 	_, err = Act(99).MarshalText()
-	assert.ErrorIs(t, err, ErrOption)
-	assert.ErrorIs(t, Layout(2).Check(), ErrOption)
-	assert.ErrorIs(t, Packing(2).Check(), ErrOption)
+	expect.ErrorIs(t, err, ErrOption)
+	expect.ErrorIs(t, Layout(2).Check(), ErrOption)
+	expect.ErrorIs(t, Packing(2).Check(), ErrOption)
 }
 
 // FuzzForward: any sizes and slice lengths give either an error wrapping

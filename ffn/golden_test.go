@@ -5,9 +5,8 @@ import (
 	"os"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 )
@@ -51,8 +50,8 @@ type actConfig struct {
 func decodeActConfig(t *testing.T, c *golden.Case) actConfig {
 	t.Helper()
 	var cfg actConfig
-	require.NoError(t, c.DecodeConfig(&cfg))
-	require.Contains(t, []string{"core", "tail", "far"}, cfg.Part, c.String())
+	ensure.NoError(t, c.DecodeConfig(&cfg))
+	ensure.Contains(t, []string{"core", "tail", "far"}, cfg.Part, c.String())
 	return cfg
 }
 
@@ -88,7 +87,7 @@ func scalarFuncs(a Act, beta float64) (f, df func(float64) float64) {
 func tensor[V any](t *testing.T, c *golden.Case, name string, get func(string) (V, []int, error)) V {
 	t.Helper()
 	v, _, err := get(name)
-	require.NoError(t, err, "%s: tensor %s", c, name)
+	ensure.NoError(t, err, "%s: tensor %s", c, name)
 	return v
 }
 
@@ -155,19 +154,19 @@ func TestGoldenActivations(t *testing.T) {
 			x, wantY, wantD := tensor(t, c, "x", c.Float), tensor(t, c, "y", c.Float), tensor(t, c, "dydx", c.Float)
 
 			y, err := Activate(x, a, beta)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			ones := make([]float64, len(x))
 			for i := range ones {
 				ones[i] = 1
 			}
 			d, err := ActivateGrad(x, ones, a, beta)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 
 			// the scalar functions are the same bodies: bit-identical
 			sf, sdf := scalarFuncs(a, beta)
 			for i, xi := range x {
-				require.Equal(t, math.Float64bits(y[i]), math.Float64bits(sf(xi)), "scalar value at x = %v", xi)
-				require.Equal(t, math.Float64bits(d[i]), math.Float64bits(sdf(xi)), "scalar derivative at x = %v", xi)
+				ensure.Equal(t, math.Float64bits(y[i]), math.Float64bits(sf(xi)), "scalar value at x = %v", xi)
+				ensure.Equal(t, math.Float64bits(d[i]), math.Float64bits(sdf(xi)), "scalar derivative at x = %v", xi)
 			}
 
 			key := a.String()
@@ -175,8 +174,8 @@ func TestGoldenActivations(t *testing.T) {
 			case "core":
 				ey := golden.NormwiseRelErr(y, wantY)
 				ed := golden.NormwiseRelErr(d, wantD)
-				assert.LessOrEqual(t, ey, actCoreBound, golden.Describe(c, "y", ey, actCoreBound))
-				assert.LessOrEqual(t, ed, actCoreBound, golden.Describe(c, "dydx", ed, actCoreBound))
+				expect.LessOrEqual(t, ey, actCoreBound, golden.Describe(c, "y", ey, actCoreBound))
+				expect.LessOrEqual(t, ed, actCoreBound, golden.Describe(c, "dydx", ed, actCoreBound))
 				actAccuracy.Note(key, cfg.Part, ey)
 				actAccuracy.Note(key+" derivative", cfg.Part, ed)
 			case "tail", "far":
@@ -186,8 +185,8 @@ func TestGoldenActivations(t *testing.T) {
 				// 1e-282): the same relative bound as the tails.
 				ey := maxRelErr(y, wantY)
 				ed := maxRelErr(d, wantD)
-				assert.LessOrEqual(t, ey, actTailBound, "%s: y: largest relative error %.3g in the %s part exceeds %.3g", c, ey, cfg.Part, actTailBound)
-				assert.LessOrEqual(t, ed, actTailBound, "%s: dydx: largest relative error %.3g in the %s part exceeds %.3g", c, ed, cfg.Part, actTailBound)
+				expect.LessOrEqual(t, ey, actTailBound, "%s: y: largest relative error %.3g in the %s part exceeds %.3g", c, ey, cfg.Part, actTailBound)
+				expect.LessOrEqual(t, ed, actTailBound, "%s: dydx: largest relative error %.3g in the %s part exceeds %.3g", c, ed, cfg.Part, actTailBound)
 				actAccuracy.Note(key, cfg.Part, ey)
 				actAccuracy.Note(key+" derivative", cfg.Part, ed)
 			default:
@@ -200,12 +199,12 @@ func TestGoldenActivations(t *testing.T) {
 				x32[i] = float32(v)
 			}
 			y32, err := Activate32(x32, a, beta)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for i := range y32 {
 				if cfg.Part != "core" || math.Abs(x[i]) < 1e-30 {
 					continue // float32 underflows on these inputs
 				}
-				assert.InDelta(t, wantY[i], float64(y32[i]), 1e-6*(1+math.Abs(wantY[i])), "float32 at x = %v", x[i])
+				expect.InDelta(t, wantY[i], float64(y32[i]), 1e-6*(1+math.Abs(wantY[i])), "float32 at x = %v", x[i])
 			}
 		})
 	}
@@ -233,9 +232,9 @@ type layerConfig struct {
 func decodeLayerConfig(t *testing.T, c *golden.Case) layerConfig {
 	t.Helper()
 	var cfg layerConfig
-	require.NoError(t, c.DecodeConfig(&cfg))
-	require.Contains(t, []string{"separate", "fused"}, cfg.Storage, c.String())
-	require.Equal(t, cfg.Storage == "fused", cfg.Packing != nil, "%s: a packing with a fused weight, and only then", c)
+	ensure.NoError(t, c.DecodeConfig(&cfg))
+	ensure.Contains(t, []string{"separate", "fused"}, cfg.Storage, c.String())
+	ensure.Equal(t, cfg.Storage == "fused", cfg.Packing != nil, "%s: a packing with a fused weight, and only then", c)
 	return cfg
 }
 
@@ -269,7 +268,7 @@ func loadLayer(t *testing.T, c *golden.Case) goldenLayer {
 	g.x, g.dy = get("x"), get("dy")
 	g.w = Weights[float64]{W1: get("w1"), B1: get("b1"), V: get("v"), C: get("c"),
 		Fused: get("fused"), FusedBias: get("fused_bias"), W2: get("w2"), B2: get("b2")}
-	require.Equal(t, cfg.Storage == "fused", g.w.Fused != nil, "%s: storage %q and the fused input", c, cfg.Storage)
+	ensure.Equal(t, cfg.Storage == "fused", g.w.Fused != nil, "%s: storage %q and the fused input", c, cfg.Storage)
 	for name := range c.Outputs {
 		g.want[name] = get(name)
 	}
@@ -301,9 +300,9 @@ func layerOutputs[T num.Float](t *testing.T, fwd func([]T, Dims, Weights[T], Opt
 	bwd func([]T, []T, Dims, Weights[T], Options) ([]T, Weights[T], error), x, dy []T, d Dims, w Weights[T], o Options) map[string][]float64 {
 	t.Helper()
 	y, err := fwd(x, d, w, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	dx, g, err := bwd(x, dy, d, w, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	out := map[string][]float64{"y": num.Convert[float64](y)}
 	for name, v := range gradsByName(dx, g) {
 		out[name] = num.Convert[float64](v)
@@ -329,11 +328,11 @@ func testGoldenLayers(t *testing.T, family string) {
 				{" (float32)", "32", layer32Bound, layerOutputs(t, Forward32, Backward32, x32, dy32, g.d, w32, g.o)},
 				{" (float32, fast form)", "Fast32", layer32Bound, layerOutputs(t, ForwardFast32, BackwardFast32, x32, dy32, g.d, w32, g.o)},
 			}
-			require.Len(t, forms[0].got, len(g.want), "outputs: got %v", mapKeys(forms[0].got))
+			ensure.Len(t, forms[0].got, len(g.want), "outputs: got %v", mapKeys(forms[0].got))
 			for _, form := range forms {
 				for name, want := range g.want {
 					e := golden.NormwiseRelErr(form.got[name], want)
-					assert.LessOrEqual(t, e, form.bound, golden.Describe(c, name+form.label, e, form.bound))
+					expect.LessOrEqual(t, e, form.bound, golden.Describe(c, name+form.label, e, form.bound))
 					switch name {
 					case "y":
 						layerAccuracy.Note("Forward"+form.row, "y", e)
@@ -377,7 +376,7 @@ func TestGoldenWords(t *testing.T) {
 		}
 	}
 	// Forward's documentation states the plain and gated counts.
-	assert.Equal(t, map[string]int{"activations": 32, "plain": 34, "gated": 48}, count)
+	expect.Equal(t, map[string]int{"activations": 32, "plain": 34, "gated": 48}, count)
 	words.Require(t, "ffn.Act", "ffn.Layout", "ffn.Packing")
 }
 
@@ -386,7 +385,7 @@ func TestGoldenHiddenSize(t *testing.T) {
 	for _, c := range f.Cases {
 		d, m, want := tensor(t, c, "d", c.Ints), tensor(t, c, "m", c.Ints), tensor(t, c, "hidden", c.Ints)
 		h, err := HiddenSize(int(d[0]), int(m[0]))
-		require.NoError(t, err, c.String())
-		assert.Equal(t, int(want[0]), h, c.String())
+		ensure.NoError(t, err, c.String())
+		expect.Equal(t, int(want[0]), h, c.String())
 	}
 }

@@ -5,9 +5,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 )
@@ -58,8 +57,8 @@ func TestAccumulationIsThePort(t *testing.T) {
 		}
 	}
 	got, err := Forward32(x, d, w, Options{Accumulation: AccumulateBFloat16})
-	require.NoError(t, err)
-	assert.Equal(t, want, got)
+	ensure.NoError(t, err)
+	expect.Equal(t, want, got)
 }
 
 // TestAccumulationCostsItsFormat: on random layers of 64 inputs, 96 hidden
@@ -75,7 +74,7 @@ func TestAccumulationCostsItsFormat(t *testing.T) {
 		o := Options{Act: ActSiLU, Gated: gated}
 		x, w, x32, w32 := to32(randLayer(r, d, gated, true))
 		want, err := Forward(x, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for _, c := range []struct {
 			a      Accumulation
 			lo, hi float64
@@ -86,10 +85,10 @@ func TestAccumulationCostsItsFormat(t *testing.T) {
 		} {
 			o.Accumulation = c.a
 			got, err := Forward32(x32, d, w32, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			e := golden.NormwiseRelErr(num.Convert[float64](got), want)
 			t.Logf("gated %v, %v accumulation: normwise error %.3g (2^%.1f)", gated, c.a, e, math.Log2(e))
-			assert.True(t, e > c.lo && e <= c.hi, "gated %v, %v: normwise error %.3g; want in (%.3g, %.3g]", gated, c.a, e, c.lo, c.hi)
+			expect.True(t, e > c.lo && e <= c.hi, "gated %v, %v: normwise error %.3g; want in (%.3g, %.3g]", gated, c.a, e, c.lo, c.hi)
 		}
 	}
 }
@@ -114,22 +113,22 @@ func TestAccumulationLeavesTheReference(t *testing.T) {
 		var res result
 		var err error
 		res.y, err = Forward(x, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.dx, res.g, err = Backward(x, dy, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.f32, err = ForwardFast32(x32, d, w32, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		res.dx32, res.g32, err = Backward32(x32, dy32, d, w32, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		_, res.fastG32, err = BackwardFast32(x32, dy32, d, w32, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		return res
 	}
 	plain := run(AccumulateFloat32)
 	for _, a := range AccumulateFloat32.Values() {
-		assert.Equal(t, plain, run(a), "%v", a)
+		expect.Equal(t, plain, run(a), "%v", a)
 	}
 	_, err := Forward32(x32, d, w32, Options{Accumulation: 5})
-	assert.ErrorIs(t, err, ErrOption)
-	assert.EqualError(t, err, "ffn: invalid option: Forward32: Options.Accumulation = 5; want one of float32, bfloat16, binary16")
+	expect.ErrorIs(t, err, ErrOption)
+	expect.EqualError(t, err, "ffn: invalid option: Forward32: Options.Accumulation = 5; want one of float32, bfloat16, binary16")
 }

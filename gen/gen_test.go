@@ -5,10 +5,9 @@ import (
 	"math"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/gen"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // plumb gen's values are pinned against the command's files in
@@ -20,55 +19,55 @@ func TestPrefixesAndSeeds(t *testing.T) {
 	// A shorter tensor is a prefix of a longer one of the same seed, an odd
 	// count included (the last value takes the cosine and drops the sine).
 	z, err := gen.Normal(7, 1001, 0, 1)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, n := range []int{0, 1, 2, 3, 1000} {
 		p, err := gen.Normal(7, n, 0, 1)
-		require.NoError(t, err)
-		assert.Equal(t, z[:n], p, "n = %d", n)
+		ensure.NoError(t, err)
+		expect.Equal(t, z[:n], p, "n = %d", n)
 	}
 	u, err := gen.Uniform(7, 1001, 0, 1)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	p, err := gen.Uniform(7, 3, 0, 1)
-	require.NoError(t, err)
-	assert.Equal(t, u[:3], p)
+	ensure.NoError(t, err)
+	expect.Equal(t, u[:3], p)
 
 	// Another seed, other numbers; the same seed, the same numbers.
 	z8, err := gen.Normal(8, 1001, 0, 1)
-	require.NoError(t, err)
-	assert.NotEqual(t, z[:4], z8[:4])
+	ensure.NoError(t, err)
+	expect.NotEqual(t, z[:4], z8[:4])
 	again, err := gen.Normal(7, 1001, 0, 1)
-	require.NoError(t, err)
-	assert.Equal(t, z, again)
+	ensure.NoError(t, err)
+	expect.Equal(t, z, again)
 
 	// Standard normal and uniform [0, 1): the sample moments, loosely.
 	var sum, sq float64
 	for i, v := range z {
 		sum += v
 		sq += float64(v * v)
-		assert.True(t, u[i] >= 0 && u[i] < 1, "u[%d] = %v", i, u[i])
+		expect.True(t, u[i] >= 0 && u[i] < 1, "u[%d] = %v", i, u[i])
 	}
-	assert.InDelta(t, 0, sum/1001, 0.1)
-	assert.InDelta(t, 1, sq/1001, 0.15)
+	expect.InDelta(t, 0, sum/1001, 0.1)
+	expect.InDelta(t, 1, sq/1001, 0.15)
 }
 
 // TestScaled: mean + std·z and low + (high − low)·u, each product rounded
 // before the addition, as the command's help states.
 func TestScaled(t *testing.T) {
 	z, err := gen.Normal(3, 101, 0, 1)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	s, err := gen.Normal(3, 101, 2, 0.3)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	c, err := gen.Normal(3, 5, -4, 0)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	u, err := gen.Uniform(3, 101, 0, 1)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	w, err := gen.Uniform(3, 101, -1.5, 0.25)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i := range z {
-		assert.Equal(t, 2+float64(0.3*z[i]), s[i], "normal %d", i)
-		assert.Equal(t, -1.5+float64(1.75*u[i]), w[i], "uniform %d", i)
+		expect.Equal(t, 2+float64(0.3*z[i]), s[i], "normal %d", i)
+		expect.Equal(t, -1.5+float64(1.75*u[i]), w[i], "uniform %d", i)
 	}
-	assert.Equal(t, []float64{-4, -4, -4, -4, -4}, c, "std 0: the mean")
+	expect.Equal(t, []float64{-4, -4, -4, -4, -4}, c, "std 0: the mean")
 }
 
 func TestErrors(t *testing.T) {
@@ -89,13 +88,13 @@ func TestErrors(t *testing.T) {
 		{"high Inf", func() ([]float64, error) { return gen.Uniform(1, 2, 0, inf) }, "high = +Inf;"},
 	} {
 		x, err := c.call()
-		assert.Nil(t, x, c.name)
-		if assert.Error(t, err, c.name) {
-			assert.True(t, errors.Is(err, gen.ErrParameter), "%s: %v", c.name, err)
-			assert.Contains(t, err.Error(), c.want, c.name)
+		expect.Nil(t, x, c.name)
+		if expect.Error(t, err, c.name) {
+			expect.True(t, errors.Is(err, gen.ErrParameter), "%s: %v", c.name, err)
+			expect.Contains(t, err.Error(), c.want, c.name)
 		}
 	}
 	x, err := gen.Uniform(1, 0, 0, 1)
-	require.NoError(t, err)
-	assert.Empty(t, x)
+	ensure.NoError(t, err)
+	expect.Empty(t, x)
 }

@@ -4,8 +4,8 @@ import (
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
-	"github.com/stretchr/testify/require"
 
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -65,44 +65,44 @@ func effectOf(m Mask, cfg goldenConfig) inEffect {
 // a case where it changes the mask (golden.Words).
 func TestGolden(t *testing.T) {
 	f := golden.MustLoadFamily(t, "mask", "kinds")
-	require.Len(t, f.Cases, goldenCases)
+	ensure.Len(t, f.Cases, goldenCases)
 	var noted, effective golden.Words
 	for _, c := range f.Cases {
 		var cfg goldenConfig
-		require.NoError(t, c.DecodeConfig(&cfg))
+		ensure.NoError(t, c.DecodeConfig(&cfg))
 		noted.Note(cfg)
 		t.Run(c.Name, func(t *testing.T) {
 			m, err := Build(cfg.Mask)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			effective.Note(effectOf(m, cfg))
 			g := cfg.geometry()
 
 			wantVis, shape, err := c.Bools("visible")
-			require.NoError(t, err)
-			require.Equal(t, []int{g.Batch, g.Lq, g.Lk}, shape)
+			ensure.NoError(t, err)
+			ensure.Equal(t, []int{g.Batch, g.Lq, g.Lk}, shape)
 			vis, err := m.Visible(g)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			if d := cmp.Diff(wantVis, vis); d != "" {
 				t.Fatalf("%s on %v: visible differs (-want +got):\n%s", m, g, d)
 			}
 
 			wantBias, _, err := c.Float("bias")
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			var bias []float64
 			if cfg.Fill != nil {
 				bias, err = m.BiasFill(g, *cfg.Fill)
 			} else {
 				bias, err = m.Bias(g)
 			}
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			if d := cmp.Diff(wantBias, bias); d != "" {
 				t.Fatalf("%s on %v: bias differs (-want +got):\n%s", m, g, d)
 			}
 
 			wantEmpty, _, err := c.Ints("empty_rows")
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			rows, err := m.EmptyRows(g)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			got := []int64{}
 			for _, r := range rows {
 				got = append(got, int64(r.Batch), int64(r.Query))
@@ -114,8 +114,8 @@ func TestGolden(t *testing.T) {
 			for k, want := range wantVis {
 				b, i, j := k/(g.Lq*g.Lk), k/g.Lk%g.Lq, k%g.Lk
 				s, err := m.Sees(g, b, i, j)
-				require.NoError(t, err)
-				require.Equal(t, want, s, "Sees(%d, %d, %d)", b, i, j)
+				ensure.NoError(t, err)
+				ensure.Equal(t, want, s, "Sees(%d, %d, %d)", b, i, j)
 			}
 		})
 	}
@@ -136,6 +136,6 @@ func TestGoldenConfigStrict(t *testing.T) {
 	} {
 		c.Config = []byte(bad)
 		var cfg goldenConfig
-		require.Error(t, c.DecodeConfig(&cfg), bad)
+		ensure.Error(t, c.DecodeConfig(&cfg), bad)
 	}
 }

@@ -7,15 +7,15 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // must stops the test on a constructor error: must(t)(Window(3)).
 func must(t testing.TB) func(Mask, error) Mask {
 	return func(m Mask, err error) Mask {
 		t.Helper()
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		return m
 	}
 }
@@ -23,7 +23,7 @@ func must(t testing.TB) func(Mask, error) Mask {
 func vis(t testing.TB, m Mask, g Geometry) []bool {
 	t.Helper()
 	v, err := m.Visible(g)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return v
 }
 
@@ -37,12 +37,12 @@ func TestWindowExample(t *testing.T) {
 	var seen []int
 	for j := 0; j < 8; j++ {
 		s, err := m.Sees(g, 0, 5, j)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		if s {
 			seen = append(seen, j)
 		}
 	}
-	assert.Equal(t, []int{3, 4, 5}, seen)
+	expect.Equal(t, []int{3, 4, 5}, seen)
 }
 
 func TestErrors(t *testing.T) {
@@ -125,8 +125,8 @@ func TestErrors(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			require.ErrorIs(t, tc.err, tc.sentinel)
-			assert.EqualError(t, tc.err, tc.want)
+			ensure.ErrorIs(t, tc.err, tc.sentinel)
+			expect.EqualError(t, tc.err, tc.want)
 		})
 	}
 }
@@ -136,33 +136,33 @@ func TestErrors(t *testing.T) {
 func TestPositionFreeMasksTakeAnyLengths(t *testing.T) {
 	g := Geometry{Batch: 2, Lq: 7, Lk: 3, Align: AlignStart, Offset: 100}
 	v := vis(t, Full(), g)
-	assert.Len(t, v, 2*7*3)
+	expect.Len(t, v, 2*7*3)
 	pad := must(t)(KeyPadding([]int{1, 3}))
 	v = vis(t, pad, g)
-	assert.Equal(t, []bool{true, false, false}, v[:3])
-	assert.Equal(t, []bool{true, true, true}, v[7*3:7*3+3])
-	assert.False(t, pad.UsesPositions())
+	expect.Equal(t, []bool{true, false, false}, v[:3])
+	expect.Equal(t, []bool{true, true, true}, v[7*3:7*3+3])
+	expect.False(t, pad.UsesPositions())
 	both := must(t)(Intersect(pad, Causal()))
-	assert.True(t, both.UsesPositions())
+	expect.True(t, both.UsesPositions())
 }
 
 func TestEmptyRowsAndZeroSizes(t *testing.T) {
 	rows, err := Full().EmptyRows(Geometry{Batch: 2, Lq: 2, Lk: 0})
-	require.NoError(t, err)
-	assert.Equal(t, []Row{{0, 0}, {0, 1}, {1, 0}, {1, 1}}, rows, "Lk = 0: every row is empty")
+	ensure.NoError(t, err)
+	expect.Equal(t, []Row{{0, 0}, {0, 1}, {1, 0}, {1, 1}}, rows, "Lk = 0: every row is empty")
 	v, err := Causal().Visible(Geometry{Batch: 3, Lq: 0, Lk: 5})
-	require.NoError(t, err)
-	assert.Empty(t, v)
+	ensure.NoError(t, err)
+	expect.Empty(t, v)
 	v, err = Full().Visible(Geometry{Batch: 0, Lq: 2, Lk: 2})
-	require.NoError(t, err)
-	assert.Empty(t, v)
+	ensure.NoError(t, err)
+	expect.Empty(t, v)
 	pad := must(t)(KeyPadding([]int{0, 2}))
 	rows, err = pad.EmptyRows(Geometry{Batch: 2, Lq: 2, Lk: 2})
-	require.NoError(t, err)
-	assert.Equal(t, []Row{{0, 0}, {0, 1}}, rows)
+	ensure.NoError(t, err)
+	expect.Equal(t, []Row{{0, 0}, {0, 1}}, rows)
 	b, err := pad.BiasFill(Geometry{Batch: 2, Lq: 1, Lk: 2}, -1e4)
-	require.NoError(t, err)
-	assert.Equal(t, []float64{-1e4, -1e4, 0, 0}, b)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{-1e4, -1e4, 0, 0}, b)
 }
 
 func TestStrings(t *testing.T) {
@@ -181,29 +181,29 @@ func TestStrings(t *testing.T) {
 		{Mask{}, "Mask(none)"},
 	}
 	for _, tc := range tests {
-		assert.Equal(t, tc.want, tc.m.String())
+		expect.Equal(t, tc.want, tc.m.String())
 	}
-	assert.True(t, Mask{}.IsZero())
-	assert.False(t, Full().IsZero())
-	assert.False(t, must(t)(Intersect(Causal())).IsZero())
+	expect.True(t, Mask{}.IsZero())
+	expect.False(t, Full().IsZero())
+	expect.False(t, must(t)(Intersect(Causal())).IsZero())
 	// String is the word of mask/doc.go's conventions (vocabulary.json).
-	assert.Equal(t, "end", AlignEnd.String())
-	assert.Equal(t, "start", AlignStart.String())
-	assert.Equal(t, "Align(5)", Align(5).String())
-	assert.Equal(t, "causal", BlockCausal.String())
-	assert.Equal(t, "full", BlockFull.String())
-	assert.Equal(t, "Block(3)", Block(3).String())
-	assert.Equal(t, "Batch=1 Lq=2 Lk=3 Align=start Offset=1", Geometry{1, 2, 3, AlignStart, 1}.String())
+	expect.Equal(t, "end", AlignEnd.String())
+	expect.Equal(t, "start", AlignStart.String())
+	expect.Equal(t, "Align(5)", Align(5).String())
+	expect.Equal(t, "causal", BlockCausal.String())
+	expect.Equal(t, "full", BlockFull.String())
+	expect.Equal(t, "Block(3)", Block(3).String())
+	expect.Equal(t, "Batch=1 Lq=2 Lk=3 Align=start Offset=1", Geometry{1, 2, 3, AlignStart, 1}.String())
 	var kinds []string
 	for _, k := range KindFull.Values() {
 		kinds = append(kinds, k.String())
 	}
-	assert.Equal(t, []string{"full", "causal", "band", "window", "prefix", "key-padding", "packed"}, kinds)
-	assert.Equal(t, "Kind(7)", Kind(7).String())
-	assert.Equal(t, "causal", ALiBiCausal.String())
-	assert.Equal(t, "symmetric", ALiBiSymmetric.String())
-	assert.Equal(t, "past-only", ALiBiPastOnly.String())
-	assert.Equal(t, "ALiBiForm(3)", ALiBiForm(3).String())
+	expect.Equal(t, []string{"full", "causal", "band", "window", "prefix", "key-padding", "packed"}, kinds)
+	expect.Equal(t, "Kind(7)", Kind(7).String())
+	expect.Equal(t, "causal", ALiBiCausal.String())
+	expect.Equal(t, "symmetric", ALiBiSymmetric.String())
+	expect.Equal(t, "past-only", ALiBiPastOnly.String())
+	expect.Equal(t, "ALiBiForm(3)", ALiBiForm(3).String())
 }
 
 // randomGeometry draws lengths with Lq ≤ Lk and an alignment and offset
@@ -269,13 +269,13 @@ func TestProperties(t *testing.T) {
 
 		// A window at least as long as the keys equals causal.
 		w := must(t)(Window(g.Lk + r.IntN(5)))
-		require.Equal(t, causal, vis(t, w, g), "Window(≥Lk) on %v", g)
+		ensure.Equal(t, causal, vis(t, w, g), "Window(≥Lk) on %v", g)
 		// A band unbounded on both sides equals full; unbounded before and 0
 		// after equals causal.
-		require.Equal(t, full, vis(t, must(t)(Band(Unbounded, Unbounded)), g), "%v", g)
-		require.Equal(t, causal, vis(t, must(t)(Band(Unbounded, 0)), g), "%v", g)
+		ensure.Equal(t, full, vis(t, must(t)(Band(Unbounded, Unbounded)), g), "%v", g)
+		ensure.Equal(t, causal, vis(t, must(t)(Band(Unbounded, 0)), g), "%v", g)
 		// Prefix(0) is causal.
-		require.Equal(t, causal, vis(t, must(t)(Prefix(0)), g), "%v", g)
+		ensure.Equal(t, causal, vis(t, must(t)(Prefix(0)), g), "%v", g)
 
 		// End-aligned with equal lengths and no offset equals the square
 		// causal mask j ≤ i.
@@ -283,14 +283,14 @@ func TestProperties(t *testing.T) {
 		sqv := vis(t, Causal(), sq)
 		for i := 0; i < g.Lk; i++ {
 			for j := 0; j < g.Lk; j++ {
-				require.Equal(t, j <= i, sqv[i*g.Lk+j])
+				ensure.Equal(t, j <= i, sqv[i*g.Lk+j])
 			}
 		}
 
 		// Packed with one sequence equals its block kind.
 		one := []int{0, g.Lk}
-		require.Equal(t, causal, vis(t, must(t)(Packed(one, BlockCausal)), g), "%v", g)
-		require.Equal(t, full, vis(t, must(t)(Packed(one, BlockFull)), g), "%v", g)
+		ensure.Equal(t, causal, vis(t, must(t)(Packed(one, BlockCausal)), g), "%v", g)
+		ensure.Equal(t, full, vis(t, must(t)(Packed(one, BlockFull)), g), "%v", g)
 
 		// Intersection is commutative and idempotent, and is the
 		// element-wise AND.
@@ -298,25 +298,25 @@ func TestProperties(t *testing.T) {
 		va, vb := vis(t, a, g), vis(t, b, g)
 		ab := vis(t, must(t)(Intersect(a, b)), g)
 		ba := vis(t, must(t)(Intersect(b, a)), g)
-		require.Equal(t, ab, ba, "%v ∩ %v on %v", a, b, g)
-		require.Equal(t, va, vis(t, must(t)(Intersect(a, a)), g), "%v ∩ itself on %v", a, g)
+		ensure.Equal(t, ab, ba, "%v ∩ %v on %v", a, b, g)
+		ensure.Equal(t, va, vis(t, must(t)(Intersect(a, a)), g), "%v ∩ itself on %v", a, g)
 		for k := range ab {
-			require.Equal(t, va[k] && vb[k], ab[k])
+			ensure.Equal(t, va[k] && vb[k], ab[k])
 		}
 
 		// The bias is 0 exactly where visible and the fill elsewhere, and
 		// EmptyRows lists exactly the rows with no true.
 		bias, err := a.Bias(g)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for k, v := range va {
 			if v {
-				require.Equal(t, 0.0, bias[k])
+				ensure.Equal(t, 0.0, bias[k])
 			} else {
-				require.True(t, math.IsInf(bias[k], -1))
+				ensure.True(t, math.IsInf(bias[k], -1))
 			}
 		}
 		rows, err := a.EmptyRows(g)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		var want []Row
 		for bb := 0; bb < g.Batch; bb++ {
 			for i := 0; i < g.Lq; i++ {
@@ -329,7 +329,7 @@ func TestProperties(t *testing.T) {
 				}
 			}
 		}
-		require.Equal(t, want, rows, "EmptyRows of %v on %v", a, g)
+		ensure.Equal(t, want, rows, "EmptyRows of %v on %v", a, g)
 	}
 }
 
@@ -341,8 +341,8 @@ func TestConstructorsCopy(t *testing.T) {
 	pk := must(t)(Packed(offs, BlockFull))
 	valid[0], offs[1] = 0, 1
 	g := Geometry{Batch: 1, Lq: 2, Lk: 2}
-	assert.Equal(t, []bool{true, false, true, false}, vis(t, pad, g))
-	assert.Equal(t, []bool{true, true, true, true}, vis(t, pk, g))
+	expect.Equal(t, []bool{true, false, true, false}, vis(t, pad, g))
+	expect.Equal(t, []bool{true, true, true, true}, vis(t, pk, g))
 }
 
 // FuzzMask builds masks from arbitrary parameters: no panic, and either an
@@ -445,12 +445,12 @@ func TestErrOffsetEveryKind(t *testing.T) {
 		{Geometry{Batch: 2, Lq: 5, Lk: 4, Align: AlignStart}, "g.Lq = 5; want ≤ g.Lk = 4: %v needs every query at a key"},
 	}
 	for _, m := range positional {
-		require.True(t, m.UsesPositions(), "%v", m)
+		ensure.True(t, m.UsesPositions(), "%v", m)
 		for _, o := range outside {
 			want := "mask: query position out of range: Mask.Visible: " + fmt.Sprintf(o.want, m)
 			_, err := m.Visible(o.g)
-			require.ErrorIs(t, err, ErrOffset, "%v on %v", m, o.g)
-			assert.EqualError(t, err, want)
+			ensure.ErrorIs(t, err, ErrOffset, "%v on %v", m, o.g)
+			expect.EqualError(t, err, want)
 			errs := []error{m.Check(o.g)}
 			_, err = m.Bias(o.g)
 			errs = append(errs, err)
@@ -462,16 +462,16 @@ func TestErrOffsetEveryKind(t *testing.T) {
 			errs = append(errs, err)
 			errs = append(errs, m.Rows(o.g, func(int, int, []bool) { t.Fatalf("%v on %v: Rows called fn", m, o.g) }))
 			for k, err := range errs {
-				assert.ErrorIs(t, err, ErrOffset, "%v on %v, method %d", m, o.g, k)
+				expect.ErrorIs(t, err, ErrOffset, "%v on %v, method %d", m, o.g, k)
 			}
 		}
 	}
 	for _, m := range free {
-		require.False(t, m.UsesPositions(), "%v", m)
+		ensure.False(t, m.UsesPositions(), "%v", m)
 		for _, o := range outside {
 			v, err := m.Visible(o.g)
-			require.NoError(t, err, "%v on %v", m, o.g)
-			assert.Len(t, v, o.g.Batch*o.g.Lq*o.g.Lk)
+			ensure.NoError(t, err, "%v on %v", m, o.g)
+			expect.Len(t, v, o.g.Batch*o.g.Lq*o.g.Lk)
 		}
 	}
 }
@@ -481,38 +481,38 @@ func TestErrOffsetEveryKind(t *testing.T) {
 // 2^20 × 2^20 mask (2^40 entries, 8 TiB as a bias) would otherwise end the
 // program. Check and Sees take such a geometry: they write nothing out.
 func TestMaxElements(t *testing.T) {
-	require.Equal(t, 1<<28, MaxElements)
+	ensure.Equal(t, 1<<28, MaxElements)
 	big := Geometry{Batch: 1, Lq: 1 << 20, Lk: 1 << 20}
 	const want = "mask: invalid size: %s: g.Batch·Lq·Lk = 1·1048576·1048576; want at most MaxElements = 268435456"
 	_, err := Causal().Visible(big)
-	require.ErrorIs(t, err, ErrSize)
-	assert.EqualError(t, err, fmt.Sprintf(want, "Mask.Visible"))
+	ensure.ErrorIs(t, err, ErrSize)
+	expect.EqualError(t, err, fmt.Sprintf(want, "Mask.Visible"))
 	_, err = Causal().Bias(big)
-	require.ErrorIs(t, err, ErrSize)
-	assert.EqualError(t, err, fmt.Sprintf(want, "Mask.Bias"))
+	ensure.ErrorIs(t, err, ErrSize)
+	expect.EqualError(t, err, fmt.Sprintf(want, "Mask.Bias"))
 	_, err = Full().BiasFill(big, -1e9)
-	require.ErrorIs(t, err, ErrSize)
-	assert.EqualError(t, err, fmt.Sprintf(want, "Mask.BiasFill"))
+	ensure.ErrorIs(t, err, ErrSize)
+	expect.EqualError(t, err, fmt.Sprintf(want, "Mask.BiasFill"))
 	// Batch pushes it over, each factor fitting.
 	_, err = Full().Visible(Geometry{Batch: 5, Lq: 1 << 13, Lk: 1 << 13})
-	assert.EqualError(t, err, "mask: invalid size: Mask.Visible: g.Batch·Lq·Lk = 5·8192·8192; want at most MaxElements = 268435456")
+	expect.EqualError(t, err, "mask: invalid size: Mask.Visible: g.Batch·Lq·Lk = 5·8192·8192; want at most MaxElements = 268435456")
 
-	assert.NoError(t, Causal().Check(big))
+	expect.NoError(t, Causal().Check(big))
 	s, err := Causal().Sees(big, 0, 1<<20-1, 0)
-	require.NoError(t, err)
-	assert.True(t, s)
+	ensure.NoError(t, err)
+	expect.True(t, s)
 
 	// EmptyRows lists up to Batch·Lq rows: with no keys, all of them.
 	_, err = Full().EmptyRows(Geometry{Batch: 1 << 20, Lq: 1 << 20, Lk: 0})
-	require.ErrorIs(t, err, ErrSize)
-	assert.EqualError(t, err, "mask: invalid size: Mask.EmptyRows: g.Batch·Lq = 1048576·1048576; want at most MaxElements = 268435456")
+	ensure.ErrorIs(t, err, ErrSize)
+	expect.EqualError(t, err, "mask: invalid size: Mask.EmptyRows: g.Batch·Lq = 1048576·1048576; want at most MaxElements = 268435456")
 	_, err = Full().EmptyRows(Geometry{Batch: 1, Lq: 1, Lk: MaxElements + 1})
-	assert.EqualError(t, err, "mask: invalid size: Mask.EmptyRows: g.Lk = 268435457; want at most MaxElements = 268435456")
+	expect.EqualError(t, err, "mask: invalid size: Mask.EmptyRows: g.Lk = 268435457; want at most MaxElements = 268435456")
 
 	// Rows lends one row of Lk flags.
 	err = Full().Rows(Geometry{Batch: 1, Lq: 1, Lk: MaxElements + 1}, func(int, int, []bool) {})
-	require.ErrorIs(t, err, ErrSize)
-	assert.EqualError(t, err, "mask: invalid size: Mask.Rows: g.Lk = 268435457; want at most MaxElements = 268435456 keys in the row lent to fn")
+	ensure.ErrorIs(t, err, ErrSize)
+	expect.EqualError(t, err, "mask: invalid size: Mask.Rows: g.Lk = 268435457; want at most MaxElements = 268435456 keys in the row lent to fn")
 }
 
 // TestRows: Rows checks its geometry and its function, and walks the rows
@@ -522,21 +522,21 @@ func TestRows(t *testing.T) {
 	g := Geometry{Batch: 2, Lq: 2, Lk: 3}
 	var got []bool
 	var order []Row
-	require.NoError(t, m.Rows(g, func(b, i int, row []bool) {
+	ensure.NoError(t, m.Rows(g, func(b, i int, row []bool) {
 		order = append(order, Row{b, i})
 		got = append(got, row...)
 	}))
-	assert.Equal(t, vis(t, m, g), got)
-	assert.Equal(t, []Row{{0, 0}, {0, 1}, {1, 0}, {1, 1}}, order)
+	expect.Equal(t, vis(t, m, g), got)
+	expect.Equal(t, []Row{{0, 0}, {0, 1}, {1, 0}, {1, 1}}, order)
 
 	err := m.Rows(Geometry{Batch: 1, Lq: 1, Lk: -1}, func(int, int, []bool) {})
-	require.ErrorIs(t, err, ErrSize)
-	assert.EqualError(t, err, "mask: invalid size: Mask.Rows: g.Lk = -1; want ≥ 0")
+	ensure.ErrorIs(t, err, ErrSize)
+	expect.EqualError(t, err, "mask: invalid size: Mask.Rows: g.Lk = -1; want ≥ 0")
 	err = m.Rows(g, nil)
-	require.ErrorIs(t, err, ErrEmpty)
-	assert.EqualError(t, err, "mask: no mask: Mask.Rows: fn = nil; want a function to call with each row")
+	ensure.ErrorIs(t, err, ErrEmpty)
+	expect.EqualError(t, err, "mask: no mask: Mask.Rows: fn = nil; want a function to call with each row")
 	err = Mask{}.Rows(g, func(int, int, []bool) {})
-	assert.ErrorIs(t, err, ErrEmpty)
+	expect.ErrorIs(t, err, ErrEmpty)
 }
 
 // TestNilReceivers: the decoding methods on a nil pointer are errors
@@ -552,7 +552,7 @@ func TestNilReceivers(t *testing.T) {
 		{(*ALiBiForm)(nil).UnmarshalText([]byte("causal")), ErrALiBi, "mask: invalid ALiBi form: ALiBiForm.UnmarshalText: receiver = nil; want a *ALiBiForm to set"},
 		{(*Spec)(nil).UnmarshalJSON([]byte(`{"kind": "causal"}`)), ErrSpec, "mask: invalid mask description: Spec.UnmarshalJSON: receiver = nil; want a *Spec to set"},
 	} {
-		assert.ErrorIs(t, tc.err, tc.sentinel)
-		assert.EqualError(t, tc.err, tc.want)
+		expect.ErrorIs(t, tc.err, tc.sentinel)
+		expect.EqualError(t, tc.err, tc.want)
 	}
 }

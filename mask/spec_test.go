@@ -7,8 +7,9 @@ import (
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // TestSpecJSONRoundTrip: every kind written as JSON holds exactly its own
@@ -35,21 +36,21 @@ func TestSpecJSONRoundTrip(t *testing.T) {
 	for _, tc := range tests {
 		seen[tc.spec.Kind] = true
 		b, err := json.Marshal(tc.spec)
-		require.NoError(t, err)
-		assert.Equal(t, tc.json, string(b))
+		ensure.NoError(t, err)
+		expect.Equal(t, tc.json, string(b))
 		var back Spec
-		require.NoError(t, json.Unmarshal(b, &back), tc.json)
+		ensure.NoError(t, json.Unmarshal(b, &back), tc.json)
 		if d := cmp.Diff(tc.spec, back); d != "" {
 			t.Errorf("%s read back (-want +got):\n%s", tc.json, d)
 		}
 		m, err := back.Mask()
-		require.NoError(t, err)
-		assert.Equal(t, tc.mask.String(), m.String(), tc.json)
-		assert.Equal(t, vis(t, tc.mask, g), vis(t, m, g), tc.json)
-		assert.ElementsMatch(t, SpecKeys(tc.spec.Kind), jsonKeys(t, b), "%s: the keys of its kind", tc.json)
+		ensure.NoError(t, err)
+		expect.Equal(t, tc.mask.String(), m.String(), tc.json)
+		expect.Equal(t, vis(t, tc.mask, g), vis(t, m, g), tc.json)
+		expect.ElementsMatch(t, SpecKeys(tc.spec.Kind), jsonKeys(t, b), "%s: the keys of its kind", tc.json)
 	}
 	for _, k := range KindFull.Values() {
-		assert.True(t, seen[k], "kind %v has no round-trip case", k)
+		expect.True(t, seen[k], "kind %v has no round-trip case", k)
 	}
 }
 
@@ -57,7 +58,7 @@ func TestSpecJSONRoundTrip(t *testing.T) {
 func jsonKeys(t *testing.T, b []byte) []string {
 	t.Helper()
 	var m map[string]json.RawMessage
-	require.NoError(t, json.Unmarshal(b, &m))
+	ensure.NoError(t, json.Unmarshal(b, &m))
 	var keys []string
 	for k := range m {
 		if k != "kind" {
@@ -75,7 +76,7 @@ func TestKindMeaningsNameKeys(t *testing.T) {
 	for _, k := range KindFull.Values() {
 		words := word.FindAllString(k.Meaning(), -1)
 		for _, key := range SpecKeys(k) {
-			assert.Contains(t, words, key, "kind %v: meaning %q does not name key %q", k, k.Meaning(), key)
+			expect.Contains(t, words, key, "kind %v: meaning %q does not name key %q", k, k.Meaning(), key)
 		}
 	}
 }
@@ -84,32 +85,32 @@ func TestKindMeaningsNameKeys(t *testing.T) {
 // constructor's error names the entry.
 func TestBuild(t *testing.T) {
 	var specs []Spec
-	require.NoError(t, json.Unmarshal([]byte(`[{"kind":"window","size":2},{"kind":"key-padding","valid":[3]}]`), &specs))
+	ensure.NoError(t, json.Unmarshal([]byte(`[{"kind":"window","size":2},{"kind":"key-padding","valid":[3]}]`), &specs))
 	m, err := Build(specs)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	g := Geometry{Batch: 1, Lq: 5, Lk: 5}
-	assert.Equal(t, vis(t, must(t)(Intersect(must(t)(Window(2)), must(t)(KeyPadding([]int{3})))), g), vis(t, m, g))
-	assert.Equal(t, "Intersect(Window(2), KeyPadding([3]))", m.String())
+	expect.Equal(t, vis(t, must(t)(Intersect(must(t)(Window(2)), must(t)(KeyPadding([]int{3})))), g), vis(t, m, g))
+	expect.Equal(t, "Intersect(Window(2), KeyPadding([3]))", m.String())
 
 	for _, none := range [][]Spec{nil, {}} {
 		m, err = Build(none)
-		require.NoError(t, err)
-		assert.Equal(t, vis(t, Full(), g), vis(t, m, g))
+		ensure.NoError(t, err)
+		expect.Equal(t, vis(t, Full(), g), vis(t, m, g))
 	}
 
 	_, err = Build([]Spec{{Kind: KindCausal}, {Kind: KindWindow, Size: 0}})
-	assert.ErrorIs(t, err, ErrWindow)
-	assert.EqualError(t, err, "mask: invalid window: Build: specs[1].Size = 0; want ≥ 1: a window holds at least the query's own key")
+	expect.ErrorIs(t, err, ErrWindow)
+	expect.EqualError(t, err, "mask: invalid window: Build: specs[1].Size = 0; want ≥ 1: a window holds at least the query's own key")
 	_, err = Build([]Spec{{Kind: Kind(9)}})
-	assert.ErrorIs(t, err, ErrKind)
-	assert.EqualError(t, err, "mask: invalid mask kind: Build: specs[0].Kind = 9; want one of full, causal, band, window, prefix, key-padding, packed")
+	expect.ErrorIs(t, err, ErrKind)
+	expect.EqualError(t, err, "mask: invalid mask kind: Build: specs[0].Kind = 9; want one of full, causal, band, window, prefix, key-padding, packed")
 	_, err = Build([]Spec{{Kind: KindBand, Before: 1, After: -2}})
-	assert.EqualError(t, err, "mask: invalid band: Build: specs[0].After = -2; want ≥ 0 or Unbounded")
+	expect.EqualError(t, err, "mask: invalid band: Build: specs[0].After = -2; want ≥ 0 or Unbounded")
 	_, err = Spec{Kind: KindPacked, Offsets: []int{0, 2}, Block: 4}.Mask()
-	assert.ErrorIs(t, err, ErrBlock)
-	assert.EqualError(t, err, "mask: invalid block kind: Spec.Mask: Spec.Block = 4; want one of causal, full")
+	expect.ErrorIs(t, err, ErrBlock)
+	expect.EqualError(t, err, "mask: invalid block kind: Spec.Mask: Spec.Block = 4; want one of causal, full")
 	_, err = Spec{Kind: KindPrefix, Length: -1}.Mask()
-	assert.EqualError(t, err, "mask: invalid prefix: Spec.Mask: Spec.Length = -1; want ≥ 0")
+	expect.EqualError(t, err, "mask: invalid prefix: Spec.Mask: Spec.Length = -1; want ≥ 0")
 }
 
 // TestSpecErrors: a slip in a mask's JSON is an error wrapping one
@@ -147,28 +148,28 @@ func TestSpecErrors(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			s := Spec{Kind: KindWindow, Size: 7}
 			err := json.Unmarshal([]byte(tc.json), &s)
-			require.Error(t, err)
-			assert.ErrorIs(t, err, tc.sentinel)
-			assert.EqualError(t, err, tc.want)
+			ensure.Error(t, err)
+			expect.ErrorIs(t, err, tc.sentinel)
+			expect.EqualError(t, err, tc.want)
 			for _, o := range sentinels {
 				if o != tc.sentinel {
-					assert.False(t, errors.Is(err, o), "%v also wraps %v", err, o)
+					expect.False(t, errors.Is(err, o), "%v also wraps %v", err, o)
 				}
 			}
-			assert.Equal(t, Spec{Kind: KindWindow, Size: 7}, s, "a refused Spec is left alone")
+			expect.Equal(t, Spec{Kind: KindWindow, Size: 7}, s, "a refused Spec is left alone")
 			// Inside a list, as configurations hold them, the error is the
 			// same.
 			var list []Spec
 			err = json.Unmarshal([]byte("["+tc.json+"]"), &list)
-			assert.ErrorIs(t, err, tc.sentinel)
-			assert.EqualError(t, err, tc.want)
+			expect.ErrorIs(t, err, tc.sentinel)
+			expect.EqualError(t, err, tc.want)
 		})
 	}
 	var typ *json.UnmarshalTypeError
-	assert.ErrorAs(t, json.Unmarshal([]byte(`[3]`), &[]Spec{}), &typ, "a value that is not an object keeps json's own error")
+	expect.ErrorAs(t, json.Unmarshal([]byte(`[3]`), &[]Spec{}), &typ, "a value that is not an object keeps json's own error")
 	_, err := json.Marshal(Spec{Kind: Kind(9)})
-	assert.ErrorIs(t, err, ErrKind)
-	assert.ErrorContains(t, err, "mask: invalid mask kind: Spec.MarshalJSON: Spec.Kind = 9; want one of full")
+	expect.ErrorIs(t, err, ErrKind)
+	expect.ErrorContains(t, err, "mask: invalid mask kind: Spec.MarshalJSON: Spec.Kind = 9; want one of full")
 }
 
 // jsonError is encoding/json's own error for b read as a JSON object, which
@@ -229,15 +230,15 @@ func TestALiBiDistance(t *testing.T) {
 		ALiBiPastOnly:  {3, 2, 1, 0, 0, 0, 0},
 	}
 	for _, f := range ALiBiCausal.Values() {
-		require.Contains(t, want, f, "form %v has no expected distances", f)
+		ensure.Contains(t, want, f, "form %v has no expected distances", f)
 		var got []int
 		for j := range 7 {
 			got = append(got, f.Distance(p, j))
 		}
-		assert.Equal(t, want[f], got, "%v", f)
+		expect.Equal(t, want[f], got, "%v", f)
 	}
-	assert.Zero(t, ALiBiForm(7).Distance(3, 0), "an invalid form")
-	assert.Error(t, ALiBiForm(7).Check())
+	expect.Zero(t, ALiBiForm(7).Distance(3, 0), "an invalid form")
+	expect.Error(t, ALiBiForm(7).Check())
 }
 
 // TestALiBiFormText: the words of mask.ALiBiForm read and write as text,
@@ -246,21 +247,21 @@ func TestALiBiFormText(t *testing.T) {
 	var cfg struct {
 		Forms []ALiBiForm `json:"forms"`
 	}
-	require.NoError(t, json.Unmarshal([]byte(`{"forms":["causal","symmetric","past-only"]}`), &cfg))
-	assert.Equal(t, []ALiBiForm{ALiBiCausal, ALiBiSymmetric, ALiBiPastOnly}, cfg.Forms)
+	ensure.NoError(t, json.Unmarshal([]byte(`{"forms":["causal","symmetric","past-only"]}`), &cfg))
+	expect.Equal(t, []ALiBiForm{ALiBiCausal, ALiBiSymmetric, ALiBiPastOnly}, cfg.Forms)
 	b, err := json.Marshal(cfg)
-	require.NoError(t, err)
-	assert.Equal(t, `{"forms":["causal","symmetric","past-only"]}`, string(b))
+	ensure.NoError(t, err)
+	expect.Equal(t, `{"forms":["causal","symmetric","past-only"]}`, string(b))
 	for _, f := range ALiBiCausal.Values() {
-		assert.NotEmpty(t, f.Meaning(), "%v", f)
-		assert.NoError(t, f.Check())
+		expect.NotEmpty(t, f.Meaning(), "%v", f)
+		expect.NoError(t, f.Check())
 	}
 
 	var f ALiBiForm
 	err = json.Unmarshal([]byte(`"ALiBiSymmetric"`), &f)
-	assert.ErrorIs(t, err, ErrALiBi)
-	assert.ErrorContains(t, err, `mask: invalid ALiBi form: ALiBi form = "ALiBiSymmetric"; want one of causal, symmetric, past-only`)
+	expect.ErrorIs(t, err, ErrALiBi)
+	expect.ErrorContains(t, err, `mask: invalid ALiBi form: ALiBi form = "ALiBiSymmetric"; want one of causal, symmetric, past-only`)
 	_, err = json.Marshal(ALiBiForm(3))
-	assert.ErrorIs(t, err, ErrALiBi)
-	assert.ErrorContains(t, ALiBiForm(3).Check(), "mask: invalid ALiBi form: ALiBi form = 3; want one of causal, symmetric, past-only")
+	expect.ErrorIs(t, err, ErrALiBi)
+	expect.ErrorContains(t, ALiBiForm(3).Check(), "mask: invalid ALiBi form: ALiBi form = 3; want one of causal, symmetric, past-only")
 }

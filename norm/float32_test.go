@@ -8,9 +8,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/surface"
@@ -24,7 +23,7 @@ const u32 = 0x1p-24
 // float64 result want, normwise.
 func near32(t *testing.T, got []float32, want []float64, bound float64, what string) {
 	t.Helper()
-	assert.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](got), want), bound, what)
+	expect.LessOrEqual(t, golden.NormwiseRelErr(num.Convert[float64](got), want), bound, what)
 }
 
 // rounded32 is x rounded to float32 and back, so that the float64 and the
@@ -55,32 +54,32 @@ func TestFloat32(t *testing.T) {
 			what := fmt.Sprintf("scale %g %v", scale, o.Placement)
 			x32, w32, b32 := num.Convert[float32](x), num.Convert[float32](w), num.Convert[float32](b)
 			y, err := RMSNorm(x, d, w, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			y32, err := RMSNorm32(x32, d, w32, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			near32(t, y32, y, bound, "RMSNorm32 "+what)
 			y, err = LayerNorm(x, d, w, b, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			y32, err = LayerNorm32(x32, d, w32, b32, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			near32(t, y32, y, bound, "LayerNorm32 "+what)
 
 			dy := rounded32(uniform(r, d*rows, -1, 1))
 			dy32 := num.Convert[float32](dy)
 			g, err := LayerNormBackward(x, d, w, dy, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			g32, err := LayerNormBackward32(x32, d, w32, dy32, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			near32(t, g32.X, g.X, bound, "LayerNormBackward32 dx "+what)
 			near32(t, g32.Weight, g.Weight, bound, "LayerNormBackward32 dw "+what)
 			near32(t, g32.Bias, g.Bias, bound, "LayerNormBackward32 db "+what)
 			g, err = RMSNormBackward(x, d, w, dy, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			g32, err = RMSNormBackward32(x32, d, w32, dy32, oo)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			near32(t, g32.X, g.X, bound, "RMSNormBackward32 dx "+what)
 			near32(t, g32.Weight, g.Weight, bound, "RMSNormBackward32 dw "+what)
-			assert.Nil(t, g32.Bias)
+			expect.Nil(t, g32.Bias)
 		}
 	}
 }
@@ -205,22 +204,22 @@ func TestFused32Bound(t *testing.T) {
 				conv := num.Convert[float32, float64]
 				if center {
 					y, sum, err = AddLayerNorm(x, res, d, w, bias, o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					y32, _, err = AddLayerNorm32(conv(x), conv(res), d, conv(w), conv(bias), o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					g, err = AddLayerNormBackward(rounded32(sum), d, w, dy, ds, o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					g32, err = AddLayerNormBackward32(conv(sum), d, conv(w), conv(dy), conv(ds), o)
 				} else {
 					y, sum, err = AddRMSNorm(x, res, d, w, o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					y32, _, err = AddRMSNorm32(conv(x), conv(res), d, conv(w), o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					g, err = AddRMSNormBackward(rounded32(sum), d, w, dy, ds, o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					g32, err = AddRMSNormBackward32(conv(sum), d, conv(w), conv(dy), conv(ds), o)
 				}
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				gx, gw, gb, gx32, gw32, gb32 = g.X, g.Weight, g.Bias, g32.X, g32.Weight, g32.Bias
 
 				yBound := make([]float64, len(y))
@@ -281,18 +280,18 @@ func TestFused32Bound(t *testing.T) {
 					}
 				}
 				for i := range y {
-					require.LessOrEqual(t, math.Abs(float64(y32[i])-y[i]), yBound[i], "%s: y[%d]", name, i)
-					require.LessOrEqual(t, math.Abs(float64(gx32[i])-gx[i]), dxBound[i], "%s: dx[%d]", name, i)
+					ensure.LessOrEqual(t, math.Abs(float64(y32[i])-y[i]), yBound[i], "%s: y[%d]", name, i)
+					ensure.LessOrEqual(t, math.Abs(float64(gx32[i])-gx[i]), dxBound[i], "%s: dx[%d]", name, i)
 				}
 				for j := range d {
 					bw := slack * (dwBound[j] + (rows-1)*u32*dwSum[j])
-					require.LessOrEqual(t, math.Abs(float64(gw32[j])-gw[j]), bw, "%s: dweight[%d]", name, j)
+					ensure.LessOrEqual(t, math.Abs(float64(gw32[j])-gw[j]), bw, "%s: dweight[%d]", name, j)
 					if center {
-						require.LessOrEqual(t, math.Abs(float64(gb32[j])-gb[j]), slack*(rows-1)*u32*dbSum[j], "%s: dbias[%d]", name, j)
+						ensure.LessOrEqual(t, math.Abs(float64(gb32[j])-gb[j]), slack*(rows-1)*u32*dbSum[j], "%s: dbias[%d]", name, j)
 					}
 				}
-				assert.True(t, caught, "%s: the bound on y misses a wrong scale", name)
-				assert.True(t, caughtDx, "%s: the bound on dx misses a wrong scale", name)
+				expect.True(t, caught, "%s: the bound on y misses a wrong scale", name)
+				expect.True(t, caughtDx, "%s: the bound on dx misses a wrong scale", name)
 			}
 		}
 	}
@@ -381,18 +380,18 @@ func TestErrors32(t *testing.T) {
 		failed := 0
 		for _, c := range calls {
 			err, err32 := tw.run(c), tw.run32(c)
-			require.Equal(t, err == nil, err32 == nil, "%s, %s: %v / %v", tw.fn, c.name, err, err32)
+			ensure.Equal(t, err == nil, err32 == nil, "%s, %s: %v / %v", tw.fn, c.name, err, err32)
 			if err == nil {
 				continue
 			}
 			failed++
-			assert.Equal(t, which(err), which(err32), "%s, %s: sentinels of %q and %q", tw.fn, c.name, err, err32)
+			expect.Equal(t, which(err), which(err32), "%s, %s: sentinels of %q and %q", tw.fn, c.name, err, err32)
 			want := strings.Replace(err.Error(), ": "+tw.fn+": ", ": "+tw.fn+"32: ", 1)
-			assert.Equal(t, want, err32.Error(), "%s, %s", tw.fn, c.name)
+			expect.Equal(t, want, err32.Error(), "%s, %s", tw.fn, c.name)
 		}
 		// Every function refuses at least the shape, epsilon and option
 		// errors of the first eight calls.
-		assert.GreaterOrEqual(t, failed, 7, tw.fn)
+		expect.GreaterOrEqual(t, failed, 7, tw.fn)
 	}
 }
 
@@ -407,13 +406,13 @@ func TestSpecialCases32(t *testing.T) {
 	for _, o := range allOptions(1e-5) {
 		t.Run(fmt.Sprint(o.Placement, "/", o.Weight), func(t *testing.T) {
 			y, sum, err := AddLayerNorm32(nil, nil, 4, nil, nil, o)
-			require.NoError(t, err)
-			assert.Empty(t, y)
-			assert.Empty(t, sum)
+			ensure.NoError(t, err)
+			expect.Empty(t, y)
+			expect.Empty(t, sum)
 			g, err := AddRMSNormBackward32([]float32{}, 4, []float32{1, 2, 3, 4}, []float32{}, nil, o)
-			require.NoError(t, err)
-			assert.Empty(t, g.X)
-			assert.Equal(t, []float32{0, 0, 0, 0}, g.Weight)
+			ensure.NoError(t, err)
+			expect.Empty(t, g.X)
+			expect.Equal(t, []float32{0, 0, 0, 0}, g.Weight)
 
 			// Row 0 holds NaN, row 2 −Inf (after the add); row 1 is finite.
 			x := []float32{1, nan, 2, 1, 2, 3, -inf, 0, 1}
@@ -424,19 +423,19 @@ func TestSpecialCases32(t *testing.T) {
 				var g Grads32
 				if center {
 					y, _, err = AddLayerNorm32(x, res, 3, nil, []float32{1, 1, 1}, o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					g, err = AddLayerNormBackward32(x, 3, nil, dy, dy, o)
 				} else {
 					y, _, err = AddRMSNorm32(x, res, 3, nil, o)
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					g, err = AddRMSNormBackward32(x, 3, nil, dy, dy, o)
 				}
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				for j := range 3 {
-					assert.True(t, isNaN32(y[j]) && isNaN32(y[6+j]), "center=%v: rows 0 and 2, element %d", center, j)
-					assert.False(t, isNaN32(y[3+j]), "center=%v: row 1, element %d", center, j)
-					assert.True(t, isNaN32(g.X[j]) && isNaN32(g.X[6+j]), "center=%v: dx rows 0 and 2", center)
-					assert.False(t, isNaN32(g.X[3+j]), "center=%v: dx row 1", center)
+					expect.True(t, isNaN32(y[j]) && isNaN32(y[6+j]), "center=%v: rows 0 and 2, element %d", center, j)
+					expect.False(t, isNaN32(y[3+j]), "center=%v: row 1, element %d", center, j)
+					expect.True(t, isNaN32(g.X[j]) && isNaN32(g.X[6+j]), "center=%v: dx rows 0 and 2", center)
+					expect.False(t, isNaN32(g.X[3+j]), "center=%v: dx row 1", center)
 				}
 			}
 
@@ -447,25 +446,25 @@ func TestSpecialCases32(t *testing.T) {
 			c := []float32{6, 6, 6, 1e8, 1e8, 1e8, -1, -1, -1}
 			one := []float32{1, 1, 1, 0, 0, 0, 1, 1, 1}
 			y, sum, err = AddLayerNorm32(c, one, 3, w, b, o)
-			require.NoError(t, err)
-			assert.Equal(t, []float32{7, 7, 7, 1e8, 1e8, 1e8, 0, 0, 0}, sum)
-			assert.Equal(t, append(append(append([]float32{}, b...), b...), b...), y)
+			ensure.NoError(t, err)
+			expect.Equal(t, []float32{7, 7, 7, 1e8, 1e8, 1e8, 0, 0, 0}, sum)
+			expect.Equal(t, append(append(append([]float32{}, b...), b...), b...), y)
 			dy = []float32{1, 2, 3, 1, 2, 3, 1, 2, 3}
 			ds := []float32{0.25, 0.25, 0.25, 0, 0, 0, -1, -1, -1}
 			g, err = AddLayerNormBackward32(sum, 3, w, dy, ds, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			want := constantRowDx(w, dy, o)
 			for j := range 9 {
 				// A handful of float32 roundings of values near (g − mg)/r.
-				assert.InEpsilon(t, float64(ds[j])+want[j], float64(g.X[j]), 1e-5, "constant row dx %d", j)
+				expect.InEpsilon(t, float64(ds[j])+want[j], float64(g.X[j]), 1e-5, "constant row dx %d", j)
 			}
-			assert.Equal(t, []float32{0, 0, 0}, g.Weight, "x̂ = 0 on constant rows")
-			assert.Equal(t, []float32{3, 6, 9}, g.Bias)
+			expect.Equal(t, []float32{0, 0, 0}, g.Weight, "x̂ = 0 on constant rows")
+			expect.Equal(t, []float32{3, 6, 9}, g.Bias)
 
 			// A zero row in RMSNorm: y = 0.
 			y, _, err = AddRMSNorm32([]float32{1, -2, 0.5}, []float32{-1, 2, -0.5}, 3, w, o)
-			require.NoError(t, err)
-			assert.Equal(t, []float32{0, 0, 0}, y)
+			ensure.NoError(t, err)
+			expect.Equal(t, []float32{0, 0, 0}, y)
 		})
 	}
 }
@@ -478,7 +477,7 @@ func isNaN32(x float32) bool { return x != x }
 // is the same in float32, and every function named …32 is such a twin.
 func TestFloat32Surface(t *testing.T) {
 	twinned, problems, err := surface.Twins(".", strings.NewReplacer("float64", "float32", "Grads", "Grads32"))
-	require.NoError(t, err)
-	assert.Empty(t, problems)
-	assert.Len(t, twinned, 8, "functions with a float32 twin: %v", twinned)
+	ensure.NoError(t, err)
+	expect.Empty(t, problems)
+	expect.Len(t, twinned, 8, "functions with a float32 twin: %v", twinned)
 }

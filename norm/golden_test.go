@@ -4,9 +4,8 @@ import (
 	"os"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -35,8 +34,8 @@ var goldenFamilies = []string{"layernorm", "rmsnorm", "addnorm"}
 func decodeConfig(t *testing.T, c *golden.Case) goldenConfig {
 	t.Helper()
 	var cfg goldenConfig
-	require.NoError(t, c.DecodeConfig(&cfg))
-	require.Contains(t, []string{"layer", "rms"}, cfg.Kind, c.String())
+	ensure.NoError(t, c.DecodeConfig(&cfg))
+	ensure.Contains(t, []string{"layer", "rms"}, cfg.Kind, c.String())
 	return cfg
 }
 
@@ -52,7 +51,7 @@ func TestGoldenWords(t *testing.T) {
 			n++
 		}
 	}
-	assert.Equal(t, 88, n, "cases in %v (testdata/gen/fam_norm.py)", goldenFamilies)
+	expect.Equal(t, 88, n, "cases in %v (testdata/gen/fam_norm.py)", goldenFamilies)
 	words.Require(t, "norm.EpsilonPlacement", "norm.WeightForm")
 }
 
@@ -79,20 +78,20 @@ func floatOr(t *testing.T, c *golden.Case, name string) []float64 {
 		return nil
 	}
 	v, _, err := c.Float(name)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return v
 }
 
 func check(t *testing.T, c *golden.Case, fn, name string, got []float64) {
 	t.Helper()
 	want, _, err := c.Float(name)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	e := golden.NormwiseRelErr(got, want)
 	accuracy.Note(fn, name, e)
 	if testing.Verbose() {
 		t.Logf("%s %s: %.3g", fn, name, e)
 	}
-	assert.LessOrEqual(t, e, goldenTol, golden.Describe(c, name, e, goldenTol))
+	expect.LessOrEqual(t, e, goldenTol, golden.Describe(c, name, e, goldenTol))
 }
 
 func TestGolden(t *testing.T) {
@@ -108,11 +107,11 @@ func TestGolden(t *testing.T) {
 				weight := floatOr(t, c, "weight")
 				bias := floatOr(t, c, "bias")
 				dy := floatOr(t, c, "dy")
-				require.Equal(t, cfg.Weighted, weight != nil, "weight presence")
+				ensure.Equal(t, cfg.Weighted, weight != nil, "weight presence")
 				if !cfg.Weighted {
-					require.Equal(t, WeightAsIs, cfg.WeightForm, "a case without a weight has the default weight form")
+					ensure.Equal(t, WeightAsIs, cfg.WeightForm, "a case without a weight has the default weight form")
 				}
-				require.Equal(t, cfg.Bias, bias != nil, "bias presence")
+				ensure.Equal(t, cfg.Bias, bias != nil, "bias presence")
 				layer := cfg.Kind == "layer"
 				var (
 					y, sum []float64
@@ -126,15 +125,15 @@ func TestGolden(t *testing.T) {
 					if layer {
 						fn = "AddLayerNorm"
 						y, sum, err = AddLayerNorm(x, res, cfg.D, weight, bias, o)
-						require.NoError(t, err)
+						ensure.NoError(t, err)
 						g, err = AddLayerNormBackward(sum, cfg.D, weight, dy, dsum, o)
 					} else {
 						fn = "AddRMSNorm"
 						y, sum, err = AddRMSNorm(x, res, cfg.D, weight, o)
-						require.NoError(t, err)
+						ensure.NoError(t, err)
 						g, err = AddRMSNormBackward(sum, cfg.D, weight, dy, dsum, o)
 					}
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					check(t, c, fn, "sum", sum)
 				} else {
 					if layer {
@@ -144,14 +143,14 @@ func TestGolden(t *testing.T) {
 						fn = "RMSNorm"
 						y, err = RMSNorm(x, cfg.D, weight, o)
 					}
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					if dy != nil {
 						if layer {
 							g, err = LayerNormBackward(x, cfg.D, weight, dy, o)
 						} else {
 							g, err = RMSNormBackward(x, cfg.D, weight, dy, o)
 						}
-						require.NoError(t, err)
+						ensure.NoError(t, err)
 					}
 				}
 				check(t, c, fn, "y", y)
@@ -162,15 +161,15 @@ func TestGolden(t *testing.T) {
 				if weight != nil {
 					check(t, c, fn+"Backward", "dweight", g.Weight)
 				} else {
-					assert.Nil(t, g.Weight, "no weight, no weight gradient")
+					expect.Nil(t, g.Weight, "no weight, no weight gradient")
 				}
 				if layer {
 					check(t, c, fn+"Backward", "dbias", g.Bias)
 				} else {
-					assert.Nil(t, g.Bias, "RMSNorm has no bias gradient")
+					expect.Nil(t, g.Bias, "RMSNorm has no bias gradient")
 				}
 			})
 		}
 	}
-	require.NotZero(t, ran, "no golden case ran")
+	ensure.NotZero(t, ran, "no golden case ran")
 }

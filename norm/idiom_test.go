@@ -5,9 +5,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 )
@@ -72,18 +71,18 @@ func TestOnePassLosesTheOffset(t *testing.T) {
 	} {
 		x32, x := offsetRows(1, 8, d, c.mean, 1)
 		want, err := LayerNorm(x, d, nil, nil, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		two32, err := LayerNorm32(x32, d, nil, nil, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		one32, err := LayerNorm32(x32, d, nil, nil, one)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		eTwo := golden.NormwiseRelErr(num.Convert[float64](two32), want)
 		eOne := golden.NormwiseRelErr(num.Convert[float64](one32), want)
 		t.Logf("mean %g, std 1, d %d: normwise error two-pass %.3g, one-pass %.3g", c.mean, d, eTwo, eOne)
-		assert.Less(t, eTwo, 1e-5, "two-pass, mean %g", c.mean)
-		assert.Greater(t, eOne, c.onePassAbove, "one-pass, mean %g", c.mean)
-		assert.Less(t, eOne, c.bound, "one-pass, mean %g", c.mean)
-		assert.Equal(t, onePassPort(x32, d, 1e-5), one32, "mean %g: LayerNorm32 one-pass is the port written out", c.mean)
+		expect.Less(t, eTwo, 1e-5, "two-pass, mean %g", c.mean)
+		expect.Greater(t, eOne, c.onePassAbove, "one-pass, mean %g", c.mean)
+		expect.Less(t, eOne, c.bound, "one-pass, mean %g", c.mean)
+		expect.Equal(t, onePassPort(x32, d, 1e-5), one32, "mean %g: LayerNorm32 one-pass is the port written out", c.mean)
 	}
 }
 
@@ -98,26 +97,26 @@ func TestOnePassBackward(t *testing.T) {
 	one := o
 	one.Variance = VarianceOnePass
 	want, err := LayerNormBackward(x, d, nil, dy, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	two32, err := LayerNormBackward32(x32, d, nil, dy32, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	one32, err := LayerNormBackward32(x32, d, nil, dy32, one)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	eTwo := golden.NormwiseRelErr(num.Convert[float64](two32.X), want.X)
 	eOne := golden.NormwiseRelErr(num.Convert[float64](one32.X), want.X)
 	t.Logf("backward, mean 1e4: normwise error of dx two-pass %.3g, one-pass %.3g", eTwo, eOne)
-	assert.Less(t, eTwo, 1e-4)
-	assert.Greater(t, eOne, 1e-2)
+	expect.Less(t, eTwo, 1e-4)
+	expect.Greater(t, eOne, 1e-2)
 
 	zero := make([]float32, len(x32))
 	y, _, err := AddLayerNorm32(x32, zero, d, nil, nil, one)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	y1, err := LayerNorm32(x32, d, nil, nil, one)
-	require.NoError(t, err)
-	assert.Equal(t, y1, y, "AddLayerNorm32 with a zero residual is LayerNorm32, one-pass too")
+	ensure.NoError(t, err)
+	expect.Equal(t, y1, y, "AddLayerNorm32 with a zero residual is LayerNorm32, one-pass too")
 	g, err := AddLayerNormBackward32(x32, d, nil, dy32, nil, one)
-	require.NoError(t, err)
-	assert.Equal(t, one32.X, g.X)
+	ensure.NoError(t, err)
+	expect.Equal(t, one32.X, g.X)
 }
 
 // TestVarianceLeavesTheReference: the float64 functions give the same bits
@@ -148,12 +147,12 @@ func TestVarianceLeavesTheReference(t *testing.T) {
 		func(o Options) (any, error) { return RMSNormBackward32(x32, d, w32, dy32, o) },
 	} {
 		a, err := f(o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		b, err := f(one)
-		require.NoError(t, err)
-		assert.Equal(t, a, b)
+		ensure.NoError(t, err)
+		expect.Equal(t, a, b)
 	}
 	_, err := LayerNorm32(x32, d, nil, nil, Options{Epsilon: 1, Variance: 2})
-	assert.ErrorIs(t, err, ErrOption)
-	assert.EqualError(t, err, "norm: invalid option: LayerNorm32: Options.Variance = 2; want one of two-pass, one-pass")
+	expect.ErrorIs(t, err, ErrOption)
+	expect.EqualError(t, err, "norm: invalid option: LayerNorm32: Options.Variance = 2; want one of two-pass, one-pass")
 }

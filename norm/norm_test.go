@@ -7,9 +7,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/internal/num"
 )
@@ -42,18 +41,18 @@ func TestWorkedValues(t *testing.T) {
 	x := []float64{1, 2, 3, 4}
 	// [mpmath] LayerNorm, Ba et al. 2016 Eq. (3)–(4), ε = 1e-5 in the root.
 	y, err := LayerNorm(x, 4, nil, nil, Options{Epsilon: 1e-5})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	want := []float64{-1.341635419968927, -0.44721180665630899, 0.44721180665630899, 1.341635419968927}
 	for i := range want {
-		assert.InEpsilon(t, want[i], y[i], 1e-15, "LayerNorm element %d", i)
+		expect.InEpsilon(t, want[i], y[i], 1e-15, "LayerNorm element %d", i)
 	}
 	// [mpmath] RMSNorm, Zhang & Sennrich 2019 (arXiv 1910.07467), ε = 0 in the
 	// source; ε = 2⁻¹⁰⁷⁴ changes mean(x²) = 7.5 by a relative 7e-325.
 	y, err = RMSNorm(x, 4, nil, Options{Epsilon: math.SmallestNonzeroFloat64})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	want = []float64{0.36514837167011074, 0.73029674334022148, 1.0954451150103322, 1.460593486680443}
 	for i := range want {
-		assert.InEpsilon(t, want[i], y[i], 1e-15, "RMSNorm element %d", i)
+		expect.InEpsilon(t, want[i], y[i], 1e-15, "RMSNorm element %d", i)
 	}
 }
 
@@ -95,14 +94,14 @@ func TestErrors(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			err := tc.call()
-			require.Error(t, err)
-			assert.ErrorIs(t, err, tc.want)
+			ensure.Error(t, err)
+			expect.ErrorIs(t, err, tc.want)
 			for _, other := range []error{ErrShape, ErrEpsilon, ErrOption} {
 				if other != tc.want {
-					assert.False(t, errors.Is(err, other), "error %q also matches %v", err, other)
+					expect.False(t, errors.Is(err, other), "error %q also matches %v", err, other)
 				}
 			}
-			assert.Contains(t, err.Error(), tc.msg)
+			expect.Contains(t, err.Error(), tc.msg)
 		})
 	}
 }
@@ -111,30 +110,30 @@ func TestErrors(t *testing.T) {
 // vocabulary.json and the golden configurations use), that they read back,
 // and that the zero values are the documented defaults.
 func TestOptionStrings(t *testing.T) {
-	assert.Equal(t, "in-root", EpsilonInRoot.String())
-	assert.Equal(t, "added-to-root", EpsilonAddedToRoot.String())
-	assert.Equal(t, "as-is", WeightAsIs.String())
-	assert.Equal(t, "one-plus", WeightOnePlus.String())
-	assert.Equal(t, "EpsilonPlacement(7)", EpsilonPlacement(7).String())
-	assert.Equal(t, "WeightForm(-1)", WeightForm(-1).String())
+	expect.Equal(t, "in-root", EpsilonInRoot.String())
+	expect.Equal(t, "added-to-root", EpsilonAddedToRoot.String())
+	expect.Equal(t, "as-is", WeightAsIs.String())
+	expect.Equal(t, "one-plus", WeightOnePlus.String())
+	expect.Equal(t, "EpsilonPlacement(7)", EpsilonPlacement(7).String())
+	expect.Equal(t, "WeightForm(-1)", WeightForm(-1).String())
 
 	var o Options
-	assert.Equal(t, EpsilonInRoot, o.Placement, "the zero placement is in-root")
-	assert.Equal(t, WeightAsIs, o.Weight, "the zero weight form is as-is")
-	assert.Equal(t, []EpsilonPlacement{EpsilonInRoot, EpsilonAddedToRoot}, EpsilonPlacement(0).Values())
-	assert.Equal(t, []WeightForm{WeightAsIs, WeightOnePlus}, WeightForm(0).Values())
+	expect.Equal(t, EpsilonInRoot, o.Placement, "the zero placement is in-root")
+	expect.Equal(t, WeightAsIs, o.Weight, "the zero weight form is as-is")
+	expect.Equal(t, []EpsilonPlacement{EpsilonInRoot, EpsilonAddedToRoot}, EpsilonPlacement(0).Values())
+	expect.Equal(t, []WeightForm{WeightAsIs, WeightOnePlus}, WeightForm(0).Values())
 
 	var p EpsilonPlacement
 	err := p.UnmarshalText([]byte("in_root"))
-	assert.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
-	assert.Contains(t, err.Error(), `"in_root"; want one of in-root, added-to-root`)
-	assert.Equal(t, EpsilonInRoot, p, "a refused word leaves the value alone")
+	expect.ErrorIs(t, err, ErrOption, "the old spelling is not a word")
+	expect.Contains(t, err.Error(), `"in_root"; want one of in-root, added-to-root`)
+	expect.Equal(t, EpsilonInRoot, p, "a refused word leaves the value alone")
 	var f WeightForm = WeightOnePlus
-	assert.ErrorIs(t, f.UnmarshalText([]byte("none")), ErrOption)
-	assert.Equal(t, WeightOnePlus, f)
+	expect.ErrorIs(t, f.UnmarshalText([]byte("none")), ErrOption)
+	expect.Equal(t, WeightOnePlus, f)
 	_, err = EpsilonPlacement(7).MarshalText()
-	assert.ErrorIs(t, err, ErrOption)
-	assert.ErrorIs(t, WeightForm(2).Check(), ErrOption)
+	expect.ErrorIs(t, err, ErrOption)
+	expect.ErrorIs(t, WeightForm(2).Check(), ErrOption)
 }
 
 // TestSpecialCases checks the "Special cases are:" block of the package
@@ -145,12 +144,12 @@ func TestSpecialCases(t *testing.T) {
 		t.Run(fmt.Sprint(o.Placement, "/", o.Weight), func(t *testing.T) {
 			// Empty input: empty output, no error.
 			y, err := LayerNorm(nil, 4, nil, nil, o)
-			require.NoError(t, err)
-			assert.Empty(t, y)
+			ensure.NoError(t, err)
+			expect.Empty(t, y)
 			g, err := RMSNormBackward([]float64{}, 4, []float64{1, 2, 3, 4}, []float64{}, o)
-			require.NoError(t, err)
-			assert.Empty(t, g.X)
-			assert.Equal(t, []float64{0, 0, 0, 0}, g.Weight)
+			ensure.NoError(t, err)
+			expect.Empty(t, g.X)
+			expect.Equal(t, []float64{0, 0, 0, 0}, g.Weight)
 
 			// A row with NaN or Inf is NaN throughout; other rows are untouched.
 			x := []float64{1, nan, 2, 1, 2, 3, -inf, 0, 1}
@@ -161,11 +160,11 @@ func TestSpecialCases(t *testing.T) {
 				} else {
 					y, err = RMSNorm(x, 3, nil, o)
 				}
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				for j := 0; j < 3; j++ {
-					assert.True(t, math.IsNaN(y[j]), "row 0 element %d", j)
-					assert.True(t, math.IsNaN(y[6+j]), "row 2 element %d", j)
-					assert.False(t, math.IsNaN(y[3+j]), "row 1 element %d", j)
+					expect.True(t, math.IsNaN(y[j]), "row 0 element %d", j)
+					expect.True(t, math.IsNaN(y[6+j]), "row 2 element %d", j)
+					expect.False(t, math.IsNaN(y[3+j]), "row 1 element %d", j)
 				}
 				var gr Grads
 				dy := []float64{1, 1, 1, 1, 1, 1, 1, 1, 1}
@@ -174,9 +173,9 @@ func TestSpecialCases(t *testing.T) {
 				} else {
 					gr, err = RMSNormBackward(x, 3, nil, dy, o)
 				}
-				require.NoError(t, err)
-				assert.True(t, math.IsNaN(gr.X[0]) && math.IsNaN(gr.X[8]))
-				assert.False(t, math.IsNaN(gr.X[4]))
+				ensure.NoError(t, err)
+				expect.True(t, math.IsNaN(gr.X[0]) && math.IsNaN(gr.X[8]))
+				expect.False(t, math.IsNaN(gr.X[4]))
 			}
 
 			// Constant rows in LayerNorm: y = b exactly; ∂L/∂x = (g − mean g)/r.
@@ -184,44 +183,44 @@ func TestSpecialCases(t *testing.T) {
 			w := []float64{0.5, 1.5, -1.5}
 			c := []float64{7, 7, 7, 1e8, 1e8, 1e8, 0, 0, 0}
 			y, err = LayerNorm(c, 3, w, b, o)
-			require.NoError(t, err)
-			assert.Equal(t, append(append(append([]float64{}, b...), b...), b...), y)
+			ensure.NoError(t, err)
+			expect.Equal(t, append(append(append([]float64{}, b...), b...), b...), y)
 			dy := []float64{1, 2, 3, 1, 2, 3, 1, 2, 3}
 			g, err = LayerNormBackward(c, 3, w, dy, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			want := constantRowDx(w, dy, o)
 			for j := 0; j < 9; j++ {
-				assert.InEpsilon(t, want[j], g.X[j], 1e-14, "constant row dx %d", j)
+				expect.InEpsilon(t, want[j], g.X[j], 1e-14, "constant row dx %d", j)
 			}
-			assert.Equal(t, []float64{0, 0, 0}, g.Weight, "x̂ = 0 on constant rows")
-			assert.Equal(t, []float64{3, 6, 9}, g.Bias)
+			expect.Equal(t, []float64{0, 0, 0}, g.Weight, "x̂ = 0 on constant rows")
+			expect.Equal(t, []float64{3, 6, 9}, g.Bias)
 
 			// A zero row in RMSNorm: y = 0, ∂L/∂x = g/r.
 			y, err = RMSNorm([]float64{0, 0, 0}, 3, w, o)
-			require.NoError(t, err)
-			assert.Equal(t, []float64{0, 0, 0}, y)
+			ensure.NoError(t, err)
+			expect.Equal(t, []float64{0, 0, 0}, y)
 			g, err = RMSNormBackward([]float64{0, 0, 0}, 3, w, []float64{1, 2, 3}, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			r := math.Sqrt(o.Epsilon)
 			if o.Placement == EpsilonAddedToRoot {
 				r = o.Epsilon
 			}
 			for j := range 3 {
 				gj := float64(j+1) * gammaOf(w, j, o.Weight)
-				assert.InEpsilon(t, gj/r, g.X[j], 1e-14, "zero row dx %d", j)
+				expect.InEpsilon(t, gj/r, g.X[j], 1e-14, "zero row dx %d", j)
 			}
 
 			// d = 1: LayerNorm gives the bias, RMSNorm gives γx/r with s = |x|.
 			y, err = LayerNorm([]float64{3, -1e300}, 1, []float64{2}, []float64{0.5}, o)
-			require.NoError(t, err)
-			assert.Equal(t, []float64{0.5, 0.5}, y)
+			ensure.NoError(t, err)
+			expect.Equal(t, []float64{0.5, 0.5}, y)
 			y, err = RMSNorm([]float64{-3}, 1, nil, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			want1 := -3 / math.Sqrt(9+o.Epsilon)
 			if o.Placement == EpsilonAddedToRoot {
 				want1 = -3 / (3 + o.Epsilon)
 			}
-			assert.InEpsilon(t, want1, y[0], 1e-15)
+			expect.InEpsilon(t, want1, y[0], 1e-15)
 		})
 	}
 }
@@ -300,15 +299,15 @@ func TestNaiveFailsGolden(t *testing.T) {
 				c = k
 			}
 		}
-		require.NotNil(t, c, "case %s/%s", tc.family, tc.name)
+		ensure.NotNil(t, c, "case %s/%s", tc.family, tc.name)
 		cfg := decodeConfig(t, c)
 		x, _, err := c.Float("x")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		want, _, err := c.Float("y")
-		require.NoError(t, err)
-		require.True(t, cfg.Weighted, "the case has a weight")
-		require.Equal(t, WeightAsIs, cfg.WeightForm, "the naive form applies the weight as is")
-		require.Equal(t, tc.o, cfg.options(), "the naive form runs with the case's options")
+		ensure.NoError(t, err)
+		ensure.True(t, cfg.Weighted, "the case has a weight")
+		ensure.Equal(t, WeightAsIs, cfg.WeightForm, "the naive form applies the weight as is")
+		ensure.Equal(t, tc.o, cfg.options(), "the naive form runs with the case's options")
 		w := floatOr(t, c, "weight")
 		b := floatOr(t, c, "bias")
 		got := naive(x, cfg.D, tc.center, tc.o)
@@ -321,7 +320,7 @@ func TestNaiveFailsGolden(t *testing.T) {
 		}
 		e := golden.NormwiseRelErr(got, want)
 		t.Logf("%s/%s: naive error %.3g", tc.family, tc.name, e)
-		assert.Greater(t, e, tc.atLeast)
+		expect.Greater(t, e, tc.atLeast)
 	}
 }
 
@@ -358,19 +357,19 @@ func (p fusedPair[T, G]) check(t *testing.T, d int, x, res, w, b, dy, dsum []T, 
 		h[i] = x[i] + res[i]
 	}
 	y, sum, err := p.add(x, res, d, w, b, o)
-	require.NoError(t, err)
-	require.Equal(t, h, sum)
+	ensure.NoError(t, err)
+	ensure.Equal(t, h, sum)
 	yu, err := p.norm(h, d, w, b, o)
-	require.NoError(t, err)
-	require.Equal(t, yu, y)
+	ensure.NoError(t, err)
+	ensure.Equal(t, yu, y)
 	gu, err := p.grad(h, d, w, dy, o)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	g, err := p.addGrad(sum, d, w, dy, dsum, o)
-	require.NoError(t, err)
-	require.Equal(t, p.plus(gu, dsum), g)
+	ensure.NoError(t, err)
+	ensure.Equal(t, p.plus(gu, dsum), g)
 	g, err = p.addGrad(sum, d, w, dy, nil, o)
-	require.NoError(t, err)
-	require.Equal(t, gu, g, "nil dsum is zero")
+	ensure.NoError(t, err)
+	ensure.Equal(t, gu, g, "nil dsum is zero")
 }
 
 func plus64(g Grads, dsum []float64) Grads {

@@ -6,9 +6,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -18,7 +17,7 @@ type layerFn func(x, w, b []float64, d int, o Options) []float64
 func lnFwd(t *testing.T) layerFn {
 	return func(x, w, b []float64, d int, o Options) []float64 {
 		y, err := LayerNorm(x, d, w, b, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		return y
 	}
 }
@@ -26,7 +25,7 @@ func lnFwd(t *testing.T) layerFn {
 func rmsFwd(t *testing.T) layerFn {
 	return func(x, w, _ []float64, d int, o Options) []float64 {
 		y, err := RMSNorm(x, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		return y
 	}
 }
@@ -88,21 +87,21 @@ func TestFiniteDifferences(t *testing.T) {
 					} else {
 						g, err = RMSNormBackward(x, d, w, dy, o)
 					}
-					require.NoError(t, err)
+					ensure.NoError(t, err)
 					fx := centralDiff(x, L)
 					fw := centralDiff(w, L)
 					e := golden.NormwiseRelErr(g.X, fx)
 					if d == 1 && layer {
 						// ∂L/∂x is exactly 0 (y = b), and so is the difference.
-						assert.Equal(t, make([]float64, d*rows), g.X)
-						assert.LessOrEqual(t, e, 1e-9, "absolute, since the reference is 0")
+						expect.Equal(t, make([]float64, d*rows), g.X)
+						expect.LessOrEqual(t, e, 1e-9, "absolute, since the reference is 0")
 					} else {
-						assert.LessOrEqual(t, e, tol, "dx")
+						expect.LessOrEqual(t, e, tol, "dx")
 					}
-					assert.LessOrEqual(t, golden.NormwiseRelErr(g.Weight, fw), tol, "dweight")
+					expect.LessOrEqual(t, golden.NormwiseRelErr(g.Weight, fw), tol, "dweight")
 					if layer {
 						fb := centralDiff(b, L)
-						assert.LessOrEqual(t, golden.NormwiseRelErr(g.Bias, fb), tol, "dbias")
+						expect.LessOrEqual(t, golden.NormwiseRelErr(g.Bias, fb), tol, "dbias")
 					}
 				})
 			}
@@ -121,9 +120,9 @@ func TestScaleInvariance(t *testing.T) {
 	w := uniform(r, d, 0.5, 1.5)
 	for _, o := range allOptions(1e-4) {
 		ref, err := RMSNorm(x, d, w, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		refL, err := LayerNorm(x, d, w, nil, o)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for _, j := range []int{-990, -500, -1, 1, 37, 900} {
 			xs := make([]float64, len(x))
 			for i := range x {
@@ -138,11 +137,11 @@ func TestScaleInvariance(t *testing.T) {
 				continue // ε itself out of range
 			}
 			got, err := RMSNorm(xs, d, w, os)
-			require.NoError(t, err)
-			assert.Equal(t, ref, got, "RMSNorm 2^%d, %v", j, o.Placement)
+			ensure.NoError(t, err)
+			expect.Equal(t, ref, got, "RMSNorm 2^%d, %v", j, o.Placement)
 			gotL, err := LayerNorm(xs, d, w, nil, os)
-			require.NoError(t, err)
-			assert.Equal(t, refL, gotL, "LayerNorm 2^%d, %v", j, o.Placement)
+			ensure.NoError(t, err)
+			expect.Equal(t, refL, gotL, "LayerNorm 2^%d, %v", j, o.Placement)
 		}
 	}
 }
@@ -159,7 +158,7 @@ func TestLayerNormMoments(t *testing.T) {
 		for _, d := range []int{2, 5, 64} {
 			x := uniform(r, d, -3, 3)
 			y, err := LayerNorm(x, d, nil, nil, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			mu, s2 := 0.0, 0.0
 			for _, v := range x {
 				mu += v
@@ -180,8 +179,8 @@ func TestLayerNormMoments(t *testing.T) {
 			if o.Placement == EpsilonAddedToRoot {
 				wantVar = s2 / ((math.Sqrt(s2) + o.Epsilon) * (math.Sqrt(s2) + o.Epsilon))
 			}
-			assert.InDelta(t, 0, my, 1e-14, "mean of y, d=%d", d)
-			assert.InEpsilon(t, wantVar, vy, 1e-14, "variance of y, d=%d", d)
+			expect.InDelta(t, 0, my, 1e-14, "mean of y, d=%d", d)
+			expect.InEpsilon(t, wantVar, vy, 1e-14, "variance of y, d=%d", d)
 
 			// Shift by a power of two so the shifted inputs are exact.
 			xs := make([]float64, d)
@@ -189,20 +188,20 @@ func TestLayerNormMoments(t *testing.T) {
 				xs[i] = x[i] + 1024
 			}
 			ys, err := LayerNorm(xs, d, nil, nil, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			// The shifted inputs are rounded to a spacing of 2⁻⁴², so the
 			// outputs may differ by about 2⁻⁴²/σ ≈ 1e-12 relative.
-			assert.LessOrEqual(t, golden.NormwiseRelErr(ys, y), 1e-11, "shift, d=%d", d)
+			expect.LessOrEqual(t, golden.NormwiseRelErr(ys, y), 1e-11, "shift, d=%d", d)
 
 			dy := uniform(r, d, -1, 1)
 			g, err := LayerNormBackward(x, d, nil, dy, o)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			s, a := 0.0, 0.0
 			for _, v := range g.X {
 				s += v
 				a += math.Abs(v)
 			}
-			assert.LessOrEqual(t, math.Abs(s), 1e-14*a, "Σ ∂L/∂x, d=%d", d)
+			expect.LessOrEqual(t, math.Abs(s), 1e-14*a, "Σ ∂L/∂x, d=%d", d)
 		}
 	}
 }
@@ -234,11 +233,11 @@ func TestRandomShapes(t *testing.T) {
 			} else {
 				y, err = RMSNorm(x, d, nil, o)
 			}
-			require.NoError(t, err)
-			require.Len(t, y, len(x))
+			ensure.NoError(t, err)
+			ensure.Len(t, y, len(x))
 			for i, v := range y {
-				require.False(t, math.IsNaN(v) || math.IsInf(v, 0), "element %d of d=%d scale=%g ε=%g", i, d, scale, o.Epsilon)
-				require.LessOrEqual(t, math.Abs(v), math.Sqrt(float64(d))*(1+1e-14))
+				ensure.False(t, math.IsNaN(v) || math.IsInf(v, 0), "element %d of d=%d scale=%g ε=%g", i, d, scale, o.Epsilon)
+				ensure.LessOrEqual(t, math.Abs(v), math.Sqrt(float64(d))*(1+1e-14))
 			}
 		}
 	}
@@ -259,11 +258,11 @@ func TestConstantRows(t *testing.T) {
 		b := uniform(r, d, -1, 1)
 		for _, o := range allOptions(1e-5) {
 			y, err := LayerNorm(x, d, w, b, o)
-			require.NoError(t, err)
-			require.Equal(t, append(append([]float64{}, b...), b...), y, "d=%d c=%g", d, c)
+			ensure.NoError(t, err)
+			ensure.Equal(t, append(append([]float64{}, b...), b...), y, "d=%d c=%g", d, c)
 			g, err := LayerNormBackward(x, d, w, x, o)
-			require.NoError(t, err)
-			require.Equal(t, make([]float64, d), g.Weight)
+			ensure.NoError(t, err)
+			ensure.Equal(t, make([]float64, d), g.Weight)
 		}
 	}
 }

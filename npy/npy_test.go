@@ -13,8 +13,9 @@ import (
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 var allDTypes = []DType{Float64, Float32, Float16, Int64, Int32, Int16, Int8, Uint32, Uint16, Uint8, Bool}
@@ -96,7 +97,7 @@ func sameBits(t *testing.T, want, got any) {
 	case []float32:
 		sameBitsOf(t, w, got, func(x float32) uint64 { return uint64(math.Float32bits(x)) })
 	default:
-		require.Equal(t, want, got)
+		ensure.Equal(t, want, got)
 	}
 }
 
@@ -104,10 +105,10 @@ func sameBits(t *testing.T, want, got any) {
 func sameBitsOf[T float32 | float64](t *testing.T, want []T, got any, bits func(T) uint64) {
 	t.Helper()
 	g, ok := got.([]T)
-	require.True(t, ok, "got %T", got)
-	require.Len(t, g, len(want))
+	ensure.True(t, ok, "got %T", got)
+	ensure.Len(t, g, len(want))
 	for i := range want {
-		require.Equal(t, bits(want[i]), bits(g[i]), "element %d", i)
+		ensure.Equal(t, bits(want[i]), bits(g[i]), "element %d", i)
 	}
 }
 
@@ -123,13 +124,13 @@ func TestRoundTrip(t *testing.T) {
 				for _, ver := range []Version{{}, Version1, Version2, Version3} {
 					for _, shape := range shapes {
 						n, err := count("test", "shape", shape)
-						require.NoError(t, err)
+						ensure.NoError(t, err)
 						a := &Array{Header: Header{Version: ver, DType: dt, ByteOrder: bo, FortranOrder: fortran, Shape: shape}, Values: randomValues(dt, n, r)}
 						var buf bytes.Buffer
-						require.NoError(t, Write(&buf, a))
-						require.Zero(t, (buf.Len()-n*dt.Size())%64, "data must start at a multiple of 64 (format description)")
+						ensure.NoError(t, Write(&buf, a))
+						ensure.Zero(t, (buf.Len()-n*dt.Size())%64, "data must start at a multiple of 64 (format description)")
 						got, err := Read(&buf)
-						require.NoError(t, err, "%v %v fortran=%v %v %v", dt, bo, fortran, ver, shape)
+						ensure.NoError(t, err, "%v %v fortran=%v %v %v", dt, bo, fortran, ver, shape)
 						want := a.Header
 						if want.Version == (Version{}) {
 							want.Version = Version1
@@ -137,9 +138,9 @@ func TestRoundTrip(t *testing.T) {
 						if dt.Size() == 1 {
 							want.ByteOrder = LittleEndian
 						}
-						assert.Equal(t, want, got.Header)
+						expect.Equal(t, want, got.Header)
 						sameBits(t, a.Values, got.Values)
-						assert.Zero(t, buf.Len(), "Read must consume exactly the array")
+						expect.Zero(t, buf.Len(), "Read must consume exactly the array")
 					}
 				}
 			}
@@ -153,40 +154,40 @@ func TestWriteMatchesRecordedNumPyBytes(t *testing.T) {
 	want := "\x93NUMPY\x01\x00v\x00{'descr': '<f8', 'fortran_order': False, 'shape': (2, 3), }" +
 		strings.Repeat(" ", 58) + "\n"
 	a, err := New(Float64, []int{2, 3}, []float64{0, 1, 2, 3, 4, 5})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var buf bytes.Buffer
-	require.NoError(t, Write(&buf, a))
-	require.Equal(t, 128+6*8, buf.Len())
-	assert.Equal(t, want, buf.String()[:128])
-	assert.Equal(t, []byte{0, 0, 0, 0, 0, 0, 0xf0, 0x3f}, buf.Bytes()[136:144], "1.0 as little-endian IEEE 754 binary64")
+	ensure.NoError(t, Write(&buf, a))
+	ensure.Equal(t, 128+6*8, buf.Len())
+	expect.Equal(t, want, buf.String()[:128])
+	expect.Equal(t, []byte{0, 0, 0, 0, 0, 0, 0xf0, 0x3f}, buf.Bytes()[136:144], "1.0 as little-endian IEEE 754 binary64")
 }
 
 // Column-major order, by definition of the format's 'fortran_order': the
 // first index varies fastest. Matrix [[1 2 3] [4 5 6]] is stored 1 4 2 5 3 6.
 func TestFortranOrderTransposes(t *testing.T) {
 	a, err := New(Int32, []int{2, 3}, []int32{1, 2, 3, 4, 5, 6})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	a.FortranOrder = true
 	var buf bytes.Buffer
-	require.NoError(t, Write(&buf, a))
+	ensure.NoError(t, Write(&buf, a))
 	data := buf.Bytes()[128:]
 	var stored []int32
 	for i := 0; i < len(data); i += 4 {
 		stored = append(stored, int32(data[i])|int32(data[i+1])<<8|int32(data[i+2])<<16|int32(data[i+3])<<24)
 	}
-	assert.Equal(t, []int32{1, 4, 2, 5, 3, 6}, stored)
+	expect.Equal(t, []int32{1, 4, 2, 5, 3, 6}, stored)
 	got, err := Read(bytes.NewReader(buf.Bytes()))
-	require.NoError(t, err)
-	assert.Equal(t, []int32{1, 2, 3, 4, 5, 6}, got.Values)
-	assert.True(t, got.FortranOrder)
+	ensure.NoError(t, err)
+	expect.Equal(t, []int32{1, 2, 3, 4, 5, 6}, got.Values)
+	expect.True(t, got.FortranOrder)
 
 	// Three dimensions, shape (2, 2, 2): column-major offset i + 2j + 4k.
 	b, err := New(Uint8, []int{2, 2, 2}, []uint8{0, 1, 2, 3, 4, 5, 6, 7}) // row-major value = 4i + 2j + k
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	b.FortranOrder = true
 	buf.Reset()
-	require.NoError(t, Write(&buf, b))
-	assert.Equal(t, []byte{0, 4, 2, 6, 1, 5, 3, 7}, buf.Bytes()[128:])
+	ensure.NoError(t, Write(&buf, b))
+	expect.Equal(t, []byte{0, 4, 2, 6, 1, 5, 3, 7}, buf.Bytes()[128:])
 }
 
 // file assembles a version 1.0 file around a header dictionary text and data.
@@ -217,14 +218,14 @@ func TestReadHeaderVariants(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			h, err := ReadHeader(bytes.NewReader(file(tc.dict, eight)))
-			require.NoError(t, err)
-			assert.Empty(t, cmp.Diff(tc.want, h))
+			ensure.NoError(t, err)
+			expect.Empty(t, cmp.Diff(tc.want, h))
 			// Each case's data fill 8 bytes, or none for the empty shapes.
 			a, err := Read(bytes.NewReader(file(tc.dict, eight)))
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			n, ok := a.valuesLen()
-			assert.True(t, ok)
-			assert.Equal(t, h.Len(), n)
+			expect.True(t, ok)
+			expect.Equal(t, h.Len(), n)
 		})
 	}
 }
@@ -281,11 +282,11 @@ func TestReadErrors(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := Read(bytes.NewReader(tc.in))
-			require.ErrorIs(t, err, tc.want)
-			assert.EqualError(t, err, tc.says)
+			ensure.ErrorIs(t, err, tc.want)
+			expect.EqualError(t, err, tc.says)
 			for _, other := range []error{ErrFormat, ErrDType, ErrShape, ErrData} {
 				if other != tc.want {
-					assert.NotErrorIs(t, err, other, "one sentinel per error")
+					expect.NotErrorIs(t, err, other, "one sentinel per error")
 				}
 			}
 		})
@@ -332,12 +333,12 @@ func TestLyingHeaderDoesNotAllocate(t *testing.T) {
 				}
 				_, err = Read(r)
 			})
-			require.ErrorIs(t, err, tc.want, "%s hide=%v", tc.name, hide)
+			ensure.ErrorIs(t, err, tc.want, "%s hide=%v", tc.name, hide)
 			limit := uint64(limit)
 			if tc.name == "2 GiB claimed, 3 MiB present" && hide {
 				limit = 4 * 3 << 20 // the buffer doubles as the 3 MiB arrive: its sizes sum to under four times that
 			}
-			assert.Less(t, n, limit, "%s hide=%v allocated %d bytes", tc.name, hide, n)
+			expect.Less(t, n, limit, "%s hide=%v allocated %d bytes", tc.name, hide, n)
 			t.Logf("%s hide=%v: %d bytes", tc.name, hide, n)
 		}
 	}
@@ -347,45 +348,45 @@ func TestStreamOfArrays(t *testing.T) {
 	var buf bytes.Buffer
 	a, _ := New(Float32, []int{3}, []float32{1, 2, 3})
 	b, _ := New(Uint8, []int{2, 2}, []uint8{9, 8, 7, 6})
-	require.NoError(t, Write(&buf, a))
-	require.NoError(t, Write(&buf, b))
+	ensure.NoError(t, Write(&buf, a))
+	ensure.NoError(t, Write(&buf, b))
 	r := onlyReader{&buf}
 	got, err := Read(r)
-	require.NoError(t, err)
-	assert.Equal(t, a.Values, got.Values)
+	ensure.NoError(t, err)
+	expect.Equal(t, a.Values, got.Values)
 	got, err = Read(r)
-	require.NoError(t, err)
-	assert.Equal(t, b.Values, got.Values)
+	ensure.NoError(t, err)
+	expect.Equal(t, b.Values, got.Values)
 	_, err = Read(r)
-	assert.ErrorIs(t, err, ErrFormat)
+	expect.ErrorIs(t, err, ErrFormat)
 }
 
 func TestFiles(t *testing.T) {
 	dir := t.TempDir()
 	a, err := New(Int64, []int{2, 2}, []int64{1, -2, 3, -4})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	p := filepath.Join(dir, "a.npy")
-	require.NoError(t, WriteFile(p, a))
+	ensure.NoError(t, WriteFile(p, a))
 	got, err := ReadFile(p)
-	require.NoError(t, err)
-	assert.Equal(t, a.Values, got.Values)
+	ensure.NoError(t, err)
+	expect.Equal(t, a.Values, got.Values)
 
 	b, _ := os.ReadFile(p)
-	require.NoError(t, os.WriteFile(p, append(b, 0), 0o644))
+	ensure.NoError(t, os.WriteFile(p, append(b, 0), 0o644))
 	_, err = ReadFile(p)
-	require.ErrorIs(t, err, ErrData)
-	assert.EqualError(t, err, "npy: data does not match the header: ReadFile: "+p+": bytes follow the 32 bytes of data that shape [2 2] of int64 needs; want the file to end there")
+	ensure.ErrorIs(t, err, ErrData)
+	expect.EqualError(t, err, "npy: data does not match the header: ReadFile: "+p+": bytes follow the 32 bytes of data that shape [2 2] of int64 needs; want the file to end there")
 
-	require.NoError(t, os.WriteFile(p, b[:len(b)-1], 0o644))
+	ensure.NoError(t, os.WriteFile(p, b[:len(b)-1], 0o644))
 	_, err = ReadFile(p)
-	require.ErrorIs(t, err, ErrData)
-	assert.EqualError(t, err, "npy: data does not match the header: ReadFile: "+p+": the data ends early (input ended early: 31 bytes remain); want the 32 bytes that shape [2 2] of int64 needs")
+	ensure.ErrorIs(t, err, ErrData)
+	expect.EqualError(t, err, "npy: data does not match the header: ReadFile: "+p+": the data ends early (input ended early: 31 bytes remain); want the 32 bytes that shape [2 2] of int64 needs")
 	bad := &Array{Header: Header{DType: Int64, Shape: []int{3}}, Values: []int64{1}}
-	assert.EqualError(t, WriteFile(p, bad), "npy: values do not match the header: WriteFile: "+p+": Array.Values has 1 elements; want 3 for shape [3]")
+	expect.EqualError(t, WriteFile(p, bad), "npy: values do not match the header: WriteFile: "+p+": Array.Values has 1 elements; want 3 for shape [3]")
 
 	_, err = ReadFile(filepath.Join(dir, "missing.npy"))
-	assert.ErrorIs(t, err, os.ErrNotExist)
-	assert.Error(t, WriteFile(filepath.Join(dir, "no", "such", "dir.npy"), a))
+	expect.ErrorIs(t, err, os.ErrNotExist)
+	expect.Error(t, WriteFile(filepath.Join(dir, "no", "such", "dir.npy"), a))
 }
 
 func TestWriteErrors(t *testing.T) {
@@ -409,8 +410,8 @@ func TestWriteErrors(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			err := Write(io.Discard, tc.a)
-			require.ErrorIs(t, err, tc.want)
-			assert.EqualError(t, err, tc.says)
+			ensure.ErrorIs(t, err, tc.want)
+			expect.EqualError(t, err, tc.says)
 		})
 	}
 }
@@ -423,7 +424,7 @@ func (failWriter) Write([]byte) (int, error) { return 0, errDisk }
 
 func TestWriteReportsWriterError(t *testing.T) {
 	a, _ := New(Float64, []int{1}, []float64{1})
-	assert.ErrorIs(t, Write(failWriter{}, a), errDisk)
+	expect.ErrorIs(t, Write(failWriter{}, a), errDisk)
 }
 
 // A shape of 22000 dimensions of 1 makes a 66 kB header: too long for the
@@ -436,23 +437,23 @@ func TestVersionChoice(t *testing.T) {
 		shape[i] = 1
 	}
 	a, err := New(Float32, shape, []float32{2.5})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var buf bytes.Buffer
-	require.NoError(t, Write(&buf, a))
+	ensure.NoError(t, Write(&buf, a))
 	got, err := Read(&buf)
-	require.NoError(t, err)
-	assert.Equal(t, Version2, got.Version)
-	assert.Equal(t, []float32{2.5}, got.Values)
+	ensure.NoError(t, err)
+	expect.Equal(t, Version2, got.Version)
+	expect.Equal(t, []float32{2.5}, got.Values)
 
 	a.Version = Version1
 	err = Write(io.Discard, a)
-	require.ErrorIs(t, err, ErrFormat)
-	assert.Regexp(t, `^npy: malformed file: Write: Array.Version = 1.0 with a header of \d+ bytes, which does not fit version 1.0; want at most 65535 bytes, or Version2, or zero \(choose\)$`, err.Error())
+	ensure.ErrorIs(t, err, ErrFormat)
+	expect.Regexp(t, `^npy: malformed file: Write: Array.Version = 1.0 with a header of \d+ bytes, which does not fit version 1.0; want at most 65535 bytes, or Version2, or zero \(choose\)$`, err.Error())
 
 	a.Version = Version{}
 	a.Shape = make([]int, MaxHeaderLen/3)
 	a.Values = []float32{}
-	assert.ErrorIs(t, Write(io.Discard, a), ErrShape)
+	expect.ErrorIs(t, Write(io.Discard, a), ErrShape)
 }
 
 func TestFloat64s(t *testing.T) {
@@ -483,16 +484,16 @@ func TestFloat64s(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			got, err := tc.a.Float64s()
-			require.NoError(t, err)
-			assert.Equal(t, tc.want, got)
+			ensure.NoError(t, err)
+			expect.Equal(t, tc.want, got)
 		})
 	}
 
 	for _, v := range []int64{1<<53 + 1, math.MaxInt64, -(1<<62 + 1)} {
 		a := Array{Header: Header{DType: Int64, Shape: []int{2}}, Values: []int64{0, v}}
 		_, err := a.Float64s()
-		require.ErrorIs(t, err, ErrInexact, "%d", v)
-		assert.Contains(t, err.Error(), "npy: value not exactly representable as float64: Array.Float64s: Array.Values[1] = ")
+		ensure.ErrorIs(t, err, ErrInexact, "%d", v)
+		expect.Contains(t, err.Error(), "npy: value not exactly representable as float64: Array.Float64s: Array.Values[1] = ")
 	}
 	for _, a := range []Array{
 		{Header: Header{DType: Uint16}, Bits: E4M3, Values: []uint16{1}},
@@ -501,10 +502,10 @@ func TestFloat64s(t *testing.T) {
 		{Header: Header{DType: Uint8}, Bits: 9, Values: []uint8{1}},
 	} {
 		_, err := a.Float64s()
-		assert.ErrorIs(t, err, ErrBits)
+		expect.ErrorIs(t, err, ErrBits)
 	}
 	_, err := (&Array{Header: Header{DType: Float64}, Values: []float32{1}}).Float64s()
-	assert.ErrorIs(t, err, ErrValues)
+	expect.ErrorIs(t, err, ErrValues)
 }
 
 // TestZeroValues checks the documented defaults: an Array whose DType,
@@ -513,25 +514,25 @@ func TestFloat64s(t *testing.T) {
 // read back as float64.
 func TestZeroValues(t *testing.T) {
 	var h Header
-	assert.Equal(t, Float64, h.DType)
-	assert.Equal(t, LittleEndian, h.ByteOrder)
-	assert.Equal(t, Integer, Array{}.Bits)
-	assert.Equal(t, 8, h.DType.Size())
+	expect.Equal(t, Float64, h.DType)
+	expect.Equal(t, LittleEndian, h.ByteOrder)
+	expect.Equal(t, Integer, Array{}.Bits)
+	expect.Equal(t, 8, h.DType.Size())
 
 	var buf bytes.Buffer
-	require.NoError(t, Write(&buf, &Array{Header: Header{Shape: []int{2}}, Values: []float64{2.5, -0.125}}))
-	assert.Contains(t, buf.String(), "'descr': '<f8'")
+	ensure.NoError(t, Write(&buf, &Array{Header: Header{Shape: []int{2}}, Values: []float64{2.5, -0.125}}))
+	expect.Contains(t, buf.String(), "'descr': '<f8'")
 	got, err := Read(bytes.NewReader(buf.Bytes()))
-	require.NoError(t, err)
-	assert.Equal(t, Float64, got.DType)
-	assert.Equal(t, LittleEndian, got.ByteOrder)
-	assert.Equal(t, []float64{2.5, -0.125}, got.Values)
+	ensure.NoError(t, err)
+	expect.Equal(t, Float64, got.DType)
+	expect.Equal(t, LittleEndian, got.ByteOrder)
+	expect.Equal(t, []float64{2.5, -0.125}, got.Values)
 
 	a, err := New(0, []int{}, []float64{3})
-	require.NoError(t, err, "DType 0 is Float64")
+	ensure.NoError(t, err, "DType 0 is Float64")
 	v, err := a.Float64s()
-	require.NoError(t, err)
-	assert.Equal(t, []float64{3}, v)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{3}, v)
 }
 
 // TestWords checks the words of the convention types: the zero value is
@@ -539,47 +540,47 @@ func TestZeroValues(t *testing.T) {
 // lists the words. (Every word's round trip, for every convention, is
 // checked in internal/vocab.)
 func TestWords(t *testing.T) {
-	assert.Equal(t, []DType{Float64, Float32, Float16, Int64, Int32, Int16, Int8, Uint32, Uint16, Uint8, Bool}, DType(0).Values())
-	assert.Equal(t, []ByteOrder{LittleEndian, BigEndian}, ByteOrder(0).Values())
-	assert.Equal(t, []Bits{Integer, BFloat16, E4M3, E5M2}, Bits(0).Values())
+	expect.Equal(t, []DType{Float64, Float32, Float16, Int64, Int32, Int16, Int8, Uint32, Uint16, Uint8, Bool}, DType(0).Values())
+	expect.Equal(t, []ByteOrder{LittleEndian, BigEndian}, ByteOrder(0).Values())
+	expect.Equal(t, []Bits{Integer, BFloat16, E4M3, E5M2}, Bits(0).Values())
 	var d DType
 	err := d.UnmarshalText([]byte("float8"))
-	require.ErrorIs(t, err, ErrDType)
-	assert.Equal(t, `npy: unsupported element type: element type = "float8"; want one of float64, float32, float16, int64, int32, int16, int8, uint32, uint16, uint8, bool`, err.Error())
-	assert.Equal(t, Float64, d, "a refused word leaves the value alone")
+	ensure.ErrorIs(t, err, ErrDType)
+	expect.Equal(t, `npy: unsupported element type: element type = "float8"; want one of float64, float32, float16, int64, int32, int16, int8, uint32, uint16, uint8, bool`, err.Error())
+	expect.Equal(t, Float64, d, "a refused word leaves the value alone")
 	// The common names of the floating-point types read as the types.
 	for text, want := range map[string]DType{"fp64": Float64, "double": Float64, "FP32": Float32, "single": Float32,
 		"fp16": Float16, "half": Float16, "binary16": Float16, "bool": Bool, "int8": Int8, "int16": Int16, "uint32": Uint32} {
 		var got DType
-		require.NoError(t, got.UnmarshalText([]byte(text)), text)
-		assert.Equal(t, want, got, text)
+		ensure.NoError(t, got.UnmarshalText([]byte(text)), text)
+		expect.Equal(t, want, got, text)
 	}
 	err = DType(99).Check()
-	require.ErrorIs(t, err, ErrDType)
-	assert.Contains(t, err.Error(), "element type = 99; want one of float64")
-	assert.ErrorIs(t, ByteOrder(2).Check(), ErrDType)
+	ensure.ErrorIs(t, err, ErrDType)
+	expect.Contains(t, err.Error(), "element type = 99; want one of float64")
+	expect.ErrorIs(t, ByteOrder(2).Check(), ErrDType)
 	_, err = ByteOrder(2).MarshalText()
-	assert.ErrorIs(t, err, ErrDType)
+	expect.ErrorIs(t, err, ErrDType)
 	var b Bits
 	err = b.UnmarshalText([]byte("e3m4"))
-	require.ErrorIs(t, err, ErrDType)
-	assert.Contains(t, err.Error(), "want one of integer, bfloat16, e4m3, e5m2")
+	ensure.ErrorIs(t, err, ErrDType)
+	expect.Contains(t, err.Error(), "want one of integer, bfloat16, e4m3, e5m2")
 }
 
 func TestStrings(t *testing.T) {
-	assert.Equal(t, "float16", Float16.String())
-	assert.Equal(t, "float64", DType(0).String())
-	assert.Equal(t, "DType(99)", DType(99).String())
-	assert.Equal(t, "little-endian", ByteOrder(0).String())
-	assert.Equal(t, "ByteOrder(7)", ByteOrder(7).String())
-	assert.Equal(t, "integer", Bits(0).String())
-	assert.Equal(t, 0, DType(99).Size())
-	assert.Equal(t, "big-endian", BigEndian.String())
-	assert.Equal(t, "3.0", Version3.String())
-	assert.Equal(t, "e5m2", E5M2.String())
-	assert.Equal(t, "Bits(9)", Bits(9).String())
-	assert.Equal(t, -1, (&Header{Shape: []int{-2}}).Len())
-	assert.Equal(t, 1, (&Header{}).Len())
+	expect.Equal(t, "float16", Float16.String())
+	expect.Equal(t, "float64", DType(0).String())
+	expect.Equal(t, "DType(99)", DType(99).String())
+	expect.Equal(t, "little-endian", ByteOrder(0).String())
+	expect.Equal(t, "ByteOrder(7)", ByteOrder(7).String())
+	expect.Equal(t, "integer", Bits(0).String())
+	expect.Equal(t, 0, DType(99).Size())
+	expect.Equal(t, "big-endian", BigEndian.String())
+	expect.Equal(t, "3.0", Version3.String())
+	expect.Equal(t, "e5m2", E5M2.String())
+	expect.Equal(t, "Bits(9)", Bits(9).String())
+	expect.Equal(t, -1, (&Header{Shape: []int{-2}}).Len())
+	expect.Equal(t, 1, (&Header{}).Len())
 }
 
 // One attention tensor of batch 1, 16 heads, 2048 positions, head
@@ -591,7 +592,7 @@ func benchArray(b *testing.B) *Array {
 		v[i] = float32(i%1000) / 7
 	}
 	a, err := New(Float32, shape, v)
-	require.NoError(b, err)
+	ensure.NoError(b, err)
 	return a
 }
 
@@ -599,7 +600,7 @@ func BenchmarkWrite(b *testing.B) {
 	a := benchArray(b)
 	b.SetBytes(int64(a.Len() * 4))
 	for b.Loop() {
-		require.NoError(b, Write(io.Discard, a))
+		ensure.NoError(b, Write(io.Discard, a))
 	}
 }
 
@@ -613,12 +614,12 @@ func BenchmarkRead(b *testing.B) {
 			a := benchArray(b)
 			a.FortranOrder = fortran
 			var buf bytes.Buffer
-			require.NoError(b, Write(&buf, a))
+			ensure.NoError(b, Write(&buf, a))
 			data := buf.Bytes()
 			b.SetBytes(int64(len(data)))
 			for b.Loop() {
 				_, err := Read(bytes.NewReader(data))
-				require.NoError(b, err)
+				ensure.NoError(b, err)
 			}
 		})
 	}
@@ -630,27 +631,27 @@ func BenchmarkRead(b *testing.B) {
 // accepted (a shape of exactly 2^28 fails later, on the missing data, in
 // TestLyingHeaderDoesNotAllocate).
 func TestMaxElements(t *testing.T) {
-	require.Equal(t, 1<<28, MaxElements)
+	ensure.Equal(t, 1<<28, MaxElements)
 	over := "{'descr': '|u1', 'fortran_order': False, 'shape': (16384, 16385), }"
 	_, err := ReadHeader(bytes.NewReader(file(over, nil)))
-	require.ErrorIs(t, err, ErrShape)
-	assert.EqualError(t, err, "npy: invalid shape: ReadHeader: 'shape' = [16384 16385], 268451840 elements; want at most MaxElements = 268435456")
+	ensure.ErrorIs(t, err, ErrShape)
+	expect.EqualError(t, err, "npy: invalid shape: ReadHeader: 'shape' = [16384 16385], 268451840 elements; want at most MaxElements = 268435456")
 	_, err = Read(bytes.NewReader(file(over, nil)))
-	assert.EqualError(t, err, "npy: invalid shape: Read: 'shape' = [16384 16385], 268451840 elements; want at most MaxElements = 268435456")
+	expect.EqualError(t, err, "npy: invalid shape: Read: 'shape' = [16384 16385], 268451840 elements; want at most MaxElements = 268435456")
 	h, err := ReadHeader(bytes.NewReader(file("{'descr': '|u1', 'fortran_order': False, 'shape': (16384, 16384), }", nil)))
-	require.NoError(t, err)
-	assert.Equal(t, MaxElements, h.Len())
+	ensure.NoError(t, err)
+	expect.Equal(t, MaxElements, h.Len())
 
 	_, err = New(Uint8, []int{MaxElements + 1}, []uint8{})
-	require.ErrorIs(t, err, ErrShape)
-	assert.EqualError(t, err, "npy: invalid shape: New: shape = [268435457], 268435457 elements; want at most MaxElements = 268435456")
+	ensure.ErrorIs(t, err, ErrShape)
+	expect.EqualError(t, err, "npy: invalid shape: New: shape = [268435457], 268435457 elements; want at most MaxElements = 268435456")
 	big := &Array{Header: Header{DType: Uint8, Shape: []int{1 << 14, 1 << 15}}, Values: []uint8{1}}
 	_, err = big.Float64s()
-	require.ErrorIs(t, err, ErrShape)
-	assert.EqualError(t, err, "npy: invalid shape: Array.Float64s: Array.Shape = [16384 32768], 536870912 elements; want at most MaxElements = 268435456")
+	ensure.ErrorIs(t, err, ErrShape)
+	expect.EqualError(t, err, "npy: invalid shape: Array.Float64s: Array.Shape = [16384 32768], 536870912 elements; want at most MaxElements = 268435456")
 	err = Write(io.Discard, big)
-	require.ErrorIs(t, err, ErrShape)
-	assert.EqualError(t, err, "npy: invalid shape: Write: Array.Shape = [16384 32768], 536870912 elements; want at most MaxElements = 268435456")
+	ensure.ErrorIs(t, err, ErrShape)
+	expect.EqualError(t, err, "npy: invalid shape: Write: Array.Shape = [16384 32768], 536870912 elements; want at most MaxElements = 268435456")
 }
 
 // TestNilArguments: nil arrays, readers, writers and receivers are errors
@@ -659,21 +660,21 @@ func TestMaxElements(t *testing.T) {
 // internal/vocab.)
 func TestNilArguments(t *testing.T) {
 	_, err := (*Array)(nil).Float64s()
-	require.ErrorIs(t, err, ErrValues)
-	assert.EqualError(t, err, "npy: values do not match the header: Array.Float64s: receiver = nil; want an Array")
+	ensure.ErrorIs(t, err, ErrValues)
+	expect.EqualError(t, err, "npy: values do not match the header: Array.Float64s: receiver = nil; want an Array")
 	_, err = ReadHeader(nil)
-	require.ErrorIs(t, err, ErrFormat)
-	assert.EqualError(t, err, "npy: malformed file: ReadHeader: r = nil; want an io.Reader holding a .npy file")
+	ensure.ErrorIs(t, err, ErrFormat)
+	expect.EqualError(t, err, "npy: malformed file: ReadHeader: r = nil; want an io.Reader holding a .npy file")
 	_, err = Read(nil)
-	require.ErrorIs(t, err, ErrFormat)
-	assert.EqualError(t, err, "npy: malformed file: Read: r = nil; want an io.Reader holding a .npy file")
+	ensure.ErrorIs(t, err, ErrFormat)
+	expect.EqualError(t, err, "npy: malformed file: Read: r = nil; want an io.Reader holding a .npy file")
 	a, err := New(Float64, []int{1}, []float64{1})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	err = Write(nil, a)
-	require.ErrorIs(t, err, ErrFormat)
-	assert.EqualError(t, err, "npy: malformed file: Write: w = nil; want an io.Writer to write the .npy file to")
+	ensure.ErrorIs(t, err, ErrFormat)
+	expect.EqualError(t, err, "npy: malformed file: Write: w = nil; want an io.Writer to write the .npy file to")
 	err = Write(io.Discard, nil)
-	require.ErrorIs(t, err, ErrValues)
-	assert.EqualError(t, err, "npy: values do not match the header: Write: a = nil; want an Array")
-	assert.Equal(t, -1, (*Header)(nil).Len())
+	ensure.ErrorIs(t, err, ErrValues)
+	expect.EqualError(t, err, "npy: values do not match the header: Write: a = nil; want an Array")
+	expect.Equal(t, -1, (*Header)(nil).Len())
 }

@@ -13,8 +13,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // The outside check: NumPy (Debian's python3-numpy under /usr/bin/python3)
@@ -164,7 +164,7 @@ sys.exit(1 if bad else 0)
 func runPython(t *testing.T, script, dir string) {
 	t.Helper()
 	out, err := exec.Command(python, "-c", script, dir).CombinedOutput()
-	require.NoError(t, err, "NumPy script failed:\n%s", out)
+	ensure.NoError(t, err, "NumPy script failed:\n%s", out)
 	t.Logf("%s", bytes.TrimSpace(out))
 }
 
@@ -243,52 +243,52 @@ func TestNumPyWritesGoReads(t *testing.T) {
 	dir := t.TempDir()
 	runPython(t, numpyWrites, dir)
 	raw, err := os.ReadFile(filepath.Join(dir, "manifest.json"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var manifest []manifestEntry
-	require.NoError(t, json.Unmarshal(raw, &manifest))
-	require.Len(t, manifest, 11*2*2*3+11*4, "every combination written")
+	ensure.NoError(t, json.Unmarshal(raw, &manifest))
+	ensure.Len(t, manifest, 11*2*2*3+11*4, "every combination written")
 
 	for _, e := range manifest {
 		path := filepath.Join(dir, e.File)
 		a, err := ReadFile(path)
-		require.NoError(t, err, e.File)
+		ensure.NoError(t, err, e.File)
 		want, ok := wantDType[e.Descr]
-		require.True(t, ok, "%s: descr %s", e.File, e.Descr)
-		assert.Equal(t, Header{Version: Version{uint8(e.Version[0]), uint8(e.Version[1])}, DType: want.dt, ByteOrder: want.bo, FortranOrder: e.Fortran, Shape: e.Shape}, a.Header, e.File)
-		require.Equal(t, e.Bits, bitStrings(a.Values), e.File)
+		ensure.True(t, ok, "%s: descr %s", e.File, e.Descr)
+		expect.Equal(t, Header{Version: Version{uint8(e.Version[0]), uint8(e.Version[1])}, DType: want.dt, ByteOrder: want.bo, FortranOrder: e.Fortran, Shape: e.Shape}, a.Header, e.File)
+		ensure.Equal(t, e.Bits, bitStrings(a.Values), e.File)
 		if e.Values != nil {
 			f, err := a.Float64s()
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for i, s := range e.Values {
 				w, err := strconv.ParseFloat(s, 64)
-				require.NoError(t, err, s)
+				ensure.NoError(t, err, s)
 				if math.IsNaN(w) {
-					require.True(t, math.IsNaN(f[i]), "%s element %d: %v, want NaN", e.File, i, f[i])
+					ensure.True(t, math.IsNaN(f[i]), "%s element %d: %v, want NaN", e.File, i, f[i])
 					continue
 				}
-				require.Equal(t, math.Float64bits(w), math.Float64bits(f[i]), "%s element %d: %v, want %v", e.File, i, f[i], w)
+				ensure.Equal(t, math.Float64bits(w), math.Float64bits(f[i]), "%s element %d: %v, want %v", e.File, i, f[i], w)
 			}
 		}
 		// Written back with the header read, the bytes are NumPy's.
 		var buf bytes.Buffer
-		require.NoError(t, Write(&buf, a))
+		ensure.NoError(t, Write(&buf, a))
 		orig, err := os.ReadFile(path)
-		require.NoError(t, err)
-		require.Equal(t, orig, buf.Bytes(), "%s: Write differs from NumPy's bytes", e.File)
+		ensure.NoError(t, err)
+		ensure.Equal(t, orig, buf.Bytes(), "%s: Write differs from NumPy's bytes", e.File)
 	}
 
 	// All 65536 binary16 patterns: Float64s (which decodes with
 	// compare.Binary16) against NumPy's float64 conversion, bit for bit (for
 	// NaN: NaN-ness only; the payload and sign are not carried).
 	f2, err := ReadFile(filepath.Join(dir, "f2_all.npy"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	f8, err := ReadFile(filepath.Join(dir, "f2_all_as_f8.npy"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	bits, numpy := f2.Values.([]uint16), f8.Values.([]float64)
-	require.Len(t, bits, 1<<16)
-	require.Len(t, numpy, 1<<16)
+	ensure.Len(t, bits, 1<<16)
+	ensure.Len(t, numpy, 1<<16)
 	decoded, err := f2.Float64s()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i, b := range bits {
 		got, want := decoded[i], numpy[i]
 		ok := uint16(i) == b && math.Float64bits(got) == math.Float64bits(want)
@@ -310,7 +310,7 @@ func TestGoWritesNumPyReads(t *testing.T) {
 		Uint32: "u4", Uint16: "u2", Uint8: "u1", Bool: "b1"}
 	save := func(a *Array) {
 		name := fmt.Sprintf("go%02d.npy", len(manifest))
-		require.NoError(t, WriteFile(filepath.Join(dir, name), a))
+		ensure.NoError(t, WriteFile(filepath.Join(dir, name), a))
 		mark := "<"
 		switch {
 		case a.DType.Size() == 1:
@@ -326,7 +326,7 @@ func TestGoWritesNumPyReads(t *testing.T) {
 			Version: []int{int(v.Major), int(v.Minor)}, Bits: bitStrings(a.Values)}
 		if a.DType == Float64 || a.DType == Float32 || a.DType == Float16 {
 			f, err := a.Float64s()
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for _, x := range f {
 				e.Values = append(e.Values, strconv.FormatFloat(x, 'x', -1, 64))
 			}
@@ -351,8 +351,8 @@ func TestGoWritesNumPyReads(t *testing.T) {
 		}
 	}
 	raw, err := json.Marshal(manifest)
-	require.NoError(t, err)
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "manifest.json"), raw, 0o644))
+	ensure.NoError(t, err)
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "manifest.json"), raw, 0o644))
 	runPython(t, numpyLoads, dir)
 }
 
@@ -428,29 +428,29 @@ func TestNumPyArchivesGoReads(t *testing.T) {
 	dir := t.TempDir()
 	runPython(t, numpyWritesArchives, dir)
 	raw, err := os.ReadFile(filepath.Join(dir, "manifest.json"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var manifest []manifestEntry
-	require.NoError(t, json.Unmarshal(raw, &manifest))
-	require.Len(t, manifest, 2*12)
+	ensure.NoError(t, json.Unmarshal(raw, &manifest))
+	ensure.Len(t, manifest, 2*12)
 	archives := map[string]*Archive{}
 	for _, e := range manifest {
 		name, member, _ := strings.Cut(e.File, ":")
 		a, ok := archives[name]
 		if !ok {
 			a, err = OpenArchive(filepath.Join(dir, name))
-			require.NoError(t, err, name)
+			ensure.NoError(t, err, name)
 			defer a.Close()
 			archives[name] = a
-			assert.Len(t, a.Names(), 12, name)
+			expect.Len(t, a.Names(), 12, name)
 		}
 		got, err := a.Read(member)
-		require.NoError(t, err, e.File)
+		ensure.NoError(t, err, e.File)
 		want, ok := wantDType[e.Descr]
-		require.True(t, ok, e.Descr)
-		assert.Equal(t, Header{Version: Version1, DType: want.dt, ByteOrder: want.bo, Shape: e.Shape}, got.Header, e.File)
-		assert.Equal(t, e.Bits, bitStrings(got.Values), e.File)
+		ensure.True(t, ok, e.Descr)
+		expect.Equal(t, Header{Version: Version1, DType: want.dt, ByteOrder: want.bo, Shape: e.Shape}, got.Header, e.File)
+		expect.Equal(t, e.Bits, bitStrings(got.Values), e.File)
 	}
-	require.Len(t, archives, 2)
+	ensure.Len(t, archives, 2)
 }
 
 // Archives written here, stored and deflated, load in NumPy with the
@@ -467,13 +467,13 @@ func TestGoArchivesNumPyReads(t *testing.T) {
 		compress bool
 	}{{"stored.npz", false}, {"deflated.npz", true}} {
 		f, err := os.Create(filepath.Join(dir, c.file))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		w := NewArchiveWriter(f, c.compress)
 		for i, dt := range allDTypes {
 			bo := ByteOrder(i % 2)
 			a := &Array{Header: Header{DType: dt, ByteOrder: bo, FortranOrder: i%3 == 0, Shape: []int{3, 2}}, Values: randomValues(dt, 6, r)}
 			name := "m_" + dt.String()
-			require.NoError(t, w.Add(name, a))
+			ensure.NoError(t, w.Add(name, a))
 			mark := "<"
 			switch {
 			case dt.Size() == 1:
@@ -483,11 +483,11 @@ func TestGoArchivesNumPyReads(t *testing.T) {
 			}
 			manifest = append(manifest, manifestEntry{File: c.file + ":" + name, Descr: mark + descr[dt], Shape: a.Shape, Bits: bitStrings(a.Values)})
 		}
-		require.NoError(t, w.Close())
-		require.NoError(t, f.Close())
+		ensure.NoError(t, w.Close())
+		ensure.NoError(t, f.Close())
 	}
 	raw, err := json.Marshal(manifest)
-	require.NoError(t, err)
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "manifest.json"), raw, 0o644))
+	ensure.NoError(t, err)
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "manifest.json"), raw, 0o644))
 	runPython(t, numpyLoadsArchives, dir)
 }

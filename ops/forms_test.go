@@ -9,7 +9,7 @@ import (
 	"slices"
 	"testing"
 
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // formOps are the operations whose kernels have a fast and a direct form.
@@ -24,23 +24,23 @@ func requireSameRuns(t *testing.T, label, op string, config []byte, in, fast Ten
 	var err error
 	if fast == nil {
 		fast, err = Run(op, config, in)
-		require.NoError(t, err, label)
+		ensure.NoError(t, err, label)
 	}
 	fast32, err := Run32(op, config, in)
-	require.NoError(t, err, label)
+	ensure.NoError(t, err, label)
 	defer UseDirectForms(UseDirectForms(true))
 	slow, err := Run(op, config, in)
-	require.NoError(t, err, label)
+	ensure.NoError(t, err, label)
 	slow32, err := Run32(op, config, in)
-	require.NoError(t, err, label)
+	ensure.NoError(t, err, label)
 	for _, run := range []struct {
 		name       string
 		fast, slow Tensors
 	}{{"Run", fast, slow}, {"Run32", fast32, slow32}} {
-		require.Equal(t, slices.Sorted(maps.Keys(run.slow)), slices.Sorted(maps.Keys(run.fast)), "%s: %s outputs", label, run.name)
+		ensure.Equal(t, slices.Sorted(maps.Keys(run.slow)), slices.Sorted(maps.Keys(run.fast)), "%s: %s outputs", label, run.name)
 		for name, s := range run.slow {
 			f := run.fast[name]
-			require.Equal(t, s.Shape, f.Shape, "%s: %s %q", label, run.name, name)
+			ensure.Equal(t, s.Shape, f.Shape, "%s: %s %q", label, run.name, name)
 			for i := range s.Data {
 				if math.Float64bits(s.Data[i]) != math.Float64bits(f.Data[i]) {
 					t.Fatalf("%s: %s output %q[%d]: the fast form gives %v, the direct form %v", label, run.name, name, i, f.Data[i], s.Data[i])
@@ -68,7 +68,7 @@ func TestFastFormsAreDirect(t *testing.T) {
 	t.Run("golden", TestGoldenThroughOps)
 	onGoldenRun = nil
 	for _, op := range formOps {
-		require.Positive(t, seen[op], "golden cases of %s", op)
+		ensure.Positive(t, seen[op], "golden cases of %s", op)
 	}
 
 	r := rand.New(rand.NewPCG(31, 32))
@@ -103,7 +103,7 @@ func TestFastFormsAreDirect(t *testing.T) {
 			in["bias"] = randn(1, hq, lq, lk)
 		}
 		config, err := json.Marshal(cfg)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		label := fmt.Sprintf("trial %d: %s, q %v, k %v", trial, config, in["q"].Shape, in["k"].Shape)
 		fwd := maps.Clone(in)
 		delete(fwd, "dout")
@@ -130,7 +130,7 @@ func TestFastFormsAreDirect(t *testing.T) {
 			fin["w1"], fin["v"], fin["c"] = mat(din, hidden), mat(din, hidden), randn(hidden)
 		}
 		config, err = json.Marshal(fcfg)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		label = fmt.Sprintf("trial %d: %s, x %v, hidden %d", trial, config, fin["x"].Shape, hidden)
 		fwd = maps.Clone(fin)
 		delete(fwd, "dy")
@@ -142,7 +142,7 @@ func TestFastFormsAreDirect(t *testing.T) {
 // UseDirectForms returns the previous choice, and the fast forms are the
 // default.
 func TestUseDirectForms(t *testing.T) {
-	require.False(t, UseDirectForms(true), "the fast forms are the default")
-	require.True(t, UseDirectForms(false))
-	require.False(t, UseDirectForms(false))
+	ensure.False(t, UseDirectForms(true), "the fast forms are the default")
+	ensure.True(t, UseDirectForms(false))
+	ensure.False(t, UseDirectForms(false))
 }

@@ -8,9 +8,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -260,7 +259,7 @@ var goldenLeftOut = map[string]string{
 // out with a reason, and every operation is checked by some family.
 func TestGoldenFamiliesAccounted(t *testing.T) {
 	files, err := filepath.Glob(filepath.Join(golden.Dir(), "*", "*.json"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	covered := map[string]bool{}
 	ran := map[string]bool{}
 	for _, f := range goldenFamilies() {
@@ -274,14 +273,14 @@ func TestGoldenFamiliesAccounted(t *testing.T) {
 		name := filepath.Base(filepath.Dir(p)) + "/" + strings.TrimSuffix(filepath.Base(p), ".json")
 		names = append(names, name)
 		_, left := goldenLeftOut[name]
-		assert.True(t, covered[name] != left, "golden family %s: checked through the operations, or left out with a reason (goldenLeftOut), and not both", name)
+		expect.True(t, covered[name] != left, "golden family %s: checked through the operations, or left out with a reason (goldenLeftOut), and not both", name)
 	}
 	for name, why := range goldenLeftOut {
-		assert.Contains(t, names, name, "goldenLeftOut names a family that has no golden file")
-		assert.NotEmpty(t, why, "golden family %s is left out without a reason", name)
+		expect.Contains(t, names, name, "goldenLeftOut names a family that has no golden file")
+		expect.NotEmpty(t, why, "golden family %s is left out without a reason", name)
 	}
 	for _, n := range Names() {
-		assert.True(t, ran[n], "operation %s is checked by no golden family", n)
+		expect.True(t, ran[n], "operation %s is checked by no golden family", n)
 	}
 }
 
@@ -297,7 +296,7 @@ func TestGoldenThroughOps(t *testing.T) {
 
 func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 	var config map[string]json.RawMessage
-	require.NoError(t, json.Unmarshal(c.Config, &config), c.String())
+	ensure.NoError(t, json.Unmarshal(c.Config, &config), c.String())
 	// The configuration of the operations: the case's keys under their
 	// operation names, and the inputs the operations take as keys.
 	base := map[string]any{"version": 1}
@@ -306,7 +305,7 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 			continue
 		}
 		key, ok := f.config[k]
-		require.True(t, ok, "%s: config key %q is neither mapped to an operation key nor dropped with a reason", c, k)
+		ensure.True(t, ok, "%s: config key %q is neither mapped to an operation key nor dropped with a reason", c, k)
 		base[key] = v
 	}
 	for name, key := range f.configInputs {
@@ -316,17 +315,17 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 		var v any
 		if c.Inputs[name].Dtype == golden.Int {
 			ints, _, err := c.Ints(name)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			v = ints
 		} else {
 			x, _, err := c.Float(name)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			v = x
 		}
 		if outer, inner, nested := strings.Cut(key, "."); nested {
 			obj := map[string]any{}
 			if raw, ok := base[outer].(json.RawMessage); ok {
-				require.NoError(t, json.Unmarshal(raw, &obj))
+				ensure.NoError(t, json.Unmarshal(raw, &obj))
 			}
 			obj[inner] = v
 			base[outer] = obj
@@ -337,7 +336,7 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 	for name := range c.Inputs {
 		_, port := f.inputs[name]
 		_, key := f.configInputs[name]
-		require.True(t, port || key, "%s: golden input %q is neither mapped to a port nor to a key", c, name)
+		ensure.True(t, port || key, "%s: golden input %q is neither mapped to a port nor to a key", c, name)
 	}
 
 	checked := map[string]bool{}
@@ -346,7 +345,7 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 			continue
 		}
 		o, err := Lookup(r.op)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkNestedKeys(t, c, o, base)
 		full := map[string]any{}
 		for k, v := range base {
@@ -356,19 +355,19 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 			full[k] = v
 		}
 		body, err := json.Marshal(full)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		in := Tensors{}
 		for _, name := range r.inputs {
 			if !c.Has(name) {
 				continue
 			}
 			x, shape, err := c.Float(name)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			in[f.inputs[name]] = Tensor{Shape: shape, Data: x}
 		}
 		for port, like := range r.ones {
 			_, shape, err := c.Float(like)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			ones := make([]float64, c.Inputs[like].Len())
 			for i := range ones {
 				ones[i] = 1
@@ -376,23 +375,23 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 			in[port] = Tensor{Shape: shape, Data: ones}
 		}
 		out, err := Run(r.op, body, in)
-		require.NoError(t, err, "%s: %s %s", c, r.op, body)
+		ensure.NoError(t, err, "%s: %s %s", c, r.op, body)
 		if onGoldenRun != nil {
 			onGoldenRun(t, r.op, body, in, out)
 		}
 		for name, port := range r.outputs {
 			if !c.Has(name) {
 				_, given := out[port]
-				assert.False(t, given, "%s: %s gives %q, which the golden case does not hold", c, r.op, port)
+				expect.False(t, given, "%s: %s gives %q, which the golden case does not hold", c, r.op, port)
 				continue
 			}
 			want, shape, err := c.Float(name)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			got, ok := out[port]
-			if !assert.True(t, ok, "%s: %s gives no output %q for golden %q", c, r.op, port, name) {
+			if !expect.True(t, ok, "%s: %s gives no output %q for golden %q", c, r.op, port, name) {
 				continue
 			}
-			assert.Equal(t, shape, got.Shape, "%s: %s: output %q: shape", c, r.op, port)
+			expect.Equal(t, shape, got.Shape, "%s: %s: output %q: shape", c, r.op, port)
 			checkGolden(t, c, r.op+": "+name, got.Data, want, r.bound(c, config, name))
 			checked[name] = true
 		}
@@ -401,7 +400,7 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 		if _, why := f.unchecked[name]; why {
 			continue
 		}
-		assert.True(t, checked[name], "%s: golden output %q is checked by no operation", c, name)
+		expect.True(t, checked[name], "%s: golden output %q is checked by no operation", c, name)
 	}
 }
 
@@ -414,18 +413,18 @@ func checkNestedKeys(t *testing.T, c *golden.Case, o Op, config map[string]any) 
 	}
 	for k, v := range config {
 		raw, err := json.Marshal(v)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		var obj map[string]json.RawMessage
 		var list []map[string]json.RawMessage
 		switch {
 		case json.Unmarshal(raw, &obj) == nil:
 			for inner := range obj {
-				assert.True(t, has(k+"."+inner), "%s: %s has no key %s.%s", c, o.Name(), k, inner)
+				expect.True(t, has(k+"."+inner), "%s: %s has no key %s.%s", c, o.Name(), k, inner)
 			}
 		case json.Unmarshal(raw, &list) == nil:
 			for _, e := range list {
 				for inner := range e {
-					assert.True(t, has(k+"[]."+inner), "%s: %s has no key %s[].%s", c, o.Name(), k, inner)
+					expect.True(t, has(k+"[]."+inner), "%s: %s has no key %s[].%s", c, o.Name(), k, inner)
 				}
 			}
 		}
@@ -436,7 +435,7 @@ func checkNestedKeys(t *testing.T, c *golden.Case, o Op, config map[string]any) 
 // on the normwise relative error, bitExact, or elementwise.
 func checkGolden(t *testing.T, c *golden.Case, what string, got, want []float64, b any) {
 	t.Helper()
-	require.Len(t, got, len(want), "%s: %s", c, what)
+	ensure.Len(t, got, len(want), "%s: %s", c, what)
 	switch b := b.(type) {
 	case bitExact:
 		for i := range want {
@@ -447,10 +446,10 @@ func checkGolden(t *testing.T, c *golden.Case, what string, got, want []float64,
 		}
 	case float64:
 		e := golden.NormwiseRelErr(got, want)
-		assert.LessOrEqual(t, e, b, golden.Describe(c, what, e, b))
+		expect.LessOrEqual(t, e, b, golden.Describe(c, what, e, b))
 	case elementwise:
 		e := golden.NormwiseRelErr(got, want)
-		assert.LessOrEqual(t, e, float64(b), golden.Describe(c, what, e, float64(b)))
+		expect.LessOrEqual(t, e, float64(b), golden.Describe(c, what, e, float64(b)))
 		for i := range want {
 			var r float64
 			switch {

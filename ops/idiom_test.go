@@ -7,10 +7,9 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -24,7 +23,7 @@ import (
 func judge(t *testing.T, ref Tensor, got []float64, y *compare.Yardstick) bool {
 	t.Helper()
 	rep, err := compare.Diff(ref.Data, got, ref.Shape, y.Options())
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return rep.Verdict.Pass
 }
 
@@ -33,9 +32,9 @@ func judge(t *testing.T, ref Tensor, got []float64, y *compare.Yardstick) bool {
 func yardsticks(t *testing.T, op, plain, idiom string, in Tensors, f compare.Format, out string) (*compare.Yardstick, *compare.Yardstick) {
 	t.Helper()
 	p, err := Yardstick(op, []byte(plain), in, f, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	i, err := Yardstick(op, []byte(idiom), in, f, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return p[out], i[out]
 }
 
@@ -91,27 +90,27 @@ func TestRotaryAnglesPort(t *testing.T) {
 	plain := `{"version":1,"pairing":"halves"}`
 	idiom := `{"version":1,"pairing":"halves","angles":"float32-angles"}`
 	ref, err := Run("rotary-apply", []byte(idiom), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	py, iy := yardsticks(t, "rotary-apply", plain, idiom, in, compare.Float32, "y")
 	port := rotaryPort(in["x"].Data, L, D, 10000)
-	assert.False(t, judge(t, ref["y"], port, py), "the framework port passes the plain float32 yardstick")
-	assert.True(t, judge(t, ref["y"], port, iy), "the framework port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
+	expect.False(t, judge(t, ref["y"], port, py), "the framework port passes the plain float32 yardstick")
+	expect.True(t, judge(t, ref["y"], port, iy), "the framework port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
 	slipped := rotaryPort(in["x"].Data, L, D, 10500)
-	assert.False(t, judge(t, ref["y"], slipped, py), "base 10500 passes the plain yardstick")
-	assert.False(t, judge(t, ref["y"], slipped, iy), "base 10500 passes the idiom's yardstick")
-	assert.Contains(t, iy.Tolerance.Basis, "float32 arithmetic with the idiom angles = float32-angles,")
-	assert.NotContains(t, py.Tolerance.Basis, "idiom")
+	expect.False(t, judge(t, ref["y"], slipped, py), "base 10500 passes the plain yardstick")
+	expect.False(t, judge(t, ref["y"], slipped, iy), "base 10500 passes the idiom's yardstick")
+	expect.Contains(t, iy.Tolerance.Basis, "float32 arithmetic with the idiom angles = float32-angles,")
+	expect.NotContains(t, py.Tolerance.Basis, "idiom")
 
 	costs, err := IdiomCost("rotary-apply", []byte(idiom), in, compare.Float32, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	c := costs["y"]
-	require.NotNil(t, c)
-	assert.Equal(t, "angles = float32-angles", c.Keys)
-	assert.Equal(t, iy.Tolerance, c.Idiom.Tolerance, "the idiom's yardstick is Yardstick's")
-	assert.Equal(t, py.Tolerance, c.Plain.Tolerance, "the plain yardstick is that of the configuration without the key")
-	require.Len(t, c.Positions, L)
+	ensure.NotNil(t, c)
+	expect.Equal(t, "angles = float32-angles", c.Keys)
+	expect.Equal(t, iy.Tolerance, c.Idiom.Tolerance, "the idiom's yardstick is Yardstick's")
+	expect.Equal(t, py.Tolerance, c.Plain.Tolerance, "the plain yardstick is that of the configuration without the key")
+	ensure.Len(t, c.Positions, L)
 	for i, p := range c.Positions {
-		require.Equal(t, i, p.Position)
+		ensure.Equal(t, i, p.Position)
 	}
 	window := func(first int) (plain, idiom float64) { // the largest errors of 16 positions
 		for _, p := range c.Positions[first : first+16] {
@@ -124,19 +123,19 @@ func TestRotaryAnglesPort(t *testing.T) {
 	t.Logf("rotary-apply, D = %d, base 10000, %d positions: normwise error plain %.3g, float32-angles %.3g (×%.0f)", D, L, c.Plain.Report.Normwise, c.Idiom.Report.Normwise, c.Ratio())
 	t.Logf("largest error near position 64: plain %.3g, float32-angles %.3g; near %d: plain %.3g, float32-angles %.3g", p64, i64, L-8, p2032, i2032)
 	t.Logf("%v", c)
-	assert.Greater(t, c.Ratio(), 20.0)
-	assert.InDelta(t, 32, i2032/i64, 20, "the idiom's error grows about linearly with the position (2040 / 72 ≈ 28; measured 25)")
-	assert.Less(t, p2032/p64, 2.0, "the plain float32 run's error does not grow with the position")
-	assert.Equal(t, []int{0, 1023, 2047}, positionsOf(c.Sample(3)))
-	assert.True(t, strings.HasPrefix(c.String(), "angles = float32-angles: normwise "), c.String())
-	assert.Contains(t, c.String(), "position 0: ")
-	assert.Contains(t, c.String(), "position 2047: ")
+	expect.Greater(t, c.Ratio(), 20.0)
+	expect.InDelta(t, 32, i2032/i64, 20, "the idiom's error grows about linearly with the position (2040 / 72 ≈ 28; measured 25)")
+	expect.Less(t, p2032/p64, 2.0, "the plain float32 run's error does not grow with the position")
+	expect.Equal(t, []int{0, 1023, 2047}, positionsOf(c.Sample(3)))
+	expect.True(t, strings.HasPrefix(c.String(), "angles = float32-angles: normwise "), c.String())
+	expect.Contains(t, c.String(), "position 0: ")
+	expect.Contains(t, c.String(), "position 2047: ")
 
 	// The normwise errors of the whole tensor at 64 and at 2048 positions.
 	for _, n := range []int{64, 2048} {
 		short := Tensors{"x": {Shape: []int{2, n, D}, Data: slices.Concat(in["x"].Data[:n*D], in["x"].Data[L*D:L*D+n*D])}}
 		cs, err := IdiomCost("rotary-apply", []byte(idiom), short, compare.Float32, compare.DefaultK)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		t.Logf("%d positions: normwise error of the float32 run %.3g, of float32-angles %.3g (×%.1f)", n, cs["y"].Plain.Report.Normwise, cs["y"].Idiom.Report.Normwise, cs["y"].Ratio())
 	}
 }
@@ -154,13 +153,13 @@ func positionsOf(p []PositionCost) []int {
 func TestRotaryTablesAngles(t *testing.T) {
 	config := []byte(`{"version":1,"dim":16,"positions":[5000,7,100],"angles":"float32-frequencies"}`)
 	costs, err := IdiomCost("rotary-tables", config, nil, compare.Float32, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, out := range []string{"cos", "sin"} {
 		c := costs[out]
-		require.NotNil(t, c, out)
-		assert.Equal(t, []int{7, 100, 5000}, positionsOf(c.Positions), "%s: ascending positions", out)
-		assert.Greater(t, c.Positions[2].Idiom.MaxAbs, c.Positions[0].Idiom.MaxAbs, "%s: more error at 5000 than at 7", out)
-		assert.Greater(t, c.Idiom.Report.Normwise, c.Plain.Report.Normwise, out)
+		ensure.NotNil(t, c, out)
+		expect.Equal(t, []int{7, 100, 5000}, positionsOf(c.Positions), "%s: ascending positions", out)
+		expect.Greater(t, c.Positions[2].Idiom.MaxAbs, c.Positions[0].Idiom.MaxAbs, "%s: more error at 5000 than at 7", out)
+		expect.Greater(t, c.Idiom.Report.Normwise, c.Plain.Report.Normwise, out)
 	}
 }
 
@@ -201,15 +200,15 @@ func TestLayerNormOnePassPort(t *testing.T) {
 	plain := `{"version":1,"epsilon":1e-5}`
 	idiom := `{"version":1,"epsilon":1e-5,"variance":"one-pass"}`
 	ref, err := Run("layernorm-forward", []byte(plain), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	py, iy := yardsticks(t, "layernorm-forward", plain, idiom, in, compare.Float32, "y")
 	port := layerNormPort(x.Data, d, 1e-5, d)
-	assert.False(t, judge(t, ref["y"], port, py), "the one-pass port passes the plain float32 yardstick")
-	assert.True(t, judge(t, ref["y"], port, iy), "the one-pass port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
+	expect.False(t, judge(t, ref["y"], port, py), "the one-pass port passes the plain float32 yardstick")
+	expect.True(t, judge(t, ref["y"], port, iy), "the one-pass port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
 	slipped := layerNormPort(x.Data, d, 1e-5, d-1)
-	assert.False(t, judge(t, ref["y"], slipped, iy), "the unbiased variance passes the idiom's yardstick")
+	expect.False(t, judge(t, ref["y"], slipped, iy), "the unbiased variance passes the idiom's yardstick")
 	t.Logf("layernorm-forward, rows of mean 10, spread 1, d = %d: normwise error plain %.3g, one-pass %.3g", d, py.Report.Normwise, iy.Report.Normwise)
-	assert.Contains(t, iy.Tolerance.Basis, "with the idiom variance = one-pass,")
+	expect.Contains(t, iy.Tolerance.Basis, "with the idiom variance = one-pass,")
 }
 
 // attentionPort is one head of attention (q [lq, dk], k [lk, dk], v [lk,
@@ -267,15 +266,15 @@ func TestAttentionAccumulationPort(t *testing.T) {
 	plain := `{"version":1}`
 	idiom := `{"version":1,"accumulation":"bfloat16"}`
 	ref, err := Run("attention-forward", []byte(plain), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	py, iy := yardsticks(t, "attention-forward", plain, idiom, in, compare.BFloat16, "out")
 	port := attentionPort(in["q"].Data, in["k"].Data, in["v"].Data, lq, lk, dk, dv, lk)
-	assert.False(t, judge(t, ref["out"], port, py), "the bfloat16-accumulating port passes the plain yardstick")
-	assert.True(t, judge(t, ref["out"], port, iy), "the bfloat16-accumulating port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
+	expect.False(t, judge(t, ref["out"], port, py), "the bfloat16-accumulating port passes the plain yardstick")
+	expect.True(t, judge(t, ref["out"], port, iy), "the bfloat16-accumulating port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
 	slipped := attentionPort(in["q"].Data, in["k"].Data, in["v"].Data, lq, lk, dk, dv, lk-1)
-	assert.False(t, judge(t, ref["out"], slipped, iy), "the port that drops a key passes the idiom's yardstick")
+	expect.False(t, judge(t, ref["out"], slipped, iy), "the port that drops a key passes the idiom's yardstick")
 	rep, err := compare.Diff(ref["out"].Data, port, ref["out"].Shape, compare.Options{Format: compare.BFloat16})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	t.Logf("attention-forward, %d queries on %d keys, dim %d: normwise error of the bfloat16 yardstick's float32 run %.3g, of accumulation = bfloat16 %.3g, of the port %.3g",
 		lq, lk, dk, py.Report.Normwise, iy.Report.Normwise, rep.Normwise)
 }
@@ -321,13 +320,13 @@ func TestFFNAccumulationPort(t *testing.T) {
 	plain := `{"version":1,"activation":"relu","layout":"in-by-out"}`
 	idiom := `{"version":1,"activation":"relu","layout":"in-by-out","accumulation":"bfloat16"}`
 	ref, err := Run("ffn-forward", []byte(plain), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	py, iy := yardsticks(t, "ffn-forward", plain, idiom, in, compare.BFloat16, "y")
 	port := ffnPort(in["x"].Data, in["w1"].Data, in["b1"].Data, in["w2"].Data, in["b2"].Data, rows, nin, hidden, nout, true)
-	assert.False(t, judge(t, ref["y"], port, py), "the bfloat16-accumulating port passes the plain yardstick")
-	assert.True(t, judge(t, ref["y"], port, iy), "the bfloat16-accumulating port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
+	expect.False(t, judge(t, ref["y"], port, py), "the bfloat16-accumulating port passes the plain yardstick")
+	expect.True(t, judge(t, ref["y"], port, iy), "the bfloat16-accumulating port fails the yardstick of its idiom:\n%s", iy.Tolerance.Basis)
 	slipped := ffnPort(in["x"].Data, in["w1"].Data, in["b1"].Data, in["w2"].Data, in["b2"].Data, rows, nin, hidden, nout, false)
-	assert.False(t, judge(t, ref["y"], slipped, iy), "the port without b2 passes the idiom's yardstick")
+	expect.False(t, judge(t, ref["y"], slipped, iy), "the port without b2 passes the idiom's yardstick")
 	t.Logf("ffn-forward, in %d, hidden %d: normwise error of the plain bfloat16 yardstick %.3g, of accumulation = bfloat16 %.3g", nin, hidden, py.Report.Normwise, iy.Report.Normwise)
 }
 
@@ -344,16 +343,16 @@ func TestUnshiftedSoftmaxCost(t *testing.T) {
 	}{{12, true}, {5, false}} {
 		x := Tensor{Shape: []int{2, 4}, Data: []float64{c.top, 1, 0, -1, c.top - 2, 2, 1, 0}}
 		costs, err := IdiomCost("softmax", config, Tensors{"x": x}, compare.Float32, compare.DefaultK)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		cost := costs["y"]
-		assert.Equal(t, "accumulation = binary16, softmax_shift = none", cost.Keys, "in the order of the keys")
-		assert.Nil(t, cost.Positions, "softmax rows have no positions")
+		expect.Equal(t, "accumulation = binary16, softmax_shift = none", cost.Keys, "in the order of the keys")
+		expect.Nil(t, cost.Positions, "softmax rows have no positions")
 		t.Logf("largest logit %g: %v", c.top, cost)
 		if c.overflow {
-			assert.Greater(t, cost.Ratio(), 1e5)
-			assert.Equal(t, []float64{0, 0, 0, 0}, cost.Idiom.Output[:4], "e^12 > 65504: the binary16 sum is +Inf, the row 0")
+			expect.Greater(t, cost.Ratio(), 1e5)
+			expect.Equal(t, []float64{0, 0, 0, 0}, cost.Idiom.Output[:4], "e^12 > 65504: the binary16 sum is +Inf, the row 0")
 		} else {
-			assert.Less(t, cost.Idiom.Report.Normwise, 1e-2)
+			expect.Less(t, cost.Idiom.Report.Normwise, 1e-2)
 		}
 	}
 }
@@ -367,16 +366,16 @@ func TestIdiomsLeaveRun(t *testing.T) {
 	seen := map[string]bool{}
 	for _, c := range cases() {
 		o, err := Lookup(c.op)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		in := c.inputs(rand.New(rand.NewPCG(1, 2)))
 		config := c.config
 		if config == "" {
 			config = `{"version":1}`
 		}
 		want, err := Run(c.op, []byte(config), in)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		want32, err := Run32(c.op, []byte(config), in)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for _, k := range o.Keys() {
 			if !k.Idiom {
 				continue
@@ -385,17 +384,17 @@ func TestIdiomsLeaveRun(t *testing.T) {
 			for i, w := range k.Words {
 				with := []byte(strings.TrimSuffix(config, "}") + `,"` + k.Name + `":"` + w.Text + `"}`)
 				got, err := Run(c.op, with, in)
-				require.NoError(t, err, "%s", with)
-				assert.Empty(t, bitDiff(want, got), "%s: %s: Run changed", c.name, with)
+				ensure.NoError(t, err, "%s", with)
+				expect.Empty(t, bitDiff(want, got), "%s: %s: Run changed", c.name, with)
 				if i == 0 {
 					got32, err := Run32(c.op, with, in)
-					require.NoError(t, err, "%s", with)
-					assert.Empty(t, bitDiff(want32, got32), "%s: %s: the default word changed Run32", c.name, with)
+					ensure.NoError(t, err, "%s", with)
+					expect.Empty(t, bitDiff(want32, got32), "%s: %s: the default word changed Run32", c.name, with)
 				}
 			}
 		}
 	}
-	assert.Equal(t, []string{
+	expect.Equal(t, []string{
 		"attention-forward: accumulation", "attention-forward: softmax_shift", "ffn-forward: accumulation",
 		"layernorm-backward: variance", "layernorm-forward: variance", "logsumexp: accumulation", "logsumexp: softmax_shift",
 		"rotary-apply: angles", "rotary-tables: angles", "softmax: accumulation", "softmax: softmax_shift",
@@ -420,31 +419,31 @@ func TestIdiomCostAPI(t *testing.T) {
 			op = "softmax"
 		}
 		costs, err := IdiomCost(op, []byte(config), in, compare.Float32, compare.DefaultK)
-		require.NoError(t, err, config)
-		assert.Nil(t, costs, "%s %s: no idiom, no cost", op, config)
+		ensure.NoError(t, err, config)
+		expect.Nil(t, costs, "%s %s: no idiom, no cost", op, config)
 	}
 	costs, err := IdiomCost("rmsnorm-forward", []byte(`{"version":1,"epsilon":1e-5}`), in, compare.Float32, compare.DefaultK)
-	require.NoError(t, err)
-	assert.Nil(t, costs, "rmsnorm has no idiom key")
+	ensure.NoError(t, err)
+	expect.Nil(t, costs, "rmsnorm has no idiom key")
 	_, err = IdiomCost("rmsnorm-forward", []byte(`{"version":1,"epsilon":1e-5,"variance":"one-pass"}`), in, compare.Float32, compare.DefaultK)
-	assert.ErrorIs(t, err, ErrConfig, "rmsnorm has no mean and no variance key")
+	expect.ErrorIs(t, err, ErrConfig, "rmsnorm has no mean and no variance key")
 
 	config := []byte(`{"version":1,"epsilon":1e-5,"variance":"one-pass"}`)
 	ref, err := Run("layernorm-forward", config, in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	a, err := IdiomCost("layernorm-forward", config, in, compare.BFloat16, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	b, err := IdiomCostOf("layernorm-forward", config, in, ref, compare.BFloat16, compare.DefaultK)
-	require.NoError(t, err)
-	require.Contains(t, a, "y")
-	assert.Equal(t, a["y"].Idiom.Tolerance, b["y"].Idiom.Tolerance)
-	assert.Equal(t, a["y"].Plain.Tolerance, b["y"].Plain.Tolerance)
-	assert.Equal(t, "variance = one-pass", a["y"].Keys)
+	ensure.NoError(t, err)
+	ensure.Contains(t, a, "y")
+	expect.Equal(t, a["y"].Idiom.Tolerance, b["y"].Idiom.Tolerance)
+	expect.Equal(t, a["y"].Plain.Tolerance, b["y"].Plain.Tolerance)
+	expect.Equal(t, "variance = one-pass", a["y"].Keys)
 
 	_, err = IdiomCost("no-such-op", nil, nil, compare.Float32, compare.DefaultK)
-	assert.ErrorIs(t, err, ErrUnknownOp)
+	expect.ErrorIs(t, err, ErrUnknownOp)
 	_, err = IdiomCostOf("layernorm-forward", config, in, Tensors{}, compare.Float32, compare.DefaultK)
-	assert.ErrorIs(t, err, ErrInput)
+	expect.ErrorIs(t, err, ErrInput)
 	_, err = IdiomCost("layernorm-forward", config, in, compare.Float64, compare.DefaultK)
-	assert.ErrorIs(t, err, compare.ErrFormat)
+	expect.ErrorIs(t, err, compare.ErrFormat)
 }

@@ -8,11 +8,10 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/norm"
 	"github.com/plumbref/plumb/posenc"
@@ -93,9 +92,9 @@ func TestKeysReachKernels(t *testing.T) {
 					in := v.in(op)
 					if v.want32 != nil {
 						out32, err := Run32(op, []byte(v.config), in)
-						require.NoError(t, err, "%s = %s (%s): Run32", kt.key, v.value, v.config)
+						ensure.NoError(t, err, "%s = %s (%s): Run32", kt.key, v.value, v.config)
 						want32, err := v.want32(op, round32(in))
-						require.NoError(t, err, "%s = %s: the float32 kernel called directly", kt.key, v.value)
+						ensure.NoError(t, err, "%s = %s: the float32 kernel called directly", kt.key, v.value)
 						if d := bitDiff(out32, want32); d != "" {
 							t.Errorf("%s = %s (%s): Run32 differs from the float32 kernel called directly: %s", kt.key, v.value, v.config, d)
 						}
@@ -103,13 +102,13 @@ func TestKeysReachKernels(t *testing.T) {
 					}
 					out, err := Run(op, []byte(v.config), in)
 					if v.want == nil {
-						require.Error(t, err, "%s = %s (%s): the configuration must be refused", kt.key, v.value, v.config)
-						assert.ErrorIs(t, err, v.refuse, "%s = %s (%s)", kt.key, v.value, v.config)
+						ensure.Error(t, err, "%s = %s (%s): the configuration must be refused", kt.key, v.value, v.config)
+						expect.ErrorIs(t, err, v.refuse, "%s = %s (%s)", kt.key, v.value, v.config)
 						continue
 					}
-					require.NoError(t, err, "%s = %s (%s)", kt.key, v.value, v.config)
+					ensure.NoError(t, err, "%s = %s (%s)", kt.key, v.value, v.config)
 					want, err := v.want(op, in)
-					require.NoError(t, err, "%s = %s: the kernel called directly", kt.key, v.value)
+					ensure.NoError(t, err, "%s = %s: the kernel called directly", kt.key, v.value)
 					if d := bitDiff(out, want); d != "" {
 						t.Errorf("%s = %s (%s): the operation differs from the kernel called directly: %s", kt.key, v.value, v.config, d)
 					}
@@ -130,9 +129,9 @@ func TestKeysReachKernels(t *testing.T) {
 						}
 						d := bitDiff(got[a.value], got[b.value])
 						if meaning(a) == meaning(b) {
-							assert.Empty(t, d, "%s = %s and %s = %s mean the same and must agree", kt.key, a.value, kt.key, b.value)
+							expect.Empty(t, d, "%s = %s and %s = %s mean the same and must agree", kt.key, a.value, kt.key, b.value)
 						} else {
-							assert.NotEmpty(t, d, "%s = %s and %s = %s give the same result: the inputs do not tell them apart (%s)", kt.key, a.value, kt.key, b.value, kt.why)
+							expect.NotEmpty(t, d, "%s = %s and %s = %s give the same result: the inputs do not tell them apart (%s)", kt.key, a.value, kt.key, b.value, kt.why)
 						}
 					}
 				}
@@ -149,9 +148,9 @@ func TestKeysReachKernels(t *testing.T) {
 						}
 						d := bitDiff(got32[a.value], got32[b.value])
 						if meaning32(a) == meaning32(b) {
-							assert.Empty(t, d, "Run32: %s = %s and %s = %s mean the same and must agree", kt.key, a.value, kt.key, b.value)
+							expect.Empty(t, d, "Run32: %s = %s and %s = %s mean the same and must agree", kt.key, a.value, kt.key, b.value)
 						} else {
-							assert.NotEmpty(t, d, "Run32: %s = %s and %s = %s give the same float32 run: the inputs do not tell them apart (%s)", kt.key, a.value, kt.key, b.value, kt.why)
+							expect.NotEmpty(t, d, "Run32: %s = %s and %s = %s give the same float32 run: the inputs do not tell them apart (%s)", kt.key, a.value, kt.key, b.value, kt.why)
 						}
 					}
 				}
@@ -168,7 +167,7 @@ func TestKeysCovered(t *testing.T) {
 	for _, kt := range keyTests() {
 		for _, op := range kt.ops {
 			_, dup := tests[[2]string{op, kt.key}]
-			require.False(t, dup, "%s: key %s tested twice", op, kt.key)
+			ensure.False(t, dup, "%s: key %s tested twice", op, kt.key)
 			tests[[2]string{op, kt.key}] = kt
 		}
 	}
@@ -176,27 +175,27 @@ func TestKeysCovered(t *testing.T) {
 		o, _ := Lookup(n)
 		for _, k := range o.Keys() {
 			kt, ok := tests[[2]string{n, k.Name}]
-			if !assert.True(t, ok, "%s: key %s has no key test", n, k.Name) {
+			if !expect.True(t, ok, "%s: key %s has no key test", n, k.Name) {
 				continue
 			}
 			var values []string
 			for _, v := range kt.values {
 				values = append(values, v.value)
 			}
-			assert.Contains(t, values, leftOut, "%s: key %s", n, k.Name)
+			expect.Contains(t, values, leftOut, "%s: key %s", n, k.Name)
 			if k.Type == "word" {
 				for _, w := range k.Words {
-					assert.Contains(t, values, w.Text, "%s: key %s: word %s", n, k.Name, w.Text)
+					expect.Contains(t, values, w.Text, "%s: key %s: word %s", n, k.Name, w.Text)
 				}
 			} else {
-				assert.GreaterOrEqual(t, len(values), 3, "%s: key %s: values %v", n, k.Name, values)
+				expect.GreaterOrEqual(t, len(values), 3, "%s: key %s: values %v", n, k.Name, values)
 			}
 		}
 	}
 	for key := range tests {
 		o, err := Lookup(key[0])
-		require.NoError(t, err)
-		assert.True(t, slices.ContainsFunc(o.Keys(), func(k Key) bool { return k.Name == key[1] }), "%s has no key %s", key[0], key[1])
+		ensure.NoError(t, err)
+		expect.True(t, slices.ContainsFunc(o.Keys(), func(k Key) bool { return k.Name == key[1] }), "%s has no key %s", key[0], key[1])
 	}
 }
 
@@ -1080,13 +1079,13 @@ func TestKeyTestNames(t *testing.T) {
 	for _, kt := range keyTests() {
 		seen := map[string]bool{}
 		for _, v := range kt.values {
-			assert.False(t, seen[v.value], "%v %s: value %s listed twice", kt.ops, kt.key, v.value)
+			expect.False(t, seen[v.value], "%v %s: value %s listed twice", kt.ops, kt.key, v.value)
 			seen[v.value] = true
 			if v.same != "" {
-				assert.True(t, slices.ContainsFunc(kt.values, func(w keyValue) bool { return w.value == v.same && w.same == "" }),
+				expect.True(t, slices.ContainsFunc(kt.values, func(w keyValue) bool { return w.value == v.same && w.same == "" }),
 					"%v %s: value %s is the same as %s, which is not a value of its own", kt.ops, kt.key, v.value, v.same)
 			}
-			assert.True(t, strings.HasPrefix(v.config, `{"version":1`), v.config)
+			expect.True(t, strings.HasPrefix(v.config, `{"version":1`), v.config)
 		}
 	}
 }

@@ -12,12 +12,11 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/mask"
 	"github.com/plumbref/plumb/norm"
 	"github.com/plumbref/plumb/posenc"
@@ -121,7 +120,7 @@ func TestEveryOpHasACase(t *testing.T) {
 		covered[c.op] = true
 	}
 	for _, n := range Names() {
-		assert.True(t, covered[n], "operation %s has no test case", n)
+		expect.True(t, covered[n], "operation %s has no test case", n)
 	}
 }
 
@@ -132,7 +131,7 @@ func TestRunRun32Yardstick(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			in := c.inputs(rand.New(rand.NewPCG(1, 2)))
 			ref, err := Run(c.op, []byte(c.config), in)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			got := slices.Sorted(func(yield func(string) bool) {
 				for n := range ref {
 					if !yield(n) {
@@ -140,40 +139,40 @@ func TestRunRun32Yardstick(t *testing.T) {
 					}
 				}
 			})
-			assert.ElementsMatch(t, c.outputs, got)
+			expect.ElementsMatch(t, c.outputs, got)
 
 			low, err := Run32(c.op, []byte(c.config), in)
-			require.NoError(t, err)
-			require.Len(t, low, len(ref))
+			ensure.NoError(t, err)
+			ensure.Len(t, low, len(ref))
 			for n, r := range ref {
 				l := low[n]
-				require.Equal(t, r.Shape, l.Shape, n)
+				ensure.Equal(t, r.Shape, l.Shape, n)
 				for _, v := range l.Data {
-					require.Equal(t, float64(float32(v)), v, "%s: Run32 output %v is not a float32 value", n, v)
+					ensure.Equal(t, float64(float32(v)), v, "%s: Run32 output %v is not a float32 value", n, v)
 				}
 				// The float32 instantiation is within a few hundred float32
 				// roundings of the reference on these small, well-conditioned
 				// problems (u = 6e-8): a bound that a float64 path or a
 				// wrong kernel would break either way.
 				rep, err := compare.Diff(r.Data, l.Data, r.Shape, compare.Options{Format: compare.Float32})
-				require.NoError(t, err)
-				assert.Less(t, rep.Normwise, 1e-5, "%s: float32 run far from the reference", n)
+				ensure.NoError(t, err)
+				expect.Less(t, rep.Normwise, 1e-5, "%s: float32 run far from the reference", n)
 				if !strings.HasPrefix(c.op, "alibi") && !strings.HasSuffix(c.op, "-table") && c.op != "rotary-tables" {
-					assert.Positive(t, rep.Normwise, "%s: the float32 run equals the reference exactly: is it float64?", n)
+					expect.Positive(t, rep.Normwise, "%s: the float32 run equals the reference exactly: is it float64?", n)
 				}
 			}
 
 			ys, err := Yardstick(c.op, []byte(c.config), in, compare.BFloat16, compare.DefaultK)
-			require.NoError(t, err)
-			require.Len(t, ys, len(ref))
+			ensure.NoError(t, err)
+			ensure.Len(t, ys, len(ref))
 			for n, y := range ys {
 				r := ref[n]
-				assert.Equal(t, "float32", y.Arithmetic)
+				expect.Equal(t, "float32", y.Arithmetic)
 				// The reference rounded once to bfloat16 always passes
 				// (the yardstick's floor guarantees it).
 				rep, err := compare.Diff(r.Data, compare.BFloat16.RoundSlice(r.Data), r.Shape, y.Options())
-				require.NoError(t, err)
-				assert.True(t, rep.Verdict.Pass, "%s: the rounded reference fails its own yardstick:\n%v", n, rep)
+				ensure.NoError(t, err)
+				expect.True(t, rep.Verdict.Pass, "%s: the rounded reference fails its own yardstick:\n%v", n, rep)
 				// A candidate 10% off on its largest element fails: bfloat16
 				// holds 8 significant bits (relative spacing 2^−7 ≈ 0.8%).
 				bad := slices.Clone(compare.BFloat16.RoundSlice(r.Data))
@@ -186,8 +185,8 @@ func TestRunRun32Yardstick(t *testing.T) {
 				if len(bad) > 0 && r.Data[big] != 0 {
 					bad[big] *= 1.1
 					rep, err = compare.Diff(r.Data, bad, r.Shape, y.Options())
-					require.NoError(t, err)
-					assert.False(t, rep.Verdict.Pass, "%s: a 10%% error passes the yardstick:\n%v", n, rep)
+					ensure.NoError(t, err)
+					expect.False(t, rep.Verdict.Pass, "%s: a 10%% error passes the yardstick:\n%v", n, rep)
 				}
 			}
 		})
@@ -201,48 +200,48 @@ func TestRunMatchesKernels(t *testing.T) {
 	q, k, v := tensor(r, 1, 4, 6, 8), tensor(r, 1, 2, 6, 8), tensor(r, 1, 2, 6, 8)
 	got, err := Run("attention-forward", []byte(`{"version":1,"group":"cycle","mask":[{"kind":"window","size":2}],"soft_cap":3}`),
 		Tensors{"q": q, "k": k, "v": v})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	w, err := mask.Window(2)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	out, lse, err := attention.Forward(q.Data, k.Data, v.Data,
 		attention.Shape{Batch: 1, HeadsQ: 4, HeadsKV: 2, Lq: 6, Lk: 6, Dk: 8, Dv: 8},
 		attention.Options{Group: attention.GroupCycle, Mask: w, SoftCap: 3})
-	require.NoError(t, err)
-	assert.Equal(t, out, got["out"].Data)
-	assert.Equal(t, lse, got["lse"].Data)
-	assert.Equal(t, []int{1, 4, 6}, got["lse"].Shape)
+	ensure.NoError(t, err)
+	expect.Equal(t, out, got["out"].Data)
+	expect.Equal(t, lse, got["lse"].Data)
+	expect.Equal(t, []int{1, 4, 6}, got["lse"].Shape)
 
 	x := tensor(r, 2, 5, 8)
 	got, err = Run("rotary-apply", []byte(`{"version":1,"pairing":"halves","base":500}`), Tensors{"x": x})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	y, err := posenc.Rotary{Dim: 8, Base: 500, Pairing: posenc.PairHalves}.Apply(x.Data, 5, posenc.Positions{})
-	require.NoError(t, err)
-	assert.Equal(t, y, got["y"].Data)
+	ensure.NoError(t, err)
+	expect.Equal(t, y, got["y"].Data)
 
 	// softmax and log-sum-exp, with the worked values of the package
 	// documentation (doc.go, Worked values; [mpmath]: x = [1, 3, 2] → lse
 	// 3.4076059644443803, softmax 0.090030573170380458, 0.66524095577482189,
 	// 0.24472847105479765).
 	got, err = Run("softmax", nil, Tensors{"x": {[]int{1, 3}, []float64{1, 3, 2}}})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	// Within 2 ulps at these magnitudes (ulp(0.67) = 1.1e-16, ulp(3.4) = 4.4e-16).
-	assert.InDeltaSlice(t, []float64{0.090030573170380458, 0.66524095577482189, 0.24472847105479765}, got["y"].Data, 2e-16)
+	expect.InDeltaSlice(t, []float64{0.090030573170380458, 0.66524095577482189, 0.24472847105479765}, got["y"].Data, 2e-16)
 	got, err = Run("logsumexp", nil, Tensors{"x": {[]int{1, 3}, []float64{1, 3, 2}}})
-	require.NoError(t, err)
-	assert.Equal(t, []int{1}, got["lse"].Shape)
-	assert.InDelta(t, 3.4076059644443803, got["lse"].Data[0], 5e-16)
+	ensure.NoError(t, err)
+	expect.Equal(t, []int{1}, got["lse"].Shape)
+	expect.InDelta(t, 3.4076059644443803, got["lse"].Data[0], 5e-16)
 
 	got, err = Run("rmsnorm-forward", []byte(`{"version":1,"epsilon":1e-3,"epsilon_placement":"added-to-root"}`), Tensors{"x": x})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	y, err = norm.RMSNorm(x.Data, 8, nil, norm.Options{Epsilon: 1e-3, Placement: norm.EpsilonAddedToRoot})
-	require.NoError(t, err)
-	assert.Equal(t, y, got["y"].Data)
+	ensure.NoError(t, err)
+	expect.Equal(t, y, got["y"].Data)
 
 	got, err = Run("activation", []byte(`{"version":1,"function":"gelu-sigmoid"}`), Tensors{"x": x})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	y, err = ffn.Activate(x.Data, ffn.ActGELUSigmoid, 0)
-	require.NoError(t, err)
-	assert.Equal(t, y, got["y"].Data)
+	ensure.NoError(t, err)
+	expect.Equal(t, y, got["y"].Data)
 }
 
 // TestEveryKeyDocumented: every key of every operation says what it does
@@ -251,27 +250,27 @@ func TestRunMatchesKernels(t *testing.T) {
 func TestEveryKeyDocumented(t *testing.T) {
 	for _, n := range Names() {
 		o, err := Lookup(n)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for _, k := range o.Keys() {
-			assert.NotEmpty(t, k.Doc, "%s: key %s", n, k.Name)
-			assert.NotEmpty(t, k.Default, "%s: key %s", n, k.Name)
-			assert.NotEmpty(t, k.Type, "%s: key %s", n, k.Name)
+			expect.NotEmpty(t, k.Doc, "%s: key %s", n, k.Name)
+			expect.NotEmpty(t, k.Default, "%s: key %s", n, k.Name)
+			expect.NotEmpty(t, k.Type, "%s: key %s", n, k.Name)
 			if k.Type != "word" {
-				assert.Empty(t, k.Words, "%s: key %s", n, k.Name)
+				expect.Empty(t, k.Words, "%s: key %s", n, k.Name)
 				continue
 			}
-			require.NotEmpty(t, k.Convention, "%s: key %s", n, k.Name)
-			require.NotEmpty(t, k.Words, "%s: key %s", n, k.Name)
+			ensure.NotEmpty(t, k.Convention, "%s: key %s", n, k.Name)
+			ensure.NotEmpty(t, k.Words, "%s: key %s", n, k.Name)
 			if !strings.HasPrefix(k.Default, "required") {
-				assert.Equal(t, `"`+k.Words[0].Text+`"`, k.Default, "%s: key %s: the default is the zero value's word", n, k.Name)
+				expect.Equal(t, `"`+k.Words[0].Text+`"`, k.Default, "%s: key %s: the default is the zero value's word", n, k.Name)
 			}
 			for _, w := range k.Words {
-				assert.NotEmpty(t, w.Meaning, "%s: key %s: word %s", n, k.Name, w.Text)
+				expect.NotEmpty(t, w.Meaning, "%s: key %s: word %s", n, k.Name, w.Text)
 			}
 		}
-		assert.NotEmpty(t, o.Summary())
+		expect.NotEmpty(t, o.Summary())
 		for _, p := range append(o.Inputs(), o.Outputs()...) {
-			assert.NotEmpty(t, p.Doc, "%s: tensor %s", n, p.Name)
+			expect.NotEmpty(t, p.Doc, "%s: tensor %s", n, p.Name)
 		}
 	}
 }
@@ -289,13 +288,13 @@ func TestWordKeysDecode(t *testing.T) {
 			for _, w := range k.Words {
 				cfg := fmt.Sprintf(`{"version":1,%q:%q}`, k.Name, w.Text)
 				got, err := wordOf(o, []byte(cfg), k.Name)
-				require.NoError(t, err, "%s: %s", n, cfg)
-				assert.Equal(t, w.Text, got, "%s: %s", n, cfg)
+				ensure.NoError(t, err, "%s: %s", n, cfg)
+				expect.Equal(t, w.Text, got, "%s: %s", n, cfg)
 			}
 			cfg := fmt.Sprintf(`{"version":1,%q:"no-such-word"}`, k.Name)
 			_, err := wordOf(o, []byte(cfg), k.Name)
-			require.ErrorIs(t, err, ErrConfig, "%s: %s", n, cfg)
-			assert.Contains(t, err.Error(), fmt.Sprintf(`key %q = "no-such-word"; want one of `, k.Name), n)
+			ensure.ErrorIs(t, err, ErrConfig, "%s: %s", n, cfg)
+			expect.Contains(t, err.Error(), fmt.Sprintf(`key %q = "no-such-word"; want one of `, k.Name), n)
 		}
 	}
 }
@@ -359,16 +358,16 @@ func TestErrors(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			_, err := Run(c.op, []byte(c.config), c.in)
-			require.Error(t, err)
-			assert.True(t, errors.Is(err, c.want), "%v does not wrap %v", err, c.want)
-			assert.Contains(t, err.Error(), c.says)
+			ensure.Error(t, err)
+			expect.True(t, errors.Is(err, c.want), "%v does not wrap %v", err, c.want)
+			expect.Contains(t, err.Error(), c.says)
 			// The one form: the sentinel's text, then the operation (the
 			// function called, for an operation that does not exist).
 			where := c.op
 			if c.want == ErrUnknownOp {
 				where = "Run"
 			}
-			assert.True(t, strings.HasPrefix(err.Error(), c.want.Error()+": "+where+": "), "%q does not start with %q", err, c.want.Error()+": "+where+": ")
+			expect.True(t, strings.HasPrefix(err.Error(), c.want.Error()+": "+where+": "), "%q does not start with %q", err, c.want.Error()+": "+where+": ")
 		})
 	}
 }
@@ -380,29 +379,29 @@ func TestMaskErrorsWrapBoth(t *testing.T) {
 	r := rand.New(rand.NewPCG(5, 6))
 	qkv := Tensors{"q": tensor(r, 1, 2, 3, 4), "k": tensor(r, 1, 2, 3, 4), "v": tensor(r, 1, 2, 3, 4)}
 	_, err := Run("attention-forward", []byte(`{"version":1,"mask":[{"kind":"window","size":0}]}`), qkv)
-	require.Error(t, err)
-	assert.ErrorIs(t, err, ErrConfig)
-	assert.ErrorIs(t, err, mask.ErrWindow)
-	assert.True(t, strings.HasPrefix(err.Error(), `ops: invalid configuration: attention-forward: key "mask": `), err.Error())
-	assert.NotContains(t, err.Error(), mask.ErrWindow.Error())
+	ensure.Error(t, err)
+	expect.ErrorIs(t, err, ErrConfig)
+	expect.ErrorIs(t, err, mask.ErrWindow)
+	expect.True(t, strings.HasPrefix(err.Error(), `ops: invalid configuration: attention-forward: key "mask": `), err.Error())
+	expect.NotContains(t, err.Error(), mask.ErrWindow.Error())
 
 	_, err = Run("attention-forward", []byte(`{"version":1,"mask":[{"kind":"band","before":2}]}`), qkv)
-	require.Error(t, err)
-	assert.ErrorIs(t, err, ErrConfig)
-	assert.ErrorIs(t, err, mask.ErrSpec)
-	assert.True(t, strings.HasPrefix(err.Error(), `ops: invalid configuration: attention-forward: key "mask": `), err.Error())
-	assert.NotContains(t, err.Error(), mask.ErrSpec.Error())
+	ensure.Error(t, err)
+	expect.ErrorIs(t, err, ErrConfig)
+	expect.ErrorIs(t, err, mask.ErrSpec)
+	expect.True(t, strings.HasPrefix(err.Error(), `ops: invalid configuration: attention-forward: key "mask": `), err.Error())
+	expect.NotContains(t, err.Error(), mask.ErrSpec.Error())
 }
 
 func TestYardstickRefusesFloat64(t *testing.T) {
 	_, err := Yardstick("activation", []byte(`{"version":1,"function":"relu"}`), Tensors{"x": {[]int{1}, []float64{1}}}, compare.Float64, 2)
-	assert.ErrorIs(t, err, compare.ErrFormat)
+	expect.ErrorIs(t, err, compare.ErrFormat)
 }
 
 func TestEmptyConfigIsVersion1(t *testing.T) {
 	out, err := Run("rotary-apply", nil, Tensors{"x": {[]int{1, 2}, []float64{1, 0}}})
-	require.NoError(t, err)
-	assert.Equal(t, []float64{1, 0}, out["y"].Data) // position 0: the identity rotation
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{1, 0}, out["y"].Data) // position 0: the identity rotation
 }
 
 func FuzzConfig(f *testing.F) {

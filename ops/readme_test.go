@@ -7,9 +7,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/ops"
 )
@@ -84,9 +83,9 @@ func TestOperationsList(t *testing.T) {
 	var b strings.Builder
 	for _, n := range ops.Names() {
 		o, err := ops.Lookup(n)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		m := summaryCall.FindStringSubmatch(o.Summary())
-		require.NotNil(t, m, "%s: the summary %q does not end in (FUNCTION; float32: …)", n, o.Summary())
+		ensure.NotNil(t, m, "%s: the summary %q does not end in (FUNCTION; float32: …)", n, o.Summary())
 		var always, sometimes []string
 		for _, p := range o.Outputs() {
 			if p.Optional {
@@ -108,7 +107,7 @@ func TestOperationsList(t *testing.T) {
 // check are the ones the package documentation states with their source.
 func TestWorkedValuesDocumented(t *testing.T) {
 	doc, err := os.ReadFile("doc.go")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	flat := strings.Join(strings.Fields(strings.ReplaceAll(string(doc), "//", "")), " ")
 	for _, v := range []string{
 		"[mpmath]",
@@ -116,6 +115,6 @@ func TestWorkedValuesDocumented(t *testing.T) {
 		"3.4076059644443803",
 		"−1.1426396637476533, 1.9220755965441759, 2.9598506679133292, 4.0297995016691611",
 	} {
-		assert.Contains(t, flat, v, "ops/doc.go, Worked values")
+		expect.Contains(t, flat, v, "ops/doc.go, Worked values")
 	}
 }

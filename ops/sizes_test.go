@@ -6,9 +6,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/posenc"
 )
 
@@ -90,10 +89,10 @@ func TestSizeLimits(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			for _, run := range []func(string, []byte, Tensors) (Tensors, error){Run, Run32} {
 				_, err := run(c.op, []byte(c.config), c.in)
-				require.Error(t, err)
-				assert.True(t, errors.Is(err, c.want), "%v does not wrap %v", err, c.want)
-				assert.True(t, strings.HasPrefix(err.Error(), c.want.Error()+": "+c.op+": "), "%q does not start with %q", err, c.want.Error()+": "+c.op+": ")
-				assert.Contains(t, err.Error(), c.says)
+				ensure.Error(t, err)
+				expect.True(t, errors.Is(err, c.want), "%v does not wrap %v", err, c.want)
+				expect.True(t, strings.HasPrefix(err.Error(), c.want.Error()+": "+c.op+": "), "%q does not start with %q", err, c.want.Error()+": "+c.op+": ")
+				expect.Contains(t, err.Error(), c.says)
 			}
 		})
 	}
@@ -122,7 +121,7 @@ func TestEveryOpHasASizeRule(t *testing.T) {
 	}
 	for _, n := range Names() {
 		_, b := bounded[n]
-		assert.True(t, checked[n] != b, "operation %s: its output sizes are checked (sizeCases) or bounded by an input (bounded), and not both", n)
+		expect.True(t, checked[n] != b, "operation %s: its output sizes are checked (sizeCases) or bounded by an input (bounded), and not both", n)
 	}
 }
 
@@ -130,15 +129,15 @@ func TestEveryOpHasASizeRule(t *testing.T) {
 // one key and by a product; a product that overflows int64 is refused,
 // not wrapped around.
 func TestFitsAtTheLimit(t *testing.T) {
-	require.NoError(t, fits(ErrConfig, `output "x"`, size{`key "n"`, MaxElements}))
-	require.NoError(t, fits(ErrConfig, `output "x"`, size{`key "a"`, 1 << 14}, size{`key "b"`, 1 << 14}))
-	require.NoError(t, fits(ErrConfig, `output "x"`, size{`key "a"`, MaxElements}, size{`key "b"`, 0}))
-	require.ErrorIs(t, fits(ErrConfig, `output "x"`, size{`key "n"`, MaxElements + 1}), ErrConfig)
-	require.ErrorIs(t, fits(ErrInput, `output "x"`, size{`key "a"`, 1 << 14}, size{`key "b"`, 1<<14 + 1}), ErrInput)
+	ensure.NoError(t, fits(ErrConfig, `output "x"`, size{`key "n"`, MaxElements}))
+	ensure.NoError(t, fits(ErrConfig, `output "x"`, size{`key "a"`, 1 << 14}, size{`key "b"`, 1 << 14}))
+	ensure.NoError(t, fits(ErrConfig, `output "x"`, size{`key "a"`, MaxElements}, size{`key "b"`, 0}))
+	ensure.ErrorIs(t, fits(ErrConfig, `output "x"`, size{`key "n"`, MaxElements + 1}), ErrConfig)
+	ensure.ErrorIs(t, fits(ErrInput, `output "x"`, size{`key "a"`, 1 << 14}, size{`key "b"`, 1<<14 + 1}), ErrInput)
 	// 2^32 · 2^32 = 2^64 wraps to 0 in int64; the check must see 2^64.
 	err := fits(ErrConfig, `output "x"`, size{`key "a"`, 1 << 32}, size{`key "b"`, 1 << 32})
-	require.ErrorIs(t, err, ErrConfig)
-	assert.Contains(t, err.Error(), fmt.Sprintf("= 4294967296 · 4294967296 = 18446744073709551616; want at most MaxElements = %d", MaxElements))
+	ensure.ErrorIs(t, err, ErrConfig)
+	expect.Contains(t, err.Error(), fmt.Sprintf("= 4294967296 · 4294967296 = 18446744073709551616; want at most MaxElements = %d", MaxElements))
 }
 
 // TestSizeChecksComeFirst: a size the kernel would refuse too is refused
@@ -147,11 +146,11 @@ func TestFitsAtTheLimit(t *testing.T) {
 // keeps the kernel's error.
 func TestSizeChecksComeFirst(t *testing.T) {
 	_, err := Run("sinusoidal-table", []byte(`{"version":1,"dim":1000000000000,"length":1}`), nil)
-	require.ErrorIs(t, err, ErrConfig)
-	assert.False(t, errors.Is(err, posenc.ErrDim), "the kernel was called: %v", err)
+	ensure.ErrorIs(t, err, ErrConfig)
+	expect.False(t, errors.Is(err, posenc.ErrDim), "the kernel was called: %v", err)
 	// 2^21 > posenc.MaxDim = 2^20, within MaxElements: the kernel's error.
 	_, err = Run("sinusoidal-table", []byte(`{"version":1,"dim":2097152,"length":1}`), nil)
-	require.ErrorIs(t, err, posenc.ErrDim)
+	ensure.ErrorIs(t, err, posenc.ErrDim)
 	_, err = Run("alibi-slopes", []byte(`{"version":1,"heads":0}`), nil)
-	require.ErrorIs(t, err, posenc.ErrHeads)
+	ensure.ErrorIs(t, err, posenc.ErrHeads)
 }

@@ -5,8 +5,7 @@ import (
 	"encoding/json"
 	"testing"
 
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -23,7 +22,7 @@ func TestVocabularyFile(t *testing.T) {
 	var b bytes.Buffer
 	b.WriteString("{\n  \"note\": \"written by go test ./ops -run TestVocabularyFile -update from the Go convention types; do not edit\",\n  \"conventions\": ")
 	enc, err := json.MarshalIndent(Conventions(), "  ", "  ")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	b.Write(enc)
 	b.WriteString("\n}\n")
 	golden.WholeFile(t, vocabularyFile, b.String())

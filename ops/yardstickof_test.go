@@ -7,9 +7,8 @@ import (
 	"slices"
 	"testing"
 
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // TestYardstickOfEqualsYardstick checks that handing YardstickOf the
@@ -21,15 +20,15 @@ func TestYardstickOfEqualsYardstick(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			in := c.inputs(rand.New(rand.NewPCG(1, 2)))
 			ref, err := Run(c.op, []byte(c.config), in)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			want, err := Yardstick(c.op, []byte(c.config), in, compare.Float32, compare.DefaultK)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			got, err := YardstickOf(c.op, []byte(c.config), in, ref, compare.Float32, compare.DefaultK)
-			require.NoError(t, err)
-			require.Equal(t, slices.Sorted(maps.Keys(want)), slices.Sorted(maps.Keys(got)))
+			ensure.NoError(t, err)
+			ensure.Equal(t, slices.Sorted(maps.Keys(want)), slices.Sorted(maps.Keys(got)))
 			for n, w := range want {
-				require.Equal(t, w.Tolerance, got[n].Tolerance, n)
-				require.Equal(t, w.Report.Normwise, got[n].Report.Normwise, n)
+				ensure.Equal(t, w.Tolerance, got[n].Tolerance, n)
+				ensure.Equal(t, w.Report.Normwise, got[n].Report.Normwise, n)
 			}
 			first := slices.Sorted(maps.Keys(ref))[0]
 			partial := maps.Clone(ref)
@@ -38,7 +37,7 @@ func TestYardstickOfEqualsYardstick(t *testing.T) {
 			if o, _ := Lookup(c.op); isOptional(o, first) {
 				return
 			}
-			require.True(t, errors.Is(err, ErrInput), "a reference without %q: %v", first, err)
+			ensure.True(t, errors.Is(err, ErrInput), "a reference without %q: %v", first, err)
 		})
 	}
 }

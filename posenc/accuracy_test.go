@@ -4,9 +4,8 @@ import (
 	"math"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 )
 
@@ -25,18 +24,18 @@ func TestLargePositionAngles(t *testing.T) {
 	f := golden.MustLoadFamily(t, "posenc", "rotary_tables")
 	for _, c := range f.Cases {
 		var cfg rotaryCfg
-		require.NoError(t, c.DecodeConfig(&cfg))
+		ensure.NoError(t, c.DecodeConfig(&cfg))
 		if cfg.Scaling != nil || (cfg.Magnitude != 0 && cfg.Magnitude != 1) {
 			continue // the float64 and fma ways below form θ without scaling and magnitude
 		}
 		p64, _, err := c.Ints("positions")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		wantSin, _, err := c.Float("sin")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		h := cfg.Rotated / 2
 		r := Rotary{Dim: cfg.Dim, Rotated: cfg.Rotated, Base: cfg.Base}
 		rs, err := r.resolve("Rotary.Tables")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for _, limit := range []int64{1_000_000, math.MaxInt32} {
 			var got = map[string][]float64{}
 			var want []float64
@@ -60,9 +59,9 @@ func TestLargePositionAngles(t *testing.T) {
 				t.Logf("%s: positions ≤ %d: %-8s normwise relative error %.3g", c.Name, limit, way, e)
 				switch way {
 				case "dd":
-					assert.LessOrEqual(t, e, tableBound)
+					expect.LessOrEqual(t, e, tableBound)
 				case "float64":
-					assert.Greater(t, e, tableBound, "the bound must reject float64 angles")
+					expect.Greater(t, e, tableBound, "the bound must reject float64 angles")
 				}
 			}
 		}

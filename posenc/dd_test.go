@@ -4,7 +4,7 @@ import (
 	"math"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
+	"github.com/plumbref/plumb/internal/expect"
 )
 
 // The double-double helpers against constants computed with mpmath at 60
@@ -17,19 +17,19 @@ func ddErr(got dd, hi, lo float64) float64 {
 
 func TestDoubleDouble(t *testing.T) {
 	// e^{ln 2} = 2, ln 2 itself, e^1 and ln 10 ([mpmath], split hi + lo).
-	assert.Less(t, ddErr(ddExp(ddLn2), 2, 0), 4.0)
-	assert.Less(t, ddErr(ddLog(ddFrom(2)), ddLn2.hi, ddLn2.lo), 4.0)
-	assert.Less(t, ddErr(ddExp(ddFrom(1)), 0x1.5bf0a8b145769p+1, 0x1.4d57ee2b1013ap-53), 4.0)
-	assert.Less(t, ddErr(ddLog(ddFrom(10)), 0x1.26bb1bbb55516p+1, -0x1.f48ad494ea3e9p-53), 4.0)
+	expect.Less(t, ddErr(ddExp(ddLn2), 2, 0), 4.0)
+	expect.Less(t, ddErr(ddLog(ddFrom(2)), ddLn2.hi, ddLn2.lo), 4.0)
+	expect.Less(t, ddErr(ddExp(ddFrom(1)), 0x1.5bf0a8b145769p+1, 0x1.4d57ee2b1013ap-53), 4.0)
+	expect.Less(t, ddErr(ddLog(ddFrom(10)), 0x1.26bb1bbb55516p+1, -0x1.f48ad494ea3e9p-53), 4.0)
 	// 1/3 by long division.
-	assert.Less(t, ddErr(ddDiv(ddFrom(1), ddFrom(3)), 0x1.5555555555555p-2, 0x1.5555555555555p-56), 2.0)
+	expect.Less(t, ddErr(ddDiv(ddFrom(1), ddFrom(3)), 0x1.5555555555555p-2, 0x1.5555555555555p-56), 2.0)
 	// floor and ceil look at the low part when the high part is integral.
-	assert.Equal(t, 2.0, ddFloor(dd{3, -0x1p-60}))
-	assert.Equal(t, 3.0, ddCeil(dd{3, -0x1p-60}))
-	assert.Equal(t, 3.0, ddFloor(dd{3, 0x1p-60}))
-	assert.Equal(t, 4.0, ddCeil(dd{3, 0x1p-60}))
-	assert.Equal(t, 3.0, ddCeil(ddFrom(3)))
+	expect.Equal(t, 2.0, ddFloor(dd{3, -0x1p-60}))
+	expect.Equal(t, 3.0, ddCeil(dd{3, -0x1p-60}))
+	expect.Equal(t, 3.0, ddFloor(dd{3, 0x1p-60}))
+	expect.Equal(t, 4.0, ddCeil(dd{3, 0x1p-60}))
+	expect.Equal(t, 3.0, ddCeil(ddFrom(3)))
 	// Overflow and underflow of exp.
-	assert.True(t, math.IsInf(ddExp(ddFrom(800)).hi, 1))
-	assert.Equal(t, 0.0, ddExp(ddFrom(-800)).hi)
+	expect.True(t, math.IsInf(ddExp(ddFrom(800)).hi, 1))
+	expect.Equal(t, 0.0, ddExp(ddFrom(-800)).hi)
 }

@@ -9,9 +9,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
 	"github.com/plumbref/plumb/mask"
 )
@@ -52,20 +51,20 @@ func TestMain(m *testing.M) { os.Exit(accuracy.Main(m)) }
 func checkNorm(t *testing.T, fn string, c *golden.Case, name string, got []float64, bound float64) {
 	t.Helper()
 	want, _, err := c.Float(name)
-	require.NoError(t, err)
-	require.Len(t, got, len(want), "%s: %s", c, name)
+	ensure.NoError(t, err)
+	ensure.Len(t, got, len(want), "%s: %s", c, name)
 	e := golden.NormwiseRelErr(got, want)
 	accuracy.Note(fn, strings.TrimSuffix(name, "_inverse"), e)
-	assert.LessOrEqual(t, e, bound, golden.Describe(c, name, e, bound))
+	expect.LessOrEqual(t, e, bound, golden.Describe(c, name, e, bound))
 }
 
 func checkExact(t *testing.T, c *golden.Case, name string, got []float64) {
 	t.Helper()
 	want, _, err := c.Float(name)
-	require.NoError(t, err)
-	require.Len(t, got, len(want), "%s: %s", c, name)
+	ensure.NoError(t, err)
+	ensure.Len(t, got, len(want), "%s: %s", c, name)
 	for i := range want {
-		assert.Equal(t, want[i], got[i], "%s: %s[%d]: got %x, want %x", c, name, i, got[i], want[i])
+		expect.Equal(t, want[i], got[i], "%s: %s[%d]: got %x, want %x", c, name, i, got[i], want[i])
 	}
 }
 
@@ -126,7 +125,7 @@ func (cfg *rotaryCfg) rotary(t *testing.T, c *golden.Case) (Rotary, Positions) {
 	if c.Has("factors") {
 		var err error
 		r.Scaling.Factors, _, err = c.Float("factors")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 	}
 	pos := Positions{Offset: cfg.Offset}
 	if c.Has("positions") {
@@ -138,7 +137,7 @@ func (cfg *rotaryCfg) rotary(t *testing.T, c *golden.Case) (Rotary, Positions) {
 func positions(t *testing.T, c *golden.Case) []int {
 	t.Helper()
 	p64, _, err := c.Ints("positions")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	pos := make([]int, len(p64))
 	for i, v := range p64 {
 		pos[i] = int(v)
@@ -189,7 +188,7 @@ func eachCase[C any](t *testing.T, family string, check func(t *testing.T, c *go
 	for _, c := range golden.MustLoadFamily(t, "posenc", family).Cases {
 		t.Run(c.Name, func(t *testing.T) {
 			var cfg C
-			require.NoError(t, c.DecodeConfig(&cfg))
+			ensure.NoError(t, c.DecodeConfig(&cfg))
 			check(t, c, &cfg)
 		})
 	}
@@ -198,14 +197,14 @@ func eachCase[C any](t *testing.T, family string, check func(t *testing.T, c *go
 func TestGoldenSinusoidal(t *testing.T) {
 	eachCase(t, "sinusoidal_table", func(t *testing.T, c *golden.Case, cfg *sinusoidalCfg) {
 		got, err := cfg.sinusoidal().Table(cfg.Length, cfg.Offset)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkNorm(t, "Sinusoidal.Table", c, "table", got, tableBound)
 	})
 	eachCase(t, "sinusoidal_add", func(t *testing.T, c *golden.Case, cfg *sinusoidalCfg) {
 		x, _, err := c.Float("x")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		got, err := cfg.sinusoidal().Add(x, cfg.Length, cfg.Offset)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkNorm(t, "Sinusoidal.Add", c, "y", got, tableBound)
 	})
 }
@@ -214,10 +213,10 @@ func TestGoldenRotaryTables(t *testing.T) {
 	eachCase(t, "rotary_tables", func(t *testing.T, c *golden.Case, cfg *rotaryCfg) {
 		r, _ := cfg.rotary(t, c)
 		th, err := r.Frequencies()
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkExact(t, c, "theta", th)
 		cos, sin, err := r.Tables(positions(t, c))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkNorm(t, "Rotary.Tables", c, "cos", cos, tableBound)
 		checkNorm(t, "Rotary.Tables", c, "sin", sin, tableBound)
 	})
@@ -227,16 +226,16 @@ func runApplyFamily(t *testing.T, family string) {
 	eachCase(t, family, func(t *testing.T, c *golden.Case, cfg *rotaryCfg) {
 		r, pos := cfg.rotary(t, c)
 		x, _, err := c.Float("x")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		th, err := r.Frequencies()
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkExact(t, c, "theta", th)
 		y, err := r.Apply(x, cfg.Length, pos)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkNorm(t, "Rotary.Apply", c, "y", y, tableBound)
 		if c.Has("y_inverse") {
 			yi, err := r.ApplyInverse(x, cfg.Length, pos)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			checkNorm(t, "Rotary.ApplyInverse", c, "y_inverse", yi, tableBound)
 		}
 	})
@@ -251,7 +250,7 @@ func TestGoldenScaling(t *testing.T) { runApplyFamily(t, "scaling") }
 func checkFamily[C any](t *testing.T, family, output string, run func(C) ([]float64, error)) {
 	eachCase(t, family, func(t *testing.T, c *golden.Case, cfg *C) {
 		got, err := run(*cfg)
-		require.NoError(t, err, c.String())
+		ensure.NoError(t, err, c.String())
 		checkExact(t, c, output, got)
 	})
 }
@@ -279,16 +278,16 @@ func TestGoldenALiBiSlopes(t *testing.T) {
 func TestGoldenALiBiBias(t *testing.T) {
 	eachCase(t, "alibi_bias", func(t *testing.T, c *golden.Case, cfg *alibiBiasCfg) {
 		slopes, _, err := c.Float("slopes")
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		g := mask.Geometry{Batch: 1, Lq: cfg.Queries, Lk: cfg.Keys, Align: cfg.Align, Offset: cfg.Offset}
 		got, err := ALiBiBias(slopes, g, cfg.Form)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		checkExact(t, c, "bias", got)
 		// The bias is claimed bit-exact, zeros included: a distance of
 		// 0 gives +0, never −0.
 		for i, v := range got {
 			if v == 0 {
-				assert.False(t, math.Signbit(v), "%s: bias[%d] = −0", c, i)
+				expect.False(t, math.Signbit(v), "%s: bias[%d] = −0", c, i)
 			}
 		}
 	})
@@ -303,7 +302,7 @@ func TestGoldenWords(t *testing.T) {
 	for fam, cfg := range goldenConfigs {
 		for _, c := range golden.MustLoadFamily(t, "posenc", fam).Cases {
 			v := cfg()
-			require.NoError(t, c.DecodeConfig(v))
+			ensure.NoError(t, c.DecodeConfig(v))
 			w.Note(v)
 		}
 	}
@@ -321,10 +320,10 @@ func TestGoldenCount(t *testing.T) {
 	for fam := range want {
 		got[fam] = len(golden.MustLoadFamily(t, "posenc", fam).Cases)
 	}
-	assert.Equal(t, want, got, "case counts")
+	expect.Equal(t, want, got, "case counts")
 	// Every file of the package has a count and a configuration type.
 	files, err := filepath.Glob(filepath.Join(golden.Dir(), "posenc", "*.json"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var names, typed []string
 	for _, f := range files {
 		names = append(names, strings.TrimSuffix(filepath.Base(f), ".json"))
@@ -332,6 +331,6 @@ func TestGoldenCount(t *testing.T) {
 	for fam := range goldenConfigs {
 		typed = append(typed, fam)
 	}
-	assert.ElementsMatch(t, names, slices.Collect(maps.Keys(want)), "families with a count")
-	assert.ElementsMatch(t, names, typed, "families with a configuration type")
+	expect.ElementsMatch(t, names, slices.Collect(maps.Keys(want)), "families with a count")
+	expect.ElementsMatch(t, names, typed, "families with a configuration type")
 }

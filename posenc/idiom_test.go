@@ -5,8 +5,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // The tests of the angle idioms (Rotary.Angles): what the float32
@@ -22,9 +22,9 @@ func tableErr(t *testing.T, r Rotary, m0 int) float64 {
 		pos[i] = m0 + i
 	}
 	c, s, err := r.Tables(pos)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	c32, s32, err := r.Tables32(pos)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	e := 0.0
 	for i := range c {
 		e = math.Max(e, math.Max(math.Abs(c[i]-float64(c32[i])), math.Abs(s[i]-float64(s32[i]))))
@@ -45,16 +45,16 @@ func TestAnglesErrorGrowsWithPosition(t *testing.T) {
 		near64, near2048 := tableErr(t, r, 64), tableErr(t, r, 2048)
 		t.Logf("%v: max table error %.3g near position 64, %.3g near 2048 (×%.1f)", a, near64, near2048, near2048/near64)
 		if a == AnglesFloat64 {
-			assert.LessOrEqual(t, near64, 0x1p-25, "%v: the reference rounded once", a)
-			assert.LessOrEqual(t, near2048, 0x1p-25, "%v: the reference rounded once", a)
+			expect.LessOrEqual(t, near64, 0x1p-25, "%v: the reference rounded once", a)
+			expect.LessOrEqual(t, near2048, 0x1p-25, "%v: the reference rounded once", a)
 			continue
 		}
 		ratio := near2048 / near64
-		assert.True(t, ratio > 16 && ratio < 64, "%v: error ratio 2048 : 64 = %.3g; want about 32 (linear in the position)", a, ratio)
-		assert.Greater(t, near64, 10*0x1p-25, "%v: the idiom's error near 64 is well above one float32 rounding", a)
+		expect.True(t, ratio > 16 && ratio < 64, "%v: error ratio 2048 : 64 = %.3g; want about 32 (linear in the position)", a, ratio)
+		expect.Greater(t, near64, 10*0x1p-25, "%v: the idiom's error near 64 is well above one float32 rounding", a)
 	}
 	// float32-angles rounds the product too: more error than rounding θ alone.
-	assert.Greater(t, tableErr(t, Rotary{Dim: 64, Angles: AnglesFloat32}, 2048), tableErr(t, Rotary{Dim: 64, Angles: AnglesFloat32Frequencies}, 2048))
+	expect.Greater(t, tableErr(t, Rotary{Dim: 64, Angles: AnglesFloat32}, 2048), tableErr(t, Rotary{Dim: 64, Angles: AnglesFloat32Frequencies}, 2048))
 }
 
 // TestAnglesFloat32IsTheFrameworkIdiom: Tables32 with AnglesFloat32 is, bit
@@ -66,17 +66,17 @@ func TestAnglesErrorGrowsWithPosition(t *testing.T) {
 func TestAnglesFloat32IsTheFrameworkIdiom(t *testing.T) {
 	r := Rotary{Dim: 8, Rotated: 6, Base: 500, Pairing: PairHalves, Magnitude: 1.25, Angles: AnglesFloat32}
 	freqs, err := r.Frequencies()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	pos := []int{0, 1, 7, 100, 5000, 1 << 25, -3}
 	c32, s32, err := r.Tables32(pos)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	h := 3
 	for t0, m := range pos {
 		for i, th := range freqs {
 			a := float32(m) * float32(th)
 			s, c := math.Sincos(float64(a))
-			assert.Equal(t, float32(float64(c*1.25)), c32[t0*h+i], "cos, position %d, frequency %d", m, i)
-			assert.Equal(t, float32(float64(s*1.25)), s32[t0*h+i], "sin, position %d, frequency %d", m, i)
+			expect.Equal(t, float32(float64(c*1.25)), c32[t0*h+i], "cos, position %d, frequency %d", m, i)
+			expect.Equal(t, float32(float64(s*1.25)), s32[t0*h+i], "sin, position %d, frequency %d", m, i)
 		}
 	}
 	x := make([]float32, len(pos)*8)
@@ -84,24 +84,24 @@ func TestAnglesFloat32IsTheFrameworkIdiom(t *testing.T) {
 		x[i] = float32(i%11) - 5
 	}
 	y, err := r.Apply32(x, len(pos), Positions{List: pos})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for t0 := range pos {
 		xr, yr := x[t0*8:(t0+1)*8], y[t0*8:(t0+1)*8]
 		for i := range h {
 			c, s := c32[t0*h+i], s32[t0*h+i]
-			assert.Equal(t, float32(xr[i]*c)-float32(xr[i+h]*s), yr[i])
-			assert.Equal(t, float32(xr[i]*s)+float32(xr[i+h]*c), yr[i+h])
+			expect.Equal(t, float32(xr[i]*c)-float32(xr[i+h]*s), yr[i])
+			expect.Equal(t, float32(xr[i]*s)+float32(xr[i+h]*c), yr[i+h])
 		}
-		assert.Equal(t, xr[6:], yr[6:], "the pass-through dims")
+		expect.Equal(t, xr[6:], yr[6:], "the pass-through dims")
 	}
 
 	r.Angles = AnglesFloat32Frequencies
 	c32, _, err = r.Tables32(pos)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for t0, m := range pos {
 		for i, th := range freqs {
 			_, c := sincosDD(angle(m, ddFrom(float64(float32(th)))))
-			assert.Equal(t, float32(float64(c*1.25)), c32[t0*h+i], "cos, position %d, frequency %d", m, i)
+			expect.Equal(t, float32(float64(c*1.25)), c32[t0*h+i], "cos, position %d, frequency %d", m, i)
 		}
 	}
 }
@@ -118,35 +118,35 @@ func TestAnglesLeaveTheReference(t *testing.T) {
 	pos := Positions{Offset: 1000}
 	base := Rotary{Dim: 16, Scaling: Scaling{Method: YaRN, Factor: 4, TrainedLength: 64}}
 	want, err := base.Apply(x, 5, pos)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	wantInv, err := base.ApplyInverse(x, 5, pos)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	wantC, wantS, err := base.Tables([]int{3, 900000})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, a := range AnglesFloat64.Values() {
 		r := base
 		r.Angles = a
 		got, err := r.Apply(x, 5, pos)
-		require.NoError(t, err)
-		assert.Equal(t, want, got, "%v", a)
+		ensure.NoError(t, err)
+		expect.Equal(t, want, got, "%v", a)
 		got, err = r.ApplyInverse(x, 5, pos)
-		require.NoError(t, err)
-		assert.Equal(t, wantInv, got, "%v", a)
+		ensure.NoError(t, err)
+		expect.Equal(t, wantInv, got, "%v", a)
 		c, s, err := r.Tables([]int{3, 900000})
-		require.NoError(t, err)
-		assert.Equal(t, wantC, c, "%v", a)
-		assert.Equal(t, wantS, s, "%v", a)
+		ensure.NoError(t, err)
+		expect.Equal(t, wantC, c, "%v", a)
+		expect.Equal(t, wantS, s, "%v", a)
 	}
 	c32, s32, err := base.Tables32([]int{3, 900000})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i := range wantC {
-		assert.Equal(t, float32(wantC[i]), c32[i])
-		assert.Equal(t, float32(wantS[i]), s32[i])
+		expect.Equal(t, float32(wantC[i]), c32[i])
+		expect.Equal(t, float32(wantS[i]), s32[i])
 	}
 
 	_, err = Rotary{Dim: 8, Angles: 3}.Apply32(make([]float32, 8), 1, Positions{})
-	assert.ErrorIs(t, err, ErrOption)
-	assert.EqualError(t, err, "posenc: invalid option: Rotary.Apply32: Rotary.Angles = 3; want one of float64, float32-frequencies, float32-angles")
+	expect.ErrorIs(t, err, ErrOption)
+	expect.EqualError(t, err, "posenc: invalid option: Rotary.Apply32: Rotary.Angles = 3; want one of float64, float32-frequencies, float32-angles")
 	_, _, err = Rotary{Dim: 8}.Tables32([]int{MaxPosition + 1})
-	assert.ErrorIs(t, err, ErrPosition)
+	expect.ErrorIs(t, err, ErrPosition)
 }

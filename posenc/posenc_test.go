@@ -7,9 +7,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -28,20 +27,20 @@ func ulps(a, b float64) float64 {
 
 func TestWorkedSinusoidal(t *testing.T) {
 	tab, err := Sinusoidal{Dim: 4}.Table(2, 0)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	// Vaswani et al. 2017 §3.5: sin(0) = 0 and cos(0) = 1, exactly.
-	assert.Equal(t, []float64{0, 1, 0, 1}, tab[:4], "position 0")
+	expect.Equal(t, []float64{0, 1, 0, 1}, tab[:4], "position 0")
 	// [mpmath] pos = 1, d = 4 (50 digits, rounded to 17 significant).
 	want := []float64{0.84147098480789651, 0.54030230586813972, 0.0099998333341666647, 0.99995000041666528}
 	for i, w := range want {
-		assert.LessOrEqual(t, ulps(tab[4+i], w), 1.0, "PE(1, %d) = %v, want %v", i, tab[4+i], w)
+		expect.LessOrEqual(t, ulps(tab[4+i], w), 1.0, "PE(1, %d) = %v, want %v", i, tab[4+i], w)
 	}
 	// Position 0 of a wide table, Concatenated: all sines 0, all cosines 1.
 	c, err := Sinusoidal{Dim: 64, Layout: Concatenated, Base: 500}.Table(1, 0)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i := range 32 {
-		require.Equal(t, 0.0, c[i])
-		require.Equal(t, 1.0, c[32+i])
+		ensure.Equal(t, 0.0, c[i])
+		ensure.Equal(t, 1.0, c[32+i])
 	}
 }
 
@@ -49,15 +48,15 @@ func TestWorkedRotary(t *testing.T) {
 	// [mpmath] d = 4, base 10⁴ (θ = 1, 0.01), x = [1, 2, 3, 4], m = 1,
 	// PairAdjacent; values rounded to 17 significant digits.
 	y, err := Rotary{Dim: 4}.Apply([]float64{1, 2, 3, 4}, 1, Positions{Offset: 1})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	want := []float64{-1.1426396637476533, 1.9220755965441759, 2.9598506679133292, 4.0297995016691611}
 	for i, w := range want {
-		assert.LessOrEqual(t, ulps(y[i], w), 2.0, "y[%d] = %v, want %v", i, y[i], w)
+		expect.LessOrEqual(t, ulps(y[i], w), 2.0, "y[%d] = %v, want %v", i, y[i], w)
 	}
 	th, err := Rotary{Dim: 4}.Frequencies()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	// Su et al. 2021 Eq. (15): θ_i = 10000^{−2i/d}; d = 4 gives 1 and 1/100.
-	assert.Equal(t, []float64{1, 0.01}, th)
+	expect.Equal(t, []float64{1, 0.01}, th)
 }
 
 func TestWorkedInterpolation(t *testing.T) {
@@ -67,53 +66,53 @@ func TestWorkedInterpolation(t *testing.T) {
 	// the same real numbers, and both paths round them identically.
 	pi := Rotary{Dim: 64, Scaling: Scaling{Method: Interpolation, Factor: 8192.0 / 2048}}
 	c1, s1, err := pi.Tables([]int{6000})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	c2, s2, err := Rotary{Dim: 64}.Tables([]int{1500})
-	require.NoError(t, err)
-	assert.Equal(t, c2, c1)
-	assert.Equal(t, s2, s1)
+	ensure.NoError(t, err)
+	expect.Equal(t, c2, c1)
+	expect.Equal(t, s2, s1)
 }
 
 func TestWorkedNTKBase(t *testing.T) {
 	// [mpmath] |D| = 128, b = 10⁴, s = 4 → b′ = 40889.942432486216.
 	b, err := NTKBase(10000, 4, 128)
-	require.NoError(t, err)
-	assert.LessOrEqual(t, ulps(b, 40889.942432486216), 1.0, "b′ = %v", b)
+	ensure.NoError(t, err)
+	expect.LessOrEqual(t, ulps(b, 40889.942432486216), 1.0, "b′ = %v", b)
 }
 
 func TestWorkedYaRNMagnitude(t *testing.T) {
 	m, err := YaRNMagnitude(8)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	// [paper] Peng et al. 2023: √(1/t) ≈ 1.208 at s = 8 (three decimals).
-	assert.InDelta(t, 1.208, m, 0.0005)
+	expect.InDelta(t, 1.208, m, 0.0005)
 	// [mpmath] 0.1·ln 8 + 1 = 1.2079441541679836.
-	assert.LessOrEqual(t, ulps(m, 1.2079441541679836), 1.0)
+	expect.LessOrEqual(t, ulps(m, 1.2079441541679836), 1.0)
 	one, err := YaRNMagnitude(1)
-	require.NoError(t, err)
-	assert.Equal(t, 1.0, one, "ln 1 = 0")
+	ensure.NoError(t, err)
+	expect.Equal(t, 1.0, one, "ln 1 = 0")
 }
 
 func TestWorkedALiBiSlopes(t *testing.T) {
 	// [paper] Press et al. 2022 §3: for 8 heads the slopes are
 	// 1/2, 1/2², …, 1/2⁸.
 	s8, err := ALiBiSlopes(8)
-	require.NoError(t, err)
-	assert.Equal(t, []float64{0.5, 0.25, 0.125, 0.0625, 0.03125, 0.015625, 0.0078125, 0.00390625}, s8)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{0.5, 0.25, 0.125, 0.0625, 0.03125, 0.015625, 0.0078125, 0.00390625}, s8)
 	// [mpmath] 12 heads: the 8 above, then 2^{−1/2}, 2^{−3/2}, 2^{−5/2},
 	// 2^{−7/2} (the authors' rule for a count that is not a power of two).
 	s12, err := ALiBiSlopes(12)
-	require.NoError(t, err)
-	assert.Equal(t, s8, s12[:8])
+	ensure.NoError(t, err)
+	expect.Equal(t, s8, s12[:8])
 	for i, w := range []float64{0.70710678118654752, 0.35355339059327376, 0.17677669529663688, 0.088388347648318441} {
-		assert.LessOrEqual(t, ulps(s12[8+i], w), 1.0)
+		expect.LessOrEqual(t, ulps(s12[8+i], w), 1.0)
 	}
 	// [paper] §3: "for models with 16 heads … 1/2^0.5, 1/2^1, …, 1/2^8":
 	// the geometric sequence with ratio 2^{−1/2}. Powers at integer
 	// exponents are exact.
 	s16, err := ALiBiSlopes(16)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for k := 2; k <= 16; k += 2 {
-		assert.Equal(t, math.Ldexp(1, -k/2), s16[k-1])
+		expect.Equal(t, math.Ldexp(1, -k/2), s16[k-1])
 	}
 }
 
@@ -132,15 +131,15 @@ func TestWorkedALiBiBias(t *testing.T) {
 			for j := 1; j <= i; j++ {
 				// [paper] keys up to the query: every form
 				for _, b := range [][]float64{causal, past, sym} {
-					assert.Equal(t, m*float64(-(i-j)), b[k+j-1])
+					expect.Equal(t, m*float64(-(i-j)), b[k+j-1])
 				}
 			}
 			for j := i + 1; j <= L; j++ {
 				// the paper's formula −m·(i − j) for every key: positive
-				assert.Equal(t, m*float64(j-i), causal[k+j-1], "causal: keys after the query get m·(j − i)")
-				assert.Equal(t, 0.0, past[k+j-1], "past-only: keys after the query carry 0")
-				assert.False(t, math.Signbit(past[k+j-1]), "past-only: +0, not −0")
-				assert.Equal(t, m*float64(i-j), sym[k+j-1], "symmetric: −m·|i − j|")
+				expect.Equal(t, m*float64(j-i), causal[k+j-1], "causal: keys after the query get m·(j − i)")
+				expect.Equal(t, 0.0, past[k+j-1], "past-only: keys after the query carry 0")
+				expect.False(t, math.Signbit(past[k+j-1]), "past-only: +0, not −0")
+				expect.Equal(t, m*float64(i-j), sym[k+j-1], "symmetric: −m·|i − j|")
 			}
 		}
 	}
@@ -190,14 +189,14 @@ func TestRotationPreservesNorm(t *testing.T) {
 			x := randVec(r, 3*cfg.Dim)
 			pos := []int{r.IntN(MaxPosition), -r.IntN(1000), r.IntN(1 << 20)}
 			y, err := cfg.Apply(x, 3, Positions{List: pos})
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for row := range 3 {
 				nx, ny := norm(x[row*cfg.Dim:(row+1)*cfg.Dim]), norm(y[row*cfg.Dim:(row+1)*cfg.Dim])
 				// Each rotated pair is off by at most ~3 ulps of its norm
 				// (cos, sin within 1 ulp; two products and a sum); 1e-15
 				// relative covers it with room and fails on any wrong angle
 				// formula that stops being a rotation.
-				assert.InDelta(t, nx, ny, 1e-15*nx, "%+v at %d", cfg, pos[row])
+				expect.InDelta(t, nx, ny, 1e-15*nx, "%+v at %d", cfg, pos[row])
 			}
 		}
 	}
@@ -212,13 +211,13 @@ func TestRelativePosition(t *testing.T) {
 			m, n := r.IntN(5000), r.IntN(5000)
 			shift := r.IntN(1_000_000)
 			a, err := cfg.Apply(append(append([]float64{}, q...), k...), 2, Positions{List: []int{m, n}})
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			b, err := cfg.Apply(append(append([]float64{}, q...), k...), 2, Positions{List: []int{m + shift, n + shift}})
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			d := cfg.Dim
 			// Both dot products are within ~(D+4) ulps of |q||k| of the
 			// exact one; 1e-14·|q||k| allows D = 64 with room.
-			assert.InDelta(t, dot(a[:d], a[d:]), dot(b[:d], b[d:]), 1e-14*norm(q)*norm(k),
+			expect.InDelta(t, dot(a[:d], a[d:]), dot(b[:d], b[d:]), 1e-14*norm(q)*norm(k),
 				"%+v m=%d n=%d shift=%d", cfg, m, n, shift)
 		}
 	}
@@ -250,13 +249,13 @@ func TestPairingsArePermutation(t *testing.T) {
 		adj, halves := cfg, cfg
 		halves.Pairing = PairHalves
 		ya, err := adj.Apply(x, 4, pos)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		yh, err := halves.Apply(perm(x), 4, pos)
-		require.NoError(t, err)
-		assert.Equal(t, perm(ya), yh, "halves(P x) = P adjacent(x)")
+		ensure.NoError(t, err)
+		expect.Equal(t, perm(ya), yh, "halves(P x) = P adjacent(x)")
 		yx, err := halves.Apply(x, 4, pos)
-		require.NoError(t, err)
-		assert.NotEqual(t, ya, yx, "the two pairings are different conventions")
+		ensure.NoError(t, err)
+		expect.NotEqual(t, ya, yx, "the two pairings are different conventions")
 	}
 }
 
@@ -265,7 +264,7 @@ func TestFactorOneIsIdentity(t *testing.T) {
 	// L′ = L); so are NTK and YaRN at s = 1 and dynamic scaling while the
 	// sequence is no longer than the trained length: bit for bit.
 	plain, err := Rotary{Dim: 32}.Frequencies()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, sc := range []Scaling{
 		{Method: Interpolation, Factor: 1},
 		{Method: NTKAware, Factor: 1},
@@ -276,46 +275,46 @@ func TestFactorOneIsIdentity(t *testing.T) {
 		{Method: PerFrequency, Factors: []float64{1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1, 1}},
 	} {
 		got, err := Rotary{Dim: 32, Scaling: sc}.Frequencies()
-		require.NoError(t, err)
-		assert.Equal(t, plain, got, "%+v", sc)
+		ensure.NoError(t, err)
+		expect.Equal(t, plain, got, "%+v", sc)
 	}
 }
 
 func TestScalingShapes(t *testing.T) {
 	plain, err := Rotary{Dim: 64}.Frequencies()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	h := len(plain)
 	for _, s := range []float64{2, 4, 8, 32} {
 		// Interpolation divides every frequency by s (exact for powers of 2).
 		pi, err := Rotary{Dim: 64, Scaling: Scaling{Method: Interpolation, Factor: s}}.Frequencies()
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for i := range pi {
-			assert.Equal(t, plain[i]/s, pi[i])
+			expect.Equal(t, plain[i]/s, pi[i])
 		}
 		// NTK-aware (Peng et al. 2023 Eq. 16): θ_0 = 1 unchanged, and the
 		// lowest frequency b′^{−(r−2)/r} = b^{−(r−2)/r}/s divided by s.
 		ntk, err := Rotary{Dim: 64, Scaling: Scaling{Method: NTKAware, Factor: s}}.Frequencies()
-		require.NoError(t, err)
-		assert.Equal(t, 1.0, ntk[0])
-		assert.Equal(t, plain[h-1]/s, ntk[h-1])
+		ensure.NoError(t, err)
+		expect.Equal(t, 1.0, ntk[0])
+		expect.Equal(t, plain[h-1]/s, ntk[h-1])
 		// YaRN, both ramps: high frequencies (ρ > β) are kept, low ones
 		// (ρ < α) interpolated, and every frequency lies between.
 		for _, ramp := range []Ramp{RampRatio, RampDims} {
 			y, err := Rotary{Dim: 64, Scaling: Scaling{Method: YaRN, Factor: s, TrainedLength: 4096, Ramp: ramp}}.Frequencies()
-			require.NoError(t, err)
-			assert.Equal(t, plain[0], y[0], "θ_0: ρ = 4096/2π > β")
-			assert.Equal(t, plain[h-1]/s, y[h-1], "θ_last: ρ < α")
+			ensure.NoError(t, err)
+			expect.Equal(t, plain[0], y[0], "θ_0: ρ = 4096/2π > β")
+			expect.Equal(t, plain[h-1]/s, y[h-1], "θ_last: ρ < α")
 			for i := range y {
-				assert.True(t, plain[i]/s <= y[i] && y[i] <= plain[i], "%v: θ_%d = %v outside [θ/s, θ]", ramp, i, y[i])
+				expect.True(t, plain[i]/s <= y[i] && y[i] <= plain[i], "%v: θ_%d = %v outside [θ/s, θ]", ramp, i, y[i])
 			}
 		}
 	}
 	// The two ramps are different numbers in the ramp region.
 	a, err := Rotary{Dim: 64, Scaling: Scaling{Method: YaRN, Factor: 8, TrainedLength: 4096}}.Frequencies()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	b, err := Rotary{Dim: 64, Scaling: Scaling{Method: YaRN, Factor: 8, TrainedLength: 4096, Ramp: RampDims}}.Frequencies()
-	require.NoError(t, err)
-	assert.NotEqual(t, a, b)
+	ensure.NoError(t, err)
+	expect.NotEqual(t, a, b)
 }
 
 func TestInverseUndoesRotation(t *testing.T) {
@@ -324,12 +323,12 @@ func TestInverseUndoesRotation(t *testing.T) {
 		x := randVec(r, 5*cfg.Dim)
 		pos := Positions{Offset: r.IntN(2_000_000)}
 		y, err := cfg.Apply(x, 5, pos)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		back, err := cfg.ApplyInverse(y, 5, pos)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		// Two rotations of ~3 ulps each: 2e-15 normwise is ~10 ulps.
 		for i := range x {
-			assert.InDelta(t, x[i], back[i], 2e-15, "%+v [%d]", cfg, i)
+			expect.InDelta(t, x[i], back[i], 2e-15, "%+v [%d]", cfg, i)
 		}
 	}
 }
@@ -342,21 +341,21 @@ func TestPositionForms(t *testing.T) {
 	const B, L = 3, 4
 	x := randVec(r, B*L*cfg.Dim)
 	a, err := cfg.Apply(x, L, Positions{Offset: 10})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	b, err := cfg.Apply(x, L, Positions{List: []int{10, 11, 12, 13}})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	per := make([]int, 0, B*L)
 	for range B {
 		per = append(per, 10, 11, 12, 13)
 	}
 	c, err := cfg.Apply(x, L, Positions{List: per})
-	require.NoError(t, err)
-	assert.Equal(t, a, b)
-	assert.Equal(t, a, c)
+	ensure.NoError(t, err)
+	expect.Equal(t, a, b)
+	expect.Equal(t, a, c)
 	// Position 0 is the identity on every pair.
 	z, err := cfg.Apply(x, L, Positions{})
-	require.NoError(t, err)
-	assert.Equal(t, x[:cfg.Dim], z[:cfg.Dim])
+	ensure.NoError(t, err)
+	expect.Equal(t, x[:cfg.Dim], z[:cfg.Dim])
 }
 
 func TestMagnitude(t *testing.T) {
@@ -365,11 +364,11 @@ func TestMagnitude(t *testing.T) {
 	x := []float64{1, 2, 3, 4, 5, 6}
 	cfg := Rotary{Dim: 6, Rotated: 4, Magnitude: 2}
 	y, err := cfg.Apply(x, 1, Positions{})
-	require.NoError(t, err)
-	assert.Equal(t, []float64{2, 4, 6, 8, 5, 6}, y, "position 0: cos 1, sin 0")
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{2, 4, 6, 8, 5, 6}, y, "position 0: cos 1, sin 0")
 	back, err := cfg.ApplyInverse(y, 1, Positions{})
-	require.NoError(t, err)
-	assert.Equal(t, []float64{4, 8, 12, 16, 5, 6}, back)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{4, 8, 12, 16, 5, 6}, back)
 }
 
 func TestApply32(t *testing.T) {
@@ -385,14 +384,14 @@ func TestApply32(t *testing.T) {
 		}
 		pos := Positions{Offset: 123456}
 		want, err := cfg.Apply(x, 4, pos)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		got, err := cfg.Apply32(x32, 4, pos)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		inv, err := cfg.ApplyInverse32(got, 4, pos)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for i := range want {
-			assert.InDelta(t, want[i], float64(got[i]), 4*0x1p-24, "%+v [%d]", cfg, i)
-			assert.InDelta(t, x[i], float64(inv[i]), 8*0x1p-24, "%+v [%d]", cfg, i)
+			expect.InDelta(t, want[i], float64(got[i]), 4*0x1p-24, "%+v [%d]", cfg, i)
+			expect.InDelta(t, x[i], float64(inv[i]), 8*0x1p-24, "%+v [%d]", cfg, i)
 		}
 	}
 }
@@ -401,20 +400,20 @@ func TestSinusoidalAdd(t *testing.T) {
 	s := Sinusoidal{Dim: 6, Base: 100, Layout: Concatenated}
 	x := randVec(rand.New(rand.NewPCG(13, 14)), 2*3*6)
 	pe, err := s.Table(3, 5)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	y, err := s.Add(x, 3, 5)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i := range x {
-		assert.Equal(t, x[i]+pe[i%len(pe)], y[i])
+		expect.Equal(t, x[i]+pe[i%len(pe)], y[i])
 	}
 	// Interleaved and Concatenated hold the same numbers in another order.
 	s.Layout = Interleaved
 	il, err := s.Table(3, 5)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for row := range 3 {
 		for i := range 3 {
-			assert.Equal(t, pe[row*6+i], il[row*6+2*i])
-			assert.Equal(t, pe[row*6+3+i], il[row*6+2*i+1])
+			expect.Equal(t, pe[row*6+i], il[row*6+2*i])
+			expect.Equal(t, pe[row*6+3+i], il[row*6+2*i+1])
 		}
 	}
 }
@@ -426,14 +425,14 @@ func biasForms(t *testing.T, slopes []float64, g mask.Geometry) (causal, symmetr
 	for i, f := range []mask.ALiBiForm{mask.ALiBiCausal, mask.ALiBiSymmetric, mask.ALiBiPastOnly} {
 		var err error
 		out[i], err = ALiBiBias(slopes, g, f)
-		require.NoError(t, err, "%v, %v", g, f)
+		ensure.NoError(t, err, "%v, %v", g, f)
 	}
 	return out[0], out[1], out[2]
 }
 
 func TestALiBiForms(t *testing.T) {
 	slopes, err := ALiBiSlopes(5)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, g := range []mask.Geometry{
 		{Batch: 2, Lq: 3, Lk: 7},
 		{Batch: 1, Lq: 3, Lk: 7, Align: mask.AlignStart, Offset: 2},
@@ -441,7 +440,7 @@ func TestALiBiForms(t *testing.T) {
 	} {
 		c, s, po := biasForms(t, slopes, g)
 		vis, err := mask.Causal().Visible(mask.Geometry{Batch: 1, Lq: g.Lq, Lk: g.Lk, Align: g.Align, Offset: g.Offset})
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for h := range slopes {
 			for k := range g.Lq * g.Lk {
 				i, j := k/g.Lk, k%g.Lk
@@ -449,17 +448,17 @@ func TestALiBiForms(t *testing.T) {
 				d := float64(g.Pos(i) - j)
 				if vis[k] {
 					// keys a causal mask shows: every form agrees, −m·(p − j) ≤ 0
-					assert.Equal(t, -slopes[h]*d, c[n])
-					assert.Equal(t, c[n], s[n])
-					assert.Equal(t, c[n], po[n])
+					expect.Equal(t, -slopes[h]*d, c[n])
+					expect.Equal(t, c[n], s[n])
+					expect.Equal(t, c[n], po[n])
 				} else {
 					// keys after the query: the forms differ
-					assert.Equal(t, -slopes[h]*d, c[n], "causal: the same formula")
-					assert.Greater(t, c[n], 0.0)
-					assert.Equal(t, slopes[h]*d, s[n], "symmetric: −m·|p − j|")
-					assert.Less(t, s[n], 0.0)
-					assert.Equal(t, 0.0, po[n], "past-only: 0")
-					assert.False(t, math.Signbit(po[n]))
+					expect.Equal(t, -slopes[h]*d, c[n], "causal: the same formula")
+					expect.Greater(t, c[n], 0.0)
+					expect.Equal(t, slopes[h]*d, s[n], "symmetric: −m·|p − j|")
+					expect.Less(t, s[n], 0.0)
+					expect.Equal(t, 0.0, po[n], "past-only: 0")
+					expect.False(t, math.Signbit(po[n]))
 				}
 			}
 		}
@@ -579,50 +578,50 @@ func TestErrors(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			require.ErrorIs(t, c.err, c.want)
-			assert.EqualError(t, c.err, c.msg)
+			ensure.ErrorIs(t, c.err, c.want)
+			expect.EqualError(t, c.err, c.msg)
 		})
 	}
 }
 
 func TestEmpty(t *testing.T) {
 	y, err := Rotary{Dim: 4}.Apply(nil, 3, Positions{})
-	require.NoError(t, err)
-	assert.Empty(t, y)
+	ensure.NoError(t, err)
+	expect.Empty(t, y)
 	c, s, err := Rotary{Dim: 4}.Tables(nil)
-	require.NoError(t, err)
-	assert.Empty(t, c)
-	assert.Empty(t, s)
+	ensure.NoError(t, err)
+	expect.Empty(t, c)
+	expect.Empty(t, s)
 	tab, err := Sinusoidal{Dim: 4}.Table(0, 0)
-	require.NoError(t, err)
-	assert.Empty(t, tab)
+	ensure.NoError(t, err)
+	expect.Empty(t, tab)
 	b, err := ALiBiBias([]float64{0.5}, mask.Geometry{Lq: 0, Lk: 5}, mask.ALiBiCausal)
-	require.NoError(t, err)
-	assert.Empty(t, b)
+	ensure.NoError(t, err)
+	expect.Empty(t, b)
 }
 
 func TestNonFinitePropagates(t *testing.T) {
 	// NaN or Inf in one pair stays in that pair; other pairs are untouched.
 	x := []float64{math.NaN(), 1, 2, 3, math.Inf(1), 0, 5}
 	y, err := Rotary{Dim: 7, Rotated: 6}.Apply(x, 1, Positions{Offset: 3})
-	require.NoError(t, err)
-	assert.True(t, math.IsNaN(y[0]) && math.IsNaN(y[1]))
-	assert.False(t, math.IsNaN(y[2]) || math.IsNaN(y[3]))
-	assert.Equal(t, 5.0, y[6])
+	ensure.NoError(t, err)
+	expect.True(t, math.IsNaN(y[0]) && math.IsNaN(y[1]))
+	expect.False(t, math.IsNaN(y[2]) || math.IsNaN(y[3]))
+	expect.Equal(t, 5.0, y[6])
 }
 
 func TestHugeSizesAreErrors(t *testing.T) {
 	// Sizes whose product overflows int must give an error, not a panic.
 	_, err := Sinusoidal{Dim: math.MaxInt - 1}.Add(make([]float64, 4), math.MaxInt, 0)
-	assert.ErrorIs(t, err, ErrDim)
+	expect.ErrorIs(t, err, ErrDim)
 	_, err = Sinusoidal{Dim: 1 << 20}.Add(make([]float64, 4), 1<<30, 0)
-	assert.ErrorIs(t, err, ErrShape)
+	expect.ErrorIs(t, err, ErrShape)
 	_, err = Rotary{Dim: math.MaxInt}.Apply(make([]float64, 4), 1, Positions{})
-	assert.ErrorIs(t, err, ErrDim)
+	expect.ErrorIs(t, err, ErrDim)
 	_, err = Sinusoidal{Dim: 2}.Table(math.MaxInt, 0)
-	assert.ErrorIs(t, err, ErrShape)
+	expect.ErrorIs(t, err, ErrShape)
 	_, err = ALiBiBias([]float64{1, 1, 1}, mask.Geometry{Lq: math.MaxInt / 2, Lk: 3}, mask.ALiBiSymmetric)
-	assert.ErrorIs(t, err, ErrShape)
+	expect.ErrorIs(t, err, ErrShape)
 }
 
 // TestMaxElements: every result this package sizes from its arguments
@@ -631,7 +630,7 @@ func TestHugeSizesAreErrors(t *testing.T) {
 // case below would otherwise allocate from 4 GiB (the rotary tables) to
 // 2^63 bytes (the slopes) and end the program.
 func TestMaxElements(t *testing.T) {
-	require.Equal(t, 1<<28, MaxElements)
+	ensure.Equal(t, 1<<28, MaxElements)
 	tests := []struct {
 		name     string
 		call     func() error
@@ -661,8 +660,8 @@ func TestMaxElements(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			err := tc.call()
-			require.ErrorIs(t, err, tc.sentinel)
-			assert.EqualError(t, err, tc.want)
+			ensure.ErrorIs(t, err, tc.sentinel)
+			expect.EqualError(t, err, tc.want)
 		})
 	}
 }
@@ -686,7 +685,7 @@ func TestOptionNames(t *testing.T) {
 		"ratio", "dims", "Ramp(7)",
 		"causal", "symmetric", "past-only", "ALiBiForm(7)",
 	}
-	assert.Equal(t, want, got)
+	expect.Equal(t, want, got)
 }
 
 func TestOptionWords(t *testing.T) {
@@ -706,17 +705,17 @@ func TestOptionWords(t *testing.T) {
 		{Method: Interpolation}, {Method: YaRN},
 	} {
 		b, err := json.Marshal(c)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		want := fmt.Sprintf(`{"layout":%q,"pairing":%q,"method":%q,"ramp":%q}`, c.Layout, c.Pairing, c.Method, c.Ramp)
-		assert.Equal(t, want, string(b))
+		expect.Equal(t, want, string(b))
 		var back cfg
-		require.NoError(t, json.Unmarshal(b, &back))
-		assert.Equal(t, c, back)
+		ensure.NoError(t, json.Unmarshal(b, &back))
+		expect.Equal(t, c, back)
 	}
-	assert.Equal(t, []Method{NoScaling, Interpolation, NTKAware, YaRN, PerFrequency}, NoScaling.Values())
-	assert.Equal(t, []Layout{Interleaved, Concatenated}, Interleaved.Values())
-	assert.Equal(t, []Pairing{PairAdjacent, PairHalves}, PairAdjacent.Values())
-	assert.Equal(t, []Ramp{RampRatio, RampDims}, RampRatio.Values())
+	expect.Equal(t, []Method{NoScaling, Interpolation, NTKAware, YaRN, PerFrequency}, NoScaling.Values())
+	expect.Equal(t, []Layout{Interleaved, Concatenated}, Interleaved.Values())
+	expect.Equal(t, []Pairing{PairAdjacent, PairHalves}, PairAdjacent.Values())
+	expect.Equal(t, []Ramp{RampRatio, RampDims}, RampRatio.Values())
 	for _, bad := range []struct{ json, msg string }{
 		{`{"layout":"interleave"}`, `posenc: invalid option: sinusoidal layout = "interleave"; want one of interleaved, concatenated`},
 		{`{"pairing":"PairHalves"}`, `posenc: invalid option: rotary pairing = "PairHalves"; want one of adjacent, halves`},
@@ -726,14 +725,14 @@ func TestOptionWords(t *testing.T) {
 	} {
 		var c cfg
 		err := json.Unmarshal([]byte(bad.json), &c)
-		require.Error(t, err, bad.json)
-		assert.ErrorIs(t, err, ErrOption, bad.json)
-		assert.Contains(t, err.Error(), bad.msg)
-		assert.Equal(t, cfg{}, c, "a refused word leaves the value alone")
+		ensure.Error(t, err, bad.json)
+		expect.ErrorIs(t, err, ErrOption, bad.json)
+		expect.Contains(t, err.Error(), bad.msg)
+		expect.Equal(t, cfg{}, c, "a refused word leaves the value alone")
 	}
 	// Marshalling a value that has no word is refused, not written as a number.
 	_, err := json.Marshal(cfg{Method: 9})
-	assert.ErrorIs(t, err, ErrOption)
+	expect.ErrorIs(t, err, ErrOption)
 }
 
 func TestOptionErrors(t *testing.T) {
@@ -763,12 +762,12 @@ func TestOptionErrors(t *testing.T) {
 		{alibi(mask.Geometry{Lq: 1, Lk: 1}, 7), mask.ErrALiBi,
 			"posenc: invalid option: ALiBiBias: form = 7; want one of causal, symmetric, past-only"},
 	} {
-		require.Error(t, c.err, c.msg)
-		assert.ErrorIs(t, c.err, ErrOption)
+		ensure.Error(t, c.err, c.msg)
+		expect.ErrorIs(t, c.err, ErrOption)
 		if c.also != nil {
-			assert.ErrorIs(t, c.err, c.also)
+			expect.ErrorIs(t, c.err, c.also)
 		}
-		assert.Equal(t, c.msg, c.err.Error())
+		expect.Equal(t, c.msg, c.err.Error())
 	}
 }
 
@@ -784,17 +783,17 @@ func TestFloat32Yardsticks(t *testing.T) {
 		x[i] = float64(x32[i])
 	}
 	want, err := s.Add(x, 3, 999_000)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	got, err := s.Add32(x32, 3, 999_000)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for i := range want {
-		assert.InDelta(t, want[i], float64(got[i]), 2*0x1p-24*math.Max(2, math.Abs(want[i])))
+		expect.InDelta(t, want[i], float64(got[i]), 2*0x1p-24*math.Max(2, math.Abs(want[i])))
 	}
 	_, err = s.Add32(x32[:5], 3, 0)
-	assert.ErrorIs(t, err, ErrShape)
+	expect.ErrorIs(t, err, ErrShape)
 
 	slopes, err := ALiBiSlopes(12)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	sl32 := make([]float32, len(slopes))
 	for i, v := range slopes {
 		sl32[i] = float32(v)
@@ -804,14 +803,14 @@ func TestFloat32Yardsticks(t *testing.T) {
 	for _, gf := range []mask.Geometry{g, {Batch: 1, Lq: 4, Lk: 50, Align: mask.AlignStart, Offset: 20}} {
 		for _, form := range mask.ALiBiCausal.Values() {
 			b64, err := ALiBiBias(slopes, gf, form)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			b32, err := ALiBiBias32(sl32, gf, form)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for i := range b64 {
-				assert.InDelta(t, b64[i], float64(b32[i]), 2*0x1p-24*math.Abs(b64[i]), "%v %v [%d]", gf, form, i)
+				expect.InDelta(t, b64[i], float64(b32[i]), 2*0x1p-24*math.Abs(b64[i]), "%v %v [%d]", gf, form, i)
 			}
 		}
 	}
 	_, err = ALiBiBias32([]float32{float32(math.NaN())}, g, mask.ALiBiCausal)
-	assert.ErrorIs(t, err, ErrHeads)
+	expect.ErrorIs(t, err, ErrHeads)
 }

@@ -6,12 +6,11 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/posenc"
 )
@@ -110,7 +109,7 @@ func record[E float32 | float64](k Kernel[E]) *conformance.Recorder {
 // needs; no case is dropped without a word.
 func TestSkipsNameWhatIsMissing(t *testing.T) {
 	rec := record(Kernel[float64]{Forward: plumbKernel(attention.Forward), Format: compare.Float64})
-	require.False(t, rec.Failed, rec.Text())
+	ensure.False(t, rec.Failed, rec.Text())
 	var ran, skipped int
 	rec.Walk(func(r *conformance.Recorder) {
 		if len(r.Children) > 0 {
@@ -118,21 +117,21 @@ func TestSkipsNameWhatIsMissing(t *testing.T) {
 		}
 		if r.Skipped {
 			skipped++
-			require.Len(t, r.Messages, 1)
-			assert.Contains(t, r.Messages[0], "case "+r.Name[:strings.LastIndex(r.Name, "/")])
-			assert.Contains(t, r.Messages[0], "which the kernel does not declare")
+			ensure.Len(t, r.Messages, 1)
+			expect.Contains(t, r.Messages[0], "case "+r.Name[:strings.LastIndex(r.Name, "/")])
+			expect.Contains(t, r.Messages[0], "which the kernel does not declare")
 		} else {
 			ran++
 		}
 	})
 	// Without masks, Lq ≠ Lk or Dv ≠ Dk only two cases remain; the cases
 	// that rotate are posed without rotary, except those about rotary.
-	assert.Equal(t, 2, ran)
-	assert.Equal(t, len(Cases())-2, skipped)
+	expect.Equal(t, 2, ran)
+	expect.Equal(t, len(Cases())-2, skipped)
 	suite.Passed(t, rec, "full_square/heads-major")
 	suite.Skipped(t, rec, "causal_square/heads-major", "mask causal (Masks)")
-	assert.Contains(t, rec.Find("partial_rotary/heads-major/adjacent").Messages[0], "rotary (Pairings), partial rotary (PartialRotary)")
-	assert.Contains(t, rec.Find("no_keys/heads-major").Messages[0], "Lq ≠ Lk (UnequalLengths)")
+	expect.Contains(t, rec.Find("partial_rotary/heads-major/adjacent").Messages[0], "rotary (Pairings), partial rotary (PartialRotary)")
+	expect.Contains(t, rec.Find("no_keys/heads-major").Messages[0], "Lq ≠ Lk (UnequalLengths)")
 }
 
 // Each slip is a kernel that gets one convention wrong; the suite must
@@ -204,17 +203,17 @@ func TestCatchesSlips(t *testing.T) {
 				Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
 					return reference(s.slip(p), q, k, v, posenc.Rotary.Apply, attention.Forward)
 				}})
-			require.True(t, rec.Failed, "the suite passed a kernel with a slip in the %s", s.name)
+			ensure.True(t, rec.Failed, "the suite passed a kernel with a slip in the %s", s.name)
 			for _, name := range s.fails {
 				msg := suite.Failed(t, rec, name, "differs from the reference", "worst element [batch, ")
 				if want, ok := s.diagnosis[name]; ok {
 					line := suite.DiagnosisLine(t, msg)
 					if want == outside {
-						assert.True(t, strings.HasPrefix(line, "  no single change of its conventions explains it ("), msg)
-						assert.Contains(t, line, "the rotary encoding, Problem.Rotary and Supports.Pairings, is not searched)", msg)
+						expect.True(t, strings.HasPrefix(line, "  no single change of its conventions explains it ("), msg)
+						expect.Contains(t, line, "the rotary encoding, Problem.Rotary and Supports.Pairings, is not searched)", msg)
 						continue
 					}
-					assert.True(t, strings.HasPrefix(line, want), "%s: want a line starting %q in\n%s", name, want, msg)
+					expect.True(t, strings.HasPrefix(line, want), "%s: want a line starting %q in\n%s", name, want, msg)
 				}
 			}
 			for _, name := range s.pass {
@@ -229,12 +228,12 @@ func TestCatchesSlips(t *testing.T) {
 func TestCases(t *testing.T) {
 	seen := map[string]bool{}
 	for _, c := range Cases() {
-		assert.False(t, seen[c.Name], c.Name)
+		expect.False(t, seen[c.Name], c.Name)
 		seen[c.Name] = true
-		assert.NotEmpty(t, c.Why, c.Name)
+		expect.NotEmpty(t, c.Why, c.Name)
 		_, err := c.Problem.Options()
-		assert.NoError(t, err, c.Name)
-		assert.Contains(t, c.Problem.String(), fmt.Sprintf("Lq %d, Lk %d", c.Problem.Shape.Lq, c.Problem.Shape.Lk))
+		expect.NoError(t, err, c.Name)
+		expect.Contains(t, c.Problem.String(), fmt.Sprintf("Lq %d, Lk %d", c.Problem.Shape.Lq, c.Problem.Shape.Lk))
 	}
 }
 
@@ -243,26 +242,26 @@ func TestCases(t *testing.T) {
 func TestSpecialCases(t *testing.T) {
 	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float32]{})
-	assert.Equal(t, []string{"attentiontest: Kernel.Forward is nil"}, rec.Messages)
-	assert.Empty(t, rec.Children)
+	expect.Equal(t, []string{"attentiontest: Kernel.Forward is nil"}, rec.Messages)
+	expect.Empty(t, rec.Children)
 
 	rec = &conformance.Recorder{}
 	Run(rec, Kernel[float32]{Format: compare.Format(99), Forward: func(q, k, v []float32, p Problem) ([]float32, []float32, error) { return nil, nil, nil }})
-	assert.True(t, rec.Failed)
-	assert.Contains(t, rec.Messages[0], "invalid number format")
+	expect.True(t, rec.Failed)
+	expect.Contains(t, rec.Messages[0], "invalid number format")
 
 	rec = &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
 		return nil, nil, errors.New("out of shared memory")
 	}})
 	m := rec.Find("full_square/heads-major").Messages
-	require.Len(t, m, 1)
-	assert.True(t, strings.HasPrefix(m[0], "case full_square (batch 2, 4 query heads on 4 kv heads, Lq 19, Lk 19"), m[0])
-	assert.True(t, strings.HasSuffix(m[0], "): the kernel returned an error: out of shared memory"), m[0])
+	ensure.Len(t, m, 1)
+	expect.True(t, strings.HasPrefix(m[0], "case full_square (batch 2, 4 query heads on 4 kv heads, Lq 19, Lk 19"), m[0])
+	expect.True(t, strings.HasSuffix(m[0], "): the kernel returned an error: out of shared memory"), m[0])
 
 	rec = &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Format: compare.Float64, Forward: func(q, k, v []float64, p Problem) ([]float64, []float64, error) {
 		return make([]float64, 3), nil, nil
 	}})
-	assert.Contains(t, rec.Find("full_square/heads-major").Messages[0], "output has 3 elements; want 2432, shape [2 4 19 16] [batch, head, query, dim]")
+	expect.Contains(t, rec.Find("full_square/heads-major").Messages[0], "output has 3 elements; want 2432, shape [2 4 19 16] [batch, head, query, dim]")
 }

@@ -8,9 +8,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
 )
@@ -27,7 +26,7 @@ func slippedPort(t *testing.T, dir, name, op, config string, in ops.Tensors, out
 		run = ops.Run
 	}
 	got, err := run(op, []byte(config), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	g := got[out]
 	if dt == npy.Float64 {
 		writeNPY(t, filepath.Join(dir, name), npy.Float64, g.Shape, g.Data)
@@ -48,7 +47,7 @@ func section(t *testing.T, o string) string {
 	if i < 0 {
 		return ""
 	}
-	assert.NotContains(t, o[i:], "verdict:", "the section comes after the reports")
+	expect.NotContains(t, o[i:], "verdict:", "the section comes after the reports")
 	return o[i:]
 }
 
@@ -79,7 +78,7 @@ func checkCyclePort(t *testing.T, dir string, dt npy.DType) (o, s string) {
 		fixtureInputs(t, dir), "out", dt)
 	o, _ = must(t, dir, 1, attentionCheck()...)
 	s = section(t, o)
-	require.NotEmpty(t, s, o)
+	ensure.NotEmpty(t, s, o)
 	return o, s
 }
 
@@ -91,37 +90,37 @@ func checkCyclePort(t *testing.T, dir string, dt npy.DType) (o, s string) {
 func TestCheckDiagnosisGroupMap(t *testing.T) {
 	dir := attentionFixture(t)
 	o, s := checkCyclePort(t, dir, npy.Float32)
-	assert.Contains(t, o, "verdict: FAIL")
-	assert.Contains(t, s, "as configured, under the float32 yardstick: FAIL")
-	assert.Contains(t, s, "on the whole problem\n", "192 + 2·96 input values are searched whole")
-	assert.Contains(t, s, "the port passes under")
-	assert.Regexp(t, `^"group": "cycle": PASS, normwise error \S+ \(out \S+ ≤ \S+\)$`, firstListed(s))
+	expect.Contains(t, o, "verdict: FAIL")
+	expect.Contains(t, s, "as configured, under the float32 yardstick: FAIL")
+	expect.Contains(t, s, "on the whole problem\n", "192 + 2·96 input values are searched whole")
+	expect.Contains(t, s, "the port passes under")
+	expect.Regexp(t, `^"group": "cycle": PASS, normwise error \S+ \(out \S+ ≤ \S+\)$`, firstListed(s))
 	// The heads signature: the two maps agree on heads 0 and 3 alone
 	// (0/2 = 0 mod 2 = 0, 3/2 = 3 mod 2 = 1), so only they are exact.
-	assert.Contains(t, s, "error signatures of the failing outputs, on the whole problem:\n    out along heads: exact exactly at the heads h where h/2 = h mod 2 (0, 3)")
+	expect.Contains(t, s, "error signatures of the failing outputs, on the whole problem:\n    out along heads: exact exactly at the heads h where h/2 = h mod 2 (0, 3)")
 
 	o2, _ := must(t, dir, 1, attentionCheck("-no-diagnosis")...)
-	assert.Empty(t, section(t, o2))
-	assert.Equal(t, o2, o[:strings.Index(o, "\n"+diagnosisTitle)], "without the section, the reports are as they were")
+	expect.Empty(t, section(t, o2))
+	expect.Equal(t, o2, o[:strings.Index(o, "\n"+diagnosisTitle)], "without the section, the reports are as they were")
 
 	o, _ = must(t, dir, 1, attentionCheck("-json")...)
 	var j checkJSON
-	require.NoError(t, json.Unmarshal([]byte(o), &j))
-	require.Len(t, j.Outputs, 1)
-	assert.False(t, j.Outputs[0].Report.Verdict.Pass)
-	require.NotNil(t, j.Diagnosis)
-	require.NotNil(t, j.Diagnosis.Result, j.Diagnosis.Error)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &j))
+	ensure.Len(t, j.Outputs, 1)
+	expect.False(t, j.Outputs[0].Report.Verdict.Pass)
+	ensure.NotNil(t, j.Diagnosis)
+	ensure.NotNil(t, j.Diagnosis.Result, j.Diagnosis.Error)
 	d := j.Diagnosis.Result
-	assert.Equal(t, "attention-forward", d.Op)
-	assert.False(t, d.Given.Pass)
-	require.NotEmpty(t, d.Candidates)
-	assert.Equal(t, `"group": "cycle"`, d.Candidates[0].Change)
-	assert.True(t, d.Candidates[0].Measured && d.Candidates[0].Pass)
-	assert.NotEmpty(t, d.Signatures)
-	assert.Empty(t, j.Diagnosis.Note)
+	expect.Equal(t, "attention-forward", d.Op)
+	expect.False(t, d.Given.Pass)
+	ensure.NotEmpty(t, d.Candidates)
+	expect.Equal(t, `"group": "cycle"`, d.Candidates[0].Change)
+	expect.True(t, d.Candidates[0].Measured && d.Candidates[0].Pass)
+	expect.NotEmpty(t, d.Signatures)
+	expect.Empty(t, j.Diagnosis.Note)
 
 	o, _ = must(t, dir, 1, attentionCheck("-json", "-no-diagnosis")...)
-	assert.NotContains(t, o, `"diagnosis"`)
+	expect.NotContains(t, o, `"diagnosis"`)
 }
 
 // A float32 rotary port that pairs dims (i, i + d/2) where the
@@ -129,15 +128,15 @@ func TestCheckDiagnosisGroupMap(t *testing.T) {
 func TestCheckDiagnosisRotaryPairing(t *testing.T) {
 	dir := t.TempDir()
 	must(t, dir, 0, "gen", "-shape", "1,2,6,8", "-seed", "1", "x.npy")
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "r.json"), []byte(`{"version": 1, "base": 10000}`), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "r.json"), []byte(`{"version": 1, "base": 10000}`), 0o644))
 	in := ops.Tensors{"x": readNPY(t, filepath.Join(dir, "x.npy"))}
 	slippedPort(t, dir, "port.npy", "rotary-apply", `{"version": 1, "base": 10000, "pairing": "halves"}`, in, "y", npy.Float32)
 	o, _ := must(t, dir, 1, "check", "rotary-apply", "-config", "r.json", "x=x.npy", "-got", "y=port.npy")
 	s := section(t, o)
-	require.NotEmpty(t, s, o)
-	assert.Regexp(t, `^"pairing": "halves": PASS, normwise error \S+ \(y \S+ ≤ \S+\)$`, firstListed(s))
+	ensure.NotEmpty(t, s, o)
+	expect.Regexp(t, `^"pairing": "halves": PASS, normwise error \S+ \(y \S+ ≤ \S+\)$`, firstListed(s))
 	// Position 0 is not rotated (angle 0·θ = 0) whatever the pairing.
-	assert.Contains(t, s, "y along positions: exact at position 0, wrong from position 1 on")
+	expect.Contains(t, s, "y along positions: exact at position 0, wrong from position 1 on")
 }
 
 // A correct port gets no section; one that fails only tolerance flags
@@ -147,26 +146,26 @@ func TestCheckDiagnosisCorrectPort(t *testing.T) {
 	dir := attentionFixture(t)
 	slippedPort(t, dir, "port.npy", "attention-forward", causal, fixtureInputs(t, dir), "out", npy.Float32)
 	o, _ := must(t, dir, 0, attentionCheck()...)
-	assert.NotContains(t, o, diagnosisTitle)
+	expect.NotContains(t, o, diagnosisTitle)
 	o, _ = must(t, dir, 0, attentionCheck("-json")...)
-	assert.NotContains(t, o, `"diagnosis"`)
+	expect.NotContains(t, o, `"diagnosis"`)
 
 	// -abs 1e-12 is far below a float32 rounding of these values (of
 	// order 1: unit roundoff 2⁻²⁴ ≈ 6e-8), so the float32 port fails it.
 	o, _ = must(t, dir, 1, attentionCheck("-abs", "1e-12")...)
 	s := section(t, o)
-	require.NotEmpty(t, s, o)
-	assert.Contains(t, s, "as configured, under the float32 yardstick: PASS")
-	assert.Contains(t, s, "there is no change to name")
-	assert.Empty(t, firstListed(s))
+	ensure.NotEmpty(t, s, o)
+	expect.Contains(t, s, "as configured, under the float32 yardstick: PASS")
+	expect.Contains(t, s, "there is no change to name")
+	expect.Empty(t, firstListed(s))
 }
 
 // A float64 port with the other group map is searched under the float32
 // yardstick, and the section says so.
 func TestCheckDiagnosisFloat64(t *testing.T) {
 	_, s := checkCyclePort(t, attentionFixture(t), npy.Float64)
-	assert.Contains(t, s, "(the candidates are float64, which has no yardstick: they are judged by the float32 one")
-	assert.Regexp(t, `^"group": "cycle": PASS`, firstListed(s))
+	expect.Contains(t, s, "(the candidates are float64, which has no yardstick: they are judged by the float32 one")
+	expect.Regexp(t, `^"group": "cycle": PASS`, firstListed(s))
 }
 
 // A problem larger than the search's bound is searched on its first batch
@@ -175,38 +174,38 @@ func TestCheckDiagnosisFloat64(t *testing.T) {
 // diagnosisElements = 16384 keeps 4·16384/32768 = 2 of the 4 entries
 // (diagnose.Options.MaxElements).
 func TestCheckDiagnosisSubProblem(t *testing.T) {
-	require.Equal(t, 16384, diagnosisElements, "the derivation above")
+	ensure.Equal(t, 16384, diagnosisElements, "the derivation above")
 	dir := t.TempDir()
 	must(t, dir, 0, "gen", "-shape", "4,4,64,16", "-seed", "1", "q.npy")
 	must(t, dir, 0, "gen", "-shape", "4,2,64,16", "-seed", "2", "k.npy")
 	must(t, dir, 0, "gen", "-shape", "4,2,64,16", "-seed", "3", "v.npy")
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "c.json"), []byte(causal), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "c.json"), []byte(causal), 0o644))
 	_, s := checkCyclePort(t, dir, npy.Float32)
-	assert.Contains(t, s, "on a sub-problem, batch entries 0–1 of 4 (16384 of 32768 input values)\n")
-	assert.Regexp(t, `^"group": "cycle": PASS`, firstListed(s))
+	expect.Contains(t, s, "on a sub-problem, batch entries 0–1 of 4 (16384 of 32768 input values)\n")
+	expect.Regexp(t, `^"group": "cycle": PASS`, firstListed(s))
 	// The signatures are of the whole problem.
-	assert.Contains(t, s, "error signatures of the failing outputs, on the whole problem:")
+	expect.Contains(t, s, "error signatures of the failing outputs, on the whole problem:")
 }
 
 // The bounds and the title that cmd/plumb's package documentation states
 // are the code's.
 func TestDiagnosisDocumented(t *testing.T) {
 	doc, err := os.ReadFile("doc.go")
-	require.NoError(t, err)
-	assert.Contains(t, string(doc), fmt.Sprintf("(at most %d configurations, each on at most %d input values", diagnosisCandidates, diagnosisElements))
-	assert.Contains(t, string(doc), `"`+diagnosisTitle+`"`)
-	assert.Contains(t, string(doc), "-no-diagnosis")
+	ensure.NoError(t, err)
+	expect.Contains(t, string(doc), fmt.Sprintf("(at most %d configurations, each on at most %d input values", diagnosisCandidates, diagnosisElements))
+	expect.Contains(t, string(doc), `"`+diagnosisTitle+`"`)
+	expect.Contains(t, string(doc), "-no-diagnosis")
 	o, _ := must(t, t.TempDir(), 0, "help", "check")
-	assert.Contains(t, o, `"`+diagnosisTitle+`"`)
-	assert.Contains(t, o, fmt.Sprintf("most %d configurations, each on at most %d input values", diagnosisCandidates, diagnosisElements))
+	expect.Contains(t, o, `"`+diagnosisTitle+`"`)
+	expect.Contains(t, o, fmt.Sprintf("most %d configurations, each on at most %d input values", diagnosisCandidates, diagnosisElements))
 }
 
 // A search that could not run is said in the section, with its error.
 func TestWriteDiagnosisError(t *testing.T) {
 	var b strings.Builder
-	require.NoError(t, writeDiagnosis(&b, &diagnosis{Error: "ops: invalid input: example"}))
-	assert.Equal(t, diagnosisTitle+"\n  the search could not run: ops: invalid input: example\n", b.String())
+	ensure.NoError(t, writeDiagnosis(&b, &diagnosis{Error: "ops: invalid input: example"}))
+	expect.Equal(t, diagnosisTitle+"\n  the search could not run: ops: invalid input: example\n", b.String())
 	js, err := json.Marshal(&diagnosis{Error: "e"})
-	require.NoError(t, err)
-	assert.JSONEq(t, `{"error": "e"}`, string(js))
+	ensure.NoError(t, err)
+	expect.JSONEq(t, `{"error": "e"}`, string(js))
 }

@@ -5,7 +5,7 @@ import (
 	"path/filepath"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
+	"github.com/plumbref/plumb/internal/expect"
 )
 
 // plumb run -direct runs the direct forms and writes the same bytes as the
@@ -34,12 +34,12 @@ func TestDirectFlag(t *testing.T) {
 		run(form+"/grad", "attention-backward", append(in, "dout=dout.npy")...)
 	}
 	for _, f := range []string{"out.npy", "lse.npy", "grad/dq.npy", "grad/dk.npy", "grad/dv.npy"} {
-		assert.Equal(t, readFile(t, filepath.Join(dir, "fast", f)), readFile(t, filepath.Join(dir, "direct", f)), "%s: the fast and direct forms' bytes", f)
+		expect.Equal(t, readFile(t, filepath.Join(dir, "fast", f)), readFile(t, filepath.Join(dir, "direct", f)), "%s: the fast and direct forms' bytes", f)
 	}
 	// check: the float32 run of each form, the same verdict and report.
 	must(t, dir, 0, "gen", "-shape", "1,4,70,8", "-dtype", "float32", "-seed", "9", "port.npy")
 	check := append(append([]string{"attention-forward"}, in...), "-no-diagnosis", "-got", "out=port.npy")
 	fast, _ := must(t, dir, 1, append([]string{"check"}, check...)...)
 	direct, _ := must(t, dir, 1, append([]string{"check", "-direct"}, check...)...)
-	assert.Equal(t, fast, direct)
+	expect.Equal(t, fast, direct)
 }

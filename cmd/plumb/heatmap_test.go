@@ -12,10 +12,9 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/npy"
 )
 
@@ -23,10 +22,10 @@ import (
 func readPNG(t *testing.T, path string) image.Image {
 	t.Helper()
 	f, err := os.Open(path)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	defer f.Close()
 	img, err := png.Decode(f)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return img
 }
 
@@ -46,10 +45,10 @@ func cellCentre(h *heatmapInfo, r, c int) (x, y int) {
 func drawn(t *testing.T, ref, got []float64, shape []int, tol *compare.Tolerance) (*heatmapInfo, image.Image) {
 	t.Helper()
 	rep, err := compare.Diff(ref, got, shape, compare.Options{Tolerance: tol})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	path := filepath.Join(t.TempDir(), "h.png")
 	h, err := drawHeatmap(path, ref, got, shape, rep, "got.npy")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return h, readPNG(t, path)
 }
 
@@ -67,24 +66,24 @@ func TestHeatmapSliceOfLargestError(t *testing.T) {
 	ref[2*8+3], got[2*8+3] = 0.01, 0.02       // abs error 0.01, ten times its allowed 0.001
 	tol := &compare.Tolerance{Rel: 0.1}
 	rep, err := compare.Diff(ref, got, shape, compare.Options{Tolerance: tol})
-	require.NoError(t, err)
-	require.Equal(t, []int{2, 0, 3}, rep.Worst[0].Index, "the report ranks the small element first")
+	ensure.NoError(t, err)
+	ensure.Equal(t, []int{2, 0, 3}, rep.Worst[0].Index, "the report ranks the small element first")
 
 	h, img := drawn(t, ref, got, shape, tol)
-	assert.Equal(t, "[1 : :] of shape [3 2 4]", h.where)
-	assert.Equal(t, []int{1, 1, 2}, h.worstAt)
-	assert.Equal(t, 5.0, h.worstErr)
-	assert.False(t, h.pooled)
+	expect.Equal(t, "[1 : :] of shape [3 2 4]", h.where)
+	expect.Equal(t, []int{1, 1, 2}, h.worstAt)
+	expect.Equal(t, 5.0, h.worstErr)
+	expect.False(t, h.pooled)
 
 	// The cell is painted its error's colour, the others (exact) the
 	// bottom colour.
 	x, y := cellCentre(h, 0, 0)
-	assert.Equal(t, rampColour(0), rgba(img, x, y))
+	expect.Equal(t, rampColour(0), rgba(img, x, y))
 	x, y = cellCentre(h, 1, 2)
-	assert.Equal(t, rampColour(h.scale.at(5)), rgba(img, x, y))
+	expect.Equal(t, rampColour(h.scale.at(5)), rgba(img, x, y))
 	// The box round it: its colour just outside the cell's edge.
 	left := h.grid.Min.X + 2*h.cellW
-	assert.Equal(t, boxColour, rgba(img, left-2, y), "the box's left side")
+	expect.Equal(t, boxColour, rgba(img, left-2, y), "the box's left side")
 	// Nothing is boxed elsewhere on the grid.
 	box := image.Rect(left-3, y-h.cellH/2-3, left+h.cellW+3, y+h.cellH/2+3)
 	for py := h.grid.Min.Y - 4; py < h.grid.Max.Y+4; py++ {
@@ -115,10 +114,10 @@ func TestHeatmapToleranceMark(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			h, img := drawn(t, ref, got, []int{2, 3}, &tc.tol)
-			require.True(t, h.hasTol)
-			assert.InDelta(t, tc.lo, h.tlo, 1e-15)
-			assert.InDelta(t, tc.hi, h.thi, 1e-15)
-			assert.Equal(t, tc.logScale, h.scale.log)
+			ensure.True(t, h.hasTol)
+			expect.InDelta(t, tc.lo, h.tlo, 1e-15)
+			expect.InDelta(t, tc.hi, h.thi, 1e-15)
+			expect.Equal(t, tc.logScale, h.scale.log)
 			// Beside the bar, at the height of each bound, the line.
 			marks := 0
 			for y := h.bar.Min.Y; y < h.bar.Max.Y; y++ {
@@ -126,13 +125,13 @@ func TestHeatmapToleranceMark(t *testing.T) {
 					marks++
 				}
 			}
-			assert.Equal(t, tc.nMarks, marks)
+			expect.Equal(t, tc.nMarks, marks)
 			want := h.bar.Min.Y + int(math.Round((1-h.scale.at(h.thi))*float64(h.bar.Dy()-1)))
-			assert.Equal(t, tolColour, rgba(img, h.bar.Min.X-4, want))
+			expect.Equal(t, tolColour, rgba(img, h.bar.Min.X-4, want))
 			// The tolerance stays visible: neither squeezed to the bottom
 			// of the bar nor off its top.
-			assert.Greater(t, h.scale.at(h.tlo), 0.05)
-			assert.LessOrEqual(t, h.scale.at(h.thi), 1.0)
+			expect.Greater(t, h.scale.at(h.tlo), 0.05)
+			expect.LessOrEqual(t, h.scale.at(h.thi), 1.0)
 		})
 	}
 }
@@ -143,27 +142,27 @@ func TestHeatmapToleranceMark(t *testing.T) {
 func TestHeatmapScale(t *testing.T) {
 	errs := func(v ...float64) ([]float64, []bool) { return v, make([]bool, len(v)) }
 	e, m := errs(1e-3, 2e-3, 3e-3, 1.5e-3)
-	assert.False(t, pickScale(e, m, 3e-3, 2e-3, 2e-3, true).log)
+	expect.False(t, pickScale(e, m, 3e-3, 2e-3, 2e-3, true).log)
 	e, m = errs(1e-3, 2e-3, 3e-3, 1.5)
 	s := pickScale(e, m, 1.5, 2e-3, 2e-3, true)
-	require.True(t, s.log)
-	assert.Equal(t, 1e-4, s.lo, "a decade below the tolerance")
-	assert.Equal(t, 10.0, s.hi)
-	assert.InDelta(t, (math.Log10(2e-3)+4)/5, s.at(2e-3), 1e-12, "an error at the tolerance is in the bar's middle")
-	assert.Equal(t, 0.0, s.at(0), "exact cells at the bottom")
+	ensure.True(t, s.log)
+	expect.Equal(t, 1e-4, s.lo, "a decade below the tolerance")
+	expect.Equal(t, 10.0, s.hi)
+	expect.InDelta(t, (math.Log10(2e-3)+4)/5, s.at(2e-3), 1e-12, "an error at the tolerance is in the bar's middle")
+	expect.Equal(t, 0.0, s.at(0), "exact cells at the bottom")
 	// Without a tolerance, by the errors alone.
 	e, m = errs(1e-9, 2e-9, 1e-9, 1)
-	assert.True(t, pickScale(e, m, 1, 0, 0, false).log)
+	expect.True(t, pickScale(e, m, 1, 0, 0, false).log)
 	e, m = errs(0.5, 0.7, 0.2, 1)
 	s = pickScale(e, m, 1, 0, 0, false)
-	assert.False(t, s.log)
-	assert.InDeltaSlice(t, []float64{0, 0.2, 0.4, 0.6, 0.8, 1}, s.ticks(), 1e-15)
+	expect.False(t, s.log)
+	expect.InDeltaSlice(t, []float64{0, 0.2, 0.4, 0.6, 0.8, 1}, s.ticks(), 1e-15)
 	// All exact: a linear bar from 0 to 1.
 	e, m = errs(0, 0)
-	assert.Equal(t, colourScale{hi: 1}, pickScale(e, m, 0, 0, 0, false))
+	expect.Equal(t, colourScale{hi: 1}, pickScale(e, m, 0, 0, 0, false))
 	// Many decades are labelled every few.
 	s = colourScale{log: true, lo: 1e-16, hi: 1}
-	assert.Equal(t, []float64{1, 1e-3, 1e-6, 1e-9, 1e-12, 1e-15}, s.ticks())
+	expect.Equal(t, []float64{1, 1e-3, 1e-6, 1e-9, 1e-12, 1e-15}, s.ticks())
 }
 
 // A NaN where the reference has a number is the largest error: its slice
@@ -173,21 +172,21 @@ func TestHeatmapNaN(t *testing.T) {
 	ref := []float64{1, 2, math.NaN(), 4, 5, 6, 1, 1, 1, 1, 1, 1}
 	got := []float64{1, 2, math.NaN(), 4.5, 5, 6, 1, 1, math.NaN(), 1, 1, 1}
 	h, img := drawn(t, ref, got, []int{2, 2, 3}, nil)
-	assert.Equal(t, "[1 : :] of shape [2 2 3]", h.where)
-	assert.True(t, h.mismatch)
-	assert.Equal(t, []int{1, 0, 2}, h.worstAt)
-	assert.Equal(t, 1, h.mismatches)
+	expect.Equal(t, "[1 : :] of shape [2 2 3]", h.where)
+	expect.True(t, h.mismatch)
+	expect.Equal(t, []int{1, 0, 2}, h.worstAt)
+	expect.Equal(t, 1, h.mismatches)
 	x, y := cellCentre(h, 0, 2)
-	assert.Equal(t, mismatchColour, rgba(img, x, y))
+	expect.Equal(t, mismatchColour, rgba(img, x, y))
 
 	s, err := sliceOf(ref, got, []int{2, 2, 3})
-	require.NoError(t, err)
-	assert.Equal(t, []int{1}, s.lead)
-	assert.Equal(t, []float64{0, 0, math.Inf(1), 0, 0, 0}, s.err)
+	ensure.NoError(t, err)
+	expect.Equal(t, []int{1}, s.lead)
+	expect.Equal(t, []float64{0, 0, math.Inf(1), 0, 0, 0}, s.err)
 	s, err = sliceOf(ref[:6], got[:6], []int{2, 3})
-	require.NoError(t, err)
-	assert.Equal(t, []float64{0, 0, 0, 0.5, 0, 0}, s.err, "NaN against NaN matches")
-	assert.Nil(t, s.lead)
+	ensure.NoError(t, err)
+	expect.Equal(t, []float64{0, 0, 0, 0.5, 0, 0}, s.err, "NaN against NaN matches")
+	expect.Nil(t, s.lead)
 }
 
 // A slice larger than the picture is pooled: each drawn cell shows the
@@ -202,30 +201,30 @@ func TestHeatmapPooled(t *testing.T) {
 	}
 	got[777*cols+1234] = 0.5
 	h, img := drawn(t, ref, got, []int{rows, cols}, &compare.Tolerance{Abs: 1e-3})
-	require.True(t, h.pooled)
-	assert.LessOrEqual(t, img.Bounds().Dx(), 1200)
-	assert.LessOrEqual(t, img.Bounds().Dy(), 900)
-	assert.Equal(t, []int{777, 1234}, h.worstAt)
+	ensure.True(t, h.pooled)
+	expect.LessOrEqual(t, img.Bounds().Dx(), 1200)
+	expect.LessOrEqual(t, img.Bounds().Dy(), 900)
+	expect.Equal(t, []int{777, 1234}, h.worstAt)
 	pr, pc := 777*h.gridRows/rows, 1234*h.gridCols/cols
 	x := h.grid.Min.X + pc*h.cellW + h.cellW/2
 	y := h.grid.Min.Y + pr*h.cellH + h.cellH/2
-	assert.Equal(t, rampColour(h.scale.at(0.5)), rgba(img, x, y))
-	assert.Contains(t, h.String(), "each of 560 × 720 cells shows the largest error of the elements it covers")
+	expect.Equal(t, rampColour(h.scale.at(0.5)), rgba(img, x, y))
+	expect.Contains(t, h.String(), "each of 560 × 720 cells shows the largest error of the elements it covers")
 }
 
 // Rank 0 and 1 tensors are drawn as one row; the picture keeps a readable
 // size.
 func TestHeatmapSmallRanks(t *testing.T) {
 	h, img := drawn(t, []float64{2}, []float64{2.5}, []int{}, nil)
-	assert.Equal(t, "the whole tensor, shape []", h.where)
-	assert.Equal(t, []int{}, h.worstAt)
-	assert.GreaterOrEqual(t, h.grid.Dx(), minPlot)
-	assert.Greater(t, img.Bounds().Dx(), 300)
+	expect.Equal(t, "the whole tensor, shape []", h.where)
+	expect.Equal(t, []int{}, h.worstAt)
+	expect.GreaterOrEqual(t, h.grid.Dx(), minPlot)
+	expect.Greater(t, img.Bounds().Dx(), 300)
 
 	h, _ = drawn(t, []float64{1, 2, 3}, []float64{1, 2, 3}, []int{3}, nil)
-	assert.True(t, h.exact, "every pair matches")
-	assert.Contains(t, h.String(), "every pair matches")
-	assert.GreaterOrEqual(t, h.grid.Dy(), minPlot)
+	expect.True(t, h.exact, "every pair matches")
+	expect.Contains(t, h.String(), "every pair matches")
+	expect.GreaterOrEqual(t, h.grid.Dy(), minPlot)
 }
 
 // Bad input is an error naming the file, never a panic.
@@ -246,15 +245,15 @@ func TestHeatmapErrors(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := drawHeatmap(p, tc.ref, tc.got, tc.shape, nil, "c")
-			require.Error(t, err)
-			assert.Contains(t, err.Error(), p+": ")
-			assert.Contains(t, err.Error(), tc.says)
+			ensure.Error(t, err)
+			expect.Contains(t, err.Error(), p+": ")
+			expect.Contains(t, err.Error(), tc.says)
 		})
 	}
 	_, err := drawHeatmap(dir, []float64{1}, []float64{2}, nil, nil, "c")
-	assert.ErrorContains(t, err, "is a directory")
+	expect.ErrorContains(t, err, "is a directory")
 	_, err = os.Stat(p)
-	assert.True(t, os.IsNotExist(err), "no picture is left behind")
+	expect.True(t, os.IsNotExist(err), "no picture is left behind")
 }
 
 // Every glyph of the font is 7 rows of 5 dots, has ink (but the space),
@@ -264,15 +263,15 @@ func TestHeatmapFont(t *testing.T) {
 	seen := map[glyph]rune{}
 	for r, rows := range glyphRows {
 		lines := strings.Fields(rows)
-		require.Len(t, lines, glyphH, "%q", r)
+		ensure.Len(t, lines, glyphH, "%q", r)
 		for _, l := range lines {
-			require.Len(t, l, glyphW, "%q", r)
-			require.Equal(t, "", strings.Trim(l, ".#"), "%q", r)
+			ensure.Len(t, l, glyphW, "%q", r)
+			ensure.Equal(t, "", strings.Trim(l, ".#"), "%q", r)
 		}
 		g, ok := font[r]
-		require.True(t, ok, "%q", r)
+		ensure.True(t, ok, "%q", r)
 		if r != ' ' {
-			assert.NotEqual(t, glyph{}, g, "%q has no ink", r)
+			expect.NotEqual(t, glyph{}, g, "%q has no ink", r)
 		}
 		if o, dup := seen[g]; dup {
 			t.Errorf("%q and %q are drawn alike", r, o)
@@ -280,10 +279,10 @@ func TestHeatmapFont(t *testing.T) {
 		seen[g] = r
 	}
 	for _, r := range "abcdefghijklmnopqrstuvwxyz" {
-		assert.Equal(t, font[r-'a'+'A'], glyphOf(r))
+		expect.Equal(t, font[r-'a'+'A'], glyphOf(r))
 	}
-	assert.Equal(t, font['-'], glyphOf('−'))
-	assert.Equal(t, font['?'], glyphOf('€'))
+	expect.Equal(t, font['-'], glyphOf('−'))
+	expect.Equal(t, font['?'], glyphOf('€'))
 	// What the picture writes: every rune is in the font.
 	for _, s := range []string{
 		"ABSOLUTE ERROR |GOT - REF| OVER [0 2 : :] OF SHAPE [1 8 6 8]", "CANDIDATE port_out.npy",
@@ -292,7 +291,7 @@ func TestHeatmapFont(t *testing.T) {
 	} {
 		for _, r := range strings.ToUpper(s) {
 			_, ok := font[r]
-			assert.True(t, ok, "%q of %q", r, s)
+			expect.True(t, ok, "%q of %q", r, s)
 		}
 	}
 	// Text is drawn: "0" and "O" differ on the picture.
@@ -300,13 +299,13 @@ func TestHeatmapFont(t *testing.T) {
 	b := image.NewRGBA(image.Rect(0, 0, 20, 20))
 	drawText(a, 0, 0, "0", inkColour)
 	drawText(b, 0, 0, "O", inkColour)
-	assert.NotEqual(t, a.Pix, b.Pix)
-	assert.Equal(t, 2*charW-fontScale, textWidth("ab"))
+	expect.NotEqual(t, a.Pix, b.Pix)
+	expect.Equal(t, 2*charW-fontScale, textWidth("ab"))
 }
 
 func TestNumLabel(t *testing.T) {
 	for x, want := range map[float64]string{0: "0", 1: "1", 0.25: "0.25", 1e-5: "1E-5", 2500: "2.5E3", 1e100: "1E100", -3e-7: "-3E-7", 10: "10"} {
-		assert.Equal(t, want, numLabel(x, 2), "%g", x)
+		expect.Equal(t, want, numLabel(x, 2), "%g", x)
 	}
 }
 
@@ -321,32 +320,32 @@ func TestDiffHeatmap(t *testing.T) {
 	bad[2*6*8+4*8+1] -= 0.5
 	writeNPY(t, filepath.Join(dir, "bad.npy"), npy.Float64, ref.Shape, bad)
 	o, e := must(t, dir, 1, "diff", "-json", "-heatmap", "h.png", "out.npy", "bad.npy")
-	assert.True(t, json.Valid([]byte(o)), o)
-	assert.Contains(t, e, "heatmap h.png: |got − ref| over [0 2 : :] of shape [1 4 6 8], the slice holding the largest absolute error")
-	assert.Contains(t, e, "0.5 at [0 2 4 1] (boxed)")
+	expect.True(t, json.Valid([]byte(o)), o)
+	expect.Contains(t, e, "heatmap h.png: |got − ref| over [0 2 : :] of shape [1 4 6 8], the slice holding the largest absolute error")
+	expect.Contains(t, e, "0.5 at [0 2 4 1] (boxed)")
 	img := readPNG(t, filepath.Join(dir, "h.png"))
-	assert.Greater(t, img.Bounds().Dx(), 500)
+	expect.Greater(t, img.Bounds().Dx(), 500)
 
 	// The picture is the one drawHeatmap draws.
 	tol := defaultTolerance(compare.Float64, ref.Data)
 	rep, err := compare.Diff(ref.Data, bad, ref.Shape, compare.Options{Tolerance: &tol})
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var notes bytes.Buffer
 	heatmapNotes = &notes
 	defer func() { heatmapNotes = os.Stderr }()
-	require.NoError(t, writeHeatmap(filepath.Join(dir, "h2.png"), ref.Data, bad, ref.Shape, rep, "bad.npy"))
-	assert.Contains(t, notes.String(), "over [0 2 : :] of shape [1 4 6 8]")
+	ensure.NoError(t, writeHeatmap(filepath.Join(dir, "h2.png"), ref.Data, bad, ref.Shape, rep, "bad.npy"))
+	expect.Contains(t, notes.String(), "over [0 2 : :] of shape [1 4 6 8]")
 	b1, err := os.ReadFile(filepath.Join(dir, "h.png"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	b2, err := os.ReadFile(filepath.Join(dir, "h2.png"))
-	require.NoError(t, err)
-	assert.Equal(t, b1, b2)
+	ensure.NoError(t, err)
+	expect.Equal(t, b1, b2)
 }
 
 // plumb help diff describes the picture.
 func TestHelpDescribesHeatmap(t *testing.T) {
 	o, _ := must(t, t.TempDir(), 0, "help", "diff")
-	assert.Equal(t, 1, strings.Count(o, "The -heatmap picture"))
-	assert.Contains(t, o, "holds the largest absolute error")
-	assert.Contains(t, o, "the tolerance\nis marked on the colour bar")
+	expect.Equal(t, 1, strings.Count(o, "The -heatmap picture"))
+	expect.Contains(t, o, "holds the largest absolute error")
+	expect.Contains(t, o, "the tolerance\nis marked on the colour bar")
 }

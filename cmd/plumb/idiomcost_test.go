@@ -10,10 +10,9 @@ import (
 	"testing"
 	"unicode/utf8"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/npy"
 )
 
@@ -54,34 +53,34 @@ func TestCheckIdiomCost(t *testing.T) {
 		x32[i] = float32(v)
 	}
 	writeNPY(t, filepath.Join(dir, "port.npy"), npy.Float32, x.Shape, rotaryAngles32(x32, l, d))
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "plain.json"), []byte(`{"version": 1}`), 0o644))
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "idiom.json"), []byte(`{"version": 1, "angles": "float32-angles"}`), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "plain.json"), []byte(`{"version": 1}`), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "idiom.json"), []byte(`{"version": 1, "angles": "float32-angles"}`), 0o644))
 	check := func(want int, config string, extra ...string) string {
 		o, _ := must(t, dir, want, append([]string{"check", "rotary-apply", "-config", config, "x=x.npy", "-got", "y=port.npy"}, extra...)...)
 		return o
 	}
 
 	o := check(1, "plain.json", "-no-diagnosis")
-	assert.Contains(t, o, "verdict: FAIL")
-	assert.NotContains(t, o, idiomCostTitle, "no idiom declared, no cost")
+	expect.Contains(t, o, "verdict: FAIL")
+	expect.NotContains(t, o, idiomCostTitle, "no idiom declared, no cost")
 	o = check(1, "plain.json", "-no-diagnosis", "-json")
-	assert.NotContains(t, o, `"idiom_cost"`)
+	expect.NotContains(t, o, `"idiom_cost"`)
 
 	o = check(0, "idiom.json")
-	assert.Contains(t, o, "verdict: PASS")
+	expect.Contains(t, o, "verdict: PASS")
 	i := strings.Index(o, idiomCostTitle)
-	require.GreaterOrEqual(t, i, 0, o)
+	ensure.GreaterOrEqual(t, i, 0, o)
 	block := strings.TrimRight(o[i:], "\n")
-	assert.NotContains(t, block, "verdict:", "the block comes after the report")
+	expect.NotContains(t, block, "verdict:", "the block comes after the report")
 	lines := strings.Split(block, "\n")
-	require.Len(t, lines, 4, block)
+	ensure.Len(t, lines, 4, block)
 	for _, line := range lines {
-		assert.LessOrEqual(t, utf8.RuneCountInString(line), 100, "%q", line)
+		expect.LessOrEqual(t, utf8.RuneCountInString(line), 100, "%q", line)
 	}
-	assert.Equal(t, idiomCostTitle+" (angles = float32-angles)", lines[0])
-	assert.Equal(t, "  against the plain float32 run (the configuration without it), under the float32 yardstick:", lines[1])
-	assert.Regexp(t, `^    y: normwise \S+ \(plain \S+, ×\S+\), max abs \S+ \(plain \S+\)$`, lines[2])
-	assert.Regexp(t, `^      max abs at position 0: \S+ \(plain \S+\), at position 2047: \S+ \(plain \S+\)$`, lines[3])
+	expect.Equal(t, idiomCostTitle+" (angles = float32-angles)", lines[0])
+	expect.Equal(t, "  against the plain float32 run (the configuration without it), under the float32 yardstick:", lines[1])
+	expect.Regexp(t, `^    y: normwise \S+ \(plain \S+, ×\S+\), max abs \S+ \(plain \S+\)$`, lines[2])
+	expect.Regexp(t, `^      max abs at position 0: \S+ \(plain \S+\), at position 2047: \S+ \(plain \S+\)$`, lines[3])
 	t.Logf("\n%s", block)
 
 	o = check(0, "idiom.json", "-json")
@@ -89,29 +88,29 @@ func TestCheckIdiomCost(t *testing.T) {
 		Pass      bool
 		IdiomCost *idiomCost `json:"idiom_cost"`
 	}
-	require.NoError(t, json.Unmarshal([]byte(o), &j))
-	assert.True(t, j.Pass)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &j))
+	expect.True(t, j.Pass)
 	c := j.IdiomCost
-	require.NotNil(t, c, o)
-	require.NotNil(t, c.IdiomCost, c.Error)
-	assert.Equal(t, compare.Float32, c.Format)
-	assert.Empty(t, c.Note)
-	assert.Equal(t, "angles = float32-angles", c.Keys)
-	assert.False(t, c.SubProblem, "measured on the check's own inputs")
-	require.Len(t, c.Outputs, 1)
+	ensure.NotNil(t, c, o)
+	ensure.NotNil(t, c.IdiomCost, c.Error)
+	expect.Equal(t, compare.Float32, c.Format)
+	expect.Empty(t, c.Note)
+	expect.Equal(t, "angles = float32-angles", c.Keys)
+	expect.False(t, c.SubProblem, "measured on the check's own inputs")
+	ensure.Len(t, c.Outputs, 1)
 	y := c.Outputs[0]
-	assert.Equal(t, "y", y.Output)
-	assert.Greater(t, float64(y.Ratio), 20.0, "the idiom costs many times the plain float32 run's error")
-	assert.InDelta(t, float64(y.Normwise)/float64(y.PlainNormwise), float64(y.Ratio), 1e-9*float64(y.Ratio))
-	assert.Greater(t, float64(y.MaxAbs), float64(y.PlainMaxAbs))
-	require.Len(t, y.Positions, 2)
-	assert.Equal(t, 0, y.Positions[0].Position)
-	assert.Equal(t, l-1, y.Positions[1].Position)
-	assert.Greater(t, float64(y.Positions[1].MaxAbs), 100*float64(y.Positions[1].PlainMaxAbs), "the angle error grows with the position")
-	assert.Greater(t, float64(y.Positions[1].MaxAbs), 10*float64(y.Positions[0].MaxAbs))
+	expect.Equal(t, "y", y.Output)
+	expect.Greater(t, float64(y.Ratio), 20.0, "the idiom costs many times the plain float32 run's error")
+	expect.InDelta(t, float64(y.Normwise)/float64(y.PlainNormwise), float64(y.Ratio), 1e-9*float64(y.Ratio))
+	expect.Greater(t, float64(y.MaxAbs), float64(y.PlainMaxAbs))
+	ensure.Len(t, y.Positions, 2)
+	expect.Equal(t, 0, y.Positions[0].Position)
+	expect.Equal(t, l-1, y.Positions[1].Position)
+	expect.Greater(t, float64(y.Positions[1].MaxAbs), 100*float64(y.Positions[1].PlainMaxAbs), "the angle error grows with the position")
+	expect.Greater(t, float64(y.Positions[1].MaxAbs), 10*float64(y.Positions[0].MaxAbs))
 	// The text shows these numbers.
-	assert.Contains(t, lines[2], "normwise "+g3(float64(y.Normwise))+" (plain "+g3(float64(y.PlainNormwise))+", ×"+g3(float64(y.Ratio))+")")
-	assert.Contains(t, lines[3], "at position 2047: "+g3(float64(y.Positions[1].MaxAbs))+" (plain "+g3(float64(y.Positions[1].PlainMaxAbs))+")")
+	expect.Contains(t, lines[2], "normwise "+g3(float64(y.Normwise))+" (plain "+g3(float64(y.PlainNormwise))+", ×"+g3(float64(y.Ratio))+")")
+	expect.Contains(t, lines[3], "at position 2047: "+g3(float64(y.Positions[1].MaxAbs))+" (plain "+g3(float64(y.Positions[1].PlainMaxAbs))+")")
 
 	// The same port written in float64, which has no yardstick: the cost
 	// is measured under the float32 one, and the block says so; so it does
@@ -122,24 +121,24 @@ func TestCheckIdiomCost(t *testing.T) {
 	}
 	writeNPY(t, filepath.Join(dir, "port64.npy"), npy.Float64, x.Shape, y64)
 	o, _ = must(t, dir, 1, "check", "rotary-apply", "-config", "idiom.json", "x=x.npy", "-got", "y=port64.npy", "-no-diagnosis")
-	assert.Contains(t, o, idiomCostTitle+" (angles = float32-angles)\n  (the candidates are float64, which has no yardstick: the cost is measured under the float32 one)\n")
-	assert.Contains(t, o, lines[2]+"\n"+lines[3]+"\n", "the same cost")
+	expect.Contains(t, o, idiomCostTitle+" (angles = float32-angles)\n  (the candidates are float64, which has no yardstick: the cost is measured under the float32 one)\n")
+	expect.Contains(t, o, lines[2]+"\n"+lines[3]+"\n", "the same cost")
 	o = check(0, "idiom.json", "-abs", "1e-3")
-	assert.Contains(t, o, "  (the tolerance flags judged the candidates, not the idiom's yardstick)\n")
+	expect.Contains(t, o, "  (the tolerance flags judged the candidates, not the idiom's yardstick)\n")
 
 	o, _ = must(t, dir, 0, "help", "check")
-	assert.Contains(t, o, `"`+idiomCostTitle+`"`)
-	assert.Contains(t, o, `"idiom_cost"`)
+	expect.Contains(t, o, `"`+idiomCostTitle+`"`)
+	expect.Contains(t, o, `"idiom_cost"`)
 }
 
 // A cost that could not be measured is said in the block, with its error.
 func TestWriteIdiomCostError(t *testing.T) {
 	var b strings.Builder
-	require.NoError(t, writeIdiomCost(&b, &idiomCost{Format: compare.Float32, Error: "ops: invalid input: example"}))
-	assert.Equal(t, idiomCostTitle+"\n  the cost could not be measured: ops: invalid input: example\n", b.String())
+	ensure.NoError(t, writeIdiomCost(&b, &idiomCost{Format: compare.Float32, Error: "ops: invalid input: example"}))
+	expect.Equal(t, idiomCostTitle+"\n  the cost could not be measured: ops: invalid input: example\n", b.String())
 	js, err := json.Marshal(&idiomCost{Format: compare.Float32, Error: "e"})
-	require.NoError(t, err)
-	assert.JSONEq(t, `{"format": "float32", "error": "e"}`, string(js))
+	ensure.NoError(t, err)
+	expect.JSONEq(t, `{"format": "float32", "error": "e"}`, string(js))
 }
 
 func g3(x float64) string { return fmt.Sprintf("%.3g", x) }

@@ -13,9 +13,8 @@ import (
 	"testing"
 	"time"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
 )
@@ -53,7 +52,7 @@ func cliIn(t *testing.T, dir string, stdin any, args ...string) (stderr string, 
 		cmd.Stdin = bytes.NewReader(s)
 	}
 	_, stderr, code = runCmd(t, cmd, dir, args)
-	require.NoError(t, ctx.Err(), "plumb %v did not end within a minute", args)
+	ensure.NoError(t, ctx.Err(), "plumb %v did not end within a minute", args)
 	return stderr, code
 }
 
@@ -66,41 +65,41 @@ func TestConfigIsBounded(t *testing.T) {
 	tooLarge := fmt.Sprintf("has more than ops.MaxConfigBytes = %d bytes; want one JSON object of at most %[1]d bytes", ops.MaxConfigBytes)
 	// The command's documentation states the limit as 1 MiB.
 	doc, err := os.ReadFile("doc.go")
-	require.NoError(t, err)
-	assert.Contains(t, string(doc), "ops.MaxConfigBytes (1 MiB)")
-	assert.Equal(t, 1<<20, ops.MaxConfigBytes, "doc.go says 1 MiB")
+	ensure.NoError(t, err)
+	expect.Contains(t, string(doc), "ops.MaxConfigBytes (1 MiB)")
+	expect.Equal(t, 1<<20, ops.MaxConfigBytes, "doc.go says 1 MiB")
 
 	// Exactly MaxConfigBytes: read whole and given to the ops package.
 	exact := relu + strings.Repeat(" ", ops.MaxConfigBytes-len(relu))
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "exact.json"), []byte(exact), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "exact.json"), []byte(exact), 0o644))
 	must(t, dir, 0, "run", "activation", "-config", "exact.json", "x=x.npy")
 
 	// One byte more: refused, naming the file and the limit.
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "big.json"), []byte(exact+" "), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "big.json"), []byte(exact+" "), 0o644))
 	_, e := must(t, dir, 2, "run", "activation", "-config", "big.json", "x=x.npy")
-	assert.Contains(t, e, "plumb run: configuration big.json "+tooLarge)
+	expect.Contains(t, e, "plumb run: configuration big.json "+tooLarge)
 
 	// Streams that never end: standard input and /dev/zero.
 	needStdin(t)
 	e, code := cliIn(t, dir, endless{}, "run", "activation", "-config", "/dev/stdin", "x=x.npy")
-	assert.Equal(t, 2, code, e)
-	assert.Contains(t, e, "configuration /dev/stdin "+tooLarge)
+	expect.Equal(t, 2, code, e)
+	expect.Contains(t, e, "configuration /dev/stdin "+tooLarge)
 	if _, err := os.Stat("/dev/zero"); err == nil {
 		e, code = cliIn(t, dir, nil, "check", "activation", "-config", "/dev/zero", "x=x.npy", "-got", "y=x.npy")
-		assert.Equal(t, 2, code, e)
-		assert.Contains(t, e, "configuration /dev/zero "+tooLarge)
+		expect.Equal(t, 2, code, e)
+		expect.Contains(t, e, "configuration /dev/zero "+tooLarge)
 	}
 	// A configuration on standard input that ends is read as a file.
 	e, code = cliIn(t, dir, []byte(relu), "run", "-out", "fromstdin", "activation", "-config", "/dev/stdin", "x=x.npy")
-	assert.Equal(t, 0, code, e)
+	expect.Equal(t, 0, code, e)
 }
 
 // An empty configuration file is an error that shows the smallest
 // configuration; no -config at all still means {"version": 1}.
 func TestEmptyConfig(t *testing.T) {
 	dir := attentionFixture(t)
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "empty.json"), nil, 0o644))
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "blank.json"), []byte(" \n\t\n"), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "empty.json"), nil, 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "blank.json"), []byte(" \n\t\n"), 0o644))
 	for _, c := range []struct{ file, says string }{
 		{"empty.json", "configuration empty.json is empty; "},
 		{"blank.json", "configuration blank.json holds only white space (4 bytes); "},
@@ -110,7 +109,7 @@ func TestEmptyConfig(t *testing.T) {
 			{"check", "attention-forward", "-config", c.file, "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=q.npy"},
 		} {
 			_, e := must(t, dir, 2, cmd...)
-			assert.Contains(t, e, "plumb "+cmd[0]+": "+c.says+`want a JSON object, at least {"version":1}`)
+			expect.Contains(t, e, "plumb "+cmd[0]+": "+c.says+`want a JSON object, at least {"version":1}`)
 		}
 	}
 	must(t, dir, 0, "run", "attention-forward", "q=q.npy", "k=k.npy", "v=v.npy")
@@ -171,17 +170,17 @@ func TestNPYHeaderBounds(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			file := strings.ReplaceAll(c.name, " ", "_") + ".npy"
-			require.NoError(t, os.WriteFile(filepath.Join(dir, file), c.data, 0o644))
+			ensure.NoError(t, os.WriteFile(filepath.Join(dir, file), c.data, 0o644))
 			_, e := must(t, dir, 2, "diff", file, "x.npy")
-			assert.Contains(t, e, "plumb diff: "+file+": npy: ")
-			assert.Contains(t, e, c.says)
+			expect.Contains(t, e, "plumb diff: "+file+": npy: ")
+			expect.Contains(t, e, c.says)
 			_, e = must(t, dir, 2, "run", "activation", "x="+file)
-			assert.Contains(t, e, c.says)
+			expect.Contains(t, e, c.says)
 			// From a stream, whose length the reader cannot know in advance.
 			e, code := cliIn(t, dir, c.data, "diff", "/dev/stdin", "x.npy")
-			assert.Equal(t, 2, code, e)
-			assert.Contains(t, e, "plumb diff: /dev/stdin: npy: ")
-			assert.Contains(t, e, c.says)
+			expect.Equal(t, 2, code, e)
+			expect.Contains(t, e, "plumb diff: /dev/stdin: npy: ")
+			expect.Contains(t, e, c.says)
 		})
 	}
 }
@@ -209,9 +208,9 @@ func TestNonFiniteInputs(t *testing.T) {
 	} {
 		writeNPY(t, filepath.Join(dir, "pinfw.npy"), npy.Float64, []int{3}, []float64{1, 1, math.Inf(1)})
 		e, code := cliIn(t, dir, []byte(`{"version": 1, "epsilon": 1e-5}`), c.args...)
-		assert.Equal(t, 2, code, "plumb %v: %s", c.args, e)
-		assert.Contains(t, e, c.says)
-		assert.NoFileExists(t, filepath.Join(dir, "y.npy"), "nothing is written")
+		expect.Equal(t, 2, code, "plumb %v: %s", c.args, e)
+		expect.Contains(t, e, c.says)
+		expect.NoFileExists(t, filepath.Join(dir, "y.npy"), "nothing is written")
 	}
 
 	// With -allow-nonfinite the reference computes: softmax of a row with
@@ -220,15 +219,15 @@ func TestNonFiniteInputs(t *testing.T) {
 	must(t, dir, 0, "run", "-allow-nonfinite", "-out", "inf", "softmax", "x=pinf.npy")
 	y := readNPY(t, filepath.Join(dir, "inf", "y.npy"))
 	for i, v := range y.Data {
-		assert.Equal(t, i >= 3, math.IsNaN(v), "element %d = %v", i, v)
+		expect.Equal(t, i >= 3, math.IsNaN(v), "element %d = %v", i, v)
 	}
 	// and a candidate with the same NaN row passes check, while diff of
 	// that output against a finite one fails on the NaN mismatches.
 	o, _ := must(t, dir, 0, "check", "-allow-nonfinite", "softmax", "x=pinf.npy", "-got", "y="+filepath.Join("inf", "y.npy"))
-	assert.Contains(t, o, "verdict: PASS")
+	expect.Contains(t, o, "verdict: PASS")
 	must(t, dir, 0, "run", "-out", "fin", "softmax", "x=x.npy")
 	o, _ = must(t, dir, 1, "diff", filepath.Join("fin", "y.npy"), filepath.Join("inf", "y.npy"))
-	assert.Contains(t, o, "3 NaN and 0 Inf mismatches")
+	expect.Contains(t, o, "3 NaN and 0 Inf mismatches")
 
 	// The help of each command says how it treats them.
 	for _, c := range []struct{ cmd, says string }{
@@ -237,6 +236,6 @@ func TestNonFiniteInputs(t *testing.T) {
 		{"diff", "NaN and ±Inf in either file are compared, never refused"},
 	} {
 		h, _ := must(t, dir, 0, "help", c.cmd)
-		assert.Contains(t, strings.Join(strings.Fields(h), " "), c.says, "plumb help %s", c.cmd)
+		expect.Contains(t, strings.Join(strings.Fields(h), " "), c.says, "plumb help %s", c.cmd)
 	}
 }

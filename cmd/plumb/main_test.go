@@ -15,11 +15,10 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/gen"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
@@ -75,23 +74,23 @@ func runCmd(t *testing.T, cmd *exec.Cmd, dir string, args []string) (stdout, std
 func must(t *testing.T, dir string, want int, args ...string) (stdout, stderr string) {
 	t.Helper()
 	o, e, code := cli(t, dir, args...)
-	require.Equal(t, want, code, "plumb %v\nstdout:\n%s\nstderr:\n%s", args, o, e)
+	ensure.Equal(t, want, code, "plumb %v\nstdout:\n%s\nstderr:\n%s", args, o, e)
 	return o, e
 }
 
 func writeNPY(t *testing.T, path string, dt npy.DType, shape []int, values any) {
 	t.Helper()
 	a, err := npy.New(dt, shape, values)
-	require.NoError(t, err)
-	require.NoError(t, npy.WriteFile(path, a))
+	ensure.NoError(t, err)
+	ensure.NoError(t, npy.WriteFile(path, a))
 }
 
 func readNPY(t *testing.T, path string) ops.Tensor {
 	t.Helper()
 	a, err := npy.ReadFile(path)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	x, err := a.Float64s()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return ops.Tensor{Shape: a.Shape, Data: x}
 }
 
@@ -102,7 +101,7 @@ func attentionFixture(t *testing.T) string {
 	must(t, dir, 0, "gen", "-shape", "1,4,6,8", "-seed", "1", "q.npy")
 	must(t, dir, 0, "gen", "-shape", "1,2,6,8", "-seed", "2", "k.npy")
 	must(t, dir, 0, "gen", "-shape", "1,2,6,8", "-seed", "3", "v.npy")
-	require.NoError(t, os.WriteFile(filepath.Join(dir, "c.json"), []byte(`{"version": 1, "mask": [{"kind": "causal"}]}`), 0o644))
+	ensure.NoError(t, os.WriteFile(filepath.Join(dir, "c.json"), []byte(`{"version": 1, "mask": [{"kind": "causal"}]}`), 0o644))
 	return dir
 }
 
@@ -115,22 +114,22 @@ const causal = `{"version": 1, "mask": [{"kind": "causal"}]}`
 func TestGenFirstValues(t *testing.T) {
 	dir := t.TempDir()
 	o, e := must(t, dir, 0, "gen", "-shape", "3", "-dist", "uniform", "-low", "0", "-high", "1", "u.npy")
-	assert.Empty(t, o, "status lines go to stderr")
-	assert.Equal(t, "wrote u.npy: float64 [3], uniform, seed 1\n", e)
+	expect.Empty(t, o, "status lines go to stderr")
+	expect.Equal(t, "wrote u.npy: float64 [3], uniform, seed 1\n", e)
 	must(t, dir, 0, "gen", "-shape", "3", "n.npy")
 	must(t, dir, 0, "gen", "-shape", "3", "-dtype", "float32", "n32.npy")
 	// The values stated in the command's help (genAbout).
-	assert.Equal(t, []float64{0.5982609488236689, 0.08911177802144832, 0.715356444878812}, readNPY(t, filepath.Join(dir, "u.npy")).Data)
-	assert.Equal(t, []float64{0.8588583889475008, 0.5383481862322732, 0.8094635935566922}, readNPY(t, filepath.Join(dir, "n.npy")).Data)
-	assert.Equal(t, compare.Float32.RoundSlice(readNPY(t, filepath.Join(dir, "n.npy")).Data), readNPY(t, filepath.Join(dir, "n32.npy")).Data)
+	expect.Equal(t, []float64{0.5982609488236689, 0.08911177802144832, 0.715356444878812}, readNPY(t, filepath.Join(dir, "u.npy")).Data)
+	expect.Equal(t, []float64{0.8588583889475008, 0.5383481862322732, 0.8094635935566922}, readNPY(t, filepath.Join(dir, "n.npy")).Data)
+	expect.Equal(t, compare.Float32.RoundSlice(readNPY(t, filepath.Join(dir, "n.npy")).Data), readNPY(t, filepath.Join(dir, "n32.npy")).Data)
 	help, _ := must(t, dir, 0, "help", "gen")
-	assert.Contains(t, help, "0.5982609488236689, 0.08911177802144832, 0.715356444878812")
-	assert.Contains(t, help, "0.8588583889475008, 0.5383481862322732, 0.8094635935566922")
+	expect.Contains(t, help, "0.5982609488236689, 0.08911177802144832, 0.715356444878812")
+	expect.Contains(t, help, "0.8588583889475008, 0.5383481862322732, 0.8094635935566922")
 
 	// Shifted and scaled: mean + std·z and low + (high − low)·u.
 	must(t, dir, 0, "gen", "-shape", "3", "-mean", "2", "-std", "0.5", "s.npy")
 	for i, z := range readNPY(t, filepath.Join(dir, "n.npy")).Data {
-		assert.Equal(t, 2+float64(0.5*z), readNPY(t, filepath.Join(dir, "s.npy")).Data[i])
+		expect.Equal(t, 2+float64(0.5*z), readNPY(t, filepath.Join(dir, "s.npy")).Data[i])
 	}
 }
 
@@ -155,8 +154,8 @@ func TestGenIsPackageGen(t *testing.T) {
 		name := fmt.Sprintf("g%d.npy", i)
 		must(t, dir, 0, append(append([]string{"gen", "-quiet"}, c.args...), name)...)
 		want, err := c.want()
-		require.NoError(t, err)
-		assert.Equal(t, want, readNPY(t, filepath.Join(dir, name)).Data, "plumb gen %s", strings.Join(c.args, " "))
+		ensure.NoError(t, err)
+		expect.Equal(t, want, readNPY(t, filepath.Join(dir, name)).Data, "plumb gen %s", strings.Join(c.args, " "))
 	}
 }
 
@@ -172,52 +171,52 @@ func TestGenOtherLanguage(t *testing.T) {
 	}
 	const n = 1001
 	out, err := exec.Command(py, "testdata/gen_check.py", "12345", fmt.Sprint(n)).Output()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	lines := strings.Fields(string(out))
-	require.Len(t, lines, 2*n)
+	ensure.Len(t, lines, 2*n)
 	u, err := generate(n, "uniform", 12345, 0, 1, 0, 1)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	z, err := generate(n, "normal", 12345, 0, 1, 0, 1)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	same := 0
 	for i := range n {
 		var pu, pz float64
 		_, err := fmt.Sscan(lines[i], &pu)
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		_, err = fmt.Sscan(lines[n+i], &pz)
-		require.NoError(t, err)
-		require.Equal(t, pu, u[i], "uniform value %d", i)
+		ensure.NoError(t, err)
+		ensure.Equal(t, pu, u[i], "uniform value %d", i)
 		if pz == z[i] {
 			same++
 		}
 		if i < 3 {
 			// gen's help: the first normal values agree bit for bit.
-			require.Equal(t, pz, z[i], "normal value %d", i)
+			ensure.Equal(t, pz, z[i], "normal value %d", i)
 		}
 		// Within 4 ulps of float64 at the value, or 1e-15 absolute where a
 		// value is near zero (r·cos t with t near π/2).
-		assert.InDelta(t, pz, z[i], math.Max(4*compare.Float64.ULP(pz), 1e-15), "normal value %d", i)
+		expect.InDelta(t, pz, z[i], math.Max(4*compare.Float64.ULP(pz), 1e-15), "normal value %d", i)
 	}
 	// gen's help: a few in a thousand differ in the last place.
-	assert.GreaterOrEqual(t, same, n-n/100, "%d of %d normal values agree with Python's bit for bit", same, n)
+	expect.GreaterOrEqual(t, same, n-n/100, "%d of %d normal values agree with Python's bit for bit", same, n)
 }
 
 func TestRunWritesTheReference(t *testing.T) {
 	dir := attentionFixture(t)
 	o, e := must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-out", "ref")
-	assert.Empty(t, o, "status lines go to stderr")
-	assert.Contains(t, e, "wrote "+filepath.Join("ref", "out.npy")+": float64 [1 4 6 8]\n")
+	expect.Empty(t, o, "status lines go to stderr")
+	expect.Contains(t, e, "wrote "+filepath.Join("ref", "out.npy")+": float64 [1 4 6 8]\n")
 	want, err := ops.Run("attention-forward", []byte(causal), fixtureInputs(t, dir))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	for _, n := range []string{"out", "lse"} {
 		got := readNPY(t, filepath.Join(dir, "ref", n+".npy"))
-		assert.Equal(t, want[n], got, n)
+		expect.Equal(t, want[n], got, n)
 	}
 	// No configuration means {"version": 1}.
 	must(t, dir, 0, "run", "-out", "full", "attention-forward", "q=q.npy", "k=k.npy", "v=v.npy")
 	want, err = ops.Run("attention-forward", nil, fixtureInputs(t, dir))
-	require.NoError(t, err)
-	assert.Equal(t, want["out"], readNPY(t, filepath.Join(dir, "full", "out.npy")))
+	ensure.NoError(t, err)
+	expect.Equal(t, want["out"], readNPY(t, filepath.Join(dir, "full", "out.npy")))
 }
 
 func TestDiff(t *testing.T) {
@@ -226,16 +225,16 @@ func TestDiff(t *testing.T) {
 	ref := readNPY(t, filepath.Join(dir, "out.npy"))
 
 	o, _ := must(t, dir, 0, "diff", "out.npy", "out.npy")
-	assert.Contains(t, o, "verdict: PASS")
-	assert.Contains(t, o, "default for float64 candidates: rel 1e-10")
+	expect.Contains(t, o, "verdict: PASS")
+	expect.Contains(t, o, "default for float64 candidates: rel 1e-10")
 
 	// One element 1e-2 off fails the default float64 tolerance, at its index.
 	bad := append([]float64(nil), ref.Data...)
 	bad[1*6*8+3*8+5] += 1e-2 // [0 1 3 5]
 	writeNPY(t, filepath.Join(dir, "bad.npy"), npy.Float64, ref.Shape, bad)
 	o, _ = must(t, dir, 1, "diff", "out.npy", "bad.npy")
-	assert.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
-	assert.Contains(t, o, "[0 1 3 5]")
+	expect.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
+	expect.Contains(t, o, "[0 1 3 5]")
 
 	// A tolerance flag replaces the default.
 	must(t, dir, 0, "diff", "-abs", "0.011", "out.npy", "bad.npy")
@@ -251,10 +250,10 @@ func TestDiff(t *testing.T) {
 			Verdict  struct{ Pass bool }
 		}
 	}
-	require.NoError(t, json.Unmarshal([]byte(o), &j))
-	assert.Equal(t, "out.npy", j.Reference)
-	assert.Equal(t, []int{0, 1, 3, 5}, j.Report.MaxAbsAt)
-	assert.False(t, j.Report.Verdict.Pass)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &j))
+	expect.Equal(t, "out.npy", j.Reference)
+	expect.Equal(t, []int{0, 1, 3, 5}, j.Report.MaxAbsAt)
+	expect.False(t, j.Report.Verdict.Pass)
 
 	// A float32 candidate is judged in float32 by default (√u).
 	f32 := make([]float32, len(ref.Data))
@@ -263,7 +262,7 @@ func TestDiff(t *testing.T) {
 	}
 	writeNPY(t, filepath.Join(dir, "f32.npy"), npy.Float32, ref.Shape, f32)
 	o, _ = must(t, dir, 0, "diff", "out.npy", "f32.npy")
-	assert.Contains(t, o, "candidate format float32")
+	expect.Contains(t, o, "candidate format float32")
 
 	// bfloat16 bit patterns need -format.
 	bits := make([]uint16, len(ref.Data))
@@ -272,7 +271,7 @@ func TestDiff(t *testing.T) {
 	}
 	writeNPY(t, filepath.Join(dir, "bf16.npy"), npy.Uint16, ref.Shape, bits)
 	o, _ = must(t, dir, 0, "diff", "-format", "bf16", "out.npy", "bf16.npy")
-	assert.Contains(t, o, "candidate format bfloat16")
+	expect.Contains(t, o, "candidate format bfloat16")
 }
 
 func TestCheck(t *testing.T) {
@@ -280,7 +279,7 @@ func TestCheck(t *testing.T) {
 	in := fixtureInputs(t, dir)
 	// A float32 port: plumb's float32 instantiation is one.
 	low, err := ops.Run32("attention-forward", []byte(causal), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	f32 := func(x []float64) []float32 {
 		y := make([]float32, len(x))
 		for i, v := range x {
@@ -292,10 +291,10 @@ func TestCheck(t *testing.T) {
 	writeNPY(t, filepath.Join(dir, "port_lse.npy"), npy.Float32, low["lse"].Shape, f32(low["lse"].Data))
 	o, _ := must(t, dir, 0, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy",
 		"-got", "out=port_out.npy", "-got", "lse=port_lse.npy")
-	assert.Contains(t, o, "output out")
-	assert.Contains(t, o, "output lse")
-	assert.Contains(t, o, "basis: yardstick: float32 inputs, float32 arithmetic")
-	assert.Equal(t, 2, strings.Count(o, "verdict: PASS"))
+	expect.Contains(t, o, "output out")
+	expect.Contains(t, o, "output lse")
+	expect.Contains(t, o, "basis: yardstick: float32 inputs, float32 arithmetic")
+	expect.Equal(t, 2, strings.Count(o, "verdict: PASS"))
 
 	// A port whose head 3 is 1% too large fails the yardstick.
 	bad := f32(low["out"].Data)
@@ -304,26 +303,26 @@ func TestCheck(t *testing.T) {
 	}
 	writeNPY(t, filepath.Join(dir, "bad_out.npy"), npy.Float32, low["out"].Shape, bad)
 	o, _ = must(t, dir, 1, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=bad_out.npy")
-	assert.Contains(t, o, "verdict: FAIL")
+	expect.Contains(t, o, "verdict: FAIL")
 	// ...which a bfloat16 yardstick (8 significant bits) would let through.
 	o, _ = must(t, dir, 0, "check", "-format", "bfloat16", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=bad_out.npy")
-	assert.Contains(t, o, "yardstick: bfloat16 inputs")
+	expect.Contains(t, o, "yardstick: bfloat16 inputs")
 
 	// JSON: one entry per candidate, and no diagnosis when every output
 	// passes.
 	o, _ = must(t, dir, 0, "check", "-json", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "lse=port_lse.npy")
 	var j checkJSON
-	require.NoError(t, json.Unmarshal([]byte(o), &j))
-	require.Len(t, j.Outputs, 1)
-	assert.Equal(t, "lse", j.Outputs[0].Name)
-	assert.True(t, j.Outputs[0].Report.Verdict.Pass)
-	assert.Nil(t, j.Diagnosis)
-	assert.NotContains(t, o, `"diagnosis"`)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &j))
+	ensure.Len(t, j.Outputs, 1)
+	expect.Equal(t, "lse", j.Outputs[0].Name)
+	expect.True(t, j.Outputs[0].Report.Verdict.Pass)
+	expect.Nil(t, j.Diagnosis)
+	expect.NotContains(t, o, `"diagnosis"`)
 
 	// A float64 candidate gets the default tolerance; explicit flags win.
 	must(t, dir, 0, "run", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy")
 	o, _ = must(t, dir, 0, "check", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=out.npy")
-	assert.Contains(t, o, "default for float64 candidates")
+	expect.Contains(t, o, "default for float64 candidates")
 	must(t, dir, 1, "check", "-abs", "1e-12", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port_out.npy")
 }
 
@@ -347,16 +346,16 @@ func TestCheckSeveralOutputs(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			o, _ := must(t, dir, 1, append(args, c.got...)...)
-			assert.Equal(t, 1, strings.Count(o, "verdict: PASS"), o)
-			assert.Equal(t, 1, strings.Count(o, "verdict: FAIL"), o)
-			assert.Regexp(t, `(?s)output out\n.*verdict: PASS.*output lse\n.*verdict: FAIL`, o, "reports in the order of the operation's outputs")
+			expect.Equal(t, 1, strings.Count(o, "verdict: PASS"), o)
+			expect.Equal(t, 1, strings.Count(o, "verdict: FAIL"), o)
+			expect.Regexp(t, `(?s)output out\n.*verdict: PASS.*output lse\n.*verdict: FAIL`, o, "reports in the order of the operation's outputs")
 			o, _ = must(t, dir, 1, append(append(args, "-json"), c.got...)...)
 			var j checkJSON
-			require.NoError(t, json.Unmarshal([]byte(o), &j))
-			require.Len(t, j.Outputs, 2)
-			assert.Equal(t, []string{"out", "lse"}, []string{j.Outputs[0].Name, j.Outputs[1].Name})
-			assert.True(t, j.Outputs[0].Report.Verdict.Pass)
-			assert.False(t, j.Outputs[1].Report.Verdict.Pass)
+			ensure.NoError(t, json.Unmarshal([]byte(o), &j))
+			ensure.Len(t, j.Outputs, 2)
+			expect.Equal(t, []string{"out", "lse"}, []string{j.Outputs[0].Name, j.Outputs[1].Name})
+			expect.True(t, j.Outputs[0].Report.Verdict.Pass)
+			expect.False(t, j.Outputs[1].Report.Verdict.Pass)
 		})
 	}
 	// Both good: 0, as in TestCheck.
@@ -374,12 +373,12 @@ func TestDiffLastElement(t *testing.T) {
 	bad[len(bad)-1] += 1e-2 // [0 3 5 7]; 1e-2 is outside the default float64 tolerance
 	writeNPY(t, filepath.Join(dir, "bad.npy"), npy.Float64, ref.Shape, bad)
 	o, _ := must(t, dir, 1, "diff", "out.npy", "bad.npy")
-	assert.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
-	assert.Contains(t, o, "[0 3 5 7]")
+	expect.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
+	expect.Contains(t, o, "[0 3 5 7]")
 	o, _ = must(t, dir, 1, "diff", "-json", "out.npy", "bad.npy")
 	var j namedReport
-	require.NoError(t, json.Unmarshal([]byte(o), &j))
-	assert.False(t, j.Report.Verdict.Pass)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &j))
+	expect.False(t, j.Report.Verdict.Pass)
 }
 
 // TestCheckK: -k reaches the yardstick. The candidate's error is put
@@ -389,13 +388,13 @@ func TestCheckK(t *testing.T) {
 	dir := attentionFixture(t)
 	in := fixtureInputs(t, dir)
 	ref, err := ops.Run("attention-forward", []byte(causal), in)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	// The yardstick check measures for out with -format float32: its error
 	// (MaxAbs, Normwise) does not depend on k.
 	ys, err := ops.Yardstick("attention-forward", []byte(causal), in, compare.Float32, compare.DefaultK)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	y := ys["out"]
-	require.Greater(t, y.Report.MaxAbs, 0.0, "the float32 yardstick is not exact here")
+	ensure.Greater(t, y.Report.MaxAbs, 0.0, "the float32 yardstick is not exact here")
 	// A float32 port that writes its output widened to float64 (-format
 	// float32 judges it as float32): the reference with element 0 moved by
 	//
@@ -411,48 +410,48 @@ func TestCheckK(t *testing.T) {
 	port := append([]float64(nil), ref["out"].Data...)
 	port[0] += e
 	actual := port[0] - ref["out"].Data[0] // exact (Sterbenz): E after rounding ref[0] + E to float64
-	require.Greater(t, actual, 2*y.Report.MaxAbs+y.FloorAbs)
-	require.Less(t, actual, 4*y.Report.MaxAbs+y.FloorAbs)
+	ensure.Greater(t, actual, 2*y.Report.MaxAbs+y.FloorAbs)
+	ensure.Less(t, actual, 4*y.Report.MaxAbs+y.FloorAbs)
 	writeNPY(t, filepath.Join(dir, "port.npy"), npy.Float64, ref["out"].Shape, port)
 
 	args := []string{"check", "-format", "float32", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=port.npy"}
 	o, _ := must(t, dir, 1, args...)
-	assert.Contains(t, o, "yardstick: float32 inputs, float32 arithmetic, float32 output: 2 ×")
-	assert.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
+	expect.Contains(t, o, "yardstick: float32 inputs, float32 arithmetic, float32 output: 2 ×")
+	expect.Contains(t, o, "verdict: FAIL: 1 of 192 elements exceed the elementwise tolerance")
 	o, _ = must(t, dir, 0, append(args, "-k", "4")...)
-	assert.Contains(t, o, "yardstick: float32 inputs, float32 arithmetic, float32 output: 4 ×")
-	assert.Contains(t, o, "verdict: PASS")
+	expect.Contains(t, o, "yardstick: float32 inputs, float32 arithmetic, float32 output: 4 ×")
+	expect.Contains(t, o, "verdict: PASS")
 }
 
 func TestDemo(t *testing.T) {
 	o, e := must(t, t.TempDir(), 0, "demo")
-	assert.Empty(t, e, "no progress when stderr is not a terminal")
-	assert.Regexp(t, `(?s)1\. The port as written.*2\. What the port did.*3\. The corrected port`, o)
-	assert.Equal(t, 1, strings.Count(o, "verdict: FAIL"))
-	assert.Equal(t, 1, strings.Count(o, "verdict: PASS"))
+	expect.Empty(t, e, "no progress when stderr is not a terminal")
+	expect.Regexp(t, `(?s)1\. The port as written.*2\. What the port did.*3\. The corrected port`, o)
+	expect.Equal(t, 1, strings.Count(o, "verdict: FAIL"))
+	expect.Equal(t, 1, strings.Count(o, "verdict: PASS"))
 	// The search on the rotary step of q, as check prints it: the slip
 	// first, passing, and the position signature; then k, and the
 	// attention step with nothing to diagnose.
-	assert.Regexp(t, `(?s)`+regexp.QuoteMeta(diagnosisTitle)+`\n  as configured, under the float32 yardstick: FAIL.*\n    1\. "pairing": "halves": PASS, normwise error \S+ \(y \S+ ≤ \S+\)\n`, o)
-	assert.Contains(t, o, "y along positions: exact at position 0, wrong from position 1 on")
-	assert.Regexp(t, `on k, searched the same way:\n  as configured: FAIL.*\n  the first candidate: "pairing": "halves": PASS`, o)
-	assert.Regexp(t, `\n  as configured: PASS, normwise error \S+ \(out \S+ ≤ \S+\): nothing to diagnose\n`, o)
-	assert.Regexp(t, `the port: +"pairing": "halves" +frequency i rotates dims \(i, i \+ r/2\)`, o)
-	assert.Regexp(t, `the block: +"pairing": "adjacent" +frequency i rotates dims \(2i, 2i\+1\)`, o)
+	expect.Regexp(t, `(?s)`+regexp.QuoteMeta(diagnosisTitle)+`\n  as configured, under the float32 yardstick: FAIL.*\n    1\. "pairing": "halves": PASS, normwise error \S+ \(y \S+ ≤ \S+\)\n`, o)
+	expect.Contains(t, o, "y along positions: exact at position 0, wrong from position 1 on")
+	expect.Regexp(t, `on k, searched the same way:\n  as configured: FAIL.*\n  the first candidate: "pairing": "halves": PASS`, o)
+	expect.Regexp(t, `\n  as configured: PASS, normwise error \S+ \(out \S+ ≤ \S+\): nothing to diagnose\n`, o)
+	expect.Regexp(t, `the port: +"pairing": "halves" +frequency i rotates dims \(i, i \+ r/2\)`, o)
+	expect.Regexp(t, `the block: +"pairing": "adjacent" +frequency i rotates dims \(2i, 2i\+1\)`, o)
 }
 
 // TestDemoFindings checks the demo's numbers in process.
 func TestDemoFindings(t *testing.T) {
 	var out bytes.Buffer
 	res, err := runDemo(&out, true, &env{stdout: &out, stderr: &out})
-	require.NoError(t, err)
-	assert.True(t, res.caught())
-	assert.False(t, res.buggy.Verdict.Pass)
-	assert.True(t, res.fixed.Verdict.Pass)
+	ensure.NoError(t, err)
+	expect.True(t, res.caught())
+	expect.False(t, res.buggy.Verdict.Pass)
+	expect.True(t, res.fixed.Verdict.Pass)
 	// Query 0 sees only key 0: its output is v₀ whatever the pairing.
-	assert.Zero(t, res.perPosition[0])
+	expect.Zero(t, res.perPosition[0])
 	for p := 1; p < demoLen; p++ {
-		assert.Greater(t, res.perPosition[p], 1e-2, "position %d", p)
+		expect.Greater(t, res.perPosition[p], 1e-2, "position %d", p)
 	}
 	// The rotary steps fail as configured and pass under the port's
 	// pairing alone, first; the pairing is a fixed permutation of the dims
@@ -463,71 +462,71 @@ func TestDemoFindings(t *testing.T) {
 		d    *diagnosis
 	}{{"q", res.rotaryQ}, {"k", res.rotaryK}} {
 		r := step.d.Result
-		require.NotNil(t, r, "rotary step on %s: %s", step.name, step.d.Error)
-		assert.False(t, r.Given.Pass, step.name)
-		assert.Greater(t, float64(r.Given.Normwise), 0.1, step.name)
-		require.NotEmpty(t, r.Candidates, step.name)
+		ensure.NotNil(t, r, "rotary step on %s: %s", step.name, step.d.Error)
+		expect.False(t, r.Given.Pass, step.name)
+		expect.Greater(t, float64(r.Given.Normwise), 0.1, step.name)
+		ensure.NotEmpty(t, r.Candidates, step.name)
 		c := r.Candidates[0]
-		assert.Equal(t, slip, c.Change, step.name)
-		assert.True(t, c.Measured && c.Pass, step.name)
+		expect.Equal(t, slip, c.Change, step.name)
+		expect.True(t, c.Measured && c.Pass, step.name)
 		// Under the port's own pairing only float32 rounding is left:
 		// within the yardstick's normwise tolerance.
-		assert.LessOrEqual(t, float64(c.Normwise), float64(c.Outputs[0].Tolerance), step.name)
-		assert.Empty(t, r.SubProblem, "the demo's problem is searched whole")
+		expect.LessOrEqual(t, float64(c.Normwise), float64(c.Outputs[0].Tolerance), step.name)
+		expect.Empty(t, r.SubProblem, "the demo's problem is searched whole")
 	}
-	assert.Equal(t, slip, res.named.Change)
-	require.NotNil(t, res.attention.Result, res.attention.Error)
-	assert.True(t, res.attention.Result.Given.Pass, "the port's attention step is right")
-	assert.Empty(t, res.attention.Result.Candidates)
+	expect.Equal(t, slip, res.named.Change)
+	ensure.NotNil(t, res.attention.Result, res.attention.Error)
+	expect.True(t, res.attention.Result.Given.Pass, "the port's attention step is right")
+	expect.Empty(t, res.attention.Result.Candidates)
 
 	// Deterministic: a second run prints the same, byte for byte.
 	var again bytes.Buffer
 	_, err = runDemo(&again, true, &env{stdout: &again, stderr: &again})
-	require.NoError(t, err)
-	assert.Equal(t, out.String(), again.String())
+	ensure.NoError(t, err)
+	expect.Equal(t, out.String(), again.String())
 }
 
 func TestHelp(t *testing.T) {
 	dir := t.TempDir()
 	o, _ := must(t, dir, 0, "help")
 	for _, c := range order {
-		assert.Contains(t, o, "  "+c+" ")
+		expect.Contains(t, o, "  "+c+" ")
 	}
 	_, e := must(t, dir, 2)
-	assert.Contains(t, e, "usage: plumb COMMAND")
+	expect.Contains(t, e, "usage: plumb COMMAND")
 	for _, c := range order {
 		o, _ := must(t, dir, 0, "help", c)
 		fs, _ := lookup(c).flagSet(&bytes.Buffer{})
 		fs.VisitAll(func(f *flag.Flag) {
-			assert.Contains(t, o, "-"+f.Name, "plumb help %s does not explain -%s", c, f.Name)
+			expect.Contains(t, o, "-"+f.Name, "plumb help %s does not explain -%s", c, f.Name)
 		})
 		o2, _ := must(t, dir, 0, c, "-h")
 		_ = o2
 	}
 	o, _ = must(t, dir, 0, "help", "ops")
 	for _, n := range ops.Names() {
-		assert.Contains(t, o, n)
+		expect.Contains(t, o, n)
 		oh, _ := must(t, dir, 0, "help", n)
 		op, _ := ops.Lookup(n)
 		for _, k := range op.Keys() {
-			assert.Contains(t, oh, k.Name)
+			expect.Contains(t, oh, k.Name)
 		}
 		for _, p := range append(op.Inputs(), op.Outputs()...) {
-			assert.Contains(t, oh, p.Name)
+			expect.Contains(t, oh, p.Name)
 		}
 	}
 	// plumb help conventions lists every word of every convention, with
 	// its meaning, as the types declare them.
 	o, _ = must(t, dir, 0, "help", "conventions")
 	all := vocab.All()
-	require.NotEmpty(t, all)
+	ensure.NotEmpty(t, all)
 	for _, c := range all {
 		for _, w := range c.Words {
-			assert.Regexp(t, `(?m)\b`+regexp.QuoteMeta(w.Text)+`\b.*`+regexp.QuoteMeta(w.Meaning), o, "plumb help conventions: %s word %q", c.Name, w.Text)
+			expect.Regexp(t, `(?m)\b`+regexp.QuoteMeta(w.Text)+`\b.*`+regexp.QuoteMeta(w.Meaning), o, "plumb help conventions: %s word %q", c.Name, w.Text)
 		}
 	}
 	_, e = must(t, dir, 2, "help", "nosuch")
-	assert.Contains(t, e, `plumb help: topic = "nosuch"; want a command (gen, run, diff, check, demo, version), ops, conventions, files or an operation`)
+	expect.Contains(t, e, `plumb help: topic = "nosuch"; want a command (gen, run, diff, check, demo, version), ops, conventions, files or an operation`)
 }
 
 // TestBadInputs: every usage or input error exits 2 with a message that
@@ -535,7 +534,7 @@ func TestHelp(t *testing.T) {
 func TestBadInputs(t *testing.T) {
 	dir := attentionFixture(t)
 	w := func(name, text string) {
-		require.NoError(t, os.WriteFile(filepath.Join(dir, name), []byte(text), 0o644))
+		ensure.NoError(t, os.WriteFile(filepath.Join(dir, name), []byte(text), 0o644))
 	}
 	writeNPY(t, filepath.Join(dir, "x.npy"), npy.Float64, []int{2, 3}, []float64{1, 2, 3, 4, 5, 6})
 	writeNPY(t, filepath.Join(dir, "x23.npy"), npy.Float64, []int{3, 2}, []float64{1, 2, 3, 4, 5, 6})
@@ -612,14 +611,14 @@ func TestBadInputs(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			_, e := must(t, dir, 2, c.args...)
 			for _, s := range c.says {
-				assert.Contains(t, e, s)
+				expect.Contains(t, e, s)
 			}
-			assert.NotEmpty(t, e)
+			expect.NotEmpty(t, e)
 		})
 	}
 	// -allow-nonfinite passes NaN to the reference, which propagates it.
 	must(t, dir, 0, "run", "-allow-nonfinite", "-out", "nanout", "activation", "-config", "relu.json", "x=nan.npy")
-	assert.True(t, math.IsNaN(readNPY(t, filepath.Join(dir, "nanout", "y.npy")).Data[4]))
+	expect.True(t, math.IsNaN(readNPY(t, filepath.Join(dir, "nanout", "y.npy")).Data[4]))
 }
 
 // TestReadmeWalkthrough runs the shell block of README.md marked as the
@@ -627,11 +626,11 @@ func TestBadInputs(t *testing.T) {
 // float32 instantiation standing in for the port of step 2.
 func TestReadmeWalkthrough(t *testing.T) {
 	readme, err := os.ReadFile("../../README.md")
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	_, after, ok := strings.Cut(string(readme), "<!-- walkthrough:")
-	require.True(t, ok, "README.md has no walkthrough marker")
+	ensure.True(t, ok, "README.md has no walkthrough marker")
 	_, block, ok := strings.Cut(after, "```sh\n")
-	require.True(t, ok)
+	ensure.True(t, ok)
 	block, _, _ = strings.Cut(block, "```")
 
 	dir := t.TempDir()
@@ -642,16 +641,16 @@ func TestReadmeWalkthrough(t *testing.T) {
 		case line == "" || strings.HasPrefix(line, "#"):
 		case strings.HasPrefix(line, "echo '"):
 			text, file, ok := strings.Cut(strings.TrimPrefix(line, "echo '"), "' > ")
-			require.True(t, ok, line)
-			require.NoError(t, os.WriteFile(filepath.Join(dir, file), []byte(text+"\n"), 0o644))
+			ensure.True(t, ok, line)
+			ensure.NoError(t, os.WriteFile(filepath.Join(dir, file), []byte(text+"\n"), 0o644))
 		case strings.HasPrefix(line, "go run ./cmd/plumb "):
 			args := strings.Fields(strings.TrimPrefix(line, "go run ./cmd/plumb "))
 			if args[0] == "check" {
 				// Step 2: the port writes its float32 output.
 				cfg, err := os.ReadFile(filepath.Join(dir, "attn.json"))
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				low, err := ops.Run32("attention-forward", cfg, fixtureInputs(t, dir))
-				require.NoError(t, err)
+				ensure.NoError(t, err)
 				out := make([]float32, len(low["out"].Data))
 				for i, v := range low["out"].Data {
 					out[i] = float32(v)
@@ -660,12 +659,12 @@ func TestReadmeWalkthrough(t *testing.T) {
 			}
 			o, _ := must(t, dir, 0, args...)
 			if args[0] == "check" {
-				assert.Contains(t, o, "verdict: PASS")
+				expect.Contains(t, o, "verdict: PASS")
 			}
 			ran++
 		default:
 			t.Fatalf("the walkthrough has a line this test cannot run: %q", line)
 		}
 	}
-	assert.Equal(t, 4, ran)
+	expect.Equal(t, 4, ran)
 }

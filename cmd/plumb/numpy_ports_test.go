@@ -13,7 +13,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // numpyPortsScript writes NumPy ports of plumb's operations, most with one
@@ -134,15 +134,15 @@ func TestNumPyPortsDiagnosis(t *testing.T) {
 		t.Skipf("NumPy ports skipped: %s cannot import numpy (install python3-numpy to run them): %v: %s", py, err, strings.TrimSpace(string(out)))
 	}
 	script, err := filepath.Abs(numpyPortsScript)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	dir := t.TempDir()
 	o, e, code := runCmd(t, exec.Command(py, script, dir), ".", []string{script, dir})
-	require.Equal(t, 0, code, "%s %s\nstdout:\n%s\nstderr:\n%s", py, script, o, e)
+	ensure.Equal(t, 0, code, "%s %s\nstdout:\n%s\nstderr:\n%s", py, script, o, e)
 
 	raw, err := os.ReadFile(filepath.Join(dir, "manifest.json"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	var ports []numpyPort
-	require.NoError(t, json.Unmarshal(raw, &ports))
+	ensure.NoError(t, json.Unmarshal(raw, &ports))
 	slipped, correct := 0, 0
 	for _, p := range ports {
 		if p.Correct {
@@ -153,8 +153,8 @@ func TestNumPyPortsDiagnosis(t *testing.T) {
 	}
 	// What the manifest promises: at least 20 slipped and 4 correct ports,
 	// so that the rates below measure something.
-	require.GreaterOrEqual(t, slipped, 20, "slipped ports in the manifest")
-	require.GreaterOrEqual(t, correct, 4, "correct ports in the manifest")
+	ensure.GreaterOrEqual(t, slipped, 20, "slipped ports in the manifest")
+	ensure.GreaterOrEqual(t, correct, 4, "correct ports in the manifest")
 
 	outcomes := make([]portOutcome, 0, len(ports))
 	for _, p := range ports {
@@ -166,11 +166,11 @@ func TestNumPyPortsDiagnosis(t *testing.T) {
 			args = append(args, "-got", n+"="+p.Outputs[n])
 		}
 		stdout, stderr, code := cli(t, dir, args...)
-		require.NotEqual(t, 2, code, "%s: plumb %v\nstderr:\n%s", p.Port, args, stderr)
+		ensure.NotEqual(t, 2, code, "%s: plumb %v\nstderr:\n%s", p.Port, args, stderr)
 		var res struct {
 			Diagnosis *checkDiagnosis `json:"diagnosis"`
 		}
-		require.NoError(t, json.Unmarshal([]byte(stdout), &res), "%s: plumb check -json output:\n%s", p.Port, stdout)
+		ensure.NoError(t, json.Unmarshal([]byte(stdout), &res), "%s: plumb check -json output:\n%s", p.Port, stdout)
 		oc := portOutcome{port: p, code: code, diagnosed: res.Diagnosis != nil}
 		if d := res.Diagnosis; d != nil {
 			for i, c := range d.Candidates {

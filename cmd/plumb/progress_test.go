@@ -6,7 +6,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/stretchr/testify/assert"
+	"github.com/plumbref/plumb/internal/expect"
 )
 
 // syncBuffer is a bytes.Buffer safe for the progress goroutine.
@@ -47,11 +47,11 @@ func TestProgress(t *testing.T) {
 			time.Sleep(30 * time.Millisecond)
 			done()
 			if c.shown {
-				assert.Contains(t, buf.String(), "\rplumb: running attention-forward … ")
-				assert.Contains(t, buf.String(), " s ")
-				assert.Contains(t, buf.String(), "\r\033[K", "the line is cleared at the end")
+				expect.Contains(t, buf.String(), "\rplumb: running attention-forward … ")
+				expect.Contains(t, buf.String(), " s ")
+				expect.Contains(t, buf.String(), "\r\033[K", "the line is cleared at the end")
 			} else {
-				assert.Empty(t, buf.String())
+				expect.Empty(t, buf.String())
 			}
 		})
 	}
@@ -60,5 +60,5 @@ func TestProgress(t *testing.T) {
 	progressDelay = time.Hour
 	var buf syncBuffer
 	progress(&env{stderr: &buf, terminal: true}, false, "quick")()
-	assert.Empty(t, buf.String())
+	expect.Empty(t, buf.String())
 }

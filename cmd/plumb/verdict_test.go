@@ -7,9 +7,8 @@ import (
 	"testing"
 	"unicode/utf8"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/npy"
 )
 
@@ -18,10 +17,10 @@ func firstKey(t *testing.T, s string) string {
 	t.Helper()
 	dec := json.NewDecoder(strings.NewReader(s))
 	tok, err := dec.Token()
-	require.NoError(t, err)
-	require.Equal(t, json.Delim('{'), tok)
+	ensure.NoError(t, err)
+	ensure.Equal(t, json.Delim('{'), tok)
 	tok, err = dec.Token()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	return tok.(string)
 }
 
@@ -40,16 +39,16 @@ func TestJSONPass(t *testing.T) {
 		Candidate string `json:"candidate"`
 	}
 	o, _ := must(t, dir, 0, "diff", "-json", "out.npy", "out.npy")
-	require.NoError(t, json.Unmarshal([]byte(o), &d))
-	require.NotNil(t, d.Pass)
-	assert.True(t, *d.Pass)
-	assert.Equal(t, "pass", firstKey(t, o))
-	assert.Equal(t, "out.npy", d.Candidate, "the other keys are kept")
+	ensure.NoError(t, json.Unmarshal([]byte(o), &d))
+	ensure.NotNil(t, d.Pass)
+	expect.True(t, *d.Pass)
+	expect.Equal(t, "pass", firstKey(t, o))
+	expect.Equal(t, "out.npy", d.Candidate, "the other keys are kept")
 	o, _ = must(t, dir, 1, "diff", "-json", "out.npy", "bad.npy")
 	d.Pass = nil
-	require.NoError(t, json.Unmarshal([]byte(o), &d))
-	require.NotNil(t, d.Pass)
-	assert.False(t, *d.Pass)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &d))
+	ensure.NotNil(t, d.Pass)
+	expect.False(t, *d.Pass)
 
 	check := []string{"check", "-json", "-no-diagnosis", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "lse=lse.npy"}
 	var c struct {
@@ -60,25 +59,25 @@ func TestJSONPass(t *testing.T) {
 		} `json:"outputs"`
 	}
 	o, _ = must(t, dir, 0, append(check, "-got", "out=out.npy")...)
-	require.NoError(t, json.Unmarshal([]byte(o), &c))
-	assert.Equal(t, "pass", firstKey(t, o))
-	require.NotNil(t, c.Pass)
-	assert.True(t, *c.Pass)
-	require.Len(t, c.Outputs, 2)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &c))
+	expect.Equal(t, "pass", firstKey(t, o))
+	ensure.NotNil(t, c.Pass)
+	expect.True(t, *c.Pass)
+	ensure.Len(t, c.Outputs, 2)
 	o, _ = must(t, dir, 1, append(check, "-got", "out=bad.npy")...)
 	c.Pass = nil
-	require.NoError(t, json.Unmarshal([]byte(o), &c))
-	require.NotNil(t, c.Pass)
-	assert.False(t, *c.Pass)
-	require.Len(t, c.Outputs, 2)
-	assert.Equal(t, "out", c.Outputs[0].Output)
-	assert.False(t, *c.Outputs[0].Pass)
-	assert.Equal(t, "lse", c.Outputs[1].Output)
-	assert.True(t, *c.Outputs[1].Pass)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &c))
+	ensure.NotNil(t, c.Pass)
+	expect.False(t, *c.Pass)
+	ensure.Len(t, c.Outputs, 2)
+	expect.Equal(t, "out", c.Outputs[0].Output)
+	expect.False(t, *c.Outputs[0].Pass)
+	expect.Equal(t, "lse", c.Outputs[1].Output)
+	expect.True(t, *c.Outputs[1].Pass)
 	// checkJSON still reads back.
 	var j checkJSON
-	require.NoError(t, json.Unmarshal([]byte(o), &j))
-	assert.False(t, j.Outputs[0].Report.Verdict.Pass)
+	ensure.NoError(t, json.Unmarshal([]byte(o), &j))
+	expect.False(t, j.Outputs[0].Report.Verdict.Pass)
 }
 
 // plumb help diff and help check explain the report: max abs error
@@ -87,14 +86,14 @@ func TestJSONPass(t *testing.T) {
 func TestHelpExplainsReport(t *testing.T) {
 	for _, cmd := range []string{"diff", "check"} {
 		o, _ := must(t, t.TempDir(), 0, "help", cmd)
-		assert.Equal(t, 1, strings.Count(o, "Reading the report."), cmd)
+		expect.Equal(t, 1, strings.Count(o, "Reading the report."), cmd)
 		for _, want := range []string{`"max abs error" is the largest |got − ref|`, "ranked by how far each exceeds the\ntolerance",
 			`"× tol"`, "floor printed on the line below it", `reads "not used"`, `"pass": true`} {
-			assert.Contains(t, o, want, cmd)
+			expect.Contains(t, o, want, cmd)
 		}
 	}
 	for _, l := range strings.Split(reportAbout, "\n") {
-		assert.LessOrEqual(t, utf8.RuneCountInString(l), 76, l)
+		expect.LessOrEqual(t, utf8.RuneCountInString(l), 76, l)
 	}
 }
 
@@ -110,9 +109,9 @@ func TestReportLinesFit(t *testing.T) {
 	}
 	writeNPY(t, filepath.Join(dir, "f32.npy"), npy.Float32, ref.Shape, f32)
 	o, _ := must(t, dir, 1, "check", "-no-diagnosis", "attention-forward", "-config", "c.json", "q=q.npy", "k=k.npy", "v=v.npy", "-got", "out=f32.npy")
-	assert.Contains(t, o, "basis: yardstick: float32 inputs, float32 arithmetic")
-	assert.Contains(t, o, "ULPs not used")
+	expect.Contains(t, o, "basis: yardstick: float32 inputs, float32 arithmetic")
+	expect.Contains(t, o, "ULPs not used")
 	for _, l := range strings.Split(o, "\n") {
-		assert.LessOrEqual(t, utf8.RuneCountInString(l), 100, l)
+		expect.LessOrEqual(t, utf8.RuneCountInString(l), 100, l)
 	}
 }

@@ -9,8 +9,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // versionText on the build information of each kind of build.
@@ -49,13 +49,13 @@ func TestVersionText(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			s := versionText(tc.bi, tc.ok, "linux/amd64")
-			assert.True(t, strings.HasPrefix(s, tc.version), s)
-			assert.Contains(t, s, tc.revision)
+			expect.True(t, strings.HasPrefix(s, tc.version), s)
+			expect.Contains(t, s, tc.revision)
 			if tc.ok {
-				assert.Contains(t, s, "  module    github.com/plumbref/plumb ")
-				assert.Contains(t, s, "  go        go1.99.1 linux/amd64\n")
+				expect.Contains(t, s, "  module    github.com/plumbref/plumb ")
+				expect.Contains(t, s, "  go        go1.99.1 linux/amd64\n")
 			} else {
-				assert.Contains(t, s, "  go        "+runtime.Version()+" linux/amd64\n")
+				expect.Contains(t, s, "  go        "+runtime.Version()+" linux/amd64\n")
 			}
 		})
 	}
@@ -66,22 +66,22 @@ func TestVersionText(t *testing.T) {
 func TestVersionCommand(t *testing.T) {
 	dir := t.TempDir()
 	o, _ := must(t, dir, 0, "version")
-	assert.True(t, strings.HasPrefix(o, "plumb "), o)
-	assert.Contains(t, o, "  module    github.com/plumbref/plumb ")
+	expect.True(t, strings.HasPrefix(o, "plumb "), o)
+	expect.Contains(t, o, "  module    github.com/plumbref/plumb ")
 	// The binary TestMain built is for the go command's target, which is
 	// not this test's architecture when the test runs under an emulator.
 	target, err := exec.Command("go", "env", "GOOS", "GOARCH").Output()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	osArch := strings.Fields(string(target))
-	require.Len(t, osArch, 2)
-	assert.Contains(t, o, "  go        "+runtime.Version()+" "+osArch[0]+"/"+osArch[1]+"\n")
+	ensure.Len(t, osArch, 2)
+	expect.Contains(t, o, "  go        "+runtime.Version()+" "+osArch[0]+"/"+osArch[1]+"\n")
 	o, _ = must(t, dir, 0, "help")
-	assert.Contains(t, o, "  version")
-	assert.Less(t, strings.Index(o, "  demo"), strings.Index(o, "  version"), "listed after the other commands")
+	expect.Contains(t, o, "  version")
+	expect.Less(t, strings.Index(o, "  demo"), strings.Index(o, "  version"), "listed after the other commands")
 	o, _ = must(t, dir, 0, "help", "version")
-	assert.Contains(t, o, "usage: plumb version")
+	expect.Contains(t, o, "usage: plumb version")
 	_, e := must(t, dir, 2, "version", "extra")
-	assert.Contains(t, e, `arguments = ["extra"]; want none (plumb help version)`)
+	expect.Contains(t, e, `arguments = ["extra"]; want none (plumb help version)`)
 }
 
 // A binary built in the clone with VCS stamping names the checked-out
@@ -99,7 +99,7 @@ func TestVersionRevision(t *testing.T) {
 		t.Skipf("not in a git work tree: %v", err)
 	}
 	dirs, err := exec.Command(git, "rev-parse", "--path-format=absolute", "--git-dir", "--git-common-dir").Output()
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	if d := strings.Fields(string(dirs)); len(d) == 2 && d[0] != d[1] {
 		t.Skip("a linked work tree (git worktree), which the go command does not stamp; the test needs a clone")
 	}
@@ -107,8 +107,8 @@ func TestVersionRevision(t *testing.T) {
 	build := exec.Command("go", "build", "-buildvcs=true", "-o", bin, ".")
 	build.Env = append(os.Environ(), "GOFLAGS=")
 	out, err := build.CombinedOutput()
-	require.NoError(t, err, "go build -buildvcs=true: %s", out)
+	ensure.NoError(t, err, "go build -buildvcs=true: %s", out)
 	o, _, code := runCmd(t, exec.Command(bin, "version"), t.TempDir(), []string{"version"})
-	require.Equal(t, 0, code)
-	assert.Contains(t, o, "  revision  "+strings.TrimSpace(string(head)), o)
+	ensure.Equal(t, 0, code)
+	expect.Contains(t, o, "  revision  "+strings.TrimSpace(string(head)), o)
 }

@@ -4,12 +4,11 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/attention/attentiontest"
 	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/posenc"
 )
 
@@ -86,17 +85,17 @@ func TestSuiteCatchesSlips(t *testing.T) {
 		t.Run(s.name, func(t *testing.T) {
 			rec := &conformance.Recorder{}
 			attentiontest.Run(rec, suiteKernel(s.kernel))
-			require.True(t, rec.Failed, "the suite passed a kernel with a slip in the %s", s.name)
+			ensure.True(t, rec.Failed, "the suite passed a kernel with a slip in the %s", s.name)
 			bad := rec.Find(s.fails)
-			require.NotNil(t, bad)
-			require.True(t, bad.Failed)
+			ensure.NotNil(t, bad)
+			ensure.True(t, bad.Failed)
 			msg := strings.Join(bad.Messages, "\n")
-			assert.Contains(t, msg, s.says)
-			assert.Contains(t, msg, "worst element [batch, ")
+			expect.Contains(t, msg, s.says)
+			expect.Contains(t, msg, "worst element [batch, ")
 			t.Logf("the suite says, on %s:\n%s", s.fails, msg)
 			good := rec.Find(s.passes)
-			require.NotNil(t, good)
-			assert.False(t, good.Failed, strings.Join(good.Messages, "\n"))
+			ensure.NotNil(t, good)
+			expect.False(t, good.Failed, strings.Join(good.Messages, "\n"))
 		})
 	}
 }
@@ -127,18 +126,18 @@ func TestParamErrors(t *testing.T) {
 			q := make([]float32, max(p.Batch*p.HeadsQ*p.Lq*p.HeadDim, 0))
 			kv := make([]float32, max(p.Batch*p.HeadsKV*p.Lk*p.HeadDim, 0))
 			_, _, err := Forward(q, kv, kv, p)
-			require.ErrorIs(t, err, ErrParams)
-			assert.Contains(t, err.Error(), "fastattn: invalid parameters: Forward: "+c.says)
+			ensure.ErrorIs(t, err, ErrParams)
+			expect.Contains(t, err.Error(), "fastattn: invalid parameters: Forward: "+c.says)
 		})
 	}
 	// Lengths: q for 1·4·3·8 = 96 elements, k and v for 1·2·5·8 = 80.
 	q, kv := make([]float32, 96), make([]float32, 80)
 	_, _, err := Forward(q[:95], kv, kv, ok)
-	require.ErrorIs(t, err, ErrParams)
-	assert.Contains(t, err.Error(), "q has 95 elements; want Batch·HeadsQ·Lq·HeadDim = 1·4·3·8 = 96")
+	ensure.ErrorIs(t, err, ErrParams)
+	expect.Contains(t, err.Error(), "q has 95 elements; want Batch·HeadsQ·Lq·HeadDim = 1·4·3·8 = 96")
 	_, _, err = Forward(q, kv, kv[:79], ok)
-	require.ErrorIs(t, err, ErrParams)
-	assert.Contains(t, err.Error(), "v has 79 elements; want Batch·HeadsKV·Lk·HeadDim = 1·2·5·8 = 80")
+	ensure.ErrorIs(t, err, ErrParams)
+	expect.Contains(t, err.Error(), "v has 79 elements; want Batch·HeadsKV·Lk·HeadDim = 1·2·5·8 = 80")
 	_, _, err = Forward(q, kv, kv, ok)
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 }

@@ -4,11 +4,10 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/conformance"
 	"github.com/plumbref/plumb/ffn"
+	"github.com/plumbref/plumb/internal/expect"
 	"github.com/plumbref/plumb/internal/suite"
 )
 
@@ -148,7 +147,7 @@ func TestCatchesSlips(t *testing.T) {
 		t.Run(s.name, func(t *testing.T) {
 			rec, _ := failures(Kernel[float64]{Format: compare.Float64, Supports: s.supports, Forward: s.kernel})
 			msg := suite.Failed(t, rec, s.fails, s.says)
-			assert.True(t, strings.HasPrefix(suite.DiagnosisLine(t, msg), s.diagnosis), msg)
+			expect.True(t, strings.HasPrefix(suite.DiagnosisLine(t, msg), s.diagnosis), msg)
 			if s.passes != "" {
 				suite.Passed(t, rec, s.passes)
 			}
@@ -159,7 +158,7 @@ func TestCatchesSlips(t *testing.T) {
 // Undeclared needs are skipped with a message.
 func TestSkips(t *testing.T) {
 	rec, failed := failures(Kernel[float64]{Format: compare.Float64, Forward: forward64(ffn.Forward), Supports: Supports{Acts: []ffn.Act{ffn.ActReLU}}})
-	assert.Empty(t, failed)
+	expect.Empty(t, failed)
 	suite.Skipped(t, rec, "rectangular/relu/plain/in-by-out", "Out ≠ In (Rectangular)")
 	suite.Skipped(t, rec, "biases/relu/plain/in-by-out", "biases (Bias)")
 	suite.Passed(t, rec, "realistic/relu/plain/in-by-out")
@@ -190,5 +189,5 @@ func TestCatchesBackwardSlip(t *testing.T) {
 	suite.Passed(t, rec, "small/relu/plain/in-by-out")
 	// ffn-backward is posed, but a gradient written in the other layout
 	// is no change the diagnosis searches: it names none.
-	assert.Equal(t, "  no single change of its conventions explains it", suite.DiagnosisLine(t, msg), msg)
+	expect.Equal(t, "  no single change of its conventions explains it", suite.DiagnosisLine(t, msg), msg)
 }

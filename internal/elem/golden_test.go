@@ -11,7 +11,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // goldenCase is one line of a golden file: the arguments and the
@@ -39,7 +39,7 @@ func goldenDir() string {
 func readGolden(t testing.TB, name string, nargs int) []goldenCase {
 	t.Helper()
 	f, err := os.Open(filepath.Join(goldenDir(), name+".txt"))
-	require.NoError(t, err)
+	ensure.NoError(t, err)
 	defer f.Close()
 	var out []goldenCase
 	sc := bufio.NewScanner(f)
@@ -49,17 +49,17 @@ func readGolden(t testing.TB, name string, nargs int) []goldenCase {
 			continue
 		}
 		fields := strings.Fields(line)
-		require.Len(t, fields, nargs+1, "%s: %q", name, line)
+		ensure.Len(t, fields, nargs+1, "%s: %q", name, line)
 		vals := make([]float64, len(fields))
 		for i, s := range fields {
 			b, err := strconv.ParseUint(s, 16, 64)
-			require.NoError(t, err, "%s: %q", name, line)
+			ensure.NoError(t, err, "%s: %q", name, line)
 			vals[i] = math.Float64frombits(b)
 		}
 		out = append(out, goldenCase{args: vals[:nargs], want: vals[nargs]})
 	}
-	require.NoError(t, sc.Err())
-	require.NotEmpty(t, out, name)
+	ensure.NoError(t, sc.Err())
+	ensure.NotEmpty(t, out, name)
 	return out
 }
 

@@ -6,8 +6,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // finish either declines or returns the float64 to which every point of
@@ -53,12 +53,12 @@ func TestFinishRoundsTheInterval(t *testing.T) {
 		b.SetMantExp(b, k)
 		fa, _ := a.Float64()
 		fb, _ := b.Float64()
-		require.True(t, sameFloat(fa, got) && sameFloat(fb, got),
+		ensure.True(t, sameFloat(fa, got) && sameFloat(fb, got),
 			"finish(%v, %v, %d, %v) = %v, but the interval rounds to %v … %v", hi, lo, k, eps, got, fa, fb)
 	}
 	t.Logf("declined %d of %d (built to be close)", declined, n)
-	assert.Greater(t, declined, n/20)
-	assert.Less(t, declined, n/2)
+	expect.Greater(t, declined, n/20)
+	expect.Less(t, declined, n/2)
 }
 
 // The erfcx table is built by Taylor steps from erfcx(27.75) down to 0,
@@ -68,14 +68,14 @@ func TestErfChainReachesOne(t *testing.T) {
 	d := new(big.Float).SetPrec(erfPrec).Sub(tab.chainZero, big.NewFloat(1))
 	f, _ := d.Float64()
 	t.Logf("erfcx(0) from the chain: 1 %+g", f)
-	assert.Less(t, math.Abs(f), 0x1p-280)
+	expect.Less(t, math.Abs(f), 0x1p-280)
 	// and each node's value against the slow path's erfc (e^(x0²) erfc x0)
 	for k := 0; k < erfNodes; k += 10 {
 		x0 := tab.x0[k]
 		ref := bigErf(x0, 200, true)
 		x2 := new(big.Float).SetPrec(300).Mul(bf(x0, 64), bf(x0, 64))
 		ref.Mul(ref, bigExp(x2, 200))
-		assert.Less(t, relErr(tab.node[k].dd[0][0], tab.node[k].dd[0][1], 0, ref), 0x1p-104, "erfcx(%v)", x0)
+		expect.Less(t, relErr(tab.node[k].dd[0][0], tab.node[k].dd[0][1], 0, ref), 0x1p-104, "erfcx(%v)", x0)
 	}
 }
 
@@ -98,10 +98,10 @@ func TestReductions(t *testing.T) {
 			continue
 		}
 		q2, h2, l2 := reducePH(tab, x)
-		require.Equal(t, q1, q2, "quadrant of %v", x)
+		ensure.Equal(t, q1, q2, "quadrant of %v", x)
 		ref := new(big.Float).SetPrec(300).SetFloat64(h2)
 		ref.Add(ref, big.NewFloat(l2))
-		require.Less(t, relErr(h1, l1, 0, ref), 0x1p-100, "Cody–Waite and Payne–Hanek differ at %v", x)
+		ensure.Less(t, relErr(h1, l1, 0, ref), 0x1p-100, "Cody–Waite and Payne–Hanek differ at %v", x)
 	}
 	pi, _ := bigConsts(1400)
 	for range n / 10 {
@@ -116,13 +116,13 @@ func TestReductions(t *testing.T) {
 			k.Add(k, big.NewInt(1))
 			rem.Sub(rem, half)
 		}
-		require.Equal(t, int(new(big.Int).And(k, big.NewInt(3)).Int64()), q, "quadrant of %v", x)
-		require.Less(t, relErr(h, l, 0, rem), 0x1p-100, "Payne–Hanek at %v", x)
+		ensure.Equal(t, int(new(big.Int).And(k, big.NewInt(3)).Int64()), q, "quadrant of %v", x)
+		ensure.Less(t, relErr(h, l, 0, rem), 0x1p-100, "Payne–Hanek at %v", x)
 	}
 	// the double nearest a multiple of π/2 (6381956970095103·2⁷⁹⁷)
 	x := 6381956970095103 * 0x1p797
 	_, h, _ := reducePH(tab, x)
-	assert.InDelta(t, 4.6871659242546276e-19, math.Abs(h), 1e-30)
+	expect.InDelta(t, 4.6871659242546276e-19, math.Abs(h), 1e-30)
 }
 
 // The tables against math/big: exp's 2^(i/64) and 2^(j/4096), the sine
@@ -139,10 +139,10 @@ func TestTables(t *testing.T) {
 			a := new(big.Float).SetPrec(300).SetMantExp(ln2, c.scale)
 			a.Mul(a, big.NewFloat(float64(i)))
 			ref := bigExp(a, 250)
-			assert.Less(t, relErr(c.v[0], c.v[1], 0, ref), 0x1p-105)
+			expect.Less(t, relErr(c.v[0], c.v[1], 0, ref), 0x1p-105)
 			if i != 0 {
 				ref.Sub(ref, big.NewFloat(1))
-				assert.Less(t, relErr(c.d[0], c.d[1], 0, ref), 0x1p-105)
+				expect.Less(t, relErr(c.d[0], c.d[1], 0, ref), 0x1p-105)
 			}
 		}
 	}
@@ -150,9 +150,9 @@ func TestTables(t *testing.T) {
 	for j := range tt.sin {
 		s, c := bigSinCos(float64(j)/64, 250)
 		if j > 0 {
-			assert.Less(t, relErr(tt.sin[j][0], tt.sin[j][1], 0, s), 0x1p-105)
+			expect.Less(t, relErr(tt.sin[j][0], tt.sin[j][1], 0, s), 0x1p-105)
 		}
-		assert.Less(t, relErr(tt.cos[j][0], tt.cos[j][1], 0, c), 0x1p-105)
+		expect.Less(t, relErr(tt.cos[j][0], tt.cos[j][1], 0, c), 0x1p-105)
 	}
 }
 
@@ -173,9 +173,9 @@ func TestPowExact(t *testing.T) {
 		{129140163, 0.03125, 0, false}, // 3¹⁷ is no 32nd power
 	} {
 		got, ok := powExact(c.x, c.y)
-		assert.Equal(t, c.ok, ok, "powExact(%v, %v)", c.x, c.y)
+		expect.Equal(t, c.ok, ok, "powExact(%v, %v)", c.x, c.y)
 		if ok {
-			assert.Equal(t, c.want, got, "powExact(%v, %v)", c.x, c.y)
+			expect.Equal(t, c.want, got, "powExact(%v, %v)", c.x, c.y)
 		}
 	}
 }
@@ -194,14 +194,14 @@ func TestEFT(t *testing.T) {
 	for range 10000 {
 		a, b := logUniform(r, -60, 60, true), logUniform(r, -60, 60, true)
 		s, e := twoSum(a, b)
-		require.Zero(t, sum(s, e).Cmp(exact(a, b, false)))
+		ensure.Zero(t, sum(s, e).Cmp(exact(a, b, false)))
 		p, f := twoProd(a, b)
-		require.Zero(t, sum(p, f).Cmp(exact(a, b, true)))
+		ensure.Zero(t, sum(p, f).Cmp(exact(a, b, true)))
 		if math.Abs(a) < math.Abs(b) {
 			a, b = b, a
 		}
 		s, e = fastTwoSum(a, b)
-		require.Zero(t, sum(s, e).Cmp(exact(a, b, false)))
+		ensure.Zero(t, sum(s, e).Cmp(exact(a, b, false)))
 	}
 }
 
@@ -209,16 +209,16 @@ func TestEFT(t *testing.T) {
 func TestConstants(t *testing.T) {
 	pi1, ln1 := bigConsts(100)
 	pi2, ln2 := bigConsts(constBits)
-	require.Equal(t, uint(2048), pi1.Prec())
-	require.Equal(t, uint(constBits), pi2.Prec())
+	ensure.Equal(t, uint(2048), pi1.Prec())
+	ensure.Equal(t, uint(constBits), pi2.Prec())
 	for _, c := range [][2]*big.Float{{pi1, pi2}, {ln1, ln2}} {
 		d := new(big.Float).SetPrec(constBits).Sub(c[0], c[1])
-		assert.True(t, d.Sign() == 0 || d.MantExp(nil) <= c[1].MantExp(nil)-2047, "the sets differ by %g", d)
+		expect.True(t, d.Sign() == 0 || d.MantExp(nil) <= c[1].MantExp(nil)-2047, "the sets differ by %g", d)
 	}
 	p, _ := pi1.Float64()
 	l, _ := ln1.Float64()
-	assert.Equal(t, math.Pi, p)
-	assert.Equal(t, math.Ln2, l)
+	expect.Equal(t, math.Pi, p)
+	expect.Equal(t, math.Ln2, l)
 }
 
 // ziv raises the precision until it decides: values within 2⁻³⁰⁰ of a
@@ -234,7 +234,7 @@ func TestZivEscalates(t *testing.T) {
 		}
 	}
 	before := slowCalls.Load()
-	assert.Equal(t, 1+0x1p-52, ziv(near(1)))
-	assert.Equal(t, 1.0, ziv(near(-1)))
-	assert.Equal(t, uint64(2), slowCalls.Load()-before)
+	expect.Equal(t, 1+0x1p-52, ziv(near(1)))
+	expect.Equal(t, 1.0, ziv(near(-1)))
+	expect.Equal(t, uint64(2), slowCalls.Load()-before)
 }

@@ -5,8 +5,8 @@ import (
 	"math/big"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // The slow path is what decides the hard cases, so it is checked on its
@@ -50,7 +50,7 @@ func TestSlowPathGolden(t *testing.T) {
 					t.Errorf("slow %s(%s) = %s, want %s", name, fmtF(x), fmtF(got), fmtF(c.want))
 				}
 			}
-			require.NotZero(t, n)
+			ensure.NotZero(t, n)
 		})
 	}
 	t.Run("pow", func(t *testing.T) {
@@ -78,19 +78,19 @@ func TestBigFloat64Rounds(t *testing.T) {
 		return f
 	}
 	// 1 + 2⁻⁵³ (a tie) to 1, 1 + 3·2⁻⁵³ to 1 + 2⁻⁵¹, 1 + 2⁻⁵³ + 2⁻¹⁰⁰ up.
-	assert.Equal(t, 1.0, at(1<<53+1, -53))
-	assert.Equal(t, 1+0x1p-51, at(1<<53+3, -53))
+	expect.Equal(t, 1.0, at(1<<53+1, -53))
+	expect.Equal(t, 1+0x1p-51, at(1<<53+3, -53))
 	v := new(big.Float).SetPrec(200).SetInt64(1<<53 + 1)
 	v.SetMantExp(v, -53)
 	v.Add(v, big.NewFloat(0x1p-100))
 	f, _ := v.Float64()
-	assert.Equal(t, 1+0x1p-52, f)
+	expect.Equal(t, 1+0x1p-52, f)
 	// subnormals: 2⁻¹⁰⁷⁵ (a tie) to 0, 3·2⁻¹⁰⁷⁵ to 2⁻¹⁰⁷³, 2⁻¹⁰⁷⁵(1+2⁻⁶⁰) up
-	assert.Equal(t, 0.0, at(1, -1075))
-	assert.Equal(t, 0x1p-1073, at(3, -1075))
-	assert.Equal(t, 5e-324, at(1<<60+1, -1075-60))
-	assert.Equal(t, 0x1p-1073, at(5, -1075)) // 2.5 units of 2⁻¹⁰⁷⁴: to the even 2
+	expect.Equal(t, 0.0, at(1, -1075))
+	expect.Equal(t, 0x1p-1073, at(3, -1075))
+	expect.Equal(t, 5e-324, at(1<<60+1, -1075-60))
+	expect.Equal(t, 0x1p-1073, at(5, -1075)) // 2.5 units of 2⁻¹⁰⁷⁴: to the even 2
 	// overflow: the midpoint between MaxFloat64 and 2¹⁰²⁴ rounds up to Inf
-	assert.Equal(t, math.MaxFloat64, at(1<<54-2, 1024-54))
-	assert.True(t, math.IsInf(at(1<<54-1, 1024-54), 1))
+	expect.Equal(t, math.MaxFloat64, at(1<<54-2, 1024-54))
+	expect.True(t, math.IsInf(at(1<<54-1, 1024-54), 1))
 }

@@ -4,7 +4,7 @@ import (
 	"math"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
+	"github.com/plumbref/plumb/internal/expect"
 )
 
 // The special cases of the package documentation (those of the math
@@ -48,7 +48,7 @@ func TestSpecialCases(t *testing.T) {
 	for _, u := range unary {
 		for _, c := range u.cases {
 			got := u.f(c.x)
-			assert.True(t, sameFloat(got, c.want), "%s(%v) = %v, want %v", u.name, c.x, got, c.want)
+			expect.True(t, sameFloat(got, c.want), "%s(%v) = %v, want %v", u.name, c.x, got, c.want)
 			if std := u.std(c.x); !sameFloat(std, c.want) && ulpDiff(std, c.want) > 1 {
 				t.Logf("note: math.%s(%v) = %v", u.name, c.x, std)
 			}
@@ -57,7 +57,7 @@ func TestSpecialCases(t *testing.T) {
 	// Sincos has Sin's and Cos's special cases.
 	for _, x := range []float64{nan, inf, -inf, 0, negz, tiny, -tiny} {
 		s, c := Sincos(x)
-		assert.True(t, sameFloat(s, Sin(x)) && sameFloat(c, Cos(x)), "Sincos(%v) = %v, %v", x, s, c)
+		expect.True(t, sameFloat(s, Sin(x)) && sameFloat(c, Cos(x)), "Sincos(%v) = %v, %v", x, s, c)
 	}
 }
 
@@ -77,7 +77,7 @@ func TestPowSpecialCases(t *testing.T) {
 				continue
 			}
 			got, want := Pow(x, y), math.Pow(x, y)
-			assert.True(t, sameFloat(got, want), "Pow(%v, %v) = %v, math.Pow: %v", x, y, got, want)
+			expect.True(t, sameFloat(got, want), "Pow(%v, %v) = %v, math.Pow: %v", x, y, got, want)
 		}
 	}
 	// Exact results, exact midpoints (rounded to even) and the rounding at
@@ -91,6 +91,6 @@ func TestPowSpecialCases(t *testing.T) {
 		{float64(131073 * 131073), 1.5, float64(131073) * 131073 * 131073}, // 131073³ rounded
 	} {
 		got := Pow(c.x, c.y)
-		assert.True(t, sameFloat(got, c.want), "Pow(%v, %v) = %v, want %v", c.x, c.y, got, c.want)
+		expect.True(t, sameFloat(got, c.want), "Pow(%v, %v) = %v, want %v", c.x, c.y, got, c.want)
 	}
 }

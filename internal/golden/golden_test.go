@@ -8,8 +8,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 const good = `{
@@ -26,52 +26,52 @@ const good = `{
 
 func TestParseGood(t *testing.T) {
 	f, err := Parse("good.json", []byte(good))
-	require.NoError(t, err)
-	require.Len(t, f.Cases, 1)
+	ensure.NoError(t, err)
+	ensure.Len(t, f.Cases, 1)
 	c := f.Cases[0]
-	assert.Equal(t, "one", c.Name)
-	assert.Equal(t, 50, c.Digits)
+	expect.Equal(t, "one", c.Name)
+	expect.Equal(t, 50, c.Digits)
 	x, shape, err := c.Float("x")
-	require.NoError(t, err)
-	assert.Equal(t, []int{2}, shape)
-	assert.Equal(t, 1.5, x[0])
-	assert.True(t, math.IsInf(x[1], -1))
+	ensure.NoError(t, err)
+	expect.Equal(t, []int{2}, shape)
+	expect.Equal(t, 1.5, x[0])
+	expect.True(t, math.IsInf(x[1], -1))
 	y, _, err := c.Float("y")
-	require.NoError(t, err)
-	assert.Equal(t, math.SmallestNonzeroFloat64, y[0], "hex floats are read exactly, subnormals included")
-	assert.True(t, math.IsNaN(y[1]))
+	ensure.NoError(t, err)
+	expect.Equal(t, math.SmallestNonzeroFloat64, y[0], "hex floats are read exactly, subnormals included")
+	expect.True(t, math.IsNaN(y[1]))
 	v, _, err := c.Bools("v")
-	require.NoError(t, err)
-	assert.Equal(t, []bool{true, false}, v)
+	ensure.NoError(t, err)
+	expect.Equal(t, []bool{true, false}, v)
 	n, shape, err := c.Ints("n")
-	require.NoError(t, err)
-	assert.Empty(t, n)
-	assert.Equal(t, []int{0, 2}, shape)
-	assert.True(t, c.Has("x"))
-	assert.False(t, c.Has("z"))
+	ensure.NoError(t, err)
+	expect.Empty(t, n)
+	expect.Equal(t, []int{0, 2}, shape)
+	expect.True(t, c.Has("x"))
+	expect.False(t, c.Has("z"))
 
 	var cfg struct {
 		Scale int `json:"scale"`
 	}
-	require.NoError(t, c.DecodeConfig(&cfg))
-	assert.Equal(t, 2, cfg.Scale)
+	ensure.NoError(t, c.DecodeConfig(&cfg))
+	expect.Equal(t, 2, cfg.Scale)
 	var narrow struct{}
 	err = c.DecodeConfig(&narrow)
-	require.ErrorIs(t, err, ErrMalformed)
-	assert.Contains(t, err.Error(), `good.json: case "one": config`)
+	ensure.ErrorIs(t, err, ErrMalformed)
+	expect.Contains(t, err.Error(), `good.json: case "one": config`)
 
 	_, _, err = c.Float("v")
-	require.ErrorIs(t, err, ErrMalformed)
-	assert.Contains(t, err.Error(), `tensor "v" is bool, want float64`)
+	ensure.ErrorIs(t, err, ErrMalformed)
+	expect.Contains(t, err.Error(), `tensor "v" is bool, want float64`)
 	_, _, err = c.Float("z")
-	assert.Contains(t, err.Error(), `good.json: case "one": no tensor "z"`)
+	expect.Contains(t, err.Error(), `good.json: case "one": no tensor "z"`)
 }
 
 // TestParseMalformed: every malformed file gives an error that wraps
 // ErrMalformed and names the file and, where there is one, the case.
 func TestParseMalformed(t *testing.T) {
 	edit := func(old, new string) string {
-		require.Contains(t, good, old)
+		ensure.Contains(t, good, old)
 		return strings.Replace(good, old, new, 1)
 	}
 	tests := []struct {
@@ -100,9 +100,9 @@ func TestParseMalformed(t *testing.T) {
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := Parse("bad.json", []byte(tc.text))
-			require.Error(t, err)
-			assert.True(t, errors.Is(err, ErrMalformed), "%v does not wrap ErrMalformed", err)
-			assert.Contains(t, err.Error(), tc.want)
+			ensure.Error(t, err)
+			expect.True(t, errors.Is(err, ErrMalformed), "%v does not wrap ErrMalformed", err)
+			expect.Contains(t, err.Error(), tc.want)
 		})
 	}
 }
@@ -112,55 +112,55 @@ func TestDuplicateAndEmptyOutputs(t *testing.T) {
 	  {"name":"a","source":"s","digits":50,"outputs":{"y":{"dtype":"int","shape":[],"data":[1]}}},
 	  {"name":"a","source":"s","digits":50,"outputs":{"y":{"dtype":"int","shape":[],"data":[1]}}}]}`
 	_, err := Parse("dup.json", []byte(dup))
-	require.ErrorIs(t, err, ErrMalformed)
-	assert.Contains(t, err.Error(), `dup.json: case "a": duplicate name`)
+	ensure.ErrorIs(t, err, ErrMalformed)
+	expect.Contains(t, err.Error(), `dup.json: case "a": duplicate name`)
 
 	none := `{"schema":1,"package":"p","family":"f","generator":"g","cases":[
 	  {"name":"a","source":"s","digits":50,"outputs":{}}]}`
 	_, err = Parse("none.json", []byte(none))
-	require.ErrorIs(t, err, ErrMalformed)
-	assert.Contains(t, err.Error(), `none.json: case "a": no outputs`)
+	ensure.ErrorIs(t, err, ErrMalformed)
+	expect.Contains(t, err.Error(), `none.json: case "a": no outputs`)
 }
 
 func TestLoadMissingFile(t *testing.T) {
 	_, err := Load(filepath.Join(t.TempDir(), "absent.json"))
-	require.ErrorIs(t, err, os.ErrNotExist)
-	assert.Contains(t, err.Error(), "absent.json")
+	ensure.ErrorIs(t, err, os.ErrNotExist)
+	expect.Contains(t, err.Error(), "absent.json")
 }
 
 // TestEveryGoldenFileLoads parses every file under testdata/golden, so a
 // malformed file is caught here even before the package that uses it.
 func TestEveryGoldenFileLoads(t *testing.T) {
 	paths, err := filepath.Glob(filepath.Join(Dir(), "*", "*.json"))
-	require.NoError(t, err)
-	require.NotEmpty(t, paths, "no golden files under %s", Dir())
+	ensure.NoError(t, err)
+	ensure.NotEmpty(t, paths, "no golden files under %s", Dir())
 	for _, p := range paths {
 		f, err := Load(p)
-		require.NoError(t, err)
-		assert.Equal(t, filepath.Base(filepath.Dir(p)), f.Package, "%s: package field", p)
-		assert.Equal(t, strings.TrimSuffix(filepath.Base(p), ".json"), f.Family, "%s: family field", p)
+		ensure.NoError(t, err)
+		expect.Equal(t, filepath.Base(filepath.Dir(p)), f.Package, "%s: package field", p)
+		expect.Equal(t, strings.TrimSuffix(filepath.Base(p), ".json"), f.Family, "%s: family field", p)
 	}
 }
 
 func TestNormwiseRelErr(t *testing.T) {
 	// ‖(0.03, 0.04)‖₂ / ‖(3, 4)‖₂ = 0.05 / 5 = 0.01 (arithmetic).
-	assert.InDelta(t, 0.01, NormwiseRelErr([]float64{3.03, 4.04}, []float64{3, 4}), 1e-15)
-	assert.Equal(t, 0.0, NormwiseRelErr([]float64{1, math.NaN(), math.Inf(-1)}, []float64{1, math.NaN(), math.Inf(-1)}))
-	assert.True(t, math.IsInf(NormwiseRelErr([]float64{1, 2}, []float64{1, math.NaN()}), 1), "NaN expected, finite got")
-	assert.True(t, math.IsInf(NormwiseRelErr([]float64{math.NaN()}, []float64{1}), 1), "finite expected, NaN got")
-	assert.True(t, math.IsInf(NormwiseRelErr([]float64{math.Inf(1)}, []float64{math.Inf(-1)}), 1), "infinities of opposite sign")
-	assert.True(t, math.IsInf(NormwiseRelErr([]float64{1}, []float64{1, 2}), 1), "length mismatch")
+	expect.InDelta(t, 0.01, NormwiseRelErr([]float64{3.03, 4.04}, []float64{3, 4}), 1e-15)
+	expect.Equal(t, 0.0, NormwiseRelErr([]float64{1, math.NaN(), math.Inf(-1)}, []float64{1, math.NaN(), math.Inf(-1)}))
+	expect.True(t, math.IsInf(NormwiseRelErr([]float64{1, 2}, []float64{1, math.NaN()}), 1), "NaN expected, finite got")
+	expect.True(t, math.IsInf(NormwiseRelErr([]float64{math.NaN()}, []float64{1}), 1), "finite expected, NaN got")
+	expect.True(t, math.IsInf(NormwiseRelErr([]float64{math.Inf(1)}, []float64{math.Inf(-1)}), 1), "infinities of opposite sign")
+	expect.True(t, math.IsInf(NormwiseRelErr([]float64{1}, []float64{1, 2}), 1), "length mismatch")
 	// Zero reference: the absolute norm.
-	assert.Equal(t, 5.0, NormwiseRelErr([]float64{3, 4}, []float64{0, 0}))
+	expect.Equal(t, 5.0, NormwiseRelErr([]float64{3, 4}, []float64{0, 0}))
 	// Near the overflow threshold the scaled norm still gives the ratio:
 	// ‖(1e300, 1e300)·1e-8‖ / ‖(1e300, 1e300)‖ = 1e-8.
-	assert.InDelta(t, 1e-8, NormwiseRelErr([]float64{1e300 * (1 + 1e-8), 1e300 * (1 + 1e-8)}, []float64{1e300, 1e300}), 1e-15)
+	expect.InDelta(t, 1e-8, NormwiseRelErr([]float64{1e300 * (1 + 1e-8), 1e300 * (1 + 1e-8)}, []float64{1e300, 1e300}), 1e-15)
 	// And near the underflow threshold.
-	assert.InDelta(t, 0.5, NormwiseRelErr([]float64{1.5e-310}, []float64{1e-310}), 1e-6)
+	expect.InDelta(t, 0.5, NormwiseRelErr([]float64{1.5e-310}, []float64{1e-310}), 1e-6)
 }
 
 func TestDescribe(t *testing.T) {
 	f, err := Parse("good.json", []byte(good))
-	require.NoError(t, err)
-	assert.Equal(t, `good.json: one: y: normwise relative error 2e-13 exceeds 1e-14`, Describe(f.Cases[0], "y", 2e-13, 1e-14))
+	ensure.NoError(t, err)
+	expect.Equal(t, `good.json: one: y: normwise relative error 2e-13 exceeds 1e-14`, Describe(f.Cases[0], "y", 2e-13, 1e-14))
 }

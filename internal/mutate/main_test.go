@@ -5,21 +5,21 @@ import (
 	"path/filepath"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 func write(t *testing.T, text string) string {
 	t.Helper()
 	p := filepath.Join(t.TempDir(), "list.json")
-	require.NoError(t, os.WriteFile(p, []byte(text), 0o644))
+	ensure.NoError(t, os.WriteFile(p, []byte(text), 0o644))
 	return p
 }
 
 func TestLoad(t *testing.T) {
 	ms, err := load(write(t, `[{"name": "x:a", "file": "f.go", "old": "a", "new": "b", "test": ["./x"], "why": "w", "ci": true}]`))
-	require.NoError(t, err)
-	assert.Equal(t, []Mutant{{Name: "x:a", File: "f.go", Old: "a", New: "b", Test: []string{"./x"}, Why: "w", CI: true}}, ms)
+	ensure.NoError(t, err)
+	expect.Equal(t, []Mutant{{Name: "x:a", File: "f.go", Old: "a", New: "b", Test: []string{"./x"}, Why: "w", CI: true}}, ms)
 	for list, msg := range map[string]string{
 		`[{"name": "a", "file": "f", "old": "a", "new": "b", "test": ["./x"], "why": "w"}]`:                                                                                      `name = "a"; want package:what`,
 		`[{"name": "x:a", "file": "f", "old": "a", "new": "b", "test": ["./x"], "why": "w"}, {"name": "x:a", "file": "f", "old": "c", "new": "d", "test": ["./x"], "why": "w"}]`: `"x:a" listed twice`,
@@ -28,7 +28,7 @@ func TestLoad(t *testing.T) {
 		`[{"name": "x:a", "fiel": "f"}]`: `unknown field "fiel"`,
 	} {
 		_, err := load(write(t, list))
-		assert.ErrorContains(t, err, msg, list)
+		expect.ErrorContains(t, err, msg, list)
 	}
 }
 
@@ -37,11 +37,11 @@ func TestLoad(t *testing.T) {
 func TestApplyNeedsOneMatch(t *testing.T) {
 	dir := t.TempDir()
 	f := filepath.Join(dir, "f.go")
-	require.NoError(t, os.WriteFile(f, []byte("package f\nvar a, b = 1, 1\n"), 0o644))
+	ensure.NoError(t, os.WriteFile(f, []byte("package f\nvar a, b = 1, 1\n"), 0o644))
 	for old, want := range map[string]string{"1": "occurs 2 times", "2": "occurs 0 times"} {
 		o, detail := apply(Mutant{Name: "f:x", File: f, Old: old, New: "3", Test: []string{"./none"}, Why: "w"}, dir)
-		assert.Equal(t, notApplied, o)
-		assert.Contains(t, detail, want)
+		expect.Equal(t, notApplied, o)
+		expect.Contains(t, detail, want)
 	}
 }
 
@@ -50,11 +50,11 @@ func TestApplyNeedsOneMatch(t *testing.T) {
 func TestRepositoryList(t *testing.T) {
 	root := filepath.Join("..", "..")
 	ms, err := load(filepath.Join(root, "testdata", "mutants.json"))
-	require.NoError(t, err)
-	require.NotEmpty(t, ms)
+	ensure.NoError(t, err)
+	ensure.NotEmpty(t, ms)
 	for _, m := range ms {
 		b, err := os.ReadFile(filepath.Join(root, m.File))
-		require.NoError(t, err, m.Name)
-		assert.Equal(t, 1, countOf(string(b), m.Old), "%s: the old text must occur exactly once in %s", m.Name, m.File)
+		ensure.NoError(t, err, m.Name)
+		expect.Equal(t, 1, countOf(string(b), m.Old), "%s: the old text must occur exactly once in %s", m.Name, m.File)
 	}
 }

@@ -6,8 +6,8 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // exact returns x + y, or x·y, in exact (big) arithmetic.
@@ -33,32 +33,32 @@ func TestTwoSumIsExact(t *testing.T) {
 	for range 20000 {
 		a, b := randFloat(r), randFloat(r)
 		s, e := TwoSum(a, b)
-		require.Equal(t, a+b, s)
-		require.Zero(t, exactSum(s, e).Cmp(exactSum(a, b)), "TwoSum(%g, %g) = %g + %g", a, b, s, e)
+		ensure.Equal(t, a+b, s)
+		ensure.Zero(t, exactSum(s, e).Cmp(exactSum(a, b)), "TwoSum(%g, %g) = %g + %g", a, b, s, e)
 		if math.Abs(a) < math.Abs(b) {
 			a, b = b, a
 		}
 		s, e = FastTwoSum(a, b)
-		require.Zero(t, exactSum(s, e).Cmp(exactSum(a, b)), "FastTwoSum(%g, %g) = %g + %g", a, b, s, e)
+		ensure.Zero(t, exactSum(s, e).Cmp(exactSum(a, b)), "FastTwoSum(%g, %g) = %g + %g", a, b, s, e)
 
 		p, f := TwoProd(a, b)
-		require.Equal(t, a*b, p)
-		require.Zero(t, exactProd(a, b).Cmp(exactSum(p, f)), "TwoProd(%g, %g) = %g + %g", a, b, p, f)
+		ensure.Equal(t, a*b, p)
+		ensure.Zero(t, exactProd(a, b).Cmp(exactSum(p, f)), "TwoProd(%g, %g) = %g + %g", a, b, p, f)
 
 		// float32: exponents within ±30, so that no error term underflows
 		// (the one case the errors are not exact).
 		a32, b32 := float32(math.Ldexp(a, -math.Ilogb(a)/2)), float32(math.Ldexp(b, -math.Ilogb(b)/2))
 		s32, e32 := TwoSum(a32, b32)
-		require.Zero(t, exactSum(float64(s32), float64(e32)).Cmp(exactSum(float64(a32), float64(b32))))
+		ensure.Zero(t, exactSum(float64(s32), float64(e32)).Cmp(exactSum(float64(a32), float64(b32))))
 		p32, f32 := TwoProd(a32, b32)
-		require.Zero(t, exactProd(float64(a32), float64(b32)).Cmp(exactSum(float64(p32), float64(f32))))
+		ensure.Zero(t, exactProd(float64(a32), float64(b32)).Cmp(exactSum(float64(p32), float64(f32))))
 	}
 	// A worked pair: 1 + 2⁻⁶⁰ rounds to 1 with error 2⁻⁶⁰, and
 	// (1 + 2⁻³⁰)² = 1 + 2⁻²⁹ + 2⁻⁶⁰ rounds to 1 + 2⁻²⁹ with error 2⁻⁶⁰.
 	s, e := TwoSum(1.0, 0x1p-60)
-	assert.Equal(t, [2]float64{1, 0x1p-60}, [2]float64{s, e})
+	expect.Equal(t, [2]float64{1, 0x1p-60}, [2]float64{s, e})
 	p, f := TwoProd(1+0x1p-30, 1+0x1p-30)
-	assert.Equal(t, [2]float64{1 + 0x1p-29, 0x1p-60}, [2]float64{p, f})
+	expect.Equal(t, [2]float64{1 + 0x1p-29, 0x1p-60}, [2]float64{p, f})
 }
 
 // An infinite or NaN result has error 0, so that a caller adding the error
@@ -67,12 +67,12 @@ func TestErrorFreeSpecialCases(t *testing.T) {
 	inf, nan := math.Inf(1), math.NaN()
 	for _, c := range [][2]float64{{inf, 1}, {math.MaxFloat64, math.MaxFloat64}, {nan, 1}, {inf, -inf}} {
 		s, e := TwoSum(c[0], c[1])
-		assert.Zero(t, e, "TwoSum%v", c)
-		assert.True(t, math.IsInf(s, 0) || math.IsNaN(s))
+		expect.Zero(t, e, "TwoSum%v", c)
+		expect.True(t, math.IsInf(s, 0) || math.IsNaN(s))
 		_, e = FastTwoSum(c[0], c[1])
-		assert.Zero(t, e, "FastTwoSum%v", c)
+		expect.Zero(t, e, "FastTwoSum%v", c)
 		p, e := TwoProd(c[0], c[1]*2)
-		assert.Zero(t, e, "TwoProd%v", c)
-		assert.True(t, math.IsInf(p, 0) || math.IsNaN(p))
+		expect.Zero(t, e, "TwoProd%v", c)
+		expect.True(t, math.IsInf(p, 0) || math.IsNaN(p))
 	}
 }

@@ -10,7 +10,7 @@ import (
 	"runtime"
 	"testing"
 
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 )
 
 // productCase is one product of the tests: sizes, transpositions, scalars and
@@ -248,7 +248,7 @@ func TestMatrixProductSameBitsAnyGOMAXPROCS(t *testing.T) {
 		c := append([]float64(nil), c0...)
 		MatrixProduct(g.tA, g.tB, g.m, g.n, g.k, g.alpha, a, lda, b, ldb, g.beta, c, ldc)
 		for i := range c {
-			require.Equal(t, math.Float64bits(want[i]), math.Float64bits(c[i]), "GOMAXPROCS=%d: C[%d][%d]", procs, i/ldc, i%ldc)
+			ensure.Equal(t, math.Float64bits(want[i]), math.Float64bits(c[i]), "GOMAXPROCS=%d: C[%d][%d]", procs, i/ldc, i%ldc)
 		}
 	}
 }

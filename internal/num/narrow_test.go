@@ -6,10 +6,9 @@ import (
 	"math/rand/v2"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/num"
 )
 
@@ -79,15 +78,15 @@ func TestNarrowAddRoundsOnce(t *testing.T) {
 		for range 100000 {
 			a := c.f.Round(math.Ldexp(1+r.Float64(), r.IntN(20)-10))
 			b := float64(float32(math.Ldexp(2*r.Float64()-1, r.IntN(40)-30)))
-			assert.Equal(t, exact(a, b), c.n.Add(a, b), "%s: %v + %v", c.name, a, b)
+			expect.Equal(t, exact(a, b), c.n.Add(a, b), "%s: %v + %v", c.name, a, b)
 		}
 		// A tie in the float64 sum decided by a tiny addend: 1 + 2^-8 is the
 		// bfloat16 tie between 1 and 1 + 2^-7 (1 + 2^-11 that of binary16);
 		// a second addend 2^-80 puts the exact sum above it.
 		tie := 1 + c.f.UnitRoundoff()
-		require.Equal(t, tie, 1+c.f.UnitRoundoff(), "the tie is a float64")
-		assert.Equal(t, 1+2*c.f.UnitRoundoff(), c.n.Add(tie, 0x1p-80), "%s: the exact sum lies above the tie", c.name)
-		assert.Equal(t, 1.0, c.n.Add(tie, -0x1p-80), "%s: the exact sum lies below the tie", c.name)
-		assert.Equal(t, 1.0, c.n.Add(tie, 0), "%s: the tie itself goes to even", c.name)
+		ensure.Equal(t, tie, 1+c.f.UnitRoundoff(), "the tie is a float64")
+		expect.Equal(t, 1+2*c.f.UnitRoundoff(), c.n.Add(tie, 0x1p-80), "%s: the exact sum lies above the tie", c.name)
+		expect.Equal(t, 1.0, c.n.Add(tie, -0x1p-80), "%s: the exact sum lies below the tie", c.name)
+		expect.Equal(t, 1.0, c.n.Add(tie, 0), "%s: the tie itself goes to even", c.name)
 	}
 }

@@ -11,8 +11,8 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 
 	// Every package that declares a convention type, so that its
 	// vocabulary is registered.
@@ -35,7 +35,7 @@ var conventionDirs = []string{"attention", "attention/attentiontest", "compare",
 func call(t *testing.T, v reflect.Value, name string, args ...any) []reflect.Value {
 	t.Helper()
 	m := v.MethodByName(name)
-	require.True(t, m.IsValid(), "%s has no method %s", v.Type(), name)
+	ensure.True(t, m.IsValid(), "%s has no method %s", v.Type(), name)
 	in := make([]reflect.Value, len(args))
 	for i, a := range args {
 		in[i] = reflect.ValueOf(a)
@@ -58,7 +58,7 @@ func errOf(v reflect.Value) error {
 // the words.
 func TestEveryConventionRoundTrips(t *testing.T) {
 	all := vocab.All()
-	require.GreaterOrEqual(t, len(all), len(conventionDirs))
+	ensure.GreaterOrEqual(t, len(all), len(conventionDirs))
 	for _, e := range all {
 		if !strings.Contains(e.Name, ".") || strings.HasPrefix(e.Name, "paint.") {
 			continue // the test vocabulary of vocab_test.go
@@ -66,30 +66,30 @@ func TestEveryConventionRoundTrips(t *testing.T) {
 		t.Run(e.Name, func(t *testing.T) {
 			zero := reflect.Zero(e.Type)
 			values := call(t, zero, "Values")[0]
-			require.Equal(t, len(e.Words), values.Len(), "Values lists every word's value")
-			assert.Equal(t, e.Words[0].Text, call(t, zero, "String")[0].String(), "the zero value is the default, the first word")
+			ensure.Equal(t, len(e.Words), values.Len(), "Values lists every word's value")
+			expect.Equal(t, e.Words[0].Text, call(t, zero, "String")[0].String(), "the zero value is the default, the first word")
 			seen := map[int64]bool{}
 			for i, w := range e.Words {
 				v := values.Index(i)
 				seen[v.Convert(reflect.TypeFor[int64]()).Int()] = true
-				assert.Equal(t, w.Text, call(t, v, "String")[0].String())
-				assert.Equal(t, w.Meaning, call(t, v, "Meaning")[0].String())
-				assert.NoError(t, errOf(call(t, v, "Check")[0]))
+				expect.Equal(t, w.Text, call(t, v, "String")[0].String())
+				expect.Equal(t, w.Meaning, call(t, v, "Meaning")[0].String())
+				expect.NoError(t, errOf(call(t, v, "Check")[0]))
 				out := call(t, v, "MarshalText")
-				require.NoError(t, errOf(out[1]))
-				assert.Equal(t, w.Text, string(out[0].Bytes()))
+				ensure.NoError(t, errOf(out[1]))
+				expect.Equal(t, w.Text, string(out[0].Bytes()))
 
 				back := reflect.New(e.Type)
 				back.Elem().Set(values.Index((i + 1) % values.Len()))
-				require.NoError(t, errOf(call(t, back, "UnmarshalText", []byte(w.Text))[0]))
-				assert.Equal(t, v.Interface(), back.Elem().Interface(), "UnmarshalText(%q)", w.Text)
+				ensure.NoError(t, errOf(call(t, back, "UnmarshalText", []byte(w.Text))[0]))
+				expect.Equal(t, v.Interface(), back.Elem().Interface(), "UnmarshalText(%q)", w.Text)
 
 				js, err := json.Marshal(v.Interface())
-				require.NoError(t, err)
-				assert.Equal(t, `"`+w.Text+`"`, string(js))
+				ensure.NoError(t, err)
+				expect.Equal(t, `"`+w.Text+`"`, string(js))
 				back = reflect.New(e.Type)
-				require.NoError(t, json.Unmarshal(js, back.Interface()))
-				assert.Equal(t, v.Interface(), back.Elem().Interface())
+				ensure.NoError(t, json.Unmarshal(js, back.Interface()))
+				expect.Equal(t, v.Interface(), back.Elem().Interface())
 			}
 
 			bad := reflect.New(e.Type).Elem()
@@ -104,20 +104,20 @@ func TestEveryConventionRoundTrips(t *testing.T) {
 			}
 			var ve *vocab.Error
 			err := errOf(call(t, bad, "Check")[0])
-			require.ErrorAs(t, err, &ve, "Check of a value with no word")
-			assert.Len(t, ve.Words, len(e.Words))
-			assert.Error(t, errOf(call(t, bad, "MarshalText")[1]))
-			assert.Contains(t, call(t, bad, "String")[0].String(), "(")
+			ensure.ErrorAs(t, err, &ve, "Check of a value with no word")
+			expect.Len(t, ve.Words, len(e.Words))
+			expect.Error(t, errOf(call(t, bad, "MarshalText")[1]))
+			expect.Contains(t, call(t, bad, "String")[0].String(), "(")
 
 			err = errOf(call(t, reflect.New(e.Type), "UnmarshalText", []byte("no-such-word"))[0])
-			require.ErrorAs(t, err, &ve)
+			ensure.ErrorAs(t, err, &ve)
 			for _, w := range e.Words {
-				assert.Contains(t, err.Error(), w.Text)
+				expect.Contains(t, err.Error(), w.Text)
 			}
 			pkg, typ, _ := strings.Cut(e.Name, ".")
 			if !strings.HasSuffix(pkg, "test") {
 				// a suite reports through its TB and has no sentinels
-				assert.NotEmpty(t, ve.Unwrap(), "the error wraps the package's sentinel")
+				expect.NotEmpty(t, ve.Unwrap(), "the error wraps the package's sentinel")
 			}
 
 			// A nil receiver is an error, not a panic, that wraps the same
@@ -127,10 +127,10 @@ func TestEveryConventionRoundTrips(t *testing.T) {
 			err = errOf(call(t, reflect.Zero(reflect.PointerTo(e.Type)), "UnmarshalText", []byte(e.Words[0].Text))[0])
 			lead := pkg
 			if s := ve.Unwrap(); len(s) > 0 {
-				assert.ErrorIs(t, err, s[0])
+				expect.ErrorIs(t, err, s[0])
 				lead = s[0].Error()
 			}
-			assert.EqualError(t, err, lead+": "+typ+".UnmarshalText: receiver = nil; want a *"+typ+" to set")
+			expect.EqualError(t, err, lead+": "+typ+".UnmarshalText: receiver = nil; want a *"+typ+" to set")
 		})
 	}
 }
@@ -145,15 +145,15 @@ func TestEveryConventionTypeIsRegistered(t *testing.T) {
 	}
 	for _, dir := range conventionDirs {
 		files, err := filepath.Glob(filepath.Join("..", "..", dir, "*.go"))
-		require.NoError(t, err)
+		ensure.NoError(t, err)
 		for _, path := range files {
 			if strings.HasSuffix(path, "_test.go") {
 				continue
 			}
 			src, err := os.ReadFile(path)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			f, err := parser.ParseFile(token.NewFileSet(), path, src, 0)
-			require.NoError(t, err)
+			ensure.NoError(t, err)
 			for _, d := range f.Decls {
 				fn, ok := d.(*ast.FuncDecl)
 				if !ok || fn.Recv == nil || fn.Name.Name != "MarshalText" {
@@ -167,7 +167,7 @@ func TestEveryConventionTypeIsRegistered(t *testing.T) {
 				if !integerType(f, name) {
 					continue
 				}
-				assert.True(t, registered["github.com/plumbref/plumb/"+dir+"."+name], "%s: %s has MarshalText but no registered vocabulary (vocab.New)", path, name)
+				expect.True(t, registered["github.com/plumbref/plumb/"+dir+"."+name], "%s: %s has MarshalText but no registered vocabulary (vocab.New)", path, name)
 			}
 		}
 	}

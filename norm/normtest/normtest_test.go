@@ -5,11 +5,10 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-	"github.com/stretchr/testify/require"
-
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/norm"
 )
@@ -144,7 +143,7 @@ func TestCatchesSlips(t *testing.T) {
 			rec := &conformance.Recorder{}
 			Run(rec, Kernel[float32]{Forward: naive(s.slip), Supports: everything})
 			msg := suite.Failed(t, rec, s.fails, "y differs from the reference", "worst element [row, column]")
-			assert.True(t, strings.HasPrefix(suite.DiagnosisLine(t, msg), s.diagnosis), msg)
+			expect.True(t, strings.HasPrefix(suite.DiagnosisLine(t, msg), s.diagnosis), msg)
 			suite.Passed(t, rec, s.passes)
 		})
 	}
@@ -160,7 +159,7 @@ func TestCatchesSlips(t *testing.T) {
 func TestPlainFloat32(t *testing.T) {
 	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float32]{Forward: naive(""), Supports: everything})
-	assert.Equal(t, []string{
+	expect.Equal(t, []string{
 		"offset_rows/layernorm/in-root/as-is", "offset_rows/layernorm/in-root/one-plus",
 		"offset_rows/layernorm/added-to-root/as-is", "offset_rows/layernorm/added-to-root/one-plus",
 	}, rec.Failures())
@@ -171,7 +170,7 @@ func TestPlainFloat32(t *testing.T) {
 func TestSkips(t *testing.T) {
 	rec := &conformance.Recorder{}
 	Run(rec, Kernel[float64]{Forward: plumbForward, Format: compare.Float64, Supports: Supports{Layers: []Layer{RMSNorm}}})
-	require.False(t, rec.Failed, rec.Text())
+	ensure.False(t, rec.Failed, rec.Text())
 	suite.Skipped(t, rec, "residual_add/rmsnorm/in-root/as-is", "the fused residual add (Residual)")
 	suite.Skipped(t, rec, "no_weight/rmsnorm/in-root", "a nil weight (Unweighted)")
 	suite.Passed(t, rec, "realistic/rmsnorm/in-root/as-is")
@@ -203,8 +202,8 @@ func TestCatchesBackwardSlip(t *testing.T) {
 		}})
 	const name = "small_rows/layernorm/in-root/as-is"
 	msg := suite.Failed(t, rec, name, "dx differs from the reference", "worst element [row, column]")
-	assert.Len(t, rec.Find(name).Messages, 1, "dx alone fails")
+	expect.Len(t, rec.Find(name).Messages, 1, "dx alone fails")
 	// A term left out is no convention: the diagnosis (layernorm-backward
 	// posed) names none.
-	assert.Equal(t, "  no single change of its conventions explains it", suite.DiagnosisLine(t, msg), msg)
+	expect.Equal(t, "  no single change of its conventions explains it", suite.DiagnosisLine(t, msg), msg)
 }

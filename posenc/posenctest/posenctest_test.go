@@ -5,10 +5,9 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/stretchr/testify/assert"
-
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/conformance"
+	"github.com/plumbref/plumb/internal/expect"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/posenc"
 )
@@ -97,7 +96,7 @@ var plainSupports = Supports{Pairings: []posenc.Pairing{posenc.PairAdjacent, pos
 // supports; the scaling cases are skipped with messages.
 func TestPlainFloat32(t *testing.T) {
 	rec, failed := failures(Kernel[float32]{Apply: plain(false, false), Supports: plainSupports})
-	assert.Empty(t, failed, rec.Text())
+	expect.Empty(t, failed, rec.Text())
 	suite.Skipped(t, rec, "ntk_aware_8/halves", "scaling method ntk-aware (Methods)")
 }
 
@@ -116,14 +115,14 @@ func TestCatchesFloat32Angles(t *testing.T) {
 func TestCatchesPairingSlip(t *testing.T) {
 	rec, _ := failures(Kernel[float32]{Apply: plain(false, true), Supports: plainSupports})
 	msg := suite.Failed(t, rec, "small/adjacent", "worst element [row, dim]")
-	assert.True(t, strings.HasPrefix(msg, "case small (8 rows of 8, pairing adjacent, rotated 8 of 8 dims, base 10000, positions 0 … 7): rotated x differs from the reference"), msg)
+	expect.True(t, strings.HasPrefix(msg, "case small (8 rows of 8, pairing adjacent, rotated 8 of 8 dims, base 10000, positions 0 … 7): rotated x differs from the reference"), msg)
 	suite.Passed(t, rec, "position_zero/adjacent")
 	// The diagnosis (rotary-apply posed with every setting of the case)
 	// names the pairing the kernel used, in the suite's words too; its
 	// line comes before the one naming the report's file.
 	line := suite.DiagnosisLine(t, msg)
-	assert.True(t, strings.HasPrefix(line, `  it matches "pairing": "halves" [Rotary.Pairing, Supports.Pairings] (normwise `), msg)
-	assert.True(t, strings.HasSuffix(line, ", passes)"), msg)
+	expect.True(t, strings.HasPrefix(line, `  it matches "pairing": "halves" [Rotary.Pairing, Supports.Pairings] (normwise `), msg)
+	expect.True(t, strings.HasSuffix(line, ", passes)"), msg)
 	halves := rec.Find("head_dim_128/halves").Messages[0]
-	assert.Contains(t, halves, `it matches "pairing": "adjacent" [Rotary.Pairing, Supports.Pairings]`)
+	expect.Contains(t, halves, `it matches "pairing": "adjacent" [Rotary.Pairing, Supports.Pairings]`)
 }
