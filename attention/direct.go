@@ -72,6 +72,30 @@ func (p *plan) sinkLogit(h int) float64 {
 	return p.sinks[h]
 }
 
+// rowMax returns the largest of the logits s and the sink logit, a NaN if
+// any logit is NaN (a NaN logit makes the whole row NaN). A row whose
+// maximum is −Inf sees no key: rowMax then fills s with 0, or NaN under
+// emptyNaN, and returns empty.
+func rowMax[T num.Float](s []T, sink T, emptyNaN bool) (m T, empty bool) {
+	m = sink
+	for _, x := range s {
+		if x > m || x != x {
+			m = x
+		}
+	}
+	if !math.IsInf(float64(m), -1) {
+		return m, false
+	}
+	fill := T(0)
+	if emptyNaN {
+		fill = T(math.NaN())
+	}
+	for j := range s {
+		s[j] = fill
+	}
+	return m, true
+}
+
 // softmaxRow turns the logits s into probabilities in place, with the sink
 // logit sink (−Inf for none) joining the denominator. It returns the
 // natural log-sum-exp of the logits and the sink, the sink's probability,
@@ -79,20 +103,8 @@ func (p *plan) sinkLogit(h int) float64 {
 // row's probabilities are 0, or NaN under EmptyRowNaN; its log-sum-exp is
 // −Inf.
 func softmaxRow[T num.Float](s []T, sink T, emptyNaN bool) (lse, psink T, empty bool) {
-	m := sink
-	for _, x := range s {
-		if x > m || x != x { // a NaN logit makes the whole row NaN
-			m = x
-		}
-	}
-	if math.IsInf(float64(m), -1) {
-		fill := T(0)
-		if emptyNaN {
-			fill = T(math.NaN())
-		}
-		for j := range s {
-			s[j] = fill
-		}
+	m, empty := rowMax(s, sink, emptyNaN)
+	if empty {
 		return T(math.Inf(-1)), 0, true
 	}
 	var sum T

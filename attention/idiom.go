@@ -119,20 +119,8 @@ func accumulate[T num.Float](a Accumulation, acc, x T) T {
 // (ShiftNone). The maximum is still found, for the empty row and the NaN
 // row, which the idiom does not change.
 func softmaxRowIdiom[T num.Float](s []T, sink T, emptyNaN bool, id Idiom) (lse, psink T, empty bool) {
-	m := sink
-	for _, x := range s {
-		if x > m || x != x {
-			m = x
-		}
-	}
-	if math.IsInf(float64(m), -1) {
-		fill := T(0)
-		if emptyNaN {
-			fill = T(math.NaN())
-		}
-		for j := range s {
-			s[j] = fill
-		}
+	m, empty := rowMax(s, sink, emptyNaN)
+	if empty {
 		return T(math.Inf(-1)), 0, true
 	}
 	shift := m
@@ -159,17 +147,8 @@ func softmaxRowIdiom[T num.Float](s []T, sink T, emptyNaN bool, id Idiom) (lse, 
 // lseRowIdiom is lseRow computed as a port of the idiom id does; see
 // Idiom.LogSumExp32.
 func lseRowIdiom[T num.Float](x []T, id Idiom) T {
-	a := 0
-	for j, v := range x {
-		if v != v {
-			return v
-		}
-		if v > x[a] {
-			a = j
-		}
-	}
-	m := x[a]
-	if math.IsInf(float64(m), -1) {
+	a, m, done := rowArgMax(x)
+	if done {
 		return m
 	}
 	var sum T

@@ -107,22 +107,29 @@ func logSumExp[T num.Float](x []T, n int, fn string) ([]T, error) {
 	return out, nil
 }
 
-// lseRow is m + log1p(Σ_{j≠a} e^{x_j − m}) with a the first index of the
-// maximum m: the maximum's own term is exactly 1, and taking it out of the
-// sum before the logarithm keeps the small terms' contribution accurate
-// (log(1 + r) rounds r when formed as 1 + r first).
-func lseRow[T num.Float](x []T) T {
-	a := 0
+// rowArgMax returns the first index a of the maximum m of x, with done
+// true when m is the row's log-sum-exp already: a NaN (returned as m) or
+// −Inf, every term 0.
+func rowArgMax[T num.Float](x []T) (a int, m T, done bool) {
 	for j, v := range x {
 		if v != v {
-			return v
+			return j, v, true
 		}
 		if v > x[a] {
 			a = j
 		}
 	}
-	m := x[a]
-	if math.IsInf(float64(m), -1) {
+	m = x[a]
+	return a, m, math.IsInf(float64(m), -1)
+}
+
+// lseRow is m + log1p(Σ_{j≠a} e^{x_j − m}) with a the first index of the
+// maximum m: the maximum's own term is exactly 1, and taking it out of the
+// sum before the logarithm keeps the small terms' contribution accurate
+// (log(1 + r) rounds r when formed as 1 + r first).
+func lseRow[T num.Float](x []T) T {
+	a, m, done := rowArgMax(x)
+	if done {
 		return m
 	}
 	var rest T
