@@ -119,17 +119,27 @@ func logDD(x float64) (h, l float64, e int, m float64) {
 	return h, l, e, m
 }
 
+// logEdge gives a logarithm's value where x alone decides it: NaN and +Inf
+// return themselves, x < 0 gives NaN, ±0 gives −Inf.
+func logEdge(x float64) (float64, bool) {
+	switch {
+	case x != x || x == math.Inf(1):
+		return x, true
+	case x < 0:
+		return math.NaN(), true
+	case x == 0:
+		return math.Inf(-1), true
+	}
+	return 0, false
+}
+
 // Log returns the natural logarithm of x, correctly rounded. Log(+Inf) =
 // +Inf, Log(±0) = −Inf, Log(x < 0) = NaN, Log(NaN) = NaN, Log(1) = +0.
 func Log(x float64) float64 {
-	switch {
-	case x != x || x == math.Inf(1):
-		return x
-	case x < 0:
-		return math.NaN()
-	case x == 0:
-		return math.Inf(-1)
-	case x == 1:
+	if r, ok := logEdge(x); ok {
+		return r
+	}
+	if x == 1 {
 		return 0
 	}
 	h, l, _, _ := logDD(x)
@@ -142,13 +152,8 @@ func Log(x float64) float64 {
 // Log2 returns the binary logarithm of x, correctly rounded; exact for
 // powers of two. Special cases as Log.
 func Log2(x float64) float64 {
-	switch {
-	case x != x || x == math.Inf(1):
-		return x
-	case x < 0:
-		return math.NaN()
-	case x == 0:
-		return math.Inf(-1)
+	if r, ok := logEdge(x); ok {
+		return r
 	}
 	h, l, exact := log2DD(x)
 	if exact {
