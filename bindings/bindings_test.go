@@ -26,6 +26,7 @@ import (
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/internal/expect"
 	"github.com/plumbref/plumb/internal/expect/ensure"
+	"github.com/plumbref/plumb/internal/testbin"
 	"github.com/plumbref/plumb/npy"
 )
 
@@ -35,22 +36,7 @@ const python = "/usr/bin/python3"
 // plumbBin is the plumb command, built once.
 var plumbBin string
 
-func TestMain(m *testing.M) {
-	dir, err := os.MkdirTemp("", "plumb-bindings")
-	if err != nil {
-		fmt.Fprintln(os.Stderr, err)
-		os.Exit(2)
-	}
-	plumbBin = filepath.Join(dir, "plumb")
-	if out, err := exec.Command("go", "build", "-o", plumbBin, "../cmd/plumb").CombinedOutput(); err != nil {
-		fmt.Fprintf(os.Stderr, "building plumb: %v\n%s", err, out)
-		os.RemoveAll(dir)
-		os.Exit(2)
-	}
-	code := m.Run()
-	os.RemoveAll(dir)
-	os.Exit(code)
-}
+func TestMain(m *testing.M) { testbin.Main(m, "../cmd/plumb", &plumbBin) }
 
 // need skips the test when the tool is missing, or fails it under CI.
 func need(t *testing.T, what string, err error) {

@@ -19,6 +19,7 @@ import (
 	"github.com/plumbref/plumb/gen"
 	"github.com/plumbref/plumb/internal/expect"
 	"github.com/plumbref/plumb/internal/expect/ensure"
+	"github.com/plumbref/plumb/internal/testbin"
 	"github.com/plumbref/plumb/internal/vocab"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
@@ -27,22 +28,7 @@ import (
 // binary is the plumb command built once for the end-to-end tests.
 var plumbBin string
 
-func TestMain(m *testing.M) {
-	dir, err := os.MkdirTemp("", "plumb-e2e")
-	if err != nil {
-		fmt.Fprintln(os.Stderr, err)
-		os.Exit(2)
-	}
-	plumbBin = filepath.Join(dir, "plumb")
-	if out, err := exec.Command("go", "build", "-o", plumbBin, ".").CombinedOutput(); err != nil {
-		fmt.Fprintf(os.Stderr, "building plumb: %v\n%s", err, out)
-		os.RemoveAll(dir)
-		os.Exit(2)
-	}
-	code := m.Run()
-	os.RemoveAll(dir)
-	os.Exit(code)
-}
+func TestMain(m *testing.M) { testbin.Main(m, ".", &plumbBin) }
 
 // cli runs the built binary in dir and returns its stdout, stderr and exit
 // status.
