@@ -160,14 +160,7 @@ func (f Format) round(x float64, sat bool) float64 {
 		return math.NaN()
 	}
 	if math.IsInf(x, 0) {
-		switch {
-		case sat:
-			return math.Copysign(p.max, x)
-		case p.ieee:
-			return x
-		default:
-			return math.NaN()
-		}
+		return p.overflow(x, sat)
 	}
 	if x == 0 || f == Float64 {
 		return x
@@ -182,16 +175,22 @@ func (f Format) round(x float64, sat bool) float64 {
 	r := math.RoundToEven(a * exp2i(-q))
 	v := r * exp2i(q)
 	if v > p.max {
-		switch {
-		case sat:
-			v = p.max
-		case p.ieee:
-			v = math.Inf(1)
-		default:
-			return math.NaN()
-		}
+		return p.overflow(x, sat)
 	}
 	return math.Copysign(v, x)
+}
+
+// overflow is what rounding gives x, beyond the format's largest finite
+// magnitude: ±Max when saturating, else ±Inf in a format that has it and
+// NaN in one that does not.
+func (p *params) overflow(x float64, sat bool) float64 {
+	switch {
+	case sat:
+		return math.Copysign(p.max, x)
+	case p.ieee:
+		return math.Copysign(math.Inf(1), x)
+	}
+	return math.NaN()
 }
 
 // Contains reports whether x is exactly a value of the format (NaN and, in

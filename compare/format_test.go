@@ -314,21 +314,15 @@ func TestFloat32MatchesGo(t *testing.T) {
 // roundLdexp and encodeLdexp are round and encode as first written, with
 // math.Frexp and math.Ldexp where format.go now reads and builds float64
 // bit patterns, and without its Float32 shortcuts (Go's conversion): the
-// reference of TestRoundMatchesLdexpForm.
+// reference of TestRoundMatchesLdexpForm. They share round's overflow rule
+// (params.overflow), which the exhaustive format tests check on their own.
 func roundLdexp(f Format, x float64, sat bool) float64 {
 	p := f.p()
 	if math.IsNaN(x) {
 		return math.NaN()
 	}
 	if math.IsInf(x, 0) {
-		switch {
-		case sat:
-			return math.Copysign(p.max, x)
-		case p.ieee:
-			return x
-		default:
-			return math.NaN()
-		}
+		return p.overflow(x, sat)
 	}
 	if x == 0 || f == Float64 {
 		return x
@@ -338,14 +332,7 @@ func roundLdexp(f Format, x float64, sat bool) float64 {
 	q := max(e2-1, p.emin) - p.fracBits
 	v := math.Ldexp(math.RoundToEven(math.Ldexp(a, -q)), q)
 	if v > p.max {
-		switch {
-		case sat:
-			v = p.max
-		case p.ieee:
-			v = math.Inf(1)
-		default:
-			return math.NaN()
-		}
+		return p.overflow(x, sat)
 	}
 	return math.Copysign(v, x)
 }
