@@ -10,8 +10,8 @@ import (
 	"testing"
 )
 
-// Main builds the command in the package directory pkg (relative to the
-// test's package, "../cmd/plumb") into a temporary directory, sets *bin to
+// Main builds the command in the package directory pkg, a path relative to
+// the directory of the test's package, into a temporary directory, sets *bin to
 // its path, runs the tests and removes the directory: a TestMain's whole
 // body. A build that fails ends the test binary with status 2 and the
 // compiler's output.
