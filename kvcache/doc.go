@@ -108,11 +108,16 @@
 // BenchmarkDecodePaged and BenchmarkDecodeContiguous time one decoding
 // step of 32 query heads on 8 kv heads of dimension 128 against 65536
 // cached positions, in pages of 16 in a random order, or contiguous
-// (attention.Decode): the paged step took 1.24 times the contiguous one
-// (median of 5 runs each, 1045 ms against 845 ms, on a shared 2-core
-// x86-64 machine). Gathering is one pass over K and V into a buffer kept
-// for the next call; a fresh buffer for every call cost about 5 times
-// the contiguous step there, the first touch of 1 GiB of new memory
-// taking several times longer than the copy itself. The first paged call
-// of a process still pays that once.
+// (attention.Decode). On a shared 2-core x86-64 machine with a load
+// average of 3 to 4 (wall time, ratios of medians): go test -bench . -count
+// 5 gave the paged step 1.27 and 1.53 times the contiguous one in two
+// runs, and five rounds run alternately 1.25 (the median of the rounds'
+// ratios, which ranged from 1.04 to 1.39). The contiguous step took 0.5 to
+// 0.8 s. Gathering is one pass over K and V, split over the kv heads
+// between goroutines, into a buffer kept for the next call: with a fresh
+// buffer for every call the paged step took about 5 times the contiguous
+// one there, the first touch of 1 GiB of new memory taking about ten
+// times as long as copying into memory already touched. The first paged
+// call of a process still pays that once, and the benchmarks make one
+// call before they start the clock.
 package kvcache

@@ -81,3 +81,30 @@ func ExampleMergeSplits() {
 	// first split: 17.310585786300, lse 2.313261687518
 	// merged:      34.926527345858
 }
+
+// A ring of 2 slots, one head of dimension 1, fed the keys 1, 2, 3, 4 and
+// values 10, 20, 30, 40 at positions 0 … 3. After 4 tokens it holds
+// positions 2 and 3, so the query at position 3 (q = 1, Scale 1) sees the
+// logits 3 and 4: (e³·30 + e⁴·40)/(e³ + e⁴) = 37.310585786300 [mpmath, 40
+// digits, rounded], as attention.Decode with mask.Window(2) over all four
+// positions gives.
+func ExampleAttendRing() {
+	s := attention.Shape{Batch: 1, HeadsQ: 1, HeadsKV: 1, Lq: 1, Lk: 2, Dk: 1, Dv: 1}
+	kRing, vRing := make([]float64, 2), make([]float64, 2)
+	for pos, key := range []float64{1, 2, 3, 4} {
+		if err := kvcache.RingWrite(kRing, vRing, []float64{key}, []float64{10 * key}, s, pos, attention.HeadsMajor); err != nil {
+			fmt.Println(err)
+			return
+		}
+	}
+	out, _, err := kvcache.AttendRing([]float64{1}, kRing, vRing, s, 4, attention.Options{Scale: 1})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Println(kRing, vRing)
+	fmt.Printf("%.12f\n", out[0])
+	// Output:
+	// [3 4] [30 40]
+	// 37.310585786300
+}

@@ -3,6 +3,7 @@ package kvcache
 import (
 	"fmt"
 	"math"
+	"runtime"
 	"slices"
 	"sync"
 
@@ -173,18 +174,37 @@ func gatherChecked[T num.Float](kPool, vPool []T, p Pool, table []int, length in
 }
 
 // gatherInto is Gather on validated arguments into k and v, whose every
-// element it writes.
+// element it writes. A large sequence is copied by several goroutines,
+// each owning some kv heads: the copies are disjoint, so the result is
+// the same for any number of them.
 func gatherInto[T num.Float](k, v, kPool, vPool []T, p Pool, table []int, length int, layout attention.Layout) {
-	for t := range length {
-		page, slot := table[t/p.PageSize], t%p.PageSize
-		for g := range p.HeadsKV {
-			src, dst := p.offset(page, slot, g, p.Dk), rowOffset(layout, p.HeadsKV, length, g, t, p.Dk)
-			copy(k[dst:dst+p.Dk], kPool[src:src+p.Dk])
-			src, dst = p.offset(page, slot, g, p.Dv), rowOffset(layout, p.HeadsKV, length, g, t, p.Dv)
-			copy(v[dst:dst+p.Dv], vPool[src:src+p.Dv])
+	heads := func(from, to int) {
+		for t := range length {
+			page, slot := table[t/p.PageSize], t%p.PageSize
+			for g := from; g < to; g++ {
+				src, dst := p.offset(page, slot, g, p.Dk), rowOffset(layout, p.HeadsKV, length, g, t, p.Dk)
+				copy(k[dst:dst+p.Dk], kPool[src:src+p.Dk])
+				src, dst = p.offset(page, slot, g, p.Dv), rowOffset(layout, p.HeadsKV, length, g, t, p.Dv)
+				copy(v[dst:dst+p.Dv], vPool[src:src+p.Dv])
+			}
 		}
 	}
+	workers := min(runtime.GOMAXPROCS(0), p.HeadsKV)
+	if workers < 2 || length*p.HeadsKV*(p.Dk+p.Dv) < parallelGather {
+		heads(0, p.HeadsKV)
+		return
+	}
+	var wg sync.WaitGroup
+	for w := range workers {
+		wg.Go(func() { heads(w*p.HeadsKV/workers, (w+1)*p.HeadsKV/workers) })
+	}
+	wg.Wait()
 }
+
+// parallelGather is the number of elements from which gatherInto copies
+// with several goroutines: 2^20, 8 MiB of float64, far above the cost of
+// starting them.
+const parallelGather = 1 << 20
 
 // scratchPools keep the buffer a finished AttendPages call gathered into,
 // for the next call, one pool per element type. Writing into memory the
@@ -230,6 +250,10 @@ func scratch[T num.Float](n int) (*[]T, *sync.Pool) {
 // lq = 1 is one decoding step; lq > 1 scores several new tokens at once
 // (a chunk of a prefill, or draft tokens to verify, see VerifyDraft), each
 // seeing the keys up to its own position.
+//
+// The gathered cache goes into a buffer kept for the next call (the
+// package documentation's Speed says why); a finished call holds no
+// reference to it, and every element is written before it is read.
 //
 // Special cases are those of Gather and attention.Decode, and:
 //

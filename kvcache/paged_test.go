@@ -134,3 +134,37 @@ func TestAttendPagesIsDecode(t *testing.T) {
 		}
 	}
 }
+
+// TestGatherLargeInParallel: a sequence large enough to be copied by
+// several goroutines (beyond 2^20 elements) is gathered exactly too, in
+// every pool and attention layout.
+func TestGatherLargeInParallel(t *testing.T) {
+	r := rand.New(rand.NewPCG(1, 2))
+	const length, hkv, d = 3001, 3, 128
+	for _, pl := range []kvcache.PoolLayout{kvcache.PagesFirst, kvcache.HeadsFirst} {
+		p := kvcache.Pool{Pages: 200, PageSize: 16, HeadsKV: hkv, Dk: d, Dv: d / 2, Layout: pl}
+		kPool, vPool := uniform(r, 200*16*hkv*d), uniform(r, 200*16*hkv*d/2)
+		table := r.Perm(200)[:188]
+		for _, l := range []attention.Layout{attention.HeadsMajor, attention.SeqMajor} {
+			k, v, err := kvcache.Gather(kPool, vPool, p, table, length, l)
+			ensure.NoError(t, err)
+			wrong := 0
+			for pos := range length {
+				page, slot := table[pos/16], pos%16
+				for g := range hkv {
+					for i := range d {
+						if k[at(l, 0, hkv, length, g, pos, d)+i] != kPool[poolAt(p, page, slot, g, d)+i] {
+							wrong++
+						}
+					}
+					for i := range d / 2 {
+						if v[at(l, 0, hkv, length, g, pos, d/2)+i] != vPool[poolAt(p, page, slot, g, d/2)+i] {
+							wrong++
+						}
+					}
+				}
+			}
+			expect.Equal(t, 0, wrong, "%v, %v: elements gathered wrong", pl, l)
+		}
+	}
+}
