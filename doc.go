@@ -17,6 +17,11 @@
 //	           grouped and multi-query; masks, bias, ALiBi slopes, soft-capping,
 //	           sink logits; the tiled online-softmax form and the merge of
 //	           partial results; decode against a cache
+//	kvcache    serving-time layouts of the key/value cache on attention: pages
+//	           of a pool with a page table per sequence, decoding split over
+//	           ranges of the cache and merged, a ring buffer for a sliding
+//	           window, packed sequences, one-pass scoring of draft tokens,
+//	           and the size of a cache
 //	posenc     position encodings: sinusoidal, rotary (both pairings, partial
 //	           rotation, tables, inverse), context scaling (interpolation,
 //	           NTK-aware, dynamic, YaRN with both ramps, per-frequency), ALiBi

@@ -112,11 +112,10 @@
 // average of 3 to 4 (wall time, ratios of medians): go test -bench . -count
 // 5 gave the paged step 1.27 and 1.53 times the contiguous one in two
 // runs, and five rounds run alternately 1.25 (the median of the rounds'
-// ratios, which ranged from 1.04 to 1.39). The contiguous step took 0.5 to
-// 0.8 s. Gathering is one pass over K and V, split over the kv heads
-// between goroutines, into a buffer kept for the next call: with a fresh
-// buffer for every call the paged step took about 5 times the contiguous
-// one there, the first touch of 1 GiB of new memory taking about ten
+// ratios, which ranged from 1.04 to 1.39). Gathering is one pass over K
+// and V, split over the kv heads between goroutines, into a buffer kept
+// for the next call: with a fresh buffer for every call the paged step
+// took about 5 times the contiguous one there, the first touch of 1 GiB of new memory taking about ten
 // times as long as copying into memory already touched. The first paged
 // call of a process still pays that once, and the benchmarks make one
 // call before they start the clock.

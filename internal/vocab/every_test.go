@@ -21,6 +21,7 @@ import (
 	_ "github.com/plumbref/plumb/compare"
 	_ "github.com/plumbref/plumb/ffn"
 	"github.com/plumbref/plumb/internal/vocab"
+	_ "github.com/plumbref/plumb/kvcache"
 	_ "github.com/plumbref/plumb/mask"
 	_ "github.com/plumbref/plumb/norm"
 	_ "github.com/plumbref/plumb/norm/normtest"
@@ -29,7 +30,7 @@ import (
 )
 
 // conventionDirs are the packages imported above, from the repository root.
-var conventionDirs = []string{"attention", "attention/attentiontest", "compare", "ffn", "mask", "norm", "norm/normtest", "npy", "posenc"}
+var conventionDirs = []string{"attention", "attention/attentiontest", "compare", "ffn", "kvcache", "mask", "norm", "norm/normtest", "npy", "posenc"}
 
 // call calls the method name of v with args and returns its results.
 func call(t *testing.T, v reflect.Value, name string, args ...any) []reflect.Value {
