@@ -26,6 +26,7 @@ const (
 // table, with what they compute.
 var measuredPackages = []struct{ dir, what string }{
 	{"attention", "attention forward and backward, softmax, log-sum-exp, merge"},
+	{"kvcache", "paged, split, ring-buffer and packed caches, draft verification"},
 	{"posenc", "rotary and sinusoidal encodings, ALiBi"},
 	{"norm", "LayerNorm, RMSNorm, fused residual add, forward and backward"},
 	{"ffn", "plain and gated layers, forward and backward (activations: the package's own table)"},

@@ -108,6 +108,9 @@
 //	ffn.Packing: how one fused matrix holds the gate and value projections
 //	  stacked         all gate units, then all value units
 //	  interleaved     gate and value units alternate: gate j is unit 2j, value j unit 2j + 1
+//	kvcache.PoolLayout: the memory order of a pool of key or value pages
+//	  pages-first     [pages, page size, heads, dim]: the heads of one position are contiguous
+//	  heads-first     [pages, heads, page size, dim]: each head's rows of a page are contiguous
 //	mask.ALiBiForm: which key distance ALiBi penalises
 //	  causal          −m·(p − j) for every key, the paper's formula; keys after the query get a positive bias
 //	  symmetric       −m·|p − j|: distance penalised both ways
@@ -191,6 +194,7 @@
 //
 //	attention  4.3e-15  Backward, d_q
 //	attention  1.0e-13  Backward (logits near ±1000), d_q
+//	kvcache    2.6e-16  AttendSplit, out
 //	posenc     1.3e-16  Rotary.Apply, y
 //	norm       8.1e-16  RMSNormBackward, dx
 //	ffn        5.6e-16  Backward, dweights

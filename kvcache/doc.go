@@ -103,6 +103,37 @@
 //	a tensor beyond MaxElements        ErrShape, before anything is allocated
 //	a size beyond the largest int      ErrSize
 //
+// # Accuracy
+//
+// Against the 50-digit golden cases of testdata/golden/kvcache (written by
+// testdata/gen/fam_kvcache.py, which lays the keys out by the definitions
+// above and computes attention over the logical keys in mpmath, sharing no
+// code with this package):
+//
+// Worst normwise relative error ‖got − want‖₂ / ‖want‖₂ over the golden cases, by function and output:
+//
+//	                out       lse
+//	AttendPages     2.4e-16   1.6e-16
+//	AttendSplit     2.6e-16   1.7e-16
+//	MergeSplits     1.9e-16   1.4e-16
+//	AttendRing      1.5e-16   1.3e-16
+//	AttendPacked    1.2e-16   1.6e-16
+//	VerifyDraft     1.9e-16   1.1e-16
+//	AttendPages32   1.1e-07   6.9e-08
+//	AttendSplit32   1.2e-07   7.3e-08
+//	MergeSplits32   1.0e-07   7.1e-08
+//	AttendRing32    9.9e-08   7.4e-08
+//	AttendPacked32  5.3e-08   5.0e-08
+//	VerifyDraft32   9.7e-08   4.9e-08
+//
+// The golden tests of this package measure the table and fail when it is out of date.
+//
+// AttendSplit is each split's partial result (an empty split's is checked
+// to be exactly 0 and −Inf); MergeSplits is the merge of a case's splits
+// against the golden whole decoding step. The rows with the suffix 32 are
+// the float32 twins on the inputs rounded to float32, against the same
+// float64 values: the size of plain float32 arithmetic, not an error.
+//
 // # Speed
 //
 // BenchmarkDecodePaged and BenchmarkDecodeContiguous time one decoding

@@ -12,6 +12,10 @@ import (
 	"strings"
 
 	"github.com/plumbref/plumb/internal/vocab"
+	// kvcache's conventions join the vocabulary of Conventions, which the
+	// golden generator spells its words from, though no operation takes
+	// them.
+	_ "github.com/plumbref/plumb/kvcache"
 )
 
 // A configuration type is a struct whose fields are its keys, each field

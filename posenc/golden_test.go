@@ -299,13 +299,7 @@ func TestGoldenALiBiBias(t *testing.T) {
 // writes a case for it.
 func TestGoldenWords(t *testing.T) {
 	var w golden.Words
-	for fam, cfg := range goldenConfigs {
-		for _, c := range golden.MustLoadFamily(t, "posenc", fam).Cases {
-			v := cfg()
-			ensure.NoError(t, c.DecodeConfig(v))
-			w.Note(v)
-		}
-	}
+	w.NoteFamilies(t, "posenc", goldenConfigs)
 	w.Require(t, "posenc.Layout", "posenc.Pairing", "posenc.Method", "posenc.Ramp", "mask.Align", "mask.ALiBiForm")
 }
 

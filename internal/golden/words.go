@@ -30,6 +30,23 @@ func (w *Words) Note(cfg any) {
 	w.walk(reflect.ValueOf(cfg))
 }
 
+// NoteFamilies notes the configuration of every case of the golden
+// families of pkg, each decoded into a new value of its family's type
+// (configs maps a family to a function returning a pointer to one); a
+// case that does not decode fails the test.
+func (w *Words) NoteFamilies(tb testing.TB, pkg string, configs map[string]func() any) {
+	tb.Helper()
+	for fam, cfg := range configs {
+		for _, c := range MustLoadFamily(tb, pkg, fam).Cases {
+			v := cfg()
+			if err := c.DecodeConfig(v); err != nil {
+				tb.Fatal(err)
+			}
+			w.Note(v)
+		}
+	}
+}
+
 func (w *Words) walk(v reflect.Value) {
 	switch v.Kind() {
 	case reflect.Pointer, reflect.Interface:
