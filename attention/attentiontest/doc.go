@@ -58,6 +58,29 @@
 //	realistic_prefill        8 query heads on 2 kv heads, 128 positions, head dimension 64: several tiles of keys
 //	realistic_decode         one query against 512 cached keys, head dimension 64
 //
+// # Paged caches
+//
+// RunPaged(t, PagedKernel{…}) runs a kernel that reads its keys and values
+// from pages of a pool through page tables (PagedProblem; the reference is
+// kvcache.AttendPages) through PagedCases, each as a subtest named
+// case/pool_layout/layout[/group], in this order:
+//
+//	pages_in_order      one sequence of 12 in pages 0, 1, 2 of 4 positions: the plain layout
+//	pages_shuffled      pages 6, 1, 7, 0, 3, 2 of a pool of 8: a kernel that reads page ⌊t/P⌋ instead of the table's entry reads pages 4 and 5
+//	last_page_partial   10 positions in pages of 4: the last page's slots 2 and 3 hold values that must not be read
+//	shared_prefix       two sequences share their first two pages (a common prefix) and differ after
+//	padded_table        table entries past the pages the length uses are −1: a kernel that reads them fails
+//	page_size_one       pages of one position in reverse order
+//	ragged_batch        four sequences of lengths 1, 16, 17 and 40 in pages of 16: one page exactly full, one with a single position
+//	one_position        a sequence of one position: the query sees only its own key
+//	chunk_of_queries    4 new queries at positions 16 … 19 of a sequence of 20: causal among themselves
+//	realistic_decode    8 query heads on 2 kv heads, head dimension 64, 512 positions in 32 of the 48 pages of 16, shuffled
+//
+// PagedSupports declares the pool layouts, layouts and group maps the
+// kernel implements, whether it takes several queries per sequence
+// (Chunks) and whether it returns the log-sum-exp; judging is as below,
+// the yardstick being kvcache.AttendPages32.
+//
 // # What is judged, and how closely
 //
 // The reference is posenc.Rotary.Apply on q (at the query positions) and k
@@ -103,6 +126,7 @@
 // examples/fastattn).
 //
 // Not covered: additive bias, ALiBi slopes, sink logits, packed sequences,
-// prefix masks and the backward pass; the attention package's own tests
+// prefix masks, the ring and split layouts of package kvcache and the
+// backward pass; the attention package's own tests
 // check those against its golden files.
 package attentiontest

@@ -14,6 +14,7 @@ import (
 // its reason (see DocListsEveryCase).
 func TestSuitesDocumentTheirCases(t *testing.T) {
 	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.Cases(), func(c attentiontest.Case) (string, string) { return c.Name, c.Why })
+	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.PagedCases(), func(c attentiontest.PagedCase) (string, string) { return c.Name, c.Why })
 	suite.DocListsEveryCase(t, "../../ffn/ffntest/ffntest.go", ffntest.Cases(), func(c ffntest.Case) (string, string) { return c.Name, c.Why })
 	suite.DocListsEveryCase(t, "../../norm/normtest/normtest.go", normtest.Cases(), func(c normtest.Case) (string, string) { return c.Name, c.Why })
 	suite.DocListsEveryCase(t, "../../posenc/posenctest/posenctest.go", posenctest.Cases(), func(c posenctest.Case) (string, string) { return c.Name, c.Why })
