@@ -81,6 +81,48 @@
 // (Chunks) and whether it returns the log-sum-exp; judging is as below,
 // the yardstick being kvcache.AttendPages32.
 //
+// # Rings, splits and packed sequences
+//
+// RunRing, RunSplit and RunPacked judge the other serving layouts of
+// package kvcache the same way, each against its kvcache reference, with
+// ServingSupports declaring the layouts, group maps and log-sum-exp. A
+// ring kernel (RingProblem) decodes the newest token against a ring of W
+// slots written at position mod W; its cases:
+//
+//	ring_filling                    3 tokens in a ring of 8: five slots hold values never written, which must not be read
+//	ring_full                       8 tokens in a ring of 8: every slot, none overwritten
+//	ring_wrapped                    9 tokens in a ring of 8: slot 0 holds position 8, the oldest position 0 is gone
+//	ring_far_past_wrap              100 tokens in a ring of 8: the window is positions 92 … 99
+//	ring_of_one                     a ring of one slot: the query sees only itself
+//	ring_realistic                  8 query heads on 2 kv heads, head dimension 64, 1000 tokens in a ring of 256
+//
+// A split kernel (SplitProblem) returns the partial output and
+// log-sum-exp of one range of keys for queries at their true positions;
+// the log-sum-exp is always judged, a range the queries cannot see being
+// output 0 and log-sum-exp −Inf:
+//
+//	split_first_half                keys 0 … 15 of 32 for the query at position 31
+//	split_second_half               keys 16 … 31 of 32: the range ends at the query's own key
+//	split_empty                     an empty range: output 0, log-sum-exp −Inf
+//	split_after_queries             keys 16 … 31 for the query at position 10: all hidden, output 0, log-sum-exp −Inf
+//	split_across_queries            4 queries at positions 12 … 15, keys 10 … 19: each sees a different part of the range
+//	split_one_key                   a range of one key
+//	split_realistic                 8 query heads on 2 kv heads, head dimension 64, keys 256 … 767 of 1024
+//
+// A packed kernel (PackedProblem) attends sequences packed token after
+// token, with separate running offsets for queries and keys:
+//
+//	packed_no_prefix                three sequences of 5, 1 and 7 tokens, keys the queries' own: a query that sees another sequence's keys fails
+//	packed_cached_prefixes          queries 2, 4 and 1 after cached prefixes of 7, 0 and 6 keys: a kernel that aligns the queries at the start fails
+//	packed_sequence_without_queries a sequence with keys but no queries between two others
+//	packed_single_tokens            four sequences of one token: each query sees only itself
+//	packed_realistic                8 query heads on 2 kv heads, head dimension 64, four sequences of 100, 37, 64 and 1 queries after prefixes of 0, 90, 16 and 200 keys
+//
+// A kernel that verifies drafted tokens in one pass is an attention
+// kernel with Lq drafts at the end of the cache, aligned at the end and
+// causal: Run's decode_step, chunked_prefill and window_decode are its
+// cases (kvcache.VerifyDraft is that call).
+//
 // # What is judged, and how closely
 //
 // The reference is posenc.Rotary.Apply on q (at the query positions) and k
@@ -125,8 +167,8 @@
 // catches a kernel with a deliberate slip (see ExampleRun and
 // examples/fastattn).
 //
-// Not covered: additive bias, ALiBi slopes, sink logits, packed sequences,
-// prefix masks, the ring and split layouts of package kvcache and the
-// backward pass; the attention package's own tests
+// Not covered: additive bias, ALiBi slopes, sink logits, the
+// packed-sequence mask in Run (RunPacked judges packed layouts), prefix
+// masks and the backward pass; the attention package's own tests
 // check those against its golden files.
 package attentiontest

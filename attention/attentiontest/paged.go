@@ -12,6 +12,7 @@ import (
 	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/internal/suite"
 	"github.com/plumbref/plumb/kvcache"
+	"github.com/plumbref/plumb/mask"
 )
 
 // PagedProblem is one call of a paged attention kernel as RunPaged poses
@@ -137,9 +138,12 @@ func shuffled(n int, seed uint64) []int {
 // RunPaged runs every case of PagedCases against a paged kernel, each as
 // a subtest named case/pool_layout/layout[/group], and judges the output
 // (and the log-sum-exp, when declared) against the float64 reference
-// kvcache.AttendPages. A float32 kernel is held to the yardstick of
-// kvcache.AttendPages32 (compare.MeasureYardstick, factor
-// compare.DefaultK) on the same inputs in the kernel's Format; a float64
+// kvcache.AttendPages. A float32 kernel is held to the yardstick
+// (compare.MeasureYardstick, factor compare.DefaultK) of two float32 forms
+// on the same inputs in the kernel's Format, the larger bound of the two:
+// kvcache.AttendPages32, and the gathered keys attended block by block
+// (attention.ForwardTiled32 over blocks of 16 keys), which sums in another
+// order, for the reason Run gives; a float64
 // kernel to 1e-12 normwise and 1e-12 times the largest reference
 // magnitude per element, as Run does.
 //
@@ -207,47 +211,121 @@ func (s PagedSupports) variants(c PagedCase) []suite.Variant[PagedProblem] {
 func runPaged[T conformance.TB[T], E compare.Float](t T, k PagedKernel[E], f compare.Format, c PagedCase, p PagedProblem, rng *rand.Rand) {
 	t.Helper()
 	pl, b := p.Pool, len(p.Tables)
-	q := f.RoundSlice(suite.Normal(rng, b*p.HeadsQ*p.Lq*pl.Dk, 1))
-	kp := f.RoundSlice(suite.Normal(rng, pl.Pages*pl.PageSize*pl.HeadsKV*pl.Dk, 1))
-	vp := f.RoundSlice(suite.Normal(rng, pl.Pages*pl.PageSize*pl.HeadsKV*pl.Dv, 1))
+	inputs := [][]float64{
+		f.RoundSlice(suite.Normal(rng, b*p.HeadsQ*p.Lq*pl.Dk, 1)),
+		f.RoundSlice(suite.Normal(rng, pl.Pages*pl.PageSize*pl.HeadsKV*pl.Dk, 1)),
+		f.RoundSlice(suite.Normal(rng, pl.Pages*pl.PageSize*pl.HeadsKV*pl.Dv, 1)),
+	}
 	o := p.options()
-	out, lse, err := kvcache.AttendPages(q, kp, vp, pl, p.Tables, p.Lengths, p.HeadsQ, p.Lq, o)
-	if err != nil {
-		t.Errorf("case %s (%s): the reference refused the problem: %v", c.Name, p, err)
-		return
-	}
-	gotOut, gotLSE, err := k.Attend(num.Convert[E](q), num.Convert[E](kp), num.Convert[E](vp), p)
-	if err != nil {
-		t.Errorf("case %s (%s): the kernel returned an error: %v", c.Name, p, err)
-		return
-	}
 	sh := attention.Shape{Batch: b, HeadsQ: p.HeadsQ, HeadsKV: pl.HeadsKV, Lq: p.Lq, Dk: pl.Dk, Dv: pl.Dv}
-	outShape, lseShape, outDims, lseDims := shapes(Problem{Shape: sh, Layout: p.Layout})
-	outDims, lseDims = strings.Replace(outDims, "batch", "sequence", 1), strings.Replace(lseDims, "batch", "sequence", 1)
-	var memo [][]float32
-	low := func(which int) func(in [][]float32) ([]float32, error) {
-		return func(in [][]float32) ([]float32, error) {
-			if memo == nil {
-				o32, l32, err := kvcache.AttendPages32(in[0], in[1], in[2], pl, p.Tables, p.Lengths, p.HeadsQ, p.Lq, o)
-				if err != nil {
-					return nil, err
-				}
-				memo = [][]float32{o32, l32}
-			}
-			return memo[which], nil
+	judgeServing(t, f, c.Name, p.String(), "sequence", servingRun[E]{
+		inputs: inputs, shape: sh, layout: p.Layout, lse: k.Supports.LSE,
+		ref: func(in [][]float64) ([]float64, []float64, error) {
+			return kvcache.AttendPages(in[0], in[1], in[2], pl, p.Tables, p.Lengths, p.HeadsQ, p.Lq, o)
+		},
+		refs32: []func(in [][]float32) ([]float32, []float32, error){
+			func(in [][]float32) ([]float32, []float32, error) {
+				return kvcache.AttendPages32(in[0], in[1], in[2], pl, p.Tables, p.Lengths, p.HeadsQ, p.Lq, o)
+			},
+			func(in [][]float32) ([]float32, []float32, error) { return p.tiled32(in) },
+		},
+		kernel: func(in [][]E) ([]E, []E, error) { return k.Attend(in[0], in[1], in[2], p) },
+	})
+}
+
+// tiled32 is the paged problem's second yardstick form: each sequence's
+// keys gathered (kvcache.Gather32) and attended by tiled32.
+func (p PagedProblem) tiled32(in [][]float32) (out, lse []float32, err error) {
+	pl := p.Pool
+	n := p.HeadsQ * p.Lq * pl.Dk
+	for b, table := range p.Tables {
+		k, v, err := kvcache.Gather32(in[1], in[2], pl, table, p.Lengths[b], p.Layout)
+		if err != nil {
+			return nil, nil, err
 		}
+		o := p.options()
+		o.Mask = mask.Causal()
+		s := attention.Shape{Batch: 1, HeadsQ: p.HeadsQ, HeadsKV: pl.HeadsKV, Lq: p.Lq, Lk: p.Lengths[b], Dk: pl.Dk, Dv: pl.Dv}
+		ob, lb, err := tiled32(in[0][b*n:(b+1)*n], k, v, s, o)
+		if err != nil {
+			return nil, nil, err
+		}
+		out, lse = append(out, ob...), append(lse, lb...)
 	}
-	inputs := [][]float64{q, kp, vp}
-	conv := p.String()
-	suite.Check[T, E](t, f, c.Name, conv, suite.Output{Name: "output", Dims: outDims, Shape: outShape, Ref: out, Got: compare.Widen(gotOut)},
-		inputs, low(0))
-	if !k.Supports.LSE {
+	return out, lse, nil
+}
+
+// servingRun is one subtest of a serving suite: its inputs (rounded to
+// the kernel's format), the reference and its float32 twin on them, the
+// kernel, and the shape and layout of the output rows.
+type servingRun[E compare.Float] struct {
+	inputs [][]float64
+	ref    func(in [][]float64) (out, lse []float64, err error)
+	// refs32 are the float32 yardstick runs: the reference's twin and a
+	// form that sums in another order (see tiled32).
+	refs32 []func(in [][]float32) (out, lse []float32, err error)
+	kernel func(in [][]E) (out, lse []E, err error)
+	shape  attention.Shape
+	layout attention.Layout
+	lse    bool // the kernel returns the log-sum-exp
+	// outShape, lseShape and their dims, when set, replace those of shape
+	// and layout (packed sequences: [token, head, dim]).
+	outShape, lseShape []int
+	outDims, lseDims   string
+}
+
+// judgeServing runs the reference and the kernel of r and judges the
+// output, and the log-sum-exp when declared, with suite.Check: a float32
+// kernel against the yardstick of r.ref32 (run once for both), a float64
+// kernel at the float64 tolerance. batch names the first dimension of the
+// outputs in the failure messages.
+func judgeServing[T conformance.TB[T], E compare.Float](t T, f compare.Format, name, conv, batch string, r servingRun[E]) {
+	t.Helper()
+	out, lse, err := r.ref(r.inputs)
+	if err != nil {
+		t.Errorf("case %s (%s): the reference refused the problem: %v", name, conv, err)
 		return
 	}
-	lf := f
+	in := make([][]E, len(r.inputs))
+	for i, x := range r.inputs {
+		in[i] = num.Convert[E](x)
+	}
+	gotOut, gotLSE, err := r.kernel(in)
+	if err != nil {
+		t.Errorf("case %s (%s): the kernel returned an error: %v", name, conv, err)
+		return
+	}
+	outShape, lseShape, outDims, lseDims := shapes(Problem{Shape: r.shape, Layout: r.layout})
+	outDims, lseDims = strings.Replace(outDims, "batch", batch, 1), strings.Replace(lseDims, "batch", batch, 1)
+	if r.outShape != nil {
+		outShape, lseShape, outDims, lseDims = r.outShape, r.lseShape, r.outDims, r.lseDims
+	}
+	memo := make([][][]float32, len(r.refs32))
+	low := func(which int) []func(in [][]float32) ([]float32, error) {
+		var runs []func(in [][]float32) ([]float32, error)
+		for form, ref := range r.refs32 {
+			runs = append(runs, func(in [][]float32) ([]float32, error) {
+				if memo[form] == nil {
+					o32, l32, err := ref(in)
+					if err != nil {
+						return nil, err
+					}
+					memo[form] = [][]float32{o32, l32}
+				}
+				return memo[form][which], nil
+			})
+		}
+		return runs
+	}
+	suite.Check[T, E](t, f, name, conv, suite.Output{Name: "output", Dims: outDims, Shape: outShape, Ref: out, Got: compare.Widen(gotOut)},
+		r.inputs, low(0)...)
+	if !r.lse {
+		return
+	}
+	lf := f // the log-sum-exp of a float32 kernel is float32 whatever its inputs
 	if suite.Is32[E]() {
 		lf = compare.Float32
 	}
-	suite.Check[T, E](t, lf, c.Name, conv, suite.Output{Name: "log-sum-exp", Dims: lseDims, Shape: lseShape, Ref: lse, Got: compare.Widen(gotLSE)},
-		inputs, low(1))
+	suite.Check[T, E](t, lf, name, conv, suite.Output{Name: "log-sum-exp", Dims: lseDims, Shape: lseShape, Ref: lse, Got: compare.Widen(gotLSE)},
+		r.inputs, low(1)...)
 }

@@ -15,6 +15,9 @@ import (
 func TestSuitesDocumentTheirCases(t *testing.T) {
 	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.Cases(), func(c attentiontest.Case) (string, string) { return c.Name, c.Why })
 	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.PagedCases(), func(c attentiontest.PagedCase) (string, string) { return c.Name, c.Why })
+	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.RingCases(), func(c attentiontest.RingCase) (string, string) { return c.Name, c.Why })
+	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.SplitCases(), func(c attentiontest.SplitCase) (string, string) { return c.Name, c.Why })
+	suite.DocListsEveryCase(t, "../../attention/attentiontest/doc.go", attentiontest.PackedCases(), func(c attentiontest.PackedCase) (string, string) { return c.Name, c.Why })
 	suite.DocListsEveryCase(t, "../../ffn/ffntest/ffntest.go", ffntest.Cases(), func(c ffntest.Case) (string, string) { return c.Name, c.Why })
 	suite.DocListsEveryCase(t, "../../norm/normtest/normtest.go", normtest.Cases(), func(c normtest.Case) (string, string) { return c.Name, c.Why })
 	suite.DocListsEveryCase(t, "../../posenc/posenctest/posenctest.go", posenctest.Cases(), func(c posenctest.Case) (string, string) { return c.Name, c.Why })
