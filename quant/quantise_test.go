@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/internal/expect"
 	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/surface"
@@ -338,5 +339,56 @@ func TestFloat32Twins(t *testing.T) {
 	expect.Empty(t, left)
 	for _, name := range []string{"EncodeMX", "Quantise", "SQNR", "WeightOnly"} {
 		expect.Contains(t, twinned, name)
+	}
+}
+
+func TestHugeEmptyShapesAreRefused(t *testing.T) {
+	// [2^40, 0] holds no element but would need 2^40 per-row scales.
+	_, err := Quantise(nil, 1<<40, 0, Scheme{Granularity: PerChannel})
+	expect.ErrorIs(t, err, ErrSize)
+	_, err = Dequantise(Tensor{Rows: 0, Cols: 1 << 40, Scheme: Scheme{Granularity: PerChannel, Channel: ChannelCols}})
+	expect.ErrorIs(t, err, ErrSize)
+	_, err = WeightOnly(nil, 1<<40, Tensor{Rows: 0, Cols: 1, Scales: []float64{1}}, 0)
+	expect.ErrorIs(t, err, ErrSize)
+}
+
+// Random, mostly invalid tensors and blocks: every call returns, with a
+// result or an error, and never panics.
+func TestNoPanicOnBadInput(t *testing.T) {
+	r := rand.New(rand.NewPCG(19, 20))
+	pick := func(vals ...float64) float64 { return vals[r.IntN(len(vals))] }
+	for range 3000 {
+		rows, cols := r.IntN(4)-1, r.IntN(4)-1
+		tn := Tensor{Rows: rows, Cols: cols, Scheme: Scheme{
+			Symmetry: Symmetry(r.IntN(3)), Granularity: Granularity(r.IntN(4)), Channel: Channel(r.IntN(3)),
+			Group: r.IntN(4) - 1, Width: Width(r.IntN(3)), Range: Range(r.IntN(3)), Rounding: Rounding(r.IntN(3)), Scale: ScaleFormat(r.IntN(5)),
+		}}
+		for range r.IntN(10) {
+			tn.Codes = append(tn.Codes, int8(r.IntN(256)-128))
+		}
+		for range r.IntN(4) {
+			tn.Scales = append(tn.Scales, pick(0, -1, 1, 0.5, math.NaN(), math.Inf(1), 0.1))
+			tn.Zeros = append(tn.Zeros, int8(r.IntN(20)-10))
+		}
+		if r.IntN(2) == 0 {
+			tn.Zeros = nil
+		}
+		_, _ = Dequantise(tn)
+		_, _ = Bound(tn)
+		_, _, _ = MatMulInt8(tn, tn)
+		_, _ = WeightOnly(make([]float64, r.IntN(10)), r.IntN(3), tn, compare.Format(r.IntN(8)-1))
+		x := make([]float64, r.IntN(10))
+		for i := range x {
+			x[i] = pick(0, 1, -1e300, 1e-300, math.NaN(), math.Inf(-1), 3.5)
+		}
+		_, _ = Quantise(x, rows, cols, tn.Scheme)
+		b := MXBlock{Element: Element(r.IntN(8)), Scale: uint8(r.IntN(256))}
+		for i := range b.Bits {
+			b.Bits[i] = uint8(r.IntN(256))
+		}
+		_, _ = DecodeMX([]MXBlock{b})
+		_, _ = BoundMX([]MXBlock{b})
+		_, _ = DotMX([]MXBlock{b}, []MXBlock{b})
+		_, _ = Unpack4(make([]byte, r.IntN(4)), r.IntN(8)-1, Packing{NibbleOrder(r.IntN(3)), NibbleCode(r.IntN(3))})
 	}
 }

@@ -57,12 +57,14 @@ func (s Scheme) check(fn string) error {
 }
 
 // checkShape validates a [rows, cols] shape for fn, and n, the length of
-// the slice that holds it, when n ≥ 0.
+// the slice that holds it, when n ≥ 0. Each dimension is bounded as well as
+// the product, for an empty tensor's per-row or per-column scales are as
+// many as its rows or columns.
 func checkShape(fn, what string, n, rows, cols int) error {
 	if rows < 0 || cols < 0 {
 		return fmt.Errorf("%w: %s: %s shape = [%d, %d]; want dimensions ≥ 0", ErrSize, fn, what, rows, cols)
 	}
-	if cols > 0 && rows > MaxElements/cols {
+	if rows > MaxElements || cols > MaxElements || cols > 0 && rows > MaxElements/cols {
 		return fmt.Errorf("%w: %s: %s shape = [%d, %d]; want at most MaxElements = %d elements", ErrSize, fn, what, rows, cols, MaxElements)
 	}
 	if n >= 0 && n != rows*cols {
