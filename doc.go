@@ -35,6 +35,10 @@
 //	           E5M2) with exact rounding, ULP distances, diff reports,
 //	           tolerances and the low-precision yardstick; helpers for
 //	           testing.TB and go-cmp
+//	quant      quantised tensors: integer quantisation and dequantisation
+//	           under explicit conventions (symmetry, granularity, width,
+//	           range, rounding, scale format), int4 packing, the OCP MX block
+//	           formats, int8 and weight-only products, SQNR
 //	gen        the pseudo-random inputs plumb gen writes, value for value:
 //	           seeded normal and uniform values
 //	npy        read and write NumPy .npy files, the exchange format with a

@@ -27,10 +27,11 @@ import (
 	_ "github.com/plumbref/plumb/norm/normtest"
 	_ "github.com/plumbref/plumb/npy"
 	_ "github.com/plumbref/plumb/posenc"
+	_ "github.com/plumbref/plumb/quant"
 )
 
 // conventionDirs are the packages imported above, from the repository root.
-var conventionDirs = []string{"attention", "attention/attentiontest", "compare", "ffn", "kvcache", "mask", "norm", "norm/normtest", "npy", "posenc"}
+var conventionDirs = []string{"attention", "attention/attentiontest", "compare", "ffn", "kvcache", "mask", "norm", "norm/normtest", "npy", "posenc", "quant"}
 
 // call calls the method name of v with args and returns its results.
 func call(t *testing.T, v reflect.Value, name string, args ...any) []reflect.Value {
