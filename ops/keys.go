@@ -12,10 +12,6 @@ import (
 	"strings"
 
 	"github.com/plumbref/plumb/internal/vocab"
-	// kvcache's conventions join the vocabulary of Conventions, which the
-	// golden generator spells its words from, though no operation takes
-	// them.
-	_ "github.com/plumbref/plumb/kvcache"
 )
 
 // A configuration type is a struct whose fields are its keys, each field
@@ -100,6 +96,8 @@ func scalarType(t reflect.Type) string {
 		return "bool"
 	case reflect.String:
 		return "string"
+	case reflect.Slice:
+		return "[" + scalarType(t.Elem()) + "]"
 	}
 	return t.String()
 }
