@@ -45,6 +45,17 @@
 // named above themselves, the same outputs more slowly
 // (TestFastFormsAreDirect).
 //
+// The kvcache operations (draft-attention, merge-splits, packed-attention,
+// paged-attention, ring-attention, split-attention) take the integers that
+// say where the keys are as configuration keys, not tensors, as the
+// positions of rotary do: a port dumps its page tables ("page_tables", one
+// list of page indices per sequence), lengths, split range ("start",
+// "end"), query position ("position"), ring fill ("tokens") and packed
+// offsets ("query_offsets", "key_offsets") into its configuration, and
+// only the float tensors as .npy files, so that the yardstick's rounding
+// never touches an index. Their help note gives the size of a key/value
+// cache (kvcache.CacheSize).
+//
 // # Configuration
 //
 // A configuration is one JSON object. It must hold "version": 1

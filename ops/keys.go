@@ -292,7 +292,7 @@ func (w Word) MarshalJSON() ([]byte, error) {
 }
 
 // Conventions lists every convention of the packages this program links
-// (this package links attention, mask, posenc, norm, ffn and compare),
+// (this package links attention, mask, posenc, norm, ffn, kvcache and compare),
 // sorted by name, with the operation keys that take its words.
 func Conventions() []Convention {
 	used := map[string][]string{}
