@@ -12,14 +12,21 @@ import (
 // attention-backward.
 type attentionConfig struct {
 	header
-	Layout  attention.Layout   `json:"layout" doc:"memory order of q, k, v, out and the gradients (batch first, head dimension last)"`
-	Group   attention.GroupMap `json:"group" doc:"which kv head each query head reads"`
-	Scale   float64            `json:"scale" doc:"multiplies q·k; positive and finite" default:"1/√dim"`
-	SoftCap float64            `json:"soft_cap" doc:"c > 0 replaces the scaled logit t by c·tanh(t/c)" default:"0 (none)"`
-	Mask    []mask.Spec        `json:"mask" doc:"masks, intersected; each an object with a \"kind\" and that kind's keys" default:"[] (every key visible)"`
+	Layout attention.Layout `json:"layout" doc:"memory order of q, k, v, out and the gradients (batch first, head dimension last)"`
+	scoring
+	Mask []mask.Spec `json:"mask" doc:"masks, intersected; each an object with a \"kind\" and that kind's keys" default:"[] (every key visible)"`
 	queryPositions
 	ALiBi    mask.ALiBiForm     `json:"alibi_form" doc:"with input slopes: the key distance d the bias −m·d penalises"`
 	EmptyRow attention.EmptyRow `json:"empty_row" doc:"output of a row that sees no key"`
+}
+
+// scoring are the keys that form the logits of one query head from its
+// keys, whatever the keys' memory order or positions: the attention
+// operations and those of kvcache take them.
+type scoring struct {
+	Group   attention.GroupMap `json:"group" doc:"which kv head each query head reads"`
+	Scale   float64            `json:"scale" doc:"multiplies q·k; positive and finite" default:"1/√dim"`
+	SoftCap float64            `json:"soft_cap" doc:"c > 0 replaces the scaled logit t by c·tanh(t/c)" default:"0 (none)"`
 }
 
 // queryPositions are the keys that place the queries among the keys, as
@@ -56,36 +63,8 @@ func (c *attentionConfig) setup(in Tensors) (attention.Shape, attention.Options,
 		return s, o, configAt(err, `key "mask"`)
 	}
 
-	dims := "[batch, heads, length, dim]"
-	if o.Layout == attention.SeqMajor {
-		dims = "[batch, length, heads, dim]"
-	}
-	q, err := rank(in, "q", 4, dims)
-	if err != nil {
+	if s, err = shapeOf(in, o.Layout, "q", "k", "v"); err != nil {
 		return s, o, err
-	}
-	k, err := rank(in, "k", 4, dims)
-	if err != nil {
-		return s, o, err
-	}
-	v, err := rank(in, "v", 4, dims)
-	if err != nil {
-		return s, o, err
-	}
-	hd, ld := 1, 2
-	if o.Layout == attention.SeqMajor {
-		hd, ld = 2, 1
-	}
-	s = attention.Shape{Batch: q[0], HeadsQ: q[hd], HeadsKV: k[hd], Lq: q[ld], Lk: k[ld], Dk: q[3], Dv: v[3]}
-	switch {
-	case k[0] != q[0]:
-		return s, o, fmt.Errorf("%w: input \"k\" has batch size %d; want %d, the batch size of \"q\"", ErrInput, k[0], q[0])
-	case v[0] != q[0]:
-		return s, o, fmt.Errorf("%w: input \"v\" has batch size %d; want %d, the batch size of \"q\"", ErrInput, v[0], q[0])
-	case k[3] != q[3]:
-		return s, o, fmt.Errorf("%w: input \"k\" has head dimension %d; want %d, the head dimension of \"q\"", ErrInput, k[3], q[3])
-	case v[hd] != k[hd] || v[ld] != k[ld]:
-		return s, o, fmt.Errorf("%w: input \"v\" has shape %v; want %d heads and %d keys, as \"k\" %v has", ErrInput, v, k[hd], k[ld], k)
 	}
 	if in.has("bias") {
 		b, err := rank(in, "bias", 4, "[batch or 1, heads_q or 1, queries, keys]")
@@ -97,15 +76,60 @@ func (c *attentionConfig) setup(in Tensors) (attention.Shape, attention.Options,
 			return s, o, fmt.Errorf("%w: input \"bias\" has shape %v; want [%d or 1, %d or 1, %d, %d]", ErrInput, b, s.Batch, s.HeadsQ, s.Lq, s.Lk)
 		}
 	}
+	err = perHead(in, s, &o)
+	return s, o, err
+}
+
+// shapeOf derives the attention shape from the inputs q, k and v (by
+// those names) in the layout, and checks that they fit together.
+func shapeOf(in Tensors, layout attention.Layout, qn, kn, vn string) (attention.Shape, error) {
+	var s attention.Shape
+	dims := "[batch, heads, length, dim]"
+	if layout == attention.SeqMajor {
+		dims = "[batch, length, heads, dim]"
+	}
+	q, err := rank(in, qn, 4, dims)
+	if err != nil {
+		return s, err
+	}
+	k, err := rank(in, kn, 4, dims)
+	if err != nil {
+		return s, err
+	}
+	v, err := rank(in, vn, 4, dims)
+	if err != nil {
+		return s, err
+	}
+	hd, ld := 1, 2
+	if layout == attention.SeqMajor {
+		hd, ld = 2, 1
+	}
+	s = attention.Shape{Batch: q[0], HeadsQ: q[hd], HeadsKV: k[hd], Lq: q[ld], Lk: k[ld], Dk: q[3], Dv: v[3]}
+	switch {
+	case k[0] != q[0]:
+		return s, fmt.Errorf("%w: input %q has batch size %d; want %d, the batch size of %q", ErrInput, kn, k[0], q[0], qn)
+	case v[0] != q[0]:
+		return s, fmt.Errorf("%w: input %q has batch size %d; want %d, the batch size of %q", ErrInput, vn, v[0], q[0], qn)
+	case k[3] != q[3]:
+		return s, fmt.Errorf("%w: input %q has head dimension %d; want %d, the head dimension of %q", ErrInput, kn, k[3], q[3], qn)
+	case v[hd] != k[hd] || v[ld] != k[ld]:
+		return s, fmt.Errorf("%w: input %q has shape %v; want %d heads and %d keys, as %q %v has", ErrInput, vn, v, k[hd], k[ld], kn, k)
+	}
+	return s, nil
+}
+
+// perHead puts the optional inputs slopes and sinks, one per query head
+// of s, in o.
+func perHead(in Tensors, s attention.Shape, o *attention.Options) error {
 	for _, n := range []string{"slopes", "sinks"} {
 		if in.has(n) {
 			if err := sameShape(in, n, []int{s.HeadsQ}, "one per query head"); err != nil {
-				return s, o, err
+				return err
 			}
 		}
 	}
 	o.Slopes, o.Sinks = in.data("slopes"), in.data("sinks")
-	return s, o, nil
+	return nil
 }
 
 // fastAttention reports whether the attention operations run the fast

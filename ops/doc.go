@@ -16,17 +16,23 @@
 //	alibi-slopes        posenc.ALiBiSlopes                  slopes
 //	attention-backward  attention.Backward                  dq, dk, dv (dsinks, dbias)
 //	attention-forward   attention.Forward                   out, lse
+//	draft-attention     kvcache.VerifyDraft                 out, lse
 //	ffn-backward        ffn.Backward                        dx (dw1, db1, dv, dc, dfused, dfused_bias, dw2, db2)
 //	ffn-forward         ffn.Forward                         y
 //	layernorm-backward  norm.LayerNormBackward              dx, dbias (dweight)
 //	layernorm-forward   norm.LayerNorm                      y
 //	logsumexp           attention.LogSumExp                 lse
+//	merge-splits        kvcache.MergeSplits                 out, lse
+//	packed-attention    kvcache.AttendPacked                out, lse
+//	paged-attention     kvcache.AttendPages                 out, lse
+//	ring-attention      kvcache.AttendRing                  out, lse
 //	rmsnorm-backward    norm.RMSNormBackward                dx (dweight)
 //	rmsnorm-forward     norm.RMSNorm                        y
 //	rotary-apply        posenc.Rotary.Apply / ApplyInverse  y
 //	rotary-tables       posenc.Rotary.Tables                cos, sin
 //	sinusoidal-table    posenc.Sinusoidal.Table             table
 //	softmax             attention.Softmax                   y
+//	split-attention     kvcache.AttendSplit                 out, lse
 //
 // Each Op documents its keys (Op.Keys) and tensors (Op.Inputs, Op.Outputs);
 // `plumb help OPERATION` prints them.
@@ -38,6 +44,17 @@
 // UseDirectForms(true), or plumb's -direct flag, runs the direct forms
 // named above themselves, the same outputs more slowly
 // (TestFastFormsAreDirect).
+//
+// The kvcache operations (draft-attention, merge-splits, packed-attention,
+// paged-attention, ring-attention, split-attention) take the integers that
+// say where the keys are as configuration keys, not tensors, as the
+// positions of rotary do: a port dumps its page tables ("page_tables", one
+// list of page indices per sequence), lengths, split range ("start",
+// "end"), query position ("position"), ring fill ("tokens") and packed
+// offsets ("query_offsets", "key_offsets") into its configuration, and
+// only the float tensors as .npy files, so that the yardstick's rounding
+// never touches an index. Their help note gives the size of a key/value
+// cache (kvcache.CacheSize).
 //
 // # Configuration
 //

@@ -2,9 +2,12 @@ package ops
 
 import (
 	"encoding/json"
+	"fmt"
+	"maps"
 	"math"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -49,6 +52,11 @@ const (
 	// since values there go down to 1e-282 and a normwise error would
 	// not see them.
 	activationTailBound = 8 * 0x1p-52
+	// kvcache/golden_test.go, goldenBound: the project target; every
+	// kvcache function makes attention's own calls, which measure below
+	// 1e-15 on cases of this size, so the bound fails on any real error (a
+	// wrong page, slot or offset moves whole rows).
+	kvcacheBound = 1e-14
 	// posenc/golden_test.go, tableBound: the angle formed in
 	// double-double, so math.Sincos and one or two roundings, 4 ulps of
 	// numbers of magnitude ≤ 1.
@@ -87,6 +95,23 @@ type goldenRun struct {
 	// bound is the bound for one output: a float64 bound on the normwise
 	// relative error, bitExact, or an elementwise bound.
 	bound func(c *golden.Case, config map[string]json.RawMessage, output string) any
+	// calls, when set, makes several calls of the operation of one case,
+	// or a call that set, inputs and outputs cannot say (the splits of one
+	// decoding step, each a call; their merge, whose inputs are the
+	// golden partial results): each call's set and outputs replace the
+	// run's.
+	calls func(t *testing.T, c *golden.Case, config map[string]json.RawMessage) []goldenCall
+}
+
+// goldenCall is one call of a run's operation on a case.
+type goldenCall struct {
+	set map[string]any
+	// unset are keys of the case's configuration this call does not take;
+	// omit are golden inputs of the run it does not take; in holds inputs
+	// made from the case.
+	unset, omit []string
+	in          Tensors
+	outputs     map[string]string
 }
 
 // goldenFamily maps one golden family to operations.
@@ -226,6 +251,7 @@ func goldenFamilies() []goldenFamily {
 		goldenFamily{pkg: "posenc", family: "alibi_bias", config: identity("queries", "keys", "align", "offset", "alibi_form"), inputs: identity("slopes"),
 			runs: []goldenRun{{op: "alibi-bias", inputs: []string{"slopes"}, outputs: identity("bias"), bound: exactly}}},
 	)
+	fams = append(fams, kvcacheFamilies()...)
 	for _, f := range []string{"rotary_apply", "scaling"} {
 		fams = append(fams, goldenFamily{pkg: "posenc", family: f,
 			config:       identity("rotated", "base", "pairing", "magnitude", "scaling", "offset"),
@@ -243,16 +269,93 @@ func goldenFamilies() []goldenFamily {
 	return fams
 }
 
+// kvcacheFamilies maps the golden families of package kvcache to its
+// operations.
+func kvcacheFamilies() []goldenFamily {
+	shapes := map[string]string{"heads_q": "the heads of q", "heads_kv": "the heads of the keys and values", "dk": "the head dimension of q and the keys",
+		"dv": "the head dimension of the values"}
+	with := func(more map[string]string) map[string]string {
+		m := maps.Clone(shapes)
+		maps.Copy(m, more)
+		return m
+	}
+	out := identity("out", "lse")
+	splits := func(t *testing.T, c *golden.Case, config map[string]json.RawMessage) [][2]int {
+		var sp [][2]int
+		ensure.NoError(t, json.Unmarshal(config["splits"], &sp), "%s: key \"splits\"", c)
+		return sp
+	}
+	// An empty split's partial result is exactly 0 and −Inf, which a
+	// normwise error cannot measure: it is checked bit for bit.
+	splitBound := func(c *golden.Case, config map[string]json.RawMessage, output string) any {
+		var sp [][2]int
+		_, n, _ := strings.Cut(output, "_")
+		i, err := strconv.Atoi(n)
+		if json.Unmarshal(config["splits"], &sp) == nil && err == nil && i < len(sp) && sp[i][0] == sp[i][1] {
+			return bitExact{}
+		}
+		return kvcacheBound
+	}
+	return []goldenFamily{
+		{pkg: "kvcache", family: "pages", config: map[string]string{"layout": "layout", "group": "group", "pool_layout": "pool_layout",
+			"tables": "page_tables", "lengths": "lengths"},
+			dropped: with(map[string]string{"pages": "the first dimension of k_pool", "page_size": "a dimension of k_pool",
+				"lq": "the queries of q"}),
+			inputs: identity("q", "k_pool", "v_pool"),
+			runs:   []goldenRun{{op: "paged-attention", inputs: []string{"q", "k_pool", "v_pool"}, outputs: out, bound: bound(kvcacheBound)}}},
+		{pkg: "kvcache", family: "splits", config: map[string]string{"pos": "position"},
+			dropped: with(map[string]string{"lq": "the queries of q", "lk": "the keys of k",
+				"splits": "the key ranges: each is a call of split-attention (its start and end), merged by merge-splits"}),
+			inputs: identity("q", "k", "v", "sinks"),
+			runs: []goldenRun{
+				{op: "split-attention", inputs: []string{"q", "k", "v", "sinks"}, bound: splitBound,
+					calls: func(t *testing.T, c *golden.Case, config map[string]json.RawMessage) []goldenCall {
+						var calls []goldenCall
+						for n, sp := range splits(t, c, config) {
+							call := goldenCall{set: map[string]any{"start": sp[0], "end": sp[1]},
+								outputs: map[string]string{fmt.Sprintf("out_%d", n): "out", fmt.Sprintf("lse_%d", n): "lse"}}
+							if n > 0 {
+								call.omit = []string{"sinks"} // a sink belongs to one split
+							}
+							calls = append(calls, call)
+						}
+						return calls
+					}},
+				{op: "merge-splits", bound: bound(kvcacheBound),
+					calls: func(t *testing.T, c *golden.Case, config map[string]json.RawMessage) []goldenCall {
+						stack := func(name string) Tensor {
+							var x Tensor
+							for n := range splits(t, c, config) {
+								d, shape, err := c.Float(fmt.Sprintf("%s_%d", name, n))
+								ensure.NoError(t, err)
+								x.Shape, x.Data = append([]int{n + 1}, shape...), append(x.Data, d...)
+							}
+							return x
+						}
+						return []goldenCall{{unset: []string{"position"}, outputs: out,
+							in: Tensors{"partial_out": stack("out"), "partial_lse": stack("lse")}}}
+					}},
+			}},
+		{pkg: "kvcache", family: "ring", config: map[string]string{"layout": "layout", "n": "tokens"},
+			dropped: with(map[string]string{"slots": "the third dimension of k_ring"}),
+			inputs:  identity("q", "k_ring", "v_ring"),
+			runs:    []goldenRun{{op: "ring-attention", inputs: []string{"q", "k_ring", "v_ring"}, outputs: out, bound: bound(kvcacheBound)}}},
+		{pkg: "kvcache", family: "packed", config: identity("query_offsets", "key_offsets"), dropped: shapes,
+			inputs: identity("q", "k", "v"),
+			runs:   []goldenRun{{op: "packed-attention", inputs: []string{"q", "k", "v"}, outputs: out, bound: bound(kvcacheBound)}}},
+		{pkg: "kvcache", family: "draft", config: identity("layout"),
+			dropped: with(map[string]string{"batch": "the batch size of q", "lq": "the drafts of q", "lk": "the keys of k_cache"}),
+			inputs:  identity("q", "k_cache", "v_cache", "k_draft", "v_draft"),
+			runs: []goldenRun{{op: "draft-attention", inputs: []string{"q", "k_cache", "v_cache", "k_draft", "v_draft"},
+				outputs: out, bound: bound(kvcacheBound)}}},
+	}
+}
+
 // goldenLeftOut are the golden families no operation computes, and why.
 var goldenLeftOut = map[string]string{
 	"attention/merge":       "attention.Merge, the combination of two partial attention results, is not an operation",
 	"compare/round":         "rounding to a number format is package compare's, not a kernel behind an operation",
 	"ffn/hidden_size":       "ffn.HiddenSize, an integer helper, is not an operation",
-	"kvcache/pages":         "the kvcache package is a library of the serving layouts with no operation; its own golden test checks these cases",
-	"kvcache/splits":        "the kvcache package has no operation; its own golden test checks these cases",
-	"kvcache/ring":          "the kvcache package has no operation; its own golden test checks these cases",
-	"kvcache/packed":        "the kvcache package has no operation; its own golden test checks these cases",
-	"kvcache/draft":         "the kvcache package has no operation; its own golden test checks these cases",
 	"mask/kinds":            "masks are no operation of their own: they enter through the \"mask\" key of attention, which the attention families check",
 	"norm/addnorm":          "the fused residual add and norm (norm.AddLayerNorm, norm.AddRMSNorm) is not an operation",
 	"posenc/ntk_base":       "posenc.NTKBase, a scalar helper, is not an operation (rotary scaling ntk-aware uses it, checked in the scaling family)",
@@ -352,53 +455,12 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 		o, err := Lookup(r.op)
 		ensure.NoError(t, err)
 		checkNestedKeys(t, c, o, base)
-		full := map[string]any{}
-		for k, v := range base {
-			full[k] = v
+		calls := []goldenCall{{set: r.set, outputs: r.outputs}}
+		if r.calls != nil {
+			calls = r.calls(t, c, config)
 		}
-		for k, v := range r.set {
-			full[k] = v
-		}
-		body, err := json.Marshal(full)
-		ensure.NoError(t, err)
-		in := Tensors{}
-		for _, name := range r.inputs {
-			if !c.Has(name) {
-				continue
-			}
-			x, shape, err := c.Float(name)
-			ensure.NoError(t, err)
-			in[f.inputs[name]] = Tensor{Shape: shape, Data: x}
-		}
-		for port, like := range r.ones {
-			_, shape, err := c.Float(like)
-			ensure.NoError(t, err)
-			ones := make([]float64, c.Inputs[like].Len())
-			for i := range ones {
-				ones[i] = 1
-			}
-			in[port] = Tensor{Shape: shape, Data: ones}
-		}
-		out, err := Run(r.op, body, in)
-		ensure.NoError(t, err, "%s: %s %s", c, r.op, body)
-		if onGoldenRun != nil {
-			onGoldenRun(t, r.op, body, in, out)
-		}
-		for name, port := range r.outputs {
-			if !c.Has(name) {
-				_, given := out[port]
-				expect.False(t, given, "%s: %s gives %q, which the golden case does not hold", c, r.op, port)
-				continue
-			}
-			want, shape, err := c.Float(name)
-			ensure.NoError(t, err)
-			got, ok := out[port]
-			if !expect.True(t, ok, "%s: %s gives no output %q for golden %q", c, r.op, port, name) {
-				continue
-			}
-			expect.Equal(t, shape, got.Shape, "%s: %s: output %q: shape", c, r.op, port)
-			checkGolden(t, c, r.op+": "+name, got.Data, want, r.bound(c, config, name))
-			checked[name] = true
+		for _, call := range calls {
+			runGoldenCall(t, f, c, config, base, r, call, checked)
 		}
 	}
 	for name := range c.Outputs {
@@ -406,6 +468,67 @@ func runGoldenCase(t *testing.T, f goldenFamily, c *golden.Case) {
 			continue
 		}
 		expect.True(t, checked[name], "%s: golden output %q is checked by no operation", c, name)
+	}
+}
+
+// runGoldenCall makes one call of run r's operation on case c and checks
+// its outputs, noting each golden output it checks in checked.
+func runGoldenCall(t *testing.T, f goldenFamily, c *golden.Case, config map[string]json.RawMessage, base map[string]any,
+	r goldenRun, call goldenCall, checked map[string]bool) {
+	t.Helper()
+	full := map[string]any{}
+	for k, v := range base {
+		full[k] = v
+	}
+	for _, k := range call.unset {
+		delete(full, k)
+	}
+	for k, v := range call.set {
+		full[k] = v
+	}
+	body, err := json.Marshal(full)
+	ensure.NoError(t, err)
+	in := Tensors{}
+	for n, x := range call.in {
+		in[n] = x
+	}
+	for _, name := range r.inputs {
+		if !c.Has(name) || slices.Contains(call.omit, name) {
+			continue
+		}
+		x, shape, err := c.Float(name)
+		ensure.NoError(t, err)
+		in[f.inputs[name]] = Tensor{Shape: shape, Data: x}
+	}
+	for port, like := range r.ones {
+		_, shape, err := c.Float(like)
+		ensure.NoError(t, err)
+		ones := make([]float64, c.Inputs[like].Len())
+		for i := range ones {
+			ones[i] = 1
+		}
+		in[port] = Tensor{Shape: shape, Data: ones}
+	}
+	out, err := Run(r.op, body, in)
+	ensure.NoError(t, err, "%s: %s %s", c, r.op, body)
+	if onGoldenRun != nil {
+		onGoldenRun(t, r.op, body, in, out)
+	}
+	for name, port := range call.outputs {
+		if !c.Has(name) {
+			_, given := out[port]
+			expect.False(t, given, "%s: %s gives %q, which the golden case does not hold", c, r.op, port)
+			continue
+		}
+		want, shape, err := c.Float(name)
+		ensure.NoError(t, err)
+		got, ok := out[port]
+		if !expect.True(t, ok, "%s: %s gives no output %q for golden %q", c, r.op, port, name) {
+			continue
+		}
+		expect.Equal(t, shape, got.Shape, "%s: %s: output %q: shape", c, r.op, port)
+		checkGolden(t, c, r.op+": "+name, got.Data, want, r.bound(c, config, name))
+		checked[name] = true
 	}
 }
 

@@ -12,10 +12,6 @@ import (
 	"strings"
 
 	"github.com/plumbref/plumb/internal/vocab"
-	// kvcache's conventions join the vocabulary of Conventions, which the
-	// golden generator spells its words from, though no operation takes
-	// them.
-	_ "github.com/plumbref/plumb/kvcache"
 )
 
 // A configuration type is a struct whose fields are its keys, each field
@@ -100,6 +96,8 @@ func scalarType(t reflect.Type) string {
 		return "bool"
 	case reflect.String:
 		return "string"
+	case reflect.Slice:
+		return "[" + scalarType(t.Elem()) + "]"
 	}
 	return t.String()
 }
@@ -294,7 +292,7 @@ func (w Word) MarshalJSON() ([]byte, error) {
 }
 
 // Conventions lists every convention of the packages this program links
-// (this package links attention, mask, posenc, norm, ffn and compare),
+// (this package links attention, mask, posenc, norm, ffn, kvcache and compare),
 // sorted by name, with the operation keys that take its words.
 func Conventions() []Convention {
 	used := map[string][]string{}

@@ -237,7 +237,7 @@ func outputNames(t Tensors) []string {
 
 func keyTests() []keyTest {
 	var all []keyTest
-	for _, f := range []func() []keyTest{attentionKeyTests, rotaryKeyTests, tableKeyTests, normKeyTests, activationKeyTests, ffnKeyTests, idiomKeyTests} {
+	for _, f := range []func() []keyTest{attentionKeyTests, rotaryKeyTests, tableKeyTests, normKeyTests, activationKeyTests, ffnKeyTests, idiomKeyTests, kvcacheKeyTests} {
 		all = append(all, f()...)
 	}
 	return all

@@ -64,8 +64,8 @@ type Key struct {
 	// Name is the key, or a dotted path to a key inside an object
 	// ("scaling.method") or inside the objects of a list ("mask[].kind").
 	Name string
-	// Type is "int", "number", "bool", "word", "[int]", "[number]",
-	// "object" or "[object]".
+	// Type is "int", "number", "bool", "word", "[int]", "[[int]]" (a list
+	// of lists), "[number]", "object" or "[object]".
 	Type string
 	// Default is the value used when the key is absent, "required" when it
 	// must be given, or a condition under which it is required.
@@ -101,6 +101,10 @@ type Op interface {
 	// Inputs and Outputs document the tensors, in a fixed order.
 	Inputs() []Port
 	Outputs() []Port
+	// Note is a paragraph about the operation beyond its keys and tensors
+	// (the memory a key/value cache of its shapes takes), which plumb help
+	// prints after them; "" for none.
+	Note() string
 	// Run decodes config and runs the float64 reference.
 	Run(config []byte, in Tensors) (Tensors, error)
 	// Run32 runs the float32 instantiation of the same kernel body on the
@@ -119,6 +123,7 @@ type Op interface {
 // instantiation, inputs already rounded to float32).
 type op[C any] struct {
 	name, summary   string
+	note            string
 	inputs, outputs []Port
 	run             func(c *C, in Tensors, single bool) (Tensors, error)
 	keys            []Key // from C, at registration
@@ -132,6 +137,7 @@ func (o *op[C]) Summary() string { return o.summary }
 func (o *op[C]) Keys() []Key     { return o.keys }
 func (o *op[C]) Inputs() []Port  { return o.inputs }
 func (o *op[C]) Outputs() []Port { return o.outputs }
+func (o *op[C]) Note() string    { return o.note }
 
 func (o *op[C]) Run(config []byte, in Tensors) (Tensors, error) {
 	return o.exec(config, in, false)

@@ -106,6 +106,32 @@ func cases() []opCase {
 				return Tensors{"x": tensor(r, 3, 8), "w1": tensor(r, 8, 10), "v": tensor(r, 8, 10), "c": tensor(r, 10),
 					"w2": tensor(r, 10, 8), "dy": tensor(r, 3, 8)}
 			}, []string{"dx", "dw1", "db1", "dv", "dc", "dw2", "db2"}},
+		{"paged-attention/shared-page", "paged-attention", `{"version":1,"pool_layout":"heads-first","page_tables":[[1,0],[1,2]],"lengths":[4,3]}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 2, 4, 1, 8), "k_pool": tensor(r, 3, 2, 2, 8), "v_pool": tensor(r, 3, 2, 2, 4), "sinks": tensor(r, 4)}
+			}, []string{"out", "lse"}},
+		{"split-attention", "split-attention", `{"version":1,"position":5,"start":2,"end":6}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 1, 4, 1, 8), "k": tensor(r, 1, 2, 6, 8), "v": tensor(r, 1, 2, 6, 8)}
+			}, []string{"out", "lse"}},
+		{"merge-splits", "merge-splits", "",
+			func(r *rand.Rand) Tensors {
+				return Tensors{"partial_out": tensor(r, 3, 1, 4, 1, 8), "partial_lse": tensor(r, 3, 1, 4, 1)}
+			}, []string{"out", "lse"}},
+		{"ring-attention/wrapped", "ring-attention", `{"version":1,"layout":"seq-major","tokens":9}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 2, 1, 4, 8), "k_ring": tensor(r, 2, 4, 2, 8), "v_ring": tensor(r, 2, 4, 2, 8),
+					"slopes": {[]int{4}, []float64{0.5, 0.25, 0.125, 0.0625}}}
+			}, []string{"out", "lse"}},
+		{"packed-attention/prefixes", "packed-attention", `{"version":1,"query_offsets":[0,2,5],"key_offsets":[0,4,9]}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 5, 4, 8), "k": tensor(r, 9, 2, 8), "v": tensor(r, 9, 2, 8)}
+			}, []string{"out", "lse"}},
+		{"draft-attention", "draft-attention", `{"version":1,"group":"cycle"}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"q": tensor(r, 1, 4, 3, 8), "k_cache": tensor(r, 1, 2, 5, 8), "v_cache": tensor(r, 1, 2, 5, 8),
+					"k_draft": tensor(r, 1, 2, 3, 8), "v_draft": tensor(r, 1, 2, 3, 8)}
+			}, []string{"out", "lse"}},
 		{"softmax", "softmax", `{"version":1}`,
 			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 2, 3, 7)} }, []string{"y"}},
 		{"logsumexp", "logsumexp", "",

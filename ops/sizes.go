@@ -20,6 +20,11 @@ import (
 //	rotary-tables      length (or the count of positions) · dim       ErrConfig
 //	attention-forward  batch · heads_q · queries (input "q") · dim_v  ErrInput
 //	ffn-forward        rows (input "x") · out (input "w2")            ErrInput
+//	paged-attention,   batch · heads_q · queries (input "q") · dim_v  ErrInput
+//	split-attention,
+//	ring-attention,
+//	draft-attention
+//	packed-attention   tokens_q · heads_q (input "q") · dim_v         ErrInput
 //
 // and each of those keys by itself is at most MaxElements, so that a key
 // multiplied by a 0 cannot allocate its own size either (the positions of

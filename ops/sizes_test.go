@@ -74,6 +74,24 @@ func sizeCases() []sizeCase {
 		{"attention out", "attention-forward", `{"version":1}`,
 			Tensors{"q": shaped(1, 1<<7, 1<<7, 1), "k": shaped(1, 1, 1, 1), "v": shaped(1, 1, 1, 1<<15)}, ErrInput,
 			`batch (input "q") · heads_q (input "q") · queries (input "q") · dim_v (input "v") = 1 · 128 · 128 · 32768 = 536870912; want at most MaxElements = 268435456, the most values output "out" may hold`},
+		// The kvcache operations take out's sizes as attention-forward
+		// does: 2^29 values from inputs of 2^14 and 2^15.
+		{"paged out", "paged-attention", `{"version":1,"page_tables":[[0]],"lengths":[1]}`,
+			Tensors{"q": shaped(1, 1<<7, 1<<7, 1), "k_pool": shaped(1, 1, 1, 1), "v_pool": shaped(1, 1, 1, 1<<15)}, ErrInput,
+			`batch (input "q") · heads_q (input "q") · queries (input "q") · dim_v (input "v_pool") = 1 · 128 · 128 · 32768 = 536870912; want at most MaxElements`},
+		{"split out", "split-attention", `{"version":1,"position":0,"start":0,"end":1}`,
+			Tensors{"q": shaped(1, 1<<7, 1<<7, 1), "k": shaped(1, 1, 1, 1), "v": shaped(1, 1, 1, 1<<15)}, ErrInput,
+			`dim_v (input "v") = 1 · 128 · 128 · 32768 = 536870912; want at most MaxElements`},
+		{"ring out", "ring-attention", `{"version":1,"tokens":1}`,
+			Tensors{"q": shaped(1, 1<<14, 1, 1), "k_ring": shaped(1, 1, 1, 1), "v_ring": shaped(1, 1, 1, 1<<15)}, ErrInput,
+			`dim_v (input "v_ring") = 1 · 16384 · 1 · 32768 = 536870912; want at most MaxElements`},
+		{"draft out", "draft-attention", `{"version":1}`,
+			Tensors{"q": shaped(1, 1<<7, 1<<7, 1), "k_cache": shaped(1, 1, 1, 1), "v_cache": shaped(1, 1, 1, 1<<15),
+				"k_draft": shaped(1, 1, 1<<7, 1), "v_draft": shaped(1, 1, 1<<7, 1<<15)}, ErrInput,
+			`dim_v (input "v_cache") = 1 · 128 · 128 · 32768 = 536870912; want at most MaxElements`},
+		{"packed out", "packed-attention", `{"version":1,"query_offsets":[0,16384],"key_offsets":[0,16384]}`,
+			Tensors{"q": shaped(1<<14, 1, 1), "k": shaped(1, 1, 1), "v": shaped(1, 1, 1<<15)}, ErrInput,
+			`tokens_q (input "q") · heads_q (input "q") · dim_v (input "v") = 16384 · 1 · 32768 = 536870912; want at most MaxElements`},
 		// y is [rows, out]: x gives the rows (2^14 of 1 value), w2 the out
 		// (2^15): 2^29 values from inputs of 2^14 and 2^15.
 		{"ffn y", "ffn-forward", `{"version":1,"activation":"relu","layout":"in-by-out"}`,
@@ -113,6 +131,7 @@ func TestEveryOpHasASizeRule(t *testing.T) {
 		"layernorm-backward": "dx has the shape of x, dweight and dbias that of a row of x",
 		"rmsnorm-backward":   "dx has the shape of x, dweight that of a row of x",
 		"attention-backward": "each gradient has the shape of its input (dsinks that of sinks, dbias that of bias)",
+		"merge-splits":       "out and lse are partial_out and partial_lse without their first dimension",
 		"ffn-backward":       "dx has the shape of x, each weight gradient that of its weight, db1 and db2 that of a row of w2",
 	}
 	checked := map[string]bool{}

@@ -374,4 +374,12 @@ func writeOpHelp(w io.Writer, o ops.Op) {
 	}
 	port("inputs (NAME=FILE; plumb help files)", o.Inputs())
 	port("outputs (written as NAME.npy, float64)", o.Outputs())
+	if n := o.Note(); n != "" {
+		fmt.Fprintf(w, "\nnote:\n%s\n", indent(n, "  "))
+	}
+}
+
+// indent puts prefix before every line of s.
+func indent(s, prefix string) string {
+	return prefix + strings.ReplaceAll(s, "\n", "\n"+prefix)
 }

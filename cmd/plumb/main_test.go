@@ -500,7 +500,16 @@ func TestHelp(t *testing.T) {
 		for _, p := range append(op.Inputs(), op.Outputs()...) {
 			expect.Contains(t, oh, p.Name)
 		}
+		// An operation's note, if any, is printed after its tensors, every
+		// line indented.
+		if note := op.Note(); note != "" {
+			expect.Contains(t, oh, "\nnote:\n  "+strings.ReplaceAll(note, "\n", "\n  ")+"\n", "plumb help %s", n)
+		} else {
+			expect.NotContains(t, oh, "\nnote:", "plumb help %s", n)
+		}
 	}
+	oh, _ := must(t, dir, 0, "help", "paged-attention")
+	expect.Contains(t, oh, "131072 bytes", "plumb help paged-attention gives the cache size of a position")
 	// plumb help conventions lists every word of every convention, with
 	// its meaning, as the types declare them.
 	o, _ = must(t, dir, 0, "help", "conventions")
