@@ -83,9 +83,13 @@ var perHeadInputs = []Port{
 // withPerHead appends the optional per-head inputs to ports.
 func withPerHead(ports ...Port) []Port { return append(ports, perHeadInputs...) }
 
-var kvOutputs = []Port{
-	{Name: "out", Doc: "output, [batch, heads_q, queries, dim_v] or [batch, queries, heads_q, dim_v]"},
-	{Name: "lse", Doc: "natural log-sum-exp of each row, [batch, heads_q, queries] or [batch, queries, heads_q]"},
+// kvOutputs are the outputs of the decoding operations, first is the
+// name of their first dimension ("batch", "sequences").
+func kvOutputs(first string) []Port {
+	return []Port{
+		{Name: "out", Doc: fmt.Sprintf("output, [%s, heads_q, queries, dim_v] or [%[1]s, queries, heads_q, dim_v]", first)},
+		{Name: "lse", Doc: fmt.Sprintf("natural log-sum-exp of each row, [%s, heads_q, queries] or [%[1]s, queries, heads_q]", first)},
+	}
 }
 
 // cacheNote is the note of the kvcache operations: the memory of a
@@ -120,7 +124,7 @@ func init() {
 			Port{Name: "q", Doc: "queries, [sequences, heads_q, queries, dim] (heads-major) or [sequences, queries, heads_q, dim] (seq-major), at the last positions of their sequence"},
 			Port{Name: "k_pool", Doc: "key pages, [pages, page_size, heads_kv, dim] (pages-first) or [pages, heads_kv, page_size, dim] (heads-first)"},
 			Port{Name: "v_pool", Doc: "value pages, [pages, page_size, heads_kv, dim_v] or [pages, heads_kv, page_size, dim_v]"}),
-		outputs: kvOutputs,
+		outputs: kvOutputs("sequences"),
 		run:     runPaged,
 	})
 	register(&op[splitConfig]{
@@ -131,7 +135,7 @@ func init() {
 			Port{Name: "q", Doc: "queries, [batch, heads_q, queries, dim] (heads-major) or [batch, queries, heads_q, dim] (seq-major)"},
 			Port{Name: "k", Doc: "the whole cache's keys, [batch, heads_kv, keys, dim] or [batch, keys, heads_kv, dim]"},
 			Port{Name: "v", Doc: "the whole cache's values, [batch, heads_kv, keys, dim_v] or [batch, keys, heads_kv, dim_v]"}),
-		outputs: kvOutputs,
+		outputs: kvOutputs("batch"),
 		run:     runSplit,
 	})
 	register(&op[mergeConfig]{
@@ -156,7 +160,7 @@ func init() {
 			Port{Name: "q", Doc: "the newest position's queries, [batch, heads_q, 1, dim] (heads-major) or [batch, 1, heads_q, dim] (seq-major)"},
 			Port{Name: "k_ring", Doc: "the ring's keys, [batch, heads_kv, slots, dim] or [batch, slots, heads_kv, dim], position p in slot p mod slots"},
 			Port{Name: "v_ring", Doc: "the ring's values, [batch, heads_kv, slots, dim_v] or [batch, slots, heads_kv, dim_v]"}),
-		outputs: kvOutputs,
+		outputs: kvOutputs("batch"),
 		run:     runRing,
 	})
 	register(&op[packedConfig]{
@@ -183,7 +187,7 @@ func init() {
 			Port{Name: "v_cache", Doc: "cached values, [batch, heads_kv, keys, dim_v] or [batch, keys, heads_kv, dim_v]"},
 			Port{Name: "k_draft", Doc: "the drafts' keys, [batch, heads_kv, drafts, dim] or [batch, drafts, heads_kv, dim]"},
 			Port{Name: "v_draft", Doc: "the drafts' values, [batch, heads_kv, drafts, dim_v] or [batch, drafts, heads_kv, dim_v]"}),
-		outputs: kvOutputs,
+		outputs: kvOutputs("batch"),
 		run:     runDraft,
 	})
 }
