@@ -374,7 +374,7 @@ func TestReportTextWidth(t *testing.T) {
 
 type failWriter struct{}
 
-var errWrite = expect.AnError
+var errWrite = expect.ErrAny
 
 func (failWriter) Write([]byte) (int, error) { return 0, errWrite }
 

@@ -36,8 +36,8 @@ type T interface {
 	Errorf(format string, args ...any)
 }
 
-// AnError is an error to hand to code under test where any error will do.
-var AnError = errors.New("expect.AnError: an error for tests")
+// ErrAny is an error to hand to code under test where any error will do.
+var ErrAny = errors.New("expect.ErrAny: an error for tests")
 
 // fail reports a failed check: its name, what was seen and the caller's
 // message.

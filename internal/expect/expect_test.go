@@ -71,8 +71,8 @@ func TestChecks(t *testing.T) {
 		{"NotNil", func(t expect.T) bool { return expect.NotNil(t, new(int)) },
 			func(t expect.T) bool { return expect.NotNil(t, map[int]int(nil)) }},
 		{"NoError", func(t expect.T) bool { return expect.NoError(t, nil) },
-			func(t expect.T) bool { return expect.NoError(t, expect.AnError) }},
-		{"Error", func(t expect.T) bool { return expect.Error(t, expect.AnError) },
+			func(t expect.T) bool { return expect.NoError(t, expect.ErrAny) }},
+		{"Error", func(t expect.T) bool { return expect.Error(t, expect.ErrAny) },
 			func(t expect.T) bool { return expect.Error(t, nil) }},
 		{"ErrorIs", func(t expect.T) bool { return expect.ErrorIs(t, wrapped, fs.ErrNotExist) },
 			func(t expect.T) bool { return expect.ErrorIs(t, wrapped, fs.ErrExist) }},
@@ -187,7 +187,7 @@ func TestEnsureStops(t *testing.T) {
 	if r.stopped || len(r.failures) != 0 {
 		t.Fatalf("checks that hold stopped the test or reported %q", r.failures)
 	}
-	ensure.ErrorIs(&r, expect.AnError, fs.ErrClosed, "closing")
+	ensure.ErrorIs(&r, expect.ErrAny, fs.ErrClosed, "closing")
 	if !r.stopped || len(r.failures) != 1 || !strings.HasSuffix(r.failures[0], "message: closing") {
 		t.Fatalf("a failed check: stopped %v, reported %q", r.stopped, r.failures)
 	}
