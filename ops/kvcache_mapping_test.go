@@ -144,23 +144,11 @@ func kvcacheKeyTests() []keyTest {
 			values   []attnKeyValue
 		}{
 			{key: "group", why: "4 query heads on 2 kv heads: blocks and cycle give heads 1 and 2 other keys",
-				values: []attnKeyValue{
-					{value: leftOut, same: "blocks"},
-					{value: "blocks", body: `"group":"blocks"`, o: attention.Options{Group: attention.GroupBlocks}},
-					{value: "cycle", body: `"group":"cycle"`, o: attention.Options{Group: attention.GroupCycle}},
-				}},
+				values: groupValues},
 			{key: "scale", why: "the default 1/√4 = 0.5, 0.25 and 2 scale nonzero logits differently",
-				values: []attnKeyValue{
-					{value: leftOut},
-					{value: "0.25", body: `"scale":0.25`, o: attention.Options{Scale: 0.25}},
-					{value: "2", body: `"scale":2`, o: attention.Options{Scale: 2}},
-				}},
+				values: scaleValues},
 			{key: "soft_cap", why: "logits of random unit-range vectors of 4: caps of 0.5 and 2 bend them by different amounts, no cap leaves them",
-				values: []attnKeyValue{
-					{value: leftOut},
-					{value: "0.5", body: `"soft_cap":0.5`, o: attention.Options{SoftCap: 0.5}},
-					{value: "2", body: `"soft_cap":2`, o: attention.Options{SoftCap: 2}},
-				}},
+				values: softCapValues},
 		}
 		if g.op != "packed-attention" {
 			shared = append(shared, struct {

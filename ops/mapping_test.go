@@ -27,6 +27,26 @@ import (
 // read as another key, on the way from the configuration to the kernel
 // fails here.
 
+// The values of the attention keys group, scale and soft_cap, shared by
+// every operation that takes them (the attention and kvcache operations).
+var (
+	groupValues = []attnKeyValue{
+		{value: leftOut, same: "blocks"},
+		{value: "blocks", body: `"group":"blocks"`, o: attention.Options{Group: attention.GroupBlocks}},
+		{value: "cycle", body: `"group":"cycle"`, o: attention.Options{Group: attention.GroupCycle}},
+	}
+	scaleValues = []attnKeyValue{
+		{value: leftOut},
+		{value: "0.25", body: `"scale":0.25`, o: attention.Options{Scale: 0.25}},
+		{value: "2", body: `"scale":2`, o: attention.Options{Scale: 2}},
+	}
+	softCapValues = []attnKeyValue{
+		{value: leftOut},
+		{value: "0.5", body: `"soft_cap":0.5`, o: attention.Options{SoftCap: 0.5}},
+		{value: "2", body: `"soft_cap":2`, o: attention.Options{SoftCap: 2}},
+	}
+)
+
 // leftOut is the value of a key that the configuration leaves out.
 const leftOut = "(left out)"
 
@@ -364,23 +384,11 @@ func attentionKeyTests() []keyTest {
 				{value: "seq-major", body: `"layout":"seq-major"`, o: attention.Options{Layout: attention.SeqMajor}},
 			}},
 		{key: "group", why: "4 query heads on 2 kv heads: blocks gives heads 0, 1, 2, 3 kv heads 0, 0, 1, 1, cycle 0, 1, 0, 1, so heads 1 and 2 read other keys",
-			values: []attnKeyValue{
-				{value: leftOut, same: "blocks"},
-				{value: "blocks", body: `"group":"blocks"`, o: attention.Options{Group: attention.GroupBlocks}},
-				{value: "cycle", body: `"group":"cycle"`, o: attention.Options{Group: attention.GroupCycle}},
-			}},
+			values: groupValues},
 		{key: "scale", why: "the default 1/√4 = 0.5, 0.25 and 2 scale nonzero logits differently",
-			values: []attnKeyValue{
-				{value: leftOut},
-				{value: "0.25", body: `"scale":0.25`, o: attention.Options{Scale: 0.25}},
-				{value: "2", body: `"scale":2`, o: attention.Options{Scale: 2}},
-			}},
+			values: scaleValues},
 		{key: "soft_cap", why: "scaled logits q·k/2 up to 2 in magnitude: caps of 0.5 and 2 bend them by different amounts, no cap leaves them",
-			values: []attnKeyValue{
-				{value: leftOut},
-				{value: "0.5", body: `"soft_cap":0.5`, o: attention.Options{SoftCap: 0.5}},
-				{value: "2", body: `"soft_cap":2`, o: attention.Options{SoftCap: 2}},
-			}},
+			values: softCapValues},
 		{key: "mask", why: "queries at key positions 2, 3, 4 of 5: every key, the causal keys, and a window of 2 inside them are different key sets",
 			values: []attnKeyValue{
 				{value: leftOut, same: "[]"},
