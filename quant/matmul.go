@@ -45,7 +45,10 @@ import (
 //	a per-group scheme, a per-column a or a per-row b  error ErrOption
 //	and those of Dequantise for each operand
 func MatMulInt8(a, b Tensor) (acc []int32, out []float64, err error) {
-	const fn = "MatMulInt8"
+	return matMulInt8("MatMulInt8", a, b)
+}
+
+func matMulInt8(fn string, a, b Tensor) (acc []int32, out []float64, err error) {
 	ga, err := a.check(fn)
 	if err != nil {
 		return nil, nil, err
