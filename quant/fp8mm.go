@@ -76,9 +76,6 @@ func (m *FP8Matrix) check(fn, arg string) ([]float64, error) {
 // row-major, each exact in float64 (see FP8Matrix). A NaN pattern gives
 // NaN; an E5M2 infinity gives ±Inf.
 //
-// DecodeFP8 has no float32 twin (codes in, exact float64 out; see
-// Dequantise).
-//
 // Special cases are:
 //
 //	Rows or Cols = 0            empty result
@@ -101,10 +98,6 @@ func DecodeFP8(m FP8Matrix) ([]float64, error) { return m.check("DecodeFP8", "m"
 // or any other compare.Format, with that format's overflow
 // (compare.Format.Round). A term with a NaN or infinite code gives the
 // float64 sum of the products (NaN or ±Inf) rounded to out.
-//
-// MatMulFP8 has no float32 twin: its inputs are codes and its result is
-// rounded once to the format asked for (compare.Float32 for a float32
-// caller, held exactly in float64).
 //
 // Special cases are:
 //
@@ -188,4 +181,54 @@ func MatMulInt8To(a, b Tensor, out compare.Format) (acc []int32, y []float64, er
 		}
 	}
 	return acc, y, nil
+}
+
+// narrowOut is the output format of a float32 twin: out, or float32 for
+// compare.Float64, which float32 cannot hold.
+func narrowOut(out compare.Format) compare.Format {
+	if out == compare.Float64 {
+		return compare.Float32
+	}
+	return out
+}
+
+// toFloat32 converts values that are already values of a format no wider
+// than float32 (exactly), or rounds float64 values once.
+func toFloat32(x []float64) []float32 {
+	if x == nil {
+		return nil
+	}
+	y := make([]float32, len(x))
+	for i, v := range x {
+		y[i] = float32(v)
+	}
+	return y
+}
+
+// DecodeFP832 is DecodeFP8 with each exact value rounded once to float32.
+//
+// Special cases are those of DecodeFP8.
+func DecodeFP832(m FP8Matrix) ([]float32, error) {
+	x, err := m.check("DecodeFP832", "m")
+	return toFloat32(x), err
+}
+
+// MatMulFP832 is MatMulFP8 with its result held in float32: the exact sums
+// rounded once to out, and out = compare.Float64, which float32 cannot
+// hold, taken as compare.Float32.
+//
+// Special cases are those of MatMulFP8.
+func MatMulFP832(a, b FP8Matrix, out compare.Format) ([]float32, error) {
+	y, err := MatMulFP8(a, b, narrowOut(out))
+	return toFloat32(y), err
+}
+
+// MatMulInt8To32 is MatMulInt8To with its result held in float32: the
+// exact products rounded once to out, and out = compare.Float64 taken as
+// compare.Float32.
+//
+// Special cases are those of MatMulInt8To.
+func MatMulInt8To32(a, b Tensor, out compare.Format) (acc []int32, y []float32, err error) {
+	acc, y64, err := MatMulInt8To(a, b, narrowOut(out))
+	return acc, toFloat32(y64), err
 }
