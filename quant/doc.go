@@ -69,6 +69,30 @@
 // multiplies float64 (WeightOnly32: float32) activations by exactly
 // dequantised int4 or int8 weights, the exact sums rounded once to an
 // output format of package compare (float64, float32, binary16, bfloat16).
+// MatMulInt8To rounds MatMulInt8's rescaled result once to such a format.
+//
+// MatMulFP8 multiplies two FP8Matrix operands, E4M3 or E5M2 codes (OCP
+// 8-bit Floating Point Specification (OFP8), revision 1.0, 2023, decoded
+// through package compare) with float32 scales per tensor, per row of the
+// left operand or per column of the right: Σₖ (va·sa)(vb·sb), every term
+// exact, the sum exact and rounded once to the chosen output format.
+// DecodeFP8 gives the operands' exact values.
+//
+// # Quantised caches and attention
+//
+// A CacheTensor is a [Batch, Heads, Len, Dim] key or value cache whose
+// elements are int8, E4M3 or E5M2 codes (CacheCode) with float32 scales
+// per tensor, per head or per token (CacheScaling), each element c·s exact
+// in float64 (DecodeCache). QuantiseCache chooses a block's scale as
+// amax/qmax rounded upward to float32 (qmax 127, 448, 57344) and each code
+// as the nearest to x/s, decided exactly; AppendCache appends new tokens
+// to a per-token cache, quantising each new row with its own scale and
+// keeping what the cache holds bit for bit. Attend computes softmax
+// attention (Vaswani et al. 2017, Eq. (1); grouped heads as Ainslie et al.
+// 2023) in float64 on the exactly dequantised cache, and with ProbCode
+// e4m3 or e5m2 models a kernel that quantises the unnormalised weights
+// exp(x − max x) to FP8 with the fixed scale 1/448 or 1/57344 before their
+// product with V; Attend32 is its float32 yardstick.
 //
 // # Error measures
 //
@@ -95,7 +119,9 @@
 //
 // Every function that takes or returns float tensors has a float32 twin
 // with the suffix 32, a generic body over float32 and float64: Quantise32,
-// EncodeMX32, WeightOnly32 and SQNR32. Functions whose inputs are codes and
+// EncodeMX32, WeightOnly32 and SQNR32, QuantiseCache32, AppendCache32 and
+// Attend32; DecodeFP832, DecodeCache32, MatMulFP832 and MatMulInt8To32
+// round their exact (or once-rounded) results once to float32. Functions whose inputs are codes and
 // whose float64 outputs are exact or rounded once (Dequantise, Bound,
 // DecodeMX, BoundMX, DotMX, MatMulInt8) have none: a float32 caller rounds
 // their result once (compare.Narrow), which no float32 arithmetic inside
