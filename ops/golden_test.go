@@ -361,6 +361,10 @@ var goldenLeftOut = map[string]string{
 	"posenc/ntk_base":       "posenc.NTKBase, a scalar helper, is not an operation (rotary scaling ntk-aware uses it, checked in the scaling family)",
 	"posenc/yarn_magnitude": "posenc.YaRNMagnitude, a scalar helper, is not an operation (it gives rotary's magnitude key, a number)",
 	"posenc/sinusoidal_add": "posenc.Sinusoidal.Add is not an operation (sinusoidal-table is, checked in sinusoidal_table)",
+	"quant/fp8_matmul":      "the quantised products of package quant are not operations: their inputs are codes and scales",
+	"quant/int8_matmul_to":  "the quantised products of package quant are not operations: their inputs are codes and scales",
+	"quant/quant_cache":     "quantising a key/value cache (quant.QuantiseCache, quant.AppendCache) is not an operation",
+	"quant/quant_attention": "attention on a quantised cache (quant.Attend) is not an operation: its inputs are codes and scales",
 }
 
 // TestGoldenFamiliesAccounted: every golden file is checked here or left
