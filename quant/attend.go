@@ -147,9 +147,10 @@ func DecodeCache(c CacheTensor) ([]float64, error) { return c.decode("DecodeCach
 // then the nearest to x/s, decided exactly, ties to even: for int8 the
 // nearest integer (at most qmax in magnitude, since s ≥ amax/qmax), for FP8
 // the nearest value of the format (never beyond its largest, for the same
-// reason). Rounding s upward is the rule of Quantise and for the same
-// reason: no element is clipped, so |x − c·s| ≤ s/2 for int8 and at most
-// half a step of the format for FP8.
+// reason; an element that rounds to zero gets the code of +0). Rounding s
+// upward is the rule of Quantise and for the same reason: no element is
+// clipped, so |x − c·s| ≤ s/2 for int8 and at most half a step of the
+// format for FP8.
 //
 // Special cases are:
 //
@@ -240,6 +241,9 @@ func (c CacheCode) nearestCode(x, s float64) uint8 {
 				best = u
 			}
 		}
+	}
+	if best == 0 {
+		best = 0 // +0: an element that rounds to zero gets the code of +0, not −0
 	}
 	return uint8(f.Encode(best))
 }

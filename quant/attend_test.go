@@ -37,6 +37,10 @@ func TestQuantiseCacheWorkedValues(t *testing.T) {
 	ensure.NoError(t, err)
 	expect.Equal(t, []float64{1}, c.Scales)
 	expect.Equal(t, []uint8{0x7E, 0x38, 0x38}, c.Codes)
+	// A negative element that rounds to zero gets the code of +0 (0x00).
+	c, err = QuantiseCache([]float64{448, -1e-10}, 1, 1, 1, 2, CacheE4M3, CachePerTensor)
+	ensure.NoError(t, err)
+	expect.Equal(t, []uint8{0x7E, 0x00}, c.Codes)
 }
 
 func TestQuantiseCacheIsNearest(t *testing.T) {

@@ -63,7 +63,7 @@ func MatMulCases() []MatMulCase {
 func sumBound(n int, abs, ref float64, out compare.Format) float64 {
 	const u = 0x1p-24
 	g := float64(n+1) * u / (1 - float64(n+1)*u)
-	return g*abs + out.ULP(ref)
+	return float64(g*abs) + out.ULP(ref)
 }
 
 // judge compares got with ref element by element within bound(i), failing
