@@ -9,8 +9,8 @@ import (
 
 // The benchmark shapes: batch 1, 16 heads, 2048 positions, head dimension
 // 128, causal (a prefill), and one query against 32768 cached keys (a
-// decoding step). attention/testdata/bench_numpy.py times the same forward
-// computation in numpy float64 for comparison; see the package doc.
+// decoding step). internal/benchdoc runs them beside numpy float64 on the
+// same computations and renders BENCHMARKS.md; see the package doc.
 
 func benchInputs(s Shape) (q, k, v, d []float64) {
 	r := rand.New(rand.NewPCG(7, 8))

@@ -174,33 +174,19 @@
 // BenchmarkForwardFastCausal, BenchmarkBackwardFastCausal and
 // BenchmarkDecodeFast time batch 1, 16 heads, head dimension 128: a causal
 // prefill of 2048 positions, and one query against 32768 cached keys;
-// BenchmarkForwardFastFull is the prefill without a mask.
-// testdata/bench_numpy.py times the same forward computations in numpy
-// 1.24 float64 over OpenBLAS 0.3.21 (its own kernel choice; with
-// OPENBLAS_CORETYPE=SkylakeX the figures were within 25%). Measured side by
-// side, alternating Go and numpy three times, on a shared 2-core x86-64
-// machine with a load average of 3 to 4 (wall time; Go the median of the
-// three runs, numpy the median of its best-of-3):
+// BenchmarkForwardFastFull is the prefill without a mask. Their times and
+// GFLOP/s, beside numpy float64 over OpenBLAS on the same computations and
+// beside plumb run attention-forward (fast and -direct) on the causal
+// prefill, are in BENCHMARKS.md at the repository root, measured and
+// rendered by internal/benchdoc (go run ./internal/benchdoc), with the
+// date, the CPU and the BLAS kernels named.
 //
-//	                          ForwardFast   numpy + OpenBLAS   ratio
-//	forward, causal, L 2048   3.8 s         2.3 s              1.6
-//	forward, no mask, L 2048  7.0 s         1.6 s              4.3
-//	decode, Lk 32768          0.21 s        0.11 s             1.9
-//	backward, causal, L 2048  7.4 s         (not timed)
-//
-// The products are plumb's own (internal/num's MatrixProduct), scalar pure Go that
-// runs at about 10 GFLOP/s per core here, against about 100 GFLOP/s for
-// OpenBLAS's vector kernels (see the unmasked row); the causal prefill
-// closes much of the gap because the fast form computes only the key
-// blocks a row block can see, about half of the products, where the numpy
-// code computes them all and then masks. About a third of the causal
-// forward is the correctly rounded exponential (internal/elem), 34 million
-// of them. Decoding is bound by reading the 1 GiB cache. With gonum's BLAS,
-// which the fast forms used before (SSE2 assembly on amd64, and other last
-// bits than the direct forms and than other architectures), the same
-// benchmarks took 1.05 times these times for the forward, 0.9 times for
-// the backward and 0.7 times for decoding. The direct form runs on one
-// core: plumb run attention-forward on the causal prefill, which runs the
-// fast form, took 4.9 s (3.9 s of CPU) where it took 8.6 s (7.3 s of CPU)
-// with the direct form, reading and writing the files included.
+// The products are plumb's own (internal/num's MatrixProduct), pure Go,
+// against OpenBLAS's vector kernels in numpy (compare the unmasked row with
+// the dgemm row); the causal prefill closes part of the gap because the
+// fast form computes only the key blocks a row block can see, about half
+// of the products, where whole-matrix numpy code computes them all and
+// then masks. The causal forward also evaluates 16·2048·2049/2, about 34
+// million, correctly rounded exponentials (internal/elem). Decoding is
+// bound by reading the 1 GiB cache. The direct form runs on one core.
 package attention

@@ -139,15 +139,13 @@
 // BenchmarkDecodePaged and BenchmarkDecodeContiguous time one decoding
 // step of 32 query heads on 8 kv heads of dimension 128 against 65536
 // cached positions, in pages of 16 in a random order, or contiguous
-// (attention.Decode). On a shared 2-core x86-64 machine with a load
-// average of 3 to 4 (wall time, ratios of medians): go test -bench . -count
-// 5 gave the paged step 1.27 and 1.53 times the contiguous one in two
-// runs, and five rounds run alternately 1.25 (the median of the rounds'
-// ratios, which ranged from 1.04 to 1.39). Gathering is one pass over K
-// and V, split over the kv heads between goroutines, into a buffer kept
-// for the next call: with a fresh buffer for every call the paged step
-// took about 5 times the contiguous one there, the first touch of 1 GiB of new memory taking about ten
-// times as long as copying into memory already touched. The first paged
-// call of a process still pays that once, and the benchmarks make one
-// call before they start the clock.
+// (attention.Decode). The ratio of
+// their times is in BENCHMARKS.md at the repository root (measured and
+// rendered by internal/benchdoc). Gathering is one pass over K and V,
+// split over the kv heads between goroutines, into a buffer kept for the
+// next call: a fresh buffer for every call made the paged step several
+// times slower, the first touch of 1 GiB of new memory costing far more
+// than copying into memory already touched. The first paged call of a
+// process still pays that once, and the benchmarks make one call before
+// they start the clock.
 package kvcache
