@@ -30,6 +30,7 @@ var measuredPackages = []struct{ dir, what string }{
 	{"posenc", "rotary and sinusoidal encodings, ALiBi"},
 	{"norm", "LayerNorm, RMSNorm, fused residual add, forward and backward"},
 	{"ffn", "plain and gated layers, forward and backward (activations: the package's own table)"},
+	{"block", "a decoder block with a key/value cache: pre-norm, post-norm, parallel"},
 }
 
 // cell is one figure of a package's table.

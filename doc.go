@@ -17,6 +17,10 @@
 //	           grouped and multi-query; masks, bias, ALiBi slopes, soft-capping,
 //	           sink logits; the tiled online-softmax form and the merge of
 //	           partial results; decode against a cache
+//	block      one decoder block composed of the kernels' functions:
+//	           pre-norm, post-norm and parallel forms, LayerNorm or RMSNorm,
+//	           rotary, every attention option, a key/value cache, every
+//	           intermediate a named stage
 //	kvcache    serving-time layouts of the key/value cache on attention: pages
 //	           of a pool with a page table per sequence, decoding split over
 //	           ranges of the cache and merged, a ring buffer for a sliding
@@ -86,6 +90,13 @@
 //	attention.SoftmaxShift: what a port subtracts from the logits before exponentiating them (a precision idiom: the yardstick's float32 run follows it, the reference ignores it)
 //	  max             the row maximum: every exponent ≤ 0, none overflows
 //	  none            nothing: e^s of the raw logits, which overflows float32 beyond s ≈ 88.7
+//	block.Form: where the norms sit and how the attention and feed-forward sublayers are joined
+//	  pre-norm        each sublayer reads the normalised stream and adds to the raw one: h = x + Attn(N1(x)), y = h + FFN(N2(h))
+//	  post-norm       a norm after each residual addition: h = N1(x + Attn(x)), y = N2(h + FFN(h))
+//	  parallel        both sublayers read N1(x) and add to one residual: y = (x + Attn(N1(x))) + FFN(N1(x))
+//	block.NormKind: which norm the block applies at its norm positions
+//	  layer-norm      LayerNorm: subtract the mean, divide by the standard deviation, gain and optional bias
+//	  rms-norm        RMSNorm: divide by the root mean square, gain, no bias
 //	compare.Format: the binary floating-point format a candidate is stored in
 //	  float64         IEEE 754 binary64: 53 significand bits
 //	  float32         IEEE 754 binary32: 24 significand bits
@@ -202,6 +213,7 @@
 //	posenc     1.3e-16  Rotary.Apply, y
 //	norm       8.1e-16  RMSNormBackward, dx
 //	ffn        5.6e-16  Backward, dweights
+//	block      5.5e-16  Forward, out
 //
 // Each package's documentation has the table by function and output.
 // Masks, ALiBi slopes, rotary frequencies and conversions between number

@@ -16,6 +16,7 @@
 //	alibi-slopes        posenc.ALiBiSlopes                  slopes
 //	attention-backward  attention.Backward                  dq, dk, dv (dsinks, dbias)
 //	attention-forward   attention.Forward                   out, lse
+//	block-forward       block.ForwardFast                   out, present_k, present_v (stage_input, stage_attn_in, stage_q, stage_k, stage_v, stage_q_rot, stage_k_rot, stage_present_k, stage_present_v, stage_attn, stage_attn_out, stage_resid1, stage_ffn_in, stage_ffn_out, stage_resid2, stage_output)
 //	draft-attention     kvcache.VerifyDraft                 out, lse
 //	ffn-backward        ffn.Backward                        dx (dw1, db1, dv, dc, dfused, dfused_bias, dw2, db2)
 //	ffn-forward         ffn.Forward                         y

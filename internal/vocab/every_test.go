@@ -18,6 +18,7 @@ import (
 	// vocabulary is registered.
 	_ "github.com/plumbref/plumb/attention"
 	_ "github.com/plumbref/plumb/attention/attentiontest"
+	_ "github.com/plumbref/plumb/block"
 	_ "github.com/plumbref/plumb/compare"
 	_ "github.com/plumbref/plumb/ffn"
 	"github.com/plumbref/plumb/internal/vocab"
@@ -31,7 +32,7 @@ import (
 )
 
 // conventionDirs are the packages imported above, from the repository root.
-var conventionDirs = []string{"attention", "attention/attentiontest", "compare", "ffn", "kvcache", "mask", "norm", "norm/normtest", "npy", "posenc", "quant"}
+var conventionDirs = []string{"attention", "attention/attentiontest", "block", "compare", "ffn", "kvcache", "mask", "norm", "norm/normtest", "npy", "posenc", "quant"}
 
 // call calls the method name of v with args and returns its results.
 func call(t *testing.T, v reflect.Value, name string, args ...any) []reflect.Value {
