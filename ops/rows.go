@@ -5,11 +5,14 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
 	"slices"
+	"sync"
 
 	"github.com/plumbref/plumb/attention"
 	"github.com/plumbref/plumb/compare"
 	"github.com/plumbref/plumb/gen"
+	"github.com/plumbref/plumb/internal/num"
 	"github.com/plumbref/plumb/mask"
 )
 
@@ -423,6 +426,9 @@ func runRows(fn, name string, config []byte, in Tensors, s Rows, single bool) (T
 	if f.call == nil {
 		return run(config, cut)
 	}
+	if name == "attention-forward" {
+		return attentionRows(fn, o, config, cut, f, s, single)
+	}
 	out := Tensors{}
 	for i, r := range s.Index {
 		c, err := f.call(config, r)
@@ -472,4 +478,107 @@ func YardstickRows(name string, config []byte, in, ref Tensors, s Rows, f compar
 	return yardstickWith(o, config, cut, ref, f, k, func(rounded Tensors) (Tensors, error) {
 		return RunRows32(name, config, rounded, s)
 	})
+}
+
+// attentionRows runs attention-forward on the sampled query rows of cut
+// (q and bias cut to the sample), each row alone at its true position
+// (align start, offset its key position) with the direct form, which
+// gives the fast form's bits (TestFastFormsAreDirect): k and v are
+// converted to float32 once for all rows, and the rows are spread over
+// GOMAXPROCS workers, each row's result independent of the others.
+func attentionRows(fn string, op Op, config []byte, cut Tensors, f *rowForm, s Rows, single bool) (Tensors, error) {
+	name := op.Name()
+	c := new(attentionForwardConfig)
+	if err := decodeConfig(name, config, c, op.Keys()); err != nil {
+		return nil, err
+	}
+	if err := checkInputs(name, op.Inputs(), cut); err != nil {
+		return nil, err
+	}
+	g := mask.Geometry{Lq: f.total, Lk: cut["k"].Shape[2-boolInt(c.Layout == attention.SeqMajor)], Align: c.Align, Offset: c.Offset}
+	base := g.Pos(0)
+	var k32, v32 []float32
+	if single {
+		k32, v32 = cut.f32("k"), cut.f32("v")
+		for n, t := range cut {
+			if n != "k" && n != "v" {
+				cut[n] = Tensor{Shape: t.Shape, Data: compare.Widen(num.Convert[float32](t.Data))}
+			}
+		}
+	}
+	n := len(s.Index)
+	outs := make([]Tensors, n)
+	errs := make([]error, n)
+	next := make(chan int)
+	var wg sync.WaitGroup
+	for w := 0; w < min(runtime.GOMAXPROCS(0), n); w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range next {
+				outs[i], errs[i] = attentionRow(c, cut, f, s.Index[i], i, base+s.Index[i], k32, v32, single)
+			}
+		}()
+	}
+	for i := range n {
+		next <- i
+	}
+	close(next)
+	wg.Wait()
+	out := Tensors{}
+	for i, got := range outs {
+		if errs[i] != nil {
+			return nil, within(errs[i], fmt.Sprintf("%s: %s: row %d", fn, name, s.Index[i]))
+		}
+		for m, t := range got {
+			ax := f.out[m]
+			w, ok := out[m]
+			if !ok {
+				shape := slices.Clone(t.Shape)
+				shape[ax] = n
+				w = Tensor{Shape: shape, Data: make([]float64, len(t.Data)*n)}
+				out[m] = w
+			}
+			placeAxis(w, ax, t.Data, i)
+		}
+	}
+	return out, nil
+}
+
+func boolInt(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// attentionRow is row r (the i-th of the sample) alone, at key position p.
+func attentionRow(c *attentionForwardConfig, cut Tensors, f *rowForm, r, i, p int, k32, v32 []float32, single bool) (Tensors, error) {
+	one := Tensors{}
+	for n, t := range cut {
+		if ax, ok := f.in[n]; ok {
+			one[n] = GatherAxis(t, ax, []int{i})
+		} else {
+			one[n] = t
+		}
+	}
+	cc := *c
+	cc.Align, cc.Offset = mask.AlignStart, p
+	sh, o, err := cc.setup(one)
+	if err != nil {
+		return nil, err
+	}
+	o.Idiom = c.idiom()
+	var out, lse []float64
+	if single {
+		o32, l32, err := attention.Forward32(one.f32("q"), k32, v32, sh, o)
+		if err != nil {
+			return nil, err
+		}
+		out, lse = num.Convert[float64](o32), num.Convert[float64](l32)
+	} else if out, lse, err = attention.Forward(one.data("q"), one.data("k"), one.data("v"), sh, o); err != nil {
+		return nil, err
+	}
+	os, ls := attentionShapes(sh, o)
+	return Tensors{"out": {os, out}, "lse": {ls, lse}}, nil
 }
