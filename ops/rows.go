@@ -1,7 +1,6 @@
 package ops
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"math"
@@ -146,10 +145,9 @@ type rowForm struct {
 	total int
 	// in and out name the row axis of each row-indexed tensor.
 	in, out map[string]int
-	// call returns the configuration and inputs of the problem of one
-	// row r (positions), given the inputs with the row axis of length 1;
-	// nil when the whole sample runs as one problem.
-	call func(config []byte, r int) ([]byte, error)
+	// perRow: each row runs as a problem of its own (attention, at its
+	// true position); otherwise the sample runs as one problem.
+	perRow bool
 	// edges are the rows the configuration makes edges.
 	edges []int
 }
@@ -226,15 +224,7 @@ func formOf(fn, name string, config []byte, in Tensors, s *Rows) (*rowForm, erro
 	}
 	g := mask.Geometry{Lq: sh.Lq, Lk: sh.Lk, Align: c.Align, Offset: c.Offset}
 	base := g.Pos(0)
-	f.call = func(config []byte, r int) ([]byte, error) {
-		var m map[string]json.RawMessage
-		if err := json.Unmarshal(config, &m); err != nil || m == nil {
-			m = map[string]json.RawMessage{"version": json.RawMessage("1")}
-		}
-		m["align"] = json.RawMessage(`"start"`)
-		m["offset"] = json.RawMessage(fmt.Sprint(base + r))
-		return json.Marshal(m)
-	}
+	f.perRow = true
 	f.edges = attentionEdges(c.Mask, sh.Lq, sh.Lk, base)
 	return f, nil
 }
@@ -360,7 +350,7 @@ func cutInputs(f *rowForm, in Tensors, s Rows) Tensors {
 			continue
 		}
 		shape := t.Shape
-		if f.call == nil {
+		if !f.perRow {
 			shape = []int{len(t.Data) / max(t.Shape[len(t.Shape)-1], 1), t.Shape[len(t.Shape)-1]}
 		}
 		if shape[ax] == len(s.Index) && shape[ax] != s.Total {
@@ -423,43 +413,10 @@ func runRows(fn, name string, config []byte, in Tensors, s Rows, single bool) (T
 		run = o.Run32
 	}
 	cut := cutInputs(f, in, s)
-	if f.call == nil {
+	if !f.perRow {
 		return run(config, cut)
 	}
-	if name == "attention-forward" {
-		return attentionRows(fn, o, config, cut, f, s, single)
-	}
-	out := Tensors{}
-	for i, r := range s.Index {
-		c, err := f.call(config, r)
-		if err != nil {
-			return nil, fmt.Errorf("%w: %s: %s: configuration: %w", ErrConfig, fn, name, err)
-		}
-		one := Tensors{}
-		for n, t := range cut {
-			if ax, ok := f.in[n]; ok {
-				one[n] = GatherAxis(t, ax, []int{i})
-			} else {
-				one[n] = t
-			}
-		}
-		got, err := run(c, one)
-		if err != nil {
-			return nil, within(err, fmt.Sprintf("row %d", r))
-		}
-		for n, t := range got {
-			ax := f.out[n]
-			w, ok := out[n]
-			if !ok {
-				shape := slices.Clone(t.Shape)
-				shape[ax] = len(s.Index)
-				w = Tensor{Shape: shape, Data: make([]float64, len(t.Data)*len(s.Index))}
-				out[n] = w
-			}
-			placeAxis(w, ax, t.Data, i)
-		}
-	}
-	return out, nil
+	return attentionRows(fn, o, config, cut, f, s, single)
 }
 
 // YardstickRows is Yardstick on the rows of s: the float32 run on those
