@@ -9,8 +9,8 @@ import (
 	"testing"
 
 	"github.com/plumbref/plumb/compare"
-	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/npy"
 	"github.com/plumbref/plumb/ops"
 )
