@@ -240,7 +240,7 @@ func (o *runOptions) sampleRun(e *env, args []string, f compare.Format, k float6
 	sm := &sampled{op: op, config: config, rows: s, outAx: outAx}
 	done := progress(e, o.quiet, fmt.Sprintf("running %s on %d of %d rows", op.Name(), len(s.Index), s.Total))
 	defer done()
-	if op.Name() == "attention-forward" && !strings.Contains(string(config), "seq-major") {
+	if op.Name() == "attention-forward" && inAx["q"] == 2 { // heads-major
 		return sm, sm.byHead(rf, f, k)
 	}
 	in := ops.Tensors{}
@@ -600,3 +600,34 @@ func checkRows(e *env, o *checkOptions, args []string, gotFiles map[string]strin
 	}
 	return verdictStatus(reps...), nil
 }
+
+// rowsAbout is the part of plumb help run and plumb help check about row
+// samples.
+const rowsAbout = `
+Row samples (-rows N, -rows-seed S, -rows-list LIST): for attention-forward
+and the row-wise operations (softmax, logsumexp, rmsnorm-forward,
+layernorm-forward, activation, ffn-forward; a row is one query position of
+every batch entry and head, or one row of the last dimension of x), run
+computes, and check judges, only the rows of a sample: LIST (distinct rows
+from 0, comma-separated; a row out of range, a row listed twice or an empty
+list is an error naming the flag and its value), or N rows drawn with seed S
+(default 1) by plumb's generator besides the edge rows, which a drawn sample
+always holds: the first and last rows and, for attention, the rows at and
+beside the causal diagonal's ends, a band's ends, a window's first full row,
+a prefix's end and every packed sequence start, at the rows' true positions
+(ops.RowCount). The sampled rows are the same bits as those of the full
+reference, and check's yardstick is measured on the same rows. Every file is
+then a .npy file of float64 or float32, C order, little-endian, read by rows
+at their offsets: the row-indexed inputs (q and bias, x) and the candidates
+only on the sampled rows, and for heads-major attention k and v one kv head
+at a time, so that memory stays O(keys × dim) for one head. run writes the
+outputs' sampled rows (the row axis of length the sample's size) and names
+the rows on standard error. check's report says how many rows of how many
+it judged and, for a drawn sample, how likely a slip confined to a fraction
+f of the rows (none an edge row) is to be missed by the n drawn rows among
+the R' rows that are not edges: C(R' - ceil(f*R), n) / C(R', n), about
+(1 - f)^n, the count of n-subsets that avoid the slip over all of them
+(elementary combinatorics), for f = 10%, 1% and 0.1%; -json adds "rows"
+("judged", "total", "edges", "drawn", "seed", "index", "miss"). The
+diagnosis and the idiom's cost are not computed on a sample.
+`

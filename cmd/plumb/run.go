@@ -185,7 +185,7 @@ The outputs are written all or none: each to a temporary file beside it,
 synced, and renamed over DIR/NAME.npy only when every output has been
 written. A failed run leaves the files of an earlier run as they were and
 no temporary behind.
-`, ops.MaxConfigBytes)
+`, ops.MaxConfigBytes) + rowsAbout
 
 var checkAbout = fmt.Sprintf(`
 Runs OPERATION as plumb run does, then compares each candidate given with
@@ -253,7 +253,7 @@ search's result as data (absent when every output passes or with
 "edits" as data, one object a change: "key", "value" and "note" ("1/d")
 for a configuration key, "remove" for a key taken out, "mixup" for a
 tensor read or written another way.
-`, diagnosisCandidates, diagnosisElements) + toleranceAbout + reportAbout
+`, diagnosisCandidates, diagnosisElements) + rowsAbout + toleranceAbout + reportAbout
 
 func init() {
 	commands = append(commands, &command{
