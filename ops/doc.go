@@ -131,6 +131,48 @@
 // positions and passes that of float32-angles; with base 10500 for 10000 it
 // fails both.
 //
+// # Row samples
+//
+// Every row of the outputs of attention-forward (one query position of
+// every batch entry and head: out[b, h, i, :] and lse[b, h, i] depend on
+// query row i and all keys and values) and of the row-wise operations
+// (softmax, logsumexp, rmsnorm-forward, layernorm-forward, activation,
+// ffn-forward: row i of the last dimension depends on row i of x alone)
+// is a function of its own row, so the reference of a few rows costs a
+// fraction of the whole. RunRows runs an operation on a row sample (Rows)
+// and returns those rows alone, the same bits as the full Run's rows
+// (TestRunRowsSameBits, every mask kind, both alignments and layouts);
+// RunRows32 does so for Run32, and YardstickRows measures the yardstick on
+// the same rows. Attention runs each sampled query row alone at its true
+// key position (align start, offset p(i)), so that causal, band, window,
+// prefix and packed masks, ALiBi and the alignment are evaluated where the
+// row sits; the row-indexed inputs (q and bias; x) may be given cut to the
+// sample (RowInputs), k and v whole. RowOperations lists the operations.
+//
+// A sample is given (RowsOf: each row once, in range, not empty) or drawn
+// (DrawRows) with plumb's generator: gen.Uniform(seed, n, 0, 1), and
+// Floyd's algorithm over the rows that are not edges (for j = m − n … m −
+// 1: t = ⌊u·(j + 1)⌋, take t, or j when t is taken), plus every edge row
+// RowCount names: the first and last rows and, for attention, the rows at
+// and beside key positions 0 and Lk − 1 (the causal diagonal's ends), a
+// band's ends, a window's first full row (position size − 1), a prefix's
+// end and every packed sequence start, at the rows' true positions.
+//
+// The chance that a drawn sample misses a slip: for n rows drawn uniformly
+// without replacement from R, a slip on b of the R rows goes unseen with
+// probability
+//
+//	P(miss) = C(R − b, n) / C(R, n) = ∏_{j=0}^{n−1} (R − b − j)/(R − j) ≈ (1 − b/R)^n
+//
+// (elementary combinatorics: the n-subsets that avoid the b rows over all
+// n-subsets; MissProbability sums the logarithms of the factors, and
+// TestMissProbabilityEnumeration checks it against counting subsets for
+// R ≤ 12 and against exact binomials at R = 2^20). Rows.SlipMiss applies
+// it to the drawn rows, R the rows that are not edges, b = ⌈f·Total⌉; with
+// 256 rows drawn from 2^20, a slip on 1% of the rows is missed with
+// probability 0.076, on 0.1% with 0.77, on 10% with 1.9e-12. A slip at an
+// edge row is always caught.
+//
 // # Worked values
 //
 // Two small cases are checked by the tests and examples against values
@@ -160,7 +202,9 @@
 //
 // # Errors
 //
-// Every error wraps ErrUnknownOp, ErrConfig, ErrInput or the sentinel error
+// Every error wraps ErrUnknownOp, ErrConfig, ErrInput, ErrRows (a row
+// sample that does not fit: a row out of range, listed twice, an empty
+// list, an operation without rows) or the sentinel error
 // of the kernel package that refused the call, and reads
 //
 //	<sentinel>: <operation>: <what> = <value>; want <expectation>

@@ -275,6 +275,12 @@ func refHasOutputs(fn string, o Op, ref Tensors) error {
 // yardstick measures the yardstick of every output of o against ref; the
 // Basis of each names the idiom the configuration declares, if any.
 func yardstick(o Op, config []byte, in, ref Tensors, f compare.Format, k float64) (map[string]*compare.Yardstick, error) {
+	return yardstickWith(o, config, in, ref, f, k, func(rounded Tensors) (Tensors, error) { return o.Run32(config, rounded) })
+}
+
+// yardstickWith is yardstick with the float32 run run32 (given the inputs
+// rounded to f).
+func yardstickWith(o Op, config []byte, in, ref Tensors, f compare.Format, k float64, run32 func(Tensors) (Tensors, error)) (map[string]*compare.Yardstick, error) {
 	name := o.Name()
 	idioms, err := idiomsOf(o, config)
 	if err != nil {
@@ -297,7 +303,7 @@ func yardstick(o Op, config []byte, in, ref Tensors, f compare.Format, k float64
 					rounded[n] = Tensor{Shape: in[n].Shape, Data: compare.Widen(in32[i])}
 				}
 				var err error
-				if low, err = o.Run32(config, rounded); err != nil {
+				if low, err = run32(rounded); err != nil {
 					return nil, err
 				}
 			}

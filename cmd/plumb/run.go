@@ -63,12 +63,14 @@ type runOptions struct {
 	allowNonFinite bool
 	quiet          bool
 	direct         bool
+	rows           rowFlags
 }
 
 func (o *runOptions) register(fs *flag.FlagSet) {
 	fs.StringVar(&o.config, "config", "", fmt.Sprintf("the operation's JSON configuration `file`, at most %d bytes; - reads standard input\n(default: {\"version\": 1}; plumb help OPERATION lists its keys)", ops.MaxConfigBytes))
 	fs.BoolVar(&o.allowNonFinite, "allow-nonfinite", false, "pass NaN and ±Inf in the inputs to the reference, whose special cases then apply,\ninstead of refusing them")
 	fs.BoolVar(&o.quiet, "quiet", false, "no status lines and no progress on stderr")
+	o.rows.register(fs)
 	fs.BoolVar(&o.direct, "direct", false, "run the direct forms of attention and the feed-forward layer (attention.Forward, …),\nthe definitions, instead of their fast forms: the same bits, slower")
 }
 
@@ -82,6 +84,14 @@ type refRun struct {
 
 // reference reads the configuration and inputs and runs the operation.
 func (o *runOptions) reference(e *env, args []string) (*refRun, error) {
+	if o.rows.set {
+		sm, err := o.sampleRun(e, args, compare.Float64, 0)
+		if err != nil {
+			return nil, err
+		}
+		e.status(o.quiet, "rows: %d of %d, the outputs' rows in the order %v\n", len(sm.rows.Index), sm.rows.Total, sm.rows.Index)
+		return &refRun{op: sm.op, config: sm.config, out: sm.ref}, nil
+	}
 	op, err := operation(args)
 	if err != nil {
 		return nil, err
@@ -175,7 +185,7 @@ The outputs are written all or none: each to a temporary file beside it,
 synced, and renamed over DIR/NAME.npy only when every output has been
 written. A failed run leaves the files of an earlier run as they were and
 no temporary behind.
-`, ops.MaxConfigBytes)
+`, ops.MaxConfigBytes) + rowsAbout
 
 var checkAbout = fmt.Sprintf(`
 Runs OPERATION as plumb run does, then compares each candidate given with
@@ -243,7 +253,7 @@ search's result as data (absent when every output passes or with
 "edits" as data, one object a change: "key", "value" and "note" ("1/d")
 for a configuration key, "remove" for a key taken out, "mixup" for a
 tensor read or written another way.
-`, diagnosisCandidates, diagnosisElements) + toleranceAbout + reportAbout
+`, diagnosisCandidates, diagnosisElements) + rowsAbout + toleranceAbout + reportAbout
 
 func init() {
 	commands = append(commands, &command{
@@ -472,6 +482,9 @@ func runCheck(e *env, opts any, args []string) (int, error) {
 	gotFiles, err := o.candidates(e, args)
 	if err != nil {
 		return exitUsage, err
+	}
+	if o.rows.set {
+		return checkRows(e, o, args, gotFiles)
 	}
 	r, err := o.reference(e, args)
 	if err != nil {
