@@ -361,6 +361,10 @@ var goldenLeftOut = map[string]string{
 	"posenc/ntk_base":       "posenc.NTKBase, a scalar helper, is not an operation (rotary scaling ntk-aware uses it, checked in the scaling family)",
 	"posenc/yarn_magnitude": "posenc.YaRNMagnitude, a scalar helper, is not an operation (it gives rotary's magnitude key, a number)",
 	"posenc/sinusoidal_add": "posenc.Sinusoidal.Add is not an operation (sinusoidal-table is, checked in sinusoidal_table)",
+	"quant/quantise":        "integer quantisation (quant.Quantise, quant.Dequantise) is library-only: no operation takes it",
+	"quant/pack4":           "int4 packing (quant.Pack4, quant.Unpack4) is library-only: no operation takes it",
+	"quant/fp8":             "scaled FP8 quantisation (quant.QuantiseFP8, quant.DequantiseFP8) is library-only: no operation takes it",
+	"quant/sqnr":            "quant.SQNR, a measure of two tensors, is not an operation",
 }
 
 // TestGoldenFamiliesAccounted: every golden file is checked here or left
