@@ -37,8 +37,9 @@
 //	           testing.TB and go-cmp
 //	quant      quantised tensors: integer quantisation and dequantisation
 //	           under explicit conventions (symmetry, granularity, width,
-//	           range, rounding, scale format), int4 packing, the OCP MX block
-//	           formats, int8 and weight-only products, SQNR
+//	           range, rounding, scale format, scale rule), int4 packing,
+//	           FP8 tensors with scales, the OCP MX block formats, int8 and
+//	           weight-only products, SQNR
 //	gen        the pseudo-random inputs plumb gen writes, value for value:
 //	           seeded normal and uniform values
 //	npy        read and write NumPy .npy files, the exchange format with a
@@ -48,7 +49,7 @@
 //	cmd/plumb  the command line: plumb gen, run, diff, check, demo
 //
 // Beside each kernel package a conformance suite (attention/attentiontest,
-// posenc/posenctest, norm/normtest, ffn/ffntest) judges a user's kernel
+// posenc/posenctest, norm/normtest, ffn/ffntest, quant/quanttest) judges a user's kernel
 // against the reference in every case and convention it declares, with one
 // call: Run(t, kernel). Package conformance holds what they run on: the
 // part of *testing.T they use, and a Recorder that stands in for it to
