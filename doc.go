@@ -41,8 +41,9 @@
 //	           testing.TB and go-cmp
 //	quant      quantised tensors: integer quantisation and dequantisation
 //	           under explicit conventions (symmetry, granularity, width,
-//	           range, rounding, scale format), int4 packing, the OCP MX block
-//	           formats, int8 and weight-only products, SQNR
+//	           range, rounding, scale format, scale rule), int4 packing,
+//	           FP8 tensors with scales, the OCP MX block formats, int8 and
+//	           weight-only products, SQNR
 //	gen        the pseudo-random inputs plumb gen writes, value for value:
 //	           seeded normal and uniform values
 //	npy        read and write NumPy .npy files, the exchange format with a
@@ -52,7 +53,7 @@
 //	cmd/plumb  the command line: plumb gen, run, diff, check, demo
 //
 // Beside each kernel package a conformance suite (attention/attentiontest,
-// posenc/posenctest, norm/normtest, ffn/ffntest) judges a user's kernel
+// posenc/posenctest, norm/normtest, ffn/ffntest, quant/quanttest) judges a user's kernel
 // against the reference in every case and convention it declares, with one
 // call: Run(t, kernel). Package conformance holds what they run on: the
 // part of *testing.T they use, and a Recorder that stands in for it to
@@ -192,6 +193,53 @@
 //	posenc.Ramp: how YaRN goes from keeping to interpolating across the frequencies
 //	  ratio           linear in the ratio of the trained length to the wavelength, as the paper defines it
 //	  dims            linear in the dimension index between rounded bounds, as the authors’ published code computes it
+//	quant.Channel: which index of a [rows, cols] tensor the scales follow
+//	  rows            scales follow the row index: per row, or groups cut along each row
+//	  columns         scales follow the column index: per column, or groups cut down each column
+//	quant.Element: the format of the 32 elements of an MX block
+//	  e4m3            FP8 E4M3 elements (MXFP8), max 448
+//	  e5m2            FP8 E5M2 elements (MXFP8), max 57344
+//	  e3m2            FP6 E3M2 elements (MXFP6), max 28
+//	  e2m3            FP6 E2M3 elements (MXFP6), max 7.5
+//	  e2m1            FP4 E2M1 elements (MXFP4), max 6
+//	  int8            8-bit two's complement elements times 2^−6 (MXINT8), max 1.984375
+//	quant.FP8Element: which 8-bit float format an element is
+//	  e4m3            OFP8 E4M3: max 448, NaN but no infinity
+//	  e5m2            OFP8 E5M2: max 57344, with infinities
+//	quant.Granularity: which elements share one scale
+//	  per-tensor      one scale for the whole tensor
+//	  per-channel     one scale per row or per column, as Scheme.Channel says
+//	  per-group       one scale per Scheme.Group consecutive elements of a row or of a column
+//	quant.NibbleCode: how an int4 code is written in four bits
+//	  twos-complement q mod 16: −1 is 0xF, −8 is 0x8
+//	  offset-binary   q + 8: −8 is 0x0, 0 is 0x8, 7 is 0xF
+//	quant.NibbleOrder: which half of a byte holds the first of two int4 codes
+//	  low-first       code 2i in bits 0–3 of byte i, code 2i+1 in bits 4–7
+//	  high-first      code 2i in bits 4–7 of byte i, code 2i+1 in bits 0–3
+//	quant.Overflow: what an element beyond the format's largest magnitude becomes
+//	  nan-or-inf      non-saturating: NaN in E4M3, ±Inf in E5M2
+//	  saturate        saturating: ±448 in E4M3, ±57344 in E5M2
+//	quant.Range: whether the most negative code is used
+//	  full            every code of the width: −128..127, −8..7
+//	  symmetric-clipped the most negative code left out: −127..127, −7..7
+//	quant.Rounding: how x/s is rounded to an integer at a tie
+//	  half-even       ties to the even integer (IEEE 754-2019 §4.3.1 roundTiesToEven)
+//	  half-away       ties away from zero (IEEE 754-2019 §4.3.1 roundTiesToAway)
+//	quant.ScaleFormat: which number format a scale is stored in
+//	  float32         IEEE 754 binary32 scales
+//	  binary16        IEEE 754 binary16 scales
+//	  bfloat16        bfloat16 scales: 8 significand bits
+//	  pow2            powers of two from 2^−127 to 2^127, the values of E8M0
+//	quant.ScaleRule: which magnitude of a block its scale is chosen from
+//	  absmax          the largest magnitude: no element is clipped
+//	  percentile      the p-th percentile of |x| (nearest rank): larger elements are clipped
+//	quant.Symmetry: whether a block's codes carry a zero point
+//	  symmetric       x̂ = q·s: zero point 0, the range centred on zero
+//	  asymmetric      x̂ = (q − z)·s with an integer zero point z; the range [min(x, 0), max(x, 0)]
+//	  asymmetric-float x̂ = (q − z)·s with a zero point z in the scale format; the range [min x, max x]
+//	quant.Width: how many bits a code has
+//	  int8            8-bit codes, −128..127 (or −127..127 clipped)
+//	  int4            4-bit codes, −8..7 (or −7..7 clipped)
 //
 // Numbers are options too: the logit scale, the query position offset,
 // band edges and window sizes, the rotary base and rotated dims, the norm

@@ -41,7 +41,9 @@
 // relative error with a floor for references near zero (Options.RelFloor;
 // by default 2^−10 of the largest reference magnitude), RMS error, mean
 // signed error (a bias detector), the normwise relative error ‖got −
-// ref‖₂/‖ref‖₂, the distribution of ULP distances in the candidate's format,
+// ref‖₂/‖ref‖₂, the signal-to-quantisation-noise ratio in decibels
+// (10·log₁₀(Σ ref²/Σ (got − ref)²) = −20·log₁₀ of the normwise error, common
+// practice), the distribution of ULP distances in the candidate's format,
 // NaN and Inf mismatches, the k worst elements with their multi-dimensional
 // index, and under a Tolerance a verdict. Report.WriteText renders it aligned
 // for a terminal; json.Marshal gives a JSON object with stable keys of our

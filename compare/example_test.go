@@ -79,6 +79,7 @@ func ExampleDiff() {
 	//   RMS error           0.003521
 	//   mean signed error   0.001367  (got − ref)
 	//   normwise rel error  0.006822
+	//   SQNR                43.32 dB  10·log₁₀(Σ ref² / Σ (got − ref)²)
 	//   max ULP distance    1         (bfloat16)
 	//   NaN mismatches      1
 	//   Inf mismatches      0
@@ -104,7 +105,7 @@ func ExampleReport_MarshalJSON() {
 	b, _ := json.Marshal(r)
 	fmt.Println(string(b))
 	// Output:
-	// {"shape":[2],"elements":2,"format":"float32","finite_pairs":1,"max_abs_error":0,"max_abs_error_at":[0],"max_rel_error":0,"max_rel_error_at":[0],"rel_error_floor":0.001953125,"rms_error":0,"mean_signed_error":0,"normwise_rel_error":0,"max_ulps":0,"ulp_histogram":[{"from":0,"to":0,"count":1}],"not_in_format":0,"nan_mismatches":0,"inf_mismatches":1,"nonfinite_matches":0,"worst":[{"index":[1],"offset":1,"reference":2,"candidate":"inf","abs_error":"inf","rel_error":"inf","ulps":"nan"}],"tolerance":null,"verdict":null}
+	// {"shape":[2],"elements":2,"format":"float32","finite_pairs":1,"max_abs_error":0,"max_abs_error_at":[0],"max_rel_error":0,"max_rel_error_at":[0],"rel_error_floor":0.001953125,"rms_error":0,"mean_signed_error":0,"normwise_rel_error":0,"sqnr_db":"inf","max_ulps":0,"ulp_histogram":[{"from":0,"to":0,"count":1}],"not_in_format":0,"nan_mismatches":0,"inf_mismatches":1,"nonfinite_matches":0,"worst":[{"index":[1],"offset":1,"reference":2,"candidate":"inf","abs_error":"inf","rel_error":"inf","ulps":"nan"}],"tolerance":null,"verdict":null}
 }
 
 // matVec is a kernel written once over num.Float, as plumb's kernels are:

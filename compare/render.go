@@ -34,6 +34,7 @@ func (r *Report) WriteText(w io.Writer) error {
 		fmt.Fprintf(tw, "  RMS error\t%s\t\n", g4(r.RMS))
 		fmt.Fprintf(tw, "  mean signed error\t%s\t(got − ref)\n", g4(r.MeanSigned))
 		fmt.Fprintf(tw, "  normwise rel error\t%s\t\n", g4(r.Normwise))
+		fmt.Fprintf(tw, "  SQNR\t%s dB\t10·log₁₀(Σ ref² / Σ (got − ref)²)\n", g4(r.SQNR))
 		fmt.Fprintf(tw, "  max ULP distance\t%s\t(%v)\n", g4(r.MaxULPs), r.Format)
 	}
 	fmt.Fprintf(tw, "  NaN mismatches\t%d\n", r.NaNMismatches)
@@ -277,6 +278,7 @@ type jsonReport struct {
 	RMS              jsonFloat      `json:"rms_error"`
 	MeanSigned       jsonFloat      `json:"mean_signed_error"`
 	Normwise         jsonFloat      `json:"normwise_rel_error"`
+	SQNR             jsonFloat      `json:"sqnr_db"`
 	MaxULPs          jsonFloat      `json:"max_ulps"`
 	ULPs             []jsonBucket   `json:"ulp_histogram"`
 	NotInFormat      int            `json:"not_in_format"`
@@ -294,7 +296,7 @@ type jsonReport struct {
 //	shape, elements, format (a name as FormatByName accepts), finite_pairs,
 //	max_abs_error, max_abs_error_at, max_rel_error, max_rel_error_at,
 //	rel_error_floor, rms_error, mean_signed_error, normwise_rel_error,
-//	max_ulps, ulp_histogram ([{from, to, count}]), not_in_format,
+//	sqnr_db, max_ulps, ulp_histogram ([{from, to, count}]), not_in_format,
 //	nan_mismatches, inf_mismatches, nonfinite_matches,
 //	worst ([{index, offset, reference, candidate, abs_error, rel_error, ulps}]),
 //	tolerance ({abs, rel, ulps, max_normwise, basis} or null),
@@ -371,7 +373,7 @@ type field[T any] struct{ r, j *T }
 func reportFields(r *Report, j *jsonReport) ([]field[float64], []field[int], []field[[]int]) {
 	f := func(r *float64, j *jsonFloat) field[float64] { return field[float64]{r, (*float64)(j)} }
 	return []field[float64]{f(&r.MaxAbs, &j.MaxAbs), f(&r.MaxRel, &j.MaxRel), f(&r.RelFloor, &j.RelFloor),
-			f(&r.RMS, &j.RMS), f(&r.MeanSigned, &j.MeanSigned), f(&r.Normwise, &j.Normwise), f(&r.MaxULPs, &j.MaxULPs)},
+			f(&r.RMS, &j.RMS), f(&r.MeanSigned, &j.MeanSigned), f(&r.Normwise, &j.Normwise), f(&r.SQNR, &j.SQNR), f(&r.MaxULPs, &j.MaxULPs)},
 		[]field[int]{{&r.Elements, &j.Elements}, {&r.Finite, &j.Finite}, {&r.NotInFormat, &j.NotInFormat},
 			{&r.NaNMismatches, &j.NaNMismatches}, {&r.InfMismatches, &j.InfMismatches}, {&r.NonFiniteMatches, &j.NonFiniteMatches}},
 		[]field[[]int]{{&r.Shape, &j.Shape}, {&r.MaxAbsAt, &j.MaxAbsAt}, {&r.MaxRelAt, &j.MaxRelAt}}

@@ -108,6 +108,12 @@ type Report struct {
 	// exceeds float64 (values near ±Max) the quotient is formed from the
 	// scaled norms.
 	Normwise float64
+	// SQNR is the signal-to-quantisation-noise ratio of the candidate in
+	// decibels, 10·log₁₀(Σ ref² / Σ (got − ref)²) over the finite pairs
+	// (common practice for the measure of a quantised tensor), formed as
+	// −20·log₁₀(Normwise): +Inf when got = ref there, −Inf when ref is all
+	// zero and got is not, NaN when there are no finite pairs.
+	SQNR float64
 
 	MaxULPs float64 // largest ULP distance among the finite pairs
 	// ULPs is the distribution of ULP distances over the finite pairs, in
@@ -163,7 +169,7 @@ func diff(args diffArgs, ref, got []float64, shape []int, opt Options) (*Report,
 	if err != nil {
 		return nil, err
 	}
-	r := &Report{Shape: shape, Elements: len(ref), Format: opt.Format, Tolerance: opt.Tolerance, RelFloor: relFloor(ref, opt.RelFloor)}
+	r := &Report{SQNR: math.NaN(), Shape: shape, Elements: len(ref), Format: opt.Format, Tolerance: opt.Tolerance, RelFloor: relFloor(ref, opt.RelFloor)}
 	nworst := opt.Worst
 	if nworst == 0 {
 		nworst = DefaultWorst
@@ -316,6 +322,7 @@ func (a *diffSums) finish(ref, got []float64) {
 		if !finite(a.sum) {
 			r.MeanSigned = scaledMean(ref, got, n)
 		}
+		r.SQNR = sqnrOf(r.Normwise, rn == 0)
 		r.MaxAbsAt = num.Unravel(a.maxAbsAt, r.Shape)
 		r.MaxRelAt = num.Unravel(a.maxRelAt, r.Shape)
 		r.ULPs = buckets(a.hist)
@@ -324,6 +331,19 @@ func (a *diffSums) finish(ref, got []float64) {
 	for k := range r.Worst {
 		r.Worst[k].Index = num.Unravel(r.Worst[k].Offset, r.Shape)
 	}
+}
+
+// sqnrOf returns the SQNR of a normwise error: −20·log₁₀(normwise), or,
+// for an all-zero reference (where normwise is the absolute norm of the
+// differences), +Inf with no differences and −Inf with some.
+func sqnrOf(normwise float64, zeroRef bool) float64 {
+	switch {
+	case normwise == 0:
+		return math.Inf(1)
+	case zeroRef:
+		return math.Inf(-1)
+	}
+	return -20 * math.Log10(normwise)
 }
 
 // scaledNorms returns RMS and Normwise over the n finite pairs when the

@@ -176,6 +176,19 @@ func TestVerdict(t *testing.T) {
 		{"normwise passes", []float64{1, 2, 3, 4.5}, Tolerance{Abs: 1, MaxNormwise: 0.092}, true, 0},
 		{"normwise fails", []float64{1, 2, 3, 4.5}, Tolerance{Abs: 1, MaxNormwise: 0.091}, false, 0},
 	}
+	// SQNR = 10·log₁₀(Σ ref² / Σ (got − ref)²) = 10·log₁₀(30/0.25) = 10·log₁₀ 120 ≈ 20.79 dB.
+	r, err := Diff(ref, []float64{1, 2, 3, 4.5}, nil, Options{Format: Float32})
+	ensure.NoError(t, err)
+	expect.InDelta(t, 10*math.Log10(120), r.SQNR, 1e-13)
+	r, err = Diff(ref, ref, nil, Options{Format: Float32})
+	ensure.NoError(t, err)
+	expect.Equal(t, math.Inf(1), r.SQNR, "no noise")
+	r, err = Diff([]float64{0, 0}, []float64{0, 1}, nil, Options{Format: Float32})
+	ensure.NoError(t, err)
+	expect.Equal(t, math.Inf(-1), r.SQNR, "no signal")
+	r, err = Diff([]float64{math.NaN()}, []float64{1}, nil, Options{Format: Float32})
+	ensure.NoError(t, err)
+	expect.True(t, math.IsNaN(r.SQNR), "no finite pairs")
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			tol := tc.tol
@@ -275,7 +288,7 @@ func TestReportJSON(t *testing.T) {
 	}
 	expect.Equal(t, []string{"shape", "elements", "format", "finite_pairs", "max_abs_error", "max_abs_error_at",
 		"max_rel_error", "max_rel_error_at", "rel_error_floor", "rms_error", "mean_signed_error", "normwise_rel_error",
-		"max_ulps", "ulp_histogram", "not_in_format", "nan_mismatches", "inf_mismatches", "nonfinite_matches",
+		"sqnr_db", "max_ulps", "ulp_histogram", "not_in_format", "nan_mismatches", "inf_mismatches", "nonfinite_matches",
 		"worst", "tolerance", "verdict"}, keys)
 	expect.Contains(t, string(b), `"format":"e5m2"`)
 	expect.Contains(t, string(b), `"reference":"nan"`)

@@ -366,6 +366,10 @@ var goldenLeftOut = map[string]string{
 	"quant/int8_matmul_to":  "the quantised products of package quant are not operations: their inputs are codes and scales",
 	"quant/quant_cache":     "quantising a key/value cache (quant.QuantiseCache, quant.AppendCache) is not an operation",
 	"quant/quant_attention": "attention on a quantised cache (quant.Attend) is not an operation: its inputs are codes and scales",
+	"quant/quantise":        "integer quantisation (quant.Quantise, quant.Dequantise) is library-only: no operation takes it",
+	"quant/pack4":           "int4 packing (quant.Pack4, quant.Unpack4) is library-only: no operation takes it",
+	"quant/fp8":             "scaled FP8 quantisation (quant.QuantiseFP8, quant.DequantiseFP8) is library-only: no operation takes it",
+	"quant/sqnr":            "quant.SQNR, a measure of two tensors, is not an operation",
 }
 
 // TestGoldenFamiliesAccounted: every golden file is checked here or left

@@ -7,6 +7,9 @@ import (
 
 	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
+	// The generator spells package quant's words too (testdata/gen/fam_quant.py), for
+	// its golden families, before any operation here takes them.
+	_ "github.com/plumbref/plumb/quant"
 )
 
 // vocabularyFile is where the golden generator (testdata/gen/common.py)

@@ -3,6 +3,7 @@ package quant
 import (
 	"math"
 	"math/big"
+	"slices"
 
 	"github.com/plumbref/plumb/compare"
 )
@@ -96,4 +97,82 @@ func (s *exactSum) round(f compare.Format) float64 {
 		v = math.Float64frombits(math.Float64bits(v) | 1)
 	}
 	return f.Round(v)
+}
+
+// roundRat returns the exact rational r rounded once to f, to nearest with
+// ties to even, with f's overflow (sat: saturating), through float64
+// rounded to odd (Boldo and Melquiond 2008, Theorem 1; f has at most 24
+// significand bits). A value below 2^−1022 in magnitude rounds to ±0 or to
+// the smallest subnormal of every such format the same way from its float64
+// rounding, as their smallest subnormals are 2^−149 or more.
+func roundRat(r *big.Rat, f compare.Format, sat bool) float64 {
+	var t big.Float
+	t.SetPrec(53).SetMode(big.ToZero).SetRat(r)
+	v, _ := t.Float64()
+	if t.Acc() != big.Exact && !math.IsInf(v, 0) && v != 0 {
+		v = math.Float64frombits(math.Float64bits(v) | 1)
+	}
+	if sat {
+		return f.RoundSaturating(v)
+	}
+	return f.Round(v)
+}
+
+// nearestRat returns the integer nearest the rational r, ties broken by
+// mode; values beyond ±1024 come back as ±1025 (every caller clamps to its
+// codes).
+func nearestRat(r *big.Rat, mode Rounding) int {
+	lim := big.NewRat(1024, 1)
+	switch {
+	case r.Cmp(lim) > 0:
+		return 1025
+	case r.Cmp(lim.Neg(lim)) < 0:
+		return -1025
+	}
+	// floor(r) and the remainder r − floor(r) in [0, 1).
+	n, d := r.Num(), r.Denom()
+	var k, m big.Int
+	k.DivMod(n, d, &m) // Euclidean: m ≥ 0, so k = floor(r)
+	fl := int(k.Int64())
+	twice := new(big.Int).Lsh(&m, 1)
+	switch c := twice.Cmp(d); {
+	case c < 0:
+		return fl
+	case c > 0:
+		return fl + 1
+	case mode == HalfAway:
+		if fl >= 0 {
+			return fl + 1
+		}
+		return fl
+	case fl%2 != 0:
+		return fl + 1
+	}
+	return fl
+}
+
+// rankOf returns the nearest-rank position ⌈p·n/100⌉ (at least 1) of the
+// p-th percentile among n sorted values, computed exactly (p, a float64,
+// is a rational).
+func rankOf(p float64, n int) int {
+	var r big.Rat
+	r.SetFloat64(p)
+	r.Mul(&r, big.NewRat(int64(n), 100))
+	var k, m big.Int
+	k.DivMod(r.Num(), r.Denom(), &m)
+	rank := int(k.Int64())
+	if m.Sign() != 0 {
+		rank++
+	}
+	return max(rank, 1)
+}
+
+// percentile returns the nearest-rank p-th percentile of |v| (v not empty).
+func percentile(v []float64, p float64) float64 {
+	a := make([]float64, len(v))
+	for i, x := range v {
+		a[i] = math.Abs(x)
+	}
+	slices.Sort(a)
+	return a[min(rankOf(p, len(a)), len(a))-1]
 }

@@ -43,6 +43,7 @@ import (
 //	a.Cols ≠ b.Rows             error ErrSize
 //	K·ma·mb > 2^31 − 1          error ErrOverflow
 //	a per-group scheme, a per-column a or a per-row b  error ErrOption
+//	an asymmetric-float operand (no integer zero point)  error ErrOption
 //	and those of Dequantise for each operand
 func MatMulInt8(a, b Tensor) (acc []int32, out []float64, err error) {
 	return matMulInt8("MatMulInt8", a, b)
@@ -62,6 +63,9 @@ func matMulInt8(fn string, a, b Tensor) (acc []int32, out []float64, err error) 
 		s    Scheme
 		ok   Channel
 	}{{"a", a.Scheme, ChannelRows}, {"b", b.Scheme, ChannelCols}} {
+		if o.s.Symmetry == AsymmetricFloat {
+			return nil, nil, fmt.Errorf("%w: %s: %s.Scheme.Symmetry = %v; want integer zero points (symmetric or asymmetric), which an int32 sum can carry", ErrOption, fn, o.name, o.s.Symmetry)
+		}
 		if o.s.Granularity == PerGroup || (o.s.Granularity == PerChannel && o.s.Channel != o.ok) {
 			return nil, nil, fmt.Errorf("%w: %s: %s.Scheme = %v %v; want per-tensor or per-channel %v scales, which the sum over k does not cross", ErrOption, fn, o.name, o.s.Granularity, o.s.Channel, o.ok)
 		}
@@ -109,6 +113,9 @@ func (t *Tensor) spread() int {
 // the quantised weights w [K, N], dequantised exactly: each output
 //
 //	y[i, j] = Σₖ x[i, k]·ŵ[k, j],   ŵ = (q − z)·s as Dequantise gives it,
+//
+// (exact, except with a float zero point: then ŵ is (q − z)·s rounded once
+// to float64, as Dequantise returns it),
 //
 // computed exactly (a big-integer sum of exact products) and rounded once
 // to out: float64 (compare.Float64: rounded once to float64), float32,

@@ -20,6 +20,8 @@ type Scheme struct {
 	Range       Range
 	Rounding    Rounding
 	Scale       ScaleFormat
+	Rule        ScaleRule
+	Percentile  float64 // p, 0 < p ≤ 100 (RulePercentile only; ignored otherwise)
 }
 
 // Limits returns the smallest and largest code of the scheme's width and
@@ -48,10 +50,17 @@ func (s Scheme) check(fn string) error {
 		{"Range", s.Range.Check()},
 		{"Rounding", s.Rounding.Check()},
 		{"Scale", s.Scale.Check()},
+		{"Rule", s.Rule.Check()},
 	} {
 		if c.err != nil {
 			return vocab.At(c.err, ErrOption, fn+": Scheme."+c.field)
 		}
+	}
+	if s.Rule == RulePercentile && !(s.Percentile > 0 && s.Percentile <= 100) {
+		return fmt.Errorf("%w: %s: Scheme.Percentile = %v; want 0 < p ≤ 100 with the percentile rule", ErrOption, fn, s.Percentile)
+	}
+	if s.Symmetry == AsymmetricFloat && s.Scale == ScalePow2 {
+		return fmt.Errorf("%w: %s: Scheme.Scale = %v with Scheme.Symmetry = %v; want a floating scale format (float32, binary16, bfloat16) to hold the zero points", ErrOption, fn, s.Scale, s.Symmetry)
 	}
 	return nil
 }

@@ -59,11 +59,14 @@ const (
 	Symmetric Symmetry = iota
 	// Asymmetric: x̂ = (q − z)·s with an integer zero point z, so that the codes cover [min(x, 0), max(x, 0)] and real zero is exactly a code (Jacob et al. 2018, §2.1).
 	Asymmetric
+	// AsymmetricFloat: x̂ = (q − z)·s with a zero point z that is a value of the scale format, not an integer, so that the codes cover [min x, max x] whether or not it holds zero (common practice for per-group weights); real zero need not be a code.
+	AsymmetricFloat
 )
 
 var symmetryWords = vocab.New("quant", "symmetry", "whether a block's codes carry a zero point", ErrOption,
 	vocab.W(Symmetric, "symmetric", "x̂ = q·s: zero point 0, the range centred on zero"),
 	vocab.W(Asymmetric, "asymmetric", "x̂ = (q − z)·s with an integer zero point z; the range [min(x, 0), max(x, 0)]"),
+	vocab.W(AsymmetricFloat, "asymmetric-float", "x̂ = (q − z)·s with a zero point z in the scale format; the range [min x, max x]"),
 )
 
 // String returns s's word ("asymmetric").
@@ -454,3 +457,114 @@ func (Element) Values() []Element { return elementWords.Values() }
 // Check returns nil if e is one of the Element constants, or an error
 // wrapping ErrOption that lists the words.
 func (e Element) Check() error { return elementWords.Check(e) }
+
+// ScaleRule says which magnitude of a block its scale is chosen from.
+type ScaleRule int
+
+const (
+	// RuleAbsMax: the block's largest magnitude (its extremes, when asymmetric), so that no element is clipped. The zero value.
+	RuleAbsMax ScaleRule = iota
+	// RulePercentile: the Scheme.Percentile-th percentile of the block's magnitudes |x| (nearest rank), so that the largest elements are clipped to the extreme codes (percentile calibration, common practice).
+	RulePercentile
+)
+
+var ruleWords = vocab.New("quant", "scale rule", "which magnitude of a block its scale is chosen from", ErrOption,
+	vocab.W(RuleAbsMax, "absmax", "the largest magnitude: no element is clipped"),
+	vocab.W(RulePercentile, "percentile", "the p-th percentile of |x| (nearest rank): larger elements are clipped"),
+)
+
+// String returns r's word ("percentile").
+func (r ScaleRule) String() string { return ruleWords.String(r) }
+
+// MarshalText returns r's word; a value with none is an error wrapping
+// ErrOption.
+func (r ScaleRule) MarshalText() ([]byte, error) { return ruleWords.Marshal(r) }
+
+// UnmarshalText sets r from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (r *ScaleRule) UnmarshalText(b []byte) error { return ruleWords.Unmarshal(r, b) }
+
+// Meaning returns one line saying what r means.
+func (r ScaleRule) Meaning() string { return ruleWords.Meaning(r) }
+
+// Values lists every ScaleRule, the zero value first.
+func (ScaleRule) Values() []ScaleRule { return ruleWords.Values() }
+
+// Check returns nil if r is one of the ScaleRule constants, or an error
+// wrapping ErrOption that lists the words.
+func (r ScaleRule) Check() error { return ruleWords.Check(r) }
+
+// FP8Element is the 8-bit floating-point format of the elements of an FP8Tensor (OCP 8-bit Floating Point Specification (OFP8), revision 1.0, 2023, through package compare).
+type FP8Element int
+
+const (
+	// FP8E4M3: 4 exponent bits, 3 fraction bits, max 448, no infinities (S.1111.111 is NaN). The zero value.
+	FP8E4M3 FP8Element = iota
+	// FP8E5M2: 5 exponent bits, 2 fraction bits, max 57344, with ±Inf (IEEE 754 style).
+	FP8E5M2
+)
+
+var fp8Words = vocab.New("quant", "FP8 element", "which 8-bit float format an element is", ErrOption,
+	vocab.W(FP8E4M3, "e4m3", "OFP8 E4M3: max 448, NaN but no infinity"),
+	vocab.W(FP8E5M2, "e5m2", "OFP8 E5M2: max 57344, with infinities"),
+)
+
+// String returns e's word ("e5m2").
+func (e FP8Element) String() string { return fp8Words.String(e) }
+
+// MarshalText returns e's word; a value with none is an error wrapping
+// ErrOption.
+func (e FP8Element) MarshalText() ([]byte, error) { return fp8Words.Marshal(e) }
+
+// UnmarshalText sets e from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (e *FP8Element) UnmarshalText(b []byte) error { return fp8Words.Unmarshal(e, b) }
+
+// Meaning returns one line saying what e means.
+func (e FP8Element) Meaning() string { return fp8Words.Meaning(e) }
+
+// Values lists every FP8Element, the zero value first.
+func (FP8Element) Values() []FP8Element { return fp8Words.Values() }
+
+// Check returns nil if e is one of the FP8Element constants, or an error
+// wrapping ErrOption that lists the words.
+func (e FP8Element) Check() error { return fp8Words.Check(e) }
+
+// Overflow says what an FP8 element becomes when x/s rounds beyond the format's largest magnitude.
+type Overflow int
+
+const (
+	// OverflowSpecial: the format's overflow, that of compare.Format.Round: NaN in E4M3 (which has no infinity), ±Inf in E5M2 (OFP8 rev 1.0, the non-saturating mode). The zero value.
+	OverflowSpecial Overflow = iota
+	// OverflowSaturate: ±max, 448 in E4M3 and 57344 in E5M2 (OFP8 rev 1.0, the saturating mode).
+	OverflowSaturate
+)
+
+var overflowWords = vocab.New("quant", "FP8 overflow", "what an element beyond the format's largest magnitude becomes", ErrOption,
+	vocab.W(OverflowSpecial, "nan-or-inf", "non-saturating: NaN in E4M3, ±Inf in E5M2"),
+	vocab.W(OverflowSaturate, "saturate", "saturating: ±448 in E4M3, ±57344 in E5M2"),
+)
+
+// String returns o's word ("saturate").
+func (o Overflow) String() string { return overflowWords.String(o) }
+
+// MarshalText returns o's word; a value with none is an error wrapping
+// ErrOption.
+func (o Overflow) MarshalText() ([]byte, error) { return overflowWords.Marshal(o) }
+
+// UnmarshalText sets o from its word; any other text is an error wrapping
+// ErrOption that lists the words.
+// A nil receiver is an error wrapping the same sentinel, not a panic.
+func (o *Overflow) UnmarshalText(b []byte) error { return overflowWords.Unmarshal(o, b) }
+
+// Meaning returns one line saying what o means.
+func (o Overflow) Meaning() string { return overflowWords.Meaning(o) }
+
+// Values lists every Overflow, the zero value first.
+func (Overflow) Values() []Overflow { return overflowWords.Values() }
+
+// Check returns nil if o is one of the Overflow constants, or an error
+// wrapping ErrOption that lists the words.
+func (o Overflow) Check() error { return overflowWords.Check(o) }

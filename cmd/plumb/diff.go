@@ -110,7 +110,8 @@ func init() {
 Compares the candidate (a port's output) with the reference elementwise and
 prints the report: max absolute and relative error (relative to
 max(|ref|, 2^−10·max|ref|)), RMS error, mean signed error (a bias
-detector), normwise relative error, the distribution of ULP distances in
+detector), normwise relative error, SQNR in dB (10·log₁₀(Σ ref² /
+Σ (got − ref)²), common practice), the distribution of ULP distances in
 the candidate's format, NaN and Inf mismatches, the worst elements with
 their index, and the verdict under the tolerance. The two files must have
 the same shape. Exit status 0 within tolerance, 1 outside, 2 for an error.
