@@ -193,6 +193,14 @@
 //	posenc.Ramp: how YaRN goes from keeping to interpolating across the frequencies
 //	  ratio           linear in the ratio of the trained length to the wavelength, as the paper defines it
 //	  dims            linear in the dimension index between rounded bounds, as the authors’ published code computes it
+//	quant.CacheCode: how a quantised key/value cache stores its elements
+//	  int8            symmetric int8 codes, value q·s, new codes chosen in −127..127
+//	  e4m3            OFP8 E4M3 codes, value v·s, new scales amax/448
+//	  e5m2            OFP8 E5M2 codes, value v·s, new scales amax/57344
+//	quant.CacheScaling: which elements of a quantised key/value cache share one scale
+//	  per-tensor      one scale for the whole cache
+//	  per-head        one scale per batch entry and head
+//	  per-token       one scale per batch entry, head and token (one key or value row)
 //	quant.Channel: which index of a [rows, cols] tensor the scales follow
 //	  rows            scales follow the row index: per row, or groups cut along each row
 //	  columns         scales follow the column index: per column, or groups cut down each column
@@ -219,6 +227,10 @@
 //	quant.Overflow: what an element beyond the format's largest magnitude becomes
 //	  nan-or-inf      non-saturating: NaN in E4M3, ±Inf in E5M2
 //	  saturate        saturating: ±448 in E4M3, ±57344 in E5M2
+//	quant.ProbCode: whether the softmax weights are quantised before their product with V
+//	  none            the weights are not quantised
+//	  e4m3            the unnormalised weights exp(x − max x) as E4M3 codes of round(448·e), scale 1/448
+//	  e5m2            the unnormalised weights exp(x − max x) as E5M2 codes of round(57344·e), scale 1/57344
 //	quant.Range: whether the most negative code is used
 //	  full            every code of the width: −128..127, −8..7
 //	  symmetric-clipped the most negative code left out: −127..127, −7..7
