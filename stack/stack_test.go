@@ -1,0 +1,451 @@
+package stack_test
+
+import (
+	"errors"
+	"math"
+	"os"
+	"path/filepath"
+	"testing"
+
+	"github.com/plumbref/plumb/block"
+	"github.com/plumbref/plumb/internal/expect"
+	"github.com/plumbref/plumb/internal/expect/ensure"
+	"github.com/plumbref/plumb/internal/golden"
+	"github.com/plumbref/plumb/norm"
+	"github.com/plumbref/plumb/npy"
+	"github.com/plumbref/plumb/posenc"
+	"github.com/plumbref/plumb/stack"
+)
+
+// The shipped demo files are what demoFiles writes (go test ./stack -run
+// TestDemoFiles -update rewrites them).
+func TestDemoFiles(t *testing.T) {
+	m, z := demoFiles()
+	golden.WholeFile(t, "testdata/demo/manifest.json", string(m))
+	golden.WholeFile(t, "testdata/demo/demo.npz", string(z))
+}
+
+// demo loads the shipped demo model into memory.
+func demo(t *testing.T) (stack.Config, *stack.Memory[float64], *stack.Files[float64]) {
+	t.Helper()
+	m, err := stack.ReadManifest("testdata/demo/manifest.json")
+	ensure.NoError(t, err)
+	c, err := m.Config()
+	ensure.NoError(t, err)
+	f, err := stack.NewFiles[float64](m)
+	ensure.NoError(t, err)
+	mem := &stack.Memory[float64]{}
+	mem.Global, err = f.Globals()
+	ensure.NoError(t, err)
+	for l := range c.Layers {
+		w, err := f.Layer(l)
+		ensure.NoError(t, err)
+		mem.Layers = append(mem.Layers, w)
+	}
+	return c, mem, f
+}
+
+var prompt = []int{3, 14, 15, 92, 65, 35}
+
+// Forward is the embedding rows, the blocks in order, the final norm and
+// the tied product written out here as loops (the ascending sum of
+// rounded products of package block's projections), bit for bit.
+func TestForwardIsTheComposition(t *testing.T) {
+	c, mem, _ := demo(t)
+	got, err := stack.Forward(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	W := c.Width
+	x := make([]float64, 0, len(prompt)*W)
+	for _, id := range prompt {
+		x = append(x, mem.Global.Embed[id*W:(id+1)*W]...)
+	}
+	d := block.Dims{Tokens: len(prompt), Width: W, Heads: c.Heads, HeadsKV: c.HeadsKV, HeadDim: c.HeadDim, Hidden: c.Hidden}
+	for l := range c.Layers {
+		r, err := block.Forward(x, d, mem.Layers[l], block.Cache[float64]{}, c.Block)
+		ensure.NoError(t, err)
+		x = r.Out
+		expect.True(t, bitsEqual(r.Present.K, got.Present[l].K), "layer %d present K", l)
+	}
+	h, err := norm.RMSNorm(x, W, mem.Global.Norm, c.Block.Norm)
+	ensure.NoError(t, err)
+	for tk := range prompt {
+		for v := range c.Vocab {
+			s := 0.0
+			for i := range W {
+				s = float64(h[tk*W+i]*mem.Global.Embed[v*W+i]) + s
+			}
+			if g := got.Logits[tk*c.Vocab+v]; math.Float64bits(g) != math.Float64bits(s) {
+				t.Fatalf("logit [%d, %d] = %v; want %v", tk, v, g, s)
+			}
+		}
+	}
+}
+
+// The fast forms give the direct forms' bits; the float32 twins are
+// within float32 accuracy.
+func TestForms(t *testing.T) {
+	c, mem, _ := demo(t)
+	a, err := stack.Forward(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	b, err := stack.ForwardFast(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	expect.True(t, bitsEqual(a.Logits, b.Logits), "ForwardFast's logits are not Forward's bits")
+	m32 := narrow(mem)
+	for name, f := range map[string]func([]int, stack.Config, stack.Source[float32], []block.Cache[float32]) (stack.Result[float32], error){
+		"Forward32": stack.Forward32, "ForwardFast32": stack.ForwardFast32} {
+		r, err := f(prompt, c, m32, nil)
+		ensure.NoError(t, err)
+		e := golden.NormwiseRelErr(widen(r.Logits), a.Logits)
+		// float32 rounding: a few ulps of 2^-24 per operation over two blocks; 1e-5 is the float32 scale with margin.
+		expect.True(t, e < 1e-5, "%s: normwise error %g; want < 1e-5", name, e)
+	}
+	g, err := stack.Greedy(prompt, 4, c, mem)
+	ensure.NoError(t, err)
+	gf, err := stack.GreedyFast(prompt, 4, c, mem)
+	ensure.NoError(t, err)
+	expect.Equal(t, g.Tokens, gf.Tokens)
+	expect.True(t, bitsEqual(g.Logits, gf.Logits), "GreedyFast's logits are not Greedy's bits")
+	g32, err := stack.Greedy32(prompt, 4, c, m32)
+	ensure.NoError(t, err)
+	expect.Len(t, g32.Tokens, 4)
+	gf32, err := stack.GreedyFast32(prompt, 4, c, m32)
+	ensure.NoError(t, err)
+	expect.Equal(t, g32.Tokens, gf32.Tokens)
+}
+
+// decodeBound bounds the normwise distance between the logits of a
+// greedy step through the cache and the same row of one full forward of
+// the prompt and the chosen tokens. Every projection, rotation and cached
+// key is the same bits row by row in both (package block's cache test);
+// attention sums one query over the same keys in a call of another
+// length, within package block's 1e-15 per block, and the two blocks, the
+// norm and the logits carry that through a few more roundings. Measured
+// worst on the demo model: 3.4e-16; bound 1e-14, the project's target.
+const decodeBound = 1e-14
+
+// Prefill then k one-token steps through the cache gives the logits of one
+// forward of prompt + the chosen tokens, and the tokens are the argmax,
+// lowest id first, of those rows.
+func TestGreedyIsTheFullForward(t *testing.T) {
+	c, mem, _ := demo(t)
+	const k = 5
+	g, err := stack.Greedy(prompt, k, c, mem)
+	ensure.NoError(t, err)
+	all := append(append([]int(nil), prompt...), g.Tokens[:k-1]...)
+	full, err := stack.Forward(all, c, mem, nil)
+	ensure.NoError(t, err)
+	V := c.Vocab
+	for s := range k {
+		row := full.Logits[(len(prompt)-1+s)*V : (len(prompt)+s)*V]
+		e := golden.NormwiseRelErr(g.Logits[s*V:(s+1)*V], row)
+		expect.True(t, e <= decodeBound, "step %d: normwise error %g; want ≤ %g", s, e, decodeBound)
+		best := 0
+		for i, v := range row {
+			if v > row[best] {
+				best = i
+			}
+		}
+		expect.Equal(t, best, g.Tokens[s], "step %d", s)
+	}
+	for l := range c.Layers {
+		e := golden.NormwiseRelErr(g.Present[l].K, full.Present[l].K)
+		expect.True(t, e == 0, "layer %d: the present keys differ from the full forward's by %g", l, e)
+	}
+}
+
+// Chunked prefill, chunks of c tokens each through the caches of the one
+// before, gives the whole prefill's logits and caches within the decode
+// bound.
+func TestChunkedPrefill(t *testing.T) {
+	c, mem, _ := demo(t)
+	whole, err := stack.Forward(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	for _, n := range []int{1, 2, 4} {
+		var past []block.Cache[float64]
+		var logits []float64
+		for i := 0; i < len(prompt); i += n {
+			r, err := stack.ForwardFast(prompt[i:min(i+n, len(prompt))], c, mem, past)
+			ensure.NoError(t, err)
+			logits, past = append(logits, r.Logits...), r.Present
+		}
+		e := golden.NormwiseRelErr(logits, whole.Logits)
+		expect.True(t, e <= decodeBound, "chunks of %d: normwise error %g; want ≤ %g", n, e, decodeBound)
+		for l := range c.Layers {
+			expect.True(t, bitsEqual(past[l].V, whole.Present[l].V), "chunks of %d: layer %d values", n, l)
+		}
+	}
+}
+
+// argmax ties go to the lowest id: a tied model whose embedding has equal
+// rows picks the first of them.
+func TestGreedyTieRule(t *testing.T) {
+	c, mem, _ := demo(t)
+	emb := append([]float64(nil), mem.Global.Embed...)
+	g, err := stack.Greedy(prompt, 1, c, mem)
+	ensure.NoError(t, err)
+	best := g.Tokens[0]
+	lower := (best + 37) % c.Vocab
+	if lower > best {
+		lower, best = best, lower
+	}
+	// row lower becomes the winner's row, so ids lower and best tie at the maximum.
+	copy(emb[lower*c.Width:(lower+1)*c.Width], mem.Global.Embed[g.Tokens[0]*c.Width:(g.Tokens[0]+1)*c.Width])
+	copy(emb[best*c.Width:(best+1)*c.Width], mem.Global.Embed[g.Tokens[0]*c.Width:(g.Tokens[0]+1)*c.Width])
+	m2 := &stack.Memory[float64]{Global: mem.Global, Layers: mem.Layers}
+	m2.Global.Embed = emb
+	r, err := stack.Forward([]int{7}, c, m2, nil)
+	ensure.NoError(t, err)
+	ensure.Equal(t, r.Logits[lower], r.Logits[best], "the two rows tie")
+	g2, err := stack.Greedy([]int{7}, 1, c, m2)
+	ensure.NoError(t, err)
+	top := 0
+	for i, v := range r.Logits {
+		if v > r.Logits[top] {
+			top = i
+		}
+	}
+	if r.Logits[top] == r.Logits[lower] {
+		expect.Equal(t, lower, g2.Tokens[0], "the lower of two tied ids")
+	}
+	expect.Equal(t, top, g2.Tokens[0])
+}
+
+// The cache size of a configuration: 2 · layers · kv heads · head dim ·
+// tokens · bytes (common practice), worked by hand for 32 layers, 8 kv
+// heads of dimension 128, 4096 tokens of 2 bytes: 2·32·8·128·4096·2 =
+// 536870912 (512 MiB).
+func TestCacheBytes(t *testing.T) {
+	c := stack.Config{Layers: 32, Vocab: 1, Width: 4096, Heads: 32, HeadsKV: 8, HeadDim: 128, Hidden: 14336}
+	n, err := stack.CacheBytes(c, 4096, 2)
+	ensure.NoError(t, err)
+	expect.Equal(t, int64(536870912), n)
+	dm, _, _ := demo(t)
+	n, err = stack.CacheBytes(dm, 10, 8)
+	ensure.NoError(t, err)
+	expect.Equal(t, int64(2*2*2*16*10*8), n, "demo model, 10 tokens of float64")
+	_, err = stack.CacheBytes(c, -1, 2)
+	expect.ErrorIs(t, err, stack.ErrConfig)
+	_, err = stack.CacheBytes(c, math.MaxInt64/4, 2)
+	expect.ErrorIs(t, err, stack.ErrConfig)
+}
+
+// The weights read from a directory of .npy files are those of the .npz
+// archive, and give the same logits.
+func TestDirectoryOfFiles(t *testing.T) {
+	c, mem, _ := demo(t)
+	dir := t.TempDir()
+	m := demoManifest()
+	names, arrays := demoArrays(m)
+	for _, n := range names {
+		ensure.NoError(t, npy.WriteFile(filepath.Join(dir, n+".npy"), arrays[n]))
+	}
+	m.Weights = dir
+	text, _ := demoFiles()
+	_ = text
+	f, err := stack.NewFiles[float64](m)
+	ensure.NoError(t, err)
+	a, err := stack.Forward(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	b, err := stack.Forward(prompt, c, f, nil)
+	ensure.NoError(t, err)
+	expect.True(t, bitsEqual(a.Logits, b.Logits), "directory and archive differ")
+}
+
+// Token ids from an integer .npy array; a float array is refused.
+func TestIDs(t *testing.T) {
+	a, err := npy.New(npy.Int64, []int{3}, []int64{5, 0, 99})
+	ensure.NoError(t, err)
+	ids, err := stack.IDs(a)
+	ensure.NoError(t, err)
+	expect.Equal(t, []int{5, 0, 99}, ids)
+	u, err := npy.New(npy.Uint16, []int{2}, []uint16{1, 2})
+	ensure.NoError(t, err)
+	ids, err = stack.IDs(u)
+	ensure.NoError(t, err)
+	expect.Equal(t, []int{1, 2}, ids)
+	f, err := npy.New(npy.Float32, []int{2}, []float32{1, 2})
+	ensure.NoError(t, err)
+	_, err = stack.IDs(f)
+	expect.ErrorIs(t, err, stack.ErrToken)
+	expect.ErrorContains(t, err, "float32")
+	h, err := npy.New(npy.Float16, []int{1}, []uint16{0x3c00})
+	ensure.NoError(t, err)
+	_, err = stack.IDs(h)
+	expect.ErrorIs(t, err, stack.ErrToken)
+}
+
+// A sinusoidal encoding adds the table at positions Past + t: a prefill
+// and a one-token step through the cache agree with the full forward.
+func TestSinusoidal(t *testing.T) {
+	c, mem, _ := demo(t)
+	c.Sinusoidal = &posenc.Sinusoidal{Dim: c.Width}
+	full, err := stack.Forward(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	pre, err := stack.Forward(prompt[:5], c, mem, nil)
+	ensure.NoError(t, err)
+	one, err := stack.Forward(prompt[5:], c, mem, pre.Present)
+	ensure.NoError(t, err)
+	e := golden.NormwiseRelErr(one.Logits, full.Logits[5*c.Vocab:])
+	expect.True(t, e <= decodeBound, "normwise error %g; want ≤ %g", e, decodeBound)
+	plain, _, _ := demo(t)
+	p, err := stack.Forward(prompt, plain, mem, nil)
+	ensure.NoError(t, err)
+	expect.False(t, bitsEqual(p.Logits, full.Logits), "the encoding changed nothing")
+	c.Sinusoidal.Dim = 8
+	_, err = stack.Forward(prompt, c, mem, nil)
+	expect.ErrorIs(t, err, stack.ErrConfig)
+}
+
+func TestErrors(t *testing.T) {
+	c, mem, _ := demo(t)
+	_, err := stack.Forward([]int{1, 100}, c, mem, nil)
+	expect.ErrorIs(t, err, stack.ErrToken)
+	expect.ErrorContains(t, err, "ids[1] = 100; want 0 ≤ id < Vocab = 100")
+	_, err = stack.Forward([]int{-1}, c, mem, nil)
+	expect.ErrorIs(t, err, stack.ErrToken)
+	_, err = stack.Greedy(nil, 1, c, mem)
+	expect.ErrorIs(t, err, stack.ErrToken)
+	_, err = stack.Greedy(prompt, -1, c, mem)
+	expect.ErrorIs(t, err, stack.ErrConfig)
+	_, err = stack.Forward(prompt, c, mem, make([]block.Cache[float64], 1))
+	expect.ErrorIs(t, err, stack.ErrCache)
+	r, err := stack.Forward(prompt[:2], c, mem, nil)
+	ensure.NoError(t, err)
+	r.Present[1].K = r.Present[1].K[:32]
+	_, err = stack.Forward(prompt[:1], c, mem, r.Present)
+	expect.ErrorIs(t, err, stack.ErrCache)
+
+	bad := &stack.Memory[float64]{Global: mem.Global, Layers: append([]block.Weights[float64](nil), mem.Layers...)}
+	bad.Layers[1].K = bad.Layers[1].K[:10]
+	_, err = stack.Forward(prompt, c, bad, nil)
+	expect.ErrorIs(t, err, block.ErrWeight)
+	expect.ErrorContains(t, err, "layer 1")
+	bad.Layers = mem.Layers
+	bad.Global.Head = []float64{1}
+	_, err = stack.Forward(prompt, c, bad, nil)
+	expect.ErrorIs(t, err, stack.ErrWeight)
+	expect.ErrorContains(t, err, "weight head")
+	c0 := c
+	c0.Layers = 0
+	_, err = stack.Forward(prompt, c0, mem, nil)
+	expect.ErrorIs(t, err, stack.ErrConfig)
+	_, err = stack.Forward(prompt, c, nil, nil)
+	expect.ErrorIs(t, err, stack.ErrWeight)
+	nan := &stack.Memory[float64]{Global: mem.Global, Layers: mem.Layers}
+	nan.Global.Embed = append([]float64(nil), mem.Global.Embed...)
+	nan.Global.Embed[3*c.Width] = math.NaN()
+	_, err = stack.Greedy([]int{3}, 1, c, nan)
+	expect.ErrorIs(t, err, stack.ErrLogits)
+}
+
+// Manifests and weight files at fault: the error names the weight, its
+// layer, the shapes, the key.
+func TestManifestErrors(t *testing.T) {
+	text, _ := demoFiles()
+	for _, tc := range []struct {
+		name, from, to string
+		want           error
+		part           string
+	}{
+		{"unknown key", `"layers": 2`, `"layers": 2, "layer": 3`, stack.ErrManifest, `unknown field "layer"`},
+		{"format", stack.ManifestFormat, "other/1", stack.ErrManifest, "format"},
+		{"names key", `"embed": "embed"`, `"embedding": "embed"`, stack.ErrManifest, `"embedding"`},
+		{"layer key", `"ffn_v":`, `"ffn_u":`, stack.ErrManifest, `"ffn_u"`},
+		{"no mark", `"layers.{layer}.q"`, `"layers.q"`, stack.ErrManifest, "{layer}"},
+		{"word", `"rms-norm"`, `"rms"`, block.ErrOption, "rms"},
+		{"size", `"vocab": 100`, `"vocab": 0`, stack.ErrConfig, "Vocab = 0"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := string(text)
+			ensure.Contains(t, s, tc.from)
+			_, err := stack.ParseManifest([]byte(replaceOnce(s, tc.from, tc.to)))
+			expect.ErrorIs(t, err, tc.want)
+			expect.ErrorContains(t, err, tc.part)
+		})
+	}
+	m := demoManifest()
+	names, arrays := demoArrays(m)
+	dir := t.TempDir()
+	for _, n := range names {
+		a := arrays[n]
+		switch n {
+		case "layers.1.ffn_v":
+			continue // missing
+		case "layers.0.k":
+			a, _ = npy.New(npy.Float32, []int{32, 64}, a.Values) // transposed shape
+		}
+		ensure.NoError(t, npy.WriteFile(filepath.Join(dir, n+".npy"), a))
+	}
+	m.Weights = dir
+	f, err := stack.NewFiles[float64](m)
+	ensure.NoError(t, err)
+	_, err = f.Layer(0)
+	expect.ErrorIs(t, err, stack.ErrWeight)
+	expect.ErrorContains(t, err, `layer 0 weight k, the array "layers.0.k", has shape [32, 64]; want [64, 32]`)
+	_, err = f.Layer(1)
+	expect.ErrorIs(t, err, stack.ErrWeight)
+	expect.ErrorContains(t, err, `layer 1 weight ffn_v, the array "layers.1.ffn_v", is missing`)
+	delete(m.LayerNames, "q")
+	_, err = f.Layer(1)
+	expect.ErrorIs(t, err, stack.ErrWeight)
+	expect.ErrorContains(t, err, "layer 1 weight q is missing")
+	m.LayerNames["q"] = "layers.{layer}.q"
+	m.Names["head"] = "embed"
+	_, err = f.Globals()
+	expect.ErrorIs(t, err, stack.ErrWeight)
+	expect.ErrorContains(t, err, "weight head is named")
+	_, err = os.Stat(filepath.Join(dir, "layers.0.q.npy"))
+	ensure.NoError(t, err)
+}
+
+func replaceOnce(s, from, to string) string {
+	for i := 0; i+len(from) <= len(s); i++ {
+		if s[i:i+len(from)] == from {
+			return s[:i] + to + s[i+len(from):]
+		}
+	}
+	return s
+}
+
+func bitsEqual[T float32 | float64](a, b []T) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if math.Float64bits(float64(a[i])) != math.Float64bits(float64(b[i])) {
+			return false
+		}
+	}
+	return true
+}
+
+func narrow(m *stack.Memory[float64]) *stack.Memory[float32] {
+	f := func(x []float64) []float32 {
+		if x == nil {
+			return nil
+		}
+		y := make([]float32, len(x))
+		for i, v := range x {
+			y[i] = float32(v)
+		}
+		return y
+	}
+	out := &stack.Memory[float32]{Global: stack.Globals[float32]{Embed: f(m.Global.Embed), Norm: f(m.Global.Norm), NormBias: f(m.Global.NormBias), Head: f(m.Global.Head)}}
+	for _, w := range m.Layers {
+		v := block.Weights[float32]{Norm1: f(w.Norm1), Norm1Bias: f(w.Norm1Bias), Q: f(w.Q), QBias: f(w.QBias), K: f(w.K), KBias: f(w.KBias),
+			V: f(w.V), VBias: f(w.VBias), O: f(w.O), OBias: f(w.OBias), Norm2: f(w.Norm2), Norm2Bias: f(w.Norm2Bias)}
+		v.FFN.W1, v.FFN.B1, v.FFN.V, v.FFN.C, v.FFN.W2, v.FFN.B2 = f(w.FFN.W1), f(w.FFN.B1), f(w.FFN.V), f(w.FFN.C), f(w.FFN.W2), f(w.FFN.B2)
+		out.Layers = append(out.Layers, v)
+	}
+	return out
+}
+
+func widen(x []float32) []float64 {
+	y := make([]float64, len(x))
+	for i, v := range x {
+		y[i] = float64(v)
+	}
+	return y
+}
+
+var _ = errors.Is
