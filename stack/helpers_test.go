@@ -20,8 +20,8 @@ func demoManifest() *stack.Manifest {
 	m := &stack.Manifest{Format: stack.ManifestFormat, Weights: "demo.npz",
 		Layers: 2, Vocab: 100, Width: 64, Heads: 4, HeadsKV: 2, HeadDim: 16, Hidden: 128,
 		Epsilon: 1e-5, Gated: true, FinalNorm: true, Tied: true,
-		Rotary: &stack.ManifestRotary{Base: 10000},
-		Names:  map[string]string{"embed": "embed", "final_norm": "final_norm"},
+		Rotary:     &stack.ManifestRotary{Base: 10000},
+		Names:      map[string]string{"embed": "embed", "final_norm": "final_norm"},
 		LayerNames: map[string]string{}}
 	m.NormKind = block.RMSNorm
 	if err := m.Act.UnmarshalText([]byte("silu")); err != nil {
