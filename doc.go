@@ -17,6 +17,10 @@
 //	           grouped and multi-query; masks, bias, ALiBi slopes, soft-capping,
 //	           sink logits; the tiled online-softmax form and the merge of
 //	           partial results; decode against a cache
+//	block      one decoder block composed of the kernels' functions:
+//	           pre-norm, post-norm and parallel forms, LayerNorm or RMSNorm,
+//	           rotary, every attention option, a key/value cache, every
+//	           intermediate a named stage
 //	kvcache    serving-time layouts of the key/value cache on attention: pages
 //	           of a pool with a page table per sequence, decoding split over
 //	           ranges of the cache and merged, a ring buffer for a sliding

@@ -116,8 +116,8 @@ func init() {
 	register(&op[blockConfig]{
 		name:    "block-forward",
 		summary: "one decoder block: norm, attention with a key/value cache, residual, norm, feed-forward, residual (block.ForwardFast; float32: block.ForwardFast32)",
-		note: "The stages, in pipeline order: " + stageList() + ". The tokens are at positions past … past + tokens − 1;\n" +
-			"the present cache is the next call's past.",
+		note: cacheNote("The tokens are at positions past … past + tokens − 1; the present cache is the next call's past.\n" +
+			"The stages, in pipeline order: " + stageList() + "."),
 		inputs:  blockInputs,
 		outputs: blockOutputs(),
 		run:     runBlock,

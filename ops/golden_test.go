@@ -252,6 +252,7 @@ func goldenFamilies() []goldenFamily {
 			runs: []goldenRun{{op: "alibi-bias", inputs: []string{"slopes"}, outputs: identity("bias"), bound: exactly}}},
 	)
 	fams = append(fams, kvcacheFamilies()...)
+	fams = append(fams, blockFamilies()...)
 	for _, f := range []string{"rotary_apply", "scaling"} {
 		fams = append(fams, goldenFamily{pkg: "posenc", family: f,
 			config:       identity("rotated", "base", "pairing", "magnitude", "scaling", "offset"),

@@ -257,7 +257,7 @@ func outputNames(t Tensors) []string {
 
 func keyTests() []keyTest {
 	var all []keyTest
-	for _, f := range []func() []keyTest{attentionKeyTests, rotaryKeyTests, tableKeyTests, normKeyTests, activationKeyTests, ffnKeyTests, idiomKeyTests, kvcacheKeyTests} {
+	for _, f := range []func() []keyTest{attentionKeyTests, rotaryKeyTests, tableKeyTests, normKeyTests, activationKeyTests, ffnKeyTests, idiomKeyTests, kvcacheKeyTests, blockKeyTests} {
 		all = append(all, f()...)
 	}
 	return all
@@ -363,7 +363,19 @@ func must(m mask.Mask, err error) mask.Mask {
 	return m
 }
 
-func attentionKeyTests() []keyTest {
+// attnKeyEntry is one attention key of the key tests, with its values
+// and the shape and optional inputs that tell them apart.
+type attnKeyEntry struct {
+	key, why string
+	s        attention.Shape // the shape of the inputs; attnShape when zero
+	extra    Tensors         // the optional inputs
+	values   []attnKeyValue
+}
+
+// attentionKeyList lists the attention keys of the key tests (the
+// attention operations take them all; block-forward shares those that
+// do not move the queries).
+func attentionKeyList() []attnKeyEntry {
 	causal := mask.Causal()
 	start := func(m mask.Mask) attention.Options { return attention.Options{Mask: m, Align: mask.AlignStart} }
 	onlyMask := func(m mask.Mask) attention.Options { return attention.Options{Mask: m} }
@@ -371,12 +383,7 @@ func attentionKeyTests() []keyTest {
 	// Two batch entries for the masks that differ per entry.
 	s2 := attnShape
 	s2.Batch = 2
-	keys := []struct {
-		key, why string
-		s        attention.Shape // the shape of the inputs; attnShape when zero
-		extra    Tensors         // the optional inputs
-		values   []attnKeyValue
-	}{
+	return []attnKeyEntry{
 		{key: "layout", why: "the same data read as [batch, heads, queries, dim] or [batch, queries, heads, dim] gives each head other rows (4 heads, 3 queries)",
 			values: []attnKeyValue{
 				{value: leftOut, same: "heads-major"},
@@ -488,6 +495,10 @@ func attentionKeyTests() []keyTest {
 				{value: "nan", body: `"mask":[{"kind":"key-padding","valid":[0,3]}],"empty_row":"nan"`, o: attention.Options{Mask: must(mask.KeyPadding([]int{0, 3})), EmptyRow: attention.EmptyRowNaN}},
 			}},
 	}
+}
+
+func attentionKeyTests() []keyTest {
+	keys := attentionKeyList()
 	var tests []keyTest
 	for _, k := range keys {
 		s := k.s
@@ -577,7 +588,16 @@ func rotaryKeyValue(op string, v rotaryValue) keyValue {
 	return kv
 }
 
-func rotaryKeyTests() []keyTest {
+// rotaryKeyEntry is one rotary key of the key tests with its values.
+type rotaryKeyEntry struct {
+	key, why string
+	values   []rotaryValue
+}
+
+// rotaryKeyList lists the rotary keys of the key tests (rotary-apply and
+// rotary-tables take them all; block-forward those under "rotary" but
+// the positions, which the block sets).
+func rotaryKeyList() []rotaryKeyEntry {
 	// yarn is the YaRN scaling of most scaling keys: factor 4 over a
 	// trained length of 16. With base 10000 and 8 rotated dims the
 	// frequencies are 1, 0.1, 0.01, 0.001, at ratios ρ = 16·θ/(2π) of
@@ -589,10 +609,7 @@ func rotaryKeyTests() []keyTest {
 	}
 	scaled := func(sc posenc.Scaling) posenc.Rotary { return posenc.Rotary{Scaling: sc} }
 	factors := []float64{1, 2, 4, 8}
-	shared := []struct {
-		key, why string
-		values   []rotaryValue
-	}{
+	return []rotaryKeyEntry{
 		{"rotated", "rotating 4, 6 or all 8 dims: frequencies over r and the dims past r passed through differ (tables: r/2 columns)", []rotaryValue{
 			{value: leftOut, same: "8"},
 			{value: "8", body: `"rotated":8`, r: posenc.Rotary{Rotated: 8}},
@@ -694,6 +711,10 @@ func rotaryKeyTests() []keyTest {
 			{value: "[7,7,7,7,7]", body: `"positions":[7,7,7,7,7]`, list: []int{7, 7, 7, 7, 7}},
 		}},
 	}
+}
+
+func rotaryKeyTests() []keyTest {
+	shared := rotaryKeyList()
 	var tests []keyTest
 	for _, op := range []string{"rotary-apply", "rotary-tables"} {
 		for _, k := range shared {

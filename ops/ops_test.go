@@ -132,6 +132,12 @@ func cases() []opCase {
 				return Tensors{"q": tensor(r, 1, 4, 3, 8), "k_cache": tensor(r, 1, 2, 5, 8), "v_cache": tensor(r, 1, 2, 5, 8),
 					"k_draft": tensor(r, 1, 2, 3, 8), "v_draft": tensor(r, 1, 2, 3, 8)}
 			}, []string{"out", "lse"}},
+		{"block-forward/cache-gated", "block-forward",
+			`{"version":1,"epsilon":1e-5,"heads":4,"heads_kv":2,"norm_kind":"rms-norm","gated":true,"activation":"silu","rotary":{},"mask":[{"kind":"causal"}],"keep":["q","attn"]}`,
+			func(r *rand.Rand) Tensors {
+				return Tensors{"x": tensor(r, 3, 8), "wq": tensor(r, 8, 16), "wk": tensor(r, 8, 8), "wv": tensor(r, 8, 8), "wo": tensor(r, 16, 8),
+					"w1": tensor(r, 8, 6), "v": tensor(r, 8, 6), "w2": tensor(r, 6, 8), "past_k": tensor(r, 2, 2, 4), "past_v": tensor(r, 2, 2, 4)}
+			}, []string{"out", "present_k", "present_v", "stage_q", "stage_attn"}},
 		{"softmax", "softmax", `{"version":1}`,
 			func(r *rand.Rand) Tensors { return Tensors{"x": tensor(r, 2, 3, 7)} }, []string{"y"}},
 		{"logsumexp", "logsumexp", "",

@@ -6,6 +6,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/plumbref/plumb/block"
 	"github.com/plumbref/plumb/internal/expect"
 	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/posenc"
@@ -82,6 +83,14 @@ func sizeCases() []sizeCase {
 		{"split out", "split-attention", `{"version":1,"position":0,"start":0,"end":1}`,
 			Tensors{"q": shaped(1, 1<<7, 1<<7, 1), "k": shaped(1, 1, 1, 1), "v": shaped(1, 1, 1, 1<<15)}, ErrInput,
 			`dim_v (input "v") = 1 · 128 · 128 · 32768 = 536870912; want at most MaxElements`},
+		// block-forward's queries are [tokens, heads, head_dim]: 2^14
+		// tokens of width 1 on a query projection of 2^15 units give 2^29
+		// values from inputs of 2^14 and 2^15; the block refuses them
+		// before it allocates.
+		{"block queries", "block-forward", `{"version":1,"epsilon":1e-5,"heads":1}`,
+			Tensors{"x": shaped(1<<14, 1), "wq": shaped(1, 1<<15), "wk": shaped(1, 1<<15), "wv": shaped(1, 1<<15), "wo": shaped(1<<15, 1),
+				"w1": shaped(1, 1), "w2": shaped(1, 1)}, block.ErrShape,
+			`the size of the queries [Tokens, Heads, HeadDim] = 16384·1·32768, a zero dimension counted as 1; want at most MaxElements = 268435456`},
 		{"ring out", "ring-attention", `{"version":1,"tokens":1}`,
 			Tensors{"q": shaped(1, 1<<14, 1, 1), "k_ring": shaped(1, 1, 1, 1), "v_ring": shaped(1, 1, 1, 1<<15)}, ErrInput,
 			`dim_v (input "v_ring") = 1 · 16384 · 1 · 32768 = 536870912; want at most MaxElements`},
