@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/plumbref/plumb/block"
+	"github.com/plumbref/plumb/ffn"
 	"github.com/plumbref/plumb/internal/expect"
 	"github.com/plumbref/plumb/internal/expect/ensure"
 	"github.com/plumbref/plumb/internal/golden"
@@ -447,3 +448,43 @@ func widen(x []float32) []float64 {
 }
 
 var _ = errors.Is
+
+// transpose returns the [cols, rows] transpose of the rows × cols matrix x.
+func transpose(x []float64, rows, cols int) []float64 {
+	y := make([]float64, len(x))
+	for i := range rows {
+		for j := range cols {
+			y[j*rows+i] = x[i*cols+j]
+		}
+	}
+	return y
+}
+
+// A separate head equal to the embedding gives the tied logits, stored
+// in-by-out ([Width, Vocab], Eᵀ) or out-by-in ([Vocab, Width], E, every
+// block matrix transposed with it), the same bits.
+func TestSeparateHead(t *testing.T) {
+	c, mem, _ := demo(t)
+	tied, err := stack.Forward(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	c.Tied = false
+	in := &stack.Memory[float64]{Global: mem.Global, Layers: mem.Layers}
+	in.Global.Head = transpose(mem.Global.Embed, c.Vocab, c.Width)
+	r, err := stack.Forward(prompt, c, in, nil)
+	ensure.NoError(t, err)
+	expect.True(t, bitsEqual(tied.Logits, r.Logits), "in-by-out head")
+
+	c.Block.WeightOrder = ffn.OutByIn
+	out := &stack.Memory[float64]{Global: mem.Global}
+	out.Global.Head = mem.Global.Embed
+	W, H, nq, nkv := c.Width, c.Hidden, c.Heads*c.HeadDim, c.HeadsKV*c.HeadDim
+	for _, w := range mem.Layers {
+		v := w
+		v.Q, v.K, v.V, v.O = transpose(w.Q, W, nq), transpose(w.K, W, nkv), transpose(w.V, W, nkv), transpose(w.O, nq, W)
+		v.FFN.W1, v.FFN.V, v.FFN.W2 = transpose(w.FFN.W1, W, H), transpose(w.FFN.V, W, H), transpose(w.FFN.W2, H, W)
+		out.Layers = append(out.Layers, v)
+	}
+	r, err = stack.Forward(prompt, c, out, nil)
+	ensure.NoError(t, err)
+	expect.True(t, bitsEqual(tied.Logits, r.Logits), "out-by-in head")
+}
