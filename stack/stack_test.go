@@ -480,3 +480,54 @@ func TestSeparateHead(t *testing.T) {
 	ensure.NoError(t, err)
 	expect.True(t, bitsEqual(tied.Logits, r.Logits), "out-by-in head")
 }
+
+// reusing copies each layer's weights into one block's storage, which it
+// overwrites at every call, and records the calls.
+type reusing struct {
+	from  *stack.Memory[float64]
+	buf   block.Weights[float64]
+	calls []int // -1 for Globals
+}
+
+func (r *reusing) Globals() (stack.Globals[float64], error) {
+	r.calls = append(r.calls, -1)
+	return r.from.Global, nil
+}
+
+func (r *reusing) Layer(i int) (block.Weights[float64], error) {
+	r.calls = append(r.calls, i)
+	w := r.from.Layers[i]
+	cp := func(dst *[]float64, src []float64) {
+		if src == nil {
+			*dst = nil
+			return
+		}
+		*dst = append((*dst)[:0], src...)
+	}
+	b := &r.buf
+	cp(&b.Norm1, w.Norm1)
+	cp(&b.Q, w.Q)
+	cp(&b.K, w.K)
+	cp(&b.V, w.V)
+	cp(&b.O, w.O)
+	cp(&b.Norm2, w.Norm2)
+	cp(&b.FFN.W1, w.FFN.W1)
+	cp(&b.FFN.V, w.FFN.V)
+	cp(&b.FFN.W2, w.FFN.W2)
+	return *b, nil
+}
+
+// Forward asks for the globals once and for the layers in order, and
+// reads no layer's weights after asking for the next: a Source that
+// overwrites one block's storage at each call gives the same bits as the
+// weights held whole.
+func TestOneLayerAtATime(t *testing.T) {
+	c, mem, _ := demo(t)
+	whole, err := stack.Forward(prompt, c, mem, nil)
+	ensure.NoError(t, err)
+	r := &reusing{from: mem}
+	got, err := stack.ForwardFast(prompt, c, r, nil)
+	ensure.NoError(t, err)
+	expect.True(t, bitsEqual(whole.Logits, got.Logits), "one block's storage reused")
+	expect.Equal(t, []int{-1, 0, 1}, r.calls)
+}
