@@ -21,6 +21,9 @@
 //	           pre-norm, post-norm and parallel forms, LayerNorm or RMSNorm,
 //	           rotary, every attention option, a key/value cache, every
 //	           intermediate a named stage
+//	stack      a decoder stack on block: embedding, the blocks one layer's
+//	           weights at a time, final norm, logits; greedy steps through
+//	           the cache; weights from a manifest and .npz or .npy files
 //	kvcache    serving-time layouts of the key/value cache on attention: pages
 //	           of a pool with a page table per sequence, decoding split over
 //	           ranges of the cache and merged, a ring buffer for a sliding
