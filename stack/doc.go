@@ -134,7 +134,7 @@
 // sinusoidal, when not null, is {"base" (0: 10000), "layout"}.
 //
 // The demo model's weights are invented: each array drawn by gen.Uniform
-// from its own seed and rounded to float32 (the test file
+// from its own seed and rounded to the nearest multiple of 2⁻⁸, exact in float32 (the test file
 // helpers_test.go writes them; TestDemoFiles checks that the shipped
 // files are its output, and go test -run TestDemoFiles -update rewrites
 // them).

@@ -38,7 +38,9 @@ func demoManifest() *stack.Manifest {
 
 // demoArrays draws the demo model's weights: each array from its own seed
 // (gen.Uniform, in [−s, s) with s = 1/√fan-in for matrices; norm weights
-// in [0.5, 1.5); the embedding in [−1, 1)), rounded to float32.
+// in [0.5, 1.5); the embedding in [−1, 1)), each rounded to the nearest
+// multiple of 2⁻⁸ (exact in float32, with the low 16 bits of every value
+// zero, so the stored archive holds few bytes that read as text).
 func demoArrays(m *stack.Manifest) (names []string, arrays map[string]*npy.Array) {
 	arrays = map[string]*npy.Array{}
 	seed := uint64(1)
@@ -54,7 +56,7 @@ func demoArrays(m *stack.Manifest) (names []string, arrays map[string]*npy.Array
 		seed++
 		f := make([]float32, n)
 		for i := range v {
-			f[i] = float32(v[i])
+			f[i] = float32(math.Round(v[i]*256) / 256)
 		}
 		a, err := npy.New(npy.Float32, shape, f)
 		if err != nil {
